@@ -1,0 +1,71 @@
+/*
+ * stagecal/column.h — the column file (JSON): the column, its binary system and the
+ * standard uncertainties of the signals a run log carries. Format: docs/column-file.md.
+ *
+ * SI inside: heights and diameters in m, pressure in Pa, molar masses in kg/mol,
+ * latent heat in J/mol. Uncertainties are standard (1σ) uncertainties in the
+ * signal's SI unit (mole fraction for xD/xB, mol for W, mol/s for V, − for R).
+ */
+#ifndef STAGECAL_COLUMN_H
+#define STAGECAL_COLUMN_H
+
+#include <stddef.h>
+
+#include "stagecal/error.h"
+#include "stagecal/vle.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+#define STAGECAL_NAME_MAX 64
+
+typedef enum {
+    STAGECAL_CONDENSER_TOTAL = 0, /* not an equilibrium stage */
+    STAGECAL_CONDENSER_PARTIAL    /* one equilibrium stage */
+} stagecal_condenser;
+
+/* The binary system. */
+typedef struct {
+    char light[STAGECAL_NAME_MAX]; /* light (more volatile) component name */
+    char heavy[STAGECAL_NAME_MAX]; /* heavy component name */
+    double m_light;                /* molar mass of light [kg/mol], > 0 (0 = not given) */
+    double m_heavy;                /* molar mass of heavy [kg/mol], > 0 (0 = not given) */
+    double p_pa;                   /* operating pressure [Pa], > 0 (0 = not given) */
+    double latent_j_mol;           /* molar latent heat [J/mol] for Q → V (0 = not given) */
+    stagecal_vle *vle;             /* owned equilibrium model */
+} stagecal_system;
+
+/* Standard uncertainties of logged signals (0 = not stated). */
+typedef struct {
+    double xd;      /* distillate mole fraction [-] */
+    double xb;      /* pot mole fraction [-] */
+    double w_mol;   /* pot holdup [mol] */
+    double r;       /* reflux ratio [-], absolute */
+    double r_rel;   /* reflux ratio, relative to R [-] */
+    double v_mol_s; /* boil-up [mol/s] */
+} stagecal_uncertainty;
+
+typedef struct {
+    char id[STAGECAL_NAME_MAX];   /* column id, [A-Za-z0-9_.-]+ (used as fits/<id>/) */
+    double height_m;              /* packed height [m] (0 = trayed or unknown) */
+    double diameter_m;            /* inside diameter [m] (0 = unknown) */
+    int trays;                    /* number of actual trays (0 = packed or unknown) */
+    stagecal_condenser condenser; /* condenser type */
+    stagecal_system system;       /* the binary system */
+    stagecal_uncertainty u;       /* measurement uncertainties */
+} stagecal_column;
+
+/* Reads a column file. On success *col owns its vle; free with
+ * stagecal_column_free. Errors: ENOINPUT (cannot open), EDATA (malformed JSON or a
+ * field outside its domain, with "path:line: field 'x': ..." messages), ENOMEM. */
+int stagecal_column_load(const char *path, stagecal_column *col, stagecal_error *err);
+/* Same from an in-memory JSON text; source names it in messages. */
+int stagecal_column_parse(const char *text, size_t len, const char *source,
+                          stagecal_column *col, stagecal_error *err);
+void stagecal_column_free(stagecal_column *col); /* releases owned memory; NULL ok */
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,95 @@
+/*
+ * stagecal/stages.h — McCabe–Thiele stepping for a batch rectifier, both ways.
+ *
+ * Conventions (DESIGN §2): stages are numbered from the top, the pot is the last,
+ * ideal, stage; "stages" counts the pot, "column stages" = stages − 1. Constant
+ * molar overflow: y(n+1) = (L/V)·x(n) + (1 − L/V)·xD, L/V = R/(R+1); total reflux
+ * is R = INFINITY (L/V = 1). Total condenser: y1 = xD. Each column stage may carry
+ * a Murphree vapour efficiency E_MV in (0, 1]; the pot is ideal. Fractional stages
+ * are defined from the pot up (DESIGN §2) and equal Fenske / Smoker exactly for
+ * constant α and E_MV = 1.
+ */
+#ifndef STAGECAL_STAGES_H
+#define STAGECAL_STAGES_H
+
+#include <stddef.h>
+
+#include "stagecal/error.h"
+#include "stagecal/vle.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* Per-sample outcome of an inversion (a result, not an error). */
+typedef enum {
+    STAGECAL_STAGES_OK = 0,    /* stages computed */
+    STAGECAL_STAGES_PINCH,     /* xB cannot be reached with any number of stages */
+    STAGECAL_STAGES_AZEOTROPE, /* an azeotrope lies between xB and xD */
+    STAGECAL_STAGES_INVALID    /* input outside its domain (reason says which) */
+} stagecal_stages_status;
+
+/* "ok", "pinch", "azeotrope", "invalid". */
+const char *stagecal_stages_status_name(int status);
+
+/* Tunables (GSL "Arbitrary Constants"). */
+typedef struct {
+    size_t max_stages;       /* cap on whole steps before declaring a pinch (default 10000) */
+    double top_tol;          /* x_target ≤ xD + top_tol counts as stages = 1 (1e-12) */
+    int want_sensitivities;  /* 1: fill the ∂stages/∂… fields (costs extra inversions) */
+} stagecal_stages_params;
+
+stagecal_stages_params stagecal_stages_default_params(void);
+
+typedef struct {
+    int status;               /* stagecal_stages_status */
+    double stages;            /* equilibrium stages incl. the pot (≥ 1); 0 unless ok */
+    double column_stages;     /* stages − 1; 0 unless ok */
+    double lv;                /* L/V used (1 at total reflux) */
+    double x_target;          /* liquid leaving the lowest column stage (DESIGN §2.2) */
+    double dstages_dxd;       /* sensitivities (0 unless ok and requested) */
+    double dstages_dxb;
+    double dstages_dr;        /* 0 at total reflux */
+    char reason[160];         /* why, when status is not ok; "" otherwise */
+} stagecal_stages_result;
+
+/* One point of a stage profile: the liquid leaving stage `stage` and the vapour
+ * leaving it (on the (pseudo-)equilibrium curve). */
+typedef struct {
+    double stage;  /* 1, 2, …; the partial stage's end point carries its fractional position */
+    double x;      /* liquid mole fraction */
+    double y;      /* vapour mole fraction */
+} stagecal_stage_point;
+
+/* Inversion: (xD, xB, R, E_MV) → stages. Returns STAGECAL_OK whenever res is filled,
+ * even for pinch/azeotrope/invalid (see res->status and res->reason); an error code
+ * only for a failed inner solve (ENOCONV) or a NULL argument (EINVAL). params may be
+ * NULL (defaults). Never leaves NaN or ±inf in res. */
+int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double reflux,
+                           double murphree, const stagecal_stages_params *params,
+                           stagecal_stages_result *res, stagecal_error *err);
+
+/* Forward stepping: (xD, R, stages ≥ 1, E_MV) → xB and the profile. profile may be
+ * NULL; otherwise up to cap points are written (ceil(stages) entries: whole column
+ * stages, the partial stage's end point when stages is not whole, then the pot) and
+ * *len receives the full count. *status receives ok / pinch / azeotrope / invalid.
+ * Errors: EINVAL (stages < 1, xD or E_MV outside its domain), ENOCONV. */
+int stagecal_stages_step(const stagecal_vle *vle, double xd, double reflux, double stages,
+                         double murphree, const stagecal_stages_params *params, double *xb,
+                         stagecal_stage_point *profile, size_t cap, size_t *len, int *status,
+                         stagecal_error *err);
+
+/* Closed forms for constant α (REFERENCES §1, §2). Return EINVAL outside their
+ * domain (e.g. xB at or below the pinch for Smoker). Stages include the pot. */
+int stagecal_fenske(double alpha, double xd, double xb, double *stages, stagecal_error *err);
+int stagecal_smoker(double alpha, double reflux, double xd, double xb, double *stages,
+                    stagecal_error *err);
+/* Minimum reflux ratio for separating xD from a pot at xB with a general model
+ * (the operating line touches the equilibrium curve, tangent pinches included). */
+int stagecal_min_reflux(const stagecal_vle *vle, double xd, double xb, double *rmin,
+                        stagecal_error *err);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,61 @@
+/*
+ * cli.h — what every subcommand shares: exit codes, number parsing, messages,
+ * JSON output. Subcommands live in cmd_<name>.c, one per file, and are listed in
+ * the table in main.c. Checklist for a new subcommand: cmd_<name>.c with usage text,
+ * getopt_long table, parse → library call → print; an entry in main.c's table;
+ * tests in tests/cli/; a page in docs/cli.md.
+ */
+#ifndef STAGECAL_CLI_H
+#define STAGECAL_CLI_H
+
+#include <jansson.h>
+#include <stdio.h>
+#include <sysexits.h>
+
+#include "stagecal/error.h"
+
+/* Exit codes (DESIGN §5). */
+#define CLI_EXIT_OK 0
+#define CLI_EXIT_USAGE 2           /* usage error (jq's choice) */
+#define CLI_EXIT_DATA EX_DATAERR   /* 65 bad input data */
+#define CLI_EXIT_NOINPUT EX_NOINPUT /* 66 input missing */
+#define CLI_EXIT_SOFTWARE EX_SOFTWARE /* 70 internal error */
+#define CLI_EXIT_CANTCREAT EX_CANTCREAT /* 73 output cannot be written */
+
+/* The running command's name, for messages ("stagecal <cmd>: ..."). */
+extern const char *cli_command;
+/* Set by --quiet: silence warnings and progress on stderr. */
+extern int cli_quiet;
+
+/* "stagecal <cmd>: <message>\n" on stderr. */
+void cli_error(const char *fmt, ...) __attribute__((format(printf, 1, 2)));
+/* "stagecal <cmd>: warning: <message>\n" on stderr unless --quiet. */
+void cli_warn(const char *fmt, ...) __attribute__((format(printf, 1, 2)));
+/* Prints a usage error and the hint to run --help; returns CLI_EXIT_USAGE. */
+int cli_usage_error(const char *fmt, ...) __attribute__((format(printf, 1, 2)));
+
+/* Maps a library status to an exit code. */
+int cli_exit_for(int status);
+/* Prints err's text as an error and returns cli_exit_for(err->code). */
+int cli_fail(const stagecal_error *err);
+
+/* Strict number parsing for option `opt`: the whole text must be a finite number
+ * (or "inf" when allow_inf). On failure prints "option '--opt': 'text' is not a
+ * number (expected ...)" and returns -1. */
+int cli_parse_double(const char *opt, const char *text, int allow_inf, const char *expected,
+                     double *out);
+int cli_parse_long(const char *opt, const char *text, long lo, long hi, long *out);
+
+/* Writes doc as the one JSON document on stdout (sorted keys, indent 2, 17
+ * significant digits) and releases it. Returns 0 or CLI_EXIT_CANTCREAT. */
+int cli_json_print(json_t *doc);
+/* A JSON real that is null when v is not finite. */
+json_t *cli_json_real(double v);
+
+/* The caution every report carries (DESIGN §6), one paragraph. */
+extern const char cli_caution[];
+
+/* Is stderr a terminal that may show progress (and NO_COLOR unset)? */
+int cli_progress_enabled(void);
+
+#endif

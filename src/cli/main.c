@@ -1,0 +1,91 @@
+/*
+ * main.c — the stagecal program: a table of subcommands (Git's dispatch idea).
+ * Parsing stops at the command name ('+' in the option string); each command
+ * resets getopt with optind = 0 and parses its own options.
+ */
+#include <getopt.h>
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_version.h>
+#include <jansson.h>
+#include <locale.h>
+#include <nlopt.h>
+#include <stdio.h>
+#include <string.h>
+
+#include "banned.h"
+#include "cli.h"
+#include "commands.h"
+#include "stagecal/version.h"
+
+struct command {
+    const char *name;
+    int (*run)(int argc, char **argv);
+    const char *summary;
+};
+
+static const struct command commands[] = {
+    {"steps", cmd_steps, "step stages down from xD: xB and the stage profile"},
+    {"invert", cmd_invert, "effective stages from xD, xB and R (or every row of a run log)"},
+};
+
+static void usage(FILE *out)
+{
+    fprintf(out, "usage: stagecal [--version] [--help] <command> [options] [args]\n\n"
+                 "Effective equilibrium stages of batch distillation columns from run logs.\n\n"
+                 "commands:\n");
+    for (size_t i = 0; i < sizeof commands / sizeof commands[0]; i++)
+        fprintf(out, "  %-10s %s\n", commands[i].name, commands[i].summary);
+    fprintf(out, "\nRun 'stagecal <command> --help' for a command's options.\n");
+}
+
+static int finish(int rc)
+{
+    /* A failed write of results is a failure (Git's run_builtin, jq's main). */
+    if (fflush(stdout) != 0 || ferror(stdout)) {
+        fprintf(stderr, "stagecal: cannot write to standard output\n");
+        return CLI_EXIT_CANTCREAT;
+    }
+    return rc;
+}
+
+int main(int argc, char **argv)
+{
+    static const struct option opts[] = {
+        {"help", no_argument, NULL, 'h'}, {"version", no_argument, NULL, 'V'}, {0, 0, 0, 0}};
+    int c;
+
+    setlocale(LC_ALL, "C");
+    gsl_set_error_handler_off(); /* GSL's default handler aborts; we check statuses */
+
+    while ((c = getopt_long(argc, argv, "+hV", opts, NULL)) != -1) {
+        switch (c) {
+        case 'h':
+            usage(stdout);
+            return finish(CLI_EXIT_OK);
+        case 'V': {
+            int maj, min, bug;
+            nlopt_version(&maj, &min, &bug);
+            printf("stagecal %s (GSL %s, NLopt %d.%d.%d, jansson %s, libcsv 3)\n",
+                   stagecal_version(), gsl_version, maj, min, bug, jansson_version_str());
+            return finish(CLI_EXIT_OK);
+        }
+        default:
+            fprintf(stderr, "stagecal: try 'stagecal --help'\n");
+            return CLI_EXIT_USAGE;
+        }
+    }
+    if (optind >= argc) {
+        usage(stderr);
+        return CLI_EXIT_USAGE;
+    }
+    const char *name = argv[optind];
+    for (size_t i = 0; i < sizeof commands / sizeof commands[0]; i++) {
+        if (strcmp(commands[i].name, name) == 0) {
+            cli_command = commands[i].name;
+            return finish(commands[i].run(argc - optind, argv + optind));
+        }
+    }
+    fprintf(stderr, "stagecal: '%s' is not a command\n\n", name);
+    usage(stderr);
+    return CLI_EXIT_USAGE;
+}

@@ -1,0 +1,24 @@
+/*
+ * internal.h — helpers shared by library files; not installed, no stagecal_ prefix.
+ */
+#ifndef STAGECAL_INTERNAL_H
+#define STAGECAL_INTERNAL_H
+
+#include "stagecal/error.h"
+#include "banned.h"
+
+#if defined(__GNUC__)
+#define SC_PRINTF(a, b) __attribute__((format(printf, a, b)))
+#else
+#define SC_PRINTF(a, b)
+#endif
+
+/* Fill err (may be NULL) with code and a formatted message; returns code. */
+int error_set(stagecal_error *err, int code, const char *fmt, ...) SC_PRINTF(3, 4);
+
+/* As error_set, with a location: the message becomes "source:line: text"
+ * ("source: text" when line is 0). */
+int error_set_at(stagecal_error *err, int code, const char *source, long line, long column,
+                 const char *fmt, ...) SC_PRINTF(6, 7);
+
+#endif
