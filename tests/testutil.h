@@ -14,10 +14,10 @@
 #include <cmocka.h>
 
 /* |got − want| ≤ tol·|want| (relative); want = 0 falls back to absolute. */
-#define assert_rel(got, want, tol, label) \
+#define assert_rel(got, want, tol, label)                                                          \
     testutil_check_rel((got), (want), (tol), (label), __FILE__, __LINE__)
 /* |got − want| ≤ tol (absolute). */
-#define assert_abs(got, want, tol, label) \
+#define assert_abs(got, want, tol, label)                                                          \
     testutil_check_abs((got), (want), (tol), (label), __FILE__, __LINE__)
 
 static inline void testutil_check_rel(double got, double want, double tol, const char *label,
@@ -26,8 +26,8 @@ static inline void testutil_check_rel(double got, double want, double tol, const
     double scale = fabs(want) > 0 ? fabs(want) : 1.0;
     double e = fabs(got - want) / scale;
     if (!(e <= tol)) {
-        print_error("%s:%d: %s: got %.17g, want %.17g, rel. error %.3g > %.3g\n", file, line,
-                    label, got, want, e, tol);
+        print_error("%s:%d: %s: got %.17g, want %.17g, rel. error %.3g > %.3g\n", file, line, label,
+                    got, want, e, tol);
         _fail(file, line);
     }
 }
@@ -37,8 +37,8 @@ static inline void testutil_check_abs(double got, double want, double tol, const
 {
     double e = fabs(got - want);
     if (!(e <= tol)) {
-        print_error("%s:%d: %s: got %.17g, want %.17g, abs. error %.3g > %.3g\n", file, line,
-                    label, got, want, e, tol);
+        print_error("%s:%d: %s: got %.17g, want %.17g, abs. error %.3g > %.3g\n", file, line, label,
+                    got, want, e, tol);
         _fail(file, line);
     }
 }

@@ -17,16 +17,16 @@ extern "C" {
 #endif
 
 enum {
-    STAGECAL_OK = 0,     /* success */
-    STAGECAL_EINVAL,     /* an argument is outside its documented domain */
-    STAGECAL_EDATA,      /* input data (file content) is malformed or inconsistent */
-    STAGECAL_ENOINPUT,   /* an input file is missing or unreadable */
-    STAGECAL_EWRITE,     /* an output cannot be written */
-    STAGECAL_ENOMEM,     /* memory allocation failed */
-    STAGECAL_ENOCONV,    /* an iteration did not converge within its limits */
-    STAGECAL_EVERSION,   /* a file was written by a newer, unknown format version */
-    STAGECAL_EINTERNAL,  /* a bug or an unexpected library failure (GSL, NLopt) */
-    STAGECAL_NSTATUS     /* number of codes (not a code) */
+    STAGECAL_OK = 0,    /* success */
+    STAGECAL_EINVAL,    /* an argument is outside its documented domain */
+    STAGECAL_EDATA,     /* input data (file content) is malformed or inconsistent */
+    STAGECAL_ENOINPUT,  /* an input file is missing or unreadable */
+    STAGECAL_EWRITE,    /* an output cannot be written */
+    STAGECAL_ENOMEM,    /* memory allocation failed */
+    STAGECAL_ENOCONV,   /* an iteration did not converge within its limits */
+    STAGECAL_EVERSION,  /* a file was written by a newer, unknown format version */
+    STAGECAL_EINTERNAL, /* a bug or an unexpected library failure (GSL, NLopt) */
+    STAGECAL_NSTATUS    /* number of codes (not a code) */
 };
 
 #define STAGECAL_ERROR_TEXT 512

@@ -10,6 +10,7 @@
 #include <stdlib.h>
 #include <string.h>
 #include <unistd.h>
+#include <getopt.h>
 
 #include "banned.h"
 
@@ -133,4 +134,97 @@ json_t *cli_json_real(double v)
 int cli_progress_enabled(void)
 {
     return !cli_quiet && isatty(STDERR_FILENO) && getenv("NO_COLOR") == NULL;
+}
+
+void cli_system_init(cli_system *s)
+{
+    memset(s, 0, sizeof *s);
+    s->alpha = NAN;
+    s->kvalue = NAN;
+}
+
+int cli_system_open(cli_system *s)
+{
+    stagecal_error err;
+    int given = !isnan(s->alpha) + !isnan(s->kvalue) + (s->column_path != NULL);
+    if (given == 0)
+        return cli_usage_error("one of '--alpha', '--kvalue' or '--column' is required");
+    if (given > 1)
+        return cli_usage_error("options '--alpha', '--kvalue' and '--column' exclude each other");
+    if (s->column_path) {
+        if (stagecal_column_load(s->column_path, &s->col, &err) != STAGECAL_OK)
+            return cli_fail(&err);
+        s->have_column = 1;
+        s->vle = s->col.system.vle;
+        return 0;
+    }
+    if (!isnan(s->alpha)) {
+        if (!(s->alpha > 1))
+            return cli_usage_error("option '--alpha': %g is outside (1, inf) (expected the "
+                                   "relative volatility of light to heavy, > 1)",
+                                   s->alpha);
+        s->vle = stagecal_vle_alloc_alpha(s->alpha, &err);
+    } else {
+        if (!(s->kvalue > 1))
+            return cli_usage_error("option '--kvalue': %g is outside (1, inf) (expected the "
+                                   "K value y/x of the light component, > 1)",
+                                   s->kvalue);
+        s->vle = stagecal_vle_alloc_kvalue(s->kvalue, &err);
+    }
+    if (!s->vle)
+        return cli_fail(&err);
+    s->own_vle = 1;
+    return 0;
+}
+
+void cli_system_close(cli_system *s)
+{
+    if (s->own_vle)
+        stagecal_vle_free(s->vle);
+    if (s->have_column)
+        stagecal_column_free(&s->col);
+    s->vle = NULL;
+    s->own_vle = s->have_column = 0;
+}
+
+json_t *cli_system_json(const cli_system *s)
+{
+    json_t *o = json_object();
+    json_object_set_new(o, "kind",
+                        json_string(stagecal_vle_kind_name(stagecal_vle_get_kind(s->vle))));
+    if (s->own_vle && !isnan(s->alpha))
+        json_object_set_new(o, "alpha", json_real(s->alpha));
+    if (s->own_vle && !isnan(s->kvalue))
+        json_object_set_new(o, "kvalue", json_real(s->kvalue));
+    if (s->have_column) {
+        json_object_set_new(o, "column_file", json_string(s->column_path));
+        json_object_set_new(o, "column", json_string(s->col.id));
+        json_object_set_new(o, "light", json_string(s->col.system.light));
+        json_object_set_new(o, "heavy", json_string(s->col.system.heavy));
+    }
+    return o;
+}
+
+json_t *cli_json_reflux(double r)
+{
+    return isinf(r) ? json_string("inf") : json_real(r);
+}
+
+int cli_require(const char *opt, double v)
+{
+    if (isnan(v))
+        return cli_usage_error("option '--%s' is required (see 'stagecal %s --help')", opt,
+                               cli_command);
+    return 0;
+}
+
+int cli_usage_getopt(int c, char **argv, const char *command)
+{
+    const char *arg = argv[optind - 1];
+    if (c == ':')
+        return cli_usage_error("option '%s' needs a value (see 'stagecal %s --help')", arg,
+                               command);
+    if (optopt && arg[0] == '-' && arg[1] != '-')
+        return cli_usage_error("unknown option '-%c' (see 'stagecal %s --help')", optopt, command);
+    return cli_usage_error("unknown option '%s' (see 'stagecal %s --help')", arg, command);
 }

@@ -9,6 +9,7 @@
 #define STAGECAL_CLI_H
 
 #include <jansson.h>
+#include <math.h>
 #include <stdio.h>
 #include <sysexits.h>
 
@@ -16,10 +17,10 @@
 
 /* Exit codes (DESIGN §5). */
 #define CLI_EXIT_OK 0
-#define CLI_EXIT_USAGE 2           /* usage error (jq's choice) */
-#define CLI_EXIT_DATA EX_DATAERR   /* 65 bad input data */
-#define CLI_EXIT_NOINPUT EX_NOINPUT /* 66 input missing */
-#define CLI_EXIT_SOFTWARE EX_SOFTWARE /* 70 internal error */
+#define CLI_EXIT_USAGE 2                /* usage error (jq's choice) */
+#define CLI_EXIT_DATA EX_DATAERR        /* 65 bad input data */
+#define CLI_EXIT_NOINPUT EX_NOINPUT     /* 66 input missing */
+#define CLI_EXIT_SOFTWARE EX_SOFTWARE   /* 70 internal error */
 #define CLI_EXIT_CANTCREAT EX_CANTCREAT /* 73 output cannot be written */
 
 /* The running command's name, for messages ("stagecal <cmd>: ..."). */
@@ -59,3 +60,33 @@ extern const char cli_caution[];
 int cli_progress_enabled(void);
 
 #endif
+
+/* The equilibrium model chosen on the command line: exactly one of --alpha A,
+ * --kvalue K or --column FILE. */
+#include "stagecal/column.h"
+typedef struct {
+    double alpha;            /* --alpha, NAN when not given */
+    double kvalue;           /* --kvalue, NAN when not given */
+    const char *column_path; /* --column, NULL when not given */
+    int have_column;         /* col below is loaded */
+    stagecal_column col;     /* the column file, when --column */
+    stagecal_vle *vle;       /* the model to use (owned here or by col) */
+    int own_vle;             /* 1 when vle was built from --alpha/--kvalue */
+} cli_system;
+
+/* Empties s (no model chosen). */
+void cli_system_init(cli_system *s);
+/* Builds s->vle from the options; prints the problem and returns an exit code
+ * (0 on success). */
+int cli_system_open(cli_system *s);
+void cli_system_close(cli_system *s);
+/* A JSON object describing the model in use ({"kind": …, "alpha": …} or the column). */
+json_t *cli_system_json(const cli_system *s);
+/* JSON for a reflux ratio: the string "inf" at total reflux, else a real. */
+json_t *cli_json_reflux(double r);
+
+/* "option '--name' is required" when v is NaN (not given); returns the exit code. */
+int cli_require(const char *opt, double v);
+/* Message for what getopt_long rejected: c is its return value (':' missing value when
+ * the option string starts with "+:", '?' unknown option). Returns CLI_EXIT_USAGE. */
+int cli_usage_getopt(int c, char **argv, const char *command);

@@ -1,9 +1,173 @@
-/* cmd_invert.c — placeholder, replaced by the real subcommand. */
+/*
+ * cmd_invert.c — `stagecal invert`: effective equilibrium stages from a measured
+ * distillate and pot composition at a reflux ratio (McCabe–Thiele inversion).
+ */
+#include <getopt.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "stagecal/stages.h"
+
+static const char usage_text[] =
+    "usage: stagecal invert (--alpha A | --kvalue K | --column FILE) --xd XD --xb XB\n"
+    "                       --reflux R|inf [--murphree E] [--json] [--quiet]\n"
+    "\n"
+    "Counts the equilibrium stages (the pot included, fractional) a batch rectifier needs\n"
+    "to hold the distillate at XD over a pot at XB at reflux ratio R. A pinch or an\n"
+    "azeotrope in the way is a result (status), not an error.\n"
+    "\n"
+    "  --alpha A       constant relative volatility, A > 1\n"
+    "  --kvalue K      constant K value (dilute light component), y = K x, K > 1\n"
+    "  --column FILE   the equilibrium model of a column file (docs/column-file.md)\n"
+    "  --xd XD         distillate mole fraction of the light component, in (0, 1)\n"
+    "  --xb XB         pot mole fraction of the light component, in (0, XD)\n"
+    "  --reflux R      reflux ratio L/D >= 0, or 'inf' for total reflux\n"
+    "  --murphree E    Murphree vapour efficiency of the column stages, in (0, 1] (default 1)\n"
+    "  --json          one JSON document on stdout\n"
+    "  --quiet         no warnings on stderr\n"
+    "  -h, --help      this text\n";
 
 int cmd_invert(int argc, char **argv)
 {
-    (void)argc, (void)argv;
-    return cli_usage_error("not implemented yet");
+    enum { O_ALPHA = 256, O_KVALUE, O_COLUMN, O_XD, O_XB, O_REFLUX, O_MURPHREE, O_JSON, O_QUIET };
+    static const struct option opts[] = {{"alpha", required_argument, NULL, O_ALPHA},
+                                         {"kvalue", required_argument, NULL, O_KVALUE},
+                                         {"column", required_argument, NULL, O_COLUMN},
+                                         {"xd", required_argument, NULL, O_XD},
+                                         {"xb", required_argument, NULL, O_XB},
+                                         {"reflux", required_argument, NULL, O_REFLUX},
+                                         {"murphree", required_argument, NULL, O_MURPHREE},
+                                         {"json", no_argument, NULL, O_JSON},
+                                         {"quiet", no_argument, NULL, O_QUIET},
+                                         {"help", no_argument, NULL, 'h'},
+                                         {0, 0, 0, 0}};
+    cli_system sys;
+    double xd = NAN, xb = NAN, reflux = NAN, murphree = 1.0;
+    int json = 0, c, rc;
+
+    cli_system_init(&sys);
+    optind = 0;
+    opterr = 0;
+    while ((c = getopt_long(argc, argv, "+:h", opts, NULL)) != -1) {
+        switch (c) {
+        case 'h':
+            fputs(usage_text, stdout);
+            return CLI_EXIT_OK;
+        case O_ALPHA:
+            if (cli_parse_double("alpha", optarg, 0, "a relative volatility > 1", &sys.alpha))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_KVALUE:
+            if (cli_parse_double("kvalue", optarg, 0, "a K value > 1", &sys.kvalue))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_COLUMN:
+            sys.column_path = optarg;
+            break;
+        case O_XD:
+            if (cli_parse_double("xd", optarg, 0, "a mole fraction in (0, 1)", &xd))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_XB:
+            if (cli_parse_double("xb", optarg, 0, "a mole fraction in (0, 1)", &xb))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_REFLUX:
+            if (cli_parse_double("reflux", optarg, 1, "a reflux ratio >= 0 or 'inf'", &reflux))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_MURPHREE:
+            if (cli_parse_double("murphree", optarg, 0, "an efficiency in (0, 1]", &murphree))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_JSON:
+            json = 1;
+            break;
+        case O_QUIET:
+            cli_quiet = 1;
+            break;
+        default:
+            return cli_usage_getopt(c, argv, "invert");
+        }
+    }
+    if (optind < argc)
+        return cli_usage_error("unexpected argument '%s'", argv[optind]);
+    if ((rc = cli_require("xd", xd)) || (rc = cli_require("xb", xb)) ||
+        (rc = cli_require("reflux", reflux)))
+        return rc;
+    if (!(xd > 0 && xd < 1))
+        return cli_usage_error("option '--xd': %g is outside (0, 1) (expected a mole fraction)",
+                               xd);
+    if (!(xb > 0 && xb < 1))
+        return cli_usage_error("option '--xb': %g is outside (0, 1) (expected a mole fraction)",
+                               xb);
+    if (!(xb < xd))
+        return cli_usage_error("option '--xb': %g is not below --xd %g (expected the pot leaner "
+                               "in the light component than the distillate)",
+                               xb, xd);
+    if (!(reflux >= 0))
+        return cli_usage_error("option '--reflux': %g is negative (expected R >= 0 or 'inf')",
+                               reflux);
+    if (!(murphree > 0 && murphree <= 1))
+        return cli_usage_error("option '--murphree': %g is outside (0, 1] (expected a Murphree "
+                               "vapour efficiency)",
+                               murphree);
+    if ((rc = cli_system_open(&sys)))
+        return rc;
+
+    stagecal_stages_params par = stagecal_stages_default_params();
+    stagecal_stages_result res;
+    stagecal_error err;
+    par.want_sensitivities = 1;
+    stagecal_error_clear(&err);
+    rc = stagecal_stages_invert(sys.vle, xd, xb, reflux, murphree, &par, &res, &err);
+    if (rc != STAGECAL_OK) {
+        cli_system_close(&sys);
+        return cli_fail(&err);
+    }
+    int ok = res.status == STAGECAL_STAGES_OK;
+    if (json) {
+        json_t *doc = json_object();
+        json_object_set_new(doc, "format", json_string("stagecal-invert"));
+        json_object_set_new(doc, "version", json_integer(1));
+        json_object_set_new(doc, "status", json_string(stagecal_stages_status_name(res.status)));
+        json_object_set_new(doc, "reason", ok ? json_null() : json_string(res.reason));
+        json_object_set_new(doc, "stages", ok ? json_real(res.stages) : json_null());
+        json_object_set_new(doc, "column_stages", ok ? json_real(res.column_stages) : json_null());
+        json_object_set_new(doc, "stage_convention",
+                            json_string("stages include the pot; column stages = stages - 1; "
+                                        "the total condenser is not a stage"));
+        json_object_set_new(doc, "xd", json_real(xd));
+        json_object_set_new(doc, "xb", json_real(xb));
+        json_object_set_new(doc, "reflux", cli_json_reflux(reflux));
+        json_object_set_new(doc, "lv", json_real(res.lv));
+        json_object_set_new(doc, "murphree", json_real(murphree));
+        json_object_set_new(doc, "x_target", ok ? json_real(res.x_target) : json_null());
+        json_object_set_new(doc, "sensitivities",
+                            ok ? json_pack("{s:o,s:o,s:o}", "dstages_dxd",
+                                           cli_json_real(res.dstages_dxd), "dstages_dxb",
+                                           cli_json_real(res.dstages_dxb), "dstages_dr",
+                                           cli_json_real(res.dstages_dr))
+                               : json_null());
+        json_object_set_new(doc, "model", cli_system_json(&sys));
+        rc = cli_json_print(doc);
+    } else {
+        if (ok) {
+            printf("stages (the pot included): %.6f\n", res.stages);
+            printf("column stages:             %.6f\n", res.column_stages);
+            printf("L/V:                       %.6f\n", res.lv);
+            printf("sensitivities: dN/dxD = %.4g, dN/dxB = %.4g, dN/dR = %.4g\n", res.dstages_dxd,
+                   res.dstages_dxb, res.dstages_dr);
+        } else {
+            printf("status: %s (%s)\n", stagecal_stages_status_name(res.status), res.reason);
+        }
+        rc = CLI_EXIT_OK;
+    }
+    cli_system_close(&sys);
+    return rc;
 }

@@ -1,9 +1,204 @@
-/* cmd_steps.c — placeholder, replaced by the real subcommand. */
+/*
+ * cmd_steps.c — `stagecal steps`: step a stated number of stages down from xD at a
+ * reflux ratio and report the pot composition xB and the stage profile.
+ */
+#include <getopt.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "stagecal/stages.h"
+
+static const char usage_text[] =
+    "usage: stagecal steps (--alpha A | --kvalue K | --column FILE) --xd XD\n"
+    "                      --reflux R|inf --stages N [--murphree E] [--json] [--quiet]\n"
+    "\n"
+    "Steps N equilibrium stages (the pot included, fractional allowed, N >= 1) down from\n"
+    "the distillate composition XD at reflux ratio R and prints the pot composition xB\n"
+    "and the stage profile (stage 1 at the top, the pot last).\n"
+    "\n"
+    "  --alpha A       constant relative volatility, A > 1\n"
+    "  --kvalue K      constant K value (dilute light component), y = K x, K > 1\n"
+    "  --column FILE   the equilibrium model of a column file (docs/column-file.md)\n"
+    "  --xd XD         distillate mole fraction of the light component, in (0, 1)\n"
+    "  --reflux R      reflux ratio L/D >= 0, or 'inf' for total reflux\n"
+    "  --stages N      equilibrium stages including the pot, N >= 1\n"
+    "  --murphree E    Murphree vapour efficiency of the column stages, in (0, 1] (default 1)\n"
+    "  --json          one JSON document on stdout\n"
+    "  --quiet         no warnings on stderr\n"
+    "  -h, --help      this text\n";
 
 int cmd_steps(int argc, char **argv)
 {
-    (void)argc, (void)argv;
-    return cli_usage_error("not implemented yet");
+    enum {
+        O_ALPHA = 256,
+        O_KVALUE,
+        O_COLUMN,
+        O_XD,
+        O_REFLUX,
+        O_STAGES,
+        O_MURPHREE,
+        O_JSON,
+        O_QUIET
+    };
+    static const struct option opts[] = {{"alpha", required_argument, NULL, O_ALPHA},
+                                         {"kvalue", required_argument, NULL, O_KVALUE},
+                                         {"column", required_argument, NULL, O_COLUMN},
+                                         {"xd", required_argument, NULL, O_XD},
+                                         {"reflux", required_argument, NULL, O_REFLUX},
+                                         {"stages", required_argument, NULL, O_STAGES},
+                                         {"murphree", required_argument, NULL, O_MURPHREE},
+                                         {"json", no_argument, NULL, O_JSON},
+                                         {"quiet", no_argument, NULL, O_QUIET},
+                                         {"help", no_argument, NULL, 'h'},
+                                         {0, 0, 0, 0}};
+    cli_system sys;
+    double xd = NAN, reflux = NAN, nstages = NAN, murphree = 1.0;
+    int json = 0, c, rc;
+
+    cli_system_init(&sys);
+    optind = 0;
+    opterr = 0;
+    while ((c = getopt_long(argc, argv, "+:h", opts, NULL)) != -1) {
+        switch (c) {
+        case 'h':
+            fputs(usage_text, stdout);
+            return CLI_EXIT_OK;
+        case O_ALPHA:
+            if (cli_parse_double("alpha", optarg, 0, "a relative volatility > 1", &sys.alpha))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_KVALUE:
+            if (cli_parse_double("kvalue", optarg, 0, "a K value > 1", &sys.kvalue))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_COLUMN:
+            sys.column_path = optarg;
+            break;
+        case O_XD:
+            if (cli_parse_double("xd", optarg, 0, "a mole fraction in (0, 1)", &xd))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_REFLUX:
+            if (cli_parse_double("reflux", optarg, 1, "a reflux ratio >= 0 or 'inf'", &reflux))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_STAGES:
+            if (cli_parse_double("stages", optarg, 0, "a number of stages >= 1", &nstages))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_MURPHREE:
+            if (cli_parse_double("murphree", optarg, 0, "an efficiency in (0, 1]", &murphree))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_JSON:
+            json = 1;
+            break;
+        case O_QUIET:
+            cli_quiet = 1;
+            break;
+        default:
+            return cli_usage_getopt(c, argv, "steps");
+        }
+    }
+    if (optind < argc)
+        return cli_usage_error("unexpected argument '%s' (steps takes options only)", argv[optind]);
+    if ((rc = cli_require("xd", xd)) || (rc = cli_require("reflux", reflux)) ||
+        (rc = cli_require("stages", nstages)))
+        return rc;
+    if (!(xd > 0 && xd < 1))
+        return cli_usage_error("option '--xd': %g is outside (0, 1) (expected a mole fraction)",
+                               xd);
+    if (!(reflux >= 0))
+        return cli_usage_error("option '--reflux': %g is negative (expected R >= 0 or 'inf')",
+                               reflux);
+    if (!(nstages >= 1))
+        return cli_usage_error("option '--stages': %g is below 1 (expected stages including the "
+                               "pot, >= 1)",
+                               nstages);
+    if (!(murphree > 0 && murphree <= 1))
+        return cli_usage_error("option '--murphree': %g is outside (0, 1] (expected a Murphree "
+                               "vapour efficiency)",
+                               murphree);
+    if ((rc = cli_system_open(&sys)))
+        return rc;
+
+    size_t cap = (size_t)ceil(nstages) + 1, len = 0;
+    stagecal_stage_point *prof = calloc(cap, sizeof *prof);
+    stagecal_stages_params par = stagecal_stages_default_params();
+    stagecal_error err;
+    double xb = 0;
+    int status = 0;
+    if (!prof) {
+        cli_system_close(&sys);
+        cli_error("out of memory");
+        return CLI_EXIT_SOFTWARE;
+    }
+    stagecal_error_clear(&err);
+    rc = stagecal_stages_step(sys.vle, xd, reflux, nstages, murphree, &par, &xb, prof, cap, &len,
+                              &status, &err);
+    if (rc != STAGECAL_OK) {
+        free(prof);
+        cli_system_close(&sys);
+        return cli_fail(&err);
+    }
+    if (len > cap)
+        len = cap;
+    int has_t = stagecal_vle_has_temperature(sys.vle);
+    double lv = isinf(reflux) ? 1.0 : reflux / (reflux + 1.0);
+
+    if (json) {
+        json_t *doc = json_object(), *arr = json_array();
+        json_object_set_new(doc, "format", json_string("stagecal-steps"));
+        json_object_set_new(doc, "version", json_integer(1));
+        json_object_set_new(doc, "status", json_string(stagecal_stages_status_name(status)));
+        json_object_set_new(doc, "xd", json_real(xd));
+        json_object_set_new(doc, "reflux", cli_json_reflux(reflux));
+        json_object_set_new(doc, "lv", json_real(lv));
+        json_object_set_new(doc, "stages", json_real(nstages));
+        json_object_set_new(doc, "column_stages", json_real(nstages - 1));
+        json_object_set_new(doc, "murphree", json_real(murphree));
+        json_object_set_new(doc, "xb", status == STAGECAL_STAGES_OK ? json_real(xb) : json_null());
+        json_object_set_new(doc, "model", cli_system_json(&sys));
+        json_object_set_new(
+            doc, "units",
+            json_pack("{s:s,s:s,s:s}", "x", "mol/mol (light)", "y", "mol/mol (light)", "t_k", "K"));
+        for (size_t i = 0; status == STAGECAL_STAGES_OK && i < len; i++) {
+            json_t *p = json_object();
+            json_object_set_new(p, "stage", json_real(prof[i].stage));
+            json_object_set_new(p, "x", json_real(prof[i].x));
+            json_object_set_new(p, "y", json_real(prof[i].y));
+            double t;
+            if (has_t && stagecal_vle_tbubble(sys.vle, prof[i].x, &t) == STAGECAL_OK)
+                json_object_set_new(p, "t_k", json_real(t));
+            json_array_append_new(arr, p);
+        }
+        json_object_set_new(doc, "profile", arr);
+        rc = cli_json_print(doc);
+    } else {
+        if (status != STAGECAL_STAGES_OK) {
+            printf("status: %s — %g stages cannot be stepped from xD = %g at R = %g\n",
+                   stagecal_stages_status_name(status), nstages, xd, reflux);
+        } else {
+            printf("%g stages (the pot included) from xD = %.6f at R = %s%g, E_MV = %g\n", nstages,
+                   xd, isinf(reflux) ? "" : "", reflux, murphree);
+            printf("%8s  %12s  %12s%s\n", "stage", "x", "y", has_t ? "      T [C]" : "");
+            for (size_t i = 0; i < len; i++) {
+                double t;
+                printf("%8.3f  %12.8f  %12.8f", prof[i].stage, prof[i].x, prof[i].y);
+                if (has_t && stagecal_vle_tbubble(sys.vle, prof[i].x, &t) == STAGECAL_OK)
+                    printf("  %9.2f", t - 273.15);
+                putchar('\n');
+            }
+            printf("pot: xB = %.10f\n", xb);
+        }
+        rc = CLI_EXIT_OK;
+    }
+    free(prof);
+    cli_system_close(&sys);
+    return rc;
 }

@@ -85,7 +85,6 @@ int main(int argc, char **argv)
             return finish(commands[i].run(argc - optind, argv + optind));
         }
     }
-    fprintf(stderr, "stagecal: '%s' is not a command\n\n", name);
-    usage(stderr);
+    fprintf(stderr, "stagecal: '%s' is not a command (see 'stagecal --help')\n", name);
     return CLI_EXIT_USAGE;
 }
