@@ -61,8 +61,8 @@ typedef struct {
  * field outside its domain, with "path:line: field 'x': ..." messages), ENOMEM. */
 int stagecal_column_load(const char *path, stagecal_column *col, stagecal_error *err);
 /* Same from an in-memory JSON text; source names it in messages. */
-int stagecal_column_parse(const char *text, size_t len, const char *source,
-                          stagecal_column *col, stagecal_error *err);
+int stagecal_column_parse(const char *text, size_t len, const char *source, stagecal_column *col,
+                          stagecal_error *err);
 void stagecal_column_free(stagecal_column *col); /* releases owned memory; NULL ok */
 
 #ifdef __cplusplus

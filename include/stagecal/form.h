@@ -44,11 +44,11 @@ enum {
 
 typedef struct {
     stagecal_form_kind kind;
-    size_t p;                                  /* number of parameters, 1..STAGECAL_FORM_MAXP */
-    unsigned terms;                            /* LINEAR: set of STAGECAL_TERM_* */
-    int uses_load;                             /* 1 when the form needs F */
-    char name[96];                             /* canonical name, e.g. "linear:1+1/R" */
-    char param_names[STAGECAL_FORM_MAXP][16];  /* "a", "b", … or the term text */
+    size_t p;                                 /* number of parameters, 1..STAGECAL_FORM_MAXP */
+    unsigned terms;                           /* LINEAR: set of STAGECAL_TERM_* */
+    int uses_load;                            /* 1 when the form needs F */
+    char name[96];                            /* canonical name, e.g. "linear:1+1/R" */
+    char param_names[STAGECAL_FORM_MAXP][16]; /* "a", "b", … or the term text */
 } stagecal_form;
 
 /* Parses a form name. EINVAL with a message naming the bad part and listing what

@@ -34,31 +34,43 @@ const char *stagecal_stages_status_name(int status);
 
 /* Tunables (GSL "Arbitrary Constants"). */
 typedef struct {
-    size_t max_stages;       /* cap on whole steps before declaring a pinch (default 10000) */
-    double top_tol;          /* x_target ≤ xD + top_tol counts as stages = 1 (1e-12) */
-    int want_sensitivities;  /* 1: fill the ∂stages/∂… fields (costs extra inversions) */
+    size_t max_stages;      /* cap on whole steps before declaring a pinch (default 10000) */
+    double top_tol;         /* x_target ≤ xD + top_tol counts as stages = 1 (1e-12) */
+    int want_sensitivities; /* 1: fill the ∂stages/∂… fields (costs extra inversions) */
+    /* Added after the first three; callers that start from the defaults need not care. */
+    double x_epsabs;          /* absolute tolerance [mol/mol] of the E_MV < 1 pseudo-equilibrium
+                                 solve (GSL Brent, bracketed); default 1e-15 */
+    size_t max_iter;          /* iteration cap of that solve (default 200) */
+    size_t pinch_scan_after;  /* after this many whole steps the operating line is checked against
+                                 the equilibrium curve on a grid between x_target and the current
+                                 liquid, so a pinch is reported early (default 200) */
+    size_t pinch_scan_points; /* points of that grid (default 256) */
+    double fd_rel_step;       /* relative finite-difference step for the sensitivities, applied to
+                                 min(x, 1 − x) for compositions and to R (default cbrt(DBL_EPSILON)
+                                 ≈ 6.06e-6, the usual optimum for central differences) */
 } stagecal_stages_params;
 
 stagecal_stages_params stagecal_stages_default_params(void);
 
 typedef struct {
-    int status;               /* stagecal_stages_status */
-    double stages;            /* equilibrium stages incl. the pot (≥ 1); 0 unless ok */
-    double column_stages;     /* stages − 1; 0 unless ok */
-    double lv;                /* L/V used (1 at total reflux) */
-    double x_target;          /* liquid leaving the lowest column stage (DESIGN §2.2) */
-    double dstages_dxd;       /* sensitivities (0 unless ok and requested) */
-    double dstages_dxb;
-    double dstages_dr;        /* 0 at total reflux */
-    char reason[160];         /* why, when status is not ok; "" otherwise */
+    int status;           /* stagecal_stages_status */
+    double stages;        /* equilibrium stages incl. the pot (≥ 1); 0 unless ok */
+    double column_stages; /* stages − 1; 0 unless ok */
+    double lv;            /* L/V used (1 at total reflux) */
+    double x_target;      /* liquid leaving the lowest column stage (DESIGN §2.2) */
+    double dstages_dxd;   /* sensitivities (0 unless ok and requested): central finite */
+    double dstages_dxb;   /* differences of the inversion itself, one-sided where a */
+    double dstages_dr;    /* neighbour leaves the domain or is not ok; ∂/∂R = 0 at total
+                             reflux; 0 when neither neighbour is ok */
+    char reason[160];     /* why, when status is not ok; "" otherwise */
 } stagecal_stages_result;
 
 /* One point of a stage profile: the liquid leaving stage `stage` and the vapour
  * leaving it (on the (pseudo-)equilibrium curve). */
 typedef struct {
-    double stage;  /* 1, 2, …; the partial stage's end point carries its fractional position */
-    double x;      /* liquid mole fraction */
-    double y;      /* vapour mole fraction */
+    double stage; /* 1, 2, …; the partial stage's end point carries its fractional position */
+    double x;     /* liquid mole fraction */
+    double y;     /* vapour mole fraction */
 } stagecal_stage_point;
 
 /* Inversion: (xD, xB, R, E_MV) → stages. Returns STAGECAL_OK whenever res is filled,
@@ -72,8 +84,16 @@ int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double
 /* Forward stepping: (xD, R, stages ≥ 1, E_MV) → xB and the profile. profile may be
  * NULL; otherwise up to cap points are written (ceil(stages) entries: whole column
  * stages, the partial stage's end point when stages is not whole, then the pot) and
- * *len receives the full count. *status receives ok / pinch / azeotrope / invalid.
- * Errors: EINVAL (stages < 1, xD or E_MV outside its domain), ENOCONV. */
+ * *len receives the full count. *status receives ok / pinch / azeotrope / invalid
+ * (invalid: R = 0; azeotrope: one at or below xD; pinch: a step made no progress); when
+ * it is not ok, *xb = 0, *len = 0 and err (if given) carries the reason with code
+ * STAGECAL_OK. The fractional part of stages − 1 is stepped with the closed-form
+ * inverse of Smoker's equation written with α_loc of that step (REFERENCES §2), so the
+ * result round-trips with stagecal_stages_invert. Profile points: stage = 1, 2, … for
+ * whole column stages (y on the (pseudo-)equilibrium curve), stage = stages − 1 for the
+ * partial stage's end point (x_target), stage = stages for the pot (xB, y*(xB)).
+ * Errors: EINVAL (stages < 1 or above max_stages, xD, R or E_MV outside its domain, a
+ * NULL pointer), ENOCONV / EINTERNAL (an inner solve failed). */
 int stagecal_stages_step(const stagecal_vle *vle, double xd, double reflux, double stages,
                          double murphree, const stagecal_stages_params *params, double *xb,
                          stagecal_stage_point *profile, size_t cap, size_t *len, int *status,
@@ -85,7 +105,10 @@ int stagecal_fenske(double alpha, double xd, double xb, double *stages, stagecal
 int stagecal_smoker(double alpha, double reflux, double xd, double xb, double *stages,
                     stagecal_error *err);
 /* Minimum reflux ratio for separating xD from a pot at xB with a general model
- * (the operating line touches the equilibrium curve, tangent pinches included). */
+ * (the operating line touches the equilibrium curve, tangent pinches included):
+ * L/V_min = max over x in [xB, xD) of (xD − y*(x))/(xD − x), found by a scan and GSL
+ * Brent minimisation; *rmin = 0 when the pot vapour alone reaches xD. EINVAL when an
+ * azeotrope lies at or below xD or the compositions are outside 0 < xB < xD < x_max. */
 int stagecal_min_reflux(const stagecal_vle *vle, double xd, double xb, double *rmin,
                         stagecal_error *err);
 

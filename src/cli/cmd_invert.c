@@ -16,6 +16,8 @@
 static const char usage_text[] =
     "usage: stagecal invert (--alpha A | --kvalue K | --column FILE) --xd XD --xb XB\n"
     "                       --reflux R|inf [--murphree E] [--json] [--quiet]\n"
+    "   or: stagecal invert --column FILE [--out FILE.csv] [--json] RUNLOG.csv...\n"
+    "       (every row of run logs; 'stagecal invert --column F --help x.csv' for its options)\n"
     "\n"
     "Counts the equilibrium stages (the pot included, fractional) a batch rectifier needs\n"
     "to hold the distillate at XD over a pot at XB at reflux ratio R. A pinch or an\n"
@@ -50,6 +52,8 @@ int cmd_invert(int argc, char **argv)
     double xd = NAN, xb = NAN, reflux = NAN, murphree = 1.0;
     int json = 0, c, rc;
 
+    if (invert_runlog_wanted(argc, argv)) /* run-log mode: invert_runlog.c */
+        return invert_runlog(argc, argv);
     cli_system_init(&sys);
     optind = 0;
     opterr = 0;

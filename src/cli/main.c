@@ -24,8 +24,16 @@ struct command {
 };
 
 static const struct command commands[] = {
+    {"check", cmd_check, "validate run logs: findings with file:line, mass-balance closure"},
     {"steps", cmd_steps, "step stages down from xD: xB and the stage profile"},
+    {"calibrate", cmd_calibrate, "run logs in, stages(R, F) with bands out, as a model file"},
     {"invert", cmd_invert, "effective stages from xD, xB and R (or every row of a run log)"},
+    {"regress", cmd_regress, "fit stages against R (and F) with bands, from a points file"},
+    {"hetp", cmd_hetp, "HETP (or tray efficiency) with an interval; before/after a repack"},
+    {"trend", cmd_trend, "stages over months: trend, EWMA alarms, forecast; fleet rows"},
+    {"predict", cmd_predict, "predict a batch from a model file: cuts, times, yields, band"},
+    {"plot", cmd_plot, "charts as PNG, SVG or PDF: McCabe-Thiele diagram, stages against R"},
+    {"report", cmd_report, "one self-contained HTML report (inline SVG, printable) of a model"},
 };
 
 static void usage(FILE *out)

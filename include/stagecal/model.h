@@ -1,0 +1,211 @@
+/*
+ * stagecal/model.h — the model file a batch planner consumes (format in
+ * docs/model-file.md, JSON Schema in docs/model.schema.json).
+ *
+ * A model file is one JSON document, format name "stagecal-model", version
+ * STAGECAL_MODEL_VERSION. It holds the fitted correlation stages(R, F; θ)
+ * (include/stagecal/form.h) with its covariance, residual σ and degrees of freedom,
+ * the envelope of conditions it was fitted on, the stage convention, the binary
+ * system, provenance (SHA-256 of every input) and, where the packed height is known,
+ * HETP at a reference condition. An integrity checksum (SHA-256 of the canonical
+ * compact JSON without the checksum member) detects hand edits and damage.
+ *
+ * Writing is atomic (temporary file, fsync, link to a fresh name, fsync of the
+ * directory) and never replaces an earlier file. Loading validates every field.
+ * Evaluation gives stages with delta-method confidence and prediction bands and
+ * flags extrapolation outside the fitted envelope.
+ *
+ * Units are SI: R dimensionless (INFINITY = total reflux), F-factor in Pa^0.5
+ * (= m/s·(kg/m³)^0.5), heights in m.
+ */
+#ifndef STAGECAL_MODEL_H
+#define STAGECAL_MODEL_H
+
+#include <stddef.h>
+
+#include "stagecal/column.h"
+#include "stagecal/error.h"
+#include "stagecal/form.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+#define STAGECAL_MODEL_FORMAT "stagecal-model" /* the "format" member */
+#define STAGECAL_MODEL_VERSION 1               /* the "version" this library writes */
+#define STAGECAL_MODEL_TEXT 64                 /* size of short text fields */
+#define STAGECAL_MODEL_HEX 65                  /* SHA-256 lowercase hex + NUL */
+
+/* How the correlation's parameters were fitted. */
+typedef enum {
+    STAGECAL_MODEL_STAGE_SPACE = 0,  /* "stage-space": stage counts per window regressed */
+    STAGECAL_MODEL_COMPOSITION_SPACE /* "composition-space": measured xB predicted */
+} stagecal_model_method;
+
+/* One parameter of the equilibrium model, as read from the column file: a number
+ * (n = 1) or a list of numbers (n > 1, e.g. a tabulated x–y curve). */
+typedef struct {
+    char name[STAGECAL_MODEL_TEXT]; /* e.g. "alpha", "antoine_light_a" */
+    size_t n;                       /* number of values, ≥ 1 */
+    double *values;                 /* n values, owned (malloc) */
+} stagecal_model_vle_param;
+
+/* One input file of the fit. */
+typedef struct {
+    char *path;                      /* as given to the fit, owned (malloc) */
+    char sha256[STAGECAL_MODEL_HEX]; /* lowercase hex digest of the file's bytes */
+    size_t rows;                     /* data rows read from it */
+} stagecal_model_input;
+
+/* Everything a model file holds. Initialise with stagecal_model_init, release with
+ * stagecal_model_free. Pointer members are owned by the struct (malloc'd); the
+ * stagecal_model_add_* helpers fill them. */
+typedef struct {
+    char column_id[STAGECAL_NAME_MAX]; /* [A-Za-z0-9_.-]+, not starting with '.' */
+
+    /* binary system */
+    char light[STAGECAL_NAME_MAX];        /* light component name */
+    char heavy[STAGECAL_NAME_MAX];        /* heavy component name */
+    char vle_kind[STAGECAL_MODEL_TEXT];   /* "alpha", "nrtl", … (stagecal_vle_kind_name) */
+    stagecal_model_vle_param *vle_params; /* equilibrium parameters, owned */
+    size_t n_vle_params;
+
+    /* stage convention: with a total condenser column stages = stages − 1, with a
+     * partial condenser (an equilibrium stage) column stages = stages − 2. */
+    stagecal_condenser condenser;
+
+    /* correlation */
+    stagecal_form form;                                  /* parsed form (form.name is canonical) */
+    double theta[STAGECAL_FORM_MAXP];                    /* parameter values, form.p of them */
+    double cov[STAGECAL_FORM_MAXP * STAGECAL_FORM_MAXP]; /* p×p row-major, stride form.p */
+    double sigma;                 /* residual standard deviation [stages], ≥ 0 */
+    double dof;                   /* residual degrees of freedom, > 0 (may be fractional) */
+    double level;                 /* default confidence level, in (0, 1), e.g. 0.95 */
+    stagecal_model_method method; /* fit method */
+
+    /* evidence */
+    size_t n_windows; /* quasi-steady windows (units of evidence) that carried the fit */
+    size_t n_samples; /* logged samples in those windows */
+    size_t n_runs;    /* production runs */
+
+    /* envelope of conditions (a box: one range per variable, see docs/model-file.md) */
+    double r_min; /* smallest fitted reflux ratio [-], ≥ 0 */
+    double r_max; /* largest fitted reflux ratio [-], ≥ r_min, INFINITY allowed */
+    int has_load; /* 1 when the F-factor range below is known (always when form uses F) */
+    double f_min; /* smallest fitted F-factor [Pa^0.5], ≥ 0 */
+    double f_max; /* largest fitted F-factor [Pa^0.5], ≥ f_min, finite */
+
+    /* provenance */
+    stagecal_model_input *inputs; /* input files, owned */
+    size_t n_inputs;
+    char fitted_utc[STAGECAL_MODEL_TEXT];   /* time of fit, "YYYY-MM-DDTHH:MM:SSZ" */
+    char tool_version[STAGECAL_MODEL_TEXT]; /* stagecal version that fitted */
+    unsigned long long seed;                /* RNG seed used (bootstrap), ≤ 2^63 − 1 */
+    char *command_line;                     /* command line of the fit, owned, may be NULL */
+
+    /* HETP, where the packed height is known (has_hetp = 1) */
+    int has_hetp;
+    double height_m;    /* packed height [m], > 0 */
+    double hetp_r;      /* reference reflux ratio [-] (INFINITY allowed) */
+    double hetp_f;      /* reference F-factor [Pa^0.5] (used when has_load) */
+    double hetp_m;      /* HETP at the reference condition [m], > 0 */
+    double hetp_low_m;  /* lower end of its interval [m], ≤ hetp_m */
+    double hetp_high_m; /* upper end of its interval [m], ≥ hetp_m, INFINITY allowed */
+    double hetp_level;  /* confidence level of that interval, in (0, 1) */
+
+    char **warnings; /* warnings carried from the fit, owned */
+    size_t n_warnings;
+} stagecal_model;
+
+/* Zeroes m and sets defaults: level 0.95, total condenser, method stage-space,
+ * tool_version = stagecal_version(). */
+void stagecal_model_init(stagecal_model *m);
+/* Releases owned memory and re-initialises m. NULL is a no-op. */
+void stagecal_model_free(stagecal_model *m);
+
+/* Appends to the owned lists (copies the arguments). EINVAL for an empty name or
+ * n = 0, or a sha256 that is not 64 lowercase hex digits; ENOMEM. */
+int stagecal_model_add_vle_param(stagecal_model *m, const char *name, const double *values,
+                                 size_t n, stagecal_error *err);
+int stagecal_model_add_input(stagecal_model *m, const char *path, const char *sha256, size_t rows,
+                             stagecal_error *err);
+int stagecal_model_add_warning(stagecal_model *m, const char *text, stagecal_error *err);
+/* Replaces command_line with a copy of text (NULL clears it). ENOMEM. */
+int stagecal_model_set_command_line(stagecal_model *m, const char *text, stagecal_error *err);
+/* Sets fitted_utc to the current UTC time. */
+void stagecal_model_stamp_now(stagecal_model *m);
+
+/* SHA-256 of a file's bytes as lowercase hex (for the provenance of inputs).
+ * ENOINPUT when it cannot be opened or read. */
+int stagecal_model_hash_file(const char *path, char hex[STAGECAL_MODEL_HEX], stagecal_error *err);
+
+/* Checks a model in memory with the same rules stagecal_model_load applies.
+ * EINVAL with a message naming the field. */
+int stagecal_model_check(const stagecal_model *m, stagecal_error *err);
+
+/* Writes m as a new file under dir (normally fits/<column_id>/), creating dir and
+ * its parents as needed. The file name is <column_id>-<yyyymmddTHHMMSSZ>.json from
+ * fitted_utc, or <column_id>-<stamp>-<n>.json (n = 2, 3, …) when that exists: an
+ * existing file is never replaced. Atomic: the content goes to a temporary file in
+ * dir, is fsync'ed, linked to its final name, and dir is fsync'ed; on any failure
+ * nothing is left behind. On success the path is copied to path_out (cap bytes;
+ * path_out may be NULL). EINVAL when m fails stagecal_model_check; EWRITE when
+ * the directory or file cannot be written or path_out is too small (the file is
+ * then removed again); ENOMEM. */
+int stagecal_model_write(const stagecal_model *m, const char *dir, char *path_out, size_t cap,
+                         stagecal_error *err);
+
+/* Reads and validates a model file into m (which must be initialised or zeroed;
+ * any previous content is freed). Errors, with "path: …" messages: ENOINPUT (cannot
+ * open); EDATA (not JSON, truncated, wrong format name, missing or mistyped member,
+ * inconsistent values, checksum mismatch); EVERSION (a newer format version); ENOMEM.
+ * On failure m is left initialised and empty. */
+int stagecal_model_load(const char *path, stagecal_model *m, stagecal_error *err);
+/* Same from an in-memory text; source names it in messages. */
+int stagecal_model_parse(const char *text, size_t len, const char *source, stagecal_model *m,
+                         stagecal_error *err);
+
+/* Flags of stagecal_model_point.outside. */
+enum {
+    STAGECAL_MODEL_R_BELOW = 1u << 0, /* R < r_min */
+    STAGECAL_MODEL_R_ABOVE = 1u << 1, /* R > r_max */
+    STAGECAL_MODEL_F_BELOW = 1u << 2, /* F < f_min */
+    STAGECAL_MODEL_F_ABOVE = 1u << 3  /* F > f_max */
+};
+
+/* The correlation evaluated at one condition. */
+typedef struct {
+    double stages;          /* predicted stages, pot included [-] */
+    double column_stages;   /* stages − 1 (total condenser) or − 2 (partial) [-] */
+    double se_fit;          /* standard error of the mean prediction, sqrt(gᵀCg) [stages] */
+    double se_pred;         /* standard error of a new observation, sqrt(gᵀCg + σ²) */
+    double level;           /* confidence level used */
+    double t;               /* Student t quantile at (1 + level)/2 with dof */
+    double ci_low, ci_high; /* confidence band on the mean [stages] */
+    double pi_low, pi_high; /* prediction band for a new window [stages] */
+    int extrapolated;       /* 1 when (R, F) lies outside the envelope */
+    unsigned outside;       /* STAGECAL_MODEL_R_BELOW | … */
+    double r_beyond;        /* how far R lies outside [r_min, r_max], 0 inside; INFINITY when
+                             * R = inf and r_max is finite (see lv_beyond) */
+    double lv_beyond;       /* the same distance in L/V = R/(R+1), 0 inside, always finite */
+    double f_beyond;        /* how far F lies outside [f_min, f_max] [Pa^0.5], 0 inside */
+} stagecal_model_point;
+
+/* Evaluates stages(R, F) with delta-method bands at confidence level `level`
+ * (0 → m->level). r ≥ 0 (INFINITY allowed); f_load [Pa^0.5] is used when the form
+ * uses the load (and for the envelope check when m->has_load), else ignored (pass
+ * NAN). Extrapolation is a result, not an error: out->extrapolated says so.
+ * EINVAL for r < 0 or NaN, a level outside (0, 1), a missing F for a load form, or a
+ * condition where the form is undefined (e.g. ln R at R = 0). */
+int stagecal_model_eval(const stagecal_model *m, double r, double f_load, double level,
+                        stagecal_model_point *out, stagecal_error *err);
+
+/* "stage-space" / "composition-space". */
+const char *stagecal_model_method_name(stagecal_model_method method);
+/* The stage-convention sentence written into the file for a condenser type. */
+const char *stagecal_model_convention_text(stagecal_condenser condenser);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

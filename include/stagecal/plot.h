@@ -1,0 +1,255 @@
+/*
+ * stagecal/plot.h — charts for people: PNG, SVG and PDF through PLplot's cairo driver.
+ *
+ * One generic renderer draws a stagecal_plot_chart: axes that carry a quantity and its
+ * unit, and a list of series given as plain arrays (lines, markers, shaded bands). It
+ * knows nothing about other modules' internals; the builders below turn domain data
+ * (a stage profile, fitted points with bands, a trend, batch curves) into charts.
+ *
+ * Style (our own): white page, dark grey axes and text, series colours from the
+ * Okabe–Ito colour-blind-safe palette (Okabe & Ito, "Color Universal Design", 2008),
+ * ordered blue, vermillion, bluish green, orange, reddish purple, sky blue, black,
+ * yellow; every series also carries its own line style or marker shape so that the
+ * chart reads in greyscale. Bands are filled with a light tint of their colour.
+ *
+ * PLplot keeps global state: the renderer opens its own stream (plmkstrm) and ends it
+ * (plend1), restoring the caller's current stream, but it is not thread-safe — render
+ * from one thread at a time. The library stays silent: PLplot's abort messages are
+ * routed to a silent handler (plsabort) and every input is validated before PLplot
+ * sees it (the handler is process-wide and stays installed: PLplot cannot report the
+ * previous one, so a program that also uses PLplot directly and wants its own handler
+ * must set it again after rendering). PLplot's plexit (fatal: out of memory inside PLplot) still prints to
+ * stderr and ends the process; stagecal cannot intercept that (see docs/plots.md).
+ *
+ * Units: the charts draw numbers as given; the builders convert SI to the display
+ * units named on their axes (time in h or as dates, compositions in mol/mol).
+ */
+#ifndef STAGECAL_PLOT_H
+#define STAGECAL_PLOT_H
+
+#include <stddef.h>
+
+#include "stagecal/error.h"
+#include "stagecal/stages.h"
+#include "stagecal/vle.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* Output formats, chosen by file extension (.png, .svg, .pdf; case-insensitive). */
+typedef enum { STAGECAL_PLOT_PNG = 0, STAGECAL_PLOT_SVG, STAGECAL_PLOT_PDF } stagecal_plot_format;
+
+/* What a series draws. */
+typedef enum {
+    STAGECAL_PLOT_LINE = 0, /* polyline through (x, y); non-finite points break the line */
+    STAGECAL_PLOT_POINTS,   /* a marker at each (x, y); non-finite points are skipped */
+    STAGECAL_PLOT_BAND      /* shaded region between y (lower) and y_hi (upper) over x */
+} stagecal_plot_kind;
+
+#define STAGECAL_PLOT_NCOLOURS 8 /* palette size (Okabe–Ito) */
+#define STAGECAL_PLOT_NLINES 4   /* distinct line styles: solid, dashed, dotted, dash-dot */
+#define STAGECAL_PLOT_NMARKERS 8 /* distinct marker shapes */
+
+/* One series. Arrays are borrowed (not copied) and must outlive the render call. */
+typedef struct {
+    stagecal_plot_kind kind;
+    const char *label;  /* legend text; NULL or "" keeps the series out of the legend */
+    const double *x;    /* n abscissae (axis units) */
+    const double *y;    /* n ordinates; for BAND the lower edge */
+    const double *y_hi; /* BAND: n upper edges; NULL otherwise */
+    size_t n;           /* number of points, ≥ 1 */
+    int colour;         /* palette index 0..STAGECAL_PLOT_NCOLOURS−1 */
+    int line;           /* LINE: line style 0..STAGECAL_PLOT_NLINES−1 */
+    int marker;         /* POINTS: marker shape 0..STAGECAL_PLOT_NMARKERS−1 */
+    double width;       /* LINE: line width in PLplot units (1 = thin), 0 → 2;
+                           POINTS: marker size relative to the default, 0 → 1 */
+} stagecal_plot_series;
+
+/* A chart: title, axes and series. Fields marked "caller" are borrowed. */
+typedef struct {
+    const char *title;   /* caller: heading above the plot area, may be NULL */
+    const char *x_label; /* caller: quantity and unit, e.g. "reflux ratio R [-]" */
+    const char *y_label; /* caller: quantity and unit, e.g. "stages incl. pot [-]" */
+    double x_min, x_max; /* axis range; NAN (either end) → from the finite data, padded 4 % */
+    double y_min, y_max;
+    int x_time;     /* 1: x is seconds since 1970-01-01 UTC, the axis shows dates */
+    int legend;     /* 1: draw a legend of the labelled series inside the plot area */
+    int legend_pos; /* where: 0 top left, 1 bottom right, 2 top right, 3 bottom left */
+    const stagecal_plot_series *series; /* caller or builder-owned: n_series series, drawn in
+                                           order, bands first */
+    size_t n_series;
+    void *storage; /* internal: memory owned by a builder (NULL for caller-built charts);
+                      released by stagecal_plot_chart_free */
+} stagecal_plot_chart;
+
+/* Rendering parameters. */
+typedef struct {
+    size_t width;        /* PNG: pixels; SVG/PDF: points (1/72 in). Default 800 */
+    size_t height;       /* default 560 */
+    double char_scale;   /* text size relative to PLplot's default (default 0.9) */
+    const char *tmp_dir; /* directory for the temporary file of stagecal_plot_svg; NULL →
+                            $TMPDIR or /tmp */
+} stagecal_plot_params;
+
+stagecal_plot_params stagecal_plot_default_params(void);
+
+/* Palette colour i (0..7) as 0xRRGGBB, and its band tint. Out-of-range i wraps. */
+unsigned long stagecal_plot_colour(int i);
+unsigned long stagecal_plot_tint(int i);
+/* "blue", "vermillion", … (Okabe–Ito names) for colour i (wraps). */
+const char *stagecal_plot_colour_name(int i);
+
+/* Format from a file name's extension. EINVAL when it is not .png, .svg or .pdf. */
+int stagecal_plot_format_from_path(const char *path, stagecal_plot_format *fmt,
+                                   stagecal_error *err);
+
+/* Checks a chart before rendering: every series has n ≥ 1 and its arrays, palette and
+ * style indices in range, at least one finite point, and finite given axis limits with
+ * min < max. EINVAL with a message naming the series ("series 3 ('fit'): …"). */
+int stagecal_plot_check(const stagecal_plot_chart *chart, stagecal_error *err);
+
+/* Renders chart to path; the format follows the extension. Atomic: drawn into a
+ * temporary file next to path and renamed over it, so a failure leaves no partial
+ * file. params may be NULL (defaults). Errors: EINVAL (chart fails the check, unknown
+ * extension, size 0); EWRITE (the directory is not writable, rename fails);
+ * EINTERNAL (PLplot produced an empty file). */
+int stagecal_plot_write(const stagecal_plot_chart *chart, const char *path,
+                        const stagecal_plot_params *params, stagecal_error *err);
+
+/* Renders chart as SVG into memory: *svg receives a NUL-terminated malloc'd document
+ * (caller frees with free()), *len its length (may be NULL). PLplot has no in-memory
+ * SVG output, so this draws into a temporary file and reads it back. Errors as for
+ * stagecal_plot_write, plus ENOMEM. */
+int stagecal_plot_svg(const stagecal_plot_chart *chart, const stagecal_plot_params *params,
+                      char **svg, size_t *len, stagecal_error *err);
+
+/* Releases a builder-made chart (its storage and the chart itself). NULL is a no-op. Do
+ * not call it on caller-built charts on the stack. */
+void stagecal_plot_chart_free(stagecal_plot_chart *chart);
+
+/* ---- builders ----------------------------------------------------------------------
+ * Each returns a heap chart through *out (free with stagecal_plot_chart_free); the
+ * chart copies every array it needs, so the inputs may go away afterwards. Titles and
+ * labels given by the caller are copied too. Errors: EINVAL (inputs outside their
+ * domain, named in the message), ENOMEM. */
+
+/* McCabe–Thiele stage diagram from a stepped profile (plain data).
+ * Series, in order: diagonal y = x; equilibrium curve y*(x); pseudo-equilibrium curve
+ * y = op(x) + E_MV·(y*(x) − op(x)) when murphree < 1; operating line from the pinch
+ * (or x = 0) up to xD; the steps; the pinch marker when the operating line meets the
+ * equilibrium curve inside (0, xD) at finite reflux; the distillate and pot markers. */
+typedef struct {
+    const stagecal_vle *vle;             /* equilibrium model (borrowed during the call) */
+    double xd;                           /* distillate mole fraction, in (0, x_max) */
+    double reflux;                       /* R ≥ 0, INFINITY = total reflux */
+    double murphree;                     /* E_MV in (0, 1] */
+    const stagecal_stage_point *profile; /* stagecal_stages_step's profile: column stages,
+                                            partial end point, pot last */
+    size_t n_profile;                    /* ≥ 1 */
+    double stages;       /* stages incl. the pot, shown in the title; NAN: not shown */
+    const char *title;   /* NULL → "McCabe–Thiele stage diagram" */
+    size_t curve_points; /* points per curve; 0 → 201 */
+} stagecal_plot_mccabe_data;
+
+int stagecal_plot_mccabe(const stagecal_plot_mccabe_data *d, stagecal_plot_chart **out,
+                         stagecal_error *err);
+
+/* Convenience: steps `stages` (≥ 1; or, when stages is NAN, inverts xb to get them) with
+ * stagecal_stages_step and draws the diagram for that sample or condition. Statuses of
+ * the stages module pass through; a pinch / azeotrope / invalid outcome of the sample is
+ * EDATA with its reason. */
+int stagecal_plot_mccabe_condition(const stagecal_vle *vle, double xd, double xb, double reflux,
+                                   double stages, double murphree, stagecal_plot_chart **out,
+                                   stagecal_error *err);
+
+/* Stages against a predictor (R or the F-factor) with the samples, the fitted curve,
+ * its confidence and prediction bands and the fitted envelope. */
+typedef struct {
+    const char *predictor_label; /* axis text, e.g. "reflux ratio R [-]" or
+                                    "F-factor [Pa^0.5]"; NULL → "reflux ratio R [-]" */
+    const double *x;             /* n samples: predictor (INFINITY drawn at the right edge) */
+    const double *stages;        /* n samples: stages incl. the pot */
+    const size_t *group;         /* n group indices (run or window) < n_groups; NULL → one */
+    size_t n;
+    const char *const *group_names; /* n_groups legend names; NULL → "group 1", … */
+    size_t n_groups;                /* ≤ 32 */
+    const double *grid;             /* n_grid predictor values of the curve (ascending), or
+                                       NULL for no fit */
+    const double *fit;              /* n_grid fitted stages */
+    const double *ci_lo, *ci_hi;    /* confidence band (may be NULL) */
+    const double *pi_lo, *pi_hi;    /* prediction band (may be NULL) */
+    size_t n_grid;
+    double env_lo, env_hi; /* fitted envelope on this predictor; NAN → not drawn */
+    double level;          /* confidence level for the legend (e.g. 0.95) */
+    const char *title;     /* NULL → "Stages against ..." */
+} stagecal_plot_fit_data;
+
+int stagecal_plot_fit(const stagecal_plot_fit_data *d, stagecal_plot_chart **out,
+                      stagecal_error *err);
+
+/* Residuals (observed − fitted stages) against the fitted value (time_s NULL) or against
+ * time (time_s given: seconds since 1970 UTC, dates on the axis), by group, with the
+ * zero line. */
+typedef struct {
+    const double *fitted; /* n fitted stages */
+    const double *resid;  /* n residuals [stages] */
+    const double *time_s; /* n sample times [s since 1970 UTC] or NULL */
+    const size_t *group;  /* as in stagecal_plot_fit_data */
+    size_t n;
+    const char *const *group_names;
+    size_t n_groups;
+    const char *title;
+} stagecal_plot_resid_data;
+
+int stagecal_plot_resid(const stagecal_plot_resid_data *d, stagecal_plot_chart **out,
+                        stagecal_error *err);
+
+/* Trend of a column's stages over months: the fitted stages of each calibration with
+ * its trend line, control limits, alarm points, forecast with band and the stage count
+ * below which the product misses specification. */
+typedef struct {
+    const double *time_s; /* n calibration times [s since 1970 UTC], ascending */
+    const double *stages; /* n stages at the reference condition */
+    size_t n;
+    const int *alarm;     /* n flags (1 = alarm) or NULL */
+    const double *line_t; /* n_line times of the trend line [s] (NULL: none) */
+    const double *line;   /* n_line stages on the trend line */
+    size_t n_line;
+    double lcl, ucl;             /* control limits [stages]; NAN: not drawn */
+    const double *fc_t;          /* n_fc forecast times [s] (NULL: none) */
+    const double *fc;            /* forecast stages */
+    const double *fc_lo, *fc_hi; /* forecast band (may be NULL) */
+    size_t n_fc;
+    double spec_stages; /* minimum stages meeting specification; NAN: not drawn */
+    const char *title;
+} stagecal_plot_trend_data;
+
+int stagecal_plot_trend(const stagecal_plot_trend_data *d, stagecal_plot_chart **out,
+                        stagecal_error *err);
+
+/* Batch prediction: one or more curves of a quantity over batch time with bands. */
+typedef struct {
+    const char *name;   /* legend name, e.g. "xD" */
+    const double *y;    /* n_t values */
+    const double *y_lo; /* band lower edge (may be NULL) */
+    const double *y_hi; /* band upper edge (may be NULL) */
+} stagecal_plot_batch_curve;
+
+typedef struct {
+    const double *t_s; /* n_t times since the start of the batch [s], shown in h */
+    size_t n_t;
+    const stagecal_plot_batch_curve *curves; /* n_curves curves (≤ 8) */
+    size_t n_curves;
+    const char *y_label; /* e.g. "mole fraction of light component [mol/mol]" */
+    double spec;         /* a horizontal specification line; NAN: none */
+    const char *title;
+} stagecal_plot_batch_data;
+
+int stagecal_plot_batch(const stagecal_plot_batch_data *d, stagecal_plot_chart **out,
+                        stagecal_error *err);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

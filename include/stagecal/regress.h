@@ -1,0 +1,209 @@
+/*
+ * stagecal/regress.h — regression of effective stages on reflux ratio R and vapour
+ * load F: weighted (non)linear least squares, covariance, confidence and prediction
+ * bands, information criteria, bootstrap and robust reweighting.
+ *
+ * Model: stages_i = m(R_i, F_i; θ) + e_i, e_i independent, var(e_i) = σ²·sigma_i²
+ * (sigma_i = 1 when the points carry no sigma). Weights w_i = 1/sigma_i².
+ *   - Linear-in-θ forms (constant, linear:…): gsl_multifit_wlinear.
+ *   - Other forms: gsl_multifit_nlinear (trust region, Levenberg–Marquardt), analytic
+ *     Jacobian from stagecal_form_eval, then Gauss–Newton polish steps (QR on the
+ *     weighted Jacobian), as recommended for NIST StRD accuracy.
+ *   - Covariance C = s²·(JᵀWJ)⁻¹ with s² = RSS_w/(n − p) (NIST StRD definition); with
+ *     params.scale_cov = 0 and known sigma_i, C = (JᵀWJ)⁻¹ (sigma_i taken as absolute).
+ *   - Confidence interval θ_i ± t(1−α/2, n−p)·sqrt(C_ii).
+ *   - Bands (delta method): var_fit = gᵀCg with g = ∂m/∂θ; prediction adds the variance
+ *     of one new observation (σ_obs², see stagecal_regress_band_obs).
+ * docs/regress.md gives the formulas with their published sources.
+ * All quantities are dimensionless except F (F-factor, Pa^0.5).
+ */
+#ifndef STAGECAL_REGRESS_H
+#define STAGECAL_REGRESS_H
+
+#include <stddef.h>
+
+#include "stagecal/error.h"
+#include "stagecal/form.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* Points to fit. Arrays of n entries, owned by whoever filled them (the reader's
+ * arrays are released with stagecal_regress_data_free). */
+typedef struct {
+    size_t n;       /* number of points, ≥ 1 */
+    double *r;      /* reflux ratio, > 0, INFINITY = total reflux */
+    double *f_load; /* F-factor, Pa^0.5, ≥ 0; NULL when absent */
+    double *stages; /* effective stages including the pot, finite, > 0 */
+    double *sigma;  /* standard uncertainty of stages, > 0; NULL = unweighted */
+} stagecal_regress_data;
+
+/* Reads a points file (CSV, header `R,stages` with optional `F` and `sigma`, any
+ * order; `R` may be `inf`; names may carry a unit in brackets: R[-], stages[-],
+ * F[Pa^0.5], sigma[-]). path "-" reads stdin. Fills data with arrays allocated here;
+ * free them with stagecal_regress_data_free. Statuses: ENOINPUT (cannot open),
+ * EDATA (bad header or cell, "file:line: …"), ENOMEM. */
+int stagecal_regress_data_read(const char *path, stagecal_regress_data *data, stagecal_error *err);
+/* Frees the reader's arrays and zeroes data; NULL-safe. */
+void stagecal_regress_data_free(stagecal_regress_data *data);
+
+typedef enum {
+    STAGECAL_ROBUST_NONE = 0,
+    STAGECAL_ROBUST_HUBER,   /* Huber's ψ, tuning constant params.huber_k */
+    STAGECAL_ROBUST_BISQUARE /* Tukey's bisquare, tuning constant params.bisquare_c */
+} stagecal_robust_kind;
+
+typedef enum {
+    STAGECAL_BOOT_CASE = 0, /* resample (R, F, stages, sigma) points with replacement */
+    STAGECAL_BOOT_RESIDUAL  /* resample standardised residuals onto the fitted values */
+} stagecal_boot_kind;
+
+typedef struct {
+    double level;  /* confidence level of intervals and bands, (0, 1); 0.95 */
+    int scale_cov; /* 1: C = s²(JᵀWJ)⁻¹ (default); 0: C = (JᵀWJ)⁻¹, sigma absolute */
+    const double *theta0;        /* start values (p entries) or NULL for automatic starts */
+    size_t max_iter;             /* trust-region iterations per start; 500 */
+    double xtol;                 /* trust-region step tolerance; 1e-10 */
+    double gtol;                 /* trust-region gradient tolerance; 1e-10 */
+    double ftol;                 /* trust-region residual tolerance; 1e-15 */
+    size_t stall_iter;           /* stop when RSS falls by < 4ε relative this many times; 5 */
+    double rank_tol;             /* relative pivot below which JᵀWJ counts as singular (QR
+                                    with pivoting on unit-norm columns); 1e-10 */
+    size_t polish_steps;         /* Gauss–Newton polish steps after the trust region; 8 */
+    double polish_tol;           /* stop polishing when |δθ_i| ≤ polish_tol·|θ_i|; 1e-15 */
+    stagecal_robust_kind robust; /* robust reweighting; NONE */
+    double huber_k;              /* Huber tuning constant; 1.345 (95 % efficiency) */
+    double bisquare_c;           /* bisquare tuning constant; 4.685 (95 % efficiency) */
+    size_t robust_max_iter;      /* IRLS iterations; 100 */
+    double robust_tol;           /* IRLS stop: max |Δθ_i|/(|θ_i| + se_i) ≤ robust_tol; 1e-10 */
+    size_t bootstrap;            /* number of bootstrap resamples B; 0 = none */
+    unsigned long seed;          /* seed of the bootstrap RNG (gsl_rng_mt19937); 1 */
+    stagecal_boot_kind boot_kind; /* case or residual resampling; CASE */
+    size_t band_points;           /* grid points in R for the band; 25 (0 = no band grid) */
+} stagecal_regress_params;
+
+stagecal_regress_params stagecal_regress_default_params(void);
+
+/* One evaluation of the fitted correlation with its uncertainty. */
+typedef struct {
+    double r;               /* reflux ratio (INFINITY allowed) */
+    double f_load;          /* F-factor, Pa^0.5 (ignored by forms without load) */
+    double value;           /* fitted stages */
+    double se_fit;          /* standard error of the fitted mean, sqrt(gᵀCg) */
+    double se_pred;         /* standard error for one new observation, sqrt(se_fit² + σ_obs²) */
+    double ci_low, ci_high; /* value ∓ t·se_fit */
+    double pi_low, pi_high; /* value ∓ t·se_pred */
+} stagecal_band;
+
+/* Band at (r, f_load) from the stored numbers alone: form, θ (p), covariance C (p×p,
+ * row-major), residual σ (the σ of one new observation, ≥ 0), degrees of freedom
+ * dof > 0 (t quantile; non-integer allowed), level in (0, 1). EINVAL when an argument
+ * is outside its domain or the form is undefined at (r, f_load); EDATA when C gives
+ * a negative variance there (not positive semi-definite). */
+int stagecal_regress_band(const stagecal_form *form, const double *theta, const double *cov,
+                          double sigma, double dof, double level, double r, double f_load,
+                          stagecal_band *out, stagecal_error *err);
+/* As stagecal_regress_band, for a new observation whose own relative uncertainty is
+ * obs_sigma (weighted fits: var_new = σ²·obs_sigma²; pass 1 for unweighted fits). */
+int stagecal_regress_band_obs(const stagecal_form *form, const double *theta, const double *cov,
+                              double sigma, double obs_sigma, double dof, double level, double r,
+                              double f_load, stagecal_band *out, stagecal_error *err);
+
+/* Why the solver stopped. */
+typedef enum {
+    STAGECAL_STOP_LINEAR = 0, /* direct linear least squares solution */
+    STAGECAL_STOP_XTOL,       /* trust region: small step */
+    STAGECAL_STOP_GTOL,       /* trust region: small gradient */
+    STAGECAL_STOP_FTOL,       /* trust region: small change of residual */
+    STAGECAL_STOP_NOPROGRESS  /* trust region could not improve further (at the optimum
+                                 to rounding; accepted after the Gauss–Newton polish) */
+} stagecal_stop;
+
+/* Text of a stop reason, e.g. "small step (xtol)". */
+const char *stagecal_regress_stop_text(stagecal_stop stop);
+
+typedef struct {
+    stagecal_form form;
+    size_t n, p; /* points used, parameters */
+    double dof;  /* n − p */
+    double theta[STAGECAL_FORM_MAXP];
+    double se[STAGECAL_FORM_MAXP];
+    double ci_low[STAGECAL_FORM_MAXP], ci_high[STAGECAL_FORM_MAXP];
+    double cov[STAGECAL_FORM_MAXP * STAGECAL_FORM_MAXP]; /* row-major p×p */
+    double tquant;                                       /* t(1 − (1 − level)/2, dof) */
+    double level;
+    int weighted;     /* 1 when the points carried sigma */
+    int cov_scaled;   /* 1 when C includes s² (see params.scale_cov) */
+    double rss;       /* Σ w_i·r_i² (w_i = 1 unweighted; includes robust weights) */
+    double sigma;     /* residual σ = sqrt(rss/dof) (a ratio to sigma_i when weighted) */
+    double sigma_obs; /* σ of one typical new observation in stages: σ (unweighted),
+                         σ·rms(sigma_i) (weighted, scaled), rms(sigma_i) (unscaled) */
+    double r2;        /* 1 − RSS_w/TSS_w, TSS about the weighted mean */
+    double loglik;    /* Gaussian log-likelihood at the optimum */
+    size_t k_ic;      /* parameters counted by AICc/BIC (p, + 1 when σ is estimated) */
+    int ic_defined;   /* 1 when n > k_ic + 1 so that AICc is defined */
+    double aicc;      /* AIC + 2k(k+1)/(n−k−1); 0 when !ic_defined */
+    double bic;       /* −2 lnL + k ln n */
+    stagecal_stop stop;
+    size_t iterations; /* trust-region iterations of the best start */
+    size_t starts;     /* starts tried */
+    size_t polish;     /* accepted Gauss–Newton polish steps */
+    /* envelope of the data */
+    double r_min, r_max;  /* finite R range */
+    int has_total_reflux; /* some points at R = inf */
+    double f_min, f_max;  /* F range (0 when no load) */
+    /* robust reweighting (params.robust) */
+    stagecal_robust_kind robust;
+    double robust_scale; /* MAD scale of the standardised residuals at the end */
+    size_t robust_iter;
+    double *weights; /* n robust weights in [0, 1] (NULL unless robust); result owns */
+    /* bootstrap (params.bootstrap > 0) */
+    size_t boot_b;  /* resamples requested */
+    size_t boot_ok; /* resamples whose refit succeeded (intervals use these) */
+    unsigned long boot_seed;
+    stagecal_boot_kind boot_kind;
+    double boot_low[STAGECAL_FORM_MAXP], boot_high[STAGECAL_FORM_MAXP]; /* percentile CI */
+    double boot_se[STAGECAL_FORM_MAXP]; /* standard deviation of the bootstrap θ */
+    /* band grid over the envelope (params.band_points), result owns */
+    size_t nband;
+    stagecal_band *band;
+} stagecal_regress_result;
+
+/* Fits form to data. result is filled on success; release with
+ * stagecal_regress_result_free. Statuses: EINVAL (bad params, form undefined at a
+ * point, NULL), EDATA (too few points, non-finite values, singular design,
+ * degenerate data), ENOCONV (no start converged), ENOMEM, EINTERNAL (GSL failure,
+ * its text in the message). */
+int stagecal_regress_fit(const stagecal_regress_data *data, const stagecal_form *form,
+                         const stagecal_regress_params *params, stagecal_regress_result *result,
+                         stagecal_error *err);
+/* Frees what the result owns (weights, band) and zeroes those fields; NULL-safe. */
+void stagecal_regress_result_free(stagecal_regress_result *result);
+
+/* One row of a model-selection table. */
+typedef struct {
+    stagecal_form form;
+    int status;                        /* STAGECAL_OK or why the form could not be fitted */
+    char message[STAGECAL_ERROR_TEXT]; /* the error text when status != OK */
+    size_t p;
+    double rss, sigma, aicc, bic, r2;
+    double delta_aicc;    /* aicc − smallest aicc among fitted forms */
+    double akaike_weight; /* exp(−Δ/2) / Σ exp(−Δ/2) */
+} stagecal_regress_rank_row;
+
+/* Fits each form name in forms (NULL: the default candidate list, with load forms
+ * only when data has F) and ranks them by AICc (ascending; failed forms last).
+ * rows must hold nforms entries (STAGECAL_REGRESS_MAXRANK for the default list);
+ * *nrows gets how many were written. Bootstrap, robust and band options of params
+ * are ignored here. EDATA when no form could be fitted or AICc is undefined (too
+ * few points). */
+#define STAGECAL_REGRESS_MAXRANK 16
+int stagecal_regress_rank(const stagecal_regress_data *data, const char *const *forms,
+                          size_t nforms, const stagecal_regress_params *params,
+                          stagecal_regress_rank_row *rows, size_t *nrows, stagecal_error *err);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

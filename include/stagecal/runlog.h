@@ -1,0 +1,275 @@
+/*
+ * stagecal/runlog.h — production run logs: reading (libcsv, streaming), validation
+ * findings with file:line messages, quasi-steady windows (Cao & Rhinehart's
+ * R-statistic), the Rayleigh pot balance per run (closure, gross errors, analyser
+ * drift, reconciled xB) and per-sample effective stages with their uncertainty,
+ * L/V and F-factor. Format of the CSV: docs/runlog.md; methods: docs/methods.md.
+ *
+ * Storage is columnar: one array of doubles per logged signal, grown
+ * geometrically, so a 10^6-row log costs a few tens of MB. Everything is SI:
+ * time in s, W in mol, V in mol/s, P in Pa, temperatures in K, compositions as
+ * mole fractions of the light component. A blank cell is a missing value; it is
+ * held as NaN in the arrays (an optional signal that no file logged has a NULL array) and
+ * never emitted: a row with a missing required value gets the status `invalid`
+ * with the note "missing xB" (etc.) when inverted.
+ */
+#ifndef STAGECAL_RUNLOG_H
+#define STAGECAL_RUNLOG_H
+
+#include <stddef.h>
+#include <stdint.h>
+#include <stdio.h>
+
+#include "stagecal/column.h"
+#include "stagecal/error.h"
+#include "stagecal/units.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* ---- findings (validation) ------------------------------------------------------- */
+
+typedef enum { STAGECAL_FINDING_ERROR = 0, STAGECAL_FINDING_WARNING = 1 } stagecal_severity;
+
+typedef struct {
+    int severity;     /* stagecal_severity */
+    long line;        /* 1-based line in the file; 0 = the file as a whole */
+    char source[160]; /* file name as given */
+    char column[48];  /* header cell concerned ("xB[mol/mol]"), "" when none */
+    char text[400];   /* full message, "source:line: what is wrong, what was expected" */
+} stagecal_finding;
+
+/* A bounded list: the first max_items findings are kept, all are counted. */
+typedef struct {
+    stagecal_finding *items; /* kept findings, in file order */
+    size_t n;                /* number kept */
+    size_t max_items;        /* capacity fixed at alloc */
+    size_t n_errors;         /* errors seen (kept or not) */
+    size_t n_warnings;       /* warnings seen (kept or not) */
+} stagecal_findings;
+
+/* max_items ≥ 1. NULL on allocation failure. Free with stagecal_findings_free. */
+stagecal_findings *stagecal_findings_alloc(size_t max_items);
+void stagecal_findings_free(stagecal_findings *f); /* NULL ok */
+
+/* ---- the log ----------------------------------------------------------------------- */
+
+/* Signals a log may carry (column roles). */
+typedef enum {
+    STAGECAL_RL_TIME = 0,
+    STAGECAL_RL_W,
+    STAGECAL_RL_XD,
+    STAGECAL_RL_XB,
+    STAGECAL_RL_R,
+    STAGECAL_RL_V,
+    STAGECAL_RL_Q,
+    STAGECAL_RL_P,
+    STAGECAL_RL_TTOP,
+    STAGECAL_RL_TPOT,
+    STAGECAL_RL_RUN,
+    STAGECAL_RL_NCOL
+} stagecal_rl_column;
+
+/* One production run: a contiguous range of rows of one file. */
+typedef struct {
+    char name[64];   /* value of the run column, or the file name when there is none */
+    size_t file;     /* index into files[] */
+    size_t first;    /* first row index */
+    size_t n;        /* rows in the run */
+    long first_line; /* line of its first row */
+} stagecal_runlog_run;
+
+typedef struct {
+    size_t n;                  /* rows stored */
+    size_t cap;                /* allocated rows */
+    double *t_s;               /* time [s] (timestamps: s since 1970 UTC) */
+    double *w_mol;             /* pot holdup [mol] */
+    double *xd;                /* distillate mole fraction [-] */
+    double *xb;                /* pot mole fraction [-] */
+    double *r;                 /* reflux ratio [-], INFINITY = total reflux */
+    double *v_mol_s;           /* boil-up [mol/s] (from V, or Q / latent heat); NULL if neither */
+    double *p_pa;              /* top pressure [Pa]; NULL when not logged */
+    double *t_top_k;           /* top temperature [K]; NULL when not logged */
+    double *t_pot_k;           /* pot temperature [K]; NULL when not logged */
+    uint32_t *line;            /* source line of each row */
+    uint32_t *run;             /* run index of each row */
+    stagecal_runlog_run *runs; /* nruns runs, rows contiguous */
+    size_t nruns;
+    char (*files)[160]; /* nfiles source names */
+    size_t nfiles;
+} stagecal_runlog;
+
+typedef struct {
+    size_t min_rows;      /* fewer rows in a run is an error (default 5) */
+    double w_rise_sigmas; /* W rising by more than this many √2·u(W) while R is finite:
+                             warning (default 3); u(W) from the column file, 0 → any rise */
+    size_t max_findings;  /* findings kept by stagecal_findings_alloc in the CLI (1000) */
+} stagecal_runlog_params;
+
+stagecal_runlog_params stagecal_runlog_default_params(void);
+
+/* NULL on allocation failure. */
+stagecal_runlog *stagecal_runlog_alloc(void);
+void stagecal_runlog_free(stagecal_runlog *log); /* NULL ok */
+
+/* Appends the rows of one CSV file (path; "-" = stdin) to log, validating as it
+ * reads. col gives molar masses (mass and percent-by-mass units), latent heat
+ * (Q) and u(W); it may be NULL when the log is mole-based without Q. params may be
+ * NULL (defaults). Every data problem becomes a finding in f (which may be NULL);
+ * the call still returns STAGECAL_OK if the file could be read, even with error
+ * findings — bad cells are stored as missing values. Returns ENOINPUT when the
+ * file cannot be opened, EDATA when its header makes the file unusable (the same
+ * text is also a finding), ENOMEM. */
+int stagecal_runlog_read(stagecal_runlog *log, const char *path, const stagecal_column *col,
+                         const stagecal_runlog_params *params, stagecal_findings *f,
+                         stagecal_error *err);
+/* Same for an in-memory CSV text; source names it in messages. */
+int stagecal_runlog_read_buffer(stagecal_runlog *log, const char *text, size_t len,
+                                const char *source, const stagecal_column *col,
+                                const stagecal_runlog_params *params, stagecal_findings *f,
+                                stagecal_error *err);
+/* Same from an open stream (not closed). */
+int stagecal_runlog_read_stream(stagecal_runlog *log, FILE *in, const char *source,
+                                const stagecal_column *col, const stagecal_runlog_params *params,
+                                stagecal_findings *f, stagecal_error *err);
+
+/* ---- analysis ---------------------------------------------------------------------- */
+
+/* Cao & Rhinehart R-statistic (REFERENCES §9) of x[0..n−1] with filter factors
+ * l1, l2, l3 in (0, 1]. R is undefined at the first sample, so r receives n − 1
+ * values: r[i − 1] is R at sample i (i = 1..n−1). floor_var ≥ 0 is added to both
+ * filtered variances in the ratio's proportion — (2−l1)(v² + a)/(δ² + (2−l1)a)
+ * with a = 2·floor_var/(2−l1) — so a signal that is exactly constant (a set
+ * point) or quieter than its stated noise reads R → 1 instead of 0/0; floor_var
+ * = 0 gives the published statistic. Samples with x NaN hold the filters and
+ * repeat the previous R (1 at the start). EINVAL for bad λ or n < 2. */
+int stagecal_runlog_rstat(const double *x, size_t n, double l1, double l2, double l3,
+                          double floor_var, double *r, stagecal_error *err);
+
+/* Per-sample flags. */
+enum {
+    STAGECAL_SAMPLE_STEADY = 1u << 0,       /* quasi-steady by the R-statistic */
+    STAGECAL_SAMPLE_TOTAL_REFLUX = 1u << 1, /* R = inf, or no distillate drawn (W constant) */
+    STAGECAL_SAMPLE_OUTLIER = 1u << 2,      /* xB far from the reconciled xB (gross error) */
+    STAGECAL_SAMPLE_WARMUP = 1u << 3        /* within the filters' warm-up at run start */
+};
+
+typedef struct {
+    size_t run;           /* run index */
+    size_t first, last;   /* row indices, inclusive */
+    int total_reflux;     /* 1: R = inf throughout, or finite R with no distillate drawn */
+    double r_median;      /* median R over the window (INFINITY at total reflux) */
+    double stages_mean;   /* mean of the ok per-sample stages (0 if none) */
+    double u_stages_mean; /* standard uncertainty of that mean, from the per-sample u
+                             assuming independent errors (a lower bound: samples are
+                             autocorrelated; the window is the unit of evidence) */
+    size_t n_ok;          /* ok samples in the window */
+} stagecal_runlog_window;
+
+typedef struct {
+    size_t run;           /* run index */
+    size_t n_used;        /* samples with W, xD, xB present */
+    double closure;       /* (W0·xB0 − W·xB − ∫xD dW_removed)/(W0·xB0) [-] */
+    double u_closure;     /* its standard uncertainty from u(W), u(xD), u(xB) */
+    int gross;            /* 1: |closure| > gross_sigmas·u_closure */
+    double drift_per_h;   /* estimated xB analyser drift d [1/h]: weighted fit of the light
+                             holdup h_k = H + d·W_k·t_k (see docs/methods.md) */
+    double u_drift_per_h; /* its standard error */
+    int drift;            /* 1: analyser drift flagged (see params) */
+    size_t n_outliers;    /* samples flagged OUTLIER */
+} stagecal_runlog_closure;
+
+typedef struct {
+    double lambda1, lambda2, lambda3; /* R-statistic filters (0.2, 0.1, 0.1, REFERENCES §9) */
+    double r_enter;         /* transient → steady when every signal's R < r_enter (1.44, the
+                               α = 0.05 critical value for (0.2, 0.1, 0.1)) */
+    double r_leave;         /* steady → transient when any signal's R > r_leave (2.5) */
+    size_t warmup;          /* samples at run start that cannot be steady (15 ≈ 3/λ2) */
+    size_t min_window;      /* shortest window in samples (6); shorter stretches stay
+                               flagged steady but form no window */
+    double gross_sigmas;    /* closure gross error threshold in standard uncertainties (3) */
+    double drift_t;         /* drift flagged when |slope|/se > drift_t (4) ... */
+    double drift_u;         /* ... and |slope|·duration > drift_u·u(xB) (2) */
+    double outlier_sigmas;  /* |xB − xB_rec| > outlier_sigmas·u(xB): outlier (4) */
+    double no_distillate_t; /* finite-R window whose W slope has |t| < this: no distillate (2) */
+} stagecal_runlog_analysis_params;
+
+stagecal_runlog_analysis_params stagecal_runlog_analysis_default_params(void);
+
+/* Per-sample notes (why a row has no stage count or what is special). */
+typedef enum {
+    STAGECAL_NOTE_NONE = 0,
+    STAGECAL_NOTE_MISSING_XD,
+    STAGECAL_NOTE_MISSING_XB,
+    STAGECAL_NOTE_MISSING_R,
+    STAGECAL_NOTE_XD_BELOW_XB,
+    STAGECAL_NOTE_REFLUX_ZERO,
+    STAGECAL_NOTE_STAGES,        /* status from the stage inversion (pinch, azeotrope, …) */
+    STAGECAL_NOTE_NO_DISTILLATE, /* inverted at total reflux: W constant at finite R */
+    STAGECAL_NOTE_NO_LOAD,       /* F-factor not available (no V, diameter or temperature) */
+    STAGECAL_NOTE_FAILED,        /* the inversion's inner solve failed */
+    STAGECAL_NOTE_COUNT
+} stagecal_runlog_note;
+
+const char *stagecal_runlog_note_text(int note); /* "", "missing xD", ... */
+
+/* Everything computed for a log; one entry per row (arrays of length n). */
+typedef struct {
+    size_t n;
+    unsigned char *flags;  /* STAGECAL_SAMPLE_* */
+    int32_t *window;       /* window index or −1 */
+    double *xb_rec;        /* reconciled xB (NaN where it cannot be formed; never emitted) */
+    unsigned char *status; /* stagecal_stages_status (INVALID for missing values) */
+    unsigned char *note;   /* stagecal_runlog_note */
+    double *stages;        /* stages incl. the pot (0 unless ok) */
+    double *u_stages;      /* standard uncertainty of stages (0 unless ok) */
+    double *lv;            /* L/V = R/(R+1) (1 at total reflux; 0 when R missing) */
+    double *f_factor;      /* F = u_G·√ρ_G [Pa^0.5]; NaN when not available (note says) */
+    stagecal_runlog_window *windows;
+    size_t nwindows;
+    stagecal_runlog_closure *closures; /* one per run */
+    size_t nruns;
+    size_t count[4]; /* samples per stages status */
+} stagecal_runlog_result;
+
+/* Flags, windows and closure for every run (no column model needed; u(·) from
+ * col->u when col is not NULL). Allocates res (free with
+ * stagecal_runlog_result_free). params may be NULL. ENOMEM, EINVAL. */
+int stagecal_runlog_analyse(const stagecal_runlog *log, const stagecal_column *col,
+                            const stagecal_runlog_analysis_params *params,
+                            stagecal_runlog_result *res, stagecal_error *err);
+
+/* Per-sample inversion with the column's equilibrium model (after
+ * stagecal_runlog_analyse on the same res): stages, u(stages) from col->u through
+ * the sensitivities (first order, independent errors), L/V and the F-factor from V,
+ * the diameter, P (log, else the column's pressure) and the ideal-gas density at
+ * the top temperature (T_top from the log, else the bubble point of xD). Window
+ * Then flags steady samples and builds the windows (params may be NULL), filling
+ * the window means. murphree in (0, 1] is passed to the inversion. A sample whose
+ * inner solve fails is `invalid` with note "inversion failed"; the call fails only
+ * for ENOMEM or EINVAL (no column model). */
+int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *col, double murphree,
+                           const stagecal_runlog_analysis_params *params,
+                           stagecal_runlog_result *res, stagecal_error *err);
+
+void stagecal_runlog_result_free(stagecal_runlog_result *res); /* frees members; NULL ok */
+
+/* F = u_G·√ρ_G [Pa^0.5] for a boil-up v_mol_s of molar mass m_kg_mol at p_pa and t_k
+ * in a column of inside diameter d_m, with ρ_G = P·M/(R·T) (ideal gas). EINVAL
+ * when an argument is not positive and finite. */
+int stagecal_runlog_f_factor(double v_mol_s, double m_kg_mol, double p_pa, double t_k, double d_m,
+                             double *f, stagecal_error *err);
+
+/* Writes one CSV row per log row (header first): source, line, run, time[s],
+ * stages, column_stages, u_stages, status, note, L/V, F[Pa^0.5], steady,
+ * total_reflux, outlier, window, xB_rec. Time has 3 decimals, stages 6, L/V and xB_rec 9,
+ * F 6, u_stages 9 significant digits. Missing numbers are empty cells. col
+ * gives the condenser (column stages). EWRITE on a write error. */
+int stagecal_runlog_write_csv(const stagecal_runlog *log, const stagecal_column *col,
+                              const stagecal_runlog_result *res, FILE *out, stagecal_error *err);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

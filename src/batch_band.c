@@ -1,0 +1,159 @@
+/*
+ * batch_band.c — uncertainty of a batch prediction from the model's parameter
+ * covariance, by sampling (Monte Carlo propagation, GUM Supplement 1 idea):
+ * θ_k = θ̂ + S·z_k with z_k ~ N(0, I) and S = Q·diag(√λ) from the eigen-decomposition
+ * C = Q·diag(λ)·Qᵀ (GSL gsl_eigen_symmv; an eigen-decomposition rather than Cholesky
+ * so that a rank-deficient C from a fit with a fixed direction still works — tiny
+ * negative eigenvalues from rounding are set to 0). One batch is run per draw; the
+ * band is the pair of empirical percentiles (1 ∓ level)/2 of each quantity
+ * (gsl_stats_quantile_from_sorted_data). The RNG is GSL's mt19937 with the caller's
+ * seed, so a band is reproducible.
+ *
+ * The residual σ of the model (window-to-window scatter) is not sampled: the band is
+ * on the batch the mean law predicts.
+ */
+#include "stagecal/batch.h"
+
+#include <gsl/gsl_eigen.h>
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_matrix.h>
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+#include <gsl/gsl_sort.h>
+#include <gsl/gsl_statistics_double.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+
+#define NQ 5 /* per-cut quantities: t_end, amount, x_mean, yield, recovery */
+
+/* Symmetric square root factor S (p×p, row-major) with S·Sᵀ = C. */
+static int cov_factor(const double *cov, size_t p, double *s, stagecal_error *err)
+{
+    gsl_matrix *a = gsl_matrix_alloc(p, p), *q = gsl_matrix_alloc(p, p);
+    gsl_vector *lam = gsl_vector_alloc(p);
+    gsl_eigen_symmv_workspace *ws = gsl_eigen_symmv_alloc(p);
+    int rc = STAGECAL_OK;
+    if (!a || !q || !lam || !ws) {
+        rc = error_set(err, STAGECAL_ENOMEM, "out of memory for the covariance factor");
+        goto done;
+    }
+    for (size_t i = 0; i < p; i++)
+        for (size_t j = 0; j < p; j++)
+            gsl_matrix_set(a, i, j, 0.5 * (cov[i * p + j] + cov[j * p + i]));
+    int st = gsl_eigen_symmv(a, lam, q, ws);
+    if (st != GSL_SUCCESS) {
+        rc = error_set(err, STAGECAL_EINTERNAL, "eigen-decomposition of the covariance: %s",
+                       gsl_strerror(st));
+        goto done;
+    }
+    for (size_t i = 0; i < p; i++)
+        for (size_t j = 0; j < p; j++)
+            s[i * p + j] = gsl_matrix_get(q, i, j) * sqrt(fmax(gsl_vector_get(lam, j), 0));
+done:
+    gsl_eigen_symmv_free(ws);
+    gsl_vector_free(lam);
+    gsl_matrix_free(q);
+    gsl_matrix_free(a);
+    return rc;
+}
+
+static void interval(double *v, size_t n, double level, double nominal,
+                     stagecal_batch_interval *out)
+{
+    gsl_sort(v, 1, n);
+    out->nominal = nominal;
+    out->low = gsl_stats_quantile_from_sorted_data(v, 1, n, (1 - level) / 2);
+    out->high = gsl_stats_quantile_from_sorted_data(v, 1, n, (1 + level) / 2);
+}
+
+int stagecal_batch_band_sample(const stagecal_batch_problem *pb, const stagecal_vle *vle,
+                               const stagecal_model *m, double f_load,
+                               const stagecal_batch_params *params,
+                               const stagecal_batch_result *nominal, size_t n_samples,
+                               unsigned long seed, double level, stagecal_batch_band *band,
+                               stagecal_error *err)
+{
+    size_t p = m->form.p, nc = pb->n_cuts;
+    double s[STAGECAL_FORM_MAXP * STAGECAL_FORM_MAXP], theta[STAGECAL_FORM_MAXP];
+    int rc;
+    if (n_samples < 2)
+        return error_set(err, STAGECAL_EINVAL, "%zu samples: expected at least 2", n_samples);
+    if (!(level > 0 && level < 1))
+        return error_set(err, STAGECAL_EINVAL, "level %g: expected a coverage in (0, 1)", level);
+    if (nominal->n_cuts != nc)
+        return error_set(err, STAGECAL_EINVAL,
+                         "nominal result has %zu cuts, the problem %zu: run it first",
+                         nominal->n_cuts, nc);
+    if ((rc = cov_factor(m->cov, p, s, err)))
+        return rc;
+    /* column-major per quantity: q[(c·NQ + k)·n_samples + draw]; then t_end, energy */
+    double *q = malloc(sizeof(double) * n_samples * (nc * NQ + 2));
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    if (!q || !rng) {
+        free(q);
+        gsl_rng_free(rng);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory for %zu draws", n_samples);
+    }
+    gsl_rng_set(rng, seed);
+    memset(band, 0, sizeof *band);
+    band->level = level;
+    band->n_samples = n_samples;
+    band->seed = seed;
+    band->n_cuts = nc;
+
+    stagecal_batch_model_law law = {m, theta, f_load};
+    stagecal_batch_column col = {vle, stagecal_batch_model_stages, &law, NULL, NULL};
+    stagecal_batch_result r;
+    stagecal_batch_result_init(&r);
+    size_t ok = 0;
+    for (size_t k = 0; k < n_samples; k++) {
+        double z[STAGECAL_FORM_MAXP];
+        for (size_t i = 0; i < p; i++)
+            z[i] = gsl_ran_ugaussian(rng);
+        for (size_t i = 0; i < p; i++) {
+            theta[i] = m->theta[i];
+            for (size_t j = 0; j < p; j++)
+                theta[i] += s[i * p + j] * z[j];
+        }
+        stagecal_error e;
+        if (stagecal_batch_run(pb, &col, params, &r, &e) != STAGECAL_OK) {
+            band->n_failed++;
+            continue;
+        }
+        for (size_t c = 0; c < nc; c++) {
+            const stagecal_batch_cut *cu = &r.cuts[c];
+            double v[NQ] = {cu->t_end_s, cu->amount_mol, cu->x_mean, cu->yield, cu->recovery};
+            for (size_t j = 0; j < NQ; j++)
+                q[(c * NQ + j) * n_samples + ok] = v[j];
+        }
+        q[(nc * NQ) * n_samples + ok] = r.t_end_s;
+        q[(nc * NQ + 1) * n_samples + ok] = r.energy_j;
+        ok++;
+    }
+    stagecal_batch_result_free(&r);
+    gsl_rng_free(rng);
+    band->n_ok = ok;
+    if (ok < 2 || 2 * ok < n_samples) {
+        free(q);
+        return error_set(err, STAGECAL_ENOCONV,
+                         "only %zu of %zu parameter draws gave a batch (the covariance admits "
+                         "laws the column cannot run)",
+                         ok, n_samples);
+    }
+    for (size_t c = 0; c < nc; c++) {
+        const stagecal_batch_cut *cu = &nominal->cuts[c];
+        stagecal_batch_cut_band *b = &band->cuts[c];
+        interval(q + (c * NQ + 0) * n_samples, ok, level, cu->t_end_s, &b->t_end_s);
+        interval(q + (c * NQ + 1) * n_samples, ok, level, cu->amount_mol, &b->amount_mol);
+        interval(q + (c * NQ + 2) * n_samples, ok, level, cu->x_mean, &b->x_mean);
+        interval(q + (c * NQ + 3) * n_samples, ok, level, cu->yield, &b->yield);
+        interval(q + (c * NQ + 4) * n_samples, ok, level, cu->recovery, &b->recovery);
+    }
+    interval(q + (nc * NQ) * n_samples, ok, level, nominal->t_end_s, &band->t_end_s);
+    interval(q + (nc * NQ + 1) * n_samples, ok, level, nominal->energy_j, &band->energy_j);
+    free(q);
+    return STAGECAL_OK;
+}

@@ -1,0 +1,433 @@
+/*
+ * calibrate.c — the calibration chain (see stagecal/calibrate.h): column file and
+ * run logs in; validation, windows, per-sample inversion, evidence per window, the
+ * stage-space and composition-space fits, and a complete model (not yet written).
+ *
+ * The window, not the sample, is the unit of evidence: every fit sees one point per
+ * quasi-steady window, with a standard error that accounts for autocorrelation
+ * (calibrate_fit.c). Outlier-flagged samples (gross errors against the reconciled
+ * pot composition) are left out of the window means.
+ */
+#include "stagecal/calibrate.h"
+
+#include <math.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "stagecal/stages.h"
+#include "stagecal/version.h"
+
+/* stage_status / comp_status of a fit that was not attempted. */
+#define CAL_NOT_RUN (-1)
+
+stagecal_calibrate_params stagecal_calibrate_default_params(void)
+{
+    stagecal_calibrate_params p;
+    memset(&p, 0, sizeof p);
+    p.form = "auto";
+    p.method = STAGECAL_CAL_AUTO;
+    p.level = 0.95;
+    p.murphree = 1.0;
+    p.min_ok = 3;
+    p.seed = 1;
+    p.robust = STAGECAL_ROBUST_NONE;
+    p.hetp_r = NAN;
+    p.hetp_f = NAN;
+    p.read = stagecal_runlog_default_params();
+    p.analysis = stagecal_runlog_analysis_default_params();
+    return p;
+}
+
+void stagecal_calibration_free(stagecal_calibration *cal)
+{
+    if (!cal)
+        return;
+    stagecal_column_free(&cal->column);
+    stagecal_runlog_free(cal->log);
+    stagecal_findings_free(cal->findings);
+    stagecal_runlog_result_free(&cal->res);
+    free(cal->ev);
+    stagecal_regress_result_free(&cal->stage_fit);
+    stagecal_regress_result_free(&cal->comp_fit);
+    stagecal_model_free(&cal->model);
+    memset(cal, 0, sizeof *cal);
+}
+
+static void progress(const stagecal_calibrate_params *p, const char *stage, double done)
+{
+    if (p->progress)
+        p->progress(p->progress_ctx, stage, done);
+}
+
+/* Builds one piece of evidence per window from the per-sample results. */
+static int build_evidence(stagecal_calibration *cal, const stagecal_calibrate_params *par,
+                          stagecal_error *err)
+{
+    const stagecal_runlog *log = cal->log;
+    const stagecal_runlog_result *res = &cal->res;
+    const stagecal_uncertainty *u = &cal->column.u;
+    size_t nw = res->nwindows, maxlen = 0;
+    for (size_t k = 0; k < nw; k++) {
+        size_t len = res->windows[k].last - res->windows[k].first + 1;
+        if (len > maxlen)
+            maxlen = len;
+    }
+    cal->ev = calloc(nw ? nw : 1, sizeof *cal->ev);
+    double *buf = malloc((maxlen ? maxlen : 1) * 4 * sizeof *buf);
+    if (!cal->ev || !buf) {
+        free(buf);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    double *t = buf, *xd = buf + maxlen, *xb = buf + 2 * maxlen, *f = buf + 3 * maxlen;
+    size_t m = 0;
+    for (size_t k = 0; k < nw; k++) {
+        const stagecal_runlog_window *w = &res->windows[k];
+        size_t len = w->last - w->first + 1, nok = 0, nf = 0;
+        double fsum = 0;
+        for (size_t j = 0; j < len; j++) {
+            size_t i = w->first + j;
+            int outlier = (res->flags[i] & STAGECAL_SAMPLE_OUTLIER) != 0;
+            t[j] = log->t_s[i];
+            xd[j] = outlier ? NAN : log->xd[i];
+            xb[j] = outlier ? NAN : log->xb[i];
+            f[j] = res->f_factor[i];
+            if (!outlier && res->status[i] == STAGECAL_STAGES_OK)
+                nok++;
+            if (isfinite(f[j])) {
+                fsum += f[j];
+                nf++;
+            }
+        }
+        stagecal_evidence *e = &cal->ev[m];
+        memset(e, 0, sizeof *e);
+        e->run = w->run;
+        e->first = w->first;
+        e->last = w->last;
+        e->n_samples = len;
+        e->n_ok = nok;
+        e->total_reflux = w->total_reflux;
+        e->r = w->total_reflux ? INFINITY : w->r_median;
+        e->t_mid_s = 0.5 * (log->t_s[w->first] + log->t_s[w->last]);
+        if (nf * 2 >= len && nf > 0) {
+            e->has_load = 1;
+            e->f_load = fsum / (double)nf;
+        }
+        if (stagecal_evidence_mean(t, xd, len, u->xd, &e->xd, &e->u_xd, NULL, NULL) !=
+                STAGECAL_OK ||
+            stagecal_evidence_mean(t, xb, len, u->xb, &e->xb, &e->u_xb, NULL, NULL) != STAGECAL_OK)
+            continue; /* too few usable compositions: not evidence */
+        /* n_eff of the pot analyser series: how many independent samples the window holds */
+        double dm, dse;
+        stagecal_evidence_mean(t, xb, len, 0, &dm, &dse, &e->n_eff, NULL);
+        int rc = stagecal_evidence_stages(cal->column.system.vle, par->murphree, e, err);
+        if (rc != STAGECAL_OK) {
+            free(buf);
+            return rc;
+        }
+        if (nok < par->min_ok)
+            e->stages_ok = 0; /* too few samples of the window invert on their own */
+        m++;
+    }
+    free(buf);
+    cal->nev = m;
+    return STAGECAL_OK;
+}
+
+/* Copies the fit into the model and completes the envelope, HETP and warnings. */
+static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params *par,
+                      const char *column_path, const char *const *logs, size_t nlogs,
+                      const stagecal_regress_result *fit, stagecal_error *err)
+{
+    stagecal_model *mo = &cal->model;
+    const stagecal_column *col = &cal->column;
+    int rc;
+
+    snprintf(mo->column_id, sizeof mo->column_id, "%s", col->id);
+    snprintf(mo->light, sizeof mo->light, "%s", col->system.light);
+    snprintf(mo->heavy, sizeof mo->heavy, "%s", col->system.heavy);
+    snprintf(mo->vle_kind, sizeof mo->vle_kind, "%s",
+             stagecal_vle_kind_name(stagecal_vle_get_kind(col->system.vle)));
+    if (stagecal_vle_get_kind(col->system.vle) == STAGECAL_VLE_ALPHA) {
+        /* constant α is recovered exactly from any point of the curve */
+        double y;
+        stagecal_vle_ystar(col->system.vle, 0.5, &y);
+        double alpha = y / (1 - y);
+        if ((rc = stagecal_model_add_vle_param(mo, "alpha", &alpha, 1, err)))
+            return rc;
+    }
+    if (col->system.p_pa > 0 &&
+        (rc = stagecal_model_add_vle_param(mo, "pressure_pa", &col->system.p_pa, 1, err)))
+        return rc;
+    mo->condenser = col->condenser;
+    mo->form = fit->form;
+    size_t p = fit->p;
+    memcpy(mo->theta, fit->theta, p * sizeof *mo->theta);
+    memcpy(mo->cov, fit->cov, p * p * sizeof *mo->cov);
+    mo->sigma = fit->sigma_obs > 0 ? fit->sigma_obs : fit->sigma;
+    mo->dof = fit->dof;
+    mo->level = par->level;
+    mo->method = cal->used;
+    mo->n_windows = cal->used == STAGECAL_MODEL_STAGE_SPACE ? cal->nev_stage : cal->nev;
+    mo->n_runs = cal->log->nruns;
+    mo->n_samples = 0;
+    for (size_t i = 0; i < cal->nev; i++)
+        if (cal->used != STAGECAL_MODEL_STAGE_SPACE || cal->ev[i].stages_ok)
+            mo->n_samples += cal->ev[i].n_samples;
+    mo->r_min = fit->r_min;
+    mo->r_max = fit->has_total_reflux ? INFINITY : fit->r_max;
+    if (fit->r_max == 0 && fit->has_total_reflux)
+        mo->r_min = INFINITY;
+    if (fit->f_max > 0) {
+        mo->has_load = 1;
+        mo->f_min = fit->f_min;
+        mo->f_max = fit->f_max;
+    }
+    /* provenance */
+    char hex[STAGECAL_MODEL_HEX];
+    if ((rc = stagecal_model_hash_file(column_path, hex, err)) ||
+        (rc = stagecal_model_add_input(mo, column_path, hex, 0, err)))
+        return rc;
+    for (size_t k = 0; k < nlogs; k++) {
+        size_t rows = 0;
+        for (size_t r = 0; r < cal->log->nruns; r++)
+            if (cal->log->runs[r].file == k)
+                rows += cal->log->runs[r].n;
+        if ((rc = stagecal_model_hash_file(logs[k], hex, err)) ||
+            (rc = stagecal_model_add_input(mo, logs[k], hex, rows, err)))
+            return rc;
+    }
+    stagecal_model_stamp_now(mo);
+    mo->seed = par->seed;
+
+    /* HETP at a reference condition, where the packed height is known. */
+    if (col->height_m > 0) {
+        double r = isnan(par->hetp_r) ? mo->r_max : par->hetp_r;
+        double f = isnan(par->hetp_f) ? 0.5 * (mo->f_min + mo->f_max) : par->hetp_f;
+        stagecal_model_point pt;
+        double off = col->condenser == STAGECAL_CONDENSER_PARTIAL ? 2 : 1;
+        if (stagecal_model_eval(mo, r, f, par->level, &pt, NULL) == STAGECAL_OK &&
+            pt.stages - off > 0) {
+            mo->has_hetp = 1;
+            mo->height_m = col->height_m;
+            mo->hetp_r = r;
+            mo->hetp_f = mo->has_load ? f : 0;
+            mo->hetp_m = col->height_m / (pt.stages - off);
+            mo->hetp_level = par->level;
+            /* HETP is monotone in the stage count: the interval maps endpoint to endpoint */
+            mo->hetp_low_m = col->height_m / (pt.ci_high - off);
+            mo->hetp_high_m = pt.ci_low - off > 0 ? col->height_m / (pt.ci_low - off) : INFINITY;
+        }
+    }
+    return STAGECAL_OK;
+}
+
+static int warn(stagecal_calibration *cal, stagecal_error *err, const char *fmt, ...)
+    SC_PRINTF(3, 4);
+static int warn(stagecal_calibration *cal, stagecal_error *err, const char *fmt, ...)
+{
+    char text[400];
+    va_list ap;
+    va_start(ap, fmt);
+    vsnprintf(text, sizeof text, fmt, ap);
+    va_end(ap);
+    return stagecal_model_add_warning(&cal->model, text, err);
+}
+
+static void auto_theta(const stagecal_form *form, const stagecal_evidence *ev, size_t n,
+                       double *theta)
+{
+    double smax = 2;
+    for (size_t i = 0; i < n; i++)
+        if (ev[i].stages_ok && ev[i].stages > smax)
+            smax = ev[i].stages;
+    for (size_t i = 0; i < form->p; i++)
+        theta[i] = 0;
+    theta[0] = smax;
+    if (form->kind == STAGECAL_FORM_SATURATING || form->kind == STAGECAL_FORM_SATURATING_LOAD)
+        theta[1] = 0.5;
+}
+
+int stagecal_calibrate(const char *column_path, const char *const *logs, size_t nlogs,
+                       const stagecal_calibrate_params *params, stagecal_calibration *cal,
+                       stagecal_error *err)
+{
+    stagecal_calibrate_params defp = stagecal_calibrate_default_params();
+    const stagecal_calibrate_params *par = params ? params : &defp;
+    int rc;
+
+    memset(cal, 0, sizeof *cal);
+    stagecal_model_init(&cal->model);
+    if (nlogs == 0)
+        return error_set(err, STAGECAL_EINVAL, "calibration needs at least one run log");
+    progress(par, "reading", 0);
+    if ((rc = stagecal_column_load(column_path, &cal->column, err)))
+        return rc;
+    cal->log = stagecal_runlog_alloc();
+    cal->findings = stagecal_findings_alloc(par->read.max_findings ? par->read.max_findings : 1000);
+    if (!cal->log || !cal->findings)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    for (size_t k = 0; k < nlogs; k++) {
+        progress(par, "reading", (double)k / (double)nlogs);
+        if ((rc = stagecal_runlog_read(cal->log, logs[k], &cal->column, &par->read, cal->findings,
+                                       err)))
+            return rc;
+    }
+    if (cal->findings->n_errors > 0)
+        return error_set(err, STAGECAL_EDATA, "%zu error(s) in the run logs, first: %s",
+                         cal->findings->n_errors,
+                         cal->findings->n ? cal->findings->items[0].text : "(not kept)");
+    progress(par, "inverting", 0.2);
+    if ((rc = stagecal_runlog_analyse(cal->log, &cal->column, &par->analysis, &cal->res, err)) ||
+        (rc = stagecal_runlog_invert(cal->log, &cal->column, par->murphree, &par->analysis,
+                                     &cal->res, err)))
+        return rc;
+    progress(par, "windows", 0.5);
+    if ((rc = build_evidence(cal, par, err)))
+        return rc;
+    if (cal->nev == 0)
+        return error_set(err, STAGECAL_EDATA,
+                         "no quasi-steady window in the run logs: nothing to calibrate on "
+                         "(%zu samples read)",
+                         cal->log->n);
+
+    /* ---- stage space ------------------------------------------------------------ */
+    progress(par, "fitting", 0.6);
+    stagecal_regress_data d;
+    double *arr = malloc(cal->nev * 4 * sizeof *arr);
+    if (!arr)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    size_t ns = 0;
+    int any_load = 1;
+    for (size_t i = 0; i < cal->nev; i++) {
+        const stagecal_evidence *e = &cal->ev[i];
+        if (!e->stages_ok)
+            continue;
+        arr[ns] = e->r;
+        arr[cal->nev + ns] = e->has_load ? e->f_load : 0;
+        arr[2 * cal->nev + ns] = e->stages;
+        arr[3 * cal->nev + ns] = e->se_stages > 0 ? e->se_stages : 1e-9;
+        any_load &= e->has_load;
+        ns++;
+    }
+    cal->nev_stage = ns;
+    d.n = ns;
+    d.r = arr;
+    d.f_load = any_load ? arr + cal->nev : NULL;
+    d.stages = arr + 2 * cal->nev;
+    d.sigma = arr + 3 * cal->nev;
+
+    stagecal_regress_params rp = stagecal_regress_default_params();
+    rp.level = par->level;
+    rp.bootstrap = par->bootstrap;
+    rp.seed = par->seed;
+    rp.robust = par->robust;
+    stagecal_form form;
+    stagecal_error e2;
+    stagecal_error_clear(&e2);
+    memset(&form, 0, sizeof form);
+    if (strcmp(par->form, "auto") == 0) {
+        rc = stagecal_regress_rank(&d, NULL, 0, &rp, cal->rank, &cal->nrank, &e2);
+        if (rc == STAGECAL_OK && cal->nrank > 0 && cal->rank[0].status == STAGECAL_OK)
+            form = cal->rank[0].form;
+        else
+            rc = stagecal_form_parse(any_load ? "saturating-load" : "saturating", &form, err);
+        if (rc != STAGECAL_OK)
+            rc = stagecal_form_parse("saturating", &form, err);
+    } else {
+        rc = stagecal_form_parse(par->form, &form, err);
+    }
+    if (rc != STAGECAL_OK) {
+        free(arr);
+        return rc;
+    }
+    if (form.uses_load && !any_load) {
+        free(arr);
+        return error_set(err, STAGECAL_EDATA,
+                         "form '%s' needs the vapour load (F-factor), but not every window has one "
+                         "(the logs need V or Q, and the column file the diameter)",
+                         form.name);
+    }
+    cal->stage_status = CAL_NOT_RUN;
+    /* The stage-space fit always runs: it starts the composition fit and is compared
+     * with it in the summary. */
+    stagecal_error_clear(&e2);
+    cal->stage_status =
+        ns > 0 ? stagecal_regress_fit(&d, &form, &rp, &cal->stage_fit, &e2)
+               : error_set(&e2, STAGECAL_EDATA, "no window has enough ok stage counts");
+    snprintf(cal->stage_message, sizeof cal->stage_message, "%s", e2.text);
+    free(arr);
+
+    /* ---- composition space ---------------------------------------------------------- */
+    progress(par, "fitting", 0.8);
+    cal->comp_status = CAL_NOT_RUN;
+    if (par->method != STAGECAL_CAL_STAGE) {
+        double theta0[STAGECAL_FORM_MAXP];
+        if (cal->stage_status == STAGECAL_OK)
+            memcpy(theta0, cal->stage_fit.theta, sizeof theta0);
+        else
+            auto_theta(&form, cal->ev, cal->nev, theta0);
+        stagecal_error_clear(&e2);
+        cal->comp_status =
+            stagecal_fit_composition(cal->column.system.vle, par->murphree, cal->ev, cal->nev,
+                                     &form, theta0, &rp, &cal->comp_fit, &e2);
+        snprintf(cal->comp_message, sizeof cal->comp_message, "%s", e2.text);
+    }
+
+    const stagecal_regress_result *fit = NULL;
+    if (par->method == STAGECAL_CAL_STAGE) {
+        if (cal->stage_status != STAGECAL_OK)
+            return error_set(err, cal->stage_status, "stage-space fit failed: %s",
+                             cal->stage_message);
+        cal->used = STAGECAL_MODEL_STAGE_SPACE;
+        fit = &cal->stage_fit;
+    } else if (cal->comp_status == STAGECAL_OK) {
+        cal->used = STAGECAL_MODEL_COMPOSITION_SPACE;
+        fit = &cal->comp_fit;
+    } else if (par->method == STAGECAL_CAL_AUTO && cal->stage_status == STAGECAL_OK) {
+        cal->used = STAGECAL_MODEL_STAGE_SPACE;
+        fit = &cal->stage_fit;
+    } else {
+        return error_set(err, cal->comp_status ? cal->comp_status : STAGECAL_EDATA,
+                         "composition-space fit failed: %s", cal->comp_message);
+    }
+    if (!(fit->dof > 0))
+        return error_set(err, STAGECAL_EDATA,
+                         "%zu window(s) for %zu parameter(s): no degrees of freedom left for "
+                         "the uncertainty (log more runs or choose a form with fewer parameters)",
+                         fit->n, fit->p);
+
+    progress(par, "model", 0.95);
+    if ((rc = fill_model(cal, par, column_path, logs, nlogs, fit, err)))
+        return rc;
+    /* warnings a reader of the model must see */
+    if (par->method == STAGECAL_CAL_AUTO && cal->comp_status != STAGECAL_OK &&
+        (rc = warn(cal, err,
+                   "composition-space fit failed (%s); the model carries the "
+                   "stage-space fit",
+                   cal->comp_message)))
+        return rc;
+    for (size_t r = 0; r < cal->res.nruns; r++) {
+        const stagecal_runlog_closure *c = &cal->res.closures[r];
+        if (c->gross && (rc = warn(cal, err,
+                                   "run '%s': Rayleigh closure error %.3g exceeds its uncertainty "
+                                   "(%.2g): gross error in W, xD or xB",
+                                   cal->log->runs[r].name, c->closure, c->u_closure)))
+            return rc;
+        if (c->drift && (rc = warn(cal, err,
+                                   "run '%s': pot analyser drift %.3g per hour against the "
+                                   "reconciled xB",
+                                   cal->log->runs[r].name, c->drift_per_h)))
+            return rc;
+    }
+    size_t npinch = cal->res.count[STAGECAL_STAGES_PINCH];
+    if (npinch > 0 && (rc = warn(cal, err,
+                                 "%zu sample(s) at a pinch have no stage count; the "
+                                 "composition-space fit still uses their windows",
+                                 npinch)))
+        return rc;
+    progress(par, "done", 1);
+    return STAGECAL_OK;
+}

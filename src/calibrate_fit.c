@@ -1,0 +1,345 @@
+/*
+ * calibrate_fit.c — the unit of evidence (a window's autocorrelation-aware mean) and
+ * the composition-space fit of a correlation form (see stagecal/calibrate.h).
+ *
+ * Evidence. Logged samples minutes apart are strongly autocorrelated, so a window's
+ * N samples carry far fewer than N independent pieces of information. The window
+ * mean's standard error uses the effective sample size of an AR(1) process,
+ * n_eff = n·(1 − ρ1)/(1 + ρ1), ρ1 the lag-1 autocorrelation of the detrended series
+ * (Wilks, Statistical Methods in the Atmospheric Sciences, 3rd ed. 2011, eq. 5.12;
+ * also Bayley & Hammersley 1946 — citations from memory).
+ *
+ * Composition-space fit. For window i with mean xD_i, xB_i, R_i, F_i the correlation
+ * predicts N_i = stages(R_i, F_i; θ); forward stepping N_i stages down from xD_i gives
+ * the predicted pot composition x̂B_i(θ). The residual is compared in log-odds space,
+ *     r_i(θ) = [logit x̂B_i(θ) − logit xB_i] / s_i,
+ *     s_i² = (u(xB_i)/(xB_i(1 − xB_i)))² + (∂logit x̂B_i/∂xD · u(xD_i))²,
+ * the effective-variance treatment of an error-carrying regressor (Orear 1982,
+ * Am. J. Phys. 50, 912 — citation from memory), with s_i fixed at the starting θ.
+ * θ minimises Σ r_i² (GSL trust region, central finite-difference Jacobian); the
+ * covariance is s²(JᵀJ)⁻¹ with s² = Σ r_i²/(n − p), as for the stage-space fit.
+ */
+#include "stagecal/calibrate.h"
+
+#include <gsl/gsl_blas.h>
+#include <gsl/gsl_cdf.h>
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_fit.h>
+#include <gsl/gsl_math.h>
+#include <gsl/gsl_multifit_nlinear.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "stagecal/stages.h"
+
+/* Bounds on the lag-1 autocorrelation used for n_eff: negative ρ would claim more
+ * information than samples; ρ → 1 would make n_eff vanish. */
+#define RHO_MAX 0.99
+/* Largest stage count the composition fit will step (keeps a wild trial θ bounded). */
+#define COMP_MAX_STAGES 2000.0
+/* log-odds are taken of compositions clipped to [LOGIT_EPS, 1 − LOGIT_EPS]. */
+#define LOGIT_EPS 1e-14
+
+int stagecal_evidence_mean(const double *t, const double *y, size_t n, double u_floor, double *mean,
+                           double *se, double *n_eff, stagecal_error *err)
+{
+    size_t m = 0;
+    double tbar = 0, ybar = 0;
+    for (size_t i = 0; i < n; i++) {
+        if (isfinite(y[i]) && isfinite(t[i])) {
+            m++;
+            tbar += (t[i] - tbar) / (double)m;
+            ybar += (y[i] - ybar) / (double)m;
+        }
+    }
+    if (m < 3)
+        return error_set(err, STAGECAL_EINVAL,
+                         "window mean needs at least 3 finite samples, got %zu", m);
+    /* Straight-line detrend in time (centred, so the intercept is the mean). */
+    double stt = 0, sty = 0;
+    for (size_t i = 0; i < n; i++) {
+        if (isfinite(y[i]) && isfinite(t[i])) {
+            stt += (t[i] - tbar) * (t[i] - tbar);
+            sty += (t[i] - tbar) * (y[i] - ybar);
+        }
+    }
+    double slope = stt > 0 ? sty / stt : 0.0;
+    double ss = 0, sl = 0, prev = NAN;
+    for (size_t i = 0; i < n; i++) {
+        if (!(isfinite(y[i]) && isfinite(t[i])))
+            continue;
+        double e = y[i] - ybar - slope * (t[i] - tbar);
+        ss += e * e;
+        if (isfinite(prev))
+            sl += e * prev;
+        prev = e;
+    }
+    double rho = ss > 0 ? sl / ss : 0.0;
+    if (rho < 0)
+        rho = 0;
+    if (rho > RHO_MAX)
+        rho = RHO_MAX;
+    double neff = (double)m * (1 - rho) / (1 + rho);
+    if (neff < 1)
+        neff = 1;
+    double s = sqrt(ss / (double)(m - 2));
+    if (s < u_floor)
+        s = u_floor;
+    *mean = ybar;
+    *se = s / sqrt(neff);
+    if (n_eff)
+        *n_eff = neff;
+    return STAGECAL_OK;
+}
+
+int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_evidence *ev,
+                             stagecal_error *err)
+{
+    stagecal_stages_params sp = stagecal_stages_default_params();
+    stagecal_stages_result res;
+    int rc;
+    sp.want_sensitivities = 1;
+    ev->stages_ok = 0;
+    ev->stages = 0;
+    ev->se_stages = 0;
+    if (!(ev->xd > 0 && ev->xd < 1 && ev->xb > 0 && ev->xb < ev->xd))
+        return STAGECAL_OK;
+    if ((rc = stagecal_stages_invert(vle, ev->xd, ev->xb, ev->r, murphree, &sp, &res, err)))
+        return rc;
+    if (res.status != STAGECAL_STAGES_OK)
+        return STAGECAL_OK;
+    double a = res.dstages_dxd * ev->u_xd, b = res.dstages_dxb * ev->u_xb;
+    ev->stages = res.stages;
+    ev->se_stages = sqrt(a * a + b * b);
+    ev->stages_ok = ev->se_stages > 0 && isfinite(ev->se_stages);
+    return STAGECAL_OK;
+}
+
+static double logit(double x)
+{
+    if (x < LOGIT_EPS)
+        x = LOGIT_EPS;
+    if (x > 1 - LOGIT_EPS)
+        x = 1 - LOGIT_EPS;
+    return log(x / (1 - x));
+}
+
+struct comp_ctx {
+    const stagecal_vle *vle;
+    double murphree;
+    const stagecal_evidence *ev;
+    size_t n;
+    const stagecal_form *form;
+    double *scale; /* s_i */
+    stagecal_stages_params sp;
+    size_t failures; /* forward steps that did not give an ok pot composition */
+};
+
+/* Predicted logit xB for window i at θ and distillate xd. */
+static double predict_logit(struct comp_ctx *c, size_t i, const double *theta, double xd)
+{
+    const stagecal_evidence *e = &c->ev[i];
+    double nst = 1, xb = xd;
+    int status = STAGECAL_STAGES_INVALID;
+    size_t len = 0;
+    if (stagecal_form_eval(c->form, theta, e->r, e->f_load, &nst, NULL) != STAGECAL_OK ||
+        !isfinite(nst))
+        nst = 1;
+    if (nst < 1)
+        nst = 1;
+    if (nst > COMP_MAX_STAGES)
+        nst = COMP_MAX_STAGES;
+    if (stagecal_stages_step(c->vle, xd, e->r, nst, c->murphree, &c->sp, &xb, NULL, 0, &len,
+                             &status, NULL) != STAGECAL_OK ||
+        status != STAGECAL_STAGES_OK) {
+        /* No pot composition (an azeotrope in the way): predict "no separation"
+         * so that such θ is penalised rather than undefined. */
+        c->failures++;
+        xb = xd;
+    }
+    return logit(xb);
+}
+
+static int comp_f(const gsl_vector *x, void *params, gsl_vector *f)
+{
+    struct comp_ctx *c = params;
+    for (size_t i = 0; i < c->n; i++) {
+        double l = predict_logit(c, i, x->data, c->ev[i].xd);
+        gsl_vector_set(f, i, (l - logit(c->ev[i].xb)) / c->scale[i]);
+    }
+    return GSL_SUCCESS;
+}
+
+/* Residual variance in stage space of windows with stage counts, about the curve. */
+static void stage_scatter(const stagecal_evidence *ev, size_t n, const stagecal_form *form,
+                          const double *theta, double *sigma, double *dof)
+{
+    double ss = 0;
+    size_t m = 0;
+    for (size_t i = 0; i < n; i++) {
+        double v;
+        if (!ev[i].stages_ok ||
+            stagecal_form_eval(form, theta, ev[i].r, ev[i].f_load, &v, NULL) != STAGECAL_OK)
+            continue;
+        ss += (ev[i].stages - v) * (ev[i].stages - v);
+        m++;
+    }
+    if (m > form->p) {
+        *dof = (double)(m - form->p);
+        *sigma = sqrt(ss / *dof);
+    } else {
+        *dof = 0;
+        *sigma = 0;
+    }
+}
+
+int stagecal_fit_composition(const stagecal_vle *vle, double murphree, const stagecal_evidence *ev,
+                             size_t nev, const stagecal_form *form, const double *theta0,
+                             const stagecal_regress_params *params, stagecal_regress_result *result,
+                             stagecal_error *err)
+{
+    stagecal_regress_params defp = stagecal_regress_default_params();
+    const stagecal_regress_params *par = params ? params : &defp;
+    size_t p = form->p, n = nev;
+    int rc = STAGECAL_OK;
+
+    if (!vle || !ev || !theta0 || !result)
+        return error_set(err, STAGECAL_EINVAL, "composition fit: NULL argument");
+    memset(result, 0, sizeof *result);
+    if (n < p + 1)
+        return error_set(err, STAGECAL_EDATA,
+                         "composition fit needs at least %zu windows for %zu parameters, got %zu",
+                         p + 1, p, n);
+    for (size_t i = 0; i < n; i++) {
+        if (form->uses_load && !ev[i].has_load)
+            return error_set(err, STAGECAL_EDATA,
+                             "form '%s' needs the vapour load, but window %zu has no F-factor",
+                             form->name, i + 1);
+        if (!(ev[i].xb > 0 && ev[i].xb < ev[i].xd && ev[i].xd < 1))
+            return error_set(err, STAGECAL_EDATA,
+                             "window %zu: mean compositions xB = %g, xD = %g are not 0 < xB < xD "
+                             "< 1",
+                             i + 1, ev[i].xb, ev[i].xd);
+    }
+
+    struct comp_ctx c = {vle, murphree, ev, n, form, NULL, stagecal_stages_default_params(), 0};
+    c.sp.max_stages = (size_t)COMP_MAX_STAGES + 10;
+    c.scale = malloc(n * sizeof *c.scale);
+    gsl_multifit_nlinear_workspace *w = NULL;
+    gsl_matrix *covar = gsl_matrix_alloc(p, p);
+    if (!c.scale || !covar) {
+        rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
+        goto done;
+    }
+    /* Effective standard deviation of each window's log-odds, fixed at θ0. */
+    for (size_t i = 0; i < n; i++) {
+        const stagecal_evidence *e = &ev[i];
+        double lx = e->u_xb / (e->xb * (1 - e->xb));
+        double h = 1e-6 * (1 - e->xd) + 1e-9;
+        double xhi = e->xd + h < 1 ? e->xd + h : e->xd;
+        double xlo = e->xd - h;
+        double g =
+            (predict_logit(&c, i, theta0, xhi) - predict_logit(&c, i, theta0, xlo)) / (xhi - xlo);
+        double ld = g * e->u_xd;
+        c.scale[i] = sqrt(lx * lx + ld * ld);
+        if (!(c.scale[i] > 0))
+            c.scale[i] = 1e-6; /* no stated uncertainty: equal weights, scaled below */
+    }
+
+    gsl_multifit_nlinear_fdf fdf;
+    gsl_multifit_nlinear_parameters fp = gsl_multifit_nlinear_default_parameters();
+    fp.fdtype = GSL_MULTIFIT_NLINEAR_CTRDIFF;
+    fdf.f = comp_f;
+    fdf.df = NULL;
+    fdf.fvv = NULL;
+    fdf.n = n;
+    fdf.p = p;
+    fdf.params = &c;
+    w = gsl_multifit_nlinear_alloc(gsl_multifit_nlinear_trust, &fp, n, p);
+    if (!w) {
+        rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
+        goto done;
+    }
+    gsl_vector_const_view x0 = gsl_vector_const_view_array(theta0, p);
+    gsl_multifit_nlinear_init(&x0.vector, &fdf, w);
+    int info = 0;
+    int gs = gsl_multifit_nlinear_driver(par->max_iter, 1e-10, 1e-10, 1e-12, NULL, NULL, &info, w);
+    if (gs != GSL_SUCCESS && gs != GSL_ENOPROG) {
+        rc = error_set(err, STAGECAL_ENOCONV, "composition fit did not converge: %s",
+                       gsl_strerror(gs));
+        goto done;
+    }
+    gsl_vector *x = gsl_multifit_nlinear_position(w);
+    gsl_vector *fres = gsl_multifit_nlinear_residual(w);
+    gsl_matrix *jac = gsl_multifit_nlinear_jac(w);
+    double rss;
+    gsl_blas_ddot(fres, fres, &rss);
+    if (gsl_multifit_nlinear_covar(jac, 0.0, covar) != GSL_SUCCESS) {
+        rc = error_set(err, STAGECAL_EDATA,
+                       "composition fit: singular Jacobian (the data do not "
+                       "determine every parameter of the form)");
+        goto done;
+    }
+    double dof = (double)(n - p);
+    double s2 = rss / dof;
+    double level = par->level > 0 && par->level < 1 ? par->level : 0.95;
+    double tq = gsl_cdf_tdist_Pinv(0.5 + level / 2, dof);
+
+    result->form = *form;
+    result->n = n;
+    result->p = p;
+    result->dof = dof;
+    result->level = level;
+    result->tquant = tq;
+    result->weighted = 1;
+    result->cov_scaled = 1;
+    result->rss = rss;
+    result->iterations = gsl_multifit_nlinear_niter(w);
+    result->starts = 1;
+    result->stop = info == 1   ? STAGECAL_STOP_XTOL
+                   : info == 2 ? STAGECAL_STOP_GTOL
+                               : STAGECAL_STOP_NOPROGRESS;
+    for (size_t i = 0; i < p; i++) {
+        result->theta[i] = gsl_vector_get(x, i);
+        for (size_t j = 0; j < p; j++)
+            result->cov[i * p + j] = s2 * gsl_matrix_get(covar, i, j);
+        result->se[i] = sqrt(result->cov[i * p + i]);
+        result->ci_low[i] = result->theta[i] - tq * result->se[i];
+        result->ci_high[i] = result->theta[i] + tq * result->se[i];
+    }
+    /* σ and dof reported in stage space (what a planner's prediction band needs). */
+    double sig_st = 0, dof_st = 0;
+    stage_scatter(ev, n, form, result->theta, &sig_st, &dof_st);
+    result->sigma = sig_st;
+    result->sigma_obs = sig_st;
+    result->loglik = -0.5 * rss;
+    /* envelope */
+    result->r_min = INFINITY;
+    result->r_max = 0;
+    result->f_min = INFINITY;
+    result->f_max = 0;
+    for (size_t i = 0; i < n; i++) {
+        if (isinf(ev[i].r))
+            result->has_total_reflux = 1;
+        else {
+            result->r_min = fmin(result->r_min, ev[i].r);
+            result->r_max = fmax(result->r_max, ev[i].r);
+        }
+        if (ev[i].has_load) {
+            result->f_min = fmin(result->f_min, ev[i].f_load);
+            result->f_max = fmax(result->f_max, ev[i].f_load);
+        }
+    }
+    if (!isfinite(result->r_min))
+        result->r_min = result->r_max = 0;
+    if (!isfinite(result->f_min))
+        result->f_min = result->f_max = 0;
+
+done:
+    gsl_multifit_nlinear_free(w);
+    gsl_matrix_free(covar);
+    free(c.scale);
+    return rc;
+}

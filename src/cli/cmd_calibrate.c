@@ -1,0 +1,437 @@
+/*
+ * cmd_calibrate.c — `stagecal calibrate`: the main job. Column file and production
+ * run logs in; a correlation of effective stages against reflux ratio and vapour
+ * load, with confidence and prediction bands, out as a model file under
+ * fits/<column>/ and a summary a process engineer reads at a glance.
+ */
+#include <getopt.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "banned.h"
+#include "cli.h"
+#include "commands.h"
+#include "stagecal/calibrate.h"
+#include "stagecal/stages.h"
+
+static const char usage_text[] =
+    "usage: stagecal calibrate --column FILE [options] RUNLOG.csv...\n"
+    "\n"
+    "Validates the run logs, finds quasi-steady windows, inverts every sample to effective\n"
+    "stages, fits stages(R, F) on one point per window and writes a model file under\n"
+    "DIR/<column id>/ (never replacing an earlier fit).\n"
+    "\n"
+    "  --column FILE         the column file (docs/column-file.md), required\n"
+    "  --form NAME           correlation form (docs/forms.md) or 'auto' (default: rank\n"
+    "                        the candidate forms by AICc)\n"
+    "  --method M            auto (default: composition space, falling back to stage\n"
+    "                        space), composition, or stage\n"
+    "  --level L             confidence level of intervals and bands (default 0.95)\n"
+    "  --murphree E          Murphree vapour efficiency used in the inversion (default 1)\n"
+    "  --bootstrap B         stage-space bootstrap resamples (default 0 = none)\n"
+    "  --seed S              bootstrap seed (default 1)\n"
+    "  --robust KIND         stage-space robust reweighting: huber or bisquare\n"
+    "  --reference-reflux R  reflux ratio at which HETP is reported (default: largest fitted)\n"
+    "  --reference-load F    F-factor [Pa^0.5] at which HETP is reported (default: mid range)\n"
+    "  --fits DIR            where model files go (default: fits)\n"
+    "  --samples-out FILE    also write the per-sample inversion as CSV\n"
+    "  --dry-run             fit and report, write no model file\n"
+    "  --json                one JSON document on stdout\n"
+    "  --quiet               no warnings or progress on stderr\n"
+    "  -h, --help            this text\n";
+
+static void show_progress(void *ctx, const char *stage, double done)
+{
+    (void)ctx;
+    fprintf(stderr, "\rstagecal calibrate: %-10s %3.0f%%", stage, 100 * done);
+    if (done >= 1)
+        fputc('\n', stderr);
+    fflush(stderr);
+}
+
+static json_t *params_json(const stagecal_regress_result *f)
+{
+    json_t *arr = json_array();
+    for (size_t i = 0; i < f->p; i++)
+        json_array_append_new(
+            arr, json_pack("{s:s,s:o,s:o,s:o,s:o}", "name", f->form.param_names[i], "value",
+                           cli_json_real(f->theta[i]), "se", cli_json_real(f->se[i]), "ci_low",
+                           cli_json_real(f->ci_low[i]), "ci_high", cli_json_real(f->ci_high[i])));
+    return arr;
+}
+
+static json_t *fit_json(const stagecal_regress_result *f, int status, const char *message)
+{
+    if (status != STAGECAL_OK)
+        return json_pack("{s:s,s:s}", "status", status < 0 ? "not run" : "failed", "message",
+                         message);
+    json_t *o = json_object();
+    json_object_set_new(o, "status", json_string("ok"));
+    json_object_set_new(o, "form", json_string(f->form.name));
+    json_object_set_new(o, "parameters", params_json(f));
+    json_object_set_new(o, "rss", cli_json_real(f->rss));
+    json_object_set_new(o, "sigma", cli_json_real(f->sigma_obs > 0 ? f->sigma_obs : f->sigma));
+    json_object_set_new(o, "dof", cli_json_real(f->dof));
+    json_object_set_new(o, "n", json_integer((json_int_t)f->n));
+    json_object_set_new(o, "stop", json_string(stagecal_regress_stop_text(f->stop)));
+    return o;
+}
+
+static void print_fit(const char *title, const stagecal_regress_result *f)
+{
+    printf("%s\n", title);
+    printf("  %-12s %14s %12s   %.0f%% confidence interval\n", "parameter", "value", "std. error",
+           100 * f->level);
+    for (size_t i = 0; i < f->p; i++)
+        printf("  %-12s %14.6g %12.4g   [%.6g, %.6g]\n", f->form.param_names[i], f->theta[i],
+               f->se[i], f->ci_low[i], f->ci_high[i]);
+    printf("  residual sigma %.4g stages, %g degrees of freedom, %zu windows\n",
+           f->sigma_obs > 0 ? f->sigma_obs : f->sigma, f->dof, f->n);
+}
+
+static void format_r(char *buf, size_t cap, double r)
+{
+    if (isinf(r))
+        snprintf(buf, cap, "inf");
+    else
+        snprintf(buf, cap, "%.4g", r);
+}
+
+static int print_findings(const stagecal_findings *f, int errors_only)
+{
+    size_t shown = 0;
+    for (size_t i = 0; i < f->n && shown < 20; i++) {
+        if (errors_only && f->items[i].severity != STAGECAL_FINDING_ERROR)
+            continue;
+        fprintf(stderr, "%s: %s\n",
+                f->items[i].severity == STAGECAL_FINDING_ERROR ? "error" : "warning",
+                f->items[i].text);
+        shown++;
+    }
+    return (int)shown;
+}
+
+static char *join_args(int argc, char **argv)
+{
+    size_t len = 16;
+    for (int i = 0; i < argc; i++)
+        len += strlen(argv[i]) + 1;
+    char *s = malloc(len), *p = s;
+    if (!s)
+        return NULL;
+    p += snprintf(p, len, "stagecal");
+    for (int i = 0; i < argc; i++)
+        p += snprintf(p, len - (size_t)(p - s), " %s", argv[i]);
+    return s;
+}
+
+int cmd_calibrate(int argc, char **argv)
+{
+    enum {
+        O_COLUMN = 256,
+        O_FORM,
+        O_METHOD,
+        O_LEVEL,
+        O_MURPHREE,
+        O_BOOT,
+        O_SEED,
+        O_ROBUST,
+        O_REFR,
+        O_REFF,
+        O_FITS,
+        O_SAMPLES,
+        O_DRY,
+        O_JSON,
+        O_QUIET
+    };
+    static const struct option opts[] = {{"column", required_argument, NULL, O_COLUMN},
+                                         {"form", required_argument, NULL, O_FORM},
+                                         {"method", required_argument, NULL, O_METHOD},
+                                         {"level", required_argument, NULL, O_LEVEL},
+                                         {"murphree", required_argument, NULL, O_MURPHREE},
+                                         {"bootstrap", required_argument, NULL, O_BOOT},
+                                         {"seed", required_argument, NULL, O_SEED},
+                                         {"robust", required_argument, NULL, O_ROBUST},
+                                         {"reference-reflux", required_argument, NULL, O_REFR},
+                                         {"reference-load", required_argument, NULL, O_REFF},
+                                         {"fits", required_argument, NULL, O_FITS},
+                                         {"samples-out", required_argument, NULL, O_SAMPLES},
+                                         {"dry-run", no_argument, NULL, O_DRY},
+                                         {"json", no_argument, NULL, O_JSON},
+                                         {"quiet", no_argument, NULL, O_QUIET},
+                                         {"help", no_argument, NULL, 'h'},
+                                         {0, 0, 0, 0}};
+    stagecal_calibrate_params par = stagecal_calibrate_default_params();
+    const char *column = NULL, *fits = "fits", *samples_out = NULL;
+    int json = 0, dry = 0, c, rc;
+    long lv;
+
+    optind = 0;
+    opterr = 0;
+    while ((c = getopt_long(argc, argv, "+:h", opts, NULL)) != -1) {
+        switch (c) {
+        case 'h':
+            fputs(usage_text, stdout);
+            return CLI_EXIT_OK;
+        case O_COLUMN:
+            column = optarg;
+            break;
+        case O_FORM:
+            par.form = optarg;
+            break;
+        case O_METHOD:
+            if (strcmp(optarg, "auto") == 0)
+                par.method = STAGECAL_CAL_AUTO;
+            else if (strcmp(optarg, "stage") == 0)
+                par.method = STAGECAL_CAL_STAGE;
+            else if (strcmp(optarg, "composition") == 0)
+                par.method = STAGECAL_CAL_COMPOSITION;
+            else
+                return cli_usage_error("option '--method': '%s' is not a method (expected auto, "
+                                       "composition or stage)",
+                                       optarg);
+            break;
+        case O_LEVEL:
+            if (cli_parse_double("level", optarg, 0, "a confidence level in (0, 1)", &par.level))
+                return CLI_EXIT_USAGE;
+            if (!(par.level > 0 && par.level < 1))
+                return cli_usage_error("option '--level': %g is outside (0, 1) (expected a "
+                                       "confidence level such as 0.95)",
+                                       par.level);
+            break;
+        case O_MURPHREE:
+            if (cli_parse_double("murphree", optarg, 0, "an efficiency in (0, 1]", &par.murphree))
+                return CLI_EXIT_USAGE;
+            if (!(par.murphree > 0 && par.murphree <= 1))
+                return cli_usage_error("option '--murphree': %g is outside (0, 1] (expected a "
+                                       "Murphree vapour efficiency)",
+                                       par.murphree);
+            break;
+        case O_BOOT:
+            if (cli_parse_long("bootstrap", optarg, 0, 1000000, &lv))
+                return CLI_EXIT_USAGE;
+            par.bootstrap = (size_t)lv;
+            break;
+        case O_SEED:
+            if (cli_parse_long("seed", optarg, 0, 2147483647L, &lv))
+                return CLI_EXIT_USAGE;
+            par.seed = (unsigned long)lv;
+            break;
+        case O_ROBUST:
+            if (strcmp(optarg, "huber") == 0)
+                par.robust = STAGECAL_ROBUST_HUBER;
+            else if (strcmp(optarg, "bisquare") == 0)
+                par.robust = STAGECAL_ROBUST_BISQUARE;
+            else
+                return cli_usage_error("option '--robust': '%s' is not a weighting (expected "
+                                       "huber or bisquare)",
+                                       optarg);
+            break;
+        case O_REFR:
+            if (cli_parse_double("reference-reflux", optarg, 1, "a reflux ratio >= 0 or 'inf'",
+                                 &par.hetp_r))
+                return CLI_EXIT_USAGE;
+            if (!(par.hetp_r > 0))
+                return cli_usage_error("option '--reference-reflux': %g is not positive "
+                                       "(expected R > 0 or 'inf')",
+                                       par.hetp_r);
+            break;
+        case O_REFF:
+            if (cli_parse_double("reference-load", optarg, 0, "an F-factor in Pa^0.5", &par.hetp_f))
+                return CLI_EXIT_USAGE;
+            if (!(par.hetp_f >= 0))
+                return cli_usage_error("option '--reference-load': %g is negative (expected an "
+                                       "F-factor >= 0 in Pa^0.5)",
+                                       par.hetp_f);
+            break;
+        case O_FITS:
+            fits = optarg;
+            break;
+        case O_SAMPLES:
+            samples_out = optarg;
+            break;
+        case O_DRY:
+            dry = 1;
+            break;
+        case O_JSON:
+            json = 1;
+            break;
+        case O_QUIET:
+            cli_quiet = 1;
+            break;
+        default:
+            return cli_usage_getopt(c, argv, "calibrate");
+        }
+    }
+    if (!column)
+        return cli_usage_error("option '--column' is required (see 'stagecal calibrate --help')");
+    if (optind >= argc)
+        return cli_usage_error("no run log given (expected one or more RUNLOG.csv files)");
+    if (strcmp(par.form, "auto") != 0) {
+        stagecal_form f;
+        stagecal_error fe;
+        if (stagecal_form_parse(par.form, &f, &fe) != STAGECAL_OK)
+            return cli_usage_error("option '--form': %s", fe.text);
+    }
+
+    const char *const *logs = (const char *const *)(argv + optind);
+    size_t nlogs = (size_t)(argc - optind);
+    if (cli_progress_enabled()) {
+        par.progress = show_progress;
+        par.progress_ctx = NULL;
+    }
+    stagecal_calibration cal;
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    rc = stagecal_calibrate(column, logs, nlogs, &par, &cal, &err);
+    if (rc != STAGECAL_OK) {
+        if (par.progress)
+            fputc('\n', stderr);
+        if (cal.findings && cal.findings->n_errors > 0) {
+            print_findings(cal.findings, 1);
+            cli_error("%zu error(s) in the run logs; nothing was fitted or written",
+                      cal.findings->n_errors);
+            stagecal_calibration_free(&cal);
+            return CLI_EXIT_DATA;
+        }
+        stagecal_calibration_free(&cal);
+        return cli_fail(&err);
+    }
+    if (!cli_quiet && cal.findings->n_warnings > 0)
+        print_findings(cal.findings, 0);
+
+    /* per-sample CSV, atomically */
+    if (samples_out) {
+        char tmp[4096];
+        snprintf(tmp, sizeof tmp, "%s.tmp", samples_out);
+        FILE *out = fopen(tmp, "w");
+        if (!out || stagecal_runlog_write_csv(cal.log, &cal.column, &cal.res, out, &err) ||
+            fclose(out) != 0 || rename(tmp, samples_out) != 0) {
+            remove(tmp);
+            cli_error("cannot write '%s'", samples_out);
+            stagecal_calibration_free(&cal);
+            return CLI_EXIT_CANTCREAT;
+        }
+    }
+
+    char path[4096] = "";
+    if (!dry) {
+        char dir[4096];
+        char *cmdline = join_args(argc, argv);
+        snprintf(dir, sizeof dir, "%s/%s", fits, cal.model.column_id);
+        stagecal_model_set_command_line(&cal.model, cmdline, NULL);
+        free(cmdline);
+        if (stagecal_model_write(&cal.model, dir, path, sizeof path, &err) != STAGECAL_OK) {
+            stagecal_calibration_free(&cal);
+            return cli_fail(&err);
+        }
+    }
+
+    const stagecal_model *mo = &cal.model;
+    const stagecal_regress_result *fit =
+        cal.used == STAGECAL_MODEL_STAGE_SPACE ? &cal.stage_fit : &cal.comp_fit;
+    char rlo[32], rhi[32];
+    format_r(rlo, sizeof rlo, mo->r_min);
+    format_r(rhi, sizeof rhi, mo->r_max);
+    if (json) {
+        json_t *doc = json_object(), *warn = json_array(), *rank = json_array();
+        json_object_set_new(doc, "format", json_string("stagecal-calibration"));
+        json_object_set_new(doc, "version", json_integer(1));
+        json_object_set_new(doc, "column", json_string(mo->column_id));
+        json_object_set_new(doc, "model_file", path[0] ? json_string(path) : json_null());
+        json_object_set_new(doc, "method", json_string(stagecal_model_method_name(cal.used)));
+        json_object_set_new(doc, "form", json_string(fit->form.name));
+        json_object_set_new(doc, "parameters", params_json(fit));
+        json_object_set_new(doc, "rss", cli_json_real(fit->rss));
+        json_object_set_new(doc, "sigma", cli_json_real(mo->sigma));
+        json_object_set_new(doc, "dof", cli_json_real(mo->dof));
+        json_object_set_new(doc, "level", json_real(mo->level));
+        json_object_set_new(doc, "stage_space",
+                            fit_json(&cal.stage_fit, cal.stage_status, cal.stage_message));
+        json_object_set_new(doc, "composition_space",
+                            fit_json(&cal.comp_fit, cal.comp_status, cal.comp_message));
+        json_object_set_new(
+            doc, "evidence",
+            json_pack("{s:I,s:I,s:I,s:I,s:I,s:I,s:I}", "samples", (json_int_t)cal.log->n, "runs",
+                      (json_int_t)cal.log->nruns, "windows", (json_int_t)cal.nev,
+                      "windows_with_stages", (json_int_t)cal.nev_stage, "samples_in_fit",
+                      (json_int_t)mo->n_samples, "pinch_samples",
+                      (json_int_t)cal.res.count[STAGECAL_STAGES_PINCH], "azeotrope_samples",
+                      (json_int_t)cal.res.count[STAGECAL_STAGES_AZEOTROPE]));
+        json_object_set_new(doc, "envelope",
+                            json_pack("{s:o,s:o,s:o,s:o}", "r_min", cli_json_reflux(mo->r_min),
+                                      "r_max", cli_json_reflux(mo->r_max), "f_min",
+                                      mo->has_load ? json_real(mo->f_min) : json_null(), "f_max",
+                                      mo->has_load ? json_real(mo->f_max) : json_null()));
+        if (mo->has_hetp)
+            json_object_set_new(doc, "hetp",
+                                json_pack("{s:o,s:o,s:o,s:o,s:o,s:o}", "height_m",
+                                          json_real(mo->height_m), "r", cli_json_reflux(mo->hetp_r),
+                                          "f", json_real(mo->hetp_f), "hetp_m",
+                                          json_real(mo->hetp_m), "low_m", json_real(mo->hetp_low_m),
+                                          "high_m", cli_json_real(mo->hetp_high_m)));
+        for (size_t i = 0; i < cal.nrank; i++)
+            json_array_append_new(rank,
+                                  json_pack("{s:s,s:b,s:o,s:o,s:o}", "form", cal.rank[i].form.name,
+                                            "ok", cal.rank[i].status == STAGECAL_OK, "aicc",
+                                            cli_json_real(cal.rank[i].aicc), "delta_aicc",
+                                            cli_json_real(cal.rank[i].delta_aicc), "bic",
+                                            cli_json_real(cal.rank[i].bic)));
+        json_object_set_new(doc, "form_ranking", rank);
+        for (size_t i = 0; i < mo->n_warnings; i++)
+            json_array_append_new(warn, json_string(mo->warnings[i]));
+        json_object_set_new(doc, "warnings", warn);
+        json_object_set_new(doc, "findings",
+                            json_pack("{s:I,s:I}", "errors", (json_int_t)cal.findings->n_errors,
+                                      "warnings", (json_int_t)cal.findings->n_warnings));
+        json_object_set_new(doc, "caution", json_string(cli_caution));
+        rc = cli_json_print(doc);
+    } else {
+        printf("stagecal calibration of column %s (%s / %s)\n", mo->column_id, mo->light,
+               mo->heavy);
+        printf("evidence: %zu samples in %zu runs from %zu log(s); %zu quasi-steady windows "
+               "(%zu with stage counts) carry the fit\n",
+               cal.log->n, cal.log->nruns, nlogs, cal.nev, cal.nev_stage);
+        printf("per-sample status: %zu ok, %zu pinch, %zu azeotrope, %zu invalid\n",
+               cal.res.count[0], cal.res.count[1], cal.res.count[2], cal.res.count[3]);
+        if (cal.nrank > 0) {
+            printf("forms ranked by AICc (stage space):");
+            for (size_t i = 0; i < cal.nrank && i < 4; i++)
+                if (cal.rank[i].status == STAGECAL_OK)
+                    printf(" %s (dAICc %.1f)%s", cal.rank[i].form.name, cal.rank[i].delta_aicc,
+                           i + 1 < cal.nrank && i < 3 ? "," : "");
+            putchar('\n');
+        }
+        printf("\nform: %s   fit: %s\n", fit->form.name, stagecal_model_method_name(cal.used));
+        print_fit("", fit);
+        if (cal.used == STAGECAL_MODEL_COMPOSITION_SPACE && cal.stage_status == STAGECAL_OK)
+            print_fit("\nfor comparison, the stage-space fit:", &cal.stage_fit);
+        else if (cal.used == STAGECAL_MODEL_COMPOSITION_SPACE)
+            printf("\nstage-space fit: %s\n", cal.stage_message);
+        printf("\nenvelope (fitted conditions): R %s to %s", rlo, rhi);
+        if (mo->has_load)
+            printf(", F %.3g to %.3g Pa^0.5", mo->f_min, mo->f_max);
+        printf("\n");
+        if (mo->has_hetp) {
+            char rr[32];
+            format_r(rr, sizeof rr, mo->hetp_r);
+            printf("HETP at R = %s%s: %.3f m (%.0f%% interval %.3f to %.3g m), packed height "
+                   "%.3g m\n",
+                   rr, mo->has_load ? "" : "", mo->hetp_m, 100 * mo->hetp_level, mo->hetp_low_m,
+                   mo->hetp_high_m, mo->height_m);
+        }
+        printf("stage convention: %s\n", stagecal_model_convention_text(mo->condenser));
+        for (size_t i = 0; i < mo->n_warnings; i++)
+            printf("warning: %s\n", mo->warnings[i]);
+        if (path[0])
+            printf("\nmodel file: %s\n", path);
+        else
+            printf("\nmodel file: not written (--dry-run)\n");
+        printf("\n%s\n", cli_caution);
+        rc = CLI_EXIT_OK;
+    }
+    stagecal_calibration_free(&cal);
+    return rc;
+}

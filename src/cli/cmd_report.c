@@ -1,0 +1,149 @@
+/*
+ * cmd_report.c — `stagecal report MODEL.json`: one self-contained HTML file (inline
+ * SVG, no scripts, no network, printable to A4) for a calibration, from its model
+ * file and, optionally, the points it was fitted on. The content is assembled by the
+ * report module (stagecal_report_from_model); this file parses, calls and prints.
+ */
+#include <getopt.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "banned.h"
+#include "cli.h"
+#include "commands.h"
+#include "stagecal/model.h"
+#include "stagecal/regress.h"
+#include "stagecal/report.h"
+
+static const char usage_text[] =
+    "usage: stagecal report MODEL.json [--points POINTS.csv] [--output OUT.html]\n"
+    "                       [--json] [--quiet]\n"
+    "\n"
+    "Writes one self-contained HTML report for the calibration in MODEL.json: the job\n"
+    "and data provenance (inputs with SHA-256), the fit table, residual sigma and\n"
+    "degrees of freedom, the envelope, HETP where the packed height is known, warnings\n"
+    "(extrapolation beyond the envelope), stages against R with confidence and\n"
+    "prediction bands, and the caution. The page has inline SVG charts, no scripts and\n"
+    "no network resources, and prints to A4.\n"
+    "\n"
+    "  --points FILE   the points (R,stages[,F,sigma]) to show with the fit; adds a\n"
+    "                  residual chart and flags points outside the envelope\n"
+    "  -o, --output F  the HTML file (default: MODEL with .json replaced by .html)\n"
+    "  --json          one JSON document on stdout\n"
+    "  --quiet         no warnings on stderr\n"
+    "  -h, --help      this text\n"
+    "\n"
+    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal,\n"
+    "73 output cannot be written.\n";
+
+/* MODEL.json → MODEL.html (or MODEL + ".html"); malloc'd. */
+static char *default_output(const char *model)
+{
+    size_t n = strlen(model);
+    char *out = malloc(n + 6);
+    if (!out)
+        return NULL;
+    memcpy(out, model, n + 1);
+    if (n > 5 && strcmp(model + n - 5, ".json") == 0)
+        out[n - 5] = '\0';
+    memcpy(out + strlen(out), ".html", 6);
+    return out;
+}
+
+int cmd_report(int argc, char **argv)
+{
+    enum { O_POINTS = 256, O_JSON, O_QUIET };
+    static const struct option opts[] = {{"points", required_argument, NULL, O_POINTS},
+                                         {"output", required_argument, NULL, 'o'},
+                                         {"json", no_argument, NULL, O_JSON},
+                                         {"quiet", no_argument, NULL, O_QUIET},
+                                         {"help", no_argument, NULL, 'h'},
+                                         {0, 0, 0, 0}};
+    const char *points_path = NULL, *output = NULL;
+    int json = 0, c, rc;
+
+    optind = 0;
+    opterr = 0;
+    while ((c = getopt_long(argc, argv, ":ho:", opts, NULL)) != -1) {
+        switch (c) {
+        case 'h':
+            fputs(usage_text, stdout);
+            return CLI_EXIT_OK;
+        case O_POINTS:
+            points_path = optarg;
+            break;
+        case 'o':
+            output = optarg;
+            break;
+        case O_JSON:
+            json = 1;
+            break;
+        case O_QUIET:
+            cli_quiet = 1;
+            break;
+        default:
+            return cli_usage_getopt(c, argv, "report");
+        }
+    }
+    if (optind >= argc)
+        return cli_usage_error("a model file is required (see 'stagecal report --help')");
+    if (optind + 1 < argc)
+        return cli_usage_error("unexpected argument '%s' (report takes one model file)",
+                               argv[optind + 1]);
+    const char *model_path = argv[optind];
+    char *out_owned = output ? NULL : default_output(model_path);
+    if (!output && !out_owned) {
+        cli_error("out of memory");
+        return CLI_EXIT_SOFTWARE;
+    }
+    if (!output)
+        output = out_owned;
+
+    stagecal_error err;
+    stagecal_model m;
+    stagecal_regress_data pts;
+    stagecal_report_doc *doc = NULL;
+    int have_pts = 0;
+    memset(&pts, 0, sizeof pts);
+    stagecal_error_clear(&err);
+    stagecal_model_init(&m);
+    rc = stagecal_model_load(model_path, &m, &err);
+    if (rc == STAGECAL_OK && points_path) {
+        rc = stagecal_regress_data_read(points_path, &pts, &err);
+        have_pts = rc == STAGECAL_OK;
+    }
+    if (rc == STAGECAL_OK)
+        rc = stagecal_report_from_model(&m, have_pts ? &pts : NULL, &doc, &err);
+    if (rc == STAGECAL_OK)
+        rc = stagecal_report_write(stagecal_report_doc_content(doc), NULL, output, &err);
+    if (rc != STAGECAL_OK) {
+        int code = cli_fail(&err);
+        stagecal_report_doc_free(doc);
+        stagecal_regress_data_free(&pts);
+        stagecal_model_free(&m);
+        free(out_owned);
+        return code;
+    }
+    const stagecal_report *rep = stagecal_report_doc_content(doc);
+    for (size_t i = 0; i < rep->n_warnings; i++)
+        cli_warn("%s", rep->warnings[i]);
+    if (json) {
+        json_t *w = json_array();
+        for (size_t i = 0; i < rep->n_warnings; i++)
+            json_array_append_new(w, json_string(rep->warnings[i]));
+        json_t *doc_json = json_pack(
+            "{s:s, s:i, s:s, s:s, s:s, s:I, s:o, s:s}", "format", "stagecal-report-result",
+            "version", 1, "status", "ok", "model", model_path, "report", output, "figures",
+            (json_int_t)rep->n_figures, "warnings", w, "caution", stagecal_caution_text());
+        rc = doc_json ? cli_json_print(doc_json) : CLI_EXIT_SOFTWARE;
+    } else {
+        printf("report written to %s\n", output);
+        rc = CLI_EXIT_OK;
+    }
+    stagecal_report_doc_free(doc);
+    stagecal_regress_data_free(&pts);
+    stagecal_model_free(&m);
+    free(out_owned);
+    return rc;
+}

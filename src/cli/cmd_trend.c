@@ -1,0 +1,589 @@
+/*
+ * cmd_trend.c — `stagecal trend COLUMN...`: every model file of a column under
+ * fits/<column>/ evaluated at a reference condition, in date order, with the weighted
+ * trend in stages per month, an EWMA chart with its alarms, and the forecast date on
+ * which the stages fall below a requirement; repack/maintenance events split the
+ * history. Several columns give one comparable row each (the fleet view). The
+ * numerics live in the trend and hetp modules.
+ */
+#include <dirent.h>
+#include <errno.h>
+#include <getopt.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+#include "banned.h"
+#include "cli.h"
+#include "commands.h"
+#include "stagecal/hetp.h"
+#include "stagecal/model.h"
+#include "stagecal/trend.h"
+
+static const char usage_text[] =
+    "usage: stagecal trend COLUMN... --reflux R|inf [--fload F] [--fits DIR]\n"
+    "                      [--events FILE] [--require N] [--level P] [--lambda W]\n"
+    "                      [--limit L] [--baseline-n K] [--baseline N] [--json] [--quiet]\n"
+    "\n"
+    "Reads every model file under DIR/COLUMN/ and evaluates the stages (the pot included)\n"
+    "at reflux ratio R (and F-factor F), each with its confidence interval, and HETP\n"
+    "where the model knows the packed height. Dated by each file's time of fit. Fits a\n"
+    "weighted straight line (stages per month, t interval), runs an EWMA chart of the\n"
+    "deviations from a baseline, and, with --require, forecasts the date the stages\n"
+    "fall below N with a band (Fieller inversion of the line's confidence band).\n"
+    "Repack and maintenance events (docs/events-file.md) start new segments; the chart\n"
+    "restarts in each and the current segment drives the forecast. With several\n"
+    "columns the output is one row per column.\n"
+    "\n"
+    "  --reflux R        reference reflux ratio, >= 0 or 'inf'\n"
+    "  --fload F         reference F-factor [Pa^0.5] (needed when a form uses it)\n"
+    "  --fits DIR        folder of model files, one subfolder per column (fits)\n"
+    "  --events FILE     repack/maintenance events (CSV: time,column,kind[,note])\n"
+    "  --require N       stages the product specification needs, for the forecast\n"
+    "  --level P         confidence level of intervals, in (0, 1) (0.95)\n"
+    "  --lambda W        EWMA weight, in (0, 1] (0.2)\n"
+    "  --limit L         EWMA limit width in sigma (2.962: in-control ARL 500 with 0.2)\n"
+    "  --baseline-n K    fits at the start of each segment that set the baseline (3)\n"
+    "  --baseline N      known baseline stages for the current segment (e.g. acceptance)\n"
+    "  --json            one JSON document on stdout\n"
+    "  --quiet           no warnings on stderr\n"
+    "  -h, --help        this text\n"
+    "\n"
+    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n";
+
+/* Per model file, beside the trend point: what is shown but not fitted. */
+struct extra {
+    char path[1024];
+    char fitted_utc[STAGECAL_MODEL_TEXT];
+    stagecal_model_point pt; /* stages with ci at the reference */
+    double dof;
+    int has_hetp;
+    double height_m;
+    stagecal_hetp_result hetp;
+};
+
+struct column {
+    const char *id;
+    stagecal_trend_point *pts;
+    struct extra *ex;
+    size_t n;
+    stagecal_trend_history h;
+};
+
+static int has_json_suffix(const char *name)
+{
+    size_t n = strlen(name);
+    return n > 5 && name[0] != '.' && strcmp(name + n - 5, ".json") == 0;
+}
+
+static int cmp_name(const void *a, const void *b)
+{
+    return strcmp(*(char *const *)a, *(char *const *)b);
+}
+
+static void free_names(char **names, size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        free(names[i]);
+    free(names);
+}
+
+/* Lists the *.json files of dir, sorted. Returns an exit code. */
+static int list_models(const char *dir, char ***out, size_t *n)
+{
+    *out = NULL;
+    *n = 0;
+    DIR *d = opendir(dir);
+    if (!d) {
+        cli_error("cannot open '%s': %s (expected the fits folder of the column)", dir,
+                  strerror(errno));
+        return CLI_EXIT_NOINPUT;
+    }
+    size_t cap = 0;
+    char **names = NULL;
+    struct dirent *e;
+    while ((e = readdir(d)) != NULL) {
+        if (!has_json_suffix(e->d_name))
+            continue;
+        if (*n == cap) {
+            size_t nc = cap ? 2 * cap : 16;
+            char **nn = realloc(names, nc * sizeof *nn);
+            if (!nn)
+                goto nomem;
+            names = nn;
+            cap = nc;
+        }
+        size_t len = strlen(dir) + strlen(e->d_name) + 2;
+        if (!(names[*n] = malloc(len)))
+            goto nomem;
+        snprintf(names[*n], len, "%s/%s", dir, e->d_name);
+        (*n)++;
+    }
+    closedir(d);
+    if (*n == 0) {
+        free(names);
+        cli_error("no model files in '%s' (expected *.json written by 'stagecal calibrate')", dir);
+        return CLI_EXIT_NOINPUT;
+    }
+    qsort(names, *n, sizeof *names, cmp_name);
+    *out = names;
+    return 0;
+nomem:
+    closedir(d);
+    free_names(names, *n);
+    *n = 0;
+    cli_error("out of memory listing '%s'", dir);
+    return CLI_EXIT_SOFTWARE;
+}
+
+static int load_column(struct column *col, const char *fits, double reflux, double fload,
+                       double level)
+{
+    char dir[1024];
+    if ((size_t)snprintf(dir, sizeof dir, "%s/%s", fits, col->id) >= sizeof dir) {
+        cli_error("path '%s/%s' is too long", fits, col->id);
+        return CLI_EXIT_USAGE;
+    }
+    char **names;
+    size_t n;
+    int rc = list_models(dir, &names, &n);
+    if (rc)
+        return rc;
+    col->pts = calloc(n, sizeof *col->pts);
+    col->ex = calloc(n, sizeof *col->ex);
+    if (!col->pts || !col->ex) {
+        free_names(names, n);
+        cli_error("out of memory for %zu model files", n);
+        return CLI_EXIT_SOFTWARE;
+    }
+    stagecal_model m;
+    stagecal_model_init(&m);
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    for (size_t i = 0; i < n && rc == 0; i++) {
+        struct extra *x = &col->ex[i];
+        stagecal_hetp_stages s;
+        snprintf(x->path, sizeof x->path, "%s", names[i]);
+        int st = stagecal_model_load(names[i], &m, &err);
+        if (st == STAGECAL_OK && strcmp(m.column_id, col->id) != 0) {
+            cli_error("%s: column id '%s' does not match its folder '%s'", names[i], m.column_id,
+                      col->id);
+            rc = CLI_EXIT_DATA;
+            break;
+        }
+        if (st == STAGECAL_OK)
+            st = stagecal_trend_point_from_model(&m, reflux, fload, 0, &col->pts[i], &err);
+        if (st == STAGECAL_OK)
+            st = stagecal_model_eval(&m, reflux, fload, level, &x->pt, &err);
+        if (st != STAGECAL_OK) {
+            rc = cli_fail(&err);
+            break;
+        }
+        if (x->pt.extrapolated)
+            cli_warn("%s: the reference condition lies outside the fitted envelope "
+                     "(extrapolation)",
+                     names[i]);
+        snprintf(x->fitted_utc, sizeof x->fitted_utc, "%s", m.fitted_utc);
+        x->dof = m.dof;
+        if (m.has_hetp &&
+            stagecal_hetp_stages_from_model(&m, reflux, fload, &s, NULL, &err) == STAGECAL_OK &&
+            stagecal_hetp_compute(m.height_m, &s, level, &x->hetp, &err) == STAGECAL_OK) {
+            x->has_hetp = 1;
+            x->height_m = m.height_m;
+        }
+        col->n++;
+    }
+    stagecal_model_free(&m);
+    free_names(names, n);
+    return rc;
+}
+
+static void format_date(double t_s, char *buf, size_t cap)
+{
+    if (!isfinite(t_s)) {
+        snprintf(buf, cap, "%s", isnan(t_s) ? "-" : "open"); /* an unbounded band end */
+        return;
+    }
+    time_t tt = (time_t)floor(t_s);
+    struct tm tm;
+    if (!gmtime_r(&tt, &tm) || strftime(buf, cap, "%Y-%m-%d", &tm) == 0)
+        snprintf(buf, cap, "?");
+}
+
+static json_t *date_json(double t_s)
+{
+    if (!isfinite(t_s))
+        return json_null();
+    char buf[32];
+    time_t tt = (time_t)floor(t_s);
+    struct tm tm;
+    if (!gmtime_r(&tt, &tm) || strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", &tm) == 0)
+        return json_null();
+    return json_string(buf);
+}
+
+static json_t *fit_json(const stagecal_trend_fit *f)
+{
+    const double M = STAGECAL_TREND_MONTH_S;
+    return json_pack("{s:I, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:o}", "n", (json_int_t)f->n,
+                     "slope_per_month", cli_json_real(f->b * M), "slope_low_per_month",
+                     cli_json_real(f->b_low * M), "slope_high_per_month",
+                     cli_json_real(f->b_high * M), "se_slope_per_month",
+                     cli_json_real(sqrt(f->c11) * M), "p_value", cli_json_real(f->p_value), "dof",
+                     cli_json_real(f->dof), "scale", cli_json_real(f->scale), "reference_time",
+                     date_json(f->t0_s));
+}
+
+static json_t *column_json(const struct column *col, const stagecal_trend_event *ev)
+{
+    const stagecal_trend_history *h = &col->h;
+    json_t *o = json_object();
+    json_object_set_new(o, "column_id", json_string(col->id));
+    json_t *fits = json_array();
+    for (size_t i = 0; i < h->n; i++) {
+        const struct extra *x = &col->ex[h->order[i]];
+        const stagecal_trend_ewma_point *c = &h->chart[i];
+        json_t *f = json_pack(
+            "{s:s, s:s, s:o, s:o, s:o, s:o, s:b, s:I, s:o, s:o, s:o, s:i}", "path", x->path,
+            "fitted_utc", x->fitted_utc, "stages", cli_json_real(h->points[i].value), "se",
+            cli_json_real(h->points[i].se), "ci_low", cli_json_real(x->pt.ci_low), "ci_high",
+            cli_json_real(x->pt.ci_high), "extrapolated", x->pt.extrapolated, "segment",
+            (json_int_t)h->segment_of[i], "z", cli_json_real(c->z), "ewma", cli_json_real(c->ewma),
+            "limit", cli_json_real(c->limit), "alarm", c->alarm);
+        json_object_set_new(
+            f, "hetp",
+            x->has_hetp
+                ? json_pack("{s:o, s:o, s:o}", "value_m", cli_json_real(x->hetp.hetp_m), "low_m",
+                            cli_json_real(x->hetp.low_m), "high_m", cli_json_real(x->hetp.high_m))
+                : json_null());
+        json_array_append_new(fits, f);
+    }
+    json_object_set_new(o, "fits", fits);
+    json_t *segs = json_array();
+    for (size_t s = 0; s < h->n_segments; s++) {
+        const stagecal_trend_segment *g = &h->segments[s];
+        json_t *j = json_pack("{s:I, s:I, s:o, s:o, s:o, s:I}", "first", (json_int_t)g->first, "n",
+                              (json_int_t)g->n, "start", date_json(g->start_s), "baseline",
+                              cli_json_real(g->baseline), "baseline_se",
+                              cli_json_real(g->baseline_se), "alarms", (json_int_t)g->n_alarms);
+        json_object_set_new(j, "event",
+                            g->event >= 0
+                                ? json_pack("{s:s, s:s, s:o}", "kind",
+                                            stagecal_event_kind_name(ev[g->event].kind), "note",
+                                            ev[g->event].note, "time", date_json(ev[g->event].t_s))
+                                : json_null());
+        json_object_set_new(j, "trend", g->has_fit ? fit_json(&g->fit) : json_null());
+        json_array_append_new(segs, j);
+    }
+    json_object_set_new(o, "segments", segs);
+    if (h->has_forecast) {
+        const stagecal_trend_forecast *fc = &h->forecast;
+        json_object_set_new(
+            o, "forecast",
+            json_pack("{s:s, s:o, s:o, s:o, s:o, s:b, s:s}", "status",
+                      stagecal_forecast_status_name(fc->status), "required",
+                      cli_json_real(fc->required), "date", date_json(fc->t_cross_s), "band_low",
+                      date_json(fc->low_s), "band_high", date_json(fc->high_s), "past", fc->past,
+                      "method",
+                      "crossing of the weighted trend line; band = Fieller inversion of its "
+                      "confidence band (null end: unbounded)"));
+    } else {
+        json_object_set_new(o, "forecast", json_null());
+    }
+    return o;
+}
+
+static void print_column(const struct column *col, const stagecal_trend_event *ev, int pct,
+                         double required)
+{
+    const stagecal_trend_history *h = &col->h;
+    const double M = STAGECAL_TREND_MONTH_S;
+    char d[32], d1[32], d2[32];
+    printf("column %s: %zu fits\n", col->id, h->n);
+    printf("  %-10s %8s %19s %19s %3s %7s %s\n", "date", "stages", "CI", "HETP [m] (CI)", "seg",
+           "EWMA", "alarm");
+    for (size_t i = 0; i < h->n; i++) {
+        const struct extra *x = &col->ex[h->order[i]];
+        const stagecal_trend_ewma_point *c = &h->chart[i];
+        char hetp[40] = "-";
+        if (x->has_hetp)
+            snprintf(hetp, sizeof hetp, "%.3f (%.3f-%.3f)", x->hetp.hetp_m, x->hetp.low_m,
+                     x->hetp.high_m);
+        format_date(h->points[i].t_s, d, sizeof d);
+        printf("  %-10s %8.3f [%7.3f, %7.3f] %19s %3zu %+7.3f %s%s\n", d, h->points[i].value,
+               x->pt.ci_low, x->pt.ci_high, hetp, h->segment_of[i] + 1, c->ewma,
+               c->alarm < 0   ? "LOSS"
+               : c->alarm > 0 ? "GAIN"
+                              : "",
+               x->pt.extrapolated ? " (extrapolated)" : "");
+    }
+    for (size_t s = 0; s < h->n_segments; s++) {
+        const stagecal_trend_segment *g = &h->segments[s];
+        format_date(g->start_s, d, sizeof d);
+        printf("segment %zu from %s", s + 1, d);
+        if (g->event >= 0)
+            printf(" (%s%s%s)", stagecal_event_kind_name(ev[g->event].kind),
+                   ev[g->event].note[0] ? ": " : "", ev[g->event].note);
+        printf(", %zu fits, baseline %.3f stages\n", g->n, g->baseline);
+        if (g->has_fit)
+            printf("  trend %+.4f stages/month, %d %% CI [%+.4f, %+.4f], p = %.3g "
+                   "(scatter/stated se = %.2f)\n",
+                   g->fit.b * M, pct, g->fit.b_low * M, g->fit.b_high * M, g->fit.p_value,
+                   g->fit.scale);
+        else
+            printf("  trend: needs at least 3 fits at different dates\n");
+        if (g->first_alarm >= 0) {
+            format_date(h->points[g->first_alarm].t_s, d, sizeof d);
+            printf("  EWMA alarms: %zu, first on %s\n", g->n_alarms, d);
+        } else {
+            printf("  EWMA alarms: none\n");
+        }
+    }
+    if (h->has_forecast) {
+        const stagecal_trend_forecast *fc = &h->forecast;
+        format_date(fc->t_cross_s, d, sizeof d);
+        format_date(fc->low_s, d1, sizeof d1);
+        format_date(fc->high_s, d2, sizeof d2);
+        if (fc->status == STAGECAL_FORECAST_NOT_DECLINING)
+            printf("forecast: the current segment is not declining; no date below %.3g stages\n",
+                   required);
+        else
+            printf("forecast: below %.3g stages on %s%s, %d %% band %s to %s%s\n", required, d,
+                   fc->past ? " (already past)" : "", pct, d1, d2,
+                   fc->status == STAGECAL_FORECAST_UNBOUNDED ? " (slope not significant: open)"
+                                                             : "");
+    } else if (!isnan(required)) {
+        printf("forecast: none (the current segment has fewer than 3 fits)\n");
+    }
+}
+
+static void print_fleet_row(const struct column *col, int pct)
+{
+    (void)pct;
+    const stagecal_trend_history *h = &col->h;
+    const stagecal_trend_segment *g = &h->segments[h->n_segments - 1];
+    const struct extra *x = &col->ex[h->order[h->n - 1]];
+    const double M = STAGECAL_TREND_MONTH_S;
+    char loss[48] = "-", fc[112] = "-", d[32], d1[32], d2[32];
+    if (g->has_fit)
+        snprintf(loss, sizeof loss, "%.3f [%.3f, %.3f]", -g->fit.b * M, -g->fit.b_high * M,
+                 -g->fit.b_low * M);
+    if (h->has_forecast) {
+        if (h->forecast.status == STAGECAL_FORECAST_NOT_DECLINING) {
+            snprintf(fc, sizeof fc, "not declining");
+        } else {
+            format_date(h->forecast.t_cross_s, d, sizeof d);
+            format_date(h->forecast.low_s, d1, sizeof d1);
+            format_date(h->forecast.high_s, d2, sizeof d2);
+            snprintf(fc, sizeof fc, "%s [%s, %s]", d, d1, d2);
+        }
+    }
+    printf("%-16s %4zu %7.3f [%6.3f, %6.3f] %-26s %-36s %zu\n", col->id, h->n,
+           h->points[h->n - 1].value, x->pt.ci_low, x->pt.ci_high, loss, fc, g->n_alarms);
+}
+
+int cmd_trend(int argc, char **argv)
+{
+    enum {
+        O_REFLUX = 256,
+        O_FLOAD,
+        O_FITS,
+        O_EVENTS,
+        O_REQUIRE,
+        O_LEVEL,
+        O_LAMBDA,
+        O_LIMIT,
+        O_BASELINE_N,
+        O_BASELINE,
+        O_JSON,
+        O_QUIET
+    };
+    static const struct option opts[] = {{"reflux", required_argument, NULL, O_REFLUX},
+                                         {"fload", required_argument, NULL, O_FLOAD},
+                                         {"fits", required_argument, NULL, O_FITS},
+                                         {"events", required_argument, NULL, O_EVENTS},
+                                         {"require", required_argument, NULL, O_REQUIRE},
+                                         {"level", required_argument, NULL, O_LEVEL},
+                                         {"lambda", required_argument, NULL, O_LAMBDA},
+                                         {"limit", required_argument, NULL, O_LIMIT},
+                                         {"baseline-n", required_argument, NULL, O_BASELINE_N},
+                                         {"baseline", required_argument, NULL, O_BASELINE},
+                                         {"json", no_argument, NULL, O_JSON},
+                                         {"quiet", no_argument, NULL, O_QUIET},
+                                         {"help", no_argument, NULL, 'h'},
+                                         {0, 0, 0, 0}};
+    stagecal_trend_params par = stagecal_trend_default_params();
+    double reflux = NAN, fload = NAN;
+    const char *fits = "fits", *events_path = NULL;
+    long baseline_n = (long)par.baseline_n;
+    int json = 0, c, rc;
+
+    optind = 0;
+    opterr = 0;
+    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
+        switch (c) {
+        case 'h':
+            fputs(usage_text, stdout);
+            return CLI_EXIT_OK;
+        case O_REFLUX:
+            if (cli_parse_double("reflux", optarg, 1, "a reflux ratio >= 0 or 'inf'", &reflux))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_FLOAD:
+            if (cli_parse_double("fload", optarg, 0, "an F-factor in Pa^0.5", &fload))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_FITS:
+            fits = optarg;
+            break;
+        case O_EVENTS:
+            events_path = optarg;
+            break;
+        case O_REQUIRE:
+            if (cli_parse_double("require", optarg, 0, "a number of stages", &par.required))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_LEVEL:
+            if (cli_parse_double("level", optarg, 0, "a confidence level in (0, 1)", &par.level))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_LAMBDA:
+            if (cli_parse_double("lambda", optarg, 0, "an EWMA weight in (0, 1]", &par.ewma.lambda))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_LIMIT:
+            if (cli_parse_double("limit", optarg, 0, "a limit width in sigma", &par.ewma.L))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_BASELINE_N:
+            if (cli_parse_long("baseline-n", optarg, 1, 1000, &baseline_n))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_BASELINE:
+            if (cli_parse_double("baseline", optarg, 0, "a number of stages", &par.baseline))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_JSON:
+            json = 1;
+            break;
+        case O_QUIET:
+            cli_quiet = 1;
+            break;
+        default:
+            return cli_usage_getopt(c, argv, "trend");
+        }
+    }
+    par.baseline_n = (size_t)baseline_n;
+    size_t ncol = (size_t)(argc - optind);
+    if (ncol == 0)
+        return cli_usage_error("a column id is required (see 'stagecal trend --help')");
+    if ((rc = cli_require("reflux", reflux)))
+        return rc;
+    if (!(reflux >= 0))
+        return cli_usage_error("option '--reflux': %g is negative (expected R >= 0 or 'inf')",
+                               reflux);
+    if (!(par.level > 0 && par.level < 1))
+        return cli_usage_error("option '--level': %g is outside (0, 1) (expected e.g. 0.95)",
+                               par.level);
+    if (!(par.ewma.lambda > 0 && par.ewma.lambda <= 1))
+        return cli_usage_error("option '--lambda': %g is outside (0, 1] (expected e.g. 0.2)",
+                               par.ewma.lambda);
+    if (!(par.ewma.L > 0))
+        return cli_usage_error("option '--limit': %g is not positive (expected e.g. 2.962)",
+                               par.ewma.L);
+    if (!isnan(par.required) && !(par.required >= 1))
+        return cli_usage_error("option '--require': %g is below 1 (expected stages, the pot "
+                               "included)",
+                               par.required);
+    for (size_t i = 0; i < ncol; i++) {
+        const char *id = argv[optind + (int)i];
+        if (!id[0] || id[0] == '.' || strchr(id, '/'))
+            return cli_usage_error("'%s' is not a column id (expected [A-Za-z0-9_.-]+)", id);
+    }
+
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    stagecal_trend_event *ev = NULL;
+    size_t nev = 0;
+    if (events_path && stagecal_trend_events_read(events_path, &ev, &nev, &err) != STAGECAL_OK)
+        return cli_fail(&err);
+    struct column *cols = calloc(ncol, sizeof *cols);
+    if (!cols) {
+        free(ev);
+        cli_error("out of memory");
+        return CLI_EXIT_SOFTWARE;
+    }
+    rc = 0;
+    for (size_t i = 0; i < ncol && rc == 0; i++) {
+        cols[i].id = argv[optind + (int)i];
+        rc = load_column(&cols[i], fits, reflux, fload, par.level);
+        if (rc == 0 && stagecal_trend_analyse(cols[i].pts, cols[i].n, ev, nev, cols[i].id, &par,
+                                              &cols[i].h, &err) != STAGECAL_OK)
+            rc = cli_fail(&err);
+    }
+    if (rc)
+        goto done;
+    for (size_t i = 0; i < ncol; i++) {
+        const stagecal_trend_segment *g = &cols[i].h.segments[cols[i].h.n_segments - 1];
+        /* A Birge ratio above 2 means the fits scatter far beyond their own errors. */
+        if (g->has_fit && g->fit.scale > 2)
+            cli_warn("column %s: the fits scatter %.1f times their stated standard errors; the "
+                     "trend interval is widened by that factor, but the chart assumes the "
+                     "stated errors and will raise more false alarms than its design",
+                     cols[i].id, g->fit.scale);
+    }
+
+    int pct = (int)lround(par.level * 100);
+    if (json) {
+        json_t *doc = json_object();
+        json_object_set_new(doc, "format", json_string("stagecal-trend"));
+        json_object_set_new(doc, "version", json_integer(1));
+        json_object_set_new(doc, "reflux", cli_json_reflux(reflux));
+        json_object_set_new(doc, "fload", cli_json_real(fload));
+        json_object_set_new(doc, "level", json_real(par.level));
+        json_object_set_new(doc, "required", cli_json_real(par.required));
+        json_object_set_new(doc, "units",
+                            json_pack("{s:s, s:s, s:s}", "stages", "stages, the pot included",
+                                      "slope", "stages per month (365.2425 d / 12)", "hetp", "m"));
+        json_object_set_new(
+            doc, "chart",
+            json_pack("{s:s, s:o, s:o, s:o, s:I, s:o, s:s}", "kind", "ewma", "lambda",
+                      json_real(par.ewma.lambda), "L", json_real(par.ewma.L), "arl0",
+                      cli_json_real(cols[0].h.arl0), "baseline_n", (json_int_t)par.baseline_n,
+                      "baseline", cli_json_real(par.baseline), "design",
+                      "Lucas & Saccucci 1990; ARL by the Brook & Evans 1972 Markov chain"));
+        json_object_set_new(doc, "time_of_fit",
+                            json_string("each point is dated by its model file's fitted_utc"));
+        json_t *arr = json_array();
+        for (size_t i = 0; i < ncol; i++)
+            json_array_append_new(arr, column_json(&cols[i], ev));
+        json_object_set_new(doc, "columns", arr);
+        json_object_set_new(doc, "caution", json_string(cli_caution));
+        rc = cli_json_print(doc);
+        goto done;
+    }
+    printf("stages (the pot included) at R = %g%s; %d %% intervals; EWMA lambda = %g, L = %g "
+           "(in-control ARL %.0f fits)\n",
+           reflux, isnan(fload) ? "" : " and the given F", pct, par.ewma.lambda, par.ewma.L,
+           cols[0].h.arl0);
+    if (ncol == 1) {
+        print_column(&cols[0], ev, pct, par.required);
+    } else {
+        printf("%-16s %4s %24s %-26s %-36s %s\n", "column", "fits", "current stages (CI)",
+               "loss/month (CI)", "forecast date [band]", "alarms");
+        for (size_t i = 0; i < ncol; i++)
+            print_fleet_row(&cols[i], pct);
+    }
+    rc = CLI_EXIT_OK;
+done:
+    for (size_t i = 0; i < ncol; i++) {
+        stagecal_trend_history_free(&cols[i].h);
+        free(cols[i].pts);
+        free(cols[i].ex);
+    }
+    free(cols);
+    free(ev);
+    return rc;
+}

@@ -1,0 +1,499 @@
+/*
+ * column.c — the column file reader (JSON via jansson); format in docs/column-file.md.
+ *
+ * The file names the unit of every quantity in its key (height_m, pressure_pa,
+ * molar_mass_kg_mol, ...) and stores SI, so reading converts nothing; plausibility
+ * checks catch the usual unit slips (g/mol in a kg/mol field, kJ/mol for J/mol).
+ * Parse errors carry jansson's line and column; semantic errors name the field path
+ * ("system.model.alpha"), since jansson keeps no positions for values. Unknown keys
+ * are errors: a misspelt optional field would otherwise be silently ignored.
+ */
+#include "stagecal/column.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <jansson.h>
+
+#include "internal.h"
+
+#define COLUMN_FORMAT "stagecal-column"
+#define COLUMN_VERSION 1
+#define COLUMN_MAX_BYTES (16L * 1024 * 1024)
+
+typedef struct {
+    const char *src;
+    stagecal_error *err;
+} rd;
+
+/* Every key of obj must be in the NULL-terminated list. */
+static int check_keys(const rd *r, json_t *obj, const char *path, const char *const *keys)
+{
+    const char *k;
+    json_t *val;
+    json_object_foreach(obj, k, val)
+    {
+        size_t i = 0;
+        while (keys[i] && strcmp(keys[i], k) != 0)
+            i++;
+        if (!keys[i])
+            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                                "field '%s%s%s': unknown field, see docs/column-file.md", path,
+                                *path ? "." : "", k);
+    }
+    return STAGECAL_OK;
+}
+
+static json_t *get_obj(const rd *r, json_t *parent, const char *key, const char *path, int need,
+                       int *rc)
+{
+    json_t *o = json_object_get(parent, key);
+    *rc = STAGECAL_OK;
+    if (!o) {
+        if (need)
+            *rc = error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                               "field '%s': missing, expected an object", path);
+        return NULL;
+    }
+    if (!json_is_object(o)) {
+        *rc = error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0, "field '%s': expected an object",
+                           path);
+        return NULL;
+    }
+    return o;
+}
+
+/* Reads a number into *out when present. lo/hi: open (lo_open) or closed bounds. */
+static int get_num(const rd *r, json_t *parent, const char *key, const char *path, int need,
+                   double lo, int lo_open, double hi, double *out, const char *hint)
+{
+    json_t *o = json_object_get(parent, key);
+    if (!o) {
+        if (need)
+            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                                "field '%s': missing, expected a number%s", path, hint);
+        return STAGECAL_OK;
+    }
+    if (!json_is_number(o))
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0, "field '%s': expected a number%s",
+                            path, hint);
+    double v = json_number_value(o);
+    if (!isfinite(v) || (lo_open ? !(v > lo) : !(v >= lo)) || !(v <= hi)) {
+        char hi_txt[40];
+        if (isinf(hi))
+            snprintf(hi_txt, sizeof hi_txt, "inf)");
+        else
+            snprintf(hi_txt, sizeof hi_txt, "%g]", hi);
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "field '%s': %.15g is outside %s%g, %s%s", path, v, lo_open ? "(" : "[",
+                            lo, hi_txt, hint);
+    }
+    *out = v;
+    return STAGECAL_OK;
+}
+
+static int get_str(const rd *r, json_t *parent, const char *key, const char *path, int need,
+                   char *buf, size_t cap)
+{
+    json_t *o = json_object_get(parent, key);
+    if (!o) {
+        if (need)
+            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                                "field '%s': missing, expected a string", path);
+        return STAGECAL_OK;
+    }
+    if (!json_is_string(o))
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0, "field '%s': expected a string",
+                            path);
+    const char *s = json_string_value(o);
+    size_t n = strlen(s);
+    if (buf && (n == 0 || n >= cap))
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "field '%s': '%s' must have 1 to %zu characters", path, s, cap - 1);
+    if (buf)
+        memcpy(buf, s, n + 1);
+    return STAGECAL_OK;
+}
+
+static int read_antoine(const rd *r, json_t *comp, const char *path, stagecal_antoine *a, int need,
+                        int *present)
+{
+    static const char *const keys[] = {"a", "b", "c", "t_min_k", "t_max_k", "source", NULL};
+    char p[128];
+    int rc;
+    snprintf(p, sizeof p, "%s.antoine", path);
+    json_t *o = get_obj(r, comp, "antoine", p, need, &rc);
+    *present = o != NULL;
+    if (!o)
+        return rc;
+    if ((rc = check_keys(r, o, p, keys)))
+        return rc;
+    char f[160];
+    const char *hint = " (log10(P/bar) = a - b/(T/K + c))";
+    snprintf(f, sizeof f, "%s.a", p);
+    if ((rc = get_num(r, o, "a", f, 1, -INFINITY, 1, INFINITY, &a->a, hint)))
+        return rc;
+    snprintf(f, sizeof f, "%s.b", p);
+    if ((rc = get_num(r, o, "b", f, 1, 0.0, 1, INFINITY, &a->b, hint)))
+        return rc;
+    snprintf(f, sizeof f, "%s.c", p);
+    if ((rc = get_num(r, o, "c", f, 1, -INFINITY, 1, INFINITY, &a->c, hint)))
+        return rc;
+    a->t_min_k = a->t_max_k = 0.0;
+    snprintf(f, sizeof f, "%s.t_min_k", p);
+    if ((rc = get_num(r, o, "t_min_k", f, 0, 0.0, 1, 10000.0, &a->t_min_k, " K")))
+        return rc;
+    snprintf(f, sizeof f, "%s.t_max_k", p);
+    if ((rc = get_num(r, o, "t_max_k", f, 0, a->t_min_k, 1, 10000.0, &a->t_max_k,
+                      " K, above t_min_k")))
+        return rc;
+    if ((a->t_min_k > 0.0) != (a->t_max_k > 0.0))
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "field '%s': give both t_min_k and t_max_k, or neither", p);
+    snprintf(f, sizeof f, "%s.source", p);
+    return get_str(r, o, "source", f, 0, NULL, 0);
+}
+
+static int read_component(const rd *r, json_t *sys, const char *key, char *name, double *m,
+                          stagecal_antoine *ant, int need_ant)
+{
+    static const char *const keys[] = {"name", "molar_mass_kg_mol", "antoine", NULL};
+    char p[64], f[128];
+    int rc, present;
+    snprintf(p, sizeof p, "system.%s", key);
+    json_t *o = get_obj(r, sys, key, p, 1, &rc);
+    if (!o)
+        return rc;
+    if ((rc = check_keys(r, o, p, keys)))
+        return rc;
+    snprintf(f, sizeof f, "%s.name", p);
+    if ((rc = get_str(r, o, "name", f, 1, name, STAGECAL_NAME_MAX)))
+        return rc;
+    snprintf(f, sizeof f, "%s.molar_mass_kg_mol", p);
+    if ((rc = get_num(r, o, "molar_mass_kg_mol", f, 0, 0.0, 1, 1.0, m,
+                      " kg/mol (e.g. 0.018015 for water)")))
+        return rc;
+    return read_antoine(r, o, p, ant, need_ant, &present);
+}
+
+/* Reads a number array of length n (n = 0: any length ≥ 3, returned in *n). */
+static int get_array(const rd *r, json_t *o, const char *key, const char *path, int need,
+                     double **out, size_t *n)
+{
+    json_t *a = json_object_get(o, key);
+    *out = NULL;
+    if (!a) {
+        if (need)
+            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                                "field '%s': missing, expected an array of numbers", path);
+        return STAGECAL_OK;
+    }
+    size_t len = json_is_array(a) ? json_array_size(a) : 0;
+    if (!json_is_array(a) || (*n && len != *n) || len < 3)
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "field '%s': expected an array of %s numbers", path,
+                            *n ? "as many" : "at least 3");
+    double *v = calloc(len, sizeof *v);
+    if (!v)
+        return error_set(r->err, STAGECAL_ENOMEM, "out of memory");
+    for (size_t i = 0; i < len; i++) {
+        json_t *e = json_array_get(a, i);
+        if (!json_is_number(e)) {
+            free(v);
+            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                                "field '%s[%zu]': expected a number", path, i);
+        }
+        v[i] = json_number_value(e);
+    }
+    *out = v;
+    *n = len;
+    return STAGECAL_OK;
+}
+
+static int read_model(const rd *r, json_t *sys, stagecal_system *s, const stagecal_antoine ant[2],
+                      int *need_ant, int phase)
+{
+    int rc;
+    json_t *o = get_obj(r, sys, "model", "system.model", 1, &rc);
+    if (!o)
+        return rc;
+    char kind[32];
+    if ((rc = get_str(r, o, "kind", "system.model.kind", 1, kind, sizeof kind)))
+        return rc;
+    static const char *const k_alpha[] = {"kind", "source", "alpha", NULL};
+    static const char *const k_k[] = {"kind", "source", "k", NULL};
+    static const char *const k_tab[] = {"kind", "source", "x", "y", "t_k", NULL};
+    static const char *const k_ideal[] = {"kind", "source", NULL};
+    static const char *const k_wil[] = {"kind",      "source",    "a12_j_mol", "a21_j_mol",
+                                        "v1_m3_mol", "v2_m3_mol", NULL};
+    static const char *const k_nrtl[] = {"kind",    "source",    "tau12_a", "tau12_b_k",
+                                         "tau21_a", "tau21_b_k", "alpha12", NULL};
+    static const char *const k_vl[] = {"kind", "source", "a12", "a21", NULL};
+    stagecal_vle_kind kd;
+    const char *const *keys;
+    if (!strcmp(kind, "alpha"))
+        kd = STAGECAL_VLE_ALPHA, keys = k_alpha;
+    else if (!strcmp(kind, "kvalue"))
+        kd = STAGECAL_VLE_KVALUE, keys = k_k;
+    else if (!strcmp(kind, "table"))
+        kd = STAGECAL_VLE_TABLE, keys = k_tab;
+    else if (!strcmp(kind, "ideal"))
+        kd = STAGECAL_VLE_IDEAL, keys = k_ideal;
+    else if (!strcmp(kind, "wilson"))
+        kd = STAGECAL_VLE_WILSON, keys = k_wil;
+    else if (!strcmp(kind, "nrtl"))
+        kd = STAGECAL_VLE_NRTL, keys = k_nrtl;
+    else if (!strcmp(kind, "vanlaar"))
+        kd = STAGECAL_VLE_VANLAAR, keys = k_vl;
+    else if (!strcmp(kind, "margules"))
+        kd = STAGECAL_VLE_MARGULES, keys = k_vl;
+    else
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "field 'system.model.kind': '%s' is not one of alpha, kvalue, table, "
+                            "ideal, wilson, nrtl, vanlaar, margules",
+                            kind);
+    *need_ant = kd >= STAGECAL_VLE_IDEAL;
+    if (phase == 0) /* first pass: only learn whether Antoine sets are required */
+        return STAGECAL_OK;
+    if ((rc = check_keys(r, o, "system.model", keys)) ||
+        (rc = get_str(r, o, "source", "system.model.source", 0, NULL, 0)))
+        return rc;
+    stagecal_error ve;
+    stagecal_error_clear(&ve);
+    double p[STAGECAL_VLE_MAXPARAM] = {0};
+    size_t np = 0;
+    switch (kd) {
+    case STAGECAL_VLE_ALPHA:
+        if ((rc = get_num(r, o, "alpha", "system.model.alpha", 1, 1.0, 1, INFINITY, &p[0], "")))
+            return rc;
+        s->vle = stagecal_vle_alloc_alpha(p[0], &ve);
+        break;
+    case STAGECAL_VLE_KVALUE:
+        if ((rc = get_num(r, o, "k", "system.model.k", 1, 1.0, 1, INFINITY, &p[0], "")))
+            return rc;
+        s->vle = stagecal_vle_alloc_kvalue(p[0], &ve);
+        break;
+    case STAGECAL_VLE_TABLE: {
+        double *x = NULL, *y = NULL, *t = NULL;
+        size_t n = 0;
+        if ((rc = get_array(r, o, "x", "system.model.x", 1, &x, &n)) ||
+            (rc = get_array(r, o, "y", "system.model.y", 1, &y, &n)) ||
+            (rc = get_array(r, o, "t_k", "system.model.t_k", 0, &t, &n))) {
+            free(x);
+            free(y);
+            return rc;
+        }
+        s->vle = stagecal_vle_alloc_table(x, y, t, n, &ve);
+        free(x);
+        free(y);
+        free(t);
+        break;
+    }
+    default: {
+        static const char *const names[][5] = {
+            [STAGECAL_VLE_WILSON] = {"a12_j_mol", "a21_j_mol", "v1_m3_mol", "v2_m3_mol", NULL},
+            [STAGECAL_VLE_NRTL] = {"tau12_a", "tau12_b_k", "tau21_a", "tau21_b_k", "alpha12"},
+            [STAGECAL_VLE_VANLAAR] = {"a12", "a21", NULL, NULL, NULL},
+            [STAGECAL_VLE_MARGULES] = {"a12", "a21", NULL, NULL, NULL},
+        };
+        if (kd != STAGECAL_VLE_IDEAL)
+            for (np = 0; np < 5 && names[kd][np]; np++) {
+                char f[64];
+                snprintf(f, sizeof f, "system.model.%s", names[kd][np]);
+                if ((rc = get_num(r, o, names[kd][np], f, 1, -INFINITY, 1, INFINITY, &p[np], "")))
+                    return rc;
+            }
+        if (!(s->p_pa > 0.0))
+            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                                "field 'pressure_pa': missing, the '%s' model needs the pressure",
+                                kind);
+        s->vle = stagecal_vle_alloc_activity(kd, ant, p, np, s->p_pa, &ve);
+    }
+    }
+    if (!s->vle)
+        return error_set_at(r->err, ve.code == STAGECAL_ENOMEM ? STAGECAL_ENOMEM : STAGECAL_EDATA,
+                            r->src, 0, 0, "field 'system.model': %s", ve.text);
+    return STAGECAL_OK;
+}
+
+static int valid_id(const char *s)
+{
+    for (; *s; s++)
+        if (!((*s >= 'A' && *s <= 'Z') || (*s >= 'a' && *s <= 'z') || (*s >= '0' && *s <= '9') ||
+              *s == '_' || *s == '.' || *s == '-'))
+            return 0;
+    return 1;
+}
+
+static int read_root(const rd *r, json_t *root, stagecal_column *col)
+{
+    static const char *const keys[] = {
+        "format", "version",   "id",          "description", "packed_height_m", "inside_diameter_m",
+        "trays",  "condenser", "pressure_pa", "system",      "uncertainty",     NULL};
+    int rc;
+    if (!json_is_object(root))
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "expected a JSON object at the top level");
+    json_t *fmt = json_object_get(root, "format");
+    if (!json_is_string(fmt) || strcmp(json_string_value(fmt), COLUMN_FORMAT) != 0)
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0, "field 'format': expected \"%s\"",
+                            COLUMN_FORMAT);
+    json_t *ver = json_object_get(root, "version");
+    if (!json_is_integer(ver) || json_integer_value(ver) < 1)
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "field 'version': expected an integer >= 1");
+    if (json_integer_value(ver) > COLUMN_VERSION)
+        return error_set_at(r->err, STAGECAL_EVERSION, r->src, 0, 0,
+                            "field 'version': %lld is newer than this program reads (%d)",
+                            (long long)json_integer_value(ver), COLUMN_VERSION);
+    if ((rc = check_keys(r, root, "", keys)))
+        return rc;
+    if ((rc = get_str(r, root, "id", "id", 1, col->id, sizeof col->id)))
+        return rc;
+    if (!valid_id(col->id))
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "field 'id': '%s' may hold only letters, digits, '_', '.', '-'",
+                            col->id);
+    if ((rc = get_str(r, root, "description", "description", 0, NULL, 0)) ||
+        (rc = get_num(r, root, "packed_height_m", "packed_height_m", 0, 0.0, 1, 1000.0,
+                      &col->height_m, " m")) ||
+        (rc = get_num(r, root, "inside_diameter_m", "inside_diameter_m", 0, 0.0, 1, 100.0,
+                      &col->diameter_m, " m")))
+        return rc;
+    json_t *tr = json_object_get(root, "trays");
+    if (tr) {
+        if (!json_is_integer(tr) || json_integer_value(tr) < 1 || json_integer_value(tr) > 10000)
+            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                                "field 'trays': expected an integer in [1, 10000]");
+        col->trays = (int)json_integer_value(tr);
+        if (col->height_m > 0.0)
+            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                                "field 'trays': a column has trays or a packed height, not both");
+    }
+    char cond[16];
+    if ((rc = get_str(r, root, "condenser", "condenser", 1, cond, sizeof cond)))
+        return rc;
+    if (!strcmp(cond, "total"))
+        col->condenser = STAGECAL_CONDENSER_TOTAL;
+    else if (!strcmp(cond, "partial"))
+        col->condenser = STAGECAL_CONDENSER_PARTIAL;
+    else
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "field 'condenser': '%s' is not \"total\" or \"partial\"", cond);
+    stagecal_system *s = &col->system;
+    if ((rc = get_num(r, root, "pressure_pa", "pressure_pa", 0, 0.0, 1, 1e8, &s->p_pa, " Pa")))
+        return rc;
+
+    json_t *sys = get_obj(r, root, "system", "system", 1, &rc);
+    if (!sys)
+        return rc;
+    static const char *const skeys[] = {"light", "heavy", "latent_heat_j_mol", "model", NULL};
+    if ((rc = check_keys(r, sys, "system", skeys)))
+        return rc;
+    int need_ant = 0;
+    stagecal_antoine ant[2];
+    memset(ant, 0, sizeof ant);
+    if ((rc = read_model(r, sys, s, ant, &need_ant, 0)) ||
+        (rc = read_component(r, sys, "light", s->light, &s->m_light, &ant[0], need_ant)) ||
+        (rc = read_component(r, sys, "heavy", s->heavy, &s->m_heavy, &ant[1], need_ant)) ||
+        (rc = get_num(r, sys, "latent_heat_j_mol", "system.latent_heat_j_mol", 0, 1000.0, 1, 1e6,
+                      &s->latent_j_mol, " J/mol (not kJ/mol)")))
+        return rc;
+    if (!strcmp(s->light, s->heavy))
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "field 'system.heavy.name': '%s' is also the light component",
+                            s->heavy);
+    if ((rc = read_model(r, sys, s, ant, &need_ant, 1)))
+        return rc;
+
+    json_t *u = get_obj(r, root, "uncertainty", "uncertainty", 0, &rc);
+    if (rc)
+        return rc;
+    if (u) {
+        static const char *const ukeys[] = {"xd", "xb", "w_mol", "r", "r_rel", "v_mol_s", NULL};
+        stagecal_uncertainty *q = &col->u;
+        if ((rc = check_keys(r, u, "uncertainty", ukeys)) ||
+            (rc = get_num(r, u, "xd", "uncertainty.xd", 0, 0.0, 0, 0.5, &q->xd,
+                          " (mole fraction)")) ||
+            (rc = get_num(r, u, "xb", "uncertainty.xb", 0, 0.0, 0, 0.5, &q->xb,
+                          " (mole fraction)")) ||
+            (rc = get_num(r, u, "w_mol", "uncertainty.w_mol", 0, 0.0, 0, INFINITY, &q->w_mol,
+                          " mol")) ||
+            (rc = get_num(r, u, "r", "uncertainty.r", 0, 0.0, 0, INFINITY, &q->r, "")) ||
+            (rc = get_num(r, u, "r_rel", "uncertainty.r_rel", 0, 0.0, 0, 1.0, &q->r_rel,
+                          " (fraction of R)")) ||
+            (rc = get_num(r, u, "v_mol_s", "uncertainty.v_mol_s", 0, 0.0, 0, INFINITY, &q->v_mol_s,
+                          " mol/s")))
+            return rc;
+    }
+    return STAGECAL_OK;
+}
+
+int stagecal_column_parse(const char *text, size_t len, const char *source, stagecal_column *col,
+                          stagecal_error *err)
+{
+    rd r = {source ? source : "<column>", err};
+    json_error_t je;
+    memset(col, 0, sizeof *col);
+    json_t *root = json_loadb(text, len, JSON_REJECT_DUPLICATES, &je);
+    if (!root)
+        return error_set_at(err, STAGECAL_EDATA, r.src, je.line > 0 ? je.line : 0,
+                            je.column > 0 ? je.column : 0, "%s", je.text);
+    int rc = read_root(&r, root, col);
+    json_decref(root);
+    if (rc != STAGECAL_OK)
+        stagecal_column_free(col);
+    return rc;
+}
+
+int stagecal_column_load(const char *path, stagecal_column *col, stagecal_error *err)
+{
+    memset(col, 0, sizeof *col);
+    FILE *f = fopen(path, "rb");
+    if (!f)
+        return error_set(err, STAGECAL_ENOINPUT, "cannot open '%s': %s", path, strerror(errno));
+    char *buf = NULL;
+    size_t len = 0, cap = 0;
+    int rc = STAGECAL_OK;
+    for (;;) {
+        if (len == cap) {
+            if (cap >= (size_t)COLUMN_MAX_BYTES) {
+                rc = error_set(err, STAGECAL_EDATA, "%s: file larger than %ld bytes", path,
+                               COLUMN_MAX_BYTES);
+                break;
+            }
+            size_t ncap = cap ? 2 * cap : 8192;
+            char *nb = realloc(buf, ncap);
+            if (!nb) {
+                rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
+                break;
+            }
+            buf = nb;
+            cap = ncap;
+        }
+        size_t got = fread(buf + len, 1, cap - len, f);
+        len += got;
+        if (got == 0) {
+            if (ferror(f))
+                rc = error_set(err, STAGECAL_ENOINPUT, "cannot read '%s': %s", path,
+                               strerror(errno));
+            break;
+        }
+    }
+    fclose(f);
+    if (rc == STAGECAL_OK)
+        rc = stagecal_column_parse(buf, len, path, col, err);
+    free(buf);
+    return rc;
+}
+
+void stagecal_column_free(stagecal_column *col)
+{
+    if (!col)
+        return;
+    stagecal_vle_free(col->system.vle);
+    col->system.vle = NULL;
+}

@@ -1,0 +1,750 @@
+/*
+ * report.c — the self-contained HTML report (see stagecal/report.h).
+ *
+ * The document is assembled in a growable buffer: fixed CSS (screen + @media print for
+ * A4), the sections the caller filled, charts as inline SVG drawn by the plot module,
+ * and the caution. No script, no external resource. Inline SVGs from cairo all use the
+ * same element ids (glyph0-1, clip1, …); the ids of figure k are prefixed "f<k>-" so
+ * that references resolve inside their own figure.
+ *
+ * Workload: about ten charts per report; the time goes into PLplot/cairo (see
+ * tests/bench_report.c), the text handling here is linear in the output size.
+ */
+#include "stagecal/report.h"
+
+#include <errno.h>
+#include <math.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include "stagecal/version.h"
+#include "internal.h"
+
+#define MAX_COLS 64
+
+static const char caution[] =
+    "Caution: batch distillation handles flammable and often toxic liquids under heat. "
+    "These results are an empirical fit that supports engineering judgement; they do not "
+    "replace it. Conditions outside the fitted envelope are extrapolations and are flagged "
+    "as such. Local codes, site procedures and a licensed engineer's review come first.";
+
+const char *stagecal_caution_text(void)
+{
+    return caution;
+}
+
+stagecal_report_params stagecal_report_default_params(void)
+{
+    stagecal_report_params p;
+    p.plot = stagecal_plot_default_params();
+    p.plot.width = 720;
+    p.plot.height = 480;
+    return p;
+}
+
+/* ---- growable text buffer ------------------------------------------------------------ */
+
+typedef struct {
+    char *s;
+    size_t n, cap;
+    int oom;
+} buf;
+
+static void put_n(buf *b, const char *s, size_t n)
+{
+    if (b->oom)
+        return;
+    if (b->n + n + 1 > b->cap) {
+        size_t cap = b->cap ? b->cap : 65536;
+        while (cap < b->n + n + 1)
+            cap *= 2;
+        char *p = realloc(b->s, cap);
+        if (!p) {
+            b->oom = 1;
+            return;
+        }
+        b->s = p;
+        b->cap = cap;
+    }
+    memcpy(b->s + b->n, s, n);
+    b->n += n;
+    b->s[b->n] = '\0';
+}
+
+static void put(buf *b, const char *s)
+{
+    put_n(b, s, strlen(s));
+}
+
+static void putf(buf *b, const char *fmt, ...) SC_PRINTF(2, 3);
+static void putf(buf *b, const char *fmt, ...)
+{
+    char tmp[512];
+    va_list ap;
+    va_start(ap, fmt);
+    int n = vsnprintf(tmp, sizeof tmp, fmt, ap);
+    va_end(ap);
+    if (n > 0)
+        put_n(b, tmp, (size_t)n < sizeof tmp ? (size_t)n : sizeof tmp - 1);
+}
+
+/* Text with &, <, >, " escaped (safe in element content and attribute values). */
+static void put_esc(buf *b, const char *s)
+{
+    const char *run = s ? s : "";
+    for (const char *p = run; *p; p++) {
+        const char *rep = *p == '&'   ? "&amp;"
+                          : *p == '<' ? "&lt;"
+                          : *p == '>' ? "&gt;"
+                          : *p == '"' ? "&quot;"
+                                      : NULL;
+        if (rep) {
+            put_n(b, run, (size_t)(p - run));
+            put(b, rep);
+            run = p + 1;
+        }
+    }
+    put(b, run);
+}
+
+/* ---- pieces -------------------------------------------------------------------------- */
+
+static const char css[] =
+    "body{font-family:'DejaVu Sans',Helvetica,Arial,sans-serif;color:#222;background:#fff;"
+    "max-width:60em;margin:1.5em auto;padding:0 1em;line-height:1.4}"
+    "h1{font-size:1.6em;margin:0}h2{font-size:1.2em;border-bottom:2px solid #0072B2;"
+    "padding-bottom:.15em;margin-top:1.6em}"
+    ".sub{color:#555;margin:.2em 0 1em}"
+    ".demo{border:2px dashed #E69F00;padding:.4em .8em;background:#fff8e6}"
+    ".warn{border-left:6px solid #D55E00;background:#fdf0e8;padding:.4em .8em}"
+    ".warn li{margin:.2em 0}"
+    ".caution{border:2px solid #333;padding:.6em 1em;background:#f4f4f4}"
+    "dl.kv{display:grid;grid-template-columns:max-content auto;gap:.15em 1.2em}"
+    "dl.kv dt{font-weight:bold}dl.kv dd{margin:0}"
+    "table{border-collapse:collapse;margin:.6em 0;font-size:.92em}"
+    "caption{text-align:left;font-weight:bold;padding:.2em 0}"
+    "th,td{border:1px solid #bbb;padding:.2em .5em;text-align:left;vertical-align:top}"
+    "th{background:#eef4f9}td{font-variant-numeric:tabular-nums}"
+    "code,.hash{font-family:'DejaVu Sans Mono',monospace;font-size:.85em;word-break:break-all}"
+    "figure{margin:1em 0;break-inside:avoid;page-break-inside:avoid}"
+    "svg.stagecal-figure{display:block;width:100%;height:auto;border:1px solid #ddd}"
+    "figcaption{font-size:.9em;color:#444;margin-top:.3em}"
+    "footer{margin-top:2em;font-size:.85em;color:#666}"
+    "@media print{@page{size:A4;margin:15mm}body{max-width:none;margin:0;padding:0;"
+    "font-size:10pt}h2{break-after:avoid;page-break-after:avoid}"
+    "table,dl.kv,.caution,.warn{break-inside:avoid;page-break-inside:avoid}"
+    "svg.stagecal-figure{border:none;max-height:120mm}}";
+
+static void put_items(buf *b, const stagecal_report_item *it, size_t n)
+{
+    put(b, "<dl class=\"kv\">\n");
+    for (size_t i = 0; i < n; i++) {
+        put(b, "<dt>");
+        put_esc(b, it[i].key);
+        put(b, "</dt><dd>");
+        put_esc(b, it[i].value);
+        put(b, "</dd>\n");
+    }
+    put(b, "</dl>\n");
+}
+
+static void put_list(buf *b, const char *const *s, size_t n, const char *cls)
+{
+    putf(b, "<ul%s%s%s>\n", cls ? " class=\"" : "", cls ? cls : "", cls ? "\"" : "");
+    for (size_t i = 0; i < n; i++) {
+        put(b, "<li>");
+        put_esc(b, s[i]);
+        put(b, "</li>\n");
+    }
+    put(b, "</ul>\n");
+}
+
+static int check_table(const stagecal_report_table *t, const char *what, stagecal_error *err)
+{
+    if (!t)
+        return STAGECAL_OK;
+    if (t->n_cols == 0 || t->n_cols > MAX_COLS || !t->head || (t->n_rows > 0 && !t->cells))
+        return error_set(err, STAGECAL_EINVAL,
+                         "report %s table: %zu columns, %zu rows (expected 1..%d columns with "
+                         "headings and cells)",
+                         what, t->n_cols, t->n_rows, MAX_COLS);
+    for (size_t c = 0; c < t->n_cols; c++)
+        if (!t->head[c])
+            return error_set(err, STAGECAL_EINVAL, "report %s table: heading %zu is NULL", what,
+                             c + 1);
+    return STAGECAL_OK;
+}
+
+static void put_table(buf *b, const stagecal_report_table *t, const char *cls)
+{
+    putf(b, "<table class=\"%s\">\n", cls);
+    if (t->caption) {
+        put(b, "<caption>");
+        put_esc(b, t->caption);
+        put(b, "</caption>\n");
+    }
+    put(b, "<thead><tr>");
+    for (size_t c = 0; c < t->n_cols; c++) {
+        put(b, "<th>");
+        put_esc(b, t->head[c]);
+        put(b, "</th>");
+    }
+    put(b, "</tr></thead>\n<tbody>\n");
+    for (size_t r = 0; r < t->n_rows; r++) {
+        put(b, "<tr>");
+        for (size_t c = 0; c < t->n_cols; c++) {
+            put(b, "<td>");
+            put_esc(b, t->cells[r * t->n_cols + c]);
+            put(b, "</td>");
+        }
+        put(b, "</tr>\n");
+    }
+    put(b, "</tbody></table>\n");
+}
+
+/* Copies cairo's SVG into the page: drops the XML declaration, prefixes every id and
+ * every local reference with "f<k>-", and tags the root element. */
+static void put_svg(buf *b, const char *svg, size_t k, const stagecal_plot_chart *c)
+{
+    char prefix[32];
+    snprintf(prefix, sizeof prefix, "f%zu-", k);
+    const char *p = strstr(svg, "<svg");
+    if (!p)
+        return;
+    /* root tag: add our class, the series count and an accessible name */
+    p += 4;
+    putf(b, "<svg class=\"stagecal-figure\" data-series=\"%zu\" role=\"img\" aria-label=\"",
+         c->n_series);
+    put_esc(b, c->title ? c->title : "chart");
+    put(b, "\"");
+    static const char *const pats[] = {"id=\"", "href=\"#", "url(#"};
+    while (*p) {
+        const char *best = NULL;
+        size_t blen = 0;
+        for (size_t i = 0; i < sizeof pats / sizeof pats[0]; i++) {
+            const char *q = strstr(p, pats[i]);
+            if (q && (!best || q < best)) {
+                best = q;
+                blen = strlen(pats[i]);
+            }
+        }
+        if (!best) {
+            put(b, p);
+            break;
+        }
+        put_n(b, p, (size_t)(best - p) + blen);
+        put(b, prefix);
+        p = best + blen;
+    }
+    put(b, "\n");
+}
+
+int stagecal_report_html(const stagecal_report *r, const stagecal_report_params *params,
+                         char **html, size_t *len, stagecal_error *err)
+{
+    stagecal_report_params par = params ? *params : stagecal_report_default_params();
+    int rc;
+    if (!r || !html)
+        return error_set(err, STAGECAL_EINVAL, "report: missing content or output pointer");
+    *html = NULL;
+    if ((rc = check_table(r->inputs, "inputs", err)) ||
+        (rc = check_table(r->windows, "windows", err)) || (rc = check_table(r->fit, "fit", err)))
+        return rc;
+    for (size_t k = 0; k < r->n_figures; k++) {
+        if (!r->figures || !r->figures[k].chart)
+            return error_set(err, STAGECAL_EINVAL, "report figure %zu: no chart", k + 1);
+        if ((rc = stagecal_plot_check(r->figures[k].chart, err))) {
+            char msg[STAGECAL_ERROR_TEXT];
+            snprintf(msg, sizeof msg, "%s", err ? err->text : "");
+            return error_set(err, rc, "report figure %zu: %s", k + 1, msg);
+        }
+    }
+
+    buf b = {0};
+    const char *title = r->title ? r->title : "Stage calibration report";
+    put(&b, "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
+            "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
+            "<title>");
+    put_esc(&b, title);
+    put(&b, "</title>\n<style>");
+    put(&b, css);
+    put(&b, "</style>\n</head>\n<body>\n<header>\n<h1>");
+    put_esc(&b, title);
+    put(&b, "</h1>\n");
+    if (r->subtitle) {
+        put(&b, "<p class=\"sub\">");
+        put_esc(&b, r->subtitle);
+        put(&b, "</p>\n");
+    }
+    put(&b, "</header>\n");
+    if (r->demo_notice) {
+        put(&b, "<p class=\"demo\">");
+        put_esc(&b, r->demo_notice);
+        put(&b, "</p>\n");
+    }
+    /* warnings near the top: an extrapolation must not be missed */
+    if (r->n_warnings > 0 && r->warnings) {
+        put(&b, "<section id=\"warnings\" class=\"warn\">\n<h2>Warnings</h2>\n");
+        put_list(&b, r->warnings, r->n_warnings, NULL);
+        put(&b, "</section>\n");
+    }
+    if ((r->n_job > 0 && r->job) || r->inputs) {
+        put(&b, "<section id=\"job\">\n<h2>Job and data provenance</h2>\n");
+        if (r->n_job > 0 && r->job)
+            put_items(&b, r->job, r->n_job);
+        if (r->inputs)
+            put_table(&b, r->inputs, "inputs");
+        put(&b, "</section>\n");
+    }
+    if (r->n_findings > 0 && r->findings) {
+        put(&b, "<section id=\"validation\">\n<h2>Validation findings</h2>\n");
+        put_list(&b, r->findings, r->n_findings, NULL);
+        put(&b, "</section>\n");
+    }
+    if (r->windows) {
+        put(&b, "<section id=\"windows\">\n<h2>Quasi-steady windows</h2>\n");
+        put_table(&b, r->windows, "windows");
+        put(&b, "</section>\n");
+    }
+    if (r->fit || (r->n_fit_summary > 0 && r->fit_summary)) {
+        put(&b, "<section id=\"fit\">\n<h2>Fitted correlation</h2>\n");
+        if (r->fit)
+            put_table(&b, r->fit, "fit");
+        if (r->n_fit_summary > 0 && r->fit_summary)
+            put_items(&b, r->fit_summary, r->n_fit_summary);
+        put(&b, "</section>\n");
+    }
+    if (r->n_figures > 0) {
+        put(&b, "<section id=\"plots\">\n<h2>Plots</h2>\n");
+        for (size_t k = 0; k < r->n_figures && !b.oom; k++) {
+            char *svg = NULL;
+            rc = stagecal_plot_svg(r->figures[k].chart, &par.plot, &svg, NULL, err);
+            if (rc) {
+                free(b.s);
+                return rc;
+            }
+            putf(&b, "<figure id=\"figure-%zu\">\n", k + 1);
+            put_svg(&b, svg, k + 1, r->figures[k].chart);
+            free(svg);
+            if (r->figures[k].caption) {
+                putf(&b, "<figcaption>Figure %zu. ", k + 1);
+                put_esc(&b, r->figures[k].caption);
+                put(&b, "</figcaption>\n");
+            }
+            put(&b, "</figure>\n");
+        }
+        put(&b, "</section>\n");
+    }
+    if (r->n_hetp > 0 && r->hetp) {
+        put(&b, "<section id=\"hetp\">\n<h2>HETP</h2>\n");
+        put_items(&b, r->hetp, r->n_hetp);
+        put(&b, "</section>\n");
+    }
+    if (r->n_trend > 0 && r->trend) {
+        put(&b, "<section id=\"trend\">\n<h2>Trend</h2>\n");
+        put_items(&b, r->trend, r->n_trend);
+        put(&b, "</section>\n");
+    }
+    put(&b, "<section id=\"caution\" class=\"caution\">\n<h2>Caution</h2>\n<p>");
+    put_esc(&b, caution);
+    put(&b, "</p>\n</section>\n<footer>Generated by ");
+    put_esc(&b, r->generator ? r->generator : "stagecal");
+    if (!r->generator) {
+        put(&b, " ");
+        put_esc(&b, stagecal_version());
+    }
+    put(&b, ". Self-contained document: no scripts, no network resources.</footer>\n"
+            "</body>\n</html>\n");
+    if (b.oom) {
+        free(b.s);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory building the report");
+    }
+    *html = b.s;
+    if (len)
+        *len = b.n;
+    return STAGECAL_OK;
+}
+
+int stagecal_report_write(const stagecal_report *r, const stagecal_report_params *params,
+                          const char *path, stagecal_error *err)
+{
+    char *html = NULL;
+    size_t n = 0;
+    int rc;
+    if (!path || !path[0])
+        return error_set(err, STAGECAL_EINVAL, "report file name is empty");
+    if ((rc = stagecal_report_html(r, params, &html, &n, err)))
+        return rc;
+    size_t tl = strlen(path) + 16;
+    char *tmp = malloc(tl);
+    if (!tmp) {
+        free(html);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    snprintf(tmp, tl, "%s.tmpXXXXXX", path);
+    int fd = mkstemp(tmp);
+    if (fd < 0) {
+        rc = error_set(err, STAGECAL_EWRITE, "cannot create '%s': %s", path, strerror(errno));
+    } else {
+        fchmod(fd, 0644); /* mkstemp makes 0600; a report is for sharing */
+        FILE *f = fdopen(fd, "wb");
+        if (!f) {
+            close(fd);
+            rc = error_set(err, STAGECAL_EWRITE, "cannot write '%s': %s", path, strerror(errno));
+        } else {
+            size_t w = fwrite(html, 1, n, f);
+            int bad = w != n || fflush(f) != 0 || fsync(fileno(f)) != 0;
+            if (fclose(f) != 0 || bad)
+                rc =
+                    error_set(err, STAGECAL_EWRITE, "cannot write '%s': %s", path, strerror(errno));
+            else if (rename(tmp, path) != 0)
+                rc =
+                    error_set(err, STAGECAL_EWRITE, "cannot write '%s': %s", path, strerror(errno));
+        }
+        if (rc)
+            unlink(tmp);
+    }
+    free(tmp);
+    free(html);
+    return rc;
+}
+
+/* ---- report from a model file ----------------------------------------------------------- */
+
+#define DOC_MAX_ITEMS 24
+#define DOC_MAX_FIGS 4
+#define DOC_GRID 121    /* points of the fitted curve */
+#define DOC_MAX_WARN 40 /* warnings listed (model's + points outside the envelope) */
+
+struct stagecal_report_doc {
+    stagecal_report rep;
+    char **strs; /* every string the report points at */
+    size_t n_strs, cap_strs;
+    int oom;
+    stagecal_report_item job[DOC_MAX_ITEMS], summary[DOC_MAX_ITEMS], hetp[DOC_MAX_ITEMS];
+    stagecal_report_table inputs, fit;
+    const char *in_head[3], *fit_head[4];
+    const char **in_cells, **fit_cells, **warn;
+    stagecal_report_figure figs[DOC_MAX_FIGS];
+    stagecal_plot_chart *charts[DOC_MAX_FIGS];
+    size_t n_charts;
+};
+
+static const char *doc_str(stagecal_report_doc *d, const char *fmt, ...) SC_PRINTF(2, 3);
+static const char *doc_str(stagecal_report_doc *d, const char *fmt, ...)
+{
+    if (d->oom)
+        return "";
+    if (d->n_strs == d->cap_strs) {
+        size_t cap = d->cap_strs ? 2 * d->cap_strs : 64;
+        char **p = realloc(d->strs, cap * sizeof *p);
+        if (!p) {
+            d->oom = 1;
+            return "";
+        }
+        d->strs = p;
+        d->cap_strs = cap;
+    }
+    va_list ap;
+    va_start(ap, fmt);
+    int n = vsnprintf(NULL, 0, fmt, ap);
+    va_end(ap);
+    char *s = n >= 0 ? malloc((size_t)n + 1) : NULL;
+    if (!s) {
+        d->oom = 1;
+        return "";
+    }
+    va_start(ap, fmt);
+    vsnprintf(s, (size_t)n + 1, fmt, ap);
+    va_end(ap);
+    d->strs[d->n_strs++] = s;
+    return s;
+}
+
+void stagecal_report_doc_free(stagecal_report_doc *d)
+{
+    if (!d)
+        return;
+    for (size_t i = 0; i < d->n_strs; i++)
+        free(d->strs[i]);
+    free(d->strs);
+    free(d->in_cells);
+    free(d->fit_cells);
+    free(d->warn);
+    for (size_t i = 0; i < d->n_charts; i++)
+        stagecal_plot_chart_free(d->charts[i]);
+    free(d);
+}
+
+const stagecal_report *stagecal_report_doc_content(const stagecal_report_doc *d)
+{
+    return d ? &d->rep : NULL;
+}
+
+const stagecal_plot_chart *stagecal_report_doc_chart(const stagecal_report_doc *d, size_t k)
+{
+    return d && k < d->n_charts ? d->charts[k] : NULL;
+}
+
+static const char *fmt_r(stagecal_report_doc *d, double r)
+{
+    return isinf(r) ? "inf (total reflux)" : doc_str(d, "%.4g", r);
+}
+
+static void add_item(stagecal_report_item *items, size_t *n, const char *key, const char *value)
+{
+    if (*n < DOC_MAX_ITEMS) {
+        items[*n].key = key;
+        items[*n].value = value;
+        (*n)++;
+    }
+}
+
+static void add_warning(stagecal_report_doc *d, const char *w)
+{
+    if (d->rep.n_warnings < DOC_MAX_WARN)
+        d->warn[d->rep.n_warnings++] = w;
+}
+
+/* Curve of the model against R with bands; NAN where the form is undefined. */
+static int doc_fit_chart(stagecal_report_doc *d, const stagecal_model *m,
+                         const stagecal_regress_data *pts, double f_mid, stagecal_error *err)
+{
+    double grid[DOC_GRID], fit[DOC_GRID], clo[DOC_GRID], chi[DOC_GRID], plo[DOC_GRID],
+        phi[DOC_GRID];
+    double hi = isfinite(m->r_max) ? m->r_max : fmax(3 * m->r_min, 1.0);
+    for (size_t i = 0; pts && i < pts->n; i++)
+        if (isfinite(pts->r[i]))
+            hi = fmax(hi, pts->r[i]);
+    hi *= 1.25;
+    double lo = 0.5 * m->r_min;
+    for (size_t i = 0; i < DOC_GRID; i++) {
+        stagecal_model_point p;
+        grid[i] = lo + (hi - lo) * (double)i / (DOC_GRID - 1);
+        if (stagecal_model_eval(m, grid[i], f_mid, 0, &p, NULL) == STAGECAL_OK) {
+            fit[i] = p.stages, clo[i] = p.ci_low, chi[i] = p.ci_high;
+            plo[i] = p.pi_low, phi[i] = p.pi_high;
+        } else {
+            fit[i] = clo[i] = chi[i] = plo[i] = phi[i] = NAN;
+        }
+    }
+    size_t *grp = NULL;
+    stagecal_plot_fit_data fd = {"reflux ratio R [-]",
+                                 pts ? pts->r : NULL,
+                                 pts ? pts->stages : NULL,
+                                 grp,
+                                 pts ? pts->n : 0,
+                                 NULL,
+                                 1,
+                                 grid,
+                                 fit,
+                                 clo,
+                                 chi,
+                                 plo,
+                                 phi,
+                                 DOC_GRID,
+                                 m->r_min,
+                                 isfinite(m->r_max) ? m->r_max : NAN,
+                                 m->level,
+                                 NULL};
+    static const char *const pts_name[1] = {"points file"};
+    fd.group_names = pts ? pts_name : NULL;
+    int rc = stagecal_plot_fit(&fd, &d->charts[d->n_charts], err);
+    if (rc)
+        return rc;
+    d->figs[d->n_charts].chart = d->charts[d->n_charts];
+    d->figs[d->n_charts].caption =
+        m->form.uses_load
+            ? doc_str(d,
+                      "Fitted stages against reflux ratio at F = %.3g Pa^0.5 (middle of the "
+                      "fitted load range), with %.0f %% confidence and prediction bands and the "
+                      "fitted envelope.",
+                      f_mid, 100 * m->level)
+            : doc_str(d,
+                      "Fitted stages against reflux ratio with %.0f %% confidence and prediction "
+                      "bands and the fitted envelope.",
+                      100 * m->level);
+    d->n_charts++;
+    return STAGECAL_OK;
+}
+
+static int doc_resid_chart(stagecal_report_doc *d, const stagecal_model *m,
+                           const stagecal_regress_data *pts, stagecal_error *err)
+{
+    double *fitted = malloc(pts->n * sizeof *fitted), *res = malloc(pts->n * sizeof *res);
+    int rc = STAGECAL_OK;
+    if (!fitted || !res) {
+        free(fitted);
+        free(res);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    for (size_t i = 0; i < pts->n; i++) {
+        stagecal_model_point p;
+        double f = pts->f_load ? pts->f_load[i] : NAN;
+        if (stagecal_model_eval(m, pts->r[i], f, 0, &p, NULL) == STAGECAL_OK) {
+            fitted[i] = p.stages;
+            res[i] = pts->stages[i] - p.stages;
+        } else {
+            fitted[i] = res[i] = NAN;
+        }
+    }
+    stagecal_plot_resid_data rd = {fitted, res, NULL, NULL, pts->n, NULL, 1, NULL};
+    rc = stagecal_plot_resid(&rd, &d->charts[d->n_charts], err);
+    if (rc == STAGECAL_OK) {
+        d->figs[d->n_charts].chart = d->charts[d->n_charts];
+        d->figs[d->n_charts].caption =
+            "Residuals (points file minus the correlation) against fitted stages.";
+        d->n_charts++;
+    }
+    free(fitted);
+    free(res);
+    return rc;
+}
+
+int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_data *pts,
+                               stagecal_report_doc **out, stagecal_error *err)
+{
+    int rc;
+    if (!m || !out)
+        return error_set(err, STAGECAL_EINVAL, "report: missing model or output pointer");
+    *out = NULL;
+    if ((rc = stagecal_model_check(m, err)))
+        return rc;
+    stagecal_report_doc *d = calloc(1, sizeof *d);
+    if (!d)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    size_t p = m->form.p;
+    d->in_cells = calloc(3 * (m->n_inputs + 1), sizeof *d->in_cells);
+    d->fit_cells = calloc(4 * p, sizeof *d->fit_cells);
+    d->warn = calloc(DOC_MAX_WARN, sizeof *d->warn);
+    if (!d->in_cells || !d->fit_cells || !d->warn) {
+        stagecal_report_doc_free(d);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    stagecal_report *r = &d->rep;
+    r->title = doc_str(d, "Stage calibration report \xe2\x80\x94 %s", m->column_id);
+    r->subtitle = doc_str(d, "column %s \xc2\xb7 fitted %s by stagecal %s", m->column_id,
+                          m->fitted_utc, m->tool_version);
+
+    size_t nj = 0;
+    add_item(d->job, &nj, "column", m->column_id);
+    add_item(d->job, &nj, "system",
+             doc_str(d, "%s / %s, equilibrium model '%s'", m->light, m->heavy, m->vle_kind));
+    for (size_t i = 0; i < m->n_vle_params; i++) {
+        const stagecal_model_vle_param *vp = &m->vle_params[i];
+        add_item(d->job, &nj, doc_str(d, "  %s", vp->name),
+                 vp->n == 1 ? doc_str(d, "%.6g", vp->values[0])
+                            : doc_str(d, "%zu values (%.6g \xe2\x80\xa6 %.6g)", vp->n,
+                                      vp->values[0], vp->values[vp->n - 1]));
+    }
+    add_item(d->job, &nj, "stage convention", stagecal_model_convention_text(m->condenser));
+    add_item(d->job, &nj, "correlation", m->form.name);
+    add_item(d->job, &nj, "fit method", stagecal_model_method_name(m->method));
+    add_item(d->job, &nj, "evidence",
+             doc_str(d, "%zu quasi-steady windows from %zu runs (%zu samples)", m->n_windows,
+                     m->n_runs, m->n_samples));
+    add_item(d->job, &nj, "fitted",
+             doc_str(d, "%s, stagecal %s, seed %llu", m->fitted_utc, m->tool_version, m->seed));
+    if (m->command_line)
+        add_item(d->job, &nj, "command line", m->command_line);
+    r->job = d->job;
+    r->n_job = nj;
+
+    if (m->n_inputs > 0) {
+        d->in_head[0] = "input file", d->in_head[1] = "SHA-256", d->in_head[2] = "rows";
+        for (size_t i = 0; i < m->n_inputs; i++) {
+            d->in_cells[3 * i] = m->inputs[i].path;
+            d->in_cells[3 * i + 1] = m->inputs[i].sha256;
+            d->in_cells[3 * i + 2] = doc_str(d, "%zu", m->inputs[i].rows);
+        }
+        d->inputs = (stagecal_report_table){"Inputs (data provenance)", d->in_head, 3, d->in_cells,
+                                            m->n_inputs};
+        r->inputs = &d->inputs;
+    }
+
+    /* fit table: t quantile at the model's level from stagecal_model_eval (any point) */
+    stagecal_model_point p0;
+    double f_mid = m->has_load ? 0.5 * (m->f_min + m->f_max) : NAN;
+    double r_ref = isfinite(m->r_max) ? 0.5 * (m->r_min + m->r_max) : fmax(m->r_min, 1.0);
+    if ((rc = stagecal_model_eval(m, r_ref, f_mid, 0, &p0, err))) {
+        stagecal_report_doc_free(d);
+        return rc;
+    }
+    d->fit_head[0] = "parameter", d->fit_head[1] = "value", d->fit_head[2] = "std. error";
+    d->fit_head[3] = doc_str(d, "%.0f %% interval", 100 * m->level);
+    for (size_t i = 0; i < p; i++) {
+        double se = sqrt(fmax(m->cov[i * p + i], 0));
+        d->fit_cells[4 * i] = m->form.param_names[i];
+        d->fit_cells[4 * i + 1] = doc_str(d, "%.6g", m->theta[i]);
+        d->fit_cells[4 * i + 2] = doc_str(d, "%.3g", se);
+        d->fit_cells[4 * i + 3] =
+            doc_str(d, "[%.6g, %.6g]", m->theta[i] - p0.t * se, m->theta[i] + p0.t * se);
+    }
+    d->fit = (stagecal_report_table){doc_str(d, "Parameters of '%s'", m->form.name), d->fit_head, 4,
+                                     d->fit_cells, p};
+    r->fit = &d->fit;
+    size_t ns = 0;
+    add_item(d->summary, &ns, "residual \xcf\x83",
+             doc_str(d, "%.4g stages, %.4g degrees of freedom", m->sigma, m->dof));
+    add_item(d->summary, &ns, "envelope: R",
+             doc_str(d, "%s \xe2\x80\x93 %s", fmt_r(d, m->r_min), fmt_r(d, m->r_max)));
+    if (m->has_load)
+        add_item(d->summary, &ns, "envelope: F",
+                 doc_str(d, "%.4g \xe2\x80\x93 %.4g Pa^0.5", m->f_min, m->f_max));
+    add_item(d->summary, &ns, "evidence",
+             doc_str(d, "%zu independent windows (the unit of evidence)", m->n_windows));
+    r->fit_summary = d->summary;
+    r->n_fit_summary = ns;
+
+    if (m->has_hetp) {
+        size_t nh = 0;
+        add_item(d->hetp, &nh, "packed height", doc_str(d, "%.4g m", m->height_m));
+        add_item(d->hetp, &nh, "reference condition",
+                 m->has_load ? doc_str(d, "R = %s, F = %.4g Pa^0.5", fmt_r(d, m->hetp_r), m->hetp_f)
+                             : doc_str(d, "R = %s", fmt_r(d, m->hetp_r)));
+        add_item(d->hetp, &nh, "HETP",
+                 isfinite(m->hetp_high_m)
+                     ? doc_str(d, "%.4g m (%.0f %% interval %.4g \xe2\x80\x93 %.4g m)", m->hetp_m,
+                               100 * m->hetp_level, m->hetp_low_m, m->hetp_high_m)
+                     : doc_str(d, "%.4g m (%.0f %% interval from %.4g m, unbounded above)",
+                               m->hetp_m, 100 * m->hetp_level, m->hetp_low_m));
+        r->hetp = d->hetp;
+        r->n_hetp = nh;
+    }
+
+    for (size_t i = 0; i < m->n_warnings; i++)
+        add_warning(d, m->warnings[i]);
+    size_t outside = 0;
+    for (size_t i = 0; pts && i < pts->n; i++) {
+        stagecal_model_point q;
+        double f = pts->f_load ? pts->f_load[i] : f_mid;
+        if (stagecal_model_eval(m, pts->r[i], f, 0, &q, NULL) == STAGECAL_OK && q.extrapolated) {
+            if (outside++ < 10)
+                add_warning(d, doc_str(d,
+                                       "point %zu (R = %s) lies outside the fitted envelope: "
+                                       "the correlation is extrapolated there",
+                                       i + 1, fmt_r(d, pts->r[i])));
+        }
+    }
+    if (outside > 10)
+        add_warning(d, doc_str(d, "%zu more points lie outside the fitted envelope", outside - 10));
+    r->warnings = d->warn;
+
+    rc = doc_fit_chart(d, m, pts, f_mid, err);
+    if (rc == STAGECAL_OK && pts && pts->n > 0)
+        rc = doc_resid_chart(d, m, pts, err);
+    if (rc == STAGECAL_OK && d->oom)
+        rc = error_set(err, STAGECAL_ENOMEM, "out of memory building the report");
+    if (rc) {
+        stagecal_report_doc_free(d);
+        return rc;
+    }
+    r->figures = d->figs;
+    r->n_figures = d->n_charts;
+    *out = d;
+    return STAGECAL_OK;
+}

@@ -1,0 +1,696 @@
+/*
+ * runlog.c — reading and validating run logs (see stagecal/runlog.h, docs/runlog.md).
+ *
+ * The file is fed to libcsv one physical line at a time (getline), so the row
+ * callback knows the line number it ends on; cells are parsed and range-checked
+ * in the field callback while their text is at hand (messages quote the text as
+ * logged), and sequence checks (time increasing, W falling, xD ≥ xB) run at the
+ * end of each row against the previous row of the same run. Storage is columnar
+ * and grows geometrically (×2), so memory stays at a few doubles per row for
+ * 10^6-row logs. Units are converted at the cell: mole-basis values to SI at
+ * once; mass-basis values (kg, kg/kg, wt%, kg/h) at the end of the row, when the
+ * composition needed for the molar mass is known.
+ */
+#include "stagecal/runlog.h"
+
+#include <csv.h>
+#include <errno.h>
+#include <math.h>
+#include <stdarg.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+
+/* ---- findings ---------------------------------------------------------------------- */
+
+stagecal_findings *stagecal_findings_alloc(size_t max_items)
+{
+    stagecal_findings *f = calloc(1, sizeof *f);
+    if (!f)
+        return NULL;
+    f->items = calloc(max_items ? max_items : 1, sizeof *f->items);
+    if (!f->items) {
+        free(f);
+        return NULL;
+    }
+    f->max_items = max_items ? max_items : 1;
+    return f;
+}
+
+void stagecal_findings_free(stagecal_findings *f)
+{
+    if (!f)
+        return;
+    free(f->items);
+    free(f);
+}
+
+stagecal_runlog_params stagecal_runlog_default_params(void)
+{
+    stagecal_runlog_params p = {5, 3.0, 1000};
+    return p;
+}
+
+/* ---- storage ----------------------------------------------------------------------- */
+
+stagecal_runlog *stagecal_runlog_alloc(void)
+{
+    return calloc(1, sizeof(stagecal_runlog));
+}
+
+void stagecal_runlog_free(stagecal_runlog *log)
+{
+    if (!log)
+        return;
+    free(log->t_s);
+    free(log->w_mol);
+    free(log->xd);
+    free(log->xb);
+    free(log->r);
+    free(log->v_mol_s);
+    free(log->p_pa);
+    free(log->t_top_k);
+    free(log->t_pot_k);
+    free(log->line);
+    free(log->run);
+    free(log->runs);
+    free(log->files);
+    free(log);
+}
+
+static int grow_doubles(double **a, size_t n, size_t cap)
+{
+    if (!*a)
+        return 0; /* optional signal not present */
+    double *p = realloc(*a, cap * sizeof *p);
+    if (!p)
+        return -1;
+    for (size_t i = n; i < cap; i++)
+        p[i] = NAN;
+    *a = p;
+    return 0;
+}
+
+static int grow_rows(stagecal_runlog *log)
+{
+    size_t cap = log->cap ? 2 * log->cap : 4096;
+    double **arr[] = {&log->t_s,     &log->w_mol, &log->xd,      &log->xb,     &log->r,
+                      &log->v_mol_s, &log->p_pa,  &log->t_top_k, &log->t_pot_k};
+    for (size_t i = 0; i < sizeof arr / sizeof arr[0]; i++) {
+        if (i < 5 && !*arr[i]) {
+            *arr[i] = malloc(sizeof(double)); /* required signals always exist */
+            if (!*arr[i])
+                return -1;
+        }
+        if (grow_doubles(arr[i], log->n, cap) != 0)
+            return -1;
+    }
+    uint32_t *l = realloc(log->line, cap * sizeof *l);
+    if (!l)
+        return -1;
+    log->line = l;
+    uint32_t *r = realloc(log->run, cap * sizeof *r);
+    if (!r)
+        return -1;
+    log->run = r;
+    log->cap = cap;
+    return 0;
+}
+
+/* Allocates an optional signal's array (NaN for the rows already stored). */
+static int ensure_optional(stagecal_runlog *log, double **a)
+{
+    if (*a)
+        return 0;
+    size_t cap = log->cap ? log->cap : 1;
+    *a = malloc(cap * sizeof **a);
+    if (!*a)
+        return -1;
+    for (size_t i = 0; i < cap; i++)
+        (*a)[i] = NAN;
+    return 0;
+}
+
+/* ---- the reader -------------------------------------------------------------------- */
+
+static const char *const role_names[STAGECAL_RL_NCOL] = {
+    [STAGECAL_RL_TIME] = "time",  [STAGECAL_RL_W] = "W",     [STAGECAL_RL_XD] = "xD",
+    [STAGECAL_RL_XB] = "xB",      [STAGECAL_RL_R] = "R",     [STAGECAL_RL_V] = "V",
+    [STAGECAL_RL_Q] = "Q",        [STAGECAL_RL_P] = "P",     [STAGECAL_RL_TTOP] = "T_top",
+    [STAGECAL_RL_TPOT] = "T_pot", [STAGECAL_RL_RUN] = "run",
+};
+
+static const stagecal_quantity role_qty[STAGECAL_RL_NCOL] = {
+    [STAGECAL_RL_TIME] = STAGECAL_QTY_TIME,        [STAGECAL_RL_W] = STAGECAL_QTY_AMOUNT,
+    [STAGECAL_RL_XD] = STAGECAL_QTY_FRACTION,      [STAGECAL_RL_XB] = STAGECAL_QTY_FRACTION,
+    [STAGECAL_RL_R] = STAGECAL_QTY_RATIO,          [STAGECAL_RL_V] = STAGECAL_QTY_FLOW,
+    [STAGECAL_RL_Q] = STAGECAL_QTY_DUTY,           [STAGECAL_RL_P] = STAGECAL_QTY_PRESSURE,
+    [STAGECAL_RL_TTOP] = STAGECAL_QTY_TEMPERATURE, [STAGECAL_RL_TPOT] = STAGECAL_QTY_TEMPERATURE,
+    [STAGECAL_RL_RUN] = STAGECAL_QTY_LABEL,
+};
+
+#define HDR_MAX 48
+#define MAX_FIELDS 256
+
+struct reader {
+    stagecal_runlog *log;
+    const stagecal_column *col;
+    stagecal_runlog_params par;
+    stagecal_findings *f;
+    stagecal_error *err;
+    const char *source;
+    size_t file;
+    long line; /* current physical line */
+    int header_done;
+    int fatal; /* header unusable: rows are skipped */
+    int oom;
+    size_t nhdr;
+    char hdr[MAX_FIELDS][HDR_MAX];  /* header cells as written */
+    int role[MAX_FIELDS];           /* role of each field, −1 = ignored */
+    int field_of[STAGECAL_RL_NCOL]; /* field of each role, −1 = absent */
+    stagecal_unit unit[STAGECAL_RL_NCOL];
+    /* the row being read */
+    size_t field;
+    double val[STAGECAL_RL_NCOL]; /* converted (mass basis: still in kg units) */
+    double raw[STAGECAL_RL_NCOL]; /* as logged */
+    char time_text[40];
+    char run_text[64];
+    /* the previous row of the current run */
+    int have_run;
+    size_t cur_run;
+    int prev_t_ok, prev_w_ok;
+    double prev_t;
+    char prev_t_text[40];
+    double prev_w_si, prev_w_raw;
+    /* missing-value bookkeeping */
+    size_t nmissing[STAGECAL_RL_NCOL];
+    long first_missing[STAGECAL_RL_NCOL];
+    size_t file_rows;
+};
+
+static void vfinding(struct reader *rd, int sev, long line, const char *column, const char *fmt,
+                     va_list ap)
+{
+    stagecal_findings *f = rd->f;
+    if (!f)
+        return;
+    if (sev == STAGECAL_FINDING_ERROR)
+        f->n_errors++;
+    else
+        f->n_warnings++;
+    if (f->n >= f->max_items)
+        return;
+    stagecal_finding *it = &f->items[f->n++];
+    it->severity = sev;
+    it->line = line;
+    snprintf(it->source, sizeof it->source, "%s", rd->source);
+    snprintf(it->column, sizeof it->column, "%s", column ? column : "");
+    int k = line > 0 ? snprintf(it->text, sizeof it->text, "%s:%ld: ", rd->source, line)
+                     : snprintf(it->text, sizeof it->text, "%s: ", rd->source);
+    if (k < 0 || (size_t)k >= sizeof it->text)
+        k = (int)strlen(it->text);
+    vsnprintf(it->text + k, sizeof it->text - (size_t)k, fmt, ap);
+}
+
+static void finding(struct reader *rd, int sev, long line, const char *column, const char *fmt, ...)
+    SC_PRINTF(5, 6);
+static void finding(struct reader *rd, int sev, long line, const char *column, const char *fmt, ...)
+{
+    va_list ap;
+    va_start(ap, fmt);
+    vfinding(rd, sev, line, column, fmt, ap);
+    va_end(ap);
+}
+
+/* Header failure that makes the file unusable: a finding and the call's error. */
+static void fatal(struct reader *rd, long line, const char *column, const char *fmt, ...)
+    SC_PRINTF(4, 5);
+static void fatal(struct reader *rd, long line, const char *column, const char *fmt, ...)
+{
+    va_list ap;
+    char msg[300];
+    va_start(ap, fmt);
+    vsnprintf(msg, sizeof msg, fmt, ap);
+    va_end(ap);
+    finding(rd, STAGECAL_FINDING_ERROR, line, column, "%s", msg);
+    if (!rd->fatal)
+        error_set_at(rd->err, STAGECAL_EDATA, rd->source, line, 0, "%s", msg);
+    rd->fatal = 1;
+}
+
+static int role_of(const char *name)
+{
+    for (int i = 0; i < STAGECAL_RL_NCOL; i++)
+        if (strcmp(role_names[i], name) == 0)
+            return i;
+    return -1;
+}
+
+static int has_molar_masses(const stagecal_column *col)
+{
+    return col && col->system.m_light > 0 && col->system.m_heavy > 0;
+}
+
+static void header_cell(struct reader *rd, const char *cell)
+{
+    size_t i = rd->nhdr;
+    if (i >= MAX_FIELDS) {
+        if (i == MAX_FIELDS)
+            fatal(rd, rd->line, NULL, "more than %d columns", MAX_FIELDS);
+        rd->nhdr++;
+        return;
+    }
+    rd->nhdr++;
+    snprintf(rd->hdr[i], HDR_MAX, "%s", cell);
+    rd->role[i] = -1;
+    char name[HDR_MAX], unit[HDR_MAX];
+    int has_unit;
+    stagecal_error e;
+    if (stagecal_units_split(cell, name, sizeof name, unit, sizeof unit, &has_unit, &e) != 0) {
+        finding(rd, STAGECAL_FINDING_ERROR, rd->line, cell, "%s", e.text);
+        return;
+    }
+    int role = role_of(name);
+    if (role < 0) {
+        finding(rd, STAGECAL_FINDING_WARNING, rd->line, cell,
+                "unknown column '%s' ignored (expected time, W, xD, xB, R, V, Q, P, T_top, "
+                "T_pot or run)",
+                cell);
+        return;
+    }
+    if (rd->field_of[role] >= 0) {
+        finding(rd, STAGECAL_FINDING_ERROR, rd->line, cell,
+                "duplicate column '%s' ignored (column '%s' came first)", cell,
+                rd->hdr[rd->field_of[role]]);
+        return;
+    }
+    stagecal_unit u;
+    const char *why = NULL;
+    char msg[STAGECAL_ERROR_TEXT + 2 * HDR_MAX];
+    if (stagecal_units_parse(role_qty[role], unit, &u, &e) != 0)
+        why = e.text;
+    else if (u.mass && !has_molar_masses(rd->col))
+        why = "a mass basis needs the molar masses (expected a column file that states them)";
+    else if (role == STAGECAL_RL_Q && !(rd->col && rd->col->system.latent_j_mol > 0))
+        why = "a heat duty needs the latent heat (expected a column file that states it)";
+    if (why) {
+        /* present but unusable (not "missing"); fatal when the column is required */
+        snprintf(msg, sizeof msg, "column '%s': %s", cell, why);
+        rd->field_of[role] = -2;
+        if (role <= STAGECAL_RL_R)
+            fatal(rd, rd->line, cell, "%s", msg);
+        else
+            finding(rd, STAGECAL_FINDING_ERROR, rd->line, cell, "%s", msg);
+        return;
+    }
+    rd->unit[role] = u;
+    rd->field_of[role] = (int)i;
+    rd->role[i] = role;
+}
+
+static void header_done(struct reader *rd)
+{
+    static const int required[] = {STAGECAL_RL_TIME, STAGECAL_RL_W, STAGECAL_RL_XD, STAGECAL_RL_XB,
+                                   STAGECAL_RL_R};
+    rd->header_done = 1;
+    for (size_t k = 0; k < sizeof required / sizeof required[0]; k++) {
+        int r = required[k];
+        if (rd->field_of[r] == -1)
+            fatal(rd, rd->line, NULL, "missing column '%s' (required: time, W, xD, xB, R)",
+                  role_names[r]);
+    }
+    if (rd->field_of[STAGECAL_RL_V] >= 0 && rd->field_of[STAGECAL_RL_Q] >= 0) {
+        int q = rd->field_of[STAGECAL_RL_Q];
+        finding(rd, STAGECAL_FINDING_WARNING, rd->line, rd->hdr[q],
+                "column '%s' ignored (column '%s' gives the boil-up)", rd->hdr[q],
+                rd->hdr[rd->field_of[STAGECAL_RL_V]]);
+        rd->role[q] = -1;
+        rd->field_of[STAGECAL_RL_Q] = -1;
+    }
+    if (rd->fatal)
+        return;
+    stagecal_runlog *log = rd->log;
+    if (rd->field_of[STAGECAL_RL_V] >= 0 || rd->field_of[STAGECAL_RL_Q] >= 0)
+        rd->oom |= ensure_optional(log, &log->v_mol_s);
+    if (rd->field_of[STAGECAL_RL_P] >= 0)
+        rd->oom |= ensure_optional(log, &log->p_pa);
+    if (rd->field_of[STAGECAL_RL_TTOP] >= 0)
+        rd->oom |= ensure_optional(log, &log->t_top_k);
+    if (rd->field_of[STAGECAL_RL_TPOT] >= 0)
+        rd->oom |= ensure_optional(log, &log->t_pot_k);
+}
+
+static int parse_number(const char *s, int allow_inf, double *v)
+{
+    if (allow_inf && (strcmp(s, "inf") == 0 || strcmp(s, "Inf") == 0 || strcmp(s, "INF") == 0 ||
+                      strcmp(s, "infinity") == 0)) {
+        *v = INFINITY;
+        return 0;
+    }
+    char *end;
+    errno = 0;
+    double x = strtod(s, &end);
+    if (end == s || *end != '\0' || errno == ERANGE || !isfinite(x))
+        return -1;
+    *v = x;
+    return 0;
+}
+
+static void data_cell(struct reader *rd, const char *s, size_t len)
+{
+    size_t i = rd->field++;
+    if (i >= rd->nhdr || i >= MAX_FIELDS || rd->role[i] < 0)
+        return;
+    int role = rd->role[i];
+    const char *h = rd->hdr[i];
+    const stagecal_unit *u = &rd->unit[role];
+    if (len == 0) {
+        if (role != STAGECAL_RL_RUN && rd->nmissing[role]++ == 0)
+            rd->first_missing[role] = rd->line;
+        return;
+    }
+    if (role == STAGECAL_RL_RUN) {
+        snprintf(rd->run_text, sizeof rd->run_text, "%s", s);
+        return;
+    }
+    double x;
+    if (role == STAGECAL_RL_TIME && u->iso8601) {
+        if (stagecal_units_parse_iso8601(s, &x) != 0) {
+            finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
+                    "column '%s': value '%s' is not an ISO 8601 timestamp", h, s);
+            return;
+        }
+        snprintf(rd->time_text, sizeof rd->time_text, "%s", s);
+        rd->raw[role] = x;
+        rd->val[role] = x;
+        return;
+    }
+    if (parse_number(s, role == STAGECAL_RL_R, &x) != 0) {
+        finding(rd, STAGECAL_FINDING_ERROR, rd->line, h, "column '%s': value '%s' is not a number",
+                h, s);
+        return;
+    }
+    if (u->qty == STAGECAL_QTY_FRACTION && !(x >= u->lo && x <= u->hi)) {
+        finding(rd, STAGECAL_FINDING_ERROR, rd->line, h, "column '%s': value '%s' outside [0, %g]",
+                h, s, u->hi);
+        return;
+    }
+    if (u->qty == STAGECAL_QTY_TEMPERATURE && !(x >= u->lo)) {
+        finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
+                "column '%s': value '%s' is below absolute zero", h, s);
+        return;
+    }
+    if (role == STAGECAL_RL_R && x < 0) {
+        finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
+                "column '%s': value '%s' is negative (expected R >= 0 or inf)", h, s);
+        return;
+    }
+    if (u->lo == 0 && x < 0) {
+        finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
+                "column '%s': value '%s' is negative (expected a value >= 0)", h, s);
+        return;
+    }
+    if (role == STAGECAL_RL_TIME)
+        snprintf(rd->time_text, sizeof rd->time_text, "%s", s);
+    rd->raw[role] = x;
+    rd->val[role] = x * u->scale + u->offset;
+}
+
+static void on_field(void *s, size_t len, void *data)
+{
+    struct reader *rd = data;
+    if (rd->oom)
+        return;
+    if (!rd->header_done)
+        header_cell(rd, s ? (const char *)s : "");
+    else if (!rd->fatal)
+        data_cell(rd, s ? (const char *)s : "", s ? len : 0);
+}
+
+static double molar_mass(const stagecal_column *col, double x)
+{
+    return x * col->system.m_light + (1.0 - x) * col->system.m_heavy;
+}
+
+static int start_run(struct reader *rd, const char *name)
+{
+    stagecal_runlog *log = rd->log;
+    stagecal_runlog_run *runs = realloc(log->runs, (log->nruns + 1) * sizeof *runs);
+    if (!runs)
+        return -1;
+    log->runs = runs;
+    stagecal_runlog_run *r = &runs[log->nruns];
+    memset(r, 0, sizeof *r);
+    snprintf(r->name, sizeof r->name, "%s", name);
+    r->file = rd->file;
+    r->first = log->n;
+    r->first_line = rd->line;
+    rd->cur_run = log->nruns++;
+    rd->have_run = 1;
+    rd->prev_t_ok = rd->prev_w_ok = 0;
+    return 0;
+}
+
+static void close_run(struct reader *rd)
+{
+    if (!rd->have_run)
+        return;
+    stagecal_runlog_run *r = &rd->log->runs[rd->cur_run];
+    if (r->n < rd->par.min_rows)
+        finding(rd, STAGECAL_FINDING_ERROR, r->first_line, NULL,
+                "run '%s' has %zu rows (expected at least %zu)", r->name, r->n, rd->par.min_rows);
+}
+
+static void end_row(struct reader *rd)
+{
+    stagecal_runlog *log = rd->log;
+    const stagecal_column *col = rd->col;
+    double *v = rd->val;
+    if (rd->field != rd->nhdr) {
+        finding(rd, STAGECAL_FINDING_ERROR, rd->line, NULL, "%zu fields, expected %zu", rd->field,
+                rd->nhdr);
+        return;
+    }
+    /* The run this row belongs to (runs are contiguous). */
+    const char *name = rd->field_of[STAGECAL_RL_RUN] >= 0 && rd->run_text[0] ? rd->run_text
+                       : rd->have_run ? log->runs[rd->cur_run].name
+                                      : rd->source;
+    if (!rd->have_run || strcmp(name, log->runs[rd->cur_run].name) != 0) {
+        char prev[64] = "";
+        if (rd->have_run)
+            snprintf(prev, sizeof prev, "%s", log->runs[rd->cur_run].name);
+        for (size_t k = 0; rd->have_run && k < log->nruns; k++)
+            if (log->runs[k].file == rd->file && strcmp(log->runs[k].name, name) == 0) {
+                finding(rd, STAGECAL_FINDING_ERROR, rd->line, NULL,
+                        "run '%s' resumes after run '%s' (expected the rows of a run together)",
+                        name, prev);
+                break;
+            }
+        close_run(rd);
+        if (start_run(rd, name) != 0) {
+            rd->oom = 1;
+            return;
+        }
+    }
+    /* Mass basis → mole basis, now that the compositions are known. */
+    const stagecal_unit *u = rd->unit;
+    if (rd->field_of[STAGECAL_RL_XD] >= 0 && u[STAGECAL_RL_XD].mass && !isnan(v[STAGECAL_RL_XD]))
+        v[STAGECAL_RL_XD] =
+            stagecal_vle_mass_to_mole(v[STAGECAL_RL_XD], col->system.m_light, col->system.m_heavy);
+    if (rd->field_of[STAGECAL_RL_XB] >= 0 && u[STAGECAL_RL_XB].mass && !isnan(v[STAGECAL_RL_XB]))
+        v[STAGECAL_RL_XB] =
+            stagecal_vle_mass_to_mole(v[STAGECAL_RL_XB], col->system.m_light, col->system.m_heavy);
+    if (u[STAGECAL_RL_W].mass)
+        v[STAGECAL_RL_W] = v[STAGECAL_RL_W] / molar_mass(col, v[STAGECAL_RL_XB]); /* NaN if xB is */
+    double vap = NAN;
+    if (rd->field_of[STAGECAL_RL_V] >= 0) {
+        vap = v[STAGECAL_RL_V];
+        if (u[STAGECAL_RL_V].mass) /* the vapour at the top has the distillate's composition */
+            vap /= molar_mass(col, v[STAGECAL_RL_XD]);
+    } else if (rd->field_of[STAGECAL_RL_Q] >= 0) {
+        vap = v[STAGECAL_RL_Q] / col->system.latent_j_mol;
+    }
+
+    /* Sequence checks against the previous row of this run. */
+    const char *ht = rd->hdr[rd->field_of[STAGECAL_RL_TIME]];
+    const char *hw = rd->hdr[rd->field_of[STAGECAL_RL_W]];
+    double t = v[STAGECAL_RL_TIME];
+    if (!isnan(t)) {
+        if (rd->prev_t_ok && !(t > rd->prev_t))
+            finding(rd, STAGECAL_FINDING_ERROR, rd->line, ht,
+                    "column '%s': time '%s' is not after the previous sample's '%s' (expected "
+                    "increasing time within run '%s')",
+                    ht, rd->time_text, rd->prev_t_text, log->runs[rd->cur_run].name);
+        rd->prev_t = t;
+        rd->prev_t_ok = 1;
+        snprintf(rd->prev_t_text, sizeof rd->prev_t_text, "%s", rd->time_text);
+    }
+    double w = v[STAGECAL_RL_W], r = v[STAGECAL_RL_R];
+    if (!isnan(w)) {
+        double uw = col ? col->u.w_mol : 0.0;
+        if (rd->prev_w_ok && isfinite(r) && r > 0 &&
+            w - rd->prev_w_si > rd->par.w_rise_sigmas * sqrt(2.0) * uw && w > rd->prev_w_si)
+            finding(rd, STAGECAL_FINDING_WARNING, rd->line, hw,
+                    "column '%s': holdup rose from %g to %g while distillate was drawn (expected "
+                    "W to fall during production)",
+                    hw, rd->prev_w_raw, rd->raw[STAGECAL_RL_W]);
+        rd->prev_w_si = w;
+        rd->prev_w_raw = rd->raw[STAGECAL_RL_W];
+        rd->prev_w_ok = 1;
+    }
+    double xd = v[STAGECAL_RL_XD], xb = v[STAGECAL_RL_XB];
+    if (xd < xb) /* false when either is missing */
+        finding(rd, STAGECAL_FINDING_ERROR, rd->line, rd->hdr[rd->field_of[STAGECAL_RL_XD]],
+                "xD %.6g is below xB %.6g (expected xD >= xB in a rectifier)", xd, xb);
+
+    if (log->n == log->cap && grow_rows(log) != 0) {
+        rd->oom = 1;
+        return;
+    }
+    size_t n = log->n++;
+    log->t_s[n] = t;
+    log->w_mol[n] = w;
+    log->xd[n] = xd;
+    log->xb[n] = xb;
+    log->r[n] = r;
+    if (log->v_mol_s)
+        log->v_mol_s[n] = vap;
+    if (log->p_pa)
+        log->p_pa[n] = rd->field_of[STAGECAL_RL_P] >= 0 ? v[STAGECAL_RL_P] : NAN;
+    if (log->t_top_k)
+        log->t_top_k[n] = rd->field_of[STAGECAL_RL_TTOP] >= 0 ? v[STAGECAL_RL_TTOP] : NAN;
+    if (log->t_pot_k)
+        log->t_pot_k[n] = rd->field_of[STAGECAL_RL_TPOT] >= 0 ? v[STAGECAL_RL_TPOT] : NAN;
+    log->line[n] = (uint32_t)rd->line;
+    log->run[n] = (uint32_t)rd->cur_run;
+    log->runs[rd->cur_run].n++;
+    rd->file_rows++;
+}
+
+static void on_row(int c, void *data)
+{
+    struct reader *rd = data;
+    (void)c;
+    if (rd->oom)
+        return;
+    if (!rd->header_done) {
+        header_done(rd);
+    } else if (!rd->fatal) {
+        end_row(rd);
+    }
+    /* reset the row */
+    rd->field = 0;
+    for (int i = 0; i < STAGECAL_RL_NCOL; i++)
+        rd->val[i] = rd->raw[i] = NAN;
+    rd->run_text[0] = '\0';
+    rd->time_text[0] = '\0';
+}
+
+int stagecal_runlog_read_stream(stagecal_runlog *log, FILE *in, const char *source,
+                                const stagecal_column *col, const stagecal_runlog_params *params,
+                                stagecal_findings *f, stagecal_error *err)
+{
+    struct reader *rd = calloc(1, sizeof *rd);
+    if (!rd)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    stagecal_error_clear(err);
+    char(*files)[160] = realloc(log->files, (log->nfiles + 1) * sizeof *files);
+    if (!files) {
+        free(rd);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    log->files = files;
+    snprintf(files[log->nfiles], sizeof files[0], "%s", source);
+    rd->file = log->nfiles++;
+    rd->log = log;
+    rd->col = col;
+    rd->par = params ? *params : stagecal_runlog_default_params();
+    rd->f = f;
+    rd->err = err;
+    rd->source = source;
+    for (int i = 0; i < STAGECAL_RL_NCOL; i++) {
+        rd->field_of[i] = -1;
+        rd->val[i] = rd->raw[i] = NAN;
+    }
+    struct csv_parser p;
+    if (csv_init(&p, CSV_APPEND_NULL) != 0) {
+        free(rd);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    char *buf = NULL;
+    size_t cap = 0;
+    ssize_t len;
+    while (!rd->oom && (len = getline(&buf, &cap, in)) > 0) {
+        rd->line++;
+        if (csv_parse(&p, buf, (size_t)len, on_field, on_row, rd) != (size_t)len) {
+            finding(rd, STAGECAL_FINDING_ERROR, rd->line, NULL, "%s", csv_strerror(csv_error(&p)));
+            break;
+        }
+    }
+    int read_failed = ferror(in);
+    csv_fini(&p, on_field, on_row, rd);
+    csv_free(&p);
+    free(buf);
+    int rc = STAGECAL_OK;
+    if (rd->oom) {
+        rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
+    } else if (read_failed) {
+        rc = error_set_at(err, STAGECAL_ENOINPUT, source, 0, 0, "read error");
+    } else if (!rd->header_done) {
+        fatal(rd, 0, NULL, "no header row (expected time, W, xD, xB, R columns)");
+        rc = STAGECAL_EDATA;
+    } else if (rd->fatal) {
+        rc = STAGECAL_EDATA;
+    } else {
+        close_run(rd);
+        if (rd->file_rows == 0)
+            finding(rd, STAGECAL_FINDING_ERROR, 0, NULL, "no data rows");
+        for (int i = 0; i < STAGECAL_RL_NCOL; i++)
+            if (rd->nmissing[i] && rd->field_of[i] >= 0) {
+                const char *h = rd->hdr[rd->field_of[i]];
+                finding(rd, STAGECAL_FINDING_WARNING, 0, h,
+                        "column '%s': %zu missing values (first at line %ld)", h, rd->nmissing[i],
+                        rd->first_missing[i]);
+            }
+    }
+    free(rd);
+    return rc;
+}
+
+int stagecal_runlog_read(stagecal_runlog *log, const char *path, const stagecal_column *col,
+                         const stagecal_runlog_params *params, stagecal_findings *f,
+                         stagecal_error *err)
+{
+    if (strcmp(path, "-") == 0)
+        return stagecal_runlog_read_stream(log, stdin, "-", col, params, f, err);
+    FILE *in = fopen(path, "r");
+    if (!in)
+        return error_set_at(err, STAGECAL_ENOINPUT, path, 0, 0, "cannot open: %s", strerror(errno));
+    int rc = stagecal_runlog_read_stream(log, in, path, col, params, f, err);
+    fclose(in);
+    return rc;
+}
+
+int stagecal_runlog_read_buffer(stagecal_runlog *log, const char *text, size_t len,
+                                const char *source, const stagecal_column *col,
+                                const stagecal_runlog_params *params, stagecal_findings *f,
+                                stagecal_error *err)
+{
+    if (len == 0) { /* fmemopen rejects a zero size */
+        stagecal_findings *ff = f;
+        struct reader rd0;
+        memset(&rd0, 0, sizeof rd0);
+        rd0.f = ff;
+        rd0.err = err;
+        rd0.source = source;
+        fatal(&rd0, 0, NULL, "no header row (expected time, W, xD, xB, R columns)");
+        return STAGECAL_EDATA;
+    }
+    FILE *in = fmemopen((void *)(uintptr_t)text, len, "r");
+    if (!in)
+        return error_set(err, STAGECAL_ENOMEM, "cannot open memory stream");
+    int rc = stagecal_runlog_read_stream(log, in, source, col, params, f, err);
+    fclose(in);
+    return rc;
+}

@@ -1,0 +1,437 @@
+/*
+ * runlog_analysis.c — what a run log says about itself, before and after the
+ * stage inversion: the Rayleigh pot balance per run (closure error, gross errors,
+ * analyser drift, reconciled xB) and the quasi-steady windows.
+ *
+ * Pot balance (Rayleigh; column holdup neglected). The light holdup
+ * h = W·xB + ∫ xD d(−W) is conserved: h_k = W_k·xB_k + I_k with I_k the
+ * trapezoid integral of xD over the holdup removed up to sample k. The closure
+ * error of a run is (h_0 − h_n)/h_0. The reconciled pot composition is
+ * xB_rec,k = (Ĥ − I_k)/W_k, Ĥ the median of the h_k: anchoring at the first
+ * sample alone would carry that sample's noise, amplified by W_0/W_k, into every
+ * reconciled value. e_k = xB_k − xB_rec,k is white noise when W, xD and xB agree;
+ * a gross error makes single e_k large. An xB analyser reading xB + d·t adds
+ * W_k·d·t_k to h_k, so d is the slope of a weighted straight-line fit of h_k on
+ * W_k·t_k (GSL gsl_fit_wlinear). See docs/methods.md.
+ *
+ * Quasi-steady windows. Cao & Rhinehart's ratio of variances (REFERENCES §9) needs
+ * a signal that is stationary at steady state. In a batch run xD and xB are not:
+ * they fall as the pot is depleted, and the statistic would call a whole run
+ * transient. It is therefore applied to (a) the per-sample effective stages, which
+ * are stationary while the column is quasi-steady and move during start-up and
+ * after reflux changes, and (b) the balance residual e_k (xB with the batch trend
+ * removed). Reflux is a set point: a change of R starts a transient outright.
+ * Hysteresis: steady after every signal's R < r_enter, transient again when any
+ * R > r_leave.
+ */
+#include "stagecal/runlog.h"
+
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_fit.h>
+#include <gsl/gsl_sort.h>
+#include <gsl/gsl_statistics_double.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "runlog_internal.h"
+
+stagecal_runlog_analysis_params stagecal_runlog_analysis_default_params(void)
+{
+    stagecal_runlog_analysis_params p;
+    p.lambda1 = 0.2;
+    p.lambda2 = 0.1;
+    p.lambda3 = 0.1;
+    p.r_enter = 1.44;
+    p.r_leave = 2.5;
+    p.warmup = 15;
+    p.min_window = 6;
+    p.gross_sigmas = 3.0;
+    p.drift_t = 4.0;
+    p.drift_u = 2.0;
+    p.outlier_sigmas = 4.0;
+    p.no_distillate_t = 2.0;
+    return p;
+}
+
+int stagecal_runlog_rstat(const double *x, size_t n, double l1, double l2, double l3,
+                          double floor_var, double *r, stagecal_error *err)
+{
+    if (!(l1 > 0 && l1 <= 1 && l2 > 0 && l2 <= 1 && l3 > 0 && l3 <= 1) || !(floor_var >= 0))
+        return error_set(err, STAGECAL_EINVAL,
+                         "filter factors must lie in (0, 1] and the floor be >= 0");
+    if (n < 2)
+        return error_set(err, STAGECAL_EINVAL, "the R-statistic needs at least 2 samples");
+    size_t i = 0;
+    while (i < n && isnan(x[i])) /* start at the first present sample */
+        r[i > 0 ? i - 1 : 0] = 1.0, i++;
+    if (i >= n)
+        return STAGECAL_OK;
+    double xf = x[i], prev = x[i], v2 = 0.0, d2 = 0.0, last = 1.0;
+    for (i = i + 1; i < n; i++) {
+        if (isnan(x[i])) {
+            r[i - 1] = last;
+            continue;
+        }
+        double dv = x[i] - xf;
+        v2 = l2 * dv * dv + (1.0 - l2) * v2;
+        xf = l1 * x[i] + (1.0 - l1) * xf;
+        double dd = x[i] - prev;
+        d2 = l3 * dd * dd + (1.0 - l3) * d2;
+        prev = x[i];
+        double num = (2.0 - l1) * v2 + 2.0 * floor_var, den = d2 + 2.0 * floor_var;
+        /* 0/0 (a constant signal without a floor) carries no evidence of change */
+        last = den > 0 ? num / den : (num > 0 ? 1e300 : 1.0);
+        r[i - 1] = last;
+    }
+    return STAGECAL_OK;
+}
+
+void result_free_members(stagecal_runlog_result *res)
+{
+    free(res->flags);
+    free(res->window);
+    free(res->xb_rec);
+    free(res->status);
+    free(res->note);
+    free(res->stages);
+    free(res->u_stages);
+    free(res->lv);
+    free(res->f_factor);
+    free(res->windows);
+    free(res->closures);
+    memset(res, 0, sizeof *res);
+}
+
+void stagecal_runlog_result_free(stagecal_runlog_result *res)
+{
+    if (res)
+        result_free_members(res);
+}
+
+/* Closure, reconciliation, outliers and drift of one run. */
+static int close_run(const stagecal_runlog *log, const stagecal_column *col, size_t k,
+                     const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
+                     double *h, double *e, double *t_h, size_t *idx)
+{
+    const stagecal_runlog_run *run = &log->runs[k];
+    stagecal_runlog_closure *c = &res->closures[k];
+    double uw = col ? col->u.w_mol : 0, uxd = col ? col->u.xd : 0, uxb = col ? col->u.xb : 0;
+    memset(c, 0, sizeof *c);
+    c->run = k;
+    size_t m = 0;
+    double integral = 0.0;
+    for (size_t i = run->first; i < run->first + run->n; i++) {
+        res->xb_rec[i] = NAN;
+        if (!(isfinite(log->w_mol[i]) && isfinite(log->xd[i]) && isfinite(log->xb[i])))
+            continue;
+        if (m > 0) {
+            size_t j = idx[m - 1];
+            integral += 0.5 * (log->xd[i] + log->xd[j]) * (log->w_mol[j] - log->w_mol[i]);
+        }
+        idx[m] = i;
+        h[m] = log->w_mol[i] * log->xb[i] + integral;
+        t_h[m] = log->t_s[i] / 3600.0;
+        m++;
+    }
+    c->n_used = m;
+    if (m < 3 || !(h[0] > 0))
+        return STAGECAL_OK;
+    c->closure = (h[0] - h[m - 1]) / h[0];
+    /* First-order propagation through h_0 − h_n (independent errors). */
+    double var = 0.0;
+    for (size_t a = 0; a < m; a++) {
+        size_t i = idx[a];
+        double xdp = a > 0 ? log->xd[idx[a - 1]] : log->xd[i];
+        double xdn = a + 1 < m ? log->xd[idx[a + 1]] : log->xd[i];
+        double wp = a > 0 ? log->w_mol[idx[a - 1]] : log->w_mol[i];
+        double wn = a + 1 < m ? log->w_mol[idx[a + 1]] : log->w_mol[i];
+        double dw = 0.5 * (xdp - xdn); /* interior: ∂(h0 − hn)/∂W_a */
+        if (a == 0)
+            dw = log->xb[i] - 0.5 * (log->xd[i] + xdn);
+        else if (a == m - 1)
+            dw = -log->xb[i] + 0.5 * (log->xd[i] + xdp);
+        double dxd = -0.5 * (wp - wn);
+        double dxb = a == 0 ? log->w_mol[i] : (a == m - 1 ? -log->w_mol[i] : 0.0);
+        var += dw * dw * uw * uw + dxd * dxd * uxd * uxd + dxb * dxb * uxb * uxb;
+    }
+    c->u_closure = sqrt(var) / h[0];
+    c->gross = c->u_closure > 0 && fabs(c->closure) > par->gross_sigmas * c->u_closure;
+
+    /* Anchor: median of the conserved holdup (robust to single bad samples). */
+    memcpy(e, h, m * sizeof *e);
+    gsl_sort(e, 1, m);
+    double anchor = gsl_stats_median_from_sorted_data(e, 1, m);
+    for (size_t a = 0; a < m; a++) {
+        size_t i = idx[a];
+        double integ = h[a] - log->w_mol[i] * log->xb[i];
+        res->xb_rec[i] = (anchor - integ) / log->w_mol[i];
+        e[a] = log->xb[i] - res->xb_rec[i];
+    }
+    /* Noise scale of xB: the stated u(xB), else a MAD scale of the residuals. */
+    double s = uxb;
+    if (!(s > 0)) {
+        double *tmp = h; /* h is no longer needed */
+        for (size_t a = 0; a < m; a++)
+            tmp[a] = fabs(e[a]);
+        gsl_sort(tmp, 1, m);
+        s = 1.4826 * gsl_stats_median_from_sorted_data(tmp, 1, m);
+    }
+    if (!(s > 0))
+        return STAGECAL_OK; /* a noiseless, perfectly closing run: nothing to flag */
+    /* Drift: an analyser reading xB + d·t adds W_k·d·t_k to h_k, so fit h = H + d·W·t
+     * (weights 1/(W·s)²; the covariance is scaled up by χ²/dof when the scatter exceeds
+     * the stated noise). Two passes: fit, flag samples off the fit by more than
+     * outlier_sigmas·s (gross errors), refit without them. */
+    double *x = malloc(m * sizeof *x), *y = malloc(m * sizeof *y), *wt = malloc(m * sizeof *wt);
+    if (!x || !y || !wt) {
+        free(x), free(y), free(wt);
+        return STAGECAL_ENOMEM;
+    }
+    for (size_t a = 0; a < m; a++) {
+        size_t i = idx[a];
+        double w = log->w_mol[i];
+        double integ = anchor - res->xb_rec[i] * w;           /* I_k, recovered */
+        x[a] = w * (log->t_s[i] - log->t_s[idx[0]]) / 3600.0; /* t from the run's start */
+        y[a] = w * log->xb[i] + integ;                        /* h_k */
+        wt[a] = 1.0 / (w * s * w * s);
+    }
+    double c0, c1, cov00, cov01, cov11, chisq;
+    size_t q = m;
+    for (int pass = 0; pass < 2; pass++) {
+        if (q < 3 || gsl_fit_wlinear(x, 1, wt, 1, y, 1, q, &c0, &c1, &cov00, &cov01, &cov11,
+                                     &chisq) != GSL_SUCCESS) {
+            q = 0;
+            break;
+        }
+        if (pass == 1)
+            break;
+        size_t kept = 0;
+        for (size_t a = 0; a < m; a++) {
+            size_t i = idx[a];
+            double w = log->w_mol[i];
+            if (fabs(y[a] - c0 - c1 * x[a]) / w > par->outlier_sigmas * s) {
+                res->flags[i] |= STAGECAL_SAMPLE_OUTLIER;
+                c->n_outliers++;
+                continue;
+            }
+            x[kept] = x[a], y[kept] = y[a], wt[kept] = wt[a];
+            kept++;
+        }
+        q = kept;
+    }
+    if (q >= 3 && isfinite(c1) && isfinite(cov11)) {
+        double scale = chisq / (double)(q - 2);
+        if (scale > 1)
+            cov11 *= scale;
+        double span = (log->t_s[idx[m - 1]] - log->t_s[idx[0]]) / 3600.0;
+        c->drift_per_h = c1;
+        c->u_drift_per_h = sqrt(cov11);
+        int big = uxb > 0 ? fabs(c1) * span > par->drift_u * uxb : 1;
+        c->drift = c->u_drift_per_h > 0 && fabs(c1) > par->drift_t * c->u_drift_per_h && big;
+    }
+    free(x), free(y), free(wt);
+    return STAGECAL_OK;
+}
+
+static void *alloc_n(size_t n, size_t size)
+{
+    return calloc(n ? n : 1, size);
+}
+
+int stagecal_runlog_analyse(const stagecal_runlog *log, const stagecal_column *col,
+                            const stagecal_runlog_analysis_params *params,
+                            stagecal_runlog_result *res, stagecal_error *err)
+{
+    stagecal_runlog_analysis_params par =
+        params ? *params : stagecal_runlog_analysis_default_params();
+    memset(res, 0, sizeof *res);
+    size_t n = log->n;
+    res->n = n;
+    res->nruns = log->nruns;
+    res->flags = alloc_n(n, 1);
+    res->window = alloc_n(n, sizeof *res->window);
+    res->xb_rec = alloc_n(n, sizeof(double));
+    res->status = alloc_n(n, 1);
+    res->note = alloc_n(n, 1);
+    res->stages = alloc_n(n, sizeof(double));
+    res->u_stages = alloc_n(n, sizeof(double));
+    res->lv = alloc_n(n, sizeof(double));
+    res->f_factor = alloc_n(n, sizeof(double));
+    res->closures = alloc_n(log->nruns, sizeof *res->closures);
+    size_t maxrun = 0;
+    for (size_t k = 0; k < log->nruns; k++)
+        if (log->runs[k].n > maxrun)
+            maxrun = log->runs[k].n;
+    double *h = alloc_n(maxrun, sizeof *h), *e = alloc_n(maxrun, sizeof *e),
+           *t = alloc_n(maxrun, sizeof *t);
+    size_t *idx = alloc_n(maxrun, sizeof *idx);
+    if (!res->flags || !res->window || !res->xb_rec || !res->status || !res->note || !res->stages ||
+        !res->u_stages || !res->lv || !res->f_factor || !res->closures || !h || !e || !t || !idx) {
+        free(h), free(e), free(t), free(idx);
+        result_free_members(res);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    for (size_t i = 0; i < n; i++) {
+        res->window[i] = -1;
+        res->f_factor[i] = NAN;
+    }
+    int rc = STAGECAL_OK;
+    for (size_t k = 0; k < log->nruns && rc == STAGECAL_OK; k++)
+        rc = close_run(log, col, k, &par, res, h, e, t, idx);
+    free(h), free(e), free(t), free(idx);
+    if (rc != STAGECAL_OK) {
+        result_free_members(res);
+        return error_set(err, rc, "out of memory");
+    }
+    return STAGECAL_OK;
+}
+
+/* Median of a[0..n) (a is reordered). */
+static double median_inplace(double *a, size_t n)
+{
+    gsl_sort(a, 1, n);
+    return gsl_stats_median_from_sorted_data(a, 1, n);
+}
+
+int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
+                   const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
+                   int (*reinvert)(void *ctx, size_t i), void *ctx, stagecal_error *err)
+{
+    size_t maxrun = 0;
+    for (size_t k = 0; k < log->nruns; k++)
+        if (log->runs[k].n > maxrun)
+            maxrun = log->runs[k].n;
+    double *sig = alloc_n(maxrun, sizeof *sig), *ra = alloc_n(maxrun, sizeof *ra),
+           *rb = alloc_n(maxrun, sizeof *rb), *tmp = alloc_n(maxrun, sizeof *tmp);
+    if (!sig || !ra || !rb || !tmp) {
+        free(sig), free(ra), free(rb), free(tmp);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    free(res->windows);
+    res->windows = NULL;
+    res->nwindows = 0;
+    size_t wcap = 0;
+    double uxb = col ? col->u.xb : 0;
+    int rc = STAGECAL_OK;
+    for (size_t k = 0; k < log->nruns && rc == STAGECAL_OK; k++) {
+        const stagecal_runlog_run *run = &log->runs[k];
+        size_t f = run->first, m = run->n;
+        if (m < 2)
+            continue;
+        /* (a) stages: floor = median u(stages)² of the run */
+        size_t q = 0;
+        for (size_t i = 0; i < m; i++) {
+            int ok = res->status[f + i] == 0;
+            sig[i] = ok ? res->stages[f + i] : NAN;
+            if (ok)
+                tmp[q++] = res->u_stages[f + i];
+        }
+        double us = q ? median_inplace(tmp, q) : 0.0;
+        stagecal_runlog_rstat(sig, m, par->lambda1, par->lambda2, par->lambda3, us * us + 1e-12, ra,
+                              NULL);
+        /* (b) balance residual of xB */
+        for (size_t i = 0; i < m; i++)
+            sig[i] = isnan(res->xb_rec[f + i]) || (res->flags[f + i] & STAGECAL_SAMPLE_OUTLIER)
+                         ? NAN
+                         : log->xb[f + i] - res->xb_rec[f + i];
+        stagecal_runlog_rstat(sig, m, par->lambda1, par->lambda2, par->lambda3, uxb * uxb + 1e-12,
+                              rb, NULL);
+        int steady = 0;
+        for (size_t i = 0; i < m; i++) {
+            size_t row = f + i;
+            double rmax = i == 0 ? HUGE_VAL : fmax(ra[i - 1], rb[i - 1]);
+            int reflux_change = i > 0 && !(log->r[row] == log->r[row - 1]) &&
+                                !(isnan(log->r[row]) && isnan(log->r[row - 1]));
+            if (i < par->warmup) {
+                res->flags[row] |= STAGECAL_SAMPLE_WARMUP;
+                steady = 0;
+            } else if (reflux_change || res->status[row] != 0) {
+                steady = 0;
+            } else if (steady && rmax > par->r_leave) {
+                steady = 0;
+            } else if (!steady && rmax < par->r_enter) {
+                steady = 1;
+            }
+            if (steady)
+                res->flags[row] |= STAGECAL_SAMPLE_STEADY;
+            if (isinf(log->r[row]))
+                res->flags[row] |= STAGECAL_SAMPLE_TOTAL_REFLUX;
+        }
+        /* Windows: maximal stretches of steady samples with the same reflux. */
+        size_t i = 0;
+        while (i < m) {
+            size_t row = f + i;
+            if (!(res->flags[row] & STAGECAL_SAMPLE_STEADY)) {
+                i++;
+                continue;
+            }
+            size_t j = i + 1;
+            while (j < m && (res->flags[f + j] & STAGECAL_SAMPLE_STEADY) &&
+                   log->r[f + j] == log->r[row])
+                j++;
+            if (j - i >= par->min_window) {
+                if (res->nwindows == wcap) {
+                    size_t nc = wcap ? 2 * wcap : 64;
+                    stagecal_runlog_window *nw = realloc(res->windows, nc * sizeof *nw);
+                    if (!nw) {
+                        rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
+                        break;
+                    }
+                    res->windows = nw;
+                    wcap = nc;
+                }
+                stagecal_runlog_window *w = &res->windows[res->nwindows];
+                memset(w, 0, sizeof *w);
+                w->run = k;
+                w->first = row;
+                w->last = f + j - 1;
+                for (size_t a = 0; a < j - i; a++)
+                    tmp[a] = log->r[row + a];
+                w->r_median = median_inplace(tmp, j - i);
+                w->total_reflux = isinf(w->r_median);
+                if (!w->total_reflux && j - i >= 3) {
+                    /* no distillate drawn: the holdup does not fall */
+                    double c0, c1, c00, c01, c11, ss;
+                    size_t nn = 0;
+                    for (size_t a = 0; a < j - i; a++)
+                        if (isfinite(log->w_mol[row + a])) {
+                            sig[nn] = log->t_s[row + a];
+                            tmp[nn] = log->w_mol[row + a];
+                            nn++;
+                        }
+                    if (nn >= 3 &&
+                        gsl_fit_linear(sig, 1, tmp, 1, nn, &c0, &c1, &c00, &c01, &c11, &ss) ==
+                            GSL_SUCCESS &&
+                        c11 > 0 && fabs(c1) < par->no_distillate_t * sqrt(c11))
+                        w->total_reflux = 1;
+                    if (w->total_reflux) {
+                        for (size_t a = 0; a < j - i; a++) {
+                            res->flags[row + a] |= STAGECAL_SAMPLE_TOTAL_REFLUX;
+                            if (reinvert)
+                                reinvert(ctx, row + a);
+                        }
+                    }
+                }
+                double sum = 0, su2 = 0;
+                for (size_t a = 0; a < j - i; a++) {
+                    res->window[row + a] = (int32_t)res->nwindows;
+                    if (res->status[row + a] == 0) {
+                        sum += res->stages[row + a];
+                        su2 += res->u_stages[row + a] * res->u_stages[row + a];
+                        w->n_ok++;
+                    }
+                }
+                if (w->n_ok) {
+                    w->stages_mean = sum / (double)w->n_ok;
+                    w->u_stages_mean = sqrt(su2) / (double)w->n_ok;
+                }
+                res->nwindows++;
+            }
+            i = j;
+        }
+    }
+    free(sig), free(ra), free(rb), free(tmp);
+    return rc;
+}

@@ -1,0 +1,274 @@
+/*
+ * runlog_invert.c — effective stages at every sample of a run log, with their
+ * standard uncertainty, L/V and the vapour load as F-factor; the CSV writer.
+ *
+ * Uncertainty: first-order propagation of the column file's standard
+ * uncertainties u(xD), u(xB), u(R) through the inversion's sensitivities,
+ * independent errors:
+ *     u(N)² = (∂N/∂xD·u(xD))² + (∂N/∂xB·u(xB))² + (∂N/∂R·u(R))²,
+ *     u(R)² = u_abs(R)² + (u_rel(R)·R)²   (0 at total reflux: ∂N/∂R = 0 there).
+ * Near a pinch ∂N/∂xB grows without bound and so does u(N): the number says how
+ * little such a sample tells.
+ *
+ * F-factor (REFERENCES §11): F = u_G·√ρ_G, u_G = V·M/(ρ_G·A), ρ_G = P·M/(R·T),
+ * A = π·d²/4. M is the molar mass of the top vapour, which has the distillate's
+ * composition (total condenser). T is T_top from the log, else the bubble point
+ * of xD from the equilibrium model; P is P from the log, else the column file's.
+ */
+#include "stagecal/runlog.h"
+
+#include <gsl/gsl_math.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "runlog_internal.h"
+#include "stagecal/stages.h"
+
+/* Molar gas constant [J/(mol·K)], exact since the 2019 SI (N_A·k); GSL 2.7's
+ * GSL_CONST_MKSA_MOLAR_GAS is the older 8.314472. */
+#define MOLAR_GAS 8.31446261815324
+
+static const char *const note_text[STAGECAL_NOTE_COUNT] = {
+    [STAGECAL_NOTE_NONE] = "",
+    [STAGECAL_NOTE_MISSING_XD] = "missing xD",
+    [STAGECAL_NOTE_MISSING_XB] = "missing xB",
+    [STAGECAL_NOTE_MISSING_R] = "missing R",
+    [STAGECAL_NOTE_XD_BELOW_XB] = "xD below xB",
+    [STAGECAL_NOTE_REFLUX_ZERO] = "R = 0 (not identifiable)",
+    [STAGECAL_NOTE_STAGES] = "see status",
+    [STAGECAL_NOTE_NO_DISTILLATE] = "no distillate drawn: counted at total reflux",
+    [STAGECAL_NOTE_NO_LOAD] = "no F-factor (needs V, diameter, molar masses and a temperature)",
+    [STAGECAL_NOTE_FAILED] = "inversion failed",
+};
+
+const char *stagecal_runlog_note_text(int note)
+{
+    if (note < 0 || note >= STAGECAL_NOTE_COUNT)
+        return "";
+    return note_text[note];
+}
+
+int stagecal_runlog_f_factor(double v_mol_s, double m_kg_mol, double p_pa, double t_k, double d_m,
+                             double *f, stagecal_error *err)
+{
+    if (!(v_mol_s >= 0 && isfinite(v_mol_s)) || !(m_kg_mol > 0 && isfinite(m_kg_mol)) ||
+        !(p_pa > 0 && isfinite(p_pa)) || !(t_k > 0 && isfinite(t_k)) || !(d_m > 0 && isfinite(d_m)))
+        return error_set(err, STAGECAL_EINVAL,
+                         "F-factor needs V >= 0 and positive molar mass, pressure, temperature "
+                         "and diameter");
+    double rho = p_pa * m_kg_mol / (MOLAR_GAS * t_k);
+    double area = M_PI * d_m * d_m / 4.0;
+    double u_g = v_mol_s * m_kg_mol / (rho * area);
+    *f = u_g * sqrt(rho);
+    return STAGECAL_OK;
+}
+
+struct inv_ctx {
+    const stagecal_runlog *log;
+    const stagecal_column *col;
+    double murphree;
+    stagecal_stages_params sp;
+    stagecal_runlog_result *res;
+};
+
+/* Inverts row i at reflux r (the logged one, or INFINITY for no-distillate). */
+static void invert_row(struct inv_ctx *c, size_t i, double r)
+{
+    const stagecal_runlog *log = c->log;
+    stagecal_runlog_result *res = c->res;
+    double xd = log->xd[i], xb = log->xb[i];
+    res->stages[i] = 0;
+    res->u_stages[i] = 0;
+    res->status[i] = STAGECAL_STAGES_INVALID;
+    res->lv[i] = isinf(r) ? 1.0 : (r >= 0 ? r / (r + 1.0) : 0.0);
+    if (isnan(xd)) {
+        res->note[i] = STAGECAL_NOTE_MISSING_XD;
+        return;
+    }
+    if (isnan(xb)) {
+        res->note[i] = STAGECAL_NOTE_MISSING_XB;
+        return;
+    }
+    if (isnan(r)) {
+        res->note[i] = STAGECAL_NOTE_MISSING_R;
+        res->lv[i] = 0;
+        return;
+    }
+    if (xd < xb) {
+        res->note[i] = STAGECAL_NOTE_XD_BELOW_XB;
+        return;
+    }
+    if (r == 0) {
+        res->note[i] = STAGECAL_NOTE_REFLUX_ZERO;
+        return;
+    }
+    stagecal_stages_result sr;
+    if (stagecal_stages_invert(c->col->system.vle, xd, xb, r, c->murphree, &c->sp, &sr, NULL) !=
+        STAGECAL_OK) {
+        res->note[i] = STAGECAL_NOTE_FAILED;
+        return;
+    }
+    res->status[i] = (unsigned char)sr.status;
+    if (sr.status != STAGECAL_STAGES_OK) {
+        res->note[i] = STAGECAL_NOTE_STAGES;
+        return;
+    }
+    const stagecal_uncertainty *u = &c->col->u;
+    double ur2 = isinf(r) ? 0.0 : u->r * u->r + (u->r_rel * r) * (u->r_rel * r);
+    double a = sr.dstages_dxd * u->xd, b = sr.dstages_dxb * u->xb;
+    res->stages[i] = sr.stages;
+    res->u_stages[i] = sqrt(a * a + b * b + sr.dstages_dr * sr.dstages_dr * ur2);
+    res->note[i] = STAGECAL_NOTE_NONE;
+}
+
+static int reinvert_total(void *ctx, size_t i)
+{
+    struct inv_ctx *c = ctx;
+    invert_row(c, i, INFINITY);
+    if (c->res->status[i] == STAGECAL_STAGES_OK)
+        c->res->note[i] = STAGECAL_NOTE_NO_DISTILLATE;
+    return 0;
+}
+
+int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *col, double murphree,
+                           const stagecal_runlog_analysis_params *params,
+                           stagecal_runlog_result *res, stagecal_error *err)
+{
+    if (!col || !col->system.vle)
+        return error_set(err, STAGECAL_EINVAL, "the inversion needs a column with a VLE model");
+    if (res->n != log->n || !res->stages)
+        return error_set(err, STAGECAL_EINVAL, "run stagecal_runlog_analyse on this log first");
+    stagecal_runlog_analysis_params par =
+        params ? *params : stagecal_runlog_analysis_default_params();
+    struct inv_ctx c = {log, col, murphree, stagecal_stages_default_params(), res};
+    c.sp.want_sensitivities = 1;
+    const stagecal_system *sys = &col->system;
+    int have_m = sys->m_light > 0 && sys->m_heavy > 0;
+    for (size_t i = 0; i < log->n; i++) {
+        invert_row(&c, i, log->r[i]);
+        /* vapour load */
+        double v = log->v_mol_s ? log->v_mol_s[i] : NAN;
+        double p = log->p_pa && isfinite(log->p_pa[i]) ? log->p_pa[i] : sys->p_pa;
+        double t = log->t_top_k ? log->t_top_k[i] : NAN;
+        double xd = log->xd[i];
+        if (isnan(t) && isfinite(xd) && stagecal_vle_tbubble(sys->vle, xd, &t) != STAGECAL_OK)
+            t = NAN;
+        double f;
+        if (have_m && isfinite(xd) &&
+            stagecal_runlog_f_factor(v, xd * sys->m_light + (1 - xd) * sys->m_heavy, p, t,
+                                     col->diameter_m, &f, NULL) == STAGECAL_OK) {
+            res->f_factor[i] = f;
+        } else {
+            res->f_factor[i] = NAN;
+            if (res->note[i] == STAGECAL_NOTE_NONE)
+                res->note[i] = STAGECAL_NOTE_NO_LOAD;
+        }
+    }
+    int rc = runlog_windows(log, col, &par, res, reinvert_total, &c, err);
+    memset(res->count, 0, sizeof res->count);
+    for (size_t i = 0; i < log->n; i++)
+        if (res->status[i] < 4)
+            res->count[res->status[i]]++;
+    return rc;
+}
+
+/* Writes a text cell, quoted (RFC 4180) when it holds a comma, quote or newline. */
+static void put_text(FILE *out, const char *t)
+{
+    if (!strpbrk(t, ",\"\r\n")) {
+        fputs(t, out);
+        return;
+    }
+    fputc('"', out);
+    for (; *t; t++) {
+        if (*t == '"')
+            fputc('"', out);
+        fputc(*t, out);
+    }
+    fputc('"', out);
+}
+
+/* Writes v with %.9g, or nothing when it is not finite. */
+static void put_num(FILE *out, double v)
+{
+    if (isfinite(v))
+        fprintf(out, "%.9g", v);
+}
+
+/* Writes v rounded to `decimals` (≤ 9) places, or nothing when it is not finite.
+ * A plain integer formatter: printf's floating-point conversion dominated the cost
+ * of writing 10^6 rows (tests/bench_runlog.c). Falls back to printf for |v| ≥ 1e9. */
+static void put_fixed(FILE *out, double v, int decimals)
+{
+    static const long long pow10[] = {1,      10,      100,      1000,      10000,
+                                      100000, 1000000, 10000000, 100000000, 1000000000};
+    if (!isfinite(v))
+        return;
+    if (fabs(v) >= 1e9) {
+        fprintf(out, "%.*f", decimals, v);
+        return;
+    }
+    char buf[40], *p = buf + sizeof buf;
+    long long scaled = llround(fabs(v) * (double)pow10[decimals]);
+    long long ip = scaled / pow10[decimals], fp = scaled % pow10[decimals];
+    *--p = '\0';
+    for (int k = 0; k < decimals; k++, fp /= 10)
+        *--p = (char)('0' + fp % 10);
+    if (decimals > 0)
+        *--p = '.';
+    do {
+        *--p = (char)('0' + ip % 10);
+        ip /= 10;
+    } while (ip > 0);
+    if (v < 0 && scaled > 0)
+        *--p = '-';
+    fputs(p, out);
+}
+
+int stagecal_runlog_write_csv(const stagecal_runlog *log, const stagecal_column *col,
+                              const stagecal_runlog_result *res, FILE *out, stagecal_error *err)
+{
+    double extra = col && col->condenser == STAGECAL_CONDENSER_PARTIAL ? 1.0 : 0.0;
+    fprintf(out, "source,line,run,time[s],stages,column_stages,u_stages,status,note,L/V,"
+                 "F[Pa^0.5],steady,total_reflux,outlier,window,xB_rec[mol/mol]\n");
+    for (size_t i = 0; i < log->n; i++) {
+        const stagecal_runlog_run *run = &log->runs[log->run[i]];
+        int ok = res->status[i] == STAGECAL_STAGES_OK;
+        put_text(out, log->files[run->file]);
+        fprintf(out, ",%u,", (unsigned)log->line[i]);
+        put_text(out, run->name);
+        fputc(',', out);
+        put_fixed(out, log->t_s[i], 3);
+        fputc(',', out);
+        if (ok) {
+            put_fixed(out, res->stages[i], 6);
+            fputc(',', out);
+            put_fixed(out, res->stages[i] - 1.0 - extra, 6);
+            fputc(',', out);
+            put_num(out, res->u_stages[i]);
+        } else {
+            fputs(",,", out);
+        }
+        fprintf(out, ",%s,", stagecal_stages_status_name(res->status[i]));
+        put_text(out, stagecal_runlog_note_text(res->note[i]));
+        fputc(',', out);
+        put_fixed(out, res->lv[i], 9);
+        fputc(',', out);
+        put_fixed(out, res->f_factor[i], 6);
+        unsigned fl = res->flags[i];
+        fprintf(out, ",%d,%d,%d,", (fl & STAGECAL_SAMPLE_STEADY) ? 1 : 0,
+                (fl & STAGECAL_SAMPLE_TOTAL_REFLUX) ? 1 : 0,
+                (fl & STAGECAL_SAMPLE_OUTLIER) ? 1 : 0);
+        if (res->window[i] >= 0)
+            fprintf(out, "%d", (int)res->window[i]);
+        fputc(',', out);
+        put_fixed(out, res->xb_rec[i], 9);
+        if (fputc('\n', out) == EOF)
+            break;
+    }
+    if (ferror(out))
+        return error_set(err, STAGECAL_EWRITE, "cannot write the results");
+    return STAGECAL_OK;
+}

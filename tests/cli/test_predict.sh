@@ -1,0 +1,98 @@
+#!/bin/sh
+# test_predict.sh — `stagecal predict`: exit codes (DESIGN §5), the Rayleigh case through
+# the whole program, mass balance and shape of --json, CSV output, plan file, envelope
+# warning, reproducible band. Usage: sh test_predict.sh <stagecal-binary> <repo-root>
+# The model file is the INVENTED demo model written by tests/tool_batch_model.c.
+# Scratch files go next to the binary (inside the build tree).
+set -u
+bin=$1
+root=$2
+py=/usr/bin/python3
+tool=$(dirname "$bin")/tests/tool_batch_model
+tmp=$(dirname "$bin")/test_predict.tmp
+rm -rf "$tmp" && mkdir -p "$tmp" || exit 1
+fails=0
+
+check_exit() { # name want command...
+    name=$1 want=$2
+    shift 2
+    "$@" >"$tmp/out" 2>"$tmp/err"
+    got=$?
+    if [ "$got" -ne "$want" ]; then
+        echo "FAIL $name: exit $got, want $want"; cat "$tmp/out" "$tmp/err"; fails=$((fails + 1))
+    else
+        echo "ok $name"
+    fi
+}
+check_py() { # name python-expression-over-json-doc-d (file $tmp/out)
+    if ! "$py" -c "import json,math,sys; d=json.load(open('$tmp/out')); sys.exit(0 if ($2) else 1)"; then
+        echo "FAIL $1: $2"; fails=$((fails + 1))
+    else
+        echo "ok $1"
+    fi
+}
+
+model=$("$tool" "$tmp/fits") || { echo "FAIL: cannot write the demo model"; exit 1; }
+common="--model $model --charge 10 --xb0 0.5 --boilup 2.4"
+
+check_exit help 0 "$bin" predict --help
+check_exit no-model 2 "$bin" predict --charge 10 --xb0 0.5 --boilup 2 --reflux 3 --cut pot-x=0.2
+check_exit two-policies 2 "$bin" predict $common --reflux 3 --xd-setpoint 0.9 --cut pot-x=0.2
+check_exit no-cut 2 "$bin" predict $common --reflux 3
+check_exit bad-cut 2 "$bin" predict $common --reflux 3 --cut pot-y=0.2
+check_exit cut-domain 2 "$bin" predict $common --reflux 3 --cut pot-x=1.5
+check_exit missing-model 66 "$bin" predict --model "$tmp/none.json" --charge 10 --xb0 0.5 \
+    --boilup 2 --reflux 3 --cut pot-x=0.2
+check_exit missing-plan 66 "$bin" predict $common --plan "$tmp/none.json"
+
+# R = 0: the law gives < 1 stage, raised to the pot alone → Rayleigh's equation.
+# REFERENCES §4 (α = 2.5, 0.5 → 0.2): ln(W0/W) = 1.394199870, mean distillate
+# 0.5989528362; 1e-8 relative (the library integrates to ~1e-10; 10 s.f. given).
+check_exit rayleigh 0 "$bin" predict $common --reflux 0 --cut pot-x=0.2 --samples 0 --json
+check_py rayleigh-lnw "abs(math.log(10/d['pot_end_kmol']) - 1.394199870) < 1.4e-8"
+check_py rayleigh-mean "abs(d['cuts'][0]['x_mean'] - 0.5989528362) < 6e-9"
+check_py rayleigh-warns "d['extrapolated'] and any('below the lowest' in w for w in d['warnings'])"
+if grep -q "below the lowest reflux ratio calibrated" "$tmp/err"; then echo "ok warning on stderr"
+else echo "FAIL: no envelope warning on stderr"; fails=$((fails + 1)); fi
+# at R = 0 all boil-up is distillate: batch time = (W0 − W)/V (closed form)
+check_py rayleigh-time "abs(d['batch_time_h'] - (10 - d['pot_end_kmol'])/2.4) < 1e-9"
+
+# constant distillate with two receivers; mass balance over the summary (1e-9 rel.)
+check_exit setpoint 0 "$bin" predict $common --xd-setpoint 0.95 --reflux-max 20 \
+    --cut product:reflux=20 --cut slop:pot-x=0.02 --latent 35 --samples 40 --seed 7 --json
+cp "$tmp/out" "$tmp/setpoint1.json"
+check_py balance "abs(sum(c['amount_kmol']*c['x_mean'] for c in d['cuts']) + d['pot_end_kmol']*d['pot_end_x'] - 5) < 5e-9"
+check_py set-point-held "abs(d['cuts'][0]['x_mean'] - 0.95) < 1e-9 and d['cuts'][0]['stop'] == 'target' and d['cuts'][1]['amount_kmol'] > 0"
+check_py band-brackets "all(c['band']['t_end_h']['low'] <= c['t_end_h'] <= c['band']['t_end_h']['high'] for c in d['cuts'])"
+check_py energy "abs(d['energy_gj'] - 2.4/3.6*d['batch_time_h']*3600*35000/1e9) < 1e-9*d['energy_gj']"
+check_py shape "d['format'] == 'stagecal-predict' and d['seed'] == 7 and d['band']['samples'] == 40 and len(d['trajectory']) > 50"
+check_exit setpoint-again 0 "$bin" predict $common --xd-setpoint 0.95 --reflux-max 20 \
+    --cut product:reflux=20 --cut slop:pot-x=0.02 --latent 35 --samples 40 --seed 7 --json
+if cmp -s "$tmp/out" "$tmp/setpoint1.json"; then echo "ok same seed, same document"
+else echo "FAIL: same seed gave a different document"; fails=$((fails + 1)); fi
+
+# CSV trajectory
+check_exit csv 0 "$bin" predict $common --reflux 4 --cut pot-x=0.2 --samples 0 --out "$tmp/traj.csv"
+if head -1 "$tmp/traj.csv" | grep -qxF 'time[h],W[kmol],xB[mol/mol],xD[mol/mol],R[-],stages[-],cut,cut_amount[kmol],cut_x[mol/mol],distilled[kmol],outside_envelope'
+then echo "ok csv header"; else echo "FAIL csv header"; head -1 "$tmp/traj.csv"; fails=$((fails + 1)); fi
+check_exit csv-unwritable 73 "$bin" predict $common --reflux 4 --cut pot-x=0.2 --samples 0 \
+    --out "$tmp/no/such/dir/traj.csv"
+
+# plan file (schedule by pot composition, three receivers)
+cat >"$tmp/plan.json" <<'PLAN'
+{"format": "stagecal-plan", "version": 1, "comment": "INVENTED demo plan",
+ "charge": {"amount_kmol": 10, "x_light": 0.5}, "boilup_kmol_h": 2.4,
+ "policy": {"kind": "schedule", "by": "pot_x",
+            "steps": [{"from": 0.5, "reflux": 3}, {"from": 0.3, "reflux": 6}, {"from": 0.15, "reflux": 12}]},
+ "cuts": [{"name": "heads", "until": "time", "value": 0.25},
+          {"name": "product", "until": "mean-x", "value": 0.98},
+          {"name": "slop", "until": "pot-x", "value": 0.005}]}
+PLAN
+check_exit plan 0 "$bin" predict --model "$model" --plan "$tmp/plan.json" --samples 0 --json
+check_py plan-cuts "[c['name'] for c in d['cuts']] == ['heads', 'product', 'slop'] and abs(d['cuts'][0]['t_end_h'] - 0.25) < 1e-12 and abs(d['pot_end_x'] - 0.005) < 1e-12 and d['cuts'][2]['amount_kmol'] > 0"
+printf '{"format": "stagecal-plan", "version": 1, "policy": {"kind": "constant-reflux", "reflx": 3}}' >"$tmp/typo.json"
+check_exit plan-typo 65 "$bin" predict $common --plan "$tmp/typo.json" --cut pot-x=0.2
+
+rm -rf "$tmp"
+if [ "$fails" -ne 0 ]; then echo "$fails failure(s)"; exit 1; fi
+echo "all passed"

@@ -1,0 +1,105 @@
+/*
+ * fuzz_cli.c — libFuzzer harness for the command-line parsers: the input is split at
+ * newlines into argv and handed to one cmd_<name> function (src/cli/ compiled in,
+ * main.c left out). The first token names the command. Tokens "@col", "@ideal", "@log"
+ * and "@pts" stand for real files under datasets/
+ * so the file-reading paths are reached; any other token containing '/' is
+ * refused (the harness never touches files outside its scratch directory). The process
+ * works in a fresh temporary directory, stdin is /dev/null, and commands that write
+ * files (calibrate, plot, report) are not called. Run with -close_fd_mask=3 to keep the
+ * commands' output off the terminal (libFuzzer keeps its own and the sanitizer reports).
+ */
+#include <stdlib.h>
+#include <unistd.h>
+
+#include "commands.h"
+#include "fuzz_common.h"
+
+extern const char *cli_command;
+extern int cli_quiet;
+
+static char path_col[512], path_ideal[512], path_log[512], path_pts[512];
+
+int LLVMFuzzerInitialize(int *argc, char ***argv)
+{
+    (void)argc;
+    (void)argv;
+    gsl_set_error_handler_off();
+    snprintf(path_col, sizeof path_col, "%s/columns/demo_alpha.json", STAGECAL_DATASETS);
+    snprintf(path_ideal, sizeof path_ideal, "%s/columns/demo_benzene_toluene.json",
+             STAGECAL_DATASETS);
+    snprintf(path_log, sizeof path_log, "%s/demo/logs/2025-01.csv", STAGECAL_DATASETS);
+    snprintf(path_pts, sizeof path_pts, "%s/points/demo_points.csv", STAGECAL_DATASETS);
+    char tmpl[] = "/tmp/stagecal-fuzz-cli.XXXXXX";
+    if (!mkdtemp(tmpl) || chdir(tmpl) != 0) {
+        perror("fuzz setup: scratch directory");
+        abort();
+    }
+    if (!freopen("/dev/null", "r", stdin)) {
+        perror("fuzz setup: stdin");
+        abort();
+    }
+    return 0;
+}
+
+struct fuzz_command {
+    const char *name;
+    int (*run)(int argc, char **argv);
+};
+
+static const struct fuzz_command commands[] = {
+    {"steps", cmd_steps},   {"invert", cmd_invert}, {"check", cmd_check},
+    {"regress", cmd_regress}, {"hetp", cmd_hetp},   {"trend", cmd_trend},
+    {"predict", cmd_predict},
+};
+
+#define FUZZ_MAX_ARGS 24
+
+int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
+{
+    if (size < 1 || size > 2048)
+        return 0;
+    const struct fuzz_command *cmd = &commands[data[0] % (sizeof commands / sizeof commands[0])];
+    char *text = fuzz_strndup(data + 1, size - 1);
+    if (!text)
+        return 0;
+    char *argv[FUZZ_MAX_ARGS + 2];
+    int argc = 0;
+    argv[argc++] = (char *)(uintptr_t)cmd->name;
+    char *p = text, *end = text + (size - 1);
+    int refuse = 0;
+    while (p <= end && argc < FUZZ_MAX_ARGS + 1) {
+        char *nl = memchr(p, '\n', (size_t)(end - p));
+        if (nl)
+            *nl = '\0';
+        char *tok = p;
+        if (strlen(tok) != (size_t)((nl ? nl : end) - p)) {
+            refuse = 1; /* an embedded NUL: argv strings cannot hold one */
+            break;
+        }
+        if (strcmp(tok, "@col") == 0)
+            tok = path_col;
+        else if (strcmp(tok, "@ideal") == 0)
+            tok = path_ideal;
+        else if (strcmp(tok, "@log") == 0)
+            tok = path_log;
+        else if (strcmp(tok, "@pts") == 0)
+            tok = path_pts;
+        else if (strchr(tok, '/'))
+            refuse = 1;
+        argv[argc++] = tok;
+        if (!nl)
+            break;
+        p = nl + 1;
+    }
+    argv[argc] = NULL;
+    if (!refuse) {
+        cli_command = cmd->name;
+        cli_quiet = 0;
+        (void)cmd->run(argc, argv);
+        fflush(stdout);
+        clearerr(stdout);
+    }
+    free(text);
+    return 0;
+}

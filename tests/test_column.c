@@ -1,0 +1,257 @@
+/*
+ * test_column.c — the column file reader: the shipped examples, SI values, and one
+ * provoked message per kind of bad field (docs/column-file.md).
+ */
+#include <math.h>
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdio.h>
+#include <string.h>
+#include <cmocka.h>
+
+#include <gsl/gsl_errno.h>
+
+#include "stagecal/column.h"
+#include "testutil.h"
+
+static int setup(void **state)
+{
+    (void)state;
+    gsl_set_error_handler_off();
+    return 0;
+}
+
+/* A valid file with the top-level extra fields, the model object and the uncertainty
+ * object substituted. */
+static int parse3(const char *top, const char *model, const char *unc, stagecal_column *col,
+                  stagecal_error *err)
+{
+    char buf[4096];
+    int n = snprintf(buf, sizeof buf,
+                     "{\n"
+                     "  \"format\": \"stagecal-column\", \"version\": 1,\n"
+                     "  \"id\": \"t-1\", \"condenser\": \"total\",\n"
+                     "  %s\n"
+                     "  \"system\": {\n"
+                     "    \"light\": {\"name\": \"ethanol\", \"molar_mass_kg_mol\": 0.04606844,\n"
+                     "      \"antoine\": {\"a\": 5.24677, \"b\": 1598.673, \"c\": -46.424}},\n"
+                     "    \"heavy\": {\"name\": \"water\", \"molar_mass_kg_mol\": 0.01801528,\n"
+                     "      \"antoine\": {\"a\": 5.08354, \"b\": 1663.125, \"c\": -45.622,\n"
+                     "                  \"t_min_k\": 344, \"t_max_k\": 373}},\n"
+                     "    \"model\": %s\n"
+                     "  },\n"
+                     "  \"uncertainty\": %s\n"
+                     "}\n",
+                     top, model, unc);
+    assert_true(n > 0 && (size_t)n < sizeof buf);
+    return stagecal_column_parse(buf, (size_t)n, "col.json", col, err);
+}
+
+static int parse(const char *top, const char *model, stagecal_column *col, stagecal_error *err)
+{
+    return parse3(top, model, "{\"xd\": 0.003}", col, err);
+}
+
+static void column_examples_load(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    stagecal_error err;
+    double az[2], y;
+
+    int rc = stagecal_column_load(STAGECAL_DATASETS "/columns/kestrel_c3_ethanol_water.json", &col,
+                                  &err);
+    if (rc != STAGECAL_OK)
+        print_error("%s\n", err.text);
+    assert_int_equal(rc, STAGECAL_OK);
+    assert_string_equal(col.id, "kestrel-harwick-C-3");
+    assert_rel(col.height_m, 6.0, 0.0, "height");
+    assert_rel(col.diameter_m, 0.30, 0.0, "diameter");
+    assert_int_equal(col.condenser, STAGECAL_CONDENSER_TOTAL);
+    assert_string_equal(col.system.light, "ethanol");
+    assert_rel(col.system.m_light, 0.04606844, 0.0, "m_light [kg/mol]");
+    assert_rel(col.system.p_pa, 101325.0, 0.0, "pressure");
+    assert_rel(col.u.w_mol, 500.0, 0.0, "u(W)");
+    assert_rel(col.u.r_rel, 0.02, 0.0, "u_rel(R)");
+    assert_int_equal(stagecal_vle_get_kind(col.system.vle), STAGECAL_VLE_NRTL);
+    /* the file's model is NRTL-A: its azeotrope is REFERENCES §7's computed 0.8954479598 */
+    assert_int_equal(stagecal_vle_azeotropes(col.system.vle, az, 2), 1);
+    assert_rel(az[0], 0.8954479598, 1e-8, "azeotrope of the file's model (REFERENCES §7)");
+    stagecal_column_free(&col);
+    stagecal_column_free(NULL);
+
+    assert_int_equal(stagecal_column_load(STAGECAL_DATASETS "/columns/demo_alpha.json", &col, &err),
+                     STAGECAL_OK);
+    assert_int_equal(col.trays, 20);
+    assert_rel(col.height_m, 0.0, 0.0, "no height");
+    assert_int_equal(stagecal_vle_ystar(col.system.vle, 0.5, &y), STAGECAL_OK);
+    assert_rel(y, 2.5 * 0.5 / (1 + 1.5 * 0.5), 1e-15, "alpha 2.5 closed form");
+    stagecal_column_free(&col);
+
+    assert_int_equal(
+        stagecal_column_load(STAGECAL_DATASETS "/columns/demo_benzene_toluene.json", &col, &err),
+        STAGECAL_OK);
+    assert_int_equal(stagecal_vle_get_kind(col.system.vle), STAGECAL_VLE_IDEAL);
+    double t;
+    /* benzene's normal boiling point from its Antoine set, REFERENCES §6: 353.2529 K */
+    assert_int_equal(stagecal_vle_tbubble(col.system.vle, 1.0, &t), STAGECAL_OK);
+    assert_abs(t, 353.2529, 1e-4, "pure benzene bubble T (REFERENCES §6)");
+    stagecal_column_free(&col);
+}
+
+static void column_table_and_other_models(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    stagecal_error err;
+    double y;
+    int rc = parse("\"trays\": 12, \"pressure_pa\": 101325,",
+                   "{\"kind\": \"table\", \"x\": [0, 0.2, 0.6, 1], \"y\": [0, 0.5, 0.8, 1],"
+                   " \"t_k\": [373.1, 360.0, 353.0, 351.4], \"source\": \"made up\"}",
+                   &col, &err);
+    if (rc)
+        print_error("%s\n", err.text);
+    assert_int_equal(rc, STAGECAL_OK);
+    assert_int_equal(stagecal_vle_ystar(col.system.vle, 0.2, &y), STAGECAL_OK);
+    assert_rel(y, 0.5, 1e-15, "table passes through its data");
+    stagecal_column_free(&col);
+    static const char *const models[] = {
+        "{\"kind\": \"ideal\"}",
+        "{\"kind\": \"vanlaar\", \"a12\": 1.6798, \"a21\": 0.9227}",
+        "{\"kind\": \"margules\", \"a12\": 1.2, \"a21\": 0.7}",
+        "{\"kind\": \"wilson\", \"a12_j_mol\": 1234.5, \"a21_j_mol\": 3456.7, \"v1_m3_mol\": "
+        "5.868e-5, \"v2_m3_mol\": 1.807e-5}",
+        "{\"kind\": \"kvalue\", \"k\": 8.5}",
+    };
+    for (size_t i = 0; i < sizeof models / sizeof models[0]; i++) {
+        rc = parse("\"pressure_pa\": 101325,", models[i], &col, &err);
+        if (rc)
+            print_error("%s\n", err.text);
+        assert_int_equal(rc, STAGECAL_OK);
+        stagecal_column_free(&col);
+    }
+}
+
+static void expect(int rc, const stagecal_error *err, int code, const char *text)
+{
+    if (rc != code || strstr(err->text, text) == NULL)
+        print_error("got %d '%s', want %d containing '%s'\n", rc, err->text, code, text);
+    assert_int_equal(rc, code);
+    assert_non_null(strstr(err->text, text));
+}
+
+static void column_bad_fields_are_named(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    stagecal_error err;
+    const char *nrtl = "{\"kind\": \"nrtl\", \"tau12_a\": -0.8009, \"tau12_b_k\": 246.18, "
+                       "\"tau21_a\": 3.4578, \"tau21_b_k\": -586.0809, \"alpha12\": 0.3}";
+    int rc = parse("", "{\"kind\": \"alpha\", \"alpha\": 0.9}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "");
+    assert_string_equal(err.text, "col.json: field 'system.model.alpha': 0.9 is outside (1, inf)");
+    assert_null(col.system.vle);
+
+    rc = parse("\"height_ft\": 20,", "{\"kind\": \"alpha\", \"alpha\": 2}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'height_ft': unknown field");
+    rc = parse("", nrtl, &col, &err); /* no pressure */
+    expect(rc, &err, STAGECAL_EDATA, "field 'pressure_pa': missing");
+    rc = parse("\"pressure_pa\": 101325,",
+               "{\"kind\": \"nrtl\", \"tau12_a\": -0.8009, \"tau12_b_k\": 246.18, "
+               "\"tau21_a\": 3.4578, \"tau21_b_k\": -586.0809, \"alpha12\": 3}",
+               &col, &err);
+    expect(rc, &err, STAGECAL_EDATA,
+           "col.json: field 'system.model': nrtl non-randomness 3 is outside (0, 1]");
+    rc = parse("\"pressure_pa\": 101325,", "{\"kind\": \"nrtl\", \"tau12_a\": 1}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'system.model.tau12_b_k': missing");
+    rc = parse("", "{\"kind\": \"unifac\"}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'system.model.kind': 'unifac' is not one of");
+    rc = parse("\"condenser\": \"half\",", "{\"kind\": \"alpha\", \"alpha\": 2}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "duplicate object key"); /* jansson rejects duplicates */
+    rc = parse("\"packed_height_m\": 5, \"trays\": 10,", "{\"kind\": \"alpha\", \"alpha\": 2}",
+               &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'trays': a column has trays or a packed height");
+    rc = parse("\"packed_height_m\": -5,", "{\"kind\": \"alpha\", \"alpha\": 2}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'packed_height_m': -5 is outside (0, 1000] m");
+    rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}", "{\"xd\": -0.1}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'uncertainty.xd': -0.1 is outside [0, 0.5]");
+    rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}", "{\"w_kg\": 3}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'uncertainty.w_kg': unknown field");
+    rc = parse("\"pressure_pa\": 101325,",
+               "{\"kind\": \"table\", \"x\": [0, 0.5, 0.4, 1], \"y\": [0, 0.5, 0.8, 1]}", &col,
+               &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'system.model': x-y table point 3");
+    rc = parse("", "{\"kind\": \"table\", \"x\": [0, 0.5, 1], \"y\": [0, 1]}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'system.model.y': expected an array of as many");
+    rc = parse("", "{\"kind\": \"table\", \"x\": [0, \"a\", 1], \"y\": [0, 0.5, 1]}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'system.model.x[1]': expected a number");
+    rc = parse("\"id\": \"C 3\",", "{\"kind\": \"alpha\", \"alpha\": 2}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "duplicate object key");
+
+    /* fields inside the components: build those texts by hand */
+    const char *mm = "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"a\", "
+                     "\"condenser\": \"partial\", \"system\": {\"light\": {\"name\": \"ethanol\", "
+                     "\"molar_mass_kg_mol\": 46.07}, \"heavy\": {\"name\": \"water\"}, "
+                     "\"model\": {\"kind\": \"alpha\", \"alpha\": 2}}}";
+    rc = stagecal_column_parse(mm, strlen(mm), "mm.json", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA,
+           "mm.json: field 'system.light.molar_mass_kg_mol': 46.07 is outside (0, 1] kg/mol");
+    const char *na = "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"a\", "
+                     "\"condenser\": \"total\", \"pressure_pa\": 1e5, \"system\": {\"light\": "
+                     "{\"name\": \"ethanol\"}, \"heavy\": {\"name\": \"water\"}, "
+                     "\"model\": {\"kind\": \"ideal\"}}}";
+    rc = stagecal_column_parse(na, strlen(na), "na.json", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'system.light.antoine': missing");
+    const char *same = "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"a\", "
+                       "\"condenser\": \"total\", \"system\": {\"light\": {\"name\": \"w\"}, "
+                       "\"heavy\": {\"name\": \"w\"}, \"model\": {\"kind\": \"alpha\", "
+                       "\"alpha\": 2}}}";
+    rc = stagecal_column_parse(same, strlen(same), "s.json", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'system.heavy.name': 'w' is also the light");
+    const char *cond = "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"a\", "
+                       "\"condenser\": \"half\", \"system\": {}}";
+    rc = stagecal_column_parse(cond, strlen(cond), "c.json", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'condenser': 'half' is not");
+    const char *id = "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"C 3\"}";
+    rc = stagecal_column_parse(id, strlen(id), "i.json", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'id': 'C 3' may hold only");
+    const char *lat = "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"a\", "
+                      "\"condenser\": \"total\", \"system\": {\"light\": {\"name\": \"e\"}, "
+                      "\"heavy\": {\"name\": \"w\"}, \"latent_heat_j_mol\": 40.6, "
+                      "\"model\": {\"kind\": \"alpha\", \"alpha\": 2}}}";
+    rc = stagecal_column_parse(lat, strlen(lat), "l.json", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'system.latent_heat_j_mol': 40.6 is outside");
+}
+
+static void column_format_version_and_syntax(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    stagecal_error err;
+    const char *syn = "{\n  \"format\": \"stagecal-column\",\n  \"version\": 1,\n  oops\n}\n";
+    int rc = stagecal_column_parse(syn, strlen(syn), "syn.json", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "syn.json:4: ");
+    assert_int_equal(err.line, 4); /* jansson's position of the bad token */
+    const char *v2 = "{\"format\": \"stagecal-column\", \"version\": 2}";
+    rc = stagecal_column_parse(v2, strlen(v2), "v2.json", &col, &err);
+    expect(rc, &err, STAGECAL_EVERSION, "field 'version': 2 is newer");
+    const char *fm = "{\"format\": \"some-other\", \"version\": 1}";
+    rc = stagecal_column_parse(fm, strlen(fm), "f.json", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "field 'format': expected \"stagecal-column\"");
+    rc = stagecal_column_parse("[1, 2]", 6, "a.json", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "expected a JSON object");
+    rc = stagecal_column_load(STAGECAL_BUILD_DIR "/no/such/column.json", &col, &err);
+    expect(rc, &err, STAGECAL_ENOINPUT, "cannot open");
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(column_examples_load),
+        cmocka_unit_test(column_table_and_other_models),
+        cmocka_unit_test(column_bad_fields_are_named),
+        cmocka_unit_test(column_format_version_and_syntax),
+    };
+    return cmocka_run_group_tests(tests, setup, NULL);
+}

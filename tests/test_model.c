@@ -1,0 +1,1102 @@
+/*
+ * test_model.c — the model file: SHA-256, exact round trip, atomic never-overwriting
+ * writes, refusal of corrupt / truncated / edited / newer files, and evaluation of the
+ * bands against the textbook formula for a straight line.
+ *
+ * Sources of truth: FIPS 180-4 example vectors (NIST), Python's hashlib
+ * (/usr/bin/python3), the closed-form confidence and prediction bands of simple linear
+ * regression (e.g. Montgomery & Runger, Applied Statistics and Probability for
+ * Engineers, §11-7; Draper & Smith, Applied Regression Analysis, ch. 1 — from memory),
+ * Student t quantile t(0.975, 8) = 2.306004135 (printed t tables; checked with
+ * scipy.stats.t.ppf). All files go to a fresh directory under the build tree.
+ */
+#include <dirent.h>
+#include <errno.h>
+#include <fcntl.h>
+#include <float.h>
+#include <math.h>
+#include <setjmp.h>
+#include <signal.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/resource.h>
+#include <sys/stat.h>
+#include <sys/wait.h>
+#include <time.h>
+#include <unistd.h>
+#include <cmocka.h>
+
+#include <gsl/gsl_errno.h>
+#include <jansson.h>
+
+#include "stagecal/model.h"
+#include "internal_sha256.h"
+#include "testutil.h"
+
+static char workdir[1024];
+
+/* ---- helpers ------------------------------------------------------------------------ */
+
+static void rm_tree(const char *path)
+{
+    DIR *d = opendir(path);
+    if (d) {
+        struct dirent *e;
+        while ((e = readdir(d)) != NULL) {
+            char sub[2048];
+            if (strcmp(e->d_name, ".") == 0 || strcmp(e->d_name, "..") == 0)
+                continue;
+            snprintf(sub, sizeof sub, "%s/%s", path, e->d_name);
+            rm_tree(sub);
+        }
+        closedir(d);
+        rmdir(path);
+    } else {
+        unlink(path);
+    }
+}
+
+/* Number of entries in dir (excluding . and ..); -1 when it cannot be opened. */
+static int count_entries(const char *dir)
+{
+    DIR *d = opendir(dir);
+    int n = 0;
+    struct dirent *e;
+    if (!d)
+        return -1;
+    while ((e = readdir(d)) != NULL)
+        if (strcmp(e->d_name, ".") != 0 && strcmp(e->d_name, "..") != 0)
+            n++;
+    closedir(d);
+    return n;
+}
+
+static char *slurp(const char *path, size_t *len)
+{
+    FILE *fp = fopen(path, "rb");
+    assert_non_null(fp);
+    fseek(fp, 0, SEEK_END);
+    long n = ftell(fp);
+    fseek(fp, 0, SEEK_SET);
+    char *buf = malloc((size_t)n + 1);
+    assert_non_null(buf);
+    assert_int_equal(fread(buf, 1, (size_t)n, fp), (size_t)n);
+    buf[n] = '\0';
+    fclose(fp);
+    if (len)
+        *len = (size_t)n;
+    return buf;
+}
+
+static void spit(const char *path, const char *text, size_t len)
+{
+    FILE *fp = fopen(path, "wb");
+    assert_non_null(fp);
+    assert_int_equal(fwrite(text, 1, len, fp), len);
+    assert_int_equal(fclose(fp), 0);
+}
+
+static void subdir(char *out, size_t cap, const char *name)
+{
+    snprintf(out, cap, "%s/%s", workdir, name);
+}
+
+/* A model with every field set to "high-entropy" values (GSL design notes). */
+static void fill_model(stagecal_model *m, const char *form_name)
+{
+    stagecal_error err;
+    stagecal_model_init(m);
+    snprintf(m->column_id, sizeof m->column_id, "K-17.demo");
+    snprintf(m->light, sizeof m->light, "ethanol");
+    snprintf(m->heavy, sizeof m->heavy, "water");
+    snprintf(m->vle_kind, sizeof m->vle_kind, "nrtl");
+    const double tau[] = {-0.8009, 246.18, 3.4578, -586.0809, 0.3};
+    const double a = 2.385;
+    assert_int_equal(stagecal_model_add_vle_param(m, "nrtl", tau, 5, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_add_vle_param(m, "p_pa", &a, 1, &err), STAGECAL_OK);
+    m->condenser = STAGECAL_CONDENSER_PARTIAL;
+    assert_int_equal(stagecal_form_parse(form_name, &m->form, &err), STAGECAL_OK);
+    size_t p = m->form.p;
+    for (size_t i = 0; i < p; i++) {
+        m->theta[i] = 7.123456789012345 / (double)(i + 1) - 0.1;
+        for (size_t j = 0; j <= i; j++) {
+            /* diagonally dominant, symmetric, values with no short decimal form */
+            double v = i == j ? 0.3 + 0.01 * (double)i : 1.0 / (3.0 + (double)(i + j));
+            m->cov[i * p + j] = m->cov[j * p + i] = v * 1e-2;
+        }
+    }
+    m->theta[0] = 0.1; /* 0.1 has no exact binary form: a good round-trip probe */
+    m->sigma = 0.41234567890123456;
+    m->dof = 37.5;
+    m->level = 0.9;
+    m->method = STAGECAL_MODEL_COMPOSITION_SPACE;
+    m->n_windows = 41;
+    m->n_samples = 523417;
+    m->n_runs = 9;
+    m->r_min = 1.0 / 3.0;
+    m->r_max = INFINITY;
+    m->has_load = 1;
+    m->f_min = 0.61;
+    m->f_max = 2.2360679774997898;
+    assert_int_equal(stagecal_model_add_input(m, "datasets/demo/run-1.csv",
+                                              "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410"
+                                              "ff61f20015ad",
+                                              1440, &err),
+                     STAGECAL_OK);
+    assert_int_equal(stagecal_model_add_input(m, "caf\xc3\xa9/run \"2\".csv",
+                                              "e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca4"
+                                              "95991b7852b855",
+                                              0, &err),
+                     STAGECAL_OK);
+    snprintf(m->fitted_utc, sizeof m->fitted_utc, "2026-11-30T08:15:42Z");
+    m->seed = 9007199254740993ull; /* 2^53 + 1: would not survive a trip through double */
+    assert_int_equal(stagecal_model_set_command_line(m,
+                                                     "stagecal calibrate --column k17.json "
+                                                     "run-1.csv",
+                                                     &err),
+                     STAGECAL_OK);
+    m->has_hetp = 1;
+    m->height_m = 3.05;
+    m->hetp_r = INFINITY;
+    m->hetp_f = 1.37;
+    m->hetp_m = 0.2914;
+    m->hetp_low_m = 5e-324; /* smallest subnormal double */
+    m->hetp_high_m = INFINITY;
+    m->hetp_level = 0.95;
+    assert_int_equal(stagecal_model_add_warning(m, "3 windows near a pinch were dropped", &err),
+                     STAGECAL_OK);
+    assert_int_equal(stagecal_model_add_warning(m, "", &err), STAGECAL_OK);
+}
+
+static void bits_equal(double a, double b, const char *what)
+{
+    if (memcmp(&a, &b, sizeof a) != 0) {
+        print_error("%s: %.17g and %.17g differ in their bits\n", what, a, b);
+        fail();
+    }
+}
+
+static void assert_models_equal(const stagecal_model *a, const stagecal_model *b)
+{
+    assert_string_equal(a->column_id, b->column_id);
+    assert_string_equal(a->light, b->light);
+    assert_string_equal(a->heavy, b->heavy);
+    assert_string_equal(a->vle_kind, b->vle_kind);
+    assert_int_equal(a->n_vle_params, b->n_vle_params);
+    for (size_t i = 0; i < a->n_vle_params; i++) {
+        /* the file stores the parameters object with sorted keys; find by name */
+        const stagecal_model_vle_param *pa = &a->vle_params[i], *pb = NULL;
+        for (size_t j = 0; j < b->n_vle_params; j++)
+            if (strcmp(b->vle_params[j].name, pa->name) == 0)
+                pb = &b->vle_params[j];
+        assert_non_null(pb);
+        assert_int_equal(pa->n, pb->n);
+        for (size_t j = 0; j < pa->n; j++)
+            bits_equal(pa->values[j], pb->values[j], pa->name);
+    }
+    assert_int_equal(a->condenser, b->condenser);
+    assert_string_equal(a->form.name, b->form.name);
+    assert_int_equal(a->form.p, b->form.p);
+    for (size_t i = 0; i < a->form.p; i++) {
+        bits_equal(a->theta[i], b->theta[i], "theta");
+        for (size_t j = 0; j < a->form.p; j++)
+            bits_equal(a->cov[i * a->form.p + j], b->cov[i * b->form.p + j], "cov");
+    }
+    bits_equal(a->sigma, b->sigma, "sigma");
+    bits_equal(a->dof, b->dof, "dof");
+    bits_equal(a->level, b->level, "level");
+    assert_int_equal(a->method, b->method);
+    assert_int_equal(a->n_windows, b->n_windows);
+    assert_int_equal(a->n_samples, b->n_samples);
+    assert_int_equal(a->n_runs, b->n_runs);
+    bits_equal(a->r_min, b->r_min, "r_min");
+    bits_equal(a->r_max, b->r_max, "r_max");
+    assert_int_equal(a->has_load, b->has_load);
+    bits_equal(a->f_min, b->f_min, "f_min");
+    bits_equal(a->f_max, b->f_max, "f_max");
+    assert_int_equal(a->n_inputs, b->n_inputs);
+    for (size_t i = 0; i < a->n_inputs; i++) {
+        assert_string_equal(a->inputs[i].path, b->inputs[i].path);
+        assert_string_equal(a->inputs[i].sha256, b->inputs[i].sha256);
+        assert_int_equal(a->inputs[i].rows, b->inputs[i].rows);
+    }
+    assert_string_equal(a->fitted_utc, b->fitted_utc);
+    assert_string_equal(a->tool_version, b->tool_version);
+    assert_true(a->seed == b->seed);
+    assert_true((a->command_line == NULL) == (b->command_line == NULL));
+    if (a->command_line)
+        assert_string_equal(a->command_line, b->command_line);
+    assert_int_equal(a->has_hetp, b->has_hetp);
+    bits_equal(a->height_m, b->height_m, "height_m");
+    bits_equal(a->hetp_r, b->hetp_r, "hetp_r");
+    bits_equal(a->hetp_f, b->hetp_f, "hetp_f");
+    bits_equal(a->hetp_m, b->hetp_m, "hetp_m");
+    bits_equal(a->hetp_low_m, b->hetp_low_m, "hetp_low_m");
+    bits_equal(a->hetp_high_m, b->hetp_high_m, "hetp_high_m");
+    bits_equal(a->hetp_level, b->hetp_level, "hetp_level");
+    assert_int_equal(a->n_warnings, b->n_warnings);
+    for (size_t i = 0; i < a->n_warnings; i++)
+        assert_string_equal(a->warnings[i], b->warnings[i]);
+}
+
+/* Rewrites a model file after edit() changed its JSON, with a fresh, valid checksum, so
+ * that the validation behind the checksum can be provoked. The canonical text is the
+ * one docs/model-file.md defines. */
+static void rewrite_with_checksum(const char *path, void (*edit)(json_t *doc))
+{
+    json_error_t jerr;
+    char hex[SHA256_HEX];
+    json_t *doc = json_load_file(path, 0, &jerr);
+    assert_non_null(doc);
+    edit(doc);
+    json_object_del(doc, "checksum");
+    char *canon = json_dumps(doc, JSON_COMPACT | JSON_SORT_KEYS | JSON_ENSURE_ASCII |
+                                      JSON_REAL_PRECISION(17));
+    assert_non_null(canon);
+    sha256_hex(canon, strlen(canon), hex);
+    free(canon);
+    json_object_set_new(doc, "checksum",
+                        json_pack("{s:s, s:s}", "algorithm", "sha256", "value", hex));
+    assert_int_equal(json_dump_file(doc, path, JSON_INDENT(2) | JSON_REAL_PRECISION(17)), 0);
+    json_decref(doc);
+}
+
+/* Writes the standard model into dir; returns its path in out. */
+static void write_standard(const char *dir, const char *form, char *out, size_t cap)
+{
+    stagecal_model m;
+    stagecal_error err;
+    fill_model(&m, form);
+    int rc = stagecal_model_write(&m, dir, out, cap, &err);
+    if (rc != STAGECAL_OK)
+        print_error("write: %s\n", err.text);
+    assert_int_equal(rc, STAGECAL_OK);
+    stagecal_model_free(&m);
+}
+
+static void expect_load_error(const char *path, int code, const char *want)
+{
+    stagecal_model m;
+    stagecal_error err;
+    stagecal_model_init(&m);
+    int rc = stagecal_model_load(path, &m, &err);
+    if (rc != code || strcmp(err.text, want) != 0)
+        print_error("load %s: got %d '%s'\n          want %d '%s'\n", path, rc, err.text, code,
+                    want);
+    assert_int_equal(rc, code);
+    assert_string_equal(err.text, want);
+    /* a refused file leaves the model empty */
+    assert_int_equal(m.n_inputs, 0);
+    assert_int_equal(m.form.p, 0);
+    stagecal_model_free(&m);
+}
+
+/* ---- SHA-256 ------------------------------------------------------------------------ */
+
+static void model_sha256_fips_vectors(void **state)
+{
+    (void)state;
+    char hex[SHA256_HEX];
+    /* FIPS 180-4 examples (NIST, "SHA256.pdf" example values; also FIPS 180-2 App. B) */
+    sha256_hex("abc", 3, hex);
+    assert_string_equal(hex, "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+    sha256_hex("", 0, hex);
+    assert_string_equal(hex, "e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca495991b7852b855");
+    const char *m448 = "abcdbcdecdefdefgefghfghighijhijkijkljklmklmnlmnomnopnopq";
+    assert_int_equal(strlen(m448) * 8, 448);
+    sha256_hex(m448, strlen(m448), hex);
+    assert_string_equal(hex, "248d6a61d20638b8e5c026930c3e6039a33ce45964ff2167f6ecedd419db06c1");
+    /* one million 'a' (FIPS 180-2 App. B.3), fed in uneven pieces to exercise buffering */
+    sha256_ctx c;
+    unsigned char d[SHA256_DIGEST], chunk[997];
+    memset(chunk, 'a', sizeof chunk);
+    sha256_init(&c);
+    size_t left = 1000000;
+    for (size_t k = 1; left > 0; k = k % 997 + 1) {
+        size_t take = k < left ? k : left;
+        sha256_update(&c, chunk, take);
+        left -= take;
+    }
+    sha256_final(&c, d);
+    sha256_to_hex(d, hex);
+    assert_string_equal(hex, "cdc76e5c9914fb9281a1c7e284d73e67f1809a48a497200e046d39ccc7112cd0");
+}
+
+/* Every length 0..200 (all padding cases around 55/56/64 bytes) against hashlib. */
+static void model_sha256_matches_hashlib(void **state)
+{
+    (void)state;
+    const char *cmd = STAGECAL_PYTHON " -c \"import hashlib\n"
+                                      "for n in range(201):\n"
+                                      "    print(hashlib.sha256(bytes((7*i+3)%256 for i in "
+                                      "range(n))).hexdigest())\"";
+    FILE *pp = popen(cmd, "r");
+    assert_non_null(pp);
+    unsigned char msg[200];
+    for (size_t i = 0; i < sizeof msg; i++)
+        msg[i] = (unsigned char)((7 * i + 3) % 256);
+    char line[128], hex[SHA256_HEX];
+    size_t n = 0;
+    while (fgets(line, sizeof line, pp)) {
+        line[strcspn(line, "\n")] = '\0';
+        sha256_hex(msg, n, hex);
+        if (strcmp(hex, line) != 0)
+            print_error("length %zu: %s != hashlib %s\n", n, hex, line);
+        assert_string_equal(hex, line);
+        n++;
+    }
+    assert_int_equal(pclose(pp), 0);
+    assert_int_equal(n, 201);
+}
+
+/* The checksum's canonical text, re-implemented in Python from docs/model-file.md (json +
+ * hashlib, not jansson): a third party can verify a model file without our code. */
+static const char canon_py[] =
+    "import hashlib, json, sys\n"
+    "\n"
+    "def canon(v):\n"
+    "    if v is None: return \"null\"\n"
+    "    if v is True: return \"true\"\n"
+    "    if v is False: return \"false\"\n"
+    "    if isinstance(v, int): return str(v)\n"
+    "    if isinstance(v, float):\n"
+    "        t = \"%.17g\" % v\n"
+    "        return t if any(c in t for c in \".eE\") else t + \".0\"\n"
+    "    if isinstance(v, str):\n"
+    "        out = []\n"
+    "        for ch in v:\n"
+    "            o = ord(ch)\n"
+    "            if ch == '\"': out.append('\\\\\"')\n"
+    "            elif ch == '\\\\': out.append('\\\\\\\\')\n"
+    "            elif ch == '\\b': out.append('\\\\b')\n"
+    "            elif ch == '\\f': out.append('\\\\f')\n"
+    "            elif ch == '\\n': out.append('\\\\n')\n"
+    "            elif ch == '\\r': out.append('\\\\r')\n"
+    "            elif ch == '\\t': out.append('\\\\t')\n"
+    "            elif o < 0x20 or o >= 0x7f:\n"
+    "                if o > 0xffff:\n"
+    "                    o -= 0x10000\n"
+    "                    out.append('\\\\u%04X\\\\u%04X' % (0xd800 | (o >> 10), 0xdc00 | (o & "
+    "0x3ff)))\n"
+    "                else:\n"
+    "                    out.append('\\\\u%04X' % o)\n"
+    "            else: out.append(ch)\n"
+    "        return '\"' + \"\".join(out) + '\"'\n"
+    "    if isinstance(v, list): return \"[\" + \",\".join(canon(x) for x in v) + \"]\"\n"
+    "    return \"{\" + \",\".join(canon(k) + \":\" + canon(v[k]) for k in sorted(v)) + \"}\"\n"
+    "\n"
+    "doc = json.load(open(sys.argv[1], encoding=\"utf-8\"))\n"
+    "want = doc.pop(\"checksum\")[\"value\"]\n"
+    "got = hashlib.sha256(canon(doc).encode(\"ascii\")).hexdigest()\n"
+    "print(\"ok\" if got == want else \"mismatch \" + got)\n"
+    "\n";
+
+static void model_checksum_verifiable_in_python(void **state)
+{
+    (void)state;
+    char dir[1100], path[1200], script[1100], cmd[2600], line[256];
+    subdir(dir, sizeof dir, "python");
+    write_standard(dir, "saturating-load", path, sizeof path); /* holds "caf\u00e9", quotes */
+    subdir(script, sizeof script, "checksum.py");
+    spit(script, canon_py, strlen(canon_py));
+    snprintf(cmd, sizeof cmd, "%s '%s' '%s'", STAGECAL_PYTHON, script, path);
+    FILE *pp = popen(cmd, "r");
+    assert_non_null(pp);
+    assert_non_null(fgets(line, sizeof line, pp));
+    assert_int_equal(pclose(pp), 0);
+    assert_string_equal(line, "ok\n");
+}
+
+static void model_hash_file_matches_fips(void **state)
+{
+    (void)state;
+    char path[1100], hex[STAGECAL_MODEL_HEX];
+    stagecal_error err;
+    subdir(path, sizeof path, "abc.txt");
+    spit(path, "abc", 3);
+    assert_int_equal(stagecal_model_hash_file(path, hex, &err), STAGECAL_OK);
+    /* FIPS 180-4 example "abc" */
+    assert_string_equal(hex, "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+    subdir(path, sizeof path, "no-such-file.csv");
+    assert_int_equal(stagecal_model_hash_file(path, hex, &err), STAGECAL_ENOINPUT);
+}
+
+/* ---- writing and reading ----------------------------------------------------------- */
+
+static void model_roundtrip_exact(void **state)
+{
+    (void)state;
+    char dir[1100], path[1200];
+    stagecal_model m, back;
+    stagecal_error err;
+    subdir(dir, sizeof dir, "fits/K-17.demo");
+    const char *forms[] = {"saturating-load", "linear:1+1/R+F", "constant"};
+    for (size_t k = 0; k < 3; k++) {
+        fill_model(&m, forms[k]);
+        if (k == 2) { /* the other branches: no load, no HETP, no command line, total */
+            m.has_load = 0;
+            m.has_hetp = 0;
+            m.condenser = STAGECAL_CONDENSER_TOTAL;
+            m.r_max = 6.25;
+            m.method = STAGECAL_MODEL_STAGE_SPACE;
+            m.hetp_r = m.hetp_f = m.hetp_m = m.hetp_low_m = m.hetp_high_m = m.hetp_level = 0;
+            m.height_m = m.f_min = m.f_max = 0;
+            assert_int_equal(stagecal_model_set_command_line(&m, NULL, &err), STAGECAL_OK);
+        }
+        int rc = stagecal_model_write(&m, dir, path, sizeof path, &err);
+        if (rc)
+            print_error("%s\n", err.text);
+        assert_int_equal(rc, STAGECAL_OK);
+        stagecal_model_init(&back);
+        rc = stagecal_model_load(path, &back, &err);
+        if (rc)
+            print_error("%s\n", err.text);
+        assert_int_equal(rc, STAGECAL_OK);
+        assert_models_equal(&m, &back);
+        stagecal_model_free(&back);
+        stagecal_model_free(&m);
+    }
+}
+
+static void model_write_names_file_after_fit_time(void **state)
+{
+    (void)state;
+    char dir[1100], path[1200], want[1200];
+    subdir(dir, sizeof dir, "naming/deep/er");
+    write_standard(dir, "saturating", path, sizeof path);
+    snprintf(want, sizeof want, "%s/K-17.demo-20261130T081542Z.json", dir);
+    assert_string_equal(path, want);
+    assert_int_equal(count_entries(dir), 1); /* no temporary file left */
+    struct stat st;
+    mode_t mask = umask(022);
+    umask(mask);
+    assert_int_equal(stat(path, &st), 0);
+    assert_int_equal(st.st_mode & 0777, 0644 & ~mask);
+}
+
+static void model_write_never_overwrites(void **state)
+{
+    (void)state;
+    char dir[1100], p1[1200], p2[1200], p3[1200];
+    subdir(dir, sizeof dir, "twice");
+    /* Same fit time (same second) three times: three distinct files. */
+    write_standard(dir, "saturating", p1, sizeof p1);
+    size_t n1;
+    char *before = slurp(p1, &n1);
+    write_standard(dir, "saturating", p2, sizeof p2);
+    write_standard(dir, "saturating", p3, sizeof p3);
+    assert_string_not_equal(p1, p2);
+    assert_string_not_equal(p2, p3);
+    assert_non_null(strstr(p2, "-20261130T081542Z-2.json"));
+    assert_non_null(strstr(p3, "-20261130T081542Z-3.json"));
+    assert_int_equal(count_entries(dir), 3);
+    size_t n1b;
+    char *after = slurp(p1, &n1b);
+    assert_int_equal(n1, n1b);
+    assert_memory_equal(before, after, n1);
+    free(before);
+    free(after);
+}
+
+static void model_write_unwritable_is_ewrite(void **state)
+{
+    (void)state;
+    char file[1100], dir[1200], path[1200];
+    stagecal_model m;
+    stagecal_error err;
+    fill_model(&m, "saturating");
+
+    /* 1. the directory cannot be created: a regular file stands in its way */
+    subdir(file, sizeof file, "plainfile");
+    spit(file, "x", 1);
+    snprintf(dir, sizeof dir, "%s/fits/K-17", file);
+    assert_int_equal(stagecal_model_write(&m, dir, path, sizeof path, &err), STAGECAL_EWRITE);
+    assert_non_null(strstr(err.text, "cannot create directory"));
+
+    /* 2. a read-only directory (permission bits do not stop root: checked only as a user) */
+    subdir(dir, sizeof dir, "readonly");
+    assert_int_equal(mkdir(dir, 0555), 0);
+    if (geteuid() != 0) {
+        assert_int_equal(stagecal_model_write(&m, dir, path, sizeof path, &err), STAGECAL_EWRITE);
+        assert_non_null(strstr(err.text, "cannot create a file in"));
+    }
+    assert_int_equal(count_entries(dir), 0);
+
+    /* 3. the disk fills up while writing (file-size limit, works for root as well): the
+     * temporary file must be removed */
+    subdir(dir, sizeof dir, "full");
+    assert_int_equal(mkdir(dir, 0755), 0);
+    struct rlimit old, small;
+    assert_int_equal(getrlimit(RLIMIT_FSIZE, &old), 0);
+    small = old;
+    small.rlim_cur = 512; /* a model file is several kB */
+    void (*prev)(int) = signal(SIGXFSZ, SIG_IGN);
+    assert_int_equal(setrlimit(RLIMIT_FSIZE, &small), 0);
+    int rc = stagecal_model_write(&m, dir, path, sizeof path, &err);
+    assert_int_equal(setrlimit(RLIMIT_FSIZE, &old), 0);
+    signal(SIGXFSZ, prev);
+    assert_int_equal(rc, STAGECAL_EWRITE);
+    assert_non_null(strstr(err.text, "cannot write"));
+    assert_int_equal(count_entries(dir), 0);
+
+    /* 4. the caller's buffer is too small for the path: EWRITE, nothing left behind */
+    subdir(dir, sizeof dir, "smallbuf");
+    char tiny[8];
+    assert_int_equal(stagecal_model_write(&m, dir, tiny, sizeof tiny, &err), STAGECAL_EWRITE);
+    assert_int_equal(count_entries(dir), 0);
+    stagecal_model_free(&m);
+}
+
+/* A writer killed with SIGKILL at an arbitrary moment leaves only complete model files:
+ * every name in the directory is a final name and loads. */
+static void model_kill9_leaves_no_partial_file(void **state)
+{
+    (void)state;
+    char dir[1100];
+    stagecal_model m;
+    subdir(dir, sizeof dir, "killed");
+    fill_model(&m, "saturating-load");
+    assert_int_equal(mkdir(dir, 0755), 0);
+    pid_t pid = fork();
+    assert_true(pid >= 0);
+    if (pid == 0) {
+        for (int i = 0; i < 5000; i++)
+            if (stagecal_model_write(&m, dir, NULL, 0, NULL) != STAGECAL_OK)
+                _exit(3);
+        _exit(0);
+    }
+    /* wait until the child is in full swing (bounded: 20 s at most) */
+    struct timespec nap = {0, 2000000};
+    for (int k = 0; k < 10000 && count_entries(dir) < 6; k++)
+        nanosleep(&nap, NULL);
+    assert_int_equal(kill(pid, SIGKILL), 0);
+    int status;
+    assert_int_equal(waitpid(pid, &status, 0), pid);
+    assert_true(WIFSIGNALED(status) || (WIFEXITED(status) && WEXITSTATUS(status) == 0));
+
+    DIR *d = opendir(dir);
+    assert_non_null(d);
+    struct dirent *e;
+    int files = 0;
+    while ((e = readdir(d)) != NULL) {
+        char path[2200];
+        stagecal_model back;
+        stagecal_error err;
+        if (strcmp(e->d_name, ".") == 0 || strcmp(e->d_name, "..") == 0)
+            continue;
+        if (strncmp(e->d_name, "K-17.demo-20261130T081542Z", 26) != 0)
+            print_error("unexpected entry '%s'\n", e->d_name);
+        assert_memory_equal(e->d_name, "K-17.demo-20261130T081542Z", 26);
+        snprintf(path, sizeof path, "%s/%s", dir, e->d_name);
+        stagecal_model_init(&back);
+        int rc = stagecal_model_load(path, &back, &err);
+        if (rc)
+            print_error("%s\n", err.text);
+        assert_int_equal(rc, STAGECAL_OK);
+        assert_models_equal(&m, &back);
+        stagecal_model_free(&back);
+        files++;
+    }
+    closedir(d);
+    assert_true(files >= 6);
+    print_message("kill -9 after %d complete files, no partial file\n", files);
+    stagecal_model_free(&m);
+}
+
+static void model_write_refuses_invalid_model(void **state)
+{
+    (void)state;
+    char dir[1100], path[1200];
+    stagecal_model m;
+    stagecal_error err;
+    subdir(dir, sizeof dir, "invalid");
+
+    fill_model(&m, "saturating");
+    snprintf(m.column_id, sizeof m.column_id, "../escape");
+    assert_int_equal(stagecal_model_write(&m, dir, path, sizeof path, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text, "column id '../escape': expected letters, digits, '_', '.', "
+                                  "'-' (not starting with '.')");
+    stagecal_model_free(&m);
+
+    fill_model(&m, "saturating");
+    m.sigma = NAN;
+    assert_int_equal(stagecal_model_write(&m, dir, path, sizeof path, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text, "sigma_stages = nan: expected a finite number >= 0");
+    stagecal_model_free(&m);
+
+    fill_model(&m, "saturating");
+    m.cov[1] = 1.0; /* cov[0][1] no longer equals cov[1][0] */
+    assert_int_equal(stagecal_model_write(&m, dir, path, sizeof path, &err), STAGECAL_EINVAL);
+    assert_non_null(strstr(err.text, "covariance is not symmetric"));
+    stagecal_model_free(&m);
+
+    fill_model(&m, "saturating");
+    m.fitted_utc[10] = ' ';
+    assert_int_equal(stagecal_model_write(&m, dir, path, sizeof path, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text, "provenance: fitted_utc '2026-11-30 08:15:42Z': expected "
+                                  "YYYY-MM-DDTHH:MM:SSZ");
+    stagecal_model_free(&m);
+
+    fill_model(&m, "saturating-load");
+    m.has_load = 0;
+    assert_int_equal(stagecal_model_write(&m, dir, path, sizeof path, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text, "envelope: the form 'saturating-load' uses the F-factor but "
+                                  "the envelope has no F range");
+    stagecal_model_free(&m);
+    assert_int_equal(count_entries(dir), -1); /* not even the directory was made */
+}
+
+static void model_load_refuses_corrupt_and_truncated(void **state)
+{
+    (void)state;
+    char dir[1100], path[1200], want[1400];
+    subdir(dir, sizeof dir, "corrupt");
+    write_standard(dir, "saturating", path, sizeof path);
+    size_t n;
+    char *text = slurp(path, &n);
+
+    /* truncated just after an object opens (a copy interrupted mid-file): jansson
+     * reports the end of input where a member name should follow */
+    char *cut = strstr(text, "\"correlation\": {");
+    assert_non_null(cut);
+    spit(path, text, (size_t)(cut - text) + strlen("\"correlation\": {\n"));
+    stagecal_model m;
+    stagecal_error err;
+    stagecal_model_init(&m);
+    assert_int_equal(stagecal_model_load(path, &m, &err), STAGECAL_EDATA);
+    assert_true(err.line > 1);
+    snprintf(want, sizeof want,
+             "%s:%ld: not a valid JSON document (truncated or corrupt?): string or '}' expected "
+             "near end of file",
+             path, err.line);
+    assert_string_equal(err.text, want);
+
+    /* truncated at half */
+    spit(path, text, n / 2);
+    assert_int_equal(stagecal_model_load(path, &m, &err), STAGECAL_EDATA);
+    snprintf(want, sizeof want, "%s:%ld: not a valid JSON document (truncated or corrupt?): ", path,
+             err.line);
+    assert_memory_equal(err.text, want, strlen(want));
+    assert_non_null(strstr(err.text, "end of file"));
+
+    /* binary garbage in the middle */
+    memcpy(text + n / 3, "\x01\xff\xfe", 3);
+    spit(path, text, n);
+    assert_int_equal(stagecal_model_load(path, &m, &err), STAGECAL_EDATA);
+    snprintf(want, sizeof want, "%s:%ld: not a valid JSON document (truncated or corrupt?): ", path,
+             err.line);
+    assert_memory_equal(err.text, want, strlen(want));
+
+    /* an empty file */
+    spit(path, "", 0);
+    snprintf(want, sizeof want,
+             "%s:1: not a valid JSON document (truncated or corrupt?): '[' or '{' expected near "
+             "end of file",
+             path);
+    expect_load_error(path, STAGECAL_EDATA, want);
+
+    /* JSON, but not ours */
+    const char *other = "{\"format\": \"other-tool\", \"version\": 1}";
+    spit(path, other, strlen(other));
+    snprintf(want, sizeof want,
+             "%s: not a stagecal model file (format 'other-tool', expected 'stagecal-model')",
+             path);
+    expect_load_error(path, STAGECAL_EDATA, want);
+    spit(path, "[1, 2]", 6);
+    snprintf(want, sizeof want, "%s: not a stagecal model file (the document is not a JSON object)",
+             path);
+    expect_load_error(path, STAGECAL_EDATA, want);
+
+    /* missing file */
+    subdir(path, sizeof path, "corrupt/none.json");
+    snprintf(want, sizeof want, "%s: cannot open: No such file or directory", path);
+    expect_load_error(path, STAGECAL_ENOINPUT, want);
+    free(text);
+}
+
+static void model_load_refuses_hand_edit(void **state)
+{
+    (void)state;
+    char dir[1100], path[1200], want[1400];
+    subdir(dir, sizeof dir, "edited");
+    write_standard(dir, "saturating", path, sizeof path);
+    size_t n;
+    char *text = slurp(path, &n);
+    /* the engineer "improves" the residual sigma by hand: 0.412… → 0.312… */
+    char *s = strstr(text, "\"sigma_stages\": 0.4");
+    assert_non_null(s);
+    s[strlen("\"sigma_stages\": 0.")] = '3';
+    spit(path, text, n);
+    snprintf(want, sizeof want, "%s: checksum mismatch: the file was edited or damaged", path);
+    expect_load_error(path, STAGECAL_EDATA, want);
+    free(text);
+}
+
+static void model_load_refuses_newer_version(void **state)
+{
+    (void)state;
+    char dir[1100], path[1200], want[1400];
+    subdir(dir, sizeof dir, "newer");
+    write_standard(dir, "saturating", path, sizeof path);
+    size_t n;
+    char *text = slurp(path, &n);
+    char *s = strstr(text, "\"version\": 1");
+    assert_non_null(s);
+    s[strlen("\"version\": ")] = '3';
+    spit(path, text, n);
+    snprintf(want, sizeof want, "%s: written by a newer stagecal (format version 3 > 1)", path);
+    expect_load_error(path, STAGECAL_EVERSION, want);
+    free(text);
+}
+
+static void edit_asymmetric(json_t *doc)
+{
+    json_t *cov = json_object_get(json_object_get(doc, "correlation"), "covariance");
+    json_array_set_new(json_array_get(cov, 0), 1, json_real(0.5));
+}
+static void edit_extra_parameter(json_t *doc)
+{
+    json_t *par = json_object_get(json_object_get(doc, "correlation"), "parameters");
+    json_array_append_new(par, json_pack("{s:s, s:f}", "name", "c", "value", 1.5));
+}
+static void edit_negative_variance(json_t *doc)
+{
+    json_t *cov = json_object_get(json_object_get(doc, "correlation"), "covariance");
+    json_array_set_new(json_array_get(cov, 1), 1, json_real(-0.25));
+}
+static void edit_form(json_t *doc)
+{
+    json_object_set_new(json_object_get(doc, "correlation"), "form", json_string("wavy"));
+}
+static void edit_drop_dof(json_t *doc)
+{
+    json_object_del(json_object_get(doc, "correlation"), "dof");
+}
+static void edit_sigma_type(json_t *doc)
+{
+    json_object_set_new(json_object_get(doc, "correlation"), "sigma_stages", json_string("0.4"));
+}
+static void edit_short_row(json_t *doc)
+{
+    json_t *cov = json_object_get(json_object_get(doc, "correlation"), "covariance");
+    json_array_remove(json_array_get(cov, 1), 1);
+}
+static void edit_param_name(json_t *doc)
+{
+    json_t *par = json_object_get(json_object_get(doc, "correlation"), "parameters");
+    json_object_set_new(json_array_get(par, 1), "name", json_string("k"));
+}
+static void edit_envelope(json_t *doc)
+{
+    json_object_set_new(json_object_get(doc, "envelope"), "r_min", json_real(-1.0));
+}
+static void edit_hash(json_t *doc)
+{
+    json_t *in = json_array_get(json_object_get(json_object_get(doc, "provenance"), "inputs"), 0);
+    json_object_set_new(in, "sha256", json_string("ABC"));
+}
+
+static void model_load_refuses_inconsistent(void **state)
+{
+    (void)state;
+    static const struct {
+        void (*edit)(json_t *);
+        int code;
+        const char *want; /* after "path: " */
+    } cases[] = {
+        {edit_asymmetric, STAGECAL_EDATA,
+         "covariance is not symmetric: [1][0] = 0.0025000000000000001 but [0][1] = 0.5"},
+        {edit_extra_parameter, STAGECAL_EDATA,
+         "correlation form 'saturating' has 2 parameters but the file lists 3"},
+        {edit_negative_variance, STAGECAL_EDATA,
+         "covariance[1][1] = -0.25: a variance must be >= 0"},
+        {edit_drop_dof, STAGECAL_EDATA, "missing member 'correlation.dof'"},
+        {edit_sigma_type, STAGECAL_EDATA, "member 'correlation.sigma_stages': expected a number"},
+        {edit_short_row, STAGECAL_EDATA,
+         "correlation.covariance[1]: expected an array of 2 numbers"},
+        {edit_param_name, STAGECAL_EDATA,
+         "correlation.parameters[1] is named 'k', the form 'saturating' expects 'b'"},
+        {edit_envelope, STAGECAL_EDATA,
+         "envelope: R range [-1, inf]: expected 0 <= r_min <= r_max (r_max may be inf)"},
+        {edit_hash, STAGECAL_EDATA,
+         "provenance.inputs[0]: input 'datasets/demo/run-1.csv': sha256 is not 64 lowercase "
+         "hex digits"},
+    };
+    char dir[1100], path[1200], want[1400];
+    subdir(dir, sizeof dir, "inconsistent");
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        write_standard(dir, "saturating", path, sizeof path);
+        rewrite_with_checksum(path, cases[i].edit);
+        snprintf(want, sizeof want, "%s: %s", path, cases[i].want);
+        expect_load_error(path, cases[i].code, want);
+    }
+    /* an unknown form: the message carries the form parser's own text */
+    write_standard(dir, "saturating", path, sizeof path);
+    rewrite_with_checksum(path, edit_form);
+    stagecal_model m;
+    stagecal_error err;
+    stagecal_model_init(&m);
+    assert_int_equal(stagecal_model_load(path, &m, &err), STAGECAL_EDATA);
+    snprintf(want, sizeof want, "%s: correlation form: ", path);
+    assert_memory_equal(err.text, want, strlen(want));
+    assert_non_null(strstr(err.text, "wavy"));
+}
+
+/* ---- evaluation ------------------------------------------------------------------------ */
+
+/* Ten invented (R, stages) points for a straight line in x = 1/R. */
+static const double pts_r[] = {0.85, 1.1, 1.45, 1.9, 2.35, 3.05, 3.8, 4.7, 5.9, 7.4};
+static const double pts_n[] = {6.02, 6.91, 7.48, 8.16, 8.33, 8.91, 9.02, 9.37, 9.41, 9.77};
+#define NPTS 10
+
+/* Least squares by the textbook sums (no code under test): θ, C = s²(XᵀX)⁻¹, s. */
+static void textbook_fit(double *a, double *b, double *s, double *xbar, double *sxx)
+{
+    double sx = 0, sy = 0;
+    for (size_t i = 0; i < NPTS; i++) {
+        sx += 1.0 / pts_r[i];
+        sy += pts_n[i];
+    }
+    *xbar = sx / NPTS;
+    double ybar = sy / NPTS, sxy = 0;
+    *sxx = 0;
+    for (size_t i = 0; i < NPTS; i++) {
+        double dx = 1.0 / pts_r[i] - *xbar;
+        *sxx += dx * dx;
+        sxy += dx * (pts_n[i] - ybar);
+    }
+    *b = sxy / *sxx;
+    *a = ybar - *b * *xbar;
+    double rss = 0;
+    for (size_t i = 0; i < NPTS; i++) {
+        double e = pts_n[i] - (*a + *b / pts_r[i]);
+        rss += e * e;
+    }
+    *s = sqrt(rss / (NPTS - 2));
+}
+
+static void linear_model(stagecal_model *m)
+{
+    double a, b, s, xbar, sxx;
+    fill_model(m, "linear:1+1/R");
+    textbook_fit(&a, &b, &s, &xbar, &sxx);
+    m->condenser = STAGECAL_CONDENSER_TOTAL;
+    m->has_load = 0;
+    m->theta[0] = a;
+    m->theta[1] = b;
+    /* var(a) = s²(1/n + x̄²/Sxx), var(b) = s²/Sxx, cov(a, b) = −x̄ s²/Sxx */
+    m->cov[0] = s * s * (1.0 / NPTS + xbar * xbar / sxx);
+    m->cov[3] = s * s / sxx;
+    m->cov[1] = m->cov[2] = -xbar * s * s / sxx;
+    m->sigma = s;
+    m->dof = NPTS - 2;
+    m->level = 0.95;
+    m->r_min = pts_r[0];
+    m->r_max = pts_r[NPTS - 1];
+}
+
+static void model_eval_matches_textbook_band(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_model_point pt;
+    stagecal_error err;
+    double a, b, s, xbar, sxx;
+    textbook_fit(&a, &b, &s, &xbar, &sxx);
+    linear_model(&m);
+    /* t(0.975, 8) = 2.306004135 from t tables, scipy.stats.t.ppf(0.975, 8) =
+     * 2.3060041350333704 */
+    const double t975 = 2.3060041350333704;
+    const double r0[] = {1.7, 4.4, INFINITY, 0.6};
+    for (size_t k = 0; k < 4; k++) {
+        double x0 = isinf(r0[k]) ? 0.0 : 1.0 / r0[k];
+        double yhat = a + b * x0;
+        /* ŷ ± t·s·sqrt(1/n + (x0 − x̄)²/Sxx), and with 1 + … for a new observation */
+        double sf = s * sqrt(1.0 / NPTS + (x0 - xbar) * (x0 - xbar) / sxx);
+        double sp = s * sqrt(1.0 + 1.0 / NPTS + (x0 - xbar) * (x0 - xbar) / sxx);
+        /* level 0 means the model's default level (0.95) */
+        int rc = stagecal_model_eval(&m, r0[k], NAN, 0, &pt, &err);
+        if (rc)
+            print_error("%s\n", err.text);
+        assert_int_equal(rc, STAGECAL_OK);
+        /* tolerance 1e-12 relative: two algebraically equal formulas in double precision
+         * (the library's gᵀCg against the centred closed form) differ by rounding only */
+        assert_rel(pt.stages, yhat, 1e-12, "stages");
+        assert_rel(pt.column_stages, yhat - 1, 1e-12, "column stages (total condenser)");
+        assert_rel(pt.se_fit, sf, 1e-12, "se_fit");
+        assert_rel(pt.se_pred, sp, 1e-12, "se_pred");
+        /* t from the library (GSL) against the table value: 1e-10 for the quantile's
+         * inversion accuracy */
+        assert_rel(pt.t, t975, 1e-10, "t(0.975, 8)");
+        assert_rel(pt.ci_low, yhat - t975 * sf, 1e-10, "ci_low");
+        assert_rel(pt.ci_high, yhat + t975 * sf, 1e-10, "ci_high");
+        assert_rel(pt.pi_low, yhat - t975 * sp, 1e-10, "pi_low");
+        assert_rel(pt.pi_high, yhat + t975 * sp, 1e-10, "pi_high");
+        assert_rel(pt.level, 0.95, 0, "default level");
+    }
+    /* 90 %: t(0.95, 8) = 1.859548038 (tables; scipy 1.8595480375228424) */
+    assert_int_equal(stagecal_model_eval(&m, 2.0, NAN, 0.90, &pt, &err), STAGECAL_OK);
+    double sf = s * sqrt(1.0 / NPTS + (0.5 - xbar) * (0.5 - xbar) / sxx);
+    assert_rel(pt.ci_high - pt.stages, 1.8595480375228424 * sf, 1e-10, "90 % half-width");
+    /* a partial condenser is one more equilibrium stage */
+    m.condenser = STAGECAL_CONDENSER_PARTIAL;
+    assert_int_equal(stagecal_model_eval(&m, 2.0, NAN, 0.90, &pt, &err), STAGECAL_OK);
+    assert_rel(pt.column_stages, pt.stages - 2, 1e-15, "column stages (partial condenser)");
+    stagecal_model_free(&m);
+}
+
+/* The same band by the design-matrix formula x0ᵀ(XᵀX)⁻¹x0 (2×2 inverse written out), on
+ * a model that went through a file (so what a planner loads is what is checked). */
+static void model_eval_after_load_matches_design_matrix(void **state)
+{
+    (void)state;
+    stagecal_model m, back;
+    stagecal_model_point pt;
+    stagecal_error err;
+    char dir[1100], path[1200];
+    linear_model(&m);
+    subdir(dir, sizeof dir, "planner");
+    assert_int_equal(stagecal_model_write(&m, dir, path, sizeof path, &err), STAGECAL_OK);
+    stagecal_model_init(&back);
+    assert_int_equal(stagecal_model_load(path, &back, &err), STAGECAL_OK);
+
+    /* (XᵀX) for rows (1, 1/R_i), inverted in closed form for 2×2 */
+    double s00 = NPTS, s01 = 0, s11 = 0;
+    for (size_t i = 0; i < NPTS; i++) {
+        s01 += 1.0 / pts_r[i];
+        s11 += 1.0 / (pts_r[i] * pts_r[i]);
+    }
+    double det = s00 * s11 - s01 * s01;
+    double x0 = 1.0 / 2.85;
+    double q = (s11 - 2 * x0 * s01 + x0 * x0 * s00) / det; /* x0ᵀ(XᵀX)⁻¹x0 */
+    assert_int_equal(stagecal_model_eval(&back, 2.85, NAN, 0.95, &pt, &err), STAGECAL_OK);
+    /* 1e-11: the determinant form loses a few more digits than the centred one */
+    assert_rel(pt.se_fit, back.sigma * sqrt(q), 1e-11, "se_fit, design matrix");
+    assert_rel(pt.se_pred, back.sigma * sqrt(1 + q), 1e-11, "se_pred, design matrix");
+    assert_int_equal(pt.extrapolated, 0);
+    stagecal_model_free(&back);
+    stagecal_model_free(&m);
+}
+
+static void model_eval_flags_extrapolation(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_model_point pt;
+    stagecal_error err;
+    linear_model(&m); /* R envelope [0.85, 7.4] */
+
+    assert_int_equal(stagecal_model_eval(&m, 3.3, NAN, 0, &pt, &err), STAGECAL_OK);
+    assert_int_equal(pt.extrapolated, 0);
+    assert_int_equal(pt.outside, 0);
+    assert_abs(pt.r_beyond, 0, 0, "inside: r_beyond");
+
+    assert_int_equal(stagecal_model_eval(&m, 0.6, NAN, 0, &pt, &err), STAGECAL_OK);
+    assert_int_equal(pt.extrapolated, 1);
+    assert_int_equal(pt.outside, STAGECAL_MODEL_R_BELOW);
+    assert_rel(pt.r_beyond, 0.25, 1e-15, "below: r_beyond = 0.85 - 0.6");
+    assert_rel(pt.lv_beyond, 0.85 / 1.85 - 0.6 / 1.6, 1e-15, "below: lv_beyond");
+
+    assert_int_equal(stagecal_model_eval(&m, INFINITY, NAN, 0, &pt, &err), STAGECAL_OK);
+    assert_int_equal(pt.outside, STAGECAL_MODEL_R_ABOVE);
+    assert_true(isinf(pt.r_beyond));
+    assert_rel(pt.lv_beyond, 1 - 7.4 / 8.4, 1e-15, "total reflux: lv_beyond");
+
+    /* a load model: F outside its range is flagged too, with how far */
+    stagecal_model_free(&m);
+    fill_model(&m, "saturating-load"); /* R [1/3, inf], F [0.61, 2.236…] */
+    assert_int_equal(stagecal_model_eval(&m, 2.5, 1.2, 0, &pt, &err), STAGECAL_OK);
+    assert_int_equal(pt.extrapolated, 0);
+    assert_int_equal(stagecal_model_eval(&m, 2.5, 2.75, 0, &pt, &err), STAGECAL_OK);
+    assert_int_equal(pt.outside, STAGECAL_MODEL_F_ABOVE);
+    assert_rel(pt.f_beyond, 2.75 - 2.2360679774997898, 1e-15, "f_beyond");
+    assert_int_equal(stagecal_model_eval(&m, 0.2, 0.4, 0, &pt, &err), STAGECAL_OK);
+    assert_int_equal(pt.outside, STAGECAL_MODEL_R_BELOW | STAGECAL_MODEL_F_BELOW);
+    assert_rel(pt.f_beyond, 0.21, 1e-14, "f_beyond below");
+    stagecal_model_free(&m);
+}
+
+static void model_eval_rejects_bad_arguments(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_model_point pt;
+    stagecal_error err;
+    linear_model(&m);
+    assert_int_equal(stagecal_model_eval(&m, -0.5, NAN, 0, &pt, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text, "reflux ratio R = -0.5: expected R >= 0 or inf");
+    assert_int_equal(stagecal_model_eval(&m, NAN, NAN, 0, &pt, &err), STAGECAL_EINVAL);
+    assert_int_equal(stagecal_model_eval(&m, 2, NAN, 1.5, &pt, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text, "level = 1.5: expected a number in (0, 1)");
+    /* 1/R is undefined at R = 0: the form says so */
+    assert_int_equal(stagecal_model_eval(&m, 0, NAN, 0, &pt, &err), STAGECAL_EINVAL);
+    stagecal_model_free(&m);
+    fill_model(&m, "saturating-load");
+    assert_int_equal(stagecal_model_eval(&m, 2, NAN, 0, &pt, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text, "F-factor = nan Pa^0.5: the form 'saturating-load' needs a "
+                                  "finite F >= 0");
+    stagecal_model_free(&m);
+}
+
+static void model_add_helpers_validate(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_error err;
+    double v = 1.5;
+    stagecal_model_init(&m);
+    assert_int_equal(stagecal_model_add_vle_param(&m, "", &v, 1, &err), STAGECAL_EINVAL);
+    assert_int_equal(stagecal_model_add_vle_param(&m, "alpha", &v, 0, &err), STAGECAL_EINVAL);
+    assert_int_equal(stagecal_model_add_input(&m, "a.csv", "12ab", 3, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text, "input 'a.csv': sha256 is not 64 lowercase hex digits");
+    assert_int_equal(m.n_vle_params + m.n_inputs, 0);
+    stagecal_model_stamp_now(&m);
+    assert_int_equal(strlen(m.fitted_utc), 20);
+    assert_int_equal(m.fitted_utc[19], 'Z');
+    stagecal_model_free(&m);
+    stagecal_model_free(NULL);
+}
+
+static int group_setup(void **state)
+{
+    (void)state;
+    gsl_set_error_handler_off();
+    snprintf(workdir, sizeof workdir, "%s/model-test-XXXXXX", STAGECAL_BUILD_DIR);
+    return mkdtemp(workdir) ? 0 : -1;
+}
+
+static int group_teardown(void **state)
+{
+    (void)state;
+    rm_tree(workdir);
+    return 0;
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(model_sha256_fips_vectors),
+        cmocka_unit_test(model_sha256_matches_hashlib),
+        cmocka_unit_test(model_hash_file_matches_fips),
+        cmocka_unit_test(model_checksum_verifiable_in_python),
+        cmocka_unit_test(model_roundtrip_exact),
+        cmocka_unit_test(model_write_names_file_after_fit_time),
+        cmocka_unit_test(model_write_never_overwrites),
+        cmocka_unit_test(model_write_unwritable_is_ewrite),
+        cmocka_unit_test(model_kill9_leaves_no_partial_file),
+        cmocka_unit_test(model_write_refuses_invalid_model),
+        cmocka_unit_test(model_load_refuses_corrupt_and_truncated),
+        cmocka_unit_test(model_load_refuses_hand_edit),
+        cmocka_unit_test(model_load_refuses_newer_version),
+        cmocka_unit_test(model_load_refuses_inconsistent),
+        cmocka_unit_test(model_eval_matches_textbook_band),
+        cmocka_unit_test(model_eval_after_load_matches_design_matrix),
+        cmocka_unit_test(model_eval_flags_extrapolation),
+        cmocka_unit_test(model_eval_rejects_bad_arguments),
+        cmocka_unit_test(model_add_helpers_validate),
+    };
+    return cmocka_run_group_tests(tests, group_setup, group_teardown);
+}

@@ -1,0 +1,382 @@
+/*
+ * test_report.c — the HTML report: self-contained (no script, no external resource),
+ * text escaped, every section present when filled and absent when not, the caution
+ * always there, inline SVG ids unique across figures, printable (A4 print CSS), files
+ * written atomically. Rendering in a browser is checked by tests/report_render.sh.
+ */
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <sys/wait.h>
+#include <unistd.h>
+
+#include <gsl/gsl_errno.h>
+
+#include "stagecal/form.h"
+#include "stagecal/model.h"
+#include "stagecal/report.h"
+#include "testutil.h"
+
+#define OUTDIR STAGECAL_BUILD_DIR "/report_out"
+
+/* LeakSanitizer hook (sanitizer build only): fontconfig, loaded by cairo for the chart
+ * text, keeps its font cache for the life of the process and never frees it; those
+ * blocks are reported as leaks that are not ours. Every other leak still fails. */
+const char *__lsan_default_suppressions(void);
+const char *__lsan_default_suppressions(void)
+{
+    return "leak:libfontconfig.so\n";
+}
+
+static int group_setup(void **state)
+{
+    (void)state;
+    gsl_set_error_handler_off();
+    mkdir(OUTDIR, 0755);
+    return 0;
+}
+
+static size_t count(const char *hay, const char *needle)
+{
+    size_t n = 0;
+    for (const char *p = strstr(hay, needle); p; p = strstr(p + 1, needle))
+        n++;
+    return n;
+}
+
+static const double x5[5] = {0, 1, 2, 3, 4};
+static const double y5[5] = {1, 2, 2.5, 2.8, 3.0};
+static const double z5[5] = {1.3, 1.8, 2.9, 2.6, 3.2};
+
+static stagecal_plot_series ser_a[2] = {
+    {STAGECAL_PLOT_LINE, "fit", x5, y5, NULL, 5, 0, 0, 0, 0},
+    {STAGECAL_PLOT_POINTS, "samples <A&B>", x5, z5, NULL, 5, 1, 0, 0, 0}};
+static stagecal_plot_series ser_b[1] = {{STAGECAL_PLOT_LINE, "trend", x5, z5, NULL, 5, 2, 1, 0, 0}};
+
+static void report_caution_matches_design(void **state)
+{
+    (void)state;
+    const char *c = stagecal_caution_text();
+    /* DESIGN §6: the caution names the hazard, the envelope/extrapolation, and that
+     * the output does not replace procedures, codes or a licensed engineer's review */
+    assert_non_null(strstr(c, "flammable"));
+    assert_non_null(strstr(c, "toxic"));
+    assert_non_null(strstr(c, "extrapolation"));
+    assert_non_null(strstr(c, "licensed engineer"));
+    assert_non_null(strstr(c, "site procedures"));
+}
+
+static void report_minimal_has_caution_only(void **state)
+{
+    (void)state;
+    stagecal_report r;
+    memset(&r, 0, sizeof r);
+    char *html = NULL;
+    size_t len = 0;
+    stagecal_error err;
+    assert_int_equal(stagecal_report_html(&r, NULL, &html, &len, &err), STAGECAL_OK);
+    assert_int_equal(strlen(html), len);
+    assert_true(strncmp(html, "<!DOCTYPE html>", 15) == 0);
+    assert_non_null(strstr(html, "<meta charset=\"utf-8\">"));
+    assert_non_null(strstr(html, stagecal_caution_text()));
+    assert_non_null(strstr(html, "<title>Stage calibration report</title>"));
+    static const char *const absent[] = {"id=\"warnings\"", "id=\"job\"",  "id=\"validation\"",
+                                         "id=\"windows\"",  "id=\"fit\"",  "id=\"plots\"",
+                                         "id=\"hetp\"",     "id=\"trend\""};
+    for (size_t i = 0; i < sizeof absent / sizeof absent[0]; i++)
+        assert_null(strstr(html, absent[i]));
+    /* printable to A4 */
+    assert_non_null(strstr(html, "@media print"));
+    assert_non_null(strstr(html, "size:A4"));
+    free(html);
+}
+
+static void report_full_is_self_contained(void **state)
+{
+    (void)state;
+    stagecal_plot_chart ca = {"chart A", "R [-]", "stages [-]", NAN, NAN, NAN, NAN, 0,
+                              1,         0,       ser_a,        2,   NULL};
+    stagecal_plot_chart cb = {"chart B", "time [h]", "stages [-]", NAN, NAN, NAN, NAN, 0,
+                              1,         2,          ser_b,        1,   NULL};
+    stagecal_report_figure figs[2] = {{&ca, "first <figure>"}, {&cb, NULL}};
+    stagecal_report_item job[1] = {{"column", "X-1 & friends (fictional)"}};
+    const char *head[2] = {"R [-]", "stages [-]"};
+    const char *cells[4] = {"1.5", "4.2", "inf", NULL};
+    stagecal_report_table tab = {"windows", head, 2, cells, 2};
+    const char *findings[1] = {"<script>alert(1)</script>"};
+    const char *warnings[1] = {"R = 9 is outside the envelope"};
+    stagecal_report_item hetp[1] = {{"HETP", "0.5 m"}};
+    stagecal_report_item trend[1] = {{"loss", "0.1 stages/month"}};
+    stagecal_report r = {"Report \"T\"",
+                         "sub",
+                         "demo: invented",
+                         job,
+                         1,
+                         &tab,
+                         findings,
+                         1,
+                         &tab,
+                         &tab,
+                         job,
+                         1,
+                         figs,
+                         2,
+                         hetp,
+                         1,
+                         trend,
+                         1,
+                         warnings,
+                         1,
+                         "test 1"};
+    char *html = NULL;
+    stagecal_error err;
+    int rc = stagecal_report_html(&r, NULL, &html, NULL, &err);
+    if (rc)
+        print_error("%s\n", err.text);
+    assert_int_equal(rc, STAGECAL_OK);
+    /* every section present */
+    static const char *const present[] = {"id=\"warnings\"", "id=\"job\"",   "id=\"validation\"",
+                                          "id=\"windows\"",  "id=\"fit\"",   "id=\"plots\"",
+                                          "id=\"hetp\"",     "id=\"trend\"", "id=\"caution\""};
+    for (size_t i = 0; i < sizeof present / sizeof present[0]; i++)
+        assert_non_null(strstr(html, present[i]));
+    /* escaped text; no script, no external resource */
+    assert_non_null(strstr(html, "&lt;script&gt;alert(1)&lt;/script&gt;"));
+    assert_non_null(strstr(html, "X-1 &amp; friends"));
+    assert_non_null(strstr(html, "<title>Report &quot;T&quot;</title>"));
+    assert_null(strstr(html, "<script"));
+    assert_null(strstr(html, "<link"));
+    assert_null(strstr(html, "src="));
+    assert_null(strstr(html, "@import"));
+    /* the only URLs are the SVG/XLink namespace names, which load nothing */
+    size_t urls = count(html, "http://") + count(html, "https://");
+    size_t ns =
+        count(html, "http://www.w3.org/2000/svg") + count(html, "http://www.w3.org/1999/xlink");
+    assert_int_equal(urls, ns);
+    /* two inline figures, tagged with their series counts */
+    assert_int_equal(count(html, "<svg class=\"stagecal-figure\""), 2);
+    assert_non_null(strstr(html, "data-series=\"2\""));
+    assert_non_null(strstr(html, "data-series=\"1\""));
+    assert_null(strstr(html, "<?xml"));
+    /* element ids unique across the page (cairo reuses glyph/clip ids per file) */
+    size_t nid = 0, cap = count(html, " id=\"");
+    char **ids = calloc(cap + 1, sizeof *ids);
+    assert_non_null(ids);
+    for (const char *p = strstr(html, " id=\""); p; p = strstr(p + 1, " id=\"")) {
+        const char *q = p + 5, *e = strchr(q, '"');
+        assert_non_null(e);
+        ids[nid] = strndup(q, (size_t)(e - q));
+        for (size_t k = 0; k < nid; k++)
+            if (strcmp(ids[k], ids[nid]) == 0)
+                fail_msg("duplicate id '%s'", ids[nid]);
+        nid++;
+    }
+    assert_true(nid > 10);
+    for (size_t k = 0; k < nid; k++)
+        free(ids[k]);
+    free(ids);
+    /* references point at prefixed ids of their own figure */
+    assert_non_null(strstr(html, "href=\"#f1-"));
+    assert_non_null(strstr(html, "href=\"#f2-"));
+    free(html);
+}
+
+static void report_refuses_bad_content(void **state)
+{
+    (void)state;
+    stagecal_report r;
+    char *html = NULL;
+    stagecal_error err;
+    memset(&r, 0, sizeof r);
+    const char *head[1] = {NULL};
+    stagecal_report_table bad = {NULL, head, 1, NULL, 0};
+    r.fit = &bad;
+    assert_int_equal(stagecal_report_html(&r, NULL, &html, NULL, &err), STAGECAL_EINVAL);
+    assert_non_null(strstr(err.text, "fit table: heading 1"));
+    assert_null(html);
+    r.fit = NULL;
+    stagecal_plot_series s = ser_b[0];
+    s.n = 0;
+    stagecal_plot_chart c = {"c", "x", "y", NAN, NAN, NAN, NAN, 0, 0, 0, &s, 1, NULL};
+    stagecal_report_figure f = {&c, NULL};
+    r.figures = &f;
+    r.n_figures = 1;
+    assert_int_equal(stagecal_report_html(&r, NULL, &html, NULL, &err), STAGECAL_EINVAL);
+    assert_non_null(strstr(err.text, "report figure 1: series 1"));
+}
+
+static void report_write_is_atomic(void **state)
+{
+    (void)state;
+    stagecal_report r;
+    stagecal_error err;
+    memset(&r, 0, sizeof r);
+    assert_int_equal(stagecal_report_write(&r, NULL, OUTDIR "/min.html", &err), STAGECAL_OK);
+    struct stat st;
+    assert_int_equal(stat(OUTDIR "/min.html", &st), 0);
+    assert_true(st.st_size > 500);
+    assert_int_equal(st.st_mode & 0777, 0644);
+    assert_int_equal(stagecal_report_write(&r, NULL, OUTDIR "/missing/dir/r.html", &err),
+                     STAGECAL_EWRITE);
+    assert_non_null(strstr(err.text, "cannot create"));
+}
+
+/* A model in memory (invented numbers): saturating, a = 9.2, b = 0.55, diagonal
+ * covariance, σ = 0.3 with 10 dof, envelope R in [0.6, 6], HETP known. */
+static void demo_model(stagecal_model *m)
+{
+    stagecal_error err;
+    stagecal_model_init(m);
+    snprintf(m->column_id, sizeof m->column_id, "D-101");
+    snprintf(m->light, sizeof m->light, "light");
+    snprintf(m->heavy, sizeof m->heavy, "heavy");
+    snprintf(m->vle_kind, sizeof m->vle_kind, "alpha");
+    double alpha = 2.4;
+    assert_int_equal(stagecal_model_add_vle_param(m, "alpha", &alpha, 1, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_form_parse("saturating", &m->form, &err), STAGECAL_OK);
+    m->theta[0] = 9.2, m->theta[1] = 0.55;
+    m->cov[0] = 0.04, m->cov[1] = m->cov[2] = 0, m->cov[3] = 0.0025;
+    m->sigma = 0.3, m->dof = 10, m->level = 0.95;
+    m->n_windows = 12, m->n_samples = 340, m->n_runs = 3;
+    m->r_min = 0.6, m->r_max = 6.0;
+    m->has_hetp = 1, m->height_m = 4.2, m->hetp_r = 3, m->hetp_m = 0.52, m->hetp_low_m = 0.47;
+    m->hetp_high_m = 0.58, m->hetp_level = 0.95;
+    assert_int_equal(stagecal_model_add_input(m, "run_a.csv",
+                                              "0f1e2d3c4b5a69788796a5b4c3d2e1f00f1e2d3c4b5a6978"
+                                              "8796a5b4c3d2e1f0",
+                                              412, &err),
+                     STAGECAL_OK);
+    snprintf(m->fitted_utc, sizeof m->fitted_utc, "2026-11-30T14:02:11Z");
+    if (stagecal_model_check(m, &err) != STAGECAL_OK)
+        fail_msg("demo model: %s", err.text);
+}
+
+static void report_from_model_fills_sections(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_error err;
+    demo_model(&m);
+    double r[3] = {1.0, 3.0, 9.0}, st[3] = {4.0, 7.3, 9.1};
+    stagecal_regress_data pts = {3, r, NULL, st, NULL};
+    stagecal_report_doc *doc = NULL;
+    int rc = stagecal_report_from_model(&m, &pts, &doc, &err);
+    if (rc)
+        print_error("%s\n", err.text);
+    assert_int_equal(rc, STAGECAL_OK);
+    const stagecal_report *rep = stagecal_report_doc_content(doc);
+    assert_int_equal(rep->n_figures, 2); /* stages against R, residuals */
+    /* prediction band, confidence band, fit, envelope, points */
+    assert_int_equal(stagecal_report_doc_chart(doc, 0)->n_series, 5);
+    assert_null(stagecal_report_doc_chart(doc, 2));
+    /* one point (R = 9) lies above the envelope's r_max = 6 */
+    assert_int_equal(rep->n_warnings, 1);
+    assert_non_null(strstr(rep->warnings[0], "R = 9"));
+    /* fit table: a ± t·se with t(0.975, 10 dof) = 2.228138851986274 (Student t table,
+     * e.g. NIST/SEMATECH e-Handbook 1.3.6.7.2: 2.228); formatted as the report does */
+    char want[64];
+    snprintf(want, sizeof want, "[%.6g, %.6g]", 9.2 - 2.228138851986274 * 0.2,
+             9.2 + 2.228138851986274 * 0.2);
+    assert_string_equal(rep->fit->cells[3], want);
+    assert_string_equal(rep->fit->cells[2], "0.2");
+    assert_int_equal(rep->n_hetp, 3);
+    char *html = NULL;
+    assert_int_equal(stagecal_report_html(rep, NULL, &html, NULL, &err), STAGECAL_OK);
+    assert_non_null(strstr(html, "D-101"));
+    assert_non_null(strstr(html, "0f1e2d3c4b5a6978"));
+    assert_non_null(strstr(html, "id=\"hetp\""));
+    assert_int_equal(count(html, "<svg class=\"stagecal-figure\""), 2);
+    free(html);
+    stagecal_report_doc_free(doc);
+    stagecal_model_free(&m);
+}
+
+/* The CLI end to end: a model file written by the model module, then `report` and
+ * `plot` on it (exit codes and files). */
+static void report_cli_writes_files(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_error err;
+    char path[1024], cmd[4096];
+    demo_model(&m);
+    /* the program in a sanitizer build: the same fontconfig suppression as above */
+    FILE *supp = fopen(OUTDIR "/lsan.supp", "w");
+    assert_non_null(supp);
+    fputs("leak:libfontconfig.so\n", supp);
+    fclose(supp);
+    setenv("LSAN_OPTIONS", "suppressions=" OUTDIR "/lsan.supp", 1);
+    int rc = stagecal_model_write(&m, OUTDIR "/fits", path, sizeof path, &err);
+    if (rc)
+        print_error("%s\n", err.text);
+    assert_int_equal(rc, STAGECAL_OK);
+    stagecal_model_free(&m);
+    FILE *f = fopen(OUTDIR "/pts.csv", "w");
+    assert_non_null(f);
+    fputs("R,stages\n1,4.0\n3,7.3\ninf,9.1\n", f);
+    fclose(f);
+    snprintf(cmd, sizeof cmd,
+             "%s report '%s' --points " OUTDIR "/pts.csv -o " OUTDIR "/cli.html --json "
+             "> " OUTDIR "/cli.json 2>" OUTDIR "/cli.err",
+             STAGECAL_BIN, path);
+    assert_int_equal(system(cmd), 0);
+    struct stat st;
+    assert_int_equal(stat(OUTDIR "/cli.html", &st), 0);
+    assert_true(st.st_size > 10000);
+    char *js = NULL;
+    f = fopen(OUTDIR "/cli.json", "r");
+    assert_non_null(f);
+    js = calloc(1, 4096);
+    assert_non_null(js);
+    assert_true(fread(js, 1, 4095, f) > 0);
+    fclose(f);
+    assert_non_null(strstr(js, "\"figures\": 2"));
+    assert_non_null(strstr(js, "\"status\": \"ok\""));
+    free(js);
+    /* total reflux lies above r_max = 6: a warning on stderr */
+    snprintf(cmd, sizeof cmd, "grep -q 'outside the fitted envelope' " OUTDIR "/cli.err");
+    assert_int_equal(system(cmd), 0);
+    snprintf(cmd, sizeof cmd, "%s plot model '%s' -o " OUTDIR "/cli_fit.svg --quiet >/dev/null",
+             STAGECAL_BIN, path);
+    assert_int_equal(system(cmd), 0);
+    assert_int_equal(stat(OUTDIR "/cli_fit.svg", &st), 0);
+    snprintf(cmd, sizeof cmd,
+             "%s plot mccabe --alpha 2.5 --xd 0.95 --reflux 3 --stages 6 --murphree 0.8 "
+             "-o " OUTDIR "/cli_mc.pdf >/dev/null",
+             STAGECAL_BIN);
+    assert_int_equal(system(cmd), 0);
+    assert_int_equal(stat(OUTDIR "/cli_mc.pdf", &st), 0);
+    /* usage errors exit 2 (DESIGN §5): unknown extension, missing output */
+    snprintf(cmd, sizeof cmd,
+             "%s plot mccabe --alpha 2.5 --xd 0.95 --reflux 3 --stages 6 -o x.gif 2>/dev/null",
+             STAGECAL_BIN);
+    rc = system(cmd);
+    assert_true(WIFEXITED(rc) && WEXITSTATUS(rc) == 2);
+    /* a sample below the pinch is bad data: 65 */
+    snprintf(cmd, sizeof cmd,
+             "%s plot mccabe --alpha 2.5 --xd 0.95 --reflux 1 --xb 0.01 -o " OUTDIR
+             "/p.png 2>/dev/null",
+             STAGECAL_BIN);
+    rc = system(cmd);
+    assert_true(WIFEXITED(rc) && WEXITSTATUS(rc) == 65);
+    /* a missing model: 66 */
+    snprintf(cmd, sizeof cmd, "%s report " OUTDIR "/nope.json 2>/dev/null", STAGECAL_BIN);
+    rc = system(cmd);
+    assert_true(WIFEXITED(rc) && WEXITSTATUS(rc) == 66);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(report_caution_matches_design),
+        cmocka_unit_test(report_minimal_has_caution_only),
+        cmocka_unit_test(report_full_is_self_contained),
+        cmocka_unit_test(report_refuses_bad_content),
+        cmocka_unit_test(report_write_is_atomic),
+        cmocka_unit_test(report_from_model_fills_sections),
+        cmocka_unit_test(report_cli_writes_files),
+    };
+    return cmocka_run_group_tests(tests, group_setup, NULL);
+}
