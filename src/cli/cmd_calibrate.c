@@ -170,7 +170,7 @@ int cmd_calibrate(int argc, char **argv)
 
     optind = 0;
     opterr = 0;
-    while ((c = getopt_long(argc, argv, "+:h", opts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
         switch (c) {
         case 'h':
             fputs(usage_text, stdout);
@@ -415,12 +415,14 @@ int cmd_calibrate(int argc, char **argv)
             printf(", F %.3g to %.3g Pa^0.5", mo->f_min, mo->f_max);
         printf("\n");
         if (mo->has_hetp) {
-            char rr[32];
+            char rr[32], ff[48] = "";
             format_r(rr, sizeof rr, mo->hetp_r);
+            if (mo->has_load)
+                snprintf(ff, sizeof ff, ", F = %.3g Pa^0.5", mo->hetp_f);
             printf("HETP at R = %s%s: %.3f m (%.0f%% interval %.3f to %.3g m), packed height "
                    "%.3g m\n",
-                   rr, mo->has_load ? "" : "", mo->hetp_m, 100 * mo->hetp_level, mo->hetp_low_m,
-                   mo->hetp_high_m, mo->height_m);
+                   rr, ff, mo->hetp_m, 100 * mo->hetp_level, mo->hetp_low_m, mo->hetp_high_m,
+                   mo->height_m);
         }
         printf("stage convention: %s\n", stagecal_model_convention_text(mo->condenser));
         for (size_t i = 0; i < mo->n_warnings; i++)

@@ -67,7 +67,7 @@ int cmd_check(int argc, char **argv)
 
     optind = 0;
     opterr = 0;
-    while ((c = getopt_long(argc, argv, "+:h", opts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
         switch (c) {
         case 'h':
             fputs(usage_text, stdout);

@@ -390,13 +390,15 @@ int cmd_hetp(int argc, char **argv)
             snprintf(hi, sizeof hi, "unbounded");
         else
             snprintf(hi, sizeof hi, "%.3f", dc.ratio_high);
-        printf("design HETP %.3f m: measured/design %.3f, %d %% CI [%.3f, %s] -> %s\n", design,
-               dc.ratio, pct, dc.ratio_low, hi, stagecal_hetp_verdict_name(dc.verdict));
+        printf("design HETP %.3f m: measured/design %.3f, %d %% CI [%.3f, %s] -> %s%s\n", design,
+               dc.ratio, pct, dc.ratio_low, hi, stagecal_hetp_verdict_name(dc.verdict),
+               have_diff ? " (second file)" : "");
     }
     if (packing)
-        printf("rule of thumb (%s): %.3f m, range %.3f-%.3f m -> %s\n  source: %s\n", rule.rule,
+        printf("rule of thumb (%s): %.3f m, range %.3f-%.3f m -> %s%s\n  source: %s\n", rule.rule,
                rule.hetp_m, rule.low_m, rule.high_m,
-               stagecal_hetp_verdict_name(stagecal_hetp_vs_rule(&cur->h, &rule)), rule.source);
+               stagecal_hetp_verdict_name(stagecal_hetp_vs_rule(&cur->h, &rule)),
+               have_diff ? " (second file)" : "", rule.source);
     rc = CLI_EXIT_OK;
 done:
     for (int i = 0; i < 2; i++)

@@ -57,7 +57,7 @@ int cmd_invert(int argc, char **argv)
     cli_system_init(&sys);
     optind = 0;
     opterr = 0;
-    while ((c = getopt_long(argc, argv, "+:h", opts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
         switch (c) {
         case 'h':
             fputs(usage_text, stdout);

@@ -63,7 +63,7 @@ int cmd_steps(int argc, char **argv)
     cli_system_init(&sys);
     optind = 0;
     opterr = 0;
-    while ((c = getopt_long(argc, argv, "+:h", opts, NULL)) != -1) {
+    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
         switch (c) {
         case 'h':
             fputs(usage_text, stdout);
@@ -184,8 +184,8 @@ int cmd_steps(int argc, char **argv)
             printf("status: %s — %g stages cannot be stepped from xD = %g at R = %g\n",
                    stagecal_stages_status_name(status), nstages, xd, reflux);
         } else {
-            printf("%g stages (the pot included) from xD = %.6f at R = %s%g, E_MV = %g\n", nstages,
-                   xd, isinf(reflux) ? "" : "", reflux, murphree);
+            printf("%g stages (the pot included) from xD = %.6f at R = %g, E_MV = %g\n", nstages,
+                   xd, reflux, murphree);
             printf("%8s  %12s  %12s%s\n", "stage", "x", "y", has_t ? "      T [C]" : "");
             for (size_t i = 0; i < len; i++) {
                 double t;

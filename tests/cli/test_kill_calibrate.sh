@@ -20,13 +20,13 @@ done
 work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
 fits=$work/fits
-kills=${STAGECAL_KILLS:-40}
+kills=${STAGECAL_KILLS:-60}
 
-# The "old" fits: two complete runs, timed to place the kills.
+# The "old" fits: two complete runs, timed to place the kills (a second fit in the same
+# second gets a "-2" name; nothing is ever replaced).
 t0=$(date +%s%N)
 "$S" calibrate --quiet --column "$col" --fits "$fits" $logs >/dev/null 2>&1 || { echo "calibrate failed"; exit 1; }
 t1=$(date +%s%N)
-sleep 1 # model names carry the time of fit to the second
 "$S" calibrate --quiet --column "$col" --fits "$fits" $logs >/dev/null 2>&1 || { echo "calibrate failed"; exit 1; }
 dir=$(ls -d "$fits"/*/)
 ls "$dir" | grep -v '^\.' >"$work/old.list"
@@ -41,12 +41,9 @@ landed_after=0
 litter=0
 i=0
 while [ "$i" -lt "$kills" ]; do
-    # Delays from 20 % to 130 % of a run, two thirds of them in the last 40 %.
-    if [ $((i % 3)) -eq 0 ]; then
-        pct=$((20 + i * 60 / kills))
-    else
-        pct=$((80 + (i * 50 / kills) % 50))
-    fi
+    # Delays spread evenly from 40 % to 120 % of a timed run (the write comes last;
+    # the spread of run times under load scatters the kills around it).
+    pct=$((40 + i * 80 / kills))
     delay_us=$((run_ns / 1000 * pct / 100))
     before=$(ls "$dir" | grep -cv '^\.')
     "$S" calibrate --quiet --column "$col" --fits "$fits" $logs >/dev/null 2>&1 &
@@ -68,7 +65,6 @@ while [ "$i" -lt "$kills" ]; do
         landed_after=$((landed_after + 1))
         # Keep the comparison set current: new complete files become "old" too.
         (cd "$dir" && sha256sum $(ls | grep -v '^\.')) >"$work/old.sha"
-        sleep 1 # model names carry the time of fit to the second
     else
         landed_before=$((landed_before + 1))
     fi

@@ -1,0 +1,58 @@
+# `calibrate` through the program on the invented demo data: JSON contract, model file
+# written under fits/<column>/ and never replaced, exit codes for bad input.
+BIN=$1
+ROOT=$2
+. "$(dirname "$0")/lib.sh"
+PY=/usr/bin/python3
+COL="$ROOT/datasets/columns/demo_benzene_toluene.json"
+LOGS="$ROOT/datasets/demo/logs/2025-01.csv $ROOT/datasets/demo/logs/2025-02.csv $ROOT/datasets/demo/logs/2025-03.csv"
+
+check() { # check NAME PYTHON-EXPR-ON-d (d = the JSON in $tmp/j)
+    if "$PY" -c "import json,sys,math; d=json.load(open('$tmp/j')); sys.exit(0 if ($2) else 1)"; then
+        echo "ok: $1"
+    else
+        echo "FAIL: $1"; head -c 3000 "$tmp/j"; fails=$((fails + 1))
+    fi
+}
+
+"$BIN" calibrate --column "$COL" --fits "$tmp/fits" --form saturating --json --quiet $LOGS >"$tmp/j"
+check "calibrate: exit 0 and one JSON document" "d['format'] == 'stagecal-calibration'"
+check "calibrate: parameters a, b with se and CI" \
+      "[p['name'] for p in d['parameters']] == ['a', 'b'] and all(p['ci_low'] < p['value'] < p['ci_high'] for p in d['parameters'])"
+check "calibrate: evidence counts windows and samples" \
+      "d['evidence']['windows'] >= 3 and d['evidence']['samples'] > d['evidence']['windows']"
+check "calibrate: both fits reported, composition space carried" \
+      "d['method'] == 'composition-space' and d['stage_space']['status'] == 'ok'"
+check "calibrate: model file path under fits/<column>/" "'/fits/demo-bt-K-7/' in d['model_file']"
+# Demo truth (datasets/demo/README.md): a(t) = 9.5·(1 − 0.012·months), g(F) ≤ 1, so the
+# saturation level of the first quarter lies between 8 and 9.5 stages.
+check "calibrate: saturation level plausible for the demo truth" "8.0 < d['parameters'][0]['value'] < 9.6"
+MODEL=$("$PY" -c "import json; print(json.load(open('$tmp/j'))['model_file'])")
+cp "$MODEL" "$tmp/model1.json"
+cp "$MODEL" "$tmp/j"
+check "model file: format and version" "d['format'] == 'stagecal-model' and d['version'] == 1"
+
+# a second calibration never replaces the first
+"$BIN" calibrate --column "$COL" --fits "$tmp/fits" --form saturating --quiet $LOGS >/dev/null
+n=$(ls "$tmp/fits/demo-bt-K-7" | wc -l)
+if [ "$n" -eq 2 ] && cmp -s "$MODEL" "$tmp/model1.json"; then echo "ok: second fit is a new file"; else
+    echo "FAIL: second fit: $n files"; fails=$((fails + 1)); fi
+
+# --dry-run writes nothing
+"$BIN" calibrate --column "$COL" --fits "$tmp/dry" --dry-run --quiet $LOGS >/dev/null
+if [ ! -e "$tmp/dry" ]; then echo "ok: --dry-run writes nothing"; else echo "FAIL: --dry-run wrote"; fails=$((fails + 1)); fi
+
+# bad input
+printf 'time[h],W[kmol],xD[mol/mol],xB[mol/mol],R[-]\n0,10,0.9,0.5,2\n1,9,0.9,1.3,2\n2,8,0.9,0.4,2\n3,7,0.9,0.3,2\n4,6,0.9,0.2,2\n' >"$tmp/bad.csv"
+expect_exit 65 "bad.csv:3: column 'xB[mol/mol]': value '1.3' outside [0, 1]" --many "$BIN" calibrate --column "$COL" --fits "$tmp/f2" --quiet "$tmp/bad.csv"
+expect_exit 66 "" -- "$BIN" calibrate --column "$COL" --fits "$tmp/f2" --quiet "$tmp/missing.csv"
+expect_exit 66 "" -- "$BIN" calibrate --column "$tmp/nocol.json" --fits "$tmp/f2" $LOGS
+expect_exit 2 "option '--column' is required" -- "$BIN" calibrate $LOGS
+expect_exit 2 "no run log given" -- "$BIN" calibrate --column "$COL"
+expect_exit 2 "option '--form'" -- "$BIN" calibrate --column "$COL" --form wiggly $LOGS
+expect_exit 2 "option '--method': 'best' is not a method" -- "$BIN" calibrate --column "$COL" --method best $LOGS
+expect_exit 2 "option '--level': 1.5 is outside (0, 1)" -- "$BIN" calibrate --column "$COL" --level 1.5 $LOGS
+# an unwritable fits directory (a file in its place)
+: >"$tmp/notadir"
+expect_exit 73 "" -- "$BIN" calibrate --column "$COL" --fits "$tmp/notadir" --quiet $LOGS
+finish
