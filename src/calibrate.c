@@ -15,6 +15,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
 
 #include "internal.h"
 #include "stagecal/stages.h"
@@ -22,6 +23,9 @@
 
 /* stage_status / comp_status of a fit that was not attempted. */
 #define CAL_NOT_RUN (-1)
+/* Samples a window carries into its stage count and the composition fit: evenly
+ * thinned (logged samples are autocorrelated, so more add little but cost). */
+#define CAL_MAX_SAMPLES 24
 
 stagecal_calibrate_params stagecal_calibrate_default_params(void)
 {
@@ -50,6 +54,7 @@ void stagecal_calibration_free(stagecal_calibration *cal)
     stagecal_findings_free(cal->findings);
     stagecal_runlog_result_free(&cal->res);
     free(cal->ev);
+    free(cal->samples);
     stagecal_regress_result_free(&cal->stage_fit);
     stagecal_regress_result_free(&cal->comp_fit);
     stagecal_model_free(&cal->model);
@@ -60,6 +65,16 @@ static void progress(const stagecal_calibrate_params *p, const char *stage, doub
 {
     if (p->progress)
         p->progress(p->progress_ctx, stage, done);
+}
+
+/* "YYYY-MM-DDTHH:MM:SSZ" for t_s seconds since 1970 UTC ("" when out of range). */
+static void format_utc(double t_s, char *buf, size_t cap)
+{
+    struct tm tm;
+    time_t tt = (time_t)floor(t_s);
+    buf[0] = '\0';
+    if (!isfinite(t_s) || !gmtime_r(&tt, &tm) || strftime(buf, cap, "%Y-%m-%dT%H:%M:%SZ", &tm) == 0)
+        buf[0] = '\0';
 }
 
 /* Builds one piece of evidence per window from the per-sample results. */
@@ -76,8 +91,9 @@ static int build_evidence(stagecal_calibration *cal, const stagecal_calibrate_pa
             maxlen = len;
     }
     cal->ev = calloc(nw ? nw : 1, sizeof *cal->ev);
+    cal->samples = malloc((nw ? nw : 1) * 3 * CAL_MAX_SAMPLES * sizeof *cal->samples);
     double *buf = malloc((maxlen ? maxlen : 1) * 4 * sizeof *buf);
-    if (!cal->ev || !buf) {
+    if (!cal->ev || !buf || !cal->samples) {
         free(buf);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
@@ -119,6 +135,30 @@ static int build_evidence(stagecal_calibration *cal, const stagecal_calibrate_pa
                 STAGECAL_OK ||
             stagecal_evidence_mean(t, xb, len, u->xb, &e->xb, &e->u_xb, NULL, NULL) != STAGECAL_OK)
             continue; /* too few usable compositions: not evidence */
+        /* thinned samples for the stage count and the composition fit */
+        double *s_t = cal->samples + 3 * CAL_MAX_SAMPLES * m, *s_xd = s_t + CAL_MAX_SAMPLES,
+               *s_xb = s_xd + CAL_MAX_SAMPLES;
+        size_t nfin = 0, ms = 0;
+        for (size_t j = 0; j < len; j++)
+            nfin += isfinite(xd[j]) && isfinite(xb[j]);
+        for (size_t j = 0, kf = 0; j < len && ms < CAL_MAX_SAMPLES; j++) {
+            if (!(isfinite(xd[j]) && isfinite(xb[j])))
+                continue;
+            /* keep the k-th finite sample when it is the next of an even spread */
+            if (nfin <= CAL_MAX_SAMPLES || kf * CAL_MAX_SAMPLES / nfin == ms) {
+                if (xb[j] > 0 && xd[j] < 1 && xb[j] < xd[j]) {
+                    s_t[ms] = t[j];
+                    s_xd[ms] = xd[j];
+                    s_xb[ms] = xb[j];
+                    ms++;
+                }
+            }
+            kf++;
+        }
+        e->m = ms;
+        e->s_t = s_t;
+        e->s_xd = s_xd;
+        e->s_xb = s_xb;
         /* n_eff of the pot analyser series: how many independent samples the window holds */
         double dm, dse;
         stagecal_evidence_mean(t, xb, len, 0, &dm, &dse, &e->n_eff, NULL);
@@ -201,6 +241,16 @@ static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params
     }
     stagecal_model_stamp_now(mo);
     mo->seed = par->seed;
+    /* the period the data cover, when the logs carry absolute timestamps */
+    if (cal->log->nfiles_iso == cal->log->nfiles && cal->nev > 0) {
+        double t0 = INFINITY, t1 = -INFINITY;
+        for (size_t i = 0; i < cal->nev; i++) {
+            t0 = fmin(t0, cal->log->t_s[cal->ev[i].first]);
+            t1 = fmax(t1, cal->log->t_s[cal->ev[i].last]);
+        }
+        format_utc(t0, mo->data_first_utc, sizeof mo->data_first_utc);
+        format_utc(t1, mo->data_last_utc, sizeof mo->data_last_utc);
+    }
 
     /* HETP at a reference condition, where the packed height is known. */
     if (col->height_m > 0) {

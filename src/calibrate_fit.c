@@ -9,10 +9,12 @@
  * (Wilks, Statistical Methods in the Atmospheric Sciences, 3rd ed. 2011, eq. 5.12;
  * also Bayley & Hammersley 1946 — citations from memory).
  *
- * Composition-space fit. For window i with mean xD_i, xB_i, R_i, F_i the correlation
- * predicts N_i = stages(R_i, F_i; θ); forward stepping N_i stages down from xD_i gives
- * the predicted pot composition x̂B_i(θ). The residual is compared in log-odds space,
- *     r_i(θ) = [logit x̂B_i(θ) − logit xB_i] / s_i,
+ * Composition-space fit. For window i at R_i, F_i the correlation predicts
+ * N_i = stages(R_i, F_i; θ); forward stepping N_i stages down from each logged xD_ij
+ * (thinned samples of the window) gives the predicted pot composition x̂B_ij(θ), so a
+ * drifting pot is followed sample by sample. The residual is compared in log-odds space
+ * after averaging over the window's samples,
+ *     r_i(θ) = [logit mean_j x̂B_ij(θ) − logit mean_j xB_ij] / s_i,
  *     s_i² = (u(xB_i)/(xB_i(1 − xB_i)))² + (∂logit x̂B_i/∂xD · u(xD_i))²,
  * the effective-variance treatment of an error-carrying regressor (Orear 1982,
  * Am. J. Phys. 50, 912 — citation from memory), with s_i fixed at the starting θ.
@@ -26,6 +28,7 @@
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_fit.h>
 #include <gsl/gsl_math.h>
+#include <gsl/gsl_multifit.h>
 #include <gsl/gsl_multifit_nlinear.h>
 #include <math.h>
 #include <stdlib.h>
@@ -94,6 +97,47 @@ int stagecal_evidence_mean(const double *t, const double *y, size_t n, double u_
     return STAGECAL_OK;
 }
 
+/* Least-squares quadratic in time through n ≥ 3 points, evaluated at every t[j] into
+ * out[j] (GSL multifit on a centred, scaled time so the design is well conditioned).
+ * A straight line is not enough: a batch pot's composition curves through a long
+ * window. Returns 0, or −1 when GSL fails. */
+static int smooth_quadratic(const double *t, const double *y, size_t n, double *out)
+{
+    double tb = 0, ts = 0;
+    for (size_t i = 0; i < n; i++)
+        tb += t[i] / (double)n;
+    for (size_t i = 0; i < n; i++)
+        ts = fmax(ts, fabs(t[i] - tb));
+    if (!(ts > 0))
+        ts = 1;
+    gsl_matrix *x = gsl_matrix_alloc(n, 3), *cov = gsl_matrix_alloc(3, 3);
+    gsl_vector *c = gsl_vector_alloc(3);
+    gsl_multifit_linear_workspace *w = gsl_multifit_linear_alloc(n, 3);
+    int rc = -1;
+    if (x && cov && c && w) {
+        double chisq;
+        for (size_t i = 0; i < n; i++) {
+            double u = (t[i] - tb) / ts;
+            gsl_matrix_set(x, i, 0, 1);
+            gsl_matrix_set(x, i, 1, u);
+            gsl_matrix_set(x, i, 2, u * u);
+        }
+        gsl_vector_const_view yv = gsl_vector_const_view_array(y, n);
+        if (gsl_multifit_linear(x, &yv.vector, c, cov, &chisq, w) == GSL_SUCCESS) {
+            for (size_t i = 0; i < n; i++) {
+                double u = (t[i] - tb) / ts;
+                out[i] = gsl_vector_get(c, 0) + u * (gsl_vector_get(c, 1) + u * gsl_vector_get(c, 2));
+            }
+            rc = 0;
+        }
+    }
+    gsl_multifit_linear_free(w);
+    gsl_vector_free(c);
+    gsl_matrix_free(cov);
+    gsl_matrix_free(x);
+    return rc;
+}
+
 int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_evidence *ev,
                              stagecal_error *err)
 {
@@ -111,7 +155,26 @@ int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_
     if (res.status != STAGECAL_STAGES_OK)
         return STAGECAL_OK;
     double a = res.dstages_dxd * ev->u_xd, b = res.dstages_dxb * ev->u_xb;
-    ev->stages = res.stages;
+    double value = res.stages;
+    if (ev->m >= 3 && ev->s_t && ev->s_xd && ev->s_xb) {
+        /* follow the drift: invert the smoothed trends at every sample time */
+        double sd[64], sb[64], sum = 0;
+        size_t m = ev->m < 64 ? ev->m : 64;
+        if (smooth_quadratic(ev->s_t, ev->s_xd, m, sd) || smooth_quadratic(ev->s_t, ev->s_xb, m, sb))
+            return error_set(err, STAGECAL_EINTERNAL, "window trend fit failed");
+        sp.want_sensitivities = 0;
+        for (size_t j = 0; j < m; j++) {
+            if (!(sd[j] > 0 && sd[j] < 1 && sb[j] > 0 && sb[j] < sd[j]))
+                return STAGECAL_OK;
+            if ((rc = stagecal_stages_invert(vle, sd[j], sb[j], ev->r, murphree, &sp, &res, err)))
+                return rc;
+            if (res.status != STAGECAL_STAGES_OK)
+                return STAGECAL_OK;
+            sum += res.stages;
+        }
+        value = sum / (double)m;
+    }
+    ev->stages = value;
     ev->se_stages = sqrt(a * a + b * b);
     ev->stages_ok = ev->se_stages > 0 && isfinite(ev->se_stages);
     return STAGECAL_OK;
@@ -162,13 +225,29 @@ static double predict_logit(struct comp_ctx *c, size_t i, const double *theta, d
     return logit(xb);
 }
 
+/* Window i's residual: the log-odds of the mean predicted pot composition (each sample
+ * predicted from its own xD, so a drifting pot is followed) minus the log-odds of the
+ * mean measured one. Averaging compositions before the log-odds, not after, keeps the
+ * analyser noise of a lean pot from biasing the residual. Without samples: the means. */
+static double window_residual(struct comp_ctx *c, size_t i, const double *theta)
+{
+    const stagecal_evidence *e = &c->ev[i];
+    if (e->m == 0 || !e->s_xd || !e->s_xb)
+        return predict_logit(c, i, theta, e->xd) - logit(e->xb);
+    double sp = 0, sm = 0;
+    for (size_t j = 0; j < e->m; j++) {
+        double l = predict_logit(c, i, theta, e->s_xd[j]);
+        sp += 1 / (1 + exp(-l));
+        sm += e->s_xb[j];
+    }
+    return logit(sp / (double)e->m) - logit(sm / (double)e->m);
+}
+
 static int comp_f(const gsl_vector *x, void *params, gsl_vector *f)
 {
     struct comp_ctx *c = params;
-    for (size_t i = 0; i < c->n; i++) {
-        double l = predict_logit(c, i, x->data, c->ev[i].xd);
-        gsl_vector_set(f, i, (l - logit(c->ev[i].xb)) / c->scale[i]);
-    }
+    for (size_t i = 0; i < c->n; i++)
+        gsl_vector_set(f, i, window_residual(c, i, x->data) / c->scale[i]);
     return GSL_SUCCESS;
 }
 

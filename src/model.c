@@ -358,6 +358,10 @@ static int check_model(const stagecal_model *m, const char *source, int code, st
     }
     if (parse_utc(m->fitted_utc, NULL) != 0)
         FAIL("provenance: fitted_utc '%s': expected YYYY-MM-DDTHH:MM:SSZ", m->fitted_utc);
+    if (m->data_first_utc[0] && parse_utc(m->data_first_utc, NULL) != 0)
+        FAIL("provenance: data_first_utc '%s': expected YYYY-MM-DDTHH:MM:SSZ", m->data_first_utc);
+    if (m->data_last_utc[0] && parse_utc(m->data_last_utc, NULL) != 0)
+        FAIL("provenance: data_last_utc '%s': expected YYYY-MM-DDTHH:MM:SSZ", m->data_last_utc);
     if (!m->tool_version[0])
         FAIL("provenance: tool_version must not be empty");
     if (m->seed > (unsigned long long)LLONG_MAX)
@@ -461,6 +465,14 @@ static json_t *build_doc(const stagecal_model *m)
         json_pack("{s:o, s:s, s:s, s:s, s:I, s:o}", "inputs", inputs, "fitted_utc", m->fitted_utc,
                   "tool", "stagecal", "tool_version", m->tool_version, "seed", (json_int_t)m->seed,
                   "command_line", m->command_line ? json_string(m->command_line) : json_null());
+    if (prov) {
+        bad |= json_object_set_new(prov, "data_first_utc",
+                                   m->data_first_utc[0] ? json_string(m->data_first_utc)
+                                                        : json_null());
+        bad |= json_object_set_new(prov, "data_last_utc",
+                                   m->data_last_utc[0] ? json_string(m->data_last_utc)
+                                                       : json_null());
+    }
     inputs = NULL;
     json_t *units =
         json_pack("{s:s, s:s, s:s, s:s, s:s}", "stages", "equilibrium stages including the pot [-]",
@@ -1079,6 +1091,17 @@ static int read_rest(reader *rd, const json_t *doc, stagecal_model *m)
     }
     TRY(get_string(rd, o, "provenance", "fitted_utc", m->fitted_utc, sizeof m->fitted_utc));
     TRY(get_string(rd, o, "provenance", "tool_version", m->tool_version, sizeof m->tool_version));
+    /* optional: the time span of the fitted data (absent in files without it) */
+    static const char *const span_keys[2] = {"data_first_utc", "data_last_utc"};
+    char *span_dst[2] = {m->data_first_utc, m->data_last_utc};
+    for (int k = 0; k < 2; k++) {
+        v = json_object_get(o, span_keys[k]);
+        if (!v || json_is_null(v))
+            span_dst[k][0] = '\0';
+        else if (!json_is_string(v) ||
+                 copy_text(span_dst[k], STAGECAL_MODEL_TEXT, json_string_value(v)) != 0)
+            return RFAIL(rd, "member 'provenance.%s': expected a string or null", span_keys[k]);
+    }
     TRY(get_member(rd, o, "provenance", "seed", &v));
     if (!json_is_integer(v) || json_integer_value(v) < 0)
         return RFAIL(rd, "member 'provenance.seed': expected an integer >= 0");

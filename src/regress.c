@@ -69,6 +69,7 @@ stagecal_regress_params stagecal_regress_default_params(void)
     p.seed = 1;
     p.boot_kind = STAGECAL_BOOT_CASE;
     p.band_points = 25;
+    p.boot_xtol = 1e-8;
     return p;
 }
 
@@ -619,6 +620,9 @@ static int check_params(const stagecal_regress_params *prm, const stagecal_form 
         return error_set(err, STAGECAL_EINVAL,
                          "regress: robust constants k %g, c %g, tol %g (expected > 0)",
                          prm->huber_k, prm->bisquare_c, prm->robust_tol);
+    if (!(prm->boot_xtol > 0))
+        return error_set(err, STAGECAL_EINVAL, "regress: boot_xtol %g (expected > 0)",
+                         prm->boot_xtol);
     if (prm->boot_kind != STAGECAL_BOOT_CASE && prm->boot_kind != STAGECAL_BOOT_RESIDUAL)
         return error_set(err, STAGECAL_EINVAL, "regress: unknown bootstrap kind %d",
                          (int)prm->boot_kind);
@@ -832,6 +836,12 @@ static int bootstrap(const pts *d, const stagecal_regress_params *prm, stagecal_
     gsl_rng_set(rng, prm->seed);
     stagecal_regress_params bp = *prm;
     bp.theta0 = NULL;
+    /* Resample estimates feed percentiles: boot_xtol is ample, and waiting for the
+     * rounding-level stall of the full-accuracy fit would dominate the cost. */
+    bp.xtol = prm->boot_xtol;
+    bp.gtol = prm->boot_xtol;
+    bp.stall_iter = 2;
+    bp.polish_steps = 0;
     /* Standardised residuals, inflated by sqrt(n/(n−p)) so that their variance matches
      * σ² (Davison & Hinkley 1997, §6.2.3; leverage adjustment omitted). */
     double infl = sqrt((double)n / (double)(n - p));

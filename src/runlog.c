@@ -307,6 +307,8 @@ static void header_cell(struct reader *rd, const char *cell)
     rd->unit[role] = u;
     rd->field_of[role] = (int)i;
     rd->role[i] = role;
+    if (role == STAGECAL_RL_TIME && u.iso8601)
+        rd->log->nfiles_iso++;
 }
 
 static void header_done(struct reader *rd)

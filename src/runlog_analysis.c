@@ -295,9 +295,43 @@ static double median_inplace(double *a, size_t n)
     return gsl_stats_median_from_sorted_data(a, 1, n);
 }
 
+void runlog_mark_no_distillate(const stagecal_runlog *log,
+                               const stagecal_runlog_analysis_params *par,
+                               stagecal_runlog_result *res, double *t, double *w)
+{
+    for (size_t k = 0; k < log->nruns; k++) {
+        const stagecal_runlog_run *run = &log->runs[k];
+        size_t i = run->first, end = run->first + run->n;
+        while (i < end) {
+            size_t j = i + 1;
+            while (j < end && log->r[j] == log->r[i])
+                j++;
+            if (isfinite(log->r[i]) && j - i >= par->min_window) {
+                size_t nn = 0;
+                for (size_t a = i; a < j; a++)
+                    if (isfinite(log->w_mol[a]) && isfinite(log->t_s[a])) {
+                        t[nn] = log->t_s[a];
+                        w[nn] = log->w_mol[a];
+                        nn++;
+                    }
+                double c0, c1, c00, c01, c11, ss;
+                /* the holdup does not fall: slope within no_distillate_t standard errors of
+                 * zero (an exactly constant W has c11 = 0 and c1 = 0) */
+                if (nn >= 3 &&
+                    gsl_fit_linear(t, 1, w, 1, nn, &c0, &c1, &c00, &c01, &c11, &ss) ==
+                        GSL_SUCCESS &&
+                    fabs(c1) <= par->no_distillate_t * sqrt(c11))
+                    for (size_t a = i; a < j; a++)
+                        res->flags[a] |= STAGECAL_SAMPLE_TOTAL_REFLUX;
+            }
+            i = j;
+        }
+    }
+}
+
 int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
                    const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
-                   int (*reinvert)(void *ctx, size_t i), void *ctx, stagecal_error *err)
+                   stagecal_error *err)
 {
     size_t maxrun = 0;
     for (size_t k = 0; k < log->nruns; k++)
@@ -390,30 +424,9 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
                 for (size_t a = 0; a < j - i; a++)
                     tmp[a] = log->r[row + a];
                 w->r_median = median_inplace(tmp, j - i);
-                w->total_reflux = isinf(w->r_median);
-                if (!w->total_reflux && j - i >= 3) {
-                    /* no distillate drawn: the holdup does not fall */
-                    double c0, c1, c00, c01, c11, ss;
-                    size_t nn = 0;
-                    for (size_t a = 0; a < j - i; a++)
-                        if (isfinite(log->w_mol[row + a])) {
-                            sig[nn] = log->t_s[row + a];
-                            tmp[nn] = log->w_mol[row + a];
-                            nn++;
-                        }
-                    if (nn >= 3 &&
-                        gsl_fit_linear(sig, 1, tmp, 1, nn, &c0, &c1, &c00, &c01, &c11, &ss) ==
-                            GSL_SUCCESS &&
-                        c11 > 0 && fabs(c1) < par->no_distillate_t * sqrt(c11))
-                        w->total_reflux = 1;
-                    if (w->total_reflux) {
-                        for (size_t a = 0; a < j - i; a++) {
-                            res->flags[row + a] |= STAGECAL_SAMPLE_TOTAL_REFLUX;
-                            if (reinvert)
-                                reinvert(ctx, row + a);
-                        }
-                    }
-                }
+                /* R = inf, or no distillate (runlog_mark_no_distillate) */
+                w->total_reflux =
+                    isinf(w->r_median) || (res->flags[row] & STAGECAL_SAMPLE_TOTAL_REFLUX) != 0;
                 double sum = 0, su2 = 0;
                 for (size_t a = 0; a < j - i; a++) {
                     res->window[row + a] = (int32_t)res->nwindows;

@@ -82,7 +82,7 @@ static void invert_row(struct inv_ctx *c, size_t i, double r)
     res->stages[i] = 0;
     res->u_stages[i] = 0;
     res->status[i] = STAGECAL_STAGES_INVALID;
-    res->lv[i] = isinf(r) ? 1.0 : (r >= 0 ? r / (r + 1.0) : 0.0);
+    res->lv[i] = isinf(r) ? 1.0 : (r >= 0 ? r / (r + 1.0) : NAN);
     if (isnan(xd)) {
         res->note[i] = STAGECAL_NOTE_MISSING_XD;
         return;
@@ -93,7 +93,7 @@ static void invert_row(struct inv_ctx *c, size_t i, double r)
     }
     if (isnan(r)) {
         res->note[i] = STAGECAL_NOTE_MISSING_R;
-        res->lv[i] = 0;
+        res->lv[i] = NAN; /* written as an empty cell */
         return;
     }
     if (xd < xb) {
@@ -123,15 +123,6 @@ static void invert_row(struct inv_ctx *c, size_t i, double r)
     res->note[i] = STAGECAL_NOTE_NONE;
 }
 
-static int reinvert_total(void *ctx, size_t i)
-{
-    struct inv_ctx *c = ctx;
-    invert_row(c, i, INFINITY);
-    if (c->res->status[i] == STAGECAL_STAGES_OK)
-        c->res->note[i] = STAGECAL_NOTE_NO_DISTILLATE;
-    return 0;
-}
-
 int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *col, double murphree,
                            const stagecal_runlog_analysis_params *params,
                            stagecal_runlog_result *res, stagecal_error *err)
@@ -146,8 +137,22 @@ int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *co
     c.sp.want_sensitivities = 1;
     const stagecal_system *sys = &col->system;
     int have_m = sys->m_light > 0 && sys->m_heavy > 0;
+    size_t maxrun = 1;
+    for (size_t k = 0; k < log->nruns; k++)
+        if (log->runs[k].n > maxrun)
+            maxrun = log->runs[k].n;
+    double *st = malloc(maxrun * sizeof *st), *sw = malloc(maxrun * sizeof *sw);
+    if (!st || !sw) {
+        free(st), free(sw);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    runlog_mark_no_distillate(log, &par, res, st, sw);
+    free(st), free(sw);
     for (size_t i = 0; i < log->n; i++) {
-        invert_row(&c, i, log->r[i]);
+        int no_draw = isfinite(log->r[i]) && (res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX);
+        invert_row(&c, i, no_draw ? INFINITY : log->r[i]);
+        if (no_draw && res->status[i] == STAGECAL_STAGES_OK)
+            res->note[i] = STAGECAL_NOTE_NO_DISTILLATE;
         /* vapour load */
         double v = log->v_mol_s ? log->v_mol_s[i] : NAN;
         double p = log->p_pa && isfinite(log->p_pa[i]) ? log->p_pa[i] : sys->p_pa;
@@ -166,7 +171,7 @@ int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *co
                 res->note[i] = STAGECAL_NOTE_NO_LOAD;
         }
     }
-    int rc = runlog_windows(log, col, &par, res, reinvert_total, &c, err);
+    int rc = runlog_windows(log, col, &par, res, err);
     memset(res->count, 0, sizeof res->count);
     for (size_t i = 0; i < log->n; i++)
         if (res->status[i] < 4)

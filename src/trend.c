@@ -58,11 +58,14 @@ int stagecal_trend_point_from_model(const stagecal_model *m, double r, double f_
     int rc = stagecal_model_eval(m, r, f_load, 0, &p, err);
     if (rc)
         return rc;
-    if (stagecal_units_parse_iso8601(m->fitted_utc, &out->t_s) != 0)
+    /* A fit is dated by the last logged sample it used (the state of the column then);
+     * files from logs with relative times fall back to the time of fit. */
+    const char *when = m->data_last_utc[0] ? m->data_last_utc : m->fitted_utc;
+    if (stagecal_units_parse_iso8601(when, &out->t_s) != 0)
         return error_set(err, STAGECAL_EDATA,
-                         "column %s: time of fit '%s' is not a timestamp (expected "
+                         "column %s: date '%s' is not a timestamp (expected "
                          "YYYY-MM-DDTHH:MM:SSZ)",
-                         m->column_id, m->fitted_utc);
+                         m->column_id, when);
     if (!(isfinite(p.se_fit) && p.se_fit > 0))
         return error_set(err, STAGECAL_EDATA,
                          "column %s: fit of %s has no positive standard error at R = %g (got "

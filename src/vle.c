@@ -944,7 +944,7 @@ int stagecal_vle_xstar(const stagecal_vle *vle, double y, double *x)
         return STAGECAL_EINVAL;
     switch (vle->kind) {
     case STAGECAL_VLE_ALPHA:
-        *x = y / (vle->alpha - (vle->alpha - 1.0) * y);
+        *x = y / (y + vle->alpha * (1.0 - y)); /* no cancellation near y = 1 */
         return STAGECAL_OK;
     case STAGECAL_VLE_KVALUE:
         *x = y / vle->k;

@@ -24,7 +24,6 @@ import math
 import sys
 
 import numpy as np
-import statsmodels.api as sm
 
 
 def read_rows(path):
@@ -96,7 +95,9 @@ def main():
     y = np.array([float(row["stages"]) for row in rows])
     w = np.array([1.0 / float(row["sigma"]) ** 2 if "sigma" in row else 1.0 for row in rows])
     X = np.array([[term(t, ri, fi) for t in terms] for ri, fi in zip(r, f)])
-    res = sm.WLS(y, X, weights=w).fit()
+    # imported here: the --saturating-load mode needs only scipy (statsmodels is slow to load)
+    from statsmodels.regression.linear_model import WLS
+    res = WLS(y, X, weights=w).fit()
     out = sys.stdout
     out.write("params " + " ".join(repr(float(v)) for v in res.params) + "\n")
     out.write("bse " + " ".join(repr(float(v)) for v in res.bse) + "\n")

@@ -2,10 +2,10 @@
 # report_render.sh — renders the full demo report in headless Chromium and checks that
 # the page is not blank and that every plot in it was drawn.
 #
-# usage: sh report_render.sh <stagecal-binary> <repo-root> [<bench_report-binary>]
+# usage: sh report_render.sh <stagecal-binary> <repo-root>
 #
-# The demo report (invented content, see tests/bench_report.c) is written by
-# bench_report. Checks:
+# The demo report is the report of a calibration of the invented demo data
+# (stagecal calibrate, then stagecal report). Checks:
 #   1. Chromium lays the page out: an instrumented copy (a script is injected into the
 #      copy only; the report itself has none) reports, through the document title seen
 #      by --dump-dom, each inline SVG figure's box, its drawn-content bounding box
@@ -18,7 +18,6 @@
 set -u
 bin=$1
 root=$2
-bench=${3:-$(dirname "$bin")/tests/bench_report}
 py=/usr/bin/python3
 
 chromium_bin=$(command -v chromium || command -v chromium-browser || true)
@@ -30,15 +29,20 @@ if ! "$py" -c 'import PIL' 2>/dev/null; then
     echo "SKIP: python3-pil is not installed"
     exit 77
 fi
-if [ ! -x "$bench" ]; then
-    echo "FAIL: bench_report not found at $bench"
-    exit 1
-fi
 
 work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
 html=$work/demo_report.html
-"$bench" "$html" 1 >/dev/null || { echo "FAIL: bench_report could not write the report"; exit 1; }
+# The demo calibration's report (invented demo data, datasets/demo): calibrate one quarter
+# of logs, then write the report with the window evidence as points.
+demo=$root/datasets/demo/logs
+"$bin" calibrate --column "$root/datasets/columns/demo_benzene_toluene.json" \
+    --fits "$work/fits" --points-out "$work/points.csv" --quiet --json \
+    "$demo/2025-01.csv" "$demo/2025-02.csv" "$demo/2025-03.csv" >"$work/cal.json" ||
+    { echo "FAIL: calibrate on the demo data"; exit 1; }
+model=$("$py" -c "import json,sys; print(json.load(open(sys.argv[1]))['model_file'])" "$work/cal.json")
+"$bin" report "$model" --points "$work/points.csv" -o "$html" --quiet ||
+    { echo "FAIL: report on the demo model"; exit 1; }
 
 chrome() {
     profile=$(mktemp -d "$work/profile.XXXXXX")

@@ -680,7 +680,8 @@ static void model_load_refuses_corrupt_and_truncated(void **state)
     snprintf(want, sizeof want, "%s:%ld: not a valid JSON document (truncated or corrupt?): ", path,
              err.line);
     assert_memory_equal(err.text, want, strlen(want));
-    assert_non_null(strstr(err.text, "end of file"));
+    /* jansson names the end of input one of two ways, depending on where the cut falls */
+    assert_true(strstr(err.text, "end of file") || strstr(err.text, "premature end of input"));
 
     /* binary garbage in the middle */
     memcpy(text + n / 3, "\x01\xff\xfe", 3);

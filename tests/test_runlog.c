@@ -536,7 +536,7 @@ static void runlog_rows_get_status_not_nan(void **state)
     const char *csv = "time[h],W[kmol],xD[mol/mol],xB[mol/mol],R[-],V[kmol/h],T_top[K]\n"
                       "0,10,0.95,0.5,inf,10,351.44\n0.1,9.9,,0.49,4,10,351.44\n"
                       "0.2,9.8,0.94,0.48,0,10,351.44\n0.3,9.7,0.94,0.47,4,,351.44\n"
-                      "0.4,9.6,0.93,0.46,4,10,351.44\n";
+                      "0.4,9.6,0.93,0.46,4,10,351.44\n0.5,9.5,0.93,0.45,,10,351.44\n";
     stagecal_runlog *log = stagecal_runlog_alloc();
     assert_int_equal(
         stagecal_runlog_read_buffer(log, csv, strlen(csv), "s.csv", &test_col, NULL, NULL, NULL),
@@ -559,6 +559,8 @@ static void runlog_rows_get_status_not_nan(void **state)
     assert_string_equal(stagecal_runlog_note_text(res.note[3]),
                         "no F-factor (needs V, diameter, molar masses and a temperature)");
     assert_true(isfinite(res.f_factor[4]) && res.f_factor[4] > 0);
+    assert_int_equal(res.status[5], STAGECAL_STAGES_INVALID);
+    assert_string_equal(stagecal_runlog_note_text(res.note[5]), "missing R");
     /* CSV output: missing numbers are empty cells, never nan */
     char *buf = NULL;
     size_t len = 0;
@@ -568,6 +570,48 @@ static void runlog_rows_get_status_not_nan(void **state)
     assert_null(strstr(buf, "nan"));
     assert_null(strstr(buf, "inf"));
     assert_non_null(strstr(buf, "s.csv,3,s.csv,360.000,,,,invalid,missing xD,"));
+    /* missing R: no L/V either (an empty cell, not 0) */
+    assert_non_null(strstr(buf, "s.csv,7,s.csv,1800.000,,,,invalid,missing R,,"));
+    free(buf);
+    stagecal_runlog_result_free(&res);
+    stagecal_runlog_free(log);
+}
+
+static void runlog_no_distillate_counts_at_total_reflux(void **state)
+{
+    (void)state;
+    /* R = 3 is logged, but W does not fall: the column runs at total reflux. The pot
+     * composition is the one Fenske gives for N = 5 at xD = 0.95 (REFERENCES §1:
+     * xB/(1 − xB) = (xD/(1 − xD))/α^N), so counted at total reflux the window reads 5. */
+    const double xd = 0.95, q = (xd / (1 - xd)) / pow(2.5, 5.0), xb = q / (1 + q);
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 7);
+    char *buf = NULL;
+    size_t len = 0;
+    FILE *out = open_memstream(&buf, &len);
+    fprintf(out, "time[min],W[kmol],xD[mol/mol],xB[mol/mol],R[-]\n");
+    for (int i = 0; i < 60; i++)
+        fprintf(out, "%d,%.6f,%.6f,%.6f,3\n", 10 * i, 10 + gsl_ran_gaussian(rng, 0.005),
+                xd + gsl_ran_gaussian(rng, test_col.u.xd), xb + gsl_ran_gaussian(rng, 0.001));
+    fclose(out);
+    gsl_rng_free(rng);
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    assert_int_equal(
+        stagecal_runlog_read_buffer(log, buf, len, "nd.csv", &test_col, NULL, NULL, NULL), 0);
+    stagecal_runlog_result res;
+    assert_int_equal(stagecal_runlog_analyse(log, &test_col, NULL, &res, NULL), 0);
+    assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, NULL, &res, NULL), 0);
+    assert_true(res.nwindows >= 1);
+    const stagecal_runlog_window *w = &res.windows[0];
+    assert_int_equal(w->total_reflux, 1);
+    assert_true(res.flags[w->first] & STAGECAL_SAMPLE_TOTAL_REFLUX);
+    assert_string_equal(stagecal_runlog_note_text(res.note[w->first]),
+                        "no distillate drawn: counted at total reflux");
+    /* the window mean within 4 of its (lower-bound) standard uncertainties plus the
+     * xB noise's own bias, i.e. a loose 0.2 stages (common practice, no source) */
+    print_message("no distillate: window of %zu, mean %.4f ± %.4f\n", w->n_ok, w->stages_mean,
+                  w->u_stages_mean);
+    assert_abs(w->stages_mean, 5.0, 0.2, "stages at total reflux");
     free(buf);
     stagecal_runlog_result_free(&res);
     stagecal_runlog_free(log);
@@ -586,6 +630,7 @@ int main(void)
         cmocka_unit_test(runlog_closure_catches_drift_and_gross_error),
         cmocka_unit_test(runlog_mass_based_twin_gives_same_stages),
         cmocka_unit_test(runlog_rows_get_status_not_nan),
+        cmocka_unit_test(runlog_no_distillate_counts_at_total_reflux),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }

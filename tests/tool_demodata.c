@@ -8,7 +8,7 @@
  *
  * INVENTED SCENARIO. "Larkspur Valley Solvents" (fictional), solvent-recovery
  * column K-7 (the demo column file demo-bt-K-7: benzene–toluene, ideal VLE,
- * 4.5 m × 0.20 m packing), 14 months of production, 3 runs a month.
+ * 4.5 m × 0.20 m packing), 14 months of production, 6 runs a month.
  *
  * True stage law (stages including the pot):
  *     N = a(t)·(1 − exp(−b·R))·g(F),   N at total reflux = a(t)·g(F)
@@ -45,7 +45,7 @@
 
 #define SEED 20250106UL
 #define MONTHS 14
-#define RUNS_PER_MONTH 3
+#define RUNS_PER_MONTH 6
 #define A0 9.5
 #define B_LAW 0.9
 #define LOSS_PER_MONTH 0.012

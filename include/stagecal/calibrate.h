@@ -10,8 +10,8 @@
  *   stage space:        window-mean stages regressed on (R, F) (regress.h), weights
  *                       1/se², covariance scaled by the residual variance;
  *   composition space:  the form's parameters chosen so that forward stepping with
- *                       stages(R, F; θ) from each window's mean xD predicts its mean
- *                       xB, compared in log-odds space and weighted by the effective
+ *                       stages(R, F; θ) from each logged xD of a window predicts the
+ *                       xB logged with it, the log-odds residuals averaged per window and weighted by the effective
  *                       variance of the log-odds (measurement uncertainties of xB and,
  *                       through the step's sensitivity, of xD) — usable right up to a
  *                       pinch, where stage counts are huge or undefined but the
@@ -64,14 +64,21 @@ typedef struct {
     double stages;      /* effective stages incl. the pot at the mean compositions [-] */
     double se_stages;   /* its standard error [-] */
     double t_mid_s;     /* mid time of the window [s] */
+    size_t m;           /* samples carried below (0: use the means only) */
+    const double *s_t;  /* m sample times [s], m compositions xD and xB of the window, */
+    const double *s_xd; /* evenly thinned, outliers left out (storage owned by whoever */
+    const double *s_xb; /* built the evidence) */
 } stagecal_evidence;
 
-/* Stage count of a window from its mean compositions: inverts (xd, xb) at r with
- * murphree and propagates u_xd, u_xb through the sensitivities (first order,
- * independent analysers). Inverting the means, rather than averaging per-sample
- * counts, avoids the bias that the curvature of the count in xB gives noisy samples
- * near a pinch or at a very lean pot. Sets stages_ok (0 when the status is not ok).
- * Returns an error only when the inner solve fails. */
+/* Stage count of a window. With samples (ev->m ≥ 3, at most 64 used): quadratics in
+ * time are fitted to the window's xD and xB, the fitted compositions are inverted at every sample time
+ * and the counts averaged — this follows a drifting pot (a batch is never quite steady)
+ * without the curvature bias of inverting plain means, and without the bias that the
+ * count's curvature in xB gives noisy single samples near a pinch or at a lean pot.
+ * Without samples: the inversion of the means. The standard error propagates u_xd,
+ * u_xb through the sensitivities at the means (first order, independent analysers).
+ * Sets stages_ok (0 when any inversion's status is not ok). Returns an error only when
+ * an inner solve fails. */
 int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_evidence *ev,
                              stagecal_error *err);
 
@@ -136,6 +143,7 @@ typedef struct {
     size_t nrank;
     stagecal_model_method used; /* which fit the model carries */
     stagecal_model model;       /* ready to write */
+    double *samples;            /* storage of the evidence's thinned samples */
 } stagecal_calibration;
 
 /* Runs the chain on column_path and nlogs run logs. On success cal is filled and

@@ -99,6 +99,9 @@ typedef struct {
     stagecal_model_input *inputs; /* input files, owned */
     size_t n_inputs;
     char fitted_utc[STAGECAL_MODEL_TEXT];   /* time of fit, "YYYY-MM-DDTHH:MM:SSZ" */
+    char data_first_utc[STAGECAL_MODEL_TEXT]; /* first logged sample fitted, same form;
+                                                 "" when the logs carry relative times */
+    char data_last_utc[STAGECAL_MODEL_TEXT];  /* last logged sample fitted, or "" */
     char tool_version[STAGECAL_MODEL_TEXT]; /* stagecal version that fitted */
     unsigned long long seed;                /* RNG seed used (bootstrap), ≤ 2^63 − 1 */
     char *command_line;                     /* command line of the fit, owned, may be NULL */

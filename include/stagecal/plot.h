@@ -18,8 +18,8 @@
  * routed to a silent handler (plsabort) and every input is validated before PLplot
  * sees it (the handler is process-wide and stays installed: PLplot cannot report the
  * previous one, so a program that also uses PLplot directly and wants its own handler
- * must set it again after rendering). PLplot's plexit (fatal: out of memory inside PLplot) still prints to
- * stderr and ends the process; stagecal cannot intercept that (see docs/plots.md).
+ * must set it again after rendering). PLplot's plexit (fatal: out of memory inside PLplot) still
+ * prints to stderr and ends the process; stagecal cannot intercept that (see docs/plots.md).
  *
  * Units: the charts draw numbers as given; the builders convert SI to the display
  * units named on their axes (time in h or as dates, compositions in mol/mol).

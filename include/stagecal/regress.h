@@ -76,10 +76,11 @@ typedef struct {
     double huber_k;              /* Huber tuning constant; 1.345 (95 % efficiency) */
     double bisquare_c;           /* bisquare tuning constant; 4.685 (95 % efficiency) */
     size_t robust_max_iter;      /* IRLS iterations; 100 */
-    double robust_tol;           /* IRLS stop: max |Δθ_i|/(|θ_i| + se_i) ≤ robust_tol; 1e-10 */
-    size_t bootstrap;            /* number of bootstrap resamples B; 0 = none */
-    unsigned long seed;          /* seed of the bootstrap RNG (gsl_rng_mt19937); 1 */
+    double robust_tol; /* IRLS stop: |Δθ_i| ≤ robust_tol·(|θ_i| + robust_tol) for all i; 1e-10 */
+    size_t bootstrap;             /* number of bootstrap resamples B; 0 = none */
+    unsigned long seed;           /* seed of the bootstrap RNG (gsl_rng_mt19937); 1 */
     stagecal_boot_kind boot_kind; /* case or residual resampling; CASE */
+    double boot_xtol;             /* step and gradient tolerance of the bootstrap refits; 1e-8 */
     size_t band_points;           /* grid points in R for the band; 25 (0 = no band grid) */
 } stagecal_regress_params;
 

@@ -98,6 +98,7 @@ typedef struct {
     size_t nruns;
     char (*files)[160]; /* nfiles source names */
     size_t nfiles;
+    size_t nfiles_iso;  /* files whose time column holds ISO 8601 timestamps (absolute) */
 } stagecal_runlog;
 
 typedef struct {
@@ -224,7 +225,7 @@ typedef struct {
     unsigned char *note;   /* stagecal_runlog_note */
     double *stages;        /* stages incl. the pot (0 unless ok) */
     double *u_stages;      /* standard uncertainty of stages (0 unless ok) */
-    double *lv;            /* L/V = R/(R+1) (1 at total reflux; 0 when R missing) */
+    double *lv;            /* L/V = R/(R+1) (1 at total reflux; NaN when R is missing) */
     double *f_factor;      /* F = u_G·√ρ_G [Pa^0.5]; NaN when not available (note says) */
     stagecal_runlog_window *windows;
     size_t nwindows;
@@ -245,7 +246,9 @@ int stagecal_runlog_analyse(const stagecal_runlog *log, const stagecal_column *c
  * the sensitivities (first order, independent errors), L/V and the F-factor from V,
  * the diameter, P (log, else the column's pressure) and the ideal-gas density at
  * the top temperature (T_top from the log, else the bubble point of xD). Window
- * Then flags steady samples and builds the windows (params may be NULL), filling
+ * Rows of a stretch at one finite R in which W does not fall (no distillate drawn)
+ * are counted at total reflux (note NO_DISTILLATE). Then flags steady samples and
+ * builds the windows (params may be NULL), filling
  * the window means. murphree in (0, 1] is passed to the inversion. A sample whose
  * inner solve fails is `invalid` with note "inversion failed"; the call fails only
  * for ENOMEM or EINVAL (no column model). */

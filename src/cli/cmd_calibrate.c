@@ -37,6 +37,8 @@ static const char usage_text[] =
     "  --reference-load F    F-factor [Pa^0.5] at which HETP is reported (default: mid range)\n"
     "  --fits DIR            where model files go (default: fits)\n"
     "  --samples-out FILE    also write the per-sample inversion as CSV\n"
+    "  --points-out FILE     also write the windows' stage counts as a points file\n"
+    "                        (R,F,stages,sigma; for 'stagecal report --points')\n"
     "  --dry-run             fit and report, write no model file\n"
     "  --json                one JSON document on stdout\n"
     "  --quiet               no warnings or progress on stderr\n"
@@ -142,6 +144,7 @@ int cmd_calibrate(int argc, char **argv)
         O_REFF,
         O_FITS,
         O_SAMPLES,
+        O_POINTS,
         O_DRY,
         O_JSON,
         O_QUIET
@@ -158,13 +161,14 @@ int cmd_calibrate(int argc, char **argv)
                                          {"reference-load", required_argument, NULL, O_REFF},
                                          {"fits", required_argument, NULL, O_FITS},
                                          {"samples-out", required_argument, NULL, O_SAMPLES},
+        {"points-out", required_argument, NULL, O_POINTS},
                                          {"dry-run", no_argument, NULL, O_DRY},
                                          {"json", no_argument, NULL, O_JSON},
                                          {"quiet", no_argument, NULL, O_QUIET},
                                          {"help", no_argument, NULL, 'h'},
                                          {0, 0, 0, 0}};
     stagecal_calibrate_params par = stagecal_calibrate_default_params();
-    const char *column = NULL, *fits = "fits", *samples_out = NULL;
+    const char *column = NULL, *fits = "fits", *samples_out = NULL, *points_out = NULL;
     int json = 0, dry = 0, c, rc;
     long lv;
 
@@ -252,6 +256,9 @@ int cmd_calibrate(int argc, char **argv)
         case O_SAMPLES:
             samples_out = optarg;
             break;
+        case O_POINTS:
+            points_out = optarg;
+            break;
         case O_DRY:
             dry = 1;
             break;
@@ -311,6 +318,36 @@ int cmd_calibrate(int argc, char **argv)
             fclose(out) != 0 || rename(tmp, samples_out) != 0) {
             remove(tmp);
             cli_error("cannot write '%s'", samples_out);
+            stagecal_calibration_free(&cal);
+            return CLI_EXIT_CANTCREAT;
+        }
+    }
+
+    /* window evidence as a points file, atomically */
+    if (points_out) {
+        char tmp[4096];
+        snprintf(tmp, sizeof tmp, "%s.tmp", points_out);
+        FILE *out = fopen(tmp, "w");
+        int bad = !out;
+        if (out) {
+            fprintf(out, "R,F,stages,sigma\n");
+            for (size_t i = 0; i < cal.nev; i++) {
+                const stagecal_evidence *e = &cal.ev[i];
+                if (!e->stages_ok)
+                    continue;
+                if (isinf(e->r))
+                    fprintf(out, "inf,");
+                else
+                    fprintf(out, "%.17g,", e->r);
+                if (e->has_load)
+                    fprintf(out, "%.17g", e->f_load);
+                fprintf(out, ",%.17g,%.17g\n", e->stages, e->se_stages);
+            }
+            bad = ferror(out) | (fclose(out) != 0);
+        }
+        if (bad || rename(tmp, points_out) != 0) {
+            remove(tmp);
+            cli_error("cannot write '%s'", points_out);
             stagecal_calibration_free(&cal);
             return CLI_EXIT_CANTCREAT;
         }

@@ -48,8 +48,8 @@ struct fuzz_command {
 };
 
 static const struct fuzz_command commands[] = {
-    {"steps", cmd_steps},   {"invert", cmd_invert}, {"check", cmd_check},
-    {"regress", cmd_regress}, {"hetp", cmd_hetp},   {"trend", cmd_trend},
+    {"steps", cmd_steps},     {"invert", cmd_invert}, {"check", cmd_check},
+    {"regress", cmd_regress}, {"hetp", cmd_hetp},     {"trend", cmd_trend},
     {"predict", cmd_predict},
 };
 
