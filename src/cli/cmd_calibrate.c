@@ -14,6 +14,7 @@
 #include "cli.h"
 #include "commands.h"
 #include "stagecal/calibrate.h"
+#include "stagecal/report.h"
 #include "stagecal/stages.h"
 
 static const char usage_text[] =
@@ -39,7 +40,9 @@ static const char usage_text[] =
     "  --samples-out FILE    also write the per-sample inversion as CSV\n"
     "  --points-out FILE     also write the windows' stage counts as a points file\n"
     "                        (R,F,stages,sigma; for 'stagecal report --points')\n"
-    "  --dry-run             fit and report, write no model file\n"
+    "  --report FILE.html    also write the calibration's HTML report (charts, fit table,\n"
+    "                        provenance, warnings, caution)\n"
+    "  --dry-run             fit and summarise, write no model file\n"
     "  --json                one JSON document on stdout\n"
     "  --quiet               no warnings or progress on stderr\n"
     "  -h, --help            this text\n";
@@ -115,6 +118,40 @@ static int print_findings(const stagecal_findings *f, int errors_only)
     return (int)shown;
 }
 
+/* The HTML report of the calibration, with the windows' stage counts as its points. */
+static int write_report(const stagecal_calibration *cal, const char *path)
+{
+    size_t n = 0;
+    double *buf = malloc((cal->nev ? cal->nev : 1) * 4 * sizeof *buf);
+    stagecal_report_doc *doc = NULL;
+    stagecal_error err;
+    int any_load = 1, rc;
+    if (!buf) {
+        cli_error("out of memory");
+        return CLI_EXIT_SOFTWARE;
+    }
+    for (size_t i = 0; i < cal->nev; i++) {
+        const stagecal_evidence *e = &cal->ev[i];
+        if (!e->stages_ok)
+            continue;
+        buf[n] = e->r;
+        buf[cal->nev + n] = e->has_load ? e->f_load : 0;
+        buf[2 * cal->nev + n] = e->stages;
+        buf[3 * cal->nev + n] = e->se_stages;
+        any_load &= e->has_load;
+        n++;
+    }
+    stagecal_regress_data pts = {n, buf, any_load ? buf + cal->nev : NULL, buf + 2 * cal->nev,
+                                 buf + 3 * cal->nev};
+    stagecal_error_clear(&err);
+    rc = stagecal_report_from_model(&cal->model, n ? &pts : NULL, &doc, &err);
+    if (rc == STAGECAL_OK)
+        rc = stagecal_report_write(stagecal_report_doc_content(doc), NULL, path, &err);
+    stagecal_report_doc_free(doc);
+    free(buf);
+    return rc == STAGECAL_OK ? CLI_EXIT_OK : cli_fail(&err);
+}
+
 static char *join_args(int argc, char **argv)
 {
     size_t len = 16;
@@ -145,6 +182,7 @@ int cmd_calibrate(int argc, char **argv)
         O_FITS,
         O_SAMPLES,
         O_POINTS,
+        O_REPORT,
         O_DRY,
         O_JSON,
         O_QUIET
@@ -162,13 +200,15 @@ int cmd_calibrate(int argc, char **argv)
                                          {"fits", required_argument, NULL, O_FITS},
                                          {"samples-out", required_argument, NULL, O_SAMPLES},
         {"points-out", required_argument, NULL, O_POINTS},
+        {"report", required_argument, NULL, O_REPORT},
                                          {"dry-run", no_argument, NULL, O_DRY},
                                          {"json", no_argument, NULL, O_JSON},
                                          {"quiet", no_argument, NULL, O_QUIET},
                                          {"help", no_argument, NULL, 'h'},
                                          {0, 0, 0, 0}};
     stagecal_calibrate_params par = stagecal_calibrate_default_params();
-    const char *column = NULL, *fits = "fits", *samples_out = NULL, *points_out = NULL;
+    const char *column = NULL, *fits = "fits", *samples_out = NULL, *points_out = NULL,
+               *report_out = NULL;
     int json = 0, dry = 0, c, rc;
     long lv;
 
@@ -258,6 +298,9 @@ int cmd_calibrate(int argc, char **argv)
             break;
         case O_POINTS:
             points_out = optarg;
+            break;
+        case O_REPORT:
+            report_out = optarg;
             break;
         case O_DRY:
             dry = 1;
@@ -366,6 +409,11 @@ int cmd_calibrate(int argc, char **argv)
         }
     }
 
+    if (report_out && (rc = write_report(&cal, report_out)) != CLI_EXIT_OK) {
+        stagecal_calibration_free(&cal);
+        return rc;
+    }
+
     const stagecal_model *mo = &cal.model;
     const stagecal_regress_result *fit =
         cal.used == STAGECAL_MODEL_STAGE_SPACE ? &cal.stage_fit : &cal.comp_fit;
@@ -378,6 +426,7 @@ int cmd_calibrate(int argc, char **argv)
         json_object_set_new(doc, "version", json_integer(1));
         json_object_set_new(doc, "column", json_string(mo->column_id));
         json_object_set_new(doc, "model_file", path[0] ? json_string(path) : json_null());
+        json_object_set_new(doc, "report", report_out ? json_string(report_out) : json_null());
         json_object_set_new(doc, "method", json_string(stagecal_model_method_name(cal.used)));
         json_object_set_new(doc, "form", json_string(fit->form.name));
         json_object_set_new(doc, "parameters", params_json(fit));
@@ -464,6 +513,8 @@ int cmd_calibrate(int argc, char **argv)
         printf("stage convention: %s\n", stagecal_model_convention_text(mo->condenser));
         for (size_t i = 0; i < mo->n_warnings; i++)
             printf("warning: %s\n", mo->warnings[i]);
+        if (report_out)
+            printf("\nreport: %s\n", report_out);
         if (path[0])
             printf("\nmodel file: %s\n", path);
         else

@@ -29,7 +29,8 @@ static const char usage_text[] =
     "\n"
     "Reads every model file under DIR/COLUMN/ and evaluates the stages (the pot included)\n"
     "at reflux ratio R (and F-factor F), each with its confidence interval, and HETP\n"
-    "where the model knows the packed height. Dated by each file's time of fit. Fits a\n"
+    "where the model knows the packed height. Dated by the last sample each fit used\n"
+    "(the time of fit for logs with relative times). Fits a\n"
     "weighted straight line (stages per month, t interval), runs an EWMA chart of the\n"
     "deviations from a baseline, and, with --require, forecasts the date the stages\n"
     "fall below N with a band (Fieller inversion of the line's confidence band).\n"
@@ -555,7 +556,7 @@ int cmd_trend(int argc, char **argv)
                       "baseline", cli_json_real(par.baseline), "design",
                       "Lucas & Saccucci 1990; ARL by the Brook & Evans 1972 Markov chain"));
         json_object_set_new(doc, "time_of_fit",
-                            json_string("each point is dated by its model file's fitted_utc"));
+                            json_string("each point is dated by its model file's data_last_utc (fitted_utc when absent)"));
         json_t *arr = json_array();
         for (size_t i = 0; i < ncol; i++)
             json_array_append_new(arr, column_json(&cols[i], ev));
