@@ -188,17 +188,12 @@ static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params
     snprintf(mo->column_id, sizeof mo->column_id, "%s", col->id);
     snprintf(mo->light, sizeof mo->light, "%s", col->system.light);
     snprintf(mo->heavy, sizeof mo->heavy, "%s", col->system.heavy);
-    snprintf(mo->vle_kind, sizeof mo->vle_kind, "%s",
-             stagecal_vle_kind_name(stagecal_vle_get_kind(col->system.vle)));
-    if (stagecal_vle_get_kind(col->system.vle) == STAGECAL_VLE_ALPHA) {
-        /* constant α is recovered exactly from any point of the curve */
-        double y;
-        stagecal_vle_ystar(col->system.vle, 0.5, &y);
-        double alpha = y / (1 - y);
-        if ((rc = stagecal_model_add_vle_param(mo, "alpha", &alpha, 1, err)))
-            return rc;
-    }
-    if (col->system.p_pa > 0 &&
+    /* the complete equilibrium model, so that a planner can rebuild it from the model
+     * file alone (stagecal_model_build_vle) */
+    if ((rc = stagecal_model_set_vle(mo, col->system.vle, err)))
+        return rc;
+    /* ideal/activity models record their pressure; for the others it is informative */
+    if (col->system.p_pa > 0 && stagecal_vle_pressure(col->system.vle) == 0 &&
         (rc = stagecal_model_add_vle_param(mo, "pressure_pa", &col->system.p_pa, 1, err)))
         return rc;
     mo->condenser = col->condenser;

@@ -708,8 +708,11 @@ int stagecal_stages_step(const stagecal_vle *vle, double xd, double reflux, doub
     }
     goto done;
 pinched:
+    /* The step made no progress: the liquid has reached the pinch of this operating line
+     * to rounding, and more stages (the pot included) reach no further, so the pot ends
+     * at the composition reached, the last x. */
     *status = STAGECAL_STAGES_PINCH;
-    *xb = 0.0;
+    *xb = x_prev;
     *len = 0;
     error_set(err, STAGECAL_OK, "pinch: no progress below x = %.10g at L/V = %.10g", x_prev, st.m);
 done:

@@ -577,7 +577,8 @@ int stagecal_trend_events_read(const char *path, stagecal_trend_event **events, 
                               row.field[1]);
             break;
         }
-        snprintf(e->column_id, sizeof e->column_id, "%s", row.field[1]);
+        /* length checked above */
+        memcpy(e->column_id, row.field[1], strlen(row.field[1]) + 1);
         if (stagecal_event_kind_parse(row.field[2], &e->kind) != 0) {
             rc = error_set_at(err, STAGECAL_EDATA, path, lineno, 3,
                               "kind '%s' is unknown (expected repack, maintenance or note)",

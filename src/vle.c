@@ -109,6 +109,22 @@ static int is_activity(stagecal_vle_kind kind)
            kind == STAGECAL_VLE_VANLAAR || kind == STAGECAL_VLE_MARGULES;
 }
 
+/* Number of activity-model parameters of a kind (vle.h); 0 for the others. */
+static size_t nparam_of(stagecal_vle_kind kind)
+{
+    switch (kind) {
+    case STAGECAL_VLE_WILSON:
+        return 4;
+    case STAGECAL_VLE_NRTL:
+        return 5;
+    case STAGECAL_VLE_VANLAAR:
+    case STAGECAL_VLE_MARGULES:
+        return 2;
+    default:
+        return 0;
+    }
+}
+
 /* ---- Hermite kernel ------------------------------------------------------------------ */
 
 /* Cubic Hermite on [x0, x0 + h] in s = (x − x0)/h: H(s) = y0 + s(h m0 + s(c2 + s c3)). */
@@ -660,17 +676,12 @@ static int check_antoine(const stagecal_antoine *a, const char *which, stagecal_
 
 static int check_params(stagecal_vle_kind kind, const double *p, size_t np, stagecal_error *err)
 {
-    static const size_t want[] = {[STAGECAL_VLE_IDEAL] = 0,
-                                  [STAGECAL_VLE_WILSON] = 4,
-                                  [STAGECAL_VLE_NRTL] = 5,
-                                  [STAGECAL_VLE_VANLAAR] = 2,
-                                  [STAGECAL_VLE_MARGULES] = 2};
     const char *name = stagecal_vle_kind_name(kind);
     if (kind == STAGECAL_VLE_IDEAL)
         return STAGECAL_OK;
-    if (np != want[kind] || !p)
+    if (np != nparam_of(kind) || !p)
         return error_set(err, STAGECAL_EINVAL, "%s model has %zu parameters, expected %zu", name,
-                         np, want[kind]);
+                         np, nparam_of(kind));
     for (size_t i = 0; i < np; i++)
         if (!isfinite(p[i]))
             return error_set(err, STAGECAL_EINVAL,
@@ -805,6 +816,62 @@ stagecal_vle *stagecal_vle_alloc_activity(stagecal_vle_kind kind, const stagecal
                                           stagecal_error *err)
 {
     return stagecal_vle_alloc_activity_params(kind, ant, params, nparam, p_pa, NULL, err);
+}
+
+/* ---- definition ---------------------------------------------------------------------- */
+
+void stagecal_vle_get_definition(const stagecal_vle *vle, stagecal_vle_definition *def)
+{
+    memset(def, 0, sizeof *def);
+    def->kind = vle->kind;
+    def->vp = vle->vp;
+    switch (vle->kind) {
+    case STAGECAL_VLE_ALPHA:
+        def->alpha = vle->alpha;
+        return;
+    case STAGECAL_VLE_KVALUE:
+        def->k = vle->k;
+        return;
+    case STAGECAL_VLE_TABLE:
+        /* the stored nodes already hold the added end points, so a rebuild adds none
+         * and GSL's Steffen slopes come out the same */
+        def->n = vle->n;
+        def->x = vle->xs;
+        def->y = vle->ys;
+        def->t_k = vle->has_t ? vle->ts : NULL;
+        return;
+    default:
+        def->ant[0] = vle->ant[0];
+        def->ant[1] = vle->ant[1];
+        def->nparam = nparam_of(vle->kind);
+        memcpy(def->params, vle->par, sizeof def->params);
+        def->p_pa = vle->p_pa;
+        return;
+    }
+}
+
+stagecal_vle *stagecal_vle_alloc_definition(const stagecal_vle_definition *def, stagecal_error *err)
+{
+    if (!def) {
+        error_set(err, STAGECAL_EINVAL, "vle definition: expected a definition, got NULL");
+        return NULL;
+    }
+    switch (def->kind) {
+    case STAGECAL_VLE_ALPHA:
+        return stagecal_vle_alloc_alpha(def->alpha, err);
+    case STAGECAL_VLE_KVALUE:
+        return stagecal_vle_alloc_kvalue(def->k, err);
+    case STAGECAL_VLE_TABLE:
+        return stagecal_vle_alloc_table(def->x, def->y, def->t_k, def->n, err);
+    default:
+        if (!is_activity(def->kind)) {
+            error_set(err, STAGECAL_EINVAL, "vle definition: unknown model kind %d",
+                      (int)def->kind);
+            return NULL;
+        }
+        return stagecal_vle_alloc_activity_params(def->kind, def->ant, def->params, def->nparam,
+                                                  def->p_pa, &def->vp, err);
+    }
 }
 
 /* ---- queries ------------------------------------------------------------------------- */

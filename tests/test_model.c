@@ -1061,6 +1061,278 @@ static void model_add_helpers_validate(void **state)
     stagecal_model_free(NULL);
 }
 
+/* ---- the equilibrium model in the file ------------------------------------------------ */
+
+/* Antoine sets of REFERENCES §6 (NIST WebBook form) and the parameter sets used in
+ * tests/test_stages.c: NRTL-A and van Laar ethanol–water (REFERENCES §7, source
+ * secondary); Wilson and Margules methanol–water are illustrative (a round trip needs
+ * no source). */
+static const stagecal_antoine VLE_ETHANOL = {5.24677, 1598.673, -46.424, 292.77, 366.63};
+static const stagecal_antoine VLE_WATER = {5.08354, 1663.125, -45.622, 344.0, 373.0};
+static const stagecal_antoine VLE_METHANOL = {5.20409, 1581.341, -33.50, 288.1, 356.83};
+static const stagecal_antoine VLE_BENZENE = {4.01814, 1203.835, -53.226, 287.70, 354.07};
+static const stagecal_antoine VLE_TOLUENE = {4.07827, 1343.943, -53.773, 308.52, 384.66};
+static const double VLE_NRTL_A[5] = {-0.8009, 246.18, 3.4578, -586.0809, 0.3};
+
+#define VLE_KINDS 11
+
+/* Model i of the round trip: every kind, tables with and without temperatures and end
+ * points, an activity model with non-default tunables. */
+static stagecal_vle *roundtrip_vle(int i)
+{
+    static const double tx[4] = {0.05, 0.3, 0.6, 0.9}, ty[4] = {0.2, 0.55, 0.78, 0.95};
+    static const double ux[5] = {0, 0.2, 0.5, 0.8, 1}, uy[5] = {0, 0.45, 0.72, 0.9, 1};
+    static const double ut[5] = {373.15, 362.4, 356.05, 352.9, 351.44};
+    const stagecal_antoine ew[2] = {VLE_ETHANOL, VLE_WATER}, mw[2] = {VLE_METHANOL, VLE_WATER};
+    const stagecal_antoine bt[2] = {VLE_BENZENE, VLE_TOLUENE};
+    const double vl[2] = {1.6798, 0.9227}, wi[4] = {1000.0, 2000.0, 40.7e-6, 18.07e-6};
+    const double ma[2] = {0.6, 0.4};
+    stagecal_vle_params vp = stagecal_vle_default_params();
+    stagecal_error err;
+    stagecal_vle *v = NULL;
+    vp.grid_n = 257;
+    vp.t_epsrel = 1e-12;
+    vp.max_iter = 50;
+    switch (i) {
+    case 0:
+        v = stagecal_vle_alloc_alpha(2.385, &err);
+        break;
+    case 1:
+        v = stagecal_vle_alloc_kvalue(1.37, &err);
+        break;
+    case 2:
+        v = stagecal_vle_alloc_table(tx, ty, NULL, 4, &err);
+        break;
+    case 3:
+        v = stagecal_vle_alloc_table(ux, uy, ut, 5, &err);
+        break;
+    case 4:
+        v = stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, bt, NULL, 0, 101325.0, &err);
+        break;
+    case 5:
+        v = stagecal_vle_alloc_activity(STAGECAL_VLE_WILSON, mw, wi, 4, 101325.0, &err);
+        break;
+    case 6:
+        v = stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, VLE_NRTL_A, 5, 101325.0, &err);
+        break;
+    case 7:
+        v = stagecal_vle_alloc_activity(STAGECAL_VLE_VANLAAR, ew, vl, 2, 101325.0, &err);
+        break;
+    case 8:
+        v = stagecal_vle_alloc_activity(STAGECAL_VLE_MARGULES, mw, ma, 2, 101325.0, &err);
+        break;
+    case 9: /* tunables away from their defaults must travel too */
+        v = stagecal_vle_alloc_activity_params(STAGECAL_VLE_NRTL, ew, VLE_NRTL_A, 5, 60000.0, &vp,
+                                               &err);
+        break;
+    default: { /* an Antoine set without a stated range (0, 0) */
+        stagecal_antoine nr[2] = {VLE_BENZENE, {4.07827, 1343.943, -53.773, 0.0, 0.0}};
+        v = stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, nr, NULL, 0, 101325.0, &err);
+    }
+    }
+    if (!v)
+        print_error("model %d: %s\n", i, err.text);
+    assert_non_null(v);
+    return v;
+}
+
+static const stagecal_model_vle_param *vle_param(const stagecal_model *m, const char *name)
+{
+    for (size_t i = 0; i < m->n_vle_params; i++)
+        if (strcmp(m->vle_params[i].name, name) == 0)
+            return &m->vle_params[i];
+    return NULL;
+}
+
+/* Every kind through a model file and back: the rebuilt model answers y*(x), x*(y) and
+ * T_bubble like the original. Tolerance 1e-12 absolute (the task's bar): the rebuild
+ * gets the same numbers (17 significant digits in the file), so the same nodes and GSL
+ * slopes, and should agree to the last bit; 1e-12 leaves rounding room only. */
+static void model_vle_roundtrip_every_kind(void **state)
+{
+    (void)state;
+    for (int k = 0; k < VLE_KINDS; k++) {
+        stagecal_model m, back;
+        stagecal_error err;
+        char dir[1200], path[1400], what[64];
+        stagecal_vle *orig = roundtrip_vle(k), *re = NULL;
+        fill_model(&m, "saturating");
+        assert_int_equal(stagecal_model_set_vle(&m, orig, &err), STAGECAL_OK);
+        assert_string_equal(m.vle_kind, stagecal_vle_kind_name(stagecal_vle_get_kind(orig)));
+        snprintf(what, sizeof what, "vle-%d", k);
+        subdir(dir, sizeof dir, what);
+        int rc = stagecal_model_write(&m, dir, path, sizeof path, &err);
+        if (rc != STAGECAL_OK)
+            print_error("write: %s\n", err.text);
+        assert_int_equal(rc, STAGECAL_OK);
+        stagecal_model_init(&back);
+        assert_int_equal(stagecal_model_load(path, &back, &err), STAGECAL_OK);
+        rc = stagecal_model_build_vle(&back, &re, &err);
+        if (rc != STAGECAL_OK)
+            print_error("build %d: %s\n", k, err.text);
+        assert_int_equal(rc, STAGECAL_OK);
+        assert_int_equal(stagecal_vle_get_kind(re), stagecal_vle_get_kind(orig));
+        double x_max = stagecal_vle_x_max(orig);
+        bits_equal(stagecal_vle_x_max(re), x_max, "x_max");
+        bits_equal(stagecal_vle_pressure(re), stagecal_vle_pressure(orig), "pressure");
+        assert_int_equal(stagecal_vle_has_temperature(re), stagecal_vle_has_temperature(orig));
+        for (int i = 0; i <= 1000; i++) {
+            double x = x_max * i / 1000.0, ya, yb, xa, xb, ta, tb;
+            snprintf(what, sizeof what, "%s y*(%g)",
+                     stagecal_vle_kind_name(stagecal_vle_get_kind(orig)), x);
+            assert_int_equal(stagecal_vle_ystar(orig, x, &ya), STAGECAL_OK);
+            assert_int_equal(stagecal_vle_ystar(re, x, &yb), STAGECAL_OK);
+            assert_abs(yb, ya, 1e-12, what);
+            double y = i / 1000.0;
+            snprintf(what, sizeof what, "%s x*(%g)",
+                     stagecal_vle_kind_name(stagecal_vle_get_kind(orig)), y);
+            int ra = stagecal_vle_xstar(orig, y, &xa), rb = stagecal_vle_xstar(re, y, &xb);
+            assert_int_equal(rb, ra);
+            if (ra == STAGECAL_OK)
+                assert_abs(xb, xa, 1e-12, what);
+            if (stagecal_vle_has_temperature(orig) && i % 50 == 0) {
+                assert_int_equal(stagecal_vle_tbubble(orig, x, &ta), STAGECAL_OK);
+                assert_int_equal(stagecal_vle_tbubble(re, x, &tb), STAGECAL_OK);
+                assert_abs(tb, ta, 1e-12 * ta, "T_bubble [K]");
+            }
+        }
+        size_t naz = stagecal_vle_azeotropes(orig, NULL, 0);
+        assert_int_equal(stagecal_vle_azeotropes(re, NULL, 0), naz);
+        stagecal_vle_free(re);
+        stagecal_vle_free(orig);
+        stagecal_model_free(&back);
+        stagecal_model_free(&m);
+    }
+}
+
+/* The names of docs/model-file.md hold the construction inputs (not values the code
+ * computed): the file is readable by a planner that does not link stagecal. */
+static void model_vle_parameters_are_named_inputs(void **state)
+{
+    (void)state;
+    static const char *const nrtl_names[5] = {"tau12_a", "tau12_b_k", "tau21_a", "tau21_b_k",
+                                              "alpha12"};
+    stagecal_model m;
+    stagecal_error err;
+    stagecal_vle *v = roundtrip_vle(6);
+    stagecal_model_init(&m);
+    assert_int_equal(stagecal_model_set_vle(&m, v, &err), STAGECAL_OK);
+    assert_string_equal(m.vle_kind, "nrtl");
+    /* pressure, 2 × 5 Antoine members, 5 NRTL parameters; default tunables left out */
+    assert_int_equal(m.n_vle_params, 16);
+    for (int i = 0; i < 5; i++)
+        bits_equal(vle_param(&m, nrtl_names[i])->values[0], VLE_NRTL_A[i], nrtl_names[i]);
+    bits_equal(vle_param(&m, "pressure_pa")->values[0], 101325.0, "pressure_pa");
+    bits_equal(vle_param(&m, "antoine_light_b")->values[0], VLE_ETHANOL.b, "antoine_light_b");
+    bits_equal(vle_param(&m, "antoine_heavy_t_max_k")->values[0], VLE_WATER.t_max_k,
+               "antoine_heavy_t_max_k");
+    assert_null(vle_param(&m, "grid_n"));
+    stagecal_vle_free(v);
+
+    /* set_vle replaces what the model held */
+    v = roundtrip_vle(0);
+    assert_int_equal(stagecal_model_set_vle(&m, v, &err), STAGECAL_OK);
+    assert_string_equal(m.vle_kind, "alpha");
+    assert_int_equal(m.n_vle_params, 1);
+    bits_equal(vle_param(&m, "alpha")->values[0], 2.385, "alpha");
+    stagecal_vle_free(v);
+
+    /* the table: the data with the end points (0, 0) and (1, 1) added */
+    v = roundtrip_vle(2);
+    assert_int_equal(stagecal_model_set_vle(&m, v, &err), STAGECAL_OK);
+    const stagecal_model_vle_param *px = vle_param(&m, "x"), *py = vle_param(&m, "y");
+    assert_int_equal(px->n, 6);
+    assert_int_equal(py->n, 6);
+    bits_equal(px->values[0], 0.0, "x[0]");
+    bits_equal(px->values[2], 0.3, "x[2]");
+    bits_equal(py->values[4], 0.95, "y[4]");
+    bits_equal(py->values[5], 1.0, "y[5]");
+    assert_null(vle_param(&m, "t_k"));
+    stagecal_vle_free(v);
+
+    /* tunables away from the defaults are written */
+    v = roundtrip_vle(9);
+    assert_int_equal(stagecal_model_set_vle(&m, v, &err), STAGECAL_OK);
+    bits_equal(vle_param(&m, "grid_n")->values[0], 257.0, "grid_n");
+    bits_equal(vle_param(&m, "t_epsrel")->values[0], 1e-12, "t_epsrel");
+    bits_equal(vle_param(&m, "max_iter")->values[0], 50.0, "max_iter");
+    assert_null(vle_param(&m, "exact"));
+    stagecal_vle_free(v);
+    stagecal_model_free(&m);
+}
+
+static void expect_build_error(const stagecal_model *m, const char *want)
+{
+    stagecal_error err;
+    stagecal_vle *v = (stagecal_vle *)&err; /* must be reset to NULL on failure */
+    int rc = stagecal_model_build_vle(m, &v, &err);
+    if (rc != STAGECAL_EDATA || !strstr(err.text, want))
+        print_error("got %d '%s', want EDATA with '%s'\n", rc, err.text, want);
+    assert_int_equal(rc, STAGECAL_EDATA);
+    assert_null(v);
+    assert_non_null(strstr(err.text, want));
+}
+
+/* Files written before the full system was recorded load, and say what is missing when
+ * a rebuild is asked for; damaged parameter sets are refused as data errors. */
+static void model_vle_build_refuses_incomplete(void **state)
+{
+    (void)state;
+    stagecal_model m, back;
+    stagecal_error err;
+    stagecal_vle *v = NULL;
+    char dir[1200], path[1400];
+    double y;
+
+    /* the standard model is written the old way: kind "nrtl", parameters not by name */
+    subdir(dir, sizeof dir, "vle-old");
+    write_standard(dir, "saturating", path, sizeof path);
+    stagecal_model_init(&back);
+    assert_int_equal(stagecal_model_load(path, &back, &err), STAGECAL_OK);
+    expect_build_error(&back, "parameter 'pressure_pa' is missing");
+    stagecal_model_free(&back);
+
+    /* an old alpha file (alpha and the pressure, as the first writer did) rebuilds */
+    stagecal_model_init(&m);
+    snprintf(m.vle_kind, sizeof m.vle_kind, "alpha");
+    double alpha = 2.385, p = 101325.0;
+    assert_int_equal(stagecal_model_add_vle_param(&m, "alpha", &alpha, 1, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_add_vle_param(&m, "pressure_pa", &p, 1, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_build_vle(&m, &v, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_vle_ystar(v, 0.5, &y), STAGECAL_OK);
+    /* y*(0.5) = α/(α + 1) for constant α (closed form); 1e-15 relative = rounding */
+    assert_rel(y, 2.385 / 3.385, 1e-15, "alpha model rebuilt from an old file");
+    stagecal_vle_free(v);
+    stagecal_model_free(&m);
+
+    stagecal_model_init(&m);
+    snprintf(m.vle_kind, sizeof m.vle_kind, "kvalue");
+    expect_build_error(&m, "parameter 'k' is missing");
+    snprintf(m.vle_kind, sizeof m.vle_kind, "uniquac");
+    expect_build_error(&m, "equilibrium model 'uniquac' is unknown");
+    snprintf(m.vle_kind, sizeof m.vle_kind, "table");
+    expect_build_error(&m, "parameter 'x' is missing");
+    const double x[3] = {0.2, 0.5, 0.8}, yy[4] = {0.4, 0.7, 0.9, 0.95};
+    assert_int_equal(stagecal_model_add_vle_param(&m, "x", x, 3, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_add_vle_param(&m, "y", yy, 4, &err), STAGECAL_OK);
+    expect_build_error(&m, "x has 3 values but y 4");
+    stagecal_model_free(&m);
+
+    /* out of the model's domain: the vle's own message, as a data error */
+    v = roundtrip_vle(6);
+    stagecal_model_init(&m);
+    assert_int_equal(stagecal_model_set_vle(&m, v, &err), STAGECAL_OK);
+    stagecal_vle_free(v);
+    for (size_t i = 0; i < m.n_vle_params; i++)
+        if (strcmp(m.vle_params[i].name, "alpha12") == 0)
+            m.vle_params[i].values[0] = 3.0;
+    expect_build_error(&m, "nrtl non-randomness 3 is outside (0, 1]");
+    double g = 300.5;
+    assert_int_equal(stagecal_model_add_vle_param(&m, "grid_n", &g, 1, &err), STAGECAL_OK);
+    expect_build_error(&m, "'grid_n' = 300.5, expected a whole number");
+    stagecal_model_free(&m);
+}
+
 static int group_setup(void **state)
 {
     (void)state;
@@ -1098,6 +1370,9 @@ int main(void)
         cmocka_unit_test(model_eval_flags_extrapolation),
         cmocka_unit_test(model_eval_rejects_bad_arguments),
         cmocka_unit_test(model_add_helpers_validate),
+        cmocka_unit_test(model_vle_roundtrip_every_kind),
+        cmocka_unit_test(model_vle_parameters_are_named_inputs),
+        cmocka_unit_test(model_vle_build_refuses_incomplete),
     };
     return cmocka_run_group_tests(tests, group_setup, group_teardown);
 }

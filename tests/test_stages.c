@@ -577,6 +577,25 @@ static void stages_min_reflux_and_pinch(void **state)
     stagecal_vle_free(v);
 }
 
+/* Stepping far more stages than the separation needs runs into the pinch: the status says
+ * so and xB is the composition reached, the pinch root k of the operating line and the
+ * equilibrium curve (REFERENCES §2 table: α = 2.5, R = 4, xD = 0.95 → k = 0.1545256663,
+ * 10 s.f., hence the 1e-9 tolerance). */
+static void stages_step_into_pinch_reports_pinch_composition(void **state)
+{
+    (void)state;
+    stagecal_vle *v = stagecal_vle_alloc_alpha(2.5, NULL);
+    double xb = -1;
+    size_t len = 99;
+    int status = -1;
+    assert_int_equal(stagecal_stages_step(v, 0.95, 4.0, 3000, 1.0, NULL, &xb, NULL, 0, &len,
+                                          &status, NULL),
+                     STAGECAL_OK);
+    assert_int_equal(status, STAGECAL_STAGES_PINCH);
+    assert_abs(xb, 0.1545256663, 1e-9, "pinch composition after 3000 stages (REFERENCES 2 k)");
+    stagecal_vle_free(v);
+}
+
 static void stages_min_reflux_tangent_pinch_nrtl(void **state)
 {
     (void)state;
@@ -710,6 +729,7 @@ int main(void)
         cmocka_unit_test(stages_sensitivities_match_closed_forms),
         cmocka_unit_test(stages_min_reflux_and_pinch),
         cmocka_unit_test(stages_min_reflux_tangent_pinch_nrtl),
+        cmocka_unit_test(stages_step_into_pinch_reports_pinch_composition),
         cmocka_unit_test(stages_azeotrope_ethanol_water),
         cmocka_unit_test(stages_invalid_inputs),
     };

@@ -573,6 +573,112 @@ static void vle_error_paths(void **state)
     stagecal_vle_free(NULL);
 }
 
+/* ---- definition getter ---------------------------------------------------------------- */
+
+static void antoine_equal(const stagecal_antoine *a, const stagecal_antoine *b)
+{
+    assert_true(a->a == b->a && a->b == b->b && a->c == b->c && a->t_min_k == b->t_min_k &&
+                a->t_max_k == b->t_max_k);
+}
+
+/* The getter returns the construction inputs (the expected values are those inputs, not
+ * anything the code computed); the constructor from it rebuilds the same model. */
+static void vle_definition_returns_inputs(void **state)
+{
+    fixture *f = *state;
+    stagecal_vle_definition d;
+    stagecal_error e;
+    stagecal_vle_params dvp = stagecal_vle_default_params();
+
+    stagecal_vle *a = stagecal_vle_alloc_alpha(2.385, &e), *k = stagecal_vle_alloc_kvalue(1.37, &e);
+    assert_non_null(a);
+    assert_non_null(k);
+    stagecal_vle_get_definition(a, &d);
+    assert_int_equal(d.kind, STAGECAL_VLE_ALPHA);
+    assert_true(d.alpha == 2.385 && d.k == 0.0 && d.n == 0 && !d.x && d.nparam == 0);
+    stagecal_vle_get_definition(k, &d);
+    assert_int_equal(d.kind, STAGECAL_VLE_KVALUE);
+    assert_true(d.k == 1.37 && d.alpha == 0.0 && d.p_pa == 0.0);
+    stagecal_vle_free(a);
+    stagecal_vle_free(k);
+
+    /* NRTL at the defaults, and with exact = 1 */
+    stagecal_vle_get_definition(f->nrtl, &d);
+    assert_int_equal(d.kind, STAGECAL_VLE_NRTL);
+    antoine_equal(&d.ant[0], &ETHANOL);
+    antoine_equal(&d.ant[1], &WATER_BA);
+    assert_int_equal(d.nparam, 5);
+    for (size_t i = 0; i < 5; i++)
+        assert_true(d.params[i] == NRTL_A[i]);
+    assert_true(d.params[5] == 0.0 && d.p_pa == 101325.0 && !d.x && !d.t_k);
+    assert_true(d.vp.grid_n == dvp.grid_n && d.vp.exact == 0 && d.vp.t_epsrel == dvp.t_epsrel &&
+                d.vp.max_iter == dvp.max_iter);
+    stagecal_vle_get_definition(f->nrtl_exact, &d);
+    assert_int_equal(d.vp.exact, 1);
+    stagecal_vle_get_definition(f->vanlaar, &d);
+    assert_int_equal(d.kind, STAGECAL_VLE_VANLAAR);
+    assert_int_equal(d.nparam, 2);
+    assert_true(d.params[0] == VANLAAR[0] && d.params[1] == VANLAAR[1]);
+    stagecal_vle_get_definition(f->ideal, &d);
+    assert_int_equal(d.kind, STAGECAL_VLE_IDEAL);
+    assert_int_equal(d.nparam, 0);
+    antoine_equal(&d.ant[0], &BENZENE);
+    antoine_equal(&d.ant[1], &TOLUENE);
+
+    /* a table: the nodes with the end points (0, 0) and (1, 1) added */
+    const double x[4] = {0.05, 0.3, 0.6, 0.9}, y[4] = {0.2, 0.55, 0.78, 0.95};
+    stagecal_vle *t = stagecal_vle_alloc_table(x, y, NULL, 4, &e);
+    assert_non_null(t);
+    stagecal_vle_get_definition(t, &d);
+    assert_int_equal(d.kind, STAGECAL_VLE_TABLE);
+    assert_int_equal(d.n, 6);
+    assert_null(d.t_k);
+    assert_true(d.x[0] == 0.0 && d.y[0] == 0.0 && d.x[5] == 1.0 && d.y[5] == 1.0);
+    for (size_t i = 0; i < 4; i++)
+        assert_true(d.x[i + 1] == x[i] && d.y[i + 1] == y[i]);
+    /* rebuilt from the definition: no second pair of end points, the same interpolant
+     * (GSL Steffen slopes depend on the nodes only), so equal to the bit */
+    stagecal_vle *t2 = stagecal_vle_alloc_definition(&d, &e);
+    assert_non_null(t2);
+    stagecal_vle_definition d2;
+    stagecal_vle_get_definition(t2, &d2);
+    assert_int_equal(d2.n, 6);
+    for (int i = 0; i <= 200; i++) {
+        double ya, yb, xx = i / 200.0;
+        assert_int_equal(stagecal_vle_ystar(t, xx, &ya), STAGECAL_OK);
+        assert_int_equal(stagecal_vle_ystar(t2, xx, &yb), STAGECAL_OK);
+        assert_true(ya == yb);
+    }
+    stagecal_vle_free(t2);
+    stagecal_vle_free(t);
+
+    /* with temperatures */
+    const double tx[3] = {0.0, 0.5, 1.0}, ty[3] = {0.0, 0.7, 1.0}, tt[3] = {373.15, 355.2, 351.4};
+    t = stagecal_vle_alloc_table(tx, ty, tt, 3, &e);
+    assert_non_null(t);
+    stagecal_vle_get_definition(t, &d);
+    assert_int_equal(d.n, 3);
+    assert_non_null(d.t_k);
+    assert_true(d.t_k[0] == 373.15 && d.t_k[1] == 355.2 && d.t_k[2] == 351.4);
+    stagecal_vle_free(t);
+
+    /* the constructor refuses what the alloc_* would */
+    memset(&d, 0, sizeof d);
+    d.kind = (stagecal_vle_kind)99;
+    assert_null(stagecal_vle_alloc_definition(&d, &e));
+    assert_int_equal(e.code, STAGECAL_EINVAL);
+    assert_null(stagecal_vle_alloc_definition(NULL, &e));
+    assert_int_equal(e.code, STAGECAL_EINVAL);
+    d.kind = STAGECAL_VLE_ALPHA;
+    d.alpha = 0.9;
+    assert_null(stagecal_vle_alloc_definition(&d, &e));
+    assert_string_equal(e.text, "relative volatility 0.9 is outside (1, inf)");
+    stagecal_vle_get_definition(f->nrtl, &d);
+    d.vp.grid_n = 5;
+    assert_null(stagecal_vle_alloc_definition(&d, &e));
+    assert_int_equal(e.code, STAGECAL_EINVAL);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -591,6 +697,7 @@ int main(void)
         cmocka_unit_test(vle_mass_mole_conversion),
         cmocka_unit_test(vle_antoine_range_flags),
         cmocka_unit_test(vle_error_paths),
+        cmocka_unit_test(vle_definition_returns_inputs),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }

@@ -98,13 +98,13 @@ typedef struct {
     /* provenance */
     stagecal_model_input *inputs; /* input files, owned */
     size_t n_inputs;
-    char fitted_utc[STAGECAL_MODEL_TEXT];   /* time of fit, "YYYY-MM-DDTHH:MM:SSZ" */
+    char fitted_utc[STAGECAL_MODEL_TEXT];     /* time of fit, "YYYY-MM-DDTHH:MM:SSZ" */
     char data_first_utc[STAGECAL_MODEL_TEXT]; /* first logged sample fitted, same form;
                                                  "" when the logs carry relative times */
     char data_last_utc[STAGECAL_MODEL_TEXT];  /* last logged sample fitted, or "" */
-    char tool_version[STAGECAL_MODEL_TEXT]; /* stagecal version that fitted */
-    unsigned long long seed;                /* RNG seed used (bootstrap), ≤ 2^63 − 1 */
-    char *command_line;                     /* command line of the fit, owned, may be NULL */
+    char tool_version[STAGECAL_MODEL_TEXT];   /* stagecal version that fitted */
+    unsigned long long seed;                  /* RNG seed used (bootstrap), ≤ 2^63 − 1 */
+    char *command_line;                       /* command line of the fit, owned, may be NULL */
 
     /* HETP, where the packed height is known (has_hetp = 1) */
     int has_hetp;
@@ -125,6 +125,29 @@ typedef struct {
 void stagecal_model_init(stagecal_model *m);
 /* Releases owned memory and re-initialises m. NULL is a no-op. */
 void stagecal_model_free(stagecal_model *m);
+
+/* The equilibrium model in a model file. stagecal_model_set_vle records vle in m:
+ * vle_kind = stagecal_vle_kind_name(kind) and, replacing any parameters m held, the
+ * complete definition (stagecal_vle_get_definition) under these names (SI, the column
+ * file's names where it has them; docs/model-file.md):
+ *   alpha: "alpha"; kvalue: "k"; table: "x", "y" (the interpolation nodes, end points
+ *   included) and "t_k" when the table has temperatures;
+ *   ideal and activity models: "pressure_pa", "antoine_light_a", "_b", "_c",
+ *   "_t_min_k", "_t_max_k" and the same for "antoine_heavy_…", plus the activity
+ *   parameters wilson "a12_j_mol", "a21_j_mol", "v1_m3_mol", "v2_m3_mol"; nrtl
+ *   "tau12_a", "tau12_b_k", "tau21_a", "tau21_b_k", "alpha12"; vanlaar and margules
+ *   "a12", "a21"; and the table tunables "grid_n", "t_epsrel", "max_iter", "exact"
+ *   only where they differ from stagecal_vle_default_params().
+ * ENOMEM (m then holds a partial list). */
+int stagecal_model_set_vle(stagecal_model *m, const stagecal_vle *vle, stagecal_error *err);
+/* Rebuilds the equilibrium model recorded in m (stagecal_model_set_vle's names) into a
+ * new *out, which the caller frees with stagecal_vle_free; it answers y*(x) exactly
+ * like the model that was recorded. Parameters not used by the kind are ignored
+ * ("pressure_pa" of an alpha model, say). EDATA when the kind is unknown, a parameter
+ * the kind needs is missing (files written before the full system was recorded carry
+ * only alpha's) or has the wrong number of values, or the values are outside the
+ * model's domain; ENOCONV / ENOMEM from building the model. *out is NULL on failure. */
+int stagecal_model_build_vle(const stagecal_model *m, stagecal_vle **out, stagecal_error *err);
 
 /* Appends to the owned lists (copies the arguments). EINVAL for an empty name or
  * n = 0, or a sha256 that is not 64 lowercase hex digits; ENOMEM. */

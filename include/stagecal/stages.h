@@ -86,7 +86,8 @@ int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double
  * stages, the partial stage's end point when stages is not whole, then the pot) and
  * *len receives the full count. *status receives ok / pinch / azeotrope / invalid
  * (invalid: R = 0; azeotrope: one at or below xD; pinch: a step made no progress); when
- * it is not ok, *xb = 0, *len = 0 and err (if given) carries the reason with code
+ * it is not ok, *len = 0, *xb is the last liquid composition reached on a pinch (the
+ * pinch composition to rounding) and 0 otherwise, and err (if given) carries the reason with code
  * STAGECAL_OK. The fractional part of stages − 1 is stepped with the closed-form
  * inverse of Smoker's equation written with α_loc of that step (REFERENCES §2), so the
  * result round-trips with stagecal_stages_invert. Profile points: stage = 1, 2, … for

@@ -162,6 +162,39 @@ int stagecal_vle_t_range(const stagecal_vle *vle, double *t_lo_k, double *t_hi_k
 /* Pressure [Pa] of an IDEAL/activity model, 0 for the others. */
 double stagecal_vle_pressure(const stagecal_vle *vle);
 
+/* ---- definition: the parameters that define a model, and back -----------------------
+ *
+ * stagecal_vle_get_definition returns everything a model was built from, so that it can
+ * be stored (the model file, src/model.c) and rebuilt with stagecal_vle_alloc_definition
+ * into a model that answers y*(x), x*(y) and d(y*)/dx bit for bit like the original
+ * (tests/test_model.c checks every kind). Only the members of the model's kind are set;
+ * the others are zero (NULL for pointers). */
+typedef struct {
+    stagecal_vle_kind kind;
+    double alpha; /* ALPHA: relative volatility, > 1 */
+    double k;     /* KVALUE: K value, > 1 */
+    /* TABLE: the n nodes the interpolant runs through, the added end points (0, 0) and
+     * (1, 1) included; t_k NULL when the table has no temperatures. From the getter they
+     * point into the model (valid while it lives, not to be freed); the constructor
+     * copies them. */
+    size_t n;
+    const double *x, *y, *t_k;
+    /* IDEAL and activity models */
+    stagecal_antoine ant[2];              /* light, heavy */
+    double params[STAGECAL_VLE_MAXPARAM]; /* as documented above the kinds */
+    size_t nparam;                        /* 0 IDEAL, 4 WILSON, 5 NRTL, 2 VANLAAR/MARGULES */
+    double p_pa;                          /* pressure [Pa], > 0 */
+    stagecal_vle_params vp;               /* tunables the table was built with */
+} stagecal_vle_definition;
+
+/* Fills def with the defining parameters of vle (see above). Never fails. */
+void stagecal_vle_get_definition(const stagecal_vle *vle, stagecal_vle_definition *def);
+/* Builds a model from a definition: dispatches to the alloc_* constructor of def->kind
+ * (for TABLE with def->n, def->x, def->y, def->t_k; for IDEAL/activity with def->vp).
+ * Returns NULL and fills err as those do (EINVAL also for an unknown kind). */
+stagecal_vle *stagecal_vle_alloc_definition(const stagecal_vle_definition *def,
+                                            stagecal_error *err);
+
 #ifdef __cplusplus
 }
 #endif

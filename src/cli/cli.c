@@ -4,6 +4,7 @@
  */
 #include "cli.h"
 
+#include <ctype.h>
 #include <errno.h>
 #include <math.h>
 #include <stdarg.h>
@@ -85,6 +86,24 @@ int cli_fail(const stagecal_error *err)
     return cli_exit_for(err->code);
 }
 
+int cli_fail_data(const stagecal_error *err)
+{
+    int rc = cli_fail(err);
+    return err->code == STAGECAL_EINVAL ? CLI_EXIT_DATA : rc;
+}
+
+/* strtod and strtol skip leading white space and strtod reads C99 hex floats and
+ * "nan"/"infinity"; none of these is a number a person types for an option. */
+static int plain_number_text(const char *text)
+{
+    const char *p = text + (text[0] == '-' || text[0] == '+');
+    if (!text[0] || isspace((unsigned char)text[0]))
+        return 0;
+    if (p[0] == '0' && (p[1] == 'x' || p[1] == 'X'))
+        return 0;
+    return 1;
+}
+
 int cli_parse_double(const char *opt, const char *text, int allow_inf, const char *expected,
                      double *out)
 {
@@ -95,8 +114,8 @@ int cli_parse_double(const char *opt, const char *text, int allow_inf, const cha
         return 0;
     }
     errno = 0;
-    double v = text[0] ? strtod(text, &end) : 0.0;
-    if (!text[0] || *end != '\0' || errno == ERANGE || !isfinite(v)) {
+    double v = plain_number_text(text) ? strtod(text, &end) : 0.0;
+    if (!plain_number_text(text) || *end != '\0' || errno == ERANGE || !isfinite(v)) {
         cli_error("option '--%s': '%s' is not a number (expected %s)", opt, text, expected);
         return -1;
     }
@@ -108,8 +127,8 @@ int cli_parse_long(const char *opt, const char *text, long lo, long hi, long *ou
 {
     char *end = NULL;
     errno = 0;
-    long v = text[0] ? strtol(text, &end, 10) : 0;
-    if (!text[0] || *end != '\0' || errno == ERANGE || v < lo || v > hi) {
+    long v = plain_number_text(text) ? strtol(text, &end, 10) : 0;
+    if (!plain_number_text(text) || *end != '\0' || errno == ERANGE || v < lo || v > hi) {
         cli_error("option '--%s': '%s' is not an integer in [%ld, %ld]", opt, text, lo, hi);
         return -1;
     }
@@ -156,6 +175,7 @@ int cli_system_open(cli_system *s)
             return cli_fail(&err);
         s->have_column = 1;
         s->vle = s->col.system.vle;
+        cli_column_warn(&s->col, s->column_path);
         return 0;
     }
     if (!isnan(s->alpha)) {
@@ -185,6 +205,34 @@ void cli_system_close(cli_system *s)
         stagecal_column_free(&s->col);
     s->vle = NULL;
     s->own_vle = s->have_column = 0;
+}
+
+void cli_column_warn(const stagecal_column *col, const char *path)
+{
+    static int warned; /* one command per process: warn once per command */
+    const stagecal_vle *vle = col->system.vle;
+    unsigned flags = vle ? stagecal_vle_antoine_flags(vle) : 0;
+    double lo, hi;
+    if (warned || flags == 0 || stagecal_vle_t_range(vle, &lo, &hi) != STAGECAL_OK)
+        return;
+    warned = 1;
+    stagecal_vle_definition def;
+    stagecal_vle_get_definition(vle, &def);
+    const char *names[2] = {col->system.light, col->system.heavy};
+    const unsigned bits[2] = {STAGECAL_VLE_ANTOINE_LIGHT, STAGECAL_VLE_ANTOINE_HEAVY};
+    char sets[2 * (STAGECAL_NAME_MAX + 48)] = "";
+    size_t len = 0;
+    for (int i = 0; i < 2; i++) {
+        if (!(flags & bits[i]) || len >= sizeof sets)
+            continue;
+        int k = snprintf(sets + len, sizeof sets - len, "%s%s [%.2f, %.2f] K",
+                         len ? " and of " : "", names[i], def.ant[i].t_min_k, def.ant[i].t_max_k);
+        if (k > 0)
+            len += (size_t)k;
+    }
+    cli_warn("%s: the bubble curve at %.6g kPa spans [%.2f, %.2f] K, outside the stated range "
+             "of the Antoine set of %s; results are computed with it anyway",
+             path, stagecal_vle_pressure(vle) / 1000.0, lo, hi, sets);
 }
 
 json_t *cli_system_json(const cli_system *s)

@@ -13,6 +13,7 @@
 #include <stdio.h>
 #include <sysexits.h>
 
+#include "stagecal/column.h"
 #include "stagecal/error.h"
 
 /* Exit codes (DESIGN §5). */
@@ -39,6 +40,10 @@ int cli_usage_error(const char *fmt, ...) __attribute__((format(printf, 1, 2)));
 int cli_exit_for(int status);
 /* Prints err's text as an error and returns cli_exit_for(err->code). */
 int cli_fail(const stagecal_error *err);
+/* As cli_fail for a library call whose arguments all come from input files, the options
+ * having been checked before: an EINVAL there is about the files' content, so it is bad
+ * data (65), not a usage error. */
+int cli_fail_data(const stagecal_error *err);
 
 /* Strict number parsing for option `opt`: the whole text must be a finite number
  * (or "inf" when allow_inf). On failure prints "option '--opt': 'text' is not a
@@ -59,11 +64,8 @@ extern const char cli_caution[];
 /* Is stderr a terminal that may show progress (and NO_COLOR unset)? */
 int cli_progress_enabled(void);
 
-#endif
-
 /* The equilibrium model chosen on the command line: exactly one of --alpha A,
  * --kvalue K or --column FILE. */
-#include "stagecal/column.h"
 typedef struct {
     double alpha;            /* --alpha, NAN when not given */
     double kvalue;           /* --kvalue, NAN when not given */
@@ -77,9 +79,13 @@ typedef struct {
 /* Empties s (no model chosen). */
 void cli_system_init(cli_system *s);
 /* Builds s->vle from the options; prints the problem and returns an exit code
- * (0 on success). */
+ * (0 on success). With --column it warns as cli_column_warn does. */
 int cli_system_open(cli_system *s);
 void cli_system_close(cli_system *s);
+/* Warnings about a loaded column file (path names it), at most once per command: an
+ * Antoine set used outside its stated temperature range on the bubble curve
+ * (stagecal_vle_antoine_flags), with the curve's temperatures (stagecal_vle_t_range). */
+void cli_column_warn(const stagecal_column *col, const char *path);
 /* A JSON object describing the model in use ({"kind": …, "alpha": …} or the column). */
 json_t *cli_system_json(const cli_system *s);
 /* JSON for a reflux ratio: the string "inf" at total reflux, else a real. */
@@ -87,6 +93,9 @@ json_t *cli_json_reflux(double r);
 
 /* "option '--name' is required" when v is NaN (not given); returns the exit code. */
 int cli_require(const char *opt, double v);
-/* Message for what getopt_long rejected: c is its return value (':' missing value when
- * the option string starts with "+:", '?' unknown option). Returns CLI_EXIT_USAGE. */
+/* Message for what getopt_long rejected: c is its return value (':' missing value, as
+ * the commands' option string starts with ':'; '?' unknown option). Returns
+ * CLI_EXIT_USAGE. */
 int cli_usage_getopt(int c, char **argv, const char *command);
+
+#endif

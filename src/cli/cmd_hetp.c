@@ -103,10 +103,16 @@ static int open_side(struct side *sd, double reflux, double fload, double height
     stagecal_error err;
     stagecal_error_clear(&err);
     int rc = stagecal_model_load(sd->path, &sd->m, &err);
-    if (rc == STAGECAL_OK)
-        rc = stagecal_hetp_stages_from_model(&sd->m, reflux, fload, &sd->s, &sd->pt, &err);
     if (rc)
         return cli_fail(&err);
+    if (sd->m.form.uses_load && isnan(fload))
+        return cli_usage_error("%s: form '%s' uses the vapour load: option '--fload F' is "
+                               "required (F-factor in Pa^0.5)",
+                               sd->path, sd->m.form.name);
+    /* The options were checked in cmd_hetp: what is still rejected as an invalid argument
+     * comes from the model file (bad data, 65). */
+    if ((rc = stagecal_hetp_stages_from_model(&sd->m, reflux, fload, &sd->s, &sd->pt, &err)))
+        return cli_fail_data(&err);
     if (sd->pt.extrapolated)
         cli_warn("%s: R = %g%s lies outside the fitted envelope (extrapolation)", sd->path, reflux,
                  isnan(fload) ? "" : " / F");
@@ -123,7 +129,7 @@ static int open_side(struct side *sd, double reflux, double fload, double height
         }
         rc = stagecal_hetp_compute(sd->height_m, &sd->s, level, &sd->h, &err);
     }
-    return rc ? cli_fail(&err) : 0;
+    return rc ? cli_fail_data(&err) : 0;
 }
 
 static int positive(const char *opt, double v, const char *what)
@@ -284,8 +290,8 @@ int cmd_hetp(int argc, char **argv)
         else
             rc = stagecal_hetp_welch(sd[0].h.hetp_m, sd[0].h.se_m, sd[0].s.dof, sd[1].h.hetp_m,
                                      sd[1].h.se_m, sd[1].s.dof, level, &diff, &err);
-        if (rc) {
-            rc = cli_fail(&err);
+        if (rc) { /* e.g. both standard errors 0: the model files' content */
+            rc = cli_fail_data(&err);
             goto done;
         }
     }
@@ -298,7 +304,8 @@ int cmd_hetp(int argc, char **argv)
         goto done;
     }
     if (packing && (rc = stagecal_hetp_rule_of_thumb(kind, rule_size, &rule, &err))) {
-        rc = cli_fail(&err);
+        rc = cli_usage_error("option '--%s': %s",
+                             kind == STAGECAL_PACKING_STRUCTURED ? "area" : "size", err.text);
         goto done;
     }
 

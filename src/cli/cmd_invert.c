@@ -16,8 +16,8 @@
 static const char usage_text[] =
     "usage: stagecal invert (--alpha A | --kvalue K | --column FILE) --xd XD --xb XB\n"
     "                       --reflux R|inf [--murphree E] [--json] [--quiet]\n"
-    "   or: stagecal invert --column FILE [--out FILE.csv] [--json] RUNLOG.csv...\n"
-    "       (every row of run logs; 'stagecal invert --column F --help x.csv' for its options)\n"
+    "   or: stagecal invert --column FILE [--murphree E] [--out FILE.csv] [--min-rows N]\n"
+    "                       [--json] [--quiet] RUNLOG.csv...\n"
     "\n"
     "Counts the equilibrium stages (the pot included, fractional) a batch rectifier needs\n"
     "to hold the distillate at XD over a pot at XB at reflux ratio R. A pinch or an\n"
@@ -32,7 +32,18 @@ static const char usage_text[] =
     "  --murphree E    Murphree vapour efficiency of the column stages, in (0, 1] (default 1)\n"
     "  --json          one JSON document on stdout\n"
     "  --quiet         no warnings on stderr\n"
-    "  -h, --help      this text\n";
+    "  -h, --help      this text\n"
+    "\n"
+    "With run logs (docs/runlog.md) every row is inverted: stages, column stages, their\n"
+    "standard uncertainty from the column file's uncertainties, status, L/V, F-factor\n"
+    "and the quasi-steady window flags, one CSV row per log row.\n"
+    "  --out FILE.csv  the per-row CSV ('-' = stdout, the default without --json)\n"
+    "  --min-rows N    fewest rows a run may have (default 5)\n"
+    "  --json          a summary instead: status counts, each run's mass-balance closure\n"
+    "                  and the quasi-steady windows (the units of evidence)\n"
+    "\n"
+    "Exit status: 0 success (a pinch or an azeotrope is a status, not an error), 2 usage\n"
+    "error, 65 bad data, 66 missing file, 70 internal, 73 output cannot be written.\n";
 
 int cmd_invert(int argc, char **argv)
 {

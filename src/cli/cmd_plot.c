@@ -95,23 +95,17 @@ int cmd_plot(int argc, char **argv)
     long width = 800, height = 560;
     int json = 0, resid = 0, c, rc;
 
-    if (argc >= 2 && (strcmp(argv[1], "-h") == 0 || strcmp(argv[1], "--help") == 0)) {
-        fputs(usage_text, stdout);
-        return CLI_EXIT_OK;
-    }
-    if (argc < 2 || argv[1][0] == '-')
-        return cli_usage_error("a chart kind is required: 'mccabe' or 'model' (see 'stagecal "
-                               "plot --help')");
-    const char *kind = argv[1];
-    int is_mccabe = strcmp(kind, "mccabe") == 0, is_model = strcmp(kind, "model") == 0;
-    if (!is_mccabe && !is_model)
-        return cli_usage_error("unknown chart kind '%s' (expected 'mccabe' or 'model')", kind);
-
     cli_system_init(&sys);
-    argc--, argv++; /* parse the options after the kind */
     optind = 0;
     opterr = 0;
-    while ((c = getopt_long(argc, argv, ":ho:", opts, NULL)) != -1) {
+    const char *mccabe_opt = NULL, *model_opt = NULL; /* options of one chart kind only */
+    int li = -1;
+    while ((c = getopt_long(argc, argv, ":ho:", opts, &li)) != -1) {
+        if (c >= O_ALPHA && c <= O_MURPHREE && li >= 0)
+            mccabe_opt = opts[li].name;
+        if ((c == O_POINTS || c == O_RESID) && li >= 0)
+            model_opt = opts[li].name;
+        li = -1;
         switch (c) {
         case 'h':
             fputs(usage_text, stdout);
@@ -174,6 +168,20 @@ int cmd_plot(int argc, char **argv)
             return cli_usage_getopt(c, argv, "plot");
         }
     }
+    /* The chart kind is the first argument; options may come before or after it. */
+    if (optind >= argc)
+        return cli_usage_error("a chart kind is required: 'mccabe' or 'model' (see 'stagecal "
+                               "plot --help')");
+    const char *kind = argv[optind++];
+    int is_mccabe = strcmp(kind, "mccabe") == 0, is_model = strcmp(kind, "model") == 0;
+    if (!is_mccabe && !is_model)
+        return cli_usage_error("unknown chart kind '%s' (expected 'mccabe' or 'model')", kind);
+    if (is_model && mccabe_opt)
+        return cli_usage_error("option '--%s' belongs to 'plot mccabe' (plot model takes its "
+                               "equilibrium and conditions from the model file)",
+                               mccabe_opt);
+    if (is_mccabe && model_opt)
+        return cli_usage_error("option '--%s' belongs to 'plot model'", model_opt);
     if (!output)
         return cli_usage_error("option '--output' is required (see 'stagecal plot --help')");
     stagecal_plot_format fmt;
@@ -233,8 +241,10 @@ int cmd_plot(int argc, char **argv)
         rc = stagecal_model_load(argv[optind], &m, &err);
         if (rc == STAGECAL_OK && points_path)
             rc = stagecal_regress_data_read(points_path, &pts, &err);
-        if (rc == STAGECAL_OK)
-            rc = stagecal_report_from_model(&m, points_path ? &pts : NULL, &doc, &err);
+        if (rc == STAGECAL_OK &&
+            (rc = stagecal_report_from_model(&m, points_path ? &pts : NULL, &doc, &err)) &&
+            err.code == STAGECAL_EINVAL)
+            err.code = STAGECAL_EDATA; /* built from the files alone: their content */
     }
     const stagecal_plot_chart *draw = is_mccabe ? chart : stagecal_report_doc_chart(doc, resid);
     if (rc == STAGECAL_OK) {

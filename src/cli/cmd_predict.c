@@ -29,8 +29,8 @@ static const char usage_text[] =
     "neglected). Receivers (cuts) are filled in order, each until its target.\n"
     "\n"
     "  --model FILE        model file written by 'stagecal calibrate'\n"
-    "  --column FILE       equilibrium model of a column file (default: the model's own\n"
-    "                      when it is 'alpha' or 'kvalue'); also gives the latent heat\n"
+    "  --column FILE       equilibrium model of a column file (default: the one the\n"
+    "                      model file records); also gives the latent heat\n"
     "  --alpha A, --kvalue K  equilibrium model given directly\n"
     "  --charge KMOL       charge [kmol], > 0\n"
     "  --xb0 X             charge mole fraction of the light component, in (0, 1)\n"
@@ -76,7 +76,7 @@ static int parse_cut(const char *text, stagecal_batch_cut_spec *spec)
         if (strlen(buf) == 0 || strlen(buf) >= sizeof spec->name)
             return cli_usage_error("option '--cut': name '%s' must have 1 to %zu characters", buf,
                                    sizeof spec->name - 1);
-        snprintf(spec->name, sizeof spec->name, "%s", buf);
+        memcpy(spec->name, buf, strlen(buf) + 1); /* length checked above */
         kind = colon + 1;
     }
     eq = strchr(kind, '=');
@@ -94,31 +94,23 @@ static int parse_cut(const char *text, stagecal_batch_cut_spec *spec)
     return 0;
 }
 
-/* The equilibrium model: options first, else the model file's own (alpha, kvalue). */
-static int open_vle(cli_system *sys, const stagecal_model *m, stagecal_vle **own)
+/* The equilibrium model: options first, else the one recorded in the model file. */
+static int open_vle(cli_system *sys, const stagecal_model *m, const char *model_path,
+                    stagecal_vle **own)
 {
     stagecal_error err;
     *own = NULL;
     if (sys->column_path || !isnan(sys->alpha) || !isnan(sys->kvalue))
         return cli_system_open(sys);
-    for (size_t i = 0; i < m->n_vle_params; i++) {
-        const stagecal_model_vle_param *p = &m->vle_params[i];
-        if (p->n != 1)
-            continue;
-        if (strcmp(m->vle_kind, "alpha") == 0 && strcmp(p->name, "alpha") == 0)
-            *own = stagecal_vle_alloc_alpha(p->values[0], &err);
-        else if (strcmp(m->vle_kind, "kvalue") == 0 && strcmp(p->name, "k") == 0)
-            *own = stagecal_vle_alloc_kvalue(p->values[0], &err);
-        else
-            continue;
-        if (!*own)
-            return cli_fail(&err);
-        sys->vle = *own;
-        return 0;
+    if (stagecal_model_build_vle(m, own, &err) != STAGECAL_OK) {
+        if (err.code == STAGECAL_EDATA) {
+            cli_error("%s: %s", model_path, err.text);
+            return CLI_EXIT_DATA;
+        }
+        return cli_fail(&err);
     }
-    return cli_usage_error("the model's equilibrium model '%s' cannot be rebuilt from the model "
-                           "file alone; give '--column FILE' (or '--alpha'/'--kvalue')",
-                           m->vle_kind);
+    sys->vle = *own;
+    return 0;
 }
 
 static int write_csv(const char *path, const stagecal_batch_result *res)
@@ -503,7 +495,7 @@ int cmd_predict(int argc, char **argv)
                                m.form.name);
     }
     stagecal_vle *own = NULL;
-    if ((rc = open_vle(&sys, &m, &own))) {
+    if ((rc = open_vle(&sys, &m, model_path, &own))) {
         stagecal_model_free(&m);
         return rc;
     }

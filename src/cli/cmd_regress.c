@@ -411,15 +411,18 @@ int cmd_regress(int argc, char **argv)
     if (is_auto) {
         if (stagecal_regress_rank(&data, NULL, 0, &prm, rows, &nrows, &err) != STAGECAL_OK) {
             stagecal_regress_data_free(&data);
-            return cli_fail(&err);
+            return cli_fail_data(&err);
         }
         form = rows[0].form;
     }
     stagecal_regress_result res;
     rc = stagecal_regress_fit(&data, &form, &prm, &res, &err);
     stagecal_regress_data_free(&data);
+    /* The options were checked above, so what the fit still rejects as an invalid argument
+     * is the points file's content: a form that needs F on points without it, a form
+     * undefined at a point's R (bad data, 65). */
     if (rc != STAGECAL_OK)
-        return cli_fail(&err);
+        return cli_fail_data(&err);
     if (res.r_max > 0 && !cli_quiet && res.boot_b > 0 && res.boot_ok < res.boot_b)
         cli_warn("bootstrap: %zu of %zu resamples could not be fitted and were left out",
                  res.boot_b - res.boot_ok, res.boot_b);

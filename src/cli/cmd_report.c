@@ -29,13 +29,22 @@ static const char usage_text[] =
     "\n"
     "  --points FILE   the points (R,stages[,F,sigma]) to show with the fit; adds a\n"
     "                  residual chart and flags points outside the envelope\n"
-    "  -o, --output F  the HTML file (default: MODEL with .json replaced by .html)\n"
+    "  -o, --output F  the HTML file (default: MODEL with .json replaced by .html);\n"
+    "                  '-' writes the HTML to standard output (not with --json)\n"
     "  --json          one JSON document on stdout\n"
     "  --quiet         no warnings on stderr\n"
     "  -h, --help      this text\n"
     "\n"
     "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal,\n"
     "73 output cannot be written.\n";
+
+/* Sets err to code with text (the CLI's own failures in the library's error record). */
+static int error_text(stagecal_error *err, int code, const char *text)
+{
+    err->code = code;
+    snprintf(err->text, sizeof err->text, "%s", text);
+    return code;
+}
 
 /* MODEL.json → MODEL.html (or MODEL + ".html"); malloc'd. */
 static char *default_output(const char *model)
@@ -92,6 +101,9 @@ int cmd_report(int argc, char **argv)
         return cli_usage_error("unexpected argument '%s' (report takes one model file)",
                                argv[optind + 1]);
     const char *model_path = argv[optind];
+    int to_stdout = output && strcmp(output, "-") == 0;
+    if (to_stdout && json)
+        return cli_usage_error("options '--json' and '--output -' both write to standard output");
     char *out_owned = output ? NULL : default_output(model_path);
     if (!output && !out_owned) {
         cli_error("out of memory");
@@ -113,12 +125,26 @@ int cmd_report(int argc, char **argv)
         rc = stagecal_regress_data_read(points_path, &pts, &err);
         have_pts = rc == STAGECAL_OK;
     }
-    if (rc == STAGECAL_OK)
+    /* The report is built from the files alone: an invalid argument there is their content
+     * (bad data, 65); writing it is about --output. */
+    int from_files = 0;
+    if (rc == STAGECAL_OK) {
         rc = stagecal_report_from_model(&m, have_pts ? &pts : NULL, &doc, &err);
-    if (rc == STAGECAL_OK)
+        from_files = 1;
+    }
+    if (rc == STAGECAL_OK && to_stdout) {
+        char *html = NULL;
+        size_t len = 0;
+        rc = stagecal_report_html(stagecal_report_doc_content(doc), NULL, &html, &len, &err);
+        if (rc == STAGECAL_OK && fwrite(html, 1, len, stdout) != len)
+            rc = error_text(&err, STAGECAL_EWRITE, "cannot write to standard output");
+        free(html);
+    } else if (rc == STAGECAL_OK) {
         rc = stagecal_report_write(stagecal_report_doc_content(doc), NULL, output, &err);
+        from_files = 0;
+    }
     if (rc != STAGECAL_OK) {
-        int code = cli_fail(&err);
+        int code = from_files ? cli_fail_data(&err) : cli_fail(&err);
         stagecal_report_doc_free(doc);
         stagecal_regress_data_free(&pts);
         stagecal_model_free(&m);
@@ -138,7 +164,8 @@ int cmd_report(int argc, char **argv)
             (json_int_t)rep->n_figures, "warnings", w, "caution", stagecal_caution_text());
         rc = doc_json ? cli_json_print(doc_json) : CLI_EXIT_SOFTWARE;
     } else {
-        printf("report written to %s\n", output);
+        if (!to_stdout)
+            printf("report written to %s\n", output);
         rc = CLI_EXIT_OK;
     }
     stagecal_report_doc_free(doc);

@@ -30,7 +30,10 @@ static const char usage_text[] =
     "  --murphree E    Murphree vapour efficiency of the column stages, in (0, 1] (default 1)\n"
     "  --json          one JSON document on stdout\n"
     "  --quiet         no warnings on stderr\n"
-    "  -h, --help      this text\n";
+    "  -h, --help      this text\n"
+    "\n"
+    "Exit status: 0 success (stages that cannot be stepped are a status, not an error),\n"
+    "2 usage error, 65 bad data (column file), 66 missing file, 70 internal.\n";
 
 int cmd_steps(int argc, char **argv)
 {

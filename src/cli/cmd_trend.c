@@ -29,11 +29,11 @@ static const char usage_text[] =
     "\n"
     "Reads every model file under DIR/COLUMN/ and evaluates the stages (the pot included)\n"
     "at reflux ratio R (and F-factor F), each with its confidence interval, and HETP\n"
-    "where the model knows the packed height. Dated by the last sample each fit used\n"
-    "(the time of fit for logs with relative times). Fits a\n"
-    "weighted straight line (stages per month, t interval), runs an EWMA chart of the\n"
-    "deviations from a baseline, and, with --require, forecasts the date the stages\n"
-    "fall below N with a band (Fieller inversion of the line's confidence band).\n"
+    "where the model knows the packed height. Each fit is dated by the last logged\n"
+    "sample it used (its time of fit for logs with relative times). Fits a weighted\n"
+    "straight line (stages per month, t interval), runs an EWMA chart of the deviations\n"
+    "from a baseline, and, with --require, forecasts the date the stages fall below N\n"
+    "with a band (Fieller inversion of the line's confidence band).\n"
     "Repack and maintenance events (docs/events-file.md) start new segments; the chart\n"
     "restarts in each and the current segment drives the forecast. With several\n"
     "columns the output is one row per column.\n"
@@ -168,18 +168,27 @@ static int load_column(struct column *col, const char *fits, double reflux, doub
         stagecal_hetp_stages s;
         snprintf(x->path, sizeof x->path, "%s", names[i]);
         int st = stagecal_model_load(names[i], &m, &err);
-        if (st == STAGECAL_OK && strcmp(m.column_id, col->id) != 0) {
+        if (st != STAGECAL_OK) {
+            rc = cli_fail(&err);
+            break;
+        }
+        if (m.form.uses_load && isnan(fload)) {
+            rc = cli_usage_error("%s: form '%s' uses the vapour load: option '--fload F' is "
+                                 "required (F-factor in Pa^0.5)",
+                                 names[i], m.form.name);
+            break;
+        }
+        if (strcmp(m.column_id, col->id) != 0) {
             cli_error("%s: column id '%s' does not match its folder '%s'", names[i], m.column_id,
                       col->id);
             rc = CLI_EXIT_DATA;
             break;
         }
-        if (st == STAGECAL_OK)
-            st = stagecal_trend_point_from_model(&m, reflux, fload, 0, &col->pts[i], &err);
+        st = stagecal_trend_point_from_model(&m, reflux, fload, 0, &col->pts[i], &err);
         if (st == STAGECAL_OK)
             st = stagecal_model_eval(&m, reflux, fload, level, &x->pt, &err);
-        if (st != STAGECAL_OK) {
-            rc = cli_fail(&err);
+        if (st != STAGECAL_OK) { /* options checked already: the model file's content */
+            rc = cli_fail_data(&err);
             break;
         }
         if (x->pt.extrapolated)
@@ -253,6 +262,8 @@ static json_t *column_json(const struct column *col, const stagecal_trend_event 
             cli_json_real(x->pt.ci_high), "extrapolated", x->pt.extrapolated, "segment",
             (json_int_t)h->segment_of[i], "z", cli_json_real(c->z), "ewma", cli_json_real(c->ewma),
             "limit", cli_json_real(c->limit), "alarm", c->alarm);
+        /* the date the point is plotted at: the data period's end, not the time of fit */
+        json_object_set_new(f, "date", date_json(h->points[i].t_s));
         json_object_set_new(
             f, "hetp",
             x->has_hetp
@@ -522,7 +533,7 @@ int cmd_trend(int argc, char **argv)
         rc = load_column(&cols[i], fits, reflux, fload, par.level);
         if (rc == 0 && stagecal_trend_analyse(cols[i].pts, cols[i].n, ev, nev, cols[i].id, &par,
                                               &cols[i].h, &err) != STAGECAL_OK)
-            rc = cli_fail(&err);
+            rc = cli_fail_data(&err);
     }
     if (rc)
         goto done;
@@ -555,8 +566,10 @@ int cmd_trend(int argc, char **argv)
                       cli_json_real(cols[0].h.arl0), "baseline_n", (json_int_t)par.baseline_n,
                       "baseline", cli_json_real(par.baseline), "design",
                       "Lucas & Saccucci 1990; ARL by the Brook & Evans 1972 Markov chain"));
-        json_object_set_new(doc, "time_of_fit",
-                            json_string("each point is dated by its model file's data_last_utc (fitted_utc when absent)"));
+        json_object_set_new(
+            doc, "time_of_fit",
+            json_string(
+                "each point is dated by its model file's data_last_utc (fitted_utc when absent)"));
         json_t *arr = json_array();
         for (size_t i = 0; i < ncol; i++)
             json_array_append_new(arr, column_json(&cols[i], ev));

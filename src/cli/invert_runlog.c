@@ -5,6 +5,7 @@
  * and writes one CSV row per log row (--out, or stdout without --json); --json
  * prints a summary (status counts, closures, quasi-steady windows).
  */
+#include <errno.h>
 #include <getopt.h>
 #include <math.h>
 #include <stdio.h>
@@ -187,6 +188,10 @@ int invert_runlog(int argc, char **argv)
         return cli_usage_error("option '--murphree': %g is outside (0, 1] (expected a Murphree "
                                "vapour efficiency)",
                                murphree);
+    /* --json owns stdout: the CSV must go to a file then (one document on stdout). */
+    if (json && out_path && strcmp(out_path, "-") == 0)
+        return cli_usage_error("options '--json' and '--out -' both write to standard output "
+                               "(give '--out FILE.csv' with '--json')");
 
     stagecal_column col;
     stagecal_error err;
@@ -194,6 +199,7 @@ int invert_runlog(int argc, char **argv)
     stagecal_error_clear(&err);
     if (stagecal_column_load(column_path, &col, &err) != STAGECAL_OK)
         return cli_fail(&err);
+    cli_column_warn(&col, column_path);
     stagecal_runlog *log = stagecal_runlog_alloc();
     stagecal_findings *f = stagecal_findings_alloc(rp.max_findings);
     stagecal_runlog_result res;
@@ -226,7 +232,7 @@ int invert_runlog(int argc, char **argv)
         int to_stdout = !out_path || strcmp(out_path, "-") == 0;
         FILE *out = to_stdout ? stdout : fopen(out_path, "w");
         if (!out) {
-            cli_error("cannot create '%s'", out_path);
+            cli_error("cannot create '%s': %s", out_path, strerror(errno));
             rc = CLI_EXIT_CANTCREAT;
             goto done;
         }

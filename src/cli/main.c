@@ -65,6 +65,7 @@ int main(int argc, char **argv)
     setlocale(LC_ALL, "C");
     gsl_set_error_handler_off(); /* GSL's default handler aborts; we check statuses */
 
+    opterr = 0; /* one message of our own, not getopt's */
     while ((c = getopt_long(argc, argv, "+hV", opts, NULL)) != -1) {
         switch (c) {
         case 'h':
@@ -78,7 +79,11 @@ int main(int argc, char **argv)
             return finish(CLI_EXIT_OK);
         }
         default:
-            fprintf(stderr, "stagecal: try 'stagecal --help'\n");
+            if (optopt && argv[optind - 1][1] != '-')
+                fprintf(stderr, "stagecal: unknown option '-%c' (see 'stagecal --help')\n", optopt);
+            else
+                fprintf(stderr, "stagecal: unknown option '%s' (see 'stagecal --help')\n",
+                        argv[optind - 1]);
             return CLI_EXIT_USAGE;
         }
     }
@@ -93,6 +98,10 @@ int main(int argc, char **argv)
             return finish(commands[i].run(argc - optind, argv + optind));
         }
     }
-    fprintf(stderr, "stagecal: '%s' is not a command (see 'stagecal --help')\n", name);
+    /* One line (errors are one line), listing the table (Git's habit). */
+    fprintf(stderr, "stagecal: '%s' is not a command (expected one of:", name);
+    for (size_t i = 0; i < sizeof commands / sizeof commands[0]; i++)
+        fprintf(stderr, " %s", commands[i].name);
+    fprintf(stderr, "; see 'stagecal --help')\n");
     return CLI_EXIT_USAGE;
 }

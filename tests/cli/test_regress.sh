@@ -110,7 +110,6 @@ check_exit bad_robust 2 "expected huber or bisquare" "$bin" regress "$misra" --f
 check_exit bad_start 2 "expected 2" "$bin" regress "$misra" --form saturating --start 1,2,3
 check_exit bad_option 2 "unknown option" "$bin" regress "$misra" --form saturating --frobnicate
 check_exit two_files 2 "unexpected argument" "$bin" regress "$misra" "$misra" --form constant
-check_exit needs_f 2 "needs the vapour load" "$bin" regress "$misra" --form saturating-load
 
 # Missing input (66), bad data (65).
 check_exit missing 66 "cannot open" "$bin" regress "$tmp/none.csv" --form constant
@@ -118,6 +117,8 @@ printf 'R,stages\n1,2\n2,abc\n' >"$tmp/bad.csv"
 check_exit bad_cell 65 "bad.csv:3: column 'stages': 'abc' is not a number" "$bin" regress "$tmp/bad.csv" --form constant
 printf 'R,stages\n1,2\n' >"$tmp/short.csv"
 check_exit too_few 65 "1 points for 1 parameters" "$bin" regress "$tmp/short.csv" --form constant
+# A form that needs F on points without it is about the file: bad data (65), not usage.
+check_exit needs_f 65 "needs the vapour load" "$bin" regress "$misra" --form saturating-load
 
 rm -rf "$tmp"
 if [ "$fails" -ne 0 ]; then echo "$fails failure(s)"; exit 1; fi
