@@ -126,7 +126,8 @@ static int smooth_quadratic(const double *t, const double *y, size_t n, double *
         if (gsl_multifit_linear(x, &yv.vector, c, cov, &chisq, w) == GSL_SUCCESS) {
             for (size_t i = 0; i < n; i++) {
                 double u = (t[i] - tb) / ts;
-                out[i] = gsl_vector_get(c, 0) + u * (gsl_vector_get(c, 1) + u * gsl_vector_get(c, 2));
+                out[i] =
+                    gsl_vector_get(c, 0) + u * (gsl_vector_get(c, 1) + u * gsl_vector_get(c, 2));
             }
             rc = 0;
         }
@@ -160,7 +161,8 @@ int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_
         /* follow the drift: invert the smoothed trends at every sample time */
         double sd[64], sb[64], sum = 0;
         size_t m = ev->m < 64 ? ev->m : 64;
-        if (smooth_quadratic(ev->s_t, ev->s_xd, m, sd) || smooth_quadratic(ev->s_t, ev->s_xb, m, sb))
+        if (smooth_quadratic(ev->s_t, ev->s_xd, m, sd) ||
+            smooth_quadratic(ev->s_t, ev->s_xb, m, sb))
             return error_set(err, STAGECAL_EINTERNAL, "window trend fit failed");
         sp.want_sensitivities = 0;
         for (size_t j = 0; j < m; j++) {

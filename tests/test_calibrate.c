@@ -282,12 +282,12 @@ static void calibrate_follows_drifting_pot(void **state)
         stagecal_evidence *e = &ev[w];
         memset(e, 0, sizeof *e);
         e->r = rs[w];
-        assert_int_equal(stagecal_evidence_mean(t[w], xd[w], NS, 0.002, &e->xd, &e->u_xd, NULL,
-                                                NULL),
-                         STAGECAL_OK);
-        assert_int_equal(stagecal_evidence_mean(t[w], xb[w], NS, 0.003, &e->xb, &e->u_xb, NULL,
-                                                NULL),
-                         STAGECAL_OK);
+        assert_int_equal(
+            stagecal_evidence_mean(t[w], xd[w], NS, 0.002, &e->xd, &e->u_xd, NULL, NULL),
+            STAGECAL_OK);
+        assert_int_equal(
+            stagecal_evidence_mean(t[w], xb[w], NS, 0.003, &e->xb, &e->u_xb, NULL, NULL),
+            STAGECAL_OK);
         /* the means alone */
         assert_int_equal(stagecal_evidence_stages(vle, 1.0, e, NULL), STAGECAL_OK);
         assert_true(e->stages_ok);

@@ -588,9 +588,9 @@ static void stages_step_into_pinch_reports_pinch_composition(void **state)
     double xb = -1;
     size_t len = 99;
     int status = -1;
-    assert_int_equal(stagecal_stages_step(v, 0.95, 4.0, 3000, 1.0, NULL, &xb, NULL, 0, &len,
-                                          &status, NULL),
-                     STAGECAL_OK);
+    assert_int_equal(
+        stagecal_stages_step(v, 0.95, 4.0, 3000, 1.0, NULL, &xb, NULL, 0, &len, &status, NULL),
+        STAGECAL_OK);
     assert_int_equal(status, STAGECAL_STAGES_PINCH);
     assert_abs(xb, 0.1545256663, 1e-9, "pinch composition after 3000 stages (REFERENCES 2 k)");
     stagecal_vle_free(v);

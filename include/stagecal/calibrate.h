@@ -11,12 +11,10 @@
  *                       1/se², covariance scaled by the residual variance;
  *   composition space:  the form's parameters chosen so that forward stepping with
  *                       stages(R, F; θ) from each logged xD of a window predicts the
- *                       xB logged with it, the log-odds residuals averaged per window and weighted by the effective
- *                       variance of the log-odds (measurement uncertainties of xB and,
- *                       through the step's sensitivity, of xD) — usable right up to a
- *                       pinch, where stage counts are huge or undefined but the
- *                       compositions are perfectly good data.
- * Methods and sources: docs/methods.md.
+ *                       xB logged with it, the log-odds residuals averaged per window and weighted
+ * by the effective variance of the log-odds (measurement uncertainties of xB and, through the
+ * step's sensitivity, of xD) — usable right up to a pinch, where stage counts are huge or undefined
+ * but the compositions are perfectly good data. Methods and sources: docs/methods.md.
  */
 #ifndef STAGECAL_CALIBRATE_H
 #define STAGECAL_CALIBRATE_H
@@ -71,8 +69,8 @@ typedef struct {
 } stagecal_evidence;
 
 /* Stage count of a window. With samples (ev->m ≥ 3, at most 64 used): quadratics in
- * time are fitted to the window's xD and xB, the fitted compositions are inverted at every sample time
- * and the counts averaged — this follows a drifting pot (a batch is never quite steady)
+ * time are fitted to the window's xD and xB, the fitted compositions are inverted at every sample
+ * time and the counts averaged — this follows a drifting pot (a batch is never quite steady)
  * without the curvature bias of inverting plain means, and without the bias that the
  * count's curvature in xB gives noisy single samples near a pinch or at a lean pot.
  * Without samples: the inversion of the means. The standard error propagates u_xd,

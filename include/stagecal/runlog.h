@@ -98,7 +98,7 @@ typedef struct {
     size_t nruns;
     char (*files)[160]; /* nfiles source names */
     size_t nfiles;
-    size_t nfiles_iso;  /* files whose time column holds ISO 8601 timestamps (absolute) */
+    size_t nfiles_iso; /* files whose time column holds ISO 8601 timestamps (absolute) */
 } stagecal_runlog;
 
 typedef struct {
