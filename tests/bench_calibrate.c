@@ -45,6 +45,18 @@ static double xd_for(const stagecal_vle *vle, double xb, double r, double n)
     return 0.5 * (lo + hi);
 }
 
+/* Prints the time at which each stage of the chain starts. */
+static void phase(void *ctx, const char *stage, double done)
+{
+    static char last[32] = "";
+    double *t0 = ctx;
+    if (strcmp(stage, last) != 0) {
+        fprintf(stderr, "  %-10s starts at %.3f s\n", stage, now() - *t0);
+        snprintf(last, sizeof last, "%s", stage);
+    }
+    (void)done;
+}
+
 int main(int argc, char **argv)
 {
     long rows = argc > 1 ? strtol(argv[1], NULL, 10) : 500000;
@@ -99,6 +111,8 @@ int main(int argc, char **argv)
     const char *logs[1] = {logpath};
     double c0 = now();
     clock_t cpu0 = clock();
+    par.progress = phase;
+    par.progress_ctx = &c0;
     int rc = stagecal_calibrate(colpath, logs, 1, &par, &cal, &err);
     double c1 = now();
     clock_t cpu1 = clock();

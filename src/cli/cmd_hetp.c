@@ -113,9 +113,12 @@ static int open_side(struct side *sd, double reflux, double fload, double height
      * comes from the model file (bad data, 65). */
     if ((rc = stagecal_hetp_stages_from_model(&sd->m, reflux, fload, &sd->s, &sd->pt, &err)))
         return cli_fail_data(&err);
+    char at[64] = "";
+    if (sd->m.form.uses_load)
+        snprintf(at, sizeof at, " and F = %g Pa^0.5", fload);
     if (sd->pt.extrapolated)
         cli_warn("%s: R = %g%s lies outside the fitted envelope (extrapolation)", sd->path, reflux,
-                 isnan(fload) ? "" : " / F");
+                 at);
     if (trays > 0) {
         sd->height_m = NAN;
         rc = stagecal_hetp_tray_efficiency(&sd->s, trays, level, &sd->tray, &err);
@@ -366,11 +369,14 @@ int cmd_hetp(int argc, char **argv)
     int pct = (int)lround(level * 100);
     for (int i = 0; i < nfiles; i++) {
         const struct side *s = &sd[i];
+        char at[64] = "";
+        if (s->m.form.uses_load)
+            snprintf(at, sizeof at, " and F = %g Pa^0.5", fload);
         printf("%s (column %s, fitted %s)\n", s->path, s->m.column_id, s->m.fitted_utc);
         printf("  stages at R = %g%s: %.3f (the pot included); column stages %.3f "
                "(se %.3f, %.3g dof)%s\n",
-               reflux, isnan(fload) ? "" : " and F", s->pt.stages, s->s.column_stages, s->s.se,
-               s->s.dof, s->pt.extrapolated ? " [EXTRAPOLATED]" : "");
+               reflux, at, s->pt.stages, s->s.column_stages, s->s.se, s->s.dof,
+               s->pt.extrapolated ? " [EXTRAPOLATED]" : "");
         if (nt > 0)
             printf("  overall tray efficiency %.3f on %d trays, %d %% CI [%.3f, %.3f]\n",
                    s->tray.efficiency, nt, pct, s->tray.low, s->tray.high);

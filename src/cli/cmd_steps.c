@@ -127,12 +127,17 @@ int cmd_steps(int argc, char **argv)
         return cli_usage_error("option '--murphree': %g is outside (0, 1] (expected a Murphree "
                                "vapour efficiency)",
                                murphree);
+    stagecal_stages_params par = stagecal_stages_default_params();
+    /* Checked before sizing the profile: (size_t)ceil(N) of a huge N is undefined. */
+    if (nstages > (double)par.max_stages)
+        return cli_usage_error("option '--stages': %g is above %zu (expected at most the "
+                               "stepping cap of whole stages)",
+                               nstages, par.max_stages);
     if ((rc = cli_system_open(&sys)))
         return rc;
 
     size_t cap = (size_t)ceil(nstages) + 1, len = 0;
     stagecal_stage_point *prof = calloc(cap, sizeof *prof);
-    stagecal_stages_params par = stagecal_stages_default_params();
     stagecal_error err;
     double xb = 0;
     int status = 0;

@@ -34,6 +34,9 @@ done
 expect_exit 2 "option '--bootstrap': ' 5' is not an integer" -- \
     "$BIN" regress "$MISRA" --form constant --bootstrap ' 5'
 expect_exit 0 "" -- "$BIN" steps --alpha 2.5 --xd 0.95 --reflux inf --stages 3
+# A huge stage count is refused before the profile is sized (fuzz find steps-stages-1e300).
+expect_exit 2 "option '--stages': 1e+300 is above 10000" -- \
+    "$BIN" steps --alpha 2.5 --xd 0.95 --reflux 3 --stages 1e300
 
 # --- top level: one line, naming the problem ------------------------------------------
 expect_exit 2 "stagecal: unknown option '--bogus'" -- "$BIN" --bogus
@@ -102,6 +105,12 @@ expect_exit 0 "" -- "$BIN" hetp "$model" --reflux 3 --fload 1.3
 expect_exit 2 "option '--size': nominal packing size" -- \
     "$BIN" hetp "$model" --reflux 3 --fload 1.3 --packing random --size 200
 expect_exit 2 "option '--fload F' is required" -- "$BIN" trend demo-bt-K-7 --fits "$tmp/fits" --reflux 3
+# report: '-' as the output path is standard output (STYLE: '-' means stdout), no file '-'.
+expect_exit 2 "options '--json' and '--output -'" -- "$BIN" report "$model" -o - --json
+(cd "$tmp" && "$BIN" report "$model" -o - --quiet >"$tmp/report.html" 2>"$tmp/err")
+head -n 1 "$tmp/report.html" | grep -q '^<!DOCTYPE html>' ||
+    { echo "FAIL: report -o - did not write the HTML to stdout"; fails=$((fails + 1)); }
+[ -e "$tmp/-" ] && { echo "FAIL: report -o - created a file named '-'"; fails=$((fails + 1)); }
 # trend dates each fit by the last sample it used (provenance.data_last_utc).
 expect_exit 0 "" -- "$BIN" trend demo-bt-K-7 --fits "$tmp/fits" --reflux 3 --fload 1.3 --json --quiet
 $py - "$tmp/out" "$model" <<'PY' || { echo "FAIL: trend date is not the data period's end"; fails=$((fails + 1)); }
