@@ -10,6 +10,9 @@
 BIN=$1
 ROOT=$2
 py=/usr/bin/python3
+# Scratch files (lib.sh's mktemp) stay inside the build tree, next to the binary.
+TMPDIR=$(cd "$(dirname "$BIN")" && pwd)
+export TMPDIR
 . "$(dirname "$0")/lib.sh"
 
 BT=$ROOT/datasets/columns/demo_benzene_toluene.json
