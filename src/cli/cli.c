@@ -276,3 +276,27 @@ int cli_usage_getopt(int c, char **argv, const char *command)
         return cli_usage_error("unknown option '-%c' (see 'stagecal %s --help')", optopt, command);
     return cli_usage_error("unknown option '%s' (see 'stagecal %s --help')", arg, command);
 }
+
+int cli_check_fraction(const char *opt, double v)
+{
+    if (v > 0 && v < 1)
+        return 0;
+    return cli_usage_error("option '--%s': %g is outside (0, 1) (expected a mole fraction)", opt,
+                           v);
+}
+
+int cli_check_reflux(const char *opt, double v)
+{
+    if (v >= 0)
+        return 0;
+    return cli_usage_error("option '--%s': %g is negative (expected R >= 0 or 'inf')", opt, v);
+}
+
+int cli_check_murphree(const char *opt, double v)
+{
+    if (v > 0 && v <= 1)
+        return 0;
+    return cli_usage_error("option '--%s': %g is outside (0, 1] (expected a Murphree vapour "
+                           "efficiency)",
+                           opt, v);
+}

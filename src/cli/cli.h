@@ -98,4 +98,10 @@ int cli_require(const char *opt, double v);
  * CLI_EXIT_USAGE. */
 int cli_usage_getopt(int c, char **argv, const char *command);
 
+/* Domain checks of the options every stepping command shares: print the usage error
+ * naming the option and return CLI_EXIT_USAGE, or return 0. */
+int cli_check_fraction(const char *opt, double v); /* a mole fraction in (0, 1) */
+int cli_check_reflux(const char *opt, double v);   /* R >= 0 or inf */
+int cli_check_murphree(const char *opt, double v); /* E_MV in (0, 1] */
+
 #endif

@@ -238,9 +238,8 @@ int cmd_hetp(int argc, char **argv)
                                argv[optind + 2]);
     if ((rc = cli_require("reflux", reflux)))
         return rc;
-    if (!(reflux >= 0))
-        return cli_usage_error("option '--reflux': %g is negative (expected R >= 0 or 'inf')",
-                               reflux);
+    if ((rc = cli_check_reflux("reflux", reflux)))
+        return rc;
     if (!(level > 0 && level < 1))
         return cli_usage_error("option '--level': %g is outside (0, 1) (expected e.g. 0.95)",
                                level);

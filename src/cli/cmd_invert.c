@@ -115,23 +115,18 @@ int cmd_invert(int argc, char **argv)
     if ((rc = cli_require("xd", xd)) || (rc = cli_require("xb", xb)) ||
         (rc = cli_require("reflux", reflux)))
         return rc;
-    if (!(xd > 0 && xd < 1))
-        return cli_usage_error("option '--xd': %g is outside (0, 1) (expected a mole fraction)",
-                               xd);
-    if (!(xb > 0 && xb < 1))
-        return cli_usage_error("option '--xb': %g is outside (0, 1) (expected a mole fraction)",
-                               xb);
+    if ((rc = cli_check_fraction("xd", xd)))
+        return rc;
+    if ((rc = cli_check_fraction("xb", xb)))
+        return rc;
     if (!(xb < xd))
         return cli_usage_error("option '--xb': %g is not below --xd %g (expected the pot leaner "
                                "in the light component than the distillate)",
                                xb, xd);
-    if (!(reflux >= 0))
-        return cli_usage_error("option '--reflux': %g is negative (expected R >= 0 or 'inf')",
-                               reflux);
-    if (!(murphree > 0 && murphree <= 1))
-        return cli_usage_error("option '--murphree': %g is outside (0, 1] (expected a Murphree "
-                               "vapour efficiency)",
-                               murphree);
+    if ((rc = cli_check_reflux("reflux", reflux)))
+        return rc;
+    if ((rc = cli_check_murphree("murphree", murphree)))
+        return rc;
     if ((rc = cli_system_open(&sys)))
         return rc;
 

@@ -113,20 +113,16 @@ int cmd_steps(int argc, char **argv)
     if ((rc = cli_require("xd", xd)) || (rc = cli_require("reflux", reflux)) ||
         (rc = cli_require("stages", nstages)))
         return rc;
-    if (!(xd > 0 && xd < 1))
-        return cli_usage_error("option '--xd': %g is outside (0, 1) (expected a mole fraction)",
-                               xd);
-    if (!(reflux >= 0))
-        return cli_usage_error("option '--reflux': %g is negative (expected R >= 0 or 'inf')",
-                               reflux);
+    if ((rc = cli_check_fraction("xd", xd)))
+        return rc;
+    if ((rc = cli_check_reflux("reflux", reflux)))
+        return rc;
     if (!(nstages >= 1))
         return cli_usage_error("option '--stages': %g is below 1 (expected stages including the "
                                "pot, >= 1)",
                                nstages);
-    if (!(murphree > 0 && murphree <= 1))
-        return cli_usage_error("option '--murphree': %g is outside (0, 1] (expected a Murphree "
-                               "vapour efficiency)",
-                               murphree);
+    if ((rc = cli_check_murphree("murphree", murphree)))
+        return rc;
     stagecal_stages_params par = stagecal_stages_default_params();
     /* Checked before sizing the profile: (size_t)ceil(N) of a huge N is undefined. */
     if (nstages > (double)par.max_stages)

@@ -493,9 +493,8 @@ int cmd_trend(int argc, char **argv)
         return cli_usage_error("a column id is required (see 'stagecal trend --help')");
     if ((rc = cli_require("reflux", reflux)))
         return rc;
-    if (!(reflux >= 0))
-        return cli_usage_error("option '--reflux': %g is negative (expected R >= 0 or 'inf')",
-                               reflux);
+    if ((rc = cli_check_reflux("reflux", reflux)))
+        return rc;
     if (!(par.level > 0 && par.level < 1))
         return cli_usage_error("option '--level': %g is outside (0, 1) (expected e.g. 0.95)",
                                par.level);

@@ -184,10 +184,8 @@ int invert_runlog(int argc, char **argv)
     if (!column_path)
         return cli_usage_error("option '--column' is required with a run log (the equilibrium "
                                "model and the uncertainties come from it)");
-    if (!(murphree > 0 && murphree <= 1))
-        return cli_usage_error("option '--murphree': %g is outside (0, 1] (expected a Murphree "
-                               "vapour efficiency)",
-                               murphree);
+    if ((rc = cli_check_murphree("murphree", murphree)))
+        return rc;
     /* --json owns stdout: the CSV must go to a file then (one document on stdout). */
     if (json && out_path && strcmp(out_path, "-") == 0)
         return cli_usage_error("options '--json' and '--out -' both write to standard output "
