@@ -313,6 +313,10 @@ static void header_cell(struct reader *rd, const char *cell)
 
 static void header_done(struct reader *rd)
 {
+    if (rd->fatal) {
+        rd->header_done = 1;
+        return;
+    }
     static const int required[] = {STAGECAL_RL_TIME, STAGECAL_RL_W, STAGECAL_RL_XD, STAGECAL_RL_XB,
                                    STAGECAL_RL_R};
     rd->header_done = 1;
@@ -351,6 +355,9 @@ static int parse_number(const char *s, int allow_inf, double *v)
         return 0;
     }
     char *end;
+    /* decimal only: strtod would also take hexadecimal floats ("0x1p-1") */
+    if (strpbrk(s, "xX"))
+        return -1;
     errno = 0;
     double x = strtod(s, &end);
     if (end == s || *end != '\0' || errno == ERANGE || !isfinite(x))
@@ -370,6 +377,11 @@ static void data_cell(struct reader *rd, const char *s, size_t len)
     if (len == 0) {
         if (role != STAGECAL_RL_RUN && rd->nmissing[role]++ == 0)
             rd->first_missing[role] = rd->line;
+        return;
+    }
+    if (strlen(s) != len) {
+        finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
+                "column '%s': value contains a NUL byte (expected text; is the file UTF-16?)", h);
         return;
     }
     if (role == STAGECAL_RL_RUN) {
@@ -424,9 +436,30 @@ static void on_field(void *s, size_t len, void *data)
     struct reader *rd = data;
     if (rd->oom)
         return;
-    if (!rd->header_done)
-        header_cell(rd, s ? (const char *)s : "");
-    else if (!rd->fatal)
+    if (!rd->header_done) {
+        const char *cell = s ? (const char *)s : "";
+        if (rd->fatal)
+            return; /* the header is already unusable: one message is enough */
+        if (rd->nhdr == 0 && rd->line <= 1) {
+            /* a UTF-8 byte-order mark (spreadsheet exports) is not part of the name */
+            if (len >= 3 && memcmp(cell, "\xEF\xBB\xBF", 3) == 0)
+                cell += 3;
+            else if (len >= 2 &&
+                     (memcmp(cell, "\xFF\xFE", 2) == 0 || memcmp(cell, "\xFE\xFF", 2) == 0)) {
+                fatal(rd, rd->line, NULL,
+                      "the file is UTF-16 encoded (byte-order mark); expected UTF-8 or ASCII "
+                      "text (save or export it as UTF-8 CSV)");
+                return;
+            }
+        }
+        if (s && strlen((const char *)s) != len) {
+            fatal(rd, rd->line, NULL,
+                  "the header contains NUL bytes (UTF-16 without a byte-order mark?); expected "
+                  "UTF-8 or ASCII text");
+            return;
+        }
+        header_cell(rd, cell);
+    } else if (!rd->fatal)
         data_cell(rd, s ? (const char *)s : "", s ? len : 0);
 }
 

@@ -178,7 +178,8 @@ int main(int argc, char **argv)
         fprintf(out, "run,time[iso8601],W[kmol],xD[mol/mol],xB[mol/mol],R[-],V[kmol/h],P[kPa]\n");
         long line = 1;
         for (int k = 0; k < RUNS_PER_MONTH; k++, run_no++) {
-            double t0 = month_start + (k * (27.0 / RUNS_PER_MONTH) + gsl_rng_uniform(rng)) * 86400.0;
+            double t0 =
+                month_start + (k * (27.0 / RUNS_PER_MONTH) + gsl_rng_uniform(rng)) * 86400.0;
             double month = (t0 - START_EPOCH) / (30.4375 * 86400.0);
             double r1 = reflux_choices[gsl_rng_uniform_int(rng, 5)];
             double r2 = (run_no % 4 == 1) ? r1 + 1.0 : r1; /* reflux step after 4 h */
