@@ -310,6 +310,24 @@ int stagecal_calibrate(const char *column_path, const char *const *logs, size_t 
     progress(par, "reading", 0);
     if ((rc = stagecal_column_load(column_path, &cal->column, err)))
         return rc;
+    /* The same log twice would count its windows twice as independent evidence. */
+    if (nlogs > 1) {
+        char(*hex)[STAGECAL_MODEL_HEX] = malloc(nlogs * sizeof *hex);
+        if (!hex)
+            return error_set(err, STAGECAL_ENOMEM, "out of memory");
+        for (size_t k = 0; k < nlogs && rc == STAGECAL_OK; k++) {
+            rc = stagecal_model_hash_file(logs[k], hex[k], err);
+            for (size_t j = 0; j < k && rc == STAGECAL_OK; j++)
+                if (strcmp(hex[j], hex[k]) == 0)
+                    rc = error_set(err, STAGECAL_EDATA,
+                                   "run logs '%s' and '%s' have the same content (SHA-256 "
+                                   "%.12s…): each log may be given once",
+                                   logs[j], logs[k], hex[k]);
+        }
+        free(hex);
+        if (rc != STAGECAL_OK)
+            return rc;
+    }
     cal->log = stagecal_runlog_alloc();
     cal->findings = stagecal_findings_alloc(par->read.max_findings ? par->read.max_findings : 1000);
     if (!cal->log || !cal->findings)
