@@ -7,10 +7,23 @@
 #include "stagecal/error.h"
 #include "banned.h"
 
+#include <string.h>
+
 #if defined(__GNUC__)
 #define SC_PRINTF(a, b) __attribute__((format(printf, a, b)))
 #else
 #define SC_PRINTF(a, b)
+/* Copies the NUL-terminated src into dst of cap bytes; −1 (dst untouched) when it does
+ * not fit. */
+static inline int copy_text(char *dst, size_t cap, const char *src)
+{
+    size_t n = strlen(src);
+    if (n >= cap)
+        return -1;
+    memcpy(dst, src, n + 1);
+    return 0;
+}
+
 #endif
 
 /* Fill err (may be NULL) with code and a formatted message; returns code. */
@@ -20,5 +33,16 @@ int error_set(stagecal_error *err, int code, const char *fmt, ...) SC_PRINTF(3, 
  * ("source: text" when line is 0). */
 int error_set_at(stagecal_error *err, int code, const char *source, long line, long column,
                  const char *fmt, ...) SC_PRINTF(6, 7);
+
+/* Copies the NUL-terminated src into dst of cap bytes; −1 (dst untouched) when it does
+ * not fit. */
+static inline int copy_text(char *dst, size_t cap, const char *src)
+{
+    size_t n = strlen(src);
+    if (n >= cap)
+        return -1;
+    memcpy(dst, src, n + 1);
+    return 0;
+}
 
 #endif
