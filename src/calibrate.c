@@ -485,6 +485,11 @@ int stagecal_calibrate(const char *column_path, const char *const *logs, size_t 
                                    cal->log->runs[r].name, c->drift_per_h)))
             return rc;
     }
+    if (!(cal->model.sigma > 0) &&
+        (rc = warn(cal, err,
+                   "the residual sigma in stages could not be estimated (too few windows with "
+                   "stage counts); prediction bands equal confidence bands and are too narrow")))
+        return rc;
     size_t npinch = cal->res.count[STAGECAL_STAGES_PINCH];
     if (npinch > 0 && (rc = warn(cal, err,
                                  "%zu sample(s) at a pinch have no stage count; the "

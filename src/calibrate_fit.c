@@ -97,40 +97,42 @@ int stagecal_evidence_mean(const double *t, const double *y, size_t n, double u_
     return STAGECAL_OK;
 }
 
-/* Least-squares quadratic in time through n ≥ 3 points, evaluated at every t[j] into
- * out[j] (GSL multifit on a centred, scaled time so the design is well conditioned).
- * A straight line is not enough: a batch pot's composition curves through a long
- * window. Returns 0, or −1 when GSL fails. */
+/* Points in each local fit of the smoother below. */
+#define SMOOTH_POINTS 9
+
+/* Local quadratic regression of y on time (Savitzky & Golay, Anal. Chem. 36 (1964) 1627,
+ * here on irregular times — citation from memory): each out[j] is the value at t[j] of a
+ * least-squares quadratic through the SMOOTH_POINTS samples nearest j (fewer at hand →
+ * all of them). One quadratic over a long window misses a batch pot's curving
+ * trajectory; a local one follows it while still averaging the analyser noise. GSL
+ * multifit on a centred, scaled time. Returns 0, or −1 when GSL fails. */
 static int smooth_quadratic(const double *t, const double *y, size_t n, double *out)
 {
-    double tb = 0, ts = 0;
-    for (size_t i = 0; i < n; i++)
-        tb += t[i] / (double)n;
-    for (size_t i = 0; i < n; i++)
-        ts = fmax(ts, fabs(t[i] - tb));
-    if (!(ts > 0))
-        ts = 1;
-    gsl_matrix *x = gsl_matrix_alloc(n, 3), *cov = gsl_matrix_alloc(3, 3);
+    size_t k = n < SMOOTH_POINTS ? n : SMOOTH_POINTS;
+    gsl_matrix *x = gsl_matrix_alloc(k, 3), *cov = gsl_matrix_alloc(3, 3);
     gsl_vector *c = gsl_vector_alloc(3);
-    gsl_multifit_linear_workspace *w = gsl_multifit_linear_alloc(n, 3);
-    int rc = -1;
-    if (x && cov && c && w) {
-        double chisq;
-        for (size_t i = 0; i < n; i++) {
-            double u = (t[i] - tb) / ts;
+    gsl_multifit_linear_workspace *w = gsl_multifit_linear_alloc(k, 3);
+    int rc = (x && cov && c && w) ? 0 : -1;
+    for (size_t j = 0; j < n && rc == 0; j++) {
+        size_t lo = j >= k / 2 ? j - k / 2 : 0;
+        if (lo + k > n)
+            lo = n - k;
+        double tb = t[j], ts = 0, chisq;
+        for (size_t i = lo; i < lo + k; i++)
+            ts = fmax(ts, fabs(t[i] - tb));
+        if (!(ts > 0))
+            ts = 1;
+        for (size_t i = 0; i < k; i++) {
+            double u = (t[lo + i] - tb) / ts;
             gsl_matrix_set(x, i, 0, 1);
             gsl_matrix_set(x, i, 1, u);
             gsl_matrix_set(x, i, 2, u * u);
         }
-        gsl_vector_const_view yv = gsl_vector_const_view_array(y, n);
-        if (gsl_multifit_linear(x, &yv.vector, c, cov, &chisq, w) == GSL_SUCCESS) {
-            for (size_t i = 0; i < n; i++) {
-                double u = (t[i] - tb) / ts;
-                out[i] =
-                    gsl_vector_get(c, 0) + u * (gsl_vector_get(c, 1) + u * gsl_vector_get(c, 2));
-            }
-            rc = 0;
-        }
+        gsl_vector_const_view yv = gsl_vector_const_view_array(y + lo, k);
+        if (gsl_multifit_linear(x, &yv.vector, c, cov, &chisq, w) != GSL_SUCCESS)
+            rc = -1;
+        else
+            out[j] = gsl_vector_get(c, 0); /* the quadratic at u = 0, i.e. at t[j] */
     }
     gsl_multifit_linear_free(w);
     gsl_vector_free(c);

@@ -68,10 +68,10 @@ typedef struct {
     const double *s_xb; /* built the evidence) */
 } stagecal_evidence;
 
-/* Stage count of a window. With samples (ev->m ≥ 3, at most 64 used): quadratics in
- * time are fitted to the window's xD and xB, the fitted compositions are inverted at every sample
- * time and the counts averaged — this follows a drifting pot (a batch is never quite steady)
- * without the curvature bias of inverting plain means, and without the bias that the
+/* Stage count of a window. With samples (ev->m ≥ 3, at most 64 used): local quadratics in
+ * time (9 samples each) smooth the window's xD and xB, the fitted compositions are inverted at
+ * every sample time and the counts averaged — this follows a drifting pot (a batch is never quite
+ * steady) without the curvature bias of inverting plain means, and without the bias that the
  * count's curvature in xB gives noisy single samples near a pinch or at a lean pot.
  * Without samples: the inversion of the means. The standard error propagates u_xd,
  * u_xb through the sensitivities at the means (first order, independent analysers).
