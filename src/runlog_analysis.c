@@ -35,6 +35,7 @@
 #include <string.h>
 
 #include "internal.h"
+#include "stagecal/stages.h"
 #include "runlog_internal.h"
 
 stagecal_runlog_analysis_params stagecal_runlog_analysis_default_params(void)
@@ -381,7 +382,10 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
             if (i < par->warmup) {
                 res->flags[row] |= STAGECAL_SAMPLE_WARMUP;
                 steady = 0;
-            } else if (reflux_change || res->status[row] != 0) {
+            } else if (reflux_change || res->status[row] == STAGECAL_STAGES_INVALID) {
+                /* A sample at a pinch does not end a window: near a lean pot the analyser
+                 * noise alone decides which samples pinch, and dropping them would select
+                 * the windows by the sign of the noise (a bias in the fit). */
                 steady = 0;
             } else if (steady && rmax > par->r_leave) {
                 steady = 0;

@@ -1348,6 +1348,278 @@ static int group_teardown(void **state)
     return 0;
 }
 
+/* ---- more refusals of the reader (issue 8: coverage) --------------------------------- */
+
+/* One edit of the saved standard model: the member at a dotted path (numbers index
+ * arrays) is replaced by the JSON text `json`, or deleted when json is NULL. */
+static const char *edit_at_path;
+static const char *edit_at_json;
+
+static void edit_at(json_t *doc)
+{
+    char buf[256], *save = NULL;
+    json_t *parent = doc;
+    snprintf(buf, sizeof buf, "%s", edit_at_path);
+    char *key = strtok_r(buf, ".", &save);
+    for (char *next; (next = strtok_r(NULL, ".", &save)) != NULL; key = next) {
+        parent = json_is_array(parent) ? json_array_get(parent, strtoul(key, NULL, 10))
+                                       : json_object_get(parent, key);
+        assert_non_null(parent);
+    }
+    json_error_t jerr;
+    json_t *v = edit_at_json ? json_loads(edit_at_json, JSON_DECODE_ANY, &jerr) : NULL;
+    if (edit_at_json)
+        assert_non_null(v);
+    if (json_is_array(parent)) {
+        size_t k = strtoul(key, NULL, 10);
+        assert_int_equal(v ? json_array_set_new(parent, k, v) : json_array_remove(parent, k), 0);
+    } else {
+        assert_int_equal(v ? json_object_set_new(parent, key, v) : json_object_del(parent, key), 0);
+    }
+}
+
+/* Every member the reader checks, provoked one at a time on an otherwise valid file with
+ * a fresh checksum; the expected texts are those docs/model-file.md's rules give ("path:
+ * what is wrong, what was expected", STYLE/DESIGN message form). The standard model is
+ * fill_model's: partial condenser, form 'saturating' (p = 2), NRTL parameters 'nrtl'
+ * (5 numbers) and 'p_pa', a load envelope and an HETP block. */
+static void model_load_refuses_each_member(void **state)
+{
+    (void)state;
+    static const struct {
+        const char *path, *json, *want; /* want: after "path: " */
+    } cases[] = {
+        {"format", "\"stagecal-plan\"",
+         "not a stagecal model file (format 'stagecal-plan', expected 'stagecal-model')"},
+        {"format", "3", "not a stagecal model file (no \"format\": \"stagecal-model\" member)"},
+        {"version", "\"1\"", "member 'version': expected an integer format version"},
+        {"version", "0", "unknown format version 0 (expected 1)"},
+        {"column", "17", "member 'column': expected a string"},
+        {"stage_convention", "\"partial\"", "member 'stage_convention': expected an object"},
+        {"stage_convention.condenser", "\"none\"",
+         "stage_convention.condenser 'none': expected 'total' or 'partial'"},
+        {"stage_convention.text", "\"stages include the pot\"",
+         "stage_convention.text does not match the partial-condenser convention ('stages include "
+         "the pot; column stages = stages - 2; the partial condenser is an equilibrium stage' "
+         "expected)"},
+        {"evidence.windows", "-3", "member 'evidence.windows': expected an integer >= 0"},
+        {"evidence.runs", "2.5", "member 'evidence.runs': expected an integer >= 0"},
+        {"envelope.kind", "\"ellipse\"", "envelope.kind 'ellipse': expected 'box'"},
+        {"envelope.r_max", "\"infinite\"", "member 'envelope.r_max': expected a number or \"inf\""},
+        {"envelope.f_max_sqrt_pa", NULL, "missing member 'envelope.f_max_sqrt_pa'"},
+        {"hetp", "3", "member 'hetp': expected an object or null"},
+        {"hetp.reference", NULL, "missing member 'hetp.reference'"},
+        {"hetp.reference.f_sqrt_pa", "\"inf\"",
+         "member 'hetp.reference.f_sqrt_pa': expected a number"},
+        {"provenance.inputs", "{}", "member 'provenance.inputs': expected an array"},
+        {"provenance.inputs.0", "1", "provenance.inputs[0]: expected an object"},
+        {"provenance.inputs.1.path", "1", "provenance.inputs[1].path: expected a string"},
+        {"provenance.inputs.0.rows", "1.5",
+         "member 'provenance.inputs[].rows': expected an integer >= 0"},
+        {"provenance.data_first_utc", "5",
+         "member 'provenance.data_first_utc': expected a string or null"},
+        {"provenance.seed", "-1", "member 'provenance.seed': expected an integer >= 0"},
+        {"provenance.command_line", "[]",
+         "member 'provenance.command_line': expected a string or null"},
+        {"warnings", "\"none\"", "member 'warnings': expected an array"},
+        {"warnings.0", "7", "warnings[0]: expected a string"},
+        {"system.light",
+         "\"a-name-much-longer-than-any-component-name-the-file-allows-"
+         "a-name-much-longer-than-any-component-name-the-file-allows\"",
+         NULL /* checked below with the field's size */},
+        {"system.equilibrium.parameters.p_pa", "\"101325\"",
+         "equilibrium parameter 'p_pa': expected a number or a non-empty array of numbers"},
+        {"system.equilibrium.parameters.p_pa", "[]",
+         "equilibrium parameter 'p_pa': expected a number or a non-empty array of numbers"},
+        {"system.equilibrium.parameters.nrtl.2", "\"x\"",
+         "equilibrium parameter 'nrtl': element 3 is not a number"},
+        {"correlation", NULL, "missing member 'correlation'"},
+        {"correlation.form", "\"linear:1/R+1\"",
+         "correlation form 'linear:1/R+1' is not in canonical notation ('linear:1+1/R' "
+         "expected)"},
+        {"system.equilibrium.parameters",
+         "{\"a-parameter-name-much-longer-than-the-sixty-three-characters-that-the-model-file-"
+         "allows\": 1}",
+         "system.equilibrium.parameters: equilibrium parameter name: expected 1 to 63 "
+         "characters"},
+        {"correlation.parameters.0", "3", "correlation.parameters[0]: expected an object"},
+        {"correlation.parameters.0.value", "\"inf\"",
+         "member 'correlation.parameters[].value': expected a number"},
+        {"correlation.covariance", "[[1, 0]]",
+         "correlation.covariance: expected 2 rows (p x p), found 1"},
+        {"correlation.covariance.0.1", "\"x\"", "correlation.covariance[0][1]: expected a number"},
+        {"correlation.method", "\"moment-space\"",
+         "correlation.method 'moment-space': expected 'stage-space' or 'composition-space'"},
+    };
+    char dir[1100], path[1200], want[1400];
+    subdir(dir, sizeof dir, "each-member");
+    for (size_t i = 0; i < sizeof cases / sizeof cases[0]; i++) {
+        write_standard(dir, "saturating", path, sizeof path);
+        edit_at_path = cases[i].path;
+        edit_at_json = cases[i].json;
+        rewrite_with_checksum(path, edit_at);
+        if (cases[i].want)
+            snprintf(want, sizeof want, "%s: %s", path, cases[i].want);
+        else
+            snprintf(want, sizeof want, "%s: member 'system.light': longer than %zu characters",
+                     path, sizeof((stagecal_model *)0)->light - 1);
+        expect_load_error(path, STAGECAL_EDATA, want);
+    }
+}
+
+/* The checksum block itself: an algorithm other than SHA-256 is named (docs/model-file.md:
+ * "checksum.algorithm" is "sha256"); a document that is not an object is not a model
+ * file; a parse without a source name is reported as "model". */
+static void model_parse_refuses_checksum_and_shape(void **state)
+{
+    (void)state;
+    char dir[1100], path[1200];
+    size_t n;
+    subdir(dir, sizeof dir, "checksum-shape");
+    write_standard(dir, "saturating", path, sizeof path);
+    char *text = slurp(path, &n);
+    char *alg = strstr(text, "\"sha256\"");
+    assert_non_null(alg);
+    memcpy(alg, "\"sha512\"", 8);
+    stagecal_model m;
+    stagecal_error err;
+    stagecal_model_init(&m);
+    assert_int_equal(stagecal_model_parse(text, n, "k.json", &m, &err), STAGECAL_EDATA);
+    assert_string_equal(err.text, "k.json: checksum algorithm 'sha512': expected 'sha256'");
+    free(text);
+    assert_int_equal(stagecal_model_parse("[1, 2]", 6, NULL, &m, &err), STAGECAL_EDATA);
+    assert_string_equal(err.text,
+                        "model: not a stagecal model file (the document is not a JSON object)");
+    assert_int_equal(stagecal_model_parse("{\"format\": \"stagecal-model\", \"version\": 1}", 42,
+                                          "v.json", &m, &err),
+                     STAGECAL_EDATA);
+    assert_string_equal(err.text, "v.json: missing member 'checksum'");
+    stagecal_model_free(&m);
+}
+
+/* Breaks one rule of the format (docs/model-file.md) on the standard model; returns the
+ * message stagecal_model_check must give (the rule's own wording), NULL after the last. */
+static const char *break_rule(stagecal_model *m, int k)
+{
+    switch (k) {
+    case 0:
+        snprintf(m->column_id, sizeof m->column_id, ".hidden");
+        return "column id '.hidden': expected letters, digits, '_', '.', '-' (not starting with "
+               "'.')";
+    case 1:
+        m->heavy[0] = '\0';
+        return "system: component names must not be empty";
+    case 2:
+        m->vle_kind[0] = '\0';
+        return "system: equilibrium model name must not be empty";
+    case 3:
+        m->vle_params[0].values[2] = NAN;
+        return "equilibrium parameter 'nrtl': value 3 is not finite";
+    case 4:
+        snprintf(m->vle_params[1].name, sizeof m->vle_params[1].name, "nrtl");
+        return "equilibrium parameter 'nrtl' appears twice";
+    case 5:
+        m->condenser = (stagecal_condenser)5;
+        return "stage convention: unknown condenser type 5";
+    case 6:
+        m->form.p = 3;
+        return "correlation form 'saturating' has 2 parameters, not 3";
+    case 7:
+        m->theta[1] = NAN;
+        return "parameter 'b' is not finite";
+    case 8:
+        m->cov[1] = INFINITY;
+        return "covariance[0][1] is not finite";
+    case 9:
+        m->sigma = -1;
+        return "sigma_stages = -1: expected a finite number >= 0";
+    case 10:
+        m->dof = 0;
+        return "dof = 0: expected a finite number > 0";
+    case 11:
+        m->level = 1;
+        return "confidence_level = 1: expected a number in (0, 1)";
+    case 12:
+        m->method = (stagecal_model_method)9;
+        return "fit method 9 is unknown";
+    case 13:
+        assert_int_equal(stagecal_form_parse("linear:1+F", &m->form, NULL), STAGECAL_OK);
+        m->has_load = 0;
+        return "envelope: the form 'linear:1+F' uses the F-factor but the envelope has no F range";
+    case 14:
+        m->f_min = 3;
+        return "envelope: F range [3, 2.23607] Pa^0.5: expected finite 0 <= f_min <= f_max";
+    case 15:
+        m->inputs[0].path[0] = '\0';
+        return "provenance: input 1 has no path";
+    case 16:
+        m->inputs[1].sha256[0] = 'E';
+        return "provenance: input 'caf\xc3\xa9/run \"2\".csv': sha256 is not 64 lowercase hex "
+               "digits";
+    case 17:
+        snprintf(m->fitted_utc, sizeof m->fitted_utc, "yesterday");
+        return "provenance: fitted_utc 'yesterday': expected YYYY-MM-DDTHH:MM:SSZ";
+    case 18:
+        snprintf(m->data_first_utc, sizeof m->data_first_utc, "spring");
+        return "provenance: data_first_utc 'spring': expected YYYY-MM-DDTHH:MM:SSZ";
+    case 19:
+        snprintf(m->data_last_utc, sizeof m->data_last_utc, "autumn");
+        return "provenance: data_last_utc 'autumn': expected YYYY-MM-DDTHH:MM:SSZ";
+    case 20:
+        m->tool_version[0] = '\0';
+        return "provenance: tool_version must not be empty";
+    case 21:
+        m->seed = 1ull << 63;
+        return "provenance: seed 9223372036854775808 is larger than 2^63 - 1";
+    case 22:
+        m->height_m = 0;
+        return "hetp: height_m = 0: expected a finite number > 0";
+    case 23:
+        m->hetp_r = -1;
+        return "hetp: reference R = -1: expected >= 0 (inf allowed)";
+    case 24:
+        m->hetp_f = NAN;
+        return "hetp: reference F = nan Pa^0.5: expected a finite number >= 0";
+    case 25:
+        m->hetp_m = 0;
+        return "hetp: hetp_m = 0: expected a finite number > 0";
+    case 26:
+        m->hetp_low_m = 0.5;
+        return "hetp: interval [0.5, inf] m does not contain hetp_m = 0.2914 m";
+    case 27:
+        m->hetp_level = 0;
+        return "hetp: level = 0: expected a number in (0, 1)";
+    case 28:
+        free(m->warnings[1]);
+        m->warnings[1] = NULL;
+        return "warning 2 is missing";
+    default:
+        return NULL;
+    }
+}
+
+/* stagecal_model_check enforces every rule of the format, one message per rule; the
+ * unbroken standard model passes. */
+static void model_check_names_each_rule(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_error err;
+    fill_model(&m, "saturating");
+    assert_int_equal(stagecal_model_check(&m, &err), STAGECAL_OK);
+    stagecal_model_free(&m);
+    const char *want;
+    for (int k = 0; fill_model(&m, "saturating"), (want = break_rule(&m, k)) != NULL; k++) {
+        int rc = stagecal_model_check(&m, &err);
+        if (rc != STAGECAL_EINVAL || strcmp(err.text, want) != 0)
+            print_error("rule %d: got %d '%s'\n        want '%s'\n", k, rc, err.text, want);
+        assert_int_equal(rc, STAGECAL_EINVAL);
+        assert_string_equal(err.text, want);
+        stagecal_model_free(&m);
+    }
+    stagecal_model_free(&m);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -1373,6 +1645,9 @@ int main(void)
         cmocka_unit_test(model_vle_roundtrip_every_kind),
         cmocka_unit_test(model_vle_parameters_are_named_inputs),
         cmocka_unit_test(model_vle_build_refuses_incomplete),
+        cmocka_unit_test(model_load_refuses_each_member),
+        cmocka_unit_test(model_parse_refuses_checksum_and_shape),
+        cmocka_unit_test(model_check_names_each_rule),
     };
     return cmocka_run_group_tests(tests, group_setup, group_teardown);
 }
