@@ -110,9 +110,10 @@ static int print_findings(const stagecal_findings *f, int errors_only)
     for (size_t i = 0; i < f->n && shown < 20; i++) {
         if (errors_only && f->items[i].severity != STAGECAL_FINDING_ERROR)
             continue;
-        fprintf(stderr, "%s: %s\n",
-                f->items[i].severity == STAGECAL_FINDING_ERROR ? "error" : "warning",
-                f->items[i].text);
+        if (f->items[i].severity == STAGECAL_FINDING_ERROR)
+            cli_error("%s", f->items[i].text);
+        else
+            cli_warn("%s", f->items[i].text);
         shown++;
     }
     return (int)shown;
