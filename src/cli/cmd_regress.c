@@ -279,6 +279,17 @@ static int parse_start(const char *text, double *v, size_t *nv)
     return 0;
 }
 
+/* The library names itself ("regress: …") for callers such as calibrate; here the
+ * command name already says it. */
+static stagecal_error *drop_module_prefix(stagecal_error *err)
+{
+    static const char prefix[] = "regress: ";
+    size_t n = sizeof prefix - 1;
+    if (strncmp(err->text, prefix, n) == 0)
+        memmove(err->text, err->text + n, strlen(err->text + n) + 1);
+    return err;
+}
+
 int cmd_regress(int argc, char **argv)
 {
     enum {
@@ -406,12 +417,13 @@ int cmd_regress(int argc, char **argv)
     }
 
     stagecal_regress_data data;
+    memset(&err, 0, sizeof err);
     if ((rc = stagecal_regress_data_read(path, &data, &err)) != STAGECAL_OK)
         return cli_fail(&err);
     if (is_auto) {
         if (stagecal_regress_rank(&data, NULL, 0, &prm, rows, &nrows, &err) != STAGECAL_OK) {
             stagecal_regress_data_free(&data);
-            return cli_fail_data(&err);
+            return cli_fail_data(drop_module_prefix(&err));
         }
         form = rows[0].form;
     }
@@ -422,7 +434,7 @@ int cmd_regress(int argc, char **argv)
      * is the points file's content: a form that needs F on points without it, a form
      * undefined at a point's R (bad data, 65). */
     if (rc != STAGECAL_OK)
-        return cli_fail_data(&err);
+        return cli_fail_data(drop_module_prefix(&err));
     if (res.r_max > 0 && !cli_quiet && res.boot_b > 0 && res.boot_ok < res.boot_b)
         cli_warn("bootstrap: %zu of %zu resamples could not be fitted and were left out",
                  res.boot_b - res.boot_ok, res.boot_b);
