@@ -359,28 +359,12 @@ int stagecal_calibrate(const char *column_path, const char *const *logs, size_t 
     /* ---- stage space ------------------------------------------------------------ */
     progress(par, "fitting", 0.6);
     stagecal_regress_data d;
-    double *arr = malloc(cal->nev * 4 * sizeof *arr);
+    double *arr = malloc((cal->nev ? cal->nev : 1) * 4 * sizeof *arr);
     if (!arr)
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    size_t ns = 0;
-    int any_load = 1;
-    for (size_t i = 0; i < cal->nev; i++) {
-        const stagecal_evidence *e = &cal->ev[i];
-        if (!e->stages_ok)
-            continue;
-        arr[ns] = e->r;
-        arr[cal->nev + ns] = e->has_load ? e->f_load : 0;
-        arr[2 * cal->nev + ns] = e->stages;
-        arr[3 * cal->nev + ns] = e->se_stages > 0 ? e->se_stages : 1e-9;
-        any_load &= e->has_load;
-        ns++;
-    }
+    size_t ns = stagecal_evidence_points(cal->ev, cal->nev, arr, &d);
+    int any_load = d.f_load != NULL;
     cal->nev_stage = ns;
-    d.n = ns;
-    d.r = arr;
-    d.f_load = any_load ? arr + cal->nev : NULL;
-    d.stages = arr + 2 * cal->nev;
-    d.sigma = arr + 3 * cal->nev;
 
     stagecal_regress_params rp = stagecal_regress_default_params();
     rp.level = par->level;

@@ -184,6 +184,29 @@ int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_
     return STAGECAL_OK;
 }
 
+size_t stagecal_evidence_points(const stagecal_evidence *ev, size_t nev, double *buf,
+                                stagecal_regress_data *data)
+{
+    size_t n = 0;
+    int any_load = 1;
+    for (size_t i = 0; i < nev; i++) {
+        if (!ev[i].stages_ok) /* stages_ok implies a finite se > 0 */
+            continue;
+        buf[n] = ev[i].r;
+        buf[nev + n] = ev[i].has_load ? ev[i].f_load : 0;
+        buf[2 * nev + n] = ev[i].stages;
+        buf[3 * nev + n] = ev[i].se_stages;
+        any_load &= ev[i].has_load;
+        n++;
+    }
+    data->n = n;
+    data->r = buf;
+    data->f_load = any_load ? buf + nev : NULL;
+    data->stages = buf + 2 * nev;
+    data->sigma = buf + 3 * nev;
+    return n;
+}
+
 static double logit(double x)
 {
     if (x < LOGIT_EPS)

@@ -80,6 +80,13 @@ typedef struct {
 int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_evidence *ev,
                              stagecal_error *err);
 
+/* The windows with a stage count as regression points (R, F, stages, sigma = se):
+ * fills data with arrays laid out in buf, which must hold 4·nev doubles and outlive
+ * data; f_load is NULL unless every such window has a load. Returns the number of
+ * points. */
+size_t stagecal_evidence_points(const stagecal_evidence *ev, size_t nev, double *buf,
+                                stagecal_regress_data *data);
+
 /* ---- composition-space fit --------------------------------------------------------------- */
 
 /* Fits form to the windows in composition space (see above) with GSL's trust-region

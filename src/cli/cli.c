@@ -300,3 +300,16 @@ int cli_check_murphree(const char *opt, double v)
                            "efficiency)",
                            opt, v);
 }
+
+int cli_system_option(cli_system *s, const char *name, const char *arg)
+{
+    if (strcmp(name, "column") == 0) {
+        s->column_path = arg;
+        return 0;
+    }
+    if (strcmp(name, "alpha") == 0)
+        return cli_parse_double("alpha", arg, 0, "a relative volatility > 1", &s->alpha)
+                   ? CLI_EXIT_USAGE
+                   : 0;
+    return cli_parse_double("kvalue", arg, 0, "a K value > 1", &s->kvalue) ? CLI_EXIT_USAGE : 0;
+}

@@ -81,6 +81,9 @@ void cli_system_init(cli_system *s);
 /* Builds s->vle from the options; prints the problem and returns an exit code
  * (0 on success). With --column it warns as cli_column_warn does. */
 int cli_system_open(cli_system *s);
+/* Takes the value of --alpha, --kvalue or --column (name without dashes) into s; prints
+ * the problem and returns CLI_EXIT_USAGE for a value that is not a number, else 0. */
+int cli_system_option(cli_system *s, const char *name, const char *arg);
 void cli_system_close(cli_system *s);
 /* Warnings about a loaded column file (path names it), at most once per command: an
  * Antoine set used outside its stated temperature range on the bubble curve

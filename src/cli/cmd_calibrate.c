@@ -120,37 +120,68 @@ static int print_findings(const stagecal_findings *f, int errors_only)
 }
 
 /* The HTML report of the calibration, with the windows' stage counts as its points. */
+/* The windows' stage counts as points (for the report and --points-out); buf is freed
+ * by the caller. NULL when out of memory. */
+static double *window_points(const stagecal_calibration *cal, stagecal_regress_data *pts)
+{
+    double *buf = malloc((cal->nev ? cal->nev : 1) * 4 * sizeof *buf);
+    if (buf)
+        stagecal_evidence_points(cal->ev, cal->nev, buf, pts);
+    else
+        cli_error("out of memory");
+    return buf;
+}
+
+/* The HTML report of the calibration, with the windows' stage counts as its points. */
 static int write_report(const stagecal_calibration *cal, const char *path)
 {
-    size_t n = 0;
-    double *buf = malloc((cal->nev ? cal->nev : 1) * 4 * sizeof *buf);
+    stagecal_regress_data pts;
     stagecal_report_doc *doc = NULL;
     stagecal_error err;
-    int any_load = 1, rc;
-    if (!buf) {
-        cli_error("out of memory");
+    double *buf = window_points(cal, &pts);
+    int rc;
+    if (!buf)
         return CLI_EXIT_SOFTWARE;
-    }
-    for (size_t i = 0; i < cal->nev; i++) {
-        const stagecal_evidence *e = &cal->ev[i];
-        if (!e->stages_ok)
-            continue;
-        buf[n] = e->r;
-        buf[cal->nev + n] = e->has_load ? e->f_load : 0;
-        buf[2 * cal->nev + n] = e->stages;
-        buf[3 * cal->nev + n] = e->se_stages;
-        any_load &= e->has_load;
-        n++;
-    }
-    stagecal_regress_data pts = {n, buf, any_load ? buf + cal->nev : NULL, buf + 2 * cal->nev,
-                                 buf + 3 * cal->nev};
     stagecal_error_clear(&err);
-    rc = stagecal_report_from_model(&cal->model, n ? &pts : NULL, &doc, &err);
+    rc = stagecal_report_from_model(&cal->model, pts.n ? &pts : NULL, &doc, &err);
     if (rc == STAGECAL_OK)
         rc = stagecal_report_write(stagecal_report_doc_content(doc), NULL, path, &err);
     stagecal_report_doc_free(doc);
     free(buf);
     return rc == STAGECAL_OK ? CLI_EXIT_OK : cli_fail(&err);
+}
+
+/* The points file (R,F,stages,sigma) of the windows, atomically (temporary + rename). */
+static int write_points(const stagecal_calibration *cal, const char *path)
+{
+    stagecal_regress_data pts;
+    char tmp[4096];
+    double *buf = window_points(cal, &pts);
+    if (!buf)
+        return CLI_EXIT_SOFTWARE;
+    snprintf(tmp, sizeof tmp, "%s.tmp", path);
+    FILE *out = fopen(tmp, "w");
+    int bad = !out;
+    if (out) {
+        fprintf(out, "R,F,stages,sigma\n");
+        for (size_t i = 0; i < pts.n; i++) {
+            if (isinf(pts.r[i]))
+                fprintf(out, "inf,");
+            else
+                fprintf(out, "%.17g,", pts.r[i]);
+            if (pts.f_load)
+                fprintf(out, "%.17g", pts.f_load[i]);
+            fprintf(out, ",%.17g,%.17g\n", pts.stages[i], pts.sigma[i]);
+        }
+        bad = ferror(out) | (fclose(out) != 0);
+    }
+    free(buf);
+    if (bad || rename(tmp, path) != 0) {
+        remove(tmp);
+        cli_error("cannot write '%s'", path);
+        return CLI_EXIT_CANTCREAT;
+    }
+    return CLI_EXIT_OK;
 }
 
 static char *join_args(int argc, char **argv)
@@ -367,34 +398,9 @@ int cmd_calibrate(int argc, char **argv)
         }
     }
 
-    /* window evidence as a points file, atomically */
-    if (points_out) {
-        char tmp[4096];
-        snprintf(tmp, sizeof tmp, "%s.tmp", points_out);
-        FILE *out = fopen(tmp, "w");
-        int bad = !out;
-        if (out) {
-            fprintf(out, "R,F,stages,sigma\n");
-            for (size_t i = 0; i < cal.nev; i++) {
-                const stagecal_evidence *e = &cal.ev[i];
-                if (!e->stages_ok)
-                    continue;
-                if (isinf(e->r))
-                    fprintf(out, "inf,");
-                else
-                    fprintf(out, "%.17g,", e->r);
-                if (e->has_load)
-                    fprintf(out, "%.17g", e->f_load);
-                fprintf(out, ",%.17g,%.17g\n", e->stages, e->se_stages);
-            }
-            bad = ferror(out) | (fclose(out) != 0);
-        }
-        if (bad || rename(tmp, points_out) != 0) {
-            remove(tmp);
-            cli_error("cannot write '%s'", points_out);
-            stagecal_calibration_free(&cal);
-            return CLI_EXIT_CANTCREAT;
-        }
+    if (points_out && (rc = write_points(&cal, points_out)) != CLI_EXIT_OK) {
+        stagecal_calibration_free(&cal);
+        return rc;
     }
 
     char path[4096] = "";

@@ -111,15 +111,10 @@ int cmd_plot(int argc, char **argv)
             fputs(usage_text, stdout);
             return CLI_EXIT_OK;
         case O_ALPHA:
-            if (cli_parse_double("alpha", optarg, 0, "a relative volatility > 1", &sys.alpha))
-                return CLI_EXIT_USAGE;
-            break;
         case O_KVALUE:
-            if (cli_parse_double("kvalue", optarg, 0, "a K value > 1", &sys.kvalue))
-                return CLI_EXIT_USAGE;
-            break;
         case O_COLUMN:
-            sys.column_path = optarg;
+            if ((rc = cli_system_option(&sys, opts[c - O_ALPHA].name, optarg)))
+                return rc;
             break;
         case O_XD:
             if (cli_parse_double("xd", optarg, 0, "a mole fraction in (0, 1)", &xd))
