@@ -36,7 +36,6 @@
 
 #define NSTATE 4
 #define MAXAZ 8
-#define PINCH_BISECT 30 /* bisections on the stage count at a pinch (N/2^30) */
 
 enum { EV_TARGET = 0, EV_SWITCH, EV_CEILING, EV_EMPTY, EV_TIME, NEV };
 
@@ -307,28 +306,11 @@ static int col_step(const stagecal_batch_column *col, double xd, double r, doubl
     int rc = stagecal_stages_step(col->vle, xd, r, n, 1.0, NULL, xb, NULL, 0, &len, &status, err);
     if (rc != STAGECAL_OK)
         return rc;
-    if (status == STAGECAL_STAGES_PINCH) {
-        /* The steps stopped making progress: the liquid has reached the pinch of this
-         * operating line to machine precision, so fewer stages reach the same pot.
-         * Recover it as the result of the largest count that still steps (bisection on
-         * the count, from 1 stage, which always steps). */
-        double lo = 1, hi = n, xlo;
-        if ((rc = stagecal_vle_xstar(col->vle, xd, &xlo)))
-            return error_set(err, rc, "x*(y) failed at y = %.17g", xd);
-        for (int it = 0; it < PINCH_BISECT; it++) {
-            double mid = 0.5 * (lo + hi), xm = 0;
-            rc = stagecal_stages_step(col->vle, xd, r, mid, 1.0, NULL, &xm, NULL, 0, &len, &status,
-                                      err);
-            if (rc != STAGECAL_OK)
-                return rc;
-            if (status == STAGECAL_STAGES_OK)
-                lo = mid, xlo = xm;
-            else
-                hi = mid;
-        }
-        *xb = xlo;
+    /* At a pinch the steps stopped making progress: stepping reports the composition
+     * reached, the pinch of this operating line to rounding, which more stages cannot
+     * lower (stages.h). */
+    if (status == STAGECAL_STAGES_PINCH)
         return STAGECAL_OK;
-    }
     if (status != STAGECAL_STAGES_OK)
         return error_set(err, STAGECAL_ENOCONV,
                          "stepping %.6g stages down from xD = %.9g at R = %.6g gave status '%s'", n,
