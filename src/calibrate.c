@@ -230,8 +230,8 @@ static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params
         for (size_t r = 0; r < cal->log->nruns; r++)
             if (cal->log->runs[r].file == k)
                 rows += cal->log->runs[r].n;
-        if ((rc = stagecal_model_hash_file(logs[k], hex, err)) ||
-            (rc = stagecal_model_add_input(mo, logs[k], hex, rows, err)))
+        /* the hash of the bytes the reader parsed, not of a second read of the file */
+        if ((rc = stagecal_model_add_input(mo, logs[k], cal->log->sha256[k], rows, err)))
             return rc;
     }
     stagecal_model_stamp_now(mo);
@@ -310,24 +310,6 @@ int stagecal_calibrate(const char *column_path, const char *const *logs, size_t 
     progress(par, "reading", 0);
     if ((rc = stagecal_column_load(column_path, &cal->column, err)))
         return rc;
-    /* The same log twice would count its windows twice as independent evidence. */
-    if (nlogs > 1) {
-        char(*hex)[STAGECAL_MODEL_HEX] = malloc(nlogs * sizeof *hex);
-        if (!hex)
-            return error_set(err, STAGECAL_ENOMEM, "out of memory");
-        for (size_t k = 0; k < nlogs && rc == STAGECAL_OK; k++) {
-            rc = stagecal_model_hash_file(logs[k], hex[k], err);
-            for (size_t j = 0; j < k && rc == STAGECAL_OK; j++)
-                if (strcmp(hex[j], hex[k]) == 0)
-                    rc = error_set(err, STAGECAL_EDATA,
-                                   "run logs '%s' and '%s' have the same content (SHA-256 "
-                                   "%.12s…): each log may be given once",
-                                   logs[j], logs[k], hex[k]);
-        }
-        free(hex);
-        if (rc != STAGECAL_OK)
-            return rc;
-    }
     cal->log = stagecal_runlog_alloc();
     cal->findings = stagecal_findings_alloc(par->read.max_findings ? par->read.max_findings : 1000);
     if (!cal->log || !cal->findings)

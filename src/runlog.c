@@ -21,6 +21,7 @@
 #include <string.h>
 
 #include "internal.h"
+#include "internal_sha256.h"
 
 /* ---- findings ---------------------------------------------------------------------- */
 
@@ -29,11 +30,6 @@ stagecal_findings *stagecal_findings_alloc(size_t max_items)
     stagecal_findings *f = calloc(1, sizeof *f);
     if (!f)
         return NULL;
-    f->items = calloc(max_items ? max_items : 1, sizeof *f->items);
-    if (!f->items) {
-        free(f);
-        return NULL;
-    }
     f->max_items = max_items ? max_items : 1;
     return f;
 }
@@ -76,6 +72,7 @@ void stagecal_runlog_free(stagecal_runlog *log)
     free(log->run);
     free(log->runs);
     free(log->files);
+    free(log->sha256);
     free(log);
 }
 
@@ -187,6 +184,7 @@ struct reader {
     size_t nmissing[STAGECAL_RL_NCOL];
     long first_missing[STAGECAL_RL_NCOL];
     size_t file_rows;
+    size_t complete_rows; /* rows with time, W, xD, xB and R all present */
 };
 
 static void vfinding(struct reader *rd, int sev, long line, const char *column, const char *fmt,
@@ -201,6 +199,16 @@ static void vfinding(struct reader *rd, int sev, long line, const char *column, 
         f->n_warnings++;
     if (f->n >= f->max_items)
         return;
+    if (f->n == f->cap) { /* a clean log has none: allocate only what arrives */
+        size_t cap = f->cap ? 2 * f->cap : 16;
+        if (cap > f->max_items)
+            cap = f->max_items;
+        stagecal_finding *items = realloc(f->items, cap * sizeof *items);
+        if (!items)
+            return; /* counted, not kept */
+        f->items = items;
+        f->cap = cap;
+    }
     stagecal_finding *it = &f->items[f->n++];
     it->severity = sev;
     it->line = line;
@@ -584,6 +592,8 @@ static void end_row(struct reader *rd)
         return;
     }
     size_t n = log->n++;
+    if (!isnan(t) && !isnan(w) && !isnan(xd) && !isnan(xb) && !isnan(r))
+        rd->complete_rows++;
     log->t_s[n] = t;
     log->w_mol[n] = w;
     log->xd[n] = xd;
@@ -631,12 +641,16 @@ int stagecal_runlog_read_stream(stagecal_runlog *log, FILE *in, const char *sour
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     stagecal_error_clear(err);
     char(*files)[160] = realloc(log->files, (log->nfiles + 1) * sizeof *files);
-    if (!files) {
+    if (files)
+        log->files = files;
+    char(*hashes)[65] = files ? realloc(log->sha256, (log->nfiles + 1) * sizeof *hashes) : NULL;
+    if (!hashes) {
         free(rd);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
-    log->files = files;
+    log->sha256 = hashes;
     snprintf(files[log->nfiles], sizeof files[0], "%s", source);
+    hashes[log->nfiles][0] = '\0';
     rd->file = log->nfiles++;
     rd->log = log;
     rd->col = col;
@@ -656,22 +670,52 @@ int stagecal_runlog_read_stream(stagecal_runlog *log, FILE *in, const char *sour
     char *buf = NULL;
     size_t cap = 0;
     ssize_t len;
+    sha256_ctx hash;
+    sha256_init(&hash);
+    size_t errors_before = f ? f->n_errors : 0;
+    /* A quoted cell may span lines (a notes column written by a spreadsheet); quote_line is
+     * the line where the quoted cell still open at the end of the last line began, 0 when
+     * none is open. libcsv's public 'quoted' member is set from a cell's opening quote
+     * until the cell is submitted, and a line end outside quotes submits it. */
+    long quote_line = 0;
+    int last_nl = 1, parse_failed = 0;
     while (!rd->oom && (len = getline(&buf, &cap, in)) > 0) {
         rd->line++;
+        sha256_update(&hash, buf, (size_t)len);
+        last_nl = buf[len - 1] == '\n';
         if (csv_parse(&p, buf, (size_t)len, on_field, on_row, rd) != (size_t)len) {
             finding(rd, STAGECAL_FINDING_ERROR, rd->line, NULL, "%s", csv_strerror(csv_error(&p)));
+            parse_failed = 1;
             break;
         }
+        if (!p.quoted)
+            quote_line = 0;
+        else if (last_nl && quote_line == 0)
+            quote_line = rd->line;
     }
-    int read_failed = ferror(in);
-    csv_fini(&p, on_field, on_row, rd);
+    int read_failed = ferror(in), read_errno = errno;
+    /* A last line without a line end: end it, so that 'quoted' again means "still open". */
+    if (!read_failed && !parse_failed && !rd->oom && !last_nl &&
+        csv_parse(&p, "\n", 1, on_field, on_row, rd) == 1 && p.quoted && quote_line == 0)
+        quote_line = rd->line;
+    if (!read_failed && !parse_failed && !rd->oom && p.quoted) {
+        fatal(rd, quote_line, NULL,
+              "unterminated quoted field (the '\"' opened on this line is never closed)");
+        csv_fini(&p, NULL, NULL, NULL); /* drop the open cell: it holds the rest of the file */
+    } else {
+        csv_fini(&p, on_field, on_row, rd);
+    }
     csv_free(&p);
     free(buf);
+    unsigned char digest[SHA256_DIGEST];
+    sha256_final(&hash, digest);
+    sha256_to_hex(digest, log->sha256[rd->file]);
     int rc = STAGECAL_OK;
     if (rd->oom) {
         rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
     } else if (read_failed) {
-        rc = error_set_at(err, STAGECAL_ENOINPUT, source, 0, 0, "read error");
+        rc = error_set_at(err, STAGECAL_ENOINPUT, source, 0, 0, "cannot read: %s",
+                          strerror(read_errno));
     } else if (!rd->header_done) {
         fatal(rd, 0, NULL, "no header row (expected time, W, xD, xB, R columns)");
         rc = STAGECAL_EDATA;
@@ -681,6 +725,20 @@ int stagecal_runlog_read_stream(stagecal_runlog *log, FILE *in, const char *sour
         close_run(rd);
         if (rd->file_rows == 0)
             finding(rd, STAGECAL_FINDING_ERROR, 0, NULL, "no data rows");
+        else if (rd->complete_rows == 0 && rd->f && rd->f->n_errors == errors_before)
+            /* (when cells were refused, their errors already say why no row is complete) */
+            finding(rd, STAGECAL_FINDING_ERROR, 0, NULL,
+                    "no row has time, W, xD, xB and R all present (expected at least %zu such "
+                    "rows per run)",
+                    rd->par.min_rows);
+        /* The same bytes twice would count the same runs twice as independent evidence. */
+        for (size_t k = 0; k < rd->file; k++)
+            if (strcmp(log->sha256[k], log->sha256[rd->file]) == 0) {
+                finding(rd, STAGECAL_FINDING_ERROR, 0, NULL,
+                        "same content as '%s' (SHA-256 %.12s…): each log may be given once",
+                        log->files[k], log->sha256[k]);
+                break;
+            }
         for (int i = 0; i < STAGECAL_RL_NCOL; i++)
             if (rd->nmissing[i] && rd->field_of[i] >= 0) {
                 const char *h = rd->hdr[rd->field_of[i]];

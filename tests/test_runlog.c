@@ -172,6 +172,17 @@ static const struct vcase vcases[] = {
     {"no data rows", HDR, 0, 0, 1, 0, "t.csv: no data rows"},
     {"malformed header", "time[h],W[kmol],xD[mol/mol],xB[mol/mol,R[-]\n" ROWS5, 0, STAGECAL_EDATA,
      2, 0, "t.csv:1: header 'xB[mol/mol' is malformed (expected name[unit])"},
+    /* reported where the quote opened, not where the file ends */
+    {"unterminated quote", HDR "0,10,0.95,0.5,4\n0.1,9.9,\"0.95,0.49,4\n0.2,9.8,0.94,0.48,4\n", 0,
+     STAGECAL_EDATA, 1, 0,
+     "t.csv:3: unterminated quoted field (the '\"' opened on this line is never closed)"},
+    {"unterminated quote, no final line end", HDR "0,10,0.95,0.5,4\n0.1,9.9,0.95,\"0.49,4", 0,
+     STAGECAL_EDATA, 1, 0,
+     "t.csv:3: unterminated quoted field (the '\"' opened on this line is never closed)"},
+    {"closed quote, no final line end", HDR ROWS5 "0.5,9.5,0.93,0.45,\"4\"", 0, 0, 0, 0, NULL},
+    {"blank rows", HDR ",,,,\n,,,,\n,,,,\n,,,,\n,,,,\n", 0, 0, 1, 5,
+     "t.csv: no row has time, W, xD, xB and R all present (expected at least 5 such rows per "
+     "run)"},
 };
 
 static void runlog_validation_messages_exact(void **state)
@@ -241,6 +252,61 @@ static void runlog_reads_units_to_si(void **state)
     assert_abs(log->t_top_k[0], 351.45, 1e-12, "C to K");
     assert_int_equal(log->line[4], 6);
     stagecal_findings_free(f);
+    stagecal_runlog_free(log);
+}
+
+/* A quoted cell may hold line ends (a spreadsheet's notes column): rows after it keep
+ * their physical line numbers. */
+static void runlog_multiline_quoted_cell(void **state)
+{
+    (void)state;
+    const char *csv = "time[h],W[kmol],xD[mol/mol],xB[mol/mol],R[-],note\n"
+                      "0,10,0.95,0.5,4,\"start-up\nreflux drum \"\"B\"\"\nrefilled\"\n"
+                      "0.1,9.9,0.95,0.49,4,\n0.2,9.8,0.94,0.48,4,\n0.3,9.7,0.94,0.47,4,\n"
+                      "0.4,9.6,0.93,0.46,4,\n";
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    stagecal_findings *f = stagecal_findings_alloc(10);
+    assert_int_equal(
+        stagecal_runlog_read_buffer(log, csv, strlen(csv), "m.csv", NULL, NULL, f, NULL), 0);
+    assert_int_equal(f->n_errors, 0);
+    assert_int_equal(log->n, 5);
+    assert_int_equal(log->line[0], 4); /* the row ends on line 4 */
+    assert_int_equal(log->line[1], 5);
+    stagecal_findings_free(f);
+    stagecal_runlog_free(log);
+}
+
+/* The reader hashes the bytes it parses; the same bytes twice are refused. */
+static void runlog_hash_and_same_content(void **state)
+{
+    (void)state;
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    stagecal_findings *f = stagecal_findings_alloc(10);
+    /* FIPS 180-4 example "abc" (also NIST CSRC SHA256.pdf), read as a (headerless) log */
+    assert_int_equal(stagecal_runlog_read_buffer(log, "abc", 3, "abc", NULL, NULL, f, NULL),
+                     STAGECAL_EDATA);
+    assert_string_equal(log->sha256[0],
+                        "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad");
+    const char *csv = HDR ROWS5;
+    assert_int_equal(
+        stagecal_runlog_read_buffer(log, csv, strlen(csv), "a.csv", NULL, NULL, f, NULL), 0);
+    size_t before = f->n_errors;
+    assert_int_equal(
+        stagecal_runlog_read_buffer(log, csv, strlen(csv), "b.csv", NULL, NULL, f, NULL), 0);
+    assert_int_equal(f->n_errors, before + 1);
+    assert_non_null(strstr(f->items[f->n - 1].text, "b.csv: same content as 'a.csv' (SHA-256 "));
+    stagecal_findings_free(f);
+    stagecal_runlog_free(log);
+}
+
+/* A directory opens on Linux but cannot be read: the message names the cause. */
+static void runlog_directory_names_cause(void **state)
+{
+    (void)state;
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    stagecal_error e;
+    assert_int_equal(stagecal_runlog_read(log, "/", NULL, NULL, NULL, &e), STAGECAL_ENOINPUT);
+    assert_string_equal(e.text, "/: cannot read: Is a directory");
     stagecal_runlog_free(log);
 }
 
@@ -622,6 +688,9 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(runlog_validation_messages_exact),
         cmocka_unit_test(runlog_missing_file_is_enoinput),
+        cmocka_unit_test(runlog_multiline_quoted_cell),
+        cmocka_unit_test(runlog_hash_and_same_content),
+        cmocka_unit_test(runlog_directory_names_cause),
         cmocka_unit_test(runlog_reads_units_to_si),
         cmocka_unit_test(runlog_rstat_matches_reference_vector),
         cmocka_unit_test(runlog_f_factor_check_value),

@@ -44,12 +44,14 @@ typedef struct {
 typedef struct {
     stagecal_finding *items; /* kept findings, in file order */
     size_t n;                /* number kept */
-    size_t max_items;        /* capacity fixed at alloc */
+    size_t max_items;        /* most kept, fixed at alloc */
+    size_t cap;              /* items allocated: grows on demand up to max_items */
     size_t n_errors;         /* errors seen (kept or not) */
     size_t n_warnings;       /* warnings seen (kept or not) */
 } stagecal_findings;
 
-/* max_items ≥ 1. NULL on allocation failure. Free with stagecal_findings_free. */
+/* max_items ≥ 1 (0 is taken as 1); items are allocated as findings arrive. NULL on
+ * allocation failure. Free with stagecal_findings_free. */
 stagecal_findings *stagecal_findings_alloc(size_t max_items);
 void stagecal_findings_free(stagecal_findings *f); /* NULL ok */
 
@@ -97,6 +99,7 @@ typedef struct {
     stagecal_runlog_run *runs; /* nruns runs, rows contiguous */
     size_t nruns;
     char (*files)[160]; /* nfiles source names */
+    char (*sha256)[65]; /* SHA-256 of each file's bytes as read, lowercase hex */
     size_t nfiles;
     size_t nfiles_iso; /* files whose time column holds ISO 8601 timestamps (absolute) */
 } stagecal_runlog;

@@ -53,7 +53,7 @@ expect_exit 2 "option '--form'" -- "$BIN" calibrate --column "$COL" --form wiggl
 expect_exit 2 "option '--method': 'best' is not a method" -- "$BIN" calibrate --column "$COL" --method best $LOGS
 expect_exit 2 "option '--level': 1.5 is outside (0, 1)" -- "$BIN" calibrate --column "$COL" --level 1.5 $LOGS
 # the same log twice would double the evidence: refused
-expect_exit 65 "have the same content" -- "$BIN" calibrate --column "$COL" --fits "$tmp/f3" --quiet "$ROOT/datasets/demo/logs/2025-01.csv" "$ROOT/datasets/demo/logs/2025-01.csv"
+expect_exit 65 "same content as" --many "$BIN" calibrate --column "$COL" --fits "$tmp/f3" --quiet "$ROOT/datasets/demo/logs/2025-01.csv" "$ROOT/datasets/demo/logs/2025-01.csv"
 # an unwritable fits directory (a file in its place)
 : >"$tmp/notadir"
 expect_exit 73 "" -- "$BIN" calibrate --column "$COL" --fits "$tmp/notadir" --quiet $LOGS
