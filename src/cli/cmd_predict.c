@@ -490,9 +490,11 @@ int cmd_predict(int argc, char **argv)
     if (stagecal_model_load(model_path, &m, &err) != STAGECAL_OK)
         return cli_fail(&err);
     if (m.form.uses_load && isnan(f_load)) {
+        /* the message before the free: the form's name lives in the model */
+        rc = cli_usage_error("the model's form '%s' uses the vapour load: give '--f-factor F'",
+                             m.form.name);
         stagecal_model_free(&m);
-        return cli_usage_error("the model's form '%s' uses the vapour load: give '--f-factor F'",
-                               m.form.name);
+        return rc;
     }
     stagecal_vle *own = NULL;
     if ((rc = open_vle(&sys, &m, model_path, &own))) {

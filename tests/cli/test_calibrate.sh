@@ -31,6 +31,9 @@ MODEL=$("$PY" -c "import json; print(json.load(open('$tmp/j'))['model_file'])")
 cp "$MODEL" "$tmp/model1.json"
 cp "$MODEL" "$tmp/j"
 check "model file: format and version" "d['format'] == 'stagecal-model' and d['version'] == 1"
+# a form with the vapour load: predict from it without --f-factor names the form
+"$BIN" calibrate --column "$COL" --fits "$tmp/f4" --form 'linear:1+1/R+F' --quiet $LOGS >/dev/null
+expect_exit 2 "stagecal predict: the model's form 'linear:1+1/R+F' uses the vapour load: give '--f-factor F'" -- "$BIN" predict --model "$(ls "$tmp"/f4/demo-bt-K-7/*.json)" --charge 25 --xb0 0.5 --boilup 3.6 --reflux 3 --cut pot-x=0.15
 
 # a second calibration never replaces the first
 "$BIN" calibrate --column "$COL" --fits "$tmp/fits" --form saturating --quiet $LOGS >/dev/null
