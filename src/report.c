@@ -21,7 +21,9 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "stagecal/stages.h"
 #include "stagecal/version.h"
+#include "stagecal/vle.h"
 #include "internal.h"
 
 #define MAX_COLS 64
@@ -318,6 +320,11 @@ int stagecal_report_html(const stagecal_report *r, const stagecal_report_params 
             put_items(&b, r->fit_summary, r->n_fit_summary);
         put(&b, "</section>\n");
     }
+    if (r->n_condition > 0 && r->condition) {
+        put(&b, "<section id=\"condition\">\n<h2>Stages at a stated condition</h2>\n");
+        put_items(&b, r->condition, r->n_condition);
+        put(&b, "</section>\n");
+    }
     if (r->n_figures > 0) {
         put(&b, "<section id=\"plots\">\n<h2>Plots</h2>\n");
         for (size_t k = 0; k < r->n_figures && !b.oom; k++) {
@@ -416,7 +423,7 @@ int stagecal_report_write(const stagecal_report *r, const stagecal_report_params
 /* ---- report from a model file ----------------------------------------------------------- */
 
 #define DOC_MAX_ITEMS 24
-#define DOC_MAX_FIGS 4
+#define DOC_MAX_FIGS 4  /* fit, residuals, condition */
 #define DOC_GRID 121    /* points of the fitted curve */
 #define DOC_MAX_WARN 40 /* warnings listed (model's + points outside the envelope) */
 
@@ -425,7 +432,8 @@ struct stagecal_report_doc {
     char **strs; /* every string the report points at */
     size_t n_strs, cap_strs;
     int oom;
-    stagecal_report_item job[DOC_MAX_ITEMS], summary[DOC_MAX_ITEMS], hetp[DOC_MAX_ITEMS];
+    stagecal_report_item job[DOC_MAX_ITEMS], summary[DOC_MAX_ITEMS], hetp[DOC_MAX_ITEMS],
+        cond[DOC_MAX_ITEMS];
     stagecal_report_table inputs, fit;
     const char *in_head[3], *fit_head[4];
     const char **in_cells, **fit_cells, **warn;
@@ -746,5 +754,116 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
     r->figures = d->figs;
     r->n_figures = d->n_charts;
     *out = d;
+    return STAGECAL_OK;
+}
+
+/* xB reached by stepping `stages` equilibrium stages below xd; the status text otherwise. */
+static const char *doc_step_xb(stagecal_report_doc *d, const stagecal_vle *vle, double xd,
+                               double reflux, double stages, double *xb, stagecal_error *err,
+                               int *rc)
+{
+    stagecal_stages_params par = stagecal_stages_default_params();
+    int status = STAGECAL_STAGES_OK;
+    size_t len = 0;
+    stagecal_error e2;
+    stagecal_error_clear(&e2);
+    *xb = NAN;
+    *rc = stagecal_stages_step(vle, xd, reflux, fmax(stages, 1.0), 1.0, &par, xb, NULL, 0, &len,
+                               &status, &e2);
+    if (*rc != STAGECAL_OK) {
+        if (err)
+            *err = e2;
+        return NULL;
+    }
+    if (status != STAGECAL_STAGES_OK) {
+        *xb = NAN;
+        return doc_str(d, "not reached: stepping gave %s (%s)", stagecal_stages_status_name(status),
+                       e2.text);
+    }
+    return doc_str(d, "%.4f", *xb);
+}
+
+int stagecal_report_doc_add_condition(stagecal_report_doc *d, const stagecal_model *m, double xd,
+                                      double reflux, double fload, stagecal_error *err)
+{
+    if (!d || !m)
+        return error_set(err, STAGECAL_EINVAL, "report condition: missing document or model");
+    if (d->rep.n_condition > 0)
+        return error_set(err, STAGECAL_EINVAL, "report condition: the document has one already");
+    if (!(xd > 0 && xd < 1))
+        return error_set(err, STAGECAL_EINVAL,
+                         "report condition: xD %g outside (0, 1) (expected a mole fraction)", xd);
+    if (!(reflux >= 0))
+        return error_set(err, STAGECAL_EINVAL,
+                         "report condition: reflux ratio %g (expected R >= 0 or inf)", reflux);
+    if (m->form.uses_load && !(fload >= 0 && isfinite(fload)))
+        return error_set(err, STAGECAL_EINVAL,
+                         "report condition: the form '%s' uses the vapour load (expected an "
+                         "F-factor >= 0 in Pa^0.5)",
+                         m->form.name);
+    if (!m->form.uses_load && !isnan(fload))
+        return error_set(err, STAGECAL_EINVAL,
+                         "report condition: the form '%s' does not use the vapour load (expected "
+                         "no F-factor)",
+                         m->form.name);
+    if (d->n_charts >= DOC_MAX_FIGS)
+        return error_set(err, STAGECAL_EINVAL, "report condition: no room for another figure");
+    stagecal_model_point p;
+    int rc = stagecal_model_eval(m, reflux, fload, 0, &p, err);
+    if (rc)
+        return rc;
+    stagecal_vle *vle = NULL;
+    if ((rc = stagecal_model_build_vle(m, &vle, err)))
+        return rc;
+
+    size_t n = 0;
+    stagecal_report_item *it = d->cond;
+    const char *at = m->form.uses_load ? doc_str(d, "R = %s, F = %.4g Pa^0.5, xD = %.4f",
+                                                 fmt_r(d, reflux), fload, xd)
+                                       : doc_str(d, "R = %s, xD = %.4f", fmt_r(d, reflux), xd);
+    add_item(it, &n, "condition", at);
+    add_item(it, &n, "stages (the pot included)",
+             doc_str(d, "%.3f (%.0f %% prediction interval %.3f \xe2\x80\x93 %.3f)", p.stages,
+                     100 * m->level, p.pi_low, p.pi_high));
+    double xb = NAN, xb_lo = NAN, xb_hi = NAN;
+    const char *txt = doc_step_xb(d, vle, xd, reflux, p.stages, &xb, err, &rc);
+    if (txt) /* more stages reach a leaner pot: the interval's high end gives the low xB */
+        add_item(it, &n, "pot composition reached, xB", txt);
+    const char *t_lo = txt ? doc_step_xb(d, vle, xd, reflux, p.pi_high, &xb_lo, err, &rc) : NULL;
+    const char *t_hi = t_lo ? doc_step_xb(d, vle, xd, reflux, p.pi_low, &xb_hi, err, &rc) : NULL;
+    if (t_lo && t_hi)
+        add_item(it, &n, "xB over the prediction interval",
+                 isfinite(xb_lo) && isfinite(xb_hi)
+                     ? doc_str(d, "%.4f \xe2\x80\x93 %.4f", xb_lo, xb_hi)
+                     : doc_str(d, "%s \xe2\x80\x93 %s", t_lo, t_hi));
+    add_item(it, &n, "inside the fitted envelope", p.extrapolated ? "no (extrapolated)" : "yes");
+    if (p.extrapolated)
+        add_warning(d, doc_str(d,
+                               "the stated condition (%s) lies outside the fitted envelope: "
+                               "its stage count is extrapolated",
+                               at));
+    if (rc == STAGECAL_OK && isfinite(xb)) {
+        rc = stagecal_plot_mccabe_condition(vle, xd, NAN, reflux, p.stages, 1.0,
+                                            &d->charts[d->n_charts], err);
+        if (rc == STAGECAL_OK) {
+            d->figs[d->n_charts].chart = d->charts[d->n_charts];
+            d->figs[d->n_charts].caption =
+                doc_str(d,
+                        "McCabe\xe2\x80\x93Thiele stepping of the model's %.3f stages at %s on the "
+                        "model's equilibrium (E_MV = 1): the pot reaches xB = %.4f.",
+                        p.stages, at, xb);
+            d->n_charts++;
+        }
+    }
+    stagecal_vle_free(vle);
+    if (rc == STAGECAL_OK && d->oom)
+        rc = error_set(err, STAGECAL_ENOMEM, "out of memory building the report");
+    if (rc)
+        return rc;
+    d->rep.condition = d->cond;
+    d->rep.n_condition = n;
+    d->rep.figures = d->figs;
+    d->rep.n_figures = d->n_charts;
+    d->rep.warnings = d->warn;
     return STAGECAL_OK;
 }

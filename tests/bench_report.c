@@ -204,27 +204,28 @@ int main(int argc, char **argv)
         {"forecast", "below 7.8 stages (product specification) in about 9 months"}};
     const char *warnings[] = {"R = 8.0 lies above the fitted envelope (0.6 \xe2\x80\x93 6.9): "
                               "extrapolation"};
-    stagecal_report rep = {"Stage calibration report \xe2\x80\x94 D-101 (demo)",
-                           "column D-101 \xc2\xb7 fitted 2026-11-30T14:02:11Z",
-                           "Demo data: the site, column, campaigns and numbers are invented.",
-                           job,
-                           sizeof job / sizeof job[0],
-                           &inputs,
-                           findings,
-                           3,
-                           &windows,
-                           &fit,
-                           summary,
-                           2,
-                           figs,
-                           7,
-                           hetp,
-                           2,
-                           trend,
-                           3,
-                           warnings,
-                           1,
-                           NULL};
+    stagecal_report rep = {
+        .title = "Stage calibration report \xe2\x80\x94 D-101 (demo)",
+        .subtitle = "column D-101 \xc2\xb7 fitted 2026-11-30T14:02:11Z",
+        .demo_notice = "Demo data: the site, column, campaigns and numbers are invented.",
+        .job = job,
+        .n_job = sizeof job / sizeof job[0],
+        .inputs = &inputs,
+        .findings = findings,
+        .n_findings = 3,
+        .windows = &windows,
+        .fit = &fit,
+        .fit_summary = summary,
+        .n_fit_summary = 2,
+        .figures = figs,
+        .n_figures = 7,
+        .hetp = hetp,
+        .n_hetp = 2,
+        .trend = trend,
+        .n_trend = 3,
+        .warnings = warnings,
+        .n_warnings = 1,
+    };
 
     double *times = calloc((size_t)repeats, sizeof *times);
     if (!times)

@@ -17,6 +17,7 @@
 #include "stagecal/form.h"
 #include "stagecal/model.h"
 #include "stagecal/report.h"
+#include "stagecal/stages.h"
 #include "testutil.h"
 
 #define OUTDIR STAGECAL_BUILD_DIR "/report_out"
@@ -109,27 +110,30 @@ static void report_full_is_self_contained(void **state)
     const char *warnings[1] = {"R = 9 is outside the envelope"};
     stagecal_report_item hetp[1] = {{"HETP", "0.5 m"}};
     stagecal_report_item trend[1] = {{"loss", "0.1 stages/month"}};
-    stagecal_report r = {"Report \"T\"",
-                         "sub",
-                         "demo: invented",
-                         job,
-                         1,
-                         &tab,
-                         findings,
-                         1,
-                         &tab,
-                         &tab,
-                         job,
-                         1,
-                         figs,
-                         2,
-                         hetp,
-                         1,
-                         trend,
-                         1,
-                         warnings,
-                         1,
-                         "test 1"};
+    stagecal_report_item cond[1] = {{"stages", "7.2"}};
+    stagecal_report r = {.title = "Report \"T\"",
+                         .subtitle = "sub",
+                         .demo_notice = "demo: invented",
+                         .job = job,
+                         .n_job = 1,
+                         .inputs = &tab,
+                         .findings = findings,
+                         .n_findings = 1,
+                         .windows = &tab,
+                         .fit = &tab,
+                         .fit_summary = job,
+                         .n_fit_summary = 1,
+                         .figures = figs,
+                         .n_figures = 2,
+                         .condition = cond,
+                         .n_condition = 1,
+                         .hetp = hetp,
+                         .n_hetp = 1,
+                         .trend = trend,
+                         .n_trend = 1,
+                         .warnings = warnings,
+                         .n_warnings = 1,
+                         .generator = "test 1"};
     char *html = NULL;
     stagecal_error err;
     int rc = stagecal_report_html(&r, NULL, &html, NULL, &err);
@@ -139,7 +143,8 @@ static void report_full_is_self_contained(void **state)
     /* every section present */
     static const char *const present[] = {"id=\"warnings\"", "id=\"job\"",   "id=\"validation\"",
                                           "id=\"windows\"",  "id=\"fit\"",   "id=\"plots\"",
-                                          "id=\"hetp\"",     "id=\"trend\"", "id=\"caution\""};
+                                          "id=\"hetp\"",     "id=\"trend\"", "id=\"caution\"",
+                                          "id=\"condition\""};
     for (size_t i = 0; i < sizeof present / sizeof present[0]; i++)
         assert_non_null(strstr(html, present[i]));
     /* escaped text; no script, no external resource */
@@ -293,6 +298,77 @@ static void report_from_model_fills_sections(void **state)
     stagecal_model_free(&m);
 }
 
+/* The xB an item reports ("0.1234" or "0.1234 – 0.2345": the first number). */
+static double item_xb(const stagecal_report *rep, const char *key)
+{
+    for (size_t i = 0; i < rep->n_condition; i++)
+        if (strcmp(rep->condition[i].key, key) == 0)
+            return strtod(rep->condition[i].value, NULL);
+    fail_msg("no condition item '%s'", key);
+    return NAN;
+}
+
+/* The stated condition: the model's stages stepped on its constant-α equilibrium must
+ * reach the xB that the closed forms give for that many stages: Fenske at total reflux
+ * (REFERENCES §1: N = ln[xD/(1−xD)·(1−xB)/xB] / ln α, solved for xB), Smoker at finite R
+ * (REFERENCES §2, stagecal_smoker checked against its published rows in test_stages.c).
+ * Tolerance 6e-5: the report prints xB with four decimals (half a unit is 5e-5). */
+static void report_condition_matches_closed_forms(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_error err;
+    demo_model(&m);
+    const double alpha = 2.4, xd = 0.95;
+    for (int k = 0; k < 2; k++) {
+        double r = k == 0 ? INFINITY : 3.0;
+        stagecal_report_doc *doc = NULL;
+        assert_int_equal(stagecal_report_from_model(&m, NULL, &doc, &err), STAGECAL_OK);
+        int rc = stagecal_report_doc_add_condition(doc, &m, xd, r, NAN, &err);
+        if (rc)
+            fail_msg("%s", err.text);
+        const stagecal_report *rep = stagecal_report_doc_content(doc);
+        stagecal_model_point p;
+        assert_int_equal(stagecal_model_eval(&m, r, NAN, 0, &p, &err), STAGECAL_OK);
+        double xb = item_xb(rep, "pot composition reached, xB");
+        double xb_lo = item_xb(rep, "xB over the prediction interval");
+        if (k == 0) {
+            double q = xd / (1 - xd) * pow(alpha, -p.stages);
+            assert_abs(xb, q / (1 + q), 6e-5, "Fenske xB at the model's stages");
+            q = xd / (1 - xd) * pow(alpha, -p.pi_high);
+            assert_abs(xb_lo, q / (1 + q), 6e-5, "Fenske xB at the interval's high end");
+            /* R = inf lies above the envelope (r_max = 6): flagged */
+            assert_int_equal(rep->n_warnings, 1);
+            assert_non_null(strstr(rep->warnings[0], "outside the fitted envelope"));
+        } else {
+            double n_back;
+            assert_int_equal(stagecal_smoker(alpha, r, xd, xb, &n_back, &err), STAGECAL_OK);
+            /* dN/dxB is about 60 stages per unit xB here, so 6e-5 in xB is 4e-3 stages */
+            assert_abs(n_back, p.stages, 5e-3, "Smoker stages at the reported xB");
+            assert_int_equal(rep->n_warnings, 0);
+        }
+        assert_true(xb_lo < xb);             /* more stages, leaner pot */
+        assert_int_equal(rep->n_figures, 2); /* the fit, the McCabe–Thiele chart */
+        char *html = NULL;
+        assert_int_equal(stagecal_report_html(rep, NULL, &html, NULL, &err), STAGECAL_OK);
+        assert_non_null(strstr(html, "id=\"condition\""));
+        free(html);
+        /* one condition per document; a load given to a form without it is refused */
+        assert_int_equal(stagecal_report_doc_add_condition(doc, &m, xd, r, NAN, &err),
+                         STAGECAL_EINVAL);
+        stagecal_report_doc_free(doc);
+    }
+    stagecal_report_doc *doc = NULL;
+    assert_int_equal(stagecal_report_from_model(&m, NULL, &doc, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_report_doc_add_condition(doc, &m, xd, 3, 1.2, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text, "report condition: the form 'saturating' does not use the "
+                                  "vapour load (expected no F-factor)");
+    assert_int_equal(stagecal_report_doc_add_condition(doc, &m, 1.5, 3, NAN, &err),
+                     STAGECAL_EINVAL);
+    stagecal_report_doc_free(doc);
+    stagecal_model_free(&m);
+}
+
 /* The CLI end to end: a model file written by the model module, then `report` and
  * `plot` on it (exit codes and files). */
 static void report_cli_writes_files(void **state)
@@ -376,6 +452,7 @@ int main(void)
         cmocka_unit_test(report_refuses_bad_content),
         cmocka_unit_test(report_write_is_atomic),
         cmocka_unit_test(report_from_model_fills_sections),
+        cmocka_unit_test(report_condition_matches_closed_forms),
         cmocka_unit_test(report_cli_writes_files),
     };
     return cmocka_run_group_tests(tests, group_setup, NULL);

@@ -70,6 +70,9 @@ typedef struct {
     const stagecal_report_figure *figures; /* charts, in order */
     size_t n_figures;
 
+    const stagecal_report_item *condition; /* stages and compositions at a stated condition */
+    size_t n_condition;
+
     const stagecal_report_item *hetp; /* HETP with its interval, where the height is known */
     size_t n_hetp;
     const stagecal_report_item *trend; /* trend: loss rate, alarm, forecast */
@@ -118,6 +121,20 @@ typedef struct stagecal_report_doc stagecal_report_doc;
 
 int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_data *points,
                                stagecal_report_doc **out, stagecal_error *err);
+/* Adds the section "Stages at a stated condition" to a document built by
+ * stagecal_report_from_model (same m): the model's stages (the pot included) at reflux
+ * (≥ 0 or INFINITY) and fload (Pa^0.5; NAN for a form without the load, required for one
+ * with it) with the prediction interval at the model's level; the pot composition xB
+ * that this many equilibrium stages (E_MV = 1: the model's stages are effective stages)
+ * reach below a distillate of xd on the model's equilibrium, and the xB range that the
+ * ends of the prediction interval reach; and a McCabe–Thiele chart of that stepping
+ * (appended to the figures). A condition outside the fitted envelope adds a warning
+ * (extrapolation). A stepping that pinches or meets an azeotrope is reported in the
+ * section instead of an xB. Errors: EINVAL (xd outside (0, 1), reflux < 0, a load given
+ * to a form without it or missing for one with it, a second condition), ENOMEM, and the
+ * errors of stagecal_model_eval, stagecal_model_build_vle and the plot module. */
+int stagecal_report_doc_add_condition(stagecal_report_doc *doc, const stagecal_model *m, double xd,
+                                      double reflux, double fload, stagecal_error *err);
 /* The report inside a document (valid until stagecal_report_doc_free). */
 const stagecal_report *stagecal_report_doc_content(const stagecal_report_doc *doc);
 /* Chart k (0-based) of the document, NULL when k is out of range. */

@@ -5,6 +5,7 @@
  * report module (stagecal_report_from_model); this file parses, calls and prints.
  */
 #include <getopt.h>
+#include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -18,7 +19,7 @@
 
 static const char usage_text[] =
     "usage: stagecal report MODEL.json [--points POINTS.csv] [--output OUT.html]\n"
-    "                       [--json] [--quiet]\n"
+    "                       [--xd XD --reflux R|inf [--f-factor F]] [--json] [--quiet]\n"
     "\n"
     "Writes one self-contained HTML report for the calibration in MODEL.json: the job\n"
     "and data provenance (inputs with SHA-256), the fit table, residual sigma and\n"
@@ -29,6 +30,11 @@ static const char usage_text[] =
     "\n"
     "  --points FILE   the points (R,stages[,F,sigma]) to show with the fit; adds a\n"
     "                  residual chart and flags points outside the envelope\n"
+    "  --xd XD, --reflux R|inf, --f-factor F\n"
+    "                  a stated condition: adds the model's stages there with their\n"
+    "                  prediction interval, the pot composition they reach below a\n"
+    "                  distillate of XD and a McCabe-Thiele chart (F in Pa^0.5, for a\n"
+    "                  form that uses the vapour load)\n"
     "  -o, --output F  the HTML file (default: MODEL with .json replaced by .html);\n"
     "                  '-' writes the HTML to standard output (not with --json)\n"
     "  --json          one JSON document on stdout\n"
@@ -54,8 +60,11 @@ static char *default_output(const char *model)
 
 int cmd_report(int argc, char **argv)
 {
-    enum { O_POINTS = 256, O_JSON, O_QUIET };
+    enum { O_POINTS = 256, O_JSON, O_QUIET, O_XD, O_REFLUX, O_FF };
     static const struct option opts[] = {{"points", required_argument, NULL, O_POINTS},
+                                         {"xd", required_argument, NULL, O_XD},
+                                         {"reflux", required_argument, NULL, O_REFLUX},
+                                         {"f-factor", required_argument, NULL, O_FF},
                                          {"output", required_argument, NULL, 'o'},
                                          {"json", no_argument, NULL, O_JSON},
                                          {"quiet", no_argument, NULL, O_QUIET},
@@ -63,6 +72,7 @@ int cmd_report(int argc, char **argv)
                                          {0, 0, 0, 0}};
     const char *points_path = NULL, *output = NULL;
     int json = 0, c, rc;
+    double xd = NAN, reflux = NAN, fload = NAN;
 
     optind = 0;
     opterr = 0;
@@ -76,6 +86,24 @@ int cmd_report(int argc, char **argv)
             break;
         case 'o':
             output = optarg;
+            break;
+        case O_XD:
+            if (cli_parse_double("xd", optarg, 0, "a mole fraction in (0, 1)", &xd) ||
+                cli_check_fraction("xd", xd))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_REFLUX:
+            if (cli_parse_double("reflux", optarg, 1, "a reflux ratio >= 0 or inf", &reflux) ||
+                cli_check_reflux("reflux", reflux))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_FF:
+            if (cli_parse_double("f-factor", optarg, 0, "an F-factor in Pa^0.5", &fload))
+                return CLI_EXIT_USAGE;
+            if (!(fload >= 0))
+                return cli_usage_error("option '--f-factor': %g is negative (expected an "
+                                       "F-factor >= 0 in Pa^0.5)",
+                                       fload);
             break;
         case O_JSON:
             json = 1;
@@ -93,6 +121,10 @@ int cmd_report(int argc, char **argv)
         return cli_usage_error("unexpected argument '%s' (report takes one model file)",
                                argv[optind + 1]);
     const char *model_path = argv[optind];
+    if (isnan(xd) != isnan(reflux))
+        return cli_usage_error("options '--xd' and '--reflux' go together (a stated condition)");
+    if (!isnan(fload) && isnan(xd))
+        return cli_usage_error("option '--f-factor' needs '--xd' and '--reflux'");
     int to_stdout = output && strcmp(output, "-") == 0;
     if (to_stdout && json)
         return cli_usage_error("options '--json' and '--output -' both write to standard output");
@@ -123,6 +155,25 @@ int cmd_report(int argc, char **argv)
     if (rc == STAGECAL_OK) {
         rc = stagecal_report_from_model(&m, have_pts ? &pts : NULL, &doc, &err);
         from_files = 1;
+    }
+    if (rc == STAGECAL_OK && !isnan(xd)) {
+        /* a load that the form does not take (or lacks) is the command line's fault */
+        if (m.form.uses_load && isnan(fload))
+            rc = cli_usage_error("the model's form '%s' uses the vapour load: give "
+                                 "'--f-factor F' with the condition",
+                                 m.form.name);
+        else if (!m.form.uses_load && !isnan(fload))
+            rc = cli_usage_error("the model's form '%s' does not use the vapour load: leave "
+                                 "out '--f-factor'",
+                                 m.form.name);
+        if (rc != STAGECAL_OK) {
+            stagecal_report_doc_free(doc);
+            stagecal_regress_data_free(&pts);
+            stagecal_model_free(&m);
+            free(out_owned);
+            return rc;
+        }
+        rc = stagecal_report_doc_add_condition(doc, &m, xd, reflux, fload, &err);
     }
     if (rc == STAGECAL_OK && to_stdout) {
         char *html = NULL;
