@@ -59,5 +59,6 @@ run predict-load "$S" predict --model "$model" --f-factor 1.3 --charge 25 --xb0 
 run plot-mccabe "$S" plot mccabe --alpha 2.5 --xd 0.95 --reflux 3 --stages 6 --murphree 0.8 -o "$work/d.svg"
 run plot-model "$S" plot model "$model" --points "$work/points.csv" --residuals -o "$work/m.png"
 run report "$S" report "$model" --points "$work/points.csv" --output "$work/r2.html"
+run report-condition "$S" report "$m11" --xd 0.95 --reflux 3 --output "$work/r3.html"
 echo "valgrind-demo: $n commands, $failed failed"
 [ $failed -eq 0 ]
