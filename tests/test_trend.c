@@ -585,6 +585,278 @@ static void trend_cli_reads_fits_folder(void **state)
     assert_int_equal(system(args), 0);
 }
 
+/* ---- fits that share run logs ----------------------------------------------------- */
+
+/* A stand-in SHA-256 for content number k (64 lowercase hex digits). The selection only
+ * compares digests, so any distinct valid digests will do. */
+static void fake_sha(unsigned k, char hex[STAGECAL_MODEL_HEX])
+{
+    snprintf(hex, STAGECAL_MODEL_HEX, "%064x", k);
+}
+
+#define COLUMN_FILE 999u /* content number of the column file (rows = 0 in every fit) */
+
+/* A model in memory fitted at t_s on the run logs with content numbers logs[0..nl),
+ * recorded with the column file first (rows = 0), as calibrate records them. paths may
+ * be NULL (then "logs/<k>.csv"). Only the fields the selection reads are set. */
+static void make_fit(stagecal_model *m, double t_s, const unsigned *logs, size_t nl,
+                     const char *const *paths)
+{
+    char hex[STAGECAL_MODEL_HEX], path[64];
+    stagecal_model_init(m);
+    snprintf(m->column_id, sizeof m->column_id, "K-7");
+    time_t tt = (time_t)t_s;
+    struct tm tm;
+    assert_non_null(gmtime_r(&tt, &tm));
+    assert_true(strftime(m->fitted_utc, sizeof m->fitted_utc, "%Y-%m-%dT%H:%M:%SZ", &tm) > 0);
+    fake_sha(COLUMN_FILE, hex);
+    assert_int_equal(stagecal_model_add_input(m, "columns/K-7.json", hex, 0, NULL), STAGECAL_OK);
+    for (size_t i = 0; i < nl; i++) {
+        fake_sha(logs[i], hex);
+        snprintf(path, sizeof path, "logs/%u.csv", logs[i]);
+        assert_int_equal(stagecal_model_add_input(m, paths ? paths[i] : path, hex, 120, NULL),
+                         STAGECAL_OK);
+    }
+}
+
+static void free_fits(stagecal_model *m, size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        stagecal_model_free(&m[i]);
+}
+
+#define DAY 86400.0
+
+/* The rule (include/stagecal/trend.h), applied by hand to each case below: newest time
+ * of fit first, keep a fit unless a kept fit read one of its run logs (rows > 0). */
+static void trend_select_disjoint_fits_all_kept(void **state)
+{
+    (void)state;
+    stagecal_model m[3];
+    stagecal_trend_selection sel[3];
+    size_t kept = 0;
+    /* Jan, Feb, Mar alone; every fit also read the column file (rows = 0), and Feb's log
+     * has Jan's path but other bytes (a file overwritten): neither counts as shared. */
+    const unsigned jan = 1, feb = 2, mar = 3;
+    const char *same_path[] = {"logs/current.csv"};
+    make_fit(&m[0], T2026 + 31 * DAY, &jan, 1, same_path);
+    make_fit(&m[1], T2026 + 59 * DAY, &feb, 1, same_path);
+    make_fit(&m[2], T2026 + 90 * DAY, &mar, 1, NULL);
+    assert_int_equal(stagecal_trend_select(m, NULL, 3, sel, &kept, NULL), STAGECAL_OK);
+    assert_int_equal(kept, 3);
+    for (size_t i = 0; i < 3; i++)
+        assert_int_equal(sel[i].by, -1);
+    free_fits(m, 3);
+}
+
+static void trend_select_older_quarter_fit_superseded(void **state)
+{
+    (void)state;
+    stagecal_model m[4];
+    stagecal_trend_selection sel[4];
+    size_t kept = 0;
+    /* The quick start: Jan–Mar together (index 0, oldest), then Jan, Feb, Mar alone.
+     * Mar (newest) is kept, then Feb and Jan (disjoint); the quarter shares all three,
+     * the newest kept one among them is Mar (index 3), and its first run log that Mar
+     * read is Mar's, input 3 (inputs: column file, Jan, Feb, Mar). */
+    const unsigned q[] = {1, 2, 3};
+    make_fit(&m[0], T2026 + 100 * DAY, q, 3, NULL);
+    make_fit(&m[1], T2026 + 101 * DAY, &q[0], 1, NULL);
+    make_fit(&m[2], T2026 + 102 * DAY, &q[1], 1, NULL);
+    make_fit(&m[3], T2026 + 103 * DAY, &q[2], 1, NULL);
+    assert_int_equal(stagecal_trend_select(m, NULL, 4, sel, &kept, NULL), STAGECAL_OK);
+    assert_int_equal(kept, 3);
+    assert_int_equal(sel[0].by, 3);
+    assert_int_equal(sel[0].input, 3);
+    assert_string_equal(m[0].inputs[sel[0].input].path, "logs/3.csv");
+    for (size_t i = 1; i < 4; i++)
+        assert_int_equal(sel[i].by, -1);
+    free_fits(m, 4);
+}
+
+static void trend_select_newer_combined_fit_supersedes_monthly(void **state)
+{
+    (void)state;
+    stagecal_model m[4];
+    stagecal_trend_selection sel[4];
+    size_t kept = 0;
+    /* Jan, Feb, Mar alone, then a newer fit of all three (index 3) that names the logs
+     * by other paths: the digest decides. The combined fit is kept; each monthly fit
+     * shares its only log (input 1, after the column file) with it. */
+    const unsigned q[] = {1, 2, 3};
+    const char *moved[] = {"/archive/a.csv", "/archive/b.csv", "/archive/c.csv"};
+    make_fit(&m[0], T2026 + 31 * DAY, &q[0], 1, NULL);
+    make_fit(&m[1], T2026 + 59 * DAY, &q[1], 1, NULL);
+    make_fit(&m[2], T2026 + 90 * DAY, &q[2], 1, NULL);
+    make_fit(&m[3], T2026 + 91 * DAY, q, 3, moved);
+    assert_int_equal(stagecal_trend_select(m, NULL, 4, sel, &kept, NULL), STAGECAL_OK);
+    assert_int_equal(kept, 1);
+    assert_int_equal(sel[3].by, -1);
+    for (size_t i = 0; i < 3; i++) {
+        assert_int_equal(sel[i].by, 3);
+        assert_int_equal(sel[i].input, 1);
+    }
+    free_fits(m, 4);
+}
+
+static void trend_select_only_kept_fits_block(void **state)
+{
+    (void)state;
+    stagecal_model m[4];
+    stagecal_trend_selection sel[4];
+    size_t kept = 0;
+    /* Newest first: A = {Jan, Feb} kept; B = {Feb, Mar} shares Feb with A: set aside
+     * (input 1, Feb, comes first in B); C = {Mar} shares only with B, which was set
+     * aside: kept; D has no run log at all (column file only): kept. */
+    const unsigned a[] = {1, 2}, b[] = {2, 3}, c[] = {3};
+    make_fit(&m[0], T2026 + 40 * DAY, c, 1, NULL);    /* C */
+    make_fit(&m[1], T2026 + 50 * DAY, b, 2, NULL);    /* B */
+    make_fit(&m[2], T2026 + 60 * DAY, a, 2, NULL);    /* A */
+    make_fit(&m[3], T2026 + 10 * DAY, NULL, 0, NULL); /* D */
+    assert_int_equal(stagecal_trend_select(m, NULL, 4, sel, &kept, NULL), STAGECAL_OK);
+    assert_int_equal(kept, 3);
+    assert_int_equal(sel[0].by, -1);
+    assert_int_equal(sel[1].by, 2);
+    assert_int_equal(sel[1].input, 1);
+    assert_int_equal(sel[2].by, -1);
+    assert_int_equal(sel[3].by, -1);
+    free_fits(m, 4);
+}
+
+static void trend_select_ties_follow_the_writer(void **state)
+{
+    (void)state;
+    stagecal_model m[4];
+    stagecal_trend_selection sel[4];
+    size_t kept = 0;
+    /* Four fits of the same log in one second. stagecal_model_write names them NAME,
+     * NAME-2, NAME-3, …, NAME-10 in write order; the names are listed here in byte
+     * order (as a folder listing gives them), where "-10" < "-2" < ".json". The rule
+     * ranks copy 10 newest, so index 0 is kept and the others point to it. */
+    const unsigned jan = 1;
+    const char *names[] = {
+        "fits/K-7/K-7-20260301T000000Z-10.json", "fits/K-7/K-7-20260301T000000Z-2.json",
+        "fits/K-7/K-7-20260301T000000Z-3.json", "fits/K-7/K-7-20260301T000000Z.json"};
+    for (size_t i = 0; i < 4; i++)
+        make_fit(&m[i], T2026 + 59 * DAY, &jan, 1, NULL);
+    assert_int_equal(stagecal_trend_select(m, names, 4, sel, &kept, NULL), STAGECAL_OK);
+    assert_int_equal(kept, 1);
+    assert_int_equal(sel[0].by, -1);
+    for (size_t i = 1; i < 4; i++)
+        assert_int_equal(sel[i].by, 0);
+    /* Without names the higher index is the newer. */
+    assert_int_equal(stagecal_trend_select(m, NULL, 4, sel, &kept, NULL), STAGECAL_OK);
+    assert_int_equal(kept, 1);
+    assert_int_equal(sel[3].by, -1);
+    for (size_t i = 0; i < 3; i++)
+        assert_int_equal(sel[i].by, 3);
+    /* Different stems in one second compare by bytes, the greater newer: "K-7-b" over
+     * "K-7-a" (hand-named files). */
+    const char *other[] = {"K-7-b.json", "K-7-a.json", "K-7-a-2.json", "K-7-a-3.json"};
+    assert_int_equal(stagecal_trend_select(m, other, 4, sel, &kept, NULL), STAGECAL_OK);
+    assert_int_equal(sel[0].by, -1);
+    for (size_t i = 1; i < 4; i++)
+        assert_int_equal(sel[i].by, 0);
+    free_fits(m, 4);
+}
+
+static void trend_select_rejects_bad_time(void **state)
+{
+    (void)state;
+    stagecal_model m[2];
+    stagecal_trend_selection sel[2];
+    stagecal_error e;
+    size_t kept = 7;
+    const unsigned jan = 1;
+    make_fit(&m[0], T2026, &jan, 1, NULL);
+    make_fit(&m[1], T2026, &jan, 1, NULL);
+    assert_int_equal(stagecal_trend_select(m, NULL, 0, sel, &kept, &e), STAGECAL_OK);
+    assert_int_equal(kept, 0);
+    snprintf(m[1].fitted_utc, sizeof m[1].fitted_utc, "yesterday");
+    const char *names[] = {"a.json", "b.json"};
+    assert_int_equal(stagecal_trend_select(m, names, 2, sel, &kept, &e), STAGECAL_EDATA);
+    assert_non_null(strstr(e.text, "b.json: time of fit 'yesterday' is not a timestamp"));
+    free_fits(m, 2);
+}
+
+/* The rule's defining properties on random histories (an oracle that does not replay
+ * the greedy pass): with fits ranked newest first, (1) no two kept fits share a run
+ * log; (2) a set-aside fit's `by` is kept, ranks newer, shares the log `input`, and no
+ * kept fit ranked newer than `by` shares any of its logs; (3) `input` is its first run
+ * log that `by` read. A set satisfying (1) and "every set-aside fit overlaps a newer
+ * kept fit" is unique (induction over the ranking), so these pin the result. */
+static int shares(const stagecal_model *a, size_t ia, const stagecal_model *b)
+{
+    if (a->inputs[ia].rows == 0)
+        return 0;
+    for (size_t j = 0; j < b->n_inputs; j++)
+        if (b->inputs[j].rows > 0 && strcmp(a->inputs[ia].sha256, b->inputs[j].sha256) == 0)
+            return 1;
+    return 0;
+}
+
+static int overlap(const stagecal_model *a, const stagecal_model *b)
+{
+    for (size_t i = 0; i < a->n_inputs; i++)
+        if (shares(a, i, b))
+            return 1;
+    return 0;
+}
+
+static void trend_select_random_histories_satisfy_rule(void **state)
+{
+    (void)state;
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 2385);
+    enum { NF = 10 }; /* fits per history, at most; logs are numbered 1–9 */
+    stagecal_model m[NF];
+    stagecal_trend_selection sel[NF];
+    size_t total_kept = 0, total = 0;
+    for (int rep = 0; rep < 400; rep++) {
+        size_t n = 1 + gsl_rng_uniform_int(rng, NF);
+        for (size_t i = 0; i < n; i++) {
+            unsigned logs[3];
+            size_t nl = gsl_rng_uniform_int(rng, 4); /* 0–3 logs, possibly none */
+            /* distinct within a fit: log k is drawn from its own third of 1–9 */
+            for (size_t k = 0; k < nl; k++)
+                logs[k] = 1 + (unsigned)(k * 3 + gsl_rng_uniform_int(rng, 3));
+            /* distinct times: rank = time; the draw order is not the time order */
+            make_fit(&m[i], T2026 + DAY * (double)((i * 7) % NF), logs, nl, NULL);
+        }
+        size_t kept = 0;
+        assert_int_equal(stagecal_trend_select(m, NULL, n, sel, &kept, NULL), STAGECAL_OK);
+        size_t count = 0;
+        for (size_t i = 0; i < n; i++) {
+            double ti = (double)((i * 7) % NF);
+            if (sel[i].by < 0) {
+                count++;
+                for (size_t j = 0; j < n; j++) /* (1) */
+                    if (j != i && sel[j].by < 0)
+                        assert_false(overlap(&m[i], &m[j]));
+                continue;
+            }
+            size_t b = (size_t)sel[i].by; /* (2) */
+            assert_true(b < n && sel[b].by < 0);
+            assert_true((double)((b * 7) % NF) > ti);
+            assert_true(sel[i].input < m[i].n_inputs && shares(&m[i], sel[i].input, &m[b]));
+            for (size_t j = 0; j < n; j++)
+                if (sel[j].by < 0 && (double)((j * 7) % NF) > (double)((b * 7) % NF))
+                    assert_false(overlap(&m[i], &m[j]));
+            for (size_t k = 0; k < sel[i].input; k++) /* (3) */
+                assert_false(shares(&m[i], k, &m[b]));
+        }
+        assert_int_equal(kept, count);
+        assert_true(kept >= 1);
+        total_kept += kept;
+        total += n;
+        free_fits(m, n);
+    }
+    print_message("random histories: %zu of %zu fits kept\n", total_kept, total);
+    /* The draws must exercise both outcomes, or the checks above prove little. */
+    assert_true(total_kept > total / 5 && total_kept < total);
+    gsl_rng_free(rng);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -598,6 +870,13 @@ int main(void)
         cmocka_unit_test(trend_analyse_splits_at_repack),
         cmocka_unit_test(trend_rejects_bad_arguments),
         cmocka_unit_test(trend_cli_reads_fits_folder),
+        cmocka_unit_test(trend_select_disjoint_fits_all_kept),
+        cmocka_unit_test(trend_select_older_quarter_fit_superseded),
+        cmocka_unit_test(trend_select_newer_combined_fit_supersedes_monthly),
+        cmocka_unit_test(trend_select_only_kept_fits_block),
+        cmocka_unit_test(trend_select_ties_follow_the_writer),
+        cmocka_unit_test(trend_select_rejects_bad_time),
+        cmocka_unit_test(trend_select_random_histories_satisfy_rule),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }

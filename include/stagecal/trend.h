@@ -53,6 +53,40 @@ typedef struct {
 int stagecal_trend_point_from_model(const stagecal_model *m, double r, double f_load, int want_hetp,
                                     stagecal_trend_point *out, stagecal_error *err);
 
+/* ---- fits that share run logs ---------------------------------------------------------- */
+
+/* What the selection decided for one model file. */
+typedef struct {
+    long by;      /* −1: kept (a point of the trend); otherwise the index of the accepted,
+                     newer fit that supersedes this one */
+    size_t input; /* when by ≥ 0: index into this model's inputs[] of the shared run log,
+                     the first of its run logs (in its own order) that fit `by` also read */
+} stagecal_trend_selection;
+
+/* Sets aside fits that re-use run logs of a newer fit, so that no log is counted twice
+ * in a trend (two fits on the same logs have correlated errors; docs/hetp-trend.md).
+ *
+ * Rule: the n fits are considered in order of time of fit (fitted_utc), newest first.
+ * A fit is accepted when none of its run logs is a run log of an already accepted fit;
+ * otherwise it is superseded by the newest accepted fit that shares a log. A run log is
+ * an input with rows > 0, identified by its SHA-256 (the path is not compared); inputs
+ * with rows = 0 (the column file) never count. A fit without run logs is always kept.
+ * Only accepted fits block older ones: a superseded fit's other logs stay free.
+ *
+ * Ties in time of fit (fitted_utc has whole seconds) are broken by file name: names[i]
+ * is the file of models[i] (directories and a ".json" ending are ignored). A name of
+ * the writer's form STEM-N (N decimal digits, up to 9) counts as copy N of STEM and a
+ * name without such a suffix as copy 1, so STEM, STEM-2, …, STEM-10 rank as the model
+ * writer numbers files fitted within one second (stagecal_model_write): the higher copy
+ * is the newer. Different stems, or equal (stem, N), compare by bytes (strcmp), the
+ * greater counted newer. names may be NULL: ties then rank by index, the higher newer.
+ *
+ * out holds n entries; *n_kept (may be NULL) counts the kept fits, ≥ 1 when n ≥ 1.
+ * n = 0 is no work. EDATA when a fitted_utc is not a timestamp (message names the
+ * fit); ENOMEM. */
+int stagecal_trend_select(const stagecal_model *models, const char *const *names, size_t n,
+                          stagecal_trend_selection *out, size_t *n_kept, stagecal_error *err);
+
 /* A weighted straight line value(t) = a + b·(t − t0_s). */
 typedef struct {
     size_t n;             /* points used, ≥ 3 */

@@ -3,8 +3,9 @@
  * fits/<column>/ evaluated at a reference condition, in date order, with the weighted
  * trend in stages per month, an EWMA chart with its alarms, and the forecast date on
  * which the stages fall below a requirement; repack/maintenance events split the
- * history. Several columns give one comparable row each (the fleet view). The
- * numerics live in the trend and hetp modules.
+ * history. Several columns give one comparable row each (the fleet view). Fits that
+ * re-use a newer fit's run logs are set aside first (stagecal_trend_select; --all-fits
+ * keeps them). The numerics live in the trend and hetp modules.
  */
 #include <dirent.h>
 #include <errno.h>
@@ -25,7 +26,8 @@
 static const char usage_text[] =
     "usage: stagecal trend COLUMN... --reflux R|inf [--fload F] [--fits DIR]\n"
     "                      [--events FILE] [--require N] [--level P] [--lambda W]\n"
-    "                      [--limit L] [--baseline-n K] [--baseline N] [--json] [--quiet]\n"
+    "                      [--limit L] [--baseline-n K] [--baseline N] [--all-fits]\n"
+    "                      [--json] [--quiet]\n"
     "\n"
     "Reads every model file under DIR/COLUMN/ and evaluates the stages (the pot included)\n"
     "at reflux ratio R (and F-factor F), each with its confidence interval, and HETP\n"
@@ -37,6 +39,10 @@ static const char usage_text[] =
     "Repack and maintenance events (docs/events-file.md) start new segments; the chart\n"
     "restarts in each and the current segment drives the forecast. With several\n"
     "columns the output is one row per column.\n"
+    "Fits that share run logs are not counted twice: newest time of fit first, a fit\n"
+    "is kept when none of its run logs (by SHA-256; the column file does not count)\n"
+    "was read by a kept fit, and is set aside with a warning otherwise. Ties in time\n"
+    "of fit go to the file written later (NAME-2.json after NAME.json).\n"
     "\n"
     "  --reflux R        reference reflux ratio, >= 0 or 'inf'\n"
     "  --fload F         reference F-factor [Pa^0.5] (needed when a form uses it)\n"
@@ -48,11 +54,20 @@ static const char usage_text[] =
     "  --limit L         EWMA limit width in sigma (2.962: in-control ARL 500 with 0.2)\n"
     "  --baseline-n K    fits at the start of each segment that set the baseline (3)\n"
     "  --baseline N      known baseline stages for the current segment (e.g. acceptance)\n"
+    "  --all-fits        every model file is a point, shared run logs or not\n"
     "  --json            one JSON document on stdout\n"
     "  --quiet           no warnings on stderr\n"
     "  -h, --help        this text\n"
     "\n"
     "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n";
+
+/* Where one set-aside fit's data went: the newer fit that supersedes it. */
+struct superseded {
+    char path[1024];     /* the set-aside model file */
+    char by[1024];       /* the newer, accepted model file */
+    char log_path[1024]; /* one shared run log, as the set-aside fit recorded it */
+    char sha256[STAGECAL_MODEL_HEX];
+};
 
 /* Per model file, beside the trend point: what is shown but not fitted. */
 struct extra {
@@ -69,7 +84,9 @@ struct column {
     const char *id;
     stagecal_trend_point *pts;
     struct extra *ex;
-    size_t n;
+    size_t n;               /* fits in the trend */
+    struct superseded *sup; /* fits set aside */
+    size_t n_sup;
     stagecal_trend_history h;
 };
 
@@ -139,8 +156,25 @@ nomem:
     return CLI_EXIT_SOFTWARE;
 }
 
+static void free_models(stagecal_model *models, size_t n)
+{
+    if (!models)
+        return;
+    for (size_t i = 0; i < n; i++)
+        stagecal_model_free(&models[i]);
+    free(models);
+}
+
+static const char *base_name(const char *path)
+{
+    const char *s = strrchr(path, '/');
+    return s ? s + 1 : path;
+}
+
+/* Loads every model file of the column, sets aside fits that re-use a newer fit's run
+ * logs (unless all_fits), and evaluates the kept ones at the reference condition. */
 static int load_column(struct column *col, const char *fits, double reflux, double fload,
-                       double level)
+                       double level, int all_fits)
 {
     char dir[1024];
     if ((size_t)snprintf(dir, sizeof dir, "%s/%s", fits, col->id) >= sizeof dir) {
@@ -152,41 +186,61 @@ static int load_column(struct column *col, const char *fits, double reflux, doub
     int rc = list_models(dir, &names, &n);
     if (rc)
         return rc;
+    stagecal_model *models = calloc(n, sizeof *models);
+    stagecal_trend_selection *sel = calloc(n, sizeof *sel);
     col->pts = calloc(n, sizeof *col->pts);
     col->ex = calloc(n, sizeof *col->ex);
-    if (!col->pts || !col->ex) {
+    col->sup = calloc(n, sizeof *col->sup);
+    if (!models || !sel || !col->pts || !col->ex || !col->sup) {
+        free(models);
+        free(sel);
         free_names(names, n);
         cli_error("out of memory for %zu model files", n);
         return CLI_EXIT_SOFTWARE;
     }
-    stagecal_model m;
-    stagecal_model_init(&m);
+    for (size_t i = 0; i < n; i++)
+        stagecal_model_init(&models[i]);
     stagecal_error err;
     stagecal_error_clear(&err);
     for (size_t i = 0; i < n && rc == 0; i++) {
-        struct extra *x = &col->ex[i];
+        if (stagecal_model_load(names[i], &models[i], &err) != STAGECAL_OK) {
+            rc = cli_fail(&err);
+        } else if (strcmp(models[i].column_id, col->id) != 0) {
+            cli_error("%s: column id '%s' does not match its folder '%s'", names[i],
+                      models[i].column_id, col->id);
+            rc = CLI_EXIT_DATA;
+        }
+    }
+    if (rc == 0 && !all_fits &&
+        stagecal_trend_select(models, (const char *const *)names, n, sel, NULL, &err) !=
+            STAGECAL_OK)
+        rc = cli_fail_data(&err);
+    for (size_t i = 0; i < n && rc == 0; i++) {
+        const stagecal_model *m = &models[i];
+        if (!all_fits && sel[i].by >= 0) {
+            struct superseded *s = &col->sup[col->n_sup++];
+            const stagecal_model_input *in = &m->inputs[sel[i].input];
+            snprintf(s->path, sizeof s->path, "%s", names[i]);
+            snprintf(s->by, sizeof s->by, "%s", names[sel[i].by]);
+            snprintf(s->log_path, sizeof s->log_path, "%s", in->path);
+            snprintf(s->sha256, sizeof s->sha256, "%s", in->sha256);
+            cli_warn("%s: superseded by the newer fit %s, which shares the run log '%s' "
+                     "(sha256 %.12s...); set aside from the trend (--all-fits counts every fit)",
+                     s->path, s->by, s->log_path, s->sha256);
+            continue;
+        }
+        struct extra *x = &col->ex[col->n];
         stagecal_hetp_stages s;
         snprintf(x->path, sizeof x->path, "%s", names[i]);
-        int st = stagecal_model_load(names[i], &m, &err);
-        if (st != STAGECAL_OK) {
-            rc = cli_fail(&err);
-            break;
-        }
-        if (m.form.uses_load && isnan(fload)) {
+        if (m->form.uses_load && isnan(fload)) {
             rc = cli_usage_error("%s: form '%s' uses the vapour load: option '--fload F' is "
                                  "required (F-factor in Pa^0.5)",
-                                 names[i], m.form.name);
+                                 names[i], m->form.name);
             break;
         }
-        if (strcmp(m.column_id, col->id) != 0) {
-            cli_error("%s: column id '%s' does not match its folder '%s'", names[i], m.column_id,
-                      col->id);
-            rc = CLI_EXIT_DATA;
-            break;
-        }
-        st = stagecal_trend_point_from_model(&m, reflux, fload, 0, &col->pts[i], &err);
+        int st = stagecal_trend_point_from_model(m, reflux, fload, 0, &col->pts[col->n], &err);
         if (st == STAGECAL_OK)
-            st = stagecal_model_eval(&m, reflux, fload, level, &x->pt, &err);
+            st = stagecal_model_eval(m, reflux, fload, level, &x->pt, &err);
         if (st != STAGECAL_OK) { /* options checked already: the model file's content */
             rc = cli_fail_data(&err);
             break;
@@ -195,17 +249,18 @@ static int load_column(struct column *col, const char *fits, double reflux, doub
             cli_warn("%s: the reference condition lies outside the fitted envelope "
                      "(extrapolation)",
                      names[i]);
-        snprintf(x->fitted_utc, sizeof x->fitted_utc, "%s", m.fitted_utc);
-        x->dof = m.dof;
-        if (m.has_hetp &&
-            stagecal_hetp_stages_from_model(&m, reflux, fload, &s, NULL, &err) == STAGECAL_OK &&
-            stagecal_hetp_compute(m.height_m, &s, level, &x->hetp, &err) == STAGECAL_OK) {
+        snprintf(x->fitted_utc, sizeof x->fitted_utc, "%s", m->fitted_utc);
+        x->dof = m->dof;
+        if (m->has_hetp &&
+            stagecal_hetp_stages_from_model(m, reflux, fload, &s, NULL, &err) == STAGECAL_OK &&
+            stagecal_hetp_compute(m->height_m, &s, level, &x->hetp, &err) == STAGECAL_OK) {
             x->has_hetp = 1;
-            x->height_m = m.height_m;
+            x->height_m = m->height_m;
         }
         col->n++;
     }
-    stagecal_model_free(&m);
+    free_models(models, n);
+    free(sel);
     free_names(names, n);
     return rc;
 }
@@ -273,6 +328,14 @@ static json_t *column_json(const struct column *col, const stagecal_trend_event 
         json_array_append_new(fits, f);
     }
     json_object_set_new(o, "fits", fits);
+    json_t *sup = json_array();
+    for (size_t i = 0; i < col->n_sup; i++) {
+        const struct superseded *s = &col->sup[i];
+        json_array_append_new(sup,
+                              json_pack("{s:s, s:s, s:{s:s, s:s}}", "path", s->path, "by", s->by,
+                                        "shared_input", "path", s->log_path, "sha256", s->sha256));
+    }
+    json_object_set_new(o, "superseded", sup);
     json_t *segs = json_array();
     for (size_t s = 0; s < h->n_segments; s++) {
         const stagecal_trend_segment *g = &h->segments[s];
@@ -313,7 +376,10 @@ static void print_column(const struct column *col, const stagecal_trend_event *e
     const stagecal_trend_history *h = &col->h;
     const double M = STAGECAL_TREND_MONTH_S;
     char d[32], d1[32], d2[32];
-    printf("column %s: %zu fits\n", col->id, h->n);
+    printf("column %s: %zu fits", col->id, h->n);
+    if (col->n_sup > 0)
+        printf(" (%zu more set aside: they share run logs with a newer fit)", col->n_sup);
+    printf("\n");
     printf("  %-10s %8s %19s %19s %3s %7s %s\n", "date", "stages", "CI", "HETP [m] (CI)", "seg",
            "EWMA", "alarm");
     for (size_t i = 0; i < h->n; i++) {
@@ -353,6 +419,9 @@ static void print_column(const struct column *col, const stagecal_trend_event *e
             printf("  EWMA alarms: none\n");
         }
     }
+    for (size_t i = 0; i < col->n_sup; i++)
+        printf("set aside: %s, superseded by %s (shared run log %s)\n", base_name(col->sup[i].path),
+               base_name(col->sup[i].by), col->sup[i].log_path);
     if (h->has_forecast) {
         const stagecal_trend_forecast *fc = &h->forecast;
         format_date(fc->t_cross_s, d, sizeof d);
@@ -409,6 +478,7 @@ int cmd_trend(int argc, char **argv)
         O_LIMIT,
         O_BASELINE_N,
         O_BASELINE,
+        O_ALL_FITS,
         O_JSON,
         O_QUIET
     };
@@ -422,6 +492,7 @@ int cmd_trend(int argc, char **argv)
                                          {"limit", required_argument, NULL, O_LIMIT},
                                          {"baseline-n", required_argument, NULL, O_BASELINE_N},
                                          {"baseline", required_argument, NULL, O_BASELINE},
+                                         {"all-fits", no_argument, NULL, O_ALL_FITS},
                                          {"json", no_argument, NULL, O_JSON},
                                          {"quiet", no_argument, NULL, O_QUIET},
                                          {"help", no_argument, NULL, 'h'},
@@ -430,7 +501,7 @@ int cmd_trend(int argc, char **argv)
     double reflux = NAN, fload = NAN;
     const char *fits = "fits", *events_path = NULL;
     long baseline_n = (long)par.baseline_n;
-    int json = 0, c, rc;
+    int json = 0, all_fits = 0, c, rc;
 
     optind = 0;
     opterr = 0;
@@ -476,6 +547,9 @@ int cmd_trend(int argc, char **argv)
         case O_BASELINE:
             if (cli_parse_double("baseline", optarg, 0, "a number of stages", &par.baseline))
                 return CLI_EXIT_USAGE;
+            break;
+        case O_ALL_FITS:
+            all_fits = 1;
             break;
         case O_JSON:
             json = 1;
@@ -529,7 +603,7 @@ int cmd_trend(int argc, char **argv)
     rc = 0;
     for (size_t i = 0; i < ncol && rc == 0; i++) {
         cols[i].id = argv[optind + (int)i];
-        rc = load_column(&cols[i], fits, reflux, fload, par.level);
+        rc = load_column(&cols[i], fits, reflux, fload, par.level, all_fits);
         if (rc == 0 && stagecal_trend_analyse(cols[i].pts, cols[i].n, ev, nev, cols[i].id, &par,
                                               &cols[i].h, &err) != STAGECAL_OK)
             rc = cli_fail_data(&err);
@@ -569,6 +643,13 @@ int cmd_trend(int argc, char **argv)
             doc, "time_of_fit",
             json_string(
                 "each point is dated by its model file's data_last_utc (fitted_utc when absent)"));
+        json_object_set_new(
+            doc, "selection",
+            json_pack("{s:s, s:s}", "rule", all_fits ? "all-fits" : "newest-wins", "description",
+                      all_fits ? "every model file is a point (--all-fits)"
+                               : "newest fit first; a fit that shares a run log (SHA-256, "
+                                 "rows > 0) with a kept newer fit is set aside "
+                                 "(columns[].superseded)"));
         json_t *arr = json_array();
         for (size_t i = 0; i < ncol; i++)
             json_array_append_new(arr, column_json(&cols[i], ev));
@@ -588,6 +669,10 @@ int cmd_trend(int argc, char **argv)
                "loss/month (CI)", "forecast date [band]", "alarms");
         for (size_t i = 0; i < ncol; i++)
             print_fleet_row(&cols[i], pct);
+        for (size_t i = 0; i < ncol; i++)
+            if (cols[i].n_sup > 0)
+                printf("column %s: %zu set aside (they share run logs with a newer fit)\n",
+                       cols[i].id, cols[i].n_sup);
     }
     rc = CLI_EXIT_OK;
 done:
@@ -595,6 +680,7 @@ done:
         stagecal_trend_history_free(&cols[i].h);
         free(cols[i].pts);
         free(cols[i].ex);
+        free(cols[i].sup);
     }
     free(cols);
     free(ev);
