@@ -783,8 +783,9 @@ static const char *doc_step_xb(stagecal_report_doc *d, const stagecal_vle *vle, 
     return doc_str(d, "%.4f", *xb);
 }
 
-int stagecal_report_doc_add_condition(stagecal_report_doc *d, const stagecal_model *m, double xd,
-                                      double reflux, double fload, stagecal_error *err)
+int stagecal_report_doc_add_condition(stagecal_report_doc *d, const stagecal_model *m,
+                                      const stagecal_vle *given, double xd, double reflux,
+                                      double fload, stagecal_error *err)
 {
     if (!d || !m)
         return error_set(err, STAGECAL_EINVAL, "report condition: missing document or model");
@@ -812,9 +813,10 @@ int stagecal_report_doc_add_condition(stagecal_report_doc *d, const stagecal_mod
     int rc = stagecal_model_eval(m, reflux, fload, 0, &p, err);
     if (rc)
         return rc;
-    stagecal_vle *vle = NULL;
-    if ((rc = stagecal_model_build_vle(m, &vle, err)))
+    stagecal_vle *own = NULL;
+    if (!given && (rc = stagecal_model_build_vle(m, &own, err)))
         return rc;
+    const stagecal_vle *vle = given ? given : own;
 
     size_t n = 0;
     stagecal_report_item *it = d->cond;
@@ -855,7 +857,7 @@ int stagecal_report_doc_add_condition(stagecal_report_doc *d, const stagecal_mod
             d->n_charts++;
         }
     }
-    stagecal_vle_free(vle);
+    stagecal_vle_free(own);
     if (rc == STAGECAL_OK && d->oom)
         rc = error_set(err, STAGECAL_ENOMEM, "out of memory building the report");
     if (rc)

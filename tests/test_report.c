@@ -324,7 +324,7 @@ static void report_condition_matches_closed_forms(void **state)
         double r = k == 0 ? INFINITY : 3.0;
         stagecal_report_doc *doc = NULL;
         assert_int_equal(stagecal_report_from_model(&m, NULL, &doc, &err), STAGECAL_OK);
-        int rc = stagecal_report_doc_add_condition(doc, &m, xd, r, NAN, &err);
+        int rc = stagecal_report_doc_add_condition(doc, &m, NULL, xd, r, NAN, &err);
         if (rc)
             fail_msg("%s", err.text);
         const stagecal_report *rep = stagecal_report_doc_content(doc);
@@ -354,16 +354,17 @@ static void report_condition_matches_closed_forms(void **state)
         assert_non_null(strstr(html, "id=\"condition\""));
         free(html);
         /* one condition per document; a load given to a form without it is refused */
-        assert_int_equal(stagecal_report_doc_add_condition(doc, &m, xd, r, NAN, &err),
+        assert_int_equal(stagecal_report_doc_add_condition(doc, &m, NULL, xd, r, NAN, &err),
                          STAGECAL_EINVAL);
         stagecal_report_doc_free(doc);
     }
     stagecal_report_doc *doc = NULL;
     assert_int_equal(stagecal_report_from_model(&m, NULL, &doc, &err), STAGECAL_OK);
-    assert_int_equal(stagecal_report_doc_add_condition(doc, &m, xd, 3, 1.2, &err), STAGECAL_EINVAL);
+    assert_int_equal(stagecal_report_doc_add_condition(doc, &m, NULL, xd, 3, 1.2, &err),
+                     STAGECAL_EINVAL);
     assert_string_equal(err.text, "report condition: the form 'saturating' does not use the "
                                   "vapour load (expected no F-factor)");
-    assert_int_equal(stagecal_report_doc_add_condition(doc, &m, 1.5, 3, NAN, &err),
+    assert_int_equal(stagecal_report_doc_add_condition(doc, &m, NULL, 1.5, 3, NAN, &err),
                      STAGECAL_EINVAL);
     stagecal_report_doc_free(doc);
     stagecal_model_free(&m);

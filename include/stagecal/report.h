@@ -20,6 +20,7 @@
 #include "stagecal/model.h"
 #include "stagecal/plot.h"
 #include "stagecal/regress.h"
+#include "stagecal/vle.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -126,15 +127,17 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
  * (≥ 0 or INFINITY) and fload (Pa^0.5; NAN for a form without the load, required for one
  * with it) with the prediction interval at the model's level; the pot composition xB
  * that this many equilibrium stages (E_MV = 1: the model's stages are effective stages)
- * reach below a distillate of xd on the model's equilibrium, and the xB range that the
+ * reach below a distillate of xd on the equilibrium (vle, borrowed; NULL: the one the
+ * model file records, stagecal_model_build_vle), and the xB range that the
  * ends of the prediction interval reach; and a McCabe–Thiele chart of that stepping
  * (appended to the figures). A condition outside the fitted envelope adds a warning
  * (extrapolation). A stepping that pinches or meets an azeotrope is reported in the
  * section instead of an xB. Errors: EINVAL (xd outside (0, 1), reflux < 0, a load given
  * to a form without it or missing for one with it, a second condition), ENOMEM, and the
  * errors of stagecal_model_eval, stagecal_model_build_vle and the plot module. */
-int stagecal_report_doc_add_condition(stagecal_report_doc *doc, const stagecal_model *m, double xd,
-                                      double reflux, double fload, stagecal_error *err);
+int stagecal_report_doc_add_condition(stagecal_report_doc *doc, const stagecal_model *m,
+                                      const stagecal_vle *vle, double xd, double reflux,
+                                      double fload, stagecal_error *err);
 /* The report inside a document (valid until stagecal_report_doc_free). */
 const stagecal_report *stagecal_report_doc_content(const stagecal_report_doc *doc);
 /* Chart k (0-based) of the document, NULL when k is out of range. */

@@ -13,13 +13,15 @@
 #include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "stagecal/column.h"
 #include "stagecal/model.h"
 #include "stagecal/regress.h"
 #include "stagecal/report.h"
 
 static const char usage_text[] =
     "usage: stagecal report MODEL.json [--points POINTS.csv] [--output OUT.html]\n"
-    "                       [--xd XD --reflux R|inf [--f-factor F]] [--json] [--quiet]\n"
+    "                       [--xd XD --reflux R|inf [--f-factor F] [--column FILE]]\n"
+    "                       [--json] [--quiet]\n"
     "\n"
     "Writes one self-contained HTML report for the calibration in MODEL.json: the job\n"
     "and data provenance (inputs with SHA-256), the fit table, residual sigma and\n"
@@ -35,6 +37,8 @@ static const char usage_text[] =
     "                  prediction interval, the pot composition they reach below a\n"
     "                  distillate of XD and a McCabe-Thiele chart (F in Pa^0.5, for a\n"
     "                  form that uses the vapour load)\n"
+    "  --column FILE   the equilibrium for the condition from this column file (for a\n"
+    "                  model file that does not record it; same column id)\n"
     "  -o, --output F  the HTML file (default: MODEL with .json replaced by .html);\n"
     "                  '-' writes the HTML to standard output (not with --json)\n"
     "  --json          one JSON document on stdout\n"
@@ -60,17 +64,18 @@ static char *default_output(const char *model)
 
 int cmd_report(int argc, char **argv)
 {
-    enum { O_POINTS = 256, O_JSON, O_QUIET, O_XD, O_REFLUX, O_FF };
+    enum { O_POINTS = 256, O_JSON, O_QUIET, O_XD, O_REFLUX, O_FF, O_COLUMN };
     static const struct option opts[] = {{"points", required_argument, NULL, O_POINTS},
                                          {"xd", required_argument, NULL, O_XD},
                                          {"reflux", required_argument, NULL, O_REFLUX},
                                          {"f-factor", required_argument, NULL, O_FF},
+                                         {"column", required_argument, NULL, O_COLUMN},
                                          {"output", required_argument, NULL, 'o'},
                                          {"json", no_argument, NULL, O_JSON},
                                          {"quiet", no_argument, NULL, O_QUIET},
                                          {"help", no_argument, NULL, 'h'},
                                          {0, 0, 0, 0}};
-    const char *points_path = NULL, *output = NULL;
+    const char *points_path = NULL, *output = NULL, *column_path = NULL;
     int json = 0, c, rc;
     double xd = NAN, reflux = NAN, fload = NAN;
 
@@ -96,6 +101,9 @@ int cmd_report(int argc, char **argv)
             if (cli_parse_double("reflux", optarg, 1, "a reflux ratio >= 0 or inf", &reflux) ||
                 cli_check_reflux("reflux", reflux))
                 return CLI_EXIT_USAGE;
+            break;
+        case O_COLUMN:
+            column_path = optarg;
             break;
         case O_FF:
             if (cli_parse_double("f-factor", optarg, 0, "an F-factor in Pa^0.5", &fload))
@@ -125,6 +133,9 @@ int cmd_report(int argc, char **argv)
         return cli_usage_error("options '--xd' and '--reflux' go together (a stated condition)");
     if (!isnan(fload) && isnan(xd))
         return cli_usage_error("option '--f-factor' needs '--xd' and '--reflux'");
+    if (column_path && isnan(xd))
+        return cli_usage_error("option '--column' needs '--xd' and '--reflux' (it gives the "
+                               "condition's equilibrium)");
     int to_stdout = output && strcmp(output, "-") == 0;
     if (to_stdout && json)
         return cli_usage_error("options '--json' and '--output -' both write to standard output");
@@ -173,7 +184,26 @@ int cmd_report(int argc, char **argv)
             free(out_owned);
             return rc;
         }
-        rc = stagecal_report_doc_add_condition(doc, &m, xd, reflux, fload, &err);
+        stagecal_column col;
+        int have_col = 0;
+        if (column_path && (rc = stagecal_column_load(column_path, &col, &err)) == STAGECAL_OK) {
+            have_col = 1;
+            if (strcmp(col.id, m.column_id) != 0) {
+                cli_error("column file '%s' is for column '%s', the model for '%s'", column_path,
+                          col.id, m.column_id);
+                stagecal_column_free(&col);
+                stagecal_report_doc_free(doc);
+                stagecal_regress_data_free(&pts);
+                stagecal_model_free(&m);
+                free(out_owned);
+                return CLI_EXIT_DATA;
+            }
+        }
+        if (rc == STAGECAL_OK)
+            rc = stagecal_report_doc_add_condition(doc, &m, have_col ? col.system.vle : NULL, xd,
+                                                   reflux, fload, &err);
+        if (have_col)
+            stagecal_column_free(&col);
     }
     if (rc == STAGECAL_OK && to_stdout) {
         char *html = NULL;
