@@ -717,7 +717,8 @@ int stagecal_runlog_read_stream(stagecal_runlog *log, FILE *in, const char *sour
         rc = error_set_at(err, STAGECAL_ENOINPUT, source, 0, 0, "cannot read: %s",
                           strerror(read_errno));
     } else if (!rd->header_done) {
-        fatal(rd, 0, NULL, "no header row (expected time, W, xD, xB, R columns)");
+        if (!rd->fatal) /* (an unterminated quote in the header has said why already) */
+            fatal(rd, 0, NULL, "no header row (expected time, W, xD, xB, R columns)");
         rc = STAGECAL_EDATA;
     } else if (rd->fatal) {
         rc = STAGECAL_EDATA;

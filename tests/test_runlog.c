@@ -179,6 +179,9 @@ static const struct vcase vcases[] = {
     {"unterminated quote, no final line end", HDR "0,10,0.95,0.5,4\n0.1,9.9,0.95,\"0.49,4", 0,
      STAGECAL_EDATA, 1, 0,
      "t.csv:3: unterminated quoted field (the '\"' opened on this line is never closed)"},
+    {"unterminated quote in the header", "time[h],\"W[kmol],xD[mol/mol],xB[mol/mol],R[-]\n" ROWS5,
+     0, STAGECAL_EDATA, 1, 0,
+     "t.csv:1: unterminated quoted field (the '\"' opened on this line is never closed)"},
     {"closed quote, no final line end", HDR ROWS5 "0.5,9.5,0.93,0.45,\"4\"", 0, 0, 0, 0, NULL},
     {"blank rows", HDR ",,,,\n,,,,\n,,,,\n,,,,\n,,,,\n", 0, 0, 1, 5,
      "t.csv: no row has time, W, xD, xB and R all present (expected at least 5 such rows per "
