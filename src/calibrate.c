@@ -196,6 +196,11 @@ static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params
     if (col->system.p_pa > 0 && stagecal_vle_pressure(col->system.vle) == 0 &&
         (rc = stagecal_model_add_vle_param(mo, "pressure_pa", &col->system.p_pa, 1, err)))
         return rc;
+    /* what a planner needs besides the equilibrium: the latent heat (boil-up energy) and
+     * the molar masses (mass-basis amounts); 0 = the column file does not state it */
+    mo->latent_j_mol = col->system.latent_j_mol;
+    mo->m_light_kg_mol = col->system.m_light;
+    mo->m_heavy_kg_mol = col->system.m_heavy;
     mo->condenser = col->condenser;
     mo->form = fit->form;
     size_t p = fit->p;

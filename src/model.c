@@ -82,6 +82,19 @@ static const char *condenser_name(stagecal_condenser c)
     return c == STAGECAL_CONDENSER_PARTIAL ? "partial" : "total";
 }
 
+/* The optional physical data of the system: members of "system" (docs/model-file.md),
+ * in the order of system_data(). 0 in the struct = not recorded = no member. */
+enum { SYSTEM_NDATA = 3 };
+static const char *const SYSTEM_DATA_KEY[SYSTEM_NDATA] = {
+    "latent_heat_j_mol", "molar_mass_light_kg_mol", "molar_mass_heavy_kg_mol"};
+
+static void system_data(const stagecal_model *m, double v[SYSTEM_NDATA])
+{
+    v[0] = m->latent_j_mol;
+    v[1] = m->m_light_kg_mol;
+    v[2] = m->m_heavy_kg_mol;
+}
+
 /* ---- lifecycle ---------------------------------------------------------------------- */
 
 void stagecal_model_init(stagecal_model *m)
@@ -291,6 +304,11 @@ static int check_model(const stagecal_model *m, const char *source, int code, st
             if (strcmp(m->vle_params[j].name, p->name) == 0)
                 FAIL("equilibrium parameter '%s' appears twice", p->name);
     }
+    double sysdata[SYSTEM_NDATA];
+    system_data(m, sysdata);
+    for (int k = 0; k < SYSTEM_NDATA; k++)
+        if (sysdata[k] != 0 && !(isfinite(sysdata[k]) && sysdata[k] > 0))
+            FAIL("system: %s = %g: expected a finite number > 0", SYSTEM_DATA_KEY[k], sysdata[k]);
     if (m->condenser != STAGECAL_CONDENSER_TOTAL && m->condenser != STAGECAL_CONDENSER_PARTIAL)
         FAIL("stage convention: unknown condenser type %d", (int)m->condenser);
 
@@ -476,10 +494,15 @@ static json_t *build_doc(const stagecal_model *m)
     bad |= json_object_set_new(doc, "format", json_string(STAGECAL_MODEL_FORMAT));
     bad |= json_object_set_new(doc, "version", json_integer(STAGECAL_MODEL_VERSION));
     bad |= json_object_set_new(doc, "column", json_string(m->column_id));
-    bad |= json_object_set_new(
-        doc, "system",
-        json_pack("{s:s, s:s, s:o}", "light", m->light, "heavy", m->heavy, "equilibrium", vle));
+    json_t *sys =
+        json_pack("{s:s, s:s, s:o}", "light", m->light, "heavy", m->heavy, "equilibrium", vle);
     vle = NULL;
+    double sysdata[SYSTEM_NDATA];
+    system_data(m, sysdata);
+    for (int k = 0; sys && k < SYSTEM_NDATA; k++)
+        if (sysdata[k] != 0) /* absent when not recorded (older readers ignore them) */
+            bad |= json_object_set_new(sys, SYSTEM_DATA_KEY[k], json_real(sysdata[k]));
+    bad |= json_object_set_new(doc, "system", sys);
     bad |= json_object_set_new(doc, "stage_convention",
                                json_pack("{s:s, s:s}", "condenser", condenser_name(m->condenser),
                                          "text", stagecal_model_convention_text(m->condenser)));
@@ -901,6 +924,17 @@ static int read_system(reader *rd, const json_t *doc, stagecal_model *m)
     TRY(get_object(rd, doc, "", "system", &sys));
     TRY(get_string(rd, sys, "system", "light", m->light, sizeof m->light));
     TRY(get_string(rd, sys, "system", "heavy", m->heavy, sizeof m->heavy));
+    /* optional (absent in files written before they were recorded): 0 = not recorded */
+    double *sysdata[SYSTEM_NDATA] = {&m->latent_j_mol, &m->m_light_kg_mol, &m->m_heavy_kg_mol};
+    for (int k = 0; k < SYSTEM_NDATA; k++) {
+        *sysdata[k] = 0;
+        if (!json_object_get(sys, SYSTEM_DATA_KEY[k]))
+            continue;
+        TRY(get_real(rd, sys, "system", SYSTEM_DATA_KEY[k], 0, sysdata[k]));
+        if (!(isfinite(*sysdata[k]) && *sysdata[k] > 0))
+            return RFAIL(rd, "system: %s = %g: expected a finite number > 0", SYSTEM_DATA_KEY[k],
+                         *sysdata[k]);
+    }
     TRY(get_object(rd, sys, "system", "equilibrium", &eq));
     TRY(get_string(rd, eq, "system.equilibrium", "model", m->vle_kind, sizeof m->vle_kind));
     TRY(get_object(rd, eq, "system.equilibrium", "parameters", &params));

@@ -117,6 +117,10 @@ static void fill_model(stagecal_model *m, const char *form_name)
     const double a = 2.385;
     assert_int_equal(stagecal_model_add_vle_param(m, "nrtl", tau, 5, &err), STAGECAL_OK);
     assert_int_equal(stagecal_model_add_vle_param(m, "p_pa", &a, 1, &err), STAGECAL_OK);
+    /* the optional physical data, values with no short binary form */
+    m->latent_j_mol = 38752.123456789012;
+    m->m_light_kg_mol = 0.046068440000000001;
+    m->m_heavy_kg_mol = 0.018015280000000001;
     m->condenser = STAGECAL_CONDENSER_PARTIAL;
     assert_int_equal(stagecal_form_parse(form_name, &m->form, &err), STAGECAL_OK);
     size_t p = m->form.p;
@@ -185,6 +189,9 @@ static void assert_models_equal(const stagecal_model *a, const stagecal_model *b
     assert_string_equal(a->light, b->light);
     assert_string_equal(a->heavy, b->heavy);
     assert_string_equal(a->vle_kind, b->vle_kind);
+    bits_equal(a->latent_j_mol, b->latent_j_mol, "latent_j_mol");
+    bits_equal(a->m_light_kg_mol, b->m_light_kg_mol, "m_light_kg_mol");
+    bits_equal(a->m_heavy_kg_mol, b->m_heavy_kg_mol, "m_heavy_kg_mol");
     assert_int_equal(a->n_vle_params, b->n_vle_params);
     for (size_t i = 0; i < a->n_vle_params; i++) {
         /* the file stores the parameters object with sorted keys; find by name */
@@ -436,7 +443,9 @@ static void model_roundtrip_exact(void **state)
     const char *forms[] = {"saturating-load", "linear:1+1/R+F", "constant"};
     for (size_t k = 0; k < 3; k++) {
         fill_model(&m, forms[k]);
-        if (k == 2) { /* the other branches: no load, no HETP, no command line, total */
+        if (k == 2) { /* the other branches: no load, no HETP, no command line, total,
+                       * no latent heat or molar masses */
+            m.latent_j_mol = m.m_light_kg_mol = m.m_heavy_kg_mol = 0;
             m.has_load = 0;
             m.has_hetp = 0;
             m.condenser = STAGECAL_CONDENSER_TOTAL;
@@ -459,6 +468,70 @@ static void model_roundtrip_exact(void **state)
         stagecal_model_free(&back);
         stagecal_model_free(&m);
     }
+}
+
+/* The latent heat and molar masses are optional members of "system" (docs/model-file.md):
+ * written only when recorded (not as 0 or null), and a file without them loads with 0 =
+ * not recorded. The older file is tests/badinput/model_good.json, written by stagecal
+ * before these members existed (same format version 1); its checksum was computed then,
+ * so it also shows that the canonical text of a file without them did not change. */
+static void model_system_data_optional(void **state)
+{
+    (void)state;
+    static const char *const keys[] = {"latent_heat_j_mol", "molar_mass_light_kg_mol",
+                                       "molar_mass_heavy_kg_mol"};
+    char dir[1100], path[1200];
+    stagecal_model m;
+    stagecal_error err;
+    size_t n;
+    subdir(dir, sizeof dir, "system-data");
+
+    /* recorded: the three members are in the file under "system" */
+    write_standard(dir, "saturating", path, sizeof path);
+    json_error_t jerr;
+    json_t *doc = json_load_file(path, 0, &jerr);
+    assert_non_null(doc);
+    json_t *sys = json_object_get(doc, "system");
+    /* values as fill_model set them; the file holds them with 17 digits */
+    bits_equal(json_real_value(json_object_get(sys, keys[0])), 38752.123456789012, keys[0]);
+    bits_equal(json_real_value(json_object_get(sys, keys[1])), 0.046068440000000001, keys[1]);
+    bits_equal(json_real_value(json_object_get(sys, keys[2])), 0.018015280000000001, keys[2]);
+    json_decref(doc);
+
+    /* not recorded: absent from the file, 0 after loading */
+    fill_model(&m, "saturating");
+    m.latent_j_mol = m.m_light_kg_mol = m.m_heavy_kg_mol = 0;
+    assert_int_equal(stagecal_model_write(&m, dir, path, sizeof path, &err), STAGECAL_OK);
+    stagecal_model_free(&m);
+    char *text = slurp(path, &n);
+    for (size_t k = 0; k < 3; k++)
+        assert_null(strstr(text, keys[k]));
+    free(text);
+    stagecal_model_init(&m);
+    assert_int_equal(stagecal_model_load(path, &m, &err), STAGECAL_OK);
+    assert_true(m.latent_j_mol == 0 && m.m_light_kg_mol == 0 && m.m_heavy_kg_mol == 0);
+    stagecal_model_free(&m);
+
+    /* an older file */
+    stagecal_model_init(&m);
+    int rc = stagecal_model_load(STAGECAL_TESTS_DIR "/badinput/model_good.json", &m, &err);
+    if (rc)
+        print_error("%s\n", err.text);
+    assert_int_equal(rc, STAGECAL_OK);
+    assert_string_equal(m.column_id, "demo-bt-K-7");
+    assert_true(m.latent_j_mol == 0 && m.m_light_kg_mol == 0 && m.m_heavy_kg_mol == 0);
+    stagecal_model_free(&m);
+
+    /* a value JSON cannot carry as a finite number is refused by the JSON parser: a
+     * non-finite value never reaches the model (the in-memory rule is checked in
+     * model_check_names_each_rule) */
+    static const char overflow[] = "{\"format\": \"stagecal-model\", \"version\": 1, "
+                                   "\"system\": {\"latent_heat_j_mol\": 1e999}}";
+    stagecal_model_init(&m);
+    assert_int_equal(stagecal_model_parse(overflow, sizeof overflow - 1, "o.json", &m, &err),
+                     STAGECAL_EDATA);
+    assert_non_null(strstr(err.text, "o.json:1: not a valid JSON document"));
+    stagecal_model_free(&m);
 }
 
 static void model_write_names_file_after_fit_time(void **state)
@@ -1450,6 +1523,17 @@ static void model_load_refuses_each_member(void **state)
         {"correlation.covariance.0.1", "\"x\"", "correlation.covariance[0][1]: expected a number"},
         {"correlation.method", "\"moment-space\"",
          "correlation.method 'moment-space': expected 'stage-space' or 'composition-space'"},
+        /* the optional physical data: when present, a finite number > 0 */
+        {"system.latent_heat_j_mol", "-32000",
+         "system: latent_heat_j_mol = -32000: expected a finite number > 0"},
+        {"system.latent_heat_j_mol", "0",
+         "system: latent_heat_j_mol = 0: expected a finite number > 0"},
+        {"system.latent_heat_j_mol", "null",
+         "member 'system.latent_heat_j_mol': expected a number"},
+        {"system.molar_mass_light_kg_mol", "-0.078112",
+         "system: molar_mass_light_kg_mol = -0.078112: expected a finite number > 0"},
+        {"system.molar_mass_heavy_kg_mol", "\"0.092138\"",
+         "member 'system.molar_mass_heavy_kg_mol': expected a number"},
     };
     char dir[1100], path[1200], want[1400];
     subdir(dir, sizeof dir, "each-member");
@@ -1593,6 +1677,15 @@ static const char *break_rule(stagecal_model *m, int k)
         free(m->warnings[1]);
         m->warnings[1] = NULL;
         return "warning 2 is missing";
+    case 29:
+        m->latent_j_mol = NAN;
+        return "system: latent_heat_j_mol = nan: expected a finite number > 0";
+    case 30:
+        m->m_light_kg_mol = -0.046;
+        return "system: molar_mass_light_kg_mol = -0.046: expected a finite number > 0";
+    case 31:
+        m->m_heavy_kg_mol = INFINITY;
+        return "system: molar_mass_heavy_kg_mol = inf: expected a finite number > 0";
     default:
         return NULL;
     }
@@ -1628,6 +1721,7 @@ int main(void)
         cmocka_unit_test(model_hash_file_matches_fips),
         cmocka_unit_test(model_checksum_verifiable_in_python),
         cmocka_unit_test(model_roundtrip_exact),
+        cmocka_unit_test(model_system_data_optional),
         cmocka_unit_test(model_write_names_file_after_fit_time),
         cmocka_unit_test(model_write_never_overwrites),
         cmocka_unit_test(model_write_unwritable_is_ewrite),

@@ -69,6 +69,11 @@ typedef struct {
     char vle_kind[STAGECAL_MODEL_TEXT];   /* "alpha", "nrtl", … (stagecal_vle_kind_name) */
     stagecal_model_vle_param *vle_params; /* equilibrium parameters, owned */
     size_t n_vle_params;
+    /* optional physical data of the system, as the column file states them (0 = not
+     * recorded; the file then has no such member). When set: finite and > 0. */
+    double latent_j_mol;   /* molar latent heat of vaporisation [J/mol], for boil-up energy */
+    double m_light_kg_mol; /* molar mass of the light component [kg/mol] */
+    double m_heavy_kg_mol; /* molar mass of the heavy component [kg/mol] */
 
     /* stage convention: with a total condenser column stages = stages − 1, with a
      * partial condenser (an equilibrium stage) column stages = stages − 2. */

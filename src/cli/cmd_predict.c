@@ -50,7 +50,8 @@ static const char usage_text[] =
     "                        reflux        until R reaches VALUE (--xd-setpoint only)\n"
     "                      NAME:KIND=VALUE names the receiver\n"
     "  --f-factor F        vapour load [Pa^0.5] for models that use it\n"
-    "  --latent KJ_PER_MOL molar latent heat for the boil-up energy\n"
+    "  --latent KJ_PER_MOL molar latent heat for the boil-up energy (default: the plan's,\n"
+    "                      else with --column the column file's, else the model file's)\n"
     "  --every H           a trajectory row at least every H hours (default 0.1)\n"
     "  --out FILE          trajectory as CSV ('-' = stdout)\n"
     "  --samples N         parameter draws for the band (default 200; 0 = no band)\n"
@@ -137,6 +138,14 @@ static int write_csv(const char *path, const stagecal_batch_result *res)
     return 0;
 }
 
+/* Where the latent heat came from, in the order of precedence; its JSON token
+ * ("latent_heat_source") and its words for people. */
+typedef enum { LATENT_NONE, LATENT_OPTION, LATENT_PLAN, LATENT_COLUMN, LATENT_MODEL } latent_from;
+static const char *const latent_token[] = {"none", "option", "plan-file", "column-file",
+                                           "model-file"};
+static const char *const latent_words[] = {"nowhere", "--latent", "the plan file",
+                                           "the column file", "the model file"};
+
 static json_t *interval_json(const stagecal_batch_interval *iv, double scale)
 {
     return json_pack("{s:o,s:o,s:o}", "nominal", cli_json_real(iv->nominal * scale), "low",
@@ -152,7 +161,7 @@ static const char *policy_name(int kind)
 
 static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batch_result *res,
                            const stagecal_batch_band *band, int have_band, const char *model_path,
-                           unsigned long seed)
+                           latent_from latent_source, unsigned long seed)
 {
     json_t *doc = json_object(), *cuts = json_array(), *rows = json_array(), *warn = json_array();
     for (size_t i = 0; i < res->n_cuts; i++) {
@@ -213,6 +222,12 @@ static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batc
     json_object_set_new(doc, "pot_end_x", cli_json_real(res->xb_end));
     json_object_set_new(doc, "energy_gj",
                         pb->latent_j_mol > 0 ? cli_json_real(res->energy_j / 1e9) : json_null());
+    json_object_set_new(doc, "latent_heat_kj_mol",
+                        pb->latent_j_mol > 0 ? cli_json_real(pb->latent_j_mol / 1000)
+                                             : json_null());
+    json_object_set_new(doc, "latent_heat_source",
+                        pb->latent_j_mol > 0 ? json_string(latent_token[latent_source])
+                                             : json_null());
     json_object_set_new(doc, "mass_balance_error", cli_json_real(res->balance_error));
     json_object_set_new(doc, "reflux_range",
                         json_pack("{s:o,s:o}", "min", cli_json_real(res->r_min_used), "max",
@@ -239,7 +254,7 @@ static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batc
 }
 
 static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_result *res,
-                        const stagecal_batch_band *band, int have_band)
+                        const stagecal_batch_band *band, int have_band, latent_from latent_source)
 {
     printf("batch: %.4g kmol at x = %.4g, boil-up %.4g kmol/h, %s; column holdup neglected\n",
            pb->w0_mol / 1000, pb->xb0, pb->v_mol_s * 3.6, policy_name((int)pb->policy.kind));
@@ -265,7 +280,8 @@ static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_r
                band->t_end_s.high / 3600, 100 * band->level, band->n_ok);
     printf("; pot left %.4g kmol at x = %.4g\n", res->w_end_mol / 1000, res->xb_end);
     if (pb->latent_j_mol > 0)
-        printf("boil-up energy %.4g GJ\n", res->energy_j / 1e9);
+        printf("boil-up energy %.4g GJ (latent heat %.4g kJ/mol, from %s)\n", res->energy_j / 1e9,
+               pb->latent_j_mol / 1000, latent_words[latent_source]);
     else
         printf("boil-up energy: unknown (give --latent or a column file with a latent heat)\n");
     printf("reflux ratio used: %.4g to %.4g\n", res->r_min_used, res->r_max_used);
@@ -476,8 +492,15 @@ int cmd_predict(int argc, char **argv)
     if (pb.n_cuts == 0)
         return cli_usage_error("no receiver: give at least one '--cut KIND=VALUE' (or cuts in "
                                "the plan)");
-    if (!isnan(latent))
+    /* the latent heat: --latent, else the plan's, else (below) the column file's with
+     * --column, else the one the model file records */
+    latent_from latent_source = LATENT_NONE;
+    if (!isnan(latent)) {
         pb.latent_j_mol = latent * 1000;
+        latent_source = LATENT_OPTION;
+    } else if (pb.latent_j_mol > 0) {
+        latent_source = LATENT_PLAN;
+    }
     if (stagecal_batch_check(&pb, &err) != STAGECAL_OK) {
         if (!plan_path)
             return cli_usage_error("%s", err.text);
@@ -501,8 +524,13 @@ int cmd_predict(int argc, char **argv)
         stagecal_model_free(&m);
         return rc;
     }
-    if (isnan(latent) && pb.latent_j_mol == 0 && sys.have_column)
+    if (isnan(latent) && pb.latent_j_mol == 0 && sys.have_column) {
         pb.latent_j_mol = sys.col.system.latent_j_mol;
+        latent_source = LATENT_COLUMN;
+    } else if (isnan(latent) && pb.latent_j_mol == 0 && !sys.column_path) {
+        pb.latent_j_mol = m.latent_j_mol; /* 0 when the model file does not record one */
+        latent_source = LATENT_MODEL;
+    }
 
     stagecal_batch_model_law law = {&m, NULL, f_load};
     stagecal_batch_column col = {sys.vle, stagecal_batch_model_stages, &law, NULL, NULL};
@@ -528,10 +556,10 @@ int cmd_predict(int argc, char **argv)
     if (out_path && (rc = write_csv(out_path, &res)))
         goto done;
     if (json)
-        rc = cli_json_print(
-            result_json(&pb, &res, &band, have_band, model_path, (unsigned long)seed));
+        rc = cli_json_print(result_json(&pb, &res, &band, have_band, model_path, latent_source,
+                                        (unsigned long)seed));
     else if (!(out_path && strcmp(out_path, "-") == 0))
-        print_human(&pb, &res, &band, have_band);
+        print_human(&pb, &res, &band, have_band, latent_source);
 done:
     stagecal_batch_result_free(&res);
     stagecal_vle_free(own);

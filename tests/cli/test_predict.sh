@@ -1,7 +1,8 @@
 #!/bin/sh
 # test_predict.sh — `stagecal predict`: exit codes (DESIGN §5), the Rayleigh case through
 # the whole program, mass balance and shape of --json, CSV output, plan file, envelope
-# warning, reproducible band. Usage: sh test_predict.sh <stagecal-binary> <repo-root>
+# warning, reproducible band, the latent heat a model file records.
+# Usage: sh test_predict.sh <stagecal-binary> <repo-root>
 # The model file is the INVENTED demo model written by tests/tool_batch_model.c.
 # Scratch files go next to the binary (inside the build tree).
 set -u
@@ -148,6 +149,44 @@ check_exit nrtl-old-file 65 "$bin" predict --model "$tmp/nrtl-old.json" $nrtl
 if grep -q "parameter 'pressure_pa' is missing" "$tmp/err" && grep -q "column file" "$tmp/err"
 then echo "ok old file names what is missing"
 else echo "FAIL: old file message"; cat "$tmp/err"; fails=$((fails + 1)); fi
+
+# The latent heat travels in the model file (docs/model-file.md, system.latent_heat_j_mol).
+# A model calibrated on the INVENTED demo column datasets/columns/demo_benzene_toluene.json
+# (its latent_heat_j_mol is a round demo value) and the INVENTED log 2025-01.csv;
+# `predict --model` alone must then give the boil-up energy = moles boiled up × λ, with
+# moles boiled up = boil-up rate × batch time (V constant; definition, docs/methods.md) and
+# λ read here from the column file, not from anything stagecal printed (the human line
+# below: 32 kJ/mol = the column file's 32000 J/mol). Tolerance 1e-12 relative: a product
+# of three doubles and unit factors (a few ulps), 17 digits in JSON.
+bt="$root/datasets/columns/demo_benzene_toluene.json"
+check_exit bt-calibrate 0 "$bin" calibrate --column "$bt" --fits "$tmp/btfits" --quiet \
+    "$root/datasets/demo/logs/2025-01.csv"
+btmodel=$(ls "$tmp"/btfits/*/*.json 2>/dev/null | head -1)
+lam="json.load(open('$bt'))['system']['latent_heat_j_mol']"
+if "$py" -c "import json,sys; c=json.load(open('$bt'))['system']; s=json.load(open('$btmodel'))['system']
+sys.exit(0 if s['latent_heat_j_mol'] == c['latent_heat_j_mol'] and s['molar_mass_light_kg_mol'] == c['light']['molar_mass_kg_mol'] and s['molar_mass_heavy_kg_mol'] == c['heavy']['molar_mass_kg_mol'] else 1)"
+then echo "ok model file records the column file's latent heat and molar masses"
+else echo "FAIL: model file system data differ from the column file's"; fails=$((fails + 1)); fi
+bt_run="--model $btmodel --charge 10 --xb0 0.5 --boilup 2.4 --reflux 4 --cut pot-x=0.2 --samples 0"
+check_exit bt-model-only 0 "$bin" predict $bt_run --json
+check_py bt-energy-model "abs(d['energy_gj'] - d['charge']['boilup_kmol_h']*1000*d['batch_time_h']*$lam/1e9) < 1e-12*d['energy_gj'] and d['batch_time_h'] > 0"
+check_py bt-latent-source "d['latent_heat_source'] == 'model-file' and abs(d['latent_heat_kj_mol'] - $lam/1000) < 1e-15*d['latent_heat_kj_mol']"
+check_exit bt-human 0 "$bin" predict $bt_run
+if grep -q "^boil-up energy .* GJ (latent heat 32 kJ/mol, from the model file)$" "$tmp/out"
+then echo "ok human output names the model file"
+else echo "FAIL: human energy line"; cat "$tmp/out"; fails=$((fails + 1)); fi
+# --latent overrides the model's (35 kJ/mol, an arbitrary test value)
+check_exit bt-latent-option 0 "$bin" predict $bt_run --latent 35 --json
+check_py bt-energy-option "d['latent_heat_source'] == 'option' and abs(d['energy_gj'] - d['charge']['boilup_kmol_h']*1000*d['batch_time_h']*35000/1e9) < 1e-12*d['energy_gj']"
+# with --column the column file is the source: its λ, or none (demo_alpha.json states none)
+check_exit bt-column 0 "$bin" predict $bt_run --column "$bt" --json
+check_py bt-energy-column "d['latent_heat_source'] == 'column-file' and abs(d['energy_gj'] - d['charge']['boilup_kmol_h']*1000*d['batch_time_h']*$lam/1e9) < 1e-12*d['energy_gj']"
+check_exit bt-column-without-latent 0 "$bin" predict $bt_run \
+    --column "$root/datasets/columns/demo_alpha.json" --json
+check_py bt-no-latent "d['energy_gj'] is None and d['latent_heat_source'] is None"
+# a model file that records no latent heat (the demo model of tool_batch_model)
+check_exit old-model-no-latent 0 "$bin" predict $common --reflux 4 --cut pot-x=0.2 --samples 0 --json
+check_py old-model-energy-unknown "d['energy_gj'] is None and d['latent_heat_kj_mol'] is None"
 
 rm -rf "$tmp"
 if [ "$fails" -ne 0 ]; then echo "$fails failure(s)"; exit 1; fi
