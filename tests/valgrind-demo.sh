@@ -21,7 +21,7 @@ work=$(mktemp -d)
 [ -n "${KEEP:-}" ] || trap 'rm -rf "$work"' EXIT; echo "work: $work"
 COL=datasets/columns/demo_benzene_toluene.json
 L=datasets/demo/logs
-VG="valgrind --quiet --suppressions=$root/tests/valgrind.supp --error-exitcode=99 --leak-check=full --errors-for-leak-kinds=definite,indirect --show-leak-kinds=definite,indirect --track-origins=yes"
+VG="valgrind --quiet --num-callers=40 --suppressions=$root/tests/valgrind.supp --error-exitcode=99 --leak-check=full --errors-for-leak-kinds=definite,indirect --show-leak-kinds=definite,indirect --track-origins=yes"
 failed=0
 n=0
 run() { # run NAME CMD...: the command under memcheck; its own exit status must be 0
