@@ -1,0 +1,243 @@
+/*
+ * synth_calibration.h — the synthetic calibration shared by tests/test_calibrate.c
+ * (coverage assertion over 200 data sets) and tests/tool_coverage.c (the long coverage
+ * study, docs/calibration.md §5).
+ *
+ * A known law, stages = a·(1 − exp(−b R)) with a = 10, b = 0.45 (a at total reflux),
+ * constant α = 2, twelve windows from R = 1.2 to total reflux, 40 samples a minute
+ * apart, AR(1) analyser noise (ρ = 0.6, u(xD) = 0.0015, u(xB) = 0.0025). The pot
+ * compositions come from Smoker's closed-form inverse or Fenske at total reflux
+ * (REFERENCES §1–2), independently of the stepping code under test. Each data set is
+ * fitted in stage space (stagecal_regress_fit) and in composition space
+ * (stagecal_fit_composition, started from the stage-space estimate).
+ *
+ * Nothing here asserts: every library call that must not fail is reported by a
+ * nonzero return, which the caller checks (cmocka in the test, exit status in the tool).
+ */
+#ifndef STAGECAL_SYNTH_CALIBRATION_H
+#define STAGECAL_SYNTH_CALIBRATION_H
+
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+#include <math.h>
+#include <string.h>
+
+#include "stagecal/calibrate.h"
+#include "stagecal/stages.h"
+
+#define SYNTH_ALPHA 2.0
+#define SYNTH_A 10.0
+#define SYNTH_B 0.45
+#define SYNTH_NQ 5 /* quantities: a, b, band at R = 1.5, 5, ∞ */
+
+static const double synth_band_r[3] = {1.5, 5.0, INFINITY};
+static const char *const synth_what[SYNTH_NQ] = {"a", "b", "band R=1.5", "band R=5", "band R=inf"};
+
+/* Stationary AR(1) series of n samples: marginal sd sigma, lag-1 correlation rho. */
+static inline void synth_ar1(gsl_rng *rng, double *e, size_t n, double sigma, double rho)
+{
+    e[0] = gsl_ran_gaussian(rng, sigma);
+    for (size_t i = 1; i < n; i++)
+        e[i] = rho * e[i - 1] + sqrt(1 - rho * rho) * gsl_ran_gaussian(rng, sigma);
+}
+
+/* Var of the mean of n AR(1) samples with lag-1 correlation ρ and marginal variance
+ * σ²: (σ²/n)·[1 + 2 Σ_{k=1}^{n−1} (1 − k/n) ρ^k] (textbook result for a stationary
+ * series, e.g. Wilks 2011 §5.2.4 — from memory). */
+static inline double synth_ar1_var_mean(double sigma, double rho, size_t n)
+{
+    double s = 1;
+    for (size_t k = 1; k < n; k++)
+        s += 2 * (1 - (double)k / (double)n) * pow(rho, (double)k);
+    return sigma * sigma / (double)n * s;
+}
+
+/* Pot composition after `n` stages (pot included) from xD at reflux r with constant
+ * α, by Smoker's closed-form inverse (REFERENCES §2) or Fenske at total reflux
+ * (REFERENCES §1) — independent of the stepping code under test. */
+static inline double synth_smoker_xb(double alpha, double r, double xd, double n)
+{
+    if (isinf(r)) {
+        double odds = xd / (1 - xd) / pow(alpha, n);
+        return odds / (1 + odds);
+    }
+    double m = r / (r + 1), b = xd / (r + 1);
+    double qa = m * (alpha - 1), qb = m + b * (alpha - 1) - alpha, qc = b;
+    double disc = sqrt(qb * qb - 4 * qa * qc);
+    double k1 = (-qb - disc) / (2 * qa), k2 = (-qb + disc) / (2 * qa);
+    double k = (k1 > 0 && k1 < 1) ? k1 : k2;
+    double c = 1 + (alpha - 1) * k;
+    double beta = m * c * (alpha - 1) / (alpha - m * c * c);
+    double a = m * c * c / alpha;
+    return k + 1 / (beta + (1 / (xd - k) - beta) / pow(a, n));
+}
+
+/* The saturating law: a·(1 − exp(−b r)), a at total reflux. */
+static inline double synth_law(double a, double b, double r)
+{
+    return isinf(r) ? a : a * (1 - exp(-b * r));
+}
+
+/* True value of quantity q (0 a, 1 b, 2..4 the law at synth_band_r[q − 2]). */
+static inline double synth_truth(int q)
+{
+    return q == 0 ? SYNTH_A : q == 1 ? SYNTH_B : synth_law(SYNTH_A, SYNTH_B, synth_band_r[q - 2]);
+}
+
+/* One fit's outcome per quantity: estimate, reported standard error, 95 % interval. */
+struct synth_fit {
+    int ok; /* the fit returned STAGECAL_OK */
+    double est[SYNTH_NQ], se[SYNTH_NQ], lo[SYNTH_NQ], hi[SYNTH_NQ];
+    double tq;  /* t quantile of the parameter intervals */
+    double dof; /* n − p */
+    double s2;  /* residual variance factor s² = RSS/(n − p) */
+};
+
+/* Fill f from a fit's θ, covariance and t quantile. cov_sigma is the σ argument of the
+ * band (not used by the confidence band itself). Returns 0, or −1 when the band fails. */
+static inline int synth_fill(const stagecal_form *form, const stagecal_regress_result *res,
+                             double cov_sigma, struct synth_fit *f)
+{
+    f->ok = 1;
+    f->tq = res->tquant;
+    f->dof = res->dof;
+    f->s2 = res->rss / res->dof;
+    for (int i = 0; i < 2; i++) {
+        f->est[i] = res->theta[i];
+        f->se[i] = res->se[i];
+        f->lo[i] = res->ci_low[i];
+        f->hi[i] = res->ci_high[i];
+    }
+    for (int q = 0; q < 3; q++) {
+        stagecal_band bd;
+        if (stagecal_regress_band(form, res->theta, res->cov, cov_sigma, res->dof, 0.95,
+                                  synth_band_r[q], 0, &bd, NULL) != STAGECAL_OK)
+            return -1;
+        f->est[2 + q] = bd.value;
+        f->se[2 + q] = bd.se_fit;
+        f->lo[2 + q] = bd.ci_low;
+        f->hi[2 + q] = bd.ci_high;
+    }
+    return 0;
+}
+
+/* How synth_one sets the window means' standard errors. */
+enum synth_se_mode {
+    SYNTH_SE_ESTIMATED = 0, /* as the calibration does: stagecal_evidence_mean per window */
+    SYNTH_SE_KNOWN,         /* the true ones (synth_ar1_var_mean): fixed weights */
+    SYNTH_SE_POOLED_RHO     /* each window's s, with the lag-1 autocorrelation averaged over
+                               the calibration's windows (per analyser) in n_eff */
+};
+
+/* One synthetic calibration: windows at several reflux ratios, AR(1) noise on the
+ * analysers, per-sample inversion, window evidence, both fits. fs/fc get ok = 0 when
+ * the fit itself fails (counted by the caller). se_mode other than SYNTH_SE_ESTIMATED
+ * is a diagnostic of the coverage study (tests/tool_coverage.c). Returns 0, or the
+ * line of the first library call that failed where it must not. */
+static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stagecal_form *form,
+                            enum synth_se_mode se_mode, struct synth_fit *fs, struct synth_fit *fc)
+{
+    static const double rs[] = {1.2, 1.6, 2.0, 2.5, 3.0, 4.0, 5.0, 6.5, 8.0, 10.0, 15.0, INFINITY};
+    enum { NW = sizeof rs / sizeof rs[0], NS = 40 };
+    const double u_xd = 0.0015, u_xb = 0.0025, rho = 0.6;
+    stagecal_evidence ev[NW];
+    static double xds[NW][NS], xbs[NW][NS];
+    static double t[NS];
+    double exd[NS], exb[NS], neff_d[NW], neff_b[NW];
+    int few[NW];
+    stagecal_stages_params sp = stagecal_stages_default_params();
+    sp.want_sensitivities = 1;
+    memset(fs, 0, sizeof *fs);
+    memset(fc, 0, sizeof *fc);
+    for (size_t i = 0; i < NS; i++)
+        t[i] = 60.0 * (double)i;
+    for (size_t w = 0; w < NW; w++) {
+        double *xd = xds[w], *xb = xbs[w];
+        double xd_true = 0.90 + 0.07 * gsl_rng_uniform(rng);
+        double xb_true =
+            synth_smoker_xb(SYNTH_ALPHA, rs[w], xd_true, synth_law(SYNTH_A, SYNTH_B, rs[w]));
+        size_t nok = 0;
+        synth_ar1(rng, exd, NS, u_xd, rho);
+        synth_ar1(rng, exb, NS, u_xb, rho);
+        for (size_t i = 0; i < NS; i++) {
+            stagecal_stages_result res;
+            xd[i] = xd_true + exd[i];
+            xb[i] = xb_true + exb[i];
+            if (stagecal_stages_invert(vle, xd[i], xb[i], rs[w], 1.0, &sp, &res, NULL) !=
+                STAGECAL_OK)
+                return __LINE__;
+            nok += res.status == STAGECAL_STAGES_OK;
+        }
+        stagecal_evidence *e = &ev[w];
+        memset(e, 0, sizeof *e);
+        e->r = rs[w];
+        e->total_reflux = isinf(rs[w]);
+        e->n_samples = NS;
+        if (stagecal_evidence_mean(t, xd, NS, u_xd, &e->xd, &e->u_xd, &neff_d[w], NULL) !=
+                STAGECAL_OK ||
+            stagecal_evidence_mean(t, xb, NS, u_xb, &e->xb, &e->u_xb, &neff_b[w], NULL) !=
+                STAGECAL_OK)
+            return __LINE__;
+        if (se_mode == SYNTH_SE_KNOWN) {
+            e->u_xd = sqrt(synth_ar1_var_mean(u_xd, rho, NS));
+            e->u_xb = sqrt(synth_ar1_var_mean(u_xb, rho, NS));
+        }
+        e->m = NS; /* the window's samples, as the calibration chain passes them */
+        e->s_t = t;
+        e->s_xd = xd;
+        e->s_xb = xb;
+        few[w] = nok < 3;
+    }
+    if (se_mode == SYNTH_SE_POOLED_RHO) {
+        /* n_eff = m(1 − ρ)/(1 + ρ) inverted for each window's ρ̂, averaged, applied back */
+        double rd = 0, rb = 0;
+        for (size_t w = 0; w < NW; w++) {
+            rd += (NS - neff_d[w]) / (NS + neff_d[w]) / NW;
+            rb += (NS - neff_b[w]) / (NS + neff_b[w]) / NW;
+        }
+        double nd = NS * (1 - rd) / (1 + rd), nb = NS * (1 - rb) / (1 + rb);
+        for (size_t w = 0; w < NW; w++) {
+            ev[w].u_xd *= sqrt(neff_d[w] / nd);
+            ev[w].u_xb *= sqrt(neff_b[w] / nb);
+        }
+    }
+    for (size_t w = 0; w < NW; w++) {
+        if (stagecal_evidence_stages(vle, 1.0, &ev[w], NULL) != STAGECAL_OK)
+            return __LINE__;
+        if (few[w])
+            ev[w].stages_ok = 0;
+    }
+    /* stage space */
+    double r[NW], s[NW], sg[NW];
+    size_t n = 0;
+    for (size_t w = 0; w < NW; w++)
+        if (ev[w].stages_ok) {
+            r[n] = ev[w].r;
+            s[n] = ev[w].stages;
+            sg[n] = ev[w].se_stages;
+            n++;
+        }
+    stagecal_regress_data d = {n, r, NULL, s, sg};
+    stagecal_regress_params rp = stagecal_regress_default_params();
+    rp.band_points = 0;
+    stagecal_regress_result rs_fit, rc_fit;
+    if (stagecal_regress_fit(&d, form, &rp, &rs_fit, NULL) != STAGECAL_OK)
+        return 0;
+    int rc = synth_fill(form, &rs_fit, rs_fit.sigma, fs) ? __LINE__ : 0;
+    if (rc == 0 && stagecal_fit_composition(vle, 1.0, ev, NW, form, rs_fit.theta, &rp, &rc_fit,
+                                            NULL) == STAGECAL_OK) {
+        rc = synth_fill(form, &rc_fit, 1.0, fc) ? __LINE__ : 0;
+        stagecal_regress_result_free(&rc_fit);
+    }
+    stagecal_regress_result_free(&rs_fit);
+    return rc;
+}
+
+/* 1 when the fit's interval for quantity q contains the truth. */
+static inline int synth_covers(const struct synth_fit *f, int q)
+{
+    double tv = synth_truth(q);
+    return f->lo[q] <= tv && tv <= f->hi[q];
+}
+
+#endif
