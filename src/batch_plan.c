@@ -172,7 +172,7 @@ int stagecal_batch_plan_parse(const char *text, size_t len, const char *source,
     json_error_t jerr;
     json_t *doc = json_loadb(text, len, 0, &jerr);
     int rc = STAGECAL_OK, have;
-    double v;
+    double v = 0; /* (set by get_number when present; GCC -O3 cannot see it) */
     stagecal_batch_problem tmp = *pb;
     if (!doc)
         return error_set_at(err, STAGECAL_EDATA, source, jerr.line, jerr.column,

@@ -920,7 +920,7 @@ static int get_count(reader *rd, const json_t *obj, const char *where, const cha
 static int read_system(reader *rd, const json_t *doc, stagecal_model *m)
 {
     int rc;
-    json_t *sys, *eq, *params;
+    json_t *sys = NULL, *eq = NULL, *params = NULL; /* (set by get_object; GCC -O3 cannot see it) */
     TRY(get_object(rd, doc, "", "system", &sys));
     TRY(get_string(rd, sys, "system", "light", m->light, sizeof m->light));
     TRY(get_string(rd, sys, "system", "heavy", m->heavy, sizeof m->heavy));
@@ -980,7 +980,7 @@ static int read_system(reader *rd, const json_t *doc, stagecal_model *m)
 static int read_correlation(reader *rd, const json_t *doc, stagecal_model *m)
 {
     int rc;
-    json_t *c, *params, *cov;
+    json_t *c = NULL, *params = NULL, *cov = NULL;
     char name[sizeof m->form.name], method[STAGECAL_MODEL_TEXT];
     stagecal_error ferr;
     TRY(get_object(rd, doc, "", "correlation", &c));
