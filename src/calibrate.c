@@ -131,9 +131,10 @@ static int build_evidence(stagecal_calibration *cal, const stagecal_calibrate_pa
             e->has_load = 1;
             e->f_load = fsum / (double)nf;
         }
-        if (stagecal_evidence_mean(t, xd, len, u->xd, &e->xd, &e->u_xd, NULL, NULL) !=
-                STAGECAL_OK ||
-            stagecal_evidence_mean(t, xb, len, u->xb, &e->xb, &e->u_xb, NULL, NULL) != STAGECAL_OK)
+        if (stagecal_evidence_mean_rho(t, xd, len, u->xd, &e->xd, &e->u_xd, &e->rho_xd, &e->m_xd,
+                                       NULL) != STAGECAL_OK ||
+            stagecal_evidence_mean_rho(t, xb, len, u->xb, &e->xb, &e->u_xb, &e->rho_xb, &e->m_xb,
+                                       NULL) != STAGECAL_OK)
             continue; /* too few usable compositions: not evidence */
         /* thinned samples for the stage count and the composition fit */
         double *s_t = cal->samples + 3 * CAL_MAX_SAMPLES * m, *s_xd = s_t + CAL_MAX_SAMPLES,
@@ -159,20 +160,25 @@ static int build_evidence(stagecal_calibration *cal, const stagecal_calibrate_pa
         e->s_t = s_t;
         e->s_xd = s_xd;
         e->s_xb = s_xb;
-        /* n_eff of the pot analyser series: how many independent samples the window holds */
-        double dm, dse;
-        stagecal_evidence_mean(t, xb, len, 0, &dm, &dse, &e->n_eff, NULL);
-        int rc = stagecal_evidence_stages(cal->column.system.vle, par->murphree, e, err);
-        if (rc != STAGECAL_OK) {
-            free(buf);
-            return rc;
-        }
-        if (nok < par->min_ok)
-            e->stages_ok = 0; /* too few samples of the window invert on their own */
         m++;
     }
     free(buf);
     cal->nev = m;
+    /* One ρ per analyser for all windows (docs/calibration.md §5), then the stage counts,
+     * which propagate u_xd and u_xb. */
+    stagecal_evidence_pool_rho(cal->ev, m);
+    for (size_t k = 0; k < m; k++) {
+        stagecal_evidence *e = &cal->ev[k];
+        /* n_eff of the pot analyser series: how many independent samples the window holds */
+        e->n_eff = (double)e->m_xb * (1 - e->rho_xb) / (1 + e->rho_xb);
+        if (e->n_eff < 1)
+            e->n_eff = 1;
+        int rc = stagecal_evidence_stages(cal->column.system.vle, par->murphree, e, err);
+        if (rc != STAGECAL_OK)
+            return rc;
+        if (e->n_ok < par->min_ok)
+            e->stages_ok = 0; /* too few samples of the window invert on their own */
+    }
     return STAGECAL_OK;
 }
 

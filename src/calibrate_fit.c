@@ -8,6 +8,9 @@
  * n_eff = n·(1 − ρ1)/(1 + ρ1), ρ1 the lag-1 autocorrelation of the detrended series
  * (Wilks, Statistical Methods in the Atmospheric Sciences, 3rd ed. 2011, eq. 5.12;
  * also Bayley & Hammersley 1946 — citations from memory).
+ * A calibration pools ρ1 per analyser over its windows (stagecal_evidence_pool_rho):
+ * with each window's own ρ1 the 95 % intervals covered 0.937–0.940, pooled 0.947–0.949
+ * (20 000 synthetic calibrations, tests/tool_coverage.c, docs/calibration.md §5).
  *
  * Composition-space fit. For window i at R_i, F_i the correlation predicts
  * N_i = stages(R_i, F_i; θ); forward stepping N_i stages down from each logged xD_ij
@@ -45,8 +48,27 @@
 /* log-odds are taken of compositions clipped to [LOGIT_EPS, 1 − LOGIT_EPS]. */
 #define LOGIT_EPS 1e-14
 
+/* n_eff of m AR(1) samples with lag-1 autocorrelation rho, at least 1. */
+static double ar1_neff(size_t m, double rho)
+{
+    double neff = (double)m * (1 - rho) / (1 + rho);
+    return neff < 1 ? 1 : neff;
+}
+
 int stagecal_evidence_mean(const double *t, const double *y, size_t n, double u_floor, double *mean,
                            double *se, double *n_eff, stagecal_error *err)
+{
+    double rho;
+    size_t m;
+    int rc = stagecal_evidence_mean_rho(t, y, n, u_floor, mean, se, &rho, &m, err);
+    if (rc == STAGECAL_OK && n_eff)
+        *n_eff = ar1_neff(m, rho);
+    return rc;
+}
+
+int stagecal_evidence_mean_rho(const double *t, const double *y, size_t n, double u_floor,
+                               double *mean, double *se, double *rho_out, size_t *m_out,
+                               stagecal_error *err)
 {
     size_t m = 0;
     double tbar = 0, ybar = 0;
@@ -84,17 +106,54 @@ int stagecal_evidence_mean(const double *t, const double *y, size_t n, double u_
         rho = 0;
     if (rho > RHO_MAX)
         rho = RHO_MAX;
-    double neff = (double)m * (1 - rho) / (1 + rho);
-    if (neff < 1)
-        neff = 1;
     double s = sqrt(ss / (double)(m - 2));
     if (s < u_floor)
         s = u_floor;
     *mean = ybar;
-    *se = s / sqrt(neff);
-    if (n_eff)
-        *n_eff = neff;
+    *se = s / sqrt(ar1_neff(m, rho));
+    if (rho_out)
+        *rho_out = rho;
+    if (m_out)
+        *m_out = m;
     return STAGECAL_OK;
+}
+
+/* One analyser's series (rho, m and u point at the xD or the xB members of window k):
+ * the mean ρ weighted by lag pairs, then each standard error rescaled to its n_eff. */
+struct series {
+    double *rho, *u;
+    size_t m;
+};
+
+static struct series series_of(stagecal_evidence *e, int pot)
+{
+    return pot ? (struct series){&e->rho_xb, &e->u_xb, e->m_xb}
+               : (struct series){&e->rho_xd, &e->u_xd, e->m_xd};
+}
+
+void stagecal_evidence_pool_rho(stagecal_evidence *ev, size_t nev)
+{
+    for (int pot = 0; ev && pot < 2; pot++) {
+        double wsum = 0, rsum = 0;
+        for (size_t k = 0; k < nev; k++) {
+            struct series sr = series_of(&ev[k], pot);
+            if (sr.m >= 2) {
+                wsum += (double)(sr.m - 1);
+                rsum += (double)(sr.m - 1) * *sr.rho;
+            }
+        }
+        if (!(wsum > 0))
+            continue;
+        double pooled = rsum / wsum;
+        for (size_t k = 0; k < nev; k++) {
+            struct series sr = series_of(&ev[k], pot);
+            if (sr.m < 2)
+                continue;
+            /* se = s/√n_eff: the same s with the pooled ρ's n_eff */
+            *sr.u *= sqrt(ar1_neff(sr.m, *sr.rho) / ar1_neff(sr.m, pooled));
+            *sr.rho = pooled;
+        }
+    }
 }
 
 /* Points in each local fit of the smoother below. */

@@ -123,10 +123,11 @@ static inline int synth_fill(const stagecal_form *form, const stagecal_regress_r
 
 /* How synth_one sets the window means' standard errors. */
 enum synth_se_mode {
-    SYNTH_SE_ESTIMATED = 0, /* as the calibration does: stagecal_evidence_mean per window */
+    SYNTH_SE_ESTIMATED = 0, /* as the calibration does: each window's s, the lag-1
+                               autocorrelation pooled over the windows per analyser
+                               (stagecal_evidence_mean_rho, stagecal_evidence_pool_rho) */
     SYNTH_SE_KNOWN,         /* the true ones (synth_ar1_var_mean): fixed weights */
-    SYNTH_SE_POOLED_RHO     /* each window's s, with the lag-1 autocorrelation averaged over
-                               the calibration's windows (per analyser) in n_eff */
+    SYNTH_SE_PER_WINDOW     /* each window's own ρ̂ (the calibration before pooling) */
 };
 
 /* One synthetic calibration: windows at several reflux ratios, AR(1) noise on the
@@ -143,7 +144,7 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
     stagecal_evidence ev[NW];
     static double xds[NW][NS], xbs[NW][NS];
     static double t[NS];
-    double exd[NS], exb[NS], neff_d[NW], neff_b[NW];
+    double exd[NS], exb[NS];
     int few[NW];
     stagecal_stages_params sp = stagecal_stages_default_params();
     sp.want_sensitivities = 1;
@@ -173,10 +174,10 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
         e->r = rs[w];
         e->total_reflux = isinf(rs[w]);
         e->n_samples = NS;
-        if (stagecal_evidence_mean(t, xd, NS, u_xd, &e->xd, &e->u_xd, &neff_d[w], NULL) !=
-                STAGECAL_OK ||
-            stagecal_evidence_mean(t, xb, NS, u_xb, &e->xb, &e->u_xb, &neff_b[w], NULL) !=
-                STAGECAL_OK)
+        if (stagecal_evidence_mean_rho(t, xd, NS, u_xd, &e->xd, &e->u_xd, &e->rho_xd, &e->m_xd,
+                                       NULL) != STAGECAL_OK ||
+            stagecal_evidence_mean_rho(t, xb, NS, u_xb, &e->xb, &e->u_xb, &e->rho_xb, &e->m_xb,
+                                       NULL) != STAGECAL_OK)
             return __LINE__;
         if (se_mode == SYNTH_SE_KNOWN) {
             e->u_xd = sqrt(synth_ar1_var_mean(u_xd, rho, NS));
@@ -188,19 +189,8 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
         e->s_xb = xb;
         few[w] = nok < 3;
     }
-    if (se_mode == SYNTH_SE_POOLED_RHO) {
-        /* n_eff = m(1 − ρ)/(1 + ρ) inverted for each window's ρ̂, averaged, applied back */
-        double rd = 0, rb = 0;
-        for (size_t w = 0; w < NW; w++) {
-            rd += (NS - neff_d[w]) / (NS + neff_d[w]) / NW;
-            rb += (NS - neff_b[w]) / (NS + neff_b[w]) / NW;
-        }
-        double nd = NS * (1 - rd) / (1 + rd), nb = NS * (1 - rb) / (1 + rb);
-        for (size_t w = 0; w < NW; w++) {
-            ev[w].u_xd *= sqrt(neff_d[w] / nd);
-            ev[w].u_xb *= sqrt(neff_b[w] / nb);
-        }
-    }
+    if (se_mode == SYNTH_SE_ESTIMATED)
+        stagecal_evidence_pool_rho(ev, NW);
     for (size_t w = 0; w < NW; w++) {
         if (stagecal_evidence_stages(vle, 1.0, &ev[w], NULL) != STAGECAL_OK)
             return __LINE__;

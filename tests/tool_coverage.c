@@ -3,11 +3,11 @@
  * calibrations of tests/synth_calibration.h (the law, windows and noise of
  * calibrate_intervals_cover_truth in tests/test_calibrate.c, over many more data sets).
  *
- * Usage: tool_coverage REPLICATIONS SEED [known-se | pooled-rho]
+ * Usage: tool_coverage REPLICATIONS SEED [known-se | per-window-rho]
  * Diagnostics: known-se gives the windows their true standard errors instead of the
- * estimated ones (fixed instead of estimated weights); pooled-rho keeps each window's
- * residual sd but uses the lag-1 autocorrelation averaged over the calibration's windows
- * (per analyser) in n_eff (see enum synth_se_mode in tests/synth_calibration.h).
+ * estimated ones (fixed instead of estimated weights); per-window-rho gives each window
+ * the n_eff of its own lag-1 autocorrelation, as the calibration did before it pooled the
+ * autocorrelation over the windows (see enum synth_se_mode in tests/synth_calibration.h).
  *
  * For each fit (stage space, composition space) and each quantity (a, b, confidence band
  * at R = 1.5, 5, ∞) it prints
@@ -133,12 +133,13 @@ int main(int argc, char **argv)
     int args_ok = argc == 3;
     if (argc == 4 && strcmp(argv[3], "known-se") == 0)
         mode = SYNTH_SE_KNOWN, args_ok = 1;
-    if (argc == 4 && strcmp(argv[3], "pooled-rho") == 0)
-        mode = SYNTH_SE_POOLED_RHO, args_ok = 1;
+    if (argc == 4 && strcmp(argv[3], "per-window-rho") == 0)
+        mode = SYNTH_SE_PER_WINDOW, args_ok = 1;
     long reps = args_ok ? strtol(argv[1], &end1, 10) : 0;
     unsigned long seed = args_ok ? strtoul(argv[2], &end2, 10) : 0;
     if (!args_ok || *end1 || *end2 || reps < 10 || reps > 10000000) {
-        fprintf(stderr, "usage: tool_coverage REPLICATIONS(>=10) SEED [known-se | pooled-rho]\n");
+        fprintf(stderr,
+                "usage: tool_coverage REPLICATIONS(>=10) SEED [known-se | per-window-rho]\n");
         return 1;
     }
     gsl_set_error_handler_off();
@@ -171,7 +172,7 @@ int main(int argc, char **argv)
         printf("coverage of 95 %% intervals, %ld synthetic calibrations, seed %lu%s (%.1f s)\n",
                reps, seed,
                mode == SYNTH_SE_KNOWN        ? ", true window standard errors"
-               : mode == SYNTH_SE_POOLED_RHO ? ", autocorrelation pooled over windows"
+               : mode == SYNTH_SE_PER_WINDOW ? ", each window's own autocorrelation"
                                              : "",
                (double)(t1.tv_sec - t0.tv_sec) + 1e-9 * (double)(t1.tv_nsec - t0.tv_nsec));
         report("stage space", &ts, (int)reps);

@@ -44,6 +44,11 @@ extern "C" {
  * non-finite y are skipped. EINVAL when fewer than 3 finite samples. */
 int stagecal_evidence_mean(const double *t, const double *y, size_t n, double u_floor, double *mean,
                            double *se, double *n_eff, stagecal_error *err);
+/* The same, also giving the window's own ρ (clipped as above) and the number m of finite
+ * samples behind the mean, which stagecal_evidence_pool_rho needs. */
+int stagecal_evidence_mean_rho(const double *t, const double *y, size_t n, double u_floor,
+                               double *mean, double *se, double *rho, size_t *m,
+                               stagecal_error *err);
 
 /* A quasi-steady window summarised: the unit of evidence. */
 typedef struct {
@@ -58,6 +63,9 @@ typedef struct {
     double f_load;      /* mean F-factor [Pa^0.5] */
     double xd, xb;      /* mean distillate and pot mole fractions [-] */
     double u_xd, u_xb;  /* their standard errors [-] */
+    double rho_xd;      /* lag-1 autocorrelation in u_xd's n_eff (the window's own, or pooled) */
+    double rho_xb;      /* the same for u_xb */
+    size_t m_xd, m_xb;  /* finite samples behind xd and xb (0: u_xd/u_xb were not built here) */
     int stages_ok;      /* the stage count below exists (inversion of the means is ok) */
     double stages;      /* effective stages incl. the pot at the mean compositions [-] */
     double se_stages;   /* its standard error [-] */
@@ -67,6 +75,16 @@ typedef struct {
     const double *s_xd; /* evenly thinned, outliers left out (storage owned by whoever */
     const double *s_xb; /* built the evidence) */
 } stagecal_evidence;
+
+/* Pools the lag-1 autocorrelation over a calibration's windows, per analyser: replaces
+ * each window's rho_xd (rho_xb) by the mean of all windows' values weighted by their
+ * lag pairs (m − 1), and rescales u_xd (u_xb) to the n_eff of that ρ. Why: one window's
+ * ρ̂ from tens of samples scatters widely, and the weights of the fits inherit that
+ * scatter; with a pooled ρ̂ the 95 % intervals cover at their nominal rate (the coverage
+ * study in docs/calibration.md §5). It assumes one analyser and one sampling interval per
+ * series across the windows. Windows with m_xd (m_xb) = 0 are left alone. Call before
+ * stagecal_evidence_stages, which propagates u_xd and u_xb. */
+void stagecal_evidence_pool_rho(stagecal_evidence *ev, size_t nev);
 
 /* Stage count of a window. With samples (ev->m ≥ 3, at most 64 used): local quadratics in
  * time (9 samples each) smooth the window's xD and xB, the fitted compositions are inverted at
