@@ -127,6 +127,34 @@ static double smoker_xd(double alpha, double r, double xb, double n)
     return 0.5 * (lo + hi);
 }
 
+/* Pooling: the ρ of each analyser becomes the lag-pair-weighted mean, and each standard
+ * error is rescaled from s/√n_eff(ρ_own) to s/√n_eff(ρ_pooled) with the AR(1) n_eff =
+ * m(1 − ρ)/(1 + ρ) (Wilks 2011, eq. 5.12 — from memory). Windows: m = 41 and 21 (40 and 20
+ * lag pairs), ρ = 0.1 and 0.7 → pooled (40·0.1 + 20·0.7)/60 = 0.3. Exact arithmetic, so
+ * 1e-12 relative. A window without samples (m = 0) is left alone. */
+static void calibrate_pool_rho_rescales(void **state)
+{
+    (void)state;
+    stagecal_evidence ev[3];
+    memset(ev, 0, sizeof ev);
+    ev[0].m_xd = ev[0].m_xb = 41, ev[0].rho_xd = ev[0].rho_xb = 0.1;
+    ev[1].m_xd = ev[1].m_xb = 21, ev[1].rho_xd = ev[1].rho_xb = 0.7;
+    ev[2].m_xd = 0, ev[2].m_xb = 0, ev[2].rho_xd = ev[2].rho_xb = 0.9;
+    for (int k = 0; k < 3; k++)
+        ev[k].u_xd = 0.001 * (k + 1), ev[k].u_xb = 0.002 * (k + 1);
+    stagecal_evidence_pool_rho(ev, 3);
+    const double pooled = (40 * 0.1 + 20 * 0.7) / 60.0;
+    double n0 = 41 * (1 - 0.1) / 1.1, n0p = 41 * (1 - pooled) / (1 + pooled);
+    double n1 = 21 * (1 - 0.7) / 1.7, n1p = 21 * (1 - pooled) / (1 + pooled);
+    assert_rel(ev[0].rho_xd, pooled, 1e-12, "pooled rho, xD");
+    assert_rel(ev[1].rho_xb, pooled, 1e-12, "pooled rho, xB");
+    assert_rel(ev[0].u_xd, 0.001 * sqrt(n0 / n0p), 1e-12, "u_xd window 0");
+    assert_rel(ev[1].u_xd, 0.002 * sqrt(n1 / n1p), 1e-12, "u_xd window 1");
+    assert_rel(ev[0].u_xb, 0.002 * sqrt(n0 / n0p), 1e-12, "u_xb window 0");
+    assert_rel(ev[2].rho_xd, 0.9, 0, "no samples: untouched");
+    assert_rel(ev[2].u_xd, 0.003, 0, "no samples: untouched");
+}
+
 /* A batch pot drifts through a window. On noise-free logs from a known law, both fits
  * recover the law (the stage count follows the drift sample by sample), while the
  * inversion of plain window means is visibly biased. Truth from Smoker's closed-form
@@ -192,6 +220,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(calibrate_evidence_se_matches_ar1),
         cmocka_unit_test(calibrate_evidence_needs_three),
+        cmocka_unit_test(calibrate_pool_rho_rescales),
         cmocka_unit_test(calibrate_intervals_cover_truth),
         cmocka_unit_test(calibrate_follows_drifting_pot),
     };
