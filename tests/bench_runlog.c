@@ -26,6 +26,7 @@
 
 #include "stagecal/column.h"
 #include "stagecal/runlog.h"
+#include "oracle_smoker.h"
 
 static double now(void)
 {
@@ -40,19 +41,6 @@ static double cpu(void)
     struct timespec ts;
     clock_gettime(CLOCK_PROCESS_CPUTIME_ID, &ts);
     return ts.tv_sec + 1e-9 * ts.tv_nsec;
-}
-
-static double smoker_xb(double alpha, double r, double xd, double n)
-{
-    double m = r / (r + 1.0), b = xd / (r + 1.0);
-    double qa = m * (alpha - 1.0), qb = m + b * (alpha - 1.0) - alpha, qc = b;
-    double disc = sqrt(qb * qb - 4.0 * qa * qc);
-    double k1 = (-qb - disc) / (2.0 * qa), k2 = (-qb + disc) / (2.0 * qa);
-    double k = (k1 > 0 && k1 < 1) ? k1 : k2;
-    double c = 1.0 + (alpha - 1.0) * k;
-    double beta = m * c * (alpha - 1.0) / (alpha - m * c * c);
-    double a = m * c * c / alpha;
-    return k + 1.0 / (beta + (1.0 / (xd - k) - beta) / pow(a, n));
 }
 
 int main(int argc, char **argv)
@@ -93,7 +81,7 @@ int main(int argc, char **argv)
     for (size_t i = 0; i < rows; i++) {
         size_t k = i % per_run;
         double xd = 0.95 - 0.07 * (double)k / (double)per_run;
-        double xb = smoker_xb(2.5, 4.0, xd, 5.0);
+        double xb = oracle_smoker_xb(2.5, 4.0, xd, 5.0);
         fprintf(out, "r%zu,%zu,%.6f,%.6f,%.6f,4,3.6,80.1\n", i / per_run, 10 * k,
                 10.0 - 2.0 * (double)k / (double)per_run + gsl_ran_gaussian(rng, 0.005),
                 xd + gsl_ran_gaussian(rng, 0.002), xb + gsl_ran_gaussian(rng, 0.005));

@@ -22,6 +22,7 @@
 #include <math.h>
 #include <string.h>
 
+#include "oracle_smoker.h"
 #include "stagecal/calibrate.h"
 #include "stagecal/stages.h"
 
@@ -50,26 +51,6 @@ static inline double synth_ar1_var_mean(double sigma, double rho, size_t n)
     for (size_t k = 1; k < n; k++)
         s += 2 * (1 - (double)k / (double)n) * pow(rho, (double)k);
     return sigma * sigma / (double)n * s;
-}
-
-/* Pot composition after `n` stages (pot included) from xD at reflux r with constant
- * α, by Smoker's closed-form inverse (REFERENCES §2) or Fenske at total reflux
- * (REFERENCES §1) — independent of the stepping code under test. */
-static inline double synth_smoker_xb(double alpha, double r, double xd, double n)
-{
-    if (isinf(r)) {
-        double odds = xd / (1 - xd) / pow(alpha, n);
-        return odds / (1 + odds);
-    }
-    double m = r / (r + 1), b = xd / (r + 1);
-    double qa = m * (alpha - 1), qb = m + b * (alpha - 1) - alpha, qc = b;
-    double disc = sqrt(qb * qb - 4 * qa * qc);
-    double k1 = (-qb - disc) / (2 * qa), k2 = (-qb + disc) / (2 * qa);
-    double k = (k1 > 0 && k1 < 1) ? k1 : k2;
-    double c = 1 + (alpha - 1) * k;
-    double beta = m * c * (alpha - 1) / (alpha - m * c * c);
-    double a = m * c * c / alpha;
-    return k + 1 / (beta + (1 / (xd - k) - beta) / pow(a, n));
 }
 
 /* The saturating law: a·(1 − exp(−b r)), a at total reflux. */
@@ -156,7 +137,7 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
         double *xd = xds[w], *xb = xbs[w];
         double xd_true = 0.90 + 0.07 * gsl_rng_uniform(rng);
         double xb_true =
-            synth_smoker_xb(SYNTH_ALPHA, rs[w], xd_true, synth_law(SYNTH_A, SYNTH_B, rs[w]));
+            oracle_smoker_xb(SYNTH_ALPHA, rs[w], xd_true, synth_law(SYNTH_A, SYNTH_B, rs[w]));
         size_t nok = 0;
         synth_ar1(rng, exd, NS, u_xd, rho);
         synth_ar1(rng, exb, NS, u_xb, rho);

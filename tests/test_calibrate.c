@@ -119,7 +119,7 @@ static double smoker_xd(double alpha, double r, double xb, double n)
     double lo = xb, hi = 1 - 1e-12;
     for (int it = 0; it < 200; it++) {
         double mid = 0.5 * (lo + hi);
-        if (synth_smoker_xb(alpha, r, mid, n) > xb)
+        if (oracle_smoker_xb(alpha, r, mid, n) > xb)
             hi = mid;
         else
             lo = mid;

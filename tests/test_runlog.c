@@ -27,6 +27,7 @@
 #include "stagecal/column.h"
 #include "stagecal/runlog.h"
 #include "stagecal/stages.h"
+#include "oracle_smoker.h"
 
 static stagecal_column test_col; /* α = 2.5, ethanol/water molar masses, stated u */
 
@@ -351,20 +352,7 @@ static void runlog_f_factor_check_value(void **state)
 
 /* ---- synthetic logs from a known stage law --------------------------------------- */
 
-/* Smoker's closed-form inverse (REFERENCES §2): pot composition after n stages. */
-static double smoker_xb(double alpha, double r, double xd, double n)
-{
-    double m = r / (r + 1.0), b = xd / (r + 1.0);
-    double qa = m * (alpha - 1.0), qb = m + b * (alpha - 1.0) - alpha, qc = b;
-    double disc = sqrt(qb * qb - 4.0 * qa * qc);
-    double k1 = (-qb - disc) / (2.0 * qa), k2 = (-qb + disc) / (2.0 * qa);
-    double k = (k1 > 0 && k1 < 1) ? k1 : k2;
-    double c = 1.0 + (alpha - 1.0) * k;
-    double beta = m * c * (alpha - 1.0) / (alpha - m * c * c);
-    double a = m * c * c / alpha;
-    return k + 1.0 / (beta + (1.0 / (xd - k) - beta) / pow(a, n));
-}
-
+/* Logs whose xB comes from Smoker's closed-form inverse (REFERENCES §2, oracle_smoker.h). */
 struct synth {
     double alpha, n_true, r, w0_mol, d_mol_s, xd0, dt_s;
     size_t rows;
@@ -383,10 +371,10 @@ static char *synth_csv(const struct synth *s, size_t *len, double **xb_true, dou
     double xd_end = 0.5;
     gxd[0] = s->xd0;
     glnw[0] = 0;
-    double xb_prev = smoker_xb(s->alpha, s->r, s->xd0, s->n_true);
+    double xb_prev = oracle_smoker_xb(s->alpha, s->r, s->xd0, s->n_true);
     for (int j = 1; j <= G; j++) {
         gxd[j] = s->xd0 - (s->xd0 - xd_end) * j / G;
-        double xb = smoker_xb(s->alpha, s->r, gxd[j], s->n_true);
+        double xb = oracle_smoker_xb(s->alpha, s->r, gxd[j], s->n_true);
         double xdm = 0.5 * (gxd[j] + gxd[j - 1]), xbm = 0.5 * (xb + xb_prev);
         glnw[j] = glnw[j - 1] + (xb - xb_prev) / (xdm - xbm);
         xb_prev = xb;
@@ -406,7 +394,7 @@ static char *synth_csv(const struct synth *s, size_t *len, double **xb_true, dou
             j++;
         double fr = (lnw - glnw[j]) / (glnw[j + 1] - glnw[j]);
         double xd = gxd[j] + fr * (gxd[j + 1] - gxd[j]);
-        double xb = smoker_xb(s->alpha, s->r, xd, s->n_true);
+        double xb = oracle_smoker_xb(s->alpha, s->r, xd, s->n_true);
         (*xb_true)[i] = xb;
         (*xd_true)[i] = xd;
         double xd_m = xd;
