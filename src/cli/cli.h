@@ -105,6 +105,11 @@ int cli_usage_getopt(int c, char **argv, const char *command);
  * naming the option and return CLI_EXIT_USAGE, or return 0. */
 int cli_check_fraction(const char *opt, double v); /* a mole fraction in (0, 1) */
 int cli_check_reflux(const char *opt, double v);   /* R >= 0 or inf */
+/* Refuses (usage error, exit 2) an output path that names one of the n inputs (the same
+ * file: device and inode, whatever the spelling): writing it would destroy that input.
+ * NULL or "-" outputs and NULL inputs are skipped; an output that does not exist yet
+ * passes. Returns 0 when the output is safe. */
+int cli_check_output(const char *opt, const char *out, const char *const *inputs, size_t n);
 int cli_check_murphree(const char *opt, double v); /* E_MV in (0, 1] */
 
 #endif

@@ -360,6 +360,14 @@ int cmd_calibrate(int argc, char **argv)
 
     const char *const *logs = (const char *const *)(argv + optind);
     size_t nlogs = (size_t)(argc - optind);
+    /* an output written over an input would destroy it */
+    const struct {
+        const char *opt, *path;
+    } outs[3] = {{"samples-out", samples_out}, {"points-out", points_out}, {"report", report_out}};
+    for (int k = 0; k < 3; k++)
+        if ((rc = cli_check_output(outs[k].opt, outs[k].path, logs, nlogs)) ||
+            (rc = cli_check_output(outs[k].opt, outs[k].path, &column, 1)))
+            return rc;
     if (cli_progress_enabled()) {
         par.progress = show_progress;
         par.progress_ctx = NULL;

@@ -454,6 +454,11 @@ int cmd_predict(int argc, char **argv)
         return cli_usage_error("option '--level': %g is outside (0, 1)", level);
     if (json && out_path && strcmp(out_path, "-") == 0)
         return cli_usage_error("'--out -' and '--json' would both write to standard output");
+    {
+        const char *inputs[3] = {model_path, plan_path, sys.column_path};
+        if ((rc = cli_check_output("out", out_path, inputs, 3)))
+            return rc;
+    }
     if (samples == 1)
         return cli_usage_error("option '--samples': 1 draw gives no band (use 0 or >= 2)");
 

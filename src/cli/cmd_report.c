@@ -146,6 +146,13 @@ int cmd_report(int argc, char **argv)
     }
     if (!output)
         output = out_owned;
+    {
+        const char *inputs[3] = {model_path, points_path, column_path};
+        if ((rc = cli_check_output("output", output, inputs, 3))) {
+            free(out_owned);
+            return rc;
+        }
+    }
 
     stagecal_error err;
     stagecal_model m;

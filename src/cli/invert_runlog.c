@@ -186,6 +186,10 @@ int invert_runlog(int argc, char **argv)
                                "model and the uncertainties come from it)");
     if ((rc = cli_check_murphree("murphree", murphree)))
         return rc;
+    if ((rc = cli_check_output("out", out_path, (const char *const *)(argv + optind),
+                               (size_t)(argc - optind))) ||
+        (rc = cli_check_output("out", out_path, &column_path, 1)))
+        return rc;
     /* --json owns stdout: the CSV must go to a file then (one document on stdout). */
     if (json && out_path && strcmp(out_path, "-") == 0)
         return cli_usage_error("options '--json' and '--out -' both write to standard output "

@@ -2,12 +2,14 @@
  * fuzz_cli.c — libFuzzer harness for the command-line parsers: the input is split at
  * newlines into argv and handed to one cmd_<name> function (src/cli/ compiled in,
  * main.c left out). The first token names the command. Tokens "@col", "@ideal", "@log"
- * and "@pts" stand for real files under datasets/
- * so the file-reading paths are reached; any other token containing '/' is
- * refused (the harness never touches files outside its scratch directory). The process
- * works in a fresh temporary directory, stdin is /dev/null, and commands that write
- * files (calibrate, plot, report) are not called. Run with -close_fd_mask=3 to keep the
- * commands' output off the terminal (libFuzzer keeps its own and the sanitizer reports).
+ * and "@pts" stand for copies of files under datasets/ made in the scratch directory
+ * (an output option naming one then overwrites only a copy: before the copies, a
+ * fuzzed `invert --out @log` overwrote datasets/demo/logs/2025-01.csv, which found the
+ * output-over-input defect), so the file-reading paths are reached; any other token containing '/'
+ * is refused (the harness never touches files outside its scratch directory). The process works in
+ * a fresh temporary directory, stdin is /dev/null, and commands that write files (calibrate, plot,
+ * report) are not called. Run with -close_fd_mask=3 to keep the commands' output off the terminal
+ * (libFuzzer keeps its own and the sanitizer reports).
  */
 #include <stdlib.h>
 #include <unistd.h>
@@ -20,21 +22,46 @@ extern int cli_quiet;
 
 static char path_col[512], path_ideal[512], path_log[512], path_pts[512];
 
+/* Copies src to name in the current (scratch) directory and puts its absolute path in
+ * out: the commands see copies, so an output option can never touch datasets/. */
+static void scratch_copy(const char *dir, const char *src, const char *name, char *out, size_t cap)
+{
+    FILE *in = fopen(src, "rb");
+    FILE *to = fopen(name, "wb");
+    char buf[65536];
+    size_t n;
+    if (!in || !to) {
+        perror(src);
+        abort();
+    }
+    while ((n = fread(buf, 1, sizeof buf, in)) > 0)
+        if (fwrite(buf, 1, n, to) != n)
+            abort();
+    if (ferror(in) || fclose(to) != 0)
+        abort();
+    fclose(in);
+    snprintf(out, cap, "%s/%s", dir, name);
+}
+
 int LLVMFuzzerInitialize(int *argc, char ***argv)
 {
     (void)argc;
     (void)argv;
     gsl_set_error_handler_off();
-    snprintf(path_col, sizeof path_col, "%s/columns/demo_alpha.json", STAGECAL_DATASETS);
-    snprintf(path_ideal, sizeof path_ideal, "%s/columns/demo_benzene_toluene.json",
-             STAGECAL_DATASETS);
-    snprintf(path_log, sizeof path_log, "%s/demo/logs/2025-01.csv", STAGECAL_DATASETS);
-    snprintf(path_pts, sizeof path_pts, "%s/points/demo_points.csv", STAGECAL_DATASETS);
     char tmpl[] = "/tmp/stagecal-fuzz-cli.XXXXXX";
     if (!mkdtemp(tmpl) || chdir(tmpl) != 0) {
         perror("fuzz setup: scratch directory");
         abort();
     }
+    char src[512];
+    snprintf(src, sizeof src, "%s/columns/demo_alpha.json", STAGECAL_DATASETS);
+    scratch_copy(tmpl, src, "col.json", path_col, sizeof path_col);
+    snprintf(src, sizeof src, "%s/columns/demo_benzene_toluene.json", STAGECAL_DATASETS);
+    scratch_copy(tmpl, src, "ideal.json", path_ideal, sizeof path_ideal);
+    snprintf(src, sizeof src, "%s/demo/logs/2025-01.csv", STAGECAL_DATASETS);
+    scratch_copy(tmpl, src, "log.csv", path_log, sizeof path_log);
+    snprintf(src, sizeof src, "%s/points/demo_points.csv", STAGECAL_DATASETS);
+    scratch_copy(tmpl, src, "pts.csv", path_pts, sizeof path_pts);
     if (!freopen("/dev/null", "r", stdin)) {
         perror("fuzz setup: stdin");
         abort();
