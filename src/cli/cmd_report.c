@@ -195,15 +195,12 @@ int cmd_report(int argc, char **argv)
         int have_col = 0;
         if (column_path && (rc = stagecal_column_load(column_path, &col, &err)) == STAGECAL_OK) {
             have_col = 1;
-            if (strcmp(col.id, m.column_id) != 0) {
-                cli_error("column file '%s' is for column '%s', the model for '%s'", column_path,
-                          col.id, m.column_id);
-                stagecal_column_free(&col);
-                stagecal_report_doc_free(doc);
-                stagecal_regress_data_free(&pts);
-                stagecal_model_free(&m);
-                free(out_owned);
-                return CLI_EXIT_DATA;
+            if (strcmp(col.id, m.column_id) != 0) { /* bad data, reported below like the rest */
+                stagecal_error_clear(&err);
+                err.code = rc = STAGECAL_EDATA;
+                snprintf(err.text, sizeof err.text,
+                         "column file '%s' is for column '%s', the model for '%s'", column_path,
+                         col.id, m.column_id);
             }
         }
         if (rc == STAGECAL_OK)
