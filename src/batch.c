@@ -22,77 +22,14 @@
 #include "stagecal/batch.h"
 
 #include <gsl/gsl_errno.h>
-#include <gsl/gsl_odeiv2.h>
-#include <gsl/gsl_roots.h>
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
+#include "batch_internal.h"
 #include "internal.h"
-#include "stagecal/form.h"
-#include "stagecal/stages.h"
-
-#define NSTATE 4
-#define MAXAZ 8
-
-enum { EV_TARGET = 0, EV_SWITCH, EV_CEILING, EV_EMPTY, EV_TIME, NEV };
-
-struct stagecal_batch_workspace {
-    stagecal_batch_problem pb;
-    stagecal_batch_column col;
-    stagecal_batch_params par;
-    gsl_odeiv2_system sys;    /* the pot balances (params = this workspace) */
-    gsl_odeiv2_driver *drv;   /* GSL driver: owns step, control and evolve */
-    gsl_root_fsolver *root_x; /* inner solves (xD, L/V) */
-    gsl_root_fsolver *root_h; /* event location on the step length */
-    double az[MAXAZ];         /* azeotropes of the vle, ascending */
-    size_t n_az;
-    double tau;        /* current τ */
-    double h;          /* suggested next step in τ */
-    double u[NSTATE];  /* current state */
-    double light_done; /* light in finished cuts / W0 */
-    double total_done; /* distillate in finished cuts / W0 */
-    double cut_tau0;   /* τ at which the current cut started */
-    size_t cut;        /* current cut */
-    size_t sched;      /* current schedule entry */
-    int ceiling_hit;   /* constant distillate: R has reached reflux_max */
-    int done;          /* batch ended */
-    double next_out;   /* τ of the next output row (INFINITY if none) */
-    double tau_max;    /* τ of params.t_max_s */
-    double xd_last;    /* last xD solved (warm start of the bracket) */
-    double lv_last;    /* last L/V of the constant-distillate solve (warm start) */
-    size_t n_rhs;
-    int clamped;
-    int fail_code;       /* error raised inside a GSL callback */
-    stagecal_error fail; /* its message */
-};
-
-/* ---- names ---------------------------------------------------------------------------- */
-
-static const char *const stop_names[] = {"target", "reflux-ceiling", "pot-empty", "time-limit",
-                                         "not-started"};
-static const char *const target_names[] = {"pot-x",    "mean-x", "distillate-x",
-                                           "fraction", "time",   "reflux"};
-
-const char *stagecal_batch_stop_name(int stop)
-{
-    return (stop >= 0 && stop < 5) ? stop_names[stop] : "unknown";
-}
-
-const char *stagecal_batch_target_name(int kind)
-{
-    return (kind >= 0 && kind < 6) ? target_names[kind] : "unknown";
-}
-
-int stagecal_batch_target_from_name(const char *name)
-{
-    for (int i = 0; i < 6; i++)
-        if (strcmp(name, target_names[i]) == 0)
-            return i;
-    return -1;
-}
 
 /* ---- defaults, init, check -------------------------------------------------------------- */
 
@@ -249,269 +186,6 @@ int stagecal_batch_check(const stagecal_batch_problem *pb, stagecal_error *err)
     return STAGECAL_OK;
 }
 
-/* ---- stage laws ------------------------------------------------------------------------- */
-
-int stagecal_batch_constant_stages(void *data, double r, double *stages, unsigned *outside,
-                                   stagecal_error *err)
-{
-    (void)r, (void)err;
-    *stages = *(const double *)data;
-    *outside = 0;
-    return STAGECAL_OK;
-}
-
-int stagecal_batch_model_stages(void *data, double r, double *stages, unsigned *outside,
-                                stagecal_error *err)
-{
-    const stagecal_batch_model_law *law = data;
-    const stagecal_model *m = law->m;
-    const double *theta = law->theta ? law->theta : m->theta;
-    unsigned o = 0;
-    int rc = stagecal_form_eval(&m->form, theta, r, law->f_load, stages, NULL);
-    if (rc != STAGECAL_OK || !isfinite(*stages))
-        return error_set(err, rc != STAGECAL_OK ? rc : STAGECAL_EINVAL,
-                         "correlation '%s' is undefined at R = %g, F = %g", m->form.name, r,
-                         law->f_load);
-    if (r < m->r_min)
-        o |= STAGECAL_MODEL_R_BELOW;
-    if (r > m->r_max)
-        o |= STAGECAL_MODEL_R_ABOVE;
-    if (m->has_load && isfinite(law->f_load)) {
-        if (law->f_load < m->f_min)
-            o |= STAGECAL_MODEL_F_BELOW;
-        if (law->f_load > m->f_max)
-            o |= STAGECAL_MODEL_F_ABOVE;
-    }
-    *outside = o;
-    return STAGECAL_OK;
-}
-
-/* ---- inner solves ------------------------------------------------------------------------ */
-
-/* Forward stepping through the column's callback, or stagecal_stages_step. One stage
- * is the pot alone: xB = x*(xD) whatever R. */
-static int col_step(const stagecal_batch_column *col, double xd, double r, double n, double *xb,
-                    stagecal_error *err)
-{
-    if (n <= 1 || r == 0) {
-        int rc = stagecal_vle_xstar(col->vle, xd, xb);
-        if (rc != STAGECAL_OK)
-            return error_set(err, rc, "x*(y) failed at y = %.17g", xd);
-        return STAGECAL_OK;
-    }
-    if (col->step)
-        return col->step(col->step_data, col->vle, xd, r, n, xb, err);
-    int status = 0;
-    size_t len = 0;
-    int rc = stagecal_stages_step(col->vle, xd, r, n, 1.0, NULL, xb, NULL, 0, &len, &status, err);
-    if (rc != STAGECAL_OK)
-        return rc;
-    /* At a pinch the steps stopped making progress: stepping reports the composition
-     * reached, the pinch of this operating line to rounding, which more stages cannot
-     * lower (stages.h). */
-    if (status == STAGECAL_STAGES_PINCH)
-        return STAGECAL_OK;
-    if (status != STAGECAL_STAGES_OK)
-        return error_set(err, STAGECAL_ENOCONV,
-                         "stepping %.6g stages down from xD = %.9g at R = %.6g gave status '%s'", n,
-                         xd, r, stagecal_stages_status_name(status));
-    return STAGECAL_OK;
-}
-
-static int law_stages(const stagecal_batch_column *col, double r, double *n, unsigned *outside,
-                      int *clamped, stagecal_error *err)
-{
-    int rc = col->stages(col->stages_data, r, n, outside, err);
-    if (rc != STAGECAL_OK)
-        return rc;
-    if (!isfinite(*n))
-        return error_set(err, STAGECAL_EINVAL, "stage law gave %g stages at R = %g", *n, r);
-    if (*n < 1) {
-        *n = 1; /* fewer than the pot alone is not physical: the pot is an ideal stage */
-        if (clamped)
-            *clamped = 1;
-    }
-    return STAGECAL_OK;
-}
-
-struct xd_ctx {
-    const stagecal_batch_column *col;
-    double xb, r, n;
-    int code;
-    stagecal_error *err;
-};
-
-static double xd_fn(double xd, void *p)
-{
-    struct xd_ctx *c = p;
-    double xb = 0;
-    if (c->code)
-        return NAN;
-    c->code = col_step(c->col, xd, c->r, c->n, &xb, c->err);
-    return c->code ? NAN : xb - c->xb;
-}
-
-/* Runs Brent on f over [lo, hi] (f(lo) < 0 < f(hi) checked by the caller). */
-static int brent(gsl_root_fsolver *s, gsl_function *f, double lo, double hi, double epsabs,
-                 size_t max_iter, double *x, int *code, stagecal_error *err, const char *what)
-{
-    int st = gsl_root_fsolver_set(s, f, lo, hi);
-    for (size_t it = 0; st == GSL_SUCCESS && it < max_iter; it++) {
-        st = gsl_root_fsolver_iterate(s);
-        if (st != GSL_SUCCESS)
-            break;
-        lo = gsl_root_fsolver_x_lower(s);
-        hi = gsl_root_fsolver_x_upper(s);
-        if (gsl_root_test_interval(lo, hi, epsabs, 0) == GSL_SUCCESS) {
-            *x = gsl_root_fsolver_root(s);
-            return STAGECAL_OK;
-        }
-    }
-    if (*code)
-        return *code;
-    if (st != GSL_SUCCESS)
-        return error_set(err, STAGECAL_ENOCONV, "%s: root finding failed (%s)", what,
-                         gsl_strerror(st));
-    return error_set(err, STAGECAL_ENOCONV, "%s: no convergence in %zu iterations", what, max_iter);
-}
-
-/* Upper end of the xD bracket: the lowest azeotrope above xb, else x_max, less a
- * hair so that stepping starts inside its domain. */
-static double xd_upper(const stagecal_batch_column *col, const double *az, size_t n_az, double xb)
-{
-    double hi = stagecal_vle_x_max(col->vle);
-    for (size_t i = 0; i < n_az; i++)
-        if (az[i] > xb) {
-            hi = az[i];
-            break;
-        }
-    return xb + (hi - xb) * (1 - 1e-12);
-}
-
-static int solve_xd(const stagecal_batch_column *col, const stagecal_batch_params *par,
-                    gsl_root_fsolver *s, const double *az, size_t n_az, double xb, double r,
-                    double n, double *xd_last, double *xd, stagecal_error *err)
-{
-    if (n <= 1 || r == 0) {
-        /* no liquid flows down the column at R = 0: only the pot separates */
-        int rc = stagecal_vle_ystar(col->vle, xb, xd);
-        if (rc != STAGECAL_OK)
-            return error_set(err, rc, "y*(x) failed at x = %.17g", xb);
-        return STAGECAL_OK;
-    }
-    struct xd_ctx c = {col, xb, r, n, 0, err};
-    gsl_function f = {xd_fn, &c};
-    double lo = xb, hi = xd_upper(col, az, n_az, xb), flo, fhi;
-    /* Warm start: the bracket around the last xD is usually valid and narrow. */
-    if (xd_last && *xd_last > lo && *xd_last < hi) {
-        double d = 1e-4, a = fmax(lo, *xd_last - d), b = fmin(hi, *xd_last + d);
-        double fa = xd_fn(a, &c), fb = c.code ? NAN : xd_fn(b, &c);
-        if (c.code)
-            return c.code;
-        if (fa < 0 && fb > 0)
-            lo = a, hi = b;
-        else if (fa == 0 || fb == 0) {
-            *xd = fa == 0 ? a : b;
-            return STAGECAL_OK;
-        }
-    }
-    flo = xd_fn(lo, &c);
-    fhi = c.code ? NAN : xd_fn(hi, &c);
-    if (c.code)
-        return c.code;
-    if (flo >= 0) { /* the column does not enrich at all */
-        *xd = lo;
-        return STAGECAL_OK;
-    }
-    if (fhi <= 0) { /* richer than stepping from the top of the range reaches */
-        *xd = hi;
-        return STAGECAL_OK;
-    }
-    int rc = brent(s, &f, lo, hi, par->x_epsabs, par->max_iter, xd, &c.code, err,
-                   "distillate composition");
-    if (rc == STAGECAL_OK && xd_last)
-        *xd_last = *xd;
-    return rc;
-}
-
-struct lv_ctx {
-    const stagecal_batch_column *col;
-    double xd, xb;
-    int code;
-    stagecal_error *err;
-};
-
-/* g(L/V) = xB reached from the set point at L/V − xB of the pot; decreasing. */
-static double lv_fn(double lv, void *p)
-{
-    struct lv_ctx *c = p;
-    double r = lv / (1 - lv), n, xb = 0;
-    unsigned o;
-    if (c->code)
-        return NAN;
-    c->code = law_stages(c->col, r, &n, &o, NULL, c->err);
-    if (!c->code)
-        c->code = col_step(c->col, c->xd, r, n, &xb, c->err);
-    return c->code ? NAN : xb - c->xb;
-}
-
-/* ---- state at a point ---------------------------------------------------------------------- */
-
-/* R, xD, stages and envelope flags at pot composition xb under the current policy. */
-static int policy_state(stagecal_batch_workspace *w, double xb, double *r, double *xd, double *n,
-                        unsigned *outside, stagecal_error *err)
-{
-    const stagecal_batch_policy *po = &w->pb.policy;
-    int rc;
-    if (po->kind == STAGECAL_BATCH_CONSTANT_DISTILLATE && !w->ceiling_hit) {
-        struct lv_ctx c = {&w->col, po->xd_set, xb, 0, err};
-        gsl_function f = {lv_fn, &c};
-        double lv_max = po->reflux_max / (po->reflux_max + 1), lv = 0;
-        double g0 = lv_fn(0, &c), g1 = c.code ? NAN : lv_fn(lv_max, &c);
-        if (c.code)
-            return c.code;
-        if (g0 <= 0) {
-            lv = 0; /* the pot alone already gives xD >= the set point */
-        } else if (g1 > 0) {
-            lv = lv_max; /* beyond the ceiling (inside a step before the event): clamp */
-        } else {
-            double lo = 0, hi = lv_max;
-            /* Warm start: the bracket around the last L/V is usually valid and narrow. */
-            if (w->lv_last > 0 && w->lv_last < lv_max) {
-                double d = 1e-4, a = fmax(0, w->lv_last - d), b = fmin(lv_max, w->lv_last + d);
-                double ga = lv_fn(a, &c), gb = c.code ? NAN : lv_fn(b, &c);
-                if (c.code)
-                    return c.code;
-                if (ga > 0 && gb < 0)
-                    lo = a, hi = b;
-            }
-            rc = brent(w->root_x, &f, lo, hi, w->par.x_epsabs, w->par.max_iter, &lv, &c.code, err,
-                       "reflux ratio for the distillate set point");
-            if (rc)
-                return rc;
-            w->lv_last = lv;
-        }
-        *r = lv / (1 - lv);
-        if ((rc = law_stages(&w->col, *r, n, outside, &w->clamped, err)))
-            return rc;
-        if (lv > 0 && lv < lv_max) {
-            *xd = po->xd_set;
-            return STAGECAL_OK;
-        }
-        return solve_xd(&w->col, &w->par, w->root_x, w->az, w->n_az, xb, *r, *n, &w->xd_last, xd,
-                        err);
-    }
-    if (po->kind == STAGECAL_BATCH_CONSTANT_DISTILLATE)
-        *r = po->reflux_max;
-    else if (po->kind == STAGECAL_BATCH_SCHEDULE)
-        *r = po->steps[w->sched].reflux;
-    else
-        *r = po->reflux;
-    if ((rc = law_stages(&w->col, *r, n, outside, &w->clamped, err)))
-        return rc;
-    return solve_xd(&w->col, &w->par, w->root_x, w->az, w->n_az, xb, *r, *n, &w->xd_last, xd, err);
-}
-
 static int rhs(double tau, const double u[], double dudt[], void *params)
 {
     stagecal_batch_workspace *w = params;
@@ -526,7 +200,7 @@ static int rhs(double tau, const double u[], double dudt[], void *params)
     xb = u[1] / u[0];
     if (!(xb < 1))
         return GSL_FAILURE;
-    w->fail_code = policy_state(w, xb, &r, &xd, &n, &o, &w->fail);
+    w->fail_code = batch_policy_state(w, xb, &r, &xd, &n, &o, &w->fail);
     if (w->fail_code)
         return GSL_EBADFUNC;
     double d = 1 / (r + 1);
@@ -535,282 +209,6 @@ static int rhs(double tau, const double u[], double dudt[], void *params)
     dudt[2] = d;
     dudt[3] = d * xd;
     return GSL_SUCCESS;
-}
-
-/* ---- events ------------------------------------------------------------------------------- */
-
-/* g of event `ev` at (tau, u); > 0 before, ≤ 0 at and after. INFINITY when the event
- * is not armed. */
-static int event_g(stagecal_batch_workspace *w, int ev, double tau, const double *u, double *g,
-                   stagecal_error *err)
-{
-    const stagecal_batch_policy *po = &w->pb.policy;
-    double xb = u[1] / u[0], scale = w->pb.w0_mol / w->pb.v_mol_s; /* s per unit τ */
-    double r, xd, n, xbr;
-    unsigned o;
-    int rc;
-    *g = INFINITY;
-    switch (ev) {
-    case EV_TARGET: {
-        const stagecal_batch_cut_spec *c = &w->pb.cuts[w->cut];
-        switch (c->kind) {
-        case STAGECAL_BATCH_UNTIL_POT_X:
-            *g = xb - c->value;
-            break;
-        case STAGECAL_BATCH_UNTIL_MEAN_X:
-            if (u[2] > 0) {
-                *g = u[3] / u[2] - c->value;
-                break;
-            }
-            /* an empty receiver's mean is the current xD */
-            /* fall through */
-        case STAGECAL_BATCH_UNTIL_DISTILLATE_X:
-            if ((rc = policy_state(w, xb, &r, &xd, &n, &o, err)))
-                return rc;
-            *g = xd - c->value;
-            break;
-        case STAGECAL_BATCH_UNTIL_FRACTION:
-            *g = c->value - (1 - u[0]);
-            break;
-        case STAGECAL_BATCH_UNTIL_TIME:
-            *g = c->value / scale - tau;
-            break;
-        case STAGECAL_BATCH_UNTIL_REFLUX:
-            if (w->ceiling_hit) {
-                *g = 0; /* R already sits at the ceiling, above any lower target */
-                break;
-            }
-            if ((rc = law_stages(&w->col, c->value, &n, &o, NULL, err)) ||
-                (rc = col_step(&w->col, po->xd_set, c->value, n, &xbr, err)))
-                return rc;
-            *g = xb - xbr;
-            break;
-        }
-        break;
-    }
-    case EV_SWITCH:
-        if (po->kind != STAGECAL_BATCH_SCHEDULE || w->sched + 1 >= po->n_steps)
-            break;
-        if (po->key == STAGECAL_BATCH_BY_TIME)
-            *g = po->steps[w->sched + 1].at / scale - tau;
-        else
-            *g = xb - po->steps[w->sched + 1].at;
-        break;
-    case EV_CEILING:
-        if (po->kind != STAGECAL_BATCH_CONSTANT_DISTILLATE || w->ceiling_hit)
-            break;
-        if ((rc = law_stages(&w->col, po->reflux_max, &n, &o, NULL, err)) ||
-            (rc = col_step(&w->col, po->xd_set, po->reflux_max, n, &xbr, err)))
-            return rc;
-        *g = xb - xbr;
-        break;
-    case EV_EMPTY:
-        *g = u[0] - w->par.min_pot_fraction;
-        break;
-    case EV_TIME:
-        *g = w->tau_max - tau;
-        break;
-    }
-    return STAGECAL_OK;
-}
-
-/* The next τ at which a time-based event falls (bounds the step so it is hit exactly). */
-static double next_time_event(const stagecal_batch_workspace *w)
-{
-    const stagecal_batch_policy *po = &w->pb.policy;
-    double scale = w->pb.w0_mol / w->pb.v_mol_s, t = w->tau_max;
-    const stagecal_batch_cut_spec *c = &w->pb.cuts[w->cut];
-    if (c->kind == STAGECAL_BATCH_UNTIL_TIME && c->value / scale > w->tau)
-        t = fmin(t, c->value / scale);
-    if (po->kind == STAGECAL_BATCH_SCHEDULE && po->key == STAGECAL_BATCH_BY_TIME &&
-        w->sched + 1 < po->n_steps)
-        t = fmin(t, po->steps[w->sched + 1].at / scale);
-    return t;
-}
-
-struct h_ctx {
-    stagecal_batch_workspace *w;
-    int ev;
-    double tau0;
-    const double *u0;
-    int code;
-    stagecal_error *err;
-};
-
-/* One Runge–Kutta step of length h from (tau0, u0) into u. */
-static int step_from(stagecal_batch_workspace *w, double tau0, const double *u0, double h,
-                     double *u)
-{
-    double yerr[NSTATE];
-    memcpy(u, u0, sizeof(double) * NSTATE);
-    if (h == 0)
-        return GSL_SUCCESS;
-    gsl_odeiv2_step_reset(w->drv->s);
-    return gsl_odeiv2_step_apply(w->drv->s, tau0, h, u, yerr, NULL, NULL, &w->sys);
-}
-
-static double h_fn(double h, void *p)
-{
-    struct h_ctx *c = p;
-    double u[NSTATE], g;
-    if (c->code)
-        return NAN;
-    if (step_from(c->w, c->tau0, c->u0, h, u) != GSL_SUCCESS) {
-        c->code = c->w->fail_code ? c->w->fail_code
-                                  : error_set(c->err, STAGECAL_ENOCONV,
-                                              "event location: a Runge-Kutta step failed");
-        if (c->w->fail_code && c->err)
-            *c->err = c->w->fail;
-        return NAN;
-    }
-    c->code = event_g(c->w, c->ev, c->tau0 + h, u, &g, c->err);
-    return c->code ? NAN : g;
-}
-
-/* ---- rows and cuts ---------------------------------------------------------------------- */
-
-static int push_row(stagecal_batch_workspace *w, stagecal_batch_result *res, stagecal_error *err)
-{
-    const stagecal_batch_problem *pb = &w->pb;
-    double xb = w->u[1] / w->u[0], r, xd, n;
-    unsigned o = 0;
-    int rc = policy_state(w, xb, &r, &xd, &n, &o, err);
-    if (rc)
-        return rc;
-    if (res->n_rows == res->cap_rows) {
-        size_t cap = res->cap_rows ? 2 * res->cap_rows : 256;
-        stagecal_batch_row *rows = realloc(res->rows, cap * sizeof *rows);
-        if (!rows)
-            return error_set(err, STAGECAL_ENOMEM, "out of memory for %zu trajectory rows", cap);
-        res->rows = rows;
-        res->cap_rows = cap;
-    }
-    stagecal_batch_row *row = &res->rows[res->n_rows++];
-    row->t_s = w->tau * pb->w0_mol / pb->v_mol_s;
-    row->w_mol = w->u[0] * pb->w0_mol;
-    row->xb = xb;
-    row->xd = xd;
-    row->reflux = r;
-    row->stages = n;
-    row->cut = w->cut;
-    row->cut_mol = w->u[2] * pb->w0_mol;
-    row->cut_x = w->u[2] > 0 ? w->u[3] / w->u[2] : xd;
-    row->light_mol = (w->light_done + w->u[3]) * pb->w0_mol;
-    row->total_mol = (w->total_done + w->u[2]) * pb->w0_mol;
-    row->outside = o;
-    /* mass balance of the light component, relative to the charge's light amount */
-    double bal = fabs(pb->xb0 - w->u[1] - (w->light_done + w->u[3])) / pb->xb0;
-    if (bal > res->balance_error)
-        res->balance_error = bal;
-    if (res->n_rows == 1 || r < res->r_min_used)
-        res->r_min_used = r;
-    if (res->n_rows == 1 || r > res->r_max_used)
-        res->r_max_used = r;
-    res->outside |= o;
-    return STAGECAL_OK;
-}
-
-/* Closes the current cut with reason `stop` and moves to the next (or ends). */
-static void close_cut(stagecal_batch_workspace *w, stagecal_batch_result *res, int stop)
-{
-    const stagecal_batch_problem *pb = &w->pb;
-    stagecal_batch_cut *c = &res->cuts[w->cut];
-    const stagecal_batch_row *last = &res->rows[res->n_rows - 1];
-    double scale = pb->w0_mol / pb->v_mol_s;
-    snprintf(c->name, sizeof c->name, "%s", pb->cuts[w->cut].name);
-    if (c->name[0] == '\0')
-        snprintf(c->name, sizeof c->name, "cut%zu", w->cut + 1);
-    c->stop = stop;
-    c->t_start_s = w->cut_tau0 * scale;
-    c->t_end_s = w->tau * scale;
-    c->amount_mol = w->u[2] * pb->w0_mol;
-    c->light_mol = w->u[3] * pb->w0_mol;
-    c->x_mean = w->u[2] > 0 ? w->u[3] / w->u[2] : last->xd;
-    c->yield = w->u[2];
-    c->recovery = w->u[3] / pb->xb0;
-    c->xb_end = w->u[1] / w->u[0];
-    c->reflux_end = last->reflux;
-    res->n_cuts = w->cut + 1;
-    res->stop = stop;
-    w->light_done += w->u[3];
-    w->total_done += w->u[2];
-    w->u[2] = w->u[3] = 0;
-    w->cut_tau0 = w->tau;
-    if (stop == STAGECAL_BATCH_STOP_POT_EMPTY || stop == STAGECAL_BATCH_STOP_TIME_LIMIT ||
-        w->cut + 1 >= pb->n_cuts) {
-        w->done = 1;
-        for (size_t i = w->cut + 1; i < pb->n_cuts; i++) {
-            stagecal_batch_cut *e = &res->cuts[i];
-            memset(e, 0, sizeof *e);
-            snprintf(e->name, sizeof e->name, "%s", pb->cuts[i].name);
-            if (e->name[0] == '\0')
-                snprintf(e->name, sizeof e->name, "cut%zu", i + 1);
-            e->stop = STAGECAL_BATCH_STOP_NOT_STARTED;
-            e->t_start_s = e->t_end_s = w->tau * scale;
-            e->x_mean = last->xd;
-            e->xb_end = c->xb_end;
-            e->reflux_end = c->reflux_end;
-        }
-        res->n_cuts = pb->n_cuts;
-    } else {
-        w->cut++;
-    }
-}
-
-/* Fires event ev at the current state (row already pushed). */
-static void fire(stagecal_batch_workspace *w, stagecal_batch_result *res, int ev)
-{
-    switch (ev) {
-    case EV_TARGET:
-        close_cut(w, res, STAGECAL_BATCH_STOP_TARGET);
-        break;
-    case EV_SWITCH:
-        w->sched++;
-        break;
-    case EV_CEILING:
-        w->ceiling_hit = 1;
-        /* A receiver put on at this very instant (its predecessor's target coincided with
-         * the ceiling, e.g. 'reflux' = reflux_max) stays on: its own target governs. */
-        if (!(w->cut > 0 && w->cut_tau0 == w->tau))
-            close_cut(w, res, STAGECAL_BATCH_STOP_CEILING);
-        break;
-    case EV_EMPTY:
-        close_cut(w, res, STAGECAL_BATCH_STOP_POT_EMPTY);
-        break;
-    case EV_TIME:
-        close_cut(w, res, STAGECAL_BATCH_STOP_TIME_LIMIT);
-        break;
-    }
-    gsl_odeiv2_evolve_reset(w->drv->e);
-    gsl_odeiv2_step_reset(w->drv->s);
-}
-
-/* Fires every event already due at the current state (g ≤ 0), earliest index first;
- * each firing consumes the event (next cut, next entry, flag) or ends the batch. */
-static int fire_due(stagecal_batch_workspace *w, stagecal_batch_result *res, int pushed,
-                    stagecal_error *err)
-{
-    int fired = pushed;
-    for (size_t guard = 0;
-         !w->done && guard < 4 * (STAGECAL_BATCH_MAXCUTS + STAGECAL_BATCH_MAXSTEPS); guard++) {
-        int any = 0;
-        for (int ev = 0; ev < NEV && !w->done; ev++) {
-            double g;
-            int rc = event_g(w, ev, w->tau, w->u, &g, err);
-            if (rc)
-                return rc;
-            if (g <= 0) {
-                if (!fired && (rc = push_row(w, res, err)))
-                    return rc;
-                fire(w, res, ev);
-                fired = any = 1;
-                break;
-            }
-        }
-        if (!any)
-            break;
-    }
-    return STAGECAL_OK;
 }
 
 /* ---- workspace ---------------------------------------------------------------------------- */
@@ -897,9 +295,9 @@ int stagecal_batch_init(stagecal_batch_workspace *w, stagecal_batch_result *res,
         while (w->sched + 1 < w->pb.policy.n_steps &&
                w->pb.policy.steps[w->sched + 1].at >= w->pb.xb0)
             w->sched++;
-    if ((rc = push_row(w, res, err)))
+    if ((rc = batch_push_row(w, res, err)))
         return rc;
-    return fire_due(w, res, 1, err);
+    return batch_fire_due(w, res, 1, err);
 }
 
 int stagecal_batch_test(const stagecal_batch_workspace *w)
@@ -920,9 +318,9 @@ int stagecal_batch_iterate(stagecal_batch_workspace *w, stagecal_batch_result *r
                          w->par.max_steps);
     memcpy(u0, w->u, sizeof u0);
     for (int ev = 0; ev < NEV; ev++)
-        if ((rc = event_g(w, ev, w->tau, w->u, &g0[ev], err)))
+        if ((rc = batch_event_g(w, ev, w->tau, w->u, &g0[ev], err)))
             return rc;
-    double t1 = fmin(next_time_event(w), w->next_out);
+    double t1 = fmin(batch_next_time_event(w), w->next_out);
     w->fail_code = 0;
     st =
         gsl_odeiv2_evolve_apply(w->drv->e, w->drv->c, w->drv->s, &w->sys, &w->tau, t1, &w->h, w->u);
@@ -940,18 +338,14 @@ int stagecal_batch_iterate(stagecal_batch_workspace *w, stagecal_batch_result *r
     int first = -1;
     double h_first = w->tau - tau0;
     for (int ev = 0; ev < NEV; ev++) {
-        if ((rc = event_g(w, ev, w->tau, w->u, &g1[ev], err)))
+        if ((rc = batch_event_g(w, ev, w->tau, w->u, &g1[ev], err)))
             return rc;
         if (!(g0[ev] > 0 && g1[ev] <= 0))
             continue;
         double h_ev = w->tau - tau0;
         if (g1[ev] < 0) {
-            struct h_ctx c = {w, ev, tau0, u0, 0, err};
-            gsl_function f = {h_fn, &c};
-            if ((rc = brent(w->root_h, &f, 0, h_ev, w->par.event_epsabs, w->par.max_iter, &h_ev,
-                            &c.code, err, "event location")))
+            if ((rc = batch_locate_event(w, ev, tau0, u0, &h_ev, err)))
                 return rc;
-            h_ev = gsl_root_fsolver_x_upper(w->root_h);
         }
         if (first < 0 || h_ev < h_first) {
             first = ev;
@@ -960,7 +354,7 @@ int stagecal_batch_iterate(stagecal_batch_workspace *w, stagecal_batch_result *r
     }
     if (first >= 0) {
         if (h_first < w->tau - tau0) {
-            if (step_from(w, tau0, u0, h_first, w->u) != GSL_SUCCESS) {
+            if (batch_step_from(w, tau0, u0, h_first, w->u) != GSL_SUCCESS) {
                 if (w->fail_code) {
                     if (err)
                         *err = w->fail;
@@ -970,18 +364,18 @@ int stagecal_batch_iterate(stagecal_batch_workspace *w, stagecal_batch_result *r
             }
             w->tau = tau0 + h_first;
         }
-        if ((rc = push_row(w, res, err)))
+        if ((rc = batch_push_row(w, res, err)))
             return rc;
-        fire(w, res, first);
+        batch_fire(w, res, first);
         while (w->tau >= w->next_out)
             w->next_out += w->par.output_dt_s * w->pb.v_mol_s / w->pb.w0_mol;
-        return fire_due(w, res, 1, err);
+        return batch_fire_due(w, res, 1, err);
     }
-    if ((rc = push_row(w, res, err)))
+    if ((rc = batch_push_row(w, res, err)))
         return rc;
     while (w->tau >= w->next_out)
         w->next_out += w->par.output_dt_s * w->pb.v_mol_s / w->pb.w0_mol;
-    return fire_due(w, res, 1, err);
+    return batch_fire_due(w, res, 1, err);
 }
 
 int stagecal_batch_run(const stagecal_batch_problem *pb, const stagecal_batch_column *col,
@@ -1013,29 +407,6 @@ int stagecal_batch_run(const stagecal_batch_problem *pb, const stagecal_batch_co
                              "(1 stage) was used there");
     }
     stagecal_batch_free(w);
-    return rc;
-}
-
-int stagecal_batch_distillate(const stagecal_batch_column *col, const stagecal_batch_params *params,
-                              double xb, double r, double *xd, double *stages, stagecal_error *err)
-{
-    stagecal_batch_params par = params ? *params : stagecal_batch_default_params();
-    double az[MAXAZ], n;
-    unsigned o;
-    int clamped = 0, rc;
-    if (!(xb > 0 && xb < 1) || !(r >= 0))
-        return error_set(err, STAGECAL_EINVAL, "xB = %g, R = %g: expected xB in (0, 1) and R >= 0",
-                         xb, r);
-    if ((rc = law_stages(col, r, &n, &o, &clamped, err)))
-        return rc;
-    size_t n_az = stagecal_vle_azeotropes(col->vle, az, MAXAZ);
-    gsl_root_fsolver *s = gsl_root_fsolver_alloc(gsl_root_fsolver_brent);
-    if (!s)
-        return error_set(err, STAGECAL_ENOMEM, "out of memory for a root solver");
-    rc = solve_xd(col, &par, s, az, n_az > MAXAZ ? MAXAZ : n_az, xb, r, n, NULL, xd, err);
-    gsl_root_fsolver_free(s);
-    if (stages)
-        *stages = n;
     return rc;
 }
 

@@ -310,7 +310,7 @@ static int read_model(const rd *r, json_t *sys, stagecal_system *s, const stagec
             return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
                                 "field 'pressure_pa': missing, the '%s' model needs the pressure",
                                 kind);
-        s->vle = stagecal_vle_alloc_activity(kd, ant, p, np, s->p_pa, &ve);
+        s->vle = stagecal_vle_alloc_activity(kd, ant, p, np, s->p_pa, NULL, &ve);
     }
     }
     if (!s->vle)

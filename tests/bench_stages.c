@@ -121,7 +121,8 @@ int main(int argc, char **argv)
     const double p[5] = {-0.8009, 246.18, 3.4578, -586.0809, 0.3};
     stagecal_error err;
     double t0 = now_s();
-    stagecal_vle *nrtl = stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ant, p, 5, 101325.0, &err);
+    stagecal_vle *nrtl =
+        stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ant, p, 5, 101325.0, NULL, &err);
     if (!nrtl)
         return fprintf(stderr, "bench_stages: %s\n", err.text), 1;
     printf("nrtl model alloc: %.3f ms\n", 1e3 * (now_s() - t0));

@@ -30,7 +30,8 @@ int main(void)
     const double p[5] = {-0.8009, 246.18, 3.4578, -586.0809, 0.3};
     stagecal_error err;
     double t0 = now();
-    stagecal_vle *v = stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ant, p, 5, 101325.0, &err);
+    stagecal_vle *v =
+        stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ant, p, 5, 101325.0, NULL, &err);
     double t_alloc = now() - t0;
     if (!v) {
         fprintf(stderr, "bench_vle: %s\n", err.text);

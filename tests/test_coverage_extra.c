@@ -684,7 +684,7 @@ static void coverage_vle_refusals_and_kvalue(void **state)
     /* NIST WebBook-form constants (REFERENCES §6 benzene/toluene); range reversed */
     stagecal_antoine ant[2] = {{4.01814, 1203.835, -53.226, 287.70, 354.07},
                                {4.07827, 1343.943, -53.773, 384.66, 308.52}};
-    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, ant, NULL, 0, 101325, &err));
+    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, ant, NULL, 0, 101325, NULL, &err));
     assert_int_equal(err.code, STAGECAL_EINVAL);
     assert_string_equal(err.text,
                         "antoine range of the heavy component [384.66, 308.52] K: expected 0 <= "

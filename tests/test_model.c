@@ -1180,27 +1180,26 @@ static stagecal_vle *roundtrip_vle(int i)
         v = stagecal_vle_alloc_table(ux, uy, ut, 5, &err);
         break;
     case 4:
-        v = stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, bt, NULL, 0, 101325.0, &err);
+        v = stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, bt, NULL, 0, 101325.0, NULL, &err);
         break;
     case 5:
-        v = stagecal_vle_alloc_activity(STAGECAL_VLE_WILSON, mw, wi, 4, 101325.0, &err);
+        v = stagecal_vle_alloc_activity(STAGECAL_VLE_WILSON, mw, wi, 4, 101325.0, NULL, &err);
         break;
     case 6:
-        v = stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, VLE_NRTL_A, 5, 101325.0, &err);
+        v = stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, VLE_NRTL_A, 5, 101325.0, NULL, &err);
         break;
     case 7:
-        v = stagecal_vle_alloc_activity(STAGECAL_VLE_VANLAAR, ew, vl, 2, 101325.0, &err);
+        v = stagecal_vle_alloc_activity(STAGECAL_VLE_VANLAAR, ew, vl, 2, 101325.0, NULL, &err);
         break;
     case 8:
-        v = stagecal_vle_alloc_activity(STAGECAL_VLE_MARGULES, mw, ma, 2, 101325.0, &err);
+        v = stagecal_vle_alloc_activity(STAGECAL_VLE_MARGULES, mw, ma, 2, 101325.0, NULL, &err);
         break;
     case 9: /* tunables away from their defaults must travel too */
-        v = stagecal_vle_alloc_activity_params(STAGECAL_VLE_NRTL, ew, VLE_NRTL_A, 5, 60000.0, &vp,
-                                               &err);
+        v = stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, VLE_NRTL_A, 5, 60000.0, &vp, &err);
         break;
     default: { /* an Antoine set without a stated range (0, 0) */
         stagecal_antoine nr[2] = {VLE_BENZENE, {4.07827, 1343.943, -53.773, 0.0, 0.0}};
-        v = stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, nr, NULL, 0, 101325.0, &err);
+        v = stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, nr, NULL, 0, 101325.0, NULL, &err);
     }
     }
     if (!v)

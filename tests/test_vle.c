@@ -42,11 +42,12 @@ static int setup(void **state)
     stagecal_error e;
     stagecal_vle_params vp = stagecal_vle_default_params();
     vp.exact = 1;
-    f->nrtl = stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, NRTL_A, 5, 101325.0, &e);
-    f->vanlaar = stagecal_vle_alloc_activity(STAGECAL_VLE_VANLAAR, ew, VANLAAR, 2, 101325.0, &e);
-    f->ideal = stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, bt, NULL, 0, 101325.0, &e);
+    f->nrtl = stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, NRTL_A, 5, 101325.0, NULL, &e);
+    f->vanlaar =
+        stagecal_vle_alloc_activity(STAGECAL_VLE_VANLAAR, ew, VANLAAR, 2, 101325.0, NULL, &e);
+    f->ideal = stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, bt, NULL, 0, 101325.0, NULL, &e);
     f->nrtl_exact =
-        stagecal_vle_alloc_activity_params(STAGECAL_VLE_NRTL, ew, NRTL_A, 5, 101325.0, &vp, &e);
+        stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, NRTL_A, 5, 101325.0, &vp, &e);
     *state = f;
     return f->nrtl && f->vanlaar && f->ideal && f->nrtl_exact ? 0 : -1;
 }
@@ -250,9 +251,11 @@ static void vle_activity_closed_forms(void **state)
     const double T = 353.17;
     double mg[2] = {1.1234, 0.6789}, vl[2] = {1.6798, 0.9227};
     double wl[4] = {1234.5, 3456.7, 5.868e-5, 1.807e-5};
-    stagecal_vle *m = stagecal_vle_alloc_activity(STAGECAL_VLE_MARGULES, ew, mg, 2, 101325, &e);
-    stagecal_vle *v = stagecal_vle_alloc_activity(STAGECAL_VLE_VANLAAR, ew, vl, 2, 101325, &e);
-    stagecal_vle *w = stagecal_vle_alloc_activity(STAGECAL_VLE_WILSON, ew, wl, 4, 101325, &e);
+    stagecal_vle *m =
+        stagecal_vle_alloc_activity(STAGECAL_VLE_MARGULES, ew, mg, 2, 101325, NULL, &e);
+    stagecal_vle *v =
+        stagecal_vle_alloc_activity(STAGECAL_VLE_VANLAAR, ew, vl, 2, 101325, NULL, &e);
+    stagecal_vle *w = stagecal_vle_alloc_activity(STAGECAL_VLE_WILSON, ew, wl, 4, 101325, NULL, &e);
     assert_non_null(m);
     assert_non_null(v);
     assert_non_null(w);
@@ -273,7 +276,8 @@ static void vle_activity_closed_forms(void **state)
     assert_rel(log(g2), -log(l21) + 1.0 - l12, 1e-13, "wilson ln g2 inf");
     /* Margules with A12 = A21 = A is the one-parameter form ln γ1 = A x2² */
     double sym[2] = {0.8, 0.8};
-    stagecal_vle *s = stagecal_vle_alloc_activity(STAGECAL_VLE_MARGULES, ew, sym, 2, 101325, &e);
+    stagecal_vle *s =
+        stagecal_vle_alloc_activity(STAGECAL_VLE_MARGULES, ew, sym, 2, 101325, NULL, &e);
     assert_non_null(s);
     assert_int_equal(stagecal_vle_gamma(s, 0.3, T, &g1, &g2), STAGECAL_OK);
     assert_rel(log(g1), 0.8 * 0.49, 1e-14, "one-parameter margules g1");
@@ -487,7 +491,7 @@ static void vle_antoine_range_flags(void **state)
     assert_abs(hi, 383.7731, 1e-4, "T range high = toluene Tb");
     stagecal_antoine nr[2] = {{5.0, 1500.0, -40.0, 0.0, 0.0}, {5.0, 1600.0, -40.0, 0.0, 0.0}};
     stagecal_error e;
-    stagecal_vle *v = stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, nr, NULL, 0, 1e5, &e);
+    stagecal_vle *v = stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, nr, NULL, 0, 1e5, NULL, &e);
     assert_non_null(v);
     assert_int_equal(stagecal_vle_antoine_flags(v), 0); /* no range stated */
     assert_rel(stagecal_vle_pressure(v), 1e5, 0.0, "pressure");
@@ -530,26 +534,25 @@ static void vle_error_paths(void **state)
     stagecal_vle_free(nm);
 
     double bad_nrtl[5] = {-0.8009, 246.18, 3.4578, -586.0809, 1.5};
-    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, bad_nrtl, 5, 101325, &e));
+    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, bad_nrtl, 5, 101325, NULL, &e));
     assert_string_equal(e.text, "nrtl non-randomness 1.5 is outside (0, 1]");
-    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, NRTL_A, 4, 101325, &e));
+    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, NRTL_A, 4, 101325, NULL, &e));
     assert_non_null(strstr(e.text, "expected 5"));
-    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_ALPHA, ew, NRTL_A, 5, 101325, &e));
+    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_ALPHA, ew, NRTL_A, 5, 101325, NULL, &e));
     double wl[4] = {100.0, 200.0, -1.0, 1e-5};
-    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_WILSON, ew, wl, 4, 101325, &e));
+    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_WILSON, ew, wl, 4, 101325, NULL, &e));
     double vl[2] = {1.0, -1.0};
-    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_VANLAAR, ew, vl, 2, 101325, &e));
+    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_VANLAAR, ew, vl, 2, 101325, NULL, &e));
     double mg[2] = {NAN, 1.0};
-    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_MARGULES, ew, mg, 2, 101325, &e));
-    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, ew, NULL, 0, -5.0, &e));
+    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_MARGULES, ew, mg, 2, 101325, NULL, &e));
+    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, ew, NULL, 0, -5.0, NULL, &e));
     assert_string_equal(e.text, "pressure -5 Pa is outside (0, inf)");
     stagecal_antoine bad[2] = {{5.0, -3.0, 0.0, 0.0, 0.0}, WATER_BA};
-    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, bad, NULL, 0, 101325, &e));
-    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, we, NULL, 0, 101325, &e));
+    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, bad, NULL, 0, 101325, NULL, &e));
+    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, we, NULL, 0, 101325, NULL, &e));
     assert_non_null(strstr(e.text, "must be the light"));
     vp.grid_n = 5;
-    assert_null(
-        stagecal_vle_alloc_activity_params(STAGECAL_VLE_IDEAL, ew, NULL, 0, 101325, &vp, &e));
+    assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, ew, NULL, 0, 101325, &vp, &e));
     assert_int_equal(e.code, STAGECAL_EINVAL);
 
     /* x or y outside the domain, temperatures where there are none */

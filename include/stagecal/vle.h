@@ -66,11 +66,34 @@ stagecal_vle *stagecal_vle_alloc_kvalue(double k, stagecal_error *err);
  * added when missing; t_k may be NULL (no temperatures). The data are copied. */
 stagecal_vle *stagecal_vle_alloc_table(const double *x, const double *y, const double *t_k,
                                        size_t n, stagecal_error *err);
+/* Tunables of the IDEAL/activity models.
+ *
+ * IDEAL and activity models answer y*(x), x*(y) and d(y*)/dx from a table built at
+ * alloc: the bubble point is solved exactly (GSL Brent on T) on grid_n nodes
+ * x_i = sin²(π i / (2 (grid_n − 1))) (dense near both ends), the exact slope d(y*)/dx
+ * is taken at each node (complex-step derivatives of the model, implicit in T), and
+ * y*(x) between nodes is the cubic Hermite interpolant of those values and slopes.
+ * x*(y) inverts that same cubic (safeguarded Newton), so x*(y*(x)) = x to rounding,
+ * and dydx is the slope of that same cubic. With the default grid the table is
+ * within ~1e-11 of the exact solve (tests/test_vle.c measures it, bound 1e-9);
+ * alloc costs ~5 ms (2049 bubble solves); ystar ~25 ns, xstar ~55 ns per call
+ * (tests/bench_vle.c, random x, CPU time).
+ * tbubble always solves the model exactly. */
+typedef struct {
+    size_t grid_n;   /* table nodes for IDEAL/activity models, in [17, 1e6]; default 2049 */
+    int exact;       /* 1: ystar/xstar/dydx solve the model directly (slow, ~µs) */
+    double t_epsrel; /* relative tolerance of each bubble-T solve; default 1e-14 */
+    size_t max_iter; /* iteration cap of each root solve; default 100 */
+} stagecal_vle_params;
+
+stagecal_vle_params stagecal_vle_default_params(void);
+
 /* Ideal (kind IDEAL, params ignored) or activity model; ant[0] light, ant[1] heavy;
- * p_pa > 0; params holds nparam values as documented above. */
+ * p_pa > 0; params holds nparam values as documented above; vp holds the tunables
+ * (NULL = stagecal_vle_default_params()). */
 stagecal_vle *stagecal_vle_alloc_activity(stagecal_vle_kind kind, const stagecal_antoine ant[2],
                                           const double *params, size_t nparam, double p_pa,
-                                          stagecal_error *err);
+                                          const stagecal_vle_params *vp, stagecal_error *err);
 void stagecal_vle_free(stagecal_vle *vle); /* NULL is a no-op */
 
 stagecal_vle_kind stagecal_vle_get_kind(const stagecal_vle *vle);
@@ -111,34 +134,6 @@ double stagecal_antoine_psat(const stagecal_antoine *ant, double t_k);
 /* Boiling point [K] of an Antoine set at p_pa [Pa] (normal boiling point at 101325 Pa),
  * closed form T = b/(a − log10(p_pa/1e5)) − c. */
 double stagecal_antoine_tboil(const stagecal_antoine *ant, double p_pa);
-
-/* ---- additions: tunables, exact path, diagnostics ------------------------------------
- *
- * IDEAL and activity models answer y*(x), x*(y) and d(y*)/dx from a table built at
- * alloc: the bubble point is solved exactly (GSL Brent on T) on grid_n nodes
- * x_i = sin²(π i / (2 (grid_n − 1))) (dense near both ends), the exact slope d(y*)/dx
- * is taken at each node (complex-step derivatives of the model, implicit in T), and
- * y*(x) between nodes is the cubic Hermite interpolant of those values and slopes.
- * x*(y) inverts that same cubic (safeguarded Newton), so x*(y*(x)) = x to rounding,
- * and dydx is the slope of that same cubic. With the default grid the table is
- * within ~1e-11 of the exact solve (tests/test_vle.c measures it, bound 1e-9);
- * alloc costs ~5 ms (2049 bubble solves); ystar ~25 ns, xstar ~55 ns per call
- * (tests/bench_vle.c, random x, CPU time).
- * tbubble always solves the model exactly. */
-typedef struct {
-    size_t grid_n;   /* table nodes for IDEAL/activity models, in [17, 1e6]; default 2049 */
-    int exact;       /* 1: ystar/xstar/dydx solve the model directly (slow, ~µs) */
-    double t_epsrel; /* relative tolerance of each bubble-T solve; default 1e-14 */
-    size_t max_iter; /* iteration cap of each root solve; default 100 */
-} stagecal_vle_params;
-
-stagecal_vle_params stagecal_vle_default_params(void);
-/* As stagecal_vle_alloc_activity with explicit tunables (vp NULL = defaults). */
-stagecal_vle *stagecal_vle_alloc_activity_params(stagecal_vle_kind kind,
-                                                 const stagecal_antoine ant[2],
-                                                 const double *params, size_t nparam, double p_pa,
-                                                 const stagecal_vle_params *vp,
-                                                 stagecal_error *err);
 
 /* Exact y*(x) and bubble T [K] by a direct solve (IDEAL/activity); for the other
  * models the same as stagecal_vle_ystar (t_k NULL allowed; set only when the model
