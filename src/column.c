@@ -158,9 +158,10 @@ static int read_antoine(const rd *r, json_t *comp, const char *path, stagecal_an
 }
 
 static int read_component(const rd *r, json_t *sys, const char *key, char *name, double *m,
-                          stagecal_antoine *ant, int need_ant)
+                          double *latent, stagecal_antoine *ant, int need_ant)
 {
-    static const char *const keys[] = {"name", "molar_mass_kg_mol", "antoine", NULL};
+    static const char *const keys[] = {"name", "molar_mass_kg_mol", "latent_heat_j_mol", "antoine",
+                                       NULL};
     char p[64], f[128];
     int rc, present;
     snprintf(p, sizeof p, "system.%s", key);
@@ -175,6 +176,10 @@ static int read_component(const rd *r, json_t *sys, const char *key, char *name,
     snprintf(f, sizeof f, "%s.molar_mass_kg_mol", p);
     if ((rc = get_num(r, o, "molar_mass_kg_mol", f, 0, 0.0, 1, 1.0, m,
                       " kg/mol (e.g. 0.018015 for water)")))
+        return rc;
+    snprintf(f, sizeof f, "%s.latent_heat_j_mol", p);
+    if ((rc = get_num(r, o, "latent_heat_j_mol", f, 0, 1000.0, 1, 1e6, latent,
+                      " J/mol (not kJ/mol)")))
         return rc;
     return read_antoine(r, o, p, ant, need_ant, &present);
 }
@@ -328,11 +333,49 @@ static int valid_id(const char *s)
     return 1;
 }
 
+/* pressure_drop_pa and the holdup object (docs/column-file.md). */
+static int read_holdup(const rd *r, json_t *root, stagecal_column *col)
+{
+    int rc;
+    if ((rc = get_num(r, root, "pressure_drop_pa", "pressure_drop_pa", 0, 0.0, 0, 1e7,
+                      &col->pressure_drop_pa, " Pa (top to pot)")))
+        return rc;
+    json_t *h = get_obj(r, root, "holdup", "holdup", 0, &rc);
+    if (!h)
+        return rc;
+    static const char *const hkeys[] = {"column_mol", "per_metre_mol", "per_tray_mol",
+                                        "reflux_drum_mol", NULL};
+    double col_mol = 0, per_m = 0, per_tray = 0;
+    if ((rc = check_keys(r, h, "holdup", hkeys)) ||
+        (rc = get_num(r, h, "column_mol", "holdup.column_mol", 0, 0.0, 0, 1e9, &col_mol, " mol")) ||
+        (rc = get_num(r, h, "per_metre_mol", "holdup.per_metre_mol", 0, 0.0, 0, 1e9, &per_m,
+                      " mol/m")) ||
+        (rc = get_num(r, h, "per_tray_mol", "holdup.per_tray_mol", 0, 0.0, 0, 1e9, &per_tray,
+                      " mol")) ||
+        (rc = get_num(r, h, "reflux_drum_mol", "holdup.reflux_drum_mol", 0, 0.0, 0, 1e9,
+                      &col->holdup_drum_mol, " mol")))
+        return rc;
+    if ((col_mol > 0) + (per_m > 0) + (per_tray > 0) > 1)
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "field 'holdup': give one of column_mol, per_metre_mol, per_tray_mol");
+    if (per_m > 0 && !(col->height_m > 0))
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "field 'holdup.per_metre_mol': needs packed_height_m");
+    if (per_tray > 0 && col->trays < 1)
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "field 'holdup.per_tray_mol': needs trays");
+    col->holdup_column_mol = col_mol > 0 ? col_mol
+                             : per_m > 0 ? per_m * col->height_m
+                                         : per_tray * col->trays;
+    return STAGECAL_OK;
+}
+
 static int read_root(const rd *r, json_t *root, stagecal_column *col)
 {
     static const char *const keys[] = {
         "format", "version",   "id",          "description", "packed_height_m", "inside_diameter_m",
-        "trays",  "condenser", "pressure_pa", "system",      "uncertainty",     NULL};
+        "trays",  "condenser", "pressure_pa", "system",      "uncertainty",     "pressure_drop_pa",
+        "holdup", NULL};
     int rc;
     if (!json_is_object(root))
         return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
@@ -390,17 +433,29 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
     json_t *sys = get_obj(r, root, "system", "system", 1, &rc);
     if (!sys)
         return rc;
-    static const char *const skeys[] = {"light", "heavy", "latent_heat_j_mol", "model", NULL};
+    static const char *const skeys[] = {"light", "heavy", "latent_heat_j_mol", "cp_liquid_j_mol_k",
+                                        "model", NULL};
     if ((rc = check_keys(r, sys, "system", skeys)))
         return rc;
     int need_ant = 0;
     stagecal_antoine ant[2];
     memset(ant, 0, sizeof ant);
     if ((rc = read_model(r, sys, s, ant, &need_ant, 0)) ||
-        (rc = read_component(r, sys, "light", s->light, &s->m_light, &ant[0], need_ant)) ||
-        (rc = read_component(r, sys, "heavy", s->heavy, &s->m_heavy, &ant[1], need_ant)) ||
+        (rc = read_component(r, sys, "light", s->light, &s->m_light, &s->latent_light_j_mol,
+                             &ant[0], need_ant)) ||
+        (rc = read_component(r, sys, "heavy", s->heavy, &s->m_heavy, &s->latent_heavy_j_mol,
+                             &ant[1], need_ant)) ||
         (rc = get_num(r, sys, "latent_heat_j_mol", "system.latent_heat_j_mol", 0, 1000.0, 1, 1e6,
-                      &s->latent_j_mol, " J/mol (not kJ/mol)")))
+                      &s->latent_j_mol, " J/mol (not kJ/mol)")) ||
+        (rc = get_num(r, sys, "cp_liquid_j_mol_k", "system.cp_liquid_j_mol_k", 0, 0.0, 1, 2000.0,
+                      &s->cp_liquid_j_mol_k, " J/(mol K)")))
+        return rc;
+    if ((s->latent_light_j_mol > 0) != (s->latent_heavy_j_mol > 0))
+        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+                            "field 'system.%s.latent_heat_j_mol': give the latent heats of both "
+                            "components, or neither",
+                            s->latent_light_j_mol > 0 ? "heavy" : "light");
+    if ((rc = read_holdup(r, root, col)))
         return rc;
     if (!strcmp(s->light, s->heavy))
         return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,

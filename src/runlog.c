@@ -22,6 +22,7 @@
 
 #include "internal.h"
 #include "internal_sha256.h"
+#include "stagecal/physics.h"
 
 /* ---- findings ---------------------------------------------------------------------- */
 
@@ -68,6 +69,7 @@ void stagecal_runlog_free(stagecal_runlog *log)
     free(log->p_pa);
     free(log->t_top_k);
     free(log->t_pot_k);
+    free(log->t_reflux_k);
     free(log->line);
     free(log->run);
     free(log->runs);
@@ -92,8 +94,8 @@ static int grow_doubles(double **a, size_t n, size_t cap)
 static int grow_rows(stagecal_runlog *log)
 {
     size_t cap = log->cap ? 2 * log->cap : 4096;
-    double **arr[] = {&log->t_s,     &log->w_mol, &log->xd,      &log->xb,     &log->r,
-                      &log->v_mol_s, &log->p_pa,  &log->t_top_k, &log->t_pot_k};
+    double **arr[] = {&log->t_s,     &log->w_mol, &log->xd,      &log->xb,      &log->r,
+                      &log->v_mol_s, &log->p_pa,  &log->t_top_k, &log->t_pot_k, &log->t_reflux_k};
     for (size_t i = 0; i < sizeof arr / sizeof arr[0]; i++) {
         if (i < 5 && !*arr[i]) {
             *arr[i] = malloc(sizeof(double)); /* required signals always exist */
@@ -135,7 +137,7 @@ static const char *const role_names[STAGECAL_RL_NCOL] = {
     [STAGECAL_RL_TIME] = "time",  [STAGECAL_RL_W] = "W",     [STAGECAL_RL_XD] = "xD",
     [STAGECAL_RL_XB] = "xB",      [STAGECAL_RL_R] = "R",     [STAGECAL_RL_V] = "V",
     [STAGECAL_RL_Q] = "Q",        [STAGECAL_RL_P] = "P",     [STAGECAL_RL_TTOP] = "T_top",
-    [STAGECAL_RL_TPOT] = "T_pot", [STAGECAL_RL_RUN] = "run",
+    [STAGECAL_RL_TPOT] = "T_pot", [STAGECAL_RL_RUN] = "run", [STAGECAL_RL_TREFLUX] = "T_reflux",
 };
 
 static const stagecal_quantity role_qty[STAGECAL_RL_NCOL] = {
@@ -144,7 +146,7 @@ static const stagecal_quantity role_qty[STAGECAL_RL_NCOL] = {
     [STAGECAL_RL_R] = STAGECAL_QTY_RATIO,          [STAGECAL_RL_V] = STAGECAL_QTY_FLOW,
     [STAGECAL_RL_Q] = STAGECAL_QTY_DUTY,           [STAGECAL_RL_P] = STAGECAL_QTY_PRESSURE,
     [STAGECAL_RL_TTOP] = STAGECAL_QTY_TEMPERATURE, [STAGECAL_RL_TPOT] = STAGECAL_QTY_TEMPERATURE,
-    [STAGECAL_RL_RUN] = STAGECAL_QTY_LABEL,
+    [STAGECAL_RL_RUN] = STAGECAL_QTY_LABEL,        [STAGECAL_RL_TREFLUX] = STAGECAL_QTY_TEMPERATURE,
 };
 
 #define HDR_MAX 48
@@ -283,7 +285,7 @@ static void header_cell(struct reader *rd, const char *cell)
     if (role < 0) {
         finding(rd, STAGECAL_FINDING_WARNING, rd->line, cell,
                 "unknown column '%s' ignored (expected time, W, xD, xB, R, V, Q, P, T_top, "
-                "T_pot or run)",
+                "T_pot, T_reflux or run)",
                 cell);
         return;
     }
@@ -317,6 +319,27 @@ static void header_cell(struct reader *rd, const char *cell)
     rd->role[i] = role;
     if (role == STAGECAL_RL_TIME && u.iso8601)
         rd->log->nfiles_iso++;
+}
+
+/* Warnings for logged physics the column cannot use (docs/methods.md). */
+static void runlog_physics_header_findings(struct reader *rd)
+{
+    const stagecal_column *col = rd->col;
+    if (!col || !col->system.vle)
+        return;
+    int fp = rd->field_of[STAGECAL_RL_P], ft = rd->field_of[STAGECAL_RL_TREFLUX];
+    if (fp >= 0 && !stagecal_vle_has_pressure(col->system.vle))
+        finding(rd, STAGECAL_FINDING_WARNING, rd->line, rd->hdr[fp],
+                "column '%s': the equilibrium model '%s' has no temperature dependence, so the "
+                "logged pressure cannot set it (expected a model with Antoine sets)",
+                rd->hdr[fp], stagecal_vle_kind_name(stagecal_vle_get_kind(col->system.vle)));
+    const stagecal_system *s = &col->system;
+    if (ft >= 0 && (!(s->cp_liquid_j_mol_k > 0) || !stagecal_vle_has_temperature(s->vle) ||
+                    !(s->latent_j_mol > 0 || s->latent_light_j_mol > 0)))
+        finding(rd, STAGECAL_FINDING_WARNING, rd->line, rd->hdr[ft],
+                "column '%s': the reflux temperature is not used (the internal reflux needs "
+                "system.cp_liquid_j_mol_k, a latent heat and a model with temperatures)",
+                rd->hdr[ft]);
 }
 
 static void header_done(struct reader *rd)
@@ -353,6 +376,9 @@ static void header_done(struct reader *rd)
         rd->oom |= ensure_optional(log, &log->t_top_k);
     if (rd->field_of[STAGECAL_RL_TPOT] >= 0)
         rd->oom |= ensure_optional(log, &log->t_pot_k);
+    if (rd->field_of[STAGECAL_RL_TREFLUX] >= 0)
+        rd->oom |= ensure_optional(log, &log->t_reflux_k);
+    runlog_physics_header_findings(rd);
 }
 
 static int parse_number(const char *s, int allow_inf, double *v)
@@ -607,6 +633,8 @@ static void end_row(struct reader *rd)
         log->t_top_k[n] = rd->field_of[STAGECAL_RL_TTOP] >= 0 ? v[STAGECAL_RL_TTOP] : NAN;
     if (log->t_pot_k)
         log->t_pot_k[n] = rd->field_of[STAGECAL_RL_TPOT] >= 0 ? v[STAGECAL_RL_TPOT] : NAN;
+    if (log->t_reflux_k)
+        log->t_reflux_k[n] = rd->field_of[STAGECAL_RL_TREFLUX] >= 0 ? v[STAGECAL_RL_TREFLUX] : NAN;
     log->line[n] = (uint32_t)rd->line;
     log->run[n] = (uint32_t)rd->cur_run;
     log->runs[rd->cur_run].n++;

@@ -24,6 +24,7 @@
 
 #include "internal.h"
 #include "runlog_internal.h"
+#include "stagecal/physics.h"
 #include "stagecal/stages.h"
 
 /* Molar gas constant [J/(mol·K)], exact since the 2019 SI (N_A·k); GSL 2.7's
@@ -71,6 +72,7 @@ struct inv_ctx {
     double murphree;
     stagecal_stages_params sp;
     stagecal_runlog_result *res;
+    stagecal_physics *ph; /* logged pressure, subcooled reflux (physics.h) */
 };
 
 /* Inverts row i at reflux r (the logged one, or INFINITY for no-distillate). */
@@ -105,11 +107,14 @@ static void invert_row(struct inv_ctx *c, size_t i, double r)
         return;
     }
     stagecal_stages_result sr;
-    if (stagecal_stages_invert(c->col->system.vle, xd, xb, r, c->murphree, &c->sp, &sr, NULL) !=
-        STAGECAL_OK) {
+    stagecal_physics_cond pc;
+    if (stagecal_physics_cond_at(c->ph, log->p_pa ? log->p_pa[i] : NAN, xd, r,
+                                 log->t_reflux_k ? log->t_reflux_k[i] : NAN, &pc, NULL) != 0 ||
+        stagecal_physics_invert(&pc, xd, xb, c->murphree, &c->sp, &sr, NULL) != STAGECAL_OK) {
         res->note[i] = STAGECAL_NOTE_FAILED;
         return;
     }
+    res->lv[i] = isinf(pc.r_int) ? 1.0 : pc.r_int / (pc.r_int + 1.0); /* internal L/V */
     res->status[i] = (unsigned char)sr.status;
     if (sr.status != STAGECAL_STAGES_OK) {
         res->note[i] = STAGECAL_NOTE_STAGES;
@@ -133,8 +138,10 @@ int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *co
         return error_set(err, STAGECAL_EINVAL, "run stagecal_runlog_analyse on this log first");
     stagecal_runlog_analysis_params par =
         params ? *params : stagecal_runlog_analysis_default_params();
-    struct inv_ctx c = {log, col, murphree, stagecal_stages_default_params(), res};
+    struct inv_ctx c = {log, col, murphree, stagecal_stages_default_params(), res, NULL};
     c.sp.want_sensitivities = 1;
+    if (!(c.ph = stagecal_physics_alloc(col, NULL, err)))
+        return err ? err->code : STAGECAL_ENOMEM;
     const stagecal_system *sys = &col->system;
     int have_m = sys->m_light > 0 && sys->m_heavy > 0;
     size_t maxrun = 1;
@@ -144,6 +151,7 @@ int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *co
     double *st = malloc(maxrun * sizeof *st), *sw = malloc(maxrun * sizeof *sw);
     if (!st || !sw) {
         free(st), free(sw);
+        stagecal_physics_free(c.ph);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
     runlog_mark_no_distillate(log, &par, res, st, sw);
@@ -171,6 +179,7 @@ int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *co
                 res->note[i] = STAGECAL_NOTE_NO_LOAD;
         }
     }
+    stagecal_physics_free(c.ph);
     int rc = runlog_windows(log, col, &par, res, err);
     memset(res->count, 0, sizeof res->count);
     for (size_t i = 0; i < log->n; i++)

@@ -127,8 +127,8 @@ static const struct vcase vcases[] = {
      "0,10,0.95,0.5,4,1\n0.1,9.9,0.95,0.49,4,1\n0.2,9.8,0.94,0.48,4,1\n"
      "0.3,9.7,0.94,0.47,4,1\n0.4,9.6,0.93,0.46,4,1\n",
      0, 0, 0, 1,
-     "t.csv:1: unknown column 'foo' ignored (expected time, W, xD, xB, R, V, Q, P, T_top, T_pot "
-     "or run)"},
+     "t.csv:1: unknown column 'foo' ignored (expected time, W, xD, xB, R, V, Q, P, T_top, T_pot, "
+     "T_reflux or run)"},
     {"duplicate column",
      "time[h],W[kmol],xD[mol/mol],xB[mol/mol],R[-],xB[wt%]\n"
      "0,10,0.95,0.5,4,1\n0.1,9.9,0.95,0.49,4,1\n0.2,9.8,0.94,0.48,4,1\n"

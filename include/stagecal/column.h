@@ -33,6 +33,11 @@ typedef struct {
     double m_heavy;                /* molar mass of heavy [kg/mol], > 0 (0 = not given) */
     double p_pa;                   /* operating pressure [Pa], > 0 (0 = not given) */
     double latent_j_mol;           /* molar latent heat [J/mol] for Q → V (0 = not given) */
+    double latent_light_j_mol;     /* light component's molar latent heat [J/mol] (0 = not
+                                      given); with the heavy one: unequal latent heats */
+    double latent_heavy_j_mol;     /* heavy component's molar latent heat [J/mol] (0 = not given) */
+    double cp_liquid_j_mol_k;      /* liquid molar heat capacity [J/(mol·K)] of the reflux, for
+                                      subcooled reflux (0 = not given) */
     stagecal_vle *vle;             /* owned equilibrium model */
 } stagecal_system;
 
@@ -54,6 +59,11 @@ typedef struct {
     stagecal_condenser condenser; /* condenser type */
     stagecal_system system;       /* the binary system */
     stagecal_uncertainty u;       /* measurement uncertainties */
+    double pressure_drop_pa;      /* pot pressure − top pressure [Pa], ≥ 0 (0 = not given) */
+    double holdup_column_mol;     /* liquid held up in the column section [mol] (0 = not given);
+                                     from holdup.column_mol, or per_metre_mol × packed height, or
+                                     per_tray_mol × trays */
+    double holdup_drum_mol;       /* liquid in the reflux drum and condenser [mol] (0 = none) */
 } stagecal_column;
 
 /* Reads a column file. On success *col owns its vle; free with

@@ -70,6 +70,7 @@ typedef enum {
     STAGECAL_RL_TTOP,
     STAGECAL_RL_TPOT,
     STAGECAL_RL_RUN,
+    STAGECAL_RL_TREFLUX, /* reflux return temperature (subcooled reflux) */
     STAGECAL_RL_NCOL
 } stagecal_rl_column;
 
@@ -94,6 +95,7 @@ typedef struct {
     double *p_pa;              /* top pressure [Pa]; NULL when not logged */
     double *t_top_k;           /* top temperature [K]; NULL when not logged */
     double *t_pot_k;           /* pot temperature [K]; NULL when not logged */
+    double *t_reflux_k;        /* reflux return temperature [K]; NULL when not logged */
     uint32_t *line;            /* source line of each row */
     uint32_t *run;             /* run index of each row */
     stagecal_runlog_run *runs; /* nruns runs, rows contiguous */

@@ -1,0 +1,264 @@
+/*
+ * physics.c — logged pressure and subcooled reflux around the plain McCabe–Thiele
+ * inversion (include/stagecal/physics.h).
+ *
+ * Pressure. An IDEAL or activity model is rebuilt at each new pressure from its own
+ * definition (stagecal_vle_get_definition, same Antoine sets and tunables), so a row
+ * logged at 20 kPa is stepped with exactly the model a column file at 20 kPa would give.
+ * Building a model costs ~5 ms (its bubble-point table), so the models are cached,
+ * least recently used out; pressures are first rounded to params.p_resolution_pa so a
+ * noisy transmitter does not build a model per row.
+ *
+ * Pot pressure. The pot is an ideal stage at P_top + pressure_drop_pa, the column stages
+ * at P_top. Only the pot's vapour y_pot = y*_pot(xB) enters the stepping (the pot fixes
+ * x_target from it), so the inversion is the plain one with xB replaced by the liquid
+ * that gives the same vapour under the column's model, xB' = x*_top(y*_pot(xB)); the count
+ * is the same number, by construction. Forward stepping undoes it: xB = x*_pot(y*_top(xB')).
+ *
+ * Subcooled reflux. The top stage condenses the vapour that heats the returning liquid to
+ * its bubble point: L_int = L·(1 + cp_L·ΔT/λ), V_int = V + (L_int − L) below the top stage,
+ * so L_int/V_int = R_int/(R_int + 1) with R_int = R·(1 + cp_L·ΔT/λ) and ΔT = T_bubble(xD) −
+ * T_reflux (Wankat, P. C. (2012), Separation Process Engineering, 3rd ed., Prentice Hall,
+ * ch. 4, from memory). λ is the distillate's molar latent heat: x·λ_light + (1 − x)·λ_heavy
+ * when both are given, else system.latent_heat_j_mol. T_bubble is at the top pressure.
+ */
+#include "stagecal/physics.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+
+int stagecal_internal_reflux(double reflux, double cp_j_mol_k, double dt_k, double latent_j_mol,
+                             double *r_int, stagecal_error *err)
+{
+    if (!r_int || !(reflux >= 0) || !(cp_j_mol_k >= 0) || !(latent_j_mol > 0) ||
+        !isfinite(cp_j_mol_k) || !isfinite(latent_j_mol) || !isfinite(dt_k))
+        return error_set(err, STAGECAL_EINVAL,
+                         "internal reflux needs R >= 0, cp >= 0, latent heat > 0 and a finite "
+                         "subcooling");
+    *r_int =
+        isinf(reflux) || dt_k <= 0 ? reflux : reflux * (1.0 + cp_j_mol_k * dt_k / latent_j_mol);
+    return STAGECAL_OK;
+}
+
+int stagecal_vle_has_pressure(const stagecal_vle *vle)
+{
+    return vle && stagecal_vle_pressure(vle) > 0;
+}
+
+stagecal_vle *stagecal_vle_at_pressure(const stagecal_vle *vle, double p_pa, stagecal_error *err)
+{
+    if (!stagecal_vle_has_pressure(vle)) {
+        error_set(err, STAGECAL_EINVAL, "the equilibrium model has no pressure dependence");
+        return NULL;
+    }
+    if (!(p_pa > 0) || !isfinite(p_pa)) {
+        error_set(err, STAGECAL_EINVAL, "pressure %g Pa is not positive", p_pa);
+        return NULL;
+    }
+    stagecal_vle_definition def;
+    stagecal_vle_get_definition(vle, &def);
+    def.p_pa = p_pa;
+    return stagecal_vle_alloc_definition(&def, err);
+}
+
+stagecal_physics_params stagecal_physics_default_params(void)
+{
+    stagecal_physics_params p = {1.0, 32};
+    return p;
+}
+
+struct cache_entry {
+    double p_pa;        /* pressure the model was built at (after rounding) */
+    stagecal_vle *vle;  /* owned */
+    unsigned long used; /* stamp of the last use (least recently used goes first) */
+};
+
+struct stagecal_physics {
+    const stagecal_column *col;
+    stagecal_physics_params par;
+    struct cache_entry *e; /* par.cache_size entries */
+    size_t n;              /* entries filled */
+    unsigned long clock;
+};
+
+stagecal_physics *stagecal_physics_alloc(const stagecal_column *col,
+                                         const stagecal_physics_params *params, stagecal_error *err)
+{
+    if (!col || !col->system.vle) {
+        error_set(err, STAGECAL_EINVAL, "the physics needs a column with an equilibrium model");
+        return NULL;
+    }
+    stagecal_physics *ph = calloc(1, sizeof *ph);
+    if (!ph) {
+        error_set(err, STAGECAL_ENOMEM, "out of memory");
+        return NULL;
+    }
+    ph->col = col;
+    ph->par = params ? *params : stagecal_physics_default_params();
+    if (ph->par.cache_size < 2)
+        ph->par.cache_size = 2; /* a row needs two models at once (top and pot) */
+    ph->e = calloc(ph->par.cache_size, sizeof *ph->e);
+    if (!ph->e) {
+        free(ph);
+        error_set(err, STAGECAL_ENOMEM, "out of memory");
+        return NULL;
+    }
+    return ph;
+}
+
+void stagecal_physics_free(stagecal_physics *ph)
+{
+    if (!ph)
+        return;
+    for (size_t i = 0; i < ph->n; i++)
+        stagecal_vle_free(ph->e[i].vle);
+    free(ph->e);
+    free(ph);
+}
+
+/* The column's model at p_pa (the column's own when the pressure rounds to its one). */
+static const stagecal_vle *vle_at(stagecal_physics *ph, double p_pa, stagecal_error *err)
+{
+    const stagecal_vle *base = ph->col->system.vle;
+    double res = ph->par.p_resolution_pa;
+    double p = res > 0 ? res * nearbyint(p_pa / res) : p_pa;
+    if (!(p > 0))
+        p = res > 0 ? res : p_pa;
+    if (p == stagecal_vle_pressure(base))
+        return base;
+    ph->clock++;
+    size_t victim = 0;
+    for (size_t i = 0; i < ph->n; i++) {
+        if (ph->e[i].p_pa == p) {
+            ph->e[i].used = ph->clock;
+            return ph->e[i].vle;
+        }
+        if (ph->e[i].used < ph->e[victim].used)
+            victim = i;
+    }
+    if (ph->n < ph->par.cache_size)
+        victim = ph->n;
+    stagecal_vle *v = stagecal_vle_at_pressure(base, p, err);
+    if (!v)
+        return NULL;
+    if (victim < ph->n)
+        stagecal_vle_free(ph->e[victim].vle);
+    else
+        ph->n++;
+    ph->e[victim] = (struct cache_entry){p, v, ph->clock};
+    return v;
+}
+
+/* Molar latent heat [J/mol] of a liquid of composition x (0 = not known). */
+static double latent_at(const stagecal_system *s, double x)
+{
+    if (s->latent_light_j_mol > 0 && s->latent_heavy_j_mol > 0)
+        return x * s->latent_light_j_mol + (1 - x) * s->latent_heavy_j_mol;
+    return s->latent_j_mol;
+}
+
+int stagecal_physics_cond_at(stagecal_physics *ph, double p_top_pa, double xd, double reflux,
+                             double t_reflux_k, stagecal_physics_cond *cond, stagecal_error *err)
+{
+    if (!ph || !cond)
+        return error_set(err, STAGECAL_EINVAL, "NULL argument");
+    if (!(reflux >= 0) || !(xd >= 0 && xd <= 1))
+        return error_set(err, STAGECAL_EINVAL, "conditions need R >= 0 and 0 <= xD <= 1");
+    const stagecal_column *col = ph->col;
+    const stagecal_system *s = &col->system;
+    memset(cond, 0, sizeof *cond);
+    cond->reflux = cond->r_int = reflux;
+    cond->vle = cond->vle_pot = s->vle;
+    int logged = isfinite(p_top_pa) && p_top_pa > 0;
+    if (stagecal_vle_has_pressure(s->vle)) {
+        double p = logged ? p_top_pa : stagecal_vle_pressure(s->vle);
+        if (!(cond->vle = vle_at(ph, p, err)))
+            return err ? err->code : STAGECAL_ENOMEM;
+        cond->vle_pot = cond->vle;
+        if (col->pressure_drop_pa > 0) {
+            if (!(cond->vle_pot = vle_at(ph, p + col->pressure_drop_pa, err)))
+                return err ? err->code : STAGECAL_ENOMEM;
+            cond->flags |= STAGECAL_PHYS_POT_DROP;
+        }
+        cond->p_top_pa = stagecal_vle_pressure(cond->vle);
+        if (logged)
+            cond->flags |= STAGECAL_PHYS_PRESSURE;
+    } else if (logged) {
+        cond->flags |= STAGECAL_PHYS_PRESSURE_UNUSED;
+    }
+    if (!isfinite(t_reflux_k) || !isfinite(reflux) || reflux == 0)
+        return STAGECAL_OK;
+    double lam = latent_at(s, xd), tb;
+    if (!(s->cp_liquid_j_mol_k > 0) || !(lam > 0) || !stagecal_vle_has_temperature(cond->vle)) {
+        cond->flags |= STAGECAL_PHYS_SUBCOOL_UNUSED;
+        return STAGECAL_OK;
+    }
+    int rc = stagecal_vle_tbubble(cond->vle, xd, &tb);
+    if (rc != STAGECAL_OK)
+        return error_set(err, rc, "bubble point of xD = %g failed", xd);
+    if ((rc = stagecal_internal_reflux(reflux, s->cp_liquid_j_mol_k, tb - t_reflux_k, lam,
+                                       &cond->r_int, err)))
+        return rc;
+    if (cond->r_int != reflux)
+        cond->flags |= STAGECAL_PHYS_SUBCOOLED;
+    return STAGECAL_OK;
+}
+
+/* The liquid under the column's model whose vapour equals the pot's vapour over xb. */
+static int pot_equivalent(const stagecal_physics_cond *c, double xb, double *xb_eq,
+                          double *dxeq_dxb)
+{
+    double y, s_pot, s_top;
+    if (stagecal_vle_ystar(c->vle_pot, xb, &y) != STAGECAL_OK ||
+        stagecal_vle_xstar(c->vle, y, xb_eq) != STAGECAL_OK ||
+        stagecal_vle_dydx(c->vle_pot, xb, &s_pot) != STAGECAL_OK ||
+        stagecal_vle_dydx(c->vle, *xb_eq, &s_top) != STAGECAL_OK || !(s_top > 0))
+        return -1;
+    *dxeq_dxb = s_pot / s_top;
+    return 0;
+}
+
+int stagecal_physics_invert(const stagecal_physics_cond *cond, double xd, double xb,
+                            double murphree, const stagecal_stages_params *params,
+                            stagecal_stages_result *res, stagecal_error *err)
+{
+    if (!cond || !res)
+        return error_set(err, STAGECAL_EINVAL, "NULL argument");
+    double xb_in = xb, scale_xb = 1.0;
+    if (cond->vle_pot != cond->vle && xb < xd && pot_equivalent(cond, xb, &xb_in, &scale_xb)) {
+        memset(res, 0, sizeof *res);
+        res->status = STAGECAL_STAGES_INVALID;
+        snprintf(res->reason, sizeof res->reason,
+                 "xB = %g has no equivalent liquid at the top pressure", xb);
+        return STAGECAL_OK;
+    }
+    int rc = stagecal_stages_invert(cond->vle, xd, xb_in, cond->r_int, murphree, params, res, err);
+    if (rc != STAGECAL_OK || res->status != STAGECAL_STAGES_OK)
+        return rc;
+    res->dstages_dxb *= scale_xb;
+    if (isfinite(cond->reflux) && cond->reflux > 0)
+        res->dstages_dr *= cond->r_int / cond->reflux; /* ∂R_int/∂R at fixed ΔT, λ */
+    return STAGECAL_OK;
+}
+
+int stagecal_physics_step(const stagecal_physics_cond *cond, double xd, double stages,
+                          double murphree, const stagecal_stages_params *params, double *xb,
+                          int *status, stagecal_error *err)
+{
+    if (!cond || !xb || !status)
+        return error_set(err, STAGECAL_EINVAL, "NULL argument");
+    size_t len;
+    int rc = stagecal_stages_step(cond->vle, xd, cond->r_int, stages, murphree, params, xb, NULL, 0,
+                                  &len, status, err);
+    if (rc != STAGECAL_OK || *status != STAGECAL_STAGES_OK || cond->vle_pot == cond->vle)
+        return rc;
+    double y;
+    if ((rc = stagecal_vle_ystar(cond->vle, *xb, &y)) ||
+        (rc = stagecal_vle_xstar(cond->vle_pot, y, xb)))
+        return error_set(err, rc, "the pot's liquid at its own pressure failed");
+    return STAGECAL_OK;
+}

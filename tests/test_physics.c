@@ -1,0 +1,293 @@
+/*
+ * test_physics.c — logged pressure, pot pressure drop and subcooled reflux
+ * (src/physics.c), each against a computation written here from first principles:
+ * the internal-reflux relation by hand, a top stage's energy balance stepped with
+ * explicit flows, bubble points by bisection on Raoult's law with the Antoine sets.
+ */
+#include <math.h>
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdlib.h>
+#include <string.h>
+#include <cmocka.h>
+
+#include <gsl/gsl_errno.h>
+
+#include "stagecal/column.h"
+#include "stagecal/physics.h"
+#include "stagecal/runlog.h"
+#include "stagecal/stages.h"
+#include "testutil.h"
+
+/* Benzene–toluene, Raoult's law, Antoine sets of the NIST Chemistry WebBook (after
+ * Williamham, Taylor, Pignocco & Rossini 1945), as in datasets/columns. */
+#define BT_COLUMN(extra_root, extra_sys)                                                           \
+    "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"t\",\"condenser\":\"total\","          \
+    "\"pressure_pa\":101325," extra_root "\"system\":{\"light\":{\"name\":\"benzene\","            \
+    "\"antoine\":{\"a\":4.01814,\"b\":1203.835,\"c\":-53.226}},"                                   \
+    "\"heavy\":{\"name\":\"toluene\",\"antoine\":{\"a\":4.07827,\"b\":1343.943,"                   \
+    "\"c\":-53.773}}," extra_sys "\"model\":{\"kind\":\"ideal\"}}}"
+
+static double psat_pa(double a, double b, double c, double t)
+{
+    return 1e5 * pow(10.0, a - b / (t + c));
+}
+
+/* Bubble point [K] of benzene–toluene at x, p by bisection (independent of vle.c). */
+static double bt_tbubble(double x, double p)
+{
+    double lo = 300, hi = 420;
+    for (int i = 0; i < 200; i++) {
+        double t = 0.5 * (lo + hi);
+        double f = x * psat_pa(4.01814, 1203.835, -53.226, t) +
+                   (1 - x) * psat_pa(4.07827, 1343.943, -53.773, t) - p;
+        if (f > 0)
+            hi = t;
+        else
+            lo = t;
+    }
+    return 0.5 * (lo + hi);
+}
+
+static stagecal_column load(const char *json)
+{
+    stagecal_column col;
+    stagecal_error e;
+    int rc = stagecal_column_parse(json, strlen(json), "t.json", &col, &e);
+    if (rc)
+        print_error("%s\n", e.text);
+    assert_int_equal(rc, 0);
+    return col;
+}
+
+/* Hand-computed case (common practice in the McCabe–Thiele chapters; Wankat, P. C. (2012),
+ * Separation Process Engineering, 3rd ed., Prentice Hall, ch. 4, from memory): R = 3,
+ * cp = 145 J/(mol K), 20 K subcooling, λ = 32 000 J/mol: 145·20/32000 = 0.090625, so
+ * R_int = 3·1.090625 = 3.271875 exactly. */
+static void physics_internal_reflux_hand_case(void **state)
+{
+    (void)state;
+    double r;
+    assert_int_equal(stagecal_internal_reflux(3.0, 145.0, 20.0, 32000.0, &r, NULL), 0);
+    assert_rel(r, 3.271875, 1e-15, "R_int hand case");
+    assert_int_equal(stagecal_internal_reflux(3.0, 145.0, -1.0, 32000.0, &r, NULL), 0);
+    assert_rel(r, 3.0, 0, "no subcooling");
+    assert_int_equal(stagecal_internal_reflux(INFINITY, 145.0, 20.0, 32000.0, &r, NULL), 0);
+    assert_true(isinf(r));
+    assert_int_equal(stagecal_internal_reflux(3.0, 145.0, 20.0, 0.0, &r, NULL), STAGECAL_EINVAL);
+    assert_int_equal(stagecal_internal_reflux(NAN, 145.0, 20.0, 1e4, &r, NULL), STAGECAL_EINVAL);
+}
+
+/* Stepping with R_int against explicit flows: D = 1, external reflux L = R at T_R, the
+ * vapour condensed on the top stage by the subcooled reflux is ΔV = L·cp·ΔT/λ, so the
+ * liquid leaving the top stage is L + ΔV and the vapour entering it V1 + ΔV; below, the
+ * component balance V2·y(n+1) = L1·x(n) + D·xD. Constant α = 2.4, 7 whole stages
+ * (6 column stages + pot). Tolerance 1e-12: both are a few dozen flops of rounding. */
+static void physics_subcooled_step_matches_energy_balance(void **state)
+{
+    (void)state;
+    const double alpha = 2.4, xd = 0.96, r = 1.7, cp = 150, dt = 25, lam = 31000;
+    double d = 1, l = r * d, dv = l * cp * dt / lam;
+    double l1 = l + dv, v2 = l + d + dv;
+    double y = xd, x = 0;
+    for (int n = 1; n <= 7; n++) {
+        x = y / (alpha - (alpha - 1) * y); /* equilibrium liquid of stage n */
+        y = (l1 * x + d * xd) / v2;        /* vapour from stage n + 1 */
+    }
+    stagecal_vle *v = stagecal_vle_alloc_alpha(alpha, NULL);
+    double r_int, xb;
+    assert_int_equal(stagecal_internal_reflux(r, cp, dt, lam, &r_int, NULL), 0);
+    size_t len;
+    int st;
+    assert_int_equal(
+        stagecal_stages_step(v, xd, r_int, 7.0, 1.0, NULL, &xb, NULL, 0, &len, &st, NULL), 0);
+    assert_int_equal(st, STAGECAL_STAGES_OK);
+    assert_abs(xb, x, 1e-12, "xB with subcooled reflux vs energy balance");
+    stagecal_stages_result res;
+    assert_int_equal(stagecal_stages_invert(v, xd, x, r_int, 1.0, NULL, &res, NULL), 0);
+    assert_abs(res.stages, 7.0, 1e-9, "stages back from the energy-balance xB");
+    stagecal_vle_free(v);
+}
+
+/* The condition object: R_int from T_bubble(xD) at the top pressure (bisection here). */
+static void physics_cond_uses_bubble_point(void **state)
+{
+    (void)state;
+    stagecal_column col = load(BT_COLUMN("", "\"latent_heat_j_mol\":32000,"
+                                             "\"cp_liquid_j_mol_k\":145,"));
+    stagecal_physics *ph = stagecal_physics_alloc(&col, NULL, NULL);
+    assert_non_null(ph);
+    stagecal_physics_cond c;
+    const double xd = 0.95, tr = 300.0; /* below both bubble points */
+    assert_int_equal(stagecal_physics_cond_at(ph, NAN, xd, 2.0, tr, &c, NULL), 0);
+    double want = 2.0 * (1 + 145.0 * (bt_tbubble(xd, 101325) - tr) / 32000.0);
+    assert_rel(c.r_int, want, 1e-9, "R_int at 101.325 kPa");
+    assert_true(c.flags & STAGECAL_PHYS_SUBCOOLED);
+    assert_int_equal(stagecal_physics_cond_at(ph, 20000, xd, 2.0, tr, &c, NULL), 0);
+    want = 2.0 * (1 + 145.0 * (bt_tbubble(xd, 20000) - tr) / 32000.0);
+    assert_rel(c.r_int, want, 1e-9, "R_int at 20 kPa");
+    assert_rel(c.p_top_pa, 20000, 0, "top pressure");
+    /* no T_reflux: the plain model */
+    assert_int_equal(stagecal_physics_cond_at(ph, NAN, xd, 2.0, NAN, &c, NULL), 0);
+    assert_rel(c.r_int, 2.0, 0, "no reflux temperature");
+    assert_int_equal(c.flags, 0);
+    stagecal_physics_free(ph);
+    stagecal_column_free(&col);
+}
+
+/* A row logged at 20 kPa inverts to the count that stepping at 20 kPa started from
+ * (1e-9, the round-trip tolerance of the stepping itself), and not to the count at
+ * 101.325 kPa. */
+static void physics_logged_pressure_roundtrip(void **state)
+{
+    (void)state;
+    stagecal_column col = load(BT_COLUMN("", ""));
+    stagecal_vle *v20 = stagecal_vle_at_pressure(col.system.vle, 20000, NULL);
+    assert_non_null(v20);
+    const double xd = 0.97, n = 6.37, r = 2.5;
+    double xb;
+    size_t len;
+    int st;
+    assert_int_equal(stagecal_stages_step(v20, xd, r, n, 1.0, NULL, &xb, NULL, 0, &len, &st, NULL),
+                     0);
+    assert_int_equal(st, STAGECAL_STAGES_OK);
+    char csv[512];
+    snprintf(csv, sizeof csv,
+             "time[h],W[kmol],xD[mol/mol],xB[mol/mol],R[-],P[kPa]\n"
+             "0,10,%.17g,%.17g,%.17g,20\n0.1,9.9,%.17g,%.17g,%.17g,101.325\n",
+             xd, xb, r, xd, xb, r);
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    stagecal_findings *f = stagecal_findings_alloc(10);
+    assert_int_equal(
+        stagecal_runlog_read_buffer(log, csv, strlen(csv), "p.csv", &col, NULL, f, NULL), 0);
+    assert_int_equal(f->n_warnings, 0);
+    stagecal_runlog_result res;
+    assert_int_equal(stagecal_runlog_analyse(log, &col, NULL, &res, NULL), 0);
+    assert_int_equal(stagecal_runlog_invert(log, &col, 1.0, NULL, &res, NULL), 0);
+    assert_int_equal(res.status[0], STAGECAL_STAGES_OK);
+    assert_abs(res.stages[0], n, 1e-9, "row at 20 kPa");
+    assert_true(res.status[1] != STAGECAL_STAGES_OK || fabs(res.stages[1] - n) > 0.5);
+    stagecal_runlog_result_free(&res);
+    stagecal_runlog_free(log);
+    stagecal_findings_free(f);
+    stagecal_vle_free(v20);
+    stagecal_column_free(&col);
+}
+
+/* Pot at top + pressure_drop_pa: 5 column stages stepped here at 20 kPa with the models'
+ * own y*, x* (exact stepping, whole stages), then the pot's liquid from the model at
+ * 26 kPa; the inversion must count 6 stages (1e-9) and the forward step give xB back. */
+static void physics_pot_pressure_drop(void **state)
+{
+    (void)state;
+    stagecal_column col = load(BT_COLUMN("\"pressure_drop_pa\":6000,", ""));
+    stagecal_vle *vt = stagecal_vle_at_pressure(col.system.vle, 20000, NULL);
+    stagecal_vle *vp = stagecal_vle_at_pressure(col.system.vle, 26000, NULL);
+    const double xd = 0.98, r = 3.0, m = r / (r + 1);
+    double y = xd, x = xd;
+    for (int k = 1; k <= 5; k++) {
+        assert_int_equal(stagecal_vle_xstar(vt, y, &x), 0);
+        y = m * x + (1 - m) * xd;
+    }
+    double xb;
+    assert_int_equal(stagecal_vle_xstar(vp, y, &xb), 0);
+    stagecal_physics *ph = stagecal_physics_alloc(&col, NULL, NULL);
+    stagecal_physics_cond c;
+    assert_int_equal(stagecal_physics_cond_at(ph, 20000, xd, r, NAN, &c, NULL), 0);
+    assert_true(c.flags & STAGECAL_PHYS_POT_DROP);
+    stagecal_stages_result res;
+    assert_int_equal(stagecal_physics_invert(&c, xd, xb, 1.0, NULL, &res, NULL), 0);
+    assert_int_equal(res.status, STAGECAL_STAGES_OK);
+    assert_abs(res.stages, 6.0, 1e-9, "stages with the pot at 26 kPa");
+    double xb2;
+    int st;
+    assert_int_equal(stagecal_physics_step(&c, xd, 6.0, 1.0, NULL, &xb2, &st, NULL), 0);
+    assert_abs(xb2, xb, 1e-12, "forward step with the pot at 26 kPa");
+    stagecal_physics_free(ph);
+    stagecal_vle_free(vt);
+    stagecal_vle_free(vp);
+    stagecal_column_free(&col);
+}
+
+/* A pressure logged for a model without pressure dependence is named in a warning; so is
+ * a reflux temperature the column cannot use. */
+static void physics_unused_inputs_warn(void **state)
+{
+    (void)state;
+    const char *json = "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"a\",\"condenser\":"
+                       "\"total\",\"system\":{\"light\":{\"name\":\"l\"},\"heavy\":{\"name\":"
+                       "\"h\"},\"model\":{\"kind\":\"alpha\",\"alpha\":2.5}}}";
+    stagecal_column col = load(json);
+    const char *csv = "time[h],W[kmol],xD[mol/mol],xB[mol/mol],R[-],P[kPa],T_reflux[C]\n"
+                      "0,10,0.9,0.3,2,20,40\n";
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    stagecal_findings *f = stagecal_findings_alloc(10);
+    assert_int_equal(
+        stagecal_runlog_read_buffer(log, csv, strlen(csv), "a.csv", &col, NULL, f, NULL), 0);
+    assert_int_equal(f->n_warnings, 2);
+    assert_non_null(strstr(f->items[0].text, "no temperature dependence"));
+    assert_non_null(strstr(f->items[1].text, "reflux temperature is not used"));
+    assert_rel(log->t_reflux_k[0], 313.15, 1e-15, "T_reflux in K");
+    stagecal_physics *ph = stagecal_physics_alloc(&col, NULL, NULL);
+    stagecal_physics_cond c;
+    assert_int_equal(stagecal_physics_cond_at(ph, 20000, 0.9, 2.0, 313.15, &c, NULL), 0);
+    assert_int_equal(c.flags, STAGECAL_PHYS_PRESSURE_UNUSED | STAGECAL_PHYS_SUBCOOL_UNUSED);
+    assert_null(stagecal_vle_at_pressure(col.system.vle, 2e4, NULL));
+    stagecal_physics_free(ph);
+    stagecal_runlog_free(log);
+    stagecal_findings_free(f);
+    stagecal_column_free(&col);
+}
+
+/* The column file's new members and their errors. */
+static void physics_column_members(void **state)
+{
+    (void)state;
+    stagecal_column col = load(
+        "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"a\",\"condenser\":\"total\","
+        "\"packed_height_m\":4,\"pressure_drop_pa\":1500,\"holdup\":{\"per_metre_mol\":2.5,"
+        "\"reflux_drum_mol\":3},\"system\":{\"light\":{\"name\":\"l\",\"latent_heat_j_mol\":35000},"
+        "\"heavy\":{\"name\":\"h\",\"latent_heat_j_mol\":40000},\"cp_liquid_j_mol_k\":120,"
+        "\"model\":{\"kind\":\"alpha\",\"alpha\":2.5}}}");
+    assert_rel(col.pressure_drop_pa, 1500, 0, "pressure drop");
+    assert_rel(col.holdup_column_mol, 10, 1e-15, "holdup 2.5 mol/m x 4 m");
+    assert_rel(col.holdup_drum_mol, 3, 0, "drum");
+    assert_rel(col.system.latent_light_j_mol, 35000, 0, "light latent heat");
+    assert_rel(col.system.latent_heavy_j_mol, 40000, 0, "heavy latent heat");
+    assert_rel(col.system.cp_liquid_j_mol_k, 120, 0, "cp");
+    stagecal_column_free(&col);
+    const char *bad[] = {
+        "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"a\",\"condenser\":\"total\","
+        "\"system\":{\"light\":{\"name\":\"l\",\"latent_heat_j_mol\":35000},"
+        "\"heavy\":{\"name\":\"h\"},\"model\":{\"kind\":\"alpha\",\"alpha\":2.5}}}",
+        "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"a\",\"condenser\":\"total\","
+        "\"holdup\":{\"per_tray_mol\":1},"
+        "\"system\":{\"light\":{\"name\":\"l\"},"
+        "\"heavy\":{\"name\":\"h\"},\"model\":{\"kind\":\"alpha\",\"alpha\":2.5}}}",
+        "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"a\",\"condenser\":\"total\","
+        "\"holdup\":{\"column_mol\":1,\"per_metre_mol\":1},\"packed_height_m\":3,"
+        "\"system\":{\"light\":{\"name\":\"l\"},"
+        "\"heavy\":{\"name\":\"h\"},\"model\":{\"kind\":\"alpha\",\"alpha\":2.5}}}",
+    };
+    for (size_t i = 0; i < sizeof bad / sizeof bad[0]; i++) {
+        stagecal_error e;
+        assert_int_equal(stagecal_column_parse(bad[i], strlen(bad[i]), "b.json", &col, &e),
+                         STAGECAL_EDATA);
+    }
+}
+
+int main(void)
+{
+    gsl_set_error_handler_off();
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(physics_internal_reflux_hand_case),
+        cmocka_unit_test(physics_subcooled_step_matches_energy_balance),
+        cmocka_unit_test(physics_cond_uses_bubble_point),
+        cmocka_unit_test(physics_logged_pressure_roundtrip),
+        cmocka_unit_test(physics_pot_pressure_drop),
+        cmocka_unit_test(physics_unused_inputs_warn),
+        cmocka_unit_test(physics_column_members),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
