@@ -18,6 +18,7 @@
 #include <time.h>
 
 #include "internal.h"
+#include "stagecal/hetp.h"
 #include "stagecal/stages.h"
 #include "stagecal/version.h"
 
@@ -262,19 +263,18 @@ static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params
     if (col->height_m > 0) {
         double r = isnan(par->hetp_r) ? mo->r_max : par->hetp_r;
         double f = isnan(par->hetp_f) ? 0.5 * (mo->f_min + mo->f_max) : par->hetp_f;
-        stagecal_model_point pt;
-        double off = col->condenser == STAGECAL_CONDENSER_PARTIAL ? 2 : 1;
-        if (stagecal_model_eval(mo, r, f, par->level, &pt, NULL) == STAGECAL_OK &&
-            pt.stages - off > 0) {
+        stagecal_hetp_stages hs;
+        stagecal_hetp_result h;
+        if (stagecal_hetp_stages_from_model(mo, r, f, &hs, NULL, NULL) == STAGECAL_OK &&
+            stagecal_hetp_compute(col->height_m, &hs, par->level, &h, NULL) == STAGECAL_OK) {
             mo->has_hetp = 1;
             mo->height_m = col->height_m;
             mo->hetp_r = r;
             mo->hetp_f = mo->has_load ? f : 0;
-            mo->hetp_m = col->height_m / (pt.stages - off);
+            mo->hetp_m = h.hetp_m;
             mo->hetp_level = par->level;
-            /* HETP is monotone in the stage count: the interval maps endpoint to endpoint */
-            mo->hetp_low_m = col->height_m / (pt.ci_high - off);
-            mo->hetp_high_m = pt.ci_low - off > 0 ? col->height_m / (pt.ci_low - off) : INFINITY;
+            mo->hetp_low_m = h.low_m;
+            mo->hetp_high_m = h.high_m;
         }
     }
     return STAGECAL_OK;
@@ -442,7 +442,10 @@ int stagecal_calibrate(const char *column_path, const char *const *logs, size_t 
     progress(par, "model", 0.95);
     if ((rc = fill_model(cal, par, column_path, logs, nlogs, fit, err)))
         return rc;
-    /* warnings a reader of the model must see */
+    /* warnings a reader of the model must see: the column file's first */
+    for (size_t k = 0; k < cal->column.n_warnings; k++)
+        if ((rc = stagecal_model_add_warning(&cal->model, cal->column.warnings[k], err)))
+            return rc;
     if (par->method == STAGECAL_CAL_AUTO && cal->comp_status != STAGECAL_OK &&
         (rc = warn(cal, err,
                    "composition-space fit failed (%s); the model carries the "

@@ -324,15 +324,6 @@ static int read_model(const rd *r, json_t *sys, stagecal_system *s, const stagec
     return STAGECAL_OK;
 }
 
-static int valid_id(const char *s)
-{
-    for (; *s; s++)
-        if (!((*s >= 'A' && *s <= 'Z') || (*s >= 'a' && *s <= 'z') || (*s >= '0' && *s <= '9') ||
-              *s == '_' || *s == '.' || *s == '-'))
-            return 0;
-    return 1;
-}
-
 /* pressure_drop_pa and the holdup object (docs/column-file.md). */
 static int read_holdup(const rd *r, json_t *root, stagecal_column *col)
 {
@@ -396,10 +387,10 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
         return rc;
     if ((rc = get_str(r, root, "id", "id", 1, col->id, sizeof col->id)))
         return rc;
-    if (!valid_id(col->id))
+    if (!stagecal_convention_id_valid(col->id))
         return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field 'id': '%s' may hold only letters, digits, '_', '.', '-'",
-                            col->id);
+                            "field 'id': '%s' may hold only %s", col->id,
+                            stagecal_convention_id_rule());
     if ((rc = get_str(r, root, "description", "description", 0, NULL, 0)) ||
         (rc = get_num(r, root, "packed_height_m", "packed_height_m", 0, 0.0, 1, 1000.0,
                       &col->height_m, " m")) ||
@@ -501,6 +492,8 @@ int stagecal_column_parse(const char *text, size_t len, const char *source, stag
     json_decref(root);
     if (rc != STAGECAL_OK)
         stagecal_column_free(col);
+    else
+        stagecal_column_warnings(col);
     return rc;
 }
 

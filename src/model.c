@@ -69,19 +69,6 @@ const char *stagecal_model_method_name(stagecal_model_method method)
     return method == STAGECAL_MODEL_COMPOSITION_SPACE ? "composition-space" : "stage-space";
 }
 
-const char *stagecal_model_convention_text(stagecal_condenser condenser)
-{
-    if (condenser == STAGECAL_CONDENSER_PARTIAL)
-        return "stages include the pot; column stages = stages - 2; the partial condenser "
-               "is an equilibrium stage";
-    return "stages include the pot; column stages = stages - 1; total condenser not a stage";
-}
-
-static const char *condenser_name(stagecal_condenser c)
-{
-    return c == STAGECAL_CONDENSER_PARTIAL ? "partial" : "total";
-}
-
 /* The optional physical data of the system: members of "system" (docs/model-file.md),
  * in the order of system_data(). 0 in the struct = not recorded = no member. */
 enum { SYSTEM_NDATA = 3 };
@@ -245,17 +232,6 @@ int stagecal_model_hash_file(const char *path, char hex[STAGECAL_MODEL_HEX], sta
 
 /* ---- validation of a model in memory ---------------------------------------------- */
 
-static int valid_id(const char *s)
-{
-    if (!s[0] || s[0] == '.')
-        return 0;
-    for (; *s; s++)
-        if (!((*s >= 'A' && *s <= 'Z') || (*s >= 'a' && *s <= 'z') || (*s >= '0' && *s <= '9') ||
-              *s == '_' || *s == '.' || *s == '-'))
-            return 0;
-    return 1;
-}
-
 /* "YYYY-MM-DDTHH:MM:SSZ" with plausible ranges; writes "YYYYMMDDTHHMMSSZ" to stamp. */
 static int parse_utc(const char *s, char stamp[17])
 {
@@ -286,9 +262,8 @@ static int parse_utc(const char *s, char stamp[17])
 static int check_model(const stagecal_model *m, const char *source, int code, stagecal_error *err)
 {
 #define FAIL(...) return error_set_at(err, code, source, 0, 0, __VA_ARGS__)
-    if (!valid_id(m->column_id))
-        FAIL("column id '%s': expected letters, digits, '_', '.', '-' (not starting with '.')",
-             m->column_id);
+    if (!stagecal_convention_id_valid(m->column_id))
+        FAIL("column id '%s': expected %s", m->column_id, stagecal_convention_id_rule());
     if (!m->light[0] || !m->heavy[0])
         FAIL("system: component names must not be empty");
     if (!m->vle_kind[0])
@@ -504,8 +479,9 @@ static json_t *build_doc(const stagecal_model *m)
             bad |= json_object_set_new(sys, SYSTEM_DATA_KEY[k], json_real(sysdata[k]));
     bad |= json_object_set_new(doc, "system", sys);
     bad |= json_object_set_new(doc, "stage_convention",
-                               json_pack("{s:s, s:s}", "condenser", condenser_name(m->condenser),
-                                         "text", stagecal_model_convention_text(m->condenser)));
+                               json_pack("{s:s, s:s}", "condenser",
+                                         stagecal_condenser_name(m->condenser), "text",
+                                         stagecal_convention_text(m->condenser)));
     bad |= json_object_set_new(
         doc, "correlation",
         json_pack("{s:s, s:o, s:o, s:f, s:f, s:f, s:s}", "form", m->form.name, "parameters", params,
@@ -522,11 +498,7 @@ static json_t *build_doc(const stagecal_model *m)
     bad |= json_object_set_new(doc, "warnings", warnings);
     warnings = NULL;
     bad |= json_object_set_new(doc, "units", units);
-    bad |= json_object_set_new(
-        doc, "caution",
-        json_string("empirical correlation: outside the envelope it is an extrapolation; it "
-                    "supports engineering judgement and does not replace site procedures, local "
-                    "codes or a licensed engineer's review"));
+    bad |= json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
     if (!bad)
         return doc;
 fail:
@@ -1056,11 +1028,11 @@ static int read_rest(reader *rd, const json_t *doc, stagecal_model *m)
         return RFAIL(rd, "stage_convention.condenser '%s': expected 'total' or 'partial'", buf);
     TRY(get_member(rd, o, "stage_convention", "text", &v));
     if (!json_is_string(v) ||
-        strcmp(json_string_value(v), stagecal_model_convention_text(m->condenser)) != 0)
+        strcmp(json_string_value(v), stagecal_convention_text(m->condenser)) != 0)
         return RFAIL(rd,
                      "stage_convention.text does not match the %s-condenser convention "
                      "('%s' expected)",
-                     buf, stagecal_model_convention_text(m->condenser));
+                     buf, stagecal_convention_text(m->condenser));
 
     TRY(get_object(rd, doc, "", "evidence", &o));
     TRY(get_count(rd, o, "evidence", "windows", &m->n_windows));
@@ -1283,7 +1255,7 @@ int stagecal_model_eval(const stagecal_model *m, double r, double f_load, double
 
     memset(out, 0, sizeof *out);
     out->stages = band.value;
-    out->column_stages = band.value - (m->condenser == STAGECAL_CONDENSER_PARTIAL ? 2.0 : 1.0);
+    out->column_stages = stagecal_convention_column_stages(band.value, m->condenser);
     out->se_fit = band.se_fit;
     out->se_pred = band.se_pred;
     out->level = level;

@@ -244,7 +244,7 @@ static void put_fixed(FILE *out, double v, int decimals)
 int stagecal_runlog_write_csv(const stagecal_runlog *log, const stagecal_column *col,
                               const stagecal_runlog_result *res, FILE *out, stagecal_error *err)
 {
-    double extra = col && col->condenser == STAGECAL_CONDENSER_PARTIAL ? 1.0 : 0.0;
+    stagecal_condenser cond = col ? col->condenser : STAGECAL_CONDENSER_TOTAL;
     fprintf(out, "source,line,run,time[s],stages,column_stages,u_stages,status,note,L/V,"
                  "F[Pa^0.5],steady,total_reflux,outlier,window,xB_rec[mol/mol]\n");
     for (size_t i = 0; i < log->n; i++) {
@@ -259,7 +259,8 @@ int stagecal_runlog_write_csv(const stagecal_runlog *log, const stagecal_column 
         if (ok) {
             put_fixed(out, res->stages[i], 6);
             fputc(',', out);
-            put_fixed(out, res->stages[i] - 1.0 - extra, 6);
+            /* empty when below the pot (and partial condenser): no column count */
+            put_fixed(out, stagecal_convention_column_stages(res->stages[i], cond), 6);
             fputc(',', out);
             put_num(out, res->u_stages[i]);
         } else {

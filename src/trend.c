@@ -24,6 +24,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "stagecal/hetp.h"
 #include "stagecal/units.h"
 #include "internal.h"
 
@@ -85,9 +86,13 @@ int stagecal_trend_point_from_model(const stagecal_model *m, double r, double f_
                          "column %s: fit of %s predicts %g column stages at R = %g (expected > 0 "
                          "for an HETP)",
                          m->column_id, m->fitted_utc, p.column_stages, r);
-    /* delta method, as in hetp.h */
-    out->value = m->height_m / p.column_stages;
-    out->se = m->height_m * p.se_fit / (p.column_stages * p.column_stages);
+    /* HETP and its delta-method standard error come from hetp.c, the one home of HETP */
+    stagecal_hetp_stages hs = {p.column_stages, p.se_fit, m->dof};
+    stagecal_hetp_result h;
+    if ((rc = stagecal_hetp_compute(m->height_m, &hs, m->level, &h, err)) != STAGECAL_OK)
+        return rc;
+    out->value = h.hetp_m;
+    out->se = h.se_m;
     return STAGECAL_OK;
 }
 
@@ -479,17 +484,6 @@ static int cmp_event(const void *a, const void *b)
     return x->line < y->line ? -1 : x->line > y->line;
 }
 
-static int valid_id(const char *s)
-{
-    if (!*s || *s == '.')
-        return 0;
-    for (; *s; s++)
-        if (!((*s >= 'A' && *s <= 'Z') || (*s >= 'a' && *s <= 'z') || (*s >= '0' && *s <= '9') ||
-              *s == '_' || *s == '.' || *s == '-'))
-            return 0;
-    return 1;
-}
-
 int stagecal_trend_events_read(const char *path, stagecal_trend_event **events, size_t *n,
                                stagecal_error *err)
 {
@@ -571,10 +565,10 @@ int stagecal_trend_events_read(const char *path, stagecal_trend_event **events, 
                               row.field[0]);
             break;
         }
-        if (!valid_id(row.field[1]) || strlen(row.field[1]) >= sizeof e->column_id) {
+        if (!stagecal_convention_id_valid(row.field[1])) {
             rc = error_set_at(err, STAGECAL_EDATA, path, lineno, 2,
-                              "column '%s' is not a column id (expected [A-Za-z0-9_.-]+)",
-                              row.field[1]);
+                              "column '%s' is not a column id (expected %s)", row.field[1],
+                              stagecal_convention_id_rule());
             break;
         }
         /* length checked above */

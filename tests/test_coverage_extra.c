@@ -1055,7 +1055,9 @@ static void coverage_trend_events_refusals(void **state)
     assert_int_equal(
         events_from("time,column,kind\n2026-03-01,K 7,repack\n", path, sizeof path, &err),
         STAGECAL_EDATA);
-    snprintf(want, sizeof want, "%s:2: column 'K 7' is not a column id (expected [A-Za-z0-9_.-]+)",
+    snprintf(want, sizeof want,
+             "%s:2: column 'K 7' is not a column id (expected letters, digits, '_', '.', '-' (not "
+             "starting with '.'))",
              path);
     assert_string_equal(err.text, want);
     memset(note, 'n', 200);

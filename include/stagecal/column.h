@@ -11,6 +11,7 @@
 
 #include <stddef.h>
 
+#include "stagecal/convention.h"
 #include "stagecal/error.h"
 #include "stagecal/vle.h"
 
@@ -18,12 +19,9 @@
 extern "C" {
 #endif
 
-#define STAGECAL_NAME_MAX 64
-
-typedef enum {
-    STAGECAL_CONDENSER_TOTAL = 0, /* not an equilibrium stage */
-    STAGECAL_CONDENSER_PARTIAL    /* one equilibrium stage */
-} stagecal_condenser;
+/* Column warnings: at most this many, each at most this long (NUL included). */
+#define STAGECAL_COLUMN_MAX_WARNINGS 4
+#define STAGECAL_COLUMN_WARNING_MAX 320
 
 /* The binary system. */
 typedef struct {
@@ -52,7 +50,7 @@ typedef struct {
 } stagecal_uncertainty;
 
 typedef struct {
-    char id[STAGECAL_NAME_MAX];   /* column id, [A-Za-z0-9_.-]+ (used as fits/<id>/) */
+    char id[STAGECAL_NAME_MAX];   /* column id, stagecal_convention_id_valid (fits/<id>/) */
     double height_m;              /* packed height [m] (0 = trayed or unknown) */
     double diameter_m;            /* inside diameter [m] (0 = unknown) */
     int trays;                    /* number of actual trays (0 = packed or unknown) */
@@ -64,16 +62,28 @@ typedef struct {
                                      from holdup.column_mol, or per_metre_mol × packed height, or
                                      per_tray_mol × trays */
     double holdup_drum_mol;       /* liquid in the reflux drum and condenser [mol] (0 = none) */
+    /* Warnings about the file's content that do not stop its use (an Antoine set used
+     * outside its stated temperature range, ...), filled by the loader: every command that
+     * uses the column shows them and calibration carries them into the model file. */
+    size_t n_warnings;
+    char warnings[STAGECAL_COLUMN_MAX_WARNINGS][STAGECAL_COLUMN_WARNING_MAX];
 } stagecal_column;
 
-/* Reads a column file. On success *col owns its vle; free with
- * stagecal_column_free. Errors: ENOINPUT (cannot open), EDATA (malformed JSON or a
- * field outside its domain, with "path:line: field 'x': ..." messages), ENOMEM. */
+/* Reads a column file. On success *col owns its vle (free with stagecal_column_free)
+ * and col->warnings holds what stagecal_column_warnings found. Errors: ENOINPUT (cannot open),
+ * EDATA (malformed JSON or a field outside its domain, with "path:line: field 'x': ..." messages),
+ * ENOMEM. */
 int stagecal_column_load(const char *path, stagecal_column *col, stagecal_error *err);
 /* Same from an in-memory JSON text; source names it in messages. */
 int stagecal_column_parse(const char *text, size_t len, const char *source, stagecal_column *col,
                           stagecal_error *err);
 void stagecal_column_free(stagecal_column *col); /* releases owned memory; NULL ok */
+
+/* Fills col->warnings (after clearing them) from the loaded column: an Antoine set whose
+ * stated temperature range does not cover the bubble curve at the column pressure
+ * (stagecal_vle_antoine_flags, stagecal_vle_t_range). Called by the loaders; the texts
+ * name the column id, not the file. */
+void stagecal_column_warnings(stagecal_column *col);
 
 #ifdef __cplusplus
 }

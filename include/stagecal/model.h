@@ -23,9 +23,10 @@
 
 #include <stddef.h>
 
-#include "stagecal/column.h"
+#include "stagecal/convention.h"
 #include "stagecal/error.h"
 #include "stagecal/form.h"
+#include "stagecal/vle.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -207,7 +208,8 @@ enum {
 /* The correlation evaluated at one condition. */
 typedef struct {
     double stages;          /* predicted stages, pot included [-] */
-    double column_stages;   /* stages − 1 (total condenser) or − 2 (partial) [-] */
+    double column_stages;   /* stagecal_convention_column_stages(stages): stages − 1 (total
+                               condenser) or − 2 (partial); NAN below that (no column count) */
     double se_fit;          /* standard error of the mean prediction, sqrt(gᵀCg) [stages] */
     double se_pred;         /* standard error of a new observation, sqrt(gᵀCg + σ²) */
     double level;           /* confidence level used */
@@ -233,8 +235,6 @@ int stagecal_model_eval(const stagecal_model *m, double r, double f_load, double
 
 /* "stage-space" / "composition-space". */
 const char *stagecal_model_method_name(stagecal_model_method method);
-/* The stage-convention sentence written into the file for a condenser type. */
-const char *stagecal_model_convention_text(stagecal_condenser condenser);
 
 #ifdef __cplusplus
 }

@@ -26,8 +26,6 @@
 extern "C" {
 #endif
 
-/* The caution every report carries (DESIGN §6), one paragraph, never NULL. */
-const char *stagecal_caution_text(void);
 
 /* One row of a key/value list ("column", "C-101 (fictional)"). */
 typedef struct {

@@ -27,7 +27,7 @@
 
 #include <stddef.h>
 
-#include "stagecal/column.h"
+#include "stagecal/convention.h"
 #include "stagecal/error.h"
 #include "stagecal/model.h"
 

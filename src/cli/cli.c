@@ -19,12 +19,6 @@
 const char *cli_command = "";
 int cli_quiet = 0;
 
-const char cli_caution[] =
-    "Caution: batch distillation handles flammable and often toxic liquids under heat. "
-    "These results are an empirical fit that supports engineering judgement; they do not "
-    "replace it. Conditions outside the fitted envelope are extrapolations and are flagged "
-    "as such. Local codes, site procedures and a licensed engineer's review come first.";
-
 static void vmessage(const char *kind, const char *fmt, va_list ap)
 {
     if (cli_command[0])
@@ -211,29 +205,11 @@ void cli_system_close(cli_system *s)
 void cli_column_warn(const stagecal_column *col, const char *path)
 {
     static int warned; /* one command per process: warn once per command */
-    const stagecal_vle *vle = col->system.vle;
-    unsigned flags = vle ? stagecal_vle_antoine_flags(vle) : 0;
-    double lo, hi;
-    if (warned || flags == 0 || stagecal_vle_t_range(vle, &lo, &hi) != STAGECAL_OK)
+    if (warned)
         return;
     warned = 1;
-    stagecal_vle_definition def;
-    stagecal_vle_get_definition(vle, &def);
-    const char *names[2] = {col->system.light, col->system.heavy};
-    const unsigned bits[2] = {STAGECAL_VLE_ANTOINE_LIGHT, STAGECAL_VLE_ANTOINE_HEAVY};
-    char sets[2 * (STAGECAL_NAME_MAX + 48)] = "";
-    size_t len = 0;
-    for (int i = 0; i < 2; i++) {
-        if (!(flags & bits[i]) || len >= sizeof sets)
-            continue;
-        int k = snprintf(sets + len, sizeof sets - len, "%s%s [%.2f, %.2f] K",
-                         len ? " and of " : "", names[i], def.ant[i].t_min_k, def.ant[i].t_max_k);
-        if (k > 0)
-            len += (size_t)k;
-    }
-    cli_warn("%s: the bubble curve at %.6g kPa spans [%.2f, %.2f] K, outside the stated range "
-             "of the Antoine set of %s; results are computed with it anyway",
-             path, stagecal_vle_pressure(vle) / 1000.0, lo, hi, sets);
+    for (size_t k = 0; k < col->n_warnings; k++)
+        cli_warn("%s: %s", path, col->warnings[k]);
 }
 
 json_t *cli_system_json(const cli_system *s)

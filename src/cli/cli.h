@@ -14,6 +14,7 @@
 #include <sysexits.h>
 
 #include "stagecal/column.h"
+#include "stagecal/convention.h"
 #include "stagecal/error.h"
 
 /* Exit codes (DESIGN §5). */
@@ -58,9 +59,6 @@ int cli_json_print(json_t *doc);
 /* A JSON real that is null when v is not finite. */
 json_t *cli_json_real(double v);
 
-/* The caution every report carries (DESIGN §6), one paragraph. */
-extern const char cli_caution[];
-
 /* Is stderr a terminal that may show progress (and NO_COLOR unset)? */
 int cli_progress_enabled(void);
 
@@ -85,9 +83,8 @@ int cli_system_open(cli_system *s);
  * the problem and returns CLI_EXIT_USAGE for a value that is not a number, else 0. */
 int cli_system_option(cli_system *s, const char *name, const char *arg);
 void cli_system_close(cli_system *s);
-/* Warnings about a loaded column file (path names it), at most once per command: an
- * Antoine set used outside its stated temperature range on the bubble curve
- * (stagecal_vle_antoine_flags), with the curve's temperatures (stagecal_vle_t_range). */
+/* Prints the loaded column's warnings (col->warnings, see stagecal_column_warnings) on
+ * stderr with path in front, at most once per command. */
 void cli_column_warn(const stagecal_column *col, const char *path);
 /* A JSON object describing the model in use ({"kind": …, "alpha": …} or the column). */
 json_t *cli_system_json(const cli_system *s);

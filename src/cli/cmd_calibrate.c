@@ -487,7 +487,7 @@ int cmd_calibrate(int argc, char **argv)
         json_object_set_new(doc, "findings",
                             json_pack("{s:I,s:I}", "errors", (json_int_t)cal.findings->n_errors,
                                       "warnings", (json_int_t)cal.findings->n_warnings));
-        json_object_set_new(doc, "caution", json_string(cli_caution));
+        json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
         rc = cli_json_print(doc);
     } else {
         printf("stagecal calibration of column %s (%s / %s)\n", mo->column_id, mo->light,
@@ -525,7 +525,7 @@ int cmd_calibrate(int argc, char **argv)
                    rr, ff, mo->hetp_m, 100 * mo->hetp_level, mo->hetp_low_m, mo->hetp_high_m,
                    mo->height_m);
         }
-        printf("stage convention: %s\n", stagecal_model_convention_text(mo->condenser));
+        printf("stage convention: %s\n", stagecal_convention_text(mo->condenser));
         for (size_t i = 0; i < mo->n_warnings; i++)
             printf("warning: %s\n", mo->warnings[i]);
         if (report_out)
@@ -534,7 +534,7 @@ int cmd_calibrate(int argc, char **argv)
             printf("\nmodel file: %s\n", path);
         else
             printf("\nmodel file: not written (--dry-run)\n");
-        printf("\n%s\n", cli_caution);
+        printf("\n%s\n", stagecal_caution_text());
         rc = CLI_EXIT_OK;
     }
     stagecal_calibration_free(&cal);

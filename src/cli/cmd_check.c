@@ -51,6 +51,29 @@ static json_t *findings_json(const stagecal_findings *f)
     return arr;
 }
 
+/* The summary line on stderr. A run whose balance does not close is an error-level
+ * finding about the run (not about a row), so the line never pairs it with "0 errors". */
+static void summary(const stagecal_runlog *log, const stagecal_runlog_result *res,
+                    const stagecal_findings *f)
+{
+    size_t gross = 0;
+    for (size_t k = 0; k < log->nruns; k++)
+        gross += res->closures[k].gross != 0;
+    fprintf(stderr, "stagecal check: %zu rows, %zu runs: ", log->n, log->nruns);
+    if (gross == 0)
+        fprintf(stderr, "%zu errors, %zu warnings\n", f->n_errors, f->n_warnings);
+    else if (f->n_errors == 0)
+        fprintf(stderr,
+                "rows valid, %zu warnings; %zu run(s) with a gross error in the mass "
+                "balance (see the closure lines)\n",
+                f->n_warnings, gross);
+    else
+        fprintf(stderr,
+                "%zu errors in the rows, %zu warnings; %zu run(s) with a gross error in "
+                "the mass balance (see the closure lines)\n",
+                f->n_errors, f->n_warnings, gross);
+}
+
 int cmd_check(int argc, char **argv)
 {
     enum { O_COLUMN = 256, O_MINROWS, O_JSON, O_QUIET };
@@ -102,6 +125,7 @@ int cmd_check(int argc, char **argv)
         if (stagecal_column_load(column_path, &col, &err) != STAGECAL_OK)
             return cli_fail(&err);
         have_col = 1;
+        cli_column_warn(&col, column_path);
     }
     stagecal_runlog *log = stagecal_runlog_alloc();
     stagecal_findings *f = stagecal_findings_alloc(rp.max_findings);
@@ -198,8 +222,7 @@ int cmd_check(int argc, char **argv)
         }
     }
     if (!cli_quiet)
-        fprintf(stderr, "stagecal check: %zu rows, %zu runs: %zu errors, %zu warnings\n", log->n,
-                log->nruns, f->n_errors, f->n_warnings);
+        summary(log, &res, f);
     stagecal_runlog_result_free(&res);
     rc = missing ? CLI_EXIT_NOINPUT : f->n_errors ? CLI_EXIT_DATA : CLI_EXIT_OK;
 done:

@@ -321,10 +321,7 @@ int cmd_hetp(int argc, char **argv)
         json_object_set_new(
             doc, "units",
             json_pack("{s:s, s:s, s:s}", "hetp", "m", "height", "m", "fload", "Pa^0.5"));
-        json_object_set_new(doc, "stage_convention",
-                            json_string("stages include the pot; column stages = stages - 1 "
-                                        "(total condenser) or - 2 (partial condenser); HETP = "
-                                        "packed height / column stages"));
+        json_object_set_new(doc, "stage_convention", json_string(stagecal_convention_text_any()));
         json_t *models = json_array();
         for (int i = 0; i < nfiles; i++)
             json_array_append_new(models, side_json(&sd[i], nt));
@@ -360,7 +357,7 @@ int cmd_hetp(int argc, char **argv)
                             cli_json_real(rule.low_m), "high_m", cli_json_real(rule.high_m), "rule",
                             rule.rule, "source", rule.source, "verdict",
                             stagecal_hetp_verdict_name(stagecal_hetp_vs_rule(&cur->h, &rule))));
-        json_object_set_new(doc, "caution", json_string(cli_caution));
+        json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
         rc = cli_json_print(doc);
         goto done;
     }

@@ -136,6 +136,9 @@ int cmd_invert(int argc, char **argv)
         return cli_fail(&err);
     }
     int ok = res.status == STAGECAL_STAGES_OK;
+    /* the condenser comes from the column file; --alpha/--kvalue mean a total condenser */
+    stagecal_condenser cond = sys.have_column ? sys.col.condenser : STAGECAL_CONDENSER_TOTAL;
+    double col_stages = ok ? stagecal_convention_column_stages(res.stages, cond) : NAN;
     if (json) {
         json_t *doc = json_object();
         json_object_set_new(doc, "format", json_string("stagecal-invert"));
@@ -143,10 +146,9 @@ int cmd_invert(int argc, char **argv)
         json_object_set_new(doc, "status", json_string(stagecal_stages_status_name(res.status)));
         json_object_set_new(doc, "reason", ok ? json_null() : json_string(res.reason));
         json_object_set_new(doc, "stages", ok ? json_real(res.stages) : json_null());
-        json_object_set_new(doc, "column_stages", ok ? json_real(res.column_stages) : json_null());
-        json_object_set_new(doc, "stage_convention",
-                            json_string("stages include the pot; column stages = stages - 1; "
-                                        "the total condenser is not a stage"));
+        json_object_set_new(doc, "column_stages", cli_json_real(col_stages));
+        json_object_set_new(doc, "condenser", json_string(stagecal_condenser_name(cond)));
+        json_object_set_new(doc, "stage_convention", json_string(stagecal_convention_text(cond)));
         json_object_set_new(doc, "xd", json_real(xd));
         json_object_set_new(doc, "xb", json_real(xb));
         json_object_set_new(doc, "reflux", cli_json_reflux(reflux));
@@ -164,10 +166,15 @@ int cmd_invert(int argc, char **argv)
     } else {
         if (ok) {
             printf("stages (the pot included): %.6f\n", res.stages);
-            printf("column stages:             %.6f\n", res.column_stages);
+            if (isfinite(col_stages))
+                printf("column stages:             %.6f\n", col_stages);
+            else
+                printf("column stages:             not determined (fewer stages than the pot "
+                       "and the partial condenser give)\n");
             printf("L/V:                       %.6f\n", res.lv);
             printf("sensitivities: dN/dxD = %.4g, dN/dxB = %.4g, dN/dR = %.4g\n", res.dstages_dxd,
                    res.dstages_dxb, res.dstages_dr);
+            printf("stage convention: %s\n", stagecal_convention_text(cond));
         } else {
             printf("status: %s (%s)\n", stagecal_stages_status_name(res.status), res.reason);
         }

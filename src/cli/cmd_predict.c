@@ -249,7 +249,7 @@ static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batc
                       "parameter uncertainty of the mean law (not window-to-window scatter)"));
     else
         json_object_set_new(doc, "band", json_null());
-    json_object_set_new(doc, "caution", json_string(cli_caution));
+    json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
     return doc;
 }
 

@@ -131,7 +131,7 @@ static int print_json(const char *path, const stagecal_regress_result *res,
     json_object_set_new(doc, "format_version", json_integer(1));
     json_object_set_new(doc, "points_file", json_string(path));
     json_object_set_new(doc, "form", json_string(res->form.name));
-    json_object_set_new(doc, "stage_convention", json_string("stages including the pot"));
+    json_object_set_new(doc, "stage_convention", json_string(stagecal_convention_text_any()));
     json_object_set_new(doc, "n", json_integer((json_int_t)res->n));
     json_object_set_new(doc, "p", json_integer((json_int_t)p));
     json_object_set_new(doc, "dof", cli_json_real(res->dof));
@@ -255,7 +255,7 @@ static void print_text(const char *path, const stagecal_regress_result *res,
                    b->ci_low, b->ci_high, b->pi_low, b->pi_high);
         }
     }
-    printf("\n%s\n", cli_caution);
+    printf("\n%s\n", stagecal_caution_text());
 }
 
 static int parse_start(const char *text, double *v, size_t *nv)

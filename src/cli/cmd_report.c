@@ -195,6 +195,7 @@ int cmd_report(int argc, char **argv)
         int have_col = 0;
         if (column_path && (rc = stagecal_column_load(column_path, &col, &err)) == STAGECAL_OK) {
             have_col = 1;
+            cli_column_warn(&col, column_path);
             if (strcmp(col.id, m.column_id) != 0) { /* bad data, reported below like the rest */
                 stagecal_error_clear(&err);
                 err.code = rc = STAGECAL_EDATA;

@@ -654,7 +654,7 @@ int cmd_trend(int argc, char **argv)
         for (size_t i = 0; i < ncol; i++)
             json_array_append_new(arr, column_json(&cols[i], ev));
         json_object_set_new(doc, "columns", arr);
-        json_object_set_new(doc, "caution", json_string(cli_caution));
+        json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
         rc = cli_json_print(doc);
         goto done;
     }

@@ -72,9 +72,9 @@ static json_t *summary_json(const stagecal_runlog *log, const stagecal_column *c
     json_object_set_new(doc, "version", json_integer(1));
     json_object_set_new(doc, "column", json_string(col->id));
     json_object_set_new(doc, "murphree", json_real(murphree));
+    json_object_set_new(doc, "condenser", json_string(stagecal_condenser_name(col->condenser)));
     json_object_set_new(doc, "stage_convention",
-                        json_string("stages include the pot; column stages = stages - 1 (- 1 "
-                                    "more with a partial condenser)"));
+                        json_string(stagecal_convention_text(col->condenser)));
     for (size_t k = 0; k < log->nfiles; k++)
         json_array_append_new(files, json_string(log->files[k]));
     json_object_set_new(doc, "files", files);
@@ -126,7 +126,7 @@ static json_t *summary_json(const stagecal_runlog *log, const stagecal_column *c
     json_object_set_new(
         doc, "units",
         json_pack("{s:s,s:s,s:s}", "time", "s", "F", "Pa^0.5", "xb_drift_per_h", "mol/mol per h"));
-    json_object_set_new(doc, "caution", json_string(cli_caution));
+    json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
     return doc;
 }
 
