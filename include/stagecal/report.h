@@ -26,7 +26,6 @@
 extern "C" {
 #endif
 
-
 /* One row of a key/value list ("column", "C-101 (fictional)"). */
 typedef struct {
     const char *key;
