@@ -7,13 +7,13 @@
  */
 #include "stagecal/batch.h"
 
-#include <errno.h>
 #include <jansson.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
+#include "fileio.h"
 #include "internal.h"
 
 #define PLAN_FORMAT "stagecal-plan"
@@ -243,37 +243,11 @@ done:
 
 int stagecal_batch_plan_load(const char *path, stagecal_batch_problem *pb, stagecal_error *err)
 {
-    FILE *f = fopen(path, "rb");
-    char *buf = NULL;
-    size_t len = 0, cap = 0;
-    int rc;
-    if (!f)
-        return error_set(err, STAGECAL_ENOINPUT, "cannot open plan '%s': %s", path,
-                         strerror(errno));
-    for (;;) {
-        if (len == cap) {
-            size_t ncap = cap ? 2 * cap : 4096;
-            char *nb = realloc(buf, ncap);
-            if (!nb) {
-                free(buf);
-                fclose(f);
-                return error_set(err, STAGECAL_ENOMEM, "out of memory reading '%s'", path);
-            }
-            buf = nb;
-            cap = ncap;
-        }
-        size_t got = fread(buf + len, 1, cap - len, f);
-        len += got;
-        if (got == 0)
-            break;
-    }
-    if (ferror(f)) {
-        free(buf);
-        fclose(f);
-        return error_set(err, STAGECAL_ENOINPUT, "cannot read plan '%s'", path);
-    }
-    fclose(f);
-    rc = stagecal_batch_plan_parse(buf, len, path, pb, err);
-    free(buf);
+    fileio_data in;
+    int rc = read_all(path, FILEIO_CAP_PLAN, "plan file", 0, &in, err);
+    if (rc != STAGECAL_OK)
+        return rc;
+    rc = stagecal_batch_plan_parse(in.data, in.len, path, pb, err);
+    free(in.data);
     return rc;
 }

@@ -18,11 +18,11 @@
 
 #include <jansson.h>
 
+#include "fileio.h"
 #include "internal.h"
 
 #define COLUMN_FORMAT "stagecal-column"
 #define COLUMN_VERSION 1
-#define COLUMN_MAX_BYTES (16L * 1024 * 1024)
 
 typedef struct {
     const char *src;
@@ -499,42 +499,15 @@ int stagecal_column_parse(const char *text, size_t len, const char *source, stag
 
 int stagecal_column_load(const char *path, stagecal_column *col, stagecal_error *err)
 {
+    fileio_data in;
     memset(col, 0, sizeof *col);
-    FILE *f = fopen(path, "rb");
-    if (!f)
-        return error_set(err, STAGECAL_ENOINPUT, "cannot open '%s': %s", path, strerror(errno));
-    char *buf = NULL;
-    size_t len = 0, cap = 0;
-    int rc = STAGECAL_OK;
-    for (;;) {
-        if (len == cap) {
-            if (cap >= (size_t)COLUMN_MAX_BYTES) {
-                rc = error_set(err, STAGECAL_EDATA, "%s: file larger than %ld bytes", path,
-                               COLUMN_MAX_BYTES);
-                break;
-            }
-            size_t ncap = cap ? 2 * cap : 8192;
-            char *nb = realloc(buf, ncap);
-            if (!nb) {
-                rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
-                break;
-            }
-            buf = nb;
-            cap = ncap;
-        }
-        size_t got = fread(buf + len, 1, cap - len, f);
-        len += got;
-        if (got == 0) {
-            if (ferror(f))
-                rc = error_set(err, STAGECAL_ENOINPUT, "cannot read '%s': %s", path,
-                               strerror(errno));
-            break;
-        }
-    }
-    fclose(f);
+    int rc = read_all(path, FILEIO_CAP_COLUMN, "column file", 0, &in, err);
+    if (rc != STAGECAL_OK)
+        return rc;
+    rc = stagecal_column_parse(in.data, in.len, path, col, err);
     if (rc == STAGECAL_OK)
-        rc = stagecal_column_parse(buf, len, path, col, err);
-    free(buf);
+        memcpy(col->sha256, in.sha256, sizeof col->sha256);
+    free(in.data);
     return rc;
 }
 

@@ -11,23 +11,23 @@
  * black page and would make our dark axes invisible on white): index 0 white page,
  * 1 axis/text grey, 2 light grid grey, 3..10 the Okabe–Ito palette, 11..18 tints.
  *
- * Files are written atomically: PLplot draws into a mkstemp file next to the target
- * (so PLplot's own fopen cannot fail and prompt on the terminal), which is renamed over
- * the target when it is non-empty.
+ * Files are written through the one atomic writer (src/fileio.c): PLplot draws into a
+ * temporary file in the target's folder (so PLplot's own fopen cannot fail and prompt
+ * on the terminal); the result is read back and published (renamed over the target,
+ * which --output documents) only when it is complete — a PNG's IEND chunk, an SVG's
+ * closing tag, a PDF's %%EOF — so a full disk cannot leave a cut chart behind.
  */
 #include "stagecal/plot.h"
 
 #include <ctype.h>
-#include <errno.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
-#include <unistd.h>
 
 #include <plplot.h>
 
+#include "fileio.h"
 #include "internal.h"
 
 enum { COL_PAGE = 0, COL_AXIS = 1, COL_GRID = 2, COL_SERIES = 3, COL_TINT = 11, NCOL0 = 19 };
@@ -477,20 +477,55 @@ static int check_params(const stagecal_plot_params *par, stagecal_error *err)
     return STAGECAL_OK;
 }
 
-/* Renders into the existing file tmp (the caller created it). */
-static int render_to(const stagecal_plot_chart *c, stagecal_plot_format fmt, const char *tmp,
-                     const stagecal_plot_params *par, stagecal_error *err)
+/* Is the rendered file complete? A PNG ends with its IEND chunk, an SVG with its
+ * closing tag, a PDF with its end-of-file marker (trailing white space allowed). A
+ * cairo device that ran out of disk leaves a file cut anywhere, so size alone says
+ * nothing. */
+static int chart_complete(const char *buf, size_t n, stagecal_plot_format fmt)
+{
+    static const char iend[12] = {0, 0, 0, 0, 'I', 'E', 'N', 'D', '\xae', 'B', '`', '\x82'};
+    if (fmt == STAGECAL_PLOT_PNG)
+        return n >= sizeof iend && memcmp(buf + n - sizeof iend, iend, sizeof iend) == 0;
+    while (n > 0 && isspace((unsigned char)buf[n - 1]))
+        n--;
+    const char *end = fmt == STAGECAL_PLOT_SVG ? "</svg>" : "%%EOF";
+    size_t k = strlen(end);
+    return n >= k && memcmp(buf + n - k, end, k) == 0;
+}
+
+/* Renders into the temporary file a (PLplot opens it by name) and checks that it is
+ * complete; out and len: its content when wanted (caller frees), else NULL. */
+static int render_to(const stagecal_plot_chart *c, stagecal_plot_format fmt, atomic_file *a,
+                     const char *path, const stagecal_plot_params *par, char **out, size_t *len,
+                     stagecal_error *err)
 {
     prepared pr;
+    char *buf = NULL;
+    size_t n = 0;
     int rc = prepare(c, &pr, err);
     if (rc)
         return rc;
-    render(c, &pr, device_for(fmt), tmp, par);
+    render(c, &pr, device_for(fmt), atomic_path(a), par);
     prepared_free(&pr, c->n_series);
-    struct stat st;
-    if (stat(tmp, &st) != 0 || st.st_size == 0)
-        return error_set(err, STAGECAL_EINTERNAL,
-                         "plplot wrote nothing to '%s' (is plplot-driver-cairo installed?)", tmp);
+    if ((rc = atomic_read_back(a, &buf, &n, err)))
+        return rc;
+    if (!chart_complete(buf, n, fmt)) {
+        free(buf);
+        return error_set(err, STAGECAL_EWRITE,
+                         "cannot write '%s': the chart came out incomplete (%zu bytes, no %s); "
+                         "is the disk full%s?",
+                         path, n,
+                         fmt == STAGECAL_PLOT_PNG   ? "PNG end chunk"
+                         : fmt == STAGECAL_PLOT_SVG ? "closing </svg>"
+                                                    : "PDF end marker",
+                         n == 0 ? ", or plplot-driver-cairo missing" : "");
+    }
+    if (out) {
+        *out = buf;
+        *len = n;
+    } else {
+        free(buf);
+    }
     return STAGECAL_OK;
 }
 
@@ -499,31 +534,17 @@ int stagecal_plot_write(const stagecal_plot_chart *chart, const char *path,
 {
     stagecal_plot_params par = params ? *params : stagecal_plot_default_params();
     stagecal_plot_format fmt;
+    atomic_file a;
     int rc;
     if (!path || !path[0])
         return error_set(err, STAGECAL_EINVAL, "plot file name is empty");
     if ((rc = stagecal_plot_format_from_path(path, &fmt, err)) || (rc = check_params(&par, err)) ||
         (rc = stagecal_plot_check(chart, err)))
         return rc;
-    size_t n = strlen(path) + 16;
-    char *tmp = malloc(n);
-    if (!tmp)
-        return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    snprintf(tmp, n, "%s.tmpXXXXXX", path);
-    int fd = mkstemp(tmp);
-    if (fd < 0) {
-        rc = error_set(err, STAGECAL_EWRITE, "cannot create '%s': %s", path, strerror(errno));
-        free(tmp);
-        return rc;
-    }
-    fchmod(fd, 0644); /* mkstemp makes 0600; a plot is for sharing */
-    close(fd);
-    rc = render_to(chart, fmt, tmp, &par, err);
-    if (rc == STAGECAL_OK && rename(tmp, path) != 0)
-        rc = error_set(err, STAGECAL_EWRITE, "cannot write '%s': %s", path, strerror(errno));
-    if (rc != STAGECAL_OK)
-        unlink(tmp);
-    free(tmp);
+    if ((rc = atomic_open(&a, path, err)) == STAGECAL_OK &&
+        (rc = render_to(chart, fmt, &a, path, &par, NULL, NULL, err)) == STAGECAL_OK)
+        rc = atomic_publish(&a, path, ATOMIC_REPLACE, NULL, err);
+    atomic_discard(&a);
     return rc;
 }
 
@@ -531,6 +552,8 @@ int stagecal_plot_svg(const stagecal_plot_chart *chart, const stagecal_plot_para
                       char **svg, size_t *len, stagecal_error *err)
 {
     stagecal_plot_params par = params ? *params : stagecal_plot_default_params();
+    atomic_file a;
+    size_t n = 0;
     int rc;
     if (!svg)
         return error_set(err, STAGECAL_EINVAL, "svg output pointer is NULL");
@@ -540,43 +563,16 @@ int stagecal_plot_svg(const stagecal_plot_chart *chart, const stagecal_plot_para
     const char *dir = par.tmp_dir ? par.tmp_dir : getenv("TMPDIR");
     if (!dir || !dir[0])
         dir = "/tmp";
-    size_t n = strlen(dir) + 32;
-    char *tmp = malloc(n);
-    if (!tmp)
+    size_t cap = strlen(dir) + 16;
+    char *where = malloc(cap);
+    if (!where)
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    snprintf(tmp, n, "%s/stagecal-plot-XXXXXX", dir);
-    int fd = mkstemp(tmp);
-    if (fd < 0) {
-        rc = error_set(err, STAGECAL_EWRITE, "cannot create a temporary file in '%s': %s", dir,
-                       strerror(errno));
-        free(tmp);
-        return rc;
-    }
-    close(fd);
-    rc = render_to(chart, STAGECAL_PLOT_SVG, tmp, &par, err);
-    FILE *f = rc == STAGECAL_OK ? fopen(tmp, "rb") : NULL;
-    if (rc == STAGECAL_OK && !f)
-        rc = error_set(err, STAGECAL_EINTERNAL, "cannot read back '%s': %s", tmp, strerror(errno));
-    if (f) {
-        struct stat st;
-        char *buf = NULL;
-        if (fstat(fileno(f), &st) != 0)
-            rc = error_set(err, STAGECAL_EINTERNAL, "cannot stat '%s'", tmp);
-        else if (!(buf = malloc((size_t)st.st_size + 1)))
-            rc = error_set(err, STAGECAL_ENOMEM, "out of memory reading an svg");
-        else if (fread(buf, 1, (size_t)st.st_size, f) != (size_t)st.st_size)
-            rc = error_set(err, STAGECAL_EINTERNAL, "short read of '%s'", tmp);
-        fclose(f);
-        if (rc == STAGECAL_OK) {
-            buf[st.st_size] = '\0';
-            *svg = buf;
-            if (len)
-                *len = (size_t)st.st_size;
-        } else {
-            free(buf);
-        }
-    }
-    unlink(tmp);
-    free(tmp);
+    snprintf(where, cap, "%s/chart.svg", dir); /* only its folder is used: never published */
+    if ((rc = atomic_open(&a, where, err)) == STAGECAL_OK)
+        rc = render_to(chart, STAGECAL_PLOT_SVG, &a, where, &par, svg, &n, err);
+    atomic_discard(&a);
+    free(where);
+    if (rc == STAGECAL_OK && len)
+        *len = n;
     return rc;
 }

@@ -17,6 +17,7 @@
 
 #include <csv.h>
 
+#include "fileio.h"
 #include "internal.h"
 
 enum { COL_R, COL_STAGES, COL_F, COL_SIGMA, NCOL };
@@ -191,9 +192,11 @@ int stagecal_regress_data_read(const char *path, stagecal_regress_data *data, st
     int use_stdin = strcmp(path, "-") == 0;
     rd.source = use_stdin ? "<stdin>" : path;
     rd.err = err;
-    FILE *fp = use_stdin ? stdin : fopen(path, "r");
-    if (!fp)
-        return error_set_at(err, STAGECAL_ENOINPUT, path, 0, 0, "cannot open: %s", strerror(errno));
+    FILE *fp = stdin;
+    int orc =
+        use_stdin ? STAGECAL_OK : open_bounded(path, FILEIO_CAP_POINTS, "points file", &fp, err);
+    if (orc != STAGECAL_OK)
+        return orc;
     if (csv_init(&csv, CSV_APPEND_NULL) != 0) {
         if (!use_stdin)
             fclose(fp);

@@ -12,18 +12,16 @@
  */
 #include "stagecal/report.h"
 
-#include <errno.h>
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/stat.h>
-#include <unistd.h>
 
 #include "stagecal/stages.h"
 #include "stagecal/version.h"
 #include "stagecal/vle.h"
+#include "fileio.h"
 #include "internal.h"
 
 #define MAX_COLS 64
@@ -375,36 +373,8 @@ int stagecal_report_write(const stagecal_report *r, const stagecal_report_params
         return error_set(err, STAGECAL_EINVAL, "report file name is empty");
     if ((rc = stagecal_report_html(r, params, &html, &n, err)))
         return rc;
-    size_t tl = strlen(path) + 16;
-    char *tmp = malloc(tl);
-    if (!tmp) {
-        free(html);
-        return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    }
-    snprintf(tmp, tl, "%s.tmpXXXXXX", path);
-    int fd = mkstemp(tmp);
-    if (fd < 0) {
-        rc = error_set(err, STAGECAL_EWRITE, "cannot create '%s': %s", path, strerror(errno));
-    } else {
-        fchmod(fd, 0644); /* mkstemp makes 0600; a report is for sharing */
-        FILE *f = fdopen(fd, "wb");
-        if (!f) {
-            close(fd);
-            rc = error_set(err, STAGECAL_EWRITE, "cannot write '%s': %s", path, strerror(errno));
-        } else {
-            size_t w = fwrite(html, 1, n, f);
-            int bad = w != n || fflush(f) != 0 || fsync(fileno(f)) != 0;
-            if (fclose(f) != 0 || bad)
-                rc =
-                    error_set(err, STAGECAL_EWRITE, "cannot write '%s': %s", path, strerror(errno));
-            else if (rename(tmp, path) != 0)
-                rc =
-                    error_set(err, STAGECAL_EWRITE, "cannot write '%s': %s", path, strerror(errno));
-        }
-        if (rc)
-            unlink(tmp);
-    }
-    free(tmp);
+    /* the output named by --output replaces an earlier report of that name (docs/cli.md) */
+    rc = write_atomic(path, html, n, ATOMIC_REPLACE, err);
     free(html);
     return rc;
 }

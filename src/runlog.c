@@ -20,6 +20,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "fileio.h"
 #include "internal.h"
 #include "internal_sha256.h"
 #include "stagecal/physics.h"
@@ -786,10 +787,23 @@ int stagecal_runlog_read(stagecal_runlog *log, const char *path, const stagecal_
 {
     if (strcmp(path, "-") == 0)
         return stagecal_runlog_read_stream(log, stdin, "-", col, params, f, err);
-    FILE *in = fopen(path, "r");
-    if (!in)
-        return error_set_at(err, STAGECAL_ENOINPUT, path, 0, 0, "cannot open: %s", strerror(errno));
-    int rc = stagecal_runlog_read_stream(log, in, path, col, params, f, err);
+    FILE *in;
+    stagecal_error oerr;
+    int rc = open_bounded(path, FILEIO_CAP_RUNLOG, "run log", &in, &oerr);
+    if (rc == STAGECAL_EDATA) { /* over the size limit: a finding, as bad content is */
+        struct reader rd0;
+        size_t skip = strlen(path) + 2; /* the message without its "path: " */
+        memset(&rd0, 0, sizeof rd0);
+        rd0.f = f;
+        rd0.err = err;
+        rd0.source = path;
+        fatal(&rd0, 0, NULL, "%s", strlen(oerr.text) > skip ? oerr.text + skip : oerr.text);
+    } else if (rc != STAGECAL_OK && err) {
+        *err = oerr;
+    }
+    if (rc != STAGECAL_OK)
+        return rc;
+    rc = stagecal_runlog_read_stream(log, in, path, col, params, f, err);
     fclose(in);
     return rc;
 }

@@ -26,6 +26,7 @@
 
 #include "stagecal/hetp.h"
 #include "stagecal/units.h"
+#include "fileio.h"
 #include "internal.h"
 
 #define MONTH STAGECAL_TREND_MONTH_S
@@ -489,9 +490,10 @@ int stagecal_trend_events_read(const char *path, stagecal_trend_event **events, 
 {
     *events = NULL;
     *n = 0;
-    FILE *fp = fopen(path, "r");
-    if (!fp)
-        return error_set(err, STAGECAL_ENOINPUT, "cannot open '%s': %s", path, strerror(errno));
+    FILE *fp;
+    int orc = open_bounded(path, FILEIO_CAP_EVENTS, "events file", &fp, err);
+    if (orc != STAGECAL_OK)
+        return orc;
     struct csv_parser p;
     if (csv_init(&p, CSV_APPEND_NULL) != 0) {
         fclose(fp);

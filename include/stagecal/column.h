@@ -67,10 +67,14 @@ typedef struct {
      * uses the column shows them and calibration carries them into the model file. */
     size_t n_warnings;
     char warnings[STAGECAL_COLUMN_MAX_WARNINGS][STAGECAL_COLUMN_WARNING_MAX];
+    char sha256[65]; /* SHA-256 (lowercase hex) of the bytes parsed; "" = not read from a
+                        file (stagecal_column_parse) */
 } stagecal_column;
 
-/* Reads a column file. On success *col owns its vle (free with stagecal_column_free)
- * and col->warnings holds what stagecal_column_warnings found. Errors: ENOINPUT (cannot open),
+/* Reads a column file (a regular file of at most 16 MiB) once: the bytes parsed are the
+ * bytes hashed into col->sha256. On success *col owns its vle (free with stagecal_column_free)
+ * and col->warnings holds what stagecal_column_warnings found. Errors: ENOINPUT (cannot open, not a
+ * regular file),
  * EDATA (malformed JSON or a field outside its domain, with "path:line: field 'x': ..." messages),
  * ENOMEM. */
 int stagecal_column_load(const char *path, stagecal_column *col, stagecal_error *err);

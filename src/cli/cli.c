@@ -15,6 +15,7 @@
 #include <getopt.h>
 
 #include "banned.h"
+#include "fileio.h"
 
 const char *cli_command = "";
 int cli_quiet = 0;
@@ -264,16 +265,12 @@ int cli_check_fraction(const char *opt, double v)
 
 int cli_check_output(const char *opt, const char *out, const char *const *inputs, size_t n)
 {
-    struct stat so, si;
-    if (!out || strcmp(out, "-") == 0 || stat(out, &so) != 0)
+    size_t k = output_is_input(out, inputs, n);
+    if (k == (size_t)-1)
         return 0;
-    for (size_t k = 0; k < n; k++)
-        if (inputs[k] && strcmp(inputs[k], "-") != 0 && stat(inputs[k], &si) == 0 &&
-            si.st_dev == so.st_dev && si.st_ino == so.st_ino)
-            return cli_usage_error("option '--%s': '%s' is also an input ('%s'); writing it would "
-                                   "destroy that input (expected a new file)",
-                                   opt, out, inputs[k]);
-    return 0;
+    return cli_usage_error("option '--%s': '%s' is also an input ('%s'); writing it would "
+                           "destroy that input (expected a new file)",
+                           opt, out, inputs[k]);
 }
 
 int cli_check_reflux(const char *opt, double v)

@@ -9,8 +9,10 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "banned.h"
+#include "fileio.h"
 #include "cli.h"
 #include "commands.h"
 #include "stagecal/calibrate.h"
@@ -119,7 +121,6 @@ static int print_findings(const stagecal_findings *f, int errors_only)
     return (int)shown;
 }
 
-/* The HTML report of the calibration, with the windows' stage counts as its points. */
 /* The windows' stage counts as points (for the report and --points-out); buf is freed
  * by the caller. NULL when out of memory. */
 static double *window_points(const stagecal_calibration *cal, stagecal_regress_data *pts)
@@ -132,12 +133,15 @@ static double *window_points(const stagecal_calibration *cal, stagecal_regress_d
     return buf;
 }
 
-/* The HTML report of the calibration, with the windows' stage counts as its points. */
-static int write_report(const stagecal_calibration *cal, const char *path)
+/* The HTML report of the calibration, with the windows' stage counts as its points,
+ * complete in the temporary file a (published later). */
+static int write_report(const stagecal_calibration *cal, atomic_file *a, const char *path)
 {
     stagecal_regress_data pts;
     stagecal_report_doc *doc = NULL;
     stagecal_error err;
+    char *html = NULL;
+    size_t n = 0;
     double *buf = window_points(cal, &pts);
     int rc;
     if (!buf)
@@ -145,23 +149,24 @@ static int write_report(const stagecal_calibration *cal, const char *path)
     stagecal_error_clear(&err);
     rc = stagecal_report_from_model(&cal->model, pts.n ? &pts : NULL, &doc, &err);
     if (rc == STAGECAL_OK)
-        rc = stagecal_report_write(stagecal_report_doc_content(doc), NULL, path, &err);
+        rc = stagecal_report_html(stagecal_report_doc_content(doc), NULL, &html, &n, &err);
+    if (rc == STAGECAL_OK)
+        rc = atomic_write(a, html, n, path, &err);
+    free(html);
     stagecal_report_doc_free(doc);
     free(buf);
     return rc == STAGECAL_OK ? CLI_EXIT_OK : cli_fail(&err);
 }
 
-/* The points file (R,F,stages,sigma) of the windows, atomically (temporary + rename). */
-static int write_points(const stagecal_calibration *cal, const char *path)
+/* The points file (R,F,stages,sigma) of the windows, into the temporary file a. */
+static int write_points(const stagecal_calibration *cal, atomic_file *a, const char *path)
 {
     stagecal_regress_data pts;
-    char tmp[4096];
+    stagecal_error err;
     double *buf = window_points(cal, &pts);
     if (!buf)
         return CLI_EXIT_SOFTWARE;
-    snprintf(tmp, sizeof tmp, "%s.tmp", path);
-    FILE *out = fopen(tmp, "w");
-    int bad = !out;
+    FILE *out = atomic_stream(a, &err);
     if (out) {
         fprintf(out, "R,F,stages,sigma\n");
         for (size_t i = 0; i < pts.n; i++) {
@@ -173,13 +178,61 @@ static int write_points(const stagecal_calibration *cal, const char *path)
                 fprintf(out, "%.17g", pts.f_load[i]);
             fprintf(out, ",%.17g,%.17g\n", pts.stages[i], pts.sigma[i]);
         }
-        bad = ferror(out) | (fclose(out) != 0);
     }
     free(buf);
-    if (bad || rename(tmp, path) != 0) {
-        remove(tmp);
+    if (!out || ferror(out)) {
         cli_error("cannot write '%s'", path);
         return CLI_EXIT_CANTCREAT;
+    }
+    return CLI_EXIT_OK;
+}
+
+/* The outputs besides the model file, each complete in a temporary file in its folder
+ * before any is published: a run that fails leaves none of them behind. */
+enum { OUT_SAMPLES, OUT_POINTS, OUT_REPORT, OUT_N };
+static const char *const out_opt[OUT_N] = {"samples-out", "points-out", "report"};
+
+/* Writes every requested output into its temporary file; an exit code. */
+static int prepare_outputs(const stagecal_calibration *cal, const char *const path[OUT_N],
+                           atomic_file out[OUT_N])
+{
+    stagecal_error err;
+    for (int k = 0; k < OUT_N; k++)
+        if (path[k] && atomic_open(&out[k], path[k], &err) != STAGECAL_OK)
+            return cli_fail(&err);
+    if (path[OUT_SAMPLES]) {
+        FILE *f = atomic_stream(&out[OUT_SAMPLES], &err);
+        if (!f || stagecal_runlog_write_csv(cal->log, &cal->column, &cal->res, f, &err)) {
+            cli_error("cannot write '%s'", path[OUT_SAMPLES]);
+            return CLI_EXIT_CANTCREAT;
+        }
+    }
+    int rc = CLI_EXIT_OK;
+    if (path[OUT_POINTS] && (rc = write_points(cal, &out[OUT_POINTS], path[OUT_POINTS])))
+        return rc;
+    if (path[OUT_REPORT] && (rc = write_report(cal, &out[OUT_REPORT], path[OUT_REPORT])))
+        return rc;
+    return CLI_EXIT_OK;
+}
+
+/* Publishes the prepared outputs (each replaces a file of its name, docs/cli.md). When
+ * one fails, the model file of this run (model_path, when not "") is removed again;
+ * outputs already published are named as kept. An exit code. */
+static int publish_outputs(const char *const path[OUT_N], atomic_file out[OUT_N],
+                           const char *model_path)
+{
+    stagecal_error err;
+    for (int k = 0; k < OUT_N; k++) {
+        if (!path[k] || atomic_publish(&out[k], path[k], ATOMIC_REPLACE, NULL, &err) == 0)
+            continue;
+        int rc = cli_fail(&err);
+        if (model_path[0] && unlink(model_path) == 0)
+            cli_error("the model file '%s' of this run was removed again", model_path);
+        for (int j = 0; j < k; j++)
+            if (path[j])
+                cli_error("'%s' (--%s) was written before the failure and is kept", path[j],
+                          out_opt[j]);
+        return rc;
     }
     return CLI_EXIT_OK;
 }
@@ -392,39 +445,26 @@ int cmd_calibrate(int argc, char **argv)
     if (!cli_quiet && cal.findings->n_warnings > 0)
         print_findings(cal.findings, 0);
 
-    /* per-sample CSV, atomically */
-    if (samples_out) {
-        char tmp[4096];
-        snprintf(tmp, sizeof tmp, "%s.tmp", samples_out);
-        FILE *out = fopen(tmp, "w");
-        if (!out || stagecal_runlog_write_csv(cal.log, &cal.column, &cal.res, out, &err) ||
-            fclose(out) != 0 || rename(tmp, samples_out) != 0) {
-            remove(tmp);
-            cli_error("cannot write '%s'", samples_out);
-            stagecal_calibration_free(&cal);
-            return CLI_EXIT_CANTCREAT;
-        }
-    }
-
-    if (points_out && (rc = write_points(&cal, points_out)) != CLI_EXIT_OK) {
-        stagecal_calibration_free(&cal);
-        return rc;
-    }
-
+    const char *const out_path[OUT_N] = {samples_out, points_out, report_out};
+    atomic_file out[OUT_N];
+    for (int k = 0; k < OUT_N; k++)
+        atomic_init(&out[k]);
     char path[4096] = "";
-    if (!dry) {
+    rc = prepare_outputs(&cal, out_path, out);
+    if (rc == CLI_EXIT_OK && !dry) {
         char dir[4096];
         char *cmdline = join_args(argc, argv);
         snprintf(dir, sizeof dir, "%s/%s", fits, cal.model.column_id);
         stagecal_model_set_command_line(&cal.model, cmdline, NULL);
         free(cmdline);
-        if (stagecal_model_write(&cal.model, dir, path, sizeof path, &err) != STAGECAL_OK) {
-            stagecal_calibration_free(&cal);
-            return cli_fail(&err);
-        }
+        if (stagecal_model_write(&cal.model, dir, path, sizeof path, &err) != STAGECAL_OK)
+            rc = cli_fail(&err);
     }
-
-    if (report_out && (rc = write_report(&cal, report_out)) != CLI_EXIT_OK) {
+    if (rc == CLI_EXIT_OK)
+        rc = publish_outputs(out_path, out, path);
+    for (int k = 0; k < OUT_N; k++)
+        atomic_discard(&out[k]);
+    if (rc != CLI_EXIT_OK) {
         stagecal_calibration_free(&cal);
         return rc;
     }

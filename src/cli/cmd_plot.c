@@ -184,6 +184,9 @@ int cmd_plot(int argc, char **argv)
     stagecal_error_clear(&err);
     if (stagecal_plot_format_from_path(output, &fmt, &err) != STAGECAL_OK)
         return cli_usage_error("option '--output': %s", err.text);
+    const char *inputs[3] = {points_path, optind < argc ? argv[optind] : NULL, sys.column_path};
+    if ((rc = cli_check_output("output", output, inputs, 3)))
+        return rc;
 
     stagecal_plot_chart *chart = NULL;
     stagecal_report_doc *doc = NULL;

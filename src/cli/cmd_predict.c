@@ -10,6 +10,7 @@
 #include <string.h>
 
 #include "banned.h"
+#include "fileio.h"
 #include "cli.h"
 #include "commands.h"
 #include "stagecal/batch.h"
@@ -114,13 +115,8 @@ static int open_vle(cli_system *sys, const stagecal_model *m, const char *model_
     return 0;
 }
 
-static int write_csv(const char *path, const stagecal_batch_result *res)
+static void put_csv(FILE *f, const stagecal_batch_result *res)
 {
-    FILE *f = strcmp(path, "-") == 0 ? stdout : fopen(path, "w");
-    if (!f) {
-        cli_error("cannot write '%s'", path);
-        return CLI_EXIT_CANTCREAT;
-    }
     fprintf(f, "time[h],W[kmol],xB[mol/mol],xD[mol/mol],R[-],stages[-],cut,cut_amount[kmol],"
                "cut_x[mol/mol],distilled[kmol],outside_envelope\n");
     for (size_t i = 0; i < res->n_rows; i++) {
@@ -129,13 +125,28 @@ static int write_csv(const char *path, const stagecal_batch_result *res)
                 r->w_mol / 1000, r->xb, r->xd, r->reflux, r->stages, res->cuts[r->cut].name,
                 r->cut_mol / 1000, r->cut_x, r->total_mol / 1000, r->outside ? 1 : 0);
     }
-    if (f == stdout)
-        return fflush(f) == 0 && !ferror(f) ? 0 : CLI_EXIT_CANTCREAT;
-    if (ferror(f) | (fclose(f) != 0)) {
-        cli_error("cannot write '%s'", path);
-        return CLI_EXIT_CANTCREAT;
+}
+
+/* The trajectory as CSV on stdout ("-") or, atomically, in path (replacing a file of
+ * that name, docs/cli.md). */
+static int write_csv(const char *path, const stagecal_batch_result *res)
+{
+    stagecal_error err;
+    atomic_file a;
+    if (strcmp(path, "-") == 0) {
+        put_csv(stdout, res);
+        return fflush(stdout) == 0 && !ferror(stdout) ? 0 : CLI_EXIT_CANTCREAT;
     }
-    return 0;
+    FILE *f = NULL;
+    int rc = atomic_open(&a, path, &err);
+    if (rc == STAGECAL_OK && !(f = atomic_stream(&a, &err)))
+        rc = STAGECAL_EWRITE;
+    if (f)
+        put_csv(f, res);
+    if (rc == STAGECAL_OK)
+        rc = atomic_publish(&a, path, ATOMIC_REPLACE, NULL, &err);
+    atomic_discard(&a);
+    return rc == STAGECAL_OK ? 0 : cli_fail(&err);
 }
 
 /* Where the latent heat came from, in the order of precedence; its JSON token

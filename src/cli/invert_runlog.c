@@ -13,6 +13,7 @@
 #include <string.h>
 
 #include "banned.h"
+#include "fileio.h"
 #include "cli.h"
 #include "commands.h"
 #include "stagecal/column.h"
@@ -232,17 +233,21 @@ int invert_runlog(int argc, char **argv)
     }
     if (out_path || !json) {
         int to_stdout = !out_path || strcmp(out_path, "-") == 0;
-        FILE *out = to_stdout ? stdout : fopen(out_path, "w");
-        if (!out) {
-            cli_error("cannot create '%s': %s", out_path, strerror(errno));
-            rc = CLI_EXIT_CANTCREAT;
-            goto done;
-        }
-        int w = stagecal_runlog_write_csv(log, &col, &res, out, &err);
-        if (!to_stdout && fclose(out) != 0)
+        atomic_file a;
+        FILE *out = stdout;
+        int w = to_stdout ? STAGECAL_OK : atomic_open(&a, out_path, &err);
+        if (w == STAGECAL_OK && !to_stdout && !(out = atomic_stream(&a, &err)))
             w = STAGECAL_EWRITE;
-        if (w != STAGECAL_OK) {
-            cli_error("cannot write '%s'", to_stdout ? "standard output" : out_path);
+        int csv = w == STAGECAL_OK ? stagecal_runlog_write_csv(log, &col, &res, out, &err) : w;
+        if (w == STAGECAL_OK && csv == STAGECAL_OK && !to_stdout) /* replaces (docs/cli.md) */
+            w = atomic_publish(&a, out_path, ATOMIC_REPLACE, NULL, &err);
+        if (!to_stdout)
+            atomic_discard(&a);
+        if (w != STAGECAL_OK || csv != STAGECAL_OK) {
+            if (w != STAGECAL_OK && !to_stdout)
+                cli_fail(&err);
+            else
+                cli_error("cannot write '%s'", to_stdout ? "standard output" : out_path);
             rc = CLI_EXIT_CANTCREAT;
             goto done;
         }

@@ -30,7 +30,7 @@ expect_exit 2 "'../x' is not a column id" -- $T ../x --reflux 4
 expect_exit 66 "cannot open '$tmp/fits/K-7'" -- $T K-7 --reflux 4 --fits "$tmp/fits"
 mkdir -p "$tmp/fits/K-7"
 expect_exit 66 "no model files in '$tmp/fits/K-7'" -- $T K-7 --reflux 4 --fits "$tmp/fits"
-expect_exit 66 "cannot open '$tmp/events.csv'" -- $T K-7 --reflux 4 --fits "$tmp/fits" --events "$tmp/events.csv"
+expect_exit 66 "$tmp/events.csv: cannot open" -- $T K-7 --reflux 4 --fits "$tmp/fits" --events "$tmp/events.csv"
 printf 'time,column,kind\n2026-01-05,K-7,overhaul\n' >"$tmp/events.csv"
 expect_exit 65 "events.csv:2: kind 'overhaul' is unknown" -- $T K-7 --reflux 4 --fits "$tmp/fits" --events "$tmp/events.csv"
 expect_exit 0 "" -- $H --help

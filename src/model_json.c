@@ -1,0 +1,586 @@
+/*
+ * model_json.c — the model file's document: model → JSON (build, canonical hash, the
+ * pretty text with its checksum) and JSON → model (parse, every field checked).
+ *
+ * One JSON object, written with jansson (sorted keys, 2-space indent, reals with 17
+ * significant digits so doubles round-trip bit for bit). Reflux ratios that may be
+ * infinite are written as the string "inf". The integrity checksum is the SHA-256
+ * (FIPS 180-4, src/sha256.c) of the canonical text: the document without its
+ * "checksum" member, dumped by jansson with JSON_COMPACT | JSON_SORT_KEYS |
+ * JSON_ENSURE_ASCII | JSON_REAL_PRECISION(17) (docs/model-file.md shows how to
+ * reproduce it).
+ */
+#include "stagecal/model.h"
+#include "stagecal/convention.h"
+
+#include <jansson.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "internal_sha256.h"
+#include "model_internal.h"
+
+static const int DUMP_CANONICAL =
+    JSON_COMPACT | JSON_SORT_KEYS | JSON_ENSURE_ASCII | JSON_REAL_PRECISION(17);
+static const int DUMP_PRETTY =
+    JSON_INDENT(2) | JSON_SORT_KEYS | JSON_ENSURE_ASCII | JSON_REAL_PRECISION(17);
+
+/* ---- model → JSON ----------------------------------------------------------------- */
+
+/* Reals that may be infinite (R) are written as the string "inf". */
+static json_t *real_or_inf(double v)
+{
+    return isinf(v) ? json_string("inf") : json_real(v);
+}
+
+/* Builds the document without the checksum member; NULL on allocation failure. */
+static json_t *build_doc(const stagecal_model *m)
+{
+    size_t p = m->form.p;
+    json_t *doc = json_object();
+    json_t *vle = json_object(), *vparams = json_object(), *params = json_array();
+    json_t *cov = json_array(), *inputs = json_array(), *warnings = json_array();
+    int bad = !doc || !vle || !vparams || !params || !cov || !inputs || !warnings;
+
+    for (size_t i = 0; !bad && i < m->n_vle_params; i++) {
+        const stagecal_model_vle_param *vp = &m->vle_params[i];
+        json_t *v;
+        if (vp->n == 1) {
+            v = json_real(vp->values[0]);
+        } else {
+            v = json_array();
+            for (size_t j = 0; v && j < vp->n; j++)
+                bad |= json_array_append_new(v, json_real(vp->values[j]));
+        }
+        bad |= json_object_set_new(vparams, vp->name, v);
+    }
+    for (size_t i = 0; !bad && i < p; i++) {
+        bad |= json_array_append_new(
+            params, json_pack("{s:s, s:f}", "name", m->form.param_names[i], "value", m->theta[i]));
+        json_t *row = json_array();
+        for (size_t j = 0; row && j < p; j++)
+            bad |= json_array_append_new(row, json_real(m->cov[i * p + j]));
+        bad |= json_array_append_new(cov, row);
+    }
+    for (size_t i = 0; !bad && i < m->n_inputs; i++)
+        bad |= json_array_append_new(inputs, json_pack("{s:s, s:s, s:I}", "path", m->inputs[i].path,
+                                                       "sha256", m->inputs[i].sha256, "rows",
+                                                       (json_int_t)m->inputs[i].rows));
+    for (size_t i = 0; !bad && i < m->n_warnings; i++)
+        bad |= json_array_append_new(warnings, json_string(m->warnings[i]));
+    if (bad)
+        goto fail;
+
+    bad |= json_object_set_new(vle, "model", json_string(m->vle_kind));
+    bad |= json_object_set_new(vle, "parameters", vparams);
+    vparams = NULL;
+
+    json_t *envelope = json_pack("{s:s, s:f, s:o}", "kind", "box", "r_min", m->r_min, "r_max",
+                                 real_or_inf(m->r_max));
+    if (envelope && m->has_load) {
+        bad |= json_object_set_new(envelope, "f_min_sqrt_pa", json_real(m->f_min));
+        bad |= json_object_set_new(envelope, "f_max_sqrt_pa", json_real(m->f_max));
+    }
+    json_t *hetp = json_null();
+    if (m->has_hetp) {
+        json_decref(hetp);
+        hetp = json_pack("{s:f, s:{s:o}, s:f, s:f, s:o, s:f}", "height_m", m->height_m, "reference",
+                         "r", real_or_inf(m->hetp_r), "hetp_m", m->hetp_m, "low_m", m->hetp_low_m,
+                         "high_m", real_or_inf(m->hetp_high_m), "level", m->hetp_level);
+        if (hetp && m->has_load)
+            bad |= json_object_set_new(json_object_get(hetp, "reference"), "f_sqrt_pa",
+                                       json_real(m->hetp_f));
+    }
+    json_t *prov =
+        json_pack("{s:o, s:s, s:s, s:s, s:I, s:o}", "inputs", inputs, "fitted_utc", m->fitted_utc,
+                  "tool", "stagecal", "tool_version", m->tool_version, "seed", (json_int_t)m->seed,
+                  "command_line", m->command_line ? json_string(m->command_line) : json_null());
+    if (prov) {
+        bad |= json_object_set_new(prov, "data_first_utc",
+                                   m->data_first_utc[0] ? json_string(m->data_first_utc)
+                                                        : json_null());
+        bad |=
+            json_object_set_new(prov, "data_last_utc",
+                                m->data_last_utc[0] ? json_string(m->data_last_utc) : json_null());
+    }
+    inputs = NULL;
+    json_t *units =
+        json_pack("{s:s, s:s, s:s, s:s, s:s}", "stages", "equilibrium stages including the pot [-]",
+                  "R", "reflux ratio L/D [-], \"inf\" = total reflux", "F",
+                  "F-factor, superficial vapour velocity times sqrt(vapour density) [Pa^0.5]",
+                  "length", "m", "covariance", "of the parameters, in their own units");
+
+    bad |= json_object_set_new(doc, "format", json_string(STAGECAL_MODEL_FORMAT));
+    bad |= json_object_set_new(doc, "version", json_integer(STAGECAL_MODEL_VERSION));
+    bad |= json_object_set_new(doc, "column", json_string(m->column_id));
+    json_t *sys =
+        json_pack("{s:s, s:s, s:o}", "light", m->light, "heavy", m->heavy, "equilibrium", vle);
+    vle = NULL;
+    double sysdata[MODEL_NSYSTEM];
+    model_system_data(m, sysdata);
+    for (int k = 0; sys && k < MODEL_NSYSTEM; k++)
+        if (sysdata[k] != 0) /* absent when not recorded (older readers ignore them) */
+            bad |= json_object_set_new(sys, model_system_key[k], json_real(sysdata[k]));
+    bad |= json_object_set_new(doc, "system", sys);
+    bad |= json_object_set_new(doc, "stage_convention",
+                               json_pack("{s:s, s:s}", "condenser",
+                                         stagecal_condenser_name(m->condenser), "text",
+                                         stagecal_convention_text(m->condenser)));
+    bad |= json_object_set_new(
+        doc, "correlation",
+        json_pack("{s:s, s:o, s:o, s:f, s:f, s:f, s:s}", "form", m->form.name, "parameters", params,
+                  "covariance", cov, "sigma_stages", m->sigma, "dof", m->dof, "confidence_level",
+                  m->level, "method", stagecal_model_method_name(m->method)));
+    params = cov = NULL;
+    bad |= json_object_set_new(doc, "evidence",
+                               json_pack("{s:I, s:I, s:I}", "windows", (json_int_t)m->n_windows,
+                                         "samples", (json_int_t)m->n_samples, "runs",
+                                         (json_int_t)m->n_runs));
+    bad |= json_object_set_new(doc, "envelope", envelope);
+    bad |= json_object_set_new(doc, "hetp", hetp);
+    bad |= json_object_set_new(doc, "provenance", prov);
+    bad |= json_object_set_new(doc, "warnings", warnings);
+    warnings = NULL;
+    bad |= json_object_set_new(doc, "units", units);
+    bad |= json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
+    if (!bad)
+        return doc;
+fail:
+    json_decref(doc);
+    json_decref(vle);
+    json_decref(vparams);
+    json_decref(params);
+    json_decref(cov);
+    json_decref(inputs);
+    json_decref(warnings);
+    return NULL;
+}
+
+/* SHA-256 hex of the canonical text of doc (which must not hold "checksum"). */
+static int canonical_hash(const json_t *doc, char hex[SHA256_HEX])
+{
+    char *text = json_dumps(doc, (size_t)DUMP_CANONICAL);
+    if (!text)
+        return -1;
+    sha256_hex(text, strlen(text), hex);
+    free(text);
+    return 0;
+}
+
+/* The complete file text (pretty, with checksum, final newline); caller frees. */
+char *model_render(const stagecal_model *m)
+{
+    char hex[SHA256_HEX];
+    json_t *doc = build_doc(m);
+    char *text = NULL;
+    if (!doc || canonical_hash(doc, hex) != 0)
+        goto done;
+    if (json_object_set_new(doc, "checksum",
+                            json_pack("{s:s, s:s}", "algorithm", "sha256", "value", hex)) != 0)
+        goto done;
+    char *body = json_dumps(doc, (size_t)DUMP_PRETTY);
+    if (!body)
+        goto done;
+    size_t n = strlen(body);
+    text = malloc(n + 2);
+    if (text) {
+        memcpy(text, body, n);
+        text[n] = '\n';
+        text[n + 1] = '\0';
+    }
+    free(body);
+done:
+    json_decref(doc);
+    return text;
+}
+
+/* ---- JSON → model ----------------------------------------------------------------- */
+
+typedef struct {
+    const char *source;
+    stagecal_error *err;
+} reader;
+
+#define RFAIL(rd, ...) error_set_at((rd)->err, STAGECAL_EDATA, (rd)->source, 0, 0, __VA_ARGS__)
+
+static int get_member(reader *rd, const json_t *obj, const char *where, const char *key,
+                      json_t **out)
+{
+    json_t *v = json_object_get(obj, key);
+    if (!v)
+        return RFAIL(rd, "missing member '%s%s%s'", where, where[0] ? "." : "", key);
+    *out = v;
+    return STAGECAL_OK;
+}
+
+static int get_object(reader *rd, const json_t *obj, const char *where, const char *key,
+                      json_t **out)
+{
+    int rc = get_member(rd, obj, where, key, out);
+    if (rc == STAGECAL_OK && !json_is_object(*out))
+        return RFAIL(rd, "member '%s%s%s': expected an object", where, where[0] ? "." : "", key);
+    return rc;
+}
+
+static int get_array(reader *rd, const json_t *obj, const char *where, const char *key,
+                     json_t **out)
+{
+    int rc = get_member(rd, obj, where, key, out);
+    if (rc == STAGECAL_OK && !json_is_array(*out))
+        return RFAIL(rd, "member '%s%s%s': expected an array", where, where[0] ? "." : "", key);
+    return rc;
+}
+
+static int get_string(reader *rd, const json_t *obj, const char *where, const char *key, char *buf,
+                      size_t cap)
+{
+    json_t *v = NULL;
+    int rc = get_member(rd, obj, where, key, &v);
+    if (rc != STAGECAL_OK)
+        return rc;
+    if (!json_is_string(v))
+        return RFAIL(rd, "member '%s%s%s': expected a string", where, where[0] ? "." : "", key);
+    if (buf && copy_text(buf, cap, json_string_value(v)) != 0)
+        return RFAIL(rd, "member '%s%s%s': longer than %zu characters", where, where[0] ? "." : "",
+                     key, cap - 1);
+    return STAGECAL_OK;
+}
+
+/* A number; with allow_inf also the string "inf". */
+static int get_real(reader *rd, const json_t *obj, const char *where, const char *key,
+                    int allow_inf, double *out)
+{
+    json_t *v = NULL;
+    int rc = get_member(rd, obj, where, key, &v);
+    if (rc != STAGECAL_OK)
+        return rc;
+    if (json_is_number(v)) {
+        *out = json_number_value(v);
+        return STAGECAL_OK;
+    }
+    if (allow_inf && json_is_string(v) && strcmp(json_string_value(v), "inf") == 0) {
+        *out = INFINITY;
+        return STAGECAL_OK;
+    }
+    return RFAIL(rd, "member '%s%s%s': expected a number%s", where, where[0] ? "." : "", key,
+                 allow_inf ? " or \"inf\"" : "");
+}
+
+static int get_count(reader *rd, const json_t *obj, const char *where, const char *key, size_t *out)
+{
+    json_t *v = NULL;
+    int rc = get_member(rd, obj, where, key, &v);
+    if (rc != STAGECAL_OK)
+        return rc;
+    if (!json_is_integer(v) || json_integer_value(v) < 0)
+        return RFAIL(rd, "member '%s%s%s': expected an integer >= 0", where, where[0] ? "." : "",
+                     key);
+    *out = (size_t)json_integer_value(v);
+    return STAGECAL_OK;
+}
+
+#define TRY(expr)                                                                                  \
+    do {                                                                                           \
+        if ((rc = (expr)) != STAGECAL_OK)                                                          \
+            return rc;                                                                             \
+    } while (0)
+
+static int read_system(reader *rd, const json_t *doc, stagecal_model *m)
+{
+    int rc;
+    json_t *sys = NULL, *eq = NULL, *params = NULL; /* (set by get_object; GCC -O3 cannot see it) */
+    TRY(get_object(rd, doc, "", "system", &sys));
+    TRY(get_string(rd, sys, "system", "light", m->light, sizeof m->light));
+    TRY(get_string(rd, sys, "system", "heavy", m->heavy, sizeof m->heavy));
+    /* optional (absent in files written before they were recorded): 0 = not recorded */
+    double *sysdata[MODEL_NSYSTEM] = {&m->latent_j_mol, &m->m_light_kg_mol, &m->m_heavy_kg_mol};
+    for (int k = 0; k < MODEL_NSYSTEM; k++) {
+        *sysdata[k] = 0;
+        if (!json_object_get(sys, model_system_key[k]))
+            continue;
+        TRY(get_real(rd, sys, "system", model_system_key[k], 0, sysdata[k]));
+        if (!(isfinite(*sysdata[k]) && *sysdata[k] > 0))
+            return RFAIL(rd, "system: %s = %g: expected a finite number > 0", model_system_key[k],
+                         *sysdata[k]);
+    }
+    TRY(get_object(rd, sys, "system", "equilibrium", &eq));
+    TRY(get_string(rd, eq, "system.equilibrium", "model", m->vle_kind, sizeof m->vle_kind));
+    TRY(get_object(rd, eq, "system.equilibrium", "parameters", &params));
+    const char *key;
+    json_t *v = NULL;
+    json_object_foreach(params, key, v)
+    {
+        double buf[1];
+        stagecal_error aerr;
+        if (json_is_number(v)) {
+            buf[0] = json_number_value(v);
+            rc = stagecal_model_add_vle_param(m, key, buf, 1, &aerr);
+        } else if (json_is_array(v) && json_array_size(v) > 0) {
+            size_t n = json_array_size(v);
+            double *vals = malloc(n * sizeof *vals);
+            if (!vals)
+                return error_set(rd->err, STAGECAL_ENOMEM, "out of memory");
+            for (size_t i = 0; i < n; i++) {
+                json_t *e = json_array_get(v, i);
+                if (!json_is_number(e)) {
+                    free(vals);
+                    return RFAIL(rd, "equilibrium parameter '%s': element %zu is not a number", key,
+                                 i + 1);
+                }
+                vals[i] = json_number_value(e);
+            }
+            rc = stagecal_model_add_vle_param(m, key, vals, n, &aerr);
+            free(vals);
+        } else {
+            return RFAIL(rd,
+                         "equilibrium parameter '%s': expected a number or a non-empty "
+                         "array of numbers",
+                         key);
+        }
+        if (rc == STAGECAL_ENOMEM)
+            return error_set(rd->err, rc, "%s", aerr.text);
+        if (rc != STAGECAL_OK)
+            return RFAIL(rd, "system.equilibrium.parameters: %s", aerr.text);
+    }
+    return STAGECAL_OK;
+}
+
+static int read_correlation(reader *rd, const json_t *doc, stagecal_model *m)
+{
+    int rc;
+    json_t *c = NULL, *params = NULL, *cov = NULL;
+    char name[sizeof m->form.name], method[STAGECAL_MODEL_TEXT];
+    stagecal_error ferr;
+    TRY(get_object(rd, doc, "", "correlation", &c));
+    TRY(get_string(rd, c, "correlation", "form", name, sizeof name));
+    if (stagecal_form_parse(name, &m->form, &ferr) != STAGECAL_OK)
+        return RFAIL(rd, "correlation form: %s", ferr.text);
+    if (strcmp(name, m->form.name) != 0)
+        return RFAIL(rd, "correlation form '%s' is not in canonical notation ('%s' expected)", name,
+                     m->form.name);
+    size_t p = m->form.p;
+    TRY(get_array(rd, c, "correlation", "parameters", &params));
+    if (json_array_size(params) != p)
+        return RFAIL(rd, "correlation form '%s' has %zu parameters but the file lists %zu",
+                     m->form.name, p, json_array_size(params));
+    for (size_t i = 0; i < p; i++) {
+        json_t *e = json_array_get(params, i);
+        char pname[sizeof m->form.param_names[0]];
+        if (!json_is_object(e))
+            return RFAIL(rd, "correlation.parameters[%zu]: expected an object", i);
+        TRY(get_string(rd, e, "correlation.parameters[]", "name", pname, sizeof pname));
+        if (strcmp(pname, m->form.param_names[i]) != 0)
+            return RFAIL(rd,
+                         "correlation.parameters[%zu] is named '%s', the form '%s' expects '%s'", i,
+                         pname, m->form.name, m->form.param_names[i]);
+        TRY(get_real(rd, e, "correlation.parameters[]", "value", 0, &m->theta[i]));
+    }
+    TRY(get_array(rd, c, "correlation", "covariance", &cov));
+    if (json_array_size(cov) != p)
+        return RFAIL(rd, "correlation.covariance: expected %zu rows (p x p), found %zu", p,
+                     json_array_size(cov));
+    for (size_t i = 0; i < p; i++) {
+        json_t *row = json_array_get(cov, i);
+        if (!json_is_array(row) || json_array_size(row) != p)
+            return RFAIL(rd, "correlation.covariance[%zu]: expected an array of %zu numbers", i, p);
+        for (size_t j = 0; j < p; j++) {
+            json_t *e = json_array_get(row, j);
+            if (!json_is_number(e))
+                return RFAIL(rd, "correlation.covariance[%zu][%zu]: expected a number", i, j);
+            m->cov[i * p + j] = json_number_value(e);
+        }
+    }
+    TRY(get_real(rd, c, "correlation", "sigma_stages", 0, &m->sigma));
+    TRY(get_real(rd, c, "correlation", "dof", 0, &m->dof));
+    TRY(get_real(rd, c, "correlation", "confidence_level", 0, &m->level));
+    TRY(get_string(rd, c, "correlation", "method", method, sizeof method));
+    if (strcmp(method, "stage-space") == 0)
+        m->method = STAGECAL_MODEL_STAGE_SPACE;
+    else if (strcmp(method, "composition-space") == 0)
+        m->method = STAGECAL_MODEL_COMPOSITION_SPACE;
+    else
+        return RFAIL(rd,
+                     "correlation.method '%s': expected 'stage-space' or "
+                     "'composition-space'",
+                     method);
+    return STAGECAL_OK;
+}
+
+static int read_rest(reader *rd, const json_t *doc, stagecal_model *m)
+{
+    int rc;
+    json_t *o, *arr, *v;
+    char buf[STAGECAL_MODEL_TEXT];
+
+    TRY(get_string(rd, doc, "", "column", m->column_id, sizeof m->column_id));
+
+    TRY(get_object(rd, doc, "", "stage_convention", &o));
+    TRY(get_string(rd, o, "stage_convention", "condenser", buf, sizeof buf));
+    if (strcmp(buf, "total") == 0)
+        m->condenser = STAGECAL_CONDENSER_TOTAL;
+    else if (strcmp(buf, "partial") == 0)
+        m->condenser = STAGECAL_CONDENSER_PARTIAL;
+    else
+        return RFAIL(rd, "stage_convention.condenser '%s': expected 'total' or 'partial'", buf);
+    TRY(get_member(rd, o, "stage_convention", "text", &v));
+    if (!json_is_string(v) ||
+        strcmp(json_string_value(v), stagecal_convention_text(m->condenser)) != 0)
+        return RFAIL(rd,
+                     "stage_convention.text does not match the %s-condenser convention "
+                     "('%s' expected)",
+                     buf, stagecal_convention_text(m->condenser));
+
+    TRY(get_object(rd, doc, "", "evidence", &o));
+    TRY(get_count(rd, o, "evidence", "windows", &m->n_windows));
+    TRY(get_count(rd, o, "evidence", "samples", &m->n_samples));
+    TRY(get_count(rd, o, "evidence", "runs", &m->n_runs));
+
+    TRY(get_object(rd, doc, "", "envelope", &o));
+    TRY(get_string(rd, o, "envelope", "kind", buf, sizeof buf));
+    if (strcmp(buf, "box") != 0)
+        return RFAIL(rd, "envelope.kind '%s': expected 'box'", buf);
+    TRY(get_real(rd, o, "envelope", "r_min", 0, &m->r_min));
+    TRY(get_real(rd, o, "envelope", "r_max", 1, &m->r_max));
+    m->has_load = json_object_get(o, "f_min_sqrt_pa") || json_object_get(o, "f_max_sqrt_pa");
+    if (m->has_load) {
+        TRY(get_real(rd, o, "envelope", "f_min_sqrt_pa", 0, &m->f_min));
+        TRY(get_real(rd, o, "envelope", "f_max_sqrt_pa", 0, &m->f_max));
+    }
+
+    TRY(get_member(rd, doc, "", "hetp", &o));
+    if (!json_is_null(o)) {
+        json_t *ref;
+        if (!json_is_object(o))
+            return RFAIL(rd, "member 'hetp': expected an object or null");
+        m->has_hetp = 1;
+        TRY(get_real(rd, o, "hetp", "height_m", 0, &m->height_m));
+        TRY(get_object(rd, o, "hetp", "reference", &ref));
+        TRY(get_real(rd, ref, "hetp.reference", "r", 1, &m->hetp_r));
+        if (m->has_load)
+            TRY(get_real(rd, ref, "hetp.reference", "f_sqrt_pa", 0, &m->hetp_f));
+        TRY(get_real(rd, o, "hetp", "hetp_m", 0, &m->hetp_m));
+        TRY(get_real(rd, o, "hetp", "low_m", 0, &m->hetp_low_m));
+        TRY(get_real(rd, o, "hetp", "high_m", 1, &m->hetp_high_m));
+        TRY(get_real(rd, o, "hetp", "level", 0, &m->hetp_level));
+    }
+
+    TRY(get_object(rd, doc, "", "provenance", &o));
+    TRY(get_array(rd, o, "provenance", "inputs", &arr));
+    for (size_t i = 0; i < json_array_size(arr); i++) {
+        json_t *e = json_array_get(arr, i);
+        char hex[STAGECAL_MODEL_HEX];
+        size_t rows;
+        if (!json_is_object(e))
+            return RFAIL(rd, "provenance.inputs[%zu]: expected an object", i);
+        TRY(get_member(rd, e, "provenance.inputs[]", "path", &v));
+        if (!json_is_string(v))
+            return RFAIL(rd, "provenance.inputs[%zu].path: expected a string", i);
+        TRY(get_string(rd, e, "provenance.inputs[]", "sha256", hex, sizeof hex));
+        TRY(get_count(rd, e, "provenance.inputs[]", "rows", &rows));
+        stagecal_error aerr;
+        rc = stagecal_model_add_input(m, json_string_value(v), hex, rows, &aerr);
+        if (rc == STAGECAL_ENOMEM)
+            return error_set(rd->err, rc, "%s", aerr.text);
+        if (rc != STAGECAL_OK)
+            return RFAIL(rd, "provenance.inputs[%zu]: %s", i, aerr.text);
+    }
+    TRY(get_string(rd, o, "provenance", "fitted_utc", m->fitted_utc, sizeof m->fitted_utc));
+    TRY(get_string(rd, o, "provenance", "tool_version", m->tool_version, sizeof m->tool_version));
+    /* optional: the time span of the fitted data (absent in files without it) */
+    static const char *const span_keys[2] = {"data_first_utc", "data_last_utc"};
+    char *span_dst[2] = {m->data_first_utc, m->data_last_utc};
+    for (int k = 0; k < 2; k++) {
+        v = json_object_get(o, span_keys[k]);
+        if (!v || json_is_null(v))
+            span_dst[k][0] = '\0';
+        else if (!json_is_string(v) ||
+                 copy_text(span_dst[k], STAGECAL_MODEL_TEXT, json_string_value(v)) != 0)
+            return RFAIL(rd, "member 'provenance.%s': expected a string or null", span_keys[k]);
+    }
+    TRY(get_member(rd, o, "provenance", "seed", &v));
+    if (!json_is_integer(v) || json_integer_value(v) < 0)
+        return RFAIL(rd, "member 'provenance.seed': expected an integer >= 0");
+    m->seed = (unsigned long long)json_integer_value(v);
+    TRY(get_member(rd, o, "provenance", "command_line", &v));
+    if (json_is_string(v))
+        TRY(stagecal_model_set_command_line(m, json_string_value(v), rd->err));
+    else if (!json_is_null(v))
+        return RFAIL(rd, "member 'provenance.command_line': expected a string or null");
+
+    TRY(get_array(rd, doc, "", "warnings", &arr));
+    for (size_t i = 0; i < json_array_size(arr); i++) {
+        v = json_array_get(arr, i);
+        if (!json_is_string(v))
+            return RFAIL(rd, "warnings[%zu]: expected a string", i);
+        TRY(stagecal_model_add_warning(m, json_string_value(v), rd->err));
+    }
+    return STAGECAL_OK;
+}
+
+static int read_doc(reader *rd, json_t *doc, stagecal_model *m)
+{
+    int rc;
+    json_t *v, *ck;
+    char fmt[STAGECAL_MODEL_TEXT], want[SHA256_HEX], got[SHA256_HEX];
+
+    if (!json_is_object(doc))
+        return RFAIL(rd, "not a stagecal model file (the document is not a JSON object)");
+    v = json_object_get(doc, "format");
+    if (!json_is_string(v) || strcmp(json_string_value(v), STAGECAL_MODEL_FORMAT) != 0) {
+        copy_text(fmt, sizeof fmt, json_is_string(v) ? json_string_value(v) : "");
+        if (!json_is_string(v) || strlen(json_string_value(v)) >= sizeof fmt)
+            return RFAIL(rd, "not a stagecal model file (no \"format\": \"%s\" member)",
+                         STAGECAL_MODEL_FORMAT);
+        return RFAIL(rd, "not a stagecal model file (format '%s', expected '%s')", fmt,
+                     STAGECAL_MODEL_FORMAT);
+    }
+    v = json_object_get(doc, "version");
+    if (!json_is_integer(v))
+        return RFAIL(rd, "member 'version': expected an integer format version");
+    json_int_t version = json_integer_value(v);
+    if (version > STAGECAL_MODEL_VERSION)
+        return error_set_at(rd->err, STAGECAL_EVERSION, rd->source, 0, 0,
+                            "written by a newer stagecal (format version %lld > %d)",
+                            (long long)version, STAGECAL_MODEL_VERSION);
+    if (version < 1)
+        return RFAIL(rd, "unknown format version %lld (expected %d)", (long long)version,
+                     STAGECAL_MODEL_VERSION);
+
+    /* Integrity before content: a hand edit is named as such, not as a field error. */
+    TRY(get_object(rd, doc, "", "checksum", &ck));
+    TRY(get_string(rd, ck, "checksum", "algorithm", fmt, sizeof fmt));
+    if (strcmp(fmt, "sha256") != 0)
+        return RFAIL(rd, "checksum algorithm '%s': expected 'sha256'", fmt);
+    TRY(get_string(rd, ck, "checksum", "value", want, sizeof want));
+    json_object_del(doc, "checksum");
+    if (canonical_hash(doc, got) != 0)
+        return error_set(rd->err, STAGECAL_ENOMEM, "out of memory");
+    if (strcmp(got, want) != 0)
+        return RFAIL(rd, "checksum mismatch: the file was edited or damaged");
+
+    TRY(read_rest(rd, doc, m));
+    TRY(read_system(rd, doc, m));
+    TRY(read_correlation(rd, doc, m));
+    return model_check(m, rd->source, STAGECAL_EDATA, rd->err);
+}
+
+int stagecal_model_parse(const char *text, size_t len, const char *source, stagecal_model *m,
+                         stagecal_error *err)
+{
+    json_error_t jerr;
+    reader rd = {source ? source : "model", err};
+    stagecal_model_free(m);
+    json_t *doc = json_loadb(text, len, JSON_REJECT_DUPLICATES, &jerr);
+    if (!doc)
+        return error_set_at(err, STAGECAL_EDATA, rd.source, jerr.line > 0 ? jerr.line : 0,
+                            jerr.column > 0 ? jerr.column : 0,
+                            "not a valid JSON document (truncated or corrupt?): %s", jerr.text);
+    int rc = read_doc(&rd, doc, m);
+    json_decref(doc);
+    if (rc != STAGECAL_OK)
+        stagecal_model_free(m);
+    return rc;
+}
