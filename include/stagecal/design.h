@@ -1,0 +1,197 @@
+/*
+ * stagecal/design.h — where to run the next tests: the correlation's Fisher information,
+ * the information one more quasi-steady window adds, and the K test conditions that
+ * shrink the confidence band at the conditions a planner cares about most.
+ *
+ * Model of the evidence. Each quasi-steady window i gives one stage count
+ *   y_i = stages(R_i, F_i; θ) + e_i,  e_i independent, var(e_i) = σ²,
+ * with σ the standard deviation of one new window (the model file's sigma_stages). To
+ * first order in θ (Gauss–Newton; exact for forms linear in θ) the Fisher information of
+ * a set of windows is Σ g_i g_iᵀ / σ² with g = ∂stages/∂θ at the current estimate, and the
+ * information the fit already holds is the inverse of its covariance, I₀ = C⁻¹. After K
+ * new windows at x_1 … x_K the information is M = I₀ + Σ_k g(x_k) g(x_k)ᵀ / σ², and the
+ * variance of the fitted stages at a condition x₀ is g(x₀)ᵀ M⁻¹ g(x₀).
+ *
+ * Criteria (Atkinson, Donev & Tobias 2007, "Optimum Experimental Designs, with SAS",
+ * Oxford University Press, ch. 10; for a nonlinear form the design is locally optimal at
+ * the current θ, Chernoff 1953, Ann. Math. Statist. 24:586–602):
+ *   I-optimal (default): minimise the weighted average prediction variance over the
+ *     conditions of interest, Σ_j w_j g_jᵀ M⁻¹ g_j / Σ_j w_j (ADT 2007 §10.6);
+ *   D-optimal: maximise log det M (Kiefer 1959, "Optimum experimental designs",
+ *     J. R. Statist. Soc. B 21:272–319).
+ * The K conditions are optimised together inside the bounds with NLopt's BOBYQA
+ * (Powell 2009, "The BOBYQA algorithm for bound constrained optimization without
+ * derivatives", Cambridge NA Report NA2009/06) from several starts (deterministic ones
+ * plus random ones from a seeded GSL generator). The reflux ratio is searched in
+ * L/V = R/(R + 1), so total reflux (R = inf, L/V = 1) is an ordinary bound.
+ *
+ * Singular information: when I₀ has rank < p (the current evidence cannot identify the
+ * form at all), the search runs on the information in scaled coordinates plus a small
+ * ridge, the result says so, and names the single condition that adds the most
+ * information in the missing direction. Variances at conditions whose gradient has a
+ * component in the missing direction are "not determined", never a number.
+ *
+ * Duration of a test: one production period at one reflux ratio long enough for one
+ * quasi-steady window, (settle + window) samples × the sampling interval, where settle is
+ * the run-log analysis warm-up (the R-statistic filters' memory after a change of reflux)
+ * and window the mean samples per window behind the model (so the new window carries the
+ * σ the model records), at least the analysis' shortest window. docs/design.md.
+ *
+ * Units: R dimensionless (INFINITY = total reflux), F-factor Pa^0.5, durations s.
+ */
+#ifndef STAGECAL_DESIGN_H
+#define STAGECAL_DESIGN_H
+
+#include <stddef.h>
+
+#include "stagecal/error.h"
+#include "stagecal/form.h"
+#include "stagecal/model.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+#define STAGECAL_DESIGN_MAXK 64 /* most test conditions proposed at once */
+
+typedef enum {
+    STAGECAL_DESIGN_I = 0, /* I-optimal: weighted average prediction variance (default) */
+    STAGECAL_DESIGN_D      /* D-optimal: log determinant of the information */
+} stagecal_design_criterion;
+
+/* The current state of knowledge about a correlation. Fill with stagecal_design_from_model,
+ * or stagecal_design_init and stagecal_design_add_window. */
+typedef struct {
+    stagecal_form form;
+    double theta[STAGECAL_FORM_MAXP];                     /* current estimate (p values) */
+    double info[STAGECAL_FORM_MAXP * STAGECAL_FORM_MAXP]; /* Fisher information, p×p
+                                                             row-major [1/stages²] */
+    double sigma;          /* standard deviation of one new window [stages], > 0 */
+    double dof;            /* residual degrees of freedom of the current fit, > 0 */
+    double level;          /* confidence level of the bands, in (0, 1) */
+    size_t window_samples; /* mean logged samples per window behind the fit (0: unknown) */
+    double rank_tol;       /* an eigenvalue of the information scaled to unit diagonal below
+                              rank_tol·largest counts as zero (not identified), and stages at
+                              a condition are determined when the gradient's component in
+                              that null space is below sqrt(rank_tol) of its length; 1e-9 */
+} stagecal_design_problem;
+
+/* Tunables. */
+typedef struct {
+    stagecal_design_criterion criterion; /* I */
+    size_t tests;             /* K, number of test conditions, 1..STAGECAL_DESIGN_MAXK; 4 */
+    double r_lo, r_hi;        /* reflux range, 0 < r_lo < r_hi ≤ INFINITY; NAN: see propose */
+    double f_lo, f_hi;        /* F-factor range [Pa^0.5] for load forms, 0 ≤ f_lo ≤ f_hi */
+    size_t starts;            /* local searches (multistart); 24 */
+    unsigned long seed;       /* seed of the random starts (gsl_rng_mt19937); 1 */
+    double xtol_rel;          /* BOBYQA relative step tolerance on the scaled variables; 1e-10 */
+    size_t max_eval;          /* objective evaluations per local search; 4000 */
+    double ridge;             /* ridge added to the scaled information while searching when
+                                 I₀ is singular; 1e-6 */
+    double sample_interval_s; /* one logged sample every this many seconds; 600 */
+    size_t settle_samples;    /* samples before a window can start; 0: the run-log analysis
+                                 warm-up (stagecal_runlog_analysis_default_params) */
+    size_t window_samples;    /* samples of the window itself; 0: the problem's mean, at least
+                                 the analysis' shortest window */
+} stagecal_design_params;
+
+stagecal_design_params stagecal_design_default_params(void);
+
+/* A condition of interest. */
+typedef struct {
+    double r;      /* reflux ratio, > 0, INFINITY allowed */
+    double f_load; /* F-factor [Pa^0.5]; ignored (pass NAN) unless the form uses the load */
+    double weight; /* > 0; weights are normalised to sum 1 */
+} stagecal_design_point;
+
+/* One proposed test. */
+typedef struct {
+    double r;          /* reflux ratio (INFINITY = total reflux) */
+    double f_load;     /* F-factor [Pa^0.5], NAN when the form does not use the load */
+    double duration_s; /* production time at this condition for one window [s] */
+} stagecal_design_test;
+
+/* The band at one condition of interest before and after the proposed tests. */
+typedef struct {
+    double r, f_load, weight;       /* as given (weight normalised) */
+    double stages;                  /* predicted stages at the current θ */
+    int determined_before;          /* 0: the current evidence does not determine stages here */
+    int determined_after;           /* 0: not even after the tests */
+    double se_before, se_after;     /* standard error of the fitted stages [stages], NAN when
+                                       not determined */
+    double half_before, half_after; /* half-width of the confidence interval at the level:
+                                       t(dof)·se_before, t(dof + K)·se_after; NAN when not
+                                       determined */
+} stagecal_design_at;
+
+typedef struct {
+    stagecal_design_criterion criterion;
+    size_t k;                                         /* tests proposed */
+    stagecal_design_test tests[STAGECAL_DESIGN_MAXK]; /* sorted by R ascending */
+    size_t p;                                         /* parameters */
+    size_t rank_before, rank_after;                   /* numerical rank of I₀ and of M */
+    double crit_before, crit_after; /* I: weighted mean prediction variance [stages²] (INFINITY
+                                       when not determined); D: log det of the information */
+    double log_det_ratio;           /* log det M − log det I₀ (INFINITY when I₀ is singular
+                                       and M is not) */
+    double t_before, t_after;       /* Student t quantiles: dof, dof + K */
+    /* identification (rank_before < p): the single condition that adds the most information
+     * in the missing direction, and the rank it would give */
+    double identify_r, identify_f; /* NAN when rank_before = p */
+    size_t identify_rank;
+    /* search */
+    double r_lo, r_hi, f_lo, f_hi; /* the bounds used */
+    size_t settle_samples, window_samples;
+    size_t evaluations; /* objective evaluations, all starts */
+    size_t starts;
+    int nlopt_result; /* NLopt's return code of the best local search (> 0 success) */
+} stagecal_design_result;
+
+/* Zero information for form at theta: sigma > 0, dof > 0, level in (0, 1). EINVAL. */
+int stagecal_design_init(stagecal_design_problem *pb, const stagecal_form *form,
+                         const double *theta, double sigma, double dof, double level,
+                         stagecal_error *err);
+/* Adds weight (> 0) windows at (r, f_load) to pb->info. EINVAL when the form is undefined
+ * there. */
+int stagecal_design_add_window(stagecal_design_problem *pb, double r, double f_load, double weight,
+                               stagecal_error *err);
+/* The information one window at (r, f_load) adds: g gᵀ/σ², p×p into out (stride p).
+ * EINVAL when the form is undefined there. */
+int stagecal_design_window_info(const stagecal_design_problem *pb, double r, double f_load,
+                                double *out, stagecal_error *err);
+
+/* The current information of a model file: I₀ = C⁻¹ (through the eigen-decomposition of
+ * the correlation matrix of C), σ = sigma_stages, dof, level, and the mean samples per
+ * window (n_samples / n_windows). EDATA when C is not positive definite or sigma_stages
+ * is 0 (a new window's information is then undefined). */
+int stagecal_design_from_model(const stagecal_model *m, stagecal_design_problem *pb,
+                               stagecal_error *err);
+
+/* Variance of the fitted stages at (r, f_load) with the current information plus the
+ * tests (k may be 0): g(x₀)ᵀ M⁺ g(x₀). *determined is 0 (and *var NAN) when g has a
+ * component in the null space of M. EINVAL when the form is undefined at a condition. */
+int stagecal_design_variance(const stagecal_design_problem *pb, const stagecal_design_test *tests,
+                             size_t k, double r, double f_load, double *var, int *determined,
+                             stagecal_error *err);
+
+/* Proposes par->tests conditions inside the bounds and evaluates the band at each of the
+ * n_at conditions of interest (at_out: n_at entries, caller's). Default bounds (NAN):
+ * R from the smallest to the largest R among the conditions of interest and lo_hint/hi_hint
+ * (normally the model's envelope; pass NAN for none); F likewise from f_lo_hint/f_hi_hint.
+ * EINVAL for a bad argument (k out of range, bounds out of order, a weight ≤ 0, an F
+ * missing for a load form, a form undefined at a bound — e.g. ln R at total reflux);
+ * EINTERNAL when NLopt fails; ENOMEM. */
+int stagecal_design_propose(const stagecal_design_problem *pb, const stagecal_design_point *at,
+                            size_t n_at, const stagecal_design_params *par, double r_lo_hint,
+                            double r_hi_hint, double f_lo_hint, double f_hi_hint,
+                            stagecal_design_result *res, stagecal_design_at *at_out,
+                            stagecal_error *err);
+
+/* "I-optimal" / "D-optimal"; "i" / "d". */
+const char *stagecal_design_criterion_name(stagecal_design_criterion c);
+const char *stagecal_design_criterion_key(stagecal_design_criterion c);
+
+#ifdef __cplusplus
+}
+#endif
+#endif
