@@ -37,6 +37,7 @@ typedef struct {
     size_t k, p, n_at;
     int load_free;                   /* F is searched */
     double lv_lo, lv_hi, f_lo, f_hi; /* bounds */
+    double r_lo, r_hi;               /* the reflux bounds as given (returned at the ends) */
     double s[P_MAX];                 /* scaling */
     double base[P_MAX * P_MAX];      /* scaled current information (+ ridge) */
     const double *gat;               /* n_at scaled gradients at the conditions of interest */
@@ -59,11 +60,12 @@ static void z_to_test(const search *s, const double *z, size_t t, stagecal_desig
     size_t stride = s->load_free ? 2 : 1;
     double u = fmin(1, fmax(0, z[t * stride]));
     double lv = s->lv_lo + u * (s->lv_hi - s->lv_lo);
-    out->r = r_of(fmin(lv, s->lv_hi));
+    /* at a bound return the bound itself: R → L/V → R is not exact in floating point */
+    out->r = u <= 0 ? s->r_lo : u >= 1 ? s->r_hi : r_of(fmin(lv, s->lv_hi));
     out->f_load = NAN;
     if (s->pb->form.uses_load) {
         double v = s->load_free ? fmin(1, fmax(0, z[t * stride + 1])) : 0;
-        out->f_load = s->f_lo + v * (s->f_hi - s->f_lo);
+        out->f_load = v >= 1 ? s->f_hi : s->f_lo + v * (s->f_hi - s->f_lo);
     }
     out->duration_s = NAN;
 }
@@ -416,6 +418,8 @@ int stagecal_design_propose(const stagecal_design_problem *pb, const stagecal_de
     s.p = p;
     s.n_at = n_at;
     s.crit = par->criterion;
+    s.r_lo = res->r_lo;
+    s.r_hi = res->r_hi;
     s.lv_lo = lv_of(res->r_lo);
     s.lv_hi = lv_of(res->r_hi);
     s.f_lo = res->f_lo;

@@ -16,5 +16,6 @@ int cmd_trend(int argc, char **argv);
 int cmd_predict(int argc, char **argv);
 int cmd_plot(int argc, char **argv);
 int cmd_report(int argc, char **argv);
+int cmd_probe(int argc, char **argv);
 
 #endif

@@ -33,6 +33,7 @@ static const struct command commands[] = {
     {"trend", cmd_trend, "stages over months: trend, EWMA alarms, forecast; fleet rows"},
     {"predict", cmd_predict, "predict a batch from a model file: cuts, times, yields, band"},
     {"plot", cmd_plot, "charts as PNG, SVG or PDF: McCabe-Thiele diagram, stages against R"},
+    {"probe", cmd_probe, "where to run the next tests: I-/D-optimal conditions, band before/after"},
     {"report", cmd_report, "one self-contained HTML report (inline SVG, printable) of a model"},
 };
 

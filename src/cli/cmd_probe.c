@@ -1,0 +1,425 @@
+/*
+ * cmd_probe.c — `stagecal probe MODEL.json --at R[:F],…`: where to run the next tests.
+ * Proposes K test conditions (each one production period at one reflux ratio, long
+ * enough for one quasi-steady window) that shrink the confidence band of stages at the
+ * conditions of interest most (I-optimal) or the whole parameter uncertainty (D-optimal),
+ * with the expected half-width before and after. The numerics live in the design module.
+ */
+#include <getopt.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "banned.h"
+#include "cli.h"
+#include "commands.h"
+#include "stagecal/design.h"
+#include "stagecal/model.h"
+
+static const char usage_text[] =
+    "usage: stagecal probe MODEL.json --at R[:F][,R[:F]...] [--weights W[,W...]]\n"
+    "                      [--reflux-range LO:HI] [--f-factor-range LO:HI] [--tests K]\n"
+    "                      [--criterion i|d] [--sample-interval MIN] [--seed N]\n"
+    "                      [--json] [--quiet]\n"
+    "\n"
+    "Where to run the next tests: K test conditions inside the ranges that shrink the\n"
+    "95 % confidence band of stages at the conditions of interest most (I-optimal: the\n"
+    "weighted average variance of the fitted stages there; D-optimal: the determinant of\n"
+    "the parameters' information), from the model file's parameters, covariance and\n"
+    "per-window sigma. Each test is one production period at one reflux ratio long enough\n"
+    "for one quasi-steady window. Prints the half-width of the interval at each condition\n"
+    "of interest before and after the tests (expected, to first order in the parameters).\n"
+    "\n"
+    "  --at LIST             conditions of interest: R or R:F (F-factor, Pa^0.5, needed\n"
+    "                        when the form uses the load), comma-separated; R may be 'inf'\n"
+    "  --weights LIST        a weight > 0 per condition of interest (default: equal)\n"
+    "  --reflux-range LO:HI  where tests may run (HI may be 'inf'); default: from the\n"
+    "                        fitted envelope and the conditions of interest together\n"
+    "  --f-factor-range LO:HI  F-factor range for tests [Pa^0.5] (load forms; default the\n"
+    "                        same way); stay below the column's flooding margin\n"
+    "  --tests K             number of test conditions, 1..64 (4)\n"
+    "  --criterion i|d       I-optimal (default) or D-optimal\n"
+    "  --sample-interval MIN minutes between logged samples, for the durations (10)\n"
+    "  --seed N              seed of the random starts of the search (1)\n"
+    "  --json                one JSON document on stdout\n"
+    "  --quiet               no warnings on stderr\n"
+    "  -h, --help            this text\n"
+    "\n"
+    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n";
+
+#define MAX_AT 64
+
+/* Parses "A" or "A:B" (B NAN when absent; with need_b both are required). */
+static int parse_pair(const char *opt, const char *text, int need_b, const char *what, double *a,
+                      double *b)
+{
+    char buf[128];
+    if (strlen(text) >= sizeof buf)
+        return cli_usage_error("option '--%s': '%s' is too long", opt, text);
+    memcpy(buf, text, strlen(text) + 1);
+    char *colon = strchr(buf, ':');
+    *b = NAN;
+    if (colon)
+        *colon = '\0';
+    else if (need_b)
+        return cli_usage_error("option '--%s': '%s' is not a range (expected %s)", opt, text, what);
+    if (cli_parse_double(opt, buf, 1, what, a))
+        return CLI_EXIT_USAGE;
+    if (colon && cli_parse_double(opt, colon + 1, 1, what, b))
+        return CLI_EXIT_USAGE;
+    return 0;
+}
+
+/* Splits a comma-separated list into at most MAX_AT items of parse_pair. */
+static int parse_list(const char *opt, const char *text, const char *what, double *a, double *b,
+                      size_t *n)
+{
+    const char *p = text;
+    *n = 0;
+    while (1) {
+        const char *comma = strchr(p, ',');
+        size_t len = comma ? (size_t)(comma - p) : strlen(p);
+        char item[128];
+        if (*n >= MAX_AT)
+            return cli_usage_error("option '--%s': more than %d entries", opt, MAX_AT);
+        if (len == 0 || len >= sizeof item)
+            return cli_usage_error("option '--%s': empty or overlong entry in '%s' (expected %s)",
+                                   opt, text, what);
+        memcpy(item, p, len);
+        item[len] = '\0';
+        if (parse_pair(opt, item, 0, what, &a[*n], &b[*n]))
+            return CLI_EXIT_USAGE;
+        (*n)++;
+        if (!comma)
+            return 0;
+        p = comma + 1;
+    }
+}
+
+static json_t *real_or_null(double v, int ok)
+{
+    return ok ? cli_json_real(v) : json_null();
+}
+
+static int extrapolated(const stagecal_model *m, double r, double f)
+{
+    stagecal_model_point pt;
+    return stagecal_model_eval(m, r, f, 0, &pt, NULL) == STAGECAL_OK && pt.extrapolated;
+}
+
+static json_t *result_json(const char *path, const stagecal_model *m,
+                           const stagecal_design_params *par, const stagecal_design_result *res,
+                           const stagecal_design_at *at, size_t n_at)
+{
+    int load = m->form.uses_load;
+    json_t *doc = json_object(), *tests = json_array(), *ats = json_array();
+    json_object_set_new(doc, "format", json_string("stagecal-probe"));
+    json_object_set_new(doc, "version", json_integer(1));
+    json_object_set_new(doc, "model", json_string(path));
+    json_object_set_new(doc, "column_id", json_string(m->column_id));
+    json_object_set_new(doc, "form", json_string(m->form.name));
+    json_object_set_new(doc, "criterion",
+                        json_string(stagecal_design_criterion_key(res->criterion)));
+    json_object_set_new(doc, "criterion_name",
+                        json_string(stagecal_design_criterion_name(res->criterion)));
+    json_object_set_new(doc, "level", json_real(m->level));
+    for (size_t t = 0; t < res->k; t++) {
+        const stagecal_design_test *x = &res->tests[t];
+        json_array_append_new(tests,
+                              json_pack("{s:o, s:o, s:o, s:b}", "reflux", cli_json_reflux(x->r),
+                                        "f_factor", load ? cli_json_real(x->f_load) : json_null(),
+                                        "duration_h", cli_json_real(x->duration_s / 3600.0),
+                                        "extrapolated", extrapolated(m, x->r, x->f_load)));
+    }
+    json_object_set_new(doc, "tests", tests);
+    for (size_t j = 0; j < n_at; j++) {
+        const stagecal_design_at *a = &at[j];
+        json_array_append_new(
+            ats, json_pack("{s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:b}", "reflux",
+                           cli_json_reflux(a->r), "f_factor",
+                           load ? cli_json_real(a->f_load) : json_null(), "weight",
+                           cli_json_real(a->weight), "stages", cli_json_real(a->stages),
+                           "half_width_before", real_or_null(a->half_before, a->determined_before),
+                           "half_width_after", real_or_null(a->half_after, a->determined_after),
+                           "se_before", real_or_null(a->se_before, a->determined_before),
+                           "se_after", real_or_null(a->se_after, a->determined_after),
+                           "extrapolated", extrapolated(m, a->r, a->f_load)));
+    }
+    json_object_set_new(doc, "at", ats);
+    json_object_set_new(
+        doc, "information",
+        json_pack("{s:i, s:i, s:i, s:o, s:o, s:o, s:o, s:o}", "parameters", (int)res->p,
+                  "rank_before", (int)res->rank_before, "rank_after", (int)res->rank_after,
+                  "criterion_before", cli_json_real(res->crit_before), "criterion_after",
+                  cli_json_real(res->crit_after), "log_det_ratio",
+                  cli_json_real(res->log_det_ratio), "t_before", cli_json_real(res->t_before),
+                  "t_after", cli_json_real(res->t_after)));
+    json_object_set_new(doc, "identification",
+                        res->rank_before < res->p
+                            ? json_pack("{s:o, s:o, s:i}", "reflux",
+                                        cli_json_reflux(res->identify_r), "f_factor",
+                                        load ? cli_json_real(res->identify_f) : json_null(),
+                                        "rank_with_one_window", (int)res->identify_rank)
+                            : json_null());
+    json_object_set_new(
+        doc, "search",
+        json_pack("{s:[o, o], s:o, s:s, s:i, s:i, s:i, s:I}", "reflux_range",
+                  cli_json_reflux(res->r_lo), cli_json_reflux(res->r_hi), "f_factor_range",
+                  load ? json_pack("[f, f]", res->f_lo, res->f_hi) : json_null(), "algorithm",
+                  "NLopt LN_BOBYQA, multistart", "starts", (int)res->starts, "evaluations",
+                  (int)res->evaluations, "nlopt_result", res->nlopt_result, "seed",
+                  (json_int_t)par->seed));
+    json_object_set_new(
+        doc, "duration_rule",
+        json_pack("{s:f, s:i, s:i, s:s}", "sample_interval_s", par->sample_interval_s,
+                  "settle_samples", (int)res->settle_samples, "window_samples",
+                  (int)res->window_samples, "rule", "(settle + window samples) x sample interval"));
+    json_object_set_new(doc, "units",
+                        json_pack("{s:s, s:s, s:s}", "reflux", "-", "f_factor", "Pa^0.5",
+                                  "half_width", "stages (pot included)"));
+    json_object_set_new(doc, "caution", json_string(cli_caution));
+    return doc;
+}
+
+static void fmt_r(char *buf, size_t cap, double r)
+{
+    if (isinf(r))
+        snprintf(buf, cap, "inf");
+    else
+        snprintf(buf, cap, "%.3g", r);
+}
+
+static void print_text(const char *path, const stagecal_model *m, const stagecal_design_params *par,
+                       const stagecal_design_result *res, const stagecal_design_at *at, size_t n_at)
+{
+    int load = m->form.uses_load, pct = (int)lround(m->level * 100);
+    char a[32], b[32];
+    printf("%s (column %s, form %s, %zu windows, sigma %.3g stages per window)\n", path,
+           m->column_id, m->form.name, m->n_windows, m->sigma);
+    fmt_r(a, sizeof a, res->r_lo);
+    fmt_r(b, sizeof b, res->r_hi);
+    printf("%s design of %zu tests, R in %s..%s", stagecal_design_criterion_name(res->criterion),
+           res->k, a, b);
+    if (load)
+        printf(", F in %.3g..%.3g Pa^0.5", res->f_lo, res->f_hi);
+    printf("\n\nproposed tests (one quasi-steady window each; %zu + %zu samples every %g min):\n",
+           res->settle_samples, res->window_samples, par->sample_interval_s / 60);
+    printf("  %-3s %-8s %-12s %-13s\n", "#", "R", load ? "F [Pa^0.5]" : "", "duration [h]");
+    for (size_t t = 0; t < res->k; t++) {
+        const stagecal_design_test *x = &res->tests[t];
+        char fb[32] = "";
+        fmt_r(a, sizeof a, x->r);
+        if (load)
+            snprintf(fb, sizeof fb, "%.3g", x->f_load);
+        printf("  %-3zu %-8s %-12s %-13.1f%s\n", t + 1, a, fb, x->duration_s / 3600.0,
+               extrapolated(m, x->r, x->f_load) ? "outside the fitted envelope" : "");
+    }
+    printf("\n%d %% confidence interval of stages (half-width), before -> after the tests:\n", pct);
+    for (size_t j = 0; j < n_at; j++) {
+        const stagecal_design_at *x = &at[j];
+        char fb[48] = "", hb[32], ha[32];
+        fmt_r(a, sizeof a, x->r);
+        if (load)
+            snprintf(fb, sizeof fb, ", F = %.3g", x->f_load);
+        if (x->determined_before)
+            snprintf(hb, sizeof hb, "+/- %.3f", x->half_before);
+        else
+            snprintf(hb, sizeof hb, "not determined");
+        if (x->determined_after)
+            snprintf(ha, sizeof ha, "+/- %.3f", x->half_after);
+        else
+            snprintf(ha, sizeof ha, "not determined");
+        printf("  R = %s%s: %.3f stages, %s -> %s (weight %.3g)%s\n", a, fb, x->stages, hb, ha,
+               x->weight, extrapolated(m, x->r, x->f_load) ? " [EXTRAPOLATED]" : "");
+    }
+    if (isfinite(res->log_det_ratio))
+        printf("\ninformation: determinant x %.3g with the tests", exp(res->log_det_ratio));
+    else
+        printf("\ninformation:");
+    printf(" (rank %zu -> %zu of %zu)\n", res->rank_before, res->rank_after, res->p);
+    if (res->rank_before < res->p) {
+        fmt_r(a, sizeof a, res->identify_r);
+        printf("the current evidence cannot identify form %s (rank %zu of %zu); one window at "
+               "R = %s",
+               m->form.name, res->rank_before, res->p, a);
+        if (load)
+            printf(", F = %.3g", res->identify_f);
+        printf(" adds the most in the missing direction (rank %zu with it)\n", res->identify_rank);
+    }
+    printf("\nThe after-values assume the model's per-window sigma and its current parameters "
+           "(first order); they are expectations, not guarantees. Run tests only inside the "
+           "column's safe operating limits.\n%s\n",
+           cli_caution);
+}
+
+int cmd_probe(int argc, char **argv)
+{
+    enum {
+        O_AT = 256,
+        O_WEIGHTS,
+        O_RRANGE,
+        O_FRANGE,
+        O_TESTS,
+        O_CRIT,
+        O_INTERVAL,
+        O_SEED,
+        O_JSON,
+        O_QUIET
+    };
+    static const struct option opts[] = {{"at", required_argument, NULL, O_AT},
+                                         {"weights", required_argument, NULL, O_WEIGHTS},
+                                         {"reflux-range", required_argument, NULL, O_RRANGE},
+                                         {"f-factor-range", required_argument, NULL, O_FRANGE},
+                                         {"tests", required_argument, NULL, O_TESTS},
+                                         {"criterion", required_argument, NULL, O_CRIT},
+                                         {"sample-interval", required_argument, NULL, O_INTERVAL},
+                                         {"seed", required_argument, NULL, O_SEED},
+                                         {"json", no_argument, NULL, O_JSON},
+                                         {"quiet", no_argument, NULL, O_QUIET},
+                                         {"help", no_argument, NULL, 'h'},
+                                         {0, 0, 0, 0}};
+    stagecal_design_params par = stagecal_design_default_params();
+    double at_r[MAX_AT], at_f[MAX_AT], wv[MAX_AT], wdummy[MAX_AT], minutes = 10;
+    size_t n_at = 0, n_w = 0;
+    const char *at_text = NULL;
+    long k = 4, seed = 1;
+    int json = 0, c, rc;
+
+    optind = 0;
+    opterr = 0;
+    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
+        switch (c) {
+        case 'h':
+            fputs(usage_text, stdout);
+            return CLI_EXIT_OK;
+        case O_AT:
+            at_text = optarg;
+            if (parse_list("at", optarg, "R or R:F, R >= 0 or 'inf'", at_r, at_f, &n_at))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_WEIGHTS:
+            if (parse_list("weights", optarg, "weights > 0", wv, wdummy, &n_w))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_RRANGE:
+            if (parse_pair("reflux-range", optarg, 1, "LO:HI, reflux ratios > 0, HI may be 'inf'",
+                           &par.r_lo, &par.r_hi))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_FRANGE:
+            if (parse_pair("f-factor-range", optarg, 1, "LO:HI, F-factors in Pa^0.5", &par.f_lo,
+                           &par.f_hi))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_TESTS:
+            if (cli_parse_long("tests", optarg, 1, STAGECAL_DESIGN_MAXK, &k))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_CRIT:
+            if (strcmp(optarg, "i") == 0)
+                par.criterion = STAGECAL_DESIGN_I;
+            else if (strcmp(optarg, "d") == 0)
+                par.criterion = STAGECAL_DESIGN_D;
+            else
+                return cli_usage_error("option '--criterion': '%s' is unknown (expected 'i' or "
+                                       "'d')",
+                                       optarg);
+            break;
+        case O_INTERVAL:
+            if (cli_parse_double("sample-interval", optarg, 0, "minutes > 0", &minutes))
+                return CLI_EXIT_USAGE;
+            if (!(minutes > 0))
+                return cli_usage_error("option '--sample-interval': %g is not positive "
+                                       "(expected minutes > 0)",
+                                       minutes);
+            break;
+        case O_SEED:
+            if (cli_parse_long("seed", optarg, 0, 2147483647L, &seed))
+                return CLI_EXIT_USAGE;
+            break;
+        case O_JSON:
+            json = 1;
+            break;
+        case O_QUIET:
+            cli_quiet = 1;
+            break;
+        default:
+            return cli_usage_getopt(c, argv, "probe");
+        }
+    }
+    if (argc - optind < 1)
+        return cli_usage_error("a model file is required (see 'stagecal probe --help')");
+    if (argc - optind > 1)
+        return cli_usage_error("unexpected argument '%s' (expected one model file)",
+                               argv[optind + 1]);
+    if (!at_text)
+        return cli_usage_error("option '--at' is required (see 'stagecal probe --help')");
+    if (n_w && n_w != n_at)
+        return cli_usage_error("option '--weights': %zu weights for %zu conditions in '--at'", n_w,
+                               n_at);
+    stagecal_design_point pts[MAX_AT];
+    for (size_t j = 0; j < n_at; j++) {
+        if (!(at_r[j] > 0))
+            return cli_usage_error("option '--at': R = %g is not positive (expected R > 0 or "
+                                   "'inf')",
+                                   at_r[j]);
+        if (!isnan(at_f[j]) && !(at_f[j] >= 0 && isfinite(at_f[j])))
+            return cli_usage_error("option '--at': F = %g is invalid (expected a finite "
+                                   "F-factor >= 0)",
+                                   at_f[j]);
+        if (n_w && !(wv[j] > 0 && isfinite(wv[j])))
+            return cli_usage_error("option '--weights': %g is not positive", wv[j]);
+        pts[j].r = at_r[j];
+        pts[j].f_load = at_f[j];
+        pts[j].weight = n_w ? wv[j] : 1.0;
+    }
+    par.tests = (size_t)k;
+    par.seed = (unsigned long)seed;
+    par.sample_interval_s = minutes * 60;
+
+    const char *path = argv[optind];
+    stagecal_model m;
+    stagecal_design_problem pb;
+    stagecal_design_result res;
+    stagecal_design_at out[MAX_AT];
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    stagecal_model_init(&m);
+    if ((rc = stagecal_model_load(path, &m, &err))) {
+        rc = cli_fail(&err);
+        goto done;
+    }
+    if (m.form.uses_load)
+        for (size_t j = 0; j < n_at; j++)
+            if (isnan(pts[j].f_load)) {
+                rc = cli_usage_error("%s: form '%s' uses the vapour load: give every '--at' "
+                                     "condition as R:F (F-factor in Pa^0.5)",
+                                     path, m.form.name);
+                goto done;
+            }
+    if ((rc = stagecal_design_from_model(&m, &pb, &err))) {
+        rc = cli_fail(&err);
+        goto done;
+    }
+    if ((rc = stagecal_design_propose(&pb, pts, n_at, &par, m.r_min, m.r_max,
+                                      m.has_load ? m.f_min : NAN, m.has_load ? m.f_max : NAN, &res,
+                                      out, &err))) {
+        rc = cli_fail(&err);
+        goto done;
+    }
+    for (size_t j = 0; j < n_at; j++)
+        if (extrapolated(&m, pts[j].r, pts[j].f_load))
+            cli_warn("%s: condition of interest R = %g lies outside the fitted envelope "
+                     "(extrapolation)",
+                     path, pts[j].r);
+    if (json)
+        rc = cli_json_print(result_json(path, &m, &par, &res, out, n_at));
+    else {
+        print_text(path, &m, &par, &res, out, n_at);
+        rc = CLI_EXIT_OK;
+    }
+done:
+    stagecal_model_free(&m);
+    return rc;
+}
