@@ -61,7 +61,7 @@ static void z_to_test(const search *s, const double *z, size_t t, stagecal_desig
     double u = fmin(1, fmax(0, z[t * stride]));
     double lv = s->lv_lo + u * (s->lv_hi - s->lv_lo);
     /* at a bound return the bound itself: R → L/V → R is not exact in floating point */
-    out->r = u <= 0 ? s->r_lo : u >= 1 ? s->r_hi : r_of(fmin(lv, s->lv_hi));
+    out->r = u <= 0 ? s->r_lo : u >= 1 ? s->r_hi : fmax(s->r_lo, fmin(s->r_hi, r_of(lv)));
     out->f_load = NAN;
     if (s->pb->form.uses_load) {
         double v = s->load_free ? fmin(1, fmax(0, z[t * stride + 1])) : 0;

@@ -7,8 +7,9 @@
  * GSL's weighted linear least squares (gsl_multifit_wlinear) for the covariance after new
  * windows; the model file's confidence band (stagecal_model_eval) for the band before;
  * the textbook D-optimum for a straight line on an interval (half of the trials at each
- * end: Kiefer & Wolfowitz 1959, Canad. J. Math. 12:363–366; Atkinson, Donev & Tobias
- * 2007, "Optimum Experimental Designs, with SAS", ch. 6 — chapter from memory); a
+ * end: Kiefer & Wolfowitz 1959, "Optimum designs in regression problems", Ann. Math.
+ * Statist. 30:271–294; a textbook example in Atkinson, Donev & Tobias 2007, "Optimum
+ * Experimental Designs, with SAS" — both from memory); a
  * brute-force grid for the I-optimal single test.
  */
 #include <gsl/gsl_deriv.h>
@@ -246,8 +247,11 @@ static void design_after_matches_weighted_least_squares(void **state)
     gsl_vector_free(c);
     /* the best single test is at the low end (the conditions of interest lie below the
      * windows, and the variance falls monotonically towards them); all tests there */
-    for (size_t t = 0; t < res.k; t++)
+    for (size_t t = 0; t < res.k; t++) {
         assert_rel(res.tests[t].r, 1.5, 1e-6, "I-optimal tests at the low end");
+        /* inside the bounds exactly (R → L/V → R must not step outside) */
+        assert_true(res.tests[t].r >= par.r_lo && res.tests[t].r <= par.r_hi);
+    }
 }
 
 static void design_d_optimal_line_puts_points_at_the_ends(void **state)

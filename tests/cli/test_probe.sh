@@ -1,0 +1,67 @@
+#!/bin/sh
+# test_probe.sh — `stagecal probe` on the command line: usage errors and missing inputs
+# (exit 2 / 66, one line on stderr, nothing on stdout), and the JSON contract
+# (docs/cli.md): K tests inside the ranges with a duration, the half-width before and
+# after at every --at condition, `inf` in --at and in the reflux range. The numerics are
+# tested in tests/test_design.c. Model files come from calibrating the invented demo logs.
+#   sh test_probe.sh <stagecal-binary> <repo-root>
+BIN=$1
+ROOT=$2
+py=/usr/bin/python3
+TMPDIR=$(cd "$(dirname "$BIN")" && pwd)
+export TMPDIR
+. "$(dirname "$0")/lib.sh"
+
+P="$BIN probe"
+expect_exit 2 "a model file is required" -- $P --at 2
+expect_exit 2 "option '--at' is required" -- $P m.json
+expect_exit 2 "option '--at': 'x' is not a number" -- $P m.json --at 2,x
+expect_exit 2 "option '--at': R = -1 is not positive" -- $P m.json --at -1
+expect_exit 2 "option '--weights': 1 weights for 2 conditions" -- $P m.json --at 2,3 --weights 1
+expect_exit 2 "option '--reflux-range': '2' is not a range" -- $P m.json --at 2 --reflux-range 2
+expect_exit 2 "option '--criterion': 'a' is unknown" -- $P m.json --at 2 --criterion a
+expect_exit 2 "option '--tests'" -- $P m.json --at 2 --tests 0
+expect_exit 2 "option '--sample-interval': 0 is not positive" -- $P m.json --at 2 --sample-interval 0
+expect_exit 2 "expected one model file" -- $P a.json b.json --at 2
+expect_exit 66 "" -- $P "$tmp/no-such-model.json" --at 2
+expect_exit 0 "" -- $P --help
+
+BT=$ROOT/datasets/columns/demo_benzene_toluene.json
+"$BIN" calibrate --quiet --fits "$tmp/fits" --form saturating --column "$BT" \
+    "$ROOT/datasets/demo/logs/2025-01.csv" >/dev/null || { echo "FAIL: calibrate"; exit 1; }
+M=$(ls "$tmp"/fits/*/*.json)
+"$BIN" calibrate --quiet --fits "$tmp/fitsl" --form 'linear:1+1/R+F' --column "$BT" \
+    "$ROOT/datasets/demo/logs/2025-01.csv" >/dev/null || { echo "FAIL: calibrate"; exit 1; }
+ML=$(ls "$tmp"/fitsl/*/*.json)
+
+expect_exit 2 "uses the vapour load" -- $P "$ML" --at 2
+expect_exit 2 "reflux range" -- $P "$M" --at 2 --reflux-range 3:1
+expect_exit 0 "" -- $P "$M" --at 2,2.5 --tests 3
+grep -q "Caution" "$tmp/out" || { echo "FAIL: no caution line"; fails=$((fails + 1)); }
+
+# JSON: the contract's members, K tests inside the ranges, after < before everywhere.
+check_json() {
+    "$@" >"$tmp/probe.json" 2>"$tmp/err" || { echo "FAIL: exit $?: $*"; cat "$tmp/err"; fails=$((fails + 1)); return; }
+    if $py - "$tmp/probe.json" "$K" "$RLO" "$RHI" <<'PY'
+import json, math, sys
+d = json.load(open(sys.argv[1]))
+k, lo = int(sys.argv[2]), float(sys.argv[3])
+hi = math.inf if sys.argv[4] == "inf" else float(sys.argv[4])
+r = lambda v: math.inf if v == "inf" else v
+assert d["criterion"] in ("i", "d")
+assert len(d["tests"]) == k, d["tests"]
+for t in d["tests"]:
+    assert lo <= r(t["reflux"]) <= hi, t
+    assert t["duration_h"] > 0
+    assert "f_factor" in t
+for a in d["at"]:
+    assert a["half_width_after"] < a["half_width_before"], a
+    assert "f_factor" in a and "reflux" in a
+assert "Caution" in d["caution"]
+PY
+    then echo "ok: $*"; else echo "FAIL: JSON contract: $*"; fails=$((fails + 1)); fi
+}
+K=4 RLO=1.5 RHI=inf check_json $P "$M" --at 2,inf --reflux-range 1.5:inf --json
+K=2 RLO=1 RHI=6 check_json $P "$M" --at 2,2.5 --reflux-range 1:6 --tests 2 --criterion d --json
+K=3 RLO=1.5 RHI=5 check_json $P "$ML" --at 2:1.3,2.5:1.2 --weights 2,1 --reflux-range 1.5:5 --f-factor-range 0.9:1.5 --tests 3 --json
+finish
