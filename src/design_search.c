@@ -205,35 +205,36 @@ static int cmp_test(const void *a, const void *b)
     return 0;
 }
 
+/* A bound not given (NAN) spans the hints (NAN: none) and the conditions of interest'
+ * R (load = 0) or F (load = 1). */
+static void default_span(const stagecal_design_point *at, size_t n_at, int load,
+                         const double hint[2], double *lo, double *hi)
+{
+    double a = hint[0], b = hint[1];
+    for (size_t j = 0; j < n_at; j++) {
+        double v = load ? at[j].f_load : at[j].r;
+        a = isnan(a) ? v : fmin(a, v);
+        b = isnan(b) ? v : fmax(b, v);
+    }
+    if (isnan(*lo))
+        *lo = a;
+    if (isnan(*hi))
+        *hi = b;
+}
+
 /* Fills the bounds of res from par, the hints and the conditions of interest. */
 static int set_bounds(const stagecal_design_problem *pb, const stagecal_design_point *at,
                       size_t n_at, const stagecal_design_params *par, const double hint[4],
                       stagecal_design_result *res, stagecal_error *err)
 {
     double lo = par->r_lo, hi = par->r_hi, flo = par->f_lo, fhi = par->f_hi;
-    if (isnan(lo) || isnan(hi)) {
-        double a = hint[0], b = hint[1];
-        for (size_t j = 0; j < n_at; j++) {
-            a = isnan(a) ? at[j].r : fmin(a, at[j].r);
-            b = isnan(b) ? at[j].r : fmax(b, at[j].r);
-        }
-        lo = isnan(lo) ? a : lo;
-        hi = isnan(hi) ? b : hi;
-    }
+    default_span(at, n_at, 0, hint, &lo, &hi);
     if (!(lo > 0) || !(hi >= lo))
         return error_set(err, STAGECAL_EINVAL,
                          "reflux range %g:%g is invalid (expected 0 < LO <= HI, HI may be inf)", lo,
                          hi);
     if (pb->form.uses_load) {
-        if (isnan(flo) || isnan(fhi)) {
-            double a = hint[2], b = hint[3];
-            for (size_t j = 0; j < n_at; j++) {
-                a = isnan(a) ? at[j].f_load : fmin(a, at[j].f_load);
-                b = isnan(b) ? at[j].f_load : fmax(b, at[j].f_load);
-            }
-            flo = isnan(flo) ? a : flo;
-            fhi = isnan(fhi) ? b : fhi;
-        }
+        default_span(at, n_at, 1, hint + 2, &flo, &fhi);
         if (!(isfinite(flo) && isfinite(fhi) && flo >= 0 && fhi >= flo))
             return error_set(err, STAGECAL_EINVAL,
                              "F-factor range %g:%g is invalid (expected finite 0 <= LO <= HI "

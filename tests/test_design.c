@@ -196,27 +196,42 @@ static void design_half_width_before_is_model_band(void **state)
     }
 }
 
+/* linear:1+1/R at θ = (10, −7), σ = 0.4, 3 dof, no windows yet. */
+static void inv_r_problem(stagecal_design_problem *pb)
+{
+    stagecal_form f;
+    const double theta[] = {10.0, -7.0};
+    assert_int_equal(stagecal_form_parse("linear:1+1/R", &f, NULL), STAGECAL_OK);
+    assert_int_equal(stagecal_design_init(pb, &f, theta, 0.4, 3, 0.95, NULL), STAGECAL_OK);
+}
+
+/* I-optimal proposal of k tests in R lo..hi for n conditions of interest. */
+static void propose(const stagecal_design_problem *pb, const stagecal_design_point *at, size_t n,
+                    size_t k, double lo, double hi, stagecal_design_result *res,
+                    stagecal_design_at *out)
+{
+    stagecal_design_params par = stagecal_design_default_params();
+    par.tests = k;
+    par.r_lo = lo;
+    par.r_hi = hi;
+    assert_int_equal(stagecal_design_propose(pb, at, n, &par, NAN, NAN, NAN, NAN, res, out, NULL),
+                     STAGECAL_OK);
+}
+
 static void design_after_matches_weighted_least_squares(void **state)
 {
     (void)state;
     /* linear:1+1/R, five windows at R 3..5, σ = 0.4: the variance after the proposed tests
      * must equal x₀ᵀ(XᵀWX)⁻¹x₀ from GSL's weighted least squares over all windows. */
-    stagecal_form f;
     stagecal_design_problem pb;
-    const double theta[] = {10.0, -7.0}, rw[] = {3, 3.5, 4, 4.5, 5};
-    assert_int_equal(stagecal_form_parse("linear:1+1/R", &f, NULL), STAGECAL_OK);
-    assert_int_equal(stagecal_design_init(&pb, &f, theta, 0.4, 3, 0.95, NULL), STAGECAL_OK);
+    const double rw[] = {3, 3.5, 4, 4.5, 5};
+    inv_r_problem(&pb);
     for (size_t i = 0; i < 5; i++)
         assert_int_equal(stagecal_design_add_window(&pb, rw[i], NAN, 1, NULL), STAGECAL_OK);
     stagecal_design_point at[2] = {{2, NAN, 1}, {2.5, NAN, 1}};
     stagecal_design_at out[2];
     stagecal_design_result res;
-    stagecal_design_params par = stagecal_design_default_params();
-    par.tests = 3;
-    par.r_lo = 1.5;
-    par.r_hi = 8;
-    assert_int_equal(stagecal_design_propose(&pb, at, 2, &par, NAN, NAN, NAN, NAN, &res, out, NULL),
-                     STAGECAL_OK);
+    propose(&pb, at, 2, 3, 1.5, 8, &res, out);
     assert_int_equal(res.k, 3);
     size_t n = 5 + res.k;
     gsl_matrix *x = gsl_matrix_alloc(n, 2), *cov = gsl_matrix_alloc(2, 2);
@@ -250,7 +265,7 @@ static void design_after_matches_weighted_least_squares(void **state)
     for (size_t t = 0; t < res.k; t++) {
         assert_rel(res.tests[t].r, 1.5, 1e-6, "I-optimal tests at the low end");
         /* inside the bounds exactly (R → L/V → R must not step outside) */
-        assert_true(res.tests[t].r >= par.r_lo && res.tests[t].r <= par.r_hi);
+        assert_true(res.tests[t].r >= 1.5 && res.tests[t].r <= 8);
     }
 }
 
@@ -300,21 +315,13 @@ static void design_singular_information_names_the_identifying_condition(void **s
     /* linear:1+1/R with every window at R = 3: only a + b/3 is identified. One window at
      * R adds det ∝ (1/R − 1/3)²: in [1.5, 10] the largest is at R = 1.5 (|2/3 − 1/3| = 1/3
      * against |1/10 − 1/3| = 0.233). */
-    stagecal_form f;
     stagecal_design_problem pb;
-    const double theta[] = {10.0, -7.0};
-    assert_int_equal(stagecal_form_parse("linear:1+1/R", &f, NULL), STAGECAL_OK);
-    assert_int_equal(stagecal_design_init(&pb, &f, theta, 0.4, 3, 0.95, NULL), STAGECAL_OK);
+    inv_r_problem(&pb);
     assert_int_equal(stagecal_design_add_window(&pb, 3, NAN, 6, NULL), STAGECAL_OK);
     stagecal_design_point at[2] = {{3, NAN, 1}, {2, NAN, 1}};
     stagecal_design_at out[2];
     stagecal_design_result res;
-    stagecal_design_params par = stagecal_design_default_params();
-    par.r_lo = 1.5;
-    par.r_hi = 10;
-    par.tests = 2;
-    assert_int_equal(stagecal_design_propose(&pb, at, 2, &par, NAN, NAN, NAN, NAN, &res, out, NULL),
-                     STAGECAL_OK);
+    propose(&pb, at, 2, 2, 1.5, 10, &res, out);
     assert_int_equal(res.rank_before, 1);
     assert_int_equal(res.identify_rank, 2);
     assert_rel(res.identify_r, 1.5, 1e-6, "identifying condition");
