@@ -14,6 +14,7 @@
 #include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "stagecal/convention.h"
 #include "stagecal/design.h"
 #include "stagecal/model.h"
 
@@ -178,7 +179,7 @@ static json_t *result_json(const char *path, const stagecal_model *m,
     json_object_set_new(doc, "units",
                         json_pack("{s:s, s:s, s:s}", "reflux", "-", "f_factor", "Pa^0.5",
                                   "half_width", "stages (pot included)"));
-    json_object_set_new(doc, "caution", json_string(cli_caution));
+    json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
     return doc;
 }
 
@@ -250,7 +251,7 @@ static void print_text(const char *path, const stagecal_model *m, const stagecal
     printf("\nThe after-values assume the model's per-window sigma and its current parameters "
            "(first order); they are expectations, not guarantees. Run tests only inside the "
            "column's safe operating limits.\n%s\n",
-           cli_caution);
+           stagecal_caution_text());
 }
 
 int cmd_probe(int argc, char **argv)
