@@ -393,9 +393,9 @@ struct stagecal_report_doc {
     int oom;
     stagecal_report_item job[DOC_MAX_ITEMS], summary[DOC_MAX_ITEMS], hetp[DOC_MAX_ITEMS],
         cond[DOC_MAX_ITEMS];
-    stagecal_report_table inputs, fit;
-    const char *in_head[3], *fit_head[4];
-    const char **in_cells, **fit_cells, **warn;
+    stagecal_report_table inputs, fit, points;
+    const char *in_head[3], *fit_head[4], *pt_head[4];
+    const char **in_cells, **fit_cells, **pt_cells, **warn;
     stagecal_report_figure figs[DOC_MAX_FIGS];
     stagecal_plot_chart *charts[DOC_MAX_FIGS];
     size_t n_charts;
@@ -441,6 +441,7 @@ void stagecal_report_doc_free(stagecal_report_doc *d)
     free(d->strs);
     free(d->in_cells);
     free(d->fit_cells);
+    free(d->pt_cells);
     free(d->warn);
     for (size_t i = 0; i < d->n_charts; i++)
         stagecal_plot_chart_free(d->charts[i]);
@@ -588,7 +589,8 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
     d->in_cells = calloc(3 * (m->n_inputs + 1), sizeof *d->in_cells);
     d->fit_cells = calloc(4 * p, sizeof *d->fit_cells);
     d->warn = calloc(DOC_MAX_WARN, sizeof *d->warn);
-    if (!d->in_cells || !d->fit_cells || !d->warn) {
+    d->pt_cells = calloc(4 * (pts ? pts->n : 0) + 1, sizeof *d->pt_cells);
+    if (!d->in_cells || !d->fit_cells || !d->warn || !d->pt_cells) {
         stagecal_report_doc_free(d);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
@@ -683,6 +685,22 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
         r->n_hetp = nh;
     }
 
+    if (pts && pts->n > 0) {
+        /* the points as numbers: for a calibration, each window's stage count and standard
+         * error (the evidence module's, as in invert --json and --points-out) */
+        d->pt_head[0] = "R [-]", d->pt_head[1] = "F [Pa^0.5]", d->pt_head[2] = "stages [-]";
+        d->pt_head[3] = "std. error [-]";
+        for (size_t i = 0; i < pts->n; i++) {
+            d->pt_cells[4 * i] = fmt_r(d, pts->r[i]);
+            d->pt_cells[4 * i + 1] = pts->f_load ? doc_str(d, "%.4g", pts->f_load[i]) : NULL;
+            d->pt_cells[4 * i + 2] = doc_str(d, "%.4f", pts->stages[i]);
+            d->pt_cells[4 * i + 3] = pts->sigma ? doc_str(d, "%.4f", pts->sigma[i]) : NULL;
+        }
+        d->points = (stagecal_report_table){
+            "Points of the fit (from a calibration: one per quasi-steady window)", d->pt_head, 4,
+            d->pt_cells, pts->n};
+        r->windows = &d->points;
+    }
     for (size_t i = 0; i < m->n_warnings; i++)
         add_warning(d, m->warnings[i]);
     size_t outside = 0;

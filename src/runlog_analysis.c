@@ -431,18 +431,11 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
                 /* R = inf, or no distillate (runlog_mark_no_distillate) */
                 w->total_reflux =
                     isinf(w->r_median) || (res->flags[row] & STAGECAL_SAMPLE_TOTAL_REFLUX) != 0;
-                double sum = 0, su2 = 0;
+                /* the window's stage count is the evidence module's (evidence.h) */
                 for (size_t a = 0; a < j - i; a++) {
                     res->window[row + a] = (int32_t)res->nwindows;
-                    if (res->status[row + a] == 0) {
-                        sum += res->stages[row + a];
-                        su2 += res->u_stages[row + a] * res->u_stages[row + a];
+                    if (res->status[row + a] == 0)
                         w->n_ok++;
-                    }
-                }
-                if (w->n_ok) {
-                    w->stages_mean = sum / (double)w->n_ok;
-                    w->u_stages_mean = sqrt(su2) / (double)w->n_ok;
                 }
                 res->nwindows++;
             }

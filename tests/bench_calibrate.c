@@ -121,7 +121,7 @@ int main(int argc, char **argv)
     } else {
         printf("rows %zu, runs %zu, windows %zu, bootstrap %ld: calibrate %.3f s wall, %.3f s "
                "CPU\n",
-               cal.log->n, cal.log->nruns, cal.nev, boot, c1 - c0,
+               cal.log->n, cal.log->nruns, cal.evidence.n, boot, c1 - c0,
                (double)(cpu1 - cpu0) / CLOCKS_PER_SEC);
         printf("a = %.4f ± %.4f, b = %.4f ± %.4f (truth 9, 0.8; %s)\n", cal.model.theta[0],
                sqrt(cal.model.cov[0]), cal.model.theta[1], sqrt(cal.model.cov[3]),

@@ -1,8 +1,9 @@
 /*
- * test_calibrate.c — the unit of evidence and the two fits of the calibration.
+ * test_calibrate.c — the two fits of the calibration and the chain (the window statistics
+ * are tests/test_evidence.c).
  *
- * Sources of truth: the variance of the mean of an AR(1) series (closed form), the
- * Smoker closed-form inverse and Fenske (REFERENCES §1–2) to generate synthetic pot
+ * Sources of truth: the Smoker closed-form inverse and Fenske (REFERENCES §1–2) to
+ * generate synthetic pot
  * compositions independently of the stepping code, and the coverage of 95 %
  * intervals over many seeded synthetic data sets (a property any honest interval
  * must have).
@@ -25,48 +26,6 @@ static int setup(void **state)
     (void)state;
     gsl_set_error_handler_off();
     return 0;
-}
-
-/* The standard error from stagecal_evidence_mean tracks the true standard deviation
- * of a window mean of autocorrelated noise, where the naive s/√n is far too small. */
-static void calibrate_evidence_se_matches_ar1(void **state)
-{
-    (void)state;
-    enum { N = 60, REPS = 4000 };
-    const double sigma = 1.0, rho = 0.7;
-    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    gsl_rng_set(rng, 20261201);
-    double t[N], y[N], se_sum = 0, naive_sum = 0;
-    for (size_t i = 0; i < N; i++)
-        t[i] = 60.0 * (double)i;
-    for (int r = 0; r < REPS; r++) {
-        double mean, se, neff;
-        synth_ar1(rng, y, N, sigma, rho);
-        assert_int_equal(stagecal_evidence_mean(t, y, N, 0, &mean, &se, &neff, NULL), STAGECAL_OK);
-        se_sum += se;
-        double ss = 0, m = 0;
-        for (size_t i = 0; i < N; i++)
-            m += y[i] / N;
-        for (size_t i = 0; i < N; i++)
-            ss += (y[i] - m) * (y[i] - m);
-        naive_sum += sqrt(ss / (N - 1) / N);
-    }
-    /* The detrending removes a little variance (the slope), so compare with the
-     * closed form to 20 %: the AR(1) n_eff is an approximation (finite n, estimated ρ
-     * biased low in short series). The naive s/√n is ~2.4 times too small here. */
-    double truth = sqrt(synth_ar1_var_mean(sigma, rho, N));
-    assert_rel(se_sum / REPS, truth, 0.20, "AR(1) window-mean standard error");
-    assert_true(naive_sum / REPS < 0.6 * truth);
-    gsl_rng_free(rng);
-}
-
-static void calibrate_evidence_needs_three(void **state)
-{
-    (void)state;
-    double t[3] = {0, 1, 2}, y[3] = {1, NAN, 2}, m, se;
-    stagecal_error err;
-    assert_int_equal(stagecal_evidence_mean(t, y, 3, 0, &m, &se, NULL, &err), STAGECAL_EINVAL);
-    assert_string_equal(err.text, "window mean needs at least 3 finite samples, got 2");
 }
 
 /* ---- synthetic calibrations (tests/synth_calibration.h) ----------------------------- */
@@ -125,34 +84,6 @@ static double smoker_xd(double alpha, double r, double xb, double n)
             lo = mid;
     }
     return 0.5 * (lo + hi);
-}
-
-/* Pooling: the ρ of each analyser becomes the lag-pair-weighted mean, and each standard
- * error is rescaled from s/√n_eff(ρ_own) to s/√n_eff(ρ_pooled) with the AR(1) n_eff =
- * m(1 − ρ)/(1 + ρ) (Wilks 2011, eq. 5.12 — from memory). Windows: m = 41 and 21 (40 and 20
- * lag pairs), ρ = 0.1 and 0.7 → pooled (40·0.1 + 20·0.7)/60 = 0.3. Exact arithmetic, so
- * 1e-12 relative. A window without samples (m = 0) is left alone. */
-static void calibrate_pool_rho_rescales(void **state)
-{
-    (void)state;
-    stagecal_evidence ev[3];
-    memset(ev, 0, sizeof ev);
-    ev[0].m_xd = ev[0].m_xb = 41, ev[0].rho_xd = ev[0].rho_xb = 0.1;
-    ev[1].m_xd = ev[1].m_xb = 21, ev[1].rho_xd = ev[1].rho_xb = 0.7;
-    ev[2].m_xd = 0, ev[2].m_xb = 0, ev[2].rho_xd = ev[2].rho_xb = 0.9;
-    for (int k = 0; k < 3; k++)
-        ev[k].u_xd = 0.001 * (k + 1), ev[k].u_xb = 0.002 * (k + 1);
-    stagecal_evidence_pool_rho(ev, 3);
-    const double pooled = (40 * 0.1 + 20 * 0.7) / 60.0;
-    double n0 = 41 * (1 - 0.1) / 1.1, n0p = 41 * (1 - pooled) / (1 + pooled);
-    double n1 = 21 * (1 - 0.7) / 1.7, n1p = 21 * (1 - pooled) / (1 + pooled);
-    assert_rel(ev[0].rho_xd, pooled, 1e-12, "pooled rho, xD");
-    assert_rel(ev[1].rho_xb, pooled, 1e-12, "pooled rho, xB");
-    assert_rel(ev[0].u_xd, 0.001 * sqrt(n0 / n0p), 1e-12, "u_xd window 0");
-    assert_rel(ev[1].u_xd, 0.002 * sqrt(n1 / n1p), 1e-12, "u_xd window 1");
-    assert_rel(ev[0].u_xb, 0.002 * sqrt(n0 / n0p), 1e-12, "u_xb window 0");
-    assert_rel(ev[2].rho_xd, 0.9, 0, "no samples: untouched");
-    assert_rel(ev[2].u_xd, 0.003, 0, "no samples: untouched");
 }
 
 /* A batch pot drifts through a window. On noise-free logs from a known law, both fits
@@ -215,14 +146,66 @@ static void calibrate_follows_drifting_pot(void **state)
     stagecal_vle_free(vle);
 }
 
+/* ---- the chain ---------------------------------------------------------------------- */
+
+static void calibrate_needs_a_log(void **state)
+{
+    (void)state;
+    stagecal_calibration cal;
+    stagecal_error err;
+    assert_int_equal(stagecal_calibrate("column.json", NULL, 0, NULL, &cal, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text, "calibration needs at least one run log");
+    stagecal_calibration_free(&cal);
+    stagecal_calibration_free(NULL);
+    assert_int_equal(stagecal_calibrate_data(NULL, NULL, NULL, NULL, &cal, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text,
+                        "calibration needs a column with an equilibrium model and a run log");
+    stagecal_calibration_free(&cal);
+}
+
+/* The path-taking entry is a wrapper: on the demo column and one demo log, the chain run
+ * on the loaded inputs gives the same model bit for bit (same evidence, same fits), and the
+ * same inputs in the model's provenance. A property of the API, so exact. */
+static void calibrate_data_equals_path_entry(void **state)
+{
+    (void)state;
+    const char *colpath = STAGECAL_DATASETS "/columns/demo_benzene_toluene.json";
+    const char *logs[1] = {STAGECAL_DATASETS "/demo/logs/2025-01.csv"};
+    stagecal_calibrate_params par = stagecal_calibrate_default_params();
+    stagecal_calibration a, b;
+    stagecal_column col;
+    stagecal_error err;
+    assert_int_equal(stagecal_calibrate(colpath, logs, 1, &par, &a, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_column_load(colpath, &col, &err), STAGECAL_OK);
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    assert_int_equal(stagecal_runlog_read(log, logs[0], &col, NULL, NULL, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_calibrate_data(&col, colpath, log, &par, &b, &err), STAGECAL_OK);
+    assert_int_equal(a.evidence.n, b.evidence.n);
+    for (size_t i = 0; i < a.evidence.n; i++) {
+        assert_rel(b.evidence.ev[i].stages, a.evidence.ev[i].stages, 0, "window stages");
+        assert_rel(b.evidence.ev[i].se_stages, a.evidence.ev[i].se_stages, 0, "window se");
+    }
+    assert_int_equal(a.used, b.used);
+    for (size_t k = 0; k < a.model.form.p; k++)
+        assert_rel(b.model.theta[k], a.model.theta[k], 0, "model theta");
+    assert_rel(b.model.sigma, a.model.sigma, 0, "model sigma");
+    assert_rel(b.model.dof, a.model.dof, 0, "model dof");
+    assert_int_equal(a.model.n_inputs, b.model.n_inputs);
+    for (size_t k = 0; k < a.model.n_inputs; k++)
+        assert_string_equal(a.model.inputs[k].sha256, b.model.inputs[k].sha256);
+    stagecal_calibration_free(&a);
+    stagecal_calibration_free(&b);
+    stagecal_runlog_free(log);
+    stagecal_column_free(&col);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(calibrate_evidence_se_matches_ar1),
-        cmocka_unit_test(calibrate_evidence_needs_three),
-        cmocka_unit_test(calibrate_pool_rho_rescales),
         cmocka_unit_test(calibrate_intervals_cover_truth),
         cmocka_unit_test(calibrate_follows_drifting_pot),
+        cmocka_unit_test(calibrate_needs_a_log),
+        cmocka_unit_test(calibrate_data_equals_path_entry),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }

@@ -2,7 +2,7 @@
  * test_coverage_extra.c — error paths and small closed-form cases of the library that
  * the per-module tests do not reach (issue 8: line coverage of the library): plan files,
  * batch problems and laws, stage closed forms, trend points, lines, EWMA and events,
- * HETP from a model, x-y tables, column files, chart builders, reports, regression.
+ * HETP from a model, x-y tables, column files, chart builders, reports.
  *
  * Sources of truth: the documented rules and message texts (docs/plan-file.md,
  * docs/column-file.md, docs/events-file.md and the contract comments of the public
@@ -20,7 +20,6 @@
 #include "testutil.h"
 
 #include "stagecal/batch.h"
-#include "stagecal/calibrate.h"
 #include "stagecal/column.h"
 #include "stagecal/error.h"
 #include "stagecal/form.h"
@@ -691,19 +690,6 @@ static void coverage_vle_refusals_and_kvalue(void **state)
                         "t_min_k <= t_max_k with t_min_k + c > 0 (or 0, 0 for none)");
 }
 
-/* ---- calibrate.c: the first refusal --------------------------------------------- */
-
-static void coverage_calibrate_needs_a_log(void **state)
-{
-    (void)state;
-    stagecal_calibration cal;
-    stagecal_error err;
-    assert_int_equal(stagecal_calibrate("column.json", NULL, 0, NULL, &cal, &err), STAGECAL_EINVAL);
-    assert_string_equal(err.text, "calibration needs at least one run log");
-    stagecal_calibration_free(&cal);
-    stagecal_calibration_free(NULL);
-}
-
 /* ---- plot_build.c: the chart builders' refusals ---------------------------------- */
 
 /* Each builder names its chart and what is missing or out of domain (plot.h: "EINVAL
@@ -1104,37 +1090,6 @@ static void coverage_batch_model_law_envelope(void **state)
     stagecal_model_free(&m);
 }
 
-/* ---- regress.c: refusals of the fit ---------------------------------------------- */
-
-/* regress.h domains: R > 0 or inf, F finite >= 0 for load forms, positive bootstrap
- * tolerance, a form with 1..MAXP parameters. */
-static void coverage_regress_refusals(void **state)
-{
-    (void)state;
-    stagecal_error err;
-    stagecal_form lin, load, empty;
-    assert_int_equal(stagecal_form_parse("linear:1+1/R", &lin, &err), STAGECAL_OK);
-    assert_int_equal(stagecal_form_parse("linear:1+F", &load, &err), STAGECAL_OK);
-    memset(&empty, 0, sizeof empty);
-    double r[4] = {1.5, 2.0, 0.0, 4.0}, n[4] = {6.1, 6.9, 7.4, 7.8};
-    double f[4] = {1.1, 1.2, 1.3, NAN};
-    stagecal_regress_data d = {4, r, NULL, n, NULL};
-    stagecal_regress_result res;
-    assert_int_equal(stagecal_regress_fit(&d, &lin, NULL, &res, &err), STAGECAL_EDATA);
-    assert_string_equal(err.text, "point 3: R = 0 (expected R > 0 or inf)");
-    r[2] = 3.0;
-    d.f_load = f;
-    assert_int_equal(stagecal_regress_fit(&d, &load, NULL, &res, &err), STAGECAL_EDATA);
-    assert_string_equal(err.text, "point 4: F = nan Pa^0.5 (expected a finite value >= 0)");
-    assert_int_equal(stagecal_regress_fit(&d, &empty, NULL, &res, &err), STAGECAL_EINVAL);
-    assert_string_equal(err.text, "regress: form with 0 parameters");
-    stagecal_regress_params prm = stagecal_regress_default_params();
-    prm.boot_xtol = 0;
-    assert_int_equal(stagecal_regress_fit(&d, &lin, &prm, &res, &err), STAGECAL_EINVAL);
-    assert_string_equal(err.text, "regress: boot_xtol 0 (expected > 0)");
-    stagecal_regress_result_free(NULL);
-}
-
 /* ---- main ------------------------------------------------------------------------ */
 
 static int setup(void **state)
@@ -1160,7 +1115,6 @@ int main(void)
         cmocka_unit_test(coverage_trend_point_from_model),
         cmocka_unit_test(coverage_trend_fit_refusals),
         cmocka_unit_test(coverage_vle_refusals_and_kvalue),
-        cmocka_unit_test(coverage_calibrate_needs_a_log),
         cmocka_unit_test(coverage_plot_builders_refuse),
         cmocka_unit_test(coverage_column_refusals),
         cmocka_unit_test(coverage_report_refusals),
@@ -1168,7 +1122,6 @@ int main(void)
         cmocka_unit_test(coverage_trend_line_eval_band),
         cmocka_unit_test(coverage_trend_ewma_refusals),
         cmocka_unit_test(coverage_trend_events_refusals),
-        cmocka_unit_test(coverage_regress_refusals),
         cmocka_unit_test(coverage_batch_model_law_envelope),
     };
     return cmocka_run_group_tests(tests, setup, NULL);

@@ -19,35 +19,15 @@
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 
+#include "nist_misra1a.h"
 #include "stagecal/regress.h"
 #include "testutil.h"
-
-/* NIST StRD Misra1a certified values (NIST ITL Statistical Reference Datasets,
- * nonlinear regression, Misra1a; REFERENCES §5). */
-#define MISRA_B1 2.3894212918E+02
-#define MISRA_B2 5.5015643181E-04
-#define MISRA_SD1 2.7070075241E+00
-#define MISRA_SD2 7.2668688436E-06
-#define MISRA_RSS 1.2455138894E-01
-#define MISRA_RSD 1.0187876330E-01
 
 static int setup(void **state)
 {
     (void)state;
     gsl_set_error_handler_off();
     return 0;
-}
-
-static void read_misra(stagecal_regress_data *d)
-{
-    stagecal_error e;
-    int rc = stagecal_regress_data_read(STAGECAL_DATASETS "/reference/misra1a.csv", d, &e);
-    if (rc != STAGECAL_OK)
-        print_error("%s\n", e.text);
-    assert_int_equal(rc, STAGECAL_OK);
-    assert_int_equal(d->n, 14);
-    assert_null(d->sigma);
-    assert_null(d->f_load);
 }
 
 static void misra_from(const double start[2])
@@ -680,6 +660,37 @@ static void regress_rank_error_paths(void **state)
     assert_int_equal(rows[1].status, STAGECAL_EDATA);
 }
 
+/* ---- refusals of the fit (from the former catch-all coverage test) ------------------- */
+
+/* regress.h domains: R > 0 or inf, F finite >= 0 for load forms, positive bootstrap
+ * tolerance, a form with 1..MAXP parameters. */
+static void regress_fit_refusals(void **state)
+{
+    (void)state;
+    stagecal_error err;
+    stagecal_form lin, load, empty;
+    assert_int_equal(stagecal_form_parse("linear:1+1/R", &lin, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_form_parse("linear:1+F", &load, &err), STAGECAL_OK);
+    memset(&empty, 0, sizeof empty);
+    double r[4] = {1.5, 2.0, 0.0, 4.0}, n[4] = {6.1, 6.9, 7.4, 7.8};
+    double f[4] = {1.1, 1.2, 1.3, NAN};
+    stagecal_regress_data d = {4, r, NULL, n, NULL};
+    stagecal_regress_result res;
+    assert_int_equal(stagecal_regress_fit(&d, &lin, NULL, &res, &err), STAGECAL_EDATA);
+    assert_string_equal(err.text, "point 3: R = 0 (expected R > 0 or inf)");
+    r[2] = 3.0;
+    d.f_load = f;
+    assert_int_equal(stagecal_regress_fit(&d, &load, NULL, &res, &err), STAGECAL_EDATA);
+    assert_string_equal(err.text, "point 4: F = nan Pa^0.5 (expected a finite value >= 0)");
+    assert_int_equal(stagecal_regress_fit(&d, &empty, NULL, &res, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text, "regress: form with 0 parameters");
+    stagecal_regress_params prm = stagecal_regress_default_params();
+    prm.boot_xtol = 0;
+    assert_int_equal(stagecal_regress_fit(&d, &lin, &prm, &res, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text, "regress: boot_xtol 0 (expected > 0)");
+    stagecal_regress_result_free(NULL);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -699,6 +710,7 @@ int main(void)
         cmocka_unit_test(regress_fit_error_paths),
         cmocka_unit_test(regress_band_error_paths),
         cmocka_unit_test(regress_rank_error_paths),
+        cmocka_unit_test(regress_fit_refusals),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }

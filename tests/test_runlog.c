@@ -634,46 +634,6 @@ static void runlog_rows_get_status_not_nan(void **state)
     stagecal_runlog_free(log);
 }
 
-static void runlog_no_distillate_counts_at_total_reflux(void **state)
-{
-    (void)state;
-    /* R = 3 is logged, but W does not fall: the column runs at total reflux. The pot
-     * composition is the one Fenske gives for N = 5 at xD = 0.95 (REFERENCES §1:
-     * xB/(1 − xB) = (xD/(1 − xD))/α^N), so counted at total reflux the window reads 5. */
-    const double xd = 0.95, q = (xd / (1 - xd)) / pow(2.5, 5.0), xb = q / (1 + q);
-    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    gsl_rng_set(rng, 7);
-    char *buf = NULL;
-    size_t len = 0;
-    FILE *out = open_memstream(&buf, &len);
-    fprintf(out, "time[min],W[kmol],xD[mol/mol],xB[mol/mol],R[-]\n");
-    for (int i = 0; i < 60; i++)
-        fprintf(out, "%d,%.6f,%.6f,%.6f,3\n", 10 * i, 10 + gsl_ran_gaussian(rng, 0.005),
-                xd + gsl_ran_gaussian(rng, test_col.u.xd), xb + gsl_ran_gaussian(rng, 0.001));
-    fclose(out);
-    gsl_rng_free(rng);
-    stagecal_runlog *log = stagecal_runlog_alloc();
-    assert_int_equal(
-        stagecal_runlog_read_buffer(log, buf, len, "nd.csv", &test_col, NULL, NULL, NULL), 0);
-    stagecal_runlog_result res;
-    assert_int_equal(stagecal_runlog_analyse(log, &test_col, NULL, &res, NULL), 0);
-    assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, NULL, &res, NULL), 0);
-    assert_true(res.nwindows >= 1);
-    const stagecal_runlog_window *w = &res.windows[0];
-    assert_int_equal(w->total_reflux, 1);
-    assert_true(res.flags[w->first] & STAGECAL_SAMPLE_TOTAL_REFLUX);
-    assert_string_equal(stagecal_runlog_note_text(res.note[w->first]),
-                        "no distillate drawn: counted at total reflux");
-    /* the window mean within 4 of its (lower-bound) standard uncertainties plus the
-     * xB noise's own bias, i.e. a loose 0.2 stages (common practice, no source) */
-    print_message("no distillate: window of %zu, mean %.4f ± %.4f\n", w->n_ok, w->stages_mean,
-                  w->u_stages_mean);
-    assert_abs(w->stages_mean, 5.0, 0.2, "stages at total reflux");
-    free(buf);
-    stagecal_runlog_result_free(&res);
-    stagecal_runlog_free(log);
-}
-
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -690,7 +650,6 @@ int main(void)
         cmocka_unit_test(runlog_closure_catches_drift_and_gross_error),
         cmocka_unit_test(runlog_mass_based_twin_gives_same_stages),
         cmocka_unit_test(runlog_rows_get_status_not_nan),
-        cmocka_unit_test(runlog_no_distillate_counts_at_total_reflux),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }

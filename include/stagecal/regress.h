@@ -140,6 +140,9 @@ typedef struct {
     double sigma;     /* residual σ = sqrt(rss/dof) (a ratio to sigma_i when weighted) */
     double sigma_obs; /* σ of one typical new observation in stages: σ (unweighted),
                          σ·rms(sigma_i) (weighted, scaled), rms(sigma_i) (unscaled) */
+    double sigma_dof; /* degrees of freedom behind sigma_obs: dof, except for the
+                         composition-space fit (windows with stage counts − p; 0 when
+                         sigma_obs could not be estimated) */
     double r2;        /* 1 − RSS_w/TSS_w, TSS about the weighted mean */
     double loglik;    /* Gaussian log-likelihood at the optimum */
     size_t k_ic;      /* parameters counted by AICc/BIC (p, + 1 when σ is estimated) */
@@ -170,6 +173,77 @@ typedef struct {
     size_t nband;
     stagecal_band *band;
 } stagecal_regress_result;
+
+/* ---- the nonlinear least-squares driver (regress_nlin.c) ------------------------------ */
+
+/* A least-squares problem, min Σ f_i(θ)², kept apart from the solver (the idea of GSL's
+ * gsl_multifit_nlinear_fdf): the residuals carry their own weights, f_i = (model_i −
+ * data_i)/σ_i. The stage-space fit supplies one from a form and points, the
+ * composition-space fit (stagecal_fit_composition) one that steps stages. */
+typedef struct {
+    /* The n residuals at theta (p values) into f. Returns 0, or non-zero when θ lies
+     * outside the model's domain: the solver then rejects the step. */
+    int (*f)(const double *theta, void *params, double *f);
+    /* The n×p Jacobian ∂f_i/∂θ_k at theta into J (row-major); returns 0, or non-zero
+     * outside the domain. NULL: central finite differences of f (GSL's). */
+    int (*df)(const double *theta, void *params, double *J);
+    size_t n, p;  /* residuals, parameters: 1 ≤ p ≤ STAGECAL_FORM_MAXP, p ≤ n */
+    void *params; /* handed to f and df */
+} stagecal_regress_fdf;
+
+/* Trust-region workspace (GSL multifit_nlinear, Levenberg–Marquardt steps), reused
+ * across starts. */
+typedef struct stagecal_regress_nlin stagecal_regress_nlin;
+
+/* NULL when out of memory or when the sizes break stagecal_regress_fdf's bounds. */
+stagecal_regress_nlin *stagecal_regress_nlin_alloc(size_t n, size_t p);
+void stagecal_regress_nlin_free(stagecal_regress_nlin *w); /* NULL ok */
+
+/* Starts a solve of fdf (same n, p as the workspace; borrowed until the next init) from
+ * theta0 with params' max_iter, xtol, gtol, ftol, stall_iter, polish_steps and
+ * polish_tol (NULL: defaults). A start that already passes the xtol test on its
+ * Gauss–Newton step is accepted as it is (stop XTOL, no iteration): started at the optimum,
+ * every trust-region step is rejected by rounding. EINVAL (sizes), ENOCONV (the residuals
+ * or Jacobian are undefined at theta0), ENOMEM. */
+int stagecal_regress_nlin_init(stagecal_regress_nlin *w, const stagecal_regress_fdf *fdf,
+                               const double *theta0, const stagecal_regress_params *params,
+                               stagecal_error *err);
+/* One trust-region iteration. ENOCONV with GSL's text when the step fails. */
+int stagecal_regress_nlin_iterate(stagecal_regress_nlin *w, stagecal_error *err);
+/* After an iteration: 1 when converged: GSL's xtol/gtol/ftol tests, or RSS has not fallen by more
+ * than 4ε relative for stall_iter consecutive calls (ill-conditioned problems whose last steps are
+ * rounding noise); the reason is then stagecal_regress_nlin_stop. 0: iterate on. */
+int stagecal_regress_nlin_test(stagecal_regress_nlin *w);
+/* init's start, then iterate and test until converged. ENOCONV after max_iter
+ * iterations or a failed step. */
+int stagecal_regress_nlin_driver(stagecal_regress_nlin *w, stagecal_error *err);
+/* Gauss–Newton steps from theta (QR on the Jacobian), accepted while the RSS *rss does
+ * not grow, at most polish_steps, stopping when |δθ_i| ≤ polish_tol·|θ_i|: the last digits
+ * a trust region leaves (NIST StRD Misra1a from LRE ≈ 8.5 to ≥ 11). Uses the fdf of the
+ * last init; theta and *rss are updated. Returns the number of accepted steps. */
+size_t stagecal_regress_nlin_polish(stagecal_regress_nlin *w, double *theta, double *rss);
+const double *stagecal_regress_nlin_position(const stagecal_regress_nlin *w); /* p values */
+double stagecal_regress_nlin_rss(const stagecal_regress_nlin *w);             /* Σ f_i² */
+size_t stagecal_regress_nlin_niter(const stagecal_regress_nlin *w);
+stagecal_stop stagecal_regress_nlin_stop(const stagecal_regress_nlin *w);
+
+/* The statistics of a least-squares estimate theta of fdf, computed the same way for
+ * every fit: rss, dof = n − p, σ = sqrt(rss/dof), covariance C = s²·(JᵀJ)⁻¹ (s² = σ² when
+ * scale, else 1) from QR with column pivoting on the column-equilibrated Jacobian (rank
+ * test params.rank_tol, so it does not depend on the parameters' units), se, the t
+ * quantile at params.level with dof degrees of freedom and the intervals. result->form
+ * must be set (its names go into messages); fills n, p, dof, theta, rss, sigma,
+ * sigma_dof, cov, se, tquant, ci_low, ci_high, level, cov_scaled. EDATA when the
+ * residuals are undefined at theta or a parameter is not identifiable; ENOMEM;
+ * EINTERNAL. */
+int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta, int scale,
+                           const stagecal_regress_params *params, stagecal_regress_result *result,
+                           stagecal_error *err);
+
+/* The envelope of the data into result: finite R range, has_total_reflux, F range
+ * (f_load NULL: 0, 0). */
+void stagecal_regress_envelope(const double *r, const double *f_load, size_t n,
+                               stagecal_regress_result *result);
 
 /* Fits form to data. result is filled on success; release with
  * stagecal_regress_result_free. Statuses: EINVAL (bad params, form undefined at a

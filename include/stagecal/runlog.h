@@ -162,15 +162,12 @@ enum {
 };
 
 typedef struct {
-    size_t run;           /* run index */
-    size_t first, last;   /* row indices, inclusive */
-    int total_reflux;     /* 1: R = inf throughout, or finite R with no distillate drawn */
-    double r_median;      /* median R over the window (INFINITY at total reflux) */
-    double stages_mean;   /* mean of the ok per-sample stages (0 if none) */
-    double u_stages_mean; /* standard uncertainty of that mean, from the per-sample u
-                             assuming independent errors (a lower bound: samples are
-                             autocorrelated; the window is the unit of evidence) */
-    size_t n_ok;          /* ok samples in the window */
+    size_t run;         /* run index */
+    size_t first, last; /* row indices, inclusive */
+    int total_reflux;   /* 1: R = inf throughout, or finite R with no distillate drawn */
+    double r_median;    /* median R over the window (INFINITY at total reflux) */
+    size_t n_ok;        /* ok samples in the window (their stage count and standard
+                           error are the evidence module's: stagecal_evidence_build) */
 } stagecal_runlog_window;
 
 typedef struct {
@@ -253,10 +250,10 @@ int stagecal_runlog_analyse(const stagecal_runlog *log, const stagecal_column *c
  * the top temperature (T_top from the log, else the bubble point of xD). Window
  * Rows of a stretch at one finite R in which W does not fall (no distillate drawn)
  * are counted at total reflux (note NO_DISTILLATE). Then flags steady samples and
- * builds the windows (params may be NULL), filling
- * the window means. murphree in (0, 1] is passed to the inversion. A sample whose
- * inner solve fails is `invalid` with note "inversion failed"; the call fails only
- * for ENOMEM or EINVAL (no column model). */
+ * builds the windows (params may be NULL); a window's stage count comes from
+ * stagecal_evidence_build (evidence.h). murphree in (0, 1] is passed to the inversion. A sample
+ * whose inner solve fails is `invalid` with note "inversion failed"; the call fails only for ENOMEM
+ * or EINVAL (no column model). */
 int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *col, double murphree,
                            const stagecal_runlog_analysis_params *params,
                            stagecal_runlog_result *res, stagecal_error *err);

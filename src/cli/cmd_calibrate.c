@@ -125,9 +125,9 @@ static int print_findings(const stagecal_findings *f, int errors_only)
  * by the caller. NULL when out of memory. */
 static double *window_points(const stagecal_calibration *cal, stagecal_regress_data *pts)
 {
-    double *buf = malloc((cal->nev ? cal->nev : 1) * 4 * sizeof *buf);
+    double *buf = malloc((cal->evidence.n ? cal->evidence.n : 1) * 4 * sizeof *buf);
     if (buf)
-        stagecal_evidence_points(cal->ev, cal->nev, buf, pts);
+        stagecal_evidence_points(cal->evidence.ev, cal->evidence.n, buf, pts);
     else
         cli_error("out of memory");
     return buf;
@@ -202,7 +202,7 @@ static int prepare_outputs(const stagecal_calibration *cal, const char *const pa
             return cli_fail(&err);
     if (path[OUT_SAMPLES]) {
         FILE *f = atomic_stream(&out[OUT_SAMPLES], &err);
-        if (!f || stagecal_runlog_write_csv(cal->log, &cal->column, &cal->res, f, &err)) {
+        if (!f || stagecal_runlog_write_csv(cal->log, cal->column, &cal->res, f, &err)) {
             cli_error("cannot write '%s'", path[OUT_SAMPLES]);
             return CLI_EXIT_CANTCREAT;
         }
@@ -496,7 +496,7 @@ int cmd_calibrate(int argc, char **argv)
         json_object_set_new(
             doc, "evidence",
             json_pack("{s:I,s:I,s:I,s:I,s:I,s:I,s:I}", "samples", (json_int_t)cal.log->n, "runs",
-                      (json_int_t)cal.log->nruns, "windows", (json_int_t)cal.nev,
+                      (json_int_t)cal.log->nruns, "windows", (json_int_t)cal.evidence.n,
                       "windows_with_stages", (json_int_t)cal.nev_stage, "samples_in_fit",
                       (json_int_t)mo->n_samples, "pinch_samples",
                       (json_int_t)cal.res.count[STAGECAL_STAGES_PINCH], "azeotrope_samples",
@@ -534,7 +534,7 @@ int cmd_calibrate(int argc, char **argv)
                mo->heavy);
         printf("evidence: %zu samples in %zu runs from %zu log(s); %zu quasi-steady windows "
                "(%zu with stage counts) carry the fit\n",
-               cal.log->n, cal.log->nruns, nlogs, cal.nev, cal.nev_stage);
+               cal.log->n, cal.log->nruns, nlogs, cal.evidence.n, cal.nev_stage);
         printf("per-sample status: %zu ok, %zu pinch, %zu azeotrope, %zu invalid\n",
                cal.res.count[0], cal.res.count[1], cal.res.count[2], cal.res.count[3]);
         if (cal.nrank > 0) {

@@ -17,6 +17,7 @@
 #include "cli.h"
 #include "commands.h"
 #include "stagecal/column.h"
+#include "stagecal/evidence.h"
 #include "stagecal/runlog.h"
 #include "stagecal/stages.h"
 
@@ -65,8 +66,8 @@ int invert_runlog_wanted(int argc, char **argv)
 }
 
 static json_t *summary_json(const stagecal_runlog *log, const stagecal_column *col,
-                            const stagecal_runlog_result *res, const stagecal_findings *f,
-                            const char *out_path, double murphree)
+                            const stagecal_runlog_result *res, const stagecal_evidence_set *ev,
+                            const stagecal_findings *f, const char *out_path, double murphree)
 {
     json_t *doc = json_object(), *files = json_array(), *runs = json_array(), *wins = json_array();
     json_object_set_new(doc, "format", json_string("stagecal-invert-runlog"));
@@ -117,9 +118,11 @@ static json_t *summary_json(const stagecal_runlog *log, const stagecal_column *c
         json_object_set_new(o, "total_reflux", json_boolean(w->total_reflux));
         json_object_set_new(o, "reflux", cli_json_reflux(w->r_median));
         json_object_set_new(o, "n_ok", json_integer((json_int_t)w->n_ok));
-        json_object_set_new(o, "stages_mean", w->n_ok ? json_real(w->stages_mean) : json_null());
-        json_object_set_new(o, "u_stages_mean",
-                            w->n_ok ? json_real(w->u_stages_mean) : json_null());
+        /* the window's stage count as the calibration uses it (evidence.h) */
+        const stagecal_evidence *e = stagecal_evidence_find(ev, k);
+        int ok = e && e->stages_ok;
+        json_object_set_new(o, "stages", ok ? json_real(e->stages) : json_null());
+        json_object_set_new(o, "se_stages", ok ? json_real(e->se_stages) : json_null());
         json_array_append_new(wins, o);
     }
     json_object_set_new(doc, "windows", wins);
@@ -206,7 +209,9 @@ int invert_runlog(int argc, char **argv)
     stagecal_runlog *log = stagecal_runlog_alloc();
     stagecal_findings *f = stagecal_findings_alloc(rp.max_findings);
     stagecal_runlog_result res;
+    stagecal_evidence_set ev;
     memset(&res, 0, sizeof res);
+    memset(&ev, 0, sizeof ev);
     if (!log || !f) {
         cli_error("out of memory");
         rc = CLI_EXIT_SOFTWARE;
@@ -227,7 +232,8 @@ int invert_runlog(int argc, char **argv)
                  f->n_errors);
     }
     if (stagecal_runlog_analyse(log, &col, NULL, &res, &err) != STAGECAL_OK ||
-        stagecal_runlog_invert(log, &col, murphree, NULL, &res, &err) != STAGECAL_OK) {
+        stagecal_runlog_invert(log, &col, murphree, NULL, &res, &err) != STAGECAL_OK ||
+        stagecal_evidence_build(log, &res, &col, murphree, NULL, &ev, &err) != STAGECAL_OK) {
         rc = cli_fail(&err);
         goto done;
     }
@@ -261,7 +267,7 @@ int invert_runlog(int argc, char **argv)
                      100.0 * cl->closure);
     }
     if (json) {
-        rc = cli_json_print(summary_json(log, &col, &res, f, out_path, murphree));
+        rc = cli_json_print(summary_json(log, &col, &res, &ev, f, out_path, murphree));
     } else if (out_path && strcmp(out_path, "-") != 0) {
         printf("%zu rows: %zu ok, %zu pinch, %zu azeotrope, %zu invalid; %zu quasi-steady "
                "windows; written to %s\n",
@@ -269,6 +275,7 @@ int invert_runlog(int argc, char **argv)
                out_path);
     }
 done:
+    stagecal_evidence_set_free(&ev);
     stagecal_runlog_result_free(&res);
     stagecal_runlog_free(log);
     stagecal_findings_free(f);

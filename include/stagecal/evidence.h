@@ -1,0 +1,154 @@
+/*
+ * stagecal/evidence.h — the unit of evidence: a quasi-steady window of a run log
+ * summarised as means of xD and xB with autocorrelation-aware standard errors, its
+ * reflux ratio and vapour load, and ITS STAGE COUNT WITH ITS STANDARD ERROR.
+ *
+ * This is the only definition of a window's numbers. `invert` on run logs, the
+ * calibration's fits, `calibrate --points-out` and the HTML report all read them from
+ * here, so one window has one stage count everywhere. Methods and sources:
+ * docs/calibration.md §3.
+ *
+ * Declarations are grouped as in src/evidence.c: the window statistics (mean,
+ * autocorrelation, pooling), the stage count, the builder that turns a run log's
+ * windows into evidence, and the points a stage-space fit takes.
+ */
+#ifndef STAGECAL_EVIDENCE_H
+#define STAGECAL_EVIDENCE_H
+
+#include <stddef.h>
+
+#include "stagecal/column.h"
+#include "stagecal/error.h"
+#include "stagecal/regress.h"
+#include "stagecal/runlog.h"
+#include "stagecal/vle.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+/* ---- one window --------------------------------------------------------------------- */
+
+/* Bits of a carried sample's censoring flags (s_cens below): the reading is a bound, not
+ * a value — the analyser reported "below its limit" or "above its range". */
+enum {
+    STAGECAL_EVIDENCE_XD_BELOW = 1u << 0, /* true xD ≤ s_xd[j] */
+    STAGECAL_EVIDENCE_XD_ABOVE = 1u << 1, /* true xD ≥ s_xd[j] */
+    STAGECAL_EVIDENCE_XB_BELOW = 1u << 2, /* true xB ≤ s_xb[j] */
+    STAGECAL_EVIDENCE_XB_ABOVE = 1u << 3  /* true xB ≥ s_xb[j] */
+};
+
+/* A quasi-steady window summarised: the unit of evidence. */
+typedef struct {
+    size_t window;      /* index into the run log result's windows (builder; 0 otherwise) */
+    size_t run;         /* run index in the log: windows of one run share its errors (a
+                           cluster for run-clustered standard errors) */
+    size_t first, last; /* row range, inclusive */
+    size_t n_samples;   /* rows in the window */
+    size_t n_ok;        /* rows with an ok per-sample stage count */
+    double n_eff;       /* effective sample size of the pot analyser series */
+    int total_reflux;   /* 1: R = inf (or no distillate) throughout */
+    double r;           /* median reflux ratio [-] (INFINITY at total reflux) */
+    int has_load;       /* F below is known */
+    double f_load;      /* mean F-factor [Pa^0.5] */
+    double xd, xb;      /* mean distillate and pot mole fractions [-] */
+    double u_xd, u_xb;  /* their standard errors [-] */
+    double rho_xd;      /* lag-1 autocorrelation in u_xd's n_eff (the window's own, or pooled) */
+    double rho_xb;      /* the same for u_xb */
+    size_t m_xd, m_xb;  /* finite samples behind xd and xb (0: u_xd/u_xb were not built here) */
+    int stages_ok;      /* the stage count below exists */
+    double stages;      /* effective stages incl. the pot [-] */
+    double se_stages;   /* its standard error [-] */
+    double t_mid_s;     /* mid time of the window [s] */
+    size_t m;           /* samples carried below (0: use the means only) */
+    const double *s_t;  /* m sample times [s], m compositions xD and xB of the window, */
+    const double *s_xd; /* evenly thinned, outliers left out (storage owned by whoever */
+    const double *s_xb; /* built the evidence) */
+    const unsigned char *s_cens; /* m censoring flags (STAGECAL_EVIDENCE_*), NULL when no
+                                    carried reading is censored; the run-log reader does not
+                                    mark censored cells yet, so the builder leaves it NULL */
+} stagecal_evidence;
+
+/* ---- window statistics (evidence.c) -------------------------------------------------- */
+
+/* Mean of a slowly varying, autocorrelated series with its standard error.
+ * The series is detrended by a straight line in time (a batch pot drifts); the
+ * lag-1 autocorrelation ρ of the residuals gives the effective sample size
+ * n_eff = n·(1 − ρ)/(1 + ρ) (AR(1) approximation, ρ clipped to [0, 0.99]); the
+ * standard error is max(s, u_floor)/√n_eff with s the residual standard deviation
+ * and u_floor a stated per-sample measurement uncertainty (0 = none). Samples with
+ * non-finite y are skipped. EINVAL when fewer than 3 finite samples. */
+int stagecal_evidence_mean(const double *t, const double *y, size_t n, double u_floor, double *mean,
+                           double *se, double *n_eff, stagecal_error *err);
+/* The same, also giving the window's own ρ (clipped as above) and the number m of finite
+ * samples behind the mean, which stagecal_evidence_pool_rho needs. */
+int stagecal_evidence_mean_rho(const double *t, const double *y, size_t n, double u_floor,
+                               double *mean, double *se, double *rho, size_t *m,
+                               stagecal_error *err);
+
+/* Pools the lag-1 autocorrelation over windows, per analyser: replaces each window's
+ * rho_xd (rho_xb) by the mean of all windows' values weighted by their lag pairs (m − 1),
+ * and rescales u_xd (u_xb) to the n_eff of that ρ. Why: one window's ρ̂ from tens of
+ * samples scatters widely, and the weights of the fits inherit that scatter; with a pooled
+ * ρ̂ the 95 % intervals cover at their nominal rate (docs/calibration.md §5). It assumes
+ * one analyser and one sampling interval per series across the windows. Windows with
+ * m_xd (m_xb) = 0 are left alone. Call before stagecal_evidence_stages. */
+void stagecal_evidence_pool_rho(stagecal_evidence *ev, size_t nev);
+
+/* Stage count of a window. With samples (ev->m ≥ 3, at most 64 used): local quadratics in
+ * time (9 samples each) smooth the window's xD and xB, the fitted compositions are inverted at
+ * every sample time and the counts averaged — this follows a drifting pot without the
+ * curvature bias of inverting plain means, and without the bias that the count's curvature
+ * in xB gives noisy single samples near a pinch or at a lean pot. Without samples: the
+ * inversion of the means. The standard error propagates u_xd, u_xb through the
+ * sensitivities at the means (first order, independent analysers). Sets stages_ok (0 when
+ * any inversion's status is not ok). Returns an error only when an inner solve fails. */
+int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_evidence *ev,
+                             stagecal_error *err);
+
+/* ---- the evidence of a run log (evidence.c) ------------------------------------------ */
+
+typedef struct {
+    size_t max_samples; /* samples a window carries into its stage count and the composition
+                           fit, evenly thinned (logged samples are autocorrelated, so more
+                           add little but cost); 1..64, default 24 */
+    size_t min_ok;      /* a window has a stage count only when at least this many of its
+                           samples invert on their own (default 3) */
+    int pool_rho;       /* 1: pool ρ per analyser over all windows (default 1) */
+} stagecal_evidence_params;
+
+stagecal_evidence_params stagecal_evidence_default_params(void);
+
+/* The evidence of a run log: one entry per run-log window with at least 3 finite
+ * compositions of each analyser (ev[i].window says which), in window order. */
+typedef struct {
+    stagecal_evidence *ev; /* n windows */
+    size_t n;
+    double *samples; /* storage of the carried samples */
+} stagecal_evidence_set;
+
+/* Builds the evidence of every window of res (after stagecal_runlog_analyse and
+ * stagecal_runlog_invert on log): means without the outlier-flagged samples, ρ pooled
+ * (params.pool_rho), stage counts with col's equilibrium model and u(·) at murphree.
+ * params may be NULL. Allocates set (free with stagecal_evidence_set_free, also after a
+ * failure). EINVAL (no column model, bad params), ENOMEM, or an inner solve's status. */
+int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_result *res,
+                            const stagecal_column *col, double murphree,
+                            const stagecal_evidence_params *params, stagecal_evidence_set *set,
+                            stagecal_error *err);
+void stagecal_evidence_set_free(stagecal_evidence_set *set); /* NULL ok */
+
+/* The evidence of run-log window k, or NULL when that window has too few compositions. */
+const stagecal_evidence *stagecal_evidence_find(const stagecal_evidence_set *set, size_t k);
+
+/* The windows with a stage count as regression points (R, F, stages, sigma = se):
+ * fills data with arrays laid out in buf, which must hold 4·nev doubles and outlive
+ * data; f_load is NULL unless every such window has a load. Returns the number of
+ * points. */
+size_t stagecal_evidence_points(const stagecal_evidence *ev, size_t nev, double *buf,
+                                stagecal_regress_data *data);
+
+#ifdef __cplusplus
+}
+#endif
+#endif

@@ -1,0 +1,220 @@
+/*
+ * regress_composition.c — the composition-space fit of a correlation form (see
+ * stagecal/calibrate.h), a problem for the shared least-squares driver (regress_nlin.c).
+ *
+ * For window i at R_i, F_i the correlation predicts N_i = stages(R_i, F_i; θ); forward
+ * stepping N_i stages down from each logged xD_ij (thinned samples of the window) gives
+ * the predicted pot composition x̂B_ij(θ), so a drifting pot is followed sample by sample.
+ * The residual is compared in log-odds space after averaging over the window's samples,
+ *     r_i(θ) = [logit mean_j x̂B_ij(θ) − logit mean_j xB_ij] / s_i,
+ *     s_i² = (u(xB_i)/(xB_i(1 − xB_i)))² + (∂logit x̂B_i/∂xD · u(xD_i))²,
+ * the effective-variance treatment of an error-carrying regressor (Orear 1982,
+ * Am. J. Phys. 50, 912 — citation from memory), with s_i fixed at the starting θ.
+ * θ minimises Σ r_i² (the driver's trust region with the caller's tolerances, central
+ * finite-difference Jacobian since each residual needs a forward step, then the
+ * Gauss–Newton polish); covariance s²(JᵀJ)⁻¹ with s² = Σ r_i²/(n − p), intervals and
+ * envelope as for the stage-space fit (stagecal_regress_covar, stagecal_regress_envelope).
+ */
+#include "stagecal/calibrate.h"
+
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "stagecal/stages.h"
+
+/* Largest stage count the composition fit will step (keeps a wild trial θ bounded). */
+#define COMP_MAX_STAGES 2000.0
+/* log-odds are taken of compositions clipped to [LOGIT_EPS, 1 − LOGIT_EPS]. */
+#define LOGIT_EPS 1e-14
+
+static double logit(double x)
+{
+    if (x < LOGIT_EPS)
+        x = LOGIT_EPS;
+    if (x > 1 - LOGIT_EPS)
+        x = 1 - LOGIT_EPS;
+    return log(x / (1 - x));
+}
+
+struct comp_ctx {
+    const stagecal_vle *vle;
+    double murphree;
+    const stagecal_evidence *ev;
+    size_t n;
+    const stagecal_form *form;
+    double *scale; /* s_i */
+    stagecal_stages_params sp;
+    size_t failures; /* forward steps that did not give an ok pot composition */
+};
+
+/* Predicted logit xB for window i at θ and distillate xd. */
+static double predict_logit(struct comp_ctx *c, size_t i, const double *theta, double xd)
+{
+    const stagecal_evidence *e = &c->ev[i];
+    double nst = 1, xb = xd;
+    int status = STAGECAL_STAGES_INVALID;
+    size_t len = 0;
+    if (stagecal_form_eval(c->form, theta, e->r, e->f_load, &nst, NULL) != STAGECAL_OK ||
+        !isfinite(nst))
+        nst = 1;
+    if (nst < 1)
+        nst = 1;
+    if (nst > COMP_MAX_STAGES)
+        nst = COMP_MAX_STAGES;
+    if (stagecal_stages_step(c->vle, xd, e->r, nst, c->murphree, &c->sp, &xb, NULL, 0, &len,
+                             &status, NULL) != STAGECAL_OK ||
+        status != STAGECAL_STAGES_OK) {
+        /* No pot composition (an azeotrope in the way): predict "no separation"
+         * so that such θ is penalised rather than undefined. */
+        c->failures++;
+        xb = xd;
+    }
+    return logit(xb);
+}
+
+/* Window i's residual: the log-odds of the mean predicted pot composition (each sample
+ * predicted from its own xD, so a drifting pot is followed) minus the log-odds of the
+ * mean measured one. Averaging compositions before the log-odds, not after, keeps the
+ * analyser noise of a lean pot from biasing the residual. Without samples: the means. */
+static double window_residual(struct comp_ctx *c, size_t i, const double *theta)
+{
+    const stagecal_evidence *e = &c->ev[i];
+    if (e->m == 0 || !e->s_xd || !e->s_xb)
+        return predict_logit(c, i, theta, e->xd) - logit(e->xb);
+    double sp = 0, sm = 0;
+    for (size_t j = 0; j < e->m; j++) {
+        double l = predict_logit(c, i, theta, e->s_xd[j]);
+        sp += 1 / (1 + exp(-l));
+        sm += e->s_xb[j];
+    }
+    return logit(sp / (double)e->m) - logit(sm / (double)e->m);
+}
+
+static int comp_f(const double *theta, void *params, double *f)
+{
+    struct comp_ctx *c = params;
+    for (size_t i = 0; i < c->n; i++)
+        f[i] = window_residual(c, i, theta) / c->scale[i];
+    return 0;
+}
+
+/* σ in stage space (what a planner's prediction band needs): the scatter of the windows
+ * with stage counts about the curve, with its degrees of freedom m − p (0, 0 when m ≤ p). */
+static void stage_scatter(const stagecal_evidence *ev, size_t n, const stagecal_form *form,
+                          const double *theta, double *sigma, double *dof)
+{
+    double ss = 0;
+    size_t m = 0;
+    for (size_t i = 0; i < n; i++) {
+        double v;
+        if (!ev[i].stages_ok ||
+            stagecal_form_eval(form, theta, ev[i].r, ev[i].f_load, &v, NULL) != STAGECAL_OK)
+            continue;
+        ss += (ev[i].stages - v) * (ev[i].stages - v);
+        m++;
+    }
+    *dof = m > form->p ? (double)(m - form->p) : 0;
+    *sigma = *dof > 0 ? sqrt(ss / *dof) : 0;
+}
+
+/* Effective standard deviation of each window's log-odds at theta0 (see the top). */
+static void comp_scales(struct comp_ctx *c, const double *theta0)
+{
+    for (size_t i = 0; i < c->n; i++) {
+        const stagecal_evidence *e = &c->ev[i];
+        double lx = e->u_xb / (e->xb * (1 - e->xb));
+        double h = 1e-6 * (1 - e->xd) + 1e-9;
+        double xhi = e->xd + h < 1 ? e->xd + h : e->xd;
+        double xlo = e->xd - h;
+        double g =
+            (predict_logit(c, i, theta0, xhi) - predict_logit(c, i, theta0, xlo)) / (xhi - xlo);
+        double ld = g * e->u_xd;
+        c->scale[i] = sqrt(lx * lx + ld * ld);
+        if (!(c->scale[i] > 0))
+            c->scale[i] = 1e-6; /* no stated uncertainty: equal weights, scaled by s² */
+    }
+}
+
+int stagecal_fit_composition(const stagecal_vle *vle, double murphree, const stagecal_evidence *ev,
+                             size_t nev, const stagecal_form *form, const double *theta0,
+                             const stagecal_regress_params *params, stagecal_regress_result *result,
+                             stagecal_error *err)
+{
+    stagecal_regress_params par = params ? *params : stagecal_regress_default_params();
+    size_t p = form ? form->p : 0, n = nev;
+    int rc;
+
+    if (!vle || !ev || !form || !theta0 || !result)
+        return error_set(err, STAGECAL_EINVAL, "composition fit: NULL argument");
+    memset(result, 0, sizeof *result);
+    if (!(par.level > 0 && par.level < 1))
+        return error_set(err, STAGECAL_EINVAL,
+                         "composition fit: level %g (expected a value in (0, 1))", par.level);
+    if (n < p + 1)
+        return error_set(err, STAGECAL_EDATA,
+                         "composition fit needs at least %zu windows for %zu parameters, got %zu",
+                         p + 1, p, n);
+    for (size_t i = 0; i < n; i++) {
+        if (form->uses_load && !ev[i].has_load)
+            return error_set(err, STAGECAL_EDATA,
+                             "form '%s' needs the vapour load, but window %zu has no F-factor",
+                             form->name, i + 1);
+        if (!(ev[i].xb > 0 && ev[i].xb < ev[i].xd && ev[i].xd < 1))
+            return error_set(err, STAGECAL_EDATA,
+                             "window %zu: mean compositions xB = %g, xD = %g are not 0 < xB < xD "
+                             "< 1",
+                             i + 1, ev[i].xb, ev[i].xd);
+    }
+
+    struct comp_ctx c = {vle, murphree, ev, n, form, NULL, stagecal_stages_default_params(), 0};
+    c.sp.max_stages = (size_t)COMP_MAX_STAGES + 10;
+    c.scale = malloc(n * sizeof *c.scale);
+    stagecal_regress_nlin *w = stagecal_regress_nlin_alloc(n, p);
+    double *r = malloc(2 * n * sizeof *r);
+    if (!c.scale || !w || !r) {
+        rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
+        goto done;
+    }
+    comp_scales(&c, theta0);
+    stagecal_regress_fdf fdf = {comp_f, NULL, n, p, &c};
+    double theta[STAGECAL_FORM_MAXP], rss;
+    stagecal_error e2;
+    stagecal_error_clear(&e2);
+    if ((rc = stagecal_regress_nlin_init(w, &fdf, theta0, &par, &e2)) ||
+        (rc = stagecal_regress_nlin_driver(w, &e2))) {
+        rc = error_set(err, rc, "composition fit did not converge: %s", e2.text);
+        goto done;
+    }
+    memcpy(theta, stagecal_regress_nlin_position(w), p * sizeof *theta);
+    rss = stagecal_regress_nlin_rss(w);
+    result->form = *form;
+    result->polish = stagecal_regress_nlin_polish(w, theta, &rss);
+    result->iterations = stagecal_regress_nlin_niter(w);
+    result->stop = stagecal_regress_nlin_stop(w);
+    result->starts = 1;
+    result->weighted = 1;
+    /* s² from the standardised log-odds residuals: their scale is estimated, not assumed */
+    if ((rc = stagecal_regress_covar(&fdf, theta, 1, &par, result, err)))
+        goto done;
+    result->loglik = -0.5 * result->rss;
+    /* σ and its dof in stage space: what a planner's prediction band needs */
+    stage_scatter(ev, n, form, result->theta, &result->sigma, &result->sigma_dof);
+    result->sigma_obs = result->sigma;
+    for (size_t i = 0; i < n; i++) {
+        r[i] = ev[i].r;
+        r[n + i] = ev[i].has_load ? ev[i].f_load : 0;
+    }
+    /* F range only when every window has a load, as in the stage-space points */
+    int all_load = 1;
+    for (size_t i = 0; i < n; i++)
+        all_load &= ev[i].has_load;
+    stagecal_regress_envelope(r, all_load ? r + n : NULL, n, result);
+
+done:
+    stagecal_regress_nlin_free(w);
+    free(c.scale);
+    free(r);
+    return rc;
+}

@@ -1,0 +1,418 @@
+/*
+ * regress_nlin.c — the nonlinear least-squares driver every fit of stagecal uses (see
+ * stagecal/regress.h): a problem (residual callback, stagecal_regress_fdf) kept apart from
+ * the solver, init / iterate / test / driver in the manner of GSL's multifit_nlinear, the
+ * Gauss–Newton polish, and the statistics of the estimate (covariance, standard errors,
+ * t intervals), so that tolerances and covariance are computed in one place.
+ *
+ * Solver: gsl_multifit_nlinear, trust region with Levenberg–Marquardt steps; the
+ * Jacobian is the problem's, or GSL's central finite differences when it gives none.
+ * Polish: Gauss–Newton steps with QR on the Jacobian (REFERENCES: NIST StRD accuracy).
+ * Covariance: s²·(JᵀJ)⁻¹, s² = RSS/(n − p) — the NIST StRD definition (Bates & Watts
+ * 1988, §2.3) — from QR with column pivoting on the column-equilibrated Jacobian; t
+ * intervals with gsl_cdf_tdist_Pinv.
+ */
+#include "stagecal/regress.h"
+
+#include <float.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <gsl/gsl_blas.h>
+#include <gsl/gsl_cdf.h>
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_linalg.h>
+#include <gsl/gsl_multifit_nlinear.h>
+
+#include "internal.h"
+
+struct stagecal_regress_nlin {
+    size_t n, p;
+    gsl_multifit_nlinear_workspace *w;
+    gsl_multifit_nlinear_fdf gfdf; /* adapters to fdf below */
+    stagecal_regress_fdf fdf;      /* the problem of the last init */
+    stagecal_regress_params prm;   /* tolerances of the last init */
+    double theta0[STAGECAL_FORM_MAXP];
+    int at_start;    /* the start passed the xtol test: no iteration */
+    double prev_rss; /* smallest RSS seen by test (stall test) */
+    size_t stall;    /* consecutive tests without an RSS decrease */
+    stagecal_stop stop;
+    /* scratch of the Gauss–Newton step */
+    gsl_vector *res, *tau, *dv, *resid, *fwork;
+    gsl_matrix *J;
+};
+
+/* GSL's callbacks on our plain-array problem; vectors and matrices from GSL's workspace
+ * are contiguous (stride 1, tda = p). */
+static int adapt_f(const gsl_vector *x, void *ctx, gsl_vector *f)
+{
+    const stagecal_regress_fdf *fdf = ctx;
+    /* GSL's finite differences write into a column of the Jacobian (stride p) */
+    double *y = f->stride == 1 ? f->data : malloc(f->size * sizeof *y);
+    if (!y)
+        return GSL_ENOMEM;
+    if (fdf->f(x->data, fdf->params, y) != 0) {
+        /* Outside the model's domain: a huge residual makes the trust region reject the
+         * step instead of aborting. */
+        for (size_t i = 0; i < f->size; i++)
+            y[i] = GSL_SQRT_DBL_MAX;
+    }
+    if (y != f->data) {
+        for (size_t i = 0; i < f->size; i++)
+            gsl_vector_set(f, i, y[i]);
+        free(y);
+    }
+    return GSL_SUCCESS;
+}
+
+static int adapt_df(const gsl_vector *x, void *ctx, gsl_matrix *J)
+{
+    const stagecal_regress_fdf *fdf = ctx;
+    return fdf->df(x->data, fdf->params, J->data) == 0 ? GSL_SUCCESS : GSL_EDOM;
+}
+
+static gsl_multifit_nlinear_fdf gsl_problem(stagecal_regress_fdf *fdf)
+{
+    gsl_multifit_nlinear_fdf g;
+    g.f = adapt_f;
+    g.df = fdf->df ? adapt_df : NULL;
+    g.fvv = NULL;
+    g.n = fdf->n;
+    g.p = fdf->p;
+    g.params = fdf;
+    return g;
+}
+
+/* Residuals at theta into f and, when J is not NULL, the Jacobian (the problem's, or
+ * central differences). 0 on success. */
+static int eval_fdf(stagecal_regress_fdf *fdf, const double *theta, gsl_vector *f, gsl_matrix *J,
+                    gsl_vector *work)
+{
+    if (fdf->f(theta, fdf->params, f->data) != 0)
+        return -1;
+    if (!J)
+        return 0;
+    if (fdf->df)
+        return fdf->df(theta, fdf->params, J->data) == 0 ? 0 : -1;
+    gsl_multifit_nlinear_fdf g = gsl_problem(fdf);
+    gsl_vector_const_view x = gsl_vector_const_view_array(theta, fdf->p);
+    return gsl_multifit_nlinear_df(GSL_SQRT_DBL_EPSILON, GSL_MULTIFIT_NLINEAR_CTRDIFF, &x.vector,
+                                   NULL, &g, f, J, work) == GSL_SUCCESS
+               ? 0
+               : -1;
+}
+
+static double sumsq(const gsl_vector *v)
+{
+    double s = gsl_blas_dnrm2(v);
+    return s * s;
+}
+
+void stagecal_regress_nlin_free(stagecal_regress_nlin *w)
+{
+    if (!w)
+        return;
+    gsl_multifit_nlinear_free(w->w);
+    gsl_vector_free(w->res);
+    gsl_vector_free(w->tau);
+    gsl_vector_free(w->dv);
+    gsl_vector_free(w->resid);
+    gsl_vector_free(w->fwork);
+    gsl_matrix_free(w->J);
+    free(w);
+}
+
+stagecal_regress_nlin *stagecal_regress_nlin_alloc(size_t n, size_t p)
+{
+    if (p < 1 || p > STAGECAL_FORM_MAXP || n < p)
+        return NULL;
+    stagecal_regress_nlin *w = calloc(1, sizeof *w);
+    if (!w)
+        return NULL;
+    gsl_multifit_nlinear_parameters fp = gsl_multifit_nlinear_default_parameters();
+    /* used only by problems without a Jacobian: central differences, since the
+     * composition residuals come from a stepping whose forward differences are noisier */
+    fp.fdtype = GSL_MULTIFIT_NLINEAR_CTRDIFF;
+    w->n = n;
+    w->p = p;
+    w->w = gsl_multifit_nlinear_alloc(gsl_multifit_nlinear_trust, &fp, n, p);
+    w->res = gsl_vector_alloc(n);
+    w->tau = gsl_vector_alloc(p);
+    w->dv = gsl_vector_alloc(p);
+    w->resid = gsl_vector_alloc(n);
+    w->fwork = gsl_vector_alloc(n);
+    w->J = gsl_matrix_alloc(n, p);
+    if (!w->w || !w->res || !w->tau || !w->dv || !w->resid || !w->fwork || !w->J) {
+        stagecal_regress_nlin_free(w);
+        return NULL;
+    }
+    return w;
+}
+
+/* The Gauss–Newton step δ = argmin |J δ + f| (QR on the Jacobian) at theta. 0 on success. */
+static int gn_step(stagecal_regress_nlin *w, const double *theta, double *delta)
+{
+    if (eval_fdf(&w->fdf, theta, w->res, w->J, w->fwork) != 0 ||
+        gsl_linalg_QR_decomp(w->J, w->tau) != GSL_SUCCESS ||
+        gsl_linalg_QR_lssolve(w->J, w->tau, w->res, w->dv, w->resid) != GSL_SUCCESS)
+        return -1;
+    for (size_t k = 0; k < w->p; k++) {
+        delta[k] = -gsl_vector_get(w->dv, k);
+        if (!isfinite(delta[k]))
+            return -1;
+    }
+    return 0;
+}
+
+/* GSL's xtol test, |δ_i| ≤ xtol·(|θ_i| + xtol), applied to the Gauss–Newton step. */
+static int gn_converged(stagecal_regress_nlin *w, const double *theta)
+{
+    double delta[STAGECAL_FORM_MAXP];
+    double xtol = w->prm.xtol;
+    if (gn_step(w, theta, delta) != 0)
+        return 0;
+    for (size_t k = 0; k < w->p; k++)
+        if (!(fabs(delta[k]) <= xtol * (fabs(theta[k]) + xtol)))
+            return 0;
+    return 1;
+}
+
+int stagecal_regress_nlin_init(stagecal_regress_nlin *w, const stagecal_regress_fdf *fdf,
+                               const double *theta0, const stagecal_regress_params *params,
+                               stagecal_error *err)
+{
+    if (!w || !fdf || !fdf->f || !theta0 || fdf->n != w->n || fdf->p != w->p)
+        return error_set(err, STAGECAL_EINVAL,
+                         "regress: problem and workspace sizes differ (or a NULL argument)");
+    w->fdf = *fdf;
+    w->prm = params ? *params : stagecal_regress_default_params();
+    memcpy(w->theta0, theta0, w->p * sizeof *theta0);
+    w->stall = 0;
+    w->stop = STAGECAL_STOP_XTOL;
+    w->at_start = gn_converged(w, theta0);
+    if (w->at_start)
+        return STAGECAL_OK;
+    w->gfdf = gsl_problem(&w->fdf);
+    gsl_vector_const_view x0 = gsl_vector_const_view_array(theta0, w->p);
+    int gs = gsl_multifit_nlinear_init(&x0.vector, &w->gfdf, w->w);
+    if (gs != GSL_SUCCESS)
+        return error_set(err, STAGECAL_ENOCONV, "regress: cannot start the solver: %s",
+                         gsl_strerror(gs));
+    w->prev_rss = sumsq(gsl_multifit_nlinear_residual(w->w));
+    return STAGECAL_OK;
+}
+
+int stagecal_regress_nlin_iterate(stagecal_regress_nlin *w, stagecal_error *err)
+{
+    if (w->at_start)
+        return STAGECAL_OK;
+    int gs = gsl_multifit_nlinear_iterate(w->w);
+    /* a step that cannot decrease the RSS (at the optimum to rounding) ends the search */
+    if (gs == GSL_ENOPROG || gs == GSL_ENOPROGJ) {
+        w->stop = STAGECAL_STOP_NOPROGRESS;
+        w->stall = w->prm.stall_iter;
+        return STAGECAL_OK;
+    }
+    if (gs != GSL_SUCCESS)
+        return error_set(err, STAGECAL_ENOCONV, "regress: trust-region step failed: %s",
+                         gsl_strerror(gs));
+    return STAGECAL_OK;
+}
+
+int stagecal_regress_nlin_test(stagecal_regress_nlin *w)
+{
+    if (w->at_start)
+        return 1;
+    if (w->stall >= w->prm.stall_iter) /* no progress (iterate or the stall test) */
+        return 1;
+    int info = 0;
+    if (gsl_multifit_nlinear_test(w->prm.xtol, w->prm.gtol, w->prm.ftol, &info, w->w) ==
+            GSL_SUCCESS &&
+        info != 0) {
+        w->stop = info == 2   ? STAGECAL_STOP_GTOL
+                  : info == 3 ? STAGECAL_STOP_FTOL
+                              : STAGECAL_STOP_XTOL;
+        return 1;
+    }
+    double now = sumsq(gsl_multifit_nlinear_residual(w->w));
+    w->stall = now >= w->prev_rss * (1 - 4 * DBL_EPSILON) ? w->stall + 1 : 0;
+    w->prev_rss = fmin(w->prev_rss, now);
+    if (w->stall >= w->prm.stall_iter) {
+        w->stop = STAGECAL_STOP_NOPROGRESS;
+        return 1;
+    }
+    return 0;
+}
+
+int stagecal_regress_nlin_driver(stagecal_regress_nlin *w, stagecal_error *err)
+{
+    if (w->at_start)
+        return STAGECAL_OK;
+    /* GSL's order: iterate, then test (before the first step the step test would pass) */
+    for (size_t it = 0;; it++) {
+        if (it == w->prm.max_iter)
+            return error_set(err, STAGECAL_ENOCONV,
+                             "regress: the trust-region solver did not converge within %zu "
+                             "iterations",
+                             w->prm.max_iter);
+        int rc = stagecal_regress_nlin_iterate(w, err);
+        if (rc != STAGECAL_OK)
+            return rc;
+        if (stagecal_regress_nlin_test(w))
+            return STAGECAL_OK;
+    }
+}
+
+const double *stagecal_regress_nlin_position(const stagecal_regress_nlin *w)
+{
+    return w->at_start ? w->theta0 : gsl_multifit_nlinear_position(w->w)->data;
+}
+
+double stagecal_regress_nlin_rss(const stagecal_regress_nlin *w)
+{
+    if (w->at_start) /* res holds the residuals at the start from gn_converged */
+        return sumsq(w->res);
+    return sumsq(gsl_multifit_nlinear_residual(w->w));
+}
+
+size_t stagecal_regress_nlin_niter(const stagecal_regress_nlin *w)
+{
+    return w->at_start ? 0 : gsl_multifit_nlinear_niter(w->w);
+}
+
+stagecal_stop stagecal_regress_nlin_stop(const stagecal_regress_nlin *w)
+{
+    return w->stop;
+}
+
+size_t stagecal_regress_nlin_polish(stagecal_regress_nlin *w, double *theta, double *rss)
+{
+    size_t p = w->p, accepted = 0;
+    for (size_t it = 0; it < w->prm.polish_steps; it++) {
+        double trial[STAGECAL_FORM_MAXP], delta[STAGECAL_FORM_MAXP];
+        if (gn_step(w, theta, delta) != 0)
+            break;
+        int small = 1;
+        for (size_t k = 0; k < p; k++) {
+            trial[k] = theta[k] + delta[k];
+            if (fabs(delta[k]) > w->prm.polish_tol * fabs(theta[k]))
+                small = 0;
+        }
+        if (eval_fdf(&w->fdf, trial, w->res, NULL, NULL) != 0)
+            break;
+        double rss_new = sumsq(w->res);
+        if (!(rss_new <= *rss))
+            break;
+        memcpy(theta, trial, p * sizeof *theta);
+        *rss = rss_new;
+        accepted++;
+        if (small)
+            break;
+    }
+    return accepted;
+}
+
+/* ---- statistics of the estimate -------------------------------------------------------- */
+
+int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta, int scale,
+                           const stagecal_regress_params *params, stagecal_regress_result *res,
+                           stagecal_error *err)
+{
+    stagecal_regress_params prm = params ? *params : stagecal_regress_default_params();
+    stagecal_regress_fdf pb = *fdf;
+    size_t n = fdf->n, p = fdf->p;
+    int rc = STAGECAL_OK;
+    if (p < 1 || p > STAGECAL_FORM_MAXP || n <= p)
+        return error_set(err, STAGECAL_EINVAL, "regress: %zu residuals for %zu parameters", n, p);
+    gsl_vector *rv = gsl_vector_alloc(n), *work = gsl_vector_alloc(n);
+    gsl_matrix *J = gsl_matrix_alloc(n, p), *C = gsl_matrix_alloc(p, p);
+    if (!rv || !J || !C || !work) {
+        rc = error_set(err, STAGECAL_ENOMEM, "regress: out of memory");
+        goto done;
+    }
+    if (eval_fdf(&pb, theta, rv, J, work) != 0) {
+        rc = error_set(err, STAGECAL_EDATA,
+                       "regress: form '%s' is undefined at some point for the fitted parameters",
+                       res->form.name);
+        goto done;
+    }
+    res->n = n;
+    res->p = p;
+    res->level = prm.level;
+    res->cov_scaled = scale;
+    memcpy(res->theta, theta, p * sizeof *theta);
+    res->rss = sumsq(rv);
+    res->dof = (double)(n - p);
+    res->sigma = sqrt(res->rss / res->dof);
+    res->sigma_dof = res->dof;
+    /* (JᵀJ)⁻¹ from QR with column pivoting on the column-equilibrated Jacobian, so that
+     * the rank test does not depend on the parameters' units (Misra1a: 5 decades). */
+    double cn[STAGECAL_FORM_MAXP];
+    for (size_t k = 0; k < p; k++) {
+        gsl_vector_view col = gsl_matrix_column(J, k);
+        cn[k] = gsl_blas_dnrm2(&col.vector);
+        if (cn[k] > 0)
+            gsl_vector_scale(&col.vector, 1.0 / cn[k]);
+    }
+    int gs = gsl_multifit_nlinear_covar(J, prm.rank_tol, C);
+    if (gs != GSL_SUCCESS) {
+        rc = error_set(err, STAGECAL_EINTERNAL, "regress: covariance failed: %s", gsl_strerror(gs));
+        goto done;
+    }
+    for (size_t i = 0; i < p; i++)
+        for (size_t j = 0; j < p; j++) {
+            double c = gsl_matrix_get(C, i, j);
+            /* a dependent column has zero norm or was dropped (zero row): flag it below */
+            gsl_matrix_set(C, i, j, cn[i] > 0 && cn[j] > 0 ? c / (cn[i] * cn[j]) : 0.0);
+        }
+    double s2 = scale ? res->sigma * res->sigma : 1.0;
+    res->tquant = gsl_cdf_tdist_Pinv(0.5 + 0.5 * prm.level, res->dof);
+    for (size_t i = 0; i < p; i++) {
+        for (size_t j = 0; j < p; j++)
+            res->cov[i * p + j] = s2 * gsl_matrix_get(C, i, j);
+        double v = res->cov[i * p + i];
+        if (!isfinite(v) || !(v >= 0) || !(gsl_matrix_get(C, i, i) > 0)) {
+            rc = error_set(err, STAGECAL_EDATA,
+                           "regress: form '%s': parameter '%s' is not identifiable from these "
+                           "points (singular JᵀWJ)",
+                           res->form.name, i < res->form.p ? res->form.param_names[i] : "?");
+            goto done;
+        }
+        res->se[i] = sqrt(v);
+        res->ci_low[i] = res->theta[i] - res->tquant * res->se[i];
+        res->ci_high[i] = res->theta[i] + res->tquant * res->se[i];
+    }
+done:
+    gsl_vector_free(rv);
+    gsl_vector_free(work);
+    gsl_matrix_free(J);
+    gsl_matrix_free(C);
+    return rc;
+}
+
+void stagecal_regress_envelope(const double *r, const double *f_load, size_t n,
+                               stagecal_regress_result *res)
+{
+    res->r_min = INFINITY;
+    res->r_max = 0;
+    res->has_total_reflux = 0;
+    res->f_min = f_load ? INFINITY : 0;
+    res->f_max = 0;
+    for (size_t i = 0; i < n; i++) {
+        if (isinf(r[i])) {
+            res->has_total_reflux = 1;
+        } else {
+            res->r_min = fmin(res->r_min, r[i]);
+            res->r_max = fmax(res->r_max, r[i]);
+        }
+        if (f_load) {
+            res->f_min = fmin(res->f_min, f_load[i]);
+            res->f_max = fmax(res->f_max, f_load[i]);
+        }
+    }
+    if (isinf(res->r_min))
+        res->r_min = 0; /* every point at total reflux */
+    if (isinf(res->f_min))
+        res->f_min = 0;
+}

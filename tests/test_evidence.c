@@ -1,0 +1,227 @@
+/*
+ * test_evidence.c — the unit of evidence (src/evidence.c): a window's autocorrelation-aware
+ * mean and standard error, the pooling of the autocorrelation, the builder that turns a run
+ * log's windows into evidence, and a window's stage count.
+ *
+ * Sources of truth: the variance of the mean of an AR(1) series (closed form), exact
+ * arithmetic of the pooling rule, and Fenske's closed form (REFERENCES §1) for the stage
+ * count of a window at total reflux.
+ */
+#define _GNU_SOURCE 1 /* open_memstream */
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "stagecal/evidence.h"
+#include "stagecal/runlog.h"
+#include "synth_calibration.h"
+#include "testutil.h"
+
+/* Constant α = 2.5 and stated analyser uncertainties; no load (no F-factor needed). */
+static stagecal_column test_col;
+
+static int setup(void **state)
+{
+    (void)state;
+    gsl_set_error_handler_off();
+    memset(&test_col, 0, sizeof test_col);
+    test_col.system.vle = stagecal_vle_alloc_alpha(2.5, NULL);
+    test_col.u = (stagecal_uncertainty){.xd = 0.002, .xb = 0.005, .w_mol = 5.0};
+    return test_col.system.vle ? 0 : -1;
+}
+
+static int teardown(void **state)
+{
+    (void)state;
+    stagecal_vle_free(test_col.system.vle);
+    return 0;
+}
+
+/* The standard error from stagecal_evidence_mean tracks the true standard deviation
+ * of a window mean of autocorrelated noise, where the naive s/√n is far too small. */
+static void evidence_se_matches_ar1(void **state)
+{
+    (void)state;
+    enum { N = 60, REPS = 4000 };
+    const double sigma = 1.0, rho = 0.7;
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 20261201);
+    double t[N], y[N], se_sum = 0, naive_sum = 0;
+    for (size_t i = 0; i < N; i++)
+        t[i] = 60.0 * (double)i;
+    for (int r = 0; r < REPS; r++) {
+        double mean, se, neff;
+        synth_ar1(rng, y, N, sigma, rho);
+        assert_int_equal(stagecal_evidence_mean(t, y, N, 0, &mean, &se, &neff, NULL), STAGECAL_OK);
+        se_sum += se;
+        double ss = 0, m = 0;
+        for (size_t i = 0; i < N; i++)
+            m += y[i] / N;
+        for (size_t i = 0; i < N; i++)
+            ss += (y[i] - m) * (y[i] - m);
+        naive_sum += sqrt(ss / (N - 1) / N);
+    }
+    /* The detrending removes a little variance (the slope), so compare with the
+     * closed form to 20 %: the AR(1) n_eff is an approximation (finite n, estimated ρ
+     * biased low in short series). The naive s/√n is ~2.4 times too small here. */
+    double truth = sqrt(synth_ar1_var_mean(sigma, rho, N));
+    assert_rel(se_sum / REPS, truth, 0.20, "AR(1) window-mean standard error");
+    assert_true(naive_sum / REPS < 0.6 * truth);
+    gsl_rng_free(rng);
+}
+
+static void evidence_needs_three(void **state)
+{
+    (void)state;
+    double t[3] = {0, 1, 2}, y[3] = {1, NAN, 2}, m, se;
+    stagecal_error err;
+    assert_int_equal(stagecal_evidence_mean(t, y, 3, 0, &m, &se, NULL, &err), STAGECAL_EINVAL);
+    assert_string_equal(err.text, "window mean needs at least 3 finite samples, got 2");
+}
+
+/* Pooling: the ρ of each analyser becomes the lag-pair-weighted mean, and each standard
+ * error is rescaled from s/√n_eff(ρ_own) to s/√n_eff(ρ_pooled) with the AR(1) n_eff =
+ * m(1 − ρ)/(1 + ρ) (Wilks 2011, eq. 5.12 — from memory). Windows: m = 41 and 21 (40 and 20
+ * lag pairs), ρ = 0.1 and 0.7 → pooled (40·0.1 + 20·0.7)/60 = 0.3. Exact arithmetic, so
+ * 1e-12 relative. A window without samples (m = 0) is left alone. */
+static void evidence_pool_rho_rescales(void **state)
+{
+    (void)state;
+    stagecal_evidence ev[3];
+    memset(ev, 0, sizeof ev);
+    ev[0].m_xd = ev[0].m_xb = 41, ev[0].rho_xd = ev[0].rho_xb = 0.1;
+    ev[1].m_xd = ev[1].m_xb = 21, ev[1].rho_xd = ev[1].rho_xb = 0.7;
+    ev[2].m_xd = 0, ev[2].m_xb = 0, ev[2].rho_xd = ev[2].rho_xb = 0.9;
+    for (int k = 0; k < 3; k++)
+        ev[k].u_xd = 0.001 * (k + 1), ev[k].u_xb = 0.002 * (k + 1);
+    stagecal_evidence_pool_rho(ev, 3);
+    const double pooled = (40 * 0.1 + 20 * 0.7) / 60.0;
+    double n0 = 41 * (1 - 0.1) / 1.1, n0p = 41 * (1 - pooled) / (1 + pooled);
+    double n1 = 21 * (1 - 0.7) / 1.7, n1p = 21 * (1 - pooled) / (1 + pooled);
+    assert_rel(ev[0].rho_xd, pooled, 1e-12, "pooled rho, xD");
+    assert_rel(ev[1].rho_xb, pooled, 1e-12, "pooled rho, xB");
+    assert_rel(ev[0].u_xd, 0.001 * sqrt(n0 / n0p), 1e-12, "u_xd window 0");
+    assert_rel(ev[1].u_xd, 0.002 * sqrt(n1 / n1p), 1e-12, "u_xd window 1");
+    assert_rel(ev[0].u_xb, 0.002 * sqrt(n0 / n0p), 1e-12, "u_xb window 0");
+    assert_rel(ev[2].rho_xd, 0.9, 0, "no samples: untouched");
+    assert_rel(ev[2].u_xd, 0.003, 0, "no samples: untouched");
+}
+
+/* A run log of 60 samples at a logged R = 3 whose W does not fall (no distillate): the
+ * column runs at total reflux. The pot composition is the one Fenske gives for N = 5 at
+ * xD = 0.95 (REFERENCES §1: xB/(1 − xB) = (xD/(1 − xD))/α^N), so the window's stage count is
+ * 5. Moved here from test_runlog.c (runlog_no_distillate_counts_at_total_reflux), where it
+ * read the run-log window's own mean (a second definition of a window's stage count, now
+ * gone). Tolerance: 4 of the window's standard
+ * errors plus the xB noise's own bias, a loose 0.2 stages (common practice, no source). */
+static char *no_distillate_log(size_t *len)
+{
+    const double xd = 0.95, q = (xd / (1 - xd)) / pow(2.5, 5.0), xb = q / (1 + q);
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 7);
+    char *buf = NULL;
+    FILE *out = open_memstream(&buf, len);
+    fprintf(out, "time[min],W[kmol],xD[mol/mol],xB[mol/mol],R[-]\n");
+    for (int i = 0; i < 60; i++)
+        fprintf(out, "%d,%.6f,%.6f,%.6f,3\n", 10 * i, 10 + gsl_ran_gaussian(rng, 0.005),
+                xd + gsl_ran_gaussian(rng, test_col.u.xd), xb + gsl_ran_gaussian(rng, 0.001));
+    fclose(out);
+    gsl_rng_free(rng);
+    return buf;
+}
+
+/* The no-distillate log read, analysed and inverted; free with stagecal_runlog_free and
+ * stagecal_runlog_result_free. */
+static stagecal_runlog *no_distillate_analysed(stagecal_runlog_result *res)
+{
+    size_t len = 0;
+    char *buf = no_distillate_log(&len);
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    assert_int_equal(
+        stagecal_runlog_read_buffer(log, buf, len, "nd.csv", &test_col, NULL, NULL, NULL), 0);
+    free(buf);
+    assert_int_equal(stagecal_runlog_analyse(log, &test_col, NULL, res, NULL), 0);
+    assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, NULL, res, NULL), 0);
+    assert_true(res->nwindows >= 1);
+    return log;
+}
+
+static void evidence_no_distillate_window_reads_fenske(void **state)
+{
+    (void)state;
+    stagecal_runlog_result res;
+    stagecal_evidence_set set;
+    stagecal_runlog *log = no_distillate_analysed(&res);
+    assert_int_equal(stagecal_evidence_build(log, &res, &test_col, 1.0, NULL, &set, NULL),
+                     STAGECAL_OK);
+    /* the run log's part: the stretch is flagged and noted as total reflux */
+    const stagecal_runlog_window *w = &res.windows[0];
+    assert_int_equal(w->total_reflux, 1);
+    assert_true(res.flags[w->first] & STAGECAL_SAMPLE_TOTAL_REFLUX);
+    assert_string_equal(stagecal_runlog_note_text(res.note[w->first]),
+                        "no distillate drawn: counted at total reflux");
+    const stagecal_evidence *e = stagecal_evidence_find(&set, 0);
+    assert_non_null(e);
+    assert_int_equal(e->window, 0);
+    assert_int_equal(e->total_reflux, 1);
+    assert_true(isinf(e->r));
+    assert_true(e->stages_ok);
+    print_message("no distillate: window of %zu, stages %.4f ± %.4f\n", e->n_samples, e->stages,
+                  e->se_stages);
+    assert_abs(e->stages, 5.0, 0.2, "stages at total reflux (Fenske N = 5)");
+    /* the carried samples are evenly thinned to max_samples (default 24) */
+    assert_int_equal(e->m, 24);
+    assert_null(e->s_cens);
+    stagecal_evidence_set_free(&set);
+    stagecal_evidence_set_free(NULL);
+    stagecal_runlog_result_free(&res);
+    stagecal_runlog_free(log);
+}
+
+/* The builder's refusals, each with its whole message (evidence.h contract). */
+static void evidence_build_refusals(void **state)
+{
+    (void)state;
+    stagecal_runlog_result res;
+    stagecal_evidence_set set;
+    stagecal_error err;
+    stagecal_runlog *log = no_distillate_analysed(&res);
+    stagecal_column novle = test_col;
+    novle.system.vle = NULL;
+    assert_int_equal(stagecal_evidence_build(log, &res, &novle, 1.0, NULL, &set, &err),
+                     STAGECAL_EINVAL);
+    assert_string_equal(err.text, "evidence: needs a run log, its analysis and a column with an "
+                                  "equilibrium model");
+    stagecal_evidence_params par = stagecal_evidence_default_params();
+    par.max_samples = 65;
+    assert_int_equal(stagecal_evidence_build(log, &res, &test_col, 1.0, &par, &set, &err),
+                     STAGECAL_EINVAL);
+    assert_string_equal(err.text, "evidence: max_samples 65 (expected 1 to 64)");
+    /* min_ok above the window's ok samples: the window stays evidence, without a count */
+    par = stagecal_evidence_default_params();
+    par.min_ok = 1000;
+    assert_int_equal(stagecal_evidence_build(log, &res, &test_col, 1.0, &par, &set, &err),
+                     STAGECAL_OK);
+    assert_true(set.n >= 1);
+    assert_false(set.ev[0].stages_ok);
+    assert_null(stagecal_evidence_find(&set, res.nwindows)); /* no such window */
+    stagecal_evidence_set_free(&set);
+    stagecal_runlog_result_free(&res);
+    stagecal_runlog_free(log);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(evidence_se_matches_ar1),
+        cmocka_unit_test(evidence_needs_three),
+        cmocka_unit_test(evidence_pool_rho_rescales),
+        cmocka_unit_test(evidence_no_distillate_window_reads_fenske),
+        cmocka_unit_test(evidence_build_refusals),
+    };
+    return cmocka_run_group_tests(tests, setup, teardown);
+}
