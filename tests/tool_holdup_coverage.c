@@ -1,0 +1,249 @@
+/*
+ * tool_holdup_coverage.c — coverage study of calibration on logs of a column WITH liquid
+ * holdup (tests/sim_dynamic.h: stage-by-stage dynamic simulator, constant stage count,
+ * column holdup 2–6 % of the charge), with and without the holdup compensation
+ * (include/stagecal/holdup.h).
+ *
+ *   usage: tool_holdup_coverage STAGECAL_BIN WORKDIR [DATASETS [SEED]]
+ *
+ * Each data set: a constant true stage count N (6, 7 or 8 incl. the pot, drawn), α = 2.4,
+ * 12 runs (R in {1.5, 2, 2.5, 3, 4}, V 0.7–1.3 mol/s, charge 22.5–27.5 kmol at xB0
+ * 0.45–0.55, 60 min total-reflux start-up, then production for up to 7 h), rows every
+ * 10 min with analyser noise u(xD) = 0.002, u(xB) = 0.003. The logs are calibrated with
+ * the program (`calibrate --json --dry-run`) as logged ("raw") and with xD replaced by the
+ * compensated xD,ss ("compensated"), forms `constant` (does the 95 % interval of a cover
+ * N?) and `linear:1+1/R` (does the interval of the 1/R coefficient cover 0?). Prints the
+ * coverage with a Wilson 95 % interval, the mean error of a and the mean 1/R coefficient.
+ * Progress on stderr. Not run by ctest (minutes of CPU).
+ */
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_rng.h>
+#include <jansson.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "sim_dynamic.h"
+#include "stagecal/column.h"
+#include "stagecal/holdup.h"
+#include "stagecal/runlog.h"
+
+#define NRUNS 12
+
+#define COLUMN_FMT                                                                                 \
+    "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"holdup-study\","                       \
+    "\"description\":\"SYNTHETIC: study column for tests/tool_holdup_coverage.c\","                \
+    "\"condenser\":\"total\",\"system\":{\"light\":{\"name\":\"light\"},"                          \
+    "\"heavy\":{\"name\":\"heavy\"},\"model\":{\"kind\":\"alpha\",\"alpha\":2.4}},"                \
+    "\"uncertainty\":{\"xd\":0.002,\"xb\":0.003},\"holdup\":{\"column_mol\":%.1f}}"
+
+struct tally {
+    int n, cover;
+    double sum_err;
+};
+
+/* Writes one data set's logs to path; returns N or −1. */
+static int simulate(gsl_rng *rng, const char *path, double *holdup)
+{
+    static const double rs[] = {1.5, 2.0, 2.5, 3.0, 4.0};
+    FILE *f = fopen(path, "w");
+    if (!f)
+        return -1;
+    fprintf(f, "run,time[h],W[mol],xD[mol/mol],xB[mol/mol],R[-],V[mol/s]\n");
+    int n = 6 + (int)gsl_rng_uniform_int(rng, 3);
+    *holdup = 0.02 + 0.04 * gsl_rng_uniform(rng);
+    for (int k = 0; k < NRUNS; k++) {
+        sim_dyn_params p = {2.4,
+                            n,
+                            25000 * (0.9 + 0.2 * gsl_rng_uniform(rng)),
+                            0.45 + 0.1 * gsl_rng_uniform(rng),
+                            *holdup,
+                            0,
+                            0.7 + 0.6 * gsl_rng_uniform(rng),
+                            3600,
+                            rs[k % 5],
+                            8 * 3600.0,
+                            120,
+                            0.002,
+                            0.003,
+                            0.08};
+        char run[16];
+        snprintf(run, sizeof run, "S%02d", k + 1);
+        if (sim_dyn_run(&p, rng, f, run, 24.0 * k) < 0) {
+            fclose(f);
+            return -1;
+        }
+    }
+    return fclose(f) == 0 ? n : -1;
+}
+
+/* Reads raw, compensates xD (kind), writes out (same rows); *tau receives the pooled τ. */
+static int compensate(const stagecal_column *col, stagecal_holdup_comp kind, const char *raw,
+                      const char *out, double *tau)
+{
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    stagecal_error e;
+    int rc = -1;
+    if (!log || stagecal_runlog_read(log, raw, col, NULL, NULL, &e) != 0) {
+        stagecal_runlog_free(log);
+        return -1;
+    }
+    stagecal_holdup_tau *t = calloc(log->nruns, sizeof *t);
+    double *xs = malloc(log->n * sizeof *xs);
+    stagecal_holdup_params hp = stagecal_holdup_default_params();
+    hp.source = STAGECAL_HOLDUP_STARTUP;
+    stagecal_holdup_model hm = {
+        kind, t, {0}, col->system.vle, col->holdup_column_mol, col->holdup_drum_mol};
+    if (t && xs &&
+        stagecal_holdup_estimate(log, col->u.xd, &hp, t, NULL, NULL, &hm.pooled, &e) == 0 &&
+        stagecal_holdup_compensate(log, &hm, &hp, xs, NULL, &e) == 0) {
+        *tau = hm.pooled.ok ? hm.pooled.tau_s : NAN;
+        FILE *f = fopen(out, "w");
+        if (f) {
+            fprintf(f, "run,time[h],W[mol],xD[mol/mol],xB[mol/mol],R[-],V[mol/s]\n");
+            for (size_t i = 0; i < log->n; i++) {
+                fprintf(f, "%s,%.6f,%.4f,", log->runs[log->run[i]].name, log->t_s[i] / 3600.0,
+                        log->w_mol[i]);
+                if (isfinite(xs[i]))
+                    fprintf(f, "%.6f", fmin(1, fmax(0, xs[i])));
+                fprintf(f, ",%.6f,", log->xb[i]);
+                if (isinf(log->r[i]))
+                    fprintf(f, "inf,");
+                else
+                    fprintf(f, "%.4g,", log->r[i]);
+                fprintf(f, "%.5f\n", log->v_mol_s[i]);
+            }
+            rc = fclose(f) == 0 ? 0 : -1;
+        }
+    }
+    free(t), free(xs);
+    stagecal_runlog_free(log);
+    return rc;
+}
+
+/* Runs the calibration; fills value/lo/hi of parameter `name` of the fit; 0 on success. */
+static int calibrate(const char *bin, const char *colpath, const char *logpath, const char *form,
+                     const char *name, double *v, double *lo, double *hi)
+{
+    char cmd[2048];
+    snprintf(cmd, sizeof cmd,
+             "'%s' calibrate --json --dry-run --quiet --form '%s' --column '%s' '%s' 2>/dev/null",
+             bin, form, colpath, logpath);
+    FILE *p = popen(cmd, "r");
+    if (!p)
+        return -1;
+    json_error_t je;
+    json_t *root = json_loadf(p, 0, &je);
+    pclose(p);
+    if (!root)
+        return -1;
+    int rc = -1;
+    json_t *par = json_object_get(root, "parameters");
+    size_t i;
+    json_t *it;
+    json_array_foreach(par, i, it)
+    {
+        const char *nm = json_string_value(json_object_get(it, "name"));
+        json_t *l = json_object_get(it, "ci_low"), *h = json_object_get(it, "ci_high");
+        if (nm && !strcmp(nm, name) && json_is_number(l) && json_is_number(h)) {
+            *v = json_number_value(json_object_get(it, "value"));
+            *lo = json_number_value(l);
+            *hi = json_number_value(h);
+            rc = 0;
+        }
+    }
+    json_decref(root);
+    return rc;
+}
+
+static void wilson(int k, int n, double *lo, double *hi)
+{
+    double z = 1.959963984540054, p = n ? (double)k / n : 0, d = 1 + z * z / n;
+    double c = (p + z * z / (2.0 * n)) / d,
+           h = z * sqrt(p * (1 - p) / n + z * z / (4.0 * n * n)) / d;
+    *lo = c - h, *hi = c + h;
+}
+
+static void report(const char *what, const struct tally *t)
+{
+    double lo, hi;
+    wilson(t->cover, t->n, &lo, &hi);
+    printf("| %s | %d | %.3f [%.3f, %.3f] | %+.3f |\n", what, t->n,
+           t->n ? (double)t->cover / t->n : 0.0, lo, hi, t->n ? t->sum_err / t->n : 0.0);
+}
+
+int main(int argc, char **argv)
+{
+    if (argc < 3) {
+        fprintf(stderr, "usage: tool_holdup_coverage STAGECAL_BIN WORKDIR [DATASETS [SEED]]\n");
+        return 2;
+    }
+    gsl_set_error_handler_off();
+    int sets = argc > 3 ? atoi(argv[3]) : 200;
+    unsigned long seed = argc > 4 ? strtoul(argv[4], NULL, 10) : 14UL;
+    char colpath[1024], paths[3][1024];
+    static const char *const names[3] = {"raw xD", "lag-compensated xD (start-up tau)",
+                                         "stage-holdup-compensated xD"};
+    snprintf(colpath, sizeof colpath, "%s/column.json", argv[2]);
+    snprintf(paths[0], sizeof paths[0], "%s/raw.csv", argv[2]);
+    snprintf(paths[1], sizeof paths[1], "%s/lag.csv", argv[2]);
+    snprintf(paths[2], sizeof paths[2], "%s/stages.csv", argv[2]);
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, seed);
+    struct tally ta[3] = {{0}}, tc[3] = {{0}};
+    double tau_sum = 0;
+    int tau_n = 0;
+    for (int s = 0; s < sets; s++) {
+        double hold = 0, tau = NAN;
+        int n = simulate(rng, paths[0], &hold);
+        FILE *cf = fopen(colpath, "w");
+        if (!cf || fprintf(cf, COLUMN_FMT, hold * 25000) < 0 || fclose(cf) != 0)
+            return 73;
+        stagecal_column col;
+        if (n < 0 || stagecal_column_load(colpath, &col, NULL) != 0)
+            return 70;
+        if (compensate(&col, STAGECAL_HOLDUP_COMP_LAG, paths[0], paths[1], &tau) != 0 ||
+            compensate(&col, STAGECAL_HOLDUP_COMP_STAGES, paths[0], paths[2], &tau) != 0) {
+            fprintf(stderr, "data set %d: compensation failed\n", s);
+            stagecal_column_free(&col);
+            continue;
+        }
+        stagecal_column_free(&col);
+        if (isfinite(tau))
+            tau_sum += tau, tau_n++;
+        for (int k = 0; k < 3; k++) {
+            double v, lo, hi;
+            if (calibrate(argv[1], colpath, paths[k], "constant", "a", &v, &lo, &hi) == 0) {
+                ta[k].n++;
+                ta[k].cover += lo <= n && n <= hi;
+                ta[k].sum_err += v - n;
+            }
+            if (calibrate(argv[1], colpath, paths[k], "linear:1+1/R", "1/R", &v, &lo, &hi) == 0) {
+                tc[k].n++;
+                tc[k].cover += lo <= 0 && 0 <= hi;
+                tc[k].sum_err += v;
+            }
+        }
+        if (isatty(2))
+            fprintf(stderr, "\r%d/%d data sets", s + 1, sets);
+    }
+    if (isatty(2))
+        fprintf(stderr, "\n");
+    printf("%d data sets (seed %lu), mean start-up time constant %.1f min\n\n", sets, seed,
+           tau_n ? tau_sum / tau_n / 60 : NAN);
+    printf("| quantity | fits | coverage of the 95 %% interval [Wilson 95 %%] | mean error |\n");
+    printf("|---|---|---|---|\n");
+    char what[160];
+    for (int k = 0; k < 3; k++) {
+        snprintf(what, sizeof what, "constant a vs true N, %s", names[k]);
+        report(what, &ta[k]);
+    }
+    for (int k = 0; k < 3; k++) {
+        snprintf(what, sizeof what, "1/R coefficient vs 0, %s", names[k]);
+        report(what, &tc[k]);
+    }
+    gsl_rng_free(rng);
+    return 0;
+}
