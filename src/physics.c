@@ -21,6 +21,11 @@
  * T_reflux (Wankat, P. C. (2012), Separation Process Engineering, 3rd ed., Prentice Hall,
  * ch. 4, from memory). λ is the distillate's molar latent heat: x·λ_light + (1 − x)·λ_heavy
  * when both are given, else system.latent_heat_j_mol. T_bubble is at the top pressure.
+ *
+ * Unequal latent heats. With both components' latent heats given (and different) the rows
+ * are stepped in pseudo-moles (src/vle_pseudo.c): xD and xB are transformed, the model is
+ * the transformed one, R is unchanged (reflux and distillate share one composition, so
+ * their pseudo-molar ratio is the molar one), and xB of a forward step is transformed back.
  */
 #include "stagecal/physics.h"
 
@@ -72,16 +77,19 @@ stagecal_physics_params stagecal_physics_default_params(void)
 }
 
 struct cache_entry {
-    double p_pa;        /* pressure the model was built at (after rounding) */
-    stagecal_vle *vle;  /* owned */
-    unsigned long used; /* stamp of the last use (least recently used goes first) */
+    double p_pa;          /* pressure the model was built at (after rounding) */
+    stagecal_vle *vle;    /* owned */
+    stagecal_vle *pseudo; /* owned: vle in pseudo-moles (NULL without unequal latent heats) */
+    unsigned long used;   /* stamp of the last use (least recently used goes first) */
 };
 
 struct stagecal_physics {
     const stagecal_column *col;
     stagecal_physics_params par;
-    struct cache_entry *e; /* par.cache_size entries */
-    size_t n;              /* entries filled */
+    struct cache_entry *e;     /* par.cache_size entries */
+    double ratio;              /* λ_light/λ_heavy for the pseudo-mole transform (0 = none) */
+    stagecal_vle *base_pseudo; /* the column's own model in pseudo-moles (owned) */
+    size_t n;                  /* entries filled */
     unsigned long clock;
 };
 
@@ -107,6 +115,15 @@ stagecal_physics *stagecal_physics_alloc(const stagecal_column *col,
         error_set(err, STAGECAL_ENOMEM, "out of memory");
         return NULL;
     }
+    const stagecal_system *s = &col->system;
+    if (s->latent_light_j_mol > 0 && s->latent_heavy_j_mol > 0 &&
+        s->latent_light_j_mol != s->latent_heavy_j_mol) {
+        ph->ratio = s->latent_light_j_mol / s->latent_heavy_j_mol;
+        if (!(ph->base_pseudo = stagecal_vle_alloc_pseudo(s->vle, ph->ratio, err))) {
+            stagecal_physics_free(ph);
+            return NULL;
+        }
+    }
     return ph;
 }
 
@@ -114,20 +131,26 @@ void stagecal_physics_free(stagecal_physics *ph)
 {
     if (!ph)
         return;
-    for (size_t i = 0; i < ph->n; i++)
+    for (size_t i = 0; i < ph->n; i++) {
+        stagecal_vle_free(ph->e[i].pseudo);
         stagecal_vle_free(ph->e[i].vle);
+    }
+    stagecal_vle_free(ph->base_pseudo);
     free(ph->e);
     free(ph);
 }
 
-/* The column's model at p_pa (the column's own when the pressure rounds to its one). */
-static const stagecal_vle *vle_at(stagecal_physics *ph, double p_pa, stagecal_error *err)
+/* The column's model at p_pa (the column's own when the pressure rounds to its one);
+ * *pseudo receives its pseudo-mole twin (NULL without unequal latent heats). */
+static const stagecal_vle *vle_at(stagecal_physics *ph, double p_pa, const stagecal_vle **pseudo,
+                                  stagecal_error *err)
 {
     const stagecal_vle *base = ph->col->system.vle;
     double res = ph->par.p_resolution_pa;
     double p = res > 0 ? res * nearbyint(p_pa / res) : p_pa;
     if (!(p > 0))
         p = res > 0 ? res : p_pa;
+    *pseudo = ph->base_pseudo;
     if (p == stagecal_vle_pressure(base))
         return base;
     ph->clock++;
@@ -135,6 +158,7 @@ static const stagecal_vle *vle_at(stagecal_physics *ph, double p_pa, stagecal_er
     for (size_t i = 0; i < ph->n; i++) {
         if (ph->e[i].p_pa == p) {
             ph->e[i].used = ph->clock;
+            *pseudo = ph->e[i].pseudo;
             return ph->e[i].vle;
         }
         if (ph->e[i].used < ph->e[victim].used)
@@ -142,14 +166,19 @@ static const stagecal_vle *vle_at(stagecal_physics *ph, double p_pa, stagecal_er
     }
     if (ph->n < ph->par.cache_size)
         victim = ph->n;
-    stagecal_vle *v = stagecal_vle_at_pressure(base, p, err);
-    if (!v)
+    stagecal_vle *v = stagecal_vle_at_pressure(base, p, err), *vp = NULL;
+    if (!v || (ph->ratio > 0 && !(vp = stagecal_vle_alloc_pseudo(v, ph->ratio, err)))) {
+        stagecal_vle_free(v);
         return NULL;
-    if (victim < ph->n)
+    }
+    if (victim < ph->n) {
+        stagecal_vle_free(ph->e[victim].pseudo);
         stagecal_vle_free(ph->e[victim].vle);
-    else
+    } else {
         ph->n++;
-    ph->e[victim] = (struct cache_entry){p, v, ph->clock};
+    }
+    ph->e[victim] = (struct cache_entry){p, v, vp, ph->clock};
+    *pseudo = vp;
     return v;
 }
 
@@ -172,32 +201,39 @@ int stagecal_physics_cond_at(stagecal_physics *ph, double p_top_pa, double xd, d
     const stagecal_system *s = &col->system;
     memset(cond, 0, sizeof *cond);
     cond->reflux = cond->r_int = reflux;
-    cond->vle = cond->vle_pot = s->vle;
+    const stagecal_vle *top = s->vle, *pot = s->vle, *top_ps = ph->base_pseudo,
+                       *pot_ps = ph->base_pseudo;
     int logged = isfinite(p_top_pa) && p_top_pa > 0;
     if (stagecal_vle_has_pressure(s->vle)) {
         double p = logged ? p_top_pa : stagecal_vle_pressure(s->vle);
-        if (!(cond->vle = vle_at(ph, p, err)))
+        if (!(top = vle_at(ph, p, &top_ps, err)))
             return err ? err->code : STAGECAL_ENOMEM;
-        cond->vle_pot = cond->vle;
+        pot = top, pot_ps = top_ps;
         if (col->pressure_drop_pa > 0) {
-            if (!(cond->vle_pot = vle_at(ph, p + col->pressure_drop_pa, err)))
+            if (!(pot = vle_at(ph, p + col->pressure_drop_pa, &pot_ps, err)))
                 return err ? err->code : STAGECAL_ENOMEM;
             cond->flags |= STAGECAL_PHYS_POT_DROP;
         }
-        cond->p_top_pa = stagecal_vle_pressure(cond->vle);
+        cond->p_top_pa = stagecal_vle_pressure(top);
         if (logged)
             cond->flags |= STAGECAL_PHYS_PRESSURE;
     } else if (logged) {
         cond->flags |= STAGECAL_PHYS_PRESSURE_UNUSED;
     }
+    cond->vle = top, cond->vle_pot = pot;
+    if (ph->ratio > 0) { /* step in pseudo-moles */
+        cond->vle = top_ps, cond->vle_pot = pot_ps;
+        cond->pseudo_ratio = ph->ratio;
+        cond->flags |= STAGECAL_PHYS_PSEUDO;
+    }
     if (!isfinite(t_reflux_k) || !isfinite(reflux) || reflux == 0)
         return STAGECAL_OK;
     double lam = latent_at(s, xd), tb;
-    if (!(s->cp_liquid_j_mol_k > 0) || !(lam > 0) || !stagecal_vle_has_temperature(cond->vle)) {
+    if (!(s->cp_liquid_j_mol_k > 0) || !(lam > 0) || !stagecal_vle_has_temperature(top)) {
         cond->flags |= STAGECAL_PHYS_SUBCOOL_UNUSED;
         return STAGECAL_OK;
     }
-    int rc = stagecal_vle_tbubble(cond->vle, xd, &tb);
+    int rc = stagecal_vle_tbubble(top, xd, &tb);
     if (rc != STAGECAL_OK)
         return error_set(err, rc, "bubble point of xD = %g failed", xd);
     if ((rc = stagecal_internal_reflux(reflux, s->cp_liquid_j_mol_k, tb - t_reflux_k, lam,
@@ -206,6 +242,13 @@ int stagecal_physics_cond_at(stagecal_physics *ph, double p_top_pa, double xd, d
     if (cond->r_int != reflux)
         cond->flags |= STAGECAL_PHYS_SUBCOOLED;
     return STAGECAL_OK;
+}
+
+/* d(x')/dx of the pseudo-mole transform with ratio a. */
+static double pseudo_slope(double a, double x)
+{
+    double d = a * x + 1.0 - x;
+    return a / (d * d);
 }
 
 /* The liquid under the column's model whose vapour equals the pot's vapour over xb. */
@@ -228,8 +271,13 @@ int stagecal_physics_invert(const stagecal_physics_cond *cond, double xd, double
 {
     if (!cond || !res)
         return error_set(err, STAGECAL_EINVAL, "NULL argument");
-    double xb_in = xb, scale_xb = 1.0;
-    if (cond->vle_pot != cond->vle && xb < xd && pot_equivalent(cond, xb, &xb_in, &scale_xb)) {
+    double a = cond->pseudo_ratio, scale_xd = 1.0, scale_xb = 1.0;
+    if (a > 0) { /* to pseudo-moles: the count is the same number of stages */
+        scale_xd = pseudo_slope(a, xd), scale_xb = pseudo_slope(a, xb);
+        xd = stagecal_vle_to_pseudo(a, xd), xb = stagecal_vle_to_pseudo(a, xb);
+    }
+    double xb_in = xb, scale_pot = 1.0;
+    if (cond->vle_pot != cond->vle && xb < xd && pot_equivalent(cond, xb, &xb_in, &scale_pot)) {
         memset(res, 0, sizeof *res);
         res->status = STAGECAL_STAGES_INVALID;
         snprintf(res->reason, sizeof res->reason,
@@ -239,7 +287,10 @@ int stagecal_physics_invert(const stagecal_physics_cond *cond, double xd, double
     int rc = stagecal_stages_invert(cond->vle, xd, xb_in, cond->r_int, murphree, params, res, err);
     if (rc != STAGECAL_OK || res->status != STAGECAL_STAGES_OK)
         return rc;
-    res->dstages_dxb *= scale_xb;
+    res->dstages_dxb *= scale_pot * scale_xb;
+    res->dstages_dxd *= scale_xd;
+    if (a > 0) /* x_target back in true moles */
+        res->x_target = stagecal_vle_from_pseudo(a, res->x_target);
     if (isfinite(cond->reflux) && cond->reflux > 0)
         res->dstages_dr *= cond->r_int / cond->reflux; /* ∂R_int/∂R at fixed ΔT, λ */
     return STAGECAL_OK;
@@ -252,13 +303,17 @@ int stagecal_physics_step(const stagecal_physics_cond *cond, double xd, double s
     if (!cond || !xb || !status)
         return error_set(err, STAGECAL_EINVAL, "NULL argument");
     size_t len;
-    int rc = stagecal_stages_step(cond->vle, xd, cond->r_int, stages, murphree, params, xb, NULL, 0,
-                                  &len, status, err);
-    if (rc != STAGECAL_OK || *status != STAGECAL_STAGES_OK || cond->vle_pot == cond->vle)
+    double a = cond->pseudo_ratio;
+    int rc =
+        stagecal_stages_step(cond->vle, a > 0 ? stagecal_vle_to_pseudo(a, xd) : xd, cond->r_int,
+                             stages, murphree, params, xb, NULL, 0, &len, status, err);
+    if (rc != STAGECAL_OK || *status != STAGECAL_STAGES_OK)
         return rc;
     double y;
-    if ((rc = stagecal_vle_ystar(cond->vle, *xb, &y)) ||
-        (rc = stagecal_vle_xstar(cond->vle_pot, y, xb)))
+    if (cond->vle_pot != cond->vle && ((rc = stagecal_vle_ystar(cond->vle, *xb, &y)) ||
+                                       (rc = stagecal_vle_xstar(cond->vle_pot, y, xb))))
         return error_set(err, rc, "the pot's liquid at its own pressure failed");
+    if (a > 0) /* outputs in true moles */
+        *xb = stagecal_vle_from_pseudo(a, *xb);
     return STAGECAL_OK;
 }

@@ -41,6 +41,7 @@ static const char *const kind_names[] = {
     [STAGECAL_VLE_TABLE] = "table",     [STAGECAL_VLE_IDEAL] = "ideal",
     [STAGECAL_VLE_WILSON] = "wilson",   [STAGECAL_VLE_NRTL] = "nrtl",
     [STAGECAL_VLE_VANLAAR] = "vanlaar", [STAGECAL_VLE_MARGULES] = "margules",
+    [STAGECAL_VLE_PSEUDO] = "pseudo",
 };
 
 const char *stagecal_vle_kind_name(stagecal_vle_kind kind)
@@ -149,6 +150,10 @@ stagecal_vle *stagecal_vle_alloc_kvalue(double k, stagecal_error *err)
 
 void stagecal_vle_get_definition(const stagecal_vle *vle, stagecal_vle_definition *def)
 {
+    if (vle->kind == STAGECAL_VLE_PSEUDO) {
+        stagecal_vle_get_definition(vle->base, def); /* a pseudo model is not stored */
+        return;
+    }
     memset(def, 0, sizeof *def);
     def->kind = vle->kind;
     def->vp = vle->vp;
@@ -215,6 +220,8 @@ int stagecal_vle_has_temperature(const stagecal_vle *vle)
 
 double stagecal_vle_x_max(const stagecal_vle *vle)
 {
+    if (vle->kind == STAGECAL_VLE_PSEUDO)
+        return vle_pseudo_x_max(vle);
     return vle->kind == STAGECAL_VLE_KVALUE ? 1.0 / vle->k : 1.0;
 }
 
@@ -225,6 +232,8 @@ unsigned stagecal_vle_antoine_flags(const stagecal_vle *vle)
 
 double stagecal_vle_pressure(const stagecal_vle *vle)
 {
+    if (vle->kind == STAGECAL_VLE_PSEUDO)
+        return stagecal_vle_pressure(vle->base);
     return vle_is_activity(vle->kind) ? vle->p_pa : 0.0;
 }
 
@@ -248,6 +257,8 @@ int stagecal_vle_ystar(const stagecal_vle *vle, double x, double *y)
     case STAGECAL_VLE_KVALUE:
         *y = vle->k * x;
         return STAGECAL_OK;
+    case STAGECAL_VLE_PSEUDO:
+        return vle_pseudo_ystar(vle, x, y);
     default:
         if (vle->vp.exact && vle_is_activity(vle->kind))
             return stagecal_vle_ystar_exact(vle, x, y, NULL);
@@ -267,6 +278,8 @@ int stagecal_vle_xstar(const stagecal_vle *vle, double y, double *x)
     case STAGECAL_VLE_KVALUE:
         *x = y / vle->k;
         return STAGECAL_OK;
+    case STAGECAL_VLE_PSEUDO:
+        return vle_pseudo_xstar(vle, y, x);
     default:
         if (vle->vp.exact && vle_is_activity(vle->kind))
             return vle_xstar_exact(vle, y, x);
@@ -287,6 +300,8 @@ int stagecal_vle_dydx(const stagecal_vle *vle, double x, double *dydx)
     case STAGECAL_VLE_KVALUE:
         *dydx = vle->k;
         return STAGECAL_OK;
+    case STAGECAL_VLE_PSEUDO:
+        return vle_pseudo_dydx(vle, x, dydx);
     default:
         if (vle->vp.exact && vle_is_activity(vle->kind)) {
             double y, t, dtdx;
@@ -305,6 +320,8 @@ int stagecal_vle_tbubble(const stagecal_vle *vle, double x, double *t_k)
 {
     if (!vle->has_t || !(x >= 0.0 && x <= stagecal_vle_x_max(vle)))
         return STAGECAL_EINVAL;
+    if (vle->kind == STAGECAL_VLE_PSEUDO)
+        return vle_pseudo_tbubble(vle, x, t_k);
     if (vle->kind == STAGECAL_VLE_TABLE) {
         *t_k = vle_herm_eval(vle, vle->ts, vle->mts, x);
         return STAGECAL_OK;

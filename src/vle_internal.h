@@ -53,7 +53,17 @@ struct stagecal_vle {
     double t_lo, t_hi; /* range of node temperatures [K] */
     size_t naz;        /* number of azeotropes found at alloc */
     double az[VLE_MAX_AZ];
+    /* PSEUDO: the model transformed (vle_pseudo.c); base is not owned */
+    const stagecal_vle *base;
+    double pseudo_a; /* λ_light/λ_heavy */
 };
+
+/* vle_pseudo.c */
+double vle_pseudo_x_max(const stagecal_vle *v);
+int vle_pseudo_ystar(const stagecal_vle *v, double xp, double *yp);
+int vle_pseudo_xstar(const stagecal_vle *v, double yp, double *xp);
+int vle_pseudo_dydx(const stagecal_vle *v, double xp, double *dydx);
+int vle_pseudo_tbubble(const stagecal_vle *v, double xp, double *t_k);
 
 /* vle.c */
 

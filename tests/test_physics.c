@@ -277,6 +277,51 @@ static void physics_column_members(void **state)
     }
 }
 
+/* A column without constant molar overflow, simulated here stage by stage: constant
+ * per-component latent heats λL, λH, saturated liquids of equal enthalpy and no heat of
+ * mixing, so every stage's energy balance reads V(j+1)·λ(y(j+1)) = V(j)·λ(y(j)) with
+ * λ(y) = y·λL + (1 − y)·λH; with the rectifying balances V(j+1) = L(j) + D and
+ * V(j+1)·y(j+1) = L(j)·x(j) + D·xD that gives L(j) in closed form at each stage. Constant
+ * α = 2.2 between stages, D = 1, R = 2.5, N = 8 (7 column stages + pot). The inversion with
+ * both latent heats in the column file (pseudo-moles) counts 8 stages to 1e-9 (the brief's
+ * bound is 1e-6; the transform is exact, what remains is the stepping's own round trip);
+ * the plain (equal-latent-heat) inversion does not. */
+static void physics_unequal_latent_heats_exact(void **state)
+{
+    (void)state;
+    const double alpha = 2.2, xd = 0.96, r = 2.5, ll = 38000, lh = 44000, d = 1;
+    double e = (r + 1) * d * (xd * ll + (1 - xd) * lh); /* V1·λ(y1), y1 = xD */
+    double y = xd, x = 0;
+    for (int n = 1; n <= 8; n++) {
+        x = y / (alpha - (alpha - 1) * y); /* equilibrium liquid of stage n (n = 8: the pot) */
+        double l = (e - d * lh - (ll - lh) * d * xd) / (lh + (ll - lh) * x);
+        y = (l * x + d * xd) / (l + d);
+    }
+    const char *json =
+        "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"a\",\"condenser\":\"total\","
+        "\"system\":{\"light\":{\"name\":\"l\",\"latent_heat_j_mol\":38000},"
+        "\"heavy\":{\"name\":\"h\",\"latent_heat_j_mol\":44000},"
+        "\"model\":{\"kind\":\"alpha\",\"alpha\":2.2}}}";
+    stagecal_column col = load(json);
+    stagecal_physics *ph = stagecal_physics_alloc(&col, NULL, NULL);
+    stagecal_physics_cond c;
+    assert_int_equal(stagecal_physics_cond_at(ph, NAN, xd, r, NAN, &c, NULL), 0);
+    assert_true(c.flags & STAGECAL_PHYS_PSEUDO);
+    stagecal_stages_result res;
+    assert_int_equal(stagecal_physics_invert(&c, xd, x, 1.0, NULL, &res, NULL), 0);
+    assert_int_equal(res.status, STAGECAL_STAGES_OK);
+    assert_abs(res.stages, 8.0, 1e-9, "non-CMO column in pseudo-moles");
+    double xb;
+    int st;
+    assert_int_equal(stagecal_physics_step(&c, xd, 8.0, 1.0, NULL, &xb, &st, NULL), 0);
+    assert_abs(xb, x, 1e-12, "forward step back in true moles");
+    stagecal_stages_result plain;
+    assert_int_equal(stagecal_stages_invert(col.system.vle, xd, x, r, 1.0, NULL, &plain, NULL), 0);
+    assert_true(fabs(plain.stages - 8.0) > 0.05);
+    stagecal_physics_free(ph);
+    stagecal_column_free(&col);
+}
+
 int main(void)
 {
     gsl_set_error_handler_off();
@@ -288,6 +333,7 @@ int main(void)
         cmocka_unit_test(physics_pot_pressure_drop),
         cmocka_unit_test(physics_unused_inputs_warn),
         cmocka_unit_test(physics_column_members),
+        cmocka_unit_test(physics_unequal_latent_heats_exact),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -10,7 +10,10 @@
  *                     (Wankat, P. C. (2012), Separation Process Engineering, 3rd ed.,
  *                     Prentice Hall, ch. 4, from memory), which replaces R in the
  *                     operating line: L/V = R_int/(R_int + 1);
- *   unequal latent    heats: see stagecal/pseudo.h (pseudo-mole transformation).
+ *   unequal latent    heats: with both components' latent heats in the column file the
+ *                     stepping runs in pseudo-moles (stagecal_vle_alloc_pseudo: one mole of
+ *                     the light component counts as λ_light/λ_heavy), where constant molar
+ *                     overflow is exact; compositions in and out are true mole fractions.
  *
  * A `stagecal_physics` object belongs to one column; it keeps the equilibrium models it
  * built for the pressures met so far (a cache), so it is NOT safe to share between
@@ -51,7 +54,8 @@ enum {
     STAGECAL_PHYS_PRESSURE_UNUSED = 1u << 1, /* a pressure was logged, the model has none */
     STAGECAL_PHYS_SUBCOOLED = 1u << 2,       /* R_int differs from R */
     STAGECAL_PHYS_SUBCOOL_UNUSED = 1u << 3,  /* T_reflux logged, but no cp, λ or T_bubble */
-    STAGECAL_PHYS_POT_DROP = 1u << 4         /* the pot sits at a higher pressure */
+    STAGECAL_PHYS_POT_DROP = 1u << 4,        /* the pot sits at a higher pressure */
+    STAGECAL_PHYS_PSEUDO = 1u << 5           /* stepped in pseudo-moles (unequal latent heats) */
 };
 
 typedef struct {
@@ -78,6 +82,8 @@ typedef struct {
     double p_top_pa;             /* top pressure used [Pa] (0: the model has no pressure) */
     double reflux;               /* logged (external) reflux ratio [-] */
     double r_int;                /* internal reflux ratio [-], what the operating line uses */
+    double pseudo_ratio;         /* λ_light/λ_heavy when vle and vle_pot are pseudo-mole models
+                                    (compositions are transformed on the way in and out); 0 none */
     unsigned flags;              /* STAGECAL_PHYS_* */
 } stagecal_physics_cond;
 
@@ -89,9 +95,11 @@ int stagecal_physics_cond_at(stagecal_physics *ph, double p_top_pa, double xd, d
                              double t_reflux_k, stagecal_physics_cond *cond, stagecal_error *err);
 
 /* Inversion under cond: as stagecal_stages_invert with cond->vle and R = cond->r_int, the
- * pot's vapour taken from cond->vle_pot. res->lv is the internal L/V; the sensitivities
- * (when params ask for them) are with respect to the logged xD, xB and external R (the
- * ∂/∂xD through T_bubble(xD) in R_int is left out: ~1e-5·R per 0.01 of xD). */
+ * pot's vapour taken from cond->vle_pot, xD and xB in pseudo-moles when cond says so (the
+ * external R is the same in pseudo-moles: reflux and distillate have one composition). res->lv is
+ * the internal L/V; the sensitivities (when params ask for them) are with respect to the logged xD,
+ * xB and external R (the ∂/∂xD through T_bubble(xD) in R_int is left out: ~1e-5·R per 0.01 of xD).
+ */
 int stagecal_physics_invert(const stagecal_physics_cond *cond, double xd, double xb,
                             double murphree, const stagecal_stages_params *params,
                             stagecal_stages_result *res, stagecal_error *err);

@@ -37,7 +37,8 @@ typedef enum {
     STAGECAL_VLE_WILSON,
     STAGECAL_VLE_NRTL,
     STAGECAL_VLE_VANLAAR,
-    STAGECAL_VLE_MARGULES
+    STAGECAL_VLE_MARGULES,
+    STAGECAL_VLE_PSEUDO /* another model in pseudo-moles (stagecal_vle_alloc_pseudo) */
 } stagecal_vle_kind;
 
 /* Antoine equation in the NIST WebBook form: log10(P/bar) = a − b/(T/K + c),
@@ -94,6 +95,16 @@ stagecal_vle_params stagecal_vle_default_params(void);
 stagecal_vle *stagecal_vle_alloc_activity(stagecal_vle_kind kind, const stagecal_antoine ant[2],
                                           const double *params, size_t nparam, double p_pa,
                                           const stagecal_vle_params *vp, stagecal_error *err);
+/* The equal-latent-heat (pseudo-mole) transform of base: one mole of the light component
+ * counts as ratio = λ_light/λ_heavy pseudo-moles, so x' = ratio·x/(ratio·x + 1 − x) and the
+ * model answers y'*(x') = T(y*(T⁻¹(x'))) (src/vle_pseudo.c). base is not copied and must
+ * outlive the result; it cannot itself be a pseudo model. Not storable: its definition is
+ * the base's. NULL with EINVAL or ENOMEM. */
+stagecal_vle *stagecal_vle_alloc_pseudo(const stagecal_vle *base, double ratio,
+                                        stagecal_error *err);
+/* The transformation of a mole fraction to pseudo-moles and back. */
+double stagecal_vle_to_pseudo(double ratio, double x);
+double stagecal_vle_from_pseudo(double ratio, double xp);
 void stagecal_vle_free(stagecal_vle *vle); /* NULL is a no-op */
 
 stagecal_vle_kind stagecal_vle_get_kind(const stagecal_vle *vle);
