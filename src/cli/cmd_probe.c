@@ -17,12 +17,13 @@
 #include "stagecal/convention.h"
 #include "stagecal/design.h"
 #include "stagecal/model.h"
+#include "stagecal/plot.h"
 
 static const char usage_text[] =
     "usage: stagecal probe MODEL.json --at R[:F][,R[:F]...] [--weights W[,W...]]\n"
     "                      [--reflux-range LO:HI] [--f-factor-range LO:HI] [--tests K]\n"
     "                      [--criterion i|d] [--sample-interval MIN] [--seed N]\n"
-    "                      [--json] [--quiet]\n"
+    "                      [--chart FILE.png|svg|pdf] [--json] [--quiet]\n"
     "\n"
     "Where to run the next tests: K test conditions inside the ranges that shrink the\n"
     "95 % confidence band of stages at the conditions of interest most (I-optimal: the\n"
@@ -43,6 +44,8 @@ static const char usage_text[] =
     "  --criterion i|d       I-optimal (default) or D-optimal\n"
     "  --sample-interval MIN minutes between logged samples, for the durations (10)\n"
     "  --seed N              seed of the random starts of the search (1)\n"
+    "  --chart FILE          also draw stages against R with the band before and after\n"
+    "                        the tests (PNG, SVG or PDF by extension)\n"
     "  --json                one JSON document on stdout\n"
     "  --quiet               no warnings on stderr\n"
     "  -h, --help            this text\n"
@@ -254,6 +257,91 @@ static void print_text(const char *path, const stagecal_model *m, const stagecal
            stagecal_caution_text());
 }
 
+#define CHART_N 121
+
+/* Stages against R with the 95 % band before and after the tests, the tests and the
+ * conditions of interest (load forms: at the first condition's F). */
+static int write_chart(const char *out, const stagecal_model *m, const stagecal_design_problem *pb,
+                       const stagecal_design_result *res, const stagecal_design_at *at, size_t n_at)
+{
+    double x[CHART_N], y[CHART_N], b0l[CHART_N], b0h[CHART_N], b1l[CHART_N], b1h[CHART_N];
+    double tx[STAGECAL_DESIGN_MAXK], ty[STAGECAL_DESIGN_MAXK], ax[MAX_AT], ay[MAX_AT];
+    double f = m->form.uses_load ? at[0].f_load : NAN, lo = res->r_lo, hi = 0;
+    size_t nt = 0, skipped = 0;
+    for (size_t j = 0; j < n_at; j++) {
+        lo = fmin(lo, at[j].r);
+        if (isfinite(at[j].r))
+            hi = fmax(hi, at[j].r);
+        ax[j] = at[j].r;
+        ay[j] = at[j].stages;
+    }
+    hi = fmax(hi, isfinite(res->r_hi) ? res->r_hi : fmax(lo, isfinite(m->r_max) ? m->r_max : lo));
+    for (size_t t = 0; t < res->k; t++) {
+        stagecal_model_point pt;
+        if (!isfinite(res->tests[t].r)) {
+            skipped++;
+            continue;
+        }
+        hi = fmax(hi, res->tests[t].r);
+        tx[nt] = res->tests[t].r;
+        ty[nt] = stagecal_model_eval(m, tx[nt], f, 0, &pt, NULL) ? NAN : pt.stages;
+        nt++;
+    }
+    for (size_t i = 0; i < CHART_N; i++) {
+        stagecal_model_point pt;
+        double v0, v1;
+        int d0, d1;
+        x[i] = lo + (hi - lo) * (double)i / (CHART_N - 1);
+        if (stagecal_model_eval(m, x[i], f, 0, &pt, NULL) ||
+            stagecal_design_variance(pb, NULL, 0, x[i], f, &v0, &d0, NULL) ||
+            stagecal_design_variance(pb, res->tests, res->k, x[i], f, &v1, &d1, NULL)) {
+            y[i] = b0l[i] = b0h[i] = b1l[i] = b1h[i] = NAN;
+            continue;
+        }
+        y[i] = pt.stages;
+        b0l[i] = d0 ? y[i] - res->t_before * sqrt(v0) : NAN;
+        b0h[i] = d0 ? y[i] + res->t_before * sqrt(v0) : NAN;
+        b1l[i] = d1 ? y[i] - res->t_after * sqrt(v1) : NAN;
+        b1h[i] = d1 ? y[i] + res->t_after * sqrt(v1) : NAN;
+    }
+    if (skipped)
+        cli_warn("%zu test(s) at total reflux are not drawn on the R axis", skipped);
+    stagecal_plot_series s[5] = {
+        {STAGECAL_PLOT_BAND, "95 % band now", x, b0l, b0h, CHART_N, 5, 0, 0, 0},
+        {STAGECAL_PLOT_BAND, "95 % band after the tests (expected)", x, b1l, b1h, CHART_N, 0, 0, 0,
+         0},
+        {STAGECAL_PLOT_LINE, "fitted stages", x, y, NULL, CHART_N, 6, 0, 0, 0},
+        {STAGECAL_PLOT_POINTS, "proposed tests", tx, ty, NULL, nt, 1, 0, 2, 1.5},
+        {STAGECAL_PLOT_POINTS, "conditions of interest", ax, ay, NULL, n_at, 2, 0, 0, 1.5}};
+    char title[160];
+    if (m->form.uses_load)
+        snprintf(title, sizeof title, "%s: where to run the next tests (F = %.3g Pa^0.5)",
+                 m->column_id, f);
+    else
+        snprintf(title, sizeof title, "%s: where to run the next tests", m->column_id);
+    stagecal_plot_chart ch = {title,
+                              "reflux ratio R [-]",
+                              "stages incl. pot [-]",
+                              NAN,
+                              NAN,
+                              NAN,
+                              NAN,
+                              0,
+                              1,
+                              1,
+                              s,
+                              nt ? 5 : 3,
+                              NULL};
+    if (nt == 0) { /* keep the conditions of interest when every test is at total reflux */
+        s[3] = s[4];
+        ch.n_series = 4;
+    }
+    stagecal_plot_params pp = stagecal_plot_default_params();
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    return stagecal_plot_write(&ch, out, &pp, &err) ? cli_fail(&err) : 0;
+}
+
 int cmd_probe(int argc, char **argv)
 {
     enum {
@@ -265,6 +353,7 @@ int cmd_probe(int argc, char **argv)
         O_CRIT,
         O_INTERVAL,
         O_SEED,
+        O_CHART,
         O_JSON,
         O_QUIET
     };
@@ -276,6 +365,7 @@ int cmd_probe(int argc, char **argv)
                                          {"criterion", required_argument, NULL, O_CRIT},
                                          {"sample-interval", required_argument, NULL, O_INTERVAL},
                                          {"seed", required_argument, NULL, O_SEED},
+                                         {"chart", required_argument, NULL, O_CHART},
                                          {"json", no_argument, NULL, O_JSON},
                                          {"quiet", no_argument, NULL, O_QUIET},
                                          {"help", no_argument, NULL, 'h'},
@@ -283,7 +373,7 @@ int cmd_probe(int argc, char **argv)
     stagecal_design_params par = stagecal_design_default_params();
     double at_r[MAX_AT], at_f[MAX_AT], wv[MAX_AT], wdummy[MAX_AT], minutes = 10;
     size_t n_at = 0, n_w = 0;
-    const char *at_text = NULL;
+    const char *at_text = NULL, *chart = NULL;
     long k = 4, seed = 1;
     int json = 0, c, rc;
 
@@ -339,6 +429,9 @@ int cmd_probe(int argc, char **argv)
             if (cli_parse_long("seed", optarg, 0, 2147483647L, &seed))
                 return CLI_EXIT_USAGE;
             break;
+        case O_CHART:
+            chart = optarg;
+            break;
         case O_JSON:
             json = 1;
             break;
@@ -380,6 +473,8 @@ int cmd_probe(int argc, char **argv)
     par.sample_interval_s = minutes * 60;
 
     const char *path = argv[optind];
+    if (chart && cli_check_output("chart", chart, &path, 1))
+        return CLI_EXIT_USAGE;
     stagecal_model m;
     stagecal_design_problem pb;
     stagecal_design_result res;
@@ -414,6 +509,8 @@ int cmd_probe(int argc, char **argv)
             cli_warn("%s: condition of interest R = %g lies outside the fitted envelope "
                      "(extrapolation)",
                      path, pts[j].r);
+    if (chart && (rc = write_chart(chart, &m, &pb, &res, out, n_at)))
+        goto done;
     if (json)
         rc = cli_json_print(result_json(path, &m, &par, &res, out, n_at));
     else {

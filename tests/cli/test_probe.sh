@@ -64,4 +64,8 @@ PY
 K=4 RLO=1.5 RHI=inf check_json $P "$M" --at 2,inf --reflux-range 1.5:inf --json
 K=2 RLO=1 RHI=6 check_json $P "$M" --at 2,2.5 --reflux-range 1:6 --tests 2 --criterion d --json
 K=3 RLO=1.5 RHI=5 check_json $P "$ML" --at 2:1.3,2.5:1.2 --weights 2,1 --reflux-range 1.5:5 --f-factor-range 0.9:1.5 --tests 3 --json
+# The chart: an SVG document, and never over the model file it reads.
+expect_exit 0 "" -- $P "$M" --at 2,2.5 --chart "$tmp/probe.svg" --quiet
+grep -q "<svg" "$tmp/probe.svg" || { echo "FAIL: no SVG chart"; fails=$((fails + 1)); }
+expect_exit 2 "option '--chart'" -- $P "$M" --at 2 --chart "$M"
 finish
