@@ -36,6 +36,11 @@ stagecal_design_params stagecal_design_default_params(void)
     p.seed = 1;
     p.xtol_rel = 1e-10;
     p.max_eval = 4000;
+    p.joint_max = 12;
+    p.exchange_starts = 4;
+    p.exchange_sweeps = 50;
+    p.exchange_max_eval = 200;
+    p.exchange_tol = 1e-9;
     p.ridge = 1e-6;
     p.sample_interval_s = 600;
     p.settle_samples = 0;

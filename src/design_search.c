@@ -143,32 +143,100 @@ static void start_point(const search *s, size_t start, gsl_rng *rng, double *z)
     }
 }
 
-/* Minimises the objective over the K tests from par->starts starts; best tests into out. */
+/* A bounded BOBYQA on [0, 1]^n for fn; NULL when NLopt refuses a setting. */
+static nlopt_opt make_opt(unsigned n, nlopt_func fn, void *data, const stagecal_design_params *par)
+{
+    nlopt_opt o = nlopt_create(NLOPT_LN_BOBYQA, n);
+    if (o &&
+        (nlopt_set_lower_bounds1(o, 0.0) < 0 || nlopt_set_upper_bounds1(o, 1.0) < 0 ||
+         nlopt_set_min_objective(o, fn, data) < 0 || nlopt_set_xtol_rel(o, par->xtol_rel) < 0 ||
+         nlopt_set_maxeval(o, (int)par->max_eval) < 0)) {
+        nlopt_destroy(o);
+        o = NULL;
+    }
+    return o;
+}
+
+/* One test's variables moved while the others stay (coordinate exchange). */
+typedef struct {
+    search *s;
+    double *z;       /* the whole design */
+    size_t off, dim; /* this test's variables: z[off .. off + n) of dim */
+} sub_ctx;
+
+static double sub_objective(unsigned n, const double *x, double *grad, void *data)
+{
+    sub_ctx *c = data;
+    memcpy(c->z + c->off, x, n * sizeof *x);
+    return objective((unsigned)c->dim, c->z, grad, c->s);
+}
+
+/* Coordinate exchange (Meyer & Nachtsheim 1995, Technometrics 37:60–69): sweep over the
+ * tests, each optimised over its own L/V (and F) by BOBYQA from where it is and from
+ * the ends, the others fixed, until a sweep gains less than exchange_tol (relative). On return z
+ * holds the design and *f its criterion. */
+static nlopt_result exchange(search *s, const stagecal_design_params *par, double *z, size_t dim,
+                             double *f)
+{
+    size_t stride = s->load_free ? 2 : 1;
+    sub_ctx c = {s, z, 0, dim};
+    nlopt_opt o = make_opt((unsigned)stride, sub_objective, &c, par);
+    nlopt_result last = NLOPT_SUCCESS;
+    if (!o)
+        return NLOPT_OUT_OF_MEMORY;
+    /* one or two variables: a few hundred evaluations settle them */
+    nlopt_set_maxeval(o, (int)par->exchange_max_eval);
+    *f = objective((unsigned)dim, z, NULL, s);
+    for (size_t sweep = 0; sweep < par->exchange_sweeps; sweep++) {
+        double f_old = *f;
+        for (size_t t = 0; t < s->k; t++) {
+            double keep[2], x[2], fx;
+            c.off = t * stride;
+            memcpy(keep, z + c.off, stride * sizeof *z);
+            for (int from = 0; from < 3; from++) {
+                for (size_t i = 0; i < stride; i++)
+                    x[i] = from == 0 ? keep[i] : from == 1 ? 0.0 : 1.0;
+                nlopt_result r = nlopt_optimize(o, x, &fx);
+                if ((r > 0 || r == NLOPT_ROUNDOFF_LIMITED) && fx < *f) {
+                    *f = fx;
+                    memcpy(keep, x, stride * sizeof *x);
+                    last = r;
+                }
+            }
+            memcpy(z + c.off, keep, stride * sizeof *z);
+        }
+        if (!(f_old - *f > par->exchange_tol * fabs(f_old)))
+            break;
+    }
+    nlopt_destroy(o);
+    return last;
+}
+
+/* Minimises the objective over the K tests from several starts; best tests into out.
+ * Up to par->joint_max variables all move together; beyond that, coordinate exchange. */
 static int run_search(search *s, const stagecal_design_params *par, stagecal_design_test *out,
                       int *nl_result, size_t *starts_done, stagecal_error *err)
 {
     size_t dim = s->k * (s->load_free ? 2 : 1);
+    int joint = dim <= par->joint_max;
     double *z = malloc(2 * dim * sizeof *z), best_f = INFINITY;
     double *zbest = z ? z + dim : NULL;
-    nlopt_opt o = nlopt_create(NLOPT_LN_BOBYQA, (unsigned)dim);
+    nlopt_opt o = joint ? make_opt((unsigned)dim, objective, s, par) : NULL;
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     int rc = STAGECAL_OK, any = 0;
-    if (!z || !o || !rng) {
+    if (!z || (joint && !o) || !rng) {
         rc = error_set(err, STAGECAL_ENOMEM, "out of memory (design search)");
         goto done;
     }
     gsl_rng_set(rng, par->seed);
-    if (nlopt_set_lower_bounds1(o, 0.0) < 0 || nlopt_set_upper_bounds1(o, 1.0) < 0 ||
-        nlopt_set_min_objective(o, objective, s) < 0 || nlopt_set_xtol_rel(o, par->xtol_rel) < 0 ||
-        nlopt_set_maxeval(o, (int)par->max_eval) < 0) {
-        rc = error_set(err, STAGECAL_EINTERNAL, "NLopt setup failed: %s", nlopt_get_errmsg(o));
-        goto done;
-    }
-    size_t nstarts = par->starts > 0 ? par->starts : 1;
+    size_t nstarts = joint ? par->starts : par->exchange_starts;
+    if (nstarts < 1)
+        nstarts = 1;
     for (size_t st = 0; st < nstarts; st++) {
         double f;
+        nlopt_result r;
         start_point(s, st, rng, z);
-        nlopt_result r = nlopt_optimize(o, z, &f);
+        r = joint ? nlopt_optimize(o, z, &f) : exchange(s, par, z, dim, &f);
         /* ROUNDOFF_LIMITED still leaves the best point found so far in z */
         if (r < 0 && r != NLOPT_ROUNDOFF_LIMITED)
             continue;
@@ -183,7 +251,7 @@ static int run_search(search *s, const stagecal_design_params *par, stagecal_des
     if (!any || !(best_f < 1e300)) {
         rc = error_set(err, STAGECAL_EINTERNAL,
                        "the design search found no admissible set of tests (NLopt: %s)",
-                       nlopt_get_errmsg(o) ? nlopt_get_errmsg(o) : "no message");
+                       o && nlopt_get_errmsg(o) ? nlopt_get_errmsg(o) : "no message");
         goto done;
     }
     for (size_t t = 0; t < s->k; t++)
@@ -274,9 +342,11 @@ static int check_args(const stagecal_design_problem *pb, const stagecal_design_p
     if (!(par->sample_interval_s > 0 && isfinite(par->sample_interval_s)))
         return error_set(err, STAGECAL_EINVAL, "sampling interval %g s is not positive",
                          par->sample_interval_s);
-    if (!(par->ridge > 0) || !(par->xtol_rel > 0) || par->max_eval < 10)
+    if (!(par->ridge > 0) || !(par->xtol_rel > 0) || par->max_eval < 10 ||
+        par->exchange_sweeps < 1 || par->exchange_max_eval < 10 || !(par->exchange_tol >= 0))
         return error_set(err, STAGECAL_EINVAL,
-                         "search tunables out of range (ridge > 0, xtol_rel > 0, max_eval >= 10)");
+                         "search tunables out of range (ridge > 0, xtol_rel > 0, max_eval >= 10, "
+                         "exchange_sweeps >= 1)");
     if (n_at < 1)
         return error_set(err, STAGECAL_EINVAL, "no condition of interest given");
     for (size_t j = 0; j < n_at; j++) {

@@ -300,6 +300,17 @@ static void design_d_optimal_line_puts_points_at_the_ends(void **state)
     assert_rel(res.tests[2].r, 4, 1e-6, "D: upper end");
     assert_rel(res.tests[3].r, 4, 1e-6, "D: upper end");
 
+    /* 16 tests: more variables than the joint search takes, so coordinate exchange; the
+     * same textbook answer, 8 at each end */
+    par.tests = 16;
+    stagecal_design_result big;
+    assert_int_equal(stagecal_design_propose(&pb, at, 1, &par, NAN, NAN, NAN, NAN, &big, out, NULL),
+                     STAGECAL_OK);
+    assert_true(16 > par.joint_max);
+    for (size_t t = 0; t < 16; t++)
+        assert_rel(big.tests[t].r, t < 8 ? 1 : 4, 1e-6, "D by exchange: half at each end");
+    par.tests = 4;
+
     assert_int_equal(stagecal_design_add_window(&pb, 1.0 / 0.35 - 1, NAN, 1, NULL), STAGECAL_OK);
     par.tests = 2;
     assert_int_equal(stagecal_design_propose(&pb, at, 1, &par, NAN, NAN, NAN, NAN, &res, out, NULL),

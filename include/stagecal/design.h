@@ -22,8 +22,9 @@
  * The K conditions are optimised together inside the bounds with NLopt's BOBYQA
  * (Powell 2009, "The BOBYQA algorithm for bound constrained optimization without
  * derivatives", Cambridge NA Report NA2009/06) from several starts (deterministic ones
- * plus random ones from a seeded GSL generator). The reflux ratio is searched in
- * L/V = R/(R + 1), so total reflux (R = inf, L/V = 1) is an ordinary bound.
+ * plus random ones from a seeded GSL generator); for many tests by coordinate exchange
+ * (Meyer & Nachtsheim 1995, Technometrics 37:60–69), one test at a time by BOBYQA. The reflux ratio
+ * is searched in L/V = R/(R + 1), so total reflux (R = inf, L/V = 1) is an ordinary bound.
  *
  * Singular information: when I₀ has rank < p (the current evidence cannot identify the
  * form at all), the search runs on the information in scaled coordinates plus a small
@@ -86,6 +87,13 @@ typedef struct {
     unsigned long seed;       /* seed of the random starts (gsl_rng_mt19937); 1 */
     double xtol_rel;          /* BOBYQA relative step tolerance on the scaled variables; 1e-10 */
     size_t max_eval;          /* objective evaluations per local search; 4000 */
+    size_t joint_max;         /* up to this many search variables (K, or 2K with F) all move
+                                 together; beyond, coordinate exchange; 12 */
+    size_t exchange_starts;   /* starts of the coordinate exchange; 4 */
+    size_t exchange_sweeps;   /* most sweeps over the tests per start; 50 */
+    size_t exchange_max_eval; /* evaluations per test and local search in the exchange; 200 */
+    double exchange_tol;      /* stop sweeping when a sweep improves the criterion by less
+                                 than this, relative; 1e-9 */
     double ridge;             /* ridge added to the scaled information while searching when
                                  I₀ is singular; 1e-6 */
     double sample_interval_s; /* one logged sample every this many seconds; 600 */
