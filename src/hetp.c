@@ -15,6 +15,7 @@
 
 #include <gsl/gsl_cdf.h>
 #include <math.h>
+#include <stdio.h>
 #include <string.h>
 
 #include "internal.h"
@@ -250,5 +251,163 @@ int stagecal_hetp_tray_efficiency(const stagecal_hetp_stages *s, int trays, doub
     out->se = s->se / trays;
     out->low = out->efficiency - out->t * out->se;
     out->high = out->efficiency + out->t * out->se;
+    return STAGECAL_OK;
+}
+
+/* ---- equivalence ----------------------------------------------------------------- */
+
+const char *stagecal_equiv_verdict_name(stagecal_equiv_verdict v)
+{
+    switch (v) {
+    case STAGECAL_EQUIV_EQUIVALENT:
+        return "equivalent";
+    case STAGECAL_EQUIV_NOT_SHOWN:
+        return "not-shown";
+    case STAGECAL_EQUIV_WORSE:
+        return "worse";
+    case STAGECAL_EQUIV_BETTER:
+        return "better";
+    case STAGECAL_EQUIV_NOT_DETERMINED:
+        return "not-determined";
+    }
+    return "unknown";
+}
+
+static int check_equiv(double margin, double alpha, stagecal_error *err)
+{
+    if (!(isfinite(margin) && margin > 0 && margin < 10))
+        return error_set(err, STAGECAL_EINVAL,
+                         "equivalence margin %g is invalid (expected a fraction, e.g. 0.10)",
+                         margin);
+    if (!(alpha > 0 && alpha < 0.5))
+        return error_set(err, STAGECAL_EINVAL,
+                         "test level %g is outside (0, 0.5) (expected e.g. 0.05)", alpha);
+    return STAGECAL_OK;
+}
+
+/* Why one side's evidence cannot decide, or NULL. */
+static const char *thin(const stagecal_hetp_stages *s, double alpha)
+{
+    if (s->dof < 2)
+        return "the fit has fewer than 2 degrees of freedom";
+    if (!(s->se > 0))
+        return "the fit gives no standard error";
+    if (s->column_stages - gsl_cdf_tdist_Pinv(1 - alpha, s->dof) * s->se <= 0)
+        return "the evidence bounds HETP from below only (its interval is open upwards)";
+    return NULL;
+}
+
+/* Verdict and words from the interval and the p values; `what` names the reference. */
+static void equiv_verdict(stagecal_hetp_equiv *o, const char *what)
+{
+    double up = 1 + o->margin, lo = 1 / up;
+    int pct = (int)lround(100 * (1 - 2 * o->alpha));
+    if (o->p < o->alpha) {
+        o->verdict = STAGECAL_EQUIV_EQUIVALENT;
+        snprintf(o->text, sizeof o->text,
+                 "as good as %s: the %d %% interval of the HETP ratio, %.3f to %.3f, lies within "
+                 "the margin %.3f to %.3f (TOST p = %.3g)",
+                 what, pct, o->low, o->high, lo, up, o->p);
+    } else if (o->low > up) {
+        o->verdict = STAGECAL_EQUIV_WORSE;
+        snprintf(o->text, sizeof o->text,
+                 "worse than %s by more than the margin: the %d %% interval of the HETP ratio, "
+                 "%.3f to %.3f, lies above %.3f",
+                 what, pct, o->low, o->high, up);
+    } else if (o->high < lo) {
+        o->verdict = STAGECAL_EQUIV_BETTER;
+        snprintf(o->text, sizeof o->text,
+                 "better than %s by more than the margin: the %d %% interval of the HETP ratio, "
+                 "%.3f to %.3f, lies below %.3f",
+                 what, pct, o->low, o->high, lo);
+    } else {
+        o->verdict = STAGECAL_EQUIV_NOT_SHOWN;
+        snprintf(o->text, sizeof o->text,
+                 "not shown to be as good as %s: the %d %% interval of the HETP ratio, %.3f to "
+                 "%.3f, reaches beyond the margin %.3f to %.3f (TOST p = %.3g); more evidence "
+                 "is needed to decide",
+                 what, pct, o->low, o->high, lo, up, o->p);
+    }
+}
+
+static void equiv_undetermined(stagecal_hetp_equiv *o, const char *what, const char *why)
+{
+    o->verdict = STAGECAL_EQUIV_NOT_DETERMINED;
+    o->low = o->high = o->p = o->p_worse = o->p_better = NAN;
+    snprintf(o->text, sizeof o->text, "not determined whether it is as good as %s: %s", what, why);
+}
+
+int stagecal_hetp_equiv_design(double height_m, const stagecal_hetp_stages *s, double design_m,
+                               double margin, double alpha, stagecal_hetp_equiv *out,
+                               stagecal_error *err)
+{
+    int rc;
+    stagecal_hetp_result r;
+    memset(out, 0, sizeof *out);
+    if ((rc = stagecal_hetp_compute(height_m, s, 0.5, &r, err)) ||
+        (rc = check_equiv(margin, alpha, err)))
+        return rc;
+    if (!(isfinite(design_m) && design_m > 0))
+        return error_set(err, STAGECAL_EINVAL,
+                         "design HETP %g m is not positive (expected the data-sheet value in m)",
+                         design_m);
+    const char *what = "the design figure";
+    out->margin = margin;
+    out->alpha = alpha;
+    out->dof = s->dof;
+    out->ratio = r.hetp_m / design_m;
+    const char *why = thin(s, alpha);
+    if (why) {
+        equiv_undetermined(out, what, why);
+        return STAGECAL_OK;
+    }
+    /* HETP/D ∈ [1/(1+δ), 1+δ] ⟺ N ∈ [n_lo, n_hi]: exact t tests on N */
+    double n = s->column_stages, n_lo = height_m / (design_m * (1 + margin));
+    double n_hi = height_m * (1 + margin) / design_m, t = gsl_cdf_tdist_Pinv(1 - alpha, s->dof);
+    out->p_worse = gsl_cdf_tdist_Q((n - n_lo) / s->se, s->dof);
+    out->p_better = gsl_cdf_tdist_Q((n_hi - n) / s->se, s->dof);
+    out->p = fmax(out->p_worse, out->p_better);
+    out->low = height_m / (design_m * (n + t * s->se));
+    out->high = height_m / (design_m * (n - t * s->se));
+    equiv_verdict(out, what);
+    return STAGECAL_OK;
+}
+
+int stagecal_hetp_equiv_pair(double height_a, const stagecal_hetp_stages *a, double height_b,
+                             const stagecal_hetp_stages *b, double margin, double alpha,
+                             stagecal_hetp_equiv *out, stagecal_error *err)
+{
+    int rc;
+    stagecal_hetp_result ra, rb;
+    memset(out, 0, sizeof *out);
+    if ((rc = stagecal_hetp_compute(height_a, a, 0.5, &ra, err)) ||
+        (rc = stagecal_hetp_compute(height_b, b, 0.5, &rb, err)) ||
+        (rc = check_equiv(margin, alpha, err)))
+        return rc;
+    const char *what = "the old bed";
+    out->margin = margin;
+    out->alpha = alpha;
+    out->ratio = rb.hetp_m / ra.hetp_m;
+    const char *why = thin(a, alpha);
+    if (!why)
+        why = thin(b, alpha);
+    if (why) {
+        out->dof = fmin(a->dof, b->dof);
+        equiv_undetermined(out, what, why);
+        return STAGECAL_OK;
+    }
+    /* ln ratio = ln(H_b/H_a) − ln N_b + ln N_a, se² = (se_a/N_a)² + (se_b/N_b)² */
+    double va = a->se / a->column_stages, vb = b->se / b->column_stages;
+    va *= va;
+    vb *= vb;
+    double se = sqrt(va + vb), d = log(out->ratio), lm = log(1 + margin);
+    out->dof = (va + vb) * (va + vb) / (va * va / a->dof + vb * vb / b->dof);
+    double t = gsl_cdf_tdist_Pinv(1 - alpha, out->dof);
+    out->p_worse = gsl_cdf_tdist_P((d - lm) / se, out->dof);
+    out->p_better = gsl_cdf_tdist_Q((d + lm) / se, out->dof);
+    out->p = fmax(out->p_worse, out->p_better);
+    out->low = exp(d - t * se);
+    out->high = exp(d + t * se);
+    equiv_verdict(out, what);
     return STAGECAL_OK;
 }

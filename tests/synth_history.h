@@ -21,7 +21,9 @@
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
+#include <string.h>
 
 #include "stagecal/history.h"
 
@@ -99,6 +101,17 @@ static inline size_t synth_history_make(gsl_rng *rng, const synth_history_cfg *c
         }
     }
     return n;
+}
+
+/* The repack as an events-file entry of column "sim". */
+static inline stagecal_trend_event synth_history_repack(const synth_history_truth *tr)
+{
+    stagecal_trend_event ev;
+    memset(&ev, 0, sizeof ev);
+    ev.t_s = tr->repack_s;
+    ev.kind = STAGECAL_EVENT_REPACK;
+    snprintf(ev.column_id, sizeof ev.column_id, "sim");
+    return ev;
 }
 
 #endif

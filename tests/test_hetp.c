@@ -281,6 +281,83 @@ static void hetp_rejects_bad_arguments(void **state)
     assert_int_equal(stagecal_hetp_tray_efficiency(&good, 0, 0.95, &t, &e), STAGECAL_EINVAL);
 }
 
+/* TOST against the design figure: p values and the 90 % ratio interval against
+ * scipy.stats.t (sf and ppf at 4 dof) applied to the margin mapped into column stages,
+ * n_lo = H/(D·1.1), n_hi = H·1.1/D. Tolerance 1e-10 relative for p (GSL t CDF), 1e-9 for the
+ * interval (GSL t quantile). */
+static void hetp_equiv_design_matches_scipy(void **state)
+{
+    (void)state;
+    stagecal_hetp_stages s = {7.3, 0.12, 4};
+    stagecal_hetp_equiv e;
+    assert_int_equal(stagecal_hetp_equiv_design(4.5, &s, 0.6, 0.10, 0.05, &e, NULL), 0);
+    assert_rel(e.p_worse, 0.007964171041749152, 1e-10, "p of H0 worse (scipy)");
+    assert_rel(e.p_better, 0.0006888296654063015, 1e-10, "p of H0 better (scipy)");
+    assert_rel(e.low, 0.9926121053918617, 1e-9, "ratio low (scipy; GSL t quantile to ~1e-10)");
+    assert_rel(e.high, 1.064708982193122, 1e-9, "ratio high (scipy; GSL t quantile to ~1e-10)");
+    assert_int_equal(e.verdict, STAGECAL_EQUIV_EQUIVALENT);
+    assert_non_null(strstr(e.text, "as good as the design figure"));
+    /* too thin: 1 dof; one-sided: N − t·se ≤ 0 */
+    stagecal_hetp_stages thin1 = {7.3, 0.12, 1}, open = {1.0, 2.0, 5};
+    assert_int_equal(stagecal_hetp_equiv_design(4.5, &thin1, 0.6, 0.10, 0.05, &e, NULL), 0);
+    assert_int_equal(e.verdict, STAGECAL_EQUIV_NOT_DETERMINED);
+    assert_non_null(strstr(e.text, "fewer than 2 degrees"));
+    assert_true(isnan(e.low) && isnan(e.high));
+    assert_int_equal(stagecal_hetp_equiv_design(4.5, &open, 0.6, 0.10, 0.05, &e, NULL), 0);
+    assert_int_equal(e.verdict, STAGECAL_EQUIV_NOT_DETERMINED);
+    assert_non_null(strstr(e.text, "from below only"));
+    /* a bed clearly worse than design by more than the margin */
+    stagecal_hetp_stages bad = {5.5, 0.1, 10};
+    assert_int_equal(stagecal_hetp_equiv_design(4.5, &bad, 0.6, 0.10, 0.05, &e, NULL), 0);
+    assert_int_equal(e.verdict, STAGECAL_EQUIV_WORSE);
+    assert_int_equal(stagecal_hetp_equiv_design(4.5, &s, 0.6, 0, 0.05, &e, NULL), STAGECAL_EINVAL);
+    assert_int_equal(stagecal_hetp_equiv_design(4.5, &s, 0.6, 0.1, 0.5, &e, NULL), STAGECAL_EINVAL);
+}
+
+/* TOST old bed vs new bed on the log scale with Welch–Satterthwaite dof: numbers from
+ * scipy.stats.t (cdf, sf) on the same formulas; tolerance 1e-10 relative. */
+static void hetp_equiv_pair_matches_scipy(void **state)
+{
+    (void)state;
+    stagecal_hetp_stages a = {7.5, 0.1, 3}, b = {7.2, 0.15, 5};
+    stagecal_hetp_equiv e;
+    assert_int_equal(stagecal_hetp_equiv_pair(4.5, &a, 4.5, &b, 0.10, 0.05, &e, NULL), 0);
+    assert_rel(e.dof, 7.763913294277302, 1e-12, "Satterthwaite dof (scipy)");
+    assert_rel(e.p_worse, 0.029865411609688385, 1e-10, "p of H0 worse (scipy)");
+    assert_rel(e.p_better, 0.00031681483918592746, 1e-10, "p of H0 better (scipy)");
+    assert_int_equal(e.verdict, STAGECAL_EQUIV_EQUIVALENT);
+    assert_non_null(strstr(e.text, "as good as the old bed"));
+    stagecal_hetp_stages thin1 = {7.2, 0.15, 1.5};
+    assert_int_equal(stagecal_hetp_equiv_pair(4.5, &a, 4.5, &thin1, 0.10, 0.05, &e, NULL), 0);
+    assert_int_equal(e.verdict, STAGECAL_EQUIV_NOT_DETERMINED);
+}
+
+/* Type I error of the design TOST at the margin: estimates drawn from their exact law
+ * (N̂ normal, se² = σ²·χ²_ν/ν, ν = 3, the demo's one-month fits) with the true HETP at
+ * design·1.1; 20 000 draws. The test is exact there, so the rate is 0.05 − (the other
+ * side's tiny share); it must not exceed 0.05 + 3 binomial sd (0.0046). */
+static void hetp_equiv_type1_at_margin(void **state)
+{
+    (void)state;
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 21);
+    const double H = 4.5, D = 0.6, sigma = 0.12, nu = 3;
+    const double n_true = H / (D * 1.1);
+    int reps = 20000, eq = 0;
+    for (int i = 0; i < reps; i++) {
+        stagecal_hetp_stages s = {n_true + gsl_ran_gaussian(rng, sigma),
+                                  sigma * sqrt(gsl_ran_chisq(rng, nu) / nu), nu};
+        stagecal_hetp_equiv e;
+        assert_int_equal(stagecal_hetp_equiv_design(H, &s, D, 0.10, 0.05, &e, NULL), 0);
+        eq += e.verdict == STAGECAL_EQUIV_EQUIVALENT;
+    }
+    gsl_rng_free(rng);
+    double rate = (double)eq / reps;
+    print_message("TOST type I at the margin: %.4f\n", rate);
+    assert_true(rate <= 0.05 + 3 * sqrt(0.05 * 0.95 / reps));
+    assert_true(rate >= 0.03); /* not vacuous: the test does reject near its level */
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -292,6 +369,9 @@ int main(void)
         cmocka_unit_test(hetp_design_and_rule_checks),
         cmocka_unit_test(hetp_tray_efficiency),
         cmocka_unit_test(hetp_rejects_bad_arguments),
+        cmocka_unit_test(hetp_equiv_design_matches_scipy),
+        cmocka_unit_test(hetp_equiv_pair_matches_scipy),
+        cmocka_unit_test(hetp_equiv_type1_at_margin),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }

@@ -218,11 +218,7 @@ static void test_coverage_small(void **state)
         cfg.months = 12 + (int)gsl_rng_uniform_int(rng, 13);
         synth_history_truth tr;
         size_t n = synth_history_make(rng, &cfg, p, 2000, &tr);
-        stagecal_trend_event ev;
-        memset(&ev, 0, sizeof ev);
-        ev.t_s = tr.repack_s;
-        ev.kind = STAGECAL_EVENT_REPACK;
-        snprintf(ev.column_id, sizeof ev.column_id, "sim");
+        stagecal_trend_event ev = synth_history_repack(&tr);
         stagecal_history_params par = stagecal_history_default_params();
         par.r_ref = 3;
         stagecal_history_fit fit;

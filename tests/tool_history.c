@@ -46,11 +46,7 @@ int main(int argc, char **argv)
         double hr = cfg.a * (1 - exp(-cfg.b * R));
         double tau_now = (tr.last_s - tr.repack_s) / M;
         double req = hr * (1 - cfg.k * (tau_now + lead));
-        stagecal_trend_event ev;
-        memset(&ev, 0, sizeof ev);
-        ev.t_s = tr.repack_s;
-        ev.kind = STAGECAL_EVENT_REPACK;
-        snprintf(ev.column_id, sizeof ev.column_id, "sim");
+        stagecal_trend_event ev = synth_history_repack(&tr);
         stagecal_history_params par = stagecal_history_default_params();
         par.r_ref = R;
         par.required = req;

@@ -153,6 +153,55 @@ typedef struct {
 int stagecal_hetp_tray_efficiency(const stagecal_hetp_stages *s, int trays, double level,
                                   stagecal_hetp_tray *out, stagecal_error *err);
 
+/* ---- equivalence: "as good as" (two one-sided tests) ------------------------------- */
+
+/* Default relative margin of the equivalence tests: HETP within a factor 1.10 of the
+ * reference either way. Why 10 %: it is about the smallest HETP change a batch planner
+ * acts on (0.7 column stages on a 7-stage bed changes the reflux a cut needs), and the
+ * usual repeatability of packed-column HETP tests is of that order (common practice,
+ * no source). docs/hetp-trend.md §4a. */
+#define STAGECAL_HETP_EQUIV_MARGIN 0.10
+
+typedef enum {
+    STAGECAL_EQUIV_EQUIVALENT = 0, /* both one-sided tests reject: within the margin */
+    STAGECAL_EQUIV_NOT_SHOWN,      /* the (1 − 2α) interval reaches beyond the margin */
+    STAGECAL_EQUIV_WORSE,          /* the whole interval lies above (1 + δ): taller HETP */
+    STAGECAL_EQUIV_BETTER,         /* the whole interval lies below 1/(1 + δ) */
+    STAGECAL_EQUIV_NOT_DETERMINED  /* the evidence cannot decide: see text */
+} stagecal_equiv_verdict;
+
+/* "equivalent" / "not-shown" / "worse" / "better" / "not-determined". */
+const char *stagecal_equiv_verdict_name(stagecal_equiv_verdict v);
+
+/* Result of a TOST on the HETP ratio measured/reference. */
+typedef struct {
+    double margin;            /* δ: equivalent when the ratio lies in [1/(1 + δ), 1 + δ] */
+    double alpha;             /* level of each one-sided test (the interval is 1 − 2α) */
+    double ratio;             /* HETP measured / reference */
+    double low, high;         /* (1 − 2α) interval of the ratio (NAN when not determined) */
+    double dof;               /* t degrees of freedom */
+    double p_worse, p_better; /* p of H0 "ratio ≥ 1 + δ" and of H0 "ratio ≤ 1/(1 + δ)" */
+    double p;                 /* max of the two: equivalence is shown when p < α */
+    stagecal_equiv_verdict verdict;
+    char text[256]; /* the verdict in words, with the reason when not determined */
+} stagecal_hetp_equiv;
+
+/* "As good as the design figure": TOST of HETP = height_m/N against design_m, exact on
+ * the t law of the column stages (the margin maps to a range of N). Not determined
+ * when dof < 2, se = 0, or the evidence bounds HETP from one side only (N − t·se ≤ 0
+ * at 1 − α). EINVAL for bad arguments (as stagecal_hetp_compute; margin ≤ 0; alpha
+ * outside (0, 0.5)). */
+int stagecal_hetp_equiv_design(double height_m, const stagecal_hetp_stages *s, double design_m,
+                               double margin, double alpha, stagecal_hetp_equiv *out,
+                               stagecal_error *err);
+
+/* "As good as the old bed": TOST of HETP_b/HETP_a on the log scale (delta method,
+ * se(ln N) = se/N, Welch–Satterthwaite dof). a is the old (reference) bed. Not
+ * determined under the same conditions on either side. EINVAL as above. */
+int stagecal_hetp_equiv_pair(double height_a, const stagecal_hetp_stages *a, double height_b,
+                             const stagecal_hetp_stages *b, double margin, double alpha,
+                             stagecal_hetp_equiv *out, stagecal_error *err);
+
 #ifdef __cplusplus
 }
 #endif
