@@ -400,14 +400,37 @@ int stagecal_hetp_equiv_pair(double height_a, const stagecal_hetp_stages *a, dou
     double va = a->se / a->column_stages, vb = b->se / b->column_stages;
     va *= va;
     vb *= vb;
-    double se = sqrt(va + vb), d = log(out->ratio), lm = log(1 + margin);
-    out->dof = (va + vb) * (va + vb) / (va * va / a->dof + vb * vb / b->dof);
-    double t = gsl_cdf_tdist_Pinv(1 - alpha, out->dof);
-    out->p_worse = gsl_cdf_tdist_P((d - lm) / se, out->dof);
-    out->p_better = gsl_cdf_tdist_Q((d + lm) / se, out->dof);
+    double dof = (va + vb) * (va + vb) / (va * va / a->dof + vb * vb / b->dof);
+    return stagecal_hetp_equiv_log(log(out->ratio), sqrt(va + vb), dof, margin, alpha, what, out,
+                                   err);
+}
+
+int stagecal_hetp_equiv_log(double log_ratio, double se, double dof, double margin, double alpha,
+                            const char *what, stagecal_hetp_equiv *out, stagecal_error *err)
+{
+    int rc;
+    if ((rc = check_equiv(margin, alpha, err)))
+        return rc;
+    memset(out, 0, sizeof *out);
+    if (!(isfinite(log_ratio) && isfinite(se) && se >= 0 && isfinite(dof)))
+        return error_set(err, STAGECAL_EINVAL, "log HETP ratio %g with se %g and dof %g is invalid",
+                         log_ratio, se, dof);
+    out->margin = margin;
+    out->alpha = alpha;
+    out->ratio = exp(log_ratio);
+    out->dof = dof;
+    if (dof < 2 || !(se > 0)) {
+        equiv_undetermined(out, what,
+                           dof < 2 ? "the evidence has fewer than 2 degrees of freedom"
+                                   : "the evidence gives no standard error");
+        return STAGECAL_OK;
+    }
+    double lm = log(1 + margin), t = gsl_cdf_tdist_Pinv(1 - alpha, dof);
+    out->p_worse = gsl_cdf_tdist_P((log_ratio - lm) / se, dof);
+    out->p_better = gsl_cdf_tdist_Q((log_ratio + lm) / se, dof);
     out->p = fmax(out->p_worse, out->p_better);
-    out->low = exp(d - t * se);
-    out->high = exp(d + t * se);
+    out->low = exp(log_ratio - t * se);
+    out->high = exp(log_ratio + t * se);
     equiv_verdict(out, what);
     return STAGECAL_OK;
 }

@@ -331,6 +331,23 @@ static int form_at(const stagecal_history_fit *fit, double r, double f, double *
     return STAGECAL_OK;
 }
 
+/* Stages on segment s's line at τ months and their gradient (n_beta entries, into
+ * grad); h and gh: the form and its gradient at the condition (gh n_beta long, only
+ * the first p used). */
+static double line_grad(const stagecal_history_fit *fit, size_t s, double tau, double h,
+                        const double *gh, double *grad)
+{
+    struct seg_idx ix = seg_index(fit, s);
+    double m = ix.m >= 0 ? fit->beta[ix.m] : 1.0, k = fit->beta[ix.k], fac = m - k * tau;
+    memset(grad, 0, fit->n_beta * sizeof *grad);
+    for (size_t j = 0; j < fit->form.p; j++)
+        grad[j] = gh[j] * fac;
+    if (ix.m >= 0)
+        grad[ix.m] = h;
+    grad[ix.k] = -h * tau;
+    return h * fac;
+}
+
 int stagecal_history_stages_at(const stagecal_history_fit *fit, double r, double f, double t_s,
                                stagecal_history_estimate *out, stagecal_error *err)
 {
@@ -341,25 +358,80 @@ int stagecal_history_stages_at(const stagecal_history_fit *fit, double r, double
                         "be fitted");
         return STAGECAL_OK;
     }
-    double *grad = calloc(fit->n_beta, sizeof *grad), h;
-    if (!grad)
+    double *gh = calloc(2 * fit->n_beta, sizeof *gh), *grad = gh + fit->n_beta, h;
+    if (!gh)
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    int rc = form_at(fit, r, f, &h, grad, err);
+    int rc = form_at(fit, r, f, &h, gh, err);
+    if (rc == STAGECAL_OK) {
+        double v = line_grad(fit, s, (t_s - sg->origin_s) / MONTH, h, gh, grad);
+        linear_estimate(fit, grad, v, (double)sg->n_runs - 1, out);
+        stagecal_history_check(out, 1.0, INFINITY, "stages");
+    }
+    free(gh);
+    return rc;
+}
+
+int stagecal_history_repack_at(const stagecal_history_fit *fit, size_t segment, double r, double f,
+                               double column_offset, stagecal_history_repack *out,
+                               stagecal_error *err)
+{
+    memset(out, 0, sizeof *out);
+    if (segment == 0 || segment >= fit->n_segments)
+        return error_set(err, STAGECAL_EINVAL,
+                         "segment %zu did not start at an event (expected 1..%zu)", segment,
+                         fit->n_segments - 1);
+    const stagecal_history_segment *a = &fit->segments[segment - 1], *b = &fit->segments[segment];
+    out->segment = segment;
+    out->t_s = b->origin_s;
+    if (!a->fitted || !b->fitted) {
+        const char *why = !a->fitted ? "not determined: the segment before the event has too "
+                                       "few runs to be fitted"
+                                     : "not determined: the segment after the event has too "
+                                       "few runs to be fitted";
+        not_fitted(&out->before, why);
+        not_fitted(&out->after, why);
+        not_fitted(&out->change, why);
+        not_fitted(&out->old_new, why);
+        not_fitted(&out->log_ratio, why);
+        not_fitted(&out->after_col, why);
+        return STAGECAL_OK;
+    }
+    size_t P = fit->n_beta;
+    double *gh = calloc(4 * P, sizeof *gh), *g1 = gh + P, *g2 = g1 + P, *g3 = g2 + P, h;
+    if (!gh)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    int rc = form_at(fit, r, f, &h, gh, err);
     if (rc) {
-        free(grad);
+        free(gh);
         return rc;
     }
-    struct seg_idx ix = seg_index(fit, s);
-    double m = ix.m >= 0 ? fit->beta[ix.m] : 1.0, k = fit->beta[ix.k];
-    double tau = (t_s - sg->origin_s) / MONTH, fac = m - k * tau;
-    for (size_t j = 0; j < fit->form.p; j++)
-        grad[j] *= fac;
-    if (ix.m >= 0)
-        grad[ix.m] = h;
-    grad[ix.k] = -h * tau;
-    linear_estimate(fit, grad, h * fac, (double)sg->n_runs - 1, out);
-    free(grad);
-    stagecal_history_check(out, 1.0, INFINITY, "stages");
+    double cap = (double)(a->n_runs + b->n_runs) - 1;
+    double vb = line_grad(fit, segment - 1, (out->t_s - a->origin_s) / MONTH, h, gh, g1);
+    linear_estimate(fit, g1, vb, cap, &out->before);
+    double va = line_grad(fit, segment, 0, h, gh, g2);
+    linear_estimate(fit, g2, va, cap, &out->after);
+    linear_estimate(fit, g2, va - column_offset, cap, &out->after_col);
+    for (size_t j = 0; j < P; j++)
+        g3[j] = g2[j] - g1[j];
+    linear_estimate(fit, g3, va - vb, cap, &out->change);
+    double vo = line_grad(fit, segment - 1, 0, h, gh, g1);
+    linear_estimate(fit, g1, vo, cap, &out->old_new);
+    /* ln(N_old − c) − ln(N_after − c): gradient g_old/(N_old − c) − g_after/(N_after − c) */
+    double no = vo - column_offset, na = va - column_offset;
+    if (no > 0 && na > 0) {
+        for (size_t j = 0; j < P; j++)
+            g3[j] = g1[j] / no - g2[j] / na;
+        linear_estimate(fit, g3, log(no / na), cap, &out->log_ratio);
+    } else {
+        not_fitted(&out->log_ratio, "HETP ratio not determined: a side has no column stages");
+    }
+    free(gh);
+    stagecal_history_check(&out->before, 1.0, INFINITY, "stages before");
+    stagecal_history_check(&out->after, 1.0, INFINITY, "stages after");
+    stagecal_history_check(&out->old_new, 1.0, INFINITY, "stages of the old bed when new");
+    stagecal_history_check(&out->after_col, 0.0, INFINITY, "column stages after");
+    double span = fmax(va, vb);
+    stagecal_history_check(&out->change, -span, span, "change");
     return STAGECAL_OK;
 }
 
@@ -392,10 +464,12 @@ static int segment_estimates(stagecal_history_fit *fit, size_t s,
         sg->level.value = sg->level.low = sg->level.high = 1.0;
         sg->level.dof = dof;
     }
-    /* k_s */
+    /* k_s/m_s: the loss as a fraction of the segment's own starting level */
     memset(g, 0, P * sizeof *g);
-    g[ix.k] = 1;
-    linear_estimate(fit, g, k, dof, &sg->rel_loss);
+    g[ix.k] = 1 / m;
+    if (ix.m >= 0)
+        g[ix.m] = -k / (m * m);
+    linear_estimate(fit, g, k / m, dof, &sg->rel_loss);
     stagecal_history_check(&sg->rel_loss, -1, 1, "relative loss rate");
     /* stages at τ = 0: h·m */
     for (size_t j = 0; j < P; j++)

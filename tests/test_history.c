@@ -133,6 +133,45 @@ static void test_crossing_closed_form(void **state)
     stagecal_history_free(&fit);
 }
 
+/* Before/after a repack from noise-free lines (closed form): the old bed 9·(1 − 0.02·τ)
+ * for 6 months, repacked at 6.5 months to 9.3·(1 − 0.01·τ). before = 9·(1 − 0.02·6.5),
+ * after = 9.3, change = after − before, old bed new = 9, ln ratio of column stages
+ * (total condenser) = ln(8/8.3). Tolerance 1e-9 relative (exact data). */
+static void test_repack_closed_form(void **state)
+{
+    (void)state;
+    stagecal_history_point p[24];
+    const double ev_tau = 6.5;
+    for (size_t i = 0; i < 24; i++) {
+        double tau = 0.5 * (double)i;
+        double y = tau < ev_tau ? 9 * (1 - 0.02 * tau) : 9.3 * (1 - 0.01 * (tau - ev_tau));
+        p[i] = (stagecal_history_point){T0 + tau * MONTH, (long)i, 2, NAN, y, 0.2};
+    }
+    stagecal_trend_event ev;
+    memset(&ev, 0, sizeof ev);
+    ev.t_s = T0 + ev_tau * MONTH;
+    ev.kind = STAGECAL_EVENT_REPACK;
+    snprintf(ev.column_id, sizeof ev.column_id, "c");
+    stagecal_form form;
+    stagecal_error err;
+    stagecal_form_parse("constant", &form, &err);
+    stagecal_history_params par = stagecal_history_default_params();
+    par.r_ref = 2;
+    stagecal_history_fit fit;
+    assert_int_equal(stagecal_history_fit_points(&form, p, 24, &ev, 1, "c", &par, &fit, &err), 0);
+    stagecal_history_repack rp;
+    assert_int_equal(stagecal_history_repack_at(&fit, 1, 2, NAN, 1, &rp, &err), 0);
+    double before = 9 * (1 - 0.02 * ev_tau);
+    assert_rel(rp.before.value, before, 1e-9, "before");
+    assert_rel(rp.after.value, 9.3, 1e-9, "after");
+    assert_rel(rp.change.value, 9.3 - before, 1e-9, "change");
+    assert_rel(rp.old_new.value, 9.0, 1e-9, "old bed new");
+    assert_rel(rp.log_ratio.value, log(8.0 / 8.3), 1e-9, "ln HETP ratio");
+    assert_rel(fit.segments[1].rel_loss.value, 0.01, 1e-9, "relative loss after");
+    assert_int_equal(stagecal_history_repack_at(&fit, 0, 2, NAN, 1, &rp, &err), STAGECAL_EINVAL);
+    stagecal_history_free(&fit);
+}
+
 /* Events split; a segment with too few runs and a segment without evidence are
  * reported as not determined, with the reason in words. */
 static void test_segments_not_determined(void **state)
@@ -272,6 +311,7 @@ int main(void)
         cmocka_unit_test(test_line_hc2),
         cmocka_unit_test(test_line_cr2_bm),
         cmocka_unit_test(test_crossing_closed_form),
+        cmocka_unit_test(test_repack_closed_form),
         cmocka_unit_test(test_segments_not_determined),
         cmocka_unit_test(test_check),
         cmocka_unit_test(test_coverage_small),

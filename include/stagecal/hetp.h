@@ -202,6 +202,13 @@ int stagecal_hetp_equiv_pair(double height_a, const stagecal_hetp_stages *a, dou
                              const stagecal_hetp_stages *b, double margin, double alpha,
                              stagecal_hetp_equiv *out, stagecal_error *err);
 
+/* The TOST on an estimate of ln(HETP ratio) with its standard error and t dof (e.g. a
+ * contrast of the history fit); `what` names the reference in the verdict's words
+ * ("the old bed"). Not determined when dof < 2 or se = 0. EINVAL for non-finite
+ * arguments or a bad margin/alpha. */
+int stagecal_hetp_equiv_log(double log_ratio, double se, double dof, double margin, double alpha,
+                            const char *what, stagecal_hetp_equiv *out, stagecal_error *err);
+
 #ifdef __cplusplus
 }
 #endif

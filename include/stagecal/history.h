@@ -87,7 +87,8 @@ typedef struct {
     int fitted;                      /* 1 when the segment had enough runs to enter the fit */
     double first_s, last_s;          /* time of its first and last window */
     stagecal_history_estimate level; /* m_s (1 for the reference segment, se 0) */
-    stagecal_history_estimate rel_loss; /* k_s, fraction of the level per month */
+    stagecal_history_estimate rel_loss; /* k_s/m_s: fraction of the segment's starting level
+                                           lost per month */
     stagecal_history_estimate loss;     /* h(R_ref, F_ref)·k_s, stages per month */
     stagecal_history_estimate start;    /* stages at (R_ref, F_ref) at τ = 0 */
 } stagecal_history_segment;
@@ -131,6 +132,28 @@ int stagecal_history_fit_points(const stagecal_form *form, const stagecal_histor
  * EINVAL when the form is undefined there. */
 int stagecal_history_stages_at(const stagecal_history_fit *fit, double r, double f, double t_s,
                                stagecal_history_estimate *out, stagecal_error *err);
+
+/* Before and after the event that opened `segment` (≥ 1), at (r, f), from the one fit:
+ * every difference is a contrast of the fit's parameters with its own cluster-robust
+ * se and Bell–McCaffrey dof (the two sides share θ, so they are not independent). */
+typedef struct {
+    size_t segment;                      /* the segment the event opened */
+    double t_s;                          /* the event's time */
+    stagecal_history_estimate before;    /* stages just before: the previous segment at t_s */
+    stagecal_history_estimate after;     /* stages just after: the segment's start (τ = 0) */
+    stagecal_history_estimate change;    /* after − before [stages] */
+    stagecal_history_estimate old_new;   /* the previous segment's start: the old bed when new */
+    stagecal_history_estimate log_ratio; /* ln(column stages of the old bed when new / column
+                                            stages after) = ln(HETP after / HETP old new) */
+    stagecal_history_estimate after_col; /* column stages after (stages − column_offset) */
+} stagecal_history_repack;
+
+/* column_offset: stages − column stages (1 with a total condenser, 2 with a partial
+ * one). EINVAL when segment is 0 or out of range or the form is undefined at (r, f);
+ * a side that was not fitted gives "not determined" estimates. */
+int stagecal_history_repack_at(const stagecal_history_fit *fit, size_t segment, double r, double f,
+                               double column_offset, stagecal_history_repack *out,
+                               stagecal_error *err);
 
 void stagecal_history_free(stagecal_history_fit *fit);
 
