@@ -92,16 +92,18 @@ static json_t *day_json(double t_s)
     return json_string(b);
 }
 
-/* "v [lo, hi]" or "not determined (reason)". */
-static void est_text(const stagecal_history_estimate *e, const char *fmt, char *buf, size_t cap)
+/* "v [lo, hi] (dof)" with `digits` decimals (sign shown when plus), or the reason. */
+static void est_text(const stagecal_history_estimate *e, int digits, int plus, char *buf,
+                     size_t cap)
 {
-    if (!e->determined) {
+    if (!e->determined)
         snprintf(buf, cap, "%s", e->reason[0] ? e->reason : "not determined");
-        return;
-    }
-    char f[64];
-    snprintf(f, sizeof f, "%s [%s, %s] (%%.1f dof)", fmt, fmt, fmt);
-    snprintf(buf, cap, f, e->value, e->low, e->high, e->dof);
+    else if (plus)
+        snprintf(buf, cap, "%+.*f [%+.*f, %+.*f] (%.1f dof)", digits, e->value, digits, e->low,
+                 digits, e->high, e->dof);
+    else
+        snprintf(buf, cap, "%.*f [%.*f, %.*f] (%.1f dof)", digits, e->value, digits, e->low, digits,
+                 e->high, e->dof);
 }
 
 static json_t *est_json(const stagecal_history_estimate *e)
@@ -120,25 +122,46 @@ static json_t *equiv_json(const stagecal_hetp_equiv *q)
     int nd = q->verdict == STAGECAL_EQUIV_NOT_DETERMINED;
     return json_pack("{s:s, s:s, s:o, s:o, s:o, s:o, s:o}", "verdict",
                      stagecal_equiv_verdict_name(q->verdict), "text", q->text, "margin",
-                     cli_json_real(q->margin), "ratio_low", nd ? json_null() : cli_json_real(q->low),
-                     "ratio_high", nd ? json_null() : cli_json_real(q->high), "p",
+                     cli_json_real(q->margin), "ratio_low",
+                     nd ? json_null() : cli_json_real(q->low), "ratio_high",
+                     nd ? json_null() : cli_json_real(q->high), "p",
                      nd ? json_null() : cli_json_real(q->p), "dof", cli_json_real(q->dof));
 }
 
 static int parse_options(int argc, char **argv, struct options *o)
 {
-    enum { O_COLUMN = 256, O_REFLUX, O_FLOAD, O_FORM, O_EVENTS, O_REQUIRE, O_NOW, O_LEVEL,
-           O_MINRUNS, O_EXCLUDE, O_DESIGN, O_MARGIN, O_JSON, O_QUIET };
-    static const struct option opts[] = {
-        {"column", required_argument, NULL, O_COLUMN}, {"reflux", required_argument, NULL, O_REFLUX},
-        {"f-factor", required_argument, NULL, O_FLOAD}, {"form", required_argument, NULL, O_FORM},
-        {"events", required_argument, NULL, O_EVENTS}, {"require", required_argument, NULL, O_REQUIRE},
-        {"now", required_argument, NULL, O_NOW}, {"level", required_argument, NULL, O_LEVEL},
-        {"min-runs", required_argument, NULL, O_MINRUNS},
-        {"exclude-run", required_argument, NULL, O_EXCLUDE},
-        {"design-hetp", required_argument, NULL, O_DESIGN},
-        {"margin", required_argument, NULL, O_MARGIN}, {"json", no_argument, NULL, O_JSON},
-        {"quiet", no_argument, NULL, O_QUIET}, {"help", no_argument, NULL, 'h'}, {0, 0, 0, 0}};
+    enum {
+        O_COLUMN = 256,
+        O_REFLUX,
+        O_FLOAD,
+        O_FORM,
+        O_EVENTS,
+        O_REQUIRE,
+        O_NOW,
+        O_LEVEL,
+        O_MINRUNS,
+        O_EXCLUDE,
+        O_DESIGN,
+        O_MARGIN,
+        O_JSON,
+        O_QUIET
+    };
+    static const struct option opts[] = {{"column", required_argument, NULL, O_COLUMN},
+                                         {"reflux", required_argument, NULL, O_REFLUX},
+                                         {"f-factor", required_argument, NULL, O_FLOAD},
+                                         {"form", required_argument, NULL, O_FORM},
+                                         {"events", required_argument, NULL, O_EVENTS},
+                                         {"require", required_argument, NULL, O_REQUIRE},
+                                         {"now", required_argument, NULL, O_NOW},
+                                         {"level", required_argument, NULL, O_LEVEL},
+                                         {"min-runs", required_argument, NULL, O_MINRUNS},
+                                         {"exclude-run", required_argument, NULL, O_EXCLUDE},
+                                         {"design-hetp", required_argument, NULL, O_DESIGN},
+                                         {"margin", required_argument, NULL, O_MARGIN},
+                                         {"json", no_argument, NULL, O_JSON},
+                                         {"quiet", no_argument, NULL, O_QUIET},
+                                         {"help", no_argument, NULL, 'h'},
+                                         {0, 0, 0, 0}};
     int c;
     optind = 0;
     opterr = 0;
@@ -148,16 +171,36 @@ static int parse_options(int argc, char **argv, struct options *o)
         case 'h':
             fputs(usage_text, stdout);
             return -1;
-        case O_COLUMN: o->column = optarg; break;
-        case O_FORM: o->form = optarg; break;
-        case O_EVENTS: o->events = optarg; break;
-        case O_REFLUX: bad = cli_parse_double("reflux", optarg, 1, "a reflux ratio > 0 or 'inf'", &o->reflux); break;
-        case O_FLOAD: bad = cli_parse_double("f-factor", optarg, 0, "an F-factor in Pa^0.5", &o->fload); break;
-        case O_REQUIRE: bad = cli_parse_double("require", optarg, 0, "a number of stages", &o->require); break;
-        case O_LEVEL: bad = cli_parse_double("level", optarg, 0, "a confidence level in (0, 1)", &o->level); break;
-        case O_DESIGN: bad = cli_parse_double("design-hetp", optarg, 0, "a design HETP in m", &o->design); break;
-        case O_MARGIN: bad = cli_parse_double("margin", optarg, 0, "a fraction, e.g. 0.10", &o->margin); break;
-        case O_MINRUNS: bad = cli_parse_long("min-runs", optarg, 2, 1000, &o->min_runs); break;
+        case O_COLUMN:
+            o->column = optarg;
+            break;
+        case O_FORM:
+            o->form = optarg;
+            break;
+        case O_EVENTS:
+            o->events = optarg;
+            break;
+        case O_REFLUX:
+            bad = cli_parse_double("reflux", optarg, 1, "a reflux ratio > 0 or 'inf'", &o->reflux);
+            break;
+        case O_FLOAD:
+            bad = cli_parse_double("f-factor", optarg, 0, "an F-factor in Pa^0.5", &o->fload);
+            break;
+        case O_REQUIRE:
+            bad = cli_parse_double("require", optarg, 0, "a number of stages", &o->require);
+            break;
+        case O_LEVEL:
+            bad = cli_parse_double("level", optarg, 0, "a confidence level in (0, 1)", &o->level);
+            break;
+        case O_DESIGN:
+            bad = cli_parse_double("design-hetp", optarg, 0, "a design HETP in m", &o->design);
+            break;
+        case O_MARGIN:
+            bad = cli_parse_double("margin", optarg, 0, "a fraction, e.g. 0.10", &o->margin);
+            break;
+        case O_MINRUNS:
+            bad = cli_parse_long("min-runs", optarg, 2, 1000, &o->min_runs);
+            break;
         case O_NOW:
             if (stagecal_units_parse_iso8601(optarg, &o->now_s) != 0)
                 return cli_usage_error("option '--now': '%s' is not a date (expected ISO 8601, "
@@ -177,30 +220,430 @@ static int parse_options(int argc, char **argv, struct options *o)
             x->reason = eq + 1;
             break;
         }
-        case O_JSON: o->json = 1; break;
-        case O_QUIET: cli_quiet = 1; break;
-        default: return cli_usage_getopt(c, argv, "history");
+        case O_JSON:
+            o->json = 1;
+            break;
+        case O_QUIET:
+            cli_quiet = 1;
+            break;
+        default:
+            return cli_usage_getopt(c, argv, "history");
         }
         if (bad)
             return CLI_EXIT_USAGE;
     }
     int rc;
     if (!o->column)
-        return cli_usage_error("option '--column FILE' is required (see 'stagecal history --help')");
+        return cli_usage_error(
+            "option '--column FILE' is required (see 'stagecal history --help')");
     if (optind >= argc)
         return cli_usage_error("at least one run log is required (see 'stagecal history --help')");
     if ((rc = cli_require("reflux", o->reflux)) || (rc = cli_check_reflux("reflux", o->reflux)))
         return rc;
     if (!(o->reflux > 0))
-        return cli_usage_error("option '--reflux': 0 is not a condition with stages (expected R > 0)");
+        return cli_usage_error(
+            "option '--reflux': 0 is not a condition with stages (expected R > 0)");
     if (!(o->level > 0 && o->level < 1))
-        return cli_usage_error("option '--level': %g is outside (0, 1) (expected e.g. 0.95)", o->level);
+        return cli_usage_error("option '--level': %g is outside (0, 1) (expected e.g. 0.95)",
+                               o->level);
     if (!(o->margin > 0 && o->margin < 1))
-        return cli_usage_error("option '--margin': %g is outside (0, 1) (expected e.g. 0.10)", o->margin);
+        return cli_usage_error("option '--margin': %g is outside (0, 1) (expected e.g. 0.10)",
+                               o->margin);
     if (!isnan(o->require) && !(o->require >= 1))
-        return cli_usage_error("option '--require': %g is below 1 (expected stages, the pot included)",
-                               o->require);
+        return cli_usage_error(
+            "option '--require': %g is below 1 (expected stages, the pot included)", o->require);
     if (!isnan(o->design) && !(o->design > 0))
-        return cli_usage_error("option '--design-hetp': %g is not positive (expected m)", o->design);
+        return cli_usage_error("option '--design-hetp': %g is not positive (expected m)",
+                               o->design);
     return 0;
+}
+
+/* Everything the command computed. */
+struct result {
+    stagecal_calibration cal;
+    stagecal_history_point *pts;
+    size_t n;
+    stagecal_trend_event *ev;
+    size_t nev;
+    stagecal_history_fit fit;
+    int has_repack;
+    stagecal_history_repack rp;
+    stagecal_hetp_equiv eq_old, eq_design;
+    int has_design;
+    stagecal_trend_point *chart_in; /* per run of the current segment, at the condition */
+    stagecal_chart_point *chart;
+    char (*chart_run)[64];
+    size_t n_chart;
+    size_t chart_alarms;
+};
+
+/* Windows with a stage count as history points; excluded runs are left out. */
+static int collect(struct result *res, struct options *o)
+{
+    const stagecal_calibration *cal = &res->cal;
+    res->pts = calloc(cal->nev ? cal->nev : 1, sizeof *res->pts);
+    if (!res->pts) {
+        cli_error("out of memory");
+        return CLI_EXIT_SOFTWARE;
+    }
+    if (cal->log->nfiles_iso != cal->log->nfiles) {
+        cli_error("the run logs carry relative times; the history needs dates (expected a "
+                  "time[iso8601] column)");
+        return CLI_EXIT_DATA;
+    }
+    for (size_t i = 0; i < cal->nev; i++) {
+        const stagecal_evidence *e = &cal->ev[i];
+        if (!e->stages_ok || !(e->se_stages > 0))
+            continue;
+        const char *name = cal->log->runs[e->run].name;
+        struct exclusion *x = NULL;
+        for (size_t k = 0; k < o->n_ex; k++)
+            if (strcmp(o->ex[k].run, name) == 0)
+                x = &o->ex[k];
+        if (x) {
+            x->windows++;
+            continue;
+        }
+        stagecal_history_point *p = &res->pts[res->n++];
+        p->t_s = e->t_mid_s;
+        p->run = (long)e->run;
+        p->r = e->r;
+        p->f_load = e->has_load ? e->f_load : NAN;
+        p->stages = e->stages;
+        p->se = e->se_stages;
+    }
+    for (size_t k = 0; k < o->n_ex; k++)
+        if (o->ex[k].windows == 0)
+            cli_warn("--exclude-run %s: no window of that run in the logs", o->ex[k].run);
+    return 0;
+}
+
+/* Per run of the current segment: its windows scaled to the stated condition by the
+ * fitted correlation, h(R_ref)/h(R_i), and averaged with weights 1/se². */
+static int build_chart(struct result *res, const struct options *o)
+{
+    const stagecal_history_fit *f = &res->fit;
+    size_t n = res->n;
+    res->chart_in = calloc(n ? n : 1, sizeof *res->chart_in);
+    res->chart = calloc(n ? n : 1, sizeof *res->chart);
+    res->chart_run = calloc(n ? n : 1, sizeof *res->chart_run);
+    if (!res->chart_in || !res->chart || !res->chart_run) {
+        cli_error("out of memory");
+        return CLI_EXIT_SOFTWARE;
+    }
+    double href;
+    if (stagecal_form_eval(&f->form, f->beta, o->reflux, o->fload, &href, NULL) != 0)
+        return 0;
+    long last = -1;
+    for (size_t i = 0; i < n; i++) {
+        const stagecal_history_point *p = &res->pts[i];
+        double h;
+        if (f->segment_of[i] != f->current ||
+            stagecal_form_eval(&f->form, f->beta, p->r, p->f_load, &h, NULL) != 0 || !(h > 0))
+            continue;
+        double v = p->stages * href / h, s = p->se * href / h, w = 1 / (s * s);
+        stagecal_trend_point *c = &res->chart_in[res->n_chart];
+        if (p->run != last) { /* windows of a run are contiguous in time */
+            c = &res->chart_in[res->n_chart++];
+            c->t_s = c->value = c->se = 0;
+            snprintf(res->chart_run[res->n_chart - 1], 64, "%s", res->cal.log->runs[p->run].name);
+            last = p->run;
+        } else {
+            c = &res->chart_in[res->n_chart - 1];
+        }
+        /* accumulate Σw (in se), Σw·v (in value), Σw·t (in t_s); finished below */
+        c->se += w;
+        c->value += w * v;
+        c->t_s += w * p->t_s;
+    }
+    for (size_t k = 0; k < res->n_chart; k++) {
+        stagecal_trend_point *c = &res->chart_in[k];
+        c->value /= c->se;
+        c->t_s /= c->se;
+        c->se = 1 / sqrt(c->se);
+    }
+    /* time order (the logs may be given in any order); insertion sort of a few runs */
+    for (size_t k = 1; k < res->n_chart; k++) {
+        stagecal_trend_point c = res->chart_in[k];
+        char name[64];
+        memcpy(name, res->chart_run[k], sizeof name);
+        size_t j = k;
+        for (; j > 0 && res->chart_in[j - 1].t_s > c.t_s; j--) {
+            res->chart_in[j] = res->chart_in[j - 1];
+            memcpy(res->chart_run[j], res->chart_run[j - 1], sizeof name);
+        }
+        res->chart_in[j] = c;
+        memcpy(res->chart_run[j], name, sizeof name);
+    }
+    stagecal_chart_params cp = stagecal_chart_default_params();
+    stagecal_error err;
+    if (res->n_chart > 0 && stagecal_chart_selfstart(res->chart_in, res->n_chart, &cp, res->chart,
+                                                     &res->chart_alarms, &err) != STAGECAL_OK)
+        return cli_fail_data(&err);
+    return 0;
+}
+
+static int compute(struct result *res, struct options *o, char **logs, size_t nlogs)
+{
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    stagecal_calibrate_params cp = stagecal_calibrate_default_params();
+    cp.form = o->form;
+    cp.method = STAGECAL_CAL_STAGE;
+    int rc = stagecal_calibrate(o->column, (const char *const *)logs, nlogs, &cp, &res->cal, &err);
+    /* the correlation fitted to all windows at once may fail (the bed changes); only the
+     * windows are needed here */
+    if (rc != STAGECAL_OK && res->cal.nev == 0)
+        return cli_fail(&err);
+    if ((rc = collect(res, o)))
+        return rc;
+    if (o->events &&
+        stagecal_trend_events_read(o->events, &res->ev, &res->nev, &err) != STAGECAL_OK)
+        return cli_fail(&err);
+    stagecal_form form;
+    if (stagecal_form_parse(o->form, &form, &err) != STAGECAL_OK)
+        return cli_usage_error("option '--form': %s", err.text);
+    if (form.uses_load && isnan(o->fload))
+        return cli_usage_error("form '%s' uses the vapour load: option '--f-factor F' is required",
+                               form.name);
+    stagecal_history_params hp = stagecal_history_default_params();
+    hp.level = o->level;
+    hp.r_ref = o->reflux;
+    hp.f_ref = o->fload;
+    hp.now_s = o->now_s;
+    hp.required = o->require;
+    hp.min_runs = (size_t)o->min_runs;
+    if (stagecal_history_fit_points(&form, res->pts, res->n, res->ev, res->nev, res->cal.column.id,
+                                    &hp, &res->fit, &err) != STAGECAL_OK)
+        return cli_fail_data(&err);
+    const stagecal_history_fit *f = &res->fit;
+    double off = stagecal_convention_outside(res->cal.column.condenser);
+    if (f->current > 0) {
+        res->has_repack = 1;
+        if (stagecal_history_repack_at(f, f->current, o->reflux, o->fload, off, &res->rp, &err))
+            return cli_fail_data(&err);
+        const stagecal_history_estimate *lr = &res->rp.log_ratio;
+        if (isfinite(lr->value) && isfinite(lr->se) && isfinite(lr->dof)) {
+            stagecal_hetp_equiv_log(lr->value, lr->se, lr->dof, o->margin, 0.05,
+                                    "the old bed when new", &res->eq_old, NULL);
+        } else {
+            res->eq_old.verdict = STAGECAL_EQUIV_NOT_DETERMINED;
+            snprintf(res->eq_old.text, sizeof res->eq_old.text, "%s", lr->reason);
+        }
+        const stagecal_history_estimate *ac = &res->rp.after_col;
+        if (!isnan(o->design) && res->cal.column.height_m > 0) {
+            res->has_design = 1;
+            stagecal_hetp_stages s = {ac->value, ac->se, ac->dof};
+            if (!(ac->value > 0 && ac->dof > 0) ||
+                stagecal_hetp_equiv_design(res->cal.column.height_m, &s, o->design, o->margin, 0.05,
+                                           &res->eq_design, NULL) != STAGECAL_OK) {
+                res->eq_design.verdict = STAGECAL_EQUIV_NOT_DETERMINED;
+                snprintf(res->eq_design.text, sizeof res->eq_design.text,
+                         "not determined whether it is as good as the design figure: %s",
+                         ac->determined ? "no column stages" : ac->reason);
+            }
+        }
+    }
+    return build_chart(res, o);
+}
+
+static void print_text(const struct result *res, const struct options *o)
+{
+    const stagecal_history_fit *f = &res->fit;
+    char a[STAGECAL_HISTORY_REASON + 64], d0[32], d1[32], d2[32];
+    int pct = (int)lround(o->level * 100);
+    printf("history of column %s: %zu windows in %zu runs, form %s, at R = %g", res->cal.column.id,
+           f->n, f->n_runs, f->form.name, o->reflux);
+    if (!isnan(o->fload))
+        printf(", F = %g Pa^0.5", o->fload);
+    printf("; %d %% intervals (run-clustered CR2, Bell-McCaffrey dof)\n", pct);
+    for (size_t k = 0; k < o->n_ex; k++)
+        printf("excluded run %s (%zu windows): %s\n", o->ex[k].run, o->ex[k].windows,
+               o->ex[k].reason);
+    for (size_t s = 0; s < f->n_segments; s++) {
+        const stagecal_history_segment *g = &f->segments[s];
+        format_day(g->origin_s, d0, sizeof d0);
+        printf("segment %zu from %s", s + 1, d0);
+        if (g->event >= 0)
+            printf(" (%s%s%s)", stagecal_event_kind_name(res->ev[g->event].kind),
+                   res->ev[g->event].note[0] ? ": " : "", res->ev[g->event].note);
+        printf(": %zu windows, %zu runs\n", g->n_points, g->n_runs);
+        est_text(&g->start, 3, 0, a, sizeof a);
+        printf("  stages at its start: %s\n", a);
+        est_text(&g->loss, 4, 0, a, sizeof a);
+        printf("  loss: %s stages per month\n", a);
+        est_text(&g->rel_loss, 4, 0, a, sizeof a);
+        printf("  relative loss: %s per month\n", a);
+    }
+    format_day(f->now_s, d0, sizeof d0);
+    est_text(&f->now, 3, 0, a, sizeof a);
+    printf("stages now (%s): %s\n", d0, a);
+    if (f->has_crossing) {
+        const stagecal_trend_forecast *fc = &f->crossing;
+        format_day(fc->t_cross_s, d0, sizeof d0);
+        format_day(fc->low_s, d1, sizeof d1);
+        format_day(fc->high_s, d2, sizeof d2);
+        if (fc->status == STAGECAL_FORECAST_NOT_DECLINING)
+            printf("below %.3g stages: not forecast (the current segment is not declining)\n",
+                   o->require);
+        else
+            printf("below %.3g stages on %s%s, %d %% band %s to %s%s\n", o->require, d0,
+                   fc->past ? " (already past)" : "", pct, d1, d2,
+                   fc->status == STAGECAL_FORECAST_UNBOUNDED
+                       ? " (loss not significant: the band is open)"
+                       : "");
+    } else if (!isnan(o->require)) {
+        printf("below %.3g stages: not determined (%s)\n", o->require,
+               f->now.determined ? "the current segment's loss has < 2 dof" : f->now.reason);
+    }
+    if (res->has_repack) {
+        const stagecal_history_repack *r = &res->rp;
+        format_day(r->t_s, d0, sizeof d0);
+        printf("at the event of %s:\n", d0);
+        est_text(&r->before, 3, 0, a, sizeof a);
+        printf("  stages before: %s\n", a);
+        est_text(&r->after, 3, 0, a, sizeof a);
+        printf("  stages after:  %s\n", a);
+        est_text(&r->change, 3, 1, a, sizeof a);
+        printf("  change:        %s\n", a);
+        printf("  %s\n", res->eq_old.text);
+        if (res->has_design)
+            printf("  %s\n", res->eq_design.text);
+    }
+    if (res->n_chart > 0) {
+        printf("chart of the current segment's runs at the stated condition (self-starting EWMA "
+               "and CUSUM on Q statistics; in-control ARL 500 and 465 runs):\n");
+        for (size_t k = 0; k < res->n_chart; k++) {
+            const stagecal_chart_point *c = &res->chart[k];
+            format_day(res->chart_in[k].t_s, d0, sizeof d0);
+            printf("  %s %-10s %7.3f", d0, res->chart_run[k], res->chart_in[k].value);
+            if (c->started)
+                printf("  Q %+6.2f  EWMA %+6.3f  CUSUM -%5.2f/+%5.2f%s", c->q, c->ewma, c->cusum_lo,
+                       c->cusum_hi,
+                       c->ewma_alarm < 0 || c->cusum_alarm < 0   ? "  LOSS"
+                       : c->ewma_alarm > 0 || c->cusum_alarm > 0 ? "  GAIN"
+                                                                 : "");
+            else
+                printf("  (start-up)");
+            printf("\n");
+        }
+    }
+    printf("\n%s\n", stagecal_caution_text());
+}
+
+static json_t *result_json(const struct result *res, const struct options *o)
+{
+    const stagecal_history_fit *f = &res->fit;
+    json_t *doc = json_object();
+    json_object_set_new(doc, "format", json_string("stagecal-history"));
+    json_object_set_new(doc, "version", json_integer(1));
+    json_object_set_new(doc, "column_id", json_string(res->cal.column.id));
+    json_object_set_new(doc, "form", json_string(f->form.name));
+    json_object_set_new(doc, "reflux", cli_json_reflux(o->reflux));
+    json_object_set_new(doc, "f_factor", cli_json_real(o->fload));
+    json_object_set_new(doc, "level", json_real(o->level));
+    json_object_set_new(doc, "windows", json_integer((json_int_t)f->n));
+    json_object_set_new(doc, "runs", json_integer((json_int_t)f->n_runs));
+    json_object_set_new(doc, "excess_variance", cli_json_real(f->tau2));
+    json_object_set_new(
+        doc, "method",
+        json_string("stages = h(R, F) x (m_s - k_s x months since the segment's event); weighted "
+                    "nonlinear least squares; run-clustered CR2 sandwich (Bell & McCaffrey 2002); "
+                    "t with Bell-McCaffrey dof"));
+    json_t *ex = json_array();
+    for (size_t k = 0; k < o->n_ex; k++)
+        json_array_append_new(ex,
+                              json_pack("{s:s, s:s, s:I}", "run", o->ex[k].run, "reason",
+                                        o->ex[k].reason, "windows", (json_int_t)o->ex[k].windows));
+    json_object_set_new(doc, "excluded_runs", ex);
+    json_t *segs = json_array();
+    for (size_t s = 0; s < f->n_segments; s++) {
+        const stagecal_history_segment *g = &f->segments[s];
+        json_t *j = json_pack(
+            "{s:o, s:I, s:I, s:b, s:o, s:o, s:o, s:o}", "start", day_json(g->origin_s), "windows",
+            (json_int_t)g->n_points, "runs", (json_int_t)g->n_runs, "fitted", g->fitted,
+            "stages_at_start", est_json(&g->start), "loss_per_month", est_json(&g->loss),
+            "relative_loss_per_month", est_json(&g->rel_loss), "level", est_json(&g->level));
+        json_object_set_new(j, "event",
+                            g->event >= 0
+                                ? json_pack("{s:s, s:s}", "kind",
+                                            stagecal_event_kind_name(res->ev[g->event].kind),
+                                            "note", res->ev[g->event].note)
+                                : json_null());
+        json_array_append_new(segs, j);
+    }
+    json_object_set_new(doc, "segments", segs);
+    json_object_set_new(
+        doc, "now",
+        json_pack("{s:o, s:o}", "date", day_json(f->now_s), "stages", est_json(&f->now)));
+    if (f->has_crossing) {
+        const stagecal_trend_forecast *fc = &f->crossing;
+        json_object_set_new(doc, "crossing",
+                            json_pack("{s:o, s:s, s:o, s:o, s:o, s:b}", "required",
+                                      cli_json_real(o->require), "status",
+                                      stagecal_forecast_status_name(fc->status), "date",
+                                      day_json(fc->t_cross_s), "band_low", day_json(fc->low_s),
+                                      "band_high", day_json(fc->high_s), "past", fc->past));
+    } else {
+        json_object_set_new(doc, "crossing", json_null());
+    }
+    if (res->has_repack) {
+        const stagecal_history_repack *r = &res->rp;
+        json_object_set_new(doc, "last_event",
+                            json_pack("{s:o, s:o, s:o, s:o, s:o, s:o, s:o}", "date",
+                                      day_json(r->t_s), "before", est_json(&r->before), "after",
+                                      est_json(&r->after), "change", est_json(&r->change),
+                                      "old_bed_when_new", est_json(&r->old_new), "vs_old_bed",
+                                      equiv_json(&res->eq_old), "vs_design",
+                                      res->has_design ? equiv_json(&res->eq_design) : json_null()));
+    } else {
+        json_object_set_new(doc, "last_event", json_null());
+    }
+    json_t *ch = json_array();
+    for (size_t k = 0; k < res->n_chart; k++) {
+        const stagecal_chart_point *c = &res->chart[k];
+        json_array_append_new(
+            ch, json_pack("{s:s, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:i, s:i}", "run",
+                          res->chart_run[k], "date", day_json(res->chart_in[k].t_s), "stages",
+                          cli_json_real(res->chart_in[k].value), "q",
+                          c->started ? cli_json_real(c->q) : json_null(), "t_dof",
+                          c->started ? cli_json_real(c->dof) : json_null(), "ewma",
+                          cli_json_real(c->ewma), "cusum_low", cli_json_real(c->cusum_lo),
+                          "cusum_high", cli_json_real(c->cusum_hi), "ewma_alarm", c->ewma_alarm,
+                          "cusum_alarm", c->cusum_alarm));
+    }
+    json_object_set_new(doc, "chart", ch);
+    json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
+    return doc;
+}
+
+int cmd_history(int argc, char **argv)
+{
+    struct options o;
+    memset(&o, 0, sizeof o);
+    o.form = "saturating";
+    o.reflux = o.fload = o.require = o.design = o.now_s = NAN;
+    o.level = 0.95;
+    o.margin = STAGECAL_HETP_EQUIV_MARGIN;
+    o.min_runs = 3;
+    int rc = parse_options(argc, argv, &o);
+    if (rc)
+        return rc < 0 ? CLI_EXIT_OK : rc;
+    struct result res;
+    memset(&res, 0, sizeof res);
+    rc = compute(&res, &o, argv + optind, (size_t)(argc - optind));
+    if (rc == 0) {
+        if (o.json)
+            rc = cli_json_print(result_json(&res, &o));
+        else
+            print_text(&res, &o);
+    }
+    stagecal_calibration_free(&res.cal);
+    stagecal_history_free(&res.fit);
+    free(res.pts);
+    free(res.ev);
+    free(res.chart_in);
+    free(res.chart);
+    free(res.chart_run);
+    return rc;
 }

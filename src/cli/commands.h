@@ -12,6 +12,7 @@ int invert_runlog(int argc, char **argv);
 int cmd_calibrate(int argc, char **argv);
 int cmd_regress(int argc, char **argv);
 int cmd_hetp(int argc, char **argv);
+int cmd_history(int argc, char **argv);
 int cmd_trend(int argc, char **argv);
 int cmd_predict(int argc, char **argv);
 int cmd_plot(int argc, char **argv);

@@ -30,6 +30,7 @@ static const struct command commands[] = {
     {"invert", cmd_invert, "effective stages from xD, xB and R (or every row of a run log)"},
     {"regress", cmd_regress, "fit stages against R (and F) with bands, from a points file"},
     {"hetp", cmd_hetp, "HETP (or tray efficiency) with an interval; before/after a repack"},
+    {"history", cmd_history, "one fit over months of logs: loss rate, stages now, crossing date"},
     {"trend", cmd_trend, "stages over months: trend, EWMA alarms, forecast; fleet rows"},
     {"predict", cmd_predict, "predict a batch from a model file: cuts, times, yields, band"},
     {"plot", cmd_plot, "charts as PNG, SVG or PDF: McCabe-Thiele diagram, stages against R"},
