@@ -61,8 +61,7 @@ static int sim_fit(gsl_rng *rng, double hetp_true, int nw, stagecal_hetp_stages 
 
 /* Fractions declared equivalent and not determined over reps; pair: against an old bed
  * at the design HETP with the same evidence. */
-static void run(gsl_rng *rng, int reps, double hetp_true, int nw, int pair, double *eq,
-                double *nd)
+static void run(gsl_rng *rng, int reps, double hetp_true, int nw, int pair, double *eq, double *nd)
 {
     int n = 0, ne = 0, nn = 0;
     for (int i = 0; i < reps; i++) {
@@ -72,8 +71,8 @@ static void run(gsl_rng *rng, int reps, double hetp_true, int nw, int pair, doub
             continue;
         int rc = pair ? stagecal_hetp_equiv_pair(H, &old, H, &s, STAGECAL_HETP_EQUIV_MARGIN, 0.05,
                                                  &e, NULL)
-                      : stagecal_hetp_equiv_design(H, &s, DESIGN, STAGECAL_HETP_EQUIV_MARGIN,
-                                                   0.05, &e, NULL);
+                      : stagecal_hetp_equiv_design(H, &s, DESIGN, STAGECAL_HETP_EQUIV_MARGIN, 0.05,
+                                                   &e, NULL);
         if (rc != 0)
             continue;
         n++;
