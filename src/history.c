@@ -37,6 +37,25 @@ stagecal_history_params stagecal_history_default_params(void)
     return p;
 }
 
+size_t stagecal_history_points_from_evidence(const stagecal_evidence_set *set,
+                                             stagecal_history_point *out)
+{
+    size_t m = 0;
+    for (size_t i = 0; i < set->n; i++) {
+        const stagecal_evidence *e = &set->ev[i];
+        if (!e->stages_ok || !(e->se_stages > 0) || !isfinite(e->t_mid_s))
+            continue;
+        stagecal_history_point *p = &out[m++];
+        p->t_s = e->t_mid_s;
+        p->run = (long)e->run;
+        p->r = e->r;
+        p->f_load = e->has_load ? e->f_load : NAN;
+        p->stages = e->stages;
+        p->se = e->se_stages;
+    }
+    return m;
+}
+
 void stagecal_history_free(stagecal_history_fit *fit)
 {
     if (!fit)

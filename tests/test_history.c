@@ -305,6 +305,33 @@ static void test_bad_input(void **state)
     stagecal_history_free(&fit);
 }
 
+/* Windows of an evidence set become points: only those with a stage count (the rule of
+ * evidence.h), time = mid time, run = run index. Checked against the hand-made set. */
+static void test_points_from_evidence(void **state)
+{
+    (void)state;
+    stagecal_evidence ev[3];
+    memset(ev, 0, sizeof ev);
+    for (size_t i = 0; i < 3; i++) {
+        ev[i].run = 10 + i;
+        ev[i].r = 2.0 + (double)i;
+        ev[i].stages_ok = i != 1;
+        ev[i].stages = 8.0 + (double)i;
+        ev[i].se_stages = 0.1;
+        ev[i].t_mid_s = T0 + 1000.0 * (double)i;
+    }
+    ev[2].has_load = 1;
+    ev[2].f_load = 1.3;
+    stagecal_evidence_set set = {ev, 3, NULL};
+    stagecal_history_point p[3];
+    assert_int_equal(stagecal_history_points_from_evidence(&set, p), 2);
+    assert_int_equal(p[1].run, 12);
+    assert_abs(p[1].t_s, T0 + 2000.0, 0, "time");
+    assert_abs(p[1].f_load, 1.3, 0, "F");
+    assert_true(isnan(p[0].f_load));
+    assert_abs(p[0].stages, 8.0, 0, "stages");
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -316,6 +343,7 @@ int main(void)
         cmocka_unit_test(test_check),
         cmocka_unit_test(test_coverage_small),
         cmocka_unit_test(test_bad_input),
+        cmocka_unit_test(test_points_from_evidence),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }

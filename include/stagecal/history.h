@@ -37,6 +37,7 @@
 #include <stddef.h>
 
 #include "stagecal/error.h"
+#include "stagecal/evidence.h"
 #include "stagecal/form.h"
 #include "stagecal/trend.h"
 
@@ -53,6 +54,12 @@ typedef struct {
     double stages; /* effective stages, the pot included, > 0 */
     double se;     /* standard error of stages, > 0 */
 } stagecal_history_point;
+
+/* The windows of an evidence set (evidence.h, the one definition of a window) that have
+ * a stage count, as history points: time = the window's mid time, run = its run index.
+ * out holds set->n entries; returns the number written. */
+size_t stagecal_history_points_from_evidence(const stagecal_evidence_set *set,
+                                             stagecal_history_point *out);
 
 /* Longest "not determined" reason. */
 #define STAGECAL_HISTORY_REASON 160

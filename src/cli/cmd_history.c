@@ -277,11 +277,13 @@ struct result {
     size_t chart_alarms;
 };
 
-/* Windows with a stage count as history points; excluded runs are left out. */
+/* The evidence's windows with a stage count as history points; excluded runs are left
+ * out (counted per exclusion). */
 static int collect(struct result *res, struct options *o)
 {
     const stagecal_calibration *cal = &res->cal;
-    res->pts = calloc(cal->nev ? cal->nev : 1, sizeof *res->pts);
+    const stagecal_evidence_set *set = &cal->evidence;
+    res->pts = calloc(set->n ? set->n : 1, sizeof *res->pts);
     if (!res->pts) {
         cli_error("out of memory");
         return CLI_EXIT_SOFTWARE;
@@ -291,26 +293,18 @@ static int collect(struct result *res, struct options *o)
                   "time[iso8601] column)");
         return CLI_EXIT_DATA;
     }
-    for (size_t i = 0; i < cal->nev; i++) {
-        const stagecal_evidence *e = &cal->ev[i];
-        if (!e->stages_ok || !(e->se_stages > 0))
-            continue;
-        const char *name = cal->log->runs[e->run].name;
+    size_t n = stagecal_history_points_from_evidence(set, res->pts);
+    res->n = 0;
+    for (size_t i = 0; i < n; i++) {
+        const char *name = cal->log->runs[res->pts[i].run].name;
         struct exclusion *x = NULL;
         for (size_t k = 0; k < o->n_ex; k++)
             if (strcmp(o->ex[k].run, name) == 0)
                 x = &o->ex[k];
-        if (x) {
+        if (x)
             x->windows++;
-            continue;
-        }
-        stagecal_history_point *p = &res->pts[res->n++];
-        p->t_s = e->t_mid_s;
-        p->run = (long)e->run;
-        p->r = e->r;
-        p->f_load = e->has_load ? e->f_load : NAN;
-        p->stages = e->stages;
-        p->se = e->se_stages;
+        else
+            res->pts[res->n++] = res->pts[i];
     }
     for (size_t k = 0; k < o->n_ex; k++)
         if (o->ex[k].windows == 0)
@@ -393,7 +387,7 @@ static int compute(struct result *res, struct options *o, char **logs, size_t nl
     int rc = stagecal_calibrate(o->column, (const char *const *)logs, nlogs, &cp, &res->cal, &err);
     /* the correlation fitted to all windows at once may fail (the bed changes); only the
      * windows are needed here */
-    if (rc != STAGECAL_OK && res->cal.nev == 0)
+    if (rc != STAGECAL_OK && res->cal.evidence.n == 0)
         return cli_fail(&err);
     if ((rc = collect(res, o)))
         return rc;
@@ -413,11 +407,11 @@ static int compute(struct result *res, struct options *o, char **logs, size_t nl
     hp.now_s = o->now_s;
     hp.required = o->require;
     hp.min_runs = (size_t)o->min_runs;
-    if (stagecal_history_fit_points(&form, res->pts, res->n, res->ev, res->nev, res->cal.column.id,
+    if (stagecal_history_fit_points(&form, res->pts, res->n, res->ev, res->nev, res->cal.column->id,
                                     &hp, &res->fit, &err) != STAGECAL_OK)
         return cli_fail_data(&err);
     const stagecal_history_fit *f = &res->fit;
-    double off = stagecal_convention_outside(res->cal.column.condenser);
+    double off = stagecal_convention_outside(res->cal.column->condenser);
     if (f->current > 0) {
         res->has_repack = 1;
         if (stagecal_history_repack_at(f, f->current, o->reflux, o->fload, off, &res->rp, &err))
@@ -431,12 +425,12 @@ static int compute(struct result *res, struct options *o, char **logs, size_t nl
             snprintf(res->eq_old.text, sizeof res->eq_old.text, "%s", lr->reason);
         }
         const stagecal_history_estimate *ac = &res->rp.after_col;
-        if (!isnan(o->design) && res->cal.column.height_m > 0) {
+        if (!isnan(o->design) && res->cal.column->height_m > 0) {
             res->has_design = 1;
             stagecal_hetp_stages s = {ac->value, ac->se, ac->dof};
             if (!(ac->value > 0 && ac->dof > 0) ||
-                stagecal_hetp_equiv_design(res->cal.column.height_m, &s, o->design, o->margin, 0.05,
-                                           &res->eq_design, NULL) != STAGECAL_OK) {
+                stagecal_hetp_equiv_design(res->cal.column->height_m, &s, o->design, o->margin,
+                                           0.05, &res->eq_design, NULL) != STAGECAL_OK) {
                 res->eq_design.verdict = STAGECAL_EQUIV_NOT_DETERMINED;
                 snprintf(res->eq_design.text, sizeof res->eq_design.text,
                          "not determined whether it is as good as the design figure: %s",
@@ -452,7 +446,7 @@ static void print_text(const struct result *res, const struct options *o)
     const stagecal_history_fit *f = &res->fit;
     char a[STAGECAL_HISTORY_REASON + 64], d0[32], d1[32], d2[32];
     int pct = (int)lround(o->level * 100);
-    printf("history of column %s: %zu windows in %zu runs, form %s, at R = %g", res->cal.column.id,
+    printf("history of column %s: %zu windows in %zu runs, form %s, at R = %g", res->cal.column->id,
            f->n, f->n_runs, f->form.name, o->reflux);
     if (!isnan(o->fload))
         printf(", F = %g Pa^0.5", o->fload);
@@ -537,7 +531,7 @@ static json_t *result_json(const struct result *res, const struct options *o)
     json_t *doc = json_object();
     json_object_set_new(doc, "format", json_string("stagecal-history"));
     json_object_set_new(doc, "version", json_integer(1));
-    json_object_set_new(doc, "column_id", json_string(res->cal.column.id));
+    json_object_set_new(doc, "column_id", json_string(res->cal.column->id));
     json_object_set_new(doc, "form", json_string(f->form.name));
     json_object_set_new(doc, "reflux", cli_json_reflux(o->reflux));
     json_object_set_new(doc, "f_factor", cli_json_real(o->fload));
