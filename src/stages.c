@@ -1,19 +1,24 @@
 /*
- * stages.c — McCabe–Thiele stepping for a batch rectifier, forward and inverse
+ * stages.c — McCabe–Thiele inversion for a batch rectifier
  * (DESIGN §2), plus the constant-α closed forms (Fenske, Smoker) and the minimum
  * reflux ratio for a general equilibrium model.
  *
+ * Files: stages.c (this: the inversion, its sensitivities, the minimum reflux ratio),
+ * stages_step.c (the stepper, forward stepping), stages_smoker.c (Smoker, Fenske).
+ *
  * Method. With L/V = m and b = (1 − m)·xD the operating line is y = m·x + b. From the
  * top, x_0 = xD and for n = 1, 2, …: y_n = m·x_(n−1) + b and x_n solves
- * (1 − E)·(m·x + b) + E·y*(x) = y_n (x_n = x*(y_n) when E = 1; otherwise GSL's Brent
- * solver on a bracket that always holds the root, see pseudo_eq_solve). The pot
+ * (1 − E)·(m·x + b) + E·y*(x) = y_n (stages_step.c). The pot
  * (ideal) fixes the target x_target = (y*(xB) − b)/m. Whole steps count while
  * x_n > x_target; the crossing step counts Smoker's fraction from x_(n−1) to x_target
  * with α_loc = y_n(1 − x_n)/(x_n(1 − y_n)) (REFERENCES §2; log-odds Fenske form at
  * total reflux, where Smoker's k = 0 and β = 1 reduce to it). For constant α and E = 1
  * the count equals Smoker's equation (Fenske at R = ∞) exactly, because Smoker's count
- * is additive and the pot step is whole. Forward stepping inverts that definition
- * (closed-form Smoker inverse for the fraction), so the two round-trip.
+ * is additive and the pot step is whole — so for constant α at E = 1 the inversion
+ * evaluates Smoker's closed form directly (count below params.pinch_scan_after, x_target
+ * not within CLOSED_MARGIN of the pinch root; stepping otherwise). Forward stepping
+ * inverts that definition (closed-form Smoker inverse for the fraction), so the two
+ * round-trip.
  *
  * Pinch detection (xB unreachable at this L/V): the stepping never crosses a point
  * where the operating line meets the equilibrium curve (the pseudo-equilibrium curve
@@ -23,13 +28,17 @@
  * liquid, checked once after params.pinch_scan_after steps (tangent pinches), or
  * (4) more than params.max_stages whole steps.
  *
- * Sensitivities ∂stages/∂xD, ∂xB, ∂R (on request): finite differences of the inversion
- * itself, central with h = fd_rel_step·min(x, 1 − x) for compositions and fd_rel_step·R
- * for the reflux ratio (cbrt(ε) balances truncation ~h² against rounding ~ε/h); a side
- * that leaves the domain (xB ≥ xD, x_max) or is not ok (pinch) is dropped and the
- * difference becomes one-sided; ∂/∂R = 0 at total reflux. The count is continuous but
- * may have a kink at whole-stage boundaries (for E_MV < 1 or a curved y*, α_loc of the
- * crossing step jumps there), so a difference straddling one is only O(h) accurate.
+ * Sensitivities ∂stages/∂xD, ∂xB, ∂R (on request): tangent-linear (forward-mode)
+ * derivatives carried along the stepping (stages_internal.h): each step's liquid moves
+ * with its vapour through the slope of the (pseudo-)equilibrium curve, the crossing
+ * step's fraction through Smoker's count with α_loc; for constant α at E = 1 they are
+ * the exact derivatives of Smoker's closed form. One inversion instead of the seven that
+ * central finite differences need. The count is continuous but has a kink at whole-stage
+ * boundaries where α_loc of the crossing step jumps (E_MV < 1, a curved y*): there the
+ * tangent is the derivative of the branch the point lies on. want_sensitivities = 2
+ * gives the former finite differences (central, h = fd_rel_step·min(x, 1 − x) for
+ * compositions and fd_rel_step·R for R, one-sided where a neighbour leaves the domain
+ * or is not ok), which also serve where a tangent comes out non-finite.
  *
  * Assumptions: binary, constant molar overflow, total condenser, y*(x) increasing on
  * the range stepped (true below the first azeotrope). Everything is dimensionless
@@ -38,18 +47,19 @@
 #include "stagecal/stages.h"
 
 #include <float.h>
-#include <stdarg.h>
 #include <math.h>
+#include <stdarg.h>
 #include <stdio.h>
 #include <string.h>
 
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_min.h>
-#include <gsl/gsl_roots.h>
 
+#include "stages_internal.h"
+#include "vle_internal.h"
+/* after every system header: banned.h redefines libc names */
 #include "internal.h"
 
-#define MAX_AZ 8 /* azeotropes inspected (vle finds at most a handful) */
 /* stagecal_min_reflux has no params argument (fixed signature), so its tunables are here:
  * the slope of the line from (xD, xD) to the curve is scanned on RMIN_NGRID points of
  * [xB, xD) (a tangent pinch narrower than (xD − xB)/RMIN_NGRID could be missed), then
@@ -57,6 +67,11 @@
 #define RMIN_NGRID 128
 #define RMIN_MAXIT 100
 #define RMIN_XTOL 1e-13
+
+/* The closed form for constant α is used while x_target lies more than this above the
+ * pinch root [mol/mol]: closer, stepping's own rounding (its steps shrink towards the
+ * root) decides whether the pinch is reached, and stepping is kept. */
+#define CLOSED_MARGIN 1e-9
 
 const char *stagecal_stages_status_name(int status)
 {
@@ -76,303 +91,8 @@ stagecal_stages_params stagecal_stages_default_params(void)
     p.pinch_scan_after = 200;
     p.pinch_scan_points = 256;
     p.fd_rel_step = 6.0554544523933395e-06; /* cbrt(DBL_EPSILON) */
+    p.closed_form = 1;
     return p;
-}
-
-/* ---- Smoker's equation on a general straight operating line (REFERENCES §2) ---------- */
-
-/* Constants of Smoker's equation for equilibrium αx/(1+(α−1)x) and line y = m x + b. */
-typedef struct {
-    double k;    /* pinch root in [0, 1) */
-    double beta; /* fixed point of the linear recursion in u = 1/(x − k) */
-    double lna;  /* ln(α/(m c²)) > 0: ln of the per-stage factor */
-} smoker_consts;
-
-/* Returns 0 when the constants are usable (α > 1, 0 < m ≤ 1, b ≥ 0, ln factor > 0). */
-static int smoker_setup(double alpha, double m, double b, smoker_consts *sc)
-{
-    double a2 = m * (alpha - 1.0);
-    double a1 = m + b * (alpha - 1.0) - alpha;
-    double disc = a1 * a1 - 4.0 * a2 * b;
-    if (!(alpha > 1.0) || !(m > 0.0) || !(disc >= 0.0))
-        return -1;
-    /* The small root, in the cancellation-free form (a1 < 0): k = 2b/(−a1 + √disc). At
-     * total reflux b = 0 gives k = 0 exactly, c = 1, β = 1: the Fenske log-odds form. */
-    double k = 2.0 * b / (-a1 + sqrt(disc));
-    double c = 1.0 + (alpha - 1.0) * k;
-    double den = alpha - m * c * c;
-    if (!(den > 0.0))
-        return -1;
-    sc->k = k;
-    sc->beta = m * c * (alpha - 1.0) / den;
-    sc->lna = log(alpha / (m * c * c));
-    if (!(sc->lna > 0.0) || !isfinite(sc->lna) || !isfinite(sc->beta))
-        return -1;
-    return 0;
-}
-
-/* Stage count from top liquid x0 down to xn (both > k); NaN when outside the domain. */
-static double smoker_count(const smoker_consts *sc, double x0, double xn)
-{
-    double u0 = 1.0 / (x0 - sc->k), un = 1.0 / (xn - sc->k);
-    return log((un - sc->beta) / (u0 - sc->beta)) / sc->lna;
-}
-
-/* Closed-form inverse: the liquid after n (real) stages from x0. */
-static double smoker_inverse(const smoker_consts *sc, double x0, double n)
-{
-    double u0 = 1.0 / (x0 - sc->k);
-    return sc->k + 1.0 / (sc->beta + (u0 - sc->beta) * exp(n * sc->lna));
-}
-
-int stagecal_fenske(double alpha, double xd, double xb, double *stages, stagecal_error *err)
-{
-    if (!stages)
-        return error_set(err, STAGECAL_EINVAL, "fenske: stages is NULL");
-    if (!(alpha > 1.0) || !isfinite(alpha))
-        return error_set(err, STAGECAL_EINVAL, "fenske: relative volatility %g outside (1, inf)",
-                         alpha);
-    if (!(xd > 0.0 && xd < 1.0) || !(xb > 0.0 && xb < xd))
-        return error_set(err, STAGECAL_EINVAL,
-                         "fenske: compositions xD = %g, xB = %g, expected 0 < xB < xD < 1", xd, xb);
-    *stages = log((xd / (1.0 - xd)) * ((1.0 - xb) / xb)) / log(alpha);
-    return STAGECAL_OK;
-}
-
-int stagecal_smoker(double alpha, double reflux, double xd, double xb, double *stages,
-                    stagecal_error *err)
-{
-    if (!stages)
-        return error_set(err, STAGECAL_EINVAL, "smoker: stages is NULL");
-    if (isinf(reflux) && reflux > 0)
-        return stagecal_fenske(alpha, xd, xb, stages, err);
-    if (!(alpha > 1.0) || !isfinite(alpha))
-        return error_set(err, STAGECAL_EINVAL, "smoker: relative volatility %g outside (1, inf)",
-                         alpha);
-    if (!(reflux > 0.0))
-        return error_set(err, STAGECAL_EINVAL, "smoker: reflux ratio %g, expected R > 0", reflux);
-    if (!(xd > 0.0 && xd < 1.0) || !(xb > 0.0 && xb < xd))
-        return error_set(err, STAGECAL_EINVAL,
-                         "smoker: compositions xD = %g, xB = %g, expected 0 < xB < xD < 1", xd, xb);
-    smoker_consts sc;
-    double m = reflux / (reflux + 1.0), b = xd / (reflux + 1.0);
-    if (smoker_setup(alpha, m, b, &sc) != 0)
-        return error_set(err, STAGECAL_EINTERNAL, "smoker: no pinch root for alpha %g, R %g", alpha,
-                         reflux);
-    if (!(xb > sc.k))
-        return error_set(err, STAGECAL_EINVAL,
-                         "smoker: xB = %.10g is at or below the pinch %.10g, no finite count", xb,
-                         sc.k);
-    *stages = smoker_count(&sc, xd, xb);
-    return STAGECAL_OK;
-}
-
-/* ---- the stepper ------------------------------------------------------------------- */
-
-typedef struct {
-    const stagecal_vle *vle;
-    const stagecal_stages_params *par;
-    double xd, m, b, e;  /* top composition, L/V, (1 − L/V)·xD, E_MV */
-    double y;            /* vapour of the step being solved (pseudo-equilibrium target) */
-    int vle_rc;          /* first vle failure inside the GSL callback */
-    gsl_root_fsolver *s; /* Brent solver when E < 1, else NULL */
-    stagecal_error *err;
-} stepper;
-
-static double op_line(const stepper *st, double x)
-{
-    return st->m * x + st->b;
-}
-
-static int vle_y(stepper *st, double x, double *y)
-{
-    int rc = stagecal_vle_ystar(st->vle, x, y);
-    if (rc != STAGECAL_OK)
-        return error_set(st->err, rc == STAGECAL_EINVAL ? STAGECAL_EINTERNAL : rc,
-                         "equilibrium y*(%.17g) failed: %s", x, stagecal_strerror(rc));
-    return STAGECAL_OK;
-}
-
-static int vle_x(stepper *st, double y, double *x)
-{
-    int rc = stagecal_vle_xstar(st->vle, y, x);
-    if (rc != STAGECAL_OK)
-        return error_set(st->err, rc == STAGECAL_EINVAL ? STAGECAL_EINTERNAL : rc,
-                         "equilibrium x*(%.17g) failed: %s", y, stagecal_strerror(rc));
-    return STAGECAL_OK;
-}
-
-/* Pseudo-equilibrium curve minus the target vapour: increasing in x when y* is. */
-static double pseudo_eq_f(double x, void *p)
-{
-    stepper *st = p;
-    double ys;
-    int rc = stagecal_vle_ystar(st->vle, x, &ys);
-    if (rc != STAGECAL_OK) {
-        if (!st->vle_rc)
-            st->vle_rc = rc;
-        return GSL_NAN;
-    }
-    return (1.0 - st->e) * op_line(st, x) + st->e * ys - st->y;
-}
-
-/* Vapour on the (pseudo-)equilibrium curve at liquid x. */
-static int pseudo_eq_y(stepper *st, double x, double *y)
-{
-    double ys;
-    int rc = vle_y(st, x, &ys);
-    if (rc)
-        return rc;
-    *y = st->e == 1.0 ? ys : (1.0 - st->e) * op_line(st, x) + st->e * ys;
-    return STAGECAL_OK;
-}
-
-/* Liquid x leaving a stage whose vapour is st->y, given the liquid from above x_prev.
- * The root is bracketed: at x_prev the pseudo-equilibrium lies above y_n (otherwise the
- * line meets the curve there and x_prev is returned, which the caller reports as a
- * pinch); the E = 1 solution x_e = x*(y_n) lies below the root when the
- * line is below y_n at x_e (then [x_e, x_prev]), otherwise [0, x_e] holds it. */
-static int pseudo_eq_solve(stepper *st, double x_prev, double *x)
-{
-    double xe, fhi, lo, hi;
-    int rc = vle_x(st, st->y, &xe);
-    if (rc)
-        return rc;
-    if (st->e == 1.0) {
-        *x = xe;
-        return STAGECAL_OK;
-    }
-    st->vle_rc = 0;
-    fhi = pseudo_eq_f(x_prev, st);
-    if (st->vle_rc)
-        return error_set(st->err, STAGECAL_EINTERNAL, "equilibrium y*(%.17g) failed", x_prev);
-    if (!(fhi > 0.0)) {
-        *x = x_prev; /* the line meets the curve at x_prev: no progress, reported as pinch */
-        return STAGECAL_OK;
-    }
-    if (op_line(st, xe) <= st->y) {
-        lo = xe;
-        hi = x_prev;
-    } else {
-        lo = 0.0;
-        hi = xe;
-    }
-    if (lo >= hi) {
-        *x = lo;
-        return STAGECAL_OK;
-    }
-    gsl_function fn = {pseudo_eq_f, st};
-    int gs = gsl_root_fsolver_set(st->s, &fn, lo, hi);
-    if (gs == GSL_EINVAL) {
-        /* A bracket end is itself the root (f = 0 there within rounding). */
-        double flo = pseudo_eq_f(lo, st);
-        *x = fabs(flo) <= fabs(fhi) ? lo : hi;
-        return STAGECAL_OK;
-    }
-    if (gs != GSL_SUCCESS)
-        return error_set(st->err, STAGECAL_ENOCONV, "pseudo-equilibrium solve: %s",
-                         gsl_strerror(gs));
-    for (size_t it = 0; it < st->par->max_iter; it++) {
-        gs = gsl_root_fsolver_iterate(st->s);
-        if (gs != GSL_SUCCESS || st->vle_rc)
-            return error_set(st->err, STAGECAL_ENOCONV,
-                             "pseudo-equilibrium solve for y = %.17g: %s", st->y,
-                             st->vle_rc ? stagecal_strerror(st->vle_rc) : gsl_strerror(gs));
-        lo = gsl_root_fsolver_x_lower(st->s);
-        hi = gsl_root_fsolver_x_upper(st->s);
-        if (gsl_root_test_interval(lo, hi, st->par->x_epsabs, 4.0 * DBL_EPSILON) == GSL_SUCCESS) {
-            *x = gsl_root_fsolver_root(st->s);
-            return STAGECAL_OK;
-        }
-    }
-    return error_set(st->err, STAGECAL_ENOCONV,
-                     "pseudo-equilibrium solve for y = %.17g: no convergence in %zu iterations",
-                     st->y, st->par->max_iter);
-}
-
-/* One step from x_prev: fills *x, *y. Returns STAGECAL_OK; *pinch = 1 when no progress. */
-static int step_once(stepper *st, double x_prev, double *x, double *y, int *pinch)
-{
-    st->y = op_line(st, x_prev);
-    *y = st->y;
-    int rc = pseudo_eq_solve(st, x_prev, x);
-    if (rc)
-        return rc;
-    *pinch = !(*x < x_prev);
-    return STAGECAL_OK;
-}
-
-/* Is the operating line at or above the equilibrium curve somewhere on [lo, hi]? */
-static int scan_pinch(stepper *st, double lo, double hi, size_t npts, int *found)
-{
-    *found = 0;
-    for (size_t i = 0; i <= npts; i++) {
-        double x = lo + (hi - lo) * (double)i / (double)npts, ys;
-        int rc = vle_y(st, x, &ys);
-        if (rc)
-            return rc;
-        if (ys <= op_line(st, x)) {
-            *found = 1;
-            return STAGECAL_OK;
-        }
-    }
-    return STAGECAL_OK;
-}
-
-/* Smoker's fraction of the crossing step: from x_prev to x_target with α_loc of (xn, yn). */
-static double crossing_fraction(const stepper *st, double x_prev, double xn, double yn,
-                                double x_target)
-{
-    double alpha_loc = yn * (1.0 - xn) / (xn * (1.0 - yn));
-    smoker_consts sc;
-    double f = NAN;
-    if (smoker_setup(alpha_loc, st->m, st->b, &sc) == 0 && x_target > sc.k)
-        f = smoker_count(&sc, x_prev, x_target);
-    if (!isfinite(f)) /* α_loc within rounding of 1: the curve is locally the line */
-        f = (x_prev - x_target) / (x_prev - xn);
-    return f < 0.0 ? 0.0 : (f > 1.0 ? 1.0 : f);
-}
-
-static int stepper_init(stepper *st, const stagecal_vle *vle, const stagecal_stages_params *par,
-                        double xd, double reflux, double e, stagecal_error *err)
-{
-    memset(st, 0, sizeof *st);
-    st->vle = vle;
-    st->par = par;
-    st->xd = xd;
-    st->e = e;
-    st->err = err;
-    if (isinf(reflux)) {
-        st->m = 1.0;
-        st->b = 0.0;
-    } else {
-        st->m = reflux / (reflux + 1.0);
-        st->b = xd / (reflux + 1.0); /* (1 − L/V)·xD without the cancellation */
-    }
-    if (e < 1.0) {
-        st->s = gsl_root_fsolver_alloc(gsl_root_fsolver_brent);
-        if (!st->s)
-            return error_set(err, STAGECAL_ENOMEM, "out of memory (root solver)");
-    }
-    return STAGECAL_OK;
-}
-
-static void stepper_free(stepper *st)
-{
-    if (st->s)
-        gsl_root_fsolver_free(st->s);
-    st->s = NULL;
-}
-
-/* First azeotrope at or below xd, or −1 when none. */
-static double azeotrope_below(const stagecal_vle *vle, double xd)
-{
-    double az[MAX_AZ];
-    size_t n = stagecal_vle_azeotropes(vle, az, MAX_AZ);
-    for (size_t i = 0; i < n && i < MAX_AZ; i++)
-        if (az[i] <= xd)
-            return az[i];
-    return -1.0;
 }
 
 /* ---- inversion ------------------------------------------------------------------------ */
@@ -391,47 +111,45 @@ static void set_status(stagecal_stages_result *res, int status, const char *fmt,
     va_end(ap);
 }
 
-static int invert_core(const stagecal_vle *vle, double xd, double xb, double reflux, double e,
-                       const stagecal_stages_params *par, stagecal_stages_result *res,
-                       stagecal_error *err)
+/* The checks that need no stepping: fills res (status invalid or azeotrope, reason) and
+ * returns 1 when the inputs cannot be inverted, 0 otherwise. */
+static int reject_inputs(const stagecal_vle *vle, double xd, double xb, double reflux, double e,
+                         stagecal_stages_result *res)
 {
-    memset(res, 0, sizeof *res);
-    res->status = STAGECAL_STAGES_OK;
     double x_max = stagecal_vle_x_max(vle);
-
     if (isnan(xd) || isnan(xb) || isnan(reflux) || isnan(e)) {
         set_status(res, STAGECAL_STAGES_INVALID, "an input is NaN (xD %g, xB %g, R %g, E_MV %g)",
                    xd, xb, reflux, e);
-        return STAGECAL_OK;
+        return 1;
     }
     if (!(xd > 0.0 && xd < 1.0) || xd > x_max) {
         set_status(res, STAGECAL_STAGES_INVALID, "xD = %.10g outside (0, %.10g)", xd,
                    x_max < 1.0 ? x_max : 1.0);
-        return STAGECAL_OK;
+        return 1;
     }
     if (!(xb > 0.0 && xb < 1.0) || xb > x_max) {
         set_status(res, STAGECAL_STAGES_INVALID, "xB = %.10g outside (0, %.10g)", xb,
                    x_max < 1.0 ? x_max : 1.0);
-        return STAGECAL_OK;
+        return 1;
     }
     if (!(xb < xd)) {
         set_status(res, STAGECAL_STAGES_INVALID, "xB = %.10g is not below xD = %.10g", xb, xd);
-        return STAGECAL_OK;
+        return 1;
     }
     if (!(e > 0.0 && e <= 1.0)) {
         set_status(res, STAGECAL_STAGES_INVALID, "Murphree efficiency %g outside (0, 1]", e);
-        return STAGECAL_OK;
+        return 1;
     }
     if (reflux < 0.0) {
         set_status(res, STAGECAL_STAGES_INVALID, "reflux ratio %g is negative", reflux);
-        return STAGECAL_OK;
+        return 1;
     }
     if (reflux == 0.0) {
         set_status(res, STAGECAL_STAGES_INVALID,
                    "reflux ratio 0: the stage count is not identifiable without reflux");
-        return STAGECAL_OK;
+        return 1;
     }
-    double az = azeotrope_below(vle, xd);
+    double az = stages_azeotrope_below(vle, xd);
     if (az >= 0.0) {
         if (az >= xb)
             set_status(res, STAGECAL_STAGES_AZEOTROPE,
@@ -441,19 +159,89 @@ static int invert_core(const stagecal_vle *vle, double xd, double xb, double ref
                        "azeotrope at x = %.6f lies below xB = %.6g: stepping beyond it is not "
                        "supported",
                        az, xb);
-        return STAGECAL_OK;
+        return 1;
     }
+
+    return 0;
+}
+
+/* Tangent of the liquid x leaving a stage whose vapour is ty (its tangent carried),
+ * from (1 − E)·(m·x + b) + E·y*(x) = y: dx = (dy − (1 − E)(x·dm + db)) / ((1 − E)·m +
+ * E·y*'(x)). The value is x itself. */
+static int step_tangent(stepper *st, tl3 m, tl3 b, tl3 ty, double x, tl3 *tx)
+{
+    double s;
+    int rc = stagecal_vle_dydx(st->vle, x, &s);
+    if (rc != STAGECAL_OK)
+        return error_set(st->err, rc == STAGECAL_EINVAL ? STAGECAL_EINTERNAL : rc,
+                         "equilibrium slope at %.17g failed: %s", x, stagecal_strerror(rc));
+    double e = st->e, den = (1.0 - e) * m.v + e * s;
+    tx->v = x;
+    for (int i = 0; i < TL_N; i++)
+        tx->d[i] = (ty.d[i] - (1.0 - e) * (x * m.d[i] + b.d[i])) / den;
+    return STAGECAL_OK;
+}
+
+/* Constant α at E_MV = 1: Smoker's count from xD down to x_target, which is what stepping
+ * with the fractional-stage rule gives (docs/methods.md), with exact derivatives. Used
+ * while the count stays below the pinch scan (so every pinch stepping would report is
+ * still found by stepping) and x_target is not within CLOSED_MARGIN of the pinch root.
+ * Returns 1 and sets *count when it applies. */
+static int closed_form(const stagecal_vle *vle, const stagecal_stages_params *par, tl3 m, tl3 b,
+                       tl3 txd, tl3 txt, tl3 *count)
+{
+    smoker_consts sc;
+    double cap = fmin((double)par->pinch_scan_after, (double)par->max_stages);
+    if (stagecal_vle_get_kind(vle) != STAGECAL_VLE_ALPHA ||
+        smoker_setup(tl_const(vle->alpha), m, b, &sc) != 0 || !(txt.v - sc.k.v > CLOSED_MARGIN))
+        return 0;
+    tl3 c = smoker_count_top(&sc, m, txd, txt);
+    if (!(isfinite(c.v) && c.v >= 0.0 && c.v < cap))
+        return 0;
+    *count = c;
+    return 1;
+}
+
+/* The inversion. With tl non-NULL the derivatives of stages with respect to (xD, xB, R)
+ * are carried along and written to tl->d (tl->v = stages); otherwise none are computed. */
+static int invert_core(const stagecal_vle *vle, double xd, double xb, double reflux, double e,
+                       const stagecal_stages_params *par, stagecal_stages_result *res, tl3 *tl,
+                       stagecal_error *err)
+{
+    memset(res, 0, sizeof *res);
+    res->status = STAGECAL_STAGES_OK;
+    if (tl)
+        *tl = tl_const(0.0);
+    if (reject_inputs(vle, xd, xb, reflux, e, res))
+        return STAGECAL_OK;
 
     stepper st;
     int rc = stepper_init(&st, vle, par, xd, reflux, e, err);
     if (rc)
         goto done;
     res->lv = st.m;
+    /* the line and its tangents: m = R/(R + 1), b = xD/(R + 1), constant at R = ∞ */
+    tl3 m = tl_const(st.m), b = tl_const(st.b), txd = tl_const(xd);
+    if (tl) {
+        txd.d[TL_XD] = 1.0;
+        if (!isinf(reflux)) {
+            double q = 1.0 / (reflux + 1.0);
+            m.d[TL_R] = q * q;
+            b.d[TL_XD] = q;
+            b.d[TL_R] = -xd * q * q;
+        }
+    }
 
     double ypot, x_target;
-    if ((rc = vle_y(&st, xb, &ypot)))
+    if ((rc = stepper_ystar(&st, xb, &ypot)))
         goto done;
-    x_target = (ypot - st.b) / st.m;
+    tl3 typot = tl_const(ypot);
+    if (tl && (rc = stagecal_vle_dydx(vle, xb, &typot.d[TL_XB]))) {
+        rc = error_set(err, STAGECAL_EINTERNAL, "equilibrium slope at %.17g failed", xb);
+        goto done;
+    }
+    tl3 txt = tl_div(tl_sub(typot, b), m); /* x_target = (y*(xB) − b)/m */
+    x_target = txt.v;
     res->x_target = isfinite(x_target) ? x_target : 0.0;
     if (x_target > xd + par->top_tol) {
         set_status(res, STAGECAL_STAGES_INVALID,
@@ -476,7 +264,7 @@ static int invert_core(const stagecal_vle *vle, double xd, double xb, double ref
                    st.m, ypot, x_target);
         goto done;
     }
-    if ((rc = vle_y(&st, x_target, &yt)))
+    if ((rc = stepper_ystar(&st, x_target, &yt)))
         goto done;
     if (yt <= op_line(&st, x_target)) {
         set_status(res, STAGECAL_STAGES_PINCH,
@@ -486,19 +274,36 @@ static int invert_core(const stagecal_vle *vle, double xd, double xb, double ref
         goto done;
     }
 
+    tl3 count;
+    if (e == 1.0 && par->closed_form && closed_form(vle, par, m, b, txd, txt, &count)) {
+        res->column_stages = count.v;
+        res->stages = res->column_stages + 1.0;
+        if (tl)
+            *tl = count;
+        goto done;
+    }
+
     double x_prev = xd, xn = xd, yn = xd;
+    tl3 tprev = txd, txn = txd, tyn = txd;
     int scanned = 0;
     size_t n = 0;
     for (;;) {
         int pinch = 0;
         n++;
-        if ((rc = step_once(&st, x_prev, &xn, &yn, &pinch)))
+        if ((rc = stepper_step(&st, x_prev, &xn, &yn, &pinch)))
             goto done;
         if (pinch) {
             set_status(res, STAGECAL_STAGES_PINCH,
                        "pinch: no progress at step %zu (x = %.10g) above x_target = %.10g", n,
                        x_prev, x_target);
             goto done;
+        }
+        tyn = tl_const(yn);
+        txn = tl_const(xn);
+        if (tl) {
+            tyn = tl_add(tl_mul(m, tprev), b); /* y_n = m·x_(n−1) + b */
+            if ((rc = step_tangent(&st, m, b, tyn, xn, &txn)))
+                goto done;
         }
         if (xn <= x_target)
             break;
@@ -511,7 +316,7 @@ static int invert_core(const stagecal_vle *vle, double xd, double xb, double ref
         if (!scanned && n >= par->pinch_scan_after) {
             int found;
             scanned = 1;
-            if ((rc = scan_pinch(&st, x_target, xn, par->pinch_scan_points, &found)))
+            if ((rc = stepper_scan_pinch(&st, x_target, xn, par->pinch_scan_points, &found)))
                 goto done;
             if (found) {
                 set_status(res, STAGECAL_STAGES_PINCH,
@@ -522,10 +327,13 @@ static int invert_core(const stagecal_vle *vle, double xd, double xb, double ref
             }
         }
         x_prev = xn;
+        tprev = txn;
     }
-    double f = crossing_fraction(&st, x_prev, xn, yn, x_target);
-    res->column_stages = (double)(n - 1) + f;
+    tl3 f = stepper_crossing(m, b, tprev, txn, tyn, txt);
+    res->column_stages = (double)(n - 1) + f.v;
     res->stages = res->column_stages + 1.0;
+    if (tl)
+        *tl = f;
 done:
     stepper_free(&st);
     if (rc) {
@@ -546,7 +354,7 @@ static double stages_at(const stagecal_vle *vle, double xd, double xb, double re
                         const stagecal_stages_params *par)
 {
     stagecal_stages_result r;
-    if (invert_core(vle, xd, xb, reflux, e, par, &r, NULL) != STAGECAL_OK ||
+    if (invert_core(vle, xd, xb, reflux, e, par, &r, NULL, NULL) != STAGECAL_OK ||
         r.status != STAGECAL_STAGES_OK)
         return NAN;
     return r.stages;
@@ -564,7 +372,8 @@ static double fd_combine(double s0, double sm, double sp, double hm, double hp)
     return 0.0;
 }
 
-/* Sensitivities by finite differences of the inversion itself. Steps: h = fd_rel_step ·
+/* Sensitivities by finite differences of the inversion itself (want_sensitivities = 2,
+ * and where the tangents are not finite). Steps: h = fd_rel_step ·
  * min(x, 1 − x) for a composition (so x ± h stays in (0, 1)); a side that would cross
  * xB < xD, x_max or give a non-ok status is dropped (one-sided difference); h = fd_rel_step
  * · R for the reflux ratio (R − h > 0), and ∂/∂R = 0 at total reflux. */
@@ -600,128 +409,18 @@ int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double
         return error_set(err, STAGECAL_EINVAL, "stages_invert: %s is NULL", vle ? "res" : "vle");
     stagecal_stages_params def = stagecal_stages_default_params();
     const stagecal_stages_params *par = params ? params : &def;
-    int rc = invert_core(vle, xd, xb, reflux, murphree, par, res, err);
-    if (rc == STAGECAL_OK && res->status == STAGECAL_STAGES_OK && par->want_sensitivities)
-        sensitivities(vle, xd, xb, reflux, murphree, par, res);
-    return rc;
-}
-
-/* ---- forward stepping ----------------------------------------------------------------- */
-
-static void put_point(stagecal_stage_point *profile, size_t cap, size_t i, double stage, double x,
-                      double y)
-{
-    if (profile && i < cap) {
-        profile[i].stage = stage;
-        profile[i].x = x;
-        profile[i].y = y;
-    }
-}
-
-int stagecal_stages_step(const stagecal_vle *vle, double xd, double reflux, double stages,
-                         double murphree, const stagecal_stages_params *params, double *xb,
-                         stagecal_stage_point *profile, size_t cap, size_t *len, int *status,
-                         stagecal_error *err)
-{
-    if (!vle || !xb || !len || !status)
-        return error_set(err, STAGECAL_EINVAL, "stages_step: a required pointer is NULL");
-    stagecal_stages_params def = stagecal_stages_default_params();
-    const stagecal_stages_params *par = params ? params : &def;
-    double x_max = stagecal_vle_x_max(vle);
-    *xb = 0.0;
-    *len = 0;
-    *status = STAGECAL_STAGES_INVALID;
-    if (!(stages >= 1.0) || !isfinite(stages))
-        return error_set(err, STAGECAL_EINVAL,
-                         "stages %g: expected a finite count >= 1 (the pot included)", stages);
-    if (!(xd > 0.0 && xd < 1.0) || xd > x_max)
-        return error_set(err, STAGECAL_EINVAL, "xD = %g outside (0, %g)", xd,
-                         x_max < 1.0 ? x_max : 1.0);
-    if (!(murphree > 0.0 && murphree <= 1.0))
-        return error_set(err, STAGECAL_EINVAL, "Murphree efficiency %g outside (0, 1]", murphree);
-    if (!(reflux >= 0.0))
-        return error_set(err, STAGECAL_EINVAL, "reflux ratio %g: expected R >= 0 or inf", reflux);
-    double column = stages - 1.0;
-    double nwhole_d = column > 0.0 ? ceil(column) - 1.0 : 0.0;
-    if (nwhole_d >= (double)par->max_stages)
-        return error_set(err, STAGECAL_EINVAL, "stages %g: more than max_stages = %zu", stages,
-                         par->max_stages);
-    if (reflux == 0.0) {
-        error_set(err, STAGECAL_OK, "reflux ratio 0: stages are not defined without reflux");
-        return STAGECAL_OK;
-    }
-    double az = azeotrope_below(vle, xd);
-    if (az >= 0.0) {
-        *status = STAGECAL_STAGES_AZEOTROPE;
-        error_set(err, STAGECAL_OK, "azeotrope at x = %.6f at or below xD = %.6g", az, xd);
-        return STAGECAL_OK;
-    }
-
-    stepper st;
-    int rc = stepper_init(&st, vle, par, xd, reflux, murphree, err);
-    if (rc)
+    int want = par->want_sensitivities;
+    tl3 tl;
+    int rc = invert_core(vle, xd, xb, reflux, murphree, par, res, want == 1 ? &tl : NULL, err);
+    if (rc != STAGECAL_OK || res->status != STAGECAL_STAGES_OK || !want)
         return rc;
-    size_t nwhole = (size_t)nwhole_d, k = 0;
-    double x_prev = xd, x_target = xd, xn = xd, yn = xd, y;
-    int pinch = 0;
-    if (column > 0.0) {
-        double f = column - nwhole_d; /* in (0, 1] */
-        for (size_t n = 1; n <= nwhole; n++) {
-            if ((rc = step_once(&st, x_prev, &xn, &yn, &pinch)))
-                goto done;
-            if (pinch)
-                goto pinched;
-            put_point(profile, cap, k++, (double)n, xn, yn);
-            x_prev = xn;
-        }
-        if ((rc = step_once(&st, x_prev, &xn, &yn, &pinch)))
-            goto done;
-        if (pinch)
-            goto pinched;
-        if (f == 1.0) {
-            x_target = xn;
-            put_point(profile, cap, k++, (double)(nwhole + 1), xn, yn);
-        } else {
-            /* The inverse of crossing_fraction: Smoker's closed-form inverse with α_loc. */
-            double alpha_loc = yn * (1.0 - xn) / (xn * (1.0 - yn));
-            smoker_consts sc;
-            if (smoker_setup(alpha_loc, st.m, st.b, &sc) == 0)
-                x_target = smoker_inverse(&sc, x_prev, f);
-            else
-                x_target = x_prev - f * (x_prev - xn);
-            if (!(x_target >= xn && x_target <= x_prev))
-                x_target = x_prev - f * (x_prev - xn);
-            if ((rc = pseudo_eq_y(&st, x_target, &y)))
-                goto done;
-            put_point(profile, cap, k++, column, x_target, y);
-        }
+    if (want == 1 && isfinite(tl.d[TL_XD]) && isfinite(tl.d[TL_XB]) && isfinite(tl.d[TL_R])) {
+        res->dstages_dxd = tl.d[TL_XD];
+        res->dstages_dxb = tl.d[TL_XB];
+        res->dstages_dr = tl.d[TL_R];
+        return rc;
     }
-    {
-        double ypot = op_line(&st, x_target), ys;
-        if ((rc = vle_x(&st, ypot, xb)))
-            goto done;
-        if ((rc = vle_y(&st, *xb, &ys)))
-            goto done;
-        put_point(profile, cap, k++, stages, *xb, ys);
-        *len = k;
-        *status = STAGECAL_STAGES_OK;
-    }
-    goto done;
-pinched:
-    /* The step made no progress: the liquid has reached the pinch of this operating line
-     * to rounding, and more stages (the pot included) reach no further, so the pot ends
-     * at the composition reached, the last x. */
-    *status = STAGECAL_STAGES_PINCH;
-    *xb = x_prev;
-    *len = 0;
-    error_set(err, STAGECAL_OK, "pinch: no progress below x = %.10g at L/V = %.10g", x_prev, st.m);
-done:
-    stepper_free(&st);
-    if (rc) {
-        *xb = 0.0;
-        *len = 0;
-        *status = STAGECAL_STAGES_INVALID;
-    }
+    sensitivities(vle, xd, xb, reflux, murphree, par, res);
     return rc;
 }
 
@@ -757,7 +456,7 @@ int stagecal_min_reflux(const stagecal_vle *vle, double xd, double xb, double *r
         return error_set(err, STAGECAL_EINVAL,
                          "min_reflux: xD = %g, xB = %g, expected 0 < xB < xD <= %g", xd, xb,
                          x_max < 1.0 ? x_max : 1.0);
-    double az = azeotrope_below(vle, xd);
+    double az = stages_azeotrope_below(vle, xd);
     if (az >= 0.0)
         return error_set(err, STAGECAL_EINVAL,
                          "min_reflux: azeotrope at x = %.6f at or below xD = %g, no reflux "

@@ -38,8 +38,12 @@ static double invert_ok(const stagecal_vle *v, double xd, double xb, double r, d
 {
     stagecal_stages_result res;
     stagecal_error err;
+    /* Stepping, also for constant α: the closed form that replaces it by default is
+     * checked against stepping in test_stages_tangent.c. */
+    stagecal_stages_params par = stagecal_stages_default_params();
+    par.closed_form = 0;
     stagecal_error_clear(&err);
-    int rc = stagecal_stages_invert(v, xd, xb, r, e, NULL, &res, &err);
+    int rc = stagecal_stages_invert(v, xd, xb, r, e, &par, &res, &err);
     if (rc != STAGECAL_OK || res.status != STAGECAL_STAGES_OK)
         print_error("invert(xd %.17g, xb %.17g, R %g, E %g): rc %d status %s: %s %s\n", xd, xb, r,
                     e, rc, stagecal_stages_status_name(res.status), res.reason, err.text);
@@ -510,40 +514,46 @@ static void stages_sensitivities_match_closed_forms(void **state)
     stagecal_vle *v = alpha_vle(2.5);
     stagecal_stages_params par = stagecal_stages_default_params();
     stagecal_stages_result res;
-    par.want_sensitivities = 1;
-    /* Total reflux: Fenske N = (logit xD − logit xB)/ln α (REFERENCES §1), so
-     * ∂N/∂xD = 1/(xD(1 − xD) ln α), ∂N/∂xB = −1/(xB(1 − xB) ln α), ∂N/∂R = 0. Central
-     * differences with h ≈ 6e-6·min(x, 1 − x) carry a truncation error ~h² ≈ 1e-10 and a
-     * rounding error ~1e-16/h ≈ 1e-10 relative; 1e-6 leaves room. */
-    assert_int_equal(stagecal_stages_invert(v, 0.95, 0.05, INFINITY, 1.0, &par, &res, NULL),
-                     STAGECAL_OK);
-    assert_rel(res.dstages_dxd, 1.0 / (0.95 * 0.05 * log(2.5)), 1e-6, "dN/dxD at total reflux");
-    assert_rel(res.dstages_dxb, -1.0 / (0.05 * 0.95 * log(2.5)), 1e-6, "dN/dxB at total reflux");
-    assert_true(res.dstages_dr == 0.0);
-    /* Finite reflux: against a 4-point central difference of the Smoker closed form
-     * (REFERENCES §2) with a different step (1e-4·x, error ~h⁴ ≈ 1e-16·N⁽⁵⁾). */
-    const double xd = 0.95, xb = 0.3, r = 4.0;
-    assert_int_equal(stagecal_stages_invert(v, xd, xb, r, 1.0, &par, &res, NULL), STAGECAL_OK);
-    double d[3], h[3] = {1e-4 * xd * (1 - xd), 1e-4 * xb, 1e-4 * r};
-    for (int j = 0; j < 3; j++) {
-        double s[4];
-        const double off[4] = {-2, -1, 1, 2};
-        for (int i = 0; i < 4; i++) {
-            double a = xd, bb = xb, c = r;
-            if (j == 0)
-                a += off[i] * h[0];
-            else if (j == 1)
-                bb += off[i] * h[1];
-            else
-                c += off[i] * h[2];
-            assert_int_equal(stagecal_smoker(2.5, c, a, bb, &s[i], NULL), STAGECAL_OK);
+    /* Each way of computing them: tangent-linear (1), central finite differences (2); the
+     * closed form and stepping (closed_form 1, 0). */
+    for (int way = 0; way < 4; way++) {
+        par.want_sensitivities = 1 + way % 2;
+        par.closed_form = way / 2;
+        /* Total reflux: Fenske N = (logit xD − logit xB)/ln α (REFERENCES §1), so
+         * ∂N/∂xD = 1/(xD(1 − xD) ln α), ∂N/∂xB = −1/(xB(1 − xB) ln α), ∂N/∂R = 0. Central
+         * differences with h ≈ 6e-6·min(x, 1 − x) carry a truncation error ~h² ≈ 1e-10 and a
+         * rounding error ~1e-16/h ≈ 1e-10 relative, tangents only rounding; 1e-6 leaves room. */
+        assert_int_equal(stagecal_stages_invert(v, 0.95, 0.05, INFINITY, 1.0, &par, &res, NULL),
+                         STAGECAL_OK);
+        assert_rel(res.dstages_dxd, 1.0 / (0.95 * 0.05 * log(2.5)), 1e-6, "dN/dxD at total reflux");
+        assert_rel(res.dstages_dxb, -1.0 / (0.05 * 0.95 * log(2.5)), 1e-6,
+                   "dN/dxB at total reflux");
+        assert_true(res.dstages_dr == 0.0);
+        /* Finite reflux: against a 4-point central difference of the Smoker closed form
+         * (REFERENCES §2) with a different step (1e-4·x, error ~h⁴ ≈ 1e-16·N⁽⁵⁾). */
+        const double xd = 0.95, xb = 0.3, r = 4.0;
+        assert_int_equal(stagecal_stages_invert(v, xd, xb, r, 1.0, &par, &res, NULL), STAGECAL_OK);
+        double d[3], h[3] = {1e-4 * xd * (1 - xd), 1e-4 * xb, 1e-4 * r};
+        for (int j = 0; j < 3; j++) {
+            double s[4];
+            const double off[4] = {-2, -1, 1, 2};
+            for (int i = 0; i < 4; i++) {
+                double a = xd, bb = xb, c = r;
+                if (j == 0)
+                    a += off[i] * h[0];
+                else if (j == 1)
+                    bb += off[i] * h[1];
+                else
+                    c += off[i] * h[2];
+                assert_int_equal(stagecal_smoker(2.5, c, a, bb, &s[i], NULL), STAGECAL_OK);
+            }
+            d[j] = (s[0] - 8 * s[1] + 8 * s[2] - s[3]) / (12 * h[j]);
         }
-        d[j] = (s[0] - 8 * s[1] + 8 * s[2] - s[3]) / (12 * h[j]);
+        assert_rel(res.dstages_dxd, d[0], 1e-5, "dN/dxD vs Smoker (REFERENCES 2)");
+        assert_rel(res.dstages_dxb, d[1], 1e-5, "dN/dxB vs Smoker (REFERENCES 2)");
+        assert_rel(res.dstages_dr, d[2], 1e-5, "dN/dR vs Smoker (REFERENCES 2)");
+        assert_true(res.dstages_dr < 0.0 && res.dstages_dxb < 0.0 && res.dstages_dxd > 0.0);
     }
-    assert_rel(res.dstages_dxd, d[0], 1e-5, "dN/dxD vs Smoker (REFERENCES 2)");
-    assert_rel(res.dstages_dxb, d[1], 1e-5, "dN/dxB vs Smoker (REFERENCES 2)");
-    assert_rel(res.dstages_dr, d[2], 1e-5, "dN/dR vs Smoker (REFERENCES 2)");
-    assert_true(res.dstages_dr < 0.0 && res.dstages_dxb < 0.0 && res.dstages_dxd > 0.0);
     stagecal_vle_free(v);
 }
 

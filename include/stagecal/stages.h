@@ -7,7 +7,7 @@
  * is R = INFINITY (L/V = 1). Total condenser: y1 = xD. Each column stage may carry
  * a Murphree vapour efficiency E_MV in (0, 1]; the pot is ideal. Fractional stages
  * are defined from the pot up (DESIGN §2) and equal Fenske / Smoker exactly for
- * constant α and E_MV = 1.
+ * constant α and E_MV = 1, which is how such inversions are computed (closed_form).
  */
 #ifndef STAGECAL_STAGES_H
 #define STAGECAL_STAGES_H
@@ -36,7 +36,9 @@ const char *stagecal_stages_status_name(int status);
 typedef struct {
     size_t max_stages;      /* cap on whole steps before declaring a pinch (default 10000) */
     double top_tol;         /* x_target ≤ xD + top_tol counts as stages = 1 (1e-12) */
-    int want_sensitivities; /* 1: fill the ∂stages/∂… fields (costs extra inversions) */
+    int want_sensitivities; /* fill the ∂stages/∂… fields: 1 tangent-linear (carried along the
+                               inversion, exact for the closed form), 2 central finite
+                               differences of the inversion (six more inversions); 0 none */
     /* Added after the first three; callers that start from the defaults need not care. */
     double x_epsabs;          /* absolute tolerance [mol/mol] of the E_MV < 1 pseudo-equilibrium
                                  solve (GSL Brent, bracketed); default 1e-15 */
@@ -45,9 +47,13 @@ typedef struct {
                                  the equilibrium curve on a grid between x_target and the current
                                  liquid, so a pinch is reported early (default 200) */
     size_t pinch_scan_points; /* points of that grid (default 256) */
-    double fd_rel_step;       /* relative finite-difference step for the sensitivities, applied to
-                                 min(x, 1 − x) for compositions and to R (default cbrt(DBL_EPSILON)
-                                 ≈ 6.06e-6, the usual optimum for central differences) */
+    double fd_rel_step;       /* relative finite-difference step of want_sensitivities = 2, applied
+                                 to min(x, 1 − x) for compositions and to R (default
+                                 cbrt(DBL_EPSILON) ≈ 6.06e-6, the usual optimum for central
+                                 differences) */
+    int closed_form;          /* 1 (default): constant α at E_MV = 1 is inverted with Smoker's
+                                 closed form (Fenske at total reflux), which equals stepping under
+                                 the fractional-stage rule; 0: always step */
 } stagecal_stages_params;
 
 stagecal_stages_params stagecal_stages_default_params(void);
@@ -58,10 +64,10 @@ typedef struct {
     double column_stages; /* stages − 1; 0 unless ok */
     double lv;            /* L/V used (1 at total reflux) */
     double x_target;      /* liquid leaving the lowest column stage (DESIGN §2.2) */
-    double dstages_dxd;   /* sensitivities (0 unless ok and requested): central finite */
-    double dstages_dxb;   /* differences of the inversion itself, one-sided where a */
-    double dstages_dr;    /* neighbour leaves the domain or is not ok; ∂/∂R = 0 at total
-                             reflux; 0 when neither neighbour is ok */
+    double dstages_dxd;   /* sensitivities (0 unless ok and requested): the derivatives of */
+    double dstages_dxb;   /* the count (tangent-linear; or finite differences, one-sided */
+    double dstages_dr;    /* where a neighbour leaves the domain, see want_sensitivities);
+                             ∂/∂R = 0 at total reflux */
     char reason[160];     /* why, when status is not ok; "" otherwise */
 } stagecal_stages_result;
 

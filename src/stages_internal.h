@@ -1,0 +1,141 @@
+/*
+ * stages_internal.h — what the stages*.c files share; not installed.
+ *
+ * stages.c: the inversion (stepping or, for constant α at E_MV = 1, Smoker's closed
+ * form) with its sensitivities, and the minimum reflux ratio; stages_smoker.c: Smoker's
+ * equation on a straight operating line, Fenske; stages_step.c: the stepper and forward
+ * stepping.
+ *
+ * Sensitivities are carried forward (tangent-linear, forward-mode differentiation): a
+ * `tl3` is a value with its derivatives with respect to (xD, xB, R). Each operation
+ * computes the value exactly as the plain double expression would (same operations in
+ * the same order; the build turns off FP contraction), so a result taken from `.v` is
+ * bit-identical to the plain computation.
+ */
+#ifndef STAGECAL_STAGES_INTERNAL_H
+#define STAGECAL_STAGES_INTERNAL_H
+
+#include <gsl/gsl_roots.h>
+#include <math.h>
+
+#include "stagecal/stages.h"
+
+/* ---- tangent-linear arithmetic ------------------------------------------------------- */
+
+enum { TL_XD = 0, TL_XB, TL_R, TL_N };
+
+typedef struct {
+    double v;       /* value */
+    double d[TL_N]; /* ∂v/∂xD, ∂v/∂xB, ∂v/∂R */
+} tl3;
+
+static inline tl3 tl_const(double v)
+{
+    tl3 r = {v, {0.0, 0.0, 0.0}};
+    return r;
+}
+
+static inline tl3 tl_add(tl3 a, tl3 b)
+{
+    tl3 r = {a.v + b.v, {a.d[0] + b.d[0], a.d[1] + b.d[1], a.d[2] + b.d[2]}};
+    return r;
+}
+
+static inline tl3 tl_sub(tl3 a, tl3 b)
+{
+    tl3 r = {a.v - b.v, {a.d[0] - b.d[0], a.d[1] - b.d[1], a.d[2] - b.d[2]}};
+    return r;
+}
+
+static inline tl3 tl_mul(tl3 a, tl3 b)
+{
+    tl3 r = {a.v * b.v, {0.0, 0.0, 0.0}};
+    for (int i = 0; i < TL_N; i++)
+        r.d[i] = a.d[i] * b.v + a.v * b.d[i];
+    return r;
+}
+
+static inline tl3 tl_div(tl3 a, tl3 b)
+{
+    tl3 r = {a.v / b.v, {0.0, 0.0, 0.0}};
+    for (int i = 0; i < TL_N; i++)
+        r.d[i] = (a.d[i] - r.v * b.d[i]) / b.v;
+    return r;
+}
+
+/* s·a for a constant s (the value is s * a.v). */
+static inline tl3 tl_scale(double s, tl3 a)
+{
+    tl3 r = {s * a.v, {s * a.d[0], s * a.d[1], s * a.d[2]}};
+    return r;
+}
+
+static inline tl3 tl_log(tl3 a)
+{
+    tl3 r = {log(a.v), {a.d[0] / a.v, a.d[1] / a.v, a.d[2] / a.v}};
+    return r;
+}
+
+static inline tl3 tl_sqrt(tl3 a)
+{
+    tl3 r = {sqrt(a.v), {0.0, 0.0, 0.0}};
+    for (int i = 0; i < TL_N; i++)
+        r.d[i] = a.d[i] / (2.0 * r.v);
+    return r;
+}
+
+/* ---- stages_smoker.c ------------------------------------------------------------------ */
+
+/* Constants of Smoker's equation for equilibrium αx/(1+(α−1)x) and line y = m x + b. */
+typedef struct {
+    tl3 k;    /* pinch root in [0, 1) */
+    tl3 beta; /* fixed point of the linear recursion in u = 1/(x − k) */
+    tl3 lna;  /* ln(α/(m c²)) > 0: ln of the per-stage factor */
+} smoker_consts;
+
+/* Returns 0 when the constants are usable (α > 1, 0 < m ≤ 1, b ≥ 0, ln factor > 0). */
+int smoker_setup(tl3 alpha, tl3 m, tl3 b, smoker_consts *sc);
+/* Stage count from top liquid x0 down to xn (both > k); NaN when outside the domain. */
+tl3 smoker_count(const smoker_consts *sc, tl3 x0, tl3 xn);
+/* As smoker_count from the top x0 = xD of a line y = m·x + b through (xD, xD), accurate
+ * also for xD near 1 (see the function). */
+tl3 smoker_count_top(const smoker_consts *sc, tl3 m, tl3 xd, tl3 xn);
+/* Closed-form inverse: the liquid after n (real) stages from x0. */
+double smoker_inverse(const smoker_consts *sc, double x0, double n);
+
+/* ---- stages_step.c -------------------------------------------------------------------- */
+
+typedef struct {
+    const stagecal_vle *vle;
+    const stagecal_stages_params *par;
+    double xd, m, b, e;  /* top composition, L/V, (1 − L/V)·xD, E_MV */
+    double y;            /* vapour of the step being solved (pseudo-equilibrium target) */
+    int vle_rc;          /* first vle failure inside the GSL callback */
+    gsl_root_fsolver *s; /* Brent solver when E < 1, else NULL */
+    stagecal_error *err;
+} stepper;
+
+static inline double op_line(const stepper *st, double x)
+{
+    return st->m * x + st->b;
+}
+
+int stepper_init(stepper *st, const stagecal_vle *vle, const stagecal_stages_params *par, double xd,
+                 double reflux, double e, stagecal_error *err);
+void stepper_free(stepper *st);
+/* y*(x) and x*(y); a failure becomes EINTERNAL/ENOCONV with a message in st->err. */
+int stepper_ystar(stepper *st, double x, double *y);
+int stepper_xstar(stepper *st, double y, double *x);
+/* Vapour on the (pseudo-)equilibrium curve at liquid x. */
+int stepper_pseudo_y(stepper *st, double x, double *y);
+/* One step from x_prev: fills *x, *y. Returns STAGECAL_OK; *pinch = 1 when no progress. */
+int stepper_step(stepper *st, double x_prev, double *x, double *y, int *pinch);
+/* Is the operating line at or above the equilibrium curve somewhere on [lo, hi]? */
+int stepper_scan_pinch(stepper *st, double lo, double hi, size_t npts, int *found);
+/* Smoker's fraction of the crossing step: from x_prev to x_target with α_loc of (xn, yn),
+ * on the line (m, b); in [0, 1]. */
+tl3 stepper_crossing(tl3 m, tl3 b, tl3 x_prev, tl3 xn, tl3 yn, tl3 x_target);
+/* First azeotrope at or below xd, or −1 when none. */
+double stages_azeotrope_below(const stagecal_vle *vle, double xd);
+
+#endif
