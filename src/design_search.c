@@ -329,24 +329,11 @@ static int set_bounds(const stagecal_design_problem *pb, const stagecal_design_p
     return STAGECAL_OK;
 }
 
-static int check_args(const stagecal_design_problem *pb, const stagecal_design_point *at,
-                      size_t n_at, const stagecal_design_params *par, stagecal_error *err)
+/* The conditions of interest: at least one, weights > 0, R > 0, the form defined there. */
+static int check_at(const stagecal_design_problem *pb, const stagecal_design_point *at, size_t n_at,
+                    stagecal_error *err)
 {
     double g[P_MAX];
-    if (par->tests < 1 || par->tests > STAGECAL_DESIGN_MAXK)
-        return error_set(err, STAGECAL_EINVAL,
-                         "number of tests %zu is out of range (expected 1..%d)", par->tests,
-                         STAGECAL_DESIGN_MAXK);
-    if (par->criterion != STAGECAL_DESIGN_I && par->criterion != STAGECAL_DESIGN_D)
-        return error_set(err, STAGECAL_EINVAL, "unknown design criterion %d", (int)par->criterion);
-    if (!(par->sample_interval_s > 0 && isfinite(par->sample_interval_s)))
-        return error_set(err, STAGECAL_EINVAL, "sampling interval %g s is not positive",
-                         par->sample_interval_s);
-    if (!(par->ridge > 0) || !(par->xtol_rel > 0) || par->max_eval < 10 ||
-        par->exchange_sweeps < 1 || par->exchange_max_eval < 10 || !(par->exchange_tol >= 0))
-        return error_set(err, STAGECAL_EINVAL,
-                         "search tunables out of range (ridge > 0, xtol_rel > 0, max_eval >= 10, "
-                         "exchange_sweeps >= 1)");
     if (n_at < 1)
         return error_set(err, STAGECAL_EINVAL, "no condition of interest given");
     for (size_t j = 0; j < n_at; j++) {
@@ -362,6 +349,26 @@ static int check_args(const stagecal_design_problem *pb, const stagecal_design_p
             return rc;
     }
     return STAGECAL_OK;
+}
+
+static int check_args(const stagecal_design_problem *pb, const stagecal_design_point *at,
+                      size_t n_at, const stagecal_design_params *par, stagecal_error *err)
+{
+    if (par->tests < 1 || par->tests > STAGECAL_DESIGN_MAXK)
+        return error_set(err, STAGECAL_EINVAL,
+                         "number of tests %zu is out of range (expected 1..%d)", par->tests,
+                         STAGECAL_DESIGN_MAXK);
+    if (par->criterion != STAGECAL_DESIGN_I && par->criterion != STAGECAL_DESIGN_D)
+        return error_set(err, STAGECAL_EINVAL, "unknown design criterion %d", (int)par->criterion);
+    if (!(par->sample_interval_s > 0 && isfinite(par->sample_interval_s)))
+        return error_set(err, STAGECAL_EINVAL, "sampling interval %g s is not positive",
+                         par->sample_interval_s);
+    if (!(par->ridge > 0) || !(par->xtol_rel > 0) || par->max_eval < 10 ||
+        par->exchange_sweeps < 1 || par->exchange_max_eval < 10 || !(par->exchange_tol >= 0))
+        return error_set(err, STAGECAL_EINVAL,
+                         "search tunables out of range (ridge > 0, xtol_rel > 0, max_eval >= 10, "
+                         "exchange_sweeps >= 1)");
+    return check_at(pb, at, n_at, err);
 }
 
 /* Scaling and base matrix of the search (see the file comment). */
@@ -546,4 +553,32 @@ done:
     free(gat);
     free(w);
     return rc;
+}
+
+int stagecal_design_evaluate(const stagecal_design_problem *pb, const stagecal_design_test *tests,
+                             size_t k, const stagecal_design_point *at, size_t n_at,
+                             stagecal_design_criterion criterion, stagecal_design_result *res,
+                             stagecal_design_at *at_out, stagecal_error *err)
+{
+    double wsum = 0;
+    memset(res, 0, sizeof *res);
+    res->criterion = criterion;
+    res->p = pb->form.p;
+    res->identify_r = res->identify_f = NAN;
+    res->r_lo = res->r_hi = res->f_lo = res->f_hi = NAN;
+    if (k > STAGECAL_DESIGN_MAXK)
+        return error_set(err, STAGECAL_EINVAL,
+                         "number of tests %zu is out of range (expected 0..%d)", k,
+                         STAGECAL_DESIGN_MAXK);
+    int rc = check_at(pb, at, n_at, err);
+    if (rc)
+        return rc;
+    for (size_t j = 0; j < n_at; j++)
+        wsum += at[j].weight;
+    res->k = k;
+    for (size_t t = 0; t < k; t++) {
+        res->tests[t] = tests[t];
+        res->tests[t].duration_s = NAN;
+    }
+    return evaluate(pb, at, n_at, wsum, res, at_out, err);
 }

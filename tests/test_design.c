@@ -254,6 +254,25 @@ static void design_after_matches_weighted_least_squares(void **state)
         /* tolerance: two 2×2 inversions, condition number < 1e3 */
         assert_rel(out[j].se_after * out[j].se_after, v, 1e-10, "variance after = WLS");
     }
+    /* stagecal_design_evaluate on the same tests gives the same numbers, and 3 windows at
+     * R = 4.5 (inside the old windows) help R = 2 less than the proposal */
+    stagecal_design_result ev;
+    stagecal_design_at eo[2];
+    assert_int_equal(
+        stagecal_design_evaluate(&pb, res.tests, res.k, at, 2, STAGECAL_DESIGN_I, &ev, eo, NULL),
+        STAGECAL_OK);
+    for (size_t j = 0; j < 2; j++)
+        assert_rel(eo[j].half_after, out[j].half_after, 1e-15, "evaluate = propose");
+    assert_rel(ev.crit_after, res.crit_after, 1e-15, "criterion");
+    stagecal_design_test common[3] = {{4.5, NAN, 0}, {4.5, NAN, 0}, {4.5, NAN, 0}};
+    assert_int_equal(
+        stagecal_design_evaluate(&pb, common, 3, at, 2, STAGECAL_DESIGN_I, &ev, eo, NULL),
+        STAGECAL_OK);
+    assert_true(eo[0].half_after > out[0].half_after);
+    assert_true(ev.crit_after > res.crit_after);
+    assert_int_equal(
+        stagecal_design_evaluate(&pb, common, 3, at, 0, STAGECAL_DESIGN_I, &ev, eo, NULL),
+        STAGECAL_EINVAL);
     gsl_multifit_linear_free(ws);
     gsl_matrix_free(x);
     gsl_matrix_free(cov);

@@ -195,6 +195,16 @@ int stagecal_design_propose(const stagecal_design_problem *pb, const stagecal_de
                             stagecal_design_result *res, stagecal_design_at *at_out,
                             stagecal_error *err);
 
+/* The same before/after numbers for tests the caller chooses (k may be 0), e.g. k windows
+ * at the most common production condition for comparison: res gets the tests (durations
+ * NAN), ranks, criteria (of `criterion`), t quantiles and log det ratio; the search fields
+ * stay 0 / NAN. EINVAL for k > STAGECAL_DESIGN_MAXK, n_at = 0, a weight <= 0 or a
+ * condition where the form is undefined. */
+int stagecal_design_evaluate(const stagecal_design_problem *pb, const stagecal_design_test *tests,
+                             size_t k, const stagecal_design_point *at, size_t n_at,
+                             stagecal_design_criterion criterion, stagecal_design_result *res,
+                             stagecal_design_at *at_out, stagecal_error *err);
+
 /* "I-optimal" / "D-optimal"; "i" / "d". */
 const char *stagecal_design_criterion_name(stagecal_design_criterion c);
 const char *stagecal_design_criterion_key(stagecal_design_criterion c);
