@@ -201,7 +201,7 @@ static void auto_theta(const stagecal_form *form, const stagecal_evidence *ev, s
 }
 
 /* The correlation form: the one asked for, or (auto) the best by AICc in stage space —
- * saturating(-load) when the ranking fails. */
+ * constant when the ranking fails (too few windows for any AICc). */
 static int choose_form(stagecal_calibration *cal, const stagecal_calibrate_params *par,
                        const stagecal_regress_data *d, const stagecal_regress_params *rp,
                        stagecal_form *form, stagecal_error *err)
@@ -214,7 +214,8 @@ static int choose_form(stagecal_calibration *cal, const stagecal_calibrate_param
         *form = cal->rank[0].form;
         return STAGECAL_OK;
     }
-    return stagecal_form_parse(d->f_load ? "saturating-load" : "saturating", form, err);
+    /* too few windows to rank any form: the one that asks least of the evidence */
+    return stagecal_form_parse("constant", form, err);
 }
 
 /* Both fits; on success *fit is the one the model carries. */

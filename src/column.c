@@ -459,7 +459,8 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
     if (rc)
         return rc;
     if (u) {
-        static const char *const ukeys[] = {"xd", "xb", "w_mol", "r", "r_rel", "v_mol_s", NULL};
+        static const char *const ukeys[] = {"xd",      "xb",           "w_mol",  "r", "r_rel",
+                                            "v_mol_s", "xd_heavy_rel", "xb_rel", NULL};
         stagecal_uncertainty *q = &col->u;
         if ((rc = check_keys(r, u, "uncertainty", ukeys)) ||
             (rc = get_num(r, u, "xd", "uncertainty.xd", 0, 0.0, 0, 0.5, &q->xd,
@@ -472,7 +473,11 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
             (rc = get_num(r, u, "r_rel", "uncertainty.r_rel", 0, 0.0, 0, 1.0, &q->r_rel,
                           " (fraction of R)")) ||
             (rc = get_num(r, u, "v_mol_s", "uncertainty.v_mol_s", 0, 0.0, 0, INFINITY, &q->v_mol_s,
-                          " mol/s")))
+                          " mol/s")) ||
+            (rc = get_num(r, u, "xd_heavy_rel", "uncertainty.xd_heavy_rel", 0, 0.0, 0, 1.0,
+                          &q->xd_heavy_rel, " (fraction of the heavy content 1 - xD)")) ||
+            (rc = get_num(r, u, "xb_rel", "uncertainty.xb_rel", 0, 0.0, 0, 1.0, &q->xb_rel,
+                          " (fraction of xB)")))
             return rc;
     }
     return STAGECAL_OK;

@@ -318,8 +318,10 @@ static int window_summary(const stagecal_runlog *log, const stagecal_runlog_resu
         size_t i = w->first + j;
         int outlier = (res->flags[i] & STAGECAL_SAMPLE_OUTLIER) != 0;
         t[j] = log->t_s[i];
-        xd[j] = outlier ? NAN : log->xd[i];
-        xb[j] = outlier ? NAN : log->xb[i];
+        /* a censored reading is not a value: left out of the window's mean until the
+         * fit takes it as a censored observation (docs/runlog.md) */
+        xd[j] = outlier || log->xd_cens[i] ? NAN : log->xd[i];
+        xb[j] = outlier || log->xb_cens[i] ? NAN : log->xb[i];
         f[j] = res->f_factor[i];
         if (!outlier && res->status[i] == STAGECAL_STAGES_OK)
             nok++;

@@ -24,121 +24,16 @@
 #include "internal.h"
 #include "internal_sha256.h"
 #include "stagecal/physics.h"
-
-/* ---- findings ---------------------------------------------------------------------- */
-
-stagecal_findings *stagecal_findings_alloc(size_t max_items)
-{
-    stagecal_findings *f = calloc(1, sizeof *f);
-    if (!f)
-        return NULL;
-    f->max_items = max_items ? max_items : 1;
-    return f;
-}
-
-void stagecal_findings_free(stagecal_findings *f)
-{
-    if (!f)
-        return;
-    free(f->items);
-    free(f);
-}
-
-stagecal_runlog_params stagecal_runlog_default_params(void)
-{
-    stagecal_runlog_params p = {5, 3.0, 1000};
-    return p;
-}
-
-/* ---- storage ----------------------------------------------------------------------- */
-
-stagecal_runlog *stagecal_runlog_alloc(void)
-{
-    return calloc(1, sizeof(stagecal_runlog));
-}
-
-void stagecal_runlog_free(stagecal_runlog *log)
-{
-    if (!log)
-        return;
-    free(log->t_s);
-    free(log->w_mol);
-    free(log->xd);
-    free(log->xb);
-    free(log->r);
-    free(log->v_mol_s);
-    free(log->p_pa);
-    free(log->t_top_k);
-    free(log->t_pot_k);
-    free(log->t_reflux_k);
-    free(log->line);
-    free(log->run);
-    free(log->runs);
-    free(log->files);
-    free(log->sha256);
-    free(log);
-}
-
-static int grow_doubles(double **a, size_t n, size_t cap)
-{
-    if (!*a)
-        return 0; /* optional signal not present */
-    double *p = realloc(*a, cap * sizeof *p);
-    if (!p)
-        return -1;
-    for (size_t i = n; i < cap; i++)
-        p[i] = NAN;
-    *a = p;
-    return 0;
-}
-
-static int grow_rows(stagecal_runlog *log)
-{
-    size_t cap = log->cap ? 2 * log->cap : 4096;
-    double **arr[] = {&log->t_s,     &log->w_mol, &log->xd,      &log->xb,      &log->r,
-                      &log->v_mol_s, &log->p_pa,  &log->t_top_k, &log->t_pot_k, &log->t_reflux_k};
-    for (size_t i = 0; i < sizeof arr / sizeof arr[0]; i++) {
-        if (i < 5 && !*arr[i]) {
-            *arr[i] = malloc(sizeof(double)); /* required signals always exist */
-            if (!*arr[i])
-                return -1;
-        }
-        if (grow_doubles(arr[i], log->n, cap) != 0)
-            return -1;
-    }
-    uint32_t *l = realloc(log->line, cap * sizeof *l);
-    if (!l)
-        return -1;
-    log->line = l;
-    uint32_t *r = realloc(log->run, cap * sizeof *r);
-    if (!r)
-        return -1;
-    log->run = r;
-    log->cap = cap;
-    return 0;
-}
-
-/* Allocates an optional signal's array (NaN for the rows already stored). */
-static int ensure_optional(stagecal_runlog *log, double **a)
-{
-    if (*a)
-        return 0;
-    size_t cap = log->cap ? log->cap : 1;
-    *a = malloc(cap * sizeof **a);
-    if (!*a)
-        return -1;
-    for (size_t i = 0; i < cap; i++)
-        (*a)[i] = NAN;
-    return 0;
-}
+#include "runlog_internal.h"
 
 /* ---- the reader -------------------------------------------------------------------- */
 
 static const char *const role_names[STAGECAL_RL_NCOL] = {
-    [STAGECAL_RL_TIME] = "time",  [STAGECAL_RL_W] = "W",     [STAGECAL_RL_XD] = "xD",
-    [STAGECAL_RL_XB] = "xB",      [STAGECAL_RL_R] = "R",     [STAGECAL_RL_V] = "V",
-    [STAGECAL_RL_Q] = "Q",        [STAGECAL_RL_P] = "P",     [STAGECAL_RL_TTOP] = "T_top",
-    [STAGECAL_RL_TPOT] = "T_pot", [STAGECAL_RL_RUN] = "run", [STAGECAL_RL_TREFLUX] = "T_reflux",
+    [STAGECAL_RL_TIME] = "time",    [STAGECAL_RL_W] = "W",     [STAGECAL_RL_XD] = "xD",
+    [STAGECAL_RL_XB] = "xB",        [STAGECAL_RL_R] = "R",     [STAGECAL_RL_V] = "V",
+    [STAGECAL_RL_Q] = "Q",          [STAGECAL_RL_P] = "P",     [STAGECAL_RL_TTOP] = "T_top",
+    [STAGECAL_RL_TPOT] = "T_pot",   [STAGECAL_RL_RUN] = "run", [STAGECAL_RL_TREFLUX] = "T_reflux",
+    [STAGECAL_RL_XDH] = "xD_heavy",
 };
 
 static const stagecal_quantity role_qty[STAGECAL_RL_NCOL] = {
@@ -148,7 +43,16 @@ static const stagecal_quantity role_qty[STAGECAL_RL_NCOL] = {
     [STAGECAL_RL_Q] = STAGECAL_QTY_DUTY,           [STAGECAL_RL_P] = STAGECAL_QTY_PRESSURE,
     [STAGECAL_RL_TTOP] = STAGECAL_QTY_TEMPERATURE, [STAGECAL_RL_TPOT] = STAGECAL_QTY_TEMPERATURE,
     [STAGECAL_RL_RUN] = STAGECAL_QTY_LABEL,        [STAGECAL_RL_TREFLUX] = STAGECAL_QTY_TEMPERATURE,
+    [STAGECAL_RL_XDH] = STAGECAL_QTY_FRACTION,
 };
+
+static int is_composition(int role)
+{
+    return role == STAGECAL_RL_XD || role == STAGECAL_RL_XB || role == STAGECAL_RL_XDH;
+}
+
+#define DISAGREE_SIGMAS 3.0 /* xD and xD_heavy differ by more: named in a warning */
+#define DISAGREE_LINES 8    /* lines named in that warning */
 
 #define HDR_MAX 48
 #define MAX_FIELDS 256
@@ -174,6 +78,7 @@ struct reader {
     size_t field;
     double val[STAGECAL_RL_NCOL]; /* converted (mass basis: still in kg units) */
     double raw[STAGECAL_RL_NCOL]; /* as logged */
+    int cens[STAGECAL_RL_NCOL];   /* stagecal_censor of composition cells */
     char time_text[40];
     char run_text[64];
     /* the previous row of the current run */
@@ -188,6 +93,9 @@ struct reader {
     long first_missing[STAGECAL_RL_NCOL];
     size_t file_rows;
     size_t complete_rows; /* rows with time, W, xD, xB and R all present */
+    /* rows where xD and xD_heavy disagree */
+    size_t ndisagree;
+    long disagree_line[DISAGREE_LINES];
 };
 
 static void vfinding(struct reader *rd, int sev, long line, const char *column, const char *fmt,
@@ -285,8 +193,8 @@ static void header_cell(struct reader *rd, const char *cell)
     int role = role_of(name);
     if (role < 0) {
         finding(rd, STAGECAL_FINDING_WARNING, rd->line, cell,
-                "unknown column '%s' ignored (expected time, W, xD, xB, R, V, Q, P, T_top, "
-                "T_pot, T_reflux or run)",
+                "unknown column '%s' ignored (expected time, W, xD, xD_heavy, xB, R, V, Q, P, "
+                "T_top, T_pot, T_reflux or run)",
                 cell);
         return;
     }
@@ -309,7 +217,7 @@ static void header_cell(struct reader *rd, const char *cell)
         /* present but unusable (not "missing"); fatal when the column is required */
         snprintf(msg, sizeof msg, "column '%s': %s", cell, why);
         rd->field_of[role] = -2;
-        if (role <= STAGECAL_RL_R)
+        if (role <= STAGECAL_RL_R || role == STAGECAL_RL_XDH)
             fatal(rd, rd->line, cell, "%s", msg);
         else
             finding(rd, STAGECAL_FINDING_ERROR, rd->line, cell, "%s", msg);
@@ -354,9 +262,12 @@ static void header_done(struct reader *rd)
     rd->header_done = 1;
     for (size_t k = 0; k < sizeof required / sizeof required[0]; k++) {
         int r = required[k];
+        if (r == STAGECAL_RL_XD && rd->field_of[STAGECAL_RL_XDH] != -1)
+            continue; /* xD_heavy gives the distillate */
         if (rd->field_of[r] == -1)
-            fatal(rd, rd->line, NULL, "missing column '%s' (required: time, W, xD, xB, R)",
-                  role_names[r]);
+            fatal(rd, rd->line, NULL,
+                  "missing column '%s' (required: time, W, xD or xD_heavy, xB, R)",
+                  r == STAGECAL_RL_XD ? "xD' or 'xD_heavy" : role_names[r]);
     }
     if (rd->field_of[STAGECAL_RL_V] >= 0 && rd->field_of[STAGECAL_RL_Q] >= 0) {
         int q = rd->field_of[STAGECAL_RL_Q];
@@ -370,35 +281,16 @@ static void header_done(struct reader *rd)
         return;
     stagecal_runlog *log = rd->log;
     if (rd->field_of[STAGECAL_RL_V] >= 0 || rd->field_of[STAGECAL_RL_Q] >= 0)
-        rd->oom |= ensure_optional(log, &log->v_mol_s);
+        rd->oom |= runlog_ensure_optional(log, &log->v_mol_s);
     if (rd->field_of[STAGECAL_RL_P] >= 0)
-        rd->oom |= ensure_optional(log, &log->p_pa);
+        rd->oom |= runlog_ensure_optional(log, &log->p_pa);
     if (rd->field_of[STAGECAL_RL_TTOP] >= 0)
-        rd->oom |= ensure_optional(log, &log->t_top_k);
+        rd->oom |= runlog_ensure_optional(log, &log->t_top_k);
     if (rd->field_of[STAGECAL_RL_TPOT] >= 0)
-        rd->oom |= ensure_optional(log, &log->t_pot_k);
+        rd->oom |= runlog_ensure_optional(log, &log->t_pot_k);
     if (rd->field_of[STAGECAL_RL_TREFLUX] >= 0)
-        rd->oom |= ensure_optional(log, &log->t_reflux_k);
+        rd->oom |= runlog_ensure_optional(log, &log->t_reflux_k);
     runlog_physics_header_findings(rd);
-}
-
-static int parse_number(const char *s, int allow_inf, double *v)
-{
-    if (allow_inf && (strcmp(s, "inf") == 0 || strcmp(s, "Inf") == 0 || strcmp(s, "INF") == 0 ||
-                      strcmp(s, "infinity") == 0)) {
-        *v = INFINITY;
-        return 0;
-    }
-    char *end;
-    /* decimal only: strtod would also take hexadecimal floats ("0x1p-1") */
-    if (strpbrk(s, "xX"))
-        return -1;
-    errno = 0;
-    double x = strtod(s, &end);
-    if (end == s || *end != '\0' || errno == ERANGE || !isfinite(x))
-        return -1;
-    *v = x;
-    return 0;
 }
 
 static void data_cell(struct reader *rd, const char *s, size_t len)
@@ -424,6 +316,16 @@ static void data_cell(struct reader *rd, const char *s, size_t len)
         return;
     }
     double x;
+    if (is_composition(role)) {
+        char why[STAGECAL_ERROR_TEXT];
+        if (runlog_parse_fraction(s, u, &x, &rd->cens[role], why, sizeof why) != 0) {
+            finding(rd, STAGECAL_FINDING_ERROR, rd->line, h, "column '%s': %s", h, why);
+            return;
+        }
+        rd->raw[role] = x;
+        rd->val[role] = x * u->scale;
+        return;
+    }
     if (role == STAGECAL_RL_TIME && u->iso8601) {
         if (stagecal_units_parse_iso8601(s, &x) != 0) {
             finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
@@ -435,14 +337,9 @@ static void data_cell(struct reader *rd, const char *s, size_t len)
         rd->val[role] = x;
         return;
     }
-    if (parse_number(s, role == STAGECAL_RL_R, &x) != 0) {
+    if (runlog_parse_number(s, role == STAGECAL_RL_R, &x) != 0) {
         finding(rd, STAGECAL_FINDING_ERROR, rd->line, h, "column '%s': value '%s' is not a number",
                 h, s);
-        return;
-    }
-    if (u->qty == STAGECAL_QTY_FRACTION && !(x >= u->lo && x <= u->hi)) {
-        finding(rd, STAGECAL_FINDING_ERROR, rd->line, h, "column '%s': value '%s' outside [0, %g]",
-                h, s, u->hi);
         return;
     }
     if (u->qty == STAGECAL_QTY_TEMPERATURE && !(x >= u->lo)) {
@@ -501,6 +398,75 @@ static void on_field(void *s, size_t len, void *data)
 static double molar_mass(const stagecal_column *col, double x)
 {
     return x * col->system.m_light + (1.0 - x) * col->system.m_heavy;
+}
+
+/* A composition (mole or mass fraction of the component it names) to a light-component
+ * mole fraction; censoring is kept (the conversion is increasing). heavy: the cell
+ * names the heavy component, so both the fraction and the censoring flip. */
+static double to_light_mole(const struct reader *rd, int role, double x, int *censor)
+{
+    const stagecal_unit *u = &rd->unit[role];
+    const stagecal_system *sys = rd->col ? &rd->col->system : NULL;
+    int heavy = role == STAGECAL_RL_XDH;
+    if (u->mass)
+        x = heavy ? stagecal_vle_mass_to_mole(x, sys->m_heavy, sys->m_light)
+                  : stagecal_vle_mass_to_mole(x, sys->m_light, sys->m_heavy);
+    if (!heavy)
+        return x;
+    if (*censor != STAGECAL_CENSOR_NONE)
+        *censor = *censor == STAGECAL_CENSOR_BELOW ? STAGECAL_CENSOR_ABOVE : STAGECAL_CENSOR_BELOW;
+    return 1.0 - x;
+}
+
+/* The row's xD and xB as light mole fractions: mass basis converted, xD_heavy (when the
+ * row has it) in place of xD, and a disagreement between the two noted. */
+static void distillate(struct reader *rd)
+{
+    double *v = rd->val;
+    int *c = rd->cens;
+    if (!isnan(v[STAGECAL_RL_XB]))
+        v[STAGECAL_RL_XB] =
+            to_light_mole(rd, STAGECAL_RL_XB, v[STAGECAL_RL_XB], &c[STAGECAL_RL_XB]);
+    if (!isnan(v[STAGECAL_RL_XD]))
+        v[STAGECAL_RL_XD] =
+            to_light_mole(rd, STAGECAL_RL_XD, v[STAGECAL_RL_XD], &c[STAGECAL_RL_XD]);
+    if (isnan(v[STAGECAL_RL_XDH]))
+        return; /* no heavy reading: xD (if any) stands */
+    double xh = to_light_mole(rd, STAGECAL_RL_XDH, v[STAGECAL_RL_XDH], &c[STAGECAL_RL_XDH]);
+    if (!isnan(v[STAGECAL_RL_XD])) {
+        /* both read the distillate: do their ranges meet within 3 combined uncertainties? */
+        double lo1, hi1, lo2, hi2;
+        runlog_reading_range(v[STAGECAL_RL_XD], c[STAGECAL_RL_XD], &lo1, &hi1);
+        runlog_reading_range(xh, c[STAGECAL_RL_XDH], &lo2, &hi2);
+        double ua = rd->col ? rd->col->u.xd : 0.0, ub = stagecal_runlog_u_xd(rd->col, xh);
+        double tol = DISAGREE_SIGMAS * sqrt(ua * ua + ub * ub) + 1e-12;
+        if (lo1 - hi2 > tol || lo2 - hi1 > tol) {
+            if (rd->ndisagree < DISAGREE_LINES)
+                rd->disagree_line[rd->ndisagree] = rd->line;
+            rd->ndisagree++;
+        }
+    }
+    v[STAGECAL_RL_XD] = xh;
+    c[STAGECAL_RL_XD] = c[STAGECAL_RL_XDH];
+}
+
+static void disagree_warning(struct reader *rd)
+{
+    if (!rd->ndisagree)
+        return;
+    char lines[DISAGREE_LINES * 12 + 8] = "";
+    size_t k = 0, shown = rd->ndisagree < DISAGREE_LINES ? rd->ndisagree : DISAGREE_LINES;
+    for (size_t i = 0; i < shown; i++)
+        k += (size_t)snprintf(lines + k, sizeof lines - k, "%s%ld", i ? ", " : "",
+                              rd->disagree_line[i]);
+    if (rd->ndisagree > shown)
+        snprintf(lines + k, sizeof lines - k, ", ...");
+    const char *hd = rd->hdr[rd->field_of[STAGECAL_RL_XD]];
+    const char *hh = rd->hdr[rd->field_of[STAGECAL_RL_XDH]];
+    finding(rd, STAGECAL_FINDING_WARNING, 0, hh,
+            "columns '%s' and '%s' disagree by more than %g standard uncertainties on %zu rows "
+            "(line%s %s); '%s' is used",
+            hd, hh, DISAGREE_SIGMAS, rd->ndisagree, rd->ndisagree > 1 ? "s" : "", lines, hh);
 }
 
 static int start_run(struct reader *rd, const char *name)
@@ -563,14 +529,8 @@ static void end_row(struct reader *rd)
             return;
         }
     }
-    /* Mass basis → mole basis, now that the compositions are known. */
     const stagecal_unit *u = rd->unit;
-    if (rd->field_of[STAGECAL_RL_XD] >= 0 && u[STAGECAL_RL_XD].mass && !isnan(v[STAGECAL_RL_XD]))
-        v[STAGECAL_RL_XD] =
-            stagecal_vle_mass_to_mole(v[STAGECAL_RL_XD], col->system.m_light, col->system.m_heavy);
-    if (rd->field_of[STAGECAL_RL_XB] >= 0 && u[STAGECAL_RL_XB].mass && !isnan(v[STAGECAL_RL_XB]))
-        v[STAGECAL_RL_XB] =
-            stagecal_vle_mass_to_mole(v[STAGECAL_RL_XB], col->system.m_light, col->system.m_heavy);
+    distillate(rd);
     if (u[STAGECAL_RL_W].mass)
         v[STAGECAL_RL_W] = v[STAGECAL_RL_W] / molar_mass(col, v[STAGECAL_RL_XB]); /* NaN if xB is */
     double vap = NAN;
@@ -610,11 +570,13 @@ static void end_row(struct reader *rd)
         rd->prev_w_ok = 1;
     }
     double xd = v[STAGECAL_RL_XD], xb = v[STAGECAL_RL_XB];
-    if (xd < xb) /* false when either is missing */
+    int cd = rd->cens[STAGECAL_RL_XD], cb = rd->cens[STAGECAL_RL_XB];
+    /* false when either is missing, or when censoring leaves room for xD >= xB */
+    if (xd < xb && cd != STAGECAL_CENSOR_ABOVE && cb != STAGECAL_CENSOR_BELOW)
         finding(rd, STAGECAL_FINDING_ERROR, rd->line, rd->hdr[rd->field_of[STAGECAL_RL_XD]],
                 "xD %.6g is below xB %.6g (expected xD >= xB in a rectifier)", xd, xb);
 
-    if (log->n == log->cap && grow_rows(log) != 0) {
+    if (log->n == log->cap && runlog_grow_rows(log) != 0) {
         rd->oom = 1;
         return;
     }
@@ -625,6 +587,8 @@ static void end_row(struct reader *rd)
     log->w_mol[n] = w;
     log->xd[n] = xd;
     log->xb[n] = xb;
+    log->xd_cens[n] = (unsigned char)(isnan(xd) ? 0 : cd);
+    log->xb_cens[n] = (unsigned char)(isnan(xb) ? 0 : cb);
     log->r[n] = r;
     if (log->v_mol_s)
         log->v_mol_s[n] = vap;
@@ -655,8 +619,10 @@ static void on_row(int c, void *data)
     }
     /* reset the row */
     rd->field = 0;
-    for (int i = 0; i < STAGECAL_RL_NCOL; i++)
+    for (int i = 0; i < STAGECAL_RL_NCOL; i++) {
         rd->val[i] = rd->raw[i] = NAN;
+        rd->cens[i] = STAGECAL_CENSOR_NONE;
+    }
     rd->run_text[0] = '\0';
     rd->time_text[0] = '\0';
 }
@@ -769,6 +735,7 @@ int stagecal_runlog_read_stream(stagecal_runlog *log, FILE *in, const char *sour
                         log->files[k], log->sha256[k]);
                 break;
             }
+        disagree_warning(rd);
         for (int i = 0; i < STAGECAL_RL_NCOL; i++)
             if (rd->nmissing[i] && rd->field_of[i] >= 0) {
                 const char *h = rd->hdr[rd->field_of[i]];

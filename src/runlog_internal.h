@@ -24,4 +24,23 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
                    const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
                    stagecal_error *err);
 
+/* Grows every row array of log (×2, 4096 at first; optional signals only when present).
+ * -1 on allocation failure. */
+int runlog_grow_rows(stagecal_runlog *log);
+/* Allocates an optional signal's array, NaN for the rows already stored; -1 on failure. */
+int runlog_ensure_optional(stagecal_runlog *log, double **a);
+
+/* Parses a decimal number (no hexadecimal; "inf" only with allow_inf); 0 or -1. */
+int runlog_parse_number(const char *s, int allow_inf, double *v);
+
+/* Parses a composition cell as logged in unit u: a number in [u->lo, u->hi], "<v" or
+ * ">v". A number at u->lo or u->hi is censored there; "<lo" and ">hi" are refused.
+ * Returns 0 with *v (as logged, not converted) and *censor, or -1 with why ("value '<'
+ * is not a censored reading (expected ...)", without the column prefix). */
+int runlog_parse_fraction(const char *s, const stagecal_unit *u, double *v, int *censor, char *why,
+                          size_t why_len);
+
+/* The range of mole fractions a reading allows: [v, v], [0, v] or [v, 1]. */
+void runlog_reading_range(double v, int censor, double *lo, double *hi);
+
 #endif

@@ -42,7 +42,17 @@ static const char *const note_text[STAGECAL_NOTE_COUNT] = {
     [STAGECAL_NOTE_NO_DISTILLATE] = "no distillate drawn: counted at total reflux",
     [STAGECAL_NOTE_NO_LOAD] = "no F-factor (needs V, diameter, molar masses and a temperature)",
     [STAGECAL_NOTE_FAILED] = "inversion failed",
+    [STAGECAL_NOTE_AT_LEAST] = "censored reading: at least this many stages (one-sided 95 %)",
+    [STAGECAL_NOTE_AT_MOST] = "censored reading: at most this many stages (one-sided 95 %)",
+    [STAGECAL_NOTE_OPPOSITE] = "xD and xB censored in opposite senses: no bound",
+    [STAGECAL_NOTE_UNBOUNDED] = "censored reading: no finite bound (at the physical bound "
+                                "without a stated uncertainty, or a pinch)",
 };
+
+const char *stagecal_runlog_status_name(int status)
+{
+    return status == STAGECAL_RUNLOG_CENSORED ? "censored" : stagecal_stages_status_name(status);
+}
 
 const char *stagecal_runlog_note_text(int note)
 {
@@ -75,6 +85,38 @@ struct inv_ctx {
     stagecal_physics *ph; /* logged pressure, subcooled reflux (physics.h) */
 };
 
+/* Row i with a censored reading (xD and xB present, R > 0): a one-sided bound. A reading
+ * above its limit (xD) or below it (xB) says the column did at least this well, so the
+ * count is bounded below; the other senses bound it above. The bound is the count at
+ * the compositions moved by STAGECAL_RUNLOG_BOUND_Z standard uncertainties each, the
+ * way that weakens it: with both moved it holds with at least 95 %. */
+static void invert_censored(struct inv_ctx *c, size_t i, double r)
+{
+    const stagecal_runlog *log = c->log;
+    stagecal_runlog_result *res = c->res;
+    int cd = log->xd_cens[i], cb = log->xb_cens[i];
+    int lower = cd == STAGECAL_CENSOR_ABOVE || cb == STAGECAL_CENSOR_BELOW;
+    int upper = cd == STAGECAL_CENSOR_BELOW || cb == STAGECAL_CENSOR_ABOVE;
+    res->status[i] = STAGECAL_RUNLOG_CENSORED;
+    res->stages[i] = NAN;
+    if (lower && upper) {
+        res->note[i] = STAGECAL_NOTE_OPPOSITE;
+        return;
+    }
+    double z = lower ? -STAGECAL_RUNLOG_BOUND_Z : STAGECAL_RUNLOG_BOUND_Z;
+    double xd = log->xd[i] + z * stagecal_runlog_u_xd(c->col, log->xd[i]);
+    double xb = log->xb[i] - z * stagecal_runlog_u_xb(c->col, log->xb[i]);
+    stagecal_stages_result sr;
+    res->note[i] = STAGECAL_NOTE_UNBOUNDED;
+    if (!(xd < 1 && xb > 0 && xb < xd) ||
+        stagecal_stages_invert(c->col->system.vle, xd, xb, r, c->murphree, &c->sp, &sr, NULL) !=
+            STAGECAL_OK ||
+        sr.status != STAGECAL_STAGES_OK)
+        return;
+    res->stages[i] = sr.stages;
+    res->note[i] = lower ? STAGECAL_NOTE_AT_LEAST : STAGECAL_NOTE_AT_MOST;
+}
+
 /* Inverts row i at reflux r (the logged one, or INFINITY for no-distillate). */
 static void invert_row(struct inv_ctx *c, size_t i, double r)
 {
@@ -98,12 +140,16 @@ static void invert_row(struct inv_ctx *c, size_t i, double r)
         res->lv[i] = NAN; /* written as an empty cell */
         return;
     }
-    if (xd < xb) {
-        res->note[i] = STAGECAL_NOTE_XD_BELOW_XB;
-        return;
-    }
     if (r == 0) {
         res->note[i] = STAGECAL_NOTE_REFLUX_ZERO;
+        return;
+    }
+    if (log->xd_cens[i] != STAGECAL_CENSOR_NONE || log->xb_cens[i] != STAGECAL_CENSOR_NONE) {
+        invert_censored(c, i, r);
+        return;
+    }
+    if (xd < xb) {
+        res->note[i] = STAGECAL_NOTE_XD_BELOW_XB;
         return;
     }
     stagecal_stages_result sr;
@@ -122,7 +168,8 @@ static void invert_row(struct inv_ctx *c, size_t i, double r)
     }
     const stagecal_uncertainty *u = &c->col->u;
     double ur2 = isinf(r) ? 0.0 : u->r * u->r + (u->r_rel * r) * (u->r_rel * r);
-    double a = sr.dstages_dxd * u->xd, b = sr.dstages_dxb * u->xb;
+    double a = sr.dstages_dxd * stagecal_runlog_u_xd(c->col, xd);
+    double b = sr.dstages_dxb * stagecal_runlog_u_xb(c->col, xb);
     res->stages[i] = sr.stages;
     res->u_stages[i] = sqrt(a * a + b * b + sr.dstages_dr * sr.dstages_dr * ur2);
     res->note[i] = STAGECAL_NOTE_NONE;
@@ -183,7 +230,7 @@ int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *co
     int rc = runlog_windows(log, col, &par, res, err);
     memset(res->count, 0, sizeof res->count);
     for (size_t i = 0; i < log->n; i++)
-        if (res->status[i] < 4)
+        if (res->status[i] < STAGECAL_RUNLOG_NSTATUS)
             res->count[res->status[i]]++;
     return rc;
 }
@@ -246,7 +293,8 @@ int stagecal_runlog_write_csv(const stagecal_runlog *log, const stagecal_column 
 {
     stagecal_condenser cond = col ? col->condenser : STAGECAL_CONDENSER_TOTAL;
     fprintf(out, "source,line,run,time[s],stages,column_stages,u_stages,status,note,L/V,"
-                 "F[Pa^0.5],steady,total_reflux,outlier,window,xB_rec[mol/mol]\n");
+                 "F[Pa^0.5],steady,total_reflux,outlier,window,xB_rec[mol/mol],stages_low,"
+                 "stages_high\n");
     for (size_t i = 0; i < log->n; i++) {
         const stagecal_runlog_run *run = &log->runs[log->run[i]];
         int ok = res->status[i] == STAGECAL_STAGES_OK;
@@ -266,7 +314,7 @@ int stagecal_runlog_write_csv(const stagecal_runlog *log, const stagecal_column 
         } else {
             fputs(",,", out);
         }
-        fprintf(out, ",%s,", stagecal_stages_status_name(res->status[i]));
+        fprintf(out, ",%s,", stagecal_runlog_status_name(res->status[i]));
         put_text(out, stagecal_runlog_note_text(res->note[i]));
         fputc(',', out);
         put_fixed(out, res->lv[i], 9);
@@ -280,6 +328,13 @@ int stagecal_runlog_write_csv(const stagecal_runlog *log, const stagecal_column 
             fprintf(out, "%d", (int)res->window[i]);
         fputc(',', out);
         put_fixed(out, res->xb_rec[i], 9);
+        /* the one-sided bound of a censored row, in the column of the end it gives */
+        fputc(',', out);
+        if (res->note[i] == STAGECAL_NOTE_AT_LEAST)
+            put_fixed(out, res->stages[i], 6);
+        fputc(',', out);
+        if (res->note[i] == STAGECAL_NOTE_AT_MOST)
+            put_fixed(out, res->stages[i], 6);
         if (fputc('\n', out) == EOF)
             break;
     }

@@ -40,8 +40,10 @@ static const struct unit_row unit_table[] = {
     {STAGECAL_QTY_AMOUNT, "lb", 0.45359237, 0, 1, 0, 0, HUGE_VAL},
     {STAGECAL_QTY_FRACTION, "mol/mol", 1.0, 0, 0, 0, 0, 1},
     {STAGECAL_QTY_FRACTION, "mol%", 0.01, 0, 0, 0, 0, 100},
+    {STAGECAL_QTY_FRACTION, "ppm", 1e-6, 0, 0, 0, 0, 1e6}, /* µmol/mol */
     {STAGECAL_QTY_FRACTION, "kg/kg", 1.0, 0, 1, 0, 0, 1},
     {STAGECAL_QTY_FRACTION, "wt%", 0.01, 0, 1, 0, 0, 100},
+    {STAGECAL_QTY_FRACTION, "ppmw", 1e-6, 0, 1, 0, 0, 1e6}, /* mg/kg */
     {STAGECAL_QTY_RATIO, "-", 1.0, 0, 0, 0, 0, HUGE_VAL},
     {STAGECAL_QTY_RATIO, "", 1.0, 0, 0, 0, 0, HUGE_VAL},
     {STAGECAL_QTY_FLOW, "kmol/h", 1000.0 / 3600.0, 0, 0, 0, 0, HUGE_VAL},
@@ -62,7 +64,7 @@ static const struct unit_row unit_table[] = {
 static const char *const expected_text[] = {
     [STAGECAL_QTY_TIME] = "h, min, s or iso8601",
     [STAGECAL_QTY_AMOUNT] = "kmol, mol, kg or lb",
-    [STAGECAL_QTY_FRACTION] = "mol/mol, mol%, kg/kg or wt%",
+    [STAGECAL_QTY_FRACTION] = "mol/mol, mol%, ppm, kg/kg, wt% or ppmw",
     [STAGECAL_QTY_RATIO] = "- or no unit",
     [STAGECAL_QTY_FLOW] = "kmol/h, mol/s or kg/h",
     [STAGECAL_QTY_DUTY] = "kW, W or MW",

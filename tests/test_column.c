@@ -176,6 +176,17 @@ static void column_bad_fields_are_named(void **state)
     expect(rc, &err, STAGECAL_EDATA, "field 'packed_height_m': -5 is outside (0, 1000] m");
     rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}", "{\"xd\": -0.1}", &col, &err);
     expect(rc, &err, STAGECAL_EDATA, "field 'uncertainty.xd': -0.1 is outside [0, 0.5]");
+    rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}", "{\"xd_heavy_rel\": 1.5}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA,
+           "field 'uncertainty.xd_heavy_rel': 1.5 is outside [0, 1] (fraction of the heavy "
+           "content 1 - xD)");
+    rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}",
+                "{\"xd\": 5e-8, \"xd_heavy_rel\": 0.05, \"xb\": 0.001, \"xb_rel\": 0.02}", &col,
+                &err);
+    assert_int_equal(rc, STAGECAL_OK);
+    assert_rel(col.u.xd_heavy_rel, 0.05, 0.0, "u_rel(xD_heavy)");
+    assert_rel(col.u.xb_rel, 0.02, 0.0, "u_rel(xB)");
+    stagecal_column_free(&col);
     rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}", "{\"w_kg\": 3}", &col, &err);
     expect(rc, &err, STAGECAL_EDATA, "field 'uncertainty.w_kg': unknown field");
     rc = parse("\"pressure_pa\": 101325,",

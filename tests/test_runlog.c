@@ -120,22 +120,90 @@ static const struct vcase vcases[] = {
      HDR "0,10,0.95,0.5,4\n0.1,9.9,0.3,0.4,4\n0.2,9.8,0.94,0.48,4\n"
          "0.3,9.7,0.94,0.47,4\n0.4,9.6,0.93,0.46,4\n",
      0, 0, 1, 0, "t.csv:3: xD 0.3 is below xB 0.4 (expected xD >= xB in a rectifier)"},
-    {"unknown unit", "time[h],W[kmol],xD[mol/mol],xB[ppm],R[-]\n" ROWS5, 0, STAGECAL_EDATA, 1, 0,
-     "t.csv:1: column 'xB[ppm]': unknown unit 'ppm' (expected mol/mol, mol%, kg/kg or wt%)"},
+    {"unknown unit", "time[h],W[kmol],xD[mol/mol],xB[ppb],R[-]\n" ROWS5, 0, STAGECAL_EDATA, 1, 0,
+     "t.csv:1: column 'xB[ppb]': unknown unit 'ppb' (expected mol/mol, mol%, ppm, kg/kg, wt% or "
+     "ppmw)"},
+    /* censored cells: the bad variants */
+    {"censored, no number",
+     HDR "0,10,0.95,0.5,4\n0.1,9.9,0.95,<,4\n0.2,9.8,0.94,0.48,4\n"
+         "0.3,9.7,0.94,0.47,4\n0.4,9.6,0.93,0.46,4\n",
+     0, 0, 1, 0,
+     "t.csv:3: column 'xB[mol/mol]': value '<' is not a censored reading (expected <v or >v with "
+     "v a number in [0, 1])"},
+    {"censored, two marks",
+     HDR "0,10,0.95,0.5,4\n0.1,9.9,0.95,0.49,4\n0.2,9.8,<<3,0.48,4\n"
+         "0.3,9.7,0.94,0.47,4\n0.4,9.6,0.93,0.46,4\n",
+     0, 0, 1, 0,
+     "t.csv:4: column 'xD[mol/mol]': value '<<3' is not a censored reading (expected <v or >v "
+     "with v a number in [0, 1])"},
+    {"censored, negative limit",
+     HDR "0,10,0.95,0.5,4\n0.1,9.9,0.95,>-1,4\n0.2,9.8,0.94,0.48,4\n"
+         "0.3,9.7,0.94,0.47,4\n0.4,9.6,0.93,0.46,4\n",
+     0, 0, 1, 0, "t.csv:3: column 'xB[mol/mol]': value '>-1' outside [0, 1]"},
+    {"censored, not a number",
+     HDR "0,10,0.95,0.5,4\n0.1,9.9,0.95,<abc,4\n0.2,9.8,0.94,0.48,4\n"
+         "0.3,9.7,0.94,0.47,4\n0.4,9.6,0.93,0.46,4\n",
+     0, 0, 1, 0,
+     "t.csv:3: column 'xB[mol/mol]': value '<abc' is not a censored reading (expected <v or >v "
+     "with v a number in [0, 1])"},
+    {"censored below the bound",
+     "time[h],W[kmol],xD_heavy[ppm],xB[mol/mol],R[-]\n0,10,<0,0.5,4\n0.1,9.9,5,0.49,4\n"
+     "0.2,9.8,5,0.48,4\n0.3,9.7,5,0.47,4\n0.4,9.6,5,0.46,4\n",
+     0, 0, 1, 0,
+     "t.csv:2: column 'xD_heavy[ppm]': value '<0' is below the physical bound 0 (no reading can "
+     "be; expected <v with v > 0)"},
+    {"censored above the bound",
+     HDR "0,10,>1,0.5,4\n0.1,9.9,0.95,0.49,4\n0.2,9.8,0.94,0.48,4\n"
+         "0.3,9.7,0.94,0.47,4\n0.4,9.6,0.93,0.46,4\n",
+     0, 0, 1, 0,
+     "t.csv:2: column 'xD[mol/mol]': value '>1' is above the physical bound 1 (no reading can be; "
+     "expected >v with v < 1)"},
+    {"censored ppm out of range",
+     "time[h],W[kmol],xD_heavy[ppm],xB[mol/mol],R[-]\n0,10,>2e6,0.5,4\n0.1,9.9,5,0.49,4\n"
+     "0.2,9.8,5,0.48,4\n0.3,9.7,5,0.47,4\n0.4,9.6,5,0.46,4\n",
+     0, 0, 1, 0, "t.csv:2: column 'xD_heavy[ppm]': value '>2e6' outside [0, 1e+06]"},
+    {"censoring mark on R",
+     HDR "0,10,0.95,0.5,<4\n0.1,9.9,0.95,0.49,4\n0.2,9.8,0.94,0.48,4\n"
+         "0.3,9.7,0.94,0.47,4\n0.4,9.6,0.93,0.46,4\n",
+     0, 0, 1, 0, "t.csv:2: column 'R[-]': value '<4' is not a number"},
+    /* xD may be censored above xB's value: no contradiction */
+    {"censored xD below xB allowed",
+     HDR "0,10,>0.4,0.5,4\n0.1,9.9,0.95,0.49,4\n"
+         "0.2,9.8,0.94,0.48,4\n0.3,9.7,0.94,0.47,4\n"
+         "0.4,9.6,0.93,0.46,4\n",
+     0, 0, 0, 0, NULL},
+    {"xD censored below xB",
+     HDR "0,10,<0.4,0.5,4\n0.1,9.9,0.95,0.49,4\n0.2,9.8,0.94,0.48,4\n"
+         "0.3,9.7,0.94,0.47,4\n0.4,9.6,0.93,0.46,4\n",
+     0, 0, 1, 0, "t.csv:2: xD 0.4 is below xB 0.5 (expected xD >= xB in a rectifier)"},
+    {"neither xD nor xD_heavy", "time[h],W[kmol],xB[mol/mol],R[-]\n0,10,0.5,4\n", 0, STAGECAL_EDATA,
+     1, 0, "t.csv:1: missing column 'xD' or 'xD_heavy' (required: time, W, xD or xD_heavy, xB, R)"},
+    {"xD_heavy in ppmw without molar masses",
+     "time[h],W[kmol],xD_heavy[ppmw],xB[mol/mol],R[-]\n0,10,5,0.5,4\n", 0, STAGECAL_EDATA, 1, 0,
+     "t.csv:1: column 'xD_heavy[ppmw]': a mass basis needs the molar masses (expected a column "
+     "file that states them)"},
+    {"xD and xD_heavy disagree",
+     "time[h],W[kmol],xD[mol/mol],xD_heavy[ppm],xB[mol/mol],R[-]\n0,10,0.9999,100,0.5,4\n"
+     "0.1,9.9,0.99,100,0.49,4\n0.2,9.8,0.9999,>50,0.48,4\n0.3,9.7,1,<50,0.47,4\n"
+     "0.4,9.6,0.95,<1000,0.46,4\n",
+     0, 0, 0, 1,
+     "t.csv: columns 'xD[mol/mol]' and 'xD_heavy[ppm]' disagree by more than 3 standard "
+     "uncertainties on 2 rows (lines 3, 6); 'xD_heavy[ppm]' is used"},
     {"unknown column",
      "time[h],W[kmol],xD[mol/mol],xB[mol/mol],R[-],foo\n"
      "0,10,0.95,0.5,4,1\n0.1,9.9,0.95,0.49,4,1\n0.2,9.8,0.94,0.48,4,1\n"
      "0.3,9.7,0.94,0.47,4,1\n0.4,9.6,0.93,0.46,4,1\n",
      0, 0, 0, 1,
-     "t.csv:1: unknown column 'foo' ignored (expected time, W, xD, xB, R, V, Q, P, T_top, T_pot, "
-     "T_reflux or run)"},
+     "t.csv:1: unknown column 'foo' ignored (expected time, W, xD, xD_heavy, xB, R, V, Q, P, "
+     "T_top, T_pot, T_reflux or run)"},
     {"duplicate column",
      "time[h],W[kmol],xD[mol/mol],xB[mol/mol],R[-],xB[wt%]\n"
      "0,10,0.95,0.5,4,1\n0.1,9.9,0.95,0.49,4,1\n0.2,9.8,0.94,0.48,4,1\n"
      "0.3,9.7,0.94,0.47,4,1\n0.4,9.6,0.93,0.46,4,1\n",
      0, 0, 1, 0, "t.csv:1: duplicate column 'xB[wt%]' ignored (column 'xB[mol/mol]' came first)"},
     {"missing column", "time[h],W[kmol],xD[mol/mol],xB[mol/mol]\n0,10,0.95,0.5\n", 0,
-     STAGECAL_EDATA, 1, 0, "t.csv:1: missing column 'R' (required: time, W, xD, xB, R)"},
+     STAGECAL_EDATA, 1, 0,
+     "t.csv:1: missing column 'R' (required: time, W, xD or xD_heavy, xB, R)"},
     {"too few rows", HDR "0,10,0.95,0.5,4\n0.1,9.9,0.95,0.49,4\n", 0, 0, 1, 0,
      "t.csv:2: run 't.csv' has 2 rows (expected at least 5)"},
     {"field count",
@@ -219,6 +287,89 @@ static void runlog_validation_messages_exact(void **state)
         stagecal_findings_free(f);
         stagecal_runlog_free(log);
     }
+}
+
+/* Each input novelty parsed to its exact value and censoring: ppm and ppmw units, the
+ * xD_heavy column, <v and >v cells and readings at the physical bound. Expected values
+ * are the unit definitions (ppm = 1e-6 mol/mol, ppmw = 1e-6 kg/kg, SI prefix micro) and
+ * the mass-to-mole conversion written out here: x = (w/M_a)/(w/M_a + (1 − w)/M_b). */
+static void runlog_censored_and_impurity_readings(void **state)
+{
+    (void)state;
+    const char *csv = "time[h],W[kmol],xD_heavy[ppm],xB[ppmw],R[-]\n"
+                      "0,10,3,500000,4\n"  /* plain ppm; xB by mass */
+                      "0.1,9.9,<1,<20,4\n" /* below the detection limits */
+                      "0.2,9.8,0,0,4\n"    /* at the physical bounds */
+                      "0.3,9.7,>20,>600000,4\n"
+                      "0.4,9.6,12.5,750000,4\n";
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    stagecal_findings *f = stagecal_findings_alloc(10);
+    stagecal_column col = test_col;
+    col.u.xd = 1e-7;
+    col.u.xd_heavy_rel = 0.05;
+    col.u.xb = 0.001;
+    col.u.xb_rel = 0.02;
+    assert_int_equal(
+        stagecal_runlog_read_buffer(log, csv, strlen(csv), "c.csv", &col, NULL, f, NULL), 0);
+    if (f->n_errors || f->n_warnings)
+        fail_msg("unexpected finding: %s", f->items[0].text);
+    assert_int_equal(log->n, 5);
+    const double ml = col.system.m_light, mh = col.system.m_heavy;
+#define MOLE(w, ma, mb) (((w) / (ma)) / ((w) / (ma) + (1.0 - (w)) / (mb)))
+    /* tolerance 1e-15 absolute: one rounding in 1 − x and in the conversion */
+    struct {
+        double xd;
+        int cd;
+        double xb;
+        int cb;
+    } want[] = {
+        {1 - 3e-6, STAGECAL_CENSOR_NONE, MOLE(0.5, ml, mh), STAGECAL_CENSOR_NONE},
+        {1 - 1e-6, STAGECAL_CENSOR_ABOVE, MOLE(20e-6, ml, mh), STAGECAL_CENSOR_BELOW},
+        {1.0, STAGECAL_CENSOR_ABOVE, 0.0, STAGECAL_CENSOR_BELOW},
+        {1 - 20e-6, STAGECAL_CENSOR_BELOW, MOLE(0.6, ml, mh), STAGECAL_CENSOR_ABOVE},
+        {1 - 12.5e-6, STAGECAL_CENSOR_NONE, MOLE(0.75, ml, mh), STAGECAL_CENSOR_NONE},
+    };
+#undef MOLE
+    for (size_t i = 0; i < 5; i++) {
+        stagecal_reading d = stagecal_runlog_reading(log, &col, i, STAGECAL_RL_XD);
+        stagecal_reading b = stagecal_runlog_reading(log, &col, i, STAGECAL_RL_XB);
+        assert_abs(d.value, want[i].xd, 1e-15, "xD");
+        assert_int_equal(d.censor, want[i].cd);
+        assert_abs(b.value, want[i].xb, 1e-15, "xB");
+        assert_int_equal(b.censor, want[i].cb);
+        /* u² = u_abs² + (u_rel·c)², c = 1 − xD for the distillate, xB for the pot */
+        double ud = hypot(1e-7, 0.05 * (1 - want[i].xd)), ub = hypot(0.001, 0.02 * want[i].xb);
+        assert_rel(d.u, ud, 1e-12, "u(xD)");
+        assert_rel(b.u, ub, 1e-12, "u(xB)");
+    }
+    /* without a column the uncertainty is 0 (not stated) */
+    assert_abs(stagecal_runlog_u_xd(NULL, 0.5), 0, 0, "no column");
+    stagecal_findings_free(f);
+    stagecal_runlog_free(log);
+
+    /* xD in mol/mol: 1 and 0 at the bounds, >v full scale; xD_heavy wins over xD */
+    const char *csv2 = "time[h],W[kmol],xD[mol/mol],xB[mol%],R[-]\n"
+                       "0,10,1,0,4\n0.1,9.9,>0.9999,<0.1,4\n0.2,9.8,0.98,1,4\n"
+                       "0.3,9.7,0.97,2,4\n0.4,9.6,0.96,100,4\n";
+    log = stagecal_runlog_alloc();
+    f = stagecal_findings_alloc(10);
+    assert_int_equal(
+        stagecal_runlog_read_buffer(log, csv2, strlen(csv2), "d.csv", NULL, NULL, f, NULL), 0);
+    assert_int_equal(f->n_errors, 1); /* xD 0.96 below xB 100 mol% (line 6) */
+    assert_string_equal(f->items[0].text,
+                        "d.csv:6: xD 0.96 is below xB 1 (expected xD >= xB in a rectifier)");
+    assert_abs(log->xd[0], 1.0, 0, "xD = 1");
+    assert_int_equal(log->xd_cens[0], STAGECAL_CENSOR_ABOVE);
+    assert_abs(log->xb[0], 0.0, 0, "xB = 0");
+    assert_int_equal(log->xb_cens[0], STAGECAL_CENSOR_BELOW);
+    assert_abs(log->xd[1], 0.9999, 0, ">0.9999");
+    assert_int_equal(log->xd_cens[1], STAGECAL_CENSOR_ABOVE);
+    assert_abs(log->xb[1], 0.001, 1e-18, "<0.1 mol%");
+    assert_int_equal(log->xb_cens[1], STAGECAL_CENSOR_BELOW);
+    assert_int_equal(log->xd_cens[2], STAGECAL_CENSOR_NONE);
+    assert_int_equal(log->xb_cens[4], STAGECAL_CENSOR_ABOVE); /* 100 mol% */
+    stagecal_findings_free(f);
+    stagecal_runlog_free(log);
 }
 
 static void runlog_missing_file_is_enoinput(void **state)
@@ -539,6 +690,117 @@ static void runlog_closure_catches_drift_and_gross_error(void **state)
     stagecal_runlog_free(log);
 }
 
+/* Fenske's count at total reflux with constant α (Fenske 1932, Ind. Eng. Chem.
+ * 24:482): stages including the pot = ln[(xD/(1 − xD))·((1 − xB)/xB)] / ln α. */
+static double fenske(double alpha, double xd, double xb)
+{
+    return log((xd / (1 - xd)) * ((1 - xb) / xb)) / log(alpha);
+}
+
+/* A censored row bounds the count from one side: the bound is Fenske's count at the
+ * compositions moved by z = 1.645 standard uncertainties (u(xD) = 0.002, u(xB) = 0.005
+ * of test_col) towards the weaker bound. */
+static void runlog_censored_rows_bound_stages(void **state)
+{
+    (void)state;
+    const char *csv = "time[h],W[kmol],xD[mol/mol],xB[mol/mol],R[-]\n"
+                      "0,10,>0.999,0.3,inf\n"   /* at least */
+                      "0.1,10,0.95,<0.01,inf\n" /* at least */
+                      "0.2,10,<0.9,0.3,inf\n"   /* at most */
+                      "0.3,10,1,0.3,inf\n"      /* at the bound: at least */
+                      "0.4,10,>0.99,>0.5,inf\n" /* opposite senses */
+                      "0.5,10,0.95,0.3,inf\n";  /* a value */
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    stagecal_findings *f = stagecal_findings_alloc(10);
+    assert_int_equal(
+        stagecal_runlog_read_buffer(log, csv, strlen(csv), "b.csv", &test_col, NULL, f, NULL), 0);
+    assert_int_equal(f->n_errors, 0);
+    stagecal_runlog_result res;
+    assert_int_equal(stagecal_runlog_analyse(log, &test_col, NULL, &res, NULL), 0);
+    assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, NULL, &res, NULL), 0);
+    const double z = 1.6448536269514722, ud = 0.002, ub = 0.005, a = 2.5;
+    struct {
+        int note;
+        double stages; /* NaN: none */
+    } want[] = {
+        {STAGECAL_NOTE_AT_LEAST, fenske(a, 0.999 - z * ud, 0.3 + z * ub)},
+        {STAGECAL_NOTE_AT_LEAST, fenske(a, 0.95 - z * ud, 0.01 + z * ub)},
+        {STAGECAL_NOTE_AT_MOST, fenske(a, 0.9 + z * ud, 0.3 - z * ub)},
+        {STAGECAL_NOTE_AT_LEAST, fenske(a, 1 - z * ud, 0.3 + z * ub)},
+        {STAGECAL_NOTE_OPPOSITE, NAN},
+    };
+    for (size_t i = 0; i < 5; i++) {
+        assert_int_equal(res.status[i], STAGECAL_RUNLOG_CENSORED);
+        assert_int_equal(res.note[i], want[i].note);
+        if (isnan(want[i].stages))
+            assert_true(isnan(res.stages[i]));
+        else /* 1e-9: the inversion's round-trip tolerance */
+            assert_abs(res.stages[i], want[i].stages, 1e-9, "bound");
+    }
+    assert_int_equal(res.status[5], STAGECAL_STAGES_OK);
+    assert_abs(res.stages[5], fenske(a, 0.95, 0.3), 1e-9, "plain row");
+    assert_int_equal(res.count[STAGECAL_RUNLOG_CENSORED], 5);
+    assert_string_equal(stagecal_runlog_status_name(STAGECAL_RUNLOG_CENSORED), "censored");
+    stagecal_runlog_result_free(&res);
+
+    /* without a stated u(xD) a reading of exactly 1 gives no finite bound */
+    stagecal_column col0 = test_col;
+    col0.u.xd = 0;
+    assert_int_equal(stagecal_runlog_analyse(log, &col0, NULL, &res, NULL), 0);
+    assert_int_equal(stagecal_runlog_invert(log, &col0, 1.0, NULL, &res, NULL), 0);
+    assert_int_equal(res.status[3], STAGECAL_RUNLOG_CENSORED);
+    assert_int_equal(res.note[3], STAGECAL_NOTE_UNBOUNDED);
+    assert_true(isnan(res.stages[3]));
+
+    /* the CSV: status "censored" and the bound in the column of the end it gives */
+    char *buf = NULL;
+    size_t blen = 0;
+    FILE *out = open_memstream(&buf, &blen);
+    assert_int_equal(stagecal_runlog_write_csv(log, &col0, &res, out, NULL), 0);
+    fclose(out);
+    assert_non_null(strstr(buf, ",xB_rec[mol/mol],stages_low,stages_high\n"));
+    char want_row[64];
+    snprintf(want_row, sizeof want_row, ",%.6f,\n", fenske(a, 0.999 - z * 0, 0.3 + z * ub));
+    assert_non_null(strstr(buf, want_row)); /* row 1: at least, u(xD) = 0 now */
+    snprintf(want_row, sizeof want_row, ",,%.6f\n", fenske(a, 0.9, 0.3 - z * ub));
+    assert_non_null(strstr(buf, want_row)); /* row 3: at most */
+    free(buf);
+    stagecal_runlog_result_free(&res);
+    stagecal_findings_free(f);
+    stagecal_runlog_free(log);
+}
+
+/* A censored reading does not end a quasi-steady window; a missing one does. */
+static void runlog_censored_rows_keep_windows(void **state)
+{
+    (void)state;
+    size_t nwin[3];
+    for (int variant = 0; variant < 3; variant++) {
+        double *xbt, *xdt;
+        stagecal_runlog *log = load_synth(&base, &xbt, &xdt);
+        for (size_t i = 200; i < 203; i++) {
+            if (variant == 1)
+                log->xd_cens[i] = STAGECAL_CENSOR_ABOVE; /* read ">xD" */
+            else if (variant == 2)
+                log->xd[i] = NAN; /* analyser down */
+        }
+        stagecal_runlog_result res;
+        assert_int_equal(stagecal_runlog_analyse(log, &test_col, NULL, &res, NULL), 0);
+        assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, NULL, &res, NULL), 0);
+        nwin[variant] = res.nwindows;
+        if (variant == 1)
+            for (size_t i = 200; i < 203; i++)
+                assert_int_equal(res.status[i], STAGECAL_RUNLOG_CENSORED);
+        stagecal_runlog_result_free(&res);
+        stagecal_runlog_free(log);
+        free(xbt);
+        free(xdt);
+    }
+    print_message("windows: clean %zu, censored %zu, missing %zu\n", nwin[0], nwin[1], nwin[2]);
+    assert_int_equal(nwin[1], nwin[0]);
+    assert_true(nwin[2] > nwin[0]); /* the control: a missing reading does split it */
+}
+
 static void runlog_mass_based_twin_gives_same_stages(void **state)
 {
     (void)state;
@@ -638,6 +900,7 @@ int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(runlog_validation_messages_exact),
+        cmocka_unit_test(runlog_censored_and_impurity_readings),
         cmocka_unit_test(runlog_missing_file_is_enoinput),
         cmocka_unit_test(runlog_multiline_quoted_cell),
         cmocka_unit_test(runlog_hash_and_same_content),
@@ -649,6 +912,8 @@ int main(void)
         cmocka_unit_test(runlog_transients_are_flagged),
         cmocka_unit_test(runlog_closure_catches_drift_and_gross_error),
         cmocka_unit_test(runlog_mass_based_twin_gives_same_stages),
+        cmocka_unit_test(runlog_censored_rows_bound_stages),
+        cmocka_unit_test(runlog_censored_rows_keep_windows),
         cmocka_unit_test(runlog_rows_get_status_not_nan),
     };
     return cmocka_run_group_tests(tests, setup, teardown);

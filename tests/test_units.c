@@ -71,6 +71,9 @@ static void units_factors_are_exact(void **state)
         {STAGECAL_QTY_FRACTION, "mol%", 0.01, 0, 0},
         {STAGECAL_QTY_FRACTION, "wt%", 0.01, 0, 1},
         {STAGECAL_QTY_FRACTION, "kg/kg", 1, 0, 1},
+        /* ppm = µmol/mol and ppmw = mg/kg: 1e-6 by the SI prefix micro (SI brochure) */
+        {STAGECAL_QTY_FRACTION, "ppm", 1e-6, 0, 0},
+        {STAGECAL_QTY_FRACTION, "ppmw", 1e-6, 0, 1},
         {STAGECAL_QTY_FLOW, "kmol/h", 1000.0 / 3600.0, 0, 0},
         {STAGECAL_QTY_FLOW, "kg/h", 1.0 / 3600.0, 0, 1},
         {STAGECAL_QTY_DUTY, "kW", 1000, 0, 0},
@@ -88,6 +91,12 @@ static void units_factors_are_exact(void **state)
     }
     assert_int_equal(stagecal_units_parse(STAGECAL_QTY_FRACTION, "mol%", &u, NULL), 0);
     assert_abs(u.hi, 100, 0, "mol% range");
+    assert_int_equal(stagecal_units_parse(STAGECAL_QTY_FRACTION, "ppm", &u, NULL), 0);
+    assert_abs(u.hi, 1e6, 0, "ppm range: 10^6 ppm is the whole");
+    assert_int_equal(stagecal_units_parse(STAGECAL_QTY_FRACTION, "ppmw", &u, NULL), 0);
+    assert_abs(u.hi, 1e6, 0, "ppmw range");
+    /* ppm is a mole basis: not an amount, ratio or flow */
+    assert_int_equal(stagecal_units_parse(STAGECAL_QTY_AMOUNT, "ppm", &u, NULL), STAGECAL_EINVAL);
     assert_int_equal(stagecal_units_parse(STAGECAL_QTY_TIME, "iso8601", &u, NULL), 0);
     assert_int_equal(u.iso8601, 1);
 }
@@ -97,8 +106,9 @@ static void units_unknown_unit_message(void **state)
     (void)state;
     stagecal_unit u;
     stagecal_error e;
-    assert_int_equal(stagecal_units_parse(STAGECAL_QTY_FRACTION, "ppm", &u, &e), STAGECAL_EINVAL);
-    assert_string_equal(e.text, "unknown unit 'ppm' (expected mol/mol, mol%, kg/kg or wt%)");
+    assert_int_equal(stagecal_units_parse(STAGECAL_QTY_FRACTION, "ppb", &u, &e), STAGECAL_EINVAL);
+    assert_string_equal(e.text,
+                        "unknown unit 'ppb' (expected mol/mol, mol%, ppm, kg/kg, wt% or ppmw)");
     assert_int_equal(stagecal_units_parse(STAGECAL_QTY_TIME, "d", &u, &e), STAGECAL_EINVAL);
     assert_string_equal(e.text, "unknown unit 'd' (expected h, min, s or iso8601)");
     /* kmol is an amount, not a flow */

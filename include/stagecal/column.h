@@ -39,14 +39,17 @@ typedef struct {
     stagecal_vle *vle;             /* owned equilibrium model */
 } stagecal_system;
 
-/* Standard uncertainties of logged signals (0 = not stated). */
+/* Standard uncertainties of logged signals (0 = not stated). A composition reading's
+ * absolute and relative parts combine in quadrature: u² = u_abs² + (u_rel·value)². */
 typedef struct {
-    double xd;      /* distillate mole fraction [-] */
-    double xb;      /* pot mole fraction [-] */
-    double w_mol;   /* pot holdup [mol] */
-    double r;       /* reflux ratio [-], absolute */
-    double r_rel;   /* reflux ratio, relative to R [-] */
-    double v_mol_s; /* boil-up [mol/s] */
+    double xd;           /* distillate mole fraction [-] */
+    double xb;           /* pot mole fraction [-] */
+    double w_mol;        /* pot holdup [mol] */
+    double r;            /* reflux ratio [-], absolute */
+    double r_rel;        /* reflux ratio, relative to R [-] */
+    double v_mol_s;      /* boil-up [mol/s] */
+    double xd_heavy_rel; /* distillate reading, relative to its heavy content 1 − xD [-] */
+    double xb_rel;       /* pot reading, relative to xB [-] */
 } stagecal_uncertainty;
 
 typedef struct {

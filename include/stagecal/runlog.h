@@ -71,8 +71,30 @@ typedef enum {
     STAGECAL_RL_TPOT,
     STAGECAL_RL_RUN,
     STAGECAL_RL_TREFLUX, /* reflux return temperature (subcooled reflux) */
+    STAGECAL_RL_XDH,     /* xD_heavy: heavy component in the distillate (xD = 1 − xD_heavy) */
     STAGECAL_RL_NCOL
 } stagecal_rl_column;
+
+/* ---- readings: value, censoring, uncertainty ---------------------------------------- *
+ * A composition cell is a number, "<v" (below v: a detection limit) or ">v" (above v:
+ * the analyser's full scale). A number exactly at the physical bound (0, or the whole:
+ * 1 mol/mol, 100 %, 10^6 ppm) is censored there: xD = 1 reads "xD at or above 1", xB = 0
+ * reads "xB at or below 0". A censored reading says the analyser's (noisy) reading lay
+ * beyond its limit; it enters a likelihood as P(reading beyond the limit) (a Tobit-type
+ * term, Tobin 1958, "Estimation of relationships for limited dependent variables",
+ * Econometrica 26:24-36), is never `invalid` and never ends a window. */
+typedef enum {
+    STAGECAL_CENSOR_NONE = 0, /* a value */
+    STAGECAL_CENSOR_BELOW,    /* at or below value */
+    STAGECAL_CENSOR_ABOVE     /* at or above value */
+} stagecal_censor;
+
+typedef struct {
+    double value; /* mole fraction of the light component (the limit when censored); NaN
+                     when missing */
+    int censor;   /* stagecal_censor */
+    double u;     /* standard uncertainty of the reading [-] */
+} stagecal_reading;
 
 /* One production run: a contiguous range of rows of one file. */
 typedef struct {
@@ -88,8 +110,11 @@ typedef struct {
     size_t cap;                /* allocated rows */
     double *t_s;               /* time [s] (timestamps: s since 1970 UTC) */
     double *w_mol;             /* pot holdup [mol] */
-    double *xd;                /* distillate mole fraction [-] */
-    double *xb;                /* pot mole fraction [-] */
+    double *xd;                /* distillate mole fraction [-] (the limit when censored; from
+                                  xD_heavy when the log has it) */
+    double *xb;                /* pot mole fraction [-] (the limit when censored) */
+    unsigned char *xd_cens;    /* stagecal_censor of each xD reading */
+    unsigned char *xb_cens;    /* stagecal_censor of each xB reading */
     double *r;                 /* reflux ratio [-], INFINITY = total reflux */
     double *v_mol_s;           /* boil-up [mol/s] (from V, or Q / latent heat); NULL if neither */
     double *p_pa;              /* top pressure [Pa]; NULL when not logged */
@@ -139,6 +164,17 @@ int stagecal_runlog_read_buffer(stagecal_runlog *log, const char *text, size_t l
 int stagecal_runlog_read_stream(stagecal_runlog *log, FILE *in, const char *source,
                                 const stagecal_column *col, const stagecal_runlog_params *params,
                                 stagecal_findings *f, stagecal_error *err);
+
+/* Standard uncertainty of a distillate reading xd: u² = u.xd² + (u.xd_heavy_rel·(1 − xd))²
+ * (the relative part is relative to the heavy content, what a purity analyser reads).
+ * col NULL: 0. */
+double stagecal_runlog_u_xd(const stagecal_column *col, double xd);
+/* Same for a pot reading: u² = u.xb² + (u.xb_rel·xb)². */
+double stagecal_runlog_u_xb(const stagecal_column *col, double xb);
+/* The xD (role STAGECAL_RL_XD) or xB (STAGECAL_RL_XB) reading of a row with its
+ * censoring and uncertainty (col may be NULL: u = 0). */
+stagecal_reading stagecal_runlog_reading(const stagecal_runlog *log, const stagecal_column *col,
+                                         size_t row, int role);
 
 /* ---- analysis ---------------------------------------------------------------------- */
 
@@ -212,10 +248,26 @@ typedef enum {
     STAGECAL_NOTE_NO_DISTILLATE, /* inverted at total reflux: W constant at finite R */
     STAGECAL_NOTE_NO_LOAD,       /* F-factor not available (no V, diameter or temperature) */
     STAGECAL_NOTE_FAILED,        /* the inversion's inner solve failed */
+    STAGECAL_NOTE_AT_LEAST,      /* censored: stages holds a one-sided 95 % lower bound */
+    STAGECAL_NOTE_AT_MOST,       /* censored: stages holds a one-sided 95 % upper bound */
+    STAGECAL_NOTE_OPPOSITE,      /* xD and xB censored in opposite senses: no bound */
+    STAGECAL_NOTE_UNBOUNDED,     /* censored, and the bound is not finite */
     STAGECAL_NOTE_COUNT
 } stagecal_runlog_note;
 
 const char *stagecal_runlog_note_text(int note); /* "", "missing xD", ... */
+
+/* A row's status beyond the stage inversion's four (stagecal_stages_status): a censored
+ * reading bounds the count from one side only (see the note and stages). */
+#define STAGECAL_RUNLOG_CENSORED 4
+#define STAGECAL_RUNLOG_NSTATUS 5
+/* "ok", "pinch", "azeotrope", "invalid", "censored"; "unknown" otherwise. */
+const char *stagecal_runlog_status_name(int status);
+
+/* One-sided 95 % allowance for a censored row: the bound is the stage count at the
+ * compositions moved by this many standard uncertainties each, towards fewer stages for
+ * a lower bound and more for an upper one (the standard normal 0.95 quantile). */
+#define STAGECAL_RUNLOG_BOUND_Z 1.6448536269514722
 
 /* Everything computed for a log; one entry per row (arrays of length n). */
 typedef struct {
@@ -223,9 +275,11 @@ typedef struct {
     unsigned char *flags;  /* STAGECAL_SAMPLE_* */
     int32_t *window;       /* window index or −1 */
     double *xb_rec;        /* reconciled xB (NaN where it cannot be formed; never emitted) */
-    unsigned char *status; /* stagecal_stages_status (INVALID for missing values) */
+    unsigned char *status; /* stagecal_stages_status (INVALID for missing values), or
+                              STAGECAL_RUNLOG_CENSORED */
     unsigned char *note;   /* stagecal_runlog_note */
-    double *stages;        /* stages incl. the pot (0 unless ok) */
+    double *stages;        /* stages incl. the pot (0 unless ok); censored: the one-sided
+                              bound the note names (NaN when there is none) */
     double *u_stages;      /* standard uncertainty of stages (0 unless ok) */
     double *lv;            /* L/V = R/(R+1) (1 at total reflux; NaN when R is missing) */
     double *f_factor;      /* F = u_G·√ρ_G [Pa^0.5]; NaN when not available (note says) */
@@ -233,7 +287,7 @@ typedef struct {
     size_t nwindows;
     stagecal_runlog_closure *closures; /* one per run */
     size_t nruns;
-    size_t count[4]; /* samples per stages status */
+    size_t count[STAGECAL_RUNLOG_NSTATUS]; /* samples per status (4: censored) */
 } stagecal_runlog_result;
 
 /* Flags, windows and closure for every run (no column model needed; u(·) from

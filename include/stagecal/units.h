@@ -11,7 +11,7 @@
  * Accepted units per quantity (case-sensitive, as written here):
  *   time         h, min, s, iso8601 (also "ISO 8601"): timestamps → s since 1970 UTC
  *   amount (W)   kmol, mol, kg, lb
- *   fraction     mol/mol, mol%, kg/kg, wt%
+ *   fraction     mol/mol, mol%, ppm (µmol/mol), kg/kg, wt%, ppmw (mg/kg)
  *   ratio (R)    -, or no brackets at all
  *   flow (V)     kmol/h, mol/s, kg/h
  *   duty (Q)     kW, W, MW (needs a latent heat to become a boil-up)
@@ -48,7 +48,8 @@ typedef struct {
     double offset;         /* additive part (°C → K), 0 otherwise */
     int mass;              /* 1: mass basis, needs molar masses to become moles */
     int iso8601;           /* 1: time given as ISO 8601 timestamps (scale 1, offset 0) */
-    double lo, hi;         /* valid range of the logged number (fractions: [0, 1] or [0, 100];
+    double lo, hi;         /* valid range of the logged number (fractions: [0, 1], [0, 100] or
+                              [0, 1e6];
                               others: lo = 0 or -inf, hi = +inf) */
     char text[24];         /* the unit as written ("" when there were no brackets) */
 } stagecal_unit;
@@ -61,7 +62,7 @@ int stagecal_units_split(const char *cell, char *name, size_t name_len, char *un
                          int *has_unit, stagecal_error *err);
 
 /* Looks up unit text for a quantity. EINVAL with message
- * "unknown unit 'ppm' (expected mol/mol, mol%, kg/kg or wt%)" when not accepted. */
+ * "unknown unit 'ppb' (expected mol/mol, mol%, ppm, kg/kg, wt% or ppmw)" when not accepted. */
 int stagecal_units_parse(stagecal_quantity qty, const char *text, stagecal_unit *u,
                          stagecal_error *err);
 

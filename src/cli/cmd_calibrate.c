@@ -495,12 +495,13 @@ int cmd_calibrate(int argc, char **argv)
                             fit_json(&cal.comp_fit, cal.comp_status, cal.comp_message));
         json_object_set_new(
             doc, "evidence",
-            json_pack("{s:I,s:I,s:I,s:I,s:I,s:I,s:I}", "samples", (json_int_t)cal.log->n, "runs",
-                      (json_int_t)cal.log->nruns, "windows", (json_int_t)cal.evidence.n,
+            json_pack("{s:I,s:I,s:I,s:I,s:I,s:I,s:I,s:I}", "samples", (json_int_t)cal.log->n,
+                      "runs", (json_int_t)cal.log->nruns, "windows", (json_int_t)cal.evidence.n,
                       "windows_with_stages", (json_int_t)cal.nev_stage, "samples_in_fit",
                       (json_int_t)mo->n_samples, "pinch_samples",
                       (json_int_t)cal.res.count[STAGECAL_STAGES_PINCH], "azeotrope_samples",
-                      (json_int_t)cal.res.count[STAGECAL_STAGES_AZEOTROPE]));
+                      (json_int_t)cal.res.count[STAGECAL_STAGES_AZEOTROPE], "censored_samples",
+                      (json_int_t)cal.res.count[STAGECAL_RUNLOG_CENSORED]));
         json_object_set_new(doc, "envelope",
                             json_pack("{s:o,s:o,s:o,s:o}", "r_min", cli_json_reflux(mo->r_min),
                                       "r_max", cli_json_reflux(mo->r_max), "f_min",
@@ -535,8 +536,9 @@ int cmd_calibrate(int argc, char **argv)
         printf("evidence: %zu samples in %zu runs from %zu log(s); %zu quasi-steady windows "
                "(%zu with stage counts) carry the fit\n",
                cal.log->n, cal.log->nruns, nlogs, cal.evidence.n, cal.nev_stage);
-        printf("per-sample status: %zu ok, %zu pinch, %zu azeotrope, %zu invalid\n",
-               cal.res.count[0], cal.res.count[1], cal.res.count[2], cal.res.count[3]);
+        printf("per-sample status: %zu ok, %zu pinch, %zu azeotrope, %zu invalid, %zu censored\n",
+               cal.res.count[0], cal.res.count[1], cal.res.count[2], cal.res.count[3],
+               cal.res.count[STAGECAL_RUNLOG_CENSORED]);
         if (cal.nrank > 0) {
             printf("forms ranked by AICc (stage space):");
             for (size_t i = 0; i < cal.nrank && i < 4; i++)

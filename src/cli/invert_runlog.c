@@ -83,8 +83,8 @@ static json_t *summary_json(const stagecal_runlog *log, const stagecal_column *c
     json_object_set_new(doc, "rows", json_integer((json_int_t)log->n));
     json_object_set_new(doc, "out", out_path ? json_string(out_path) : json_null());
     json_t *cnt = json_object();
-    for (int s = 0; s < 4; s++)
-        json_object_set_new(cnt, stagecal_stages_status_name(s),
+    for (int s = 0; s < STAGECAL_RUNLOG_NSTATUS; s++)
+        json_object_set_new(cnt, stagecal_runlog_status_name(s),
                             json_integer((json_int_t)res->count[s]));
     json_object_set_new(doc, "status_counts", cnt);
     json_object_set_new(doc, "validation",
@@ -269,10 +269,10 @@ int invert_runlog(int argc, char **argv)
     if (json) {
         rc = cli_json_print(summary_json(log, &col, &res, &ev, f, out_path, murphree));
     } else if (out_path && strcmp(out_path, "-") != 0) {
-        printf("%zu rows: %zu ok, %zu pinch, %zu azeotrope, %zu invalid; %zu quasi-steady "
-               "windows; written to %s\n",
-               log->n, res.count[0], res.count[1], res.count[2], res.count[3], res.nwindows,
-               out_path);
+        printf("%zu rows: %zu ok, %zu pinch, %zu azeotrope, %zu invalid, %zu censored (one-sided "
+               "bounds in stages_low/stages_high); %zu quasi-steady windows; written to %s\n",
+               log->n, res.count[0], res.count[1], res.count[2], res.count[3],
+               res.count[STAGECAL_RUNLOG_CENSORED], res.nwindows, out_path);
     }
 done:
     stagecal_evidence_set_free(&ev);

@@ -42,9 +42,9 @@ check_exit missing-column-file 66 "$bin" check --column "$tmp/nope.json" "$tmp/g
 check_exit out-of-range 65 "$bin" check "$tmp/range.csv"
 check_line out-of-range "$tmp/range.csv:3: column 'xB[mol/mol]': value '1.3' outside [0, 1]" "$tmp/out"
 check_exit missing-column 65 "$bin" check "$tmp/nocol.csv"
-check_line missing-column "$tmp/nocol.csv:1: missing column 'R' (required: time, W, xD, xB, R)" "$tmp/out"
+check_line missing-column "$tmp/nocol.csv:1: missing column 'R' (required: time, W, xD or xD_heavy, xB, R)" "$tmp/out"
 check_exit warning-only 0 "$bin" check "$tmp/warn.csv"
-check_line warning-only "warning: $tmp/warn.csv:1: unknown column 'foo' ignored (expected time, W, xD, xB, R, V, Q, P, T_top, T_pot, T_reflux or run)" "$tmp/out"
+check_line warning-only "warning: $tmp/warn.csv:1: unknown column 'foo' ignored (expected time, W, xD, xD_heavy, xB, R, V, Q, P, T_top, T_pot, T_reflux or run)" "$tmp/out"
 check_exit too-few-rows 65 "$bin" check --min-rows 6 "$tmp/good.csv"
 check_line too-few-rows "$tmp/good.csv:2: run '$tmp/good.csv' has 5 rows (expected at least 6)" "$tmp/out"
 # errors in one file, a missing other: the missing input wins (66)

@@ -1,0 +1,116 @@
+/*
+ * runlog_reading.c — composition readings of a run log: the cell syntax (a number,
+ * "<v", ">v"), censoring at the physical bound, and each reading's standard
+ * uncertainty u² = u_abs² + (u_rel·c)² (see stagecal/runlog.h, docs/runlog.md).
+ */
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "runlog_internal.h"
+
+int runlog_parse_number(const char *s, int allow_inf, double *v)
+{
+    if (allow_inf && (strcmp(s, "inf") == 0 || strcmp(s, "Inf") == 0 || strcmp(s, "INF") == 0 ||
+                      strcmp(s, "infinity") == 0)) {
+        *v = INFINITY;
+        return 0;
+    }
+    char *end;
+    /* decimal only: strtod would also take hexadecimal floats ("0x1p-1") */
+    if (strpbrk(s, "xX"))
+        return -1;
+    errno = 0;
+    double x = strtod(s, &end);
+    if (end == s || *end != '\0' || errno == ERANGE || !isfinite(x))
+        return -1;
+    *v = x;
+    return 0;
+}
+
+int runlog_parse_fraction(const char *s, const stagecal_unit *u, double *v, int *censor, char *why,
+                          size_t why_len)
+{
+    int c = STAGECAL_CENSOR_NONE;
+    const char *num = s;
+    if (*s == '<' || *s == '>') {
+        c = *s == '<' ? STAGECAL_CENSOR_BELOW : STAGECAL_CENSOR_ABOVE;
+        num = s + 1;
+    }
+    double x;
+    if (runlog_parse_number(num, 0, &x) != 0) {
+        if (c == STAGECAL_CENSOR_NONE)
+            snprintf(why, why_len, "value '%s' is not a number", s);
+        else
+            snprintf(why, why_len,
+                     "value '%s' is not a censored reading (expected <v or >v with v a number "
+                     "in [0, %g])",
+                     s, u->hi);
+        return -1;
+    }
+    if (!(x >= u->lo && x <= u->hi)) {
+        snprintf(why, why_len, "value '%s' outside [0, %g]", s, u->hi);
+        return -1;
+    }
+    if (c == STAGECAL_CENSOR_BELOW && x == u->lo) {
+        snprintf(why, why_len,
+                 "value '%s' is below the physical bound 0 (no reading can be; expected <v with "
+                 "v > 0)",
+                 s);
+        return -1;
+    }
+    if (c == STAGECAL_CENSOR_ABOVE && x == u->hi) {
+        snprintf(why, why_len,
+                 "value '%s' is above the physical bound %g (no reading can be; expected >v with "
+                 "v < %g)",
+                 s, u->hi, u->hi);
+        return -1;
+    }
+    /* a reading exactly at the physical bound is censored there */
+    if (c == STAGECAL_CENSOR_NONE && x == u->lo)
+        c = STAGECAL_CENSOR_BELOW;
+    else if (c == STAGECAL_CENSOR_NONE && x == u->hi)
+        c = STAGECAL_CENSOR_ABOVE;
+    *v = x;
+    *censor = c;
+    return 0;
+}
+
+void runlog_reading_range(double v, int censor, double *lo, double *hi)
+{
+    *lo = censor == STAGECAL_CENSOR_BELOW ? 0.0 : v;
+    *hi = censor == STAGECAL_CENSOR_ABOVE ? 1.0 : v;
+}
+
+double stagecal_runlog_u_xd(const stagecal_column *col, double xd)
+{
+    if (!col)
+        return 0.0;
+    double rel = col->u.xd_heavy_rel * (1.0 - xd);
+    return sqrt(col->u.xd * col->u.xd + rel * rel);
+}
+
+double stagecal_runlog_u_xb(const stagecal_column *col, double xb)
+{
+    if (!col)
+        return 0.0;
+    double rel = col->u.xb_rel * xb;
+    return sqrt(col->u.xb * col->u.xb + rel * rel);
+}
+
+stagecal_reading stagecal_runlog_reading(const stagecal_runlog *log, const stagecal_column *col,
+                                         size_t row, int role)
+{
+    stagecal_reading r = {NAN, STAGECAL_CENSOR_NONE, 0.0};
+    if (row >= log->n || (role != STAGECAL_RL_XD && role != STAGECAL_RL_XB))
+        return r;
+    int xd = role == STAGECAL_RL_XD;
+    r.value = xd ? log->xd[row] : log->xb[row];
+    const unsigned char *cens = xd ? log->xd_cens : log->xb_cens;
+    r.censor = cens ? cens[row] : STAGECAL_CENSOR_NONE;
+    if (!isnan(r.value))
+        r.u = xd ? stagecal_runlog_u_xd(col, r.value) : stagecal_runlog_u_xb(col, r.value);
+    return r;
+}
