@@ -120,8 +120,10 @@ int main(int argc, char **argv)
     /* per-trial values for medians */
     double *v_before = calloc(trials, sizeof(double)), *v_exp = calloc(trials, sizeof(double));
     double *v_ach = calloc(trials, sizeof(double)), *v_base = calloc(trials, sizeof(double));
-    double *v_ratio = calloc(trials, sizeof(double));
-    if (!v_before || !v_exp || !v_ach || !v_base || !v_ratio)
+    double *v_ratio = calloc(trials, sizeof(double)),
+           *v_ratio_base = calloc(trials, sizeof(double));
+    size_t n_base = 0;
+    if (!v_before || !v_exp || !v_ach || !v_base || !v_ratio || !v_ratio_base)
         return 1;
 
     for (size_t tr = 0; tr < trials; tr++) {
@@ -193,6 +195,18 @@ int main(int argc, char **argv)
                 }
             }
             double ratio = ach / exp_after;
+            /* the same expectation for the comparison design (K windows at R = 4.5) */
+            stagecal_design_test common[K];
+            stagecal_design_result ev;
+            stagecal_design_at eo[NAT];
+            for (size_t k = 0; k < K; k++)
+                common[k] = (stagecal_design_test){4.5, 1.3, 0};
+            if (!stagecal_design_evaluate(&pb, common, K, at, NAT, par.criterion, &ev, eo, NULL)) {
+                double e2 = 0;
+                for (size_t j = 0; j < NAT; j++)
+                    e2 += eo[j].half_after / NAT;
+                v_ratio_base[n_base++] = base / e2;
+            }
             v_before[done] = before;
             v_exp[done] = exp_after;
             v_ach[done] = ach;
@@ -230,6 +244,7 @@ int main(int argc, char **argv)
     gsl_sort(v_ach, 1, done);
     gsl_sort(v_base, 1, done);
     gsl_sort(v_ratio, 1, done);
+    gsl_sort(v_ratio_base, 1, n_base);
     printf("design study: form %s, criterion %s, %zu trials (%zu completed, %zu failed fits), "
            "seed %lu\n",
            form.name, crit_d ? "D" : "I", trials, done, failed, seed);
@@ -256,6 +271,11 @@ int main(int argc, char **argv)
            sum_ratio / nd, gsl_stats_median_from_sorted_data(v_ratio, 1, done),
            gsl_stats_quantile_from_sorted_data(v_ratio, 1, done, 0.05),
            gsl_stats_quantile_from_sorted_data(v_ratio, 1, done, 0.95));
+    if (n_base)
+        printf("  the same for K at R = 4.5: median %.3f, 5-95 %% %.3f-%.3f (%zu trials)\n",
+               gsl_stats_median_from_sorted_data(v_ratio_base, 1, n_base),
+               gsl_stats_quantile_from_sorted_data(v_ratio_base, 1, n_base, 0.05),
+               gsl_stats_quantile_from_sorted_data(v_ratio_base, 1, n_base, 0.95), n_base);
     printf("  |achieved/expected - 1|, mean               %.3f\n", sum_absdev / nd);
     printf("  |achieved/expected - 1| <= 0.2              %.1f %% of trials\n",
            100.0 * (double)within20 / nd);
@@ -269,5 +289,6 @@ int main(int argc, char **argv)
     free(v_ach);
     free(v_base);
     free(v_ratio);
+    free(v_ratio_base);
     return 0;
 }
