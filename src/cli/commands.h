@@ -11,6 +11,7 @@ int invert_runlog_wanted(int argc, char **argv);
 int invert_runlog(int argc, char **argv);
 int cmd_calibrate(int argc, char **argv);
 int cmd_regress(int argc, char **argv);
+int cmd_fits(int argc, char **argv);
 int cmd_hetp(int argc, char **argv);
 int cmd_history(int argc, char **argv);
 int cmd_trend(int argc, char **argv);

@@ -29,6 +29,7 @@ static const struct command commands[] = {
     {"calibrate", cmd_calibrate, "run logs in, stages(R, F) with bands out, as a model file"},
     {"invert", cmd_invert, "effective stages from xD, xB and R (or every row of a run log)"},
     {"regress", cmd_regress, "fit stages against R (and F) with bands, from a points file"},
+    {"fits", cmd_fits, "a column's fits by data period and label; label and retire them"},
     {"hetp", cmd_hetp, "HETP (or tray efficiency) with an interval; before/after a repack"},
     {"history", cmd_history, "one fit over months of logs: loss rate, stages now, crossing date"},
     {"trend", cmd_trend, "stages over months: trend, EWMA alarms, forecast; fleet rows"},
