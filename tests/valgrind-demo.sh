@@ -49,9 +49,13 @@ run calibrate "$S" calibrate --quiet --column $COL --fits "$work/fits" --report 
 for m in 2025-04 2025-08 2025-11; do
     run "calibrate-$m" "$S" calibrate --quiet --form saturating --column $COL --fits "$work/fits" $L/$m.csv
 done
-model=$(grep -l "logs/2025-03.csv" "$work"/fits/demo-bt-K-7/*.json)
-m08=$(grep -l 'logs/2025-08.csv' "$work"/fits/demo-bt-K-7/*.json)
-m11=$(grep -l 'logs/2025-11.csv' "$work"/fits/demo-bt-K-7/*.json)
+model=$("$S" fits find demo-bt-K-7 2025-01-06..2025-03-31 --fits "$work/fits")
+m08=$("$S" fits find demo-bt-K-7 2025-08 --fits "$work/fits")
+m11=$("$S" fits find demo-bt-K-7 2025-11 --fits "$work/fits")
+run fits-list "$S" fits list demo-bt-K-7 --fits "$work/fits" --events datasets/demo/events.csv
+run fits-label "$S" fits label demo-bt-K-7 2025-08 august --fits "$work/fits"
+run history "$S" history --column $COL $L/2025-08.csv $L/2025-09.csv $L/2025-11.csv $L/2025-12.csv \
+    --events datasets/demo/events.csv --reflux 3 --f-factor 1.3 --require 7.5 --design-hetp 0.6 --json
 run trend "$S" trend demo-bt-K-7 --fits "$work/fits" --events datasets/demo/events.csv --reflux 3 --fload 1.3 --require 7.5
 run hetp "$S" hetp "$m08" "$m11" --reflux 3 --fload 1.3
 run predict "$S" predict --model "$m11" --charge 25 --xb0 0.5 --boilup 3.6 --reflux 3 --cut pot-x=0.15 --samples 20
