@@ -7,7 +7,7 @@
  * UTC) or "COLUMN@FIRST..LAST#LABEL" when it carries a label; a fit without a data
  * period (logs with relative times) is "COLUMN@fitted-DAY". The model file keeps the
  * name the writer gave it (the time of fit); the catalogue file fits/COLUMN/catalogue
- * (JSON, docs/model-file.md "Catalogue") holds labels and retirements by file name and
+ * (JSON, docs/cli.md "fits") holds labels and retirements by file name and
  * is replaced atomically. Retired fits are listed but never found or trended.
  */
 #ifndef STAGECAL_FITS_H
