@@ -37,25 +37,6 @@ stagecal_history_params stagecal_history_default_params(void)
     return p;
 }
 
-size_t stagecal_history_points_from_evidence(const stagecal_evidence_set *set,
-                                             stagecal_history_point *out)
-{
-    size_t m = 0;
-    for (size_t i = 0; i < set->n; i++) {
-        const stagecal_evidence *e = &set->ev[i];
-        if (!e->stages_ok || !(e->se_stages > 0) || !isfinite(e->t_mid_s))
-            continue;
-        stagecal_history_point *p = &out[m++];
-        p->t_s = e->t_mid_s;
-        p->run = (long)e->run;
-        p->r = e->r;
-        p->f_load = e->has_load ? e->f_load : NAN;
-        p->stages = e->stages;
-        p->se = e->se_stages;
-    }
-    return m;
-}
-
 void stagecal_history_free(stagecal_history_fit *fit)
 {
     if (!fit)
@@ -71,27 +52,6 @@ void stagecal_history_free(stagecal_history_fit *fit)
         free(fit->work);
     }
     memset(fit, 0, sizeof *fit);
-}
-
-int stagecal_history_check(stagecal_history_estimate *e, double lo_phys, double hi_phys,
-                           const char *what)
-{
-    if (!e->determined && e->reason[0])
-        return 0;
-    e->determined = 0;
-    if (!(e->dof >= 2))
-        snprintf(e->reason, sizeof e->reason,
-                 "%s not determined: %.0f degree(s) of freedom (at least 2 needed)", what, e->dof);
-    else if (!(isfinite(e->low) && isfinite(e->high) && isfinite(e->se)))
-        snprintf(e->reason, sizeof e->reason, "%s not determined: the evidence does not bound it",
-                 what);
-    else if (e->low < lo_phys || e->high > hi_phys)
-        snprintf(e->reason, sizeof e->reason,
-                 "%s not determined: its interval [%.3g, %.3g] is wider than the physical range",
-                 what, e->low, e->high);
-    else
-        e->determined = 1, e->reason[0] = '\0';
-    return e->determined;
 }
 
 /* ---- the problem ------------------------------------------------------------------- */

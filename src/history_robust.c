@@ -2,7 +2,8 @@
  * history_robust.c — the history fit's cluster-robust covariance: the bread (J'WJ)^−1,
  * the moment estimate of the excess variance, the CR2 sandwich over runs (Bell &
  * McCaffrey 2002) and the Bell–McCaffrey degrees of freedom of a contrast in the form
- * of Imbens & Kolesár (2016). Sources and the model: include/stagecal/history.h.
+ * of Imbens & Kolesár (2016); also the honesty check of an estimate and the conversion of
+ * the evidence module's windows. Sources and the model: include/stagecal/history.h.
  *
  * Workload: m windows (tens to a few hundred), P parameters (under 20), G runs (tens);
  * the dof of one contrast builds an m×G matrix, so a few hundred kB at most.
@@ -12,9 +13,11 @@
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_linalg.h>
 #include <math.h>
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
+#include "stagecal/history.h"
 #include "history_internal.h"
 #include "internal.h"
 
@@ -221,4 +224,44 @@ double history_bm_dof(const struct stagecal_history_work *wk, const double *c)
     free(gm);
     double dof = tr2 > 0 ? tr * tr / tr2 : 0;
     return fmin(dof, (double)G - 1);
+}
+
+int stagecal_history_check(stagecal_history_estimate *e, double lo_phys, double hi_phys,
+                           const char *what)
+{
+    if (!e->determined && e->reason[0])
+        return 0;
+    e->determined = 0;
+    if (!(e->dof >= 2))
+        snprintf(e->reason, sizeof e->reason,
+                 "%s not determined: %.0f degree(s) of freedom (at least 2 needed)", what, e->dof);
+    else if (!(isfinite(e->low) && isfinite(e->high) && isfinite(e->se)))
+        snprintf(e->reason, sizeof e->reason, "%s not determined: the evidence does not bound it",
+                 what);
+    else if (e->low < lo_phys || e->high > hi_phys)
+        snprintf(e->reason, sizeof e->reason,
+                 "%s not determined: its interval [%.3g, %.3g] is wider than the physical range",
+                 what, e->low, e->high);
+    else
+        e->determined = 1, e->reason[0] = '\0';
+    return e->determined;
+}
+
+size_t stagecal_history_points_from_evidence(const stagecal_evidence_set *set,
+                                             stagecal_history_point *out)
+{
+    size_t m = 0;
+    for (size_t i = 0; i < set->n; i++) {
+        const stagecal_evidence *e = &set->ev[i];
+        if (!e->stages_ok || !(e->se_stages > 0) || !isfinite(e->t_mid_s))
+            continue;
+        stagecal_history_point *p = &out[m++];
+        p->t_s = e->t_mid_s;
+        p->run = (long)e->run;
+        p->r = e->r;
+        p->f_load = e->has_load ? e->f_load : NAN;
+        p->stages = e->stages;
+        p->se = e->se_stages;
+    }
+    return m;
 }
