@@ -213,7 +213,9 @@ int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *co
         double p = log->p_pa && isfinite(log->p_pa[i]) ? log->p_pa[i] : sys->p_pa;
         double t = log->t_top_k ? log->t_top_k[i] : NAN;
         double xd = log->xd[i];
-        if (isnan(t) && isfinite(xd) && stagecal_vle_tbubble(sys->vle, xd, &t) != STAGECAL_OK)
+        /* the bubble point (a root solve for activity models) only when it can be used */
+        if (isnan(t) && isfinite(xd) && isfinite(v) && have_m &&
+            stagecal_vle_tbubble(sys->vle, xd, &t) != STAGECAL_OK)
             t = NAN;
         double f;
         if (have_m && isfinite(xd) &&
