@@ -407,8 +407,12 @@ int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double
 {
     if (!vle || !res)
         return error_set(err, STAGECAL_EINVAL, "stages_invert: %s is NULL", vle ? "res" : "vle");
-    stagecal_stages_params def = stagecal_stages_default_params();
-    const stagecal_stages_params *par = params ? params : &def;
+    stagecal_stages_params def;
+    const stagecal_stages_params *par = params;
+    if (!par) { /* the defaults are built only when asked for (hot path) */
+        def = stagecal_stages_default_params();
+        par = &def;
+    }
     int want = par->want_sensitivities;
     tl3 tl;
     int rc = invert_core(vle, xd, xb, reflux, murphree, par, res, want == 1 ? &tl : NULL, err);

@@ -230,8 +230,12 @@ int stagecal_stages_step(const stagecal_vle *vle, double xd, double reflux, doub
 {
     if (!vle || !xb || !len || !status)
         return error_set(err, STAGECAL_EINVAL, "stages_step: a required pointer is NULL");
-    stagecal_stages_params def = stagecal_stages_default_params();
-    const stagecal_stages_params *par = params ? params : &def;
+    stagecal_stages_params def;
+    const stagecal_stages_params *par = params;
+    if (!par) { /* the defaults are built only when asked for (hot path) */
+        def = stagecal_stages_default_params();
+        par = &def;
+    }
     double x_max = stagecal_vle_x_max(vle);
     *xb = 0.0;
     *len = 0;
