@@ -40,15 +40,11 @@ def smoker_consts(alpha, m, b):
     return k, beta, lna
 
 
-def invert(alpha, xd, xb, r):
-    """Stages (pot included) for every row; NaN where not ok (pinch, invalid)."""
-    m = r / (r + 1.0)
-    b = xd / (r + 1.0)
-    ypot = alpha * xb / (1.0 + (alpha - 1.0) * xb)
-    xt = (ypot - b) / m
-    k, beta, lna = smoker_consts(alpha, m, b)
+def step_rows(xd, xt, m, b, ok, xstar, fraction):
+    """Vectorised stepping of the rows `ok` from xD down past x_target: stages (pot
+    included) per row, NaN elsewhere. xstar(y) is the equilibrium liquid; fraction(j, xp,
+    xn, yn) Smoker's fraction of the crossing step of rows j (from xp to x_target)."""
     out = np.full(xd.shape, np.nan)
-    ok = (xb > 0) & (xb < xd) & (xd < 1) & (r > 0) & (xt > k)
     out[ok & (xt >= xd)] = 1.0
     idx = np.flatnonzero(ok & (xt < xd))
     x = xd[idx]
@@ -56,17 +52,48 @@ def invert(alpha, xd, xb, r):
     while idx.size and n < MAX_STEPS:
         n += 1
         y = m[idx] * x + b[idx]
-        xn = y / (y + alpha * (1.0 - y))
+        xn = xstar(y)
         done = xn <= xt[idx]
         if done.any():
-            j = idx[done]
-            u0 = 1.0 / (x[done] - k[j])
-            ut = 1.0 / (xt[j] - k[j])
-            f = np.log((ut - beta[j]) / (u0 - beta[j])) / lna[j]
-            out[j] = n + np.clip(f, 0.0, 1.0)  # (n - 1) whole + fraction + the pot
-        keep = ~done
+            f = fraction(idx[done], x[done], xn[done], y[done])
+            out[idx[done]] = n + np.clip(f, 0.0, 1.0)  # (n - 1) whole + fraction + the pot
+        keep = ~done & (xn < x)  # no progress: a pinch
         idx, x = idx[keep], xn[keep]
     return out
+
+
+def invert(alpha, xd, xb, r):
+    """Stages (pot included) for every row; NaN where not ok (pinch, invalid)."""
+    m = r / (r + 1.0)
+    b = xd / (r + 1.0)
+    ypot = alpha * xb / (1.0 + (alpha - 1.0) * xb)
+    xt = (ypot - b) / m
+    k, beta, lna = smoker_consts(alpha, m, b)
+    ok = (xb > 0) & (xb < xd) & (xd < 1) & (r > 0) & (xt > k)
+
+    def fraction(j, xp, _xn, _yn):
+        return np.log((1.0 / (xt[j] - k[j]) - beta[j]) / (1.0 / (xp - k[j]) - beta[j])) / lna[j]
+
+    return step_rows(xd, xt, m, b, ok, lambda y: y / (y + alpha * (1.0 - y)), fraction)
+
+
+def read_log(path):
+    """run, t, xD, xB, R of a log with columns run,time,W,xD,xB,R,... (tests/bench_invert.c)."""
+    t, xd, xb, r = np.loadtxt(path, delimiter=",", skiprows=1, usecols=(1, 3, 4, 5), unpack=True)
+    run = np.loadtxt(path, delimiter=",", skiprows=1, usecols=(0,), dtype=str)
+    return run, t, xd, xb, r
+
+
+def stages_and_u(inv, xd, xb, r, u_xd, u_xb, u_r2):
+    """Stages and u(N) by central differences of inv(xd, xb, r) (six more inversions)."""
+    n0 = inv(xd, xb, r)
+    hd = H_REL * np.minimum(xd, 1 - xd)
+    hb = H_REL * np.minimum(xb, 1 - xb)
+    hr = H_REL * r
+    d_xd = (inv(xd + hd, xb, r) - inv(xd - hd, xb, r)) / (2 * hd)
+    d_xb = (inv(xd, xb + hb, r) - inv(xd, xb - hb, r)) / (2 * hb)
+    d_r = (inv(xd, xb, r + hr) - inv(xd, xb, r - hr)) / (2 * hr)
+    return n0, np.sqrt((d_xd * u_xd) ** 2 + (d_xb * u_xb) ** 2 + d_r ** 2 * u_r2)
 
 
 def write_rows(path, run, t, n, u, status, lv):
@@ -84,27 +111,21 @@ def main():
     if len(sys.argv) < 3:
         sys.exit("usage: invert_alpha.py LOG.csv OUT.csv [ALPHA]")
     alpha = float(sys.argv[3]) if len(sys.argv) > 3 else 2.5
+    run_peer("alpha", lambda a, b, c: invert(alpha, a, b, c), U_XD, U_XB, lambda r: (U_RREL * r) ** 2)
+
+
+def run_peer(name, inv, u_xd, u_xb, u_r2, setup=0.0):
+    """The whole job on LOG.csv (argv[1]) into OUT.csv (argv[2]), CPU times on stderr."""
     c0 = time.process_time()
-    t, xd, xb, r = np.loadtxt(sys.argv[1], delimiter=",", skiprows=1, usecols=(1, 3, 4, 5),
-                              unpack=True)
-    run = np.loadtxt(sys.argv[1], delimiter=",", skiprows=1, usecols=(0,), dtype=str)
+    run, t, xd, xb, r = read_log(sys.argv[1])
     c1 = time.process_time()
-    n0 = invert(alpha, xd, xb, r)
-    hd = H_REL * np.minimum(xd, 1 - xd)
-    hb = H_REL * np.minimum(xb, 1 - xb)
-    hr = H_REL * r
-    d_xd = (invert(alpha, xd + hd, xb, r) - invert(alpha, xd - hd, xb, r)) / (2 * hd)
-    d_xb = (invert(alpha, xd, xb + hb, r) - invert(alpha, xd, xb - hb, r)) / (2 * hb)
-    d_r = (invert(alpha, xd, xb, r + hr) - invert(alpha, xd, xb, r - hr)) / (2 * hr)
-    u = np.sqrt((d_xd * U_XD) ** 2 + (d_xb * U_XB) ** 2 + (d_r * U_RREL * r) ** 2)
-    lv = r / (r + 1.0)
+    n0, u = stages_and_u(inv, xd, xb, r, u_xd, u_xb, u_r2(r))
     c2 = time.process_time()
     ok = np.isfinite(n0)
-    write_rows(sys.argv[2], run, t, n0, u, np.where(ok, "ok", "not-ok"), lv)
+    write_rows(sys.argv[2], run, t, n0, u, np.where(ok, "ok", "not-ok"), r / (r + 1.0))
     c3 = time.process_time()
-    print(f"numpy alpha peer: {xd.size} rows ({ok.sum()} ok); CPU read {c1 - c0:.3f} s, "
-          f"compute {c2 - c1:.3f} s, write {c3 - c2:.3f} s", file=sys.stderr)
-
+    print(f"numpy {name} peer: {xd.size} rows ({ok.sum()} ok); CPU table {setup:.3f} s, read "
+          f"{c1 - c0:.3f} s, compute {c2 - c1:.3f} s, write {c3 - c2:.3f} s", file=sys.stderr)
 
 if __name__ == "__main__":
     main()

@@ -21,7 +21,7 @@ import time
 
 import numpy as np
 
-from invert_alpha import H_REL, MAX_STEPS, smoker_consts, write_rows
+from invert_alpha import run_peer, smoker_consts, step_rows
 
 P_PA = 101325.0
 ANT = ((5.24677, 1598.673, -46.424), (5.08354, 1663.125, -45.622))
@@ -74,29 +74,16 @@ def invert(tab, xd, xb, r):
         m = np.where(np.isinf(r), 1.0, r / (r + 1.0))
         b = np.where(np.isinf(r), 0.0, xd / (r + 1.0))
         xt = (np.interp(xb, xs, ys) - b) / m
-        out = np.full(xd.shape, np.nan)
         ok = (xb > 0) & (xb < xd) & (xd < x_az) & (r > 0) & (xt > 0)
         ok &= np.interp(xt, xs, ys) > m * xt + b  # no pinch at x_target
-        out[ok & (xt >= xd)] = 1.0
-        idx = np.flatnonzero(ok & (xt < xd))
-        x = xd[idx]
-        n = 0
-        while idx.size and n < MAX_STEPS:
-            n += 1
-            y = m[idx] * x + b[idx]
-            xn = np.interp(y, ys, xs)
-            done = xn <= xt[idx]
-            if done.any():
-                j, xp, xq, yq = idx[done], x[done], xn[done], y[done]
-                alpha = yq * (1.0 - xq) / (xq * (1.0 - yq))
-                k, beta, lna = smoker_consts(alpha, m[j], b[j])
-                f = np.log((1.0 / (xt[j] - k) - beta) / (1.0 / (xp - k) - beta)) / lna
-                lin = (xp - xt[j]) / (xp - xq)
-                f = np.where(np.isfinite(f), f, lin)
-                out[j] = n + np.clip(f, 0.0, 1.0)
-            keep = ~done & (xn < x)  # no progress: pinch
-            idx, x = idx[keep], xn[keep]
-    return out
+
+        def fraction(j, xp, xq, yq):
+            alpha = yq * (1.0 - xq) / (xq * (1.0 - yq))  # local relative volatility
+            k, beta, lna = smoker_consts(alpha, m[j], b[j])
+            f = np.log((1.0 / (xt[j] - k) - beta) / (1.0 / (xp - k) - beta)) / lna
+            return np.where(np.isfinite(f), f, (xp - xt[j]) / (xp - xq))
+
+        return step_rows(xd, xt, m, b, ok, lambda y: np.interp(y, ys, xs), fraction)
 
 
 def main():
@@ -104,29 +91,8 @@ def main():
         sys.exit("usage: invert_nrtl.py LOG.csv OUT.csv")
     c0 = time.process_time()
     tab = tabulate()
-    c1 = time.process_time()
-    t, xd, xb, r = np.loadtxt(sys.argv[1], delimiter=",", skiprows=1, usecols=(1, 3, 4, 5),
-                              unpack=True)
-    run = np.loadtxt(sys.argv[1], delimiter=",", skiprows=1, usecols=(0,), dtype=str)
-    c2 = time.process_time()
-    n0 = invert(tab, xd, xb, r)
-    hd = H_REL * np.minimum(xd, 1 - xd)
-    hb = H_REL * np.minimum(xb, 1 - xb)
-    hr = H_REL * r
-    d_xd = (invert(tab, xd + hd, xb, r) - invert(tab, xd - hd, xb, r)) / (2 * hd)
-    d_xb = (invert(tab, xd, xb + hb, r) - invert(tab, xd, xb - hb, r)) / (2 * hb)
-    d_r = (invert(tab, xd, xb, r + hr) - invert(tab, xd, xb, r - hr)) / (2 * hr)
-    u_r2 = U_R ** 2 + (U_RREL * r) ** 2
-    u = np.sqrt((d_xd * U_XD) ** 2 + (d_xb * U_XB) ** 2 + d_r ** 2 * u_r2)
-    lv = r / (r + 1.0)
-    c3 = time.process_time()
-    ok = np.isfinite(n0)
-    write_rows(sys.argv[2], run, t, n0, u, np.where(ok, "ok", "not-ok"), lv)
-    c4 = time.process_time()
-    print(f"numpy nrtl peer: {xd.size} rows ({ok.sum()} ok); CPU table {c1 - c0:.3f} s, "
-          f"read {c2 - c1:.3f} s, compute {c3 - c2:.3f} s, write {c4 - c3:.3f} s",
-          file=sys.stderr)
-
+    run_peer("nrtl", lambda a, b, c: invert(tab, a, b, c), U_XD, U_XB,
+             lambda r: U_R ** 2 + (U_RREL * r) ** 2, time.process_time() - c0)
 
 if __name__ == "__main__":
     main()
