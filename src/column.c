@@ -4,8 +4,9 @@
  * The file names the unit of every quantity in its key (height_m, pressure_pa,
  * molar_mass_kg_mol, ...) and stores SI, so reading converts nothing; plausibility
  * checks catch the usual unit slips (g/mol in a kg/mol field, kJ/mol for J/mol).
- * Parse errors carry jansson's line and column; semantic errors name the field path
- * ("system.model.alpha"), since jansson keeps no positions for values. Unknown keys
+ * Parse errors carry jansson's line and column; semantic errors name the member's path
+ * ("system.model.alpha"), since jansson keeps no positions for values (src/json_read.c,
+ * shared with the model and plan files). Unknown keys
  * are errors: a misspelt optional field would otherwise be silently ignored.
  */
 #include "stagecal/column.h"
@@ -20,66 +21,41 @@
 
 #include "fileio.h"
 #include "internal.h"
+#include "json_read.h"
 
 #define COLUMN_FORMAT "stagecal-column"
 #define COLUMN_VERSION 1
 
 typedef struct {
-    const char *src;
-    stagecal_error *err;
+    json_reader jr; /* file name, this format's page, the caller's error record */
 } rd;
 
-/* Every key of obj must be in the NULL-terminated list. */
 static int check_keys(const rd *r, json_t *obj, const char *path, const char *const *keys)
 {
-    const char *k;
-    json_t *val;
-    json_object_foreach(obj, k, val)
-    {
-        size_t i = 0;
-        while (keys[i] && strcmp(keys[i], k) != 0)
-            i++;
-        if (!keys[i])
-            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                                "field '%s%s%s': unknown field, see docs/column-file.md", path,
-                                *path ? "." : "", k);
-    }
-    return STAGECAL_OK;
+    return jr_only(&r->jr, obj, path, keys);
 }
 
 static json_t *get_obj(const rd *r, json_t *parent, const char *key, const char *path, int need,
                        int *rc)
 {
-    json_t *o = json_object_get(parent, key);
-    *rc = STAGECAL_OK;
-    if (!o) {
-        if (need)
-            *rc = error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                               "field '%s': missing, expected an object", path);
-        return NULL;
-    }
-    if (!json_is_object(o)) {
-        *rc = error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0, "field '%s': expected an object",
-                           path);
-        return NULL;
-    }
+    json_t *o;
+    *rc = jr_object(&r->jr, parent, key, path, need, &o);
     return o;
 }
 
-/* Reads a number into *out when present. lo/hi: open (lo_open) or closed bounds. */
+/* Reads a number into *out when present. lo/hi: open (lo_open) or closed bounds; hint
+ * (units, an example) follows "expected a number" and the range. */
 static int get_num(const rd *r, json_t *parent, const char *key, const char *path, int need,
                    double lo, int lo_open, double hi, double *out, const char *hint)
 {
-    json_t *o = json_object_get(parent, key);
-    if (!o) {
-        if (need)
-            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                                "field '%s': missing, expected a number%s", path, hint);
-        return STAGECAL_OK;
-    }
+    char expected[160];
+    json_t *o;
+    snprintf(expected, sizeof expected, "a number%s", hint);
+    int rc = jr_member(&r->jr, parent, key, path, need, expected, &o);
+    if (rc != STAGECAL_OK || !o)
+        return rc;
     if (!json_is_number(o))
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0, "field '%s': expected a number%s",
-                            path, hint);
+        return jr_fail(&r->jr, path, "expected %s", expected);
     double v = json_number_value(o);
     if (!isfinite(v) || (lo_open ? !(v > lo) : !(v >= lo)) || !(v <= hi)) {
         char hi_txt[40];
@@ -87,9 +63,8 @@ static int get_num(const rd *r, json_t *parent, const char *key, const char *pat
             snprintf(hi_txt, sizeof hi_txt, "inf)");
         else
             snprintf(hi_txt, sizeof hi_txt, "%g]", hi);
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field '%s': %.15g is outside %s%g, %s%s", path, v, lo_open ? "(" : "[",
-                            lo, hi_txt, hint);
+        return jr_fail(&r->jr, path, "%.15g is outside %s%g, %s%s", v, lo_open ? "(" : "[", lo,
+                       hi_txt, hint);
     }
     *out = v;
     return STAGECAL_OK;
@@ -98,24 +73,7 @@ static int get_num(const rd *r, json_t *parent, const char *key, const char *pat
 static int get_str(const rd *r, json_t *parent, const char *key, const char *path, int need,
                    char *buf, size_t cap)
 {
-    json_t *o = json_object_get(parent, key);
-    if (!o) {
-        if (need)
-            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                                "field '%s': missing, expected a string", path);
-        return STAGECAL_OK;
-    }
-    if (!json_is_string(o))
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0, "field '%s': expected a string",
-                            path);
-    const char *s = json_string_value(o);
-    size_t n = strlen(s);
-    if (buf && (n == 0 || n >= cap))
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field '%s': '%s' must have 1 to %zu characters", path, s, cap - 1);
-    if (buf)
-        memcpy(buf, s, n + 1);
-    return STAGECAL_OK;
+    return jr_string(&r->jr, parent, key, path, need, buf != NULL, buf, cap);
 }
 
 static int read_antoine(const rd *r, json_t *comp, const char *path, stagecal_antoine *a, int need,
@@ -151,8 +109,7 @@ static int read_antoine(const rd *r, json_t *comp, const char *path, stagecal_an
                       " K, above t_min_k")))
         return rc;
     if ((a->t_min_k > 0.0) != (a->t_max_k > 0.0))
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field '%s': give both t_min_k and t_max_k, or neither", p);
+        return jr_fail(&r->jr, p, "give both t_min_k and t_max_k, or neither");
     snprintf(f, sizeof f, "%s.source", p);
     return get_str(r, o, "source", f, 0, NULL, 0);
 }
@@ -188,28 +145,25 @@ static int read_component(const rd *r, json_t *sys, const char *key, char *name,
 static int get_array(const rd *r, json_t *o, const char *key, const char *path, int need,
                      double **out, size_t *n)
 {
-    json_t *a = json_object_get(o, key);
+    json_t *a;
     *out = NULL;
-    if (!a) {
-        if (need)
-            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                                "field '%s': missing, expected an array of numbers", path);
-        return STAGECAL_OK;
-    }
+    int rc = jr_member(&r->jr, o, key, path, need, "an array of numbers", &a);
+    if (rc != STAGECAL_OK || !a)
+        return rc;
     size_t len = json_is_array(a) ? json_array_size(a) : 0;
     if (!json_is_array(a) || (*n && len != *n) || len < 3)
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field '%s': expected an array of %s numbers", path,
-                            *n ? "as many" : "at least 3");
+        return jr_fail(&r->jr, path, "expected an array of %s numbers",
+                       *n ? "as many" : "at least 3");
     double *v = calloc(len, sizeof *v);
     if (!v)
-        return error_set(r->err, STAGECAL_ENOMEM, "out of memory");
+        return error_set(r->jr.err, STAGECAL_ENOMEM, "out of memory");
     for (size_t i = 0; i < len; i++) {
         json_t *e = json_array_get(a, i);
         if (!json_is_number(e)) {
             free(v);
-            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                                "field '%s[%zu]': expected a number", path, i);
+            char at[96];
+            snprintf(at, sizeof at, "%s[%zu]", path, i);
+            return jr_fail(&r->jr, at, "expected a number");
         }
         v[i] = json_number_value(e);
     }
@@ -256,10 +210,10 @@ static int read_model(const rd *r, json_t *sys, stagecal_system *s, const stagec
     else if (!strcmp(kind, "margules"))
         kd = STAGECAL_VLE_MARGULES, keys = k_vl;
     else
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field 'system.model.kind': '%s' is not one of alpha, kvalue, table, "
-                            "ideal, wilson, nrtl, vanlaar, margules",
-                            kind);
+        return jr_fail(&r->jr, "system.model.kind",
+                       "'%s' is not one of alpha, kvalue, table, "
+                       "ideal, wilson, nrtl, vanlaar, margules",
+                       kind);
     *need_ant = kd >= STAGECAL_VLE_IDEAL;
     if (phase == 0) /* first pass: only learn whether Antoine sets are required */
         return STAGECAL_OK;
@@ -312,15 +266,15 @@ static int read_model(const rd *r, json_t *sys, stagecal_system *s, const stagec
                     return rc;
             }
         if (!(s->p_pa > 0.0))
-            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                                "field 'pressure_pa': missing, the '%s' model needs the pressure",
-                                kind);
+            return jr_fail(&r->jr, "pressure_pa", "missing, the '%s' model needs the pressure",
+                           kind);
         s->vle = stagecal_vle_alloc_activity(kd, ant, p, np, s->p_pa, NULL, &ve);
     }
     }
     if (!s->vle)
-        return error_set_at(r->err, ve.code == STAGECAL_ENOMEM ? STAGECAL_ENOMEM : STAGECAL_EDATA,
-                            r->src, 0, 0, "field 'system.model': %s", ve.text);
+        return error_set_at(r->jr.err,
+                            ve.code == STAGECAL_ENOMEM ? STAGECAL_ENOMEM : STAGECAL_EDATA,
+                            r->jr.source, 0, 0, "member 'system.model': %s", ve.text);
     return STAGECAL_OK;
 }
 
@@ -347,14 +301,11 @@ static int read_holdup(const rd *r, json_t *root, stagecal_column *col)
                       &col->holdup_drum_mol, " mol")))
         return rc;
     if ((col_mol > 0) + (per_m > 0) + (per_tray > 0) > 1)
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field 'holdup': give one of column_mol, per_metre_mol, per_tray_mol");
+        return jr_fail(&r->jr, "holdup", "give one of column_mol, per_metre_mol, per_tray_mol");
     if (per_m > 0 && !(col->height_m > 0))
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field 'holdup.per_metre_mol': needs packed_height_m");
+        return jr_fail(&r->jr, "holdup.per_metre_mol", "needs packed_height_m");
     if (per_tray > 0 && col->trays < 1)
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field 'holdup.per_tray_mol': needs trays");
+        return jr_fail(&r->jr, "holdup.per_tray_mol", "needs trays");
     col->holdup_column_mol = col_mol > 0 ? col_mol
                              : per_m > 0 ? per_m * col->height_m
                                          : per_tray * col->trays;
@@ -369,28 +320,25 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
         "holdup", NULL};
     int rc;
     if (!json_is_object(root))
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
+        return error_set_at(r->jr.err, STAGECAL_EDATA, r->jr.source, 0, 0,
                             "expected a JSON object at the top level");
     json_t *fmt = json_object_get(root, "format");
     if (!json_is_string(fmt) || strcmp(json_string_value(fmt), COLUMN_FORMAT) != 0)
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0, "field 'format': expected \"%s\"",
-                            COLUMN_FORMAT);
+        return jr_fail(&r->jr, "format", "expected \"%s\"", COLUMN_FORMAT);
     json_t *ver = json_object_get(root, "version");
     if (!json_is_integer(ver) || json_integer_value(ver) < 1)
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field 'version': expected an integer >= 1");
+        return jr_fail(&r->jr, "version", "expected an integer >= 1");
     if (json_integer_value(ver) > COLUMN_VERSION)
-        return error_set_at(r->err, STAGECAL_EVERSION, r->src, 0, 0,
-                            "field 'version': %lld is newer than this program reads (%d)",
+        return error_set_at(r->jr.err, STAGECAL_EVERSION, r->jr.source, 0, 0,
+                            "member 'version': %lld is newer than this program reads (%d)",
                             (long long)json_integer_value(ver), COLUMN_VERSION);
     if ((rc = check_keys(r, root, "", keys)))
         return rc;
     if ((rc = get_str(r, root, "id", "id", 1, col->id, sizeof col->id)))
         return rc;
     if (!stagecal_convention_id_valid(col->id))
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field 'id': '%s' may hold only %s", col->id,
-                            stagecal_convention_id_rule());
+        return jr_fail(&r->jr, "id", "'%s' may hold only %s", col->id,
+                       stagecal_convention_id_rule());
     if ((rc = get_str(r, root, "description", "description", 0, NULL, 0)) ||
         (rc = get_num(r, root, "packed_height_m", "packed_height_m", 0, 0.0, 1, 1000.0,
                       &col->height_m, " m")) ||
@@ -400,12 +348,10 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
     json_t *tr = json_object_get(root, "trays");
     if (tr) {
         if (!json_is_integer(tr) || json_integer_value(tr) < 1 || json_integer_value(tr) > 10000)
-            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                                "field 'trays': expected an integer in [1, 10000]");
+            return jr_fail(&r->jr, "trays", "expected an integer in [1, 10000]");
         col->trays = (int)json_integer_value(tr);
         if (col->height_m > 0.0)
-            return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                                "field 'trays': a column has trays or a packed height, not both");
+            return jr_fail(&r->jr, "trays", "a column has trays or a packed height, not both");
     }
     char cond[16];
     if ((rc = get_str(r, root, "condenser", "condenser", 1, cond, sizeof cond)))
@@ -415,8 +361,7 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
     else if (!strcmp(cond, "partial"))
         col->condenser = STAGECAL_CONDENSER_PARTIAL;
     else
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field 'condenser': '%s' is not \"total\" or \"partial\"", cond);
+        return jr_fail(&r->jr, "condenser", "'%s' is not \"total\" or \"partial\"", cond);
     stagecal_system *s = &col->system;
     if ((rc = get_num(r, root, "pressure_pa", "pressure_pa", 0, 0.0, 1, 1e8, &s->p_pa, " Pa")))
         return rc;
@@ -442,16 +387,14 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
                       &s->cp_liquid_j_mol_k, " J/(mol K)")))
         return rc;
     if ((s->latent_light_j_mol > 0) != (s->latent_heavy_j_mol > 0))
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field 'system.%s.latent_heat_j_mol': give the latent heats of both "
+        return error_set_at(r->jr.err, STAGECAL_EDATA, r->jr.source, 0, 0,
+                            "member 'system.%s.latent_heat_j_mol': give the latent heats of both "
                             "components, or neither",
                             s->latent_light_j_mol > 0 ? "heavy" : "light");
     if ((rc = read_holdup(r, root, col)))
         return rc;
     if (!strcmp(s->light, s->heavy))
-        return error_set_at(r->err, STAGECAL_EDATA, r->src, 0, 0,
-                            "field 'system.heavy.name': '%s' is also the light component",
-                            s->heavy);
+        return jr_fail(&r->jr, "system.heavy.name", "'%s' is also the light component", s->heavy);
     if ((rc = read_model(r, sys, s, ant, &need_ant, 1)))
         return rc;
 
@@ -486,13 +429,11 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
 int stagecal_column_parse(const char *text, size_t len, const char *source, stagecal_column *col,
                           stagecal_error *err)
 {
-    rd r = {source ? source : "<column>", err};
-    json_error_t je;
+    rd r = {{source ? source : "<column>", "docs/column-file.md", err}};
+    json_t *root;
     memset(col, 0, sizeof *col);
-    json_t *root = json_loadb(text, len, JSON_REJECT_DUPLICATES, &je);
-    if (!root)
-        return error_set_at(err, STAGECAL_EDATA, r.src, je.line > 0 ? je.line : 0,
-                            je.column > 0 ? je.column : 0, "%s", je.text);
+    if (jr_parse(&r.jr, text, len, "", &root) != STAGECAL_OK)
+        return STAGECAL_EDATA;
     int rc = read_root(&r, root, col);
     json_decref(root);
     if (rc != STAGECAL_OK)

@@ -21,6 +21,7 @@
 
 #include "internal.h"
 #include "internal_sha256.h"
+#include "json_read.h"
 #include "model_internal.h"
 
 static const int DUMP_CANONICAL =
@@ -200,87 +201,12 @@ done:
 /* ---- JSON → model ----------------------------------------------------------------- */
 
 typedef struct {
-    const char *source;
-    stagecal_error *err;
+    json_reader jr; /* file name, docs/model-file.md, the caller's error record */
 } reader;
 
-#define RFAIL(rd, ...) error_set_at((rd)->err, STAGECAL_EDATA, (rd)->source, 0, 0, __VA_ARGS__)
-
-static int get_member(reader *rd, const json_t *obj, const char *where, const char *key,
-                      json_t **out)
-{
-    json_t *v = json_object_get(obj, key);
-    if (!v)
-        return RFAIL(rd, "missing member '%s%s%s'", where, where[0] ? "." : "", key);
-    *out = v;
-    return STAGECAL_OK;
-}
-
-static int get_object(reader *rd, const json_t *obj, const char *where, const char *key,
-                      json_t **out)
-{
-    int rc = get_member(rd, obj, where, key, out);
-    if (rc == STAGECAL_OK && !json_is_object(*out))
-        return RFAIL(rd, "member '%s%s%s': expected an object", where, where[0] ? "." : "", key);
-    return rc;
-}
-
-static int get_array(reader *rd, const json_t *obj, const char *where, const char *key,
-                     json_t **out)
-{
-    int rc = get_member(rd, obj, where, key, out);
-    if (rc == STAGECAL_OK && !json_is_array(*out))
-        return RFAIL(rd, "member '%s%s%s': expected an array", where, where[0] ? "." : "", key);
-    return rc;
-}
-
-static int get_string(reader *rd, const json_t *obj, const char *where, const char *key, char *buf,
-                      size_t cap)
-{
-    json_t *v = NULL;
-    int rc = get_member(rd, obj, where, key, &v);
-    if (rc != STAGECAL_OK)
-        return rc;
-    if (!json_is_string(v))
-        return RFAIL(rd, "member '%s%s%s': expected a string", where, where[0] ? "." : "", key);
-    if (buf && copy_text(buf, cap, json_string_value(v)) != 0)
-        return RFAIL(rd, "member '%s%s%s': longer than %zu characters", where, where[0] ? "." : "",
-                     key, cap - 1);
-    return STAGECAL_OK;
-}
-
-/* A number; with allow_inf also the string "inf". */
-static int get_real(reader *rd, const json_t *obj, const char *where, const char *key,
-                    int allow_inf, double *out)
-{
-    json_t *v = NULL;
-    int rc = get_member(rd, obj, where, key, &v);
-    if (rc != STAGECAL_OK)
-        return rc;
-    if (json_is_number(v)) {
-        *out = json_number_value(v);
-        return STAGECAL_OK;
-    }
-    if (allow_inf && json_is_string(v) && strcmp(json_string_value(v), "inf") == 0) {
-        *out = INFINITY;
-        return STAGECAL_OK;
-    }
-    return RFAIL(rd, "member '%s%s%s': expected a number%s", where, where[0] ? "." : "", key,
-                 allow_inf ? " or \"inf\"" : "");
-}
-
-static int get_count(reader *rd, const json_t *obj, const char *where, const char *key, size_t *out)
-{
-    json_t *v = NULL;
-    int rc = get_member(rd, obj, where, key, &v);
-    if (rc != STAGECAL_OK)
-        return rc;
-    if (!json_is_integer(v) || json_integer_value(v) < 0)
-        return RFAIL(rd, "member '%s%s%s': expected an integer >= 0", where, where[0] ? "." : "",
-                     key);
-    *out = (size_t)json_integer_value(v);
-    return STAGECAL_OK;
-}
+#define RFAIL(rd, ...)                                                                             \
+    error_set_at((rd)->jr.err, STAGECAL_EDATA, (rd)->jr.source, 0, 0, __VA_ARGS__)
+#define J (&rd->jr)
 
 #define TRY(expr)                                                                                  \
     do {                                                                                           \
@@ -291,24 +217,27 @@ static int get_count(reader *rd, const json_t *obj, const char *where, const cha
 static int read_system(reader *rd, const json_t *doc, stagecal_model *m)
 {
     int rc;
-    json_t *sys = NULL, *eq = NULL, *params = NULL; /* (set by get_object; GCC -O3 cannot see it) */
-    TRY(get_object(rd, doc, "", "system", &sys));
-    TRY(get_string(rd, sys, "system", "light", m->light, sizeof m->light));
-    TRY(get_string(rd, sys, "system", "heavy", m->heavy, sizeof m->heavy));
+    json_t *sys = NULL, *eq = NULL, *params = NULL; /* (set by jr_object; GCC -O3 cannot see it) */
+    TRY(jr_object(J, doc, "system", NULL, 1, &sys));
+    TRY(jr_string(J, sys, "light", "system.light", 1, 0, m->light, sizeof m->light));
+    TRY(jr_string(J, sys, "heavy", "system.heavy", 1, 0, m->heavy, sizeof m->heavy));
     /* optional (absent in files written before they were recorded): 0 = not recorded */
     double *sysdata[MODEL_NSYSTEM] = {&m->latent_j_mol, &m->m_light_kg_mol, &m->m_heavy_kg_mol};
     for (int k = 0; k < MODEL_NSYSTEM; k++) {
         *sysdata[k] = 0;
+        char at[64];
+        snprintf(at, sizeof at, "system.%s", model_system_key[k]);
         if (!json_object_get(sys, model_system_key[k]))
             continue;
-        TRY(get_real(rd, sys, "system", model_system_key[k], 0, sysdata[k]));
+        TRY(jr_number(J, sys, model_system_key[k], at, 1, 0, sysdata[k], NULL));
         if (!(isfinite(*sysdata[k]) && *sysdata[k] > 0))
             return RFAIL(rd, "system: %s = %g: expected a finite number > 0", model_system_key[k],
                          *sysdata[k]);
     }
-    TRY(get_object(rd, sys, "system", "equilibrium", &eq));
-    TRY(get_string(rd, eq, "system.equilibrium", "model", m->vle_kind, sizeof m->vle_kind));
-    TRY(get_object(rd, eq, "system.equilibrium", "parameters", &params));
+    TRY(jr_object(J, sys, "equilibrium", "system.equilibrium", 1, &eq));
+    TRY(jr_string(J, eq, "model", "system.equilibrium.model", 1, 0, m->vle_kind,
+                  sizeof m->vle_kind));
+    TRY(jr_object(J, eq, "parameters", "system.equilibrium.parameters", 1, &params));
     const char *key;
     json_t *v = NULL;
     json_object_foreach(params, key, v)
@@ -322,7 +251,7 @@ static int read_system(reader *rd, const json_t *doc, stagecal_model *m)
             size_t n = json_array_size(v);
             double *vals = malloc(n * sizeof *vals);
             if (!vals)
-                return error_set(rd->err, STAGECAL_ENOMEM, "out of memory");
+                return error_set(rd->jr.err, STAGECAL_ENOMEM, "out of memory");
             for (size_t i = 0; i < n; i++) {
                 json_t *e = json_array_get(v, i);
                 if (!json_is_number(e)) {
@@ -341,7 +270,7 @@ static int read_system(reader *rd, const json_t *doc, stagecal_model *m)
                          key);
         }
         if (rc == STAGECAL_ENOMEM)
-            return error_set(rd->err, rc, "%s", aerr.text);
+            return error_set(rd->jr.err, rc, "%s", aerr.text);
         if (rc != STAGECAL_OK)
             return RFAIL(rd, "system.equilibrium.parameters: %s", aerr.text);
     }
@@ -354,15 +283,15 @@ static int read_correlation(reader *rd, const json_t *doc, stagecal_model *m)
     json_t *c = NULL, *params = NULL, *cov = NULL;
     char name[sizeof m->form.name], method[STAGECAL_MODEL_TEXT];
     stagecal_error ferr;
-    TRY(get_object(rd, doc, "", "correlation", &c));
-    TRY(get_string(rd, c, "correlation", "form", name, sizeof name));
+    TRY(jr_object(J, doc, "correlation", NULL, 1, &c));
+    TRY(jr_string(J, c, "form", "correlation.form", 1, 0, name, sizeof name));
     if (stagecal_form_parse(name, &m->form, &ferr) != STAGECAL_OK)
         return RFAIL(rd, "correlation form: %s", ferr.text);
     if (strcmp(name, m->form.name) != 0)
         return RFAIL(rd, "correlation form '%s' is not in canonical notation ('%s' expected)", name,
                      m->form.name);
     size_t p = m->form.p;
-    TRY(get_array(rd, c, "correlation", "parameters", &params));
+    TRY(jr_array(J, c, "parameters", "correlation.parameters", 1, &params));
     if (json_array_size(params) != p)
         return RFAIL(rd, "correlation form '%s' has %zu parameters but the file lists %zu",
                      m->form.name, p, json_array_size(params));
@@ -371,14 +300,14 @@ static int read_correlation(reader *rd, const json_t *doc, stagecal_model *m)
         char pname[sizeof m->form.param_names[0]];
         if (!json_is_object(e))
             return RFAIL(rd, "correlation.parameters[%zu]: expected an object", i);
-        TRY(get_string(rd, e, "correlation.parameters[]", "name", pname, sizeof pname));
+        TRY(jr_string(J, e, "name", "correlation.parameters[].name", 1, 0, pname, sizeof pname));
         if (strcmp(pname, m->form.param_names[i]) != 0)
             return RFAIL(rd,
                          "correlation.parameters[%zu] is named '%s', the form '%s' expects '%s'", i,
                          pname, m->form.name, m->form.param_names[i]);
-        TRY(get_real(rd, e, "correlation.parameters[]", "value", 0, &m->theta[i]));
+        TRY(jr_number(J, e, "value", "correlation.parameters[].value", 1, 0, &m->theta[i], NULL));
     }
-    TRY(get_array(rd, c, "correlation", "covariance", &cov));
+    TRY(jr_array(J, c, "covariance", "correlation.covariance", 1, &cov));
     if (json_array_size(cov) != p)
         return RFAIL(rd, "correlation.covariance: expected %zu rows (p x p), found %zu", p,
                      json_array_size(cov));
@@ -393,10 +322,10 @@ static int read_correlation(reader *rd, const json_t *doc, stagecal_model *m)
             m->cov[i * p + j] = json_number_value(e);
         }
     }
-    TRY(get_real(rd, c, "correlation", "sigma_stages", 0, &m->sigma));
-    TRY(get_real(rd, c, "correlation", "dof", 0, &m->dof));
-    TRY(get_real(rd, c, "correlation", "confidence_level", 0, &m->level));
-    TRY(get_string(rd, c, "correlation", "method", method, sizeof method));
+    TRY(jr_number(J, c, "sigma_stages", "correlation.sigma_stages", 1, 0, &m->sigma, NULL));
+    TRY(jr_number(J, c, "dof", "correlation.dof", 1, 0, &m->dof, NULL));
+    TRY(jr_number(J, c, "confidence_level", "correlation.confidence_level", 1, 0, &m->level, NULL));
+    TRY(jr_string(J, c, "method", "correlation.method", 1, 0, method, sizeof method));
     if (strcmp(method, "stage-space") == 0)
         m->method = STAGECAL_MODEL_STAGE_SPACE;
     else if (strcmp(method, "composition-space") == 0)
@@ -415,17 +344,17 @@ static int read_rest(reader *rd, const json_t *doc, stagecal_model *m)
     json_t *o, *arr, *v;
     char buf[STAGECAL_MODEL_TEXT];
 
-    TRY(get_string(rd, doc, "", "column", m->column_id, sizeof m->column_id));
+    TRY(jr_string(J, doc, "column", NULL, 1, 0, m->column_id, sizeof m->column_id));
 
-    TRY(get_object(rd, doc, "", "stage_convention", &o));
-    TRY(get_string(rd, o, "stage_convention", "condenser", buf, sizeof buf));
+    TRY(jr_object(J, doc, "stage_convention", NULL, 1, &o));
+    TRY(jr_string(J, o, "condenser", "stage_convention.condenser", 1, 0, buf, sizeof buf));
     if (strcmp(buf, "total") == 0)
         m->condenser = STAGECAL_CONDENSER_TOTAL;
     else if (strcmp(buf, "partial") == 0)
         m->condenser = STAGECAL_CONDENSER_PARTIAL;
     else
         return RFAIL(rd, "stage_convention.condenser '%s': expected 'total' or 'partial'", buf);
-    TRY(get_member(rd, o, "stage_convention", "text", &v));
+    TRY(jr_member(J, o, "text", "stage_convention.text", 1, "a string", &v));
     if (!json_is_string(v) ||
         strcmp(json_string_value(v), stagecal_convention_text(m->condenser)) != 0)
         return RFAIL(rd,
@@ -433,62 +362,64 @@ static int read_rest(reader *rd, const json_t *doc, stagecal_model *m)
                      "('%s' expected)",
                      buf, stagecal_convention_text(m->condenser));
 
-    TRY(get_object(rd, doc, "", "evidence", &o));
-    TRY(get_count(rd, o, "evidence", "windows", &m->n_windows));
-    TRY(get_count(rd, o, "evidence", "samples", &m->n_samples));
-    TRY(get_count(rd, o, "evidence", "runs", &m->n_runs));
+    TRY(jr_object(J, doc, "evidence", NULL, 1, &o));
+    TRY(jr_count(J, o, "windows", "evidence.windows", &m->n_windows));
+    TRY(jr_count(J, o, "samples", "evidence.samples", &m->n_samples));
+    TRY(jr_count(J, o, "runs", "evidence.runs", &m->n_runs));
 
-    TRY(get_object(rd, doc, "", "envelope", &o));
-    TRY(get_string(rd, o, "envelope", "kind", buf, sizeof buf));
+    TRY(jr_object(J, doc, "envelope", NULL, 1, &o));
+    TRY(jr_string(J, o, "kind", "envelope.kind", 1, 0, buf, sizeof buf));
     if (strcmp(buf, "box") != 0)
         return RFAIL(rd, "envelope.kind '%s': expected 'box'", buf);
-    TRY(get_real(rd, o, "envelope", "r_min", 0, &m->r_min));
-    TRY(get_real(rd, o, "envelope", "r_max", 1, &m->r_max));
+    TRY(jr_number(J, o, "r_min", "envelope.r_min", 1, 0, &m->r_min, NULL));
+    TRY(jr_number(J, o, "r_max", "envelope.r_max", 1, 1, &m->r_max, NULL));
     m->has_load = json_object_get(o, "f_min_sqrt_pa") || json_object_get(o, "f_max_sqrt_pa");
     if (m->has_load) {
-        TRY(get_real(rd, o, "envelope", "f_min_sqrt_pa", 0, &m->f_min));
-        TRY(get_real(rd, o, "envelope", "f_max_sqrt_pa", 0, &m->f_max));
+        TRY(jr_number(J, o, "f_min_sqrt_pa", "envelope.f_min_sqrt_pa", 1, 0, &m->f_min, NULL));
+        TRY(jr_number(J, o, "f_max_sqrt_pa", "envelope.f_max_sqrt_pa", 1, 0, &m->f_max, NULL));
     }
 
-    TRY(get_member(rd, doc, "", "hetp", &o));
+    TRY(jr_member(J, doc, "hetp", NULL, 1, "an object or null", &o));
     if (!json_is_null(o)) {
         json_t *ref;
         if (!json_is_object(o))
             return RFAIL(rd, "member 'hetp': expected an object or null");
         m->has_hetp = 1;
-        TRY(get_real(rd, o, "hetp", "height_m", 0, &m->height_m));
-        TRY(get_object(rd, o, "hetp", "reference", &ref));
-        TRY(get_real(rd, ref, "hetp.reference", "r", 1, &m->hetp_r));
+        TRY(jr_number(J, o, "height_m", "hetp.height_m", 1, 0, &m->height_m, NULL));
+        TRY(jr_object(J, o, "reference", "hetp.reference", 1, &ref));
+        TRY(jr_number(J, ref, "r", "hetp.reference.r", 1, 1, &m->hetp_r, NULL));
         if (m->has_load)
-            TRY(get_real(rd, ref, "hetp.reference", "f_sqrt_pa", 0, &m->hetp_f));
-        TRY(get_real(rd, o, "hetp", "hetp_m", 0, &m->hetp_m));
-        TRY(get_real(rd, o, "hetp", "low_m", 0, &m->hetp_low_m));
-        TRY(get_real(rd, o, "hetp", "high_m", 1, &m->hetp_high_m));
-        TRY(get_real(rd, o, "hetp", "level", 0, &m->hetp_level));
+            TRY(jr_number(J, ref, "f_sqrt_pa", "hetp.reference.f_sqrt_pa", 1, 0, &m->hetp_f, NULL));
+        TRY(jr_number(J, o, "hetp_m", "hetp.hetp_m", 1, 0, &m->hetp_m, NULL));
+        TRY(jr_number(J, o, "low_m", "hetp.low_m", 1, 0, &m->hetp_low_m, NULL));
+        TRY(jr_number(J, o, "high_m", "hetp.high_m", 1, 1, &m->hetp_high_m, NULL));
+        TRY(jr_number(J, o, "level", "hetp.level", 1, 0, &m->hetp_level, NULL));
     }
 
-    TRY(get_object(rd, doc, "", "provenance", &o));
-    TRY(get_array(rd, o, "provenance", "inputs", &arr));
+    TRY(jr_object(J, doc, "provenance", NULL, 1, &o));
+    TRY(jr_array(J, o, "inputs", "provenance.inputs", 1, &arr));
     for (size_t i = 0; i < json_array_size(arr); i++) {
         json_t *e = json_array_get(arr, i);
         char hex[STAGECAL_MODEL_HEX];
         size_t rows;
         if (!json_is_object(e))
             return RFAIL(rd, "provenance.inputs[%zu]: expected an object", i);
-        TRY(get_member(rd, e, "provenance.inputs[]", "path", &v));
+        TRY(jr_member(J, e, "path", "provenance.inputs[].path", 1, "a string", &v));
         if (!json_is_string(v))
             return RFAIL(rd, "provenance.inputs[%zu].path: expected a string", i);
-        TRY(get_string(rd, e, "provenance.inputs[]", "sha256", hex, sizeof hex));
-        TRY(get_count(rd, e, "provenance.inputs[]", "rows", &rows));
+        TRY(jr_string(J, e, "sha256", "provenance.inputs[].sha256", 1, 0, hex, sizeof hex));
+        TRY(jr_count(J, e, "rows", "provenance.inputs[].rows", &rows));
         stagecal_error aerr;
         rc = stagecal_model_add_input(m, json_string_value(v), hex, rows, &aerr);
         if (rc == STAGECAL_ENOMEM)
-            return error_set(rd->err, rc, "%s", aerr.text);
+            return error_set(rd->jr.err, rc, "%s", aerr.text);
         if (rc != STAGECAL_OK)
             return RFAIL(rd, "provenance.inputs[%zu]: %s", i, aerr.text);
     }
-    TRY(get_string(rd, o, "provenance", "fitted_utc", m->fitted_utc, sizeof m->fitted_utc));
-    TRY(get_string(rd, o, "provenance", "tool_version", m->tool_version, sizeof m->tool_version));
+    TRY(jr_string(J, o, "fitted_utc", "provenance.fitted_utc", 1, 0, m->fitted_utc,
+                  sizeof m->fitted_utc));
+    TRY(jr_string(J, o, "tool_version", "provenance.tool_version", 1, 0, m->tool_version,
+                  sizeof m->tool_version));
     /* optional: the time span of the fitted data (absent in files without it) */
     static const char *const span_keys[2] = {"data_first_utc", "data_last_utc"};
     char *span_dst[2] = {m->data_first_utc, m->data_last_utc};
@@ -500,22 +431,22 @@ static int read_rest(reader *rd, const json_t *doc, stagecal_model *m)
                  copy_text(span_dst[k], STAGECAL_MODEL_TEXT, json_string_value(v)) != 0)
             return RFAIL(rd, "member 'provenance.%s': expected a string or null", span_keys[k]);
     }
-    TRY(get_member(rd, o, "provenance", "seed", &v));
+    TRY(jr_member(J, o, "seed", "provenance.seed", 1, "an integer >= 0", &v));
     if (!json_is_integer(v) || json_integer_value(v) < 0)
         return RFAIL(rd, "member 'provenance.seed': expected an integer >= 0");
     m->seed = (unsigned long long)json_integer_value(v);
-    TRY(get_member(rd, o, "provenance", "command_line", &v));
+    TRY(jr_member(J, o, "command_line", "provenance.command_line", 1, "a string or null", &v));
     if (json_is_string(v))
-        TRY(stagecal_model_set_command_line(m, json_string_value(v), rd->err));
+        TRY(stagecal_model_set_command_line(m, json_string_value(v), rd->jr.err));
     else if (!json_is_null(v))
         return RFAIL(rd, "member 'provenance.command_line': expected a string or null");
 
-    TRY(get_array(rd, doc, "", "warnings", &arr));
+    TRY(jr_array(J, doc, "warnings", NULL, 1, &arr));
     for (size_t i = 0; i < json_array_size(arr); i++) {
         v = json_array_get(arr, i);
         if (!json_is_string(v))
             return RFAIL(rd, "warnings[%zu]: expected a string", i);
-        TRY(stagecal_model_add_warning(m, json_string_value(v), rd->err));
+        TRY(stagecal_model_add_warning(m, json_string_value(v), rd->jr.err));
     }
     return STAGECAL_OK;
 }
@@ -542,7 +473,7 @@ static int read_doc(reader *rd, json_t *doc, stagecal_model *m)
         return RFAIL(rd, "member 'version': expected an integer format version");
     json_int_t version = json_integer_value(v);
     if (version > STAGECAL_MODEL_VERSION)
-        return error_set_at(rd->err, STAGECAL_EVERSION, rd->source, 0, 0,
+        return error_set_at(rd->jr.err, STAGECAL_EVERSION, rd->jr.source, 0, 0,
                             "written by a newer stagecal (format version %lld > %d)",
                             (long long)version, STAGECAL_MODEL_VERSION);
     if (version < 1)
@@ -550,34 +481,31 @@ static int read_doc(reader *rd, json_t *doc, stagecal_model *m)
                      STAGECAL_MODEL_VERSION);
 
     /* Integrity before content: a hand edit is named as such, not as a field error. */
-    TRY(get_object(rd, doc, "", "checksum", &ck));
-    TRY(get_string(rd, ck, "checksum", "algorithm", fmt, sizeof fmt));
+    TRY(jr_object(J, doc, "checksum", NULL, 1, &ck));
+    TRY(jr_string(J, ck, "algorithm", "checksum.algorithm", 1, 0, fmt, sizeof fmt));
     if (strcmp(fmt, "sha256") != 0)
         return RFAIL(rd, "checksum algorithm '%s': expected 'sha256'", fmt);
-    TRY(get_string(rd, ck, "checksum", "value", want, sizeof want));
+    TRY(jr_string(J, ck, "value", "checksum.value", 1, 0, want, sizeof want));
     json_object_del(doc, "checksum");
     if (canonical_hash(doc, got) != 0)
-        return error_set(rd->err, STAGECAL_ENOMEM, "out of memory");
+        return error_set(rd->jr.err, STAGECAL_ENOMEM, "out of memory");
     if (strcmp(got, want) != 0)
         return RFAIL(rd, "checksum mismatch: the file was edited or damaged");
 
     TRY(read_rest(rd, doc, m));
     TRY(read_system(rd, doc, m));
     TRY(read_correlation(rd, doc, m));
-    return model_check(m, rd->source, STAGECAL_EDATA, rd->err);
+    return model_check(m, rd->jr.source, STAGECAL_EDATA, rd->jr.err);
 }
 
 int stagecal_model_parse(const char *text, size_t len, const char *source, stagecal_model *m,
                          stagecal_error *err)
 {
-    json_error_t jerr;
-    reader rd = {source ? source : "model", err};
+    reader rd = {{source ? source : "model", "docs/model-file.md", err}};
+    json_t *doc;
     stagecal_model_free(m);
-    json_t *doc = json_loadb(text, len, JSON_REJECT_DUPLICATES, &jerr);
-    if (!doc)
-        return error_set_at(err, STAGECAL_EDATA, rd.source, jerr.line > 0 ? jerr.line : 0,
-                            jerr.column > 0 ? jerr.column : 0,
-                            "not a valid JSON document (truncated or corrupt?): %s", jerr.text);
+    if (jr_parse(&rd.jr, text, len, "not a valid JSON document (truncated or corrupt?): ", &doc))
+        return STAGECAL_EDATA;
     int rc = read_doc(&rd, doc, m);
     json_decref(doc);
     if (rc != STAGECAL_OK)

@@ -748,7 +748,8 @@ static void batch_plan_parses(void **state)
                                "{\"kind\": \"constant-reflux\", \"reflux\": 3, \"reflx\": 4}}";
     assert_int_equal(stagecal_batch_plan_parse(typo, strlen(typo), "t.json", &pb, &err),
                      STAGECAL_EDATA);
-    assert_string_equal(err.text, "t.json: policy: unknown member 'reflx' (see docs/plan-file.md)");
+    assert_string_equal(err.text,
+                        "t.json: member 'policy.reflx': unknown member, see docs/plan-file.md");
     static const char newer[] = "{\"format\": \"stagecal-plan\", \"version\": 2}";
     assert_int_equal(stagecal_batch_plan_parse(newer, strlen(newer), "n.json", &pb, &err),
                      STAGECAL_EVERSION);

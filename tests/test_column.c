@@ -150,35 +150,35 @@ static void column_bad_fields_are_named(void **state)
                        "\"tau21_a\": 3.4578, \"tau21_b_k\": -586.0809, \"alpha12\": 0.3}";
     int rc = parse("", "{\"kind\": \"alpha\", \"alpha\": 0.9}", &col, &err);
     expect(rc, &err, STAGECAL_EDATA, "");
-    assert_string_equal(err.text, "col.json: field 'system.model.alpha': 0.9 is outside (1, inf)");
+    assert_string_equal(err.text, "col.json: member 'system.model.alpha': 0.9 is outside (1, inf)");
     assert_null(col.system.vle);
 
     rc = parse("\"height_ft\": 20,", "{\"kind\": \"alpha\", \"alpha\": 2}", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'height_ft': unknown field");
+    expect(rc, &err, STAGECAL_EDATA, "member 'height_ft': unknown member");
     rc = parse("", nrtl, &col, &err); /* no pressure */
-    expect(rc, &err, STAGECAL_EDATA, "field 'pressure_pa': missing");
+    expect(rc, &err, STAGECAL_EDATA, "member 'pressure_pa': missing");
     rc = parse("\"pressure_pa\": 101325,",
                "{\"kind\": \"nrtl\", \"tau12_a\": -0.8009, \"tau12_b_k\": 246.18, "
                "\"tau21_a\": 3.4578, \"tau21_b_k\": -586.0809, \"alpha12\": 3}",
                &col, &err);
     expect(rc, &err, STAGECAL_EDATA,
-           "col.json: field 'system.model': nrtl non-randomness 3 is outside (0, 1]");
+           "col.json: member 'system.model': nrtl non-randomness 3 is outside (0, 1]");
     rc = parse("\"pressure_pa\": 101325,", "{\"kind\": \"nrtl\", \"tau12_a\": 1}", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'system.model.tau12_b_k': missing");
+    expect(rc, &err, STAGECAL_EDATA, "member 'system.model.tau12_b_k': missing");
     rc = parse("", "{\"kind\": \"unifac\"}", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'system.model.kind': 'unifac' is not one of");
+    expect(rc, &err, STAGECAL_EDATA, "member 'system.model.kind': 'unifac' is not one of");
     rc = parse("\"condenser\": \"half\",", "{\"kind\": \"alpha\", \"alpha\": 2}", &col, &err);
     expect(rc, &err, STAGECAL_EDATA, "duplicate object key"); /* jansson rejects duplicates */
     rc = parse("\"packed_height_m\": 5, \"trays\": 10,", "{\"kind\": \"alpha\", \"alpha\": 2}",
                &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'trays': a column has trays or a packed height");
+    expect(rc, &err, STAGECAL_EDATA, "member 'trays': a column has trays or a packed height");
     rc = parse("\"packed_height_m\": -5,", "{\"kind\": \"alpha\", \"alpha\": 2}", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'packed_height_m': -5 is outside (0, 1000] m");
+    expect(rc, &err, STAGECAL_EDATA, "member 'packed_height_m': -5 is outside (0, 1000] m");
     rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}", "{\"xd\": -0.1}", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'uncertainty.xd': -0.1 is outside [0, 0.5]");
+    expect(rc, &err, STAGECAL_EDATA, "member 'uncertainty.xd': -0.1 is outside [0, 0.5]");
     rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}", "{\"xd_heavy_rel\": 1.5}", &col, &err);
     expect(rc, &err, STAGECAL_EDATA,
-           "field 'uncertainty.xd_heavy_rel': 1.5 is outside [0, 1] (fraction of the heavy "
+           "member 'uncertainty.xd_heavy_rel': 1.5 is outside [0, 1] (fraction of the heavy "
            "content 1 - xD)");
     rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}",
                 "{\"xd\": 5e-8, \"xd_heavy_rel\": 0.05, \"xb\": 0.001, \"xb_rel\": 0.02}", &col,
@@ -188,15 +188,15 @@ static void column_bad_fields_are_named(void **state)
     assert_rel(col.u.xb_rel, 0.02, 0.0, "u_rel(xB)");
     stagecal_column_free(&col);
     rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}", "{\"w_kg\": 3}", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'uncertainty.w_kg': unknown field");
+    expect(rc, &err, STAGECAL_EDATA, "member 'uncertainty.w_kg': unknown member");
     rc = parse("\"pressure_pa\": 101325,",
                "{\"kind\": \"table\", \"x\": [0, 0.5, 0.4, 1], \"y\": [0, 0.5, 0.8, 1]}", &col,
                &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'system.model': x-y table point 3");
+    expect(rc, &err, STAGECAL_EDATA, "member 'system.model': x-y table point 3");
     rc = parse("", "{\"kind\": \"table\", \"x\": [0, 0.5, 1], \"y\": [0, 1]}", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'system.model.y': expected an array of as many");
+    expect(rc, &err, STAGECAL_EDATA, "member 'system.model.y': expected an array of as many");
     rc = parse("", "{\"kind\": \"table\", \"x\": [0, \"a\", 1], \"y\": [0, 0.5, 1]}", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'system.model.x[1]': expected a number");
+    expect(rc, &err, STAGECAL_EDATA, "member 'system.model.x[1]': expected a number");
     rc = parse("\"id\": \"C 3\",", "{\"kind\": \"alpha\", \"alpha\": 2}", &col, &err);
     expect(rc, &err, STAGECAL_EDATA, "duplicate object key");
 
@@ -207,32 +207,32 @@ static void column_bad_fields_are_named(void **state)
                      "\"model\": {\"kind\": \"alpha\", \"alpha\": 2}}}";
     rc = stagecal_column_parse(mm, strlen(mm), "mm.json", &col, &err);
     expect(rc, &err, STAGECAL_EDATA,
-           "mm.json: field 'system.light.molar_mass_kg_mol': 46.07 is outside (0, 1] kg/mol");
+           "mm.json: member 'system.light.molar_mass_kg_mol': 46.07 is outside (0, 1] kg/mol");
     const char *na = "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"a\", "
                      "\"condenser\": \"total\", \"pressure_pa\": 1e5, \"system\": {\"light\": "
                      "{\"name\": \"ethanol\"}, \"heavy\": {\"name\": \"water\"}, "
                      "\"model\": {\"kind\": \"ideal\"}}}";
     rc = stagecal_column_parse(na, strlen(na), "na.json", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'system.light.antoine': missing");
+    expect(rc, &err, STAGECAL_EDATA, "member 'system.light.antoine': missing");
     const char *same = "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"a\", "
                        "\"condenser\": \"total\", \"system\": {\"light\": {\"name\": \"w\"}, "
                        "\"heavy\": {\"name\": \"w\"}, \"model\": {\"kind\": \"alpha\", "
                        "\"alpha\": 2}}}";
     rc = stagecal_column_parse(same, strlen(same), "s.json", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'system.heavy.name': 'w' is also the light");
+    expect(rc, &err, STAGECAL_EDATA, "member 'system.heavy.name': 'w' is also the light");
     const char *cond = "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"a\", "
                        "\"condenser\": \"half\", \"system\": {}}";
     rc = stagecal_column_parse(cond, strlen(cond), "c.json", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'condenser': 'half' is not");
+    expect(rc, &err, STAGECAL_EDATA, "member 'condenser': 'half' is not");
     const char *id = "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"C 3\"}";
     rc = stagecal_column_parse(id, strlen(id), "i.json", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'id': 'C 3' may hold only");
+    expect(rc, &err, STAGECAL_EDATA, "member 'id': 'C 3' may hold only");
     const char *lat = "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"a\", "
                       "\"condenser\": \"total\", \"system\": {\"light\": {\"name\": \"e\"}, "
                       "\"heavy\": {\"name\": \"w\"}, \"latent_heat_j_mol\": 40.6, "
                       "\"model\": {\"kind\": \"alpha\", \"alpha\": 2}}}";
     rc = stagecal_column_parse(lat, strlen(lat), "l.json", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'system.latent_heat_j_mol': 40.6 is outside");
+    expect(rc, &err, STAGECAL_EDATA, "member 'system.latent_heat_j_mol': 40.6 is outside");
 }
 
 static void column_format_version_and_syntax(void **state)
@@ -246,10 +246,10 @@ static void column_format_version_and_syntax(void **state)
     assert_int_equal(err.line, 4); /* jansson's position of the bad token */
     const char *v2 = "{\"format\": \"stagecal-column\", \"version\": 2}";
     rc = stagecal_column_parse(v2, strlen(v2), "v2.json", &col, &err);
-    expect(rc, &err, STAGECAL_EVERSION, "field 'version': 2 is newer");
+    expect(rc, &err, STAGECAL_EVERSION, "member 'version': 2 is newer");
     const char *fm = "{\"format\": \"some-other\", \"version\": 1}";
     rc = stagecal_column_parse(fm, strlen(fm), "f.json", &col, &err);
-    expect(rc, &err, STAGECAL_EDATA, "field 'format': expected \"stagecal-column\"");
+    expect(rc, &err, STAGECAL_EDATA, "member 'format': expected \"stagecal-column\"");
     rc = stagecal_column_parse("[1, 2]", 6, "a.json", &col, &err);
     expect(rc, &err, STAGECAL_EDATA, "expected a JSON object");
     rc = stagecal_column_load(STAGECAL_BUILD_DIR "/no/such/column.json", &col, &err);

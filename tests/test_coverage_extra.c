@@ -68,87 +68,88 @@ static void coverage_plan_refusals(void **state)
     }
     plan_fails("[1, 2]", STAGECAL_EDATA, "x.json: the plan is not a JSON object");
     plan_fails("{\"format\": \"other\"}", STAGECAL_EDATA,
-               "x.json: member 'format' must be \"stagecal-plan\"");
+               "x.json: member 'format': expected \"stagecal-plan\"");
     plan_fails("{\"format\": \"stagecal-plan\", \"version\": 0}", STAGECAL_EDATA,
-               "x.json: member 'version' must be an integer >= 1");
+               "x.json: member 'version': expected an integer >= 1");
     plan_fails("{\"format\": \"stagecal-plan\", \"version\": 1.0}", STAGECAL_EDATA,
-               "x.json: member 'version' must be an integer >= 1");
+               "x.json: member 'version': expected an integer >= 1");
     plan_fails("{\"format\": \"stagecal-plan\", \"version\": 3}", STAGECAL_EVERSION,
                "x.json: written for a newer stagecal (plan version 3 > 1)");
     plan_fails(PLAN_HEAD "\"colour\": 1}", STAGECAL_EDATA,
-               "x.json: plan: unknown member 'colour' (see docs/plan-file.md)");
+               "x.json: member 'colour': unknown member, see docs/plan-file.md");
     plan_fails(PLAN_HEAD "\"charge\": 5}", STAGECAL_EDATA,
-               "x.json: member 'charge' is not an object");
+               "x.json: member 'charge': expected an object");
     plan_fails(PLAN_HEAD "\"charge\": {\"amount\": 5}}", STAGECAL_EDATA,
-               "x.json: charge: unknown member 'amount' (see docs/plan-file.md)");
+               "x.json: member 'charge.amount': unknown member, see docs/plan-file.md");
     plan_fails(PLAN_HEAD "\"charge\": {\"x_light\": 0.4}}", STAGECAL_EDATA,
-               "x.json: charge: member 'amount_kmol' is missing (expected a number)");
+               "x.json: member 'charge.amount_kmol': missing, expected a number");
     plan_fails(PLAN_HEAD "\"charge\": {\"amount_kmol\": 5}}", STAGECAL_EDATA,
-               "x.json: charge: member 'x_light' is missing (expected a number)");
+               "x.json: member 'charge.x_light': missing, expected a number");
     plan_fails(PLAN_HEAD "\"charge\": {\"amount_kmol\": \"5\", \"x_light\": 0.4}}", STAGECAL_EDATA,
-               "x.json: charge: member 'amount_kmol' is not a number");
+               "x.json: member 'charge.amount_kmol': expected a number");
     plan_fails(PLAN_HEAD "\"boilup_kmol_h\": true}", STAGECAL_EDATA,
-               "x.json: plan: member 'boilup_kmol_h' is not a number");
+               "x.json: member 'boilup_kmol_h': expected a number");
     plan_fails(PLAN_HEAD "\"latent_heat_kj_mol\": null}", STAGECAL_EDATA,
-               "x.json: plan: member 'latent_heat_kj_mol' is not a number");
+               "x.json: member 'latent_heat_kj_mol': expected a number");
     plan_fails(PLAN_HEAD "\"comment\": \"no policy\"}", STAGECAL_EDATA,
-               "x.json: member 'policy' is missing (see docs/plan-file.md)");
+               "x.json: member 'policy': missing, expected an object");
     plan_fails(PLAN_HEAD "\"policy\": 3}", STAGECAL_EDATA,
-               "x.json: member 'policy' is not an object");
+               "x.json: member 'policy': expected an object");
     plan_fails(PLAN_HEAD "\"policy\": {\"reflux\": 3}}", STAGECAL_EDATA,
-               "x.json: policy: member 'kind' is missing or not a string (expected "
-               "'constant-reflux', 'constant-distillate' or 'schedule')");
+               "x.json: member 'policy.kind': missing or not a string, expected "
+               "'constant-reflux', 'constant-distillate' or 'schedule'");
     plan_fails(PLAN_HEAD "\"policy\": {\"kind\": \"adaptive\"}}", STAGECAL_EDATA,
-               "x.json: policy: unknown kind 'adaptive' (expected 'constant-reflux', "
-               "'constant-distillate' or 'schedule')");
+               "x.json: member 'policy.kind': 'adaptive' is not known, expected "
+               "'constant-reflux', 'constant-distillate' or 'schedule'");
     plan_fails(PLAN_HEAD "\"policy\": {\"kind\": \"constant-reflux\"}}", STAGECAL_EDATA,
-               "x.json: policy: member 'reflux' is missing (expected a number)");
+               "x.json: member 'policy.reflux': missing, expected a number");
     plan_fails(PLAN_HEAD "\"policy\": {\"kind\": \"constant-distillate\", \"x_distillate\": 0.9, "
                          "\"reflux\": 3}}",
-               STAGECAL_EDATA, "x.json: policy: unknown member 'reflux' (see docs/plan-file.md)");
-    plan_fails(PLAN_HEAD "\"policy\": {\"kind\": \"constant-distillate\", \"x_distillate\": 0.9}}",
                STAGECAL_EDATA,
-               "x.json: policy: member 'reflux_max' is missing (expected a number)");
+               "x.json: member 'policy.reflux': unknown member, see docs/plan-file.md");
+    plan_fails(PLAN_HEAD "\"policy\": {\"kind\": \"constant-distillate\", \"x_distillate\": 0.9}}",
+               STAGECAL_EDATA, "x.json: member 'policy.reflux_max': missing, expected a number");
     plan_fails(PLAN_HEAD "\"policy\": {\"kind\": \"schedule\", \"at\": 1}}", STAGECAL_EDATA,
-               "x.json: policy: unknown member 'at' (see docs/plan-file.md)");
+               "x.json: member 'policy.at': unknown member, see docs/plan-file.md");
     plan_fails(PLAN_HEAD "\"policy\": {\"kind\": \"schedule\", \"by\": \"volume\"}}",
-               STAGECAL_EDATA, "x.json: policy: member 'by' must be 'time_h' or 'pot_x'");
+               STAGECAL_EDATA, "x.json: member 'policy.by': expected 'time_h' or 'pot_x'");
     plan_fails(PLAN_HEAD "\"policy\": {\"kind\": \"schedule\", \"by\": \"pot_x\"}}", STAGECAL_EDATA,
-               "x.json: policy: member 'steps' must be an array of 1 to 64 objects");
+               "x.json: member 'policy.steps': expected an array of 1 to 64 objects");
     plan_fails(PLAN_HEAD "\"policy\": {\"kind\": \"schedule\", \"by\": \"pot_x\", \"steps\": []}}",
                STAGECAL_EDATA,
-               "x.json: policy: member 'steps' must be an array of 1 to 64 objects");
+               "x.json: member 'policy.steps': expected an array of 1 to 64 objects");
     plan_fails(PLAN_HEAD "\"policy\": {\"kind\": \"schedule\", \"by\": \"pot_x\", \"steps\": [7]}}",
-               STAGECAL_EDATA, "x.json: policy.steps[0]: not an object");
+               STAGECAL_EDATA, "x.json: member 'policy.steps[0]': expected an object");
     plan_fails(PLAN_HEAD "\"policy\": {\"kind\": \"schedule\", \"by\": \"pot_x\", \"steps\": "
                          "[{\"from\": 0.5, \"reflux\": 2}, {\"from\": 0.3}]}}",
                STAGECAL_EDATA,
-               "x.json: policy.steps[1]: member 'reflux' is missing (expected a number)");
+               "x.json: member 'policy.steps[1].reflux': missing, expected a number");
     plan_fails(PLAN_HEAD "\"policy\": {\"kind\": \"schedule\", \"by\": \"pot_x\", \"steps\": "
                          "[{\"from\": 0.5, \"reflux\": 2, \"to\": 0.1}]}}",
                STAGECAL_EDATA,
-               "x.json: policy.steps[0]: unknown member 'to' (see docs/plan-file.md)");
+               "x.json: member 'policy.steps[0].to': unknown member, see docs/plan-file.md");
     plan_fails(PLAN_HEAD CR_POLICY ", \"cuts\": {}}", STAGECAL_EDATA,
-               "x.json: member 'cuts' must be an array of 1 to 16 objects");
+               "x.json: member 'cuts': expected an array of 1 to 16 objects");
     plan_fails(PLAN_HEAD CR_POLICY ", \"cuts\": [\"heads\"]}", STAGECAL_EDATA,
-               "x.json: cuts[0]: not an object");
+               "x.json: member 'cuts[0]': expected an object");
     plan_fails(PLAN_HEAD CR_POLICY ", \"cuts\": [{\"until\": \"pot-x\", \"value\": 0.1, "
                                    "\"size\": 2}]}",
-               STAGECAL_EDATA, "x.json: cuts[0]: unknown member 'size' (see docs/plan-file.md)");
+               STAGECAL_EDATA,
+               "x.json: member 'cuts[0].size': unknown member, see docs/plan-file.md");
     plan_fails(PLAN_HEAD CR_POLICY ", \"cuts\": [{\"name\": 4, \"until\": \"pot-x\", "
                                    "\"value\": 0.1}]}",
                STAGECAL_EDATA,
-               "x.json: cuts[0]: member 'name' must be a string of at most 31 bytes");
+               "x.json: member 'cuts[0].name': expected a string of at most 31 bytes");
     plan_fails(PLAN_HEAD CR_POLICY ", \"cuts\": [{\"name\": \"abcdefghijklmnopqrstuvwxyz789012\", "
                                    "\"until\": \"pot-x\", \"value\": 0.1}]}",
                STAGECAL_EDATA,
-               "x.json: cuts[0]: member 'name' must be a string of at most 31 bytes");
+               "x.json: member 'cuts[0].name': expected a string of at most 31 bytes");
     plan_fails(PLAN_HEAD CR_POLICY ", \"cuts\": [{\"until\": \"volume\", \"value\": 0.1}]}",
                STAGECAL_EDATA,
-               "x.json: cuts[0]: member 'until' must be one of 'pot-x', 'mean-x', "
+               "x.json: member 'cuts[0].until': expected one of 'pot-x', 'mean-x', "
                "'distillate-x', 'fraction', 'time', 'reflux'");
     plan_fails(PLAN_HEAD CR_POLICY ", \"cuts\": [{\"until\": \"mean-x\"}]}", STAGECAL_EDATA,
-               "x.json: cuts[0]: member 'value' is missing (expected a number)");
+               "x.json: member 'cuts[0].value': missing, expected a number");
 }
 
 /* A plan with only a policy keeps the caller's charge and boil-up (batch.h: "charge and
@@ -824,37 +825,38 @@ static void coverage_column_refusals(void **state)
     stagecal_column_free(&col);
 
     column_fails("{\"kind\":\"ideal\"}", "\"ideal\"", STAGECAL_EDATA,
-                 "c.json: field 'system.model': expected an object");
+                 "c.json: member 'system.model': expected an object");
     column_fails("\"ideal\"", "\"uniquac\"", STAGECAL_EDATA,
-                 "c.json: field 'system.model.kind': 'uniquac' is not one of alpha, kvalue, "
+                 "c.json: member 'system.model.kind': 'uniquac' is not one of alpha, kvalue, "
                  "table, ideal, wilson, nrtl, vanlaar, margules");
     column_fails("\"b\":1203.835,", "", STAGECAL_EDATA,
-                 "c.json: field 'system.light.antoine.b': missing, expected a number "
+                 "c.json: member 'system.light.antoine.b': missing, expected a number "
                  "(log10(P/bar) = a - b/(T/K + c))");
     column_fails("\"a\":4.01814", "\"a\":\"4.01814\"", STAGECAL_EDATA,
-                 "c.json: field 'system.light.antoine.a': expected a number (log10(P/bar) = a - "
+                 "c.json: member 'system.light.antoine.a': expected a number (log10(P/bar) = a - "
                  "b/(T/K + c))");
     column_fails("\"toluene\"", "7", STAGECAL_EDATA,
-                 "c.json: field 'system.heavy.name': expected a string");
+                 "c.json: member 'system.heavy.name': expected a string");
     column_fails("\"toluene\"", "\"\"", STAGECAL_EDATA,
-                 "c.json: field 'system.heavy.name': '' must have 1 to 63 characters");
+                 "c.json: member 'system.heavy.name': '' must have 1 to 63 characters");
     column_fails("\"toluene\"", "\"benzene\"", STAGECAL_EDATA,
-                 "c.json: field 'system.heavy.name': 'benzene' is also the light component");
-    column_fails("\"t_min_k\":308.52,\"t_max_k\":384.66", "\"t_min_k\":308.52", STAGECAL_EDATA,
-                 "c.json: field 'system.heavy.antoine': give both t_min_k and t_max_k, or neither");
+                 "c.json: member 'system.heavy.name': 'benzene' is also the light component");
+    column_fails(
+        "\"t_min_k\":308.52,\"t_max_k\":384.66", "\"t_min_k\":308.52", STAGECAL_EDATA,
+        "c.json: member 'system.heavy.antoine': give both t_min_k and t_max_k, or neither");
     column_fails("\"id\":\"K-7\",", "\"id\":\"K-7\",\"trays\":20,", STAGECAL_EDATA,
-                 "c.json: field 'trays': a column has trays or a packed height, not both");
+                 "c.json: member 'trays': a column has trays or a packed height, not both");
     column_fails("\"total\"", "\"none\"", STAGECAL_EDATA,
-                 "c.json: field 'condenser': 'none' is not \"total\" or \"partial\"");
+                 "c.json: member 'condenser': 'none' is not \"total\" or \"partial\"");
     column_fails("\"model\":", "\"latent_heat_j_mol\":32,\"model\":", STAGECAL_EDATA,
-                 "c.json: field 'system.latent_heat_j_mol': 32 is outside (1000, 1e+06] J/mol "
+                 "c.json: member 'system.latent_heat_j_mol': 32 is outside (1000, 1e+06] J/mol "
                  "(not kJ/mol)");
     column_fails("{\"kind\":\"ideal\"}",
                  "{\"kind\":\"table\",\"x\":[0.1,\"a\",0.9],\"y\":[0.2,0.5,0.95]}", STAGECAL_EDATA,
-                 "c.json: field 'system.model.x[1]': expected a number");
+                 "c.json: member 'system.model.x[1]': expected a number");
     column_fails(
         "{\"kind\":\"ideal\"}", "{\"kind\":\"table\",\"x\":[0.1,0.5,0.9],\"y\":[0.2,0.5,0.7,0.95]}",
-        STAGECAL_EDATA, "c.json: field 'system.model.y': expected an array of as many numbers");
+        STAGECAL_EDATA, "c.json: member 'system.model.y': expected an array of as many numbers");
 }
 
 /* ---- report.c: refusals of the renderer ----------------------------------------- */

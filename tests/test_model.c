@@ -887,7 +887,7 @@ static void model_load_refuses_inconsistent(void **state)
          "correlation form 'saturating' has 2 parameters but the file lists 3"},
         {edit_negative_variance, STAGECAL_EDATA,
          "covariance[1][1] = -0.25: a variance must be >= 0"},
-        {edit_drop_dof, STAGECAL_EDATA, "missing member 'correlation.dof'"},
+        {edit_drop_dof, STAGECAL_EDATA, "member 'correlation.dof': missing, expected a number"},
         {edit_sigma_type, STAGECAL_EDATA, "member 'correlation.sigma_stages': expected a number"},
         {edit_short_row, STAGECAL_EDATA,
          "correlation.covariance[1]: expected an array of 2 numbers"},
@@ -1478,9 +1478,9 @@ static void model_load_refuses_each_member(void **state)
         {"evidence.runs", "2.5", "member 'evidence.runs': expected an integer >= 0"},
         {"envelope.kind", "\"ellipse\"", "envelope.kind 'ellipse': expected 'box'"},
         {"envelope.r_max", "\"infinite\"", "member 'envelope.r_max': expected a number or \"inf\""},
-        {"envelope.f_max_sqrt_pa", NULL, "missing member 'envelope.f_max_sqrt_pa'"},
+        {"envelope.f_max_sqrt_pa", NULL, "member 'envelope.f_max_sqrt_pa': missing, expected a number"},
         {"hetp", "3", "member 'hetp': expected an object or null"},
-        {"hetp.reference", NULL, "missing member 'hetp.reference'"},
+        {"hetp.reference", NULL, "member 'hetp.reference': missing, expected an object"},
         {"hetp.reference.f_sqrt_pa", "\"inf\"",
          "member 'hetp.reference.f_sqrt_pa': expected a number"},
         {"provenance.inputs", "{}", "member 'provenance.inputs': expected an array"},
@@ -1505,7 +1505,7 @@ static void model_load_refuses_each_member(void **state)
          "equilibrium parameter 'p_pa': expected a number or a non-empty array of numbers"},
         {"system.equilibrium.parameters.nrtl.2", "\"x\"",
          "equilibrium parameter 'nrtl': element 3 is not a number"},
-        {"correlation", NULL, "missing member 'correlation'"},
+        {"correlation", NULL, "member 'correlation': missing, expected an object"},
         {"correlation.form", "\"linear:1/R+1\"",
          "correlation form 'linear:1/R+1' is not in canonical notation ('linear:1+1/R' "
          "expected)"},
@@ -1576,7 +1576,7 @@ static void model_parse_refuses_checksum_and_shape(void **state)
     assert_int_equal(stagecal_model_parse("{\"format\": \"stagecal-model\", \"version\": 1}", 42,
                                           "v.json", &m, &err),
                      STAGECAL_EDATA);
-    assert_string_equal(err.text, "v.json: missing member 'checksum'");
+    assert_string_equal(err.text, "v.json: member 'checksum': missing, expected an object");
     stagecal_model_free(&m);
 }
 

@@ -74,10 +74,10 @@ sys.exit(0 if d['condenser'] == 'partial' and 'stages - 2' in d['stage_conventio
 # in every command that reads the column (they used to pass check and calibrate --dry-run).
 for id in .. . .hidden ../x 'a/b' ''; do
     sed "s|\"id\": \"demo-alpha-T-101\"|\"id\": \"$id\"|" "$ROOT/datasets/columns/demo_alpha.json" >"$tmp/badid.json"
-    expect_exit 65 "field 'id'" -- "$BIN" invert --column "$tmp/badid.json" --xd 0.9 --xb 0.5 --reflux 3
-    expect_exit 65 "field 'id'" -- "$BIN" invert --column "$tmp/badid.json" "$tmp/log.csv"
-    expect_exit 65 "field 'id'" -- "$BIN" check --column "$tmp/badid.json" "$tmp/log.csv"
-    expect_exit 65 "field 'id'" -- "$BIN" calibrate --dry-run --column "$tmp/badid.json" "$tmp/log.csv"
+    expect_exit 65 "member 'id'" -- "$BIN" invert --column "$tmp/badid.json" --xd 0.9 --xb 0.5 --reflux 3
+    expect_exit 65 "member 'id'" -- "$BIN" invert --column "$tmp/badid.json" "$tmp/log.csv"
+    expect_exit 65 "member 'id'" -- "$BIN" check --column "$tmp/badid.json" "$tmp/log.csv"
+    expect_exit 65 "member 'id'" -- "$BIN" calibrate --dry-run --column "$tmp/badid.json" "$tmp/log.csv"
 done
 
 # The Antoine-range warning (benzene's set stops at 354.07 K, the bubble curve at
