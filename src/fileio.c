@@ -56,6 +56,12 @@ static const char *file_type(mode_t m)
     return "not a regular file";
 }
 
+/* "a" or "an" before kind ("an events file"). */
+static const char *article(const char *kind)
+{
+    return strchr("aeiou", kind[0]) && kind[0] ? "an" : "a";
+}
+
 /* "16 MiB" / "4096 bytes" */
 static void size_text(char *buf, size_t cap, size_t n)
 {
@@ -72,8 +78,8 @@ static int too_large(const char *path, size_t cap, const char *kind, const char 
     char lim[40];
     size_text(lim, sizeof lim, cap);
     return error_set_at(err, STAGECAL_EDATA, path, 0, 0,
-                        "%slarger than the %s limit for a %s (see docs/bad-inputs.md)", have, lim,
-                        kind);
+                        "%slarger than the %s limit for %s %s (see docs/bad-inputs.md)", have, lim,
+                        article(kind), kind);
 }
 
 /* Opens path read-only and non-blocking, checks it is a regular file of at most cap
@@ -103,8 +109,8 @@ static int open_checked(const char *path, size_t cap, const char *kind, int *cod
         return -1;
     }
     if (!S_ISREG(st.st_mode)) {
-        error_set_at(err, STAGECAL_ENOINPUT, path, 0, 0, "%s, not a regular file (expected a %s)",
-                     file_type(st.st_mode), kind);
+        error_set_at(err, STAGECAL_ENOINPUT, path, 0, 0, "%s, not a regular file (expected %s %s)",
+                     file_type(st.st_mode), article(kind), kind);
         close(fd);
         return -1;
     }
