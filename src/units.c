@@ -29,12 +29,12 @@ struct unit_row {
 #define NOLIM (-HUGE_VAL)
 
 static const struct unit_row unit_table[] = {
-    {STAGECAL_QTY_TIME, "h", 3600.0, 0, 0, 0, NOLIM, HUGE_VAL},
+    {STAGECAL_QTY_TIME, "h", STAGECAL_UNIT_H, 0, 0, 0, NOLIM, HUGE_VAL},
     {STAGECAL_QTY_TIME, "min", 60.0, 0, 0, 0, NOLIM, HUGE_VAL},
     {STAGECAL_QTY_TIME, "s", 1.0, 0, 0, 0, NOLIM, HUGE_VAL},
     {STAGECAL_QTY_TIME, "iso8601", 1.0, 0, 0, 1, NOLIM, HUGE_VAL},
     {STAGECAL_QTY_TIME, "ISO 8601", 1.0, 0, 0, 1, NOLIM, HUGE_VAL},
-    {STAGECAL_QTY_AMOUNT, "kmol", 1000.0, 0, 0, 0, 0, HUGE_VAL},
+    {STAGECAL_QTY_AMOUNT, "kmol", STAGECAL_UNIT_KMOL, 0, 0, 0, 0, HUGE_VAL},
     {STAGECAL_QTY_AMOUNT, "mol", 1.0, 0, 0, 0, 0, HUGE_VAL},
     {STAGECAL_QTY_AMOUNT, "kg", 1.0, 0, 1, 0, 0, HUGE_VAL},
     {STAGECAL_QTY_AMOUNT, "lb", 0.45359237, 0, 1, 0, 0, HUGE_VAL},
@@ -46,7 +46,7 @@ static const struct unit_row unit_table[] = {
     {STAGECAL_QTY_FRACTION, "ppmw", 1e-6, 0, 1, 0, 0, 1e6}, /* mg/kg */
     {STAGECAL_QTY_RATIO, "-", 1.0, 0, 0, 0, 0, HUGE_VAL},
     {STAGECAL_QTY_RATIO, "", 1.0, 0, 0, 0, 0, HUGE_VAL},
-    {STAGECAL_QTY_FLOW, "kmol/h", 1000.0 / 3600.0, 0, 0, 0, 0, HUGE_VAL},
+    {STAGECAL_QTY_FLOW, "kmol/h", STAGECAL_UNIT_KMOL_H, 0, 0, 0, 0, HUGE_VAL},
     {STAGECAL_QTY_FLOW, "mol/s", 1.0, 0, 0, 0, 0, HUGE_VAL},
     {STAGECAL_QTY_FLOW, "kg/h", 1.0 / 3600.0, 0, 1, 0, 0, HUGE_VAL},
     {STAGECAL_QTY_DUTY, "kW", 1000.0, 0, 0, 0, 0, HUGE_VAL},

@@ -43,8 +43,8 @@ run invert "$S" invert --column $COL --xd 0.97 --xb 0.30 --reflux 3
 run steps "$S" steps --alpha 2.5 --xd 0.95 --reflux 4 --stages 7
 run steps-nrtl "$S" steps --column datasets/columns/kestrel_c3_ethanol_water.json --xd 0.8 --reflux 4 --stages 7
 run check "$S" check --column $COL $L/2025-01.csv $L/2025-02.csv $L/2025-03.csv
-run invert-log "$S" invert --column $COL --out "$work/inv.csv" $L/2025-01.csv
-run calibrate "$S" calibrate --quiet --column $COL --fits "$work/fits" --report "$work/r.html" \
+run invert-log "$S" invert --column $COL --output "$work/inv.csv" $L/2025-01.csv
+run calibrate "$S" calibrate --quiet --column $COL --fits "$work/fits" --report-out "$work/r.html" \
     --points-out "$work/points.csv" $L/2025-01.csv $L/2025-02.csv $L/2025-03.csv
 for m in 2025-04 2025-08 2025-11; do
     run "calibrate-$m" "$S" calibrate --quiet --form saturating --column $COL --fits "$work/fits" $L/$m.csv
@@ -56,8 +56,8 @@ run fits-list "$S" fits list demo-bt-K-7 --fits "$work/fits" --events datasets/d
 run fits-label "$S" fits label demo-bt-K-7 2025-08 august --fits "$work/fits"
 run history "$S" history --column $COL $L/2025-08.csv $L/2025-09.csv $L/2025-11.csv $L/2025-12.csv \
     --events datasets/demo/events.csv --reflux 3 --f-factor 1.3 --require 7.5 --design-hetp 0.6 --json
-run trend "$S" trend demo-bt-K-7 --fits "$work/fits" --events datasets/demo/events.csv --reflux 3 --fload 1.3 --require 7.5
-run hetp "$S" hetp "$m08" "$m11" --reflux 3 --fload 1.3
+run trend "$S" trend demo-bt-K-7 --fits "$work/fits" --events datasets/demo/events.csv --reflux 3 --f-factor 1.3 --require 7.5
+run hetp "$S" hetp "$m08" "$m11" --reflux 3 --f-factor 1.3
 run predict "$S" predict --model "$m11" --charge 25 --xb0 0.5 --boilup 3.6 --reflux 3 --cut pot-x=0.15 --samples 20
 run predict-load "$S" predict --model "$model" --f-factor 1.3 --charge 25 --xb0 0.5 --boilup 3.6 --reflux 3 --cut pot-x=0.15 --samples 20
 run plot-mccabe "$S" plot mccabe --alpha 2.5 --xd 0.95 --reflux 3 --stages 6 --murphree 0.8 -o "$work/d.svg"

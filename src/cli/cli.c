@@ -231,9 +231,33 @@ json_t *cli_system_json(const cli_system *s)
     return o;
 }
 
+json_t *cli_run_json(const stagecal_runlog *log, size_t k, const stagecal_runlog_closure *cl)
+{
+    const stagecal_runlog_run *r = &log->runs[k];
+    json_t *o = json_object();
+    json_object_set_new(o, "name", json_string(r->name));
+    json_object_set_new(o, "source", json_string(log->files[r->file]));
+    json_object_set_new(o, "first_line", json_integer(r->first_line));
+    json_object_set_new(o, "rows", json_integer((json_int_t)r->n));
+    json_object_set_new(o, "rows_in_balance", json_integer((json_int_t)cl->n_used));
+    json_object_set_new(o, "closure", cli_json_real(cl->closure));
+    json_object_set_new(o, "u_closure", cli_json_real(cl->u_closure));
+    json_object_set_new(o, "gross_error", json_boolean(cl->gross));
+    json_object_set_new(o, "xb_drift_per_h", cli_json_real(cl->drift_per_h));
+    json_object_set_new(o, "u_xb_drift_per_h", cli_json_real(cl->u_drift_per_h));
+    json_object_set_new(o, "drift", json_boolean(cl->drift));
+    json_object_set_new(o, "outliers", json_integer((json_int_t)cl->n_outliers));
+    return o;
+}
+
 json_t *cli_json_reflux(double r)
 {
     return isinf(r) ? json_string("inf") : json_real(r);
+}
+
+void cli_print_caution(void)
+{
+    printf("\n%s\n", stagecal_caution_text());
 }
 
 int cli_require(const char *opt, double v)

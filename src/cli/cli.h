@@ -16,8 +16,9 @@
 #include "stagecal/column.h"
 #include "stagecal/convention.h"
 #include "stagecal/error.h"
+#include "stagecal/runlog.h"
 
-/* Exit codes (DESIGN §5). */
+/* Exit codes (docs/cli.md). */
 #define CLI_EXIT_OK 0
 #define CLI_EXIT_USAGE 2                /* usage error (jq's choice) */
 #define CLI_EXIT_DATA EX_DATAERR        /* 65 bad input data */
@@ -88,8 +89,26 @@ void cli_system_close(cli_system *s);
 void cli_column_warn(const stagecal_column *col, const char *path);
 /* A JSON object describing the model in use ({"kind": …, "alpha": …} or the column). */
 json_t *cli_system_json(const cli_system *s);
+/* One run of a run log with its mass-balance closure, as check and invert report it. */
+json_t *cli_run_json(const stagecal_runlog *log, size_t k, const stagecal_runlog_closure *cl);
 /* JSON for a reflux ratio: the string "inf" at total reflux, else a real. */
 json_t *cli_json_reflux(double r);
+
+/* What main prepares for a command and tidies after it (the flags of its table row). */
+typedef struct {
+    int json;           /* --json was given (OPT__JSON(&ctx->json)) */
+    int data_on_stdout; /* the command wrote data (CSV, HTML) on stdout: no caution after it */
+    cli_system sys;     /* CMD_SYSTEM: the equilibrium-model options; main closes it */
+} cli_ctx;
+
+/* Flags of main.c's command table: the shared setup main does. */
+#define CMD_SYSTEM 1u /* takes --alpha/--kvalue/--column: ctx->sys initialised and closed */
+#define CMD_CAUTION                                                                                \
+    2u /* its numbers feed a decision: main prints the caution after text output                   \
+        */
+
+/* Prints the caution (stagecal_caution_text) as the last paragraph of a text output. */
+void cli_print_caution(void);
 
 /* "option '--name' is required" when v is NaN (not given); returns the exit code. */
 int cli_require(const char *opt, double v);

@@ -4,7 +4,6 @@
  * load, with confidence and prediction bands, out as a model file under
  * fits/<column>/ and a summary a process engineer reads at a glance.
  */
-#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -15,39 +14,20 @@
 #include "fileio.h"
 #include "cli.h"
 #include "commands.h"
+#include "options.h"
 #include "stagecal/calibrate.h"
 #include "stagecal/report.h"
 #include "stagecal/stages.h"
 
-static const char usage_text[] =
-    "usage: stagecal calibrate --column FILE [options] RUNLOG.csv...\n"
-    "\n"
+static const struct cli_usage usage = {
+    "usage: stagecal calibrate --column FILE [options] RUNLOG.csv...\n",
     "Validates the run logs, finds quasi-steady windows, inverts every sample to effective\n"
     "stages, fits stages(R, F) on one point per window and writes a model file under\n"
-    "DIR/<column id>/ (never replacing an earlier fit).\n"
-    "\n"
-    "  --column FILE         the column file (docs/column-file.md), required\n"
-    "  --form NAME           correlation form (docs/forms.md) or 'auto' (default: rank\n"
-    "                        the candidate forms by AICc)\n"
-    "  --method M            auto (default: composition space, falling back to stage\n"
-    "                        space), composition, or stage\n"
-    "  --level L             confidence level of intervals and bands (default 0.95)\n"
-    "  --murphree E          Murphree vapour efficiency used in the inversion (default 1)\n"
-    "  --bootstrap B         stage-space bootstrap resamples (default 0 = none)\n"
-    "  --seed S              bootstrap seed (default 1)\n"
-    "  --robust KIND         stage-space robust reweighting: huber or bisquare\n"
-    "  --reference-reflux R  reflux ratio at which HETP is reported (default: largest fitted)\n"
-    "  --reference-load F    F-factor [Pa^0.5] at which HETP is reported (default: mid range)\n"
-    "  --fits DIR            where model files go (default: fits)\n"
-    "  --samples-out FILE    also write the per-sample inversion as CSV\n"
-    "  --points-out FILE     also write the windows' stage counts as a points file\n"
-    "                        (R,F,stages,sigma; for 'stagecal report --points')\n"
-    "  --report FILE.html    also write the calibration's HTML report (charts, fit table,\n"
-    "                        provenance, warnings, caution)\n"
-    "  --dry-run             fit and summarise, write no model file\n"
-    "  --json                one JSON document on stdout\n"
-    "  --quiet               no warnings or progress on stderr\n"
-    "  -h, --help            this text\n";
+    "DIR/<column id>/ (never replacing an earlier fit). HETP is reported at --reflux R and\n"
+    "--f-factor F (defaults: the largest fitted R, the middle of the fitted F range).\n",
+    NULL};
+
+static const char *const method_names[] = {"auto", "stage", "composition", NULL};
 
 static void show_progress(void *ctx, const char *stage, double done)
 {
@@ -190,7 +170,7 @@ static int write_points(const stagecal_calibration *cal, atomic_file *a, const c
 /* The outputs besides the model file, each complete in a temporary file in its folder
  * before any is published: a run that fails leaves none of them behind. */
 enum { OUT_SAMPLES, OUT_POINTS, OUT_REPORT, OUT_N };
-static const char *const out_opt[OUT_N] = {"samples-out", "points-out", "report"};
+static const char *const out_opt[OUT_N] = {"samples-out", "points-out", "report-out"};
 
 /* Writes every requested output into its temporary file; an exit code. */
 static int prepare_outputs(const stagecal_calibration *cal, const char *const path[OUT_N],
@@ -251,186 +231,153 @@ static char *join_args(int argc, char **argv)
     return s;
 }
 
-int cmd_calibrate(int argc, char **argv)
+/* What the command line asked for besides the library's parameters. */
+struct request {
+    const char *column, *fits, *out[OUT_N];
+    int dry;
+};
+
+static int print_json(const stagecal_calibration *cal, const char *path, const struct request *rq)
 {
-    enum {
-        O_COLUMN = 256,
-        O_FORM,
-        O_METHOD,
-        O_LEVEL,
-        O_MURPHREE,
-        O_BOOT,
-        O_SEED,
-        O_ROBUST,
-        O_REFR,
-        O_REFF,
-        O_FITS,
-        O_SAMPLES,
-        O_POINTS,
-        O_REPORT,
-        O_DRY,
-        O_JSON,
-        O_QUIET
-    };
-    static const struct option opts[] = {{"column", required_argument, NULL, O_COLUMN},
-                                         {"form", required_argument, NULL, O_FORM},
-                                         {"method", required_argument, NULL, O_METHOD},
-                                         {"level", required_argument, NULL, O_LEVEL},
-                                         {"murphree", required_argument, NULL, O_MURPHREE},
-                                         {"bootstrap", required_argument, NULL, O_BOOT},
-                                         {"seed", required_argument, NULL, O_SEED},
-                                         {"robust", required_argument, NULL, O_ROBUST},
-                                         {"reference-reflux", required_argument, NULL, O_REFR},
-                                         {"reference-load", required_argument, NULL, O_REFF},
-                                         {"fits", required_argument, NULL, O_FITS},
-                                         {"samples-out", required_argument, NULL, O_SAMPLES},
-                                         {"points-out", required_argument, NULL, O_POINTS},
-                                         {"report", required_argument, NULL, O_REPORT},
-                                         {"dry-run", no_argument, NULL, O_DRY},
-                                         {"json", no_argument, NULL, O_JSON},
-                                         {"quiet", no_argument, NULL, O_QUIET},
-                                         {"help", no_argument, NULL, 'h'},
-                                         {0, 0, 0, 0}};
-    stagecal_calibrate_params par = stagecal_calibrate_default_params();
-    const char *column = NULL, *fits = "fits", *samples_out = NULL, *points_out = NULL,
-               *report_out = NULL;
-    int json = 0, dry = 0, c, rc;
-    long lv;
+    const stagecal_model *mo = &cal->model;
+    const stagecal_regress_result *fit =
+        cal->used == STAGECAL_MODEL_STAGE_SPACE ? &cal->stage_fit : &cal->comp_fit;
+    json_t *doc = json_object(), *warn = json_array(), *rank = json_array();
+    json_object_set_new(doc, "format", json_string("stagecal-calibration"));
+    json_object_set_new(doc, "version", json_integer(1));
+    json_object_set_new(doc, "column", json_string(mo->column_id));
+    json_object_set_new(doc, "model_file", path[0] ? json_string(path) : json_null());
+    json_object_set_new(doc, "report",
+                        rq->out[OUT_REPORT] ? json_string(rq->out[OUT_REPORT]) : json_null());
+    json_object_set_new(doc, "method", json_string(stagecal_model_method_name(cal->used)));
+    json_object_set_new(doc, "form", json_string(fit->form.name));
+    json_object_set_new(doc, "parameters", params_json(fit));
+    json_object_set_new(doc, "rss", cli_json_real(fit->rss));
+    json_object_set_new(doc, "sigma", cli_json_real(mo->sigma));
+    json_object_set_new(doc, "dof", cli_json_real(mo->dof));
+    json_object_set_new(doc, "level", json_real(mo->level));
+    json_object_set_new(doc, "stage_space",
+                        fit_json(&cal->stage_fit, cal->stage_status, cal->stage_message));
+    json_object_set_new(doc, "composition_space",
+                        fit_json(&cal->comp_fit, cal->comp_status, cal->comp_message));
+    json_object_set_new(
+        doc, "evidence",
+        json_pack("{s:I,s:I,s:I,s:I,s:I,s:I,s:I,s:I}", "samples", (json_int_t)cal->log->n, "runs",
+                  (json_int_t)cal->log->nruns, "windows", (json_int_t)cal->evidence.n,
+                  "windows_with_stages", (json_int_t)cal->nev_stage, "samples_in_fit",
+                  (json_int_t)mo->n_samples, "pinch_samples",
+                  (json_int_t)cal->res.count[STAGECAL_STAGES_PINCH], "azeotrope_samples",
+                  (json_int_t)cal->res.count[STAGECAL_STAGES_AZEOTROPE], "censored_samples",
+                  (json_int_t)cal->res.count[STAGECAL_RUNLOG_CENSORED]));
+    json_object_set_new(doc, "envelope",
+                        json_pack("{s:o,s:o,s:o,s:o}", "r_min", cli_json_reflux(mo->r_min), "r_max",
+                                  cli_json_reflux(mo->r_max), "f_min",
+                                  mo->has_load ? json_real(mo->f_min) : json_null(), "f_max",
+                                  mo->has_load ? json_real(mo->f_max) : json_null()));
+    if (mo->has_hetp)
+        json_object_set_new(doc, "hetp",
+                            json_pack("{s:o,s:o,s:o,s:o,s:o,s:o}", "height_m",
+                                      json_real(mo->height_m), "r", cli_json_reflux(mo->hetp_r),
+                                      "f", json_real(mo->hetp_f), "hetp_m", json_real(mo->hetp_m),
+                                      "low_m", json_real(mo->hetp_low_m), "high_m",
+                                      cli_json_real(mo->hetp_high_m)));
+    for (size_t i = 0; i < cal->nrank; i++)
+        json_array_append_new(rank,
+                              json_pack("{s:s,s:b,s:o,s:o,s:o}", "form", cal->rank[i].form.name,
+                                        "ok", cal->rank[i].status == STAGECAL_OK, "aicc",
+                                        cli_json_real(cal->rank[i].aicc), "delta_aicc",
+                                        cli_json_real(cal->rank[i].delta_aicc), "bic",
+                                        cli_json_real(cal->rank[i].bic)));
+    json_object_set_new(doc, "form_ranking", rank);
+    for (size_t i = 0; i < mo->n_warnings; i++)
+        json_array_append_new(warn, json_string(mo->warnings[i]));
+    json_object_set_new(doc, "warnings", warn);
+    json_object_set_new(doc, "findings",
+                        json_pack("{s:I,s:I}", "errors", (json_int_t)cal->findings->n_errors,
+                                  "warnings", (json_int_t)cal->findings->n_warnings));
+    json_object_set_new(doc, "stage_convention",
+                        json_string(stagecal_convention_text(mo->condenser)));
+    json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
+    return cli_json_print(doc);
+}
 
-    optind = 0;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
-        switch (c) {
-        case 'h':
-            fputs(usage_text, stdout);
-            return CLI_EXIT_OK;
-        case O_COLUMN:
-            column = optarg;
-            break;
-        case O_FORM:
-            par.form = optarg;
-            break;
-        case O_METHOD:
-            if (strcmp(optarg, "auto") == 0)
-                par.method = STAGECAL_CAL_AUTO;
-            else if (strcmp(optarg, "stage") == 0)
-                par.method = STAGECAL_CAL_STAGE;
-            else if (strcmp(optarg, "composition") == 0)
-                par.method = STAGECAL_CAL_COMPOSITION;
-            else
-                return cli_usage_error("option '--method': '%s' is not a method (expected auto, "
-                                       "composition or stage)",
-                                       optarg);
-            break;
-        case O_LEVEL:
-            if (cli_parse_double("level", optarg, 0, "a confidence level in (0, 1)", &par.level))
-                return CLI_EXIT_USAGE;
-            if (!(par.level > 0 && par.level < 1))
-                return cli_usage_error("option '--level': %g is outside (0, 1) (expected a "
-                                       "confidence level such as 0.95)",
-                                       par.level);
-            break;
-        case O_MURPHREE:
-            if (cli_parse_double("murphree", optarg, 0, "an efficiency in (0, 1]", &par.murphree))
-                return CLI_EXIT_USAGE;
-            if (!(par.murphree > 0 && par.murphree <= 1))
-                return cli_usage_error("option '--murphree': %g is outside (0, 1] (expected a "
-                                       "Murphree vapour efficiency)",
-                                       par.murphree);
-            break;
-        case O_BOOT:
-            if (cli_parse_long("bootstrap", optarg, 0, 1000000, &lv))
-                return CLI_EXIT_USAGE;
-            par.bootstrap = (size_t)lv;
-            break;
-        case O_SEED:
-            if (cli_parse_long("seed", optarg, 0, 2147483647L, &lv))
-                return CLI_EXIT_USAGE;
-            par.seed = (unsigned long)lv;
-            break;
-        case O_ROBUST:
-            if (strcmp(optarg, "huber") == 0)
-                par.robust = STAGECAL_ROBUST_HUBER;
-            else if (strcmp(optarg, "bisquare") == 0)
-                par.robust = STAGECAL_ROBUST_BISQUARE;
-            else
-                return cli_usage_error("option '--robust': '%s' is not a weighting (expected "
-                                       "huber or bisquare)",
-                                       optarg);
-            break;
-        case O_REFR:
-            if (cli_parse_double("reference-reflux", optarg, 1, "a reflux ratio >= 0 or 'inf'",
-                                 &par.hetp_r))
-                return CLI_EXIT_USAGE;
-            if (!(par.hetp_r > 0))
-                return cli_usage_error("option '--reference-reflux': %g is not positive "
-                                       "(expected R > 0 or 'inf')",
-                                       par.hetp_r);
-            break;
-        case O_REFF:
-            if (cli_parse_double("reference-load", optarg, 0, "an F-factor in Pa^0.5", &par.hetp_f))
-                return CLI_EXIT_USAGE;
-            if (!(par.hetp_f >= 0))
-                return cli_usage_error("option '--reference-load': %g is negative (expected an "
-                                       "F-factor >= 0 in Pa^0.5)",
-                                       par.hetp_f);
-            break;
-        case O_FITS:
-            fits = optarg;
-            break;
-        case O_SAMPLES:
-            samples_out = optarg;
-            break;
-        case O_POINTS:
-            points_out = optarg;
-            break;
-        case O_REPORT:
-            report_out = optarg;
-            break;
-        case O_DRY:
-            dry = 1;
-            break;
-        case O_JSON:
-            json = 1;
-            break;
-        case O_QUIET:
-            cli_quiet = 1;
-            break;
-        default:
-            return cli_usage_getopt(c, argv, "calibrate");
-        }
+static void print_text(const stagecal_calibration *cal, const char *path, const struct request *rq,
+                       size_t nlogs)
+{
+    const stagecal_model *mo = &cal->model;
+    const stagecal_regress_result *fit =
+        cal->used == STAGECAL_MODEL_STAGE_SPACE ? &cal->stage_fit : &cal->comp_fit;
+    char rlo[32], rhi[32];
+    format_r(rlo, sizeof rlo, mo->r_min);
+    format_r(rhi, sizeof rhi, mo->r_max);
+    printf("stagecal calibration of column %s (%s / %s)\n", mo->column_id, mo->light, mo->heavy);
+    printf("evidence: %zu samples in %zu runs from %zu log(s); %zu quasi-steady windows "
+           "(%zu with stage counts) carry the fit\n",
+           cal->log->n, cal->log->nruns, nlogs, cal->evidence.n, cal->nev_stage);
+    printf("per-sample status: %zu ok, %zu pinch, %zu azeotrope, %zu invalid, %zu censored\n",
+           cal->res.count[0], cal->res.count[1], cal->res.count[2], cal->res.count[3],
+           cal->res.count[STAGECAL_RUNLOG_CENSORED]);
+    if (cal->nrank > 0) {
+        printf("forms ranked by AICc (stage space):");
+        for (size_t i = 0; i < cal->nrank && i < 4; i++)
+            if (cal->rank[i].status == STAGECAL_OK)
+                printf(" %s (dAICc %.1f)%s", cal->rank[i].form.name, cal->rank[i].delta_aicc,
+                       i + 1 < cal->nrank && i < 3 ? "," : "");
+        putchar('\n');
     }
-    if (!column)
-        return cli_usage_error("option '--column' is required (see 'stagecal calibrate --help')");
-    if (optind >= argc)
-        return cli_usage_error("no run log given (expected one or more RUNLOG.csv files)");
-    if (strcmp(par.form, "auto") != 0) {
-        stagecal_form f;
-        stagecal_error fe;
-        if (stagecal_form_parse(par.form, &f, &fe) != STAGECAL_OK)
-            return cli_usage_error("option '--form': %s", fe.text);
+    printf("\nform: %s   fit: %s\n", fit->form.name, stagecal_model_method_name(cal->used));
+    print_fit("", fit);
+    if (cal->used == STAGECAL_MODEL_COMPOSITION_SPACE && cal->stage_status == STAGECAL_OK)
+        print_fit("\nfor comparison, the stage-space fit:", &cal->stage_fit);
+    else if (cal->used == STAGECAL_MODEL_COMPOSITION_SPACE)
+        printf("\nstage-space fit: %s\n", cal->stage_message);
+    printf("\nenvelope (fitted conditions): R %s to %s", rlo, rhi);
+    if (mo->has_load)
+        printf(", F %.3g to %.3g Pa^0.5", mo->f_min, mo->f_max);
+    printf("\n");
+    if (mo->has_hetp) {
+        char rr[32], ff[48] = "";
+        format_r(rr, sizeof rr, mo->hetp_r);
+        if (mo->has_load)
+            snprintf(ff, sizeof ff, ", F = %.3g Pa^0.5", mo->hetp_f);
+        printf("HETP at R = %s%s: %.3f m (%.0f%% interval %.3f to %.3g m), packed height "
+               "%.3g m\n",
+               rr, ff, mo->hetp_m, 100 * mo->hetp_level, mo->hetp_low_m, mo->hetp_high_m,
+               mo->height_m);
     }
+    printf("stage convention: %s\n", stagecal_convention_text(mo->condenser));
+    for (size_t i = 0; i < mo->n_warnings; i++)
+        printf("warning: %s\n", mo->warnings[i]);
+    if (rq->out[OUT_REPORT])
+        printf("\nreport: %s\n", rq->out[OUT_REPORT]);
+    if (path[0])
+        printf("\nmodel file: %s\n", path);
+    else
+        printf("\nmodel file: not written (--dry-run)\n");
+}
 
-    const char *const *logs = (const char *const *)(argv + optind);
-    size_t nlogs = (size_t)(argc - optind);
+/* Calibrates, writes the model file and the other outputs, prints. An exit code. */
+static int run(int argc, char **argv, int first, stagecal_calibrate_params *par,
+               const struct request *rq, int json)
+{
+    const char *const *logs = (const char *const *)(argv + first);
+    size_t nlogs = (size_t)(argc - first);
+    int rc;
     /* an output written over an input would destroy it */
-    const struct {
-        const char *opt, *path;
-    } outs[3] = {{"samples-out", samples_out}, {"points-out", points_out}, {"report", report_out}};
-    for (int k = 0; k < 3; k++)
-        if ((rc = cli_check_output(outs[k].opt, outs[k].path, logs, nlogs)) ||
-            (rc = cli_check_output(outs[k].opt, outs[k].path, &column, 1)))
+    for (int k = 0; k < OUT_N; k++)
+        if ((rc = cli_check_output(out_opt[k], rq->out[k], logs, nlogs)) ||
+            (rc = cli_check_output(out_opt[k], rq->out[k], &rq->column, 1)))
             return rc;
     if (cli_progress_enabled()) {
-        par.progress = show_progress;
-        par.progress_ctx = NULL;
+        par->progress = show_progress;
+        par->progress_ctx = NULL;
     }
     stagecal_calibration cal;
     stagecal_error err;
     stagecal_error_clear(&err);
-    rc = stagecal_calibrate(column, logs, nlogs, &par, &cal, &err);
+    rc = stagecal_calibrate(rq->column, logs, nlogs, par, &cal, &err);
     if (rc != STAGECAL_OK) {
-        if (par.progress)
+        if (par->progress)
             fputc('\n', stderr);
         if (cal.findings && cal.findings->n_errors > 0) {
             print_findings(cal.findings, 1);
@@ -445,140 +392,92 @@ int cmd_calibrate(int argc, char **argv)
     if (!cli_quiet && cal.findings->n_warnings > 0)
         print_findings(cal.findings, 0);
 
-    const char *const out_path[OUT_N] = {samples_out, points_out, report_out};
     atomic_file out[OUT_N];
     for (int k = 0; k < OUT_N; k++)
         atomic_init(&out[k]);
     char path[4096] = "";
-    rc = prepare_outputs(&cal, out_path, out);
-    if (rc == CLI_EXIT_OK && !dry) {
+    rc = prepare_outputs(&cal, rq->out, out);
+    if (rc == CLI_EXIT_OK && !rq->dry) {
         char dir[4096];
         char *cmdline = join_args(argc, argv);
-        snprintf(dir, sizeof dir, "%s/%s", fits, cal.model.column_id);
+        snprintf(dir, sizeof dir, "%s/%s", rq->fits, cal.model.column_id);
         stagecal_model_set_command_line(&cal.model, cmdline, NULL);
         free(cmdline);
         if (stagecal_model_write(&cal.model, dir, path, sizeof path, &err) != STAGECAL_OK)
             rc = cli_fail(&err);
     }
     if (rc == CLI_EXIT_OK)
-        rc = publish_outputs(out_path, out, path);
+        rc = publish_outputs(rq->out, out, path);
     for (int k = 0; k < OUT_N; k++)
         atomic_discard(&out[k]);
-    if (rc != CLI_EXIT_OK) {
-        stagecal_calibration_free(&cal);
-        return rc;
-    }
-
-    const stagecal_model *mo = &cal.model;
-    const stagecal_regress_result *fit =
-        cal.used == STAGECAL_MODEL_STAGE_SPACE ? &cal.stage_fit : &cal.comp_fit;
-    char rlo[32], rhi[32];
-    format_r(rlo, sizeof rlo, mo->r_min);
-    format_r(rhi, sizeof rhi, mo->r_max);
-    if (json) {
-        json_t *doc = json_object(), *warn = json_array(), *rank = json_array();
-        json_object_set_new(doc, "format", json_string("stagecal-calibration"));
-        json_object_set_new(doc, "version", json_integer(1));
-        json_object_set_new(doc, "column", json_string(mo->column_id));
-        json_object_set_new(doc, "model_file", path[0] ? json_string(path) : json_null());
-        json_object_set_new(doc, "report", report_out ? json_string(report_out) : json_null());
-        json_object_set_new(doc, "method", json_string(stagecal_model_method_name(cal.used)));
-        json_object_set_new(doc, "form", json_string(fit->form.name));
-        json_object_set_new(doc, "parameters", params_json(fit));
-        json_object_set_new(doc, "rss", cli_json_real(fit->rss));
-        json_object_set_new(doc, "sigma", cli_json_real(mo->sigma));
-        json_object_set_new(doc, "dof", cli_json_real(mo->dof));
-        json_object_set_new(doc, "level", json_real(mo->level));
-        json_object_set_new(doc, "stage_space",
-                            fit_json(&cal.stage_fit, cal.stage_status, cal.stage_message));
-        json_object_set_new(doc, "composition_space",
-                            fit_json(&cal.comp_fit, cal.comp_status, cal.comp_message));
-        json_object_set_new(
-            doc, "evidence",
-            json_pack("{s:I,s:I,s:I,s:I,s:I,s:I,s:I,s:I}", "samples", (json_int_t)cal.log->n,
-                      "runs", (json_int_t)cal.log->nruns, "windows", (json_int_t)cal.evidence.n,
-                      "windows_with_stages", (json_int_t)cal.nev_stage, "samples_in_fit",
-                      (json_int_t)mo->n_samples, "pinch_samples",
-                      (json_int_t)cal.res.count[STAGECAL_STAGES_PINCH], "azeotrope_samples",
-                      (json_int_t)cal.res.count[STAGECAL_STAGES_AZEOTROPE], "censored_samples",
-                      (json_int_t)cal.res.count[STAGECAL_RUNLOG_CENSORED]));
-        json_object_set_new(doc, "envelope",
-                            json_pack("{s:o,s:o,s:o,s:o}", "r_min", cli_json_reflux(mo->r_min),
-                                      "r_max", cli_json_reflux(mo->r_max), "f_min",
-                                      mo->has_load ? json_real(mo->f_min) : json_null(), "f_max",
-                                      mo->has_load ? json_real(mo->f_max) : json_null()));
-        if (mo->has_hetp)
-            json_object_set_new(doc, "hetp",
-                                json_pack("{s:o,s:o,s:o,s:o,s:o,s:o}", "height_m",
-                                          json_real(mo->height_m), "r", cli_json_reflux(mo->hetp_r),
-                                          "f", json_real(mo->hetp_f), "hetp_m",
-                                          json_real(mo->hetp_m), "low_m", json_real(mo->hetp_low_m),
-                                          "high_m", cli_json_real(mo->hetp_high_m)));
-        for (size_t i = 0; i < cal.nrank; i++)
-            json_array_append_new(rank,
-                                  json_pack("{s:s,s:b,s:o,s:o,s:o}", "form", cal.rank[i].form.name,
-                                            "ok", cal.rank[i].status == STAGECAL_OK, "aicc",
-                                            cli_json_real(cal.rank[i].aicc), "delta_aicc",
-                                            cli_json_real(cal.rank[i].delta_aicc), "bic",
-                                            cli_json_real(cal.rank[i].bic)));
-        json_object_set_new(doc, "form_ranking", rank);
-        for (size_t i = 0; i < mo->n_warnings; i++)
-            json_array_append_new(warn, json_string(mo->warnings[i]));
-        json_object_set_new(doc, "warnings", warn);
-        json_object_set_new(doc, "findings",
-                            json_pack("{s:I,s:I}", "errors", (json_int_t)cal.findings->n_errors,
-                                      "warnings", (json_int_t)cal.findings->n_warnings));
-        json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
-        rc = cli_json_print(doc);
-    } else {
-        printf("stagecal calibration of column %s (%s / %s)\n", mo->column_id, mo->light,
-               mo->heavy);
-        printf("evidence: %zu samples in %zu runs from %zu log(s); %zu quasi-steady windows "
-               "(%zu with stage counts) carry the fit\n",
-               cal.log->n, cal.log->nruns, nlogs, cal.evidence.n, cal.nev_stage);
-        printf("per-sample status: %zu ok, %zu pinch, %zu azeotrope, %zu invalid, %zu censored\n",
-               cal.res.count[0], cal.res.count[1], cal.res.count[2], cal.res.count[3],
-               cal.res.count[STAGECAL_RUNLOG_CENSORED]);
-        if (cal.nrank > 0) {
-            printf("forms ranked by AICc (stage space):");
-            for (size_t i = 0; i < cal.nrank && i < 4; i++)
-                if (cal.rank[i].status == STAGECAL_OK)
-                    printf(" %s (dAICc %.1f)%s", cal.rank[i].form.name, cal.rank[i].delta_aicc,
-                           i + 1 < cal.nrank && i < 3 ? "," : "");
-            putchar('\n');
-        }
-        printf("\nform: %s   fit: %s\n", fit->form.name, stagecal_model_method_name(cal.used));
-        print_fit("", fit);
-        if (cal.used == STAGECAL_MODEL_COMPOSITION_SPACE && cal.stage_status == STAGECAL_OK)
-            print_fit("\nfor comparison, the stage-space fit:", &cal.stage_fit);
-        else if (cal.used == STAGECAL_MODEL_COMPOSITION_SPACE)
-            printf("\nstage-space fit: %s\n", cal.stage_message);
-        printf("\nenvelope (fitted conditions): R %s to %s", rlo, rhi);
-        if (mo->has_load)
-            printf(", F %.3g to %.3g Pa^0.5", mo->f_min, mo->f_max);
-        printf("\n");
-        if (mo->has_hetp) {
-            char rr[32], ff[48] = "";
-            format_r(rr, sizeof rr, mo->hetp_r);
-            if (mo->has_load)
-                snprintf(ff, sizeof ff, ", F = %.3g Pa^0.5", mo->hetp_f);
-            printf("HETP at R = %s%s: %.3f m (%.0f%% interval %.3f to %.3g m), packed height "
-                   "%.3g m\n",
-                   rr, ff, mo->hetp_m, 100 * mo->hetp_level, mo->hetp_low_m, mo->hetp_high_m,
-                   mo->height_m);
-        }
-        printf("stage convention: %s\n", stagecal_convention_text(mo->condenser));
-        for (size_t i = 0; i < mo->n_warnings; i++)
-            printf("warning: %s\n", mo->warnings[i]);
-        if (report_out)
-            printf("\nreport: %s\n", report_out);
-        if (path[0])
-            printf("\nmodel file: %s\n", path);
-        else
-            printf("\nmodel file: not written (--dry-run)\n");
-        printf("\n%s\n", stagecal_caution_text());
-        rc = CLI_EXIT_OK;
-    }
+    if (rc == CLI_EXIT_OK && json)
+        rc = print_json(&cal, path, rq);
+    else if (rc == CLI_EXIT_OK)
+        print_text(&cal, path, rq, nlogs);
     stagecal_calibration_free(&cal);
     return rc;
+}
+
+int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
+{
+    stagecal_calibrate_params par = stagecal_calibrate_default_params();
+    struct request rq = {NULL, "fits", {NULL, NULL, NULL}, 0};
+    long boot = 0, seed = (long)par.seed;
+    int method = 0, robust = -1, first, rc;
+    const struct cli_option opts[] = {
+        OPT_COLUMN(&rq.column, "the column file (docs/column-file.md), required"),
+        OPT_FORM(&par.form, "correlation form (docs/forms.md) or 'auto' (default: rank\n"
+                            "the candidate forms by AICc)"),
+        OPT_CHOICE("method", &method, "M",
+                   "auto (default: composition space, falling back to stage\n"
+                   "space), composition, or stage",
+                   method_names, "a method"),
+        OPT_LEVEL(&par.level),
+        OPT_MURPHREE(&par.murphree),
+        OPT_BOOTSTRAP(&boot),
+        OPT_SEED(&seed),
+        OPT_ROBUST(&robust),
+        OPT_REFLUX(&par.hetp_r, "reflux ratio at which HETP is reported, > 0 or 'inf'\n"
+                                "(default: the largest fitted)"),
+        OPT_ALIAS("reference-reflux", "reflux"),
+        OPT_FFACTOR(&par.hetp_f, "F-factor [Pa^0.5] at which HETP is reported (default: the\n"
+                                 "middle of the fitted range)"),
+        OPT_ALIAS("reference-load", "f-factor"),
+        OPT_FITS(&rq.fits),
+        OPT_STRING(0, "samples-out", &rq.out[OUT_SAMPLES], "FILE",
+                   "also write the per-sample inversion as CSV"),
+        OPT_STRING(0, "points-out", &rq.out[OUT_POINTS], "FILE",
+                   "also write the windows' stage counts as a points file\n"
+                   "(R,F,stages,sigma; for 'stagecal report --points')"),
+        OPT_STRING(0, "report-out", &rq.out[OUT_REPORT], "FILE.html",
+                   "also write the calibration's HTML report (charts, fit table,\n"
+                   "provenance, warnings, caution)"),
+        OPT_ALIAS("report", "report-out"),
+        OPT_FLAG(0, "dry-run", &rq.dry, "fit and summarise, write no model file"),
+        OPT__JSON(&ctx->json),
+        OPT__QUIET(),
+        OPT_END(),
+    };
+    if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
+        return rc;
+    par.bootstrap = (size_t)boot;
+    par.seed = (unsigned long)seed;
+    par.robust = cli_robust_kind(robust);
+    par.method = method == 1   ? STAGECAL_CAL_STAGE
+                 : method == 2 ? STAGECAL_CAL_COMPOSITION
+                               : STAGECAL_CAL_AUTO;
+    if (par.hetp_r == 0)
+        return cli_usage_error("option '--reflux': 0 is not positive (expected R > 0 or 'inf', "
+                               "the condition at which HETP is reported)");
+    if (!rq.column)
+        return cli_usage_error("option '--column' is required (see 'stagecal calibrate --help')");
+    if (first >= argc)
+        return cli_usage_error("no run log given (expected one or more RUNLOG.csv files)");
+    if (strcmp(par.form, "auto") != 0) {
+        stagecal_form f;
+        stagecal_error fe;
+        if (stagecal_form_parse(par.form, &f, &fe) != STAGECAL_OK)
+            return cli_usage_error("option '--form': %s", fe.text);
+    }
+    return run(argc, argv, first, &par, &rq, ctx->json);
 }

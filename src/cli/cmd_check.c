@@ -4,7 +4,6 @@
  * Exit 0 when there is no error, 65 when there is one, 66 when a file is missing,
  * 2 on a usage error.
  */
-#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -13,25 +12,19 @@
 #include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "options.h"
 #include "stagecal/column.h"
 #include "stagecal/runlog.h"
 
-static const char usage_text[] =
-    "usage: stagecal check [--column FILE] [--min-rows N] [--json] [--quiet] RUNLOG.csv...\n"
-    "\n"
+static const struct cli_usage usage = {
+    "usage: stagecal check [--column FILE] [--min-rows N] [--json] [--quiet] RUNLOG.csv...\n",
     "Reads run logs (docs/runlog.md) and prints what is wrong with them: unparseable or\n"
     "out-of-range values, time not increasing, W rising while distillate is drawn,\n"
     "xD below xB, unknown units, unknown, duplicate or missing columns, runs with too\n"
     "few rows; then each run's Rayleigh closure error, gross errors and xB analyser\n"
-    "drift (docs/methods.md). Exit status: 0 no errors (warnings allowed), 65 errors,\n"
-    "66 a file is missing, 2 usage.\n"
-    "\n"
-    "  --column FILE   column file: molar masses (mass units), latent heat (Q) and the\n"
-    "                  uncertainties the checks use (docs/column-file.md)\n"
-    "  --min-rows N    fewest rows a run may have (default 5)\n"
-    "  --json          one JSON document on stdout\n"
-    "  --quiet         no summary line on stderr\n"
-    "  -h, --help      this text\n";
+    "drift (docs/methods.md).\n",
+    "Exit status: 0 no errors in the rows (warnings and closure findings allowed), 65 errors,\n"
+    "66 a file is missing, 2 usage.\n"};
 
 static json_t *findings_json(const stagecal_findings *f)
 {
@@ -49,6 +42,60 @@ static json_t *findings_json(const stagecal_findings *f)
         json_array_append_new(arr, o);
     }
     return arr;
+}
+
+static int print_json(const stagecal_runlog *log, const stagecal_runlog_result *res,
+                      const stagecal_findings *f)
+{
+    json_t *doc = json_object(), *runs = json_array(), *files = json_array();
+    json_object_set_new(doc, "format", json_string("stagecal-check"));
+    json_object_set_new(doc, "version", json_integer(1));
+    for (size_t k = 0; k < log->nfiles; k++)
+        json_array_append_new(files, json_string(log->files[k]));
+    json_object_set_new(doc, "files", files);
+    json_object_set_new(doc, "rows", json_integer((json_int_t)log->n));
+    for (size_t k = 0; k < log->nruns; k++)
+        json_array_append_new(runs, cli_run_json(log, k, &res->closures[k]));
+    json_object_set_new(doc, "runs", runs);
+    json_object_set_new(doc, "findings", findings_json(f));
+    json_object_set_new(doc, "errors", json_integer((json_int_t)f->n_errors));
+    json_object_set_new(doc, "warnings", json_integer((json_int_t)f->n_warnings));
+    json_object_set_new(doc, "findings_truncated",
+                        json_boolean(f->n < f->n_errors + f->n_warnings));
+    json_object_set_new(doc, "units",
+                        json_pack("{s:s,s:s}", "closure",
+                                  "- (fraction of the initial light holdup)", "xb_drift_per_h",
+                                  "mol/mol per h"));
+    return cli_json_print(doc);
+}
+
+static int print_text(const stagecal_runlog *log, const stagecal_runlog_result *res,
+                      const stagecal_findings *f)
+{
+    for (size_t i = 0; i < f->n; i++)
+        printf("%s%s\n",
+               f->items[i].severity == STAGECAL_FINDING_ERROR ? "" : "warning: ", f->items[i].text);
+    if (f->n < f->n_errors + f->n_warnings)
+        printf("... %zu more findings not shown\n", f->n_errors + f->n_warnings - f->n);
+    for (size_t k = 0; k < log->nruns; k++) {
+        const stagecal_runlog_run *r = &log->runs[k];
+        const stagecal_runlog_closure *cl = &res->closures[k];
+        if (cl->n_used < 3) {
+            printf("%s:%ld: run '%s': %zu rows, too few complete rows for a balance\n",
+                   log->files[r->file], r->first_line, r->name, r->n);
+            continue;
+        }
+        printf("%s:%ld: run '%s': %zu rows, closure %+.2f %%", log->files[r->file], r->first_line,
+               r->name, r->n, 100.0 * cl->closure);
+        if (cl->u_closure > 0)
+            printf(" ± %.2f %%", 100.0 * cl->u_closure);
+        printf(", xB drift %+.3g /h ± %.2g%s%s", cl->drift_per_h, cl->u_drift_per_h,
+               cl->gross ? ", GROSS ERROR" : "", cl->drift ? ", ANALYSER DRIFT" : "");
+        if (cl->n_outliers)
+            printf(", %zu outlier samples", cl->n_outliers);
+        putchar('\n');
+    }
+    return 0;
 }
 
 /* The summary line on stderr. A run whose balance does not close is an error-level
@@ -74,46 +121,25 @@ static void summary(const stagecal_runlog *log, const stagecal_runlog_result *re
                 f->n_errors, f->n_warnings, gross);
 }
 
-int cmd_check(int argc, char **argv)
+int cmd_check(int argc, char **argv, cli_ctx *ctx)
 {
-    enum { O_COLUMN = 256, O_MINROWS, O_JSON, O_QUIET };
-    static const struct option opts[] = {{"column", required_argument, NULL, O_COLUMN},
-                                         {"min-rows", required_argument, NULL, O_MINROWS},
-                                         {"json", no_argument, NULL, O_JSON},
-                                         {"quiet", no_argument, NULL, O_QUIET},
-                                         {"help", no_argument, NULL, 'h'},
-                                         {0, 0, 0, 0}};
     const char *column_path = NULL;
+    long minrows = 0;
+    const struct cli_option opts[] = {
+        OPT_COLUMN(&column_path, "column file: molar masses (mass units), latent heat (Q) and\n"
+                                 "the uncertainties the checks use (docs/column-file.md)"),
+        OPT_MIN_ROWS(&minrows),
+        OPT__JSON(&ctx->json),
+        OPT__QUIET(),
+        OPT_END(),
+    };
     stagecal_runlog_params rp = stagecal_runlog_default_params();
-    int json = 0, c;
-    long minrows;
-
-    optind = 0;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
-        switch (c) {
-        case 'h':
-            fputs(usage_text, stdout);
-            return CLI_EXIT_OK;
-        case O_COLUMN:
-            column_path = optarg;
-            break;
-        case O_MINROWS:
-            if (cli_parse_long("min-rows", optarg, 1, 1000000000L, &minrows))
-                return CLI_EXIT_USAGE;
-            rp.min_rows = (size_t)minrows;
-            break;
-        case O_JSON:
-            json = 1;
-            break;
-        case O_QUIET:
-            cli_quiet = 1;
-            break;
-        default:
-            return cli_usage_getopt(c, argv, "check");
-        }
-    }
-    if (optind >= argc)
+    int first, rc = cli_parse(argc, argv, opts, &usage, &first);
+    if (rc)
+        return rc;
+    if (minrows > 0)
+        rp.min_rows = (size_t)minrows;
+    if (first >= argc)
         return cli_usage_error("no run log given (expected one or more RUNLOG.csv)");
 
     stagecal_column col;
@@ -137,8 +163,8 @@ int cmd_check(int argc, char **argv)
         cli_error("out of memory");
         return CLI_EXIT_SOFTWARE;
     }
-    int missing = 0, rc = CLI_EXIT_OK;
-    for (int i = optind; i < argc; i++) {
+    int missing = 0;
+    for (int i = first; i < argc; i++) {
         int s = stagecal_runlog_read(log, argv[i], have_col ? &col : NULL, &rp, f, &err);
         if (s == STAGECAL_ENOINPUT) {
             cli_error("%s", err.text);
@@ -154,72 +180,10 @@ int cmd_check(int argc, char **argv)
         rc = cli_fail(&err);
         goto done;
     }
-    if (json) {
-        json_t *doc = json_object(), *runs = json_array(), *files = json_array();
-        json_object_set_new(doc, "format", json_string("stagecal-check"));
-        json_object_set_new(doc, "version", json_integer(1));
-        for (size_t k = 0; k < log->nfiles; k++)
-            json_array_append_new(files, json_string(log->files[k]));
-        json_object_set_new(doc, "files", files);
-        json_object_set_new(doc, "rows", json_integer((json_int_t)log->n));
-        for (size_t k = 0; k < log->nruns; k++) {
-            const stagecal_runlog_run *r = &log->runs[k];
-            const stagecal_runlog_closure *cl = &res.closures[k];
-            json_t *o = json_object();
-            json_object_set_new(o, "name", json_string(r->name));
-            json_object_set_new(o, "source", json_string(log->files[r->file]));
-            json_object_set_new(o, "first_line", json_integer(r->first_line));
-            json_object_set_new(o, "rows", json_integer((json_int_t)r->n));
-            json_object_set_new(o, "rows_in_balance", json_integer((json_int_t)cl->n_used));
-            json_object_set_new(o, "closure", cli_json_real(cl->closure));
-            json_object_set_new(o, "u_closure", cli_json_real(cl->u_closure));
-            json_object_set_new(o, "gross_error", json_boolean(cl->gross));
-            json_object_set_new(o, "xb_drift_per_h", cli_json_real(cl->drift_per_h));
-            json_object_set_new(o, "u_xb_drift_per_h", cli_json_real(cl->u_drift_per_h));
-            json_object_set_new(o, "drift", json_boolean(cl->drift));
-            json_object_set_new(o, "outliers", json_integer((json_int_t)cl->n_outliers));
-            json_array_append_new(runs, o);
-        }
-        json_object_set_new(doc, "runs", runs);
-        json_object_set_new(doc, "findings", findings_json(f));
-        json_object_set_new(doc, "errors", json_integer((json_int_t)f->n_errors));
-        json_object_set_new(doc, "warnings", json_integer((json_int_t)f->n_warnings));
-        json_object_set_new(doc, "findings_truncated",
-                            json_boolean(f->n < f->n_errors + f->n_warnings));
-        json_object_set_new(doc, "units",
-                            json_pack("{s:s,s:s}", "closure",
-                                      "- (fraction of the initial light "
-                                      "holdup)",
-                                      "xb_drift_per_h", "mol/mol per h"));
-        if (cli_json_print(doc) != 0) {
-            rc = CLI_EXIT_CANTCREAT;
-            stagecal_runlog_result_free(&res);
-            goto done;
-        }
-    } else {
-        for (size_t i = 0; i < f->n; i++)
-            printf("%s%s\n", f->items[i].severity == STAGECAL_FINDING_ERROR ? "" : "warning: ",
-                   f->items[i].text);
-        if (f->n < f->n_errors + f->n_warnings)
-            printf("... %zu more findings not shown\n", f->n_errors + f->n_warnings - f->n);
-        for (size_t k = 0; k < log->nruns; k++) {
-            const stagecal_runlog_run *r = &log->runs[k];
-            const stagecal_runlog_closure *cl = &res.closures[k];
-            if (cl->n_used < 3) {
-                printf("%s:%ld: run '%s': %zu rows, too few complete rows for a balance\n",
-                       log->files[r->file], r->first_line, r->name, r->n);
-                continue;
-            }
-            printf("%s:%ld: run '%s': %zu rows, closure %+.2f %%", log->files[r->file],
-                   r->first_line, r->name, r->n, 100.0 * cl->closure);
-            if (cl->u_closure > 0)
-                printf(" ± %.2f %%", 100.0 * cl->u_closure);
-            printf(", xB drift %+.3g /h ± %.2g%s%s", cl->drift_per_h, cl->u_drift_per_h,
-                   cl->gross ? ", GROSS ERROR" : "", cl->drift ? ", ANALYSER DRIFT" : "");
-            if (cl->n_outliers)
-                printf(", %zu outlier samples", cl->n_outliers);
-            putchar('\n');
-        }
+    if (ctx->json ? print_json(log, &res, f) : print_text(log, &res, f)) {
+        rc = CLI_EXIT_CANTCREAT;
+        stagecal_runlog_result_free(&res);
+        goto done;
     }
     if (!cli_quiet)
         summary(log, &res, f);

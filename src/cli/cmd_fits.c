@@ -3,7 +3,6 @@
  * named by their data period and label (include/stagecal/fits.h), found by period or
  * label, labelled and retired with a reason in the column's catalogue.
  */
-#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -12,15 +11,15 @@
 #include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "options.h"
 #include "stagecal/fits.h"
 
-static const char usage_text[] =
+static const struct cli_usage usage = {
     "usage: stagecal fits list COLUMN [--fits DIR] [--events FILE] [--json]\n"
     "       stagecal fits find COLUMN SPEC [--fits DIR]\n"
     "       stagecal fits label COLUMN FIT LABEL [--fits DIR]\n"
     "       stagecal fits retire COLUMN FIT --reason TEXT [--fits DIR]\n"
-    "       stagecal fits restore COLUMN FIT [--fits DIR]\n"
-    "\n"
+    "       stagecal fits restore COLUMN FIT [--fits DIR]\n",
     "A fit is named COLUMN@FIRST..LAST (the days of its first and last logged sample),\n"
     "with #LABEL when labelled. 'list' shows every fit of the column with its name, file,\n"
     "label and retirement; with --events it flags fits whose data period straddles a\n"
@@ -29,15 +28,8 @@ static const char usage_text[] =
     "YYYY-MM-DD or FROM..TO that holds its whole data period. FIT in 'label', 'retire'\n"
     "and 'restore' is such a SPEC (or a file name). Labels and retirements live in\n"
     "DIR/COLUMN/catalogue; the model files are never changed. Retired fits are not found\n"
-    "and not trended.\n"
-    "\n"
-    "  --fits DIR       folder of model files, one subfolder per column (fits)\n"
-    "  --events FILE    repack/maintenance events (CSV: time,column,kind[,note])\n"
-    "  --reason TEXT    why the fit is retired (required by 'retire')\n"
-    "  --json           one JSON document on stdout ('list')\n"
-    "  -h, --help       this text\n"
-    "\n"
-    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 73 cannot write.\n";
+    "and not trended.\n",
+    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 73 cannot write.\n"};
 
 static json_t *entry_json(const stagecal_fit_entry *e, const stagecal_trend_event *ev)
 {
@@ -77,42 +69,24 @@ static int do_list(const stagecal_fit_entry *e, size_t n, const stagecal_trend_e
     return 0;
 }
 
-int cmd_fits(int argc, char **argv)
+int cmd_fits(int argc, char **argv, cli_ctx *ctx)
 {
-    enum { O_FITS = 256, O_EVENTS, O_REASON, O_JSON };
-    static const struct option opts[] = {{"fits", required_argument, NULL, O_FITS},
-                                         {"events", required_argument, NULL, O_EVENTS},
-                                         {"reason", required_argument, NULL, O_REASON},
-                                         {"json", no_argument, NULL, O_JSON},
-                                         {"help", no_argument, NULL, 'h'},
-                                         {0, 0, 0, 0}};
     const char *fits = "fits", *events = NULL, *reason = NULL;
-    int json = 0, c;
-    optind = 0;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
-        switch (c) {
-        case 'h':
-            fputs(usage_text, stdout);
-            return CLI_EXIT_OK;
-        case O_FITS:
-            fits = optarg;
-            break;
-        case O_EVENTS:
-            events = optarg;
-            break;
-        case O_REASON:
-            reason = optarg;
-            break;
-        case O_JSON:
-            json = 1;
-            break;
-        default:
-            return cli_usage_getopt(c, argv, "fits");
-        }
-    }
-    int nargs = argc - optind;
-    char **a = argv + optind;
+    const struct cli_option opts[] = {
+        OPT_FITS(&fits),
+        OPT_STRING(0, "events", &events, "FILE",
+                   "repack/maintenance events (CSV: time,column,kind[,note])"),
+        OPT_STRING(0, "reason", &reason, "TEXT", "why the fit is retired (required by 'retire')"),
+        OPT__JSON(&ctx->json),
+        OPT__QUIET(),
+        OPT_END(),
+    };
+    int first, rc0;
+    if ((rc0 = cli_parse(argc, argv, opts, &usage, &first)))
+        return rc0;
+    int json = ctx->json;
+    int nargs = argc - first;
+    char **a = argv + first;
     static const struct {
         const char *verb;
         int args; /* after the verb */

@@ -4,7 +4,6 @@
  * the change from the first to the second with a Welch test; checks against a design
  * HETP and a rule of thumb. The numerics live in the hetp module.
  */
-#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -13,15 +12,15 @@
 #include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "options.h"
 #include "stagecal/hetp.h"
 #include "stagecal/model.h"
 
-static const char usage_text[] =
-    "usage: stagecal hetp MODEL.json [MODEL2.json] --reflux R|inf [--fload F]\n"
+static const struct cli_usage usage = {
+    "usage: stagecal hetp MODEL.json [MODEL2.json] --reflux R|inf [--f-factor F]\n"
     "                     [--height H] [--trays N] [--design-hetp H]\n"
     "                     [--packing structured --area A | --packing random --size D]\n"
-    "                     [--level P] [--json] [--quiet]\n"
-    "\n"
+    "                     [--level P] [--json] [--quiet]\n",
     "HETP = packed height / column stages at reflux ratio R (and F-factor F), with a\n"
     "confidence interval: the t interval of the column stages mapped through H/N\n"
     "(exact for a monotone map). With a second model file (after a repack, or another\n"
@@ -29,23 +28,8 @@ static const char usage_text[] =
     "Welch test (Satterthwaite dof) at the level. For a trayed column (--trays, or a\n"
     "model without a packed height and --trays given) it reports the overall tray\n"
     "efficiency column stages / trays instead. Column stages = stages - 1 (total\n"
-    "condenser) or - 2 (partial condenser); the pot is a stage.\n"
-    "\n"
-    "  --reflux R        reference reflux ratio, >= 0 or 'inf'\n"
-    "  --fload F         reference F-factor [Pa^0.5] (needed when the form uses it)\n"
-    "  --height H        packed height [m]; default: the model file's height\n"
-    "  --trays N         actual trays: report overall tray efficiency instead of HETP\n"
-    "  --design-hetp H   design HETP [m] from the packing supplier's data sheet\n"
-    "  --packing KIND    'structured' (with --area) or 'random' (with --size) for the\n"
-    "                    rule-of-thumb check (from memory, see docs/hetp-trend.md)\n"
-    "  --area A          specific area of structured packing [m2/m3]\n"
-    "  --size D          nominal size of random packing [mm]\n"
-    "  --level P         confidence level, in (0, 1) (0.95)\n"
-    "  --json            one JSON document on stdout\n"
-    "  --quiet           no warnings on stderr\n"
-    "  -h, --help        this text\n"
-    "\n"
-    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n";
+    "condenser) or - 2 (partial condenser); the pot is a stage.\n",
+    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n"};
 
 /* One model file evaluated at the reference condition. */
 struct side {
@@ -97,320 +81,271 @@ static json_t *side_json(const struct side *sd, int trays)
     return o;
 }
 
-static int open_side(struct side *sd, double reflux, double fload, double height, int trays,
-                     double level)
+/* The whole job: options, the one or two model files, the checks. */
+struct job {
+    double reflux, fload, height, design, area, size_mm, level;
+    long trays;
+    int packing; /* -1: no rule-of-thumb check; else a stagecal_packing_kind */
+    int nfiles, have_diff;
+    struct side sd[2];
+    stagecal_hetp_diff diff;
+    stagecal_hetp_design_check dc;
+    stagecal_hetp_rule rule;
+};
+
+static const char *const packing_names[] = {"structured", "random", NULL};
+
+static int open_side(struct side *sd, const struct job *j)
 {
     stagecal_error err;
     stagecal_error_clear(&err);
     int rc = stagecal_model_load(sd->path, &sd->m, &err);
     if (rc)
         return cli_fail(&err);
-    if (sd->m.form.uses_load && isnan(fload))
-        return cli_usage_error("%s: form '%s' uses the vapour load: option '--fload F' is "
+    if (sd->m.form.uses_load && isnan(j->fload))
+        return cli_usage_error("%s: form '%s' uses the vapour load: option '--f-factor F' is "
                                "required (F-factor in Pa^0.5)",
                                sd->path, sd->m.form.name);
     /* The options were checked in cmd_hetp: what is still rejected as an invalid argument
      * comes from the model file (bad data, 65). */
-    if ((rc = stagecal_hetp_stages_from_model(&sd->m, reflux, fload, &sd->s, &sd->pt, &err)))
+    if ((rc = stagecal_hetp_stages_from_model(&sd->m, j->reflux, j->fload, &sd->s, &sd->pt, &err)))
         return cli_fail_data(&err);
     char at[64] = "";
     if (sd->m.form.uses_load)
-        snprintf(at, sizeof at, " and F = %g Pa^0.5", fload);
+        snprintf(at, sizeof at, " and F = %g Pa^0.5", j->fload);
     if (sd->pt.extrapolated)
-        cli_warn("%s: R = %g%s lies outside the fitted envelope (extrapolation)", sd->path, reflux,
-                 at);
-    if (trays > 0) {
+        cli_warn("%s: R = %g%s lies outside the fitted envelope (extrapolation)", sd->path,
+                 j->reflux, at);
+    if (j->trays > 0) {
         sd->height_m = NAN;
-        rc = stagecal_hetp_tray_efficiency(&sd->s, trays, level, &sd->tray, &err);
+        rc = stagecal_hetp_tray_efficiency(&sd->s, (int)j->trays, j->level, &sd->tray, &err);
     } else {
-        sd->height_m = !isnan(height) ? height : sd->m.has_hetp ? sd->m.height_m : NAN;
+        sd->height_m = !isnan(j->height) ? j->height : sd->m.has_hetp ? sd->m.height_m : NAN;
         if (isnan(sd->height_m)) {
             cli_error("%s: no packed height in the model file (give --height H, or --trays N "
                       "for a trayed column)",
                       sd->path);
             return CLI_EXIT_DATA;
         }
-        rc = stagecal_hetp_compute(sd->height_m, &sd->s, level, &sd->h, &err);
+        rc = stagecal_hetp_compute(sd->height_m, &sd->s, j->level, &sd->h, &err);
     }
     return rc ? cli_fail_data(&err) : 0;
 }
 
-static int positive(const char *opt, double v, const char *what)
+/* The comparison of two files, the design and the rule-of-thumb checks. */
+static int compare(struct job *j)
 {
-    if (!isnan(v) && !(v > 0)) {
-        cli_usage_error("option '--%s': %g is not positive (expected %s)", opt, v, what);
-        return 1;
+    stagecal_error err;
+    const struct side *a = &j->sd[0], *b = &j->sd[1], *cur = &j->sd[j->nfiles - 1];
+    int rc = 0;
+    stagecal_error_clear(&err);
+    if (j->have_diff) {
+        if (j->trays > 0)
+            rc = stagecal_hetp_welch(a->tray.efficiency, a->tray.se, a->s.dof, b->tray.efficiency,
+                                     b->tray.se, b->s.dof, j->level, &j->diff, &err);
+        else
+            rc = stagecal_hetp_welch(a->h.hetp_m, a->h.se_m, a->s.dof, b->h.hetp_m, b->h.se_m,
+                                     b->s.dof, j->level, &j->diff, &err);
+        if (rc) /* e.g. both standard errors 0: the model files' content */
+            return cli_fail_data(&err);
     }
+    /* The design and rule checks apply to the last file given (the current bed). */
+    if (!isnan(j->design) && stagecal_hetp_vs_design(&cur->h, j->design, &j->dc, &err))
+        return cli_fail(&err);
+    double size = j->packing == STAGECAL_PACKING_STRUCTURED ? j->area : j->size_mm * 1e-3;
+    if (j->packing >= 0 &&
+        stagecal_hetp_rule_of_thumb((stagecal_packing_kind)j->packing, size, &j->rule, &err))
+        return cli_usage_error("option '--%s': %s",
+                               j->packing == STAGECAL_PACKING_STRUCTURED ? "area" : "size",
+                               err.text);
     return 0;
 }
 
-int cmd_hetp(int argc, char **argv)
+static json_t *comparison_json(const struct job *j)
 {
-    enum {
-        O_REFLUX = 256,
-        O_FLOAD,
-        O_HEIGHT,
-        O_TRAYS,
-        O_DESIGN,
-        O_PACKING,
-        O_AREA,
-        O_SIZE,
-        O_LEVEL,
-        O_JSON,
-        O_QUIET
-    };
-    static const struct option opts[] = {{"reflux", required_argument, NULL, O_REFLUX},
-                                         {"fload", required_argument, NULL, O_FLOAD},
-                                         {"height", required_argument, NULL, O_HEIGHT},
-                                         {"trays", required_argument, NULL, O_TRAYS},
-                                         {"design-hetp", required_argument, NULL, O_DESIGN},
-                                         {"packing", required_argument, NULL, O_PACKING},
-                                         {"area", required_argument, NULL, O_AREA},
-                                         {"size", required_argument, NULL, O_SIZE},
-                                         {"level", required_argument, NULL, O_LEVEL},
-                                         {"json", no_argument, NULL, O_JSON},
-                                         {"quiet", no_argument, NULL, O_QUIET},
-                                         {"help", no_argument, NULL, 'h'},
-                                         {0, 0, 0, 0}};
-    double reflux = NAN, fload = NAN, height = NAN, design = NAN, area = NAN, size_mm = NAN;
-    double level = 0.95;
-    long trays = 0;
-    const char *packing = NULL;
-    int json = 0, c, rc;
+    const stagecal_hetp_diff *d = &j->diff;
+    if (!j->have_diff)
+        return json_null();
+    return json_pack(
+        "{s:s, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:b, s:s}", "quantity",
+        j->trays > 0 ? "tray_efficiency" : "hetp_m", "difference", cli_json_real(d->diff),
+        "relative_change", cli_json_real(d->rel_change), "se", cli_json_real(d->se), "dof",
+        cli_json_real(d->dof), "t", cli_json_real(d->t_stat), "p_value", cli_json_real(d->p_value),
+        "low", cli_json_real(d->low), "high", cli_json_real(d->high), "significant", d->significant,
+        "test", "two-sided Welch t, Satterthwaite dof (second minus first)");
+}
 
-    optind = 0;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
-        switch (c) {
-        case 'h':
-            fputs(usage_text, stdout);
-            return CLI_EXIT_OK;
-        case O_REFLUX:
-            if (cli_parse_double("reflux", optarg, 1, "a reflux ratio >= 0 or 'inf'", &reflux))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_FLOAD:
-            if (cli_parse_double("fload", optarg, 0, "an F-factor in Pa^0.5", &fload))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_HEIGHT:
-            if (cli_parse_double("height", optarg, 0, "a packed height in m", &height))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_TRAYS:
-            if (cli_parse_long("trays", optarg, 1, 1000, &trays))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_DESIGN:
-            if (cli_parse_double("design-hetp", optarg, 0, "a design HETP in m", &design))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_PACKING:
-            packing = optarg;
-            break;
-        case O_AREA:
-            if (cli_parse_double("area", optarg, 0, "a specific area in m2/m3", &area))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_SIZE:
-            if (cli_parse_double("size", optarg, 0, "a nominal packing size in mm", &size_mm))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_LEVEL:
-            if (cli_parse_double("level", optarg, 0, "a confidence level in (0, 1)", &level))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_JSON:
-            json = 1;
-            break;
-        case O_QUIET:
-            cli_quiet = 1;
-            break;
-        default:
-            return cli_usage_getopt(c, argv, "hetp");
-        }
-    }
-    int nfiles = argc - optind;
-    if (nfiles < 1)
-        return cli_usage_error("a model file is required (see 'stagecal hetp --help')");
-    if (nfiles > 2)
-        return cli_usage_error("unexpected argument '%s' (expected one or two model files)",
-                               argv[optind + 2]);
-    if ((rc = cli_require("reflux", reflux)))
-        return rc;
-    if ((rc = cli_check_reflux("reflux", reflux)))
-        return rc;
-    if (!(level > 0 && level < 1))
-        return cli_usage_error("option '--level': %g is outside (0, 1) (expected e.g. 0.95)",
-                               level);
-    if (positive("height", height, "a packed height in m") ||
-        positive("design-hetp", design, "a design HETP in m") ||
-        positive("area", area, "a specific area in m2/m3") ||
-        positive("size", size_mm, "a nominal packing size in mm") ||
-        (!isnan(fload) && !(fload >= 0) &&
-         cli_usage_error("option '--fload': %g is negative (expected F >= 0)", fload)))
-        return CLI_EXIT_USAGE;
-    stagecal_packing_kind kind = STAGECAL_PACKING_STRUCTURED;
-    double rule_size = NAN;
-    if (packing) {
-        if (stagecal_packing_kind_parse(packing, &kind) != 0)
-            return cli_usage_error("option '--packing': '%s' is unknown (expected 'structured' "
-                                   "or 'random')",
-                                   packing);
-        if (kind == STAGECAL_PACKING_STRUCTURED && isnan(area))
-            return cli_usage_error("option '--packing structured' needs '--area A' (m2/m3)");
-        if (kind == STAGECAL_PACKING_RANDOM && isnan(size_mm))
-            return cli_usage_error("option '--packing random' needs '--size D' (mm)");
-        rule_size = kind == STAGECAL_PACKING_STRUCTURED ? area : size_mm * 1e-3; /* mm → m */
-    } else if (!isnan(area) || !isnan(size_mm)) {
-        return cli_usage_error("options '--area' and '--size' need '--packing KIND'");
-    }
-    if (trays > 0 && (!isnan(height) || !isnan(design) || packing))
-        return cli_usage_error("option '--trays' excludes '--height', '--design-hetp' and "
-                               "'--packing' (a trayed column has no HETP)");
+static int print_json(const struct job *j)
+{
+    const struct side *cur = &j->sd[j->nfiles - 1];
+    json_t *doc = json_object(), *models = json_array();
+    json_object_set_new(doc, "format", json_string("stagecal-hetp"));
+    json_object_set_new(doc, "version", json_integer(1));
+    json_object_set_new(doc, "reflux", cli_json_reflux(j->reflux));
+    json_object_set_new(doc, "f_factor", cli_json_real(j->fload));
+    json_object_set_new(doc, "fload", cli_json_real(j->fload)); /* the name of version 1 */
+    json_object_set_new(doc, "level", json_real(j->level));
+    json_object_set_new(doc, "units",
+                        json_pack("{s:s, s:s, s:s, s:s}", "hetp", "m", "height", "m", "f_factor",
+                                  "Pa^0.5", "fload", "Pa^0.5"));
+    json_object_set_new(doc, "stage_convention", json_string(stagecal_convention_text_any()));
+    for (int i = 0; i < j->nfiles; i++)
+        json_array_append_new(models, side_json(&j->sd[i], (int)j->trays));
+    json_object_set_new(doc, "models", models);
+    json_object_set_new(doc, "comparison", comparison_json(j));
+    const stagecal_hetp_design_check *dc = &j->dc;
+    json_object_set_new(
+        doc, "design",
+        isnan(j->design)
+            ? json_null()
+            : json_pack("{s:o, s:o, s:o, s:o, s:s}", "design_hetp_m", cli_json_real(dc->design_m),
+                        "ratio", cli_json_real(dc->ratio), "ratio_low",
+                        cli_json_real(dc->ratio_low), "ratio_high", real_or_inf(dc->ratio_high),
+                        "verdict", stagecal_hetp_verdict_name(dc->verdict)));
+    const stagecal_hetp_rule *r = &j->rule;
+    json_object_set_new(
+        doc, "rule_of_thumb",
+        j->packing < 0
+            ? json_null()
+            : json_pack("{s:s, s:o, s:o, s:o, s:o, s:s, s:s, s:s}", "packing",
+                        stagecal_packing_kind_name((stagecal_packing_kind)j->packing), "size",
+                        cli_json_real(r->size), "hetp_m", cli_json_real(r->hetp_m), "low_m",
+                        cli_json_real(r->low_m), "high_m", cli_json_real(r->high_m), "rule",
+                        r->rule, "source", r->source, "verdict",
+                        stagecal_hetp_verdict_name(stagecal_hetp_vs_rule(&cur->h, r))));
+    json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
+    return cli_json_print(doc);
+}
 
-    struct side sd[2];
-    memset(sd, 0, sizeof sd);
-    for (int i = 0; i < 2; i++)
-        stagecal_model_init(&sd[i].m);
-    int nt = (int)trays;
-    for (int i = 0; i < nfiles; i++) {
-        sd[i].path = argv[optind + i];
-        if ((rc = open_side(&sd[i], reflux, fload, height, nt, level)))
-            goto done;
-    }
+static void print_side(const struct job *j, const struct side *s, int pct)
+{
+    char at[64] = "";
+    if (s->m.form.uses_load)
+        snprintf(at, sizeof at, " and F = %g Pa^0.5", j->fload);
+    printf("%s (column %s, fitted %s)\n", s->path, s->m.column_id, s->m.fitted_utc);
+    printf("  stages at R = %g%s: %.3f (the pot included); column stages %.3f "
+           "(se %.3f, %.3g dof)%s\n",
+           j->reflux, at, s->pt.stages, s->s.column_stages, s->s.se, s->s.dof,
+           s->pt.extrapolated ? " [EXTRAPOLATED]" : "");
+    if (j->trays > 0)
+        printf("  overall tray efficiency %.3f on %ld trays, %d %% CI [%.3f, %.3f]\n",
+               s->tray.efficiency, j->trays, pct, s->tray.low, s->tray.high);
+    else if (s->h.unbounded)
+        printf("  HETP %.3f m over %.3f m packed, %d %% CI [%.3f m, unbounded] (the stage "
+               "interval reaches 0)\n",
+               s->h.hetp_m, s->height_m, pct, s->h.low_m);
+    else
+        printf("  HETP %.3f m over %.3f m packed, %d %% CI [%.3f, %.3f] m (delta-method se "
+               "%.3f m)\n",
+               s->h.hetp_m, s->height_m, pct, s->h.low_m, s->h.high_m, s->h.se_m);
+}
 
-    stagecal_error err;
-    stagecal_error_clear(&err);
-    int have_diff = nfiles == 2;
-    stagecal_hetp_diff diff;
-    if (have_diff) {
-        if (nt > 0)
-            rc = stagecal_hetp_welch(sd[0].tray.efficiency, sd[0].tray.se, sd[0].s.dof,
-                                     sd[1].tray.efficiency, sd[1].tray.se, sd[1].s.dof, level,
-                                     &diff, &err);
-        else
-            rc = stagecal_hetp_welch(sd[0].h.hetp_m, sd[0].h.se_m, sd[0].s.dof, sd[1].h.hetp_m,
-                                     sd[1].h.se_m, sd[1].s.dof, level, &diff, &err);
-        if (rc) { /* e.g. both standard errors 0: the model files' content */
-            rc = cli_fail_data(&err);
-            goto done;
-        }
-    }
-    /* The design and rule checks apply to the last file given (the current bed). */
-    const struct side *cur = &sd[nfiles - 1];
-    stagecal_hetp_design_check dc;
-    stagecal_hetp_rule rule;
-    if (!isnan(design) && (rc = stagecal_hetp_vs_design(&cur->h, design, &dc, &err))) {
-        rc = cli_fail(&err);
-        goto done;
-    }
-    if (packing && (rc = stagecal_hetp_rule_of_thumb(kind, rule_size, &rule, &err))) {
-        rc = cli_usage_error("option '--%s': %s",
-                             kind == STAGECAL_PACKING_STRUCTURED ? "area" : "size", err.text);
-        goto done;
-    }
-
-    if (json) {
-        json_t *doc = json_object();
-        json_object_set_new(doc, "format", json_string("stagecal-hetp"));
-        json_object_set_new(doc, "version", json_integer(1));
-        json_object_set_new(doc, "reflux", cli_json_reflux(reflux));
-        json_object_set_new(doc, "fload", cli_json_real(fload));
-        json_object_set_new(doc, "level", json_real(level));
-        json_object_set_new(
-            doc, "units",
-            json_pack("{s:s, s:s, s:s}", "hetp", "m", "height", "m", "fload", "Pa^0.5"));
-        json_object_set_new(doc, "stage_convention", json_string(stagecal_convention_text_any()));
-        json_t *models = json_array();
-        for (int i = 0; i < nfiles; i++)
-            json_array_append_new(models, side_json(&sd[i], nt));
-        json_object_set_new(doc, "models", models);
-        if (have_diff)
-            json_object_set_new(
-                doc, "comparison",
-                json_pack("{s:s, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:b, s:s}", "quantity",
-                          nt > 0 ? "tray_efficiency" : "hetp_m", "difference",
-                          cli_json_real(diff.diff), "relative_change",
-                          cli_json_real(diff.rel_change), "se", cli_json_real(diff.se), "dof",
-                          cli_json_real(diff.dof), "t", cli_json_real(diff.t_stat), "p_value",
-                          cli_json_real(diff.p_value), "low", cli_json_real(diff.low), "high",
-                          cli_json_real(diff.high), "significant", diff.significant, "test",
-                          "two-sided Welch t, Satterthwaite dof (second minus first)"));
-        else
-            json_object_set_new(doc, "comparison", json_null());
-        json_object_set_new(doc, "design",
-                            isnan(design) ? json_null()
-                                          : json_pack("{s:o, s:o, s:o, s:o, s:s}", "design_hetp_m",
-                                                      cli_json_real(dc.design_m), "ratio",
-                                                      cli_json_real(dc.ratio), "ratio_low",
-                                                      cli_json_real(dc.ratio_low), "ratio_high",
-                                                      real_or_inf(dc.ratio_high), "verdict",
-                                                      stagecal_hetp_verdict_name(dc.verdict)));
-        json_object_set_new(
-            doc, "rule_of_thumb",
-            !packing
-                ? json_null()
-                : json_pack("{s:s, s:o, s:o, s:o, s:o, s:s, s:s, s:s}", "packing",
-                            stagecal_packing_kind_name(kind), "size", cli_json_real(rule.size),
-                            "hetp_m", cli_json_real(rule.hetp_m), "low_m",
-                            cli_json_real(rule.low_m), "high_m", cli_json_real(rule.high_m), "rule",
-                            rule.rule, "source", rule.source, "verdict",
-                            stagecal_hetp_verdict_name(stagecal_hetp_vs_rule(&cur->h, &rule))));
-        json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
-        rc = cli_json_print(doc);
-        goto done;
-    }
-
-    int pct = (int)lround(level * 100);
-    for (int i = 0; i < nfiles; i++) {
-        const struct side *s = &sd[i];
-        char at[64] = "";
-        if (s->m.form.uses_load)
-            snprintf(at, sizeof at, " and F = %g Pa^0.5", fload);
-        printf("%s (column %s, fitted %s)\n", s->path, s->m.column_id, s->m.fitted_utc);
-        printf("  stages at R = %g%s: %.3f (the pot included); column stages %.3f "
-               "(se %.3f, %.3g dof)%s\n",
-               reflux, at, s->pt.stages, s->s.column_stages, s->s.se, s->s.dof,
-               s->pt.extrapolated ? " [EXTRAPOLATED]" : "");
-        if (nt > 0)
-            printf("  overall tray efficiency %.3f on %d trays, %d %% CI [%.3f, %.3f]\n",
-                   s->tray.efficiency, nt, pct, s->tray.low, s->tray.high);
-        else if (s->h.unbounded)
-            printf("  HETP %.3f m over %.3f m packed, %d %% CI [%.3f m, unbounded] (the stage "
-                   "interval reaches 0)\n",
-                   s->h.hetp_m, s->height_m, pct, s->h.low_m);
-        else
-            printf("  HETP %.3f m over %.3f m packed, %d %% CI [%.3f, %.3f] m (delta-method se "
-                   "%.3f m)\n",
-                   s->h.hetp_m, s->height_m, pct, s->h.low_m, s->h.high_m, s->h.se_m);
-    }
-    if (have_diff) {
-        const char *unit = nt > 0 ? "" : " m";
-        printf("change second - first: %+.3f%s (%+.1f %%), %d %% CI [%+.3f, %+.3f]%s\n", diff.diff,
-               unit, 100 * diff.rel_change, pct, diff.low, diff.high, unit);
+static void print_text(const struct job *j)
+{
+    const struct side *cur = &j->sd[j->nfiles - 1];
+    const stagecal_hetp_diff *d = &j->diff;
+    int pct = (int)lround(j->level * 100);
+    for (int i = 0; i < j->nfiles; i++)
+        print_side(j, &j->sd[i], pct);
+    if (j->have_diff) {
+        const char *unit = j->trays > 0 ? "" : " m";
+        printf("change second - first: %+.3f%s (%+.1f %%), %d %% CI [%+.3f, %+.3f]%s\n", d->diff,
+               unit, 100 * d->rel_change, pct, d->low, d->high, unit);
         printf("  Welch t = %.3f, %.3g dof (Satterthwaite), p = %.3g: %s at the %d %% level\n",
-               diff.t_stat, diff.dof, diff.p_value,
-               diff.significant ? "a significant difference" : "no significant difference", pct);
+               d->t_stat, d->dof, d->p_value,
+               d->significant ? "a significant difference" : "no significant difference", pct);
     }
-    if (!isnan(design)) {
+    if (!isnan(j->design)) {
         char hi[32];
-        if (isinf(dc.ratio_high))
+        if (isinf(j->dc.ratio_high))
             snprintf(hi, sizeof hi, "unbounded");
         else
-            snprintf(hi, sizeof hi, "%.3f", dc.ratio_high);
-        printf("design HETP %.3f m: measured/design %.3f, %d %% CI [%.3f, %s] -> %s%s\n", design,
-               dc.ratio, pct, dc.ratio_low, hi, stagecal_hetp_verdict_name(dc.verdict),
-               have_diff ? " (second file)" : "");
+            snprintf(hi, sizeof hi, "%.3f", j->dc.ratio_high);
+        printf("design HETP %.3f m: measured/design %.3f, %d %% CI [%.3f, %s] -> %s%s\n", j->design,
+               j->dc.ratio, pct, j->dc.ratio_low, hi, stagecal_hetp_verdict_name(j->dc.verdict),
+               j->have_diff ? " (second file)" : "");
     }
-    if (packing)
-        printf("rule of thumb (%s): %.3f m, range %.3f-%.3f m -> %s%s\n  source: %s\n", rule.rule,
-               rule.hetp_m, rule.low_m, rule.high_m,
-               stagecal_hetp_verdict_name(stagecal_hetp_vs_rule(&cur->h, &rule)),
-               have_diff ? " (second file)" : "", rule.source);
-    rc = CLI_EXIT_OK;
-done:
+    if (j->packing >= 0)
+        printf("rule of thumb (%s): %.3f m, range %.3f-%.3f m -> %s%s\n  source: %s\n",
+               j->rule.rule, j->rule.hetp_m, j->rule.low_m, j->rule.high_m,
+               stagecal_hetp_verdict_name(stagecal_hetp_vs_rule(&cur->h, &j->rule)),
+               j->have_diff ? " (second file)" : "", j->rule.source);
+}
+
+/* Checks that need more than one option; returns 0 or the usage error's exit code. */
+static int check_options(const struct job *j)
+{
+    if (j->packing == STAGECAL_PACKING_STRUCTURED && isnan(j->area))
+        return cli_usage_error("option '--packing structured' needs '--area A' (m2/m3)");
+    if (j->packing == STAGECAL_PACKING_RANDOM && isnan(j->size_mm))
+        return cli_usage_error("option '--packing random' needs '--size D' (mm)");
+    if (j->packing < 0 && (!isnan(j->area) || !isnan(j->size_mm)))
+        return cli_usage_error("options '--area' and '--size' need '--packing KIND'");
+    if (j->trays > 0 && (!isnan(j->height) || !isnan(j->design) || j->packing >= 0))
+        return cli_usage_error("option '--trays' excludes '--height', '--design-hetp' and "
+                               "'--packing' (a trayed column has no HETP)");
+    return 0;
+}
+
+#define OPT_POSITIVE(l, v, a, h, exp)                                                              \
+    OPT_DOUBLE((l), (v), (a), (h), 0, INFINITY, CLI_D_LO_OPEN, (exp))
+
+int cmd_hetp(int argc, char **argv, cli_ctx *ctx)
+{
+    struct job j;
+    memset(&j, 0, sizeof j);
+    j.reflux = j.fload = j.height = j.design = j.area = j.size_mm = NAN;
+    j.level = 0.95;
+    j.packing = -1;
+    const struct cli_option opts[] = {
+        OPT_REFLUX(&j.reflux, "reference reflux ratio, >= 0 or 'inf'"),
+        OPT_FFACTOR(&j.fload, "reference F-factor [Pa^0.5] (needed when the form uses it)"),
+        OPT_ALIAS("fload", "f-factor"),
+        OPT_POSITIVE("height", &j.height, "H",
+                     "packed height [m]; default: the model file's height", "a packed height in m"),
+        OPT_LONG("trays", &j.trays, "N",
+                 "actual trays: report overall tray efficiency instead of HETP", 1, 1000),
+        OPT_POSITIVE("design-hetp", &j.design, "H",
+                     "design HETP [m] from the packing supplier's data sheet",
+                     "a design HETP in m"),
+        OPT_CHOICE("packing", &j.packing, "KIND",
+                   "'structured' (with --area) or 'random' (with --size) for the\n"
+                   "rule-of-thumb check (common practice; sources in docs/hetp-trend.md)",
+                   packing_names, NULL),
+        OPT_POSITIVE("area", &j.area, "A", "specific area of structured packing [m2/m3]",
+                     "a specific area in m2/m3"),
+        OPT_POSITIVE("size", &j.size_mm, "D", "nominal size of random packing [mm]",
+                     "a nominal packing size in mm"),
+        OPT_LEVEL(&j.level),
+        OPT__JSON(&ctx->json),
+        OPT__QUIET(),
+        OPT_END(),
+    };
+    int first, rc;
+    if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
+        return rc;
+    j.nfiles = argc - first;
+    if (j.nfiles < 1)
+        return cli_usage_error("a model file is required (see 'stagecal hetp --help')");
+    if (j.nfiles > 2)
+        return cli_usage_error("unexpected argument '%s' (expected one or two model files)",
+                               argv[first + 2]);
+    if ((rc = cli_require("reflux", j.reflux)) || (rc = check_options(&j)))
+        return rc;
+    j.have_diff = j.nfiles == 2;
     for (int i = 0; i < 2; i++)
-        stagecal_model_free(&sd[i].m);
+        stagecal_model_init(&j.sd[i].m);
+    for (int i = 0; i < j.nfiles && rc == 0; i++) {
+        j.sd[i].path = argv[first + i];
+        rc = open_side(&j.sd[i], &j);
+    }
+    if (rc == 0)
+        rc = compare(&j);
+    if (rc == 0 && ctx->json)
+        rc = print_json(&j);
+    else if (rc == 0)
+        print_text(&j);
+    for (int i = 0; i < 2; i++)
+        stagecal_model_free(&j.sd[i].m);
     return rc;
 }

@@ -7,7 +7,6 @@
  * of hetp.h; and a self-starting EWMA/CUSUM chart of the runs (chart.h). Windows come
  * from the calibration chain (calibrate.h); runs can be excluded with a reason.
  */
-#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -17,6 +16,7 @@
 #include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "options.h"
 #include "stagecal/calibrate.h"
 #include "stagecal/chart.h"
 #include "stagecal/convention.h"
@@ -24,12 +24,11 @@
 #include "stagecal/history.h"
 #include "stagecal/units.h"
 
-static const char usage_text[] =
+static const struct cli_usage usage = {
     "usage: stagecal history --column FILE RUNLOG.csv... --reflux R|inf [--f-factor F]\n"
     "                        [--form NAME] [--events FILE] [--require N] [--now DATE]\n"
     "                        [--level P] [--min-runs K] [--exclude-run RUN=REASON]...\n"
-    "                        [--design-hetp H] [--margin M] [--json] [--quiet]\n"
-    "\n"
+    "                        [--design-hetp H] [--margin M] [--json] [--quiet]\n",
     "One fit over every quasi-steady window of the logs: stages = correlation(R, F) x\n"
     "(level - loss x months since the last repack/maintenance event), a level and a loss\n"
     "per segment, intervals from run-clustered (CR2) standard errors with Bell-McCaffrey\n"
@@ -38,25 +37,8 @@ static const char usage_text[] =
     "below N with a band; before/after the last event with TOST equivalence verdicts\n"
     "against the old bed when new and (--design-hetp) the design HETP; and a\n"
     "self-starting EWMA/CUSUM chart of the runs of the current segment. Answers the\n"
-    "evidence cannot give are printed as 'not determined' with the reason.\n"
-    "\n"
-    "  --column FILE        the column file (packed height, condenser, equilibrium)\n"
-    "  --reflux R           stated reflux ratio, > 0 or 'inf'\n"
-    "  --f-factor F         stated F-factor [Pa^0.5] (needed when the form uses it)\n"
-    "  --form NAME          correlation form (saturating)\n"
-    "  --events FILE        repack/maintenance events (CSV: time,column,kind[,note])\n"
-    "  --require N          stages the product needs, for the crossing date\n"
-    "  --now DATE           date of 'now' (ISO 8601; default: the last window)\n"
-    "  --level P            confidence level, in (0, 1) (0.95)\n"
-    "  --min-runs K         runs a segment needs for its own level and loss (3)\n"
-    "  --exclude-run R=WHY  leave run R out, with the reason (repeatable)\n"
-    "  --design-hetp H      design HETP [m] for 'as good as the design figure'\n"
-    "  --margin M           equivalence margin, a fraction (0.10)\n"
-    "  --json               one JSON document on stdout\n"
-    "  --quiet              no warnings on stderr\n"
-    "  -h, --help           this text\n"
-    "\n"
-    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n";
+    "evidence cannot give are printed as 'not determined' with the reason.\n",
+    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n"};
 
 #define MAX_EXCLUDE 64
 
@@ -128,133 +110,70 @@ static json_t *equiv_json(const stagecal_hetp_equiv *q)
                      nd ? json_null() : cli_json_real(q->p), "dof", cli_json_real(q->dof));
 }
 
-static int parse_options(int argc, char **argv, struct options *o)
+static int take_exclusions(struct options *o, const char *const *text)
 {
-    enum {
-        O_COLUMN = 256,
-        O_REFLUX,
-        O_FLOAD,
-        O_FORM,
-        O_EVENTS,
-        O_REQUIRE,
-        O_NOW,
-        O_LEVEL,
-        O_MINRUNS,
-        O_EXCLUDE,
-        O_DESIGN,
-        O_MARGIN,
-        O_JSON,
-        O_QUIET
-    };
-    static const struct option opts[] = {{"column", required_argument, NULL, O_COLUMN},
-                                         {"reflux", required_argument, NULL, O_REFLUX},
-                                         {"f-factor", required_argument, NULL, O_FLOAD},
-                                         {"form", required_argument, NULL, O_FORM},
-                                         {"events", required_argument, NULL, O_EVENTS},
-                                         {"require", required_argument, NULL, O_REQUIRE},
-                                         {"now", required_argument, NULL, O_NOW},
-                                         {"level", required_argument, NULL, O_LEVEL},
-                                         {"min-runs", required_argument, NULL, O_MINRUNS},
-                                         {"exclude-run", required_argument, NULL, O_EXCLUDE},
-                                         {"design-hetp", required_argument, NULL, O_DESIGN},
-                                         {"margin", required_argument, NULL, O_MARGIN},
-                                         {"json", no_argument, NULL, O_JSON},
-                                         {"quiet", no_argument, NULL, O_QUIET},
-                                         {"help", no_argument, NULL, 'h'},
-                                         {0, 0, 0, 0}};
-    int c;
-    optind = 0;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
-        int bad = 0;
-        switch (c) {
-        case 'h':
-            fputs(usage_text, stdout);
-            return -1;
-        case O_COLUMN:
-            o->column = optarg;
-            break;
-        case O_FORM:
-            o->form = optarg;
-            break;
-        case O_EVENTS:
-            o->events = optarg;
-            break;
-        case O_REFLUX:
-            bad = cli_parse_double("reflux", optarg, 1, "a reflux ratio > 0 or 'inf'", &o->reflux);
-            break;
-        case O_FLOAD:
-            bad = cli_parse_double("f-factor", optarg, 0, "an F-factor in Pa^0.5", &o->fload);
-            break;
-        case O_REQUIRE:
-            bad = cli_parse_double("require", optarg, 0, "a number of stages", &o->require);
-            break;
-        case O_LEVEL:
-            bad = cli_parse_double("level", optarg, 0, "a confidence level in (0, 1)", &o->level);
-            break;
-        case O_DESIGN:
-            bad = cli_parse_double("design-hetp", optarg, 0, "a design HETP in m", &o->design);
-            break;
-        case O_MARGIN:
-            bad = cli_parse_double("margin", optarg, 0, "a fraction, e.g. 0.10", &o->margin);
-            break;
-        case O_MINRUNS:
-            bad = cli_parse_long("min-runs", optarg, 2, 1000, &o->min_runs);
-            break;
-        case O_NOW:
-            if (stagecal_units_parse_iso8601(optarg, &o->now_s) != 0)
-                return cli_usage_error("option '--now': '%s' is not a date (expected ISO 8601, "
-                                       "e.g. 2026-03-01T00:00:00Z)",
-                                       optarg);
-            break;
-        case O_EXCLUDE: {
-            const char *eq = strchr(optarg, '=');
-            if (!eq || eq == optarg || !eq[1] || (size_t)(eq - optarg) >= sizeof o->ex[0].run ||
-                o->n_ex == MAX_EXCLUDE)
-                return cli_usage_error("option '--exclude-run': '%s' is not RUN=REASON (expected "
-                                       "e.g. K7-018='analyser drift', at most %d)",
-                                       optarg, MAX_EXCLUDE);
-            struct exclusion *x = &o->ex[o->n_ex++];
-            memcpy(x->run, optarg, (size_t)(eq - optarg));
-            x->run[eq - optarg] = '\0';
-            x->reason = eq + 1;
-            break;
-        }
-        case O_JSON:
-            o->json = 1;
-            break;
-        case O_QUIET:
-            cli_quiet = 1;
-            break;
-        default:
-            return cli_usage_getopt(c, argv, "history");
-        }
-        if (bad)
-            return CLI_EXIT_USAGE;
+    for (; *text; text++) {
+        const char *eq = strchr(*text, '=');
+        if (!eq || eq == *text || !eq[1] || (size_t)(eq - *text) >= sizeof o->ex[0].run)
+            return cli_usage_error("option '--exclude-run': '%s' is not RUN=REASON (expected "
+                                   "e.g. K7-018='analyser drift', at most %d)",
+                                   *text, MAX_EXCLUDE);
+        struct exclusion *x = &o->ex[o->n_ex++];
+        memcpy(x->run, *text, (size_t)(eq - *text));
+        x->run[eq - *text] = '\0';
+        x->reason = eq + 1;
     }
+    return 0;
+}
+
+/* Returns 0, CLI_PARSE_HELP or an exit code; *first is the first run log. */
+static int parse_options(int argc, char **argv, struct options *o, cli_ctx *ctx, int *first)
+{
+    const char *now = NULL, *excl[MAX_EXCLUDE + 1] = {NULL};
+    const struct cli_option opts[] = {
+        OPT_COLUMN(&o->column, "the column file (packed height, condenser, equilibrium)"),
+        OPT_REFLUX(&o->reflux, "stated reflux ratio, > 0 or 'inf'"),
+        OPT_FFACTOR(&o->fload, "stated F-factor [Pa^0.5] (needed when the form uses it)"),
+        OPT_FORM(&o->form, "correlation form (saturating)"),
+        OPT_STRING(0, "events", &o->events, "FILE",
+                   "repack/maintenance events (CSV: time,column,kind[,note])"),
+        OPT_DOUBLE("require", &o->require, "N", "stages the product needs, for the crossing date",
+                   1, INFINITY, 0, "stages, the pot included"),
+        OPT_STRING(0, "now", &now, "DATE", "date of 'now' (ISO 8601; default: the last window)"),
+        OPT_LEVEL(&o->level),
+        OPT_LONG("min-runs", &o->min_runs, "K",
+                 "runs a segment needs for its own level and loss (3)", 2, 1000),
+        OPT_LIST("exclude-run", excl, MAX_EXCLUDE, "R=WHY",
+                 "leave run R out, with the reason (repeatable)"),
+        OPT_DOUBLE("design-hetp", &o->design, "H",
+                   "design HETP [m] for 'as good as the design figure'", 0, INFINITY, CLI_D_LO_OPEN,
+                   "a design HETP in m"),
+        OPT_DOUBLE("margin", &o->margin, "M", "equivalence margin, a fraction (0.10)", 0, 1,
+                   CLI_D_LO_OPEN | CLI_D_HI_OPEN, "a fraction such as 0.10"),
+        OPT__JSON(&ctx->json),
+        OPT__QUIET(),
+        OPT_END(),
+    };
     int rc;
+    if ((rc = cli_parse(argc, argv, opts, &usage, first)))
+        return rc;
+    o->json = ctx->json;
+    if (now && stagecal_units_parse_iso8601(now, &o->now_s) != 0)
+        return cli_usage_error("option '--now': '%s' is not a date (expected ISO 8601, "
+                               "e.g. 2026-03-01T00:00:00Z)",
+                               now);
+    if ((rc = take_exclusions(o, excl)))
+        return rc;
     if (!o->column)
         return cli_usage_error(
             "option '--column FILE' is required (see 'stagecal history --help')");
-    if (optind >= argc)
+    if (*first >= argc)
         return cli_usage_error("at least one run log is required (see 'stagecal history --help')");
-    if ((rc = cli_require("reflux", o->reflux)) || (rc = cli_check_reflux("reflux", o->reflux)))
+    if ((rc = cli_require("reflux", o->reflux)))
         return rc;
     if (!(o->reflux > 0))
         return cli_usage_error(
             "option '--reflux': 0 is not a condition with stages (expected R > 0)");
-    if (!(o->level > 0 && o->level < 1))
-        return cli_usage_error("option '--level': %g is outside (0, 1) (expected e.g. 0.95)",
-                               o->level);
-    if (!(o->margin > 0 && o->margin < 1))
-        return cli_usage_error("option '--margin': %g is outside (0, 1) (expected e.g. 0.10)",
-                               o->margin);
-    if (!isnan(o->require) && !(o->require >= 1))
-        return cli_usage_error(
-            "option '--require': %g is below 1 (expected stages, the pot included)", o->require);
-    if (!isnan(o->design) && !(o->design > 0))
-        return cli_usage_error("option '--design-hetp': %g is not positive (expected m)",
-                               o->design);
     return 0;
 }
 
@@ -522,7 +441,6 @@ static void print_text(const struct result *res, const struct options *o)
             printf("\n");
         }
     }
-    printf("\n%s\n", stagecal_caution_text());
 }
 
 static json_t *result_json(const struct result *res, const struct options *o)
@@ -611,7 +529,7 @@ static json_t *result_json(const struct result *res, const struct options *o)
     return doc;
 }
 
-int cmd_history(int argc, char **argv)
+int cmd_history(int argc, char **argv, cli_ctx *ctx)
 {
     struct options o;
     memset(&o, 0, sizeof o);
@@ -620,12 +538,12 @@ int cmd_history(int argc, char **argv)
     o.level = 0.95;
     o.margin = STAGECAL_HETP_EQUIV_MARGIN;
     o.min_runs = 3;
-    int rc = parse_options(argc, argv, &o);
+    int first, rc = parse_options(argc, argv, &o, ctx, &first);
     if (rc)
-        return rc < 0 ? CLI_EXIT_OK : rc;
+        return rc;
     struct result res;
     memset(&res, 0, sizeof res);
-    rc = compute(&res, &o, argv + optind, (size_t)(argc - optind));
+    rc = compute(&res, &o, argv + first, (size_t)(argc - first));
     if (rc == 0) {
         if (o.json)
             rc = cli_json_print(result_json(&res, &o));

@@ -1,8 +1,11 @@
 /*
  * cmd_invert.c — `stagecal invert`: effective equilibrium stages from a measured
- * distillate and pot composition at a reflux ratio (McCabe–Thiele inversion).
+ * distillate and pot composition at a reflux ratio (McCabe–Thiele inversion), or at
+ * every row of production run logs. The mode follows from what was given: run logs
+ * (or --output, --min-rows) ask for the run-log mode, which reads the logs, checks
+ * them, closes each run's pot balance, inverts every row and writes one CSV row per log
+ * row (--output, or stdout without --json); --json then prints a summary.
  */
-#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -11,118 +14,44 @@
 #include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "fileio.h"
+#include "options.h"
+#include "stagecal/column.h"
+#include "stagecal/evidence.h"
+#include "stagecal/runlog.h"
 #include "stagecal/stages.h"
 
-static const char usage_text[] =
+static const struct cli_usage usage = {
     "usage: stagecal invert (--alpha A | --kvalue K | --column FILE) --xd XD --xb XB\n"
     "                       --reflux R|inf [--murphree E] [--json] [--quiet]\n"
-    "   or: stagecal invert --column FILE [--murphree E] [--out FILE.csv] [--min-rows N]\n"
-    "                       [--json] [--quiet] RUNLOG.csv...\n"
-    "\n"
+    "   or: stagecal invert --column FILE [--murphree E] [-o FILE.csv] [--min-rows N]\n"
+    "                       [--json] [--quiet] RUNLOG.csv...\n",
     "Counts the equilibrium stages (the pot included, fractional) a batch rectifier needs\n"
     "to hold the distillate at XD over a pot at XB at reflux ratio R. A pinch or an\n"
-    "azeotrope in the way is a result (status), not an error.\n"
-    "\n"
-    "  --alpha A       constant relative volatility, A > 1\n"
-    "  --kvalue K      constant K value (dilute light component), y = K x, K > 1\n"
-    "  --column FILE   the equilibrium model of a column file (docs/column-file.md)\n"
-    "  --xd XD         distillate mole fraction of the light component, in (0, 1)\n"
-    "  --xb XB         pot mole fraction of the light component, in (0, XD)\n"
-    "  --reflux R      reflux ratio L/D >= 0, or 'inf' for total reflux\n"
-    "  --murphree E    Murphree vapour efficiency of the column stages, in (0, 1] (default 1)\n"
-    "  --json          one JSON document on stdout\n"
-    "  --quiet         no warnings on stderr\n"
-    "  -h, --help      this text\n"
+    "azeotrope in the way is a result (status), not an error. Column stages follow the\n"
+    "column file's condenser (stages - 1, or - 2 with a partial condenser).\n"
     "\n"
     "With run logs (docs/runlog.md) every row is inverted: stages, column stages, their\n"
     "standard uncertainty from the column file's uncertainties, status, L/V, F-factor\n"
-    "and the quasi-steady window flags, one CSV row per log row.\n"
-    "  --out FILE.csv  the per-row CSV ('-' = stdout, the default without --json)\n"
-    "  --min-rows N    fewest rows a run may have (default 5)\n"
-    "  --json          a summary instead: status counts, each run's mass-balance closure\n"
-    "                  and the quasi-steady windows (the units of evidence)\n"
-    "\n"
+    "and the quasi-steady window flags, one CSV row per log row (to --output, or to\n"
+    "stdout without --json); --json prints a summary instead: status counts, each run's\n"
+    "mass-balance closure and the quasi-steady windows (the units of evidence).\n",
     "Exit status: 0 success (a pinch or an azeotrope is a status, not an error), 2 usage\n"
-    "error, 65 bad data, 66 missing file, 70 internal, 73 output cannot be written.\n";
+    "error, 65 bad data, 66 missing file, 70 internal, 73 output cannot be written.\n"};
 
-int cmd_invert(int argc, char **argv)
+/* One point: --xd, --xb, --reflux. */
+static int invert_point(double xd, double xb, double reflux, double murphree, cli_ctx *ctx)
 {
-    enum { O_ALPHA = 256, O_KVALUE, O_COLUMN, O_XD, O_XB, O_REFLUX, O_MURPHREE, O_JSON, O_QUIET };
-    static const struct option opts[] = {{"alpha", required_argument, NULL, O_ALPHA},
-                                         {"kvalue", required_argument, NULL, O_KVALUE},
-                                         {"column", required_argument, NULL, O_COLUMN},
-                                         {"xd", required_argument, NULL, O_XD},
-                                         {"xb", required_argument, NULL, O_XB},
-                                         {"reflux", required_argument, NULL, O_REFLUX},
-                                         {"murphree", required_argument, NULL, O_MURPHREE},
-                                         {"json", no_argument, NULL, O_JSON},
-                                         {"quiet", no_argument, NULL, O_QUIET},
-                                         {"help", no_argument, NULL, 'h'},
-                                         {0, 0, 0, 0}};
-    cli_system sys;
-    double xd = NAN, xb = NAN, reflux = NAN, murphree = 1.0;
-    int json = 0, c, rc;
-
-    if (invert_runlog_wanted(argc, argv)) /* run-log mode: invert_runlog.c */
-        return invert_runlog(argc, argv);
-    cli_system_init(&sys);
-    optind = 0;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
-        switch (c) {
-        case 'h':
-            fputs(usage_text, stdout);
-            return CLI_EXIT_OK;
-        case O_ALPHA:
-        case O_KVALUE:
-        case O_COLUMN:
-            if ((rc = cli_system_option(&sys, opts[c - O_ALPHA].name, optarg)))
-                return rc;
-            break;
-        case O_XD:
-            if (cli_parse_double("xd", optarg, 0, "a mole fraction in (0, 1)", &xd))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_XB:
-            if (cli_parse_double("xb", optarg, 0, "a mole fraction in (0, 1)", &xb))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_REFLUX:
-            if (cli_parse_double("reflux", optarg, 1, "a reflux ratio >= 0 or 'inf'", &reflux))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_MURPHREE:
-            if (cli_parse_double("murphree", optarg, 0, "an efficiency in (0, 1]", &murphree))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_JSON:
-            json = 1;
-            break;
-        case O_QUIET:
-            cli_quiet = 1;
-            break;
-        default:
-            return cli_usage_getopt(c, argv, "invert");
-        }
-    }
-    if (optind < argc)
-        return cli_usage_error("unexpected argument '%s'", argv[optind]);
+    cli_system *sys = &ctx->sys;
+    int rc;
     if ((rc = cli_require("xd", xd)) || (rc = cli_require("xb", xb)) ||
         (rc = cli_require("reflux", reflux)))
-        return rc;
-    if ((rc = cli_check_fraction("xd", xd)))
-        return rc;
-    if ((rc = cli_check_fraction("xb", xb)))
         return rc;
     if (!(xb < xd))
         return cli_usage_error("option '--xb': %g is not below --xd %g (expected the pot leaner "
                                "in the light component than the distillate)",
                                xb, xd);
-    if ((rc = cli_check_reflux("reflux", reflux)))
-        return rc;
-    if ((rc = cli_check_murphree("murphree", murphree)))
-        return rc;
-    if ((rc = cli_system_open(&sys)))
+    if ((rc = cli_system_open(sys)))
         return rc;
 
     stagecal_stages_params par = stagecal_stages_default_params();
@@ -130,16 +59,14 @@ int cmd_invert(int argc, char **argv)
     stagecal_error err;
     par.want_sensitivities = 1;
     stagecal_error_clear(&err);
-    rc = stagecal_stages_invert(sys.vle, xd, xb, reflux, murphree, &par, &res, &err);
-    if (rc != STAGECAL_OK) {
-        cli_system_close(&sys);
+    rc = stagecal_stages_invert(sys->vle, xd, xb, reflux, murphree, &par, &res, &err);
+    if (rc != STAGECAL_OK)
         return cli_fail(&err);
-    }
     int ok = res.status == STAGECAL_STAGES_OK;
     /* the condenser comes from the column file; --alpha/--kvalue mean a total condenser */
-    stagecal_condenser cond = sys.have_column ? sys.col.condenser : STAGECAL_CONDENSER_TOTAL;
+    stagecal_condenser cond = sys->have_column ? sys->col.condenser : STAGECAL_CONDENSER_TOTAL;
     double col_stages = ok ? stagecal_convention_column_stages(res.stages, cond) : NAN;
-    if (json) {
+    if (ctx->json) {
         json_t *doc = json_object();
         json_object_set_new(doc, "format", json_string("stagecal-invert"));
         json_object_set_new(doc, "version", json_integer(1));
@@ -161,7 +88,7 @@ int cmd_invert(int argc, char **argv)
                                            cli_json_real(res.dstages_dxb), "dstages_dr",
                                            cli_json_real(res.dstages_dr))
                                : json_null());
-        json_object_set_new(doc, "model", cli_system_json(&sys));
+        json_object_set_new(doc, "model", cli_system_json(sys));
         rc = cli_json_print(doc);
     } else {
         if (ok) {
@@ -180,6 +107,202 @@ int cmd_invert(int argc, char **argv)
         }
         rc = CLI_EXIT_OK;
     }
-    cli_system_close(&sys);
     return rc;
+}
+
+static json_t *summary_json(const stagecal_runlog *log, const stagecal_column *col,
+                            const stagecal_runlog_result *res, const stagecal_evidence_set *ev,
+                            const stagecal_findings *f, const char *out_path, double murphree)
+{
+    json_t *doc = json_object(), *files = json_array(), *runs = json_array(), *wins = json_array();
+    json_object_set_new(doc, "format", json_string("stagecal-invert-runlog"));
+    json_object_set_new(doc, "version", json_integer(1));
+    json_object_set_new(doc, "column", json_string(col->id));
+    json_object_set_new(doc, "murphree", json_real(murphree));
+    json_object_set_new(doc, "condenser", json_string(stagecal_condenser_name(col->condenser)));
+    json_object_set_new(doc, "stage_convention",
+                        json_string(stagecal_convention_text(col->condenser)));
+    for (size_t k = 0; k < log->nfiles; k++)
+        json_array_append_new(files, json_string(log->files[k]));
+    json_object_set_new(doc, "files", files);
+    json_object_set_new(doc, "rows", json_integer((json_int_t)log->n));
+    json_object_set_new(doc, "output", out_path ? json_string(out_path) : json_null());
+    json_object_set_new(doc, "out", out_path ? json_string(out_path) : json_null()); /* v1 name */
+    json_t *cnt = json_object();
+    for (int s = 0; s < STAGECAL_RUNLOG_NSTATUS; s++)
+        json_object_set_new(cnt, stagecal_runlog_status_name(s),
+                            json_integer((json_int_t)res->count[s]));
+    json_object_set_new(doc, "status_counts", cnt);
+    json_object_set_new(doc, "validation",
+                        json_pack("{s:I,s:I}", "errors", (json_int_t)f->n_errors, "warnings",
+                                  (json_int_t)f->n_warnings));
+    for (size_t k = 0; k < log->nruns; k++)
+        json_array_append_new(runs, cli_run_json(log, k, &res->closures[k]));
+    json_object_set_new(doc, "runs", runs);
+    for (size_t k = 0; k < res->nwindows; k++) {
+        const stagecal_runlog_window *w = &res->windows[k];
+        const stagecal_runlog_run *r = &log->runs[w->run];
+        json_t *o = json_object();
+        json_object_set_new(o, "run", json_string(r->name));
+        json_object_set_new(o, "first_line", json_integer(log->line[w->first]));
+        json_object_set_new(o, "last_line", json_integer(log->line[w->last]));
+        json_object_set_new(o, "rows", json_integer((json_int_t)(w->last - w->first + 1)));
+        json_object_set_new(o, "total_reflux", json_boolean(w->total_reflux));
+        json_object_set_new(o, "reflux", cli_json_reflux(w->r_median));
+        json_object_set_new(o, "n_ok", json_integer((json_int_t)w->n_ok));
+        /* the window's stage count as the calibration uses it (evidence.h) */
+        const stagecal_evidence *e = stagecal_evidence_find(ev, k);
+        int ok = e && e->stages_ok;
+        json_object_set_new(o, "stages", ok ? json_real(e->stages) : json_null());
+        json_object_set_new(o, "se_stages", ok ? json_real(e->se_stages) : json_null());
+        json_array_append_new(wins, o);
+    }
+    json_object_set_new(doc, "windows", wins);
+    json_object_set_new(doc, "independent_evidence", json_integer((json_int_t)res->nwindows));
+    json_object_set_new(
+        doc, "units",
+        json_pack("{s:s,s:s,s:s}", "time", "s", "F", "Pa^0.5", "xb_drift_per_h", "mol/mol per h"));
+    json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
+    return doc;
+}
+
+/* The per-row CSV to path (atomically; it replaces a file of that name, docs/cli.md) or to
+ * stdout (path NULL or "-"). An exit code. */
+static int write_rows(const stagecal_runlog *log, const stagecal_column *col,
+                      const stagecal_runlog_result *res, const char *out_path)
+{
+    stagecal_error err;
+    int to_stdout = !out_path || strcmp(out_path, "-") == 0;
+    atomic_file a;
+    FILE *out = stdout;
+    stagecal_error_clear(&err);
+    int w = to_stdout ? STAGECAL_OK : atomic_open(&a, out_path, &err);
+    if (w == STAGECAL_OK && !to_stdout && !(out = atomic_stream(&a, &err)))
+        w = STAGECAL_EWRITE;
+    int csv = w == STAGECAL_OK ? stagecal_runlog_write_csv(log, col, res, out, &err) : w;
+    if (w == STAGECAL_OK && csv == STAGECAL_OK && !to_stdout)
+        w = atomic_publish(&a, out_path, ATOMIC_REPLACE, NULL, &err);
+    if (!to_stdout)
+        atomic_discard(&a);
+    if (w == STAGECAL_OK && csv == STAGECAL_OK)
+        return CLI_EXIT_OK;
+    if (w != STAGECAL_OK && !to_stdout)
+        cli_fail(&err);
+    else
+        cli_error("cannot write '%s'", to_stdout ? "standard output" : out_path);
+    return CLI_EXIT_CANTCREAT;
+}
+
+/* Every row of the run logs argv[first..argc). */
+static int invert_rows(int argc, char **argv, int first, const char *out_path, long minrows,
+                       double murphree, cli_ctx *ctx)
+{
+    cli_system *sys = &ctx->sys;
+    int rc;
+    if (first >= argc)
+        return cli_usage_error("no run log given (expected one or more RUNLOG.csv)");
+    if (!sys->column_path || !isnan(sys->alpha) || !isnan(sys->kvalue))
+        return cli_usage_error("option '--column' is required with a run log (the equilibrium "
+                               "model and the uncertainties come from it)");
+    if ((rc = cli_check_output("output", out_path, (const char *const *)(argv + first),
+                               (size_t)(argc - first))) ||
+        (rc = cli_check_output("output", out_path, &sys->column_path, 1)))
+        return rc;
+    /* --json owns stdout: the CSV must go to a file then (one document on stdout). */
+    if (ctx->json && out_path && strcmp(out_path, "-") == 0)
+        return cli_usage_error("options '--json' and '--output -' both write to standard output "
+                               "(give '--output FILE.csv' with '--json')");
+    if ((rc = cli_system_open(sys)))
+        return rc;
+    const stagecal_column *col = &sys->col;
+    stagecal_runlog_params rp = stagecal_runlog_default_params();
+    if (minrows > 0)
+        rp.min_rows = (size_t)minrows;
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    stagecal_findings *f = stagecal_findings_alloc(rp.max_findings);
+    stagecal_runlog_result res;
+    stagecal_evidence_set ev;
+    memset(&res, 0, sizeof res);
+    memset(&ev, 0, sizeof ev);
+    if (!log || !f) {
+        cli_error("out of memory");
+        rc = CLI_EXIT_SOFTWARE;
+        goto done;
+    }
+    for (int i = first; i < argc && rc == 0; i++)
+        if (stagecal_runlog_read(log, argv[i], col, &rp, f, &err) != STAGECAL_OK)
+            rc = cli_fail(&err);
+    if (rc)
+        goto done;
+    if (f->n_errors) {
+        for (size_t i = 0; i < f->n && i < 10; i++)
+            cli_warn("%s", f->items[i].text);
+        cli_warn("%zu validation errors: the rows concerned have missing values (run "
+                 "'stagecal check' for the full list)",
+                 f->n_errors);
+    }
+    if (stagecal_runlog_analyse(log, col, NULL, &res, &err) != STAGECAL_OK ||
+        stagecal_runlog_invert(log, col, murphree, NULL, &res, &err) != STAGECAL_OK ||
+        stagecal_evidence_build(log, &res, col, murphree, NULL, &ev, &err) != STAGECAL_OK) {
+        rc = cli_fail(&err);
+        goto done;
+    }
+    ctx->data_on_stdout = !ctx->json && (!out_path || strcmp(out_path, "-") == 0);
+    if ((out_path || !ctx->json) && (rc = write_rows(log, col, &res, out_path)))
+        goto done;
+    for (size_t k = 0; k < log->nruns; k++) {
+        const stagecal_runlog_closure *cl = &res.closures[k];
+        if (cl->gross || cl->drift)
+            cli_warn("run '%s': %s%s%s (closure %+.2f %%)", log->runs[k].name,
+                     cl->gross ? "mass balance does not close" : "",
+                     cl->gross && cl->drift ? ", " : "", cl->drift ? "xB analyser drift" : "",
+                     100.0 * cl->closure);
+    }
+    if (ctx->json)
+        rc = cli_json_print(summary_json(log, col, &res, &ev, f, out_path, murphree));
+    else if (!ctx->data_on_stdout)
+        printf("%zu rows: %zu ok, %zu pinch, %zu azeotrope, %zu invalid, %zu censored (one-sided "
+               "bounds in stages_low/stages_high); %zu quasi-steady windows; written to %s\n",
+               log->n, res.count[0], res.count[1], res.count[2], res.count[3],
+               res.count[STAGECAL_RUNLOG_CENSORED], res.nwindows, out_path);
+done:
+    stagecal_evidence_set_free(&ev);
+    stagecal_runlog_result_free(&res);
+    stagecal_runlog_free(log);
+    stagecal_findings_free(f);
+    return rc;
+}
+
+int cmd_invert(int argc, char **argv, cli_ctx *ctx)
+{
+    double xd = NAN, xb = NAN, reflux = NAN, murphree = 1.0;
+    const char *out_path = NULL;
+    long minrows = 0;
+    const struct cli_option opts[] = {
+        OPT_SYSTEM(&ctx->sys),
+        OPT_XD(&xd),
+        OPT_XB(&xb),
+        OPT_REFLUX(&reflux, "reflux ratio L/D >= 0, or 'inf' for total reflux"),
+        OPT_MURPHREE(&murphree),
+        OPT_OUTPUT(&out_path, "run logs: the per-row CSV ('-' = stdout, the default without\n"
+                              "--json)"),
+        OPT_ALIAS("out", "output"),
+        OPT_MIN_ROWS(&minrows),
+        OPT__JSON(&ctx->json),
+        OPT__QUIET(),
+        OPT_END(),
+    };
+    int first, rc;
+    if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
+        return rc;
+    /* the mode follows from what was given: run logs, or a point */
+    if (first < argc || out_path || cli_given(opts, "min-rows")) {
+        if (!isnan(xd) || !isnan(xb) || !isnan(reflux))
+            return cli_usage_error("options '--xd', '--xb' and '--reflux' are for one point, "
+                                   "not with run logs (each row carries its own)");
+        return invert_rows(argc, argv, first, out_path, minrows, murphree, ctx);
+    }
+    return invert_point(xd, xb, reflux, murphree, ctx);
 }

@@ -5,7 +5,6 @@
  * conditions of interest most (I-optimal) or the whole parameter uncertainty (D-optimal),
  * with the expected half-width before and after. The numerics live in the design module.
  */
-#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -14,43 +13,27 @@
 #include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "options.h"
 #include "stagecal/convention.h"
 #include "stagecal/design.h"
 #include "stagecal/model.h"
 #include "stagecal/plot.h"
 
-static const char usage_text[] =
+static const struct cli_usage usage = {
     "usage: stagecal probe MODEL.json --at R[:F][,R[:F]...] [--weights W[,W...]]\n"
     "                      [--reflux-range LO:HI] [--f-factor-range LO:HI] [--tests K]\n"
     "                      [--criterion i|d] [--sample-interval MIN] [--seed N]\n"
-    "                      [--chart FILE.png|svg|pdf] [--json] [--quiet]\n"
-    "\n"
+    "                      [--chart FILE.png|svg|pdf] [--json] [--quiet]\n",
     "Where to run the next tests: K test conditions inside the ranges that shrink the\n"
     "95 % confidence band of stages at the conditions of interest most (I-optimal: the\n"
     "weighted average variance of the fitted stages there; D-optimal: the determinant of\n"
     "the parameters' information), from the model file's parameters, covariance and\n"
     "per-window sigma. Each test is one production period at one reflux ratio long enough\n"
     "for one quasi-steady window. Prints the half-width of the interval at each condition\n"
-    "of interest before and after the tests (expected, to first order in the parameters).\n"
-    "\n"
-    "  --at LIST             conditions of interest: R or R:F (F-factor, Pa^0.5, needed\n"
-    "                        when the form uses the load), comma-separated; R may be 'inf'\n"
-    "  --weights LIST        a weight > 0 per condition of interest (default: equal)\n"
-    "  --reflux-range LO:HI  where tests may run (HI may be 'inf'); default: from the\n"
-    "                        fitted envelope and the conditions of interest together\n"
-    "  --f-factor-range LO:HI  F-factor range for tests [Pa^0.5] (load forms; default the\n"
-    "                        same way); stay below the column's flooding margin\n"
-    "  --tests K             number of test conditions, 1..64 (4)\n"
-    "  --criterion i|d       I-optimal (default) or D-optimal\n"
-    "  --sample-interval MIN minutes between logged samples, for the durations (10)\n"
-    "  --seed N              seed of the random starts of the search (1)\n"
-    "  --chart FILE          also draw stages against R with the band before and after\n"
-    "                        the tests (PNG, SVG or PDF by extension)\n"
-    "  --json                one JSON document on stdout\n"
-    "  --quiet               no warnings on stderr\n"
-    "  -h, --help            this text\n"
-    "\n"
-    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n";
+    "of interest before and after the tests (expected, to first order in the parameters).\n",
+    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n"};
+
+static const char *const criterion_names[] = {"i", "d", NULL};
 
 #define MAX_AT 64
 
@@ -253,8 +236,7 @@ static void print_text(const char *path, const stagecal_model *m, const stagecal
     }
     printf("\nThe after-values assume the model's per-window sigma and its current parameters "
            "(first order); they are expectations, not guarantees. Run tests only inside the "
-           "column's safe operating limits.\n%s\n",
-           stagecal_caution_text());
+           "column's safe operating limits.\n");
 }
 
 #define CHART_N 121
@@ -342,111 +324,56 @@ static int write_chart(const char *out, const stagecal_model *m, const stagecal_
     return stagecal_plot_write(&ch, out, &pp, &err) ? cli_fail(&err) : 0;
 }
 
-int cmd_probe(int argc, char **argv)
+int cmd_probe(int argc, char **argv, cli_ctx *ctx)
 {
-    enum {
-        O_AT = 256,
-        O_WEIGHTS,
-        O_RRANGE,
-        O_FRANGE,
-        O_TESTS,
-        O_CRIT,
-        O_INTERVAL,
-        O_SEED,
-        O_CHART,
-        O_JSON,
-        O_QUIET
-    };
-    static const struct option opts[] = {{"at", required_argument, NULL, O_AT},
-                                         {"weights", required_argument, NULL, O_WEIGHTS},
-                                         {"reflux-range", required_argument, NULL, O_RRANGE},
-                                         {"f-factor-range", required_argument, NULL, O_FRANGE},
-                                         {"tests", required_argument, NULL, O_TESTS},
-                                         {"criterion", required_argument, NULL, O_CRIT},
-                                         {"sample-interval", required_argument, NULL, O_INTERVAL},
-                                         {"seed", required_argument, NULL, O_SEED},
-                                         {"chart", required_argument, NULL, O_CHART},
-                                         {"json", no_argument, NULL, O_JSON},
-                                         {"quiet", no_argument, NULL, O_QUIET},
-                                         {"help", no_argument, NULL, 'h'},
-                                         {0, 0, 0, 0}};
     stagecal_design_params par = stagecal_design_default_params();
     double at_r[MAX_AT], at_f[MAX_AT], wv[MAX_AT], wdummy[MAX_AT], minutes = 10;
     size_t n_at = 0, n_w = 0;
-    const char *at_text = NULL, *chart = NULL;
+    const char *at_text = NULL, *w_text = NULL, *r_text = NULL, *f_text = NULL, *chart = NULL;
     long k = 4, seed = 1;
-    int json = 0, c, rc;
-
-    optind = 0;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
-        switch (c) {
-        case 'h':
-            fputs(usage_text, stdout);
-            return CLI_EXIT_OK;
-        case O_AT:
-            at_text = optarg;
-            if (parse_list("at", optarg, "R or R:F, R >= 0 or 'inf'", at_r, at_f, &n_at))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_WEIGHTS:
-            if (parse_list("weights", optarg, "weights > 0", wv, wdummy, &n_w))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_RRANGE:
-            if (parse_pair("reflux-range", optarg, 1, "LO:HI, reflux ratios > 0, HI may be 'inf'",
-                           &par.r_lo, &par.r_hi))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_FRANGE:
-            if (parse_pair("f-factor-range", optarg, 1, "LO:HI, F-factors in Pa^0.5", &par.f_lo,
-                           &par.f_hi))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_TESTS:
-            if (cli_parse_long("tests", optarg, 1, STAGECAL_DESIGN_MAXK, &k))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_CRIT:
-            if (strcmp(optarg, "i") == 0)
-                par.criterion = STAGECAL_DESIGN_I;
-            else if (strcmp(optarg, "d") == 0)
-                par.criterion = STAGECAL_DESIGN_D;
-            else
-                return cli_usage_error("option '--criterion': '%s' is unknown (expected 'i' or "
-                                       "'d')",
-                                       optarg);
-            break;
-        case O_INTERVAL:
-            if (cli_parse_double("sample-interval", optarg, 0, "minutes > 0", &minutes))
-                return CLI_EXIT_USAGE;
-            if (!(minutes > 0))
-                return cli_usage_error("option '--sample-interval': %g is not positive "
-                                       "(expected minutes > 0)",
-                                       minutes);
-            break;
-        case O_SEED:
-            if (cli_parse_long("seed", optarg, 0, 2147483647L, &seed))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_CHART:
-            chart = optarg;
-            break;
-        case O_JSON:
-            json = 1;
-            break;
-        case O_QUIET:
-            cli_quiet = 1;
-            break;
-        default:
-            return cli_usage_getopt(c, argv, "probe");
-        }
-    }
-    if (argc - optind < 1)
+    int criterion = 0, json, first, rc;
+    const struct cli_option opts[] = {
+        OPT_STRING(0, "at", &at_text, "LIST",
+                   "conditions of interest: R or R:F (F-factor, Pa^0.5, needed\n"
+                   "when the form uses the load), comma-separated; R may be 'inf'"),
+        OPT_STRING(0, "weights", &w_text, "LIST",
+                   "a weight > 0 per condition of interest (default: equal)"),
+        OPT_STRING(0, "reflux-range", &r_text, "LO:HI",
+                   "where tests may run (HI may be 'inf'); default: from the\n"
+                   "fitted envelope and the conditions of interest together"),
+        OPT_STRING(0, "f-factor-range", &f_text, "LO:HI",
+                   "F-factor range for tests [Pa^0.5] (load forms; default the\n"
+                   "same way); stay below the column's flooding margin"),
+        OPT_LONG("tests", &k, "K", "number of test conditions, 1..64 (4)", 1, STAGECAL_DESIGN_MAXK),
+        OPT_CHOICE("criterion", &criterion, "i|d", "I-optimal (default) or D-optimal",
+                   criterion_names, NULL),
+        OPT_DOUBLE("sample-interval", &minutes, "MIN",
+                   "minutes between logged samples, for the durations (10)", 0, INFINITY,
+                   CLI_D_LO_OPEN, "minutes > 0"),
+        OPT_SEED(&seed),
+        OPT_STRING(0, "chart", &chart, "FILE",
+                   "also draw stages against R with the band before and after\n"
+                   "the tests (PNG, SVG or PDF by extension)"),
+        OPT__JSON(&ctx->json),
+        OPT__QUIET(),
+        OPT_END(),
+    };
+    if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
+        return rc;
+    json = ctx->json;
+    par.criterion = criterion == 1 ? STAGECAL_DESIGN_D : STAGECAL_DESIGN_I;
+    if ((at_text && parse_list("at", at_text, "R or R:F, R >= 0 or 'inf'", at_r, at_f, &n_at)) ||
+        (w_text && parse_list("weights", w_text, "weights > 0", wv, wdummy, &n_w)) ||
+        (r_text && parse_pair("reflux-range", r_text, 1,
+                              "LO:HI, reflux ratios > 0, HI may be 'inf'", &par.r_lo, &par.r_hi)) ||
+        (f_text && parse_pair("f-factor-range", f_text, 1, "LO:HI, F-factors in Pa^0.5", &par.f_lo,
+                              &par.f_hi)))
+        return CLI_EXIT_USAGE;
+    if (argc - first < 1)
         return cli_usage_error("a model file is required (see 'stagecal probe --help')");
-    if (argc - optind > 1)
+    if (argc - first > 1)
         return cli_usage_error("unexpected argument '%s' (expected one model file)",
-                               argv[optind + 1]);
+                               argv[first + 1]);
     if (!at_text)
         return cli_usage_error("option '--at' is required (see 'stagecal probe --help')");
     if (n_w && n_w != n_at)
@@ -472,7 +399,7 @@ int cmd_probe(int argc, char **argv)
     par.seed = (unsigned long)seed;
     par.sample_interval_s = minutes * 60;
 
-    const char *path = argv[optind];
+    const char *path = argv[first];
     if (chart && cli_check_output("chart", chart, &path, 1))
         return CLI_EXIT_USAGE;
     stagecal_model m;

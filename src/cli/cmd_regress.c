@@ -5,7 +5,6 @@
  * optional bootstrap and robust reweighting. `--form auto` ranks several forms by
  * AICc and reports the best in full. The numerics live in the regress module.
  */
-#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -14,36 +13,21 @@
 #include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "options.h"
 #include "stagecal/regress.h"
 
-static const char usage_text[] =
+static const struct cli_usage usage = {
     "usage: stagecal regress POINTS.csv --form NAME|auto [--level P] [--bootstrap B]\n"
     "                        [--seed S] [--resample case|residual] [--robust huber|bisquare]\n"
     "                        [--start V1,V2,...] [--absolute-sigma] [--band-points N]\n"
-    "                        [--json] [--quiet]\n"
-    "\n"
+    "                        [--json] [--quiet]\n",
     "Fits effective stages (the pot included) against the reflux ratio R and, where the\n"
     "points carry it, the F-factor F. POINTS.csv has a header 'R,stages' with optional\n"
     "'F' (Pa^0.5) and 'sigma' (standard uncertainty of stages; weights 1/sigma^2);\n"
-    "R may be 'inf'. '-' reads standard input.\n"
-    "\n"
-    "  --form NAME        constant | saturating | saturating-load | linear:TERMS, with\n"
-    "                     TERMS from 1, 1/R, L/V, lnR, F, F^2, 1/F joined by '+'\n"
-    "                     (e.g. linear:1+1/R); 'auto' ranks the candidates by AICc\n"
-    "                     (docs/forms.md)\n"
-    "  --level P          confidence level of intervals and bands, in (0, 1) (0.95)\n"
-    "  --bootstrap B      B bootstrap resamples, percentile intervals (0 = none)\n"
-    "  --seed S           seed of the bootstrap random numbers (1)\n"
-    "  --resample KIND    bootstrap by 'case' (default) or 'residual' resampling\n"
-    "  --robust METHOD    reweight outliers: 'huber' (k = 1.345) or 'bisquare' (c = 4.685)\n"
-    "  --start LIST       comma-separated start values of the parameters (nonlinear forms)\n"
-    "  --absolute-sigma   take sigma as absolute: covariance (J'WJ)^-1, not scaled by s^2\n"
-    "  --band-points N    points of the band grid over the fitted R range (25)\n"
-    "  --json             one JSON document on stdout\n"
-    "  --quiet            no warnings on stderr\n"
-    "  -h, --help         this text\n"
-    "\n"
-    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n";
+    "R may be 'inf'. '-' reads standard input.\n",
+    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n"};
+
+static const char *const resample_names[] = {"case", "residual", NULL};
 
 static json_t *json_r(double r)
 {
@@ -255,7 +239,6 @@ static void print_text(const char *path, const stagecal_regress_result *res,
                    b->ci_low, b->ci_high, b->pi_low, b->pi_high);
         }
     }
-    printf("\n%s\n", stagecal_caution_text());
 }
 
 static int parse_start(const char *text, double *v, size_t *nv)
@@ -290,115 +273,54 @@ static stagecal_error *drop_module_prefix(stagecal_error *err)
     return err;
 }
 
-int cmd_regress(int argc, char **argv)
+int cmd_regress(int argc, char **argv, cli_ctx *ctx)
 {
-    enum {
-        O_FORM = 256,
-        O_LEVEL,
-        O_BOOT,
-        O_SEED,
-        O_RESAMPLE,
-        O_ROBUST,
-        O_START,
-        O_ABS,
-        O_BAND,
-        O_JSON,
-        O_QUIET
-    };
-    static const struct option opts[] = {{"form", required_argument, NULL, O_FORM},
-                                         {"level", required_argument, NULL, O_LEVEL},
-                                         {"bootstrap", required_argument, NULL, O_BOOT},
-                                         {"seed", required_argument, NULL, O_SEED},
-                                         {"resample", required_argument, NULL, O_RESAMPLE},
-                                         {"robust", required_argument, NULL, O_ROBUST},
-                                         {"start", required_argument, NULL, O_START},
-                                         {"absolute-sigma", no_argument, NULL, O_ABS},
-                                         {"band-points", required_argument, NULL, O_BAND},
-                                         {"json", no_argument, NULL, O_JSON},
-                                         {"quiet", no_argument, NULL, O_QUIET},
-                                         {"help", no_argument, NULL, 'h'},
-                                         {0, 0, 0, 0}};
     stagecal_regress_params prm = stagecal_regress_default_params();
-    const char *form_name = NULL;
+    const char *form_name = NULL, *start_text = NULL;
     double start[STAGECAL_FORM_MAXP];
     size_t nstart = 0;
-    long lv;
-    int json = 0, c, rc;
-
-    optind = 0;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
-        switch (c) {
-        case 'h':
-            fputs(usage_text, stdout);
-            return CLI_EXIT_OK;
-        case O_FORM:
-            form_name = optarg;
-            break;
-        case O_LEVEL:
-            if (cli_parse_double("level", optarg, 0, "a probability in (0, 1)", &prm.level))
-                return CLI_EXIT_USAGE;
-            if (!(prm.level > 0 && prm.level < 1))
-                return cli_usage_error("option '--level': %g is outside (0, 1)", prm.level);
-            break;
-        case O_BOOT:
-            if (cli_parse_long("bootstrap", optarg, 0, 1000000, &lv))
-                return CLI_EXIT_USAGE;
-            prm.bootstrap = (size_t)lv;
-            break;
-        case O_SEED:
-            if (cli_parse_long("seed", optarg, 0, 2147483647L, &lv))
-                return CLI_EXIT_USAGE;
-            prm.seed = (unsigned long)lv;
-            break;
-        case O_RESAMPLE:
-            if (strcmp(optarg, "case") == 0)
-                prm.boot_kind = STAGECAL_BOOT_CASE;
-            else if (strcmp(optarg, "residual") == 0)
-                prm.boot_kind = STAGECAL_BOOT_RESIDUAL;
-            else
-                return cli_usage_error("option '--resample': '%s' (expected case or residual)",
-                                       optarg);
-            break;
-        case O_ROBUST:
-            if (strcmp(optarg, "huber") == 0)
-                prm.robust = STAGECAL_ROBUST_HUBER;
-            else if (strcmp(optarg, "bisquare") == 0)
-                prm.robust = STAGECAL_ROBUST_BISQUARE;
-            else
-                return cli_usage_error("option '--robust': '%s' (expected huber or bisquare)",
-                                       optarg);
-            break;
-        case O_START:
-            if ((rc = parse_start(optarg, start, &nstart)) != 0)
-                return rc;
-            break;
-        case O_ABS:
-            prm.scale_cov = 0;
-            break;
-        case O_BAND:
-            if (cli_parse_long("band-points", optarg, 0, 10000, &lv))
-                return CLI_EXIT_USAGE;
-            prm.band_points = (size_t)lv;
-            break;
-        case O_JSON:
-            json = 1;
-            break;
-        case O_QUIET:
-            cli_quiet = 1;
-            break;
-        default:
-            return cli_usage_getopt(c, argv, "regress");
-        }
-    }
-    if (optind >= argc)
+    long boot = 0, seed = (long)prm.seed, band = (long)prm.band_points;
+    int absolute = 0, resample = 0, robust = -1, first, rc;
+    const struct cli_option opts[] = {
+        OPT_FORM(&form_name, "constant | saturating | saturating-load | linear:TERMS, with\n"
+                             "TERMS from 1, 1/R, L/V, lnR, F, F^2, 1/F joined by '+'\n"
+                             "(e.g. linear:1+1/R); 'auto' ranks the candidates by AICc\n"
+                             "(docs/forms.md)"),
+        OPT_LEVEL(&prm.level),
+        OPT_BOOTSTRAP(&boot),
+        OPT_SEED(&seed),
+        OPT_CHOICE("resample", &resample, "KIND",
+                   "bootstrap by 'case' (default) or 'residual' resampling", resample_names, NULL),
+        OPT_ROBUST(&robust),
+        OPT_STRING(0, "start", &start_text, "LIST",
+                   "comma-separated start values of the parameters (nonlinear forms)"),
+        OPT_FLAG(0, "absolute-sigma", &absolute,
+                 "take sigma as absolute: covariance (J'WJ)^-1, not scaled by s^2"),
+        OPT_LONG("band-points", &band, "N", "points of the band grid over the fitted R range (25)",
+                 0, 10000),
+        OPT__JSON(&ctx->json),
+        OPT__QUIET(),
+        OPT_END(),
+    };
+    if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
+        return rc;
+    if (start_text && (rc = parse_start(start_text, start, &nstart)) != 0)
+        return rc;
+    prm.bootstrap = (size_t)boot;
+    prm.seed = (unsigned long)seed;
+    prm.band_points = (size_t)band;
+    prm.boot_kind = resample == 1 ? STAGECAL_BOOT_RESIDUAL : STAGECAL_BOOT_CASE;
+    prm.robust = cli_robust_kind(robust);
+    if (absolute)
+        prm.scale_cov = 0;
+    if (first >= argc)
         return cli_usage_error("a points file is required (see 'stagecal regress --help')");
-    if (optind + 1 < argc)
+    if (first + 1 < argc)
         return cli_usage_error("unexpected argument '%s' (regress takes one points file)",
-                               argv[optind + 1]);
+                               argv[first + 1]);
     if (!form_name)
         return cli_usage_error("option '--form' is required (see 'stagecal regress --help')");
-    const char *path = argv[optind];
+    const char *path = argv[first];
 
     stagecal_error err;
     stagecal_form form;
@@ -438,7 +360,7 @@ int cmd_regress(int argc, char **argv)
     if (res.r_max > 0 && !cli_quiet && res.boot_b > 0 && res.boot_ok < res.boot_b)
         cli_warn("bootstrap: %zu of %zu resamples could not be fitted and were left out",
                  res.boot_b - res.boot_ok, res.boot_b);
-    if (json)
+    if (ctx->json)
         rc = print_json(path, &res, is_auto ? rows : NULL, nrows);
     else
         print_text(path, &res, is_auto ? rows : NULL, nrows);

@@ -4,7 +4,6 @@
  * file and, optionally, the points it was fitted on. The content is assembled by the
  * report module (stagecal_report_from_model); this file parses, calls and prints.
  */
-#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -13,40 +12,27 @@
 #include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "options.h"
 #include "stagecal/column.h"
 #include "stagecal/model.h"
 #include "stagecal/regress.h"
 #include "stagecal/report.h"
 
-static const char usage_text[] =
+static const struct cli_usage usage = {
     "usage: stagecal report MODEL.json [--points POINTS.csv] [--output OUT.html]\n"
     "                       [--xd XD --reflux R|inf [--f-factor F] [--column FILE]]\n"
-    "                       [--json] [--quiet]\n"
-    "\n"
+    "                       [--json] [--quiet]\n",
     "Writes one self-contained HTML report for the calibration in MODEL.json: the job\n"
     "and data provenance (inputs with SHA-256), the fit table, residual sigma and\n"
     "degrees of freedom, the envelope, HETP where the packed height is known, warnings\n"
     "(extrapolation beyond the envelope), stages against R with confidence and\n"
     "prediction bands, and the caution. The page has inline SVG charts, no scripts and\n"
-    "no network resources, and prints to A4.\n"
-    "\n"
-    "  --points FILE   the points (R,stages[,F,sigma]) to show with the fit; adds a\n"
-    "                  residual chart and flags points outside the envelope\n"
-    "  --xd XD, --reflux R|inf, --f-factor F\n"
-    "                  a stated condition: adds the model's stages there with their\n"
-    "                  prediction interval, the pot composition they reach below a\n"
-    "                  distillate of XD and a McCabe-Thiele chart (F in Pa^0.5, for a\n"
-    "                  form that uses the vapour load)\n"
-    "  --column FILE   the equilibrium for the condition from this column file (for a\n"
-    "                  model file that does not record it; same column id)\n"
-    "  -o, --output F  the HTML file (default: MODEL with .json replaced by .html);\n"
-    "                  '-' writes the HTML to standard output (not with --json)\n"
-    "  --json          one JSON document on stdout\n"
-    "  --quiet         no warnings on stderr\n"
-    "  -h, --help      this text\n"
-    "\n"
+    "no network resources, and prints to A4. --xd, --reflux and --f-factor state a\n"
+    "condition: the report adds the model's stages there with their prediction\n"
+    "interval, the pot composition they reach below a distillate of XD and a\n"
+    "McCabe-Thiele chart.\n",
     "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal,\n"
-    "73 output cannot be written.\n";
+    "73 output cannot be written.\n"};
 
 /* MODEL.json → MODEL.html (or MODEL + ".html"); malloc'd. */
 static char *default_output(const char *model)
@@ -62,73 +48,34 @@ static char *default_output(const char *model)
     return out;
 }
 
-int cmd_report(int argc, char **argv)
+int cmd_report(int argc, char **argv, cli_ctx *ctx)
 {
-    enum { O_POINTS = 256, O_JSON, O_QUIET, O_XD, O_REFLUX, O_FF, O_COLUMN };
-    static const struct option opts[] = {{"points", required_argument, NULL, O_POINTS},
-                                         {"xd", required_argument, NULL, O_XD},
-                                         {"reflux", required_argument, NULL, O_REFLUX},
-                                         {"f-factor", required_argument, NULL, O_FF},
-                                         {"column", required_argument, NULL, O_COLUMN},
-                                         {"output", required_argument, NULL, 'o'},
-                                         {"json", no_argument, NULL, O_JSON},
-                                         {"quiet", no_argument, NULL, O_QUIET},
-                                         {"help", no_argument, NULL, 'h'},
-                                         {0, 0, 0, 0}};
     const char *points_path = NULL, *output = NULL, *column_path = NULL;
-    int json = 0, c, rc;
     double xd = NAN, reflux = NAN, fload = NAN;
-
-    optind = 0;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, ":ho:", opts, NULL)) != -1) {
-        switch (c) {
-        case 'h':
-            fputs(usage_text, stdout);
-            return CLI_EXIT_OK;
-        case O_POINTS:
-            points_path = optarg;
-            break;
-        case 'o':
-            output = optarg;
-            break;
-        case O_XD:
-            if (cli_parse_double("xd", optarg, 0, "a mole fraction in (0, 1)", &xd) ||
-                cli_check_fraction("xd", xd))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_REFLUX:
-            if (cli_parse_double("reflux", optarg, 1, "a reflux ratio >= 0 or inf", &reflux) ||
-                cli_check_reflux("reflux", reflux))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_COLUMN:
-            column_path = optarg;
-            break;
-        case O_FF:
-            if (cli_parse_double("f-factor", optarg, 0, "an F-factor in Pa^0.5", &fload))
-                return CLI_EXIT_USAGE;
-            if (!(fload >= 0))
-                return cli_usage_error("option '--f-factor': %g is negative (expected an "
-                                       "F-factor >= 0 in Pa^0.5)",
-                                       fload);
-            break;
-        case O_JSON:
-            json = 1;
-            break;
-        case O_QUIET:
-            cli_quiet = 1;
-            break;
-        default:
-            return cli_usage_getopt(c, argv, "report");
-        }
-    }
-    if (optind >= argc)
+    const struct cli_option opts[] = {
+        OPT_POINTS(&points_path, "the points (R,stages[,F,sigma]) to show with the fit; adds a\n"
+                                 "residual chart and flags points outside the envelope"),
+        OPT_XD(&xd),
+        OPT_REFLUX(&reflux, "reflux ratio of the stated condition, >= 0 or 'inf'"),
+        OPT_FFACTOR(&fload, "F-factor [Pa^0.5] of the stated condition (for a form that uses it)"),
+        OPT_COLUMN(&column_path, "the equilibrium for the condition from this column file (for a\n"
+                                 "model file that does not record it; same column id)"),
+        OPT_OUTPUT(&output, "the HTML file (default: MODEL with .json replaced by .html);\n"
+                            "'-' writes the HTML to standard output (not with --json)"),
+        OPT__JSON(&ctx->json),
+        OPT__QUIET(),
+        OPT_END(),
+    };
+    int json, first, rc;
+    if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
+        return rc;
+    json = ctx->json;
+    if (first >= argc)
         return cli_usage_error("a model file is required (see 'stagecal report --help')");
-    if (optind + 1 < argc)
+    if (first + 1 < argc)
         return cli_usage_error("unexpected argument '%s' (report takes one model file)",
-                               argv[optind + 1]);
-    const char *model_path = argv[optind];
+                               argv[first + 1]);
+    const char *model_path = argv[first];
     if (isnan(xd) != isnan(reflux))
         return cli_usage_error("options '--xd' and '--reflux' go together (a stated condition)");
     if (!isnan(fload) && isnan(xd))

@@ -2,7 +2,6 @@
  * cmd_steps.c — `stagecal steps`: step a stated number of stages down from xD at a
  * reflux ratio and report the pot composition xB and the stage profile.
  */
-#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -11,112 +10,40 @@
 #include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "options.h"
 #include "stagecal/stages.h"
 
-static const char usage_text[] =
+static const struct cli_usage usage = {
     "usage: stagecal steps (--alpha A | --kvalue K | --column FILE) --xd XD\n"
-    "                      --reflux R|inf --stages N [--murphree E] [--json] [--quiet]\n"
-    "\n"
+    "                      --reflux R|inf --stages N [--murphree E] [--json] [--quiet]\n",
     "Steps N equilibrium stages (the pot included, fractional allowed, N >= 1) down from\n"
     "the distillate composition XD at reflux ratio R and prints the pot composition xB\n"
-    "and the stage profile (stage 1 at the top, the pot last).\n"
-    "\n"
-    "  --alpha A       constant relative volatility, A > 1\n"
-    "  --kvalue K      constant K value (dilute light component), y = K x, K > 1\n"
-    "  --column FILE   the equilibrium model of a column file (docs/column-file.md)\n"
-    "  --xd XD         distillate mole fraction of the light component, in (0, 1)\n"
-    "  --reflux R      reflux ratio L/D >= 0, or 'inf' for total reflux\n"
-    "  --stages N      equilibrium stages including the pot, N >= 1\n"
-    "  --murphree E    Murphree vapour efficiency of the column stages, in (0, 1] (default 1)\n"
-    "  --json          one JSON document on stdout\n"
-    "  --quiet         no warnings on stderr\n"
-    "  -h, --help      this text\n"
-    "\n"
+    "and the stage profile (stage 1 at the top, the pot last).\n",
     "Exit status: 0 success (stages that cannot be stepped are a status, not an error),\n"
-    "2 usage error, 65 bad data (column file), 66 missing file, 70 internal.\n";
+    "2 usage error, 65 bad data (column file), 66 missing file, 70 internal.\n"};
 
-int cmd_steps(int argc, char **argv)
+int cmd_steps(int argc, char **argv, cli_ctx *ctx)
 {
-    enum {
-        O_ALPHA = 256,
-        O_KVALUE,
-        O_COLUMN,
-        O_XD,
-        O_REFLUX,
-        O_STAGES,
-        O_MURPHREE,
-        O_JSON,
-        O_QUIET
-    };
-    static const struct option opts[] = {{"alpha", required_argument, NULL, O_ALPHA},
-                                         {"kvalue", required_argument, NULL, O_KVALUE},
-                                         {"column", required_argument, NULL, O_COLUMN},
-                                         {"xd", required_argument, NULL, O_XD},
-                                         {"reflux", required_argument, NULL, O_REFLUX},
-                                         {"stages", required_argument, NULL, O_STAGES},
-                                         {"murphree", required_argument, NULL, O_MURPHREE},
-                                         {"json", no_argument, NULL, O_JSON},
-                                         {"quiet", no_argument, NULL, O_QUIET},
-                                         {"help", no_argument, NULL, 'h'},
-                                         {0, 0, 0, 0}};
-    cli_system sys;
     double xd = NAN, reflux = NAN, nstages = NAN, murphree = 1.0;
-    int json = 0, c, rc;
+    const struct cli_option opts[] = {
+        OPT_SYSTEM(&ctx->sys),
+        OPT_XD(&xd),
+        OPT_REFLUX(&reflux, "reflux ratio L/D >= 0, or 'inf' for total reflux"),
+        OPT_STAGES(&nstages, "equilibrium stages including the pot, N >= 1"),
+        OPT_MURPHREE(&murphree),
+        OPT__JSON(&ctx->json),
+        OPT__QUIET(),
+        OPT_END(),
+    };
+    cli_system *sys = &ctx->sys;
+    int first, rc;
 
-    cli_system_init(&sys);
-    optind = 0;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
-        switch (c) {
-        case 'h':
-            fputs(usage_text, stdout);
-            return CLI_EXIT_OK;
-        case O_ALPHA:
-        case O_KVALUE:
-        case O_COLUMN:
-            if ((rc = cli_system_option(&sys, opts[c - O_ALPHA].name, optarg)))
-                return rc;
-            break;
-        case O_XD:
-            if (cli_parse_double("xd", optarg, 0, "a mole fraction in (0, 1)", &xd))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_REFLUX:
-            if (cli_parse_double("reflux", optarg, 1, "a reflux ratio >= 0 or 'inf'", &reflux))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_STAGES:
-            if (cli_parse_double("stages", optarg, 0, "a number of stages >= 1", &nstages))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_MURPHREE:
-            if (cli_parse_double("murphree", optarg, 0, "an efficiency in (0, 1]", &murphree))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_JSON:
-            json = 1;
-            break;
-        case O_QUIET:
-            cli_quiet = 1;
-            break;
-        default:
-            return cli_usage_getopt(c, argv, "steps");
-        }
-    }
-    if (optind < argc)
-        return cli_usage_error("unexpected argument '%s' (steps takes options only)", argv[optind]);
+    if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
+        return rc;
+    if (first < argc)
+        return cli_usage_error("unexpected argument '%s' (steps takes options only)", argv[first]);
     if ((rc = cli_require("xd", xd)) || (rc = cli_require("reflux", reflux)) ||
         (rc = cli_require("stages", nstages)))
-        return rc;
-    if ((rc = cli_check_fraction("xd", xd)))
-        return rc;
-    if ((rc = cli_check_reflux("reflux", reflux)))
-        return rc;
-    if (!(nstages >= 1))
-        return cli_usage_error("option '--stages': %g is below 1 (expected stages including the "
-                               "pot, >= 1)",
-                               nstages);
-    if ((rc = cli_check_murphree("murphree", murphree)))
         return rc;
     stagecal_stages_params par = stagecal_stages_default_params();
     /* Checked before sizing the profile: (size_t)ceil(N) of a huge N is undefined. */
@@ -124,7 +51,7 @@ int cmd_steps(int argc, char **argv)
         return cli_usage_error("option '--stages': %g is above %zu (expected at most the "
                                "stepping cap of whole stages)",
                                nstages, par.max_stages);
-    if ((rc = cli_system_open(&sys)))
+    if ((rc = cli_system_open(sys)))
         return rc;
 
     size_t cap = (size_t)ceil(nstages) + 1, len = 0;
@@ -133,24 +60,23 @@ int cmd_steps(int argc, char **argv)
     double xb = 0;
     int status = 0;
     if (!prof) {
-        cli_system_close(&sys);
         cli_error("out of memory");
         return CLI_EXIT_SOFTWARE;
     }
     stagecal_error_clear(&err);
-    rc = stagecal_stages_step(sys.vle, xd, reflux, nstages, murphree, &par, &xb, prof, cap, &len,
+    rc = stagecal_stages_step(sys->vle, xd, reflux, nstages, murphree, &par, &xb, prof, cap, &len,
                               &status, &err);
     if (rc != STAGECAL_OK) {
         free(prof);
-        cli_system_close(&sys);
         return cli_fail(&err);
     }
     if (len > cap)
         len = cap;
-    int has_t = stagecal_vle_has_temperature(sys.vle);
+    int has_t = stagecal_vle_has_temperature(sys->vle);
+    stagecal_condenser cond = sys->have_column ? sys->col.condenser : STAGECAL_CONDENSER_TOTAL;
     double lv = isinf(reflux) ? 1.0 : reflux / (reflux + 1.0);
 
-    if (json) {
+    if (ctx->json) {
         json_t *doc = json_object(), *arr = json_array();
         json_object_set_new(doc, "format", json_string("stagecal-steps"));
         json_object_set_new(doc, "version", json_integer(1));
@@ -159,10 +85,12 @@ int cmd_steps(int argc, char **argv)
         json_object_set_new(doc, "reflux", cli_json_reflux(reflux));
         json_object_set_new(doc, "lv", json_real(lv));
         json_object_set_new(doc, "stages", json_real(nstages));
-        json_object_set_new(doc, "column_stages", json_real(nstages - 1));
+        json_object_set_new(doc, "column_stages",
+                            cli_json_real(stagecal_convention_column_stages(nstages, cond)));
+        json_object_set_new(doc, "stage_convention", json_string(stagecal_convention_text(cond)));
         json_object_set_new(doc, "murphree", json_real(murphree));
         json_object_set_new(doc, "xb", status == STAGECAL_STAGES_OK ? json_real(xb) : json_null());
-        json_object_set_new(doc, "model", cli_system_json(&sys));
+        json_object_set_new(doc, "model", cli_system_json(sys));
         json_object_set_new(
             doc, "units",
             json_pack("{s:s,s:s,s:s}", "x", "mol/mol (light)", "y", "mol/mol (light)", "t_k", "K"));
@@ -172,7 +100,7 @@ int cmd_steps(int argc, char **argv)
             json_object_set_new(p, "x", json_real(prof[i].x));
             json_object_set_new(p, "y", json_real(prof[i].y));
             double t;
-            if (has_t && stagecal_vle_tbubble(sys.vle, prof[i].x, &t) == STAGECAL_OK)
+            if (has_t && stagecal_vle_tbubble(sys->vle, prof[i].x, &t) == STAGECAL_OK)
                 json_object_set_new(p, "t_k", json_real(t));
             json_array_append_new(arr, p);
         }
@@ -189,7 +117,7 @@ int cmd_steps(int argc, char **argv)
             for (size_t i = 0; i < len; i++) {
                 double t;
                 printf("%8.3f  %12.8f  %12.8f", prof[i].stage, prof[i].x, prof[i].y);
-                if (has_t && stagecal_vle_tbubble(sys.vle, prof[i].x, &t) == STAGECAL_OK)
+                if (has_t && stagecal_vle_tbubble(sys->vle, prof[i].x, &t) == STAGECAL_OK)
                     printf("  %9.2f", t - 273.15);
                 putchar('\n');
             }
@@ -198,6 +126,5 @@ int cmd_steps(int argc, char **argv)
         rc = CLI_EXIT_OK;
     }
     free(prof);
-    cli_system_close(&sys);
     return rc;
 }

@@ -7,9 +7,6 @@
  * re-use a newer fit's run logs are set aside first (stagecal_trend_select; --all-fits
  * keeps them). The numerics live in the trend and hetp modules.
  */
-#include <dirent.h>
-#include <errno.h>
-#include <getopt.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -19,16 +16,17 @@
 #include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "options.h"
 #include "stagecal/hetp.h"
 #include "stagecal/model.h"
 #include "stagecal/trend.h"
+#include "stagecal/trend_dir.h"
 
-static const char usage_text[] =
-    "usage: stagecal trend COLUMN... --reflux R|inf [--fload F] [--fits DIR]\n"
+static const struct cli_usage usage = {
+    "usage: stagecal trend COLUMN... --reflux R|inf [--f-factor F] [--fits DIR]\n"
     "                      [--events FILE] [--require N] [--level P] [--lambda W]\n"
     "                      [--limit L] [--baseline-n K] [--baseline N] [--all-fits]\n"
-    "                      [--json] [--quiet]\n"
-    "\n"
+    "                      [--json] [--quiet]\n",
     "Reads every model file under DIR/COLUMN/ and evaluates the stages (the pot included)\n"
     "at reflux ratio R (and F-factor F), each with its confidence interval, and HETP\n"
     "where the model knows the packed height. Each fit is dated by the last logged\n"
@@ -42,24 +40,8 @@ static const char usage_text[] =
     "Fits that share run logs are not counted twice: newest time of fit first, a fit\n"
     "is kept when none of its run logs (by SHA-256; the column file does not count)\n"
     "was read by a kept fit, and is set aside with a warning otherwise. Ties in time\n"
-    "of fit go to the file written later (NAME-2.json after NAME.json).\n"
-    "\n"
-    "  --reflux R        reference reflux ratio, >= 0 or 'inf'\n"
-    "  --fload F         reference F-factor [Pa^0.5] (needed when a form uses it)\n"
-    "  --fits DIR        folder of model files, one subfolder per column (fits)\n"
-    "  --events FILE     repack/maintenance events (CSV: time,column,kind[,note])\n"
-    "  --require N       stages the product specification needs, for the forecast\n"
-    "  --level P         confidence level of intervals, in (0, 1) (0.95)\n"
-    "  --lambda W        EWMA weight, in (0, 1] (0.2)\n"
-    "  --limit L         EWMA limit width in sigma (2.962: in-control ARL 500 with 0.2)\n"
-    "  --baseline-n K    fits at the start of each segment that set the baseline (3)\n"
-    "  --baseline N      known baseline stages for the current segment (e.g. acceptance)\n"
-    "  --all-fits        every model file is a point, shared run logs or not\n"
-    "  --json            one JSON document on stdout\n"
-    "  --quiet           no warnings on stderr\n"
-    "  -h, --help        this text\n"
-    "\n"
-    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n";
+    "of fit go to the file written later (NAME-2.json after NAME.json).\n",
+    "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n"};
 
 /* Where one set-aside fit's data went: the newer fit that supersedes it. */
 struct superseded {
@@ -90,80 +72,12 @@ struct column {
     stagecal_trend_history h;
 };
 
-static int has_json_suffix(const char *name)
-{
-    size_t n = strlen(name);
-    return n > 5 && name[0] != '.' && strcmp(name + n - 5, ".json") == 0;
-}
-
-static int cmp_name(const void *a, const void *b)
-{
-    return strcmp(*(char *const *)a, *(char *const *)b);
-}
-
-static void free_names(char **names, size_t n)
-{
-    for (size_t i = 0; i < n; i++)
-        free(names[i]);
-    free(names);
-}
-
-/* Lists the *.json files of dir, sorted. Returns an exit code. */
-static int list_models(const char *dir, char ***out, size_t *n)
-{
-    *out = NULL;
-    *n = 0;
-    DIR *d = opendir(dir);
-    if (!d) {
-        cli_error("cannot open '%s': %s (expected the fits folder of the column)", dir,
-                  strerror(errno));
-        return CLI_EXIT_NOINPUT;
-    }
-    size_t cap = 0;
-    char **names = NULL;
-    struct dirent *e;
-    while ((e = readdir(d)) != NULL) {
-        if (!has_json_suffix(e->d_name))
-            continue;
-        if (*n == cap) {
-            size_t nc = cap ? 2 * cap : 16;
-            char **nn = realloc(names, nc * sizeof *nn);
-            if (!nn)
-                goto nomem;
-            names = nn;
-            cap = nc;
-        }
-        size_t len = strlen(dir) + strlen(e->d_name) + 2;
-        if (!(names[*n] = malloc(len)))
-            goto nomem;
-        snprintf(names[*n], len, "%s/%s", dir, e->d_name);
-        (*n)++;
-    }
-    closedir(d);
-    if (*n == 0) {
-        free(names);
-        cli_error("no model files in '%s' (expected *.json written by 'stagecal calibrate')", dir);
-        return CLI_EXIT_NOINPUT;
-    }
-    qsort(names, *n, sizeof *names, cmp_name);
-    *out = names;
-    return 0;
-nomem:
-    closedir(d);
-    free_names(names, *n);
-    *n = 0;
-    cli_error("out of memory listing '%s'", dir);
-    return CLI_EXIT_SOFTWARE;
-}
-
-static void free_models(stagecal_model *models, size_t n)
-{
-    if (!models)
-        return;
-    for (size_t i = 0; i < n; i++)
-        stagecal_model_free(&models[i]);
-    free(models);
-}
+/* The reference condition and the options every column shares. */
+struct reference {
+    double reflux, fload, level;
+    const char *fits;
+    int all_fits;
+};
 
 static const char *base_name(const char *path)
 {
@@ -171,97 +85,91 @@ static const char *base_name(const char *path)
     return s ? s + 1 : path;
 }
 
-/* Loads every model file of the column, sets aside fits that re-use a newer fit's run
- * logs (unless all_fits), and evaluates the kept ones at the reference condition. */
-static int load_column(struct column *col, const char *fits, double reflux, double fload,
-                       double level, int all_fits)
+/* Sets aside fit i (it re-uses run logs of the newer fit by). */
+static void set_aside(struct column *col, const stagecal_trend_dir *d, size_t i,
+                      const stagecal_trend_selection *sel)
 {
-    char dir[1024];
-    if ((size_t)snprintf(dir, sizeof dir, "%s/%s", fits, col->id) >= sizeof dir) {
-        cli_error("path '%s/%s' is too long", fits, col->id);
-        return CLI_EXIT_USAGE;
-    }
-    char **names;
-    size_t n;
-    int rc = list_models(dir, &names, &n);
-    if (rc)
-        return rc;
-    stagecal_model *models = calloc(n, sizeof *models);
-    stagecal_trend_selection *sel = calloc(n, sizeof *sel);
-    col->pts = calloc(n, sizeof *col->pts);
-    col->ex = calloc(n, sizeof *col->ex);
-    col->sup = calloc(n, sizeof *col->sup);
-    if (!models || !sel || !col->pts || !col->ex || !col->sup) {
-        free(models);
-        free(sel);
-        free_names(names, n);
-        cli_error("out of memory for %zu model files", n);
-        return CLI_EXIT_SOFTWARE;
-    }
-    for (size_t i = 0; i < n; i++)
-        stagecal_model_init(&models[i]);
+    struct superseded *s = &col->sup[col->n_sup++];
+    const stagecal_model_input *in = &d->models[i].inputs[sel->input];
+    snprintf(s->path, sizeof s->path, "%s", d->paths[i]);
+    snprintf(s->by, sizeof s->by, "%s", d->paths[sel->by]);
+    snprintf(s->log_path, sizeof s->log_path, "%s", in->path);
+    snprintf(s->sha256, sizeof s->sha256, "%s", in->sha256);
+    cli_warn("%s: superseded by the newer fit %s, which shares the run log '%s' "
+             "(sha256 %.12s...); set aside from the trend (--all-fits counts every fit)",
+             s->path, s->by, s->log_path, s->sha256);
+}
+
+/* Evaluates one kept fit at the reference condition: its trend point and what is shown
+ * beside it. Returns an exit code. */
+static int add_fit(struct column *col, const stagecal_model *m, const char *path,
+                   const struct reference *ref)
+{
+    struct extra *x = &col->ex[col->n];
+    stagecal_hetp_stages s;
     stagecal_error err;
     stagecal_error_clear(&err);
-    for (size_t i = 0; i < n && rc == 0; i++) {
-        if (stagecal_model_load(names[i], &models[i], &err) != STAGECAL_OK) {
-            rc = cli_fail(&err);
-        } else if (strcmp(models[i].column_id, col->id) != 0) {
-            cli_error("%s: column id '%s' does not match its folder '%s'", names[i],
-                      models[i].column_id, col->id);
-            rc = CLI_EXIT_DATA;
-        }
+    snprintf(x->path, sizeof x->path, "%s", path);
+    if (m->form.uses_load && isnan(ref->fload))
+        return cli_usage_error("%s: form '%s' uses the vapour load: option '--f-factor F' is "
+                               "required (F-factor in Pa^0.5)",
+                               path, m->form.name);
+    int st =
+        stagecal_trend_point_from_model(m, ref->reflux, ref->fload, 0, &col->pts[col->n], &err);
+    if (st == STAGECAL_OK)
+        st = stagecal_model_eval(m, ref->reflux, ref->fload, ref->level, &x->pt, &err);
+    if (st != STAGECAL_OK) /* options checked already: the model file's content */
+        return cli_fail_data(&err);
+    if (x->pt.extrapolated)
+        cli_warn("%s: the reference condition lies outside the fitted envelope (extrapolation)",
+                 path);
+    snprintf(x->fitted_utc, sizeof x->fitted_utc, "%s", m->fitted_utc);
+    x->dof = m->dof;
+    if (m->has_hetp &&
+        stagecal_hetp_stages_from_model(m, ref->reflux, ref->fload, &s, NULL, &err) ==
+            STAGECAL_OK &&
+        stagecal_hetp_compute(m->height_m, &s, ref->level, &x->hetp, &err) == STAGECAL_OK) {
+        x->has_hetp = 1;
+        x->height_m = m->height_m;
     }
-    if (rc == 0 && !all_fits &&
-        stagecal_trend_select(models, (const char *const *)names, n, sel, NULL, &err) !=
-            STAGECAL_OK)
+    col->n++;
+    return 0;
+}
+
+/* Loads every model file of the column (stagecal_trend_dir_load), sets aside fits that
+ * re-use a newer fit's run logs (unless all_fits), and evaluates the kept ones. */
+static int load_column(struct column *col, const struct reference *ref)
+{
+    char dir[1024];
+    if ((size_t)snprintf(dir, sizeof dir, "%s/%s", ref->fits, col->id) >= sizeof dir) {
+        cli_error("path '%s/%s' is too long", ref->fits, col->id);
+        return CLI_EXIT_USAGE;
+    }
+    stagecal_trend_dir d;
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    if (stagecal_trend_dir_load(dir, col->id, &d, &err) != STAGECAL_OK)
+        return cli_fail(&err);
+    stagecal_trend_selection *sel = calloc(d.n, sizeof *sel);
+    col->pts = calloc(d.n, sizeof *col->pts);
+    col->ex = calloc(d.n, sizeof *col->ex);
+    col->sup = calloc(d.n, sizeof *col->sup);
+    int rc = 0;
+    if (!sel || !col->pts || !col->ex || !col->sup) {
+        cli_error("out of memory for %zu model files", d.n);
+        rc = CLI_EXIT_SOFTWARE;
+    } else if (!ref->all_fits && stagecal_trend_select(d.models, (const char *const *)d.paths, d.n,
+                                                       sel, NULL, &err) != STAGECAL_OK) {
         rc = cli_fail_data(&err);
-    for (size_t i = 0; i < n && rc == 0; i++) {
-        const stagecal_model *m = &models[i];
-        if (!all_fits && sel[i].by >= 0) {
-            struct superseded *s = &col->sup[col->n_sup++];
-            const stagecal_model_input *in = &m->inputs[sel[i].input];
-            snprintf(s->path, sizeof s->path, "%s", names[i]);
-            snprintf(s->by, sizeof s->by, "%s", names[sel[i].by]);
-            snprintf(s->log_path, sizeof s->log_path, "%s", in->path);
-            snprintf(s->sha256, sizeof s->sha256, "%s", in->sha256);
-            cli_warn("%s: superseded by the newer fit %s, which shares the run log '%s' "
-                     "(sha256 %.12s...); set aside from the trend (--all-fits counts every fit)",
-                     s->path, s->by, s->log_path, s->sha256);
-            continue;
-        }
-        struct extra *x = &col->ex[col->n];
-        stagecal_hetp_stages s;
-        snprintf(x->path, sizeof x->path, "%s", names[i]);
-        if (m->form.uses_load && isnan(fload)) {
-            rc = cli_usage_error("%s: form '%s' uses the vapour load: option '--fload F' is "
-                                 "required (F-factor in Pa^0.5)",
-                                 names[i], m->form.name);
-            break;
-        }
-        int st = stagecal_trend_point_from_model(m, reflux, fload, 0, &col->pts[col->n], &err);
-        if (st == STAGECAL_OK)
-            st = stagecal_model_eval(m, reflux, fload, level, &x->pt, &err);
-        if (st != STAGECAL_OK) { /* options checked already: the model file's content */
-            rc = cli_fail_data(&err);
-            break;
-        }
-        if (x->pt.extrapolated)
-            cli_warn("%s: the reference condition lies outside the fitted envelope "
-                     "(extrapolation)",
-                     names[i]);
-        snprintf(x->fitted_utc, sizeof x->fitted_utc, "%s", m->fitted_utc);
-        x->dof = m->dof;
-        if (m->has_hetp &&
-            stagecal_hetp_stages_from_model(m, reflux, fload, &s, NULL, &err) == STAGECAL_OK &&
-            stagecal_hetp_compute(m->height_m, &s, level, &x->hetp, &err) == STAGECAL_OK) {
-            x->has_hetp = 1;
-            x->height_m = m->height_m;
-        }
-        col->n++;
     }
-    free_models(models, n);
+    for (size_t i = 0; i < d.n && rc == 0; i++) {
+        if (!ref->all_fits && sel[i].by >= 0)
+            set_aside(col, &d, i, &sel[i]);
+        else
+            rc = add_fit(col, &d.models[i], d.paths[i], ref);
+    }
     free(sel);
-    free_names(names, n);
+    stagecal_trend_dir_free(&d);
     return rc;
 }
 
@@ -465,152 +373,86 @@ static void print_fleet_row(const struct column *col, int pct)
            h->points[h->n - 1].value, x->pt.ci_low, x->pt.ci_high, loss, fc, g->n_alarms);
 }
 
-int cmd_trend(int argc, char **argv)
+static int print_json(const struct column *cols, size_t ncol, const stagecal_trend_event *ev,
+                      const struct reference *ref, const stagecal_trend_params *par)
 {
-    enum {
-        O_REFLUX = 256,
-        O_FLOAD,
-        O_FITS,
-        O_EVENTS,
-        O_REQUIRE,
-        O_LEVEL,
-        O_LAMBDA,
-        O_LIMIT,
-        O_BASELINE_N,
-        O_BASELINE,
-        O_ALL_FITS,
-        O_JSON,
-        O_QUIET
-    };
-    static const struct option opts[] = {{"reflux", required_argument, NULL, O_REFLUX},
-                                         {"fload", required_argument, NULL, O_FLOAD},
-                                         {"fits", required_argument, NULL, O_FITS},
-                                         {"events", required_argument, NULL, O_EVENTS},
-                                         {"require", required_argument, NULL, O_REQUIRE},
-                                         {"level", required_argument, NULL, O_LEVEL},
-                                         {"lambda", required_argument, NULL, O_LAMBDA},
-                                         {"limit", required_argument, NULL, O_LIMIT},
-                                         {"baseline-n", required_argument, NULL, O_BASELINE_N},
-                                         {"baseline", required_argument, NULL, O_BASELINE},
-                                         {"all-fits", no_argument, NULL, O_ALL_FITS},
-                                         {"json", no_argument, NULL, O_JSON},
-                                         {"quiet", no_argument, NULL, O_QUIET},
-                                         {"help", no_argument, NULL, 'h'},
-                                         {0, 0, 0, 0}};
-    stagecal_trend_params par = stagecal_trend_default_params();
-    double reflux = NAN, fload = NAN;
-    const char *fits = "fits", *events_path = NULL;
-    long baseline_n = (long)par.baseline_n;
-    int json = 0, all_fits = 0, c, rc;
+    json_t *doc = json_object();
+    json_object_set_new(doc, "format", json_string("stagecal-trend"));
+    json_object_set_new(doc, "version", json_integer(1));
+    json_object_set_new(doc, "reflux", cli_json_reflux(ref->reflux));
+    json_object_set_new(doc, "f_factor", cli_json_real(ref->fload));
+    json_object_set_new(doc, "fload", cli_json_real(ref->fload)); /* the name of version 1 */
+    json_object_set_new(doc, "level", json_real(par->level));
+    json_object_set_new(doc, "required", cli_json_real(par->required));
+    json_object_set_new(doc, "units",
+                        json_pack("{s:s, s:s, s:s}", "stages", "stages, the pot included", "slope",
+                                  "stages per month (365.2425 d / 12)", "hetp", "m"));
+    json_object_set_new(
+        doc, "chart",
+        json_pack("{s:s, s:o, s:o, s:o, s:I, s:o, s:s}", "kind", "ewma", "lambda",
+                  json_real(par->ewma.lambda), "L", json_real(par->ewma.L), "arl0",
+                  cli_json_real(cols[0].h.arl0), "baseline_n", (json_int_t)par->baseline_n,
+                  "baseline", cli_json_real(par->baseline), "design",
+                  "Lucas & Saccucci 1990; ARL by the Brook & Evans 1972 Markov chain"));
+    json_object_set_new(
+        doc, "time_of_fit",
+        json_string(
+            "each point is dated by its model file's data_last_utc (fitted_utc when absent)"));
+    json_object_set_new(
+        doc, "selection",
+        json_pack("{s:s, s:s}", "rule", ref->all_fits ? "all-fits" : "newest-wins", "description",
+                  ref->all_fits ? "every model file is a point (--all-fits)"
+                                : "newest fit first; a fit that shares a run log (SHA-256, "
+                                  "rows > 0) with a kept newer fit is set aside "
+                                  "(columns[].superseded)"));
+    json_t *arr = json_array();
+    for (size_t i = 0; i < ncol; i++)
+        json_array_append_new(arr, column_json(&cols[i], ev));
+    json_object_set_new(doc, "columns", arr);
+    json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
+    return cli_json_print(doc);
+}
 
-    optind = 0;
-    opterr = 0;
-    while ((c = getopt_long(argc, argv, ":h", opts, NULL)) != -1) {
-        switch (c) {
-        case 'h':
-            fputs(usage_text, stdout);
-            return CLI_EXIT_OK;
-        case O_REFLUX:
-            if (cli_parse_double("reflux", optarg, 1, "a reflux ratio >= 0 or 'inf'", &reflux))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_FLOAD:
-            if (cli_parse_double("fload", optarg, 0, "an F-factor in Pa^0.5", &fload))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_FITS:
-            fits = optarg;
-            break;
-        case O_EVENTS:
-            events_path = optarg;
-            break;
-        case O_REQUIRE:
-            if (cli_parse_double("require", optarg, 0, "a number of stages", &par.required))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_LEVEL:
-            if (cli_parse_double("level", optarg, 0, "a confidence level in (0, 1)", &par.level))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_LAMBDA:
-            if (cli_parse_double("lambda", optarg, 0, "an EWMA weight in (0, 1]", &par.ewma.lambda))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_LIMIT:
-            if (cli_parse_double("limit", optarg, 0, "a limit width in sigma", &par.ewma.L))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_BASELINE_N:
-            if (cli_parse_long("baseline-n", optarg, 1, 1000, &baseline_n))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_BASELINE:
-            if (cli_parse_double("baseline", optarg, 0, "a number of stages", &par.baseline))
-                return CLI_EXIT_USAGE;
-            break;
-        case O_ALL_FITS:
-            all_fits = 1;
-            break;
-        case O_JSON:
-            json = 1;
-            break;
-        case O_QUIET:
-            cli_quiet = 1;
-            break;
-        default:
-            return cli_usage_getopt(c, argv, "trend");
-        }
+static void print_text(const struct column *cols, size_t ncol, const stagecal_trend_event *ev,
+                       const struct reference *ref, const stagecal_trend_params *par)
+{
+    int pct = (int)lround(par->level * 100);
+    printf("stages (the pot included) at R = %g%s; %d %% intervals; EWMA lambda = %g, L = %g "
+           "(in-control ARL %.0f fits)\n",
+           ref->reflux, isnan(ref->fload) ? "" : " and the given F", pct, par->ewma.lambda,
+           par->ewma.L, cols[0].h.arl0);
+    if (ncol == 1) {
+        print_column(&cols[0], ev, pct, par->required);
+        return;
     }
-    par.baseline_n = (size_t)baseline_n;
-    size_t ncol = (size_t)(argc - optind);
-    if (ncol == 0)
-        return cli_usage_error("a column id is required (see 'stagecal trend --help')");
-    if ((rc = cli_require("reflux", reflux)))
-        return rc;
-    if ((rc = cli_check_reflux("reflux", reflux)))
-        return rc;
-    if (!(par.level > 0 && par.level < 1))
-        return cli_usage_error("option '--level': %g is outside (0, 1) (expected e.g. 0.95)",
-                               par.level);
-    if (!(par.ewma.lambda > 0 && par.ewma.lambda <= 1))
-        return cli_usage_error("option '--lambda': %g is outside (0, 1] (expected e.g. 0.2)",
-                               par.ewma.lambda);
-    if (!(par.ewma.L > 0))
-        return cli_usage_error("option '--limit': %g is not positive (expected e.g. 2.962)",
-                               par.ewma.L);
-    if (!isnan(par.required) && !(par.required >= 1))
-        return cli_usage_error("option '--require': %g is below 1 (expected stages, the pot "
-                               "included)",
-                               par.required);
-    for (size_t i = 0; i < ncol; i++) {
-        const char *id = argv[optind + (int)i];
-        if (!id[0] || id[0] == '.' || strchr(id, '/'))
-            return cli_usage_error("'%s' is not a column id (expected [A-Za-z0-9_.-]+)", id);
-    }
+    printf("%-16s %4s %24s %-26s %-36s %s\n", "column", "fits", "current stages (CI)",
+           "loss/month (CI)", "forecast date [band]", "alarms");
+    for (size_t i = 0; i < ncol; i++)
+        print_fleet_row(&cols[i], pct);
+    for (size_t i = 0; i < ncol; i++)
+        if (cols[i].n_sup > 0)
+            printf("column %s: %zu set aside (they share run logs with a newer fit)\n", cols[i].id,
+                   cols[i].n_sup);
+}
 
+/* Loads and analyses every column, warns about scatter, prints. Returns an exit code. */
+static int run(struct column *cols, size_t ncol, const char *events_path,
+               const struct reference *ref, const stagecal_trend_params *par, int json)
+{
     stagecal_error err;
     stagecal_error_clear(&err);
     stagecal_trend_event *ev = NULL;
     size_t nev = 0;
+    int rc = 0;
     if (events_path && stagecal_trend_events_read(events_path, &ev, &nev, &err) != STAGECAL_OK)
         return cli_fail(&err);
-    struct column *cols = calloc(ncol, sizeof *cols);
-    if (!cols) {
-        free(ev);
-        cli_error("out of memory");
-        return CLI_EXIT_SOFTWARE;
-    }
-    rc = 0;
     for (size_t i = 0; i < ncol && rc == 0; i++) {
-        cols[i].id = argv[optind + (int)i];
-        rc = load_column(&cols[i], fits, reflux, fload, par.level, all_fits);
-        if (rc == 0 && stagecal_trend_analyse(cols[i].pts, cols[i].n, ev, nev, cols[i].id, &par,
+        rc = load_column(&cols[i], ref);
+        if (rc == 0 && stagecal_trend_analyse(cols[i].pts, cols[i].n, ev, nev, cols[i].id, par,
                                               &cols[i].h, &err) != STAGECAL_OK)
             rc = cli_fail_data(&err);
     }
-    if (rc)
-        goto done;
-    for (size_t i = 0; i < ncol; i++) {
+    for (size_t i = 0; i < ncol && rc == 0; i++) {
         const stagecal_trend_segment *g = &cols[i].h.segments[cols[i].h.n_segments - 1];
         /* A Birge ratio above 2 means the fits scatter far beyond their own errors. */
         if (g->has_fit && g->fit.scale > 2)
@@ -619,63 +461,69 @@ int cmd_trend(int argc, char **argv)
                      "stated errors and will raise more false alarms than its design",
                      cols[i].id, g->fit.scale);
     }
+    if (rc == 0 && json)
+        rc = print_json(cols, ncol, ev, ref, par);
+    else if (rc == 0)
+        print_text(cols, ncol, ev, ref, par);
+    free(ev);
+    return rc;
+}
 
-    int pct = (int)lround(par.level * 100);
-    if (json) {
-        json_t *doc = json_object();
-        json_object_set_new(doc, "format", json_string("stagecal-trend"));
-        json_object_set_new(doc, "version", json_integer(1));
-        json_object_set_new(doc, "reflux", cli_json_reflux(reflux));
-        json_object_set_new(doc, "fload", cli_json_real(fload));
-        json_object_set_new(doc, "level", json_real(par.level));
-        json_object_set_new(doc, "required", cli_json_real(par.required));
-        json_object_set_new(doc, "units",
-                            json_pack("{s:s, s:s, s:s}", "stages", "stages, the pot included",
-                                      "slope", "stages per month (365.2425 d / 12)", "hetp", "m"));
-        json_object_set_new(
-            doc, "chart",
-            json_pack("{s:s, s:o, s:o, s:o, s:I, s:o, s:s}", "kind", "ewma", "lambda",
-                      json_real(par.ewma.lambda), "L", json_real(par.ewma.L), "arl0",
-                      cli_json_real(cols[0].h.arl0), "baseline_n", (json_int_t)par.baseline_n,
-                      "baseline", cli_json_real(par.baseline), "design",
-                      "Lucas & Saccucci 1990; ARL by the Brook & Evans 1972 Markov chain"));
-        json_object_set_new(
-            doc, "time_of_fit",
-            json_string(
-                "each point is dated by its model file's data_last_utc (fitted_utc when absent)"));
-        json_object_set_new(
-            doc, "selection",
-            json_pack("{s:s, s:s}", "rule", all_fits ? "all-fits" : "newest-wins", "description",
-                      all_fits ? "every model file is a point (--all-fits)"
-                               : "newest fit first; a fit that shares a run log (SHA-256, "
-                                 "rows > 0) with a kept newer fit is set aside "
-                                 "(columns[].superseded)"));
-        json_t *arr = json_array();
-        for (size_t i = 0; i < ncol; i++)
-            json_array_append_new(arr, column_json(&cols[i], ev));
-        json_object_set_new(doc, "columns", arr);
-        json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
-        rc = cli_json_print(doc);
-        goto done;
+int cmd_trend(int argc, char **argv, cli_ctx *ctx)
+{
+    stagecal_trend_params par = stagecal_trend_default_params();
+    struct reference ref = {NAN, NAN, 0.95, "fits", 0};
+    const char *events_path = NULL;
+    long baseline_n = (long)par.baseline_n;
+    const struct cli_option opts[] = {
+        OPT_REFLUX(&ref.reflux, "reference reflux ratio, >= 0 or 'inf'"),
+        OPT_FFACTOR(&ref.fload, "reference F-factor [Pa^0.5] (needed when a form uses it)"),
+        OPT_ALIAS("fload", "f-factor"),
+        OPT_FITS(&ref.fits),
+        OPT_STRING(0, "events", &events_path, "FILE",
+                   "repack/maintenance events (CSV: time,column,kind[,note])"),
+        OPT_DOUBLE("require", &par.required, "N",
+                   "stages the product specification needs, for the forecast", 1, INFINITY, 0,
+                   "stages, the pot included"),
+        OPT_LEVEL(&par.level),
+        OPT_DOUBLE("lambda", &par.ewma.lambda, "W", "EWMA weight, in (0, 1] (0.2)", 0, 1,
+                   CLI_D_LO_OPEN, "an EWMA weight such as 0.2"),
+        OPT_DOUBLE("limit", &par.ewma.L, "L",
+                   "EWMA limit width in sigma (2.962: in-control ARL 500 with 0.2)", 0, INFINITY,
+                   CLI_D_LO_OPEN, "a limit width such as 2.962"),
+        OPT_LONG("baseline-n", &baseline_n, "K",
+                 "fits at the start of each segment that set the baseline (3)", 1, 1000),
+        OPT_DOUBLE("baseline", &par.baseline, "N",
+                   "known baseline stages for the current segment (e.g. acceptance)", 1, INFINITY,
+                   0, "stages including the pot, >= 1"),
+        OPT_FLAG(0, "all-fits", &ref.all_fits,
+                 "every model file is a point, shared run logs or not"),
+        OPT__JSON(&ctx->json),
+        OPT__QUIET(),
+        OPT_END(),
+    };
+    int first, rc;
+    if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
+        return rc;
+    par.baseline_n = (size_t)baseline_n;
+    ref.level = par.level;
+    size_t ncol = (size_t)(argc - first);
+    if (ncol == 0)
+        return cli_usage_error("a column id is required (see 'stagecal trend --help')");
+    if ((rc = cli_require("reflux", ref.reflux)))
+        return rc;
+    for (size_t i = 0; i < ncol; i++)
+        if (!stagecal_convention_id_valid(argv[first + (int)i]))
+            return cli_usage_error("'%s' is not a column id (expected %s)", argv[first + (int)i],
+                                   stagecal_convention_id_rule());
+    struct column *cols = calloc(ncol, sizeof *cols);
+    if (!cols) {
+        cli_error("out of memory");
+        return CLI_EXIT_SOFTWARE;
     }
-    printf("stages (the pot included) at R = %g%s; %d %% intervals; EWMA lambda = %g, L = %g "
-           "(in-control ARL %.0f fits)\n",
-           reflux, isnan(fload) ? "" : " and the given F", pct, par.ewma.lambda, par.ewma.L,
-           cols[0].h.arl0);
-    if (ncol == 1) {
-        print_column(&cols[0], ev, pct, par.required);
-    } else {
-        printf("%-16s %4s %24s %-26s %-36s %s\n", "column", "fits", "current stages (CI)",
-               "loss/month (CI)", "forecast date [band]", "alarms");
-        for (size_t i = 0; i < ncol; i++)
-            print_fleet_row(&cols[i], pct);
-        for (size_t i = 0; i < ncol; i++)
-            if (cols[i].n_sup > 0)
-                printf("column %s: %zu set aside (they share run logs with a newer fit)\n",
-                       cols[i].id, cols[i].n_sup);
-    }
-    rc = CLI_EXIT_OK;
-done:
+    for (size_t i = 0; i < ncol; i++)
+        cols[i].id = argv[first + (int)i];
+    rc = run(cols, ncol, events_path, &ref, &par, ctx->json);
     for (size_t i = 0; i < ncol; i++) {
         stagecal_trend_history_free(&cols[i].h);
         free(cols[i].pts);
@@ -683,6 +531,5 @@ done:
         free(cols[i].sup);
     }
     free(cols);
-    free(ev);
     return rc;
 }

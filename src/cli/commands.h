@@ -1,23 +1,24 @@
-/* commands.h — the subcommands' entry points (one cmd_<name>.c each). */
+/* commands.h — the subcommands' entry points (one cmd_<name>.c each), listed with their
+ * setup flags in main.c's table. Checklist for a new command: cmd_<name>.c with its
+ * cli_usage and option table (options.h: shared options come from the OPT_ macros), a
+ * row in main.c's table, tests in tests/cli/, a section in docs/cli.md. */
 #ifndef STAGECAL_COMMANDS_H
 #define STAGECAL_COMMANDS_H
 
-int cmd_steps(int argc, char **argv);
-int cmd_check(int argc, char **argv);
-int cmd_invert(int argc, char **argv);
-/* The run-log mode of `invert` (invert_runlog.c): wanted when a positional argument
- * (a run log) or --out is present; then it parses argv itself. */
-int invert_runlog_wanted(int argc, char **argv);
-int invert_runlog(int argc, char **argv);
-int cmd_calibrate(int argc, char **argv);
-int cmd_regress(int argc, char **argv);
-int cmd_fits(int argc, char **argv);
-int cmd_hetp(int argc, char **argv);
-int cmd_history(int argc, char **argv);
-int cmd_trend(int argc, char **argv);
-int cmd_predict(int argc, char **argv);
-int cmd_plot(int argc, char **argv);
-int cmd_report(int argc, char **argv);
-int cmd_probe(int argc, char **argv);
+#include "cli.h"
+
+int cmd_steps(int argc, char **argv, cli_ctx *ctx);
+int cmd_check(int argc, char **argv, cli_ctx *ctx);
+int cmd_invert(int argc, char **argv, cli_ctx *ctx);
+int cmd_calibrate(int argc, char **argv, cli_ctx *ctx);
+int cmd_regress(int argc, char **argv, cli_ctx *ctx);
+int cmd_fits(int argc, char **argv, cli_ctx *ctx);
+int cmd_hetp(int argc, char **argv, cli_ctx *ctx);
+int cmd_history(int argc, char **argv, cli_ctx *ctx);
+int cmd_trend(int argc, char **argv, cli_ctx *ctx);
+int cmd_predict(int argc, char **argv, cli_ctx *ctx);
+int cmd_plot(int argc, char **argv, cli_ctx *ctx);
+int cmd_report(int argc, char **argv, cli_ctx *ctx);
+int cmd_probe(int argc, char **argv, cli_ctx *ctx);
 
 #endif

@@ -1,7 +1,9 @@
 /*
- * main.c — the stagecal program: a table of subcommands (Git's dispatch idea).
- * Parsing stops at the command name ('+' in the option string); each command
- * resets getopt with optind = 0 and parses its own options.
+ * main.c — the stagecal program: a table of subcommands with the shared setup each
+ * needs (Git's dispatch table with RUN_SETUP-style flags). Parsing stops at the command
+ * name ('+' in the option string); each command parses its own options from its table
+ * (options.h). main prepares the context the flags ask for, runs the command, prints
+ * the caution after a text output whose numbers feed a decision, and tidies up.
  */
 #include <getopt.h>
 #include <gsl/gsl_errno.h>
@@ -15,29 +17,57 @@
 #include "banned.h"
 #include "cli.h"
 #include "commands.h"
+#include "options.h"
 #include "stagecal/version.h"
 
 struct command {
     const char *name;
-    int (*run)(int argc, char **argv);
+    int (*run)(int argc, char **argv, cli_ctx *ctx);
+    unsigned flags; /* CMD_SYSTEM, CMD_CAUTION (cli.h) */
     const char *summary;
 };
 
 static const struct command commands[] = {
-    {"check", cmd_check, "validate run logs: findings with file:line, mass-balance closure"},
-    {"steps", cmd_steps, "step stages down from xD: xB and the stage profile"},
-    {"calibrate", cmd_calibrate, "run logs in, stages(R, F) with bands out, as a model file"},
-    {"invert", cmd_invert, "effective stages from xD, xB and R (or every row of a run log)"},
-    {"regress", cmd_regress, "fit stages against R (and F) with bands, from a points file"},
-    {"fits", cmd_fits, "a column's fits by data period and label; label and retire them"},
-    {"hetp", cmd_hetp, "HETP (or tray efficiency) with an interval; before/after a repack"},
-    {"history", cmd_history, "one fit over months of logs: loss rate, stages now, crossing date"},
-    {"trend", cmd_trend, "stages over months: trend, EWMA alarms, forecast; fleet rows"},
-    {"predict", cmd_predict, "predict a batch from a model file: cuts, times, yields, band"},
-    {"plot", cmd_plot, "charts as PNG, SVG or PDF: McCabe-Thiele diagram, stages against R"},
-    {"probe", cmd_probe, "where to run the next tests: I-/D-optimal conditions, band before/after"},
-    {"report", cmd_report, "one self-contained HTML report (inline SVG, printable) of a model"},
+    {"check", cmd_check, 0, "validate run logs: findings with file:line, mass-balance closure"},
+    {"steps", cmd_steps, CMD_SYSTEM, "step stages down from xD: xB and the stage profile"},
+    {"calibrate", cmd_calibrate, CMD_CAUTION,
+     "run logs in, stages(R, F) with bands out, as a model file"},
+    {"invert", cmd_invert, CMD_SYSTEM | CMD_CAUTION,
+     "effective stages from xD, xB and R (or every row of a run log)"},
+    {"regress", cmd_regress, CMD_CAUTION,
+     "fit stages against R (and F) with bands, from a points file"},
+    {"fits", cmd_fits, 0, "a column's fits by data period and label; label and retire them"},
+    {"hetp", cmd_hetp, CMD_CAUTION,
+     "HETP (or tray efficiency) with an interval; before/after a repack"},
+    {"history", cmd_history, CMD_CAUTION,
+     "one fit over months of logs: loss rate, stages now, crossing date"},
+    {"trend", cmd_trend, CMD_CAUTION,
+     "stages over months: trend, EWMA alarms, forecast; fleet rows"},
+    {"predict", cmd_predict, CMD_SYSTEM | CMD_CAUTION,
+     "predict a batch from a model file: cuts, times, yields, band"},
+    {"plot", cmd_plot, CMD_SYSTEM,
+     "charts as PNG, SVG or PDF: McCabe-Thiele diagram, stages against R"},
+    {"probe", cmd_probe, CMD_CAUTION,
+     "where to run the next tests: I-/D-optimal conditions, band before/after"},
+    {"report", cmd_report, 0, "one self-contained HTML report (inline SVG, printable) of a model"},
 };
+
+/* Runs one command with the setup its flags ask for. */
+static int run(const struct command *cmd, int argc, char **argv)
+{
+    cli_ctx ctx;
+    memset(&ctx, 0, sizeof ctx);
+    cli_system_init(&ctx.sys);
+    cli_command = cmd->name;
+    int rc = cmd->run(argc, argv, &ctx);
+    if (rc == CLI_PARSE_HELP) /* --help: the usage text was the output */
+        rc = CLI_EXIT_OK;
+    else if (rc == CLI_EXIT_OK && (cmd->flags & CMD_CAUTION) && !ctx.json && !ctx.data_on_stdout)
+        cli_print_caution();
+    if (cmd->flags & CMD_SYSTEM)
+        cli_system_close(&ctx.sys);
+    return rc;
+}
 
 static void usage(FILE *out)
 {
@@ -96,10 +126,8 @@ int main(int argc, char **argv)
     }
     const char *name = argv[optind];
     for (size_t i = 0; i < sizeof commands / sizeof commands[0]; i++) {
-        if (strcmp(commands[i].name, name) == 0) {
-            cli_command = commands[i].name;
-            return finish(commands[i].run(argc - optind, argv + optind));
-        }
+        if (strcmp(commands[i].name, name) == 0)
+            return finish(run(&commands[i], argc - optind, argv + optind));
     }
     /* One line (errors are one line), listing the table (Git's habit). */
     fprintf(stderr, "stagecal: '%s' is not a command (expected one of:", name);

@@ -1,5 +1,5 @@
 #!/bin/sh
-# test_check.sh — `stagecal check`: exit codes (DESIGN §5: 0, 2, 65, 66), exact finding
+# test_check.sh — `stagecal check`: exit codes (docs/cli.md: 0, 2, 65, 66), exact finding
 # text on stdout, JSON shape. Usage: sh test_check.sh <stagecal-binary> <repo-root>
 # Scratch files go next to the binary (inside the build tree).
 set -u
@@ -83,7 +83,7 @@ if [ -f "$dcol" ]; then
     n=$(wc -l <"$tmp/out")
     [ "$n" -eq 6 ] || { echo "FAIL invert-log-csv: $n lines, want 6"; fails=$((fails + 1)); }
     if grep -qiE 'nan|inf' "$tmp/out"; then echo "FAIL invert-log-csv: nan/inf in output"; fails=$((fails + 1)); fi
-    check_exit invert-log-json 0 "$bin" invert --column "$dcol" --json --out "$tmp/rows.csv" "$tmp/good.csv"
+    check_exit invert-log-json 0 "$bin" invert --column "$dcol" --json --output "$tmp/rows.csv" "$tmp/good.csv"
     if ! /usr/bin/python3 - "$tmp/out" "$tmp/rows.csv" <<'EOF2'
 import csv, json, sys
 d = json.load(open(sys.argv[1]))
@@ -101,7 +101,7 @@ EOF2
     fi
     # the scalar mode is unchanged
     check_exit invert-scalar 0 "$bin" invert --alpha 2.5 --xd 0.95 --xb 0.05 --reflux inf
-    check_exit invert-unwritable 73 "$bin" invert --column "$dcol" --out /nonexistent/dir/x.csv "$tmp/good.csv"
+    check_exit invert-unwritable 73 "$bin" invert --column "$dcol" --output /nonexistent/dir/x.csv "$tmp/good.csv"
 fi
 
 rm -rf "$tmp"

@@ -47,12 +47,12 @@ expect_exit 2 "stagecal: unknown option '-x'" -- "$BIN" -x
 expect_exit 2 "'frob' is not a command (expected one of: check steps calibrate" -- "$BIN" frob
 
 # --- --json owns stdout -----------------------------------------------------------------
-expect_exit 2 "options '--json' and '--out -'" -- \
-    "$BIN" invert --column "$ALPHA" --json --out - "$LOGS/2025-01.csv"
-expect_exit 0 "" -- "$BIN" invert --column "$ALPHA" --json --out "$tmp/rows.csv" "$LOGS/2025-01.csv"
+expect_exit 2 "options '--json' and '--output -'" -- \
+    "$BIN" invert --column "$ALPHA" --json --output - "$LOGS/2025-01.csv"
+expect_exit 0 "" -- "$BIN" invert --column "$ALPHA" --json --output "$tmp/rows.csv" "$LOGS/2025-01.csv"
 $py -c 'import json,sys; d=json.load(open(sys.argv[1])); assert d["format"] == "stagecal-invert-runlog"' \
-    "$tmp/out" || { echo "FAIL: invert --json --out FILE: stdout is not one JSON summary"; fails=$((fails + 1)); }
-[ -s "$tmp/rows.csv" ] || { echo "FAIL: invert --out FILE wrote nothing"; fails=$((fails + 1)); }
+    "$tmp/out" || { echo "FAIL: invert --json --output FILE: stdout is not one JSON summary"; fails=$((fails + 1)); }
+[ -s "$tmp/rows.csv" ] || { echo "FAIL: invert --output FILE wrote nothing"; fails=$((fails + 1)); }
 
 # --- plot: the chart kind may follow the options; options of the other kind refused ----
 expect_exit 0 "" -- "$BIN" plot --alpha 2.5 --xd 0.95 --reflux 3 --stages 6 mccabe -o "$tmp/d.svg"
@@ -98,16 +98,16 @@ expect_exit 0 "" -- "$BIN" steps --column "$BT" --xd 0.95 --reflux 3 --stages 5 
 expect_exit 0 "" -- "$BIN" steps --column "$ALPHA" --xd 0.95 --reflux 3 --stages 5
 [ -s "$tmp/err" ] && { echo "FAIL: constant alpha has no Antoine set, yet a warning"; fails=$((fails + 1)); }
 
-# --- hetp and trend: a load form without --fload is a usage error naming the option -----
+# --- hetp and trend: a load form without --f-factor is a usage error naming the option -----
 "$BIN" calibrate --quiet --form saturating-load --fits "$tmp/fits" --column "$BT" \
     "$LOGS/2025-01.csv" "$LOGS/2025-02.csv" >/dev/null 2>&1 ||
     { echo "FAIL: calibrate for the hetp/trend checks"; fails=$((fails + 1)); }
 model=$(ls "$tmp"/fits/demo-bt-K-7/*.json 2>/dev/null | head -n 1)
-expect_exit 2 "option '--fload F' is required" -- "$BIN" hetp "$model" --reflux 3
-expect_exit 0 "" -- "$BIN" hetp "$model" --reflux 3 --fload 1.3
+expect_exit 2 "option '--f-factor F' is required" -- "$BIN" hetp "$model" --reflux 3
+expect_exit 0 "" -- "$BIN" hetp "$model" --reflux 3 --f-factor 1.3
 expect_exit 2 "option '--size': nominal packing size" -- \
-    "$BIN" hetp "$model" --reflux 3 --fload 1.3 --packing random --size 200
-expect_exit 2 "option '--fload F' is required" -- "$BIN" trend demo-bt-K-7 --fits "$tmp/fits" --reflux 3
+    "$BIN" hetp "$model" --reflux 3 --f-factor 1.3 --packing random --size 200
+expect_exit 2 "option '--f-factor F' is required" -- "$BIN" trend demo-bt-K-7 --fits "$tmp/fits" --reflux 3
 # report: '-' as the output path is standard output (STYLE: '-' means stdout), no file '-'.
 expect_exit 2 "options '--json' and '--output -'" -- "$BIN" report "$model" -o - --json
 (cd "$tmp" && "$BIN" report "$model" -o - --quiet >"$tmp/report.html" 2>"$tmp/err")
@@ -115,7 +115,7 @@ head -n 1 "$tmp/report.html" | grep -q '^<!DOCTYPE html>' ||
     { echo "FAIL: report -o - did not write the HTML to stdout"; fails=$((fails + 1)); }
 [ -e "$tmp/-" ] && { echo "FAIL: report -o - created a file named '-'"; fails=$((fails + 1)); }
 # trend dates each fit by the last sample it used (provenance.data_last_utc).
-expect_exit 0 "" -- "$BIN" trend demo-bt-K-7 --fits "$tmp/fits" --reflux 3 --fload 1.3 --json --quiet
+expect_exit 0 "" -- "$BIN" trend demo-bt-K-7 --fits "$tmp/fits" --reflux 3 --f-factor 1.3 --json --quiet
 $py - "$tmp/out" "$model" <<'PY' || { echo "FAIL: trend date is not the data period's end"; fails=$((fails + 1)); }
 import json, sys
 d = json.load(open(sys.argv[1]))

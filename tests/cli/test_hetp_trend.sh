@@ -1,6 +1,6 @@
 # Bad command-line input and missing inputs for `hetp` and `trend`: exit 2 (usage) or 66
 # (input missing), one message on stderr naming the option or file, nothing on stdout
-# (DESIGN §5 exit codes). The numerical paths are tested in tests/test_hetp.c and
+# (the exit codes of docs/cli.md). The numerical paths are tested in tests/test_hetp.c and
 # tests/test_trend.c, which also run the binary on model files they write.
 BIN=$1
 . "$(dirname "$0")/lib.sh"

@@ -1,5 +1,5 @@
 #!/bin/sh
-# test_predict.sh — `stagecal predict`: exit codes (DESIGN §5), the Rayleigh case through
+# test_predict.sh — `stagecal predict`: exit codes (docs/cli.md), the Rayleigh case through
 # the whole program, mass balance and shape of --json, CSV output, plan file, envelope
 # warning, reproducible band, the latent heat a model file records.
 # Usage: sh test_predict.sh <stagecal-binary> <repo-root>
@@ -47,7 +47,7 @@ check_exit missing-model 66 "$bin" predict --model "$tmp/none.json" --charge 10 
 check_exit missing-plan 66 "$bin" predict $common --plan "$tmp/none.json"
 
 # R = 0: the law gives < 1 stage, raised to the pot alone → Rayleigh's equation.
-# REFERENCES §4 (α = 2.5, 0.5 → 0.2): ln(W0/W) = 1.394199870, mean distillate
+# Rayleigh 1902, Phil. Mag. (6) 4, 521, closed form for constant α (α = 2.5, 0.5 → 0.2): ln(W0/W) = 1.394199870, mean distillate
 # 0.5989528362; 1e-8 relative (the library integrates to ~1e-10; 10 s.f. given).
 check_exit rayleigh 0 "$bin" predict $common --reflux 0 --cut pot-x=0.2 --samples 0 --json
 check_py rayleigh-lnw "abs(math.log(10/d['pot_end_kmol']) - 1.394199870) < 1.4e-8"
@@ -73,11 +73,11 @@ if cmp -s "$tmp/out" "$tmp/setpoint1.json"; then echo "ok same seed, same docume
 else echo "FAIL: same seed gave a different document"; fails=$((fails + 1)); fi
 
 # CSV trajectory
-check_exit csv 0 "$bin" predict $common --reflux 4 --cut pot-x=0.2 --samples 0 --out "$tmp/traj.csv"
+check_exit csv 0 "$bin" predict $common --reflux 4 --cut pot-x=0.2 --samples 0 --output "$tmp/traj.csv"
 if head -1 "$tmp/traj.csv" | grep -qxF 'time[h],W[kmol],xB[mol/mol],xD[mol/mol],R[-],stages[-],cut,cut_amount[kmol],cut_x[mol/mol],distilled[kmol],outside_envelope'
 then echo "ok csv header"; else echo "FAIL csv header"; head -1 "$tmp/traj.csv"; fails=$((fails + 1)); fi
 check_exit csv-unwritable 73 "$bin" predict $common --reflux 4 --cut pot-x=0.2 --samples 0 \
-    --out "$tmp/no/such/dir/traj.csv"
+    --output "$tmp/no/such/dir/traj.csv"
 
 # plan file (schedule by pot composition, three receivers)
 cat >"$tmp/plan.json" <<'PLAN'
@@ -96,7 +96,7 @@ check_exit plan-typo 65 "$bin" predict $common --plan "$tmp/typo.json" --cut pot
 
 # An NRTL model with only --model: the model file records the full system
 # (docs/model-file.md). The system is copied from the INVENTED demo column
-# datasets/columns/kestrel_c3_ethanol_water.json (ethanol–water, NRTL-A of REFERENCES §7)
+# datasets/columns/kestrel_c3_ethanol_water.json (ethanol–water, an NRTL set published for 1 atm)
 # into the demo model by an independent writer (Python, canonical checksum as in
 # docs/model-file.md); "old" is the same file as written before the full system was
 # recorded (kind only).
@@ -137,8 +137,8 @@ PY
 nrtl="--charge 10 --xb0 0.3 --boilup 2.4 --reflux 4 --cut pot-x=0.1 --latent 40 --samples 20 --json"
 check_exit nrtl-model-only 0 "$bin" predict --model "$tmp/nrtl.json" $nrtl
 cp "$tmp/out" "$tmp/nrtl-only.json"
-# the distillate cannot pass the ethanol–water azeotrope, x = 0.894 at 1 atm (REFERENCES
-# §7, DOC): shows the NRTL model was used (the α = 2.5 demo model passes it, below)
+# the distillate cannot pass the ethanol–water azeotrope, x = 0.894 at 1 atm (handbook
+# VLE table, Perry's Chemical Engineers' Handbook): shows the NRTL model was used (the α = 2.5 demo model passes it, below)
 check_py nrtl-below-azeotrope "max(r['xd'] for r in d['trajectory']) < 0.894 and d['cuts'][0]['amount_kmol'] > 0"
 check_exit nrtl-column 0 "$bin" predict --model "$tmp/nrtl.json" --column "$column" $nrtl
 if cmp -s "$tmp/out" "$tmp/nrtl-only.json"; then echo "ok --model alone equals --column"

@@ -3,7 +3,7 @@
 # values, NIST ITL Statistical Reference Datasets, nonlinear regression, Misra1a: b1, b2
 # to 6 significant digits, their sd to 3, RSS and residual sd, from both NIST starting
 # points and the automatic start), JSON shape, --form auto, bootstrap reproducibility,
-# exit codes (DESIGN §5: 0, 2, 65, 66) with one-line messages.
+# exit codes (docs/cli.md: 0, 2, 65, 66) with one-line messages.
 # Usage: sh test_regress.sh <stagecal-binary> <repo-root>. Scratch files stay next to
 # the binary (inside the build tree). JSON is read with /usr/bin/python3.
 set -u

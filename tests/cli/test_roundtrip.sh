@@ -59,7 +59,7 @@ for charge in "10 0.5 2.4" "12 0.4 1.8"; do
         k=$((k + 1))
         run "truth trajectory $k: R=$r, $1 kmol at x = $2" "$bin" predict \
             --model "$true_model" --charge "$1" --xb0 "$2" --boilup "$3" --reflux "$r" \
-            --cut pot-x=0.08 --samples 0 --every 0.1 --out "$tmp/traj_$k.csv" --quiet || exit 1
+            --cut pot-x=0.08 --samples 0 --every 0.1 --output "$tmp/traj_$k.csv" --quiet || exit 1
         trajs="$trajs $tmp/traj_$k.csv"
     done
 done

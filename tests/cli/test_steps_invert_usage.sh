@@ -1,5 +1,5 @@
 # Bad command-line input to `steps` and `invert`: exit 2, one message on stderr naming the
-# option and what was expected, nothing on stdout (DESIGN §5 exit codes).
+# option and what was expected, nothing on stdout (the exit codes of docs/cli.md).
 BIN=$1
 . "$(dirname "$0")/lib.sh"
 

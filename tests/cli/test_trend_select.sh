@@ -36,7 +36,7 @@ fit "$FEB" >"$tmp/c3" || { echo "FAIL: calibrate Feb"; fails=$((fails + 1)); }
 BOTH=$(model_of "$tmp/c1")
 FEBFIT=$(model_of "$tmp/c3")
 
-T="$BIN trend demo-bt-K-7 --fits $FITS --reflux 3 --fload 1.3"
+T="$BIN trend demo-bt-K-7 --fits $FITS --reflux 3 --f-factor 1.3"
 $T --json >"$tmp/j" 2>"$tmp/err"
 rc=$?
 if [ "$rc" -eq 0 ]; then echo "ok: trend exit 0"; else echo "FAIL: trend exit $rc"; cat "$tmp/err"; fails=$((fails + 1)); fi

@@ -1,0 +1,97 @@
+# One vocabulary: every option with one meaning has one spelling across the commands.
+# The --help of every subcommand (the list in 'stagecal --help') is parsed and checked:
+# a quantity named in an option's help (the F-factor, the confidence level, the Murphree
+# efficiency, ...) is always set by the same option; the options shared by several
+# commands carry the same help line everywhere (they come from one table entry); the old
+# spellings are not offered any more, but still work with a warning that names the new
+# one; the commands that write one output file take it as -o/--output.
+BIN=$1
+ROOT=$2
+. "$(dirname "$0")/lib.sh"
+PY=/usr/bin/python3
+
+cmds=$("$BIN" --help | awk '/^commands:/ {on = 1; next} on && /^  [a-z]/ {print $1}')
+[ -n "$cmds" ] || { echo "FAIL: no command list in 'stagecal --help'"; exit 1; }
+for c in $cmds; do
+    "$BIN" "$c" --help >"$tmp/help.$c" || { echo "FAIL: $c --help exits non-zero"; fails=$((fails + 1)); }
+done
+
+if "$PY" - "$tmp" $cmds <<'PY'
+import re, sys
+tmp, cmds = sys.argv[1], sys.argv[2:]
+opt = re.compile(r'^  (?:-(\w), )?--([a-z0-9-]+)(?: (\S+))?(?:\s+(.*))?$')
+table = {}  # command -> {long: (short, help)}
+for c in cmds:
+    rows, last = {}, None
+    for line in open(f'{tmp}/help.{c}'):
+        line = line.rstrip('\n')
+        m = opt.match(line)
+        if m:
+            last = m.group(2)
+            rows[last] = (m.group(1), (m.group(4) or '').strip())
+        elif last and re.match(r'^ {20,}\S', line):  # continuation of a help text
+            s, h = rows[last]
+            rows[last] = (s, (h + ' ' + line.strip()).strip())
+        else:
+            last = None
+    table[c] = rows
+bad = []
+# 1. a quantity named in the help is set by one spelling (regex on help -> spelling)
+concepts = [
+    (r'(F-factor|vapour load) \[Pa\^0\.5\]', {'f-factor'}, 'the F-factor'),
+    (r'\bconfidence level\b', {'level'}, 'the confidence level'),
+    (r'\bMurphree\b', {'murphree'}, 'the Murphree efficiency'),
+    (r'\bone JSON document\b', {'json'}, 'JSON output'),
+    (r'\bno warnings\b', {'quiet'}, 'quiet'),
+    (r'\bseed\b', {'seed'}, 'the random seed'),
+    (r'\bfolder of model files\b', {'fits'}, 'the fits folder'),
+    (r'\bfewest rows\b', {'min-rows'}, 'the shortest run'),
+    (r'\brobust reweighting\b', {'robust'}, 'robust reweighting'),
+    (r'\bbootstrap resamples\b', {'bootstrap'}, 'bootstrap resamples'),
+    (r'^distillate mole fraction\b', {'xd'}, 'xD'),
+    (r'^pot mole fraction\b', {'xb'}, 'xB'),
+]
+for c, rows in table.items():
+    for name, (short, h) in rows.items():
+        for rx, spellings, what in concepts:
+            if re.search(rx, h) and name not in spellings:
+                bad.append(f'{c}: --{name} sets {what}, which is spelled --{"/--".join(sorted(spellings))} elsewhere')
+# 2. options from one table entry read the same everywhere
+shared = ['json', 'quiet', 'level', 'murphree', 'seed', 'fits', 'min-rows', 'xd', 'xb',
+          'alpha', 'kvalue', 'bootstrap', 'robust', 'stages']
+for name in shared:
+    helps = {c: rows[name][1] for c, rows in table.items() if name in rows}
+    if len(set(helps.values())) > 1:
+        bad.append(f'--{name} has {len(set(helps.values()))} help texts: {helps}')
+# 3. old spellings are not offered
+for c, rows in table.items():
+    for old in ('fload', 'out', 'reference-load', 'reference-reflux', 'report'):
+        if old in rows:
+            bad.append(f'{c}: offers the old spelling --{old}')
+# 4. one output file: -o/--output
+for c in ('invert', 'predict', 'plot', 'report'):
+    if table.get(c, {}).get('output', (None,))[0] != 'o':
+        bad.append(f'{c}: no -o/--output')
+for b in bad:
+    print('FAIL:', b)
+print(f'{sum(len(r) for r in table.values())} options of {len(table)} commands checked')
+sys.exit(1 if bad else 0)
+PY
+then echo "ok: one spelling per meaning across $(echo $cmds | wc -w) commands"; else fails=$((fails + 1)); fi
+
+# The old spellings still work, with one warning naming the new one.
+M="$ROOT/tests/badinput/model_good.json"
+expect_exit 0 "option '--fload' is deprecated; use '--f-factor'" --many \
+    "$BIN" hetp "$M" --reflux 3 --fload 1.3 --height 2
+grep -q "HETP" "$tmp/out" || { echo "FAIL: hetp --fload gave no HETP"; fails=$((fails + 1)); }
+expect_exit 0 "option '--out' is deprecated; use '--output'" --many \
+    "$BIN" invert --column "$ROOT/datasets/columns/demo_alpha.json" --out "$tmp/rows.csv" "$ROOT/tests/badinput/good.csv"
+[ -s "$tmp/rows.csv" ] || { echo "FAIL: invert --out wrote nothing"; fails=$((fails + 1)); }
+# --quiet anywhere on the line silences the warning
+expect_exit 0 "" -- "$BIN" hetp "$M" --fload 1.3 --reflux 3 --height 2 --quiet
+[ ! -s "$tmp/err" ] || { echo "FAIL: --quiet left a warning"; cat "$tmp/err"; fails=$((fails + 1)); }
+# A value outside its domain is refused by the table entry, naming the option
+expect_exit 2 "option '--f-factor': -1 is negative" -- "$BIN" hetp "$M" --reflux 3 --f-factor -1
+expect_exit 2 "option '--level': 1.5 is outside (0, 1)" -- "$BIN" trend K7 --reflux 3 --level 1.5
+expect_exit 2 "option '--murphree': 0 is outside (0, 1]" -- "$BIN" steps --alpha 2 --xd 0.9 --reflux 3 --stages 4 --murphree 0
+finish
