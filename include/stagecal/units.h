@@ -33,11 +33,11 @@ extern "C" {
 /* Display units at the edges (options, outputs) of batch planning: the factor that takes a
  * number in the unit named to SI (multiply on input, divide on output). The run-log
  * header table (stagecal_units_parse) uses the same factors. */
-#define STAGECAL_UNIT_H 3600.0                /* h → s */
-#define STAGECAL_UNIT_KMOL 1000.0             /* kmol → mol */
+#define STAGECAL_UNIT_H 3600.0                 /* h → s */
+#define STAGECAL_UNIT_KMOL 1000.0              /* kmol → mol */
 #define STAGECAL_UNIT_KMOL_H (1000.0 / 3600.0) /* kmol/h → mol/s */
-#define STAGECAL_UNIT_KJ_MOL 1000.0           /* kJ/mol → J/mol */
-#define STAGECAL_UNIT_GJ 1e9                  /* GJ → J */
+#define STAGECAL_UNIT_KJ_MOL 1000.0            /* kJ/mol → J/mol */
+#define STAGECAL_UNIT_GJ 1e9                   /* GJ → J */
 
 typedef enum {
     STAGECAL_QTY_TIME = 0,

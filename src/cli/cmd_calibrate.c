@@ -454,9 +454,7 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
                    "provenance, warnings, caution)"),
         OPT_ALIAS("report", "report-out"),
         OPT_FLAG(0, "dry-run", &rq.dry, "fit and summarise, write no model file"),
-        OPT__JSON(&ctx->json),
-        OPT__QUIET(),
-        OPT_END(),
+        OPT_END_COMMON(ctx),
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
         return rc;

@@ -129,9 +129,7 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
         OPT_COLUMN(&column_path, "column file: molar masses (mass units), latent heat (Q) and\n"
                                  "the uncertainties the checks use (docs/column-file.md)"),
         OPT_MIN_ROWS(&minrows),
-        OPT__JSON(&ctx->json),
-        OPT__QUIET(),
-        OPT_END(),
+        OPT_END_COMMON(ctx),
     };
     stagecal_runlog_params rp = stagecal_runlog_default_params();
     int first, rc = cli_parse(argc, argv, opts, &usage, &first);

@@ -317,9 +317,7 @@ int cmd_hetp(int argc, char **argv, cli_ctx *ctx)
         OPT_POSITIVE("size", &j.size_mm, "D", "nominal size of random packing [mm]",
                      "a nominal packing size in mm"),
         OPT_LEVEL(&j.level),
-        OPT__JSON(&ctx->json),
-        OPT__QUIET(),
-        OPT_END(),
+        OPT_END_COMMON(ctx),
     };
     int first, rc;
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))

@@ -290,9 +290,7 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
                               "--json)"),
         OPT_ALIAS("out", "output"),
         OPT_MIN_ROWS(&minrows),
-        OPT__JSON(&ctx->json),
-        OPT__QUIET(),
-        OPT_END(),
+        OPT_END_COMMON(ctx),
     };
     int first, rc;
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))

@@ -63,9 +63,7 @@ int cmd_plot(int argc, char **argv, cli_ctx *ctx)
         OPT_LONG("width", &width, "W",
                  "chart width in pixels (PNG) or points (SVG, PDF), default 800", 16, 20000),
         OPT_LONG("height", &height, "H", "chart height, default 560", 16, 20000),
-        OPT__JSON(&ctx->json),
-        OPT__QUIET(),
-        OPT_END(),
+        OPT_END_COMMON(ctx),
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
         return rc;

@@ -466,9 +466,7 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
                  "parameter draws for the band (default 200; 0 = no band)", 0, 100000),
         OPT_SEED(&q.seed),
         OPT_LEVEL(&q.level),
-        OPT__JSON(&ctx->json),
-        OPT__QUIET(),
-        OPT_END(),
+        OPT_END_COMMON(ctx),
     };
     int first, rc;
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))

@@ -354,9 +354,7 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
         OPT_STRING(0, "chart", &chart, "FILE",
                    "also draw stages against R with the band before and after\n"
                    "the tests (PNG, SVG or PDF by extension)"),
-        OPT__JSON(&ctx->json),
-        OPT__QUIET(),
-        OPT_END(),
+        OPT_END_COMMON(ctx),
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
         return rc;

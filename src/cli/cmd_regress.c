@@ -298,9 +298,7 @@ int cmd_regress(int argc, char **argv, cli_ctx *ctx)
                  "take sigma as absolute: covariance (J'WJ)^-1, not scaled by s^2"),
         OPT_LONG("band-points", &band, "N", "points of the band grid over the fitted R range (25)",
                  0, 10000),
-        OPT__JSON(&ctx->json),
-        OPT__QUIET(),
-        OPT_END(),
+        OPT_END_COMMON(ctx),
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
         return rc;

@@ -62,9 +62,7 @@ int cmd_report(int argc, char **argv, cli_ctx *ctx)
                                  "model file that does not record it; same column id)"),
         OPT_OUTPUT(&output, "the HTML file (default: MODEL with .json replaced by .html);\n"
                             "'-' writes the HTML to standard output (not with --json)"),
-        OPT__JSON(&ctx->json),
-        OPT__QUIET(),
-        OPT_END(),
+        OPT_END_COMMON(ctx),
     };
     int json, first, rc;
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))

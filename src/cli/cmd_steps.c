@@ -31,9 +31,7 @@ int cmd_steps(int argc, char **argv, cli_ctx *ctx)
         OPT_REFLUX(&reflux, "reflux ratio L/D >= 0, or 'inf' for total reflux"),
         OPT_STAGES(&nstages, "equilibrium stages including the pot, N >= 1"),
         OPT_MURPHREE(&murphree),
-        OPT__JSON(&ctx->json),
-        OPT__QUIET(),
-        OPT_END(),
+        OPT_END_COMMON(ctx),
     };
     cli_system *sys = &ctx->sys;
     int first, rc;

@@ -498,9 +498,7 @@ int cmd_trend(int argc, char **argv, cli_ctx *ctx)
                    0, "stages including the pot, >= 1"),
         OPT_FLAG(0, "all-fits", &ref.all_fits,
                  "every model file is a point, shared run logs or not"),
-        OPT__JSON(&ctx->json),
-        OPT__QUIET(),
-        OPT_END(),
+        OPT_END_COMMON(ctx),
     };
     int first, rc;
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))

@@ -90,6 +90,8 @@ struct cli_option {
 
 /* ---- options with one meaning everywhere ---------------------------------------- */
 #define OPT__JSON(v) OPT_FLAG(0, "json", (v), "one JSON document on stdout")
+/* The end of every command's table: --json, --quiet (and -h/--help, always there). */
+#define OPT_END_COMMON(ctx) OPT__JSON(&(ctx)->json), OPT__QUIET(), OPT_END()
 #define OPT__QUIET() OPT_FLAG(0, "quiet", &cli_quiet, "no warnings or progress on stderr")
 /* a mole fraction of the light component in (0, 1); l is "xd", "xb", ... */
 #define OPT_FRACTION(l, v, a, h)                                                                   \
