@@ -150,9 +150,7 @@ static int parse_options(int argc, char **argv, struct options *o, cli_ctx *ctx,
                    "a design HETP in m"),
         OPT_DOUBLE("margin", &o->margin, "M", "equivalence margin, a fraction (0.10)", 0, 1,
                    CLI_D_LO_OPEN | CLI_D_HI_OPEN, "a fraction such as 0.10"),
-        OPT__JSON(&ctx->json),
-        OPT__QUIET(),
-        OPT_END(),
+        OPT_END_COMMON(ctx),
     };
     int rc;
     if ((rc = cli_parse(argc, argv, opts, &usage, first)))
