@@ -77,9 +77,7 @@ int cmd_fits(int argc, char **argv, cli_ctx *ctx)
         OPT_STRING(0, "events", &events, "FILE",
                    "repack/maintenance events (CSV: time,column,kind[,note])"),
         OPT_STRING(0, "reason", &reason, "TEXT", "why the fit is retired (required by 'retire')"),
-        OPT__JSON(&ctx->json),
-        OPT__QUIET(),
-        OPT_END(),
+        OPT_END_COMMON(ctx),
     };
     int first, rc0;
     if ((rc0 = cli_parse(argc, argv, opts, &usage, &first)))
