@@ -20,7 +20,10 @@
 #include "stagecal/evidence.h"
 
 #include <gsl/gsl_errno.h>
+#include <gsl/gsl_blas.h>
+#include <gsl/gsl_linalg.h>
 #include <gsl/gsl_multifit.h>
+#include <gsl/gsl_roots.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -143,12 +146,68 @@ void stagecal_evidence_pool_rho(stagecal_evidence *ev, size_t nev)
 /* Points in each local fit of the smoother below. */
 #define SMOOTH_POINTS 9
 
-/* Local quadratic regression of y on time (Savitzky & Golay, Anal. Chem. 36 (1964) 1627,
- * here on irregular times — citation from memory): each out[j] is the value at t[j] of a
- * least-squares quadratic through the SMOOTH_POINTS samples nearest j (fewer at hand →
- * all of them). One quadratic over a long window misses a batch pot's curving
- * trajectory; a local one follows it while still averaging the analyser noise. GSL
- * multifit on a centred, scaled time. Returns 0, or −1 when GSL fails. */
+/* Most samples the stage count and the window statistics use (the first ones carried). */
+#define EV_MAX_SMOOTH 64
+
+/* The local quadratic smoother as a matrix (Savitzky & Golay, Anal. Chem. 36 (1964) 1627,
+ * here on irregular times — citation from memory): row j of S (m×m, row-major) holds the
+ * weights that give the value at t[j] of the least-squares quadratic through the
+ * SMOOTH_POINTS samples nearest j (fewer at hand → all of them), so smoothed = S·y. One
+ * quadratic over a long window misses a batch pot's curving trajectory; a local one follows
+ * it while still averaging the analyser noise. As a matrix it also gives the window
+ * statistics that belong to this estimator (stagecal_evidence_window_stats). Weights from
+ * the normal equations on a centred, scaled time (Cholesky, GSL). Returns 0, or −1 when m
+ * < 3 or the times do not determine a quadratic (repeated times). */
+static int smoother_matrix(const double *t, size_t m, double *S)
+{
+    size_t k = m < SMOOTH_POINTS ? m : SMOOTH_POINTS;
+    if (m < 3)
+        return -1;
+    memset(S, 0, m * m * sizeof *S);
+    for (size_t j = 0; j < m; j++) {
+        size_t lo = j >= k / 2 ? j - k / 2 : 0;
+        if (lo + k > m)
+            lo = m - k;
+        double tb = t[j], ts = 0, xtx[9] = {0}, z[3] = {1, 0, 0};
+        for (size_t i = lo; i < lo + k; i++)
+            ts = fmax(ts, fabs(t[i] - tb));
+        if (!(ts > 0))
+            return -1;
+        for (size_t i = lo; i < lo + k; i++) {
+            double u = (t[i] - tb) / ts, x[3] = {1, u, u * u};
+            for (int a = 0; a < 3; a++)
+                for (int b = 0; b < 3; b++)
+                    xtx[3 * a + b] += x[a] * x[b];
+        }
+        /* the fitted value at u = 0 is e1ᵀ(XᵀX)⁻¹Xᵀy: weights X·z with (XᵀX) z = e1 */
+        gsl_matrix_view A = gsl_matrix_view_array(xtx, 3, 3);
+        gsl_vector_view zv = gsl_vector_view_array(z, 3);
+        if (gsl_linalg_cholesky_decomp1(&A.matrix) != GSL_SUCCESS ||
+            gsl_linalg_cholesky_svx(&A.matrix, &zv.vector) != GSL_SUCCESS)
+            return -1;
+        for (size_t i = lo; i < lo + k; i++) {
+            double u = (t[i] - tb) / ts;
+            S[j * m + i] = z[0] + z[1] * u + z[2] * u * u;
+        }
+    }
+    return 0;
+}
+
+/* out = S·y for the m×m smoother S. */
+static void smooth_apply(const double *S, const double *y, size_t m, double *out)
+{
+    for (size_t j = 0; j < m; j++) {
+        double v = 0;
+        for (size_t i = 0; i < m; i++)
+            v += S[j * m + i] * y[i];
+        out[j] = v;
+    }
+}
+
+/* The smoother of smoother_matrix applied to y (out = S·y), one local fit at a time with
+ * GSL's multifit (SVD): the stage count's own numerics, kept as they were so that a
+ * calibration's numbers do not move with the statistics' matrix form (which agrees to
+ * rounding). Returns 0, or −1 when GSL fails. */
 static int smooth_quadratic(const double *t, const double *y, size_t n, double *out)
 {
     size_t k = n < SMOOTH_POINTS ? n : SMOOTH_POINTS;
@@ -184,6 +243,216 @@ static int smooth_quadratic(const double *t, const double *y, size_t n, double *
     return rc;
 }
 
+/* ---- window statistics from the smoother's residuals ------------------------------- */
+
+/* Fewest carried samples for the smoother's statistics (3 residual degrees of freedom). */
+#define STATS_MIN 6
+
+/* One window's samples of one analyser for the statistics below. */
+struct wseries {
+    const double *t, *y;
+    size_t m;
+    double v, l; /* Σ r_j², Σ r_j r_{j+1} of the smoother's residuals r = (I − S) y */
+};
+
+/* Noise correlation of the exponential (continuous-time AR(1)) model between times a and b:
+ * rho per dt_ref (0: white noise). */
+static double corr(double rho, double dt_ref, double a, double b)
+{
+    if (a == b)
+        return 1;
+    return rho > 0 ? pow(rho, fabs(a - b) / dt_ref) : 0;
+}
+
+/* E[Σ r²]/σ² and E[Σ r_j r_{j+1}]/σ² of the smoother's residuals under correlation rho:
+ * the trace and first superdiagonal sum of (I − S) R (I − S)ᵀ. Scratch: 3·m² doubles. */
+static int resid_moments(const struct wseries *w, double rho, double dt_ref, double *scratch,
+                         double *A, double *B)
+{
+    size_t m = w->m;
+    double *M = scratch, *R = M + m * m, *T = R + m * m;
+    if (smoother_matrix(w->t, m, M))
+        return -1;
+    for (size_t i = 0; i < m; i++)
+        for (size_t j = 0; j < m; j++) {
+            M[i * m + j] = (i == j) - M[i * m + j];
+            R[i * m + j] = corr(rho, dt_ref, w->t[i], w->t[j]);
+        }
+    gsl_matrix_view Mv = gsl_matrix_view_array(M, m, m), Rv = gsl_matrix_view_array(R, m, m),
+                    Tv = gsl_matrix_view_array(T, m, m);
+    /* T = M R, then R = T Mᵀ */
+    gsl_blas_dgemm(CblasNoTrans, CblasNoTrans, 1.0, &Mv.matrix, &Rv.matrix, 0.0, &Tv.matrix);
+    gsl_blas_dgemm(CblasNoTrans, CblasTrans, 1.0, &Tv.matrix, &Mv.matrix, 0.0, &Rv.matrix);
+    *A = 0;
+    *B = 0;
+    for (size_t j = 0; j < m; j++) {
+        *A += R[j * m + j];
+        if (j + 1 < m)
+            *B += R[j * m + j + 1];
+    }
+    return 0;
+}
+
+struct pool {
+    const struct wseries *w;
+    size_t n;
+    double dt_ref;
+    double *scratch;
+    int failed;
+};
+
+/* Σ_k l_k − Σ_k v_k·B_k(ρ)/A_k(ρ): zero at the pooled ρ (the moment equation). */
+static double pool_eq(double rho, void *ctx)
+{
+    struct pool *p = ctx;
+    double f = 0;
+    for (size_t k = 0; k < p->n; k++) {
+        double A, B;
+        if (resid_moments(&p->w[k], rho, p->dt_ref, p->scratch, &A, &B) || !(A > 0)) {
+            p->failed = 1;
+            return 0;
+        }
+        f += p->w[k].l - p->w[k].v * B / A;
+    }
+    return f;
+}
+
+/* Solves pool_eq on [0, RHO_MAX] with GSL's Brent solver; the bound when the observed lag
+ * products lie outside what the model reaches there. */
+static int pool_solve(struct pool *p, double *rho)
+{
+    double f0 = pool_eq(0, p), f1 = pool_eq(RHO_MAX, p);
+    if (p->failed)
+        return -1;
+    if (!(f0 > 0)) { /* residuals no more correlated than white noise's */
+        *rho = 0;
+        return 0;
+    }
+    if (!(f1 < 0)) {
+        *rho = RHO_MAX;
+        return 0;
+    }
+    gsl_function F = {pool_eq, p};
+    gsl_root_fsolver *s = gsl_root_fsolver_alloc(gsl_root_fsolver_brent);
+    if (!s || gsl_root_fsolver_set(s, &F, 0, RHO_MAX) != GSL_SUCCESS) {
+        gsl_root_fsolver_free(s);
+        return -1;
+    }
+    int status = GSL_CONTINUE;
+    for (int it = 0; it < 100 && status == GSL_CONTINUE && !p->failed; it++) {
+        if (gsl_root_fsolver_iterate(s) != GSL_SUCCESS)
+            break;
+        status = gsl_root_test_interval(gsl_root_fsolver_x_lower(s), gsl_root_fsolver_x_upper(s),
+                                        1e-6, 0);
+    }
+    *rho = gsl_root_fsolver_root(s);
+    gsl_root_fsolver_free(s);
+    return status == GSL_SUCCESS && !p->failed ? 0 : -1;
+}
+
+/* The statistics of one analyser (pot = 0: xD, 1: xB) over the windows. */
+static int analyser_stats(stagecal_evidence *ev, size_t nev, int pot, double u_floor,
+                          stagecal_error *err)
+{
+    struct wseries *w = calloc(nev ? nev : 1, sizeof *w);
+    size_t *idx = calloc(nev ? nev : 1, sizeof *idx);
+    double *scratch = malloc(3 * EV_MAX_SMOOTH * EV_MAX_SMOOTH * sizeof *scratch);
+    double r[EV_MAX_SMOOTH], span = 0, gaps = 0;
+    size_t n = 0;
+    int rc = STAGECAL_OK;
+    if (!w || !idx || !scratch) {
+        rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
+        goto done;
+    }
+    for (size_t k = 0; k < nev; k++) {
+        stagecal_evidence *e = &ev[k];
+        size_t m = e->m < EV_MAX_SMOOTH ? e->m : EV_MAX_SMOOTH;
+        if (m < STATS_MIN || !e->s_t || !e->s_xd || !e->s_xb)
+            continue;
+        struct wseries *s = &w[n];
+        s->t = e->s_t;
+        s->y = pot ? e->s_xb : e->s_xd;
+        s->m = m;
+        if (smoother_matrix(s->t, m, scratch))
+            continue; /* repeated times: the window keeps its plain statistics */
+        smooth_apply(scratch, s->y, m, r);
+        for (size_t j = 0; j < m; j++) {
+            r[j] = s->y[j] - r[j];
+            s->v += r[j] * r[j];
+            if (j > 0)
+                s->l += r[j] * r[j - 1];
+        }
+        span += s->t[m - 1] - s->t[0];
+        gaps += (double)(m - 1);
+        idx[n++] = k;
+    }
+    if (n == 0 || !(span > 0))
+        goto done;
+    struct pool p = {w, n, span / gaps, scratch, 0};
+    double rho;
+    if (pool_solve(&p, &rho)) {
+        rc = error_set(err, STAGECAL_EINTERNAL,
+                       "window statistics: the pooled autocorrelation "
+                       "could not be solved for");
+        goto done;
+    }
+    /* one σ per analyser, like ρ: a window's own σ from its few residual degrees of freedom
+     * scatters, and the fits' relative weights would inherit that scatter */
+    double sv = 0, sa = 0;
+    for (size_t q = 0; q < n; q++) {
+        double A, B;
+        if (resid_moments(&w[q], rho, p.dt_ref, scratch, &A, &B)) {
+            rc = error_set(err, STAGECAL_EINTERNAL, "window statistics failed");
+            goto done;
+        }
+        sv += w[q].v;
+        sa += A;
+    }
+    double sigma = fmax(sqrt(sv / sa), u_floor);
+    for (size_t q = 0; q < n; q++) {
+        stagecal_evidence *e = &ev[idx[q]];
+        const struct wseries *s = &w[q];
+        size_t m = s->m;
+        double *S = scratch;
+        if (smoother_matrix(s->t, m, S)) {
+            rc = error_set(err, STAGECAL_EINTERNAL, "window statistics failed");
+            goto done;
+        }
+        /* variance factors of the plain mean (weights 1/m) and of the mean of the smoothed
+         * values (weights Sᵀ1/m) under the pooled correlation */
+        double wS[EV_MAX_SMOOTH], vp = 0, vs = 0;
+        for (size_t i = 0; i < m; i++) {
+            wS[i] = 0;
+            for (size_t j = 0; j < m; j++)
+                wS[i] += S[j * m + i] / (double)m;
+        }
+        for (size_t i = 0; i < m; i++)
+            for (size_t j = 0; j < m; j++) {
+                double c = corr(rho, p.dt_ref, s->t[i], s->t[j]);
+                vp += c / ((double)m * (double)m);
+                vs += wS[i] * wS[j] * c;
+            }
+        double *u = pot ? &e->u_xb : &e->u_xd, *se_s = pot ? &e->se_sxb : &e->se_sxd;
+        *u = sigma * sqrt(vp);
+        *se_s = sigma * sqrt(vs);
+        *(pot ? &e->rho_xb : &e->rho_xd) = rho;
+        if (pot)
+            e->n_eff = 1 / vp; /* samples' worth of independent information */
+    }
+done:
+    free(w);
+    free(idx);
+    free(scratch);
+    return rc;
+}
+
+int stagecal_evidence_window_stats(stagecal_evidence *ev, size_t nev, double u_xd, double u_xb,
+                                   stagecal_error *err)
+{
+    int rc = analyser_stats(ev, nev, 0, u_xd, err);
+    return rc ? rc : analyser_stats(ev, nev, 1, u_xb, err);
+}
+
 int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_evidence *ev,
                              stagecal_error *err)
 {
@@ -200,12 +469,15 @@ int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_
         return rc;
     if (res.status != STAGECAL_STAGES_OK)
         return STAGECAL_OK;
-    double a = res.dstages_dxd * ev->u_xd, b = res.dstages_dxb * ev->u_xb;
+    /* the standard errors of what is inverted: the smoothed compositions' mean when the
+     * window statistics were built from the smoother, else the plain means' */
+    double a = res.dstages_dxd * (ev->se_sxd > 0 ? ev->se_sxd : ev->u_xd);
+    double b = res.dstages_dxb * (ev->se_sxb > 0 ? ev->se_sxb : ev->u_xb);
     double value = res.stages;
     if (ev->m >= 3 && ev->s_t && ev->s_xd && ev->s_xb) {
         /* follow the drift: invert the smoothed trends at every sample time */
-        double sd[64], sb[64], sum = 0;
-        size_t m = ev->m < 64 ? ev->m : 64;
+        double sd[EV_MAX_SMOOTH], sb[EV_MAX_SMOOTH], sum = 0;
+        size_t m = ev->m < EV_MAX_SMOOTH ? ev->m : EV_MAX_SMOOTH;
         if (smooth_quadratic(ev->s_t, ev->s_xd, m, sd) ||
             smooth_quadratic(ev->s_t, ev->s_xb, m, sb))
             return error_set(err, STAGECAL_EINTERNAL, "window trend fit failed");
@@ -260,7 +532,7 @@ stagecal_evidence_params stagecal_evidence_default_params(void)
     stagecal_evidence_params p;
     p.max_samples = 24;
     p.min_ok = 3;
-    p.pool_rho = 1;
+    p.noise = STAGECAL_EVIDENCE_NOISE_LINE_POOLED;
     return p;
 }
 
@@ -389,18 +661,24 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
             set->n++;
     free(buf);
     /* One ρ per analyser for all windows (docs/calibration.md §3), then the stage counts,
-     * which propagate u_xd and u_xb. */
-    if (par.pool_rho)
+     * which propagate the standard errors. */
+    if (par.noise == STAGECAL_EVIDENCE_NOISE_LINE_POOLED)
         stagecal_evidence_pool_rho(set->ev, set->n);
     for (size_t k = 0; k < set->n; k++) {
         stagecal_evidence *e = &set->ev[k];
         /* n_eff of the pot analyser series: how many independent samples the window holds */
         e->n_eff = fmax(1.0, (double)e->m_xb * (1 - e->rho_xb) / (1 + e->rho_xb));
-        int rc = stagecal_evidence_stages(col->system.vle, murphree, e, err);
+    }
+    int rc = par.noise == STAGECAL_EVIDENCE_NOISE_SMOOTHER
+                 ? stagecal_evidence_window_stats(set->ev, set->n, col->u.xd, col->u.xb, err)
+                 : STAGECAL_OK;
+    for (size_t k = 0; k < set->n && rc == STAGECAL_OK; k++) {
+        stagecal_evidence *e = &set->ev[k];
+        rc = stagecal_evidence_stages(col->system.vle, murphree, e, err);
         if (rc != STAGECAL_OK)
             return rc;
         if (e->n_ok < par.min_ok)
             e->stages_ok = 0; /* too few samples of the window invert on their own */
     }
-    return STAGECAL_OK;
+    return rc;
 }

@@ -4,8 +4,11 @@
  * study, docs/calibration.md §5).
  *
  * A known law, stages = a·(1 − exp(−b R)) with a = 10, b = 0.45 (a at total reflux),
- * constant α = 2, twelve windows from R = 1.2 to total reflux, 40 samples a minute
- * apart, AR(1) analyser noise (ρ = 0.6, u(xD) = 0.0015, u(xB) = 0.0025). The pot
+ * constant α = 2, twelve windows from R = 1.2 to total reflux, analyser noise with an
+ * exponential (continuous-time AR(1)) correlation, u(xD) = 0.0015, u(xB) = 0.0025. The
+ * regime (struct synth_regime) sets the samples per window, the correlation per minute,
+ * irregular sampling times, and a batch drift: xD falls along a curve through the window
+ * and xB follows it at the true stage count (the pot of a batch is never steady). The pot
  * compositions come from Smoker's closed-form inverse or Fenske at total reflux
  * (REFERENCES §1–2), independently of the stepping code under test. Each data set is
  * fitted in stage space (stagecal_regress_fit) and in composition space
@@ -107,8 +110,30 @@ enum synth_se_mode {
     SYNTH_SE_ESTIMATED = 0, /* as the calibration does: each window's s, the lag-1
                                autocorrelation pooled over the windows per analyser
                                (stagecal_evidence_mean_rho, stagecal_evidence_pool_rho) */
-    SYNTH_SE_KNOWN,         /* the true ones (synth_ar1_var_mean): fixed weights */
-    SYNTH_SE_PER_WINDOW     /* each window's own ρ̂ (the calibration before pooling) */
+    SYNTH_SE_KNOWN,         /* the true ones (synth_ar1_var_mean): fixed weights (steady,
+                               regularly sampled regimes only) */
+    SYNTH_SE_PER_WINDOW,    /* each window's own ρ̂ (the calibration before pooling) */
+    SYNTH_SE_SMOOTHER       /* from the residuals of the stage count's own smoother, σ and ρ
+                               pooled per analyser (stagecal_evidence_window_stats) */
+};
+
+/* A regime of the synthetic data. */
+struct synth_regime {
+    const char *name;
+    size_t ns;     /* samples per window (≤ 64) */
+    double rho;    /* noise correlation between samples one minute apart */
+    int irregular; /* 1: gaps between samples exponential with mean one minute */
+    double drift;  /* xD falls by this much over the window along s(1 + s)/2 (0: steady) */
+};
+
+#define SYNTH_NREGIMES 6
+static const struct synth_regime synth_regimes[SYNTH_NREGIMES] = {
+    {"steady", 40, 0.6, 0, 0.0},    /* the study's original regime */
+    {"white", 40, 0.0, 0, 0.0},     /* uncorrelated analyser noise */
+    {"drift", 40, 0.0, 0, 0.03},    /* a batch pot drifting on a curve, white noise */
+    {"drift-ar", 40, 0.6, 0, 0.03}, /* the same with correlated noise */
+    {"irregular", 40, 0.6, 1, 0.0}, /* samples at random times */
+    {"short", 12, 0.6, 0, 0.0},     /* short windows */
 };
 
 /* One synthetic calibration: windows at several reflux ratios, AR(1) noise on the
@@ -116,35 +141,51 @@ enum synth_se_mode {
  * the fit itself fails (counted by the caller). se_mode other than SYNTH_SE_ESTIMATED
  * is a diagnostic of the coverage study (tests/tool_coverage.c). Returns 0, or the
  * line of the first library call that failed where it must not. */
+/* Noise with correlation rho^(Δt/60 s) at times t (an AR(1) in continuous time). */
+static inline void synth_noise(gsl_rng *rng, const double *t, double *e, size_t n, double sigma,
+                               double rho)
+{
+    e[0] = gsl_ran_gaussian(rng, sigma);
+    for (size_t i = 1; i < n; i++) {
+        double phi = rho > 0 ? pow(rho, (t[i] - t[i - 1]) / 60.0) : 0;
+        e[i] = phi * e[i - 1] + sqrt(1 - phi * phi) * gsl_ran_gaussian(rng, sigma);
+    }
+}
+
 static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stagecal_form *form,
-                            enum synth_se_mode se_mode, struct synth_fit *fs, struct synth_fit *fc)
+                            const struct synth_regime *rg, enum synth_se_mode se_mode,
+                            struct synth_fit *fs, struct synth_fit *fc)
 {
     static const double rs[] = {1.2, 1.6, 2.0, 2.5, 3.0, 4.0, 5.0, 6.5, 8.0, 10.0, 15.0, INFINITY};
-    enum { NW = sizeof rs / sizeof rs[0], NS = 40 };
-    const double u_xd = 0.0015, u_xb = 0.0025, rho = 0.6;
+    enum { NW = sizeof rs / sizeof rs[0], MAXS = 64 };
+    const double u_xd = 0.0015, u_xb = 0.0025;
+    const size_t NS = rg->ns;
     stagecal_evidence ev[NW];
-    static double xds[NW][NS], xbs[NW][NS];
-    static double t[NS];
-    double exd[NS], exb[NS];
+    static double xds[NW][MAXS], xbs[NW][MAXS], ts[NW][MAXS];
+    double exd[MAXS], exb[MAXS];
     int few[NW];
     stagecal_stages_params sp = stagecal_stages_default_params();
     sp.want_sensitivities = 1;
     memset(fs, 0, sizeof *fs);
     memset(fc, 0, sizeof *fc);
-    for (size_t i = 0; i < NS; i++)
-        t[i] = 60.0 * (double)i;
+    if (NS < 3 || NS > MAXS)
+        return __LINE__;
     for (size_t w = 0; w < NW; w++) {
-        double *xd = xds[w], *xb = xbs[w];
+        double *xd = xds[w], *xb = xbs[w], *t = ts[w];
         double xd_true = 0.90 + 0.07 * gsl_rng_uniform(rng);
-        double xb_true =
-            oracle_smoker_xb(SYNTH_ALPHA, rs[w], xd_true, synth_law(SYNTH_A, SYNTH_B, rs[w]));
+        double n_true = synth_law(SYNTH_A, SYNTH_B, rs[w]);
         size_t nok = 0;
-        synth_ar1(rng, exd, NS, u_xd, rho);
-        synth_ar1(rng, exb, NS, u_xb, rho);
+        t[0] = 0;
+        for (size_t i = 1; i < NS; i++)
+            t[i] = t[i - 1] + (rg->irregular ? gsl_ran_exponential(rng, 60.0) : 60.0);
+        synth_noise(rng, t, exd, NS, u_xd, rg->rho);
+        synth_noise(rng, t, exb, NS, u_xb, rg->rho);
         for (size_t i = 0; i < NS; i++) {
             stagecal_stages_result res;
-            xd[i] = xd_true + exd[i];
-            xb[i] = xb_true + exb[i];
+            double s = t[i] / t[NS - 1];
+            double xdt = xd_true + rg->drift * (0.5 - s * (1 + s) / 2);
+            xd[i] = xdt + exd[i];
+            xb[i] = oracle_smoker_xb(SYNTH_ALPHA, rs[w], xdt, n_true) + exb[i];
             if (stagecal_stages_invert(vle, xd[i], xb[i], rs[w], 1.0, &sp, &res, NULL) !=
                 STAGECAL_OK)
                 return __LINE__;
@@ -161,8 +202,10 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
                                        NULL) != STAGECAL_OK)
             return __LINE__;
         if (se_mode == SYNTH_SE_KNOWN) {
-            e->u_xd = sqrt(synth_ar1_var_mean(u_xd, rho, NS));
-            e->u_xb = sqrt(synth_ar1_var_mean(u_xb, rho, NS));
+            if (rg->irregular || rg->drift > 0)
+                return __LINE__; /* the closed form holds for steady, regular windows */
+            e->u_xd = sqrt(synth_ar1_var_mean(u_xd, rg->rho, NS));
+            e->u_xb = sqrt(synth_ar1_var_mean(u_xb, rg->rho, NS));
         }
         e->m = NS; /* the window's samples, as the calibration chain passes them */
         e->s_t = t;
@@ -172,6 +215,9 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
     }
     if (se_mode == SYNTH_SE_ESTIMATED)
         stagecal_evidence_pool_rho(ev, NW);
+    if (se_mode == SYNTH_SE_SMOOTHER &&
+        stagecal_evidence_window_stats(ev, NW, u_xd, u_xb, NULL) != STAGECAL_OK)
+        return __LINE__;
     for (size_t w = 0; w < NW; w++) {
         if (stagecal_evidence_stages(vle, 1.0, &ev[w], NULL) != STAGECAL_OK)
             return __LINE__;

@@ -48,7 +48,8 @@ static void calibrate_intervals_cover_truth(void **state)
     int hs[SYNTH_NQ] = {0}, hc[SYNTH_NQ] = {0}, ns = 0, nc = 0;
     for (int rep = 0; rep < REPS; rep++) {
         struct synth_fit fs, fc;
-        assert_int_equal(synth_one(rng, vle, &form, SYNTH_SE_ESTIMATED, &fs, &fc), 0);
+        assert_int_equal(
+            synth_one(rng, vle, &form, &synth_regimes[0], SYNTH_SE_ESTIMATED, &fs, &fc), 0);
         ns += fs.ok;
         nc += fc.ok;
         for (int q = 0; q < SYNTH_NQ; q++) {

@@ -3,11 +3,14 @@
  * calibrations of tests/synth_calibration.h (the law, windows and noise of
  * calibrate_intervals_cover_truth in tests/test_calibrate.c, over many more data sets).
  *
- * Usage: tool_coverage REPLICATIONS SEED [known-se | per-window-rho]
- * Diagnostics: known-se gives the windows their true standard errors instead of the
- * estimated ones (fixed instead of estimated weights); per-window-rho gives each window
- * the n_eff of its own lag-1 autocorrelation, as the calibration did before it pooled the
- * autocorrelation over the windows (see enum synth_se_mode in tests/synth_calibration.h).
+ * Usage: tool_coverage REPLICATIONS SEED [REGIME] [known-se | per-window-rho | smoother]
+ * Regimes (struct synth_regime in tests/synth_calibration.h): steady, white, drift,
+ * drift-ar, irregular, short. Diagnostics: known-se gives the windows their true standard
+ * errors instead of the estimated ones (fixed instead of estimated weights); per-window-rho
+ * gives each window the n_eff of its own lag-1 autocorrelation, as the calibration did
+ * before it pooled the autocorrelation; smoother takes σ and ρ from the residuals of the
+ * stage count's own local smoother (stagecal_evidence_window_stats, an option of the
+ * builder; see enum synth_se_mode and docs/calibration.md §5).
  *
  * For each fit (stage space, composition space) and each quantity (a, b, confidence band
  * at R = 1.5, 5, ∞) it prints
@@ -19,6 +22,8 @@
  *     weights, E[s²] = σ², so this is 1 up to its sampling error (relative sd of an sd
  *     estimate ≈ 1/√(2n), common practice, no source); below 1 means the se is too small;
  *   - bias/sd: (mean estimate − truth) over the empirical sd;
+ *   - med z: the median of (estimate − truth)/se over the data sets (0 for an unbiased,
+ *     symmetric estimate; the issue's bias criterion is |med z| ≤ 0.1);
  *   - cov(sd): the fraction with |estimate − truth| ≤ z·sd (z the normal 97.5 % quantile,
  *     sd the empirical sd) — what the coverage would be with an exact, known se; 0.95
  *     for unbiased normal estimates, so a shortfall there comes from bias or
@@ -30,6 +35,8 @@
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_rng.h>
+#include <gsl/gsl_sort.h>
+#include <gsl/gsl_statistics_double.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -106,8 +113,11 @@ static void report(const char *name, const struct tally *t, int reps)
         tq_mean += t->tq[i] / n;
     printf("%s: %d of %d fits, mean t quantile %.4f (mean dof %.2f), mean s^2 %.3f\n", name, n,
            reps, tq_mean, t->sum_dof / n, t->sum_s2 / n);
-    printf("  %-11s %9s  %-17s %7s %8s %7s\n", "quantity", "coverage", "Wilson 95 %", "se/sd",
-           "bias/sd", "cov(sd)");
+    printf("  %-11s %9s  %-17s %7s %8s %7s %7s\n", "quantity", "coverage", "Wilson 95 %", "se/sd",
+           "bias/sd", "med z", "cov(sd)");
+    double *zs = malloc((size_t)n * sizeof *zs);
+    if (!zs)
+        return;
     for (int q = 0; q < SYNTH_NQ; q++) {
         double m = 0, ss = 0, se2 = 0, lo, hi, tv = synth_truth(q);
         for (int i = 0; i < n; i++) {
@@ -120,26 +130,50 @@ static void report(const char *name, const struct tally *t, int reps)
         int oracle = 0;
         for (int i = 0; i < n; i++)
             oracle += fabs(t->est[q][i] - tv) <= z * sd;
+        for (int i = 0; i < n; i++)
+            zs[i] = (t->est[q][i] - tv) / t->se[q][i];
+        gsl_sort(zs, 1, (size_t)n);
+        double medz = gsl_stats_median_from_sorted_data(zs, 1, (size_t)n);
         wilson(t->hits[q], n, z, &lo, &hi);
-        printf("  %-11s %9.4f  [%.4f, %.4f] %7.3f %+8.3f %7.4f\n", synth_what[q],
-               (double)t->hits[q] / n, lo, hi, sqrt(se2) / sd, (m - tv) / sd, (double)oracle / n);
+        printf("  %-11s %9.4f  [%.4f, %.4f] %7.3f %+8.3f %+7.3f %7.4f\n", synth_what[q],
+               (double)t->hits[q] / n, lo, hi, sqrt(se2) / sd, (m - tv) / sd, medz,
+               (double)oracle / n);
     }
+    free(zs);
+}
+
+static void usage(void)
+{
+    fprintf(stderr, "usage: tool_coverage REPLICATIONS(>=10) SEED [REGIME] [known-se | "
+                    "per-window-rho | smoother]\nregimes:");
+    for (int g = 0; g < SYNTH_NREGIMES; g++)
+        fprintf(stderr, " %s", synth_regimes[g].name);
+    fprintf(stderr, " (default steady)\n");
 }
 
 int main(int argc, char **argv)
 {
     char *end1 = NULL, *end2 = NULL;
     enum synth_se_mode mode = SYNTH_SE_ESTIMATED;
-    int args_ok = argc == 3;
-    if (argc == 4 && strcmp(argv[3], "known-se") == 0)
-        mode = SYNTH_SE_KNOWN, args_ok = 1;
-    if (argc == 4 && strcmp(argv[3], "per-window-rho") == 0)
-        mode = SYNTH_SE_PER_WINDOW, args_ok = 1;
+    const struct synth_regime *rg = &synth_regimes[0];
+    int args_ok = argc >= 3 && argc <= 5;
+    for (int a = 3; a < argc && args_ok; a++) {
+        int known = 0;
+        for (int g = 0; g < SYNTH_NREGIMES; g++)
+            if (strcmp(argv[a], synth_regimes[g].name) == 0)
+                rg = &synth_regimes[g], known = 1;
+        if (strcmp(argv[a], "known-se") == 0)
+            mode = SYNTH_SE_KNOWN, known = 1;
+        if (strcmp(argv[a], "per-window-rho") == 0)
+            mode = SYNTH_SE_PER_WINDOW, known = 1;
+        if (strcmp(argv[a], "smoother") == 0)
+            mode = SYNTH_SE_SMOOTHER, known = 1;
+        args_ok = known;
+    }
     long reps = args_ok ? strtol(argv[1], &end1, 10) : 0;
     unsigned long seed = args_ok ? strtoul(argv[2], &end2, 10) : 0;
     if (!args_ok || *end1 || *end2 || reps < 10 || reps > 10000000) {
-        fprintf(stderr,
-                "usage: tool_coverage REPLICATIONS(>=10) SEED [known-se | per-window-rho]\n");
+        usage();
         return 1;
     }
     gsl_set_error_handler_off();
@@ -158,7 +192,7 @@ int main(int argc, char **argv)
     clock_gettime(CLOCK_MONOTONIC, &t0);
     for (long rep = 0; rep < reps && rc == 0; rep++) {
         struct synth_fit fs, fc;
-        int line = synth_one(rng, vle, &form, mode, &fs, &fc);
+        int line = synth_one(rng, vle, &form, rg, mode, &fs, &fc);
         if (line) {
             fprintf(stderr, "tool_coverage: replication %ld: library call failed at %s:%d\n", rep,
                     "synth_calibration.h", line);
@@ -169,10 +203,12 @@ int main(int argc, char **argv)
     }
     clock_gettime(CLOCK_MONOTONIC, &t1);
     if (rc == 0) {
-        printf("coverage of 95 %% intervals, %ld synthetic calibrations, seed %lu%s (%.1f s)\n",
-               reps, seed,
+        printf("coverage of 95 %% intervals, %ld synthetic calibrations, regime %s, seed %lu%s "
+               "(%.1f s)\n",
+               reps, rg->name, seed,
                mode == SYNTH_SE_KNOWN        ? ", true window standard errors"
-               : mode == SYNTH_SE_PER_WINDOW ? ", each window's own autocorrelation"
+               : mode == SYNTH_SE_PER_WINDOW ? ", each window's own rho"
+               : mode == SYNTH_SE_SMOOTHER   ? ", statistics from the smoother's residuals"
                                              : "",
                (double)(t1.tv_sec - t0.tv_sec) + 1e-9 * (double)(t1.tv_nsec - t0.tv_nsec));
         report("stage space", &ts, (int)reps);

@@ -56,6 +56,10 @@ typedef struct {
     double rho_xd;      /* lag-1 autocorrelation in u_xd's n_eff (the window's own, or pooled) */
     double rho_xb;      /* the same for u_xb */
     size_t m_xd, m_xb;  /* finite samples behind xd and xb (0: u_xd/u_xb were not built here) */
+    double se_sxd;      /* standard error of the mean of the smoothed xD at the carried
+                           sample times (stagecal_evidence_window_stats; 0: not built, u_xd
+                           stands in) */
+    double se_sxb;      /* the same for xB */
     int stages_ok;      /* the stage count below exists */
     double stages;      /* effective stages incl. the pot [-] */
     double se_stages;   /* its standard error [-] */
@@ -95,18 +99,44 @@ int stagecal_evidence_mean_rho(const double *t, const double *y, size_t n, doubl
  * m_xd (m_xb) = 0 are left alone. Call before stagecal_evidence_stages. */
 void stagecal_evidence_pool_rho(stagecal_evidence *ev, size_t nev);
 
+/* Window statistics that match the estimator (an option of the builder): for each analyser,
+ * the residuals r = (I − S)y of the same local quadratic smoother S that gives the stage
+ * count (stagecal_evidence_stages), on the carried samples (at most 64) of every window with
+ * at least 6 of them. Noise model: stationary, standard deviation σ, correlation ρ^(|t_i − t_j|/Δ)
+ * between samples at any times (an exponential, i.e. continuous-time AR(1), correlation — valid for
+ * irregular sampling; Δ the mean sampling interval). ρ is pooled per analyser over the windows by
+ * the moment equation Σ_k Σ_j r_j r_{j+1} = Σ_k v_k·B_k(ρ)/A_k(ρ), with v_k = Σ_j r_j², A_k =
+ * tr((I−S)R(I−S)ᵀ) and B_k its first superdiagonal sum (the smoother's own effect on the residuals
+ * is in A and B); then one σ² = Σ_k v_k / Σ_k A_k(ρ) per analyser, floored at the stated u (pooled
+ * like ρ: it assumes one analyser with one noise level across the windows). Sets u_xd, u_xb
+ * (standard errors of the carried samples' plain means, which the composition fit uses), se_sxd,
+ * se_sxb (of the means of the smoothed values, which the stage count uses), rho_xd, rho_xb
+ * and n_eff. Windows with fewer samples keep what they had. ENOMEM, EINTERNAL. */
+int stagecal_evidence_window_stats(stagecal_evidence *ev, size_t nev, double u_xd, double u_xb,
+                                   stagecal_error *err);
+
 /* Stage count of a window. With samples (ev->m ≥ 3, at most 64 used): local quadratics in
  * time (9 samples each) smooth the window's xD and xB, the fitted compositions are inverted at
  * every sample time and the counts averaged — this follows a drifting pot without the
  * curvature bias of inverting plain means, and without the bias that the count's curvature
  * in xB gives noisy single samples near a pinch or at a lean pot. Without samples: the
  * inversion of the means. The standard error propagates u_xd, u_xb through the
- * sensitivities at the means (first order, independent analysers). Sets stages_ok (0 when
+ * sensitivities at the means (first order, independent analysers) — se_sxd, se_sxb when set,
+ * else u_xd, u_xb. Sets stages_ok (0 when
  * any inversion's status is not ok). Returns an error only when an inner solve fails. */
 int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_evidence *ev,
                              stagecal_error *err);
 
 /* ---- the evidence of a run log (evidence.c) ------------------------------------------ */
+
+/* How the builder sets the windows' standard errors. */
+typedef enum {
+    STAGECAL_EVIDENCE_NOISE_LINE_POOLED = 0, /* straight-line detrend, ρ pooled
+                                                (stagecal_evidence_mean_rho, _pool_rho) */
+    STAGECAL_EVIDENCE_NOISE_LINE_OWN,        /* straight-line detrend, each window's own ρ */
+    STAGECAL_EVIDENCE_NOISE_SMOOTHER         /* stagecal_evidence_window_stats (see there why
+                                                it is not the default yet) */
+} stagecal_evidence_noise;
 
 typedef struct {
     size_t max_samples; /* samples a window carries into its stage count and the composition
@@ -114,7 +144,7 @@ typedef struct {
                            add little but cost); 1..64, default 24 */
     size_t min_ok;      /* a window has a stage count only when at least this many of its
                            samples invert on their own (default 3) */
-    int pool_rho;       /* 1: pool ρ per analyser over all windows (default 1) */
+    stagecal_evidence_noise noise; /* window statistics (default LINE_POOLED) */
 } stagecal_evidence_params;
 
 stagecal_evidence_params stagecal_evidence_default_params(void);
