@@ -96,6 +96,15 @@ int stagecal_hetp_compute(double height_m, const stagecal_hetp_stages *s, double
     return STAGECAL_OK;
 }
 
+const char *stagecal_hetp_undetermined(const stagecal_hetp_stages *s, const stagecal_hetp_result *r)
+{
+    if (!(s->dof >= 2))
+        return "not determined: the fit has fewer than 2 degrees of freedom";
+    if (r->unbounded || !isfinite(r->high_m))
+        return "not bounded above: the evidence gives a lower bound only";
+    return NULL;
+}
+
 int stagecal_hetp_welch(double a, double se_a, double dof_a, double b, double se_b, double dof_b,
                         double level, stagecal_hetp_diff *out, stagecal_error *err)
 {

@@ -97,6 +97,17 @@ int stagecal_trend_point_from_model(const stagecal_model *m, double r, double f_
     return STAGECAL_OK;
 }
 
+const char *stagecal_trend_undetermined(double dof, double low, double high)
+{
+    if (!(dof >= 2))
+        return "not determined: the fit has fewer than 2 degrees of freedom";
+    if (!(isfinite(low) && isfinite(high)))
+        return "not determined: the evidence does not bound it";
+    if (low < 1)
+        return "not determined: the interval reaches below 1 stage (the pot alone)";
+    return NULL;
+}
+
 int stagecal_trend_fit_line(const stagecal_trend_point *pts, size_t n, double level,
                             stagecal_trend_fit *out, stagecal_error *err)
 {

@@ -358,6 +358,21 @@ static void hetp_equiv_type1_at_margin(void **state)
     assert_true(rate >= 0.03); /* not vacuous: the test does reject near its level */
 }
 
+/* The honesty rule for printing: dof < 2 or an HETP unbounded above is not printed as a
+ * two-sided interval (the demo's "(0.000-inf)" came from a one-dof fit). */
+static void hetp_undetermined_rule(void **state)
+{
+    (void)state;
+    stagecal_hetp_stages one = {7.0, 0.5, 1}, open = {1.0, 2.0, 5}, good = {7.0, 0.1, 6};
+    stagecal_hetp_result r;
+    assert_int_equal(stagecal_hetp_compute(4.5, &one, 0.95, &r, NULL), 0);
+    assert_non_null(strstr(stagecal_hetp_undetermined(&one, &r), "fewer than 2"));
+    assert_int_equal(stagecal_hetp_compute(4.5, &open, 0.95, &r, NULL), 0);
+    assert_non_null(strstr(stagecal_hetp_undetermined(&open, &r), "not bounded above"));
+    assert_int_equal(stagecal_hetp_compute(4.5, &good, 0.95, &r, NULL), 0);
+    assert_null(stagecal_hetp_undetermined(&good, &r));
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -372,6 +387,7 @@ int main(void)
         cmocka_unit_test(hetp_equiv_design_matches_scipy),
         cmocka_unit_test(hetp_equiv_pair_matches_scipy),
         cmocka_unit_test(hetp_equiv_type1_at_margin),
+        cmocka_unit_test(hetp_undetermined_rule),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }

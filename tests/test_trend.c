@@ -857,9 +857,21 @@ static void trend_select_random_histories_satisfy_rule(void **state)
     gsl_rng_free(rng);
 }
 
+/* The printing rule for a fit's stage interval: the issue's [-6116333.594, 6116349.839]
+ * (a one-dof fit) and an interval below the pot are "not determined"; a sane one is not. */
+static void test_undetermined_rule(void **state)
+{
+    (void)state;
+    assert_non_null(stagecal_trend_undetermined(1, -6116333.594, 6116349.839));
+    assert_non_null(strstr(stagecal_trend_undetermined(4, 0.5, 9.0), "below 1 stage"));
+    assert_non_null(stagecal_trend_undetermined(4, 7.0, INFINITY));
+    assert_null(stagecal_trend_undetermined(4, 7.9, 8.4));
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
+        cmocka_unit_test(test_undetermined_rule),
         cmocka_unit_test(trend_fit_matches_statsmodels_wls),
         cmocka_unit_test(trend_rate_interval_covers_truth),
         cmocka_unit_test(trend_forecast_band_covers_true_crossing),

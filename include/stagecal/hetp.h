@@ -67,6 +67,13 @@ typedef struct {
 int stagecal_hetp_compute(double height_m, const stagecal_hetp_stages *s, double level,
                           stagecal_hetp_result *out, stagecal_error *err);
 
+/* Why an HETP result must not be shown as a two-sided interval of numbers, or NULL when
+ * it may: "fewer than 2 degrees of freedom" (the t quantile explodes), or "not bounded
+ * above" (r->unbounded: the evidence gives "at least low_m" only; show it that way).
+ * The text is static. */
+const char *stagecal_hetp_undetermined(const stagecal_hetp_stages *s,
+                                       const stagecal_hetp_result *r);
+
 /* Welch–Satterthwaite comparison of two independent estimates a and b. */
 typedef struct {
     double diff;       /* b − a */

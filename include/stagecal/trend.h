@@ -53,6 +53,12 @@ typedef struct {
 int stagecal_trend_point_from_model(const stagecal_model *m, double r, double f_load, int want_hetp,
                                     stagecal_trend_point *out, stagecal_error *err);
 
+/* Why a stage count's interval [low, high] from a fit with `dof` degrees of freedom must
+ * not be shown as numbers, or NULL when it may: fewer than 2 dof, a non-finite end, or
+ * an interval reaching beyond the physical range (stages ≥ 1: the pot alone) — e.g.
+ * [-6116333.6, 6116349.8] from a one-dof fit. The text is static. */
+const char *stagecal_trend_undetermined(double dof, double low, double high);
+
 /* ---- fits that share run logs ---------------------------------------------------------- */
 
 /* What the selection decided for one model file. */
