@@ -42,11 +42,6 @@ struct side {
     stagecal_hetp_tray tray; /* when trays > 0 */
 };
 
-static json_t *real_or_inf(double v)
-{
-    return isinf(v) ? json_string(v > 0 ? "inf" : "-inf") : cli_json_real(v);
-}
-
 static json_t *side_json(const struct side *sd, int trays)
 {
     json_t *o = json_object();
@@ -68,14 +63,21 @@ static json_t *side_json(const struct side *sd, int trays)
                       cli_json_real(sd->tray.high)));
         json_object_set_new(o, "hetp", json_null());
     } else {
+        /* printing rule: < 2 dof gives no interval; unbounded gives a lower bound only */
+        const char *why = stagecal_hetp_undetermined(&sd->s, &sd->h);
+        int no_dof = !(sd->s.dof >= 2);
         json_object_set_new(o, "height_m", cli_json_real(sd->height_m));
         json_object_set_new(
             o, "hetp",
             json_pack("{s:o, s:o, s:o, s:o, s:b, s:s}", "value_m", cli_json_real(sd->h.hetp_m),
-                      "se_m", cli_json_real(sd->h.se_m), "low_m", cli_json_real(sd->h.low_m),
-                      "high_m", real_or_inf(sd->h.high_m), "unbounded", sd->h.unbounded, "interval",
+                      "se_m", cli_json_real(sd->h.se_m), "low_m",
+                      no_dof ? json_null() : cli_json_real(sd->h.low_m), "high_m",
+                      why ? json_null() : cli_json_real(sd->h.high_m), "unbounded", sd->h.unbounded,
+                      "interval",
                       "t interval of the column stages mapped through H/N (exact, monotone); "
-                      "se by the delta method H*se/N^2"));
+                      "se by the delta method H*se/N^2; a null end is not determined"));
+        json_object_set_new(json_object_get(o, "hetp"), "note",
+                            why ? json_string(why) : json_null());
         json_object_set_new(o, "tray_efficiency", json_null());
     }
     return o;
@@ -91,6 +93,8 @@ struct job {
     stagecal_hetp_diff diff;
     stagecal_hetp_design_check dc;
     stagecal_hetp_rule rule;
+    double margin;                         /* equivalence margin (fraction) */
+    stagecal_hetp_equiv eq_design, eq_old; /* TOST vs the design figure / the first file */
 };
 
 static const char *const packing_names[] = {"structured", "random", NULL};
@@ -152,6 +156,15 @@ static int compare(struct job *j)
     /* The design and rule checks apply to the last file given (the current bed). */
     if (!isnan(j->design) && stagecal_hetp_vs_design(&cur->h, j->design, &j->dc, &err))
         return cli_fail(&err);
+    /* Equivalence (TOST): the current bed as good as the design figure, as the first */
+    if (j->trays == 0 && !isnan(j->design) &&
+        stagecal_hetp_equiv_design(cur->height_m, &cur->s, j->design, j->margin, 0.05,
+                                   &j->eq_design, &err))
+        return cli_fail_data(&err);
+    if (j->trays == 0 && j->have_diff &&
+        stagecal_hetp_equiv_pair(a->height_m, &a->s, b->height_m, &b->s, j->margin, 0.05,
+                                 &j->eq_old, &err))
+        return cli_fail_data(&err);
     double size = j->packing == STAGECAL_PACKING_STRUCTURED ? j->area : j->size_mm * 1e-3;
     if (j->packing >= 0 &&
         stagecal_hetp_rule_of_thumb((stagecal_packing_kind)j->packing, size, &j->rule, &err))
@@ -175,6 +188,16 @@ static json_t *comparison_json(const struct job *j)
         "test", "two-sided Welch t, Satterthwaite dof (second minus first)");
 }
 
+static json_t *equiv_json(const stagecal_hetp_equiv *q)
+{
+    int nd = q->verdict == STAGECAL_EQUIV_NOT_DETERMINED;
+    return json_pack("{s:s, s:s, s:o, s:o, s:o, s:o}", "verdict",
+                     stagecal_equiv_verdict_name(q->verdict), "text", q->text, "ratio_low",
+                     nd ? json_null() : cli_json_real(q->low), "ratio_high",
+                     nd ? json_null() : cli_json_real(q->high), "p",
+                     nd ? json_null() : cli_json_real(q->p), "dof", cli_json_real(q->dof));
+}
+
 static int print_json(const struct job *j)
 {
     const struct side *cur = &j->sd[j->nfiles - 1];
@@ -196,12 +219,23 @@ static int print_json(const struct job *j)
     const stagecal_hetp_design_check *dc = &j->dc;
     json_object_set_new(
         doc, "design",
-        isnan(j->design)
-            ? json_null()
+        isnan(j->design) ? json_null()
+        : !(cur->s.dof >= 2)
+            ? json_pack("{s:o, s:o, s:n, s:n, s:s}", "design_hetp_m", cli_json_real(dc->design_m),
+                        "ratio", cli_json_real(dc->ratio), "ratio_low", "ratio_high", "verdict",
+                        "not-determined")
             : json_pack("{s:o, s:o, s:o, s:o, s:s}", "design_hetp_m", cli_json_real(dc->design_m),
                         "ratio", cli_json_real(dc->ratio), "ratio_low",
-                        cli_json_real(dc->ratio_low), "ratio_high", real_or_inf(dc->ratio_high),
+                        cli_json_real(dc->ratio_low), "ratio_high",
+                        isinf(dc->ratio_high) ? json_null() : cli_json_real(dc->ratio_high),
                         "verdict", stagecal_hetp_verdict_name(dc->verdict)));
+    json_object_set_new(
+        doc, "equivalence",
+        json_pack("{s:o, s:o, s:o, s:s}", "margin", cli_json_real(j->margin), "vs_design",
+                  j->trays == 0 && !isnan(j->design) ? equiv_json(&j->eq_design) : json_null(),
+                  "second_vs_first",
+                  j->trays == 0 && j->have_diff ? equiv_json(&j->eq_old) : json_null(), "test",
+                  "two one-sided tests (Schuirmann 1987) at 5 % each"));
     const stagecal_hetp_rule *r = &j->rule;
     json_object_set_new(
         doc, "rule_of_thumb",
@@ -230,10 +264,13 @@ static void print_side(const struct job *j, const struct side *s, int pct)
     if (j->trays > 0)
         printf("  overall tray efficiency %.3f on %ld trays, %d %% CI [%.3f, %.3f]\n",
                s->tray.efficiency, j->trays, pct, s->tray.low, s->tray.high);
+    else if (!(s->s.dof >= 2))
+        printf("  HETP %.3f m over %.3f m packed, interval %s\n", s->h.hetp_m, s->height_m,
+               stagecal_hetp_undetermined(&s->s, &s->h));
     else if (s->h.unbounded)
-        printf("  HETP %.3f m over %.3f m packed, %d %% CI [%.3f m, unbounded] (the stage "
-               "interval reaches 0)\n",
-               s->h.hetp_m, s->height_m, pct, s->h.low_m);
+        printf("  HETP at least %.3f m (%d %% lower bound) over %.3f m packed: not bounded "
+               "above, the stage interval reaches 0\n",
+               s->h.low_m, pct, s->height_m);
     else
         printf("  HETP %.3f m over %.3f m packed, %d %% CI [%.3f, %.3f] m (delta-method se "
                "%.3f m)\n",
@@ -247,7 +284,11 @@ static void print_text(const struct job *j)
     int pct = (int)lround(j->level * 100);
     for (int i = 0; i < j->nfiles; i++)
         print_side(j, &j->sd[i], pct);
-    if (j->have_diff) {
+    int thin = j->have_diff && (!(j->sd[0].s.dof >= 2) || !(j->sd[1].s.dof >= 2));
+    if (thin)
+        printf("change second - first: not determined (a fit has fewer than 2 degrees of "
+               "freedom)\n");
+    if (j->have_diff && !thin) {
         const char *unit = j->trays > 0 ? "" : " m";
         printf("change second - first: %+.3f%s (%+.1f %%), %d %% CI [%+.3f, %+.3f]%s\n", d->diff,
                unit, 100 * d->rel_change, pct, d->low, d->high, unit);
@@ -255,7 +296,11 @@ static void print_text(const struct job *j)
                d->t_stat, d->dof, d->p_value,
                d->significant ? "a significant difference" : "no significant difference", pct);
     }
-    if (!isnan(j->design)) {
+    const char *cur_why = j->trays > 0 ? NULL : stagecal_hetp_undetermined(&cur->s, &cur->h);
+    if (!isnan(j->design) && cur_why && !(cur->s.dof >= 2)) {
+        printf("design HETP %.3f m: measured/design %.3f, interval %s%s\n", j->design, j->dc.ratio,
+               cur_why, j->have_diff ? " (second file)" : "");
+    } else if (!isnan(j->design)) {
         char hi[32];
         if (isinf(j->dc.ratio_high))
             snprintf(hi, sizeof hi, "unbounded");
@@ -265,6 +310,12 @@ static void print_text(const struct job *j)
                j->dc.ratio, pct, j->dc.ratio_low, hi, stagecal_hetp_verdict_name(j->dc.verdict),
                j->have_diff ? " (second file)" : "");
     }
+    if (j->trays == 0 && j->have_diff)
+        printf("equivalence, second vs first (margin %.0f %%): %s\n", 100 * j->margin,
+               j->eq_old.text);
+    if (j->trays == 0 && !isnan(j->design))
+        printf("equivalence vs design (margin %.0f %%): %s%s\n", 100 * j->margin, j->eq_design.text,
+               j->have_diff ? " (second file)" : "");
     if (j->packing >= 0)
         printf("rule of thumb (%s): %.3f m, range %.3f-%.3f m -> %s%s\n  source: %s\n",
                j->rule.rule, j->rule.hetp_m, j->rule.low_m, j->rule.high_m,
@@ -296,6 +347,7 @@ int cmd_hetp(int argc, char **argv, cli_ctx *ctx)
     memset(&j, 0, sizeof j);
     j.reflux = j.fload = j.height = j.design = j.area = j.size_mm = NAN;
     j.level = 0.95;
+    j.margin = STAGECAL_HETP_EQUIV_MARGIN;
     j.packing = -1;
     const struct cli_option opts[] = {
         OPT_REFLUX(&j.reflux, "reference reflux ratio, >= 0 or 'inf'"),
@@ -316,6 +368,9 @@ int cmd_hetp(int argc, char **argv, cli_ctx *ctx)
                      "a specific area in m2/m3"),
         OPT_POSITIVE("size", &j.size_mm, "D", "nominal size of random packing [mm]",
                      "a nominal packing size in mm"),
+        OPT_DOUBLE("margin", &j.margin, "M",
+                   "equivalence margin: HETP ratio within [1/(1+M), 1+M] (0.10)", 0, 1,
+                   CLI_D_LO_OPEN | CLI_D_HI_OPEN, "a fraction, e.g. 0.10"),
         OPT_LEVEL(&j.level),
         OPT_END_COMMON(ctx),
     };

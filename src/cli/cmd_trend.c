@@ -17,6 +17,7 @@
 #include "cli.h"
 #include "commands.h"
 #include "options.h"
+#include "stagecal/fits.h"
 #include "stagecal/hetp.h"
 #include "stagecal/model.h"
 #include "stagecal/trend.h"
@@ -138,7 +139,72 @@ static int add_fit(struct column *col, const stagecal_model *m, const char *path
 
 /* Loads every model file of the column (stagecal_trend_dir_load), sets aside fits that
  * re-use a newer fit's run logs (unless all_fits), and evaluates the kept ones. */
-static int load_column(struct column *col, const struct reference *ref)
+static void format_date(double t_s, char *buf, size_t cap)
+{
+    if (!isfinite(t_s)) {
+        snprintf(buf, cap, "%s", isnan(t_s) ? "-" : "open"); /* an unbounded band end */
+        return;
+    }
+    time_t tt = (time_t)floor(t_s);
+    struct tm tm;
+    if (!gmtime_r(&tt, &tm) || strftime(buf, cap, "%Y-%m-%d", &tm) == 0)
+        snprintf(buf, cap, "?");
+}
+
+/* Keeps in d only the fits that may be trended: not retired in the column's catalogue
+ * (stagecal fits retire), and whose data period does not straddle a repack/maintenance
+ * event of the column (such a fit mixes two beds). Each one left out is named in a
+ * warning. The models left out are freed. */
+static int live_fits(stagecal_trend_dir *d, const struct reference *ref, const char *column,
+                     const stagecal_trend_event *ev, size_t nev)
+{
+    stagecal_fit_entry *fe = NULL;
+    size_t nfe = 0, kept = 0;
+    stagecal_error err;
+    if (stagecal_fits_list(ref->fits, column, &fe, &nfe, &err) != STAGECAL_OK)
+        return cli_fail(&err);
+    stagecal_fits_check_events(fe, nfe, ev, nev, column);
+    for (size_t i = 0; i < d->n; i++) {
+        const stagecal_fit_entry *e = NULL;
+        for (size_t k = 0; k < nfe && !e; k++)
+            if (strcmp(fe[k].file, base_name(d->paths[i])) == 0)
+                e = &fe[k];
+        if (e && e->retired) {
+            cli_warn("%s: retired (%s); not trended", d->paths[i], e->reason);
+        } else if (e && e->straddles >= 0) {
+            char day[32];
+            format_date(ev[e->straddles].t_s, day, sizeof day);
+            cli_warn("%s: its data period straddles the %s of %s: it mixes two beds; set aside "
+                     "(fit the logs before and after separately)",
+                     d->paths[i], stagecal_event_kind_name(ev[e->straddles].kind), day);
+        } else {
+            stagecal_model tm = d->models[kept];
+            char *tp = d->paths[kept];
+            d->models[kept] = d->models[i];
+            d->paths[kept] = d->paths[i];
+            d->models[i] = tm;
+            d->paths[i] = tp;
+            kept++;
+            continue;
+        }
+    }
+    free(fe);
+    if (kept == 0) {
+        cli_error("column %s: no live fit to trend (all retired or straddling an event)", column);
+        return CLI_EXIT_DATA;
+    }
+    /* the left-out models sit at [kept, n): free them and shrink the view */
+    for (size_t i = kept; i < d->n; i++) {
+        stagecal_model_free(&d->models[i]);
+        free(d->paths[i]);
+        d->paths[i] = NULL;
+    }
+    d->n = kept;
+    return 0;
+}
+
+static int load_column(struct column *col, const struct reference *ref,
+                       const stagecal_trend_event *ev, size_t nev)
 {
     char dir[1024];
     if ((size_t)snprintf(dir, sizeof dir, "%s/%s", ref->fits, col->id) >= sizeof dir) {
@@ -150,6 +216,11 @@ static int load_column(struct column *col, const struct reference *ref)
     stagecal_error_clear(&err);
     if (stagecal_trend_dir_load(dir, col->id, &d, &err) != STAGECAL_OK)
         return cli_fail(&err);
+    int lrc = live_fits(&d, ref, col->id, ev, nev);
+    if (lrc) {
+        stagecal_trend_dir_free(&d);
+        return lrc;
+    }
     stagecal_trend_selection *sel = calloc(d.n, sizeof *sel);
     col->pts = calloc(d.n, sizeof *col->pts);
     col->ex = calloc(d.n, sizeof *col->ex);
@@ -173,18 +244,6 @@ static int load_column(struct column *col, const struct reference *ref)
     return rc;
 }
 
-static void format_date(double t_s, char *buf, size_t cap)
-{
-    if (!isfinite(t_s)) {
-        snprintf(buf, cap, "%s", isnan(t_s) ? "-" : "open"); /* an unbounded band end */
-        return;
-    }
-    time_t tt = (time_t)floor(t_s);
-    struct tm tm;
-    if (!gmtime_r(&tt, &tm) || strftime(buf, cap, "%Y-%m-%d", &tm) == 0)
-        snprintf(buf, cap, "?");
-}
-
 static json_t *date_json(double t_s)
 {
     if (!isfinite(t_s))
@@ -195,6 +254,16 @@ static json_t *date_json(double t_s)
     if (!gmtime_r(&tt, &tm) || strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", &tm) == 0)
         return json_null();
     return json_string(buf);
+}
+
+/* A fit's stage interval, or "n.d." under the printing rule (stagecal_trend_undetermined;
+ * the reason goes to JSON and to the legend under the table). */
+static void ci_text(const struct extra *x, char *buf, size_t cap)
+{
+    if (stagecal_trend_undetermined(x->dof, x->pt.ci_low, x->pt.ci_high))
+        snprintf(buf, cap, "n.d.");
+    else
+        snprintf(buf, cap, "[%7.3f, %7.3f]", x->pt.ci_low, x->pt.ci_high);
 }
 
 static json_t *fit_json(const stagecal_trend_fit *f)
@@ -218,20 +287,27 @@ static json_t *column_json(const struct column *col, const stagecal_trend_event 
     for (size_t i = 0; i < h->n; i++) {
         const struct extra *x = &col->ex[h->order[i]];
         const stagecal_trend_ewma_point *c = &h->chart[i];
+        const char *why = stagecal_trend_undetermined(x->dof, x->pt.ci_low, x->pt.ci_high);
+        stagecal_hetp_stages hs = {0, 0, x->dof};
+        const char *hwhy = x->has_hetp ? stagecal_hetp_undetermined(&hs, &x->hetp) : NULL;
         json_t *f = json_pack(
             "{s:s, s:s, s:o, s:o, s:o, s:o, s:b, s:I, s:o, s:o, s:o, s:i}", "path", x->path,
             "fitted_utc", x->fitted_utc, "stages", cli_json_real(h->points[i].value), "se",
-            cli_json_real(h->points[i].se), "ci_low", cli_json_real(x->pt.ci_low), "ci_high",
-            cli_json_real(x->pt.ci_high), "extrapolated", x->pt.extrapolated, "segment",
-            (json_int_t)h->segment_of[i], "z", cli_json_real(c->z), "ewma", cli_json_real(c->ewma),
-            "limit", cli_json_real(c->limit), "alarm", c->alarm);
+            why ? json_null() : cli_json_real(h->points[i].se), "ci_low",
+            why ? json_null() : cli_json_real(x->pt.ci_low), "ci_high",
+            why ? json_null() : cli_json_real(x->pt.ci_high), "extrapolated", x->pt.extrapolated,
+            "segment", (json_int_t)h->segment_of[i], "z", cli_json_real(c->z), "ewma",
+            cli_json_real(c->ewma), "limit", cli_json_real(c->limit), "alarm", c->alarm);
         /* the date the point is plotted at: the data period's end, not the time of fit */
         json_object_set_new(f, "date", date_json(h->points[i].t_s));
+        json_object_set_new(f, "ci_note", why ? json_string(why) : json_null());
         json_object_set_new(
             f, "hetp",
             x->has_hetp
-                ? json_pack("{s:o, s:o, s:o}", "value_m", cli_json_real(x->hetp.hetp_m), "low_m",
-                            cli_json_real(x->hetp.low_m), "high_m", cli_json_real(x->hetp.high_m))
+                ? json_pack("{s:o, s:o, s:o, s:o}", "value_m", cli_json_real(x->hetp.hetp_m),
+                            "low_m", x->dof >= 2 ? cli_json_real(x->hetp.low_m) : json_null(),
+                            "high_m", hwhy ? json_null() : cli_json_real(x->hetp.high_m), "note",
+                            hwhy ? json_string(hwhy) : json_null())
                 : json_null());
         json_array_append_new(fits, f);
     }
@@ -293,18 +369,27 @@ static void print_column(const struct column *col, const stagecal_trend_event *e
     for (size_t i = 0; i < h->n; i++) {
         const struct extra *x = &col->ex[h->order[i]];
         const stagecal_trend_ewma_point *c = &h->chart[i];
-        char hetp[40] = "-";
-        if (x->has_hetp)
+        char hetp[40] = "-", ci[40];
+        stagecal_hetp_stages hs = {0, 0, x->dof};
+        int ci_nd = stagecal_trend_undetermined(x->dof, x->pt.ci_low, x->pt.ci_high) != NULL;
+        if (x->has_hetp && !ci_nd && stagecal_hetp_undetermined(&hs, &x->hetp) == NULL)
             snprintf(hetp, sizeof hetp, "%.3f (%.3f-%.3f)", x->hetp.hetp_m, x->hetp.low_m,
                      x->hetp.high_m);
+        else if (x->has_hetp && !ci_nd)
+            snprintf(hetp, sizeof hetp, ">= %.3f", x->hetp.low_m);
+        else if (x->has_hetp)
+            snprintf(hetp, sizeof hetp, "%.3f (n.d.)", x->hetp.hetp_m);
+        ci_text(x, ci, sizeof ci);
         format_date(h->points[i].t_s, d, sizeof d);
-        printf("  %-10s %8.3f [%7.3f, %7.3f] %19s %3zu %+7.3f %s%s\n", d, h->points[i].value,
-               x->pt.ci_low, x->pt.ci_high, hetp, h->segment_of[i] + 1, c->ewma,
+        printf("  %-10s %8.3f %19s %19s %3zu %+7.3f %s%s\n", d, h->points[i].value, ci, hetp,
+               h->segment_of[i] + 1, c->ewma,
                c->alarm < 0   ? "LOSS"
                : c->alarm > 0 ? "GAIN"
                               : "",
                x->pt.extrapolated ? " (extrapolated)" : "");
     }
+    printf("  (n.d.: not determined - the fit has fewer than 2 degrees of freedom or its "
+           "interval reaches beyond the physical range; reasons in --json)\n");
     for (size_t s = 0; s < h->n_segments; s++) {
         const stagecal_trend_segment *g = &h->segments[s];
         format_date(g->start_s, d, sizeof d);
@@ -369,8 +454,10 @@ static void print_fleet_row(const struct column *col, int pct)
             snprintf(fc, sizeof fc, "%s [%s, %s]", d, d1, d2);
         }
     }
-    printf("%-16s %4zu %7.3f [%6.3f, %6.3f] %-26s %-36s %zu\n", col->id, h->n,
-           h->points[h->n - 1].value, x->pt.ci_low, x->pt.ci_high, loss, fc, g->n_alarms);
+    char ci[40];
+    ci_text(x, ci, sizeof ci);
+    printf("%-16s %4zu %7.3f %19s %-26s %-36s %zu\n", col->id, h->n, h->points[h->n - 1].value, ci,
+           loss, fc, g->n_alarms);
 }
 
 static int print_json(const struct column *cols, size_t ncol, const stagecal_trend_event *ev,
@@ -447,7 +534,7 @@ static int run(struct column *cols, size_t ncol, const char *events_path,
     if (events_path && stagecal_trend_events_read(events_path, &ev, &nev, &err) != STAGECAL_OK)
         return cli_fail(&err);
     for (size_t i = 0; i < ncol && rc == 0; i++) {
-        rc = load_column(&cols[i], ref);
+        rc = load_column(&cols[i], ref, ev, nev);
         if (rc == 0 && stagecal_trend_analyse(cols[i].pts, cols[i].n, ev, nev, cols[i].id, par,
                                               &cols[i].h, &err) != STAGECAL_OK)
             rc = cli_fail_data(&err);

@@ -32,4 +32,14 @@ grep -q "RETIRED: analyser recalibrated" "$tmp/out" || { echo "FAIL: retirement 
 grep -q "autumn.*STRADDLES the repack" "$tmp/out" || { echo "FAIL: straddling fit not flagged"; cat "$tmp/out"; fails=$((fails + 1)); }
 expect_exit 0 "" -- $X restore demo-bt-K-7 demo-bt-K-7@2025-08-08..2025-08-30 --fits "$F"
 expect_exit 0 "" -- $X find demo-bt-K-7 2025-08 --fits "$F"
+# trend leaves out a retired fit and one that straddles the repack, each with a warning
+$X retire demo-bt-K-7 2025-08 --reason "analyser recalibrated" --fits "$F" >/dev/null
+$BIN trend demo-bt-K-7 --fits "$F" --events "$ROOT/datasets/demo/events.csv" --reflux 3 \
+    --f-factor 1.3 >"$tmp/t.out" 2>"$tmp/t.err"
+if grep -q "retired (analyser recalibrated); not trended" "$tmp/t.err" &&
+    grep -q "straddles the repack of 2025-10-06" "$tmp/t.err"; then
+    echo "ok: trend sets aside retired and straddling fits"
+else
+    echo "FAIL: trend did not set aside"; cat "$tmp/t.err"; fails=$((fails + 1))
+fi
 finish
