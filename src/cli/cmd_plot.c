@@ -39,6 +39,37 @@ static const struct cli_usage usage = {
 static const char *const mccabe_only[] = {"alpha",  "kvalue", "column",   "xd", "reflux",
                                           "stages", "xb",     "murphree", NULL};
 
+static int print_result(const stagecal_plot_chart *draw, const char *kind, const char *output,
+                        int json)
+{
+    if (!json) {
+        printf("chart written to %s\n", output);
+        return CLI_EXIT_OK;
+    }
+    json_t *names = json_array();
+    for (size_t i = 0; i < draw->n_series; i++)
+        json_array_append_new(names,
+                              json_string(draw->series[i].label ? draw->series[i].label : ""));
+    json_t *o = json_pack("{s:s, s:i, s:s, s:s, s:s, s:s, s:o}", "format", "stagecal-plot-result",
+                          "version", 1, "status", "ok", "kind", kind, "output", output, "title",
+                          draw->title ? draw->title : "", "series", names);
+    return o ? cli_json_print(o) : CLI_EXIT_SOFTWARE;
+}
+
+/* plot model: the model file (and points) through the report's chart builder. */
+static int model_chart(const char *model_path, const char *points_path, stagecal_model *m,
+                       stagecal_regress_data *pts, stagecal_report_doc **doc, stagecal_error *err)
+{
+    int rc = stagecal_model_load(model_path, m, err);
+    if (rc == STAGECAL_OK && points_path)
+        rc = stagecal_regress_data_read(points_path, pts, err);
+    if (rc == STAGECAL_OK &&
+        (rc = stagecal_report_from_model(m, points_path ? pts : NULL, doc, err)) &&
+        err->code == STAGECAL_EINVAL)
+        err->code = STAGECAL_EDATA; /* built from the files alone: their content */
+    return rc;
+}
+
 int cmd_plot(int argc, char **argv, cli_ctx *ctx)
 {
     cli_system *sys = &ctx->sys;
@@ -130,13 +161,7 @@ int cmd_plot(int argc, char **argv, cli_ctx *ctx)
                                    argv[first + 1]);
         if (resid && !points_path)
             return cli_usage_error("option '--residuals' needs '--points'");
-        rc = stagecal_model_load(argv[first], &m, &err);
-        if (rc == STAGECAL_OK && points_path)
-            rc = stagecal_regress_data_read(points_path, &pts, &err);
-        if (rc == STAGECAL_OK &&
-            (rc = stagecal_report_from_model(&m, points_path ? &pts : NULL, &doc, &err)) &&
-            err.code == STAGECAL_EINVAL)
-            err.code = STAGECAL_EDATA; /* built from the files alone: their content */
+        rc = model_chart(argv[first], points_path, &m, &pts, &doc, &err);
     }
     const stagecal_plot_chart *draw = is_mccabe ? chart : stagecal_report_doc_chart(doc, resid);
     if (rc == STAGECAL_OK) {
@@ -153,20 +178,7 @@ int cmd_plot(int argc, char **argv, cli_ctx *ctx)
         stagecal_model_free(&m);
         return code;
     }
-    if (json) {
-        json_t *names = json_array();
-        for (size_t i = 0; i < draw->n_series; i++)
-            json_array_append_new(names,
-                                  json_string(draw->series[i].label ? draw->series[i].label : ""));
-        json_t *o =
-            json_pack("{s:s, s:i, s:s, s:s, s:s, s:s, s:o}", "format", "stagecal-plot-result",
-                      "version", 1, "status", "ok", "kind", kind, "output", output, "title",
-                      draw->title ? draw->title : "", "series", names);
-        rc = o ? cli_json_print(o) : CLI_EXIT_SOFTWARE;
-    } else {
-        printf("chart written to %s\n", output);
-        rc = CLI_EXIT_OK;
-    }
+    rc = print_result(draw, kind, output, json);
     stagecal_plot_chart_free(chart);
     stagecal_report_doc_free(doc);
     stagecal_regress_data_free(&pts);

@@ -162,7 +162,7 @@ static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batc
             "{s:s,s:s,s:s,s:o,s:o,s:o,s:o,s:o,s:o,s:o,s:o,s:o}", "name", c->name, "target",
             stagecal_batch_target_name((int)pb->cuts[i].kind), "stop",
             stagecal_batch_stop_name(c->stop), "target_value",
-            cli_json_real(pb->cuts[i].kind == STAGECAL_BATCH_UNTIL_TIME ? pb->cuts[i].value / 3600
+            cli_json_real(pb->cuts[i].kind == STAGECAL_BATCH_UNTIL_TIME ? H(pb->cuts[i].value)
                                                                         : pb->cuts[i].value),
             "t_start_h", cli_json_real(H(c->t_start_s)), "t_end_h", cli_json_real(H(c->t_end_s)),
             "amount_kmol", cli_json_real(KMOL(c->amount_mol)), "x_mean", cli_json_real(c->x_mean),
@@ -287,6 +287,62 @@ struct request {
     size_t n_cuts;
 };
 
+/* The batch problem from the plan file and the options (options win). An exit code. */
+static int build_problem(const struct request *q, stagecal_batch_problem *pb,
+                         latent_from *latent_source)
+{
+    stagecal_error err;
+    stagecal_batch_problem_init(pb);
+    pb->w0_mol = NAN;
+    pb->xb0 = NAN;
+    pb->v_mol_s = NAN;
+    if (q->plan && stagecal_batch_plan_load(q->plan, pb, &err) != STAGECAL_OK)
+        return cli_fail(&err);
+    if (!isnan(q->charge))
+        pb->w0_mol = q->charge * STAGECAL_UNIT_KMOL;
+    if (!isnan(q->xb0))
+        pb->xb0 = q->xb0;
+    if (!isnan(q->boilup))
+        pb->v_mol_s = q->boilup * STAGECAL_UNIT_KMOL_H;
+    if (isnan(pb->w0_mol))
+        return cli_usage_error("option '--charge' is required (or a charge in the plan)");
+    if (isnan(pb->xb0))
+        return cli_usage_error("option '--xb0' is required (or a charge in the plan)");
+    if (isnan(pb->v_mol_s))
+        return cli_usage_error("option '--boilup' is required (or boilup_kmol_h in the plan)");
+    if (!isnan(q->reflux)) {
+        pb->policy.kind = STAGECAL_BATCH_CONSTANT_REFLUX;
+        pb->policy.reflux = q->reflux;
+    } else if (!isnan(q->xdset)) {
+        pb->policy.kind = STAGECAL_BATCH_CONSTANT_DISTILLATE;
+        pb->policy.xd_set = q->xdset;
+        pb->policy.reflux_max = isnan(q->rmax) ? 30 : q->rmax;
+    }
+    if (q->n_cuts) {
+        memcpy(pb->cuts, q->cuts, q->n_cuts * sizeof q->cuts[0]);
+        pb->n_cuts = q->n_cuts;
+    }
+    if (pb->n_cuts == 0)
+        return cli_usage_error("no receiver: give at least one '--cut KIND=VALUE' (or cuts in "
+                               "the plan)");
+    /* the latent heat: --latent, else the plan's, else (below) the column file's with
+     * --column, else the one the model file records */
+    *latent_source = LATENT_NONE;
+    if (!isnan(q->latent)) {
+        pb->latent_j_mol = q->latent * STAGECAL_UNIT_KJ_MOL;
+        *latent_source = LATENT_OPTION;
+    } else if (pb->latent_j_mol > 0) {
+        *latent_source = LATENT_PLAN;
+    }
+    if (stagecal_batch_check(pb, &err) != STAGECAL_OK) {
+        if (!q->plan)
+            return cli_usage_error("%s", err.text);
+        cli_error("%s: %s", q->plan, err.text); /* the plan's content is bad data */
+        return CLI_EXIT_DATA;
+    }
+    return 0;
+}
+
 /* Checks the request, runs the batch (and its band), prints. An exit code. */
 static int run(const struct request *q, cli_ctx *ctx)
 {
@@ -311,54 +367,9 @@ static int run(const struct request *q, cli_ctx *ctx)
 
     stagecal_batch_problem pb;
     stagecal_error err;
-    stagecal_batch_problem_init(&pb);
-    pb.w0_mol = NAN;
-    pb.xb0 = NAN;
-    pb.v_mol_s = NAN;
-    if (q->plan && stagecal_batch_plan_load(q->plan, &pb, &err) != STAGECAL_OK)
-        return cli_fail(&err);
-    if (!isnan(q->charge))
-        pb.w0_mol = q->charge * 1000;
-    if (!isnan(q->xb0))
-        pb.xb0 = q->xb0;
-    if (!isnan(q->boilup))
-        pb.v_mol_s = q->boilup * 1000 / 3600;
-    if (isnan(pb.w0_mol))
-        return cli_usage_error("option '--charge' is required (or a charge in the plan)");
-    if (isnan(pb.xb0))
-        return cli_usage_error("option '--xb0' is required (or a charge in the plan)");
-    if (isnan(pb.v_mol_s))
-        return cli_usage_error("option '--boilup' is required (or boilup_kmol_h in the plan)");
-    if (!isnan(q->reflux)) {
-        pb.policy.kind = STAGECAL_BATCH_CONSTANT_REFLUX;
-        pb.policy.reflux = q->reflux;
-    } else if (!isnan(q->xdset)) {
-        pb.policy.kind = STAGECAL_BATCH_CONSTANT_DISTILLATE;
-        pb.policy.xd_set = q->xdset;
-        pb.policy.reflux_max = isnan(q->rmax) ? 30 : q->rmax;
-    }
-    if (q->n_cuts) {
-        memcpy(pb.cuts, q->cuts, q->n_cuts * sizeof q->cuts[0]);
-        pb.n_cuts = q->n_cuts;
-    }
-    if (pb.n_cuts == 0)
-        return cli_usage_error("no receiver: give at least one '--cut KIND=VALUE' (or cuts in "
-                               "the plan)");
-    /* the q->latent heat: --q->latent, else the plan's, else (below) the column file's with
-     * --column, else the one the model file records */
     latent_from latent_source = LATENT_NONE;
-    if (!isnan(q->latent)) {
-        pb.latent_j_mol = q->latent * 1000;
-        latent_source = LATENT_OPTION;
-    } else if (pb.latent_j_mol > 0) {
-        latent_source = LATENT_PLAN;
-    }
-    if (stagecal_batch_check(&pb, &err) != STAGECAL_OK) {
-        if (!q->plan)
-            return cli_usage_error("%s", err.text);
-        cli_error("%s: %s", q->plan, err.text); /* the plan's content is bad data */
-        return CLI_EXIT_DATA;
-    }
+    if ((rc = build_problem(q, &pb, &latent_source)))
+        return rc;
 
     stagecal_model m;
     stagecal_model_init(&m);
@@ -390,7 +401,7 @@ static int run(const struct request *q, cli_ctx *ctx)
     stagecal_batch_result res;
     stagecal_batch_band band;
     int have_band = 0;
-    par.output_dt_s = q->every * 3600;
+    par.output_dt_s = q->every * STAGECAL_UNIT_H;
     stagecal_batch_result_init(&res);
     rc = stagecal_batch_run(&pb, &col, &par, &res, &err);
     if (rc == STAGECAL_OK && q->samples >= 2) {

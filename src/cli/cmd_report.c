@@ -48,6 +48,71 @@ static char *default_output(const char *model)
     return out;
 }
 
+/* A load the form does not take (or lacks) is the command line's fault: an exit code. */
+static int load_usage(const stagecal_model *m, double fload)
+{
+    if (m->form.uses_load && isnan(fload))
+        return cli_usage_error("the model's form '%s' uses the vapour load: give "
+                               "'--f-factor F' with the condition",
+                               m->form.name);
+    if (!m->form.uses_load && !isnan(fload))
+        return cli_usage_error("the model's form '%s' does not use the vapour load: leave "
+                               "out '--f-factor'",
+                               m->form.name);
+    return 0;
+}
+
+static int error_data(stagecal_error *err, const char *path, const char *col_id,
+                      const char *model_id)
+{
+    stagecal_error_clear(err);
+    err->code = STAGECAL_EDATA;
+    snprintf(err->text, sizeof err->text, "column file '%s' is for column '%s', the model for '%s'",
+             path, col_id, model_id);
+    return STAGECAL_EDATA;
+}
+
+/* The stated condition, with the equilibrium of column_path when given (same column id).
+ * A library status. */
+static int add_condition(stagecal_report_doc *doc, const stagecal_model *m, const char *column_path,
+                         double xd, double reflux, double fload, stagecal_error *err)
+{
+    stagecal_column col;
+    int have_col = 0, rc = STAGECAL_OK;
+    if (column_path && (rc = stagecal_column_load(column_path, &col, err)) == STAGECAL_OK) {
+        have_col = 1;
+        cli_column_warn(&col, column_path);
+        if (strcmp(col.id, m->column_id) != 0) /* bad data, reported like the rest */
+            rc = error_data(err, column_path, col.id, m->column_id);
+    }
+    if (rc == STAGECAL_OK)
+        rc = stagecal_report_doc_add_condition(doc, m, have_col ? col.system.vle : NULL, xd, reflux,
+                                               fload, err);
+    if (have_col)
+        stagecal_column_free(&col);
+    return rc;
+}
+
+static int print_result(const stagecal_report *rep, const char *model_path, const char *output,
+                        int json, int to_stdout)
+{
+    for (size_t i = 0; i < rep->n_warnings; i++)
+        cli_warn("%s", rep->warnings[i]);
+    if (json) {
+        json_t *w = json_array();
+        for (size_t i = 0; i < rep->n_warnings; i++)
+            json_array_append_new(w, json_string(rep->warnings[i]));
+        json_t *doc_json = json_pack(
+            "{s:s, s:i, s:s, s:s, s:s, s:I, s:o, s:s}", "format", "stagecal-report-result",
+            "version", 1, "status", "ok", "model", model_path, "report", output, "figures",
+            (json_int_t)rep->n_figures, "warnings", w, "caution", stagecal_caution_text());
+        return doc_json ? cli_json_print(doc_json) : CLI_EXIT_SOFTWARE;
+    }
+    if (!to_stdout)
+        printf("report written to %s\n", output);
+    return CLI_EXIT_OK;
+}
+
 int cmd_report(int argc, char **argv, cli_ctx *ctx)
 {
     const char *points_path = NULL, *output = NULL, *column_path = NULL;
@@ -120,40 +185,14 @@ int cmd_report(int argc, char **argv, cli_ctx *ctx)
         from_files = 1;
     }
     if (rc == STAGECAL_OK && !isnan(xd)) {
-        /* a load that the form does not take (or lacks) is the command line's fault */
-        if (m.form.uses_load && isnan(fload))
-            rc = cli_usage_error("the model's form '%s' uses the vapour load: give "
-                                 "'--f-factor F' with the condition",
-                                 m.form.name);
-        else if (!m.form.uses_load && !isnan(fload))
-            rc = cli_usage_error("the model's form '%s' does not use the vapour load: leave "
-                                 "out '--f-factor'",
-                                 m.form.name);
-        if (rc != STAGECAL_OK) {
+        if ((rc = load_usage(&m, fload)) != 0) {
             stagecal_report_doc_free(doc);
             stagecal_regress_data_free(&pts);
             stagecal_model_free(&m);
             free(out_owned);
             return rc;
         }
-        stagecal_column col;
-        int have_col = 0;
-        if (column_path && (rc = stagecal_column_load(column_path, &col, &err)) == STAGECAL_OK) {
-            have_col = 1;
-            cli_column_warn(&col, column_path);
-            if (strcmp(col.id, m.column_id) != 0) { /* bad data, reported below like the rest */
-                stagecal_error_clear(&err);
-                err.code = rc = STAGECAL_EDATA;
-                snprintf(err.text, sizeof err.text,
-                         "column file '%s' is for column '%s', the model for '%s'", column_path,
-                         col.id, m.column_id);
-            }
-        }
-        if (rc == STAGECAL_OK)
-            rc = stagecal_report_doc_add_condition(doc, &m, have_col ? col.system.vle : NULL, xd,
-                                                   reflux, fload, &err);
-        if (have_col)
-            stagecal_column_free(&col);
+        rc = add_condition(doc, &m, column_path, xd, reflux, fload, &err);
     }
     if (rc == STAGECAL_OK && to_stdout) {
         char *html = NULL;
@@ -175,23 +214,7 @@ int cmd_report(int argc, char **argv, cli_ctx *ctx)
         free(out_owned);
         return code;
     }
-    const stagecal_report *rep = stagecal_report_doc_content(doc);
-    for (size_t i = 0; i < rep->n_warnings; i++)
-        cli_warn("%s", rep->warnings[i]);
-    if (json) {
-        json_t *w = json_array();
-        for (size_t i = 0; i < rep->n_warnings; i++)
-            json_array_append_new(w, json_string(rep->warnings[i]));
-        json_t *doc_json = json_pack(
-            "{s:s, s:i, s:s, s:s, s:s, s:I, s:o, s:s}", "format", "stagecal-report-result",
-            "version", 1, "status", "ok", "model", model_path, "report", output, "figures",
-            (json_int_t)rep->n_figures, "warnings", w, "caution", stagecal_caution_text());
-        rc = doc_json ? cli_json_print(doc_json) : CLI_EXIT_SOFTWARE;
-    } else {
-        if (!to_stdout)
-            printf("report written to %s\n", output);
-        rc = CLI_EXIT_OK;
-    }
+    rc = print_result(stagecal_report_doc_content(doc), model_path, output, json, to_stdout);
     stagecal_report_doc_free(doc);
     stagecal_regress_data_free(&pts);
     stagecal_model_free(&m);
