@@ -34,7 +34,7 @@ one() { # model rows column peer
     echo "== $model, $rows rows"
     "$build/tests/bench_invert" "$model" "$rows" "$tmp/log.csv" | sed 's/^/bench_invert: /'
     rm -f "$tmp/sc.csv"
-    s=$(timed stagecal "$build/stagecal" invert --quiet --column "$column" --out "$tmp/sc.csv" \
+    s=$(timed stagecal "$build/stagecal" invert --quiet --column "$column" --output "$tmp/sc.csv" \
         "$tmp/log.csv")
     p=$(timed numpy "$py" "$peer" "$tmp/log.csv" "$tmp/np.csv")
     sed 's/^/peer: /' "$tmp/err"
