@@ -584,11 +584,13 @@ static int window_summary(const stagecal_runlog *log, const stagecal_runlog_resu
                           double *xd, double *xb, double *f, double *s, stagecal_evidence *e)
 {
     const stagecal_runlog_window *w = &res->windows[k];
-    size_t len = w->last - w->first + 1, nok = 0, nf = 0;
+    size_t len = w->last - w->first + 1, nok = 0, nf = 0, ncd = 0, ncb = 0;
     double fsum = 0;
     for (size_t j = 0; j < len; j++) {
         size_t i = w->first + j;
         int outlier = (res->flags[i] & STAGECAL_SAMPLE_OUTLIER) != 0;
+        ncd += log->xd_cens[i] != STAGECAL_CENSOR_NONE;
+        ncb += log->xb_cens[i] != STAGECAL_CENSOR_NONE;
         t[j] = log->t_s[i];
         /* a censored reading is not a value: left out of the window's mean until the
          * fit takes it as a censored observation (docs/runlog.md) */
@@ -609,6 +611,8 @@ static int window_summary(const stagecal_runlog *log, const stagecal_runlog_resu
     e->last = w->last;
     e->n_samples = len;
     e->n_ok = nok;
+    e->n_cens_xd = ncd;
+    e->n_cens_xb = ncb;
     e->total_reflux = w->total_reflux;
     e->r = w->total_reflux ? INFINITY : w->r_median;
     e->t_mid_s = 0.5 * (log->t_s[w->first] + log->t_s[w->last]);

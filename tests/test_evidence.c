@@ -118,7 +118,15 @@ static void evidence_pool_rho_rescales(void **state)
  * read the run-log window's own mean (a second definition of a window's stage count, now
  * gone). Tolerance: 4 of the window's standard
  * errors plus the xB noise's own bias, a loose 0.2 stages (common practice, no source). */
+static char *no_distillate_log_censored(size_t *len, int every);
 static char *no_distillate_log(size_t *len)
+{
+    return no_distillate_log_censored(len, 0);
+}
+
+/* The same log with every `every`-th xD written as 1, the physical bound (0: none): a
+ * censored reading "xD at or above 1" (docs/runlog.md). */
+static char *no_distillate_log_censored(size_t *len, int every)
 {
     const double xd = 0.95, q = (xd / (1 - xd)) / pow(2.5, 5.0), xb = q / (1 + q);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
@@ -126,9 +134,14 @@ static char *no_distillate_log(size_t *len)
     char *buf = NULL;
     FILE *out = open_memstream(&buf, len);
     fprintf(out, "time[min],W[kmol],xD[mol/mol],xB[mol/mol],R[-]\n");
-    for (int i = 0; i < 60; i++)
-        fprintf(out, "%d,%.6f,%.6f,%.6f,3\n", 10 * i, 10 + gsl_ran_gaussian(rng, 0.005),
-                xd + gsl_ran_gaussian(rng, test_col.u.xd), xb + gsl_ran_gaussian(rng, 0.001));
+    for (int i = 0; i < 60; i++) {
+        double w = 10 + gsl_ran_gaussian(rng, 0.005), d = xd + gsl_ran_gaussian(rng, test_col.u.xd);
+        double b = xb + gsl_ran_gaussian(rng, 0.001);
+        if (every > 0 && i % every == 0)
+            fprintf(out, "%d,%.6f,1,%.6f,3\n", 10 * i, w, b);
+        else
+            fprintf(out, "%d,%.6f,%.6f,%.6f,3\n", 10 * i, w, d, b);
+    }
     fclose(out);
     gsl_rng_free(rng);
     return buf;
@@ -267,6 +280,43 @@ static void evidence_smoother_stats_follow_a_curved_pot(void **state)
     gsl_rng_free(rng);
 }
 
+/* Censored readings (xD at the bound 1) stay in the window but out of its means: the
+ * window counts them, carries none, and its stage count still reads Fenske's 5 within the
+ * tolerance above (the censored rows only remove samples). The counts are what the rows
+ * say: every 4th of the 60 rows, i.e. those of the 60 inside the window. */
+static void evidence_counts_censored_readings(void **state)
+{
+    (void)state;
+    size_t len = 0;
+    char *buf = no_distillate_log_censored(&len, 4);
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    stagecal_runlog_result res;
+    stagecal_evidence_set set;
+    assert_int_equal(
+        stagecal_runlog_read_buffer(log, buf, len, "nd.csv", &test_col, NULL, NULL, NULL), 0);
+    free(buf);
+    assert_int_equal(stagecal_runlog_analyse(log, &test_col, NULL, &res, NULL), 0);
+    assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, NULL, &res, NULL), 0);
+    assert_true(res.nwindows >= 1);
+    assert_int_equal(stagecal_evidence_build(log, &res, &test_col, 1.0, NULL, &set, NULL),
+                     STAGECAL_OK);
+    const stagecal_evidence *e = stagecal_evidence_find(&set, 0);
+    assert_non_null(e);
+    size_t want = 0;
+    for (size_t i = e->first; i <= e->last; i++)
+        want += (log->line[i] - 2) % 4 == 0; /* data rows start on line 2 */
+    assert_true(want > 0);
+    assert_int_equal(e->n_cens_xd, want);
+    assert_int_equal(e->n_cens_xb, 0);
+    for (size_t j = 0; j < e->m; j++)
+        assert_true(e->s_xd[j] < 1); /* no censored reading carried */
+    assert_true(e->stages_ok);
+    assert_abs(e->stages, 5.0, 0.2, "stages at total reflux with censored xD (Fenske N = 5)");
+    stagecal_evidence_set_free(&set);
+    stagecal_runlog_result_free(&res);
+    stagecal_runlog_free(log);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -275,6 +325,7 @@ int main(void)
         cmocka_unit_test(evidence_pool_rho_rescales),
         cmocka_unit_test(evidence_no_distillate_window_reads_fenske),
         cmocka_unit_test(evidence_build_refusals),
+        cmocka_unit_test(evidence_counts_censored_readings),
         cmocka_unit_test(evidence_smoother_stats_follow_a_curved_pot),
     };
     return cmocka_run_group_tests(tests, setup, teardown);

@@ -46,6 +46,10 @@ typedef struct {
     size_t first, last; /* row range, inclusive */
     size_t n_samples;   /* rows in the window */
     size_t n_ok;        /* rows with an ok per-sample stage count */
+    size_t n_cens_xd;   /* rows whose xD reading is censored (a bound: "<v", ">v", or at the
+                           physical limit); left out of the means and the carried samples,
+                           so a window with many says its xD is known only from one side */
+    size_t n_cens_xb;   /* the same for xB */
     double n_eff;       /* effective sample size of the pot analyser series */
     int total_reflux;   /* 1: R = inf (or no distillate) throughout */
     double r;           /* median reflux ratio [-] (INFINITY at total reflux) */
@@ -68,9 +72,10 @@ typedef struct {
     const double *s_t;  /* m sample times [s], m compositions xD and xB of the window, */
     const double *s_xd; /* evenly thinned, outliers left out (storage owned by whoever */
     const double *s_xb; /* built the evidence) */
-    const unsigned char *s_cens; /* m censoring flags (STAGECAL_EVIDENCE_*), NULL when no
-                                    carried reading is censored; the run-log reader does not
-                                    mark censored cells yet, so the builder leaves it NULL */
+    const unsigned char *s_cens; /* m censoring flags (STAGECAL_EVIDENCE_*) for an estimator
+                                    that takes censored readings as censored observations
+                                    (a Tobit-type likelihood); NULL from the builder, which
+                                    carries no censored reading (see n_cens_xd) */
 } stagecal_evidence;
 
 /* ---- window statistics (evidence.c) -------------------------------------------------- */

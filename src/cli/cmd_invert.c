@@ -155,6 +155,8 @@ static json_t *summary_json(const stagecal_runlog *log, const stagecal_column *c
         int ok = e && e->stages_ok;
         json_object_set_new(o, "stages", ok ? json_real(e->stages) : json_null());
         json_object_set_new(o, "se_stages", ok ? json_real(e->se_stages) : json_null());
+        json_object_set_new(o, "censored_xd", json_integer(e ? (json_int_t)e->n_cens_xd : 0));
+        json_object_set_new(o, "censored_xb", json_integer(e ? (json_int_t)e->n_cens_xb : 0));
         json_array_append_new(wins, o);
     }
     json_object_set_new(doc, "windows", wins);
