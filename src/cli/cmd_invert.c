@@ -238,6 +238,14 @@ static int invert_rows(int argc, char **argv, int first, const char *out_path, l
             rc = cli_fail(&err);
     if (rc)
         goto done;
+    if (log->n == 0) { /* nothing to invert (as 'check' says): never an empty table, exit 0 */
+        for (size_t i = 0; i < f->n && i < 10; i++)
+            cli_error("%s", f->items[i].text);
+        if (f->n == 0)
+            cli_error("no data rows in the run log(s)");
+        rc = CLI_EXIT_DATA;
+        goto done;
+    }
     if (f->n_errors) {
         for (size_t i = 0; i < f->n && i < 10; i++)
             cli_warn("%s", f->items[i].text);
