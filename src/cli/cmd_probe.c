@@ -23,7 +23,7 @@ static const struct cli_usage usage = {
     "usage: stagecal probe MODEL.json --at R[:F][,R[:F]...] [--weights W[,W...]]\n"
     "                      [--reflux-range LO:HI] [--f-factor-range LO:HI] [--tests K]\n"
     "                      [--criterion i|d] [--sample-interval MIN] [--seed N]\n"
-    "                      [--chart FILE.png|svg|pdf] [--json] [--quiet]\n",
+    "                      [--compare R[:F]] [--chart FILE.png|svg|pdf] [--json] [--quiet]\n",
     "Where to run the next tests: K test conditions inside the ranges that shrink the\n"
     "95 % confidence band of stages at the conditions of interest most (I-optimal: the\n"
     "weighted average variance of the fitted stages there; D-optimal: the determinant of\n"
@@ -36,6 +36,15 @@ static const struct cli_usage usage = {
 static const char *const criterion_names[] = {"i", "d", NULL};
 
 #define MAX_AT 64
+
+/* --compare: the same number of windows at one stated condition (e.g. the most common
+ * production condition), evaluated like the proposal. */
+struct compare {
+    int on;
+    double r, f;
+    stagecal_design_result res;
+    stagecal_design_at at[MAX_AT];
+};
 
 /* Parses "A" or "A:B" (B NAN when absent; with need_b both are required). */
 static int parse_pair(const char *opt, const char *text, int need_b, const char *what, double *a,
@@ -95,7 +104,24 @@ static int extrapolated(const stagecal_model *m, double r, double f)
     return stagecal_model_eval(m, r, f, 0, &pt, NULL) == STAGECAL_OK && pt.extrapolated;
 }
 
-static json_t *result_json(const char *path, const stagecal_model *m,
+static json_t *compare_json(const stagecal_model *m, const struct compare *c, size_t n_at)
+{
+    if (!c->on)
+        return json_null();
+    json_t *ats = json_array();
+    for (size_t j = 0; j < n_at; j++)
+        json_array_append_new(
+            ats, json_pack("{s:o, s:o, s:o}", "reflux", cli_json_reflux(c->at[j].r), "f_factor",
+                           m->form.uses_load ? cli_json_real(c->at[j].f_load) : json_null(),
+                           "half_width_after",
+                           real_or_null(c->at[j].half_after, c->at[j].determined_after)));
+    return json_pack("{s:o, s:o, s:i, s:o, s:o, s:o}", "reflux", cli_json_reflux(c->r), "f_factor",
+                     m->form.uses_load ? cli_json_real(c->f) : json_null(), "tests", (int)c->res.k,
+                     "at", ats, "criterion_after", cli_json_real(c->res.crit_after),
+                     "log_det_ratio", cli_json_real(c->res.log_det_ratio));
+}
+
+static json_t *result_json(const char *path, const stagecal_model *m, const struct compare *cmp,
                            const stagecal_design_params *par, const stagecal_design_result *res,
                            const stagecal_design_at *at, size_t n_at)
 {
@@ -162,6 +188,7 @@ static json_t *result_json(const char *path, const stagecal_model *m,
         json_pack("{s:f, s:i, s:i, s:s}", "sample_interval_s", par->sample_interval_s,
                   "settle_samples", (int)res->settle_samples, "window_samples",
                   (int)res->window_samples, "rule", "(settle + window samples) x sample interval"));
+    json_object_set_new(doc, "comparison", compare_json(m, cmp, n_at));
     json_object_set_new(doc, "units",
                         json_pack("{s:s, s:s, s:s}", "reflux", "-", "f_factor", "Pa^0.5",
                                   "half_width", "stages (pot included)"));
@@ -177,8 +204,28 @@ static void fmt_r(char *buf, size_t cap, double r)
         snprintf(buf, cap, "%.3g", r);
 }
 
-static void print_text(const char *path, const stagecal_model *m, const stagecal_design_params *par,
-                       const stagecal_design_result *res, const stagecal_design_at *at, size_t n_at)
+static void print_compare(const stagecal_model *m, const struct compare *c, size_t n_at)
+{
+    char a[32];
+    fmt_r(a, sizeof a, c->r);
+    printf("\nfor comparison, %zu windows at R = %s", c->res.k, a);
+    if (m->form.uses_load)
+        printf(", F = %.3g", c->f);
+    printf(" instead:");
+    for (size_t j = 0; j < n_at; j++) {
+        if (c->at[j].determined_after)
+            printf("%s +/- %.3f", j ? "," : "", c->at[j].half_after);
+        else
+            printf("%s not determined", j ? "," : "");
+    }
+    if (isfinite(c->res.log_det_ratio))
+        printf("; determinant x %.3g", exp(c->res.log_det_ratio));
+    printf("\n");
+}
+
+static void print_text(const char *path, const stagecal_model *m, const struct compare *cmp,
+                       const stagecal_design_params *par, const stagecal_design_result *res,
+                       const stagecal_design_at *at, size_t n_at)
 {
     int load = m->form.uses_load, pct = (int)lround(m->level * 100);
     char a[32], b[32];
@@ -220,6 +267,8 @@ static void print_text(const char *path, const stagecal_model *m, const stagecal
         printf("  R = %s%s: %.3f stages, %s -> %s (weight %.3g)%s\n", a, fb, x->stages, hb, ha,
                x->weight, extrapolated(m, x->r, x->f_load) ? " [EXTRAPOLATED]" : "");
     }
+    if (cmp->on)
+        print_compare(m, cmp, n_at);
     if (isfinite(res->log_det_ratio))
         printf("\ninformation: determinant x %.3g with the tests", exp(res->log_det_ratio));
     else
@@ -330,6 +379,8 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
     double at_r[MAX_AT], at_f[MAX_AT], wv[MAX_AT], wdummy[MAX_AT], minutes = 10;
     size_t n_at = 0, n_w = 0;
     const char *at_text = NULL, *w_text = NULL, *r_text = NULL, *f_text = NULL, *chart = NULL;
+    const char *c_text = NULL;
+    struct compare cmp;
     long k = 4, seed = 1;
     int criterion = 0, json, first, rc;
     const struct cli_option opts[] = {
@@ -351,6 +402,9 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
                    "minutes between logged samples, for the durations (10)", 0, INFINITY,
                    CLI_D_LO_OPEN, "minutes > 0"),
         OPT_SEED(&seed),
+        OPT_STRING(0, "compare", &c_text, "R[:F]",
+                   "also the band after as many windows at this condition (e.g. the\n"
+                   "most common production condition), for comparison"),
         OPT_STRING(0, "chart", &chart, "FILE",
                    "also draw stages against R with the band before and after\n"
                    "the tests (PNG, SVG or PDF by extension)"),
@@ -360,7 +414,10 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
         return rc;
     json = ctx->json;
     par.criterion = criterion == 1 ? STAGECAL_DESIGN_D : STAGECAL_DESIGN_I;
-    if ((at_text && parse_list("at", at_text, "R or R:F, R >= 0 or 'inf'", at_r, at_f, &n_at)) ||
+    memset(&cmp, 0, sizeof cmp);
+    cmp.on = c_text != NULL;
+    if ((at_text && parse_list("at", at_text, "R or R:F, R > 0 or 'inf'", at_r, at_f, &n_at)) ||
+        (c_text && parse_pair("compare", c_text, 0, "R or R:F, R > 0 or 'inf'", &cmp.r, &cmp.f)) ||
         (w_text && parse_list("weights", w_text, "weights > 0", wv, wdummy, &n_w)) ||
         (r_text && parse_pair("reflux-range", r_text, 1,
                               "LO:HI, reflux ratios > 0, HI may be 'inf'", &par.r_lo, &par.r_hi)) ||
@@ -393,6 +450,10 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
         pts[j].f_load = at_f[j];
         pts[j].weight = n_w ? wv[j] : 1.0;
     }
+    if (cmp.on && (!(cmp.r > 0) || (!isnan(cmp.f) && !(cmp.f >= 0 && isfinite(cmp.f)))))
+        return cli_usage_error("option '--compare': R = %g, F = %g is invalid (expected R > 0 or "
+                               "'inf' and a finite F-factor >= 0)",
+                               cmp.r, cmp.f);
     par.tests = (size_t)k;
     par.seed = (unsigned long)seed;
     par.sample_interval_s = minutes * 60;
@@ -412,10 +473,10 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
         goto done;
     }
     if (m.form.uses_load)
-        for (size_t j = 0; j < n_at; j++)
-            if (isnan(pts[j].f_load)) {
+        for (size_t j = 0; j <= n_at; j++)
+            if (j < n_at ? isnan(pts[j].f_load) : cmp.on && isnan(cmp.f)) {
                 rc = cli_usage_error("%s: form '%s' uses the vapour load: give every '--at' "
-                                     "condition as R:F (F-factor in Pa^0.5)",
+                                     "(and '--compare') condition as R:F (F-factor in Pa^0.5)",
                                      path, m.form.name);
                 goto done;
             }
@@ -429,6 +490,16 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
         rc = cli_fail(&err);
         goto done;
     }
+    if (cmp.on) {
+        stagecal_design_test same[STAGECAL_DESIGN_MAXK];
+        for (size_t t = 0; t < par.tests; t++)
+            same[t] = (stagecal_design_test){cmp.r, m.form.uses_load ? cmp.f : NAN, NAN};
+        if ((rc = stagecal_design_evaluate(&pb, same, par.tests, pts, n_at, par.criterion, &cmp.res,
+                                           cmp.at, &err))) {
+            rc = cli_fail(&err);
+            goto done;
+        }
+    }
     for (size_t j = 0; j < n_at; j++)
         if (extrapolated(&m, pts[j].r, pts[j].f_load))
             cli_warn("%s: condition of interest R = %g lies outside the fitted envelope "
@@ -437,9 +508,9 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
     if (chart && (rc = write_chart(chart, &m, &pb, &res, out, n_at)))
         goto done;
     if (json)
-        rc = cli_json_print(result_json(path, &m, &par, &res, out, n_at));
+        rc = cli_json_print(result_json(path, &m, &cmp, &par, &res, out, n_at));
     else {
-        print_text(path, &m, &par, &res, out, n_at);
+        print_text(path, &m, &cmp, &par, &res, out, n_at);
         rc = CLI_EXIT_OK;
     }
 done:

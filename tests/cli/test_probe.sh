@@ -66,6 +66,20 @@ PY
 K=4 RLO=1.5 RHI=inf check_json $P "$M" --at 2,inf --reflux-range 1.5:inf --json
 K=2 RLO=1 RHI=6 check_json $P "$M" --at 2,2.5 --reflux-range 1:6 --tests 2 --criterion d --json
 K=3 RLO=1.5 RHI=5 check_json $P "$ML" --at 2:1.3,2.5:1.2 --weights 2,1 --reflux-range 1.5:5 --f-factor-range 0.9:1.5 --tests 3 --json
+# --compare: the band after as many windows at one condition, in the JSON's comparison.
+"$BIN" probe "$M" --at 2,2.5 --compare 4.5 --json >"$tmp/cmp.json" 2>/dev/null
+if $py -c "
+import json, sys
+d = json.load(open(sys.argv[1]))
+c = d['comparison']
+assert c['reflux'] == 4.5 and c['tests'] == len(d['tests'])
+# the I-criterion is the weighted mean variance: the proposal is no worse on it
+mean = lambda xs: sum(x * x for x in xs) / len(xs)
+assert mean([b['half_width_after'] for b in d['at']]) <= mean([a['half_width_after'] for a in c['at']])
+for a, b in zip(c['at'], d['at']):
+    assert a['half_width_after'] <= b['half_width_before'], (a, b)
+" "$tmp/cmp.json"; then echo "ok: --compare"; else echo "FAIL: --compare"; fails=$((fails + 1)); fi
+expect_exit 2 "option '--compare'" -- $P "$M" --at 2 --compare -1
 # The chart: an SVG document, and never over the model file it reads.
 expect_exit 0 "" -- $P "$M" --at 2,2.5 --chart "$tmp/probe.svg" --quiet
 grep -q "<svg" "$tmp/probe.svg" || { echo "FAIL: no SVG chart"; fails=$((fails + 1)); }
