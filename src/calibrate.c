@@ -237,6 +237,7 @@ static int run_fits(stagecal_calibration *cal, const stagecal_calibrate_params *
     rp.bootstrap = par->bootstrap;
     rp.seed = par->seed;
     rp.robust = par->robust;
+    rp.allow_undetermined = par->allow_undetermined;
     if ((rc = choose_form(cal, par, &d, &rp, &form, err))) {
         free(arr);
         return rc;
@@ -310,6 +311,14 @@ static int add_warnings(stagecal_calibration *cal, const stagecal_calibrate_para
                    "stage-space fit",
                    cal->comp_message)))
         return rc;
+    const stagecal_regress_result *used =
+        cal->used == STAGECAL_MODEL_STAGE_SPACE ? &cal->stage_fit : &cal->comp_fit;
+    if (used->undetermined) {
+        char why[STAGECAL_ERROR_TEXT];
+        stagecal_regress_ident_text(used, why, sizeof why);
+        if ((rc = warn(cal, err, "NOT DETERMINED: %s", why)))
+            return rc;
+    }
     for (size_t r = 0; r < cal->res.nruns; r++) {
         const stagecal_runlog_closure *c = &cal->res.closures[r];
         if (c->gross && (rc = warn(cal, err,

@@ -383,6 +383,11 @@ int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta,
         res->ci_low[i] = res->theta[i] - res->tquant * res->se[i];
         res->ci_high[i] = res->theta[i] + res->tquant * res->se[i];
     }
+    if (stagecal_regress_identify(res) > 0 && !prm.allow_undetermined) {
+        char why[STAGECAL_ERROR_TEXT];
+        stagecal_regress_ident_text(res, why, sizeof why);
+        rc = error_set(err, STAGECAL_EDATA, "regress: %s", why);
+    }
 done:
     gsl_vector_free(rv);
     gsl_vector_free(work);

@@ -68,6 +68,9 @@ typedef struct {
     size_t bootstrap;                  /* stage-space bootstrap resamples (0) */
     unsigned long seed;                /* bootstrap seed (1) */
     stagecal_robust_kind robust;       /* stage-space robust reweighting (NONE) */
+    int allow_undetermined;            /* 1: a fit whose evidence does not determine a
+                                          parameter is kept, the model carries a warning
+                                          that names it (default 0: refused, EDATA) */
     double hetp_r;                     /* reference reflux ratio for HETP (NAN: largest fitted) */
     double hetp_f;                     /* reference F for HETP (NAN: mean fitted) */
     stagecal_runlog_params read;

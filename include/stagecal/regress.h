@@ -70,6 +70,9 @@ typedef struct {
     size_t stall_iter;           /* stop when RSS falls by < 4ε relative this many times; 5 */
     double rank_tol;             /* relative pivot below which JᵀWJ counts as singular (QR
                                     with pivoting on unit-norm columns); 1e-10 */
+    int allow_undetermined;      /* 0 (default): a fit whose evidence does not determine a
+                                    parameter (stagecal_regress_identify) fails with EDATA;
+                                    1: it succeeds with result.undetermined set */
     size_t polish_steps;         /* Gauss–Newton polish steps after the trust region; 8 */
     double polish_tol;           /* stop polishing when |δθ_i| ≤ polish_tol·|θ_i|; 1e-15 */
     stagecal_robust_kind robust; /* robust reweighting; NONE */
@@ -134,21 +137,24 @@ typedef struct {
     double cov[STAGECAL_FORM_MAXP * STAGECAL_FORM_MAXP]; /* row-major p×p */
     double tquant;                                       /* t(1 − (1 − level)/2, dof) */
     double level;
-    int weighted;     /* 1 when the points carried sigma */
-    int cov_scaled;   /* 1 when C includes s² (see params.scale_cov) */
-    double rss;       /* Σ w_i·r_i² (w_i = 1 unweighted; includes robust weights) */
-    double sigma;     /* residual σ = sqrt(rss/dof) (a ratio to sigma_i when weighted) */
-    double sigma_obs; /* σ of one typical new observation in stages: σ (unweighted),
-                         σ·rms(sigma_i) (weighted, scaled), rms(sigma_i) (unscaled) */
-    double sigma_dof; /* degrees of freedom behind sigma_obs: dof, except for the
-                         composition-space fit (windows with stage counts − p; 0 when
-                         sigma_obs could not be estimated) */
-    double r2;        /* 1 − RSS_w/TSS_w, TSS about the weighted mean */
-    double loglik;    /* Gaussian log-likelihood at the optimum */
-    size_t k_ic;      /* parameters counted by AICc/BIC (p, + 1 when σ is estimated) */
-    int ic_defined;   /* 1 when n > k_ic + 1 so that AICc is defined */
-    double aicc;      /* AIC + 2k(k+1)/(n−k−1); 0 when !ic_defined */
-    double bic;       /* −2 lnL + k ln n */
+    int weighted;          /* 1 when the points carried sigma */
+    int cov_scaled;        /* 1 when C includes s² (see params.scale_cov) */
+    double rss;            /* Σ w_i·r_i² (w_i = 1 unweighted; includes robust weights) */
+    double sigma;          /* residual σ = sqrt(rss/dof) (a ratio to sigma_i when weighted) */
+    double sigma_obs;      /* σ of one typical new observation in stages: σ (unweighted),
+                              σ·rms(sigma_i) (weighted, scaled), rms(sigma_i) (unscaled) */
+    double sigma_dof;      /* degrees of freedom behind sigma_obs: dof, except for the
+                              composition-space fit (windows with stage counts − p; 0 when
+                              sigma_obs could not be estimated) */
+    double r2;             /* 1 − RSS_w/TSS_w, TSS about the weighted mean */
+    double loglik;         /* Gaussian log-likelihood at the optimum */
+    size_t k_ic;           /* parameters counted by AICc/BIC (p, + 1 when σ is estimated) */
+    int ic_defined;        /* 1 when n > k_ic + 1 so that AICc is defined */
+    double aicc;           /* AIC + 2k(k+1)/(n−k−1); 0 when !ic_defined */
+    double bic;            /* −2 lnL + k ln n */
+    unsigned undetermined; /* bit j set: parameter j is not determined by the evidence
+                              (stagecal_regress_identify; only with allow_undetermined) */
+    double condition;      /* condition number of the information matrix in relative units */
     stagecal_stop stop;
     size_t iterations; /* trust-region iterations of the best start */
     size_t starts;     /* starts tried */
@@ -242,6 +248,22 @@ int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta,
 
 /* The envelope of the data into result: finite R range, has_total_reflux, F range
  * (f_load NULL: 0, 0). */
+/* ---- identifiability (regress_ident.c) ----------------------------------------------- */
+
+/* Which parameters the evidence determines, from the fitted covariance C: in relative
+ * units S = D⁻¹CD⁻¹ with D_j = max(|θ_j|, 1), GSL's SVD of S gives the condition number
+ * of the information matrix (largest/smallest singular value of S) and parameter j is
+ * not determined when its confidence interval's half-width t·se_j exceeds
+ * STAGECAL_IDENT_MAX_REL·D_j (the evidence leaves it anywhere over a range a hundred
+ * times its own size) or se_j is not finite. Sets res->undetermined and res->condition;
+ * returns the number of undetermined parameters. */
+#define STAGECAL_IDENT_MAX_REL 100.0
+int stagecal_regress_identify(stagecal_regress_result *res);
+/* "parameter 'b' of form 'saturating' is not determined by the evidence (95 % interval
+ * ±2.5e+09, 3.8e+08 times its size; condition number 1e+21); <what would determine it>"
+ * for the first undetermined parameter. */
+void stagecal_regress_ident_text(const stagecal_regress_result *res, char *buf, size_t len);
+
 void stagecal_regress_envelope(const double *r, const double *f_load, size_t n,
                                stagecal_regress_result *result);
 

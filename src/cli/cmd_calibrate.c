@@ -41,11 +41,15 @@ static void show_progress(void *ctx, const char *stage, double done)
 static json_t *params_json(const stagecal_regress_result *f)
 {
     json_t *arr = json_array();
-    for (size_t i = 0; i < f->p; i++)
+    for (size_t i = 0; i < f->p; i++) {
+        int und = (f->undetermined >> i) & 1u; /* not determined: no numbers */
         json_array_append_new(
-            arr, json_pack("{s:s,s:o,s:o,s:o,s:o}", "name", f->form.param_names[i], "value",
-                           cli_json_real(f->theta[i]), "se", cli_json_real(f->se[i]), "ci_low",
-                           cli_json_real(f->ci_low[i]), "ci_high", cli_json_real(f->ci_high[i])));
+            arr, json_pack("{s:s,s:o,s:o,s:o,s:o,s:b}", "name", f->form.param_names[i], "value",
+                           und ? json_null() : cli_json_real(f->theta[i]), "se",
+                           und ? json_null() : cli_json_real(f->se[i]), "ci_low",
+                           und ? json_null() : cli_json_real(f->ci_low[i]), "ci_high",
+                           und ? json_null() : cli_json_real(f->ci_high[i]), "determined", !und));
+    }
     return arr;
 }
 
@@ -72,8 +76,11 @@ static void print_fit(const char *title, const stagecal_regress_result *f)
     printf("  %-12s %14s %12s   %.0f%% confidence interval\n", "parameter", "value", "std. error",
            100 * f->level);
     for (size_t i = 0; i < f->p; i++)
-        printf("  %-12s %14.6g %12.4g   [%.6g, %.6g]\n", f->form.param_names[i], f->theta[i],
-               f->se[i], f->ci_low[i], f->ci_high[i]);
+        if ((f->undetermined >> i) & 1u)
+            printf("  %-12s %14s\n", f->form.param_names[i], "not determined");
+        else
+            printf("  %-12s %14.6g %12.4g   [%.6g, %.6g]\n", f->form.param_names[i], f->theta[i],
+                   f->se[i], f->ci_low[i], f->ci_high[i]);
     printf("  residual sigma %.4g stages, %g degrees of freedom, %zu windows\n",
            f->sigma_obs > 0 ? f->sigma_obs : f->sigma, f->dof, f->n);
 }
@@ -454,6 +461,10 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
                    "provenance, warnings, caution)"),
         OPT_ALIAS("report", "report-out"),
         OPT_FLAG(0, "dry-run", &rq.dry, "fit and summarise, write no model file"),
+        OPT_FLAG(0, "allow-undetermined", &par.allow_undetermined,
+                 "keep a fit whose evidence does not determine a parameter (the model\n"
+                 "file carries a NOT DETERMINED warning); without it such a fit is\n"
+                 "refused (exit 65) with what would determine it"),
         OPT_END_COMMON(ctx),
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))

@@ -89,10 +89,14 @@ static int print_json(const char *path, const stagecal_regress_result *res,
     size_t p = res->p;
     json_t *params = json_array(), *cov = json_array();
     for (size_t i = 0; i < p; i++) {
+        /* a parameter the evidence does not determine has no estimate to print */
+        int und = (res->undetermined >> i) & 1u;
         json_t *o =
-            json_pack("{s:s, s:o, s:o, s:o, s:o}", "name", res->form.param_names[i], "value",
-                      cli_json_real(res->theta[i]), "se", cli_json_real(res->se[i]), "ci_low",
-                      cli_json_real(res->ci_low[i]), "ci_high", cli_json_real(res->ci_high[i]));
+            json_pack("{s:s, s:o, s:o, s:o, s:o, s:b}", "name", res->form.param_names[i], "value",
+                      und ? json_null() : cli_json_real(res->theta[i]), "se",
+                      und ? json_null() : cli_json_real(res->se[i]), "ci_low",
+                      und ? json_null() : cli_json_real(res->ci_low[i]), "ci_high",
+                      und ? json_null() : cli_json_real(res->ci_high[i]), "determined", !und);
         if (res->boot_ok > 0) {
             json_object_set_new(o, "boot_low", cli_json_real(res->boot_low[i]));
             json_object_set_new(o, "boot_high", cli_json_real(res->boot_high[i]));
@@ -194,8 +198,16 @@ static void print_text(const char *path, const stagecal_regress_result *res,
     printf("  %-10s %16s %14s   %2.0f%% confidence interval\n", "parameter", "value", "SE",
            100 * res->level);
     for (size_t i = 0; i < res->p; i++)
-        printf("  %-10s %16.10g %14.6g   [%.8g, %.8g]\n", res->form.param_names[i], res->theta[i],
-               res->se[i], res->ci_low[i], res->ci_high[i]);
+        if ((res->undetermined >> i) & 1u)
+            printf("  %-10s %16s\n", res->form.param_names[i], "not determined");
+        else
+            printf("  %-10s %16.10g %14.6g   [%.8g, %.8g]\n", res->form.param_names[i],
+                   res->theta[i], res->se[i], res->ci_low[i], res->ci_high[i]);
+    if (res->undetermined) {
+        char why[STAGECAL_ERROR_TEXT];
+        stagecal_regress_ident_text(res, why, sizeof why);
+        printf("  (%s)\n", why);
+    }
     if (res->boot_ok > 0) {
         printf("\n  bootstrap (%s resampling, B = %zu, %zu fitted, seed %lu), percentile "
                "intervals:\n",
@@ -298,6 +310,10 @@ int cmd_regress(int argc, char **argv, cli_ctx *ctx)
                  "take sigma as absolute: covariance (J'WJ)^-1, not scaled by s^2"),
         OPT_LONG("band-points", &band, "N", "points of the band grid over the fitted R range (25)",
                  0, 10000),
+        OPT_FLAG(0, "allow-undetermined", &prm.allow_undetermined,
+                 "report a fit whose evidence does not determine a parameter (that\n"
+                 "parameter 'not determined'); without it such a fit is refused (exit 65)\n"
+                 "with what would determine it"),
         OPT_END_COMMON(ctx),
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
