@@ -9,8 +9,12 @@
  * (gsl_stats_quantile_from_sorted_data). The RNG is GSL's mt19937 with the caller's
  * seed, so a band is reproducible.
  *
- * The residual σ of the model (window-to-window scatter) is not sampled: the band is
- * on the batch the mean law predicts.
+ * The draws are multivariate t at the model's dof ν (a normal draw scaled by
+ * √(ν/χ²_ν)): with few windows the fit's intervals use t quantiles, and a band from
+ * normal draws would be narrower than they are (at ν = 2 the 97.5 % quantile is 4.30,
+ * not 1.96). The run-to-run scatter σ of the model (windows about the law) is sampled on
+ * request (a shift of the batch's stage count by the same t draw): then the band is a
+ * prediction band for one batch, otherwise a confidence band on the mean law.
  */
 #include "stagecal/batch.h"
 
@@ -69,12 +73,39 @@ static void interval(double *v, size_t n, double level, double nominal,
     out->high = gsl_stats_quantile_from_sorted_data(v, 1, n, (1 + level) / 2);
 }
 
+/* The model's law shifted by a draw's run-to-run offset. */
+struct shifted_law {
+    stagecal_batch_model_law law;
+    double delta;
+};
+
+static int shifted_stages(void *data, double r, double *stages, unsigned *outside,
+                          stagecal_error *err)
+{
+    struct shifted_law *s = data;
+    int rc = stagecal_batch_model_stages(&s->law, r, stages, outside, err);
+    if (rc == STAGECAL_OK)
+        *stages = fmax(*stages + s->delta, 1.0);
+    return rc;
+}
+
 int stagecal_batch_band_sample(const stagecal_batch_problem *pb, const stagecal_vle *vle,
                                const stagecal_model *m, double f_load,
                                const stagecal_batch_params *params,
                                const stagecal_batch_result *nominal, size_t n_samples,
                                unsigned long seed, double level, stagecal_batch_band *band,
                                stagecal_error *err)
+{
+    return stagecal_batch_band_sample_scatter(pb, vle, m, f_load, params, nominal, n_samples, seed,
+                                              level, 0, band, err);
+}
+
+int stagecal_batch_band_sample_scatter(const stagecal_batch_problem *pb, const stagecal_vle *vle,
+                                       const stagecal_model *m, double f_load,
+                                       const stagecal_batch_params *params,
+                                       const stagecal_batch_result *nominal, size_t n_samples,
+                                       unsigned long seed, double level, int run_scatter,
+                                       stagecal_batch_band *band, stagecal_error *err)
 {
     size_t p = m->form.p, nc = pb->n_cuts;
     double s[STAGECAL_FORM_MAXP * STAGECAL_FORM_MAXP], theta[STAGECAL_FORM_MAXP];
@@ -103,9 +134,12 @@ int stagecal_batch_band_sample(const stagecal_batch_problem *pb, const stagecal_
     band->n_samples = n_samples;
     band->seed = seed;
     band->n_cuts = nc;
+    double nu = m->dof > 0 && isfinite(m->dof) ? m->dof : INFINITY;
+    band->dof = nu;
+    band->run_scatter = run_scatter;
 
-    stagecal_batch_model_law law = {m, theta, f_load};
-    stagecal_batch_column col = {vle, stagecal_batch_model_stages, &law, NULL, NULL};
+    struct shifted_law law = {{m, theta, f_load}, 0.0};
+    stagecal_batch_column col = {vle, shifted_stages, &law, NULL, NULL};
     stagecal_batch_result r;
     stagecal_batch_result_init(&r);
     size_t ok = 0;
@@ -113,11 +147,14 @@ int stagecal_batch_band_sample(const stagecal_batch_problem *pb, const stagecal_
         double z[STAGECAL_FORM_MAXP];
         for (size_t i = 0; i < p; i++)
             z[i] = gsl_ran_ugaussian(rng);
+        double eps = gsl_ran_ugaussian(rng);
+        double w = isinf(nu) ? 1.0 : sqrt(nu / gsl_ran_chisq(rng, nu)); /* t = z·w */
         for (size_t i = 0; i < p; i++) {
             theta[i] = m->theta[i];
             for (size_t j = 0; j < p; j++)
-                theta[i] += s[i * p + j] * z[j];
+                theta[i] += s[i * p + j] * z[j] * w;
         }
+        law.delta = run_scatter ? m->sigma * eps * w : 0.0;
         stagecal_error e;
         if (stagecal_batch_run(pb, &col, params, &r, &e) != STAGECAL_OK) {
             band->n_failed++;

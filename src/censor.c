@@ -105,8 +105,8 @@ static double brent_min(double (*f)(double, void *), void *p, double a, double x
             if (gsl_min_fminimizer_iterate(s) != GSL_SUCCESS)
                 break;
             x = gsl_min_fminimizer_x_minimum(s);
-            if (gsl_min_test_interval(gsl_min_fminimizer_x_lower(s),
-                                      gsl_min_fminimizer_x_upper(s), tol, 0) == GSL_SUCCESS)
+            if (gsl_min_test_interval(gsl_min_fminimizer_x_lower(s), gsl_min_fminimizer_x_upper(s),
+                                      tol, 0) == GSL_SUCCESS)
                 break;
         }
     }

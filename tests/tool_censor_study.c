@@ -20,7 +20,8 @@
  * coverage, and the median of z = (N̂ − 26)/se with se = (high − low)/(2·1.96) where both
  * ends exist.
  *
- *   tool_censor_study [datasets per regime (1000)] [seed (1)]
+ *   tool_censor_study [datasets per regime (1000)] [seed (1)] [regime 0-2 (all)]
+ * With a regime given, the running figures are printed every 250 data sets.
  */
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_randist.h>
@@ -45,10 +46,33 @@ enum { CLIP_FS, CLIP_1, PPM, NREG };
 static const char *const reg_name[NREG] = {"clip-fs (>0.9999)", "clip-1 (1.00000)",
                                            "ppm (5 % rel.)"};
 
+/* One table row: the running figures of a regime (medians of copies: the arrays keep
+ * filling). */
+static void report(int reg, long ok, long holds, long open_hi, long both, long covers,
+                   const double *z, long nz, const double *lows, long nlow, long failed)
+{
+    double *zs = malloc((size_t)(nz + 1) * sizeof *zs),
+           *ls = malloc((size_t)(nlow + 1) * sizeof *ls);
+    memcpy(zs, z, (size_t)nz * sizeof *zs);
+    memcpy(ls, lows, (size_t)nlow * sizeof *ls);
+    gsl_sort(zs, 1, (size_t)nz);
+    gsl_sort(ls, 1, (size_t)nlow);
+    printf("%-20s %5ld  %6.3f  %9.3f  %9.3f  %6.3f  %8.3f  %10.2f%s\n", reg_name[reg], ok,
+           (double)holds / ok, (double)open_hi / ok, (double)both / ok,
+           both ? (double)covers / both : NAN,
+           nz ? gsl_stats_median_from_sorted_data(zs, 1, (size_t)nz) : NAN,
+           nlow ? gsl_stats_median_from_sorted_data(ls, 1, (size_t)nlow) : NAN,
+           failed ? " (some fits failed)" : "");
+    fflush(stdout);
+    free(zs);
+    free(ls);
+}
+
 int main(int argc, char **argv)
 {
     long nsets = argc > 1 ? atol(argv[1]) : 1000;
     unsigned long seed = argc > 2 ? strtoul(argv[2], NULL, 10) : 1;
+    int only = argc > 3 ? atoi(argv[3]) : -1;
     if (nsets < 1)
         return 2;
     gsl_set_error_handler_off();
@@ -69,6 +93,8 @@ int main(int argc, char **argv)
     printf("regime               sets  low<=N  open-high  both-ends  covers  median z  "
            "median low\n");
     for (int reg = 0; reg < NREG; reg++) {
+        if (only >= 0 && reg != only)
+            continue;
         if (reg == PPM) {
             col.u.xd = 1e-9; /* floor: 0.001 ppm */
             col.u.xd_heavy_rel = 0.05;
@@ -137,19 +163,12 @@ int main(int argc, char **argv)
             }
             if (isatty(2) && s % 50 == 0)
                 fprintf(stderr, "\r%s %ld/%ld", reg_name[reg], s, nsets);
+            if (only >= 0 && (s + 1) % 250 == 0 && s + 1 < nsets)
+                report(reg, s + 1 - failed, holds, open_hi, both, covers, z, nz, lows, nlow, 0);
         }
         if (isatty(2))
             fprintf(stderr, "\r%40s\r", "");
-        gsl_sort(z, 1, (size_t)nz);
-        gsl_sort(lows, 1, (size_t)nlow);
-        long ok = nsets - failed;
-        printf("%-20s %5ld  %6.3f  %9.3f  %9.3f  %6.3f  %8.3f  %10.2f%s\n", reg_name[reg], ok,
-               (double)holds / ok, (double)open_hi / ok, (double)both / ok,
-               both ? (double)covers / both : NAN,
-               nz ? gsl_stats_median_from_sorted_data(z, 1, (size_t)nz) : NAN,
-               nlow ? gsl_stats_median_from_sorted_data(lows, 1, (size_t)nlow) : NAN,
-               failed ? " (some fits failed)" : "");
-        fflush(stdout);
+        report(reg, nsets - failed, holds, open_hi, both, covers, z, nz, lows, nlow, failed);
         free(lows);
     }
     free(z);

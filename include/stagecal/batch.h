@@ -290,25 +290,42 @@ typedef struct {
     size_t n_ok;        /* draws whose batch ran to the same cuts */
     size_t n_failed;    /* draws that failed (law < 1 everywhere, solve failure) */
     unsigned long seed; /* GSL mt19937 seed */
+    double dof;         /* degrees of freedom of the t draws (the model's dof; INFINITY:
+                           normal draws) */
+    int run_scatter;    /* 1: each draw also carries the run-to-run scatter of the stage
+                           count (the model's σ): a prediction band for one batch; 0: a
+                           confidence band on the mean law */
     size_t n_cuts;
     stagecal_batch_cut_band cuts[STAGECAL_BATCH_MAXCUTS];
     stagecal_batch_interval t_end_s; /* batch time [s] */
     stagecal_batch_interval energy_j;
 } stagecal_batch_band;
 
-/* Propagates the model's parameter covariance: n_samples draws θ ~ N(θ̂, C) (C's
- * symmetric square root by eigen-decomposition, negative eigenvalues from rounding
- * set to 0; GSL mt19937 seeded with seed), one batch per draw with
- * stagecal_batch_model_stages, percentiles at level. nominal is the batch at θ̂
- * (pass it, already run, as `nominal`). The residual scatter σ of the model is not
- * included: the band is on the mean law. EINVAL (n_samples < 2, level outside (0, 1)),
- * ENOMEM, ENOCONV when fewer than half the draws succeed. */
+/* Propagates the model's parameter covariance: n_samples draws from the multivariate t
+ * at the model's dof ν, θ = θ̂ + S·z·√(ν/χ²_ν) (S·Sᵀ = C by eigen-decomposition,
+ * negative eigenvalues from rounding set to 0; z ~ N(0, I); GSL mt19937 seeded with
+ * seed), so that the percentiles of a quantity linear in θ are θ̂ ± t_ν·se, the
+ * intervals the fit states; one batch per draw with stagecal_batch_model_stages,
+ * percentiles at level. nominal is the batch at θ̂ (pass it, already run). This call
+ * leaves out the run-to-run scatter σ of the model: the band is on the mean law
+ * (stagecal_batch_band_sample_scatter includes it). EINVAL (n_samples < 2, level
+ * outside (0, 1)), ENOMEM, ENOCONV when fewer than half the draws succeed. */
 int stagecal_batch_band_sample(const stagecal_batch_problem *pb, const stagecal_vle *vle,
                                const stagecal_model *m, double f_load,
                                const stagecal_batch_params *params,
                                const stagecal_batch_result *nominal, size_t n_samples,
                                unsigned long seed, double level, stagecal_batch_band *band,
                                stagecal_error *err);
+/* The same; with run_scatter = 1 every draw also shifts the batch's stage count by
+ * σ·ε·√(ν/χ²_ν) (ε ~ N(0, 1), the same χ² draw: a joint t), the scatter of one run about
+ * the law, so the band is a prediction band for one batch (stage counts below 1 are
+ * held at 1). */
+int stagecal_batch_band_sample_scatter(const stagecal_batch_problem *pb, const stagecal_vle *vle,
+                                       const stagecal_model *m, double f_load,
+                                       const stagecal_batch_params *params,
+                                       const stagecal_batch_result *nominal, size_t n_samples,
+                                       unsigned long seed, double level, int run_scatter,
+                                       stagecal_batch_band *band, stagecal_error *err);
 
 /* Warnings about the envelope: appends to res->warnings one line per way the
  * trajectory left m's envelope (R below r_min, above r_max, F outside), with the

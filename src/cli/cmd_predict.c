@@ -235,7 +235,11 @@ static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batc
                       "failed", (json_int_t)band->n_failed, "batch_time_h",
                       interval_json(&band->t_end_s, H(1.0)), "energy_gj",
                       interval_json(&band->energy_j, 1 / STAGECAL_UNIT_GJ), "covers",
-                      "parameter uncertainty of the mean law (not window-to-window scatter)"));
+                      band->run_scatter
+                          ? "parameter uncertainty (t draws) and the run-to-run scatter of one "
+                            "batch (prediction band)"
+                          : "parameter uncertainty of the mean law, t draws (not the run-to-run "
+                            "scatter: --run-scatter)"));
     else
         json_object_set_new(doc, "band", json_null());
     json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
@@ -264,8 +268,11 @@ static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_r
     }
     printf("batch time %.3f h", H(res->t_end_s));
     if (have_band)
-        printf(" [%.3f, %.3f] (%.0f %% band, %zu draws)", H(band->t_end_s.low),
-               H(band->t_end_s.high), 100 * band->level, band->n_ok);
+        printf(" [%.3f, %.3f] (%.0f %% %s band, t at %g dof, %zu draws)", H(band->t_end_s.low),
+               H(band->t_end_s.high), 100 * band->level,
+               band->run_scatter ? "prediction (run-to-run scatter included)"
+                                 : "confidence (mean law; without run-to-run scatter)",
+               band->dof, band->n_ok);
     printf("; pot left %.4g kmol at x = %.4g\n", KMOL(res->w_end_mol), res->xb_end);
     if (pb->latent_j_mol > 0)
         printf("boil-up energy %.4g GJ (latent heat %.4g kJ/mol, from %s)\n", GJ(res->energy_j),
@@ -283,6 +290,7 @@ struct request {
     const char *model, *plan, *out;
     double charge, xb0, boilup, reflux, xdset, rmax, f_load, latent, every, level;
     long samples, seed;
+    int run_scatter;
     stagecal_batch_cut_spec cuts[STAGECAL_BATCH_MAXCUTS];
     size_t n_cuts;
 };
@@ -405,9 +413,9 @@ static int run(const struct request *q, cli_ctx *ctx)
     stagecal_batch_result_init(&res);
     rc = stagecal_batch_run(&pb, &col, &par, &res, &err);
     if (rc == STAGECAL_OK && q->samples >= 2) {
-        rc =
-            stagecal_batch_band_sample(&pb, sys->vle, &m, q->f_load, &par, &res, (size_t)q->samples,
-                                       (unsigned long)q->seed, q->level, &band, &err);
+        rc = stagecal_batch_band_sample_scatter(&pb, sys->vle, &m, q->f_load, &par, &res,
+                                                (size_t)q->samples, (unsigned long)q->seed,
+                                                q->level, q->run_scatter, &band, &err);
         have_band = rc == STAGECAL_OK;
     }
     if (rc != STAGECAL_OK) {
@@ -477,6 +485,10 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
                  "parameter draws for the band (default 200; 0 = no band)", 0, 100000),
         OPT_SEED(&q.seed),
         OPT_LEVEL(&q.level),
+        OPT_FLAG(0, "run-scatter", &q.run_scatter,
+                 "the band also carries the run-to-run scatter of the stage count (the\n"
+                 "model's sigma): a prediction band for one batch, not a confidence\n"
+                 "band on the mean law"),
         OPT_END_COMMON(ctx),
     };
     int first, rc;

@@ -1,0 +1,174 @@
+/*
+ * test_censor.c — identifiability of fits (src/regress_ident.c) and the censored
+ * errors-in-variables likelihood (src/censor.c).
+ *
+ * Outside references: the condition number of a 2×2 symmetric matrix from its
+ * closed-form eigenvalues (λ = m ± √(m² − det), m = trace/2: textbook algebra, written
+ * out here, not GSL's SVD under test); the pot compositions of the synthetic windows from
+ * Smoker's closed form (tests/oracle_smoker.h), not the stepping code the fit uses.
+ * The coverage of the censored fit's intervals is a study (tests/tool_censor_study.c,
+ * docs/calibration.md), not a unit test.
+ */
+#include <gsl/gsl_errno.h>
+#include <math.h>
+#include <string.h>
+
+#include "oracle_smoker.h"
+#include "stagecal/censor.h"
+#include "stagecal/regress.h"
+#include "testutil.h"
+
+static int setup(void **state)
+{
+    (void)state;
+    gsl_set_error_handler_off();
+    return 0;
+}
+
+/* Points that lie where exp(−b·R) ≈ 0 cannot tell b: refused with the reason. */
+static void ident_refuses_undetermined_b(void **state)
+{
+    (void)state;
+    double r[] = {4, 5, 6, 8, 10}, st[] = {8.1, 8.0, 7.9, 8.05, 8.0};
+    stagecal_regress_data d = {5, r, NULL, st, NULL};
+    stagecal_form form;
+    stagecal_regress_result res;
+    stagecal_error e;
+    assert_int_equal(stagecal_form_parse("saturating", &form, NULL), 0);
+    stagecal_regress_params prm = stagecal_regress_default_params();
+    prm.band_points = 0;
+    assert_int_equal(stagecal_regress_fit(&d, &form, &prm, &res, &e), STAGECAL_EDATA);
+    assert_non_null(strstr(e.text, "parameter 'b' of form 'saturating' is not determined by "
+                                   "the evidence (95 % interval +-"));
+    assert_non_null(strstr(e.text, "what would determine it: points at reflux ratios low enough "
+                                   "that exp(-b R) is not near 0"));
+    /* asked for: the fit is kept and b flagged, a determined (the mean of the points,
+     * 8.01, within the 1e-6 of the solver) */
+    prm.allow_undetermined = 1;
+    assert_int_equal(stagecal_regress_fit(&d, &form, &prm, &res, &e), 0);
+    assert_int_equal(res.undetermined, 2u);
+    assert_abs(res.theta[0], 8.01, 1e-6, "a");
+    assert_true(res.se[1] > 0); /* never se = 0 */
+    stagecal_regress_result_free(&res);
+}
+
+/* A determined fit: nothing flagged; the condition number equals the closed-form ratio of
+ * the eigenvalues of the relative covariance D⁻¹CD⁻¹ (D_j = max(|θ_j|, 1)). */
+static void ident_condition_number_closed_form(void **state)
+{
+    (void)state;
+    double r[] = {1, 1.5, 2, 3, 4, 6}, st[] = {4.1, 5.6, 6.4, 7.0, 7.6, 8.1};
+    stagecal_regress_data d = {6, r, NULL, st, NULL};
+    stagecal_form form;
+    stagecal_regress_result res;
+    assert_int_equal(stagecal_form_parse("linear:1+1/R", &form, NULL), 0);
+    stagecal_regress_params prm = stagecal_regress_default_params();
+    prm.band_points = 0;
+    assert_int_equal(stagecal_regress_fit(&d, &form, &prm, &res, NULL), 0);
+    assert_int_equal(res.undetermined, 0);
+    double d0 = fmax(fabs(res.theta[0]), 1), d1 = fmax(fabs(res.theta[1]), 1);
+    double a = res.cov[0] / (d0 * d0), b = res.cov[1] / (d0 * d1), c = res.cov[3] / (d1 * d1);
+    double m = 0.5 * (a + c), det = a * c - b * b, q = sqrt(m * m - det);
+    /* 1e-9 relative: two roundings of a well-conditioned 2×2 problem */
+    assert_rel(res.condition, (m + q) / (m - q), 1e-9, "condition number");
+    stagecal_regress_result_free(&res);
+}
+
+/* ---- the censored likelihood ---------------------------------------------------------- */
+
+#define ALPHA 2.0
+#define NTRUE 26.0
+
+static stagecal_column col;
+static double sxd[3][6], sxb[3][6];
+static unsigned char scens[3][6];
+static stagecal_evidence ev[3];
+
+/* Three windows at R = 6, 10, 15 of a 26-stage column with xD = 1 − 1e-6; readings at
+ * the truth (no noise), or the distillate reported as ">0.9999" (censored). */
+static void windows(int censored)
+{
+    static const double rr[3] = {6, 10, 15};
+    memset(&col, 0, sizeof col);
+    col.system.vle = stagecal_vle_alloc_alpha(ALPHA, NULL);
+    col.u.xd = 1e-9;
+    col.u.xd_heavy_rel = 0.05;
+    col.u.xb = 0.003;
+    for (int w = 0; w < 3; w++) {
+        double xd = 1 - 1e-6, xb = oracle_smoker_xb(ALPHA, rr[w], xd, NTRUE);
+        for (int j = 0; j < 6; j++) {
+            sxd[w][j] = censored ? 0.9999 : xd;
+            scens[w][j] = censored ? STAGECAL_EVIDENCE_XD_ABOVE : 0;
+            sxb[w][j] = xb;
+        }
+        memset(&ev[w], 0, sizeof ev[w]);
+        ev[w].r = rr[w];
+        ev[w].m = 6;
+        ev[w].s_xd = sxd[w];
+        ev[w].s_xb = sxb[w];
+        ev[w].s_cens = scens[w];
+    }
+}
+
+static void censor_exact_readings_give_the_truth(void **state)
+{
+    (void)state;
+    windows(0);
+    stagecal_form form;
+    stagecal_censored_fit fit;
+    assert_int_equal(stagecal_form_parse("constant", &form, NULL), 0);
+    assert_int_equal(stagecal_fit_censored(&col, 1.0, ev, 3, &form, 0.95, 1, 200, &fit, NULL), 0);
+    /* readings at the truth: the likelihood peaks at the truth but for the O(u_rel²) shift
+     * of a heteroscedastic normal likelihood (−log u(x) moves the latent impurity h by
+     * −u_rel²·h, i.e. the count by u_rel²/ln α = 0.0036 stages): tolerance 0.01 stages.
+     * Both ends are bounded. */
+    assert_abs(fit.theta, NTRUE, 0.01, "maximum-likelihood stages");
+    assert_int_equal(fit.low_bounded, 1);
+    assert_int_equal(fit.high_bounded, 1);
+    assert_true(fit.low < NTRUE && NTRUE < fit.high);
+    assert_int_equal(fit.n_windows, 3);
+    assert_int_equal(fit.n_readings, 36);
+    assert_int_equal(fit.n_censored, 0);
+    stagecal_vle_free(col.system.vle);
+}
+
+static void censor_clipped_analyser_gives_at_least(void **state)
+{
+    (void)state;
+    windows(1);
+    stagecal_form form;
+    stagecal_censored_fit fit;
+    stagecal_error e;
+    assert_int_equal(stagecal_form_parse("constant", &form, NULL), 0);
+    assert_int_equal(stagecal_fit_censored(&col, 1.0, ev, 3, &form, 0.95, 1, 200, &fit, &e), 0);
+    /* every distillate reading at full scale: more stages fit as well, so only a lower
+     * bound, and it holds */
+    assert_int_equal(fit.high_bounded, 0);
+    assert_true(isnan(fit.high));
+    assert_int_equal(fit.low_bounded, 1);
+    assert_true(fit.low < NTRUE);
+    assert_int_equal(fit.n_censored, 18);
+    /* refusals */
+    stagecal_form sat;
+    assert_int_equal(stagecal_form_parse("saturating", &sat, NULL), 0);
+    assert_int_equal(stagecal_fit_censored(&col, 1.0, ev, 3, &sat, 0.95, 1, 200, &fit, &e),
+                     STAGECAL_EINVAL);
+    assert_string_equal(e.text, "censored fit: form 'saturating' has 2 parameters (only "
+                                "one-parameter forms, e.g. constant, so far)");
+    col.u.xb = 0;
+    assert_int_equal(stagecal_fit_censored(&col, 1.0, ev, 3, &form, 0.95, 1, 200, &fit, &e),
+                     STAGECAL_EINVAL);
+    assert_non_null(strstr(e.text, "has no stated uncertainty"));
+    stagecal_vle_free(col.system.vle);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(ident_refuses_undetermined_b),
+        cmocka_unit_test(ident_condition_number_closed_form),
+        cmocka_unit_test(censor_exact_readings_give_the_truth),
+        cmocka_unit_test(censor_clipped_analyser_gives_at_least),
+    };
+    return cmocka_run_group_tests(tests, setup, NULL);
+}
