@@ -94,4 +94,20 @@ expect_exit 0 "" -- "$BIN" hetp "$M" --fload 1.3 --reflux 3 --height 2 --quiet
 expect_exit 2 "option '--f-factor': -1 is negative" -- "$BIN" hetp "$M" --reflux 3 --f-factor -1
 expect_exit 2 "option '--level': 1.5 is outside (0, 1)" -- "$BIN" trend K7 --reflux 3 --level 1.5
 expect_exit 2 "option '--murphree': 0 is outside (0, 1]" -- "$BIN" steps --alpha 2 --xd 0.9 --reflux 3 --stages 4 --murphree 0
+
+# The commands whose numbers feed a decision end their text output with the caution
+# (printed once, by main, from the command table's flag); --json carries it as a member.
+expect_exit 0 "" -- "$BIN" hetp "$M" --reflux 3 --height 2
+[ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] || { echo "FAIL: hetp text lacks one caution"; fails=$((fails + 1)); }
+expect_exit 0 "" -- "$BIN" predict --model "$M" --column "$ROOT/datasets/columns/demo_benzene_toluene.json" \
+    --charge 25 --xb0 0.5 --boilup 3.6 --reflux 3 --cut pot-x=0.15 --samples 0 --quiet
+[ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] || { echo "FAIL: predict text lacks one caution"; fails=$((fails + 1)); }
+expect_exit 0 "" -- "$BIN" invert --alpha 2.5 --xd 0.95 --xb 0.05 --reflux inf
+[ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] || { echo "FAIL: invert text lacks one caution"; fails=$((fails + 1)); }
+expect_exit 0 "" -- "$BIN" hetp "$M" --reflux 3 --height 2 --json
+"$PY" -c "import json,sys; d=json.load(open('$tmp/out')); sys.exit(0 if d['caution'].startswith('Caution:') else 1)" ||
+    { echo "FAIL: hetp --json: not one JSON document with its caution"; fails=$((fails + 1)); }
+# invert's per-row CSV on stdout is data: no caution after it
+expect_exit 0 "" -- "$BIN" invert --column "$ROOT/datasets/columns/demo_alpha.json" --quiet "$ROOT/tests/badinput/good.csv"
+! grep -q "Caution" "$tmp/out" || { echo "FAIL: caution inside the CSV on stdout"; fails=$((fails + 1)); }
 finish
