@@ -48,6 +48,8 @@ stagecal_runlog_analysis_params stagecal_runlog_analysis_default_params(void)
     p.r_leave = 2.5;
     p.warmup = 15;
     p.min_window = 6;
+    p.warmup_s = 0;
+    p.min_window_s = 0;
     p.gross_sigmas = 3.0;
     p.drift_t = 4.0;
     p.drift_u = 2.0;
@@ -302,12 +304,13 @@ void runlog_mark_no_distillate(const stagecal_runlog *log,
 {
     for (size_t k = 0; k < log->nruns; k++) {
         const stagecal_runlog_run *run = &log->runs[k];
-        size_t i = run->first, end = run->first + run->n;
+        size_t i = run->first, end = run->first + run->n, warmup, min_window;
+        runlog_run_samples(log, par, k, t, &warmup, &min_window);
         while (i < end) {
             size_t j = i + 1;
             while (j < end && log->r[j] == log->r[i])
                 j++;
-            if (isfinite(log->r[i]) && j - i >= par->min_window) {
+            if (isfinite(log->r[i]) && j - i >= min_window) {
                 size_t nn = 0;
                 for (size_t a = i; a < j; a++)
                     if (isfinite(log->w_mol[a]) && isfinite(log->t_s[a])) {
@@ -328,6 +331,42 @@ void runlog_mark_no_distillate(const stagecal_runlog *log,
             i = j;
         }
     }
+}
+
+/* Median spacing of run k's finite times [s] (0 when it has fewer than 2); tmp holds the
+ * run's length. */
+static double run_spacing(const stagecal_runlog *log, size_t k, double *tmp)
+{
+    const stagecal_runlog_run *run = &log->runs[k];
+    size_t q = 0;
+    for (size_t i = run->first + 1; i < run->first + run->n; i++) {
+        double d = log->t_s[i] - log->t_s[i - 1];
+        if (isfinite(d) && d > 0)
+            tmp[q++] = d;
+    }
+    return q ? median_inplace(tmp, q) : 0.0;
+}
+
+void runlog_run_samples(const stagecal_runlog *log, const stagecal_runlog_analysis_params *par,
+                        size_t k, double *tmp, size_t *warmup, size_t *min_window)
+{
+    size_t n = log->runs[k].n;
+    double dt = par->warmup_s > 0 || par->min_window_s > 0 ? run_spacing(log, k, tmp) : 0.0;
+    /* the sample defaults, capped for short runs: a warm-up of a third of the run and a
+     * window of an eighth (at least 4 samples) still leave a short batch a window
+     * (common practice, no source) */
+    size_t w = par->warmup < n / 3 ? par->warmup : n / 3;
+    size_t m = par->min_window < n / 8 ? par->min_window : n / 8;
+    if (m < 4)
+        m = par->min_window < 4 ? par->min_window : 4;
+    if (par->warmup_s > 0 && dt > 0)
+        w = (size_t)ceil(par->warmup_s / dt - 1e-9);
+    if (par->min_window_s > 0 && dt > 0) {
+        m = (size_t)ceil(par->min_window_s / dt - 1e-9);
+        m = m < 3 ? 3 : m;
+    }
+    *warmup = w;
+    *min_window = m;
 }
 
 int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
@@ -352,9 +391,10 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
     int rc = STAGECAL_OK;
     for (size_t k = 0; k < log->nruns && rc == STAGECAL_OK; k++) {
         const stagecal_runlog_run *run = &log->runs[k];
-        size_t f = run->first, m = run->n;
+        size_t f = run->first, m = run->n, warmup, min_window;
         if (m < 2)
             continue;
+        runlog_run_samples(log, par, k, tmp, &warmup, &min_window);
         /* (a) stages: floor = median u(stages)² of the run */
         size_t q = 0;
         for (size_t i = 0; i < m; i++) {
@@ -379,7 +419,7 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
             double rmax = i == 0 ? HUGE_VAL : fmax(ra[i - 1], rb[i - 1]);
             int reflux_change = i > 0 && !(log->r[row] == log->r[row - 1]) &&
                                 !(isnan(log->r[row]) && isnan(log->r[row - 1]));
-            if (i < par->warmup) {
+            if (i < warmup) {
                 res->flags[row] |= STAGECAL_SAMPLE_WARMUP;
                 steady = 0;
             } else if (reflux_change || res->status[row] == STAGECAL_STAGES_INVALID) {
@@ -409,7 +449,7 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
             while (j < m && (res->flags[f + j] & STAGECAL_SAMPLE_STEADY) &&
                    log->r[f + j] == log->r[row])
                 j++;
-            if (j - i >= par->min_window) {
+            if (j - i >= min_window) {
                 if (res->nwindows == wcap) {
                     size_t nc = wcap ? 2 * wcap : 64;
                     stagecal_runlog_window *nw = realloc(res->windows, nc * sizeof *nw);

@@ -18,6 +18,12 @@ void runlog_mark_no_distillate(const stagecal_runlog *log,
                                const stagecal_runlog_analysis_params *par,
                                stagecal_runlog_result *res, double *t, double *w);
 
+/* Run k's warm-up and shortest window in samples from par (the time settings by the run's
+ * median sample spacing, else the sample counts capped for short runs; runlog.h). tmp is
+ * scratch of the run's length. */
+void runlog_run_samples(const stagecal_runlog *log, const stagecal_runlog_analysis_params *par,
+                        size_t k, double *tmp, size_t *warmup, size_t *min_window);
+
 /* Flags steady samples and builds the windows from the per-sample stages (after
  * the inversion filled res->status/stages/u_stages). ENOMEM. */
 int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,

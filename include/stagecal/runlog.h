@@ -227,6 +227,12 @@ typedef struct {
     size_t warmup;          /* samples at run start that cannot be steady (15 ≈ 3/λ2) */
     size_t min_window;      /* shortest window in samples (6); shorter stretches stay
                                flagged steady but form no window */
+    double warmup_s;        /* warm-up as a time [s]; > 0 replaces warmup by
+                               ceil(warmup_s/Δt) samples, Δt the run's median sample spacing
+                               (0, the default: warmup samples, at most a third of the run) */
+    double min_window_s;    /* shortest window as a time [s]; > 0 replaces min_window by
+                               ceil(min_window_s/Δt) samples, at least 3 (0, the default:
+                               min_window samples, at most an eighth of the run and at least 4) */
     double gross_sigmas;    /* closure gross error threshold in standard uncertainties (3) */
     double drift_t;         /* drift flagged when |slope|/se > drift_t (4) ... */
     double drift_u;         /* ... and |slope|·duration > drift_u·u(xB) (2) */

@@ -465,6 +465,8 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
                  "keep a fit whose evidence does not determine a parameter (the model\n"
                  "file carries a NOT DETERMINED warning); without it such a fit is\n"
                  "refused (exit 65) with what would determine it"),
+        OPT_WARM_UP(&par.analysis.warmup_s),
+        OPT_MIN_WINDOW(&par.analysis.min_window_s),
         OPT_END_COMMON(ctx),
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))

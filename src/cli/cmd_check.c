@@ -125,10 +125,13 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
 {
     const char *column_path = NULL;
     long minrows = 0;
+    stagecal_runlog_analysis_params ap = stagecal_runlog_analysis_default_params();
     const struct cli_option opts[] = {
         OPT_COLUMN(&column_path, "column file: molar masses (mass units), latent heat (Q) and\n"
                                  "the uncertainties the checks use (docs/column-file.md)"),
         OPT_MIN_ROWS(&minrows),
+        OPT_WARM_UP(&ap.warmup_s),
+        OPT_MIN_WINDOW(&ap.min_window_s),
         OPT_END_COMMON(ctx),
     };
     stagecal_runlog_params rp = stagecal_runlog_default_params();
@@ -174,7 +177,7 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
     }
 
     stagecal_runlog_result res;
-    if (stagecal_runlog_analyse(log, have_col ? &col : NULL, NULL, &res, &err) != STAGECAL_OK) {
+    if (stagecal_runlog_analyse(log, have_col ? &col : NULL, &ap, &res, &err) != STAGECAL_OK) {
         rc = cli_fail(&err);
         goto done;
     }

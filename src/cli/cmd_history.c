@@ -51,6 +51,7 @@ struct exclusion {
 struct options {
     const char *column, *form, *events;
     double reflux, fload, require, level, design, margin, now_s;
+    double warmup_s, min_window_s; /* evidence settings [s] (0: the defaults) */
     long min_runs;
     struct exclusion ex[MAX_EXCLUDE];
     size_t n_ex;
@@ -150,6 +151,8 @@ static int parse_options(int argc, char **argv, struct options *o, cli_ctx *ctx,
                    "a design HETP in m"),
         OPT_DOUBLE("margin", &o->margin, "M", "equivalence margin, a fraction (0.10)", 0, 1,
                    CLI_D_LO_OPEN | CLI_D_HI_OPEN, "a fraction such as 0.10"),
+        OPT_WARM_UP(&o->warmup_s),
+        OPT_MIN_WINDOW(&o->min_window_s),
         OPT_END_COMMON(ctx),
     };
     int rc;
@@ -301,6 +304,8 @@ static int compute(struct result *res, struct options *o, char **logs, size_t nl
     stagecal_calibrate_params cp = stagecal_calibrate_default_params();
     cp.form = o->form;
     cp.method = STAGECAL_CAL_STAGE;
+    cp.analysis.warmup_s = o->warmup_s;
+    cp.analysis.min_window_s = o->min_window_s;
     int rc = stagecal_calibrate(o->column, (const char *const *)logs, nlogs, &cp, &res->cal, &err);
     /* the correlation fitted to all windows at once may fail (the bed changes); only the
      * windows are needed here */

@@ -197,7 +197,7 @@ static int write_rows(const stagecal_runlog *log, const stagecal_column *col,
 
 /* Every row of the run logs argv[first..argc). */
 static int invert_rows(int argc, char **argv, int first, const char *out_path, long minrows,
-                       double murphree, cli_ctx *ctx)
+                       const stagecal_runlog_analysis_params *ap, double murphree, cli_ctx *ctx)
 {
     cli_system *sys = &ctx->sys;
     int rc;
@@ -253,8 +253,8 @@ static int invert_rows(int argc, char **argv, int first, const char *out_path, l
                  "'stagecal check' for the full list)",
                  f->n_errors);
     }
-    if (stagecal_runlog_analyse(log, col, NULL, &res, &err) != STAGECAL_OK ||
-        stagecal_runlog_invert(log, col, murphree, NULL, &res, &err) != STAGECAL_OK ||
+    if (stagecal_runlog_analyse(log, col, ap, &res, &err) != STAGECAL_OK ||
+        stagecal_runlog_invert(log, col, murphree, ap, &res, &err) != STAGECAL_OK ||
         stagecal_evidence_build(log, &res, col, murphree, NULL, &ev, &err) != STAGECAL_OK) {
         rc = cli_fail(&err);
         goto done;
@@ -290,6 +290,7 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
     double xd = NAN, xb = NAN, reflux = NAN, murphree = 1.0;
     const char *out_path = NULL;
     long minrows = 0;
+    stagecal_runlog_analysis_params ap = stagecal_runlog_analysis_default_params();
     const struct cli_option opts[] = {
         OPT_SYSTEM(&ctx->sys),
         OPT_XD(&xd),
@@ -300,17 +301,20 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
                               "--json)"),
         OPT_ALIAS("out", "output"),
         OPT_MIN_ROWS(&minrows),
+        OPT_WARM_UP(&ap.warmup_s),
+        OPT_MIN_WINDOW(&ap.min_window_s),
         OPT_END_COMMON(ctx),
     };
     int first, rc;
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
         return rc;
     /* the mode follows from what was given: run logs, or a point */
-    if (first < argc || out_path || cli_given(opts, "min-rows")) {
+    if (first < argc || out_path || cli_given(opts, "min-rows") || cli_given(opts, "warm-up") ||
+        cli_given(opts, "min-window")) {
         if (!isnan(xd) || !isnan(xb) || !isnan(reflux))
             return cli_usage_error("options '--xd', '--xb' and '--reflux' are for one point, "
                                    "not with run logs (each row carries its own)");
-        return invert_rows(argc, argv, first, out_path, minrows, murphree, ctx);
+        return invert_rows(argc, argv, first, out_path, minrows, &ap, murphree, ctx);
     }
     return invert_point(xd, xb, reflux, murphree, ctx);
 }

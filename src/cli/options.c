@@ -6,6 +6,7 @@
  */
 #include "options.h"
 
+#include <errno.h>
 #include <getopt.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -88,6 +89,28 @@ static int take_choice(const struct cli_option *o, const char *arg)
     return cli_usage_error("option '--%s': '%s' is unknown (expected %s)", o->long_name, arg, list);
 }
 
+/* A time with its unit (s, min, h, d; a bare number is minutes) into seconds. */
+static int take_duration(const struct cli_option *o, const char *arg)
+{
+    static const struct {
+        const char *unit;
+        double s;
+    } units[] = {{"", 60}, {"s", 1}, {"min", 60}, {"h", 3600}, {"d", 86400}};
+    char *end;
+    errno = 0;
+    double v = strtod(arg, &end);
+    if (((arg[0] >= '0' && arg[0] <= '9') || arg[0] == '.') && end != arg && errno == 0 &&
+        isfinite(v))
+        for (size_t k = 0; k < sizeof units / sizeof units[0]; k++)
+            if (strcmp(end, units[k].unit) == 0 && v * units[k].s <= o->hi) {
+                *(double *)o->value = v * units[k].s;
+                return 0;
+            }
+    return cli_usage_error("option '--%s': '%s' is not a time (expected a number >= 0 with s, "
+                           "min, h or d, e.g. 30min)",
+                           o->long_name, arg);
+}
+
 /* Stores arg into the entry's variable after the checks; returns 0 or an exit code. */
 static int take_value(const struct cli_option *o, const char *arg)
 {
@@ -128,6 +151,8 @@ static int take_value(const struct cli_option *o, const char *arg)
         arr[k + 1] = NULL;
         return 0;
     }
+    case CLI_OPT_DURATION:
+        return take_duration(o, arg);
     case CLI_OPT_SYSTEM:
         return cli_system_option((cli_system *)o->value, o->long_name, arg);
     default:

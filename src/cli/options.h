@@ -17,16 +17,18 @@
 #include "stagecal/regress.h"
 
 enum cli_opt_type {
-    CLI_OPT_END = 0, /* ends a table */
-    CLI_OPT_GROUP,   /* a heading in the help text (help = the heading, "" = blank line) */
-    CLI_OPT_FLAG,    /* no value: sets *(int *)value = 1 */
-    CLI_OPT_DOUBLE,  /* a number checked against the domain, into *(double *)value */
-    CLI_OPT_LONG,    /* an integer in [lo, hi], into *(long *)value */
-    CLI_OPT_STRING,  /* text (a path, a name), into *(const char **)value */
-    CLI_OPT_LIST,    /* repeatable text: appended to the NULL-terminated array value of hi */
-    CLI_OPT_CHOICE,  /* one of choices[], its index into *(int *)value */
-    CLI_OPT_SYSTEM,  /* --alpha/--kvalue/--column of a cli_system (value: cli_system *) */
-    CLI_OPT_ALIAS    /* a deprecated spelling of the option named by `alias_of` */
+    CLI_OPT_END = 0,  /* ends a table */
+    CLI_OPT_GROUP,    /* a heading in the help text (help = the heading, "" = blank line) */
+    CLI_OPT_FLAG,     /* no value: sets *(int *)value = 1 */
+    CLI_OPT_DOUBLE,   /* a number checked against the domain, into *(double *)value */
+    CLI_OPT_LONG,     /* an integer in [lo, hi], into *(long *)value */
+    CLI_OPT_STRING,   /* text (a path, a name), into *(const char **)value */
+    CLI_OPT_LIST,     /* repeatable text: appended to the NULL-terminated array value of hi */
+    CLI_OPT_CHOICE,   /* one of choices[], its index into *(int *)value */
+    CLI_OPT_SYSTEM,   /* --alpha/--kvalue/--column of a cli_system (value: cli_system *) */
+    CLI_OPT_DURATION, /* a time "30min", "2.5h", "90s", "1d" (a bare number: minutes), in
+                         [lo, hi] seconds, into *(double *)value in seconds */
+    CLI_OPT_ALIAS     /* a deprecated spelling of the option named by `alias_of` */
 };
 
 /* Domain flags of CLI_OPT_DOUBLE. */
@@ -120,6 +122,19 @@ struct cli_option {
                "the folder of model files, one folder per column (default: fits)")
 #define OPT_POINTS(v, h) OPT_STRING(0, "points", (v), "FILE.csv", (h))
 #define OPT_FORM(v, h) OPT_STRING(0, "form", (v), "NAME", (h))
+#define OPT_DURATION(l, v, h)                                                                      \
+    {                                                                                              \
+        CLI_OPT_DURATION, 0, (l), (v), "TIME", (h), 0, 1e9, 0, NULL, NULL, NULL                    \
+    }
+/* evidence settings in time (the run-log analysis, stagecal/runlog.h) */
+#define OPT_WARM_UP(v)                                                                             \
+    OPT_DURATION("warm-up", (v),                                                                   \
+                 "time at the start of a run that cannot be quasi-steady, e.g. 30min (default: "   \
+                 "15 samples, at most a third of the run)")
+#define OPT_MIN_WINDOW(v)                                                                          \
+    OPT_DURATION("min-window", (v),                                                                \
+                 "shortest quasi-steady window, e.g. 40min, at least 3 samples (default: 6 "       \
+                 "samples, at most an eighth of the run, at least 4)")
 #define OPT_MIN_ROWS(v)                                                                            \
     OPT_LONG("min-rows", (v), "N", "fewest rows a run may have (default 5)", 1, 1000000000L)
 #define OPT_BOOTSTRAP(v)                                                                           \
