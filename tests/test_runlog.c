@@ -848,13 +848,22 @@ static void runlog_mass_based_twin_gives_same_stages(void **state)
     stagecal_runlog_free(l2);
 }
 
-/* Rows of run 0 flagged as warm-up. */
+/* Rows flagged as warm-up. */
 static size_t warmup_rows(const stagecal_runlog_result *res, size_t n)
 {
     size_t c = 0;
     for (size_t i = 0; i < n; i++)
         c += (res->flags[i] & STAGECAL_SAMPLE_WARMUP) != 0;
     return c;
+}
+
+/* Analyses and inverts log with ap; returns the rows flagged as warm-up. */
+static size_t warmup_rows_of(const stagecal_runlog *log, const stagecal_runlog_analysis_params *ap,
+                             stagecal_runlog_result *res)
+{
+    assert_int_equal(stagecal_runlog_analyse(log, &test_col, ap, res, NULL), 0);
+    assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, ap, res, NULL), 0);
+    return warmup_rows(res, log->n);
 }
 
 /* Evidence settings in time (issue 16): the warm-up and the shortest window follow the run's
@@ -869,10 +878,8 @@ static void runlog_evidence_settings_in_time(void **state)
     double *xbt, *xdt;
     stagecal_runlog *log = load_synth(&s, &xbt, &xdt);
     stagecal_runlog_result res;
-    assert_int_equal(stagecal_runlog_analyse(log, &test_col, NULL, &res, NULL), 0);
-    assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, NULL, &res, NULL), 0);
     /* defaults: warm-up min(15, 30/3) = 10 samples, windows of at least 4 samples */
-    assert_int_equal(warmup_rows(&res, log->n), 10);
+    assert_int_equal(warmup_rows_of(log, NULL, &res), 10);
     assert_true(res.nwindows >= 1);
     for (size_t k = 0; k < res.nwindows; k++)
         assert_true(res.windows[k].last - res.windows[k].first + 1 >= 4);
@@ -882,9 +889,7 @@ static void runlog_evidence_settings_in_time(void **state)
     stagecal_runlog_analysis_params ap = stagecal_runlog_analysis_default_params();
     ap.warmup_s = 1800;
     ap.min_window_s = 2400;
-    assert_int_equal(stagecal_runlog_analyse(log, &test_col, &ap, &res, NULL), 0);
-    assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, &ap, &res, NULL), 0);
-    assert_int_equal(warmup_rows(&res, log->n), 3);
+    assert_int_equal(warmup_rows_of(log, &ap, &res), 3);
     assert_true(res.nwindows >= 1);
     for (size_t k = 0; k < res.nwindows; k++)
         assert_true(res.windows[k].last - res.windows[k].first + 1 >= 4);
@@ -895,15 +900,11 @@ static void runlog_evidence_settings_in_time(void **state)
     /* a long run keeps the sample defaults (15 warm-up samples): the demo's numbers stay */
     s = base; /* 400 rows */
     log = load_synth(&s, &xbt, &xdt);
-    assert_int_equal(stagecal_runlog_analyse(log, &test_col, NULL, &res, NULL), 0);
-    assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, NULL, &res, NULL), 0);
-    assert_int_equal(warmup_rows(&res, log->n), 15);
+    assert_int_equal(warmup_rows_of(log, NULL, &res), 15);
     stagecal_runlog_result_free(&res);
     /* the same 30 min at 120 s spacing: ceil(1800/120) = 15 samples; 45 min: 23 */
     ap.warmup_s = 2700;
-    assert_int_equal(stagecal_runlog_analyse(log, &test_col, &ap, &res, NULL), 0);
-    assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, &ap, &res, NULL), 0);
-    assert_int_equal(warmup_rows(&res, log->n), 23);
+    assert_int_equal(warmup_rows_of(log, &ap, &res), 23);
     stagecal_runlog_result_free(&res);
     stagecal_runlog_free(log);
     free(xbt);
