@@ -24,6 +24,7 @@
 #define ZETA_SCAN 24  /* scan points of the inner problem */
 #define THETA_SCAN 24 /* scan points of the outer problem */
 #define MAX_ITER 100
+#define PURE_SIGMAS 3.0 /* latent impurity below this many u(xD): indistinguishable from pure */
 
 struct cctx {
     const stagecal_column *col;
@@ -158,7 +159,10 @@ static double window_profile(struct cctx *c, const stagecal_evidence *e, double 
     if (lo > ZETA_MAX - 1)
         lo = ZETA_MAX - 1;
     double z = scan_min(neg_window_ll, c, lo, ZETA_MAX, ZETA_SCAN, 0, 1e-9, &f);
-    if (z > ZETA_MAX - 1)
+    /* the latent distillate at the top of its range, or within PURE_SIGMAS of its
+     * analyser's uncertainty of pure: the readings cannot tell it from pure */
+    double h = 1 / (1 + exp(z)), ud = stagecal_runlog_u_xd(c->col, 1 - h);
+    if (z > ZETA_MAX - 1 || h < PURE_SIGMAS * ud)
         c->at_cap = 1;
     return -f;
 }
@@ -312,9 +316,12 @@ int stagecal_fit_censored(const stagecal_column *col, double murphree, const sta
     fit->level = level;
     struct dev_ctx d = {&c, fit->loglik, gsl_cdf_chisq_Pinv(level, 1)};
     /* Which ends does the evidence bound at the two-sided cut? An end reached only because
-     * a latent xD hit the top of its range (xD = 1 − 9e-14, as pure as a double tells) is
-     * set by that range, not by the evidence (more stages with a purer distillate fit as
-     * well): not bounded. */
+     * a latent xD went to the top of its range (xD = 1 − 9e-14, as pure as a double tells)
+     * or to within PURE_SIGMAS of its analyser's uncertainty of pure is set by that range,
+     * not by the evidence: the readings cannot tell such a distillate from a purer one, so
+     * more stages fit as well (a likelihood-ratio interval is not to be trusted at that
+     * boundary). Not bounded. (Only the upper end: fewer stages need a less pure
+     * distillate, which the readings can tell.) */
     double lo0 = th > theta_lo ? first_crossing(&d, th, theta_lo) : NAN;
     double hi0 = th < theta_hi ? first_crossing(&d, th, theta_hi) : NAN;
     int lo_b = isfinite(lo0), hi_b = isfinite(hi0);
@@ -322,10 +329,6 @@ int stagecal_fit_censored(const stagecal_column *col, double murphree, const sta
     if (hi_b) {
         profile_ll(&c, GSL_MIN(hi0 * 1.02, theta_hi));
         hi_b = !c.at_cap;
-    }
-    if (lo_b) {
-        profile_ll(&c, GSL_MAX(lo0 / 1.02, theta_lo));
-        lo_b = !c.at_cap;
     }
     fit->low = fit->high = NAN;
     if (lo_b != hi_b) { /* one end only: the other is a one-sided bound at the same level */

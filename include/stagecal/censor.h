@@ -19,8 +19,10 @@
  *
  * One-parameter forms (`constant`: stages = a). The interval is the profile-likelihood
  * interval {θ: 2(ℓ_max − ℓ(θ)) ≤ χ²₁(level)} (Wilks 1938). When ℓ does not fall by that
- * much on one side before the search range ends (all readings at an analyser's limit:
- * more stages can only fit the data as well), that end is not determined and the other
+ * much on one side before the search range ends, or only where a window's latent xD is
+ * within 3 standard uncertainties of its analyser of pure (all readings at an analyser's
+ * limit: more stages with a purer distillate fit the data as well), that end is not
+ * determined and the other
  * end is the one-sided bound at the same level, {θ: 2(ℓ_max − ℓ(θ)) ≤ χ²₁(2·level − 1)}:
  * "at least N stages".
  */
