@@ -44,6 +44,35 @@ static json_t *findings_json(const stagecal_findings *f)
     return arr;
 }
 
+/* The file lines of run k's samples flagged as outliers (all of them: a JSON array). */
+static json_t *outlier_lines_json(const stagecal_runlog *log, const stagecal_runlog_result *res,
+                                  size_t k)
+{
+    json_t *arr = json_array();
+    const stagecal_runlog_run *r = &log->runs[k];
+    for (size_t i = r->first; i < r->first + r->n; i++)
+        if (res->flags[i] & STAGECAL_SAMPLE_OUTLIER)
+            json_array_append_new(arr, json_integer((json_int_t)log->line[i]));
+    return arr;
+}
+
+/* ", N outlier samples (lines a, b, … and K more)" for run k; nothing without outliers. */
+static void print_outlier_lines(const stagecal_runlog *log, const stagecal_runlog_result *res,
+                                size_t k)
+{
+    const stagecal_runlog_run *r = &log->runs[k];
+    size_t shown = 0, n = res->closures[k].n_outliers;
+    if (n == 0)
+        return;
+    printf(", %zu outlier samples (line%s", n, n > 1 ? "s" : "");
+    for (size_t i = r->first; i < r->first + r->n && shown < 10; i++)
+        if (res->flags[i] & STAGECAL_SAMPLE_OUTLIER)
+            printf("%s %lu", shown++ ? "," : "", (unsigned long)log->line[i]);
+    if (n > shown)
+        printf(" and %zu more", n - shown);
+    putchar(')');
+}
+
 static int print_json(const stagecal_runlog *log, const stagecal_runlog_result *res,
                       const stagecal_findings *f)
 {
@@ -54,8 +83,11 @@ static int print_json(const stagecal_runlog *log, const stagecal_runlog_result *
         json_array_append_new(files, json_string(log->files[k]));
     json_object_set_new(doc, "files", files);
     json_object_set_new(doc, "rows", json_integer((json_int_t)log->n));
-    for (size_t k = 0; k < log->nruns; k++)
-        json_array_append_new(runs, cli_run_json(log, k, &res->closures[k]));
+    for (size_t k = 0; k < log->nruns; k++) {
+        json_t *run = cli_run_json(log, k, &res->closures[k]);
+        json_object_set_new(run, "outlier_lines", outlier_lines_json(log, res, k));
+        json_array_append_new(runs, run);
+    }
     json_object_set_new(doc, "runs", runs);
     json_object_set_new(doc, "findings", findings_json(f));
     json_object_set_new(doc, "errors", json_integer((json_int_t)f->n_errors));
@@ -91,8 +123,7 @@ static int print_text(const stagecal_runlog *log, const stagecal_runlog_result *
             printf(" ± %.2f %%", 100.0 * cl->u_closure);
         printf(", xB drift %+.3g /h ± %.2g%s%s", cl->drift_per_h, cl->u_drift_per_h,
                cl->gross ? ", GROSS ERROR" : "", cl->drift ? ", ANALYSER DRIFT" : "");
-        if (cl->n_outliers)
-            printf(", %zu outlier samples", cl->n_outliers);
+        print_outlier_lines(log, res, k);
         putchar('\n');
     }
     return 0;

@@ -129,11 +129,11 @@ struct cli_option {
 /* evidence settings in time (the run-log analysis, stagecal/runlog.h) */
 #define OPT_WARM_UP(v)                                                                             \
     OPT_DURATION("warm-up", (v),                                                                   \
-                 "time at the start of a run that cannot be quasi-steady, e.g. 30min (default: "   \
+                 "time at the start of a run that cannot be quasi-steady, e.g.\n30min (default: "  \
                  "15 samples, at most a third of the run)")
 #define OPT_MIN_WINDOW(v)                                                                          \
     OPT_DURATION("min-window", (v),                                                                \
-                 "shortest quasi-steady window, e.g. 40min, at least 3 samples (default: 6 "       \
+                 "shortest quasi-steady window, e.g. 40min, at least 3 samples\n(default: 6 "      \
                  "samples, at most an eighth of the run, at least 4)")
 #define OPT_MIN_ROWS(v)                                                                            \
     OPT_LONG("min-rows", (v), "N", "fewest rows a run may have (default 5)", 1, 1000000000L)
