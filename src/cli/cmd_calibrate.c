@@ -364,6 +364,53 @@ static void print_text(const stagecal_calibration *cal, const char *path, const 
 }
 
 /* Calibrates, writes the model file and the other outputs, prints. An exit code. */
+/* Appends to a failed fit's message what the evidence holds: the windows with a stage count,
+ * per run why it gave none (rows in warm-up, no quasi-steady stretch, stretches shorter than
+ * the shortest window, windows without a stage count), and which setting would help. */
+static void evidence_hint(const stagecal_calibration *cal, stagecal_error *err)
+{
+    const stagecal_runlog *log = cal->log;
+    const stagecal_runlog_result *res = &cal->res;
+    if (!log || !res->flags || res->nruns != log->nruns)
+        return;
+    char buf[sizeof err->text];
+    size_t len = 0, nstage = 0, short_runs = 0, warm_runs = 0;
+    for (size_t i = 0; i < cal->evidence.n; i++)
+        nstage += cal->evidence.ev[i].stages_ok != 0;
+    int w = snprintf(buf, sizeof buf, "%s; evidence: %zu windows with a stage count in %zu runs",
+                     err->text, nstage, log->nruns);
+    len = w > 0 && (size_t)w < sizeof buf ? (size_t)w : sizeof buf - 1;
+    for (size_t k = 0; k < log->nruns && len + 200 < sizeof buf; k++) {
+        const stagecal_runlog_run *r = &log->runs[k];
+        size_t warm = 0, steady = 0, run = 0, longest = 0, nwin = 0, nok = 0;
+        for (size_t i = r->first; i < r->first + r->n; i++) {
+            warm += (res->flags[i] & STAGECAL_SAMPLE_WARMUP) != 0;
+            run = res->flags[i] & STAGECAL_SAMPLE_STEADY ? run + 1 : 0;
+            steady += run > 0;
+            longest = run > longest ? run : longest;
+        }
+        for (size_t i = 0; i < cal->evidence.n; i++)
+            if (cal->evidence.ev[i].run == k) {
+                nwin++;
+                nok += cal->evidence.ev[i].stages_ok != 0;
+            }
+        if (nok > 0)
+            continue;
+        short_runs += steady > 0 && nwin == 0;
+        warm_runs += 2 * warm >= r->n;
+        w = snprintf(buf + len, sizeof buf - len,
+                     "; run '%s' %zu rows: %zu warm-up, %zu steady (longest %zu), %zu windows",
+                     r->name, r->n, warm, steady, longest, nwin);
+        len += w > 0 && (size_t)w < sizeof buf - len ? (size_t)w : sizeof buf - len - 1;
+    }
+    if (len + 1 < sizeof buf)
+        snprintf(buf + len, sizeof buf - len, "%s%s%s",
+                 short_runs ? "; try a shorter --min-window (e.g. 40min)" : "",
+                 warm_runs ? "; try a shorter --warm-up (e.g. 30min)" : "",
+                 short_runs || warm_runs ? "" : "; add runs at other reflux ratios or loads");
+    snprintf(err->text, sizeof err->text, "%s", buf);
+}
+
 static int run(int argc, char **argv, int first, stagecal_calibrate_params *par,
                const struct request *rq, int json)
 {
@@ -393,6 +440,8 @@ static int run(int argc, char **argv, int first, stagecal_calibrate_params *par,
             stagecal_calibration_free(&cal);
             return CLI_EXIT_DATA;
         }
+        if (rc == STAGECAL_EDATA)
+            evidence_hint(&cal, &err);
         stagecal_calibration_free(&cal);
         return cli_fail(&err);
     }

@@ -48,4 +48,13 @@ expect_exit 2 "option '--warm-up': '3x' is not a time" -- "$BIN" check --warm-up
 expect_exit 2 "option '--min-window': '-5min' is not a time" -- \
     "$BIN" invert --column "$COL" --min-window -5min "$LOG"
 expect_exit 0 "" -- "$BIN" check --warm-up 0.5h --min-window 2400s "$LOG"
+# too little evidence: the message counts the windows, says per run why (rows in warm-up,
+# steady rows, longest steady stretch) and which setting would help (one line, exit 65)
+awk -F, 'NR == 1 { print; next } { n[$1]++ } n[$1] > 12 && n[$1] <= 30' "$LOG" >"$tmp/vshort.csv"
+expect_exit 65 "evidence: 0 windows with a stage count in 6 runs; run 'K7-001' 18 rows: 15 warm-up" \
+    -- "$BIN" calibrate --column "$COL" --dry-run --quiet --fits "$tmp/fits" --warm-up 150min \
+    --min-window 60min "$tmp/vshort.csv"
+grep -q "try a shorter --min-window" "$tmp/err" && grep -q "try a shorter --warm-up" "$tmp/err" &&
+    echo "ok: the message names the settings that would help" ||
+    { echo "FAIL: no setting named"; fails=$((fails + 1)); }
 finish
