@@ -13,17 +13,6 @@
 #define SC_PRINTF(a, b) __attribute__((format(printf, a, b)))
 #else
 #define SC_PRINTF(a, b)
-/* Copies the NUL-terminated src into dst of cap bytes; −1 (dst untouched) when it does
- * not fit. */
-static inline int copy_text(char *dst, size_t cap, const char *src)
-{
-    size_t n = strlen(src);
-    if (n >= cap)
-        return -1;
-    memcpy(dst, src, n + 1);
-    return 0;
-}
-
 #endif
 
 /* Fill err (may be NULL) with code and a formatted message; returns code. */

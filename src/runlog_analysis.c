@@ -40,22 +40,20 @@
 
 stagecal_runlog_analysis_params stagecal_runlog_analysis_default_params(void)
 {
-    stagecal_runlog_analysis_params p;
-    p.lambda1 = 0.2;
-    p.lambda2 = 0.1;
-    p.lambda3 = 0.1;
-    p.r_enter = 1.44;
-    p.r_leave = 2.5;
-    p.warmup = 15;
-    p.min_window = 6;
-    p.warmup_s = 0;
-    p.min_window_s = 0;
-    p.gross_sigmas = 3.0;
-    p.drift_t = 4.0;
-    p.drift_u = 2.0;
-    p.outlier_sigmas = 4.0;
-    p.no_distillate_t = 2.0;
-    return p;
+    return (stagecal_runlog_analysis_params){.lambda1 = 0.2,
+                                             .lambda2 = 0.1,
+                                             .lambda3 = 0.1,
+                                             .r_enter = 1.44,
+                                             .r_leave = 2.5,
+                                             .warmup = 15,
+                                             .min_window = 6,
+                                             .warmup_s = 0,
+                                             .min_window_s = 0,
+                                             .gross_sigmas = 3.0,
+                                             .drift_t = 4.0,
+                                             .drift_u = 2.0,
+                                             .outlier_sigmas = 4.0,
+                                             .no_distillate_t = 2.0};
 }
 
 int stagecal_runlog_rstat(const double *x, size_t n, double l1, double l2, double l3,

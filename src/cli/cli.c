@@ -10,6 +10,7 @@
 #include <stdarg.h>
 #include <stdlib.h>
 #include <string.h>
+#include <time.h>
 #include <unistd.h>
 #include <sys/stat.h>
 #include <getopt.h>
@@ -253,6 +254,37 @@ json_t *cli_run_json(const stagecal_runlog *log, size_t k, const stagecal_runlog
 json_t *cli_json_reflux(double r)
 {
     return isinf(r) ? json_string("inf") : json_real(r);
+}
+
+json_t *cli_json_doc_head(const char *format, double reflux, double f_factor, double level)
+{
+    json_t *doc = json_object();
+    json_object_set_new(doc, "format", json_string(format));
+    json_object_set_new(doc, "version", json_integer(1));
+    json_object_set_new(doc, "reflux", cli_json_reflux(reflux));
+    json_object_set_new(doc, "f_factor", cli_json_real(f_factor));
+    json_object_set_new(doc, "fload", cli_json_real(f_factor)); /* the name of version 1 */
+    json_object_set_new(doc, "level", json_real(level));
+    return doc;
+}
+
+void cli_format_day(double t_s, const char *nan_text, char *buf, size_t cap)
+{
+    if (!isfinite(t_s)) {
+        snprintf(buf, cap, "%s", isnan(t_s) ? nan_text : "open");
+        return;
+    }
+    time_t tt = (time_t)floor(t_s);
+    struct tm tm;
+    if (!gmtime_r(&tt, &tm) || strftime(buf, cap, "%Y-%m-%d", &tm) == 0)
+        snprintf(buf, cap, "?");
+}
+
+void cli_forecast_days(const stagecal_trend_forecast *fc, const char *nan_text, char day[3][32])
+{
+    cli_format_day(fc->t_cross_s, nan_text, day[0], 32);
+    cli_format_day(fc->low_s, nan_text, day[1], 32);
+    cli_format_day(fc->high_s, nan_text, day[2], 32);
 }
 
 void cli_print_caution(void)

@@ -17,6 +17,7 @@
 #include "stagecal/convention.h"
 #include "stagecal/error.h"
 #include "stagecal/runlog.h"
+#include "stagecal/trend.h"
 
 /* Exit codes (docs/cli.md). */
 #define CLI_EXIT_OK 0
@@ -93,6 +94,14 @@ json_t *cli_system_json(const cli_system *s);
 json_t *cli_run_json(const stagecal_runlog *log, size_t k, const stagecal_runlog_closure *cl);
 /* JSON for a reflux ratio: the string "inf" at total reflux, else a real. */
 json_t *cli_json_reflux(double r);
+/* A new JSON document opening with the fields hetp and trend share: "format", "version" 1,
+ * "reflux", "f_factor" (and its version-1 name "fload") and "level". */
+json_t *cli_json_doc_head(const char *format, double reflux, double f_factor, double level);
+/* The UTC day of t_s (Unix seconds) as YYYY-MM-DD; nan_text when t_s is NaN, "open" when
+ * it is infinite (an unbounded band end), "?" when it cannot be formatted. */
+void cli_format_day(double t_s, const char *nan_text, char *buf, size_t cap);
+/* The three days of a forecast (crossing, band low, band high) by cli_format_day. */
+void cli_forecast_days(const stagecal_trend_forecast *fc, const char *nan_text, char day[3][32]);
 
 /* What main prepares for a command and tidies after it (the flags of its table row). */
 typedef struct {

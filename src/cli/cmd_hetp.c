@@ -201,13 +201,8 @@ static json_t *equiv_json(const stagecal_hetp_equiv *q)
 static int print_json(const struct job *j)
 {
     const struct side *cur = &j->sd[j->nfiles - 1];
-    json_t *doc = json_object(), *models = json_array();
-    json_object_set_new(doc, "format", json_string("stagecal-hetp"));
-    json_object_set_new(doc, "version", json_integer(1));
-    json_object_set_new(doc, "reflux", cli_json_reflux(j->reflux));
-    json_object_set_new(doc, "f_factor", cli_json_real(j->fload));
-    json_object_set_new(doc, "fload", cli_json_real(j->fload)); /* the name of version 1 */
-    json_object_set_new(doc, "level", json_real(j->level));
+    json_t *doc = cli_json_doc_head("stagecal-hetp", j->reflux, j->fload, j->level);
+    json_t *models = json_array();
     json_object_set_new(doc, "units",
                         json_pack("{s:s, s:s, s:s, s:s}", "hetp", "m", "height", "m", "f_factor",
                                   "Pa^0.5", "fload", "Pa^0.5"));

@@ -58,20 +58,12 @@ struct options {
     int json;
 };
 
-static void format_day(double t_s, char *buf, size_t cap)
-{
-    time_t tt = (time_t)floor(t_s);
-    struct tm tm;
-    if (!isfinite(t_s) || !gmtime_r(&tt, &tm) || strftime(buf, cap, "%Y-%m-%d", &tm) == 0)
-        snprintf(buf, cap, "open");
-}
-
 static json_t *day_json(double t_s)
 {
     char b[32];
     if (!isfinite(t_s))
         return json_null();
-    format_day(t_s, b, sizeof b);
+    cli_format_day(t_s, "open", b, sizeof b);
     return json_string(b);
 }
 
@@ -87,6 +79,15 @@ static void est_text(const stagecal_history_estimate *e, int digits, int plus, c
     else
         snprintf(buf, cap, "%.*f [%.*f, %.*f] (%.1f dof)", digits, e->value, digits, e->low, digits,
                  e->high, e->dof);
+}
+
+/* One line: label, the estimate as est_text writes it, tail. */
+static void print_est(const char *label, const stagecal_history_estimate *e, int digits, int plus,
+                      const char *tail)
+{
+    char a[STAGECAL_HISTORY_REASON + 64];
+    est_text(e, digits, plus, a, sizeof a);
+    printf("%s%s%s\n", label, a, tail);
 }
 
 static json_t *est_json(const stagecal_history_estimate *e)
@@ -366,7 +367,7 @@ static int compute(struct result *res, struct options *o, char **logs, size_t nl
 static void print_text(const struct result *res, const struct options *o)
 {
     const stagecal_history_fit *f = &res->fit;
-    char a[STAGECAL_HISTORY_REASON + 64], d0[32], d1[32], d2[32];
+    char a[STAGECAL_HISTORY_REASON + 64], d0[32];
     int pct = (int)lround(o->level * 100);
     printf("history of column %s: %zu windows in %zu runs, form %s, at R = %g", res->cal.column->id,
            f->n, f->n_runs, f->form.name, o->reflux);
@@ -378,33 +379,29 @@ static void print_text(const struct result *res, const struct options *o)
                o->ex[k].reason);
     for (size_t s = 0; s < f->n_segments; s++) {
         const stagecal_history_segment *g = &f->segments[s];
-        format_day(g->origin_s, d0, sizeof d0);
+        cli_format_day(g->origin_s, "open", d0, sizeof d0);
         printf("segment %zu from %s", s + 1, d0);
         if (g->event >= 0)
             printf(" (%s%s%s)", stagecal_event_kind_name(res->ev[g->event].kind),
                    res->ev[g->event].note[0] ? ": " : "", res->ev[g->event].note);
         printf(": %zu windows, %zu runs\n", g->n_points, g->n_runs);
-        est_text(&g->start, 3, 0, a, sizeof a);
-        printf("  stages at its start: %s\n", a);
-        est_text(&g->loss, 4, 0, a, sizeof a);
-        printf("  loss: %s stages per month\n", a);
-        est_text(&g->rel_loss, 4, 0, a, sizeof a);
-        printf("  relative loss: %s per month\n", a);
+        print_est("  stages at its start: ", &g->start, 3, 0, "");
+        print_est("  loss: ", &g->loss, 4, 0, " stages per month");
+        print_est("  relative loss: ", &g->rel_loss, 4, 0, " per month");
     }
-    format_day(f->now_s, d0, sizeof d0);
+    cli_format_day(f->now_s, "open", d0, sizeof d0);
     est_text(&f->now, 3, 0, a, sizeof a);
     printf("stages now (%s): %s\n", d0, a);
     if (f->has_crossing) {
         const stagecal_trend_forecast *fc = &f->crossing;
-        format_day(fc->t_cross_s, d0, sizeof d0);
-        format_day(fc->low_s, d1, sizeof d1);
-        format_day(fc->high_s, d2, sizeof d2);
+        char day[3][32];
+        cli_forecast_days(fc, "open", day);
         if (fc->status == STAGECAL_FORECAST_NOT_DECLINING)
             printf("below %.3g stages: not forecast (the current segment is not declining)\n",
                    o->require);
         else
-            printf("below %.3g stages on %s%s, %d %% band %s to %s%s\n", o->require, d0,
-                   fc->past ? " (already past)" : "", pct, d1, d2,
+            printf("below %.3g stages on %s%s, %d %% band %s to %s%s\n", o->require, day[0],
+                   fc->past ? " (already past)" : "", pct, day[1], day[2],
                    fc->status == STAGECAL_FORECAST_UNBOUNDED
                        ? " (loss not significant: the band is open)"
                        : "");
@@ -414,14 +411,11 @@ static void print_text(const struct result *res, const struct options *o)
     }
     if (res->has_repack) {
         const stagecal_history_repack *r = &res->rp;
-        format_day(r->t_s, d0, sizeof d0);
+        cli_format_day(r->t_s, "open", d0, sizeof d0);
         printf("at the event of %s:\n", d0);
-        est_text(&r->before, 3, 0, a, sizeof a);
-        printf("  stages before: %s\n", a);
-        est_text(&r->after, 3, 0, a, sizeof a);
-        printf("  stages after:  %s\n", a);
-        est_text(&r->change, 3, 1, a, sizeof a);
-        printf("  change:        %s\n", a);
+        print_est("  stages before: ", &r->before, 3, 0, "");
+        print_est("  stages after:  ", &r->after, 3, 0, "");
+        print_est("  change:        ", &r->change, 3, 1, "");
         printf("  %s\n", res->eq_old.text);
         if (res->has_design)
             printf("  %s\n", res->eq_design.text);
@@ -431,7 +425,7 @@ static void print_text(const struct result *res, const struct options *o)
                "and CUSUM on Q statistics; in-control ARL 500 and 465 runs):\n");
         for (size_t k = 0; k < res->n_chart; k++) {
             const stagecal_chart_point *c = &res->chart[k];
-            format_day(res->chart_in[k].t_s, d0, sizeof d0);
+            cli_format_day(res->chart_in[k].t_s, "open", d0, sizeof d0);
             printf("  %s %-10s %7.3f", d0, res->chart_run[k], res->chart_in[k].value);
             if (c->started)
                 printf("  Q %+6.2f  EWMA %+6.3f  CUSUM -%5.2f/+%5.2f%s", c->q, c->ewma, c->cusum_lo,

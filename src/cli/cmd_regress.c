@@ -60,14 +60,13 @@ static json_t *ranking_json(const stagecal_regress_rank_row *rows, size_t nrows)
         json_t *o = json_pack("{s:s, s:s}", "form", r->form.name, "status",
                               r->status == STAGECAL_OK ? "ok" : "failed");
         if (r->status == STAGECAL_OK) {
-            json_object_set_new(o, "p", json_integer((json_int_t)r->p));
-            json_object_set_new(o, "aicc", cli_json_real(r->aicc));
-            json_object_set_new(o, "delta_aicc", cli_json_real(r->delta_aicc));
-            json_object_set_new(o, "akaike_weight", cli_json_real(r->akaike_weight));
-            json_object_set_new(o, "bic", cli_json_real(r->bic));
-            json_object_set_new(o, "rss", cli_json_real(r->rss));
-            json_object_set_new(o, "sigma", cli_json_real(r->sigma));
-            json_object_set_new(o, "r2", cli_json_real(r->r2));
+            json_object_update_new(
+                o,
+                json_pack("{s:I, s:o, s:o, s:o, s:o, s:o, s:o, s:o}", "p", (json_int_t)r->p, "aicc",
+                          cli_json_real(r->aicc), "delta_aicc", cli_json_real(r->delta_aicc),
+                          "akaike_weight", cli_json_real(r->akaike_weight), "bic",
+                          cli_json_real(r->bic), "rss", cli_json_real(r->rss), "sigma",
+                          cli_json_real(r->sigma), "r2", cli_json_real(r->r2)));
         } else {
             json_object_set_new(o, "message", json_string(r->message));
         }

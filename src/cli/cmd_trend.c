@@ -139,17 +139,6 @@ static int add_fit(struct column *col, const stagecal_model *m, const char *path
 
 /* Loads every model file of the column (stagecal_trend_dir_load), sets aside fits that
  * re-use a newer fit's run logs (unless all_fits), and evaluates the kept ones. */
-static void format_date(double t_s, char *buf, size_t cap)
-{
-    if (!isfinite(t_s)) {
-        snprintf(buf, cap, "%s", isnan(t_s) ? "-" : "open"); /* an unbounded band end */
-        return;
-    }
-    time_t tt = (time_t)floor(t_s);
-    struct tm tm;
-    if (!gmtime_r(&tt, &tm) || strftime(buf, cap, "%Y-%m-%d", &tm) == 0)
-        snprintf(buf, cap, "?");
-}
 
 /* Keeps in d only the fits that may be trended: not retired in the column's catalogue
  * (stagecal fits retire), and whose data period does not straddle a repack/maintenance
@@ -173,7 +162,7 @@ static int live_fits(stagecal_trend_dir *d, const struct reference *ref, const c
             cli_warn("%s: retired (%s); not trended", d->paths[i], e->reason);
         } else if (e && e->straddles >= 0) {
             char day[32];
-            format_date(ev[e->straddles].t_s, day, sizeof day);
+            cli_format_day(ev[e->straddles].t_s, "-", day, sizeof day);
             cli_warn("%s: its data period straddles the %s of %s: it mixes two beds; set aside "
                      "(fit the logs before and after separately)",
                      d->paths[i], stagecal_event_kind_name(ev[e->straddles].kind), day);
@@ -359,7 +348,7 @@ static void print_column(const struct column *col, const stagecal_trend_event *e
 {
     const stagecal_trend_history *h = &col->h;
     const double M = STAGECAL_TREND_MONTH_S;
-    char d[32], d1[32], d2[32];
+    char d[32];
     printf("column %s: %zu fits", col->id, h->n);
     if (col->n_sup > 0)
         printf(" (%zu more set aside: they share run logs with a newer fit)", col->n_sup);
@@ -380,7 +369,7 @@ static void print_column(const struct column *col, const stagecal_trend_event *e
         else if (x->has_hetp)
             snprintf(hetp, sizeof hetp, "%.3f (n.d.)", x->hetp.hetp_m);
         ci_text(x, ci, sizeof ci);
-        format_date(h->points[i].t_s, d, sizeof d);
+        cli_format_day(h->points[i].t_s, "-", d, sizeof d);
         printf("  %-10s %8.3f %19s %19s %3zu %+7.3f %s%s\n", d, h->points[i].value, ci, hetp,
                h->segment_of[i] + 1, c->ewma,
                c->alarm < 0   ? "LOSS"
@@ -392,7 +381,7 @@ static void print_column(const struct column *col, const stagecal_trend_event *e
            "interval reaches beyond the physical range; reasons in --json)\n");
     for (size_t s = 0; s < h->n_segments; s++) {
         const stagecal_trend_segment *g = &h->segments[s];
-        format_date(g->start_s, d, sizeof d);
+        cli_format_day(g->start_s, "-", d, sizeof d);
         printf("segment %zu from %s", s + 1, d);
         if (g->event >= 0)
             printf(" (%s%s%s)", stagecal_event_kind_name(ev[g->event].kind),
@@ -406,7 +395,7 @@ static void print_column(const struct column *col, const stagecal_trend_event *e
         else
             printf("  trend: needs at least 3 fits at different dates\n");
         if (g->first_alarm >= 0) {
-            format_date(h->points[g->first_alarm].t_s, d, sizeof d);
+            cli_format_day(h->points[g->first_alarm].t_s, "-", d, sizeof d);
             printf("  EWMA alarms: %zu, first on %s\n", g->n_alarms, d);
         } else {
             printf("  EWMA alarms: none\n");
@@ -417,15 +406,14 @@ static void print_column(const struct column *col, const stagecal_trend_event *e
                base_name(col->sup[i].by), col->sup[i].log_path);
     if (h->has_forecast) {
         const stagecal_trend_forecast *fc = &h->forecast;
-        format_date(fc->t_cross_s, d, sizeof d);
-        format_date(fc->low_s, d1, sizeof d1);
-        format_date(fc->high_s, d2, sizeof d2);
+        char day[3][32];
+        cli_forecast_days(fc, "-", day);
         if (fc->status == STAGECAL_FORECAST_NOT_DECLINING)
             printf("forecast: the current segment is not declining; no date below %.3g stages\n",
                    required);
         else
-            printf("forecast: below %.3g stages on %s%s, %d %% band %s to %s%s\n", required, d,
-                   fc->past ? " (already past)" : "", pct, d1, d2,
+            printf("forecast: below %.3g stages on %s%s, %d %% band %s to %s%s\n", required, day[0],
+                   fc->past ? " (already past)" : "", pct, day[1], day[2],
                    fc->status == STAGECAL_FORECAST_UNBOUNDED ? " (slope not significant: open)"
                                                              : "");
     } else if (!isnan(required)) {
@@ -440,7 +428,7 @@ static void print_fleet_row(const struct column *col, int pct)
     const stagecal_trend_segment *g = &h->segments[h->n_segments - 1];
     const struct extra *x = &col->ex[h->order[h->n - 1]];
     const double M = STAGECAL_TREND_MONTH_S;
-    char loss[48] = "-", fc[112] = "-", d[32], d1[32], d2[32];
+    char loss[48] = "-", fc[112] = "-";
     if (g->has_fit)
         snprintf(loss, sizeof loss, "%.3f [%.3f, %.3f]", -g->fit.b * M, -g->fit.b_high * M,
                  -g->fit.b_low * M);
@@ -448,10 +436,9 @@ static void print_fleet_row(const struct column *col, int pct)
         if (h->forecast.status == STAGECAL_FORECAST_NOT_DECLINING) {
             snprintf(fc, sizeof fc, "not declining");
         } else {
-            format_date(h->forecast.t_cross_s, d, sizeof d);
-            format_date(h->forecast.low_s, d1, sizeof d1);
-            format_date(h->forecast.high_s, d2, sizeof d2);
-            snprintf(fc, sizeof fc, "%s [%s, %s]", d, d1, d2);
+            char day[3][32];
+            cli_forecast_days(&h->forecast, "-", day);
+            snprintf(fc, sizeof fc, "%s [%s, %s]", day[0], day[1], day[2]);
         }
     }
     char ci[40];
@@ -463,13 +450,7 @@ static void print_fleet_row(const struct column *col, int pct)
 static int print_json(const struct column *cols, size_t ncol, const stagecal_trend_event *ev,
                       const struct reference *ref, const stagecal_trend_params *par)
 {
-    json_t *doc = json_object();
-    json_object_set_new(doc, "format", json_string("stagecal-trend"));
-    json_object_set_new(doc, "version", json_integer(1));
-    json_object_set_new(doc, "reflux", cli_json_reflux(ref->reflux));
-    json_object_set_new(doc, "f_factor", cli_json_real(ref->fload));
-    json_object_set_new(doc, "fload", cli_json_real(ref->fload)); /* the name of version 1 */
-    json_object_set_new(doc, "level", json_real(par->level));
+    json_t *doc = cli_json_doc_head("stagecal-trend", ref->reflux, ref->fload, par->level);
     json_object_set_new(doc, "required", cli_json_real(par->required));
     json_object_set_new(doc, "units",
                         json_pack("{s:s, s:s, s:s}", "stages", "stages, the pot included", "slope",
