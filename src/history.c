@@ -414,28 +414,50 @@ int stagecal_history_repack_at(const stagecal_history_fit *fit, size_t segment, 
     return STAGECAL_OK;
 }
 
+/* What the estimates and the forecast of fitted segment s start from: the form h at the
+ * stated condition and its gradient gh, a zeroed scratch vector g (both n_beta long, one
+ * allocation owned by g), the segment's parameter indices, its level m (1 when fixed by
+ * convention) and its loss rate k. */
+struct seg_at {
+    size_t P; /* n_beta */
+    double *g, *gh, h, m, k;
+    struct seg_idx ix;
+};
+
+static int segment_at(stagecal_history_fit *fit, size_t s, const stagecal_history_params *par,
+                      struct seg_at *a, stagecal_error *err)
+{
+    a->P = fit->n_beta;
+    a->g = calloc(2 * a->P, sizeof *a->g);
+    if (!a->g)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    a->gh = a->g + a->P;
+    int rc = form_at(fit, par->r_ref, par->f_ref, &a->h, a->gh, err);
+    if (rc) {
+        free(a->g);
+        return rc;
+    }
+    a->ix = seg_index(fit, s);
+    a->m = a->ix.m >= 0 ? fit->beta[a->ix.m] : 1.0;
+    a->k = fit->beta[a->ix.k];
+    return STAGECAL_OK;
+}
+
 /* Fills the four estimates of fitted segment s at the stated condition. */
 static int segment_estimates(stagecal_history_fit *fit, size_t s,
                              const stagecal_history_params *par, stagecal_error *err)
 {
     stagecal_history_segment *sg = &fit->segments[s];
-    size_t P = fit->n_beta;
-    double *g = calloc(2 * P, sizeof *g), *gh = g + P, h;
-    if (!g)
-        return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    int rc = form_at(fit, par->r_ref, par->f_ref, &h, gh, err);
-    if (rc) {
-        free(g);
+    struct seg_at a;
+    int rc = segment_at(fit, s, par, &a, err);
+    if (rc)
         return rc;
-    }
-    struct seg_idx ix = seg_index(fit, s);
-    double m = ix.m >= 0 ? fit->beta[ix.m] : 1.0, k = fit->beta[ix.k];
     double dof = (double)sg->n_runs - 1;
     /* level m_s */
-    memset(g, 0, P * sizeof *g);
-    if (ix.m >= 0) {
-        g[ix.m] = 1;
-        linear_estimate(fit, g, m, dof, &sg->level);
+    memset(a.g, 0, a.P * sizeof *a.g);
+    if (a.ix.m >= 0) {
+        a.g[a.ix.m] = 1;
+        linear_estimate(fit, a.g, a.m, dof, &sg->level);
         stagecal_history_check(&sg->level, 0, INFINITY, "level");
     } else { /* fixed by convention: exactly 1 */
         memset(&sg->level, 0, sizeof sg->level);
@@ -444,27 +466,27 @@ static int segment_estimates(stagecal_history_fit *fit, size_t s,
         sg->level.dof = dof;
     }
     /* k_s/m_s: the loss as a fraction of the segment's own starting level */
-    memset(g, 0, P * sizeof *g);
-    g[ix.k] = 1 / m;
-    if (ix.m >= 0)
-        g[ix.m] = -k / (m * m);
-    linear_estimate(fit, g, k / m, dof, &sg->rel_loss);
+    memset(a.g, 0, a.P * sizeof *a.g);
+    a.g[a.ix.k] = 1 / a.m;
+    if (a.ix.m >= 0)
+        a.g[a.ix.m] = -a.k / (a.m * a.m);
+    linear_estimate(fit, a.g, a.k / a.m, dof, &sg->rel_loss);
     stagecal_history_check(&sg->rel_loss, -1, 1, "relative loss rate");
     /* stages at τ = 0: h·m */
-    for (size_t j = 0; j < P; j++)
-        g[j] = gh[j] * m;
-    if (ix.m >= 0)
-        g[ix.m] = h;
-    linear_estimate(fit, g, h * m, dof, &sg->start);
+    for (size_t j = 0; j < a.P; j++)
+        a.g[j] = a.gh[j] * a.m;
+    if (a.ix.m >= 0)
+        a.g[a.ix.m] = a.h;
+    linear_estimate(fit, a.g, a.h * a.m, dof, &sg->start);
     stagecal_history_check(&sg->start, 1.0, INFINITY, "stages at the segment's start");
     /* loss h·k per month */
-    for (size_t j = 0; j < P; j++)
-        g[j] = gh[j] * k;
-    g[ix.k] = h;
-    linear_estimate(fit, g, h * k, dof, &sg->loss);
-    double span = fabs(h * m);
+    for (size_t j = 0; j < a.P; j++)
+        a.g[j] = a.gh[j] * a.k;
+    a.g[a.ix.k] = a.h;
+    linear_estimate(fit, a.g, a.h * a.k, dof, &sg->loss);
+    double span = fabs(a.h * a.m);
     stagecal_history_check(&sg->loss, -span, span, "loss rate");
-    free(g);
+    free(a.g);
     return STAGECAL_OK;
 }
 
@@ -474,17 +496,13 @@ static int crossing(stagecal_history_fit *fit, const stagecal_history_params *pa
 {
     size_t s = fit->current;
     const stagecal_history_segment *sg = &fit->segments[s];
-    size_t P = fit->n_beta;
-    double *ga = calloc(2 * P, sizeof *ga), *gb = ga + P, h;
-    if (!ga)
-        return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    int rc = form_at(fit, par->r_ref, par->f_ref, &h, ga, err);
-    if (rc) {
-        free(ga);
+    struct seg_at at;
+    int rc = segment_at(fit, s, par, &at, err);
+    if (rc)
         return rc;
-    }
-    struct seg_idx ix = seg_index(fit, s);
-    double m = ix.m >= 0 ? fit->beta[ix.m] : 1.0, k = fit->beta[ix.k];
+    size_t P = at.P;
+    double *ga = at.gh, *gb = at.g, h = at.h, m = at.m, k = at.k;
+    struct seg_idx ix = at.ix;
     /* A = h·m (value at τ = 0), B = h·k (loss per month): value(τ) = A − B·τ */
     for (size_t j = 0; j < fit->form.p; j++) {
         gb[j] = ga[j] * k;
@@ -507,7 +525,7 @@ static int crossing(stagecal_history_fit *fit, const stagecal_history_params *pa
     for (size_t a = 0; a < P; a++)
         ga[a] = h * k > 0 ? ga[a] - tau_hat * gb[a] : gb[a];
     double dof = fmin(history_bm_dof(fit->work, ga), (double)sg->n_runs - 1);
-    free(ga);
+    free(at.g);
     stagecal_trend_fit tf;
     memset(&tf, 0, sizeof tf);
     tf.n = sg->n_points;

@@ -87,13 +87,13 @@ int stagecal_units_parse(stagecal_quantity qty, const char *text, stagecal_unit 
         const struct unit_row *r = &unit_table[i];
         if (r->qty != qty || strcmp(r->text, text) != 0)
             continue;
-        u->qty = qty;
-        u->scale = r->scale;
-        u->offset = r->offset;
-        u->mass = r->mass;
-        u->iso8601 = r->iso8601;
-        u->lo = r->lo;
-        u->hi = r->hi;
+        *u = (stagecal_unit){.qty = qty,
+                             .scale = r->scale,
+                             .offset = r->offset,
+                             .mass = r->mass,
+                             .iso8601 = r->iso8601,
+                             .lo = r->lo,
+                             .hi = r->hi};
         snprintf(u->text, sizeof u->text, "%s", text);
         return STAGECAL_OK;
     }
