@@ -424,8 +424,8 @@ struct seg_at {
     struct seg_idx ix;
 };
 
-static int segment_at(stagecal_history_fit *fit, size_t s, const stagecal_history_params *par,
-                      struct seg_at *a, stagecal_error *err)
+static int segment_setup(stagecal_history_fit *fit, size_t s, const stagecal_history_params *par,
+                         struct seg_at *a, stagecal_error *err)
 {
     a->P = fit->n_beta;
     a->g = calloc(2 * a->P, sizeof *a->g);
@@ -449,7 +449,7 @@ static int segment_estimates(stagecal_history_fit *fit, size_t s,
 {
     stagecal_history_segment *sg = &fit->segments[s];
     struct seg_at a;
-    int rc = segment_at(fit, s, par, &a, err);
+    int rc = segment_setup(fit, s, par, &a, err);
     if (rc)
         return rc;
     double dof = (double)sg->n_runs - 1;
@@ -497,7 +497,7 @@ static int crossing(stagecal_history_fit *fit, const stagecal_history_params *pa
     size_t s = fit->current;
     const stagecal_history_segment *sg = &fit->segments[s];
     struct seg_at at;
-    int rc = segment_at(fit, s, par, &at, err);
+    int rc = segment_setup(fit, s, par, &at, err);
     if (rc)
         return rc;
     size_t P = at.P;
