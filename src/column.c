@@ -191,29 +191,25 @@ static int read_model(const rd *r, json_t *sys, stagecal_system *s, const stagec
     static const char *const k_nrtl[] = {"kind",    "source",    "tau12_a", "tau12_b_k",
                                          "tau21_a", "tau21_b_k", "alpha12", NULL};
     static const char *const k_vl[] = {"kind", "source", "a12", "a21", NULL};
-    stagecal_vle_kind kd;
-    const char *const *keys;
-    if (!strcmp(kind, "alpha"))
-        kd = STAGECAL_VLE_ALPHA, keys = k_alpha;
-    else if (!strcmp(kind, "kvalue"))
-        kd = STAGECAL_VLE_KVALUE, keys = k_k;
-    else if (!strcmp(kind, "table"))
-        kd = STAGECAL_VLE_TABLE, keys = k_tab;
-    else if (!strcmp(kind, "ideal"))
-        kd = STAGECAL_VLE_IDEAL, keys = k_ideal;
-    else if (!strcmp(kind, "wilson"))
-        kd = STAGECAL_VLE_WILSON, keys = k_wil;
-    else if (!strcmp(kind, "nrtl"))
-        kd = STAGECAL_VLE_NRTL, keys = k_nrtl;
-    else if (!strcmp(kind, "vanlaar"))
-        kd = STAGECAL_VLE_VANLAAR, keys = k_vl;
-    else if (!strcmp(kind, "margules"))
-        kd = STAGECAL_VLE_MARGULES, keys = k_vl;
-    else
+    static const struct {
+        const char *name;
+        stagecal_vle_kind kind;
+        const char *const *keys;
+    } kinds[] = {
+        {"alpha", STAGECAL_VLE_ALPHA, k_alpha},  {"kvalue", STAGECAL_VLE_KVALUE, k_k},
+        {"table", STAGECAL_VLE_TABLE, k_tab},    {"ideal", STAGECAL_VLE_IDEAL, k_ideal},
+        {"wilson", STAGECAL_VLE_WILSON, k_wil},  {"nrtl", STAGECAL_VLE_NRTL, k_nrtl},
+        {"vanlaar", STAGECAL_VLE_VANLAAR, k_vl}, {"margules", STAGECAL_VLE_MARGULES, k_vl}};
+    size_t ik = 0, nk = sizeof kinds / sizeof kinds[0];
+    while (ik < nk && strcmp(kind, kinds[ik].name) != 0)
+        ik++;
+    if (ik == nk)
         return jr_fail(&r->jr, "system.model.kind",
                        "'%s' is not one of alpha, kvalue, table, "
                        "ideal, wilson, nrtl, vanlaar, margules",
                        kind);
+    stagecal_vle_kind kd = kinds[ik].kind;
+    const char *const *keys = kinds[ik].keys;
     *need_ant = kd >= STAGECAL_VLE_IDEAL;
     if (phase == 0) /* first pass: only learn whether Antoine sets are required */
         return STAGECAL_OK;

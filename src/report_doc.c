@@ -1,0 +1,484 @@
+/*
+ * report_doc.c — the report of a model file (see stagecal/report.h): the sections, the
+ * charts (fit, residuals, one per stated condition) and the warnings assembled from a
+ * model and the points it was fitted to; report.c renders them as HTML.
+ */
+#include "stagecal/report.h"
+
+#include <math.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "stagecal/stages.h"
+#include "stagecal/version.h"
+#include "stagecal/vle.h"
+#include "fileio.h"
+#include "internal.h"
+
+#define DOC_MAX_ITEMS 24
+#define DOC_MAX_FIGS 4  /* fit, residuals, condition */
+#define DOC_GRID 121    /* points of the fitted curve */
+#define DOC_MAX_WARN 40 /* warnings listed (model's + points outside the envelope) */
+
+struct stagecal_report_doc {
+    stagecal_report rep;
+    char **strs; /* every string the report points at */
+    size_t n_strs, cap_strs;
+    int oom;
+    stagecal_report_item job[DOC_MAX_ITEMS], summary[DOC_MAX_ITEMS], hetp[DOC_MAX_ITEMS],
+        cond[DOC_MAX_ITEMS];
+    stagecal_report_table inputs, fit, points;
+    const char *in_head[3], *fit_head[4], *pt_head[4];
+    const char **in_cells, **fit_cells, **pt_cells, **warn;
+    stagecal_report_figure figs[DOC_MAX_FIGS];
+    stagecal_plot_chart *charts[DOC_MAX_FIGS];
+    size_t n_charts;
+};
+
+static const char *doc_str(stagecal_report_doc *d, const char *fmt, ...) SC_PRINTF(2, 3);
+static const char *doc_str(stagecal_report_doc *d, const char *fmt, ...)
+{
+    if (d->oom)
+        return "";
+    if (d->n_strs == d->cap_strs) {
+        size_t cap = d->cap_strs ? 2 * d->cap_strs : 64;
+        char **p = realloc(d->strs, cap * sizeof *p);
+        if (!p) {
+            d->oom = 1;
+            return "";
+        }
+        d->strs = p;
+        d->cap_strs = cap;
+    }
+    va_list ap;
+    va_start(ap, fmt);
+    int n = vsnprintf(NULL, 0, fmt, ap);
+    va_end(ap);
+    char *s = n >= 0 ? malloc((size_t)n + 1) : NULL;
+    if (!s) {
+        d->oom = 1;
+        return "";
+    }
+    va_start(ap, fmt);
+    vsnprintf(s, (size_t)n + 1, fmt, ap);
+    va_end(ap);
+    d->strs[d->n_strs++] = s;
+    return s;
+}
+
+void stagecal_report_doc_free(stagecal_report_doc *d)
+{
+    if (!d)
+        return;
+    for (size_t i = 0; i < d->n_strs; i++)
+        free(d->strs[i]);
+    free(d->strs);
+    free(d->in_cells);
+    free(d->fit_cells);
+    free(d->pt_cells);
+    free(d->warn);
+    for (size_t i = 0; i < d->n_charts; i++)
+        stagecal_plot_chart_free(d->charts[i]);
+    free(d);
+}
+
+const stagecal_report *stagecal_report_doc_content(const stagecal_report_doc *d)
+{
+    return d ? &d->rep : NULL;
+}
+
+const stagecal_plot_chart *stagecal_report_doc_chart(const stagecal_report_doc *d, size_t k)
+{
+    return d && k < d->n_charts ? d->charts[k] : NULL;
+}
+
+static const char *fmt_r(stagecal_report_doc *d, double r)
+{
+    return isinf(r) ? "inf (total reflux)" : doc_str(d, "%.4g", r);
+}
+
+static void add_item(stagecal_report_item *items, size_t *n, const char *key, const char *value)
+{
+    if (*n < DOC_MAX_ITEMS) {
+        items[*n].key = key;
+        items[*n].value = value;
+        (*n)++;
+    }
+}
+
+static void add_warning(stagecal_report_doc *d, const char *w)
+{
+    if (d->rep.n_warnings < DOC_MAX_WARN)
+        d->warn[d->rep.n_warnings++] = w;
+}
+
+/* Curve of the model against R with bands; NAN where the form is undefined. */
+static int doc_fit_chart(stagecal_report_doc *d, const stagecal_model *m,
+                         const stagecal_regress_data *pts, double f_mid, stagecal_error *err)
+{
+    double grid[DOC_GRID], fit[DOC_GRID], clo[DOC_GRID], chi[DOC_GRID], plo[DOC_GRID],
+        phi[DOC_GRID];
+    double hi = isfinite(m->r_max) ? m->r_max : fmax(3 * m->r_min, 1.0);
+    for (size_t i = 0; pts && i < pts->n; i++)
+        if (isfinite(pts->r[i]))
+            hi = fmax(hi, pts->r[i]);
+    hi *= 1.25;
+    double lo = 0.5 * m->r_min;
+    for (size_t i = 0; i < DOC_GRID; i++) {
+        stagecal_model_point p;
+        grid[i] = lo + (hi - lo) * (double)i / (DOC_GRID - 1);
+        if (stagecal_model_eval(m, grid[i], f_mid, 0, &p, NULL) == STAGECAL_OK) {
+            fit[i] = p.stages, clo[i] = p.ci_low, chi[i] = p.ci_high;
+            plo[i] = p.pi_low, phi[i] = p.pi_high;
+        } else {
+            fit[i] = clo[i] = chi[i] = plo[i] = phi[i] = NAN;
+        }
+    }
+    size_t *grp = NULL;
+    stagecal_plot_fit_data fd = {"reflux ratio R [-]",
+                                 pts ? pts->r : NULL,
+                                 pts ? pts->stages : NULL,
+                                 grp,
+                                 pts ? pts->n : 0,
+                                 NULL,
+                                 1,
+                                 grid,
+                                 fit,
+                                 clo,
+                                 chi,
+                                 plo,
+                                 phi,
+                                 DOC_GRID,
+                                 m->r_min,
+                                 isfinite(m->r_max) ? m->r_max : NAN,
+                                 m->level,
+                                 NULL};
+    static const char *const pts_name[1] = {"points file"};
+    fd.group_names = pts ? pts_name : NULL;
+    int rc = stagecal_plot_fit(&fd, &d->charts[d->n_charts], err);
+    if (rc)
+        return rc;
+    d->figs[d->n_charts].chart = d->charts[d->n_charts];
+    d->figs[d->n_charts].caption =
+        m->form.uses_load
+            ? doc_str(d,
+                      "Fitted stages against reflux ratio at F = %.3g Pa^0.5 (middle of the "
+                      "fitted load range), with %.0f %% confidence and prediction bands and the "
+                      "fitted envelope.",
+                      f_mid, 100 * m->level)
+            : doc_str(d,
+                      "Fitted stages against reflux ratio with %.0f %% confidence and prediction "
+                      "bands and the fitted envelope.",
+                      100 * m->level);
+    d->n_charts++;
+    return STAGECAL_OK;
+}
+
+static int doc_resid_chart(stagecal_report_doc *d, const stagecal_model *m,
+                           const stagecal_regress_data *pts, stagecal_error *err)
+{
+    double *fitted = malloc(pts->n * sizeof *fitted), *res = malloc(pts->n * sizeof *res);
+    int rc = STAGECAL_OK;
+    if (!fitted || !res) {
+        free(fitted);
+        free(res);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    for (size_t i = 0; i < pts->n; i++) {
+        stagecal_model_point p;
+        double f = pts->f_load ? pts->f_load[i] : NAN;
+        if (stagecal_model_eval(m, pts->r[i], f, 0, &p, NULL) == STAGECAL_OK) {
+            fitted[i] = p.stages;
+            res[i] = pts->stages[i] - p.stages;
+        } else {
+            fitted[i] = res[i] = NAN;
+        }
+    }
+    stagecal_plot_resid_data rd = {fitted, res, NULL, NULL, pts->n, NULL, 1, NULL};
+    rc = stagecal_plot_resid(&rd, &d->charts[d->n_charts], err);
+    if (rc == STAGECAL_OK) {
+        d->figs[d->n_charts].chart = d->charts[d->n_charts];
+        d->figs[d->n_charts].caption =
+            "Residuals (points file minus the correlation) against fitted stages.";
+        d->n_charts++;
+    }
+    free(fitted);
+    free(res);
+    return rc;
+}
+
+int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_data *pts,
+                               stagecal_report_doc **out, stagecal_error *err)
+{
+    int rc;
+    if (!m || !out)
+        return error_set(err, STAGECAL_EINVAL, "report: missing model or output pointer");
+    *out = NULL;
+    if ((rc = stagecal_model_check(m, err)))
+        return rc;
+    stagecal_report_doc *d = calloc(1, sizeof *d);
+    if (!d)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    size_t p = m->form.p;
+    d->in_cells = calloc(3 * (m->n_inputs + 1), sizeof *d->in_cells);
+    d->fit_cells = calloc(4 * p, sizeof *d->fit_cells);
+    d->warn = calloc(DOC_MAX_WARN, sizeof *d->warn);
+    d->pt_cells = calloc(4 * (pts ? pts->n : 0) + 1, sizeof *d->pt_cells);
+    if (!d->in_cells || !d->fit_cells || !d->warn || !d->pt_cells) {
+        stagecal_report_doc_free(d);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    stagecal_report *r = &d->rep;
+    r->title = doc_str(d, "Stage calibration report \xe2\x80\x94 %s", m->column_id);
+    r->subtitle = doc_str(d, "column %s \xc2\xb7 fitted %s by stagecal %s", m->column_id,
+                          m->fitted_utc, m->tool_version);
+
+    size_t nj = 0;
+    add_item(d->job, &nj, "column", m->column_id);
+    add_item(d->job, &nj, "system",
+             doc_str(d, "%s / %s, equilibrium model '%s'", m->light, m->heavy, m->vle_kind));
+    for (size_t i = 0; i < m->n_vle_params; i++) {
+        const stagecal_model_vle_param *vp = &m->vle_params[i];
+        add_item(d->job, &nj, doc_str(d, "  %s", vp->name),
+                 vp->n == 1 ? doc_str(d, "%.6g", vp->values[0])
+                            : doc_str(d, "%zu values (%.6g \xe2\x80\xa6 %.6g)", vp->n,
+                                      vp->values[0], vp->values[vp->n - 1]));
+    }
+    add_item(d->job, &nj, "stage convention", stagecal_convention_text(m->condenser));
+    add_item(d->job, &nj, "correlation", m->form.name);
+    add_item(d->job, &nj, "fit method", stagecal_model_method_name(m->method));
+    add_item(d->job, &nj, "evidence",
+             doc_str(d, "%zu quasi-steady windows from %zu runs (%zu samples)", m->n_windows,
+                     m->n_runs, m->n_samples));
+    add_item(d->job, &nj, "fitted",
+             doc_str(d, "%s, stagecal %s, seed %llu", m->fitted_utc, m->tool_version, m->seed));
+    if (m->command_line)
+        add_item(d->job, &nj, "command line", m->command_line);
+    r->job = d->job;
+    r->n_job = nj;
+
+    if (m->n_inputs > 0) {
+        d->in_head[0] = "input file", d->in_head[1] = "SHA-256", d->in_head[2] = "rows";
+        for (size_t i = 0; i < m->n_inputs; i++) {
+            d->in_cells[3 * i] = m->inputs[i].path;
+            d->in_cells[3 * i + 1] = m->inputs[i].sha256;
+            d->in_cells[3 * i + 2] = doc_str(d, "%zu", m->inputs[i].rows);
+        }
+        d->inputs = (stagecal_report_table){"Inputs (data provenance)", d->in_head, 3, d->in_cells,
+                                            m->n_inputs};
+        r->inputs = &d->inputs;
+    }
+
+    /* fit table: t quantile at the model's level from stagecal_model_eval (any point) */
+    stagecal_model_point p0;
+    double f_mid = m->has_load ? 0.5 * (m->f_min + m->f_max) : NAN;
+    double r_ref = isfinite(m->r_max) ? 0.5 * (m->r_min + m->r_max) : fmax(m->r_min, 1.0);
+    if ((rc = stagecal_model_eval(m, r_ref, f_mid, 0, &p0, err))) {
+        stagecal_report_doc_free(d);
+        return rc;
+    }
+    d->fit_head[0] = "parameter", d->fit_head[1] = "value", d->fit_head[2] = "std. error";
+    d->fit_head[3] = doc_str(d, "%.0f %% interval", 100 * m->level);
+    for (size_t i = 0; i < p; i++) {
+        double se = sqrt(fmax(m->cov[i * p + i], 0));
+        d->fit_cells[4 * i] = m->form.param_names[i];
+        d->fit_cells[4 * i + 1] = doc_str(d, "%.6g", m->theta[i]);
+        d->fit_cells[4 * i + 2] = doc_str(d, "%.3g", se);
+        d->fit_cells[4 * i + 3] =
+            doc_str(d, "[%.6g, %.6g]", m->theta[i] - p0.t * se, m->theta[i] + p0.t * se);
+    }
+    d->fit = (stagecal_report_table){doc_str(d, "Parameters of '%s'", m->form.name), d->fit_head, 4,
+                                     d->fit_cells, p};
+    r->fit = &d->fit;
+    size_t ns = 0;
+    add_item(d->summary, &ns, "residual \xcf\x83",
+             doc_str(d, "%.4g stages, %.4g degrees of freedom", m->sigma, m->dof));
+    add_item(d->summary, &ns, "envelope: R",
+             doc_str(d, "%s \xe2\x80\x93 %s", fmt_r(d, m->r_min), fmt_r(d, m->r_max)));
+    if (m->has_load)
+        add_item(d->summary, &ns, "envelope: F",
+                 doc_str(d, "%.4g \xe2\x80\x93 %.4g Pa^0.5", m->f_min, m->f_max));
+    add_item(d->summary, &ns, "evidence",
+             doc_str(d, "%zu independent windows (the unit of evidence)", m->n_windows));
+    r->fit_summary = d->summary;
+    r->n_fit_summary = ns;
+
+    if (m->has_hetp) {
+        size_t nh = 0;
+        add_item(d->hetp, &nh, "packed height", doc_str(d, "%.4g m", m->height_m));
+        add_item(d->hetp, &nh, "reference condition",
+                 m->has_load ? doc_str(d, "R = %s, F = %.4g Pa^0.5", fmt_r(d, m->hetp_r), m->hetp_f)
+                             : doc_str(d, "R = %s", fmt_r(d, m->hetp_r)));
+        add_item(d->hetp, &nh, "HETP",
+                 isfinite(m->hetp_high_m)
+                     ? doc_str(d, "%.4g m (%.0f %% interval %.4g \xe2\x80\x93 %.4g m)", m->hetp_m,
+                               100 * m->hetp_level, m->hetp_low_m, m->hetp_high_m)
+                     : doc_str(d, "%.4g m (%.0f %% interval from %.4g m, unbounded above)",
+                               m->hetp_m, 100 * m->hetp_level, m->hetp_low_m));
+        r->hetp = d->hetp;
+        r->n_hetp = nh;
+    }
+
+    if (pts && pts->n > 0) {
+        /* the points as numbers: for a calibration, each window's stage count and standard
+         * error (the evidence module's, as in invert --json and --points-out) */
+        d->pt_head[0] = "R [-]", d->pt_head[1] = "F [Pa^0.5]", d->pt_head[2] = "stages [-]";
+        d->pt_head[3] = "std. error [-]";
+        for (size_t i = 0; i < pts->n; i++) {
+            d->pt_cells[4 * i] = fmt_r(d, pts->r[i]);
+            d->pt_cells[4 * i + 1] = pts->f_load ? doc_str(d, "%.4g", pts->f_load[i]) : NULL;
+            d->pt_cells[4 * i + 2] = doc_str(d, "%.4f", pts->stages[i]);
+            d->pt_cells[4 * i + 3] = pts->sigma ? doc_str(d, "%.4f", pts->sigma[i]) : NULL;
+        }
+        d->points = (stagecal_report_table){
+            "Points of the fit (from a calibration: one per quasi-steady window)", d->pt_head, 4,
+            d->pt_cells, pts->n};
+        r->windows = &d->points;
+    }
+    for (size_t i = 0; i < m->n_warnings; i++)
+        add_warning(d, m->warnings[i]);
+    size_t outside = 0;
+    for (size_t i = 0; pts && i < pts->n; i++) {
+        stagecal_model_point q;
+        double f = pts->f_load ? pts->f_load[i] : f_mid;
+        if (stagecal_model_eval(m, pts->r[i], f, 0, &q, NULL) == STAGECAL_OK && q.extrapolated) {
+            if (outside++ < 10)
+                add_warning(d, doc_str(d,
+                                       "point %zu (R = %s) lies outside the fitted envelope: "
+                                       "the correlation is extrapolated there",
+                                       i + 1, fmt_r(d, pts->r[i])));
+        }
+    }
+    if (outside > 10)
+        add_warning(d, doc_str(d, "%zu more points lie outside the fitted envelope", outside - 10));
+    r->warnings = d->warn;
+
+    rc = doc_fit_chart(d, m, pts, f_mid, err);
+    if (rc == STAGECAL_OK && pts && pts->n > 0)
+        rc = doc_resid_chart(d, m, pts, err);
+    if (rc == STAGECAL_OK && d->oom)
+        rc = error_set(err, STAGECAL_ENOMEM, "out of memory building the report");
+    if (rc) {
+        stagecal_report_doc_free(d);
+        return rc;
+    }
+    r->figures = d->figs;
+    r->n_figures = d->n_charts;
+    *out = d;
+    return STAGECAL_OK;
+}
+
+/* xB reached by stepping `stages` equilibrium stages below xd; the status text otherwise. */
+static const char *doc_step_xb(stagecal_report_doc *d, const stagecal_vle *vle, double xd,
+                               double reflux, double stages, double *xb, stagecal_error *err,
+                               int *rc)
+{
+    stagecal_stages_params par = stagecal_stages_default_params();
+    int status = STAGECAL_STAGES_OK;
+    size_t len = 0;
+    stagecal_error e2;
+    stagecal_error_clear(&e2);
+    *xb = NAN;
+    *rc = stagecal_stages_step(vle, xd, reflux, fmax(stages, 1.0), 1.0, &par, xb, NULL, 0, &len,
+                               &status, &e2);
+    if (*rc != STAGECAL_OK) {
+        if (err)
+            *err = e2;
+        return NULL;
+    }
+    if (status != STAGECAL_STAGES_OK) {
+        *xb = NAN;
+        return doc_str(d, "not reached: stepping gave %s (%s)", stagecal_stages_status_name(status),
+                       e2.text);
+    }
+    return doc_str(d, "%.4f", *xb);
+}
+
+int stagecal_report_doc_add_condition(stagecal_report_doc *d, const stagecal_model *m,
+                                      const stagecal_vle *given, double xd, double reflux,
+                                      double fload, stagecal_error *err)
+{
+    if (!d || !m)
+        return error_set(err, STAGECAL_EINVAL, "report condition: missing document or model");
+    if (d->rep.n_condition > 0)
+        return error_set(err, STAGECAL_EINVAL, "report condition: the document has one already");
+    if (!(xd > 0 && xd < 1))
+        return error_set(err, STAGECAL_EINVAL,
+                         "report condition: xD %g outside (0, 1) (expected a mole fraction)", xd);
+    if (!(reflux >= 0))
+        return error_set(err, STAGECAL_EINVAL,
+                         "report condition: reflux ratio %g (expected R >= 0 or inf)", reflux);
+    if (m->form.uses_load && !(fload >= 0 && isfinite(fload)))
+        return error_set(err, STAGECAL_EINVAL,
+                         "report condition: the form '%s' uses the vapour load (expected an "
+                         "F-factor >= 0 in Pa^0.5)",
+                         m->form.name);
+    if (!m->form.uses_load && !isnan(fload))
+        return error_set(err, STAGECAL_EINVAL,
+                         "report condition: the form '%s' does not use the vapour load (expected "
+                         "no F-factor)",
+                         m->form.name);
+    if (d->n_charts >= DOC_MAX_FIGS)
+        return error_set(err, STAGECAL_EINVAL, "report condition: no room for another figure");
+    stagecal_model_point p;
+    int rc = stagecal_model_eval(m, reflux, fload, 0, &p, err);
+    if (rc)
+        return rc;
+    stagecal_vle *own = NULL;
+    if (!given && (rc = stagecal_model_build_vle(m, &own, err)))
+        return rc;
+    const stagecal_vle *vle = given ? given : own;
+
+    size_t n = 0;
+    stagecal_report_item *it = d->cond;
+    const char *at = m->form.uses_load ? doc_str(d, "R = %s, F = %.4g Pa^0.5, xD = %.4f",
+                                                 fmt_r(d, reflux), fload, xd)
+                                       : doc_str(d, "R = %s, xD = %.4f", fmt_r(d, reflux), xd);
+    add_item(it, &n, "condition", at);
+    add_item(it, &n, "stages (the pot included)",
+             doc_str(d, "%.3f (%.0f %% prediction interval %.3f \xe2\x80\x93 %.3f)", p.stages,
+                     100 * m->level, p.pi_low, p.pi_high));
+    double xb = NAN, xb_lo = NAN, xb_hi = NAN;
+    const char *txt = doc_step_xb(d, vle, xd, reflux, p.stages, &xb, err, &rc);
+    if (txt) /* more stages reach a leaner pot: the interval's high end gives the low xB */
+        add_item(it, &n, "pot composition reached, xB", txt);
+    const char *t_lo = txt ? doc_step_xb(d, vle, xd, reflux, p.pi_high, &xb_lo, err, &rc) : NULL;
+    const char *t_hi = t_lo ? doc_step_xb(d, vle, xd, reflux, p.pi_low, &xb_hi, err, &rc) : NULL;
+    if (t_lo && t_hi)
+        add_item(it, &n, "xB over the prediction interval",
+                 isfinite(xb_lo) && isfinite(xb_hi)
+                     ? doc_str(d, "%.4f \xe2\x80\x93 %.4f", xb_lo, xb_hi)
+                     : doc_str(d, "%s \xe2\x80\x93 %s", t_lo, t_hi));
+    add_item(it, &n, "inside the fitted envelope", p.extrapolated ? "no (extrapolated)" : "yes");
+    if (p.extrapolated)
+        add_warning(d, doc_str(d,
+                               "the stated condition (%s) lies outside the fitted envelope: "
+                               "its stage count is extrapolated",
+                               at));
+    if (rc == STAGECAL_OK && isfinite(xb)) {
+        rc = stagecal_plot_mccabe_condition(vle, xd, NAN, reflux, p.stages, 1.0,
+                                            &d->charts[d->n_charts], err);
+        if (rc == STAGECAL_OK) {
+            d->figs[d->n_charts].chart = d->charts[d->n_charts];
+            d->figs[d->n_charts].caption =
+                doc_str(d,
+                        "McCabe\xe2\x80\x93Thiele stepping of the model's %.3f stages at %s on the "
+                        "model's equilibrium (E_MV = 1): the pot reaches xB = %.4f.",
+                        p.stages, at, xb);
+            d->n_charts++;
+        }
+    }
+    stagecal_vle_free(own);
+    if (rc == STAGECAL_OK && d->oom)
+        rc = error_set(err, STAGECAL_ENOMEM, "out of memory building the report");
+    if (rc)
+        return rc;
+    d->rep.condition = d->cond;
+    d->rep.n_condition = n;
+    d->rep.figures = d->figs;
+    d->rep.n_figures = d->n_charts;
+    d->rep.warnings = d->warn;
+    return STAGECAL_OK;
+}
