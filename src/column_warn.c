@@ -35,10 +35,12 @@ static void antoine_warning(stagecal_column *col)
             len += (size_t)k;
     }
     char text[STAGECAL_COLUMN_WARNING_MAX];
-    snprintf(text, sizeof text,
-             "column %s: the bubble curve at %.6g kPa spans [%.2f, %.2f] K, outside the stated "
-             "range of the Antoine set of %s; results are computed with it anyway",
-             col->id, stagecal_vle_pressure(vle) / 1000.0, lo, hi, sets);
+    /* A warning longer than its slot is cut, not refused (the names are bounded). */
+    if (snprintf(text, sizeof text,
+                 "column %s: the bubble curve at %.6g kPa spans [%.2f, %.2f] K, outside the stated "
+                 "range of the Antoine set of %s; results are computed with it anyway",
+                 col->id, stagecal_vle_pressure(vle) / 1000.0, lo, hi, sets) < 0)
+        return;
     memcpy(col->warnings[col->n_warnings++], text, sizeof text);
 }
 
