@@ -28,6 +28,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "evidence_internal.h"
 #include "internal.h"
 #include "stagecal/stages.h"
 
@@ -453,6 +454,16 @@ int stagecal_evidence_window_stats(stagecal_evidence *ev, size_t nev, double u_x
     return rc ? rc : analyser_stats(ev, nev, 1, u_xb, err);
 }
 
+/* The inversion under the window's conditions (physics.h), or the plain one. */
+static int window_invert(const stagecal_vle *vle, double murphree, const stagecal_evidence *ev,
+                         double xd, double xb, const stagecal_stages_params *sp,
+                         stagecal_stages_result *res, stagecal_error *err)
+{
+    if (ev->cond)
+        return stagecal_physics_invert(ev->cond, xd, xb, murphree, sp, res, err);
+    return stagecal_stages_invert(vle, xd, xb, ev->r, murphree, sp, res, err);
+}
+
 int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_evidence *ev,
                              stagecal_error *err)
 {
@@ -465,7 +476,7 @@ int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_
     ev->se_stages = 0;
     if (!(ev->xd > 0 && ev->xd < 1 && ev->xb > 0 && ev->xb < ev->xd))
         return STAGECAL_OK;
-    if ((rc = stagecal_stages_invert(vle, ev->xd, ev->xb, ev->r, murphree, &sp, &res, err)))
+    if ((rc = window_invert(vle, murphree, ev, ev->xd, ev->xb, &sp, &res, err)))
         return rc;
     if (res.status != STAGECAL_STAGES_OK)
         return STAGECAL_OK;
@@ -485,7 +496,7 @@ int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_
         for (size_t j = 0; j < m; j++) {
             if (!(sd[j] > 0 && sd[j] < 1 && sb[j] > 0 && sb[j] < sd[j]))
                 return STAGECAL_OK;
-            if ((rc = stagecal_stages_invert(vle, sd[j], sb[j], ev->r, murphree, &sp, &res, err)))
+            if ((rc = window_invert(vle, murphree, ev, sd[j], sb[j], &sp, &res, err)))
                 return rc;
             if (res.status != STAGECAL_STAGES_OK)
                 return STAGECAL_OK;
@@ -533,6 +544,8 @@ stagecal_evidence_params stagecal_evidence_default_params(void)
     p.max_samples = 24;
     p.min_ok = 3;
     p.noise = STAGECAL_EVIDENCE_NOISE_LINE_POOLED;
+    p.holdup = STAGECAL_EVIDENCE_HOLDUP_AUTO;
+    p.physics = 1;
     return p;
 }
 
@@ -540,6 +553,7 @@ void stagecal_evidence_set_free(stagecal_evidence_set *set)
 {
     if (!set)
         return;
+    evidence_physics_free(set);
     free(set->ev);
     free(set->samples);
     memset(set, 0, sizeof *set);
@@ -579,9 +593,10 @@ static size_t thin_samples(const double *t, const double *xd, const double *xb, 
 /* Window w's means, load and carried samples into e; 1 when the window is evidence (at
  * least 3 finite compositions of each analyser). t, xd, xb, f are scratch of the
  * window's length; s_* receive the carried samples. */
-static int window_summary(const stagecal_runlog *log, const stagecal_runlog_result *res,
-                          const stagecal_uncertainty *u, size_t k, size_t cap, double *t,
-                          double *xd, double *xb, double *f, double *s, stagecal_evidence *e)
+static int window_summary(const stagecal_runlog *log, const double *xd_src,
+                          const stagecal_runlog_result *res, const stagecal_uncertainty *u,
+                          size_t k, size_t cap, double *t, double *xd, double *xb, double *f,
+                          double *s, stagecal_evidence *e)
 {
     const stagecal_runlog_window *w = &res->windows[k];
     size_t len = w->last - w->first + 1, nok = 0, nf = 0, ncd = 0, ncb = 0;
@@ -593,8 +608,9 @@ static int window_summary(const stagecal_runlog *log, const stagecal_runlog_resu
         ncb += log->xb_cens[i] != STAGECAL_CENSOR_NONE;
         t[j] = log->t_s[i];
         /* a censored reading is not a value: left out of the window's mean until the
-         * fit takes it as a censored observation (docs/runlog.md) */
-        xd[j] = outlier || log->xd_cens[i] ? NAN : log->xd[i];
+         * fit takes it as a censored observation (docs/runlog.md); xD is the
+         * holdup-compensated one (evidence_physics.c) */
+        xd[j] = outlier || log->xd_cens[i] ? NAN : xd_src[i];
         xb[j] = outlier || log->xb_cens[i] ? NAN : log->xb[i];
         f[j] = res->f_factor[i];
         if (!outlier && res->status[i] == STAGECAL_STAGES_OK)
@@ -654,16 +670,24 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
     set->ev = calloc(nw ? nw : 1, sizeof *set->ev);
     set->samples = malloc((nw ? nw : 1) * 3 * cap * sizeof *set->samples);
     double *buf = malloc((maxlen ? maxlen : 1) * 4 * sizeof *buf);
-    if (!set->ev || !buf || !set->samples) {
-        free(buf);
+    double *xd_src = malloc((log->n ? log->n : 1) * 2 * sizeof *xd_src), *u2 = xd_src + log->n;
+    if (!set->ev || !buf || !set->samples || !xd_src) {
+        free(buf), free(xd_src);
         stagecal_evidence_set_free(set);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
-    for (size_t k = 0; k < nw; k++)
-        if (window_summary(log, res, &col->u, k, cap, buf, buf + maxlen, buf + 2 * maxlen,
+    int rc = evidence_holdup(log, col, &par, set, xd_src, u2, err);
+    for (size_t k = 0; k < nw && rc == STAGECAL_OK; k++)
+        if (window_summary(log, xd_src, res, &col->u, k, cap, buf, buf + maxlen, buf + 2 * maxlen,
                            buf + 3 * maxlen, set->samples + 3 * cap * set->n, &set->ev[set->n]))
             set->n++;
     free(buf);
+    if (rc == STAGECAL_OK && par.physics)
+        rc = evidence_conditions(log, col, set, err);
+    if (rc != STAGECAL_OK) {
+        free(xd_src);
+        return rc;
+    }
     /* One ρ per analyser for all windows (docs/calibration.md §3), then the stage counts,
      * which propagate the standard errors. */
     if (par.noise == STAGECAL_EVIDENCE_NOISE_LINE_POOLED)
@@ -673,16 +697,22 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
         /* n_eff of the pot analyser series: how many independent samples the window holds */
         e->n_eff = fmax(1.0, (double)e->m_xb * (1 - e->rho_xb) / (1 + e->rho_xb));
     }
-    int rc = par.noise == STAGECAL_EVIDENCE_NOISE_SMOOTHER
-                 ? stagecal_evidence_window_stats(set->ev, set->n, col->u.xd, col->u.xb, err)
-                 : STAGECAL_OK;
+    rc = par.noise == STAGECAL_EVIDENCE_NOISE_SMOOTHER
+             ? stagecal_evidence_window_stats(set->ev, set->n, col->u.xd, col->u.xb, err)
+             : STAGECAL_OK;
     for (size_t k = 0; k < set->n && rc == STAGECAL_OK; k++) {
         stagecal_evidence *e = &set->ev[k];
+        /* the time constant's uncertainty is common to the window: add its mean variance */
+        double u2m = 0;
+        for (size_t i = e->first; i <= e->last; i++)
+            u2m += isfinite(u2[i]) ? u2[i] : 0;
+        e->u_xd = sqrt(e->u_xd * e->u_xd + u2m / (double)(e->last - e->first + 1));
         rc = stagecal_evidence_stages(col->system.vle, murphree, e, err);
         if (rc != STAGECAL_OK)
-            return rc;
+            break;
         if (e->n_ok < par.min_ok)
             e->stages_ok = 0; /* too few samples of the window invert on their own */
     }
+    free(xd_src);
     return rc;
 }

@@ -63,9 +63,11 @@ static double predict_logit(struct comp_ctx *c, size_t i, const double *theta, d
         nst = 1;
     if (nst > COMP_MAX_STAGES)
         nst = COMP_MAX_STAGES;
-    if (stagecal_stages_step(c->vle, xd, e->r, nst, c->murphree, &c->sp, &xb, NULL, 0, &len,
-                             &status, NULL) != STAGECAL_OK ||
-        status != STAGECAL_STAGES_OK) {
+    int rc = e->cond
+                 ? stagecal_physics_step(e->cond, xd, nst, c->murphree, &c->sp, &xb, &status, NULL)
+                 : stagecal_stages_step(c->vle, xd, e->r, nst, c->murphree, &c->sp, &xb, NULL, 0,
+                                        &len, &status, NULL);
+    if (rc != STAGECAL_OK || status != STAGECAL_STAGES_OK) {
         /* No pot composition (an azeotrope in the way): predict "no separation"
          * so that such θ is penalised rather than undefined. */
         c->failures++;

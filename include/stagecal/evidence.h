@@ -19,6 +19,8 @@
 
 #include "stagecal/column.h"
 #include "stagecal/error.h"
+#include "stagecal/holdup.h"
+#include "stagecal/physics.h"
 #include "stagecal/regress.h"
 #include "stagecal/runlog.h"
 #include "stagecal/vle.h"
@@ -72,10 +74,13 @@ typedef struct {
     const double *s_t;  /* m sample times [s], m compositions xD and xB of the window, */
     const double *s_xd; /* evenly thinned, outliers left out (storage owned by whoever */
     const double *s_xb; /* built the evidence) */
-    const unsigned char *s_cens; /* m censoring flags (STAGECAL_EVIDENCE_*) for an estimator
-                                    that takes censored readings as censored observations
-                                    (a Tobit-type likelihood); NULL from the builder, which
-                                    carries no censored reading (see n_cens_xd) */
+    const stagecal_physics_cond *cond; /* the window's conditions: its logged pressure, internal
+                                          reflux, pseudo-moles (physics.h); NULL: the plain
+                                          model at the logged R */
+    const unsigned char *s_cens;       /* m censoring flags (STAGECAL_EVIDENCE_*) for an estimator
+                                          that takes censored readings as censored observations
+                                          (a Tobit-type likelihood); NULL from the builder, which
+                                          carries no censored reading (see n_cens_xd) */
 } stagecal_evidence;
 
 /* ---- window statistics (evidence.c) -------------------------------------------------- */
@@ -150,7 +155,15 @@ typedef struct {
     size_t min_ok;      /* a window has a stage count only when at least this many of its
                            samples invert on their own (default 3) */
     stagecal_evidence_noise noise; /* window statistics (default LINE_POOLED) */
+    int holdup;                    /* distillate compensation for column holdup (holdup.h): a
+                                      stagecal_holdup_comp, or STAGECAL_EVIDENCE_HOLDUP_AUTO (default): STAGES
+                                      when the column file states a holdup, else LAG when a run's start-up
+                                      gives a time constant, else NONE */
+    int physics; /* 1: windows get their conditions (logged pressure, subcooled reflux,
+                    unequal latent heats; physics.h) (default 1) */
 } stagecal_evidence_params;
+
+#define STAGECAL_EVIDENCE_HOLDUP_AUTO (-1)
 
 stagecal_evidence_params stagecal_evidence_default_params(void);
 
@@ -160,6 +173,14 @@ typedef struct {
     stagecal_evidence *ev; /* n windows */
     size_t n;
     double *samples; /* storage of the carried samples */
+    /* physics and holdup (src/evidence_physics.c) */
+    stagecal_physics *phys;       /* the models the windows' conditions point into */
+    stagecal_physics_cond *conds; /* n conditions (NULL when params.physics is 0) */
+    int holdup_kind;              /* the stagecal_holdup_comp applied */
+    stagecal_holdup_tau *tau;     /* one per run of the log: the distillate's time constant */
+    size_t nruns;
+    stagecal_holdup_tau tau_pooled; /* over the runs */
+    size_t n_settling;              /* rows left out as still settling after a reflux change */
 } stagecal_evidence_set;
 
 /* Builds the evidence of every window of res (after stagecal_runlog_analyse and

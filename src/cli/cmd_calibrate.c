@@ -28,6 +28,46 @@ static const struct cli_usage usage = {
     NULL};
 
 static const char *const method_names[] = {"auto", "stage", "composition", NULL};
+static const char *const holdup_choices[] = {"auto", "none", "lag", "stages", NULL};
+static const char *const holdup_names[] = {"none", "lag", "stages"};
+
+/* The holdup compensation the evidence applied, for --json. */
+static json_t *holdup_json(const stagecal_calibration *cal)
+{
+    const stagecal_evidence_set *es = &cal->evidence;
+    const stagecal_holdup_tau *tp = &es->tau_pooled;
+    json_t *runs = json_array();
+    for (size_t k = 0; k < es->nruns && es->tau; k++) {
+        const stagecal_holdup_tau *t = &es->tau[k];
+        json_array_append_new(
+            runs,
+            json_pack("{s:s,s:o,s:o,s:s}", "run", cal->log->runs[k].name, "tau_min",
+                      t->ok ? json_real(t->tau_s / 60) : json_null(), "se_tau_min",
+                      t->ok ? json_real(t->se_tau_s / 60) : json_null(), "reason", t->reason));
+    }
+    return json_pack("{s:s,s:o,s:o,s:I,s:o}", "compensation", holdup_names[es->holdup_kind],
+                     "tau_min", tp->ok ? json_real(tp->tau_s / 60) : json_null(), "se_tau_min",
+                     tp->ok ? json_real(tp->se_tau_s / 60) : json_null(), "settling_rows",
+                     (json_int_t)es->n_settling, "runs", runs);
+}
+
+/* One line on the holdup compensation for the text summary. */
+static void holdup_print(const stagecal_calibration *cal)
+{
+    const stagecal_evidence_set *es = &cal->evidence;
+    const stagecal_holdup_tau *tp = &es->tau_pooled;
+    size_t nok = 0;
+    for (size_t k = 0; k < es->nruns && es->tau; k++)
+        nok += es->tau[k].ok;
+    printf("holdup: distillate compensation '%s'", holdup_names[es->holdup_kind]);
+    if (tp->ok)
+        printf("; start-up time constant %.3g +/- %.2g min (%zu of %zu runs)", tp->tau_s / 60,
+               tp->se_tau_s / 60, nok, es->nruns);
+    if (es->holdup_kind == STAGECAL_HOLDUP_COMP_STAGES)
+        printf("; column holdup %g mol, drum %g mol; %zu rows still settling left out",
+               cal->column->holdup_column_mol, cal->column->holdup_drum_mol, es->n_settling);
+    printf("\n");
+}
 
 static void show_progress(void *ctx, const char *stage, double done)
 {
@@ -276,6 +316,7 @@ static int print_json(const stagecal_calibration *cal, const char *path, const s
                   (json_int_t)cal->res.count[STAGECAL_STAGES_PINCH], "azeotrope_samples",
                   (json_int_t)cal->res.count[STAGECAL_STAGES_AZEOTROPE], "censored_samples",
                   (json_int_t)cal->res.count[STAGECAL_RUNLOG_CENSORED]));
+    json_object_set_new(doc, "holdup", holdup_json(cal));
     json_object_set_new(doc, "envelope",
                         json_pack("{s:o,s:o,s:o,s:o}", "r_min", cli_json_reflux(mo->r_min), "r_max",
                                   cli_json_reflux(mo->r_max), "f_min",
@@ -324,6 +365,7 @@ static void print_text(const stagecal_calibration *cal, const char *path, const 
     printf("per-sample status: %zu ok, %zu pinch, %zu azeotrope, %zu invalid, %zu censored\n",
            cal->res.count[0], cal->res.count[1], cal->res.count[2], cal->res.count[3],
            cal->res.count[STAGECAL_RUNLOG_CENSORED]);
+    holdup_print(cal);
     if (cal->nrank > 0) {
         printf("forms ranked by AICc (stage space):");
         for (size_t i = 0; i < cal->nrank && i < 4; i++)
@@ -479,7 +521,7 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
     stagecal_calibrate_params par = stagecal_calibrate_default_params();
     struct request rq = {NULL, "fits", {NULL, NULL, NULL}, 0};
     long boot = 0, seed = (long)par.seed;
-    int method = 0, robust = -1, first, rc;
+    int method = 0, robust = -1, holdup = 0, first, rc;
     const struct cli_option opts[] = {
         OPT_COLUMN(&rq.column, "the column file (docs/column-file.md), required"),
         OPT_FORM(&par.form, "correlation form (docs/forms.md) or 'auto' (default: rank\n"
@@ -490,6 +532,12 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
                    method_names, "a method"),
         OPT_LEVEL(&par.level),
         OPT_MURPHREE(&par.murphree),
+        OPT_CHOICE("holdup", &holdup, "MODE",
+                   "compensate the distillate for column holdup: auto (default:\n"
+                   "'stages' when the column file states a holdup, else 'lag' with\n"
+                   "the time constant of the total-reflux start-ups), none, lag or\n"
+                   "stages (docs/methods.md, \"Column holdup\")",
+                   holdup_choices, "a holdup mode"),
         OPT_BOOTSTRAP(&boot),
         OPT_SEED(&seed),
         OPT_ROBUST(&robust),
@@ -523,6 +571,7 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
     par.bootstrap = (size_t)boot;
     par.seed = (unsigned long)seed;
     par.robust = cli_robust_kind(robust);
+    par.evidence.holdup = holdup == 0 ? STAGECAL_EVIDENCE_HOLDUP_AUTO : holdup - 1;
     par.method = method == 1   ? STAGECAL_CAL_STAGE
                  : method == 2 ? STAGECAL_CAL_COMPOSITION
                                : STAGECAL_CAL_AUTO;

@@ -1,0 +1,20 @@
+/*
+ * evidence_internal.h — what evidence.c takes from evidence_physics.c; not installed.
+ */
+#ifndef STAGECAL_EVIDENCE_INTERNAL_H
+#define STAGECAL_EVIDENCE_INTERNAL_H
+
+#include "stagecal/evidence.h"
+
+/* The distillate each row contributes (xd, one per log row; NAN where a row is still
+ * settling) and the extra variance of its compensation (u2); fills set's holdup members. */
+int evidence_holdup(const stagecal_runlog *log, const stagecal_column *col,
+                    const stagecal_evidence_params *par, stagecal_evidence_set *set, double *xd,
+                    double *u2, stagecal_error *err);
+/* Each window's conditions (after the means): set->conds, ev[k].cond. */
+int evidence_conditions(const stagecal_runlog *log, const stagecal_column *col,
+                        stagecal_evidence_set *set, stagecal_error *err);
+/* Frees what the two above allocated. */
+void evidence_physics_free(stagecal_evidence_set *set);
+
+#endif
