@@ -23,7 +23,7 @@
 
 stagecal_holdup_params stagecal_holdup_default_params(void)
 {
-    stagecal_holdup_params p = {5, 5.0, 8, 60, 4 * 3600.0, STAGECAL_HOLDUP_AUTO, 2.0};
+    stagecal_holdup_params p = {5, 5.0, 2, 60, 4 * 3600.0, STAGECAL_HOLDUP_AUTO, 2.0, 1800.0};
     return p;
 }
 
@@ -340,10 +340,17 @@ static double local_slope(const double *t, const double *x, size_t a, size_t b, 
     return slope;
 }
 
-/* dxD/dt at row i of the stretch [s, e) by a local quadratic; NAN when not available. */
-static double row_slope(const stagecal_runlog *log, size_t s, size_t e, size_t i, size_t h)
+/* dxD/dt at row i of the stretch [s, e) by a local quadratic over the rows within half_s
+ * of it (at least min_side rows each side where the stretch has them); NAN when not
+ * available. */
+static double row_slope(const stagecal_runlog *log, size_t s, size_t e, size_t i, double half_s,
+                        size_t min_side)
 {
-    size_t a = i - s > h ? i - h : s, b = e - 1 - i > h ? i + h : e - 1;
+    size_t a = i, b = i;
+    while (a > s && (i - a < min_side || log->t_s[i] - log->t_s[a - 1] <= half_s))
+        a--;
+    while (b + 1 < e && (b - i < min_side || log->t_s[b + 1] - log->t_s[i] <= half_s))
+        b++;
     return local_slope(log->t_s, log->xd, a, b, i);
 }
 
@@ -355,6 +362,7 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
         return error_set(err, STAGECAL_EINVAL, "NULL argument");
     stagecal_holdup_params par = params ? *params : stagecal_holdup_default_params();
     size_t h = par.half_window < 1 ? 1 : par.half_window;
+    double half_s = par.slope_half_s;
     for (size_t i = 0; i < log->n; i++) {
         xd_ss[i] = log->xd[i];
         if (u2_extra)
@@ -372,7 +380,7 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
             while (e < end && log->r[e] == log->r[s])
                 e++;
             for (size_t i = s; i < e && isfinite(log->r[s]); i++) {
-                double d = isfinite(log->xd[i]) ? row_slope(log, s, e, i, h) : NAN;
+                double d = isfinite(log->xd[i]) ? row_slope(log, s, e, i, half_s, h) : NAN;
                 if (!isfinite(d))
                     continue;
                 if (hm->kind == STAGECAL_HOLDUP_COMP_LAG) {

@@ -322,7 +322,7 @@ static void test_points_from_evidence(void **state)
     }
     ev[2].has_load = 1;
     ev[2].f_load = 1.3;
-    stagecal_evidence_set set = {ev, 3, NULL};
+    stagecal_evidence_set set = {.ev = ev, .n = 3};
     stagecal_history_point p[3];
     assert_int_equal(stagecal_history_points_from_evidence(&set, p), 2);
     assert_int_equal(p[1].run, 12);

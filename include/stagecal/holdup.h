@@ -41,12 +41,15 @@ typedef struct {
     size_t min_rows;               /* fewest rows for a fit (5) */
     double min_rise_u;             /* the transient's amplitude must exceed this many u(xD) (or
                                       residual sds) (5) */
-    size_t half_window;            /* samples each side of the local quadratic for dxD/dt (8) */
+    size_t half_window;            /* fewest samples each side of the local quadratic for
+                                      dxD/dt (2) */
     size_t grid;                   /* points of the ln τ scan before Brent (60) */
     double transient_max_s;        /* production rows fitted after the start-up [s] (4 h) */
     stagecal_holdup_source source; /* AUTO */
     double settle_factor; /* STAGES: rows closer than settle_factor·(holdup + drum)·(R + 1)/V to
                              the start of their stretch are still settling: xd_ss NAN (2) */
+    double slope_half_s;  /* the local quadratic for dxD/dt takes the rows within this time
+                             each side [s] (1800; at least half_window rows each side) */
 } stagecal_holdup_params;
 
 stagecal_holdup_params stagecal_holdup_default_params(void);
@@ -143,7 +146,8 @@ typedef struct {
 
 /* Compensated distillate, one value per row of log (xd_ss), and the extra variance from
  * se(τ) (u2_extra, may be NULL; 0 for STAGES). Only rows at a finite logged R are changed:
- * dxD/dt comes from a local quadratic over up to half_window neighbours each side within the
+ * dxD/dt comes from a local quadratic over the rows within slope_half_s each side (at least
+ * half_window) within the
  * same stretch of one logged R; STAGES also needs the row's V. Rows where something is
  * missing or a solve fails keep the logged xD. ENOMEM, EINVAL. */
 int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup_model *hm,
