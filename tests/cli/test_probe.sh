@@ -27,7 +27,8 @@ expect_exit 66 "" -- $P "$tmp/no-such-model.json" --at 2
 expect_exit 0 "" -- $P --help
 
 BT=$ROOT/datasets/columns/demo_benzene_toluene.json
-"$BIN" calibrate --quiet --fits "$tmp/fits" --form saturating --column "$BT" \
+# --holdup none: with the lag compensation January's windows alone no longer determine b
+"$BIN" calibrate --quiet --holdup none --fits "$tmp/fits" --form saturating --column "$BT" \
     "$ROOT/datasets/demo/logs/2025-01.csv" >/dev/null || { echo "FAIL: calibrate"; exit 1; }
 M=$(ls "$tmp"/fits/*/*.json)
 # (two months: January alone has four quasi-steady windows, too few for three parameters)
