@@ -1,7 +1,8 @@
 /*
- * batch.c — quasi-steady batch rectification (Smoker & Rose 1940, REFERENCES §10):
- * integration of the pot balances with GSL's adaptive Runge–Kutta, the inner solves
- * for xD (and R under a constant-distillate policy), cut targets as events.
+ * batch.c — quasi-steady batch rectification (Smoker & Rose 1940, "Graphic determination of batch
+ * distillation curves for binary mixtures", Trans. AIChE 36, citation from memory): integration of
+ * the pot balances with GSL's adaptive Runge–Kutta, the inner solves for xD (and R under a
+ * constant-distillate policy), cut targets as events.
  *
  * State, dimensionless (all amounts over the charge W0, time τ = t·V/W0):
  *   u[0] = W/W0, u[1] = W·xB/W0, u[2] = D_cut/W0, u[3] = D_cut·x̄_cut/W0

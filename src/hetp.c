@@ -196,9 +196,9 @@ int stagecal_packing_kind_parse(const char *text, stagecal_packing_kind *k)
     return 0;
 }
 
-/* Size ranges the rules are quoted for (REFERENCES §8 examples span a_p 125–750 m²/m³
- * and d_p 25–50 mm; the limits below widen that modestly — common practice, no
- * source). */
+/* Size ranges the rules are quoted for (examples in Kister 1992, "Distillation Design", ch. 11,
+ * after Harrison & France 1989, from memory: they span a_p 125–750 m²/m³ and d_p 25–50 mm; the
+ * limits below widen that modestly — common practice, no source). */
 #define AP_MIN 50.0
 #define AP_MAX 1000.0
 #define DP_MIN 0.006

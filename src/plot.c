@@ -7,7 +7,7 @@
  * here is on a hot path. Every chart gets its own PLplot stream (plmkstrm … plend1)
  * so the caller's streams are untouched.
  *
- * Colour map 0 is set completely before plinit (TOOLCHAIN: PLplot's default map has a
+ * Colour map 0 is set completely before plinit (PLplot's default map has a
  * black page and would make our dark axes invisible on white): index 0 white page,
  * 1 axis/text grey, 2 light grid grey, 3..10 the Okabe–Ito palette, 11..18 tints.
  *

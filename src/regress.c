@@ -9,8 +9,9 @@
  *     (rank checked; a rank-deficient design is bad data, not a silent pseudo-inverse);
  *   - other forms: gsl_multifit_nlinear, trust region with Levenberg–Marquardt steps,
  *     analytic Jacobian (stagecal_form_eval), several automatic starts; then
- *     Gauss–Newton polish with QR on the weighted Jacobian (REFERENCES §5: this lifts
- *     the NIST StRD Misra1a agreement from LRE ≈ 8.5 to ≥ 11);
+ *     Gauss–Newton polish with QR on the weighted Jacobian (checked on the NIST Statistical
+ * Reference Datasets, nonlinear regression, Misra1a, Misra 1978: this lifts the NIST StRD Misra1a
+ * agreement from LRE ≈ 8.5 to ≥ 11);
  *   - covariance s²·(JᵀWJ)⁻¹, s² = RSS_w/(n − p): the NIST StRD definition (Bates &
  *     Watts 1988, §2.3); t intervals with gsl_cdf_tdist_Pinv;
  *   - bands by the delta method, var_fit = gᵀCg (Seber & Wild 1989, §5.1);

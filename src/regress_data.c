@@ -1,5 +1,5 @@
 /*
- * regress_data.c — the points file (DESIGN §4): CSV with a header row naming the
+ * regress_data.c — the points file (docs/regress.md): CSV with a header row naming the
  * columns R and stages, optionally F (F-factor, Pa^0.5) and sigma (standard
  * uncertainty of stages), in any order. Names may carry a unit in brackets; only
  * the units below are accepted because these quantities have no other common unit:

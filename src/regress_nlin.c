@@ -7,7 +7,7 @@
  *
  * Solver: gsl_multifit_nlinear, trust region with Levenberg–Marquardt steps; the
  * Jacobian is the problem's, or GSL's central finite differences when it gives none.
- * Polish: Gauss–Newton steps with QR on the Jacobian (REFERENCES: NIST StRD accuracy).
+ * Polish: Gauss–Newton steps with QR on the Jacobian (accuracy checked on NIST StRD Misra1a).
  * Covariance: s²·(JᵀJ)⁻¹, s² = RSS/(n − p) — the NIST StRD definition (Bates & Watts
  * 1988, §2.3) — from QR with column pivoting on the column-equilibrated Jacobian; t
  * intervals with gsl_cdf_tdist_Pinv.

@@ -14,15 +14,14 @@
  * W_k·d·t_k to h_k, so d is the slope of a weighted straight-line fit of h_k on
  * W_k·t_k (GSL gsl_fit_wlinear). See docs/methods.md.
  *
- * Quasi-steady windows. Cao & Rhinehart's ratio of variances (REFERENCES §9) needs
- * a signal that is stationary at steady state. In a batch run xD and xB are not:
- * they fall as the pot is depleted, and the statistic would call a whole run
- * transient. It is therefore applied to (a) the per-sample effective stages, which
- * are stationary while the column is quasi-steady and move during start-up and
- * after reflux changes, and (b) the balance residual e_k (xB with the batch trend
- * removed). Reflux is a set point: a change of R starts a transient outright.
- * Hysteresis: steady after every signal's R < r_enter, transient again when any
- * R > r_leave.
+ * Quasi-steady windows. Cao & Rhinehart's ratio of variances (Cao & Rhinehart 1995, "An efficient
+ * method for on-line identification of steady state", J. Process Control 5) needs a signal that is
+ * stationary at steady state. In a batch run xD and xB are not: they fall as the pot is depleted,
+ * and the statistic would call a whole run transient. It is therefore applied to (a) the per-sample
+ * effective stages, which are stationary while the column is quasi-steady and move during start-up
+ * and after reflux changes, and (b) the balance residual e_k (xB with the batch trend removed).
+ * Reflux is a set point: a change of R starts a transient outright. Hysteresis: steady after every
+ * signal's R < r_enter, transient again when any R > r_leave.
  */
 #include "stagecal/runlog.h"
 

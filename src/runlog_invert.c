@@ -10,8 +10,8 @@
  * Near a pinch ∂N/∂xB grows without bound and so does u(N): the number says how
  * little such a sample tells.
  *
- * F-factor (REFERENCES §11): F = u_G·√ρ_G, u_G = V·M/(ρ_G·A), ρ_G = P·M/(R·T),
- * A = π·d²/4. M is the molar mass of the top vapour, which has the distillate's
+ * F-factor (standard definition, common practice, no source): F = u_G·√ρ_G, u_G = V·M/(ρ_G·A), ρ_G
+ * = P·M/(R·T), A = π·d²/4. M is the molar mass of the top vapour, which has the distillate's
  * composition (total condenser). T is T_top from the log, else the bubble point
  * of xD from the equilibrium model; P is P from the log, else the column file's.
  */

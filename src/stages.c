@@ -1,7 +1,7 @@
 /*
  * stages.c — McCabe–Thiele inversion for a batch rectifier
- * (DESIGN §2), plus the constant-α closed forms (Fenske, Smoker) and the minimum
- * reflux ratio for a general equilibrium model.
+ * (docs/methods.md, "Stage counting"), plus the constant-α closed forms (Fenske, Smoker) and the
+ * minimum reflux ratio for a general equilibrium model.
  *
  * Files: stages.c (this: the inversion, its sensitivities, the minimum reflux ratio),
  * stages_step.c (the stepper, forward stepping), stages_smoker.c (Smoker, Fenske).
@@ -11,14 +11,14 @@
  * (1 − E)·(m·x + b) + E·y*(x) = y_n (stages_step.c). The pot
  * (ideal) fixes the target x_target = (y*(xB) − b)/m. Whole steps count while
  * x_n > x_target; the crossing step counts Smoker's fraction from x_(n−1) to x_target
- * with α_loc = y_n(1 − x_n)/(x_n(1 − y_n)) (REFERENCES §2; log-odds Fenske form at
- * total reflux, where Smoker's k = 0 and β = 1 reduce to it). For constant α and E = 1
- * the count equals Smoker's equation (Fenske at R = ∞) exactly, because Smoker's count
- * is additive and the pot step is whole — so for constant α at E = 1 the inversion
- * evaluates Smoker's closed form directly (count below params.pinch_scan_after, x_target
- * not within CLOSED_MARGIN of the pinch root; stepping otherwise). Forward stepping
- * inverts that definition (closed-form Smoker inverse for the fraction), so the two
- * round-trip.
+ * with α_loc = y_n(1 − x_n)/(x_n(1 − y_n)) (Smoker 1938, "Analytic determination of plates in
+ * fractionating columns", Trans. AIChE 34, citation from memory; log-odds Fenske form at total
+ * reflux, where Smoker's k = 0 and β = 1 reduce to it). For constant α and E = 1 the count equals
+ * Smoker's equation (Fenske at R = ∞) exactly, because Smoker's count is additive and the pot step
+ * is whole — so for constant α at E = 1 the inversion evaluates Smoker's closed form directly
+ * (count below params.pinch_scan_after, x_target not within CLOSED_MARGIN of the pinch root;
+ * stepping otherwise). Forward stepping inverts that definition (closed-form Smoker inverse for the
+ * fraction), so the two round-trip.
  *
  * Pinch detection (xB unreachable at this L/V): the stepping never crosses a point
  * where the operating line meets the equilibrium curve (the pseudo-equilibrium curve

@@ -1,8 +1,9 @@
 /*
  * stages_smoker.c — Smoker's equation for constant α on a general straight operating
- * line y = m·x + b (Smoker 1938; REFERENCES §2), written in tangent-linear arithmetic
- * (stages_internal.h) so that the inversion gets its derivatives with the count, and
- * the public closed forms stagecal_fenske and stagecal_smoker.
+ * line y = m·x + b (Smoker 1938, "Analytic determination of plates in fractionating columns",
+ * Trans. AIChE 34, citation from memory), written in tangent-linear arithmetic (stages_internal.h)
+ * so that the inversion gets its derivatives with the count, and the public closed forms
+ * stagecal_fenske and stagecal_smoker.
  *
  * With the pinch root k (the small root of the line meeting the curve) and
  * u = 1/(x − k), the stepping x_(n) → x_(n+1) is linear in u with fixed point β and

@@ -6,13 +6,12 @@
  *   usage: bench_runlog [ROWS] [COLUMN.json]
  *
  * Writes bench_runlog.csv (ROWS rows, default 10^6, 100 runs, constant α = 2.5
- * data from Smoker's closed form, REFERENCES §2) in the current directory, then
- * times each phase with CLOCK_MONOTONIC (and the whole with the process CPU
- * clock, which a loaded shared machine does not inflate) and reports the peak
- * resident set size
- * (getrusage). The model is constant α = 2.5 unless a column file is given (its
- * model then inverts the same α data; statuses will differ, the timing is what
- * counts). Measure the whole process with /usr/bin/time -v as well.
+ * data from Smoker's closed form, Smoker 1938, "Analytic determination of plates in fractionating
+ * columns", Trans. AIChE 34, citation from memory) in the current directory, then times each phase
+ * with CLOCK_MONOTONIC (and the whole with the process CPU clock, which a loaded shared machine
+ * does not inflate) and reports the peak resident set size (getrusage). The model is constant α
+ * = 2.5 unless a column file is given (its model then inverts the same α data; statuses will
+ * differ, the timing is what counts). Measure the whole process with /usr/bin/time -v as well.
  */
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_randist.h>

@@ -6,8 +6,8 @@
  *      (every tenth at total reflux), N in [2, 20] stages; xB comes from forward
  *      stepping (untimed) and is then perturbed by up to ±1 % so that a few samples
  *      are pinched or invalid, as logged data would be.
- *   2. 10^5 NRTL samples: ethanol–water, NRTL-A of REFERENCES §7 at 101.325 kPa,
- *      water Antoine Bridgeman–Aldrich and ethanol Ambrose–Sprake (REFERENCES §6);
+ *   2. 10^5 NRTL samples: ethanol–water, NRTL-A after Gmehling & Onken 1977 at 101.325 kPa,
+ *      water Antoine Bridgeman–Aldrich and ethanol Ambrose–Sprake (NIST WebBook);
  *      xD in [0.6, 0.86], R in [2, 12], N in [2, 15], xB as above.
  * Also (no target): 10^5 of the constant-α samples with E_MV = 0.6.
  * Rates are given per wall second and per CPU second (the latter is the single-core

@@ -1,7 +1,7 @@
 /*
  * nist_misra1a.h — NIST StRD nonlinear regression Misra1a (NIST ITL Statistical Reference
- * Datasets; REFERENCES §5): the certified values and a reader of the data
- * (datasets/reference/misra1a.csv), shared by tests/test_regress.c and
+ * Datasets, nonlinear regression, Misra1a, Misra 1978): the certified values and a reader of the
+ * data (datasets/reference/misra1a.csv), shared by tests/test_regress.c and
  * tests/test_regress_nlin.c. Include after cmocka and testutil.h.
  */
 #ifndef STAGECAL_NIST_MISRA1A_H
@@ -11,7 +11,7 @@
 #include "testutil.h"
 
 /* NIST StRD Misra1a certified values (NIST ITL Statistical Reference Datasets,
- * nonlinear regression, Misra1a; REFERENCES §5). */
+ * nonlinear regression, Misra1a). */
 #define MISRA_B1 2.3894212918E+02
 #define MISRA_B2 5.5015643181E-04
 #define MISRA_SD1 2.7070075241E+00

@@ -9,8 +9,10 @@
 #include <math.h>
 
 /* Pot composition after `n` stages (pot included) from xD at reflux r with constant
- * α, by Smoker's closed-form inverse (REFERENCES §2) or Fenske at total reflux
- * (REFERENCES §1) — independent of the stepping code under test. */
+ * α, by Smoker's closed-form inverse (Smoker 1938, "Analytic determination of plates in
+ * fractionating columns", Trans. AIChE 34, citation from memory) or Fenske at total reflux (Fenske
+ * 1932, "Fractionation of straight-run Pennsylvania gasoline", Ind. Eng. Chem. 24, citation from
+ * memory) — independent of the stepping code under test. */
 static inline double oracle_smoker_xb(double alpha, double r, double xd, double n)
 {
     if (isinf(r)) {

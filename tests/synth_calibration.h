@@ -10,8 +10,8 @@
  * irregular sampling times, and a batch drift: xD falls along a curve through the window
  * and xB follows it at the true stage count (the pot of a batch is never steady). The pot
  * compositions come from Smoker's closed-form inverse or Fenske at total reflux
- * (REFERENCES §1–2), independently of the stepping code under test. Each data set is
- * fitted in stage space (stagecal_regress_fit) and in composition space
+ * (Fenske 1932; Smoker 1938; citations from memory), independently of the stepping code under test.
+ * Each data set is fitted in stage space (stagecal_regress_fit) and in composition space
  * (stagecal_fit_composition, started from the stage-space estimate).
  *
  * Nothing here asserts: every library call that must not fail is reported by a

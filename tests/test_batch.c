@@ -1,11 +1,14 @@
 /*
  * test_batch.c — batch prediction (src/batch.c, batch_band.c, batch_plan.c).
  *
- * Sources of truth: the Rayleigh closed form for constant α (REFERENCES §4), an
- * independent quadrature of the Smoker–Rose integral (REFERENCES §10) with xD from
- * the Smoker closed-form inverse (REFERENCES §2) solved here with GSL Brent, the
- * tabulated check values of those sections, GSL's linear least squares for the
- * synthetic calibration of the round trip, and mass balances.
+ * Sources of truth: the Rayleigh closed form for constant α (Rayleigh 1902, "On the distillation of
+ * binary mixtures", Phil. Mag. (6) 4, citation from memory), an independent quadrature of the
+ * Smoker–Rose integral (Smoker & Rose 1940, "Graphic determination of batch distillation curves for
+ * binary mixtures", Trans. AIChE 36, citation from memory) with xD from the Smoker closed-form
+ * inverse (Smoker 1938, "Analytic determination of plates in fractionating columns", Trans. AIChE
+ * 34, citation from memory) solved here with GSL Brent, the tabulated check values of those
+ * sections, GSL's linear least squares for the synthetic calibration of the round trip, and mass
+ * balances.
  */
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_integration.h>
@@ -29,7 +32,7 @@
 
 /* ---- independent oracles ------------------------------------------------------------- */
 
-/* Smoker's closed-form inverse (REFERENCES §2): the pot composition after N stages
+/* Smoker's closed-form inverse (Smoker 1938): the pot composition after N stages
  * (pot included) from xD at reflux R, constant α. */
 static double smoker_xn(double alpha, double r, double xd, double n)
 {
@@ -52,7 +55,7 @@ static double smoker_f(double xd, void *p)
     return smoker_xn(s->alpha, s->r, xd, s->n) - s->xb;
 }
 
-/* xD from xB by Brent on the Smoker inverse (REFERENCES §10 implementation note). */
+/* xD from xB by Brent on the Smoker inverse (Smoker & Rose 1940 implementation note). */
 static double smoker_xd(double alpha, double r, double n, double xb)
 {
     struct smoker_args a = {alpha, r, n, xb};
@@ -91,7 +94,7 @@ static double smoker_rose_lnw(double alpha, double r, double n, double xb0, doub
     return res;
 }
 
-/* Rayleigh closed form for constant α (REFERENCES §4). */
+/* Rayleigh closed form for constant α (Rayleigh 1902). */
 static double rayleigh_lnw(double alpha, double x0, double x)
 {
     return (log(x0 / x) + alpha * log((1 - x) / (1 - x0))) / (alpha - 1);
@@ -175,18 +178,18 @@ static void batch_rayleigh_pot_alone(void **state)
     assert_true(res.n_rows > 3);
     for (size_t i = 0; i < res.n_rows; i++) {
         const stagecal_batch_row *r = &res.rows[i];
-        /* Rayleigh closed form, REFERENCES §4; 1e-6 is the issue's tolerance */
+        /* Rayleigh closed form, Rayleigh 1902; 1e-6 is the issue's tolerance */
         assert_abs(log(pb.w0_mol / r->w_mol), rayleigh_lnw(2.5, 0.5, r->xb), 1e-6,
                    "ln(W0/W) vs Rayleigh closed form");
         /* R = 0: D = V, so W0 − W = V t exactly (closed form) */
         assert_rel(pb.w0_mol - r->w_mol, pb.v_mol_s * r->t_s, 1e-9, "W0 - W = V t at R = 0");
     }
-    /* REFERENCES §4 check values (10 s.f.): ln(W0/W) = 1.394199870, W/W0 = 0.2480314144,
+    /* Rayleigh 1902 check values (10 s.f.): ln(W0/W) = 1.394199870, W/W0 = 0.2480314144,
      * mean distillate 0.5989528362; the event lands on xB = 0.2 to 1e-13 */
     assert_abs(res.xb_end, 0.2, 1e-12, "pot at target");
-    assert_rel(log(pb.w0_mol / res.w_end_mol), 1.394199870, 1e-9, "ln(W0/W), REFERENCES §4");
-    assert_rel(res.w_end_mol / pb.w0_mol, 0.2480314144, 1e-9, "W/W0, REFERENCES §4");
-    assert_rel(res.cuts[0].x_mean, 0.5989528362, 1e-9, "mean distillate, REFERENCES §4");
+    assert_rel(log(pb.w0_mol / res.w_end_mol), 1.394199870, 1e-9, "ln(W0/W), Rayleigh 1902");
+    assert_rel(res.w_end_mol / pb.w0_mol, 0.2480314144, 1e-9, "W/W0, Rayleigh 1902");
+    assert_rel(res.cuts[0].x_mean, 0.5989528362, 1e-9, "mean distillate, Rayleigh 1902");
     check_balance(&pb, &res);
     stagecal_batch_result_free(&res);
 }
@@ -214,19 +217,19 @@ static void run_smoker_rose(void **state, int own_stepper)
         const stagecal_batch_row *r = &res.rows[i];
         if (r->xb >= 0.5)
             continue;
-        /* independent quadrature of the Smoker–Rose integral (REFERENCES §10) with xD
+        /* independent quadrature of the Smoker–Rose integral (Smoker & Rose 1940) with xD
          * from the Smoker inverse; 1e-6 is the issue's tolerance */
         assert_abs(log(pb.w0_mol / r->w_mol), smoker_rose_lnw(2.5, 4, 6, 0.5, r->xb), 1e-6,
                    "ln(W0/W) vs Smoker-Rose quadrature");
         /* xD of the row vs the Smoker inverse solved here: both solve to 1e-14 */
         assert_abs(r->xd, smoker_xd(2.5, 4, 6, r->xb), 1e-11, "xD vs Smoker inverse");
     }
-    /* REFERENCES §10 example, 10 s.f.: ln(W0/W) = 0.4931376468, W/W0 = 0.6107072014,
+    /* Smoker & Rose 1940 example, 10 s.f.: ln(W0/W) = 0.4931376468, W/W0 = 0.6107072014,
      * mean distillate 0.9706281777 */
     assert_abs(res.xb_end, 0.2, 1e-12, "pot at target");
-    assert_rel(log(pb.w0_mol / res.w_end_mol), 0.4931376468, 1e-9, "ln(W0/W), REFERENCES §10");
-    assert_rel(res.w_end_mol / pb.w0_mol, 0.6107072014, 1e-9, "W/W0, REFERENCES §10");
-    assert_rel(res.cuts[0].x_mean, 0.9706281777, 1e-9, "mean distillate, REFERENCES §10");
+    assert_rel(log(pb.w0_mol / res.w_end_mol), 0.4931376468, 1e-9, "ln(W0/W), Smoker & Rose 1940");
+    assert_rel(res.w_end_mol / pb.w0_mol, 0.6107072014, 1e-9, "W/W0, Smoker & Rose 1940");
+    assert_rel(res.cuts[0].x_mean, 0.9706281777, 1e-9, "mean distillate, Smoker & Rose 1940");
     /* batch time: D = V/(R+1) constant, so t = (W0 − W)(R+1)/V (closed form) */
     assert_rel(res.t_end_s, (pb.w0_mol - res.w_end_mol) * 5 / pb.v_mol_s, 1e-9, "batch time");
     /* boil-up energy = V t λ (definition) */
@@ -251,12 +254,12 @@ static void batch_distillate_matches_table(void **state)
     double six = 6, xd = 0, n = 0;
     stagecal_batch_column col = {f->vle, stagecal_batch_constant_stages, &six, NULL, NULL};
     static const double xb[] = {0.5, 0.4, 0.3, 0.2};
-    /* REFERENCES §10 table, 10 s.f. */
+    /* Smoker & Rose 1940 table, 10 s.f. */
     static const double want[] = {0.9876291418, 0.9796740110, 0.9627847656, 0.9095827289};
     for (size_t i = 0; i < 4; i++) {
         assert_int_equal(stagecal_batch_distillate(&col, NULL, xb[i], 4, &xd, &n, NULL),
                          STAGECAL_OK);
-        assert_rel(xd, want[i], 1e-9, "xD(xB), REFERENCES §10");
+        assert_rel(xd, want[i], 1e-9, "xD(xB), Smoker & Rose 1940");
     }
     /* pot alone: xD = y*(xB) = αx/(1+(α−1)x) (constant-α equilibrium) */
     double one = 1;
@@ -363,7 +366,7 @@ static void batch_reflux_target_at_ceiling(void **state)
     assert_int_equal(res.cuts[1].stop, STAGECAL_BATCH_STOP_TARGET);
     assert_true(res.cuts[1].amount_mol > 0);
     assert_rel(res.cuts[1].reflux_end, 15, 0, "second receiver at the ceiling");
-    /* where R reaches 15, Smoker's inverse from the set point gives the pot (REFERENCES §2) */
+    /* where R reaches 15, Smoker's inverse from the set point gives the pot (Smoker 1938) */
     assert_abs(smoker_xn(2.5, 15, 0.95, 9 * (1 - exp(-7.5))), res.cuts[0].xb_end, 1e-9,
                "reflux target located");
     check_balance(&pb, &res);
@@ -371,10 +374,10 @@ static void batch_reflux_target_at_ceiling(void **state)
     stagecal_model_free(&m);
 }
 
-/* Ethanol–water (NRTL column file, minimum-boiling azeotrope near x = 0.894, REFERENCES
- * §7): the distillate can approach the azeotrope but never cross it; the xD bracket
- * ends there. Checked: xD below the model's azeotrope, and stepping down from xD (the
- * stages module) returns the pot composition (the equation xD solves). */
+/* Ethanol–water (NRTL column file, minimum-boiling azeotrope near x = 0.894, Perry's
+ * Chemical Engineers' Handbook ethanol–water table): the distillate can approach the azeotrope but
+ * never cross it; the xD bracket ends there. Checked: xD below the model's azeotrope, and stepping
+ * down from xD (the stages module) returns the pot composition (the equation xD solves). */
 static void batch_distillate_stops_at_azeotrope(void **state)
 {
     (void)state;
@@ -389,7 +392,8 @@ static void batch_distillate_stops_at_azeotrope(void **state)
     }
     size_t naz = stagecal_vle_azeotropes(c.system.vle, az, 4);
     assert_true(naz >= 1);
-    /* REFERENCES §7: x_az = 0.894 (DOC), NRTL-A gives 0.895; ±0.02 as in §7 */
+    /* Perry's handbook: x_az = 0.894; NRTL-A (Gmehling & Onken 1977) gives 0.895; ±0.02 as for
+     * test_vle.c */
     assert_abs(az[0], 0.894, 0.02, "azeotrope of the column's model");
     stagecal_batch_column col = {c.system.vle, stagecal_batch_constant_stages, &thirty, NULL, NULL};
     for (int i = 0; i < 3; i++) {
@@ -487,7 +491,7 @@ static void batch_schedule_switches(void **state)
             assert_rel(r->reflux, want, 0, "R of the schedule entry for xB");
     }
     /* Each segment is a constant-R Smoker–Rose batch: ln(W0/W) is the sum of the three
-     * quadratures (REFERENCES §10), independent of the ODE; 1e-6 as the issue asks */
+     * quadratures (Smoker & Rose 1940), independent of the ODE; 1e-6 as the issue asks */
     double lnw = smoker_rose_lnw(2.5, 2, 7, 0.5, 0.35) + smoker_rose_lnw(2.5, 5, 7, 0.35, 0.2) +
                  smoker_rose_lnw(2.5, 10, 7, 0.2, 0.1);
     assert_abs(log(pb.w0_mol / res.w_end_mol), lnw, 1e-6, "piecewise Smoker-Rose");

@@ -2,10 +2,9 @@
  * test_calibrate.c — the two fits of the calibration and the chain (the window statistics
  * are tests/test_evidence.c).
  *
- * Sources of truth: the Smoker closed-form inverse and Fenske (REFERENCES §1–2) to
- * generate synthetic pot
- * compositions independently of the stepping code, and the coverage of 95 %
- * intervals over many seeded synthetic data sets (a property any honest interval
+ * Sources of truth: the Smoker closed-form inverse and Fenske (Fenske 1932; Smoker 1938; citations
+ * from memory) to generate synthetic pot compositions independently of the stepping code, and the
+ * coverage of 95 % intervals over many seeded synthetic data sets (a property any honest interval
  * must have).
  */
 #include <gsl/gsl_errno.h>
@@ -90,7 +89,8 @@ static double smoker_xd(double alpha, double r, double xb, double n)
 /* A batch pot drifts through a window. On noise-free logs from a known law, both fits
  * recover the law (the stage count follows the drift sample by sample), while the
  * inversion of plain window means is visibly biased. Truth from Smoker's closed-form
- * inverse (REFERENCES §2). */
+ * inverse (Smoker 1938, "Analytic determination of plates in fractionating columns", Trans. AIChE
+ * 34, citation from memory). */
 static void calibrate_follows_drifting_pot(void **state)
 {
     (void)state;

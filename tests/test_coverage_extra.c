@@ -8,7 +8,8 @@
  * docs/column-file.md, docs/events-file.md and the contract comments of the public
  * headers; an error path is checked by its status code and its whole message, the
  * product's interface to people), and closed forms named beside each numerical check
- * (REFERENCES §1 Fenske, §2 constant-α equilibrium and operating line, the variance of
+ * (Fenske 1932, "Fractionation of straight-run Pennsylvania gasoline", Ind. Eng. Chem. 24,
+ * citation from memory; constant-α equilibrium and operating line, the variance of
  * a linear combination gᵀCg).
  */
 #include <gsl/gsl_errno.h>
@@ -369,8 +370,9 @@ static int nan_law(void *data, double r, double *stages, unsigned *outside, stag
 }
 
 /* The inner solve at one stage: xD = y*(xB) = αx/(1 + (α − 1)x) (constant relative
- * volatility, REFERENCES §2); a law below one stage is clamped to the pot alone
- * (batch.h), so 0.4 gives the same; a non-finite law and bad arguments are refused. */
+ * volatility, Smoker 1938, "Analytic determination of plates in fractionating columns", Trans.
+ * AIChE 34, citation from memory); a law below one stage is clamped to the pot alone (batch.h), so
+ * 0.4 gives the same; a non-finite law and bad arguments are refused. */
 static void coverage_batch_distillate_one_stage(void **state)
 {
     (void)state;
@@ -481,7 +483,7 @@ static void coverage_batch_band_arguments(void **state)
 
 /* ---- stages.c: closed forms and their refusals ----------------------------------- */
 
-/* Fenske (REFERENCES §1): N = ln[(xD/(1 − xD))·((1 − xB)/xB)] / ln α; Smoker at total
+/* Fenske (Fenske 1932): N = ln[(xD/(1 − xD))·((1 − xB)/xB)] / ln α; Smoker at total
  * reflux is Fenske; every refusal names the function and the domain. */
 static void coverage_stages_closed_form_refusals(void **state)
 {
@@ -524,7 +526,7 @@ static void coverage_stages_closed_form_refusals(void **state)
 /* Stepping and minimum reflux refuse NULL pointers and compositions outside their domain;
  * the minimum reflux with constant α pinches at the pot (the chord from (xD, xD) to
  * (xB, y*(xB)) stays under the concave curve): L/V = (xD − y*)/(xD − xB), R = L/D =
- * (L/V)/(1 − L/V) (REFERENCES §2 operating line). */
+ * (L/V)/(1 − L/V) (Smoker 1938 operating line). */
 static void coverage_stages_step_and_rmin_refusals(void **state)
 {
     (void)state;
@@ -681,7 +683,7 @@ static void coverage_vle_refusals_and_kvalue(void **state)
     assert_int_equal(err.code, STAGECAL_EINVAL);
     assert_string_equal(err.text, "x-y table: y does not increase from x = 0");
 
-    /* NIST WebBook-form constants (REFERENCES §6 benzene/toluene); range reversed */
+    /* NIST WebBook-form constants (benzene/toluene after Williamham et al. 1945); range reversed */
     stagecal_antoine ant[2] = {{4.01814, 1203.835, -53.226, 287.70, 354.07},
                                {4.07827, 1343.943, -53.773, 384.66, 308.52}};
     assert_null(stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, ant, NULL, 0, 101325, NULL, &err));
@@ -782,8 +784,8 @@ static void coverage_plot_builders_refuse(void **state)
 
 /* ---- column.c: column file refusals --------------------------------------------- */
 
-/* A valid column file (docs/column-file.md; NIST WebBook Antoine constants, REFERENCES
- * §6), edited below one field at a time. */
+/* A valid column file (docs/column-file.md; NIST WebBook Antoine
+ * constants), edited below one field at a time. */
 static const char column_base[] =
     "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"K-7\",\"packed_height_m\":4.5,"
     "\"condenser\":\"total\",\"pressure_pa\":101325,\"system\":{"

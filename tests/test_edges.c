@@ -6,9 +6,10 @@
  * stage count says so with a status and a reason. Where a closed form exists the
  * value is checked against it:
  *   Fenske, N = ln[(xD/(1 − xD))·((1 − xB)/xB)] / ln α, pot included, exact for
- *   constant α at total reflux (REFERENCES §1; DESIGN §2 makes the fractional count
- *   equal to it);
- *   Smoker's count tends to Fenske's from above as R → ∞ (REFERENCES §2).
+ *   constant α at total reflux (Fenske 1932, "Fractionation of straight-run Pennsylvania gasoline",
+ * Ind. Eng. Chem. 24, citation from memory; docs/methods.md "Stage counting" makes the fractional
+ * count equal to it); Smoker's count tends to Fenske's from above as R → ∞ (Smoker 1938, "Analytic
+ * determination of plates in fractionating columns", Trans. AIChE 34, citation from memory).
  */
 #include <float.h>
 #include <gsl/gsl_errno.h>
@@ -30,7 +31,7 @@ static int group_setup(void **state)
     return 0;
 }
 
-/* Fenske's count (pot included), REFERENCES §1, from the same doubles the library gets. */
+/* Fenske's count (pot included), Fenske 1932, from the same doubles the library gets. */
 static double fenske(double alpha, double xd, double xb)
 {
     return log((xd / (1.0 - xd)) * ((1.0 - xb) / xb)) / log(alpha);
@@ -85,13 +86,14 @@ static void edges_alpha_near_one_thousands_of_stages(void **state)
     stagecal_stages_result res;
     assert_int_equal(invert(vle, 0.95, 0.30, INFINITY, 1.0, &res, "alpha 1.001"), STAGECAL_OK);
     assert_int_equal(res.status, STAGECAL_STAGES_OK);
-    double want = fenske(1.001, 0.95, 0.30); /* ≈ 3793, REFERENCES §1 */
+    double want = fenske(1.001, 0.95, 0.30); /* ≈ 3793, Fenske 1932 */
     assert_true(want > 3000.0);
     /* 1e-9 relative: ~3800 steps, each a few roundings of ~1e-16 relative, plus the
      * 1/ln(α) ≈ 1000 amplification of the fractional step's rounding. */
     assert_rel(res.stages, want, 1e-9, "alpha 1.001: stages vs Fenske");
 
-    /* Forward stepping of that count lands on the same xB (DESIGN §2: round trip). */
+    /* Forward stepping of that count lands on the same xB (docs/methods.md "Stage counting": round
+     * trip). */
     double xb = 0.0;
     size_t len = 0;
     int status = -1;
@@ -99,7 +101,7 @@ static void edges_alpha_near_one_thousands_of_stages(void **state)
                                           &len, &status, NULL),
                      STAGECAL_OK);
     assert_int_equal(status, STAGECAL_STAGES_OK);
-    /* 1e-9 absolute in xB: DESIGN §2 round-trip tolerance. */
+    /* 1e-9 absolute in xB: docs/methods.md "Stage counting" round-trip tolerance. */
     assert_abs(xb, 0.30, 1e-9, "alpha 1.001: forward step of the inverted count");
     stagecal_vle_free(vle);
 }
@@ -183,7 +185,8 @@ static void edges_xb_to_zero(void **state)
     stagecal_vle_free(vle);
 }
 
-/* R → 0: DESIGN §2 makes R = 0 invalid; a tiny R is a pinch or invalid, never NaN. */
+/* R → 0: docs/methods.md "Stage counting" makes R = 0 invalid; a tiny R is a pinch or invalid,
+ * never NaN. */
 static void edges_reflux_to_zero(void **state)
 {
     (void)state;
@@ -212,7 +215,7 @@ static void edges_reflux_to_zero(void **state)
     stagecal_vle_free(vle);
 }
 
-/* R → ∞: the count tends to Fenske's from above (REFERENCES §2). */
+/* R → ∞: the count tends to Fenske's from above (Smoker 1938). */
 static void edges_reflux_to_infinity(void **state)
 {
     (void)state;
@@ -283,13 +286,13 @@ static void edges_forward_thousands_of_stages(void **state)
                                           sizeof profile / sizeof profile[0], &len, &status, NULL),
                      STAGECAL_OK);
     assert_int_equal(status, STAGECAL_STAGES_OK);
-    assert_int_equal(len, 5001); /* ceil(N) entries, DESIGN §5 */
+    assert_int_equal(len, 5001); /* ceil(N) entries, docs/cli.md */
     for (size_t i = 0; i < len; i++)
         assert_true(isfinite(profile[i].x) && isfinite(profile[i].y));
-    /* xB from Fenske solved for xB: log-odds(xB) = log-odds(xD) − N ln α (REFERENCES §1). */
+    /* xB from Fenske solved for xB: log-odds(xB) = log-odds(xD) − N ln α (Fenske 1932). */
     double lo = log(0.95 / 0.05) - 5000.5 * log(1.001);
     double want = 1.0 / (1.0 + exp(-lo));
-    /* 1e-9 absolute: DESIGN §2 round-trip tolerance for xB. */
+    /* 1e-9 absolute: docs/methods.md "Stage counting" round-trip tolerance for xB. */
     assert_abs(xb, want, 1e-9, "5000.5 stages at alpha 1.001: xB vs Fenske");
 
     /* Murphree 0.01 with 3000 stages at finite reflux: finite and inside (0, xD). */

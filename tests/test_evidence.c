@@ -4,7 +4,8 @@
  * log's windows into evidence, and a window's stage count.
  *
  * Sources of truth: the variance of the mean of an AR(1) series (closed form), exact
- * arithmetic of the pooling rule, and Fenske's closed form (REFERENCES §1) for the stage
+ * arithmetic of the pooling rule, and Fenske's closed form (Fenske 1932, "Fractionation of
+ * straight-run Pennsylvania gasoline", Ind. Eng. Chem. 24, citation from memory) for the stage
  * count of a window at total reflux.
  */
 #define _GNU_SOURCE 1 /* open_memstream */
@@ -113,7 +114,7 @@ static void evidence_pool_rho_rescales(void **state)
 
 /* A run log of 60 samples at a logged R = 3 whose W does not fall (no distillate): the
  * column runs at total reflux. The pot composition is the one Fenske gives for N = 5 at
- * xD = 0.95 (REFERENCES §1: xB/(1 − xB) = (xD/(1 − xD))/α^N), so the window's stage count is
+ * xD = 0.95 (Fenske 1932: xB/(1 − xB) = (xD/(1 − xD))/α^N), so the window's stage count is
  * 5. Moved here from test_runlog.c (runlog_no_distillate_counts_at_total_reflux), where it
  * read the run-log window's own mean (a second definition of a window's stage count, now
  * gone). Tolerance: 4 of the window's standard

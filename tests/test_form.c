@@ -91,7 +91,7 @@ static void form_values_match_closed_forms(void **state)
     stagecal_form_parse("saturating", &f, NULL);
     double th2[2] = {a, b};
     assert_int_equal(stagecal_form_eval(&f, th2, r, NAN, &v, g), STAGECAL_OK);
-    /* Closed form of DESIGN §5; 1e-15 relative (a few roundings). */
+    /* Closed form of the form table in docs/forms.md; 1e-15 relative (a few roundings). */
     assert_rel(v, a * (1 - exp(-b * r)), 1e-15, "saturating value");
     assert_rel(g[0], 1 - exp(-b * r), 1e-15, "d/da");
     assert_rel(g[1], a * r * exp(-b * r), 1e-15, "d/db");
@@ -118,7 +118,7 @@ static void form_values_match_closed_forms(void **state)
     assert_rel(v, want, 1e-14, "linear, every term");
     assert_rel(g[2], r / (r + 1), 1e-15, "L/V term = R/(R+1)");
     assert_rel(g[6], 1 / fl, 1e-15, "1/F term");
-    /* Total reflux: 1/R = 0 and L/V = 1 (DESIGN §2). */
+    /* Total reflux: 1/R = 0 and L/V = 1 (docs/methods.md, "Stage counting"). */
     stagecal_form_parse("linear:1+1/R+L/V", &f, NULL);
     assert_int_equal(stagecal_form_eval(&f, th7, INFINITY, NAN, &v, g), STAGECAL_OK);
     assert_rel(v, 2.5 + 4.2, 1e-15, "linear at R = inf");

@@ -4,9 +4,10 @@
  *
  * Sources of truth: closed forms (HETP = H/N, the t interval mapped through a
  * monotone function), scipy.stats (t quantiles and Welch's test via
- * ttest_ind_from_stats, run as STAGECAL_PYTHON), REFERENCES §8 rule-of-thumb examples
- * (from memory there), and seeded simulations whose expected rates follow from the
- * test's design (size = 1 − level, power from the normal approximation).
+ * ttest_ind_from_stats, run as STAGECAL_PYTHON), rule-of-thumb examples of Kister 1992,
+ * "Distillation Design", ch. 11, after Harrison & France 1989 (from memory) (from memory there),
+ * and seeded simulations whose expected rates follow from the test's design (size = 1 − level,
+ * power from the normal approximation).
  */
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_randist.h>
@@ -200,7 +201,7 @@ static void hetp_design_and_rule_checks(void **state)
 {
     (void)state;
     stagecal_hetp_rule rule;
-    /* REFERENCES §8 examples (from memory there): a_p 250 → 0.5 m, 350 →
+    /* Examples of the rule (Kister 1992, from memory): a_p 250 → 0.5 m, 350 →
      * 0.3857142857 m; 25 mm → 0.45 m, 50 mm → 0.9 m. Exact arithmetic: 1e-10. */
     assert_int_equal(stagecal_hetp_rule_of_thumb(STAGECAL_PACKING_STRUCTURED, 250, &rule, NULL),
                      STAGECAL_OK);
@@ -238,7 +239,7 @@ static void hetp_design_and_rule_checks(void **state)
 static void hetp_tray_efficiency(void **state)
 {
     (void)state;
-    /* 14.3 column stages on 22 trays: E_O = 0.65 (REFERENCES §11 definition). */
+    /* 14.3 column stages on 22 trays: E_O = 0.65 (definition; common practice, no source). */
     stagecal_hetp_stages s = {14.3, 0.55, 20};
     stagecal_hetp_tray t;
     assert_int_equal(stagecal_hetp_tray_efficiency(&s, 22, 0.90, &t, NULL), STAGECAL_OK);

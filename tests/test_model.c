@@ -1159,8 +1159,8 @@ static void model_add_helpers_validate(void **state)
 
 /* ---- the equilibrium model in the file ------------------------------------------------ */
 
-/* Antoine sets of REFERENCES §6 (NIST WebBook form) and the parameter sets used in
- * tests/test_stages.c: NRTL-A and van Laar ethanol–water (REFERENCES §7, source
+/* Antoine sets of the NIST Chemistry WebBook and the parameter sets used in
+ * tests/test_stages.c: NRTL-A and van Laar ethanol–water (Gmehling & Onken 1977; Perry's; source
  * secondary); Wilson and Margules methanol–water are illustrative (a round trip needs
  * no source). */
 static const stagecal_antoine VLE_ETHANOL = {5.24677, 1598.673, -46.424, 292.77, 366.63};

@@ -399,7 +399,8 @@ static void plot_mccabe_series_and_pinch(void **state)
     double yb;
     assert_int_equal(stagecal_vle_ystar(vle, steps->x[steps->n - 1], &yb), STAGECAL_OK);
     /* the pot's vapour lies on the equilibrium curve and on the operating line from the
-     * stage above (DESIGN §2): agreement to the stepping's round-trip tolerance, 1e-9 */
+     * stage above (docs/methods.md, "Stage counting"): agreement to the stepping's round-trip
+     * tolerance, 1e-9 */
     assert_abs(steps->y[steps->n - 1], yb, 1e-9, "last step ends on y*(xB)");
     check_svg_series(c, "mccabe", 6);
     assert_int_equal(stagecal_plot_write(c, OUTDIR "/mccabe.png", NULL, &err), STAGECAL_OK);

@@ -1,6 +1,6 @@
 /*
  * test_regress.c — the regress module against outside references:
- *   - NIST StRD nonlinear regression, Misra1a (certified values, REFERENCES §5);
+ *   - NIST StRD nonlinear regression, Misra1a (certified values, Misra 1978);
  *   - statsmodels WLS (fit, bands via get_prediction().summary_frame) through
  *     tests/regress_crosscheck.py run with /usr/bin/python3;
  *   - closed forms and properties (reproducible bootstrap, robust down-weighting,
@@ -44,7 +44,7 @@ static void misra_from(const double start[2])
     if (rc != STAGECAL_OK)
         print_error("%s\n", e.text);
     assert_int_equal(rc, STAGECAL_OK);
-    /* Tolerance 1e-8 relative (LRE ≥ 8 for b and sd, REFERENCES §5 recommendation;
+    /* Tolerance 1e-8 relative (LRE ≥ 8 for b and sd, NIST StRD recommendation;
      * the must-show asks for 6 significant digits on b and 3 on sd); RSS at 1e-9. */
     assert_rel(res.theta[0], MISRA_B1, 1e-8, "misra1a b1 (NIST certified)");
     assert_rel(res.theta[1], MISRA_B2, 1e-8, "misra1a b2 (NIST certified)");

@@ -2,7 +2,8 @@
  * test_regress_nlin.c — the least-squares driver of regress (src/regress_nlin.c): a
  * problem given as a residual callback, init / iterate / test / driver, the Gauss–Newton
  * polish and the statistics of the estimate, checked against NIST StRD Misra1a certified
- * values (REFERENCES §5) with the problem's own Jacobian and with finite differences.
+ * values (NIST Statistical Reference Datasets, Misra 1978) with the problem's own Jacobian and with
+ * finite differences.
  */
 #include <math.h>
 #include <setjmp.h>

@@ -60,7 +60,7 @@ static void report_caution_matches_design(void **state)
 {
     (void)state;
     const char *c = stagecal_caution_text();
-    /* DESIGN §6: the caution names the hazard, the envelope/extrapolation, and that
+    /* The caution (README.md) names the hazard, the envelope/extrapolation, and that
      * the output does not replace procedures, codes or a licensed engineer's review */
     assert_non_null(strstr(c, "flammable"));
     assert_non_null(strstr(c, "toxic"));
@@ -310,9 +310,11 @@ static double item_xb(const stagecal_report *rep, const char *key)
 
 /* The stated condition: the model's stages stepped on its constant-α equilibrium must
  * reach the xB that the closed forms give for that many stages: Fenske at total reflux
- * (REFERENCES §1: N = ln[xD/(1−xD)·(1−xB)/xB] / ln α, solved for xB), Smoker at finite R
- * (REFERENCES §2, stagecal_smoker checked against its published rows in test_stages.c).
- * Tolerance 6e-5: the report prints xB with four decimals (half a unit is 5e-5). */
+ * (Fenske 1932, "Fractionation of straight-run Pennsylvania gasoline", Ind. Eng. Chem. 24, citation
+ * from memory: N = ln[xD/(1−xD)·(1−xB)/xB] / ln α, solved for xB), Smoker at finite R (Smoker 1938,
+ * "Analytic determination of plates in fractionating columns", Trans. AIChE 34, citation from
+ * memory, stagecal_smoker checked against its published rows in test_stages.c). Tolerance 6e-5: the
+ * report prints xB with four decimals (half a unit is 5e-5). */
 static void report_condition_matches_closed_forms(void **state)
 {
     (void)state;
@@ -425,7 +427,7 @@ static void report_cli_writes_files(void **state)
              STAGECAL_BIN);
     assert_int_equal(system(cmd), 0);
     assert_int_equal(stat(OUTDIR "/cli_mc.pdf", &st), 0);
-    /* usage errors exit 2 (DESIGN §5): unknown extension, missing output */
+    /* usage errors exit 2 (docs/cli.md): unknown extension, missing output */
     snprintf(cmd, sizeof cmd,
              "%s plot mccabe --alpha 2.5 --xd 0.95 --reflux 3 --stages 6 -o x.gif 2>/dev/null",
              STAGECAL_BIN);

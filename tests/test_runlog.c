@@ -7,11 +7,13 @@
  *
  * Synthetic truth: for constant α and a straight operating line the pot
  * composition reached from xD in N stages is Smoker's closed-form inverse,
- * xB = k + 1/(β + (1/(xD − k) − β)/A^N) (REFERENCES §2, checked there against
- * plain stepping). It is written out here, independently of src/stages.c. The
- * batch trajectory integrates the Rayleigh column balance
- * d ln W = dxB/(xD − xB) (REFERENCES §10) on a fine xD grid (second-order
- * midpoint sums, 20000 steps: relative error ~1e-9, far below the 1e-3 noise).
+ * xB = k + 1/(β + (1/(xD − k) − β)/A^N) (Smoker 1938, "Analytic determination of plates in
+ * fractionating columns", Trans. AIChE 34, citation from memory; checked in Python against plain
+ * stepping). It is written out here, independently of src/stages.c. The batch trajectory integrates
+ * the Rayleigh column balance d ln W = dxB/(xD − xB) (Smoker & Rose 1940, "Graphic determination of
+ * batch distillation curves for binary mixtures", Trans. AIChE 36, citation from memory) on a fine
+ * xD grid (second-order midpoint sums, 20000 steps: relative error ~1e-9, far below the 1e-3
+ * noise).
  */
 #define _GNU_SOURCE 1
 #include <gsl/gsl_errno.h>
@@ -37,7 +39,7 @@ static int setup(void **state)
     gsl_set_error_handler_off();
     memset(&test_col, 0, sizeof test_col);
     test_col.system.vle = stagecal_vle_alloc_alpha(2.5, NULL);
-    test_col.system.m_light = 0.04606844; /* ethanol, REFERENCES §11 */
+    test_col.system.m_light = 0.04606844; /* ethanol, standard atomic weights, from memory */
     test_col.system.m_heavy = 0.01801528; /* water, from memory */
     test_col.system.p_pa = 101325;
     test_col.system.latent_j_mol = 40000; /* round number for the Q test */
@@ -470,8 +472,9 @@ static void runlog_directory_names_cause(void **state)
 static void runlog_rstat_matches_reference_vector(void **state)
 {
     (void)state;
-    /* REFERENCES §9, deterministic test vector, λ = (0.2, 0.1, 0.1); values given to 10 s.f.
-     * so the tolerance is 1e-9 relative. */
+    /* Cao & Rhinehart 1995, "An efficient method for on-line identification of steady state", J.
+     * Process Control 5, deterministic test vector, λ = (0.2, 0.1, 0.1); values given to 10 s.f. so
+     * the tolerance is 1e-9 relative. */
     const double x[] = {10.0, 10.3, 9.8, 10.1, 10.4, 9.9, 10.0, 10.6, 11.2, 11.9, 12.5, 13.2};
     const double want[] = {1.8,         0.8080966767, 0.6598793503, 1.096784423,
                            0.784652123, 0.7826687446, 1.080200847,  2.423788044,
@@ -491,8 +494,9 @@ static void runlog_rstat_matches_reference_vector(void **state)
 static void runlog_f_factor_check_value(void **state)
 {
     (void)state;
-    /* REFERENCES §11: ethanol vapour, 351.44 K, 101.325 kPa, 10 kmol/h, 0.30 m ID →
-     * F = 1.432356895 Pa^0.5 (10 s.f.; tolerance 1e-9 relative). */
+    /* F-factor, common practice, no source; numbers computed in Python: ethanol vapour, 351.44 K,
+     * 101.325 kPa, 10 kmol/h, 0.30 m ID → F = 1.432356895 Pa^0.5 (10 s.f.; tolerance 1e-9
+     * relative). */
     double f;
     assert_int_equal(
         stagecal_runlog_f_factor(10000.0 / 3600.0, 0.04606844, 101325, 351.44, 0.30, &f, NULL), 0);
@@ -503,7 +507,7 @@ static void runlog_f_factor_check_value(void **state)
 
 /* ---- synthetic logs from a known stage law --------------------------------------- */
 
-/* Logs whose xB comes from Smoker's closed-form inverse (REFERENCES §2, oracle_smoker.h). */
+/* Logs whose xB comes from Smoker's closed-form inverse (Smoker 1938, oracle_smoker.h). */
 struct synth {
     double alpha, n_true, r, w0_mol, d_mol_s, xd0, dt_s;
     size_t rows;
@@ -808,7 +812,7 @@ static void runlog_mass_based_twin_gives_same_stages(void **state)
      * w = x·M1/(x·M1 + (1−x)·M2), mass = n·(x·M1 + (1−x)·M2): definitions, no source
      * needed. Printed with 17 digits, the conversions round-trip to ~1e-15, and the
      * stage counts agree to 1e-9 (relative), the forward/inverse round-trip tolerance
-     * of DESIGN §2. */
+     * of docs/methods.md "Stage counting". */
     const double m1 = test_col.system.m_light, m2 = test_col.system.m_heavy;
     const double t[] = {0, 0.5, 1, 1.5, 2, 2.5};
     const double w[] = {10, 9.6, 9.2, 8.8, 8.4, 8.0}; /* kmol */
@@ -914,7 +918,10 @@ static void runlog_evidence_settings_in_time(void **state)
 static void runlog_rows_get_status_not_nan(void **state)
 {
     (void)state;
-    const double fenske_ref = log(0.95 / 0.05) / log(2.5); /* REFERENCES §1, closed form */
+    const double fenske_ref =
+        log(0.95 / 0.05) /
+        log(2.5); /* Fenske 1932, "Fractionation of straight-run Pennsylvania gasoline", Ind. Eng.
+                     Chem. 24, citation from memory, closed form */
     const char *csv = "time[h],W[kmol],xD[mol/mol],xB[mol/mol],R[-],V[kmol/h],T_top[K]\n"
                       "0,10,0.95,0.5,inf,10,351.44\n0.1,9.9,,0.49,4,10,351.44\n"
                       "0.2,9.8,0.94,0.48,0,10,351.44\n0.3,9.7,0.94,0.47,4,,351.44\n"
@@ -926,8 +933,9 @@ static void runlog_rows_get_status_not_nan(void **state)
     stagecal_runlog_result res;
     assert_int_equal(stagecal_runlog_analyse(log, &test_col, NULL, &res, NULL), 0);
     assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, NULL, &res, NULL), 0);
-    /* total reflux: Fenske, REFERENCES §1: N = ln[(xD/(1−xD))·((1−xB)/xB)]/ln α
-     * (closed form evaluated here; 1e-9 is the round-trip tolerance of DESIGN §2) */
+    /* total reflux: Fenske 1932: N = ln[(xD/(1−xD))·((1−xB)/xB)]/ln α
+     * (closed form evaluated here; 1e-9 is the round-trip tolerance of docs/methods.md "Stage
+     * counting") */
     assert_int_equal(res.status[0], STAGECAL_STAGES_OK);
     assert_rel(res.stages[0], fenske_ref, 1e-9, "Fenske at R = inf");
     assert_abs(res.lv[0], 1.0, 0, "L/V at total reflux");

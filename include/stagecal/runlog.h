@@ -178,14 +178,14 @@ stagecal_reading stagecal_runlog_reading(const stagecal_runlog *log, const stage
 
 /* ---- analysis ---------------------------------------------------------------------- */
 
-/* Cao & Rhinehart R-statistic (REFERENCES §9) of x[0..n−1] with filter factors
- * l1, l2, l3 in (0, 1]. R is undefined at the first sample, so r receives n − 1
- * values: r[i − 1] is R at sample i (i = 1..n−1). floor_var ≥ 0 is added to both
- * filtered variances in the ratio's proportion — (2−l1)(v² + a)/(δ² + (2−l1)a)
- * with a = 2·floor_var/(2−l1) — so a signal that is exactly constant (a set
- * point) or quieter than its stated noise reads R → 1 instead of 0/0; floor_var
- * = 0 gives the published statistic. Samples with x NaN hold the filters and
- * repeat the previous R (1 at the start). EINVAL for bad λ or n < 2. */
+/* Cao & Rhinehart R-statistic (Cao & Rhinehart 1995, "An efficient method for on-line
+ * identification of steady state", J. Process Control 5) of x[0..n−1] with filter factors l1, l2,
+ * l3 in (0, 1]. R is undefined at the first sample, so r receives n − 1 values: r[i − 1] is R at
+ * sample i (i = 1..n−1). floor_var ≥ 0 is added to both filtered variances in the ratio's
+ * proportion — (2−l1)(v² + a)/(δ² + (2−l1)a) with a = 2·floor_var/(2−l1) — so a signal that is
+ * exactly constant (a set point) or quieter than its stated noise reads R → 1 instead of 0/0;
+ * floor_var = 0 gives the published statistic. Samples with x NaN hold the filters and repeat the
+ * previous R (1 at the start). EINVAL for bad λ or n < 2. */
 int stagecal_runlog_rstat(const double *x, size_t n, double l1, double l2, double l3,
                           double floor_var, double *r, stagecal_error *err);
 
@@ -220,7 +220,8 @@ typedef struct {
 } stagecal_runlog_closure;
 
 typedef struct {
-    double lambda1, lambda2, lambda3; /* R-statistic filters (0.2, 0.1, 0.1, REFERENCES §9) */
+    double lambda1, lambda2,
+        lambda3;            /* R-statistic filters (0.2, 0.1, 0.1, Cao & Rhinehart 1995) */
     double r_enter;         /* transient → steady when every signal's R < r_enter (1.44, the
                                α = 0.05 critical value for (0.2, 0.1, 0.1)) */
     double r_leave;         /* steady → transient when any signal's R > r_leave (2.5) */

@@ -1,13 +1,13 @@
 /*
  * stagecal/stages.h — McCabe–Thiele stepping for a batch rectifier, both ways.
  *
- * Conventions (DESIGN §2): stages are numbered from the top, the pot is the last,
- * ideal, stage; "stages" counts the pot, "column stages" = stages − 1. Constant
- * molar overflow: y(n+1) = (L/V)·x(n) + (1 − L/V)·xD, L/V = R/(R+1); total reflux
- * is R = INFINITY (L/V = 1). Total condenser: y1 = xD. Each column stage may carry
- * a Murphree vapour efficiency E_MV in (0, 1]; the pot is ideal. Fractional stages
- * are defined from the pot up (DESIGN §2) and equal Fenske / Smoker exactly for
- * constant α and E_MV = 1, which is how such inversions are computed (closed_form).
+ * Conventions (docs/methods.md, "Stage counting"): stages are numbered from the top, the pot is the
+ * last, ideal, stage; "stages" counts the pot, "column stages" = stages − 1. Constant molar
+ * overflow: y(n+1) = (L/V)·x(n) + (1 − L/V)·xD, L/V = R/(R+1); total reflux is R = INFINITY (L/V =
+ * 1). Total condenser: y1 = xD. Each column stage may carry a Murphree vapour efficiency E_MV in
+ * (0, 1]; the pot is ideal. Fractional stages are defined from the pot up (docs/methods.md, "Stage
+ * counting") and equal Fenske / Smoker exactly for constant α and E_MV = 1, which is how such
+ * inversions are computed (closed_form).
  */
 #ifndef STAGECAL_STAGES_H
 #define STAGECAL_STAGES_H
@@ -63,12 +63,13 @@ typedef struct {
     double stages;        /* equilibrium stages incl. the pot (≥ 1); 0 unless ok */
     double column_stages; /* stages − 1; 0 unless ok */
     double lv;            /* L/V used (1 at total reflux) */
-    double x_target;      /* liquid leaving the lowest column stage (DESIGN §2.2) */
-    double dstages_dxd;   /* sensitivities (0 unless ok and requested): the derivatives of */
-    double dstages_dxb;   /* the count (tangent-linear; or finite differences, one-sided */
-    double dstages_dr;    /* where a neighbour leaves the domain, see want_sensitivities);
-                             ∂/∂R = 0 at total reflux */
-    char reason[160];     /* why, when status is not ok; "" otherwise */
+    double
+        x_target; /* liquid leaving the lowest column stage (docs/methods.md, "Stage counting") */
+    double dstages_dxd; /* sensitivities (0 unless ok and requested): the derivatives of */
+    double dstages_dxb; /* the count (tangent-linear; or finite differences, one-sided */
+    double dstages_dr;  /* where a neighbour leaves the domain, see want_sensitivities);
+                           ∂/∂R = 0 at total reflux */
+    char reason[160];   /* why, when status is not ok; "" otherwise */
 } stagecal_stages_result;
 
 /* One point of a stage profile: the liquid leaving stage `stage` and the vapour
@@ -95,7 +96,8 @@ int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double
  * it is not ok, *len = 0, *xb is the last liquid composition reached on a pinch (the
  * pinch composition to rounding) and 0 otherwise, and err (if given) carries the reason with code
  * STAGECAL_OK. The fractional part of stages − 1 is stepped with the closed-form
- * inverse of Smoker's equation written with α_loc of that step (REFERENCES §2), so the
+ * inverse of Smoker's equation written with α_loc of that step (Smoker 1938, "Analytic
+ * determination of plates in fractionating columns", Trans. AIChE 34, citation from memory), so the
  * result round-trips with stagecal_stages_invert. Profile points: stage = 1, 2, … for
  * whole column stages (y on the (pseudo-)equilibrium curve), stage = stages − 1 for the
  * partial stage's end point (x_target), stage = stages for the pot (xB, y*(xB)).
@@ -106,8 +108,9 @@ int stagecal_stages_step(const stagecal_vle *vle, double xd, double reflux, doub
                          stagecal_stage_point *profile, size_t cap, size_t *len, int *status,
                          stagecal_error *err);
 
-/* Closed forms for constant α (REFERENCES §1, §2). Return EINVAL outside their
- * domain (e.g. xB at or below the pinch for Smoker). Stages include the pot. */
+/* Closed forms for constant α (Fenske 1932, "Fractionation of straight-run Pennsylvania gasoline",
+ * Ind. Eng. Chem. 24; Smoker 1938; both citations from memory). Return EINVAL outside their domain
+ * (e.g. xB at or below the pinch for Smoker). Stages include the pot. */
 int stagecal_fenske(double alpha, double xd, double xb, double *stages, stagecal_error *err);
 int stagecal_smoker(double alpha, double reflux, double xd, double xb, double *stages,
                     stagecal_error *err);

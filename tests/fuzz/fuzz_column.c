@@ -26,8 +26,8 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
         static const double xs[] = {0.0, 1e-9, 0.3, 0.5, 0.97, 1.0};
         for (size_t i = 0; i < sizeof xs / sizeof xs[0]; i++) {
             double y;
-            /* A model that says ok must give a finite y in [0, 1] (DESIGN §2: never a
-             * silent NaN); anything else is a defect worth a crash report. */
+            /* A model that says ok must give a finite y in [0, 1] (docs/methods.md "Stage
+             * counting": never a silent NaN); anything else is a defect worth a crash report. */
             if (stagecal_vle_ystar(col.system.vle, xs[i], &y) == 0 && !(y >= 0.0 && y <= 1.0)) {
                 fprintf(stderr, "y*(%g) = %g with status ok\n", xs[i], y);
                 abort();

@@ -116,7 +116,8 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
         for (size_t i = 0; i < sizeof rs / sizeof rs[0]; i++) {
             stagecal_model_point pt;
             double f = m.has_load ? m.f_max : NAN;
-            /* DESIGN §2: never a NaN or inf in a result without a status saying why. */
+            /* docs/methods.md "Stage counting": never a NaN or inf in a result without a status
+             * saying why. */
             if (stagecal_model_eval(&m, rs[i], f, 0.0, &pt, &err) == 0 && !isfinite(pt.stages)) {
                 fprintf(stderr, "eval at R = %g: stages %g with status ok\n", rs[i], pt.stages);
                 abort();
