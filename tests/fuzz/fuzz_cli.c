@@ -69,15 +69,18 @@ int LLVMFuzzerInitialize(int *argc, char ***argv)
     return 0;
 }
 
+/* system: the command takes the equilibrium-model options (main.c's CMD_SYSTEM), so the
+ * harness sets up and closes them as main's run() does. */
 struct fuzz_command {
     const char *name;
-    int (*run)(int argc, char **argv);
+    int (*run)(int argc, char **argv, cli_ctx *ctx);
+    int system;
 };
 
 static const struct fuzz_command commands[] = {
-    {"steps", cmd_steps},     {"invert", cmd_invert}, {"check", cmd_check},
-    {"regress", cmd_regress}, {"hetp", cmd_hetp},     {"trend", cmd_trend},
-    {"predict", cmd_predict},
+    {"steps", cmd_steps, 1},     {"invert", cmd_invert, 1}, {"check", cmd_check, 0},
+    {"regress", cmd_regress, 0}, {"hetp", cmd_hetp, 0},     {"trend", cmd_trend, 0},
+    {"predict", cmd_predict, 1},
 };
 
 #define FUZZ_MAX_ARGS 24
@@ -123,7 +126,12 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     if (!refuse) {
         cli_command = cmd->name;
         cli_quiet = 0;
-        (void)cmd->run(argc, argv);
+        cli_ctx ctx;
+        memset(&ctx, 0, sizeof ctx);
+        cli_system_init(&ctx.sys);
+        (void)cmd->run(argc, argv, &ctx);
+        if (cmd->system)
+            cli_system_close(&ctx.sys);
         fflush(stdout);
         clearerr(stdout);
     }
