@@ -127,9 +127,14 @@ static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params
         mo->f_max = fit->f_max;
     }
     /* provenance */
+    /* the column's hash from the bytes its reader parsed; a second read only for a column
+     * built in memory (sha256 empty) */
     char hex[STAGECAL_MODEL_HEX];
-    if (column_path && ((rc = stagecal_model_hash_file(column_path, hex, err)) ||
-                        (rc = stagecal_model_add_input(mo, column_path, hex, 0, err))))
+    if (column_path && col->sha256[0])
+        memcpy(hex, col->sha256, sizeof hex);
+    else if (column_path && (rc = stagecal_model_hash_file(column_path, hex, err)))
+        return rc;
+    if (column_path && (rc = stagecal_model_add_input(mo, column_path, hex, 0, err)))
         return rc;
     for (size_t k = 0; k < cal->log->nfiles; k++) {
         size_t rows = 0;
