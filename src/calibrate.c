@@ -51,6 +51,7 @@ void stagecal_calibration_free(stagecal_calibration *cal)
     stagecal_findings_free(cal->findings);
     stagecal_runlog_result_free(&cal->res);
     stagecal_evidence_set_free(&cal->evidence);
+    free(cal->flagged);
     stagecal_regress_result_free(&cal->stage_fit);
     stagecal_regress_result_free(&cal->comp_fit);
     stagecal_model_free(&cal->model);
@@ -324,17 +325,21 @@ static int add_warnings(stagecal_calibration *cal, const stagecal_calibrate_para
         if ((rc = warn(cal, err, "NOT DETERMINED: %s", why)))
             return rc;
     }
+    for (size_t k = 0; k < cal->nflagged; k++) {
+        const stagecal_flagged_run *f = &cal->flagged[k];
+        if ((rc = warn(cal, err, "run '%s' %s (%zu window%s): %s", cal->log->runs[f->run].name,
+                       f->left_out ? "left out of the fit" : "kept in the fit (keep flagged runs)",
+                       f->windows, f->windows == 1 ? "" : "s", f->reason)))
+            return rc;
+    }
     for (size_t r = 0; r < cal->res.nruns; r++) {
         const stagecal_runlog_closure *c = &cal->res.closures[r];
-        if (c->gross && (rc = warn(cal, err,
-                                   "run '%s': Rayleigh closure error %.3g exceeds its uncertainty "
-                                   "(%.2g): gross error in W, xD or xB",
-                                   cal->log->runs[r].name, c->closure, c->u_closure)))
-            return rc;
-        if (c->drift && (rc = warn(cal, err,
-                                   "run '%s': pot analyser drift %.3g per hour against the "
-                                   "reconciled xB",
-                                   cal->log->runs[r].name, c->drift_per_h)))
+        if (c->boilup_mismatch &&
+            (rc = warn(cal, err,
+                       "run '%s': the pot holdup fell %.4g mol, V/(R+1) gives %.4g ± %.2g mol "
+                       "(ratio %.4f): check the boil-up, reflux-ratio and holdup signals",
+                       cal->log->runs[r].name, c->w_fall_mol, c->w_pred_mol, c->u_w_diff_mol,
+                       c->boilup_ratio)))
             return rc;
     }
     if (!(cal->model.sigma > 0) &&
@@ -348,6 +353,47 @@ static int add_warnings(stagecal_calibration *cal, const stagecal_calibrate_para
                                  "composition-space fit still uses their windows",
                                  npinch)))
         return rc;
+    return STAGECAL_OK;
+}
+
+/* Runs flagged for a gross closure error or analyser drift, with the reason; skip[r] = 1
+ * for those left out of the fit. */
+static int flag_runs(stagecal_calibration *cal, const stagecal_calibrate_params *par,
+                     unsigned char *skip, stagecal_error *err)
+{
+    const stagecal_runlog_result *res = &cal->res;
+    size_t n = 0;
+    for (size_t r = 0; r < res->nruns; r++)
+        n += res->closures[r].gross || res->closures[r].drift;
+    cal->flagged = calloc(n ? n : 1, sizeof *cal->flagged);
+    if (!cal->flagged)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    for (size_t r = 0; r < res->nruns; r++) {
+        const stagecal_runlog_closure *c = &res->closures[r];
+        if (!c->gross && !c->drift)
+            continue;
+        stagecal_flagged_run *f = &cal->flagged[cal->nflagged++];
+        f->run = r;
+        f->left_out = !par->keep_flagged;
+        skip[r] = (unsigned char)f->left_out;
+        for (size_t w = 0; w < res->nwindows; w++)
+            f->windows += res->windows[w].run == r;
+        char g[100] = "", d[140] = "";
+        if (c->gross)
+            snprintf(g, sizeof g, "gross error: Rayleigh closure %+.2f %% ± %.2f %%",
+                     100 * c->closure, 100 * c->u_closure);
+        if (c->drift) {
+            int j = c->drift_analyser == STAGECAL_DRIFT_DISTILLATE ? 0 : 1;
+            double rate = c->sig[j].n_bal || c->sig[j].n_stg ? c->sig[j].d : c->drift_per_h;
+            if (c->drift_analyser == STAGECAL_DRIFT_UNATTRIBUTED)
+                snprintf(d, sizeof d, "analyser drift, unattributed (balance xB %+.2g /h)",
+                         c->drift_per_h);
+            else
+                snprintf(d, sizeof d, "analyser drift: %s %+.2g /h",
+                         stagecal_drift_analyser_name(c->drift_analyser), rate);
+        }
+        snprintf(f->reason, sizeof f->reason, "%s%s%s", g, g[0] && d[0] ? "; " : "", d);
+    }
     return STAGECAL_OK;
 }
 
@@ -365,14 +411,26 @@ static int run_chain(stagecal_calibration *cal, const char *column_path,
                                      &cal->res, err)))
         return rc;
     progress(par, "windows", 0.5);
-    if ((rc = stagecal_evidence_build(cal->log, &cal->res, cal->column, par->murphree,
-                                      &par->evidence, &cal->evidence, err)))
+    unsigned char *skip = calloc(cal->log->nruns ? cal->log->nruns : 1, 1);
+    if (!skip)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    stagecal_evidence_params ep = par->evidence;
+    ep.skip_run = skip;
+    if ((rc = flag_runs(cal, par, skip, err)) == STAGECAL_OK)
+        rc = stagecal_evidence_build(cal->log, &cal->res, cal->column, par->murphree, &ep,
+                                     &cal->evidence, err);
+    free(skip);
+    if (rc)
         return rc;
+    size_t nleft = 0;
+    for (size_t k = 0; k < cal->nflagged; k++)
+        nleft += cal->flagged[k].left_out;
     if (cal->evidence.n == 0)
         return error_set(err, STAGECAL_EDATA,
                          "no quasi-steady window in the run logs: nothing to calibrate on "
-                         "(%zu samples read)",
-                         cal->log->n);
+                         "(%zu samples read; %zu flagged run(s) left out, keep flagged runs to "
+                         "use them)",
+                         cal->log->n, nleft);
     if ((rc = run_fits(cal, par, &fit, err)))
         return rc;
     progress(par, "model", 0.95);

@@ -678,7 +678,8 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
     }
     int rc = evidence_holdup(log, col, &par, set, xd_src, u2, err);
     for (size_t k = 0; k < nw && rc == STAGECAL_OK; k++)
-        if (window_summary(log, xd_src, res, &col->u, k, cap, buf, buf + maxlen, buf + 2 * maxlen,
+        if (!(par.skip_run && par.skip_run[res->windows[k].run]) &&
+            window_summary(log, xd_src, res, &col->u, k, cap, buf, buf + maxlen, buf + 2 * maxlen,
                            buf + 3 * maxlen, set->samples + 3 * cap * set->n, &set->ev[set->n]))
             set->n++;
     free(buf);

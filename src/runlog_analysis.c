@@ -52,7 +52,9 @@ stagecal_runlog_analysis_params stagecal_runlog_analysis_default_params(void)
                                              .drift_t = 4.0,
                                              .drift_u = 2.0,
                                              .outlier_sigmas = 4.0,
-                                             .no_distillate_t = 2.0};
+                                             .no_distillate_t = 2.0,
+                                             .drift_q = 10.83,
+                                             .boilup_sigmas = 3.0};
 }
 
 int stagecal_runlog_rstat(const double *x, size_t n, double l1, double l2, double l3,
@@ -99,6 +101,8 @@ void result_free_members(stagecal_runlog_result *res)
     free(res->u_stages);
     free(res->lv);
     free(res->f_factor);
+    free(res->dn_dxd);
+    free(res->dn_dxb);
     free(res->windows);
     free(res->closures);
     memset(res, 0, sizeof *res);
@@ -120,6 +124,8 @@ static int close_run(const stagecal_runlog *log, const stagecal_column *col, siz
     double uw = col ? col->u.w_mol : 0, uxd = col ? col->u.xd : 0, uxb = col ? col->u.xb : 0;
     memset(c, 0, sizeof *c);
     c->run = k;
+    runlog_drift_clear(c);
+    runlog_boilup(log, col, par, res, k);
     size_t m = 0;
     double integral = 0.0;
     for (size_t i = run->first; i < run->first + run->n; i++) {
@@ -230,6 +236,9 @@ static int close_run(const stagecal_runlog *log, const stagecal_column *col, siz
         c->u_drift_per_h = sqrt(cov11);
         int big = uxb > 0 ? fabs(c1) * span > par->drift_u * uxb : 1;
         c->drift = c->u_drift_per_h > 0 && fabs(c1) > par->drift_t * c->u_drift_per_h && big;
+        /* the balance alone cannot tell the analysers apart (runlog_drift.c does, with the
+         * stage counts, after the inversion) */
+        c->drift_analyser = c->drift ? STAGECAL_DRIFT_UNATTRIBUTED : STAGECAL_DRIFT_NONE;
     }
     free(x), free(y), free(wt);
     return STAGECAL_OK;
@@ -259,6 +268,8 @@ int stagecal_runlog_analyse(const stagecal_runlog *log, const stagecal_column *c
     res->u_stages = alloc_n(n, sizeof(double));
     res->lv = alloc_n(n, sizeof(double));
     res->f_factor = alloc_n(n, sizeof(double));
+    res->dn_dxd = alloc_n(n, sizeof(double));
+    res->dn_dxb = alloc_n(n, sizeof(double));
     res->closures = alloc_n(log->nruns, sizeof *res->closures);
     size_t maxrun = 0;
     for (size_t k = 0; k < log->nruns; k++)
@@ -268,7 +279,8 @@ int stagecal_runlog_analyse(const stagecal_runlog *log, const stagecal_column *c
            *t = alloc_n(maxrun, sizeof *t);
     size_t *idx = alloc_n(maxrun, sizeof *idx);
     if (!res->flags || !res->window || !res->xb_rec || !res->status || !res->note || !res->stages ||
-        !res->u_stages || !res->lv || !res->f_factor || !res->closures || !h || !e || !t || !idx) {
+        !res->u_stages || !res->lv || !res->f_factor || !res->dn_dxd || !res->dn_dxb ||
+        !res->closures || !h || !e || !t || !idx) {
         free(h), free(e), free(t), free(idx);
         result_free_members(res);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");

@@ -71,6 +71,9 @@ typedef struct {
     int allow_undetermined;            /* 1: a fit whose evidence does not determine a
                                           parameter is kept, the model carries a warning
                                           that names it (default 0: refused, EDATA) */
+    int keep_flagged;                  /* 1: runs flagged for a gross closure error or analyser
+                                          drift stay in the fit (default 0: left out, and the
+                                          calibration lists them with the reason) */
     double hetp_r;                     /* reference reflux ratio for HETP (NAN: largest fitted) */
     double hetp_f;                     /* reference F for HETP (NAN: mean fitted) */
     stagecal_runlog_params read;
@@ -82,6 +85,15 @@ typedef struct {
 
 stagecal_calibrate_params stagecal_calibrate_default_params(void);
 
+/* A run flagged for a gross error or analyser drift (runlog.h closure), left out of the fit
+ * or kept (keep_flagged). */
+typedef struct {
+    size_t run;       /* run index in the log */
+    size_t windows;   /* its quasi-steady windows */
+    int left_out;     /* 1: its windows are not in the fit */
+    char reason[240]; /* "gross error: closure −7.21 % ± 0.80 %; drift: pot analyser (xB) …" */
+} stagecal_flagged_run;
+
 typedef struct {
     const stagecal_column *column;  /* the column the chain ran on */
     const stagecal_runlog *log;     /* all rows of all logs */
@@ -89,7 +101,9 @@ typedef struct {
                                        stagecal_calibrate_data, whose caller validated) */
     stagecal_runlog_result res;     /* per-sample results, windows, closures */
     stagecal_evidence_set evidence; /* one entry per usable window */
-    size_t nev_stage;               /* windows used by the stage-space fit */
+    stagecal_flagged_run *flagged;  /* runs flagged for a gross error or drift */
+    size_t nflagged;
+    size_t nev_stage; /* windows used by the stage-space fit */
     int stage_status; /* STAGECAL_OK, why the stage-space fit failed, or −1 (not run) */
     char stage_message[STAGECAL_ERROR_TEXT];
     stagecal_regress_result stage_fit;

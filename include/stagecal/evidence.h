@@ -161,6 +161,9 @@ typedef struct {
                                       gives a time constant, else NONE */
     int physics; /* 1: windows get their conditions (logged pressure, subcooled reflux,
                     unequal latent heats; physics.h) (default 1) */
+    const unsigned char *skip_run; /* one per run of the log, non-zero: that run's windows are
+                                      left out (a run flagged for a gross error or drift;
+                                      calibrate.h); NULL (default): none */
 } stagecal_evidence_params;
 
 #define STAGECAL_EVIDENCE_HOLDUP_AUTO (-1)

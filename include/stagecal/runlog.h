@@ -125,11 +125,8 @@ typedef struct {
     uint32_t *run;             /* run index of each row */
     stagecal_runlog_run *runs; /* nruns runs, rows contiguous */
     size_t nruns;
-    char (*files)[160];      /* nfiles source names */
-    char (*sha256)[65];      /* SHA-256 of each file's bytes as read, lowercase hex ("" when the
-                                reading params asked for none) */
-    uint64_t (*checksum)[2]; /* each file's byte count and a 64-bit checksum of its bytes
-                                (not cryptographic): a file given twice is found by it */
+    char (*files)[160]; /* nfiles source names */
+    char (*sha256)[65]; /* SHA-256 of each file's bytes as read, lowercase hex */
     size_t nfiles;
     size_t nfiles_iso; /* files whose time column holds ISO 8601 timestamps (absolute) */
 } stagecal_runlog;
@@ -139,8 +136,6 @@ typedef struct {
     double w_rise_sigmas; /* W rising by more than this many √2·u(W) while R is finite:
                              warning (default 3); u(W) from the column file, 0 → any rise */
     size_t max_findings;  /* findings kept by stagecal_findings_alloc in the CLI (1000) */
-    int sha256;           /* 1: SHA-256 of each file's bytes into log->sha256, for provenance
-                             (default 1); 0 saves its cost where nothing records it */
 } stagecal_runlog_params;
 
 stagecal_runlog_params stagecal_runlog_default_params(void);
@@ -169,30 +164,6 @@ int stagecal_runlog_read_buffer(stagecal_runlog *log, const char *text, size_t l
 int stagecal_runlog_read_stream(stagecal_runlog *log, FILE *in, const char *source,
                                 const stagecal_column *col, const stagecal_runlog_params *params,
                                 stagecal_findings *f, stagecal_error *err);
-
-/* ---- streaming: one run at a time ---------------------------------------------------- *
- * For logs larger than memory: the files are read in order and each run is handed out as
- * soon as it is complete (a run's rows are contiguous), so memory holds one run and the
- * row being read, whatever the number of rows. Every check of stagecal_runlog_read is made
- * the same way, into the same findings, in the same order. */
-typedef struct stagecal_runlog_stream stagecal_runlog_stream;
-
-/* A stream over the files paths[0..npaths) ("-" = stdin), which must outlive it; col,
- * params and f as for stagecal_runlog_read (f may be NULL). NULL on allocation failure. */
-stagecal_runlog_stream *stagecal_runlog_stream_alloc(const char *const *paths, size_t npaths,
-                                                     const stagecal_column *col,
-                                                     const stagecal_runlog_params *params,
-                                                     stagecal_findings *f);
-void stagecal_runlog_stream_free(stagecal_runlog_stream *s); /* NULL ok */
-
-/* Replaces the rows of run (a log from stagecal_runlog_alloc, reused from call to call)
- * by the next complete run: run->nruns = 1, rows 0..run->n − 1, run->files every file
- * opened so far (runs[0].file indexes them). At the end run->n = 0 and STAGECAL_OK.
- * A file that cannot be read returns the code stagecal_runlog_read gives (ENOINPUT,
- * EDATA; also a finding), with run->n = 0; the next call goes on with the next file.
- * ENOMEM. */
-int stagecal_runlog_stream_next(stagecal_runlog_stream *s, stagecal_runlog *run,
-                                stagecal_error *err);
 
 /* Standard uncertainty of a distillate reading xd: u² = u.xd² + (u.xd_heavy_rel·(1 − xd))²
  * (the relative part is relative to the heavy content, what a purity analyser reads).
@@ -235,6 +206,29 @@ typedef struct {
                            error are the evidence module's: stagecal_evidence_build) */
 } stagecal_runlog_window;
 
+/* Which analyser a drift is put down to. */
+typedef enum {
+    STAGECAL_DRIFT_NONE = 0,     /* no drift flagged */
+    STAGECAL_DRIFT_DISTILLATE,   /* the xD analyser */
+    STAGECAL_DRIFT_POT,          /* the xB analyser */
+    STAGECAL_DRIFT_UNATTRIBUTED, /* a drift the best hypothesis does not explain (its two
+                                    estimates disagree), or balance only (no stage counts) */
+} stagecal_drift_analyser;
+
+/* "none", "distillate analyser (xD)", "pot analyser (xB)", "unattributed". */
+const char *stagecal_drift_analyser_name(int analyser);
+
+/* One drift hypothesis of one run. */
+typedef struct {
+    double d_bal, se_bal; /* drift rate from the Rayleigh balance [1/h] and its se */
+    double d_stg, se_stg; /* from the stage counts' trend within windows [1/h] */
+    double d, se;         /* inverse-variance combination (balance alone without stages) */
+    double t_stat;        /* (d/se)²: GLR statistic for a bias of this signature */
+    double q_stat;        /* (d_bal − d_stg)²/(se_bal² + se_stg²): consistency (NaN when one
+                             of the two is missing) */
+    size_t n_bal, n_stg;  /* rows in each estimate */
+} stagecal_runlog_drift_sig;
+
 typedef struct {
     size_t run;           /* run index */
     size_t n_used;        /* samples with W, xD, xB present */
@@ -244,8 +238,25 @@ typedef struct {
     double drift_per_h;   /* estimated xB analyser drift d [1/h]: weighted fit of the light
                              holdup h_k = H + d·W_k·t_k (see docs/methods.md) */
     double u_drift_per_h; /* its standard error */
-    int drift;            /* 1: analyser drift flagged (see params) */
+    int drift;            /* 1: analyser drift flagged (see params; after stagecal_runlog_invert
+                             the two-signature test below decides it) */
     size_t n_outliers;    /* samples flagged OUTLIER */
+    /* Two drift signatures (src/runlog_drift.c, docs/methods.md "Analyser drift and balance
+     * checks"): for each hypothesis j (a distillate or a pot analyser reading x + d·(t − t0))
+     * the drift rate d from the balance (b) and from the per-sample stage counts (s), their
+     * inverse-variance combination, the GLR statistic T = (d/se)² and the consistency
+     * Q = (d_b − d_s)²/(se_b² + se_s²). Set by stagecal_runlog_invert (NaN/0 before). */
+    stagecal_runlog_drift_sig sig[2]; /* [0] distillate (xD), [1] pot (xB) analyser */
+    int drift_analyser;               /* stagecal_drift_analyser: which analyser is named */
+    /* Boil-up/reflux consistency: the fall of W over the production rows against
+     * Σ V/(R+1)·Δt (trapezoid), with the uncertainty of the prediction from u(V), u(R) and
+     * of the fall from u(W). */
+    int has_boilup;      /* 1: the run has production rows with W, V and R */
+    double w_fall_mol;   /* observed fall of W [mol] */
+    double w_pred_mol;   /* Σ V/(R+1)·Δt [mol] */
+    double u_w_diff_mol; /* standard uncertainty of w_fall − w_pred [mol] */
+    double boilup_ratio; /* w_fall / w_pred */
+    int boilup_mismatch; /* 1: |w_fall − w_pred| > boilup_sigmas·u_w_diff */
 } stagecal_runlog_closure;
 
 typedef struct {
@@ -268,6 +279,10 @@ typedef struct {
     double drift_u;         /* ... and |slope|·duration > drift_u·u(xB) (2) */
     double outlier_sigmas;  /* |xB − xB_rec| > outlier_sigmas·u(xB): outlier (4) */
     double no_distillate_t; /* finite-R window whose W slope has |t| < this: no distillate (2) */
+    double drift_q;         /* the named hypothesis' consistency Q must not exceed this
+                               (10.83, the χ²(1) 0.999 quantile); else the drift is unattributed */
+    double boilup_sigmas;   /* boil-up/reflux mismatch when |ΔW − ΣV/(R+1)Δt| > this many
+                               standard uncertainties (3) */
 } stagecal_runlog_analysis_params;
 
 stagecal_runlog_analysis_params stagecal_runlog_analysis_default_params(void);
@@ -319,6 +334,8 @@ typedef struct {
     double *u_stages;      /* standard uncertainty of stages (0 unless ok) */
     double *lv;            /* L/V = R/(R+1) (1 at total reflux; NaN when R is missing) */
     double *f_factor;      /* F = u_G·√ρ_G [Pa^0.5]; NaN when not available (note says) */
+    double *dn_dxd;        /* ∂stages/∂xD and ∂stages/∂xB of ok rows (0 otherwise; after */
+    double *dn_dxb;        /* stagecal_runlog_invert) */
     stagecal_runlog_window *windows;
     size_t nwindows;
     stagecal_runlog_closure *closures; /* one per run */

@@ -247,7 +247,33 @@ json_t *cli_run_json(const stagecal_runlog *log, size_t k, const stagecal_runlog
     json_object_set_new(o, "xb_drift_per_h", cli_json_real(cl->drift_per_h));
     json_object_set_new(o, "u_xb_drift_per_h", cli_json_real(cl->u_drift_per_h));
     json_object_set_new(o, "drift", json_boolean(cl->drift));
+    json_object_set_new(o, "drift_analyser",
+                        json_string(stagecal_drift_analyser_name(cl->drift_analyser)));
+    json_t *sigs = json_object();
+    static const char *const key[2] = {"xd", "xb"};
+    for (int j = 0; j < 2; j++) {
+        const stagecal_runlog_drift_sig *s = &cl->sig[j];
+        json_object_set_new(
+            sigs, key[j],
+            json_pack("{s:o,s:o,s:o,s:o,s:o,s:o,s:o,s:o,s:I,s:I}", "balance_per_h",
+                      cli_json_real(s->d_bal), "u_balance_per_h", cli_json_real(s->se_bal),
+                      "stages_per_h", cli_json_real(s->d_stg), "u_stages_per_h",
+                      cli_json_real(s->se_stg), "drift_per_h", cli_json_real(s->d), "u_drift_per_h",
+                      cli_json_real(s->se), "glr", cli_json_real(s->t_stat), "consistency",
+                      cli_json_real(s->q_stat), "rows_balance", (json_int_t)s->n_bal, "rows_stages",
+                      (json_int_t)s->n_stg));
+    }
+    json_object_set_new(o, "drift_signatures", sigs);
     json_object_set_new(o, "outliers", json_integer((json_int_t)cl->n_outliers));
+    if (cl->has_boilup)
+        json_object_set_new(
+            o, "boilup",
+            json_pack("{s:o,s:o,s:o,s:o,s:b}", "w_fall_mol", cli_json_real(cl->w_fall_mol),
+                      "w_predicted_mol", cli_json_real(cl->w_pred_mol), "u_difference_mol",
+                      cli_json_real(cl->u_w_diff_mol), "ratio", cli_json_real(cl->boilup_ratio),
+                      "mismatch", cl->boilup_mismatch));
+    else
+        json_object_set_new(o, "boilup", json_null());
     return o;
 }
 
@@ -356,18 +382,4 @@ int cli_system_option(cli_system *s, const char *name, const char *arg)
                    ? CLI_EXIT_USAGE
                    : 0;
     return cli_parse_double("kvalue", arg, 0, "a K value > 1", &s->kvalue) ? CLI_EXIT_USAGE : 0;
-}
-
-void cli_print_params(const stagecal_regress_result *f, int long_form)
-{
-    int nw = long_form ? 10 : 12, vw = long_form ? 16 : 14, vp = long_form ? 10 : 6;
-    int sw = long_form ? 14 : 12, sp = long_form ? 6 : 4, ip = long_form ? 8 : 6;
-    printf("  %-*s %*s %*s   %.0f%% confidence interval\n", nw, "parameter", vw, "value", sw,
-           long_form ? "SE" : "std. error", 100 * f->level);
-    for (size_t i = 0; i < f->p; i++)
-        if ((f->undetermined >> i) & 1u)
-            printf("  %-*s %*s\n", nw, f->form.param_names[i], vw, "not determined");
-        else
-            printf("  %-*s %*.*g %*.*g   [%.*g, %.*g]\n", nw, f->form.param_names[i], vw, vp,
-                   f->theta[i], sw, sp, f->se[i], ip, f->ci_low[i], ip, f->ci_high[i]);
 }

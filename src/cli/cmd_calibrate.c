@@ -113,7 +113,14 @@ static json_t *fit_json(const stagecal_regress_result *f, int status, const char
 static void print_fit(const char *title, const stagecal_regress_result *f)
 {
     printf("%s\n", title);
-    cli_print_params(f, 0);
+    printf("  %-12s %14s %12s   %.0f%% confidence interval\n", "parameter", "value", "std. error",
+           100 * f->level);
+    for (size_t i = 0; i < f->p; i++)
+        if ((f->undetermined >> i) & 1u)
+            printf("  %-12s %14s\n", f->form.param_names[i], "not determined");
+        else
+            printf("  %-12s %14.6g %12.4g   [%.6g, %.6g]\n", f->form.param_names[i], f->theta[i],
+                   f->se[i], f->ci_low[i], f->ci_high[i]);
     printf("  residual sigma %.4g stages, %g degrees of freedom, %zu windows\n",
            f->sigma_obs > 0 ? f->sigma_obs : f->sigma, f->dof, f->n);
 }
@@ -310,6 +317,14 @@ static int print_json(const stagecal_calibration *cal, const char *path, const s
                   (json_int_t)cal->res.count[STAGECAL_STAGES_AZEOTROPE], "censored_samples",
                   (json_int_t)cal->res.count[STAGECAL_RUNLOG_CENSORED]));
     json_object_set_new(doc, "holdup", holdup_json(cal));
+    json_t *fl = json_array();
+    for (size_t k = 0; k < cal->nflagged; k++) {
+        const stagecal_flagged_run *f = &cal->flagged[k];
+        json_array_append_new(fl, json_pack("{s:s,s:I,s:b,s:s}", "run", cal->log->runs[f->run].name,
+                                            "windows", (json_int_t)f->windows, "left_out",
+                                            f->left_out, "reason", f->reason));
+    }
+    json_object_set_new(doc, "flagged_runs", fl);
     json_object_set_new(doc, "envelope",
                         json_pack("{s:o,s:o,s:o,s:o}", "r_min", cli_json_reflux(mo->r_min), "r_max",
                                   cli_json_reflux(mo->r_max), "f_min",
@@ -359,6 +374,12 @@ static void print_text(const stagecal_calibration *cal, const char *path, const 
            cal->res.count[0], cal->res.count[1], cal->res.count[2], cal->res.count[3],
            cal->res.count[STAGECAL_RUNLOG_CENSORED]);
     holdup_print(cal);
+    for (size_t k = 0; k < cal->nflagged; k++) {
+        const stagecal_flagged_run *f = &cal->flagged[k];
+        printf("%s run '%s' (%zu window%s): %s\n",
+               f->left_out ? "left out:" : "kept (flagged):", cal->log->runs[f->run].name,
+               f->windows, f->windows == 1 ? "" : "s", f->reason);
+    }
     if (cal->nrank > 0) {
         printf("forms ranked by AICc (stage space):");
         for (size_t i = 0; i < cal->nrank && i < 4; i++)
@@ -555,6 +576,7 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
                  "keep a fit whose evidence does not determine a parameter (the model\n"
                  "file carries a NOT DETERMINED warning); without it such a fit is\n"
                  "refused (exit 65) with what would determine it"),
+        OPT_KEEP_FLAGGED(&par.keep_flagged),
         OPT_WARM_UP(&par.analysis.warmup_s),
         OPT_MIN_WINDOW(&par.analysis.min_window_s),
         OPT_END_COMMON(ctx),

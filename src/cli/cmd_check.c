@@ -101,6 +101,25 @@ static int print_json(const stagecal_runlog *log, const stagecal_runlog_result *
     return cli_json_print(doc);
 }
 
+/* ", ANALYSER DRIFT: <analyser> <rate> /h ± se (GLR T, consistency Q)" when flagged. */
+static void print_drift(const stagecal_runlog_closure *cl)
+{
+    if (!cl->drift)
+        return;
+    int j = cl->drift_analyser == STAGECAL_DRIFT_DISTILLATE ? 0 : 1;
+    const stagecal_runlog_drift_sig *s = &cl->sig[j];
+    if (cl->drift_analyser == STAGECAL_DRIFT_UNATTRIBUTED && !(s->n_stg > 0))
+        printf(", ANALYSER DRIFT (the balance alone cannot tell xD from xB: no stage counts in "
+               "a window)");
+    else if (cl->drift_analyser == STAGECAL_DRIFT_UNATTRIBUTED)
+        printf(", DRIFT UNATTRIBUTED (balance and stage counts disagree: xB %+.3g/%+.3g, xD "
+               "%+.3g/%+.3g /h)",
+               cl->sig[1].d_bal, cl->sig[1].d_stg, cl->sig[0].d_bal, cl->sig[0].d_stg);
+    else
+        printf(", ANALYSER DRIFT: %s %+.3g /h ± %.2g (GLR %.1f, consistency %.2f)",
+               stagecal_drift_analyser_name(cl->drift_analyser), s->d, s->se, s->t_stat, s->q_stat);
+}
+
 static int print_text(const stagecal_runlog *log, const stagecal_runlog_result *res,
                       const stagecal_findings *f)
 {
@@ -121,8 +140,13 @@ static int print_text(const stagecal_runlog *log, const stagecal_runlog_result *
                r->name, r->n, 100.0 * cl->closure);
         if (cl->u_closure > 0)
             printf(" ± %.2f %%", 100.0 * cl->u_closure);
-        printf(", xB drift %+.3g /h ± %.2g%s%s", cl->drift_per_h, cl->u_drift_per_h,
-               cl->gross ? ", GROSS ERROR" : "", cl->drift ? ", ANALYSER DRIFT" : "");
+        printf(", xB drift %+.3g /h ± %.2g%s", cl->drift_per_h, cl->u_drift_per_h,
+               cl->gross ? ", GROSS ERROR" : "");
+        print_drift(cl);
+        if (cl->has_boilup)
+            printf(", W fell %.4g of %.4g mol from V/(R+1) (ratio %.4f ± %.4f)%s", cl->w_fall_mol,
+                   cl->w_pred_mol, cl->boilup_ratio, cl->u_w_diff_mol / cl->w_pred_mol,
+                   cl->boilup_mismatch ? ", BOIL-UP/REFLUX MISMATCH" : "");
         print_outlier_lines(log, res, k);
         putchar('\n');
     }
@@ -208,7 +232,11 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
     }
 
     stagecal_runlog_result res;
-    if (stagecal_runlog_analyse(log, have_col ? &col : NULL, &ap, &res, &err) != STAGECAL_OK) {
+    /* with an equilibrium model the rows are inverted too: the stage counts are the drift
+     * test's second signature (which analyser drifts) */
+    if (stagecal_runlog_analyse(log, have_col ? &col : NULL, &ap, &res, &err) != STAGECAL_OK ||
+        (have_col && col.system.vle &&
+         stagecal_runlog_invert(log, &col, 1.0, &ap, &res, &err) != STAGECAL_OK)) {
         rc = cli_fail(&err);
         goto done;
     }

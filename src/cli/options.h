@@ -135,6 +135,11 @@ struct cli_option {
     OPT_DURATION("min-window", (v),                                                                \
                  "shortest quasi-steady window, e.g. 40min, at least 3 samples\n(default: 6 "      \
                  "samples, at most an eighth of the run, at least 4)")
+/* runs flagged for a gross closure error or analyser drift (calibrate.h) */
+#define OPT_KEEP_FLAGGED(v)                                                                        \
+    OPT_FLAG(0, "keep-flagged", (v),                                                               \
+             "keep runs flagged for a gross closure error or analyser drift in\n"                  \
+             "the fit (default: left out, and the summary says which and why)")
 #define OPT_MIN_ROWS(v)                                                                            \
     OPT_LONG("min-rows", (v), "N", "fewest rows a run may have (default 5)", 1, 1000000000L)
 #define OPT_BOOTSTRAP(v)                                                                           \

@@ -1,0 +1,443 @@
+/*
+ * runlog_drift.c — which analyser drifts, and whether the pot holdup falls as the boil-up
+ * and the reflux ratio say (include/stagecal/runlog.h; docs/methods.md, "Analyser drift and
+ * balance checks").
+ *
+ * Two signatures. The Rayleigh balance of the pot (Rayleigh 1902) conserves the light
+ * holdup h_k = W_k·xB_k + I_k, I_k = Σ ½(xD_j + xD_(j−1))(W_(j−1) − W_j). A distillate
+ * analyser reading xD + d·(t − t0) adds d·a_k to h_k, a_k = Σ ½(t_j + t_(j−1) − 2t0)(W_(j−1) −
+ * W_j); a pot analyser reading xB + d·(t − t0) adds d·b_k, b_k = W_k·(t_k − t0). The
+ * per-sample stage counts of a quasi-steady window are constant when the analysers read
+ * true; a drift adds d·g_k with g_k = (∂N/∂xD)_k·(t_k − t0) for the distillate analyser and
+ * (∂N/∂xB)_k·(t_k − t0) for the pot analyser. ∂N/∂xD > 0 and ∂N/∂xB < 0, so a drift that
+ * raises h moves the stage counts up when it is the distillate analyser's and down when it
+ * is the pot analyser's: the two analysers leave different pairs of signatures.
+ *
+ * Test. Gross-error detection by the generalized likelihood ratio (Narasimhan, S. & Mah,
+ * R. S. H. (1987), "Generalized likelihood ratio method for gross error identification",
+ * AIChE J. 33, 1514–1521; Narasimhan, S. & Jordache, C. (2000), Data Reconciliation and
+ * Gross Error Detection, Gulf Publishing, ch. 7; both from memory): for each hypothesis j
+ * (one analyser drifting at an unknown rate d) the rate is estimated by weighted least
+ * squares from each signature — the balance (intercept H and d, weights 1/(W·u(xB))²) and
+ * the stage counts (one intercept per window and d, weights 1/u(N)²), each covariance
+ * scaled up by χ²/dof when the scatter exceeds the stated noise. The two independent
+ * estimates are combined by inverse variance; T_j = (d/se)² is the GLR statistic of the
+ * hypothesis (χ²(1) under no drift). The hypothesis with the largest T is the one the data
+ * support best; a drift is flagged when T ≥ drift_t² and the drift over the run exceeds
+ * drift_u·u(analyser). It is put down to that analyser when its two estimates agree,
+ * Q_j = (d_b − d_s)²/(se_b² + se_s²) ≤ drift_q (χ²(1) under the hypothesis; a homogeneity
+ * test of the two estimates); otherwise it stays unattributed (a stage count that changes
+ * without a balance error, or the reverse: column holdup, fouling, a wrong model).
+ *
+ * The stage counts are those of the distillate compensated for the column holdup (the
+ * evidence module's compensation, holdup.h): the lag of xD behind a depleting pot makes the
+ * raw counts rise through a run, which would read as a distillate drift.
+ */
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_fit.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "runlog_internal.h"
+#include "stagecal/holdup.h"
+#include "stagecal/stages.h"
+
+const char *stagecal_drift_analyser_name(int analyser)
+{
+    switch (analyser) {
+    case STAGECAL_DRIFT_NONE:
+        return "none";
+    case STAGECAL_DRIFT_DISTILLATE:
+        return "distillate analyser (xD)";
+    case STAGECAL_DRIFT_POT:
+        return "pot analyser (xB)";
+    case STAGECAL_DRIFT_UNATTRIBUTED:
+        return "unattributed";
+    default:
+        return "unknown";
+    }
+}
+
+static int row_usable(const stagecal_runlog_result *res, size_t i, double r)
+{
+    return isfinite(r) && r > 0 && !(res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX);
+}
+
+/* 1 when the interval (i − 1, i) of a run enters the boil-up check: W and V at both ends, a
+ * finite R > 0 at both, neither counted at total reflux, time increasing. */
+static int interval_in(const stagecal_runlog *log, const stagecal_runlog_result *res, size_t i)
+{
+    size_t j = i - 1;
+    return isfinite(log->w_mol[i]) && isfinite(log->w_mol[j]) && isfinite(log->v_mol_s[i]) &&
+           isfinite(log->v_mol_s[j]) && log->t_s[i] > log->t_s[j] &&
+           row_usable(res, i, log->r[i]) && row_usable(res, j, log->r[j]);
+}
+
+void runlog_boilup(const stagecal_runlog *log, const stagecal_column *col,
+                   const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
+                   size_t k)
+{
+    stagecal_runlog_closure *c = &res->closures[k];
+    const stagecal_runlog_run *run = &log->runs[k];
+    c->has_boilup = 0;
+    c->w_fall_mol = c->w_pred_mol = c->u_w_diff_mol = c->boilup_ratio = NAN;
+    c->boilup_mismatch = 0;
+    if (!log->v_mol_s || run->n < 2)
+        return;
+    double uw = col ? col->u.w_mol : 0, uv = col ? col->u.v_mol_s : 0;
+    double ur = col ? col->u.r : 0, urr = col ? col->u.r_rel : 0;
+    double fall = 0, pred = 0, var = 0;
+    size_t nint = 0, end = run->first + run->n;
+    for (size_t i = run->first; i < end; i++) {
+        int left = i > run->first && interval_in(log, res, i);
+        int right = i + 1 < end && interval_in(log, res, i + 1);
+        if (!left && !right)
+            continue;
+        double r = log->r[i], v = log->v_mol_s[i];
+        if (left) {
+            double dj = log->v_mol_s[i - 1] / (log->r[i - 1] + 1);
+            pred += 0.5 * (dj + v / (r + 1)) * (log->t_s[i] - log->t_s[i - 1]);
+            fall += log->w_mol[i - 1] - log->w_mol[i];
+            nint++;
+        }
+        /* row i's weight in the prediction (half of each adjacent interval) and in the fall
+         * (+1 as an interval's start, −1 as its end); u(D) from u(V) and u(R) */
+        double cw = 0.5 * ((left ? log->t_s[i] - log->t_s[i - 1] : 0) +
+                           (right ? log->t_s[i + 1] - log->t_s[i] : 0));
+        double ur2 = ur * ur + urr * r * urr * r, r1 = r + 1;
+        double ud2 = uv * uv / (r1 * r1) + v * v / (r1 * r1 * r1 * r1) * ur2;
+        double e = (double)(right - left);
+        var += cw * cw * ud2 + e * e * uw * uw;
+    }
+    if (nint == 0 || !(pred > 0))
+        return;
+    c->has_boilup = 1;
+    c->w_fall_mol = fall;
+    c->w_pred_mol = pred;
+    c->u_w_diff_mol = sqrt(var);
+    c->boilup_ratio = fall / pred;
+    c->boilup_mismatch =
+        c->u_w_diff_mol > 0 && fabs(fall - pred) > par->boilup_sigmas * c->u_w_diff_mol;
+}
+
+/* Weighted straight line y = c0 + d·x; d and its se (scaled
+ * up by χ²/dof when above 1). 0 on success. */
+static int line_fit(const double *x, const double *w, const double *y, size_t n, double *d,
+                    double *se)
+{
+    double c0, c1, c00, c01, c11, chisq;
+    if (n < 4 ||
+        gsl_fit_wlinear(x, 1, w, 1, y, 1, n, &c0, &c1, &c00, &c01, &c11, &chisq) != GSL_SUCCESS ||
+        !isfinite(c1) || !(c11 > 0))
+        return -1;
+    double scale = chisq / (double)(n - 2);
+    *d = c1;
+    *se = sqrt(c11 * (scale > 1 ? scale : 1));
+    return 0;
+}
+
+/* Balance estimates of run k for both hypotheses. Scratch: 4 arrays of the run's length. */
+static void balance_sigs(const stagecal_runlog *log, const stagecal_column *col,
+                         const stagecal_runlog_result *res, size_t k, double *h, double *a,
+                         double *b, double *w)
+{
+    const stagecal_runlog_run *run = &log->runs[k];
+    stagecal_runlog_closure *c = &res->closures[k];
+    double uxb = col ? col->u.xb : 0;
+    double integral = 0, ta = 0, t0 = NAN;
+    size_t m = 0, prev = SIZE_MAX;
+    for (size_t i = run->first; i < run->first + run->n; i++) {
+        if (!(isfinite(log->w_mol[i]) && isfinite(log->xd[i]) && isfinite(log->xb[i])))
+            continue;
+        double t = log->t_s[i] / 3600.0;
+        if (isnan(t0))
+            t0 = t;
+        if (prev != SIZE_MAX) {
+            double dw = log->w_mol[prev] - log->w_mol[i], tp = log->t_s[prev] / 3600.0;
+            integral += 0.5 * (log->xd[i] + log->xd[prev]) * dw;
+            ta += 0.5 * (t + tp - 2 * t0) * dw;
+        }
+        prev = i;
+        if (res->flags[i] & STAGECAL_SAMPLE_OUTLIER)
+            continue;
+        double s = uxb > 0 ? uxb : stagecal_runlog_u_xb(col, log->xb[i]);
+        h[m] = log->w_mol[i] * log->xb[i] + integral;
+        a[m] = ta;
+        b[m] = log->w_mol[i] * (t - t0);
+        w[m] = s > 0 ? 1.0 / (log->w_mol[i] * s * log->w_mol[i] * s) : 1.0;
+        m++;
+    }
+    stagecal_runlog_drift_sig *sd = &c->sig[0], *sb = &c->sig[1];
+    if (line_fit(a, w, h, m, &sd->d_bal, &sd->se_bal) == 0)
+        sd->n_bal = m;
+    if (line_fit(b, w, h, m, &sb->d_bal, &sb->se_bal) == 0)
+        sb->n_bal = m;
+}
+
+static int cmp_double(const void *a, const void *b)
+{
+    double x = *(const double *)a, y = *(const double *)b;
+    return (x > y) - (x < y);
+}
+
+/* Median of v[0..n) (v is reordered). */
+static double median_of(double *v, size_t n)
+{
+    qsort(v, n, sizeof *v, cmp_double);
+    return n % 2 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
+}
+
+/* Within-window weighted regression of the counts n on g, one intercept per window (rows
+ * of a window are consecutive in win); d and its se scaled up by χ²/dof. 0 on success. */
+static int within_fit(const double *n, const double *g, const double *w, const int32_t *win,
+                      size_t m, double *d, double *se)
+{
+    double sxy = 0, sxx = 0, rss = 0;
+    size_t nwin = 0;
+    for (int pass = 0; pass < 2; pass++) {
+        nwin = 0;
+        for (size_t a = 0, e; a < m; a = e) {
+            double sw = 0, sg = 0, sn = 0;
+            for (e = a; e < m && win[e] == win[a]; e++)
+                sw += w[e], sg += w[e] * g[e], sn += w[e] * n[e];
+            for (size_t q = a; q < e; q++) {
+                double dg = g[q] - sg / sw, dn = n[q] - sn / sw;
+                if (pass == 0)
+                    sxy += w[q] * dg * dn, sxx += w[q] * dg * dg;
+                else
+                    rss += w[q] * (dn - *d * dg) * (dn - *d * dg);
+            }
+            nwin++;
+        }
+        if (pass == 0) {
+            if (!(sxx > 0) || m < nwin + 3)
+                return -1;
+            *d = sxy / sxx;
+        }
+    }
+    double scale = rss / (double)(m - nwin - 1);
+    *se = sqrt((scale > 1 ? scale : 1) / sxx);
+    return isfinite(*d) && isfinite(*se) ? 0 : -1;
+}
+
+/* The distillate X at which the plain count at (xb, r) equals target: safeguarded Newton
+ * on N(x) − target from x0 (N rises with xD; a pinch means x too high, an invalid count x
+ * too low), with the bracket halved when a step leaves it. *sens = ∂N/∂xB / ∂N/∂xD at X.
+ * 0 on success. */
+static int xd_for_count(const stagecal_vle *vle, double murphree, double xb, double r,
+                        double target, double x0, double *x_out, double *sens)
+{
+    stagecal_stages_params sp = stagecal_stages_default_params();
+    sp.want_sensitivities = 1;
+    double lo = xb, hi = 1.0, x = x0 > lo && x0 < hi ? x0 : 0.5 * (lo + hi);
+    for (int it = 0; it < 60; it++) {
+        stagecal_stages_result sr;
+        int rc = stagecal_stages_invert(vle, x, xb, r, murphree, &sp, &sr, NULL);
+        double xn;
+        if (rc != STAGECAL_OK || sr.status != STAGECAL_STAGES_OK) {
+            if (rc == STAGECAL_OK && sr.status == STAGECAL_STAGES_PINCH)
+                hi = x;
+            else
+                lo = x;
+            xn = 0.5 * (lo + hi);
+        } else {
+            double f = sr.stages - target;
+            if (fabs(f) < 1e-9 || hi - lo < 1e-14) {
+                *x_out = x;
+                *sens = sr.dstages_dxd > 0 ? sr.dstages_dxb / sr.dstages_dxd : NAN;
+                return isfinite(*sens) ? 0 : -1;
+            }
+            if (f > 0)
+                hi = x;
+            else
+                lo = x;
+            xn = sr.dstages_dxd > 0 ? x - f / sr.dstages_dxd : NAN;
+            if (!(xn > lo && xn < hi))
+                xn = 0.5 * (lo + hi);
+        }
+        x = xn;
+    }
+    return -1;
+}
+
+/* Stage-count estimates of run k, in distillate space. A window's rows share one stage
+ * count N_w (the median of their counts at the compensated distillate); each row's
+ * residual is r_i = xD_i − X_i, X_i the distillate that N_w stages give from the row's xB
+ * (xd_for_count). r is linear in the analysers' errors: a distillate drift adds
+ * d·(t − t0), a pot drift d·(∂N/∂xB / ∂N/∂xD)·(t − t0) (the implicit function of N = N_w).
+ * The per-sample counts themselves are not used: near a pure distillate the count is a
+ * logarithm of 1 − xD, skewed and heavy-tailed under the analyser's noise, and a slope fitted
+ * to them is biased. Weights 1/(u(xD)² + (∂X/∂xB·u(xB))²). Scratch: 6 arrays of the
+ * run's length and win. */
+static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, double murphree,
+                       const stagecal_runlog_result *res, const double *xd_ss, size_t k,
+                       double *scr, size_t len, int32_t *win)
+{
+    const stagecal_runlog_run *run = &log->runs[k];
+    stagecal_runlog_closure *c = &res->closures[k];
+    double t0 = log->t_s[run->first] / 3600.0;
+    double *rr = scr, *t = scr + len, *sens = scr + 2 * len, *w = scr + 3 * len, *g = scr + 4 * len,
+           *tmp = scr + 5 * len;
+    size_t m = 0;
+    for (size_t i = run->first; i < run->first + run->n;) {
+        int32_t wk = res->window[i];
+        size_t e = i + 1;
+        while (e < run->first + run->n && res->window[e] == wk)
+            e++;
+        if (wk < 0) {
+            i = e;
+            continue;
+        }
+        /* the window's count: median over its ok rows at the compensated distillate */
+        size_t q = 0;
+        for (size_t a = i; a < e; a++)
+            if (res->status[a] == STAGECAL_STAGES_OK && !(res->flags[a] & STAGECAL_SAMPLE_OUTLIER))
+                tmp[q++] = res->stages[a] +
+                           (isfinite(xd_ss[a]) ? res->dn_dxd[a] * (xd_ss[a] - log->xd[a]) : 0);
+        /* a window near a pinch (some rows without a count) is left out: there the count
+         * is so nonlinear in xB that the linear residual no longer holds */
+        if (q < 4 || 10 * q < 9 * (e - i)) {
+            i = e;
+            continue;
+        }
+        double nw = median_of(tmp, q);
+        double r = res->windows[wk].total_reflux ? INFINITY : log->r[i];
+        for (size_t a = i; a < e; a++) {
+            double xd = isfinite(xd_ss[a]) ? xd_ss[a] : log->xd[a], x, sb;
+            if (!(isfinite(xd) && isfinite(log->xb[a])) ||
+                log->xd_cens[a] != STAGECAL_CENSOR_NONE ||
+                log->xb_cens[a] != STAGECAL_CENSOR_NONE || res->status[a] != STAGECAL_STAGES_OK ||
+                (res->flags[a] & STAGECAL_SAMPLE_OUTLIER) ||
+                xd_for_count(col->system.vle, murphree, log->xb[a], r, nw, xd, &x, &sb) != 0)
+                continue;
+            double ud = stagecal_runlog_u_xd(col, log->xd[a]);
+            double ub = stagecal_runlog_u_xb(col, log->xb[a]) * sb;
+            rr[m] = xd - x;
+            t[m] = log->t_s[a] / 3600.0 - t0;
+            sens[m] = sb;
+            w[m] = ud * ud + ub * ub > 0 ? 1.0 / (ud * ud + ub * ub) : 1.0;
+            win[m] = wk;
+            m++;
+        }
+        i = e;
+    }
+    for (int j = 0; j < 2; j++) {
+        for (size_t a = 0; a < m; a++)
+            g[a] = j == 0 ? t[a] : sens[a] * t[a];
+        stagecal_runlog_drift_sig *sg = &c->sig[j];
+        if (within_fit(rr, g, w, win, m, &sg->d_stg, &sg->se_stg) == 0)
+            sg->n_stg = m;
+        else
+            sg->d_stg = sg->se_stg = NAN;
+    }
+}
+
+static void decide(const stagecal_column *col, const stagecal_runlog_analysis_params *par,
+                   double span_h, stagecal_runlog_closure *c)
+{
+    double u[2] = {col ? col->u.xd : 0, col ? col->u.xb : 0};
+    int best = -1;
+    for (int j = 0; j < 2; j++) {
+        stagecal_runlog_drift_sig *s = &c->sig[j];
+        int hb = s->n_bal > 0, hs = s->n_stg > 0;
+        if (hb && hs) {
+            double wb = 1 / (s->se_bal * s->se_bal), ws = 1 / (s->se_stg * s->se_stg);
+            s->d = (wb * s->d_bal + ws * s->d_stg) / (wb + ws);
+            s->se = 1 / sqrt(wb + ws);
+            double dd = s->d_bal - s->d_stg;
+            s->q_stat = dd * dd / (s->se_bal * s->se_bal + s->se_stg * s->se_stg);
+        } else if (hb || hs) {
+            s->d = hb ? s->d_bal : s->d_stg;
+            s->se = hb ? s->se_bal : s->se_stg;
+        } else {
+            continue;
+        }
+        s->t_stat = s->se > 0 ? (s->d / s->se) * (s->d / s->se) : 0;
+        if (best < 0 || s->t_stat > c->sig[best].t_stat)
+            best = j;
+    }
+    c->drift_analyser = STAGECAL_DRIFT_NONE;
+    c->drift = 0;
+    if (best < 0)
+        return;
+    const stagecal_runlog_drift_sig *s = &c->sig[best];
+    int big = u[best] > 0 ? fabs(s->d) * span_h > par->drift_u * u[best] : 1;
+    if (!(s->t_stat >= par->drift_t * par->drift_t) || !big)
+        return;
+    c->drift = 1;
+    int both = s->n_bal > 0 && s->n_stg > 0;
+    c->drift_analyser = both && s->q_stat <= par->drift_q
+                            ? (best == 0 ? STAGECAL_DRIFT_DISTILLATE : STAGECAL_DRIFT_POT)
+                            : STAGECAL_DRIFT_UNATTRIBUTED;
+}
+
+/* The distillate compensated for column holdup as the evidence module does (AUTO: the
+ * stage-holdup correction when the column states a holdup, else the start-up lag). */
+static int compensated_xd(const stagecal_runlog *log, const stagecal_column *col, double *xd_ss,
+                          stagecal_error *err)
+{
+    for (size_t i = 0; i < log->n; i++)
+        xd_ss[i] = NAN;
+    stagecal_holdup_tau *tau = calloc(log->nruns ? log->nruns : 1, sizeof *tau);
+    stagecal_holdup_tau pooled;
+    if (!tau)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    int rc = stagecal_holdup_estimate(log, col->u.xd, NULL, tau, NULL, NULL, &pooled, err);
+    if (rc == STAGECAL_OK) {
+        stagecal_holdup_model hm = {
+            STAGECAL_HOLDUP_COMP_NONE, tau, pooled, col->system.vle, col->holdup_column_mol,
+            col->holdup_drum_mol};
+        if (col->holdup_column_mol > 0 || col->holdup_drum_mol > 0)
+            hm.kind = STAGECAL_HOLDUP_COMP_STAGES;
+        else if (pooled.ok)
+            hm.kind = STAGECAL_HOLDUP_COMP_LAG;
+        if (hm.kind != STAGECAL_HOLDUP_COMP_NONE)
+            rc = stagecal_holdup_compensate(log, &hm, NULL, xd_ss, NULL, err);
+    }
+    free(tau);
+    return rc;
+}
+
+int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double murphree,
+                 const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
+                 stagecal_error *err)
+{
+    size_t maxrun = 1;
+    for (size_t k = 0; k < log->nruns; k++)
+        maxrun = log->runs[k].n > maxrun ? log->runs[k].n : maxrun;
+    double *scr = malloc(6 * maxrun * sizeof *scr);
+    int32_t *win = malloc(maxrun * sizeof *win);
+    double *xd_ss = malloc((log->n ? log->n : 1) * sizeof *xd_ss);
+    if (!scr || !win || !xd_ss) {
+        free(scr), free(win), free(xd_ss);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    int rc = compensated_xd(log, col, xd_ss, err);
+    for (size_t k = 0; k < log->nruns && rc == STAGECAL_OK; k++) {
+        stagecal_runlog_closure *c = &res->closures[k];
+        const stagecal_runlog_run *run = &log->runs[k];
+        runlog_boilup(log, col, par, res, k);
+        runlog_drift_clear(c);
+        if (run->n < 2)
+            continue;
+        balance_sigs(log, col, res, k, scr, scr + maxrun, scr + 2 * maxrun, scr + 3 * maxrun);
+        stage_sigs(log, col, murphree, res, xd_ss, k, scr, maxrun, win);
+        double span = (log->t_s[run->first + run->n - 1] - log->t_s[run->first]) / 3600.0;
+        decide(col, par, span, c);
+    }
+    free(scr), free(win), free(xd_ss);
+    return rc;
+}
+
+void runlog_drift_clear(stagecal_runlog_closure *c)
+{
+    for (int j = 0; j < 2; j++) {
+        stagecal_runlog_drift_sig *s = &c->sig[j];
+        s->d_bal = s->se_bal = s->d_stg = s->se_stg = s->d = s->se = NAN;
+        s->t_stat = 0;
+        s->q_stat = NAN;
+        s->n_bal = s->n_stg = 0;
+    }
+}
