@@ -1,15 +1,18 @@
 /*
- * censor.c — the censored errors-in-variables likelihood of one-parameter forms (see
- * stagecal/censor.h for the model). Inner problem: each window's latent ζ = logit xD by
- * a scan and GSL's Brent minimiser; outer: the parameter by a scan and Brent, the
- * interval ends by GSL's Brent root finder on the profile deviance.
+ * censor.c — the censored errors-in-variables likelihood (see stagecal/censor.h for the
+ * model). Inner problem: each window's latent ζ = logit xD by a scan and GSL's Brent
+ * minimiser; outer: θ by a scan and Brent (`constant`) or GSL's Nelder–Mead simplex; the
+ * profile of a scalar ψ (a parameter, the stage count at a condition) maximises the other
+ * parameters out by the same simplex; its interval ends by GSL's Brent root finder.
  */
 #include "stagecal/censor.h"
 
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_math.h>
+#include <gsl/gsl_linalg.h>
 #include <gsl/gsl_min.h>
+#include <gsl/gsl_multimin.h>
 #include <gsl/gsl_roots.h>
 #include <gsl/gsl_sf_erf.h>
 #include <math.h>
@@ -17,6 +20,7 @@
 #include <string.h>
 
 #include "internal.h"
+#include "stagecal/physics.h"
 #include "stagecal/runlog.h"
 #include "stagecal/stages.h"
 
@@ -33,10 +37,13 @@ struct cctx {
     size_t nev;
     const stagecal_form *form;
     stagecal_stages_params sp;
+    double st_lo, st_hi; /* the stage range */
     /* the window and stage count of the inner problem */
     const stagecal_evidence *e;
     double nst;
-    int at_cap; /* some window's latent xD went to the top of its range (profile_ll) */
+    int at_cap;     /* some window's latent xD went to the top of its range (profile_ll) */
+    int at_range;   /* some window's stage count went beyond st_hi (profile_ll) */
+    double mean_st; /* mean stage count over the windows at the last θ (profile_ll) */
 };
 
 /* log Φ(z), accurate in the far tails (GSL's log erfc). */
@@ -63,9 +70,11 @@ static double window_ll(struct cctx *c, double zeta)
     double xd = 1 / (1 + exp(-zeta)), xb = xd;
     int status = STAGECAL_STAGES_INVALID;
     size_t len = 0;
-    if (stagecal_stages_step(c->col->system.vle, xd, e->r, c->nst, c->murphree, &c->sp, &xb, NULL,
-                             0, &len, &status, NULL) != STAGECAL_OK ||
-        status != STAGECAL_STAGES_OK)
+    int rc = e->cond ? stagecal_physics_step(e->cond, xd, c->nst, c->murphree, &c->sp, &xb, &status,
+                                             NULL)
+                     : stagecal_stages_step(c->col->system.vle, xd, e->r, c->nst, c->murphree,
+                                            &c->sp, &xb, NULL, 0, &len, &status, NULL);
+    if (rc != STAGECAL_OK || status != STAGECAL_STAGES_OK)
         return -HUGE_VAL;
     double ll = 0, ud = stagecal_runlog_u_xd(c->col, xd), ub = stagecal_runlog_u_xb(c->col, xb);
     ud = GSL_MAX(ud, 1e-15); /* a purely relative u vanishes at the bound */
@@ -167,41 +176,153 @@ static double window_profile(struct cctx *c, const stagecal_evidence *e, double 
     return -f;
 }
 
-static double profile_ll(struct cctx *c, double theta)
+/* ℓ(θ): the windows' log-likelihoods with their latent ζ profiled out; −∞ where a
+ * window's stage count leaves [st_lo, st_hi]. */
+static double profile_ll(struct cctx *c, const double *theta)
 {
-    double ll = 0;
+    double ll = 0, sum = 0;
+    size_t n = 0;
     c->at_cap = 0;
+    c->at_range = 0;
     for (size_t i = 0; i < c->nev; i++) {
         const stagecal_evidence *e = &c->ev[i];
         if (e->m == 0 || !e->s_xd || !e->s_xb)
             continue;
         double nst = 1;
-        if (stagecal_form_eval(c->form, &theta, e->r, e->f_load, &nst, NULL) != STAGECAL_OK ||
-            !(nst >= 1))
+        if (stagecal_form_eval(c->form, theta, e->r, e->f_load, &nst, NULL) != STAGECAL_OK ||
+            !(nst >= c->st_lo))
             return -HUGE_VAL;
+        sum += nst;
+        n++;
+        if (nst > c->st_hi) {
+            c->at_range = 1;
+            c->mean_st = HUGE_VAL;
+            return -HUGE_VAL;
+        }
         ll += window_profile(c, e, nst);
     }
+    c->mean_st = n ? sum / (double)n : NAN;
     return ll;
 }
 
-static double neg_profile(double theta, void *p)
+static double neg_profile1(double theta, void *p)
 {
-    double v = -profile_ll(p, theta);
+    double v = -profile_ll(p, &theta);
     return isfinite(v) ? v : GSL_DBL_MAX / 4;
 }
 
-struct dev_ctx {
+/* ---- the profile of a scalar ψ ------------------------------------------------------ */
+
+enum { PSI_PARAM, PSI_STAGES };
+
+struct prof {
     struct cctx *c;
+    int kind;                        /* PSI_PARAM: ψ = θ_j; PSI_STAGES: ψ = stages at (r, f) */
+    size_t j;                        /* the fixed (PARAM) or solved-for (STAGES) parameter */
+    double r, f;                     /* STAGES: the condition */
+    double base[STAGECAL_FORM_MAXP]; /* θ of the last profile maximum (warm start) */
+    double psi;
+    size_t nfree, idx[STAGECAL_FORM_MAXP]; /* the parameters maximised out */
+};
+
+/* θ from the free coordinates x at the current ψ; −1 when ψ cannot be met. */
+static int prof_theta(const struct prof *q, const double *x, double *theta)
+{
+    size_t p = q->c->form->p;
+    memcpy(theta, q->base, p * sizeof *theta);
+    for (size_t k = 0; k < q->nfree; k++)
+        theta[q->idx[k]] = x[k];
+    if (q->kind == PSI_PARAM) {
+        theta[q->j] = q->psi;
+        return 0;
+    }
+    /* every form is linear in the parameter j solved for: N = N(θ_j = 0) + θ_j·∂N/∂θ_j */
+    double n0, g[STAGECAL_FORM_MAXP];
+    theta[q->j] = 0;
+    if (stagecal_form_eval(q->c->form, theta, q->r, q->f, &n0, g) != STAGECAL_OK ||
+        !(fabs(g[q->j]) > 0))
+        return -1;
+    theta[q->j] = (q->psi - n0) / g[q->j];
+    return 0;
+}
+
+static double prof_obj(const gsl_vector *x, void *data)
+{
+    struct prof *q = data;
+    double theta[STAGECAL_FORM_MAXP];
+    if (prof_theta(q, x->data, theta))
+        return GSL_DBL_MAX / 4;
+    double v = -profile_ll(q->c, theta);
+    return isfinite(v) ? v : GSL_DBL_MAX / 4;
+}
+
+/* Minimises f over n coordinates from x (updated) by GSL's nmsimplex2; returns f there. */
+static double simplex_min(double (*f)(const gsl_vector *, void *), void *data, size_t n, double *x)
+{
+    gsl_multimin_function F = {f, n, data};
+    gsl_multimin_fminimizer *s =
+        gsl_multimin_fminimizer_alloc(gsl_multimin_fminimizer_nmsimplex2, n);
+    gsl_vector *x0 = gsl_vector_alloc(n), *step = gsl_vector_alloc(n);
+    double fx = HUGE_VAL;
+    if (s && x0 && step) {
+        for (size_t k = 0; k < n; k++) {
+            gsl_vector_set(x0, k, x[k]);
+            gsl_vector_set(step, k, 0.05 * GSL_MAX(fabs(x[k]), 0.1));
+        }
+        if (gsl_multimin_fminimizer_set(s, &F, x0, step) == GSL_SUCCESS) {
+            for (int it = 0; it < 60 * (int)n + 200; it++) {
+                if (gsl_multimin_fminimizer_iterate(s) != GSL_SUCCESS)
+                    break;
+                if (gsl_multimin_test_size(gsl_multimin_fminimizer_size(s), 1e-7) == GSL_SUCCESS)
+                    break;
+            }
+            fx = s->fval;
+            for (size_t k = 0; k < n; k++)
+                x[k] = gsl_vector_get(s->x, k);
+        }
+    }
+    gsl_multimin_fminimizer_free(s);
+    gsl_vector_free(x0);
+    gsl_vector_free(step);
+    return fx;
+}
+
+/* ℓ_p(ψ): the other parameters maximised out; leaves the maximiser in q->base and the
+ * flags of its ℓ in q->c. */
+static double prof_ll(struct prof *q, double psi)
+{
+    double x[STAGECAL_FORM_MAXP], theta[STAGECAL_FORM_MAXP];
+    q->psi = psi;
+    for (size_t k = 0; k < q->nfree; k++)
+        x[k] = q->base[q->idx[k]];
+    if (q->nfree > 0) {
+        double fx = simplex_min(prof_obj, q, q->nfree, x);
+        if (!(fx < GSL_DBL_MAX / 8)) {
+            for (size_t k = 0; k < q->nfree; k++)
+                x[k] = q->base[q->idx[k]];
+        }
+    }
+    if (prof_theta(q, x, theta))
+        return -HUGE_VAL;
+    double ll = profile_ll(q->c, theta);
+    if (isfinite(ll))
+        memcpy(q->base, theta, q->c->form->p * sizeof *theta);
+    return ll;
+}
+
+struct dev_ctx {
+    struct prof *q;
     double llmax, cut;
 };
 
-static double deviance_gap(double theta, void *p)
+static double deviance_gap(double psi, void *p)
 {
     struct dev_ctx *d = p;
-    return 2 * (d->llmax - profile_ll(d->c, theta)) - d->cut;
+    double ll = prof_ll(d->q, psi);
+    return isfinite(ll) ? 2 * (d->llmax - ll) - d->cut : GSL_DBL_MAX / 4;
 }
 
-/* The θ in [a, b] where the deviance gap changes sign (GSL Brent root finder). */
+/* The ψ in [a, b] where the deviance gap changes sign (GSL Brent root finder). */
 static double brent_root(struct dev_ctx *d, double a, double b)
 {
     gsl_function F = {deviance_gap, d};
@@ -221,27 +342,79 @@ static double brent_root(struct dev_ctx *d, double a, double b)
     return x;
 }
 
-/* The first θ from th towards end (a scan of THETA_SCAN geometric steps, then Brent on
- * the step that crosses) where the deviance exceeds the cut; NAN when it never does. The
- * profile may come back up far away (a second, pinched branch), so the crossing nearest to
- * the maximum is the interval's end. */
-static double first_crossing(struct dev_ctx *d, double th, double end)
+/* Walks from ψ̂ towards end (geometric steps when geo, both positive; else growing steps
+ * of scale s0 in direction dir, end ignored) to the first ψ where the deviance exceeds the
+ * cut; Brent refines the crossing step. The profile may come back up far away (a second,
+ * pinched branch), so the crossing nearest to the maximum is the end. Returns NAN when the
+ * walk ends (the range end, a region where ℓ is −∞ with the deviance still under the cut,
+ * or 40 steps) without a crossing, or when the crossing is not determined: beyond it a
+ * window's stage count leaves the range, or (towards more stages) its latent xD is as pure
+ * as its analyser can tell. */
+static double crossing(struct dev_ctx *d, double psi_hat, int geo, double end, double dir,
+                       double s0)
 {
-    double prev = th;
-    for (int k = 1; k <= THETA_SCAN; k++) {
-        double x = th * pow(end / th, (double)k / THETA_SCAN);
-        if (deviance_gap(x, d) > 0) {
-            double g = deviance_gap(prev, d);
-            if (!(g < 0))
-                return prev;
-            /* Brent needs finite values at both ends: pull a non-finite end in */
-            while (!isfinite(deviance_gap(x, d)) && fabs(x - prev) > 1e-9 * fabs(prev))
-                x = 0.5 * (x + prev);
-            return brent_root(d, prev < x ? prev : x, prev < x ? x : prev);
-        }
+    struct prof *q = d->q;
+    double prev = psi_hat, x = psi_hat;
+    int nsteps = geo ? THETA_SCAN : 40;
+    for (int k = 1; k <= nsteps; k++) {
+        x = geo ? psi_hat * pow(end / psi_hat, (double)k / THETA_SCAN)
+                : psi_hat + dir * s0 * (pow(1.5, k) - 1) / 0.5;
+        if (deviance_gap(x, d) > 0)
+            break;
         prev = x;
+        if (k == nsteps)
+            return NAN;
     }
-    return NAN;
+    double gprev = deviance_gap(prev, d);
+    double mean_prev = q->c->mean_st;
+    /* Brent needs finite values at both ends: pull a non-finite end in */
+    while (!(deviance_gap(x, d) < GSL_DBL_MAX / 8) && fabs(x - prev) > 1e-9 * fabs(prev) + 1e-12)
+        x = 0.5 * (x + prev);
+    if (!(deviance_gap(x, d) > 0))
+        return NAN; /* ℓ ends (−∞) before the deviance reaches the cut */
+    double root = gprev < 0 ? brent_root(d, prev < x ? prev : x, prev < x ? x : prev) : prev;
+    /* beyond the crossing: is the end set by the evidence? */
+    double beyond = root + 0.02 * (root - psi_hat);
+    double llb = prof_ll(q, beyond);
+    int more_stages = q->c->mean_st > mean_prev;
+    if (q->c->at_range || (more_stages && q->c->at_cap) || (!isfinite(llb) && more_stages))
+        return NAN;
+    return root;
+}
+
+/* The interval of ψ (q->kind, q->j; q->base = θ̂) at level: two-sided, or one-sided when
+ * one end is not determined. psi_lo/psi_hi: the range of a ψ in stages (geometric walks),
+ * or NAN for a parameter. */
+static void interval(struct prof *q, const double *theta_hat, double psi_hat, double llmax,
+                     double level, double psi_lo, double psi_hi, stagecal_censored_interval *out)
+{
+    size_t p = q->c->form->p;
+    int geo = isfinite(psi_lo);
+    double s0 = 0.05 * GSL_MAX(fabs(psi_hat), 0.1);
+    struct dev_ctx d = {q, llmax, gsl_cdf_chisq_Pinv(level, 1)};
+    double end[2] = {NAN, NAN};
+    int ok[2];
+    for (int side = 0; side < 2; side++) {
+        memcpy(q->base, theta_hat, p * sizeof *theta_hat);
+        double lim = side ? psi_hi : psi_lo;
+        int room = geo ? (side ? psi_hat < lim : psi_hat > lim) : 1;
+        end[side] = room ? crossing(&d, psi_hat, geo, lim, side ? 1 : -1, s0) : NAN;
+        ok[side] = isfinite(end[side]);
+    }
+    out->value = psi_hat;
+    out->level = level;
+    if (ok[0] != ok[1]) { /* one end only: the other is a one-sided bound at the same level */
+        int side = ok[1];
+        d.cut = gsl_cdf_chisq_Pinv(2 * level - 1, 1);
+        memcpy(q->base, theta_hat, p * sizeof *theta_hat);
+        end[side] = crossing(&d, psi_hat, geo, side ? psi_hi : psi_lo, side ? 1 : -1, s0);
+        ok[side] = isfinite(end[side]);
+    }
+    out->low_bounded = ok[0];
+    out->high_bounded = ok[1];
+    out->low = ok[0] ? end[0] : NAN;
+    out->high = ok[1] ? end[1] : NAN;
+    memcpy(q->base, theta_hat, p * sizeof *theta_hat);
 }
 
 static int check_args(const stagecal_column *col, const stagecal_evidence *ev, size_t nev,
@@ -250,16 +423,19 @@ static int check_args(const stagecal_column *col, const stagecal_evidence *ev, s
 {
     if (!col || !col->system.vle || !ev || !form || !fit)
         return error_set(err, STAGECAL_EINVAL, "censored fit: NULL argument");
-    if (form->p != 1)
-        return error_set(err, STAGECAL_EINVAL,
-                         "censored fit: form '%s' has %zu parameters (only one-parameter forms, "
-                         "e.g. constant, so far)",
+    if (form->p < 1 || form->p > STAGECAL_FORM_MAXP)
+        return error_set(err, STAGECAL_EINVAL, "censored fit: form '%s' has %zu parameters",
                          form->name, form->p);
-    if (!(level > 0.5 && level < 1) || !(lo > 0 && lo < hi && isfinite(hi)))
+    if (!(level > 0.5 && level < 1) || !(lo >= 1 && lo < hi && isfinite(hi)))
         return error_set(err, STAGECAL_EINVAL,
-                         "censored fit: level %g (expected (0.5, 1)), range [%g, %g]", level, lo,
-                         hi);
+                         "censored fit: level %g (expected (0.5, 1)), stage range [%g, %g] "
+                         "(expected 1 <= low < high)",
+                         level, lo, hi);
     memset(fit, 0, sizeof *fit);
+    fit->p = form->p;
+    fit->level = level;
+    fit->stages_lo = lo;
+    fit->stages_hi = hi;
     for (size_t i = 0; i < nev; i++) {
         const stagecal_evidence *e = &ev[i];
         if (e->m == 0 || !e->s_xd || !e->s_xb)
@@ -287,64 +463,175 @@ static int check_args(const stagecal_column *col, const stagecal_evidence *ev, s
     return STAGECAL_OK;
 }
 
+static struct cctx make_ctx(const stagecal_column *col, double murphree,
+                            const stagecal_evidence *ev, size_t nev, const stagecal_form *form,
+                            double lo, double hi)
+{
+    struct cctx c;
+    memset(&c, 0, sizeof c);
+    c.col = col;
+    c.murphree = murphree;
+    c.ev = ev;
+    c.nev = nev;
+    c.form = form;
+    c.sp = stagecal_stages_default_params();
+    c.sp.max_stages = (size_t)hi + 10;
+    c.st_lo = lo;
+    c.st_hi = hi;
+    c.nst = 1;
+    return c;
+}
+
 int stagecal_censored_loglik(const stagecal_column *col, double murphree,
                              const stagecal_evidence *ev, size_t nev, const stagecal_form *form,
-                             double theta, double *loglik, stagecal_error *err)
+                             const double *theta, double *loglik, stagecal_error *err)
 {
     stagecal_censored_fit tmp;
-    int rc = check_args(col, ev, nev, form, 0.95, 1, 2, &tmp, err);
+    int rc = check_args(col, ev, nev, form, 0.95, 1, 1000, &tmp, err);
     if (rc)
         return rc;
-    struct cctx c = {col, murphree, ev, nev, form, stagecal_stages_default_params(), NULL, 1, 0};
+    struct cctx c = make_ctx(col, murphree, ev, nev, form, 1, 1000);
     *loglik = profile_ll(&c, theta);
     return STAGECAL_OK;
 }
 
-int stagecal_fit_censored(const stagecal_column *col, double murphree, const stagecal_evidence *ev,
-                          size_t nev, const stagecal_form *form, double level, double theta_lo,
-                          double theta_hi, stagecal_censored_fit *fit, stagecal_error *err)
+static double full_obj(const gsl_vector *x, void *data)
 {
-    int rc = check_args(col, ev, nev, form, level, theta_lo, theta_hi, fit, err);
+    double v = -profile_ll(data, x->data);
+    return isfinite(v) ? v : GSL_DBL_MAX / 4;
+}
+
+/* The inverse of the observed information −∂²ℓ/∂θ² at θ̂ (central second differences,
+ * steps 1e-3·max(|θ_j|, 1)); 0 when it is not positive definite. */
+static int observed_cov(struct cctx *c, const double *th, double llmax, double *cov)
+{
+    size_t p = c->form->p;
+    double h[STAGECAL_FORM_MAXP], t[STAGECAL_FORM_MAXP];
+    gsl_matrix *H = gsl_matrix_alloc(p, p);
+    if (!H)
+        return 0;
+    for (size_t j = 0; j < p; j++)
+        h[j] = 1e-3 * GSL_MAX(fabs(th[j]), 1);
+    int ok = 1;
+    for (size_t a = 0; a < p && ok; a++)
+        for (size_t b = a; b < p && ok; b++) {
+            double v;
+            memcpy(t, th, p * sizeof *t);
+            if (a == b) {
+                t[a] = th[a] + h[a];
+                double fp = profile_ll(c, t);
+                t[a] = th[a] - h[a];
+                double fm = profile_ll(c, t);
+                v = -(fp - 2 * llmax + fm) / (h[a] * h[a]);
+            } else {
+                double f4[4];
+                for (int k = 0; k < 4; k++) {
+                    t[a] = th[a] + ((k & 1) ? -h[a] : h[a]);
+                    t[b] = th[b] + ((k & 2) ? -h[b] : h[b]);
+                    f4[k] = profile_ll(c, t);
+                }
+                v = -(f4[0] - f4[1] - f4[2] + f4[3]) / (4 * h[a] * h[b]);
+            }
+            ok = isfinite(v);
+            gsl_matrix_set(H, a, b, v);
+            gsl_matrix_set(H, b, a, v);
+        }
+    if (ok && gsl_linalg_cholesky_decomp1(H) == GSL_SUCCESS &&
+        gsl_linalg_cholesky_invert(H) == GSL_SUCCESS) {
+        for (size_t a = 0; a < p; a++)
+            for (size_t b = 0; b < p; b++)
+                cov[a * p + b] = gsl_matrix_get(H, a, b);
+    } else {
+        ok = 0;
+    }
+    gsl_matrix_free(H);
+    return ok;
+}
+
+int stagecal_fit_censored(const stagecal_column *col, double murphree, const stagecal_evidence *ev,
+                          size_t nev, const stagecal_form *form, const double *theta0, double level,
+                          double stages_lo, double stages_hi, stagecal_censored_fit *fit,
+                          stagecal_error *err)
+{
+    int rc = check_args(col, ev, nev, form, level, stages_lo, stages_hi, fit, err);
     if (rc)
         return rc;
-    struct cctx c = {col, murphree, ev, nev, form, stagecal_stages_default_params(), NULL, 1, 0};
-    c.sp.max_stages = (size_t)theta_hi + 10;
-    double fmin;
-    double th = scan_min(neg_profile, &c, theta_lo, theta_hi, THETA_SCAN, 1, 1e-6, &fmin);
-    fit->theta = th;
+    if (form->kind != STAGECAL_FORM_CONSTANT && !theta0)
+        return error_set(err, STAGECAL_EINVAL, "censored fit: form '%s' needs a start", form->name);
+    struct cctx c = make_ctx(col, murphree, ev, nev, form, stages_lo, stages_hi);
+    size_t p = form->p;
+    double th[STAGECAL_FORM_MAXP], fmin;
+    if (form->kind == STAGECAL_FORM_CONSTANT) {
+        th[0] = scan_min(neg_profile1, &c, stages_lo, stages_hi, THETA_SCAN, 1, 1e-6, &fmin);
+    } else {
+        memcpy(th, theta0, p * sizeof *th);
+        if (!isfinite(profile_ll(&c, th)))
+            return error_set(err, STAGECAL_EDATA,
+                             "censored fit: the likelihood is not finite at the start (the "
+                             "form gives a stage count outside [%g, %g] at some window)",
+                             stages_lo, stages_hi);
+        fmin = simplex_min(full_obj, &c, p, th);
+        fmin = simplex_min(full_obj, &c, p, th); /* a restart: the simplex may stall */
+    }
+    memcpy(fit->theta, th, p * sizeof *th);
     fit->loglik = -fmin;
-    fit->level = level;
-    struct dev_ctx d = {&c, fit->loglik, gsl_cdf_chisq_Pinv(level, 1)};
-    /* Which ends does the evidence bound at the two-sided cut? An end reached only because
-     * a latent xD went to the top of its range (xD = 1 − 9e-14, as pure as a double tells)
-     * or to within PURE_SIGMAS of its analyser's uncertainty of pure is set by that range,
-     * not by the evidence: the readings cannot tell such a distillate from a purer one, so
-     * more stages fit as well (a likelihood-ratio interval is not to be trusted at that
-     * boundary). Not bounded. (Only the upper end: fewer stages need a less pure
-     * distillate, which the readings can tell.) */
-    double lo0 = th > theta_lo ? first_crossing(&d, th, theta_lo) : NAN;
-    double hi0 = th < theta_hi ? first_crossing(&d, th, theta_hi) : NAN;
-    int lo_b = isfinite(lo0), hi_b = isfinite(hi0);
-    /* (checked a little beyond the end, where the latent xD is pushed against its range) */
-    if (hi_b) {
-        profile_ll(&c, GSL_MIN(hi0 * 1.02, theta_hi));
-        hi_b = !c.at_cap;
+    if (!isfinite(fit->loglik))
+        return error_set(err, STAGECAL_EDATA, "censored fit: no finite likelihood");
+    struct prof q;
+    memset(&q, 0, sizeof q);
+    q.c = &c;
+    q.kind = PSI_PARAM;
+    for (size_t j = 0; j < p; j++) {
+        q.j = j;
+        q.nfree = 0;
+        for (size_t k = 0; k < p; k++)
+            if (k != j)
+                q.idx[q.nfree++] = k;
+        memcpy(q.base, th, p * sizeof *th);
+        int stages = form->kind == STAGECAL_FORM_CONSTANT;
+        interval(&q, th, th[j], fit->loglik, level, stages ? stages_lo : NAN,
+                 stages ? stages_hi : NAN, &fit->par[j]);
+        fit->one_sided |= !(fit->par[j].low_bounded && fit->par[j].high_bounded);
     }
-    fit->low = fit->high = NAN;
-    if (lo_b != hi_b) { /* one end only: the other is a one-sided bound at the same level */
-        d.cut = gsl_cdf_chisq_Pinv(2 * level - 1, 1);
-        if (lo_b)
-            lo0 = first_crossing(&d, th, theta_lo);
-        else
-            hi0 = first_crossing(&d, th, theta_hi);
-    }
-    if (lo_b && isfinite(lo0)) {
-        fit->low = lo0;
-        fit->low_bounded = 1;
-    }
-    if (hi_b && isfinite(hi0)) {
-        fit->high = hi0;
-        fit->high_bounded = 1;
-    }
+    if (!fit->one_sided)
+        fit->has_cov = observed_cov(&c, th, fit->loglik, fit->cov);
+    return STAGECAL_OK;
+}
+
+int stagecal_censored_stages_at(const stagecal_column *col, double murphree,
+                                const stagecal_evidence *ev, size_t nev, const stagecal_form *form,
+                                const stagecal_censored_fit *fit, double r, double f_load,
+                                double level, stagecal_censored_interval *out, stagecal_error *err)
+{
+    if (!col || !ev || !form || !fit || !out || fit->p != form->p)
+        return error_set(err, STAGECAL_EINVAL, "censored stages: bad argument");
+    if (!(level > 0.5 && level < 1))
+        return error_set(err, STAGECAL_EINVAL, "censored stages: level %g (expected (0.5, 1))",
+                         level);
+    size_t p = form->p;
+    double n_hat, g[STAGECAL_FORM_MAXP];
+    if (stagecal_form_eval(form, fit->theta, r, f_load, &n_hat, g) != STAGECAL_OK)
+        return error_set(err, STAGECAL_EINVAL,
+                         "censored stages: form '%s' is not defined at R = %g", form->name, r);
+    struct cctx c = make_ctx(col, murphree, ev, nev, form, fit->stages_lo, fit->stages_hi);
+    struct prof q;
+    memset(&q, 0, sizeof q);
+    q.c = &c;
+    q.kind = PSI_STAGES;
+    q.r = r;
+    q.f = f_load;
+    /* solve for a parameter the count is linear in: the first (a) of the nonlinear forms,
+     * the term largest at (r, f) of a linear one */
+    q.j = 0;
+    if (form->kind == STAGECAL_FORM_LINEAR)
+        for (size_t k = 1; k < p; k++)
+            if (fabs(g[k]) > fabs(g[q.j]))
+                q.j = k;
+    for (size_t k = 0; k < p; k++)
+        if (k != q.j)
+            q.idx[q.nfree++] = k;
+    memcpy(q.base, fit->theta, p * sizeof *fit->theta);
+    double lo = GSL_MIN(fit->stages_lo, n_hat), hi = GSL_MAX(fit->stages_hi, n_hat);
+    interval(&q, fit->theta, n_hat, fit->loglik, level, lo, hi, out);
     return STAGECAL_OK;
 }

@@ -31,18 +31,24 @@ int evidence_holdup(const stagecal_runlog *log, const stagecal_column *col,
     set->tau = calloc(log->nruns ? log->nruns : 1, sizeof *set->tau);
     if (!set->tau)
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    stagecal_holdup_tau *su = calloc(log->nruns ? log->nruns : 1, sizeof *su);
+    if (!su)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
     int rc =
-        stagecal_holdup_estimate(log, col->u.xd, NULL, set->tau, NULL, NULL, &set->tau_pooled, err);
-    if (rc != STAGECAL_OK)
-        return rc;
+        stagecal_holdup_estimate(log, col->u.xd, NULL, set->tau, su, NULL, &set->tau_pooled, err);
     stagecal_holdup_model hm = {holdup_kind(col, par->holdup, &set->tau_pooled),
                                 set->tau,
                                 set->tau_pooled,
                                 col->system.vle,
                                 col->holdup_column_mol,
-                                col->holdup_drum_mol};
+                                col->holdup_drum_mol,
+                                su,
+                                col->u.xd};
     set->holdup_kind = hm.kind;
-    if ((rc = stagecal_holdup_compensate(log, &hm, NULL, xd, u2, err)))
+    if (rc == STAGECAL_OK)
+        rc = stagecal_holdup_compensate(log, &hm, NULL, xd, u2, err);
+    free(su);
+    if (rc != STAGECAL_OK)
         return rc;
     set->n_settling = 0;
     for (size_t i = 0; i < log->n; i++)

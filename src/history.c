@@ -27,14 +27,8 @@
 
 stagecal_history_params stagecal_history_default_params(void)
 {
-    stagecal_history_params p;
-    p.level = 0.95;
-    p.r_ref = NAN;
-    p.f_ref = NAN;
-    p.now_s = NAN;
-    p.required = NAN;
-    p.min_runs = 3;
-    return p;
+    return (stagecal_history_params){
+        .level = 0.95, .r_ref = NAN, .f_ref = NAN, .now_s = NAN, .required = NAN, .min_runs = 3};
 }
 
 void stagecal_history_free(stagecal_history_fit *fit)

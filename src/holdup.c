@@ -354,6 +354,19 @@ static double row_slope(const stagecal_runlog *log, size_t s, size_t e, size_t i
     return local_slope(log->t_s, log->xd, a, b, i);
 }
 
+/* Rows [s, e) of a total-reflux start-up that its fit su says are still rising: NAN. */
+static void startup_settling(const stagecal_runlog *rl, size_t s, size_t e,
+                             const stagecal_holdup_tau *su, double u_xd, double factor,
+                             double *xd_ss)
+{
+    if (!su || !su->ok || !(fabs(su->rise) > 0))
+        return;
+    double floor = u_xd > 0 ? 0.1 * u_xd : 1e-3 * fabs(su->rise);
+    double settle = factor * su->tau_s * log(fmax(fabs(su->rise) / floor, 1.0));
+    for (size_t i = s; i < e && rl->t_s[i] - rl->t_s[s] < settle; i++)
+        xd_ss[i] = NAN;
+}
+
 int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup_model *hm,
                                const stagecal_holdup_params *params, double *xd_ss,
                                double *u2_extra, stagecal_error *err)
@@ -379,6 +392,9 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
             size_t e = s + 1; /* stretch [s, e) at one logged R */
             while (e < end && log->r[e] == log->r[s])
                 e++;
+            if (s == first && !isfinite(log->r[s]))
+                startup_settling(log, s, e, hm->startup ? &hm->startup[k] : NULL, hm->u_xd,
+                                 par.settle_factor, xd_ss);
             for (size_t i = s; i < e && isfinite(log->r[s]); i++) {
                 double d = isfinite(log->xd[i]) ? row_slope(log, s, e, i, half_s, h) : NAN;
                 if (!isfinite(d))

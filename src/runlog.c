@@ -22,7 +22,6 @@
 
 #include "fileio.h"
 #include "internal.h"
-#include "internal_sha256.h"
 #include "stagecal/physics.h"
 #include "runlog_internal.h"
 
@@ -50,53 +49,6 @@ static int is_composition(int role)
 {
     return role == STAGECAL_RL_XD || role == STAGECAL_RL_XB || role == STAGECAL_RL_XDH;
 }
-
-#define DISAGREE_SIGMAS 3.0 /* xD and xD_heavy differ by more: named in a warning */
-#define DISAGREE_LINES 8    /* lines named in that warning */
-
-#define HDR_MAX 48
-#define MAX_FIELDS 256
-
-struct reader {
-    stagecal_runlog *log;
-    const stagecal_column *col;
-    stagecal_runlog_params par;
-    stagecal_findings *f;
-    stagecal_error *err;
-    const char *source;
-    size_t file;
-    long line; /* current physical line */
-    int header_done;
-    int fatal; /* header unusable: rows are skipped */
-    int oom;
-    size_t nhdr;
-    char hdr[MAX_FIELDS][HDR_MAX];  /* header cells as written */
-    int role[MAX_FIELDS];           /* role of each field, −1 = ignored */
-    int field_of[STAGECAL_RL_NCOL]; /* field of each role, −1 = absent */
-    stagecal_unit unit[STAGECAL_RL_NCOL];
-    /* the row being read */
-    size_t field;
-    double val[STAGECAL_RL_NCOL]; /* converted (mass basis: still in kg units) */
-    double raw[STAGECAL_RL_NCOL]; /* as logged */
-    int cens[STAGECAL_RL_NCOL];   /* stagecal_censor of composition cells */
-    char time_text[40];
-    char run_text[64];
-    /* the previous row of the current run */
-    int have_run;
-    size_t cur_run;
-    int prev_t_ok, prev_w_ok;
-    double prev_t;
-    char prev_t_text[40];
-    double prev_w_si, prev_w_raw;
-    /* missing-value bookkeeping */
-    size_t nmissing[STAGECAL_RL_NCOL];
-    long first_missing[STAGECAL_RL_NCOL];
-    size_t file_rows;
-    size_t complete_rows; /* rows with time, W, xD, xB and R all present */
-    /* rows where xD and xD_heavy disagree */
-    size_t ndisagree;
-    long disagree_line[DISAGREE_LINES];
-};
 
 static void vfinding(struct reader *rd, int sev, long line, const char *column, const char *fmt,
                      va_list ap)
@@ -132,9 +84,7 @@ static void vfinding(struct reader *rd, int sev, long line, const char *column, 
     vsnprintf(it->text + k, sizeof it->text - (size_t)k, fmt, ap);
 }
 
-static void finding(struct reader *rd, int sev, long line, const char *column, const char *fmt, ...)
-    SC_PRINTF(5, 6);
-static void finding(struct reader *rd, int sev, long line, const char *column, const char *fmt, ...)
+void reader_finding(struct reader *rd, int sev, long line, const char *column, const char *fmt, ...)
 {
     va_list ap;
     va_start(ap, fmt);
@@ -143,16 +93,14 @@ static void finding(struct reader *rd, int sev, long line, const char *column, c
 }
 
 /* Header failure that makes the file unusable: a finding and the call's error. */
-static void fatal(struct reader *rd, long line, const char *column, const char *fmt, ...)
-    SC_PRINTF(4, 5);
-static void fatal(struct reader *rd, long line, const char *column, const char *fmt, ...)
+void reader_fatal(struct reader *rd, long line, const char *column, const char *fmt, ...)
 {
     va_list ap;
     char msg[300];
     va_start(ap, fmt);
     vsnprintf(msg, sizeof msg, fmt, ap);
     va_end(ap);
-    finding(rd, STAGECAL_FINDING_ERROR, line, column, "%s", msg);
+    reader_finding(rd, STAGECAL_FINDING_ERROR, line, column, "%s", msg);
     if (!rd->fatal)
         error_set_at(rd->err, STAGECAL_EDATA, rd->source, line, 0, "%s", msg);
     rd->fatal = 1;
@@ -176,7 +124,7 @@ static void header_cell(struct reader *rd, const char *cell)
     size_t i = rd->nhdr;
     if (i >= MAX_FIELDS) {
         if (i == MAX_FIELDS)
-            fatal(rd, rd->line, NULL, "more than %d columns", MAX_FIELDS);
+            reader_fatal(rd, rd->line, NULL, "more than %d columns", MAX_FIELDS);
         rd->nhdr++;
         return;
     }
@@ -187,21 +135,22 @@ static void header_cell(struct reader *rd, const char *cell)
     int has_unit;
     stagecal_error e;
     if (stagecal_units_split(cell, name, sizeof name, unit, sizeof unit, &has_unit, &e) != 0) {
-        finding(rd, STAGECAL_FINDING_ERROR, rd->line, cell, "%s", e.text);
+        reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, cell, "%s", e.text);
         return;
     }
     int role = role_of(name);
     if (role < 0) {
-        finding(rd, STAGECAL_FINDING_WARNING, rd->line, cell,
-                "unknown column '%s' ignored (expected time, W, xD, xD_heavy, xB, R, V, Q, P, "
-                "T_top, T_pot, T_reflux or run)",
-                cell);
+        reader_finding(
+            rd, STAGECAL_FINDING_WARNING, rd->line, cell,
+            "unknown column '%s' ignored (expected time, W, xD, xD_heavy, xB, R, V, Q, P, "
+            "T_top, T_pot, T_reflux or run)",
+            cell);
         return;
     }
     if (rd->field_of[role] >= 0) {
-        finding(rd, STAGECAL_FINDING_ERROR, rd->line, cell,
-                "duplicate column '%s' ignored (column '%s' came first)", cell,
-                rd->hdr[rd->field_of[role]]);
+        reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, cell,
+                       "duplicate column '%s' ignored (column '%s' came first)", cell,
+                       rd->hdr[rd->field_of[role]]);
         return;
     }
     stagecal_unit u;
@@ -218,9 +167,9 @@ static void header_cell(struct reader *rd, const char *cell)
         snprintf(msg, sizeof msg, "column '%s': %s", cell, why);
         rd->field_of[role] = -2;
         if (role <= STAGECAL_RL_R || role == STAGECAL_RL_XDH)
-            fatal(rd, rd->line, cell, "%s", msg);
+            reader_fatal(rd, rd->line, cell, "%s", msg);
         else
-            finding(rd, STAGECAL_FINDING_ERROR, rd->line, cell, "%s", msg);
+            reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, cell, "%s", msg);
         return;
     }
     rd->unit[role] = u;
@@ -238,17 +187,18 @@ static void runlog_physics_header_findings(struct reader *rd)
         return;
     int fp = rd->field_of[STAGECAL_RL_P], ft = rd->field_of[STAGECAL_RL_TREFLUX];
     if (fp >= 0 && !stagecal_vle_has_pressure(col->system.vle))
-        finding(rd, STAGECAL_FINDING_WARNING, rd->line, rd->hdr[fp],
-                "column '%s': the equilibrium model '%s' has no temperature dependence, so the "
-                "logged pressure cannot set it (expected a model with Antoine sets)",
-                rd->hdr[fp], stagecal_vle_kind_name(stagecal_vle_get_kind(col->system.vle)));
+        reader_finding(
+            rd, STAGECAL_FINDING_WARNING, rd->line, rd->hdr[fp],
+            "column '%s': the equilibrium model '%s' has no temperature dependence, so the "
+            "logged pressure cannot set it (expected a model with Antoine sets)",
+            rd->hdr[fp], stagecal_vle_kind_name(stagecal_vle_get_kind(col->system.vle)));
     const stagecal_system *s = &col->system;
     if (ft >= 0 && (!(s->cp_liquid_j_mol_k > 0) || !stagecal_vle_has_temperature(s->vle) ||
                     !(s->latent_j_mol > 0 || s->latent_light_j_mol > 0)))
-        finding(rd, STAGECAL_FINDING_WARNING, rd->line, rd->hdr[ft],
-                "column '%s': the reflux temperature is not used (the internal reflux needs "
-                "system.cp_liquid_j_mol_k, a latent heat and a model with temperatures)",
-                rd->hdr[ft]);
+        reader_finding(rd, STAGECAL_FINDING_WARNING, rd->line, rd->hdr[ft],
+                       "column '%s': the reflux temperature is not used (the internal reflux needs "
+                       "system.cp_liquid_j_mol_k, a latent heat and a model with temperatures)",
+                       rd->hdr[ft]);
 }
 
 static void header_done(struct reader *rd)
@@ -265,15 +215,15 @@ static void header_done(struct reader *rd)
         if (r == STAGECAL_RL_XD && rd->field_of[STAGECAL_RL_XDH] != -1)
             continue; /* xD_heavy gives the distillate */
         if (rd->field_of[r] == -1)
-            fatal(rd, rd->line, NULL,
-                  "missing column '%s' (required: time, W, xD or xD_heavy, xB, R)",
-                  r == STAGECAL_RL_XD ? "xD' or 'xD_heavy" : role_names[r]);
+            reader_fatal(rd, rd->line, NULL,
+                         "missing column '%s' (required: time, W, xD or xD_heavy, xB, R)",
+                         r == STAGECAL_RL_XD ? "xD' or 'xD_heavy" : role_names[r]);
     }
     if (rd->field_of[STAGECAL_RL_V] >= 0 && rd->field_of[STAGECAL_RL_Q] >= 0) {
         int q = rd->field_of[STAGECAL_RL_Q];
-        finding(rd, STAGECAL_FINDING_WARNING, rd->line, rd->hdr[q],
-                "column '%s' ignored (column '%s' gives the boil-up)", rd->hdr[q],
-                rd->hdr[rd->field_of[STAGECAL_RL_V]]);
+        reader_finding(rd, STAGECAL_FINDING_WARNING, rd->line, rd->hdr[q],
+                       "column '%s' ignored (column '%s' gives the boil-up)", rd->hdr[q],
+                       rd->hdr[rd->field_of[STAGECAL_RL_V]]);
         rd->role[q] = -1;
         rd->field_of[STAGECAL_RL_Q] = -1;
     }
@@ -293,6 +243,15 @@ static void header_done(struct reader *rd)
     runlog_physics_header_findings(rd);
 }
 
+/* The time cell's text for messages (a copy, truncated to 39 bytes). */
+static void keep_time_text(struct reader *rd, const char *s, size_t len)
+{
+    char *d = rd->time_text[rd->tcur];
+    size_t k = len < sizeof rd->time_text[0] ? len : sizeof rd->time_text[0] - 1;
+    memcpy(d, s, k);
+    d[k] = '\0';
+}
+
 static void data_cell(struct reader *rd, const char *s, size_t len)
 {
     size_t i = rd->field++;
@@ -306,20 +265,23 @@ static void data_cell(struct reader *rd, const char *s, size_t len)
             rd->first_missing[role] = rd->line;
         return;
     }
-    if (strlen(s) != len) {
-        finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
-                "column '%s': value contains a NUL byte (expected text; is the file UTF-16?)", h);
+    if (memchr(s, '\0', len)) {
+        reader_finding(
+            rd, STAGECAL_FINDING_ERROR, rd->line, h,
+            "column '%s': value contains a NUL byte (expected text; is the file UTF-16?)", h);
         return;
     }
     if (role == STAGECAL_RL_RUN) {
-        snprintf(rd->run_text, sizeof rd->run_text, "%s", s);
+        size_t k = len < sizeof rd->run_text ? len : sizeof rd->run_text - 1;
+        memcpy(rd->run_text, s, k); /* (truncated as snprintf would) */
+        rd->run_text[k] = '\0';
         return;
     }
     double x;
     if (is_composition(role)) {
         char why[STAGECAL_ERROR_TEXT];
         if (runlog_parse_fraction(s, u, &x, &rd->cens[role], why, sizeof why) != 0) {
-            finding(rd, STAGECAL_FINDING_ERROR, rd->line, h, "column '%s': %s", h, why);
+            reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, h, "column '%s': %s", h, why);
             return;
         }
         rd->raw[role] = x;
@@ -328,42 +290,42 @@ static void data_cell(struct reader *rd, const char *s, size_t len)
     }
     if (role == STAGECAL_RL_TIME && u->iso8601) {
         if (stagecal_units_parse_iso8601(s, &x) != 0) {
-            finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
-                    "column '%s': value '%s' is not an ISO 8601 timestamp", h, s);
+            reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
+                           "column '%s': value '%s' is not an ISO 8601 timestamp", h, s);
             return;
         }
-        snprintf(rd->time_text, sizeof rd->time_text, "%s", s);
+        keep_time_text(rd, s, len);
         rd->raw[role] = x;
         rd->val[role] = x;
         return;
     }
     if (runlog_parse_number(s, role == STAGECAL_RL_R, &x) != 0) {
-        finding(rd, STAGECAL_FINDING_ERROR, rd->line, h, "column '%s': value '%s' is not a number",
-                h, s);
+        reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
+                       "column '%s': value '%s' is not a number", h, s);
         return;
     }
     if (u->qty == STAGECAL_QTY_TEMPERATURE && !(x >= u->lo)) {
-        finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
-                "column '%s': value '%s' is below absolute zero", h, s);
+        reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
+                       "column '%s': value '%s' is below absolute zero", h, s);
         return;
     }
     if (role == STAGECAL_RL_R && x < 0) {
-        finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
-                "column '%s': value '%s' is negative (expected R >= 0 or inf)", h, s);
+        reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
+                       "column '%s': value '%s' is negative (expected R >= 0 or inf)", h, s);
         return;
     }
     if (u->lo == 0 && x < 0) {
-        finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
-                "column '%s': value '%s' is negative (expected a value >= 0)", h, s);
+        reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
+                       "column '%s': value '%s' is negative (expected a value >= 0)", h, s);
         return;
     }
     if (role == STAGECAL_RL_TIME)
-        snprintf(rd->time_text, sizeof rd->time_text, "%s", s);
+        keep_time_text(rd, s, len);
     rd->raw[role] = x;
     rd->val[role] = x * u->scale + u->offset;
 }
 
-static void on_field(void *s, size_t len, void *data)
+void reader_on_field(void *s, size_t len, void *data)
 {
     struct reader *rd = data;
     if (rd->oom)
@@ -378,16 +340,18 @@ static void on_field(void *s, size_t len, void *data)
                 cell += 3;
             else if (len >= 2 &&
                      (memcmp(cell, "\xFF\xFE", 2) == 0 || memcmp(cell, "\xFE\xFF", 2) == 0)) {
-                fatal(rd, rd->line, NULL,
-                      "the file is UTF-16 encoded (byte-order mark); expected UTF-8 or ASCII "
-                      "text (save or export it as UTF-8 CSV)");
+                reader_fatal(
+                    rd, rd->line, NULL,
+                    "the file is UTF-16 encoded (byte-order mark); expected UTF-8 or ASCII "
+                    "text (save or export it as UTF-8 CSV)");
                 return;
             }
         }
         if (s && strlen((const char *)s) != len) {
-            fatal(rd, rd->line, NULL,
-                  "the header contains NUL bytes (UTF-16 without a byte-order mark?); expected "
-                  "UTF-8 or ASCII text");
+            reader_fatal(
+                rd, rd->line, NULL,
+                "the header contains NUL bytes (UTF-16 without a byte-order mark?); expected "
+                "UTF-8 or ASCII text");
             return;
         }
         header_cell(rd, cell);
@@ -450,7 +414,7 @@ static void distillate(struct reader *rd)
     c[STAGECAL_RL_XD] = c[STAGECAL_RL_XDH];
 }
 
-static void disagree_warning(struct reader *rd)
+void reader_disagree_warning(struct reader *rd)
 {
     if (!rd->ndisagree)
         return;
@@ -463,10 +427,11 @@ static void disagree_warning(struct reader *rd)
         snprintf(lines + k, sizeof lines - k, ", ...");
     const char *hd = rd->hdr[rd->field_of[STAGECAL_RL_XD]];
     const char *hh = rd->hdr[rd->field_of[STAGECAL_RL_XDH]];
-    finding(rd, STAGECAL_FINDING_WARNING, 0, hh,
-            "columns '%s' and '%s' disagree by more than %g standard uncertainties on %zu rows "
-            "(line%s %s); '%s' is used",
-            hd, hh, DISAGREE_SIGMAS, rd->ndisagree, rd->ndisagree > 1 ? "s" : "", lines, hh);
+    reader_finding(
+        rd, STAGECAL_FINDING_WARNING, 0, hh,
+        "columns '%s' and '%s' disagree by more than %g standard uncertainties on %zu rows "
+        "(line%s %s); '%s' is used",
+        hd, hh, DISAGREE_SIGMAS, rd->ndisagree, rd->ndisagree > 1 ? "s" : "", lines, hh);
 }
 
 static int start_run(struct reader *rd, const char *name)
@@ -482,20 +447,30 @@ static int start_run(struct reader *rd, const char *name)
     r->file = rd->file;
     r->first = log->n;
     r->first_line = rd->line;
+    if (rd->nnames == rd->names_cap) {
+        size_t cap = rd->names_cap ? 2 * rd->names_cap : 16;
+        char(*names)[64] = realloc(rd->names, cap * sizeof *names);
+        if (!names)
+            return -1;
+        rd->names = names;
+        rd->names_cap = cap;
+    }
+    memcpy(rd->names[rd->nnames++], r->name, sizeof r->name);
     rd->cur_run = log->nruns++;
     rd->have_run = 1;
     rd->prev_t_ok = rd->prev_w_ok = 0;
     return 0;
 }
 
-static void close_run(struct reader *rd)
+void reader_close_run(struct reader *rd)
 {
     if (!rd->have_run)
         return;
     stagecal_runlog_run *r = &rd->log->runs[rd->cur_run];
     if (r->n < rd->par.min_rows)
-        finding(rd, STAGECAL_FINDING_ERROR, r->first_line, NULL,
-                "run '%s' has %zu rows (expected at least %zu)", r->name, r->n, rd->par.min_rows);
+        reader_finding(rd, STAGECAL_FINDING_ERROR, r->first_line, NULL,
+                       "run '%s' has %zu rows (expected at least %zu)", r->name, r->n,
+                       rd->par.min_rows);
 }
 
 static void end_row(struct reader *rd)
@@ -504,8 +479,8 @@ static void end_row(struct reader *rd)
     const stagecal_column *col = rd->col;
     double *v = rd->val;
     if (rd->field != rd->nhdr) {
-        finding(rd, STAGECAL_FINDING_ERROR, rd->line, NULL, "%zu fields, expected %zu", rd->field,
-                rd->nhdr);
+        reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, NULL, "%zu fields, expected %zu",
+                       rd->field, rd->nhdr);
         return;
     }
     /* The run this row belongs to (runs are contiguous). */
@@ -516,14 +491,15 @@ static void end_row(struct reader *rd)
         char prev[64] = "";
         if (rd->have_run)
             snprintf(prev, sizeof prev, "%s", log->runs[rd->cur_run].name);
-        for (size_t k = 0; rd->have_run && k < log->nruns; k++)
-            if (log->runs[k].file == rd->file && strcmp(log->runs[k].name, name) == 0) {
-                finding(rd, STAGECAL_FINDING_ERROR, rd->line, NULL,
-                        "run '%s' resumes after run '%s' (expected the rows of a run together)",
-                        name, prev);
+        for (size_t k = 0; rd->have_run && k < rd->nnames; k++)
+            if (strcmp(rd->names[k], name) == 0) {
+                reader_finding(
+                    rd, STAGECAL_FINDING_ERROR, rd->line, NULL,
+                    "run '%s' resumes after run '%s' (expected the rows of a run together)", name,
+                    prev);
                 break;
             }
-        close_run(rd);
+        reader_close_run(rd);
         if (start_run(rd, name) != 0) {
             rd->oom = 1;
             return;
@@ -548,23 +524,25 @@ static void end_row(struct reader *rd)
     double t = v[STAGECAL_RL_TIME];
     if (!isnan(t)) {
         if (rd->prev_t_ok && !(t > rd->prev_t))
-            finding(rd, STAGECAL_FINDING_ERROR, rd->line, ht,
-                    "column '%s': time '%s' is not after the previous sample's '%s' (expected "
-                    "increasing time within run '%s')",
-                    ht, rd->time_text, rd->prev_t_text, log->runs[rd->cur_run].name);
+            reader_finding(
+                rd, STAGECAL_FINDING_ERROR, rd->line, ht,
+                "column '%s': time '%s' is not after the previous sample's '%s' (expected "
+                "increasing time within run '%s')",
+                ht, rd->time_text[rd->tcur], rd->time_text[!rd->tcur], log->runs[rd->cur_run].name);
         rd->prev_t = t;
         rd->prev_t_ok = 1;
-        snprintf(rd->prev_t_text, sizeof rd->prev_t_text, "%s", rd->time_text);
+        rd->tcur = !rd->tcur; /* this row's text is now the previous one */
     }
     double w = v[STAGECAL_RL_W], r = v[STAGECAL_RL_R];
     if (!isnan(w)) {
         double uw = col ? col->u.w_mol : 0.0;
         if (rd->prev_w_ok && isfinite(r) && r > 0 &&
             w - rd->prev_w_si > rd->par.w_rise_sigmas * sqrt(2.0) * uw && w > rd->prev_w_si)
-            finding(rd, STAGECAL_FINDING_WARNING, rd->line, hw,
-                    "column '%s': holdup rose from %g to %g while distillate was drawn (expected "
-                    "W to fall during production)",
-                    hw, rd->prev_w_raw, rd->raw[STAGECAL_RL_W]);
+            reader_finding(
+                rd, STAGECAL_FINDING_WARNING, rd->line, hw,
+                "column '%s': holdup rose from %g to %g while distillate was drawn (expected "
+                "W to fall during production)",
+                hw, rd->prev_w_raw, rd->raw[STAGECAL_RL_W]);
         rd->prev_w_si = w;
         rd->prev_w_raw = rd->raw[STAGECAL_RL_W];
         rd->prev_w_ok = 1;
@@ -573,8 +551,8 @@ static void end_row(struct reader *rd)
     int cd = rd->cens[STAGECAL_RL_XD], cb = rd->cens[STAGECAL_RL_XB];
     /* false when either is missing, or when censoring leaves room for xD >= xB */
     if (xd < xb && cd != STAGECAL_CENSOR_ABOVE && cb != STAGECAL_CENSOR_BELOW)
-        finding(rd, STAGECAL_FINDING_ERROR, rd->line, rd->hdr[rd->field_of[STAGECAL_RL_XD]],
-                "xD %.6g is below xB %.6g (expected xD >= xB in a rectifier)", xd, xb);
+        reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, rd->hdr[rd->field_of[STAGECAL_RL_XD]],
+                       "xD %.6g is below xB %.6g (expected xD >= xB in a rectifier)", xd, xb);
 
     if (log->n == log->cap && runlog_grow_rows(log) != 0) {
         rd->oom = 1;
@@ -606,7 +584,7 @@ static void end_row(struct reader *rd)
     rd->file_rows++;
 }
 
-static void on_row(int c, void *data)
+void reader_on_row(int c, void *data)
 {
     struct reader *rd = data;
     (void)c;
@@ -624,176 +602,5 @@ static void on_row(int c, void *data)
         rd->cens[i] = STAGECAL_CENSOR_NONE;
     }
     rd->run_text[0] = '\0';
-    rd->time_text[0] = '\0';
-}
-
-int stagecal_runlog_read_stream(stagecal_runlog *log, FILE *in, const char *source,
-                                const stagecal_column *col, const stagecal_runlog_params *params,
-                                stagecal_findings *f, stagecal_error *err)
-{
-    struct reader *rd = calloc(1, sizeof *rd);
-    if (!rd)
-        return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    stagecal_error_clear(err);
-    char(*files)[160] = realloc(log->files, (log->nfiles + 1) * sizeof *files);
-    if (files)
-        log->files = files;
-    char(*hashes)[65] = files ? realloc(log->sha256, (log->nfiles + 1) * sizeof *hashes) : NULL;
-    if (!hashes) {
-        free(rd);
-        return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    }
-    log->sha256 = hashes;
-    snprintf(files[log->nfiles], sizeof files[0], "%s", source);
-    hashes[log->nfiles][0] = '\0';
-    rd->file = log->nfiles++;
-    rd->log = log;
-    rd->col = col;
-    rd->par = params ? *params : stagecal_runlog_default_params();
-    rd->f = f;
-    rd->err = err;
-    rd->source = source;
-    for (int i = 0; i < STAGECAL_RL_NCOL; i++) {
-        rd->field_of[i] = -1;
-        rd->val[i] = rd->raw[i] = NAN;
-    }
-    struct csv_parser p;
-    if (csv_init(&p, CSV_APPEND_NULL) != 0) {
-        free(rd);
-        return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    }
-    char *buf = NULL;
-    size_t cap = 0;
-    ssize_t len;
-    sha256_ctx hash;
-    sha256_init(&hash);
-    size_t errors_before = f ? f->n_errors : 0;
-    /* A quoted cell may span lines (a notes column written by a spreadsheet); quote_line is
-     * the line where the quoted cell still open at the end of the last line began, 0 when
-     * none is open. libcsv's public 'quoted' member is set from a cell's opening quote
-     * until the cell is submitted, and a line end outside quotes submits it. */
-    long quote_line = 0;
-    int last_nl = 1, parse_failed = 0;
-    while (!rd->oom && (len = getline(&buf, &cap, in)) > 0) {
-        rd->line++;
-        sha256_update(&hash, buf, (size_t)len);
-        last_nl = buf[len - 1] == '\n';
-        if (csv_parse(&p, buf, (size_t)len, on_field, on_row, rd) != (size_t)len) {
-            finding(rd, STAGECAL_FINDING_ERROR, rd->line, NULL, "%s", csv_strerror(csv_error(&p)));
-            parse_failed = 1;
-            break;
-        }
-        if (!p.quoted)
-            quote_line = 0;
-        else if (last_nl && quote_line == 0)
-            quote_line = rd->line;
-    }
-    int read_failed = ferror(in), read_errno = errno;
-    /* A last line without a line end: end it, so that 'quoted' again means "still open". */
-    if (!read_failed && !parse_failed && !rd->oom && !last_nl &&
-        csv_parse(&p, "\n", 1, on_field, on_row, rd) == 1 && p.quoted && quote_line == 0)
-        quote_line = rd->line;
-    if (!read_failed && !parse_failed && !rd->oom && p.quoted) {
-        fatal(rd, quote_line, NULL,
-              "unterminated quoted field (the '\"' opened on this line is never closed)");
-        csv_fini(&p, NULL, NULL, NULL); /* drop the open cell: it holds the rest of the file */
-    } else {
-        csv_fini(&p, on_field, on_row, rd);
-    }
-    csv_free(&p);
-    free(buf);
-    unsigned char digest[SHA256_DIGEST];
-    sha256_final(&hash, digest);
-    sha256_to_hex(digest, log->sha256[rd->file]);
-    int rc = STAGECAL_OK;
-    if (rd->oom) {
-        rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
-    } else if (read_failed) {
-        rc = error_set_at(err, STAGECAL_ENOINPUT, source, 0, 0, "cannot read: %s",
-                          strerror(read_errno));
-    } else if (!rd->header_done) {
-        if (!rd->fatal) /* (an unterminated quote in the header has said why already) */
-            fatal(rd, 0, NULL, "no header row (expected time, W, xD, xB, R columns)");
-        rc = STAGECAL_EDATA;
-    } else if (rd->fatal) {
-        rc = STAGECAL_EDATA;
-    } else {
-        close_run(rd);
-        if (rd->file_rows == 0)
-            finding(rd, STAGECAL_FINDING_ERROR, 0, NULL, "no data rows");
-        else if (rd->complete_rows == 0 && rd->f && rd->f->n_errors == errors_before)
-            /* (when cells were refused, their errors already say why no row is complete) */
-            finding(rd, STAGECAL_FINDING_ERROR, 0, NULL,
-                    "no row has time, W, xD, xB and R all present (expected at least %zu such "
-                    "rows per run)",
-                    rd->par.min_rows);
-        /* The same bytes twice would count the same runs twice as independent evidence. */
-        for (size_t k = 0; k < rd->file; k++)
-            if (strcmp(log->sha256[k], log->sha256[rd->file]) == 0) {
-                finding(rd, STAGECAL_FINDING_ERROR, 0, NULL,
-                        "same content as '%s' (SHA-256 %.12s…): each log may be given once",
-                        log->files[k], log->sha256[k]);
-                break;
-            }
-        disagree_warning(rd);
-        for (int i = 0; i < STAGECAL_RL_NCOL; i++)
-            if (rd->nmissing[i] && rd->field_of[i] >= 0) {
-                const char *h = rd->hdr[rd->field_of[i]];
-                finding(rd, STAGECAL_FINDING_WARNING, 0, h,
-                        "column '%s': %zu missing values (first at line %ld)", h, rd->nmissing[i],
-                        rd->first_missing[i]);
-            }
-    }
-    free(rd);
-    return rc;
-}
-
-int stagecal_runlog_read(stagecal_runlog *log, const char *path, const stagecal_column *col,
-                         const stagecal_runlog_params *params, stagecal_findings *f,
-                         stagecal_error *err)
-{
-    if (strcmp(path, "-") == 0)
-        return stagecal_runlog_read_stream(log, stdin, "-", col, params, f, err);
-    FILE *in;
-    stagecal_error oerr;
-    int rc = open_bounded(path, FILEIO_CAP_RUNLOG, "run log", &in, &oerr);
-    if (rc == STAGECAL_EDATA) { /* over the size limit: a finding, as bad content is */
-        struct reader rd0;
-        size_t skip = strlen(path) + 2; /* the message without its "path: " */
-        memset(&rd0, 0, sizeof rd0);
-        rd0.f = f;
-        rd0.err = err;
-        rd0.source = path;
-        fatal(&rd0, 0, NULL, "%s", strlen(oerr.text) > skip ? oerr.text + skip : oerr.text);
-    } else if (rc != STAGECAL_OK && err) {
-        *err = oerr;
-    }
-    if (rc != STAGECAL_OK)
-        return rc;
-    rc = stagecal_runlog_read_stream(log, in, path, col, params, f, err);
-    fclose(in);
-    return rc;
-}
-
-int stagecal_runlog_read_buffer(stagecal_runlog *log, const char *text, size_t len,
-                                const char *source, const stagecal_column *col,
-                                const stagecal_runlog_params *params, stagecal_findings *f,
-                                stagecal_error *err)
-{
-    if (len == 0) { /* fmemopen rejects a zero size */
-        stagecal_findings *ff = f;
-        struct reader rd0;
-        memset(&rd0, 0, sizeof rd0);
-        rd0.f = ff;
-        rd0.err = err;
-        rd0.source = source;
-        fatal(&rd0, 0, NULL, "no header row (expected time, W, xD, xB, R columns)");
-        return STAGECAL_EDATA;
-    }
-    FILE *in = fmemopen((void *)(uintptr_t)text, len, "r");
-    if (!in)
-        return error_set(err, STAGECAL_ENOMEM, "cannot open memory stream");
-    int rc = stagecal_runlog_read_stream(log, in, source, col, params, f, err);
-    fclose(in);
-    return rc;
+    rd->time_text[rd->tcur][0] = '\0';
 }

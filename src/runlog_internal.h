@@ -4,7 +4,76 @@
 #ifndef STAGECAL_RUNLOG_INTERNAL_H
 #define STAGECAL_RUNLOG_INTERNAL_H
 
+#include <stdarg.h>
+
+#include "internal.h"
 #include "stagecal/runlog.h"
+
+/* ---- the reader (runlog.c: cells and rows; runlog_stream.c: files and runs) ---- */
+
+#define DISAGREE_SIGMAS 3.0 /* xD and xD_heavy differ by more: named in a warning */
+#define DISAGREE_LINES 8    /* lines named in that warning */
+
+#define HDR_MAX 48
+#define MAX_FIELDS 256
+
+struct reader {
+    stagecal_runlog *log;
+    const stagecal_column *col;
+    stagecal_runlog_params par;
+    stagecal_findings *f;
+    stagecal_error *err;
+    const char *source;
+    size_t file;
+    long line; /* current physical line */
+    int header_done;
+    int fatal; /* header unusable: rows are skipped */
+    int oom;
+    size_t nhdr;
+    char hdr[MAX_FIELDS][HDR_MAX];  /* header cells as written */
+    int role[MAX_FIELDS];           /* role of each field, −1 = ignored */
+    int field_of[STAGECAL_RL_NCOL]; /* field of each role, −1 = absent */
+    stagecal_unit unit[STAGECAL_RL_NCOL];
+    /* the row being read */
+    size_t field;
+    double val[STAGECAL_RL_NCOL]; /* converted (mass basis: still in kg units) */
+    double raw[STAGECAL_RL_NCOL]; /* as logged */
+    int cens[STAGECAL_RL_NCOL];   /* stagecal_censor of composition cells */
+    char time_text[2][40]; /* the time cell as logged: [tcur] this row, [!tcur] the previous */
+    int tcur;
+    char run_text[64];
+    /* the previous row of the current run */
+    int have_run;
+    size_t cur_run;
+    int prev_t_ok, prev_w_ok;
+    double prev_t;
+    double prev_w_si, prev_w_raw;
+    /* missing-value bookkeeping */
+    size_t nmissing[STAGECAL_RL_NCOL];
+    long first_missing[STAGECAL_RL_NCOL];
+    size_t file_rows;
+    size_t complete_rows; /* rows with time, W, xD, xB and R all present */
+    /* rows where xD and xD_heavy disagree */
+    size_t ndisagree;
+    long disagree_line[DISAGREE_LINES];
+    /* names of the runs this file has started (a run may not resume) */
+    char (*names)[64];
+    size_t nnames, names_cap;
+};
+
+/* A finding about the file being read (rd->source, line; 0 = the file as a whole). */
+void reader_finding(struct reader *rd, int sev, long line, const char *column, const char *fmt, ...)
+    SC_PRINTF(5, 6);
+/* A header failure that makes the file unusable: a finding and the call's error. */
+void reader_fatal(struct reader *rd, long line, const char *column, const char *fmt, ...)
+    SC_PRINTF(4, 5);
+/* libcsv callbacks (data: the reader). */
+void reader_on_field(void *s, size_t len, void *data);
+void reader_on_row(int c, void *data);
+/* The end of the current run: too few rows is an error. */
+void reader_close_run(struct reader *rd);
+/* The warning naming rows where xD and xD_heavy disagree (none when they agree). */
+void reader_disagree_warning(struct reader *rd);
 
 /* Frees the arrays of res and zeroes it. */
 void result_free_members(stagecal_runlog_result *res);
@@ -29,6 +98,13 @@ void runlog_run_samples(const stagecal_runlog *log, const stagecal_runlog_analys
 int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
                    const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
                    stagecal_error *err);
+
+/* Writes the CSV rows of log and res (stagecal_runlog_write_csv), the window column offset
+ * by window_base (the windows of the runs written before), the header row first when
+ * header is 1. EWRITE, ENOMEM. */
+int runlog_write_rows(const stagecal_runlog *log, const stagecal_column *col,
+                      const stagecal_runlog_result *res, size_t window_base, int header, FILE *out,
+                      stagecal_error *err);
 
 /* The boil-up/reflux consistency of run k (closure fields has_boilup … boilup_mismatch);
  * rows flagged TOTAL_REFLUX are left out (runlog_drift.c). */

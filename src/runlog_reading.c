@@ -5,14 +5,61 @@
  */
 #include <errno.h>
 #include <math.h>
+#include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "runlog_internal.h"
 
+/* Clinger's fast path (Clinger 1990, "How to read floating point numbers accurately",
+ * PLDI '90): a decimal of at most 19 digits whose integer mantissa m is below 2^53 and whose
+ * power of ten e has |e| <= 22 is m·10^e or m/10^−e rounded once, and since both m and 10^|e|
+ * are exact doubles that single IEEE operation is the correctly rounded value, the same
+ * double strtod returns. Returns 0 with *v, or -1 when the text is not of the plain form
+ * [+-]digits[.digits][(e|E)[+-]digits] or falls outside the fast path (the caller then asks
+ * strtod). */
+static int parse_fast(const char *s, double *v)
+{
+    static const double p10[] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
+                                 1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
+                                 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
+    const char *p = s;
+    int neg = 0;
+    if (*p == '-' || *p == '+')
+        neg = *p++ == '-';
+    uint64_t m = 0;
+    int nd = 0, e = 0;
+    for (; *p >= '0' && *p <= '9'; p++, nd++)
+        m = m * 10 + (uint64_t)(*p - '0');
+    if (*p == '.')
+        for (p++; *p >= '0' && *p <= '9'; p++, nd++, e--)
+            m = m * 10 + (uint64_t)(*p - '0');
+    if (nd == 0 || nd > 19)
+        return -1; /* no digits, or the mantissa may have overflowed: strtod decides */
+    if (*p == 'e' || *p == 'E') {
+        p++;
+        int eneg = 0, ex = 0, ne = 0;
+        if (*p == '-' || *p == '+')
+            eneg = *p++ == '-';
+        for (; *p >= '0' && *p <= '9' && ne < 4; p++, ne++)
+            ex = ex * 10 + (*p - '0');
+        if (ne == 0 || ne == 4)
+            return -1;
+        e += eneg ? -ex : ex;
+    }
+    if (*p != '\0' || m > ((uint64_t)1 << 53) || e < -22 || e > 22)
+        return -1;
+    double x = (double)m;
+    x = e < 0 ? x / p10[-e] : x * p10[e];
+    *v = neg ? -x : x;
+    return 0;
+}
+
 int runlog_parse_number(const char *s, int allow_inf, double *v)
 {
+    if (parse_fast(s, v) == 0)
+        return 0;
     if (allow_inf && (strcmp(s, "inf") == 0 || strcmp(s, "Inf") == 0 || strcmp(s, "INF") == 0 ||
                       strcmp(s, "infinity") == 0)) {
         *v = INFINITY;

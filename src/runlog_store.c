@@ -28,7 +28,7 @@ void stagecal_findings_free(stagecal_findings *f)
 
 stagecal_runlog_params stagecal_runlog_default_params(void)
 {
-    stagecal_runlog_params p = {5, 3.0, 1000};
+    stagecal_runlog_params p = {5, 3.0, 1000, 1};
     return p;
 }
 
@@ -60,6 +60,7 @@ void stagecal_runlog_free(stagecal_runlog *log)
     free(log->runs);
     free(log->files);
     free(log->sha256);
+    free(log->checksum);
     free(log);
 }
 

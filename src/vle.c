@@ -246,74 +246,97 @@ int stagecal_vle_t_range(const stagecal_vle *vle, double *t_lo_k, double *t_hi_k
     return STAGECAL_OK;
 }
 
+/* ---- y*, x* and the slope: one function per kind ---------------------------------------- */
+
+typedef enum { VLE_YSTAR, VLE_XSTAR, VLE_DYDX } vle_query;
+
+/* Constant α: the closed forms. */
+static int alpha_query(const stagecal_vle *v, vle_query q, double in, double *out)
+{
+    double a = v->alpha, d = 1.0 + (a - 1.0) * in;
+    if (q == VLE_YSTAR)
+        *out = a * in / d;
+    else if (q == VLE_XSTAR)
+        *out = in / (in + a * (1.0 - in)); /* no cancellation near y = 1 */
+    else
+        *out = a / (d * d);
+    return STAGECAL_OK;
+}
+
+/* Constant K: y* = Kx. */
+static int k_query(const stagecal_vle *v, vle_query q, double in, double *out)
+{
+    *out = q == VLE_YSTAR ? v->k * in : q == VLE_XSTAR ? in / v->k : v->k;
+    return STAGECAL_OK;
+}
+
+/* TABLE (and the activity models when the exact answer is not asked for): the Hermite
+ * table and its inverse. */
+static int table_query(const stagecal_vle *v, vle_query q, double in, double *out)
+{
+    if (q == VLE_XSTAR)
+        return vle_herm_invert(v, in, out);
+    *out = q == VLE_YSTAR ? vle_herm_eval(v, v->ys, v->ms, in) : vle_herm_deriv(v, in);
+    return STAGECAL_OK;
+}
+
+/* IDEAL and the activity models: the table, or the bubble solve when vp.exact. */
+static int activity_query(const stagecal_vle *v, vle_query q, double in, double *out)
+{
+    if (!v->vp.exact)
+        return table_query(v, q, in, out);
+    if (q == VLE_XSTAR)
+        return vle_xstar_exact(v, in, out);
+    double y, t, dtdx;
+    int rc = stagecal_vle_ystar_exact(v, in, &y, &t);
+    if (rc != STAGECAL_OK || q == VLE_YSTAR) {
+        *out = y;
+        return rc;
+    }
+    vle_exact_slopes(v, in, t, out, &dtdx);
+    return isfinite(*out) ? STAGECAL_OK : STAGECAL_ENOCONV;
+}
+
+/* PSEUDO: the transformed model (vle_pseudo.c). */
+static int pseudo_query(const stagecal_vle *v, vle_query q, double in, double *out)
+{
+    if (q == VLE_YSTAR)
+        return vle_pseudo_ystar(v, in, out);
+    return q == VLE_XSTAR ? vle_pseudo_xstar(v, in, out) : vle_pseudo_dydx(v, in, out);
+}
+
+typedef int (*vle_query_fn)(const stagecal_vle *v, vle_query q, double in, double *out);
+
+static const vle_query_fn query_of[] = {
+    [STAGECAL_VLE_ALPHA] = alpha_query,      [STAGECAL_VLE_KVALUE] = k_query,
+    [STAGECAL_VLE_TABLE] = table_query,      [STAGECAL_VLE_IDEAL] = activity_query,
+    [STAGECAL_VLE_WILSON] = activity_query,  [STAGECAL_VLE_NRTL] = activity_query,
+    [STAGECAL_VLE_VANLAAR] = activity_query, [STAGECAL_VLE_MARGULES] = activity_query,
+    [STAGECAL_VLE_PSEUDO] = pseudo_query,
+};
+
+/* in checked against [0, x_max] (x) or [0, 1] (y), then the kind's function */
+static int query(const stagecal_vle *vle, vle_query q, double in, double *out)
+{
+    double top = q == VLE_XSTAR ? 1.0 : stagecal_vle_x_max(vle);
+    if (!(in >= 0.0 && in <= top))
+        return STAGECAL_EINVAL;
+    return query_of[vle->kind](vle, q, in, out);
+}
+
 int stagecal_vle_ystar(const stagecal_vle *vle, double x, double *y)
 {
-    if (!(x >= 0.0 && x <= stagecal_vle_x_max(vle)))
-        return STAGECAL_EINVAL;
-    switch (vle->kind) {
-    case STAGECAL_VLE_ALPHA:
-        *y = vle->alpha * x / (1.0 + (vle->alpha - 1.0) * x);
-        return STAGECAL_OK;
-    case STAGECAL_VLE_KVALUE:
-        *y = vle->k * x;
-        return STAGECAL_OK;
-    case STAGECAL_VLE_PSEUDO:
-        return vle_pseudo_ystar(vle, x, y);
-    default:
-        if (vle->vp.exact && vle_is_activity(vle->kind))
-            return stagecal_vle_ystar_exact(vle, x, y, NULL);
-        *y = vle_herm_eval(vle, vle->ys, vle->ms, x);
-        return STAGECAL_OK;
-    }
+    return query(vle, VLE_YSTAR, x, y);
 }
 
 int stagecal_vle_xstar(const stagecal_vle *vle, double y, double *x)
 {
-    if (!(y >= 0.0 && y <= 1.0))
-        return STAGECAL_EINVAL;
-    switch (vle->kind) {
-    case STAGECAL_VLE_ALPHA:
-        *x = y / (y + vle->alpha * (1.0 - y)); /* no cancellation near y = 1 */
-        return STAGECAL_OK;
-    case STAGECAL_VLE_KVALUE:
-        *x = y / vle->k;
-        return STAGECAL_OK;
-    case STAGECAL_VLE_PSEUDO:
-        return vle_pseudo_xstar(vle, y, x);
-    default:
-        if (vle->vp.exact && vle_is_activity(vle->kind))
-            return vle_xstar_exact(vle, y, x);
-        return vle_herm_invert(vle, y, x);
-    }
+    return query(vle, VLE_XSTAR, y, x);
 }
 
 int stagecal_vle_dydx(const stagecal_vle *vle, double x, double *dydx)
 {
-    if (!(x >= 0.0 && x <= stagecal_vle_x_max(vle)))
-        return STAGECAL_EINVAL;
-    switch (vle->kind) {
-    case STAGECAL_VLE_ALPHA: {
-        double d = 1.0 + (vle->alpha - 1.0) * x;
-        *dydx = vle->alpha / (d * d);
-        return STAGECAL_OK;
-    }
-    case STAGECAL_VLE_KVALUE:
-        *dydx = vle->k;
-        return STAGECAL_OK;
-    case STAGECAL_VLE_PSEUDO:
-        return vle_pseudo_dydx(vle, x, dydx);
-    default:
-        if (vle->vp.exact && vle_is_activity(vle->kind)) {
-            double y, t, dtdx;
-            int rc = stagecal_vle_ystar_exact(vle, x, &y, &t);
-            if (rc != STAGECAL_OK)
-                return rc;
-            vle_exact_slopes(vle, x, t, dydx, &dtdx);
-            return isfinite(*dydx) ? STAGECAL_OK : STAGECAL_ENOCONV;
-        }
-        *dydx = vle_herm_deriv(vle, x);
-        return STAGECAL_OK;
-    }
+    return query(vle, VLE_DYDX, x, dydx);
 }
 
 int stagecal_vle_tbubble(const stagecal_vle *vle, double x, double *t_k)

@@ -117,15 +117,16 @@ static void censor_exact_readings_give_the_truth(void **state)
     stagecal_form form;
     stagecal_censored_fit fit;
     assert_int_equal(stagecal_form_parse("constant", &form, NULL), 0);
-    assert_int_equal(stagecal_fit_censored(&col, 1.0, ev, 3, &form, 0.95, 1, 200, &fit, NULL), 0);
+    assert_int_equal(stagecal_fit_censored(&col, 1.0, ev, 3, &form, NULL, 0.95, 1, 200, &fit, NULL),
+                     0);
     /* readings at the truth: the likelihood peaks at the truth but for the O(u_rel²) shift
      * of a heteroscedastic normal likelihood (−log u(x) moves the latent impurity h by
      * −u_rel²·h, i.e. the count by u_rel²/ln α = 0.0036 stages): tolerance 0.01 stages.
      * Both ends are bounded. */
-    assert_abs(fit.theta, NTRUE, 0.01, "maximum-likelihood stages");
-    assert_int_equal(fit.low_bounded, 1);
-    assert_int_equal(fit.high_bounded, 1);
-    assert_true(fit.low < NTRUE && NTRUE < fit.high);
+    assert_abs(fit.theta[0], NTRUE, 0.01, "maximum-likelihood stages");
+    assert_int_equal(fit.par[0].low_bounded, 1);
+    assert_int_equal(fit.par[0].high_bounded, 1);
+    assert_true(fit.par[0].low < NTRUE && NTRUE < fit.par[0].high);
     assert_int_equal(fit.n_windows, 3);
     assert_int_equal(fit.n_readings, 36);
     assert_int_equal(fit.n_censored, 0);
@@ -140,25 +141,83 @@ static void censor_clipped_analyser_gives_at_least(void **state)
     stagecal_censored_fit fit;
     stagecal_error e;
     assert_int_equal(stagecal_form_parse("constant", &form, NULL), 0);
-    assert_int_equal(stagecal_fit_censored(&col, 1.0, ev, 3, &form, 0.95, 1, 200, &fit, &e), 0);
+    assert_int_equal(stagecal_fit_censored(&col, 1.0, ev, 3, &form, NULL, 0.95, 1, 200, &fit, &e),
+                     0);
     /* every distillate reading at full scale: more stages fit as well, so only a lower
      * bound, and it holds */
-    assert_int_equal(fit.high_bounded, 0);
-    assert_true(isnan(fit.high));
-    assert_int_equal(fit.low_bounded, 1);
-    assert_true(fit.low < NTRUE);
+    assert_int_equal(fit.par[0].high_bounded, 0);
+    assert_true(isnan(fit.par[0].high));
+    assert_int_equal(fit.par[0].low_bounded, 1);
+    assert_true(fit.par[0].low < NTRUE);
     assert_int_equal(fit.n_censored, 18);
     /* refusals */
     stagecal_form sat;
     assert_int_equal(stagecal_form_parse("saturating", &sat, NULL), 0);
-    assert_int_equal(stagecal_fit_censored(&col, 1.0, ev, 3, &sat, 0.95, 1, 200, &fit, &e),
+    assert_int_equal(stagecal_fit_censored(&col, 1.0, ev, 3, &sat, NULL, 0.95, 1, 200, &fit, &e),
                      STAGECAL_EINVAL);
-    assert_string_equal(e.text, "censored fit: form 'saturating' has 2 parameters (only "
-                                "one-parameter forms, e.g. constant, so far)");
+    assert_string_equal(e.text, "censored fit: form 'saturating' needs a start");
     col.u.xb = 0;
-    assert_int_equal(stagecal_fit_censored(&col, 1.0, ev, 3, &form, 0.95, 1, 200, &fit, &e),
+    assert_int_equal(stagecal_fit_censored(&col, 1.0, ev, 3, &form, NULL, 0.95, 1, 200, &fit, &e),
                      STAGECAL_EINVAL);
     assert_non_null(strstr(e.text, "has no stated uncertainty"));
+    stagecal_vle_free(col.system.vle);
+}
+
+/* A two-parameter form, stages = a + b/R, on readings at the truth (a = 20, b = 30; four
+ * windows at R = 3, 5, 8, 15, xD = 1 − 1e-4, pot from Smoker's closed form): the
+ * maximum-likelihood θ is the truth but for the O(u_rel²) shift of the heteroscedastic
+ * likelihood (0.0036 stages per window, see above; 0.05 on a and b, which the four
+ * conditions amplify); both ends of both parameters and of the stage count at R = 6 are
+ * determined and contain the truth; the observed-information covariance is positive. */
+static void censor_two_parameters_exact(void **state)
+{
+    (void)state;
+    static const double rr[4] = {3, 5, 8, 15};
+    static double xd4[4][6], xb4[4][6];
+    stagecal_evidence e4[4];
+    memset(&col, 0, sizeof col);
+    col.system.vle = stagecal_vle_alloc_alpha(ALPHA, NULL);
+    col.u.xd = 1e-9;
+    col.u.xd_heavy_rel = 0.05;
+    col.u.xb = 0.003;
+    for (int w = 0; w < 4; w++) {
+        double xd = 1 - 1e-4, xb = oracle_smoker_xb(ALPHA, rr[w], xd, 20 + 30 / rr[w]);
+        for (int j = 0; j < 6; j++) {
+            xd4[w][j] = xd;
+            xb4[w][j] = xb;
+        }
+        memset(&e4[w], 0, sizeof e4[w]);
+        e4[w].r = rr[w];
+        e4[w].m = 6;
+        e4[w].s_xd = xd4[w];
+        e4[w].s_xb = xb4[w];
+    }
+    stagecal_form form;
+    stagecal_censored_fit fit;
+    stagecal_error e;
+    const double theta0[2] = {18, 20};
+    assert_int_equal(stagecal_form_parse("linear:1+1/R", &form, NULL), 0);
+    assert_int_equal(stagecal_fit_censored(&col, 1.0, e4, 4, &form, theta0, 0.95, 1, 200, &fit, &e),
+                     0);
+    assert_abs(fit.theta[0], 20, 0.05, "a");
+    assert_abs(fit.theta[1], 30, 0.05 * 30 / 3, "b");
+    assert_int_equal(fit.one_sided, 0);
+    for (int j = 0; j < 2; j++) {
+        assert_int_equal(fit.par[j].low_bounded, 1);
+        assert_int_equal(fit.par[j].high_bounded, 1);
+        assert_true(fit.par[j].low < fit.theta[j] && fit.theta[j] < fit.par[j].high);
+    }
+    assert_true(fit.par[0].low < 20 && 20 < fit.par[0].high);
+    assert_true(fit.par[1].low < 30 && 30 < fit.par[1].high);
+    assert_int_equal(fit.has_cov, 1);
+    assert_true(fit.cov[0] > 0 && fit.cov[3] > 0);
+    stagecal_censored_interval at6;
+    assert_int_equal(
+        stagecal_censored_stages_at(&col, 1.0, e4, 4, &form, &fit, 6, NAN, 0.95, &at6, &e), 0);
+    assert_abs(at6.value, 25, 0.05, "stages at R = 6");
+    assert_true(at6.low_bounded && at6.high_bounded && at6.low < 25 && 25 < at6.high);
+    /* the profile interval of the count lies inside the box of the parameters' ends */
+    assert_true(at6.low > fit.par[0].low + fit.par[1].low / 6 - 1e-6);
     stagecal_vle_free(col.system.vle);
 }
 
@@ -169,6 +228,7 @@ int main(void)
         cmocka_unit_test(ident_condition_number_closed_form),
         cmocka_unit_test(censor_exact_readings_give_the_truth),
         cmocka_unit_test(censor_clipped_analyser_gives_at_least),
+        cmocka_unit_test(censor_two_parameters_exact),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }

@@ -64,7 +64,7 @@ static void holdup_lag_compensation_inverts_a_ramp(void **state)
     assert_int_equal(stagecal_runlog_read_buffer(log, csv, len, "lag.csv", NULL, NULL, NULL, NULL),
                      0);
     stagecal_holdup_tau tk = {1, tau, 10, 0, 0, 5, ""};
-    stagecal_holdup_model hm = {STAGECAL_HOLDUP_COMP_LAG, &tk, tk, NULL, 0, 0};
+    stagecal_holdup_model hm = {STAGECAL_HOLDUP_COMP_LAG, &tk, tk, NULL, 0, 0, NULL, 0};
     double xs[40], u2[40];
     assert_int_equal(stagecal_holdup_compensate(log, &hm, NULL, xs, u2, NULL), 0);
     for (int i = 5; i < 40; i++) {
@@ -98,6 +98,24 @@ static void holdup_zero_is_plain(void **state)
     stagecal_vle_free(v);
 }
 
+/* Reads the simulator's rows of one run into a run log (the caller frees it). */
+static stagecal_runlog *sim_log(const sim_dyn_params *p)
+{
+    char *buf = NULL;
+    size_t blen = 0;
+    FILE *f = open_memstream(&buf, &blen);
+    fprintf(f, "run,time[h],W[mol],xD[mol/mol],xB[mol/mol],R[-],V[mol/s]\n");
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    assert_true(sim_dyn_run(p, rng, f, "D1", 0) > 20);
+    fclose(f);
+    gsl_rng_free(rng);
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    assert_int_equal(stagecal_runlog_read_buffer(log, buf, blen, "dyn.csv", NULL, NULL, NULL, NULL),
+                     0);
+    free(buf);
+    return log;
+}
+
 /* The independent dynamic simulator (7 stages incl. the pot, α = 2.4, column holdup 4 % of a
  * 25 kmol charge, V = 1 mol/s, R = 3 after a 1 h total-reflux start-up), noise-free, logged
  * every 5 min. From 2.5 h to 6 h the plain inversion of the logged compositions counts more
@@ -109,17 +127,8 @@ static void holdup_correction_matches_dynamic_column(void **state)
 {
     (void)state;
     sim_dyn_params p = {2.4, 7, 25000, 0.5, 0.04, 0, 1.0, 3600, 3.0, 7 * 3600.0, 300, 0, 0, 0.05};
-    char *buf = NULL;
-    size_t blen = 0;
-    FILE *f = open_memstream(&buf, &blen);
-    fprintf(f, "run,time[h],W[mol],xD[mol/mol],xB[mol/mol],R[-],V[mol/s]\n");
-    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    assert_true(sim_dyn_run(&p, rng, f, "D1", 0) > 60);
-    fclose(f);
-    gsl_rng_free(rng);
-    stagecal_runlog *log = stagecal_runlog_alloc();
-    assert_int_equal(stagecal_runlog_read_buffer(log, buf, blen, "dyn.csv", NULL, NULL, NULL, NULL),
-                     0);
+    stagecal_runlog *log = sim_log(&p);
+    assert_true(log->n > 60);
     stagecal_vle *v = stagecal_vle_alloc_alpha(2.4, NULL);
     size_t checked = 0;
     for (size_t i = 1; i + 1 < log->n; i++) {
@@ -142,7 +151,42 @@ static void holdup_correction_matches_dynamic_column(void **state)
     assert_true(checked >= 40);
     stagecal_vle_free(v);
     stagecal_runlog_free(log);
-    free(buf);
+}
+
+/* A total-reflux start-up is the column's own transient: with a compensation its rows are
+ * left out (NAN) until settle_factor·τ·ln(|b|/(0.1·u)) after the first row, and the settled
+ * rows of a long start-up stay. The simulator (7 stages, 4 % holdup, noise-free) holds total
+ * reflux for 4 h; the start-up fit's τ and b set the cut, which must fall inside the start-up
+ * (τ of minutes, a rise of about 0.3), and every row after it keeps its logged xD. */
+static void holdup_startup_rows_settle(void **state)
+{
+    (void)state;
+    sim_dyn_params p = {2.4,        7,   25000,      0.5, 0.04, 0, 1.0,
+                        4 * 3600.0, 3.0, 5 * 3600.0, 120, 0,    0, 0.05};
+    stagecal_runlog *rl = sim_log(&p);
+    stagecal_holdup_tau tau, su, pooled;
+    assert_int_equal(stagecal_holdup_estimate(rl, 0.002, NULL, &tau, &su, NULL, &pooled, NULL), 0);
+    assert_true(su.ok);
+    stagecal_holdup_params hp = stagecal_holdup_default_params();
+    double cut = hp.settle_factor * su.tau_s * log(fabs(su.rise) / 0.0002);
+    assert_true(cut > 600 && cut < 4 * 3600.0);
+    stagecal_holdup_model hm = {STAGECAL_HOLDUP_COMP_LAG, &tau, pooled, NULL, 0, 0, &su, 0.002};
+    double *xs = malloc(rl->n * sizeof *xs);
+    assert_int_equal(stagecal_holdup_compensate(rl, &hm, NULL, xs, NULL, NULL), 0);
+    size_t nset = 0, nkept = 0;
+    for (size_t i = 0; i < rl->n && isinf(rl->r[i]); i++) {
+        if (rl->t_s[i] - rl->t_s[0] < cut)
+            assert_true(isnan(xs[i])), nset++;
+        else
+            assert_rel(xs[i], rl->xd[i], 0, "settled start-up row"), nkept++;
+    }
+    assert_true(nset > 0 && nkept > 0);
+    /* without the start-up fits nothing is left out */
+    hm.startup = NULL;
+    assert_int_equal(stagecal_holdup_compensate(rl, &hm, NULL, xs, NULL, NULL), 0);
+    assert_rel(xs[0], rl->xd[0], 0, "start-up row without a fit");
+    free(xs);
+    stagecal_runlog_free(rl);
 }
 
 /* The README's quick start: the invented demo logs (tests/tool_demodata.c draws the
@@ -194,6 +238,7 @@ int main(void)
         cmocka_unit_test(holdup_lag_compensation_inverts_a_ramp),
         cmocka_unit_test(holdup_zero_is_plain),
         cmocka_unit_test(holdup_correction_matches_dynamic_column),
+        cmocka_unit_test(holdup_startup_rows_settle),
         cmocka_unit_test(holdup_demo_quick_start),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

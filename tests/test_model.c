@@ -496,8 +496,10 @@ static void model_roundtrip_exact(void **state)
 /* The latent heat and molar masses are optional members of "system" (docs/model-file.md):
  * written only when recorded (not as 0 or null), and a file without them loads with 0 =
  * not recorded. The older file is tests/badinput/model_good.json, written by stagecal
- * before these members existed (same format version 1); its checksum was computed then,
- * so it also shows that the canonical text of a file without them did not change. */
+ * before these members existed (same format version 1). Its provenance paths were made
+ * relative later and the checksum recomputed with the Python check of docs/model-file.md,
+ * not with this code, so loading it also shows that the canonical text of a file without
+ * them did not change. */
 static void model_system_data_optional(void **state)
 {
     (void)state;

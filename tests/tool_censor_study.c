@@ -137,29 +137,30 @@ int main(int argc, char **argv)
                 ev[w].s_cens = scens[w];
             }
             stagecal_censored_fit fit;
-            if (stagecal_fit_censored(&col, 1.0, ev, NWIN, &form, 0.95, 1.0, 200.0, &fit, &err) !=
-                STAGECAL_OK) {
+            if (stagecal_fit_censored(&col, 1.0, ev, NWIN, &form, NULL, 0.95, 1.0, 200.0, &fit,
+                                      &err) != STAGECAL_OK) {
                 failed++;
                 continue;
             }
             if (getenv("CENSOR_STUDY_PROFILE") && reg == PPM && s == 0)
                 for (double th = 20; th < 200; th *= 1.15) {
                     double ll;
-                    stagecal_censored_loglik(&col, 1.0, ev, NWIN, &form, th, &ll, NULL);
+                    stagecal_censored_loglik(&col, 1.0, ev, NWIN, &form, &th, &ll, NULL);
                     fprintf(stderr, "theta %.3f ll %.6g\n", th, ll);
                 }
             if (getenv("CENSOR_STUDY_VERBOSE"))
-                fprintf(stderr, "%d %ld: %.4f [%.4f, %.4f] %d %d\n", reg, s, fit.theta, fit.low,
-                        fit.high, fit.low_bounded, fit.high_bounded);
-            holds += !fit.low_bounded || fit.low <= N_TRUE;
-            if (fit.low_bounded)
-                lows[nlow++] = fit.low;
-            open_hi += !fit.high_bounded;
-            if (fit.low_bounded && fit.high_bounded) {
+                fprintf(stderr, "%d %ld: %.4f [%.4f, %.4f] %d %d\n", reg, s, fit.theta[0],
+                        fit.par[0].low, fit.par[0].high, fit.par[0].low_bounded,
+                        fit.par[0].high_bounded);
+            holds += !fit.par[0].low_bounded || fit.par[0].low <= N_TRUE;
+            if (fit.par[0].low_bounded)
+                lows[nlow++] = fit.par[0].low;
+            open_hi += !fit.par[0].high_bounded;
+            if (fit.par[0].low_bounded && fit.par[0].high_bounded) {
                 both++;
-                covers += fit.low <= N_TRUE && N_TRUE <= fit.high;
-                double se = (fit.high - fit.low) / (2 * 1.959963984540054);
-                z[nz++] = (fit.theta - N_TRUE) / se;
+                covers += fit.par[0].low <= N_TRUE && N_TRUE <= fit.par[0].high;
+                double se = (fit.par[0].high - fit.par[0].low) / (2 * 1.959963984540054);
+                z[nz++] = (fit.theta[0] - N_TRUE) / se;
             }
             if (isatty(2) && s % 50 == 0)
                 fprintf(stderr, "\r%s %ld/%ld", reg_name[reg], s, nsets);

@@ -4,7 +4,7 @@
  * column holdup 2–6 % of the charge), with and without the holdup compensation
  * (include/stagecal/holdup.h).
  *
- *   usage: tool_holdup_coverage STAGECAL_BIN WORKDIR [DATASETS [SEED]]
+ *   usage: tool_holdup_coverage STAGECAL_BIN WORKDIR [DATASETS [SEED [PER_SET.csv]]]
  *
  * Each data set: a constant true stage count N (6, 7 or 8 incl. the pot, drawn), α = 2.4,
  * 12 runs (R in {1.5, 2, 2.5, 3, 4}, V 0.7–1.3 mol/s, charge 22.5–27.5 kmol at xB0
@@ -54,6 +54,11 @@ static int simulate(gsl_rng *rng, const char *path, double *holdup)
     fprintf(f, "run,time[h],W[mol],xD[mol/mol],xB[mol/mol],R[-],V[mol/s]\n");
     int n = 6 + (int)gsl_rng_uniform_int(rng, 3);
     *holdup = 0.02 + 0.04 * gsl_rng_uniform(rng);
+    /* exploring: HOLDUP_STUDY_SCALE scales the holdup, HOLDUP_STUDY_NOISE the analyser noise */
+    const char *hs = getenv("HOLDUP_STUDY_SCALE"), *ns = getenv("HOLDUP_STUDY_NOISE");
+    double noise = ns ? atof(ns) : 1.0;
+    if (hs)
+        *holdup *= atof(hs);
     for (int k = 0; k < NRUNS; k++) {
         sim_dyn_params p = {2.4,
                             n,
@@ -66,8 +71,8 @@ static int simulate(gsl_rng *rng, const char *path, double *holdup)
                             rs[k % 5],
                             8 * 3600.0,
                             120,
-                            0.002,
-                            0.003,
+                            0.002 * noise,
+                            0.003 * noise,
                             0.08};
         char run[16];
         snprintf(run, sizeof run, "S%02d", k + 1);
@@ -84,10 +89,11 @@ static int calibrate(const char *bin, const char *colpath, const char *logpath, 
                      const char *form, const char *name, double *v, double *lo, double *hi)
 {
     char cmd[2048];
+    const char *extra = getenv("HOLDUP_STUDY_ARGS"); /* more calibrate options, for exploring */
     snprintf(cmd, sizeof cmd,
-             "'%s' calibrate --json --dry-run --quiet --holdup %s --form '%s' --column '%s' '%s' "
-             "2>/dev/null",
-             bin, holdup, form, colpath, logpath);
+             "'%s' calibrate --json --dry-run --quiet --holdup %s --form '%s' %s --column '%s' "
+             "'%s' 2>/dev/null",
+             bin, holdup, form, extra ? extra : "", colpath, logpath);
     FILE *p = popen(cmd, "r");
     if (!p)
         return -1;
@@ -134,7 +140,9 @@ static void report(const char *what, const struct tally *t)
 int main(int argc, char **argv)
 {
     if (argc < 3) {
-        fprintf(stderr, "usage: tool_holdup_coverage STAGECAL_BIN WORKDIR [DATASETS [SEED]]\n");
+        fprintf(
+            stderr,
+            "usage: tool_holdup_coverage STAGECAL_BIN WORKDIR [DATASETS [SEED [PER_SET.csv]]]\n");
         return 2;
     }
     gsl_set_error_handler_off();
@@ -148,6 +156,10 @@ int main(int argc, char **argv)
     snprintf(paths[0], sizeof paths[0], "%s/raw.csv", argv[2]);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     gsl_rng_set(rng, seed);
+    /* one line per data set and fit (argv[5]): for the note's figures */
+    FILE *per = argc > 5 ? fopen(argv[5], "w") : NULL;
+    if (per)
+        fprintf(per, "set,n_true,holdup_frac,mode,form,value,ci_low,ci_high\n");
     struct tally ta[3] = {{0}}, tc[3] = {{0}};
     for (int s = 0; s < sets; s++) {
         double hold = 0;
@@ -163,12 +175,18 @@ int main(int argc, char **argv)
             double v, lo, hi;
             if (calibrate(argv[1], colpath, paths[0], modes[k], "constant", "a", &v, &lo, &hi) ==
                 0) {
+                if (per)
+                    fprintf(per, "%d,%d,%.4f,%s,constant,%.6g,%.6g,%.6g\n", s, n, hold, modes[k], v,
+                            lo, hi);
                 ta[k].n++;
                 ta[k].cover += lo <= n && n <= hi;
                 ta[k].sum_err += v - n;
             }
             if (calibrate(argv[1], colpath, paths[0], modes[k], "linear:1+1/R", "1/R", &v, &lo,
                           &hi) == 0) {
+                if (per)
+                    fprintf(per, "%d,%d,%.4f,%s,1+1/R,%.6g,%.6g,%.6g\n", s, n, hold, modes[k], v,
+                            lo, hi);
                 tc[k].n++;
                 tc[k].cover += lo <= 0 && 0 <= hi;
                 tc[k].sum_err += v;
@@ -192,5 +210,5 @@ int main(int argc, char **argv)
         report(what, &tc[k]);
     }
     gsl_rng_free(rng);
-    return 0;
+    return per && fclose(per) != 0 ? 74 : 0;
 }

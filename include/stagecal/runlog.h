@@ -125,8 +125,11 @@ typedef struct {
     uint32_t *run;             /* run index of each row */
     stagecal_runlog_run *runs; /* nruns runs, rows contiguous */
     size_t nruns;
-    char (*files)[160]; /* nfiles source names */
-    char (*sha256)[65]; /* SHA-256 of each file's bytes as read, lowercase hex */
+    char (*files)[160];      /* nfiles source names */
+    char (*sha256)[65];      /* SHA-256 of each file's bytes as read, lowercase hex ("" when the
+                                reading params asked for none) */
+    uint64_t (*checksum)[2]; /* each file's byte count and a 64-bit checksum of its bytes
+                                (not cryptographic): a file given twice is found by it */
     size_t nfiles;
     size_t nfiles_iso; /* files whose time column holds ISO 8601 timestamps (absolute) */
 } stagecal_runlog;
@@ -136,6 +139,8 @@ typedef struct {
     double w_rise_sigmas; /* W rising by more than this many √2·u(W) while R is finite:
                              warning (default 3); u(W) from the column file, 0 → any rise */
     size_t max_findings;  /* findings kept by stagecal_findings_alloc in the CLI (1000) */
+    int sha256;           /* 1: SHA-256 of each file's bytes into log->sha256, for provenance
+                             (default 1); 0 saves its cost where nothing records it */
 } stagecal_runlog_params;
 
 stagecal_runlog_params stagecal_runlog_default_params(void);
@@ -164,6 +169,30 @@ int stagecal_runlog_read_buffer(stagecal_runlog *log, const char *text, size_t l
 int stagecal_runlog_read_stream(stagecal_runlog *log, FILE *in, const char *source,
                                 const stagecal_column *col, const stagecal_runlog_params *params,
                                 stagecal_findings *f, stagecal_error *err);
+
+/* ---- streaming: one run at a time ---------------------------------------------------- *
+ * For logs larger than memory: the files are read in order and each run is handed out as
+ * soon as it is complete (a run's rows are contiguous), so memory holds one run and the
+ * row being read, whatever the number of rows. Every check of stagecal_runlog_read is made
+ * the same way, into the same findings, in the same order. */
+typedef struct stagecal_runlog_stream stagecal_runlog_stream;
+
+/* A stream over the files paths[0..npaths) ("-" = stdin), which must outlive it; col,
+ * params and f as for stagecal_runlog_read (f may be NULL). NULL on allocation failure. */
+stagecal_runlog_stream *stagecal_runlog_stream_alloc(const char *const *paths, size_t npaths,
+                                                     const stagecal_column *col,
+                                                     const stagecal_runlog_params *params,
+                                                     stagecal_findings *f);
+void stagecal_runlog_stream_free(stagecal_runlog_stream *s); /* NULL ok */
+
+/* Replaces the rows of run (a log from stagecal_runlog_alloc, reused from call to call)
+ * by the next complete run: run->nruns = 1, rows 0..run->n − 1, run->files every file
+ * opened so far (runs[0].file indexes them). At the end run->n = 0 and STAGECAL_OK.
+ * A file that cannot be read returns the code stagecal_runlog_read gives (ENOINPUT,
+ * EDATA; also a finding), with run->n = 0; the next call goes on with the next file.
+ * ENOMEM. */
+int stagecal_runlog_stream_next(stagecal_runlog_stream *s, stagecal_runlog *run,
+                                stagecal_error *err);
 
 /* Standard uncertainty of a distillate reading xd: u² = u.xd² + (u.xd_heavy_rel·(1 − xd))²
  * (the relative part is relative to the heavy content, what a purity analyser reads).

@@ -383,3 +383,17 @@ int cli_system_option(cli_system *s, const char *name, const char *arg)
                    : 0;
     return cli_parse_double("kvalue", arg, 0, "a K value > 1", &s->kvalue) ? CLI_EXIT_USAGE : 0;
 }
+
+void cli_print_params(const stagecal_regress_result *f, int long_form)
+{
+    int nw = long_form ? 10 : 12, vw = long_form ? 16 : 14, vp = long_form ? 10 : 6;
+    int sw = long_form ? 14 : 12, sp = long_form ? 6 : 4, ip = long_form ? 8 : 6;
+    printf("  %-*s %*s %*s   %.0f%% confidence interval\n", nw, "parameter", vw, "value", sw,
+           long_form ? "SE" : "std. error", 100 * f->level);
+    for (size_t i = 0; i < f->p; i++)
+        if ((f->undetermined >> i) & 1u)
+            printf("  %-*s %*s\n", nw, f->form.param_names[i], vw, "not determined");
+        else
+            printf("  %-*s %*.*g %*.*g   [%.*g, %.*g]\n", nw, f->form.param_names[i], vw, vp,
+                   f->theta[i], sw, sp, f->se[i], ip, f->ci_low[i], ip, f->ci_high[i]);
+}

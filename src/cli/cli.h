@@ -16,6 +16,7 @@
 #include "stagecal/column.h"
 #include "stagecal/convention.h"
 #include "stagecal/error.h"
+#include "stagecal/regress.h"
 #include "stagecal/runlog.h"
 #include "stagecal/trend.h"
 
@@ -100,6 +101,10 @@ json_t *cli_json_doc_head(const char *format, double reflux, double f_factor, do
 /* The UTC day of t_s (Unix seconds) as YYYY-MM-DD; nan_text when t_s is NaN, "open" when
  * it is infinite (an unbounded band end), "?" when it cannot be formatted. */
 void cli_format_day(double t_s, const char *nan_text, char *buf, size_t cap);
+/* The parameter table of a fit on stdout: a header naming the level, then a row per
+ * parameter (value, standard error, interval; "not determined" where it is). long_form:
+ * 10 significant digits (regress), else 6 (calibrate). */
+void cli_print_params(const stagecal_regress_result *f, int long_form);
 /* The three days of a forecast (crossing, band low, band high) by cli_format_day. */
 void cli_forecast_days(const stagecal_trend_forecast *fc, const char *nan_text, char day[3][32]);
 

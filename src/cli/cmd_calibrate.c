@@ -113,14 +113,7 @@ static json_t *fit_json(const stagecal_regress_result *f, int status, const char
 static void print_fit(const char *title, const stagecal_regress_result *f)
 {
     printf("%s\n", title);
-    printf("  %-12s %14s %12s   %.0f%% confidence interval\n", "parameter", "value", "std. error",
-           100 * f->level);
-    for (size_t i = 0; i < f->p; i++)
-        if ((f->undetermined >> i) & 1u)
-            printf("  %-12s %14s\n", f->form.param_names[i], "not determined");
-        else
-            printf("  %-12s %14.6g %12.4g   [%.6g, %.6g]\n", f->form.param_names[i], f->theta[i],
-                   f->se[i], f->ci_low[i], f->ci_high[i]);
+    cli_print_params(f, 0);
     printf("  residual sigma %.4g stages, %g degrees of freedom, %zu windows\n",
            f->sigma_obs > 0 ? f->sigma_obs : f->sigma, f->dof, f->n);
 }

@@ -18,7 +18,7 @@
 
 static const struct cli_usage usage = {
     "usage: stagecal hetp MODEL.json [MODEL2.json] --reflux R|inf [--f-factor F]\n"
-    "                     [--height H] [--trays N] [--design-hetp H]\n"
+    "                     [--packed-height H] [--trays N] [--design-hetp H]\n"
     "                     [--packing structured --area A | --packing random --size D]\n"
     "                     [--level P] [--json] [--quiet]\n",
     "HETP = packed height / column stages at reflux ratio R (and F-factor F), with a\n"
@@ -126,9 +126,10 @@ static int open_side(struct side *sd, const struct job *j)
     } else {
         sd->height_m = !isnan(j->height) ? j->height : sd->m.has_hetp ? sd->m.height_m : NAN;
         if (isnan(sd->height_m)) {
-            cli_error("%s: no packed height in the model file (give --height H, or --trays N "
-                      "for a trayed column)",
-                      sd->path);
+            cli_error(
+                "%s: no packed height in the model file (give --packed-height H, or --trays N "
+                "for a trayed column)",
+                sd->path);
             return CLI_EXIT_DATA;
         }
         rc = stagecal_hetp_compute(sd->height_m, &sd->s, j->level, &sd->h, &err);
@@ -328,7 +329,7 @@ static int check_options(const struct job *j)
     if (j->packing < 0 && (!isnan(j->area) || !isnan(j->size_mm)))
         return cli_usage_error("options '--area' and '--size' need '--packing KIND'");
     if (j->trays > 0 && (!isnan(j->height) || !isnan(j->design) || j->packing >= 0))
-        return cli_usage_error("option '--trays' excludes '--height', '--design-hetp' and "
+        return cli_usage_error("option '--trays' excludes '--packed-height', '--design-hetp' and "
                                "'--packing' (a trayed column has no HETP)");
     return 0;
 }
@@ -348,8 +349,9 @@ int cmd_hetp(int argc, char **argv, cli_ctx *ctx)
         OPT_REFLUX(&j.reflux, "reference reflux ratio, >= 0 or 'inf'"),
         OPT_FFACTOR(&j.fload, "reference F-factor [Pa^0.5] (needed when the form uses it)"),
         OPT_ALIAS("fload", "f-factor"),
-        OPT_POSITIVE("height", &j.height, "H",
+        OPT_POSITIVE("packed-height", &j.height, "H",
                      "packed height [m]; default: the model file's height", "a packed height in m"),
+        OPT_ALIAS("height", "packed-height"),
         OPT_LONG("trays", &j.trays, "N",
                  "actual trays: report overall tray efficiency instead of HETP", 1, 1000),
         OPT_POSITIVE("design-hetp", &j.design, "H",

@@ -50,7 +50,8 @@ struct exclusion {
 
 struct options {
     const char *column, *form, *events;
-    double reflux, fload, require, level, design, margin, now_s;
+    stagecal_history_params hp; /* level, stated R and F, now, stages required */
+    double design, margin;
     double warmup_s, min_window_s; /* evidence settings [s] (0: the defaults) */
     long min_runs;
     struct exclusion ex[MAX_EXCLUDE];
@@ -134,15 +135,16 @@ static int parse_options(int argc, char **argv, struct options *o, cli_ctx *ctx,
     const char *now = NULL, *excl[MAX_EXCLUDE + 1] = {NULL};
     const struct cli_option opts[] = {
         OPT_COLUMN(&o->column, "the column file (packed height, condenser, equilibrium)"),
-        OPT_REFLUX(&o->reflux, "stated reflux ratio, > 0 or 'inf'"),
-        OPT_FFACTOR(&o->fload, "stated F-factor [Pa^0.5] (needed when the form uses it)"),
+        OPT_REFLUX(&o->hp.r_ref, "stated reflux ratio, > 0 or 'inf'"),
+        OPT_FFACTOR(&o->hp.f_ref, "stated F-factor [Pa^0.5] (needed when the form uses it)"),
         OPT_FORM(&o->form, "correlation form (saturating)"),
         OPT_STRING(0, "events", &o->events, "FILE",
                    "repack/maintenance events (CSV: time,column,kind[,note])"),
-        OPT_DOUBLE("require", &o->require, "N", "stages the product needs, for the crossing date",
-                   1, INFINITY, 0, "stages, the pot included"),
+        OPT_DOUBLE("require", &o->hp.required, "N",
+                   "stages the product needs, for the crossing date", 1, INFINITY, 0,
+                   "stages, the pot included"),
         OPT_STRING(0, "now", &now, "DATE", "date of 'now' (ISO 8601; default: the last window)"),
-        OPT_LEVEL(&o->level),
+        OPT_LEVEL(&o->hp.level),
         OPT_LONG("min-runs", &o->min_runs, "K",
                  "runs a segment needs for its own level and loss (3)", 2, 1000),
         OPT_LIST("exclude-run", excl, MAX_EXCLUDE, "R=WHY",
@@ -160,7 +162,7 @@ static int parse_options(int argc, char **argv, struct options *o, cli_ctx *ctx,
     if ((rc = cli_parse(argc, argv, opts, &usage, first)))
         return rc;
     o->json = ctx->json;
-    if (now && stagecal_units_parse_iso8601(now, &o->now_s) != 0)
+    if (now && stagecal_units_parse_iso8601(now, &o->hp.now_s) != 0)
         return cli_usage_error("option '--now': '%s' is not a date (expected ISO 8601, "
                                "e.g. 2026-03-01T00:00:00Z)",
                                now);
@@ -171,9 +173,9 @@ static int parse_options(int argc, char **argv, struct options *o, cli_ctx *ctx,
             "option '--column FILE' is required (see 'stagecal history --help')");
     if (*first >= argc)
         return cli_usage_error("at least one run log is required (see 'stagecal history --help')");
-    if ((rc = cli_require("reflux", o->reflux)))
+    if ((rc = cli_require("reflux", o->hp.r_ref)))
         return rc;
-    if (!(o->reflux > 0))
+    if (!(o->hp.r_ref > 0))
         return cli_usage_error(
             "option '--reflux': 0 is not a condition with stages (expected R > 0)");
     return 0;
@@ -247,7 +249,7 @@ static int build_chart(struct result *res, const struct options *o)
         return CLI_EXIT_SOFTWARE;
     }
     double href;
-    if (stagecal_form_eval(&f->form, f->beta, o->reflux, o->fload, &href, NULL) != 0)
+    if (stagecal_form_eval(&f->form, f->beta, o->hp.r_ref, o->hp.f_ref, &href, NULL) != 0)
         return 0;
     long last = -1;
     for (size_t i = 0; i < n; i++) {
@@ -327,15 +329,10 @@ static int compute(struct result *res, struct options *o, char **logs, size_t nl
     stagecal_form form;
     if (stagecal_form_parse(o->form, &form, &err) != STAGECAL_OK)
         return cli_usage_error("option '--form': %s", err.text);
-    if (form.uses_load && isnan(o->fload))
+    if (form.uses_load && isnan(o->hp.f_ref))
         return cli_usage_error("form '%s' uses the vapour load: option '--f-factor F' is required",
                                form.name);
-    stagecal_history_params hp = stagecal_history_default_params();
-    hp.level = o->level;
-    hp.r_ref = o->reflux;
-    hp.f_ref = o->fload;
-    hp.now_s = o->now_s;
-    hp.required = o->require;
+    stagecal_history_params hp = o->hp;
     hp.min_runs = (size_t)o->min_runs;
     if (stagecal_history_fit_points(&form, res->pts, res->n, res->ev, res->nev, res->cal.column->id,
                                     &hp, &res->fit, &err) != STAGECAL_OK)
@@ -344,7 +341,8 @@ static int compute(struct result *res, struct options *o, char **logs, size_t nl
     double off = stagecal_convention_outside(res->cal.column->condenser);
     if (f->current > 0) {
         res->has_repack = 1;
-        if (stagecal_history_repack_at(f, f->current, o->reflux, o->fload, off, &res->rp, &err))
+        if (stagecal_history_repack_at(f, f->current, o->hp.r_ref, o->hp.f_ref, off, &res->rp,
+                                       &err))
             return cli_fail_data(&err);
         const stagecal_history_estimate *lr = &res->rp.log_ratio;
         if (isfinite(lr->value) && isfinite(lr->se) && isfinite(lr->dof)) {
@@ -375,11 +373,11 @@ static void print_text(const struct result *res, const struct options *o)
 {
     const stagecal_history_fit *f = &res->fit;
     char a[STAGECAL_HISTORY_REASON + 64], d0[32];
-    int pct = (int)lround(o->level * 100);
+    int pct = (int)lround(o->hp.level * 100);
     printf("history of column %s: %zu windows in %zu runs, form %s, at R = %g", res->cal.column->id,
-           f->n, f->n_runs, f->form.name, o->reflux);
-    if (!isnan(o->fload))
-        printf(", F = %g Pa^0.5", o->fload);
+           f->n, f->n_runs, f->form.name, o->hp.r_ref);
+    if (!isnan(o->hp.f_ref))
+        printf(", F = %g Pa^0.5", o->hp.f_ref);
     printf("; %d %% intervals (run-clustered CR2, Bell-McCaffrey dof)\n", pct);
     for (size_t k = 0; k < o->n_ex; k++)
         printf("excluded run %s (%zu windows): %s\n", o->ex[k].run, o->ex[k].windows,
@@ -405,15 +403,15 @@ static void print_text(const struct result *res, const struct options *o)
         cli_forecast_days(fc, "open", day);
         if (fc->status == STAGECAL_FORECAST_NOT_DECLINING)
             printf("below %.3g stages: not forecast (the current segment is not declining)\n",
-                   o->require);
+                   o->hp.required);
         else
-            printf("below %.3g stages on %s%s, %d %% band %s to %s%s\n", o->require, day[0],
+            printf("below %.3g stages on %s%s, %d %% band %s to %s%s\n", o->hp.required, day[0],
                    fc->past ? " (already past)" : "", pct, day[1], day[2],
                    fc->status == STAGECAL_FORECAST_UNBOUNDED
                        ? " (loss not significant: the band is open)"
                        : "");
-    } else if (!isnan(o->require)) {
-        printf("below %.3g stages: not determined (%s)\n", o->require,
+    } else if (!isnan(o->hp.required)) {
+        printf("below %.3g stages: not determined (%s)\n", o->hp.required,
                f->now.determined ? "the current segment's loss has < 2 dof" : f->now.reason);
     }
     if (res->has_repack) {
@@ -455,9 +453,9 @@ static json_t *result_json(const struct result *res, const struct options *o)
     json_object_set_new(doc, "version", json_integer(1));
     json_object_set_new(doc, "column_id", json_string(res->cal.column->id));
     json_object_set_new(doc, "form", json_string(f->form.name));
-    json_object_set_new(doc, "reflux", cli_json_reflux(o->reflux));
-    json_object_set_new(doc, "f_factor", cli_json_real(o->fload));
-    json_object_set_new(doc, "level", json_real(o->level));
+    json_object_set_new(doc, "reflux", cli_json_reflux(o->hp.r_ref));
+    json_object_set_new(doc, "f_factor", cli_json_real(o->hp.f_ref));
+    json_object_set_new(doc, "level", json_real(o->hp.level));
     json_object_set_new(doc, "windows", json_integer((json_int_t)f->n));
     json_object_set_new(doc, "runs", json_integer((json_int_t)f->n_runs));
     json_object_set_new(doc, "excess_variance", cli_json_real(f->tau2));
@@ -496,7 +494,7 @@ static json_t *result_json(const struct result *res, const struct options *o)
         const stagecal_trend_forecast *fc = &f->crossing;
         json_object_set_new(doc, "crossing",
                             json_pack("{s:o, s:s, s:o, s:o, s:o, s:b}", "required",
-                                      cli_json_real(o->require), "status",
+                                      cli_json_real(o->hp.required), "status",
                                       stagecal_forecast_status_name(fc->status), "date",
                                       day_json(fc->t_cross_s), "band_low", day_json(fc->low_s),
                                       "band_high", day_json(fc->high_s), "past", fc->past));
@@ -538,8 +536,8 @@ int cmd_history(int argc, char **argv, cli_ctx *ctx)
     struct options o;
     memset(&o, 0, sizeof o);
     o.form = "saturating";
-    o.reflux = o.fload = o.require = o.design = o.now_s = NAN;
-    o.level = 0.95;
+    o.hp = stagecal_history_default_params();
+    o.design = NAN;
     o.margin = STAGECAL_HETP_EQUIV_MARGIN;
     o.min_runs = 3;
     int first, rc = parse_options(argc, argv, &o, ctx, &first);

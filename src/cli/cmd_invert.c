@@ -218,6 +218,7 @@ static int invert_rows(int argc, char **argv, int first, const char *out_path, l
         return rc;
     const stagecal_column *col = &sys->col;
     stagecal_runlog_params rp = stagecal_runlog_default_params();
+    rp.sha256 = 0; /* no provenance is recorded here */
     if (minrows > 0)
         rp.min_rows = (size_t)minrows;
     stagecal_error err;

@@ -23,9 +23,9 @@
 static const struct cli_usage usage = {
     "usage: stagecal plot mccabe (--alpha A | --kvalue K | --column FILE) --xd XD\n"
     "                     --reflux R|inf (--stages N | --xb XB) [--murphree E]\n"
-    "                     --output FILE [--width W] [--height H] [--json] [--quiet]\n"
+    "                     --output FILE [--chart-width W] [--chart-height H] [--json] [--quiet]\n"
     "       stagecal plot model MODEL.json [--points POINTS.csv] [--residuals]\n"
-    "                     --output FILE [--width W] [--height H] [--json] [--quiet]\n",
+    "                     --output FILE [--chart-width W] [--chart-height H] [--json] [--quiet]\n",
     "Draws a chart; the format follows the extension of FILE: .png, .svg or .pdf.\n"
     "\n"
     "mccabe: the McCabe-Thiele stage diagram: equilibrium curve, pseudo-equilibrium\n"
@@ -91,9 +91,11 @@ int cmd_plot(int argc, char **argv, cli_ctx *ctx)
                  "residuals of the points against fitted stages (needs --points)"),
         OPT_GROUP("both:"),
         OPT_OUTPUT(&output, "the chart file (.png, .svg or .pdf), required"),
-        OPT_LONG("width", &width, "W",
+        OPT_LONG("chart-width", &width, "W",
                  "chart width in pixels (PNG) or points (SVG, PDF), default 800", 16, 20000),
-        OPT_LONG("height", &height, "H", "chart height, default 560", 16, 20000),
+        OPT_LONG("chart-height", &height, "H", "chart height, default 560", 16, 20000),
+        OPT_ALIAS("width", "chart-width"),
+        OPT_ALIAS("height", "chart-height"),
         OPT_END_COMMON(ctx),
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))

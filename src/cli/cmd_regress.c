@@ -194,14 +194,7 @@ static void print_text(const char *path, const stagecal_regress_result *res,
     printf("points      %zu (%s), %zu parameters, %g degrees of freedom\n", res->n,
            res->weighted ? "weighted by 1/sigma^2" : "unweighted", res->p, res->dof);
     printf("stages      equilibrium stages including the pot\n\n");
-    printf("  %-10s %16s %14s   %2.0f%% confidence interval\n", "parameter", "value", "SE",
-           100 * res->level);
-    for (size_t i = 0; i < res->p; i++)
-        if ((res->undetermined >> i) & 1u)
-            printf("  %-10s %16s\n", res->form.param_names[i], "not determined");
-        else
-            printf("  %-10s %16.10g %14.6g   [%.8g, %.8g]\n", res->form.param_names[i],
-                   res->theta[i], res->se[i], res->ci_low[i], res->ci_high[i]);
+    cli_print_params(res, 1);
     if (res->undetermined) {
         char why[STAGECAL_ERROR_TEXT];
         stagecal_regress_ident_text(res, why, sizeof why);

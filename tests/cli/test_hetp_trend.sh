@@ -11,12 +11,12 @@ expect_exit 2 "a model file is required" -- $H --reflux 4
 expect_exit 2 "option '--reflux' is required" -- $H m.json
 expect_exit 2 "option '--reflux': -1 is negative" -- $H m.json --reflux -1
 expect_exit 2 "option '--level': 1.5 is outside (0, 1)" -- $H m.json --reflux 4 --level 1.5
-expect_exit 2 "option '--height': -2 is not positive" -- $H m.json --reflux 4 --height -2
+expect_exit 2 "option '--packed-height': -2 is not positive" -- $H m.json --reflux 4 --packed-height -2
 expect_exit 2 "option '--packing': 'rings' is unknown" -- $H m.json --reflux 4 --packing rings
 expect_exit 2 "needs '--area A'" -- $H m.json --reflux 4 --packing structured
 expect_exit 2 "needs '--size D'" -- $H m.json --reflux 4 --packing random
 expect_exit 2 "need '--packing KIND'" -- $H m.json --reflux 4 --area 250
-expect_exit 2 "option '--trays' excludes" -- $H m.json --reflux 4 --trays 12 --height 3
+expect_exit 2 "option '--trays' excludes" -- $H m.json --reflux 4 --trays 12 --packed-height 3
 expect_exit 2 "expected one or two model files" -- $H a.json b.json c.json --reflux 4
 expect_exit 2 "option '--design-hetp': 'abc' is not a number" -- $H m.json --reflux 4 --design-hetp abc
 expect_exit 2 "unknown option '--frob'" -- $H m.json --reflux 4 --frob

@@ -44,6 +44,9 @@ concepts = [
     (r'\bone JSON document\b', {'json'}, 'JSON output'),
     (r'\bno warnings\b', {'quiet'}, 'quiet'),
     (r'\bseed\b', {'seed'}, 'the random seed'),
+    (r'^packed height\b', {'packed-height'}, 'the packed height'),
+    (r'^chart height\b', {'chart-height'}, 'the chart height'),
+    (r'^chart width\b', {'chart-width'}, 'the chart width'),
     (r'\bfolder of model files\b', {'fits'}, 'the fits folder'),
     (r'\bfewest rows\b', {'min-rows'}, 'the shortest run'),
     (r'\brobust reweighting\b', {'robust'}, 'robust reweighting'),
@@ -65,13 +68,21 @@ for name in shared:
         bad.append(f'--{name} has {len(set(helps.values()))} help texts: {helps}')
 # 3. old spellings are not offered
 for c, rows in table.items():
-    for old in ('fload', 'out', 'reference-load', 'reference-reflux', 'report'):
+    for old in ('fload', 'out', 'reference-load', 'reference-reflux', 'report', 'height', 'width'):
         if old in rows:
             bad.append(f'{c}: offers the old spelling --{old}')
 # 4. one output file: -o/--output
 for c in ('invert', 'predict', 'plot', 'report'):
     if table.get(c, {}).get('output', (None,))[0] != 'o':
         bad.append(f'{c}: no -o/--output')
+# 5. one meaning per spelling: every option spelled as a quantity above names that
+#    quantity in its help (--height once meant the packed height in hetp and the chart
+#    height in plot)
+for c, rows in table.items():
+    for name, (short, h) in rows.items():
+        for rx, spellings, what in concepts:
+            if name in spellings and not re.search(rx, h):
+                bad.append(f'{c}: --{name} does not set {what} ({h!r})')
 for b in bad:
     print('FAIL:', b)
 print(f'{sum(len(r) for r in table.values())} options of {len(table)} commands checked')
@@ -82,13 +93,21 @@ then echo "ok: one spelling per meaning across $(echo $cmds | wc -w) commands"; 
 # The old spellings still work, with one warning naming the new one.
 M="$ROOT/tests/badinput/model_good.json"
 expect_exit 0 "option '--fload' is deprecated; use '--f-factor'" --many \
-    "$BIN" hetp "$M" --reflux 3 --fload 1.3 --height 2
+    "$BIN" hetp "$M" --reflux 3 --fload 1.3 --packed-height 2
 grep -q "HETP" "$tmp/out" || { echo "FAIL: hetp --fload gave no HETP"; fails=$((fails + 1)); }
 expect_exit 0 "option '--out' is deprecated; use '--output'" --many \
     "$BIN" invert --column "$ROOT/datasets/columns/demo_alpha.json" --out "$tmp/rows.csv" "$ROOT/tests/badinput/good.csv"
 [ -s "$tmp/rows.csv" ] || { echo "FAIL: invert --out wrote nothing"; fails=$((fails + 1)); }
+# --height meant two things (packed height in hetp, chart height in plot): each has its own
+# spelling now, and the old one still works with a warning
+expect_exit 0 "option '--height' is deprecated; use '--packed-height'" --many \
+    "$BIN" hetp "$M" --reflux 3 --height 2
+grep -q "over 2.000 m packed" "$tmp/out" || { echo "FAIL: hetp --height did not set the packed height"; fails=$((fails + 1)); }
+expect_exit 0 "option '--height' is deprecated; use '--chart-height'" --many \
+    "$BIN" plot mccabe --alpha 2.5 --xd 0.95 --reflux 3 --stages 5 -o "$tmp/c.svg" --height 300
+grep -q 'height="300' "$tmp/c.svg" || { echo "FAIL: plot --height did not set the chart height"; fails=$((fails + 1)); }
 # --quiet anywhere on the line silences the warning
-expect_exit 0 "" -- "$BIN" hetp "$M" --fload 1.3 --reflux 3 --height 2 --quiet
+expect_exit 0 "" -- "$BIN" hetp "$M" --fload 1.3 --reflux 3 --packed-height 2 --quiet
 [ ! -s "$tmp/err" ] || { echo "FAIL: --quiet left a warning"; cat "$tmp/err"; fails=$((fails + 1)); }
 # A value outside its domain is refused by the table entry, naming the option
 expect_exit 2 "option '--f-factor': -1 is negative" -- "$BIN" hetp "$M" --reflux 3 --f-factor -1
@@ -97,14 +116,14 @@ expect_exit 2 "option '--murphree': 0 is outside (0, 1]" -- "$BIN" steps --alpha
 
 # The commands whose numbers feed a decision end their text output with the caution
 # (printed once, by main, from the command table's flag); --json carries it as a member.
-expect_exit 0 "" -- "$BIN" hetp "$M" --reflux 3 --height 2
+expect_exit 0 "" -- "$BIN" hetp "$M" --reflux 3 --packed-height 2
 [ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] || { echo "FAIL: hetp text lacks one caution"; fails=$((fails + 1)); }
 expect_exit 0 "" -- "$BIN" predict --model "$M" --column "$ROOT/datasets/columns/demo_benzene_toluene.json" \
     --charge 25 --xb0 0.5 --boilup 3.6 --reflux 3 --cut pot-x=0.15 --samples 0 --quiet
 [ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] || { echo "FAIL: predict text lacks one caution"; fails=$((fails + 1)); }
 expect_exit 0 "" -- "$BIN" invert --alpha 2.5 --xd 0.95 --xb 0.05 --reflux inf
 [ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] || { echo "FAIL: invert text lacks one caution"; fails=$((fails + 1)); }
-expect_exit 0 "" -- "$BIN" hetp "$M" --reflux 3 --height 2 --json
+expect_exit 0 "" -- "$BIN" hetp "$M" --reflux 3 --packed-height 2 --json
 "$PY" -c "import json,sys; d=json.load(open('$tmp/out')); sys.exit(0 if d['caution'].startswith('Caution:') else 1)" ||
     { echo "FAIL: hetp --json: not one JSON document with its caution"; fails=$((fails + 1)); }
 # invert's per-row CSV on stdout is data: no caution after it

@@ -1,0 +1,484 @@
+/*
+ * runlog_stream.c — the files of a run log: the read loop, the checks made at a file's end,
+ * the checksums of its bytes, and the stream that hands out one run at a time (see
+ * stagecal/runlog.h; the cells and rows are runlog.c's).
+ *
+ * A file is fed to libcsv one physical line at a time (getline), so the row callback knows
+ * the line it ends on. Each line also goes through a 64-bit checksum (a file given twice is
+ * refused by it) and, when the caller records provenance, SHA-256 (a fifth of the reading
+ * time at 10^6 rows, so `invert` and `check` skip it). The stream stops reading as soon as
+ * a second run has begun: the first is complete, and it is handed out by moving the row
+ * arrays (not the rows) into the caller's log; the few rows of the next run are copied
+ * back. Memory then holds one run, whatever the length of the log.
+ */
+#include <csv.h>
+#include <errno.h>
+#include <inttypes.h>
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "fileio.h"
+#include "internal.h"
+#include "internal_sha256.h"
+#include "runlog_internal.h"
+
+/* A 64-bit checksum of bytes, eight at a time (the multiply–rotate round of common
+ * non-cryptographic hashes, common practice, no source); equal files give equal sums. */
+static uint64_t checksum_update(uint64_t h, const char *b, size_t n)
+{
+    const uint64_t k1 = 0x9E3779B97F4A7C15u, k2 = 0xC2B2AE3D27D4EB4Fu;
+    size_t i = 0;
+    for (; i + 8 <= n; i += 8) {
+        uint64_t w;
+        memcpy(&w, b + i, 8);
+        h ^= w * k1;
+        h = ((h << 31) | (h >> 33)) * k2;
+    }
+    for (; i < n; i++) {
+        h ^= (uint64_t)(unsigned char)b[i] * k1;
+        h = ((h << 31) | (h >> 33)) * k2;
+    }
+    return h;
+}
+
+/* One file being read. */
+struct file_read {
+    struct reader *rd;
+    FILE *in;
+    int close_in; /* 1: in was opened here */
+    struct csv_parser p;
+    char *buf;
+    size_t cap;
+    sha256_ctx hash;
+    uint64_t sum, nbytes; /* checksum and byte count so far */
+    size_t errors_before; /* f->n_errors when the file began */
+    /* A quoted cell may span lines (a notes column written by a spreadsheet); quote_line is
+     * the line where the quoted cell still open at the end of the last line began, 0 when
+     * none is open. libcsv's public 'quoted' member is set from a cell's opening quote
+     * until the cell is submitted, and a line end outside quotes submits it. */
+    long quote_line;
+    int last_nl, parse_failed, read_failed, read_errno;
+};
+
+static int file_begin(struct file_read *fr, stagecal_runlog *log, FILE *in, const char *source,
+                      const stagecal_column *col, const stagecal_runlog_params *params,
+                      stagecal_findings *f, stagecal_error *err)
+{
+    memset(fr, 0, sizeof *fr);
+    struct reader *rd = calloc(1, sizeof *rd);
+    if (!rd)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    stagecal_error_clear(err);
+    size_t nf = log->nfiles + 1;
+    char(*files)[160] = realloc(log->files, nf * sizeof *files);
+    if (files)
+        log->files = files;
+    char(*hashes)[65] = files ? realloc(log->sha256, nf * sizeof *hashes) : NULL;
+    if (hashes)
+        log->sha256 = hashes;
+    uint64_t(*sums)[2] = hashes ? realloc(log->checksum, nf * sizeof *sums) : NULL;
+    if (!sums || csv_init(&fr->p, CSV_APPEND_NULL) != 0) {
+        free(rd);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    log->checksum = sums;
+    snprintf(files[log->nfiles], sizeof files[0], "%s", source);
+    hashes[log->nfiles][0] = '\0';
+    sums[log->nfiles][0] = sums[log->nfiles][1] = 0;
+    rd->file = log->nfiles++;
+    rd->log = log;
+    rd->col = col;
+    rd->par = params ? *params : stagecal_runlog_default_params();
+    rd->f = f;
+    rd->err = err;
+    rd->source = source;
+    for (int i = 0; i < STAGECAL_RL_NCOL; i++) {
+        rd->field_of[i] = -1;
+        rd->val[i] = rd->raw[i] = NAN;
+    }
+    fr->rd = rd;
+    fr->in = in;
+    fr->errors_before = f ? f->n_errors : 0;
+    fr->last_nl = 1;
+    sha256_init(&fr->hash);
+    return STAGECAL_OK;
+}
+
+/* Reads lines to the end of the file or, with stop, until the log holds a complete run (a
+ * second one has begun). Returns 1 at the end (or a failure), 0 when stopped. */
+static int file_pump(struct file_read *fr, int stop)
+{
+    struct reader *rd = fr->rd;
+    ssize_t len;
+    while (!rd->oom) {
+        if (stop && rd->log->nruns >= 2)
+            return 0;
+        if ((len = getline(&fr->buf, &fr->cap, fr->in)) <= 0)
+            break;
+        rd->line++;
+        if (rd->par.sha256)
+            sha256_update(&fr->hash, fr->buf, (size_t)len);
+        fr->sum = checksum_update(fr->sum, fr->buf, (size_t)len);
+        fr->nbytes += (uint64_t)len;
+        fr->last_nl = fr->buf[len - 1] == '\n';
+        if (csv_parse(&fr->p, fr->buf, (size_t)len, reader_on_field, reader_on_row, rd) !=
+            (size_t)len) {
+            reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, NULL, "%s",
+                           csv_strerror(csv_error(&fr->p)));
+            fr->parse_failed = 1;
+            break;
+        }
+        if (!fr->p.quoted)
+            fr->quote_line = 0;
+        else if (fr->last_nl && fr->quote_line == 0)
+            fr->quote_line = rd->line;
+    }
+    fr->read_failed = ferror(fr->in);
+    fr->read_errno = errno;
+    return 1;
+}
+
+/* The end of the file: the last row, the file-level findings; frees the reader and closes
+ * the file when it was opened here. The status of stagecal_runlog_read. */
+static int file_end(struct file_read *fr, stagecal_runlog *log, stagecal_error *err)
+{
+    struct reader *rd = fr->rd;
+    struct csv_parser *p = &fr->p;
+    int ok = !fr->read_failed && !fr->parse_failed && !rd->oom;
+    /* A last line without a line end: end it, so that 'quoted' again means "still open". */
+    if (ok && !fr->last_nl && csv_parse(p, "\n", 1, reader_on_field, reader_on_row, rd) == 1 &&
+        p->quoted && fr->quote_line == 0)
+        fr->quote_line = rd->line;
+    if (ok && p->quoted) {
+        reader_fatal(rd, fr->quote_line, NULL,
+                     "unterminated quoted field (the '\"' opened on this line is never closed)");
+        csv_fini(p, NULL, NULL, NULL); /* drop the open cell: it holds the rest of the file */
+    } else {
+        csv_fini(p, reader_on_field, reader_on_row, rd);
+    }
+    csv_free(p);
+    free(fr->buf);
+    if (fr->close_in)
+        fclose(fr->in);
+    size_t me = rd->file;
+    if (rd->par.sha256) {
+        unsigned char digest[SHA256_DIGEST];
+        sha256_final(&fr->hash, digest);
+        sha256_to_hex(digest, log->sha256[me]);
+    }
+    log->checksum[me][0] = fr->nbytes;
+    log->checksum[me][1] = fr->sum;
+    int rc = STAGECAL_OK;
+    if (rd->oom) {
+        rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
+    } else if (fr->read_failed) {
+        rc = error_set_at(err, STAGECAL_ENOINPUT, rd->source, 0, 0, "cannot read: %s",
+                          strerror(fr->read_errno));
+    } else if (!rd->header_done) {
+        if (!rd->fatal) /* (an unterminated quote in the header has said why already) */
+            reader_fatal(rd, 0, NULL, "no header row (expected time, W, xD, xB, R columns)");
+        rc = STAGECAL_EDATA;
+    } else if (rd->fatal) {
+        rc = STAGECAL_EDATA;
+    } else {
+        reader_close_run(rd);
+        if (rd->file_rows == 0)
+            reader_finding(rd, STAGECAL_FINDING_ERROR, 0, NULL, "no data rows");
+        else if (rd->complete_rows == 0 && rd->f && rd->f->n_errors == fr->errors_before)
+            /* (when cells were refused, their errors already say why no row is complete) */
+            reader_finding(rd, STAGECAL_FINDING_ERROR, 0, NULL,
+                           "no row has time, W, xD, xB and R all present (expected at least %zu "
+                           "such rows per run)",
+                           rd->par.min_rows);
+        /* The same bytes twice would count the same runs twice as independent evidence. */
+        for (size_t k = 0; k < me; k++) {
+            if (log->checksum[k][0] != fr->nbytes || log->checksum[k][1] != fr->sum)
+                continue;
+            if (log->sha256[k][0] && log->sha256[me][0])
+                reader_finding(rd, STAGECAL_FINDING_ERROR, 0, NULL,
+                               "same content as '%s' (SHA-256 %.12s…): each log may be given "
+                               "once",
+                               log->files[k], log->sha256[k]);
+            else
+                reader_finding(rd, STAGECAL_FINDING_ERROR, 0, NULL,
+                               "same content as '%s' (%" PRIu64
+                               " bytes, same checksum): each log may be given once",
+                               log->files[k], fr->nbytes);
+            break;
+        }
+        reader_disagree_warning(rd);
+        for (int i = 0; i < STAGECAL_RL_NCOL; i++)
+            if (rd->nmissing[i] && rd->field_of[i] >= 0) {
+                const char *h = rd->hdr[rd->field_of[i]];
+                reader_finding(rd, STAGECAL_FINDING_WARNING, 0, h,
+                               "column '%s': %zu missing values (first at line %ld)", h,
+                               rd->nmissing[i], rd->first_missing[i]);
+            }
+    }
+    free(rd->names);
+    free(rd);
+    fr->rd = NULL;
+    return rc;
+}
+
+int stagecal_runlog_read_stream(stagecal_runlog *log, FILE *in, const char *source,
+                                const stagecal_column *col, const stagecal_runlog_params *params,
+                                stagecal_findings *f, stagecal_error *err)
+{
+    struct file_read fr;
+    int rc = file_begin(&fr, log, in, source, col, params, f, err);
+    if (rc != STAGECAL_OK)
+        return rc;
+    file_pump(&fr, 0);
+    return file_end(&fr, log, err);
+}
+
+/* Opens path ("-" = stdin) for reading; a file over the size limit is a finding, as bad
+ * content is. */
+static int open_log(const char *path, FILE **in, stagecal_findings *f, stagecal_error *err)
+{
+    if (strcmp(path, "-") == 0) {
+        *in = stdin;
+        return STAGECAL_OK;
+    }
+    stagecal_error oerr;
+    int rc = open_bounded(path, FILEIO_CAP_RUNLOG, "run log", in, &oerr);
+    if (rc == STAGECAL_EDATA) {
+        struct reader rd0;
+        size_t skip = strlen(path) + 2; /* the message without its "path: " */
+        memset(&rd0, 0, sizeof rd0);
+        rd0.f = f;
+        rd0.err = err;
+        rd0.source = path;
+        reader_fatal(&rd0, 0, NULL, "%s", strlen(oerr.text) > skip ? oerr.text + skip : oerr.text);
+    } else if (rc != STAGECAL_OK && err) {
+        *err = oerr;
+    }
+    return rc;
+}
+
+int stagecal_runlog_read(stagecal_runlog *log, const char *path, const stagecal_column *col,
+                         const stagecal_runlog_params *params, stagecal_findings *f,
+                         stagecal_error *err)
+{
+    FILE *in;
+    int rc = open_log(path, &in, f, err);
+    if (rc != STAGECAL_OK)
+        return rc;
+    rc = stagecal_runlog_read_stream(log, in, path, col, params, f, err);
+    if (in != stdin)
+        fclose(in);
+    return rc;
+}
+
+int stagecal_runlog_read_buffer(stagecal_runlog *log, const char *text, size_t len,
+                                const char *source, const stagecal_column *col,
+                                const stagecal_runlog_params *params, stagecal_findings *f,
+                                stagecal_error *err)
+{
+    if (len == 0) { /* fmemopen rejects a zero size */
+        struct reader rd0;
+        memset(&rd0, 0, sizeof rd0);
+        rd0.f = f;
+        rd0.err = err;
+        rd0.source = source;
+        reader_fatal(&rd0, 0, NULL, "no header row (expected time, W, xD, xB, R columns)");
+        return STAGECAL_EDATA;
+    }
+    FILE *in = fmemopen((void *)(uintptr_t)text, len, "r");
+    if (!in)
+        return error_set(err, STAGECAL_ENOMEM, "cannot open memory stream");
+    int rc = stagecal_runlog_read_stream(log, in, source, col, params, f, err);
+    fclose(in);
+    return rc;
+}
+
+/* ---- the stream -------------------------------------------------------------------- */
+
+struct stagecal_runlog_stream {
+    const char *const *paths;
+    size_t npaths, next; /* files given, index of the next to open */
+    const stagecal_column *col;
+    stagecal_runlog_params par;
+    stagecal_findings *f;
+    stagecal_runlog *log; /* rows read and not yet handed out */
+    struct file_read fr;  /* the file being read */
+    int open;             /* 1: fr is reading a file */
+};
+
+stagecal_runlog_stream *stagecal_runlog_stream_alloc(const char *const *paths, size_t npaths,
+                                                     const stagecal_column *col,
+                                                     const stagecal_runlog_params *params,
+                                                     stagecal_findings *f)
+{
+    stagecal_runlog_stream *s = calloc(1, sizeof *s);
+    if (!s || !(s->log = stagecal_runlog_alloc())) {
+        free(s);
+        return NULL;
+    }
+    s->paths = paths;
+    s->npaths = npaths;
+    s->col = col;
+    s->par = params ? *params : stagecal_runlog_default_params();
+    s->f = f;
+    return s;
+}
+
+void stagecal_runlog_stream_free(stagecal_runlog_stream *s)
+{
+    if (!s)
+        return;
+    if (s->open) {
+        csv_free(&s->fr.p);
+        free(s->fr.buf);
+        if (s->fr.close_in)
+            fclose(s->fr.in);
+        free(s->fr.rd->names);
+        free(s->fr.rd);
+    }
+    stagecal_runlog_free(s->log);
+    free(s);
+}
+
+/* Gives dst the files of src (names, hashes, checksums). -1 on allocation failure. */
+static int copy_files(stagecal_runlog *dst, const stagecal_runlog *src)
+{
+    size_t n = src->nfiles ? src->nfiles : 1;
+    char(*files)[160] = realloc(dst->files, n * sizeof *files);
+    if (files)
+        dst->files = files;
+    char(*hashes)[65] = files ? realloc(dst->sha256, n * sizeof *hashes) : NULL;
+    if (hashes)
+        dst->sha256 = hashes;
+    uint64_t(*sums)[2] = hashes ? realloc(dst->checksum, n * sizeof *sums) : NULL;
+    if (!sums)
+        return -1;
+    dst->checksum = sums;
+    if (src->nfiles) {
+        memcpy(files, src->files, src->nfiles * sizeof *files);
+        memcpy(hashes, src->sha256, src->nfiles * sizeof *hashes);
+        memcpy(sums, src->checksum, src->nfiles * sizeof *sums);
+    }
+    dst->nfiles = src->nfiles;
+    dst->nfiles_iso = src->nfiles_iso;
+    return 0;
+}
+
+/* The row arrays of a log, in one list (the first five are required signals). */
+#define ROW_DOUBLES(l)                                                                             \
+    {                                                                                              \
+        &(l)->t_s, &(l)->w_mol, &(l)->xd, &(l)->xb, &(l)->r, &(l)->v_mol_s, &(l)->p_pa,            \
+            &(l)->t_top_k, &(l)->t_pot_k, &(l)->t_reflux_k                                         \
+    }
+#define N_ROW_DOUBLES 10
+
+static void swap_storage(stagecal_runlog *a, stagecal_runlog *b)
+{
+    double **da[] = ROW_DOUBLES(a), **db[] = ROW_DOUBLES(b);
+    for (size_t i = 0; i < N_ROW_DOUBLES; i++) {
+        double *t = *da[i];
+        *da[i] = *db[i];
+        *db[i] = t;
+    }
+#define SWAP(T, m)                                                                                 \
+    do {                                                                                           \
+        T t_ = a->m;                                                                               \
+        a->m = b->m;                                                                               \
+        b->m = t_;                                                                                 \
+    } while (0)
+    SWAP(unsigned char *, xd_cens);
+    SWAP(unsigned char *, xb_cens);
+    SWAP(uint32_t *, line);
+    SWAP(uint32_t *, run);
+    SWAP(size_t, cap);
+#undef SWAP
+}
+
+/* Moves the stream's first run (complete) into out: out takes the row arrays that hold it,
+ * the stream takes out's old arrays (with the optional signals out has) and a copy of the
+ * rows after the run (the next run's first rows, usually one). */
+static int take_first_run(stagecal_runlog_stream *s, stagecal_runlog *out, stagecal_error *err)
+{
+    stagecal_runlog *log = s->log;
+    size_t n0 = log->runs[0].n, tail = log->n - n0;
+    swap_storage(log, out);
+    double **dl[] = ROW_DOUBLES(log), **dout[] = ROW_DOUBLES(out);
+    for (size_t i = 5; i < N_ROW_DOUBLES; i++)
+        if (!*dout[i] && *dl[i]) {
+            free(*dl[i]);
+            *dl[i] = NULL;
+        }
+    log->n = 0;
+    int fail = 0;
+    for (size_t i = 5; i < N_ROW_DOUBLES && !fail; i++)
+        if (*dout[i])
+            fail = runlog_ensure_optional(log, dl[i]);
+    while (!fail && (log->cap < tail || !log->t_s))
+        fail = runlog_grow_rows(log);
+    stagecal_runlog_run *runs = fail ? NULL : realloc(out->runs, sizeof *runs);
+    if (!runs || copy_files(out, log) != 0)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    out->runs = runs;
+    runs[0] = log->runs[0];
+    out->nruns = 1;
+    out->n = n0;
+    for (size_t i = 0; i < N_ROW_DOUBLES; i++)
+        if (*dout[i])
+            memcpy(*dl[i], *dout[i] + n0, tail * sizeof(double));
+    memcpy(log->xd_cens, out->xd_cens + n0, tail);
+    memcpy(log->xb_cens, out->xb_cens + n0, tail);
+    memcpy(log->line, out->line + n0, tail * sizeof *log->line);
+    for (size_t j = 0; j < tail; j++)
+        log->run[j] = out->run[n0 + j] - 1;
+    log->n = tail;
+    memmove(log->runs, log->runs + 1, (log->nruns - 1) * sizeof *log->runs);
+    log->nruns--;
+    for (size_t k = 0; k < log->nruns; k++)
+        log->runs[k].first -= n0;
+    if (s->open && s->fr.rd->have_run)
+        s->fr.rd->cur_run--;
+    return STAGECAL_OK;
+}
+
+/* No rows in out (the end, or a file that could not be read); the files stay. */
+static int hand_nothing(stagecal_runlog_stream *s, stagecal_runlog *out, int rc)
+{
+    out->n = 0;
+    out->nruns = 0;
+    if (copy_files(out, s->log) != 0 && rc == STAGECAL_OK)
+        rc = STAGECAL_ENOMEM;
+    return rc;
+}
+
+int stagecal_runlog_stream_next(stagecal_runlog_stream *s, stagecal_runlog *run,
+                                stagecal_error *err)
+{
+    for (;;) {
+        if (s->log->nruns >= 2 || (!s->open && s->log->nruns == 1))
+            return take_first_run(s, run, err);
+        if (s->open) {
+            if (file_pump(&s->fr, 1) == 0)
+                continue;
+            s->open = 0;
+            int rc = file_end(&s->fr, s->log, err);
+            if (rc != STAGECAL_OK)
+                return hand_nothing(s, run, rc);
+            continue;
+        }
+        if (s->next >= s->npaths)
+            return hand_nothing(s, run, STAGECAL_OK);
+        const char *path = s->paths[s->next++];
+        FILE *in;
+        int rc = open_log(path, &in, s->f, err);
+        if (rc == STAGECAL_OK &&
+            (rc = file_begin(&s->fr, s->log, in, path, s->col, &s->par, s->f, err)) !=
+                STAGECAL_OK &&
+            in != stdin)
+            fclose(in);
+        if (rc != STAGECAL_OK)
+            return hand_nothing(s, run, rc);
+        s->fr.close_in = in != stdin;
+        s->open = 1;
+    }
+}

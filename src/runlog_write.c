@@ -1,0 +1,219 @@
+/*
+ * runlog_write.c — the per-row CSV of a run log's inversion (stagecal_runlog_write_csv;
+ * columns in stagecal/runlog.h and docs/runlog.md).
+ *
+ * Rows are formatted into one 64 KiB block that is written when full (stdio calls per
+ * cell were a third of run-log mode's time at 10^6 rows, tests/bench_runlog.c). The texts
+ * that repeat — the file and run names, the notes — are escaped once per call, not per row;
+ * numbers with a fixed number of decimals use an integer formatter (printf's
+ * floating-point conversion dominated the cost), the rest printf.
+ */
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "banned.h"
+#include "internal.h"
+#include "runlog_internal.h"
+#include "stagecal/convention.h"
+#include "stagecal/stages.h"
+
+/* Longest row: two names of at most 2·1024 bytes when every character is quoted, a note of
+ * at most 2·128 bytes, the rest numbers (at most 340 bytes for a fixed-point number beyond
+ * 1e9) and fixed texts. */
+#define ROW_MAX 8192
+#define BLOCK (64 * 1024)
+
+typedef struct {
+    char *b;                             /* BLOCK + ROW_MAX bytes */
+    size_t n;                            /* bytes pending */
+    FILE *out;                           /* where full blocks go */
+    int failed;                          /* a write failed */
+    char esc[2][1100];                   /* the file and the run name, escaped */
+    char note[STAGECAL_NOTE_COUNT][260]; /* every note, escaped */
+} row_buf;
+
+/* t escaped as a CSV cell into d (quoted, RFC 4180, when it holds a comma, quote or line
+ * end); d holds 2·strlen(t) + 3 bytes. */
+static void escape(char *d, const char *t)
+{
+    if (!strpbrk(t, ",\"\r\n")) {
+        memcpy(d, t, strlen(t) + 1);
+        return;
+    }
+    *d++ = '"';
+    for (; *t; t++) {
+        if (*t == '"')
+            *d++ = '"';
+        *d++ = *t;
+    }
+    *d++ = '"';
+    *d = '\0';
+}
+
+static void rb_char(row_buf *r, char c)
+{
+    r->b[r->n++] = c;
+}
+
+static void rb_str(row_buf *r, const char *s)
+{
+    size_t k = strlen(s);
+    memcpy(r->b + r->n, s, k);
+    r->n += k;
+}
+
+static void rb_uint(row_buf *r, unsigned long v)
+{
+    char buf[24], *p = buf + sizeof buf;
+    do {
+        *--p = (char)('0' + v % 10);
+        v /= 10;
+    } while (v > 0);
+    memcpy(r->b + r->n, p, (size_t)(buf + sizeof buf - p));
+    r->n += (size_t)(buf + sizeof buf - p);
+}
+
+/* v with %.9g, or nothing when it is not finite. */
+static void rb_num(row_buf *r, double v)
+{
+    if (isfinite(v))
+        r->n += (size_t)snprintf(r->b + r->n, 32, "%.9g", v);
+}
+
+/* v rounded to `decimals` (≤ 9) places, or nothing when it is not finite: a plain
+ * integer formatter; printf for |v| ≥ 1e9. */
+static void rb_fixed(row_buf *r, double v, int decimals)
+{
+    static const long long pow10[] = {1,      10,      100,      1000,      10000,
+                                      100000, 1000000, 10000000, 100000000, 1000000000};
+    if (!isfinite(v))
+        return;
+    if (fabs(v) >= 1e9) {
+        r->n += (size_t)snprintf(r->b + r->n, 340, "%.*f", decimals, v);
+        return;
+    }
+    char buf[40], *p = buf + sizeof buf;
+    long long scaled = llround(fabs(v) * (double)pow10[decimals]);
+    long long ip = scaled / pow10[decimals], fp = scaled % pow10[decimals];
+    for (int k = 0; k < decimals; k++, fp /= 10)
+        *--p = (char)('0' + fp % 10);
+    if (decimals > 0)
+        *--p = '.';
+    do {
+        *--p = (char)('0' + ip % 10);
+        ip /= 10;
+    } while (ip > 0);
+    if (v < 0 && scaled > 0)
+        *--p = '-';
+    memcpy(r->b + r->n, p, (size_t)(buf + sizeof buf - p));
+    r->n += (size_t)(buf + sizeof buf - p);
+}
+
+static void rb_flush(row_buf *r)
+{
+    if (r->n && !r->failed && fwrite(r->b, 1, r->n, r->out) != r->n)
+        r->failed = 1;
+    r->n = 0;
+}
+
+/* Row i of log and res. */
+static void format_row(row_buf *r, const stagecal_runlog *log, stagecal_condenser cond,
+                       const stagecal_runlog_result *res, size_t window_base, size_t i)
+{
+    int ok = res->status[i] == STAGECAL_STAGES_OK;
+    rb_str(r, r->esc[0]);
+    rb_char(r, ',');
+    rb_uint(r, (unsigned)log->line[i]);
+    rb_char(r, ',');
+    rb_str(r, r->esc[1]);
+    rb_char(r, ',');
+    rb_fixed(r, log->t_s[i], 3);
+    rb_char(r, ',');
+    if (ok) {
+        rb_fixed(r, res->stages[i], 6);
+        rb_char(r, ',');
+        /* empty when below the pot (and partial condenser): no column count */
+        rb_fixed(r, stagecal_convention_column_stages(res->stages[i], cond), 6);
+        rb_char(r, ',');
+        rb_num(r, res->u_stages[i]);
+    } else {
+        rb_str(r, ",,");
+    }
+    rb_char(r, ',');
+    rb_str(r, stagecal_runlog_status_name(res->status[i]));
+    rb_char(r, ',');
+    if (res->note[i] < STAGECAL_NOTE_COUNT)
+        rb_str(r, r->note[res->note[i]]);
+    rb_char(r, ',');
+    rb_fixed(r, res->lv[i], 9);
+    rb_char(r, ',');
+    rb_fixed(r, res->f_factor[i], 6);
+    unsigned fl = res->flags[i];
+    rb_char(r, ',');
+    rb_char(r, (fl & STAGECAL_SAMPLE_STEADY) ? '1' : '0');
+    rb_char(r, ',');
+    rb_char(r, (fl & STAGECAL_SAMPLE_TOTAL_REFLUX) ? '1' : '0');
+    rb_char(r, ',');
+    rb_char(r, (fl & STAGECAL_SAMPLE_OUTLIER) ? '1' : '0');
+    rb_char(r, ',');
+    if (res->window[i] >= 0)
+        rb_uint(r, (unsigned long)res->window[i] + window_base);
+    rb_char(r, ',');
+    rb_fixed(r, res->xb_rec[i], 9);
+    /* the one-sided bound of a censored row, in the column of the end it gives */
+    rb_char(r, ',');
+    if (res->note[i] == STAGECAL_NOTE_AT_LEAST)
+        rb_fixed(r, res->stages[i], 6);
+    rb_char(r, ',');
+    if (res->note[i] == STAGECAL_NOTE_AT_MOST)
+        rb_fixed(r, res->stages[i], 6);
+    rb_char(r, '\n');
+}
+
+int runlog_write_rows(const stagecal_runlog *log, const stagecal_column *col,
+                      const stagecal_runlog_result *res, size_t window_base, int header, FILE *out,
+                      stagecal_error *err)
+{
+    stagecal_condenser cond = col ? col->condenser : STAGECAL_CONDENSER_TOTAL;
+    row_buf *r = malloc(sizeof *r);
+    char *b = malloc(BLOCK + ROW_MAX);
+    if (!r || !b) {
+        free(r), free(b);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    r->b = b;
+    r->n = 0;
+    r->out = out;
+    r->failed = 0;
+    for (int k = 0; k < STAGECAL_NOTE_COUNT; k++)
+        escape(r->note[k], stagecal_runlog_note_text(k));
+    if (header)
+        rb_str(r, "source,line,run,time[s],stages,column_stages,u_stages,status,note,L/V,"
+                  "F[Pa^0.5],steady,total_reflux,outlier,window,xB_rec[mol/mol],stages_low,"
+                  "stages_high\n");
+    for (size_t k = 0; k < log->nruns && !r->failed; k++) {
+        const stagecal_runlog_run *run = &log->runs[k];
+        escape(r->esc[0], log->files[run->file]);
+        escape(r->esc[1], run->name);
+        for (size_t i = run->first; i < run->first + run->n; i++) {
+            format_row(r, log, cond, res, window_base, i);
+            if (r->n >= BLOCK)
+                rb_flush(r);
+        }
+    }
+    rb_flush(r);
+    int failed = r->failed || ferror(out);
+    free(b);
+    free(r);
+    if (failed)
+        return error_set(err, STAGECAL_EWRITE, "cannot write the results");
+    return STAGECAL_OK;
+}
+
+int stagecal_runlog_write_csv(const stagecal_runlog *log, const stagecal_column *col,
+                              const stagecal_runlog_result *res, FILE *out, stagecal_error *err)
+{
+    return runlog_write_rows(log, col, res, 0, 1, out, err);
+}

@@ -1,0 +1,217 @@
+/*
+ * test_runlog_stream.c — the run-log reader's number parsing and the stream that hands
+ * out one run at a time (src/runlog_reading.c, src/runlog_stream.c).
+ *
+ * Oracles: glibc's strtod for the numbers (correctly rounded, as C11 7.22.1.3 recommends
+ * and glibc documents); for the stream, the whole-file reader stagecal_runlog_read (the
+ * same rows, values, lines, runs and findings, in the same order, on the demo logs and on
+ * every bad input of tests/badinput/).
+ */
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+
+#include <cmocka.h>
+#include <dirent.h>
+#include <errno.h>
+#include <gsl/gsl_rng.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "runlog_internal.h"
+#include "stagecal/column.h"
+#include "stagecal/runlog.h"
+
+/* What the reader did before its fast path: strtod, decimal only, finite, no ERANGE. */
+static int reference_parse(const char *s, double *v)
+{
+    char *end;
+    if (strpbrk(s, "xX"))
+        return -1;
+    errno = 0;
+    double x = strtod(s, &end);
+    if (end == s || *end != '\0' || errno == ERANGE || !isfinite(x))
+        return -1;
+    *v = x;
+    return 0;
+}
+
+/* Random decimals as loggers write them (fixed and %g forms, 1–17 digits, signs,
+ * exponents) and random strings of number characters: the parser returns exactly the
+ * double strtod returns, bit for bit, and refuses what strtod refuses. Tolerance: none
+ * (the fast path is exact by construction, Clinger 1990). */
+static void runlog_numbers_match_strtod(void **state)
+{
+    (void)state;
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 17);
+    const char al[] = "0123456789.eE+-";
+    char b[64];
+    size_t differ = 0, accepted = 0;
+    for (int it = 0; it < 400000; it++) {
+        int mode = it % 3;
+        if (mode == 0) {
+            double x =
+                (gsl_rng_uniform(rng) - 0.2) * pow(10, (int)gsl_rng_uniform_int(rng, 12) - 6);
+            snprintf(b, sizeof b, "%.*f", (int)gsl_rng_uniform_int(rng, 12), x);
+        } else if (mode == 1) {
+            double x = gsl_rng_uniform(rng) * pow(10, (int)gsl_rng_uniform_int(rng, 50) - 25);
+            snprintf(b, sizeof b, "%.*g", 1 + (int)gsl_rng_uniform_int(rng, 18), x);
+        } else {
+            size_t len = 1 + gsl_rng_uniform_int(rng, 12);
+            for (size_t i = 0; i < len; i++)
+                b[i] = al[gsl_rng_uniform_int(rng, sizeof al - 1)];
+            b[len] = '\0';
+        }
+        double got = NAN, want = NAN;
+        int rg = runlog_parse_number(b, 0, &got), rw = reference_parse(b, &want);
+        if (rg != rw || (rg == 0 && memcmp(&got, &want, sizeof got) != 0))
+            differ++;
+        accepted += rg == 0;
+    }
+    static const char *const edge[] = {"0",      "-0",
+                                       "+1",     ".5",
+                                       "5.",     ".",
+                                       "",       "1e22",
+                                       "1e23",   "9007199254740993",
+                                       "1e-400", "123456789012345678901",
+                                       "0.1e+1", "1e",
+                                       " 1",     "1 ",
+                                       "0x10",   "1.7976931348623157e308",
+                                       "2e308"};
+    for (size_t i = 0; i < sizeof edge / sizeof edge[0]; i++) {
+        double got = NAN, want = NAN;
+        int rg = runlog_parse_number(edge[i], 0, &got), rw = reference_parse(edge[i], &want);
+        if (rg != rw || (rg == 0 && memcmp(&got, &want, sizeof got) != 0)) {
+            print_error("'%s': %d %.17g, strtod %d %.17g\n", edge[i], rg, got, rw, want);
+            differ++;
+        }
+    }
+    gsl_rng_free(rng);
+    assert_int_equal(differ, 0);
+    assert_true(accepted > 250000); /* the realistic forms were accepted, not all refused */
+}
+
+/* Reads paths whole, and streamed run by run; everything the caller sees agrees. */
+static void compare_whole_and_stream(const char *const *paths, size_t n, const stagecal_column *col)
+{
+    stagecal_runlog_params rp = stagecal_runlog_default_params();
+    rp.sha256 = 0;
+    stagecal_runlog *whole = stagecal_runlog_alloc(), *run = stagecal_runlog_alloc();
+    stagecal_findings *fw = stagecal_findings_alloc(1000), *fs = stagecal_findings_alloc(1000);
+    int rcw[64];
+    for (size_t i = 0; i < n; i++)
+        rcw[i] = stagecal_runlog_read(whole, paths[i], col, &rp, fw, NULL);
+    stagecal_runlog_stream *s = stagecal_runlog_stream_alloc(paths, n, col, &rp, fs);
+    assert_non_null(s);
+    size_t k = 0, row = 0, nerr = 0;
+    for (;;) {
+        int rc = stagecal_runlog_stream_next(s, run, NULL);
+        if (rc != STAGECAL_OK) {
+            nerr++;
+            continue;
+        }
+        if (run->n == 0)
+            break;
+        assert_int_equal(run->nruns, 1);
+        assert_true(k < whole->nruns);
+        const stagecal_runlog_run *a = &whole->runs[k], *b = &run->runs[0];
+        assert_string_equal(a->name, b->name);
+        assert_int_equal(a->n, b->n);
+        assert_int_equal(a->first_line, b->first_line);
+        assert_string_equal(whole->files[a->file], run->files[b->file]);
+        assert_int_equal(a->first, row);
+        for (size_t i = 0; i < run->n; i++) {
+            size_t w = row + i;
+            double aw[] = {whole->t_s[w], whole->w_mol[w], whole->xd[w], whole->xb[w], whole->r[w]};
+            double bw[] = {run->t_s[i], run->w_mol[i], run->xd[i], run->xb[i], run->r[i]};
+            assert_memory_equal(aw, bw, sizeof aw);
+            assert_int_equal(whole->line[w], run->line[i]);
+            assert_int_equal(run->run[i], 0);
+            assert_int_equal(whole->xd_cens[w], run->xd_cens[i]);
+            assert_int_equal(whole->xb_cens[w], run->xb_cens[i]);
+            assert_int_equal(!whole->v_mol_s, !run->v_mol_s);
+            if (run->v_mol_s)
+                assert_memory_equal(&whole->v_mol_s[w], &run->v_mol_s[i], sizeof(double));
+        }
+        row += run->n;
+        k++;
+    }
+    assert_int_equal(k, whole->nruns);
+    assert_int_equal(row, whole->n);
+    size_t werr = 0;
+    for (size_t i = 0; i < n; i++)
+        werr += rcw[i] != STAGECAL_OK;
+    assert_int_equal(nerr, werr);
+    assert_int_equal(fw->n, fs->n);
+    assert_int_equal(fw->n_errors, fs->n_errors);
+    assert_int_equal(fw->n_warnings, fs->n_warnings);
+    for (size_t i = 0; i < fw->n; i++)
+        assert_string_equal(fw->items[i].text, fs->items[i].text);
+    stagecal_runlog_stream_free(s);
+    stagecal_runlog_free(whole);
+    stagecal_runlog_free(run);
+    stagecal_findings_free(fw);
+    stagecal_findings_free(fs);
+}
+
+/* The fourteen demo logs (84 runs) in one stream: the same runs and rows as read whole. */
+static void runlog_stream_demo_logs_as_whole(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    memset(&col, 0, sizeof col);
+    assert_int_equal(
+        stagecal_column_load(STAGECAL_DATASETS "/columns/demo_benzene_toluene.json", &col, NULL),
+        0);
+    static char paths[14][512];
+    const char *p[14];
+    for (int i = 0; i < 14; i++) {
+        snprintf(paths[i], sizeof paths[i], STAGECAL_DATASETS "/demo/logs/%d-%02d.csv",
+                 i < 12 ? 2025 : 2026, i < 12 ? i + 1 : i - 11);
+        p[i] = paths[i];
+    }
+    compare_whole_and_stream(p, 14, &col);
+    /* a file given twice: found by the checksum without SHA-256 */
+    const char *twice[] = {p[0], p[0]};
+    compare_whole_and_stream(twice, 2, &col);
+    stagecal_column_free(&col);
+}
+
+/* Every bad input of tests/badinput/ (and a missing file) in one stream: the same findings,
+ * in the same order, and the same rows as the whole-file reader. */
+static void runlog_stream_bad_inputs_as_whole(void **state)
+{
+    (void)state;
+    DIR *d = opendir(STAGECAL_TESTS_DIR "/badinput");
+    assert_non_null(d);
+    static char paths[64][512];
+    const char *p[64];
+    size_t n = 0;
+    struct dirent *e;
+    while ((e = readdir(d)) && n < 63) {
+        size_t len = strlen(e->d_name);
+        if (len < 4 || strcmp(e->d_name + len - 4, ".csv") != 0)
+            continue;
+        snprintf(paths[n], sizeof paths[n], STAGECAL_TESTS_DIR "/badinput/%s", e->d_name);
+        p[n] = paths[n];
+        n++;
+    }
+    closedir(d);
+    assert_true(n > 30);
+    p[n++] = STAGECAL_TESTS_DIR "/badinput/no_such_file.csv";
+    compare_whole_and_stream(p, n, NULL);
+}
+
+int main(void)
+{
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(runlog_numbers_match_strtod),
+        cmocka_unit_test(runlog_stream_demo_logs_as_whole),
+        cmocka_unit_test(runlog_stream_bad_inputs_as_whole),
+    };
+    return cmocka_run_group_tests(tests, NULL, NULL);
+}
