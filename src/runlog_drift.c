@@ -380,15 +380,20 @@ static int compensated_xd(const stagecal_runlog *log, const stagecal_column *col
 {
     for (size_t i = 0; i < log->n; i++)
         xd_ss[i] = NAN;
-    stagecal_holdup_tau *tau = calloc(log->nruns ? log->nruns : 1, sizeof *tau);
-    stagecal_holdup_tau pooled;
+    size_t nr = log->nruns ? log->nruns : 1;
+    stagecal_holdup_tau *tau = calloc(2 * nr, sizeof *tau), pooled;
     if (!tau)
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    int rc = stagecal_holdup_estimate(log, col->u.xd, NULL, tau, NULL, NULL, &pooled, err);
+    int rc = stagecal_holdup_estimate(log, col->u.xd, NULL, tau, tau + nr, NULL, &pooled, err);
     if (rc == STAGECAL_OK) {
-        stagecal_holdup_model hm = {
-            STAGECAL_HOLDUP_COMP_NONE, tau, pooled, col->system.vle, col->holdup_column_mol,
-            col->holdup_drum_mol};
+        stagecal_holdup_model hm = {.kind = STAGECAL_HOLDUP_COMP_NONE,
+                                    .tau = tau,
+                                    .pooled = pooled,
+                                    .vle = col->system.vle,
+                                    .holdup_mol = col->holdup_column_mol,
+                                    .drum_mol = col->holdup_drum_mol,
+                                    .startup = tau + nr,
+                                    .u_xd = col->u.xd};
         if (col->holdup_column_mol > 0 || col->holdup_drum_mol > 0)
             hm.kind = STAGECAL_HOLDUP_COMP_STAGES;
         else if (pooled.ok)
