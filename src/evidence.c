@@ -484,6 +484,7 @@ int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_
      * window statistics were built from the smoother, else the plain means' */
     double a = res.dstages_dxd * (ev->se_sxd > 0 ? ev->se_sxd : ev->u_xd);
     double b = res.dstages_dxb * (ev->se_sxb > 0 ? ev->se_sxb : ev->u_xb);
+    double c = isfinite(ev->r) ? res.dstages_dr * ev->u_r : 0.0; /* u(R) of the set point */
     double value = res.stages;
     if (ev->m >= 3 && ev->s_t && ev->s_xd && ev->s_xb) {
         /* follow the drift: invert the smoothed trends at every sample time */
@@ -505,7 +506,7 @@ int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_
         value = sum / (double)m;
     }
     ev->stages = value;
-    ev->se_stages = sqrt(a * a + b * b);
+    ev->se_stages = sqrt(a * a + b * b + c * c);
     ev->stages_ok = ev->se_stages > 0 && isfinite(ev->se_stages);
     return STAGECAL_OK;
 }
@@ -630,7 +631,8 @@ static int window_summary(const stagecal_runlog *log, const double *xd_src,
     e->n_cens_xd = ncd;
     e->n_cens_xb = ncb;
     e->total_reflux = w->total_reflux;
-    e->r = w->total_reflux ? INFINITY : w->r_median;
+    e->r = w->total_reflux ? INFINITY : w->r_mean; /* the set point (runlog_setpoint.c) */
+    e->u_r = w->total_reflux ? 0.0 : w->u_r;
     e->t_mid_s = 0.5 * (log->t_s[w->first] + log->t_s[w->last]);
     if (nf * 2 >= len && nf > 0) {
         e->has_load = 1;

@@ -20,6 +20,7 @@
 
 #include "internal.h"
 #include "stagecal/stages.h"
+#include "runlog_internal.h"
 
 stagecal_holdup_params stagecal_holdup_default_params(void)
 {
@@ -266,7 +267,7 @@ int stagecal_holdup_estimate(const stagecal_runlog *log, double u_xd,
         rc = stagecal_holdup_fit_startup(t, x, m, u_xd, &par, &su, err);
         /* the first production stretch at one R after the start-up */
         size_t c = b;
-        while (c < end && log->r[c] == log->r[b])
+        while (c < end && runlog_rset(log, c) == runlog_rset(log, b))
             c++;
         size_t mt = b > a && b < end && isfinite(log->r[b])
                         ? gather(log, b > a ? b - 1 : b, c, par.transient_max_s, t, x)
@@ -389,8 +390,8 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
             continue;
         size_t first = log->runs[k].first, end = first + log->runs[k].n;
         for (size_t s = first; s < end;) {
-            size_t e = s + 1; /* stretch [s, e) at one logged R */
-            while (e < end && log->r[e] == log->r[s])
+            size_t e = s + 1; /* stretch [s, e) at one reflux set point (runlog_setpoint.c) */
+            while (e < end && runlog_rset(log, e) == runlog_rset(log, s))
                 e++;
             if (s == first && !isfinite(log->r[s]))
                 startup_settling(log, s, e, hm->startup ? &hm->startup[k] : NULL, hm->u_xd,
@@ -408,15 +409,15 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
                 double v = log->v_mol_s ? log->v_mol_s[i] : NAN, x;
                 stagecal_holdup_state st = {hm->holdup_mol, hm->drum_mol, v, d};
                 /* the free response of the profile left by the previous stretch still decays */
-                double settle =
-                    par.settle_factor * (hm->holdup_mol + hm->drum_mol) * (log->r[i] + 1) / v;
+                double settle = par.settle_factor * (hm->holdup_mol + hm->drum_mol) *
+                                (runlog_rset(log, i) + 1) / v;
                 if (s > first && log->t_s[i] - log->t_s[s - 1] < settle) {
                     xd_ss[i] = NAN;
                     continue;
                 }
                 if (isfinite(v) && v > 0 &&
-                    stagecal_holdup_steady_xd(hm->vle, log->xd[i], log->xb[i], log->r[i], &st, &x,
-                                              NULL) == STAGECAL_OK)
+                    stagecal_holdup_steady_xd(hm->vle, log->xd[i], log->xb[i], runlog_rset(log, i),
+                                              &st, &x, NULL) == STAGECAL_OK)
                     xd_ss[i] = x;
             }
             s = e;

@@ -7,7 +7,8 @@
  * the predicted pot composition x̂B_ij(θ), so a drifting pot is followed sample by sample.
  * The residual is compared in log-odds space after averaging over the window's samples,
  *     r_i(θ) = [logit mean_j x̂B_ij(θ) − logit mean_j xB_ij] / s_i,
- *     s_i² = (u(xB_i)/(xB_i(1 − xB_i)))² + (∂logit x̂B_i/∂xD · u(xD_i))²,
+ *     s_i² = (u(xB_i)/(xB_i(1 − xB_i)))² + (∂logit x̂B_i/∂xD · u(xD_i))²
+ *            + (∂logit x̂B_i/∂R · u(R_i))²   (R_i the window's set point, evidence.h),
  * the effective-variance treatment of an error-carrying regressor (Orear 1982,
  * Am. J. Phys. 50, 912 — citation from memory), with s_i fixed at the starting θ.
  * θ minimises Σ r_i² (the driver's trust region with the caller's tolerances, central
@@ -49,24 +50,25 @@ struct comp_ctx {
     size_t failures; /* forward steps that did not give an ok pot composition */
 };
 
-/* Predicted logit xB for window i at θ and distillate xd. */
-static double predict_logit(struct comp_ctx *c, size_t i, const double *theta, double xd)
+/* Predicted logit xB for window e at reflux r (its conditions cond, or NULL), θ and
+ * distillate xd. */
+static double predict_at(struct comp_ctx *c, const stagecal_evidence *e,
+                         const stagecal_physics_cond *cond, double r, const double *theta,
+                         double xd)
 {
-    const stagecal_evidence *e = &c->ev[i];
     double nst = 1, xb = xd;
     int status = STAGECAL_STAGES_INVALID;
     size_t len = 0;
-    if (stagecal_form_eval(c->form, theta, e->r, e->f_load, &nst, NULL) != STAGECAL_OK ||
+    if (stagecal_form_eval(c->form, theta, r, e->f_load, &nst, NULL) != STAGECAL_OK ||
         !isfinite(nst))
         nst = 1;
     if (nst < 1)
         nst = 1;
     if (nst > COMP_MAX_STAGES)
         nst = COMP_MAX_STAGES;
-    int rc = e->cond
-                 ? stagecal_physics_step(e->cond, xd, nst, c->murphree, &c->sp, &xb, &status, NULL)
-                 : stagecal_stages_step(c->vle, xd, e->r, nst, c->murphree, &c->sp, &xb, NULL, 0,
-                                        &len, &status, NULL);
+    int rc = cond ? stagecal_physics_step(cond, xd, nst, c->murphree, &c->sp, &xb, &status, NULL)
+                  : stagecal_stages_step(c->vle, xd, r, nst, c->murphree, &c->sp, &xb, NULL, 0,
+                                         &len, &status, NULL);
     if (rc != STAGECAL_OK || status != STAGECAL_STAGES_OK) {
         /* No pot composition (an azeotrope in the way): predict "no separation"
          * so that such θ is penalised rather than undefined. */
@@ -74,6 +76,32 @@ static double predict_logit(struct comp_ctx *c, size_t i, const double *theta, d
         xb = xd;
     }
     return logit(xb);
+}
+
+/* Predicted logit xB for window i at θ and distillate xd. */
+static double predict_logit(struct comp_ctx *c, size_t i, const double *theta, double xd)
+{
+    return predict_at(c, &c->ev[i], c->ev[i].cond, c->ev[i].r, theta, xd);
+}
+
+/* ∂ logit x̂B/∂R of window i at θ (central difference; the internal reflux of subcooled
+ * reflux scales with R: R_int = R·(1 + cp·ΔT/λ)). */
+static double dlogit_dr(struct comp_ctx *c, size_t i, const double *theta)
+{
+    const stagecal_evidence *e = &c->ev[i];
+    double h = 1e-4 * e->r, lg[2];
+    for (int k = 0; k < 2; k++) {
+        double r = e->r + (k ? h : -h);
+        stagecal_physics_cond q, *pq = NULL;
+        if (e->cond) {
+            q = *e->cond;
+            q.reflux = r;
+            q.r_int = e->cond->r_int * r / e->r;
+            pq = &q;
+        }
+        lg[k] = predict_at(c, e, pq, r, theta, e->xd);
+    }
+    return (lg[1] - lg[0]) / (2 * h);
 }
 
 /* Window i's residual: the log-odds of the mean predicted pot composition (each sample
@@ -133,7 +161,9 @@ static void comp_scales(struct comp_ctx *c, const double *theta0)
         double g =
             (predict_logit(c, i, theta0, xhi) - predict_logit(c, i, theta0, xlo)) / (xhi - xlo);
         double ld = g * e->u_xd;
-        c->scale[i] = sqrt(lx * lx + ld * ld);
+        /* a measured reflux's uncertainty (errors in R as well as in the compositions) */
+        double lr = e->u_r > 0 && isfinite(e->r) ? dlogit_dr(c, i, theta0) * e->u_r : 0.0;
+        c->scale[i] = sqrt(lx * lx + ld * ld + lr * lr);
         if (!(c->scale[i] > 0))
             c->scale[i] = 1e-6; /* no stated uncertainty: equal weights, scaled by s² */
     }

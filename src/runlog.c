@@ -471,6 +471,7 @@ void reader_close_run(struct reader *rd)
         reader_finding(rd, STAGECAL_FINDING_ERROR, r->first_line, NULL,
                        "run '%s' has %zu rows (expected at least %zu)", r->name, r->n,
                        rd->par.min_rows);
+    rd->oom |= runlog_setpoints_run(rd->log, rd->cur_run, rd->col) != 0; /* runlog_setpoint.c */
 }
 
 static void end_row(struct reader *rd)

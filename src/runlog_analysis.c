@@ -20,7 +20,8 @@
  * and the statistic would call a whole run transient. It is therefore applied to (a) the per-sample
  * effective stages, which are stationary while the column is quasi-steady and move during start-up
  * and after reflux changes, and (b) the balance residual e_k (xB with the batch trend removed).
- * Reflux is a set point: a change of R starts a transient outright. Hysteresis: steady after every
+ * A change of the reflux set point (log->r_set, runlog_setpoint.c: a measured R that scatters
+ * within its noise keeps its set point) starts a transient outright. Hysteresis: steady after every
  * signal's R < r_enter, transient again when any R > r_leave.
  */
 #include "stagecal/runlog.h"
@@ -317,9 +318,9 @@ void runlog_mark_no_distillate(const stagecal_runlog *log,
         runlog_run_samples(log, par, k, t, &warmup, &min_window);
         while (i < end) {
             size_t j = i + 1;
-            while (j < end && log->r[j] == log->r[i])
+            while (j < end && runlog_rset(log, j) == runlog_rset(log, i))
                 j++;
-            if (isfinite(log->r[i]) && j - i >= min_window) {
+            if (isfinite(runlog_rset(log, i)) && j - i >= min_window) {
                 size_t nn = 0;
                 for (size_t a = i; a < j; a++)
                     if (isfinite(log->w_mol[a]) && isfinite(log->t_s[a])) {
@@ -426,8 +427,8 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
         for (size_t i = 0; i < m; i++) {
             size_t row = f + i;
             double rmax = i == 0 ? HUGE_VAL : fmax(ra[i - 1], rb[i - 1]);
-            int reflux_change = i > 0 && !(log->r[row] == log->r[row - 1]) &&
-                                !(isnan(log->r[row]) && isnan(log->r[row - 1]));
+            double rs = runlog_rset(log, row), rp = i > 0 ? runlog_rset(log, row - 1) : rs;
+            int reflux_change = i > 0 && !(rs == rp) && !(isnan(rs) && isnan(rp));
             if (i < warmup) {
                 res->flags[row] |= STAGECAL_SAMPLE_WARMUP;
                 steady = 0;
@@ -456,7 +457,7 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
             }
             size_t j = i + 1;
             while (j < m && (res->flags[f + j] & STAGECAL_SAMPLE_STEADY) &&
-                   log->r[f + j] == log->r[row])
+                   runlog_rset(log, f + j) == runlog_rset(log, row))
                 j++;
             if (j - i >= min_window) {
                 if (res->nwindows == wcap) {
@@ -477,6 +478,8 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
                 for (size_t a = 0; a < j - i; a++)
                     tmp[a] = log->r[row + a];
                 w->r_median = median_inplace(tmp, j - i);
+                w->r_mean = runlog_rset(log, row); /* the set point (runlog_setpoint.c) */
+                w->u_r = log->u_r_set ? log->u_r_set[row] : 0.0;
                 /* R = inf, or no distillate (runlog_mark_no_distillate) */
                 w->total_reflux =
                     isinf(w->r_median) || (res->flags[row] & STAGECAL_SAMPLE_TOTAL_REFLUX) != 0;

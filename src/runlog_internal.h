@@ -126,6 +126,14 @@ int runlog_grow_rows(stagecal_runlog *log);
 /* Allocates an optional signal's array, NaN for the rows already stored; -1 on failure. */
 int runlog_ensure_optional(stagecal_runlog *log, double **a);
 
+/* stagecal_runlog_setpoints for run k only; -1 on allocation failure. */
+int runlog_setpoints_run(stagecal_runlog *log, size_t k, const stagecal_column *col);
+/* The set point of row i (log->r_set, or the logged R before it is set). */
+static inline double runlog_rset(const stagecal_runlog *log, size_t i)
+{
+    return log->r_set ? log->r_set[i] : log->r[i];
+}
+
 /* Parses a decimal number (no hexadecimal; "inf" only with allow_inf); 0 or -1. */
 int runlog_parse_number(const char *s, int allow_inf, double *v);
 

@@ -6,7 +6,8 @@
  * uncertainties u(xD), u(xB), u(R) through the inversion's sensitivities,
  * independent errors:
  *     u(N)² = (∂N/∂xD·u(xD))² + (∂N/∂xB·u(xB))² + (∂N/∂R·u(R))²,
- *     u(R)² = u_abs(R)² + (u_rel(R)·R)²   (0 at total reflux: ∂N/∂R = 0 there).
+ *     u(R)² = u_abs(R)² + (u_rel(R)·R)²   (0 at total reflux: ∂N/∂R = 0 there),
+ * R and u(R) being the row's reflux set point and its uncertainty (runlog_setpoint.c).
  * Near a pinch ∂N/∂xB grows without bound and so does u(N): the number says how
  * little such a sample tells.
  *
@@ -117,7 +118,7 @@ static void invert_censored(struct inv_ctx *c, size_t i, double r)
     res->note[i] = lower ? STAGECAL_NOTE_AT_LEAST : STAGECAL_NOTE_AT_MOST;
 }
 
-/* Inverts row i at reflux r (the logged one, or INFINITY for no-distillate). */
+/* Inverts row i at reflux r (its set point, or INFINITY for no-distillate). */
 static void invert_row(struct inv_ctx *c, size_t i, double r)
 {
     const stagecal_runlog *log = c->log;
@@ -168,7 +169,10 @@ static void invert_row(struct inv_ctx *c, size_t i, double r)
         return;
     }
     const stagecal_uncertainty *u = &c->col->u;
-    double ur2 = isinf(r) ? 0.0 : u->r * u->r + (u->r_rel * r) * (u->r_rel * r);
+    /* a measured R: its set point's uncertainty (runlog_setpoint.c); a logged set point: the
+     * stated u(R) */
+    double ur = log->u_r_set && log->u_r_set[i] > 0 ? log->u_r_set[i] : hypot(u->r, u->r_rel * r);
+    double ur2 = isinf(r) ? 0.0 : ur * ur;
     double a = sr.dstages_dxd * stagecal_runlog_u_xd(c->col, xd);
     double b = sr.dstages_dxb * stagecal_runlog_u_xb(c->col, xb);
     res->stages[i] = sr.stages;
@@ -207,8 +211,9 @@ int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *co
     runlog_mark_no_distillate(log, &par, res, st, sw);
     free(st), free(sw);
     for (size_t i = 0; i < log->n; i++) {
-        int no_draw = isfinite(log->r[i]) && (res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX);
-        invert_row(&c, i, no_draw ? INFINITY : log->r[i]);
+        double r = runlog_rset(log, i); /* the set point of a measured R */
+        int no_draw = isfinite(r) && (res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX);
+        invert_row(&c, i, no_draw ? INFINITY : r);
         if (no_draw && res->status[i] == STAGECAL_STAGES_OK)
             res->note[i] = STAGECAL_NOTE_NO_DISTILLATE;
         /* vapour load */

@@ -50,6 +50,8 @@ void stagecal_runlog_free(stagecal_runlog *log)
     free(log->xd_cens);
     free(log->xb_cens);
     free(log->r);
+    free(log->r_set);
+    free(log->u_r_set);
     free(log->v_mol_s);
     free(log->p_pa);
     free(log->t_top_k);
@@ -80,8 +82,9 @@ static int grow_doubles(double **a, size_t n, size_t cap)
 int runlog_grow_rows(stagecal_runlog *log)
 {
     size_t cap = log->cap ? 2 * log->cap : 4096;
-    double **arr[] = {&log->t_s,     &log->w_mol, &log->xd,      &log->xb,      &log->r,
-                      &log->v_mol_s, &log->p_pa,  &log->t_top_k, &log->t_pot_k, &log->t_reflux_k};
+    double **arr[] = {&log->t_s,     &log->w_mol,      &log->xd,    &log->xb,
+                      &log->r,       &log->v_mol_s,    &log->p_pa,  &log->t_top_k,
+                      &log->t_pot_k, &log->t_reflux_k, &log->r_set, &log->u_r_set};
     for (size_t i = 0; i < sizeof arr / sizeof arr[0]; i++) {
         if (i < 5 && !*arr[i]) {
             *arr[i] = malloc(sizeof(double)); /* required signals always exist */

@@ -54,7 +54,10 @@ typedef struct {
     size_t n_cens_xb;   /* the same for xB */
     double n_eff;       /* effective sample size of the pot analyser series */
     int total_reflux;   /* 1: R = inf (or no distillate) throughout */
-    double r;           /* median reflux ratio [-] (INFINITY at total reflux) */
+    double r;           /* reflux ratio [-]: the window's set point, the mean of a measured R
+                           (runlog.h, stagecal_runlog_setpoints; INFINITY at total reflux) */
+    double u_r;         /* its standard uncertainty [-] (0: exact, or total reflux); the stage
+                           count's standard error and the composition fit's weights carry it */
     int has_load;       /* F below is known */
     double f_load;      /* mean F-factor [Pa^0.5] */
     double xd, xb;      /* mean distillate and pot mole fractions [-] */
@@ -132,7 +135,7 @@ int stagecal_evidence_window_stats(stagecal_evidence *ev, size_t nev, double u_x
  * in xB gives noisy single samples near a pinch or at a lean pot. Without samples: the
  * inversion of the means. The standard error propagates u_xd, u_xb through the
  * sensitivities at the means (first order, independent analysers) — se_sxd, se_sxb when set,
- * else u_xd, u_xb. Sets stages_ok (0 when
+ * else u_xd, u_xb — and u_r through ∂stages/∂R. Sets stages_ok (0 when
  * any inversion's status is not ok). Returns an error only when an inner solve fails. */
 int stagecal_evidence_stages(const stagecal_vle *vle, double murphree, stagecal_evidence *ev,
                              stagecal_error *err);

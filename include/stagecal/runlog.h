@@ -116,6 +116,11 @@ typedef struct {
     unsigned char *xd_cens;    /* stagecal_censor of each xD reading */
     unsigned char *xb_cens;    /* stagecal_censor of each xB reading */
     double *r;                 /* reflux ratio [-], INFINITY = total reflux */
+    double *r_set;             /* the reflux set point each row belongs to [-]: the mean of its
+                                  stretch of steady R (stagecal_runlog_setpoints; exactly r where
+                                  R is logged as a set point; INFINITY at total reflux, NaN where
+                                  R is missing); NULL until set (then users read r) */
+    double *u_r_set;           /* standard uncertainty of r_set [-] (0 at total reflux) */
     double *v_mol_s;           /* boil-up [mol/s] (from V, or Q / latent heat); NULL if neither */
     double *p_pa;              /* top pressure [Pa]; NULL when not logged */
     double *t_top_k;           /* top temperature [K]; NULL when not logged */
@@ -205,6 +210,31 @@ double stagecal_runlog_u_xb(const stagecal_column *col, double xb);
 stagecal_reading stagecal_runlog_reading(const stagecal_runlog *log, const stagecal_column *col,
                                          size_t row, int role);
 
+/* ---- reflux set points -------------------------------------------------------------- */
+
+/* Segments each run's logged R into stretches of one set point and fills log->r_set and
+ * log->u_r_set (allocated on first use). A measured R scatters about its set point, so a
+ * change of the reading is not a change of the set point: each stretch of finite R is split
+ * by binary segmentation (Vostrikova 1981) with the standardised CUSUM statistic of a change
+ * in mean with known variance (Hinkley 1970), max_k |m_left − m_right| / σ·√(1/n_l + 1/n_r),
+ * against the two-sided normal quantile at α/(2(n − 1)) (Bonferroni over the n − 1 split
+ * points; α = STAGECAL_SETPOINT_ALPHA). σ per row is the larger of the stated u(R) (u.r,
+ * u.r_rel of col) and the reading noise estimated from the successive differences
+ * (1.4826·median|ΔR|/√2, in stretches of more than 20 rows); where both are 0, or where at least
+ * half of the successive readings are equal (R logged as set points), every change of R is a
+ * change of set point. Rows with R = 0,
+ * inf or missing are their own stretches, as logged. A set point is the stretch's mean; its
+ * uncertainty is max(s, u(R))/√n_eff with s the readings' standard deviation and
+ * n_eff = n(1 − ρ)/(1 + ρ) from their lag-1 autocorrelation ρ ∈ [0, 0.99] (the stated u of a
+ * reading that scatters taken as random per reading), and 0 where every reading is the same
+ * (R logged as a set point is taken as exact for the windows; each row's u(N) still has the
+ * stated u(R)).
+ * Called by the reader at the end of every run; call it again after changing log->r or
+ * with another column. col may be NULL (no stated u). ENOMEM. docs/runlog.md. */
+#define STAGECAL_SETPOINT_ALPHA 0.01
+int stagecal_runlog_setpoints(stagecal_runlog *log, const stagecal_column *col,
+                              stagecal_error *err);
+
 /* ---- analysis ---------------------------------------------------------------------- */
 
 /* Cao & Rhinehart R-statistic (Cao & Rhinehart 1995, "An efficient method for on-line
@@ -231,6 +261,10 @@ typedef struct {
     size_t first, last; /* row indices, inclusive */
     int total_reflux;   /* 1: R = inf throughout, or finite R with no distillate drawn */
     double r_median;    /* median R over the window (INFINITY at total reflux) */
+    double r_mean;      /* the window's reflux: its set point's estimated mean R (r_set;
+                           = r_median where R is logged as a set point; INFINITY at total
+                           reflux) */
+    double u_r;         /* standard uncertainty of r_mean (u_r_set; 0 at total reflux) */
     size_t n_ok;        /* ok samples in the window (their stage count and standard
                            error are the evidence module's: stagecal_evidence_build) */
 } stagecal_runlog_window;

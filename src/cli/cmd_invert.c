@@ -148,7 +148,10 @@ static json_t *summary_json(const stagecal_runlog *log, const stagecal_column *c
         json_object_set_new(o, "last_line", json_integer(log->line[w->last]));
         json_object_set_new(o, "rows", json_integer((json_int_t)(w->last - w->first + 1)));
         json_object_set_new(o, "total_reflux", json_boolean(w->total_reflux));
-        json_object_set_new(o, "reflux", cli_json_reflux(w->r_median));
+        /* the set point the window's stage count uses, and its uncertainty (a measured R) */
+        json_object_set_new(o, "reflux",
+                            cli_json_reflux(w->total_reflux ? w->r_median : w->r_mean));
+        json_object_set_new(o, "u_reflux", json_real(w->total_reflux ? 0.0 : w->u_r));
         json_object_set_new(o, "n_ok", json_integer((json_int_t)w->n_ok));
         /* the window's stage count as the calibration uses it (evidence.h) */
         const stagecal_evidence *e = stagecal_evidence_find(ev, k);

@@ -1,0 +1,154 @@
+/*
+ * synth_runlog.h — a run-log simulator for the tests: whole production runs of a batch
+ * column written as the CSV a plant historian gives (run, time, W, xD, xB, R, P), read by the
+ * library's own reader. Used by tests/test_runlog_setpoint.c, the "measured R" regime of
+ * tests/tool_coverage.c and tests/tool_vacuum_coverage.c.
+ *
+ * What it simulates: a quasi-steady batch column (no column holdup) with a total condenser.
+ * At every moment the distillate is what the true stage count N(R) reaches from the pot:
+ * xD solves xB = pot(R, xD, N) by bisection, where pot() is an oracle written for the tests
+ * (Smoker's closed form for constant α, tests/oracle_smoker.h, or the whole-stage Raoult
+ * stepper below at the run's top pressure). The pot follows the Rayleigh balance
+ * dW = −D dt, d(W·xB) = −xD·D dt (Rayleigh 1902, "On the distillation of binary mixtures", Phil.
+ * Mag. 4:521-537, citation from memory; one Euler step per sample), so the log closes. The column
+ * sees its reflux set point exactly; the logged R is the set point plus white Gaussian reading
+ * noise of sd r_noise (a flow-ratio measurement), or the set point itself (r_noise = 0). The
+ * analysers add white Gaussian noise u_xd, u_xb.
+ *
+ * Nothing here asserts; the callers check.
+ */
+#ifndef STAGECAL_SYNTH_RUNLOG_H
+#define STAGECAL_SYNTH_RUNLOG_H
+
+#include <gsl/gsl_math.h>
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "oracle_smoker.h"
+
+/* ---- Raoult's law with Antoine vapour pressures, independent of src/vle*.c ---------- */
+
+/* Antoine set log10(P/bar) = a − b/(T/K + c) (NIST Chemistry WebBook form). */
+struct srl_antoine {
+    double a, b, c;
+};
+
+static inline double srl_psat_pa(const struct srl_antoine *s, double t_k)
+{
+    return 1e5 * pow(10.0, s->a - s->b / (t_k + s->c));
+}
+
+/* Liquid in equilibrium with vapour y at pressure p: the dew temperature T solves
+ * f(T) = y·P/Psat_light + (1 − y)·P/Psat_heavy − 1 = 0 (Newton's method from 350 K, to
+ * 1e-10 K), then x = y·P/Psat_light(T). */
+static inline double srl_raoult_x(const struct srl_antoine *l, const struct srl_antoine *h,
+                                  double p, double y)
+{
+    double t = 350;
+    for (int it = 0; it < 50; it++) {
+        double il = p / srl_psat_pa(l, t), ih = p / srl_psat_pa(h, t);
+        double f = y * il + (1 - y) * ih - 1;
+        /* d(P/Psat)/dT = −(P/Psat)·ln 10·b/(T + c)² */
+        double df = -M_LN10 * (y * il * l->b / ((t + l->c) * (t + l->c)) +
+                               (1 - y) * ih * h->b / ((t + h->c) * (t + h->c)));
+        double step = f / df;
+        t -= fmax(-40.0, fmin(40.0, step));
+        if (fabs(step) < 1e-10)
+            break;
+    }
+    return y * p / srl_psat_pa(l, t);
+}
+
+/* Pot composition after n whole equilibrium stages (pot included) below a total condenser
+ * from xD at reflux r: y1 = xD, x_k from the dew point, y_{k+1} = (r·x_k + xD)/(r + 1)
+ * (McCabe–Thiele, constant molar overflow), xB = x_n. */
+static inline double srl_raoult_pot(const struct srl_antoine *l, const struct srl_antoine *h,
+                                    double p, double r, double xd, int n)
+{
+    double y = xd, x = xd;
+    for (int k = 1; k <= n; k++) {
+        x = srl_raoult_x(l, h, p, y);
+        y = isinf(r) ? x : (r * x + xd) / (r + 1);
+    }
+    return x;
+}
+
+/* ---- the simulator ------------------------------------------------------------------ */
+
+/* Pot composition reached from xd at reflux r with n stages at top pressure p [Pa]. */
+typedef double (*srl_pot_fn)(void *ctx, double r, double xd, double n, double p);
+
+struct srl_spec {
+    srl_pot_fn pot;
+    void *ctx;
+    double (*law)(void *ctx, double r); /* true stage count (pot included) at R */
+    size_t nruns;
+    const double *rset; /* nset set points, in the order of each run */
+    size_t nset;
+    size_t rows_per_set;
+    double dt_s;    /* sample spacing */
+    double r_noise; /* sd of the R reading about its set point (0: R logged as set point) */
+    double u_xd;    /* analyser noise sd */
+    double u_xb;
+    double w0_mol;      /* pot charge */
+    double xb0;         /* its composition */
+    double d_mol_s;     /* distillate rate */
+    const double *p_pa; /* nruns top pressures, or NULL (no P column; pot() gets NAN) */
+};
+
+/* xD with pot(r, xD, n) = xb (bisection: pot() rises with xD). */
+static inline double srl_xd_of(const struct srl_spec *s, double r, double xb, double n, double p)
+{
+    double lo = xb, hi = 1 - 1e-15;
+    for (int it = 0; it < 60; it++) {
+        double mid = 0.5 * (lo + hi);
+        if (s->pot(s->ctx, r, mid, n, p) < xb)
+            lo = mid;
+        else
+            hi = mid;
+    }
+    return 0.5 * (lo + hi);
+}
+
+/* The whole log as CSV text (malloc'd; NULL on allocation failure); *len its length. */
+static inline char *srl_csv(const struct srl_spec *s, gsl_rng *rng, size_t *len)
+{
+    size_t rows = s->nruns * s->nset * s->rows_per_set, cap = 128 + rows * 128, n = 0;
+    char *buf = malloc(cap);
+    if (!buf)
+        return NULL;
+    n += (size_t)snprintf(buf, cap, "run,time[s],W[mol],xD[mol/mol],xB[mol/mol],R[-]%s\n",
+                          s->p_pa ? ",P[kPa]" : "");
+    for (size_t k = 0; k < s->nruns; k++) {
+        double w = s->w0_mol, xb = s->xb0, t = 0, p = s->p_pa ? s->p_pa[k] : NAN;
+        for (size_t j = 0; j < s->nset; j++) {
+            double r = s->rset[j], nst = s->law(s->ctx, r);
+            for (size_t i = 0; i < s->rows_per_set; i++) {
+                double xd = srl_xd_of(s, r, xb, nst, p);
+                double rl = s->r_noise > 0 ? r + gsl_ran_gaussian(rng, s->r_noise) : r;
+                double xdl = xd + gsl_ran_gaussian(rng, s->u_xd);
+                double xbl = xb + gsl_ran_gaussian(rng, s->u_xb);
+                int m = snprintf(buf + n, cap - n, "S%zu,%.1f,%.6f,%.6f,%.6f,%.6f", k + 1, t, w,
+                                 fmin(xdl, 0.999999), fmax(xbl, 1e-6), rl);
+                n += (size_t)m;
+                if (s->p_pa)
+                    n += (size_t)snprintf(buf + n, cap - n, ",%.4f", p / 1000);
+                buf[n++] = '\n';
+                /* Rayleigh balance over the next interval (distillate at the current xD) */
+                double dd = s->d_mol_s * s->dt_s;
+                xb = (w * xb - xd * dd) / (w - dd);
+                w -= dd;
+                t += s->dt_s;
+            }
+        }
+    }
+    buf[n] = '\0';
+    *len = n;
+    return buf;
+}
+
+#endif
