@@ -4,6 +4,8 @@
  * calibrate_intervals_cover_truth in tests/test_calibrate.c, over many more data sets).
  *
  * Usage: tool_coverage REPLICATIONS SEED [REGIME] [known-se | per-window-rho | smoother]
+ *        tool_coverage REPLICATIONS SEED measured-r [measured | set-point | readings]
+ * (whole run logs from tests/synth_runlog.h through the whole chain; see measured_r_study)
  * Regimes (struct synth_regime in tests/synth_calibration.h): steady, white, drift,
  * drift-ar, irregular, short. Diagnostics: known-se gives the windows their true standard
  * errors instead of the estimated ones (fixed instead of estimated weights); per-window-rho
@@ -42,8 +44,10 @@
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
+#include <unistd.h>
 
 #include "synth_calibration.h"
+#include "synth_runlog.h"
 
 struct tally {
     int fits;
@@ -142,13 +146,158 @@ static void report(const char *name, const struct tally *t, int reps)
     free(zs);
 }
 
+/* ---- regime "measured-r": whole run logs whose R is a measured ratio ------------------ */
+
+/* The simulator of tests/synth_runlog.h with the law of synth_calibration.h (a = 10,
+ * b = 0.45) at constant α = 1.6 (Smoker's closed form): 2 runs per data set, each a 50-row
+ * total-reflux start-up, then 50 rows at each of R = 1.5, 2.5, 4, 6, 10 (one row a minute);
+ * u(xD) = 0.0015, u(xB) = 0.0025 white; the R reading scatters by 0.02 about its set point
+ * (u(R) = 0.02 stated), or is the set point ("set-point", the control), or scatters with
+ * every reading taken as a set point ("readings", the behaviour before set points were
+ * tested for). The whole chain runs (stagecal_calibrate_data: reading, set points, windows,
+ * evidence, both fits) and the fit the model file carries is scored: a, b, and the stage
+ * count at R = 1.5, 5, inf from the model (stagecal_model_eval). No column holdup is
+ * simulated, so the holdup compensation is off. */
+#define MR_ALPHA 1.6
+
+static double mr_pot(void *ctx, double r, double xd, double n, double p)
+{
+    (void)ctx, (void)p;
+    return oracle_smoker_xb(MR_ALPHA, r, xd, n);
+}
+
+static double mr_law(void *ctx, double r)
+{
+    (void)ctx;
+    return synth_law(SYNTH_A, SYNTH_B, r);
+}
+
+enum mr_mode { MR_MEASURED, MR_SETPOINT, MR_READINGS };
+
+static long mr_comp; /* data sets whose model carries the composition-space fit */
+
+/* One data set; f->ok = 0 when the calibration refused (counted by the caller). Returns 0,
+ * or the line of a failure that must not happen. */
+static int mr_one(gsl_rng *rng, const stagecal_column *col, enum mr_mode mode, struct synth_fit *f,
+                  size_t *nwin)
+{
+    static const double rset[] = {INFINITY, 1.5, 2.5, 4.0, 6.0, 10.0};
+    struct srl_spec sp = {
+        mr_pot, NULL,   mr_law, 2,    rset,  6,   50, 60.0, mode == MR_SETPOINT ? 0.0 : 0.02,
+        0.0015, 0.0025, 300.0,  0.35, 0.002, NULL};
+    size_t len = 0;
+    char *csv = srl_csv(&sp, rng, &len);
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    memset(f, 0, sizeof *f);
+    *nwin = 0;
+    if (!csv || !log ||
+        stagecal_runlog_read_buffer(log, csv, len, "synthetic.csv", col, NULL, NULL, NULL))
+        return __LINE__;
+    free(csv);
+    if (mode == MR_READINGS) { /* every reading its own set point */
+        free(log->r_set), free(log->u_r_set);
+        log->r_set = log->u_r_set = NULL;
+    }
+    stagecal_calibrate_params par = stagecal_calibrate_default_params();
+    par.form = "saturating";
+    par.evidence.holdup = STAGECAL_HOLDUP_COMP_NONE;
+    stagecal_calibration cal;
+    int rc = stagecal_calibrate_data(col, NULL, log, &par, &cal, NULL);
+    *nwin = cal.res.nwindows;
+    if (rc == STAGECAL_OK) {
+        const stagecal_regress_result *res =
+            cal.used == STAGECAL_MODEL_STAGE_SPACE ? &cal.stage_fit : &cal.comp_fit;
+        mr_comp += cal.used == STAGECAL_MODEL_COMPOSITION_SPACE;
+        f->ok = 1;
+        f->tq = res->tquant;
+        f->dof = res->dof;
+        f->s2 = res->rss / res->dof;
+        for (int i = 0; i < 2; i++) {
+            f->est[i] = res->theta[i];
+            f->se[i] = res->se[i];
+            f->lo[i] = res->ci_low[i];
+            f->hi[i] = res->ci_high[i];
+        }
+        for (int q = 0; q < 3 && f->ok; q++) {
+            stagecal_model_point pt;
+            if (stagecal_model_eval(&cal.model, synth_band_r[q], 0, 0.95, &pt, NULL)) {
+                f->ok = 0;
+                break;
+            }
+            f->est[2 + q] = pt.stages;
+            f->se[2 + q] = pt.se_fit;
+            f->lo[2 + q] = pt.ci_low;
+            f->hi[2 + q] = pt.ci_high;
+        }
+    }
+    stagecal_calibration_free(&cal);
+    stagecal_runlog_free(log);
+    return 0;
+}
+
+static int measured_r_study(long reps, unsigned long seed, const char *mode_name)
+{
+    enum mr_mode mode = strcmp(mode_name, "set-point") == 0  ? MR_SETPOINT
+                        : strcmp(mode_name, "readings") == 0 ? MR_READINGS
+                                                             : MR_MEASURED;
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    stagecal_column col;
+    struct tally tm;
+    memset(&col, 0, sizeof col);
+    col.system.vle = stagecal_vle_alloc_alpha(MR_ALPHA, NULL);
+    col.system.p_pa = 101325;
+    col.u.xd = 0.0015;
+    col.u.xb = 0.0025;
+    col.u.r = 0.02;
+    snprintf(col.id, sizeof col.id, "synthetic");
+    if (!rng || !col.system.vle || tally_alloc(&tm, (int)reps)) {
+        fprintf(stderr, "tool_coverage: set-up failed\n");
+        return 1;
+    }
+    gsl_rng_set(rng, seed);
+    int rc = 0;
+    double wins = 0;
+    struct timespec t0, t1;
+    clock_gettime(CLOCK_MONOTONIC, &t0);
+    for (long rep = 0; rep < reps && rc == 0; rep++) {
+        struct synth_fit f;
+        size_t nw;
+        int line = mr_one(rng, &col, mode, &f, &nw);
+        if (line) {
+            fprintf(stderr, "tool_coverage: replication %ld failed at line %d\n", rep, line);
+            rc = 1;
+        }
+        wins += (double)nw / (double)reps;
+        tally_add(&tm, &f);
+        if (isatty(2) && rep % 50 == 49)
+            fprintf(stderr, "\r%ld of %ld", rep + 1, reps);
+    }
+    clock_gettime(CLOCK_MONOTONIC, &t1);
+    if (isatty(2))
+        fprintf(stderr, "\n");
+    if (rc == 0) {
+        printf("coverage of 95 %% intervals, %ld synthetic run logs (2 runs, 6 set points), "
+               "regime measured-r (%s), seed %lu, mean %.1f windows, %ld composition-space "
+               "(%.1f s)\n",
+               reps, mode_name, seed, wins, mr_comp,
+               (double)(t1.tv_sec - t0.tv_sec) + 1e-9 * (double)(t1.tv_nsec - t0.tv_nsec));
+        report("the model file's fit", &tm, (int)reps);
+    }
+    tally_free(&tm);
+    stagecal_vle_free(col.system.vle);
+    gsl_rng_free(rng);
+    return rc;
+}
+
 static void usage(void)
 {
     fprintf(stderr, "usage: tool_coverage REPLICATIONS(>=10) SEED [REGIME] [known-se | "
                     "per-window-rho | smoother]\nregimes:");
     for (int g = 0; g < SYNTH_NREGIMES; g++)
         fprintf(stderr, " %s", synth_regimes[g].name);
-    fprintf(stderr, " (default steady)\n");
+    fprintf(stderr, " (default steady)\n"
+                    "       tool_coverage REPLICATIONS SEED measured-r [measured | set-point | "
+                    "readings]\n");
 }
 
 int main(int argc, char **argv)
@@ -156,6 +305,15 @@ int main(int argc, char **argv)
     char *end1 = NULL, *end2 = NULL;
     enum synth_se_mode mode = SYNTH_SE_ESTIMATED;
     const struct synth_regime *rg = &synth_regimes[0];
+    if (argc >= 4 && strcmp(argv[3], "measured-r") == 0) {
+        long n = strtol(argv[1], &end1, 10);
+        if (*end1 || n < 10 || argc > 5) {
+            usage();
+            return 1;
+        }
+        gsl_set_error_handler_off();
+        return measured_r_study(n, strtoul(argv[2], NULL, 10), argc == 5 ? argv[4] : "measured");
+    }
     int args_ok = argc >= 3 && argc <= 5;
     for (int a = 3; a < argc && args_ok; a++) {
         int known = 0;
