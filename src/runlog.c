@@ -265,7 +265,11 @@ static void data_cell(struct reader *rd, const char *s, size_t len)
             rd->first_missing[role] = rd->line;
         return;
     }
-    if (memchr(s, '\0', len)) {
+    double x = NAN;
+    /* a plain decimal read to its end holds no NUL byte: the search is for the rest */
+    int plain = role != STAGECAL_RL_RUN && !(role == STAGECAL_RL_TIME && u->iso8601) &&
+                runlog_parse_plain(s, len, &x) == 0;
+    if (!plain && memchr(s, '\0', len)) {
         reader_finding(
             rd, STAGECAL_FINDING_ERROR, rd->line, h,
             "column '%s': value contains a NUL byte (expected text; is the file UTF-16?)", h);
@@ -277,10 +281,9 @@ static void data_cell(struct reader *rd, const char *s, size_t len)
         rd->run_text[k] = '\0';
         return;
     }
-    double x;
     if (is_composition(role)) {
         char why[STAGECAL_ERROR_TEXT];
-        if (runlog_parse_fraction(s, u, &x, &rd->cens[role], why, sizeof why) != 0) {
+        if (runlog_parse_fraction(s, u, plain, &x, &rd->cens[role], why, sizeof why) != 0) {
             reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, h, "column '%s': %s", h, why);
             return;
         }
@@ -299,7 +302,7 @@ static void data_cell(struct reader *rd, const char *s, size_t len)
         rd->val[role] = x;
         return;
     }
-    if (runlog_parse_number(s, role == STAGECAL_RL_R, &x) != 0) {
+    if (!plain && runlog_parse_number(s, role == STAGECAL_RL_R, &x) != 0) {
         reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
                        "column '%s': value '%s' is not a number", h, s);
         return;

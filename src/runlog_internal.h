@@ -7,6 +7,7 @@
 #include <stdarg.h>
 
 #include "internal.h"
+#include "stagecal/physics.h"
 #include "stagecal/runlog.h"
 
 /* ---- the reader (runlog.c: cells and rows; runlog_stream.c: files and runs) ---- */
@@ -99,6 +100,12 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
                    const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
                    stagecal_error *err);
 
+/* stagecal_runlog_invert with the physics models of ph (physics.h), which keeps the models it
+ * builds for logged pressures from one call to the next (one per thread); NULL: its own. */
+int runlog_invert_with(const stagecal_runlog *log, const stagecal_column *col, double murphree,
+                       const stagecal_runlog_analysis_params *params, stagecal_physics *ph,
+                       stagecal_runlog_result *res, stagecal_error *err);
+
 /* Writes the CSV rows of log and res (stagecal_runlog_write_csv), the window column offset
  * by window_base (the windows of the runs written before), the header row first when
  * header is 1. EWRITE, ENOMEM. */
@@ -119,6 +126,9 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
                  stagecal_error *err);
 /* The drift signatures of c set to "not computed" (NaN, 0). */
 void runlog_drift_clear(stagecal_runlog_closure *c);
+/* printf's "%.9g" of v into d (at most 16 bytes, no NUL) for 1e-13 <= |v| < 1e13, or -1
+ * (outside that range, or too close to a rounding tie to be sure: ask printf). */
+int runlog_format_g9(char *d, double v);
 
 /* Grows every row array of log (×2, 4096 at first; optional signals only when present).
  * -1 on allocation failure. */
@@ -136,13 +146,17 @@ static inline double runlog_rset(const stagecal_runlog *log, size_t i)
 
 /* Parses a decimal number (no hexadecimal; "inf" only with allow_inf); 0 or -1. */
 int runlog_parse_number(const char *s, int allow_inf, double *v);
+/* The fast path alone: 0 when s[0..len) is a plain decimal ([+-]d[.d][e[+-]d]) that ends at
+ * s + len (so it holds no NUL byte), with *v exactly strtod's value; else -1. */
+int runlog_parse_plain(const char *s, size_t len, double *v);
 
 /* Parses a composition cell as logged in unit u: a number in [u->lo, u->hi], "<v" or
  * ">v". A number at u->lo or u->hi is censored there; "<lo" and ">hi" are refused.
+ * parsed: s is a plain number whose value is already in *v (runlog_parse_plain).
  * Returns 0 with *v (as logged, not converted) and *censor, or -1 with why ("value '<'
  * is not a censored reading (expected ...)", without the column prefix). */
-int runlog_parse_fraction(const char *s, const stagecal_unit *u, double *v, int *censor, char *why,
-                          size_t why_len);
+int runlog_parse_fraction(const char *s, const stagecal_unit *u, int parsed, double *v, int *censor,
+                          char *why, size_t why_len);
 
 /* The range of mole fractions a reading allows: [v, v], [0, v] or [v, 1]. */
 void runlog_reading_range(double v, int censor, double *lo, double *hi);

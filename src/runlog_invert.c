@@ -186,6 +186,13 @@ int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *co
                            const stagecal_runlog_analysis_params *params,
                            stagecal_runlog_result *res, stagecal_error *err)
 {
+    return runlog_invert_with(log, col, murphree, params, NULL, res, err);
+}
+
+int runlog_invert_with(const stagecal_runlog *log, const stagecal_column *col, double murphree,
+                       const stagecal_runlog_analysis_params *params, stagecal_physics *ph,
+                       stagecal_runlog_result *res, stagecal_error *err)
+{
     if (!col || !col->system.vle)
         return error_set(err, STAGECAL_EINVAL, "the inversion needs a column with a VLE model");
     if (res->n != log->n || !res->stages)
@@ -194,7 +201,8 @@ int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *co
         params ? *params : stagecal_runlog_analysis_default_params();
     struct inv_ctx c = {log, col, murphree, stagecal_stages_default_params(), res, NULL};
     c.sp.want_sensitivities = 1;
-    if (!(c.ph = stagecal_physics_alloc(col, NULL, err)))
+    stagecal_physics *own = NULL;
+    if (!(c.ph = ph) && !(c.ph = own = stagecal_physics_alloc(col, NULL, err)))
         return err ? err->code : STAGECAL_ENOMEM;
     const stagecal_system *sys = &col->system;
     int have_m = sys->m_light > 0 && sys->m_heavy > 0;
@@ -205,7 +213,7 @@ int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *co
     double *st = malloc(maxrun * sizeof *st), *sw = malloc(maxrun * sizeof *sw);
     if (!st || !sw) {
         free(st), free(sw);
-        stagecal_physics_free(c.ph);
+        stagecal_physics_free(own);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
     runlog_mark_no_distillate(log, &par, res, st, sw);
@@ -236,7 +244,7 @@ int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *co
                 res->note[i] = STAGECAL_NOTE_NO_LOAD;
         }
     }
-    stagecal_physics_free(c.ph);
+    stagecal_physics_free(own);
     int rc = runlog_windows(log, col, &par, res, err);
     if (rc == STAGECAL_OK)
         rc = runlog_drift(log, col, murphree, &par, res, err);

@@ -19,7 +19,7 @@
  * double strtod returns. Returns 0 with *v, or -1 when the text is not of the plain form
  * [+-]digits[.digits][(e|E)[+-]digits] or falls outside the fast path (the caller then asks
  * strtod). */
-static int parse_fast(const char *s, double *v)
+static int parse_fast(const char *s, const char **endp, double *v)
 {
     static const double p10[] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
                                  1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
@@ -48,6 +48,7 @@ static int parse_fast(const char *s, double *v)
             return -1;
         e += eneg ? -ex : ex;
     }
+    *endp = p;
     if (*p != '\0' || m > ((uint64_t)1 << 53) || e < -22 || e > 22)
         return -1;
     double x = (double)m;
@@ -56,9 +57,16 @@ static int parse_fast(const char *s, double *v)
     return 0;
 }
 
+int runlog_parse_plain(const char *s, size_t len, double *v)
+{
+    const char *end = s;
+    return parse_fast(s, &end, v) == 0 && end == s + len ? 0 : -1;
+}
+
 int runlog_parse_number(const char *s, int allow_inf, double *v)
 {
-    if (parse_fast(s, v) == 0)
+    const char *fast_end;
+    if (parse_fast(s, &fast_end, v) == 0)
         return 0;
     if (allow_inf && (strcmp(s, "inf") == 0 || strcmp(s, "Inf") == 0 || strcmp(s, "INF") == 0 ||
                       strcmp(s, "infinity") == 0)) {
@@ -77,8 +85,8 @@ int runlog_parse_number(const char *s, int allow_inf, double *v)
     return 0;
 }
 
-int runlog_parse_fraction(const char *s, const stagecal_unit *u, double *v, int *censor, char *why,
-                          size_t why_len)
+int runlog_parse_fraction(const char *s, const stagecal_unit *u, int parsed, double *v, int *censor,
+                          char *why, size_t why_len)
 {
     int c = STAGECAL_CENSOR_NONE;
     const char *num = s;
@@ -86,8 +94,8 @@ int runlog_parse_fraction(const char *s, const stagecal_unit *u, double *v, int 
         c = *s == '<' ? STAGECAL_CENSOR_BELOW : STAGECAL_CENSOR_ABOVE;
         num = s + 1;
     }
-    double x;
-    if (runlog_parse_number(num, 0, &x) != 0) {
+    double x = *v;
+    if (!parsed && runlog_parse_number(num, 0, &x) != 0) {
         if (c == STAGECAL_CENSOR_NONE)
             snprintf(why, why_len, "value '%s' is not a number", s);
         else

@@ -75,11 +75,82 @@ static void rb_uint(row_buf *r, unsigned long v)
     r->n += (size_t)(buf + sizeof buf - p);
 }
 
+/* printf's %.9g of v into d for 1e-13 <= |v| < 1e13, without printf's exact multi-precision
+ * conversion (a tenth of run-log mode's time at 10^6 rows). v·10^k (one correctly rounded
+ * IEEE operation, 10^k exact for |k| <= 22) lies within 1.2e-7 of the exact value at the
+ * scale of 1e9, so the nearest 9-digit integer is certain unless the fraction is within
+ * 1e-6 of a half; then, and outside the range, -1 (the caller asks printf). Returns the
+ * length. Checked against printf on 10^7 values (tests/test_runlog_stream.c). */
+int runlog_format_g9(char *d, double v)
+{
+    static const double p10[] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
+                                 1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
+                                 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
+    double a = fabs(v);
+    if (!(a >= 1e-13 && a < 1e13))
+        return -1;
+    int e = (int)floor(log10(a)), k = 8 - e;
+    double sc = k >= 0 ? a * p10[k] : a / p10[-k];
+    if (sc < 1e8 || sc >= 1e9) { /* the estimate of the exponent was one off */
+        e += sc < 1e8 ? -1 : 1;
+        k = 8 - e;
+        sc = k >= 0 ? a * p10[k] : a / p10[-k];
+    }
+    double fl = floor(sc), f = sc - fl;
+    if (fabs(f - 0.5) <= 1e-6)
+        return -1;
+    long m = (long)fl + (f > 0.5);
+    if (m >= 1000000000) { /* rounded up to the next power of ten */
+        m /= 10;
+        e++;
+    }
+    char dig[9];
+    for (int i = 8; i >= 0; i--, m /= 10)
+        dig[i] = (char)('0' + m % 10);
+    int nd = 9;
+    while (nd > 1 && dig[nd - 1] == '0')
+        nd--;
+    char *p = d;
+    if (v < 0)
+        *p++ = '-';
+    if (e < -4 || e >= 9) {
+        *p++ = dig[0];
+        if (nd > 1) {
+            *p++ = '.';
+            memcpy(p, dig + 1, (size_t)nd - 1);
+            p += nd - 1;
+        }
+        *p++ = 'e';
+        *p++ = e < 0 ? '-' : '+';
+        int ae = e < 0 ? -e : e;
+        *p++ = (char)('0' + ae / 10);
+        *p++ = (char)('0' + ae % 10);
+    } else if (e >= 0) {
+        for (int i = 0; i <= e; i++)
+            *p++ = i < nd ? dig[i] : '0';
+        if (nd > e + 1) {
+            *p++ = '.';
+            memcpy(p, dig + e + 1, (size_t)(nd - e - 1));
+            p += nd - e - 1;
+        }
+    } else {
+        *p++ = '0';
+        *p++ = '.';
+        for (int i = 0; i < -e - 1; i++)
+            *p++ = '0';
+        memcpy(p, dig, (size_t)nd);
+        p += nd;
+    }
+    return (int)(p - d);
+}
+
 /* v with %.9g, or nothing when it is not finite. */
 static void rb_num(row_buf *r, double v)
 {
-    if (isfinite(v))
-        r->n += (size_t)snprintf(r->b + r->n, 32, "%.9g", v);
+    if (!isfinite(v))
+        return;
+    int k = runlog_format_g9(r->b + r->n, v);
+    r->n += k >= 0 ? (size_t)k : (size_t)snprintf(r->b + r->n, 32, "%.9g", v);
 }
 
 /* v rounded to `decimals` (≤ 9) places, or nothing when it is not finite: a plain

@@ -95,6 +95,48 @@ static void runlog_numbers_match_strtod(void **state)
     assert_true(accepted > 250000); /* the realistic forms were accepted, not all refused */
 }
 
+/* The writer's %.9g (u_stages) against printf's on 10^6 values spread over 26 decades, both
+ * signs, values a hair below powers of ten and exact 9-digit ties: the same text, or -1 (the
+ * writer then calls printf). Tolerance: none. */
+static void runlog_g9_matches_printf(void **state)
+{
+    (void)state;
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 5);
+    size_t differ = 0, fast = 0, n = 1000000;
+    char a[64], b[64];
+    for (size_t it = 0; it < n; it++) {
+        double v, scale = pow(10, (int)gsl_rng_uniform_int(rng, 28) - 14);
+        switch (it % 4) {
+        case 0:
+            v = gsl_rng_uniform(rng) * scale;
+            break;
+        case 1:
+            v = -gsl_rng_uniform(rng) * scale;
+            break;
+        case 2: /* a 9-digit decimal, a tie or close to one at the tenth digit */
+            v = (double)gsl_rng_uniform_int(rng, 1000000000) * 1e-9 * scale;
+            break;
+        default:
+            v = scale * (1 - 1e-10 * gsl_rng_uniform(rng));
+        }
+        int k = runlog_format_g9(a, v);
+        if (k < 0)
+            continue;
+        fast++;
+        a[k] = '\0';
+        snprintf(b, sizeof b, "%.9g", v);
+        if (strcmp(a, b) != 0) {
+            if (differ < 5)
+                print_error("%.17g: '%s', printf '%s'\n", v, a, b);
+            differ++;
+        }
+    }
+    gsl_rng_free(rng);
+    assert_int_equal(differ, 0);
+    assert_true(fast > n * 9 / 10); /* the fast path is the common one */
+}
+
 /* Reads paths whole, and streamed run by run; everything the caller sees agrees. */
 static void compare_whole_and_stream(const char *const *paths, size_t n, const stagecal_column *col)
 {
@@ -206,12 +248,69 @@ static void runlog_stream_bad_inputs_as_whole(void **state)
     compare_whole_and_stream(p, n, NULL);
 }
 
+/* The whole log through analyse + invert + write_csv (the reference), and streamed with
+ * 0 to 3 worker threads: the same bytes. The demo logs have 84 runs and 51 windows, so the
+ * window numbers run across runs and files. */
+static void runlog_stream_inversion_as_whole(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    memset(&col, 0, sizeof col);
+    assert_int_equal(
+        stagecal_column_load(STAGECAL_DATASETS "/columns/demo_benzene_toluene.json", &col, NULL),
+        0);
+    static char paths[14][512];
+    const char *p[14];
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    for (int i = 0; i < 14; i++) {
+        snprintf(paths[i], sizeof paths[i], STAGECAL_DATASETS "/demo/logs/%d-%02d.csv",
+                 i < 12 ? 2025 : 2026, i < 12 ? i + 1 : i - 11);
+        p[i] = paths[i];
+        assert_int_equal(stagecal_runlog_read(log, p[i], &col, NULL, NULL, NULL), 0);
+    }
+    stagecal_runlog_result res;
+    char *want = NULL, *got = NULL;
+    size_t nwant = 0, ngot = 0;
+    FILE *out = open_memstream(&want, &nwant);
+    assert_int_equal(stagecal_runlog_analyse(log, &col, NULL, &res, NULL), 0);
+    assert_int_equal(stagecal_runlog_invert(log, &col, 1.0, NULL, &res, NULL), 0);
+    assert_int_equal(stagecal_runlog_write_csv(log, &col, &res, out, NULL), 0);
+    fclose(out);
+    assert_true(res.nwindows > 10 && log->nruns > 50);
+    for (size_t threads = 0; threads <= 3; threads++) {
+        stagecal_runlog_stream *s = stagecal_runlog_stream_alloc(p, 14, &col, NULL, NULL);
+        stagecal_runlog_totals tot;
+        out = open_memstream(&got, &ngot);
+        assert_int_equal(
+            stagecal_runlog_invert_stream(s, &col, 1.0, NULL, threads, out, &tot, NULL), 0);
+        fclose(out);
+        assert_int_equal(ngot, nwant);
+        assert_memory_equal(got, want, nwant);
+        assert_int_equal(tot.rows, log->n);
+        assert_int_equal(tot.nruns, log->nruns);
+        assert_int_equal(tot.nwindows, res.nwindows);
+        assert_memory_equal(tot.count, res.count, sizeof tot.count);
+        for (size_t k = 0; k < tot.nruns; k++)
+            assert_memory_equal(&tot.closures[k], &res.closures[k], sizeof res.closures[k]);
+        stagecal_runlog_totals_free(&tot);
+        stagecal_runlog_stream_free(s);
+        free(got);
+        got = NULL;
+    }
+    free(want);
+    stagecal_runlog_result_free(&res);
+    stagecal_runlog_free(log);
+    stagecal_column_free(&col);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(runlog_numbers_match_strtod),
+        cmocka_unit_test(runlog_g9_matches_printf),
         cmocka_unit_test(runlog_stream_demo_logs_as_whole),
         cmocka_unit_test(runlog_stream_bad_inputs_as_whole),
+        cmocka_unit_test(runlog_stream_inversion_as_whole),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -436,6 +436,35 @@ void stagecal_runlog_result_free(stagecal_runlog_result *res); /* frees members;
 int stagecal_runlog_f_factor(double v_mol_s, double m_kg_mol, double p_pa, double t_k, double d_m,
                              double *f, stagecal_error *err);
 
+/* ---- streamed inversion: run by run, on several threads --------------------------------- */
+
+/* What a streamed inversion saw (small: a few numbers per run). */
+typedef struct {
+    size_t rows;                           /* rows inverted and written */
+    size_t nwindows;                       /* quasi-steady windows */
+    size_t count[STAGECAL_RUNLOG_NSTATUS]; /* rows per status (4: censored) */
+    size_t nruns;
+    stagecal_runlog_run *runs;         /* the runs in output order (first: row index in it) */
+    stagecal_runlog_closure *closures; /* their mass-balance closures */
+    char (*files)[160];                /* the files read */
+    size_t nfiles;
+} stagecal_runlog_totals;
+
+void stagecal_runlog_totals_free(stagecal_runlog_totals *t); /* frees members; NULL ok */
+
+/* Reads the runs of s one at a time and does for each what stagecal_runlog_analyse,
+ * stagecal_runlog_invert and stagecal_runlog_write_csv do for a whole log, writing the same
+ * bytes (the header before the first row; nothing when there are no rows). Runs are
+ * independent, so nthreads ≥ 1 threads analyse and invert them while this one reads the
+ * next; each run is written in file order once the one before it is, so the output does not
+ * depend on nthreads (0: all in this thread). Memory holds about nthreads + 2 runs. tot
+ * receives the totals. A file the stream cannot read ends the work with its code (ENOINPUT,
+ * EDATA); EWRITE, ENOMEM, EINVAL (no column model). */
+int stagecal_runlog_invert_stream(stagecal_runlog_stream *s, const stagecal_column *col,
+                                  double murphree, const stagecal_runlog_analysis_params *params,
+                                  size_t nthreads, FILE *out, stagecal_runlog_totals *tot,
+                                  stagecal_error *err);
+
 /* Writes one CSV row per log row (header first): source, line, run, time[s],
  * stages, column_stages, u_stages, status, note, L/V, F[Pa^0.5], steady,
  * total_reflux, outlier, window, xB_rec. Time has 3 decimals, stages 6, L/V and xB_rec 9,

@@ -10,6 +10,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "banned.h"
 #include "cli.h"
@@ -25,7 +26,7 @@ static const struct cli_usage usage = {
     "usage: stagecal invert (--alpha A | --kvalue K | --column FILE) --xd XD --xb XB\n"
     "                       --reflux R|inf [--murphree E] [--json] [--quiet]\n"
     "   or: stagecal invert --column FILE [--murphree E] [-o FILE.csv] [--min-rows N]\n"
-    "                       [--json] [--quiet] RUNLOG.csv...\n",
+    "                       [--threads N] [--json] [--quiet] RUNLOG.csv...\n",
     "Counts the equilibrium stages (the pot included, fractional) a batch rectifier needs\n"
     "to hold the distillate at XD over a pot at XB at reflux ratio R. A pinch or an\n"
     "azeotrope in the way is a result (status), not an error. Column stages follow the\n"
@@ -198,9 +199,147 @@ static int write_rows(const stagecal_runlog *log, const stagecal_column *col,
     return CLI_EXIT_CANTCREAT;
 }
 
+/* Prints the first findings (as errors when nothing could be inverted, else as warnings). */
+static void show_findings(const stagecal_findings *f, int fatal)
+{
+    for (size_t i = 0; i < f->n && i < 10; i++)
+        (fatal ? cli_error : cli_warn)("%s", f->items[i].text);
+    if (fatal && f->n == 0)
+        cli_error("no data rows in the run log(s)");
+    else if (!fatal && f->n_errors)
+        cli_warn("%zu validation errors: the rows concerned have missing values (run "
+                 "'stagecal check' for the full list)",
+                 f->n_errors);
+}
+
+static void closure_warnings(const stagecal_runlog_run *runs, const stagecal_runlog_closure *cls,
+                             size_t nruns)
+{
+    for (size_t k = 0; k < nruns; k++) {
+        const stagecal_runlog_closure *cl = &cls[k];
+        if (cl->gross || cl->drift)
+            cli_warn("run '%s': %s%s%s (closure %+.2f %%)", runs[k].name,
+                     cl->gross ? "mass balance does not close" : "",
+                     cl->gross && cl->drift ? ", " : "", cl->drift ? "xB analyser drift" : "",
+                     100.0 * cl->closure);
+    }
+}
+
+static void summary_line(size_t rows, const size_t *count, size_t nwindows, const char *out_path)
+{
+    printf("%zu rows: %zu ok, %zu pinch, %zu azeotrope, %zu invalid, %zu censored (one-sided "
+           "bounds in stages_low/stages_high); %zu quasi-steady windows; written to %s\n",
+           rows, count[0], count[1], count[2], count[3], count[STAGECAL_RUNLOG_CENSORED], nwindows,
+           out_path);
+}
+
+/* Every row of the run logs, whole (--json: the windows' statistics pool over all runs). */
+static int invert_whole(int argc, char **argv, int first, const char *out_path,
+                        const stagecal_runlog_params *rp, const stagecal_runlog_analysis_params *ap,
+                        double murphree, cli_ctx *ctx)
+{
+    const stagecal_column *col = &ctx->sys.col;
+    int rc = 0;
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    stagecal_findings *f = stagecal_findings_alloc(rp->max_findings);
+    stagecal_runlog_result res;
+    stagecal_evidence_set ev;
+    memset(&res, 0, sizeof res);
+    memset(&ev, 0, sizeof ev);
+    if (!log || !f) {
+        cli_error("out of memory");
+        rc = CLI_EXIT_SOFTWARE;
+        goto done;
+    }
+    for (int i = first; i < argc && rc == 0; i++)
+        if (stagecal_runlog_read(log, argv[i], col, rp, f, &err) != STAGECAL_OK)
+            rc = cli_fail(&err);
+    if (rc)
+        goto done;
+    if (log->n == 0) { /* nothing to invert (as 'check' says): never an empty table, exit 0 */
+        show_findings(f, 1);
+        rc = CLI_EXIT_DATA;
+        goto done;
+    }
+    show_findings(f, 0);
+    if (stagecal_runlog_analyse(log, col, ap, &res, &err) != STAGECAL_OK ||
+        stagecal_runlog_invert(log, col, murphree, ap, &res, &err) != STAGECAL_OK ||
+        stagecal_evidence_build(log, &res, col, murphree, NULL, &ev, &err) != STAGECAL_OK) {
+        rc = cli_fail(&err);
+        goto done;
+    }
+    if (out_path && (rc = write_rows(log, col, &res, out_path)))
+        goto done;
+    closure_warnings(log->runs, res.closures, log->nruns);
+    rc = cli_json_print(summary_json(log, col, &res, &ev, f, out_path, murphree));
+done:
+    stagecal_evidence_set_free(&ev);
+    stagecal_runlog_result_free(&res);
+    stagecal_runlog_free(log);
+    stagecal_findings_free(f);
+    return rc;
+}
+
+/* Every row of the run logs, run by run (stagecal_runlog_invert_stream): memory holds a few
+ * runs whatever the length of the logs; the CSV to out_path (atomically) or stdout. */
+static int invert_streamed(char **paths, size_t n, const char *out_path,
+                           const stagecal_runlog_params *rp,
+                           const stagecal_runlog_analysis_params *ap, double murphree,
+                           size_t threads, cli_ctx *ctx)
+{
+    const stagecal_column *col = &ctx->sys.col;
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    stagecal_findings *f = stagecal_findings_alloc(rp->max_findings);
+    stagecal_runlog_stream *s =
+        f ? stagecal_runlog_stream_alloc((const char *const *)paths, n, col, rp, f) : NULL;
+    stagecal_runlog_totals tot;
+    memset(&tot, 0, sizeof tot);
+    int to_stdout = !out_path || strcmp(out_path, "-") == 0, rc = CLI_EXIT_OK;
+    atomic_file a;
+    FILE *out = stdout;
+    atomic_init(&a);
+    ctx->data_on_stdout = to_stdout;
+    if (!s) {
+        cli_error("out of memory");
+        rc = CLI_EXIT_SOFTWARE;
+    } else if (!to_stdout && (atomic_open(&a, out_path, &err) != STAGECAL_OK ||
+                              !(out = atomic_stream(&a, &err)))) {
+        rc = cli_fail(&err);
+    } else {
+        int w = stagecal_runlog_invert_stream(s, col, murphree, ap, threads, out, &tot, &err);
+        if (w == STAGECAL_EWRITE) {
+            cli_error("cannot write '%s'", to_stdout ? "standard output" : out_path);
+            rc = CLI_EXIT_CANTCREAT;
+        } else if (w != STAGECAL_OK) {
+            rc = cli_fail(&err);
+        } else if (tot.rows == 0) { /* nothing to invert: never an empty table */
+            show_findings(f, 1);
+            rc = CLI_EXIT_DATA;
+        } else if (!to_stdout && atomic_publish(&a, out_path, ATOMIC_REPLACE, NULL, &err)) {
+            rc = cli_fail(&err);
+        }
+    }
+    if (!to_stdout)
+        atomic_discard(&a);
+    if (rc == CLI_EXIT_OK) {
+        show_findings(f, 0);
+        closure_warnings(tot.runs, tot.closures, tot.nruns);
+        if (!to_stdout)
+            summary_line(tot.rows, tot.count, tot.nwindows, out_path);
+    }
+    stagecal_runlog_totals_free(&tot);
+    stagecal_runlog_stream_free(s);
+    stagecal_findings_free(f);
+    return rc;
+}
+
 /* Every row of the run logs argv[first..argc). */
 static int invert_rows(int argc, char **argv, int first, const char *out_path, long minrows,
-                       const stagecal_runlog_analysis_params *ap, double murphree, cli_ctx *ctx)
+                       const stagecal_runlog_analysis_params *ap, double murphree, long threads,
+                       cli_ctx *ctx)
 {
     cli_system *sys = &ctx->sys;
     int rc;
@@ -219,81 +358,25 @@ static int invert_rows(int argc, char **argv, int first, const char *out_path, l
                                "(give '--output FILE.csv' with '--json')");
     if ((rc = cli_system_open(sys)))
         return rc;
-    const stagecal_column *col = &sys->col;
     stagecal_runlog_params rp = stagecal_runlog_default_params();
     rp.sha256 = 0; /* no provenance is recorded here */
     if (minrows > 0)
         rp.min_rows = (size_t)minrows;
-    stagecal_error err;
-    stagecal_error_clear(&err);
-    stagecal_runlog *log = stagecal_runlog_alloc();
-    stagecal_findings *f = stagecal_findings_alloc(rp.max_findings);
-    stagecal_runlog_result res;
-    stagecal_evidence_set ev;
-    memset(&res, 0, sizeof res);
-    memset(&ev, 0, sizeof ev);
-    if (!log || !f) {
-        cli_error("out of memory");
-        rc = CLI_EXIT_SOFTWARE;
-        goto done;
-    }
-    for (int i = first; i < argc && rc == 0; i++)
-        if (stagecal_runlog_read(log, argv[i], col, &rp, f, &err) != STAGECAL_OK)
-            rc = cli_fail(&err);
-    if (rc)
-        goto done;
-    if (log->n == 0) { /* nothing to invert (as 'check' says): never an empty table, exit 0 */
-        for (size_t i = 0; i < f->n && i < 10; i++)
-            cli_error("%s", f->items[i].text);
-        if (f->n == 0)
-            cli_error("no data rows in the run log(s)");
-        rc = CLI_EXIT_DATA;
-        goto done;
-    }
-    if (f->n_errors) {
-        for (size_t i = 0; i < f->n && i < 10; i++)
-            cli_warn("%s", f->items[i].text);
-        cli_warn("%zu validation errors: the rows concerned have missing values (run "
-                 "'stagecal check' for the full list)",
-                 f->n_errors);
-    }
-    if (stagecal_runlog_analyse(log, col, ap, &res, &err) != STAGECAL_OK ||
-        stagecal_runlog_invert(log, col, murphree, ap, &res, &err) != STAGECAL_OK ||
-        stagecal_evidence_build(log, &res, col, murphree, NULL, &ev, &err) != STAGECAL_OK) {
-        rc = cli_fail(&err);
-        goto done;
-    }
-    ctx->data_on_stdout = !ctx->json && (!out_path || strcmp(out_path, "-") == 0);
-    if ((out_path || !ctx->json) && (rc = write_rows(log, col, &res, out_path)))
-        goto done;
-    for (size_t k = 0; k < log->nruns; k++) {
-        const stagecal_runlog_closure *cl = &res.closures[k];
-        if (cl->gross || cl->drift)
-            cli_warn("run '%s': %s%s%s (closure %+.2f %%)", log->runs[k].name,
-                     cl->gross ? "mass balance does not close" : "",
-                     cl->gross && cl->drift ? ", " : "", cl->drift ? "xB analyser drift" : "",
-                     100.0 * cl->closure);
-    }
     if (ctx->json)
-        rc = cli_json_print(summary_json(log, col, &res, &ev, f, out_path, murphree));
-    else if (!ctx->data_on_stdout)
-        printf("%zu rows: %zu ok, %zu pinch, %zu azeotrope, %zu invalid, %zu censored (one-sided "
-               "bounds in stages_low/stages_high); %zu quasi-steady windows; written to %s\n",
-               log->n, res.count[0], res.count[1], res.count[2], res.count[3],
-               res.count[STAGECAL_RUNLOG_CENSORED], res.nwindows, out_path);
-done:
-    stagecal_evidence_set_free(&ev);
-    stagecal_runlog_result_free(&res);
-    stagecal_runlog_free(log);
-    stagecal_findings_free(f);
-    return rc;
+        return invert_whole(argc, argv, first, out_path, &rp, ap, murphree, ctx);
+    if (threads < 0) {
+        long online = sysconf(_SC_NPROCESSORS_ONLN);
+        threads = online < 1 ? 1 : online > 8 ? 8 : online;
+    }
+    return invert_streamed(argv + first, (size_t)(argc - first), out_path, &rp, ap, murphree,
+                           (size_t)threads, ctx);
 }
 
 int cmd_invert(int argc, char **argv, cli_ctx *ctx)
 {
     double xd = NAN, xb = NAN, reflux = NAN, murphree = 1.0;
     const char *out_path = NULL;
-    long minrows = 0;
+    long minrows = 0, threads = -1;
     stagecal_runlog_analysis_params ap = stagecal_runlog_analysis_default_params();
     const struct cli_option opts[] = {
         OPT_SYSTEM(&ctx->sys),
@@ -307,6 +390,11 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
         OPT_MIN_ROWS(&minrows),
         OPT_WARM_UP(&ap.warmup_s),
         OPT_MIN_WINDOW(&ap.min_window_s),
+        OPT_LONG("threads", &threads, "N",
+                 "run logs: threads inverting runs while one reads (default: the\n"
+                 "processors online, at most 8; 0: one thread does everything; the output\n"
+                 "does not depend on it)",
+                 0, 64),
         OPT_END_COMMON(ctx),
     };
     int first, rc;
@@ -314,11 +402,11 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
         return rc;
     /* the mode follows from what was given: run logs, or a point */
     if (first < argc || out_path || cli_given(opts, "min-rows") || cli_given(opts, "warm-up") ||
-        cli_given(opts, "min-window")) {
+        cli_given(opts, "min-window") || cli_given(opts, "threads")) {
         if (!isnan(xd) || !isnan(xb) || !isnan(reflux))
             return cli_usage_error("options '--xd', '--xb' and '--reflux' are for one point, "
                                    "not with run logs (each row carries its own)");
-        return invert_rows(argc, argv, first, out_path, minrows, &ap, murphree, ctx);
+        return invert_rows(argc, argv, first, out_path, minrows, &ap, murphree, threads, ctx);
     }
     return invert_point(xd, xb, reflux, murphree, ctx);
 }

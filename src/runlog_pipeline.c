@@ -1,0 +1,272 @@
+/*
+ * runlog_pipeline.c — run-log inversion run by run (stagecal_runlog_invert_stream): one
+ * thread reads the runs from a stagecal_runlog_stream, nthreads workers analyse and invert
+ * them, and each worker writes its run when the run before it has been written.
+ *
+ * Why run by run: every step of the per-row output — the closure, the no-distillate
+ * stretches, the inversion, the steady flags and the windows (runlog_analysis.c) — works
+ * inside one run, so a run inverted on its own gives the bytes the whole log gives, with
+ * its window numbers offset by the windows before it. Memory then holds a few runs
+ * instead of the log. The workers take the runs in order and write in order (a sequence
+ * number and one condition variable), so the output is the same for any nthreads.
+ *
+ * Workload: runs of 10^3–10^5 rows; reading is about half of the time, so two cores give
+ * close to two-fold (docs/performance.md).
+ */
+#include <pthread.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "internal.h"
+#include "runlog_internal.h"
+
+enum { SLOT_FREE = 0, SLOT_READING, SLOT_READY, SLOT_BUSY };
+
+struct slot {
+    stagecal_runlog *log; /* one run (its arrays are reused from run to run) */
+    size_t seq;           /* its place in the output */
+    int state;            /* SLOT_* */
+};
+
+struct pipe {
+    pthread_mutex_t mu;
+    pthread_cond_t cv;
+    struct slot *slots;
+    size_t nslots;
+    size_t next_take;  /* sequence number the next worker takes */
+    size_t next_write; /* sequence number whose turn it is to write */
+    int done;          /* the reader has handed out every run */
+    int rc;            /* first failure (STAGECAL_OK while none) */
+    stagecal_error err;
+    /* the job */
+    const stagecal_column *col;
+    double murphree;
+    stagecal_runlog_analysis_params par;
+    FILE *out;
+    stagecal_runlog_totals *tot;
+    size_t window_base; /* windows written so far (only the writer in turn touches it) */
+};
+
+void stagecal_runlog_totals_free(stagecal_runlog_totals *t)
+{
+    if (!t)
+        return;
+    free(t->runs);
+    free(t->closures);
+    free(t->files);
+    memset(t, 0, sizeof *t);
+}
+
+/* Writes the inverted run of log (the writer in turn) and adds it to the totals. */
+static int write_run(struct pipe *p, const stagecal_runlog *log, const stagecal_runlog_result *res,
+                     stagecal_error *err)
+{
+    stagecal_runlog_totals *t = p->tot;
+    stagecal_runlog_run *runs = realloc(t->runs, (t->nruns + 1) * sizeof *runs);
+    if (runs)
+        t->runs = runs;
+    stagecal_runlog_closure *cl = runs ? realloc(t->closures, (t->nruns + 1) * sizeof *cl) : NULL;
+    if (cl)
+        t->closures = cl;
+    char(*files)[160] = cl ? realloc(t->files, log->nfiles * sizeof *files) : NULL;
+    if (!files)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    t->files = files;
+    memcpy(files, log->files, log->nfiles * sizeof *files);
+    t->nfiles = log->nfiles;
+    int rc = runlog_write_rows(log, p->col, res, p->window_base, t->rows == 0, p->out, err);
+    if (rc != STAGECAL_OK)
+        return rc;
+    runs[t->nruns] = log->runs[0];
+    runs[t->nruns].first = t->rows;
+    cl[t->nruns] = res->closures[0];
+    cl[t->nruns].run = t->nruns;
+    t->nruns++;
+    t->rows += log->n;
+    t->nwindows += res->nwindows;
+    for (int k = 0; k < STAGECAL_RUNLOG_NSTATUS; k++)
+        t->count[k] += res->count[k];
+    p->window_base += res->nwindows;
+    return STAGECAL_OK;
+}
+
+/* Analyses and inverts the run of sl; then, in its turn, writes it. Called without the lock. */
+static int do_run(struct pipe *p, struct slot *sl, stagecal_physics *ph, stagecal_error *err)
+{
+    stagecal_runlog_result res;
+    memset(&res, 0, sizeof res);
+    int rc = stagecal_runlog_analyse(sl->log, p->col, &p->par, &res, err);
+    if (rc == STAGECAL_OK)
+        rc = runlog_invert_with(sl->log, p->col, p->murphree, &p->par, ph, &res, err);
+    pthread_mutex_lock(&p->mu);
+    while (p->next_write != sl->seq && p->rc == STAGECAL_OK)
+        pthread_cond_wait(&p->cv, &p->mu);
+    int go = p->rc == STAGECAL_OK;
+    pthread_mutex_unlock(&p->mu);
+    if (rc == STAGECAL_OK && go)
+        rc = write_run(p, sl->log, &res, err);
+    stagecal_runlog_result_free(&res);
+    return rc;
+}
+
+/* Marks sl written (or the work failed with rc) and wakes everyone; under the lock. */
+static void finish_run(struct pipe *p, struct slot *sl, int rc, const stagecal_error *err)
+{
+    if (rc != STAGECAL_OK && p->rc == STAGECAL_OK) {
+        p->rc = rc;
+        p->err = *err;
+    }
+    p->next_write++;
+    sl->state = SLOT_FREE;
+    pthread_cond_broadcast(&p->cv);
+}
+
+static void *worker(void *arg)
+{
+    struct pipe *p = arg;
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    stagecal_physics *ph = stagecal_physics_alloc(p->col, NULL, &err);
+    pthread_mutex_lock(&p->mu);
+    if (!ph && p->rc == STAGECAL_OK) {
+        p->rc = err.code ? err.code : STAGECAL_ENOMEM;
+        p->err = err;
+        pthread_cond_broadcast(&p->cv);
+    }
+    while (ph) {
+        struct slot *sl = NULL;
+        for (size_t i = 0; i < p->nslots && !sl; i++)
+            if (p->slots[i].state == SLOT_READY && p->slots[i].seq == p->next_take)
+                sl = &p->slots[i];
+        if (!sl) {
+            if (p->done || p->rc != STAGECAL_OK)
+                break;
+            pthread_cond_wait(&p->cv, &p->mu);
+            continue;
+        }
+        sl->state = SLOT_BUSY;
+        p->next_take++;
+        pthread_mutex_unlock(&p->mu);
+        int rc = do_run(p, sl, ph, &err);
+        pthread_mutex_lock(&p->mu);
+        finish_run(p, sl, rc, &err);
+    }
+    pthread_mutex_unlock(&p->mu);
+    stagecal_physics_free(ph);
+    return NULL;
+}
+
+/* Everything in the calling thread. */
+static int run_inline(struct pipe *p, stagecal_runlog_stream *s, stagecal_error *err)
+{
+    stagecal_physics *ph = stagecal_physics_alloc(p->col, NULL, err);
+    if (!ph)
+        return err ? err->code : STAGECAL_ENOMEM;
+    struct slot *sl = &p->slots[0];
+    int rc;
+    for (;;) {
+        if ((rc = stagecal_runlog_stream_next(s, sl->log, err)) != STAGECAL_OK || sl->log->n == 0)
+            break;
+        sl->seq = p->next_write;
+        if ((rc = do_run(p, sl, ph, err)) != STAGECAL_OK)
+            break;
+        p->next_write++;
+    }
+    stagecal_physics_free(ph);
+    return rc;
+}
+
+/* The reader's side: fills free slots in order until the stream ends or the work fails. */
+static int feed(struct pipe *p, stagecal_runlog_stream *s, stagecal_error *err)
+{
+    size_t seq = 0;
+    int rc = STAGECAL_OK;
+    pthread_mutex_lock(&p->mu);
+    for (;;) {
+        struct slot *sl = NULL;
+        for (size_t i = 0; i < p->nslots && !sl; i++)
+            if (p->slots[i].state == SLOT_FREE)
+                sl = &p->slots[i];
+        if (p->rc != STAGECAL_OK)
+            break;
+        if (!sl) {
+            pthread_cond_wait(&p->cv, &p->mu);
+            continue;
+        }
+        sl->state = SLOT_READING;
+        pthread_mutex_unlock(&p->mu);
+        rc = stagecal_runlog_stream_next(s, sl->log, err);
+        pthread_mutex_lock(&p->mu);
+        if (rc != STAGECAL_OK || sl->log->n == 0) {
+            sl->state = SLOT_FREE;
+            break;
+        }
+        sl->seq = seq++;
+        sl->state = SLOT_READY;
+        pthread_cond_broadcast(&p->cv);
+    }
+    p->done = 1;
+    pthread_cond_broadcast(&p->cv);
+    pthread_mutex_unlock(&p->mu);
+    return rc;
+}
+
+int stagecal_runlog_invert_stream(stagecal_runlog_stream *s, const stagecal_column *col,
+                                  double murphree, const stagecal_runlog_analysis_params *params,
+                                  size_t nthreads, FILE *out, stagecal_runlog_totals *tot,
+                                  stagecal_error *err)
+{
+    memset(tot, 0, sizeof *tot);
+    if (!col || !col->system.vle)
+        return error_set(err, STAGECAL_EINVAL, "the inversion needs a column with a VLE model");
+    struct pipe *p = calloc(1, sizeof *p);
+    size_t nslots = nthreads + 2;
+    if (p)
+        p->slots = calloc(nslots, sizeof *p->slots);
+    int rc = p && p->slots ? STAGECAL_OK : STAGECAL_ENOMEM;
+    for (size_t i = 0; rc == STAGECAL_OK && i < nslots; i++)
+        if (!(p->slots[i].log = stagecal_runlog_alloc()))
+            rc = STAGECAL_ENOMEM;
+    if (rc != STAGECAL_OK) {
+        for (size_t i = 0; p && p->slots && i < nslots; i++)
+            stagecal_runlog_free(p->slots[i].log);
+        free(p ? p->slots : NULL);
+        free(p);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    p->nslots = nslots;
+    p->col = col;
+    p->murphree = murphree;
+    p->par = params ? *params : stagecal_runlog_analysis_default_params();
+    p->out = out;
+    p->tot = tot;
+    stagecal_error_clear(err);
+    pthread_mutex_init(&p->mu, NULL);
+    pthread_cond_init(&p->cv, NULL);
+    if (nthreads == 0) {
+        rc = run_inline(p, s, err);
+    } else {
+        pthread_t *th = calloc(nthreads, sizeof *th);
+        size_t started = 0;
+        while (th && started < nthreads && pthread_create(&th[started], NULL, worker, p) == 0)
+            started++;
+        rc = started ? feed(p, s, err) : error_set(err, STAGECAL_ENOMEM, "cannot start a thread");
+        if (!started)
+            p->done = 1;
+        for (size_t i = 0; i < started; i++)
+            pthread_join(th[i], NULL);
+        free(th);
+        if (rc == STAGECAL_OK && p->rc != STAGECAL_OK) {
+            rc = p->rc;
+            if (err)
+                *err = p->err;
+        }
+    }
+    pthread_cond_destroy(&p->cv);
+    pthread_mutex_destroy(&p->mu);
+    for (size_t i = 0; i < nslots; i++)
+        stagecal_runlog_free(p->slots[i].log);
+    free(p->slots);
+    free(p);
+    return rc;
+}
