@@ -369,9 +369,9 @@ static int copy_files(stagecal_runlog *dst, const stagecal_runlog *src)
 #define ROW_DOUBLES(l)                                                                             \
     {                                                                                              \
         &(l)->t_s, &(l)->w_mol, &(l)->xd, &(l)->xb, &(l)->r, &(l)->v_mol_s, &(l)->p_pa,            \
-            &(l)->t_top_k, &(l)->t_pot_k, &(l)->t_reflux_k                                         \
+            &(l)->t_top_k, &(l)->t_pot_k, &(l)->t_reflux_k, &(l)->r_set, &(l)->u_r_set             \
     }
-#define N_ROW_DOUBLES 10
+#define N_ROW_DOUBLES 12
 
 static void swap_storage(stagecal_runlog *a, stagecal_runlog *b)
 {

@@ -22,6 +22,7 @@
 #include <string.h>
 
 #include "runlog_internal.h"
+#include "synth_runlog.h"
 #include "stagecal/column.h"
 #include "stagecal/runlog.h"
 
@@ -248,9 +249,55 @@ static void runlog_stream_bad_inputs_as_whole(void **state)
     compare_whole_and_stream(p, n, NULL);
 }
 
-/* The whole log through analyse + invert + write_csv (the reference), and streamed with
- * 0 to 3 worker threads: the same bytes. The demo logs have 84 runs and 51 windows, so the
- * window numbers run across runs and files. */
+/* The whole log of paths through analyse + invert + write_csv (the reference), and streamed
+ * with 0 to 3 worker threads: the same bytes, the same totals. */
+static void check_stream_inversion(const char *const *p, size_t np, const stagecal_column *col,
+                                   size_t min_windows)
+{
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    for (size_t i = 0; i < np; i++)
+        assert_int_equal(stagecal_runlog_read(log, p[i], col, NULL, NULL, NULL), 0);
+    stagecal_runlog_result res;
+    char *want = NULL, *got = NULL;
+    size_t nwant = 0, ngot = 0;
+    FILE *out = open_memstream(&want, &nwant);
+    assert_int_equal(stagecal_runlog_analyse(log, col, NULL, &res, NULL), 0);
+    assert_int_equal(stagecal_runlog_invert(log, col, 1.0, NULL, &res, NULL), 0);
+    assert_int_equal(stagecal_runlog_write_csv(log, col, &res, out, NULL), 0);
+    fclose(out);
+    assert_true(res.nwindows >= min_windows && log->nruns > 1);
+    for (size_t threads = 0; threads <= 3; threads++) {
+        stagecal_runlog_stream *s = stagecal_runlog_stream_alloc(p, np, col, NULL, NULL);
+        stagecal_runlog_totals tot;
+        out = open_memstream(&got, &ngot);
+        assert_int_equal(stagecal_runlog_invert_stream(s, col, 1.0, NULL, threads, out, &tot, NULL),
+                         0);
+        fclose(out);
+        assert_int_equal(ngot, nwant);
+        assert_memory_equal(got, want, nwant);
+        assert_int_equal(tot.rows, log->n);
+        assert_int_equal(tot.nruns, log->nruns);
+        assert_int_equal(tot.nwindows, res.nwindows);
+        assert_memory_equal(tot.count, res.count, sizeof tot.count);
+        for (size_t k = 0; k < tot.nruns; k++) { /* the closure fields the CSV path sets */
+            assert_memory_equal(&tot.closures[k].closure, &res.closures[k].closure, sizeof(double));
+            assert_int_equal(tot.closures[k].gross, res.closures[k].gross);
+            assert_int_equal(tot.closures[k].drift, res.closures[k].drift);
+            assert_int_equal(tot.closures[k].drift_analyser, res.closures[k].drift_analyser);
+            assert_int_equal(tot.closures[k].n_outliers, res.closures[k].n_outliers);
+        }
+        stagecal_runlog_totals_free(&tot);
+        stagecal_runlog_stream_free(s);
+        free(got);
+        got = NULL;
+    }
+    free(want);
+    stagecal_runlog_result_free(&res);
+    stagecal_runlog_free(log);
+}
+
+/* The demo logs: 84 runs and 51 windows in 14 files, so the window numbers run across runs
+ * and files. */
 static void runlog_stream_inversion_as_whole(void **state)
 {
     (void)state;
@@ -261,46 +308,57 @@ static void runlog_stream_inversion_as_whole(void **state)
         0);
     static char paths[14][512];
     const char *p[14];
-    stagecal_runlog *log = stagecal_runlog_alloc();
     for (int i = 0; i < 14; i++) {
         snprintf(paths[i], sizeof paths[i], STAGECAL_DATASETS "/demo/logs/%d-%02d.csv",
                  i < 12 ? 2025 : 2026, i < 12 ? i + 1 : i - 11);
         p[i] = paths[i];
-        assert_int_equal(stagecal_runlog_read(log, p[i], &col, NULL, NULL, NULL), 0);
     }
-    stagecal_runlog_result res;
-    char *want = NULL, *got = NULL;
-    size_t nwant = 0, ngot = 0;
-    FILE *out = open_memstream(&want, &nwant);
-    assert_int_equal(stagecal_runlog_analyse(log, &col, NULL, &res, NULL), 0);
-    assert_int_equal(stagecal_runlog_invert(log, &col, 1.0, NULL, &res, NULL), 0);
-    assert_int_equal(stagecal_runlog_write_csv(log, &col, &res, out, NULL), 0);
-    fclose(out);
-    assert_true(res.nwindows > 10 && log->nruns > 50);
-    for (size_t threads = 0; threads <= 3; threads++) {
-        stagecal_runlog_stream *s = stagecal_runlog_stream_alloc(p, 14, &col, NULL, NULL);
-        stagecal_runlog_totals tot;
-        out = open_memstream(&got, &ngot);
-        assert_int_equal(
-            stagecal_runlog_invert_stream(s, &col, 1.0, NULL, threads, out, &tot, NULL), 0);
-        fclose(out);
-        assert_int_equal(ngot, nwant);
-        assert_memory_equal(got, want, nwant);
-        assert_int_equal(tot.rows, log->n);
-        assert_int_equal(tot.nruns, log->nruns);
-        assert_int_equal(tot.nwindows, res.nwindows);
-        assert_memory_equal(tot.count, res.count, sizeof tot.count);
-        for (size_t k = 0; k < tot.nruns; k++)
-            assert_memory_equal(&tot.closures[k], &res.closures[k], sizeof res.closures[k]);
-        stagecal_runlog_totals_free(&tot);
-        stagecal_runlog_stream_free(s);
-        free(got);
-        got = NULL;
-    }
-    free(want);
-    stagecal_runlog_result_free(&res);
-    stagecal_runlog_free(log);
+    check_stream_inversion(p, 14, &col, 40);
     stagecal_column_free(&col);
+}
+
+static double smoker_pot(void *ctx, double r, double xd, double n, double p)
+{
+    (void)ctx, (void)p;
+    return oracle_smoker_xb(2.0, r, xd, n);
+}
+
+static double sat_law(void *ctx, double r)
+{
+    (void)ctx;
+    return 8.0 * (1 - exp(-0.45 * r));
+}
+
+/* A measured R that scatters about its set points (tests/synth_runlog.h, 6 runs): the set
+ * points (log->r_set, found at the end of each run) travel with the run. */
+static void runlog_stream_measured_reflux_as_whole(void **state)
+{
+    (void)state;
+    static const double rset[] = {1.5, 2.5, 4.0, 6.0, 10.0};
+    struct srl_spec sp = {smoker_pot, NULL,   sat_law, 6,     rset, 5,      78,  60.0,
+                          0.02,       0.0015, 0.0025,  200.0, 0.35, 0.0015, NULL};
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 3);
+    size_t len = 0;
+    char *csv = srl_csv(&sp, rng, &len);
+    assert_non_null(csv);
+    const char *path = STAGECAL_BUILD_DIR "/test_runlog_stream_measured.csv";
+    FILE *f = fopen(path, "w");
+    assert_non_null(f);
+    assert_int_equal(fwrite(csv, 1, len, f), len);
+    fclose(f);
+    stagecal_column col;
+    memset(&col, 0, sizeof col);
+    col.system.vle = stagecal_vle_alloc_alpha(2.0, NULL);
+    col.system.p_pa = 101325;
+    col.u.xd = 0.0015;
+    col.u.xb = 0.0025;
+    col.u.r = 0.02;
+    check_stream_inversion(&path, 1, &col, 12);
+    stagecal_vle_free(col.system.vle);
+    remove(path);
+    free(csv);
+    gsl_rng_free(rng);
 }
 
 int main(void)
@@ -311,6 +369,7 @@ int main(void)
         cmocka_unit_test(runlog_stream_demo_logs_as_whole),
         cmocka_unit_test(runlog_stream_bad_inputs_as_whole),
         cmocka_unit_test(runlog_stream_inversion_as_whole),
+        cmocka_unit_test(runlog_stream_measured_reflux_as_whole),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
