@@ -267,6 +267,10 @@ static int read_model(const rd *r, json_t *sys, stagecal_system *s, const stagec
         s->vle = stagecal_vle_alloc_activity(kd, ant, p, np, s->p_pa, NULL, &ve);
     }
     }
+    if (s->vle && stagecal_vle_validate(s->vle, NULL, &ve) != STAGECAL_OK) {
+        stagecal_vle_free(s->vle);
+        s->vle = NULL;
+    }
     if (!s->vle)
         return error_set_at(r->jr.err,
                             ve.code == STAGECAL_ENOMEM ? STAGECAL_ENOMEM : STAGECAL_EDATA,

@@ -223,6 +223,10 @@ int stagecal_model_build_vle(const stagecal_model *m, stagecal_vle **out, stagec
     stagecal_error verr;
     stagecal_error_clear(&verr);
     *out = stagecal_vle_alloc_definition(&d, &verr);
+    if (*out && stagecal_vle_validate(*out, NULL, &verr) != STAGECAL_OK) {
+        stagecal_vle_free(*out);
+        *out = NULL;
+    }
     if (!*out) {
         int code =
             verr.code == STAGECAL_EINVAL || verr.code == STAGECAL_OK ? STAGECAL_EDATA : verr.code;

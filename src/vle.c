@@ -276,7 +276,13 @@ static int table_query(const stagecal_vle *v, vle_query q, double in, double *ou
 {
     if (q == VLE_XSTAR)
         return vle_herm_invert(v, in, out);
-    *out = q == VLE_YSTAR ? vle_herm_eval(v, v->ys, v->ms, in) : vle_herm_deriv(v, in);
+    if (q == VLE_DYDX) {
+        *out = vle_herm_deriv(v, in);
+        return STAGECAL_OK;
+    }
+    /* a monotone segment stays between its node values, which lie in [0, 1]
+     * (stagecal_vle_validate): anything outside is rounding (y*(1) = 1 + 2^-52) */
+    *out = fmin(fmax(vle_herm_eval(v, v->ys, v->ms, in), 0.0), 1.0);
     return STAGECAL_OK;
 }
 

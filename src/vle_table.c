@@ -98,6 +98,8 @@ double vle_herm_eval(const stagecal_vle *v, const double *ys, const double *ms, 
     size_t i = v->bx ? locate_x(v, x) : vle_locate(v->xs, x, 0, v->n - 1);
     if (i >= v->n - 1)
         i = v->n - 2;
+    if (x == v->xs[i + 1]) /* the node value itself, not the cubic's rounding of it */
+        return ys[i + 1];
     hseg g = hseg_make(v, ys, ms, i);
     return hseg_val(&g, (x - g.x0) / g.h);
 }
@@ -172,6 +174,39 @@ void vle_find_branch_end(stagecal_vle *v)
             v->iend = i;
             break;
         }
+}
+
+int stagecal_vle_validate(const stagecal_vle *vle, double *x_fail, stagecal_error *err)
+{
+    if (vle->kind == STAGECAL_VLE_PSEUDO)
+        return stagecal_vle_validate(vle->base, x_fail, err);
+    if (vle->kind == STAGECAL_VLE_ALPHA || vle->kind == STAGECAL_VLE_KVALUE)
+        return STAGECAL_OK;
+    const char *kind = stagecal_vle_kind_name(vle->kind);
+    for (size_t i = 0; i < vle->n; i++)
+        if (!(vle->ys[i] >= 0.0 && vle->ys[i] <= 1.0)) {
+            if (x_fail)
+                *x_fail = vle->xs[i];
+            return error_set(err, STAGECAL_EDATA,
+                             "%s model: y* = %.9g at x = %.9g is outside [0, 1]", kind, vle->ys[i],
+                             vle->xs[i]);
+        }
+    if (vle->iend + 1 < vle->n) {
+        size_t i = vle->iend, jmin = i + 1;
+        for (size_t j = i + 1; j < vle->n; j++)
+            if (vle->ys[j] < vle->ys[jmin])
+                jmin = j;
+        if (x_fail)
+            *x_fail = vle->xs[i];
+        return error_set(err, STAGECAL_EDATA,
+                         "%s model: y* stops rising at x = %.6g (y* = %.6g) and %s %.3g "
+                         "at x = %.6g; expected y* to rise from 0 to 1 over [0, 1] (a liquid "
+                         "phase split, or parameters outside their range?)",
+                         kind, vle->xs[i], vle->ys[i],
+                         vle->ys[jmin] < vle->ys[i] ? "falls to" : "stays at", vle->ys[jmin],
+                         vle->xs[jmin]);
+    }
+    return STAGECAL_OK;
 }
 
 /* Node slopes of GSL's Steffen interpolant of ya over v->xs. */

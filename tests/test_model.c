@@ -1415,6 +1415,16 @@ static void model_vle_build_refuses_incomplete(void **state)
     expect_build_error(&m, "x has 3 values but y 4");
     stagecal_model_free(&m);
 
+    /* a curve that falls is refused on load with the x where it stops rising (the
+     * model file's table of issue 18: y = 0, 0.7, 0.6, 0.6) */
+    stagecal_model_init(&m);
+    snprintf(m.vle_kind, sizeof m.vle_kind, "table");
+    const double fx[4] = {0.0, 0.3, 0.6, 0.9}, fy[4] = {0.0, 0.7, 0.6, 0.6};
+    assert_int_equal(stagecal_model_add_vle_param(&m, "x", fx, 4, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_add_vle_param(&m, "y", fy, 4, &err), STAGECAL_OK);
+    expect_build_error(&m, "equilibrium model 'table': table model: y* stops rising at x = 0.3");
+    stagecal_model_free(&m);
+
     /* out of the model's domain: the vle's own message, as a data error */
     v = roundtrip_vle(6);
     stagecal_model_init(&m);

@@ -124,6 +124,15 @@ int stagecal_vle_ystar(const stagecal_vle *vle, double x, double *y);
  * when y*(x) itself turns down (a non-monotone table, an unstable parameter set) is
  * the branch cut there; y above its top is EINVAL. For KVALUE, x = y/K. */
 int stagecal_vle_xstar(const stagecal_vle *vle, double y, double *x);
+/* Checks the whole curve, as the column and model-file readers do before they accept a
+ * model: over [0, x_max] y* stays inside [0, 1] and rises from x = 0 without falling,
+ * going flat or collapsing (a drop back towards 0). Tables and activity models are
+ * judged on their nodes: each monotone node interval of the Hermite interpolant stays
+ * between its node values, so nodes inside [0, 1] and rising keep the curve inside and
+ * rising. ALPHA and KVALUE pass by construction; PSEUDO is judged by its base model.
+ * Returns STAGECAL_OK, or EDATA with a message naming the x where the curve fails and
+ * *x_fail set to it (x_fail may be NULL). */
+int stagecal_vle_validate(const stagecal_vle *vle, double *x_fail, stagecal_error *err);
 /* Slope d(y*)/dx at x: exact for ALPHA/KVALUE, the slope of the interpolant that
  * stagecal_vle_ystar evaluates for TABLE and IDEAL/activity (exact with params.exact). */
 int stagecal_vle_dydx(const stagecal_vle *vle, double x, double *dydx);
