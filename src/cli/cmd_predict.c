@@ -477,8 +477,9 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
                    "molar latent heat for the boil-up energy (default: the plan's,\n"
                    "else with --column the column file's, else the model file's)",
                    0, INFINITY, CLI_D_LO_OPEN, "a latent heat in kJ/mol"),
-        OPT_DOUBLE("every", &q.every, "H", "a trajectory row at least every H hours (default 0.1)",
-                   0, INFINITY, CLI_D_LO_OPEN, "an interval in hours"),
+        OPT_DOUBLE("every", &q.every, "H",
+                   "a trajectory row at least every H hours, H >= 0.01 (default 0.1)", 0.01,
+                   INFINITY, 0, "an interval of at least 0.01 h (36 s)"),
         OPT_OUTPUT(&q.out, "the trajectory as CSV ('-' = stdout)"),
         OPT_ALIAS("out", "output"),
         OPT_LONG("samples", &q.samples, "N",
