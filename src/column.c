@@ -288,8 +288,8 @@ static int read_holdup(const rd *r, json_t *root, stagecal_column *col)
     json_t *h = get_obj(r, root, "holdup", "holdup", 0, &rc);
     if (!h)
         return rc;
-    static const char *const hkeys[] = {"column_mol", "per_metre_mol", "per_tray_mol",
-                                        "reflux_drum_mol", NULL};
+    static const char *const hkeys[] = {"column_mol",      "per_metre_mol", "per_tray_mol",
+                                        "reflux_drum_mol", "u_rel",         NULL};
     double col_mol = 0, per_m = 0, per_tray = 0;
     if ((rc = check_keys(r, h, "holdup", hkeys)) ||
         (rc = get_num(r, h, "column_mol", "holdup.column_mol", 0, 0.0, 0, 1e9, &col_mol, " mol")) ||
@@ -298,7 +298,9 @@ static int read_holdup(const rd *r, json_t *root, stagecal_column *col)
         (rc = get_num(r, h, "per_tray_mol", "holdup.per_tray_mol", 0, 0.0, 0, 1e9, &per_tray,
                       " mol")) ||
         (rc = get_num(r, h, "reflux_drum_mol", "holdup.reflux_drum_mol", 0, 0.0, 0, 1e9,
-                      &col->holdup_drum_mol, " mol")))
+                      &col->holdup_drum_mol, " mol")) ||
+        (rc = get_num(r, h, "u_rel", "holdup.u_rel", 0, 0.0, 0, 1.0, &col->holdup_u_rel,
+                      " (relative standard uncertainty)")))
         return rc;
     if ((col_mol > 0) + (per_m > 0) + (per_tray > 0) > 1)
         return jr_fail(&r->jr, "holdup", "give one of column_mol, per_metre_mol, per_tray_mol");

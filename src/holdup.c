@@ -307,11 +307,15 @@ int stagecal_holdup_estimate(const stagecal_runlog *log, double u_xd,
 }
 
 /* Slope at t[c] of the least-squares quadratic through (t[j], x[j]), j in [a, b] with finite
- * values; NAN when fewer than 3 such points or the fit is singular. */
-static double local_slope(const double *t, const double *x, size_t a, size_t b, size_t c)
+ * values; NAN when fewer than 3 such points or the fit is singular. *se: its standard error
+ * from σ²·[(AᵀA)⁻¹]₁₁, σ the residual standard deviation (n − 3 degrees of freedom) with the
+ * analyser's u as a floor (u alone when n = 3). */
+static double local_slope(const double *t, const double *x, size_t a, size_t b, size_t c, double u,
+                          double *se)
 {
     double s[5] = {0}, r[3] = {0}, scale = 0;
     size_t m = 0;
+    *se = NAN;
     for (size_t j = a; j <= b; j++)
         if (isfinite(x[j]) && isfinite(t[j]))
             scale = fmax(scale, fabs(t[j] - t[c])), m++;
@@ -320,13 +324,13 @@ static double local_slope(const double *t, const double *x, size_t a, size_t b, 
     for (size_t j = a; j <= b; j++) {
         if (!isfinite(x[j]) || !isfinite(t[j]))
             continue;
-        double u = (t[j] - t[c]) / scale, p = 1;
-        for (int k = 0; k < 5; k++, p *= u)
+        double v = (t[j] - t[c]) / scale, p = 1;
+        for (int k = 0; k < 5; k++, p *= v)
             s[k] += p;
-        r[0] += x[j], r[1] += x[j] * u, r[2] += x[j] * u * u;
+        r[0] += x[j], r[1] += x[j] * v, r[2] += x[j] * v * v;
     }
-    double a3[9] = {s[0], s[1], s[2], s[1], s[2], s[3], s[2], s[3], s[4]};
-    gsl_matrix_view mv = gsl_matrix_view_array(a3, 3, 3);
+    double a3[9] = {s[0], s[1], s[2], s[1], s[2], s[3], s[2], s[3], s[4]}, inv[9];
+    gsl_matrix_view mv = gsl_matrix_view_array(a3, 3, 3), iv = gsl_matrix_view_array(inv, 3, 3);
     gsl_vector_view rv = gsl_vector_view_array(r, 3);
     double cbuf[3];
     gsl_vector_view cv = gsl_vector_view_array(cbuf, 3);
@@ -335,24 +339,36 @@ static double local_slope(const double *t, const double *x, size_t a, size_t b, 
     double slope = NAN;
     if (perm && gsl_linalg_LU_decomp(&mv.matrix, perm, &sign) == GSL_SUCCESS &&
         fabs(gsl_linalg_LU_det(&mv.matrix, sign)) > 1e-12 &&
-        gsl_linalg_LU_solve(&mv.matrix, perm, &rv.vector, &cv.vector) == GSL_SUCCESS)
+        gsl_linalg_LU_solve(&mv.matrix, perm, &rv.vector, &cv.vector) == GSL_SUCCESS &&
+        gsl_linalg_LU_invert(&mv.matrix, perm, &iv.matrix) == GSL_SUCCESS) {
         slope = cbuf[1] / scale;
+        double rss = 0;
+        for (size_t j = a; j <= b; j++) {
+            if (!isfinite(x[j]) || !isfinite(t[j]))
+                continue;
+            double v = (t[j] - t[c]) / scale, e = x[j] - (cbuf[0] + cbuf[1] * v + cbuf[2] * v * v);
+            rss += e * e;
+        }
+        double s2 = m > 3 ? rss / (double)(m - 3) : 0;
+        s2 = fmax(s2, u * u);
+        *se = sqrt(s2 * fmax(inv[4], 0)) / scale;
+    }
     gsl_permutation_free(perm);
     return slope;
 }
 
 /* dxD/dt at row i of the stretch [s, e) by a local quadratic over the rows within half_s
  * of it (at least min_side rows each side where the stretch has them); NAN when not
- * available. */
+ * available. *se: its standard error (local_slope). */
 static double row_slope(const stagecal_runlog *log, size_t s, size_t e, size_t i, double half_s,
-                        size_t min_side)
+                        size_t min_side, double u, double *se)
 {
     size_t a = i, b = i;
     while (a > s && (i - a < min_side || log->t_s[i] - log->t_s[a - 1] <= half_s))
         a--;
     while (b + 1 < e && (b - i < min_side || log->t_s[b + 1] - log->t_s[i] <= half_s))
         b++;
-    return local_slope(log->t_s, log->xd, a, b, i);
+    return local_slope(log->t_s, log->xd, a, b, i, u, se);
 }
 
 /* Rows [s, e) of a total-reflux start-up that its fit su says are still rising: NAN. */
@@ -397,7 +413,10 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
                 startup_settling(log, s, e, hm->startup ? &hm->startup[k] : NULL, hm->u_xd,
                                  par.settle_factor, xd_ss);
             for (size_t i = s; i < e && isfinite(log->r[s]); i++) {
-                double d = isfinite(log->xd[i]) ? row_slope(log, s, e, i, half_s, h) : NAN;
+                double se_d = NAN;
+                double d = isfinite(log->xd[i])
+                               ? row_slope(log, s, e, i, half_s, h, hm->u_xd, &se_d)
+                               : NAN;
                 if (!isfinite(d))
                     continue;
                 if (hm->kind == STAGECAL_HOLDUP_COMP_LAG) {
@@ -417,8 +436,13 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
                 }
                 if (isfinite(v) && v > 0 &&
                     stagecal_holdup_steady_xd(hm->vle, log->xd[i], log->xb[i], runlog_rset(log, i),
-                                              &st, &x, NULL) == STAGECAL_OK)
+                                              &st, &x, NULL) == STAGECAL_OK) {
                     xd_ss[i] = x;
+                    /* the shift is linear in the holdup and in dxD/dt to first order */
+                    double sh = x - log->xd[i], rs = d != 0 && isfinite(se_d) ? se_d / d : 0;
+                    if (u2_extra)
+                        u2_extra[i] = sh * sh * (hm->u_rel * hm->u_rel + rs * rs);
+                }
             }
             s = e;
         }

@@ -64,7 +64,7 @@ static void holdup_lag_compensation_inverts_a_ramp(void **state)
     assert_int_equal(stagecal_runlog_read_buffer(log, csv, len, "lag.csv", NULL, NULL, NULL, NULL),
                      0);
     stagecal_holdup_tau tk = {1, tau, 10, 0, 0, 5, ""};
-    stagecal_holdup_model hm = {STAGECAL_HOLDUP_COMP_LAG, &tk, tk, NULL, 0, 0, NULL, 0};
+    stagecal_holdup_model hm = {STAGECAL_HOLDUP_COMP_LAG, &tk, tk, NULL, 0, 0, NULL, 0, 0};
     double xs[40], u2[40];
     assert_int_equal(stagecal_holdup_compensate(log, &hm, NULL, xs, u2, NULL), 0);
     for (int i = 5; i < 40; i++) {
@@ -170,7 +170,7 @@ static void holdup_startup_rows_settle(void **state)
     stagecal_holdup_params hp = stagecal_holdup_default_params();
     double cut = hp.settle_factor * su.tau_s * log(fabs(su.rise) / 0.0002);
     assert_true(cut > 600 && cut < 4 * 3600.0);
-    stagecal_holdup_model hm = {STAGECAL_HOLDUP_COMP_LAG, &tau, pooled, NULL, 0, 0, &su, 0.002};
+    stagecal_holdup_model hm = {STAGECAL_HOLDUP_COMP_LAG, &tau, pooled, NULL, 0, 0, &su, 0.002, 0};
     double *xs = malloc(rl->n * sizeof *xs);
     assert_int_equal(stagecal_holdup_compensate(rl, &hm, NULL, xs, NULL, NULL), 0);
     size_t nset = 0, nkept = 0;
@@ -186,6 +186,40 @@ static void holdup_startup_rows_settle(void **state)
     assert_int_equal(stagecal_holdup_compensate(rl, &hm, NULL, xs, NULL, NULL), 0);
     assert_rel(xs[0], rl->xd[0], 0, "start-up row without a fit");
     free(xs);
+    stagecal_runlog_free(rl);
+}
+
+/* The STAGES correction's variance is Δ²·(u_rel² + (se(dxD/dt)/dxD/dt)²), Δ = xd_ss − xD:
+ * the difference between two u_rel is Δ²·(u1² − u0²) to rounding (1e-9 relative), and the
+ * slope term is ≥ 0. Noisy simulator log (u(xD) = 0.002), 7 stages, 4 % holdup, R = 2. */
+static void holdup_stages_variance(void **state)
+{
+    (void)state;
+    sim_dyn_params p = {2.4,  7,   25000,      0.5, 0.04,  0,     1.0,
+                        3600, 2.0, 6 * 3600.0, 120, 0.002, 0.003, 0.05};
+    stagecal_runlog *rl = sim_log(&p);
+    stagecal_vle *v = stagecal_vle_alloc_alpha(2.4, NULL);
+    stagecal_holdup_tau none = {0};
+    stagecal_holdup_model hm = {
+        STAGECAL_HOLDUP_COMP_STAGES, NULL, none, v, 1000, 0, NULL, 0.002, 0.1};
+    double *x0 = malloc(4 * rl->n * sizeof *x0), *u0 = x0 + rl->n, *x1 = u0 + rl->n,
+           *u1 = x1 + rl->n;
+    assert_int_equal(stagecal_holdup_compensate(rl, &hm, NULL, x0, u0, NULL), 0);
+    hm.u_rel = 0.2;
+    assert_int_equal(stagecal_holdup_compensate(rl, &hm, NULL, x1, u1, NULL), 0);
+    size_t checked = 0;
+    for (size_t i = 0; i < rl->n; i++) {
+        double d = x0[i] - rl->xd[i];
+        if (!isfinite(x0[i]) || d == 0)
+            continue;
+        assert_rel(x1[i], x0[i], 0, "u_rel does not move the correction");
+        assert_true(u0[i] >= d * d * 0.01 * (1 - 1e-9));
+        assert_rel(u1[i] - u0[i], d * d * (0.04 - 0.01), 1e-9, "variance linear in u_rel^2");
+        checked++;
+    }
+    assert_true(checked > 50);
+    free(x0);
+    stagecal_vle_free(v);
     stagecal_runlog_free(rl);
 }
 
@@ -239,6 +273,7 @@ int main(void)
         cmocka_unit_test(holdup_zero_is_plain),
         cmocka_unit_test(holdup_correction_matches_dynamic_column),
         cmocka_unit_test(holdup_startup_rows_settle),
+        cmocka_unit_test(holdup_stages_variance),
         cmocka_unit_test(holdup_demo_quick_start),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

@@ -244,15 +244,17 @@ static void physics_unused_inputs_warn(void **state)
 static void physics_column_members(void **state)
 {
     (void)state;
-    stagecal_column col = load(
-        "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"a\",\"condenser\":\"total\","
-        "\"packed_height_m\":4,\"pressure_drop_pa\":1500,\"holdup\":{\"per_metre_mol\":2.5,"
-        "\"reflux_drum_mol\":3},\"system\":{\"light\":{\"name\":\"l\",\"latent_heat_j_mol\":35000},"
-        "\"heavy\":{\"name\":\"h\",\"latent_heat_j_mol\":40000},\"cp_liquid_j_mol_k\":120,"
-        "\"model\":{\"kind\":\"alpha\",\"alpha\":2.5}}}");
+    stagecal_column col =
+        load("{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"a\",\"condenser\":\"total\","
+             "\"packed_height_m\":4,\"pressure_drop_pa\":1500,\"holdup\":{\"per_metre_mol\":2.5,"
+             "\"reflux_drum_mol\":3,\"u_rel\":0.15},\"system\":{\"light\":{\"name\":\"l\",\"latent_"
+             "heat_j_mol\":35000},"
+             "\"heavy\":{\"name\":\"h\",\"latent_heat_j_mol\":40000},\"cp_liquid_j_mol_k\":120,"
+             "\"model\":{\"kind\":\"alpha\",\"alpha\":2.5}}}");
     assert_rel(col.pressure_drop_pa, 1500, 0, "pressure drop");
     assert_rel(col.holdup_column_mol, 10, 1e-15, "holdup 2.5 mol/m x 4 m");
     assert_rel(col.holdup_drum_mol, 3, 0, "drum");
+    assert_rel(col.holdup_u_rel, 0.15, 0, "holdup relative uncertainty");
     assert_rel(col.system.latent_light_j_mol, 35000, 0, "light latent heat");
     assert_rel(col.system.latent_heavy_j_mol, 40000, 0, "heavy latent heat");
     assert_rel(col.system.cp_liquid_j_mol_k, 120, 0, "cp");
@@ -267,6 +269,10 @@ static void physics_column_members(void **state)
         "\"heavy\":{\"name\":\"h\"},\"model\":{\"kind\":\"alpha\",\"alpha\":2.5}}}",
         "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"a\",\"condenser\":\"total\","
         "\"holdup\":{\"column_mol\":1,\"per_metre_mol\":1},\"packed_height_m\":3,"
+        "\"system\":{\"light\":{\"name\":\"l\"},"
+        "\"heavy\":{\"name\":\"h\"},\"model\":{\"kind\":\"alpha\",\"alpha\":2.5}}}",
+        "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"a\",\"condenser\":\"total\","
+        "\"holdup\":{\"column_mol\":1,\"u_rel\":1.5},"
         "\"system\":{\"light\":{\"name\":\"l\"},"
         "\"heavy\":{\"name\":\"h\"},\"model\":{\"kind\":\"alpha\",\"alpha\":2.5}}}",
     };

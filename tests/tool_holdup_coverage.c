@@ -37,7 +37,8 @@
     "\"description\":\"SYNTHETIC: study column for tests/tool_holdup_coverage.c\","                \
     "\"condenser\":\"total\",\"system\":{\"light\":{\"name\":\"light\"},"                          \
     "\"heavy\":{\"name\":\"heavy\"},\"model\":{\"kind\":\"alpha\",\"alpha\":2.4}},"                \
-    "\"uncertainty\":{\"xd\":0.002,\"xb\":0.003},\"holdup\":{\"column_mol\":%.1f}}"
+    "\"uncertainty\":{\"xd\":0.002,\"xb\":0.003},\"holdup\":{\"column_mol\":%.1f,"                 \
+    "\"u_rel\":0.06}}"
 
 struct tally {
     int n, cover;

@@ -65,6 +65,8 @@ typedef struct {
                                      from holdup.column_mol, or per_metre_mol × packed height, or
                                      per_tray_mol × trays */
     double holdup_drum_mol;       /* liquid in the reflux drum and condenser [mol] (0 = none) */
+    double holdup_u_rel;          /* relative standard uncertainty of the stated holdups
+                                     (holdup.u_rel; 0 = not stated: 0.25 is assumed) */
     /* Warnings about the file's content that do not stop its use (an Antoine set used
      * outside its stated temperature range, ...), filled by the loader: every command that
      * uses the column shows them and calibration carries them into the model file. */

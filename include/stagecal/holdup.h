@@ -144,19 +144,22 @@ typedef struct {
     double holdup_mol, drum_mol;        /* STAGES: column and drum holdup [mol] */
     const stagecal_holdup_tau *startup; /* LAG, STAGES: each run's start-up fit (may be NULL) */
     double u_xd;                        /* the distillate analyser's standard uncertainty */
+    double u_rel; /* STAGES: relative standard uncertainty of the correction (the holdup's and
+                     the pseudo-steady model's) */
 } stagecal_holdup_model;
 
-/* Compensated distillate, one value per row of log (xd_ss), and the extra variance from
- * se(τ) (u2_extra, may be NULL; 0 for STAGES). A run's total-reflux start-up is the
- * column's own transient, not a steady state: with a compensation (LAG or STAGES) its rows
- * are still settling (xd_ss NAN) until settle_factor·τ·ln(|b|/(0.1·u_xd)) after its first
- * row, τ and b of the run's start-up fit (when it is ok; u_xd 0: 10⁻³·|b| for 0.1·u_xd), so
- * the fitted rise has decayed below a tenth of the analyser's uncertainty with the margin
- * settle_factor for the slower modes. Otherwise only rows at a finite logged R are changed:
- * dxD/dt comes from a local quadratic over the rows within slope_half_s each side (at least
- * half_window) within the
- * same stretch of one logged R; STAGES also needs the row's V. Rows where something is
- * missing or a solve fails keep the logged xD. ENOMEM, EINVAL. */
+/* Compensated distillate, one value per row of log (xd_ss), and the extra variance of the
+ * compensation (u2_extra, may be NULL): LAG (se(τ)·dxD/dt)²; STAGES Δ²·(u_rel² +
+ * (se(dxD/dt)/dxD/dt)²) with Δ = xd_ss − xD (the shift is linear in both to first order),
+ * se(dxD/dt) from the local quadratic's residuals (u_xd a floor). A run's total-reflux start-up is
+ * the column's own transient, not a steady state: with a compensation (LAG or STAGES) its rows are
+ * still settling (xd_ss NAN) until settle_factor·τ·ln(|b|/(0.1·u_xd)) after its first row, τ and b
+ * of the run's start-up fit (when it is ok; u_xd 0: 10⁻³·|b| for 0.1·u_xd), so the fitted rise has
+ * decayed below a tenth of the analyser's uncertainty with the margin settle_factor for the slower
+ * modes. Otherwise only rows at a finite logged R are changed: dxD/dt comes from a local quadratic
+ * over the rows within slope_half_s each side (at least half_window) within the same stretch of one
+ * logged R; STAGES also needs the row's V. Rows where something is missing or a solve fails keep
+ * the logged xD. ENOMEM, EINVAL. */
 int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup_model *hm,
                                const stagecal_holdup_params *params, double *xd_ss,
                                double *u2_extra, stagecal_error *err);
