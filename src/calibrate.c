@@ -16,6 +16,7 @@
 #include <string.h>
 #include <time.h>
 
+#include "calibrate_internal.h"
 #include "internal.h"
 #include "stagecal/hetp.h"
 #include "stagecal/stages.h"
@@ -42,6 +43,13 @@ stagecal_calibrate_params stagecal_calibrate_default_params(void)
     return p;
 }
 
+const stagecal_regress_result *stagecal_calibration_fit(const stagecal_calibration *cal)
+{
+    return cal->used == STAGECAL_MODEL_STAGE_SPACE ? &cal->stage_fit
+           : cal->used == STAGECAL_MODEL_CENSORED  ? &cal->cens_fit
+                                                   : &cal->comp_fit;
+}
+
 void stagecal_calibration_free(stagecal_calibration *cal)
 {
     if (!cal)
@@ -54,6 +62,7 @@ void stagecal_calibration_free(stagecal_calibration *cal)
     free(cal->flagged);
     stagecal_regress_result_free(&cal->stage_fit);
     stagecal_regress_result_free(&cal->comp_fit);
+    stagecal_regress_result_free(&cal->cens_fit);
     stagecal_model_free(&cal->model);
     memset(cal, 0, sizeof *cal);
 }
@@ -127,6 +136,8 @@ static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params
         mo->f_min = fit->f_min;
         mo->f_max = fit->f_max;
     }
+    if (cal->used == STAGECAL_MODEL_CENSORED)
+        calibrate_censored_model(cal, mo);
     /* provenance */
     /* the column's hash from the bytes its reader parsed; a second read only for a column
      * built in memory (sha256 empty) */
@@ -279,7 +290,21 @@ static int run_fits(stagecal_calibration *cal, const stagecal_calibrate_params *
         snprintf(cal->comp_message, sizeof cal->comp_message, "%s", e2.text);
     }
 
-    if (par->method == STAGECAL_CAL_STAGE) {
+    /* readings at an analyser's limit: the censored likelihood, which takes them */
+    int censored = par->method == STAGECAL_CAL_CENSORED ||
+                   (par->method == STAGECAL_CAL_AUTO && cal->evidence.ncens > 0);
+    cal->cens_status = CAL_NOT_RUN;
+    if (censored) {
+        progress(par, "fitting", 0.9);
+        stagecal_error_clear(&e2);
+        cal->cens_status = calibrate_censored(cal, par, &form, &cal->cens_fallback, &e2);
+        snprintf(cal->cens_message, sizeof cal->cens_message, "%s", e2.text);
+        if (cal->cens_status != STAGECAL_OK)
+            return error_set(err, cal->cens_status, "censored-likelihood fit: %s",
+                             cal->cens_message);
+        cal->used = STAGECAL_MODEL_CENSORED;
+        *fit = &cal->cens_fit;
+    } else if (par->method == STAGECAL_CAL_STAGE) {
         if (cal->stage_status != STAGECAL_OK)
             return error_set(err, cal->stage_status, "stage-space fit failed: %s",
                              cal->stage_message);
@@ -317,8 +342,23 @@ static int add_warnings(stagecal_calibration *cal, const stagecal_calibrate_para
                    "stage-space fit",
                    cal->comp_message)))
         return rc;
-    const stagecal_regress_result *used =
-        cal->used == STAGECAL_MODEL_STAGE_SPACE ? &cal->stage_fit : &cal->comp_fit;
+    const stagecal_regress_result *used = stagecal_calibration_fit(cal);
+    if (cal->used == STAGECAL_MODEL_CENSORED) {
+        if (cal->cens_fallback &&
+            (rc = warn(cal, err,
+                       "the evidence bounds the stage count from below only: the form the "
+                       "ranking chose has more parameters than a one-sided answer carries, so "
+                       "'constant' was fitted")))
+            return rc;
+        if (cal->cens.one_sided &&
+            (rc = warn(cal, err,
+                       "AT LEAST %.4g STAGES (one-sided %.0f %%): %zu of %zu readings are "
+                       "censored (an analyser at its limit); the evidence bounds the stage "
+                       "count from below only, more stages fit it as well",
+                       cal->cens.par[0].low, 100 * cal->cens.level, cal->cens.n_censored,
+                       cal->cens.n_readings)))
+            return rc;
+    }
     if (used->undetermined) {
         char why[STAGECAL_ERROR_TEXT];
         stagecal_regress_ident_text(used, why, sizeof why);
@@ -405,6 +445,7 @@ static int run_chain(stagecal_calibration *cal, const char *column_path,
     int rc;
     cal->stage_status = CAL_NOT_RUN;
     cal->comp_status = CAL_NOT_RUN;
+    cal->cens_status = CAL_NOT_RUN;
     progress(par, "inverting", 0.2);
     if ((rc = stagecal_runlog_analyse(cal->log, cal->column, &par->analysis, &cal->res, err)) ||
         (rc = stagecal_runlog_invert(cal->log, cal->column, par->murphree, &par->analysis,

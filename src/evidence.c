@@ -557,6 +557,9 @@ void stagecal_evidence_set_free(stagecal_evidence_set *set)
     evidence_physics_free(set);
     free(set->ev);
     free(set->samples);
+    free(set->cens);
+    free(set->cens_samples);
+    free(set->cens_flags);
     memset(set, 0, sizeof *set);
 }
 
@@ -716,6 +719,8 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
         if (e->n_ok < par.min_ok)
             e->stages_ok = 0; /* too few samples of the window invert on their own */
     }
+    if (rc == STAGECAL_OK)
+        rc = evidence_build_cens(log, xd_src, res, cap, set, err);
     free(xd_src);
     return rc;
 }

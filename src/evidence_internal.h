@@ -1,5 +1,6 @@
 /*
- * evidence_internal.h — what evidence.c takes from evidence_physics.c; not installed.
+ * evidence_internal.h — what evidence.c takes from evidence_physics.c and
+ * evidence_cens.c; not installed.
  */
 #ifndef STAGECAL_EVIDENCE_INTERNAL_H
 #define STAGECAL_EVIDENCE_INTERNAL_H
@@ -16,5 +17,10 @@ int evidence_conditions(const stagecal_runlog *log, const stagecal_column *col,
                         stagecal_evidence_set *set, stagecal_error *err);
 /* Frees what the two above allocated. */
 void evidence_physics_free(stagecal_evidence_set *set);
+/* set->cens (stagecal/evidence.h) after the evidence set->ev is complete, when some window
+ * row has a censored reading; xd_src as evidence_holdup gave it. ENOMEM. */
+int evidence_build_cens(const stagecal_runlog *log, const double *xd_src,
+                        const stagecal_runlog_result *res, size_t cap, stagecal_evidence_set *set,
+                        stagecal_error *err);
 
 #endif

@@ -42,7 +42,9 @@ static const double MODEL_PSD_TOL = 1e-10;
 
 const char *stagecal_model_method_name(stagecal_model_method method)
 {
-    return method == STAGECAL_MODEL_COMPOSITION_SPACE ? "composition-space" : "stage-space";
+    return method == STAGECAL_MODEL_COMPOSITION_SPACE ? "composition-space"
+           : method == STAGECAL_MODEL_CENSORED        ? "censored-likelihood"
+                                                      : "stage-space";
 }
 
 /* The optional physical data of the system: members of "system" (docs/model-file.md),
@@ -317,8 +319,17 @@ int model_check(const stagecal_model *m, const char *source, int code, stagecal_
         FAIL("dof = %g: expected a finite number > 0", m->dof);
     if (!(m->level > 0 && m->level < 1))
         FAIL("confidence_level = %g: expected a number in (0, 1)", m->level);
-    if (m->method != STAGECAL_MODEL_STAGE_SPACE && m->method != STAGECAL_MODEL_COMPOSITION_SPACE)
+    if (m->method != STAGECAL_MODEL_STAGE_SPACE && m->method != STAGECAL_MODEL_COMPOSITION_SPACE &&
+        m->method != STAGECAL_MODEL_CENSORED)
         FAIL("fit method %d is unknown", (int)m->method);
+    if (m->one_sided && m->method != STAGECAL_MODEL_CENSORED)
+        FAIL("a one-sided bound comes from the censored-likelihood fit only, not from '%s'",
+             stagecal_model_method_name(m->method));
+    for (size_t i = 0; m->one_sided && i < p; i++)
+        if (!isfinite(m->theta_ml[i]))
+            FAIL("one-sided bound: maximum-likelihood parameter %zu is %g (expected a finite "
+                 "number)",
+                 i, m->theta_ml[i]);
 
     if (!isfinite(m->r_min) || m->r_min < 0 || isnan(m->r_max) || m->r_max < m->r_min)
         FAIL("envelope: R range [%g, %g]: expected 0 <= r_min <= r_max (r_max may be inf)",
@@ -434,5 +445,12 @@ int stagecal_model_eval(const stagecal_model *m, double r, double f_load, double
         }
     }
     out->extrapolated = out->outside != 0;
+    if (m->one_sided) { /* the bound, at the model's level: no standard error to give */
+        out->lower_only = 1;
+        out->level = m->level;
+        out->se_fit = out->se_pred = out->t = NAN;
+        out->ci_low = out->pi_low = band.value;
+        out->ci_high = out->pi_high = INFINITY;
+    }
     return STAGECAL_OK;
 }

@@ -115,7 +115,10 @@ static json_t *build_doc(const stagecal_model *m)
                   "length", "m", "covariance", "of the parameters, in their own units");
 
     bad |= json_object_set_new(doc, "format", json_string(STAGECAL_MODEL_FORMAT));
-    bad |= json_object_set_new(doc, "version", json_integer(STAGECAL_MODEL_VERSION));
+    /* version 2 only where it is needed, so that older readers refuse what they would
+     * misread (a censored-likelihood fit, a one-sided bound) and read everything else */
+    bad |= json_object_set_new(doc, "version",
+                               json_integer(m->method == STAGECAL_MODEL_CENSORED ? 2 : 1));
     bad |= json_object_set_new(doc, "column", json_string(m->column_id));
     json_t *sys =
         json_pack("{s:s, s:s, s:o}", "light", m->light, "heavy", m->heavy, "equilibrium", vle);
@@ -136,6 +139,18 @@ static json_t *build_doc(const stagecal_model *m)
                   "covariance", cov, "sigma_stages", m->sigma, "dof", m->dof, "confidence_level",
                   m->level, "method", stagecal_model_method_name(m->method)));
     params = cov = NULL;
+    if (m->one_sided) {
+        json_t *ml = json_array();
+        for (size_t i = 0; ml && i < p; i++)
+            bad |= json_array_append_new(ml, json_real(m->theta_ml[i]));
+        bad |= json_object_set_new(
+            json_object_get(doc, "correlation"), "one_sided",
+            json_pack("{s:s, s:f, s:o, s:s}", "side", "lower", "level", m->level,
+                      "maximum_likelihood", ml ? ml : json_null(), "meaning",
+                      "the evidence bounds the stage count from below only: the parameters give "
+                      "'at least N stages' at the confidence level, one-sided; the covariance "
+                      "means nothing"));
+    }
     bad |= json_object_set_new(doc, "evidence",
                                json_pack("{s:I, s:I, s:I}", "windows", (json_int_t)m->n_windows,
                                          "samples", (json_int_t)m->n_samples, "runs",
@@ -277,6 +292,38 @@ static int read_system(reader *rd, const json_t *doc, stagecal_model *m)
     return STAGECAL_OK;
 }
 
+/* correlation.one_sided (format version 2; absent: two-sided). */
+static int read_one_sided(reader *rd, const json_t *c, stagecal_model *m)
+{
+    int rc;
+    json_t *o = NULL, *ml = NULL;
+    char side[STAGECAL_MODEL_TEXT];
+    double level;
+    TRY(jr_object(J, c, "one_sided", "correlation.one_sided", 0, &o));
+    if (!o || json_is_null(o))
+        return STAGECAL_OK;
+    TRY(jr_string(J, o, "side", "correlation.one_sided.side", 1, 0, side, sizeof side));
+    if (strcmp(side, "lower") != 0)
+        return RFAIL(rd, "correlation.one_sided.side '%s': expected 'lower'", side);
+    TRY(jr_number(J, o, "level", "correlation.one_sided.level", 1, 0, &level, NULL));
+    if (level != m->level)
+        return RFAIL(rd, "correlation.one_sided.level %g differs from confidence_level %g", level,
+                     m->level);
+    TRY(jr_array(J, o, "maximum_likelihood", "correlation.one_sided.maximum_likelihood", 1, &ml));
+    if (json_array_size(ml) != m->form.p)
+        return RFAIL(rd,
+                     "correlation.one_sided.maximum_likelihood: expected %zu numbers, found %zu",
+                     m->form.p, json_array_size(ml));
+    for (size_t i = 0; i < m->form.p; i++) {
+        json_t *e = json_array_get(ml, i);
+        if (!json_is_number(e))
+            return RFAIL(rd, "correlation.one_sided.maximum_likelihood[%zu]: expected a number", i);
+        m->theta_ml[i] = json_number_value(e);
+    }
+    m->one_sided = 1;
+    return STAGECAL_OK;
+}
+
 static int read_correlation(reader *rd, const json_t *doc, stagecal_model *m)
 {
     int rc;
@@ -330,12 +377,14 @@ static int read_correlation(reader *rd, const json_t *doc, stagecal_model *m)
         m->method = STAGECAL_MODEL_STAGE_SPACE;
     else if (strcmp(method, "composition-space") == 0)
         m->method = STAGECAL_MODEL_COMPOSITION_SPACE;
+    else if (strcmp(method, "censored-likelihood") == 0)
+        m->method = STAGECAL_MODEL_CENSORED;
     else
         return RFAIL(rd,
-                     "correlation.method '%s': expected 'stage-space' or "
-                     "'composition-space'",
+                     "correlation.method '%s': expected 'stage-space', "
+                     "'composition-space' or 'censored-likelihood'",
                      method);
-    return STAGECAL_OK;
+    return read_one_sided(rd, c, m);
 }
 
 static int read_rest(reader *rd, const json_t *doc, stagecal_model *m)

@@ -21,6 +21,7 @@
 
 #include <stddef.h>
 
+#include "stagecal/censor.h"
 #include "stagecal/column.h"
 #include "stagecal/error.h"
 #include "stagecal/evidence.h"
@@ -54,14 +55,17 @@ int stagecal_fit_composition(const stagecal_vle *vle, double murphree, const sta
 /* ---- the whole chain --------------------------------------------------------------------- */
 
 typedef enum {
-    STAGECAL_CAL_AUTO = 0,   /* composition space, unless it fails (then stage space) */
-    STAGECAL_CAL_STAGE,      /* stage space only */
-    STAGECAL_CAL_COMPOSITION /* composition space only */
+    STAGECAL_CAL_AUTO = 0,    /* composition space, unless it fails (then stage space) */
+    STAGECAL_CAL_STAGE,       /* stage space only */
+    STAGECAL_CAL_COMPOSITION, /* composition space only */
+    STAGECAL_CAL_CENSORED     /* the censored likelihood (stagecal/censor.h) only */
 } stagecal_cal_method;
 
 typedef struct {
     const char *form;                  /* form name, or "auto" (rank by AICc in stage space) */
-    stagecal_cal_method method;        /* AUTO */
+    stagecal_cal_method method;        /* AUTO: the censored likelihood when a window holds a
+                                          censored reading, else composition space (stage
+                                          space when that fails) */
     double level;                      /* confidence level (0.95) */
     double murphree;                   /* E_MV of the column stages (1) */
     stagecal_evidence_params evidence; /* windows: carried samples, min_ok, pooling */
@@ -110,6 +114,17 @@ typedef struct {
     int comp_status; /* STAGECAL_OK, why the composition fit failed, or −1 (not run) */
     char comp_message[STAGECAL_ERROR_TEXT];
     stagecal_regress_result comp_fit;
+    int cens_status; /* STAGECAL_OK, why the censored-likelihood fit failed, or −1 (not run) */
+    char cens_message[STAGECAL_ERROR_TEXT];
+    stagecal_censored_fit cens;         /* that fit (on evidence.cens), stages 1 to 200 */
+    stagecal_regress_result cens_fit;   /* the same as the printers take it: θ̂, the profile
+                                           ends in ci_low/ci_high (NAN for an end the evidence
+                                           does not bound), se from the observed information
+                                           (NAN when one-sided), dof = readings − p − windows */
+    int cens_fallback;                  /* 1: 'auto' chose a form with more parameters than a
+                                           one-sided answer carries; constant was fitted */
+    double cens_r, cens_f;              /* the reference condition of cens_at (the HETP's) */
+    stagecal_censored_interval cens_at; /* stages there (profile likelihood) */
     stagecal_regress_rank_row rank[STAGECAL_REGRESS_MAXRANK]; /* --form auto */
     size_t nrank;
     stagecal_model_method used; /* which fit the model carries */
@@ -137,6 +152,9 @@ int stagecal_calibrate(const char *column_path, const char *const *logs, size_t 
                        const stagecal_calibrate_params *params, stagecal_calibration *cal,
                        stagecal_error *err);
 void stagecal_calibration_free(stagecal_calibration *cal); /* NULL ok */
+
+/* The fit the model carries (stage_fit, comp_fit or cens_fit, by cal->used). */
+const stagecal_regress_result *stagecal_calibration_fit(const stagecal_calibration *cal);
 
 #ifdef __cplusplus
 }

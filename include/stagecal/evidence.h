@@ -187,6 +187,18 @@ typedef struct {
     size_t nruns;
     stagecal_holdup_tau tau_pooled; /* over the runs */
     size_t n_settling;              /* rows left out as still settling after a reflux change */
+    /* the windows for a censored likelihood (stagecal/censor.h), built only when some row
+     * of a window has a censored reading (else ncens = 0): every run-log window with at least
+     * 3 rows that carry both readings — values or censored — even when its censored xD
+     * readings leave too few values for the evidence above; its rows' readings (censored ones
+     * at their limits, flagged in s_cens; outliers left out; evenly thinned to max_samples)
+     * in s_t/s_xd/s_xb/s_cens; r, f_load, run, cond from the evidence entry of the same
+     * window where there is one (else the plain model at the window's median R); no means,
+     * no stage count */
+    stagecal_evidence *cens;
+    size_t ncens;
+    double *cens_samples;
+    unsigned char *cens_flags;
 } stagecal_evidence_set;
 
 /* Builds the evidence of every window of res (after stagecal_runlog_analyse and

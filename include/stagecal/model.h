@@ -33,14 +33,21 @@ extern "C" {
 #endif
 
 #define STAGECAL_MODEL_FORMAT "stagecal-model" /* the "format" member */
-#define STAGECAL_MODEL_VERSION 1               /* the "version" this library writes */
-#define STAGECAL_MODEL_TEXT 64                 /* size of short text fields */
-#define STAGECAL_MODEL_HEX 65                  /* SHA-256 lowercase hex + NUL */
+#define STAGECAL_MODEL_VERSION                                                                     \
+    2                          /* the newest "version" this library reads and                      \
+                                  writes: 2 for a censored-likelihood fit (a                       \
+                                  method and a one-sided bound older readers                       \
+                                  must refuse), 1 otherwise */
+#define STAGECAL_MODEL_TEXT 64 /* size of short text fields */
+#define STAGECAL_MODEL_HEX 65  /* SHA-256 lowercase hex + NUL */
 
 /* How the correlation's parameters were fitted. */
 typedef enum {
-    STAGECAL_MODEL_STAGE_SPACE = 0,  /* "stage-space": stage counts per window regressed */
-    STAGECAL_MODEL_COMPOSITION_SPACE /* "composition-space": measured xB predicted */
+    STAGECAL_MODEL_STAGE_SPACE = 0,   /* "stage-space": stage counts per window regressed */
+    STAGECAL_MODEL_COMPOSITION_SPACE, /* "composition-space": measured xB predicted */
+    STAGECAL_MODEL_CENSORED           /* "censored-likelihood": the readings, censored ones as
+                                         bounds, in a likelihood with the true compositions
+                                         latent (stagecal/censor.h); format version 2 */
 } stagecal_model_method;
 
 /* One parameter of the equilibrium model, as read from the column file: a number
@@ -88,6 +95,13 @@ typedef struct {
     double dof;                   /* residual degrees of freedom, > 0 (may be fractional) */
     double level;                 /* default confidence level, in (0, 1), e.g. 0.95 */
     stagecal_model_method method; /* fit method */
+    int one_sided;                /* 1: the evidence bounds the stage count from below only
+                                     ("at least N stages", analyser at its limit): theta is the
+                                     one-sided lower bound at `level`, cov is 0 and means
+                                     nothing, theta_ml holds the maximum-likelihood estimate;
+                                     evaluation gives the bound, never a standard error
+                                     (format version 2, member correlation.one_sided) */
+    double theta_ml[STAGECAL_FORM_MAXP];
 
     /* evidence */
     size_t n_windows; /* quasi-steady windows (units of evidence) that carried the fit */
@@ -222,6 +236,9 @@ typedef struct {
                              * R = inf and r_max is finite (see lv_beyond) */
     double lv_beyond;       /* the same distance in L/V = R/(R+1), 0 inside, always finite */
     double f_beyond;        /* how far F lies outside [f_min, f_max] [Pa^0.5], 0 inside */
+    int lower_only;         /* 1 (a one_sided model): stages is a one-sided lower bound at the
+                               model's level — "at least N stages"; ci_low = pi_low = stages,
+                               ci_high = pi_high = INFINITY, se_fit = se_pred = t = NAN */
 } stagecal_model_point;
 
 /* Evaluates stages(R, F) with delta-method bands at confidence level `level`
@@ -233,7 +250,7 @@ typedef struct {
 int stagecal_model_eval(const stagecal_model *m, double r, double f_load, double level,
                         stagecal_model_point *out, stagecal_error *err);
 
-/* "stage-space" / "composition-space". */
+/* "stage-space" / "composition-space" / "censored-likelihood". */
 const char *stagecal_model_method_name(stagecal_model_method method);
 
 #ifdef __cplusplus

@@ -393,6 +393,12 @@ void cli_print_params(const stagecal_regress_result *f, int long_form)
     for (size_t i = 0; i < f->p; i++)
         if ((f->undetermined >> i) & 1u)
             printf("  %-*s %*s\n", nw, f->form.param_names[i], vw, "not determined");
+        else if (isfinite(f->ci_low[i]) && !isfinite(f->ci_high[i]))
+            printf("  %-*s %*s %.*g (one-sided %.0f%%; no upper end)\n", nw, f->form.param_names[i],
+                   vw, "at least", ip, f->ci_low[i], 100 * f->level);
+        else if (!isfinite(f->ci_low[i]) && isfinite(f->ci_high[i]))
+            printf("  %-*s %*s %.*g (one-sided %.0f%%; no lower end)\n", nw, f->form.param_names[i],
+                   vw, "at most", ip, f->ci_high[i], 100 * f->level);
         else
             printf("  %-*s %*.*g %*.*g   [%.*g, %.*g]\n", nw, f->form.param_names[i], vw, vp,
                    f->theta[i], sw, sp, f->se[i], ip, f->ci_low[i], ip, f->ci_high[i]);

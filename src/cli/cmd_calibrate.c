@@ -27,7 +27,7 @@ static const struct cli_usage usage = {
     "--f-factor F (defaults: the largest fitted R, the middle of the fitted F range).\n",
     NULL};
 
-static const char *const method_names[] = {"auto", "stage", "composition", NULL};
+static const char *const method_names[] = {"auto", "stage", "composition", "censored", NULL};
 static const char *const holdup_choices[] = {"auto", "none", "lag", "stages", NULL};
 static const char *const holdup_names[] = {"none", "lag", "stages"};
 
@@ -83,12 +83,17 @@ static json_t *params_json(const stagecal_regress_result *f)
     json_t *arr = json_array();
     for (size_t i = 0; i < f->p; i++) {
         int und = (f->undetermined >> i) & 1u; /* not determined: no numbers */
-        json_array_append_new(
-            arr, json_pack("{s:s,s:o,s:o,s:o,s:o,s:b}", "name", f->form.param_names[i], "value",
-                           und ? json_null() : cli_json_real(f->theta[i]), "se",
-                           und ? json_null() : cli_json_real(f->se[i]), "ci_low",
-                           und ? json_null() : cli_json_real(f->ci_low[i]), "ci_high",
-                           und ? json_null() : cli_json_real(f->ci_high[i]), "determined", !und));
+        /* one end only ("at least"): no value, no standard error, the missing end null */
+        int one = !und && isfinite(f->ci_low[i]) != isfinite(f->ci_high[i]);
+        json_t *o = json_pack("{s:s,s:o,s:o,s:o,s:o,s:b}", "name", f->form.param_names[i], "value",
+                              und || one ? json_null() : cli_json_real(f->theta[i]), "se",
+                              und || one ? json_null() : cli_json_real(f->se[i]), "ci_low",
+                              und ? json_null() : cli_json_real(f->ci_low[i]), "ci_high",
+                              und ? json_null() : cli_json_real(f->ci_high[i]), "determined", !und);
+        if (one)
+            json_object_set_new(o, "one_sided",
+                                json_string(isfinite(f->ci_low[i]) ? "lower" : "upper"));
+        json_array_append_new(arr, o);
     }
     return arr;
 }
@@ -110,20 +115,62 @@ static json_t *fit_json(const stagecal_regress_result *f, int status, const char
     return o;
 }
 
-static void print_fit(const char *title, const stagecal_regress_result *f)
-{
-    printf("%s\n", title);
-    cli_print_params(f, 0);
-    printf("  residual sigma %.4g stages, %g degrees of freedom, %zu windows\n",
-           f->sigma_obs > 0 ? f->sigma_obs : f->sigma, f->dof, f->n);
-}
-
 static void format_r(char *buf, size_t cap, double r)
 {
     if (isinf(r))
         snprintf(buf, cap, "inf");
     else
         snprintf(buf, cap, "%.4g", r);
+}
+
+/* The censored-likelihood fit's evidence and its stages at the reference condition
+ * (--json): the missing end of a one-sided interval is null. */
+static json_t *cens_json(const stagecal_calibration *cal)
+{
+    const stagecal_censored_interval *a = &cal->cens_at;
+    int one = a->low_bounded != a->high_bounded;
+    return json_pack("{s:I,s:I,s:I,s:b,s:{s:o,s:o,s:o,s:o,s:o,s:f,s:s}}", "windows",
+                     (json_int_t)cal->cens.n_windows, "readings", (json_int_t)cal->cens.n_readings,
+                     "censored_readings", (json_int_t)cal->cens.n_censored, "one_sided",
+                     cal->cens.one_sided, "stages_at", "r", cli_json_reflux(cal->cens_r), "f",
+                     cal->cens_fit.f_max > 0 ? json_real(cal->cens_f) : json_null(), "value",
+                     one ? json_null() : cli_json_real(a->value), "low",
+                     a->low_bounded ? json_real(a->low) : json_null(), "high",
+                     a->high_bounded ? json_real(a->high) : json_null(), "level", a->level,
+                     "interval",
+                     one ? (a->low_bounded ? "one-sided: at least low" : "one-sided: at most high")
+                         : "two-sided profile likelihood");
+}
+
+/* "at least N stages" / the two-sided interval at the reference condition (text). */
+static void cens_print(const stagecal_calibration *cal)
+{
+    const stagecal_censored_interval *a = &cal->cens_at;
+    char rr[32];
+    format_r(rr, sizeof rr, cal->cens_r);
+    printf("censored likelihood: %zu readings in %zu windows, %zu censored\n", cal->cens.n_readings,
+           cal->cens.n_windows, cal->cens.n_censored);
+    if (a->low_bounded && !a->high_bounded)
+        printf("stages at R = %s: AT LEAST %.4g (one-sided %.0f %%; the evidence gives no upper "
+               "end)\n",
+               rr, a->low, 100 * a->level);
+    else if (!a->low_bounded && a->high_bounded)
+        printf("stages at R = %s: AT MOST %.4g (one-sided %.0f %%; the evidence gives no lower "
+               "end)\n",
+               rr, a->high, 100 * a->level);
+    else if (a->low_bounded)
+        printf("stages at R = %s: %.4g (%.0f %% profile-likelihood interval %.4g to %.4g)\n", rr,
+               a->value, 100 * a->level, a->low, a->high);
+    else
+        printf("stages at R = %s: not determined\n", rr);
+}
+
+static void print_fit(const char *title, const stagecal_regress_result *f)
+{
+    printf("%s\n", title);
+    cli_print_params(f, 0);
+    printf("  residual sigma %.4g stages, %g degrees of freedom, %zu windows\n",
+           f->sigma_obs > 0 ? f->sigma_obs : f->sigma, f->dof, f->n);
 }
 
 static int print_findings(const stagecal_findings *f, int errors_only)
@@ -280,8 +327,7 @@ struct request {
 static int print_json(const stagecal_calibration *cal, const char *path, const struct request *rq)
 {
     const stagecal_model *mo = &cal->model;
-    const stagecal_regress_result *fit =
-        cal->used == STAGECAL_MODEL_STAGE_SPACE ? &cal->stage_fit : &cal->comp_fit;
+    const stagecal_regress_result *fit = stagecal_calibration_fit(cal);
     json_t *doc = json_object(), *warn = json_array(), *rank = json_array();
     json_object_set_new(doc, "format", json_string("stagecal-calibration"));
     json_object_set_new(doc, "version", json_integer(1));
@@ -309,6 +355,8 @@ static int print_json(const stagecal_calibration *cal, const char *path, const s
                   (json_int_t)cal->res.count[STAGECAL_STAGES_PINCH], "azeotrope_samples",
                   (json_int_t)cal->res.count[STAGECAL_STAGES_AZEOTROPE], "censored_samples",
                   (json_int_t)cal->res.count[STAGECAL_RUNLOG_CENSORED]));
+    if (cal->used == STAGECAL_MODEL_CENSORED)
+        json_object_set_new(doc, "censored", cens_json(cal));
     json_object_set_new(doc, "holdup", holdup_json(cal));
     json_t *fl = json_array();
     for (size_t k = 0; k < cal->nflagged; k++) {
@@ -354,8 +402,7 @@ static void print_text(const stagecal_calibration *cal, const char *path, const 
                        size_t nlogs)
 {
     const stagecal_model *mo = &cal->model;
-    const stagecal_regress_result *fit =
-        cal->used == STAGECAL_MODEL_STAGE_SPACE ? &cal->stage_fit : &cal->comp_fit;
+    const stagecal_regress_result *fit = stagecal_calibration_fit(cal);
     char rlo[32], rhi[32];
     format_r(rlo, sizeof rlo, mo->r_min);
     format_r(rhi, sizeof rhi, mo->r_max);
@@ -387,6 +434,8 @@ static void print_text(const stagecal_calibration *cal, const char *path, const 
         print_fit("\nfor comparison, the stage-space fit:", &cal->stage_fit);
     else if (cal->used == STAGECAL_MODEL_COMPOSITION_SPACE)
         printf("\nstage-space fit: %s\n", cal->stage_message);
+    if (cal->used == STAGECAL_MODEL_CENSORED)
+        cens_print(cal);
     printf("\nenvelope (fitted conditions): R %s to %s", rlo, rhi);
     if (mo->has_load)
         printf(", F %.3g to %.3g Pa^0.5", mo->f_min, mo->f_max);
@@ -534,8 +583,9 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
         OPT_FORM(&par.form, "correlation form (docs/forms.md) or 'auto' (default: rank\n"
                             "the candidate forms by AICc)"),
         OPT_CHOICE("method", &method, "M",
-                   "auto (default: composition space, falling back to stage\n"
-                   "space), composition, or stage",
+                   "auto (default: the censored likelihood when a window holds a\n"
+                   "censored reading, else composition space, falling back to stage\n"
+                   "space), composition, stage, or censored",
                    method_names, "a method"),
         OPT_LEVEL(&par.level),
         OPT_MURPHREE(&par.murphree),
@@ -582,6 +632,7 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
     par.evidence.holdup = holdup == 0 ? STAGECAL_EVIDENCE_HOLDUP_AUTO : holdup - 1;
     par.method = method == 1   ? STAGECAL_CAL_STAGE
                  : method == 2 ? STAGECAL_CAL_COMPOSITION
+                 : method == 3 ? STAGECAL_CAL_CENSORED
                                : STAGECAL_CAL_AUTO;
     if (par.hetp_r == 0)
         return cli_usage_error("option '--reflux': 0 is not positive (expected R > 0 or 'inf', "

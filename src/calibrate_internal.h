@@ -1,0 +1,24 @@
+/*
+ * calibrate_internal.h — what calibrate.c takes from calibrate_cens.c; not installed.
+ */
+#ifndef STAGECAL_CALIBRATE_INTERNAL_H
+#define STAGECAL_CALIBRATE_INTERNAL_H
+
+#include "stagecal/calibrate.h"
+
+/* The censored-likelihood fit of form on cal->evidence.cens (stagecal/censor.h), stage
+ * range 1 to CAL_CENS_STAGES_MAX, started from the stage-space fit when it succeeded.
+ * Fills cal->cens, cal->cens_fit and the stages at the reference condition (cal->cens_at).
+ * When the evidence bounds the count from below only and form has more than one
+ * parameter, the form 'auto' chose falls back to constant (*form is replaced, *fallback
+ * set); a form asked for is refused (EDATA) with the reason and what would help. EDATA also
+ * when the evidence bounds the count from above only or from neither side. */
+int calibrate_censored(stagecal_calibration *cal, const stagecal_calibrate_params *par,
+                       stagecal_form *form, int *fallback, stagecal_error *err);
+/* Completes a model that carries the censored-likelihood fit (after the common fields):
+ * method, one-sided bound, covariance, σ and dof, windows and samples. */
+void calibrate_censored_model(const stagecal_calibration *cal, stagecal_model *mo);
+
+#define CAL_CENS_STAGES_MAX 200.0
+
+#endif
