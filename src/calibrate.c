@@ -291,8 +291,7 @@ static int run_fits(stagecal_calibration *cal, const stagecal_calibrate_params *
     }
 
     /* readings at an analyser's limit: the censored likelihood, which takes them */
-    int censored = par->method == STAGECAL_CAL_CENSORED ||
-                   (par->method == STAGECAL_CAL_AUTO && cal->evidence.ncens > 0);
+    int censored = par->method == STAGECAL_CAL_CENSORED;
     cal->cens_status = CAL_NOT_RUN;
     if (censored) {
         progress(par, "fitting", 0.9);
@@ -388,6 +387,16 @@ static int add_warnings(stagecal_calibration *cal, const stagecal_calibrate_para
                    "stage counts); prediction bands equal confidence bands and are too narrow")))
         return rc;
     size_t npinch = cal->res.count[STAGECAL_STAGES_PINCH];
+    size_t nleft = 0;
+    for (size_t i = 0; cal->used != STAGECAL_MODEL_CENSORED && i < cal->evidence.n; i++)
+        nleft += cal->evidence.ev[i].n_cens_xd + cal->evidence.ev[i].n_cens_xb;
+    if (nleft > 0 && calibrate_censoring_matters(cal) &&
+        (rc = warn(cal, err,
+                   "%zu censored reading(s) in the windows were left out of the fit, %.0f %% or "
+                   "more of some window's or all of its values: the windows' means read low or "
+                   "high; --method censored takes them as bounds",
+                   nleft, 100 * CAL_CENS_SHARE)))
+        return rc;
     if (npinch > 0 && (rc = warn(cal, err,
                                  "%zu sample(s) at a pinch have no stage count; the "
                                  "composition-space fit still uses their windows",

@@ -90,6 +90,23 @@ static void reference(const stagecal_calibration *cal, const stagecal_calibrate_
     *f = !isnan(par->hetp_f) ? par->hetp_f : 0.5 * (c->f_min + c->f_max);
 }
 
+int calibrate_censoring_matters(const stagecal_calibration *cal)
+{
+    const stagecal_evidence_set *es = &cal->evidence;
+    if (es->ncens == 0)
+        return 0;
+    if (es->ncens > es->n)
+        return 1; /* a window that is evidence only through its censored readings */
+    for (size_t i = 0; i < es->n; i++) {
+        const stagecal_evidence *e = &es->ev[i];
+        double n = (double)e->n_samples;
+        if ((double)e->n_cens_xd >= CAL_CENS_SHARE * n ||
+            (double)e->n_cens_xb >= CAL_CENS_SHARE * n)
+            return 1;
+    }
+    return 0;
+}
+
 int calibrate_censored(stagecal_calibration *cal, const stagecal_calibrate_params *par,
                        stagecal_form *form, int *fallback, stagecal_error *err)
 {

@@ -19,6 +19,18 @@ int calibrate_censored(stagecal_calibration *cal, const stagecal_calibrate_param
  * method, one-sided bound, covariance, σ and dof, windows and samples. */
 void calibrate_censored_model(const stagecal_calibration *cal, stagecal_model *mo);
 
+/* 1 when a window's censored readings matter, so that 'auto' fits the censored
+ * likelihood: some window is evidence only through them (its values alone are fewer than
+ * 3 of an analyser), or CAL_CENS_SHARE or more of an analyser's readings in some window are
+ * censored. Why a share: leaving out the readings beyond a limit shifts a window's mean by
+ * u·φ(c)/Φ(c) with Φ(c) the share kept — 0.11 u at a 5 % share, 0.20 u at 10 % (the mean
+ * of a truncated normal; Johnson, Kotz & Balakrishnan 1994, "Continuous Univariate
+ * Distributions" vol. 1, §10.1, from memory) — against a window mean's standard error of
+ * ~0.3 u; below the share the other fits are kept and a warning names the readings left
+ * out. */
+int calibrate_censoring_matters(const stagecal_calibration *cal);
+
+#define CAL_CENS_SHARE 0.10
 #define CAL_CENS_STAGES_MAX 200.0
 
 #endif

@@ -28,7 +28,7 @@
 #define ZETA_SCAN 24  /* scan points of the inner problem */
 #define THETA_SCAN 24 /* scan points of the outer problem */
 #define MAX_ITER 100
-#define PURE_SIGMAS 3.0 /* latent impurity below this many u(xD): indistinguishable from pure */
+#define PURE_GAP 1.92 /* χ²₁(0.95)/2: distillate readings that do not exclude pure at 95 % */
 
 struct cctx {
     const stagecal_column *col;
@@ -41,9 +41,11 @@ struct cctx {
     /* the window and stage count of the inner problem */
     const stagecal_evidence *e;
     double nst;
-    int at_cap;     /* some window's latent xD went to the top of its range (profile_ll) */
+    int at_cap;     /* every window's latent xD is as pure as its readings tell (profile_ll) */
+    size_t n_cap;   /* windows whose latent xD is (window_profile) */
     int at_range;   /* some window's stage count went beyond st_hi (profile_ll) */
     double mean_st; /* mean stage count over the windows at the last θ (profile_ll) */
+    double *zc;     /* nev latent ζ of the last profile (warm starts; NAN: none), or NULL */
 };
 
 /* log Φ(z), accurate in the far tails (GSL's log erfc). */
@@ -92,6 +94,20 @@ static double window_ll(struct cctx *c, double zeta)
                               xb, ub);
     }
     return isfinite(ll) ? ll : -HUGE_VAL;
+}
+
+/* The distillate readings' log-likelihood of window c->e at the true xD x (u at x). */
+static double xd_ll(struct cctx *c, double x)
+{
+    const stagecal_evidence *e = c->e;
+    double ll = 0, ud = GSL_MAX(stagecal_runlog_u_xd(c->col, x), 1e-15);
+    for (size_t j = 0; j < e->m; j++) {
+        unsigned f = e->s_cens ? e->s_cens[j] : 0;
+        if (isfinite(e->s_xd[j]))
+            ll += log_reading(e->s_xd[j], f & STAGECAL_EVIDENCE_XD_BELOW,
+                              f & STAGECAL_EVIDENCE_XD_ABOVE, x, ud);
+    }
+    return ll;
 }
 
 static double neg_window_ll(double zeta, void *p)
@@ -167,12 +183,30 @@ static double window_profile(struct cctx *c, const stagecal_evidence *e, double 
     double lo = log(xb / (1 - xb)), f;
     if (lo > ZETA_MAX - 1)
         lo = ZETA_MAX - 1;
-    double z = scan_min(neg_window_ll, c, lo, ZETA_MAX, ZETA_SCAN, 0, 1e-9, &f);
-    /* the latent distillate at the top of its range, or within PURE_SIGMAS of its
-     * analyser's uncertainty of pure: the readings cannot tell it from pure */
-    double h = 1 / (1 + exp(z)), ud = stagecal_runlog_u_xd(c->col, 1 - h);
-    if (z > ZETA_MAX - 1 || h < PURE_SIGMAS * ud)
-        c->at_cap = 1;
+    size_t wi = (size_t)(e - c->ev);
+    double z = c->zc ? c->zc[wi] : NAN;
+    /* warm start: Brent around the last ζ̂ when it brackets a minimum (the profile moves
+     * θ a little at a time), else the scan */
+    if (isfinite(z) && z < ZETA_MAX - 1.5) {
+        double f0 = neg_window_ll(z, c), fl = neg_window_ll(z - 1, c), fh = neg_window_ll(z + 1, c);
+        if (f0 < fl && f0 < fh && f0 < GSL_DBL_MAX / 8) {
+            z = brent_min(neg_window_ll, c, z - 1, z, z + 1, 1e-9);
+            f = neg_window_ll(z, c);
+        } else {
+            z = NAN;
+        }
+    } else {
+        z = NAN;
+    }
+    if (isnan(z))
+        z = scan_min(neg_window_ll, c, lo, ZETA_MAX, ZETA_SCAN, 0, 1e-9, &f);
+    if (c->zc)
+        c->zc[wi] = z;
+    /* the latent distillate at the top of its range, or the distillate readings do not
+     * exclude a pure distillate (log-likelihood within PURE_GAP of their value at the
+     * latent): the readings cannot tell it from purer, and more stages fit as well */
+    if (z > ZETA_MAX - 1 || xd_ll(c, 1.0) > xd_ll(c, 1 / (1 + exp(-z))) - PURE_GAP)
+        c->n_cap++;
     return -f;
 }
 
@@ -183,6 +217,7 @@ static double profile_ll(struct cctx *c, const double *theta)
     double ll = 0, sum = 0;
     size_t n = 0;
     c->at_cap = 0;
+    c->n_cap = 0;
     c->at_range = 0;
     for (size_t i = 0; i < c->nev; i++) {
         const stagecal_evidence *e = &c->ev[i];
@@ -202,6 +237,10 @@ static double profile_ll(struct cctx *c, const double *theta)
         ll += window_profile(c, e, nst);
     }
     c->mean_st = n ? sum / (double)n : NAN;
+    /* only when no window resolves its distillate is the profile towards more stages set
+     * by the latent's range rather than by readings (with one that does, its readings bound
+     * the count: all windows share the correlation) */
+    c->at_cap = n > 0 && c->n_cap == n;
     return ll;
 }
 
@@ -482,6 +521,14 @@ static struct cctx make_ctx(const stagecal_column *col, double murphree,
     return c;
 }
 
+/* The warm-start cache of c (NULL when out of memory: every profile scans). */
+static void zc_alloc(struct cctx *c)
+{
+    c->zc = malloc((c->nev ? c->nev : 1) * sizeof *c->zc);
+    for (size_t i = 0; c->zc && i < c->nev; i++)
+        c->zc[i] = NAN;
+}
+
 int stagecal_censored_loglik(const stagecal_column *col, double murphree,
                              const stagecal_evidence *ev, size_t nev, const stagecal_form *form,
                              const double *theta, double *loglik, stagecal_error *err)
@@ -548,6 +595,10 @@ static int observed_cov(struct cctx *c, const double *th, double llmax, double *
     return ok;
 }
 
+static int fit_body(struct cctx *cp, const stagecal_form *form, const double *theta0, double level,
+                    double stages_lo, double stages_hi, stagecal_censored_fit *fit,
+                    stagecal_error *err);
+
 int stagecal_fit_censored(const stagecal_column *col, double murphree, const stagecal_evidence *ev,
                           size_t nev, const stagecal_form *form, const double *theta0, double level,
                           double stages_lo, double stages_hi, stagecal_censored_fit *fit,
@@ -559,6 +610,17 @@ int stagecal_fit_censored(const stagecal_column *col, double murphree, const sta
     if (form->kind != STAGECAL_FORM_CONSTANT && !theta0)
         return error_set(err, STAGECAL_EINVAL, "censored fit: form '%s' needs a start", form->name);
     struct cctx c = make_ctx(col, murphree, ev, nev, form, stages_lo, stages_hi);
+    zc_alloc(&c);
+    rc = fit_body(&c, form, theta0, level, stages_lo, stages_hi, fit, err);
+    free(c.zc);
+    return rc;
+}
+
+static int fit_body(struct cctx *cp, const stagecal_form *form, const double *theta0, double level,
+                    double stages_lo, double stages_hi, stagecal_censored_fit *fit,
+                    stagecal_error *err)
+{
+    struct cctx c = *cp;
     size_t p = form->p;
     double th[STAGECAL_FORM_MAXP], fmin;
     if (form->kind == STAGECAL_FORM_CONSTANT) {
@@ -632,6 +694,8 @@ int stagecal_censored_stages_at(const stagecal_column *col, double murphree,
             q.idx[q.nfree++] = k;
     memcpy(q.base, fit->theta, p * sizeof *fit->theta);
     double lo = GSL_MIN(fit->stages_lo, n_hat), hi = GSL_MAX(fit->stages_hi, n_hat);
+    zc_alloc(&c);
     interval(&q, fit->theta, n_hat, fit->loglik, level, lo, hi, out);
+    free(c.zc);
     return STAGECAL_OK;
 }

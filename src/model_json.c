@@ -526,7 +526,7 @@ static int read_doc(reader *rd, json_t *doc, stagecal_model *m)
                             "written by a newer stagecal (format version %lld > %d)",
                             (long long)version, STAGECAL_MODEL_VERSION);
     if (version < 1)
-        return RFAIL(rd, "unknown format version %lld (expected %d)", (long long)version,
+        return RFAIL(rd, "unknown format version %lld (expected 1 to %d)", (long long)version,
                      STAGECAL_MODEL_VERSION);
 
     /* Integrity before content: a hand edit is named as such, not as a field error. */

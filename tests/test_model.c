@@ -846,7 +846,7 @@ static void model_load_refuses_newer_version(void **state)
     assert_non_null(s);
     s[strlen("\"version\": ")] = '3';
     spit(path, text, n);
-    snprintf(want, sizeof want, "%s: written by a newer stagecal (format version 3 > 1)", path);
+    snprintf(want, sizeof want, "%s: written by a newer stagecal (format version 3 > 2)", path);
     expect_load_error(path, STAGECAL_EVERSION, want);
     free(text);
 }
@@ -1500,7 +1500,7 @@ static void model_load_refuses_each_member(void **state)
          "not a stagecal model file (format 'stagecal-plan', expected 'stagecal-model')"},
         {"format", "3", "not a stagecal model file (no \"format\": \"stagecal-model\" member)"},
         {"version", "\"1\"", "member 'version': expected an integer format version"},
-        {"version", "0", "unknown format version 0 (expected 1)"},
+        {"version", "0", "unknown format version 0 (expected 1 to 2)"},
         {"column", "17", "member 'column': expected a string"},
         {"stage_convention", "\"partial\"", "member 'stage_convention': expected an object"},
         {"stage_convention.condenser", "\"none\"",
@@ -1557,7 +1557,8 @@ static void model_load_refuses_each_member(void **state)
          "correlation.covariance: expected 2 rows (p x p), found 1"},
         {"correlation.covariance.0.1", "\"x\"", "correlation.covariance[0][1]: expected a number"},
         {"correlation.method", "\"moment-space\"",
-         "correlation.method 'moment-space': expected 'stage-space' or 'composition-space'"},
+         "correlation.method 'moment-space': expected 'stage-space', 'composition-space' or "
+         "'censored-likelihood'"},
         /* the optional physical data: when present, a finite number > 0 */
         {"system.latent_heat_j_mol", "-32000",
          "system: latent_heat_j_mol = -32000: expected a finite number > 0"},

@@ -63,9 +63,9 @@ typedef enum {
 
 typedef struct {
     const char *form;                  /* form name, or "auto" (rank by AICc in stage space) */
-    stagecal_cal_method method;        /* AUTO: the censored likelihood when a window holds a
-                                          censored reading, else composition space (stage
-                                          space when that fails) */
+    stagecal_cal_method method;        /* AUTO: composition space, stage space when that
+                                          fails (a warning says when censored readings that
+                                          matter were left out: CENSORED takes them) */
     double level;                      /* confidence level (0.95) */
     double murphree;                   /* E_MV of the column stages (1) */
     stagecal_evidence_params evidence; /* windows: carried samples, min_ok, pooling */

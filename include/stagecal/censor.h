@@ -28,9 +28,10 @@
  * from the count). The ends are found by walking out from ψ̂ and GSL's Brent root finder
  * on the crossing step. An end is NOT DETERMINED when the deviance does not rise to the
  * cut before the stage count at some window leaves the stage range, or when beyond the
- * crossing (on the side of more stages) a window's latent xD is within 3 standard
- * uncertainties of its analyser of pure (all readings at an analyser's limit: more stages
- * with a purer distillate fit the data as well; a likelihood-ratio interval is not to be
+ * crossing (on the side of more stages) a window's distillate readings do not exclude a
+ * pure distillate (their log-likelihood at xD = 1 within χ²₁(0.95)/2 of its value at the
+ * latent xD; e.g. all readings at an analyser's limit: more stages with a purer
+ * distillate fit the data as well; a likelihood-ratio interval is not to be
  * trusted at that boundary). With one end not determined, the other is the one-sided
  * bound at the same level, {ψ: 2(ℓ_max − ℓ_p(ψ)) ≤ χ²₁(2·level − 1)}: "at least N stages".
  * With both ends determined, the fit also gives the inverse of the observed information

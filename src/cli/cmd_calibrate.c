@@ -583,9 +583,9 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
         OPT_FORM(&par.form, "correlation form (docs/forms.md) or 'auto' (default: rank\n"
                             "the candidate forms by AICc)"),
         OPT_CHOICE("method", &method, "M",
-                   "auto (default: the censored likelihood when a window holds a\n"
-                   "censored reading, else composition space, falling back to stage\n"
-                   "space), composition, stage, or censored",
+                   "auto (default: composition space, falling back to stage\n"
+                   "space), composition, stage, or censored (readings at an\n"
+                   "analyser's limit taken as bounds: 'at least N stages')",
                    method_names, "a method"),
         OPT_LEVEL(&par.level),
         OPT_MURPHREE(&par.murphree),
