@@ -93,7 +93,11 @@ static void reference(const stagecal_calibration *cal, const stagecal_calibrate_
 int calibrate_censoring_matters(const stagecal_calibration *cal)
 {
     const stagecal_evidence_set *es = &cal->evidence;
-    if (es->ncens == 0)
+    size_t any = 0;
+    for (size_t i = 0; i < es->ncens; i++)
+        for (size_t j = 0; j < es->cens[i].m && !any; j++)
+            any = es->cens[i].s_cens[j] != 0;
+    if (!any)
         return 0;
     if (es->ncens > es->n)
         return 1; /* a window that is evidence only through its censored readings */
@@ -116,8 +120,7 @@ int calibrate_censored(stagecal_calibration *cal, const stagecal_calibrate_param
     *fallback = 0;
     if (es->ncens == 0)
         return error_set(err, STAGECAL_EDATA,
-                         "no window holds a censored reading (the censored likelihood takes the "
-                         "readings of such windows)");
+                         "no window has 3 rows with both readings (values or censored)");
     for (;;) {
         const double *t0 = NULL;
         if (form->kind != STAGECAL_FORM_CONSTANT) {

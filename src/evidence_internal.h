@@ -17,8 +17,8 @@ int evidence_conditions(const stagecal_runlog *log, const stagecal_column *col,
                         stagecal_evidence_set *set, stagecal_error *err);
 /* Frees what the two above allocated. */
 void evidence_physics_free(stagecal_evidence_set *set);
-/* set->cens (stagecal/evidence.h) after the evidence set->ev is complete, when some window
- * row has a censored reading; xd_src as evidence_holdup gave it. ENOMEM. */
+/* set->cens (stagecal/evidence.h) after the evidence set->ev is complete; xd_src as
+ * evidence_holdup gave it. ENOMEM. */
 int evidence_build_cens(const stagecal_runlog *log, const double *xd_src,
                         const stagecal_runlog_result *res, size_t cap, stagecal_evidence_set *set,
                         stagecal_error *err);

@@ -13,9 +13,14 @@
 #include <math.h>
 #include <string.h>
 
+#include <stdlib.h>
+#include <unistd.h>
+
 #include "oracle_smoker.h"
+#include "stagecal/calibrate.h"
 #include "stagecal/censor.h"
 #include "stagecal/regress.h"
+#include "synth_censor.h"
 #include "testutil.h"
 
 static int setup(void **state)
@@ -221,6 +226,131 @@ static void censor_two_parameters_exact(void **state)
     stagecal_vle_free(col.system.vle);
 }
 
+/* ---- through the calibration chain -------------------------------------------------- */
+
+/* One synthetic data set (tests/synth_censor.h, seed 3) of a regime, calibrated. */
+static int calibrate_synth(int reg, const char *form, stagecal_cal_method method,
+                           stagecal_column *c, stagecal_runlog **log, stagecal_calibration *cal,
+                           stagecal_error *e)
+{
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 3);
+    size_t len = 0;
+    char *csv = sc_log(rng, reg, &len);
+    assert_non_null(csv);
+    const char *ct = sc_column(reg);
+    assert_int_equal(stagecal_column_parse(ct, strlen(ct), "synth", c, e), 0);
+    *log = stagecal_runlog_alloc();
+    assert_int_equal(stagecal_runlog_read_buffer(*log, csv, len, "synth.csv", c, NULL, NULL, e), 0);
+    stagecal_calibrate_params par = stagecal_calibrate_default_params();
+    par.form = form;
+    par.method = method;
+    int rc = stagecal_calibrate_data(c, NULL, *log, &par, cal, e);
+    free(csv);
+    gsl_rng_free(rng);
+    return rc;
+}
+
+static void release(stagecal_column *c, stagecal_runlog *log, stagecal_calibration *cal)
+{
+    stagecal_calibration_free(cal);
+    stagecal_runlog_free(log);
+    stagecal_column_free(c);
+}
+
+/* A distillate analyser clipped at ">0.9999": `calibrate --method censored` answers "at
+ * least N stages" with a bound below the true 26; the model carries the bound, says so,
+ * evaluates to it without a standard error, and survives the file (format version 2). */
+static void calibrate_clipped_gives_at_least(void **state)
+{
+    (void)state;
+    stagecal_column c;
+    stagecal_runlog *log;
+    stagecal_calibration cal;
+    stagecal_error e;
+    assert_int_equal(
+        calibrate_synth(SC_CLIP_FS, "constant", STAGECAL_CAL_CENSORED, &c, &log, &cal, &e), 0);
+    const stagecal_model *mo = &cal.model;
+    assert_int_equal(cal.used, STAGECAL_MODEL_CENSORED);
+    assert_int_equal(mo->method, STAGECAL_MODEL_CENSORED);
+    assert_int_equal(mo->one_sided, 1);
+    assert_int_equal(cal.cens.par[0].high_bounded, 0);
+    assert_true(mo->theta[0] == cal.cens.par[0].low && mo->theta[0] < SC_NTRUE);
+    assert_true(mo->theta_ml[0] >= mo->theta[0]);
+    assert_true(cal.cens_at.low_bounded && !cal.cens_at.high_bounded);
+    assert_true(isnan(cal.cens_fit.ci_high[0]) && isnan(cal.cens_fit.se[0]));
+    assert_non_null(strstr(mo->warnings[mo->n_warnings - 1], "AT LEAST ") ? "" : NULL);
+    stagecal_model_point pt;
+    assert_int_equal(stagecal_model_eval(mo, 10, NAN, 0.99, &pt, &e), 0);
+    assert_int_equal(pt.lower_only, 1);
+    assert_true(pt.stages == mo->theta[0] && pt.ci_low == pt.stages && isinf(pt.ci_high) &&
+                isinf(pt.pi_high) && isnan(pt.se_fit) && isnan(pt.se_pred));
+    assert_true(pt.level == mo->level); /* the bound's own level, whatever was asked */
+    /* through a file */
+    char dir[] = "/tmp/stagecal-censor-XXXXXX", path[512];
+    assert_non_null(mkdtemp(dir));
+    assert_int_equal(stagecal_model_write(mo, dir, path, sizeof path, &e), 0);
+    FILE *f = fopen(path, "rb");
+    char text[65536];
+    size_t n = fread(text, 1, sizeof text - 1, f);
+    fclose(f);
+    text[n] = '\0';
+    assert_non_null(strstr(text, "\"version\": 2"));
+    assert_non_null(strstr(text, "\"method\": \"censored-likelihood\""));
+    stagecal_model back;
+    stagecal_model_init(&back);
+    assert_int_equal(stagecal_model_load(path, &back, &e), 0);
+    assert_int_equal(back.one_sided, 1);
+    assert_true(back.theta[0] == mo->theta[0] && back.theta_ml[0] == mo->theta_ml[0]);
+    stagecal_model_free(&back);
+    unlink(path);
+    rmdir(dir);
+    release(&c, log, &cal);
+    /* a two-parameter form cannot carry a one-sided answer: refused with the reason */
+    assert_int_equal(
+        calibrate_synth(SC_CLIP_FS, "linear:1+1/R", STAGECAL_CAL_CENSORED, &c, &log, &cal, &e),
+        STAGECAL_EDATA);
+    assert_non_null(strstr(e.text, "censored-likelihood fit: the evidence bounds the stage count "
+                                   "from one side only ("));
+    assert_non_null(strstr(e.text, "form 'linear:1+1/R' has 2 parameters, which a one-sided "
+                                   "answer cannot carry; what would help: --form constant"));
+    release(&c, log, &cal);
+    /* auto leaves the censored readings out, and says so */
+    assert_int_equal(calibrate_synth(SC_CLIP_FS, "constant", STAGECAL_CAL_AUTO, &c, &log, &cal, &e),
+                     0);
+    assert_int_not_equal(cal.used, STAGECAL_MODEL_CENSORED);
+    int said = 0;
+    for (size_t i = 0; i < cal.model.n_warnings; i++)
+        said |= strstr(cal.model.warnings[i], "censored reading(s) in the windows were left out "
+                                              "of the fit") != NULL;
+    assert_true(said);
+    release(&c, log, &cal);
+}
+
+/* Impurity readings in ppm (5 % relative, detection limit 0.6 ppm): two-sided, with the
+ * observed-information covariance in the model, version 2 and no one-sided member. */
+static void calibrate_ppm_is_two_sided(void **state)
+{
+    (void)state;
+    stagecal_column c;
+    stagecal_runlog *log;
+    stagecal_calibration cal;
+    stagecal_error e;
+    assert_int_equal(calibrate_synth(SC_PPM, "constant", STAGECAL_CAL_CENSORED, &c, &log, &cal, &e),
+                     0);
+    const stagecal_model *mo = &cal.model;
+    assert_int_equal(mo->one_sided, 0);
+    assert_true(cal.cens.has_cov && mo->cov[0] > 0);
+    assert_true(cal.cens.par[0].low_bounded && cal.cens.par[0].high_bounded);
+    /* one data set: within 4 standard errors of the truth (the study measures coverage) */
+    assert_abs(mo->theta[0], SC_NTRUE, 4 * sqrt(mo->cov[0]), "ppm stages");
+    stagecal_model_point pt;
+    assert_int_equal(stagecal_model_eval(mo, 10, NAN, 0, &pt, &e), 0);
+    assert_int_equal(pt.lower_only, 0);
+    assert_true(pt.se_fit > 0);
+    release(&c, log, &cal);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -229,6 +359,8 @@ int main(void)
         cmocka_unit_test(censor_exact_readings_give_the_truth),
         cmocka_unit_test(censor_clipped_analyser_gives_at_least),
         cmocka_unit_test(censor_two_parameters_exact),
+        cmocka_unit_test(calibrate_clipped_gives_at_least),
+        cmocka_unit_test(calibrate_ppm_is_two_sided),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }

@@ -187,8 +187,7 @@ typedef struct {
     size_t nruns;
     stagecal_holdup_tau tau_pooled; /* over the runs */
     size_t n_settling;              /* rows left out as still settling after a reflux change */
-    /* the windows for a censored likelihood (stagecal/censor.h), built only when some row
-     * of a window has a censored reading (else ncens = 0): every run-log window with at least
+    /* the windows for a censored likelihood (stagecal/censor.h): every run-log window with at least
      * 3 rows that carry both readings — values or censored — even when its censored xD
      * readings leave too few values for the evidence above; its rows' readings (censored ones
      * at their limits, flagged in s_cens; outliers left out; evenly thinned to max_samples)
