@@ -9,6 +9,7 @@
  */
 #include <math.h>
 #include <stdio.h>
+#include <sys/resource.h>
 #include <stdlib.h>
 #include <time.h>
 
@@ -81,6 +82,10 @@ int main(void)
     printf("prediction wall time: median %.2f ms, min %.2f ms, max %.2f ms (%d runs; target < "
            "50 ms)\n",
            1e3 * t[RUNS / 2], 1e3 * t[0], 1e3 * t[RUNS - 1], RUNS);
+    struct rusage ru;
+    getrusage(RUSAGE_SELF, &ru);
+    printf("%.0f trajectory rows/s (median), %.1f predictions/s; peak RSS %.1f MB\n",
+           (double)res.n_rows / t[RUNS / 2], 1.0 / t[RUNS / 2], ru.ru_maxrss / 1024.0);
     stagecal_batch_result_free(&res);
     stagecal_model_free(&m);
     stagecal_vle_free(vle);

@@ -13,6 +13,7 @@
 #include <gsl/gsl_rng.h>
 #include <math.h>
 #include <stdio.h>
+#include <sys/resource.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
@@ -119,10 +120,14 @@ int main(int argc, char **argv)
     if (rc) {
         fprintf(stderr, "calibrate failed: %s\n", err.text);
     } else {
+        struct rusage ru;
+        getrusage(RUSAGE_SELF, &ru);
+        double cpu = (double)(cpu1 - cpu0) / CLOCKS_PER_SEC;
         printf("rows %zu, runs %zu, windows %zu, bootstrap %ld: calibrate %.3f s wall, %.3f s "
                "CPU\n",
-               cal.log->n, cal.log->nruns, cal.evidence.n, boot, c1 - c0,
-               (double)(cpu1 - cpu0) / CLOCKS_PER_SEC);
+               cal.log->n, cal.log->nruns, cal.evidence.n, boot, c1 - c0, cpu);
+        printf("%.0f rows/s wall, %.0f rows/s CPU; peak RSS %.1f MB\n",
+               (double)cal.log->n / (c1 - c0), (double)cal.log->n / cpu, ru.ru_maxrss / 1024.0);
         printf("a = %.4f ± %.4f, b = %.4f ± %.4f (truth 9, 0.8; %s)\n", cal.model.theta[0],
                sqrt(cal.model.cov[0]), cal.model.theta[1], sqrt(cal.model.cov[3]),
                stagecal_model_method_name(cal.used));

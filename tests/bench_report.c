@@ -15,6 +15,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/resource.h>
 #include <time.h>
 
 #include <gsl/gsl_errno.h>
@@ -249,6 +250,10 @@ int main(int argc, char **argv)
     printf("bench_report: full demo report (7 charts) -> %s\n", out);
     printf("bench_report: %d renderings, best %.3f s, median %.3f s (target < %.1f s)\n", repeats,
            times[0], median, TARGET_S);
+    struct rusage ru;
+    getrusage(RUSAGE_SELF, &ru);
+    printf("bench_report: %.2f reports/s (%d samples each); peak RSS %.1f MB\n", 1.0 / median, NS,
+           ru.ru_maxrss / 1024.0);
     free(times);
     return median < TARGET_S ? 0 : 1;
 }
