@@ -42,6 +42,7 @@
 #include "internal.h"
 #include "runlog_internal.h"
 #include "stagecal/holdup.h"
+#include "stagecal/physics.h"
 #include "stagecal/stages.h"
 
 const char *stagecal_drift_analyser_name(int analyser)
@@ -226,15 +227,17 @@ static int within_fit(const double *n, const double *g, const double *w, const i
  * on N(x) − target from x0 (N rises with xD; a pinch means x too high, an invalid count x
  * too low), with the bracket halved when a step leaves it. *sens = ∂N/∂xB / ∂N/∂xD at X.
  * 0 on success. */
-static int xd_for_count(const stagecal_vle *vle, double murphree, double xb, double r,
-                        double target, double x0, double *x_out, double *sens)
+static int xd_for_count(const stagecal_vle *vle, const stagecal_physics_cond *cond, double murphree,
+                        double xb, double r, double target, double x0, double *x_out, double *sens)
 {
     stagecal_stages_params sp = stagecal_stages_default_params();
     sp.want_sensitivities = 1;
     double lo = xb, hi = 1.0, x = x0 > lo && x0 < hi ? x0 : 0.5 * (lo + hi);
     for (int it = 0; it < 60; it++) {
         stagecal_stages_result sr;
-        int rc = stagecal_stages_invert(vle, x, xb, r, murphree, &sp, &sr, NULL);
+        /* the row's conditions (logged pressure, subcooled reflux), as its own count had */
+        int rc = cond ? stagecal_physics_invert(cond, x, xb, murphree, &sp, &sr, NULL)
+                      : stagecal_stages_invert(vle, x, xb, r, murphree, &sp, &sr, NULL);
         double xn;
         if (rc != STAGECAL_OK || sr.status != STAGECAL_STAGES_OK) {
             if (rc == STAGECAL_OK && sr.status == STAGECAL_STAGES_PINCH)
@@ -262,6 +265,16 @@ static int xd_for_count(const stagecal_vle *vle, double murphree, double xb, dou
     return -1;
 }
 
+/* Row a's conditions at distillate xd and reflux r (physics.h; ph NULL: none needed); 1 when
+ * there are some to use. */
+static int row_cond(const stagecal_runlog *log, stagecal_physics *ph, size_t a, double xd, double r,
+                    stagecal_physics_cond *pc)
+{
+    return !ph || stagecal_physics_cond_at(ph, log->p_pa ? log->p_pa[a] : NAN, xd, r,
+                                           log->t_reflux_k ? log->t_reflux_k[a] : NAN, pc,
+                                           NULL) == STAGECAL_OK;
+}
+
 /* Stage-count estimates of run k, in distillate space. A window's rows share one stage
  * count N_w (the median of their counts at the compensated distillate); each row's
  * residual is r_i = xD_i − X_i, X_i the distillate that N_w stages give from the row's xB
@@ -271,9 +284,9 @@ static int xd_for_count(const stagecal_vle *vle, double murphree, double xb, dou
  * logarithm of 1 − xD, skewed and heavy-tailed under the analyser's noise, and a slope fitted
  * to them is biased. Weights 1/(u(xD)² + (∂X/∂xB·u(xB))²). Scratch: 6 arrays of the
  * run's length and win. */
-static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, double murphree,
-                       const stagecal_runlog_result *res, const double *xd_ss, size_t k,
-                       double *scr, size_t len, int32_t *win)
+static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, stagecal_physics *ph,
+                       double murphree, const stagecal_runlog_result *res, const double *xd_ss,
+                       size_t k, double *scr, size_t len, int32_t *win)
 {
     const stagecal_runlog_run *run = &log->runs[k];
     stagecal_runlog_closure *c = &res->closures[k];
@@ -306,11 +319,13 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, d
         double r = res->windows[wk].total_reflux ? INFINITY : log->r[i];
         for (size_t a = i; a < e; a++) {
             double xd = isfinite(xd_ss[a]) ? xd_ss[a] : log->xd[a], x, sb;
+            stagecal_physics_cond pc;
             if (!(isfinite(xd) && isfinite(log->xb[a])) ||
                 log->xd_cens[a] != STAGECAL_CENSOR_NONE ||
                 log->xb_cens[a] != STAGECAL_CENSOR_NONE || res->status[a] != STAGECAL_STAGES_OK ||
-                (res->flags[a] & STAGECAL_SAMPLE_OUTLIER) ||
-                xd_for_count(col->system.vle, murphree, log->xb[a], r, nw, xd, &x, &sb) != 0)
+                (res->flags[a] & STAGECAL_SAMPLE_OUTLIER) || !row_cond(log, ph, a, xd, r, &pc) ||
+                xd_for_count(col->system.vle, ph ? &pc : NULL, murphree, log->xb[a], r, nw, xd, &x,
+                             &sb) != 0)
                 continue;
             double ud = stagecal_runlog_u_xd(col, log->xd[a]);
             double ub = stagecal_runlog_u_xb(col, log->xb[a]) * sb;
@@ -420,6 +435,7 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
     int rc = compensated_xd(log, col, xd_ss, err);
+    stagecal_physics *ph = stagecal_physics_alloc(col, NULL, NULL); /* NULL: the plain model */
     for (size_t k = 0; k < log->nruns && rc == STAGECAL_OK; k++) {
         stagecal_runlog_closure *c = &res->closures[k];
         const stagecal_runlog_run *run = &log->runs[k];
@@ -428,10 +444,11 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
         if (run->n < 2)
             continue;
         balance_sigs(log, col, res, k, scr, scr + maxrun, scr + 2 * maxrun, scr + 3 * maxrun);
-        stage_sigs(log, col, murphree, res, xd_ss, k, scr, maxrun, win);
+        stage_sigs(log, col, ph, murphree, res, xd_ss, k, scr, maxrun, win);
         double span = (log->t_s[run->first + run->n - 1] - log->t_s[run->first]) / 3600.0;
         decide(col, par, span, c);
     }
+    stagecal_physics_free(ph);
     free(scr), free(win), free(xd_ss);
     return rc;
 }
