@@ -1,6 +1,8 @@
 /*
  * error.c — status code texts and the helpers that fill a stagecal_error.
  */
+#include <stdlib.h>
+
 #include "internal.h"
 
 #include <stdarg.h>
@@ -18,6 +20,17 @@ static const char *const status_text[STAGECAL_NSTATUS] = {
     [STAGECAL_EVERSION] = "file from a newer format version",
     [STAGECAL_EINTERNAL] = "internal error",
 };
+
+const char *name_of(const char *const *names, size_t n, int v)
+{
+    return v >= 0 && (size_t)v < n && names[v] ? names[v] : "unknown";
+}
+
+void free_each(void *const *p, size_t n)
+{
+    for (size_t i = 0; i < n; i++)
+        free(p[i]);
+}
 
 const char *stagecal_strerror(int code)
 {

@@ -144,15 +144,10 @@ int stagecal_hetp_welch(double a, double se_a, double dof_a, double b, double se
 
 const char *stagecal_hetp_verdict_name(stagecal_hetp_verdict v)
 {
-    switch (v) {
-    case STAGECAL_HETP_CONSISTENT:
-        return "consistent";
-    case STAGECAL_HETP_WORSE:
-        return "worse";
-    case STAGECAL_HETP_BETTER:
-        return "better";
-    }
-    return "unknown";
+    static const char *const names[] = {[STAGECAL_HETP_CONSISTENT] = "consistent",
+                                        [STAGECAL_HETP_WORSE] = "worse",
+                                        [STAGECAL_HETP_BETTER] = "better"};
+    return NAME_OF(names, v);
 }
 
 static stagecal_hetp_verdict verdict_for(double low, double high, double ref_low, double ref_high)
@@ -267,19 +262,12 @@ int stagecal_hetp_tray_efficiency(const stagecal_hetp_stages *s, int trays, doub
 
 const char *stagecal_equiv_verdict_name(stagecal_equiv_verdict v)
 {
-    switch (v) {
-    case STAGECAL_EQUIV_EQUIVALENT:
-        return "equivalent";
-    case STAGECAL_EQUIV_NOT_SHOWN:
-        return "not-shown";
-    case STAGECAL_EQUIV_WORSE:
-        return "worse";
-    case STAGECAL_EQUIV_BETTER:
-        return "better";
-    case STAGECAL_EQUIV_NOT_DETERMINED:
-        return "not-determined";
-    }
-    return "unknown";
+    static const char *const names[] = {[STAGECAL_EQUIV_EQUIVALENT] = "equivalent",
+                                        [STAGECAL_EQUIV_NOT_SHOWN] = "not-shown",
+                                        [STAGECAL_EQUIV_WORSE] = "worse",
+                                        [STAGECAL_EQUIV_BETTER] = "better",
+                                        [STAGECAL_EQUIV_NOT_DETERMINED] = "not-determined"};
+    return NAME_OF(names, v);
 }
 
 static int check_equiv(double margin, double alpha, stagecal_error *err)

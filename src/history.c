@@ -35,16 +35,9 @@ void stagecal_history_free(stagecal_history_fit *fit)
 {
     if (!fit)
         return;
-    free(fit->segments);
-    free(fit->segment_of);
-    free(fit->beta);
-    free(fit->cov);
-    free(fit->resid);
-    if (fit->work) {
-        free(fit->work->xt);
-        free(fit->work->cl);
-        free(fit->work);
-    }
+    FREE_EACH(fit->segments, fit->segment_of, fit->beta, fit->cov, fit->resid);
+    if (fit->work)
+        FREE_EACH(fit->work->xt, fit->work->cl, fit->work);
     memset(fit, 0, sizeof *fit);
 }
 

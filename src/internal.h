@@ -23,6 +23,16 @@ int error_set(stagecal_error *err, int code, const char *fmt, ...) SC_PRINTF(3, 
 int error_set_at(stagecal_error *err, int code, const char *source, long line, long column,
                  const char *fmt, ...) SC_PRINTF(6, 7);
 
+/* The name of enum value v in a table of names indexed by value; "unknown" outside the
+ * table or where it has no name. Use NAME_OF(table, v) with a static array. */
+const char *name_of(const char *const *names, size_t n, int v);
+#define NAME_OF(names, v) name_of((names), sizeof(names) / sizeof((names)[0]), (int)(v))
+
+/* Frees each of the n pointers in p (a release function's owned members). */
+void free_each(void *const *p, size_t n);
+#define FREE_EACH(...)                                                                             \
+    free_each((void *const[]){__VA_ARGS__}, sizeof((void *const[]){__VA_ARGS__}) / sizeof(void *))
+
 /* Copies the NUL-terminated src into dst of cap bytes; −1 (dst untouched) when it does
  * not fit. */
 static inline int copy_text(char *dst, size_t cap, const char *src)

@@ -65,19 +65,13 @@ stagecal_regress_params stagecal_regress_default_params(void)
 
 const char *stagecal_regress_stop_text(stagecal_stop stop)
 {
-    switch (stop) {
-    case STAGECAL_STOP_LINEAR:
-        return "direct linear solution";
-    case STAGECAL_STOP_XTOL:
-        return "small step (xtol)";
-    case STAGECAL_STOP_GTOL:
-        return "small gradient (gtol)";
-    case STAGECAL_STOP_FTOL:
-        return "small residual change (ftol)";
-    case STAGECAL_STOP_NOPROGRESS:
-        return "no further progress (at the optimum to rounding)";
-    }
-    return "unknown";
+    static const char *const names[] = {[STAGECAL_STOP_LINEAR] = "direct linear solution",
+                                        [STAGECAL_STOP_XTOL] = "small step (xtol)",
+                                        [STAGECAL_STOP_GTOL] = "small gradient (gtol)",
+                                        [STAGECAL_STOP_FTOL] = "small residual change (ftol)",
+                                        [STAGECAL_STOP_NOPROGRESS] =
+                                            "no further progress (at the optimum to rounding)"};
+    return NAME_OF(names, stop);
 }
 
 /* ---- the core estimator --------------------------------------------------------------- */

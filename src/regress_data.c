@@ -171,10 +171,7 @@ void stagecal_regress_data_free(stagecal_regress_data *data)
 {
     if (!data)
         return;
-    free(data->r);
-    free(data->f_load);
-    free(data->stages);
-    free(data->sigma);
+    FREE_EACH(data->r, data->f_load, data->stages, data->sigma);
     memset(data, 0, sizeof *data);
 }
 

@@ -191,15 +191,10 @@ void stagecal_trend_line_eval(const stagecal_trend_fit *f, double t_s, double *v
 
 const char *stagecal_forecast_status_name(stagecal_forecast_status s)
 {
-    switch (s) {
-    case STAGECAL_FORECAST_OK:
-        return "ok";
-    case STAGECAL_FORECAST_UNBOUNDED:
-        return "unbounded";
-    case STAGECAL_FORECAST_NOT_DECLINING:
-        return "not-declining";
-    }
-    return "unknown";
+    static const char *const names[] = {[STAGECAL_FORECAST_OK] = "ok",
+                                        [STAGECAL_FORECAST_UNBOUNDED] = "unbounded",
+                                        [STAGECAL_FORECAST_NOT_DECLINING] = "not-declining"};
+    return NAME_OF(names, s);
 }
 
 int stagecal_trend_forecast_crossing(const stagecal_trend_fit *f, double required, double last_t_s,
@@ -412,15 +407,10 @@ int stagecal_trend_ewma_rl_cdf(const stagecal_trend_ewma_params *par, double shi
 
 const char *stagecal_event_kind_name(stagecal_event_kind k)
 {
-    switch (k) {
-    case STAGECAL_EVENT_REPACK:
-        return "repack";
-    case STAGECAL_EVENT_MAINTENANCE:
-        return "maintenance";
-    case STAGECAL_EVENT_NOTE:
-        return "note";
-    }
-    return "unknown";
+    static const char *const names[] = {[STAGECAL_EVENT_REPACK] = "repack",
+                                        [STAGECAL_EVENT_MAINTENANCE] = "maintenance",
+                                        [STAGECAL_EVENT_NOTE] = "note"};
+    return NAME_OF(names, k);
 }
 
 int stagecal_event_kind_parse(const char *text, stagecal_event_kind *k)
@@ -643,11 +633,7 @@ void stagecal_trend_history_free(stagecal_trend_history *h)
 {
     if (!h)
         return;
-    free(h->points);
-    free(h->order);
-    free(h->segment_of);
-    free(h->chart);
-    free(h->segments);
+    FREE_EACH(h->points, h->order, h->segment_of, h->chart, h->segments);
     memset(h, 0, sizeof *h);
 }
 

@@ -110,14 +110,7 @@ void stagecal_vle_free(stagecal_vle *vle)
 {
     if (!vle)
         return;
-    free(vle->xs);
-    free(vle->ys);
-    free(vle->ms);
-    free(vle->ts);
-    free(vle->mts);
-    free(vle->bx);
-    free(vle->by);
-    free(vle);
+    FREE_EACH(vle->xs, vle->ys, vle->ms, vle->ts, vle->mts, vle->bx, vle->by, vle);
 }
 
 /* Constant α or K: value > 1 and finite, else EINVAL naming `what`. */
