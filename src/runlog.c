@@ -135,7 +135,14 @@ static void header_cell(struct reader *rd, const char *cell)
     int has_unit;
     stagecal_error e;
     if (stagecal_units_split(cell, name, sizeof name, unit, sizeof unit, &has_unit, &e) != 0) {
-        reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, cell, "%s", e.text);
+        char other = strchr(cell, ';') ? ';' : strchr(cell, '\t') ? '\t' : 0;
+        reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, cell, "%s%s", e.text,
+                       other && other != rd->sep
+                           ? other == ';' ? "; the cell holds ';': a semicolon-separated file "
+                                            "(--csv-dialect semicolon)?"
+                                          : "; the cell holds a tab: a tab-separated file "
+                                            "(--csv-dialect tab)?"
+                           : "");
         return;
     }
     int role = role_of(name);
@@ -280,6 +287,14 @@ static void data_cell(struct reader *rd, const char *s, size_t len)
         memcpy(rd->run_text, s, k); /* (truncated as snprintf would) */
         rd->run_text[k] = '\0';
         return;
+    }
+    char point[40]; /* a decimal comma ("12,5" in a ';'-separated file) read as a point */
+    if (!plain && rd->decimal_comma && len < sizeof point && memchr(s, ',', len) &&
+        !memchr(s, '.', len)) {
+        memcpy(point, s, len + 1);
+        *strchr(point, ',') = '.';
+        s = point;
+        plain = !(role == STAGECAL_RL_TIME && u->iso8601) && runlog_parse_plain(s, len, &x) == 0;
     }
     if (is_composition(role)) {
         char why[STAGECAL_ERROR_TEXT];
@@ -437,7 +452,7 @@ void reader_disagree_warning(struct reader *rd)
         hd, hh, DISAGREE_SIGMAS, rd->ndisagree, rd->ndisagree > 1 ? "s" : "", lines, hh);
 }
 
-static int start_run(struct reader *rd, const char *name)
+int reader_start_run(struct reader *rd, const char *name)
 {
     stagecal_runlog *log = rd->log;
     stagecal_runlog_run *runs = realloc(log->runs, (log->nruns + 1) * sizeof *runs);
@@ -461,7 +476,7 @@ static int start_run(struct reader *rd, const char *name)
     memcpy(rd->names[rd->nnames++], r->name, sizeof r->name);
     rd->cur_run = log->nruns++;
     rd->have_run = 1;
-    rd->prev_t_ok = rd->prev_w_ok = 0;
+    rd->prev_t_ok = 0;
     return 0;
 }
 
@@ -469,6 +484,7 @@ void reader_close_run(struct reader *rd)
 {
     if (!rd->have_run)
         return;
+    runlog_w_rise_findings(rd);
     stagecal_runlog_run *r = &rd->log->runs[rd->cur_run];
     if (r->n < rd->par.min_rows)
         reader_finding(rd, STAGECAL_FINDING_ERROR, r->first_line, NULL,
@@ -485,6 +501,15 @@ static void end_row(struct reader *rd)
     if (rd->field != rd->nhdr) {
         reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, NULL, "%zu fields, expected %zu",
                        rd->field, rd->nhdr);
+        return;
+    }
+    const stagecal_unit *u = rd->unit;
+    distillate(rd);
+    if (u[STAGECAL_RL_W].mass)
+        v[STAGECAL_RL_W] = v[STAGECAL_RL_W] / molar_mass(col, v[STAGECAL_RL_XB]); /* NaN if xB is */
+    if (rd->field_of[STAGECAL_RL_RUN] < 0 &&
+        runlog_split_row(rd, v[STAGECAL_RL_TIME], v[STAGECAL_RL_W], rd->raw[STAGECAL_RL_W]) < 0) {
+        rd->oom = 1;
         return;
     }
     /* The run this row belongs to (runs are contiguous). */
@@ -504,15 +529,11 @@ static void end_row(struct reader *rd)
                 break;
             }
         reader_close_run(rd);
-        if (start_run(rd, name) != 0) {
+        if (reader_start_run(rd, name) != 0) {
             rd->oom = 1;
             return;
         }
     }
-    const stagecal_unit *u = rd->unit;
-    distillate(rd);
-    if (u[STAGECAL_RL_W].mass)
-        v[STAGECAL_RL_W] = v[STAGECAL_RL_W] / molar_mass(col, v[STAGECAL_RL_XB]); /* NaN if xB is */
     double vap = NAN;
     if (rd->field_of[STAGECAL_RL_V] >= 0) {
         vap = v[STAGECAL_RL_V];
@@ -524,7 +545,6 @@ static void end_row(struct reader *rd)
 
     /* Sequence checks against the previous row of this run. */
     const char *ht = rd->hdr[rd->field_of[STAGECAL_RL_TIME]];
-    const char *hw = rd->hdr[rd->field_of[STAGECAL_RL_W]];
     double t = v[STAGECAL_RL_TIME];
     if (!isnan(t)) {
         if (rd->prev_t_ok && !(t > rd->prev_t))
@@ -538,19 +558,6 @@ static void end_row(struct reader *rd)
         rd->tcur = !rd->tcur; /* this row's text is now the previous one */
     }
     double w = v[STAGECAL_RL_W], r = v[STAGECAL_RL_R];
-    if (!isnan(w)) {
-        double uw = col ? col->u.w_mol : 0.0;
-        if (rd->prev_w_ok && isfinite(r) && r > 0 &&
-            w - rd->prev_w_si > rd->par.w_rise_sigmas * sqrt(2.0) * uw && w > rd->prev_w_si)
-            reader_finding(
-                rd, STAGECAL_FINDING_WARNING, rd->line, hw,
-                "column '%s': holdup rose from %g to %g while distillate was drawn (expected "
-                "W to fall during production)",
-                hw, rd->prev_w_raw, rd->raw[STAGECAL_RL_W]);
-        rd->prev_w_si = w;
-        rd->prev_w_raw = rd->raw[STAGECAL_RL_W];
-        rd->prev_w_ok = 1;
-    }
     double xd = v[STAGECAL_RL_XD], xb = v[STAGECAL_RL_XB];
     int cd = rd->cens[STAGECAL_RL_XD], cb = rd->cens[STAGECAL_RL_XB];
     /* false when either is missing, or when censoring leaves room for xD >= xB */
@@ -563,6 +570,10 @@ static void end_row(struct reader *rd)
         return;
     }
     size_t n = log->n++;
+    if (runlog_keep_raw_w(rd, n, rd->raw[STAGECAL_RL_W]) != 0) {
+        rd->oom = 1;
+        return;
+    }
     if (!isnan(t) && !isnan(w) && !isnan(xd) && !isnan(xb) && !isnan(r))
         rd->complete_rows++;
     log->t_s[n] = t;

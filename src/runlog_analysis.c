@@ -126,6 +126,11 @@ static int close_run(const stagecal_runlog *log, const stagecal_column *col, siz
     c->run = k;
     runlog_drift_clear(c);
     runlog_boilup(log, col, par, res, k);
+    /* u(W): stated, else the load-cell noise estimated from the run's W (e is scratch here) */
+    c->u_w_estimated = !(uw > 0);
+    if (!(uw > 0))
+        uw = runlog_noise_sd(log->w_mol + run->first, run->n, e);
+    c->u_w_mol = uw;
     size_t m = 0;
     double integral = 0.0;
     for (size_t i = run->first; i < run->first + run->n; i++) {
@@ -193,13 +198,23 @@ static int close_run(const stagecal_runlog *log, const stagecal_column *col, siz
         free(x), free(y), free(wt);
         return STAGECAL_ENOMEM;
     }
+    /* With a stated u(xB), a sample's scale also holds the load-cell noise: an error δ in
+     * W_k moves h_k by δ·(xB_k − xD_k) (first order), i.e. xB by δ·(xB_k − xD_k)/W_k. (The
+     * MAD scale of the residuals already holds it.) sk[a] is that scale. */
+    double *sk = malloc(m * sizeof *sk);
+    if (!sk) {
+        free(x), free(y), free(wt);
+        return STAGECAL_ENOMEM;
+    }
     for (size_t a = 0; a < m; a++) {
         size_t i = idx[a];
         double w = log->w_mol[i];
         double integ = anchor - res->xb_rec[i] * w;           /* I_k, recovered */
         x[a] = w * (log->t_s[i] - log->t_s[idx[0]]) / 3600.0; /* t from the run's start */
         y[a] = w * log->xb[i] + integ;                        /* h_k */
-        wt[a] = 1.0 / (w * s * w * s);
+        double sw = uxb > 0 ? uw * (log->xd[i] - log->xb[i]) / w : 0.0;
+        sk[a] = sqrt(s * s + sw * sw);
+        wt[a] = 1.0 / (w * sk[a] * w * sk[a]);
     }
     double c0, c1, cov00, cov01, cov11, chisq;
     size_t q = m;
@@ -215,7 +230,7 @@ static int close_run(const stagecal_runlog *log, const stagecal_column *col, siz
         for (size_t a = 0; a < m; a++) {
             size_t i = idx[a];
             double w = log->w_mol[i];
-            if (fabs(y[a] - c0 - c1 * x[a]) / w > par->outlier_sigmas * s) {
+            if (fabs(y[a] - c0 - c1 * x[a]) / w > par->outlier_sigmas * sk[a]) {
                 res->flags[i] |= STAGECAL_SAMPLE_OUTLIER;
                 c->n_outliers++;
                 continue;
@@ -238,7 +253,7 @@ static int close_run(const stagecal_runlog *log, const stagecal_column *col, siz
          * stage counts, after the inversion) */
         c->drift_analyser = c->drift ? STAGECAL_DRIFT_UNATTRIBUTED : STAGECAL_DRIFT_NONE;
     }
-    free(x), free(y), free(wt);
+    free(x), free(y), free(wt), free(sk);
     return STAGECAL_OK;
 }
 

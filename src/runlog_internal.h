@@ -17,6 +17,19 @@
 
 #define HDR_MAX 48
 #define MAX_FIELDS 256
+#define SPLIT_PROBE 21 /* sample spacings kept at the start of a file for its typical spacing */
+
+/* State of the run finder of a file without a run column (runlog_split.c; docs/runlog.md,
+ * "Runs found by themselves"). */
+struct runlog_split {
+    double spacing[SPLIT_PROBE]; /* the file's first sample spacings [s] */
+    size_t nspacing;
+    int prev_t_ok, prev_w_ok; /* the previous row (of the file, any run) had t / W */
+    double prev_t, prev_w;    /* its time [s] and holdup [mol] */
+    double prev_w_raw;        /* its holdup as logged */
+    long prev_line;           /* its line */
+    size_t nruns;             /* runs found so far in the file (1 before any split) */
+};
 
 struct reader {
     stagecal_runlog *log;
@@ -46,9 +59,17 @@ struct reader {
     /* the previous row of the current run */
     int have_run;
     size_t cur_run;
-    int prev_t_ok, prev_w_ok;
+    int prev_t_ok;
     double prev_t;
-    double prev_w_si, prev_w_raw;
+    /* W as logged of the current run's rows (row runs[cur_run].first + i at i), for the
+     * W-rise warnings at the run's end (runlog_split.c) */
+    double *w_raw;
+    size_t w_raw_cap;
+    /* runs found by themselves (no run column) */
+    struct runlog_split split;
+    /* the CSV dialect: the separator, and whether a comma may be the decimal mark */
+    char sep;
+    int decimal_comma;
     /* missing-value bookkeeping */
     size_t nmissing[STAGECAL_RL_NCOL];
     long first_missing[STAGECAL_RL_NCOL];
@@ -71,8 +92,30 @@ void reader_fatal(struct reader *rd, long line, const char *column, const char *
 /* libcsv callbacks (data: the reader). */
 void reader_on_field(void *s, size_t len, void *data);
 void reader_on_row(int c, void *data);
-/* The end of the current run: too few rows is an error. */
+/* Starts run `name` at the current row; -1 on allocation failure. */
+int reader_start_run(struct reader *rd, const char *name);
+/* The end of the current run: too few rows is an error; W rising while distillate is drawn
+ * is a warning (runlog_w_rise_findings). */
 void reader_close_run(struct reader *rd);
+
+/* For a file without a run column: does the row at time t (s, NaN when missing) with
+ * holdup w (mol; w_raw as logged) start a new run? A time gap longer than
+ * max(par->split_gap_s, par->split_gap_samples x the file's typical spacing) or a rise of
+ * W by more than max(par->split_rise_frac x W, par->split_rise_sigmas x sqrt(2) x u(W))
+ * does. Then it closes the current run, starts the new one (renaming the file's first run
+ * "<file>#1" at the first cut), names the line in a warning and returns 1; 0 when the row
+ * stays in its run, -1 on allocation failure. Called for every row before it joins a run. */
+int runlog_split_row(struct reader *rd, double t, double w, double w_raw);
+/* Keeps W as logged of the current run's row n (a log row index); -1 on allocation failure. */
+int runlog_keep_raw_w(struct reader *rd, size_t n, double w_raw);
+/* A warning for every rise of W in the current run while distillate is drawn (finite
+ * R > 0) by more than par->w_rise_sigmas x sqrt(2) x u(W): u(W) from the column file, else
+ * the run's load-cell noise estimated from its logged W (runlog_noise_sd), else any rise. */
+void runlog_w_rise_findings(struct reader *rd);
+/* The separator of a file from its header line (the first line, as read): par_sep when it
+ * is not 0, else ';' or a tab when either occurs outside quotes more often than ',' (a
+ * European spreadsheet export, or a tab-separated one), else ','. */
+char runlog_detect_separator(const char *line, size_t len, int par_sep);
 /* The warning naming rows where xD and xD_heavy disagree (none when they agree). */
 void reader_disagree_warning(struct reader *rd);
 
@@ -160,5 +203,11 @@ int runlog_parse_fraction(const char *s, const stagecal_unit *u, int parsed, dou
 
 /* The range of mole fractions a reading allows: [v, v], [0, v] or [v, 1]. */
 void runlog_reading_range(double v, int censor, double *lo, double *hi);
+
+/* A robust standard deviation of the noise on a slowly varying signal x[0..n−1] (NaN
+ * skipped): 1.4826·MAD of its second differences / sqrt(6). 0 with fewer than 7 finite
+ * values. tmp is scratch of n. Used for the load-cell noise u(W) when the column file
+ * does not state it (runlog_split.c). */
+double runlog_noise_sd(const double *x, size_t n, double *tmp);
 
 #endif

@@ -28,7 +28,15 @@ void stagecal_findings_free(stagecal_findings *f)
 
 stagecal_runlog_params stagecal_runlog_default_params(void)
 {
-    stagecal_runlog_params p = {5, 3.0, 1000, 1};
+    stagecal_runlog_params p = {.min_rows = 5,
+                                .w_rise_sigmas = 3.0,
+                                .max_findings = 1000,
+                                .sha256 = 1,
+                                .split_gap_s = 7200.0,
+                                .split_gap_samples = 20.0,
+                                .split_rise_frac = 0.10,
+                                .split_rise_sigmas = 10.0,
+                                .csv_separator = 0};
     return p;
 }
 

@@ -116,7 +116,11 @@ static int file_pump(struct file_read *fr, int stop)
             return 0;
         if ((len = getline(&fr->buf, &fr->cap, fr->in)) <= 0)
             break;
-        rd->line++;
+        if (rd->line++ == 0) {
+            rd->sep = runlog_detect_separator(fr->buf, (size_t)len, rd->par.csv_separator);
+            rd->decimal_comma = rd->sep != ',';
+            csv_set_delim(&fr->p, (unsigned char)rd->sep);
+        }
         if (rd->par.sha256)
             sha256_update(&fr->hash, fr->buf, (size_t)len);
         fr->sum = checksum_update(fr->sum, fr->buf, (size_t)len);
@@ -217,6 +221,7 @@ static int file_end(struct file_read *fr, stagecal_runlog *log, stagecal_error *
             }
     }
     free(rd->names);
+    free(rd->w_raw);
     free(rd);
     fr->rd = NULL;
     return rc;

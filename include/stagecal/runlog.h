@@ -146,6 +146,17 @@ typedef struct {
     size_t max_findings;  /* findings kept by stagecal_findings_alloc in the CLI (1000) */
     int sha256;           /* 1: SHA-256 of each file's bytes into log->sha256, for provenance
                              (default 1); 0 saves its cost where nothing records it */
+    /* Runs found by themselves in a file without a run column (docs/runlog.md, "Runs"):
+     * a row starts a new run after a time gap longer than
+     * max(split_gap_s, split_gap_samples x the file's median spacing over its first 20
+     * spacings), or when W rises by more than max(split_rise_frac x W,
+     * split_rise_sigmas x sqrt(2) x u(W)) (a pot recharge). 0 switches a rule off. */
+    double split_gap_s;       /* 7200 (2 h) */
+    double split_gap_samples; /* 20 */
+    double split_rise_frac;   /* 0.10 */
+    double split_rise_sigmas; /* 10 (u(W) from the column file; 0 there: the fraction alone) */
+    int csv_separator;        /* ',', ';' or '\t'; 0 (default): detected from the header
+                                 line. With ';' or a tab, a comma may be the decimal mark. */
 } stagecal_runlog_params;
 
 stagecal_runlog_params stagecal_runlog_default_params(void);
@@ -320,6 +331,10 @@ typedef struct {
     double u_w_diff_mol; /* standard uncertainty of w_fall − w_pred [mol] */
     double boilup_ratio; /* w_fall / w_pred */
     int boilup_mismatch; /* 1: |w_fall − w_pred| > boilup_sigmas·u_w_diff */
+    double u_w_mol;      /* u(W) used for the closure and the outlier scale [mol]: the
+                            column file's, else the load-cell noise estimated from the run
+                            (1.4826·MAD of W's second differences / √6) */
+    int u_w_estimated;   /* 1: u_w_mol was estimated from the log */
 } stagecal_runlog_closure;
 
 typedef struct {

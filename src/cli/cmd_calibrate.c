@@ -577,6 +577,7 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
     stagecal_calibrate_params par = stagecal_calibrate_default_params();
     struct request rq = {NULL, "fits", {NULL, NULL, NULL}, 0};
     long boot = 0, seed = (long)par.seed;
+    int dialect = 0;
     int method = 0, robust = -1, holdup = 0, first, rc;
     const struct cli_option opts[] = {
         OPT_COLUMN(&rq.column, "the column file (docs/column-file.md), required"),
@@ -622,11 +623,13 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
         OPT_KEEP_FLAGGED(&par.keep_flagged),
         OPT_WARM_UP(&par.analysis.warmup_s),
         OPT_MIN_WINDOW(&par.analysis.min_window_s),
+        OPT_CSV_DIALECT(&dialect),
         OPT_END_COMMON(ctx),
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
         return rc;
     par.bootstrap = (size_t)boot;
+    par.read.csv_separator = cli_csv_separator(dialect);
     par.seed = (unsigned long)seed;
     par.robust = cli_robust_kind(robust);
     par.evidence.holdup = holdup == 0 ? STAGECAL_EVIDENCE_HOLDUP_AUTO : holdup - 1;

@@ -180,11 +180,13 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
 {
     const char *column_path = NULL;
     long minrows = 0;
+    int dialect = 0;
     stagecal_runlog_analysis_params ap = stagecal_runlog_analysis_default_params();
     const struct cli_option opts[] = {
         OPT_COLUMN(&column_path, "column file: molar masses (mass units), latent heat (Q) and\n"
                                  "the uncertainties the checks use (docs/column-file.md)"),
         OPT_MIN_ROWS(&minrows),
+        OPT_CSV_DIALECT(&dialect),
         OPT_WARM_UP(&ap.warmup_s),
         OPT_MIN_WINDOW(&ap.min_window_s),
         OPT_END_COMMON(ctx),
@@ -195,6 +197,7 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
         return rc;
     if (minrows > 0)
         rp.min_rows = (size_t)minrows;
+    rp.csv_separator = cli_csv_separator(dialect);
     if (first >= argc)
         return cli_usage_error("no run log given (expected one or more RUNLOG.csv)");
 

@@ -338,8 +338,8 @@ static int invert_streamed(char **paths, size_t n, const char *out_path,
 
 /* Every row of the run logs argv[first..argc). */
 static int invert_rows(int argc, char **argv, int first, const char *out_path, long minrows,
-                       const stagecal_runlog_analysis_params *ap, double murphree, long threads,
-                       cli_ctx *ctx)
+                       int dialect, const stagecal_runlog_analysis_params *ap, double murphree,
+                       long threads, cli_ctx *ctx)
 {
     cli_system *sys = &ctx->sys;
     int rc;
@@ -362,6 +362,7 @@ static int invert_rows(int argc, char **argv, int first, const char *out_path, l
     rp.sha256 = 0; /* no provenance is recorded here */
     if (minrows > 0)
         rp.min_rows = (size_t)minrows;
+    rp.csv_separator = cli_csv_separator(dialect);
     if (ctx->json)
         return invert_whole(argc, argv, first, out_path, &rp, ap, murphree, ctx);
     if (threads < 0) {
@@ -377,6 +378,7 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
     double xd = NAN, xb = NAN, reflux = NAN, murphree = 1.0;
     const char *out_path = NULL;
     long minrows = 0, threads = -1;
+    int dialect = 0;
     stagecal_runlog_analysis_params ap = stagecal_runlog_analysis_default_params();
     const struct cli_option opts[] = {
         OPT_SYSTEM(&ctx->sys),
@@ -388,6 +390,7 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
                               "--json)"),
         OPT_ALIAS("out", "output"),
         OPT_MIN_ROWS(&minrows),
+        OPT_CSV_DIALECT(&dialect),
         OPT_WARM_UP(&ap.warmup_s),
         OPT_MIN_WINDOW(&ap.min_window_s),
         OPT_LONG("threads", &threads, "N",
@@ -402,11 +405,13 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
         return rc;
     /* the mode follows from what was given: run logs, or a point */
     if (first < argc || out_path || cli_given(opts, "min-rows") || cli_given(opts, "warm-up") ||
-        cli_given(opts, "min-window") || cli_given(opts, "threads")) {
+        cli_given(opts, "min-window") || cli_given(opts, "threads") ||
+        cli_given(opts, "csv-dialect")) {
         if (!isnan(xd) || !isnan(xb) || !isnan(reflux))
             return cli_usage_error("options '--xd', '--xb' and '--reflux' are for one point, "
                                    "not with run logs (each row carries its own)");
-        return invert_rows(argc, argv, first, out_path, minrows, &ap, murphree, threads, ctx);
+        return invert_rows(argc, argv, first, out_path, minrows, dialect, &ap, murphree, threads,
+                           ctx);
     }
     return invert_point(xd, xb, reflux, murphree, ctx);
 }

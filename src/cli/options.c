@@ -16,6 +16,7 @@
 
 #define MAX_OPTS 64
 
+const char *const cli_csv_dialects[] = {"auto", "comma", "semicolon", "tab", NULL};
 const char *const cli_robust_names[] = {"huber", "bisquare", NULL};
 
 /* Which entries of the last parsed table were given (one command per process). */

@@ -140,6 +140,16 @@ struct cli_option {
     OPT_FLAG(0, "keep-flagged", (v),                                                               \
              "keep runs flagged for a gross closure error or analyser drift in\n"                  \
              "the fit (default: left out, and the summary says which and why)")
+/* the CSV dialect of run logs: auto, comma, semicolon or tab (index into *v); see
+ * cli_csv_separator */
+#define OPT_CSV_DIALECT(v)                                                                         \
+    OPT_CHOICE("csv-dialect", (v), "KIND",                                                         \
+               "run-log separator: auto (default: from the header line), comma,\n"                 \
+               "semicolon or tab; with semicolon or tab a decimal comma is read too",              \
+               cli_csv_dialects, "a CSV dialect")
+extern const char *const cli_csv_dialects[];
+/* The runlog's csv_separator for an OPT_CSV_DIALECT index (0: detect). */
+#define cli_csv_separator(i) ((i) == 1 ? ',' : (i) == 2 ? ';' : (i) == 3 ? '\t' : 0)
 #define OPT_MIN_ROWS(v)                                                                            \
     OPT_LONG("min-rows", (v), "N", "fewest rows a run may have (default 5)", 1, 1000000000L)
 #define OPT_BOOTSTRAP(v)                                                                           \
