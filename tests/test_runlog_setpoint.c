@@ -280,6 +280,47 @@ static void setpoint_uncertainty_enters_stage_se(void **state)
     assert_false(e.stages_ok); /* no stated uncertainty at all: no standard error */
 }
 
+/* The composition-space fit weighs a window by its whole effective variance, u(R) included:
+ * three windows of a constant 6 stages (exact Smoker compositions at R = 1.5, 3, 6) of which
+ * the one at R = 1.5 has its pot composition moved to what 6.5 stages give. With exact
+ * reflux ratios the fit is pulled up by that window; when that window's set point carries
+ * u(R) = 0.3 (a measured R that scatters), its log-odds variance grows by (∂logit/∂R·u)² —
+ * about 10³ times its analyser part — and the estimate comes back to within a tenth of the
+ * pull. (Exact compositions: the two other windows alone give 6 to the stepping's 1e-9.) */
+static void setpoint_uncertainty_weights_composition_fit(void **state)
+{
+    (void)state;
+    static const double rs[3] = {1.5, 3.0, 6.0};
+    stagecal_evidence ev[3];
+    memset(ev, 0, sizeof ev);
+    for (int i = 0; i < 3; i++) {
+        ev[i].r = rs[i];
+        ev[i].xd = 0.95;
+        ev[i].xb = oracle_smoker_xb(2.0, rs[i], 0.95, i == 0 ? 6.5 : 6.0);
+        ev[i].u_xd = 1e-4;
+        ev[i].u_xb = 1e-3;
+        ev[i].n_samples = ev[i].n_ok = 10;
+    }
+    stagecal_form form;
+    assert_int_equal(stagecal_form_parse("constant", &form, NULL), 0);
+    double theta0 = 6.0, est[2];
+    for (int k = 0; k < 2; k++) {
+        ev[0].u_r = k ? 0.3 : 0.0;
+        stagecal_regress_result res;
+        stagecal_error err;
+        int rc =
+            stagecal_fit_composition(col.system.vle, 1.0, ev, 3, &form, &theta0, NULL, &res, &err);
+        if (rc)
+            print_error("%s\n", err.text);
+        assert_int_equal(rc, 0);
+        est[k] = res.theta[0];
+        stagecal_regress_result_free(&res);
+    }
+    print_message("exact R: %.6f, u(R) = 0.3 on the moved window: %.6f\n", est[0], est[1]);
+    assert_true(est[0] - 6.0 > 0.02); /* the moved window pulls (0.036 measured) */
+    assert_true(fabs(est[1] - 6.0) < 0.1 * (est[0] - 6.0));
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -288,6 +329,7 @@ int main(void)
         cmocka_unit_test(setpoint_false_splits_and_power),
         cmocka_unit_test(setpoint_measured_log_calibrates),
         cmocka_unit_test(setpoint_uncertainty_enters_stage_se),
+        cmocka_unit_test(setpoint_uncertainty_weights_composition_fit),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }
