@@ -361,6 +361,40 @@ static void runlog_stream_measured_reflux_as_whole(void **state)
     gsl_rng_free(rng);
 }
 
+/* A log without a run column (the runs of demo 2025-01 and 2025-02 with the column cut off):
+ * the reader finds the runs by time gaps and pot recharges as it reads (runlog_split.c), and
+ * the stream hands out the same runs, rows, findings and inverted bytes as the whole file. */
+static void runlog_stream_found_runs_as_whole(void **state)
+{
+    (void)state;
+    const char *path = STAGECAL_BUILD_DIR "/test_runlog_stream_norun.csv";
+    FILE *out = fopen(path, "w");
+    assert_non_null(out);
+    for (int m = 1; m <= 2; m++) {
+        char in_path[512], line[4096];
+        snprintf(in_path, sizeof in_path, STAGECAL_DATASETS "/demo/logs/2025-%02d.csv", m);
+        FILE *in = fopen(in_path, "r");
+        assert_non_null(in);
+        for (int k = 0; fgets(line, sizeof line, in); k++) {
+            const char *rest = strchr(line, ',');
+            assert_non_null(rest);
+            if (k > 0 || m == 1)
+                fputs(rest + 1, out);
+        }
+        fclose(in);
+    }
+    fclose(out);
+    stagecal_column col;
+    memset(&col, 0, sizeof col);
+    assert_int_equal(
+        stagecal_column_load(STAGECAL_DATASETS "/columns/demo_benzene_toluene.json", &col, NULL),
+        0);
+    compare_whole_and_stream(&path, 1, &col);
+    check_stream_inversion(&path, 1, &col, 5);
+    stagecal_column_free(&col);
+    remove(path);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -370,6 +404,7 @@ int main(void)
         cmocka_unit_test(runlog_stream_bad_inputs_as_whole),
         cmocka_unit_test(runlog_stream_inversion_as_whole),
         cmocka_unit_test(runlog_stream_measured_reflux_as_whole),
+        cmocka_unit_test(runlog_stream_found_runs_as_whole),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
