@@ -337,6 +337,13 @@ static void data_cell(struct reader *rd, const char *s, size_t len)
                        "column '%s': value '%s' is negative (expected a value >= 0)", h, s);
         return;
     }
+    if (role == STAGECAL_RL_W && x == 0) {
+        reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, h,
+                       "column '%s': value '%s' is zero (expected W > 0: an empty pot does "
+                       "not boil)",
+                       h, s);
+        return;
+    }
     if (role == STAGECAL_RL_TIME)
         keep_time_text(rd, s, len);
     rd->raw[role] = x;
