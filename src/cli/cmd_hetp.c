@@ -252,10 +252,12 @@ static void print_side(const struct job *j, const struct side *s, int pct)
     char at[64] = "";
     if (s->m.form.uses_load)
         snprintf(at, sizeof at, " and F = %g Pa^0.5", j->fload);
+    char se[32]; /* a huge se (a variance of 1e308 in the file) in exponent form */
+    snprintf(se, sizeof se, s->s.se < 1e6 ? "%.3f" : "%.3g", s->s.se);
     printf("%s (column %s, fitted %s)\n", s->path, s->m.column_id, s->m.fitted_utc);
     printf("  stages at R = %g%s: %.3f (the pot included); column stages %.3f "
-           "(se %.3f, %.3g dof)%s\n",
-           j->reflux, at, s->pt.stages, s->s.column_stages, s->s.se, s->s.dof,
+           "(se %s, %.3g dof)%s\n",
+           j->reflux, at, s->pt.stages, s->s.column_stages, se, s->s.dof,
            s->pt.extrapolated ? " [EXTRAPOLATED]" : "");
     if (j->trays > 0)
         printf("  overall tray efficiency %.3f on %ld trays, %d %% CI [%.3f, %.3f]\n",

@@ -417,6 +417,11 @@ static int run(const struct request *q, cli_ctx *ctx)
                                                 (size_t)q->samples, (unsigned long)q->seed,
                                                 q->level, q->run_scatter, &band, &err);
         have_band = rc == STAGECAL_OK;
+        if (rc == STAGECAL_ENOCONV) { /* the model file's covariance, not the program */
+            cli_error("%s: %s; '--samples 0' runs the batch without the band", q->model, err.text);
+            rc = CLI_EXIT_DATA;
+            goto done;
+        }
     }
     if (rc != STAGECAL_OK) {
         rc = cli_fail(&err);
