@@ -3,6 +3,7 @@
  * planner's side of the calibration): trajectory, cuts, batch time, energy, and a band
  * from the model's parameter covariance. Numerics live in src/batch*.c.
  */
+#include <errno.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -19,13 +20,13 @@
 
 static const struct cli_usage usage = {
     "usage: stagecal predict --model FILE [--column FILE | --alpha A | --kvalue K]\n"
-    "                        --charge KMOL --xb0 X --boilup KMOL_PER_H\n"
+    "                        --charge AMOUNT --xb0 X --boilup RATE\n"
     "                        (--reflux R | --xd-setpoint X [--reflux-max R] | --plan FILE)\n"
     "                        [--cut KIND=VALUE ...] [--f-factor F] [--latent KJ_PER_MOL]\n"
     "                        [--every H] [-o FILE] [--samples N] [--seed S] [--level P]\n"
     "                        [--json] [--quiet]\n",
-    "Predicts a batch rectification from a model file: the pot is charged with KMOL at\n"
-    "mole fraction X and boiled up at a constant rate; at every instant the distillate\n"
+    "Predicts a batch rectification from a model file: the pot is charged with AMOUNT at\n"
+    "composition X and boiled up at a constant rate; at every instant the distillate\n"
     "follows from stepping the model's stages(R, F) up from the pot (column holdup\n"
     "neglected). Receivers (cuts) are filled in order, each until its target. The\n"
     "equilibrium model is --column, --alpha or --kvalue, else the model file's.\n",
@@ -288,16 +289,95 @@ static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_r
 /* The options; NAN where not given. */
 struct request {
     const char *model, *plan, *out;
-    double charge, xb0, boilup, reflux, xdset, rmax, f_load, latent, every, level;
+    const char *charge_s, *xb0_s, *boilup_s; /* as given: a number and a unit (units.h) */
+    double charge, xb0, boilup;              /* their numbers, NAN when not given ... */
+    stagecal_unit charge_u, xb0_u, boilup_u; /* ... and units */
+    double reflux, xdset, rmax, f_load, latent, every, level;
     long samples, seed;
     int run_scatter;
     stagecal_batch_cut_spec cuts[STAGECAL_BATCH_MAXCUTS];
     size_t n_cuts;
 };
 
-/* The batch problem from the plan file and the options (options win). An exit code. */
-static int build_problem(const struct request *q, stagecal_batch_problem *pb,
-                         latent_from *latent_source)
+/* "2100kg", "2100 kg" or "25" (the unit dflt) for option opt: a number > 0 and a unit of
+ * qty (or of qty2 when it is not STAGECAL_QTY_LABEL). An exit code. */
+static int parse_amount(const char *opt, const char *text, stagecal_quantity qty,
+                        stagecal_quantity qty2, const char *dflt, double *v, stagecal_unit *u)
+{
+    char *end;
+    errno = 0;
+    *v = strtod(text, &end);
+    while (*end == ' ')
+        end++;
+    const char *unit = *end ? end : dflt;
+    stagecal_error e;
+    if (end == text || errno || !isfinite(*v))
+        return cli_usage_error("option '--%s': '%s' is not a number with a unit (e.g. %s)", opt,
+                               text, qty == STAGECAL_QTY_FRACTION ? "48wt%" : "2100kg");
+    if (stagecal_units_parse(qty, unit, u, &e) != 0 &&
+        (qty2 == STAGECAL_QTY_LABEL || stagecal_units_parse(qty2, unit, u, &e) != 0))
+        return cli_usage_error("option '--%s': unknown unit '%s' (expected %s%s%s)", opt, unit,
+                               stagecal_units_expected(qty), qty2 != STAGECAL_QTY_LABEL ? ", " : "",
+                               qty2 != STAGECAL_QTY_LABEL ? stagecal_units_expected(qty2) : "");
+    if (!(*v > u->lo) || (qty == STAGECAL_QTY_FRACTION && !(*v < u->hi)))
+        return cli_usage_error("option '--%s': '%s' is outside (%g, %g %s)", opt, text, u->lo,
+                               u->hi, unit);
+    return 0;
+}
+
+/* The options' charge, composition and boil-up in SI, with the molar masses ml, mh (kg/mol, 0
+ * when unknown) for mass units and the latent heat (J/mol, 0 when unknown) for a duty; a line
+ * for people saying what was converted when a unit was not the default. An exit code. */
+static int convert_inputs(const struct request *q, double ml, double mh, stagecal_batch_problem *pb,
+                          char *said, size_t said_len)
+{
+    int n = 0;
+    said[0] = '\0';
+    if (!isnan(q->xb0)) {
+        double x = q->xb0 * q->xb0_u.scale;
+        if (q->xb0_u.mass && !(ml > 0 && mh > 0))
+            return cli_usage_error("option '--xb0': a mass fraction needs the molar masses (the "
+                                   "model file records none; give --column FILE)");
+        pb->xb0 = q->xb0_u.mass ? stagecal_vle_mass_to_mole(x, ml, mh) : x;
+        if (strcmp(q->xb0_u.text, "mol/mol") != 0)
+            n += snprintf(said + n, said_len - (size_t)n, "; xb0 %s = %.5g mol/mol", q->xb0_s,
+                          pb->xb0);
+    }
+    if (!isnan(q->charge)) {
+        double w = q->charge * q->charge_u.scale, x = pb->xb0;
+        if (q->charge_u.mass && !(ml > 0 && mh > 0 && x >= 0 && x <= 1))
+            return cli_usage_error("option '--charge': a mass needs the molar masses and the "
+                                   "charge composition (--xb0; the model file records no molar "
+                                   "masses: give --column FILE)");
+        pb->w0_mol = q->charge_u.mass ? w / (x * ml + (1 - x) * mh) : w;
+        if (strcmp(q->charge_u.text, "kmol") != 0 && n < (int)said_len)
+            n += snprintf(said + n, said_len - (size_t)n, "; charge %s = %.5g kmol", q->charge_s,
+                          pb->w0_mol / STAGECAL_UNIT_KMOL);
+    }
+    if (!isnan(q->boilup)) {
+        double b = q->boilup * q->boilup_u.scale;
+        if (q->boilup_u.qty == STAGECAL_QTY_DUTY) {
+            if (!(pb->latent_j_mol > 0))
+                return cli_usage_error("option '--boilup': a reboiler duty needs the latent heat "
+                                       "(--latent, or a column or model file that records one)");
+            pb->v_mol_s = b / pb->latent_j_mol;
+        } else if (q->boilup_u.mass) {
+            return cli_usage_error("option '--boilup': a mass boil-up needs the vapour's molar "
+                                   "mass, which changes during the batch (expected kmol/h, mol/s "
+                                   "or the reboiler duty in kW)");
+        } else {
+            pb->v_mol_s = b;
+        }
+        if (strcmp(q->boilup_u.text, "kmol/h") != 0 && n < (int)said_len)
+            snprintf(said + n, said_len - (size_t)n, "; boil-up %s = %.5g kmol/h", q->boilup_s,
+                     pb->v_mol_s / STAGECAL_UNIT_KMOL_H);
+    }
+    return 0;
+}
+
+/* The batch problem as the plan file states it (before the model is read: a bad plan is
+ * named first). An exit code. */
+static int start_problem(const struct request *q, stagecal_batch_problem *pb)
 {
     stagecal_error err;
     stagecal_batch_problem_init(pb);
@@ -306,12 +386,33 @@ static int build_problem(const struct request *q, stagecal_batch_problem *pb,
     pb->v_mol_s = NAN;
     if (q->plan && stagecal_batch_plan_load(q->plan, pb, &err) != STAGECAL_OK)
         return cli_fail(&err);
-    if (!isnan(q->charge))
-        pb->w0_mol = q->charge * STAGECAL_UNIT_KMOL;
-    if (!isnan(q->xb0))
-        pb->xb0 = q->xb0;
-    if (!isnan(q->boilup))
-        pb->v_mol_s = q->boilup * STAGECAL_UNIT_KMOL_H;
+    return 0;
+}
+
+/* The batch problem of start_problem with the options (options win); ml, mh and the latent
+ * heat known so far convert options in mass units or a duty. An exit code. */
+static int build_problem(const struct request *q, double ml, double mh, double latent,
+                         stagecal_batch_problem *pb, latent_from *latent_source, char *said,
+                         size_t said_len)
+{
+    stagecal_error err;
+    /* the latent heat: --latent, else the plan's, else (from the caller) the column or
+     * model file's */
+    *latent_source = LATENT_NONE;
+    if (!isnan(q->latent)) {
+        pb->latent_j_mol = q->latent * STAGECAL_UNIT_KJ_MOL;
+        *latent_source = LATENT_OPTION;
+    } else if (pb->latent_j_mol > 0) {
+        *latent_source = LATENT_PLAN;
+    }
+    double plan_latent = pb->latent_j_mol;
+    if (!(pb->latent_j_mol > 0))
+        pb->latent_j_mol = latent; /* for a duty only; the caller decides what is reported */
+    int rc = convert_inputs(q, ml, mh, pb, said, said_len);
+    if (isnan(q->latent))
+        pb->latent_j_mol = plan_latent;
+    if (rc)
+        return rc;
     if (isnan(pb->w0_mol))
         return cli_usage_error("option '--charge' is required (or a charge in the plan)");
     if (isnan(pb->xb0))
@@ -333,15 +434,6 @@ static int build_problem(const struct request *q, stagecal_batch_problem *pb,
     if (pb->n_cuts == 0)
         return cli_usage_error("no receiver: give at least one '--cut KIND=VALUE' (or cuts in "
                                "the plan)");
-    /* the latent heat: --latent, else the plan's, else (below) the column file's with
-     * --column, else the one the model file records */
-    *latent_source = LATENT_NONE;
-    if (!isnan(q->latent)) {
-        pb->latent_j_mol = q->latent * STAGECAL_UNIT_KJ_MOL;
-        *latent_source = LATENT_OPTION;
-    } else if (pb->latent_j_mol > 0) {
-        *latent_source = LATENT_PLAN;
-    }
     if (stagecal_batch_check(pb, &err) != STAGECAL_OK) {
         if (!q->plan)
             return cli_usage_error("%s", err.text);
@@ -376,9 +468,8 @@ static int run(const struct request *q, cli_ctx *ctx)
     stagecal_batch_problem pb;
     stagecal_error err;
     latent_from latent_source = LATENT_NONE;
-    if ((rc = build_problem(q, &pb, &latent_source)))
+    if ((rc = start_problem(q, &pb)))
         return rc;
-
     stagecal_model m;
     stagecal_model_init(&m);
     if (stagecal_model_load(q->model, &m, &err) != STAGECAL_OK)
@@ -395,6 +486,23 @@ static int run(const struct request *q, cli_ctx *ctx)
         stagecal_model_free(&m);
         return rc;
     }
+    /* molar masses and latent heat for options in mass units or a duty: the column file's
+     * with --column, else the model file's */
+    double ml = sys->have_column ? sys->col.system.m_light : m.m_light_kg_mol;
+    double mh = sys->have_column ? sys->col.system.m_heavy : m.m_heavy_kg_mol;
+    double lat = sys->have_column    ? sys->col.system.latent_j_mol
+                 : !sys->column_path ? m.latent_j_mol
+                                     : 0.0;
+    char said[400];
+    if ((rc = build_problem(q, ml, mh, lat, &pb, &latent_source, said, sizeof said))) {
+        stagecal_vle_free(own);
+        if (own)
+            sys->vle = NULL;
+        stagecal_model_free(&m);
+        return rc;
+    }
+    if (said[0] && !ctx->json)
+        printf("inputs converted: %s\n", said + 2);
     if (isnan(q->latent) && pb.latent_j_mol == 0 && sys->have_column) {
         pb.latent_j_mol = sys->col.system.latent_j_mol;
         latent_source = LATENT_COLUMN;
@@ -459,11 +567,15 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
     const struct cli_option opts[] = {
         OPT_STRING(0, "model", &q.model, "FILE", "model file written by 'stagecal calibrate'"),
         OPT_SYSTEM(&ctx->sys),
-        OPT_DOUBLE("charge", &q.charge, "KMOL", "charge [kmol], > 0", 0, INFINITY, CLI_D_LO_OPEN,
-                   "an amount in kmol"),
-        OPT_FRACTION("xb0", &q.xb0, "X", "charge mole fraction of the light component, in (0, 1)"),
-        OPT_DOUBLE("boilup", &q.boilup, "KMOL_PER_H", "boil-up [kmol/h], > 0, constant", 0,
-                   INFINITY, CLI_D_LO_OPEN, "a rate in kmol/h"),
+        OPT_STRING(0, "charge", &q.charge_s, "AMOUNT",
+                   "charge > 0 with its unit as in run logs: kmol (the default),\n"
+                   "mol, kg or lb (mass: with the molar masses at XB0)"),
+        OPT_STRING(0, "xb0", &q.xb0_s, "X",
+                   "charge composition of the light component: mol/mol (the\n"
+                   "default), mol%, ppm, kg/kg, wt% or ppmw, e.g. 48wt%"),
+        OPT_STRING(0, "boilup", &q.boilup_s, "RATE",
+                   "constant boil-up > 0: kmol/h (the default) or mol/s, or the\n"
+                   "reboiler duty in kW, W or MW (boil-up = duty / latent heat)"),
         OPT_DOUBLE("reflux", &q.reflux, "R", "constant reflux ratio, R >= 0", 0, INFINITY, 0,
                    "a finite reflux ratio >= 0"),
         OPT_FRACTION("xd-setpoint", &q.xdset, "X",
@@ -503,6 +615,13 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
     if (first < argc)
         return cli_usage_error("unexpected argument '%s' (predict takes options only)",
                                argv[first]);
+    if ((q.charge_s && (rc = parse_amount("charge", q.charge_s, STAGECAL_QTY_AMOUNT,
+                                          STAGECAL_QTY_LABEL, "kmol", &q.charge, &q.charge_u))) ||
+        (q.xb0_s && (rc = parse_amount("xb0", q.xb0_s, STAGECAL_QTY_FRACTION, STAGECAL_QTY_LABEL,
+                                       "mol/mol", &q.xb0, &q.xb0_u))) ||
+        (q.boilup_s && (rc = parse_amount("boilup", q.boilup_s, STAGECAL_QTY_FLOW,
+                                          STAGECAL_QTY_DUTY, "kmol/h", &q.boilup, &q.boilup_u))))
+        return rc;
     for (const char *const *c = cut_text; *c; c++)
         if ((rc = parse_cut(*c, &q.cuts[q.n_cuts++])))
             return rc;
