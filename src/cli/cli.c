@@ -243,6 +243,10 @@ json_t *cli_run_json(const stagecal_runlog *log, size_t k, const stagecal_runlog
     json_object_set_new(o, "rows_in_balance", json_integer((json_int_t)cl->n_used));
     json_object_set_new(o, "closure", cli_json_real(cl->closure));
     json_object_set_new(o, "u_closure", cli_json_real(cl->u_closure));
+    /* the load-cell noise behind u_closure and the outlier scale (docs/runlog.md) */
+    json_object_set_new(o, "u_w_mol", cli_json_real(cl->u_w_mol));
+    json_object_set_new(o, "u_w_source",
+                        json_string(cl->u_w_estimated ? "estimated from W" : "column file"));
     json_object_set_new(o, "gross_error", json_boolean(cl->gross));
     json_object_set_new(o, "xb_drift_per_h", cli_json_real(cl->drift_per_h));
     json_object_set_new(o, "u_xb_drift_per_h", cli_json_real(cl->u_drift_per_h));

@@ -39,6 +39,20 @@ else
     echo "FAIL: too many outliers"; cat "$tmp/check.txt"; fails=$((fails + 1))
 fi
 
+# the load-cell noise estimated per run (--json): sd 10 kg is about 0.12 kmol at M ≈ 85 g/mol;
+# the band 0.06-0.25 kmol allows for the 1-kg rounding and one series' spread (8.5 %)
+"$BIN" check --json --quiet --column "$COL" "$tmp/2025-01.csv" >"$tmp/check.json"
+if /usr/bin/python3 -c 'import json,sys
+d = json.load(open(sys.argv[1]))
+ok = len(d["runs"]) == 4 and all(r["u_w_source"] == "estimated from W" and
+                                 60 < r["u_w_mol"] < 250 for r in d["runs"])
+print(" ".join("%.0f" % r["u_w_mol"] for r in d["runs"]), "mol")
+sys.exit(0 if ok else 1)' "$tmp/check.json"; then
+    echo "ok: u(W) estimated per run near the 10 kg of the scenario"
+else
+    echo "FAIL: u(W) estimate"; fails=$((fails + 1))
+fi
+
 # the dialects read alike: per-row inversion byte-identical
 "$BIN" invert --column "$COL" -o "$tmp/semi.csv" --quiet "$tmp/2025-01.csv" >/dev/null
 "$BIN" invert --column "$COL" -o "$tmp/comma.csv" --quiet "$tmp/comma/2025-01.csv" >/dev/null
