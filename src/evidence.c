@@ -541,13 +541,13 @@ size_t stagecal_evidence_points(const stagecal_evidence *ev, size_t nev, double 
 
 stagecal_evidence_params stagecal_evidence_default_params(void)
 {
-    stagecal_evidence_params p;
-    p.max_samples = 24;
-    p.min_ok = 3;
-    p.noise = STAGECAL_EVIDENCE_NOISE_LINE_POOLED;
-    p.holdup = STAGECAL_EVIDENCE_HOLDUP_AUTO;
-    p.physics = 1;
-    return p;
+    /* one initializer: a member added later starts as 0/NULL, never as stack garbage
+     * (skip_run once did, and invert read through it; found by the fuzz corpus replay) */
+    return (stagecal_evidence_params){.max_samples = 24,
+                                      .min_ok = 3,
+                                      .noise = STAGECAL_EVIDENCE_NOISE_LINE_POOLED,
+                                      .holdup = STAGECAL_EVIDENCE_HOLDUP_AUTO,
+                                      .physics = 1};
 }
 
 void stagecal_evidence_set_free(stagecal_evidence_set *set)
