@@ -373,7 +373,17 @@ static int write_chart(const char *out, const stagecal_model *m, const stagecal_
     return stagecal_plot_write(&ch, out, &pp, &err) ? cli_fail(&err) : 0;
 }
 
-int cmd_probe(int argc, char **argv, cli_ctx *ctx)
+/* What the command line asks for. */
+struct job {
+    stagecal_design_params par;
+    stagecal_design_point pts[MAX_AT];
+    size_t n_at;
+    struct compare cmp;
+    const char *path, *chart;
+};
+
+/* Parses and checks the options into j; returns 0, CLI_PARSE_HELP or an exit code. */
+static int parse_options(int argc, char **argv, cli_ctx *ctx, struct job *j)
 {
     stagecal_design_params par = stagecal_design_default_params();
     double at_r[MAX_AT], at_f[MAX_AT], wv[MAX_AT], wdummy[MAX_AT], minutes = 10;
@@ -382,7 +392,7 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
     const char *c_text = NULL;
     struct compare cmp;
     long k = 4, seed = 1;
-    int criterion = 0, json, first, rc;
+    int criterion = 0, first, rc;
     const struct cli_option opts[] = {
         OPT_STRING(0, "at", &at_text, "LIST",
                    "conditions of interest: R or R:F (F-factor, Pa^0.5, needed\n"
@@ -412,7 +422,6 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
         return rc;
-    json = ctx->json;
     par.criterion = criterion == 1 ? STAGECAL_DESIGN_D : STAGECAL_DESIGN_I;
     memset(&cmp, 0, sizeof cmp);
     cmp.on = c_text != NULL;
@@ -434,21 +443,21 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
     if (n_w && n_w != n_at)
         return cli_usage_error("option '--weights': %zu weights for %zu conditions in '--at'", n_w,
                                n_at);
-    stagecal_design_point pts[MAX_AT];
-    for (size_t j = 0; j < n_at; j++) {
-        if (!(at_r[j] > 0))
+    stagecal_design_point *pts = j->pts;
+    for (size_t i = 0; i < n_at; i++) {
+        if (!(at_r[i] > 0))
             return cli_usage_error("option '--at': R = %g is not positive (expected R > 0 or "
                                    "'inf')",
-                                   at_r[j]);
-        if (!isnan(at_f[j]) && !(at_f[j] >= 0 && isfinite(at_f[j])))
+                                   at_r[i]);
+        if (!isnan(at_f[i]) && !(at_f[i] >= 0 && isfinite(at_f[i])))
             return cli_usage_error("option '--at': F = %g is invalid (expected a finite "
                                    "F-factor >= 0)",
-                                   at_f[j]);
-        if (n_w && !(wv[j] > 0 && isfinite(wv[j])))
-            return cli_usage_error("option '--weights': %g is not positive", wv[j]);
-        pts[j].r = at_r[j];
-        pts[j].f_load = at_f[j];
-        pts[j].weight = n_w ? wv[j] : 1.0;
+                                   at_f[i]);
+        if (n_w && !(wv[i] > 0 && isfinite(wv[i])))
+            return cli_usage_error("option '--weights': %g is not positive", wv[i]);
+        pts[i].r = at_r[i];
+        pts[i].f_load = at_f[i];
+        pts[i].weight = n_w ? wv[i] : 1.0;
     }
     if (cmp.on && (!(cmp.r > 0) || (!isnan(cmp.f) && !(cmp.f >= 0 && isfinite(cmp.f)))))
         return cli_usage_error("option '--compare': R = %g, F = %g is invalid (expected R > 0 or "
@@ -458,9 +467,27 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
     par.seed = (unsigned long)seed;
     par.sample_interval_s = minutes * 60;
 
-    const char *path = argv[first];
-    if (chart && cli_check_output("chart", chart, &path, 1))
+    j->path = argv[first];
+    if (chart && cli_check_output("chart", chart, &j->path, 1))
         return CLI_EXIT_USAGE;
+    j->par = par;
+    j->n_at = n_at;
+    j->cmp = cmp;
+    j->chart = chart;
+    return 0;
+}
+
+int cmd_probe(int argc, char **argv, cli_ctx *ctx)
+{
+    struct job jb;
+    int rc = parse_options(argc, argv, ctx, &jb);
+    if (rc)
+        return rc;
+    const char *path = jb.path, *chart = jb.chart;
+    const stagecal_design_point *pts = jb.pts;
+    size_t n_at = jb.n_at;
+    stagecal_design_params par = jb.par;
+    struct compare cmp = jb.cmp;
     stagecal_model m;
     stagecal_design_problem pb;
     stagecal_design_result res;
@@ -507,7 +534,7 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
                      path, pts[j].r);
     if (chart && (rc = write_chart(chart, &m, &pb, &res, out, n_at)))
         goto done;
-    if (json)
+    if (ctx->json)
         rc = cli_json_print(result_json(path, &m, &cmp, &par, &res, out, n_at));
     else {
         print_text(path, &m, &cmp, &par, &res, out, n_at);
