@@ -426,10 +426,13 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
                     continue;
                 }
                 double v = log->v_mol_s ? log->v_mol_s[i] : NAN, x;
-                stagecal_holdup_state st = {hm->holdup_mol, hm->drum_mol, v, d};
+                int own = hm->run_holdup_mol && isfinite(hm->run_holdup_mol[k]);
+                double hk = own ? hm->run_holdup_mol[k] : hm->holdup_mol;
+                double ur = own && hm->run_u_rel ? hm->run_u_rel[k] : hm->u_rel;
+                stagecal_holdup_state st = {hk, hm->drum_mol, v, d};
                 /* the free response of the profile left by the previous stretch still decays */
-                double settle = par.settle_factor * (hm->holdup_mol + hm->drum_mol) *
-                                (runlog_rset(log, i) + 1) / v;
+                double settle =
+                    par.settle_factor * (hk + hm->drum_mol) * (runlog_rset(log, i) + 1) / v;
                 if (s > first && log->t_s[i] - log->t_s[s - 1] < settle) {
                     xd_ss[i] = NAN;
                     continue;
@@ -441,7 +444,7 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
                     /* the shift is linear in the holdup and in dxD/dt to first order */
                     double sh = x - log->xd[i], rs = d != 0 && isfinite(se_d) ? se_d / d : 0;
                     if (u2_extra)
-                        u2_extra[i] = sh * sh * (hm->u_rel * hm->u_rel + rs * rs);
+                        u2_extra[i] = sh * sh * (ur * ur + rs * rs);
                 }
             }
             s = e;

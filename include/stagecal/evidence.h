@@ -198,6 +198,8 @@ typedef struct {
     size_t ncens;
     double *cens_samples;
     unsigned char *cens_flags;
+    struct stagecal_holdup_est *holdup_est; /* per run when STAGES ran without a stated holdup: the
+                                        holdup from the run's start-up (NULL otherwise) */
 } stagecal_evidence_set;
 
 /* Builds the evidence of every window of res (after stagecal_runlog_analyse and

@@ -92,6 +92,31 @@ int stagecal_holdup_estimate(const stagecal_runlog *log, double u_xd,
                              stagecal_holdup_tau *startup, stagecal_holdup_tau *transient,
                              stagecal_holdup_tau *pooled, stagecal_error *err);
 
+/* ---- the holdup from the start-up (holdup_estimate.c) ------------------------------------ */
+
+typedef struct stagecal_holdup_est {
+    int ok;               /* 1: holdup_mol and se_holdup_mol are estimates */
+    double stages;        /* the stage count (incl. the pot) the estimate assumed */
+    double holdup_mol;    /* liquid on the column stages [mol] */
+    double se_holdup_mol; /* its standard error from se(τ) (the stage count taken as known) */
+    char reason[120];     /* why not ok */
+} stagecal_holdup_est;
+
+/* The column's liquid holdup from a run's total-reflux start-up: su is the start-up fit of
+ * the n rows at times t_s; x0 the liquid the column starts with (the pot's composition at
+ * the first row), xb the pot during the start-up, stages the stage count incl. the pot
+ * (e.g. the total-reflux inversion of su->xd_inf), v_mol_s the boil-up. A reference
+ * start-up of the stage-by-stage model (constant molar overflow, equal holdup on the
+ * column stages, no drum, the column full of liquid at x0 when the boil-up starts) is
+ * fitted on the same times; the holdup is the one whose fitted τ equals su->tau_s
+ * (time scales as holdup/V). ok = 0 with a reason when su is not ok or a reference fails.
+ * EINVAL, ENOMEM. */
+int stagecal_holdup_from_startup(const stagecal_vle *vle, const double *t_s, size_t n, double x0,
+                                 double xb, double stages, double v_mol_s,
+                                 const stagecal_holdup_tau *su,
+                                 const stagecal_holdup_params *params, stagecal_holdup_est *out,
+                                 stagecal_error *err);
+
 /* ---- the pseudo-steady holdup correction ------------------------------------------------
  *
  * Summing the stage balances of a column with liquid holdup h per stage and h_d in the
@@ -146,6 +171,9 @@ typedef struct {
     double u_xd;                        /* the distillate analyser's standard uncertainty */
     double u_rel; /* STAGES: relative standard uncertainty of the correction (the holdup's and
                      the pseudo-steady model's) */
+    const double *run_holdup_mol; /* STAGES: per run (may be NULL); a finite entry replaces
+                                     holdup_mol for that run */
+    const double *run_u_rel;      /* STAGES: per run with run_holdup_mol, replaces u_rel */
 } stagecal_holdup_model;
 
 /* Compensated distillate, one value per row of log (xd_ss), and the extra variance of the

@@ -39,11 +39,18 @@ static json_t *holdup_json(const stagecal_calibration *cal)
     json_t *runs = json_array();
     for (size_t k = 0; k < es->nruns && es->tau; k++) {
         const stagecal_holdup_tau *t = &es->tau[k];
-        json_array_append_new(
-            runs,
+        json_t *o =
             json_pack("{s:s,s:o,s:o,s:s}", "run", cal->log->runs[k].name, "tau_min",
                       t->ok ? json_real(t->tau_s / 60) : json_null(), "se_tau_min",
-                      t->ok ? json_real(t->se_tau_s / 60) : json_null(), "reason", t->reason));
+                      t->ok ? json_real(t->se_tau_s / 60) : json_null(), "reason", t->reason);
+        if (es->holdup_est) { /* the holdup estimated from this run's start-up */
+            const stagecal_holdup_est *h = &es->holdup_est[k];
+            json_object_set_new(o, "holdup_mol", h->ok ? json_real(h->holdup_mol) : json_null());
+            json_object_set_new(o, "se_holdup_mol",
+                                h->ok ? json_real(h->se_holdup_mol) : json_null());
+            json_object_set_new(o, "holdup_reason", json_string(h->reason));
+        }
+        json_array_append_new(runs, o);
     }
     return json_pack("{s:s,s:o,s:o,s:I,s:o}", "compensation", holdup_names[es->holdup_kind],
                      "tau_min", tp->ok ? json_real(tp->tau_s / 60) : json_null(), "se_tau_min",
@@ -63,10 +70,22 @@ static void holdup_print(const stagecal_calibration *cal)
     if (tp->ok)
         printf("; start-up time constant %.3g +/- %.2g min (%zu of %zu runs)", tp->tau_s / 60,
                tp->se_tau_s / 60, nok, es->nruns);
-    if (es->holdup_kind == STAGECAL_HOLDUP_COMP_STAGES)
+    if (es->holdup_kind == STAGECAL_HOLDUP_COMP_STAGES && !es->holdup_est)
         printf("; column holdup %g mol, drum %g mol; %zu rows still settling left out",
                cal->column->holdup_column_mol, cal->column->holdup_drum_mol, es->n_settling);
+    if (es->holdup_kind == STAGECAL_HOLDUP_COMP_STAGES && es->holdup_est)
+        printf("; column holdup from each run's start-up (none stated); %zu rows still settling "
+               "left out",
+               es->n_settling);
     printf("\n");
+    for (size_t k = 0; k < es->nruns && es->holdup_est; k++) {
+        const stagecal_holdup_est *h = &es->holdup_est[k];
+        if (h->ok)
+            printf("  run '%s': column holdup %.4g +/- %.2g mol (start-up, %.3g stages)\n",
+                   cal->log->runs[k].name, h->holdup_mol, h->se_holdup_mol, h->stages);
+        else
+            printf("  run '%s': no holdup estimate: %s\n", cal->log->runs[k].name, h->reason);
+    }
 }
 
 static void show_progress(void *ctx, const char *stage, double done)
