@@ -220,7 +220,7 @@ int stagecal_runlog_invert_stream(stagecal_runlog_stream *s, const stagecal_colu
     if (!col || !col->system.vle)
         return error_set(err, STAGECAL_EINVAL, "the inversion needs a column with a VLE model");
     struct pipe *p = calloc(1, sizeof *p);
-    size_t nslots = nthreads + 2;
+    size_t nslots = nthreads + 1; /* one being read, one per worker */
     if (p)
         p->slots = calloc(nslots, sizeof *p->slots);
     int rc = p && p->slots ? STAGECAL_OK : STAGECAL_ENOMEM;

@@ -472,7 +472,7 @@ void stagecal_runlog_totals_free(stagecal_runlog_totals *t); /* frees members; N
  * bytes (the header before the first row; nothing when there are no rows). Runs are
  * independent, so nthreads ≥ 1 threads analyse and invert them while this one reads the
  * next; each run is written in file order once the one before it is, so the output does not
- * depend on nthreads (0: all in this thread). Memory holds about nthreads + 2 runs. tot
+ * depend on nthreads (0: all in this thread). Memory holds nthreads + 1 runs. tot
  * receives the totals. A file the stream cannot read ends the work with its code (ENOINPUT,
  * EDATA); EWRITE, ENOMEM, EINVAL (no column model). */
 int stagecal_runlog_invert_stream(stagecal_runlog_stream *s, const stagecal_column *col,

@@ -366,7 +366,7 @@ static int invert_rows(int argc, char **argv, int first, const char *out_path, l
     if (ctx->json)
         return invert_whole(argc, argv, first, out_path, &rp, ap, murphree, ctx);
     if (threads < 0) {
-        long online = sysconf(_SC_NPROCESSORS_ONLN);
+        long online = sysconf(_SC_NPROCESSORS_ONLN) - 1; /* one core reads */
         threads = online < 1 ? 1 : online > 8 ? 8 : online;
     }
     return invert_streamed(argv + first, (size_t)(argc - first), out_path, &rp, ap, murphree,
@@ -395,8 +395,8 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
         OPT_MIN_WINDOW(&ap.min_window_s),
         OPT_LONG("threads", &threads, "N",
                  "run logs: threads inverting runs while one reads (default: the\n"
-                 "processors online, at most 8; 0: one thread does everything; the output\n"
-                 "does not depend on it)",
+                 "processors online less one, at least 1, at most 8; 0: one thread does\n"
+                 "everything; the output does not depend on it)",
                  0, 64),
         OPT_END_COMMON(ctx),
     };
