@@ -22,6 +22,7 @@
 #include "fileio.h"
 #include "internal.h"
 #include "json_read.h"
+#include "stagecal/units.h"
 
 #define COLUMN_FORMAT "stagecal-column"
 #define COLUMN_VERSION 1
@@ -314,6 +315,76 @@ static int read_holdup(const rd *r, json_t *root, stagecal_column *col)
     return STAGECAL_OK;
 }
 
+/* Uncertainties with a unit, written like a run-log header cell: "xd[wt%]", "xb[ppm]",
+ * "w[kg]", "v[kg/h]" (docs/column-file.md). Each is converted to the plain key's unit
+ * (mole fraction, mol, mol/s). A mass basis goes to moles with the bound that holds at every
+ * composition: dx/dw ≤ max(M)/min(M) for a fraction, 1/min(M) per kg for an amount or a
+ * flow, so the stated uncertainty is never made smaller. *plain receives a copy of u
+ * without these keys (NULL when there were none; the caller frees it, also on an error). An
+ * error when a plain key is given as well,
+ * a unit is unknown or a mass basis has no molar masses. */
+static int read_unit_uncertainties(const rd *r, json_t *u, stagecal_column *col, json_t **plain)
+{
+    static const struct {
+        const char *name, *plain;
+        stagecal_quantity qty;
+        double hi;
+    } map[] = {{"xd", "xd", STAGECAL_QTY_FRACTION, 0.5},
+               {"xb", "xb", STAGECAL_QTY_FRACTION, 0.5},
+               {"w", "w_mol", STAGECAL_QTY_AMOUNT, INFINITY},
+               {"v", "v_mol_s", STAGECAL_QTY_FLOW, INFINITY}};
+    const char *key;
+    json_t *val;
+    *plain = NULL;
+    double ml = col->system.m_light, mh = col->system.m_heavy;
+    json_object_foreach(u, key, val)
+    {
+        if (!strchr(key, '['))
+            continue;
+        char path[96], name[48], unit[48];
+        int has_unit;
+        stagecal_error e;
+        snprintf(path, sizeof path, "uncertainty.%s", key);
+        if (stagecal_units_split(key, name, sizeof name, unit, sizeof unit, &has_unit, &e) != 0)
+            return jr_fail(&r->jr, path, "%s", e.text);
+        size_t k = 0;
+        while (k < sizeof map / sizeof map[0] && strcmp(map[k].name, name) != 0)
+            k++;
+        if (k == sizeof map / sizeof map[0])
+            return jr_fail(&r->jr, path,
+                           "unknown key (expected xd, xb, w or v with a unit, e.g. xd[wt%%])");
+        if (json_object_get(u, map[k].plain))
+            return jr_fail(&r->jr, path, "'%s' is given as well (expected one of the two)",
+                           map[k].plain);
+        stagecal_unit un;
+        if (stagecal_units_parse(map[k].qty, unit, &un, &e) != 0)
+            return jr_fail(&r->jr, path, "%s", e.text);
+        if (!json_is_number(val) || !(json_number_value(val) >= 0))
+            return jr_fail(&r->jr, path, "expected a number >= 0 in %s", unit);
+        double x = json_number_value(val) * un.scale;
+        if (un.mass) {
+            if (!(ml > 0 && mh > 0))
+                return jr_fail(&r->jr, path,
+                               "a mass basis needs the molar masses (expected "
+                               "system.light/heavy.molar_mass_kg_mol)");
+            double lo = ml < mh ? ml : mh, hi = ml < mh ? mh : ml;
+            x = map[k].qty == STAGECAL_QTY_FRACTION ? x * hi / lo : x / lo;
+        }
+        if (!(x <= map[k].hi))
+            return jr_fail(&r->jr, path, "%g %s is more than %g mol/mol", json_number_value(val),
+                           unit, map[k].hi);
+        double *dst = k == 0   ? &col->u.xd
+                      : k == 1 ? &col->u.xb
+                      : k == 2 ? &col->u.w_mol
+                               : &col->u.v_mol_s;
+        *dst = x;
+        if (!*plain && !(*plain = json_copy(u)))
+            return jr_fail(&r->jr, "uncertainty", "out of memory");
+        json_object_del(*plain, key);
+    }
+    return STAGECAL_OK;
+}
+
 static int read_root(const rd *r, json_t *root, stagecal_column *col)
 {
     static const char *const keys[] = {
@@ -403,6 +474,13 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
     json_t *u = get_obj(r, root, "uncertainty", "uncertainty", 0, &rc);
     if (rc)
         return rc;
+    json_t *plain = NULL; /* u without the keys that carry a unit */
+    if (u && (rc = read_unit_uncertainties(r, u, col, &plain))) {
+        json_decref(plain); /* (a copy made before the failing key) */
+        return rc;
+    }
+    if (plain)
+        u = plain;
     if (u) {
         static const char *const ukeys[] = {"xd",      "xb",           "w_mol",  "r", "r_rel",
                                             "v_mol_s", "xd_heavy_rel", "xb_rel", NULL};
@@ -422,9 +500,12 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
             (rc = get_num(r, u, "xd_heavy_rel", "uncertainty.xd_heavy_rel", 0, 0.0, 0, 1.0,
                           &q->xd_heavy_rel, " (fraction of the heavy content 1 - xD)")) ||
             (rc = get_num(r, u, "xb_rel", "uncertainty.xb_rel", 0, 0.0, 0, 1.0, &q->xb_rel,
-                          " (fraction of xB)")))
+                          " (fraction of xB)"))) {
+            json_decref(plain);
             return rc;
+        }
     }
+    json_decref(plain);
     return STAGECAL_OK;
 }
 

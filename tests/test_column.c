@@ -259,6 +259,45 @@ static void column_format_version_and_syntax(void **state)
     expect(rc, &err, STAGECAL_ENOINPUT, "cannot open");
 }
 
+/* Uncertainties with a unit like a run-log header: converted to the plain keys' units with
+ * the bound that holds at every composition (ethanol/water molar masses as in parse()):
+ * dx/dw <= M_ethanol/M_water for a fraction, 1/M_water per kg. The expected values are
+ * computed here by hand from those molar masses; tolerance 1e-12 relative (one product). */
+static void column_uncertainty_units(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    stagecal_error err;
+    const double ml = 0.04606844, mh = 0.01801528; /* as in parse3() */
+    int rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}",
+                    "{\"xd[wt%]\": 0.2, \"xb[mol%]\": 0.5, \"w[kg]\": 10, "
+                    "\"v[kmol/h]\": 0.036, \"r\": 0.05}",
+                    &col, &err);
+    assert_int_equal(rc, STAGECAL_OK);
+    assert_true(fabs(col.u.xd / (0.002 * ml / mh) - 1) < 1e-12);
+    assert_true(fabs(col.u.xb / 0.005 - 1) < 1e-12);
+    assert_true(fabs(col.u.w_mol / (10 / mh) - 1) < 1e-12);
+    assert_true(fabs(col.u.v_mol_s / 0.01 - 1) < 1e-12);
+    assert_true(col.u.r == 0.05);
+    stagecal_column_free(&col);
+    rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}", "{\"xd[wt%]\": 0.2, \"xd\": 0.1}", &col,
+                &err);
+    expect(rc, &err, STAGECAL_EDATA,
+           "member 'uncertainty.xd[wt%]': 'xd' is given as well (expected one of the two)");
+    rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}", "{\"q[kg]\": 1}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "member 'uncertainty.q[kg]': unknown key");
+    rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}", "{\"xd[wt%]\": 80}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "is more than 0.5 mol/mol");
+    /* a mass basis without molar masses */
+    const char *nm = "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"u\", "
+                     "\"condenser\": \"total\", \"system\": {\"light\": {\"name\": "
+                     "\"a\"}, \"heavy\": {\"name\": \"b\"}, \"model\": {\"kind\": "
+                     "\"alpha\", \"alpha\": 2}}, \"uncertainty\": {\"w[kg]\": 0.2}}";
+    rc = stagecal_column_parse(nm, strlen(nm), "m.json", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA,
+           "m.json: member 'uncertainty.w[kg]': a mass basis needs the molar masses");
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -266,6 +305,7 @@ int main(void)
         cmocka_unit_test(column_table_and_other_models),
         cmocka_unit_test(column_bad_fields_are_named),
         cmocka_unit_test(column_format_version_and_syntax),
+        cmocka_unit_test(column_uncertainty_units),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }
