@@ -53,7 +53,7 @@ stagecal_runlog_analysis_params stagecal_runlog_analysis_default_params(void)
                                              .drift_u = 2.0,
                                              .outlier_sigmas = 4.0,
                                              .no_distillate_t = 2.0,
-                                             .drift_q = 10.83,
+                                             .drift_sign_z = 3.0,
                                              .boilup_sigmas = 3.0};
 }
 
@@ -142,7 +142,8 @@ static int close_run(const stagecal_runlog *log, const stagecal_column *col, siz
             integral += 0.5 * (log->xd[i] + log->xd[j]) * (log->w_mol[j] - log->w_mol[i]);
         }
         idx[m] = i;
-        h[m] = log->w_mol[i] * log->xb[i] + integral;
+        h[m] = log->w_mol[i] * log->xb[i] + integral +
+               runlog_holdup_light(col, log->xd[i], log->xb[i]);
         t_h[m] = log->t_s[i] / 3600.0;
         m++;
     }

@@ -4,14 +4,18 @@
  * balance checks").
  *
  * Two signatures. The Rayleigh balance of the pot (Rayleigh 1902) conserves the light
- * holdup h_k = W_k·xB_k + I_k, I_k = Σ ½(xD_j + xD_(j−1))(W_(j−1) − W_j). A distillate
- * analyser reading xD + d·(t − t0) adds d·a_k to h_k, a_k = Σ ½(t_j + t_(j−1) − 2t0)(W_(j−1) −
- * W_j); a pot analyser reading xB + d·(t − t0) adds d·b_k, b_k = W_k·(t_k − t0). The
- * per-sample stage counts of a quasi-steady window are constant when the analysers read
- * true; a drift adds d·g_k with g_k = (∂N/∂xD)_k·(t_k − t0) for the distillate analyser and
- * (∂N/∂xB)_k·(t_k − t0) for the pot analyser. ∂N/∂xD > 0 and ∂N/∂xB < 0, so a drift that
- * raises h moves the stage counts up when it is the distillate analyser's and down when it
- * is the pot analyser's: the two analysers leave different pairs of signatures.
+ * holdup h_k = W_k·xB_k + I_k (+ the column's and drum's light holdup when the column file
+ * states them), I_k = Σ ½(xD_j + xD_(j−1))(W_(j−1) − W_j). A distillate analyser reading
+ * xD + d·(t − t0) adds d·a_k to h_k, a_k = Σ ½(t_j + t_(j−1) − 2t0)(W_(j−1) − W_j); a pot
+ * analyser reading xB + d·(t − t0) adds d·b_k, b_k = W_k·(t_k − t0). The stage relation: at
+ * one reflux ratio the column has one stage count, so after the warm-up each row of a
+ * stretch at one logged R satisfies N(xD, xB, R) = N_s. Its residual in distillate space,
+ * r_k = xD_k − X(xB_k; N_s, R) (X the distillate N_s stages give from the row's xB), is
+ * linear in the analysers' errors: a distillate drift adds d·(t − t0), a pot drift
+ * d·(∂N/∂xB / ∂N/∂xD)·(t − t0), which has the opposite sign (∂N/∂xD > 0 > ∂N/∂xB). Both
+ * drifts raise h alike; they move the stage relation in opposite directions, and a pot drift
+ * moves it far less (near a pure distillate ∂N/∂xD ≫ |∂N/∂xB|): the pair of signatures names
+ * the analyser.
  *
  * Test. Gross-error detection by the generalized likelihood ratio (Narasimhan, S. & Mah,
  * R. S. H. (1987), "Generalized likelihood ratio method for gross error identification",
@@ -19,19 +23,21 @@
  * Gross Error Detection, Gulf Publishing, ch. 7; both from memory): for each hypothesis j
  * (one analyser drifting at an unknown rate d) the rate is estimated by weighted least
  * squares from each signature — the balance (intercept H and d, weights 1/(W·u(xB))²) and
- * the stage counts (one intercept per window and d, weights 1/u(N)²), each covariance
- * scaled up by χ²/dof when the scatter exceeds the stated noise. The two independent
- * estimates are combined by inverse variance; T_j = (d/se)² is the GLR statistic of the
- * hypothesis (χ²(1) under no drift). The hypothesis with the largest T is the one the data
- * support best; a drift is flagged when T ≥ drift_t² and the drift over the run exceeds
- * drift_u·u(analyser). It is put down to that analyser when its two estimates agree,
- * Q_j = (d_b − d_s)²/(se_b² + se_s²) ≤ drift_q (χ²(1) under the hypothesis; a homogeneity
- * test of the two estimates); otherwise it stays unattributed (a stage count that changes
- * without a balance error, or the reverse: column holdup, fouling, a wrong model).
+ * the stage relation (one intercept per stretch and d, weights 1/(u(xD)² + (∂X/∂xB·u(xB))²)),
+ * each covariance scaled up by χ²/dof when the scatter exceeds the stated noise. The two
+ * independent estimates are combined by inverse variance; T_j = (d/se)² is the GLR statistic
+ * of the hypothesis (χ²(1) under no drift). The hypothesis with the largest T is the one the
+ * data support best (the GLR identification rule); a drift is flagged when T ≥ drift_t² and
+ * the drift over the run exceeds drift_u·u(analyser), and put down to that analyser unless
+ * its two estimates contradict each other (opposite signs, each beyond drift_sign_z standard
+ * errors) or the stage relation gives no estimate (then: unattributed). The homogeneity
+ * statistic Q_j = (d_b − d_s)²/(se_b² + se_s²) is reported but does not decide: model errors
+ * of either signature (column holdup, the lag compensation) make it large on clean runs at
+ * the precision of long logs (docs/methods.md has the figures).
  *
- * The stage counts are those of the distillate compensated for the column holdup (the
- * evidence module's compensation, holdup.h): the lag of xD behind a depleting pot makes the
- * raw counts rise through a run, which would read as a distillate drift.
+ * The stage relation uses the distillate compensated for the column holdup (the evidence
+ * module's compensation, holdup.h): the lag of xD behind a depleting pot makes the raw
+ * counts rise through a run, which would read as a distillate drift.
  */
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_fit.h>
@@ -64,6 +70,13 @@ const char *stagecal_drift_analyser_name(int analyser)
 static int row_usable(const stagecal_runlog_result *res, size_t i, double r)
 {
     return isfinite(r) && r > 0 && !(res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX);
+}
+
+double runlog_holdup_light(const stagecal_column *col, double xd, double xb)
+{
+    if (!col)
+        return 0;
+    return col->holdup_column_mol * 0.5 * (xd + xb) + col->holdup_drum_mol * xd;
 }
 
 /* 1 when the interval (i − 1, i) of a run enters the boil-up check: W and V at both ends, a
@@ -164,7 +177,8 @@ static void balance_sigs(const stagecal_runlog *log, const stagecal_column *col,
         if (res->flags[i] & STAGECAL_SAMPLE_OUTLIER)
             continue;
         double s = uxb > 0 ? uxb : stagecal_runlog_u_xb(col, log->xb[i]);
-        h[m] = log->w_mol[i] * log->xb[i] + integral;
+        h[m] = log->w_mol[i] * log->xb[i] + integral +
+               runlog_holdup_light(col, log->xd[i], log->xb[i]);
         a[m] = ta;
         b[m] = log->w_mol[i] * (t - t0);
         w[m] = s > 0 ? 1.0 / (log->w_mol[i] * s * log->w_mol[i] * s) : 1.0;
@@ -190,8 +204,8 @@ static double median_of(double *v, size_t n)
     return n % 2 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
 }
 
-/* Within-window weighted regression of the counts n on g, one intercept per window (rows
- * of a window are consecutive in win); d and its se scaled up by χ²/dof. 0 on success. */
+/* Weighted regression of r on g with one intercept per group (rows of a group are
+ * consecutive in win); d and its se scaled up by χ²/dof. 0 on success. */
 static int within_fit(const double *n, const double *g, const double *w, const int32_t *win,
                       size_t m, double *d, double *se)
 {
@@ -275,15 +289,14 @@ static int row_cond(const stagecal_runlog *log, stagecal_physics *ph, size_t a, 
                                            NULL) == STAGECAL_OK;
 }
 
-/* Stage-count estimates of run k, in distillate space. A window's rows share one stage
- * count N_w (the median of their counts at the compensated distillate); each row's
- * residual is r_i = xD_i − X_i, X_i the distillate that N_w stages give from the row's xB
- * (xd_for_count). r is linear in the analysers' errors: a distillate drift adds
- * d·(t − t0), a pot drift d·(∂N/∂xB / ∂N/∂xD)·(t − t0) (the implicit function of N = N_w).
- * The per-sample counts themselves are not used: near a pure distillate the count is a
- * logarithm of 1 − xD, skewed and heavy-tailed under the analyser's noise, and a slope fitted
- * to them is biased. Weights 1/(u(xD)² + (∂X/∂xB·u(xB))²). Scratch: 6 arrays of the
- * run's length and win. */
+/* The stage relation's estimates of run k, in distillate space (see the top): the rows after
+ * the warm-up, grouped by stretches of one logged R; a stretch's count N_s is the median of
+ * its ok rows' counts at the compensated distillate (the median is unbiased under the
+ * monotone, skewed map from xD to N; a mean of counts is not); each ok row's residual
+ * r = xD − X(xB; N_s, R) (xd_for_count). The per-sample counts are not regressed on directly:
+ * near a pure distillate a count is a logarithm of 1 − xD, skewed and heavy-tailed under the
+ * analyser's noise, and a slope fitted to counts is biased. Scratch: 6 arrays of the run's
+ * length and win. */
 static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, stagecal_physics *ph,
                        double murphree, const stagecal_runlog_result *res, const double *xd_ss,
                        size_t k, double *scr, size_t len, int32_t *win)
@@ -294,29 +307,37 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
     double *rr = scr, *t = scr + len, *sens = scr + 2 * len, *w = scr + 3 * len, *g = scr + 4 * len,
            *tmp = scr + 5 * len;
     size_t m = 0;
+    int32_t *key = malloc(run->n * sizeof *key);
+    if (!key)
+        return;
+    for (size_t i = 0, s = 0; i < run->n; i++) {
+        size_t row = run->first + i;
+        if (i > 0 &&
+            !(log->r[row] == log->r[row - 1] || (isnan(log->r[row]) && isnan(log->r[row - 1]))))
+            s++;
+        key[i] = (res->flags[row] & STAGECAL_SAMPLE_WARMUP) ? -1 : (int32_t)s;
+    }
     for (size_t i = run->first; i < run->first + run->n;) {
-        int32_t wk = res->window[i];
+        int32_t wk = key[i - run->first];
         size_t e = i + 1;
-        while (e < run->first + run->n && res->window[e] == wk)
+        while (e < run->first + run->n && key[e - run->first] == wk)
             e++;
         if (wk < 0) {
             i = e;
             continue;
         }
-        /* the window's count: median over its ok rows at the compensated distillate */
+        /* the stretch's count: median over its ok rows at the compensated distillate */
         size_t q = 0;
         for (size_t a = i; a < e; a++)
             if (res->status[a] == STAGECAL_STAGES_OK && !(res->flags[a] & STAGECAL_SAMPLE_OUTLIER))
                 tmp[q++] = res->stages[a] +
                            (isfinite(xd_ss[a]) ? res->dn_dxd[a] * (xd_ss[a] - log->xd[a]) : 0);
-        /* a window near a pinch (some rows without a count) is left out: there the count
-         * is so nonlinear in xB that the linear residual no longer holds */
-        if (q < 4 || 10 * q < 9 * (e - i)) {
+        if (q < 4) {
             i = e;
             continue;
         }
         double nw = median_of(tmp, q);
-        double r = res->windows[wk].total_reflux ? INFINITY : log->r[i];
+        double r = (res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX) ? INFINITY : log->r[i];
         for (size_t a = i; a < e; a++) {
             double xd = isfinite(xd_ss[a]) ? xd_ss[a] : log->xd[a], x, sb;
             stagecal_physics_cond pc;
@@ -338,6 +359,7 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
         }
         i = e;
     }
+    free(key);
     for (int j = 0; j < 2; j++) {
         for (size_t a = 0; a < m; a++)
             g[a] = j == 0 ? t[a] : sens[a] * t[a];
@@ -383,9 +405,13 @@ static void decide(const stagecal_column *col, const stagecal_runlog_analysis_pa
         return;
     c->drift = 1;
     int both = s->n_bal > 0 && s->n_stg > 0;
-    c->drift_analyser = both && s->q_stat <= par->drift_q
-                            ? (best == 0 ? STAGECAL_DRIFT_DISTILLATE : STAGECAL_DRIFT_POT)
-                            : STAGECAL_DRIFT_UNATTRIBUTED;
+    /* the two estimates of the named hypothesis must not contradict each other: opposite
+     * signs, each significant */
+    double zc = par->drift_sign_z;
+    int ok = both && !(s->d_bal * s->d_stg < 0 && fabs(s->d_bal) > zc * s->se_bal &&
+                       fabs(s->d_stg) > zc * s->se_stg);
+    c->drift_analyser = ok ? (best == 0 ? STAGECAL_DRIFT_DISTILLATE : STAGECAL_DRIFT_POT)
+                           : STAGECAL_DRIFT_UNATTRIBUTED;
 }
 
 /* The distillate compensated for column holdup as the evidence module does (AUTO: the

@@ -167,6 +167,12 @@ void runlog_boilup(const stagecal_runlog *log, const stagecal_column *col,
 int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double murphree,
                  const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
                  stagecal_error *err);
+/* The light component held up in the column and the reflux drum when the column file
+ * states them [mol]: column_mol·½(xD + xB) (a straight profile between the ends) +
+ * drum_mol·xD (a well-mixed drum is the distillate). It belongs to the Rayleigh balance's
+ * conserved holdup: without it the column's light inventory, released as the pot
+ * depletes, reads as a closure error and a pot-analyser drift. 0 without a holdup. */
+double runlog_holdup_light(const stagecal_column *col, double xd, double xb);
 /* The drift signatures of c set to "not computed" (NaN, 0). */
 void runlog_drift_clear(stagecal_runlog_closure *c);
 /* printf's "%.9g" of v into d (at most 16 bytes, no NUL) for 1e-13 <= |v| < 1e13, or -1

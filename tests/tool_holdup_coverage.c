@@ -97,6 +97,9 @@ static int calibrate(const char *bin, const char *colpath, const char *logpath, 
 {
     char cmd[2048];
     const char *extra = getenv("HOLDUP_STUDY_ARGS"); /* more calibrate options, for exploring */
+    /* --keep-flagged: the study measures the holdup compensation on every run; the drift and
+     * closure flags false-alarm on stage-holdup logs (tests/tool_drift_study.c), and leaving
+     * those runs out would change what is measured */
     snprintf(cmd, sizeof cmd,
              "'%s' calibrate --json --dry-run --quiet --keep-flagged --holdup %s --form '%s' %s "
              "--column '%s' "

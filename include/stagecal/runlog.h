@@ -357,8 +357,9 @@ typedef struct {
     double drift_u;         /* ... and |slope|·duration > drift_u·u(xB) (2) */
     double outlier_sigmas;  /* |xB − xB_rec| > outlier_sigmas·u(xB): outlier (4) */
     double no_distillate_t; /* finite-R window whose W slope has |t| < this: no distillate (2) */
-    double drift_q;         /* the named hypothesis' consistency Q must not exceed this
-                               (10.83, the χ²(1) 0.999 quantile); else the drift is unattributed */
+    double drift_sign_z;    /* the drift stays unattributed when the named hypothesis' two
+                               estimates (balance, stage relation) have opposite signs and each
+                               exceeds this many standard errors (3) */
     double boilup_sigmas;   /* boil-up/reflux mismatch when |ΔW − ΣV/(R+1)Δt| > this many
                                standard uncertainties (3) */
 } stagecal_runlog_analysis_params;

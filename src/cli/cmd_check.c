@@ -23,8 +23,9 @@ static const struct cli_usage usage = {
     "Reads run logs (docs/runlog.md) and prints what is wrong with them: unparseable or\n"
     "out-of-range values, time not increasing, W rising while distillate is drawn,\n"
     "xD below xB, unknown units, unknown, duplicate or missing columns, runs with too\n"
-    "few rows; then each run's Rayleigh closure error, gross errors and xB analyser\n"
-    "drift (docs/methods.md).\n",
+    "few rows; then each run's Rayleigh closure error, gross errors, analyser drift\n"
+    "(with a column file: which analyser, from the balance and the stage relation) and\n"
+    "the fall of W against V/(R+1) (docs/methods.md).\n",
     "Exit status: 0 no errors in the rows (warnings and closure findings allowed), 65 errors,\n"
     "66 a file is missing, 2 usage.\n"};
 
