@@ -5,7 +5,7 @@
  * ignoring the pressure do?
  *
  * Usage: tool_vacuum_coverage REPLICATIONS SEED [--check | --noise-free | --fixed-p |
- *                                                 --stage-space]
+ *                                                 --stage-space | --smoother]
  *
  * Simulator (tests/synth_runlog.h, written for the tests): benzene–toluene, Raoult's law
  * with the NIST WebBook Antoine sets (after Williamham, Taylor, Pignocco & Rossini 1945;
@@ -22,7 +22,9 @@
  * the mean of the runs' pressures. It prints, per way, the fits, the coverage of the 95 % interval
  * of the constant with its Wilson interval, the mean estimate and the median z = (estimate − 6)/se.
  * --fixed-p: every run at 23.5 kPa (the control: what the fit does without a pressure
- * effect). --stage-space: the stage-space fit instead of the model's default.
+ * effect). --stage-space: the stage-space fit instead of the model's default. --smoother:
+ * window statistics from the residuals of the stage count's own smoother (an evidence option,
+ * stagecal_evidence_window_stats).
  * --noise-free: the same without analyser noise, each estimate printed (the simulator and the
  * library agree on the count when the pressure is logged).
  *
@@ -81,6 +83,7 @@ static double vac_law(void *ctx, double r)
 static int noise_free;  /* --noise-free */
 static int fixed_p;     /* --fixed-p: every run at 23.5 kPa (the control) */
 static int stage_space; /* --stage-space: the stage-space fit instead of the default */
+static int smoother;    /* --smoother: window statistics from the smoother's residuals */
 
 enum { WAY_LOGGED, WAY_COLUMN, WAY_MEAN, NWAYS };
 static const char *const way_name[NWAYS] = {"logged", "column", "mean"};
@@ -132,6 +135,8 @@ static int score(const char *csv, size_t len, const stagecal_column *col, struct
     par.evidence.holdup = STAGECAL_HOLDUP_COMP_NONE; /* no holdup simulated */
     if (stage_space)
         par.method = STAGECAL_CAL_STAGE;
+    if (smoother)
+        par.evidence.noise = STAGECAL_EVIDENCE_NOISE_SMOOTHER;
     stagecal_calibration cal;
     stagecal_error err;
     int rc = stagecal_calibrate_data(col, NULL, log, &par, &cal, &err);
@@ -192,13 +197,15 @@ int main(int argc, char **argv)
     noise_free = argc == 4 && strcmp(argv[3], "--noise-free") == 0;
     fixed_p = argc == 4 && strcmp(argv[3], "--fixed-p") == 0;
     stage_space = argc == 4 && strcmp(argv[3], "--stage-space") == 0;
+    smoother = argc == 4 && strcmp(argv[3], "--smoother") == 0;
     long reps = argc >= 3 ? strtol(argv[1], &end1, 10) : 0;
     unsigned long seed = argc >= 3 ? strtoul(argv[2], &end2, 10) : 0;
-    if (argc < 3 || argc > 4 || (argc == 4 && !check && !noise_free && !fixed_p && !stage_space) ||
-        *end1 || *end2 || reps < 10) {
+    if (argc < 3 || argc > 4 ||
+        (argc == 4 && !check && !noise_free && !fixed_p && !stage_space && !smoother) || *end1 ||
+        *end2 || reps < 10) {
         fprintf(stderr,
                 "usage: tool_vacuum_coverage REPLICATIONS(>=10) SEED [--check | --noise-free | "
-                "--fixed-p | --stage-space]\n");
+                "--fixed-p | --stage-space | --smoother]\n");
         return 1;
     }
     gsl_set_error_handler_off();
@@ -226,7 +233,10 @@ int main(int argc, char **argv)
     printf("vacuum column, top pressure %s, true count %d, %ld data sets of %d runs, seed %lu, "
            "%s fit\n",
            fixed_p ? "23.5 kPa in every run" : "12-35 kPa between runs", VAC_TRUE_N, reps, VAC_RUNS,
-           seed, stage_space ? "stage-space" : "the model file's");
+           seed,
+           stage_space ? "stage-space"
+           : smoother  ? "the model file's (smoother statistics)"
+                       : "the model file's");
     printf("  %-7s %6s %9s  %-17s %9s %8s\n", "way", "fits", "coverage", "Wilson 95 %", "mean est",
            "med z");
     double zq = gsl_cdf_ugaussian_Pinv(0.975), cov[NWAYS], medz[NWAYS];
