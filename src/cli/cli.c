@@ -317,6 +317,23 @@ void cli_forecast_days(const stagecal_trend_forecast *fc, const char *nan_text, 
     cli_format_day(fc->high_s, nan_text, day[2], 32);
 }
 
+void cli_format_reflux(char *buf, size_t cap, double r, int digits)
+{
+    if (isinf(r))
+        snprintf(buf, cap, "inf");
+    else
+        snprintf(buf, cap, "%.*g", digits, r);
+}
+
+void cli_forecast_text(const stagecal_trend_forecast *fc, double required, int pct,
+                       const char *nan_text, char *buf, size_t cap)
+{
+    char day[3][32];
+    cli_forecast_days(fc, nan_text, day);
+    snprintf(buf, cap, "below %.3g stages on %s%s, %d %% band %s to %s", required, day[0],
+             fc->past ? " (already past)" : "", pct, day[1], day[2]);
+}
+
 void cli_print_caution(void)
 {
     printf("\n%s\n", stagecal_caution_text());

@@ -105,8 +105,14 @@ void cli_format_day(double t_s, const char *nan_text, char *buf, size_t cap);
  * parameter (value, standard error, interval; "not determined" where it is). long_form:
  * 10 significant digits (regress), else 6 (calibrate). */
 void cli_print_params(const stagecal_regress_result *f, int long_form);
+/* A reflux ratio as text: "inf" at total reflux, else %.<digits>g. */
+void cli_format_reflux(char *buf, size_t cap, double r, int digits);
 /* The three days of a forecast (crossing, band low, band high) by cli_format_day. */
 void cli_forecast_days(const stagecal_trend_forecast *fc, const char *nan_text, char day[3][32]);
+/* "below N stages on DAY[ (already past)], P % band LOW to HIGH" for a forecast that
+ * declines, days by cli_forecast_days(fc, nan_text), into buf of cap bytes. */
+void cli_forecast_text(const stagecal_trend_forecast *fc, double required, int pct,
+                       const char *nan_text, char *buf, size_t cap);
 
 /* What main prepares for a command and tidies after it (the flags of its table row). */
 typedef struct {

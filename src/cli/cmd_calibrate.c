@@ -134,14 +134,6 @@ static json_t *fit_json(const stagecal_regress_result *f, int status, const char
     return o;
 }
 
-static void format_r(char *buf, size_t cap, double r)
-{
-    if (isinf(r))
-        snprintf(buf, cap, "inf");
-    else
-        snprintf(buf, cap, "%.4g", r);
-}
-
 /* The censored-likelihood fit's evidence and its stages at the reference condition
  * (--json): the missing end of a one-sided interval is null. */
 static json_t *cens_json(const stagecal_calibration *cal)
@@ -166,7 +158,7 @@ static void cens_print(const stagecal_calibration *cal)
 {
     const stagecal_censored_interval *a = &cal->cens_at;
     char rr[32];
-    format_r(rr, sizeof rr, cal->cens_r);
+    cli_format_reflux(rr, sizeof rr, cal->cens_r, 4);
     printf("censored likelihood: %zu readings in %zu windows, %zu censored\n", cal->cens.n_readings,
            cal->cens.n_windows, cal->cens.n_censored);
     if (a->low_bounded && !a->high_bounded)
@@ -423,8 +415,8 @@ static void print_text(const stagecal_calibration *cal, const char *path, const 
     const stagecal_model *mo = &cal->model;
     const stagecal_regress_result *fit = stagecal_calibration_fit(cal);
     char rlo[32], rhi[32];
-    format_r(rlo, sizeof rlo, mo->r_min);
-    format_r(rhi, sizeof rhi, mo->r_max);
+    cli_format_reflux(rlo, sizeof rlo, mo->r_min, 4);
+    cli_format_reflux(rhi, sizeof rhi, mo->r_max, 4);
     printf("stagecal calibration of column %s (%s / %s)\n", mo->column_id, mo->light, mo->heavy);
     printf("evidence: %zu samples in %zu runs from %zu log(s); %zu quasi-steady windows "
            "(%zu with stage counts) carry the fit\n",
@@ -461,7 +453,7 @@ static void print_text(const stagecal_calibration *cal, const char *path, const 
     printf("\n");
     if (mo->has_hetp) {
         char rr[32], ff[48] = "";
-        format_r(rr, sizeof rr, mo->hetp_r);
+        cli_format_reflux(rr, sizeof rr, mo->hetp_r, 4);
         if (mo->has_load)
             snprintf(ff, sizeof ff, ", F = %.3g Pa^0.5", mo->hetp_f);
         printf("HETP at R = %s%s: %.3f m (%.0f%% interval %.3f to %.3g m), packed height "

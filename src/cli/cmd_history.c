@@ -402,14 +402,13 @@ static void print_text(const struct result *res, const struct options *o)
     printf("stages now (%s): %s\n", d0, a);
     if (f->has_crossing) {
         const stagecal_trend_forecast *fc = &f->crossing;
-        char day[3][32];
-        cli_forecast_days(fc, "open", day);
+        char line[160];
+        cli_forecast_text(fc, o->hp.required, pct, "open", line, sizeof line);
         if (fc->status == STAGECAL_FORECAST_NOT_DECLINING)
             printf("below %.3g stages: not forecast (the current segment is not declining)\n",
                    o->hp.required);
         else
-            printf("below %.3g stages on %s%s, %d %% band %s to %s%s\n", o->hp.required, day[0],
-                   fc->past ? " (already past)" : "", pct, day[1], day[2],
+            printf("%s%s\n", line,
                    fc->status == STAGECAL_FORECAST_UNBOUNDED
                        ? " (loss not significant: the band is open)"
                        : "");

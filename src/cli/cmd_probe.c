@@ -196,18 +196,10 @@ static json_t *result_json(const char *path, const stagecal_model *m, const stru
     return doc;
 }
 
-static void fmt_r(char *buf, size_t cap, double r)
-{
-    if (isinf(r))
-        snprintf(buf, cap, "inf");
-    else
-        snprintf(buf, cap, "%.3g", r);
-}
-
 static void print_compare(const stagecal_model *m, const struct compare *c, size_t n_at)
 {
     char a[32];
-    fmt_r(a, sizeof a, c->r);
+    cli_format_reflux(a, sizeof a, c->r, 3);
     printf("\nfor comparison, %zu windows at R = %s", c->res.k, a);
     if (m->form.uses_load)
         printf(", F = %.3g", c->f);
@@ -231,8 +223,8 @@ static void print_text(const char *path, const stagecal_model *m, const struct c
     char a[32], b[32];
     printf("%s (column %s, form %s, %zu windows, sigma %.3g stages per window)\n", path,
            m->column_id, m->form.name, m->n_windows, m->sigma);
-    fmt_r(a, sizeof a, res->r_lo);
-    fmt_r(b, sizeof b, res->r_hi);
+    cli_format_reflux(a, sizeof a, res->r_lo, 3);
+    cli_format_reflux(b, sizeof b, res->r_hi, 3);
     printf("%s design of %zu tests, R in %s..%s", stagecal_design_criterion_name(res->criterion),
            res->k, a, b);
     if (load)
@@ -243,7 +235,7 @@ static void print_text(const char *path, const stagecal_model *m, const struct c
     for (size_t t = 0; t < res->k; t++) {
         const stagecal_design_test *x = &res->tests[t];
         char fb[32] = "";
-        fmt_r(a, sizeof a, x->r);
+        cli_format_reflux(a, sizeof a, x->r, 3);
         if (load)
             snprintf(fb, sizeof fb, "%.3g", x->f_load);
         printf("  %-3zu %-8s %-12s %-13.1f%s\n", t + 1, a, fb, x->duration_s / 3600.0,
@@ -253,7 +245,7 @@ static void print_text(const char *path, const stagecal_model *m, const struct c
     for (size_t j = 0; j < n_at; j++) {
         const stagecal_design_at *x = &at[j];
         char fb[48] = "", hb[32], ha[32];
-        fmt_r(a, sizeof a, x->r);
+        cli_format_reflux(a, sizeof a, x->r, 3);
         if (load)
             snprintf(fb, sizeof fb, ", F = %.3g", x->f_load);
         if (x->determined_before)
@@ -275,7 +267,7 @@ static void print_text(const char *path, const stagecal_model *m, const struct c
         printf("\ninformation:");
     printf(" (rank %zu -> %zu of %zu)\n", res->rank_before, res->rank_after, res->p);
     if (res->rank_before < res->p) {
-        fmt_r(a, sizeof a, res->identify_r);
+        cli_format_reflux(a, sizeof a, res->identify_r, 3);
         printf("the current evidence cannot identify form %s (rank %zu of %zu); one window at "
                "R = %s",
                m->form.name, res->rank_before, res->p, a);

@@ -406,14 +406,13 @@ static void print_column(const struct column *col, const stagecal_trend_event *e
                base_name(col->sup[i].by), col->sup[i].log_path);
     if (h->has_forecast) {
         const stagecal_trend_forecast *fc = &h->forecast;
-        char day[3][32];
-        cli_forecast_days(fc, "-", day);
+        char line[160];
+        cli_forecast_text(fc, required, pct, "-", line, sizeof line);
         if (fc->status == STAGECAL_FORECAST_NOT_DECLINING)
             printf("forecast: the current segment is not declining; no date below %.3g stages\n",
                    required);
         else
-            printf("forecast: below %.3g stages on %s%s, %d %% band %s to %s%s\n", required, day[0],
-                   fc->past ? " (already past)" : "", pct, day[1], day[2],
+            printf("forecast: %s%s\n", line,
                    fc->status == STAGECAL_FORECAST_UNBOUNDED ? " (slope not significant: open)"
                                                              : "");
     } else if (!isnan(required)) {
