@@ -201,22 +201,27 @@ static void compare_whole_and_stream(const char *const *paths, size_t n, const s
     stagecal_findings_free(fs);
 }
 
-/* The fourteen demo logs (84 runs) in one stream: the same runs and rows as read whole. */
-static void runlog_stream_demo_logs_as_whole(void **state)
+/* The demo column and the fourteen demo logs (2025-01 … 2026-02) in p. */
+static void demo_setup(stagecal_column *col, const char *p[14])
 {
-    (void)state;
-    stagecal_column col;
-    memset(&col, 0, sizeof col);
-    assert_int_equal(
-        stagecal_column_load(STAGECAL_DATASETS "/columns/demo_benzene_toluene.json", &col, NULL),
-        0);
     static char paths[14][512];
-    const char *p[14];
+    memset(col, 0, sizeof *col);
+    assert_int_equal(
+        stagecal_column_load(STAGECAL_DATASETS "/columns/demo_benzene_toluene.json", col, NULL), 0);
     for (int i = 0; i < 14; i++) {
         snprintf(paths[i], sizeof paths[i], STAGECAL_DATASETS "/demo/logs/%d-%02d.csv",
                  i < 12 ? 2025 : 2026, i < 12 ? i + 1 : i - 11);
         p[i] = paths[i];
     }
+}
+
+/* The fourteen demo logs (84 runs) in one stream: the same runs and rows as read whole. */
+static void runlog_stream_demo_logs_as_whole(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    const char *p[14];
+    demo_setup(&col, p);
     compare_whole_and_stream(p, 14, &col);
     /* a file given twice: found by the checksum without SHA-256 */
     const char *twice[] = {p[0], p[0]};
@@ -302,17 +307,8 @@ static void runlog_stream_inversion_as_whole(void **state)
 {
     (void)state;
     stagecal_column col;
-    memset(&col, 0, sizeof col);
-    assert_int_equal(
-        stagecal_column_load(STAGECAL_DATASETS "/columns/demo_benzene_toluene.json", &col, NULL),
-        0);
-    static char paths[14][512];
     const char *p[14];
-    for (int i = 0; i < 14; i++) {
-        snprintf(paths[i], sizeof paths[i], STAGECAL_DATASETS "/demo/logs/%d-%02d.csv",
-                 i < 12 ? 2025 : 2026, i < 12 ? i + 1 : i - 11);
-        p[i] = paths[i];
-    }
+    demo_setup(&col, p);
     check_stream_inversion(p, 14, &col, 40);
     stagecal_column_free(&col);
 }
