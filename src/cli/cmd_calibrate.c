@@ -605,7 +605,8 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
                    "compensate the distillate for column holdup: auto (default:\n"
                    "'stages' when the column file states a holdup, else 'lag' with\n"
                    "the time constant of the total-reflux start-ups), none, lag or\n"
-                   "stages (docs/methods.md, \"Column holdup\")",
+                   "stages (without a holdup in the column file: each run's holdup\n"
+                   "from its start-up) (docs/methods.md, \"Column holdup\")",
                    holdup_choices, "a holdup mode"),
         OPT_BOOTSTRAP(&boot),
         OPT_SEED(&seed),
