@@ -34,7 +34,7 @@ static int check_stages(const stagecal_hetp_stages *s, stagecal_error *err)
         return error_set(err, STAGECAL_EINVAL,
                          "column stages %g is not positive (expected a fitted count > 0)",
                          s->column_stages);
-    if (!(isfinite(s->se) && s->se >= 0))
+    if (!s->lower_only && !(isfinite(s->se) && s->se >= 0))
         return error_set(err, STAGECAL_EINVAL,
                          "standard error %g of the column stages is invalid (expected >= 0)",
                          s->se);
@@ -57,12 +57,13 @@ int stagecal_hetp_stages_from_model(const stagecal_model *m, double r, double f_
     s->column_stages = p.column_stages;
     s->se = p.se_fit;
     s->dof = m->dof;
+    s->lower_only = p.lower_only;
     if (!(isfinite(p.column_stages) && p.column_stages > 0))
         return error_set(err, STAGECAL_EDATA,
                          "column %s: the model predicts %g column stages at R = %g (expected > 0 "
                          "for an HETP)",
                          m->column_id, p.column_stages, r);
-    if (!(isfinite(p.se_fit) && p.se_fit >= 0 && m->dof > 0))
+    if (!p.lower_only && !(isfinite(p.se_fit) && p.se_fit >= 0 && m->dof > 0))
         return error_set(err, STAGECAL_EDATA,
                          "column %s: no standard error at R = %g (se %g, dof %g)", m->column_id, r,
                          p.se_fit, m->dof);
@@ -82,6 +83,13 @@ int stagecal_hetp_compute(double height_m, const stagecal_hetp_stages *s, double
         return rc;
     double n = s->column_stages;
     out->level = level;
+    if (s->lower_only) { /* at least n column stages: HETP at most H/n */
+        out->at_most = 1;
+        out->t = out->se_m = NAN;
+        out->hetp_m = out->high_m = height_m / n;
+        out->low_m = 0;
+        return STAGECAL_OK;
+    }
     out->t = gsl_cdf_tdist_Pinv(0.5 + 0.5 * level, s->dof);
     out->hetp_m = height_m / n;
     out->se_m = height_m * s->se / (n * n);
@@ -98,6 +106,9 @@ int stagecal_hetp_compute(double height_m, const stagecal_hetp_stages *s, double
 
 const char *stagecal_hetp_undetermined(const stagecal_hetp_stages *s, const stagecal_hetp_result *r)
 {
+    if (s->lower_only)
+        return "bounded from above only: the evidence gives at least N stages (an analyser at "
+               "its limit), so HETP at most high_m";
     if (!(s->dof >= 2))
         return "not determined: the fit has fewer than 2 degrees of freedom";
     if (r->unbounded || !isfinite(r->high_m))
@@ -285,6 +296,9 @@ static int check_equiv(double margin, double alpha, stagecal_error *err)
 /* Why one side's evidence cannot decide, or NULL. */
 static const char *thin(const stagecal_hetp_stages *s, double alpha)
 {
+    if (s->lower_only)
+        return "the evidence gives at least N stages only (an analyser at its limit), so HETP "
+               "is bounded from above only";
     if (s->dof < 2)
         return "the fit has fewer than 2 degrees of freedom";
     if (!(s->se > 0))

@@ -68,6 +68,11 @@ int stagecal_trend_point_from_model(const stagecal_model *m, double r, double f_
                          "column %s: date '%s' is not a timestamp (expected "
                          "YYYY-MM-DDTHH:MM:SSZ)",
                          m->column_id, when);
+    if (p.lower_only)
+        return error_set(err, STAGECAL_EDATA,
+                         "column %s: fit of %s gives at least %g stages at R = %g only "
+                         "(one-sided: an analyser at its limit), not a point of a trend",
+                         m->column_id, m->fitted_utc, p.stages, r);
     if (!(isfinite(p.se_fit) && p.se_fit > 0))
         return error_set(err, STAGECAL_EDATA,
                          "column %s: fit of %s has no positive standard error at R = %g (got "
@@ -88,7 +93,7 @@ int stagecal_trend_point_from_model(const stagecal_model *m, double r, double f_
                          "for an HETP)",
                          m->column_id, m->fitted_utc, p.column_stages, r);
     /* HETP and its delta-method standard error come from hetp.c, the one home of HETP */
-    stagecal_hetp_stages hs = {p.column_stages, p.se_fit, m->dof};
+    stagecal_hetp_stages hs = {p.column_stages, p.se_fit, m->dof, p.lower_only};
     stagecal_hetp_result h;
     if ((rc = stagecal_hetp_compute(m->height_m, &hs, m->level, &h, err)) != STAGECAL_OK)
         return rc;

@@ -47,7 +47,7 @@ static void hetp_point_and_interval_match_scipy(void **state)
 {
     (void)state;
     /* H = 3.75 m over 7.5 column stages, se 0.42, 11 dof. */
-    stagecal_hetp_stages s = {7.5, 0.42, 11};
+    stagecal_hetp_stages s = {7.5, 0.42, 11, 0};
     stagecal_hetp_result r;
     assert_int_equal(stagecal_hetp_compute(3.75, &s, 0.95, &r, NULL), STAGECAL_OK);
     double want[3];
@@ -66,7 +66,7 @@ static void hetp_point_and_interval_match_scipy(void **state)
     assert_int_equal(r.unbounded, 0);
 
     /* An interval of N that reaches 0 leaves HETP unbounded above (flagged). */
-    stagecal_hetp_stages weak = {1.0, 0.9, 3};
+    stagecal_hetp_stages weak = {1.0, 0.9, 3, 0};
     assert_int_equal(stagecal_hetp_compute(2.0, &weak, 0.95, &r, NULL), STAGECAL_OK);
     assert_int_equal(r.unbounded, 1);
     assert_true(isinf(r.high_m));
@@ -85,7 +85,7 @@ static stagecal_hetp_stages simulate_fit(gsl_rng *rng, double n_true, double sd,
     }
     double mean = s / (double)n;
     double var = (ss - (double)n * mean * mean) / (double)(n - 1);
-    stagecal_hetp_stages out = {mean, sqrt(var / (double)n), (double)(n - 1)};
+    stagecal_hetp_stages out = {mean, sqrt(var / (double)n), (double)(n - 1), 0};
     return out;
 }
 
@@ -219,7 +219,7 @@ static void hetp_design_and_rule_checks(void **state)
 
     /* Measured 0.5 m [0.45, 0.56] against designs and the 50 mm random range
      * [0.63, 1.17]: the verdicts follow from the interval's position. */
-    stagecal_hetp_result r = {0.5, 0.025, 0.95, 2.2, 0.45, 0.56, 0};
+    stagecal_hetp_result r = {0.5, 0.025, 0.95, 2.2, 0.45, 0.56, 0, 0};
     stagecal_hetp_design_check dc;
     assert_int_equal(stagecal_hetp_vs_design(&r, 0.52, &dc, NULL), STAGECAL_OK);
     assert_int_equal(dc.verdict, STAGECAL_HETP_CONSISTENT);
@@ -240,7 +240,7 @@ static void hetp_tray_efficiency(void **state)
 {
     (void)state;
     /* 14.3 column stages on 22 trays: E_O = 0.65 (definition; common practice, no source). */
-    stagecal_hetp_stages s = {14.3, 0.55, 20};
+    stagecal_hetp_stages s = {14.3, 0.55, 20, 0};
     stagecal_hetp_tray t;
     assert_int_equal(stagecal_hetp_tray_efficiency(&s, 22, 0.90, &t, NULL), STAGECAL_OK);
     assert_rel(t.efficiency, 0.65, 1e-15, "E_O = N/trays");
@@ -256,8 +256,8 @@ static void hetp_rejects_bad_arguments(void **state)
     (void)state;
     stagecal_error e;
     stagecal_hetp_result r;
-    stagecal_hetp_stages good = {7.5, 0.4, 10}, bad_n = {0, 0.4, 10}, bad_se = {7.5, -1, 10},
-                         bad_dof = {7.5, 0.4, 0};
+    stagecal_hetp_stages good = {7.5, 0.4, 10, 0}, bad_n = {0, 0.4, 10, 0},
+                         bad_se = {7.5, -1, 10, 0}, bad_dof = {7.5, 0.4, 0, 0};
     assert_int_equal(stagecal_hetp_compute(0, &good, 0.95, &r, &e), STAGECAL_EINVAL);
     assert_string_equal(e.text, "packed height 0 m is not positive (expected the bed height in m)");
     assert_int_equal(stagecal_hetp_compute(3, &bad_n, 0.95, &r, &e), STAGECAL_EINVAL);
@@ -289,7 +289,7 @@ static void hetp_rejects_bad_arguments(void **state)
 static void hetp_equiv_design_matches_scipy(void **state)
 {
     (void)state;
-    stagecal_hetp_stages s = {7.3, 0.12, 4};
+    stagecal_hetp_stages s = {7.3, 0.12, 4, 0};
     stagecal_hetp_equiv e;
     assert_int_equal(stagecal_hetp_equiv_design(4.5, &s, 0.6, 0.10, 0.05, &e, NULL), 0);
     assert_rel(e.p_worse, 0.007964171041749152, 1e-10, "p of H0 worse (scipy)");
@@ -299,7 +299,7 @@ static void hetp_equiv_design_matches_scipy(void **state)
     assert_int_equal(e.verdict, STAGECAL_EQUIV_EQUIVALENT);
     assert_non_null(strstr(e.text, "as good as the design figure"));
     /* too thin: 1 dof; one-sided: N − t·se ≤ 0 */
-    stagecal_hetp_stages thin1 = {7.3, 0.12, 1}, open = {1.0, 2.0, 5};
+    stagecal_hetp_stages thin1 = {7.3, 0.12, 1, 0}, open = {1.0, 2.0, 5, 0};
     assert_int_equal(stagecal_hetp_equiv_design(4.5, &thin1, 0.6, 0.10, 0.05, &e, NULL), 0);
     assert_int_equal(e.verdict, STAGECAL_EQUIV_NOT_DETERMINED);
     assert_non_null(strstr(e.text, "fewer than 2 degrees"));
@@ -308,7 +308,7 @@ static void hetp_equiv_design_matches_scipy(void **state)
     assert_int_equal(e.verdict, STAGECAL_EQUIV_NOT_DETERMINED);
     assert_non_null(strstr(e.text, "from below only"));
     /* a bed clearly worse than design by more than the margin */
-    stagecal_hetp_stages bad = {5.5, 0.1, 10};
+    stagecal_hetp_stages bad = {5.5, 0.1, 10, 0};
     assert_int_equal(stagecal_hetp_equiv_design(4.5, &bad, 0.6, 0.10, 0.05, &e, NULL), 0);
     assert_int_equal(e.verdict, STAGECAL_EQUIV_WORSE);
     assert_int_equal(stagecal_hetp_equiv_design(4.5, &s, 0.6, 0, 0.05, &e, NULL), STAGECAL_EINVAL);
@@ -320,7 +320,7 @@ static void hetp_equiv_design_matches_scipy(void **state)
 static void hetp_equiv_pair_matches_scipy(void **state)
 {
     (void)state;
-    stagecal_hetp_stages a = {7.5, 0.1, 3}, b = {7.2, 0.15, 5};
+    stagecal_hetp_stages a = {7.5, 0.1, 3, 0}, b = {7.2, 0.15, 5, 0};
     stagecal_hetp_equiv e;
     assert_int_equal(stagecal_hetp_equiv_pair(4.5, &a, 4.5, &b, 0.10, 0.05, &e, NULL), 0);
     assert_rel(e.dof, 7.763913294277302, 1e-12, "Satterthwaite dof (scipy)");
@@ -328,7 +328,7 @@ static void hetp_equiv_pair_matches_scipy(void **state)
     assert_rel(e.p_better, 0.00031681483918592746, 1e-10, "p of H0 better (scipy)");
     assert_int_equal(e.verdict, STAGECAL_EQUIV_EQUIVALENT);
     assert_non_null(strstr(e.text, "as good as the old bed"));
-    stagecal_hetp_stages thin1 = {7.2, 0.15, 1.5};
+    stagecal_hetp_stages thin1 = {7.2, 0.15, 1.5, 0};
     assert_int_equal(stagecal_hetp_equiv_pair(4.5, &a, 4.5, &thin1, 0.10, 0.05, &e, NULL), 0);
     assert_int_equal(e.verdict, STAGECAL_EQUIV_NOT_DETERMINED);
 }
@@ -347,7 +347,7 @@ static void hetp_equiv_type1_at_margin(void **state)
     int reps = 20000, eq = 0;
     for (int i = 0; i < reps; i++) {
         stagecal_hetp_stages s = {n_true + gsl_ran_gaussian(rng, sigma),
-                                  sigma * sqrt(gsl_ran_chisq(rng, nu) / nu), nu};
+                                  sigma * sqrt(gsl_ran_chisq(rng, nu) / nu), nu, 0};
         stagecal_hetp_equiv e;
         assert_int_equal(stagecal_hetp_equiv_design(H, &s, D, 0.10, 0.05, &e, NULL), 0);
         eq += e.verdict == STAGECAL_EQUIV_EQUIVALENT;
@@ -364,7 +364,7 @@ static void hetp_equiv_type1_at_margin(void **state)
 static void hetp_undetermined_rule(void **state)
 {
     (void)state;
-    stagecal_hetp_stages one = {7.0, 0.5, 1}, open = {1.0, 2.0, 5}, good = {7.0, 0.1, 6};
+    stagecal_hetp_stages one = {7.0, 0.5, 1, 0}, open = {1.0, 2.0, 5, 0}, good = {7.0, 0.1, 6, 0};
     stagecal_hetp_result r;
     assert_int_equal(stagecal_hetp_compute(4.5, &one, 0.95, &r, NULL), 0);
     assert_non_null(strstr(stagecal_hetp_undetermined(&one, &r), "fewer than 2"));

@@ -40,6 +40,9 @@ typedef struct {
     double column_stages; /* estimate [-], > 0 */
     double se;            /* standard error of that estimate (mean prediction) [-], ≥ 0 */
     double dof;           /* residual degrees of freedom of the fit, > 0 (may be fractional) */
+    int lower_only;       /* 1: column_stages is a one-sided lower bound at the model's level
+                             ("at least N", a one-sided model file); se is NAN. HETP is then
+                             bounded from above only, and every comparison is not determined */
 } stagecal_hetp_stages;
 
 /* Column stages at (r, f_load) from a loaded model file: s gets the model's column
@@ -60,6 +63,8 @@ typedef struct {
     double low_m;  /* H / (N + t·se) [m] */
     double high_m; /* H / (N − t·se) [m]; INFINITY when unbounded = 1 */
     int unbounded; /* 1 when N − t·se ≤ 0: the data do not bound HETP from above */
+    int at_most;   /* 1 (s->lower_only): HETP is at most high_m = H/N at the model's level;
+                      hetp_m = high_m, low_m = 0, se_m and t NAN */
 } stagecal_hetp_result;
 
 /* HETP = height_m / s->column_stages with the endpoint-mapped t interval at `level`.

@@ -89,6 +89,7 @@ struct job {
     long trays;
     int packing; /* -1: no rule-of-thumb check; else a stagecal_packing_kind */
     int nfiles, have_diff;
+    int one_sided; /* a side's model is one-sided: comparisons are not determined */
     struct side sd[2];
     stagecal_hetp_diff diff;
     stagecal_hetp_design_check dc;
@@ -144,7 +145,10 @@ static int compare(struct job *j)
     const struct side *a = &j->sd[0], *b = &j->sd[1], *cur = &j->sd[j->nfiles - 1];
     int rc = 0;
     stagecal_error_clear(&err);
-    if (j->have_diff) {
+    /* a one-sided side ("at least N stages"): the change is not determined, never "no
+     * difference" (print_text, the JSON's comparison) */
+    j->one_sided = j->sd[0].s.lower_only || (j->nfiles > 1 && j->sd[1].s.lower_only);
+    if (j->have_diff && !j->one_sided) {
         if (j->trays > 0)
             rc = stagecal_hetp_welch(a->tray.efficiency, a->tray.se, a->s.dof, b->tray.efficiency,
                                      b->tray.se, b->s.dof, j->level, &j->diff, &err);
@@ -180,6 +184,12 @@ static json_t *comparison_json(const struct job *j)
     const stagecal_hetp_diff *d = &j->diff;
     if (!j->have_diff)
         return json_null();
+    if (j->one_sided)
+        return json_pack("{s:s, s:s, s:n, s:n, s:s}", "quantity",
+                         j->trays > 0 ? "tray_efficiency" : "hetp_m", "verdict", "not determined",
+                         "low", "high", "reason",
+                         "a model file gives at least N stages only (one-sided): the change "
+                         "is not determined");
     return json_pack(
         "{s:s, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:b, s:s}", "quantity",
         j->trays > 0 ? "tray_efficiency" : "hetp_m", "difference", cli_json_real(d->diff),
@@ -255,13 +265,23 @@ static void print_side(const struct job *j, const struct side *s, int pct)
     char se[32]; /* a huge se (a variance of 1e308 in the file) in exponent form */
     snprintf(se, sizeof se, s->s.se < 1e6 ? "%.3f" : "%.3g", s->s.se);
     printf("%s (column %s, fitted %s)\n", s->path, s->m.column_id, s->m.fitted_utc);
-    printf("  stages at R = %g%s: %.3f (the pot included); column stages %.3f "
-           "(se %s, %.3g dof)%s\n",
-           j->reflux, at, s->pt.stages, s->s.column_stages, se, s->s.dof,
-           s->pt.extrapolated ? " [EXTRAPOLATED]" : "");
+    if (s->pt.lower_only)
+        printf("  stages at R = %g%s: AT LEAST %.3f (the pot included; one-sided %.0f %%); "
+               "column stages at least %.3f%s\n",
+               j->reflux, at, s->pt.stages, 100 * s->pt.level, s->s.column_stages,
+               s->pt.extrapolated ? " [EXTRAPOLATED]" : "");
+    else
+        printf("  stages at R = %g%s: %.3f (the pot included); column stages %.3f "
+               "(se %s, %.3g dof)%s\n",
+               j->reflux, at, s->pt.stages, s->s.column_stages, se, s->s.dof,
+               s->pt.extrapolated ? " [EXTRAPOLATED]" : "");
     if (j->trays > 0)
         printf("  overall tray efficiency %.3f on %ld trays, %d %% CI [%.3f, %.3f]\n",
                s->tray.efficiency, j->trays, pct, s->tray.low, s->tray.high);
+    else if (s->h.at_most)
+        printf("  HETP AT MOST %.3f m (one-sided %d %%) over %.3f m packed: at least %.3f column "
+               "stages, the evidence gives no upper end\n",
+               s->h.high_m, pct, s->height_m, s->s.column_stages);
     else if (!(s->s.dof >= 2))
         printf("  HETP %.3f m over %.3f m packed, interval %s\n", s->h.hetp_m, s->height_m,
                stagecal_hetp_undetermined(&s->s, &s->h));
@@ -283,7 +303,11 @@ static void print_text(const struct job *j)
     for (int i = 0; i < j->nfiles; i++)
         print_side(j, &j->sd[i], pct);
     int thin = j->have_diff && (!(j->sd[0].s.dof >= 2) || !(j->sd[1].s.dof >= 2));
-    if (thin)
+    if (j->have_diff && j->one_sided) {
+        printf("change second - first: not determined (a model file gives at least N stages "
+               "only, one-sided: HETP is bounded from above only)\n");
+        thin = 1;
+    } else if (thin)
         printf("change second - first: not determined (a fit has fewer than 2 degrees of "
                "freedom)\n");
     if (j->have_diff && !thin) {

@@ -358,7 +358,7 @@ static int compute(struct result *res, struct options *o, char **logs, size_t nl
         const stagecal_history_estimate *ac = &res->rp.after_col;
         if (!isnan(o->design) && res->cal.column->height_m > 0) {
             res->has_design = 1;
-            stagecal_hetp_stages s = {ac->value, ac->se, ac->dof};
+            stagecal_hetp_stages s = {ac->value, ac->se, ac->dof, 0};
             if (!(ac->value > 0 && ac->dof > 0) ||
                 stagecal_hetp_equiv_design(res->cal.column->height_m, &s, o->design, o->margin,
                                            0.05, &res->eq_design, NULL) != STAGECAL_OK) {

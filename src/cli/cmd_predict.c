@@ -520,7 +520,13 @@ static int run(const struct request *q, cli_ctx *ctx)
     par.output_dt_s = q->every * STAGECAL_UNIT_H;
     stagecal_batch_result_init(&res);
     rc = stagecal_batch_run(&pb, &col, &par, &res, &err);
-    if (rc == STAGECAL_OK && q->samples >= 2) {
+    /* "at least N stages" (a one-sided model): the batch with the bound, no band */
+    if (m.one_sided)
+        cli_warn("%s: the evidence gives at least %.4g stages only (one-sided %.0f %%, an "
+                 "analyser at its limit): the batch is predicted with that lower bound (the "
+                 "column may separate better) and without a band",
+                 q->model, m.theta[0], 100 * m.level);
+    if (rc == STAGECAL_OK && q->samples >= 2 && !m.one_sided) {
         rc = stagecal_batch_band_sample_scatter(&pb, sys->vle, &m, q->f_load, &par, &res,
                                                 (size_t)q->samples, (unsigned long)q->seed,
                                                 q->level, q->run_scatter, &band, &err);
@@ -540,10 +546,15 @@ static int run(const struct request *q, cli_ctx *ctx)
         cli_warn("%s", res.warnings[i]);
     if (q->out && (rc = write_csv(q->out, &res)))
         goto done;
-    if (ctx->json)
-        rc = cli_json_print(result_json(&pb, &res, &band, have_band, q->model, latent_source,
-                                        (unsigned long)q->seed));
-    else if (!(ctx->data_on_stdout = q->out && strcmp(q->out, "-") == 0))
+    if (ctx->json) {
+        json_t *doc = result_json(&pb, &res, &band, have_band, q->model, latent_source,
+                                  (unsigned long)q->seed);
+        if (doc && m.one_sided)
+            json_object_set_new(doc, "stages_bound",
+                                json_pack("{s:s,s:f,s:n,s:f}", "side", "lower", "low", m.theta[0],
+                                          "high", "level", m.level));
+        rc = cli_json_print(doc);
+    } else if (!(ctx->data_on_stdout = q->out && strcmp(q->out, "-") == 0))
         print_human(&pb, &res, &band, have_band, latent_source);
 done:
     stagecal_batch_result_free(&res);

@@ -277,7 +277,7 @@ static json_t *column_json(const struct column *col, const stagecal_trend_event 
         const struct extra *x = &col->ex[h->order[i]];
         const stagecal_trend_ewma_point *c = &h->chart[i];
         const char *why = stagecal_trend_undetermined(x->dof, x->pt.ci_low, x->pt.ci_high);
-        stagecal_hetp_stages hs = {0, 0, x->dof};
+        stagecal_hetp_stages hs = {0, 0, x->dof, 0};
         const char *hwhy = x->has_hetp ? stagecal_hetp_undetermined(&hs, &x->hetp) : NULL;
         json_t *f = json_pack(
             "{s:s, s:s, s:o, s:o, s:o, s:o, s:b, s:I, s:o, s:o, s:o, s:i}", "path", x->path,
@@ -359,7 +359,7 @@ static void print_column(const struct column *col, const stagecal_trend_event *e
         const struct extra *x = &col->ex[h->order[i]];
         const stagecal_trend_ewma_point *c = &h->chart[i];
         char hetp[40] = "-", ci[40];
-        stagecal_hetp_stages hs = {0, 0, x->dof};
+        stagecal_hetp_stages hs = {0, 0, x->dof, 0};
         int ci_nd = stagecal_trend_undetermined(x->dof, x->pt.ci_low, x->pt.ci_high) != NULL;
         if (x->has_hetp && !ci_nd && stagecal_hetp_undetermined(&hs, &x->hetp) == NULL)
             snprintf(hetp, sizeof hetp, "%.3f (%.3f-%.3f)", x->hetp.hetp_m, x->hetp.low_m,
