@@ -96,26 +96,31 @@ static void invert_censored(struct inv_ctx *c, size_t i, double r)
     const stagecal_runlog *log = c->log;
     stagecal_runlog_result *res = c->res;
     int cd = log->xd_cens[i], cb = log->xb_cens[i];
+    res->status[i] = STAGECAL_RUNLOG_CENSORED;
+    res->note[i] =
+        (unsigned char)stagecal_runlog_bound(c->col, c->col->system.vle, log->xd[i], cd, log->xb[i],
+                                             cb, r, c->murphree, &res->stages[i]);
+}
+
+int stagecal_runlog_bound(const stagecal_column *col, const stagecal_vle *vle, double xd, int cd,
+                          double xb, int cb, double r, double murphree, double *stages)
+{
     int lower = cd == STAGECAL_CENSOR_ABOVE || cb == STAGECAL_CENSOR_BELOW;
     int upper = cd == STAGECAL_CENSOR_BELOW || cb == STAGECAL_CENSOR_ABOVE;
-    res->status[i] = STAGECAL_RUNLOG_CENSORED;
-    res->stages[i] = NAN;
-    if (lower && upper) {
-        res->note[i] = STAGECAL_NOTE_OPPOSITE;
-        return;
-    }
+    *stages = NAN;
+    if (lower && upper)
+        return STAGECAL_NOTE_OPPOSITE;
     double z = lower ? -STAGECAL_RUNLOG_BOUND_Z : STAGECAL_RUNLOG_BOUND_Z;
-    double xd = log->xd[i] + z * stagecal_runlog_u_xd(c->col, log->xd[i]);
-    double xb = log->xb[i] - z * stagecal_runlog_u_xb(c->col, log->xb[i]);
+    double xdb = xd + z * stagecal_runlog_u_xd(col, xd);
+    double xbb = xb - z * stagecal_runlog_u_xb(col, xb);
+    stagecal_stages_params sp = stagecal_stages_default_params();
     stagecal_stages_result sr;
-    res->note[i] = STAGECAL_NOTE_UNBOUNDED;
-    if (!(xd < 1 && xb > 0 && xb < xd) ||
-        stagecal_stages_invert(c->col->system.vle, xd, xb, r, c->murphree, &c->sp, &sr, NULL) !=
-            STAGECAL_OK ||
+    if (!(xdb < 1 && xbb > 0 && xbb < xdb) ||
+        stagecal_stages_invert(vle, xdb, xbb, r, murphree, &sp, &sr, NULL) != STAGECAL_OK ||
         sr.status != STAGECAL_STAGES_OK)
-        return;
-    res->stages[i] = sr.stages;
-    res->note[i] = lower ? STAGECAL_NOTE_AT_LEAST : STAGECAL_NOTE_AT_MOST;
+        return STAGECAL_NOTE_UNBOUNDED;
+    *stages = sr.stages;
+    return lower ? STAGECAL_NOTE_AT_LEAST : STAGECAL_NOTE_AT_MOST;
 }
 
 /* Inverts row i at reflux r (its set point, or INFINITY for no-distillate). */

@@ -399,6 +399,15 @@ const char *stagecal_runlog_status_name(int status);
  * a lower bound and more for an upper one (the standard normal 0.95 quantile). */
 #define STAGECAL_RUNLOG_BOUND_Z 1.6448536269514722
 
+/* The one-sided bound of one censored reading pair (xd, xb with their stagecal_censor
+ * cd, cb) at reflux r: the stage count at the compositions moved by
+ * STAGECAL_RUNLOG_BOUND_Z standard uncertainties each (col's, NULL: none) the way that
+ * weakens it. Returns the stagecal_runlog_note: AT_LEAST or AT_MOST with *stages the
+ * bound, OPPOSITE (censored in opposite senses) or UNBOUNDED (no finite bound) with
+ * *stages NAN. Used for censored log rows and `invert --xd '>v'`. */
+int stagecal_runlog_bound(const stagecal_column *col, const stagecal_vle *vle, double xd, int cd,
+                          double xb, int cb, double r, double murphree, double *stages);
+
 /* Everything computed for a log; one entry per row (arrays of length n). */
 typedef struct {
     size_t n;

@@ -40,20 +40,83 @@ static const struct cli_usage usage = {
     "Exit status: 0 success (a pinch or an azeotrope is a status, not an error), 2 usage\n"
     "error, 65 bad data, 66 missing file, 70 internal, 73 output cannot be written.\n"};
 
+/* A censored reading of one point ("--xd '>0.9999'", "--xb '<0.001'"): the mark of the
+ * option's value is taken off (argv is copied into av) and its sense kept in *cens, so that
+ * the option table parses and checks the number as usual. */
+static void strip_censor(int argc, char **av, const char *opt, int *cens)
+{
+    size_t n = strlen(opt);
+    for (int i = 1; i < argc; i++) {
+        char **v = NULL;
+        if (strcmp(av[i], opt) == 0 && i + 1 < argc)
+            v = &av[i + 1];
+        else if (strncmp(av[i], opt, n) == 0 && av[i][n] == '=')
+            v = NULL; /* "--xd=>v": left to the parser, which names it */
+        if (v && ((*v)[0] == '>' || (*v)[0] == '<')) {
+            *cens = (*v)[0] == '>' ? STAGECAL_CENSOR_ABOVE : STAGECAL_CENSOR_BELOW;
+            (*v)++;
+        }
+    }
+}
+
+/* One censored point: "at least N stages" (or at most), stagecal_runlog_bound. */
+static int invert_bound(double xd, int cd, double xb, int cb, double reflux, double murphree,
+                        cli_ctx *ctx)
+{
+    cli_system *sys = &ctx->sys;
+    const stagecal_column *col = sys->have_column ? &sys->col : NULL;
+    double b;
+    int note = stagecal_runlog_bound(col, sys->vle, xd, cd, xb, cb, reflux, murphree, &b);
+    int lower = note == STAGECAL_NOTE_AT_LEAST, upper = note == STAGECAL_NOTE_AT_MOST;
+    const char *how = "the count at the readings moved by 1.645 standard uncertainties each "
+                      "(the column file's) the way that weakens it";
+    if (ctx->json) {
+        json_t *doc =
+            json_pack("{s:s,s:i,s:s,s:o,s:o,s:o,s:s,s:f,s:s,s:f,s:s,s:o,s:f,s:s,s:o}", "format",
+                      "stagecal-invert", "version", 1, "status", "censored", "stages", json_null(),
+                      "stages_low", lower ? json_real(b) : json_null(), "stages_high",
+                      upper ? json_real(b) : json_null(), "note", stagecal_runlog_note_text(note),
+                      "xd", xd, "xd_censored",
+                      cd == STAGECAL_CENSOR_ABOVE ? "above"
+                      : cd                        ? "below"
+                                                  : "no",
+                      "xb", xb, "xb_censored",
+                      cb == STAGECAL_CENSOR_ABOVE ? "above"
+                      : cb                        ? "below"
+                                                  : "no",
+                      "reflux", cli_json_reflux(reflux), "level", 0.95, "bound", how, "model",
+                      cli_system_json(sys));
+        return cli_json_print(doc);
+    }
+    if (lower || upper)
+        printf("stages (the pot included): AT %s %.6f (one-sided 95 %%: a censored reading "
+               "bounds the count from one side only; %s%s)\n",
+               lower ? "LEAST" : "MOST", b, how, col ? "" : ", none stated: the limits themselves");
+    else
+        printf("stages (the pot included): not determined (%s)\n", stagecal_runlog_note_text(note));
+    printf(
+        "stage convention: %s\n",
+        stagecal_convention_text(sys->have_column ? sys->col.condenser : STAGECAL_CONDENSER_TOTAL));
+    return CLI_EXIT_OK;
+}
+
 /* One point: --xd, --xb, --reflux. */
-static int invert_point(double xd, double xb, double reflux, double murphree, cli_ctx *ctx)
+static int invert_point(double xd, int cd, double xb, int cb, double reflux, double murphree,
+                        cli_ctx *ctx)
 {
     cli_system *sys = &ctx->sys;
     int rc;
     if ((rc = cli_require("xd", xd)) || (rc = cli_require("xb", xb)) ||
         (rc = cli_require("reflux", reflux)))
         return rc;
-    if (!(xb < xd))
+    if (!(xb < xd) && !cd && !cb)
         return cli_usage_error("option '--xb': %g is not below --xd %g (expected the pot leaner "
                                "in the light component than the distillate)",
                                xb, xd);
     if ((rc = cli_system_open(sys)))
         return rc;
+    if (cd || cb)
+        return invert_bound(xd, cd, xb, cb, reflux, murphree, ctx);
 
     stagecal_stages_params par = stagecal_stages_default_params();
     stagecal_stages_result res;
@@ -400,8 +463,18 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
                  0, 64),
         OPT_END_COMMON(ctx),
     };
-    int first, rc;
-    if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
+    int first, rc, cd = 0, cb = 0;
+    char **av = malloc(((size_t)argc + 1) * sizeof *av);
+    if (!av) {
+        cli_error("out of memory");
+        return CLI_EXIT_SOFTWARE;
+    }
+    memcpy(av, argv, ((size_t)argc + 1) * sizeof *av);
+    strip_censor(argc, av, "--xd", &cd);
+    strip_censor(argc, av, "--xb", &cb);
+    rc = cli_parse(argc, av, opts, &usage, &first);
+    free(av);
+    if (rc)
         return rc;
     /* the mode follows from what was given: run logs, or a point */
     if (first < argc || out_path || cli_given(opts, "min-rows") || cli_given(opts, "warm-up") ||
@@ -413,5 +486,5 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
         return invert_rows(argc, argv, first, out_path, minrows, dialect, &ap, murphree, threads,
                            ctx);
     }
-    return invert_point(xd, xb, reflux, murphree, ctx);
+    return invert_point(xd, cd, xb, cb, reflux, murphree, ctx);
 }

@@ -28,6 +28,23 @@ expect_exit 2 "unknown option '-x'" -- $I --xd 0.9 --xb 0.1 -x
 expect_exit 2 "option '--stages' needs a value" -- $S --xd 0.9 --stages
 expect_exit 2 "option '--xb' is required" -- $I --xd 0.9
 expect_exit 2 "one of '--alpha', '--kvalue' or '--column' is required" -- $BIN invert --xd 0.9 --xb 0.1 --reflux 2
+# one censored reading ("--xd '>v'"): the bad variants name the number left after the mark
+expect_exit 2 "option '--xd': '' is not a number (expected a mole fraction)" -- $I --xd '>' --xb 0.2
+expect_exit 2 "option '--xd': '>3' is not a number (expected a mole fraction)" -- $I --xd '>>3' --xb 0.2
+expect_exit 2 "option '--xd': 'abc' is not a number (expected a mole fraction)" -- $I --xd '<abc' --xb 0.2
+expect_exit 2 "option '--xb': -1 is outside (0, 1)" -- $I --xd 0.99 --xb '>-1'
+# and the answer is one-sided: without stated uncertainties the bound is the count at the limit
+# itself, the plain count of --xd 0.9999 (so the two lines carry the same number)
+$I --xd '>0.9999' --xb 0.2 >"$tmp/b" 2>&1
+$I --xd 0.9999 --xb 0.2 >"$tmp/p" 2>&1
+b=$(sed -n 's/^stages (the pot included): AT LEAST \([0-9.]*\) (one-sided 95 %.*/\1/p' "$tmp/b")
+p=$(sed -n 's/^stages (the pot included): \([0-9.]*\)$/\1/p' "$tmp/p")
+if [ -n "$b" ] && [ "$b" = "$p" ]; then echo "ok: invert --xd '>0.9999': at least $b"
+else echo "FAIL: invert --xd '>0.9999': '$b' vs plain '$p'"; cat "$tmp/b"; fails=$((fails + 1)); fi
+$I --xd '>0.9999' --xb 0.2 --json >"$tmp/j"
+if grep -q '"stages_high": null' "$tmp/j" && grep -q '"status": "censored"' "$tmp/j" &&
+    grep -q "\"stages_low\": ${p%??}" "$tmp/j"; then echo "ok: invert --xd '>0.9999' --json: high end null"
+else echo "FAIL: invert --xd '>0.9999' --json"; cat "$tmp/j"; fails=$((fails + 1)); fi
 expect_exit 2 "exclude each other" -- $BIN invert --alpha 2 --kvalue 3 --xd 0.9 --xb 0.1 --reflux 2
 expect_exit 2 "'frobnicate' is not a command" -- $BIN frobnicate
 expect_exit 0 "" -- $BIN invert --help
