@@ -288,11 +288,23 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
         d->fit_cells[4 * i + 2] = doc_str(d, "%.3g", se);
         d->fit_cells[4 * i + 3] =
             doc_str(d, "[%.6g, %.6g]", m->theta[i] - p0.t * se, m->theta[i] + p0.t * se);
+        if (m->one_sided) { /* "at least N stages": a bound, no standard error */
+            d->fit_cells[4 * i + 1] = doc_str(d, "at least %.6g", m->theta[i]);
+            d->fit_cells[4 * i + 2] = "none (one-sided)";
+            d->fit_cells[4 * i + 3] = doc_str(d, "from %.6g, no upper end (one-sided %.0f %%)",
+                                              m->theta[i], 100 * m->level);
+        }
     }
     d->fit = (stagecal_report_table){doc_str(d, "Parameters of '%s'", m->form.name), d->fit_head, 4,
                                      d->fit_cells, p};
     r->fit = &d->fit;
     size_t ns = 0;
+    if (m->one_sided)
+        add_item(d->summary, &ns, "AT LEAST",
+                 doc_str(d,
+                         "%.4g stages (one-sided %.0f %%): readings at an analyser's limit; "
+                         "the evidence bounds the stage count from below only",
+                         m->theta[0], 100 * m->level));
     add_item(d->summary, &ns, "residual \xcf\x83",
              doc_str(d, "%.4g stages, %.4g degrees of freedom", m->sigma, m->dof));
     add_item(d->summary, &ns, "envelope: R",
