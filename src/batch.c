@@ -42,18 +42,17 @@ void stagecal_batch_problem_init(stagecal_batch_problem *pb)
 
 stagecal_batch_params stagecal_batch_default_params(void)
 {
-    stagecal_batch_params p;
-    p.epsabs = 1e-12;
-    p.epsrel = 1e-10;
-    p.rk8pd = 1;
-    p.x_epsabs = 1e-14;
-    p.event_epsabs = 1e-13;
-    p.max_iter = 200;
-    p.output_dt_s = 0;
-    p.min_pot_fraction = 1e-3;
-    p.t_max_s = 30.0 * 86400.0;
-    p.max_steps = 100000;
-    return p;
+    /* one initializer: a member added later starts as 0, never as stack garbage */
+    return (stagecal_batch_params){.epsabs = 1e-12,
+                                   .epsrel = 1e-10,
+                                   .rk8pd = 1,
+                                   .x_epsabs = 1e-14,
+                                   .event_epsabs = 1e-13,
+                                   .max_iter = 200,
+                                   .output_dt_s = 0,
+                                   .min_pot_fraction = 1e-3,
+                                   .t_max_s = 30.0 * 86400.0,
+                                   .max_steps = 100000};
 }
 
 void stagecal_batch_result_init(stagecal_batch_result *res)

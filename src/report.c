@@ -28,8 +28,7 @@
 
 stagecal_report_params stagecal_report_default_params(void)
 {
-    stagecal_report_params p;
-    p.plot = stagecal_plot_default_params();
+    stagecal_report_params p = {.plot = stagecal_plot_default_params()};
     p.plot.width = 720;
     p.plot.height = 480;
     return p;

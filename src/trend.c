@@ -625,13 +625,11 @@ int stagecal_trend_events_read(const char *path, stagecal_trend_event **events, 
 
 stagecal_trend_params stagecal_trend_default_params(void)
 {
-    stagecal_trend_params p;
-    p.level = 0.95;
-    p.required = NAN;
-    p.ewma = stagecal_trend_ewma_default_params();
-    p.baseline_n = 3;
-    p.baseline = NAN;
-    return p;
+    return (stagecal_trend_params){.level = 0.95,
+                                   .required = NAN,
+                                   .ewma = stagecal_trend_ewma_default_params(),
+                                   .baseline_n = 3,
+                                   .baseline = NAN};
 }
 
 void stagecal_trend_history_free(stagecal_trend_history *h)
