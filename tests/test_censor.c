@@ -226,6 +226,45 @@ static void censor_two_parameters_exact(void **state)
     stagecal_vle_free(col.system.vle);
 }
 
+/* The profile log-likelihood against an independent implementation: python3 with its
+ * standard library only (math.erfc for log Φ, a 20001-point grid and golden-section search
+ * for the latent xD, the pot from Smoker's closed form; python3-scipy was not installed
+ * where this was written). One window at R = 10, α = 2, readings xD 0.99955, ">0.9999"
+ * (censored above), 0.99948 and xB 0.512, 0.508, 0.515; u(xD) = 0.0002, u(xB) = 0.003:
+ *   def nll(z, n):  xd = 1/(1+exp(-z)); xb = smoker_xb(2, 10, xd, n)
+ *       return -(sum(logcdf((xd-y)/u_d) if censored else logpdf(y, xd, u_d) for y in yd)
+ *                + sum(logpdf(y, xb, u_b) for y in yb))
+ *   ℓ(14) = 25.279155980575922, ℓ(16) = 23.426435698882145, ℓ(18) = 22.60780666459776
+ * (maximisers xD = 0.99979768, 0.99993877, 0.99998147, inside the range). Tolerance 1e-6:
+ * the two latent searches stop at 1e-9 in logit xD, and stepping equals Smoker's closed form
+ * to ~1e-9 stages. */
+static void censor_loglik_matches_python(void **state)
+{
+    (void)state;
+    static double yd[3] = {0.99955, 0.9999, 0.99948}, yb[3] = {0.512, 0.508, 0.515};
+    static unsigned char fl[3] = {0, STAGECAL_EVIDENCE_XD_ABOVE, 0};
+    static const double want[3] = {25.279155980575922, 23.426435698882145, 22.60780666459776};
+    stagecal_evidence e1;
+    memset(&e1, 0, sizeof e1);
+    e1.r = 10;
+    e1.m = 3;
+    e1.s_xd = yd;
+    e1.s_xb = yb;
+    e1.s_cens = fl;
+    memset(&col, 0, sizeof col);
+    col.system.vle = stagecal_vle_alloc_alpha(ALPHA, NULL);
+    col.u.xd = 0.0002;
+    col.u.xb = 0.003;
+    stagecal_form form;
+    assert_int_equal(stagecal_form_parse("constant", &form, NULL), 0);
+    for (int k = 0; k < 3; k++) {
+        double th = 14 + 2 * k, ll;
+        assert_int_equal(stagecal_censored_loglik(&col, 1.0, &e1, 1, &form, &th, &ll, NULL), 0);
+        assert_abs(ll, want[k], 1e-6, "profile log-likelihood vs python");
+    }
+    stagecal_vle_free(col.system.vle);
+}
+
 /* ---- through the calibration chain -------------------------------------------------- */
 
 /* One synthetic data set (tests/synth_censor.h, seed 3) of a regime, calibrated. */
@@ -359,6 +398,7 @@ int main(void)
         cmocka_unit_test(censor_exact_readings_give_the_truth),
         cmocka_unit_test(censor_clipped_analyser_gives_at_least),
         cmocka_unit_test(censor_two_parameters_exact),
+        cmocka_unit_test(censor_loglik_matches_python),
         cmocka_unit_test(calibrate_clipped_gives_at_least),
         cmocka_unit_test(calibrate_ppm_is_two_sided),
     };
