@@ -440,7 +440,10 @@ static void print_text(const stagecal_calibration *cal, const char *path, const 
         putchar('\n');
     }
     printf("\nform: %s   fit: %s\n", fit->form.name, stagecal_model_method_name(cal->used));
-    print_fit("", fit);
+    if (cal->used == STAGECAL_MODEL_CENSORED) /* no residual σ behind its intervals */
+        cli_print_params(fit, 0);
+    else
+        print_fit("", fit);
     if (cal->used == STAGECAL_MODEL_COMPOSITION_SPACE && cal->stage_status == STAGECAL_OK)
         print_fit("\nfor comparison, the stage-space fit:", &cal->stage_fit);
     else if (cal->used == STAGECAL_MODEL_COMPOSITION_SPACE)
