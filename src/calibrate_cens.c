@@ -4,6 +4,7 @@
  * on every reading, censored ones as bounds (stagecal/censor.h, Tobin 1958), and the model
  * says "at least N stages" where the evidence bounds the count from below only.
  */
+#include <gsl/gsl_cdf.h>
 #include <math.h>
 #include <stdio.h>
 #include <string.h>
@@ -111,6 +112,39 @@ int calibrate_censoring_matters(const stagecal_calibration *cal)
     return 0;
 }
 
+/* The model file carries a two-sided fit as θ̂ with a covariance (symmetric intervals);
+ * where the profile-likelihood interval is far from θ̂ ± z·se (an end off by more than
+ * CAL_CENS_QUAD of its width: the likelihood is far from quadratic, typically a latent
+ * distillate near pure), the covariance would misstate it. Then a one-parameter fit keeps
+ * the profile interval's low end as an "at least" bound (two-sided level, so it holds at
+ * least as often as the one-sided bound) and a larger form is refused. */
+static int quadratic_check(stagecal_censored_fit *c, const stagecal_form *form, stagecal_error *err)
+{
+    if (c->one_sided || !c->has_cov)
+        return STAGECAL_OK;
+    double z = gsl_cdf_ugaussian_Pinv(0.5 + 0.5 * c->level);
+    for (size_t j = 0; j < c->p; j++) {
+        stagecal_censored_interval *a = &c->par[j];
+        double se = sqrt(c->cov[j * c->p + j]), w = a->high - a->low;
+        if (fabs(c->theta[j] - z * se - a->low) <= CAL_CENS_QUAD * w &&
+            fabs(c->theta[j] + z * se - a->high) <= CAL_CENS_QUAD * w)
+            continue;
+        if (c->p > 1)
+            return error_set(err, STAGECAL_EDATA,
+                             "the likelihood of form '%s' is far from quadratic (parameter '%s': "
+                             "profile interval %.4g to %.4g, covariance gives %.4g to %.4g): a "
+                             "model file's covariance would misstate it; what would help: "
+                             "--form constant, or readings the analyser resolves",
+                             form->name, form->param_names[j], a->low, a->high,
+                             c->theta[j] - z * se, c->theta[j] + z * se);
+        a->high = NAN;
+        a->high_bounded = 0;
+        c->one_sided = 1;
+        c->has_cov = 0;
+    }
+    return STAGECAL_OK;
+}
+
 int calibrate_censored(stagecal_calibration *cal, const stagecal_calibrate_params *par,
                        stagecal_form *form, int *fallback, stagecal_error *err)
 {
@@ -149,6 +183,8 @@ int calibrate_censored(stagecal_calibration *cal, const stagecal_calibrate_param
             return rc;
         *fallback = 1;
     }
+    if ((rc = quadratic_check(&cal->cens, form, err)))
+        return rc;
     const stagecal_censored_interval *a = &cal->cens.par[0];
     if (cal->cens.one_sided && !(a->low_bounded && !a->high_bounded))
         return error_set(err, STAGECAL_EDATA,
@@ -163,9 +199,14 @@ int calibrate_censored(stagecal_calibration *cal, const stagecal_calibrate_param
                          form->name);
     as_result(cal, form, &cal->cens_fit);
     reference(cal, par, &cal->cens_r, &cal->cens_f);
-    return stagecal_censored_stages_at(cal->column, par->murphree, es->cens, es->ncens, form,
-                                       &cal->cens, cal->cens_r, cal->cens_f, par->level,
-                                       &cal->cens_at, err);
+    rc = stagecal_censored_stages_at(cal->column, par->murphree, es->cens, es->ncens, form,
+                                     &cal->cens, cal->cens_r, cal->cens_f, par->level,
+                                     &cal->cens_at, err);
+    if (rc == STAGECAL_OK && cal->cens.one_sided) { /* the model's answer: "at least" */
+        cal->cens_at.high = NAN;
+        cal->cens_at.high_bounded = 0;
+    }
+    return rc;
 }
 
 void calibrate_censored_model(const stagecal_calibration *cal, stagecal_model *mo)

@@ -31,6 +31,7 @@ void calibrate_censored_model(const stagecal_calibration *cal, stagecal_model *m
 int calibrate_censoring_matters(const stagecal_calibration *cal);
 
 #define CAL_CENS_SHARE 0.10
+#define CAL_CENS_QUAD 0.10 /* see quadratic_check in calibrate_cens.c */
 #define CAL_CENS_STAGES_MAX 200.0
 
 #endif
