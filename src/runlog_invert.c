@@ -46,8 +46,8 @@ static const char *const note_text[STAGECAL_NOTE_COUNT] = {
     [STAGECAL_NOTE_AT_LEAST] = "censored reading: at least this many stages (one-sided 95 %)",
     [STAGECAL_NOTE_AT_MOST] = "censored reading: at most this many stages (one-sided 95 %)",
     [STAGECAL_NOTE_OPPOSITE] = "xD and xB censored in opposite senses: no bound",
-    [STAGECAL_NOTE_UNBOUNDED] = "censored reading: no finite bound (at the physical bound "
-                                "without a stated uncertainty, or a pinch)",
+    [STAGECAL_NOTE_UNBOUNDED] = ("censored reading: no finite bound (at the physical bound "
+                                 "without a stated uncertainty, or a pinch)"),
 };
 
 const char *stagecal_runlog_status_name(int status)
