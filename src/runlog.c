@@ -50,6 +50,7 @@ static int is_composition(int role)
     return role == STAGECAL_RL_XD || role == STAGECAL_RL_XB || role == STAGECAL_RL_XDH;
 }
 
+SC_PRINTF(5, 0)
 static void vfinding(struct reader *rd, int sev, long line, const char *column, const char *fmt,
                      va_list ap)
 {

@@ -123,8 +123,8 @@ static void column_table_and_other_models(void **state)
         "{\"kind\": \"ideal\"}",
         "{\"kind\": \"vanlaar\", \"a12\": 1.6798, \"a21\": 0.9227}",
         "{\"kind\": \"margules\", \"a12\": 1.2, \"a21\": 0.7}",
-        "{\"kind\": \"wilson\", \"a12_j_mol\": 1234.5, \"a21_j_mol\": 3456.7, \"v1_m3_mol\": "
-        "5.868e-5, \"v2_m3_mol\": 1.807e-5}",
+        ("{\"kind\": \"wilson\", \"a12_j_mol\": 1234.5, \"a21_j_mol\": 3456.7, \"v1_m3_mol\": "
+         "5.868e-5, \"v2_m3_mol\": 1.807e-5}"),
         "{\"kind\": \"kvalue\", \"k\": 8.5}",
     };
     for (size_t i = 0; i < sizeof models / sizeof models[0]; i++) {

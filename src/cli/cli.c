@@ -21,7 +21,8 @@
 const char *cli_command = "";
 int cli_quiet = 0;
 
-static void vmessage(const char *kind, const char *fmt, va_list ap)
+__attribute__((format(printf, 2, 0))) static void vmessage(const char *kind, const char *fmt,
+                                                           va_list ap)
 {
     if (cli_command[0])
         fprintf(stderr, "stagecal %s: %s", cli_command, kind);
