@@ -10,26 +10,8 @@
 #include <string.h>
 
 #include "calibrate_internal.h"
+#include "evidence_internal.h"
 #include "internal.h"
-
-/* σ in stage space about the curve θ, from the windows with stage counts (what a
- * planner's prediction band needs), with its degrees of freedom (0, 0 when too few). */
-static void stage_scatter(const stagecal_evidence *ev, size_t n, const stagecal_form *form,
-                          const double *theta, double *sigma, double *dof)
-{
-    double ss = 0;
-    size_t m = 0;
-    for (size_t i = 0; i < n; i++) {
-        double v;
-        if (!ev[i].stages_ok ||
-            stagecal_form_eval(form, theta, ev[i].r, ev[i].f_load, &v, NULL) != STAGECAL_OK)
-            continue;
-        ss += (ev[i].stages - v) * (ev[i].stages - v);
-        m++;
-    }
-    *dof = m > form->p ? (double)(m - form->p) : 0;
-    *sigma = *dof > 0 ? sqrt(ss / *dof) : 0;
-}
 
 /* The fit as the printers take it (see stagecal_calibration.cens_fit). */
 static void as_result(const stagecal_calibration *cal, const stagecal_form *form,
@@ -77,7 +59,8 @@ static void as_result(const stagecal_calibration *cal, const stagecal_form *form
         r->r_min = r->r_max = 0;
     if (!isfinite(r->f_min))
         r->f_min = r->f_max = 0;
-    stage_scatter(cal->evidence.ev, cal->evidence.n, form, c->theta, &r->sigma_obs, &r->sigma_dof);
+    evidence_stage_scatter(cal->evidence.ev, cal->evidence.n, form, c->theta, &r->sigma_obs,
+                           &r->sigma_dof);
     r->sigma = r->sigma_obs;
 }
 

@@ -724,3 +724,22 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
     free(xd_src);
     return rc;
 }
+
+/* σ in stage space (what a planner's prediction band needs): the scatter of the windows
+ * with stage counts about the curve, with its degrees of freedom m − p (0, 0 when m ≤ p). */
+void evidence_stage_scatter(const stagecal_evidence *ev, size_t n, const stagecal_form *form,
+                            const double *theta, double *sigma, double *dof)
+{
+    double ss = 0;
+    size_t m = 0;
+    for (size_t i = 0; i < n; i++) {
+        double v;
+        if (!ev[i].stages_ok ||
+            stagecal_form_eval(form, theta, ev[i].r, ev[i].f_load, &v, NULL) != STAGECAL_OK)
+            continue;
+        ss += (ev[i].stages - v) * (ev[i].stages - v);
+        m++;
+    }
+    *dof = m > form->p ? (double)(m - form->p) : 0;
+    *sigma = *dof > 0 ? sqrt(ss / *dof) : 0;
+}

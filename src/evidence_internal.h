@@ -22,5 +22,9 @@ void evidence_physics_free(stagecal_evidence_set *set);
 int evidence_build_cens(const stagecal_runlog *log, const double *xd_src,
                         const stagecal_runlog_result *res, size_t cap, stagecal_evidence_set *set,
                         stagecal_error *err);
+/* σ of the windows' stage counts about the curve theta of form, with its degrees of freedom
+ * m − p over the m windows with stage counts (0, 0 when m ≤ p). */
+void evidence_stage_scatter(const stagecal_evidence *ev, size_t n, const stagecal_form *form,
+                            const double *theta, double *sigma, double *dof);
 
 #endif

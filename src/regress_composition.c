@@ -22,6 +22,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "evidence_internal.h"
 #include "internal.h"
 #include "stagecal/stages.h"
 
@@ -130,25 +131,6 @@ static int comp_f(const double *theta, void *params, double *f)
     return 0;
 }
 
-/* σ in stage space (what a planner's prediction band needs): the scatter of the windows
- * with stage counts about the curve, with its degrees of freedom m − p (0, 0 when m ≤ p). */
-static void stage_scatter(const stagecal_evidence *ev, size_t n, const stagecal_form *form,
-                          const double *theta, double *sigma, double *dof)
-{
-    double ss = 0;
-    size_t m = 0;
-    for (size_t i = 0; i < n; i++) {
-        double v;
-        if (!ev[i].stages_ok ||
-            stagecal_form_eval(form, theta, ev[i].r, ev[i].f_load, &v, NULL) != STAGECAL_OK)
-            continue;
-        ss += (ev[i].stages - v) * (ev[i].stages - v);
-        m++;
-    }
-    *dof = m > form->p ? (double)(m - form->p) : 0;
-    *sigma = *dof > 0 ? sqrt(ss / *dof) : 0;
-}
-
 /* Effective standard deviation of each window's log-odds at theta0 (see the top). */
 static void comp_scales(struct comp_ctx *c, const double *theta0)
 {
@@ -232,7 +214,7 @@ int stagecal_fit_composition(const stagecal_vle *vle, double murphree, const sta
         goto done;
     result->loglik = -0.5 * result->rss;
     /* σ and its dof in stage space: what a planner's prediction band needs */
-    stage_scatter(ev, n, form, result->theta, &result->sigma, &result->sigma_dof);
+    evidence_stage_scatter(ev, n, form, result->theta, &result->sigma, &result->sigma_dof);
     result->sigma_obs = result->sigma;
     for (size_t i = 0; i < n; i++) {
         r[i] = ev[i].r;

@@ -151,4 +151,41 @@ static inline char *srl_csv(const struct srl_spec *s, gsl_rng *rng, size_t *len)
     return buf;
 }
 
+/* Two callbacks the run-log tests share: the pot composition of a constant-α = 2 column by
+ * Smoker's closed form (tests/oracle_smoker.h), and a saturating law N(R) = 8 (1 − e^(−0.45 R)). */
+static inline double srl_smoker_pot_a2(void *ctx, double r, double xd, double n, double p)
+{
+    (void)ctx, (void)p;
+    return oracle_smoker_xb(2.0, r, xd, n);
+}
+
+static inline double srl_sat_law(void *ctx, double r)
+{
+    (void)ctx;
+    return 8.0 * (1 - exp(-0.45 * r));
+}
+
+/* Benzene–toluene for the vacuum tests: NIST Chemistry WebBook Antoine sets, the same numbers
+ * as datasets/columns/demo_benzene_toluene.json (after Williamham, Taylor, Pignocco & Rossini
+ * 1945); a column file for them with its pressure as a printf %.3f (Pa); and the pot of an
+ * n-stage Raoult column at top pressure p. */
+static const struct srl_antoine srl_benzene = {4.01814, 1203.835, -53.226};
+static const struct srl_antoine srl_toluene = {4.07827, 1343.943, -53.773};
+#define SRL_BT_COLUMN_FMT                                                                          \
+    "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"synthetic-vacuum\","              \
+    " \"description\": \"INVENTED: a synthetic vacuum column for the tests\","                     \
+    " \"condenser\": \"total\", \"pressure_pa\": %.3f,"                                            \
+    " \"system\": {\"light\": {\"name\": \"benzene\", \"molar_mass_kg_mol\": 0.078112,"            \
+    "   \"antoine\": {\"a\": 4.01814, \"b\": 1203.835, \"c\": -53.226}},"                          \
+    "  \"heavy\": {\"name\": \"toluene\", \"molar_mass_kg_mol\": 0.092138,"                        \
+    "   \"antoine\": {\"a\": 4.07827, \"b\": 1343.943, \"c\": -53.773}},"                          \
+    "  \"latent_heat_j_mol\": 32000, \"model\": {\"kind\": \"ideal\"}},"                           \
+    " \"uncertainty\": {\"xd\": 0.002, \"xb\": 0.003}}"
+
+static inline double srl_bt_pot(void *ctx, double r, double xd, double n, double p)
+{
+    (void)ctx;
+    return srl_raoult_pot(&srl_benzene, &srl_toluene, p, r, xd, (int)lround(n));
+}
+
 #endif

@@ -176,18 +176,6 @@ static void setpoint_false_splits_and_power(void **state)
     gsl_rng_free(rng);
 }
 
-static double smoker_pot(void *ctx, double r, double xd, double n, double p)
-{
-    (void)ctx, (void)p;
-    return oracle_smoker_xb(2.0, r, xd, n);
-}
-
-static double sat_law(void *ctx, double r)
-{
-    (void)ctx;
-    return 8.0 * (1 - exp(-0.45 * r));
-}
-
 /* The issue's case: one run of 390 rows at five set points whose R reading scatters by
  * 0.02. With the set points from the test, calibrate finds a window at each set point and
  * the saturating fit succeeds; taking every reading as a set point (the behaviour before)
@@ -196,8 +184,21 @@ static void setpoint_measured_log_calibrates(void **state)
 {
     (void)state;
     static const double rset[] = {1.5, 2.5, 4.0, 6.0, 10.0};
-    struct srl_spec s = {smoker_pot, NULL,   sat_law, 1,     rset, 5,      78,  60.0,
-                         0.02,       0.0015, 0.0025,  200.0, 0.35, 0.0015, NULL};
+    struct srl_spec s = {srl_smoker_pot_a2,
+                         NULL,
+                         srl_sat_law,
+                         1,
+                         rset,
+                         5,
+                         78,
+                         60.0,
+                         0.02,
+                         0.0015,
+                         0.0025,
+                         200.0,
+                         0.35,
+                         0.0015,
+                         NULL};
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     gsl_rng_set(rng, 3);
     size_t len = 0;

@@ -313,26 +313,27 @@ static void runlog_stream_inversion_as_whole(void **state)
     stagecal_column_free(&col);
 }
 
-static double smoker_pot(void *ctx, double r, double xd, double n, double p)
-{
-    (void)ctx, (void)p;
-    return oracle_smoker_xb(2.0, r, xd, n);
-}
-
-static double sat_law(void *ctx, double r)
-{
-    (void)ctx;
-    return 8.0 * (1 - exp(-0.45 * r));
-}
-
 /* A measured R that scatters about its set points (tests/synth_runlog.h, 6 runs): the set
  * points (log->r_set, found at the end of each run) travel with the run. */
 static void runlog_stream_measured_reflux_as_whole(void **state)
 {
     (void)state;
     static const double rset[] = {1.5, 2.5, 4.0, 6.0, 10.0};
-    struct srl_spec sp = {smoker_pot, NULL,   sat_law, 6,     rset, 5,      78,  60.0,
-                          0.02,       0.0015, 0.0025,  200.0, 0.35, 0.0015, NULL};
+    struct srl_spec sp = {srl_smoker_pot_a2,
+                          NULL,
+                          srl_sat_law,
+                          6,
+                          rset,
+                          5,
+                          78,
+                          60.0,
+                          0.02,
+                          0.0015,
+                          0.0025,
+                          200.0,
+                          0.35,
+                          0.0015,
+                          NULL};
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     gsl_rng_set(rng, 3);
     size_t len = 0;

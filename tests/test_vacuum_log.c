@@ -26,26 +26,6 @@
 #include "stagecal/column.h"
 #include "synth_runlog.h"
 
-static const struct srl_antoine benzene = {4.01814, 1203.835, -53.226};
-static const struct srl_antoine toluene = {4.07827, 1343.943, -53.773};
-
-static const char column_json[] =
-    "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"synthetic-vacuum\","
-    " \"description\": \"INVENTED: a synthetic vacuum column for the tests\","
-    " \"condenser\": \"total\", \"pressure_pa\": 101325,"
-    " \"system\": {\"light\": {\"name\": \"benzene\", \"molar_mass_kg_mol\": 0.078112,"
-    "   \"antoine\": {\"a\": 4.01814, \"b\": 1203.835, \"c\": -53.226}},"
-    "  \"heavy\": {\"name\": \"toluene\", \"molar_mass_kg_mol\": 0.092138,"
-    "   \"antoine\": {\"a\": 4.07827, \"b\": 1343.943, \"c\": -53.773}},"
-    "  \"latent_heat_j_mol\": 32000, \"model\": {\"kind\": \"ideal\"}},"
-    " \"uncertainty\": {\"xd\": 0.002, \"xb\": 0.003}}";
-
-static double pot(void *ctx, double r, double xd, double n, double p)
-{
-    (void)ctx;
-    return srl_raoult_pot(&benzene, &toluene, p, r, xd, (int)lround(n));
-}
-
 static double law(void *ctx, double r)
 {
     (void)ctx, (void)r;
@@ -58,15 +38,17 @@ static void calibrate_vacuum(double u_xd, double u_xb, stagecal_calibration *cal
                              stagecal_column *col, stagecal_runlog **log)
 {
     static const double rset[] = {1.2, 1.5, 2.0, 3.0}, p[] = {12000, 19000, 27000, 35000};
-    struct srl_spec s = {pot, NULL, law,  4,     rset, 4,     50, 60.0,
-                         0.0, u_xd, u_xb, 300.0, 0.30, 0.002, p};
+    struct srl_spec s = {srl_bt_pot, NULL, law,  4,     rset, 4,     50, 60.0,
+                         0.0,        u_xd, u_xb, 300.0, 0.30, 0.002, p};
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     gsl_rng_set(rng, 11);
     size_t len = 0;
     char *csv = srl_csv(&s, rng, &len);
     assert_non_null(csv);
-    assert_int_equal(stagecal_column_parse(column_json, strlen(column_json), "v.json", col, NULL),
-                     0);
+    char column_json[2048];
+    int clen = snprintf(column_json, sizeof column_json, SRL_BT_COLUMN_FMT, 101325.0);
+    assert_true(clen > 0 && (size_t)clen < sizeof column_json);
+    assert_int_equal(stagecal_column_parse(column_json, (size_t)clen, "v.json", col, NULL), 0);
     *log = stagecal_runlog_alloc();
     assert_int_equal(stagecal_runlog_read_buffer(*log, csv, len, "v.csv", col, NULL, NULL, NULL),
                      0);

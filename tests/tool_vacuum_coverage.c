@@ -52,28 +52,6 @@
 #define VAC_TRUE_N 6
 #define VAC_RUNS 4
 
-/* NIST Chemistry WebBook Antoine sets, the same numbers as datasets/columns/
- * demo_benzene_toluene.json (after Williamham, Taylor, Pignocco & Rossini 1945). */
-static const struct srl_antoine benzene = {4.01814, 1203.835, -53.226};
-static const struct srl_antoine toluene = {4.07827, 1343.943, -53.773};
-
-static const char column_json[] =
-    "{\"format\": \"stagecal-column\", \"version\": 1, \"id\": \"synthetic-vacuum\","
-    " \"description\": \"INVENTED: a synthetic vacuum column for the tests\","
-    " \"condenser\": \"total\", \"pressure_pa\": %.3f,"
-    " \"system\": {\"light\": {\"name\": \"benzene\", \"molar_mass_kg_mol\": 0.078112,"
-    "   \"antoine\": {\"a\": 4.01814, \"b\": 1203.835, \"c\": -53.226}},"
-    "  \"heavy\": {\"name\": \"toluene\", \"molar_mass_kg_mol\": 0.092138,"
-    "   \"antoine\": {\"a\": 4.07827, \"b\": 1343.943, \"c\": -53.773}},"
-    "  \"latent_heat_j_mol\": 32000, \"model\": {\"kind\": \"ideal\"}},"
-    " \"uncertainty\": {\"xd\": 0.002, \"xb\": 0.003}}";
-
-static double vac_pot(void *ctx, double r, double xd, double n, double p)
-{
-    (void)ctx;
-    return srl_raoult_pot(&benzene, &toluene, p, r, xd, (int)lround(n));
-}
-
 static double vac_law(void *ctx, double r)
 {
     (void)ctx, (void)r;
@@ -96,7 +74,7 @@ struct way {
 static int load_column(double p_pa, stagecal_column *col)
 {
     char text[2048];
-    int len = snprintf(text, sizeof text, column_json, p_pa);
+    int len = snprintf(text, sizeof text, SRL_BT_COLUMN_FMT, p_pa);
     return len > 0 && (size_t)len < sizeof text
                ? stagecal_column_parse(text, (size_t)len, "synthetic.json", col, NULL)
                : -1;
@@ -165,8 +143,8 @@ static int one(gsl_rng *rng, struct way *w)
         p[k] = fixed_p ? 23500 : 12000 + 23000 * gsl_rng_uniform(rng);
         pm += p[k] / VAC_RUNS;
     }
-    struct srl_spec sp = {vac_pot, NULL,  vac_law, VAC_RUNS, rset, 4,     50, 60.0,
-                          0.0,     0.002, 0.003,   300.0,    0.30, 0.002, p};
+    struct srl_spec sp = {srl_bt_pot, NULL,  vac_law, VAC_RUNS, rset, 4,     50, 60.0,
+                          0.0,        0.002, 0.003,   300.0,    0.30, 0.002, p};
     if (noise_free)
         sp.u_xd = sp.u_xb = 0;
     size_t len = 0;
