@@ -52,7 +52,10 @@ stagecal_batch_params stagecal_batch_default_params(void)
                                    .output_dt_s = 0,
                                    .min_pot_fraction = 1e-3,
                                    .t_max_s = 30.0 * 86400.0,
-                                   .max_steps = 100000};
+                                   .max_steps = 100000,
+                                   .dynamics = NULL,
+                                   .dyn_epsabs = 1e-11,
+                                   .dyn_epsrel = 1e-9};
 }
 
 void stagecal_batch_result_init(stagecal_batch_result *res)
@@ -208,6 +211,7 @@ static int rhs(double tau, const double u[], double dudt[], void *params)
     dudt[1] = -d * xd;
     dudt[2] = d;
     dudt[3] = d * xd;
+    dudt[4] = d * (xd - w->cut_xd0) * (xd - w->cut_xd0);
     return GSL_SUCCESS;
 }
 
@@ -251,6 +255,11 @@ stagecal_batch_workspace *stagecal_batch_alloc(const stagecal_batch_problem *pb,
     w->n_az = stagecal_vle_azeotropes(col->vle, w->az, MAXAZ);
     if (w->n_az > MAXAZ)
         w->n_az = MAXAZ;
+    w->dim = NSTATE;
+    if (w->par.dynamics && batch_dyn_setup(w, err) != STAGECAL_OK) {
+        stagecal_batch_free(w);
+        return NULL;
+    }
     return w;
 }
 
@@ -276,7 +285,8 @@ int stagecal_batch_init(stagecal_batch_workspace *w, stagecal_batch_result *res,
     w->h = 1e-3;
     w->u[0] = 1;
     w->u[1] = w->pb.xb0;
-    w->u[2] = w->u[3] = 0;
+    w->u[2] = w->u[3] = w->u[4] = 0;
+    w->r_seen = 0;
     w->light_done = w->total_done = 0;
     w->cut_tau0 = 0;
     w->cut = w->sched = 0;
@@ -289,14 +299,17 @@ int stagecal_batch_init(stagecal_batch_workspace *w, stagecal_batch_result *res,
     w->tau_max = w->par.t_max_s * w->pb.v_mol_s / w->pb.w0_mol;
     w->next_out =
         w->par.output_dt_s > 0 ? w->par.output_dt_s * w->pb.v_mol_s / w->pb.w0_mol : INFINITY;
-    gsl_odeiv2_driver_reset(w->drv);
     /* schedule by pot composition: skip entries that already apply at xB0 */
     if (w->pb.policy.kind == STAGECAL_BATCH_SCHEDULE && w->pb.policy.key == STAGECAL_BATCH_BY_POT_X)
         while (w->sched + 1 < w->pb.policy.n_steps &&
                w->pb.policy.steps[w->sched + 1].at >= w->pb.xb0)
             w->sched++;
+    if (w->dyn && (rc = batch_dyn_start(w, err)))
+        return rc;
+    gsl_odeiv2_driver_reset(w->drv);
     if ((rc = batch_push_row(w, res, err)))
         return rc;
+    w->cut_xd0 = res->rows[0].xd;
     return batch_fire_due(w, res, 1, err);
 }
 
@@ -308,7 +321,7 @@ int stagecal_batch_test(const stagecal_batch_workspace *w)
 int stagecal_batch_iterate(stagecal_batch_workspace *w, stagecal_batch_result *res,
                            stagecal_error *err)
 {
-    double tau0 = w->tau, u0[NSTATE], g0[NEV], g1[NEV];
+    double tau0 = w->tau, u0[NSTATE_MAX], g0[NEV], g1[NEV];
     int rc, st;
     if (w->done)
         return STAGECAL_OK;
@@ -316,7 +329,7 @@ int stagecal_batch_iterate(stagecal_batch_workspace *w, stagecal_batch_result *r
         return error_set(err, STAGECAL_ENOCONV,
                          "batch integration: more than %zu steps (params.max_steps)",
                          w->par.max_steps);
-    memcpy(u0, w->u, sizeof u0);
+    memcpy(u0, w->u, w->dim * sizeof u0[0]);
     for (int ev = 0; ev < NEV; ev++)
         if ((rc = batch_event_g(w, ev, w->tau, w->u, &g0[ev], err)))
             return rc;
@@ -367,15 +380,14 @@ int stagecal_batch_iterate(stagecal_batch_workspace *w, stagecal_batch_result *r
         if ((rc = batch_push_row(w, res, err)))
             return rc;
         batch_fire(w, res, first);
-        while (w->tau >= w->next_out)
-            w->next_out += w->par.output_dt_s * w->pb.v_mol_s / w->pb.w0_mol;
-        return batch_fire_due(w, res, 1, err);
-    }
-    if ((rc = batch_push_row(w, res, err)))
+    } else if ((rc = batch_push_row(w, res, err))) {
         return rc;
+    }
     while (w->tau >= w->next_out)
         w->next_out += w->par.output_dt_s * w->pb.v_mol_s / w->pb.w0_mol;
-    return batch_fire_due(w, res, 1, err);
+    if ((rc = batch_fire_due(w, res, 1, err)))
+        return rc;
+    return w->dyn && !w->done ? batch_dyn_restructure(w, err) : STAGECAL_OK;
 }
 
 int stagecal_batch_run(const stagecal_batch_problem *pb, const stagecal_batch_column *col,
@@ -396,6 +408,13 @@ int stagecal_batch_run(const stagecal_batch_problem *pb, const stagecal_batch_co
         res->energy_j = pb->v_mol_s * res->t_end_s * pb->latent_j_mol;
         res->clamped = w->clamped;
         res->n_rhs = w->n_rhs;
+        res->dynamic = w->dyn;
+        res->t_startup_s = w->dyn ? w->tau_startup * pb->w0_mol / pb->v_mol_s : 0;
+        res->xd_startup = w->dyn ? w->xd_startup : NAN;
+        res->n_remaps = w->n_remaps;
+        if (w->dyn && w->startup)
+            add_warning(res, "the batch ended during the total-reflux start-up: nothing was "
+                             "drawn");
         if (res->stop == STAGECAL_BATCH_STOP_POT_EMPTY)
             add_warning(res, "the pot ran down to %.3g of the charge before the last target",
                         w->par.min_pot_fraction);

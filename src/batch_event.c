@@ -48,6 +48,9 @@ int batch_event_g(stagecal_batch_workspace *w, int ev, double tau, const double 
     unsigned o;
     int rc;
     *g = INFINITY;
+    /* the dynamic model's start-up: receivers go on at the first draw */
+    if (w->dyn && w->startup && (ev == EV_TARGET || ev == EV_CEILING))
+        return STAGECAL_OK;
     switch (ev) {
     case EV_TARGET: {
         const stagecal_batch_cut_spec *c = &w->pb.cuts[w->cut];
@@ -63,12 +66,13 @@ int batch_event_g(stagecal_batch_workspace *w, int ev, double tau, const double 
             /* an empty receiver's mean is the current xD */
             /* fall through */
         case STAGECAL_BATCH_UNTIL_DISTILLATE_X:
-            if ((rc = batch_policy_state(w, xb, &r, &xd, &n, &o, err)))
+            if ((rc = w->dyn ? batch_dyn_xd(w, u, &xd, err)
+                             : batch_policy_state(w, xb, &r, &xd, &n, &o, err)))
                 return rc;
             *g = xd - c->value;
             break;
-        case STAGECAL_BATCH_UNTIL_FRACTION:
-            *g = c->value - (1 - u[0]);
+        case STAGECAL_BATCH_UNTIL_FRACTION: /* distilled: the dynamic pot starts below W0 */
+            *g = c->value - (w->dyn ? w->total_done + u[2] : 1 - u[0]);
             break;
         case STAGECAL_BATCH_UNTIL_TIME:
             *g = c->value / scale - tau;
@@ -108,6 +112,10 @@ int batch_event_g(stagecal_batch_workspace *w, int ev, double tau, const double 
     case EV_TIME:
         *g = w->tau_max - tau;
         break;
+    case EV_STARTUP:
+        if (w->dyn)
+            return batch_dyn_startup_g(w, tau, u, g, err);
+        break;
     }
     return STAGECAL_OK;
 }
@@ -122,6 +130,8 @@ double batch_next_time_event(const stagecal_batch_workspace *w)
     if (po->kind == STAGECAL_BATCH_SCHEDULE && po->key == STAGECAL_BATCH_BY_TIME &&
         w->sched + 1 < po->n_steps)
         t = fmin(t, po->steps[w->sched + 1].at / scale);
+    if (w->dyn && w->startup && w->dy.startup_max_s / scale > w->tau)
+        t = fmin(t, w->dy.startup_max_s / scale);
     return t;
 }
 
@@ -137,6 +147,8 @@ struct h_ctx {
 int batch_step_from(stagecal_batch_workspace *w, double tau0, const double *u0, double h, double *u)
 {
     double yerr[NSTATE];
+    if (w->dyn)
+        return batch_dyn_step_from(w, tau0, u0, h, u);
     memcpy(u, u0, sizeof(double) * NSTATE);
     if (h == 0)
         return GSL_SUCCESS;
@@ -147,7 +159,7 @@ int batch_step_from(stagecal_batch_workspace *w, double tau0, const double *u0, 
 static double h_fn(double h, void *p)
 {
     struct h_ctx *c = p;
-    double u[NSTATE], g;
+    double u[NSTATE_MAX], g;
     if (c->code)
         return NAN;
     if (batch_step_from(c->w, c->tau0, c->u0, h, u) != GSL_SUCCESS) {
@@ -180,11 +192,14 @@ int batch_locate_event(stagecal_batch_workspace *w, int ev, double tau0, const d
 int batch_push_row(stagecal_batch_workspace *w, stagecal_batch_result *res, stagecal_error *err)
 {
     const stagecal_batch_problem *pb = &w->pb;
-    double xb = w->u[1] / w->u[0], r, xd, n;
+    double xb = w->u[1] / w->u[0], r, xd, n, col_light = 0;
     unsigned o = 0;
-    int rc = batch_policy_state(w, xb, &r, &xd, &n, &o, err);
-    if (rc)
+    int rc = w->dyn ? batch_dyn_policy(w, xb, &r, &n, &o, err)
+                    : batch_policy_state(w, xb, &r, &xd, &n, &o, err);
+    if (rc || (w->dyn && (rc = batch_dyn_xd(w, w->u, &xd, err))))
         return rc;
+    if (w->dyn)
+        col_light = batch_dyn_column_light(w, w->u);
     if (res->n_rows == res->cap_rows) {
         size_t cap = res->cap_rows ? 2 * res->cap_rows : 256;
         stagecal_batch_row *rows = realloc(res->rows, cap * sizeof *rows);
@@ -198,7 +213,8 @@ int batch_push_row(stagecal_batch_workspace *w, stagecal_batch_result *res, stag
     row->w_mol = w->u[0] * pb->w0_mol;
     row->xb = xb;
     row->xd = xd;
-    row->reflux = r;
+    row->startup = w->dyn && w->startup;
+    row->reflux = row->startup ? INFINITY : r;
     row->stages = n;
     row->cut = w->cut;
     row->cut_mol = w->u[2] * pb->w0_mol;
@@ -206,14 +222,18 @@ int batch_push_row(stagecal_batch_workspace *w, stagecal_batch_result *res, stag
     row->light_mol = (w->light_done + w->u[3]) * pb->w0_mol;
     row->total_mol = (w->total_done + w->u[2]) * pb->w0_mol;
     row->outside = o;
-    /* mass balance of the light component, relative to the charge's light amount */
-    double bal = fabs(pb->xb0 - w->u[1] - (w->light_done + w->u[3])) / pb->xb0;
+    /* mass balance of the light component, relative to the charge's light amount (the
+     * dynamic model's column and drum included) */
+    double bal = fabs(pb->xb0 - w->u[1] - col_light - (w->light_done + w->u[3])) / pb->xb0;
     if (bal > res->balance_error)
         res->balance_error = bal;
-    if (res->n_rows == 1 || r < res->r_min_used)
+    if (row->startup) /* the start-up's total reflux is no operating point of the law */
+        return STAGECAL_OK;
+    if (!w->r_seen || r < res->r_min_used)
         res->r_min_used = r;
-    if (res->n_rows == 1 || r > res->r_max_used)
+    if (!w->r_seen || r > res->r_max_used)
         res->r_max_used = r;
+    w->r_seen = 1;
     res->outside |= o;
     return STAGECAL_OK;
 }
@@ -238,12 +258,19 @@ static void close_cut(stagecal_batch_workspace *w, stagecal_batch_result *res, i
     c->recovery = w->u[3] / pb->xb0;
     c->xb_end = w->u[1] / w->u[0];
     c->reflux_end = last->reflux;
+    c->xd_first = w->cut_xd0;
+    c->xd_last = last->xd;
+    /* u[4] integrates D·(xD − xD,0)², xD,0 the receiver's first xD (no cancellation where
+     * the distillate hardly moves) */
+    double dm = c->x_mean - w->cut_xd0;
+    c->xd_sd = w->u[2] > 0 ? sqrt(fmax(0, w->u[4] / w->u[2] - dm * dm)) : 0;
     res->n_cuts = w->cut + 1;
     res->stop = stop;
     w->light_done += w->u[3];
     w->total_done += w->u[2];
-    w->u[2] = w->u[3] = 0;
+    w->u[2] = w->u[3] = w->u[4] = 0;
     w->cut_tau0 = w->tau;
+    w->cut_xd0 = last->xd;
     if (stop == STAGECAL_BATCH_STOP_POT_EMPTY || stop == STAGECAL_BATCH_STOP_TIME_LIMIT ||
         w->cut + 1 >= pb->n_cuts) {
         w->done = 1;
@@ -255,7 +282,7 @@ static void close_cut(stagecal_batch_workspace *w, stagecal_batch_result *res, i
                 snprintf(e->name, sizeof e->name, "cut%zu", i + 1);
             e->stop = STAGECAL_BATCH_STOP_NOT_STARTED;
             e->t_start_s = e->t_end_s = w->tau * scale;
-            e->x_mean = last->xd;
+            e->x_mean = e->xd_first = e->xd_last = last->xd;
             e->xb_end = c->xb_end;
             e->reflux_end = c->reflux_end;
         }
@@ -286,6 +313,11 @@ void batch_fire(stagecal_batch_workspace *w, stagecal_batch_result *res, int ev)
         break;
     case EV_TIME:
         close_cut(w, res, STAGECAL_BATCH_STOP_TIME_LIMIT);
+        break;
+    case EV_STARTUP: /* the first draw: the first receiver goes on */
+        w->startup = 0;
+        w->cut_tau0 = w->tau_startup = w->tau;
+        w->cut_xd0 = w->xd_startup = res->rows[res->n_rows - 1].xd;
         break;
     }
     gsl_odeiv2_evolve_reset(w->drv->e);

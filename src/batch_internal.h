@@ -12,10 +12,15 @@
 
 #include "stagecal/batch.h"
 
-#define NSTATE 4
+/* The pot and receiver state: W/W0, W·xB/W0, D_cut/W0, D_cut·x̄_cut/W0 and the receiver's
+ * Σ D·(xD − xD,0)²/W0 with xD,0 its first xD (its smearing); the dynamic model appends the column
+ * stages' liquids and the drum's. */
+#define NSTATE 5
+#define DYN_MAXSTAGES 60 /* whole column stages of the dynamic model */
+#define NSTATE_MAX (NSTATE + DYN_MAXSTAGES + 1)
 #define MAXAZ 8
 
-enum { EV_TARGET = 0, EV_SWITCH, EV_CEILING, EV_EMPTY, EV_TIME, NEV };
+enum { EV_TARGET = 0, EV_SWITCH, EV_CEILING, EV_EMPTY, EV_TIME, EV_STARTUP, NEV };
 
 struct stagecal_batch_workspace {
     stagecal_batch_problem pb;
@@ -27,24 +32,36 @@ struct stagecal_batch_workspace {
     gsl_root_fsolver *root_h; /* event location on the step length */
     double az[MAXAZ];         /* azeotropes of the vle, ascending */
     size_t n_az;
-    double tau;        /* current τ */
-    double h;          /* suggested next step in τ */
-    double u[NSTATE];  /* current state */
-    double light_done; /* light in finished cuts / W0 */
-    double total_done; /* distillate in finished cuts / W0 */
-    double cut_tau0;   /* τ at which the current cut started */
-    size_t cut;        /* current cut */
-    size_t sched;      /* current schedule entry */
-    int ceiling_hit;   /* constant distillate: R has reached reflux_max */
-    int done;          /* batch ended */
-    double next_out;   /* τ of the next output row (INFINITY if none) */
-    double tau_max;    /* τ of params.t_max_s */
-    double xd_last;    /* last xD solved (warm start of the bracket) */
-    double lv_last;    /* last L/V of the constant-distillate solve (warm start) */
+    double tau;           /* current τ */
+    double h;             /* suggested next step in τ */
+    double u[NSTATE_MAX]; /* current state */
+    double light_done;    /* light in finished cuts / W0 */
+    double total_done;    /* distillate in finished cuts / W0 */
+    double cut_tau0;      /* τ at which the current cut started */
+    size_t cut;           /* current cut */
+    size_t sched;         /* current schedule entry */
+    int ceiling_hit;      /* constant distillate: R has reached reflux_max */
+    int done;             /* batch ended */
+    double next_out;      /* τ of the next output row (INFINITY if none) */
+    double tau_max;       /* τ of params.t_max_s */
+    double xd_last;       /* last xD solved (warm start of the bracket) */
+    double lv_last;       /* last L/V of the constant-distillate solve (warm start) */
     size_t n_rhs;
     int clamped;
     int fail_code;       /* error raised inside a GSL callback */
     stagecal_error fail; /* its message */
+    double cut_xd0;      /* xD when the current receiver was put on */
+    /* the dynamic model (batch_dynamic.c); dyn = 0: quasi-steady */
+    int dyn;
+    stagecal_batch_dynamics dy;
+    size_t dim;         /* state dimension (NSTATE quasi-steady) */
+    size_t nw;          /* whole column stages */
+    double hs, hd;      /* holdup per whole stage and in the drum, over W0 */
+    int startup;        /* 1 during the total-reflux start-up */
+    size_t n_remaps;    /* changes of nw */
+    double tau_startup; /* τ of the first draw */
+    double xd_startup;  /* xD at the first draw */
+    int r_seen;         /* a production row has set the reflux range */
 };
 
 /* batch_law.c */
@@ -103,5 +120,30 @@ void batch_fire(stagecal_batch_workspace *w, stagecal_batch_result *res, int ev)
  * each firing consumes the event (next cut, next entry, flag) or ends the batch. */
 int batch_fire_due(stagecal_batch_workspace *w, stagecal_batch_result *res, int pushed,
                    stagecal_error *err);
+
+/* batch_dynamic.c */
+
+/* Checks params->dynamics and sets the dynamic model up in w (after the quasi-steady
+ * allocation): the msbdf driver replaces the Runge–Kutta one. EINVAL, ENOMEM. */
+int batch_dyn_setup(stagecal_batch_workspace *w, stagecal_error *err);
+/* The starting state: column and drum full of charge liquid, the rest in the pot. */
+int batch_dyn_start(stagecal_batch_workspace *w, stagecal_error *err);
+/* The distillate mole fraction of state u. */
+int batch_dyn_xd(stagecal_batch_workspace *w, const double *u, double *xd, stagecal_error *err);
+/* Light component on the column stages and in the drum, over W0. */
+double batch_dyn_column_light(const stagecal_batch_workspace *w, const double *u);
+/* R, stages and envelope flags of the policy at pot composition xb (the structure of the
+ * column follows the stage law at the policy's R, also during the start-up). */
+int batch_dyn_policy(stagecal_batch_workspace *w, double xb, double *r, double *n,
+                     unsigned *outside, stagecal_error *err);
+/* g of the end of the start-up (> 0 before). */
+int batch_dyn_startup_g(stagecal_batch_workspace *w, double tau, const double *u, double *g,
+                        stagecal_error *err);
+/* After an accepted step or an event: a new whole-stage count of the law is taken up
+ * (the profile mapped onto the new stages, the light difference to the pot). */
+int batch_dyn_restructure(stagecal_batch_workspace *w, stagecal_error *err);
+/* Integrates from (tau0, u0) over h into u with the driver (event location). */
+int batch_dyn_step_from(stagecal_batch_workspace *w, double tau0, const double *u0, double h,
+                        double *u);
 
 #endif

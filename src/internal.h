@@ -33,6 +33,12 @@ void free_each(void *const *p, size_t n);
 #define FREE_EACH(...)                                                                             \
     free_each((void *const[]){__VA_ARGS__}, sizeof((void *const[]){__VA_ARGS__}) / sizeof(void *))
 
+/* The fractional stage of the stage convention (stages_step.c): the liquid reached after a
+ * fraction f in (0, 1] of the step from liquid x_prev whose full outlet pair is (xn, yn), on
+ * the operating line y = m·x + b: Smoker's closed-form inverse with the step's local α
+ * (exactly xn at f = 1). Shared by forward stepping and the dynamic batch model. */
+double stages_fraction_target(double x_prev, double xn, double yn, double m, double b, double f);
+
 /* Copies the NUL-terminated src into dst of cap bytes; −1 (dst untouched) when it does
  * not fit. */
 static inline int copy_text(char *dst, size_t cap, const char *src)

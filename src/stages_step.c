@@ -213,6 +213,20 @@ double stages_azeotrope_below(const stagecal_vle *vle, double xd)
 
 /* ---- forward stepping ----------------------------------------------------------------- */
 
+double stages_fraction_target(double x_prev, double xn, double yn, double m, double b, double f)
+{
+    /* The inverse of stepper_crossing: Smoker's closed-form inverse with α_loc. */
+    double alpha_loc = yn * (1.0 - xn) / (xn * (1.0 - yn)), x_target;
+    smoker_consts sc;
+    if (smoker_setup(tl_const(alpha_loc), tl_const(m), tl_const(b), &sc) == 0)
+        x_target = smoker_inverse(&sc, x_prev, f);
+    else
+        x_target = x_prev - f * (x_prev - xn);
+    if (!(x_target >= xn && x_target <= x_prev))
+        x_target = x_prev - f * (x_prev - xn);
+    return x_target;
+}
+
 static void put_point(stagecal_stage_point *profile, size_t cap, size_t i, double stage, double x,
                       double y)
 {
@@ -291,15 +305,7 @@ int stagecal_stages_step(const stagecal_vle *vle, double xd, double reflux, doub
             x_target = xn;
             put_point(profile, cap, k++, (double)(nwhole + 1), xn, yn);
         } else {
-            /* The inverse of stepper_crossing: Smoker's closed-form inverse with α_loc. */
-            double alpha_loc = yn * (1.0 - xn) / (xn * (1.0 - yn));
-            smoker_consts sc;
-            if (smoker_setup(tl_const(alpha_loc), tl_const(st.m), tl_const(st.b), &sc) == 0)
-                x_target = smoker_inverse(&sc, x_prev, f);
-            else
-                x_target = x_prev - f * (x_prev - xn);
-            if (!(x_target >= xn && x_target <= x_prev))
-                x_target = x_prev - f * (x_prev - xn);
+            x_target = stages_fraction_target(x_prev, xn, yn, st.m, st.b, f);
             if ((rc = stepper_pseudo_y(&st, x_target, &y)))
                 goto done;
             put_point(profile, cap, k++, column, x_target, y);

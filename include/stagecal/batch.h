@@ -155,6 +155,26 @@ typedef struct {
 /* Zeroes pb: constant R = 0 policy, no cuts, no latent heat. */
 void stagecal_batch_problem_init(stagecal_batch_problem *pb);
 
+/* The column's liquid holdup for the dynamic model (stagecal_batch_params.dynamics;
+ * batch_dynamic.c, docs/methods.md "Dynamic batch prediction"). A stage-by-stage batch
+ * column after Distefano (1968, "Mathematical modeling and numerical integration of
+ * multicomponent batch distillation equations", AIChE J. 14, 190–199, from memory):
+ * constant molar liquid holdup on every column stage and in the reflux drum, constant
+ * molar overflow, ideal stages (E_MV = 1: the law gives effective stages), the column and
+ * drum full of charge liquid when the boil-up starts; a total-reflux start-up, then the
+ * policy. The charge w0_mol is pot + column + drum. */
+typedef struct {
+    double holdup_column_mol; /* liquid on the column stages [mol], >= 0 */
+    double holdup_drum_mol;   /* liquid in the condenser and reflux drum [mol], >= 0 */
+    double startup_xd;        /* the start-up ends when xD >= this (0 = not used) ... */
+    double startup_max_s;     /* ... or at this time [s] (0 = not used); neither given: */
+    double startup_fraction;  /* when xD has come this fraction of the way from the pot's
+                                 composition to the total-reflux distillate (0.99) */
+} stagecal_batch_dynamics;
+
+/* Zero holdups, no start-up purity or time, startup_fraction 0.99. */
+void stagecal_batch_dynamics_init(stagecal_batch_dynamics *d);
+
 /* Tunables (GSL "Arbitrary Constants"). */
 typedef struct {
     double epsabs;           /* ODE absolute tolerance on W/W0 and W·xB/W0 (default 1e-12) */
@@ -167,6 +187,11 @@ typedef struct {
     double min_pot_fraction; /* the batch stops when W/W0 falls to this (default 1e-3) */
     double t_max_s;          /* the batch stops at this time [s] (default 30 days) */
     size_t max_steps;        /* cap on accepted ODE steps (default 100000) */
+    const stagecal_batch_dynamics *dynamics; /* NULL (default): the quasi-steady model; else
+                                the dynamic model with this holdup (not owned), integrated
+                                with GSL's implicit msbdf at dyn_epsabs/dyn_epsrel */
+    double dyn_epsabs;                       /* dynamic model: absolute tolerance (default 1e-11) */
+    double dyn_epsrel;                       /* dynamic model: relative tolerance (default 1e-9) */
 } stagecal_batch_params;
 
 stagecal_batch_params stagecal_batch_default_params(void);
@@ -186,6 +211,7 @@ typedef struct {
     double light_mol; /* light component in all receivers so far [mol] (integrated) */
     double total_mol; /* all distillate so far [mol] (integrated) */
     unsigned outside; /* STAGECAL_MODEL_R_BELOW | … at this row */
+    int startup;      /* 1: the dynamic model's total-reflux start-up (reflux INFINITY) */
 } stagecal_batch_row;
 
 /* One receiver. */
@@ -201,6 +227,10 @@ typedef struct {
     double recovery;   /* light_mol / (W0·xB0) [-] */
     double xb_end;     /* pot mole fraction at the end [-] */
     double reflux_end; /* R at the end [-] */
+    double xd_first;   /* distillate mole fraction when the receiver was put on [-] */
+    double xd_last;    /* ... when it was taken off [-] */
+    double xd_sd;      /* smearing: standard deviation of the distillate's mole fraction
+                          over the receiver's contents [-] (0 when empty) */
 } stagecal_batch_cut;
 
 typedef struct {
@@ -219,6 +249,10 @@ typedef struct {
     double r_max_used;    /* largest R along the trajectory [-] */
     unsigned outside;     /* OR of the rows' envelope flags */
     int clamped;          /* 1 when the law gave stages < 1 somewhere (clamped to 1) */
+    int dynamic;          /* 1: the dynamic model (params.dynamics) ran */
+    double t_startup_s;   /* dynamic: total-reflux start-up to the first draw [s] (0 else) */
+    double xd_startup;    /* dynamic: distillate mole fraction at the first draw [-] */
+    size_t n_remaps;      /* dynamic: changes of the whole-stage count (law at a new R) */
     size_t n_steps;       /* accepted ODE steps */
     size_t n_rhs;         /* right-hand side evaluations */
     size_t n_warnings;
@@ -255,7 +289,10 @@ int stagecal_batch_iterate(stagecal_batch_workspace *w, stagecal_batch_result *r
 /* 1 when the batch has ended, 0 otherwise. */
 int stagecal_batch_test(const stagecal_batch_workspace *w);
 
-/* Driver: init, iterate until test, then fills the summary. */
+/* Driver: init, iterate until test, then fills the summary. With params->dynamics the
+ * dynamic model runs (targets other than time count from the first draw; time targets and
+ * time schedules from the start of the boil-up); the balances then include the liquid
+ * on the column and in the drum. */
 int stagecal_batch_run(const stagecal_batch_problem *pb, const stagecal_batch_column *col,
                        const stagecal_batch_params *params, stagecal_batch_result *res,
                        stagecal_error *err);
