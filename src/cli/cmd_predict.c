@@ -1,7 +1,8 @@
 /*
  * cmd_predict.c — `stagecal predict`: a batch predicted from a model file (the
  * planner's side of the calibration): trajectory, cuts, batch time, energy, and a band
- * from the model's parameter covariance. Numerics live in src/batch*.c.
+ * from the model's parameter covariance; quasi-steady, or dynamic with the column
+ * file's holdup (start-up, first-cut delay, smeared cuts). Numerics live in src/batch*.c.
  */
 #include <errno.h>
 #include <math.h>
@@ -23,20 +24,28 @@ static const struct cli_usage usage = {
     "                        --charge AMOUNT --xb0 X --boilup RATE\n"
     "                        (--reflux R | --xd-setpoint X [--reflux-max R] | --plan FILE)\n"
     "                        [--cut KIND=VALUE ...] [--f-factor F] [--latent KJ_PER_MOL]\n"
+    "                        [--dynamics MODEL [--startup-xd X | --startup-time H]]\n"
     "                        [--every H] [-o FILE] [--samples N] [--seed S] [--level P]\n"
     "                        [--json] [--quiet]\n",
     "Predicts a batch rectification from a model file: the pot is charged with AMOUNT at\n"
     "composition X and boiled up at a constant rate; at every instant the distillate\n"
-    "follows from stepping the model's stages(R, F) up from the pot (column holdup\n"
-    "neglected). Receivers (cuts) are filled in order, each until its target. The\n"
-    "equilibrium model is --column, --alpha or --kvalue, else the model file's.\n",
+    "follows from stepping the model's stages(R, F) up from the pot (quasi-steady:\n"
+    "column holdup neglected), or from a stage-by-stage column that holds the column\n"
+    "file's liquid holdup (dynamic: a total-reflux start-up, then the draw). Receivers\n"
+    "(cuts) are filled in order, each until its target. The equilibrium model is\n"
+    "--column, --alpha or --kvalue, else the model file's.\n",
     "--cut KIND=VALUE (repeatable, in order; NAME:KIND=VALUE names the receiver):\n"
     "  pot-x         until the pot mole fraction <= VALUE\n"
     "  mean-x        until the receiver's mean mole fraction <= VALUE\n"
     "  distillate-x  until the distillate mole fraction <= VALUE\n"
     "  fraction      until VALUE of the charge has been distilled\n"
     "  time          until VALUE hours from the start\n"
-    "  reflux        until R reaches VALUE (--xd-setpoint only)\n"};
+    "  reflux        until R reaches VALUE (--xd-setpoint only)\n"
+    "--dynamics: holdup (the default when the column file states a holdup) or\n"
+    "quasi-steady (the default otherwise); docs/methods.md, 'Dynamic batch prediction'.\n"};
+
+static const char *const dynamics_choices[] = {"holdup", "quasi-steady", NULL};
+enum { DYN_DEFAULT = -1, DYN_HOLDUP = 0, DYN_QUASI = 1 };
 
 /* SI → the units people read (stagecal/units.h). */
 #define H(s) ((s) / STAGECAL_UNIT_H)
@@ -152,9 +161,58 @@ static const char *policy_name(int kind)
                                                         : "schedule";
 }
 
+/* The dynamic run's extras for the outputs (NULL for the quasi-steady model): its holdup
+ * and the quasi-steady batch beside it, for the delays. */
+struct dyn_view {
+    const stagecal_batch_dynamics *dy;
+    const stagecal_batch_result *qs;
+    double u_rel; /* the stated holdup's relative standard uncertainty (0: not stated) */
+};
+
+/* A receiver's distillate: first and last xD, its spread; dynamic: the quasi-steady cut. */
+static void cut_dyn_json(json_t *o, const stagecal_batch_cut *c, const struct dyn_view *dv,
+                         size_t i)
+{
+    json_object_set_new(o, "xd_first", cli_json_real(c->xd_first));
+    json_object_set_new(o, "xd_last", cli_json_real(c->xd_last));
+    json_object_set_new(o, "xd_sd", cli_json_real(c->xd_sd));
+    if (!dv)
+        return;
+    const stagecal_batch_cut *q = &dv->qs->cuts[i];
+    json_object_set_new(o, "delay_h", cli_json_real(H(c->t_end_s - q->t_end_s)));
+    json_object_set_new(o, "quasi_steady",
+                        json_pack("{s:o,s:o,s:o,s:o}", "t_end_h", cli_json_real(H(q->t_end_s)),
+                                  "amount_kmol", cli_json_real(KMOL(q->amount_mol)), "x_mean",
+                                  cli_json_real(q->x_mean), "xd_sd", cli_json_real(q->xd_sd)));
+}
+
+/* The batch model's members of the document. */
+static void dyn_json(json_t *doc, const stagecal_batch_problem *pb,
+                     const stagecal_batch_result *res, const struct dyn_view *dv)
+{
+    json_object_set_new(doc, "dynamics", json_string(dv ? "holdup" : "quasi-steady"));
+    if (!dv) {
+        json_object_set_new(doc, "column_holdup", json_string("neglected"));
+        json_object_set_new(doc, "startup_h", json_null());
+        return;
+    }
+    const stagecal_batch_dynamics *dy = dv->dy;
+    json_object_set_new(
+        doc, "column_holdup",
+        json_pack(
+            "{s:o,s:o,s:o,s:o,s:s}", "column_kmol", cli_json_real(KMOL(dy->holdup_column_mol)),
+            "drum_kmol", cli_json_real(KMOL(dy->holdup_drum_mol)), "fraction_of_charge",
+            cli_json_real((dy->holdup_column_mol + dy->holdup_drum_mol) / pb->w0_mol), "u_rel",
+            dv->u_rel > 0 ? cli_json_real(dv->u_rel) : json_null(), "source", "column file"));
+    json_object_set_new(doc, "startup_h", cli_json_real(H(res->t_startup_s)));
+    json_object_set_new(doc, "xd_startup", cli_json_real(res->xd_startup));
+    json_object_set_new(doc, "stage_count_changes", json_integer((json_int_t)res->n_remaps));
+    json_object_set_new(doc, "quasi_steady_batch_time_h", cli_json_real(H(dv->qs->t_end_s)));
+}
+
 static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batch_result *res,
                            const stagecal_batch_band *band, int have_band, const char *model_path,
-                           latent_from latent_source, unsigned long seed)
+                           latent_from latent_source, unsigned long seed, const struct dyn_view *dv)
 {
     json_t *doc = json_object(), *cuts = json_array(), *rows = json_array(), *warn = json_array();
     for (size_t i = 0; i < res->n_cuts; i++) {
@@ -178,6 +236,7 @@ static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batc
                           "x_mean", interval_json(&b->x_mean, 1), "yield",
                           interval_json(&b->yield, 1), "recovery", interval_json(&b->recovery, 1)));
         }
+        cut_dyn_json(o, c, dv, i);
         json_array_append_new(cuts, o);
     }
     for (size_t i = 0; i < res->n_rows; i++) {
@@ -191,6 +250,8 @@ static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batc
                       res->cuts[r->cut].name, "cut_amount_kmol", cli_json_real(KMOL(r->cut_mol)),
                       "cut_x", cli_json_real(r->cut_x), "distilled_kmol",
                       cli_json_real(KMOL(r->total_mol)), "outside", r->outside != 0));
+        if (r->startup)
+            json_object_set_new(json_array_get(rows, i), "startup", json_true());
     }
     for (size_t i = 0; i < res->n_warnings; i++)
         json_array_append_new(warn, json_string(res->warnings[i]));
@@ -223,7 +284,7 @@ static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batc
                         json_pack("{s:o,s:o}", "min", cli_json_real(res->r_min_used), "max",
                                   cli_json_real(res->r_max_used)));
     json_object_set_new(doc, "extrapolated", json_boolean(res->outside != 0));
-    json_object_set_new(doc, "column_holdup", json_string("neglected"));
+    dyn_json(doc, pb, res, dv);
     json_object_set_new(doc, "cuts", cuts);
     json_object_set_new(doc, "trajectory", rows);
     json_object_set_new(doc, "warnings", warn);
@@ -247,11 +308,32 @@ static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batc
     return doc;
 }
 
-static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_result *res,
-                        const stagecal_batch_band *band, int have_band, latent_from latent_source)
+/* A receiver's distillate and, dynamic, the quasi-steady receiver beside it. */
+static void print_cut_dyn(const stagecal_batch_cut *c, const struct dyn_view *dv, size_t i)
 {
-    printf("batch: %.4g kmol at x = %.4g, boil-up %.4g kmol/h, %s; column holdup neglected\n",
-           KMOL(pb->w0_mol), pb->xb0, KMOL_H(pb->v_mol_s), policy_name((int)pb->policy.kind));
+    printf("%-12s   distillate x %.5f -> %.5f, smearing (sd of x) %.4f", "", c->xd_first,
+           c->xd_last, c->xd_sd);
+    if (dv)
+        printf("; quasi-steady: end %.3f h (delay %+.3f h), x_mean %.5f, sd %.4f",
+               H(dv->qs->cuts[i].t_end_s), H(c->t_end_s - dv->qs->cuts[i].t_end_s),
+               dv->qs->cuts[i].x_mean, dv->qs->cuts[i].xd_sd);
+    printf("\n");
+}
+
+static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_result *res,
+                        const stagecal_batch_band *band, int have_band, latent_from latent_source,
+                        const struct dyn_view *dv)
+{
+    printf("batch: %.4g kmol at x = %.4g, boil-up %.4g kmol/h, %s; ", KMOL(pb->w0_mol), pb->xb0,
+           KMOL_H(pb->v_mol_s), policy_name((int)pb->policy.kind));
+    if (!dv)
+        printf("quasi-steady, column holdup neglected\n");
+    else
+        printf("dynamic: column holdup %.4g kmol, drum %.4g kmol (%.3g %% of the charge)\n"
+               "start-up at total reflux: %.3f h to the first draw (xD = %.5f)\n",
+               KMOL(dv->dy->holdup_column_mol), KMOL(dv->dy->holdup_drum_mol),
+               100 * (dv->dy->holdup_column_mol + dv->dy->holdup_drum_mol) / pb->w0_mol,
+               H(res->t_startup_s), res->xd_startup);
     printf("%-12s %-14s %9s %9s %10s %8s %8s %8s %8s\n", "receiver", "ended by", "start[h]",
            "end[h]", "amount", "x_mean", "yield", "recovery", "R_end");
     for (size_t i = 0; i < res->n_cuts; i++) {
@@ -266,6 +348,7 @@ static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_r
                    "", "  band", "", H(b->t_end_s.low), H(b->t_end_s.high), KMOL(b->amount_mol.low),
                    KMOL(b->amount_mol.high), b->x_mean.low, b->x_mean.high);
         }
+        print_cut_dyn(c, dv, i);
     }
     printf("batch time %.3f h", H(res->t_end_s));
     if (have_band)
@@ -280,7 +363,14 @@ static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_r
                KMOL(pb->latent_j_mol), latent_words[latent_source]);
     else
         printf("boil-up energy: unknown (give --latent or a column file with a latent heat)\n");
-    printf("reflux ratio used: %.4g to %.4g\n", res->r_min_used, res->r_max_used);
+    printf("reflux ratio used: %.4g to %.4g%s\n", res->r_min_used, res->r_max_used,
+           dv ? " (after the start-up at total reflux)" : "");
+    if (dv)
+        printf("dynamic model: equal liquid holdup on the column stages (the column file's, "
+               "u = %.0f %%), constant molar overflow, effective (ideal) stages from the model; "
+               "the start-up and the delays scale with the holdup; quasi-steady batch time "
+               "%.3f h\n",
+               100 * (dv->u_rel > 0 ? dv->u_rel : 0.25), H(dv->qs->t_end_s));
     /* extrapolation beyond the fitted envelope belongs with the numbers, not only on stderr */
     for (size_t i = 0; i < res->n_warnings; i++)
         printf("warning: %s\n", res->warnings[i]);
@@ -295,6 +385,8 @@ struct request {
     double reflux, xdset, rmax, f_load, latent, every, level;
     long samples, seed;
     int run_scatter;
+    int dynamics;                 /* DYN_DEFAULT, DYN_HOLDUP or DYN_QUASI */
+    double startup_xd, startup_h; /* the dynamic start-up's end, NAN when not given */
     stagecal_batch_cut_spec cuts[STAGECAL_BATCH_MAXCUTS];
     size_t n_cuts;
 };
@@ -443,6 +535,34 @@ static int build_problem(const struct request *q, double ml, double mh, double l
     return 0;
 }
 
+/* The batch model: dynamic with the column file's holdup (--dynamics holdup, the default
+ * when the file states one) or quasi-steady; *dyn = 1 for the dynamic model. An exit code. */
+static int pick_dynamics(const struct request *q, const cli_system *sys,
+                         stagecal_batch_dynamics *dy, int *dyn)
+{
+    int stated = sys->have_column && sys->col.holdup_column_mol > 0;
+    stagecal_batch_dynamics_init(dy);
+    *dyn = q->dynamics == DYN_HOLDUP || (q->dynamics == DYN_DEFAULT && stated);
+    if (!*dyn) {
+        if (!isnan(q->startup_xd) || !isnan(q->startup_h))
+            return cli_usage_error("options '--startup-xd' and '--startup-time' go with the "
+                                   "dynamic model (a column file that states a holdup)");
+        return 0;
+    }
+    if (!stated)
+        return cli_usage_error("'--dynamics holdup' needs the column's liquid holdup: give "
+                               "'--column FILE' with a 'holdup' (docs/column-file.md)");
+    if (!isnan(q->startup_xd) && !isnan(q->startup_h))
+        return cli_usage_error("give one of '--startup-xd' and '--startup-time'");
+    dy->holdup_column_mol = sys->col.holdup_column_mol;
+    dy->holdup_drum_mol = sys->col.holdup_drum_mol;
+    if (!isnan(q->startup_xd))
+        dy->startup_xd = q->startup_xd;
+    if (!isnan(q->startup_h))
+        dy->startup_max_s = q->startup_h * STAGECAL_UNIT_H;
+    return 0;
+}
+
 /* Checks the request, runs the batch (and its band), prints. An exit code. */
 static int run(const struct request *q, cli_ctx *ctx)
 {
@@ -514,12 +634,22 @@ static int run(const struct request *q, cli_ctx *ctx)
     stagecal_batch_model_law law = {&m, NULL, q->f_load};
     stagecal_batch_column col = {sys->vle, stagecal_batch_model_stages, &law, NULL, NULL};
     stagecal_batch_params par = stagecal_batch_default_params();
-    stagecal_batch_result res;
+    stagecal_batch_result res, qs;
     stagecal_batch_band band;
-    int have_band = 0;
+    stagecal_batch_dynamics dy;
+    int have_band = 0, dyn = 0;
     par.output_dt_s = q->every * STAGECAL_UNIT_H;
     stagecal_batch_result_init(&res);
-    rc = stagecal_batch_run(&pb, &col, &par, &res, &err);
+    stagecal_batch_result_init(&qs);
+    if ((rc = pick_dynamics(q, sys, &dy, &dyn)))
+        goto done;
+    /* dynamic: the quasi-steady batch beside it, for the delays */
+    if (dyn && (rc = stagecal_batch_run(&pb, &col, &par, &qs, &err)) == STAGECAL_OK)
+        par.dynamics = &dy;
+    if (rc == STAGECAL_OK)
+        rc = stagecal_batch_run(&pb, &col, &par, &res, &err);
+    struct dyn_view dview = {&dy, &qs, sys->have_column ? sys->col.holdup_u_rel : 0};
+    const struct dyn_view *dv = dyn ? &dview : NULL;
     /* "at least N stages" (a one-sided model): the batch with the bound, no band */
     if (m.one_sided)
         cli_warn("%s: the evidence gives at least %.4g stages only (one-sided %.0f %%, an "
@@ -548,16 +678,17 @@ static int run(const struct request *q, cli_ctx *ctx)
         goto done;
     if (ctx->json) {
         json_t *doc = result_json(&pb, &res, &band, have_band, q->model, latent_source,
-                                  (unsigned long)q->seed);
+                                  (unsigned long)q->seed, dv);
         if (doc && m.one_sided)
             json_object_set_new(doc, "stages_bound",
                                 json_pack("{s:s,s:f,s:n,s:f}", "side", "lower", "low", m.theta[0],
                                           "high", "level", m.level));
         rc = cli_json_print(doc);
     } else if (!(ctx->data_on_stdout = q->out && strcmp(q->out, "-") == 0))
-        print_human(&pb, &res, &band, have_band, latent_source);
+        print_human(&pb, &res, &band, have_band, latent_source, dv);
 done:
     stagecal_batch_result_free(&res);
+    stagecal_batch_result_free(&qs);
     stagecal_vle_free(own);
     if (own)
         sys->vle = NULL;
@@ -570,6 +701,8 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
     struct request q;
     memset(&q, 0, sizeof q);
     q.charge = q.xb0 = q.boilup = q.reflux = q.xdset = q.rmax = q.f_load = q.latent = NAN;
+    q.startup_xd = q.startup_h = NAN;
+    q.dynamics = DYN_DEFAULT;
     q.every = 0.1;
     q.level = 0.95;
     q.samples = 200;
@@ -605,6 +738,17 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
                    "molar latent heat for the boil-up energy (default: the plan's,\n"
                    "else with --column the column file's, else the model file's)",
                    0, INFINITY, CLI_D_LO_OPEN, "a latent heat in kJ/mol"),
+        OPT_CHOICE("dynamics", &q.dynamics, "MODEL",
+                   "the batch model: holdup (a dynamic batch model, stage by stage,\n"
+                   "with the column file's liquid holdup; the default when the file\n"
+                   "states one) or quasi-steady (holdup neglected; the default otherwise)",
+                   dynamics_choices, "a batch model"),
+        OPT_FRACTION("startup-xd", &q.startup_xd, "X",
+                     "dynamic: the total-reflux start-up ends when xD reaches X, or ..."),
+        OPT_DOUBLE("startup-time", &q.startup_h, "H",
+                   "... after H hours (default: when xD has come 99 % of the way to\n"
+                   "its total-reflux value)",
+                   0, INFINITY, CLI_D_LO_OPEN, "a time in hours > 0"),
         OPT_DOUBLE("every", &q.every, "H",
                    "a trajectory row at least every H hours, H >= 0.01 (default 0.1)", 0.01,
                    INFINITY, 0, "an interval of at least 0.01 h (36 s)"),

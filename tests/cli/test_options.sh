@@ -53,6 +53,7 @@ concepts = [
     (r'\bbootstrap resamples\b', {'bootstrap'}, 'bootstrap resamples'),
     (r'^distillate mole fraction\b', {'xd'}, 'xD'),
     (r'^pot mole fraction\b', {'xb'}, 'xB'),
+    (r'\bdynamic batch model\b', {'dynamics'}, 'the batch model (quasi-steady or with holdup)'),
 ]
 for c, rows in table.items():
     for name, (short, h) in rows.items():

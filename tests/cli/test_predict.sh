@@ -1,7 +1,7 @@
 #!/bin/sh
 # test_predict.sh — `stagecal predict`: exit codes (docs/cli.md), the Rayleigh case through
 # the whole program, mass balance and shape of --json, CSV output, plan file, envelope
-# warning, reproducible band, the latent heat a model file records.
+# warning, reproducible band, the latent heat a model file records, the dynamic model.
 # Usage: sh test_predict.sh <stagecal-binary> <repo-root>
 # The model file is the INVENTED demo model written by tests/tool_batch_model.c.
 # Scratch files go next to the binary (inside the build tree).
@@ -187,6 +187,36 @@ check_py bt-no-latent "d['energy_gj'] is None and d['latent_heat_source'] is Non
 # a model file that records no latent heat (the demo model of tool_batch_model)
 check_exit old-model-no-latent 0 "$bin" predict $common --reflux 4 --cut pot-x=0.2 --samples 0 --json
 check_py old-model-energy-unknown "d['energy_gj'] is None and d['latent_heat_kj_mol'] is None"
+
+# The dynamic model (docs/methods.md, "Dynamic batch prediction"): the INVENTED demo column
+# datasets/columns/demo_alpha.json (α = 2.5) with a holdup of 4 % of the 10 kmol charge on
+# its column and 0.1 kmol in its drum, written here.
+"$py" -c "import json; c=json.load(open('$root/datasets/columns/demo_alpha.json')); c['holdup']={'column_mol': 400, 'reflux_drum_mol': 100}; json.dump(c, open('$tmp/held.json','w'))"
+dyn="$common --reflux 3 --cut product:mean-x=0.95 --cut slop:pot-x=0.1 --samples 0"
+check_exit dyn-default 0 "$bin" predict $dyn --column "$tmp/held.json" --json
+check_py dyn-is-default "d['dynamics'] == 'holdup' and d['column_holdup']['column_kmol'] == 0.4 and d['startup_h'] > 0 and abs(d['cuts'][0]['t_start_h'] - d['startup_h']) < 1e-12"
+check_py dyn-startup-rows "all(r['reflux'] is None for r in d['trajectory'] if r.get('startup')) and any(r.get('startup') for r in d['trajectory'])"
+# overall balance from the summary: charge = pot + column + drum + receivers (1e-9 relative;
+# every member is integrated, 17 digits in JSON)
+check_py dyn-balance "abs(d['pot_end_kmol'] + 0.5 + sum(c['amount_kmol'] for c in d['cuts']) - 10) < 1e-8"
+check_py dyn-light-balance "d['mass_balance_error'] < 1e-9"
+# the first receiver is delayed against the quasi-steady batch printed beside it
+check_py dyn-delay "d['cuts'][0]['delay_h'] > 0 and abs(d['cuts'][0]['delay_h'] - (d['cuts'][0]['t_end_h'] - d['cuts'][0]['quasi_steady']['t_end_h'])) < 1e-12"
+check_exit dyn-quasi 0 "$bin" predict $dyn --column "$tmp/held.json" --dynamics quasi-steady --json
+cp "$tmp/out" "$tmp/quasi.json"
+check_py dyn-quasi-is "d['dynamics'] == 'quasi-steady' and d['column_holdup'] == 'neglected'"
+check_exit dyn-no-holdup 0 "$bin" predict $dyn --column "$root/datasets/columns/demo_alpha.json" --json
+check_py dyn-same-as-no-holdup "d['dynamics'] == 'quasi-steady' and d['batch_time_h'] == json.load(open('$tmp/quasi.json'))['batch_time_h']"
+check_exit dyn-startup-time 0 "$bin" predict $dyn --column "$tmp/held.json" --startup-time 1.5 --json
+check_py dyn-startup-1.5h "abs(d['startup_h'] - 1.5) < 1e-12"
+check_exit dyn-text 0 "$bin" predict $dyn --column "$tmp/held.json"
+if grep -q "^start-up at total reflux: .* h to the first draw" "$tmp/out" && grep -q "smearing (sd of x)" "$tmp/out" &&
+    [ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ]; then echo "ok dynamic text output"
+else echo "FAIL: dynamic text output"; cat "$tmp/out"; fails=$((fails + 1)); fi
+check_exit dyn-needs-holdup 2 "$bin" predict $dyn --column "$root/datasets/columns/demo_alpha.json" --dynamics holdup
+grep -q "needs the column's liquid holdup" "$tmp/err" || { echo "FAIL: dyn-needs-holdup message"; fails=$((fails + 1)); }
+check_exit dyn-startup-quasi 2 "$bin" predict $dyn --startup-xd 0.9
+check_exit dyn-startup-both 2 "$bin" predict $dyn --column "$tmp/held.json" --startup-xd 0.9 --startup-time 1
 
 rm -rf "$tmp"
 if [ "$fails" -ne 0 ]; then echo "$fails failure(s)"; exit 1; fi
