@@ -25,8 +25,9 @@
  * the convention's step exactly, so the model reduces to the quasi-steady one (batch.c)
  * as the holdup goes to 0. When the law's N at a new R (schedule switch, a rising reflux)
  * leaves [nw + 1, nw + 2], the profile is mapped onto the new whole stages by linear
- * interpolation in relative height and the light-component difference goes to the pot
- * (the balances stay exact); the count of such changes is reported.
+ * interpolation in relative height, shifted uniformly so that the column keeps its light
+ * component (the pot takes the difference only where the shift would leave [0, 1]); the
+ * balances stay exact and the count of such changes is reported.
  *
  * Operation. The column and drum start full of charge liquid (the rest in the pot); the
  * start-up runs at total reflux (m = 1, nothing drawn) until xD reaches startup_xd, or
@@ -338,7 +339,17 @@ int batch_dyn_restructure(stagecal_batch_workspace *w, stagecal_error *err)
     w->dim = NSTATE + nw + (w->hd > 0);
     if (w->hd > 0)
         w->u[NSTATE + nw] = xd;
-    w->u[1] += light_old - batch_dyn_column_light(w, w->u);
+    /* the light the interpolation gained or lost: a uniform shift of the new profile keeps
+     * it on the column (the pot, and with it R and N, do not move); where that would leave
+     * [0, 1], the pot takes it */
+    double diff = light_old - batch_dyn_column_light(w, w->u), shift = diff / (w->hs * (double)nw);
+    int inside = 1;
+    for (size_t k = 0; k < nw; k++)
+        inside = inside && w->u[NSTATE + k] + shift >= 0 && w->u[NSTATE + k] + shift <= 1;
+    for (size_t k = 0; inside && k < nw; k++)
+        w->u[NSTATE + k] += shift;
+    if (!inside)
+        w->u[1] += diff;
     w->n_remaps++;
     return dyn_driver(w, err);
 }
