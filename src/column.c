@@ -412,7 +412,11 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
     if (!stagecal_convention_id_valid(col->id))
         return jr_fail(&r->jr, "id", "'%s' may hold only %s", col->id,
                        stagecal_convention_id_rule());
-    if ((rc = get_str(r, root, "description", "description", 0, NULL, 0)) ||
+    if ((rc = get_str(r, root, "description", "description", 0, NULL, 0)) == STAGECAL_OK &&
+        json_is_string(json_object_get(root, "description")))
+        snprintf(col->description, sizeof col->description, "%s",
+                 json_string_value(json_object_get(root, "description")));
+    if (rc ||
         (rc = get_num(r, root, "packed_height_m", "packed_height_m", 0, 0.0, 1, 1000.0,
                       &col->height_m, " m")) ||
         (rc = get_num(r, root, "inside_diameter_m", "inside_diameter_m", 0, 0.0, 1, 100.0,

@@ -107,24 +107,38 @@ static const char css[] =
     "h1{font-size:1.6em;margin:0}h2{font-size:1.2em;border-bottom:2px solid #0072B2;"
     "padding-bottom:.15em;margin-top:1.6em}"
     ".sub{color:#555;margin:.2em 0 1em}"
-    ".demo{border:2px dashed #E69F00;padding:.4em .8em;background:#fff8e6}"
+    ".demo{border:3px solid #D55E00;padding:.4em .8em;background:#fff3e0;font-size:1.05em}"
+    ".demo strong{color:#A33F00;letter-spacing:.05em}"
+    "#answer dl.kv{font-size:1.08em}#answer .verdicts li{margin:.25em 0}"
+    ".period{margin:.6em 0}"
     ".warn{border-left:6px solid #D55E00;background:#fdf0e8;padding:.4em .8em}"
     ".warn li{margin:.2em 0}"
-    ".caution{border:2px solid #333;padding:.6em 1em;background:#f4f4f4}"
+    ".caution{border:2px solid #333;padding:.1em 1em .6em;background:#f4f4f4;margin-top:1em}"
+    ".caution h2{margin-top:.6em}"
+    "table.signoff{width:100%}table.signoff td{height:2.6em}"
+    "table.signoff th:first-child{width:8em}"
     "dl.kv{display:grid;grid-template-columns:max-content auto;gap:.15em 1.2em}"
     "dl.kv dt{font-weight:bold}dl.kv dd{margin:0}"
     "table{border-collapse:collapse;margin:.6em 0;font-size:.92em}"
     "caption{text-align:left;font-weight:bold;padding:.2em 0}"
     "th,td{border:1px solid #bbb;padding:.2em .5em;text-align:left;vertical-align:top}"
     "th{background:#eef4f9}td{font-variant-numeric:tabular-nums}"
+    "table.runs td:first-child,table.windows td:first-child,table.closure td:first-child,"
+    "table.windows td:nth-child(3){white-space:nowrap}"
     "code,.hash{font-family:'DejaVu Sans Mono',monospace;font-size:.85em;word-break:break-all}"
+    "table.inputs td{word-break:break-all}"
     "figure{margin:1em 0;break-inside:avoid;page-break-inside:avoid}"
     "svg.stagecal-figure{display:block;width:100%;height:auto;border:1px solid #ddd}"
     "figcaption{font-size:.9em;color:#444;margin-top:.3em}"
     "footer{margin-top:2em;font-size:.85em;color:#666}"
-    "@media print{@page{size:A4;margin:15mm}body{max-width:none;margin:0;padding:0;"
+    "@page{size:A4;margin:14mm 14mm 16mm;"
+    "@bottom-center{content:'page ' counter(page) ' of ' counter(pages);font-size:8pt;"
+    "color:#555}}"
+    "@media print{body{max-width:none;margin:0;padding:0;"
     "font-size:10pt}h2{break-after:avoid;page-break-after:avoid}"
-    "table,dl.kv,.caution,.warn{break-inside:avoid;page-break-inside:avoid}"
+    ".page-one.break{break-after:page;page-break-after:always}"
+    "table,dl.kv,.caution,.warn,.signoff,.demo,section.keep{break-inside:avoid;"
+    "page-break-inside:avoid}"
     "svg.stagecal-figure{border:none;max-height:120mm}}";
 
 static void put_items(buf *b, const stagecal_report_item *it, size_t n)
@@ -240,7 +254,10 @@ int stagecal_report_html(const stagecal_report *r, const stagecal_report_params 
         return error_set(err, STAGECAL_EINVAL, "report: missing content or output pointer");
     *html = NULL;
     if ((rc = check_table(r->inputs, "inputs", err)) ||
-        (rc = check_table(r->windows, "windows", err)) || (rc = check_table(r->fit, "fit", err)))
+        (rc = check_table(r->windows, "windows", err)) || (rc = check_table(r->fit, "fit", err)) ||
+        (rc = check_table(r->runs, "runs", err)) ||
+        (rc = check_table(r->closure, "closure", err)) ||
+        (rc = check_table(r->fit_other, "comparison fit", err)))
         return rc;
     for (size_t k = 0; k < r->n_figures; k++) {
         if (!r->figures || !r->figures[k].chart)
@@ -270,22 +287,46 @@ int stagecal_report_html(const stagecal_report *r, const stagecal_report_params 
     }
     put(&b, "</header>\n");
     if (r->demo_notice) {
-        put(&b, "<p class=\"demo\">");
+        put(&b, "<p class=\"demo\" id=\"demo\"><strong>INVENTED DEMO DATA</strong> \xe2\x80\x94 ");
         put_esc(&b, r->demo_notice);
         put(&b, "</p>\n");
     }
-    /* warnings near the top: an extrapolation must not be missed */
+    /* page one: the answer, the caution and the sign-off, printed alone on the first
+     * sheet (the caution is kept with the block before it, never alone on a page) */
+    int page_one = (r->n_answer > 0 && r->answer) || r->signoff;
+    putf(&b, "<div class=\"page-one%s\">\n", page_one ? " break" : "");
+    if ((r->n_answer > 0 && r->answer) || (r->n_verdicts > 0 && r->verdicts) || r->data_period) {
+        put(&b, "<section id=\"answer\">\n<h2>");
+        put_esc(&b, r->answer_heading ? r->answer_heading : "The answer");
+        put(&b, "</h2>\n");
+        if (r->n_answer > 0 && r->answer)
+            put_items(&b, r->answer, r->n_answer);
+        if (r->n_verdicts > 0 && r->verdicts)
+            put_list(&b, r->verdicts, r->n_verdicts, "verdicts");
+        if (r->data_period) {
+            put(&b, "<p class=\"period\"><strong>Data period:</strong> ");
+            put_esc(&b, r->data_period);
+            put(&b, "</p>\n");
+        }
+        put(&b, "</section>\n");
+    }
+    put(&b, "<section id=\"caution\" class=\"caution\">\n<h2>Caution</h2>\n<p>");
+    put_esc(&b, stagecal_caution_text());
+    put(&b, "</p>\n</section>\n");
+    if (r->signoff) {
+        static const char *const roles[] = {"Prepared by", "Checked by", "Approved by"};
+        put(&b, "<section id=\"signoff\" class=\"keep\">\n<h2>Sign-off</h2>\n"
+                "<table class=\"signoff\">\n<thead><tr><th>role</th><th>name</th>"
+                "<th>signature</th><th>date</th></tr></thead>\n<tbody>\n");
+        for (size_t i = 0; i < 3; i++)
+            putf(&b, "<tr><th>%s</th><td></td><td></td><td></td></tr>\n", roles[i]);
+        put(&b, "</tbody></table>\n</section>\n");
+    }
+    put(&b, "</div>\n");
+    /* warnings next: an extrapolation must not be missed */
     if (r->n_warnings > 0 && r->warnings) {
         put(&b, "<section id=\"warnings\" class=\"warn\">\n<h2>Warnings</h2>\n");
         put_list(&b, r->warnings, r->n_warnings, NULL);
-        put(&b, "</section>\n");
-    }
-    if ((r->n_job > 0 && r->job) || r->inputs) {
-        put(&b, "<section id=\"job\">\n<h2>Job and data provenance</h2>\n");
-        if (r->n_job > 0 && r->job)
-            put_items(&b, r->job, r->n_job);
-        if (r->inputs)
-            put_table(&b, r->inputs, "inputs");
         put(&b, "</section>\n");
     }
     if (r->n_findings > 0 && r->findings) {
@@ -293,17 +334,31 @@ int stagecal_report_html(const stagecal_report *r, const stagecal_report_params 
         put_list(&b, r->findings, r->n_findings, NULL);
         put(&b, "</section>\n");
     }
+    if (r->runs) {
+        put(&b, "<section id=\"evidence\">\n<h2>Evidence: runs</h2>\n");
+        put_table(&b, r->runs, "runs");
+        put(&b, "</section>\n");
+    }
     if (r->windows) {
         put(&b, "<section id=\"windows\">\n<h2>Quasi-steady windows</h2>\n");
         put_table(&b, r->windows, "windows");
         put(&b, "</section>\n");
     }
-    if (r->fit || (r->n_fit_summary > 0 && r->fit_summary)) {
+    if (r->closure) {
+        put(&b, "<section id=\"closure\">\n<h2>Run closure</h2>\n");
+        put_table(&b, r->closure, "closure");
+        put(&b, "</section>\n");
+    }
+    if (r->fit || (r->n_fit_summary > 0 && r->fit_summary) || r->fit_other) {
         put(&b, "<section id=\"fit\">\n<h2>Fitted correlation</h2>\n");
         if (r->fit)
             put_table(&b, r->fit, "fit");
         if (r->n_fit_summary > 0 && r->fit_summary)
             put_items(&b, r->fit_summary, r->n_fit_summary);
+        if (r->fit_other)
+            put_table(&b, r->fit_other, "fit other");
+        if (r->n_fit_other_summary > 0 && r->fit_other_summary)
+            put_items(&b, r->fit_other_summary, r->n_fit_other_summary);
         put(&b, "</section>\n");
     }
     if (r->n_condition > 0 && r->condition) {
@@ -311,8 +366,18 @@ int stagecal_report_html(const stagecal_report *r, const stagecal_report_params 
         put_items(&b, r->condition, r->n_condition);
         put(&b, "</section>\n");
     }
+    if (r->n_hetp > 0 && r->hetp) {
+        put(&b, "<section id=\"hetp\">\n<h2>HETP</h2>\n");
+        put_items(&b, r->hetp, r->n_hetp);
+        put(&b, "</section>\n");
+    }
+    if (r->n_trend > 0 && r->trend) {
+        put(&b, "<section id=\"trend\">\n<h2>Trend</h2>\n");
+        put_items(&b, r->trend, r->n_trend);
+        put(&b, "</section>\n");
+    }
     if (r->n_figures > 0) {
-        put(&b, "<section id=\"plots\">\n<h2>Plots</h2>\n");
+        put(&b, "<section id=\"plots\">\n<h2>Charts</h2>\n");
         for (size_t k = 0; k < r->n_figures && !b.oom; k++) {
             char *svg = NULL;
             rc = stagecal_plot_svg(r->figures[k].chart, &par.plot, &svg, NULL, err);
@@ -332,19 +397,16 @@ int stagecal_report_html(const stagecal_report *r, const stagecal_report_params 
         }
         put(&b, "</section>\n");
     }
-    if (r->n_hetp > 0 && r->hetp) {
-        put(&b, "<section id=\"hetp\">\n<h2>HETP</h2>\n");
-        put_items(&b, r->hetp, r->n_hetp);
+    if ((r->n_job > 0 && r->job) || r->inputs) {
+        put(&b, "<section id=\"job\">\n<h2>Provenance</h2>\n");
+        if (r->n_job > 0 && r->job)
+            put_items(&b, r->job, r->n_job);
+        if (r->inputs)
+            put_table(&b, r->inputs, "inputs");
         put(&b, "</section>\n");
     }
-    if (r->n_trend > 0 && r->trend) {
-        put(&b, "<section id=\"trend\">\n<h2>Trend</h2>\n");
-        put_items(&b, r->trend, r->n_trend);
-        put(&b, "</section>\n");
-    }
-    put(&b, "<section id=\"caution\" class=\"caution\">\n<h2>Caution</h2>\n<p>");
-    put_esc(&b, stagecal_caution_text());
-    put(&b, "</p>\n</section>\n<footer>Generated by ");
+    put(&b, "<footer>Generated by ");
+
     put_esc(&b, r->generator ? r->generator : "stagecal");
     if (!r->generator) {
         put(&b, " ");

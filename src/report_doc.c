@@ -11,34 +11,18 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "stagecal/convention.h"
+#include "stagecal/hetp.h"
 #include "stagecal/stages.h"
 #include "stagecal/version.h"
 #include "stagecal/vle.h"
 #include "fileio.h"
 #include "internal.h"
+#include "report_internal.h"
 
-#define DOC_MAX_ITEMS 24
-#define DOC_MAX_FIGS 4  /* fit, residuals, condition */
-#define DOC_GRID 121    /* points of the fitted curve */
-#define DOC_MAX_WARN 40 /* warnings listed (model's + points outside the envelope) */
+#define DOC_GRID 121 /* points of the fitted curve */
 
-struct stagecal_report_doc {
-    stagecal_report rep;
-    char **strs; /* every string the report points at */
-    size_t n_strs, cap_strs;
-    int oom;
-    stagecal_report_item job[DOC_MAX_ITEMS], summary[DOC_MAX_ITEMS], hetp[DOC_MAX_ITEMS],
-        cond[DOC_MAX_ITEMS];
-    stagecal_report_table inputs, fit, points;
-    const char *in_head[3], *fit_head[4], *pt_head[4];
-    const char **in_cells, **fit_cells, **pt_cells, **warn;
-    stagecal_report_figure figs[DOC_MAX_FIGS];
-    stagecal_plot_chart *charts[DOC_MAX_FIGS];
-    size_t n_charts;
-};
-
-static const char *doc_str(stagecal_report_doc *d, const char *fmt, ...) SC_PRINTF(2, 3);
-static const char *doc_str(stagecal_report_doc *d, const char *fmt, ...)
+const char *report_doc_str(stagecal_report_doc *d, const char *fmt, ...)
 {
     if (d->oom)
         return "";
@@ -79,6 +63,10 @@ void stagecal_report_doc_free(stagecal_report_doc *d)
     free(d->fit_cells);
     free(d->pt_cells);
     free(d->warn);
+    free(d->run_cells);
+    free(d->win_cells);
+    free(d->clo_cells);
+    free(d->other_cells);
     for (size_t i = 0; i < d->n_charts; i++)
         stagecal_plot_chart_free(d->charts[i]);
     free(d);
@@ -94,12 +82,12 @@ const stagecal_plot_chart *stagecal_report_doc_chart(const stagecal_report_doc *
     return d && k < d->n_charts ? d->charts[k] : NULL;
 }
 
-static const char *fmt_r(stagecal_report_doc *d, double r)
+const char *report_doc_fmt_r(stagecal_report_doc *d, double r)
 {
-    return isinf(r) ? "inf (total reflux)" : doc_str(d, "%.4g", r);
+    return isinf(r) ? "inf (total reflux)" : report_doc_str(d, "%.4g", r);
 }
 
-static void add_item(stagecal_report_item *items, size_t *n, const char *key, const char *value)
+void report_doc_add_item(stagecal_report_item *items, size_t *n, const char *key, const char *value)
 {
     if (*n < DOC_MAX_ITEMS) {
         items[*n].key = key;
@@ -163,15 +151,17 @@ static int doc_fit_chart(stagecal_report_doc *d, const stagecal_model *m,
     d->figs[d->n_charts].chart = d->charts[d->n_charts];
     d->figs[d->n_charts].caption =
         m->form.uses_load
-            ? doc_str(d,
-                      "Fitted stages against reflux ratio at F = %.3g Pa^0.5 (middle of the "
-                      "fitted load range), with %.0f %% confidence and prediction bands and the "
-                      "fitted envelope.",
-                      f_mid, 100 * m->level)
-            : doc_str(d,
-                      "Fitted stages against reflux ratio with %.0f %% confidence and prediction "
-                      "bands and the fitted envelope.",
-                      100 * m->level);
+            ? report_doc_str(
+                  d,
+                  "Fitted stages against reflux ratio at F = %.3g Pa^0.5 (middle of the "
+                  "fitted load range), with %.0f %% confidence and prediction bands and the "
+                  "fitted envelope.",
+                  f_mid, 100 * m->level)
+            : report_doc_str(
+                  d,
+                  "Fitted stages against reflux ratio with %.0f %% confidence and prediction "
+                  "bands and the fitted envelope.",
+                  100 * m->level);
     d->n_charts++;
     return STAGECAL_OK;
 }
@@ -209,6 +199,202 @@ static int doc_resid_chart(stagecal_report_doc *d, const stagecal_model *m,
     return rc;
 }
 
+/* A human label for an equilibrium parameter of the model file ("antoine_light_a" →
+ * "Antoine A of benzene"); the key itself for names it does not know. */
+static const char *vle_label(stagecal_report_doc *d, const stagecal_model *m, const char *key)
+{
+    static const struct {
+        const char *suffix, *label;
+    } antoine[] = {{"a", "Antoine A"},
+                   {"b", "Antoine B [K]"},
+                   {"c", "Antoine C [K]"},
+                   {"t_min_k", "Antoine range from [K]"},
+                   {"t_max_k", "Antoine range to [K]"}};
+    static const struct {
+        const char *key, *label;
+    } plain[] = {{"alpha", "relative volatility \xce\xb1"},
+                 {"pressure_pa", "pressure [Pa]"},
+                 {"x", "table: x"},
+                 {"y", "table: y"}};
+    for (size_t i = 0; i < sizeof plain / sizeof plain[0]; i++)
+        if (strcmp(key, plain[i].key) == 0)
+            return plain[i].label;
+    const char *comp = NULL, *rest = NULL;
+    if (strncmp(key, "antoine_light_", 14) == 0)
+        comp = m->light, rest = key + 14;
+    else if (strncmp(key, "antoine_heavy_", 14) == 0)
+        comp = m->heavy, rest = key + 14;
+    for (size_t i = 0; comp && i < sizeof antoine / sizeof antoine[0]; i++)
+        if (strcmp(rest, antoine[i].suffix) == 0)
+            return report_doc_str(d, "%s, %s", antoine[i].label, comp);
+    return report_doc_str(d, "parameter '%s'", key);
+}
+
+const char *report_doc_sigma_text(stagecal_report_doc *d, double sigma, double dof)
+{
+    if (!(sigma > 0))
+        return report_doc_str(d,
+                              "none measurable: the correlation passes through every window "
+                              "(%.4g degrees of freedom), so the data do not show its scatter; "
+                              "its intervals are not to be trusted as narrow",
+                              dof);
+    return report_doc_str(d, "%.3g stages (residual standard deviation), %.4g degrees of freedom",
+                          sigma, dof);
+}
+
+void report_doc_add_verdict(stagecal_report_doc *d, const char *v)
+{
+    if (d->rep.n_verdicts < DOC_MAX_VERDICTS)
+        d->verdicts[d->rep.n_verdicts++] = v;
+    d->rep.verdicts = d->verdicts;
+}
+
+static double r_ref_answer(const stagecal_model *m)
+{
+    return isfinite(m->r_max) ? m->r_max : INFINITY;
+}
+
+static const char *cond_text(stagecal_report_doc *d, const stagecal_model *m, double r, double f)
+{
+    return m->has_load && isfinite(f)
+               ? report_doc_str(d, "R = %s, F = %.3g Pa^0.5", report_doc_fmt_r(d, r), f)
+               : report_doc_str(d, "R = %s", report_doc_fmt_r(d, r));
+}
+
+/* Page one: the stages at (r, f) with their interval, the column stages, HETP at the same
+ * condition, and the verdicts that follow from the model alone (envelope, one-sided,
+ * scatter). Replaces an earlier answer. */
+static int doc_answer(stagecal_report_doc *d, const stagecal_model *m, double r, double f,
+                      const char *why, stagecal_error *err)
+{
+    stagecal_model_point p;
+    double fl = m->form.uses_load ? f : NAN;
+    int rc = stagecal_model_eval(m, r, fl, 0, &p, err);
+    if (rc)
+        return rc;
+    d->ans_r = r, d->ans_f = f;
+    stagecal_report *rep = &d->rep;
+    const char *at = cond_text(d, m, r, f);
+    rep->answer_heading = report_doc_str(d, "The answer: stages at %s", at);
+    size_t n = 0;
+    stagecal_report_item *it = d->answer;
+    report_doc_add_item(it, &n, "condition", report_doc_str(d, "%s (%s)", at, why));
+    double lvl = 100 * m->level;
+    if (p.lower_only)
+        report_doc_add_item(
+            it, &n, "equilibrium stages, pot included",
+            report_doc_str(d,
+                           "at least %.2f (one-sided %.0f %%: the evidence bounds the stage "
+                           "count from below only)",
+                           p.stages, lvl));
+    else {
+        report_doc_add_item(it, &n, "equilibrium stages, pot included",
+                            report_doc_str(d,
+                                           "%.2f (%.0f %% confidence interval %.2f \xe2\x80\x93 "
+                                           "%.2f)",
+                                           p.stages, lvl, p.ci_low, p.ci_high));
+        report_doc_add_item(it, &n, "one new window would read",
+                            report_doc_str(d,
+                                           "%.2f \xe2\x80\x93 %.2f (%.0f %% prediction interval)",
+                                           p.pi_low, p.pi_high, lvl));
+    }
+    if (isfinite(p.column_stages))
+        report_doc_add_item(it, &n, "column stages",
+                            report_doc_str(d, "%s%.2f (%s)", p.lower_only ? "at least " : "",
+                                           p.column_stages,
+                                           stagecal_convention_text(m->condenser)));
+    /* HETP at this same condition (never at another reflux ratio) */
+    if (m->has_hetp && m->height_m > 0) {
+        stagecal_hetp_stages hs;
+        stagecal_hetp_result h;
+        stagecal_error e2;
+        const char *txt;
+        if (stagecal_hetp_stages_from_model(m, r, fl, &hs, NULL, &e2) != STAGECAL_OK ||
+            stagecal_hetp_compute(m->height_m, &hs, m->level, &h, &e2) != STAGECAL_OK)
+            txt = report_doc_str(d, "not determined at this condition: %s", e2.text);
+        else if (h.at_most)
+            txt = report_doc_str(d, "at most %.3f m (one-sided %.0f %%), packed height %.3g m",
+                                 h.hetp_m, lvl, m->height_m);
+        else if (h.unbounded || !isfinite(h.high_m))
+            txt = report_doc_str(d,
+                                 "%.3f m (%.0f %% interval from %.3f m, not bounded above), "
+                                 "packed height %.3g m",
+                                 h.hetp_m, lvl, h.low_m, m->height_m);
+        else
+            txt = report_doc_str(d,
+                                 "%.3f m (%.0f %% interval %.3f \xe2\x80\x93 %.3f m), packed "
+                                 "height %.3g m",
+                                 h.hetp_m, lvl, h.low_m, h.high_m, m->height_m);
+        report_doc_add_item(it, &n, report_doc_str(d, "HETP at %s", at), txt);
+    } else
+        report_doc_add_item(it, &n, "HETP", "not given: the column file states no packed height");
+    report_doc_add_item(it, &n, "correlation",
+                        report_doc_str(d, "%s, %s fit, %zu windows from %zu runs", m->form.name,
+                                       stagecal_model_method_name(m->method), m->n_windows,
+                                       m->n_runs));
+    rep->answer = it;
+    rep->n_answer = n;
+
+    rep->n_verdicts = 0;
+    const char *env =
+        m->has_load ? report_doc_str(d, "R %s \xe2\x80\x93 %s, F %.3g \xe2\x80\x93 %.3g Pa^0.5",
+                                     report_doc_fmt_r(d, m->r_min), report_doc_fmt_r(d, m->r_max),
+                                     m->f_min, m->f_max)
+                    : report_doc_str(d, "R %s \xe2\x80\x93 %s", report_doc_fmt_r(d, m->r_min),
+                                     report_doc_fmt_r(d, m->r_max));
+    if (p.extrapolated)
+        report_doc_add_verdict(
+            d, report_doc_str(d,
+                              "EXTRAPOLATED: the condition lies outside the fitted envelope "
+                              "(%s); the stage count there is not backed by data and may be off "
+                              "by more than its interval.",
+                              env));
+    else
+        report_doc_add_verdict(
+            d, report_doc_str(d,
+                              "Inside the fitted envelope (%s): the answer interpolates the "
+                              "evidence.",
+                              env));
+    if (p.lower_only)
+        report_doc_add_verdict(d, "One-sided: analyser readings at their limit bound the stage "
+                                  "count from below only; the column has at least this many "
+                                  "stages, and no upper end is known.");
+    else if (m->method != STAGECAL_MODEL_CENSORED && !(m->sigma > 0))
+        report_doc_add_verdict(d, "No residual scatter: the correlation passes through every "
+                                  "window, so the data cannot show how well it fits; more "
+                                  "windows are needed before its intervals can be relied on.");
+    else
+        report_doc_add_verdict(
+            d, report_doc_str(d,
+                              "Precision: the stage count at this condition is known to "
+                              "\xc2\xb1%.2f stages (half the %.0f %% confidence interval).",
+                              0.5 * (p.ci_high - p.ci_low), lvl));
+    return STAGECAL_OK;
+}
+
+int stagecal_report_doc_set_description(stagecal_report_doc *d, const char *description)
+{
+    if (!d || !description || !description[0])
+        return STAGECAL_OK;
+    /* "invented" or "fictional" in the column file's description: demo data */
+    char low[512];
+    size_t n = 0;
+    for (; description[n] && n + 1 < sizeof low; n++)
+        low[n] = (char)((description[n] >= 'A' && description[n] <= 'Z') ? description[n] + 32
+                                                                         : description[n]);
+    low[n] = '\0';
+    if (strstr(low, "invented") || strstr(low, "fictional")) {
+        d->rep.demo_notice =
+            report_doc_str(d,
+                           "the column file describes these data as invented: \"%s\". The "
+                           "numbers describe no real column.",
+                           description);
+        report_doc_add_verdict(d, "INVENTED DEMO DATA: this report shows how the method works; "
+                                  "it says nothing about a real column.");
+    }
+    return d->oom ? STAGECAL_ENOMEM : STAGECAL_OK;
+}
+
 int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_data *pts,
                                stagecal_report_doc **out, stagecal_error *err)
 {
@@ -231,31 +417,34 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
     stagecal_report *r = &d->rep;
-    r->title = doc_str(d, "Stage calibration report \xe2\x80\x94 %s", m->column_id);
-    r->subtitle = doc_str(d, "column %s \xc2\xb7 fitted %s by stagecal %s", m->column_id,
-                          m->fitted_utc, m->tool_version);
+    r->title = report_doc_str(d, "Stage calibration report \xe2\x80\x94 %s", m->column_id);
+    r->subtitle = report_doc_str(d, "column %s \xc2\xb7 fitted %s by stagecal %s", m->column_id,
+                                 m->fitted_utc, m->tool_version);
 
     size_t nj = 0;
-    add_item(d->job, &nj, "column", m->column_id);
-    add_item(d->job, &nj, "system",
-             doc_str(d, "%s / %s, equilibrium model '%s'", m->light, m->heavy, m->vle_kind));
+    report_doc_add_item(d->job, &nj, "column", m->column_id);
+    report_doc_add_item(
+        d->job, &nj, "system",
+        report_doc_str(d, "%s / %s, equilibrium model '%s'", m->light, m->heavy, m->vle_kind));
     for (size_t i = 0; i < m->n_vle_params; i++) {
         const stagecal_model_vle_param *vp = &m->vle_params[i];
-        add_item(d->job, &nj, doc_str(d, "  %s", vp->name),
-                 vp->n == 1 ? doc_str(d, "%.6g", vp->values[0])
-                            : doc_str(d, "%zu values (%.6g \xe2\x80\xa6 %.6g)", vp->n,
-                                      vp->values[0], vp->values[vp->n - 1]));
+        report_doc_add_item(d->job, &nj, vle_label(d, m, vp->name),
+                            vp->n == 1
+                                ? report_doc_str(d, "%.6g", vp->values[0])
+                                : report_doc_str(d, "%zu values (%.6g \xe2\x80\xa6 %.6g)", vp->n,
+                                                 vp->values[0], vp->values[vp->n - 1]));
     }
-    add_item(d->job, &nj, "stage convention", stagecal_convention_text(m->condenser));
-    add_item(d->job, &nj, "correlation", m->form.name);
-    add_item(d->job, &nj, "fit method", stagecal_model_method_name(m->method));
-    add_item(d->job, &nj, "evidence",
-             doc_str(d, "%zu quasi-steady windows from %zu runs (%zu samples)", m->n_windows,
-                     m->n_runs, m->n_samples));
-    add_item(d->job, &nj, "fitted",
-             doc_str(d, "%s, stagecal %s, seed %llu", m->fitted_utc, m->tool_version, m->seed));
+    report_doc_add_item(d->job, &nj, "stage convention", stagecal_convention_text(m->condenser));
+    report_doc_add_item(d->job, &nj, "correlation", m->form.name);
+    report_doc_add_item(d->job, &nj, "fit method", stagecal_model_method_name(m->method));
+    report_doc_add_item(d->job, &nj, "evidence",
+                        report_doc_str(d, "%zu quasi-steady windows from %zu runs (%zu samples)",
+                                       m->n_windows, m->n_runs, m->n_samples));
+    report_doc_add_item(
+        d->job, &nj, "fitted",
+        report_doc_str(d, "%s, stagecal %s, seed %llu", m->fitted_utc, m->tool_version, m->seed));
     if (m->command_line)
-        add_item(d->job, &nj, "command line", m->command_line);
+        report_doc_add_item(d->job, &nj, "command line", m->command_line);
     r->job = d->job;
     r->n_job = nj;
 
@@ -264,7 +453,7 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
         for (size_t i = 0; i < m->n_inputs; i++) {
             d->in_cells[3 * i] = m->inputs[i].path;
             d->in_cells[3 * i + 1] = m->inputs[i].sha256;
-            d->in_cells[3 * i + 2] = doc_str(d, "%zu", m->inputs[i].rows);
+            d->in_cells[3 * i + 2] = report_doc_str(d, "%zu", m->inputs[i].rows);
         }
         d->inputs = (stagecal_report_table){"Inputs (data provenance)", d->in_head, 3, d->in_cells,
                                             m->n_inputs};
@@ -280,58 +469,79 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
         return rc;
     }
     d->fit_head[0] = "parameter", d->fit_head[1] = "value", d->fit_head[2] = "std. error";
-    d->fit_head[3] = doc_str(d, "%.0f %% interval", 100 * m->level);
+    d->fit_head[3] = report_doc_str(d, "%.0f %% interval", 100 * m->level);
     for (size_t i = 0; i < p; i++) {
         double se = sqrt(fmax(m->cov[i * p + i], 0));
         d->fit_cells[4 * i] = m->form.param_names[i];
-        d->fit_cells[4 * i + 1] = doc_str(d, "%.6g", m->theta[i]);
-        d->fit_cells[4 * i + 2] = doc_str(d, "%.3g", se);
+        d->fit_cells[4 * i + 1] = report_doc_str(d, "%.6g", m->theta[i]);
+        d->fit_cells[4 * i + 2] = report_doc_str(d, "%.3g", se);
         d->fit_cells[4 * i + 3] =
-            doc_str(d, "[%.6g, %.6g]", m->theta[i] - p0.t * se, m->theta[i] + p0.t * se);
+            report_doc_str(d, "[%.6g, %.6g]", m->theta[i] - p0.t * se, m->theta[i] + p0.t * se);
         if (m->one_sided) { /* "at least N stages": a bound, no standard error */
-            d->fit_cells[4 * i + 1] = doc_str(d, "at least %.6g", m->theta[i]);
+            d->fit_cells[4 * i + 1] = report_doc_str(d, "at least %.6g", m->theta[i]);
             d->fit_cells[4 * i + 2] = "none (one-sided)";
-            d->fit_cells[4 * i + 3] = doc_str(d, "from %.6g, no upper end (one-sided %.0f %%)",
-                                              m->theta[i], 100 * m->level);
+            d->fit_cells[4 * i + 3] = report_doc_str(
+                d, "from %.6g, no upper end (one-sided %.0f %%)", m->theta[i], 100 * m->level);
         }
     }
-    d->fit = (stagecal_report_table){doc_str(d, "Parameters of '%s'", m->form.name), d->fit_head, 4,
-                                     d->fit_cells, p};
+    d->fit = (stagecal_report_table){
+        report_doc_str(d, "The %s fit of '%s' (the one the model file carries)",
+                       stagecal_model_method_name(m->method), m->form.name),
+        d->fit_head, 4, d->fit_cells, p};
     r->fit = &d->fit;
     size_t ns = 0;
     if (m->one_sided)
-        add_item(d->summary, &ns, "AT LEAST",
-                 doc_str(d,
-                         "%.4g stages (one-sided %.0f %%): readings at an analyser's limit; "
-                         "the evidence bounds the stage count from below only",
-                         m->theta[0], 100 * m->level));
-    add_item(d->summary, &ns, "residual \xcf\x83",
-             doc_str(d, "%.4g stages, %.4g degrees of freedom", m->sigma, m->dof));
-    add_item(d->summary, &ns, "envelope: R",
-             doc_str(d, "%s \xe2\x80\x93 %s", fmt_r(d, m->r_min), fmt_r(d, m->r_max)));
+        report_doc_add_item(
+            d->summary, &ns, "AT LEAST",
+            report_doc_str(d,
+                           "%.4g stages (one-sided %.0f %%): readings at an analyser's limit; "
+                           "the evidence bounds the stage count from below only",
+                           m->theta[0], 100 * m->level));
+    if (m->method == STAGECAL_MODEL_CENSORED)
+        report_doc_add_item(d->summary, &ns, "residual scatter",
+                            "not used: the censored-likelihood intervals rest on the readings' "
+                            "stated uncertainties");
+    else
+        report_doc_add_item(d->summary, &ns, "residual scatter",
+                            report_doc_sigma_text(d, m->sigma, m->dof));
+    report_doc_add_item(d->summary, &ns, "envelope: R",
+                        report_doc_str(d, "%s \xe2\x80\x93 %s", report_doc_fmt_r(d, m->r_min),
+                                       report_doc_fmt_r(d, m->r_max)));
     if (m->has_load)
-        add_item(d->summary, &ns, "envelope: F",
-                 doc_str(d, "%.4g \xe2\x80\x93 %.4g Pa^0.5", m->f_min, m->f_max));
-    add_item(d->summary, &ns, "evidence",
-             doc_str(d, "%zu independent windows (the unit of evidence)", m->n_windows));
+        report_doc_add_item(d->summary, &ns, "envelope: F",
+                            report_doc_str(d, "%.4g \xe2\x80\x93 %.4g Pa^0.5", m->f_min, m->f_max));
+    report_doc_add_item(
+        d->summary, &ns, "evidence",
+        report_doc_str(d, "%zu independent windows (the unit of evidence)", m->n_windows));
     r->fit_summary = d->summary;
     r->n_fit_summary = ns;
 
-    if (m->has_hetp) {
-        size_t nh = 0;
-        add_item(d->hetp, &nh, "packed height", doc_str(d, "%.4g m", m->height_m));
-        add_item(d->hetp, &nh, "reference condition",
-                 m->has_load ? doc_str(d, "R = %s, F = %.4g Pa^0.5", fmt_r(d, m->hetp_r), m->hetp_f)
-                             : doc_str(d, "R = %s", fmt_r(d, m->hetp_r)));
-        add_item(d->hetp, &nh, "HETP",
-                 isfinite(m->hetp_high_m)
-                     ? doc_str(d, "%.4g m (%.0f %% interval %.4g \xe2\x80\x93 %.4g m)", m->hetp_m,
-                               100 * m->hetp_level, m->hetp_low_m, m->hetp_high_m)
-                     : doc_str(d, "%.4g m (%.0f %% interval from %.4g m, unbounded above)",
-                               m->hetp_m, 100 * m->hetp_level, m->hetp_low_m));
-        r->hetp = d->hetp;
-        r->n_hetp = nh;
+    /* page one: the answer at the condition HETP is referred to (the calibration's), else
+     * at the largest fitted R and the middle of the fitted load */
+    if (m->has_hetp)
+        rc = doc_answer(d, m, m->hetp_r, m->has_load ? m->hetp_f : NAN,
+                        "the calibration's reference condition", err);
+    else
+        rc = doc_answer(d, m, r_ref_answer(m), f_mid,
+                        m->has_load ? "the largest fitted R, the middle of the fitted load"
+                                    : "the largest fitted R",
+                        err);
+    if (rc) {
+        stagecal_report_doc_free(d);
+        return rc;
     }
+    r->signoff = 1;
+    if (m->data_first_utc[0] && m->data_last_utc[0])
+        r->data_period = report_doc_str(d,
+                                        "%.10s %.5s to %.10s %.5s UTC (logged samples of the %zu "
+                                        "windows that carry the fit, from %zu runs)",
+                                        m->data_first_utc, m->data_first_utc + 11, m->data_last_utc,
+                                        m->data_last_utc + 11, m->n_windows, m->n_runs);
+    else
+        r->data_period = report_doc_str(d,
+                                        "not recorded (the logs carry relative times); %zu windows "
+                                        "from %zu runs",
+                                        m->n_windows, m->n_runs);
 
     if (pts && pts->n > 0) {
         /* the points as numbers: for a calibration, each window's stage count and standard
@@ -339,10 +549,10 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
         d->pt_head[0] = "R [-]", d->pt_head[1] = "F [Pa^0.5]", d->pt_head[2] = "stages [-]";
         d->pt_head[3] = "std. error [-]";
         for (size_t i = 0; i < pts->n; i++) {
-            d->pt_cells[4 * i] = fmt_r(d, pts->r[i]);
-            d->pt_cells[4 * i + 1] = pts->f_load ? doc_str(d, "%.4g", pts->f_load[i]) : NULL;
-            d->pt_cells[4 * i + 2] = doc_str(d, "%.4f", pts->stages[i]);
-            d->pt_cells[4 * i + 3] = pts->sigma ? doc_str(d, "%.4f", pts->sigma[i]) : NULL;
+            d->pt_cells[4 * i] = report_doc_fmt_r(d, pts->r[i]);
+            d->pt_cells[4 * i + 1] = pts->f_load ? report_doc_str(d, "%.4g", pts->f_load[i]) : NULL;
+            d->pt_cells[4 * i + 2] = report_doc_str(d, "%.4f", pts->stages[i]);
+            d->pt_cells[4 * i + 3] = pts->sigma ? report_doc_str(d, "%.4f", pts->sigma[i]) : NULL;
         }
         d->points = (stagecal_report_table){
             "Points of the fit (from a calibration: one per quasi-steady window)", d->pt_head, 4,
@@ -357,14 +567,16 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
         double f = pts->f_load ? pts->f_load[i] : f_mid;
         if (stagecal_model_eval(m, pts->r[i], f, 0, &q, NULL) == STAGECAL_OK && q.extrapolated) {
             if (outside++ < 10)
-                add_warning(d, doc_str(d,
-                                       "point %zu (R = %s) lies outside the fitted envelope: "
-                                       "the correlation is extrapolated there",
-                                       i + 1, fmt_r(d, pts->r[i])));
+                add_warning(d,
+                            report_doc_str(d,
+                                           "point %zu (R = %s) lies outside the fitted envelope: "
+                                           "the correlation is extrapolated there",
+                                           i + 1, report_doc_fmt_r(d, pts->r[i])));
         }
     }
     if (outside > 10)
-        add_warning(d, doc_str(d, "%zu more points lie outside the fitted envelope", outside - 10));
+        add_warning(
+            d, report_doc_str(d, "%zu more points lie outside the fitted envelope", outside - 10));
     r->warnings = d->warn;
 
     rc = doc_fit_chart(d, m, pts, f_mid, err);
@@ -402,10 +614,10 @@ static const char *doc_step_xb(stagecal_report_doc *d, const stagecal_vle *vle, 
     }
     if (status != STAGECAL_STAGES_OK) {
         *xb = NAN;
-        return doc_str(d, "not reached: stepping gave %s (%s)", stagecal_stages_status_name(status),
-                       e2.text);
+        return report_doc_str(d, "not reached: stepping gave %s (%s)",
+                              stagecal_stages_status_name(status), e2.text);
     }
-    return doc_str(d, "%.4f", *xb);
+    return report_doc_str(d, "%.4f", *xb);
 }
 
 int stagecal_report_doc_add_condition(stagecal_report_doc *d, const stagecal_model *m,
@@ -416,6 +628,9 @@ int stagecal_report_doc_add_condition(stagecal_report_doc *d, const stagecal_mod
         return error_set(err, STAGECAL_EINVAL, "report condition: missing document or model");
     if (d->rep.n_condition > 0)
         return error_set(err, STAGECAL_EINVAL, "report condition: the document has one already");
+    if (d->has_calibration)
+        return error_set(err, STAGECAL_EINVAL,
+                         "report condition: state it before adding the calibration");
     if (!(xd > 0 && xd < 1))
         return error_set(err, STAGECAL_EINVAL,
                          "report condition: xD %g outside (0, 1) (expected a mole fraction)", xd);
@@ -445,46 +660,53 @@ int stagecal_report_doc_add_condition(stagecal_report_doc *d, const stagecal_mod
 
     size_t n = 0;
     stagecal_report_item *it = d->cond;
-    const char *at = m->form.uses_load ? doc_str(d, "R = %s, F = %.4g Pa^0.5, xD = %.4f",
-                                                 fmt_r(d, reflux), fload, xd)
-                                       : doc_str(d, "R = %s, xD = %.4f", fmt_r(d, reflux), xd);
-    add_item(it, &n, "condition", at);
-    add_item(it, &n, "stages (the pot included)",
-             doc_str(d, "%.3f (%.0f %% prediction interval %.3f \xe2\x80\x93 %.3f)", p.stages,
-                     100 * m->level, p.pi_low, p.pi_high));
+    const char *at = m->form.uses_load
+                         ? report_doc_str(d, "R = %s, F = %.4g Pa^0.5, xD = %.4f",
+                                          report_doc_fmt_r(d, reflux), fload, xd)
+                         : report_doc_str(d, "R = %s, xD = %.4f", report_doc_fmt_r(d, reflux), xd);
+    report_doc_add_item(it, &n, "condition", at);
+    report_doc_add_item(it, &n, "stages (the pot included)",
+                        report_doc_str(d,
+                                       "%.3f (%.0f %% prediction interval %.3f \xe2\x80\x93 %.3f)",
+                                       p.stages, 100 * m->level, p.pi_low, p.pi_high));
     double xb = NAN, xb_lo = NAN, xb_hi = NAN;
     const char *txt = doc_step_xb(d, vle, xd, reflux, p.stages, &xb, err, &rc);
     if (txt) /* more stages reach a leaner pot: the interval's high end gives the low xB */
-        add_item(it, &n, "pot composition reached, xB", txt);
+        report_doc_add_item(it, &n, "pot composition reached, xB", txt);
     const char *t_lo = txt ? doc_step_xb(d, vle, xd, reflux, p.pi_high, &xb_lo, err, &rc) : NULL;
     const char *t_hi = t_lo ? doc_step_xb(d, vle, xd, reflux, p.pi_low, &xb_hi, err, &rc) : NULL;
     if (t_lo && t_hi)
-        add_item(it, &n, "xB over the prediction interval",
-                 isfinite(xb_lo) && isfinite(xb_hi)
-                     ? doc_str(d, "%.4f \xe2\x80\x93 %.4f", xb_lo, xb_hi)
-                     : doc_str(d, "%s \xe2\x80\x93 %s", t_lo, t_hi));
-    add_item(it, &n, "inside the fitted envelope", p.extrapolated ? "no (extrapolated)" : "yes");
+        report_doc_add_item(it, &n, "xB over the prediction interval",
+                            isfinite(xb_lo) && isfinite(xb_hi)
+                                ? report_doc_str(d, "%.4f \xe2\x80\x93 %.4f", xb_lo, xb_hi)
+                                : report_doc_str(d, "%s \xe2\x80\x93 %s", t_lo, t_hi));
+    report_doc_add_item(it, &n, "inside the fitted envelope",
+                        p.extrapolated ? "no (extrapolated)" : "yes");
     if (p.extrapolated)
-        add_warning(d, doc_str(d,
-                               "the stated condition (%s) lies outside the fitted envelope: "
-                               "its stage count is extrapolated",
-                               at));
+        add_warning(d, report_doc_str(d,
+                                      "the stated condition (%s) lies outside the fitted envelope: "
+                                      "its stage count is extrapolated",
+                                      at));
     if (rc == STAGECAL_OK && isfinite(xb)) {
         rc = stagecal_plot_mccabe_condition(vle, xd, NAN, reflux, p.stages, 1.0,
                                             &d->charts[d->n_charts], err);
         if (rc == STAGECAL_OK) {
             d->figs[d->n_charts].chart = d->charts[d->n_charts];
-            d->figs[d->n_charts].caption =
-                doc_str(d,
-                        "McCabe\xe2\x80\x93Thiele stepping of the model's %.3f stages at %s on the "
-                        "model's equilibrium (E_MV = 1): the pot reaches xB = %.4f.",
-                        p.stages, at, xb);
+            d->figs[d->n_charts].caption = report_doc_str(
+                d,
+                "McCabe\xe2\x80\x93Thiele stepping of the model's %.3f stages at %s on the "
+                "model's equilibrium (E_MV = 1): the pot reaches xB = %.4f.",
+                p.stages, at, xb);
             d->n_charts++;
         }
     }
     stagecal_vle_free(own);
     if (rc == STAGECAL_OK && d->oom)
         rc = error_set(err, STAGECAL_ENOMEM, "out of memory building the report");
+    if (rc)
+        return rc;
+    if (rc == STAGECAL_OK)
+        rc = doc_answer(d, m, reflux, m->form.uses_load ? fload : NAN, "the stated condition", err);
     if (rc)
         return rc;
     d->rep.condition = d->cond;

@@ -258,6 +258,31 @@ static void demo_model(stagecal_model *m)
         fail_msg("demo model: %s", err.text);
 }
 
+/* The HETP item on page one at reflux r: H/(N(r) − 1) with N = a·(1 − exp(−b·R)) (the
+ * saturating form, form.h) and the endpoint-mapped interval H/(N − 1 ± t·se) with se =
+ * sqrt(gᵀCg), g = (1 − e^(−bR), a·R·e^(−bR)) (delta method; at R = inf g = (1, 0)) and
+ * t(0.975, 10) = 2.228138851986274 (Student t table). The report prints three decimals:
+ * tolerance 6e-4 m (half a unit plus rounding of the inputs). */
+static void check_answer_hetp(const stagecal_report *rep, double r)
+{
+    const double a = 9.2, b = 0.55, h = 4.2, t = 2.228138851986274;
+    double e = isinf(r) ? 0 : exp(-b * r);
+    double n = a * (1 - e) - 1, g0 = 1 - e, g1 = isinf(r) ? 0 : a * r * e;
+    double se = sqrt(0.04 * g0 * g0 + 0.0025 * g1 * g1);
+    const char *v = NULL;
+    for (size_t i = 0; i < rep->n_answer; i++)
+        if (strncmp(rep->answer[i].key, "HETP at R = ", 12) == 0)
+            v = rep->answer[i].value;
+    if (!v)
+        fail_msg("no HETP item on page one");
+    double got, lo, hi;
+    if (sscanf(v, "%lf m (95 %% interval %lf \xe2\x80\x93 %lf m)", &got, &lo, &hi) != 3)
+        fail_msg("HETP item '%s'", v);
+    assert_abs(got, h / n, 6e-4, "HETP = H/(N - 1) at the answer's R");
+    assert_abs(lo, h / (n + t * se), 6e-4, "HETP low end");
+    assert_abs(hi, h / (n - t * se), 6e-4, "HETP high end");
+}
+
 static void report_from_model_fills_sections(void **state)
 {
     (void)state;
@@ -286,12 +311,28 @@ static void report_from_model_fills_sections(void **state)
              9.2 + 2.228138851986274 * 0.2);
     assert_string_equal(rep->fit->cells[3], want);
     assert_string_equal(rep->fit->cells[2], "0.2");
-    assert_int_equal(rep->n_hetp, 3);
+    /* page one: HETP at the answer's condition, the model's reference R = 3 */
+    assert_int_equal(rep->n_hetp, 0);
+    assert_non_null(strstr(rep->answer_heading, "R = 3"));
+    check_answer_hetp(rep, 3.0);
+    assert_true(rep->signoff);
     char *html = NULL;
     assert_int_equal(stagecal_report_html(rep, NULL, &html, NULL, &err), STAGECAL_OK);
     assert_non_null(strstr(html, "D-101"));
     assert_non_null(strstr(html, "0f1e2d3c4b5a6978"));
-    assert_non_null(strstr(html, "id=\"hetp\""));
+    assert_non_null(strstr(html, "id=\"answer\""));
+    assert_non_null(strstr(html, "Prepared by"));
+    assert_non_null(strstr(html, "Checked by"));
+    assert_non_null(strstr(html, "Approved by"));
+    /* the answer comes first, then the caution, then the sign-off; no demo banner for a
+     * column file that does not say its data are invented */
+    assert_true(strstr(html, "id=\"answer\"") < strstr(html, "id=\"caution\""));
+    assert_true(strstr(html, "id=\"caution\"") < strstr(html, "id=\"signoff\""));
+    assert_true(strstr(html, "id=\"signoff\"") < strstr(html, "id=\"fit\""));
+    assert_null(strstr(html, "INVENTED DEMO DATA"));
+    /* human labels, not the model file's keys */
+    assert_null(strstr(html, ">alpha<"));
+    assert_non_null(strstr(html, "relative volatility"));
     assert_int_equal(count(html, "<svg class=\"stagecal-figure\""), 2);
     free(html);
     stagecal_report_doc_free(doc);
@@ -349,6 +390,9 @@ static void report_condition_matches_closed_forms(void **state)
             assert_abs(n_back, p.stages, 5e-3, "Smoker stages at the reported xB");
             assert_int_equal(rep->n_warnings, 0);
         }
+        /* page one answers at the stated condition, HETP at that same R */
+        check_answer_hetp(rep, r);
+        assert_non_null(strstr(rep->answer_heading, k == 0 ? "R = inf" : "R = 3"));
         assert_true(xb_lo < xb);             /* more stages, leaner pot */
         assert_int_equal(rep->n_figures, 2); /* the fit, the McCabe–Thiele chart */
         char *html = NULL;
@@ -446,10 +490,43 @@ static void report_cli_writes_files(void **state)
     assert_true(WIFEXITED(rc) && WEXITSTATUS(rc) == 66);
 }
 
+/* Words a reviewer signs: a fit with no residual scatter says so in words (never
+ * "σ 0"), and a column file that calls its data invented puts the banner on page one. */
+static void report_words_for_a_reviewer(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_error err;
+    demo_model(&m);
+    m.sigma = 0;
+    stagecal_report_doc *doc = NULL;
+    assert_int_equal(stagecal_report_from_model(&m, NULL, &doc, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_report_doc_set_description(doc, "Plant column D-101, repacked"),
+                     STAGECAL_OK);
+    const stagecal_report *rep = stagecal_report_doc_content(doc);
+    assert_null(rep->demo_notice);
+    assert_int_equal(stagecal_report_doc_set_description(
+                         doc, "INVENTED DEMO: a fictional column of a fictional site"),
+                     STAGECAL_OK);
+    char *html = NULL;
+    assert_int_equal(stagecal_report_html(rep, NULL, &html, NULL, &err), STAGECAL_OK);
+    assert_null(strstr(html, "\xcf\x83 0"));
+    assert_null(strstr(html, "sigma 0"));
+    assert_non_null(strstr(html, "none measurable"));
+    assert_non_null(strstr(html, "No residual scatter"));
+    const char *banner = strstr(html, "INVENTED DEMO DATA");
+    assert_non_null(banner);
+    assert_true(banner < strstr(html, "id=\"answer\""));
+    free(html);
+    stagecal_report_doc_free(doc);
+    stagecal_model_free(&m);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(report_caution_matches_design),
+        cmocka_unit_test(report_words_for_a_reviewer),
         cmocka_unit_test(report_minimal_has_caution_only),
         cmocka_unit_test(report_full_is_self_contained),
         cmocka_unit_test(report_refuses_bad_content),

@@ -54,6 +54,7 @@ typedef struct {
 
 typedef struct {
     char id[STAGECAL_NAME_MAX];   /* column id, stagecal_convention_id_valid (fits/<id>/) */
+    char description[512];        /* the file's free text ("" when absent; cut at 511 bytes) */
     double height_m;              /* packed height [m] (0 = trayed or unknown) */
     double diameter_m;            /* inside diameter [m] (0 = unknown) */
     int trays;                    /* number of actual trays (0 = packed or unknown) */

@@ -16,6 +16,7 @@
 
 #include <stddef.h>
 
+#include "stagecal/calibrate.h"
 #include "stagecal/error.h"
 #include "stagecal/model.h"
 #include "stagecal/plot.h"
@@ -80,6 +81,24 @@ typedef struct {
     size_t n_warnings;
 
     const char *generator; /* "stagecal 0.1.0" in the footer; NULL → stagecal_version() */
+
+    /* Page one, "The answer" (printed alone on the first A4 page with the caution and the
+     * sign-off block): the condition and what the fit says there, in words a reviewer
+     * signs; no raw keys. */
+    const char *answer_heading;         /* e.g. "Stages at R = 5, F = 1.47 Pa^0.5" */
+    const stagecal_report_item *answer; /* stages with interval, HETP at the same condition */
+    size_t n_answer;
+    const char *const *verdicts; /* one sentence each, e.g. "inside the fitted envelope" */
+    size_t n_verdicts;
+    const char *data_period; /* "2025-01-02 06:00 to 2025-03-28 17:10 UTC (18 runs)" */
+    int signoff;             /* 1: a prepared / checked / approved block with blank lines */
+
+    /* The evidence behind the answer (after page one, before the fits). */
+    const stagecal_report_table *runs;      /* per run: windows found, used, left out and why */
+    const stagecal_report_table *closure;   /* per run: Rayleigh closure and analyser checks */
+    const stagecal_report_table *fit_other; /* the fit in the other space, for comparison */
+    const stagecal_report_item *fit_other_summary;
+    size_t n_fit_other_summary;
 } stagecal_report;
 
 /* Rendering parameters. */
@@ -135,6 +154,20 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
 int stagecal_report_doc_add_condition(stagecal_report_doc *doc, const stagecal_model *m,
                                       const stagecal_vle *vle, double xd, double reflux,
                                       double fload, stagecal_error *err);
+/* The column file's free-text description: when it says the data are invented (the
+ * words "invented" or "fictional", any case), the report opens with an "INVENTED DEMO
+ * DATA" banner quoting it and page one says so. Other text: no effect. ENOMEM. */
+int stagecal_report_doc_set_description(stagecal_report_doc *doc, const char *description);
+/* What a calibration adds to the report of its model (doc built by
+ * stagecal_report_from_model from &cal->model; a stated condition, if any, added first):
+ * the runs table (windows found, used, with a stage count; runs left out with the
+ * reason), the windows table (replacing the points table), the Rayleigh closure of every
+ * run, the fit in the other space with its residual scatter, page-one verdicts (runs
+ * left out, the two fits agreeing at the answer's condition) and, from the column file's
+ * description, the invented-data banner. The document copies what it shows; cal may be
+ * freed afterwards. Errors: EINVAL (NULL, added twice), ENOMEM. */
+int stagecal_report_doc_add_calibration(stagecal_report_doc *doc, const stagecal_calibration *cal,
+                                        stagecal_error *err);
 /* The report inside a document (valid until stagecal_report_doc_free). */
 const stagecal_report *stagecal_report_doc_content(const stagecal_report_doc *doc);
 /* Chart k (0-based) of the document, NULL when k is out of range. */

@@ -227,6 +227,8 @@ static int write_report(const stagecal_calibration *cal, atomic_file *a, const c
     stagecal_error_clear(&err);
     rc = stagecal_report_from_model(&cal->model, pts.n ? &pts : NULL, &doc, &err);
     if (rc == STAGECAL_OK)
+        rc = stagecal_report_doc_add_calibration(doc, cal, &err);
+    if (rc == STAGECAL_OK)
         rc = stagecal_report_html(stagecal_report_doc_content(doc), NULL, &html, &n, &err);
     if (rc == STAGECAL_OK)
         rc = atomic_write(a, html, n, path, &err);
