@@ -20,17 +20,21 @@
 
 static const struct cli_usage usage = {
     "usage: stagecal report MODEL.json [--points POINTS.csv] [--output OUT.html]\n"
-    "                       [--xd XD --reflux R|inf [--f-factor F] [--column FILE]]\n"
+    "                       [--xd XD --reflux R|inf [--f-factor F]] [--column FILE]\n"
     "                       [--json] [--quiet]\n",
-    "Writes one self-contained HTML report for the calibration in MODEL.json: the job\n"
-    "and data provenance (inputs with SHA-256), the fit table, residual sigma and\n"
-    "degrees of freedom, the envelope, HETP where the packed height is known, warnings\n"
-    "(extrapolation beyond the envelope), stages against R with confidence and\n"
-    "prediction bands, and the caution. The page has inline SVG charts, no scripts and\n"
-    "no network resources, and prints to A4. --xd, --reflux and --f-factor state a\n"
-    "condition: the report adds the model's stages there with their prediction\n"
-    "interval, the pot composition they reach below a distillate of XD and a\n"
-    "McCabe-Thiele chart.\n",
+    "Writes one self-contained HTML report for the calibration in MODEL.json, for a\n"
+    "reviewer to sign. Page one is the answer: the stages at the condition (stated by\n"
+    "--reflux/--f-factor, else the model's HETP reference condition) with their\n"
+    "interval ('at least N' for a one-sided fit), HETP at that same condition, verdicts\n"
+    "in words (inside or outside the fitted envelope, precision), the data period, the\n"
+    "caution and a prepared / checked / approved sign-off block; an INVENTED DEMO DATA\n"
+    "banner when the column file's description calls the data invented. Then warnings,\n"
+    "the fit table, the charts (stages against R with bands and envelope) and the\n"
+    "provenance (inputs with SHA-256). Inline SVG, no scripts, no network resources;\n"
+    "prints to A4 with page numbers. --xd with --reflux also adds the pot composition\n"
+    "the stages reach below a distillate of XD and a McCabe-Thiele chart. The report\n"
+    "that 'calibrate --report-out' writes adds the runs, windows and closure tables\n"
+    "and the fit in the other space.\n",
     "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal,\n"
     "73 output cannot be written.\n"};
 
@@ -93,6 +97,27 @@ static int add_condition(stagecal_report_doc *doc, const stagecal_model *m, cons
     return rc;
 }
 
+/* The column file's description (for the invented-data banner): from --column, else from
+ * the column file the model was fitted with (its first input, when it is still there and
+ * is the same column). Best effort: a file that is gone or differs gives no banner. */
+static void describe(stagecal_report_doc *doc, const stagecal_model *m, const char *column_path)
+{
+    const char *path = column_path;
+    for (size_t i = 0; !path && i < m->n_inputs; i++) {
+        size_t n = strlen(m->inputs[i].path);
+        if (n > 5 && strcmp(m->inputs[i].path + n - 5, ".json") == 0)
+            path = m->inputs[i].path;
+    }
+    stagecal_column col;
+    stagecal_error e;
+    stagecal_error_clear(&e);
+    if (!path || stagecal_column_load(path, &col, &e) != STAGECAL_OK)
+        return;
+    if (strcmp(col.id, m->column_id) == 0)
+        (void)stagecal_report_doc_set_description(doc, col.description);
+    stagecal_column_free(&col);
+}
+
 static int print_result(const stagecal_report *rep, const char *model_path, const char *output,
                         int json, int to_stdout)
 {
@@ -123,8 +148,10 @@ int cmd_report(int argc, char **argv, cli_ctx *ctx)
         OPT_XD(&xd),
         OPT_REFLUX(&reflux, "reflux ratio of the stated condition, >= 0 or 'inf'"),
         OPT_FFACTOR(&fload, "F-factor [Pa^0.5] of the stated condition (for a form that uses it)"),
-        OPT_COLUMN(&column_path, "the equilibrium for the condition from this column file (for a\n"
-                                 "model file that does not record it; same column id)"),
+        OPT_COLUMN(&column_path, "the column file (same column id): the equilibrium for the\n"
+                                 "condition when the model file does not record it, and the\n"
+                                 "description (data called invented get a banner); default:\n"
+                                 "the column file the model was fitted with, if still there"),
         OPT_OUTPUT(&output, "the HTML file (default: MODEL with .json replaced by .html);\n"
                             "'-' writes the HTML to standard output (not with --json)"),
         OPT_END_COMMON(ctx),
@@ -143,9 +170,6 @@ int cmd_report(int argc, char **argv, cli_ctx *ctx)
         return cli_usage_error("options '--xd' and '--reflux' go together (a stated condition)");
     if (!isnan(fload) && isnan(xd))
         return cli_usage_error("option '--f-factor' needs '--xd' and '--reflux'");
-    if (column_path && isnan(xd))
-        return cli_usage_error("option '--column' needs '--xd' and '--reflux' (it gives the "
-                               "condition's equilibrium)");
     int to_stdout = output && strcmp(output, "-") == 0;
     if (to_stdout && json)
         return cli_usage_error("options '--json' and '--output -' both write to standard output");
@@ -184,6 +208,8 @@ int cmd_report(int argc, char **argv, cli_ctx *ctx)
         rc = stagecal_report_from_model(&m, have_pts ? &pts : NULL, &doc, &err);
         from_files = 1;
     }
+    if (rc == STAGECAL_OK)
+        describe(doc, &m, column_path);
     if (rc == STAGECAL_OK && !isnan(xd)) {
         if ((rc = load_usage(&m, fload)) != 0) {
             stagecal_report_doc_free(doc);
