@@ -115,7 +115,7 @@ static const char css[] =
     ".warn li{margin:.2em 0}"
     ".caution{border:2px solid #333;padding:.1em 1em .6em;background:#f4f4f4;margin-top:1em}"
     ".caution h2{margin-top:.6em}"
-    "table.signoff{width:100%}table.signoff td{height:2.6em}"
+    "table.signoff{width:100%}table.signoff td{height:2.2em}"
     "table.signoff th:first-child{width:8em}"
     "dl.kv{display:grid;grid-template-columns:max-content auto;gap:.15em 1.2em}"
     "dl.kv dt{font-weight:bold}dl.kv dd{margin:0}"
@@ -124,7 +124,7 @@ static const char css[] =
     "th,td{border:1px solid #bbb;padding:.2em .5em;text-align:left;vertical-align:top}"
     "th{background:#eef4f9}td{font-variant-numeric:tabular-nums}"
     "table.runs td:first-child,table.windows td:first-child,table.closure td:first-child,"
-    "table.windows td:nth-child(3){white-space:nowrap}"
+    "table.windows td:nth-child(3),table.runs td:nth-child(2){white-space:nowrap}"
     "code,.hash{font-family:'DejaVu Sans Mono',monospace;font-size:.85em;word-break:break-all}"
     "table.inputs td{word-break:break-all}"
     "figure{margin:1em 0;break-inside:avoid;page-break-inside:avoid}"
@@ -135,10 +135,10 @@ static const char css[] =
     "@bottom-center{content:'page ' counter(page) ' of ' counter(pages);font-size:8pt;"
     "color:#555}}"
     "@media print{body{max-width:none;margin:0;padding:0;"
-    "font-size:10pt}h2{break-after:avoid;page-break-after:avoid}"
+    "font-size:9.5pt}h2{break-after:avoid;page-break-after:avoid;margin-top:1.1em}"
     ".page-one.break{break-after:page;page-break-after:always}"
-    "table,dl.kv,.caution,.warn,.signoff,.demo,section.keep{break-inside:avoid;"
-    "page-break-inside:avoid}"
+    "dl.kv,.caution,.warn,.signoff,.demo,section.keep,tr{break-inside:avoid;"
+    "page-break-inside:avoid}thead{display:table-header-group}"
     "svg.stagecal-figure{border:none;max-height:120mm}}";
 
 static void put_items(buf *b, const stagecal_report_item *it, size_t n)

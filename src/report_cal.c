@@ -213,17 +213,18 @@ static void other_fit(stagecal_report_doc *d, const stagecal_calibration *cal)
         report_doc_add_verdict(
             d, report_doc_str(d,
                               "The %s and %s fits agree here: %.2f and %.2f stages, a "
-                              "difference of %.2f within twice their combined standard error "
-                              "(%.2f).",
+                              "difference of %.2f stages, within twice their combined "
+                              "standard error (2 \xc3\x97 %.2f).",
                               used, name, p.stages, b.value, diff, comb));
     else
         report_doc_add_verdict(
-            d, report_doc_str(d,
-                              "The %s and %s fits DISAGREE here: %.2f and %.2f stages, a "
-                              "difference of %.2f, more than twice their combined standard "
-                              "error (%.2f); look at the windows and the closures before "
-                              "relying on either.",
-                              used, name, p.stages, b.value, diff, comb));
+            d, report_doc_str(
+                   d,
+                   "The %s and %s fits DISAGREE here: %.2f and %.2f stages, a "
+                   "difference of %.2f stages, more than twice their combined "
+                   "standard error (2 \xc3\x97 %.2f); look at the windows and the closures before "
+                   "relying on either.",
+                   used, name, p.stages, b.value, diff, comb));
 }
 
 static void runs_verdict(stagecal_report_doc *d, const stagecal_calibration *cal)
@@ -244,23 +245,21 @@ static void runs_verdict(stagecal_report_doc *d, const stagecal_calibration *cal
             found += cal->res.windows[w].run == r;
         none += found == 0;
     }
-    if (out == 0)
-        report_doc_add_verdict(
-            d, report_doc_str(d,
-                              "No run was left out: none of the %zu runs failed its pot "
-                              "balance or showed analyser drift.",
-                              cal->log->nruns));
-    else
-        report_doc_add_verdict(
-            d, report_doc_str(d,
-                              "%zu of %zu runs left out of the fit (%s): a gross closure "
-                              "error or analyser drift; the reasons are in the evidence "
-                              "table.",
-                              out, cal->log->nruns, names));
+    char tail[120] = "";
     if (none > 0)
-        report_doc_add_verdict(
-            d, report_doc_str(d, "%zu run%s gave no quasi-steady window and add%s no evidence.",
-                              none, none == 1 ? "" : "s", none == 1 ? "s" : ""));
+        snprintf(tail, sizeof tail, "; %zu gave no quasi-steady window and add no evidence", none);
+    if (out == 0)
+        report_doc_add_verdict(d, report_doc_str(d,
+                                                 "No run was left out: none of the %zu runs "
+                                                 "failed its pot balance or showed analyser "
+                                                 "drift%s.",
+                                                 cal->log->nruns, tail));
+    else
+        report_doc_add_verdict(d, report_doc_str(d,
+                                                 "%zu of %zu runs left out of the fit (%s): a "
+                                                 "gross closure error or analyser drift, "
+                                                 "reasons in the evidence table%s.",
+                                                 out, cal->log->nruns, names, tail));
 }
 
 int stagecal_report_doc_add_calibration(stagecal_report_doc *d, const stagecal_calibration *cal,

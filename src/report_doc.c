@@ -386,11 +386,9 @@ int stagecal_report_doc_set_description(stagecal_report_doc *d, const char *desc
     if (strstr(low, "invented") || strstr(low, "fictional")) {
         d->rep.demo_notice =
             report_doc_str(d,
-                           "the column file describes these data as invented: \"%s\". The "
-                           "numbers describe no real column.",
+                           "the column file says \xe2\x80\x9c%s\xe2\x80\x9d: these numbers "
+                           "describe no real column",
                            description);
-        report_doc_add_verdict(d, "INVENTED DEMO DATA: this report shows how the method works; "
-                                  "it says nothing about a real column.");
     }
     return d->oom ? STAGECAL_ENOMEM : STAGECAL_OK;
 }

@@ -14,6 +14,11 @@
 #   2. A screenshot of the unmodified report, as tall as the page, is not blank, and
 #      each figure's region in it holds non-white pixels (≥ 2 % of its area: axes, text
 #      and curves of our charts cover far more; a missing image leaves 0).
+#   3. Printed to A4 (--print-to-pdf, the report's own @page rules): page one (the answer,
+#      the caution and the sign-off; everything after it hidden) fits on one sheet, and
+#      the caution is never alone on a page: hiding it leaves the page count unchanged.
+#      Negative control: a copy that pushes the caution onto a page of its own must add
+#      a page, or the check is blind.
 # Exit 77 (ctest SKIP_RETURN_CODE) when chromium or Python's PIL is not installed.
 set -u
 bin=$1
@@ -33,16 +38,14 @@ fi
 work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
 html=$work/demo_report.html
-# The demo calibration's report (invented demo data, datasets/demo): calibrate one quarter
-# of logs, then write the report with the window evidence as points.
+# The demo calibration's report as the README's quick start writes it (invented demo data,
+# datasets/demo: one quarter of logs, calibrate --report-out).
 demo=$root/datasets/demo/logs
 "$bin" calibrate --column "$root/datasets/columns/demo_benzene_toluene.json" \
-    --fits "$work/fits" --points-out "$work/points.csv" --quiet --json \
+    --fits "$work/fits" --report-out "$html" --quiet --json \
     "$demo/2025-01.csv" "$demo/2025-02.csv" "$demo/2025-03.csv" >"$work/cal.json" ||
     { echo "FAIL: calibrate on the demo data"; exit 1; }
 model=$("$py" -c "import json,sys; print(json.load(open(sys.argv[1]))['model_file'])" "$work/cal.json")
-"$bin" report "$model" --points "$work/points.csv" -o "$html" --quiet ||
-    { echo "FAIL: report on the demo model"; exit 1; }
 
 chrome() {
     profile=$(mktemp -d "$work/profile.XXXXXX")
@@ -74,14 +77,34 @@ if [ ! -s "$work/page.png" ]; then
     exit 1
 fi
 
-"$py" - "$work/page.png" "$title" "$figures" <<'EOF'
+# 3. A4 print: pages of the report, of page one alone, without the caution, and of the
+# negative control (the caution on a sheet of its own)
+pages() { # html → number of A4 pages Chromium prints
+    chrome --no-pdf-header-footer --print-to-pdf="$work/p.pdf" "file://$1" >/dev/null
+    "$py" -c 'import re,sys; print(len(re.findall(rb"/Type\s*/Page[^s]", open(sys.argv[1],"rb").read())))' "$work/p.pdf"
+}
+sed 's#</head>#<style>\#caution{display:none!important}</style></head>#' "$html" >"$work/nocaution.html"
+sed 's#</head>#<style>\#caution{break-before:page!important;break-after:page!important}</style></head>#' "$html" >"$work/control.html"
+sed 's#</head>#<style>.page-one~*{display:none!important}</style></head>#' "$html" >"$work/one.html"
+n_all=$(pages "$html")
+n_one=$(pages "$work/one.html")
+n_noc=$(pages "$work/nocaution.html")
+n_ctl=$(pages "$work/control.html")
+echo "A4 pages: report $n_all, page one alone $n_one, without the caution $n_noc, caution forced alone $n_ctl"
+print_ok=1
+[ "$n_all" -ge 2 ] || { echo "FAIL: the report printed $n_all page(s)"; print_ok=0; }
+[ "$n_one" -eq 1 ] || { echo "FAIL: page one (answer, caution, sign-off) takes $n_one sheets"; print_ok=0; }
+[ "$n_noc" -eq "$n_all" ] || { echo "FAIL: the caution has a page of its own ($n_all pages with it, $n_noc without)"; print_ok=0; }
+[ "$n_ctl" -gt "$n_noc" ] || { echo "FAIL: negative control: a caution forced onto its own page was not detected"; print_ok=0; }
+
+"$py" - "$work/page.png" "$title" "$figures" "$print_ok" <<'EOF'
 import sys
 from PIL import Image
-png, title, want = sys.argv[1], sys.argv[2], int(sys.argv[3])
+png, title, want, print_ok = sys.argv[1], sys.argv[2], int(sys.argv[3]), sys.argv[4] == "1"
 im = Image.open(png).convert("RGB")
 W, H = im.size
 px = im.load()
-ok = True
+ok = print_ok
 # page not blank: well over 1 % of the pixels carry ink, and many colours
 hist = im.getcolors(maxcolors=1 << 24)
 white = sum(c for c, rgb in hist if rgb == (255, 255, 255))

@@ -1,0 +1,165 @@
+/*
+ * tool_chart_pages.c — writes the charts of stagecal as two HTML pages for the headless
+ * Chromium test (tests/chart_render.sh): every chart once with its legend and once
+ * without, in the same order and size, so that the legend is exactly where the two
+ * screenshots differ.
+ *
+ * Charts: the report's (stages against R with bands and envelope, residuals, the
+ * McCabe–Thiele stepping at R = 3, xD = 0.95) from a calibration of the invented demo
+ * logs; a trend chart and a batch chart on invented numbers; and a known case for the
+ * legend test: vermilion markers that fill three quarters of the plot box (top left,
+ * bottom left, bottom right) and leave the top-right quarter empty, so a legend that
+ * covers no data has exactly one corner to go to.
+ *
+ * usage: tool_chart_pages COLUMN.json OUTDIR LOG.csv...
+ * writes OUTDIR/on.html, OUTDIR/off.html and OUTDIR/names.txt (one chart name a line).
+ */
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "stagecal/calibrate.h"
+#include "stagecal/plot.h"
+#include "stagecal/report.h"
+
+#define MAXC 12
+#define NK 60 /* markers in each filled quarter of the known case */
+
+static int fail(const char *what, const stagecal_error *err)
+{
+    fprintf(stderr, "tool_chart_pages: %s: %s\n", what, err->text);
+    return 1;
+}
+
+int main(int argc, char **argv)
+{
+    if (argc < 4) {
+        fprintf(stderr, "usage: tool_chart_pages COLUMN.json OUTDIR LOG.csv...\n");
+        return 2;
+    }
+    const char *column = argv[1], *outdir = argv[2];
+    stagecal_error err;
+    stagecal_calibration cal;
+    stagecal_calibrate_params par = stagecal_calibrate_default_params();
+    if (stagecal_calibrate(column, (const char *const *)argv + 3, (size_t)(argc - 3), &par, &cal,
+                           &err))
+        return fail("calibrate", &err);
+    double *buf = malloc((cal.evidence.n + 1) * 4 * sizeof *buf);
+    stagecal_regress_data pts;
+    if (!buf)
+        return 1;
+    stagecal_evidence_points(cal.evidence.ev, cal.evidence.n, buf, &pts);
+    stagecal_report_doc *doc = NULL;
+    if (stagecal_report_from_model(&cal.model, &pts, &doc, &err) ||
+        stagecal_report_doc_add_condition(doc, &cal.model, NULL, 0.95, 3, NAN, &err))
+        return fail("report", &err);
+
+    stagecal_plot_chart charts[MAXC];
+    const char *names[MAXC];
+    stagecal_plot_chart *own[MAXC] = {0};
+    size_t n = 0;
+    static const char *const doc_names[] = {"fit", "residuals", "mccabe"};
+    for (size_t k = 0; k < 3 && stagecal_report_doc_chart(doc, k); k++) {
+        charts[n] = *stagecal_report_doc_chart(doc, k);
+        names[n++] = doc_names[k];
+    }
+
+    /* trend: twelve monthly calibrations losing 0.1 stage a month (invented), its line,
+     * control limits, a forecast with band and the specification */
+    double tt[12], ts[12], lt[2], ll[2], ft[6], fc[6], flo[6], fhi[6];
+    int alarm[12] = {0};
+    for (int i = 0; i < 12; i++) {
+        tt[i] = 1735689600.0 + i * 30.4 * 86400; /* 2025-01-01 onwards */
+        ts[i] = 9.0 - 0.1 * i + 0.15 * sin(1.7 * i);
+    }
+    alarm[11] = 1;
+    lt[0] = tt[0], lt[1] = tt[11], ll[0] = 9.0, ll[1] = 7.9;
+    for (int i = 0; i < 6; i++) {
+        ft[i] = tt[11] + i * 30.4 * 86400;
+        fc[i] = 7.9 - 0.1 * i;
+        flo[i] = fc[i] - 0.1 - 0.08 * i;
+        fhi[i] = fc[i] + 0.1 + 0.08 * i;
+    }
+    stagecal_plot_trend_data td = {tt,  ts, 12, alarm, lt,  ll, 2,   7.6,
+                                   9.4, ft, fc, flo,   fhi, 6,  7.5, NULL};
+    if (stagecal_plot_trend(&td, &own[n], &err))
+        return fail("trend chart", &err);
+    charts[n] = *own[n];
+    names[n++] = "trend";
+
+    /* batch: xD and xB of a 6 h batch with bands and a specification line (invented) */
+    double bt[61], xd[61], xdl[61], xdh[61], xb[61], xbl[61], xbh[61];
+    for (int i = 0; i < 61; i++) {
+        double h = 0.1 * i;
+        bt[i] = 3600 * h;
+        xd[i] = 0.97 - 0.004 * h * h, xdl[i] = xd[i] - 0.01, xdh[i] = xd[i] + 0.01;
+        xb[i] = 0.5 * exp(-0.2 * h), xbl[i] = xb[i] - 0.02, xbh[i] = xb[i] + 0.02;
+    }
+    stagecal_plot_batch_curve bc[2] = {{"xD", xd, xdl, xdh}, {"xB", xb, xbl, xbh}};
+    stagecal_plot_batch_data bd = {bt, 61, bc, 2, "mole fraction of benzene [mol/mol]", 0.85, NULL};
+    if (stagecal_plot_batch(&bd, &own[n], &err))
+        return fail("batch chart", &err);
+    charts[n] = *own[n];
+    names[n++] = "batch";
+
+    /* the known case: three quarters filled, the top-right quarter empty */
+    static double kx[3 * NK], ky[3 * NK];
+    for (int q = 0; q < 3; q++) {
+        double x0 = q == 2 ? 5.5 : 0.5, y0 = q == 0 ? 5.5 : 0.5;
+        for (int i = 0; i < NK; i++) {
+            kx[q * NK + i] = x0 + 4.0 * (double)(i % 6) / 5.0;
+            ky[q * NK + i] = y0 + 4.0 * (double)(i / 6) / 9.0;
+        }
+    }
+    static const double lx[2] = {0, 10}, ly[2] = {0.2, 0.2};
+    static stagecal_plot_series ks[2];
+    ks[0] = (stagecal_plot_series){
+        STAGECAL_PLOT_POINTS, "data (three quarters)", kx, ky, NULL, 3 * NK, 1, 0, 0, 0};
+    ks[1] = (stagecal_plot_series){STAGECAL_PLOT_LINE, "base line", lx, ly, NULL, 2, 0, 1, 0, 0};
+    memset(&charts[n], 0, sizeof charts[n]);
+    charts[n].title = "Known case: the top-right quarter is empty";
+    charts[n].x_label = "x [-]";
+    charts[n].y_label = "y [-]";
+    charts[n].x_min = 0, charts[n].x_max = 10, charts[n].y_min = 0, charts[n].y_max = 10;
+    charts[n].legend = 1;
+    charts[n].legend_pos = 0; /* tried first: a corner with data, so placement must move it */
+    charts[n].series = ks;
+    charts[n].n_series = 2;
+    names[n++] = "known";
+
+    /* the pages */
+    stagecal_report_figure figs[MAXC];
+    stagecal_plot_chart off[MAXC];
+    for (size_t k = 0; k < n; k++) {
+        charts[k].legend = 1;
+        off[k] = charts[k];
+        off[k].legend = 0;
+    }
+    stagecal_report page = {0};
+    page.title = "stagecal charts (test page)";
+    page.figures = figs;
+    page.n_figures = n;
+    stagecal_report_params rp = stagecal_report_default_params();
+    char path[1024];
+    for (int pass = 0; pass < 2; pass++) {
+        for (size_t k = 0; k < n; k++)
+            figs[k] = (stagecal_report_figure){pass == 0 ? &charts[k] : &off[k], names[k]};
+        snprintf(path, sizeof path, "%s/%s.html", outdir, pass == 0 ? "on" : "off");
+        if (stagecal_report_write(&page, &rp, path, &err))
+            return fail(path, &err);
+    }
+    snprintf(path, sizeof path, "%s/names.txt", outdir);
+    FILE *f = fopen(path, "w");
+    if (!f)
+        return 1;
+    for (size_t k = 0; k < n; k++)
+        fprintf(f, "%s\n", names[k]);
+    fclose(f);
+    for (size_t k = 0; k < n; k++)
+        stagecal_plot_chart_free(own[k]);
+    stagecal_report_doc_free(doc);
+    free(buf);
+    stagecal_calibration_free(&cal);
+    return 0;
+}
