@@ -104,7 +104,7 @@ static void windows_table(stagecal_report_doc *d, const stagecal_calibration *ca
         c[5] = e->has_load ? report_doc_str(d, "%.3g", e->f_load) : "not known";
         c[6] = report_doc_str(d, "%.4f", e->xd);
         c[7] = report_doc_str(d, "%.4f", e->xb);
-        c[8] = e->stages_ok ? report_doc_str(d, "%.2f \xc2\xb1 %.2f", e->stages, e->se_stages)
+        c[8] = e->stages_ok ? report_doc_str(d, "%.4f \xc2\xb1 %.4f", e->stages, e->se_stages)
                             : "none (the samples pinch or are censored; the composition fit "
                               "uses the window)";
     }

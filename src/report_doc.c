@@ -386,8 +386,8 @@ int stagecal_report_doc_set_description(stagecal_report_doc *d, const char *desc
     if (strstr(low, "invented") || strstr(low, "fictional")) {
         d->rep.demo_notice =
             report_doc_str(d,
-                           "the column file says \xe2\x80\x9c%s\xe2\x80\x9d: these numbers "
-                           "describe no real column",
+                           "the column file says \xe2\x80\x9c%s\xe2\x80\x9d \xe2\x80\x94 these "
+                           "numbers describe no real column.",
                            description);
     }
     return d->oom ? STAGECAL_ENOMEM : STAGECAL_OK;

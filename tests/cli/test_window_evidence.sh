@@ -26,14 +26,18 @@ inv = [w for w in json.load(open(d + "/inv.json"))["windows"] if w["stages"] is 
 row = next(csv.DictReader(open(d + "/pts.csv")))
 html = open(d + "/rep.html").read()
 sec = html[html.index('<section id="windows">'):]
-cells = re.findall(r"<td>([^<]*)</td>", sec[: sec.index("</tr>", sec.index("<tbody>"))])
+sec = sec[sec.index("<tbody>"): sec.index("</tbody>")]
+# the report's windows table: the last cell of a row is "stages ± std. error" (4 decimals),
+# or words for a window without a stage count
+cells = next(m.groups() for m in (re.search(r"<td>([0-9.]+) \u00b1 ([0-9.]+)</td></tr>", r)
+                                  for r in sec.split("<tr>")) if m)
 s_inv, u_inv = inv[0]["stages"], inv[0]["se_stages"]
 s_pts, u_pts = float(row["stages"]), float(row["sigma"])
-s_rep, u_rep = float(cells[2]), float(cells[3])
+s_rep, u_rep = float(cells[0]), float(cells[1])
 print("first window: invert %.6f ± %.6f, points %.6f ± %.6f, report %.4f ± %.4f"
       % (s_inv, u_inv, s_pts, u_pts, s_rep, u_rep))
 ok = s_inv == s_pts and u_inv == u_pts
-ok = ok and "%.4f" % s_inv == cells[2] and "%.4f" % u_inv == cells[3]
+ok = ok and "%.4f" % s_inv == cells[0] and "%.4f" % u_inv == cells[1]
 ok = ok and len(inv) == sum(1 for _ in csv.DictReader(open(d + "/pts.csv")))
 sys.exit(0 if ok else 1)
 PYEOF
