@@ -456,9 +456,14 @@ static int run_chain(stagecal_calibration *cal, const char *column_path,
     cal->comp_status = CAL_NOT_RUN;
     cal->cens_status = CAL_NOT_RUN;
     progress(par, "inverting", 0.2);
-    if ((rc = stagecal_runlog_analyse(cal->log, cal->column, &par->analysis, &cal->res, err)) ||
-        (rc = stagecal_runlog_invert(cal->log, cal->column, par->murphree, &par->analysis,
-                                     &cal->res, err)))
+    /* the drift and balance checks see the compensated distillate the evidence will use; with
+     * the compensation off for the fit they still take the column's own (AUTO): the lag of an
+     * uncompensated distillate would read as an analyser drift */
+    stagecal_runlog_analysis_params ap = par->analysis;
+    ap.holdup = par->evidence.holdup == STAGECAL_HOLDUP_COMP_NONE ? STAGECAL_EVIDENCE_HOLDUP_AUTO
+                                                                  : par->evidence.holdup;
+    if ((rc = stagecal_runlog_analyse(cal->log, cal->column, &ap, &cal->res, err)) ||
+        (rc = stagecal_runlog_invert(cal->log, cal->column, par->murphree, &ap, &cal->res, err)))
         return rc;
     progress(par, "windows", 0.5);
     unsigned char *skip = calloc(cal->log->nruns ? cal->log->nruns : 1, 1);

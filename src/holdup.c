@@ -20,6 +20,7 @@
 
 #include "internal.h"
 #include "stagecal/stages.h"
+#include "holdup_internal.h"
 #include "runlog_internal.h"
 
 stagecal_holdup_params stagecal_holdup_default_params(void)
@@ -384,6 +385,17 @@ static void startup_settling(const stagecal_runlog *rl, size_t s, size_t e,
         xd_ss[i] = NAN;
 }
 
+double holdup_row_slope(const stagecal_runlog *log, size_t s, size_t e, size_t i,
+                        const stagecal_holdup_params *params, double u_xd, double *se)
+{
+    stagecal_holdup_params par = params ? *params : stagecal_holdup_default_params();
+    *se = NAN;
+    if (!isfinite(log->xd[i]))
+        return NAN;
+    return row_slope(log, s, e, i, par.slope_half_s, par.half_window < 1 ? 1 : par.half_window,
+                     u_xd, se);
+}
+
 int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup_model *hm,
                                const stagecal_holdup_params *params, double *xd_ss,
                                double *u2_extra, stagecal_error *err)
@@ -391,8 +403,6 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
     if (!log || !hm || !xd_ss || (hm->kind == STAGECAL_HOLDUP_COMP_STAGES && !hm->vle))
         return error_set(err, STAGECAL_EINVAL, "NULL argument");
     stagecal_holdup_params par = params ? *params : stagecal_holdup_default_params();
-    size_t h = par.half_window < 1 ? 1 : par.half_window;
-    double half_s = par.slope_half_s;
     for (size_t i = 0; i < log->n; i++) {
         xd_ss[i] = log->xd[i];
         if (u2_extra)
@@ -413,10 +423,7 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
                 startup_settling(log, s, e, hm->startup ? &hm->startup[k] : NULL, hm->u_xd,
                                  par.settle_factor, xd_ss);
             for (size_t i = s; i < e && isfinite(log->r[s]); i++) {
-                double se_d = NAN;
-                double d = isfinite(log->xd[i])
-                               ? row_slope(log, s, e, i, half_s, h, hm->u_xd, &se_d)
-                               : NAN;
+                double se_d, d = holdup_row_slope(log, s, e, i, &par, hm->u_xd, &se_d);
                 if (!isfinite(d))
                     continue;
                 if (hm->kind == STAGECAL_HOLDUP_COMP_LAG) {
@@ -460,11 +467,13 @@ static double odds(double x)
 
 /* Stages stepped from xD down to the pot at xb on the line y(j+1) = m·x(j) + (1 − m)·xD + g_j
  * with g_j = g0 + gs·Σ_(k≤j) s_k (s: sensitivities, ns of them; beyond, the last one), the
- * first vapour y1 = xD + g0. Whole steps, log-odds fraction of the crossing step. */
+ * first vapour y1 = xD + g0. Whole steps, log-odds fraction of the crossing step. sum_x (may
+ * be NULL): the liquids of the column stages summed, the whole ones plus the fraction f of
+ * the crossing step's liquid where the pot's vapour meets the line. */
 static int count_corrected(const stagecal_vle *vle, double xd, double xb, double m, double g0,
-                           double gs, const double *s, size_t ns, double *count)
+                           double gs, const double *s, size_t ns, double *count, double *sum_x)
 {
-    double ypot, x_prev = xd, y = xd + g0, cum = 0;
+    double ypot, x_prev = xd, y = xd + g0, cum = 0, sx = 0;
     if (stagecal_vle_ystar(vle, xb, &ypot) != STAGECAL_OK)
         return STAGECAL_ENOCONV;
     for (size_t n = 1; n <= 10000; n++) {
@@ -479,11 +488,14 @@ static int count_corrected(const stagecal_vle *vle, double xd, double xb, double
             double lo = odds(x_prev), hi = odds(x), tg = odds(fmin(fmax(x_target, 1e-300), x_prev));
             double f = x_prev > x_target ? log(lo / tg) / log(lo / hi) : 0.0;
             *count = (double)(n - 1) + f + 1.0; /* + the pot */
+            if (sum_x)
+                *sum_x = sx + f * fmin(fmax(x_target, x), x_prev);
             return STAGECAL_OK;
         }
         if (!(x < x_prev))
             return STAGECAL_ENOCONV; /* no progress: a pinch */
         x_prev = x;
+        sx += x;
         y = m * x + (1 - m) * xd + g;
     }
     return STAGECAL_ENOCONV;
@@ -504,7 +516,8 @@ static int plain_profile(const stagecal_vle *vle, double xd, double m, size_t n,
 /* The corrected count with h = holdup/(n_guess − 1) and the sensitivities of ceil(n_guess) + 1
  * plain steps. */
 static int corrected_at(const stagecal_vle *vle, double xd, double xb, double m,
-                        const stagecal_holdup_state *st, double n_guess, double *count)
+                        const stagecal_holdup_state *st, double n_guess, double *count,
+                        double *sum_x)
 {
     size_t nc = (size_t)ceil(n_guess) + 1;
     if (nc > 200)
@@ -517,7 +530,7 @@ static int corrected_at(const stagecal_vle *vle, double xd, double xb, double m,
     double h_stage = n_guess > 1 ? st->holdup_mol / (n_guess - 1) : 0;
     double g0 = st->drum_mol * st->dxd_dt / st->v_mol_s;
     double gs = h_stage * st->dxd_dt / st->v_mol_s;
-    return count_corrected(vle, xd, xb, m, g0, gs, s, nc, count);
+    return count_corrected(vle, xd, xb, m, g0, gs, s, nc, count, sum_x);
 }
 
 int stagecal_holdup_invert(const stagecal_vle *vle, double xd, double xb, double reflux,
@@ -534,11 +547,11 @@ int stagecal_holdup_invert(const stagecal_vle *vle, double xd, double xb, double
                           : error_set(err, STAGECAL_EINVAL, "holdup correction: no plain count");
     double m = reflux / (reflux + 1), c0 = 0, n = plain >= 1 ? plain : 10.0, c1 = n;
     int rc = STAGECAL_OK;
-    if (plain >= 1 && (rc = count_corrected(vle, xd, xb, m, 0, 0, NULL, 0, &c0)))
+    if (plain >= 1 && (rc = count_corrected(vle, xd, xb, m, 0, 0, NULL, 0, &c0, NULL)))
         return error_set(err, rc, "holdup correction: no stage count on the plain line");
     /* fixed point in the stage count that sets the holdup per stage */
     for (int it = 0; it < 20; it++) {
-        if ((rc = corrected_at(vle, xd, xb, m, st, n, &c1)))
+        if ((rc = corrected_at(vle, xd, xb, m, st, n, &c1, NULL)))
             return error_set(err, rc, "holdup correction: no stage count on the corrected line");
         double next = plain >= 1 ? c1 + (plain - c0) : c1;
         if (fabs(next - n) < 1e-9 * n) {
@@ -548,6 +561,27 @@ int stagecal_holdup_invert(const stagecal_vle *vle, double xd, double xb, double
         n = next;
     }
     *stages = n;
+    return STAGECAL_OK;
+}
+
+int holdup_column_light(const stagecal_vle *vle, double xd, double xb, double reflux,
+                        const stagecal_holdup_state *st, double *light_mol)
+{
+    if (!vle || !st || !light_mol || !(xd > xb) || !(xb > 0) || !(xd < 1) || !(reflux > 0) ||
+        !(st->holdup_mol >= 0) || !(st->drum_mol >= 0))
+        return STAGECAL_EINVAL;
+    double m = isinf(reflux) ? 1.0 : reflux / (reflux + 1), n, sx = 0;
+    /* the plain line at total reflux, without a holdup or while xD stands still */
+    int plain = isinf(reflux) || !(st->v_mol_s > 0) || !isfinite(st->dxd_dt) || st->dxd_dt == 0 ||
+                !(st->holdup_mol + st->drum_mol > 0);
+    int rc = count_corrected(vle, xd, xb, m, 0, 0, NULL, 0, &n, plain ? &sx : NULL);
+    double c;
+    if (rc == STAGECAL_OK && !plain &&
+        (rc = stagecal_holdup_invert(vle, xd, xb, reflux, n, st, &c, NULL)) == STAGECAL_OK)
+        rc = corrected_at(vle, xd, xb, m, st, c, &n, &sx);
+    if (rc != STAGECAL_OK)
+        return rc;
+    *light_mol = (n > 1 ? st->holdup_mol / (n - 1) * sx : 0) + st->drum_mol * xd;
     return STAGECAL_OK;
 }
 

@@ -54,7 +54,8 @@ stagecal_runlog_analysis_params stagecal_runlog_analysis_default_params(void)
                                              .outlier_sigmas = 4.0,
                                              .no_distillate_t = 2.0,
                                              .drift_sign_z = 3.0,
-                                             .boilup_sigmas = 3.0};
+                                             .boilup_sigmas = 3.0,
+                                             .holdup = -1};
 }
 
 int stagecal_runlog_rstat(const double *x, size_t n, double l1, double l2, double l3,

@@ -45,6 +45,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "holdup_internal.h"
 #include "internal.h"
 #include "runlog_internal.h"
 #include "stagecal/holdup.h"
@@ -152,10 +153,60 @@ static int line_fit(const double *x, const double *w, const double *y, size_t n,
     return 0;
 }
 
-/* Balance estimates of run k for both hypotheses. Scratch: 4 arrays of the run's length. */
+/* The column's light holdup behind the balance, per row of the log: light[i] [mol] (NAN where
+ * the column's content is not modelled: the row is left out of the balance fit) and
+ * lh[i] = ∂light/∂(column holdup) [-] (0 when the holdup is taken as exact). With the
+ * stage-holdup compensation (STAGES) the content is the pseudo-steady profile of the row
+ * (holdup_column_light: the liquids down the holdup-corrected operating line from the logged
+ * xD at the row's reflux set point, each run's own holdup), on the rows whose distillate the
+ * compensation could take as settled (a finite xd_ss): a column still filling at start-up,
+ * or moving to a new set point, holds an unknown profile. Otherwise the straight profile of
+ * runlog_holdup_light, on every row. */
+static void column_light(const stagecal_runlog *log, const stagecal_column *col,
+                         const holdup_resolved *hr, const double *xd_ss, double *light, double *lh)
+{
+    for (size_t i = 0; i < log->n; i++) {
+        light[i] = runlog_holdup_light(col, log->xd[i], log->xb[i]);
+        lh[i] = 0;
+    }
+    if (hr->kind != STAGECAL_HOLDUP_COMP_STAGES)
+        return;
+    for (size_t k = 0; k < log->nruns; k++) {
+        size_t first = log->runs[k].first, end = first + log->runs[k].n;
+        double hk = hr->run_h[k];
+        for (size_t s = first; s < end;) {
+            size_t e = s + 1;
+            while (e < end && runlog_rset(log, e) == runlog_rset(log, s))
+                e++;
+            for (size_t i = s; i < e; i++) {
+                double r = runlog_rset(log, i), se, l;
+                double v = log->v_mol_s ? log->v_mol_s[i] : NAN;
+                double d = isfinite(r) ? holdup_row_slope(log, s, e, i, NULL, col->u.xd, &se) : 0;
+                stagecal_holdup_state st = {isfinite(hk) ? hk : 0, hr->drum_mol, v, d};
+                light[i] = lh[i] = NAN;
+                if (isfinite(xd_ss[i]) && isfinite(log->xb[i]) && (isinf(r) || isfinite(d)) &&
+                    holdup_column_light(col->system.vle, log->xd[i], log->xb[i],
+                                        isfinite(r) ? r : INFINITY, &st, &l) == STAGECAL_OK) {
+                    light[i] = l;
+                    lh[i] = st.holdup_mol > 0 ? (l - st.drum_mol * log->xd[i]) / st.holdup_mol : 0;
+                }
+            }
+            s = e;
+        }
+    }
+}
+
+/* Balance estimates of run k for both hypotheses (light, lh: column_light; u_hold the
+ * relative standard uncertainty of the run's holdup h_run [mol], whose error moves every
+ * row's light holdup alike and so the drift estimates by u·h_run·∂d/∂h_run, added to their
+ * variance). The closure is taken again between the first and the last row of the fit when
+ * the column's content is modelled (the rows before have an unknown column profile).
+ * Scratch: 5 arrays of the run's length. */
 static void balance_sigs(const stagecal_runlog *log, const stagecal_column *col,
-                         const stagecal_runlog_result *res, size_t k, double *h, double *a,
-                         double *b, double *w)
+                         const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
+                         size_t k, const double *light, const double *lh, double h_run,
+                         double u_hold, int modelled, double *h, double *a, double *b, double *w,
+                         double *q)
 {
     const stagecal_runlog_run *run = &log->runs[k];
     stagecal_runlog_closure *c = &res->closures[k];
@@ -174,21 +225,34 @@ static void balance_sigs(const stagecal_runlog *log, const stagecal_column *col,
             ta += 0.5 * (t + tp - 2 * t0) * dw;
         }
         prev = i;
-        if (res->flags[i] & STAGECAL_SAMPLE_OUTLIER)
+        if ((res->flags[i] & STAGECAL_SAMPLE_OUTLIER) || !isfinite(light[i]))
             continue;
         double s = uxb > 0 ? uxb : stagecal_runlog_u_xb(col, log->xb[i]);
-        h[m] = log->w_mol[i] * log->xb[i] + integral +
-               runlog_holdup_light(col, log->xd[i], log->xb[i]);
+        h[m] = log->w_mol[i] * log->xb[i] + integral + light[i];
         a[m] = ta;
         b[m] = log->w_mol[i] * (t - t0);
         w[m] = s > 0 ? 1.0 / (log->w_mol[i] * s * log->w_mol[i] * s) : 1.0;
+        q[m] = u_hold * h_run * lh[i];
         m++;
     }
     stagecal_runlog_drift_sig *sd = &c->sig[0], *sb = &c->sig[1];
-    if (line_fit(a, w, h, m, &sd->d_bal, &sd->se_bal) == 0)
+    double dq, sq;
+    int hq = u_hold > 0 && h_run > 0;
+    if (line_fit(a, w, h, m, &sd->d_bal, &sd->se_bal) == 0) {
         sd->n_bal = m;
-    if (line_fit(b, w, h, m, &sb->d_bal, &sb->se_bal) == 0)
+        if (hq && line_fit(a, w, q, m, &dq, &sq) == 0)
+            sd->se_bal = hypot(sd->se_bal, dq);
+    }
+    if (line_fit(b, w, h, m, &sb->d_bal, &sb->se_bal) == 0) {
         sb->n_bal = m;
+        if (hq && line_fit(b, w, q, m, &dq, &sq) == 0)
+            sb->se_bal = hypot(sb->se_bal, dq);
+    }
+    if (modelled && m >= 2 && h[0] > 0) {
+        c->closure = (h[0] - h[m - 1]) / h[0];
+        c->u_closure = hypot(c->u_closure, (q[0] - q[m - 1]) / h[0]);
+        c->gross = c->u_closure > 0 && fabs(c->closure) > par->gross_sigmas * c->u_closure;
+    }
 }
 
 static int cmp_double(const void *a, const void *b)
@@ -299,21 +363,22 @@ static int row_cond(const stagecal_runlog *log, stagecal_physics *ph, size_t a, 
  * length and win. */
 static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, stagecal_physics *ph,
                        double murphree, const stagecal_runlog_result *res, const double *xd_ss,
-                       size_t k, double *scr, size_t len, int32_t *win)
+                       const double *u2, double u_hold, size_t k, double *scr, size_t len,
+                       int32_t *win)
 {
     const stagecal_runlog_run *run = &log->runs[k];
     stagecal_runlog_closure *c = &res->closures[k];
     double t0 = log->t_s[run->first] / 3600.0;
     double *rr = scr, *t = scr + len, *sens = scr + 2 * len, *w = scr + 3 * len, *g = scr + 4 * len,
-           *tmp = scr + 5 * len;
+           *tmp = scr + 5 * len, *dl = scr + 6 * len;
     size_t m = 0;
     int32_t *key = malloc(run->n * sizeof *key);
     if (!key)
         return;
     for (size_t i = 0, s = 0; i < run->n; i++) {
         size_t row = run->first + i;
-        if (i > 0 &&
-            !(log->r[row] == log->r[row - 1] || (isnan(log->r[row]) && isnan(log->r[row - 1]))))
+        double rs = runlog_rset(log, row), rp = i > 0 ? runlog_rset(log, row - 1) : rs;
+        if (i > 0 && !(rs == rp || (isnan(rs) && isnan(rp))))
             s++;
         key[i] = (res->flags[row] & STAGECAL_SAMPLE_WARMUP) ? -1 : (int32_t)s;
     }
@@ -337,7 +402,7 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
             continue;
         }
         double nw = median_of(tmp, q);
-        double r = (res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX) ? INFINITY : log->r[i];
+        double r = (res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX) ? INFINITY : runlog_rset(log, i);
         for (size_t a = i; a < e; a++) {
             double xd = isfinite(xd_ss[a]) ? xd_ss[a] : log->xd[a], x, sb;
             stagecal_physics_cond pc;
@@ -350,10 +415,15 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
                 continue;
             double ud = stagecal_runlog_u_xd(col, log->xd[a]);
             double ub = stagecal_runlog_u_xb(col, log->xb[a]) * sb;
+            /* the compensation's shift Δ: its holdup part (u_hold·Δ) is common to the run's
+             * rows and enters through dl below; the rest (the slope's noise) is the row's own */
+            double sh = isfinite(xd_ss[a]) ? xd_ss[a] - log->xd[a] : 0;
+            double uc = isfinite(u2[a]) ? fmax(u2[a] - sh * u_hold * sh * u_hold, 0) : 0;
             rr[m] = xd - x;
             t[m] = log->t_s[a] / 3600.0 - t0;
             sens[m] = sb;
-            w[m] = ud * ud + ub * ub > 0 ? 1.0 / (ud * ud + ub * ub) : 1.0;
+            w[m] = ud * ud + ub * ub + uc > 0 ? 1.0 / (ud * ud + ub * ub + uc) : 1.0;
+            dl[m] = u_hold * sh;
             win[m] = wk;
             m++;
         }
@@ -364,10 +434,15 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
         for (size_t a = 0; a < m; a++)
             g[a] = j == 0 ? t[a] : sens[a] * t[a];
         stagecal_runlog_drift_sig *sg = &c->sig[j];
-        if (within_fit(rr, g, w, win, m, &sg->d_stg, &sg->se_stg) == 0)
+        double dq, sq;
+        if (within_fit(rr, g, w, win, m, &sg->d_stg, &sg->se_stg) == 0) {
             sg->n_stg = m;
-        else
+            /* the holdup's error shifts the compensated rows alike: its effect on d */
+            if (u_hold > 0 && within_fit(dl, g, w, win, m, &dq, &sq) == 0)
+                sg->se_stg = hypot(sg->se_stg, dq);
+        } else {
             sg->d_stg = sg->se_stg = NAN;
+        }
     }
 }
 
@@ -414,53 +489,39 @@ static void decide(const stagecal_column *col, const stagecal_runlog_analysis_pa
                            : STAGECAL_DRIFT_UNATTRIBUTED;
 }
 
-/* The distillate compensated for column holdup as the evidence module does (AUTO: the
- * stage-holdup correction when the column states a holdup, else the start-up lag). */
-static int compensated_xd(const stagecal_runlog *log, const stagecal_column *col, double *xd_ss,
-                          stagecal_error *err)
+/* The relative standard uncertainty of the compensation's shift in run k: the holdup's
+ * (STAGES) or the time constant's (LAG); 0 without a compensation. */
+static double hold_u_rel(const holdup_resolved *hr, size_t k)
 {
-    for (size_t i = 0; i < log->n; i++)
-        xd_ss[i] = NAN;
-    size_t nr = log->nruns ? log->nruns : 1;
-    stagecal_holdup_tau *tau = calloc(2 * nr, sizeof *tau), pooled;
-    if (!tau)
-        return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    int rc = stagecal_holdup_estimate(log, col->u.xd, NULL, tau, tau + nr, NULL, &pooled, err);
-    if (rc == STAGECAL_OK) {
-        stagecal_holdup_model hm = {.kind = STAGECAL_HOLDUP_COMP_NONE,
-                                    .tau = tau,
-                                    .pooled = pooled,
-                                    .vle = col->system.vle,
-                                    .holdup_mol = col->holdup_column_mol,
-                                    .drum_mol = col->holdup_drum_mol,
-                                    .startup = tau + nr,
-                                    .u_xd = col->u.xd};
-        if (col->holdup_column_mol > 0 || col->holdup_drum_mol > 0)
-            hm.kind = STAGECAL_HOLDUP_COMP_STAGES;
-        else if (pooled.ok)
-            hm.kind = STAGECAL_HOLDUP_COMP_LAG;
-        if (hm.kind != STAGECAL_HOLDUP_COMP_NONE)
-            rc = stagecal_holdup_compensate(log, &hm, NULL, xd_ss, NULL, err);
+    if (hr->kind == STAGECAL_HOLDUP_COMP_STAGES)
+        return isfinite(hr->run_u[k]) ? hr->run_u[k] : 0;
+    if (hr->kind == STAGECAL_HOLDUP_COMP_LAG) {
+        const stagecal_holdup_tau *t = hr->tau[k].ok ? &hr->tau[k] : &hr->pooled;
+        return t->ok && t->tau_s > 0 ? t->se_tau_s / t->tau_s : 0;
     }
-    free(tau);
-    return rc;
+    return 0;
 }
 
 int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double murphree,
                  const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
                  stagecal_error *err)
 {
-    size_t maxrun = 1;
+    size_t maxrun = 1, n = log->n ? log->n : 1;
     for (size_t k = 0; k < log->nruns; k++)
         maxrun = log->runs[k].n > maxrun ? log->runs[k].n : maxrun;
-    double *scr = malloc(6 * maxrun * sizeof *scr);
+    double *scr = malloc(7 * maxrun * sizeof *scr);
     int32_t *win = malloc(maxrun * sizeof *win);
-    double *xd_ss = malloc((log->n ? log->n : 1) * sizeof *xd_ss);
+    double *xd_ss = malloc(4 * n * sizeof *xd_ss), *u2 = xd_ss ? xd_ss + n : NULL;
+    double *light = xd_ss ? xd_ss + 2 * n : NULL, *lh = xd_ss ? xd_ss + 3 * n : NULL;
     if (!scr || !win || !xd_ss) {
         free(scr), free(win), free(xd_ss);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
-    int rc = compensated_xd(log, col, xd_ss, err);
+    /* the compensated distillate the evidence will use (the same compensation) */
+    holdup_resolved hr;
+    int rc = holdup_resolve(log, col, par->holdup, &hr, xd_ss, u2, err);
+    if (rc == STAGECAL_OK)
+        column_light(log, col, &hr, xd_ss, light, lh);
     stagecal_physics *ph = stagecal_physics_alloc(col, NULL, NULL); /* NULL: the plain model */
     for (size_t k = 0; k < log->nruns && rc == STAGECAL_OK; k++) {
         stagecal_runlog_closure *c = &res->closures[k];
@@ -469,11 +530,15 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
         runlog_drift_clear(c);
         if (run->n < 2)
             continue;
-        balance_sigs(log, col, res, k, scr, scr + maxrun, scr + 2 * maxrun, scr + 3 * maxrun);
-        stage_sigs(log, col, ph, murphree, res, xd_ss, k, scr, maxrun, win);
+        double uh = hold_u_rel(&hr, k);
+        int stg = hr.kind == STAGECAL_HOLDUP_COMP_STAGES;
+        balance_sigs(log, col, par, res, k, light, lh, stg ? hr.run_h[k] : 0, stg ? uh : 0, stg,
+                     scr, scr + maxrun, scr + 2 * maxrun, scr + 3 * maxrun, scr + 4 * maxrun);
+        stage_sigs(log, col, ph, murphree, res, xd_ss, u2, uh, k, scr, maxrun, win);
         double span = (log->t_s[run->first + run->n - 1] - log->t_s[run->first]) / 3600.0;
         decide(col, par, span, c);
     }
+    holdup_resolved_free(&hr);
     stagecal_physics_free(ph);
     free(scr), free(win), free(xd_ss);
     return rc;

@@ -281,7 +281,10 @@ int main(int argc, char **argv)
            seed);
     printf("%-16s %5s %7s %7s %7s %7s  %-22s %6s %6s\n", "regime", "runs", "xD", "xB", "unattr",
            "none", "target share [95% CI]", "gross", "boilup");
+    const char *only = getenv("STUDY_REGIME"); /* one regime by its index (0-3) */
     for (int reg = 0; reg < NREG; reg++) {
+        if (only && atoi(only) != reg)
+            continue;
         struct tally ty;
         memset(&ty, 0, sizeof ty);
         int failed = 0;

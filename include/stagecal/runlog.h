@@ -362,6 +362,12 @@ typedef struct {
                                exceeds this many standard errors (3) */
     double boilup_sigmas;   /* boil-up/reflux mismatch when |ΔW − ΣV/(R+1)Δt| > this many
                                standard uncertainties (3) */
+    int holdup;             /* the column-holdup compensation the drift and balance checks
+                               take (a stagecal_holdup_comp of stagecal/holdup.h, or −1, the
+                               default: STAGES when the column file states a holdup, else LAG
+                               when the start-ups give a time constant); calibration sets it
+                               to the evidence's (AUTO when that is NONE), so both see the
+                               same compensated xD */
 } stagecal_runlog_analysis_params;
 
 stagecal_runlog_analysis_params stagecal_runlog_analysis_default_params(void);
