@@ -590,18 +590,28 @@ struct xd_root {
     double xb, reflux, target;
 };
 
-/* Plain count at xD = x minus the target; a pinch counts as far above any target. */
+/* Plain count at xD = x minus the target, stepped as count_corrected steps (whole steps,
+ * log-odds fraction); a pinch of the plain inversion counts as far above any target. */
 static double plain_minus(double x, void *p)
 {
     const struct xd_root *r = p;
     stagecal_stages_result res;
+    double c;
     if (stagecal_stages_invert(r->vle, x, r->xb, r->reflux, 1.0, NULL, &res, NULL) != STAGECAL_OK)
         return NAN;
     if (res.status == STAGECAL_STAGES_PINCH)
         return 1e6;
-    return res.status == STAGECAL_STAGES_OK ? res.stages - r->target : NAN;
+    if (res.status != STAGECAL_STAGES_OK ||
+        count_corrected(r->vle, x, r->xb, r->reflux / (r->reflux + 1), 0, 0, NULL, 0, &c, NULL))
+        return NAN;
+    return c - r->target;
 }
 
+/* The steady xD has the corrected count on the plain line, both counted by the same stepping
+ * (count_corrected): the library's fraction of the crossing step and the log-odds one differ
+ * by up to a few hundredths of a stage, and mixing them (the library's plain count plus the
+ * log-odds correction) moved the steady xD by 8-9 % of the shift on the stage-by-stage
+ * simulator (7 stages, R = 3), where the corrected count then missed the true 7 by -0.02. */
 int stagecal_holdup_steady_xd(const stagecal_vle *vle, double xd, double xb, double reflux,
                               const stagecal_holdup_state *st, double *xd_ss, stagecal_error *err)
 {
@@ -613,12 +623,14 @@ int stagecal_holdup_steady_xd(const stagecal_vle *vle, double xd, double xb, dou
         return rc;
     if (res.status != STAGECAL_STAGES_OK && res.status != STAGECAL_STAGES_PINCH)
         return error_set(err, STAGECAL_EINVAL, "holdup correction: %s", res.reason);
-    double n;
-    if ((rc = stagecal_holdup_invert(
-             vle, xd, xb, reflux, res.status == STAGECAL_STAGES_OK ? res.stages : 0, st, &n, err)))
+    double n, c0 = 0;
+    if (res.status != STAGECAL_STAGES_OK ||
+        count_corrected(vle, xd, xb, reflux / (reflux + 1), 0, 0, NULL, 0, &c0, NULL) || !(c0 >= 1))
+        c0 = 0; /* a pinch: the corrected count stands alone */
+    if ((rc = stagecal_holdup_invert(vle, xd, xb, reflux, c0, st, &n, err)))
         return rc;
     *xd_ss = xd;
-    if (res.status == STAGECAL_STAGES_OK && n == res.stages)
+    if (c0 >= 1 && n == c0)
         return STAGECAL_OK;
     /* the plain count rises with xD: bracket the xD whose plain count is n */
     struct xd_root r = {vle, xb, reflux, n};

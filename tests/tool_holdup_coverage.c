@@ -194,8 +194,11 @@ int main(int argc, char **argv)
                 return 70;
             stagecal_column_free(&col);
         }
+        const char *only = getenv("HOLDUP_STUDY_MODES"); /* e.g. "23": those modes only */
         for (int k = 0; k < NMODES; k++) {
             double v, lo, hi;
+            if (only && !strchr(only, '0' + k))
+                continue;
             const char *cp = colpath[k == 3];
             if (calibrate(argv[1], cp, paths[0], modes[k], "constant", "a", &v, &lo, &hi, &ta[k]) ==
                 0) {
