@@ -32,7 +32,8 @@
  * Operation. The column and drum start full of charge liquid (the rest in the pot); the
  * start-up runs at total reflux (m = 1, nothing drawn) until xD reaches startup_xd, or
  * startup_max_s, or (neither given) startup_fraction of the way from the pot to the
- * total-reflux distillate of the quasi-steady model; then the policy draws.
+ * total-reflux distillate of the quasi-steady model (or a constant-distillate set point,
+ * whichever comes first); then the policy draws.
  *
  * Integration. The system is stiff (stage time constants h/(V·(1 + m·y*')), minutes or far
  * less, against hours), so GSL's implicit multistep BDF (gsl_odeiv2_step_msbdf) with a
@@ -309,7 +310,10 @@ int batch_dyn_startup_g(stagecal_batch_workspace *w, double tau, const double *u
         (rc = batch_solve_xd(&w->col, &w->par, w->root_x, w->az, w->n_az, xb, INFINITY, n, NULL,
                              &xinf, err)))
         return rc;
-    *g = xb + d->startup_fraction * (xinf - xb) - xd;
+    double target = xb + d->startup_fraction * (xinf - xb);
+    if (w->pb.policy.kind == STAGECAL_BATCH_CONSTANT_DISTILLATE) /* or the set point, first */
+        target = fmin(target, w->pb.policy.xd_set);
+    *g = target - xd;
     return STAGECAL_OK;
 }
 

@@ -169,7 +169,8 @@ typedef struct {
     double startup_xd;        /* the start-up ends when xD >= this (0 = not used) ... */
     double startup_max_s;     /* ... or at this time [s] (0 = not used); neither given: */
     double startup_fraction;  /* when xD has come this fraction of the way from the pot's
-                                 composition to the total-reflux distillate (0.99) */
+                                 composition to the total-reflux distillate (0.99), or has
+                                 reached a constant-distillate set point, which comes first */
 } stagecal_batch_dynamics;
 
 /* Zero holdups, no start-up purity or time, startup_fraction 0.99. */

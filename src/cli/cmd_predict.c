@@ -747,7 +747,7 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
                      "dynamic: the total-reflux start-up ends when xD reaches X, or ..."),
         OPT_DOUBLE("startup-time", &q.startup_h, "H",
                    "... after H hours (default: when xD has come 99 % of the way to\n"
-                   "its total-reflux value)",
+                   "its total-reflux value, or has reached --xd-setpoint)",
                    0, INFINITY, CLI_D_LO_OPEN, "a time in hours > 0"),
         OPT_DOUBLE("every", &q.every, "H",
                    "a trajectory row at least every H hours, H >= 0.01 (default 0.1)", 0.01,

@@ -209,6 +209,11 @@ check_exit dyn-no-holdup 0 "$bin" predict $dyn --column "$root/datasets/columns/
 check_py dyn-same-as-no-holdup "d['dynamics'] == 'quasi-steady' and d['batch_time_h'] == json.load(open('$tmp/quasi.json'))['batch_time_h']"
 check_exit dyn-startup-time 0 "$bin" predict $dyn --column "$tmp/held.json" --startup-time 1.5 --json
 check_py dyn-startup-1.5h "abs(d['startup_h'] - 1.5) < 1e-12"
+# constant distillate: the start-up ends when the distillate reaches the set point (event
+# located to 1e-13 in t·V/W0)
+check_exit dyn-setpoint 0 "$bin" predict $common --xd-setpoint 0.95 --reflux-max 20 \
+    --cut product:reflux=20 --cut slop:pot-x=0.02 --samples 0 --column "$tmp/held.json" --json
+check_py dyn-setpoint-startup "abs(d['xd_startup'] - 0.95) < 1e-9 and d['startup_h'] > 0"
 check_exit dyn-text 0 "$bin" predict $dyn --column "$tmp/held.json"
 if grep -q "^start-up at total reflux: .* h to the first draw" "$tmp/out" && grep -q "smearing (sd of x)" "$tmp/out" &&
     [ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ]; then echo "ok dynamic text output"
