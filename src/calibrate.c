@@ -335,6 +335,23 @@ static int add_warnings(stagecal_calibration *cal, const stagecal_calibrate_para
     for (size_t k = 0; k < cal->column->n_warnings; k++)
         if ((rc = stagecal_model_add_warning(&cal->model, cal->column->warnings[k], err)))
             return rc;
+    const stagecal_runlog_soft *so = &cal->log->soft;
+    if ((so->xd_inferred || so->xb_inferred) &&
+        (rc = warn(cal, err,
+                   "compositions inferred from temperatures through the column's equilibrium "
+                   "model: xD in %zu rows (%zu censored), xB in %zu (%zu censored); the fit "
+                   "rests on that model, the logged pressures and the sensors' stated "
+                   "uncertainty",
+                   so->xd_inferred, so->xd_censored, so->xb_inferred, so->xb_censored)))
+        return rc;
+    if (so->inconsistent &&
+        (rc = warn(cal, err,
+                   "TEMPERATURE SENSOR INCONSISTENT with the analyser readings in %zu of %zu "
+                   "run checks (the run-log warnings name them): a wrong pressure, a "
+                   "miscalibrated sensor or a wrong equilibrium model; compositions inferred "
+                   "from it carry that error",
+                   so->inconsistent, so->checks)))
+        return rc;
     if (par->method == STAGECAL_CAL_AUTO && cal->comp_status != STAGECAL_OK &&
         (rc = warn(cal, err,
                    "composition-space fit failed (%s); the model carries the "

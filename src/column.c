@@ -486,8 +486,9 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
     if (plain)
         u = plain;
     if (u) {
-        static const char *const ukeys[] = {"xd",      "xb",           "w_mol",  "r", "r_rel",
-                                            "v_mol_s", "xd_heavy_rel", "xb_rel", NULL};
+        static const char *const ukeys[] = {"xd",      "xb",           "w_mol",  "r",     "r_rel",
+                                            "v_mol_s", "xd_heavy_rel", "xb_rel", "t_top", "t_pot",
+                                            NULL};
         stagecal_uncertainty *q = &col->u;
         if ((rc = check_keys(r, u, "uncertainty", ukeys)) ||
             (rc = get_num(r, u, "xd", "uncertainty.xd", 0, 0.0, 0, 0.5, &q->xd,
@@ -504,7 +505,11 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
             (rc = get_num(r, u, "xd_heavy_rel", "uncertainty.xd_heavy_rel", 0, 0.0, 0, 1.0,
                           &q->xd_heavy_rel, " (fraction of the heavy content 1 - xD)")) ||
             (rc = get_num(r, u, "xb_rel", "uncertainty.xb_rel", 0, 0.0, 0, 1.0, &q->xb_rel,
-                          " (fraction of xB)"))) {
+                          " (fraction of xB)")) ||
+            (rc =
+                 get_num(r, u, "t_top", "uncertainty.t_top", 0, 0.0, 0, 50.0, &q->t_top_k, " K")) ||
+            (rc =
+                 get_num(r, u, "t_pot", "uncertainty.t_pot", 0, 0.0, 0, 50.0, &q->t_pot_k, " K"))) {
             json_decref(plain);
             return rc;
         }

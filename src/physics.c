@@ -244,6 +244,23 @@ int stagecal_physics_cond_at(stagecal_physics *ph, double p_top_pa, double xd, d
     return STAGECAL_OK;
 }
 
+int stagecal_physics_vle_at(stagecal_physics *ph, double p_top_pa, int pot,
+                            const stagecal_vle **vle, stagecal_error *err)
+{
+    if (!ph || !vle)
+        return error_set(err, STAGECAL_EINVAL, "NULL argument");
+    const stagecal_vle *base = ph->col->system.vle, *ps;
+    *vle = base;
+    if (!stagecal_vle_has_pressure(base))
+        return STAGECAL_OK;
+    double p = isfinite(p_top_pa) && p_top_pa > 0 ? p_top_pa : stagecal_vle_pressure(base);
+    if (pot && ph->col->pressure_drop_pa > 0)
+        p += ph->col->pressure_drop_pa;
+    if (!(*vle = vle_at(ph, p, &ps, err)))
+        return err ? err->code : STAGECAL_ENOMEM;
+    return STAGECAL_OK;
+}
+
 /* d(x')/dx of the pseudo-mole transform with ratio a. */
 static double pseudo_slope(double a, double x)
 {

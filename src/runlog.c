@@ -246,6 +246,12 @@ static void header_done(struct reader *rd)
         rd->oom |= runlog_ensure_optional(log, &log->t_top_k);
     if (rd->field_of[STAGECAL_RL_TPOT] >= 0)
         rd->oom |= runlog_ensure_optional(log, &log->t_pot_k);
+    if (runlog_soft_enabled(rd)) { /* the soft sensor marks what it infers (runlog_soft.c) */
+        if (rd->field_of[STAGECAL_RL_TTOP] >= 0)
+            rd->oom |= runlog_ensure_optional(log, &log->u_xd_inf);
+        if (rd->field_of[STAGECAL_RL_TPOT] >= 0)
+            rd->oom |= runlog_ensure_optional(log, &log->u_xb_inf);
+    }
     if (rd->field_of[STAGECAL_RL_TREFLUX] >= 0)
         rd->oom |= runlog_ensure_optional(log, &log->t_reflux_k);
     runlog_physics_header_findings(rd);
@@ -498,6 +504,7 @@ void reader_close_run(struct reader *rd)
         reader_finding(rd, STAGECAL_FINDING_ERROR, r->first_line, NULL,
                        "run '%s' has %zu rows (expected at least %zu)", r->name, r->n,
                        rd->par.min_rows);
+    runlog_soft_run(rd);                                                 /* runlog_soft.c */
     rd->oom |= runlog_setpoints_run(rd->log, rd->cur_run, rd->col) != 0; /* runlog_setpoint.c */
 }
 

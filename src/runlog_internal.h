@@ -81,6 +81,9 @@ struct reader {
     /* names of the runs this file has started (a run may not resume) */
     char (*names)[64];
     size_t nnames, names_cap;
+    /* the soft sensor (runlog_soft.c): equilibrium models at the logged pressures */
+    stagecal_physics *ph;
+    int soft_unstated; /* 1 once the missing u(T) warning was given for this file */
 };
 
 /* A finding about the file being read (rd->source, line; 0 = the file as a whole). */
@@ -187,6 +190,17 @@ int runlog_ensure_optional(stagecal_runlog *log, double **a);
 
 /* stagecal_runlog_setpoints for run k only; -1 on allocation failure. */
 int runlog_setpoints_run(stagecal_runlog *log, size_t k, const stagecal_column *col);
+
+/* runlog_soft.c: the soft sensor in the reader. 1 when the file's compositions may come from
+ * its temperatures (params.infer, a column whose model has temperatures). */
+int runlog_soft_enabled(const struct reader *rd);
+/* At the end of a run: rows without an xD (xB) reading get one from T_top (T_pot), and the
+ * rows with both check the sensor (a warning finding when it disagrees). Sets rd->oom on
+ * allocation failure. */
+void runlog_soft_run(struct reader *rd);
+/* Standard uncertainty of row i's xD (xd = 1) or xB reading: the inferred one's own, else
+ * the column's (stagecal_runlog_u_xd, _u_xb). */
+double runlog_u_row(const stagecal_runlog *log, const stagecal_column *col, size_t i, int xd);
 /* The set point of row i (log->r_set, or the logged R before it is set). */
 static inline double runlog_rset(const stagecal_runlog *log, size_t i)
 {

@@ -178,8 +178,8 @@ static void invert_row(struct inv_ctx *c, size_t i, double r)
      * stated u(R) */
     double ur = log->u_r_set && log->u_r_set[i] > 0 ? log->u_r_set[i] : hypot(u->r, u->r_rel * r);
     double ur2 = isinf(r) ? 0.0 : ur * ur;
-    double a = sr.dstages_dxd * stagecal_runlog_u_xd(c->col, xd);
-    double b = sr.dstages_dxb * stagecal_runlog_u_xb(c->col, xb);
+    double a = sr.dstages_dxd * runlog_u_row(log, c->col, i, 1);
+    double b = sr.dstages_dxb * runlog_u_row(log, c->col, i, 0);
     res->stages[i] = sr.stages;
     res->u_stages[i] = sqrt(a * a + b * b + sr.dstages_dr * sr.dstages_dr * ur2);
     res->dn_dxd[i] = sr.dstages_dxd;

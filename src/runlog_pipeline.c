@@ -262,6 +262,7 @@ int stagecal_runlog_invert_stream(stagecal_runlog_stream *s, const stagecal_colu
                 *err = p->err;
         }
     }
+    tot->soft = stagecal_runlog_stream_soft(s);
     pthread_cond_destroy(&p->cv);
     pthread_mutex_destroy(&p->mu);
     for (size_t i = 0; i < nslots; i++)

@@ -166,6 +166,14 @@ stagecal_reading stagecal_runlog_reading(const stagecal_runlog *log, const stage
     const unsigned char *cens = xd ? log->xd_cens : log->xb_cens;
     r.censor = cens ? cens[row] : STAGECAL_CENSOR_NONE;
     if (!isnan(r.value))
-        r.u = xd ? stagecal_runlog_u_xd(col, r.value) : stagecal_runlog_u_xb(col, r.value);
+        r.u = runlog_u_row(log, col, row, xd);
     return r;
+}
+
+double runlog_u_row(const stagecal_runlog *log, const stagecal_column *col, size_t i, int xd)
+{
+    const double *inf = xd ? log->u_xd_inf : log->u_xb_inf;
+    if (inf && inf[i] > 0) /* (NaN: the analyser's) */
+        return inf[i];
+    return xd ? stagecal_runlog_u_xd(col, log->xd[i]) : stagecal_runlog_u_xb(col, log->xb[i]);
 }

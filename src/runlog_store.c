@@ -36,7 +36,8 @@ stagecal_runlog_params stagecal_runlog_default_params(void)
                                 .split_gap_samples = 20.0,
                                 .split_rise_frac = 0.10,
                                 .split_rise_sigmas = 10.0,
-                                .csv_separator = 0};
+                                .csv_separator = 0,
+                                .infer = 1};
     return p;
 }
 
@@ -65,6 +66,8 @@ void stagecal_runlog_free(stagecal_runlog *log)
     free(log->t_top_k);
     free(log->t_pot_k);
     free(log->t_reflux_k);
+    free(log->u_xd_inf);
+    free(log->u_xb_inf);
     free(log->line);
     free(log->run);
     free(log->runs);
@@ -90,9 +93,9 @@ static int grow_doubles(double **a, size_t n, size_t cap)
 int runlog_grow_rows(stagecal_runlog *log)
 {
     size_t cap = log->cap ? 2 * log->cap : 4096;
-    double **arr[] = {&log->t_s,     &log->w_mol,      &log->xd,    &log->xb,
-                      &log->r,       &log->v_mol_s,    &log->p_pa,  &log->t_top_k,
-                      &log->t_pot_k, &log->t_reflux_k, &log->r_set, &log->u_r_set};
+    double **arr[] = {&log->t_s,     &log->w_mol,   &log->xd,       &log->xb,      &log->r,
+                      &log->v_mol_s, &log->p_pa,    &log->t_top_k,  &log->t_pot_k, &log->t_reflux_k,
+                      &log->r_set,   &log->u_r_set, &log->u_xd_inf, &log->u_xb_inf};
     for (size_t i = 0; i < sizeof arr / sizeof arr[0]; i++) {
         if (i < 5 && !*arr[i]) {
             *arr[i] = malloc(sizeof(double)); /* required signals always exist */

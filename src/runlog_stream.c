@@ -222,6 +222,7 @@ static int file_end(struct file_read *fr, stagecal_runlog *log, stagecal_error *
     }
     free(rd->names);
     free(rd->w_raw);
+    stagecal_physics_free(rd->ph);
     free(rd);
     fr->rd = NULL;
     return rc;
@@ -312,6 +313,12 @@ struct stagecal_runlog_stream {
     int open;             /* 1: fr is reading a file */
 };
 
+stagecal_runlog_soft stagecal_runlog_stream_soft(const stagecal_runlog_stream *s)
+{
+    stagecal_runlog_soft none = {0};
+    return s && s->log ? s->log->soft : none;
+}
+
 stagecal_runlog_stream *stagecal_runlog_stream_alloc(const char *const *paths, size_t npaths,
                                                      const stagecal_column *col,
                                                      const stagecal_runlog_params *params,
@@ -374,9 +381,10 @@ static int copy_files(stagecal_runlog *dst, const stagecal_runlog *src)
 #define ROW_DOUBLES(l)                                                                             \
     {                                                                                              \
         &(l)->t_s, &(l)->w_mol, &(l)->xd, &(l)->xb, &(l)->r, &(l)->v_mol_s, &(l)->p_pa,            \
-            &(l)->t_top_k, &(l)->t_pot_k, &(l)->t_reflux_k, &(l)->r_set, &(l)->u_r_set             \
+            &(l)->t_top_k, &(l)->t_pot_k, &(l)->t_reflux_k, &(l)->r_set, &(l)->u_r_set,            \
+            &(l)->u_xd_inf, &(l)->u_xb_inf                                                         \
     }
-#define N_ROW_DOUBLES 12
+#define N_ROW_DOUBLES 14
 
 static void swap_storage(stagecal_runlog *a, stagecal_runlog *b)
 {

@@ -189,6 +189,23 @@ static void rb_flush(row_buf *r)
     r->n = 0;
 }
 
+/* ",x,source,u" of one composition: the analyser's reading or one inferred from a
+ * temperature (its u; inferred-censored: the limit, no u); empty cells when missing. */
+static void source_cells(row_buf *r, double x, int cens, double u_inf)
+{
+    int inferred = !isnan(u_inf);
+    rb_char(r, ',');
+    rb_fixed(r, x, 9);
+    rb_char(r, ',');
+    if (!isnan(x))
+        rb_str(r, !inferred                      ? "analyser"
+                  : cens != STAGECAL_CENSOR_NONE ? "inferred-censored"
+                                                 : "inferred");
+    rb_char(r, ',');
+    if (inferred && cens == STAGECAL_CENSOR_NONE)
+        rb_num(r, u_inf);
+}
+
 /* Row i of log and res. */
 static void format_row(row_buf *r, const stagecal_runlog *log, stagecal_condenser cond,
                        const stagecal_runlog_result *res, size_t window_base, size_t i)
@@ -240,6 +257,10 @@ static void format_row(row_buf *r, const stagecal_runlog *log, stagecal_condense
     rb_char(r, ',');
     if (res->note[i] == STAGECAL_NOTE_AT_MOST)
         rb_fixed(r, res->stages[i], 6);
+    if (log->u_xd_inf || log->u_xb_inf) { /* compositions, with where they came from */
+        source_cells(r, log->xd[i], log->xd_cens[i], log->u_xd_inf ? log->u_xd_inf[i] : NAN);
+        source_cells(r, log->xb[i], log->xb_cens[i], log->u_xb_inf ? log->u_xb_inf[i] : NAN);
+    }
     rb_char(r, '\n');
 }
 
@@ -261,9 +282,14 @@ int runlog_write_rows(const stagecal_runlog *log, const stagecal_column *col,
     for (int k = 0; k < STAGECAL_NOTE_COUNT; k++)
         escape(r->note[k], stagecal_runlog_note_text(k));
     if (header)
-        rb_str(r, "source,line,run,time[s],stages,column_stages,u_stages,status,note,L/V,"
-                  "F[Pa^0.5],steady,total_reflux,outlier,window,xB_rec[mol/mol],stages_low,"
-                  "stages_high\n");
+        r->n += (size_t)snprintf(
+            r->b, ROW_MAX,
+            "source,line,run,time[s],stages,column_stages,u_stages,status,note,L/V,"
+            "F[Pa^0.5],steady,total_reflux,outlier,window,xB_rec[mol/mol],stages_low,"
+            "stages_high%s\n",
+            log->u_xd_inf || log->u_xb_inf
+                ? ",xD[mol/mol],xD_source,u_xD,xB[mol/mol],xB_source,u_xB"
+                : "");
     for (size_t k = 0; k < log->nruns && !r->failed; k++) {
         const stagecal_runlog_run *run = &log->runs[k];
         escape(r->esc[0], log->files[run->file]);

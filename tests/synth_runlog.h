@@ -63,6 +63,27 @@ static inline double srl_raoult_x(const struct srl_antoine *l, const struct srl_
     return y * p / srl_psat_pa(l, t);
 }
 
+/* Bubble point [K] of liquid x at pressure p: Newton on x·Psat_l(T) + (1 − x)·Psat_h(T) = P
+ * from 360 K to a step of 1e-12 K; *dtdx (may be NULL) the slope by implicit
+ * differentiation, −(Psat_l − Psat_h)/(x·Psat_l' + (1 − x)·Psat_h'). */
+static inline double srl_raoult_tbubble(const struct srl_antoine *l, const struct srl_antoine *h,
+                                        double p, double x, double *dtdx)
+{
+    double t = 360;
+    for (int it = 0; it < 100; it++) {
+        double pl = srl_psat_pa(l, t), ph = srl_psat_pa(h, t);
+        double dl = pl * M_LN10 * l->b / ((t + l->c) * (t + l->c));
+        double dh = ph * M_LN10 * h->b / ((t + h->c) * (t + h->c));
+        double df = x * dl + (1 - x) * dh, step = (x * pl + (1 - x) * ph - p) / df;
+        t -= fmax(-40.0, fmin(40.0, step));
+        if (dtdx)
+            *dtdx = -(pl - ph) / df;
+        if (fabs(step) < 1e-12)
+            break;
+    }
+    return t;
+}
+
 /* Pot composition after n whole equilibrium stages (pot included) below a total condenser
  * from xD at reflux r: y1 = xD, x_k from the dew point, y_{k+1} = (r·x_k + xD)/(r + 1)
  * (McCabe–Thiele, constant molar overflow), xB = x_n. */

@@ -50,6 +50,8 @@ typedef struct {
     double v_mol_s;      /* boil-up [mol/s] */
     double xd_heavy_rel; /* distillate reading, relative to its heavy content 1 − xD [-] */
     double xb_rel;       /* pot reading, relative to xB [-] */
+    double t_top_k;      /* top temperature sensor (T_top) [K]: the soft sensor's u(T) */
+    double t_pot_k;      /* pot temperature sensor (T_pot) [K] */
 } stagecal_uncertainty;
 
 typedef struct {

@@ -94,6 +94,12 @@ typedef struct {
 int stagecal_physics_cond_at(stagecal_physics *ph, double p_top_pa, double xd, double reflux,
                              double t_reflux_k, stagecal_physics_cond *cond, stagecal_error *err);
 
+/* The column's equilibrium in true mole fractions (never the pseudo-mole twin) at a logged top
+ * pressure p_top_pa (NaN or ≤ 0: the column file's pressure), of the top (pot = 0) or of the
+ * pot (pot = 1: top + pressure_drop_pa). Models without pressure: the column's own. *vle points
+ * into ph (valid until ph is freed). ENOMEM, ENOCONV. Used by the soft sensor (softsensor.h). */
+int stagecal_physics_vle_at(stagecal_physics *ph, double p_top_pa, int pot,
+                            const stagecal_vle **vle, stagecal_error *err);
 /* Inversion under cond: as stagecal_stages_invert with cond->vle and R = cond->r_int, the
  * pot's vapour taken from cond->vle_pot, xD and xB in pseudo-moles when cond says so (the
  * external R is the same in pseudo-moles: reflux and distillate have one composition). res->lv is

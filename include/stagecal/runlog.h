@@ -96,6 +96,19 @@ typedef struct {
     double u;     /* standard uncertainty of the reading [-] */
 } stagecal_reading;
 
+/* Compositions inferred from temperatures by the reader (the soft sensor, softsensor.h;
+ * docs/runlog.md "Compositions from temperatures"): counts over every file read. */
+typedef struct {
+    size_t xd_inferred, xb_inferred; /* readings inferred from T_top / T_pot (censored included) */
+    size_t xd_censored, xb_censored; /* of which censored: the temperature does not resolve
+                                        the composition (near a pure end or an azeotrope) */
+    size_t outside;                  /* temperatures beyond the curve's far end: nothing
+                                        inferred (the cell stays missing) */
+    size_t checks;                   /* consistency tests made (one per run and sensor with
+                                        rows that carry both a temperature and a reading) */
+    size_t inconsistent;             /* of which flagged (a warning finding names each) */
+} stagecal_runlog_soft;
+
 /* One production run: a contiguous range of rows of one file. */
 typedef struct {
     char name[64];   /* value of the run column, or the file name when there is none */
@@ -126,6 +139,12 @@ typedef struct {
     double *t_top_k;           /* top temperature [K]; NULL when not logged */
     double *t_pot_k;           /* pot temperature [K]; NULL when not logged */
     double *t_reflux_k;        /* reflux return temperature [K]; NULL when not logged */
+    double *u_xd_inf;          /* a row whose xD was inferred from T_top (soft sensor): its
+                                  standard uncertainty u(T)/|dT/dxD| (0 when censored); NaN where
+                                  xD is the analyser's or missing; NULL when the reader inferred
+                                  none (no T_top, no temperature model, or params.infer 0) */
+    double *u_xb_inf;          /* the same for xB from T_pot */
+    stagecal_runlog_soft soft; /* what the soft sensor did */
     uint32_t *line;            /* source line of each row */
     uint32_t *run;             /* run index of each row */
     stagecal_runlog_run *runs; /* nruns runs, rows contiguous */
@@ -157,6 +176,12 @@ typedef struct {
     double split_rise_sigmas; /* 10 (u(W) from the column file; 0 there: the fraction alone) */
     int csv_separator;        /* ',', ';' or '\t'; 0 (default): detected from the header
                                  line. With ';' or a tab, a comma may be the decimal mark. */
+    int infer;                /* 1 (default): a row without an xD (xB) reading gets it from
+                                 T_top (T_pot) through the column's equilibrium at the row's
+                                 pressure, marked inferred (u_xd_inf, u_xb_inf), and every run
+                                 checks its temperatures against its analyser readings (a
+                                 warning when they disagree); 0: temperatures are not read for
+                                 compositions. Needs a column whose model has temperatures. */
 } stagecal_runlog_params;
 
 stagecal_runlog_params stagecal_runlog_default_params(void);
@@ -210,6 +235,9 @@ void stagecal_runlog_stream_free(stagecal_runlog_stream *s); /* NULL ok */
 int stagecal_runlog_stream_next(stagecal_runlog_stream *s, stagecal_runlog *run,
                                 stagecal_error *err);
 
+/* What the soft sensor did over the rows read so far (runlog.h stagecal_runlog_soft). */
+stagecal_runlog_soft stagecal_runlog_stream_soft(const stagecal_runlog_stream *s);
+
 /* Standard uncertainty of a distillate reading xd: u² = u.xd² + (u.xd_heavy_rel·(1 − xd))²
  * (the relative part is relative to the heavy content, what a purity analyser reads).
  * col NULL: 0. */
@@ -217,7 +245,8 @@ double stagecal_runlog_u_xd(const stagecal_column *col, double xd);
 /* Same for a pot reading: u² = u.xb² + (u.xb_rel·xb)². */
 double stagecal_runlog_u_xb(const stagecal_column *col, double xb);
 /* The xD (role STAGECAL_RL_XD) or xB (STAGECAL_RL_XB) reading of a row with its
- * censoring and uncertainty (col may be NULL: u = 0). */
+ * censoring and uncertainty (col may be NULL: u = 0); an inferred reading carries its own u
+ * (log->u_xd_inf, u_xb_inf). */
 stagecal_reading stagecal_runlog_reading(const stagecal_runlog *log, const stagecal_column *col,
                                          size_t row, int role);
 
@@ -479,6 +508,7 @@ typedef struct {
     stagecal_runlog_closure *closures; /* their mass-balance closures */
     char (*files)[160];                /* the files read */
     size_t nfiles;
+    stagecal_runlog_soft soft; /* compositions inferred from temperatures */
 } stagecal_runlog_totals;
 
 void stagecal_runlog_totals_free(stagecal_runlog_totals *t); /* frees members; NULL ok */
@@ -498,7 +528,10 @@ int stagecal_runlog_invert_stream(stagecal_runlog_stream *s, const stagecal_colu
 
 /* Writes one CSV row per log row (header first): source, line, run, time[s],
  * stages, column_stages, u_stages, status, note, L/V, F[Pa^0.5], steady,
- * total_reflux, outlier, window, xB_rec. Time has 3 decimals, stages 6, L/V and xB_rec 9,
+ * total_reflux, outlier, window, xB_rec, stages_low, stages_high, and when the reader
+ * inferred compositions (log->u_xd_inf or u_xb_inf) also xD, xD_source, u_xD, xB,
+ * xB_source, u_xB (source `analyser`, `inferred` or `inferred-censored`; empty when
+ * missing). Time has 3 decimals, stages 6, L/V and xB_rec 9,
  * F 6, u_stages 9 significant digits. Missing numbers are empty cells. col
  * gives the condenser (column stages). EWRITE on a write error. */
 int stagecal_runlog_write_csv(const stagecal_runlog *log, const stagecal_column *col,

@@ -425,3 +425,28 @@ void cli_print_params(const stagecal_regress_result *f, int long_form)
             printf("  %-*s %*.*g %*.*g   [%.*g, %.*g]\n", nw, f->form.param_names[i], vw, vp,
                    f->theta[i], sw, sp, f->se[i], ip, f->ci_low[i], ip, f->ci_high[i]);
 }
+
+json_t *cli_soft_json(const stagecal_runlog_soft *s)
+{
+    return json_pack("{s:I,s:I,s:I,s:I,s:I,s:I,s:I}", "xd", (json_int_t)s->xd_inferred,
+                     "xd_censored", (json_int_t)s->xd_censored, "xb", (json_int_t)s->xb_inferred,
+                     "xb_censored", (json_int_t)s->xb_censored, "outside", (json_int_t)s->outside,
+                     "sensor_checks", (json_int_t)s->checks, "sensor_inconsistent",
+                     (json_int_t)s->inconsistent);
+}
+
+void cli_soft_summary(const char *cmd, const stagecal_runlog_soft *s)
+{
+    if (cli_quiet || (!s->xd_inferred && !s->xb_inferred && !s->checks))
+        return;
+    fprintf(stderr,
+            "%s: compositions from temperatures: xD inferred in %zu rows (%zu censored), xB in "
+            "%zu (%zu censored)",
+            cmd, s->xd_inferred, s->xd_censored, s->xb_inferred, s->xb_censored);
+    if (s->outside)
+        fprintf(stderr, ", %zu temperatures beyond the curve (nothing inferred)", s->outside);
+    fprintf(stderr,
+            "; sensors checked against the analyser readings in %zu run(s), %zu "
+            "inconsistent\n",
+            s->checks, s->inconsistent);
+}

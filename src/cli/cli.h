@@ -89,6 +89,12 @@ void cli_system_close(cli_system *s);
 /* Prints the loaded column's warnings (col->warnings, see stagecal_column_warnings) on
  * stderr with path in front, at most once per command. */
 void cli_column_warn(const stagecal_column *col, const char *path);
+/* Compositions inferred from temperatures (the soft sensor, docs/runlog.md): the JSON
+ * object {"xd": n, "xd_censored": n, "xb": n, "xb_censored": n, "outside": n,
+ * "sensor_checks": n, "sensor_inconsistent": n}, and one stderr line "cmd: compositions
+ * from temperatures: ..." (nothing when none was inferred or checked). */
+json_t *cli_soft_json(const stagecal_runlog_soft *s);
+void cli_soft_summary(const char *cmd, const stagecal_runlog_soft *s);
 /* A JSON object describing the model in use ({"kind": …, "alpha": …} or the column). */
 json_t *cli_system_json(const cli_system *s);
 /* One run of a run log with its mass-balance closure, as check and invert report it. */

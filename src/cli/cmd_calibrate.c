@@ -371,6 +371,7 @@ static int print_json(const stagecal_calibration *cal, const char *path, const s
     if (cal->used == STAGECAL_MODEL_CENSORED)
         json_object_set_new(doc, "censored", cens_json(cal));
     json_object_set_new(doc, "holdup", holdup_json(cal));
+    json_object_set_new(doc, "inferred", cli_soft_json(&cal->log->soft));
     json_t *fl = json_array();
     for (size_t k = 0; k < cal->nflagged; k++) {
         const stagecal_flagged_run *f = &cal->flagged[k];
@@ -427,6 +428,12 @@ static void print_text(const stagecal_calibration *cal, const char *path, const 
            cal->res.count[0], cal->res.count[1], cal->res.count[2], cal->res.count[3],
            cal->res.count[STAGECAL_RUNLOG_CENSORED]);
     holdup_print(cal);
+    const stagecal_runlog_soft *so = &cal->log->soft;
+    if (so->xd_inferred || so->xb_inferred || so->checks)
+        printf("inferred from temperatures: xD %zu rows (%zu censored), xB %zu rows (%zu "
+               "censored); sensors checked in %zu run(s), %zu inconsistent\n",
+               so->xd_inferred, so->xd_censored, so->xb_inferred, so->xb_censored, so->checks,
+               so->inconsistent);
     for (size_t k = 0; k < cal->nflagged; k++) {
         const stagecal_flagged_run *f = &cal->flagged[k];
         printf("%s run '%s' (%zu window%s): %s\n",
@@ -593,7 +600,7 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
     stagecal_calibrate_params par = stagecal_calibrate_default_params();
     struct request rq = {NULL, "fits", {NULL, NULL, NULL}, 0};
     long boot = 0, seed = (long)par.seed;
-    int dialect = 0;
+    int dialect = 0, no_infer = 0;
     int method = 0, robust = -1, holdup = 0, first, rc;
     const struct cli_option opts[] = {
         OPT_COLUMN(&rq.column, "the column file (docs/column-file.md), required"),
@@ -641,12 +648,14 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
         OPT_WARM_UP(&par.analysis.warmup_s),
         OPT_MIN_WINDOW(&par.analysis.min_window_s),
         OPT_CSV_DIALECT(&dialect),
+        OPT_NO_INFER(&no_infer),
         OPT_END_COMMON(ctx),
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
         return rc;
     par.bootstrap = (size_t)boot;
     par.read.csv_separator = cli_csv_separator(dialect);
+    par.read.infer = !no_infer;
     par.seed = (unsigned long)seed;
     par.robust = cli_robust_kind(robust);
     par.evidence.holdup = holdup == 0 ? STAGECAL_EVIDENCE_HOLDUP_AUTO : holdup - 1;

@@ -87,6 +87,7 @@ static int print_json(const stagecal_runlog_totals *t, json_t *runs, const stage
     json_object_set_new(doc, "files", files);
     json_object_set_new(doc, "rows", json_integer((json_int_t)t->rows));
     json_object_set_new(doc, "runs", runs);
+    json_object_set_new(doc, "inferred", cli_soft_json(&t->soft));
     json_object_set_new(doc, "findings", findings_json(f));
     json_object_set_new(doc, "errors", json_integer((json_int_t)f->n_errors));
     json_object_set_new(doc, "warnings", json_integer((json_int_t)f->n_warnings));
@@ -241,6 +242,7 @@ static int check_stream(struct check_out *out, char **paths, size_t n, const sta
         memcpy(out->t.files, run->files, run->nfiles * sizeof *out->t.files);
         out->t.nfiles = run->nfiles;
     }
+    out->t.soft = stagecal_runlog_stream_soft(s);
     stagecal_runlog_free(run);
     stagecal_runlog_stream_free(s);
     return rc;
@@ -250,13 +252,14 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
 {
     const char *column_path = NULL;
     long minrows = 0;
-    int dialect = 0;
+    int dialect = 0, no_infer = 0;
     stagecal_runlog_analysis_params ap = stagecal_runlog_analysis_default_params();
     const struct cli_option opts[] = {
         OPT_COLUMN(&column_path, "column file: molar masses (mass units), latent heat (Q) and\n"
                                  "the uncertainties the checks use (docs/column-file.md)"),
         OPT_MIN_ROWS(&minrows),
         OPT_CSV_DIALECT(&dialect),
+        OPT_NO_INFER(&no_infer),
         OPT_WARM_UP(&ap.warmup_s),
         OPT_MIN_WINDOW(&ap.min_window_s),
         OPT_END_COMMON(ctx),
@@ -268,6 +271,7 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
     if (minrows > 0)
         rp.min_rows = (size_t)minrows;
     rp.csv_separator = cli_csv_separator(dialect);
+    rp.infer = !no_infer;
     if (first >= argc)
         return cli_usage_error("no run log given (expected one or more RUNLOG.csv)");
 
@@ -309,6 +313,8 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
     }
     if (rc == 0 && !cli_quiet)
         summary(&out.t, out.gross, f);
+    if (rc == 0)
+        cli_soft_summary("stagecal check", &out.t.soft);
     if (rc == 0)
         rc = missing ? CLI_EXIT_NOINPUT : f->n_errors ? CLI_EXIT_DATA : CLI_EXIT_OK;
     if (out.text)

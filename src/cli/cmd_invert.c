@@ -183,6 +183,7 @@ static json_t *summary_json(const stagecal_runlog *log, const stagecal_column *c
     json_object_set_new(doc, "version", json_integer(1));
     json_object_set_new(doc, "column", json_string(col->id));
     json_object_set_new(doc, "murphree", json_real(murphree));
+    json_object_set_new(doc, "inferred", cli_soft_json(&log->soft));
     json_object_set_new(doc, "condenser", json_string(stagecal_condenser_name(col->condenser)));
     json_object_set_new(doc, "stage_convention",
                         json_string(stagecal_convention_text(col->condenser)));
@@ -336,6 +337,7 @@ static int invert_whole(int argc, char **argv, int first, const char *out_path,
     if (out_path && (rc = write_rows(log, col, &res, out_path)))
         goto done;
     closure_warnings(log->runs, res.closures, log->nruns);
+    cli_soft_summary("stagecal invert", &log->soft);
     rc = cli_json_print(summary_json(log, col, &res, &ev, f, out_path, murphree));
 done:
     stagecal_evidence_set_free(&ev);
@@ -390,6 +392,7 @@ static int invert_streamed(char **paths, size_t n, const char *out_path,
     if (rc == CLI_EXIT_OK) {
         show_findings(f, 0);
         closure_warnings(tot.runs, tot.closures, tot.nruns);
+        cli_soft_summary("stagecal invert", &tot.soft);
         if (!to_stdout)
             summary_line(tot.rows, tot.count, tot.nwindows, out_path);
     }
@@ -401,8 +404,8 @@ static int invert_streamed(char **paths, size_t n, const char *out_path,
 
 /* Every row of the run logs argv[first..argc). */
 static int invert_rows(int argc, char **argv, int first, const char *out_path, long minrows,
-                       int dialect, const stagecal_runlog_analysis_params *ap, double murphree,
-                       long threads, cli_ctx *ctx)
+                       int dialect, int no_infer, const stagecal_runlog_analysis_params *ap,
+                       double murphree, long threads, cli_ctx *ctx)
 {
     cli_system *sys = &ctx->sys;
     int rc;
@@ -426,6 +429,7 @@ static int invert_rows(int argc, char **argv, int first, const char *out_path, l
     if (minrows > 0)
         rp.min_rows = (size_t)minrows;
     rp.csv_separator = cli_csv_separator(dialect);
+    rp.infer = !no_infer;
     if (ctx->json)
         return invert_whole(argc, argv, first, out_path, &rp, ap, murphree, ctx);
     if (threads < 0) {
@@ -441,7 +445,7 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
     double xd = NAN, xb = NAN, reflux = NAN, murphree = 1.0;
     const char *out_path = NULL;
     long minrows = 0, threads = -1;
-    int dialect = 0;
+    int dialect = 0, no_infer = 0;
     stagecal_runlog_analysis_params ap = stagecal_runlog_analysis_default_params();
     const struct cli_option opts[] = {
         OPT_SYSTEM(&ctx->sys),
@@ -454,6 +458,7 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
         OPT_ALIAS("out", "output"),
         OPT_MIN_ROWS(&minrows),
         OPT_CSV_DIALECT(&dialect),
+        OPT_NO_INFER(&no_infer),
         OPT_WARM_UP(&ap.warmup_s),
         OPT_MIN_WINDOW(&ap.min_window_s),
         OPT_LONG("threads", &threads, "N",
@@ -479,12 +484,12 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
     /* the mode follows from what was given: run logs, or a point */
     if (first < argc || out_path || cli_given(opts, "min-rows") || cli_given(opts, "warm-up") ||
         cli_given(opts, "min-window") || cli_given(opts, "threads") ||
-        cli_given(opts, "csv-dialect")) {
+        cli_given(opts, "csv-dialect") || no_infer) {
         if (!isnan(xd) || !isnan(xb) || !isnan(reflux))
             return cli_usage_error("options '--xd', '--xb' and '--reflux' are for one point, "
                                    "not with run logs (each row carries its own)");
-        return invert_rows(argc, argv, first, out_path, minrows, dialect, &ap, murphree, threads,
-                           ctx);
+        return invert_rows(argc, argv, first, out_path, minrows, dialect, no_infer, &ap, murphree,
+                           threads, ctx);
     }
     return invert_point(xd, cd, xb, cb, reflux, murphree, ctx);
 }

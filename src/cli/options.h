@@ -140,6 +140,11 @@ struct cli_option {
     OPT_FLAG(0, "keep-flagged", (v),                                                               \
              "keep runs flagged for a gross closure error or analyser drift in\n"                  \
              "the fit (default: left out, and the summary says which and why)")
+/* compositions from temperatures (runlog.h params.infer): off with --no-infer */
+#define OPT_NO_INFER(v)                                                                            \
+    OPT_FLAG(0, "no-infer", (v),                                                                   \
+             "do not read blank xD/xB cells from T_top/T_pot (default: they are\n"                 \
+             "inferred through the column's equilibrium, marked so; docs/runlog.md)")
 /* the CSV dialect of run logs: auto, comma, semicolon or tab (index into *v); see
  * cli_csv_separator */
 #define OPT_CSV_DIALECT(v)                                                                         \
