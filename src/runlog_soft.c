@@ -92,6 +92,7 @@ static void soft_check(struct reader *rd, struct sensor *s, const stagecal_runlo
     if (!(fabs(c->z) > zc))
         return;
     rd->log->soft.inconsistent++;
+    rd->log->soft.inconsistent_top += (size_t)s->top;
     int h = rd->field_of[s->top ? STAGECAL_RL_TTOP : STAGECAL_RL_TPOT];
     reader_finding(rd, STAGECAL_FINDING_WARNING, run->first_line, rd->hdr[h],
                    "run '%s': %s reads %+.2f K (standard error %.2f K, %zu rows with a reading) "

@@ -17,6 +17,7 @@
 #include "internal.h"
 #include "runlog_internal.h"
 #include "stagecal/convention.h"
+#include "stagecal/softsensor.h"
 #include "stagecal/stages.h"
 
 /* Longest row: two names of at most 2·1024 bytes when every character is quoted, a note of
@@ -189,6 +190,30 @@ static void rb_flush(row_buf *r)
     r->n = 0;
 }
 
+/* The fused compositions of one run (the Kalman smoother over its inferred and lab
+ * readings, softsensor.h): fx/fu[k][j] for xD (k = 0) and xB (k = 1) at the run's row j; NaN
+ * where the run has fewer than 2 readings. buf holds 6·n doubles. */
+static void fuse_run(const stagecal_runlog *log, const stagecal_column *col,
+                     const stagecal_runlog_run *run, double *buf, double *fx[2], double *fu[2])
+{
+    size_t n = run->n;
+    double *z = buf, *u = buf + n;
+    for (int k = 0; k < 2; k++) {
+        fx[k] = buf + (size_t)(2 + 2 * k) * n, fu[k] = fx[k] + n;
+        const double *x = k == 0 ? log->xd : log->xb;
+        const unsigned char *c = k == 0 ? log->xd_cens : log->xb_cens;
+        for (size_t j = 0; j < n; j++) {
+            size_t i = run->first + j;
+            z[j] = c[i] == STAGECAL_CENSOR_NONE ? x[i] : NAN; /* a bound is no value */
+            u[j] = isfinite(z[j]) ? runlog_u_row(log, col, i, k == 0) : NAN;
+        }
+        if (stagecal_softsensor_smooth(log->t_s + run->first, z, u, n, 0, fx[k], fu[k], NULL,
+                                       NULL) != STAGECAL_OK)
+            for (size_t j = 0; j < n; j++)
+                fx[k][j] = fu[k][j] = NAN;
+    }
+}
+
 /* ",x,source,u" of one composition: the analyser's reading or one inferred from a
  * temperature (its u; inferred-censored: the limit, no u); empty cells when missing. */
 static void source_cells(row_buf *r, double x, int cens, double u_inf)
@@ -208,7 +233,8 @@ static void source_cells(row_buf *r, double x, int cens, double u_inf)
 
 /* Row i of log and res. */
 static void format_row(row_buf *r, const stagecal_runlog *log, stagecal_condenser cond,
-                       const stagecal_runlog_result *res, size_t window_base, size_t i)
+                       const stagecal_runlog_result *res, size_t window_base, size_t i,
+                       double *const fx[2], double *const fu[2], size_t j)
 {
     int ok = res->status[i] == STAGECAL_STAGES_OK;
     rb_str(r, r->esc[0]);
@@ -260,6 +286,12 @@ static void format_row(row_buf *r, const stagecal_runlog *log, stagecal_condense
     if (log->u_xd_inf || log->u_xb_inf) { /* compositions, with where they came from */
         source_cells(r, log->xd[i], log->xd_cens[i], log->u_xd_inf ? log->u_xd_inf[i] : NAN);
         source_cells(r, log->xb[i], log->xb_cens[i], log->u_xb_inf ? log->u_xb_inf[i] : NAN);
+        for (int k = 0; k < 2; k++) {
+            rb_char(r, ',');
+            rb_fixed(r, fx[k][j], 9);
+            rb_char(r, ',');
+            rb_num(r, fu[k][j]);
+        }
     }
     rb_char(r, '\n');
 }
@@ -288,19 +320,31 @@ int runlog_write_rows(const stagecal_runlog *log, const stagecal_column *col,
             "F[Pa^0.5],steady,total_reflux,outlier,window,xB_rec[mol/mol],stages_low,"
             "stages_high%s\n",
             log->u_xd_inf || log->u_xb_inf
-                ? ",xD[mol/mol],xD_source,u_xD,xB[mol/mol],xB_source,u_xB"
+                ? ",xD[mol/mol],xD_source,u_xD,xB[mol/mol],xB_source,u_xB,"
+                  "xD_fused[mol/mol],u_xD_fused,xB_fused[mol/mol],u_xB_fused"
                 : "");
+    int fuse = log->u_xd_inf || log->u_xb_inf;
+    double *fbuf = NULL, *fx[2] = {NULL, NULL}, *fu[2] = {NULL, NULL};
     for (size_t k = 0; k < log->nruns && !r->failed; k++) {
         const stagecal_runlog_run *run = &log->runs[k];
         escape(r->esc[0], log->files[run->file]);
         escape(r->esc[1], run->name);
+        if (fuse) {
+            double *nb = realloc(fbuf, 6 * (run->n ? run->n : 1) * sizeof *nb);
+            if (!nb) {
+                free(fbuf), free(b), free(r);
+                return error_set(err, STAGECAL_ENOMEM, "out of memory");
+            }
+            fuse_run(log, col, run, fbuf = nb, fx, fu);
+        }
         for (size_t i = run->first; i < run->first + run->n; i++) {
-            format_row(r, log, cond, res, window_base, i);
+            format_row(r, log, cond, res, window_base, i, fx, fu, i - run->first);
             if (r->n >= BLOCK)
                 rb_flush(r);
         }
     }
     rb_flush(r);
+    free(fbuf);
     int failed = r->failed || ferror(out);
     free(b);
     free(r);

@@ -12,15 +12,17 @@
 #include <gsl/gsl_deriv.h>
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_math.h>
+#include <gsl/gsl_min.h>
 #include <gsl/gsl_roots.h>
 #include <math.h>
+#include <stdlib.h>
 
 #include "batch_internal.h"
 #include "internal.h"
 
 stagecal_softsensor_params stagecal_softsensor_default_params(void)
 {
-    stagecal_softsensor_params p = {STAGECAL_RUNLOG_BOUND_Z, 0.05, 0.01};
+    stagecal_softsensor_params p = {STAGECAL_RUNLOG_BOUND_Z, 0.05, 0.001};
     return p;
 }
 
@@ -279,4 +281,118 @@ double stagecal_softsensor_check_zcrit(double alpha, size_t ntests)
 {
     double a = alpha / (2.0 * (double)(ntests ? ntests : 1));
     return gsl_cdf_ugaussian_Qinv(a);
+}
+
+/* ---- Kalman filter and RTS smoother ------------------------------------------------------ */
+
+struct walk {
+    const double *t, *z, *u;
+    size_t n;
+    double *xf, *pf, *xp, *pp; /* filtered and predicted means and variances, per row */
+};
+
+static int has_reading(const struct walk *w, size_t i)
+{
+    return isfinite(w->z[i]) && isfinite(w->u[i]) && w->u[i] > 0;
+}
+
+/* The forward pass at q; returns the innovations' log-likelihood (−∞ without readings). */
+static double kalman_forward(struct walk *w, double q)
+{
+    double x = NAN, p = INFINITY, ll = 0, tprev = NAN;
+    for (size_t i = 0; i < w->n; i++) {
+        double dt = isfinite(tprev) ? GSL_MAX(w->t[i] - tprev, 0.0) : 0.0;
+        tprev = w->t[i];
+        if (isfinite(p))
+            p += q * dt; /* predict */
+        w->xp[i] = x, w->pp[i] = p;
+        if (has_reading(w, i)) {
+            double r = w->u[i] * w->u[i];
+            if (!isfinite(p)) { /* the first reading starts the walk (a diffuse prior) */
+                x = w->z[i], p = r;
+            } else {
+                double s = p + r, nu = w->z[i] - x, k = p / s;
+                ll -= 0.5 * (log(2 * M_PI * s) + nu * nu / s);
+                x += k * nu;
+                p = p * r / s; /* (1 − k)·p without the cancellation of 1 − k */
+            }
+        }
+        w->xf[i] = x, w->pf[i] = p;
+    }
+    return ll;
+}
+
+static double neg_loglik(double log10q, void *ctx)
+{
+    return -kalman_forward(ctx, pow(10.0, log10q));
+}
+
+int stagecal_softsensor_smooth(const double *t_s, const double *z, const double *u, size_t n,
+                               double q, double *xs, double *us,
+                               stagecal_softsensor_smooth_info *info, stagecal_error *err)
+{
+    size_t used = 0, first = n, last = 0;
+    for (size_t i = 0; i < n; i++)
+        if (isfinite(z[i]) && isfinite(u[i]) && u[i] > 0) {
+            used++;
+            first = GSL_MIN(first, i), last = i;
+        }
+    if (used < 2)
+        return error_set(err, STAGECAL_EDATA, "%zu readings to smooth (expected at least 2)", used);
+    double *buf = malloc(4 * n * sizeof *buf);
+    if (!buf)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    struct walk w = {t_s, z, u, n, buf, buf + n, buf + 2 * n, buf + 3 * n};
+    if (!(q > 0)) { /* maximum likelihood: a grid over 14 decades, then Brent */
+        double best = INFINITY, lq = -14;
+        int kb = 0;
+        for (int k = 0; k <= 56; k++) {
+            double f = neg_loglik(-14 + 0.25 * k, &w);
+            if (f < best)
+                best = f, kb = k, lq = -14 + 0.25 * k;
+        }
+        if (kb > 0 && kb < 56) {
+            gsl_min_fminimizer *m = gsl_min_fminimizer_alloc(gsl_min_fminimizer_brent);
+            gsl_function f = {neg_loglik, &w};
+            if (m && gsl_min_fminimizer_set(m, &f, lq, lq - 0.25, lq + 0.25) == GSL_SUCCESS) {
+                for (int it = 0; it < 60; it++) {
+                    if (gsl_min_fminimizer_iterate(m) != GSL_SUCCESS)
+                        break;
+                    double a = gsl_min_fminimizer_x_lower(m), b = gsl_min_fminimizer_x_upper(m);
+                    if (gsl_min_test_interval(a, b, 1e-4, 0) == GSL_SUCCESS)
+                        break;
+                }
+                lq = gsl_min_fminimizer_x_minimum(m);
+            }
+            gsl_min_fminimizer_free(m);
+        }
+        q = pow(10.0, lq);
+    }
+    double ll = kalman_forward(&w, q);
+    /* backward (RTS): from the last filtered state; rows after the last reading keep the
+     * filter's prediction, rows before the first take the first smoothed value with the
+     * walk's growth backwards in time */
+    for (size_t i = n; i-- > 0;) {
+        if (i >= last) {
+            xs[i] = w.xf[i], us[i] = sqrt(w.pf[i]);
+            if (i > last) { /* prediction beyond the last reading */
+                double v = w.pf[last] + q * (t_s[i] - t_s[last]);
+                xs[i] = w.xf[last], us[i] = sqrt(v);
+            }
+            continue;
+        }
+        if (i < first) {
+            double v = us[first] * us[first] + q * (t_s[first] - t_s[i]);
+            xs[i] = xs[first], us[i] = sqrt(v);
+            continue;
+        }
+        double c = w.pp[i + 1] > 0 ? w.pf[i] / w.pp[i + 1] : 0;
+        double ps = us[i + 1] * us[i + 1];
+        xs[i] = w.xf[i] + c * (xs[i + 1] - w.xp[i + 1]);
+        us[i] = sqrt(GSL_MAX(w.pf[i] + c * c * (ps - w.pp[i + 1]), 0.0));
+    }
+    free(buf);
+    if (info)
+        *info = (stagecal_softsensor_smooth_info){q, ll, used};
+    return STAGECAL_OK;
 }

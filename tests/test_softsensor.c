@@ -259,6 +259,58 @@ static void soft_reader_fills_and_marks(void **state)
     stagecal_column_free(&col);
 }
 
+/* The smoother against closed forms of the random walk plus noise (the local-level model). */
+static void soft_smoother_closed_forms(void **state)
+{
+    (void)state;
+    enum { N = 400 };
+    double t[N], z[N], u[N], xs[N], us[N];
+    double sum = 0;
+    for (int i = 0; i < N; i++) {
+        t[i] = 60.0 * i;
+        z[i] = 0.3 + 0.004 * sin(1.7 * i); /* deterministic "noise" */
+        u[i] = i % 7 == 3 ? NAN : 0.004;   /* some rows without a reading */
+        if (isfinite(u[i]))
+            sum += z[i];
+    }
+    int m = 0;
+    for (int i = 0; i < N; i++)
+        m += isfinite(u[i]);
+    stagecal_softsensor_smooth_info info;
+    stagecal_error e;
+    /* q → 0: a constant, the plain mean of the readings with u/√m (equal weights) */
+    assert_int_equal(stagecal_softsensor_smooth(t, z, u, N, 1e-30, xs, us, &info, &e), 0);
+    assert_int_equal(info.n_used, (size_t)m);
+    for (int i = 0; i < N; i += 37) {
+        /* q·T = 1e-30·24000 s: far below u²/m; 1e-9 relative covers the sums' rounding */
+        assert_rel(xs[i], sum / m, 1e-9, "q -> 0: the mean");
+        assert_rel(us[i], 0.004 / sqrt(m), 1e-6, "q -> 0: u/sqrt(m)");
+    }
+    /* q huge: the readings themselves */
+    assert_int_equal(stagecal_softsensor_smooth(t, z, u, N, 1e6, xs, us, NULL, &e), 0);
+    for (int i = 0; i < N; i++)
+        if (isfinite(u[i])) {
+            assert_abs(xs[i], z[i], 1e-12, "q -> inf: the readings");
+            assert_rel(us[i], 0.004, 1e-9, "q -> inf: u");
+        }
+    /* the filter's steady state at the last reading (the smoother's last value is the
+     * filter's): with readings every dt, P⁻ solves P⁻² − qdt·P⁻ − qdt·r = 0 and
+     * P = P⁻r/(P⁻ + r) (the Riccati equation of the local-level model; Harvey 1989,
+     * "Forecasting, structural time series models and the Kalman filter", CUP, §3.3, from
+     * memory). Every reading present, 400 steps: converged to rounding. */
+    for (int i = 0; i < N; i++)
+        u[i] = 0.004;
+    double q = 1e-9, qd = q * 60, r = 0.004 * 0.004;
+    double pm = 0.5 * (qd + sqrt(qd * qd + 4 * qd * r)), pf = pm * r / (pm + r);
+    assert_int_equal(stagecal_softsensor_smooth(t, z, u, N, q, xs, us, NULL, &e), 0);
+    assert_rel(us[N - 1], sqrt(pf), 1e-9, "steady-state filter variance");
+    assert_true(us[N / 2] < us[N - 1]); /* the smoother uses both sides */
+    /* too few readings */
+    for (int i = 1; i < N; i++)
+        u[i] = NAN;
+    assert_int_equal(stagecal_softsensor_smooth(t, z, u, N, 0, xs, us, NULL, &e), STAGECAL_EDATA);
+}
+
 int main(void)
 {
     gsl_set_error_handler_off();
@@ -268,6 +320,7 @@ int main(void)
         cmocka_unit_test(soft_infer_censors_unresolved),
         cmocka_unit_test(soft_infer_azeotrope),
         cmocka_unit_test(soft_reader_fills_and_marks),
+        cmocka_unit_test(soft_smoother_closed_forms),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

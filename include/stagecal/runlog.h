@@ -107,6 +107,7 @@ typedef struct {
     size_t checks;                   /* consistency tests made (one per run and sensor with
                                         rows that carry both a temperature and a reading) */
     size_t inconsistent;             /* of which flagged (a warning finding names each) */
+    size_t inconsistent_top;         /* of those, the top sensor's (T_top) */
 } stagecal_runlog_soft;
 
 /* One production run: a contiguous range of rows of one file. */
@@ -531,9 +532,10 @@ int stagecal_runlog_invert_stream(stagecal_runlog_stream *s, const stagecal_colu
  * total_reflux, outlier, window, xB_rec, stages_low, stages_high, and when the reader
  * inferred compositions (log->u_xd_inf or u_xb_inf) also xD, xD_source, u_xD, xB,
  * xB_source, u_xB (source `analyser`, `inferred` or `inferred-censored`; empty when
- * missing). Time has 3 decimals, stages 6, L/V and xB_rec 9,
- * F 6, u_stages 9 significant digits. Missing numbers are empty cells. col
- * gives the condenser (column stages). EWRITE on a write error. */
+ * missing) and the run's Kalman-smoothed compositions with their u (xD_fused, u_xD_fused,
+ * xB_fused, u_xB_fused; stagecal_softsensor_smooth over the values, censored ones left out). Time
+ * has 3 decimals, stages 6, L/V and xB_rec 9, F 6, u_stages 9 significant digits. Missing numbers
+ * are empty cells. col gives the condenser (column stages). EWRITE on a write error. */
 int stagecal_runlog_write_csv(const stagecal_runlog *log, const stagecal_column *col,
                               const stagecal_runlog_result *res, FILE *out, stagecal_error *err);
 

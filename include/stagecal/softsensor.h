@@ -43,8 +43,8 @@ typedef struct {
                      95 % bound (STAGECAL_RUNLOG_BOUND_Z) */
     double max_u; /* a resolved composition whose u(x) exceeds this is censored the same way
                      (the curve too flat to resolve it; 0.05) */
-    double alpha; /* family-wise false-alarm rate of the consistency check over every run and
-                     sensor checked (0.01; Bonferroni) */
+    double alpha; /* two-sided false-alarm rate of each run's consistency test of a sensor
+                     (0.001: |z| > 3.29) */
 } stagecal_softsensor_params;
 
 stagecal_softsensor_params stagecal_softsensor_default_params(void);
@@ -103,6 +103,32 @@ typedef struct {
 void stagecal_softsensor_check_add(stagecal_softsensor_check *c, double t_k, double u_t_k,
                                    double t_model, double slope, double u_x);
 void stagecal_softsensor_check_end(stagecal_softsensor_check *c);
+
+/* ---- fusion of inferred and lab readings over a run: a Kalman smoother ------------------- *
+ * State x(t) (one composition), a random walk: x_k = x_(k−1) + w_k, w_k ~ N(0, q·(t_k − t_(k−1)));
+ * readings z_k = x_k + v_k, v_k ~ N(0, u_k²) — the inferred ones with u(T)/|dT/dx|, the lab
+ * samples with the analyser's u. The Kalman filter (Kalman 1960, "A new approach to linear
+ * filtering and prediction problems", J. Basic Eng. 82:35-45) runs forward, the
+ * Rauch–Tung–Striebel smoother (Rauch, Tung & Striebel 1965, "Maximum likelihood estimates of
+ * linear dynamic systems", AIAA J. 3:1445-1450) backward; q is chosen by maximum likelihood of
+ * the innovations (the prediction-error decomposition, Schweppe 1965, IEEE Trans. Inf. Theory
+ * 11:61-70, citation from memory) over log10 q in [−14, 0] (a grid of 57, then GSL's Brent
+ * minimiser). Gives every row the fused composition and its standard uncertainty; rows
+ * without a reading are interpolated with the uncertainty that says so. */
+typedef struct {
+    double q;      /* process noise [1/s] (mole fraction² per s): the ML value, or the one given */
+    double loglik; /* log-likelihood of the innovations at q */
+    size_t n_used; /* readings used */
+} stagecal_softsensor_smooth_info;
+
+/* Smooths z[0..n) with standard uncertainties u[0..n) at times t_s[0..n) (increasing); a
+ * reading with z or u not finite, or u ≤ 0, is no reading. q > 0 fixes the process noise;
+ * q ≤ 0 estimates it. xs, us receive the smoothed value and its standard uncertainty at every
+ * t (NaN before the first and after the last reading is not possible: the walk extends them,
+ * with the uncertainty growing). info may be NULL. EDATA with fewer than 2 readings, ENOMEM. */
+int stagecal_softsensor_smooth(const double *t_s, const double *z, const double *u, size_t n,
+                               double q, double *xs, double *us,
+                               stagecal_softsensor_smooth_info *info, stagecal_error *err);
 
 /* The two-sided critical |z| of the check for ntests tests at family-wise rate alpha. */
 double stagecal_softsensor_check_zcrit(double alpha, size_t ntests);
