@@ -315,6 +315,24 @@ static int read_holdup(const rd *r, json_t *root, stagecal_column *col)
     return STAGECAL_OK;
 }
 
+/* The flooding object (docs/column-file.md): the F-factor at flooding and the margin. */
+static int read_flooding(const rd *r, json_t *root, stagecal_column *col)
+{
+    int rc;
+    json_t *fl = get_obj(r, root, "flooding", "flooding", 0, &rc);
+    if (!fl)
+        return rc;
+    static const char *const fkeys[] = {"f_factor", "margin", NULL};
+    col->flood_margin = 0.8; /* common practice, no source: design at 70-85 % of flooding */
+    if ((rc = check_keys(r, fl, "flooding", fkeys)) ||
+        (rc = get_num(r, fl, "f_factor", "flooding.f_factor", 1, 0.0, 1, 100.0, &col->flood_f_pa05,
+                      " Pa^0.5 (the F-factor at flooding)")) ||
+        (rc = get_num(r, fl, "margin", "flooding.margin", 0, 0.0, 1, 1.0, &col->flood_margin,
+                      " (fraction of the flooding F-factor tests may reach)")))
+        return rc;
+    return STAGECAL_OK;
+}
+
 /* Uncertainties with a unit, written like a run-log header cell: "xd[wt%]", "xb[ppm]",
  * "w[kg]", "v[kg/h]" (docs/column-file.md). Each is converted to the plain key's unit
  * (mole fraction, mol, mol/s). A mass basis goes to moles with the bound that holds at every
@@ -390,7 +408,7 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
     static const char *const keys[] = {
         "format", "version",   "id",          "description", "packed_height_m", "inside_diameter_m",
         "trays",  "condenser", "pressure_pa", "system",      "uncertainty",     "pressure_drop_pa",
-        "holdup", NULL};
+        "holdup", "flooding",  NULL};
     int rc;
     if (!json_is_object(root))
         return error_set_at(r->jr.err, STAGECAL_EDATA, r->jr.source, 0, 0,
@@ -468,7 +486,7 @@ static int read_root(const rd *r, json_t *root, stagecal_column *col)
                             "member 'system.%s.latent_heat_j_mol': give the latent heats of both "
                             "components, or neither",
                             s->latent_light_j_mol > 0 ? "heavy" : "light");
-    if ((rc = read_holdup(r, root, col)))
+    if ((rc = read_holdup(r, root, col)) || (rc = read_flooding(r, root, col)))
         return rc;
     if (!strcmp(s->light, s->heavy))
         return jr_fail(&r->jr, "system.heavy.name", "'%s' is also the light component", s->heavy);

@@ -31,7 +31,7 @@ stagecal_design_params stagecal_design_default_params(void)
     p.criterion = STAGECAL_DESIGN_I;
     p.tests = 4;
     p.r_lo = p.r_hi = NAN;
-    p.f_lo = p.f_hi = NAN;
+    p.f_lo = p.f_hi = p.f_max = NAN;
     p.starts = 24;
     p.seed = 1;
     p.xtol_rel = 1e-10;

@@ -302,7 +302,20 @@ static int set_bounds(const stagecal_design_problem *pb, const stagecal_design_p
                          "reflux range %g:%g is invalid (expected 0 < LO <= HI, HI may be inf)", lo,
                          hi);
     if (pb->form.uses_load) {
+        if (isfinite(par->f_max) && par->f_hi > par->f_max)
+            return error_set(err, STAGECAL_EINVAL,
+                             "F-factor range up to %g Pa^0.5 goes beyond the flooding margin "
+                             "(tests at most %g Pa^0.5: the column file's flooding F-factor "
+                             "times its margin)",
+                             par->f_hi, par->f_max);
         default_span(at, n_at, 1, hint + 2, &flo, &fhi);
+        if (isfinite(par->f_max) && fhi > par->f_max) /* a default span: cut at the margin */
+            fhi = par->f_max;
+        if (isfinite(par->f_max) && flo > fhi)
+            return error_set(err, STAGECAL_EINVAL,
+                             "no F-factor range below the flooding margin: the range starts at "
+                             "%g Pa^0.5, tests may reach %g Pa^0.5",
+                             flo, par->f_max);
         if (!(isfinite(flo) && isfinite(fhi) && flo >= 0 && fhi >= flo))
             return error_set(err, STAGECAL_EINVAL,
                              "F-factor range %g:%g is invalid (expected finite 0 <= LO <= HI "

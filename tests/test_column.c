@@ -158,6 +158,21 @@ static void column_bad_fields_are_named(void **state)
 
     rc = parse("\"height_ft\": 20,", "{\"kind\": \"alpha\", \"alpha\": 2}", &col, &err);
     expect(rc, &err, STAGECAL_EDATA, "member 'height_ft': unknown member");
+    /* flooding: the F-factor is required in the object, the margin in (0, 1] */
+    rc = parse("\"flooding\": {\"margin\": 0.7},", "{\"kind\": \"alpha\", \"alpha\": 2}", &col,
+               &err);
+    expect(rc, &err, STAGECAL_EDATA, "member 'flooding.f_factor': missing");
+    rc = parse("\"flooding\": {\"f_factor\": 2.5, \"margin\": 1.2},",
+               "{\"kind\": \"alpha\", \"alpha\": 2}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "member 'flooding.margin': 1.2 is outside (0, 1]");
+    rc = parse("\"flooding\": {\"f_factor\": 2.5},", "{\"kind\": \"alpha\", \"alpha\": 2}", &col,
+               &err);
+    assert_int_equal(rc, STAGECAL_OK);
+    assert_true(col.flood_f_pa05 == 2.5 && col.flood_margin == 0.8); /* the default margin */
+    stagecal_column_free(&col);
+    /* the temperature sensors' uncertainties (K) */
+    rc = parse3("", "{\"kind\": \"alpha\", \"alpha\": 2}", "{\"t_pot\": 60}", &col, &err);
+    expect(rc, &err, STAGECAL_EDATA, "member 'uncertainty.t_pot': 60 is outside [0, 50]");
     rc = parse("", nrtl, &col, &err); /* no pressure */
     expect(rc, &err, STAGECAL_EDATA, "member 'pressure_pa': missing");
     rc = parse("\"pressure_pa\": 101325,",

@@ -462,6 +462,26 @@ static void design_durations_and_errors(void **state)
     at[0].f_load = NAN;
     assert_int_equal(stagecal_design_propose(&pb, at, 1, &par, 3, 5, NAN, NAN, &res, out, &err),
                      STAGECAL_EINVAL);
+    /* the column's flooding margin: a default F range is cut at it, a stated one above it
+     * is refused, and every proposed test stays at or below it */
+    at[0].f_load = 1.2;
+    par.f_max = 1.5;
+    par.f_lo = 0.5;
+    par.f_hi = 2.0;
+    assert_int_equal(stagecal_design_propose(&pb, at, 1, &par, 3, 5, NAN, NAN, &res, out, &err),
+                     STAGECAL_EINVAL);
+    assert_non_null(strstr(err.text, "flooding margin"));
+    par.f_lo = par.f_hi = NAN;
+    at[0].f_load = 1.9; /* a condition of interest beyond it does not widen the range */
+    assert_int_equal(stagecal_design_propose(&pb, at, 1, &par, 3, 5, 0.5, 1.8, &res, out, &err),
+                     STAGECAL_OK);
+    assert_true(res.f_hi == 1.5 && res.f_lo == 0.5);
+    for (size_t t = 0; t < res.k; t++)
+        assert_true(res.tests[t].f_load <= 1.5);
+    par.f_max = 0.4; /* below the whole range */
+    assert_int_equal(stagecal_design_propose(&pb, at, 1, &par, 3, 5, 0.5, 1.8, &res, out, &err),
+                     STAGECAL_EINVAL);
+    par = stagecal_design_default_params();
     /* a model with σ = 0 or a covariance that is not positive definite: bad data */
     m.sigma = 0;
     assert_int_equal(stagecal_design_from_model(&m, &pb, &err), STAGECAL_EDATA);

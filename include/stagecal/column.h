@@ -70,6 +70,11 @@ typedef struct {
     double holdup_drum_mol;       /* liquid in the reflux drum and condenser [mol] (0 = none) */
     double holdup_u_rel;          /* relative standard uncertainty of the stated holdups
                                      (holdup.u_rel; 0 = not stated: 0.25 is assumed) */
+    double flood_f_pa05;          /* F-factor at which the column floods [Pa^0.5]
+                                     (flooding.f_factor; 0 = not stated) */
+    double flood_margin;          /* the fraction of flood_f_pa05 tests may reach
+                                     (flooding.margin, in (0, 1]; 0.8 when only f_factor is
+                                     given; 0 when flooding is not stated) */
     /* Warnings about the file's content that do not stop its use (an Antoine set used
      * outside its stated temperature range, ...), filled by the loader: every command that
      * uses the column shows them and calibration carries them into the model file. */

@@ -101,6 +101,10 @@ typedef struct {
                                  warm-up (stagecal_runlog_analysis_default_params) */
     size_t window_samples;    /* samples of the window itself; 0: the problem's mean, at least
                                  the analysis' shortest window */
+    double f_max;             /* largest F-factor a test may use [Pa^0.5]: the column's flooding
+                                 F-factor times its margin (column.h flood_f_pa05,
+                                 flood_margin); NAN (default): no limit. A default F range is
+                                 cut at it; a stated f_hi above it is EINVAL */
 } stagecal_design_params;
 
 stagecal_design_params stagecal_design_default_params(void);

@@ -14,14 +14,17 @@
 #include "cli.h"
 #include "commands.h"
 #include "options.h"
+#include "stagecal/calibrate.h"
 #include "stagecal/convention.h"
 #include "stagecal/design.h"
 #include "stagecal/model.h"
 #include "stagecal/plot.h"
 
 static const struct cli_usage usage = {
-    "usage: stagecal probe MODEL.json --at R[:F][,R[:F]...] [--weights W[,W...]]\n"
-    "                      [--reflux-range LO:HI] [--f-factor-range LO:HI] [--tests K]\n"
+    "usage: stagecal probe (MODEL.json | --column FILE [--form NAME] RUNLOG.csv...)\n"
+    "                      --at R[:F][,R[:F]...] [--weights W[,W...]]\n"
+    "                      [--reflux-range LO:HI] [--f-factor-range LO:HI] [--column FILE]\n"
+    "                      [--tests K]"
     "                      [--criterion i|d] [--sample-interval MIN] [--seed N]\n"
     "                      [--compare R[:F]] [--chart FILE.png|svg|pdf] [--json] [--quiet]\n",
     "Where to run the next tests: K test conditions inside the ranges that shrink the\n"
@@ -372,6 +375,11 @@ struct job {
     size_t n_at;
     struct compare cmp;
     const char *path, *chart;
+    const char *column; /* --column: the flooding margin (NULL: none); with run logs also
+                           their column */
+    const char *form;   /* --form: the correlation fitted to run logs ("auto") */
+    char **logs;        /* run logs in place of a model file (NULL: a model file) */
+    size_t nlogs;
 };
 
 /* Parses and checks the options into j; returns 0, CLI_PARSE_HELP or an exit code. */
@@ -381,7 +389,7 @@ static int parse_options(int argc, char **argv, cli_ctx *ctx, struct job *j)
     double at_r[MAX_AT], at_f[MAX_AT], wv[MAX_AT], wdummy[MAX_AT], minutes = 10;
     size_t n_at = 0, n_w = 0;
     const char *at_text = NULL, *w_text = NULL, *r_text = NULL, *f_text = NULL, *chart = NULL;
-    const char *c_text = NULL;
+    const char *c_text = NULL, *column = NULL, *form = "auto";
     struct compare cmp;
     long k = 4, seed = 1;
     int criterion = 0, first, rc;
@@ -396,7 +404,11 @@ static int parse_options(int argc, char **argv, cli_ctx *ctx, struct job *j)
                    "fitted envelope and the conditions of interest together"),
         OPT_STRING(0, "f-factor-range", &f_text, "LO:HI",
                    "F-factor range for tests [Pa^0.5] (load forms; default the\n"
-                   "same way); stay below the column's flooding margin"),
+                   "same way), at most the column's flooding margin (--column)"),
+        OPT_COLUMN(&column, "column file: tests stay below its flooding F-factor times the\n"
+                            "margin (flooding.f_factor, flooding.margin; docs/column-file.md);\n"
+                            "required with run logs"),
+        OPT_FORM(&form, "with run logs: the correlation form to fit (default: auto)"),
         OPT_LONG("tests", &k, "K", "number of test conditions, 1..64 (4)", 1, STAGECAL_DESIGN_MAXK),
         OPT_CHOICE("criterion", &criterion, "i|d", "I-optimal (default) or D-optimal",
                    criterion_names, NULL),
@@ -427,9 +439,20 @@ static int parse_options(int argc, char **argv, cli_ctx *ctx, struct job *j)
         return CLI_EXIT_USAGE;
     if (argc - first < 1)
         return cli_usage_error("a model file is required (see 'stagecal probe --help')");
-    if (argc - first > 1)
-        return cli_usage_error("unexpected argument '%s' (expected one model file)",
+    /* run logs in place of a model file: any argument that is not a .json file */
+    int logs = 0;
+    for (int i = first; i < argc; i++) {
+        size_t n = strlen(argv[i]);
+        logs |= !(n > 5 && strcmp(argv[i] + n - 5, ".json") == 0);
+    }
+    if (!logs && argc - first > 1)
+        return cli_usage_error("unexpected argument '%s' (expected one model file, or run logs "
+                               "with --column)",
                                argv[first + 1]);
+    if (logs && !column)
+        return cli_usage_error("run logs need option '--column' (their column file)");
+    if (!logs && strcmp(form, "auto") != 0)
+        return cli_usage_error("option '--form' is for run logs (a model file has its form)");
     if (!at_text)
         return cli_usage_error("option '--at' is required (see 'stagecal probe --help')");
     if (n_w && n_w != n_at)
@@ -466,6 +489,68 @@ static int parse_options(int argc, char **argv, cli_ctx *ctx, struct job *j)
     j->n_at = n_at;
     j->cmp = cmp;
     j->chart = chart;
+    j->column = column;
+    j->form = form;
+    j->logs = logs ? argv + first : NULL;
+    j->nlogs = logs ? (size_t)(argc - first) : 0;
+    if (logs && chart && cli_check_output("chart", chart, (const char *const *)j->logs, j->nlogs))
+        return CLI_EXIT_USAGE;
+    return 0;
+}
+
+/* The model of run logs: calibrate's chain in memory (no model file written), its warnings
+ * on stderr. 0 or an exit code; *m owns the model. */
+static int model_from_logs(const struct job *jb, stagecal_model *m)
+{
+    stagecal_calibrate_params cp = stagecal_calibrate_default_params();
+    stagecal_calibration cal;
+    stagecal_error err;
+    cp.form = jb->form;
+    int rc =
+        stagecal_calibrate(jb->column, (const char *const *)jb->logs, jb->nlogs, &cp, &cal, &err);
+    if (rc != STAGECAL_OK) {
+        for (size_t k = 0; cal.findings && k < cal.findings->n && k < 20; k++)
+            if (cal.findings->items[k].severity == STAGECAL_FINDING_ERROR)
+                cli_error("%s", cal.findings->items[k].text);
+        rc = cli_fail_data(&err);
+    } else {
+        stagecal_model_free(m);
+        *m = cal.model; /* the model moves out of the calibration */
+        stagecal_model_init(&cal.model);
+        for (size_t k = 0; k < m->n_warnings; k++)
+            cli_warn("%s", m->warnings[k]);
+    }
+    stagecal_calibration_free(&cal);
+    return rc;
+}
+
+/* The column's flooding margin into par->f_max (when the file states flooding), with a
+ * warning for each condition of interest beyond it. 0 or an exit code. */
+static int flooding_limit(const char *column, const stagecal_model *m,
+                          const stagecal_design_point *pts, size_t n_at,
+                          stagecal_design_params *par)
+{
+    stagecal_column col;
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    if (stagecal_column_load(column, &col, &err) != STAGECAL_OK)
+        return cli_fail(&err);
+    cli_column_warn(&col, column);
+    if (strcmp(col.id, m->column_id) != 0)
+        cli_warn("%s: column '%s' is not the model's column '%s'", column, col.id, m->column_id);
+    if (col.flood_f_pa05 > 0) {
+        par->f_max = col.flood_margin * col.flood_f_pa05;
+        for (size_t j = 0; j < n_at; j++)
+            if (pts[j].f_load > par->f_max)
+                cli_warn("%s: condition of interest F = %g Pa^0.5 is beyond the flooding margin "
+                         "(%g x %g = %g Pa^0.5): no test is proposed there",
+                         column, pts[j].f_load, col.flood_margin, col.flood_f_pa05, par->f_max);
+    } else if (m->form.uses_load) {
+        cli_warn("%s: the column file states no flooding F-factor (flooding.f_factor): the "
+                 "F-factor range is not limited by it",
+                 column);
+    }
+    stagecal_column_free(&col);
     return 0;
 }
 
@@ -487,10 +572,14 @@ int cmd_probe(int argc, char **argv, cli_ctx *ctx)
     stagecal_error err;
     stagecal_error_clear(&err);
     stagecal_model_init(&m);
-    if ((rc = stagecal_model_load(path, &m, &err))) {
+    if (jb.logs)
+        rc = model_from_logs(&jb, &m);
+    else if ((rc = stagecal_model_load(path, &m, &err)))
         rc = cli_fail(&err);
+    if (rc)
         goto done;
-    }
+    if (jb.column && (rc = flooding_limit(jb.column, &m, pts, n_at, &par)))
+        goto done;
     if (m.form.uses_load)
         for (size_t j = 0; j <= n_at; j++)
             if (j < n_at ? isnan(pts[j].f_load) : cmp.on && isnan(cmp.f)) {

@@ -85,4 +85,37 @@ expect_exit 2 "option '--compare'" -- $P "$M" --at 2 --compare -1
 expect_exit 0 "" -- $P "$M" --at 2,2.5 --chart "$tmp/probe.svg" --quiet
 grep -q "<svg" "$tmp/probe.svg" || { echo "FAIL: no SVG chart"; fails=$((fails + 1)); }
 expect_exit 2 "option '--chart'" -- $P "$M" --at 2 --chart "$M"
+# --column: no test above the column's flooding F-factor times its margin (docs/column-file.md)
+$py -c "
+import json, sys
+c = json.load(open(sys.argv[1]))
+c['flooding'] = {'f_factor': 1.6, 'margin': 0.8}
+json.dump(c, open(sys.argv[2], 'w'))
+" "$BT" "$tmp/flood.json"
+expect_exit 2 "beyond the flooding margin" -- $P "$ML" --at 2:1.2 --f-factor-range 0.9:1.5 --column "$tmp/flood.json" --quiet
+"$BIN" probe "$ML" --at 2:1.3,2.5:1.2 --tests 3 --column "$tmp/flood.json" --json >"$tmp/flood.out" 2>/dev/null
+if $py -c "
+import json, sys
+d = json.load(open(sys.argv[1]))
+assert len(d['tests']) == 3
+for t in d['tests']:
+    assert t['f_factor'] <= 1.28 + 1e-12, t
+" "$tmp/flood.out"; then echo "ok: --column flooding"; else echo "FAIL: --column flooding"; fails=$((fails + 1)); fi
+# run logs in place of a model file: the fit calibrate makes, so the same proposal
+expect_exit 2 "run logs need option '--column'" -- $P "$ROOT/datasets/demo/logs/2025-01.csv" --at 2
+expect_exit 2 "option '--form' is for run logs" -- $P "$M" --at 2 --form constant
+"$BIN" probe "$ML" --at 2:1.3,2.5:1.2 --tests 2 --json >"$tmp/from_model.json" 2>/dev/null
+"$BIN" probe --column "$BT" --form 'linear:1+1/R+F' "$ROOT/datasets/demo/logs/2025-01.csv" \
+    "$ROOT/datasets/demo/logs/2025-03.csv" --at 2:1.3,2.5:1.2 --tests 2 --json \
+    >"$tmp/from_logs.json" 2>/dev/null
+if $py -c "
+import json, sys
+a, b = (json.load(open(f)) for f in sys.argv[1:3])
+for x, y in zip(a['at'], b['at']):
+    for k in ('half_width_before', 'half_width_after'):
+        assert abs(x[k] - y[k]) <= 1e-9 * abs(x[k]), (k, x[k], y[k])
+r = lambda v: float('inf') if v == 'inf' else v
+for x, y in zip(a['tests'], b['tests']):
+    assert r(x['reflux']) == r(y['reflux']) or abs(x['reflux'] - y['reflux']) <= 1e-6 * abs(x['reflux']), (x, y)
+" "$tmp/from_model.json" "$tmp/from_logs.json"; then echo "ok: probe from run logs"; else echo "FAIL: probe from run logs"; fails=$((fails + 1)); fi
 finish
