@@ -140,6 +140,14 @@ int stagecal_batch_band_sample_scatter(const stagecal_batch_problem *pb, const s
 
     struct shifted_law law = {{m, theta, f_load}, 0.0};
     stagecal_batch_column col = {vle, shifted_stages, &law, NULL, NULL};
+    /* the dynamic model: each draw also draws the holdup when its uncertainty is stated */
+    stagecal_batch_params par = params ? *params : stagecal_batch_default_params();
+    stagecal_batch_dynamics dy;
+    double u_h = par.dynamics ? par.dynamics->holdup_u_rel : 0;
+    if (par.dynamics) {
+        dy = *par.dynamics;
+        par.dynamics = &dy;
+    }
     stagecal_batch_result r;
     stagecal_batch_result_init(&r);
     size_t ok = 0;
@@ -155,8 +163,13 @@ int stagecal_batch_band_sample_scatter(const stagecal_batch_problem *pb, const s
                 theta[i] += s[i * p + j] * z[j] * w;
         }
         law.delta = run_scatter ? m->sigma * eps * w : 0.0;
+        if (u_h > 0) { /* after the law's draws: the stream of a fixed holdup is unchanged */
+            double factor = fmax(0.05, 1 + u_h * gsl_ran_ugaussian(rng));
+            dy.holdup_column_mol = params->dynamics->holdup_column_mol * factor;
+            dy.holdup_drum_mol = params->dynamics->holdup_drum_mol * factor;
+        }
         stagecal_error e;
-        if (stagecal_batch_run(pb, &col, params, &r, &e) != STAGECAL_OK) {
+        if (stagecal_batch_run(pb, &col, &par, &r, &e) != STAGECAL_OK) {
             band->n_failed++;
             continue;
         }

@@ -337,6 +337,47 @@ static void smearing_is_rayleigh(void **state)
     stagecal_batch_result_free(&qs);
 }
 
+/* The band of the dynamic model draws the holdup with its stated uncertainty: with the
+ * law's covariance at 0, a first receiver of a fixed fraction of the charge ends at the
+ * start-up plus a fixed draw, and at total reflux time runs as holdup/V in the stage
+ * equations, so its band is the start-up's ±1.96·u·t_startup (normal percentiles of
+ * 1 + u·z): each side within [0.7, 1.3] of that (200 draws: the 2.5/97.5 % percentiles
+ * scatter by ~10 %; the pot's small change during the start-up bends the scaling). Without
+ * an uncertainty the band has no width. */
+static void band_draws_the_holdup(void **state)
+{
+    struct fixture *f = *state;
+    stagecal_batch_problem pb = two_cuts();
+    stagecal_batch_params par = stagecal_batch_default_params();
+    stagecal_batch_dynamics dy;
+    stagecal_batch_result nom;
+    stagecal_batch_band band;
+    stagecal_error err;
+    pb.cuts[0].kind = STAGECAL_BATCH_UNTIL_FRACTION;
+    pb.cuts[0].value = 0.2;
+    stagecal_batch_dynamics_init(&dy);
+    dy.holdup_column_mol = 0.04 * W0;
+    memset(f->m.cov, 0, sizeof f->m.cov);
+    f->m.dof = INFINITY;
+    run(&pb, &f->col_law, &dy, &nom);
+    par.dynamics = &dy;
+    for (int pass = 0; pass < 2; pass++) {
+        dy.holdup_u_rel = pass ? 0.25 : 0;
+        assert_int_equal(stagecal_batch_band_sample(&pb, f->vle, &f->m, NAN, &par, &nom, 200, 3,
+                                                    0.95, &band, &err),
+                         STAGECAL_OK);
+        const stagecal_batch_interval *iv = &band.cuts[0].t_end_s;
+        if (!pass) {
+            assert_abs(iv->high - iv->low, 0, 1e-9 * nom.cuts[0].t_end_s, "no holdup drawn");
+            continue;
+        }
+        double half = 1.96 * 0.25 * nom.t_startup_s;
+        assert_true(iv->high - iv->nominal > 0.7 * half && iv->high - iv->nominal < 1.3 * half);
+        assert_true(iv->nominal - iv->low > 0.7 * half && iv->nominal - iv->low < 1.3 * half);
+    }
+    stagecal_batch_result_free(&nom);
+}
+
 /* Inputs the model cannot take are refused with a message. */
 static void refuses_what_it_cannot_model(void **state)
 {
@@ -376,6 +417,7 @@ int main(void)
         cmocka_unit_test(holdup_delays_first_cut),
         cmocka_unit_test(agrees_with_independent_simulator),
         cmocka_unit_test(smearing_is_rayleigh),
+        cmocka_unit_test(band_draws_the_holdup),
         cmocka_unit_test(refuses_what_it_cannot_model),
     };
     return cmocka_run_group_tests(tests, setup, teardown);

@@ -171,6 +171,9 @@ typedef struct {
     double startup_fraction;  /* when xD has come this fraction of the way from the pot's
                                  composition to the total-reflux distillate (0.99), or has
                                  reached a constant-distillate set point, which comes first */
+    double holdup_u_rel;      /* relative standard uncertainty of the holdups: the band draws
+                                 one common factor 1 + u·z (z ~ N(0, 1), held >= 0.05) for
+                                 column and drum per draw (0 = held fixed) */
 } stagecal_batch_dynamics;
 
 /* Zero holdups, no start-up purity or time, startup_fraction 0.99. */

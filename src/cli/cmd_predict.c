@@ -304,6 +304,9 @@ static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batc
                             "scatter: --run-scatter)"));
     else
         json_object_set_new(doc, "band", json_null());
+    if (have_band && dv) /* the dynamic model's draws also draw the holdup */
+        json_object_set_new(json_object_get(doc, "band"), "holdup_u_rel",
+                            cli_json_real(dv->dy->holdup_u_rel));
     json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
     return doc;
 }
@@ -357,6 +360,8 @@ static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_r
                band->run_scatter ? "prediction (run-to-run scatter included)"
                                  : "confidence (mean law; without run-to-run scatter)",
                band->dof, band->n_ok);
+    if (have_band && dv)
+        printf(" (holdup drawn too, u = %.0f %%)", 100 * dv->dy->holdup_u_rel);
     printf("; pot left %.4g kmol at x = %.4g\n", KMOL(res->w_end_mol), res->xb_end);
     if (pb->latent_j_mol > 0)
         printf("boil-up energy %.4g GJ (latent heat %.4g kJ/mol, from %s)\n", GJ(res->energy_j),
@@ -370,7 +375,7 @@ static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_r
                "u = %.0f %%), constant molar overflow, effective (ideal) stages from the model; "
                "the start-up and the delays scale with the holdup; quasi-steady batch time "
                "%.3f h\n",
-               100 * (dv->u_rel > 0 ? dv->u_rel : 0.25), H(dv->qs->t_end_s));
+               100 * dv->dy->holdup_u_rel, H(dv->qs->t_end_s));
     /* extrapolation beyond the fitted envelope belongs with the numbers, not only on stderr */
     for (size_t i = 0; i < res->n_warnings; i++)
         printf("warning: %s\n", res->warnings[i]);
@@ -556,6 +561,8 @@ static int pick_dynamics(const struct request *q, const cli_system *sys,
         return cli_usage_error("give one of '--startup-xd' and '--startup-time'");
     dy->holdup_column_mol = sys->col.holdup_column_mol;
     dy->holdup_drum_mol = sys->col.holdup_drum_mol;
+    /* the band draws the holdup too: the file's u_rel, 0.25 when it states none (column.h) */
+    dy->holdup_u_rel = sys->col.holdup_u_rel > 0 ? sys->col.holdup_u_rel : 0.25;
     if (!isnan(q->startup_xd))
         dy->startup_xd = q->startup_xd;
     if (!isnan(q->startup_h))

@@ -214,6 +214,10 @@ check_py dyn-startup-1.5h "abs(d['startup_h'] - 1.5) < 1e-12"
 check_exit dyn-setpoint 0 "$bin" predict $common --xd-setpoint 0.95 --reflux-max 20 \
     --cut product:reflux=20 --cut slop:pot-x=0.02 --samples 0 --column "$tmp/held.json" --json
 check_py dyn-setpoint-startup "abs(d['xd_startup'] - 0.95) < 1e-9 and d['startup_h'] > 0"
+# the band of the dynamic model draws the holdup too (u = 0.25 when the file states none)
+check_exit dyn-band 0 "$bin" predict $common --reflux 3 --cut product:mean-x=0.95 --cut slop:pot-x=0.1 \
+    --samples 20 --column "$tmp/held.json" --json
+check_py dyn-band-holdup "d['band']['holdup_u_rel'] == 0.25 and d['band']['ok'] == 20 and d['band']['batch_time_h']['low'] < d['batch_time_h'] < d['band']['batch_time_h']['high']"
 check_exit dyn-text 0 "$bin" predict $dyn --column "$tmp/held.json"
 if grep -q "^start-up at total reflux: .* h to the first draw" "$tmp/out" && grep -q "smearing (sd of x)" "$tmp/out" &&
     [ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ]; then echo "ok dynamic text output"
