@@ -30,8 +30,15 @@
 #include "fileio.h"
 #include "internal.h"
 
-enum { COL_PAGE = 0, COL_AXIS = 1, COL_GRID = 2, COL_SERIES = 3, COL_TINT = 11, NCOL0 = 19 };
-
+enum {
+    COL_PAGE = 0,
+    COL_AXIS = 1,
+    COL_GRID = 2,
+    COL_SERIES = 3,
+    COL_TINT = 11,
+    COL_LIGHT = 19,
+    NCOL0 = 27
+};
 /* Okabe–Ito, in the order we hand colours out (blue first: most distinct from the
  * dark axes and from vermillion, also in greyscale). */
 static const unsigned long palette[STAGECAL_PLOT_NCOLOURS] = {
@@ -40,8 +47,10 @@ static const char *const palette_names[STAGECAL_PLOT_NCOLOURS] = {
     "blue",           "vermillion", "bluish green", "orange",
     "reddish purple", "sky blue",   "black",        "yellow"};
 
-/* Tint = 25 % colour + 75 % white: light enough for a band behind lines and points. */
+/* Tint = 25 % colour + 75 % white: light enough for a band behind lines and points. The
+ * light tint (10 %) marks what lies outside the fitted envelope (extrapolated). */
 #define TINT_WEIGHT 0.25
+#define LIGHT_WEIGHT 0.10
 
 static const unsigned long axis_rgb = 0x333333;
 static const unsigned long grid_rgb = 0xDDDDDD;
@@ -64,7 +73,7 @@ static const char *const marker_glyphs[STAGECAL_PLOT_NMARKERS] = {
 
 stagecal_plot_params stagecal_plot_default_params(void)
 {
-    stagecal_plot_params p = {800, 560, 0.9, NULL};
+    stagecal_plot_params p = {800, 560, 0.9, NULL, NULL};
     return p;
 }
 
@@ -79,15 +88,20 @@ unsigned long stagecal_plot_colour(int i)
     return palette[wrap(i, STAGECAL_PLOT_NCOLOURS)];
 }
 
-unsigned long stagecal_plot_tint(int i)
+static unsigned long mix_white(int i, double weight)
 {
     unsigned long c = stagecal_plot_colour(i), t = 0;
     for (int shift = 16; shift >= 0; shift -= 8) {
         double v = (double)((c >> shift) & 0xFF);
-        unsigned long w = (unsigned long)lround(TINT_WEIGHT * v + (1 - TINT_WEIGHT) * 255.0);
+        unsigned long w = (unsigned long)lround(weight * v + (1 - weight) * 255.0);
         t |= w << shift;
     }
     return t;
+}
+
+unsigned long stagecal_plot_tint(int i)
+{
+    return mix_white(i, TINT_WEIGHT);
 }
 
 const char *stagecal_plot_colour_name(int i)
@@ -124,6 +138,78 @@ static const char *series_name(const stagecal_plot_series *s)
     return (s->label && s->label[0]) ? s->label : "unlabelled";
 }
 
+/* The panels of a chart as a list: a chart without panels is one panel of its series. */
+typedef struct {
+    const stagecal_plot_series *series;
+    size_t n_series;
+    const char *y_label;
+    double y_min, y_max, weight;
+} panel_view;
+
+static size_t panel_views(const stagecal_plot_chart *c, panel_view *v)
+{
+    if (c->n_panels == 0) {
+        v[0].series = c->series;
+        v[0].n_series = c->n_series;
+        v[0].y_label = c->y_label;
+        v[0].y_min = c->y_min;
+        v[0].y_max = c->y_max;
+        v[0].weight = 1;
+        return 1;
+    }
+    size_t n = c->n_panels < STAGECAL_PLOT_MAXPANELS ? c->n_panels : STAGECAL_PLOT_MAXPANELS;
+    for (size_t p = 0; p < n; p++) {
+        v[p].series = c->panels[p].series;
+        v[p].n_series = c->panels[p].n_series;
+        v[p].y_label = c->panels[p].y_label;
+        v[p].y_min = c->panels[p].y_min;
+        v[p].y_max = c->panels[p].y_max;
+        v[p].weight = c->panels[p].weight > 0 ? c->panels[p].weight : 1;
+    }
+    return n;
+}
+
+/* Is point k of s drawable (every coordinate it needs finite)? */
+static int point_ok(const stagecal_plot_series *s, size_t k)
+{
+    if (!isfinite(s->x[k]))
+        return 0;
+    if (s->kind == STAGECAL_PLOT_TEXT)
+        return 1;
+    if (!isfinite(s->y[k]))
+        return 0;
+    return (s->kind != STAGECAL_PLOT_BAND && s->kind != STAGECAL_PLOT_ERRBAR) ||
+           isfinite(s->y_hi[k]);
+}
+
+static int check_series(const stagecal_plot_series *s, size_t i, size_t *finite,
+                        stagecal_error *err)
+{
+    int need_hi = s->kind == STAGECAL_PLOT_BAND || s->kind == STAGECAL_PLOT_ERRBAR;
+    if (s->kind > STAGECAL_PLOT_TEXT)
+        return error_set(err, STAGECAL_EINVAL, "series %zu ('%s'): unknown kind %d", i + 1,
+                         series_name(s), (int)s->kind);
+    if (s->n == 0 || !s->x || !s->y || (need_hi && !s->y_hi))
+        return error_set(err, STAGECAL_EINVAL,
+                         "series %zu ('%s'): no points or a missing array (expected n >= 1 "
+                         "and x, y%s)",
+                         i + 1, series_name(s), need_hi ? ", y_hi" : "");
+    if (s->colour < 0 || s->colour >= STAGECAL_PLOT_NCOLOURS || s->line < 0 ||
+        s->line >= STAGECAL_PLOT_NLINES || s->marker < 0 || s->marker >= STAGECAL_PLOT_NMARKERS ||
+        !(s->width >= 0) || s->width > 20)
+        return error_set(err, STAGECAL_EINVAL,
+                         "series %zu ('%s'): colour %d, line %d, marker %d or width %g out of "
+                         "range (expected 0..%d, 0..%d, 0..%d, [0, 20])",
+                         i + 1, series_name(s), s->colour, s->line, s->marker, s->width,
+                         STAGECAL_PLOT_NCOLOURS - 1, STAGECAL_PLOT_NLINES - 1,
+                         STAGECAL_PLOT_NMARKERS - 1);
+    if (s->kind == STAGECAL_PLOT_TEXT && (!s->label || !s->label[0]))
+        return error_set(err, STAGECAL_EINVAL, "series %zu: a text series without text", i + 1);
+    for (size_t k = 0; k < s->n; k++)
+        *finite += point_ok(s, k) && s->kind != STAGECAL_PLOT_TEXT;
+    return STAGECAL_OK;
+}
+
 int stagecal_plot_check(const stagecal_plot_chart *c, stagecal_error *err)
 {
     if (!c)
@@ -131,75 +217,82 @@ int stagecal_plot_check(const stagecal_plot_chart *c, stagecal_error *err)
     if (c->n_series > 0 && !c->series)
         return error_set(err, STAGECAL_EINVAL, "chart has %zu series but no series array",
                          c->n_series);
-    size_t finite = 0;
-    for (size_t i = 0; i < c->n_series; i++) {
-        const stagecal_plot_series *s = &c->series[i];
-        if (s->kind > STAGECAL_PLOT_BAND)
-            return error_set(err, STAGECAL_EINVAL, "series %zu ('%s'): unknown kind %d", i + 1,
-                             series_name(s), (int)s->kind);
-        if (s->n == 0 || !s->x || !s->y || (s->kind == STAGECAL_PLOT_BAND && !s->y_hi))
+    if (c->n_panels > STAGECAL_PLOT_MAXPANELS || (c->n_panels > 0 && !c->panels))
+        return error_set(err, STAGECAL_EINVAL,
+                         "chart '%s': %zu panels (expected at most %d, with a panel array)",
+                         c->title ? c->title : "", c->n_panels, STAGECAL_PLOT_MAXPANELS);
+    panel_view pv[STAGECAL_PLOT_MAXPANELS];
+    size_t np = panel_views(c, pv), finite = 0, idx = 0;
+    int rc;
+    for (size_t p = 0; p < np; p++) {
+        size_t pf = 0;
+        if (pv[p].n_series > 0 && !pv[p].series)
+            return error_set(err, STAGECAL_EINVAL, "panel %zu has %zu series but no array", p + 1,
+                             pv[p].n_series);
+        for (size_t i = 0; i < pv[p].n_series; i++)
+            if ((rc = check_series(&pv[p].series[i], idx++, &pf, err)))
+                return rc;
+        if (c->n_panels > 0 && pf == 0)
             return error_set(err, STAGECAL_EINVAL,
-                             "series %zu ('%s'): no points or a missing array (expected n >= 1 "
-                             "and x, y%s)",
-                             i + 1, series_name(s), s->kind == STAGECAL_PLOT_BAND ? ", y_hi" : "");
-        if (s->colour < 0 || s->colour >= STAGECAL_PLOT_NCOLOURS || s->line < 0 ||
-            s->line >= STAGECAL_PLOT_NLINES || s->marker < 0 ||
-            s->marker >= STAGECAL_PLOT_NMARKERS || !(s->width >= 0) || s->width > 20)
+                             "chart '%s', panel %zu ('%s'): nothing to draw (expected at least "
+                             "one finite point)",
+                             c->title ? c->title : "", p + 1, pv[p].y_label ? pv[p].y_label : "");
+        finite += pf;
+        const double lim[2] = {pv[p].y_min, pv[p].y_max};
+        if (!(isnan(lim[0]) || isnan(lim[1])) &&
+            (!isfinite(lim[0]) || !isfinite(lim[1]) || !(lim[0] < lim[1])))
             return error_set(err, STAGECAL_EINVAL,
-                             "series %zu ('%s'): colour %d, line %d, marker %d or width %g out of "
-                             "range (expected 0..%d, 0..%d, 0..%d, [0, 20])",
-                             i + 1, series_name(s), s->colour, s->line, s->marker, s->width,
-                             STAGECAL_PLOT_NCOLOURS - 1, STAGECAL_PLOT_NLINES - 1,
-                             STAGECAL_PLOT_NMARKERS - 1);
-        for (size_t k = 0; k < s->n; k++) {
-            if (isfinite(s->x[k]) && isfinite(s->y[k]) &&
-                (s->kind != STAGECAL_PLOT_BAND || isfinite(s->y_hi[k])))
-                finite++;
-        }
+                             "chart '%s': y axis range [%g, %g] (expected finite min < max, or "
+                             "NAN for automatic)",
+                             c->title ? c->title : "", lim[0], lim[1]);
     }
     if (finite == 0)
         return error_set(err, STAGECAL_EINVAL,
                          "chart '%s': nothing to draw (expected at least one finite point)",
                          c->title ? c->title : "");
-    const double lim[4] = {c->x_min, c->x_max, c->y_min, c->y_max};
-    for (int a = 0; a < 2; a++) {
-        double lo = lim[2 * a], hi = lim[2 * a + 1];
-        if (isnan(lo) || isnan(hi))
-            continue;
-        if (!isfinite(lo) || !isfinite(hi) || !(lo < hi))
-            return error_set(err, STAGECAL_EINVAL,
-                             "chart '%s': %s axis range [%g, %g] (expected finite min < max, or "
-                             "NAN for automatic)",
-                             c->title ? c->title : "", a == 0 ? "x" : "y", lo, hi);
-    }
+    if (!(isnan(c->x_min) || isnan(c->x_max)) &&
+        (!isfinite(c->x_min) || !isfinite(c->x_max) || !(c->x_min < c->x_max)))
+        return error_set(err, STAGECAL_EINVAL,
+                         "chart '%s': x axis range [%g, %g] (expected finite min < max, or "
+                         "NAN for automatic)",
+                         c->title ? c->title : "", c->x_min, c->x_max);
     return STAGECAL_OK;
 }
 
-/* Axis range from the data where the chart leaves it open (NAN), padded 4 %. */
-static void axis_range(const stagecal_plot_chart *c, int axis, double *lo, double *hi)
+/* Axis range from the data where the chart leaves it open (NAN), padded 4 %. axis 0: x
+ * over every panel; axis 1: y of panel pv (spans and texts do not count for y). */
+static void axis_range(const panel_view *pv, size_t np, int axis, double a, double b, double *lo,
+                       double *hi)
 {
-    double a = axis == 0 ? c->x_min : c->y_min, b = axis == 0 ? c->x_max : c->y_max;
     if (!isnan(a) && !isnan(b)) {
         *lo = a;
         *hi = b;
         return;
     }
     double mn = INFINITY, mx = -INFINITY;
-    for (size_t i = 0; i < c->n_series; i++) {
-        const stagecal_plot_series *s = &c->series[i];
-        for (size_t k = 0; k < s->n; k++) {
-            if (!isfinite(s->x[k]) || !isfinite(s->y[k]))
-                continue;
-            if (axis == 0) {
-                mn = fmin(mn, s->x[k]);
-                mx = fmax(mx, s->x[k]);
-            } else {
-                mn = fmin(mn, s->y[k]);
-                mx = fmax(mx, s->y[k]);
-                if (s->y_hi && isfinite(s->y_hi[k]))
-                    mx = fmax(mx, s->y_hi[k]), mn = fmin(mn, s->y_hi[k]);
+    for (size_t p = 0; p < np; p++) {
+        for (size_t i = 0; i < pv[p].n_series; i++) {
+            const stagecal_plot_series *s = &pv[p].series[i];
+            for (size_t k = 0; k < s->n; k++) {
+                if (!point_ok(s, k))
+                    continue;
+                if (axis == 0) {
+                    mn = fmin(mn, s->x[k]);
+                    mx = fmax(mx, s->x[k]);
+                    if (s->kind == STAGECAL_PLOT_SPAN)
+                        mn = fmin(mn, s->y[k]), mx = fmax(mx, s->y[k]);
+                } else if (s->kind != STAGECAL_PLOT_SPAN && s->kind != STAGECAL_PLOT_TEXT) {
+                    mn = fmin(mn, s->y[k]);
+                    mx = fmax(mx, s->y[k]);
+                    if (s->y_hi && isfinite(s->y_hi[k]))
+                        mx = fmax(mx, s->y_hi[k]), mn = fmin(mn, s->y_hi[k]);
+                }
             }
         }
+    }
+    if (!isfinite(mn)) { /* a panel of stripes only */
+        mn = 0;
+        mx = 1;
     }
     if (mx - mn <= 1e-12 * fmax(1.0, fabs(mx))) {
         /* one value: open a window around it so PLplot gets a proper range */
@@ -252,15 +345,50 @@ static void silent_abort(PLCHAR_VECTOR msg)
 }
 
 /* Draws the finite runs of a series: lines break at non-finite points, bands are
- * filled per finite run, points skip non-finite ones. xs, ys, zs: scratch of s->n. */
+ * filled per finite run, points skip non-finite ones. xs, ys, zs: scratch of 2·s->n.
+ * y0, y1: the panel's y range (stripes fill it; texts hang below its top). */
 static void draw_series(const stagecal_plot_series *s, PLFLT *xs, PLFLT *ys, PLFLT *zs,
-                        double chr_scale)
+                        double chr_scale, double y0, double y1)
 {
     size_t k = 0;
+    if (s->kind == STAGECAL_PLOT_TEXT) {
+        plcol0(COL_SERIES + s->colour);
+        plschr(0.0, 0.8 * chr_scale);
+        plptex(s->x[0], y1 - 0.03 * (y1 - y0), 1, 0, 0.0, s->label);
+        plschr(0.0, chr_scale);
+        return;
+    }
+    if (s->kind == STAGECAL_PLOT_SPAN) {
+        plcol0((s->line == 1 ? COL_LIGHT : COL_TINT) + s->colour);
+        for (k = 0; k < s->n; k++) {
+            if (!point_ok(s, k))
+                continue;
+            PLFLT fx[4] = {s->x[k], s->y[k], s->y[k], s->x[k]}, fy[4] = {y0, y0, y1, y1};
+            plfill(4, fx, fy);
+        }
+        return;
+    }
+    if (s->kind == STAGECAL_PLOT_ERRBAR) {
+        size_t m = 0;
+        for (k = 0; k < s->n; k++) {
+            if (point_ok(s, k)) {
+                xs[m] = s->x[k];
+                ys[m] = s->y[k];
+                zs[m] = s->y_hi[k];
+                m++;
+            }
+        }
+        plcol0(COL_SERIES + s->colour);
+        plwidth(s->width > 0 ? s->width : 1.0);
+        if (m > 0)
+            plerry((PLINT)m, xs, ys, zs);
+        plwidth(1.0);
+        return;
+    }
     if (s->kind == STAGECAL_PLOT_POINTS) {
         size_t m = 0;
         for (k = 0; k < s->n; k++) {
-            if (isfinite(s->x[k]) && isfinite(s->y[k])) {
+            if (point_ok(s, k)) {
                 xs[m] = s->x[k];
                 ys[m] = s->y[k];
                 m++;
@@ -276,8 +404,7 @@ static void draw_series(const stagecal_plot_series *s, PLFLT *xs, PLFLT *ys, PLF
     }
     while (k < s->n) {
         size_t m = 0;
-        while (k < s->n && isfinite(s->x[k]) && isfinite(s->y[k]) &&
-               (s->kind != STAGECAL_PLOT_BAND || isfinite(s->y_hi[k]))) {
+        while (k < s->n && point_ok(s, k)) {
             xs[m] = s->x[k];
             ys[m] = s->y[k];
             if (s->kind == STAGECAL_PLOT_BAND)
@@ -298,73 +425,329 @@ static void draw_series(const stagecal_plot_series *s, PLFLT *xs, PLFLT *ys, PLF
                 xs[2 * m - 1 - j] = xs[j];
                 ys[2 * m - 1 - j] = zs[j];
             }
-            plcol0(COL_TINT + s->colour);
+            plcol0((s->line == 1 ? COL_LIGHT : COL_TINT) + s->colour);
             plfill((PLINT)(2 * m), xs, ys);
         }
-        while (k < s->n && !(isfinite(s->x[k]) && isfinite(s->y[k]) &&
-                             (s->kind != STAGECAL_PLOT_BAND || isfinite(s->y_hi[k]))))
+        while (k < s->n && !point_ok(s, k))
             k++;
     }
 }
 
-static void draw_legend(const stagecal_plot_chart *c)
+/* ---- layout ------------------------------------------------------------------------- */
+
+/* PLplot's legend call, in one place (the placement estimates its box from these). */
+#define LEG_PLOT_WIDTH 0.08 /* sample width [fraction of the viewport width] */
+#define LEG_TEXT_OFFSET 0.8
+#define LEG_TEXT_SCALE 0.75
+#define LEG_TEXT_SPACING 1.8
+#define LEG_OFFSET 0.02 /* from the corner [fraction of the viewport] */
+#define MAXLEG 40
+
+static size_t utf8_len(const char *s)
 {
-    enum { MAXLEG = 40 };
+    size_t n = 0;
+    for (; s && *s; s++)
+        n += ((unsigned char)*s & 0xC0) != 0x80;
+    return n;
+}
+
+static int in_legend(const stagecal_plot_series *s)
+{
+    return s->label && s->label[0] && s->kind != STAGECAL_PLOT_TEXT;
+}
+
+/* Legend entries and their longest label (characters). */
+static size_t legend_entries(const panel_view *pv, size_t np, size_t *maxchars)
+{
+    size_t n = 0;
+    *maxchars = 0;
+    for (size_t p = 0; p < np; p++)
+        for (size_t i = 0; i < pv[p].n_series && n < MAXLEG; i++)
+            if (in_legend(&pv[p].series[i])) {
+                size_t l = utf8_len(pv[p].series[i].label);
+                *maxchars = l > *maxchars ? l : *maxchars;
+                n++;
+            }
+    return n;
+}
+
+static void map_point(const stagecal_plot_layout *l, size_t p, double x, double y, double *px,
+                      double *py)
+{
+    const stagecal_plot_box *b = &l->box[p];
+    *px = b->x0 + (x - l->x_min) / (l->x_max - l->x_min) * (b->x1 - b->x0);
+    *py = b->y0 + (y - l->y_min[p]) / (l->y_max[p] - l->y_min[p]) * (b->y1 - b->y0);
+}
+
+void stagecal_plot_layout_map(const stagecal_plot_layout *l, size_t p, double x, double y,
+                              double *px, double *py)
+{
+    if (!l || p >= l->n_panels) {
+        *px = *py = NAN;
+        return;
+    }
+    map_point(l, p, x, y, px, py);
+}
+
+static int box_has(const stagecal_plot_box *b, double x, double y)
+{
+    return x >= b->x0 && x <= b->x1 && y >= b->y0 && y <= b->y1;
+}
+
+/* Does the segment (ax, ay)–(bx, by) meet the box? (Liang–Barsky clipping.) */
+static int seg_hits(const stagecal_plot_box *b, double ax, double ay, double bx, double by)
+{
+    double t0 = 0, t1 = 1, dx = bx - ax, dy = by - ay;
+    const double p[4] = {-dx, dx, -dy, dy};
+    const double q[4] = {ax - b->x0, b->x1 - ax, ay - b->y0, b->y1 - ay};
+    for (int i = 0; i < 4; i++) {
+        if (p[i] == 0) {
+            if (q[i] < 0)
+                return 0;
+            continue;
+        }
+        double r = q[i] / p[i];
+        if (p[i] < 0)
+            t0 = fmax(t0, r);
+        else
+            t1 = fmin(t1, r);
+        if (t0 > t1)
+            return 0;
+    }
+    return 1;
+}
+
+/* Does series s of panel p put anything into box b (page fractions)? */
+static int series_hits(const stagecal_plot_layout *l, size_t p, const stagecal_plot_series *s,
+                       const stagecal_plot_box *b)
+{
+    double mw = 0.5 * l->marker_w * (s->width > 0 ? s->width : 1),
+           mh = 0.5 * l->marker_h * (s->width > 0 ? s->width : 1);
+    double px0 = NAN, py0 = NAN, qx0 = NAN, qy0 = NAN;
+    for (size_t k = 0; k < s->n; k++) {
+        if (!point_ok(s, k)) {
+            px0 = py0 = qx0 = qy0 = NAN;
+            continue;
+        }
+        double px, py, qx, qy;
+        switch (s->kind) {
+        case STAGECAL_PLOT_POINTS: {
+            map_point(l, p, s->x[k], s->y[k], &px, &py);
+            stagecal_plot_box m = {px - mw, px + mw, py - mh, py + mh};
+            if (m.x1 >= b->x0 && m.x0 <= b->x1 && m.y1 >= b->y0 && m.y0 <= b->y1)
+                return 1;
+            break;
+        }
+        case STAGECAL_PLOT_TEXT: {
+            map_point(l, p, s->x[k], l->y_max[p], &px, &py);
+            stagecal_plot_box m = {px, px + 0.9 * l->marker_w * (double)utf8_len(s->label),
+                                   py - 2 * l->marker_h, py};
+            if (m.x1 >= b->x0 && m.x0 <= b->x1 && m.y1 >= b->y0 && m.y0 <= b->y1)
+                return 1;
+            break;
+        }
+        case STAGECAL_PLOT_SPAN:
+            map_point(l, p, s->x[k], l->y_min[p], &px, &py);
+            map_point(l, p, s->y[k], l->y_min[p], &qx, &qy);
+            if (fmax(px, qx) >= b->x0 && fmin(px, qx) <= b->x1)
+                return 1;
+            break;
+        case STAGECAL_PLOT_ERRBAR:
+            map_point(l, p, s->x[k], s->y[k], &px, &py);
+            map_point(l, p, s->x[k], s->y_hi[k], &qx, &qy);
+            if (seg_hits(b, px, py, qx, qy))
+                return 1;
+            break;
+        case STAGECAL_PLOT_LINE:
+            map_point(l, p, s->x[k], s->y[k], &px, &py);
+            if ((isnan(px0) && box_has(b, px, py)) ||
+                (!isnan(px0) && seg_hits(b, px0, py0, px, py)))
+                return 1;
+            px0 = px;
+            py0 = py;
+            break;
+        case STAGECAL_PLOT_BAND:
+            map_point(l, p, s->x[k], s->y[k], &px, &py);
+            map_point(l, p, s->x[k], s->y_hi[k], &qx, &qy);
+            if (seg_hits(b, px, py, qx, qy))
+                return 1;
+            if (!isnan(px0)) {
+                /* the quadrilateral between two abscissae: its edges, or the box inside it */
+                double cx = 0.5 * (b->x0 + b->x1), cy = 0.5 * (b->y0 + b->y1);
+                if (seg_hits(b, px0, py0, px, py) || seg_hits(b, qx0, qy0, qx, qy))
+                    return 1;
+                if (cx >= fmin(px0, px) && cx <= fmax(px0, px)) {
+                    double t = px != px0 ? (cx - px0) / (px - px0) : 0;
+                    double lo = py0 + t * (py - py0), hi = qy0 + t * (qy - qy0);
+                    if (cy >= fmin(lo, hi) && cy <= fmax(lo, hi))
+                        return 1;
+                }
+            }
+            px0 = px;
+            py0 = py;
+            qx0 = qx;
+            qy0 = qy;
+            break;
+        }
+    }
+    return 0;
+}
+
+/* The legend's box in corner `corner` of panel p (legend_pos numbering), w and h in page
+ * fractions. */
+static stagecal_plot_box corner_box(const stagecal_plot_box *v, int corner, double w, double h)
+{
+    double ox = LEG_OFFSET * (v->x1 - v->x0), oy = LEG_OFFSET * (v->y1 - v->y0);
+    int left = corner == 0 || corner == 3, top = corner == 0 || corner == 2;
+    stagecal_plot_box b;
+    b.x0 = left ? v->x0 + ox : v->x1 - ox - w;
+    b.x1 = b.x0 + w;
+    b.y1 = top ? v->y1 - oy : v->y0 + oy + h;
+    b.y0 = b.y1 - h;
+    return b;
+}
+
+/* Computes boxes, ranges and the legend's place (before anything is drawn). ht: character
+ * height [mm]; pw, ph: page size [mm]. */
+static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size_t np, double ht,
+                        double pw, double ph, stagecal_plot_layout *l)
+{
+    memset(l, 0, sizeof *l);
+    l->n_panels = np;
+    axis_range(pv, np, 0, c->x_min, c->x_max, &l->x_min, &l->x_max);
+    for (size_t p = 0; p < np; p++)
+        axis_range(&pv[p], 1, 1, pv[p].y_min, pv[p].y_max, &l->y_min[p], &l->y_max[p]);
+    double ml = 7.0 * ht / pw, mr = 2.5 * ht / pw, mb = 4.5 * ht / ph, mt = 3.2 * ht / ph,
+           gap = 1.0 * ht / ph;
+    double wsum = 0, y = 1 - mt, avail = 1 - mt - mb - gap * (double)(np - 1);
+    for (size_t p = 0; p < np; p++)
+        wsum += pv[p].weight;
+    for (size_t p = 0; p < np; p++) {
+        double h = avail * pv[p].weight / wsum;
+        l->box[p] = (stagecal_plot_box){ml, 1 - mr, y - h, y};
+        y -= h + gap;
+    }
+    l->marker_w = ht / pw; /* a marker glyph is about one character high and wide */
+    l->marker_h = ht / ph;
+    size_t maxchars, n = c->legend ? legend_entries(pv, np, &maxchars) : 0;
+    if (n == 0)
+        return;
+    l->has_legend = 1;
+    /* the legend's size, from PLplot's layout rules: n rows of LEG_TEXT_SPACING character
+     * heights; the sample, the offset and the text at most 0.8 character heights per
+     * character (measured: 0.65 with cairo, 0.75 with the svg driver), plus 5 characters of
+     * margins */
+    double text_w = ht * (5.0 + 0.8 * (double)maxchars) / pw;
+    double h = ht * (LEG_TEXT_SPACING * (double)n + 0.6) / ph;
+    if (np == 1) {
+        for (int k = 0; k < 4; k++) {
+            int corner = (c->legend_pos + k) & 3;
+            double w = LEG_PLOT_WIDTH * (l->box[0].x1 - l->box[0].x0) + text_w;
+            stagecal_plot_box b = corner_box(&l->box[0], corner, w, h);
+            int hit = 0;
+            for (size_t i = 0; i < pv[0].n_series && !hit; i++)
+                hit = series_hits(l, 0, &pv[0].series[i], &b);
+            if (!hit) {
+                l->legend_inside = 1;
+                l->legend_corner = corner;
+                l->legend_est = b;
+                return;
+            }
+        }
+    }
+    /* outside, on the right of the boxes, in a region of its own from the top of the first
+     * box to the bottom of the last: its sample is LEG_PLOT_WIDTH of that region, the text
+     * 0.76 character heights a character (the larger of the two drivers' measures) */
+    double tw = ht * (2.6 + 0.76 * (double)maxchars) / pw;
+    double x1 = 0.985 - tw / (1 - LEG_PLOT_WIDTH);
+    if (x1 - l->box[0].x0 < 0.3) /* a legend too wide for the page: keep a usable plot */
+        x1 = l->box[0].x0 + 0.3;
+    for (size_t p = 0; p < np; p++)
+        l->box[p].x1 = x1;
+    l->legend_inside = 0;
+    l->legend_region = (stagecal_plot_box){x1 + 0.01, 0.995, l->box[np - 1].y0, l->box[0].y1};
+    double rw = l->legend_region.x1 - l->legend_region.x0;
+    l->legend_est =
+        (stagecal_plot_box){l->legend_region.x0, l->legend_region.x0 + LEG_PLOT_WIDTH * rw + tw,
+                            l->box[0].y1 - h, l->box[0].y1};
+}
+
+static void draw_legend(const panel_view *pv, size_t np, stagecal_plot_layout *l)
+{
     PLINT opt[MAXLEG], tcol[MAXLEG], bcol[MAXLEG], bpat[MAXLEG], lcol[MAXLEG], lsty[MAXLEG],
         scol[MAXLEG], snum[MAXLEG];
     PLFLT bscale[MAXLEG], bwidth[MAXLEG], lwidth[MAXLEG], sscale[MAXLEG];
     const char *text[MAXLEG], *sym[MAXLEG];
     PLINT n = 0;
-    for (size_t i = 0; i < c->n_series && n < MAXLEG; i++) {
-        const stagecal_plot_series *s = &c->series[i];
-        if (!s->label || !s->label[0])
-            continue;
-        opt[n] = s->kind == STAGECAL_PLOT_LINE     ? PL_LEGEND_LINE
-                 : s->kind == STAGECAL_PLOT_POINTS ? PL_LEGEND_SYMBOL
-                                                   : PL_LEGEND_COLOR_BOX;
-        tcol[n] = COL_AXIS;
-        text[n] = s->label; /* copied and '#'-escaped by the caller of draw_legend */
-        bcol[n] = COL_TINT + s->colour;
-        bpat[n] = 0;
-        bscale[n] = 0.8;
-        bwidth[n] = 1;
-        lcol[n] = COL_SERIES + s->colour;
-        lsty[n] = line_styles[s->line];
-        lwidth[n] = s->width > 0 ? s->width : 2.0;
-        scol[n] = COL_SERIES + s->colour;
-        sscale[n] = s->kind == STAGECAL_PLOT_POINTS && s->width > 0 ? fmin(s->width, 1.3) : 1.0;
-        snum[n] = 3; /* PLplot spreads them over the sample width */
-        sym[n] = marker_glyphs[s->marker];
-        n++;
+    for (size_t p = 0; p < np; p++) {
+        for (size_t i = 0; i < pv[p].n_series && n < MAXLEG; i++) {
+            const stagecal_plot_series *s = &pv[p].series[i];
+            if (!in_legend(s))
+                continue;
+            int fill = s->kind == STAGECAL_PLOT_BAND || s->kind == STAGECAL_PLOT_SPAN;
+            opt[n] = s->kind == STAGECAL_PLOT_LINE || s->kind == STAGECAL_PLOT_ERRBAR
+                         ? PL_LEGEND_LINE
+                     : s->kind == STAGECAL_PLOT_POINTS ? PL_LEGEND_SYMBOL
+                                                       : PL_LEGEND_COLOR_BOX;
+            tcol[n] = COL_AXIS;
+            text[n] = s->label; /* escaped by prepare() */
+            bcol[n] = (fill && s->line == 1 ? COL_LIGHT : COL_TINT) + s->colour;
+            bpat[n] = 0;
+            bscale[n] = 0.8;
+            bwidth[n] = 1;
+            lcol[n] = COL_SERIES + s->colour;
+            lsty[n] = s->kind == STAGECAL_PLOT_ERRBAR ? 1 : line_styles[s->line];
+            lwidth[n] = s->width > 0 ? s->width : s->kind == STAGECAL_PLOT_ERRBAR ? 1.0 : 2.0;
+            scol[n] = COL_SERIES + s->colour;
+            sscale[n] = s->kind == STAGECAL_PLOT_POINTS && s->width > 0 ? fmin(s->width, 1.3) : 1.0;
+            snum[n] = 3; /* PLplot spreads them over the sample width */
+            sym[n] = marker_glyphs[s->marker];
+            n++;
+        }
     }
     if (n == 0)
         return;
-    PLFLT w, h;
     static const PLINT where[4] = {
         PL_POSITION_TOP | PL_POSITION_LEFT, PL_POSITION_BOTTOM | PL_POSITION_RIGHT,
         PL_POSITION_TOP | PL_POSITION_RIGHT, PL_POSITION_BOTTOM | PL_POSITION_LEFT};
-    PLINT pos = where[c->legend_pos & 3] | PL_POSITION_INSIDE;
-    pllegend(&w, &h, PL_LEGEND_BACKGROUND | PL_LEGEND_BOUNDING_BOX, pos, 0.02, 0.02, 0.08, COL_PAGE,
-             COL_GRID, 1, 0, 0, n, opt, 0.8, 0.75, 1.8, 0.0, tcol, text, bcol, bpat, bscale, bwidth,
-             lcol, lsty, lwidth, scol, sscale, snum, sym);
+    /* inside: a corner of the first box; outside: the top left of its own region */
+    const stagecal_plot_box *v = l->legend_inside ? &l->box[0] : &l->legend_region;
+    PLINT pos = (l->legend_inside ? where[l->legend_corner] : where[0]) | PL_POSITION_INSIDE;
+    double off = l->legend_inside ? LEG_OFFSET : 0.0;
+    plvpor(v->x0, v->x1, v->y0, v->y1);
+    PLFLT w, h;
+    pllegend(&w, &h, PL_LEGEND_BACKGROUND | PL_LEGEND_BOUNDING_BOX, pos, off, off, LEG_PLOT_WIDTH,
+             COL_PAGE, COL_GRID, 1, 0, 0, n, opt, LEG_TEXT_OFFSET, LEG_TEXT_SCALE, LEG_TEXT_SPACING,
+             0.0, tcol, text, bcol, bpat, bscale, bwidth, lcol, lsty, lwidth, scol, sscale, snum,
+             sym);
+    double vw = v->x1 - v->x0, vh = v->y1 - v->y0;
+    if (l->legend_inside)
+        l->legend = corner_box(v, l->legend_corner, w * vw, h * vh);
+    else
+        l->legend = (stagecal_plot_box){v->x0, v->x0 + w * vw, v->y1 - h * vh, v->y1};
 }
 
 /* Everything PLplot needs, prepared (and allocated) before any PLplot call, so that no
  * failure can leave a half-open stream. */
 typedef struct {
-    char *title, *xl, *yl;
+    char *title, *xl;
+    char *yl[STAGECAL_PLOT_MAXPANELS];
     char **labels; /* escaped series labels */
     stagecal_plot_series *series;
+    size_t n_total;
+    panel_view pv[STAGECAL_PLOT_MAXPANELS]; /* the panels, on the escaped series */
+    size_t np;
     PLFLT *xs, *ys, *zs;
 } prepared;
 
-static void prepared_free(prepared *p, size_t n_series)
+static void prepared_free(prepared *p)
 {
     free(p->title);
     free(p->xl);
-    free(p->yl);
+    for (size_t i = 0; i < STAGECAL_PLOT_MAXPANELS; i++)
+        free(p->yl[i]);
     if (p->labels)
-        for (size_t i = 0; i < n_series; i++)
+        for (size_t i = 0; i < p->n_total; i++)
             free(p->labels[i]);
     free(p->labels);
     free(p->series);
@@ -377,41 +760,57 @@ static void prepared_free(prepared *p, size_t n_series)
 static int prepare(const stagecal_plot_chart *c, prepared *p, stagecal_error *err)
 {
     size_t nmax = 1;
+    panel_view src[STAGECAL_PLOT_MAXPANELS];
     memset(p, 0, sizeof *p);
-    for (size_t i = 0; i < c->n_series; i++)
-        nmax = c->series[i].n > nmax ? c->series[i].n : nmax;
+    p->np = panel_views(c, src);
+    for (size_t q = 0; q < p->np; q++) {
+        p->n_total += src[q].n_series;
+        for (size_t i = 0; i < src[q].n_series; i++)
+            nmax = src[q].series[i].n > nmax ? src[q].series[i].n : nmax;
+    }
     p->title = plain_text(c->title);
     p->xl = plain_text(c->x_label);
-    p->yl = plain_text(c->y_label);
-    p->labels = calloc(c->n_series + 1, sizeof *p->labels);
-    p->series = calloc(c->n_series + 1, sizeof *p->series);
+    p->labels = calloc(p->n_total + 1, sizeof *p->labels);
+    p->series = calloc(p->n_total + 1, sizeof *p->series);
     p->xs = malloc(2 * nmax * sizeof *p->xs);
     p->ys = malloc(2 * nmax * sizeof *p->ys);
     p->zs = malloc(nmax * sizeof *p->zs);
-    int ok = p->title && p->xl && p->yl && p->labels && p->series && p->xs && p->ys && p->zs;
-    for (size_t i = 0; ok && i < c->n_series; i++) {
-        p->series[i] = c->series[i];
-        if (c->series[i].label && c->series[i].label[0]) {
-            ok = (p->labels[i] = plain_text(c->series[i].label)) != NULL;
-            p->series[i].label = p->labels[i];
+    int ok = p->title && p->xl && p->labels && p->series && p->xs && p->ys && p->zs;
+    size_t j = 0;
+    for (size_t q = 0; ok && q < p->np; q++) {
+        p->pv[q] = src[q];
+        p->pv[q].series = p->series + j;
+        ok = (p->yl[q] = plain_text(src[q].y_label)) != NULL;
+        for (size_t i = 0; ok && i < src[q].n_series; i++, j++) {
+            p->series[j] = src[q].series[i];
+            if (src[q].series[i].label && src[q].series[i].label[0]) {
+                ok = (p->labels[j] = plain_text(src[q].series[i].label)) != NULL;
+                p->series[j].label = p->labels[j];
+            }
         }
     }
     if (!ok) {
-        prepared_free(p, c->n_series);
+        prepared_free(p);
         return error_set(err, STAGECAL_ENOMEM, "out of memory preparing a chart");
     }
     return STAGECAL_OK;
 }
 
-/* Draws c with PLplot device dev into file (which exists and is writable). */
+static const char *time_format(double span_s)
+{
+    return span_s > 2 * 365.25 * 86400 ? "%Y"
+           : span_s > 60 * 86400       ? "%Y-%m"
+           : span_s > 1.5 * 86400      ? "%m-%d"
+                                       : "%H:%M";
+}
+
+/* Draws c with PLplot device dev into file (which exists and is writable); the layout
+ * into *lay. */
 static void render(const stagecal_plot_chart *c, const prepared *pr, const char *dev,
-                   const char *file, const stagecal_plot_params *par)
+                   const char *file, const stagecal_plot_params *par, stagecal_plot_layout *lay)
 {
     PLINT old = 0, strm = 0;
     char geometry[64];
-    double x0, x1, y0, y1;
-    axis_range(c, 0, &x0, &x1);
-    axis_range(c, 1, &y0, &y1);
 
     plgstrm(&old);
     plmkstrm(&strm);
@@ -427,43 +826,55 @@ static void render(const stagecal_plot_chart *c, const prepared *pr, const char 
     for (int i = 0; i < STAGECAL_PLOT_NCOLOURS; i++) {
         set_rgb(COL_SERIES + i, palette[i]);
         set_rgb(COL_TINT + i, stagecal_plot_tint(i));
+        set_rgb(COL_LIGHT + i, mix_white(i, LIGHT_WEIGHT));
     }
     plinit();
     plschr(0.0, par->char_scale);
     pladv(0);
-    plvsta();
-    plwind(x0, x1, y0, y1);
-    if (c->x_time)
-        pltimefmt(x1 - x0 > 2 * 365.25 * 86400 ? "%Y" : x1 - x0 > 60 * 86400 ? "%Y-%m" : "%m-%d");
-    const char *xopt_grid = c->x_time ? "gd" : "g";
-    plcol0(COL_GRID);
-    plwidth(0.5);
-    plbox(xopt_grid, 0, 0, "g", 0, 0);
-    plwidth(1.0);
-
-    for (int pass = 0; pass < 3; pass++) { /* bands, then lines, then markers */
-        stagecal_plot_kind want = pass == 0   ? STAGECAL_PLOT_BAND
-                                  : pass == 1 ? STAGECAL_PLOT_LINE
-                                              : STAGECAL_PLOT_POINTS;
-        for (size_t i = 0; i < c->n_series; i++)
-            if (pr->series[i].kind == want)
-                draw_series(&pr->series[i], pr->xs, pr->ys, pr->zs, par->char_scale);
+    PLFLT sx0, sx1, sy0, sy1, def, ht;
+    plgspa(&sx0, &sx1, &sy0, &sy1);
+    plgchr(&def, &ht);
+    plan_layout(c, pr->pv, pr->np, ht, sx1 - sx0, sy1 - sy0, lay);
+    for (size_t p = 0; p < pr->np; p++) {
+        const stagecal_plot_box *b = &lay->box[p];
+        double y0 = lay->y_min[p], y1 = lay->y_max[p];
+        int bottom = p + 1 == pr->np;
+        plvpor(b->x0, b->x1, b->y0, b->y1);
+        plwind(lay->x_min, lay->x_max, y0, y1);
+        if (c->x_time)
+            pltimefmt(time_format(lay->x_max - lay->x_min));
+        plcol0(COL_GRID);
+        plwidth(0.5);
+        plbox(c->x_time ? "gd" : "g", 0, 0, "g", 0, 0);
+        plwidth(1.0);
+        static const stagecal_plot_kind order[] = {STAGECAL_PLOT_SPAN,   STAGECAL_PLOT_BAND,
+                                                   STAGECAL_PLOT_ERRBAR, STAGECAL_PLOT_LINE,
+                                                   STAGECAL_PLOT_POINTS, STAGECAL_PLOT_TEXT};
+        for (size_t pass = 0; pass < sizeof order / sizeof order[0]; pass++)
+            for (size_t i = 0; i < pr->pv[p].n_series; i++)
+                if (pr->pv[p].series[i].kind == order[pass])
+                    draw_series(&pr->pv[p].series[i], pr->xs, pr->ys, pr->zs, par->char_scale, y0,
+                                y1);
+        plcol0(COL_AXIS);
+        const char *xo = c->x_time ? (bottom ? "bcdnst" : "bcdst") : (bottom ? "bcnst" : "bcst");
+        plbox(xo, 0, 0, "bcnstv", 0, 0);
+        plmtex("l", 5.6, 0.5, 0.5, pr->yl[p]);
+        if (bottom)
+            plmtex("b", 3.2, 0.5, 0.5, pr->xl);
+        if (p == 0)
+            plmtex("t", 1.2, 0.5, 0.5, pr->title);
     }
-    plcol0(COL_AXIS);
-    plbox(c->x_time ? "bcdnst" : "bcnst", 0, 0, "bcnstv", 0, 0);
-    pllab(pr->xl, pr->yl, pr->title);
-    if (c->legend) {
-        stagecal_plot_chart tmp = *c;
-        tmp.series = pr->series;
-        draw_legend(&tmp);
-    }
+    if (lay->has_legend)
+        draw_legend(pr->pv, pr->np, lay);
     plend1();
     plsstrm(old);
 }
 
+/* PNG and PDF through cairo; SVG through PLplot's own svg driver, whose labels are <text>
+ * elements (svgcairo stores glyphs as outlines). */
 static const char *device_for(stagecal_plot_format f)
 {
-    return f == STAGECAL_PLOT_PNG ? "pngcairo" : f == STAGECAL_PLOT_SVG ? "svgcairo" : "pdfcairo";
+    return f == STAGECAL_PLOT_PNG ? "pngcairo" : f == STAGECAL_PLOT_SVG ? "svg" : "pdfcairo";
 }
 
 static int check_params(const stagecal_plot_params *par, stagecal_error *err)
@@ -493,20 +904,68 @@ static int chart_complete(const char *buf, size_t n, stagecal_plot_format fmt)
     return n >= k && memcmp(buf + n - k, end, k) == 0;
 }
 
+/* The svg driver writes every character of a text as a numeric reference (&#x41;): turn
+ * them into UTF-8 so that the labels read as text (search, copy, other tools), keeping
+ * the five XML specials as references. In place: UTF-8 is never longer than its
+ * reference. Returns the new length. */
+static size_t svg_plain_text(char *buf, size_t n)
+{
+    size_t r = 0, w = 0;
+    while (r < n) {
+        if (buf[r] == '&' && r + 3 < n && buf[r + 1] == '#' && buf[r + 2] == 'x') {
+            size_t k = r + 3;
+            unsigned long cp = 0;
+            while (k < n && k < r + 11 && isxdigit((unsigned char)buf[k]))
+                cp = cp * 16 + (unsigned long)(isdigit((unsigned char)buf[k])
+                                                   ? buf[k] - '0'
+                                                   : (tolower((unsigned char)buf[k]) - 'a' + 10)),
+                k++;
+            int special = cp == '<' || cp == '>' || cp == '&' || cp == '"' || cp == '\'';
+            if (k < n && buf[k] == ';' && k > r + 3 && cp >= 0x20 && cp <= 0x10FFFF && !special &&
+                !(cp >= 0xD800 && cp <= 0xDFFF)) {
+                if (cp < 0x80) {
+                    buf[w++] = (char)cp;
+                } else if (cp < 0x800) {
+                    buf[w++] = (char)(0xC0 | (cp >> 6));
+                    buf[w++] = (char)(0x80 | (cp & 0x3F));
+                } else if (cp < 0x10000) {
+                    buf[w++] = (char)(0xE0 | (cp >> 12));
+                    buf[w++] = (char)(0x80 | ((cp >> 6) & 0x3F));
+                    buf[w++] = (char)(0x80 | (cp & 0x3F));
+                } else {
+                    buf[w++] = (char)(0xF0 | (cp >> 18));
+                    buf[w++] = (char)(0x80 | ((cp >> 12) & 0x3F));
+                    buf[w++] = (char)(0x80 | ((cp >> 6) & 0x3F));
+                    buf[w++] = (char)(0x80 | (cp & 0x3F));
+                }
+                r = k + 1;
+                continue;
+            }
+        }
+        buf[w++] = buf[r++];
+    }
+    buf[w] = '\0';
+    return w;
+}
+
 /* Renders into the temporary file a (PLplot opens it by name) and checks that it is
- * complete; out and len: its content when wanted (caller frees), else NULL. */
+ * complete; an SVG is rewritten with plain-text labels. out and len: the content when
+ * wanted (caller frees), else NULL. */
 static int render_to(const stagecal_plot_chart *c, stagecal_plot_format fmt, atomic_file *a,
                      const char *path, const stagecal_plot_params *par, char **out, size_t *len,
                      stagecal_error *err)
 {
     prepared pr;
+    stagecal_plot_layout lay;
     char *buf = NULL;
     size_t n = 0;
     int rc = prepare(c, &pr, err);
     if (rc)
         return rc;
-    render(c, &pr, device_for(fmt), atomic_path(a), par);
-    prepared_free(&pr, c->n_series);
+    render(c, &pr, device_for(fmt), atomic_path(a), par, &lay);
+    prepared_free(&pr);
+    if (par->layout)
+        *par->layout = lay;
     if ((rc = atomic_read_back(a, &buf, &n, err)))
         return rc;
     if (!chart_complete(buf, n, fmt)) {
@@ -518,8 +977,10 @@ static int render_to(const stagecal_plot_chart *c, stagecal_plot_format fmt, ato
                          fmt == STAGECAL_PLOT_PNG   ? "PNG end chunk"
                          : fmt == STAGECAL_PLOT_SVG ? "closing </svg>"
                                                     : "PDF end marker",
-                         n == 0 ? ", or plplot-driver-cairo missing" : "");
+                         n == 0 ? ", or a PLplot driver missing" : "");
     }
+    if (fmt == STAGECAL_PLOT_SVG)
+        n = svg_plain_text(buf, n);
     if (out) {
         *out = buf;
         *len = n;
@@ -541,6 +1002,17 @@ int stagecal_plot_write(const stagecal_plot_chart *chart, const char *path,
     if ((rc = stagecal_plot_format_from_path(path, &fmt, err)) || (rc = check_params(&par, err)) ||
         (rc = stagecal_plot_check(chart, err)))
         return rc;
+    if (fmt == STAGECAL_PLOT_SVG) { /* rewritten with plain-text labels: a second file */
+        char *svg = NULL;
+        size_t n = 0;
+        if ((rc = atomic_open(&a, path, err)) == STAGECAL_OK)
+            rc = render_to(chart, fmt, &a, path, &par, &svg, &n, err);
+        atomic_discard(&a);
+        if (rc == STAGECAL_OK)
+            rc = write_atomic(path, svg, n, ATOMIC_REPLACE, err);
+        free(svg);
+        return rc;
+    }
     if ((rc = atomic_open(&a, path, err)) == STAGECAL_OK &&
         (rc = render_to(chart, fmt, &a, path, &par, NULL, NULL, err)) == STAGECAL_OK)
         rc = atomic_publish(&a, path, ATOMIC_REPLACE, NULL, err);

@@ -3,8 +3,8 @@
  * the stated size, and hold the expected series; builders put the McCabe–Thiele pinch
  * where the closed form puts it; bad charts are refused; the library stays silent.
  *
- * Counting series in an SVG: cairo writes every drawn element with its colour as
- * "stroke:rgb(r%,g%,b%)" or "fill:rgb(…)". Each series of the charts tested here has
+ * Counting series in an SVG: PLplot's svg driver writes every drawn element with its
+ * colour as stroke="#RRGGBB" or fill="#RRGGBB". Each series of the charts tested here has
  * its own colour (a palette colour for lines and markers, its tint for bands), and the
  * page, axis and grid colours are known, so the set of other colours in the file is the
  * set of series drawn. PNG pixels are counted with PIL through STAGECAL_PYTHON.
@@ -71,12 +71,11 @@ static char *slurp(const char *path, size_t *len)
 static size_t svg_series_colours(const char *svg, unsigned long *out, size_t cap)
 {
     size_t n = 0;
-    for (const char *p = strstr(svg, "rgb("); p; p = strstr(p + 4, "rgb(")) {
-        double r, g, b;
-        if (sscanf(p, "rgb(%lf%%,%lf%%,%lf%%)", &r, &g, &b) != 3)
+    for (const char *p = strstr(svg, "=\"#"); p; p = strstr(p + 3, "=\"#")) {
+        unsigned long c;
+        char end;
+        if (sscanf(p, "=\"#%6lx%c", &c, &end) != 2 || end != '"')
             continue;
-        unsigned long c = ((unsigned long)lround(r * 2.55) << 16) |
-                          ((unsigned long)lround(g * 2.55) << 8) | (unsigned long)lround(b * 2.55);
         if (c == 0xFFFFFF || c == 0x333333 || c == 0xDDDDDD)
             continue;
         size_t k = 0;
@@ -201,7 +200,9 @@ static stagecal_plot_chart small_chart(stagecal_plot_series *s)
                              0,
                              s,
                              3,
-                             NULL};
+                             NULL,
+                             NULL,
+                             0};
     return c;
 }
 
@@ -260,7 +261,8 @@ static void plot_check_refuses_bad_charts(void **state)
     /* nothing finite at all */
     static const double nan2[2] = {NAN, NAN};
     stagecal_plot_series only = {STAGECAL_PLOT_LINE, "x", nan2, nan2, NULL, 2, 0, 0, 0, 0};
-    stagecal_plot_chart empty = {"e", "x", "y", NAN, NAN, NAN, NAN, 0, 0, 0, &only, 1, NULL};
+    stagecal_plot_chart empty = {"e", "x", "y",   NAN, NAN,  NAN,  NAN, 0,
+                                 0,   0,   &only, 1,   NULL, NULL, 0};
     assert_int_equal(stagecal_plot_check(&empty, &err), STAGECAL_EINVAL);
     assert_non_null(strstr(err.text, "nothing to draw"));
     /* write refuses too, and leaves no file */

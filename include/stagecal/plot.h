@@ -1,5 +1,7 @@
 /*
- * stagecal/plot.h — charts for people: PNG, SVG and PDF through PLplot's cairo driver.
+ * stagecal/plot.h — charts for people: PNG and PDF through PLplot's cairo driver, SVG
+ * through PLplot's own svg driver (its labels are <text> elements: selectable, searchable,
+ * readable by other tools; cairo's SVG stores glyphs as outlines).
  *
  * One generic renderer draws a stagecal_plot_chart: axes that carry a quantity and its
  * unit, and a list of series given as plain arrays (lines, markers, shaded bands). It
@@ -29,7 +31,12 @@
 
 #include <stddef.h>
 
+#include "stagecal/batch.h"
+#include "stagecal/calibrate.h"
 #include "stagecal/error.h"
+#include "stagecal/evidence.h"
+#include "stagecal/model.h"
+#include "stagecal/runlog.h"
 #include "stagecal/stages.h"
 #include "stagecal/vle.h"
 
@@ -44,12 +51,20 @@ typedef enum { STAGECAL_PLOT_PNG = 0, STAGECAL_PLOT_SVG, STAGECAL_PLOT_PDF } sta
 typedef enum {
     STAGECAL_PLOT_LINE = 0, /* polyline through (x, y); non-finite points break the line */
     STAGECAL_PLOT_POINTS,   /* a marker at each (x, y); non-finite points are skipped */
-    STAGECAL_PLOT_BAND      /* shaded region between y (lower) and y_hi (upper) over x */
+    STAGECAL_PLOT_BAND,     /* shaded region between y (lower) and y_hi (upper) over x; line 1
+                               draws it in a lighter tint (an extrapolated part) */
+    STAGECAL_PLOT_ERRBAR,   /* a vertical bar from y to y_hi at each x (non-finite: none) */
+    STAGECAL_PLOT_SPAN,     /* vertical stripes over the whole height of the plot box, from
+                               x[k] to y[k] (both in x units), in the colour's tint (line 1:
+                               the lighter tint); they do not widen the y range */
+    STAGECAL_PLOT_TEXT      /* the label written at x[0], just below the top of the plot box
+                               (y unused), in the colour; never in the legend */
 } stagecal_plot_kind;
 
 #define STAGECAL_PLOT_NCOLOURS 8 /* palette size (Okabe–Ito) */
 #define STAGECAL_PLOT_NLINES 4   /* distinct line styles: solid, dashed, dotted, dash-dot */
 #define STAGECAL_PLOT_NMARKERS 8 /* distinct marker shapes */
+#define STAGECAL_PLOT_MAXPANELS 8
 
 /* One series. Arrays are borrowed (not copied) and must outlive the render call. */
 typedef struct {
@@ -66,6 +81,15 @@ typedef struct {
                            POINTS: marker size relative to the default, 0 → 1 */
 } stagecal_plot_series;
 
+/* One panel of a chart of stacked panels that share the x axis (the run chart). */
+typedef struct {
+    const char *y_label;                /* quantity and unit */
+    double y_min, y_max;                /* NAN: from the data, padded 4 % */
+    double weight;                      /* relative height (0 → 1) */
+    const stagecal_plot_series *series; /* n_series series of this panel */
+    size_t n_series;
+} stagecal_plot_panel;
+
 /* A chart: title, axes and series. Fields marked "caller" are borrowed. */
 typedef struct {
     const char *title;   /* caller: heading above the plot area, may be NULL */
@@ -74,22 +98,54 @@ typedef struct {
     double x_min, x_max; /* axis range; NAN (either end) → from the finite data, padded 4 % */
     double y_min, y_max;
     int x_time;     /* 1: x is seconds since 1970-01-01 UTC, the axis shows dates */
-    int legend;     /* 1: draw a legend of the labelled series inside the plot area */
-    int legend_pos; /* where: 0 top left, 1 bottom right, 2 top right, 3 bottom left */
+    int legend;     /* 1: draw a legend of the labelled series */
+    int legend_pos; /* the corner tried first: 0 top left, 1 bottom right, 2 top right,
+                       3 bottom left. The legend goes into the first corner of the plot box
+                       (from this one on) where its box covers no data — no marker, line,
+                       band, bar or stripe — and outside the plot box, on the right, when
+                       every corner is taken (always so for stacked panels) */
     const stagecal_plot_series *series; /* caller or builder-owned: n_series series, drawn in
                                            order, bands first */
     size_t n_series;
     void *storage; /* internal: memory owned by a builder (NULL for caller-built charts);
                       released by stagecal_plot_chart_free */
+    const stagecal_plot_panel *panels; /* n_panels ≥ 1: stacked panels sharing x (top first),
+                                          the chart's own series and y_label unused; the
+                                          x label, title and legend are the chart's */
+    size_t n_panels;                   /* 0: one plot of the chart's series */
 } stagecal_plot_chart;
+
+/* Where things went on the page, in fractions of the page (x rightwards, y upwards). */
+typedef struct {
+    double x0, x1, y0, y1;
+} stagecal_plot_box;
+
+typedef struct {
+    size_t n_panels;                                /* plot boxes drawn (1 without panels) */
+    stagecal_plot_box box[STAGECAL_PLOT_MAXPANELS]; /* plot boxes, top first */
+    double x_min, x_max;                            /* the x range (world units) */
+    double y_min[STAGECAL_PLOT_MAXPANELS], y_max[STAGECAL_PLOT_MAXPANELS];
+    int has_legend;                  /* 1: a legend was drawn */
+    int legend_inside;               /* 1: in a corner of a plot box */
+    int legend_corner;               /* that corner (legend_pos numbering) */
+    size_t legend_panel;             /* the panel whose corner holds it */
+    stagecal_plot_box legend;        /* the legend's box as PLplot drew it */
+    stagecal_plot_box legend_est;    /* the box the placement reserved (an
+                                        estimate of the drawn one) */
+    stagecal_plot_box legend_region; /* outside: the region right of the
+                                        boxes that holds the legend */
+    double marker_w, marker_h;       /* a default marker's size [page] */
+} stagecal_plot_layout;
 
 /* Rendering parameters. */
 typedef struct {
-    size_t width;        /* PNG: pixels; SVG/PDF: points (1/72 in). Default 800 */
-    size_t height;       /* default 560 */
-    double char_scale;   /* text size relative to PLplot's default (default 0.9) */
-    const char *tmp_dir; /* directory for the temporary file of stagecal_plot_svg; NULL →
-                            $TMPDIR or /tmp */
+    size_t width;                 /* PNG: pixels; SVG/PDF: points (1/72 in). Default 800 */
+    size_t height;                /* default 560 */
+    double char_scale;            /* text size relative to PLplot's default (default 0.9) */
+    const char *tmp_dir;          /* directory for the temporary file of stagecal_plot_svg; NULL →
+                                     $TMPDIR or /tmp */
+    stagecal_plot_layout *layout; /* not NULL: receives where the chart's boxes and its
+                                     legend went (for tests and for callers that annotate) */
 } stagecal_plot_params;
 
 stagecal_plot_params stagecal_plot_default_params(void);
@@ -103,6 +159,10 @@ const char *stagecal_plot_colour_name(int i);
 /* Format from a file name's extension. EINVAL when it is not .png, .svg or .pdf. */
 int stagecal_plot_format_from_path(const char *path, stagecal_plot_format *fmt,
                                    stagecal_error *err);
+
+/* The page position of the world point (x, y) of panel p of a layout. */
+void stagecal_plot_layout_map(const stagecal_plot_layout *l, size_t p, double x, double y,
+                              double *px, double *py);
 
 /* Checks a chart before rendering: every series has n ≥ 1 and its arrays, palette and
  * style indices in range, at least one finite point, and finite given axis limits with

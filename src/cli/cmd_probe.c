@@ -357,7 +357,9 @@ static int write_chart(const char *out, const stagecal_model *m, const stagecal_
                               1,
                               s,
                               nt ? 5 : 3,
-                              NULL};
+                              NULL,
+                              NULL,
+                              0};
     if (nt == 0) { /* keep the conditions of interest when every test is at total reflux */
         s[3] = s[4];
         ch.n_series = 4;
