@@ -18,137 +18,11 @@
 #include <gsl/gsl_roots.h>
 
 #include "internal.h"
+#include "plot_internal.h"
 
-#define MAX_SERIES 48
-#define MAX_GROUPS 32
 #define PINCH_SCAN 400   /* grid points for bracketing the pinch between 0 and xD */
 #define PINCH_XTOL 1e-12 /* Brent's absolute tolerance on the pinch composition */
 #define PINCH_MAXITER 100
-
-typedef struct {
-    void **blk;
-    size_t n, cap;
-} arena;
-
-typedef struct {
-    stagecal_plot_chart *c;
-    arena *a;
-    stagecal_plot_series *s;
-    int oom;
-} fig;
-
-static void *arena_alloc(fig *f, size_t bytes)
-{
-    arena *a = f->a;
-    if (f->oom)
-        return NULL;
-    if (a->n == a->cap) {
-        size_t cap = a->cap ? 2 * a->cap : 16;
-        void **b = realloc(a->blk, cap * sizeof *b);
-        if (!b) {
-            f->oom = 1;
-            return NULL;
-        }
-        a->blk = b;
-        a->cap = cap;
-    }
-    void *p = calloc(1, bytes ? bytes : 1);
-    if (!p) {
-        f->oom = 1;
-        return NULL;
-    }
-    a->blk[a->n++] = p;
-    return p;
-}
-
-static double *arena_doubles(fig *f, const double *src, size_t n)
-{
-    double *p = arena_alloc(f, n * sizeof *p);
-    if (p && src)
-        memcpy(p, src, n * sizeof *p);
-    return p;
-}
-
-static char *arena_str(fig *f, const char *s)
-{
-    if (!s)
-        return NULL;
-    char *p = arena_alloc(f, strlen(s) + 1);
-    if (p)
-        memcpy(p, s, strlen(s) + 1);
-    return p;
-}
-
-void stagecal_plot_chart_free(stagecal_plot_chart *chart)
-{
-    if (!chart)
-        return;
-    arena *a = chart->storage;
-    if (a) {
-        for (size_t i = 0; i < a->n; i++)
-            free(a->blk[i]);
-        free(a->blk);
-        free(a);
-    }
-    free(chart);
-}
-
-static int fig_open(fig *f, stagecal_error *err)
-{
-    memset(f, 0, sizeof *f);
-    f->c = calloc(1, sizeof *f->c);
-    f->a = calloc(1, sizeof *f->a);
-    if (!f->c || !f->a) {
-        free(f->c);
-        free(f->a);
-        return error_set(err, STAGECAL_ENOMEM, "out of memory building a chart");
-    }
-    f->c->storage = f->a;
-    f->c->x_min = f->c->x_max = f->c->y_min = f->c->y_max = NAN;
-    f->c->legend = 1;
-    f->s = arena_alloc(f, MAX_SERIES * sizeof *f->s);
-    f->c->series = f->s;
-    return STAGECAL_OK;
-}
-
-/* Adds a series with copies of its arrays (y_hi only for bands). */
-static void fig_add(fig *f, stagecal_plot_kind kind, const char *label, const double *x,
-                    const double *y, const double *y_hi, size_t n, int colour, int line, int marker)
-{
-    if (f->oom || !f->s || f->c->n_series >= MAX_SERIES || n == 0)
-        return;
-    stagecal_plot_series *s = &f->s[f->c->n_series];
-    memset(s, 0, sizeof *s);
-    s->kind = kind;
-    s->label = arena_str(f, label);
-    s->x = arena_doubles(f, x, n);
-    s->y = arena_doubles(f, y, n);
-    s->y_hi = y_hi ? arena_doubles(f, y_hi, n) : NULL;
-    s->n = n;
-    s->colour = colour;
-    s->line = line;
-    s->marker = marker;
-    if (!f->oom)
-        f->c->n_series++;
-}
-
-static int fig_close(fig *f, stagecal_plot_chart **out, stagecal_error *err)
-{
-    if (f->oom || !f->s) {
-        stagecal_plot_chart_free(f->c);
-        *out = NULL;
-        return error_set(err, STAGECAL_ENOMEM, "out of memory building a chart");
-    }
-    *out = f->c;
-    return STAGECAL_OK;
-}
-
-static void fig_labels(fig *f, const char *title, const char *xl, const char *yl)
-{
-    f->c->title = arena_str(f, title);
-    f->c->x_label = arena_str(f, xl);
-    f->c->y_label = arena_str(f, yl);
-}
 
 /* ---- McCabe–Thiele ------------------------------------------------------------------ */
 
@@ -230,8 +104,8 @@ int stagecal_plot_mccabe(const stagecal_plot_mccabe_data *d, stagecal_plot_chart
     const int total = isinf(d->reflux);
     const double lv = total ? 1.0 : d->reflux / (d->reflux + 1), xd = d->xd;
 
-    fig f;
-    int rc = fig_open(&f, err);
+    plot_fig f;
+    int rc = plot_fig_open(&f, err);
     if (rc)
         return rc;
     char title[256], rtext[32];
@@ -248,7 +122,7 @@ int stagecal_plot_mccabe(const stagecal_plot_mccabe_data *d, stagecal_plot_chart
     else
         snprintf(title, sizeof title, "McCabe\xe2\x80\x93Thiele: %s, E_MV = %.3g", rtext,
                  d->murphree);
-    fig_labels(&f, title, "liquid mole fraction x of the light component [mol/mol]",
+    plot_fig_labels(&f, title, "liquid mole fraction x of the light component [mol/mol]",
                "vapour mole fraction y [mol/mol]");
     f.c->x_min = 0;
     f.c->x_max = xmax;
@@ -266,7 +140,7 @@ int stagecal_plot_mccabe(const stagecal_plot_mccabe_data *d, stagecal_plot_chart
     /* diagonal (the operating line itself at total reflux) */
     {
         double dx[2] = {0, xmax}, dy[2] = {0, xmax};
-        fig_add(&f, STAGECAL_PLOT_LINE,
+        plot_fig_add(&f, STAGECAL_PLOT_LINE,
                 total ? "diagonal y = x = operating line (total reflux)" : "diagonal y = x", dx, dy,
                 NULL, 2, 5, 2, 0);
     }
@@ -275,7 +149,7 @@ int stagecal_plot_mccabe(const stagecal_plot_mccabe_data *d, stagecal_plot_chart
         if (stagecal_vle_ystar(d->vle, x[i], &y[i]) != STAGECAL_OK)
             y[i] = NAN;
     }
-    fig_add(&f, STAGECAL_PLOT_LINE, "equilibrium curve y*(x)", x, y, NULL, m, 0, 0, 0);
+    plot_fig_add(&f, STAGECAL_PLOT_LINE, "equilibrium curve y*(x)", x, y, NULL, m, 0, 0, 0);
     /* the pinch first: the pseudo-equilibrium curve is drawn from it up to xD only
      * (below the pinch the operating line lies above the curve and steps cannot go) */
     double xp = NAN;
@@ -291,12 +165,12 @@ int stagecal_plot_mccabe(const stagecal_plot_mccabe_data *d, stagecal_plot_chart
         }
         char lab[96];
         snprintf(lab, sizeof lab, "pseudo-equilibrium curve (E_MV = %.3g)", d->murphree);
-        fig_add(&f, STAGECAL_PLOT_LINE, lab, x, y, NULL, m, 2, 1, 0);
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, lab, x, y, NULL, m, 2, 1, 0);
     }
     if (!total) {
         double ox[2] = {has_pinch ? xp : 0, xd};
         double oy[2] = {lv * ox[0] + (1 - lv) * xd, xd};
-        fig_add(&f, STAGECAL_PLOT_LINE, "operating line", ox, oy, NULL, 2, 6, 3, 0);
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, "operating line", ox, oy, NULL, 2, 6, 3, 0);
     }
     /* steps: horizontal at the vapour level to the stage's liquid, then down to the
      * operating line (the vapour from the stage below) */
@@ -314,25 +188,25 @@ int stagecal_plot_mccabe(const stagecal_plot_mccabe_data *d, stagecal_plot_chart
                 sy[n++] = level;
             }
         }
-        fig_add(&f, STAGECAL_PLOT_LINE, "stages (steps)", sx, sy, NULL, n, 1, 0, 0);
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, "stages (steps)", sx, sy, NULL, n, 1, 0, 0);
     }
     if (has_pinch) {
         double px = xp, py = lv * xp + (1 - lv) * xd;
         char lab[64];
         snprintf(lab, sizeof lab, "pinch (x = %.4g)", xp);
-        fig_add(&f, STAGECAL_PLOT_POINTS, lab, &px, &py, NULL, 1, 3, 0, 2);
+        plot_fig_add(&f, STAGECAL_PLOT_POINTS, lab, &px, &py, NULL, 1, 3, 0, 2);
     }
     {
         const stagecal_stage_point *pot = &d->profile[d->n_profile - 1];
         double mx[2] = {xd, pot->x}, my[2] = {xd, pot->y};
-        fig_add(&f, STAGECAL_PLOT_POINTS, "distillate xD and pot xB", mx, my, NULL, 2, 4, 0, 0);
+        plot_fig_add(&f, STAGECAL_PLOT_POINTS, "distillate xD and pot xB", mx, my, NULL, 2, 4, 0, 0);
     }
 done:
     free(x);
     free(y);
     free(sx);
     free(sy);
-    return fig_close(&f, out, err);
+    return plot_fig_close(&f, out, err);
 }
 
 int stagecal_plot_mccabe_condition(const stagecal_vle *vle, double xd, double xb, double reflux,
@@ -395,7 +269,7 @@ static int check_groups(const size_t *group, size_t n, size_t n_groups, const ch
 }
 
 /* Adds one POINTS series per group from (x, y); x values that are +inf go to x_inf. */
-static void add_groups(fig *f, const double *x, const double *y, const size_t *group, size_t n,
+static void add_groups(plot_fig *f, const double *x, const double *y, const size_t *group, size_t n,
                        const char *const *names, size_t n_groups, double x_inf, const int *colours,
                        size_t ncol)
 {
@@ -424,7 +298,7 @@ static void add_groups(fig *f, const double *x, const double *y, const size_t *g
             snprintf(lab, sizeof lab, "samples");
         else
             snprintf(lab, sizeof lab, "group %zu", g + 1);
-        fig_add(f, STAGECAL_PLOT_POINTS, lab, gx, gy, NULL, m, colours[g % ncol], 0,
+        plot_fig_add(f, STAGECAL_PLOT_POINTS, lab, gx, gy, NULL, m, colours[g % ncol], 0,
                 (int)(g % STAGECAL_PLOT_NMARKERS));
     }
     free(gx);
@@ -468,8 +342,8 @@ int stagecal_plot_fit(const stagecal_plot_fit_data *d, stagecal_plot_chart **out
         return error_set(err, STAGECAL_EINVAL, "stages chart: no finite point to draw");
     double x_inf = xmax + 0.08 * fmax(xmax - fmin(xmin, 0), 1e-9);
 
-    fig f;
-    if ((rc = fig_open(&f, err)))
+    plot_fig f;
+    if ((rc = plot_fig_open(&f, err)))
         return rc;
     const char *pl = d->predictor_label ? d->predictor_label : "reflux ratio R [-]";
     char title[192], xl[192], lab[96];
@@ -478,30 +352,30 @@ int stagecal_plot_fit(const stagecal_plot_fit_data *d, stagecal_plot_chart **out
     else
         snprintf(title, sizeof title, "Stages against %s", pl);
     snprintf(xl, sizeof xl, "%s%s", pl, any_inf ? "  (total reflux drawn at the right edge)" : "");
-    fig_labels(&f, title, xl, "equilibrium stages incl. pot [-]");
+    plot_fig_labels(&f, title, xl, "equilibrium stages incl. pot [-]");
     double level = d->level > 0 && d->level < 1 ? d->level : 0.95;
     if (d->grid && d->pi_lo && d->pi_hi) {
         snprintf(lab, sizeof lab, "%.0f %% prediction band (new window)", 100 * level);
-        fig_add(&f, STAGECAL_PLOT_BAND, lab, d->grid, d->pi_lo, d->pi_hi, d->n_grid, 5, 0, 0);
+        plot_fig_add(&f, STAGECAL_PLOT_BAND, lab, d->grid, d->pi_lo, d->pi_hi, d->n_grid, 5, 0, 0);
     }
     if (d->grid && d->ci_lo && d->ci_hi) {
         snprintf(lab, sizeof lab, "%.0f %% confidence band (mean)", 100 * level);
-        fig_add(&f, STAGECAL_PLOT_BAND, lab, d->grid, d->ci_lo, d->ci_hi, d->n_grid, 0, 0, 0);
+        plot_fig_add(&f, STAGECAL_PLOT_BAND, lab, d->grid, d->ci_lo, d->ci_hi, d->n_grid, 0, 0, 0);
     }
     if (d->grid)
-        fig_add(&f, STAGECAL_PLOT_LINE, "fitted correlation", d->grid, d->fit, NULL, d->n_grid, 0,
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, "fitted correlation", d->grid, d->fit, NULL, d->n_grid, 0,
                 0, 0);
     if (isfinite(d->env_lo) || isfinite(d->env_hi)) {
         double pad = 0.04 * fmax(ymax - ymin, 1e-9);
         double ex[5] = {d->env_lo, d->env_lo, NAN, d->env_hi, d->env_hi};
         double ey[5] = {ymin - pad, ymax + pad, NAN, ymin - pad, ymax + pad};
-        fig_add(&f, STAGECAL_PLOT_LINE, "fitted envelope", ex, ey, NULL, 5, 6, 1, 0);
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, "fitted envelope", ex, ey, NULL, 5, 6, 1, 0);
     }
     if (d->n > 0)
         add_groups(&f, d->x, d->stages, d->group, d->n, d->group_names, d->n_groups, x_inf,
                    group_colours, NGROUPCOL);
     f.c->legend_pos = 1;
-    return fig_close(&f, out, err);
+    return plot_fig_close(&f, out, err);
 }
 
 /* ---- residuals ------------------------------------------------------------------------ */
@@ -522,10 +396,10 @@ int stagecal_plot_resid(const stagecal_plot_resid_data *d, stagecal_plot_chart *
             lo = fmin(lo, x[i]), hi = fmax(hi, x[i]);
     if (!isfinite(lo))
         return error_set(err, STAGECAL_EINVAL, "residual chart: no finite abscissa");
-    fig f;
-    if ((rc = fig_open(&f, err)))
+    plot_fig f;
+    if ((rc = plot_fig_open(&f, err)))
         return rc;
-    fig_labels(&f,
+    plot_fig_labels(&f,
                d->title
                    ? d->title
                    : (d->time_s ? "Residuals against time" : "Residuals against fitted stages"),
@@ -536,12 +410,12 @@ int stagecal_plot_resid(const stagecal_plot_resid_data *d, stagecal_plot_chart *
     double zx[2] = {lo - pad, hi + pad}, zy[2] = {0, 0};
     f.c->x_min = zx[0];
     f.c->x_max = zx[1];
-    fig_add(&f, STAGECAL_PLOT_LINE, "zero", zx, zy, NULL, 2, 6, 2, 0);
+    plot_fig_add(&f, STAGECAL_PLOT_LINE, "zero", zx, zy, NULL, 2, 6, 2, 0);
     static const int cols[] = {0, 1, 2, 3, 4, 5, 7};
     add_groups(&f, x, d->resid, d->group, d->n, d->group_names, d->n_groups, hi, cols,
                sizeof cols / sizeof cols[0]);
     f.c->legend_pos = 1;
-    return fig_close(&f, out, err);
+    return plot_fig_close(&f, out, err);
 }
 
 /* ---- trend --------------------------------------------------------------------------- */
@@ -563,30 +437,30 @@ int stagecal_plot_trend(const stagecal_plot_trend_data *d, stagecal_plot_chart *
             t0 = fmin(t0, d->fc_t[i]), t1 = fmax(t1, d->fc_t[i]);
     if (!isfinite(t0))
         return error_set(err, STAGECAL_EINVAL, "trend chart: no finite calibration time");
-    fig f;
-    if ((rc = fig_open(&f, err)))
+    plot_fig f;
+    if ((rc = plot_fig_open(&f, err)))
         return rc;
-    fig_labels(&f, d->title ? d->title : "Stage trend with control limits and forecast",
+    plot_fig_labels(&f, d->title ? d->title : "Stage trend with control limits and forecast",
                "calibration date [UTC]", "equilibrium stages incl. pot [-]");
     f.c->x_time = 1;
     if (d->fc_t && d->fc_lo && d->fc_hi)
-        fig_add(&f, STAGECAL_PLOT_BAND, "forecast band", d->fc_t, d->fc_lo, d->fc_hi, d->n_fc, 5, 0,
+        plot_fig_add(&f, STAGECAL_PLOT_BAND, "forecast band", d->fc_t, d->fc_lo, d->fc_hi, d->n_fc, 5, 0,
                 0);
     if (d->line_t && d->n_line > 0)
-        fig_add(&f, STAGECAL_PLOT_LINE, "trend", d->line_t, d->line, NULL, d->n_line, 0, 0, 0);
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, "trend", d->line_t, d->line, NULL, d->n_line, 0, 0, 0);
     if (d->fc_t && d->n_fc > 0)
-        fig_add(&f, STAGECAL_PLOT_LINE, "forecast", d->fc_t, d->fc, NULL, d->n_fc, 5, 1, 0);
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, "forecast", d->fc_t, d->fc, NULL, d->n_fc, 5, 1, 0);
     if (isfinite(d->lcl) || isfinite(d->ucl)) {
         double cx[5] = {t0, t1, NAN, t0, t1};
         double cy[5] = {d->lcl, d->lcl, NAN, d->ucl, d->ucl};
-        fig_add(&f, STAGECAL_PLOT_LINE, "control limits", cx, cy, NULL, 5, 4, 1, 0);
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, "control limits", cx, cy, NULL, 5, 4, 1, 0);
     }
     if (isfinite(d->spec_stages)) {
         double sx[2] = {t0, t1}, sy[2] = {d->spec_stages, d->spec_stages};
-        fig_add(&f, STAGECAL_PLOT_LINE, "minimum for product specification", sx, sy, NULL, 2, 3, 3,
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, "minimum for product specification", sx, sy, NULL, 2, 3, 3,
                 0);
     }
-    fig_add(&f, STAGECAL_PLOT_POINTS, "calibrations", d->time_s, d->stages, NULL, d->n, 6, 0, 0);
+    plot_fig_add(&f, STAGECAL_PLOT_POINTS, "calibrations", d->time_s, d->stages, NULL, d->n, 6, 0, 0);
     if (d->alarm) {
         size_t m = 0;
         double *ax = malloc(d->n * sizeof *ax), *ay = malloc(d->n * sizeof *ay);
@@ -598,14 +472,14 @@ int stagecal_plot_trend(const stagecal_plot_trend_data *d, stagecal_plot_chart *
                 ay[m++] = d->stages[i];
             }
         if (m > 0)
-            fig_add(&f, STAGECAL_PLOT_POINTS, "alarm", ax, ay, NULL, m, 1, 0, 6);
+            plot_fig_add(&f, STAGECAL_PLOT_POINTS, "alarm", ax, ay, NULL, m, 1, 0, 6);
         if (m > 0 && !f.oom)
             f.s[f.c->n_series - 1].width = 2.2; /* a large ring around the calibration */
         free(ax);
         free(ay);
     }
     f.c->legend_pos = 2;
-    return fig_close(&f, out, err);
+    return plot_fig_close(&f, out, err);
 }
 
 /* ---- batch prediction ---------------------------------------------------------------- */
@@ -623,15 +497,15 @@ int stagecal_plot_batch(const stagecal_plot_batch_data *d, stagecal_plot_chart *
     for (size_t c = 0; c < d->n_curves; c++)
         if (!d->curves[c].y)
             return error_set(err, STAGECAL_EINVAL, "batch chart: curve %zu has no values", c + 1);
-    fig f;
-    if ((rc = fig_open(&f, err)))
+    plot_fig f;
+    if ((rc = plot_fig_open(&f, err)))
         return rc;
-    fig_labels(&f, d->title ? d->title : "Batch prediction", "time since start of batch [h]",
+    plot_fig_labels(&f, d->title ? d->title : "Batch prediction", "time since start of batch [h]",
                d->y_label ? d->y_label : "predicted value");
     double *th = malloc(d->n_t * sizeof *th);
     if (!th) {
         f.oom = 1;
-        return fig_close(&f, out, err);
+        return plot_fig_close(&f, out, err);
     }
     for (size_t i = 0; i < d->n_t; i++)
         th[i] = d->t_s[i] / 3600.0; /* SI seconds → hours at the edge */
@@ -642,20 +516,20 @@ int stagecal_plot_batch(const stagecal_plot_batch_data *d, stagecal_plot_chart *
         char lab[96];
         if (cv->y_lo && cv->y_hi) {
             snprintf(lab, sizeof lab, "%s band", cv->name ? cv->name : "curve");
-            fig_add(&f, STAGECAL_PLOT_BAND, lab, th, cv->y_lo, cv->y_hi, d->n_t, col, 0, 0);
+            plot_fig_add(&f, STAGECAL_PLOT_BAND, lab, th, cv->y_lo, cv->y_hi, d->n_t, col, 0, 0);
         }
     }
     for (size_t c = 0; c < d->n_curves; c++) {
         const stagecal_plot_batch_curve *cv = &d->curves[c];
         int col = (int)(c < 6 ? c : c + 1) % STAGECAL_PLOT_NCOLOURS;
-        fig_add(&f, STAGECAL_PLOT_LINE, cv->name ? cv->name : "curve", th, cv->y, NULL, d->n_t, col,
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, cv->name ? cv->name : "curve", th, cv->y, NULL, d->n_t, col,
                 (int)(c % STAGECAL_PLOT_NLINES), 0);
     }
     if (isfinite(d->spec)) {
         double sx[2] = {th[0], th[d->n_t - 1]}, sy[2] = {d->spec, d->spec};
-        fig_add(&f, STAGECAL_PLOT_LINE, "specification", sx, sy, NULL, 2, 6, 2, 0);
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, "specification", sx, sy, NULL, 2, 6, 2, 0);
     }
     free(th);
     f.c->legend_pos = 1;
-    return fig_close(&f, out, err);
+    return plot_fig_close(&f, out, err);
 }

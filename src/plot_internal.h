@@ -1,0 +1,47 @@
+/*
+ * plot_internal.h — the chart builders' shared helpers (plot_fig.c); not installed.
+ *
+ * A builder collects its allocations in a small arena hung on chart->storage so that
+ * stagecal_plot_chart_free releases them in one go. Series are added in drawing order;
+ * plot_fig_panel starts a panel of a chart of stacked panels (the series added after it
+ * belong to it).
+ */
+#ifndef STAGECAL_PLOT_INTERNAL_H
+#define STAGECAL_PLOT_INTERNAL_H
+
+#include "stagecal/plot.h"
+
+#define MAX_SERIES 64
+#define MAX_GROUPS 32
+
+typedef struct {
+    void **blk;
+    size_t n, cap;
+} arena;
+
+typedef struct {
+    stagecal_plot_chart *c;
+    arena *a;
+    stagecal_plot_series *s;
+    int oom;
+    size_t n_panels;                                   /* panels started */
+    size_t panel_first[STAGECAL_PLOT_MAXPANELS];       /* first series of each */
+    const char *panel_label[STAGECAL_PLOT_MAXPANELS];  /* their y labels (arena copies) */
+    double panel_weight[STAGECAL_PLOT_MAXPANELS];
+} plot_fig;
+
+void *plot_alloc(plot_fig *f, size_t bytes);
+double *plot_doubles(plot_fig *f, const double *src, size_t n);
+char *plot_str(plot_fig *f, const char *s);
+int plot_fig_open(plot_fig *f, stagecal_error *err);
+/* Adds a series with copies of its arrays (y_hi only for bands and error bars); returns
+ * it (NULL when it could not be added) so that the caller may set its width. */
+stagecal_plot_series *plot_fig_add(plot_fig *f, stagecal_plot_kind kind, const char *label,
+                                   const double *x, const double *y, const double *y_hi, size_t n,
+                                   int colour, int line, int marker);
+/* Starts a panel (at most STAGECAL_PLOT_MAXPANELS). */
+void plot_fig_panel(plot_fig *f, const char *y_label, double weight);
+int plot_fig_close(plot_fig *f, stagecal_plot_chart **out, stagecal_error *err);
+void plot_fig_labels(plot_fig *f, const char *title, const char *xl, const char *yl);
+
+#endif
