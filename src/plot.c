@@ -438,7 +438,7 @@ static void draw_series(const stagecal_plot_series *s, PLFLT *xs, PLFLT *ys, PLF
 /* PLplot's legend call, in one place (the placement estimates its box from these). */
 #define LEG_PLOT_WIDTH 0.08 /* sample width [fraction of the viewport width] */
 #define LEG_TEXT_OFFSET 0.8
-#define LEG_TEXT_SCALE 0.75
+#define LEG_TEXT_SCALE 0.75 /* of the chart's character height (pllegend takes it absolute) */
 #define LEG_TEXT_SPACING 1.8
 #define LEG_OFFSET 0.02 /* from the corner [fraction of the viewport] */
 #define MAXLEG 40
@@ -610,7 +610,7 @@ static stagecal_plot_box corner_box(const stagecal_plot_box *v, int corner, doub
 /* Computes boxes, ranges and the legend's place (before anything is drawn). ht: character
  * height [mm]; pw, ph: page size [mm]. */
 static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size_t np, double ht,
-                        double pw, double ph, stagecal_plot_layout *l)
+                        double pw, double ph, int svg, stagecal_plot_layout *l)
 {
     memset(l, 0, sizeof *l);
     l->n_panels = np;
@@ -634,15 +634,16 @@ static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size
         return;
     l->has_legend = 1;
     /* the legend's size, from PLplot's layout rules: n rows of LEG_TEXT_SPACING character
-     * heights; the sample, the offset and the text at most 0.8 character heights per
-     * character (measured: 0.65 with cairo, 0.75 with the svg driver), plus 5 characters of
-     * margins */
-    double text_w = ht * (5.0 + 0.8 * (double)maxchars) / pw;
+     * heights, and the sample, the offset and the text. The text: at most 0.68 character
+     * heights a character with cairo, 0.76 with the svg driver (measured with the text at
+     * 0.9 of the chart's character height on labels of 5 to 45 characters: 0.654 and 0.750;
+     * it is drawn at LEG_TEXT_SCALE), plus 2.6 of margins */
+    double tw = ht * (2.6 + (svg ? 0.76 : 0.68) * (double)maxchars) / pw;
     double h = ht * (LEG_TEXT_SPACING * (double)n + 0.6) / ph;
     if (np == 1) {
         for (int k = 0; k < 4; k++) {
             int corner = (c->legend_pos + k) & 3;
-            double w = LEG_PLOT_WIDTH * (l->box[0].x1 - l->box[0].x0) + text_w;
+            double w = LEG_PLOT_WIDTH * (l->box[0].x1 - l->box[0].x0) + tw;
             stagecal_plot_box b = corner_box(&l->box[0], corner, w, h);
             int hit = 0;
             for (size_t i = 0; i < pv[0].n_series && !hit; i++)
@@ -655,16 +656,34 @@ static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size
             }
         }
     }
-    /* outside, on the right of the boxes, in a region of its own from the top of the first
-     * box to the bottom of the last: its sample is LEG_PLOT_WIDTH of that region, the text
-     * 0.76 character heights a character (the larger of the two drivers' measures) */
-    double tw = ht * (2.6 + 0.76 * (double)maxchars) / pw;
+    /* outside. One panel: on the right of the box, in a region of its own; stacked panels:
+     * below the x axis label, in as many columns as fit (they need the width) */
+    l->legend_inside = 0;
+    if (np > 1) {
+        double rx0 = l->box[0].x0, rx1 = 0.99, rw = rx1 - rx0;
+        size_t ncol = (size_t)floor(rw / (LEG_PLOT_WIDTH * rw + tw + 1.0 * ht / pw));
+        ncol = ncol < 1 ? 1 : ncol > n ? n : ncol;
+        size_t nrow = (n + ncol - 1) / ncol;
+        double lh = ht * (LEG_TEXT_SPACING * (double)nrow + 0.6) / ph, lift = lh + 0.01;
+        l->legend_below = 1;
+        l->legend_cols = ncol;
+        l->legend_rows = nrow;
+        l->legend_region = (stagecal_plot_box){rx0, rx1, 0.005, 0.005 + lh};
+        l->legend_est = (stagecal_plot_box){rx0, rx0 + (double)ncol * (LEG_PLOT_WIDTH * rw + tw),
+                                            0.005, 0.005 + lh};
+        /* lift the boxes: squeeze their heights into what is left above the legend */
+        double top = l->box[0].y1, bottom = l->box[np - 1].y0, nb = bottom + lift;
+        for (size_t p = 0; p < np; p++) {
+            l->box[p].y0 = nb + (l->box[p].y0 - bottom) * (top - nb) / (top - bottom);
+            l->box[p].y1 = nb + (l->box[p].y1 - bottom) * (top - nb) / (top - bottom);
+        }
+        return;
+    }
     double x1 = 0.985 - tw / (1 - LEG_PLOT_WIDTH);
     if (x1 - l->box[0].x0 < 0.3) /* a legend too wide for the page: keep a usable plot */
         x1 = l->box[0].x0 + 0.3;
     for (size_t p = 0; p < np; p++)
         l->box[p].x1 = x1;
-    l->legend_inside = 0;
     l->legend_region = (stagecal_plot_box){x1 + 0.01, 0.995, l->box[np - 1].y0, l->box[0].y1};
     double rw = l->legend_region.x1 - l->legend_region.x0;
     l->legend_est =
@@ -672,7 +691,7 @@ static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size
                             l->box[0].y1 - h, l->box[0].y1};
 }
 
-static void draw_legend(const panel_view *pv, size_t np, stagecal_plot_layout *l)
+static void draw_legend(const panel_view *pv, size_t np, double chr, stagecal_plot_layout *l)
 {
     PLINT opt[MAXLEG], tcol[MAXLEG], bcol[MAXLEG], bpat[MAXLEG], lcol[MAXLEG], lsty[MAXLEG],
         scol[MAXLEG], snum[MAXLEG];
@@ -716,10 +735,14 @@ static void draw_legend(const panel_view *pv, size_t np, stagecal_plot_layout *l
     double off = l->legend_inside ? LEG_OFFSET : 0.0;
     plvpor(v->x0, v->x1, v->y0, v->y1);
     PLFLT w, h;
-    pllegend(&w, &h, PL_LEGEND_BACKGROUND | PL_LEGEND_BOUNDING_BOX, pos, off, off, LEG_PLOT_WIDTH,
-             COL_PAGE, COL_GRID, 1, 0, 0, n, opt, LEG_TEXT_OFFSET, LEG_TEXT_SCALE, LEG_TEXT_SPACING,
-             0.0, tcol, text, bcol, bpat, bscale, bwidth, lcol, lsty, lwidth, scol, sscale, snum,
-             sym);
+    PLINT nrow = l->legend_below ? (PLINT)l->legend_rows : 0,
+          ncol = l->legend_below ? (PLINT)l->legend_cols : 0;
+    pllegend(&w, &h,
+             PL_LEGEND_BACKGROUND | PL_LEGEND_BOUNDING_BOX |
+                 (l->legend_below ? PL_LEGEND_ROW_MAJOR : 0),
+             pos, off, off, LEG_PLOT_WIDTH, COL_PAGE, COL_GRID, 1, nrow, ncol, n, opt,
+             LEG_TEXT_OFFSET, LEG_TEXT_SCALE * chr, LEG_TEXT_SPACING, 0.0, tcol, text, bcol, bpat,
+             bscale, bwidth, lcol, lsty, lwidth, scol, sscale, snum, sym);
     double vw = v->x1 - v->x0, vh = v->y1 - v->y0;
     if (l->legend_inside)
         l->legend = corner_box(v, l->legend_corner, w * vw, h * vh);
@@ -806,9 +829,20 @@ static const char *time_format(double span_s)
 
 /* Draws c with PLplot device dev into file (which exists and is writable); the layout
  * into *lay. */
+static int draw_pass(stagecal_plot_kind k)
+{
+    return k == STAGECAL_PLOT_SPAN   ? 0
+           : k == STAGECAL_PLOT_BAND ? 1
+           : k == STAGECAL_PLOT_TEXT ? 3
+                                     : 2;
+}
+
+#define CHAR_PX 13.6 /* character height at char_scale 1 [px or pt] */
+
 static void render(const stagecal_plot_chart *c, const prepared *pr, const char *dev,
                    const char *file, const stagecal_plot_params *par, stagecal_plot_layout *lay)
 {
+    const int fmt_svg = strcmp(dev, "svg") == 0;
     PLINT old = 0, strm = 0;
     char geometry[64];
 
@@ -829,12 +863,16 @@ static void render(const stagecal_plot_chart *c, const prepared *pr, const char 
         set_rgb(COL_LIGHT + i, mix_white(i, LIGHT_WEIGHT));
     }
     plinit();
-    plschr(0.0, par->char_scale);
     pladv(0);
     PLFLT sx0, sx1, sy0, sy1, def, ht;
     plgspa(&sx0, &sx1, &sy0, &sy1);
     plgchr(&def, &ht);
-    plan_layout(c, pr->pv, pr->np, ht, sx1 - sx0, sy1 - sy0, lay);
+    /* PLplot scales its characters with the page; a chart's text should keep one size in
+     * pixels (points) whatever the chart's size: CHAR_PX·char_scale */
+    double chr = par->char_scale * CHAR_PX * ((sx1 - sx0) / (double)par->width) / def;
+    plschr(0.0, chr);
+    plgchr(&def, &ht);
+    plan_layout(c, pr->pv, pr->np, ht, sx1 - sx0, sy1 - sy0, fmt_svg, lay);
     for (size_t p = 0; p < pr->np; p++) {
         const stagecal_plot_box *b = &lay->box[p];
         double y0 = lay->y_min[p], y1 = lay->y_max[p];
@@ -847,14 +885,12 @@ static void render(const stagecal_plot_chart *c, const prepared *pr, const char 
         plwidth(0.5);
         plbox(c->x_time ? "gd" : "g", 0, 0, "g", 0, 0);
         plwidth(1.0);
-        static const stagecal_plot_kind order[] = {STAGECAL_PLOT_SPAN,   STAGECAL_PLOT_BAND,
-                                                   STAGECAL_PLOT_ERRBAR, STAGECAL_PLOT_LINE,
-                                                   STAGECAL_PLOT_POINTS, STAGECAL_PLOT_TEXT};
-        for (size_t pass = 0; pass < sizeof order / sizeof order[0]; pass++)
+        /* stripes, then bands, then lines, bars and markers in the builder's order, then
+         * texts */
+        for (int pass = 0; pass < 4; pass++)
             for (size_t i = 0; i < pr->pv[p].n_series; i++)
-                if (pr->pv[p].series[i].kind == order[pass])
-                    draw_series(&pr->pv[p].series[i], pr->xs, pr->ys, pr->zs, par->char_scale, y0,
-                                y1);
+                if (draw_pass(pr->pv[p].series[i].kind) == pass)
+                    draw_series(&pr->pv[p].series[i], pr->xs, pr->ys, pr->zs, chr, y0, y1);
         plcol0(COL_AXIS);
         const char *xo = c->x_time ? (bottom ? "bcdnst" : "bcdst") : (bottom ? "bcnst" : "bcst");
         plbox(xo, 0, 0, "bcnstv", 0, 0);
@@ -865,7 +901,7 @@ static void render(const stagecal_plot_chart *c, const prepared *pr, const char 
             plmtex("t", 1.2, 0.5, 0.5, pr->title);
     }
     if (lay->has_legend)
-        draw_legend(pr->pv, pr->np, lay);
+        draw_legend(pr->pv, pr->np, chr, lay);
     plend1();
     plsstrm(old);
 }

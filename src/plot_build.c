@@ -123,7 +123,7 @@ int stagecal_plot_mccabe(const stagecal_plot_mccabe_data *d, stagecal_plot_chart
         snprintf(title, sizeof title, "McCabe\xe2\x80\x93Thiele: %s, E_MV = %.3g", rtext,
                  d->murphree);
     plot_fig_labels(&f, title, "liquid mole fraction x of the light component [mol/mol]",
-               "vapour mole fraction y [mol/mol]");
+                    "vapour mole fraction y [mol/mol]");
     f.c->x_min = 0;
     f.c->x_max = xmax;
     f.c->y_min = 0;
@@ -141,8 +141,8 @@ int stagecal_plot_mccabe(const stagecal_plot_mccabe_data *d, stagecal_plot_chart
     {
         double dx[2] = {0, xmax}, dy[2] = {0, xmax};
         plot_fig_add(&f, STAGECAL_PLOT_LINE,
-                total ? "diagonal y = x = operating line (total reflux)" : "diagonal y = x", dx, dy,
-                NULL, 2, 5, 2, 0);
+                     total ? "diagonal y = x = operating line (total reflux)" : "diagonal y = x",
+                     dx, dy, NULL, 2, 5, 2, 0);
     }
     for (size_t i = 0; i < m; i++) {
         x[i] = xmax * (double)i / (double)(m - 1);
@@ -199,7 +199,8 @@ int stagecal_plot_mccabe(const stagecal_plot_mccabe_data *d, stagecal_plot_chart
     {
         const stagecal_stage_point *pot = &d->profile[d->n_profile - 1];
         double mx[2] = {xd, pot->x}, my[2] = {xd, pot->y};
-        plot_fig_add(&f, STAGECAL_PLOT_POINTS, "distillate xD and pot xB", mx, my, NULL, 2, 4, 0, 0);
+        plot_fig_add(&f, STAGECAL_PLOT_POINTS, "distillate xD and pot xB", mx, my, NULL, 2, 4, 0,
+                     0);
     }
 done:
     free(x);
@@ -299,7 +300,7 @@ static void add_groups(plot_fig *f, const double *x, const double *y, const size
         else
             snprintf(lab, sizeof lab, "group %zu", g + 1);
         plot_fig_add(f, STAGECAL_PLOT_POINTS, lab, gx, gy, NULL, m, colours[g % ncol], 0,
-                (int)(g % STAGECAL_PLOT_NMARKERS));
+                     (int)(g % STAGECAL_PLOT_NMARKERS));
     }
     free(gx);
     free(gy);
@@ -363,8 +364,8 @@ int stagecal_plot_fit(const stagecal_plot_fit_data *d, stagecal_plot_chart **out
         plot_fig_add(&f, STAGECAL_PLOT_BAND, lab, d->grid, d->ci_lo, d->ci_hi, d->n_grid, 0, 0, 0);
     }
     if (d->grid)
-        plot_fig_add(&f, STAGECAL_PLOT_LINE, "fitted correlation", d->grid, d->fit, NULL, d->n_grid, 0,
-                0, 0);
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, "fitted correlation", d->grid, d->fit, NULL, d->n_grid,
+                     0, 0, 0);
     if (isfinite(d->env_lo) || isfinite(d->env_hi)) {
         double pad = 0.04 * fmax(ymax - ymin, 1e-9);
         double ex[5] = {d->env_lo, d->env_lo, NAN, d->env_hi, d->env_hi};
@@ -399,12 +400,12 @@ int stagecal_plot_resid(const stagecal_plot_resid_data *d, stagecal_plot_chart *
     plot_fig f;
     if ((rc = plot_fig_open(&f, err)))
         return rc;
-    plot_fig_labels(&f,
-               d->title
-                   ? d->title
-                   : (d->time_s ? "Residuals against time" : "Residuals against fitted stages"),
-               d->time_s ? "sample time [UTC date]" : "fitted stages incl. pot [-]",
-               "residual, observed \xe2\x88\x92 fitted [stages]");
+    plot_fig_labels(
+        &f,
+        d->title ? d->title
+                 : (d->time_s ? "Residuals against time" : "Residuals against fitted stages"),
+        d->time_s ? "sample time [UTC date]" : "fitted stages incl. pot [-]",
+        "residual, observed \xe2\x88\x92 fitted [stages]");
     f.c->x_time = d->time_s != NULL;
     double pad = hi > lo ? 0.04 * (hi - lo) : 0.5;
     double zx[2] = {lo - pad, hi + pad}, zy[2] = {0, 0};
@@ -441,11 +442,11 @@ int stagecal_plot_trend(const stagecal_plot_trend_data *d, stagecal_plot_chart *
     if ((rc = plot_fig_open(&f, err)))
         return rc;
     plot_fig_labels(&f, d->title ? d->title : "Stage trend with control limits and forecast",
-               "calibration date [UTC]", "equilibrium stages incl. pot [-]");
+                    "calibration date [UTC]", "equilibrium stages incl. pot [-]");
     f.c->x_time = 1;
     if (d->fc_t && d->fc_lo && d->fc_hi)
-        plot_fig_add(&f, STAGECAL_PLOT_BAND, "forecast band", d->fc_t, d->fc_lo, d->fc_hi, d->n_fc, 5, 0,
-                0);
+        plot_fig_add(&f, STAGECAL_PLOT_BAND, "forecast band", d->fc_t, d->fc_lo, d->fc_hi, d->n_fc,
+                     5, 0, 0);
     if (d->line_t && d->n_line > 0)
         plot_fig_add(&f, STAGECAL_PLOT_LINE, "trend", d->line_t, d->line, NULL, d->n_line, 0, 0, 0);
     if (d->fc_t && d->n_fc > 0)
@@ -457,10 +458,11 @@ int stagecal_plot_trend(const stagecal_plot_trend_data *d, stagecal_plot_chart *
     }
     if (isfinite(d->spec_stages)) {
         double sx[2] = {t0, t1}, sy[2] = {d->spec_stages, d->spec_stages};
-        plot_fig_add(&f, STAGECAL_PLOT_LINE, "minimum for product specification", sx, sy, NULL, 2, 3, 3,
-                0);
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, "minimum for product specification", sx, sy, NULL, 2,
+                     3, 3, 0);
     }
-    plot_fig_add(&f, STAGECAL_PLOT_POINTS, "calibrations", d->time_s, d->stages, NULL, d->n, 6, 0, 0);
+    plot_fig_add(&f, STAGECAL_PLOT_POINTS, "calibrations", d->time_s, d->stages, NULL, d->n, 6, 0,
+                 0);
     if (d->alarm) {
         size_t m = 0;
         double *ax = malloc(d->n * sizeof *ax), *ay = malloc(d->n * sizeof *ay);
@@ -501,7 +503,7 @@ int stagecal_plot_batch(const stagecal_plot_batch_data *d, stagecal_plot_chart *
     if ((rc = plot_fig_open(&f, err)))
         return rc;
     plot_fig_labels(&f, d->title ? d->title : "Batch prediction", "time since start of batch [h]",
-               d->y_label ? d->y_label : "predicted value");
+                    d->y_label ? d->y_label : "predicted value");
     double *th = malloc(d->n_t * sizeof *th);
     if (!th) {
         f.oom = 1;
@@ -522,8 +524,8 @@ int stagecal_plot_batch(const stagecal_plot_batch_data *d, stagecal_plot_chart *
     for (size_t c = 0; c < d->n_curves; c++) {
         const stagecal_plot_batch_curve *cv = &d->curves[c];
         int col = (int)(c < 6 ? c : c + 1) % STAGECAL_PLOT_NCOLOURS;
-        plot_fig_add(&f, STAGECAL_PLOT_LINE, cv->name ? cv->name : "curve", th, cv->y, NULL, d->n_t, col,
-                (int)(c % STAGECAL_PLOT_NLINES), 0);
+        plot_fig_add(&f, STAGECAL_PLOT_LINE, cv->name ? cv->name : "curve", th, cv->y, NULL, d->n_t,
+                     col, (int)(c % STAGECAL_PLOT_NLINES), 0);
     }
     if (isfinite(d->spec)) {
         double sx[2] = {th[0], th[d->n_t - 1]}, sy[2] = {d->spec, d->spec};

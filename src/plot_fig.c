@@ -108,7 +108,7 @@ stagecal_plot_series *plot_fig_add(plot_fig *f, stagecal_plot_kind kind, const c
     return s;
 }
 
-void plot_fig_panel(plot_fig *f, const char *y_label, double weight)
+void plot_fig_panel(plot_fig *f, const char *y_label, double weight, double y_lo, double y_hi)
 {
     if (f->n_panels >= STAGECAL_PLOT_MAXPANELS) {
         f->oom = 1; /* a builder's mistake: refused like a failed allocation */
@@ -117,6 +117,8 @@ void plot_fig_panel(plot_fig *f, const char *y_label, double weight)
     f->panel_first[f->n_panels] = f->c->n_series;
     f->panel_label[f->n_panels] = plot_str(f, y_label);
     f->panel_weight[f->n_panels] = weight;
+    f->panel_lo[f->n_panels] = y_lo;
+    f->panel_hi[f->n_panels] = y_hi;
     f->n_panels++;
 }
 
@@ -127,7 +129,8 @@ int plot_fig_close(plot_fig *f, stagecal_plot_chart **out, stagecal_error *err)
         for (size_t k = 0; p && k < f->n_panels; k++) {
             size_t end = k + 1 < f->n_panels ? f->panel_first[k + 1] : f->c->n_series;
             p[k].y_label = f->panel_label[k];
-            p[k].y_min = p[k].y_max = NAN;
+            p[k].y_min = f->panel_lo[k];
+            p[k].y_max = f->panel_hi[k];
             p[k].weight = f->panel_weight[k];
             p[k].series = f->s + f->panel_first[k];
             p[k].n_series = end - f->panel_first[k];
@@ -150,4 +153,3 @@ void plot_fig_labels(plot_fig *f, const char *title, const char *xl, const char 
     f->c->x_label = plot_str(f, xl);
     f->c->y_label = plot_str(f, yl);
 }
-

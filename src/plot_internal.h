@@ -24,10 +24,11 @@ typedef struct {
     arena *a;
     stagecal_plot_series *s;
     int oom;
-    size_t n_panels;                                   /* panels started */
-    size_t panel_first[STAGECAL_PLOT_MAXPANELS];       /* first series of each */
-    const char *panel_label[STAGECAL_PLOT_MAXPANELS];  /* their y labels (arena copies) */
+    size_t n_panels;                                  /* panels started */
+    size_t panel_first[STAGECAL_PLOT_MAXPANELS];      /* first series of each */
+    const char *panel_label[STAGECAL_PLOT_MAXPANELS]; /* their y labels (arena copies) */
     double panel_weight[STAGECAL_PLOT_MAXPANELS];
+    double panel_lo[STAGECAL_PLOT_MAXPANELS], panel_hi[STAGECAL_PLOT_MAXPANELS]; /* y range */
 } plot_fig;
 
 void *plot_alloc(plot_fig *f, size_t bytes);
@@ -39,8 +40,8 @@ int plot_fig_open(plot_fig *f, stagecal_error *err);
 stagecal_plot_series *plot_fig_add(plot_fig *f, stagecal_plot_kind kind, const char *label,
                                    const double *x, const double *y, const double *y_hi, size_t n,
                                    int colour, int line, int marker);
-/* Starts a panel (at most STAGECAL_PLOT_MAXPANELS). */
-void plot_fig_panel(plot_fig *f, const char *y_label, double weight);
+/* Starts a panel (at most STAGECAL_PLOT_MAXPANELS) with its y range (NAN: from the data). */
+void plot_fig_panel(plot_fig *f, const char *y_label, double weight, double y_lo, double y_hi);
 int plot_fig_close(plot_fig *f, stagecal_plot_chart **out, stagecal_error *err);
 void plot_fig_labels(plot_fig *f, const char *title, const char *xl, const char *yl);
 

@@ -103,7 +103,8 @@ typedef struct {
                        3 bottom left. The legend goes into the first corner of the plot box
                        (from this one on) where its box covers no data — no marker, line,
                        band, bar or stripe — and outside the plot box, on the right, when
-                       every corner is taken (always so for stacked panels) */
+                       every corner is taken; for stacked panels always below them, in
+                       columns */
     const stagecal_plot_series *series; /* caller or builder-owned: n_series series, drawn in
                                            order, bands first */
     size_t n_series;
@@ -125,8 +126,10 @@ typedef struct {
     stagecal_plot_box box[STAGECAL_PLOT_MAXPANELS]; /* plot boxes, top first */
     double x_min, x_max;                            /* the x range (world units) */
     double y_min[STAGECAL_PLOT_MAXPANELS], y_max[STAGECAL_PLOT_MAXPANELS];
-    int has_legend;                  /* 1: a legend was drawn */
-    int legend_inside;               /* 1: in a corner of a plot box */
+    int has_legend;    /* 1: a legend was drawn */
+    int legend_inside; /* 1: in a corner of a plot box */
+    int legend_below;  /* 1: below stacked panels, in legend_cols columns */
+    size_t legend_cols, legend_rows;
     int legend_corner;               /* that corner (legend_pos numbering) */
     size_t legend_panel;             /* the panel whose corner holds it */
     stagecal_plot_box legend;        /* the legend's box as PLplot drew it */
@@ -308,6 +311,37 @@ typedef struct {
 
 int stagecal_plot_batch(const stagecal_plot_batch_data *d, stagecal_plot_chart **out,
                         stagecal_error *err);
+
+/* The run chart: the raw runs against time in five stacked panels — distillate xD, pot
+ * xB, pot holdup W, reflux ratio R, stage counts — with the quasi-steady windows shaded in
+ * every panel (blue: windows with a stage count, the fits' evidence; vermillion: windows of
+ * a run left out of the fit; light: windows without a count), the samples' stage counts
+ * with ± 2 u bars, the windows' stage counts (the evidence's, ± 2 se), censored readings
+ * (▲ at or above, ▽ at or below the limit) and one-sided sample bounds, xB outliers (×),
+ * samples without a count (× at the foot of the stage panel), total-reflux rows, and run
+ * names (left-out runs say so). Nothing is recomputed: rows from the log, flags, statuses
+ * and counts from the analysis (after stagecal_runlog_invert), window counts from the
+ * evidence set. One run: hours from its start; all runs: side by side in log order, each
+ * in hours from its own start (stagecal_plot_run_hours gives a row's abscissa). Drawn
+ * best at about 900 × 1100. */
+#define STAGECAL_PLOT_ALL_RUNS ((size_t)-1)
+typedef struct {
+    const stagecal_runlog *log;            /* the rows */
+    const stagecal_runlog_result *res;     /* their analysis and inversion */
+    const stagecal_evidence_set *evidence; /* the windows' counts; NULL: none drawn */
+    const stagecal_flagged_run *flagged;   /* runs flagged (calibrate.h); may be NULL */
+    size_t nflagged;
+    size_t run;        /* a run index, or STAGECAL_PLOT_ALL_RUNS */
+    const char *title; /* NULL: the run's name and start, or the runs' range */
+} stagecal_plot_run_data;
+
+int stagecal_plot_run(const stagecal_plot_run_data *d, stagecal_plot_chart **out,
+                      stagecal_error *err);
+/* From a calibration (also one whose fit failed, once its windows were built). */
+int stagecal_plot_run_calibration(const stagecal_calibration *cal, size_t run,
+                                  stagecal_plot_chart **out, stagecal_error *err);
+/* The abscissa [h] of a row on the run chart of d; 0 when d or row is out of range. */
+int stagecal_plot_run_hours(const stagecal_plot_run_data *d, size_t row, double *h);
 
 #ifdef __cplusplus
 }

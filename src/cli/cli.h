@@ -125,6 +125,9 @@ typedef struct {
     int json;           /* --json was given (OPT__JSON(&ctx->json)) */
     int data_on_stdout; /* the command wrote data (CSV, HTML) on stdout: no caution after it */
     cli_system sys;     /* CMD_SYSTEM: the equilibrium-model options; main closes it */
+    const char *chart;  /* `plot trend|trajectory`: the chart file the command also draws
+                           (cmd_plot.c, cli_chart_write); NULL otherwise */
+    size_t chart_width, chart_height;
 } cli_ctx;
 
 /* Flags of main.c's command table: the shared setup main does. */

@@ -1,10 +1,16 @@
 /*
  * cmd_plot.c — `stagecal plot`: charts as PNG, SVG or PDF (by the output's extension).
- *   plot mccabe  the McCabe–Thiele stage diagram of a condition (xD, R, stages) or a
- *                sample (xD, xB, R → stages by inversion)
- *   plot model   stages against R from a model file with bands, envelope and points;
- *                --residuals draws the residuals against fitted stages instead
- * The charts are built and drawn by the plot and report modules.
+ *   plot mccabe      the McCabe–Thiele stage diagram of a condition (xD, R, stages) or a
+ *                    sample (xD, xB, R → stages by inversion)
+ *   plot model       stages against R from a model file with bands, envelope and points;
+ *                    --residuals draws the residuals against fitted stages instead
+ *   plot run         the raw runs of run logs against time: xD, xB, W, R and the stage
+ *                    counts, windows shaded (the calibration chain's analysis and evidence)
+ *   plot trend       `stagecal trend` with its chart (the options are trend's)
+ *   plot trajectory  `stagecal predict` with its chart (the options are predict's)
+ * The charts are built and drawn by the plot and report modules; trend and trajectory run
+ * their commands with ctx->chart set, and those commands hand their results to the chart
+ * builders (cli_chart_write).
  */
 #include <math.h>
 #include <stdio.h>
@@ -15,6 +21,7 @@
 #include "cli.h"
 #include "commands.h"
 #include "options.h"
+#include "stagecal/calibrate.h"
 #include "stagecal/model.h"
 #include "stagecal/plot.h"
 #include "stagecal/regress.h"
@@ -25,19 +32,58 @@ static const struct cli_usage usage = {
     "                     --reflux R|inf (--stages N | --xb XB) [--murphree E]\n"
     "                     --output FILE [--chart-width W] [--chart-height H] [--json] [--quiet]\n"
     "       stagecal plot model MODEL.json [--points POINTS.csv] [--residuals]\n"
-    "                     --output FILE [--chart-width W] [--chart-height H] [--json] [--quiet]\n",
-    "Draws a chart; the format follows the extension of FILE: .png, .svg or .pdf.\n"
+    "                     --output FILE [--chart-width W] [--chart-height H] [--json] [--quiet]\n"
+    "       stagecal plot run LOG.csv... --column FILE [--run NAME] [--keep-flagged]\n"
+    "                     [--warm-up TIME] [--min-window TIME] [--csv-dialect KIND]\n"
+    "                     [--murphree E] --output FILE [--chart-width W] [--chart-height H]\n"
+    "       stagecal plot trend <the options of 'stagecal trend'> --output FILE\n"
+    "       stagecal plot trajectory <the options of 'stagecal predict'> --output FILE\n",
+    "Draws a chart; the format follows the extension of FILE: .png, .svg or .pdf (SVG\n"
+    "labels are text).\n"
     "\n"
     "mccabe: the McCabe-Thiele stage diagram: equilibrium curve, pseudo-equilibrium\n"
     "curve when E < 1, operating line, diagonal, the steps, the pinch. Give --stages\n"
     "for a condition, or --xb for a sample (stages from the inversion).\n"
     "model: stages against R from a model file, with confidence and prediction bands\n"
-    "and the fitted envelope (--points, --residuals).\n",
+    "and the fitted envelope (--points, --residuals).\n"
+    "run: the runs of the logs against time, in panels: xD, xB, W, R and the stage\n"
+    "counts; the quasi-steady windows shaded, the samples' counts with bars, the\n"
+    "windows' counts (what the fits use), censored readings, outliers and runs left\n"
+    "out of the fit marked. The analysis is calibrate's, with the same settings.\n"
+    "trend, trajectory: run 'stagecal trend' or 'stagecal predict' with the options\n"
+    "given (the chart kind first) and draw their result: the stages over time with\n"
+    "trend lines, alarms and forecast, or the batch's pot and distillate compositions\n"
+    "and cuts over time. Parts outside the fitted envelope are dashed and lighter.\n",
     "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal,\n"
     "73 output cannot be written.\n"};
 
-static const char *const mccabe_only[] = {"alpha",  "kvalue", "column",   "xd", "reflux",
-                                          "stages", "xb",     "murphree", NULL};
+/* Options that belong to some chart kinds only: name and the kinds (bits of KIND_*). */
+enum { KIND_MCCABE = 1, KIND_MODEL = 2, KIND_RUN = 4 };
+static const struct {
+    const char *name;
+    unsigned kinds;
+} kind_options[] = {
+    {"alpha", KIND_MCCABE},
+    {"kvalue", KIND_MCCABE},
+    {"column", KIND_MCCABE | KIND_RUN},
+    {"xd", KIND_MCCABE},
+    {"reflux", KIND_MCCABE},
+    {"stages", KIND_MCCABE},
+    {"xb", KIND_MCCABE},
+    {"murphree", KIND_MCCABE | KIND_RUN},
+    {"points", KIND_MODEL},
+    {"residuals", KIND_MODEL},
+    {"run", KIND_RUN},
+    {"keep-flagged", KIND_RUN},
+    {"warm-up", KIND_RUN},
+    {"min-window", KIND_RUN},
+    {"csv-dialect", KIND_RUN},
+};
+
+static const char *kind_name(unsigned k)
+{
+    return k == KIND_MCCABE ? "mccabe" : k == KIND_MODEL ? "model" : "run";
+}
 
 static int print_result(const stagecal_plot_chart *draw, const char *kind, const char *output,
                         int json)
@@ -70,13 +116,137 @@ static int model_chart(const char *model_path, const char *points_path, stagecal
     return rc;
 }
 
+/* plot run: the calibration chain's analysis and evidence (the fits themselves may fail:
+ * the chart is what shows why), the run chosen by name. */
+static int run_chart(const char *const *logs, size_t nlogs, const char *column,
+                     const char *run_name, stagecal_calibrate_params *par,
+                     stagecal_calibration *cal, stagecal_plot_chart **chart, stagecal_error *err)
+{
+    par->form = "constant"; /* the chart needs the windows, not a particular form */
+    par->method = STAGECAL_CAL_STAGE;
+    int rc = stagecal_calibrate(column, logs, nlogs, par, cal, err);
+    if (rc != STAGECAL_OK && (!cal->log || cal->res.n != cal->log->n || cal->log->n == 0))
+        return rc; /* not even the analysis: nothing to draw */
+    if (rc != STAGECAL_OK)
+        cli_warn("the calibration chain stopped: %s (the chart shows the runs and windows)",
+                 err->text);
+    size_t run = STAGECAL_PLOT_ALL_RUNS;
+    if (run_name) {
+        for (size_t r = 0; r < cal->log->nruns && run == STAGECAL_PLOT_ALL_RUNS; r++)
+            if (strcmp(cal->log->runs[r].name, run_name) == 0)
+                run = r;
+        if (run == STAGECAL_PLOT_ALL_RUNS) {
+            char names[256] = "";
+            for (size_t r = 0; r < cal->log->nruns && strlen(names) < 200; r++)
+                snprintf(names + strlen(names), sizeof names - strlen(names), "%s%s", r ? ", " : "",
+                         cal->log->runs[r].name);
+            err->code = STAGECAL_EDATA;
+            snprintf(err->text, sizeof err->text,
+                     "option '--run': the logs have no run '%s' (they have: %s)", run_name, names);
+            return STAGECAL_EDATA;
+        }
+    }
+    return stagecal_plot_run_calibration(cal, run, chart, err);
+}
+
+int cli_chart_write(cli_ctx *ctx, stagecal_plot_chart *chart, int rc, stagecal_error *err)
+{
+    if (rc == STAGECAL_OK) {
+        stagecal_plot_params par = stagecal_plot_default_params();
+        par.width = ctx->chart_width;
+        par.height = ctx->chart_height;
+        rc = stagecal_plot_write(chart, ctx->chart, &par, err);
+    }
+    stagecal_plot_chart_free(chart);
+    if (rc != STAGECAL_OK)
+        return cli_fail(err);
+    if (!ctx->json)
+        printf("chart written to %s\n", ctx->chart);
+    return CLI_EXIT_OK;
+}
+
+/* plot trend | trajectory ARGS: the command with its own options, less the chart's
+ * (--output/-o/--out FILE, --chart-width, --chart-height), which go into ctx. */
+static int forward(int argc, char **argv, cli_ctx *ctx)
+{
+    const int trend = strcmp(argv[1], "trend") == 0;
+    const char *out = NULL;
+    long width = 800, height = 560;
+    char **av = calloc((size_t)argc + 1, sizeof *av);
+    int ac = 0, rc;
+    if (!av) {
+        cli_error("out of memory");
+        return CLI_EXIT_SOFTWARE;
+    }
+    av[ac++] = argv[1];
+    for (int i = 2; i < argc; i++) {
+        const char *a = argv[i];
+        static const char *const with_value[] = {
+            "--output", "-o", "--out", "--chart-width", "--width", "--chart-height", "--height"};
+        int k = -1;
+        size_t eq = 0;
+        for (size_t j = 0; j < sizeof with_value / sizeof with_value[0] && k < 0; j++) {
+            size_t n = strlen(with_value[j]);
+            if (strcmp(a, with_value[j]) == 0)
+                k = (int)j;
+            else if (strncmp(a, with_value[j], n) == 0 && a[n] == '=' && n > 2)
+                k = (int)j, eq = n + 1;
+        }
+        if (k < 0) {
+            av[ac++] = argv[i];
+            continue;
+        }
+        const char *v = eq ? a + eq : (i + 1 < argc ? argv[++i] : NULL);
+        if (!v) {
+            free(av);
+            return cli_usage_error("option '%s' needs a value", a);
+        }
+        if (k <= 2) {
+            out = v;
+        } else if ((rc = cli_parse_long(with_value[k] + 2, v, 16, 20000,
+                                        k <= 4 ? &width : &height))) {
+            free(av);
+            return rc;
+        }
+    }
+    av[ac] = NULL;
+    int help = 0;
+    for (int i = 1; i < ac; i++)
+        help |= strcmp(av[i], "--help") == 0 || strcmp(av[i], "-h") == 0;
+    if (!out && !help) {
+        free(av);
+        return cli_usage_error("option '--output' is required: the chart file (.png, .svg or "
+                               ".pdf)");
+    }
+    if (out) {
+        stagecal_plot_format fmt;
+        stagecal_error err;
+        stagecal_error_clear(&err);
+        if (stagecal_plot_format_from_path(out, &fmt, &err) != STAGECAL_OK) {
+            free(av);
+            return cli_usage_error("option '--output': %s", err.text);
+        }
+    }
+    ctx->chart = out;
+    ctx->chart_width = (size_t)width;
+    ctx->chart_height = (size_t)height;
+    rc = trend ? cmd_trend(ac, av, ctx) : cmd_predict(ac, av, ctx);
+    free(av);
+    if (rc == CLI_EXIT_OK && !ctx->json && !ctx->data_on_stdout)
+        cli_print_caution(); /* trend and predict print it as commands of their own */
+    return rc;
+}
+
 int cmd_plot(int argc, char **argv, cli_ctx *ctx)
 {
+    if (argc >= 2 && (strcmp(argv[1], "trend") == 0 || strcmp(argv[1], "trajectory") == 0))
+        return forward(argc, argv, ctx);
     cli_system *sys = &ctx->sys;
     double xd = NAN, reflux = NAN, nstages = NAN, xb = NAN, murphree = 1.0;
-    const char *output = NULL, *points_path = NULL;
-    long width = 800, height = 560;
-    int resid = 0, first, rc;
+    const char *output = NULL, *points_path = NULL, *run_name = NULL;
+    long width = 0, height = 0;
+    int resid = 0, first, rc, dialect = 0;
+    stagecal_calibrate_params cpar = stagecal_calibrate_default_params();
     const struct cli_option opts[] = {
         OPT_GROUP("mccabe:"),
         OPT_SYSTEM(sys),
@@ -89,11 +259,18 @@ int cmd_plot(int argc, char **argv, cli_ctx *ctx)
         OPT_POINTS(&points_path, "points (R,stages[,F,sigma]) drawn with the fit"),
         OPT_FLAG(0, "residuals", &resid,
                  "residuals of the points against fitted stages (needs --points)"),
-        OPT_GROUP("both:"),
+        OPT_GROUP("run (and --column, --murphree above):"),
+        OPT_STRING(0, "run", &run_name, "NAME", "draw this run only (default: every run)"),
+        OPT_KEEP_FLAGGED(&cpar.keep_flagged),
+        OPT_WARM_UP(&cpar.analysis.warmup_s),
+        OPT_MIN_WINDOW(&cpar.analysis.min_window_s),
+        OPT_CSV_DIALECT(&dialect),
+        OPT_GROUP("every kind:"),
         OPT_OUTPUT(&output, "the chart file (.png, .svg or .pdf), required"),
         OPT_LONG("chart-width", &width, "W",
-                 "chart width in pixels (PNG) or points (SVG, PDF), default 800", 16, 20000),
-        OPT_LONG("chart-height", &height, "H", "chart height, default 560", 16, 20000),
+                 "chart width in pixels (PNG) or points (SVG, PDF), default 800\n(run: 900)", 16,
+                 20000),
+        OPT_LONG("chart-height", &height, "H", "chart height, default 560 (run: 1100)", 16, 20000),
         OPT_ALIAS("width", "chart-width"),
         OPT_ALIAS("height", "chart-height"),
         OPT_END_COMMON(ctx),
@@ -101,26 +278,40 @@ int cmd_plot(int argc, char **argv, cli_ctx *ctx)
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
         return rc;
     int json = ctx->json;
-    const char *mccabe_opt = NULL, *model_opt = NULL; /* options of one chart kind only */
-    for (int k = 0; mccabe_only[k] && !mccabe_opt; k++)
-        if (cli_given(opts, mccabe_only[k]))
-            mccabe_opt = mccabe_only[k];
-    if (cli_given(opts, "points") || resid)
-        model_opt = cli_given(opts, "points") ? "points" : "residuals";
     /* The chart kind is the first argument; options may come before or after it. */
     if (first >= argc)
-        return cli_usage_error("a chart kind is required: 'mccabe' or 'model' (see 'stagecal "
-                               "plot --help')");
+        return cli_usage_error("a chart kind is required: 'mccabe', 'model', 'run', 'trend' or "
+                               "'trajectory' (see 'stagecal plot --help')");
     const char *kind = argv[first++];
-    int is_mccabe = strcmp(kind, "mccabe") == 0, is_model = strcmp(kind, "model") == 0;
-    if (!is_mccabe && !is_model)
-        return cli_usage_error("unknown chart kind '%s' (expected 'mccabe' or 'model')", kind);
-    if (is_model && mccabe_opt)
-        return cli_usage_error("option '--%s' belongs to 'plot mccabe' (plot model takes its "
-                               "equilibrium and conditions from the model file)",
-                               mccabe_opt);
-    if (is_mccabe && model_opt)
-        return cli_usage_error("option '--%s' belongs to 'plot model'", model_opt);
+    unsigned k = strcmp(kind, "mccabe") == 0  ? KIND_MCCABE
+                 : strcmp(kind, "model") == 0 ? KIND_MODEL
+                 : strcmp(kind, "run") == 0   ? KIND_RUN
+                                              : 0;
+    if (strcmp(kind, "trend") == 0 || strcmp(kind, "trajectory") == 0)
+        return cli_usage_error("'plot %s' takes the chart kind first: 'stagecal plot %s "
+                               "<options>'",
+                               kind, kind);
+    if (!k)
+        return cli_usage_error("unknown chart kind '%s' (expected 'mccabe', 'model', 'run', "
+                               "'trend' or 'trajectory')",
+                               kind);
+    for (size_t i = 0; i < sizeof kind_options / sizeof kind_options[0]; i++) {
+        if (!(kind_options[i].kinds & k) &&
+            (cli_given(opts, kind_options[i].name) ||
+             (strcmp(kind_options[i].name, "residuals") == 0 && resid))) {
+            char owners[64] = "";
+            for (unsigned b = 1; b <= KIND_RUN; b <<= 1)
+                if (kind_options[i].kinds & b)
+                    snprintf(owners + strlen(owners), sizeof owners - strlen(owners), "%s'plot %s'",
+                             owners[0] ? " and " : "", kind_name(b));
+            return cli_usage_error("option '--%s' belongs to %s", kind_options[i].name, owners);
+        }
+    }
+    const int is_mccabe = k == KIND_MCCABE, is_run = k == KIND_RUN;
+    if (width == 0)
+        width = is_run ? 900 : 800;
+    if (height == 0)
+        height = is_run ? 1100 : 560;
     if (!output)
         return cli_usage_error("option '--output' is required (see 'stagecal plot --help')");
     stagecal_plot_format fmt;
@@ -128,17 +319,42 @@ int cmd_plot(int argc, char **argv, cli_ctx *ctx)
     stagecal_error_clear(&err);
     if (stagecal_plot_format_from_path(output, &fmt, &err) != STAGECAL_OK)
         return cli_usage_error("option '--output': %s", err.text);
-    const char *inputs[3] = {points_path, first < argc ? argv[first] : NULL, sys->column_path};
-    if ((rc = cli_check_output("output", output, inputs, 3)))
-        return rc;
+    {
+        const char **inputs = calloc((size_t)argc + 3, sizeof *inputs);
+        size_t ni = 0;
+        if (!inputs) {
+            cli_error("out of memory");
+            return CLI_EXIT_SOFTWARE;
+        }
+        inputs[ni++] = points_path;
+        inputs[ni++] = sys->column_path;
+        for (int i = first; i < argc; i++)
+            inputs[ni++] = argv[i];
+        rc = cli_check_output("output", output, inputs, ni);
+        free(inputs);
+        if (rc)
+            return rc;
+    }
 
     stagecal_plot_chart *chart = NULL;
     stagecal_report_doc *doc = NULL;
     stagecal_model m;
     stagecal_regress_data pts;
+    stagecal_calibration cal;
     memset(&pts, 0, sizeof pts);
+    memset(&cal, 0, sizeof cal);
     stagecal_model_init(&m);
-    if (is_mccabe) {
+    if (is_run) {
+        if (first >= argc)
+            return cli_usage_error("at least one run log is required (see 'stagecal plot "
+                                   "--help')");
+        if (!sys->column_path)
+            return cli_usage_error("option '--column' is required for 'plot run'");
+        cpar.murphree = murphree;
+        cpar.read.csv_separator = cli_csv_separator(dialect);
+        rc = run_chart((const char *const *)argv + first, (size_t)(argc - first), sys->column_path,
+                       run_name, &cpar, &cal, &chart, &err);
+    } else if (is_mccabe) {
         if (first < argc)
             return cli_usage_error("unexpected argument '%s' (plot mccabe takes options only)",
                                    argv[first]);
@@ -165,7 +381,8 @@ int cmd_plot(int argc, char **argv, cli_ctx *ctx)
             return cli_usage_error("option '--residuals' needs '--points'");
         rc = model_chart(argv[first], points_path, &m, &pts, &doc, &err);
     }
-    const stagecal_plot_chart *draw = is_mccabe ? chart : stagecal_report_doc_chart(doc, resid);
+    const stagecal_plot_chart *draw =
+        k != KIND_MODEL ? chart : stagecal_report_doc_chart(doc, resid);
     if (rc == STAGECAL_OK) {
         stagecal_plot_params par = stagecal_plot_default_params();
         par.width = (size_t)width;
@@ -178,12 +395,16 @@ int cmd_plot(int argc, char **argv, cli_ctx *ctx)
         stagecal_report_doc_free(doc);
         stagecal_regress_data_free(&pts);
         stagecal_model_free(&m);
+        stagecal_calibration_free(&cal);
         return code;
     }
     rc = print_result(draw, kind, output, json);
+    if (is_run && !json)
+        cli_print_caution(); /* a chart a reviewer judges the evidence by */
     stagecal_plot_chart_free(chart);
     stagecal_report_doc_free(doc);
     stagecal_regress_data_free(&pts);
     stagecal_model_free(&m);
+    stagecal_calibration_free(&cal);
     return rc;
 }

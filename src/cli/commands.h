@@ -6,6 +6,7 @@
 #define STAGECAL_COMMANDS_H
 
 #include "cli.h"
+#include "stagecal/plot.h"
 
 int cmd_steps(int argc, char **argv, cli_ctx *ctx);
 int cmd_check(int argc, char **argv, cli_ctx *ctx);
@@ -20,5 +21,10 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx);
 int cmd_plot(int argc, char **argv, cli_ctx *ctx);
 int cmd_report(int argc, char **argv, cli_ctx *ctx);
 int cmd_probe(int argc, char **argv, cli_ctx *ctx);
+
+/* For `plot trend` and `plot trajectory` (cmd_plot.c), which run `trend` and `predict`
+ * with ctx->chart set: writes chart (freed here) to ctx->chart and says so. err: the
+ * builder's error when chart is NULL. An exit code. */
+int cli_chart_write(cli_ctx *ctx, stagecal_plot_chart *chart, int rc, stagecal_error *err);
 
 #endif
