@@ -104,6 +104,11 @@ unsigned long stagecal_plot_tint(int i)
     return mix_white(i, TINT_WEIGHT);
 }
 
+unsigned long stagecal_plot_tint_light(int i)
+{
+    return mix_white(i, LIGHT_WEIGHT);
+}
+
 const char *stagecal_plot_colour_name(int i)
 {
     return palette_names[wrap(i, STAGECAL_PLOT_NCOLOURS)];
@@ -144,6 +149,9 @@ typedef struct {
     size_t n_series;
     const char *y_label;
     double y_min, y_max, weight;
+    double x_min, x_max;
+    int is_inset;
+    stagecal_plot_box inset; /* fractions of the first panel's box */
 } panel_view;
 
 static size_t panel_views(const stagecal_plot_chart *c, panel_view *v)
@@ -155,6 +163,8 @@ static size_t panel_views(const stagecal_plot_chart *c, panel_view *v)
         v[0].y_min = c->y_min;
         v[0].y_max = c->y_max;
         v[0].weight = 1;
+        v[0].x_min = v[0].x_max = NAN;
+        v[0].is_inset = 0;
         return 1;
     }
     size_t n = c->n_panels < STAGECAL_PLOT_MAXPANELS ? c->n_panels : STAGECAL_PLOT_MAXPANELS;
@@ -165,6 +175,11 @@ static size_t panel_views(const stagecal_plot_chart *c, panel_view *v)
         v[p].y_min = c->panels[p].y_min;
         v[p].y_max = c->panels[p].y_max;
         v[p].weight = c->panels[p].weight > 0 ? c->panels[p].weight : 1;
+        v[p].x_min = c->panels[p].x_min;
+        v[p].x_max = c->panels[p].x_max;
+        const double *in = c->panels[p].inset;
+        v[p].is_inset = p > 0 && in[1] > in[0] && in[3] > in[2];
+        v[p].inset = (stagecal_plot_box){in[0], in[1], in[2], in[3]};
     }
     return n;
 }
@@ -475,7 +490,7 @@ static void map_point(const stagecal_plot_layout *l, size_t p, double x, double 
                       double *py)
 {
     const stagecal_plot_box *b = &l->box[p];
-    *px = b->x0 + (x - l->x_min) / (l->x_max - l->x_min) * (b->x1 - b->x0);
+    *px = b->x0 + (x - l->px_min[p]) / (l->px_max[p] - l->px_min[p]) * (b->x1 - b->x0);
     *py = b->y0 + (y - l->y_min[p]) / (l->y_max[p] - l->y_min[p]) * (b->y1 - b->y0);
 }
 
@@ -607,6 +622,25 @@ static stagecal_plot_box corner_box(const stagecal_plot_box *v, int corner, doub
     return b;
 }
 
+/* The boxes of inset panels, from the first panel's box, and their white grounds (the
+ * box with room for its tick labels and caption at 0.75 of the character height ht). */
+static void place_insets(const panel_view *pv, size_t np, double ht, double pw, double ph,
+                         stagecal_plot_layout *l)
+{
+    const stagecal_plot_box m = l->box[0];
+    for (size_t p = 0; p < np; p++) {
+        if (!pv[p].is_inset)
+            continue;
+        stagecal_plot_box b = {
+            m.x0 + pv[p].inset.x0 * (m.x1 - m.x0), m.x0 + pv[p].inset.x1 * (m.x1 - m.x0),
+            m.y0 + pv[p].inset.y0 * (m.y1 - m.y0), m.y0 + pv[p].inset.y1 * (m.y1 - m.y0)};
+        /* room: 4 characters of tick labels on the left, 2 lines below, the caption above */
+        double cw = 0.75 * ht / pw, ch = 0.75 * ht / ph;
+        l->box[p] = (stagecal_plot_box){b.x0 + 4.5 * cw, b.x1, b.y0 + 2.2 * ch, b.y1 - 2.0 * ch};
+        l->ground[p] = b;
+    }
+}
+
 /* Computes boxes, ranges and the legend's place (before anything is drawn). ht: character
  * height [mm]; pw, ph: page size [mm]. */
 static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size_t np, double ht,
@@ -614,19 +648,33 @@ static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size
 {
     memset(l, 0, sizeof *l);
     l->n_panels = np;
-    axis_range(pv, np, 0, c->x_min, c->x_max, &l->x_min, &l->x_max);
+    /* stacked panels share x; insets have their own */
+    panel_view stacked[STAGECAL_PLOT_MAXPANELS];
+    size_t ns = 0;
     for (size_t p = 0; p < np; p++)
+        if (!pv[p].is_inset)
+            stacked[ns++] = pv[p];
+    axis_range(stacked, ns, 0, c->x_min, c->x_max, &l->x_min, &l->x_max);
+    for (size_t p = 0; p < np; p++) {
+        l->px_min[p] = l->x_min;
+        l->px_max[p] = l->x_max;
+        if (pv[p].is_inset)
+            axis_range(&pv[p], 1, 0, pv[p].x_min, pv[p].x_max, &l->px_min[p], &l->px_max[p]);
         axis_range(&pv[p], 1, 1, pv[p].y_min, pv[p].y_max, &l->y_min[p], &l->y_max[p]);
+    }
     double ml = 7.0 * ht / pw, mr = 2.5 * ht / pw, mb = 4.5 * ht / ph, mt = 3.2 * ht / ph,
            gap = 1.0 * ht / ph;
-    double wsum = 0, y = 1 - mt, avail = 1 - mt - mb - gap * (double)(np - 1);
+    double wsum = 0, y = 1 - mt, avail = 1 - mt - mb - gap * (double)(ns - 1);
     for (size_t p = 0; p < np; p++)
-        wsum += pv[p].weight;
+        wsum += pv[p].is_inset ? 0 : pv[p].weight;
     for (size_t p = 0; p < np; p++) {
+        if (pv[p].is_inset)
+            continue;
         double h = avail * pv[p].weight / wsum;
         l->box[p] = (stagecal_plot_box){ml, 1 - mr, y - h, y};
         y -= h + gap;
     }
+    place_insets(pv, np, ht, pw, ph, l);
     l->marker_w = ht / pw; /* a marker glyph is about one character high and wide */
     l->marker_h = ht / ph;
     size_t maxchars, n = c->legend ? legend_entries(pv, np, &maxchars) : 0;
@@ -634,13 +682,13 @@ static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size
         return;
     l->has_legend = 1;
     /* the legend's size, from PLplot's layout rules: n rows of LEG_TEXT_SPACING character
-     * heights, and the sample, the offset and the text. The text: at most 0.68 character
-     * heights a character with cairo, 0.76 with the svg driver (measured with the text at
-     * 0.9 of the chart's character height on labels of 5 to 45 characters: 0.654 and 0.750;
-     * it is drawn at LEG_TEXT_SCALE), plus 2.6 of margins */
-    double tw = ht * (2.6 + (svg ? 0.76 : 0.68) * (double)maxchars) / pw;
+     * heights, and the sample, the offset and the text. The text: at most 0.58 character
+     * heights a character with cairo, 0.65 with the svg driver (measured with the text at
+     * 0.9 of the chart's character height on labels of 5 to 45 characters: 0.654 and 0.750,
+     * so 0.545 and 0.625 at LEG_TEXT_SCALE = 0.75), plus 2.6 of margins */
+    double tw = ht * (2.6 + (svg ? 0.65 : 0.58) * (double)maxchars) / pw;
     double h = ht * (LEG_TEXT_SPACING * (double)n + 0.6) / ph;
-    if (np == 1) {
+    if (ns == 1) {
         for (int k = 0; k < 4; k++) {
             int corner = (c->legend_pos + k) & 3;
             double w = LEG_PLOT_WIDTH * (l->box[0].x1 - l->box[0].x0) + tw;
@@ -648,6 +696,9 @@ static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size
             int hit = 0;
             for (size_t i = 0; i < pv[0].n_series && !hit; i++)
                 hit = series_hits(l, 0, &pv[0].series[i], &b);
+            for (size_t p = 1; p < np && !hit; p++) /* an inset is taken space */
+                hit = pv[p].is_inset && l->ground[p].x1 >= b.x0 && l->ground[p].x0 <= b.x1 &&
+                      l->ground[p].y1 >= b.y0 && l->ground[p].y0 <= b.y1;
             if (!hit) {
                 l->legend_inside = 1;
                 l->legend_corner = corner;
@@ -659,7 +710,7 @@ static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size
     /* outside. One panel: on the right of the box, in a region of its own; stacked panels:
      * below the x axis label, in as many columns as fit (they need the width) */
     l->legend_inside = 0;
-    if (np > 1) {
+    if (ns > 1) {
         double rx0 = l->box[0].x0, rx1 = 0.99, rw = rx1 - rx0;
         size_t ncol = (size_t)floor(rw / (LEG_PLOT_WIDTH * rw + tw + 1.0 * ht / pw));
         ncol = ncol < 1 ? 1 : ncol > n ? n : ncol;
@@ -672,11 +723,16 @@ static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size
         l->legend_est = (stagecal_plot_box){rx0, rx0 + (double)ncol * (LEG_PLOT_WIDTH * rw + tw),
                                             0.005, 0.005 + lh};
         /* lift the boxes: squeeze their heights into what is left above the legend */
-        double top = l->box[0].y1, bottom = l->box[np - 1].y0, nb = bottom + lift;
+        double top = l->box[0].y1, bottom = 1, nb;
+        for (size_t p = 0; p < np; p++)
+            if (!pv[p].is_inset)
+                bottom = fmin(bottom, l->box[p].y0);
+        nb = bottom + lift;
         for (size_t p = 0; p < np; p++) {
             l->box[p].y0 = nb + (l->box[p].y0 - bottom) * (top - nb) / (top - bottom);
             l->box[p].y1 = nb + (l->box[p].y1 - bottom) * (top - nb) / (top - bottom);
         }
+        place_insets(pv, np, ht, pw, ph, l);
         return;
     }
     double x1 = 0.985 - tw / (1 - LEG_PLOT_WIDTH);
@@ -684,7 +740,8 @@ static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size
         x1 = l->box[0].x0 + 0.3;
     for (size_t p = 0; p < np; p++)
         l->box[p].x1 = x1;
-    l->legend_region = (stagecal_plot_box){x1 + 0.01, 0.995, l->box[np - 1].y0, l->box[0].y1};
+    place_insets(pv, np, ht, pw, ph, l);
+    l->legend_region = (stagecal_plot_box){x1 + 0.01, 0.995, l->box[0].y0, l->box[0].y1};
     double rw = l->legend_region.x1 - l->legend_region.x0;
     l->legend_est =
         (stagecal_plot_box){l->legend_region.x0, l->legend_region.x0 + LEG_PLOT_WIDTH * rw + tw,
@@ -873,12 +930,28 @@ static void render(const stagecal_plot_chart *c, const prepared *pr, const char 
     plschr(0.0, chr);
     plgchr(&def, &ht);
     plan_layout(c, pr->pv, pr->np, ht, sx1 - sx0, sy1 - sy0, fmt_svg, lay);
+    size_t last = 0; /* the lowest stacked panel carries the x axis label */
+    for (size_t p = 0; p < pr->np; p++)
+        if (!pr->pv[p].is_inset)
+            last = p;
     for (size_t p = 0; p < pr->np; p++) {
         const stagecal_plot_box *b = &lay->box[p];
+        const int inset = pr->pv[p].is_inset;
         double y0 = lay->y_min[p], y1 = lay->y_max[p];
-        int bottom = p + 1 == pr->np;
+        int bottom = p == last;
         plvpor(b->x0, b->x1, b->y0, b->y1);
-        plwind(lay->x_min, lay->x_max, y0, y1);
+        plwind(lay->px_min[p], lay->px_max[p], y0, y1);
+        if (inset) { /* a white ground over the panel below (with its labels), smaller text */
+            const stagecal_plot_box *g = &lay->ground[p];
+            static const PLFLT wx[4] = {0, 1, 1, 0}, wy[4] = {0, 0, 1, 1};
+            plvpor(g->x0, g->x1, g->y0, g->y1);
+            plwind(0, 1, 0, 1);
+            plcol0(COL_PAGE);
+            plfill(4, wx, wy);
+            plvpor(b->x0, b->x1, b->y0, b->y1);
+            plwind(lay->px_min[p], lay->px_max[p], y0, y1);
+            plschr(0.0, 0.75 * chr);
+        }
         if (c->x_time)
             pltimefmt(time_format(lay->x_max - lay->x_min));
         plcol0(COL_GRID);
@@ -893,6 +966,12 @@ static void render(const stagecal_plot_chart *c, const prepared *pr, const char 
                     draw_series(&pr->pv[p].series[i], pr->xs, pr->ys, pr->zs, chr, y0, y1);
         plcol0(COL_AXIS);
         const char *xo = c->x_time ? (bottom ? "bcdnst" : "bcdst") : (bottom ? "bcnst" : "bcst");
+        if (inset) {
+            plbox("bcnst", 0, 0, "bcnstv", 0, 0);
+            plmtex("t", 0.8, 0.5, 0.5, pr->yl[p]);
+            plschr(0.0, chr);
+            continue;
+        }
         plbox(xo, 0, 0, "bcnstv", 0, 0);
         plmtex("l", 5.6, 0.5, 0.5, pr->yl[p]);
         if (bottom)

@@ -117,9 +117,20 @@ void plot_fig_panel(plot_fig *f, const char *y_label, double weight, double y_lo
     f->panel_first[f->n_panels] = f->c->n_series;
     f->panel_label[f->n_panels] = plot_str(f, y_label);
     f->panel_weight[f->n_panels] = weight;
+    f->panel_xlo[f->n_panels] = f->panel_xhi[f->n_panels] = NAN;
+    memset(f->panel_inset[f->n_panels], 0, sizeof f->panel_inset[0]);
     f->panel_lo[f->n_panels] = y_lo;
     f->panel_hi[f->n_panels] = y_hi;
     f->n_panels++;
+}
+
+void plot_fig_inset(plot_fig *f, double x_lo, double x_hi, const double box[4])
+{
+    if (f->n_panels == 0)
+        return;
+    f->panel_xlo[f->n_panels - 1] = x_lo;
+    f->panel_xhi[f->n_panels - 1] = x_hi;
+    memcpy(f->panel_inset[f->n_panels - 1], box, sizeof f->panel_inset[0]);
 }
 
 int plot_fig_close(plot_fig *f, stagecal_plot_chart **out, stagecal_error *err)
@@ -132,6 +143,9 @@ int plot_fig_close(plot_fig *f, stagecal_plot_chart **out, stagecal_error *err)
             p[k].y_min = f->panel_lo[k];
             p[k].y_max = f->panel_hi[k];
             p[k].weight = f->panel_weight[k];
+            p[k].x_min = f->panel_xlo[k];
+            p[k].x_max = f->panel_xhi[k];
+            memcpy(p[k].inset, f->panel_inset[k], sizeof p[k].inset);
             p[k].series = f->s + f->panel_first[k];
             p[k].n_series = end - f->panel_first[k];
         }

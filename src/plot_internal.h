@@ -29,6 +29,8 @@ typedef struct {
     const char *panel_label[STAGECAL_PLOT_MAXPANELS]; /* their y labels (arena copies) */
     double panel_weight[STAGECAL_PLOT_MAXPANELS];
     double panel_lo[STAGECAL_PLOT_MAXPANELS], panel_hi[STAGECAL_PLOT_MAXPANELS]; /* y range */
+    double panel_xlo[STAGECAL_PLOT_MAXPANELS], panel_xhi[STAGECAL_PLOT_MAXPANELS];
+    double panel_inset[STAGECAL_PLOT_MAXPANELS][4];
 } plot_fig;
 
 void *plot_alloc(plot_fig *f, size_t bytes);
@@ -42,6 +44,9 @@ stagecal_plot_series *plot_fig_add(plot_fig *f, stagecal_plot_kind kind, const c
                                    int colour, int line, int marker);
 /* Starts a panel (at most STAGECAL_PLOT_MAXPANELS) with its y range (NAN: from the data). */
 void plot_fig_panel(plot_fig *f, const char *y_label, double weight, double y_lo, double y_hi);
+/* Makes the current panel an inset over the first at box (fractions of its plot box) with
+ * its own x range. */
+void plot_fig_inset(plot_fig *f, double x_lo, double x_hi, const double box[4]);
 int plot_fig_close(plot_fig *f, stagecal_plot_chart **out, stagecal_error *err);
 void plot_fig_labels(plot_fig *f, const char *title, const char *xl, const char *yl);
 

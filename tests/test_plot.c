@@ -104,9 +104,10 @@ static size_t expected_colours(const stagecal_plot_chart *c, unsigned long *out,
 {
     size_t n = 0;
     for (size_t i = 0; i < c->n_series; i++) {
-        unsigned long col = c->series[i].kind == STAGECAL_PLOT_BAND
-                                ? stagecal_plot_tint(c->series[i].colour)
-                                : stagecal_plot_colour(c->series[i].colour);
+        const stagecal_plot_series *s = &c->series[i];
+        unsigned long col = s->kind != STAGECAL_PLOT_BAND ? stagecal_plot_colour(s->colour)
+                            : s->line == 1                ? stagecal_plot_tint_light(s->colour)
+                                                          : stagecal_plot_tint(s->colour);
         if (!has_colour(out, n, col) && n < cap)
             out[n++] = col;
     }
@@ -459,10 +460,34 @@ static void plot_fit_chart_series(void **state)
     stagecal_plot_chart *c = NULL;
     stagecal_error err;
     assert_int_equal(stagecal_plot_fit(&d, &c, &err), STAGECAL_OK);
-    /* prediction band, confidence band, fit, envelope, run A, run B */
-    assert_int_equal(c->n_series, 6);
+    /* inside the envelope [0.5, 5]: prediction band, confidence band, fit; beyond it the
+     * same three (lighter bands, dashed line); envelope, run A, run B. 8 colours: the two
+     * parts of the fitted line share theirs */
+    assert_int_equal(c->n_series, 9);
     assert_non_null(strstr(c->x_label, "total reflux drawn at the right edge"));
-    check_svg_series(c, "fit", 6);
+    check_svg_series(c, "fit", 8);
+    /* the extrapolated part starts exactly at the envelope's edge, where the fitted part
+     * ends, on the curve: the grid (step 0.263) crosses 5.0 between points, so the edge
+     * point is interpolated; the chord of 8(1 − e^(−0.6x)) departs from the curve by at
+     * most max|f''|·h²/8 = 2.88·e^(−2.82)·0.263²/8 < 2e-3 there (chord error bound) */
+    const stagecal_plot_series *fin = find_series(c, "fitted correlation"),
+                               *fex = find_series(c, "extrapolated");
+    assert_non_null(fin);
+    assert_non_null(fex);
+    assert_true(fex->line != fin->line); /* another line style */
+    assert_true(fin->x[0] == 0.5 && fin->x[fin->n - 1] == 5.0);
+    size_t right = 0;
+    while (right < fex->n && !isnan(fex->x[right]))
+        right++;
+    assert_true(right > 1 && right + 1 < fex->n); /* a left part, a NaN, a right part */
+    assert_true(fex->x[right - 1] == 0.5);        /* the left part ends at the edge */
+    assert_true(fex->x[right + 1] == 5.0);        /* the right part starts at the edge */
+    assert_true(fex->y[right + 1] == fin->y[fin->n - 1]);
+    assert_abs(fex->y[right + 1], 8 * (1 - exp(-3.0)), 2e-3, "edge point on the curve");
+    for (size_t k = right + 1; k < fex->n; k++)
+        assert_true(fex->x[k] >= 5.0);
+    for (size_t k = 0; k < fin->n; k++)
+        assert_true(fin->x[k] >= 0.5 && fin->x[k] <= 5.0);
     assert_int_equal(stagecal_plot_write(c, OUTDIR "/fit.png", NULL, &err), STAGECAL_OK);
     stagecal_plot_chart_free(c);
 

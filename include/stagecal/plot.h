@@ -38,6 +38,7 @@
 #include "stagecal/model.h"
 #include "stagecal/runlog.h"
 #include "stagecal/stages.h"
+#include "stagecal/trend.h"
 #include "stagecal/vle.h"
 
 #ifdef __cplusplus
@@ -88,6 +89,11 @@ typedef struct {
     double weight;                      /* relative height (0 → 1) */
     const stagecal_plot_series *series; /* n_series series of this panel */
     size_t n_series;
+    double x_min, x_max; /* an inset's own x range (NAN: from its data); stacked panels
+                            share the chart's */
+    double inset[4];     /* x0, x1, y0, y1 as fractions of the first panel's plot box:
+                            x1 > x0 draws this panel as an inset there (white background,
+                            its y_label as caption), on top of the first panel; 0: stacked */
 } stagecal_plot_panel;
 
 /* A chart: title, axes and series. Fields marked "caller" are borrowed. */
@@ -122,9 +128,13 @@ typedef struct {
 } stagecal_plot_box;
 
 typedef struct {
-    size_t n_panels;                                /* plot boxes drawn (1 without panels) */
-    stagecal_plot_box box[STAGECAL_PLOT_MAXPANELS]; /* plot boxes, top first */
-    double x_min, x_max;                            /* the x range (world units) */
+    size_t n_panels;                                   /* plot boxes drawn (1 without panels) */
+    stagecal_plot_box box[STAGECAL_PLOT_MAXPANELS];    /* plot boxes, top first */
+    stagecal_plot_box ground[STAGECAL_PLOT_MAXPANELS]; /* an inset's white ground (its box
+                                                          with its labels); 0 otherwise */
+    double x_min, x_max;                               /* the x range (world units) */
+    double px_min[STAGECAL_PLOT_MAXPANELS], px_max[STAGECAL_PLOT_MAXPANELS]; /* per panel
+                                                       (an inset's own; else x_min, x_max) */
     double y_min[STAGECAL_PLOT_MAXPANELS], y_max[STAGECAL_PLOT_MAXPANELS];
     int has_legend;    /* 1: a legend was drawn */
     int legend_inside; /* 1: in a corner of a plot box */
@@ -156,6 +166,7 @@ stagecal_plot_params stagecal_plot_default_params(void);
 /* Palette colour i (0..7) as 0xRRGGBB, and its band tint. Out-of-range i wraps. */
 unsigned long stagecal_plot_colour(int i);
 unsigned long stagecal_plot_tint(int i);
+unsigned long stagecal_plot_tint_light(int i); /* the lighter tint (extrapolated parts) */
 /* "blue", "vermillion", … (Okabe–Ito names) for colour i (wraps). */
 const char *stagecal_plot_colour_name(int i);
 
@@ -215,6 +226,13 @@ typedef struct {
     size_t curve_points; /* points per curve; 0 → 201 */
 } stagecal_plot_mccabe_data;
 
+/* From STAGECAL_PLOT_MCCABE_INSET_STAGES profile points on, the top quarter of the steps
+ * (at least 4) is drawn again, zoomed, in an inset in the lower right of the diagram (below
+ * the diagonal, where it is empty), and a dotted box on the diagram marks the zoomed region:
+ * at 30 stages the top steps are otherwise a smudge in the corner. The chart then has two
+ * panels (the diagram, the inset). The pinch is a large ring drawn last, so that it shows
+ * around the pot marker when the pot sits at the pinch. */
+#define STAGECAL_PLOT_MCCABE_INSET_STAGES 12
 int stagecal_plot_mccabe(const stagecal_plot_mccabe_data *d, stagecal_plot_chart **out,
                          stagecal_error *err);
 
@@ -250,6 +268,27 @@ typedef struct {
 
 int stagecal_plot_fit(const stagecal_plot_fit_data *d, stagecal_plot_chart **out,
                       stagecal_error *err);
+
+/* A curve (and its bands) split at the fitted envelope [lo, hi] (NAN: open on that side):
+ * in_* holds the points inside, out_* those beyond, the parts left and right of the
+ * envelope separated by a NaN. Where the grid crosses an edge the curves are interpolated
+ * linearly onto the edge, and that point ends the inside part and starts (or ends) the
+ * outside part: the extrapolated part starts exactly at the envelope's edge. The fit
+ * chart draws in_* as the fit and out_* dashed with lighter bands. */
+#define STAGECAL_PLOT_SPLIT_MAX 8
+typedef struct {
+    size_t k; /* curves */
+    double *in_x, *in_y[STAGECAL_PLOT_SPLIT_MAX];
+    size_t n_in;
+    double *out_x, *out_y[STAGECAL_PLOT_SPLIT_MAX];
+    size_t n_out;
+} stagecal_plot_split;
+
+/* grid: n ascending abscissae; ys: k ≤ STAGECAL_PLOT_SPLIT_MAX arrays of n values (a NULL
+ * array gives NaN). EINVAL, ENOMEM. Free with stagecal_plot_split_free. */
+int stagecal_plot_split_envelope(const double *grid, const double *const *ys, size_t k, size_t n,
+                                 double lo, double hi, stagecal_plot_split *sp);
+void stagecal_plot_split_free(stagecal_plot_split *sp);
 
 /* Residuals (observed − fitted stages) against the fitted value (time_s NULL) or against
  * time (time_s given: seconds since 1970 UTC, dates on the axis), by group, with the
@@ -311,6 +350,37 @@ typedef struct {
 
 int stagecal_plot_batch(const stagecal_plot_batch_data *d, stagecal_plot_chart **out,
                         stagecal_error *err);
+
+/* A column's fits over time (`stagecal trend`'s analysis, trend.h): each fit at the
+ * reference condition with ± 2 se bars, each segment's trend line with its band (between
+ * its first and last fit), the current segment's line beyond its last fit as the forecast
+ * (extrapolated: dashed, light band, from exactly the last fit's time), EWMA alarms
+ * (rings), the requirement, the forecast crossing with its band, and the events (repack,
+ * maintenance, notes) as vertical lines with their kind. Dates on the x axis. */
+typedef struct {
+    const stagecal_trend_history *h;    /* stagecal_trend_analyse's result */
+    const stagecal_trend_event *events; /* may be NULL */
+    size_t n_events;
+    const char *column_id; /* events of other columns are left out; NULL: all drawn */
+    const char *y_label;   /* NULL: "stages incl. pot at the reference condition [-]" */
+    const char *title;     /* NULL: "Column <id>: stages over time, trend and forecast" */
+} stagecal_plot_trend_history_data;
+
+int stagecal_plot_trend_history(const stagecal_plot_trend_history_data *d,
+                                stagecal_plot_chart **out, stagecal_error *err);
+
+/* A predicted batch (batch.h's result) in three panels over batch time [h]: distillate
+ * xD and pot xB, pot holdup W [kmol], reflux ratio R. The cuts are stripes in alternating
+ * tints with their names; with a band, each cut's end time band is shaded. Rows outside
+ * the model's fitted envelope (row.outside) are drawn dashed: an extrapolation. */
+typedef struct {
+    const stagecal_batch_result *res;
+    const stagecal_batch_band *band; /* may be NULL */
+    const char *title;               /* NULL: "Batch prediction: compositions and cuts" */
+} stagecal_plot_trajectory_data;
+
+int stagecal_plot_trajectory(const stagecal_plot_trajectory_data *d, stagecal_plot_chart **out,
+                             stagecal_error *err);
 
 /* The run chart: the raw runs against time in five stacked panels — distillate xD, pot
  * xB, pot holdup W, reflux ratio R, stage counts — with the quasi-steady windows shaded in

@@ -171,7 +171,7 @@ static int forward(int argc, char **argv, cli_ctx *ctx)
 {
     const int trend = strcmp(argv[1], "trend") == 0;
     const char *out = NULL;
-    long width = 800, height = 560;
+    long width = 800, height = trend ? 560 : 720;
     char **av = calloc((size_t)argc + 1, sizeof *av);
     int ac = 0, rc;
     if (!av) {

@@ -683,6 +683,13 @@ static int run(const struct request *q, cli_ctx *ctx)
         cli_warn("%s", res.warnings[i]);
     if (q->out && (rc = write_csv(q->out, &res)))
         goto done;
+    if (ctx->chart) { /* `plot trajectory`: the chart of this batch */
+        stagecal_plot_chart *chart = NULL;
+        stagecal_plot_trajectory_data td = {&res, have_band ? &band : NULL, NULL};
+        int brc = stagecal_plot_trajectory(&td, &chart, &err);
+        if ((rc = cli_chart_write(ctx, chart, brc, &err)))
+            goto done;
+    }
     if (ctx->json) {
         json_t *doc = result_json(&pb, &res, &band, have_band, q->model, latent_source,
                                   (unsigned long)q->seed, dv);

@@ -504,8 +504,9 @@ static void print_text(const struct column *cols, size_t ncol, const stagecal_tr
 
 /* Loads and analyses every column, warns about scatter, prints. Returns an exit code. */
 static int run(struct column *cols, size_t ncol, const char *events_path,
-               const struct reference *ref, const stagecal_trend_params *par, int json)
+               const struct reference *ref, const stagecal_trend_params *par, cli_ctx *ctx)
 {
+    const int json = ctx->json;
     stagecal_error err;
     stagecal_error_clear(&err);
     stagecal_trend_event *ev = NULL;
@@ -532,6 +533,16 @@ static int run(struct column *cols, size_t ncol, const char *events_path,
         rc = print_json(cols, ncol, ev, ref, par);
     else if (rc == 0)
         print_text(cols, ncol, ev, ref, par);
+    if (rc == 0 && ctx->chart) { /* `plot trend`: the chart of the one column */
+        stagecal_plot_chart *chart = NULL;
+        char yl[160], fl[48] = "";
+        if (isfinite(ref->fload))
+            snprintf(fl, sizeof fl, ", F = %.3g Pa^0.5", ref->fload);
+        snprintf(yl, sizeof yl, "stages incl. pot at R = %g%s [-]", ref->reflux, fl);
+        stagecal_plot_trend_history_data td = {&cols[0].h, ev, nev, cols[0].id, yl, NULL};
+        int brc = stagecal_plot_trend_history(&td, &chart, &err);
+        rc = cli_chart_write(ctx, chart, brc, &err);
+    }
     free(ev);
     return rc;
 }
@@ -577,6 +588,8 @@ int cmd_trend(int argc, char **argv, cli_ctx *ctx)
         return cli_usage_error("a column id is required (see 'stagecal trend --help')");
     if ((rc = cli_require("reflux", ref.reflux)))
         return rc;
+    if (ctx->chart && ncol != 1)
+        return cli_usage_error("'plot trend' draws one column (got %zu)", ncol);
     for (size_t i = 0; i < ncol; i++)
         if (!stagecal_convention_id_valid(argv[first + (int)i]))
             return cli_usage_error("'%s' is not a column id (expected %s)", argv[first + (int)i],
@@ -588,7 +601,7 @@ int cmd_trend(int argc, char **argv, cli_ctx *ctx)
     }
     for (size_t i = 0; i < ncol; i++)
         cols[i].id = argv[first + (int)i];
-    rc = run(cols, ncol, events_path, &ref, &par, ctx->json);
+    rc = run(cols, ncol, events_path, &ref, &par, ctx);
     for (size_t i = 0; i < ncol; i++) {
         stagecal_trend_history_free(&cols[i].h);
         free(cols[i].pts);
