@@ -299,8 +299,9 @@ static void report_from_model_fills_sections(void **state)
     assert_int_equal(rc, STAGECAL_OK);
     const stagecal_report *rep = stagecal_report_doc_content(doc);
     assert_int_equal(rep->n_figures, 2); /* stages against R, residuals */
-    /* prediction band, confidence band, fit, envelope, points */
-    assert_int_equal(stagecal_report_doc_chart(doc, 0)->n_series, 5);
+    /* prediction band, confidence band, fit inside the envelope, the same three beyond it
+     * (extrapolated: lighter bands, dashed), envelope, points */
+    assert_int_equal(stagecal_report_doc_chart(doc, 0)->n_series, 8);
     assert_null(stagecal_report_doc_chart(doc, 2));
     /* one point (R = 9) lies above the envelope's r_max = 6 */
     assert_int_equal(rep->n_warnings, 1);
