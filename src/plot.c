@@ -1021,7 +1021,8 @@ static int chart_complete(const char *buf, size_t n, stagecal_plot_format fmt)
 
 /* The svg driver writes every character of a text as a numeric reference (&#x41;): turn
  * them into UTF-8 so that the labels read as text (search, copy, other tools), keeping
- * the five XML specials as references. In place: UTF-8 is never longer than its
+ * <, >, & and " as references (the driver writes text only as element content, where an
+ * apostrophe needs no escape). In place: UTF-8 is never longer than its
  * reference. Returns the new length. */
 static size_t svg_plain_text(char *buf, size_t n)
 {
@@ -1035,7 +1036,7 @@ static size_t svg_plain_text(char *buf, size_t n)
                                                    ? buf[k] - '0'
                                                    : (tolower((unsigned char)buf[k]) - 'a' + 10)),
                 k++;
-            int special = cp == '<' || cp == '>' || cp == '&' || cp == '"' || cp == '\'';
+            int special = cp == '<' || cp == '>' || cp == '&' || cp == '"';
             if (k < n && buf[k] == ';' && k > r + 3 && cp >= 0x20 && cp <= 0x10FFFF && !special &&
                 !(cp >= 0xD800 && cp <= 0xDFFF)) {
                 if (cp < 0x80) {

@@ -553,6 +553,28 @@ static void plot_resid_trend_batch_series(void **state)
     stagecal_plot_chart_free(c);
 }
 
+/* SVG labels are text: <text> elements whose content is plain UTF-8 (the svg device's
+ * &#x..; references decoded), with <, & (and ") still escaped so the file stays XML. */
+static void plot_svg_labels_are_text(void **state)
+{
+    (void)state;
+    stagecal_plot_series s[3];
+    stagecal_plot_chart c = small_chart(s);
+    c.title = "stages < 30 & Smoker's \xce\xb1 = 2.5";
+    char *svg = NULL;
+    size_t len = 0;
+    stagecal_error err;
+    assert_int_equal(stagecal_plot_svg(&c, NULL, &svg, &len, &err), STAGECAL_OK);
+    assert_int_equal(strlen(svg), len);
+    assert_non_null(strstr(svg, "<text"));
+    assert_non_null(strstr(svg, ">stages &#x3c; 30 &#x26; Smoker's \xce\xb1 = 2.5<"));
+    assert_non_null(strstr(svg, ">reflux ratio R [-]<"));
+    assert_non_null(strstr(svg, ">fit ## 1<") ? NULL : strstr(svg, ">fit # 1<"));
+    assert_null(strstr(svg, "&#x73;")); /* no letter left as a reference */
+    assert_null(strstr(svg, "< 30"));   /* no raw < in content */
+    free(svg);
+}
+
 /* ---- the run chart ---------------------------------------------------------------- */
 
 #define DEMO_COLUMN STAGECAL_DATASETS "/columns/demo_benzene_toluene.json"
@@ -835,6 +857,7 @@ int main(void)
         cmocka_unit_test(plot_mccabe_series_and_pinch),
         cmocka_unit_test(plot_fit_chart_series),
         cmocka_unit_test(plot_resid_trend_batch_series),
+        cmocka_unit_test(plot_svg_labels_are_text),
         cmocka_unit_test(plot_run_windows_are_the_evidence),
         cmocka_unit_test(plot_run_marks_follow_the_analysis),
         cmocka_unit_test(plot_legend_keeps_off_data),
