@@ -1,8 +1,9 @@
 /*
  * plot_trend.c — the trend chart of a column's fits over time
- * (stagecal_plot_trend_history) and the batch trajectory chart (stagecal_plot_trajectory),
- * both from their modules' results (trend.h, batch.h), nothing recomputed but the
- * lines' values at the chart's abscissae (stagecal_trend_line_eval).
+ * (stagecal_plot_trend_history), the batch trajectory chart (stagecal_plot_trajectory) and
+ * the self-starting EWMA/CUSUM chart of runs (stagecal_plot_selfstart), all from their
+ * modules' results (trend.h, batch.h, chart.h), nothing recomputed but the trend lines'
+ * values at the chart's abscissae (stagecal_trend_line_eval).
  *
  * Extrapolated parts are drawn apart: the trend line beyond the last fit of its segment
  * (the forecast) dashed with a light band, starting exactly at that last fit's time; the
@@ -238,5 +239,82 @@ int stagecal_plot_trajectory(const stagecal_plot_trajectory_data *d, stagecal_pl
     free(t);
     free(a);
     free(b);
+    return plot_fig_close(&f, out, err);
+}
+
+/* ---- self-starting control chart (chart.h) ------------------------------------------- */
+
+int stagecal_plot_selfstart(const stagecal_plot_selfstart_data *d, stagecal_plot_chart **out,
+                            stagecal_error *err)
+{
+    if (!d || !out || !d->pts || !d->chart || d->n == 0)
+        return error_set(err, STAGECAL_EINVAL, "control chart: no points to draw");
+    *out = NULL;
+    const size_t n = d->n;
+    const stagecal_chart_params par = d->par;
+    plot_fig f;
+    int rc;
+    if ((rc = plot_fig_open(&f, err)))
+        return rc;
+    plot_fig_labels(&f, d->title ? d->title : "Runs over time: self-starting EWMA and CUSUM charts",
+                    "date of the run [UTC]", NULL);
+    f.c->x_time = 1;
+    double *x = malloc(n * sizeof *x), *y = malloc(n * sizeof *y), *lo = malloc(n * sizeof *lo),
+           *hi = malloc(n * sizeof *hi), *ax = malloc(n * sizeof *ax), *ay = malloc(n * sizeof *ay);
+    if (!x || !y || !lo || !hi || !ax || !ay) {
+        f.oom = 1;
+        goto done;
+    }
+    double t0 = d->pts[0].t_s, t1 = d->pts[0].t_s;
+    size_t na = 0;
+    for (size_t i = 0; i < n; i++) {
+        x[i] = d->pts[i].t_s;
+        y[i] = d->pts[i].value;
+        lo[i] = y[i] - 2 * d->pts[i].se;
+        hi[i] = y[i] + 2 * d->pts[i].se;
+        t0 = fmin(t0, x[i]);
+        t1 = fmax(t1, x[i]);
+        if (d->chart[i].ewma_alarm || d->chart[i].cusum_alarm) {
+            ax[na] = x[i];
+            ay[na++] = y[i];
+        }
+    }
+    stagecal_plot_series *s;
+    plot_fig_panel(&f, d->y_label ? d->y_label : "stages incl. pot [-]", 1.4, NAN, NAN);
+    plot_fig_add(&f, STAGECAL_PLOT_ERRBAR, "run \xc2\xb1 2 se", x, lo, hi, n, 6, 0, 0);
+    plot_fig_add(&f, STAGECAL_PLOT_POINTS, "run at the condition", x, y, NULL, n, 6, 0, 0);
+    if (na && (s = plot_fig_add(&f, STAGECAL_PLOT_POINTS, "alarm (EWMA or CUSUM)", ax, ay, NULL, na,
+                                1, 0, 6)))
+        s->width = 2.2;
+    /* EWMA of the Q statistics with its limits; start-up points (no Q) are not drawn */
+    double limit = par.L * sqrt(par.lambda / (2 - par.lambda));
+    for (size_t i = 0; i < n; i++) {
+        y[i] = d->chart[i].started ? d->chart[i].ewma : NAN;
+        lo[i] = d->chart[i].started ? d->chart[i].cusum_hi : NAN;
+        hi[i] = d->chart[i].started ? -d->chart[i].cusum_lo : NAN;
+    }
+    double lx[5] = {t0, t1, NAN, t0, t1}, ly[5] = {-limit, -limit, NAN, limit, limit};
+    char lab[96];
+    plot_fig_panel(&f, "EWMA of Q [-]", 1, NAN, NAN);
+    snprintf(lab, sizeof lab, "EWMA limits \xc2\xb1%.3g (\xce\xbb = %.2g, L = %.4g)", limit,
+             par.lambda, par.L);
+    plot_fig_add(&f, STAGECAL_PLOT_LINE, lab, lx, ly, NULL, 5, 1, 1, 0);
+    plot_fig_add(&f, STAGECAL_PLOT_LINE, "EWMA", x, y, NULL, n, 0, 0, 0);
+    plot_fig_add(&f, STAGECAL_PLOT_POINTS, NULL, x, y, NULL, n, 0, 0, 0);
+    /* CUSUMs: the upper one above zero, the lower one drawn below it, against ±h */
+    double hy[5] = {-par.h, -par.h, NAN, par.h, par.h};
+    plot_fig_panel(&f, "CUSUM of Q [-]", 1, NAN, NAN);
+    snprintf(lab, sizeof lab, "CUSUM limits \xc2\xb1h = \xc2\xb1%.3g (k = %.2g)", par.h, par.k);
+    plot_fig_add(&f, STAGECAL_PLOT_LINE, lab, lx, hy, NULL, 5, 3, 3, 0);
+    plot_fig_add(&f, STAGECAL_PLOT_LINE, "upper CUSUM (gains)", x, lo, NULL, n, 2, 0, 0);
+    plot_fig_add(&f, STAGECAL_PLOT_LINE, "lower CUSUM (losses), drawn below 0", x, hi, NULL, n, 4,
+                 0, 0);
+done:
+    free(x);
+    free(y);
+    free(lo);
+    free(hi);
+    free(ax);
+    free(ay);
     return plot_fig_close(&f, out, err);
 }

@@ -14,10 +14,12 @@
 #include <gsl/gsl_rng.h>
 #include <math.h>
 #include <stdio.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "testutil.h"
 #include "stagecal/chart.h"
+#include "stagecal/plot.h"
 
 static int setup(void **state)
 {
@@ -142,13 +144,64 @@ static void test_loss_detected(void **state)
     assert_int_equal(stagecal_chart_selfstart(p, 30, &par, c, &na, NULL), STAGECAL_EINVAL);
 }
 
+/* The chart drawn from a self-starting run (stagecal_plot_selfstart) holds the chart's own
+ * numbers: the EWMA panel's line is out[i].ewma (not drawn for the two start-up points),
+ * the CUSUMs are cusum_hi and −cusum_lo, the EWMA limits are the asymptotic
+ * ±L·sqrt(λ/(2 − λ)) = ±2.962·sqrt(0.2/1.8) = ±0.98733 of the design (Lucas & Saccucci
+ * 1990), the CUSUM limits ±h = ±5, and the rings are the alarmed runs. */
+static void test_plot_holds_the_chart(void **state)
+{
+    (void)state;
+    stagecal_trend_point p[30];
+    stagecal_chart_point c[30];
+    size_t na;
+    for (int i = 0; i < 30; i++) {
+        double wiggle = ((i * 7) % 5 - 2) * 0.05;
+        p[i] = (stagecal_trend_point){1.7e9 + 86400.0 * i, 8 + wiggle - (i >= 15 ? 0.6 : 0), 0.1};
+    }
+    stagecal_chart_params par = stagecal_chart_default_params();
+    assert_int_equal(stagecal_chart_selfstart(p, 30, &par, c, &na, NULL), 0);
+    assert_true(na > 0);
+    stagecal_plot_selfstart_data d = {p, c, 30, par, NULL, NULL};
+    stagecal_plot_chart *ch = NULL;
+    stagecal_error err;
+    assert_int_equal(stagecal_plot_selfstart(&d, &ch, &err), STAGECAL_OK);
+    assert_int_equal(ch->n_panels, 3);
+    const stagecal_plot_panel *ew = &ch->panels[1], *cu = &ch->panels[2];
+    const stagecal_plot_series *lim = &ew->series[0], *line = &ew->series[1];
+    assert_true(fabs(lim->y[3] - 0.98733) < 1e-5); /* 2.962/3 to 5 digits */
+    assert_true(lim->y[0] == -lim->y[3]);
+    for (int i = 0; i < 30; i++) {
+        if (i < 2)
+            assert_true(isnan(line->y[i]));
+        else
+            assert_true(line->y[i] == c[i].ewma);
+        if (i >= 2) {
+            assert_true(cu->series[1].y[i] == c[i].cusum_hi);
+            assert_true(cu->series[2].y[i] == -c[i].cusum_lo);
+        }
+    }
+    assert_true(cu->series[0].y[3] == 5.0 && cu->series[0].y[0] == -5.0);
+    size_t rings = 0;
+    for (size_t k = 0; k < ch->panels[0].n_series; k++)
+        if (ch->panels[0].series[k].label &&
+            strcmp(ch->panels[0].series[k].label, "alarm (EWMA or CUSUM)") == 0)
+            rings = ch->panels[0].series[k].n;
+    assert_int_equal(rings, na);
+    stagecal_plot_params pp = stagecal_plot_default_params();
+    char *svg = NULL;
+    assert_int_equal(stagecal_plot_svg(ch, &pp, &svg, NULL, &err), STAGECAL_OK);
+    assert_non_null(strstr(svg, ">EWMA of Q [-]<"));
+    free(svg);
+    stagecal_plot_chart_free(ch);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
-        cmocka_unit_test(test_cusum_arl_siegmund),
-        cmocka_unit_test(test_q_exact),
-        cmocka_unit_test(test_arl0_small),
-        cmocka_unit_test(test_loss_detected),
+        cmocka_unit_test(test_cusum_arl_siegmund),   cmocka_unit_test(test_q_exact),
+        cmocka_unit_test(test_arl0_small),           cmocka_unit_test(test_loss_detected),
+        cmocka_unit_test(test_plot_holds_the_chart),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }

@@ -66,6 +66,8 @@ run plot-run "$S" plot run --column $COL $L/2025-03.csv --output "$work/runs.svg
 run plot-run-one "$S" plot run --column $COL $L/2025-03.csv --run K7-018 --output "$work/run.png"
 run plot-mccabe-30 "$S" plot mccabe --alpha 2.0 --xd 0.995 --reflux 6 --stages 30 -o "$work/d30.png"
 run plot-trend "$S" plot trend demo-bt-K-7 --fits "$work/fits" --events datasets/demo/events.csv --reflux 3 --f-factor 1.3 --require 7.5 --output "$work/trend.svg"
+run plot-history "$S" plot history --column $COL $L/2025-08.csv $L/2025-09.csv $L/2025-11.csv $L/2025-12.csv \
+    --events datasets/demo/events.csv --reflux 3 --f-factor 1.3 --output "$work/history.svg"
 run plot-trajectory "$S" plot trajectory --model "$m11" --charge 25 --xb0 0.5 --boilup 3.6 --xd-setpoint 0.95 --reflux-max 12 --cut pot-x=0.3 --cut pot-x=0.15 --samples 20 --output "$work/batch.png"
 run report "$S" report "$model" --points "$work/points.csv" --output "$work/r2.html"
 run report-condition "$S" report "$m11" --xd 0.95 --reflux 3 --output "$work/r3.html"

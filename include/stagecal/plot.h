@@ -33,6 +33,7 @@
 
 #include "stagecal/batch.h"
 #include "stagecal/calibrate.h"
+#include "stagecal/chart.h"
 #include "stagecal/error.h"
 #include "stagecal/evidence.h"
 #include "stagecal/model.h"
@@ -368,6 +369,23 @@ typedef struct {
 
 int stagecal_plot_trend_history(const stagecal_plot_trend_history_data *d,
                                 stagecal_plot_chart **out, stagecal_error *err);
+
+/* The self-starting EWMA and CUSUM charts of runs over time (chart.h, `stagecal history`):
+ * three panels over dates — each run's stage count at the condition with ± 2 se bars and
+ * the alarms ringed; the EWMA of the Q statistics with its asymptotic limits
+ * ±L·sqrt(λ/(2 − λ)); the upper CUSUM and the lower one drawn below zero against ±h. The
+ * first two points only start the estimates (no Q): they are not drawn on the charts. */
+typedef struct {
+    const stagecal_trend_point *pts;   /* n runs (time, stages, se), in time order */
+    const stagecal_chart_point *chart; /* n: stagecal_chart_selfstart's output */
+    size_t n;
+    stagecal_chart_params par; /* the design the chart ran with */
+    const char *y_label;       /* NULL: "stages incl. pot [-]" */
+    const char *title;
+} stagecal_plot_selfstart_data;
+
+int stagecal_plot_selfstart(const stagecal_plot_selfstart_data *d, stagecal_plot_chart **out,
+                            stagecal_error *err);
 
 /* A predicted batch (batch.h's result) in three panels over batch time [h]: distillate
  * xD and pot xB, pot holdup W [kmol], reflux ratio R. The cuts are stripes in alternating

@@ -554,6 +554,15 @@ int cmd_history(int argc, char **argv, cli_ctx *ctx)
         else
             print_text(&res, &o);
     }
+    if (rc == 0 && ctx->chart) { /* `plot history`: the runs' self-starting charts */
+        stagecal_plot_chart *chart = NULL;
+        stagecal_error err;
+        stagecal_error_clear(&err);
+        stagecal_plot_selfstart_data sd = {
+            res.chart_in, res.chart, res.n_chart, stagecal_chart_default_params(), NULL, NULL};
+        int brc = stagecal_plot_selfstart(&sd, &chart, &err);
+        rc = cli_chart_write(ctx, chart, brc, &err);
+    }
     stagecal_calibration_free(&res.cal);
     stagecal_history_free(&res.fit);
     free(res.pts);

@@ -7,6 +7,7 @@
  *   plot run         the raw runs of run logs against time: xD, xB, W, R and the stage
  *                    counts, windows shaded (the calibration chain's analysis and evidence)
  *   plot trend       `stagecal trend` with its chart (the options are trend's)
+ *   plot history     `stagecal history` with its self-starting EWMA/CUSUM chart
  *   plot trajectory  `stagecal predict` with its chart (the options are predict's)
  * The charts are built and drawn by the plot and report modules; trend and trajectory run
  * their commands with ctx->chart set, and those commands hand their results to the chart
@@ -37,6 +38,7 @@ static const struct cli_usage usage = {
     "                     [--warm-up TIME] [--min-window TIME] [--csv-dialect KIND]\n"
     "                     [--murphree E] --output FILE [--chart-width W] [--chart-height H]\n"
     "       stagecal plot trend <the options of 'stagecal trend'> --output FILE\n"
+    "       stagecal plot history <the options of 'stagecal history'> --output FILE\n"
     "       stagecal plot trajectory <the options of 'stagecal predict'> --output FILE\n",
     "Draws a chart; the format follows the extension of FILE: .png, .svg or .pdf (SVG\n"
     "labels are text).\n"
@@ -50,10 +52,11 @@ static const struct cli_usage usage = {
     "counts; the quasi-steady windows shaded, the samples' counts with bars, the\n"
     "windows' counts (what the fits use), censored readings, outliers and runs left\n"
     "out of the fit marked. The analysis is calibrate's, with the same settings.\n"
-    "trend, trajectory: run 'stagecal trend' or 'stagecal predict' with the options\n"
-    "given (the chart kind first) and draw their result: the stages over time with\n"
-    "trend lines, alarms and forecast, or the batch's pot and distillate compositions\n"
-    "and cuts over time. Parts outside the fitted envelope are dashed and lighter.\n",
+    "trend, history, trajectory: run 'stagecal trend', 'stagecal history' or 'stagecal\n"
+    "predict' with the options given (the chart kind first) and draw their result: the\n"
+    "fits over time with trend lines, alarms and forecast; the runs over time with the\n"
+    "self-starting EWMA and CUSUM charts; the batch's compositions and cuts over time.\n"
+    "Parts outside the fitted envelope are dashed and lighter.\n",
     "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal,\n"
     "73 output cannot be written.\n"};
 
@@ -169,7 +172,7 @@ int cli_chart_write(cli_ctx *ctx, stagecal_plot_chart *chart, int rc, stagecal_e
  * (--output/-o/--out FILE, --chart-width, --chart-height), which go into ctx. */
 static int forward(int argc, char **argv, cli_ctx *ctx)
 {
-    const int trend = strcmp(argv[1], "trend") == 0;
+    const int trend = strcmp(argv[1], "trend") == 0, history = strcmp(argv[1], "history") == 0;
     const char *out = NULL;
     long width = 800, height = trend ? 560 : 720;
     char **av = calloc((size_t)argc + 1, sizeof *av);
@@ -230,7 +233,9 @@ static int forward(int argc, char **argv, cli_ctx *ctx)
     ctx->chart = out;
     ctx->chart_width = (size_t)width;
     ctx->chart_height = (size_t)height;
-    rc = trend ? cmd_trend(ac, av, ctx) : cmd_predict(ac, av, ctx);
+    rc = trend     ? cmd_trend(ac, av, ctx)
+         : history ? cmd_history(ac, av, ctx)
+                   : cmd_predict(ac, av, ctx);
     free(av);
     if (rc == CLI_EXIT_OK && !ctx->json && !ctx->data_on_stdout)
         cli_print_caution(); /* trend and predict print it as commands of their own */
@@ -239,7 +244,8 @@ static int forward(int argc, char **argv, cli_ctx *ctx)
 
 int cmd_plot(int argc, char **argv, cli_ctx *ctx)
 {
-    if (argc >= 2 && (strcmp(argv[1], "trend") == 0 || strcmp(argv[1], "trajectory") == 0))
+    if (argc >= 2 && (strcmp(argv[1], "trend") == 0 || strcmp(argv[1], "trajectory") == 0 ||
+                      strcmp(argv[1], "history") == 0))
         return forward(argc, argv, ctx);
     cli_system *sys = &ctx->sys;
     double xd = NAN, reflux = NAN, nstages = NAN, xb = NAN, murphree = 1.0;
@@ -280,20 +286,21 @@ int cmd_plot(int argc, char **argv, cli_ctx *ctx)
     int json = ctx->json;
     /* The chart kind is the first argument; options may come before or after it. */
     if (first >= argc)
-        return cli_usage_error("a chart kind is required: 'mccabe', 'model', 'run', 'trend' or "
-                               "'trajectory' (see 'stagecal plot --help')");
+        return cli_usage_error("a chart kind is required: 'mccabe', 'model', 'run', 'trend', "
+                               "'history' or 'trajectory' (see 'stagecal plot --help')");
     const char *kind = argv[first++];
     unsigned k = strcmp(kind, "mccabe") == 0  ? KIND_MCCABE
                  : strcmp(kind, "model") == 0 ? KIND_MODEL
                  : strcmp(kind, "run") == 0   ? KIND_RUN
                                               : 0;
-    if (strcmp(kind, "trend") == 0 || strcmp(kind, "trajectory") == 0)
+    if (strcmp(kind, "trend") == 0 || strcmp(kind, "trajectory") == 0 ||
+        strcmp(kind, "history") == 0)
         return cli_usage_error("'plot %s' takes the chart kind first: 'stagecal plot %s "
                                "<options>'",
                                kind, kind);
     if (!k)
         return cli_usage_error("unknown chart kind '%s' (expected 'mccabe', 'model', 'run', "
-                               "'trend' or 'trajectory')",
+                               "'trend', 'history' or 'trajectory')",
                                kind);
     for (size_t i = 0; i < sizeof kind_options / sizeof kind_options[0]; i++) {
         if (!(kind_options[i].kinds & k) &&

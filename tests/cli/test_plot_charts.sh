@@ -66,6 +66,9 @@ draw model $BIN plot model "$model"
 check_chart model "fitted correlation" "fitted envelope"
 draw trend $BIN plot trend demo-bt-K-7 --fits "$tmp/fits" --events "$EV" --reflux 3 --f-factor 1.3 --require 7.5
 check_chart trend "forecast (extrapolated): dashed, light band" "repack" "required: 7.5" "stages incl. pot at R = 3"
+draw hist $BIN plot history --column "$COL" "$L/2025-08.csv" "$L/2025-09.csv" "$L/2025-11.csv" "$L/2025-12.csv" \
+    --events "$EV" --reflux 3 --f-factor 1.3
+check_chart hist "EWMA of Q [-]" "CUSUM of Q [-]" "run at the condition" "EWMA"
 draw traj $BIN plot trajectory --model "$model" --charge 25 --xb0 0.5 --boilup 3.6 --xd-setpoint 0.95 --reflux-max 12 --cut pot-x=0.15 --samples 0
 check_chart traj "distillate xD" "pot xB" "outside the fitted envelope: dashed" "cut1"
 
