@@ -524,11 +524,51 @@ static void report_words_for_a_reviewer(void **state)
     stagecal_model_free(&m);
 }
 
+/* A one-sided model (analysers at their limit: "at least N stages") answers "at least"
+ * on page one, gives no prediction interval, and HETP "at most" H/(N − 1) at the same
+ * condition (hetp.h: a lower bound on stages bounds HETP from above). */
+static void report_one_sided_answer(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_error err;
+    demo_model(&m);
+    assert_int_equal(stagecal_form_parse("constant", &m.form, &err), STAGECAL_OK);
+    m.method = STAGECAL_MODEL_CENSORED;
+    m.one_sided = 1;
+    m.theta[0] = 8.2, m.theta_ml[0] = 8.6;
+    memset(m.cov, 0, sizeof m.cov);
+    if (stagecal_model_check(&m, &err) != STAGECAL_OK)
+        fail_msg("one-sided model: %s", err.text);
+    stagecal_report_doc *doc = NULL;
+    assert_int_equal(stagecal_report_from_model(&m, NULL, &doc, &err), STAGECAL_OK);
+    const stagecal_report *rep = stagecal_report_doc_content(doc);
+    int stages = 0, hetp = 0;
+    for (size_t i = 0; i < rep->n_answer; i++) {
+        const char *k = rep->answer[i].key, *v = rep->answer[i].value;
+        assert_null(strstr(k, "new window")); /* no prediction interval for a bound */
+        if (strcmp(k, "equilibrium stages, pot included") == 0)
+            stages = strncmp(v, "at least 8.20 ", 14) == 0;
+        if (strncmp(k, "HETP at R = 3", 13) == 0) /* 4.2 m / (8.2 − 1) = 0.5833 m */
+            hetp = strncmp(v, "at most 0.583 m", 15) == 0;
+    }
+    assert_true(stages);
+    assert_true(hetp);
+    char *html = NULL;
+    assert_int_equal(stagecal_report_html(rep, NULL, &html, NULL, &err), STAGECAL_OK);
+    assert_non_null(strstr(html, "One-sided"));
+    assert_null(strstr(html, "\xcf\x83 0"));
+    free(html);
+    stagecal_report_doc_free(doc);
+    stagecal_model_free(&m);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(report_caution_matches_design),
         cmocka_unit_test(report_words_for_a_reviewer),
+        cmocka_unit_test(report_one_sided_answer),
         cmocka_unit_test(report_minimal_has_caution_only),
         cmocka_unit_test(report_full_is_self_contained),
         cmocka_unit_test(report_refuses_bad_content),
