@@ -139,7 +139,8 @@ static const char css[] =
     ".page-one.break{break-after:page;page-break-after:always}"
     "dl.kv,.caution,.warn,.signoff,.demo,section.keep,tr{break-inside:avoid;"
     "page-break-inside:avoid}thead{display:table-header-group}"
-    "svg.stagecal-figure{border:none;max-height:120mm}}";
+    "svg.stagecal-figure{border:none;max-height:120mm}"
+    "svg.stagecal-figure[data-tall]{max-height:230mm}}";
 
 static void put_items(buf *b, const stagecal_report_item *it, size_t n)
 {
@@ -210,7 +211,7 @@ static void put_table(buf *b, const stagecal_report_table *t, const char *cls)
 
 /* Copies cairo's SVG into the page: drops the XML declaration, prefixes every id and
  * every local reference with "f<k>-", and tags the root element. */
-static void put_svg(buf *b, const char *svg, size_t k, const stagecal_plot_chart *c)
+static void put_svg(buf *b, const char *svg, size_t k, const stagecal_plot_chart *c, int tall)
 {
     char prefix[32];
     snprintf(prefix, sizeof prefix, "f%zu-", k);
@@ -219,8 +220,8 @@ static void put_svg(buf *b, const char *svg, size_t k, const stagecal_plot_chart
         return;
     /* root tag: add our class, the series count and an accessible name */
     p += 4;
-    putf(b, "<svg class=\"stagecal-figure\" data-series=\"%zu\" role=\"img\" aria-label=\"",
-         c->n_series);
+    putf(b, "<svg class=\"stagecal-figure\" data-series=\"%zu\"%s role=\"img\" aria-label=\"",
+         c->n_series, tall ? " data-tall=\"1\"" : "");
     put_esc(b, c->title ? c->title : "chart");
     put(b, "\"");
     static const char *const pats[] = {"id=\"", "href=\"#", "url(#"};
@@ -380,13 +381,16 @@ int stagecal_report_html(const stagecal_report *r, const stagecal_report_params 
         put(&b, "<section id=\"plots\">\n<h2>Charts</h2>\n");
         for (size_t k = 0; k < r->n_figures && !b.oom; k++) {
             char *svg = NULL;
-            rc = stagecal_plot_svg(r->figures[k].chart, &par.plot, &svg, NULL, err);
+            stagecal_plot_params pp = par.plot;
+            if (r->figure_height && r->figure_height[k] > 0)
+                pp.height = r->figure_height[k];
+            rc = stagecal_plot_svg(r->figures[k].chart, &pp, &svg, NULL, err);
             if (rc) {
                 free(b.s);
                 return rc;
             }
             putf(&b, "<figure id=\"figure-%zu\">\n", k + 1);
-            put_svg(&b, svg, k + 1, r->figures[k].chart);
+            put_svg(&b, svg, k + 1, r->figures[k].chart, pp.height > pp.width);
             free(svg);
             if (r->figures[k].caption) {
                 putf(&b, "<figcaption>Figure %zu. ", k + 1);

@@ -12,6 +12,7 @@
 #include <time.h>
 
 #include "stagecal/calibrate.h"
+#include "stagecal/plot.h"
 #include "stagecal/report.h"
 #include "report_internal.h"
 
@@ -262,6 +263,35 @@ static void runs_verdict(stagecal_report_doc *d, const stagecal_calibration *cal
                                                  out, cal->log->nruns, names, tail));
 }
 
+/* The run chart (the raw runs with the windows shaded), first among the figures: the
+ * first picture a reviewer asks for. */
+static int run_chart(stagecal_report_doc *d, const stagecal_calibration *cal, stagecal_error *err)
+{
+    if (d->n_charts >= DOC_MAX_FIGS)
+        return error_set(err, STAGECAL_EINVAL, "report: no room for the run chart");
+    stagecal_plot_chart *c = NULL;
+    int rc = stagecal_plot_run_calibration(cal, STAGECAL_PLOT_ALL_RUNS, &c, err);
+    if (rc)
+        return rc;
+    for (size_t k = d->n_charts; k > 0; k--) {
+        d->charts[k] = d->charts[k - 1];
+        d->figs[k] = d->figs[k - 1];
+        d->fig_height[k] = d->fig_height[k - 1];
+    }
+    d->charts[0] = c;
+    d->figs[0] = (stagecal_report_figure){
+        c, "The runs as logged, each in hours from its own start: distillate and pot "
+           "compositions, pot holdup, reflux ratio and stage counts, with the quasi-steady "
+           "windows shaded (the evidence of the fit; a run left out is marked), the samples' "
+           "stage counts with \xc2\xb1 2u bars and each window's count with \xc2\xb1 2 se."};
+    d->fig_height[0] = 880; /* five stacked panels, at the report's width of 720 pt */
+    d->rep.figure_height = d->fig_height;
+    d->n_charts++;
+    d->rep.figures = d->figs;
+    d->rep.n_figures = d->n_charts;
+    return STAGECAL_OK;
+}
+
 int stagecal_report_doc_add_calibration(stagecal_report_doc *d, const stagecal_calibration *cal,
                                         stagecal_error *err)
 {
@@ -284,8 +314,8 @@ int stagecal_report_doc_add_calibration(stagecal_report_doc *d, const stagecal_c
         closure_table(d, cal);
     other_fit(d, cal);
     runs_verdict(d, cal);
-    int rc = STAGECAL_OK;
-    if (cal->column)
+    int rc = run_chart(d, cal, err);
+    if (rc == STAGECAL_OK && cal->column)
         rc = stagecal_report_doc_set_description(d, cal->column->description);
     if (rc == STAGECAL_OK && d->oom)
         rc = error_set(err, STAGECAL_ENOMEM, "out of memory building the report");

@@ -11,7 +11,7 @@
 #include "internal.h"
 
 #define DOC_MAX_ITEMS 24
-#define DOC_MAX_FIGS 4  /* fit, residuals, condition */
+#define DOC_MAX_FIGS 5  /* runs, fit, residuals, condition */
 #define DOC_MAX_WARN 40 /* warnings listed (model's + points outside the envelope) */
 #define DOC_MAX_VERDICTS 12
 
@@ -30,6 +30,7 @@ struct stagecal_report_doc {
     const char **run_cells, **win_cells, **clo_cells, **other_cells;
     stagecal_report_figure figs[DOC_MAX_FIGS];
     stagecal_plot_chart *charts[DOC_MAX_FIGS];
+    size_t fig_height[DOC_MAX_FIGS]; /* 0: the report's */
     size_t n_charts;
     /* the answer's condition (page one) */
     double ans_r, ans_f;

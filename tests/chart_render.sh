@@ -6,13 +6,17 @@
 #
 # usage: sh chart_render.sh <stagecal-binary> <repo-root> <tool_chart_pages-binary>
 #
-# tool_chart_pages writes the charts (the report's fit, residual and McCabe-Thiele charts
-# of the invented demo calibration, a trend and a batch chart, and a known case whose
-# markers fill three quarters of the plot box) into two pages that differ only in the
-# legend: on.html draws it, off.html does not. Chromium screenshots both; for each chart
-# the pixels that differ are the legend's box, and in the legend-free screenshot that box
-# must hold no pixel of a plotted colour (saturated colours: markers, lines, bars; the
-# grey grid, black axes and text and the pale band tints do not count).
+# tool_chart_pages writes the charts (the report's run chart, fit, residual and
+# McCabe-Thiele charts of the invented demo calibration, the run chart of one run, a trend
+# and a batch chart, and a known case whose markers fill three quarters of the plot box)
+# into two pages that differ only in the legend: on.html draws it, off.html does not.
+# Where the renderer put the legend inside a plot box, Chromium's screenshots of the two
+# pages differ only there: those pixels are the legend's box, and in the legend-free
+# screenshot that box must hold no pixel of a plotted colour (saturated colours: markers,
+# lines, bars; the grey grid, black axes and text and the pale band tints do not count).
+# Where it put the legend outside (no free corner; stacked panels), the plot box shrinks
+# to make room, so the two pages differ everywhere: then the legend's box must not meet
+# any plot box (the boxes as the renderer reports them, stagecal_plot_layout).
 # Negative control: a copy of off.html with the known case's legend (its pixels, cut
 # from the first screenshot) laid over the known case's filled top-left quarter must be
 # caught by the same check; otherwise the check is blind and the test fails.
@@ -60,8 +64,7 @@ if [ -z "$title" ]; then
 fi
 height=$(echo "$title" | sed 's/^H=\([0-9]*\);.*/\1/')
 [ "$height" -gt 16000 ] && height=16000
-# the page as Chromium parsed it (for the text check), and the two screenshots
-chrome --window-size=1200,1600 --dump-dom "file://$work/on.html" >"$work/dom.html"
+# the two screenshots (the probe's dump is the page as Chromium parsed it: the text check)
 for p in on off; do
     chrome --window-size=1200,"$height" --hide-scrollbars --screenshot="$work/$p.png" \
         "file://$work/$p.html" >/dev/null
@@ -73,7 +76,7 @@ done
 import base64, io, sys
 from PIL import Image, ImageChops
 work, title = sys.argv[1], sys.argv[2]
-names = open(f"{work}/names.txt").read().split()
+names = [l.split()[0] for l in open(f"{work}/names.txt") if l.strip()]
 boxes = [tuple(map(int, f.split(","))) for f in title.split(";", 1)[1].split("|") if f]
 k = names.index("known")
 x, y, w, h = boxes[k]
@@ -100,7 +103,14 @@ chrome --window-size=1200,"$height" --hide-scrollbars --screenshot="$work/contro
 import re, sys
 from PIL import Image, ImageChops
 work, title = sys.argv[1], sys.argv[2]
-names = open(f"{work}/names.txt").read().split()
+lines = [l.split() for l in open(f"{work}/names.txt") if l.strip()]
+names = [l[0] for l in lines]
+inside = {l[0]: l[1] == "1" for l in lines}
+geom = {}
+for l in lines:
+    v = list(map(float, l[2:6]))
+    nb = int(l[6])
+    geom[l[0]] = (v, [list(map(float, l[7 + 4 * i: 11 + 4 * i])) for i in range(nb)])
 boxes = [tuple(map(int, f.split(","))) for f in title.split(";", 1)[1].split("|") if f]
 on = Image.open(f"{work}/on.png").convert("RGB")
 off = Image.open(f"{work}/off.png").convert("RGB")
@@ -134,6 +144,15 @@ def legend_check(label, img_legend, k):
     return box, data_pixels(off, box)
 
 for k, name in enumerate(names):
+    if not inside[name]:
+        (lx0, lx1, ly0, ly1), pboxes = geom[name]
+        hit = [i for i, (x0, x1, y0, y1) in enumerate(pboxes)
+               if min(lx1, x1) - max(lx0, x0) > 0.002 and min(ly1, y1) - max(ly0, y0) > 0.002]
+        print(f"chart '{name}': legend outside the {len(pboxes)} plot box(es), at "
+              f"x {lx0:.3f}-{lx1:.3f}, y {ly0:.3f}-{ly1:.3f} of the drawing; meets plot box(es): {hit or 'none'}")
+        if hit or lx1 <= lx0 or ly1 <= ly0:
+            print(f"FAIL: chart '{name}': the legend meets a plot box"); ok = False
+        continue
     box, n = legend_check(name, on, k)
     if box is None:
         print(f"FAIL: chart '{name}': no legend drawn"); ok = False; continue
@@ -152,7 +171,7 @@ if box is None or n <= LIMIT:
 
 # (b) SVG text is text: each inline chart holds <text> elements, and Chromium's parsed
 # page has the chart's title and axis labels as text inside it (not outlines)
-dom = open(f"{work}/dom.html", encoding="utf-8").read()
+dom = open(f"{work}/probe_dom.html", encoding="utf-8").read()
 parts = dom.split('<svg class="stagecal-figure"')[1:]
 if len(parts) != len(names):
     print(f"FAIL: {len(parts)} inline SVG charts in the parsed page, {len(names)} written"); ok = False

@@ -14,6 +14,7 @@
 #   2. A screenshot of the unmodified report, as tall as the page, is not blank, and
 #      each figure's region in it holds non-white pixels (≥ 2 % of its area: axes, text
 #      and curves of our charts cover far more; a missing image leaves 0).
+#      Each figure's labels are SVG text: at least 3 <text> elements (title, axis labels).
 #   3. Printed to A4 (--print-to-pdf, the report's own @page rules): page one (the answer,
 #      the caution and the sign-off; everything after it hidden) fits on one sheet, and
 #      the caution is never alone on a page: hiding it leaves the page count unchanged.
@@ -55,7 +56,7 @@ chrome() {
 }
 
 # 1. instrumented copy: the title becomes "H=<page height>;<x,y,w,h,bw,bh,n>|…"
-sed 's#</body>#<script>(function(){var out=[];document.querySelectorAll("svg.stagecal-figure").forEach(function(s){var r=s.getBoundingClientRect(),b={width:0,height:0};try{b=s.getBBox();}catch(e){}out.push([Math.round(r.left+window.scrollX),Math.round(r.top+window.scrollY),Math.round(r.width),Math.round(r.height),Math.round(b.width),Math.round(b.height),s.querySelectorAll("path,use,rect,polyline,line").length].join(","));});document.title="H="+Math.ceil(document.documentElement.scrollHeight)+";"+out.join("|");})();</script></body>#' \
+sed 's#</body>#<script>(function(){var out=[];document.querySelectorAll("svg.stagecal-figure").forEach(function(s){var r=s.getBoundingClientRect(),b={width:0,height:0};try{b=s.getBBox();}catch(e){}out.push([Math.round(r.left+window.scrollX),Math.round(r.top+window.scrollY),Math.round(r.width),Math.round(r.height),Math.round(b.width),Math.round(b.height),s.querySelectorAll("path,use,rect,polyline,line").length,s.querySelectorAll("text").length].join(","));});document.title="H="+Math.ceil(document.documentElement.scrollHeight)+";"+out.join("|");})();</script></body>#' \
     "$html" >"$work/probe.html"
 chrome --window-size=1200,1600 --dump-dom "file://$work/probe.html" >"$work/dom.html"
 figures=$(grep -c '<figure' "$html")
@@ -116,7 +117,9 @@ figs = [f for f in title.split(";", 1)[1].split("|") if f]
 if len(figs) != want:
     print(f"FAIL: {len(figs)} inline SVG figures laid out, {want} <figure> elements in the HTML"); ok = False
 for k, f in enumerate(figs, 1):
-    x, y, w, h, bw, bh, n = map(int, f.split(","))
+    x, y, w, h, bw, bh, n, nt = map(int, f.split(","))
+    if nt < 3:  # axis labels and title as SVG text, not outlines
+        print(f"FAIL: figure {k}: {nt} <text> elements (its labels are not text)"); ok = False
     if w <= 0 or h <= 0 or bw <= 0 or bh <= 0 or n == 0:
         print(f"FAIL: figure {k}: box {w}x{h}, content {bw}x{bh}, {n} elements"); ok = False; continue
     x0, y0, x1, y1 = max(x, 0), max(y, 0), min(x + w, W), min(y + h, H)
@@ -126,7 +129,7 @@ for k, f in enumerate(figs, 1):
     cols = region.getcolors(maxcolors=1 << 24)
     nonwhite = (x1 - x0) * (y1 - y0) - sum(c for c, rgb in cols if rgb == (255, 255, 255))
     frac = nonwhite / float((x1 - x0) * (y1 - y0))
-    print(f"figure {k}: {w}x{h} at ({x},{y}), {n} elements, {100 * frac:.1f} % ink")
+    print(f"figure {k}: {w}x{h} at ({x},{y}), {n} elements, {nt} <text>, {100 * frac:.1f} % ink")
     if frac < 0.02:
         print(f"FAIL: figure {k} is blank in the screenshot"); ok = False
 sys.exit(0 if ok else 1)

@@ -4,15 +4,19 @@
  * without, in the same order and size, so that the legend is exactly where the two
  * screenshots differ.
  *
- * Charts: the report's (stages against R with bands and envelope, residuals, the
- * McCabe–Thiele stepping at R = 3, xD = 0.95) from a calibration of the invented demo
- * logs; a trend chart and a batch chart on invented numbers; and a known case for the
+ * Charts: the report's (the run chart of all runs, stages against R with bands and
+ * envelope, residuals, the McCabe–Thiele stepping at R = 3, xD = 0.95) from a calibration
+ * of the invented demo logs; the run chart of the left-out run K7-018; a trend chart and
+ * a batch chart on invented numbers; and a known case for the
  * legend test: vermilion markers that fill three quarters of the plot box (top left,
  * bottom left, bottom right) and leave the top-right quarter empty, so a legend that
  * covers no data has exactly one corner to go to.
  *
  * usage: tool_chart_pages COLUMN.json OUTDIR LOG.csv...
- * writes OUTDIR/on.html, OUTDIR/off.html and OUTDIR/names.txt (one chart name a line).
+ * writes OUTDIR/on.html, OUTDIR/off.html and OUTDIR/names.txt: one line a chart, "name
+ * inside lx0 lx1 ly0 ly1 n bx0 bx1 by0 by1 ..." — whether the renderer put the legend
+ * inside a plot box (1) or outside them (0), the legend's box and the n plot boxes in
+ * fractions of the drawing (y upwards), from stagecal_plot_layout.
  */
 #include <math.h>
 #include <stdio.h>
@@ -60,6 +64,20 @@ int main(int argc, char **argv)
     stagecal_plot_chart *own[MAXC] = {0};
     size_t n = 0;
     static const char *const doc_names[] = {"fit", "residuals", "mccabe"};
+    size_t height[MAXC] = {0};
+    if (stagecal_plot_run_calibration(&cal, STAGECAL_PLOT_ALL_RUNS, &own[n], &err))
+        return fail("run chart", &err);
+    charts[n] = *own[n];
+    height[n] = 880;
+    names[n++] = "runs";
+    for (size_t r = 0; r < cal.log->nruns; r++)
+        if (strcmp(cal.log->runs[r].name, "K7-018") == 0) {
+            if (stagecal_plot_run_calibration(&cal, r, &own[n], &err))
+                return fail("run chart of K7-018", &err);
+            charts[n] = *own[n];
+            height[n] = 880;
+            names[n++] = "run-K7-018";
+        }
     for (size_t k = 0; k < 3 && stagecal_report_doc_chart(doc, k); k++) {
         charts[n] = *stagecal_report_doc_chart(doc, k);
         names[n++] = doc_names[k];
@@ -140,6 +158,7 @@ int main(int argc, char **argv)
     page.title = "stagecal charts (test page)";
     page.figures = figs;
     page.n_figures = n;
+    page.figure_height = height;
     stagecal_report_params rp = stagecal_report_default_params();
     char path[1024];
     for (int pass = 0; pass < 2; pass++) {
@@ -153,8 +172,24 @@ int main(int argc, char **argv)
     FILE *f = fopen(path, "w");
     if (!f)
         return 1;
-    for (size_t k = 0; k < n; k++)
-        fprintf(f, "%s\n", names[k]);
+    for (size_t k = 0; k < n; k++) {
+        /* where the renderer put the legend, drawn at the page's size */
+        stagecal_plot_layout lay;
+        stagecal_plot_params pp = rp.plot;
+        char *svg = NULL;
+        if (height[k])
+            pp.height = height[k];
+        pp.layout = &lay;
+        if (stagecal_plot_svg(&charts[k], &pp, &svg, NULL, &err))
+            return fail(names[k], &err);
+        free(svg);
+        fprintf(f, "%s %d %.5f %.5f %.5f %.5f %zu", names[k], lay.legend_inside, lay.legend.x0,
+                lay.legend.x1, lay.legend.y0, lay.legend.y1, lay.n_panels);
+        for (size_t p = 0; p < lay.n_panels; p++)
+            fprintf(f, " %.5f %.5f %.5f %.5f", lay.box[p].x0, lay.box[p].x1, lay.box[p].y0,
+                    lay.box[p].y1);
+        fprintf(f, "\n");
+    }
     fclose(f);
     for (size_t k = 0; k < n; k++)
         stagecal_plot_chart_free(own[k]);

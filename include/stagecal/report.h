@@ -68,6 +68,9 @@ typedef struct {
 
     const stagecal_report_figure *figures; /* charts, in order */
     size_t n_figures;
+    const size_t *figure_height; /* n_figures drawing heights in pt (0: the report's, from
+                                    its params); NULL: all the report's. A figure taller
+                                    than wide may fill most of an A4 page in print */
 
     const stagecal_report_item *condition; /* stages and compositions at a stated condition */
     size_t n_condition;
