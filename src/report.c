@@ -115,7 +115,7 @@ static const char css[] =
     ".warn li{margin:.2em 0}"
     ".caution{border:2px solid #333;padding:.1em 1em .6em;background:#f4f4f4;margin-top:1em}"
     ".caution h2{margin-top:.6em}"
-    "table.signoff{width:100%}table.signoff td{height:2.2em}"
+    "table.signoff{width:99%}table.signoff td{height:2.2em}"
     "table.signoff th:first-child{width:8em}"
     "dl.kv{display:grid;grid-template-columns:max-content auto;gap:.15em 1.2em}"
     "dl.kv dt{font-weight:bold}dl.kv dd{margin:0}"
