@@ -60,6 +60,7 @@ run trend "$S" trend demo-bt-K-7 --fits "$work/fits" --events datasets/demo/even
 run hetp "$S" hetp "$m08" "$m11" --reflux 3 --f-factor 1.3
 run predict "$S" predict --model "$m11" --charge 25 --xb0 0.5 --boilup 3.6 --reflux 3 --cut pot-x=0.15 --samples 20
 run predict-load "$S" predict --model "$model" --f-factor 1.3 --charge 25 --xb0 0.5 --boilup 3.6 --reflux 3 --cut pot-x=0.15 --samples 20
+run predict-dynamic "$S" predict --model "$m11" --column datasets/columns/demo_benzene_toluene_holdup.json --charge 25 --xb0 0.5 --boilup 3.6 --reflux 3 --cut product:mean-x=0.98 --cut slop:pot-x=0.15 --samples 4
 run plot-mccabe "$S" plot mccabe --alpha 2.5 --xd 0.95 --reflux 3 --stages 6 --murphree 0.8 -o "$work/d.svg"
 run plot-model "$S" plot model "$model" --points "$work/points.csv" --residuals -o "$work/m.png"
 run plot-run "$S" plot run --column $COL $L/2025-03.csv --output "$work/runs.svg"
