@@ -158,40 +158,49 @@ void stagecal_evidence_pool_rho(stagecal_evidence *ev, size_t nev)
  * it while still averaging the analyser noise. As a matrix it also gives the window
  * statistics that belong to this estimator (stagecal_evidence_window_stats). Weights from
  * the normal equations on a centred, scaled time (Cholesky, GSL). Returns 0, or −1 when m
- * < 3 or the times do not determine a quadratic (repeated times). */
-static int smoother_matrix(const double *t, size_t m, double *S)
+ * < 3 or the times do not determine a quadratic (repeated times). The same with local
+ * polynomials of degree deg (2 to 4) for the noise estimate's fallback below. */
+static int smoother_matrix_deg(const double *t, size_t m, int deg, double *S)
 {
-    size_t k = m < SMOOTH_POINTS ? m : SMOOTH_POINTS;
-    if (m < 3)
+    size_t k = m < SMOOTH_POINTS ? m : SMOOTH_POINTS, d = (size_t)deg + 1;
+    if (m < 3 || k < d)
         return -1;
     memset(S, 0, m * m * sizeof *S);
     for (size_t j = 0; j < m; j++) {
         size_t lo = j >= k / 2 ? j - k / 2 : 0;
         if (lo + k > m)
             lo = m - k;
-        double tb = t[j], ts = 0, xtx[9] = {0}, z[3] = {1, 0, 0};
+        double tb = t[j], ts = 0, xtx[25] = {0}, z[5] = {1, 0, 0, 0, 0};
         for (size_t i = lo; i < lo + k; i++)
             ts = fmax(ts, fabs(t[i] - tb));
         if (!(ts > 0))
             return -1;
         for (size_t i = lo; i < lo + k; i++) {
-            double u = (t[i] - tb) / ts, x[3] = {1, u, u * u};
-            for (int a = 0; a < 3; a++)
-                for (int b = 0; b < 3; b++)
-                    xtx[3 * a + b] += x[a] * x[b];
+            double u = (t[i] - tb) / ts, x[5] = {1, u, u * u, u * u * u, u * u * u * u};
+            for (size_t a = 0; a < d; a++)
+                for (size_t b = 0; b < d; b++)
+                    xtx[d * a + b] += x[a] * x[b];
         }
         /* the fitted value at u = 0 is e1ᵀ(XᵀX)⁻¹Xᵀy: weights X·z with (XᵀX) z = e1 */
-        gsl_matrix_view A = gsl_matrix_view_array(xtx, 3, 3);
-        gsl_vector_view zv = gsl_vector_view_array(z, 3);
+        gsl_matrix_view A = gsl_matrix_view_array(xtx, d, d);
+        gsl_vector_view zv = gsl_vector_view_array(z, d);
         if (gsl_linalg_cholesky_decomp1(&A.matrix) != GSL_SUCCESS ||
             gsl_linalg_cholesky_svx(&A.matrix, &zv.vector) != GSL_SUCCESS)
             return -1;
         for (size_t i = lo; i < lo + k; i++) {
-            double u = (t[i] - tb) / ts;
-            S[j * m + i] = z[0] + z[1] * u + z[2] * u * u;
+            double u = (t[i] - tb) / ts, v = 0, pw = 1;
+            for (size_t a = 0; a < d; a++, pw *= u)
+                v += z[a] * pw;
+            S[j * m + i] = v;
         }
     }
     return 0;
+}
+
+/* The local quadratic smoother (degree 2), the one of the stage count. */
+static int smoother_matrix(const double *t, size_t m, double *S)
+{
+    return smoother_matrix_deg(t, m, 2, S);
 }
 
 /* out = S·y for the m×m smoother S. */
@@ -267,12 +276,12 @@ static double corr(double rho, double dt_ref, double a, double b)
 
 /* E[Σ r²]/σ² and E[Σ r_j r_{j+1}]/σ² of the smoother's residuals under correlation rho:
  * the trace and first superdiagonal sum of (I − S) R (I − S)ᵀ. Scratch: 3·m² doubles. */
-static int resid_moments(const struct wseries *w, double rho, double dt_ref, double *scratch,
-                         double *A, double *B)
+static int resid_moments(const struct wseries *w, int deg, double rho, double dt_ref,
+                         double *scratch, double *A, double *B)
 {
     size_t m = w->m;
     double *M = scratch, *R = M + m * m, *T = R + m * m;
-    if (smoother_matrix(w->t, m, M))
+    if (smoother_matrix_deg(w->t, m, deg, M))
         return -1;
     for (size_t i = 0; i < m; i++)
         for (size_t j = 0; j < m; j++) {
@@ -309,7 +318,7 @@ static double pool_eq(double rho, void *ctx)
     double f = 0;
     for (size_t k = 0; k < p->n; k++) {
         double A, B;
-        if (resid_moments(&p->w[k], rho, p->dt_ref, p->scratch, &A, &B) || !(A > 0)) {
+        if (resid_moments(&p->w[k], 2, rho, p->dt_ref, p->scratch, &A, &B) || !(A > 0)) {
             p->failed = 1;
             return 0;
         }
@@ -351,8 +360,9 @@ static int pool_solve(struct pool *p, double *rho)
     return status == GSL_SUCCESS && !p->failed ? 0 : -1;
 }
 
-/* The statistics of one analyser (pot = 0: xD, 1: xB) over the windows. */
-static int analyser_stats(stagecal_evidence *ev, size_t nev, int pot, double u_floor,
+/* The statistics of one analyser (pot = 0: xD, 1: xB) over the windows: σ into sd_xd/sd_xb
+ * of every window with samples; with set_u also the standard errors (see evidence.h). */
+static int analyser_stats(stagecal_evidence *ev, size_t nev, int pot, double u_floor, int set_u,
                           stagecal_error *err)
 {
     struct wseries *w = calloc(nev ? nev : 1, sizeof *w);
@@ -402,15 +412,41 @@ static int analyser_stats(stagecal_evidence *ev, size_t nev, int pot, double u_f
     double sv = 0, sa = 0;
     for (size_t q = 0; q < n; q++) {
         double A, B;
-        if (resid_moments(&w[q], rho, p.dt_ref, scratch, &A, &B)) {
+        if (resid_moments(&w[q], 2, rho, p.dt_ref, scratch, &A, &B)) {
             rc = error_set(err, STAGECAL_EINTERNAL, "window statistics failed");
             goto done;
         }
         sv += w[q].v;
         sa += A;
     }
-    double sigma = fmax(sqrt(sv / sa), u_floor);
-    for (size_t q = 0; q < n; q++) {
+    double sigma = fmax(sqrt(sv / sa), u_floor), sd = sqrt(sv / sa);
+    if (!(rho < RHO_MAX)) {
+        /* residuals more correlated than the noise model reaches: a trajectory the local
+         * quadratic does not follow (a whole batch in one window, a noise-free log), not
+         * noise. The reading noise is then taken from the residuals of local quartics
+         * (which follow such a trajectory about 100× closer: 1e-5 against 1e-3 on the
+         * noise-free round-trip logs, tests/cli/test_roundtrip.sh) at its white-noise value,
+         * the smaller one (A falls with ρ) */
+        double sv4 = 0, sa4 = 0;
+        for (size_t q = 0; q < n; q++) {
+            double A, B, *S = scratch;
+            size_t m = w[q].m;
+            if (resid_moments(&w[q], 4, 0, p.dt_ref, scratch, &A, &B) ||
+                smoother_matrix_deg(w[q].t, m, 4, S)) {
+                rc = error_set(err, STAGECAL_EINTERNAL, "window statistics failed");
+                goto done;
+            }
+            smooth_apply(S, w[q].y, m, r);
+            for (size_t j = 0; j < m; j++)
+                sv4 += (w[q].y[j] - r[j]) * (w[q].y[j] - r[j]);
+            sa4 += A;
+        }
+        sd = sqrt(sv4 / sa4);
+    }
+    for (size_t k = 0; k < nev; k++)
+        if (ev[k].m > 0)
+            *(pot ? &ev[k].sd_xb : &ev[k].sd_xd) = sd;
+    for (size_t q = 0; q < n && set_u; q++) {
         stagecal_evidence *e = &ev[idx[q]];
         const struct wseries *s = &w[q];
         size_t m = s->m;
@@ -450,8 +486,14 @@ done:
 int stagecal_evidence_window_stats(stagecal_evidence *ev, size_t nev, double u_xd, double u_xb,
                                    stagecal_error *err)
 {
-    int rc = analyser_stats(ev, nev, 0, u_xd, err);
-    return rc ? rc : analyser_stats(ev, nev, 1, u_xb, err);
+    int rc = analyser_stats(ev, nev, 0, u_xd, 1, err);
+    return rc ? rc : analyser_stats(ev, nev, 1, u_xb, 1, err);
+}
+
+int stagecal_evidence_noise_sd(stagecal_evidence *ev, size_t nev, stagecal_error *err)
+{
+    int rc = analyser_stats(ev, nev, 0, 0, 0, err);
+    return rc ? rc : analyser_stats(ev, nev, 1, 0, 0, err);
 }
 
 /* The inversion under the window's conditions (physics.h), or the plain one. */
@@ -653,6 +695,12 @@ static int window_summary(const stagecal_runlog *log, const double *xd_src,
     return 1;
 }
 
+/* The smaller of an estimated σ and a stated u, either of which may be 0 (not known). */
+static double noise_cap(double sd, double stated)
+{
+    return stated > 0 && !(sd > 0 && sd < stated) ? stated : sd;
+}
+
 int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_result *res,
                             const stagecal_column *col, double murphree,
                             const stagecal_evidence_params *params, stagecal_evidence_set *set,
@@ -705,7 +753,16 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
     }
     rc = par.noise == STAGECAL_EVIDENCE_NOISE_SMOOTHER
              ? stagecal_evidence_window_stats(set->ev, set->n, col->u.xd, col->u.xb, err)
-             : STAGECAL_OK;
+             : stagecal_evidence_noise_sd(set->ev, set->n, err);
+    /* the reading noise for the composition fit's convexity correction: the smaller of the
+     * estimate and the analyser's stated uncertainty (the estimate's failure is upward: with
+     * strongly correlated noise the pooled ρ can sit at its bound and σ then comes out several
+     * times too large) */
+    for (size_t k = 0; k < set->n; k++) {
+        stagecal_evidence *e = &set->ev[k];
+        e->sd_xd = noise_cap(e->sd_xd, stagecal_runlog_u_xd(col, e->xd));
+        e->sd_xb = noise_cap(e->sd_xb, stagecal_runlog_u_xb(col, e->xb));
+    }
     for (size_t k = 0; k < set->n && rc == STAGECAL_OK; k++) {
         stagecal_evidence *e = &set->ev[k];
         /* the time constant's uncertainty is common to the window: add its mean variance */

@@ -105,6 +105,31 @@ static double dlogit_dr(struct comp_ctx *c, size_t i, const double *theta)
     return (lg[1] - lg[0]) / (2 * h);
 }
 
+static double expit(double l)
+{
+    return 1 / (1 + exp(-l));
+}
+
+/* The predicted pot composition from one noisy reading xd of window i, less the convexity
+ * (Jensen) term of the forward map f: xd -> x̂B: E f(xd + e) = f(xd) + ½ f''(xd) σ² + O(σ⁴)
+ * for reading noise e of standard deviation σ (the window's sd_xd), so
+ *     f(xd) − ½ [f(xd + h) − 2 f(xd) + f(xd − h)],  h = σ,
+ * has expectation f(xd_true) + O(σ⁴): a corrected score (Carroll, Ruppert, Stefanski &
+ * Crainiceanu 2006, Measurement Error in Nonlinear Models, 2nd ed., ch. 7; the central
+ * difference with h = σ is the symmetric sigma-point form of ½ f'' σ²). h is kept below
+ * half the distance to xd = 1 (the second difference is then more local). Without a noise
+ * estimate (sd_xd = 0): f(xd). */
+static double pot_corrected(struct comp_ctx *c, size_t i, const double *theta, double xd)
+{
+    double f0 = expit(predict_logit(c, i, theta, xd));
+    double h = fmin(c->ev[i].sd_xd, 0.5 * (1 - xd));
+    if (!(h > 0) || !(xd - h > 0))
+        return f0;
+    double fp = expit(predict_logit(c, i, theta, xd + h));
+    double fm = expit(predict_logit(c, i, theta, xd - h));
+    return f0 - 0.5 * (fp - 2 * f0 + fm);
+}
+
 /* Window i's residual: the log-odds of the mean predicted pot composition (each sample
  * predicted from its own xD, so a drifting pot is followed) minus the log-odds of the
  * mean measured one. Averaging compositions before the log-odds, not after, keeps the
@@ -116,8 +141,7 @@ static double window_residual(struct comp_ctx *c, size_t i, const double *theta)
         return predict_logit(c, i, theta, e->xd) - logit(e->xb);
     double sp = 0, sm = 0;
     for (size_t j = 0; j < e->m; j++) {
-        double l = predict_logit(c, i, theta, e->s_xd[j]);
-        sp += 1 / (1 + exp(-l));
+        sp += pot_corrected(c, i, theta, e->s_xd[j]);
         sm += e->s_xb[j];
     }
     return logit(sp / (double)e->m) - logit(sm / (double)e->m);

@@ -7,7 +7,8 @@
  * constant α = 2, twelve windows from R = 1.2 to total reflux, analyser noise with an
  * exponential (continuous-time AR(1)) correlation, u(xD) = 0.0015, u(xB) = 0.0025. The
  * regime (struct synth_regime) sets the samples per window, the correlation per minute,
- * irregular sampling times, and a batch drift: xD falls along a curve through the window
+ * irregular sampling times, the distillate's purity and its analyser's noise, and a batch
+ * drift: xD falls along a curve through the window
  * and xB follows it at the true stage count (the pot of a batch is never steady). The pot
  * compositions come from Smoker's closed-form inverse or Fenske at total reflux
  * (Fenske 1932; Smoker 1938; citations from memory), independently of the stepping code under test.
@@ -124,16 +125,24 @@ struct synth_regime {
     double rho;    /* noise correlation between samples one minute apart */
     int irregular; /* 1: gaps between samples exponential with mean one minute */
     double drift;  /* xD falls by this much over the window along s(1 + s)/2 (0: steady) */
+    double xd_lo;  /* the windows' true distillate, uniform on [xd_lo, xd_hi] (0: the */
+    double xd_hi;  /* study's original 0.90 to 0.97) */
+    double u_xd;   /* the distillate analyser's noise (0: the original 0.0015) */
 };
 
-#define SYNTH_NREGIMES 6
+#define SYNTH_NREGIMES 8
 static const struct synth_regime synth_regimes[SYNTH_NREGIMES] = {
-    {"steady", 40, 0.6, 0, 0.0},    /* the study's original regime */
-    {"white", 40, 0.0, 0, 0.0},     /* uncorrelated analyser noise */
-    {"drift", 40, 0.0, 0, 0.03},    /* a batch pot drifting on a curve, white noise */
-    {"drift-ar", 40, 0.6, 0, 0.03}, /* the same with correlated noise */
-    {"irregular", 40, 0.6, 1, 0.0}, /* samples at random times */
-    {"short", 12, 0.6, 0, 0.0},     /* short windows */
+    {"steady", 40, 0.6, 0, 0.0, 0, 0, 0},    /* the study's original regime */
+    {"white", 40, 0.0, 0, 0.0, 0, 0, 0},     /* uncorrelated analyser noise */
+    {"drift", 40, 0.0, 0, 0.03, 0, 0, 0},    /* a batch pot drifting on a curve, white noise */
+    {"drift-ar", 40, 0.6, 0, 0.03, 0, 0, 0}, /* the same with correlated noise */
+    {"irregular", 40, 0.6, 1, 0.0, 0, 0, 0}, /* samples at random times */
+    {"short", 12, 0.6, 0, 0.0, 0, 0, 0},     /* short windows */
+    {"long", 64, 0.6, 0, 0.0, 0, 0, 0},      /* long windows (the most a window carries) */
+    /* moderate-to-high purity: 1 − xD of 0.005 to 0.015 read with a better analyser, so
+     * that the reading noise is a tenth of the heavy content (the forward map's curvature
+     * in xD is then strongest) */
+    {"purity", 40, 0.6, 0, 0.0, 0.985, 0.995, 0.0005},
 };
 
 /* One synthetic calibration: windows at several reflux ratios, AR(1) noise on the
@@ -158,7 +167,8 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
 {
     static const double rs[] = {1.2, 1.6, 2.0, 2.5, 3.0, 4.0, 5.0, 6.5, 8.0, 10.0, 15.0, INFINITY};
     enum { NW = sizeof rs / sizeof rs[0], MAXS = 64 };
-    const double u_xd = 0.0015, u_xb = 0.0025;
+    const double u_xd = rg->u_xd > 0 ? rg->u_xd : 0.0015, u_xb = 0.0025;
+    const double xd_lo = rg->xd_hi > 0 ? rg->xd_lo : 0.90, xd_hi = rg->xd_hi > 0 ? rg->xd_hi : 0.97;
     const size_t NS = rg->ns;
     stagecal_evidence ev[NW];
     static double xds[NW][MAXS], xbs[NW][MAXS], ts[NW][MAXS];
@@ -172,7 +182,7 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
         return __LINE__;
     for (size_t w = 0; w < NW; w++) {
         double *xd = xds[w], *xb = xbs[w], *t = ts[w];
-        double xd_true = 0.90 + 0.07 * gsl_rng_uniform(rng);
+        double xd_true = xd_lo + (xd_hi - xd_lo) * gsl_rng_uniform(rng);
         double n_true = synth_law(SYNTH_A, SYNTH_B, rs[w]);
         size_t nok = 0;
         t[0] = 0;
@@ -215,6 +225,13 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
     }
     if (se_mode == SYNTH_SE_ESTIMATED)
         stagecal_evidence_pool_rho(ev, NW);
+    /* the reading noise for the composition fit's convexity correction, as the builder gives it */
+    if (se_mode != SYNTH_SE_SMOOTHER && stagecal_evidence_noise_sd(ev, NW, NULL) != STAGECAL_OK)
+        return __LINE__;
+    for (size_t w = 0; w < NW; w++) { /* capped at the stated u, as the builder does */
+        ev[w].sd_xd = fmin(ev[w].sd_xd > 0 ? ev[w].sd_xd : u_xd, u_xd);
+        ev[w].sd_xb = fmin(ev[w].sd_xb > 0 ? ev[w].sd_xb : u_xb, u_xb);
+    }
     if (se_mode == SYNTH_SE_SMOOTHER &&
         stagecal_evidence_window_stats(ev, NW, u_xd, u_xb, NULL) != STAGECAL_OK)
         return __LINE__;

@@ -7,12 +7,12 @@
  *        tool_coverage REPLICATIONS SEED measured-r [measured | set-point | readings]
  * (whole run logs from tests/synth_runlog.h through the whole chain; see measured_r_study)
  * Regimes (struct synth_regime in tests/synth_calibration.h): steady, white, drift,
- * drift-ar, irregular, short. Diagnostics: known-se gives the windows their true standard
- * errors instead of the estimated ones (fixed instead of estimated weights); per-window-rho
- * gives each window the n_eff of its own lag-1 autocorrelation, as the calibration did
- * before it pooled the autocorrelation; smoother takes σ and ρ from the residuals of the
- * stage count's own local smoother (stagecal_evidence_window_stats, an option of the
- * builder; see enum synth_se_mode and docs/calibration.md §5).
+ * drift-ar, irregular, short, long, purity. Diagnostics: known-se gives the windows their true
+ * standard errors instead of the estimated ones (fixed instead of estimated weights);
+ * per-window-rho gives each window the n_eff of its own lag-1 autocorrelation, as the calibration
+ * did before it pooled the autocorrelation; smoother takes σ and ρ from the residuals of the stage
+ * count's own local smoother (stagecal_evidence_window_stats, an option of the builder; see enum
+ * synth_se_mode and docs/calibration.md §5).
  *
  * For each fit (stage space, composition space) and each quantity (a, b, confidence band
  * at R = 1.5, 5, ∞) it prints

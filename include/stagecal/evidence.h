@@ -69,6 +69,10 @@ typedef struct {
                            sample times (stagecal_evidence_window_stats; 0: not built, u_xd
                            stands in) */
     double se_sxb;      /* the same for xB */
+    double sd_xd;       /* standard deviation of one xD reading's noise: the residuals of the
+                           local smoother, pooled over the windows (stagecal_evidence_noise_sd;
+                           0: not known). The composition fit's convexity correction uses it */
+    double sd_xb;       /* the same for xB */
     int stages_ok;      /* the stage count below exists */
     double stages;      /* effective stages incl. the pot [-] */
     double se_stages;   /* its standard error [-] */
@@ -127,6 +131,11 @@ void stagecal_evidence_pool_rho(stagecal_evidence *ev, size_t nev);
  * and n_eff. Windows with fewer samples keep what they had. ENOMEM, EINTERNAL. */
 int stagecal_evidence_window_stats(stagecal_evidence *ev, size_t nev, double u_xd, double u_xb,
                                    stagecal_error *err);
+/* The per-reading noise of each analyser by the same moment equations, without touching the
+ * standard errors: sets sd_xd and sd_xb (σ, not floored at a stated u) of every window that
+ * carries samples, whatever the noise option (stagecal_evidence_window_stats sets them too).
+ * Leaves them 0 when no window has 6 carried samples. ENOMEM, EINTERNAL. */
+int stagecal_evidence_noise_sd(stagecal_evidence *ev, size_t nev, stagecal_error *err);
 
 /* Stage count of a window. With samples (ev->m ≥ 3, at most 64 used): local quadratics in
  * time (9 samples each) smooth the window's xD and xB, the fitted compositions are inverted at
