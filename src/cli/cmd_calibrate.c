@@ -184,6 +184,36 @@ static void print_fit(const char *title, const stagecal_regress_result *f)
            f->sigma_obs > 0 ? f->sigma_obs : f->sigma, f->dof, f->n);
 }
 
+/* The two fits side by side in words: the largest difference of a parameter in combined
+ * standard errors √(se_c² + se_s²) (treated as independent, which overstates the spread of
+ * the difference of two fits of the same data, so "agree" is the cautious reading), and
+ * what differs between the two estimators. */
+static void print_agreement(const stagecal_calibration *cal)
+{
+    const stagecal_regress_result *c = &cal->comp_fit, *s = &cal->stage_fit;
+    double worst = -1;
+    size_t iw = 0;
+    for (size_t i = 0; i < c->p && i < s->p; i++) {
+        double se = sqrt(c->se[i] * c->se[i] + s->se[i] * s->se[i]);
+        double z = se > 0 ? fabs(c->theta[i] - s->theta[i]) / se : 0;
+        if (isfinite(z) && z > worst)
+            worst = z, iw = i;
+    }
+    if (worst < 0)
+        return;
+    printf("the two fits %s: the largest difference, in %s, is %.2f combined standard errors
+           ",
+                   worst <= 2
+               ? "agree within their uncertainties"
+               : "differ by more than their uncertainties",
+           c->form.param_names[iw], worst);
+    printf("  (the composition fit steps down from every logged distillate of all %zu windows, "
+           "with the analyser noise's convexity term taken out; the stage-space fit inverts the "
+           "smoothed compositions of the %zu windows with stage counts%s)\n",
+           cal->evidence.n, cal->nev_stage,
+           cal->nev_stage < cal->evidence.n ? ", and windows at a pinch have none" : "");
+}
+
 static int print_findings(const stagecal_findings *f, int errors_only)
 {
     size_t shown = 0;
@@ -453,9 +483,10 @@ static void print_text(const stagecal_calibration *cal, const char *path, const 
         cli_print_params(fit, 0);
     else
         print_fit("", fit);
-    if (cal->used == STAGECAL_MODEL_COMPOSITION_SPACE && cal->stage_status == STAGECAL_OK)
+    if (cal->used == STAGECAL_MODEL_COMPOSITION_SPACE && cal->stage_status == STAGECAL_OK) {
         print_fit("\nfor comparison, the stage-space fit:", &cal->stage_fit);
-    else if (cal->used == STAGECAL_MODEL_COMPOSITION_SPACE)
+        print_agreement(cal);
+    } else if (cal->used == STAGECAL_MODEL_COMPOSITION_SPACE)
         printf("\nstage-space fit: %s\n", cal->stage_message);
     if (cal->used == STAGECAL_MODEL_CENSORED)
         cens_print(cal);
