@@ -201,11 +201,10 @@ static void print_agreement(const stagecal_calibration *cal)
     }
     if (worst < 0)
         return;
-    printf("the two fits %s: the largest difference, in %s, is %.2f combined standard errors
-           ",
-                   worst <= 2
-               ? "agree within their uncertainties"
-               : "differ by more than their uncertainties",
+    printf("the two fits %s: the largest difference, in %s, is %.2f combined standard "
+           "errors\n",
+           worst <= 2 ? "agree within their uncertainties"
+                      : "differ by more than their uncertainties",
            c->form.param_names[iw], worst);
     printf("  (the composition fit steps down from every logged distillate of all %zu windows, "
            "with the analyser noise's convexity term taken out; the stage-space fit inverts the "
