@@ -281,6 +281,69 @@ static void evidence_smoother_stats_follow_a_curved_pot(void **state)
     gsl_rng_free(rng);
 }
 
+/* The reading noise for the composition fit's convexity correction
+ * (stagecal_evidence_noise_sd): (1) white noise of σ = 0.0015 on the curved pot of the test
+ * above, 12 windows of 40 samples, 100 data sets: the mean σ̂ within 5 % of σ (about 12·20
+ * residual degrees of freedom per data set, so the mean's sampling error is below 1 %;
+ * common practice, no source), and the standard errors are left as they were (u_xd stays
+ * 0); (2) a noise-free whole batch in each window (xD 0.95 → 0.55 along 0.95 − 0.4 s⁴,
+ * 24 samples): the local quadratics miss the trajectory by about 1e-3, which must not be
+ * read as noise — σ̂ below 1e-4 (what the quartic fallback gives; the round-trip logs of
+ * tests/cli/test_roundtrip.sh need it for their 1e-5 recovery of the law). */
+static void evidence_noise_sd_reads_noise_not_trajectory(void **state)
+{
+    (void)state;
+    enum { NW = 12, NS = 40, NB = 24, REPS = 100 };
+    const double sigma = 0.0015;
+    static double t[NW][NS], y[NW][NS], yb[NW][NS];
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 20261203);
+    double sum = 0;
+    stagecal_evidence ev[NW];
+    for (int rep = 0; rep < REPS; rep++) {
+        for (int w = 0; w < NW; w++) {
+            t[w][0] = 0;
+            for (int i = 1; i < NS; i++)
+                t[w][i] = t[w][i - 1] + gsl_ran_exponential(rng, 60.0);
+            for (int i = 0; i < NS; i++) {
+                double s = t[w][i] / t[w][NS - 1];
+                y[w][i] = 0.93 - 0.03 * s * (1 + s) / 2 + gsl_ran_gaussian(rng, sigma);
+                yb[w][i] = 0.30 - 0.10 * s * s + gsl_ran_gaussian(rng, sigma);
+            }
+            memset(&ev[w], 0, sizeof ev[w]);
+            ev[w].m = NS;
+            ev[w].s_t = t[w];
+            ev[w].s_xd = y[w];
+            ev[w].s_xb = yb[w];
+        }
+        assert_int_equal(stagecal_evidence_noise_sd(ev, NW, NULL), STAGECAL_OK);
+        for (int w = 0; w < NW; w++) {
+            assert_true(ev[w].sd_xd == ev[0].sd_xd); /* one σ per analyser */
+            assert_true(ev[w].u_xd == 0 && ev[w].se_sxd == 0);
+        }
+        sum += ev[0].sd_xd / REPS;
+    }
+    print_message("reading noise: mean estimate %.4g, truth %.4g\n", sum, sigma);
+    assert_rel(sum, sigma, 0.05, "reading noise from the smoother's residuals");
+    for (int w = 0; w < NW; w++) {
+        for (int i = 0; i < NB; i++) {
+            double s = (double)i / (NB - 1);
+            t[w][i] = 360.0 * i;
+            y[w][i] = 0.95 - 0.4 * s * s * s * s;
+            yb[w][i] = 0.45 - 0.37 * s;
+        }
+        memset(&ev[w], 0, sizeof ev[w]);
+        ev[w].m = NB;
+        ev[w].s_t = t[w];
+        ev[w].s_xd = y[w];
+        ev[w].s_xb = yb[w];
+    }
+    assert_int_equal(stagecal_evidence_noise_sd(ev, NW, NULL), STAGECAL_OK);
+    print_message("noise-free batch: reading noise %.3g\n", ev[0].sd_xd);
+    assert_true(ev[0].sd_xd < 1e-4);
+    gsl_rng_free(rng);
+}
+
 /* Censored readings (xD at the bound 1) stay in the window but out of its means: the
  * window counts them, carries none, and its stage count still reads Fenske's 5 within the
  * tolerance above (the censored rows only remove samples). The counts are what the rows
@@ -328,6 +391,7 @@ int main(void)
         cmocka_unit_test(evidence_build_refusals),
         cmocka_unit_test(evidence_counts_censored_readings),
         cmocka_unit_test(evidence_smoother_stats_follow_a_curved_pot),
+        cmocka_unit_test(evidence_noise_sd_reads_noise_not_trajectory),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }
