@@ -286,7 +286,7 @@ static void evidence_smoother_stats_follow_a_curved_pot(void **state)
  * above, 12 windows of 40 samples, 100 data sets: the mean σ̂ within 5 % of σ (about 12·20
  * residual degrees of freedom per data set, so the mean's sampling error is below 1 %;
  * common practice, no source), and the standard errors are left as they were (u_xd stays
- * 0); (2) a noise-free whole batch in each window (xD 0.95 → 0.55 along 0.95 − 0.4 s⁴,
+ * 0); (2) a noise-free whole batch in each window (xD 0.95 → 0.55 along an exponential,
  * 24 samples): the local quadratics miss the trajectory by about 1e-3, which must not be
  * read as noise — σ̂ below 1e-4 (what the quartic fallback gives; the round-trip logs of
  * tests/cli/test_roundtrip.sh need it for their 1e-5 recovery of the law). */
@@ -329,7 +329,7 @@ static void evidence_noise_sd_reads_noise_not_trajectory(void **state)
         for (int i = 0; i < NB; i++) {
             double s = (double)i / (NB - 1);
             t[w][i] = 360.0 * i;
-            y[w][i] = 0.95 - 0.4 * s * s * s * s;
+            y[w][i] = 0.95 - 0.4 * expm1(4 * s) / expm1(4.0);
             yb[w][i] = 0.45 - 0.37 * s;
         }
         memset(&ev[w], 0, sizeof ev[w]);
