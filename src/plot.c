@@ -979,7 +979,7 @@ static void render(const stagecal_plot_chart *c, const prepared *pr, const char 
         if (p == 0)
             plmtex("t", 1.2, 0.5, 0.5, pr->title);
     }
-    if (lay->has_legend)
+    if (lay->has_legend && c->legend != STAGECAL_PLOT_LEGEND_HIDDEN)
         draw_legend(pr->pv, pr->np, chr, lay);
     plend1();
     plsstrm(old);

@@ -834,6 +834,27 @@ static void plot_legend_keeps_off_data(void **state)
             assert_false(legend_meets_data(&c, &lay));
             assert_true(lay.legend.x0 >= 0 && lay.legend.x1 <= 1 && lay.legend.y0 >= 0 &&
                         lay.legend.y1 <= 1);
+            /* hidden: the same boxes, no legend drawn (a chart that differs from this one
+             * only in the legend's pixels) */
+            stagecal_plot_layout hid;
+            stagecal_plot_chart ch = c;
+            ch.legend = STAGECAL_PLOT_LEGEND_HIDDEN;
+            par.layout = &hid;
+            char hpath[256];
+            snprintf(hpath, sizeof hpath, OUTDIR "/legend_hidden%d.%s", freec, fmt ? "svg" : "png");
+            assert_int_equal(stagecal_plot_write(&ch, hpath, &par, &err), STAGECAL_OK);
+            par.layout = &lay;
+            if (fmt) {
+                char *svg = slurp(hpath, NULL), *shown = slurp(path, NULL);
+                assert_non_null(svg);
+                assert_non_null(shown);
+                assert_null(strstr(svg, ">corner points<"));
+                assert_non_null(strstr(shown, ">corner points<"));
+                free(svg);
+                free(shown);
+            }
+            assert_true(memcmp(&hid.box[0], &lay.box[0], sizeof lay.box[0]) == 0);
+            assert_true(hid.legend_inside == lay.legend_inside);
             /* the box reserved holds the box drawn */
             assert_true(lay.legend.x0 >= lay.legend_est.x0 - 1e-9 &&
                         lay.legend.x1 <= lay.legend_est.x1 + 1e-9 &&

@@ -46,6 +46,8 @@
 extern "C" {
 #endif
 
+#define STAGECAL_PLOT_LEGEND_HIDDEN 2
+
 /* Output formats, chosen by file extension (.png, .svg, .pdf; case-insensitive). */
 typedef enum { STAGECAL_PLOT_PNG = 0, STAGECAL_PLOT_SVG, STAGECAL_PLOT_PDF } stagecal_plot_format;
 
@@ -105,7 +107,10 @@ typedef struct {
     double x_min, x_max; /* axis range; NAN (either end) → from the finite data, padded 4 % */
     double y_min, y_max;
     int x_time;     /* 1: x is seconds since 1970-01-01 UTC, the axis shows dates */
-    int legend;     /* 1: draw a legend of the labelled series */
+    int legend;     /* 1: draw a legend of the labelled series; STAGECAL_PLOT_LEGEND_HIDDEN:
+                       place it (the plot boxes leave its room, exactly as with 1) but do
+                       not draw it — a chart that differs from the one with its legend only
+                       in the legend's pixels, for tests that compare the two */
     int legend_pos; /* the corner tried first: 0 top left, 1 bottom right, 2 top right,
                        3 bottom left. The legend goes into the first corner of the plot box
                        (from this one on) where its box covers no data — no marker, line,
