@@ -404,7 +404,9 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
         double nw = median_of(tmp, q);
         double r = (res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX) ? INFINITY : runlog_rset(log, i);
         for (size_t a = i; a < e; a++) {
-            double xd = isfinite(xd_ss[a]) ? xd_ss[a] : log->xd[a], x, sb;
+            /* a row the compensation takes as still settling (NAN) is not in the relation: with
+             * its raw xD it made a trend on 2-min logs of a holdup column */
+            double xd = xd_ss[a], x, sb;
             stagecal_physics_cond pc;
             if (!(isfinite(xd) && isfinite(log->xb[a])) ||
                 log->xd_cens[a] != STAGECAL_CENSOR_NONE ||

@@ -24,8 +24,13 @@
  * Each run is read, analysed and inverted by the library (stagecal_runlog_analyse,
  * stagecal_runlog_invert); the run's closure says which analyser the test named. Printed:
  * per regime the share named xD, xB, unattributed and none (Wilson 95 % interval on the
- * share that matters), the gross-error and boil-up-mismatch rates. Progress on stderr when
- * it is a terminal. Not run by ctest (minutes of CPU).
+ * share that matters), the gross-error and boil-up-mismatch rates, the positive drifts named
+ * correctly, and the share right among the runs where fewer than half of the production xD
+ * readings sit at the analyser's limit (a positive drift on a distillate near 1 drives the
+ * readings to 1, where no analyser shows it). Exploring: STUDY_REGIME (one regime, 0-3),
+ * STUDY_DT (row spacing [s]), STUDY_NOISE (noise scale), STUDY_VERBOSE, STUDY_DUMP,
+ * STUDY_DYNAMIC, STUDY_NO_HOLDUP. Progress on stderr when it is a terminal. Not run by ctest
+ * (minutes of CPU).
  */
 #define _GNU_SOURCE
 #include <gsl/gsl_errno.h>
@@ -53,7 +58,7 @@ enum { REG_LAG, REG_HOLDUP, REG_XD, REG_XB, NREG };
 static const char *const reg_name[NREG] = {"lag (clean)", "holdup (clean)", "xd-drift", "xb-drift"};
 
 struct tally {
-    int n, named[4], gross, boilup, pos_ok, pos_n;
+    int n, named[4], gross, boilup, pos_ok, pos_n, obs_ok, obs_n;
 };
 
 struct row {
@@ -189,11 +194,15 @@ static int one_run(int reg, gsl_rng *rng, struct tally *ty)
     if (!f)
         return -1;
     fprintf(f, "time[h],W[mol],xD[mol/mol],xB[mol/mol],R[-],V[mol/s]\n");
+    int nprod = 0, nclip = 0; /* production rows, and those with xD at the analyser's limit */
+    /* exploring: STUDY_NOISE scales the analyser noise */
+    double noise = getenv("STUDY_NOISE") ? atof(getenv("STUDY_NOISE")) : 1.0;
     for (int k = 0; k < n; k++) {
         const struct row *o = &rows[k];
         double dt = o->t_h - rows[0].t_h;
-        double xd = clip01(o->xd + gsl_ran_gaussian(rng, 0.002) + dxd * dt);
-        double xb = clip01(o->xb + gsl_ran_gaussian(rng, 0.003) + dxb * dt);
+        double xd = clip01(o->xd + noise * gsl_ran_gaussian(rng, 0.002) + dxd * dt);
+        double xb = clip01(o->xb + noise * gsl_ran_gaussian(rng, 0.003) + dxb * dt);
+        nprod += isfinite(o->r), nclip += isfinite(o->r) && (xd >= 1 || xd <= 0);
         fprintf(f, "%.6f,%.4f,%.6f,%.6f,", o->t_h, o->w, xd, xb);
         if (isinf(o->r))
             fprintf(f, "inf,");
@@ -229,16 +238,24 @@ static int one_run(int reg, gsl_rng *rng, struct tally *ty)
             ty->n++;
             if (getenv("STUDY_VERBOSE"))
                 fprintf(stderr,
-                        "%s N=%d R=%g rows=%d win=%zu | xD bal %+.2e±%.1e stg %+.2e±%.1e T %.1f Q "
+                        "%s N=%d R=%g rows=%d clip=%d/%d win=%zu | xD bal %+.2e±%.1e stg "
+                        "%+.2e±%.1e T %.1f Q "
                         "%.1f | xB bal %+.2e±%.1e stg %+.2e±%.1e T %.1f Q %.1f -> %s\n",
-                        reg_name[reg], p.n_stages, p.reflux, n, res.nwindows, c->sig[0].d_bal,
-                        c->sig[0].se_bal, c->sig[0].d_stg, c->sig[0].se_stg, c->sig[0].t_stat,
-                        c->sig[0].q_stat, c->sig[1].d_bal, c->sig[1].se_bal, c->sig[1].d_stg,
-                        c->sig[1].se_stg, c->sig[1].t_stat, c->sig[1].q_stat,
+                        reg_name[reg], p.n_stages, p.reflux, n, nclip, nprod, res.nwindows,
+                        c->sig[0].d_bal, c->sig[0].se_bal, c->sig[0].d_stg, c->sig[0].se_stg,
+                        c->sig[0].t_stat, c->sig[0].q_stat, c->sig[1].d_bal, c->sig[1].se_bal,
+                        c->sig[1].d_stg, c->sig[1].se_stg, c->sig[1].t_stat, c->sig[1].q_stat,
                         stagecal_drift_analyser_name(c->drift_analyser));
             ty->named[c->drift_analyser]++;
             ty->gross += c->gross;
             ty->boilup += c->boilup_mismatch;
+            /* observable: at least half the production readings of xD below the limit */
+            if (2 * nclip < nprod) {
+                ty->obs_n++;
+                ty->obs_ok += (reg == REG_XD && c->drift_analyser == STAGECAL_DRIFT_DISTILLATE) ||
+                              (reg == REG_XB && c->drift_analyser == STAGECAL_DRIFT_POT) ||
+                              (reg < REG_XD && c->drift_analyser == STAGECAL_DRIFT_NONE);
+            }
             if (sign > 0) {
                 ty->pos_n++;
                 ty->pos_ok += (reg == REG_XD && c->drift_analyser == STAGECAL_DRIFT_DISTILLATE) ||
@@ -307,6 +324,10 @@ int main(int argc, char **argv)
                hi, (double)ty.gross / ty.n, (double)ty.boilup / ty.n);
         if (reg >= REG_XD)
             printf("%-16s positive drift: %d of %d named correctly\n", "", ty.pos_ok, ty.pos_n);
+        wilson(ty.obs_ok, ty.obs_n, &lo, &hi);
+        printf("%-16s runs with < half of the xD readings at the analyser's limit: %d of %d right "
+               "(%.3f [%.3f, %.3f])\n",
+               "", ty.obs_ok, ty.obs_n, ty.obs_n ? (double)ty.obs_ok / ty.obs_n : 0, lo, hi);
         fflush(stdout);
     }
     printf("target share: clean regimes the false-alarm rate (any drift flagged); drift regimes "
