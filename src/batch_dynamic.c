@@ -321,7 +321,7 @@ int batch_dyn_restructure(stagecal_batch_workspace *w, stagecal_error *err)
 {
     double r, n, old[DYN_MAXSTAGES], xd = w->hd > 0 ? w->u[NSTATE + w->nw] : 0;
     unsigned o;
-    size_t nw;
+    size_t nw = 0;
     int rc = batch_dyn_policy(w, w->u[1] / w->u[0], &r, &n, &o, err);
     if (rc)
         return rc;
