@@ -401,6 +401,51 @@ static void sensitivities(const stagecal_vle *vle, double xd, double xb, double 
     }
 }
 
+/* The common case of run-log mode on its own: constant α, E_MV = 1, finite R, no
+ * azeotrope, the closed form applicable and ok. The same operations in the same order as
+ * invert_core's path through reject_inputs, stepper_init, the line's tangents, x_target and
+ * closed_form, without its generic machinery (status texts, the stepper, the vle dispatch),
+ * so every number is the same double. Returns 1 when res is filled; 0 for every other case,
+ * which invert_core then handles (it repeats the checks and gives the reasons). */
+static int alpha_closed_fast(const stagecal_vle *vle, double xd, double xb, double reflux,
+                             const stagecal_stages_params *par, int want,
+                             stagecal_stages_result *res)
+{
+    if (!(xd > 0.0 && xd < 1.0) || !(xb > 0.0 && xb < xd) || !(reflux > 0.0) || isinf(reflux) ||
+        vle->naz != 0)
+        return 0;
+    double a = vle->alpha, q = 1.0 / (reflux + 1.0);
+    tl3 m = tl_const(reflux / (reflux + 1.0)), b = tl_const(xd / (reflux + 1.0));
+    tl3 txd = tl_const(xd);
+    txd.d[TL_XD] = 1.0;
+    m.d[TL_R] = q * q;
+    b.d[TL_XD] = q;
+    b.d[TL_R] = -xd * q * q;
+    double dp = 1.0 + (a - 1.0) * xb; /* y*(xB) and its slope as alpha_query has them */
+    tl3 typot = tl_const(a * xb / dp);
+    typot.d[TL_XB] = a / (dp * dp);
+    tl3 txt = tl_div(tl_sub(typot, b), m);
+    double xt = txt.v;
+    if (!(xt > 0.0) || !(xt < xd) || !(a * xt / (1.0 + (a - 1.0) * xt) > m.v * xt + b.v))
+        return 0;
+    tl3 count;
+    if (!closed_form(vle, par, m, b, txd, txt, &count))
+        return 0;
+    if (want == 1 &&
+        !(isfinite(count.d[TL_XD]) && isfinite(count.d[TL_XB]) && isfinite(count.d[TL_R])))
+        return 0;
+    res->status = STAGECAL_STAGES_OK;
+    res->column_stages = count.v;
+    res->stages = res->column_stages + 1.0;
+    res->lv = m.v;
+    res->x_target = xt;
+    res->dstages_dxd = want == 1 ? count.d[TL_XD] : 0.0;
+    res->dstages_dxb = want == 1 ? count.d[TL_XB] : 0.0;
+    res->dstages_dr = want == 1 ? count.d[TL_R] : 0.0;
+    res->reason[0] = '\0';
+    return 1;
+}
+
 int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double reflux,
                            double murphree, const stagecal_stages_params *params,
                            stagecal_stages_result *res, stagecal_error *err)
@@ -414,6 +459,10 @@ int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double
         par = &def;
     }
     int want = par->want_sensitivities;
+    if (want != 2 && murphree == 1.0 && par->closed_form &&
+        stagecal_vle_get_kind(vle) == STAGECAL_VLE_ALPHA &&
+        alpha_closed_fast(vle, xd, xb, reflux, par, want, res))
+        return STAGECAL_OK;
     tl3 tl;
     int rc = invert_core(vle, xd, xb, reflux, murphree, par, res, want == 1 ? &tl : NULL, err);
     if (rc != STAGECAL_OK || res->status != STAGECAL_STAGES_OK || !want)

@@ -93,13 +93,54 @@ typedef struct {
     tl3 lna;  /* ln(α/(m c²)) > 0: ln of the per-stage factor */
 } smoker_consts;
 
-/* Returns 0 when the constants are usable (α > 1, 0 < m ≤ 1, b ≥ 0, ln factor > 0). */
-int smoker_setup(tl3 alpha, tl3 m, tl3 b, smoker_consts *sc);
-/* Stage count from top liquid x0 down to xn (both > k); NaN when outside the domain. */
-tl3 smoker_count(const smoker_consts *sc, tl3 x0, tl3 xn);
-/* As smoker_count from the top x0 = xD of a line y = m·x + b through (xD, xD), accurate
- * also for xD near 1 (see the function). */
-tl3 smoker_count_top(const smoker_consts *sc, tl3 m, tl3 xd, tl3 xn);
+/* Returns 0 when the constants are usable (α > 1, 0 < m ≤ 1, b ≥ 0, ln factor > 0).
+ * smoker_count: stage count from top liquid x0 down to xn (both > k); NaN when outside the
+ * domain. smoker_count_top: as smoker_count from the top x0 = xD of a line y = m·x + b
+ * through (xD, xD), accurate also for xD near 1. Inline (here rather than in
+ * stages_smoker.c) so that the inversion's hot path keeps the tangents in registers. */
+static inline int smoker_setup(tl3 alpha, tl3 m, tl3 b, smoker_consts *sc)
+{
+    tl3 am1 = tl_sub(alpha, tl_const(1.0));
+    tl3 a2 = tl_mul(m, am1);
+    tl3 a1 = tl_sub(tl_add(m, tl_mul(b, am1)), alpha);
+    tl3 disc = tl_sub(tl_mul(a1, a1), tl_mul(tl_scale(4.0, a2), b));
+    if (!(alpha.v > 1.0) || !(m.v > 0.0) || !(disc.v >= 0.0))
+        return -1;
+    /* The small root, in the cancellation-free form (a1 < 0): k = 2b/(−a1 + √disc). At
+     * total reflux b = 0 gives k = 0 exactly, c = 1, β = 1: the Fenske log-odds form. */
+    tl3 k = tl_div(tl_scale(2.0, b), tl_add(tl_scale(-1.0, a1), tl_sqrt(disc)));
+    tl3 c = tl_add(tl_const(1.0), tl_mul(am1, k));
+    tl3 mcc = tl_mul(tl_mul(m, c), c);
+    tl3 den = tl_sub(alpha, mcc);
+    if (!(den.v > 0.0))
+        return -1;
+    sc->k = k;
+    sc->beta = tl_div(tl_mul(tl_mul(m, c), am1), den);
+    sc->lna = tl_log(tl_div(alpha, mcc));
+    if (!(sc->lna.v > 0.0) || !isfinite(sc->lna.v) || !isfinite(sc->beta.v))
+        return -1;
+    return 0;
+}
+
+static inline tl3 smoker_count(const smoker_consts *sc, tl3 x0, tl3 xn)
+{
+    tl3 one = tl_const(1.0);
+    tl3 u0 = tl_div(one, tl_sub(x0, sc->k)), un = tl_div(one, tl_sub(xn, sc->k));
+    return tl_div(tl_log(tl_div(tl_sub(un, sc->beta), tl_sub(u0, sc->beta))), sc->lna);
+}
+
+static inline tl3 smoker_count_top(const smoker_consts *sc, tl3 m, tl3 xd, tl3 xn)
+{
+    /* u_0 − β = β·(k2 − xD)/(xD − k) with k2 the other root; the quadratic whose roots
+     * are k and k2 is −(α − 1)·xD·(1 − xD) at xD (the line passes through (xD, xD)), so
+     * u_0 − β = β·xD·(1 − xD)/(m·(xD − k)²) without the cancellation of u_0 − β near
+     * xD → 1, where xD approaches k2. */
+    tl3 one = tl_const(1.0), g = tl_sub(xd, sc->k);
+    tl3 u0mb = tl_div(tl_mul(tl_mul(sc->beta, xd), tl_sub(one, xd)), tl_mul(m, tl_mul(g, g)));
+    tl3 unmb = tl_sub(tl_div(one, tl_sub(xn, sc->k)), sc->beta);
+    return tl_div(tl_log(tl_div(unmb, u0mb)), sc->lna);
+}
+
 /* Closed-form inverse: the liquid after n (real) stages from x0. */
 double smoker_inverse(const smoker_consts *sc, double x0, double n);
 
