@@ -105,6 +105,35 @@ static int file_begin(struct file_read *fr, stagecal_runlog *log, FILE *in, cons
     return STAGECAL_OK;
 }
 
+/* A line read as libcsv reads it, without libcsv: when the parser is between rows and the
+ * line ends in a line feed and holds no quote, carriage return, NUL, space or tab (other than
+ * a tab separator) — the plain numeric rows of a historian's export — libcsv (default
+ * options with CSV_APPEND_NULL) would hand over exactly the separator-delimited pieces, each
+ * NUL-terminated, then end the row; here they are cut in place. Every other line (quotes,
+ * trimmed spaces, CR LF endings, a row continued from the last line) goes to libcsv. Returns
+ * 1 when the line was read here. */
+static int plain_line(struct file_read *fr, char *s, size_t len)
+{
+    unsigned char sep = (unsigned char)fr->rd->sep;
+    if (fr->p.pstate != 0 || fr->p.entry_pos != 0 || len < 2 || s[len - 1] != '\n')
+        return 0; /* (pstate 0: libcsv's ROW_NOT_BEGUN) */
+    for (size_t i = 0; i + 1 < len; i++) {
+        unsigned char c = (unsigned char)s[i];
+        if ((c <= ' ' && c != sep) || c == '"')
+            return 0;
+    }
+    char *f = s, *end = s + len - 1, *d;
+    *end = '\0';
+    while ((d = memchr(f, sep, (size_t)(end - f))) != NULL) {
+        *d = '\0';
+        reader_on_field(f, (size_t)(d - f), fr->rd);
+        f = d + 1;
+    }
+    reader_on_field(f, (size_t)(end - f), fr->rd);
+    reader_on_row('\n', fr->rd);
+    return 1;
+}
+
 /* Reads lines to the end of the file or, with stop, until the log holds a complete run (a
  * second one has begun). Returns 1 at the end (or a failure), 0 when stopped. */
 static int file_pump(struct file_read *fr, int stop)
@@ -126,8 +155,9 @@ static int file_pump(struct file_read *fr, int stop)
         fr->sum = checksum_update(fr->sum, fr->buf, (size_t)len);
         fr->nbytes += (uint64_t)len;
         fr->last_nl = fr->buf[len - 1] == '\n';
-        if (csv_parse(&fr->p, fr->buf, (size_t)len, reader_on_field, reader_on_row, rd) !=
-            (size_t)len) {
+        if (!plain_line(fr, fr->buf, (size_t)len) &&
+            csv_parse(&fr->p, fr->buf, (size_t)len, reader_on_field, reader_on_row, rd) !=
+                (size_t)len) {
             reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, NULL, "%s",
                            csv_strerror(csv_error(&fr->p)));
             fr->parse_failed = 1;
