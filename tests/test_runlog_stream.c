@@ -5,7 +5,7 @@
  * Oracles: glibc's strtod for the numbers (correctly rounded, as C11 7.22.1.3 recommends
  * and glibc documents); for the stream, the whole-file reader stagecal_runlog_read (the
  * same rows, values, lines, runs and findings, in the same order, on the demo logs and on
- * every bad input of tests/badinput/).
+ * every bad input of tests/badinput/); for the reader's own cutting of plain lines, libcsv.
  */
 #include <setjmp.h>
 #include <stdarg.h>
@@ -392,6 +392,74 @@ static void runlog_stream_found_runs_as_whole(void **state)
     remove(path);
 }
 
+/* The reader cuts a plain line (no quote, CR, NUL, space or tab) at its separators itself
+ * and gives every other line to libcsv (runlog_stream.c, plain_line). Oracle: libcsv — the
+ * same demo logs with every line ended by CR LF, or with a space before every line end
+ * (which libcsv trims), go through libcsv line by line, and must give the same rows, values,
+ * runs, lines and findings as the plain file. */
+static void read_text(const char *text, size_t len, const stagecal_column *col,
+                      stagecal_runlog **log, stagecal_findings **f)
+{
+    stagecal_runlog_params rp = stagecal_runlog_default_params();
+    rp.sha256 = 0;
+    *log = stagecal_runlog_alloc();
+    *f = stagecal_findings_alloc(1000);
+    assert_int_equal(stagecal_runlog_read_buffer(*log, text, len, "demo.csv", col, &rp, *f, NULL),
+                     STAGECAL_OK);
+}
+
+static void runlog_plain_lines_as_libcsv(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    const char *p[14];
+    demo_setup(&col, p);
+    for (int i = 0; i < 14; i += 3) {
+        FILE *in = fopen(p[i], "rb");
+        assert_non_null(in);
+        static char text[1 << 20], alt[2][1 << 21];
+        size_t len = fread(text, 1, sizeof text, in), na[2] = {0, 0};
+        fclose(in);
+        assert_true(len > 0 && len < sizeof text);
+        for (size_t k = 0; k < len; k++) {
+            if (text[k] == '\n') {
+                alt[0][na[0]++] = '\r';
+                alt[1][na[1]++] = ' ';
+            }
+            alt[0][na[0]++] = alt[1][na[1]++] = text[k];
+        }
+        stagecal_runlog *a, *b;
+        stagecal_findings *fa, *fb;
+        read_text(text, len, &col, &a, &fa);
+        for (int v = 0; v < 2; v++) {
+            read_text(alt[v], na[v], &col, &b, &fb);
+            assert_true(a->n > 300);
+            assert_int_equal(a->n, b->n);
+            assert_int_equal(a->nruns, b->nruns);
+            for (size_t k = 0; k < a->nruns; k++) {
+                assert_string_equal(a->runs[k].name, b->runs[k].name);
+                assert_int_equal(a->runs[k].n, b->runs[k].n);
+            }
+            for (size_t w = 0; w < a->n; w++) {
+                double va[] = {a->t_s[w], a->w_mol[w], a->xd[w], a->xb[w], a->r[w]};
+                double vb[] = {b->t_s[w], b->w_mol[w], b->xd[w], b->xb[w], b->r[w]};
+                assert_memory_equal(va, vb, sizeof va);
+                assert_int_equal(a->line[w], b->line[w]);
+                assert_int_equal(a->xd_cens[w], b->xd_cens[w]);
+                assert_int_equal(a->xb_cens[w], b->xb_cens[w]);
+            }
+            assert_int_equal(fa->n, fb->n);
+            for (size_t k = 0; k < fa->n; k++)
+                assert_string_equal(fa->items[k].text, fb->items[k].text);
+            stagecal_runlog_free(b);
+            stagecal_findings_free(fb);
+        }
+        stagecal_runlog_free(a);
+        stagecal_findings_free(fa);
+    }
+    stagecal_column_free(&col);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -402,6 +470,7 @@ int main(void)
         cmocka_unit_test(runlog_stream_inversion_as_whole),
         cmocka_unit_test(runlog_stream_measured_reflux_as_whole),
         cmocka_unit_test(runlog_stream_found_runs_as_whole),
+        cmocka_unit_test(runlog_plain_lines_as_libcsv),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
