@@ -26,6 +26,7 @@
 
 #include <float.h>
 #include <math.h>
+#include <stdint.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -79,14 +80,42 @@ const char *stagecal_regress_stop_text(stagecal_stop stop)
 /* Weighted residuals sqrt(w)·(m − y) into res (n) and, when J is not NULL, the weighted
  * Jacobian (n×p, row-major). Returns EINVAL when the form is undefined at some point for
  * this θ. The stage-space problem of the driver. */
+/* The form at one θ is a function of (R, F) alone, and a log's windows share few pairs (the
+ * reflux set-points; no load): each call keeps the value and gradient at up to MEMO pairs,
+ * keyed by their bits, so a pair seen again costs a lookup (the same doubles as evaluating
+ * again). With 835 windows at 6 set-points and a 1000-resample bootstrap the evaluations were
+ * a fifth of calibrate. */
+#define MEMO 64
+typedef struct {
+    uint64_t r, f; /* the pair's bits */
+    int used;
+    double m, g[STAGECAL_FORM_MAXP];
+} memo_entry;
+
 static int residuals(const pts *d, const double *theta, double *res, double *J)
 {
-    double g[STAGECAL_FORM_MAXP], m;
+    memo_entry memo[MEMO];
     size_t p = d->form->p;
+    for (size_t k = 0; k < MEMO; k++)
+        memo[k].used = 0;
     for (size_t i = 0; i < d->n; i++) {
-        int rc = stagecal_form_eval(d->form, theta, d->r[i], pt_f(d, i), &m, J ? g : NULL);
-        if (rc != STAGECAL_OK)
-            return rc;
+        double r = d->r[i], fl = pt_f(d, i);
+        uint64_t br, bf;
+        memcpy(&br, &r, sizeof br);
+        memcpy(&bf, &fl, sizeof bf);
+        memo_entry *e =
+            &memo[((br ^ (bf * UINT64_C(0x9E3779B97F4A7C15))) * UINT64_C(0x9E3779B97F4A7C15)) >>
+                  58];
+        if (!e->used || e->r != br || e->f != bf) {
+            int rc = stagecal_form_eval(d->form, theta, r, fl, &e->m, e->g);
+            if (rc != STAGECAL_OK)
+                return rc;
+            e->used = 1;
+            e->r = br;
+            e->f = bf;
+        }
+        double m = e->m;
+        const double *g = e->g;
         double sw = sqrt(d->w[i]);
         res[i] = sw * (m - d->y[i]);
         if (J)
