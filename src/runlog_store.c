@@ -92,7 +92,7 @@ static int grow_doubles(double **a, size_t n, size_t cap)
 
 int runlog_grow_rows(stagecal_runlog *log)
 {
-    size_t cap = log->cap ? 2 * log->cap : 4096;
+    size_t cap = log->cap ? 2 * log->cap : 64; /* doubling: small logs stay small */
     double **arr[] = {&log->t_s,     &log->w_mol,   &log->xd,       &log->xb,      &log->r,
                       &log->v_mol_s, &log->p_pa,    &log->t_top_k,  &log->t_pot_k, &log->t_reflux_k,
                       &log->r_set,   &log->u_r_set, &log->u_xd_inf, &log->u_xb_inf};
