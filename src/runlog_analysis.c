@@ -58,21 +58,14 @@ stagecal_runlog_analysis_params stagecal_runlog_analysis_default_params(void)
                                              .holdup = -1};
 }
 
-int stagecal_runlog_rstat(const double *x, size_t n, double l1, double l2, double l3,
-                          double floor_var, double *r, stagecal_error *err)
+/* The R-statistic filters from sample `from` on, with the state (xf, prev, v2, d2) after
+ * the samples before it; r[i − 1] receives the statistic after sample i, a missing sample
+ * repeats the last value. */
+static void rstat_from(const double *x, size_t from, size_t n, double l1, double l2, double l3,
+                       double floor_var, double xf, double prev, double v2, double d2, double last,
+                       double *r)
 {
-    if (!(l1 > 0 && l1 <= 1 && l2 > 0 && l2 <= 1 && l3 > 0 && l3 <= 1) || !(floor_var >= 0))
-        return error_set(err, STAGECAL_EINVAL,
-                         "filter factors must lie in (0, 1] and the floor be >= 0");
-    if (n < 2)
-        return error_set(err, STAGECAL_EINVAL, "the R-statistic needs at least 2 samples");
-    size_t i = 0;
-    while (i < n && isnan(x[i])) /* start at the first present sample */
-        r[i > 0 ? i - 1 : 0] = 1.0, i++;
-    if (i >= n)
-        return STAGECAL_OK;
-    double xf = x[i], prev = x[i], v2 = 0.0, d2 = 0.0, last = 1.0;
-    for (i = i + 1; i < n; i++) {
+    for (size_t i = from; i < n; i++) {
         if (isnan(x[i])) {
             r[i - 1] = last;
             continue;
@@ -88,7 +81,63 @@ int stagecal_runlog_rstat(const double *x, size_t n, double l1, double l2, doubl
         last = den > 0 ? num / den : (num > 0 ? 1e300 : 1.0);
         r[i - 1] = last;
     }
+}
+
+int stagecal_runlog_rstat(const double *x, size_t n, double l1, double l2, double l3,
+                          double floor_var, double *r, stagecal_error *err)
+{
+    if (!(l1 > 0 && l1 <= 1 && l2 > 0 && l2 <= 1 && l3 > 0 && l3 <= 1) || !(floor_var >= 0))
+        return error_set(err, STAGECAL_EINVAL,
+                         "filter factors must lie in (0, 1] and the floor be >= 0");
+    if (n < 2)
+        return error_set(err, STAGECAL_EINVAL, "the R-statistic needs at least 2 samples");
+    size_t i = 0;
+    while (i < n && isnan(x[i])) /* start at the first present sample */
+        r[i > 0 ? i - 1 : 0] = 1.0, i++;
+    if (i >= n)
+        return STAGECAL_OK;
+    rstat_from(x, i + 1, n, l1, l2, l3, floor_var, x[i], x[i], 0.0, 0.0, 1.0, r);
     return STAGECAL_OK;
+}
+
+/* Restarts the R-statistic of a run's signal x[0..n) at the end of the warm-up (sample w),
+ * with the filter state estimated from the last len warm-up samples instead of carried
+ * through the whole warm-up: the mean as the filtered value, their variance about it
+ * (× 2/(2 − λ1), its steady-state expectation relative to σ²) as v², the mean squared
+ * difference of successive samples as δ². A stretch still moving at the end of the
+ * warm-up reads as moving at once (its variance about the mean exceeds half the squared
+ * differences); a settled one reads R ≈ 1 at once instead of after the filters forget the
+ * start-up ramp, which takes about ln(ramp²/σ²)/λ2 samples — five hours of a ten-hour
+ * batch logged every 10 minutes (the demo's first batches of February 2025 had no window).
+ * Leaves r as it is when fewer than 2 successive pairs of the len samples are present. */
+static void rstat_restart(const double *x, size_t n, size_t w, size_t len,
+                          const stagecal_runlog_analysis_params *par, double floor_var, double *r)
+{
+    if (w < 2 || w >= n || len < 3)
+        return;
+    size_t a = w - (len < w ? len : w), k = 0, np = 0;
+    double mean = 0, prev = NAN, ss = 0, dd = 0;
+    for (size_t i = a; i < w; i++) {
+        if (isnan(x[i])) {
+            prev = NAN;
+            continue;
+        }
+        k++;
+        double dm = x[i] - mean;
+        mean += dm / (double)k;
+        ss += dm * (x[i] - mean); /* Welford */
+        if (!isnan(prev)) {
+            dd += (x[i] - prev) * (x[i] - prev);
+            np++;
+        }
+        prev = x[i];
+    }
+    if (np < 2 || isnan(prev))
+        return;
+    double l1 = par->lambda1, v2 = 2.0 / (2.0 - l1) * ss / (double)(k - 1), d2 = dd / (double)np;
+    double num = (2.0 - l1) * v2 + 2.0 * floor_var, den = d2 + 2.0 * floor_var;
+    r[w - 1] = den > 0 ? num / den : (num > 0 ? 1e300 : 1.0);
+    rstat_from(x, w, n, l1, par->lambda2, par->lambda3, floor_var, mean, prev, v2, d2, r[w - 1], r);
 }
 
 void result_free_members(stagecal_runlog_result *res)
@@ -431,6 +480,7 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
         double us = q ? median_inplace(tmp, q) : 0.0;
         stagecal_runlog_rstat(sig, m, par->lambda1, par->lambda2, par->lambda3, us * us + 1e-12, ra,
                               NULL);
+        rstat_restart(sig, m, warmup, min_window, par, us * us + 1e-12, ra);
         /* (b) balance residual of xB */
         for (size_t i = 0; i < m; i++)
             sig[i] = isnan(res->xb_rec[f + i]) || (res->flags[f + i] & STAGECAL_SAMPLE_OUTLIER)
@@ -438,6 +488,7 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
                          : log->xb[f + i] - res->xb_rec[f + i];
         stagecal_runlog_rstat(sig, m, par->lambda1, par->lambda2, par->lambda3, uxb * uxb + 1e-12,
                               rb, NULL);
+        rstat_restart(sig, m, warmup, min_window, par, uxb * uxb + 1e-12, rb);
         int steady = 0;
         for (size_t i = 0; i < m; i++) {
             size_t row = f + i;

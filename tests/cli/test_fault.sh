@@ -26,7 +26,9 @@ work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
 fail=0
 
-"$S" calibrate --quiet --column "$col" --fits "$work/fits" "$log1" "$log2" >/dev/null 2>&1 ||
+# the form is fixed: predict below states no vapour load, whatever form AICc ranks first
+"$S" calibrate --quiet --column "$col" --form saturating --fits "$work/fits" "$log1" "$log2" \
+    >/dev/null 2>&1 ||
     { echo "calibrate failed"; exit 1; }
 model=$(ls "$work"/fits/*/*.json)
 

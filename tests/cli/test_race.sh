@@ -20,7 +20,8 @@ trap 'rm -rf "$work"' EXIT
 fail=0
 N=8
 
-"$S" calibrate --quiet --column "$col" --fits "$work/fits" "$logs/2025-01.csv" \
+# the form is fixed: predict below states no vapour load, whatever form AICc ranks first
+"$S" calibrate --quiet --column "$col" --form saturating --fits "$work/fits" "$logs/2025-01.csv" \
     "$logs/2025-02.csv" >/dev/null 2>&1 || { echo "calibrate failed"; exit 1; }
 model=$(ls "$work"/fits/*/*.json)
 
