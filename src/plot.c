@@ -20,10 +20,12 @@
 #include "stagecal/plot.h"
 
 #include <ctype.h>
+#include <errno.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include <plplot.h>
 
@@ -1064,6 +1066,40 @@ static size_t svg_plain_text(char *buf, size_t n)
     return w;
 }
 
+/* PLplot lists its drivers in a temporary file (in $TMPDIR, else /tmp) the first time a
+ * chart is drawn and, when nothing could be written there, exits the process ("No device
+ * drivers found", exit 1; issue 18: a completely full disk). Checked first, once per
+ * process: a 256-byte file written and removed (the list is 680 bytes here, and its first
+ * lines, the cairo devices, are enough). */
+static int plplot_tmp_writable(stagecal_error *err)
+{
+    static int ok;
+    if (ok)
+        return STAGECAL_OK;
+    const char *dir = getenv("TMPDIR");
+    if (!dir || !*dir)
+        dir = "/tmp"; /* PLplot's own default (P_tmpdir) */
+    char path[4096], buf[256];
+    memset(buf, '\n', sizeof buf);
+    snprintf(path, sizeof path, "%s/stagecal-plplot-XXXXXX", dir);
+    int fd = mkstemp(path), e = errno;
+    ssize_t w = -1;
+    if (fd >= 0) {
+        w = write(fd, buf, sizeof buf);
+        e = w < 0 ? errno : ENOSPC;
+        if (close(fd) != 0 && w == (ssize_t)sizeof buf)
+            w = -1, e = errno;
+        unlink(path);
+    }
+    if (w != (ssize_t)sizeof buf)
+        return error_set(err, STAGECAL_EWRITE,
+                         "cannot draw a chart: the chart library needs a small temporary file in "
+                         "'%s' and cannot write one (%s); is the disk full?",
+                         dir, strerror(e));
+    ok = 1;
+    return STAGECAL_OK;
+}
+
 /* Renders into the temporary file a (PLplot opens it by name) and checks that it is
  * complete; an SVG is rewritten with plain-text labels. out and len: the content when
  * wanted (caller frees), else NULL. */
@@ -1075,8 +1111,8 @@ static int render_to(const stagecal_plot_chart *c, stagecal_plot_format fmt, ato
     stagecal_plot_layout lay;
     char *buf = NULL;
     size_t n = 0;
-    int rc = prepare(c, &pr, err);
-    if (rc)
+    int rc = plplot_tmp_writable(err);
+    if (rc || (rc = prepare(c, &pr, err)))
         return rc;
     render(c, &pr, device_for(fmt), atomic_path(a), par, &lay);
     prepared_free(&pr);
