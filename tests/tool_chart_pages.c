@@ -46,6 +46,8 @@ int main(int argc, char **argv)
     stagecal_error err;
     stagecal_calibration cal;
     stagecal_calibrate_params par = stagecal_calibrate_default_params();
+    par.form = "saturating"; /* fixed: the condition below states no vapour load, whatever
+                                form AICc ranks first */
     if (stagecal_calibrate(column, (const char *const *)argv + 3, (size_t)(argc - 3), &par, &cal,
                            &err))
         return fail("calibrate", &err);
