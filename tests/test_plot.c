@@ -727,6 +727,8 @@ static void plot_run_marks_follow_the_analysis(void **state)
     assert_true(line->x[0] == 0);
     assert_int_equal(line->n, cal.log->runs[1].n + 1);
     assert_non_null(strstr(c->title, cal.log->runs[1].name));
+    stagecal_plot_chart_free(c);
+    c = NULL;
     assert_int_equal(stagecal_plot_run_calibration(&cal, cal.log->nruns, &c, &err),
                      STAGECAL_EINVAL);
     stagecal_plot_chart_free(c);
