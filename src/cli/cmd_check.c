@@ -77,7 +77,8 @@ static void print_outlier_lines(FILE *o, const stagecal_runlog *log,
 }
 
 /* The document: the files, the rows, the runs (one object each, in order) and the findings. */
-static int print_json(const stagecal_runlog_totals *t, json_t *runs, const stagecal_findings *f)
+static int print_json(const stagecal_runlog_totals *t, json_t *runs, const stagecal_findings *f,
+                      size_t missing)
 {
     json_t *doc = json_object(), *files = json_array();
     json_object_set_new(doc, "format", json_string("stagecal-check"));
@@ -89,7 +90,9 @@ static int print_json(const stagecal_runlog_totals *t, json_t *runs, const stage
     json_object_set_new(doc, "runs", runs);
     json_object_set_new(doc, "inferred", cli_soft_json(&t->soft));
     json_object_set_new(doc, "findings", findings_json(f));
-    json_object_set_new(doc, "errors", json_integer((json_int_t)f->n_errors));
+    /* a missing input is an error too: "errors" counts it, "missing" says how many */
+    json_object_set_new(doc, "errors", json_integer((json_int_t)(f->n_errors + missing)));
+    json_object_set_new(doc, "missing", json_integer((json_int_t)missing));
     json_object_set_new(doc, "warnings", json_integer((json_int_t)f->n_warnings));
     json_object_set_new(doc, "findings_truncated",
                         json_boolean(f->n < f->n_errors + f->n_warnings));
@@ -157,22 +160,28 @@ static void print_findings(const stagecal_findings *f)
 }
 
 /* The summary line on stderr. A run whose balance does not close is an error-level
- * finding about the run (not about a row), so the line never pairs it with "0 errors". */
-static void summary(const stagecal_runlog_totals *t, size_t gross, const stagecal_findings *f)
+ * finding about the run (not about a row), and so is an input that is missing (said above
+ * as it was met): the line never pairs either with "0 errors". */
+static void summary(const stagecal_runlog_totals *t, size_t gross, const stagecal_findings *f,
+                    size_t missing)
 {
+    size_t errors = f->n_errors + missing;
+    char miss[96] = "";
+    if (missing)
+        snprintf(miss, sizeof miss, " (%zu input(s) not read, see above)", missing);
     fprintf(stderr, "stagecal check: %zu rows, %zu runs: ", t->rows, t->nruns);
     if (gross == 0)
-        fprintf(stderr, "%zu errors, %zu warnings\n", f->n_errors, f->n_warnings);
-    else if (f->n_errors == 0)
+        fprintf(stderr, "%zu errors%s, %zu warnings\n", errors, miss, f->n_warnings);
+    else if (errors == 0)
         fprintf(stderr,
                 "rows valid, %zu warnings; %zu run(s) with a gross error in the mass "
                 "balance (see the closure lines)\n",
                 f->n_warnings, gross);
     else
         fprintf(stderr,
-                "%zu errors in the rows, %zu warnings; %zu run(s) with a gross error in "
+                "%zu errors%s, %zu warnings; %zu run(s) with a gross error in "
                 "the mass balance (see the closure lines)\n",
-                f->n_errors, f->n_warnings, gross);
+                errors, miss, f->n_warnings, gross);
 }
 
 /* The state of a streamed check: the runs' lines (text) or objects (JSON), a few numbers
@@ -211,11 +220,12 @@ static int check_run(struct check_out *out, const stagecal_runlog *run, const st
     return 0;
 }
 
-/* Reads and checks the logs run by run. A missing file is said and skipped (*missing = 1);
+/* Reads and checks the logs run by run. A missing file is said and skipped (counted in
+ * *missing);
  * an unusable one is a finding. 0, or an exit code after saying why. */
 static int check_stream(struct check_out *out, char **paths, size_t n, const stagecal_column *col,
                         const stagecal_runlog_params *rp, const stagecal_runlog_analysis_params *ap,
-                        stagecal_findings *f, int *missing)
+                        stagecal_findings *f, size_t *missing)
 {
     stagecal_error err;
     stagecal_error_clear(&err);
@@ -229,7 +239,7 @@ static int check_stream(struct check_out *out, char **paths, size_t n, const sta
         int st = stagecal_runlog_stream_next(s, run, &err);
         if (st == STAGECAL_ENOINPUT) {
             cli_error("%s", err.text);
-            *missing = 1;
+            (*missing)++;
         } else if (st != STAGECAL_OK && st != STAGECAL_EDATA) {
             rc = cli_fail(&err);
         } else if (st == STAGECAL_OK && run->n == 0) {
@@ -295,7 +305,7 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
         out.runs = json_array();
     else
         out.text = open_memstream(&out.buf, &out.len);
-    int missing = 0;
+    size_t missing = 0;
     if (!f || !(ctx->json ? out.runs != NULL : out.text != NULL)) {
         cli_error("out of memory");
         rc = CLI_EXIT_SOFTWARE;
@@ -303,7 +313,7 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
                                   have_col ? &col : NULL, &rp, &ap, f, &missing))) {
         /* said */
     } else if (ctx->json) {
-        rc = print_json(&out.t, out.runs, f) ? CLI_EXIT_CANTCREAT : 0;
+        rc = print_json(&out.t, out.runs, f, missing) ? CLI_EXIT_CANTCREAT : 0;
         out.runs = NULL; /* the document owns it */
     } else {
         print_findings(f);
@@ -312,7 +322,7 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
         rc = out.len && fwrite(out.buf, 1, out.len, stdout) != out.len ? CLI_EXIT_CANTCREAT : 0;
     }
     if (rc == 0 && !cli_quiet)
-        summary(&out.t, out.gross, f);
+        summary(&out.t, out.gross, f, missing);
     if (rc == 0)
         cli_soft_summary("stagecal check", &out.t.soft);
     if (rc == 0)

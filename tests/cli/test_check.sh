@@ -49,6 +49,22 @@ check_exit too-few-rows 65 "$bin" check --min-rows 6 "$tmp/good.csv"
 check_line too-few-rows "$tmp/good.csv:2: run '$tmp/good.csv' has 5 rows (expected at least 6)" "$tmp/out"
 # errors in one file, a missing other: the missing input wins (66)
 check_exit missing-wins 66 "$bin" check "$tmp/range.csv" "$tmp/does-not-exist.csv"
+check_line missing-wins "stagecal check: 5 rows, 1 runs: 2 errors (1 input(s) not read, see above), 0 warnings" "$tmp/err"
+# an input that cannot be read is an error-level finding: the summary counts it and never
+# says "0 errors" beside it (issue 16, Build 6) — an empty name, a missing file beside a
+# clean one, and the same in JSON ("errors" counts it, "missing" says how many)
+check_exit empty-name 66 "$bin" check ''
+check_line empty-name "stagecal check: the run log name is empty (expected a file name)" "$tmp/err"
+check_line empty-name "stagecal check: 0 rows, 0 runs: 1 errors (1 input(s) not read, see above), 0 warnings" "$tmp/err"
+check_exit missing-beside-clean 66 "$bin" check "$tmp/good.csv" "$tmp/does-not-exist.csv"
+check_line missing-beside-clean "stagecal check: 5 rows, 1 runs: 1 errors (1 input(s) not read, see above), 0 warnings" "$tmp/err"
+if grep -q "0 errors" "$tmp/err"; then
+    echo "FAIL missing-beside-clean: '0 errors' beside a missing input"; cat "$tmp/err"; fails=$((fails + 1))
+fi
+check_exit empty-name-json 66 "$bin" check --json ''
+if ! /usr/bin/python3 -c "import json,sys; d=json.load(open(sys.argv[1])); sys.exit(0 if d['errors'] == 1 and d['missing'] == 1 else 1)" "$tmp/out"; then
+    echo "FAIL empty-name-json: errors/missing not 1/1"; cat "$tmp/out"; fails=$((fails + 1))
+fi
 # mass units with a column file that states molar masses
 col=$root/datasets/columns/kestrel_c3_ethanol_water.json
 if [ -f "$col" ]; then
