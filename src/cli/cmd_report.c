@@ -173,6 +173,8 @@ int cmd_report(int argc, char **argv, cli_ctx *ctx)
     int to_stdout = output && strcmp(output, "-") == 0;
     if (to_stdout && json)
         return cli_usage_error("options '--json' and '--output -' both write to standard output");
+    ctx->data_on_stdout = to_stdout; /* the HTML is the output: no caution after it (the
+                                        report carries its own) */
     char *out_owned = output ? NULL : default_output(model_path);
     if (!output && !out_owned) {
         cli_error("out of memory");

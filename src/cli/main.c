@@ -49,7 +49,8 @@ static const struct command commands[] = {
      "charts as PNG, SVG or PDF: McCabe-Thiele diagram, stages against R"},
     {"probe", cmd_probe, CMD_CAUTION,
      "where to run the next tests: I-/D-optimal conditions, band before/after"},
-    {"report", cmd_report, 0, "one self-contained HTML report (inline SVG, printable) of a model"},
+    {"report", cmd_report, CMD_CAUTION,
+     "one self-contained HTML report (inline SVG, printable) of a model"},
 };
 
 /* Runs one command with the setup its flags ask for. */

@@ -114,6 +114,16 @@ expect_exit 2 "options '--json' and '--output -'" -- "$BIN" report "$model" -o -
 head -n 1 "$tmp/report.html" | grep -q '^<!DOCTYPE html>' ||
     { echo "FAIL: report -o - did not write the HTML to stdout"; fails=$((fails + 1)); }
 [ -e "$tmp/-" ] && { echo "FAIL: report -o - created a file named '-'"; fails=$((fails + 1)); }
+# the HTML on stdout is the whole output: nothing after </html> (report prints the caution
+# after its text output, not after data on stdout; the report carries its own caution)
+[ "$(tail -n 1 "$tmp/report.html")" = "</html>" ] ||
+    { echo "FAIL: report -o -: something after </html> on stdout"; tail -n 3 "$tmp/report.html"; fails=$((fails + 1)); }
+grep -q "Caution" "$tmp/report.html" ||
+    { echo "FAIL: report -o -: the HTML has no caution"; fails=$((fails + 1)); }
+# written to a file: the text output names it and ends with the caution, once
+expect_exit 0 "" -- "$BIN" report "$model" -o "$tmp/r.html" --quiet
+grep -qx "report written to $tmp/r.html" "$tmp/out" && [ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] ||
+    { echo "FAIL: report text output lacks its file name or one caution"; cat "$tmp/out"; fails=$((fails + 1)); }
 # trend dates each fit by the last sample it used (provenance.data_last_utc).
 expect_exit 0 "" -- "$BIN" trend demo-bt-K-7 --fits "$tmp/fits" --reflux 3 --f-factor 1.3 --json --quiet
 $py - "$tmp/out" "$model" <<'PY' || { echo "FAIL: trend date is not the data period's end"; fails=$((fails + 1)); }

@@ -124,6 +124,8 @@ expect_exit 0 "" -- "$BIN" predict --model "$M" --column "$ROOT/datasets/columns
 [ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] || { echo "FAIL: predict text lacks one caution"; fails=$((fails + 1)); }
 expect_exit 0 "" -- "$BIN" invert --alpha 2.5 --xd 0.95 --xb 0.05 --reflux inf
 [ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] || { echo "FAIL: invert text lacks one caution"; fails=$((fails + 1)); }
+expect_exit 0 "" -- "$BIN" report "$M" -o "$tmp/report.html" --quiet
+[ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] || { echo "FAIL: report text lacks one caution"; fails=$((fails + 1)); }
 expect_exit 0 "" -- "$BIN" hetp "$M" --reflux 3 --packed-height 2 --json
 "$PY" -c "import json,sys; d=json.load(open('$tmp/out')); sys.exit(0 if d['caution'].startswith('Caution:') else 1)" ||
     { echo "FAIL: hetp --json: not one JSON document with its caution"; fails=$((fails + 1)); }
