@@ -209,6 +209,40 @@ int stagecal_design_evaluate(const stagecal_design_problem *pb, const stagecal_d
                              stagecal_design_criterion criterion, stagecal_design_result *res,
                              stagecal_design_at *at_out, stagecal_error *err);
 
+/* The numbers of the chart of a proposal (`stagecal probe --chart`; drawn by plot.h's
+ * stagecal_plot_design): over STAGECAL_DESIGN_CURVE_N reflux ratios evenly spaced from the
+ * smallest to the largest finite R among the search bounds, the proposed tests and the
+ * conditions of interest (the upper search bound, when it is total reflux, replaced by the
+ * model's largest fitted R), the fitted stages of m at F = at[0].f_load (load forms; the
+ * chart is a section at that F) and the band at the level of pb before and after the
+ * tests: stages ∓ t·sqrt(variance) (NAN where not determined). Tests and conditions at
+ * total reflux have no place on the R axis: they are counted, not drawn. */
+#define STAGECAL_DESIGN_CURVE_N 121
+#define STAGECAL_DESIGN_CURVE_MAXAT 64
+typedef struct {
+    size_t n;                          /* grid points (STAGECAL_DESIGN_CURVE_N) */
+    double r[STAGECAL_DESIGN_CURVE_N]; /* reflux ratios, ascending */
+    double stages[STAGECAL_DESIGN_CURVE_N];
+    double now_lo[STAGECAL_DESIGN_CURVE_N], now_hi[STAGECAL_DESIGN_CURVE_N];
+    double after_lo[STAGECAL_DESIGN_CURVE_N], after_hi[STAGECAL_DESIGN_CURVE_N];
+    size_t n_tests; /* proposed tests at finite R, and their fitted stages */
+    double test_r[STAGECAL_DESIGN_MAXK], test_stages[STAGECAL_DESIGN_MAXK];
+    size_t n_at; /* conditions of interest at finite R */
+    double at_r[STAGECAL_DESIGN_CURVE_MAXAT], at_stages[STAGECAL_DESIGN_CURVE_MAXAT];
+    size_t skipped_tests, skipped_at; /* at total reflux: not drawn */
+    double f_load;                    /* the F of the section (NAN when the form does not use it) */
+    double env_lo, env_hi;            /* the model's fitted envelope in R (NAN: open) */
+    double level;                     /* of the bands */
+    const char *column_id;            /* borrowed from m */
+} stagecal_design_curves;
+
+/* Fills c for the proposal res (stagecal_design_propose or _evaluate on pb, the problem
+ * of m) with its n_at conditions of interest at (n_at ≤ STAGECAL_DESIGN_CURVE_MAXAT, ≥ 1).
+ * EINVAL for a bad argument; statuses of stagecal_design_variance pass through. */
+int stagecal_design_chart_curves(const stagecal_model *m, const stagecal_design_problem *pb,
+                                 const stagecal_design_result *res, const stagecal_design_at *at,
+                                 size_t n_at, stagecal_design_curves *c, stagecal_error *err);
+
 /* "I-optimal" / "D-optimal"; "i" / "d". */
 const char *stagecal_design_criterion_name(stagecal_design_criterion c);
 const char *stagecal_design_criterion_key(stagecal_design_criterion c);

@@ -34,6 +34,7 @@
 #include "stagecal/batch.h"
 #include "stagecal/calibrate.h"
 #include "stagecal/chart.h"
+#include "stagecal/design.h"
 #include "stagecal/error.h"
 #include "stagecal/evidence.h"
 #include "stagecal/model.h"
@@ -404,6 +405,15 @@ typedef struct {
 
 int stagecal_plot_trajectory(const stagecal_plot_trajectory_data *d, stagecal_plot_chart **out,
                              stagecal_error *err);
+
+/* Where to run the next tests (`stagecal probe --chart`): stages against R with the
+ * confidence band now (sky blue) and the band expected after the proposed tests (blue),
+ * the fitted stages, the proposed tests (vermillion) and the conditions of interest
+ * (green) on the curve; beyond the fitted envelope the curve is dashed and both bands
+ * lighter (extrapolated). c: stagecal_design_chart_curves' result (design.h; plain
+ * numbers: the charts library does not link the design library). */
+int stagecal_plot_design(const stagecal_design_curves *c, stagecal_plot_chart **out,
+                         stagecal_error *err);
 
 /* The run chart: the raw runs against time in five stacked panels — distillate xD, pot
  * xB, pot holdup W, reflux ratio R, stage counts — with the quasi-steady windows shaded in

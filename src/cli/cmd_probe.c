@@ -283,91 +283,32 @@ static void print_text(const char *path, const stagecal_model *m, const struct c
            "column's safe operating limits.\n");
 }
 
-#define CHART_N 121
-
 /* Stages against R with the 95 % band before and after the tests, the tests and the
- * conditions of interest (load forms: at the first condition's F). */
+ * conditions of interest (load forms: at the first condition's F): the numbers from the
+ * design library, the chart from the charts library. */
 static int write_chart(const char *out, const stagecal_model *m, const stagecal_design_problem *pb,
                        const stagecal_design_result *res, const stagecal_design_at *at, size_t n_at)
 {
-    double x[CHART_N], y[CHART_N], b0l[CHART_N], b0h[CHART_N], b1l[CHART_N], b1h[CHART_N];
-    double tx[STAGECAL_DESIGN_MAXK], ty[STAGECAL_DESIGN_MAXK], ax[MAX_AT], ay[MAX_AT];
-    double f = m->form.uses_load ? at[0].f_load : NAN, lo = res->r_lo, hi = 0;
-    size_t nt = 0, skipped = 0;
-    for (size_t j = 0; j < n_at; j++) {
-        lo = fmin(lo, at[j].r);
-        if (isfinite(at[j].r))
-            hi = fmax(hi, at[j].r);
-        ax[j] = at[j].r;
-        ay[j] = at[j].stages;
-    }
-    hi = fmax(hi, isfinite(res->r_hi) ? res->r_hi : fmax(lo, isfinite(m->r_max) ? m->r_max : lo));
-    for (size_t t = 0; t < res->k; t++) {
-        stagecal_model_point pt;
-        if (!isfinite(res->tests[t].r)) {
-            skipped++;
-            continue;
-        }
-        hi = fmax(hi, res->tests[t].r);
-        tx[nt] = res->tests[t].r;
-        ty[nt] = stagecal_model_eval(m, tx[nt], f, 0, &pt, NULL) ? NAN : pt.stages;
-        nt++;
-    }
-    for (size_t i = 0; i < CHART_N; i++) {
-        stagecal_model_point pt;
-        double v0, v1;
-        int d0, d1;
-        x[i] = lo + (hi - lo) * (double)i / (CHART_N - 1);
-        if (stagecal_model_eval(m, x[i], f, 0, &pt, NULL) ||
-            stagecal_design_variance(pb, NULL, 0, x[i], f, &v0, &d0, NULL) ||
-            stagecal_design_variance(pb, res->tests, res->k, x[i], f, &v1, &d1, NULL)) {
-            y[i] = b0l[i] = b0h[i] = b1l[i] = b1h[i] = NAN;
-            continue;
-        }
-        y[i] = pt.stages;
-        b0l[i] = d0 ? y[i] - res->t_before * sqrt(v0) : NAN;
-        b0h[i] = d0 ? y[i] + res->t_before * sqrt(v0) : NAN;
-        b1l[i] = d1 ? y[i] - res->t_after * sqrt(v1) : NAN;
-        b1h[i] = d1 ? y[i] + res->t_after * sqrt(v1) : NAN;
-    }
-    if (skipped)
-        cli_warn("%zu test(s) at total reflux are not drawn on the R axis", skipped);
-    stagecal_plot_series s[5] = {
-        {STAGECAL_PLOT_BAND, "95 % band now", x, b0l, b0h, CHART_N, 5, 0, 0, 0},
-        {STAGECAL_PLOT_BAND, "95 % band after the tests (expected)", x, b1l, b1h, CHART_N, 0, 0, 0,
-         0},
-        {STAGECAL_PLOT_LINE, "fitted stages", x, y, NULL, CHART_N, 6, 0, 0, 0},
-        {STAGECAL_PLOT_POINTS, "proposed tests", tx, ty, NULL, nt, 1, 0, 2, 1.5},
-        {STAGECAL_PLOT_POINTS, "conditions of interest", ax, ay, NULL, n_at, 2, 0, 0, 1.5}};
-    char title[160];
-    if (m->form.uses_load)
-        snprintf(title, sizeof title, "%s: where to run the next tests (F = %.3g Pa^0.5)",
-                 m->column_id, f);
-    else
-        snprintf(title, sizeof title, "%s: where to run the next tests", m->column_id);
-    stagecal_plot_chart ch = {title,
-                              "reflux ratio R [-]",
-                              "stages incl. pot [-]",
-                              NAN,
-                              NAN,
-                              NAN,
-                              NAN,
-                              0,
-                              1,
-                              1,
-                              s,
-                              nt ? 5 : 3,
-                              NULL,
-                              NULL,
-                              0};
-    if (nt == 0) { /* keep the conditions of interest when every test is at total reflux */
-        s[3] = s[4];
-        ch.n_series = 4;
-    }
-    stagecal_plot_params pp = stagecal_plot_default_params();
+    stagecal_design_curves *c = malloc(sizeof *c);
+    stagecal_plot_chart *ch = NULL;
     stagecal_error err;
     stagecal_error_clear(&err);
-    return stagecal_plot_write(&ch, out, &pp, &err) ? cli_fail(&err) : 0;
+    if (!c) {
+        cli_error("out of memory");
+        return CLI_EXIT_SOFTWARE;
+    }
+    int rc = stagecal_design_chart_curves(m, pb, res, at, n_at, c, &err);
+    if (rc == STAGECAL_OK && c->skipped_tests)
+        cli_warn("%zu test(s) at total reflux are not drawn on the R axis", c->skipped_tests);
+    if (rc == STAGECAL_OK)
+        rc = stagecal_plot_design(c, &ch, &err);
+    if (rc == STAGECAL_OK) {
+        stagecal_plot_params pp = stagecal_plot_default_params();
+        rc = stagecal_plot_write(ch, out, &pp, &err);
+    }
+    stagecal_plot_chart_free(ch);
+    free(c);
+    return rc ? cli_fail(&err) : 0;
 }
 
 /* What the command line asks for. */
