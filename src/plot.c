@@ -709,10 +709,13 @@ static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size
             }
         }
     }
-    /* outside. One panel: on the right of the box, in a region of its own; stacked panels:
-     * below the x axis label, in as many columns as fit (they need the width) */
+    /* outside. One panel: on the right of the box, in a region of its own, unless that
+     * leaves the plot less than half the drawing's width (long labels: the chart would be
+     * a sliver beside its legend); stacked panels, and such a panel: below the x axis
+     * label, in as many columns as fit (they need the width) */
     l->legend_inside = 0;
-    if (ns > 1) {
+    double x1 = 0.985 - tw / (1 - LEG_PLOT_WIDTH);
+    if (ns > 1 || x1 - l->box[0].x0 < 0.5) {
         double rx0 = l->box[0].x0, rx1 = 0.99, rw = rx1 - rx0;
         size_t ncol = (size_t)floor(rw / (LEG_PLOT_WIDTH * rw + tw + 1.0 * ht / pw));
         ncol = ncol < 1 ? 1 : ncol > n ? n : ncol;
@@ -737,9 +740,6 @@ static void plan_layout(const stagecal_plot_chart *c, const panel_view *pv, size
         place_insets(pv, np, ht, pw, ph, l);
         return;
     }
-    double x1 = 0.985 - tw / (1 - LEG_PLOT_WIDTH);
-    if (x1 - l->box[0].x0 < 0.3) /* a legend too wide for the page: keep a usable plot */
-        x1 = l->box[0].x0 + 0.3;
     for (size_t p = 0; p < np; p++)
         l->box[p].x1 = x1;
     place_insets(pv, np, ht, pw, ph, l);

@@ -1,14 +1,17 @@
 #!/bin/sh
 # chart_render.sh — every chart of stagecal rendered in headless Chromium, with two
 # checks a reviewer's eye would make:
-#   (a) the legend covers no plotted data (a pixel test);
+#   (a) the legend covers no plotted data (a pixel test), stays inside the drawing and
+#       leaves the plot at least half its width;
 #   (b) the SVG text is text (labels are <text> elements Chromium reads as text).
 #
 # usage: sh chart_render.sh <stagecal-binary> <repo-root> <tool_chart_pages-binary>
 #
 # tool_chart_pages writes the charts (the report's run chart, fit, residual and
 # McCabe-Thiele charts of the invented demo calibration, the run chart of one run, a trend
-# and a batch chart, and a known case whose markers fill three quarters of the plot box)
+# and a batch chart, the self-starting chart of `history`, the McCabe-Thiele chart at 30
+# stages with its zoomed inset, the chart of `probe`, and a known case whose markers fill
+# three quarters of the plot box)
 # into two pages that differ only in the legend: on.html draws it, off.html does not.
 # Where the renderer put the legend inside a plot box, Chromium's screenshots of the two
 # pages differ only there: those pixels are the legend's box, and in the legend-free
@@ -144,6 +147,15 @@ def legend_check(label, img_legend, k):
     return box, data_pixels(off, box)
 
 for k, name in enumerate(names):
+    # the legend lies inside the drawing (a legend cut at the page edge loses its labels),
+    # and a legend outside leaves the plot at least half the drawing's width
+    (lx0, lx1, ly0, ly1), pboxes = geom[name]
+    if lx0 < -0.003 or lx1 > 1.003 or ly0 < -0.003 or ly1 > 1.003:
+        print(f"FAIL: chart '{name}': the legend leaves the drawing (x {lx0:.3f}-{lx1:.3f}, "
+              f"y {ly0:.3f}-{ly1:.3f})"); ok = False
+    if pboxes and pboxes[0][1] - pboxes[0][0] < 0.5:
+        print(f"FAIL: chart '{name}': the plot is {pboxes[0][1] - pboxes[0][0]:.3f} of the "
+              f"drawing's width beside its legend"); ok = False
     if not inside[name]:
         (lx0, lx1, ly0, ly1), pboxes = geom[name]
         hit = [i for i, (x0, x1, y0, y1) in enumerate(pboxes)

@@ -7,7 +7,12 @@
  * Charts: the report's (the run chart of all runs, stages against R with bands and
  * envelope, residuals, the McCabe–Thiele stepping at R = 3, xD = 0.95) from a calibration
  * of the invented demo logs; the run chart of the left-out run K7-018; a trend chart and
- * a batch chart on invented numbers; and a known case for the
+ * a batch chart on invented numbers; the trend-over-time chart of `trend` (16 invented
+ * fits, a repack, a forecast) and the predicted batch of `trajectory` (partly beyond the
+ * fitted envelope); the self-starting EWMA/CUSUM chart of `history` (30
+ * invented runs with a step loss); the McCabe–Thiele chart at 30 stages (zoomed inset of
+ * the top section, pinch marked); the chart of `probe` (where to run the next tests) for
+ * the demo calibration; and a known case for the
  * legend test: vermilion markers that fill three quarters of the plot box (top left,
  * bottom left, bottom right) and leave the top-right quarter empty, so a legend that
  * covers no data has exactly one corner to go to.
@@ -23,11 +28,16 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "stagecal/batch.h"
 #include "stagecal/calibrate.h"
+#include "stagecal/chart.h"
+#include "stagecal/design.h"
 #include "stagecal/plot.h"
 #include "stagecal/report.h"
+#include "stagecal/trend.h"
+#include "stagecal/vle.h"
 
-#define MAXC 12
+#define MAXC 20
 #define NK 60 /* markers in each filled quarter of the known case */
 
 static int fail(const char *what, const stagecal_error *err)
@@ -122,6 +132,99 @@ int main(int argc, char **argv)
         return fail("batch chart", &err);
     charts[n] = *own[n];
     names[n++] = "batch";
+
+    /* trend over time (`stagecal plot trend`): 16 monthly fits (invented) losing 0.12 stage
+     * a month, a repack after the eighth, the forecast against a requirement of 7.5 stages */
+    stagecal_trend_point tp[16];
+    for (int i = 0; i < 16; i++)
+        tp[i] = (stagecal_trend_point){
+            1735689600.0 + i * 30.4 * 86400,
+            (i < 8 ? 9.0 - 0.12 * i : 9.2 - 0.12 * (i - 8)) + 0.08 * sin(1.3 * i), 0.08};
+    stagecal_trend_event ev = {1735689600.0 + 7.5 * 30.4 * 86400, "demo-bt-K-7",
+                               STAGECAL_EVENT_REPACK, "bed repacked (invented)", 0};
+    stagecal_trend_params tpar = stagecal_trend_default_params();
+    tpar.required = 7.5;
+    stagecal_trend_history th;
+    memset(&th, 0, sizeof th);
+    if (stagecal_trend_analyse(tp, 16, &ev, 1, "demo-bt-K-7", &tpar, &th, &err))
+        return fail("trend analysis", &err);
+    stagecal_plot_trend_history_data thd = {
+        &th, &ev, 1, "demo-bt-K-7", "stages incl. pot at R = 3 [-]", NULL};
+    if (stagecal_plot_trend_history(&thd, &own[n], &err))
+        return fail("trend-over-time chart", &err);
+    stagecal_trend_history_free(&th);
+    charts[n] = *own[n];
+    names[n++] = "trend-history";
+
+    /* a predicted batch (`stagecal plot trajectory`): 25 kmol at xB 0.5 (alpha 2.4),
+     * distillate held at 0.95 by raising R up to 8 — beyond the fitted envelope of the
+     * calibration, so the late rows are an extrapolation — then a slop cut to xB 0.1 */
+    stagecal_vle *bvle = stagecal_vle_alloc_alpha(2.4, &err);
+    stagecal_batch_model_law law = {&cal.model, NULL, NAN};
+    stagecal_batch_column bcol = {bvle, stagecal_batch_model_stages, &law, NULL, NULL};
+    stagecal_batch_problem bpb;
+    stagecal_batch_result bres;
+    stagecal_batch_problem_init(&bpb);
+    stagecal_batch_result_init(&bres);
+    bpb.w0_mol = 25000, bpb.xb0 = 0.5, bpb.v_mol_s = 3600.0 / 3600;
+    bpb.policy.kind = STAGECAL_BATCH_CONSTANT_DISTILLATE;
+    bpb.policy.xd_set = 0.95, bpb.policy.reflux_max = 8;
+    bpb.n_cuts = 2;
+    bpb.cuts[0] = (stagecal_batch_cut_spec){"product", STAGECAL_BATCH_UNTIL_REFLUX, 8};
+    bpb.cuts[1] = (stagecal_batch_cut_spec){"slop", STAGECAL_BATCH_UNTIL_POT_X, 0.1};
+    if (!bvle || stagecal_batch_run(&bpb, &bcol, NULL, &bres, &err))
+        return fail("batch prediction", &err);
+    stagecal_plot_trajectory_data btd = {&bres, NULL, NULL};
+    if (stagecal_plot_trajectory(&btd, &own[n], &err))
+        return fail("trajectory chart", &err);
+    stagecal_batch_result_free(&bres);
+    stagecal_vle_free(bvle);
+    charts[n] = *own[n];
+    height[n] = 880;
+    names[n++] = "trajectory";
+
+    /* history: the self-starting EWMA and CUSUM charts of 30 weekly runs that lose 0.6
+     * stage after the 15th (invented), as `stagecal plot history` draws them */
+    stagecal_trend_point hp[30];
+    stagecal_chart_point hc[30];
+    stagecal_chart_params hpar = stagecal_chart_default_params();
+    for (int i = 0; i < 30; i++)
+        hp[i] = (stagecal_trend_point){1735689600.0 + 7 * 86400.0 * i,
+                                       8.6 + ((i * 7) % 5 - 2) * 0.05 - (i >= 15 ? 0.6 : 0), 0.1};
+    stagecal_plot_selfstart_data hd = {hp, hc, 30, hpar, NULL, NULL};
+    if (stagecal_chart_selfstart(hp, 30, &hpar, hc, NULL, &err) ||
+        stagecal_plot_selfstart(&hd, &own[n], &err))
+        return fail("history chart", &err);
+    charts[n] = *own[n];
+    height[n] = 880;
+    names[n++] = "history";
+
+    /* McCabe-Thiele at 30 stages (alpha 2, xD 0.995, R 6): the top section zoomed in an
+     * inset, the pinch marked, as `stagecal plot mccabe ... --stages 30` draws it */
+    stagecal_vle *vle = stagecal_vle_alloc_alpha(2.0, &err);
+    if (!vle || stagecal_plot_mccabe_condition(vle, 0.995, NAN, 6, 30, 1, &own[n], &err))
+        return fail("McCabe-Thiele chart at 30 stages", &err);
+    stagecal_vle_free(vle);
+    charts[n] = *own[n];
+    names[n++] = "mccabe-30";
+
+    /* probe: where to run the next tests for this calibration at R = 2, 3 and 8 (8 lies
+     * beyond the fitted envelope: dashed, lighter bands), as `stagecal probe --chart` */
+    stagecal_design_problem dpb;
+    stagecal_design_point dat[3] = {{2, NAN, 1}, {3, NAN, 1}, {8, NAN, 1}};
+    stagecal_design_at dout[3];
+    stagecal_design_result dres;
+    stagecal_design_params dpar = stagecal_design_default_params();
+    stagecal_design_curves *dc = malloc(sizeof *dc);
+    if (!dc || stagecal_design_from_model(&cal.model, &dpb, &err) ||
+        stagecal_design_propose(&dpb, dat, 3, &dpar, cal.model.r_min, cal.model.r_max, NAN, NAN,
+                                &dres, dout, &err) ||
+        stagecal_design_chart_curves(&cal.model, &dpb, &dres, dout, 3, dc, &err) ||
+        stagecal_plot_design(dc, &own[n], &err))
+        return fail("probe chart", &err);
+    free(dc);
+    charts[n] = *own[n];
+    names[n++] = "probe";
 
     /* the known case: three quarters filled, the top-right quarter empty */
     static double kx[3 * NK], ky[3 * NK];

@@ -116,8 +116,9 @@ typedef struct {
                        3 bottom left. The legend goes into the first corner of the plot box
                        (from this one on) where its box covers no data — no marker, line,
                        band, bar or stripe — and outside the plot box, on the right, when
-                       every corner is taken; for stacked panels always below them, in
-                       columns */
+                       every corner is taken (below it instead when the right would leave
+                       the plot less than half the drawing's width); for stacked panels
+                       always below them, in columns */
     const stagecal_plot_series *series; /* caller or builder-owned: n_series series, drawn in
                                            order, bands first */
     size_t n_series;
