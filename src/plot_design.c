@@ -1,5 +1,5 @@
 /*
- * plot_design.c — the chart of a proposal (`stagecal probe --chart`): stages against R
+ * plot_design.c — the chart of a proposal (`stagecal probe --chart-out`): stages against R
  * with the confidence band now and the band expected after the proposed tests, the fitted
  * curve, the tests on it and the conditions of interest. Beyond the fitted envelope the
  * curve is dashed and the bands lighter (extrapolated), as on the fit chart. The numbers

@@ -1,5 +1,5 @@
 /*
- * test_plot_design.c — the chart of a proposal (`stagecal probe --chart`): its numbers
+ * test_plot_design.c — the chart of a proposal (`stagecal probe --chart-out`): its numbers
  * (stagecal_design_chart_curves, design library) and its drawing (stagecal_plot_design,
  * charts library).
  *

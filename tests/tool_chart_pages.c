@@ -209,7 +209,7 @@ int main(int argc, char **argv)
     names[n++] = "mccabe-30";
 
     /* probe: where to run the next tests for this calibration at R = 2, 3 and 8 (8 lies
-     * beyond the fitted envelope: dashed, lighter bands), as `stagecal probe --chart` */
+     * beyond the fitted envelope: dashed, lighter bands), as `stagecal probe --chart-out` */
     stagecal_design_problem dpb;
     stagecal_design_point dat[3] = {{2, NAN, 1}, {3, NAN, 1}, {8, NAN, 1}};
     stagecal_design_at dout[3];

@@ -26,7 +26,7 @@ static const struct cli_usage usage = {
     "                      [--reflux-range LO:HI] [--f-factor-range LO:HI] [--column FILE]\n"
     "                      [--tests K]"
     "                      [--criterion i|d] [--sample-interval MIN] [--seed N]\n"
-    "                      [--compare R[:F]] [--chart FILE.png|svg|pdf] [--json] [--quiet]\n",
+    "                      [--compare R[:F]] [--chart-out FILE.png|svg|pdf] [--json] [--quiet]\n",
     "Where to run the next tests: K test conditions inside the ranges that shrink the\n"
     "95 % confidence band of stages at the conditions of interest most (I-optimal: the\n"
     "weighted average variance of the fitted stages there; D-optimal: the determinant of\n"
@@ -362,9 +362,10 @@ static int parse_options(int argc, char **argv, cli_ctx *ctx, struct job *j)
         OPT_STRING(0, "compare", &c_text, "R[:F]",
                    "also the band after as many windows at this condition (e.g. the\n"
                    "most common production condition), for comparison"),
-        OPT_STRING(0, "chart", &chart, "FILE",
+        OPT_STRING(0, "chart-out", &chart, "FILE",
                    "also draw stages against R with the band before and after\n"
                    "the tests (PNG, SVG or PDF by extension)"),
+        OPT_ALIAS("chart", "chart-out"),
         OPT_END_COMMON(ctx),
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
@@ -426,7 +427,7 @@ static int parse_options(int argc, char **argv, cli_ctx *ctx, struct job *j)
     par.sample_interval_s = minutes * 60;
 
     j->path = argv[first];
-    if (chart && cli_check_output("chart", chart, &j->path, 1))
+    if (chart && cli_check_output("chart-out", chart, &j->path, 1))
         return CLI_EXIT_USAGE;
     j->par = par;
     j->n_at = n_at;
@@ -436,7 +437,8 @@ static int parse_options(int argc, char **argv, cli_ctx *ctx, struct job *j)
     j->form = form;
     j->logs = logs ? argv + first : NULL;
     j->nlogs = logs ? (size_t)(argc - first) : 0;
-    if (logs && chart && cli_check_output("chart", chart, (const char *const *)j->logs, j->nlogs))
+    if (logs && chart &&
+        cli_check_output("chart-out", chart, (const char *const *)j->logs, j->nlogs))
         return CLI_EXIT_USAGE;
     return 0;
 }

@@ -69,13 +69,20 @@ for name in shared:
         bad.append(f'--{name} has {len(set(helps.values()))} help texts: {helps}')
 # 3. old spellings are not offered
 for c, rows in table.items():
-    for old in ('fload', 'out', 'reference-load', 'reference-reflux', 'report', 'height', 'width'):
+    for old in ('fload', 'out', 'reference-load', 'reference-reflux', 'report', 'height', 'width',
+                'chart'):
         if old in rows:
             bad.append(f'{c}: offers the old spelling --{old}')
 # 4. one output file: -o/--output
 for c in ('invert', 'predict', 'plot', 'report'):
     if table.get(c, {}).get('output', (None,))[0] != 'o':
         bad.append(f'{c}: no -o/--output')
+# 4b. a file written besides the command's main output ("also write ...", "also draw ...")
+#     is --<what>-out FILE everywhere (calibrate --report-out once sat beside probe --chart)
+for c, rows in table.items():
+    for name, (short, h) in rows.items():
+        if re.match(r'also (write|draw)\b', h) and not name.endswith('-out'):
+            bad.append(f'{c}: --{name} writes an extra file but is not spelled --<what>-out')
 # 5. one meaning per spelling: every option spelled as a quantity above names that
 #    quantity in its help (--height once meant the packed height in hetp and the chart
 #    height in plot)
@@ -96,6 +103,9 @@ M="$ROOT/tests/badinput/model_good.json"
 expect_exit 0 "option '--fload' is deprecated; use '--f-factor'" --many \
     "$BIN" hetp "$M" --reflux 3 --fload 1.3 --packed-height 2
 grep -q "HETP" "$tmp/out" || { echo "FAIL: hetp --fload gave no HETP"; fails=$((fails + 1)); }
+expect_exit 0 "option '--chart' is deprecated; use '--chart-out'" --many \
+    "$BIN" probe "$M" --at 2,2.5 --chart "$tmp/probe.svg"
+grep -q "<svg" "$tmp/probe.svg" || { echo "FAIL: probe --chart drew nothing"; fails=$((fails + 1)); }
 expect_exit 0 "option '--out' is deprecated; use '--output'" --many \
     "$BIN" invert --column "$ROOT/datasets/columns/demo_alpha.json" --out "$tmp/rows.csv" "$ROOT/tests/badinput/good.csv"
 [ -s "$tmp/rows.csv" ] || { echo "FAIL: invert --out wrote nothing"; fails=$((fails + 1)); }

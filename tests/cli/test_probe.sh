@@ -82,9 +82,9 @@ for a, b in zip(c['at'], d['at']):
 " "$tmp/cmp.json"; then echo "ok: --compare"; else echo "FAIL: --compare"; fails=$((fails + 1)); fi
 expect_exit 2 "option '--compare'" -- $P "$M" --at 2 --compare -1
 # The chart: an SVG document, and never over the model file it reads.
-expect_exit 0 "" -- $P "$M" --at 2,2.5 --chart "$tmp/probe.svg" --quiet
+expect_exit 0 "" -- $P "$M" --at 2,2.5 --chart-out "$tmp/probe.svg" --quiet
 grep -q "<svg" "$tmp/probe.svg" || { echo "FAIL: no SVG chart"; fails=$((fails + 1)); }
-expect_exit 2 "option '--chart'" -- $P "$M" --at 2 --chart "$M"
+expect_exit 2 "option '--chart-out'" -- $P "$M" --at 2 --chart-out "$M"
 # --column: no test above the column's flooding F-factor times its margin (docs/column-file.md)
 $py -c "
 import json, sys
