@@ -64,6 +64,12 @@ done
 model=$($BIN fits find demo-bt-K-7 2025-11 --fits "$tmp/fits")
 draw model $BIN plot model "$model"
 check_chart model "fitted correlation" "fitted envelope"
+# the fit's chart feeds a decision: its text output ends with the caution, as plot run's
+if [ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ]; then
+    echo "ok: plot model prints the caution"
+else
+    echo "FAIL: plot model lacks one caution"; cat "$tmp/out"; fails=$((fails + 1))
+fi
 draw trend $BIN plot trend demo-bt-K-7 --fits "$tmp/fits" --events "$EV" --reflux 3 --f-factor 1.3 --require 7.5
 check_chart trend "forecast (extrapolated): dashed, light band" "repack" "required: 7.5" "stages incl. pot at R = 3"
 draw hist $BIN plot history --column "$COL" "$L/2025-08.csv" "$L/2025-09.csv" "$L/2025-11.csv" "$L/2025-12.csv" \

@@ -49,4 +49,22 @@ if [ "$nfits" -eq $((nlogs + 1 - nskip)) ] && [ "$nskip" -le 4 ]; then
     echo "ok   $nfits model files ($nskip months refused)"; else
     echo "FAIL: $nfits model files, expected $((nlogs + 1 - nskip)), $nskip refused (at most 4)"
     fails=$((fails + 1)); fi
+# the README quotes the quick start's output and its report's page one: each quoted
+# fragment must be in README.md and in what the program wrote (a README that drifts from
+# the program fails here)
+check_quote() { # file fragment
+    if ! grep -qF -- "$2" "$ROOT/README.md"; then
+        echo "FAIL: README.md no longer quotes '$2'"; fails=$((fails + 1))
+    elif ! grep -qF -- "$2" "$1"; then
+        echo "FAIL: README.md quotes '$2', $(basename "$1") does not say it"; fails=$((fails + 1))
+    fi
+}
+check_quote "$tmp/quick.out" "the largest difference, in c, is 1.29 combined standard errors"
+for q in "INVENTED DEMO DATA" "The answer: stages at R = 5, F = 1.54 Pa^0.5" \
+    "8.66 (95 % confidence interval 8.46 – 8.86)" "8.12 – 9.20 (95 % prediction interval)" \
+    "0.587 m (95 % interval 0.573 – 0.603 m), packed height 4.5 m" \
+    "Precision: the stage count at this condition is known to ±0.20 stages" \
+    "2025-01-06 15:43 to 2025-03-27 10:25 UTC" "Prepared by" "Approved by"; do
+    check_quote "$tmp/demo-report.html" "$q"
+done
 [ "$fails" -eq 0 ]
