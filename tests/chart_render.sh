@@ -3,7 +3,8 @@
 # checks a reviewer's eye would make:
 #   (a) the legend covers no plotted data (a pixel test), stays inside the drawing and
 #       leaves the plot at least half its width;
-#   (b) the SVG text is text (labels are <text> elements Chromium reads as text).
+#   (b) the SVG text is text (labels are <text> elements Chromium reads as text; negative
+#       control: the known case with its labels turned into outlines must be caught).
 #
 # usage: sh chart_render.sh <stagecal-binary> <repo-root> <tool_chart_pages-binary>
 #
@@ -187,15 +188,26 @@ dom = open(f"{work}/probe_dom.html", encoding="utf-8").read()
 parts = dom.split('<svg class="stagecal-figure"')[1:]
 if len(parts) != len(names):
     print(f"FAIL: {len(parts)} inline SVG charts in the parsed page, {len(names)} written"); ok = False
-for name, part in zip(names, parts):
+def text_check(part):
     part = part.split("</svg>", 1)[0]
     label = re.search(r'aria-label="([^"]*)"', part)
     ntext = len(re.findall(r"<text[ >]", part))
     text = " ".join(re.sub(r"<[^>]+>", " ", "".join(re.findall(r"<text[^>]*>.*?</text>", part, re.S))).split())
     words = [wd for wd in re.split(r"\W+", label.group(1) if label else "") if len(wd) > 3]
     missing = [wd for wd in words if wd not in text]
+    return ntext, missing, ntext >= 3 and not missing and bool(words)
+for name, part in zip(names, parts):
+    ntext, missing, good = text_check(part)
     print(f"chart '{name}': {ntext} <text> elements; title words missing from the text: {missing or 'none'}")
-    if ntext < 3 or missing or not words:
+    if not good:
         print(f"FAIL: chart '{name}': its text is not SVG text"); ok = False
+# negative control of the text check: the known case with its labels as outlines (every
+# <text> element replaced by a path, as a renderer that outlines glyphs writes them) must
+# be caught
+outlined = re.sub(r"<text[^>]*>.*?</text>", '<path d="M0 0h1v1z"/>', parts[names.index("known")], flags=re.S)
+if text_check(outlined)[2]:
+    print("FAIL: the text check passes a chart whose labels are outlines: it is blind"); ok = False
+else:
+    print("negative control (the known case's labels as outlines): caught")
 sys.exit(0 if ok else 1)
 EOF
