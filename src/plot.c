@@ -878,9 +878,11 @@ static int prepare(const stagecal_plot_chart *c, prepared *p, stagecal_error *er
     return STAGECAL_OK;
 }
 
+/* Dates on a time axis: years alone only over 6 years (PLplot's automatic ticks fall about
+ * half a year apart over 2 to 6 years, and years alone then read "2025 2025 2026") */
 static const char *time_format(double span_s)
 {
-    return span_s > 2 * 365.25 * 86400 ? "%Y"
+    return span_s > 6 * 365.25 * 86400 ? "%Y"
            : span_s > 60 * 86400       ? "%Y-%m"
            : span_s > 1.5 * 86400      ? "%m-%d"
                                        : "%H:%M";

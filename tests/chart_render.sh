@@ -201,6 +201,11 @@ for name, part in zip(names, parts):
     print(f"chart '{name}': {ntext} <text> elements; title words missing from the text: {missing or 'none'}")
     if not good:
         print(f"FAIL: chart '{name}': its text is not SVG text"); ok = False
+    # date ticks read unambiguously: no two tick labels of a time axis say the same date
+    # (years alone at half-year ticks once read "2025 2025 2026")
+    dates = re.findall(r">\s*(\d{4}(?:-\d\d){0,2})\s*<", part.split("</svg>", 1)[0])
+    if len(set(dates)) < len(dates):
+        print(f"FAIL: chart '{name}': repeated date labels {dates}"); ok = False
 # negative control of the text check: the known case with its labels as outlines (every
 # <text> element replaced by a path, as a renderer that outlines glyphs writes them) must
 # be caught
