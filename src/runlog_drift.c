@@ -41,6 +41,7 @@
  */
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_fit.h>
+#include <gsl/gsl_statistics_double.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -153,46 +154,46 @@ static int line_fit(const double *x, const double *w, const double *y, size_t n,
     return 0;
 }
 
-/* The column's light holdup behind the balance, per row of the log: light[i] [mol] (NAN where
- * the column's content is not modelled: the row is left out of the balance fit) and
- * lh[i] = ∂light/∂(column holdup) [-] (0 when the holdup is taken as exact). With the
+/* The column's light holdup behind the balance, per row of run k: light[i − first] [mol]
+ * (NAN where the column's content is not modelled: the row is left out of the balance fit) and
+ * lh[i − first] = ∂light/∂(column holdup) [-] (0 when the holdup is taken as exact). With the
  * stage-holdup compensation (STAGES) the content is the pseudo-steady profile of the row
  * (holdup_column_light: the liquids down the holdup-corrected operating line from the logged
  * xD at the row's reflux set point, each run's own holdup), on the rows whose distillate the
  * compensation could take as settled (a finite xd_ss): a column still filling at start-up,
  * or moving to a new set point, holds an unknown profile. Otherwise the straight profile of
- * runlog_holdup_light, on every row. */
+ * runlog_holdup_light, on every row. Per run, so that it needs the run's length only. */
 static void column_light(const stagecal_runlog *log, const stagecal_column *col,
-                         const holdup_resolved *hr, const double *xd_ss, double *light, double *lh)
+                         const holdup_resolved *hr, const double *xd_ss, size_t k, double *light,
+                         double *lh)
 {
-    for (size_t i = 0; i < log->n; i++) {
-        light[i] = runlog_holdup_light(col, log->xd[i], log->xb[i]);
-        lh[i] = 0;
+    size_t first = log->runs[k].first, end = first + log->runs[k].n;
+    for (size_t i = first; i < end; i++) {
+        light[i - first] = runlog_holdup_light(col, log->xd[i], log->xb[i]);
+        lh[i - first] = 0;
     }
     if (hr->kind != STAGECAL_HOLDUP_COMP_STAGES)
         return;
-    for (size_t k = 0; k < log->nruns; k++) {
-        size_t first = log->runs[k].first, end = first + log->runs[k].n;
-        double hk = hr->run_h[k];
-        for (size_t s = first; s < end;) {
-            size_t e = s + 1;
-            while (e < end && runlog_rset(log, e) == runlog_rset(log, s))
-                e++;
-            for (size_t i = s; i < e; i++) {
-                double r = runlog_rset(log, i), se, l;
-                double v = log->v_mol_s ? log->v_mol_s[i] : NAN;
-                double d = isfinite(r) ? holdup_row_slope(log, s, e, i, NULL, col->u.xd, &se) : 0;
-                stagecal_holdup_state st = {isfinite(hk) ? hk : 0, hr->drum_mol, v, d};
-                light[i] = lh[i] = NAN;
-                if (isfinite(xd_ss[i]) && isfinite(log->xb[i]) && (isinf(r) || isfinite(d)) &&
-                    holdup_column_light(col->system.vle, log->xd[i], log->xb[i],
-                                        isfinite(r) ? r : INFINITY, &st, &l) == STAGECAL_OK) {
-                    light[i] = l;
-                    lh[i] = st.holdup_mol > 0 ? (l - st.drum_mol * log->xd[i]) / st.holdup_mol : 0;
-                }
+    double hk = hr->run_h[k];
+    for (size_t s = first; s < end;) {
+        size_t e = s + 1;
+        while (e < end && runlog_rset(log, e) == runlog_rset(log, s))
+            e++;
+        for (size_t i = s; i < e; i++) {
+            double r = runlog_rset(log, i), se, l;
+            double v = log->v_mol_s ? log->v_mol_s[i] : NAN;
+            double d = isfinite(r) ? holdup_row_slope(log, s, e, i, NULL, col->u.xd, &se) : 0;
+            stagecal_holdup_state st = {isfinite(hk) ? hk : 0, hr->drum_mol, v, d};
+            light[i - first] = lh[i - first] = NAN;
+            if (isfinite(xd_ss[i]) && isfinite(log->xb[i]) && (isinf(r) || isfinite(d)) &&
+                holdup_column_light(col->system.vle, log->xd[i], log->xb[i],
+                                    isfinite(r) ? r : INFINITY, &st, &l) == STAGECAL_OK) {
+                light[i - first] = l;
+                lh[i - first] =
+                    st.holdup_mol > 0 ? (l - st.drum_mol * log->xd[i]) / st.holdup_mol : 0;
             }
-            s = e;
         }
+        s = e;
     }
 }
 
@@ -201,7 +202,8 @@ static void column_light(const stagecal_runlog *log, const stagecal_column *col,
  * row's light holdup alike and so the drift estimates by u·h_run·∂d/∂h_run, added to their
  * variance). The closure is taken again between the first and the last row of the fit when
  * the column's content is modelled (the rows before have an unknown column profile).
- * Scratch: 5 arrays of the run's length. */
+ * light, lh: column_light of the run (indexed from its first row). Scratch: 5 arrays of the
+ * run's length. */
 static void balance_sigs(const stagecal_runlog *log, const stagecal_column *col,
                          const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
                          size_t k, const double *light, const double *lh, double h_run,
@@ -225,14 +227,15 @@ static void balance_sigs(const stagecal_runlog *log, const stagecal_column *col,
             ta += 0.5 * (t + tp - 2 * t0) * dw;
         }
         prev = i;
-        if ((res->flags[i] & STAGECAL_SAMPLE_OUTLIER) || !isfinite(light[i]))
+        double li = light[i - run->first];
+        if ((res->flags[i] & STAGECAL_SAMPLE_OUTLIER) || !isfinite(li))
             continue;
         double s = uxb > 0 ? uxb : stagecal_runlog_u_xb(col, log->xb[i]);
-        h[m] = log->w_mol[i] * log->xb[i] + integral + light[i];
+        h[m] = log->w_mol[i] * log->xb[i] + integral + li;
         a[m] = ta;
         b[m] = log->w_mol[i] * (t - t0);
         w[m] = s > 0 ? 1.0 / (log->w_mol[i] * s * log->w_mol[i] * s) : 1.0;
-        q[m] = u_hold * h_run * lh[i];
+        q[m] = u_hold * h_run * lh[i - run->first];
         m++;
     }
     stagecal_runlog_drift_sig *sd = &c->sig[0], *sb = &c->sig[1];
@@ -255,17 +258,11 @@ static void balance_sigs(const stagecal_runlog *log, const stagecal_column *col,
     }
 }
 
-static int cmp_double(const void *a, const void *b)
-{
-    double x = *(const double *)a, y = *(const double *)b;
-    return (x > y) - (x < y);
-}
-
-/* Median of v[0..n) (v is reordered). */
+/* Median of v[0..n) (v is reordered): GSL's selection, the same double a sort gives (the
+ * middle value, or the mean 0.5·(a + b) of the two middle values), in linear time. */
 static double median_of(double *v, size_t n)
 {
-    qsort(v, n, sizeof *v, cmp_double);
-    return n % 2 ? v[n / 2] : 0.5 * (v[n / 2 - 1] + v[n / 2]);
+    return gsl_stats_median(v, 1, n);
 }
 
 /* Weighted regression of r on g with one intercept per group (rows of a group are
@@ -306,16 +303,15 @@ static int within_fit(const double *n, const double *g, const double *w, const i
  * too low), with the bracket halved when a step leaves it. *sens = ∂N/∂xB / ∂N/∂xD at X.
  * 0 on success. */
 static int xd_for_count(const stagecal_vle *vle, const stagecal_physics_cond *cond, double murphree,
-                        double xb, double r, double target, double x0, double *x_out, double *sens)
+                        const stagecal_stages_params *sp, double xb, double r, double target,
+                        double x0, double *x_out, double *sens)
 {
-    stagecal_stages_params sp = stagecal_stages_default_params();
-    sp.want_sensitivities = 1;
     double lo = xb, hi = 1.0, x = x0 > lo && x0 < hi ? x0 : 0.5 * (lo + hi);
     for (int it = 0; it < 60; it++) {
         stagecal_stages_result sr;
         /* the row's conditions (logged pressure, subcooled reflux), as its own count had */
-        int rc = cond ? stagecal_physics_invert(cond, x, xb, murphree, &sp, &sr, NULL)
-                      : stagecal_stages_invert(vle, x, xb, r, murphree, &sp, &sr, NULL);
+        int rc = cond ? stagecal_physics_invert(cond, x, xb, murphree, sp, &sr, NULL)
+                      : stagecal_stages_invert(vle, x, xb, r, murphree, sp, &sr, NULL);
         double xn;
         if (rc != STAGECAL_OK || sr.status != STAGECAL_STAGES_OK) {
             if (rc == STAGECAL_OK && sr.status == STAGECAL_STAGES_PINCH)
@@ -375,6 +371,9 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
     int32_t *key = malloc(run->n * sizeof *key);
     if (!key)
         return;
+    /* the inversion's parameters, built once per run rather than at every Newton step */
+    stagecal_stages_params sp = stagecal_stages_default_params();
+    sp.want_sensitivities = 1;
     for (size_t i = 0, s = 0; i < run->n; i++) {
         size_t row = run->first + i;
         double rs = runlog_rset(log, row), rp = i > 0 ? runlog_rset(log, row - 1) : rs;
@@ -412,8 +411,8 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
                 log->xd_cens[a] != STAGECAL_CENSOR_NONE ||
                 log->xb_cens[a] != STAGECAL_CENSOR_NONE || res->status[a] != STAGECAL_STAGES_OK ||
                 (res->flags[a] & STAGECAL_SAMPLE_OUTLIER) || !row_cond(log, ph, a, xd, r, &pc) ||
-                xd_for_count(col->system.vle, ph ? &pc : NULL, murphree, log->xb[a], r, nw, xd, &x,
-                             &sb) != 0)
+                xd_for_count(col->system.vle, ph ? &pc : NULL, murphree, &sp, log->xb[a], r, nw, xd,
+                             &x, &sb) != 0)
                 continue;
             double ud = stagecal_runlog_u_xd(col, log->xd[a]);
             double ub = stagecal_runlog_u_xb(col, log->xb[a]) * sb;
@@ -505,16 +504,18 @@ static double hold_u_rel(const holdup_resolved *hr, size_t k)
 }
 
 int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double murphree,
-                 const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
-                 stagecal_error *err)
+                 const stagecal_runlog_analysis_params *par, stagecal_physics *ph,
+                 stagecal_runlog_result *res, stagecal_error *err)
 {
     size_t maxrun = 1, n = log->n ? log->n : 1;
     for (size_t k = 0; k < log->nruns; k++)
         maxrun = log->runs[k].n > maxrun ? log->runs[k].n : maxrun;
-    double *scr = malloc(7 * maxrun * sizeof *scr);
+    /* 7 arrays of scratch, the run's light and lh: per run; the compensated distillate and
+     * its variance: per row of the log (the compensation pools across runs) */
+    double *scr = malloc(9 * maxrun * sizeof *scr);
+    double *light = scr ? scr + 7 * maxrun : NULL, *lh = scr ? scr + 8 * maxrun : NULL;
     int32_t *win = malloc(maxrun * sizeof *win);
-    double *xd_ss = malloc(4 * n * sizeof *xd_ss), *u2 = xd_ss ? xd_ss + n : NULL;
-    double *light = xd_ss ? xd_ss + 2 * n : NULL, *lh = xd_ss ? xd_ss + 3 * n : NULL;
+    double *xd_ss = malloc(2 * n * sizeof *xd_ss), *u2 = xd_ss ? xd_ss + n : NULL;
     if (!scr || !win || !xd_ss) {
         free(scr), free(win), free(xd_ss);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
@@ -522,9 +523,9 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
     /* the compensated distillate the evidence will use (the same compensation) */
     holdup_resolved hr;
     int rc = holdup_resolve(log, col, par->holdup, &hr, xd_ss, u2, err);
-    if (rc == STAGECAL_OK)
-        column_light(log, col, &hr, xd_ss, light, lh);
-    stagecal_physics *ph = stagecal_physics_alloc(col, NULL, NULL); /* NULL: the plain model */
+    stagecal_physics *own = ph ? NULL : stagecal_physics_alloc(col, NULL, NULL);
+    if (!ph)
+        ph = own; /* NULL when that failed: the plain model */
     for (size_t k = 0; k < log->nruns && rc == STAGECAL_OK; k++) {
         stagecal_runlog_closure *c = &res->closures[k];
         const stagecal_runlog_run *run = &log->runs[k];
@@ -534,6 +535,7 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
             continue;
         double uh = hold_u_rel(&hr, k);
         int stg = hr.kind == STAGECAL_HOLDUP_COMP_STAGES;
+        column_light(log, col, &hr, xd_ss, k, light, lh);
         balance_sigs(log, col, par, res, k, light, lh, stg ? hr.run_h[k] : 0, stg ? uh : 0, stg,
                      scr, scr + maxrun, scr + 2 * maxrun, scr + 3 * maxrun, scr + 4 * maxrun);
         stage_sigs(log, col, ph, murphree, res, xd_ss, u2, uh, k, scr, maxrun, win);
@@ -541,7 +543,7 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
         decide(col, par, span, c);
     }
     holdup_resolved_free(&hr);
-    stagecal_physics_free(ph);
+    stagecal_physics_free(own);
     free(scr), free(win), free(xd_ss);
     return rc;
 }

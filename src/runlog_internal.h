@@ -166,10 +166,11 @@ void runlog_boilup(const stagecal_runlog *log, const stagecal_column *col,
                    size_t k);
 /* The two drift signatures of every run and the decision (after the inversion and the
  * windows; col has an equilibrium model), and the boil-up check again without the rows
- * counted at total reflux. ENOMEM, or the holdup compensation's status. */
+ * counted at total reflux; ph: the physics models to use (shared with the inversion), NULL:
+ * its own. ENOMEM, or the holdup compensation's status. */
 int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double murphree,
-                 const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
-                 stagecal_error *err);
+                 const stagecal_runlog_analysis_params *par, stagecal_physics *ph,
+                 stagecal_runlog_result *res, stagecal_error *err);
 /* The light component held up in the column and the reflux drum when the column file
  * states them [mol]: column_mol·½(xD + xB) (a straight profile between the ends) +
  * drum_mol·xD (a well-mixed drum is the distillate). It belongs to the Rayleigh balance's
@@ -185,6 +186,9 @@ int runlog_format_g9(char *d, double v);
 /* Grows every row array of log (×2, 4096 at first; optional signals only when present).
  * -1 on allocation failure. */
 int runlog_grow_rows(stagecal_runlog *log);
+/* Shrinks every row array to the rows stored (cap = n), releasing the doubling's unused
+ * tail; a shrink that fails keeps the larger block. */
+void runlog_shrink_rows(stagecal_runlog *log);
 /* Allocates an optional signal's array, NaN for the rows already stored; -1 on failure. */
 int runlog_ensure_optional(stagecal_runlog *log, double **a);
 

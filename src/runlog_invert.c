@@ -249,10 +249,10 @@ int runlog_invert_with(const stagecal_runlog *log, const stagecal_column *col, d
                 res->note[i] = STAGECAL_NOTE_NO_LOAD;
         }
     }
-    stagecal_physics_free(own);
     int rc = runlog_windows(log, col, &par, res, err);
-    if (rc == STAGECAL_OK)
-        rc = runlog_drift(log, col, murphree, &par, res, err);
+    if (rc == STAGECAL_OK) /* the same physics object: its models at the logged pressures */
+        rc = runlog_drift(log, col, murphree, &par, c.ph, res, err);
+    stagecal_physics_free(own);
     memset(res->count, 0, sizeof res->count);
     for (size_t i = 0; i < log->n; i++)
         if (res->status[i] < STAGECAL_RUNLOG_NSTATUS)

@@ -125,6 +125,37 @@ int runlog_grow_rows(stagecal_runlog *log)
     return 0;
 }
 
+/* Shrinks every row array to the rows stored (cap = n): the doubling leaves up to half of
+ * each array unused but written (NaN), which a caller that keeps the whole log (calibrate)
+ * would otherwise hold through the chain. A failed shrink keeps the larger block. */
+void runlog_shrink_rows(stagecal_runlog *log)
+{
+    size_t n = log->n ? log->n : 1;
+    if (log->cap <= n)
+        return;
+    double **arr[] = {&log->t_s,     &log->w_mol,   &log->xd,       &log->xb,      &log->r,
+                      &log->v_mol_s, &log->p_pa,    &log->t_top_k,  &log->t_pot_k, &log->t_reflux_k,
+                      &log->r_set,   &log->u_r_set, &log->u_xd_inf, &log->u_xb_inf};
+    for (size_t i = 0; i < sizeof arr / sizeof arr[0]; i++) {
+        double *p = *arr[i] ? realloc(*arr[i], n * sizeof *p) : NULL;
+        if (p)
+            *arr[i] = p;
+    }
+    unsigned char *c = realloc(log->xd_cens, n);
+    if (c)
+        log->xd_cens = c;
+    c = realloc(log->xb_cens, n);
+    if (c)
+        log->xb_cens = c;
+    uint32_t *u = realloc(log->line, n * sizeof *u);
+    if (u)
+        log->line = u;
+    u = realloc(log->run, n * sizeof *u);
+    if (u)
+        log->run = u;
+    log->cap = n;
+}
+
 /* Allocates an optional signal's array (NaN for the rows already stored). */
 int runlog_ensure_optional(stagecal_runlog *log, double **a)
 {
