@@ -304,13 +304,16 @@ static int within_fit(const double *n, const double *g, const double *w, const i
  * 0 on success. */
 static int xd_for_count(const stagecal_vle *vle, const stagecal_physics_cond *cond, double murphree,
                         const stagecal_stages_params *sp, double xb, double r, double target,
-                        double x0, double *x_out, double *sens)
+                        double x0, const stagecal_stages_result *at_x0, double *x_out, double *sens)
 {
     double lo = xb, hi = 1.0, x = x0 > lo && x0 < hi ? x0 : 0.5 * (lo + hi);
     for (int it = 0; it < 60; it++) {
         stagecal_stages_result sr;
-        /* the row's conditions (logged pressure, subcooled reflux), as its own count had */
-        int rc = cond ? stagecal_physics_invert(cond, x, xb, murphree, sp, &sr, NULL)
+        int rc = STAGECAL_OK;
+        if (it == 0 && at_x0 && x == x0) /* the row's own count: the same call, made already */
+            sr = *at_x0;
+        else /* the row's conditions (logged pressure, subcooled reflux), as its own count had */
+            rc = cond ? stagecal_physics_invert(cond, x, xb, murphree, sp, &sr, NULL)
                       : stagecal_stages_invert(vle, x, xb, r, murphree, sp, &sr, NULL);
         double xn;
         if (rc != STAGECAL_OK || sr.status != STAGECAL_STAGES_OK) {
@@ -407,12 +410,29 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
              * its raw xD it made a trend on 2-min logs of a holdup column */
             double xd = xd_ss[a], x, sb;
             stagecal_physics_cond pc;
+            /* Newton's first point is the row's own count when the compensation left its xD
+             * as logged and the row was counted at this R (runlog_invert.c: the same physics
+             * call with the same parameters): the count and its derivatives from res, the
+             * same doubles */
+            double rs_a = runlog_rset(log, a);
+            double r_row =
+                isfinite(rs_a) && (res->flags[a] & STAGECAL_SAMPLE_TOTAL_REFLUX) ? INFINITY : rs_a;
+            stagecal_stages_result own;
+            const stagecal_stages_result *at_x0 = NULL;
+            if (ph && xd == log->xd[a] && r_row == r) {
+                memset(&own, 0, sizeof own);
+                own.status = STAGECAL_STAGES_OK;
+                own.stages = res->stages[a];
+                own.dstages_dxd = res->dn_dxd[a];
+                own.dstages_dxb = res->dn_dxb[a];
+                at_x0 = &own;
+            }
             if (!(isfinite(xd) && isfinite(log->xb[a])) ||
                 log->xd_cens[a] != STAGECAL_CENSOR_NONE ||
                 log->xb_cens[a] != STAGECAL_CENSOR_NONE || res->status[a] != STAGECAL_STAGES_OK ||
                 (res->flags[a] & STAGECAL_SAMPLE_OUTLIER) || !row_cond(log, ph, a, xd, r, &pc) ||
                 xd_for_count(col->system.vle, ph ? &pc : NULL, murphree, &sp, log->xb[a], r, nw, xd,
-                             &x, &sb) != 0)
+                             at_x0, &x, &sb) != 0)
                 continue;
             double ud = stagecal_runlog_u_xd(col, log->xd[a]);
             double ub = stagecal_runlog_u_xb(col, log->xb[a]) * sb;
