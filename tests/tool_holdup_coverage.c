@@ -20,7 +20,8 @@
  * flagged and the calibrations that stopped. With `stages` the flagged runs are left out
  * (the default); `none` and `lag` keep them (--keep-flagged), so their figures show the
  * compensation's effect alone (HOLDUP_STUDY_KEEP keeps them with `stages` too).
- * Progress on stderr. Not run by ctest (minutes of CPU).
+ * HOLDUP_STUDY_N fixes the true count (exploring). Progress on stderr. Not run by ctest
+ * (minutes of CPU).
  */
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_rng.h>
@@ -61,6 +62,9 @@ static int simulate(gsl_rng *rng, const char *path, double *holdup)
     fprintf(f, "run,time[h],W[mol],xD[mol/mol],xB[mol/mol],R[-],V[mol/s]\n");
     int n = 6 + (int)gsl_rng_uniform_int(rng, 3);
     *holdup = 0.02 + 0.04 * gsl_rng_uniform(rng);
+    /* exploring: HOLDUP_STUDY_N fixes the true stage count */
+    if (getenv("HOLDUP_STUDY_N"))
+        n = atoi(getenv("HOLDUP_STUDY_N"));
     /* exploring: HOLDUP_STUDY_SCALE scales the holdup, HOLDUP_STUDY_NOISE the analyser noise */
     const char *hs = getenv("HOLDUP_STUDY_SCALE"), *ns = getenv("HOLDUP_STUDY_NOISE");
     double noise = ns ? atof(ns) : 1.0;
