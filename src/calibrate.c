@@ -464,6 +464,31 @@ static int flag_runs(stagecal_calibration *cal, const stagecal_calibrate_params 
     return STAGECAL_OK;
 }
 
+/* Windows at total reflux only (no distillate drawn anywhere) give the stage count at one
+ * condition, R = inf: no relation to the reflux ratio can be fitted, and no envelope of R
+ * a planner could use. Refused as bad data naming the logs (issue 18 item 8: it ended in
+ * exit 2 with the model check's "envelope: R range [inf, inf]", naming no file). */
+static int all_total_reflux(const stagecal_calibration *cal, stagecal_error *err)
+{
+    const stagecal_runlog *log = cal->log;
+    for (size_t i = 0; i < cal->evidence.n; i++)
+        if (!cal->evidence.ev[i].total_reflux && isfinite(cal->evidence.ev[i].r))
+            return STAGECAL_OK;
+    char names[400] = "";
+    size_t k = 0, shown = 0;
+    for (size_t f = 0; f < log->nfiles && shown < 3; f++, shown++)
+        k += (size_t)snprintf(names + k, k < sizeof names ? sizeof names - k : 0, "%s'%s'",
+                              f ? ", " : "", log->files[f]);
+    if (log->nfiles > shown && k < sizeof names)
+        snprintf(names + k, sizeof names - k, " and %zu more", log->nfiles - shown);
+    return error_set(err, STAGECAL_EDATA,
+                     "%s: all %zu quasi-steady window(s) are at total reflux (no distillate "
+                     "drawn): the stage count is known at R = inf only, so no relation to the "
+                     "reflux ratio can be fitted (expected windows at a finite reflux ratio, "
+                     "i.e. steady stretches with distillate drawn)",
+                     names, cal->evidence.n);
+}
+
 /* The chain after reading: inversion, evidence, fits, model. */
 static int run_chain(stagecal_calibration *cal, const char *column_path,
                      const stagecal_calibrate_params *par, stagecal_error *err)
@@ -504,6 +529,8 @@ static int run_chain(stagecal_calibration *cal, const char *column_path,
                          "(%zu samples read; %zu flagged run(s) left out, keep flagged runs to "
                          "use them)",
                          cal->log->n, nleft);
+    if ((rc = all_total_reflux(cal, err)))
+        return rc;
     if ((rc = run_fits(cal, par, &fit, err)))
         return rc;
     progress(par, "model", 0.95);

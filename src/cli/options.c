@@ -112,6 +112,16 @@ static int take_duration(const struct cli_option *o, const char *arg)
                            o->long_name, arg);
 }
 
+/* An option naming a file the command writes: -o/--output, --*-out, --chart. An empty
+ * name there is a usage error naming the option (issue 18: `invert --out ''` said only
+ * "the output file name is empty", `report -o ''` "report file name is empty"). */
+static int is_output_option(const struct cli_option *o)
+{
+    size_t n = strlen(o->long_name);
+    return strcmp(o->long_name, "output") == 0 || strcmp(o->long_name, "chart") == 0 ||
+           (n > 4 && strcmp(o->long_name + n - 4, "-out") == 0);
+}
+
 /* Stores arg into the entry's variable after the checks; returns 0 or an exit code. */
 static int take_value(const struct cli_option *o, const char *arg)
 {
@@ -224,6 +234,7 @@ int cli_parse(int argc, char **argv, const struct cli_option *opts, const struct
         if (!o)
             return cli_usage_getopt(c, argv, cli_command);
         seen[o - opts] = 1;
+        const char *typed = o->long_name; /* the spelling given, for messages */
         if (o->type == CLI_OPT_ALIAS) {
             const struct cli_option *t = find_long(opts, o->alias_of);
             if (!t)
@@ -231,6 +242,10 @@ int cli_parse(int argc, char **argv, const struct cli_option *opts, const struct
             seen[t - opts] = 1;
             o = t;
         }
+        if (o->type == CLI_OPT_STRING && optarg && !optarg[0] && is_output_option(o))
+            return cli_usage_error("option '--%s': the file name is empty (expected the name of "
+                                   "the file to write)",
+                                   typed);
         if ((rc = take_value(o, optarg)))
             return rc;
     }
