@@ -18,6 +18,10 @@
 #include "runlog_internal.h"
 #include "stagecal/softsensor.h"
 
+/* Models kept by the soft sensor's physics: a pressure transmitter's noise of ±50 Pa rounds
+ * to ~200 distinct pressures (1 Pa resolution), each model ~10 kB with the coarse table. */
+#define SOFT_PHYSICS_CACHE 256
+
 int runlog_soft_enabled(const struct reader *rd)
 {
     return rd->par.infer && rd->col && rd->col->system.vle &&
@@ -109,7 +113,12 @@ void runlog_soft_run(struct reader *rd)
     stagecal_runlog *log = rd->log;
     if (!runlog_soft_enabled(rd) || (!log->t_top_k && !log->t_pot_k) || rd->oom)
         return;
-    if (!rd->ph && !(rd->ph = stagecal_physics_alloc(rd->col, NULL, NULL))) {
+    /* models at the logged pressures that answer by solving (a few queries per pressure:
+     * one inference or check per row), many of them kept (each is small) */
+    stagecal_physics_params pp = stagecal_physics_default_params();
+    pp.exact = 1;
+    pp.cache_size = SOFT_PHYSICS_CACHE;
+    if (!rd->ph && !(rd->ph = stagecal_physics_alloc(rd->col, &pp, NULL))) {
         rd->oom = 1;
         return;
     }

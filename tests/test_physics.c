@@ -210,6 +210,42 @@ static void physics_pot_pressure_drop(void **state)
     stagecal_column_free(&col);
 }
 
+/* params.exact (the soft sensor's physics): models at logged pressures built on the coarse
+ * table that answer by solving the model. Against Raoult's law solved here by bisection
+ * (bt_tbubble): the bubble point to 1e-8 K (bisection and the model's Brent solve both
+ * converge to ~1e-12 K; the margin is for the Antoine evaluation order), y* = x·Psat_L(T)/P
+ * to 1e-10, and x*(y*(x)) = x to 1e-10 (the exact inverse, not the 129-node table, whose
+ * cubic would miss by ~1e-7). 300 distinct pressures through a cache of 8 models: every
+ * answer from the model at its own pressure after evictions. */
+static void physics_exact_models_match_raoult(void **state)
+{
+    (void)state;
+    stagecal_column col = load(BT_COLUMN("", ""));
+    stagecal_physics_params pp = stagecal_physics_default_params();
+    pp.exact = 1;
+    pp.cache_size = 8;
+    stagecal_physics *ph = stagecal_physics_alloc(&col, &pp, NULL);
+    assert_non_null(ph);
+    for (int k = 0; k < 300; k++) {
+        double p = 20000.0 + 271.0 * (double)((k * 37) % 300); /* 300 pressures, shuffled */
+        const stagecal_vle *v;
+        assert_int_equal(stagecal_physics_vle_at(ph, p, 0, &v, NULL), 0);
+        assert_abs(stagecal_vle_pressure(v), p, 0.0, "model pressure");
+        for (int i = 0; i <= 10; i++) {
+            double x = 0.003 + 0.0994 * i, t, y, xi;
+            assert_int_equal(stagecal_vle_tbubble(v, x, &t), 0);
+            double tb = bt_tbubble(x, p);
+            assert_abs(t, tb, 1e-8, "bubble point");
+            assert_int_equal(stagecal_vle_ystar(v, x, &y), 0);
+            assert_abs(y, x * psat_pa(4.01814, 1203.835, -53.226, tb) / p, 1e-10, "y*");
+            assert_int_equal(stagecal_vle_xstar(v, y, &xi), 0);
+            assert_abs(xi, x, 1e-10, "x*(y*(x))");
+        }
+    }
+    stagecal_physics_free(ph);
+    stagecal_column_free(&col);
+}
+
 /* A pressure logged for a model without pressure dependence is named in a warning; so is
  * a reflux temperature the column cannot use. */
 static void physics_unused_inputs_warn(void **state)
@@ -340,6 +376,7 @@ int main(void)
         cmocka_unit_test(physics_unused_inputs_warn),
         cmocka_unit_test(physics_column_members),
         cmocka_unit_test(physics_unequal_latent_heats_exact),
+        cmocka_unit_test(physics_exact_models_match_raoult),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

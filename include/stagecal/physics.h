@@ -62,7 +62,16 @@ typedef struct {
     double p_resolution_pa; /* pressures are rounded to this before a model is built (1 Pa;
                                0 = exact); far below a pressure transmitter's accuracy */
     size_t cache_size;      /* models kept (32); the oldest is rebuilt when more are met */
+    int exact;              /* 1: a model at a logged pressure is built on a coarse table
+                               (STAGECAL_PHYSICS_EXACT_GRID nodes, ~16x faster to build) and
+                               answers y*, x* and the slope by solving the model (~µs a query
+                               instead of ~50 ns): for callers with a few queries per pressure
+                               (the soft sensor's, runlog_soft.c); 0 (default): the dense table */
 } stagecal_physics_params;
+
+/* Table nodes of a model built with params.exact (enough for its azeotrope search and the
+ * brackets of its exact x*; stagecal_vle_params.grid_n). */
+#define STAGECAL_PHYSICS_EXACT_GRID 129
 
 stagecal_physics_params stagecal_physics_default_params(void);
 
