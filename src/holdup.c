@@ -519,9 +519,9 @@ static int corrected_at(const stagecal_vle *vle, double xd, double xb, double m,
                         const stagecal_holdup_state *st, double n_guess, double *count,
                         double *sum_x)
 {
-    size_t nc = (size_t)ceil(n_guess) + 1;
-    if (nc > 200)
-        nc = 200;
+    /* (a guess outside [0, 199], NaN included, would make the conversion undefined) */
+    double ng = n_guess > 0 ? ceil(n_guess) : 0;
+    size_t nc = ng < 199 ? (size_t)ng + 1 : 200;
     double xp[200], xm[200], s[200], hd = 1e-6 * fmin(1 - xd, xd - xb);
     if (plain_profile(vle, xd + hd, m, nc, xp) || plain_profile(vle, xd - hd, m, nc, xm))
         return STAGECAL_ENOCONV;

@@ -421,6 +421,13 @@ static double run_spacing(const stagecal_runlog *log, size_t k, double *tmp)
     return q ? median_inplace(tmp, q) : 0.0;
 }
 
+/* ceil(span/dt) samples, at most n + 1. */
+static size_t samples_in(double span_s, double dt, size_t n)
+{
+    double k = ceil(span_s / dt - 1e-9);
+    return k < (double)n + 1 ? (size_t)k : n + 1;
+}
+
 void runlog_run_samples(const stagecal_runlog *log, const stagecal_runlog_analysis_params *par,
                         size_t k, double *tmp, size_t *warmup, size_t *min_window)
 {
@@ -433,10 +440,13 @@ void runlog_run_samples(const stagecal_runlog *log, const stagecal_runlog_analys
     size_t m = par->min_window < n / 8 ? par->min_window : n / 8;
     if (m < 4)
         m = par->min_window < 4 ? par->min_window : 4;
+    /* (a duration over a run's spacing can exceed every size_t, e.g. 1 h over spacings of
+     * 1e-300 s: converting that is undefined; a warm-up or window longer than the run is the
+     * run's length plus one, which leaves it as long as any longer one would) */
     if (par->warmup_s > 0 && dt > 0)
-        w = (size_t)ceil(par->warmup_s / dt - 1e-9);
+        w = samples_in(par->warmup_s, dt, n);
     if (par->min_window_s > 0 && dt > 0) {
-        m = (size_t)ceil(par->min_window_s / dt - 1e-9);
+        m = samples_in(par->min_window_s, dt, n);
         m = m < 3 ? 3 : m;
     }
     *warmup = w;

@@ -143,10 +143,16 @@ int runlog_setpoints_run(stagecal_runlog *log, size_t k, const stagecal_column *
             cut[i] = 0;
         }
         int exact = logged_sp || !(umin < HUGE_VAL);
+        double swxx = 0;
         for (size_t i = 0; i < n; i++) { /* a row without a stated u takes the stretch's least */
             double s = w[i] > 0 ? w[i] : umin;
             w[i] = 1 / (s * s);
+            swxx += w[i] * x[i] * x[i];
         }
+        /* sums the segmentation cannot form (R near 1e308 overflows them: the means came out
+         * NaN and a row logged at R = 5 took a set point of 4e307): every change of the value is
+         * a set point, as for a logged set point */
+        exact |= !isfinite(swxx);
         if (exact) /* nothing says the readings scatter: a set point changes with the value */
             for (size_t i = 1; i < n; i++)
                 cut[i] = !(x[i] == x[i - 1]);

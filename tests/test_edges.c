@@ -1,6 +1,7 @@
 /*
  * test_edges.c — numerical edges of the stages and vle modules (issue 8): α → 1,
- * xD → 1, xB → 0, R → 0 and R → ∞, E_MV → 0, stage counts in the thousands. What is
+ * xD → 1, xB → 0, R → 0 and R → ∞, E_MV → 0, stage counts in the thousands (and a run
+ * log's warm-up over a vanishing sample spacing). What is
  * checked: every call returns (bounded iterations: max_stages, the pinch scan, the
  * bracketed inner solve), no NaN or ±inf reaches a result, and a case that has no
  * stage count says so with a status and a reason. Where a closed form exists the
@@ -20,6 +21,7 @@
 #include <string.h>
 #include <cmocka.h>
 
+#include "stagecal/runlog.h"
 #include "stagecal/stages.h"
 #include "stagecal/vle.h"
 #include "testutil.h"
@@ -390,6 +392,37 @@ static void edges_vle_extremes(void **state)
     }
 }
 
+/* A warm-up given in time over a run whose rows are 1e-300 s apart: 3600 s / 1e-300 s is
+ * 3.6e303 samples, which no size_t holds (the conversion was undefined: the sanitizer build
+ * of the unit tests stops there). The warm-up covers the whole run, as any warm-up longer
+ * than the run does, and the shortest window in time likewise leaves no window. */
+static void edges_warmup_over_tiny_spacing(void **state)
+{
+    (void)state;
+    char csv[2048];
+    size_t k = (size_t)snprintf(csv, sizeof csv, "time[s],W[mol],xD[mol/mol],xB[mol/mol],R[-]\n");
+    for (int i = 0; i < 20; i++)
+        k += (size_t)snprintf(csv + k, sizeof csv - k, "%de-300,%d,0.9,0.4,3\n", i, 100 - i);
+    stagecal_column col;
+    memset(&col, 0, sizeof col);
+    col.system.vle = stagecal_vle_alloc_alpha(2.0, NULL);
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    assert_int_equal(stagecal_runlog_read_buffer(log, csv, k, "e.csv", &col, NULL, NULL, NULL), 0);
+    assert_int_equal(log->n, 20);
+    stagecal_runlog_analysis_params ap = stagecal_runlog_analysis_default_params();
+    ap.warmup_s = 3600;
+    ap.min_window_s = 3600;
+    stagecal_runlog_result res;
+    assert_int_equal(stagecal_runlog_analyse(log, &col, &ap, &res, NULL), 0);
+    assert_int_equal(stagecal_runlog_invert(log, &col, 1.0, &ap, &res, NULL), 0);
+    for (size_t i = 0; i < log->n; i++)
+        assert_true(res.flags[i] & STAGECAL_SAMPLE_WARMUP);
+    assert_int_equal(res.nwindows, 0);
+    stagecal_runlog_result_free(&res);
+    stagecal_runlog_free(log);
+    stagecal_vle_free(col.system.vle);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -403,6 +436,7 @@ int main(void)
         cmocka_unit_test(edges_forward_thousands_of_stages),
         cmocka_unit_test(edges_grid_never_nan),
         cmocka_unit_test(edges_vle_extremes),
+        cmocka_unit_test(edges_warmup_over_tiny_spacing),
     };
     return cmocka_run_group_tests(tests, group_setup, NULL);
 }

@@ -99,6 +99,31 @@ static void setpoint_logged_values_are_set_points(void **state)
     stagecal_runlog_free(log);
 }
 
+/* R near the largest double (a fuzzed log held 1e308): the segmentation's weighted sums
+ * overflowed, the means came out NaN and a row logged at R = 5 took a set point of ~4e307
+ * with an infinite uncertainty (its stage count was the total-reflux one, its u(N) NaN with
+ * status ok). Every row keeps its own logged value as its set point, with a finite u. */
+static void setpoint_huge_r_keeps_values(void **state)
+{
+    (void)state;
+    const char *csv = "time[h],W[kmol],xD[mol/mol],xB[mol/mol],R[-]\n"
+                      "0,10,0.9,0.5,3\n1,9,0.9,0.5,1e308\n2,8,0.9,0.5,1e308\n"
+                      "3,7,0.9,0.5,5\n4,6,0.9,0.5,1e300\n5,5,0.9,0.5,1e200\n";
+    stagecal_runlog *log = read_csv(csv, strlen(csv), &col);
+    for (size_t i = 0; i < log->n; i++) {
+        assert_true(log->r_set[i] == log->r[i]);
+        assert_true(isfinite(log->u_r_set[i]) && log->u_r_set[i] >= 0);
+    }
+    stagecal_runlog_result res;
+    assert_int_equal(stagecal_runlog_analyse(log, &col, NULL, &res, NULL), 0);
+    assert_int_equal(stagecal_runlog_invert(log, &col, 1.0, NULL, &res, NULL), 0);
+    for (size_t i = 0; i < log->n; i++)
+        if (res.status[i] == STAGECAL_STAGES_OK)
+            assert_true(isfinite(res.u_stages[i]));
+    stagecal_runlog_result_free(&res);
+    stagecal_runlog_free(log);
+}
+
 /* A CSV of nruns runs of n readings each: N(r1, sd) for the first `split` rows, then
  * N(r2, sd). */
 static char *noisy_r_csv(gsl_rng *rng, size_t nruns, size_t n, size_t split, double r1, double r2,
@@ -329,6 +354,7 @@ int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(setpoint_logged_values_are_set_points),
+        cmocka_unit_test(setpoint_huge_r_keeps_values),
         cmocka_unit_test(setpoint_measured_r_two_set_points),
         cmocka_unit_test(setpoint_false_splits_and_power),
         cmocka_unit_test(setpoint_measured_log_calibrates),
