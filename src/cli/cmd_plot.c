@@ -92,8 +92,7 @@ static int print_result(const stagecal_plot_chart *draw, const char *kind, const
                         int json)
 {
     if (!json) {
-        if (!cli_quiet) /* --quiet: the exit code says it */
-            printf("chart written to %s\n", output);
+        printf("chart written to %s\n", output);
         return CLI_EXIT_OK;
     }
     json_t *names = json_array();
@@ -164,7 +163,7 @@ int cli_chart_write(cli_ctx *ctx, stagecal_plot_chart *chart, int rc, stagecal_e
     stagecal_plot_chart_free(chart);
     if (rc != STAGECAL_OK)
         return cli_fail(err);
-    if (!ctx->json && !cli_quiet)
+    if (!ctx->json)
         printf("chart written to %s\n", ctx->chart);
     return CLI_EXIT_OK;
 }

@@ -133,7 +133,7 @@ static int print_result(const stagecal_report *rep, const char *model_path, cons
             (json_int_t)rep->n_figures, "warnings", w, "caution", stagecal_caution_text());
         return doc_json ? cli_json_print(doc_json) : CLI_EXIT_SOFTWARE;
     }
-    if (!to_stdout && !cli_quiet) /* --quiet: the exit code says it */
+    if (!to_stdout)
         printf("report written to %s\n", output);
     return CLI_EXIT_OK;
 }
