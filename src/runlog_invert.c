@@ -62,6 +62,20 @@ const char *stagecal_runlog_note_text(int note)
     return note_text[note];
 }
 
+const char *stagecal_runlog_row_note_text(int note, int status)
+{
+    if (note != STAGECAL_NOTE_STAGES)
+        return stagecal_runlog_note_text(note);
+    switch (status) {
+    case STAGECAL_STAGES_PINCH:
+        return "pinch: xB is out of reach at this R with any number of stages (no count)";
+    case STAGECAL_STAGES_AZEOTROPE:
+        return "azeotrope between xB and xD: the stepping cannot cross it (no count)";
+    default:
+        return "inputs outside the inversion's domain (no count)";
+    }
+}
+
 int stagecal_runlog_f_factor(double v_mol_s, double m_kg_mol, double p_pa, double t_k, double d_m,
                              double *f, stagecal_error *err)
 {

@@ -33,6 +33,7 @@ typedef struct {
     int failed;                          /* a write failed */
     char esc[2][1100];                   /* the file and the run name, escaped */
     char note[STAGECAL_NOTE_COUNT][260]; /* every note, escaped */
+    char stage_note[3][260]; /* STAGECAL_NOTE_STAGES by status: pinch, azeotrope, other */
 } row_buf;
 
 /* t escaped as a CSV cell into d (quoted, RFC 4180, when it holds a comma, quote or line
@@ -258,7 +259,11 @@ static void format_row(row_buf *r, const stagecal_runlog *log, stagecal_condense
     rb_char(r, ',');
     rb_str(r, stagecal_runlog_status_name(res->status[i]));
     rb_char(r, ',');
-    if (res->note[i] < STAGECAL_NOTE_COUNT)
+    if (res->note[i] == STAGECAL_NOTE_STAGES)
+        rb_str(r, r->stage_note[res->status[i] == STAGECAL_STAGES_PINCH       ? 0
+                                : res->status[i] == STAGECAL_STAGES_AZEOTROPE ? 1
+                                                                              : 2]);
+    else if (res->note[i] < STAGECAL_NOTE_COUNT)
         rb_str(r, r->note[res->note[i]]);
     rb_char(r, ',');
     rb_fixed(r, res->lv[i], 9);
@@ -313,6 +318,12 @@ int runlog_write_rows(const stagecal_runlog *log, const stagecal_column *col,
     r->failed = 0;
     for (int k = 0; k < STAGECAL_NOTE_COUNT; k++)
         escape(r->note[k], stagecal_runlog_note_text(k));
+    escape(r->stage_note[0],
+           stagecal_runlog_row_note_text(STAGECAL_NOTE_STAGES, STAGECAL_STAGES_PINCH));
+    escape(r->stage_note[1],
+           stagecal_runlog_row_note_text(STAGECAL_NOTE_STAGES, STAGECAL_STAGES_AZEOTROPE));
+    escape(r->stage_note[2],
+           stagecal_runlog_row_note_text(STAGECAL_NOTE_STAGES, STAGECAL_STAGES_INVALID));
     if (header)
         r->n += (size_t)snprintf(
             r->b, ROW_MAX,

@@ -422,6 +422,10 @@ typedef enum {
 } stagecal_runlog_note;
 
 const char *stagecal_runlog_note_text(int note); /* "", "missing xD", ... */
+/* A row's note with its stage status (res->note[i], res->status[i]): STAGECAL_NOTE_STAGES
+ * says what the status means ("pinch: ...", "azeotrope ...") instead of "see status";
+ * every other note as stagecal_runlog_note_text. */
+const char *stagecal_runlog_row_note_text(int note, int status);
 
 /* A row's status beyond the stage inversion's four (stagecal_stages_status): a censored
  * reading bounds the count from one side only (see the note and stages). */

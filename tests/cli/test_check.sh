@@ -119,6 +119,16 @@ EOF2
     check_exit invert-scalar 0 "$bin" invert --alpha 2.5 --xd 0.95 --xb 0.05 --reflux inf
     check_exit invert-unwritable 73 "$bin" invert --column "$dcol" --output /nonexistent/dir/x.csv "$tmp/good.csv"
 fi
+# the per-row note says what a stage status means (a pinch row once read "see status", as
+# did an analyser at full scale): pinch rows of the invented demo log name the pinch
+bcol=$root/datasets/columns/demo_benzene_toluene.json
+if [ -f "$bcol" ]; then
+    check_exit invert-pinch-note 0 "$bin" invert --column "$bcol" --quiet "$root/datasets/demo/logs/2025-01.csv"
+    if ! grep -q ',pinch,pinch: xB is out of reach at this R with any number of stages (no count),' "$tmp/out" ||
+        grep -q 'see status' "$tmp/out"; then
+        echo "FAIL invert-pinch-note: pinch rows do not say pinch"; fails=$((fails + 1))
+    fi
+fi
 
 rm -rf "$tmp"
 [ "$fails" -eq 0 ] || { echo "$fails failure(s)"; exit 1; }
