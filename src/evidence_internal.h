@@ -7,6 +7,10 @@
 
 #include "stagecal/evidence.h"
 
+/* Bounds on the lag-1 autocorrelation used for n_eff: negative ρ would claim more
+ * information than samples; ρ → 1 would make n_eff vanish. */
+#define EVIDENCE_RHO_MAX 0.99
+
 /* The distillate each row contributes (xd, one per log row; NAN where a row is still
  * settling) and the extra variance of its compensation (u2); fills set's holdup members. */
 int evidence_holdup(const stagecal_runlog *log, const stagecal_column *col,

@@ -161,6 +161,17 @@ static inline void synth_noise(gsl_rng *rng, const double *t, double *e, size_t 
     }
 }
 
+/* Per-window diagnostics of the study tool (tests/tool_coverage.c, "diag"): for each of the
+ * 12 windows, sums over data sets of the stated standard errors² of the window means and of
+ * the actual errors² of those means (mean noise, the truth known), for xD, xB and their
+ * log-odds combination as the composition fit weighs it (g = ∂logit xB/∂xD at the truth,
+ * Smoker's closed form). NULL: not collected. */
+struct synth_diag {
+    long n;
+    double su_xd[12], se_xd[12], su_xb[12], se_xb[12], su_l[12], se_l[12];
+};
+static struct synth_diag *synth_diag_acc;
+
 static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stagecal_form *form,
                             const struct synth_regime *rg, enum synth_se_mode se_mode,
                             struct synth_fit *fs, struct synth_fit *fc)
@@ -174,6 +185,7 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
     static double xds[NW][MAXS], xbs[NW][MAXS], ts[NW][MAXS];
     double exd[MAXS], exb[MAXS];
     int few[NW];
+    double dmx[NW], dmb[NW], dgg[NW], dlb[NW];
     stagecal_stages_params sp = stagecal_stages_default_params();
     sp.want_sensitivities = 1;
     memset(fs, 0, sizeof *fs);
@@ -217,6 +229,23 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
             e->u_xd = sqrt(synth_ar1_var_mean(u_xd, rg->rho, NS));
             e->u_xb = sqrt(synth_ar1_var_mean(u_xb, rg->rho, NS));
         }
+        if (synth_diag_acc) {
+            double mx = 0, mb = 0, xdm = 0, xbm = 0;
+            for (size_t i = 0; i < NS; i++) {
+                double si = t[i] / t[NS - 1];
+                double xdt = xd_true + rg->drift * (0.5 - si * (1 + si) / 2);
+                mx += exd[i] / (double)NS;
+                mb += exb[i] / (double)NS;
+                xdm += xdt / (double)NS;
+                xbm += oracle_smoker_xb(SYNTH_ALPHA, rs[w], xdt, n_true) / (double)NS;
+            }
+            double h = 1e-6;
+            double lp = oracle_smoker_xb(SYNTH_ALPHA, rs[w], xdm + h, n_true),
+                   lm = oracle_smoker_xb(SYNTH_ALPHA, rs[w], xdm - h, n_true);
+            double g = (log(lp / (1 - lp)) - log(lm / (1 - lm))) / (2 * h);
+            double lb = 1 / (xbm * (1 - xbm));
+            dmx[w] = mx, dmb[w] = mb, dgg[w] = g, dlb[w] = lb;
+        }
         e->m = NS; /* the window's samples, as the calibration chain passes them */
         e->s_t = t;
         e->s_xd = xd;
@@ -235,6 +264,17 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
     if (se_mode == SYNTH_SE_SMOOTHER &&
         stagecal_evidence_window_stats(ev, NW, u_xd, u_xb, NULL) != STAGECAL_OK)
         return __LINE__;
+    for (size_t w = 0; w < NW && synth_diag_acc; w++) {
+        struct synth_diag *dg = synth_diag_acc;
+        double ux = ev[w].u_xd, ub = ev[w].u_xb, mx = dmx[w], mb = dmb[w];
+        dg->su_xd[w] += ux * ux;
+        dg->se_xd[w] += mx * mx;
+        dg->su_xb[w] += ub * ub;
+        dg->se_xb[w] += mb * mb;
+        dg->su_l[w] += dgg[w] * dgg[w] * ux * ux + dlb[w] * dlb[w] * ub * ub;
+        dg->se_l[w] += (dgg[w] * mx - dlb[w] * mb) * (dgg[w] * mx - dlb[w] * mb);
+        dg->n += w == 0;
+    }
     for (size_t w = 0; w < NW; w++) {
         if (stagecal_evidence_stages(vle, 1.0, &ev[w], NULL) != STAGECAL_OK)
             return __LINE__;

@@ -135,6 +135,10 @@ static inline double srl_xd_of(const struct srl_spec *s, double r, double xb, do
     return 0.5 * (lo + hi);
 }
 
+/* Diagnostics of tests/tool_coverage.c: when non-NULL, the true xD and xB of every row (room
+ * for all rows of the log). */
+static double *srl_truth_xd, *srl_truth_xb;
+
 /* The whole log as CSV text (malloc'd; NULL on allocation failure); *len its length. */
 static inline char *srl_csv(const struct srl_spec *s, gsl_rng *rng, size_t *len)
 {
@@ -150,6 +154,10 @@ static inline char *srl_csv(const struct srl_spec *s, gsl_rng *rng, size_t *len)
             double r = s->rset[j], nst = s->law(s->ctx, r);
             for (size_t i = 0; i < s->rows_per_set; i++) {
                 double xd = srl_xd_of(s, r, xb, nst, p);
+                if (srl_truth_xd) {
+                    size_t row = (k * s->nset + j) * s->rows_per_set + i;
+                    srl_truth_xd[row] = xd, srl_truth_xb[row] = xb;
+                }
                 double rl = s->r_noise > 0 ? r + gsl_ran_gaussian(rng, s->r_noise) : r;
                 double xdl = xd + gsl_ran_gaussian(rng, s->u_xd);
                 double xbl = xb + gsl_ran_gaussian(rng, s->u_xb);

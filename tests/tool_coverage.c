@@ -176,6 +176,17 @@ enum mr_mode { MR_MEASURED, MR_SETPOINT, MR_READINGS };
 
 static long mr_comp; /* data sets whose model carries the composition-space fit */
 
+/* "diag": per set point (index into rset), windows, Σ z and Σ z² of the window stage counts
+ * against the true law at the set point, Σ samples. */
+static int mr_diag;
+static double logit_(double x)
+{
+    return log(x / (1 - x));
+}
+static double mr_dn[6], mr_dz[6], mr_dz2[6], mr_dm[6], mr_du[6], mr_dub[6], mr_cz[6], mr_cz2[6];
+static double mr_lin[6], mr_ex[6], mr_st[6], mr_gd[6], mr_gs[6];
+static double mr_ad[6], mr_ab[6], mr_sd[6], mr_sb[6];
+
 /* One data set; f->ok = 0 when the calibration refused (counted by the caller). Returns 0,
  * or the line of a failure that must not happen. */
 static int mr_one(gsl_rng *rng, const stagecal_column *col, enum mr_mode mode, struct synth_fit *f,
@@ -204,6 +215,46 @@ static int mr_one(gsl_rng *rng, const stagecal_column *col, enum mr_mode mode, s
     stagecal_calibration cal;
     int rc = stagecal_calibrate_data(col, NULL, log, &par, &cal, NULL);
     *nwin = cal.res.nwindows;
+    for (size_t k = 0; mr_diag && rc == STAGECAL_OK && k < cal.evidence.n; k++) {
+        const stagecal_evidence *e = &cal.evidence.ev[k];
+        int c = 0;
+        for (int j = 1; j < 6; j++)
+            if (isfinite(e->r) && fabs(e->r - rset[j]) < 0.2)
+                c = j;
+        if (!e->stages_ok)
+            continue;
+        double z = (e->stages - synth_law(SYNTH_A, SYNTH_B, rset[c])) / e->se_stages;
+        mr_dn[c] += 1, mr_dz[c] += z, mr_dz2[c] += z * z, mr_dm[c] += (double)e->n_samples;
+        mr_du[c] += e->u_xd, mr_dub[c] += e->u_xb;
+        /* the composition fit's standardised residual at the true law (no convexity term) */
+        double nt = synth_law(SYNTH_A, SYNTH_B, rset[c]), spd = 0, sm = 0, h = 1e-6;
+        for (size_t j = 0; j < e->m; j++) {
+            spd += oracle_smoker_xb(MR_ALPHA, rset[c], e->s_xd[j], nt) / (double)e->m;
+            sm += e->s_xb[j] / (double)e->m;
+        }
+        double lp = oracle_smoker_xb(MR_ALPHA, rset[c], e->xd + h, nt),
+               lm = oracle_smoker_xb(MR_ALPHA, rset[c], e->xd - h, nt);
+        double g = (logit_(lp) - logit_(lm)) / (2 * h);
+        double lx = e->u_xb / (e->xb * (1 - e->xb)), ld = g * e->u_xd;
+        double cz = (logit_(spd) - logit_(sm)) / sqrt(lx * lx + ld * ld);
+        mr_cz[c] += cz, mr_cz2[c] += cz * cz;
+        /* the actual errors of the window means (the truth of every row kept by the simulator) */
+        double ed = 0, eb = 0;
+        size_t nd = 0, nb = 0;
+        for (size_t i = e->first; i <= e->last; i++) {
+            if (isfinite(log->xd[i]))
+                ed += log->xd[i] - srl_truth_xd[i], nd++;
+            if (isfinite(log->xb[i]))
+                eb += log->xb[i] - srl_truth_xb[i], nb++;
+        }
+        ed /= (double)nd, eb /= (double)nb;
+        double lin = g * ed - eb / (e->xb * (1 - e->xb));
+        double exact = logit_(spd) - logit_(sm);
+        mr_lin[c] += lin * lin, mr_ex[c] += exact * exact, mr_st[c] += lx * lx + ld * ld;
+        mr_gd[c] += g * g * ed * ed, mr_gs[c] += ld * ld;
+        mr_ad[c] += ed * ed, mr_ab[c] += eb * eb, mr_sd[c] += e->u_xd * e->u_xd,
+            mr_sb[c] += e->u_xb * e->u_xb;
+    }
     if (rc == STAGECAL_OK) {
         const stagecal_regress_result *res =
             cal.used == STAGECAL_MODEL_STAGE_SPACE ? &cal.stage_fit : &cal.comp_fit;
@@ -282,6 +333,23 @@ static int measured_r_study(long reps, unsigned long seed, const char *mode_name
                reps, mode_name, seed, wins, mr_comp,
                (double)(t1.tv_sec - t0.tv_sec) + 1e-9 * (double)(t1.tv_nsec - t0.tv_nsec));
         report("the model file's fit", &tm, (int)reps);
+        for (int c = 0; mr_diag && c < 6; c++)
+            printf("  set point %d: %.0f windows, mean samples %.1f, window stage z: mean %+.3f, "
+                   "rms %.3f; mean u(xD) %.2e u(xB) %.2e; composition z at the truth: mean %+.3f, "
+                   "rms %.3f\n",
+                   c, mr_dn[c], mr_dm[c] / mr_dn[c], mr_dz[c] / mr_dn[c],
+                   sqrt(mr_dz2[c] / mr_dn[c]), mr_du[c] / mr_dn[c], mr_dub[c] / mr_dn[c],
+                   mr_cz[c] / mr_dn[c], sqrt(mr_cz2[c] / mr_dn[c]));
+        for (int c = 0; mr_diag && c < 6; c++)
+            printf("  set point %d: rms stated / rms actual error of the window means: xD %.3f, "
+                   "xB %.3f\n",
+                   c, sqrt(mr_sd[c] / mr_ad[c]), sqrt(mr_sb[c] / mr_ab[c]));
+        for (int c = 0; mr_diag && c < 6; c++)
+            printf("  set point %d: rms stated logit / rms linearised actual %.3f, / rms exact "
+                   "residual "
+                   "%.3f; xD part stated/actual %.3f, xD share of stated variance %.2f\n",
+                   c, sqrt(mr_st[c] / mr_lin[c]), sqrt(mr_st[c] / mr_ex[c]),
+                   sqrt(mr_gs[c] / mr_gd[c]), mr_gs[c] / mr_st[c]);
     }
     tally_free(&tm);
     stagecal_vle_free(col.system.vle);
@@ -306,6 +374,11 @@ int main(int argc, char **argv)
     enum synth_se_mode mode = SYNTH_SE_ESTIMATED;
     const struct synth_regime *rg = &synth_regimes[0];
     if (argc >= 4 && strcmp(argv[3], "measured-r") == 0) {
+        if (strcmp(argv[argc - 1], "diag") == 0) {
+            mr_diag = 1, argc--;
+            srl_truth_xd = calloc(1000, sizeof(double));
+            srl_truth_xb = calloc(1000, sizeof(double));
+        }
         long n = strtol(argv[1], &end1, 10);
         if (*end1 || n < 10 || argc > 5) {
             usage();
@@ -324,6 +397,8 @@ int main(int argc, char **argv)
             mode = SYNTH_SE_KNOWN, known = 1;
         if (strcmp(argv[a], "per-window-rho") == 0)
             mode = SYNTH_SE_PER_WINDOW, known = 1;
+        if (strcmp(argv[a], "diag") == 0)
+            synth_diag_acc = calloc(1, sizeof *synth_diag_acc), known = 1;
         if (strcmp(argv[a], "smoother") == 0)
             mode = SYNTH_SE_SMOOTHER, known = 1;
         args_ok = known;
@@ -369,6 +444,13 @@ int main(int argc, char **argv)
                : mode == SYNTH_SE_SMOOTHER   ? ", statistics from the smoother's residuals"
                                              : "",
                (double)(t1.tv_sec - t0.tv_sec) + 1e-9 * (double)(t1.tv_nsec - t0.tv_nsec));
+        if (synth_diag_acc) { /* per window: stated over actual rms error of the means */
+            const struct synth_diag *dg = synth_diag_acc;
+            printf("window  u(xD)/err  u(xB)/err  logit/err  (rms stated se / rms actual error)\n");
+            for (int w = 0; w < 12; w++)
+                printf("  %2d  %9.3f  %9.3f  %9.3f\n", w + 1, sqrt(dg->su_xd[w] / dg->se_xd[w]),
+                       sqrt(dg->su_xb[w] / dg->se_xb[w]), sqrt(dg->su_l[w] / dg->se_l[w]));
+        }
         report("stage space", &ts, (int)reps);
         report("composition space", &tc, (int)reps);
     }
