@@ -194,8 +194,15 @@ static void invert_row(struct inv_ctx *c, size_t i, double r)
     double ur2 = isinf(r) ? 0.0 : ur * ur;
     double a = sr.dstages_dxd * runlog_u_row(log, c->col, i, 1);
     double b = sr.dstages_dxb * runlog_u_row(log, c->col, i, 0);
+    double tr2 = sr.dstages_dr * sr.dstages_dr * ur2;
+    if (!isfinite(tr2)) { /* R near 1e308: u(R)² overflows where ∂N/∂R underflows to 0 (a
+                             fuzzed log gave u(N) NaN with status ok); the product first, and
+                             an exactly zero slope adds nothing */
+        double t = sr.dstages_dr == 0 ? 0.0 : sr.dstages_dr * ur;
+        tr2 = t * t;
+    }
     res->stages[i] = sr.stages;
-    res->u_stages[i] = sqrt(a * a + b * b + sr.dstages_dr * sr.dstages_dr * ur2);
+    res->u_stages[i] = sqrt(a * a + b * b + tr2);
     res->dn_dxd[i] = sr.dstages_dxd;
     res->dn_dxb[i] = sr.dstages_dxb;
     res->note[i] = STAGECAL_NOTE_NONE;

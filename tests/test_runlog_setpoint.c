@@ -124,6 +124,28 @@ static void setpoint_huge_r_keeps_values(void **state)
     stagecal_runlog_free(log);
 }
 
+/* The same with u(R) relative (the demo column's r_rel 0.03): a lone row at R = 1e308 has
+ * u(R) = 3e306, u(R)² overflows and ∂N/∂R underflows to 0, so the product of the two was NaN
+ * and the row's u(N) NaN with status ok (found by fuzz_runlog's property check). Its u(N) is
+ * finite and, with xD and xB as the only other terms, at least their contribution. */
+static void setpoint_huge_r_relative_u_finite(void **state)
+{
+    (void)state;
+    stagecal_column c = col;
+    c.u.r = 0;
+    c.u.r_rel = 0.03;
+    const char *csv = "time[s],W[mol],xD[mol/mol],xB[mol/mol],R[-]\n0,1,0.9,0.5,1e308\n";
+    stagecal_runlog *log = read_csv(csv, strlen(csv), &c);
+    stagecal_runlog_result res;
+    assert_int_equal(stagecal_runlog_analyse(log, &c, NULL, &res, NULL), 0);
+    assert_int_equal(stagecal_runlog_invert(log, &c, 1.0, NULL, &res, NULL), 0);
+    assert_int_equal(res.status[0], STAGECAL_STAGES_OK);
+    assert_true(isfinite(res.stages[0]));
+    assert_true(isfinite(res.u_stages[0]) && res.u_stages[0] > 0);
+    stagecal_runlog_result_free(&res);
+    stagecal_runlog_free(log);
+}
+
 /* A CSV of nruns runs of n readings each: N(r1, sd) for the first `split` rows, then
  * N(r2, sd). */
 static char *noisy_r_csv(gsl_rng *rng, size_t nruns, size_t n, size_t split, double r1, double r2,
@@ -355,6 +377,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(setpoint_logged_values_are_set_points),
         cmocka_unit_test(setpoint_huge_r_keeps_values),
+        cmocka_unit_test(setpoint_huge_r_relative_u_finite),
         cmocka_unit_test(setpoint_measured_r_two_set_points),
         cmocka_unit_test(setpoint_false_splits_and_power),
         cmocka_unit_test(setpoint_measured_log_calibrates),
