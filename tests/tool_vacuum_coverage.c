@@ -20,7 +20,9 @@
  * column, every row's equilibrium at its own pressure (the method); column  — the P column dropped:
  * every row at the column file's 101.325 kPa; mean    — the P column dropped, the column file at
  * the mean of the runs' pressures. It prints, per way, the fits, the coverage of the 95 % interval
- * of the constant with its Wilson interval, the mean estimate and the median z = (estimate − 6)/se.
+ * of the constant with its Wilson interval, the mean estimate, the median z = (estimate − 6)/se,
+ * the sd of z and se/sd (root mean square stated se over the empirical sd of the estimates; both
+ * 1 when the stated se is right).
  * --fixed-p: every run at 23.5 kPa (the control: what the fit does without a pressure
  * effect). --stage-space: the stage-space fit instead of the model's default. --smoother:
  * window statistics from the residuals of the stage count's own smoother (an evidence option,
@@ -68,7 +70,7 @@ static const char *const way_name[NWAYS] = {"logged", "column", "mean"};
 
 struct way {
     long fits, hits;
-    double *z, sum_est;
+    double *z, *est, sum_est, sum_se2; /* z, estimate per fit; sum of se^2 */
 };
 
 static int load_column(double p_pa, stagecal_column *col)
@@ -124,6 +126,8 @@ static int score(const char *csv, size_t len, const stagecal_column *col, struct
         const stagecal_regress_result *res =
             cal.used == STAGECAL_MODEL_STAGE_SPACE ? &cal.stage_fit : &cal.comp_fit;
         double est = res->theta[0];
+        t->est[t->fits] = est;
+        t->sum_se2 += res->se[0] * res->se[0];
         t->z[t->fits++] = (est - VAC_TRUE_N) / res->se[0];
         t->hits += res->ci_low[0] <= VAC_TRUE_N && VAC_TRUE_N <= res->ci_high[0];
         t->sum_est += est;
@@ -191,7 +195,8 @@ int main(int argc, char **argv)
     struct way w[NWAYS];
     memset(w, 0, sizeof w);
     for (int k = 0; k < NWAYS; k++)
-        if (!(w[k].z = malloc((size_t)reps * sizeof(double))))
+        if (!(w[k].z = malloc((size_t)reps * sizeof(double))) ||
+            !(w[k].est = malloc((size_t)reps * sizeof(double))))
             return 1;
     if (!rng)
         return 1;
@@ -215,13 +220,18 @@ int main(int argc, char **argv)
            stage_space ? "stage-space"
            : smoother  ? "the model file's (smoother statistics)"
                        : "the model file's");
-    printf("  %-7s %6s %9s  %-17s %9s %8s\n", "way", "fits", "coverage", "Wilson 95 %", "mean est",
-           "med z");
+    printf("  %-7s %6s %9s  %-17s %9s %8s %7s %7s\n", "way", "fits", "coverage", "Wilson 95 %",
+           "mean est", "med z", "sd z", "se/sd");
     double zq = gsl_cdf_ugaussian_Pinv(0.975), cov[NWAYS], medz[NWAYS];
     for (int k = 0; k < NWAYS && rc == 0; k++) {
         long n = w[k].fits;
         cov[k] = n ? (double)w[k].hits / (double)n : 0;
         medz[k] = NAN;
+        /* the spread: sd of z (1 if the stated se is right) and the root mean square of the
+         * stated se over the empirical sd of the estimates, as tests/tool_coverage.c prints */
+        double sdz = n > 1 ? gsl_stats_sd(w[k].z, 1, (size_t)n) : NAN;
+        double sde = n > 1 ? gsl_stats_sd(w[k].est, 1, (size_t)n) : NAN;
+        double sesd = n > 1 ? sqrt(w[k].sum_se2 / (double)n) / sde : NAN;
         if (n > 0) {
             gsl_sort(w[k].z, 1, (size_t)n);
             medz[k] = gsl_stats_median_from_sorted_data(w[k].z, 1, (size_t)n);
@@ -231,8 +241,8 @@ int main(int argc, char **argv)
         double h =
             n ? zq / (1 + z2n) * sqrt(cov[k] * (1 - cov[k]) / (double)n + z2n / (4.0 * (double)n))
               : 0;
-        printf("  %-7s %6ld %9.4f  [%.4f, %.4f] %9.4f %+8.3f\n", way_name[k], n, cov[k], c - h,
-               c + h, n ? w[k].sum_est / (double)n : NAN, medz[k]);
+        printf("  %-7s %6ld %9.4f  [%.4f, %.4f] %9.4f %+8.3f %7.3f %7.3f\n", way_name[k], n, cov[k],
+               c - h, c + h, n ? w[k].sum_est / (double)n : NAN, medz[k], sdz, sesd);
     }
     if (rc == 0 && check) {
         double off =
@@ -244,7 +254,7 @@ int main(int argc, char **argv)
         rc = !ok;
     }
     for (int k = 0; k < NWAYS; k++)
-        free(w[k].z);
+        free(w[k].z), free(w[k].est);
     gsl_rng_free(rng);
     return rc;
 }
