@@ -139,6 +139,22 @@ static inline double srl_xd_of(const struct srl_spec *s, double r, double xb, do
  * for all rows of the log). */
 static double *srl_truth_xd, *srl_truth_xb;
 
+/* The actual errors of the mean xD and xB of rows first..last against the kept truth (the
+ * logged columns xd, xb; NaN cells skipped). */
+static inline void srl_window_mean_error(const double *xd, const double *xb, size_t first,
+                                         size_t last, double *ed, double *eb)
+{
+    double sd = 0, sb = 0;
+    size_t nd = 0, nb = 0;
+    for (size_t i = first; i <= last; i++) {
+        if (isfinite(xd[i]))
+            sd += xd[i] - srl_truth_xd[i], nd++;
+        if (isfinite(xb[i]))
+            sb += xb[i] - srl_truth_xb[i], nb++;
+    }
+    *ed = sd / (double)nd, *eb = sb / (double)nb;
+}
+
 /* The whole log as CSV text (malloc'd; NULL on allocation failure); *len its length. */
 static inline char *srl_csv(const struct srl_spec *s, gsl_rng *rng, size_t *len)
 {

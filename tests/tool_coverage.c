@@ -239,15 +239,8 @@ static int mr_one(gsl_rng *rng, const stagecal_column *col, enum mr_mode mode, s
         double cz = (logit_(spd) - logit_(sm)) / sqrt(lx * lx + ld * ld);
         mr_cz[c] += cz, mr_cz2[c] += cz * cz;
         /* the actual errors of the window means (the truth of every row kept by the simulator) */
-        double ed = 0, eb = 0;
-        size_t nd = 0, nb = 0;
-        for (size_t i = e->first; i <= e->last; i++) {
-            if (isfinite(log->xd[i]))
-                ed += log->xd[i] - srl_truth_xd[i], nd++;
-            if (isfinite(log->xb[i]))
-                eb += log->xb[i] - srl_truth_xb[i], nb++;
-        }
-        ed /= (double)nd, eb /= (double)nb;
+        double ed, eb;
+        srl_window_mean_error(log->xd, log->xb, e->first, e->last, &ed, &eb);
         double lin = g * ed - eb / (e->xb * (1 - e->xb));
         double exact = logit_(spd) - logit_(sm);
         mr_lin[c] += lin * lin, mr_ex[c] += exact * exact, mr_st[c] += lx * lx + ld * ld;

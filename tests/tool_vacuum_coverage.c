@@ -155,15 +155,8 @@ static int score(const char *csv, size_t len, const stagecal_column *col, struct
         for (int j = 1; j < 4; j++)
             if (fabs(e->r - rset[j]) < 0.1)
                 c = j;
-        double ed = 0, eb = 0;
-        size_t nd = 0, nb = 0;
-        for (size_t i = e->first; i <= e->last; i++) {
-            if (isfinite(log->xd[i]))
-                ed += log->xd[i] - srl_truth_xd[i], nd++;
-            if (isfinite(log->xb[i]))
-                eb += log->xb[i] - srl_truth_xb[i], nb++;
-        }
-        ed /= (double)nd, eb /= (double)nb;
+        double ed, eb;
+        srl_window_mean_error(log->xd, log->xb, e->first, e->last, &ed, &eb);
         dg_n[c][h] += 1, dg_sd[c][h] += e->u_xd * e->u_xd, dg_ad[c][h] += ed * ed;
         dg_sb[c][h] += e->u_xb * e->u_xb, dg_ab[c][h] += eb * eb;
         /* the composition fit's window residual at the truth (src/regress_composition.c's
