@@ -33,28 +33,12 @@ int stagecal_plot_design(const stagecal_design_curves *c, stagecal_plot_chart **
         snprintf(title, sizeof title, "%s: where to run the next tests", id);
     plot_fig_labels(&f, title, "reflux ratio R [-]", "stages incl. pot [-]");
     double pct = 100 * (c->level > 0 && c->level < 1 ? c->level : 0.95);
-    stagecal_plot_split sp;
     const double *ys[5] = {c->stages, c->now_lo, c->now_hi, c->after_lo, c->after_hi};
-    if (stagecal_plot_split_envelope(c->r, ys, 5, c->n, c->env_lo, c->env_hi, &sp) != STAGECAL_OK) {
-        f.oom = 1;
+    char after[96];
+    snprintf(lab, sizeof lab, "%.0f %% band now", pct);
+    snprintf(after, sizeof after, "%.0f %% band after the tests (expected)", pct);
+    if (plot_fig_envelope(&f, c->r, ys, c->n, c->env_lo, c->env_hi, lab, after, "fitted stages", 6))
         return plot_fig_close(&f, out, err);
-    }
-    for (int part = 0; part < 2; part++) {
-        const double *x = part ? sp.out_x : sp.in_x;
-        double *const *y = part ? sp.out_y : sp.in_y;
-        size_t m = part ? sp.n_out : sp.n_in;
-        if (m == 0)
-            continue;
-        snprintf(lab, sizeof lab, "%.0f %% band now", pct);
-        plot_fig_add(&f, STAGECAL_PLOT_BAND, part ? NULL : lab, x, y[1], y[2], m, 5, part, 0);
-        snprintf(lab, sizeof lab, "%.0f %% band after the tests (expected)", pct);
-        plot_fig_add(&f, STAGECAL_PLOT_BAND, part ? NULL : lab, x, y[3], y[4], m, 0, part, 0);
-        plot_fig_add(&f, STAGECAL_PLOT_LINE,
-                     part ? "extrapolated (outside the envelope): dashed, light bands"
-                          : "fitted stages",
-                     x, y[0], NULL, m, 6, part ? 1 : 0, 0);
-    }
-    stagecal_plot_split_free(&sp);
     /* the conditions under the tests, larger: a test proposed at a condition of interest
      * shows inside its ring */
     stagecal_plot_series *s;

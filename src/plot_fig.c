@@ -1,5 +1,6 @@
 /*
- * plot_fig.c — the chart builders' arena and series helpers (plot_internal.h).
+ * plot_fig.c — the chart builders' arena and series helpers (plot_internal.h), and the
+ * split of a fitted curve at its envelope that the fit's and the proposal's charts share.
  */
 #include <math.h>
 #include <stdlib.h>
@@ -166,4 +167,143 @@ void plot_fig_labels(plot_fig *f, const char *title, const char *xl, const char 
     f->c->title = plot_str(f, title);
     f->c->x_label = plot_str(f, xl);
     f->c->y_label = plot_str(f, yl);
+}
+
+/* ---- the fitted envelope ----------------------------------------------------------- */
+
+/* Linear interpolation of y between grid points i and i + 1 at x. */
+static double interp(const double *g, const double *y, size_t i, double x)
+{
+    if (g[i + 1] == g[i])
+        return y[i];
+    return y[i] + (y[i + 1] - y[i]) * (x - g[i]) / (g[i + 1] - g[i]);
+}
+
+void stagecal_plot_split_free(stagecal_plot_split *sp)
+{
+    if (!sp)
+        return;
+    free(sp->in_x);
+    free(sp->out_x);
+    for (size_t j = 0; j < STAGECAL_PLOT_SPLIT_MAX; j++) {
+        free(sp->in_y[j]);
+        free(sp->out_y[j]);
+    }
+    memset(sp, 0, sizeof *sp);
+}
+
+/* Value j at abscissa x of the merged list: exact at a grid point, else interpolated
+ * between the grid points around x (an envelope edge). */
+static double value_at(const double *grid, const double *y, size_t n, double x)
+{
+    if (!y)
+        return NAN;
+    size_t i = 0;
+    while (i + 1 < n && grid[i + 1] <= x)
+        i++;
+    if (grid[i] == x || i + 1 >= n)
+        return y[i];
+    return interp(grid, y, i, x);
+}
+
+static void split_put(stagecal_plot_split *sp, int out, double x, const double *grid,
+                      const double *const *ys, size_t n)
+{
+    double *px = out ? sp->out_x : sp->in_x;
+    double *const *py = out ? sp->out_y : sp->in_y;
+    size_t *m = out ? &sp->n_out : &sp->n_in;
+    px[*m] = x;
+    for (size_t j = 0; j < sp->k; j++)
+        py[j][*m] = isnan(x) ? NAN : value_at(grid, ys[j], n, x);
+    (*m)++;
+}
+
+int stagecal_plot_split_envelope(const double *grid, const double *const *ys, size_t k, size_t n,
+                                 double lo, double hi, stagecal_plot_split *sp)
+{
+    memset(sp, 0, sizeof *sp);
+    if (k > STAGECAL_PLOT_SPLIT_MAX || !grid || n == 0)
+        return STAGECAL_EINVAL;
+    size_t cap = n + 5;
+    sp->k = k;
+    sp->in_x = malloc(cap * sizeof *sp->in_x);
+    sp->out_x = malloc(cap * sizeof *sp->out_x);
+    int ok = sp->in_x && sp->out_x;
+    for (size_t j = 0; j < k && ok; j++) {
+        sp->in_y[j] = malloc(cap * sizeof **sp->in_y);
+        sp->out_y[j] = malloc(cap * sizeof **sp->out_y);
+        ok = sp->in_y[j] && sp->out_y[j];
+    }
+    if (!ok) {
+        stagecal_plot_split_free(sp);
+        return STAGECAL_ENOMEM;
+    }
+    lo = isnan(lo) ? -INFINITY : lo;
+    hi = isnan(hi) ? INFINITY : hi;
+    /* the abscissae: the grid with the edges that fall strictly inside it added */
+    double g0 = grid[0], g1 = grid[n - 1];
+    int add_lo = lo > g0 && lo<g1, add_hi = hi> g0 && hi < g1;
+    for (size_t i = 0; i < n; i++) /* an edge on a grid point is that point */
+        add_lo &= grid[i] != lo, add_hi &= grid[i] != hi;
+    size_t nleft = 0;
+    for (int pass = 0; pass < 3; pass++) { /* left of lo, inside, right of hi */
+        int lo_done = !add_lo, hi_done = !add_hi;
+        for (size_t i = 0; i <= n; i++) {
+            /* the next abscissa in order: an edge before grid[i], or grid[i] */
+            double x;
+            if (!lo_done && (i == n || lo < grid[i])) {
+                x = lo, lo_done = 1, i--;
+            } else if (!hi_done && (i == n || hi < grid[i])) {
+                x = hi, hi_done = 1, i--;
+            } else if (i < n) {
+                x = grid[i];
+            } else {
+                break;
+            }
+            if (pass == 0 && x <= lo && isfinite(lo)) {
+                split_put(sp, 1, x, grid, ys, n);
+                nleft++;
+            } else if (pass == 1 && x >= lo && x <= hi) {
+                split_put(sp, 0, x, grid, ys, n);
+            } else if (pass == 2 && x >= hi && isfinite(hi)) {
+                split_put(sp, 1, x, grid, ys, n);
+            }
+        }
+        if (pass == 0 && nleft == 1) /* the edge alone: no outside part on the left */
+            sp->n_out = nleft = 0;
+        if (pass == 0 && nleft > 0)
+            split_put(sp, 1, NAN, grid, ys, n);
+    }
+    if (sp->n_out == nleft + (nleft > 0) + 1) /* the right edge alone */
+        sp->n_out--;
+    if (sp->n_out > 0 && isnan(sp->out_x[sp->n_out - 1])) /* nothing on the right */
+        sp->n_out--;
+    return STAGECAL_OK;
+}
+
+int plot_fig_envelope(plot_fig *f, const double *grid, const double *const ys[5], size_t n,
+                      double lo, double hi, const char *outer, const char *inner, const char *curve,
+                      int curve_colour)
+{
+    stagecal_plot_split sp;
+    if (stagecal_plot_split_envelope(grid, ys, 5, n, lo, hi, &sp) != STAGECAL_OK) {
+        f->oom = 1;
+        return STAGECAL_ENOMEM;
+    }
+    for (int part = 0; part < 2; part++) {
+        const double *x = part ? sp.out_x : sp.in_x;
+        double *const *y = part ? sp.out_y : sp.in_y;
+        size_t m = part ? sp.n_out : sp.n_in;
+        if (m == 0)
+            continue;
+        if (outer)
+            plot_fig_add(f, STAGECAL_PLOT_BAND, part ? NULL : outer, x, y[1], y[2], m, 5, part, 0);
+        if (inner)
+            plot_fig_add(f, STAGECAL_PLOT_BAND, part ? NULL : inner, x, y[3], y[4], m, 0, part, 0);
+        plot_fig_add(f, STAGECAL_PLOT_LINE,
+                     part ? "extrapolated (outside the envelope): dashed, light bands" : curve, x,
+                     y[0], NULL, m, curve_colour, part ? 1 : 0, 0);
+    }
+    stagecal_plot_split_free(&sp);
+    return STAGECAL_OK;
 }

@@ -49,5 +49,13 @@ void plot_fig_panel(plot_fig *f, const char *y_label, double weight, double y_lo
 void plot_fig_inset(plot_fig *f, double x_lo, double x_hi, const double box[4]);
 int plot_fig_close(plot_fig *f, stagecal_plot_chart **out, stagecal_error *err);
 void plot_fig_labels(plot_fig *f, const char *title, const char *xl, const char *yl);
+/* The curve ys[0] over grid (n points) with two bands, outer (ys[1], ys[2]; colour 5) and
+ * inner (ys[3], ys[4]; colour 0) drawn when their label is not NULL: inside the fitted
+ * envelope [lo, hi] (NAN: open) under their labels, and beyond it extrapolated (the curve
+ * dashed, the bands lighter, unlabelled), each part ending exactly at the envelope's edge
+ * (stagecal_plot_split_envelope). STAGECAL_ENOMEM (and f->oom) when the split fails. */
+int plot_fig_envelope(plot_fig *f, const double *grid, const double *const ys[5], size_t n,
+                      double lo, double hi, const char *outer, const char *inner, const char *curve,
+                      int curve_colour);
 
 #endif

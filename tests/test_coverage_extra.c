@@ -693,7 +693,7 @@ static void coverage_vle_refusals_and_kvalue(void **state)
                         "t_min_k <= t_max_k with t_min_k + c > 0 (or 0, 0 for none)");
 }
 
-/* ---- plot_build.c: the chart builders' refusals ---------------------------------- */
+/* ---- plot_build.c, plot_mccabe.c: the chart builders' refusals ------------------- */
 
 /* Each builder names its chart and what is missing or out of domain (plot.h: "EINVAL
  * (inputs outside their domain, named in the message)"). */
