@@ -2,7 +2,8 @@
  * cmd_predict.c — `stagecal predict`: a batch predicted from a model file (the
  * planner's side of the calibration): trajectory, cuts, batch time, energy, and a band
  * from the model's parameter covariance; quasi-steady, or dynamic with the column
- * file's holdup (start-up, first-cut delay, smeared cuts). Numerics live in src/batch*.c.
+ * file's holdup (start-up, first-cut delay, smeared cuts). Numerics live in src/batch*.c;
+ * the band's output is in predict_band.c, the dynamic model's in predict_dynamic.c.
  */
 #include <errno.h>
 #include <math.h>
@@ -15,6 +16,7 @@
 #include "cli.h"
 #include "commands.h"
 #include "options.h"
+#include "predict.h"
 #include "stagecal/batch.h"
 #include "stagecal/model.h"
 #include "stagecal/units.h"
@@ -45,13 +47,6 @@ static const struct cli_usage usage = {
     "quasi-steady (the default otherwise); docs/methods.md, 'Dynamic batch prediction'.\n"};
 
 static const char *const dynamics_choices[] = {"holdup", "quasi-steady", NULL};
-enum { DYN_DEFAULT = -1, DYN_HOLDUP = 0, DYN_QUASI = 1 };
-
-/* SI → the units people read (stagecal/units.h). */
-#define H(s) ((s) / STAGECAL_UNIT_H)
-#define KMOL(mol) ((mol) / STAGECAL_UNIT_KMOL)
-#define KMOL_H(mol_s) ((mol_s) / STAGECAL_UNIT_KMOL_H)
-#define GJ(j) ((j) / STAGECAL_UNIT_GJ)
 
 /* Parses NAME:KIND=VALUE (NAME: optional) into spec; time in h → s. */
 static int parse_cut(const char *text, stagecal_batch_cut_spec *spec)
@@ -148,66 +143,11 @@ static const char *const latent_token[] = {"none", "option", "plan-file", "colum
 static const char *const latent_words[] = {"nowhere", "--latent", "the plan file",
                                            "the column file", "the model file"};
 
-static json_t *interval_json(const stagecal_batch_interval *iv, double scale)
-{
-    return json_pack("{s:o,s:o,s:o}", "nominal", cli_json_real(iv->nominal * scale), "low",
-                     cli_json_real(iv->low * scale), "high", cli_json_real(iv->high * scale));
-}
-
 static const char *policy_name(int kind)
 {
     return kind == STAGECAL_BATCH_CONSTANT_REFLUX       ? "constant-reflux"
            : kind == STAGECAL_BATCH_CONSTANT_DISTILLATE ? "constant-distillate"
                                                         : "schedule";
-}
-
-/* The dynamic run's extras for the outputs (NULL for the quasi-steady model): its holdup
- * and the quasi-steady batch beside it, for the delays. */
-struct dyn_view {
-    const stagecal_batch_dynamics *dy;
-    const stagecal_batch_result *qs;
-    double u_rel; /* the stated holdup's relative standard uncertainty (0: not stated) */
-};
-
-/* A receiver's distillate: first and last xD, its spread; dynamic: the quasi-steady cut. */
-static void cut_dyn_json(json_t *o, const stagecal_batch_cut *c, const struct dyn_view *dv,
-                         size_t i)
-{
-    json_object_set_new(o, "xd_first", cli_json_real(c->xd_first));
-    json_object_set_new(o, "xd_last", cli_json_real(c->xd_last));
-    json_object_set_new(o, "xd_sd", cli_json_real(c->xd_sd));
-    if (!dv)
-        return;
-    const stagecal_batch_cut *q = &dv->qs->cuts[i];
-    json_object_set_new(o, "delay_h", cli_json_real(H(c->t_end_s - q->t_end_s)));
-    json_object_set_new(o, "quasi_steady",
-                        json_pack("{s:o,s:o,s:o,s:o}", "t_end_h", cli_json_real(H(q->t_end_s)),
-                                  "amount_kmol", cli_json_real(KMOL(q->amount_mol)), "x_mean",
-                                  cli_json_real(q->x_mean), "xd_sd", cli_json_real(q->xd_sd)));
-}
-
-/* The batch model's members of the document. */
-static void dyn_json(json_t *doc, const stagecal_batch_problem *pb,
-                     const stagecal_batch_result *res, const struct dyn_view *dv)
-{
-    json_object_set_new(doc, "dynamics", json_string(dv ? "holdup" : "quasi-steady"));
-    if (!dv) {
-        json_object_set_new(doc, "column_holdup", json_string("neglected"));
-        json_object_set_new(doc, "startup_h", json_null());
-        return;
-    }
-    const stagecal_batch_dynamics *dy = dv->dy;
-    json_object_set_new(
-        doc, "column_holdup",
-        json_pack(
-            "{s:o,s:o,s:o,s:o,s:s}", "column_kmol", cli_json_real(KMOL(dy->holdup_column_mol)),
-            "drum_kmol", cli_json_real(KMOL(dy->holdup_drum_mol)), "fraction_of_charge",
-            cli_json_real((dy->holdup_column_mol + dy->holdup_drum_mol) / pb->w0_mol), "u_rel",
-            dv->u_rel > 0 ? cli_json_real(dv->u_rel) : json_null(), "source", "column file"));
-    json_object_set_new(doc, "startup_h", cli_json_real(H(res->t_startup_s)));
-    json_object_set_new(doc, "xd_startup", cli_json_real(res->xd_startup));
-    json_object_set_new(doc, "stage_count_changes", json_integer((json_int_t)res->n_remaps));
-    json_object_set_new(doc, "quasi_steady_batch_time_h", cli_json_real(H(dv->qs->t_end_s)));
 }
 
 static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batch_result *res,
@@ -227,16 +167,9 @@ static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batc
             "amount_kmol", cli_json_real(KMOL(c->amount_mol)), "x_mean", cli_json_real(c->x_mean),
             "yield", cli_json_real(c->yield), "recovery", cli_json_real(c->recovery), "xb_end",
             cli_json_real(c->xb_end), "reflux_end", cli_json_real(c->reflux_end));
-        if (have_band) {
-            const stagecal_batch_cut_band *b = &band->cuts[i];
-            json_object_set_new(
-                o, "band",
-                json_pack("{s:o,s:o,s:o,s:o,s:o}", "t_end_h", interval_json(&b->t_end_s, H(1.0)),
-                          "amount_kmol", interval_json(&b->amount_mol, 1 / STAGECAL_UNIT_KMOL),
-                          "x_mean", interval_json(&b->x_mean, 1), "yield",
-                          interval_json(&b->yield, 1), "recovery", interval_json(&b->recovery, 1)));
-        }
-        cut_dyn_json(o, c, dv, i);
+        if (have_band)
+            json_object_set_new(o, "band", predict_band_cut_json(&band->cuts[i]));
+        predict_dyn_cut_json(o, c, dv, i);
         json_array_append_new(cuts, o);
     }
     for (size_t i = 0; i < res->n_rows; i++) {
@@ -284,43 +217,14 @@ static json_t *result_json(const stagecal_batch_problem *pb, const stagecal_batc
                         json_pack("{s:o,s:o}", "min", cli_json_real(res->r_min_used), "max",
                                   cli_json_real(res->r_max_used)));
     json_object_set_new(doc, "extrapolated", json_boolean(res->outside != 0));
-    dyn_json(doc, pb, res, dv);
+    predict_dyn_json(doc, pb, res, dv);
     json_object_set_new(doc, "cuts", cuts);
     json_object_set_new(doc, "trajectory", rows);
     json_object_set_new(doc, "warnings", warn);
     json_object_set_new(doc, "seed", json_integer((json_int_t)seed));
-    if (have_band)
-        json_object_set_new(
-            doc, "band",
-            json_pack("{s:o,s:I,s:I,s:I,s:o,s:o,s:s}", "level", cli_json_real(band->level),
-                      "samples", (json_int_t)band->n_samples, "ok", (json_int_t)band->n_ok,
-                      "failed", (json_int_t)band->n_failed, "batch_time_h",
-                      interval_json(&band->t_end_s, H(1.0)), "energy_gj",
-                      interval_json(&band->energy_j, 1 / STAGECAL_UNIT_GJ), "covers",
-                      band->run_scatter
-                          ? "parameter uncertainty (t draws) and the run-to-run scatter of one "
-                            "batch (prediction band)"
-                          : "parameter uncertainty of the mean law, t draws (not the run-to-run "
-                            "scatter: --run-scatter)"));
-    else
-        json_object_set_new(doc, "band", json_null());
-    if (have_band && dv) /* the dynamic model's draws also draw the holdup */
-        json_object_set_new(json_object_get(doc, "band"), "holdup_u_rel",
-                            cli_json_real(dv->dy->holdup_u_rel));
+    json_object_set_new(doc, "band", have_band ? predict_band_json(band, dv) : json_null());
     json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
     return doc;
-}
-
-/* A receiver's distillate and, dynamic, the quasi-steady receiver beside it. */
-static void print_cut_dyn(const stagecal_batch_cut *c, const struct dyn_view *dv, size_t i)
-{
-    printf("%-12s   distillate x %.5f -> %.5f, smearing (sd of x) %.4f", "", c->xd_first,
-           c->xd_last, c->xd_sd);
-    if (dv)
-        printf("; quasi-steady: end %.3f h (delay %+.3f h), x_mean %.5f, sd %.4f",
-               H(dv->qs->cuts[i].t_end_s), H(c->t_end_s - dv->qs->cuts[i].t_end_s),
-               dv->qs->cuts[i].x_mean, dv->qs->cuts[i].xd_sd);
-    printf("\n");
 }
 
 static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_result *res,
@@ -329,14 +233,7 @@ static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_r
 {
     printf("batch: %.4g kmol at x = %.4g, boil-up %.4g kmol/h, %s; ", KMOL(pb->w0_mol), pb->xb0,
            KMOL_H(pb->v_mol_s), policy_name((int)pb->policy.kind));
-    if (!dv)
-        printf("quasi-steady, column holdup neglected\n");
-    else
-        printf("dynamic: column holdup %.4g kmol, drum %.4g kmol (%.3g %% of the charge)\n"
-               "start-up at total reflux: %.3f h to the first draw (xD = %.5f)\n",
-               KMOL(dv->dy->holdup_column_mol), KMOL(dv->dy->holdup_drum_mol),
-               100 * (dv->dy->holdup_column_mol + dv->dy->holdup_drum_mol) / pb->w0_mol,
-               H(res->t_startup_s), res->xd_startup);
+    predict_dyn_print_head(pb, res, dv);
     printf("%-12s %-14s %9s %9s %10s %8s %8s %8s %8s\n", "receiver", "ended by", "start[h]",
            "end[h]", "amount", "x_mean", "yield", "recovery", "R_end");
     for (size_t i = 0; i < res->n_cuts; i++) {
@@ -344,24 +241,13 @@ static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_r
         printf("%-12s %-14s %9.3f %9.3f %10.4g %8.5f %8.4f %8.4f %8.3g\n", c->name,
                stagecal_batch_stop_name(c->stop), H(c->t_start_s), H(c->t_end_s),
                KMOL(c->amount_mol), c->x_mean, c->yield, c->recovery, c->reflux_end);
-        if (have_band) {
-            const stagecal_batch_cut_band *b = &band->cuts[i];
-            printf("%-12s %-14s %9s [%.3f, %.3f] h  amount [%.4g, %.4g] kmol  x_mean [%.5f, "
-                   "%.5f]\n",
-                   "", "  band", "", H(b->t_end_s.low), H(b->t_end_s.high), KMOL(b->amount_mol.low),
-                   KMOL(b->amount_mol.high), b->x_mean.low, b->x_mean.high);
-        }
-        print_cut_dyn(c, dv, i);
+        if (have_band)
+            predict_band_print_cut(&band->cuts[i]);
+        predict_dyn_print_cut(c, dv, i);
     }
     printf("batch time %.3f h", H(res->t_end_s));
     if (have_band)
-        printf(" [%.3f, %.3f] (%.0f %% %s band, t at %g dof, %zu draws)", H(band->t_end_s.low),
-               H(band->t_end_s.high), 100 * band->level,
-               band->run_scatter ? "prediction (run-to-run scatter included)"
-                                 : "confidence (mean law; without run-to-run scatter)",
-               band->dof, band->n_ok);
-    if (have_band && dv)
-        printf(" (holdup drawn too, u = %.0f %%)", 100 * dv->dy->holdup_u_rel);
+        predict_band_print_time(band, dv);
     printf("; pot left %.4g kmol at x = %.4g\n", KMOL(res->w_end_mol), res->xb_end);
     if (pb->latent_j_mol > 0)
         printf("boil-up energy %.4g GJ (latent heat %.4g kJ/mol, from %s)\n", GJ(res->energy_j),
@@ -371,11 +257,7 @@ static void print_human(const stagecal_batch_problem *pb, const stagecal_batch_r
     printf("reflux ratio used: %.4g to %.4g%s\n", res->r_min_used, res->r_max_used,
            dv ? " (after the start-up at total reflux)" : "");
     if (dv)
-        printf("dynamic model: equal liquid holdup on the column stages (the column file's, "
-               "u = %.0f %%), constant molar overflow, effective (ideal) stages from the model; "
-               "the start-up and the delays scale with the holdup; quasi-steady batch time "
-               "%.3f h\n",
-               100 * dv->dy->holdup_u_rel, H(dv->qs->t_end_s));
+        predict_dyn_print_model(dv);
     /* extrapolation beyond the fitted envelope belongs with the numbers, not only on stderr */
     for (size_t i = 0; i < res->n_warnings; i++)
         printf("warning: %s\n", res->warnings[i]);
@@ -540,36 +422,6 @@ static int build_problem(const struct request *q, double ml, double mh, double l
     return 0;
 }
 
-/* The batch model: dynamic with the column file's holdup (--dynamics holdup, the default
- * when the file states one) or quasi-steady; *dyn = 1 for the dynamic model. An exit code. */
-static int pick_dynamics(const struct request *q, const cli_system *sys,
-                         stagecal_batch_dynamics *dy, int *dyn)
-{
-    int stated = sys->have_column && sys->col.holdup_column_mol > 0;
-    stagecal_batch_dynamics_init(dy);
-    *dyn = q->dynamics == DYN_HOLDUP || (q->dynamics == DYN_DEFAULT && stated);
-    if (!*dyn) {
-        if (!isnan(q->startup_xd) || !isnan(q->startup_h))
-            return cli_usage_error("options '--startup-xd' and '--startup-time' go with the "
-                                   "dynamic model (a column file that states a holdup)");
-        return 0;
-    }
-    if (!stated)
-        return cli_usage_error("'--dynamics holdup' needs the column's liquid holdup: give "
-                               "'--column FILE' with a 'holdup' (docs/column-file.md)");
-    if (!isnan(q->startup_xd) && !isnan(q->startup_h))
-        return cli_usage_error("give one of '--startup-xd' and '--startup-time'");
-    dy->holdup_column_mol = sys->col.holdup_column_mol;
-    dy->holdup_drum_mol = sys->col.holdup_drum_mol;
-    /* the band draws the holdup too: the file's u_rel, 0.25 when it states none (column.h) */
-    dy->holdup_u_rel = sys->col.holdup_u_rel > 0 ? sys->col.holdup_u_rel : 0.25;
-    if (!isnan(q->startup_xd))
-        dy->startup_xd = q->startup_xd;
-    if (!isnan(q->startup_h))
-        dy->startup_max_s = q->startup_h * STAGECAL_UNIT_H;
-    return 0;
-}
-
 /* Checks the request, runs the batch (and its band), prints. An exit code. */
 static int run(const struct request *q, cli_ctx *ctx)
 {
@@ -648,7 +500,7 @@ static int run(const struct request *q, cli_ctx *ctx)
     par.output_dt_s = q->every * STAGECAL_UNIT_H;
     stagecal_batch_result_init(&res);
     stagecal_batch_result_init(&qs);
-    if ((rc = pick_dynamics(q, sys, &dy, &dyn)))
+    if ((rc = predict_dyn_pick(q->dynamics, q->startup_xd, q->startup_h, sys, &dy, &dyn)))
         goto done;
     /* dynamic: the quasi-steady batch beside it, for the delays */
     if (dyn && (rc = stagecal_batch_run(&pb, &col, &par, &qs, &err)) == STAGECAL_OK)
