@@ -20,6 +20,7 @@
 #include <stdio.h>
 #include <string.h>
 
+#include "demo_points_model.h"
 #include "testutil.h"
 #include "stagecal/design.h"
 #include "stagecal/model.h"
@@ -138,28 +139,12 @@ static void design_information_matches_finite_differences(void **state)
     check_info_fd("linear:1+1/R+F", th3, c3);
 }
 
-/* A fitted model of the demo points (datasets/points, invented data). */
+/* A fitted model of the demo points (datasets/points, invented data), with a load term
+ * allowed (make_model's has_load). */
 static void demo_model(stagecal_model *m, const char *form)
 {
-    stagecal_regress_data d;
-    stagecal_regress_result r;
-    stagecal_regress_params par = stagecal_regress_default_params();
-    par.band_points = 0;
-    memset(&d, 0, sizeof d);
-    memset(&r, 0, sizeof r);
-    assert_int_equal(
-        stagecal_regress_data_read(STAGECAL_DATASETS "/points/demo_points.csv", &d, NULL),
-        STAGECAL_OK);
-    stagecal_form f;
-    assert_int_equal(stagecal_form_parse(form, &f, NULL), STAGECAL_OK);
-    assert_int_equal(stagecal_regress_fit(&d, &f, &par, &r, NULL), STAGECAL_OK);
-    make_model(m, form, r.theta, r.cov, r.sigma_obs, r.dof);
-    m->r_min = r.r_min;
-    m->r_max = r.r_max;
-    m->f_min = r.f_min;
-    m->f_max = r.f_max;
-    stagecal_regress_result_free(&r);
-    stagecal_regress_data_free(&d);
+    demo_points_model(m, form);
+    m->has_load = 1;
 }
 
 static void design_half_width_before_is_model_band(void **state)

@@ -16,6 +16,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "demo_points_model.h"
 #include "testutil.h"
 #include "stagecal/design.h"
 #include "stagecal/model.h"
@@ -27,35 +28,6 @@ static int setup(void **state)
     (void)state;
     gsl_set_error_handler_off();
     return 0;
-}
-
-/* The saturating form fitted to the demo points (datasets/points, invented data). */
-static void demo_model(stagecal_model *m)
-{
-    stagecal_regress_data d;
-    stagecal_regress_result r;
-    stagecal_regress_params par = stagecal_regress_default_params();
-    par.band_points = 0;
-    memset(&d, 0, sizeof d);
-    memset(&r, 0, sizeof r);
-    assert_int_equal(
-        stagecal_regress_data_read(STAGECAL_DATASETS "/points/demo_points.csv", &d, NULL),
-        STAGECAL_OK);
-    stagecal_model_init(m);
-    assert_int_equal(stagecal_form_parse("saturating", &m->form, NULL), STAGECAL_OK);
-    assert_int_equal(stagecal_regress_fit(&d, &m->form, &par, &r, NULL), STAGECAL_OK);
-    size_t p = m->form.p;
-    memcpy(m->theta, r.theta, p * sizeof *r.theta);
-    memcpy(m->cov, r.cov, p * p * sizeof *r.cov);
-    m->sigma = r.sigma_obs;
-    m->dof = r.dof;
-    m->n_windows = 20;
-    m->n_samples = 800;
-    m->r_min = r.r_min;
-    m->r_max = r.r_max;
-    snprintf(m->column_id, sizeof m->column_id, "demo-column");
-    stagecal_regress_result_free(&r);
-    stagecal_regress_data_free(&d);
 }
 
 static const stagecal_plot_series *find_series(const stagecal_plot_chart *c, const char *label)
@@ -71,7 +43,8 @@ static void design_chart_curves_and_chart(void **state)
     (void)state;
     stagecal_model m;
     stagecal_design_problem pb;
-    demo_model(&m);
+    demo_points_model(&m, "saturating");
+    snprintf(m.column_id, sizeof m.column_id, "demo-column");
     assert_true(isfinite(m.r_min) && isfinite(m.r_max));
     assert_int_equal(stagecal_design_from_model(&m, &pb, NULL), STAGECAL_OK);
     /* conditions inside, beyond the envelope (extrapolated) and at total reflux */
