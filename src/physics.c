@@ -34,6 +34,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "vle_internal.h"
+/* after every system header: banned.h redefines libc names */
 #include "internal.h"
 
 int stagecal_internal_reflux(double reflux, double cp_j_mol_k, double dt_k, double latent_j_mol,
@@ -72,9 +74,18 @@ stagecal_vle *stagecal_vle_at_pressure(const stagecal_vle *vle, double p_pa, sta
 
 stagecal_physics_params stagecal_physics_default_params(void)
 {
-    stagecal_physics_params p = {1.0, 32, 0};
+    stagecal_physics_params p = {1.0, 32, 0, STAGECAL_PHYSICS_GRID_REL};
     return p;
 }
+
+/* Models on the pressure grid P0·exp(k·r), built once each (2049 bubble solves, ~5 ms). */
+#define GRID_CACHE 16
+
+struct grid_entry {
+    long k;
+    stagecal_vle *vle; /* owned */
+    unsigned long used;
+};
 
 struct cache_entry {
     double p_pa;          /* pressure the model was built at (after rounding) */
@@ -91,6 +102,8 @@ struct stagecal_physics {
     stagecal_vle *base_pseudo; /* the column's own model in pseudo-moles (owned) */
     size_t n;                  /* entries filled */
     unsigned long clock;
+    struct grid_entry grid[GRID_CACHE];
+    size_t ng; /* grid entries filled */
 };
 
 stagecal_physics *stagecal_physics_alloc(const stagecal_column *col,
@@ -135,6 +148,8 @@ void stagecal_physics_free(stagecal_physics *ph)
         stagecal_vle_free(ph->e[i].pseudo);
         stagecal_vle_free(ph->e[i].vle);
     }
+    for (size_t i = 0; i < ph->ng; i++)
+        stagecal_vle_free(ph->grid[i].vle);
     stagecal_vle_free(ph->base_pseudo);
     free(ph->e);
     free(ph);
@@ -162,13 +177,68 @@ static stagecal_vle *model_at(const stagecal_physics *ph, const stagecal_vle *ba
     return stagecal_vle_alloc_definition(&def, err);
 }
 
+/* Grid model k (P0·exp(k·r); k = 0 is the column's own), built on first use. */
+static const stagecal_vle *grid_model(stagecal_physics *ph, long k, stagecal_error *err)
+{
+    const stagecal_vle *base = ph->col->system.vle;
+    if (k == 0)
+        return base;
+    size_t victim = 0;
+    for (size_t i = 0; i < ph->ng; i++) {
+        if (ph->grid[i].k == k) {
+            ph->grid[i].used = ph->clock;
+            return ph->grid[i].vle;
+        }
+        if (ph->grid[i].used < ph->grid[victim].used)
+            victim = i;
+    }
+    if (ph->ng < GRID_CACHE)
+        victim = ph->ng;
+    double p = stagecal_vle_pressure(base) * exp((double)k * ph->par.p_grid_rel);
+    stagecal_vle *v = stagecal_vle_at_pressure(base, p, err);
+    if (!v)
+        return NULL;
+    if (victim < ph->ng)
+        stagecal_vle_free(ph->grid[victim].vle);
+    else
+        ph->ng++;
+    ph->grid[victim] = (struct grid_entry){k, v, ph->clock};
+    return v;
+}
+
+/* The model at p: its table interpolated in ln P through the four grid models around p
+ * (cubic Lagrange weights at t = ln(p/P_k)/r in [0, 1) over nodes k−1 … k+2; T_bubble and the
+ * azeotropes still solved at p); the model built at p when a grid model or the blend fails
+ * (a pressure where the Antoine sets give no bubble point). */
+static stagecal_vle *blend_at(stagecal_physics *ph, double p, stagecal_error *err)
+{
+    const stagecal_vle *base = ph->col->system.vle;
+    double t = log(p / stagecal_vle_pressure(base)) / ph->par.p_grid_rel, kf = floor(t);
+    if (fabs(kf) < 1e9) {
+        long k = (long)kf;
+        double s = fmin(fmax(t - kf, 0.0), 1.0);
+        double w[4] = {-s * (s - 1) * (s - 2) / 6, (s + 1) * (s - 1) * (s - 2) / 2,
+                       -(s + 1) * s * (s - 2) / 2, (s + 1) * s * (s - 1) / 6};
+        const stagecal_vle *m[4];
+        int ok = 1;
+        for (int pass = 0; pass < 2 && ok; pass++) /* again: a build may evict an earlier one */
+            for (int j = 0; j < 4 && ok; j++)
+                ok = (m[j] = grid_model(ph, k - 1 + j, NULL)) != NULL;
+        stagecal_vle *v = ok ? vle_alloc_blend(m, w, 4, p, NULL) : NULL;
+        if (v)
+            return v;
+    }
+    return model_at(ph, base, p, err);
+}
+
 /* The column's model at p_pa (the column's own when the pressure rounds to its one);
  * *pseudo receives its pseudo-mole twin (NULL without unequal latent heats). */
 static const stagecal_vle *vle_at(stagecal_physics *ph, double p_pa, const stagecal_vle **pseudo,
                                   stagecal_error *err)
 {
     const stagecal_vle *base = ph->col->system.vle;
-    double res = ph->par.p_resolution_pa;
+    int grid = ph->par.p_grid_rel > 0 && !ph->par.exact;
+    double res = grid ? 0.0 : ph->par.p_resolution_pa;
     double p = res > 0 ? res * nearbyint(p_pa / res) : p_pa;
     if (!(p > 0))
         p = res > 0 ? res : p_pa;
@@ -188,7 +258,7 @@ static const stagecal_vle *vle_at(stagecal_physics *ph, double p_pa, const stage
     }
     if (ph->n < ph->par.cache_size)
         victim = ph->n;
-    stagecal_vle *v = model_at(ph, base, p, err), *vp = NULL;
+    stagecal_vle *v = grid ? blend_at(ph, p, err) : model_at(ph, base, p, err), *vp = NULL;
     if (!v || (ph->ratio > 0 && !(vp = stagecal_vle_alloc_pseudo(v, ph->ratio, err)))) {
         stagecal_vle_free(v);
         return NULL;

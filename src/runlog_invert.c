@@ -215,6 +215,14 @@ int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *co
     return runlog_invert_with(log, col, murphree, params, NULL, res, err);
 }
 
+int stagecal_runlog_invert_physics(const stagecal_runlog *log, const stagecal_column *col,
+                                   double murphree, const stagecal_runlog_analysis_params *params,
+                                   stagecal_physics *ph, stagecal_runlog_result *res,
+                                   stagecal_error *err)
+{
+    return runlog_invert_with(log, col, murphree, params, ph, res, err);
+}
+
 int runlog_invert_with(const stagecal_runlog *log, const stagecal_column *col, double murphree,
                        const stagecal_runlog_analysis_params *params, stagecal_physics *ph,
                        stagecal_runlog_result *res, stagecal_error *err)

@@ -8,6 +8,7 @@
 #include <float.h>
 #include <math.h>
 #include <stdlib.h>
+#include <string.h>
 
 #include <gsl/gsl_errno.h>
 
@@ -318,6 +319,67 @@ stagecal_vle *stagecal_vle_alloc_activity(stagecal_vle_kind kind, const stagecal
     if (antoine_outside(&ant[0], v->t_lo, v->t_hi))
         v->antoine_flags |= STAGECAL_VLE_ANTOINE_LIGHT;
     if (antoine_outside(&ant[1], v->t_lo, v->t_hi))
+        v->antoine_flags |= STAGECAL_VLE_ANTOINE_HEAVY;
+    vle_find_azeotropes(v);
+    return v;
+}
+
+/* A model at p_pa whose table is Σ w[j]·(table of m[j]): node values and slopes combined
+ * node by node. A cubic Hermite interpolant is linear in its node data, so the blend's
+ * y*(x) is exactly Σ w[j]·y*_j(x). */
+stagecal_vle *vle_alloc_blend(const stagecal_vle *const *m, const double *w, size_t k, double p_pa,
+                              stagecal_error *err)
+{
+    const stagecal_vle *a = m[0];
+    int ok = k > 0 && vle_is_activity(a->kind) && p_pa > 0.0 && isfinite(p_pa);
+    for (size_t j = 0; ok && j < k; j++)
+        ok = m[j]->kind == a->kind && m[j]->n == a->n && !m[j]->vp.exact && m[j]->ts &&
+             isfinite(w[j]);
+    if (!ok) {
+        error_set(err, STAGECAL_EINVAL, "blend: tables of one activity model expected");
+        return NULL;
+    }
+    stagecal_vle *v = vle_new(a->kind, err);
+    if (!v)
+        return NULL;
+    v->vp = a->vp;
+    v->ant[0] = a->ant[0];
+    v->ant[1] = a->ant[1];
+    memcpy(v->par, a->par, sizeof v->par);
+    v->p_pa = p_pa;
+    v->ln_p = log(p_pa);
+    v->has_t = 1;
+    size_t n = a->n;
+    if (!vle_alloc_nodes(v, n, 1)) {
+        stagecal_vle_free(v);
+        error_set(err, STAGECAL_ENOMEM, "out of memory");
+        return NULL;
+    }
+    for (size_t i = 0; i < n; i++) {
+        double y = 0.0, my = 0.0, t = 0.0, mt = 0.0;
+        for (size_t j = 0; j < k; j++) {
+            y += w[j] * m[j]->ys[i];
+            my += w[j] * m[j]->ms[i];
+            t += w[j] * m[j]->ts[i];
+            mt += w[j] * m[j]->mts[i];
+        }
+        v->xs[i] = a->xs[i];
+        v->ys[i] = y, v->ms[i] = my, v->ts[i] = t, v->mts[i] = mt;
+        v->t_lo = i == 0 || t < v->t_lo ? t : v->t_lo;
+        v->t_hi = i == 0 || t > v->t_hi ? t : v->t_hi;
+    }
+    v->ys[0] = 0.0;
+    v->ys[n - 1] = 1.0;
+    vle_find_branch_end(v);
+    if (v->iend == 0 || vle_build_buckets_like(v, a->bx ? a : NULL) != STAGECAL_OK ||
+        stagecal_vle_validate(v, NULL, NULL) != STAGECAL_OK) {
+        stagecal_vle_free(v);
+        error_set(err, STAGECAL_EDATA, "blend: not a valid table (or out of memory)");
+        return NULL;
+    }
+    if (antoine_outside(&v->ant[0], v->t_lo, v->t_hi))
+        v->antoine_flags |= STAGECAL_VLE_ANTOINE_LIGHT;
+    if (antoine_outside(&v->ant[1], v->t_lo, v->t_hi))
         v->antoine_flags |= STAGECAL_VLE_ANTOINE_HEAVY;
     vle_find_azeotropes(v);
     return v;

@@ -82,6 +82,8 @@ size_t vle_nparam_of(stagecal_vle_kind kind);
 size_t vle_locate(const double *a, double v, size_t lo, size_t hi);
 /* Builds the bucket index once the nodes and the branch end are known. ENOMEM. */
 int vle_build_buckets(stagecal_vle *v);
+/* The same, bx copied from same_x (same nodes, buckets built) when not NULL. ENOMEM. */
+int vle_build_buckets_like(stagecal_vle *v, const stagecal_vle *same_x);
 /* Sets iend, the last node of the first increasing branch. */
 void vle_find_branch_end(stagecal_vle *v);
 /* The Hermite interpolant of node values ys and slopes ms over v->xs at x. */
@@ -102,6 +104,12 @@ double vle_t_guess(const stagecal_vle *v, double x);
 void vle_exact_slopes(const stagecal_vle *v, double x, double t, double *dydx, double *dtdx);
 /* Exact inverse x*(y) by Brent on the exact y*, bracketed around the table's answer. */
 int vle_xstar_exact(const stagecal_vle *v, double y, double *x);
+
+/* A model at p_pa whose table is Σ w[j]·(table of m[j]), j < k (m[j]: one activity model at
+ * several pressures, same nodes, tables not exact); T_bubble, y*_exact and the azeotropes are
+ * solved at p_pa. EINVAL (mismatch), EDATA (the blend is not a valid table), ENOMEM. */
+stagecal_vle *vle_alloc_blend(const stagecal_vle *const *m, const double *w, size_t k, double p_pa,
+                              stagecal_error *err);
 
 /* vle_azeotrope.c */
 

@@ -7,6 +7,7 @@
 #include <float.h>
 #include <math.h>
 #include <stdlib.h>
+#include <string.h>
 
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_interp.h>
@@ -71,26 +72,37 @@ static size_t locate_y(const stagecal_vle *v, double y)
     return i > v->iend - 1 ? v->iend - 1 : i;
 }
 
-/* Builds bx/by once the nodes and the branch end are known. */
-int vle_build_buckets(stagecal_vle *v)
+/* Builds bx/by once the nodes and the branch end are known; bx copied from same_x (a model
+ * with the same nodes) when it is not NULL. */
+int vle_build_buckets_like(stagecal_vle *v, const stagecal_vle *same_x)
 {
     v->nb = 2 * v->n < 64 ? 64 : 2 * v->n;
     v->ytop = v->ys[v->iend];
-    v->bx = calloc(v->nb + 1, sizeof *v->bx);
-    v->by = calloc(v->nb + 1, sizeof *v->by);
+    v->bx = malloc((v->nb + 1) * sizeof *v->bx);
+    v->by = malloc((v->nb + 1) * sizeof *v->by);
     if (!v->bx || !v->by)
         return STAGECAL_ENOMEM;
     size_t i = 0, j = 0;
+    if (same_x)
+        memcpy(v->bx, same_x->bx, (v->nb + 1) * sizeof *v->bx);
     for (size_t b = 0; b <= v->nb; b++) {
-        double xb = (double)b / (double)v->nb, yb = v->ytop * (double)b / (double)v->nb;
-        while (i + 2 < v->n && v->xs[i + 1] <= xb)
-            i++;
+        double yb = v->ytop * (double)b / (double)v->nb;
+        if (!same_x) {
+            double xb = (double)b / (double)v->nb;
+            while (i + 2 < v->n && v->xs[i + 1] <= xb)
+                i++;
+            v->bx[b] = i;
+        }
         while (j + 1 < v->iend && v->ys[j + 1] <= yb)
             j++;
-        v->bx[b] = i;
         v->by[b] = j;
     }
     return STAGECAL_OK;
+}
+
+int vle_build_buckets(stagecal_vle *v)
+{
+    return vle_build_buckets_like(v, NULL);
 }
 
 double vle_herm_eval(const stagecal_vle *v, const double *ys, const double *ms, double x)

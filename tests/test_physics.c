@@ -246,6 +246,116 @@ static void physics_exact_models_match_raoult(void **state)
     stagecal_column_free(&col);
 }
 
+/* Ethanol–water, NRTL (set A of datasets/columns/kestrel_c3_ethanol_water.json, attributed to
+ * a regression of the DECHEMA VLE collection, Gmehling & Onken 1977) with the NIST WebBook
+ * Antoine sets (after Ambrose & Sprake 1970; Bridgeman & Aldrich 1964). */
+#define EW_COLUMN                                                                                  \
+    "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"t\",\"condenser\":\"total\","          \
+    "\"pressure_pa\":101325,\"system\":{\"light\":{\"name\":\"ethanol\",\"antoine\":{\"a\":"       \
+    "5.24677,\"b\":1598.673,\"c\":-46.424}},\"heavy\":{\"name\":\"water\",\"antoine\":{\"a\":"     \
+    "5.08354,\"b\":1663.125,\"c\":-45.622}},\"model\":{\"kind\":\"nrtl\",\"tau12_a\":-0.8009,"     \
+    "\"tau12_b_k\":246.18,\"tau21_a\":3.4578,\"tau21_b_k\":-586.0809,\"alpha12\":0.3}}}"
+
+/* The pressure grid (params.p_grid_rel, default h = 0.02 in ln P): the model at a logged P
+ * interpolates, with cubic Lagrange weights in ln P, the dense tables of the four grid models
+ * around P. Against the dense model built at P itself (stagecal_vle_at_pressure), 60
+ * pressures shuffled over 8–200 kPa (benzene–toluene) and 20–150 kPa (ethanol–water,
+ * azeotropic), through the physics' caches (evictions included):
+ * - y*(x) within the remainder of 4-point interpolation, (9/16)/4!·h⁴·max|∂⁴(y*)/∂(ln P)⁴|
+ *   (Lagrange's remainder; e.g. Burden & Faires, Numerical Analysis, ch. 3, from memory;
+ *   9/16 = max |s(s+1)(s−1)(s−2)| on [0, 1]), the fourth derivative taken at P by a central
+ *   fourth difference of exact models 0.05 apart in ln P; factor 4 for its variation over
+ *   the four cells and the difference's own error, 1e-12 for the tables' rounding;
+ * - T_bubble identical to 1e-9 K (it is solved at P in both);
+ * - x*(y) to 1e-7 (|Δx*| = |Δy*|/slope);
+ * - the count of rows at R = 1.5–6, xD = 0.9–0.99 (benzene–toluene) within 1e-4·u(N), u(N)
+ *   from the tangent-linear sensitivities and the demo column's u(xD) = 0.002, u(xB) = 0.003,
+ *   u(R) = 5 % (datasets/columns/demo_benzene_toluene.json): far below any stated u(N).
+ * Measured (printed): the worst y* error, its ratio to the bound, the worst |ΔN|/u(N). */
+static void grid_check(const char *json, double p_lo, double p_hi, int rows)
+{
+    stagecal_column col = load(json);
+    stagecal_physics_params pp = stagecal_physics_default_params();
+    pp.cache_size = 8;
+    assert_rel(pp.p_grid_rel, 0.02, 0, "default grid");
+    const double h = pp.p_grid_rel, hd = 0.05;
+    stagecal_physics *ph = stagecal_physics_alloc(&col, &pp, NULL);
+    assert_non_null(ph);
+    const stagecal_vle *base = col.system.vle;
+    double worst_y = 0, worst_n = 0, worst_err = 0;
+    stagecal_stages_params sp = stagecal_stages_default_params();
+    sp.want_sensitivities = 1;
+    for (int k = 0; k < 40; k++) {
+        double p = p_lo * pow(p_hi / p_lo, (double)((k * 23) % 40) / 39.0);
+        const stagecal_vle *v;
+        assert_int_equal(stagecal_physics_vle_at(ph, p, 0, &v, NULL), 0);
+        assert_abs(stagecal_vle_pressure(v), p, 0.0, "model pressure");
+        stagecal_vle *ex[5];
+        for (int j = 0; j < 5; j++)
+            assert_non_null(ex[j] = stagecal_vle_at_pressure(base, p * exp((j - 2) * hd), NULL));
+        double m4 = 0;
+        for (int i = 0; i <= 200; i++) {
+            double x = i / 200.0, y[5];
+            for (int j = 0; j < 5; j++)
+                assert_int_equal(stagecal_vle_ystar(ex[j], x, &y[j]), 0);
+            m4 = fmax(m4, fabs(y[0] - 4 * y[1] + 6 * y[2] - 4 * y[3] + y[4]) / pow(hd, 4));
+        }
+        double bound = 4 * (9.0 / 16.0) / 24.0 * pow(h, 4) * m4 + 1e-12;
+        for (int i = 0; i <= 200; i++) {
+            double x = i / 200.0, y, ye, t, te, xi, xe;
+            assert_int_equal(stagecal_vle_ystar(v, x, &y), 0);
+            assert_int_equal(stagecal_vle_ystar(ex[2], x, &ye), 0);
+            assert_abs(y, ye, bound, "interpolated y* against the model at P");
+            worst_y = fmax(worst_y, fabs(y - ye) / bound);
+            worst_err = fmax(worst_err, fabs(y - ye));
+            assert_int_equal(stagecal_vle_tbubble(v, x, &t), 0);
+            assert_int_equal(stagecal_vle_tbubble(ex[2], x, &te), 0);
+            assert_abs(t, te, 1e-9, "bubble point solved at P");
+            if (x > 0.02 && x < 0.98 && stagecal_vle_xstar(ex[2], x, &xe) == 0) {
+                assert_int_equal(stagecal_vle_xstar(v, x, &xi), 0);
+                assert_abs(xi, xe, 1e-7, "x*");
+            }
+        }
+        for (int j = 0; j < rows; j++) {
+            double xd = 0.9 + 0.01 * (j % 10), r = 1.5 + 0.5 * (j % 10), n0 = 4.37 + (j % 7);
+            double xb;
+            size_t len;
+            int st;
+            assert_int_equal(
+                stagecal_stages_step(ex[2], xd, r, n0, 1.0, NULL, &xb, NULL, 0, &len, &st, NULL),
+                0);
+            if (st != STAGECAL_STAGES_OK)
+                continue;
+            stagecal_physics_cond c;
+            assert_int_equal(stagecal_physics_cond_at(ph, p, xd, r, NAN, &c, NULL), 0);
+            stagecal_stages_result rg, re;
+            assert_int_equal(stagecal_physics_invert(&c, xd, xb, 1.0, &sp, &rg, NULL), 0);
+            assert_int_equal(stagecal_stages_invert(ex[2], xd, xb, r, 1.0, &sp, &re, NULL), 0);
+            assert_int_equal(rg.status, re.status);
+            if (re.status != STAGECAL_STAGES_OK)
+                continue;
+            double un = hypot(hypot(re.dstages_dxd * 0.002, re.dstages_dxb * 0.003),
+                              re.dstages_dr * 0.05 * r);
+            assert_true(un > 0);
+            assert_abs(rg.stages, re.stages, 1e-4 * un, "count against stepping at P");
+            worst_n = fmax(worst_n, fabs(rg.stages - re.stages) / un);
+        }
+        for (int j = 0; j < 5; j++)
+            stagecal_vle_free(ex[j]);
+    }
+    print_message("grid %g-%g kPa: worst |dy*| %.3g (%.3g of the bound), worst |dN|/u(N) %.3g\n",
+                  p_lo / 1e3, p_hi / 1e3, worst_err, worst_y, worst_n);
+    stagecal_physics_free(ph);
+    stagecal_column_free(&col);
+}
+
+static void physics_grid_matches_models_at_pressure(void **state)
+{
+    (void)state;
+    grid_check(BT_COLUMN("", ""), 8000, 200000, 10);
+    grid_check(EW_COLUMN, 20000, 150000, 0);
+}
+
 /* A pressure logged for a model without pressure dependence is named in a warning; so is
  * a reflux temperature the column cannot use. */
 static void physics_unused_inputs_warn(void **state)
@@ -377,6 +487,7 @@ int main(void)
         cmocka_unit_test(physics_column_members),
         cmocka_unit_test(physics_unequal_latent_heats_exact),
         cmocka_unit_test(physics_exact_models_match_raoult),
+        cmocka_unit_test(physics_grid_matches_models_at_pressure),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

@@ -59,19 +59,29 @@ enum {
 };
 
 typedef struct {
-    double p_resolution_pa; /* pressures are rounded to this before a model is built (1 Pa;
-                               0 = exact); far below a pressure transmitter's accuracy */
+    double p_resolution_pa; /* with p_grid_rel = 0 or exact: pressures are rounded to this
+                               before a model is built (1 Pa; 0 = exact) */
     size_t cache_size;      /* models kept (32); the oldest is rebuilt when more are met */
     int exact;              /* 1: a model at a logged pressure is built on a coarse table
                                (STAGECAL_PHYSICS_EXACT_GRID nodes, ~16x faster to build) and
                                answers y*, x* and the slope by solving the model (~µs a query
                                instead of ~50 ns): for callers with a few queries per pressure
                                (the soft sensor's, runlog_soft.c); 0 (default): the dense table */
+    double p_grid_rel;      /* > 0 (default STAGECAL_PHYSICS_GRID_REL), not exact: dense models
+                               are built only on the grid P0·exp(k·p_grid_rel) around the
+                               column's pressure P0; the model at a logged P has the table
+                               interpolated in ln P through its four grid neighbours (cubic)
+                               (~30 µs instead of ~5 ms; its T_bubble is solved at P itself).
+                               0: a dense model at every (rounded) pressure */
 } stagecal_physics_params;
 
 /* Table nodes of a model built with params.exact (enough for its azeotrope search and the
  * brackets of its exact x*; stagecal_vle_params.grid_n). */
 #define STAGECAL_PHYSICS_EXACT_GRID 129
+
+/* Default relative spacing of the pressure grid (docs/methods.md "Logged pressure": the
+ * interpolated y* is within ~1e-13 of the dense model built at P). */
+#define STAGECAL_PHYSICS_GRID_REL 0.02
 
 stagecal_physics_params stagecal_physics_default_params(void);
 

@@ -22,6 +22,7 @@
 
 #include "stagecal/column.h"
 #include "stagecal/error.h"
+#include "stagecal/physics.h"
 #include "stagecal/units.h"
 
 #ifdef __cplusplus
@@ -492,6 +493,13 @@ int stagecal_runlog_analyse(const stagecal_runlog *log, const stagecal_column *c
 int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *col, double murphree,
                            const stagecal_runlog_analysis_params *params,
                            stagecal_runlog_result *res, stagecal_error *err);
+/* As stagecal_runlog_invert, the equilibrium models at logged pressures taken from ph and kept
+ * there (physics.h; one column, one thread; NULL: an object of its own for this call). A caller
+ * inverting a log run by run passes one ph, so a model is built once, not once per run. */
+int stagecal_runlog_invert_physics(const stagecal_runlog *log, const stagecal_column *col,
+                                   double murphree, const stagecal_runlog_analysis_params *params,
+                                   stagecal_physics *ph, stagecal_runlog_result *res,
+                                   stagecal_error *err);
 
 void stagecal_runlog_result_free(stagecal_runlog_result *res); /* frees members; NULL ok */
 

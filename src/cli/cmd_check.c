@@ -194,6 +194,7 @@ struct check_out {
     size_t len;
     size_t gross;             /* runs with a gross balance error */
     stagecal_runlog_totals t; /* rows, runs and files (runs and closures unused) */
+    stagecal_physics *ph;     /* the models at logged pressures, kept from run to run */
 };
 
 /* Run `run` (one run): its analysis (and inversion with an equilibrium model: the stage
@@ -204,7 +205,7 @@ static int check_run(struct check_out *out, const stagecal_runlog *run, const st
     stagecal_runlog_result res;
     if (stagecal_runlog_analyse(run, col, ap, &res, err) != STAGECAL_OK ||
         (col && col->system.vle &&
-         stagecal_runlog_invert(run, col, 1.0, ap, &res, err) != STAGECAL_OK))
+         stagecal_runlog_invert_physics(run, col, 1.0, ap, out->ph, &res, err) != STAGECAL_OK))
         return -1;
     if (out->json) {
         json_t *o = cli_run_json(run, 0, &res.closures[0]);
@@ -306,6 +307,8 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
     else
         out.text = open_memstream(&out.buf, &out.len);
     size_t missing = 0;
+    if (have_col && col.system.vle)
+        out.ph = stagecal_physics_alloc(&col, NULL, NULL); /* NULL: one per run (slower) */
     if (!f || !(ctx->json ? out.runs != NULL : out.text != NULL)) {
         cli_error("out of memory");
         rc = CLI_EXIT_SOFTWARE;
@@ -333,6 +336,7 @@ int cmd_check(int argc, char **argv, cli_ctx *ctx)
     json_decref(out.runs);
     stagecal_runlog_totals_free(&out.t);
     stagecal_findings_free(f);
+    stagecal_physics_free(out.ph);
     if (have_col)
         stagecal_column_free(&col);
     return rc;
