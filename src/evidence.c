@@ -533,7 +533,7 @@ static size_t thin_samples(const double *t, const double *xd, const double *xb, 
 static int window_summary(const stagecal_runlog *log, const double *xd_src,
                           const stagecal_runlog_result *res, const stagecal_uncertainty *u,
                           size_t k, size_t cap, double *t, double *xd, double *xb, double *f,
-                          double *s, stagecal_evidence *e)
+                          double *s, const double *quad_rho, stagecal_evidence *e)
 {
     const stagecal_runlog_window *w = &res->windows[k];
     size_t len = w->last - w->first + 1, nok = 0, nf = 0, ncd = 0, ncb = 0;
@@ -574,10 +574,20 @@ static int window_summary(const stagecal_runlog *log, const double *xd_src,
         e->has_load = 1;
         e->f_load = fsum / (double)nf;
     }
-    if (stagecal_evidence_mean_rho(t, xd, len, u->xd, &e->xd, &e->u_xd, &e->rho_xd, &e->m_xd,
-                                   NULL) != STAGECAL_OK ||
-        stagecal_evidence_mean_rho(t, xb, len, u->xb, &e->xb, &e->u_xb, &e->rho_xb, &e->m_xb,
-                                   NULL) != STAGECAL_OK)
+    if (quad_rho) { /* STAGECAL_EVIDENCE_NOISE_QUAD_POOLED: ρ given (pooled) or NAN (own) */
+        int a = stagecal_evidence_mean_quad(t, xd, len, u->xd, quad_rho[0], &e->xd, &e->u_xd,
+                                            &e->rho_xd, &e->m_xd, NULL);
+        int b = a ? a
+                  : stagecal_evidence_mean_quad(t, xb, len, u->xb, quad_rho[1], &e->xb, &e->u_xb,
+                                                &e->rho_xb, &e->m_xb, NULL);
+        if (a == STAGECAL_ENOMEM || b == STAGECAL_ENOMEM)
+            return -1;
+        if (a || b)
+            return 0;
+    } else if (stagecal_evidence_mean_rho(t, xd, len, u->xd, &e->xd, &e->u_xd, &e->rho_xd, &e->m_xd,
+                                          NULL) != STAGECAL_OK ||
+               stagecal_evidence_mean_rho(t, xb, len, u->xb, &e->xb, &e->u_xb, &e->rho_xb, &e->m_xb,
+                                          NULL) != STAGECAL_OK)
         return 0; /* too few usable compositions: not evidence */
     e->s_t = s;
     e->s_xd = s + cap;
@@ -621,11 +631,35 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
     int rc = evidence_holdup(log, col, &par, set, xd_src, u2, err);
-    for (size_t k = 0; k < nw && rc == STAGECAL_OK; k++)
-        if (!(par.skip_run && par.skip_run[res->windows[k].run]) &&
-            window_summary(log, xd_src, res, &col->u, k, cap, buf, buf + maxlen, buf + 2 * maxlen,
-                           buf + 3 * maxlen, set->samples + 3 * cap * set->n, &set->ev[set->n]))
-            set->n++;
+    /* QUAD_POOLED: each window's own ρ first, then again at ρ pooled per analyser over the
+     * windows (weighted by lag pairs, as stagecal_evidence_pool_rho), which also sets σ² =
+     * RSS/A(ρ) at the pooled ρ */
+    int quad = par.noise == STAGECAL_EVIDENCE_NOISE_QUAD_POOLED;
+    double qrho[2] = {NAN, NAN};
+    for (int pass = 0; pass < 1 + quad && rc == STAGECAL_OK; pass++) {
+        set->n = 0;
+        for (size_t k = 0; k < nw && rc == STAGECAL_OK; k++) {
+            if (par.skip_run && par.skip_run[res->windows[k].run])
+                continue;
+            int ok =
+                window_summary(log, xd_src, res, &col->u, k, cap, buf, buf + maxlen,
+                               buf + 2 * maxlen, buf + 3 * maxlen, set->samples + 3 * cap * set->n,
+                               quad ? qrho : NULL, &set->ev[set->n]);
+            if (ok < 0)
+                rc = error_set(err, STAGECAL_ENOMEM, "out of memory (window means)");
+            set->n += ok > 0;
+        }
+        double w[2] = {0, 0}, r[2] = {0, 0};
+        for (size_t k = 0; k < set->n; k++) {
+            const stagecal_evidence *e = &set->ev[k];
+            w[0] += e->m_xd >= 2 ? (double)(e->m_xd - 1) : 0.0;
+            r[0] += e->m_xd >= 2 ? (double)(e->m_xd - 1) * e->rho_xd : 0.0;
+            w[1] += e->m_xb >= 2 ? (double)(e->m_xb - 1) : 0.0;
+            r[1] += e->m_xb >= 2 ? (double)(e->m_xb - 1) * e->rho_xb : 0.0;
+        }
+        for (int a = 0; a < 2; a++)
+            qrho[a] = w[a] > 0 ? r[a] / w[a] : NAN;
+    }
     free(buf);
     if (rc == STAGECAL_OK && par.physics)
         rc = evidence_conditions(log, col, set, err);

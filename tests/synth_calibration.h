@@ -114,8 +114,11 @@ enum synth_se_mode {
     SYNTH_SE_KNOWN,         /* the true ones (synth_ar1_var_mean): fixed weights (steady,
                                regularly sampled regimes only) */
     SYNTH_SE_PER_WINDOW,    /* each window's own ρ̂ (the calibration before pooling) */
-    SYNTH_SE_SMOOTHER       /* from the residuals of the stage count's own smoother, σ and ρ
+    SYNTH_SE_SMOOTHER,      /* from the residuals of the stage count's own smoother, σ and ρ
                                pooled per analyser (stagecal_evidence_window_stats) */
+    SYNTH_SE_QUAD           /* quadratic detrend with the AR(1) moments of its residuals, ρ
+                               pooled per analyser (stagecal_evidence_mean_quad, as the builder's
+                               STAGECAL_EVIDENCE_NOISE_QUAD_POOLED) */
 };
 
 /* A regime of the synthetic data. */
@@ -218,10 +221,16 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
         e->r = rs[w];
         e->total_reflux = isinf(rs[w]);
         e->n_samples = NS;
-        if (stagecal_evidence_mean_rho(t, xd, NS, u_xd, &e->xd, &e->u_xd, &e->rho_xd, &e->m_xd,
-                                       NULL) != STAGECAL_OK ||
-            stagecal_evidence_mean_rho(t, xb, NS, u_xb, &e->xb, &e->u_xb, &e->rho_xb, &e->m_xb,
-                                       NULL) != STAGECAL_OK)
+        if (se_mode == SYNTH_SE_QUAD) {
+            if (stagecal_evidence_mean_quad(t, xd, NS, u_xd, NAN, &e->xd, &e->u_xd, &e->rho_xd,
+                                            &e->m_xd, NULL) != STAGECAL_OK ||
+                stagecal_evidence_mean_quad(t, xb, NS, u_xb, NAN, &e->xb, &e->u_xb, &e->rho_xb,
+                                            &e->m_xb, NULL) != STAGECAL_OK)
+                return __LINE__;
+        } else if (stagecal_evidence_mean_rho(t, xd, NS, u_xd, &e->xd, &e->u_xd, &e->rho_xd,
+                                              &e->m_xd, NULL) != STAGECAL_OK ||
+                   stagecal_evidence_mean_rho(t, xb, NS, u_xb, &e->xb, &e->u_xb, &e->rho_xb,
+                                              &e->m_xb, NULL) != STAGECAL_OK)
             return __LINE__;
         if (se_mode == SYNTH_SE_KNOWN) {
             if (rg->irregular || rg->drift > 0)
@@ -254,6 +263,19 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
     }
     if (se_mode == SYNTH_SE_ESTIMATED)
         stagecal_evidence_pool_rho(ev, NW);
+    if (se_mode == SYNTH_SE_QUAD) { /* again at ρ pooled by lag pairs, as the builder does */
+        double rd = 0, rb = 0;
+        for (size_t w = 0; w < NW; w++)
+            rd += ev[w].rho_xd / (double)NW, rb += ev[w].rho_xb / (double)NW; /* equal m */
+        for (size_t w = 0; w < NW; w++) {
+            stagecal_evidence *e = &ev[w];
+            if (stagecal_evidence_mean_quad(ts[w], xds[w], NS, u_xd, rd, &e->xd, &e->u_xd,
+                                            &e->rho_xd, &e->m_xd, NULL) != STAGECAL_OK ||
+                stagecal_evidence_mean_quad(ts[w], xbs[w], NS, u_xb, rb, &e->xb, &e->u_xb,
+                                            &e->rho_xb, &e->m_xb, NULL) != STAGECAL_OK)
+                return __LINE__;
+        }
+    }
     /* the reading noise for the composition fit's convexity correction, as the builder gives it */
     if (se_mode != SYNTH_SE_SMOOTHER && stagecal_evidence_noise_sd(ev, NW, NULL) != STAGECAL_OK)
         return __LINE__;

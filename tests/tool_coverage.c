@@ -3,8 +3,8 @@
  * calibrations of tests/synth_calibration.h (the law, windows and noise of
  * calibrate_intervals_cover_truth in tests/test_calibrate.c, over many more data sets).
  *
- * Usage: tool_coverage REPLICATIONS SEED [REGIME] [known-se | per-window-rho | smoother]
- *        tool_coverage REPLICATIONS SEED measured-r [measured | set-point | readings]
+ * Usage: tool_coverage REPLICATIONS SEED [REGIME] [known-se | per-window-rho | smoother | quad]
+ *        tool_coverage REPLICATIONS SEED measured-r [measured | set-point | readings] [diag] [quad]
  * (whole run logs from tests/synth_runlog.h through the whole chain; see measured_r_study)
  * Regimes (struct synth_regime in tests/synth_calibration.h): steady, white, drift,
  * drift-ar, irregular, short, long, purity. Diagnostics: known-se gives the windows their true
@@ -12,7 +12,9 @@
  * per-window-rho gives each window the n_eff of its own lag-1 autocorrelation, as the calibration
  * did before it pooled the autocorrelation; smoother takes σ and ρ from the residuals of the stage
  * count's own local smoother (stagecal_evidence_window_stats, an option of the builder; see enum
- * synth_se_mode and docs/calibration.md §5).
+ * synth_se_mode and docs/calibration.md §5); quad detrends each window by a quadratic in time
+ * with ρ and σ from the AR(1) moments of its residuals, ρ pooled (stagecal_evidence_mean_quad,
+ * the builder's STAGECAL_EVIDENCE_NOISE_QUAD_POOLED).
  *
  * For each fit (stage space, composition space) and each quantity (a, b, confidence band
  * at R = 1.5, 5, ∞) it prints
@@ -179,6 +181,7 @@ static long mr_comp; /* data sets whose model carries the composition-space fit 
 /* "diag": per set point (index into rset), windows, Σ z and Σ z² of the window stage counts
  * against the true law at the set point, Σ samples. */
 static int mr_diag;
+static int mr_quad; /* measured-r ... quad: STAGECAL_EVIDENCE_NOISE_QUAD_POOLED */
 static double logit_(double x)
 {
     return log(x / (1 - x));
@@ -212,6 +215,8 @@ static int mr_one(gsl_rng *rng, const stagecal_column *col, enum mr_mode mode, s
     stagecal_calibrate_params par = stagecal_calibrate_default_params();
     par.form = "saturating";
     par.evidence.holdup = STAGECAL_HOLDUP_COMP_NONE;
+    if (mr_quad)
+        par.evidence.noise = STAGECAL_EVIDENCE_NOISE_QUAD_POOLED;
     stagecal_calibration cal;
     int rc = stagecal_calibrate_data(col, NULL, log, &par, &cal, NULL);
     *nwin = cal.res.nwindows;
@@ -353,7 +358,7 @@ static int measured_r_study(long reps, unsigned long seed, const char *mode_name
 static void usage(void)
 {
     fprintf(stderr, "usage: tool_coverage REPLICATIONS(>=10) SEED [REGIME] [known-se | "
-                    "per-window-rho | smoother]\nregimes:");
+                    "per-window-rho | smoother | quad]\nregimes:");
     for (int g = 0; g < SYNTH_NREGIMES; g++)
         fprintf(stderr, " %s", synth_regimes[g].name);
     fprintf(stderr, " (default steady)\n"
@@ -367,6 +372,8 @@ int main(int argc, char **argv)
     enum synth_se_mode mode = SYNTH_SE_ESTIMATED;
     const struct synth_regime *rg = &synth_regimes[0];
     if (argc >= 4 && strcmp(argv[3], "measured-r") == 0) {
+        if (strcmp(argv[argc - 1], "quad") == 0) /* the builder's QUAD_POOLED window statistics */
+            mr_quad = 1, argc--;
         if (strcmp(argv[argc - 1], "diag") == 0) {
             mr_diag = 1, argc--;
             srl_truth_xd = calloc(1000, sizeof(double));
@@ -394,6 +401,8 @@ int main(int argc, char **argv)
             synth_diag_acc = calloc(1, sizeof *synth_diag_acc), known = 1;
         if (strcmp(argv[a], "smoother") == 0)
             mode = SYNTH_SE_SMOOTHER, known = 1;
+        if (strcmp(argv[a], "quad") == 0)
+            mode = SYNTH_SE_QUAD, known = 1;
         args_ok = known;
     }
     long reps = args_ok ? strtol(argv[1], &end1, 10) : 0;
@@ -435,6 +444,7 @@ int main(int argc, char **argv)
                mode == SYNTH_SE_KNOWN        ? ", true window standard errors"
                : mode == SYNTH_SE_PER_WINDOW ? ", each window's own rho"
                : mode == SYNTH_SE_SMOOTHER   ? ", statistics from the smoother's residuals"
+               : mode == SYNTH_SE_QUAD       ? ", quadratic detrend, AR(1) moments, rho pooled"
                                              : "",
                (double)(t1.tv_sec - t0.tv_sec) + 1e-9 * (double)(t1.tv_nsec - t0.tv_nsec));
         if (synth_diag_acc) { /* per window: stated over actual rms error of the means */

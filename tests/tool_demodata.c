@@ -2,9 +2,11 @@
  * tool_demodata.c — writes the invented demo run logs of datasets/demo/ from a
  * stated true stage law, reproducibly (GSL mt19937, fixed seed).
  *
- *   usage: tool_demodata COLUMN.json OUTDIR
+ *   usage: tool_demodata COLUMN.json OUTDIR [SEED MONTHS LOSS_PER_MONTH]
  *   (the committed data: tool_demodata datasets/columns/demo_benzene_toluene.json
- *    datasets/demo)
+ *    datasets/demo — seed 20250106, 14 months, 0.012; other seeds give replicate data sets of
+ *    the same scenario for studies, tests/tool_demo_coverage.c, which includes this file with
+ *    DEMODATA_MAIN defined to call it as a function)
  *
  * INVENTED SCENARIO. "Larkspur Valley Solvents" (fictional), solvent-recovery
  * column K-7 (the demo column file demo-bt-K-7: benzene–toluene, ideal VLE,
@@ -43,12 +45,13 @@
 #include "stagecal/runlog.h"
 #include "stagecal/stages.h"
 
-#define SEED 20250106UL
-#define MONTHS 14
+static unsigned long demo_seed = 20250106UL;
+static int demo_months = 14;
+static int demo_quiet; /* 1: no "wrote" lines */
 #define RUNS_PER_MONTH 6
 #define A0 9.5
 #define B_LAW 0.9
-#define LOSS_PER_MONTH 0.012
+static double demo_loss = 0.012; /* a(t): loss per month since packing */
 #define REPACK_MONTH 9
 #define TAU_MIN 20.0
 #define DT_LOG_MIN 10
@@ -64,7 +67,7 @@ static double law_g(double f)
 static double law_a(double month)
 {
     double since = month < REPACK_MONTH ? month : month - REPACK_MONTH;
-    return A0 * (1.0 - LOSS_PER_MONTH * since);
+    return A0 * (1.0 - demo_loss * since);
 }
 
 static double true_stages(double month, double r, double f)
@@ -132,10 +135,22 @@ static void iso(double t, char *buf, size_t len)
     strftime(buf, len, "%Y-%m-%dT%H:%M:%SZ", &tm);
 }
 
-int main(int argc, char **argv)
+#ifndef DEMODATA_MAIN
+#define DEMODATA_MAIN main
+#endif
+int DEMODATA_MAIN(int argc, char **argv)
 {
-    if (argc != 3) {
-        fprintf(stderr, "usage: tool_demodata COLUMN.json OUTDIR\n");
+    if (argc == 6) {
+        char *e1, *e2, *e3;
+        demo_seed = strtoul(argv[3], &e1, 10);
+        demo_months = (int)strtol(argv[4], &e2, 10);
+        demo_loss = strtod(argv[5], &e3);
+        if (*e1 || *e2 || *e3 || demo_months < 1 || demo_months > 14 || !(demo_loss >= 0))
+            argc = 0;
+    }
+    if (argc != 3 && argc != 6) {
+        fprintf(stderr, "usage: tool_demodata COLUMN.json OUTDIR [SEED MONTHS(1-14) "
+                        "LOSS_PER_MONTH]\n");
         return 2;
     }
     gsl_set_error_handler_off();
@@ -158,12 +173,12 @@ int main(int argc, char **argv)
     }
     fprintf(truth, "file,line,run,stages_true,xD_true,xB_true,R,F_true,transient\n");
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    gsl_rng_set(rng, SEED);
+    gsl_rng_set(rng, demo_seed);
     const stagecal_uncertainty *u = &col.u;
     static const double reflux_choices[] = {1.5, 2.0, 2.5, 3.0, 4.0};
     static const double v_choices[] = {0.7, 0.9, 1.1, 1.3}; /* mol/s */
     int run_no = 0, gross_left = 4;
-    for (int mo = 0; mo < MONTHS; mo++) {
+    for (int mo = 0; mo < demo_months; mo++) {
         char fname[64];
         double month_start = START_EPOCH + mo * 30.4375 * 86400.0;
         char stamp[40];
@@ -250,7 +265,8 @@ int main(int argc, char **argv)
             }
         }
         fclose(out);
-        fprintf(stderr, "wrote %s\n", path);
+        if (!demo_quiet)
+            fprintf(stderr, "wrote %s\n", path);
     }
     fclose(truth);
     gsl_rng_free(rng);

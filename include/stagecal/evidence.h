@@ -107,6 +107,22 @@ int stagecal_evidence_mean_rho(const double *t, const double *y, size_t n, doubl
                                double *mean, double *se, double *rho, size_t *m,
                                stagecal_error *err);
 
+/* The same window mean with the trend taken out by a quadratic in time (a straight line below
+ * 5 samples or when the times do not determine a quadratic): a batch pot's trajectory curves
+ * within a window, and a straight line leaves the curvature in the residuals, where it reads as
+ * noise and autocorrelation by a different amount in each window. The residuals' lag-1
+ * autocorrelation and sum of squares are taken at their AR(1) expectations for this detrend
+ * (E[eᵀQe] = σ²·tr(QMΣ(ρ)M), M the detrend's residual maker, Σ_ij = ρ^|i−j| in sample order):
+ * ρ solves B(ρ)/A(ρ) = the observed lag-1 autocorrelation (a ratio of expectations) in
+ * [0, 0.99], σ² = RSS/A(ρ), and se = max(σ, u_floor)·√(1ᵀΣ(ρ)1)/m — the plain estimates are
+ * biased low in short series, and more so after a quadratic (at m = 60, ρ = 0.7 the plain
+ * n_eff form states the error of the mean 25 % low). rho_in finite: that ρ is used instead of
+ * the window's own (a ρ pooled over windows). *rho: the ρ used. EINVAL (fewer than 3 finite
+ * samples), ENOMEM. */
+int stagecal_evidence_mean_quad(const double *t, const double *y, size_t n, double u_floor,
+                                double rho_in, double *mean, double *se, double *rho, size_t *m,
+                                stagecal_error *err);
+
 /* Pools the lag-1 autocorrelation over windows, per analyser: replaces each window's
  * rho_xd (rho_xb) by the mean of all windows' values weighted by their lag pairs (m − 1),
  * and rescales u_xd (u_xb) to the n_eff of that ρ. Why: one window's ρ̂ from tens of
@@ -156,8 +172,12 @@ typedef enum {
     STAGECAL_EVIDENCE_NOISE_LINE_POOLED = 0, /* straight-line detrend, ρ pooled
                                                 (stagecal_evidence_mean_rho, _pool_rho) */
     STAGECAL_EVIDENCE_NOISE_LINE_OWN,        /* straight-line detrend, each window's own ρ */
-    STAGECAL_EVIDENCE_NOISE_SMOOTHER         /* stagecal_evidence_window_stats (see there why
+    STAGECAL_EVIDENCE_NOISE_SMOOTHER,        /* stagecal_evidence_window_stats (see there why
                                                 it is not the default yet) */
+    STAGECAL_EVIDENCE_NOISE_QUAD_POOLED      /* quadratic detrend, ρ from the AR(1) moments of its
+                                                residuals, pooled over the windows per analyser
+                                                (stagecal_evidence_mean_quad; docs/calibration.md
+                                                §5 says why it is not the default) */
 } stagecal_evidence_noise;
 
 typedef struct {
