@@ -78,9 +78,10 @@ stagecal_physics_params stagecal_physics_default_params(void)
     return p;
 }
 
-/* Models on the pressure grid P0·exp(k·r), built once each (2049 bubble solves, ~5 ms); 48
- * kept (~4 MB), enough for a log over a factor 2.6 in pressure. */
-#define GRID_CACHE 48
+/* Models on the pressure grid P0·exp(k·r), built once each (2049 bubble solves, ~5 ms); 128
+ * kept (up to ~10 MB, allocated as met): a log whose rows jump between pressures over a factor
+ * 13 (r = 0.02) builds each grid model once. */
+#define GRID_CACHE 128
 
 struct grid_entry {
     long k;
