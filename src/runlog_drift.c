@@ -298,13 +298,42 @@ static int within_fit(const double *n, const double *g, const double *w, const i
     return isfinite(*d) && isfinite(*se) ? 0 : -1;
 }
 
+/* How much the stretch counts' own error widens the stage relation's drift estimate: the
+ * median count N_s of a stretch is itself off by δ_s, which moves each row's residual by
+ * δ_s·∂X/∂N (hx), and across a batch ∂X/∂N changes with the pot much as a drift's g does
+ * (near a pure distillate 1 − xD, and with it ∂X/∂N, grows through the run). The factor is
+ * √(S_gg / S_gg|h): S_gg the within-stretch weighted sum of squares of g, S_gg|h what is left
+ * of it once the per-stretch line in hx is taken out — the se of d in the model with a free
+ * δ_s per stretch against the se with N_s taken as known (1 without collinearity; large when
+ * a drift cannot be told from a different stretch count). */
+static double collinear_factor(const double *g, const double *hx, const double *w,
+                               const int32_t *win, size_t m)
+{
+    double sgg = 0, sres = 0;
+    for (size_t a = 0, e; a < m; a = e) {
+        double sw = 0, mg = 0, mh = 0;
+        for (e = a; e < m && win[e] == win[a]; e++)
+            sw += w[e], mg += w[e] * g[e], mh += w[e] * hx[e];
+        mg /= sw, mh /= sw;
+        double gg = 0, gh = 0, hh = 0;
+        for (size_t q = a; q < e; q++) {
+            double dg = g[q] - mg, dh = hx[q] - mh;
+            gg += w[q] * dg * dg, gh += w[q] * dg * dh, hh += w[q] * dh * dh;
+        }
+        sgg += gg;
+        sres += hh > 0 ? gg - gh * gh / hh : gg;
+    }
+    return sres > 0 && sgg > 0 ? sqrt(sgg / sres) : INFINITY;
+}
+
 /* The distillate X at which the plain count at (xb, r) equals target: safeguarded Newton
  * on N(x) − target from x0 (N rises with xD; a pinch means x too high, an invalid count x
- * too low), with the bracket halved when a step leaves it. *sens = ∂N/∂xB / ∂N/∂xD at X.
- * 0 on success. */
+ * too low), with the bracket halved when a step leaves it. *sens = ∂N/∂xB / ∂N/∂xD at X,
+ * *dxdn = ∂X/∂N = 1/(∂N/∂xD). 0 on success. */
 static int xd_for_count(const stagecal_vle *vle, const stagecal_physics_cond *cond, double murphree,
                         const stagecal_stages_params *sp, double xb, double r, double target,
-                        double x0, const stagecal_stages_result *at_x0, double *x_out, double *sens)
+                        double x0, const stagecal_stages_result *at_x0, double *x_out, double *sens,
+                        double *dxdn)
 {
     double lo = xb, hi = 1.0, x = x0 > lo && x0 < hi ? x0 : 0.5 * (lo + hi);
     for (int it = 0; it < 60; it++) {
@@ -327,7 +356,8 @@ static int xd_for_count(const stagecal_vle *vle, const stagecal_physics_cond *co
             if (fabs(f) < 1e-9 || hi - lo < 1e-14) {
                 *x_out = x;
                 *sens = sr.dstages_dxd > 0 ? sr.dstages_dxb / sr.dstages_dxd : NAN;
-                return isfinite(*sens) ? 0 : -1;
+                *dxdn = sr.dstages_dxd > 0 ? 1.0 / sr.dstages_dxd : NAN;
+                return isfinite(*sens) && isfinite(*dxdn) ? 0 : -1;
             }
             if (f > 0)
                 hi = x;
@@ -358,7 +388,7 @@ static int row_cond(const stagecal_runlog *log, stagecal_physics *ph, size_t a, 
  * monotone, skewed map from xD to N; a mean of counts is not); each ok row's residual
  * r = xD − X(xB; N_s, R) (xd_for_count). The per-sample counts are not regressed on directly:
  * near a pure distillate a count is a logarithm of 1 − xD, skewed and heavy-tailed under the
- * analyser's noise, and a slope fitted to counts is biased. Scratch: 6 arrays of the run's
+ * analyser's noise, and a slope fitted to counts is biased. Scratch: 8 arrays of the run's
  * length and win. */
 static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, stagecal_physics *ph,
                        double murphree, const stagecal_runlog_result *res, const double *xd_ss,
@@ -369,7 +399,7 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
     stagecal_runlog_closure *c = &res->closures[k];
     double t0 = log->t_s[run->first] / 3600.0;
     double *rr = scr, *t = scr + len, *sens = scr + 2 * len, *w = scr + 3 * len, *g = scr + 4 * len,
-           *tmp = scr + 5 * len, *dl = scr + 6 * len;
+           *tmp = scr + 5 * len, *dl = scr + 6 * len, *hx = scr + 7 * len;
     size_t m = 0;
     int32_t *key = malloc(run->n * sizeof *key);
     if (!key)
@@ -408,7 +438,7 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
         for (size_t a = i; a < e; a++) {
             /* a row the compensation takes as still settling (NAN) is not in the relation: with
              * its raw xD it made a trend on 2-min logs of a holdup column */
-            double xd = xd_ss[a], x, sb;
+            double xd = xd_ss[a], x, sb, dxdn;
             stagecal_physics_cond pc;
             /* Newton's first point is the row's own count when the compensation left its xD
              * as logged and the row was counted at this R (runlog_invert.c: the same physics
@@ -432,7 +462,7 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
                 log->xb_cens[a] != STAGECAL_CENSOR_NONE || res->status[a] != STAGECAL_STAGES_OK ||
                 (res->flags[a] & STAGECAL_SAMPLE_OUTLIER) || !row_cond(log, ph, a, xd, r, &pc) ||
                 xd_for_count(col->system.vle, ph ? &pc : NULL, murphree, &sp, log->xb[a], r, nw, xd,
-                             at_x0, &x, &sb) != 0)
+                             at_x0, &x, &sb, &dxdn) != 0)
                 continue;
             double ud = stagecal_runlog_u_xd(col, log->xd[a]);
             double ub = stagecal_runlog_u_xb(col, log->xb[a]) * sb;
@@ -443,6 +473,7 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
             rr[m] = xd - x;
             t[m] = log->t_s[a] / 3600.0 - t0;
             sens[m] = sb;
+            hx[m] = dxdn;
             w[m] = ud * ud + ub * ub + uc > 0 ? 1.0 / (ud * ud + ub * ub + uc) : 1.0;
             dl[m] = u_hold * sh;
             win[m] = wk;
@@ -461,10 +492,69 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
             /* the holdup's error shifts the compensated rows alike: its effect on d */
             if (u_hold > 0 && within_fit(dl, g, w, win, m, &dq, &sq) == 0)
                 sg->se_stg = hypot(sg->se_stg, dq);
+            sg->se_stg *= collinear_factor(g, hx, w, win, m);
+            if (!isfinite(sg->se_stg)) {
+                sg->d_stg = sg->se_stg = NAN;
+                sg->n_stg = 0;
+            }
         } else {
             sg->d_stg = sg->se_stg = NAN;
         }
     }
+}
+
+/* The trend of the share of distillate readings at the analyser's upper limit in run k
+ * (stagecal_runlog_closure.z_limit): the Cochran–Armitage trend statistic (Armitage, P.
+ * (1955), "Tests for linear trends in proportions and frequencies", Biometrics 11, 375–386;
+ * from memory), stratified by the production stretches of one reflux set point after the
+ * warm-up: U = Σ (t − t̄_s)(c − c̄_s), c = 1 for a reading at the limit, with its permutation
+ * variance Σ_s c̄_s(1 − c̄_s)·n_s/(n_s − 1)·Σ (t − t̄_s)²; z = U/√var. Total reflux is left
+ * out (the distillate still rises there). NaN when no stretch has readings both at and below
+ * the limit. */
+static double limit_trend(const stagecal_runlog *log, const stagecal_runlog_result *res, size_t k)
+{
+    const stagecal_runlog_run *run = &log->runs[k];
+    size_t end = run->first + run->n;
+    double u = 0, var = 0;
+    for (size_t s = run->first; s < end;) {
+        size_t e = s + 1;
+        double rs = runlog_rset(log, s);
+        while (e < end && runlog_rset(log, e) == rs)
+            e++;
+        double st = 0, sc = 0, n = 0;
+        for (int pass = 0; pass < 2 && isfinite(rs); pass++) {
+            double mt = n > 0 ? st / n : 0, mc = n > 0 ? sc / n : 0, stt = 0, stc = 0;
+            for (size_t i = s; i < e; i++) {
+                if ((res->flags[i] & (STAGECAL_SAMPLE_WARMUP | STAGECAL_SAMPLE_TOTAL_REFLUX |
+                                      STAGECAL_SAMPLE_OUTLIER)) ||
+                    !isfinite(log->xd[i]))
+                    continue;
+                double t = log->t_s[i] / 3600.0, c = log->xd_cens[i] == STAGECAL_CENSOR_ABOVE;
+                if (pass == 0) {
+                    st += t, sc += c, n++;
+                } else {
+                    stt += (t - mt) * (t - mt);
+                    stc += (t - mt) * (c - mc);
+                }
+            }
+            if (pass == 1 && n > 1 && mc > 0 && mc < 1) {
+                u += stc;
+                var += mc * (1 - mc) * n / (n - 1) * stt;
+            }
+        }
+        s = e;
+    }
+    return var > 0 ? u / sqrt(var) : NAN;
+}
+
+/* 1 when a hypothesis' two estimates contradict each other: opposite signs, each beyond zc
+ * standard errors. The two analysers move the stage relation in opposite directions for one
+ * direction of the balance (see the top), so at most one of them is contradicted by a real
+ * drift's residual trend, however much of it the stretch counts take up. */
+static int contradicts(const stagecal_runlog_drift_sig *s, double zc)
+{
+    return s->n_bal > 0 && s->n_stg > 0 && s->d_bal * s->d_stg < 0 &&
+           fabs(s->d_bal) > zc * s->se_bal && fabs(s->d_stg) > zc * s->se_stg;
 }
 
 static void decide(const stagecal_column *col, const stagecal_runlog_analysis_params *par,
@@ -491,8 +581,31 @@ static void decide(const stagecal_column *col, const stagecal_runlog_analysis_pa
         if (best < 0 || s->t_stat > c->sig[best].t_stat)
             best = j;
     }
+    /* which analyser: the balance's own GLR statistics when it has both, among the
+     * hypotheses whose stage relation does not contradict their balance. The stage relation
+     * cannot tell a distillate drift from a different stretch count on a batch whose
+     * distillate loses purity (collinear_factor), so its estimate of a distillate drift comes
+     * out a fraction of the planted one and, by size, tipped the choice to the pot analyser;
+     * its sign survives: a hypothesis whose stage estimate significantly opposes its balance
+     * estimate is out when the other's is not (on 2-min logs of a holdup column the two
+     * balance statistics are close and the sign decides). It still adds to the statistic
+     * that flags, and can contradict the named one (unattributed) */
+    if (c->sig[0].n_bal > 0 && c->sig[1].n_bal > 0) {
+        double z0 = c->sig[0].d_bal / c->sig[0].se_bal, z1 = c->sig[1].d_bal / c->sig[1].se_bal;
+        int k0 = contradicts(&c->sig[0], par->drift_sign_z);
+        int k1 = contradicts(&c->sig[1], par->drift_sign_z);
+        best = k0 != k1 ? k0 : (z0 * z0 >= z1 * z1 ? 0 : 1);
+    }
     c->drift_analyser = STAGECAL_DRIFT_NONE;
     c->drift = 0;
+    /* distillate readings running into the analyser's limit more and more often: only a
+     * distillate analyser drifting up does that (a pot drift leaves the xD readings alone),
+     * and the readings at the limit hide it from both signatures */
+    if (isfinite(c->z_limit) && c->z_limit >= par->drift_t) {
+        c->drift = 1;
+        c->drift_analyser = STAGECAL_DRIFT_DISTILLATE;
+        return;
+    }
     if (best < 0)
         return;
     const stagecal_runlog_drift_sig *s = &c->sig[best];
@@ -503,9 +616,7 @@ static void decide(const stagecal_column *col, const stagecal_runlog_analysis_pa
     int both = s->n_bal > 0 && s->n_stg > 0;
     /* the two estimates of the named hypothesis must not contradict each other: opposite
      * signs, each significant */
-    double zc = par->drift_sign_z;
-    int ok = both && !(s->d_bal * s->d_stg < 0 && fabs(s->d_bal) > zc * s->se_bal &&
-                       fabs(s->d_stg) > zc * s->se_stg);
+    int ok = both && !contradicts(s, par->drift_sign_z);
     c->drift_analyser = ok ? (best == 0 ? STAGECAL_DRIFT_DISTILLATE : STAGECAL_DRIFT_POT)
                            : STAGECAL_DRIFT_UNATTRIBUTED;
 }
@@ -530,10 +641,10 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
     size_t maxrun = 1, n = log->n ? log->n : 1;
     for (size_t k = 0; k < log->nruns; k++)
         maxrun = log->runs[k].n > maxrun ? log->runs[k].n : maxrun;
-    /* 7 arrays of scratch, the run's light and lh: per run; the compensated distillate and
+    /* 8 arrays of scratch, the run's light and lh: per run; the compensated distillate and
      * its variance: per row of the log (the compensation pools across runs) */
-    double *scr = malloc(9 * maxrun * sizeof *scr);
-    double *light = scr ? scr + 7 * maxrun : NULL, *lh = scr ? scr + 8 * maxrun : NULL;
+    double *scr = malloc(10 * maxrun * sizeof *scr);
+    double *light = scr ? scr + 8 * maxrun : NULL, *lh = scr ? scr + 9 * maxrun : NULL;
     int32_t *win = malloc(maxrun * sizeof *win);
     double *xd_ss = malloc(2 * n * sizeof *xd_ss), *u2 = xd_ss ? xd_ss + n : NULL;
     if (!scr || !win || !xd_ss) {
@@ -559,6 +670,7 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
         balance_sigs(log, col, par, res, k, light, lh, stg ? hr.run_h[k] : 0, stg ? uh : 0, stg,
                      scr, scr + maxrun, scr + 2 * maxrun, scr + 3 * maxrun, scr + 4 * maxrun);
         stage_sigs(log, col, ph, murphree, res, xd_ss, u2, uh, k, scr, maxrun, win);
+        c->z_limit = limit_trend(log, res, k);
         double span = (log->t_s[run->first + run->n - 1] - log->t_s[run->first]) / 3600.0;
         decide(col, par, span, c);
     }
@@ -577,4 +689,5 @@ void runlog_drift_clear(stagecal_runlog_closure *c)
         s->q_stat = NAN;
         s->n_bal = s->n_stg = 0;
     }
+    c->z_limit = NAN;
 }

@@ -366,6 +366,13 @@ typedef struct {
                             column file's, else the load-cell noise estimated from the run
                             (1.4826·MAD of W's second differences / √6) */
     int u_w_estimated;   /* 1: u_w_mol was estimated from the log */
+    /* The share of distillate readings at the analyser's upper limit (censored above, e.g.
+     * 1.000): its trend with time within the run's production stretches, a stratified
+     * Cochran–Armitage z (one-sided: > 0 when the share rises). A distillate falls through a
+     * batch at one reflux ratio, so a rising share is a distillate analyser drifting up
+     * (which readings at the limit no longer show); NaN when no stretch has readings both at
+     * and below the limit. Set by stagecal_runlog_invert. */
+    double z_limit;
 } stagecal_runlog_closure;
 
 typedef struct {
