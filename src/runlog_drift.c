@@ -39,6 +39,7 @@
  * module's compensation, holdup.h): the lag of xD behind a depleting pot makes the raw
  * counts rise through a run, which would read as a distillate drift.
  */
+#include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_fit.h>
 #include <gsl/gsl_statistics_double.h>
@@ -557,6 +558,37 @@ static int contradicts(const stagecal_runlog_drift_sig *s, double zc)
            fabs(s->d_bal) > zc * s->se_bal && fabs(s->d_stg) > zc * s->se_stg;
 }
 
+/* The share of distillate readings at the physical bound 1 in run k's production rows after
+ * the warm-up (stagecal_runlog_closure.z_bound): the sign test (Dixon, W. J. & Mood, A. M.
+ * (1946), "The statistical sign test", J. Amer. Statist. Assoc. 41, 557–566; from memory)
+ * against the bound. A distillate is below 1, so an analyser whose errors are symmetric
+ * about 0 (the stated noise) reads 1 or more — and reports 1, censored — with probability
+ * below ½ on every row, whatever the column's stage count; c of n such rows has a tail
+ * P(C ≥ c) ≤ P(Binomial(n, ½) ≥ c). Returned as the one-sided normal quantile of that tail
+ * (Φ⁻¹(1 − P), ≥ 4 at P ≤ 3.2e-5); readings censored at a limit below 1 (">0.999") are
+ * counted as not at the bound (the true distillate may exceed such a limit), which only
+ * lowers c. NaN without production rows. A pot drift leaves the distillate readings alone;
+ * a distillate analyser reading high puts more than half of them at 1. */
+static double bound_sign(const stagecal_runlog *log, const stagecal_runlog_result *res, size_t k)
+{
+    const stagecal_runlog_run *run = &log->runs[k];
+    unsigned int n = 0, c = 0;
+    for (size_t i = run->first; i < run->first + run->n; i++) {
+        if ((res->flags[i] &
+             (STAGECAL_SAMPLE_WARMUP | STAGECAL_SAMPLE_TOTAL_REFLUX | STAGECAL_SAMPLE_OUTLIER)) ||
+            !isfinite(log->xd[i]) || !(isfinite(log->r[i]) && log->r[i] > 0))
+            continue;
+        n++;
+        c += log->xd_cens[i] == STAGECAL_CENSOR_ABOVE && log->xd[i] >= 1;
+    }
+    if (n == 0)
+        return NAN;
+    if (c == 0)
+        return -INFINITY;
+    double p = gsl_cdf_binomial_Q(c - 1, 0.5, n); /* P(C > c − 1) = P(C ≥ c) */
+    return p > 0 ? gsl_cdf_ugaussian_Qinv(p) : INFINITY;
+}
+
 static void decide(const stagecal_column *col, const stagecal_runlog_analysis_params *par,
                    double span_h, stagecal_runlog_closure *c)
 {
@@ -601,7 +633,7 @@ static void decide(const stagecal_column *col, const stagecal_runlog_analysis_pa
     /* distillate readings running into the analyser's limit more and more often: only a
      * distillate analyser drifting up does that (a pot drift leaves the xD readings alone),
      * and the readings at the limit hide it from both signatures */
-    if (isfinite(c->z_limit) && c->z_limit >= par->drift_t) {
+    if ((isfinite(c->z_limit) && c->z_limit >= par->drift_t) || c->z_bound >= par->drift_t) {
         c->drift = 1;
         c->drift_analyser = STAGECAL_DRIFT_DISTILLATE;
         return;
@@ -671,6 +703,7 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
                      scr, scr + maxrun, scr + 2 * maxrun, scr + 3 * maxrun, scr + 4 * maxrun);
         stage_sigs(log, col, ph, murphree, res, xd_ss, u2, uh, k, scr, maxrun, win);
         c->z_limit = limit_trend(log, res, k);
+        c->z_bound = bound_sign(log, res, k);
         double span = (log->t_s[run->first + run->n - 1] - log->t_s[run->first]) / 3600.0;
         decide(col, par, span, c);
     }
@@ -689,5 +722,5 @@ void runlog_drift_clear(stagecal_runlog_closure *c)
         s->q_stat = NAN;
         s->n_bal = s->n_stg = 0;
     }
-    c->z_limit = NAN;
+    c->z_limit = c->z_bound = NAN;
 }

@@ -12,6 +12,7 @@
 #include <string.h>
 #include <cmocka.h>
 
+#include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 
 #include "holdup_internal.h"
@@ -261,6 +262,68 @@ static void holdup_drift_checks_clean_and_drifting(void **state)
     stagecal_column_free(&col);
 }
 
+/* A distillate analyser drifting up on a pure distillate reads 1 (censored) on most rows,
+ * where neither signature sees it; more than half the production readings at the bound 1 is
+ * the sign test's evidence (Dixon & Mood 1946): under symmetric noise about a true distillate
+ * below 1 each reading reaches 1 with probability below ½. (a) The clean log of
+ * holdup_drift_checks_clean_and_drifting with +0.015 /h planted and the readings clipped at
+ * 1 as an analyser would: the distillate analyser is named, z_bound ≥ 4. (b) Every
+ * production reading at 1 (c = n): the tail is P(Binomial(n, ½) = n) = 2^−n exactly (closed
+ * form), so Q(z_bound) = 2^−n, to 1e-6 relative (the normal quantile and tail are each good
+ * to about 1e-12 relative at these z; common practice, no source, for the margin). The
+ * clean log's z_bound is below 4. */
+static void holdup_drift_bound_sign_test(void **state)
+{
+    (void)state;
+    static const char coltext[] =
+        "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"t\",\"description\":"
+        "\"SYNTHETIC\",\"condenser\":\"total\",\"system\":{\"light\":{\"name\":\"l\"},"
+        "\"heavy\":{\"name\":\"h\"},\"model\":{\"kind\":\"alpha\",\"alpha\":2.4}},"
+        "\"uncertainty\":{\"xd\":0.002,\"xb\":0.003,\"v_mol_s\":0.01},"
+        "\"holdup\":{\"column_mol\":1000,\"u_rel\":0.06}}";
+    stagecal_column col;
+    assert_int_equal(stagecal_column_parse(coltext, strlen(coltext), "t.json", &col, NULL), 0);
+    sim_dyn_params p = {2.4,  7,   25000,      0.5, 0.04,  0,     1.0,
+                        3600, 2.0, 8 * 3600.0, 120, 0.002, 0.003, 0.08};
+    for (int kase = 0; kase < 3; kase++) {
+        stagecal_runlog *rl = sim_log(&p);
+        for (size_t i = 0; i < rl->n && kase > 0; i++) {
+            double x = kase == 1 ? rl->xd[i] + 0.015 * (rl->t_s[i] - rl->t_s[0]) / 3600.0 : 1;
+            if (kase == 2 && isinf(rl->r[i]))
+                continue; /* (b): the production rows only */
+            rl->xd[i] = x >= 1 ? 1 : x;
+            rl->xd_cens[i] = x >= 1 ? STAGECAL_CENSOR_ABOVE : STAGECAL_CENSOR_NONE;
+        }
+        stagecal_runlog_result res;
+        assert_int_equal(stagecal_runlog_analyse(rl, &col, NULL, &res, NULL), 0);
+        assert_int_equal(stagecal_runlog_invert(rl, &col, 1.0, NULL, &res, NULL), 0);
+        const stagecal_runlog_closure *c = &res.closures[0];
+        size_t n = 0, at = 0;
+        for (size_t i = 0; i < rl->n; i++)
+            if (!(res.flags[i] & (STAGECAL_SAMPLE_WARMUP | STAGECAL_SAMPLE_TOTAL_REFLUX |
+                                  STAGECAL_SAMPLE_OUTLIER)) &&
+                isfinite(rl->r[i]) && rl->r[i] > 0)
+                n++, at += rl->xd_cens[i] == STAGECAL_CENSOR_ABOVE;
+        print_message("case %d: %zu of %zu production readings at 1, z_bound %.3f, named %s\n",
+                      kase, at, n, c->z_bound, stagecal_drift_analyser_name(c->drift_analyser));
+        if (kase == 0) {
+            assert_true(!(c->z_bound >= 4));
+            assert_false(c->drift);
+        } else {
+            assert_true(c->z_bound >= 4);
+            assert_int_equal(c->drift_analyser, STAGECAL_DRIFT_DISTILLATE);
+        }
+        if (kase == 2) {
+            assert_true(n > 20 && at == n);
+            assert_rel(gsl_cdf_ugaussian_Q(c->z_bound), ldexp(1.0, -(int)n), 1e-6,
+                       "sign test tail 2^-n");
+        }
+        stagecal_runlog_result_free(&res);
+        stagecal_runlog_free(rl);
+    }
+    stagecal_column_free(&col);
+}
+
 /* A total-reflux start-up is the column's own transient: with a compensation its rows are
  * left out (NAN) until settle_factor·τ·ln(|b|/(0.1·u)) after the first row, and the settled
  * rows of a long start-up stay. The simulator (7 stages, 4 % holdup, noise-free) holds total
@@ -424,6 +487,7 @@ int main(void)
         cmocka_unit_test(holdup_correction_matches_dynamic_column),
         cmocka_unit_test(holdup_column_light_closes_balance),
         cmocka_unit_test(holdup_drift_checks_clean_and_drifting),
+        cmocka_unit_test(holdup_drift_bound_sign_test),
         cmocka_unit_test(holdup_startup_rows_settle),
         cmocka_unit_test(holdup_stages_variance),
         cmocka_unit_test(holdup_from_startup_recovers_holdup),

@@ -373,6 +373,11 @@ typedef struct {
      * (which readings at the limit no longer show); NaN when no stretch has readings both at
      * and below the limit. Set by stagecal_runlog_invert. */
     double z_limit;
+    /* The share of production distillate readings at the physical bound 1: the sign test's
+     * one-sided z (> 4: more than half the readings at 1 beyond chance; a distillate below 1
+     * read with symmetric noise reaches 1 on fewer than half the rows). NaN without
+     * production rows. Set by stagecal_runlog_invert. */
+    double z_bound;
 } stagecal_runlog_closure;
 
 typedef struct {
