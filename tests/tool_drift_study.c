@@ -28,7 +28,8 @@
  * correctly, and the share right among the runs where fewer than half of the production xD
  * readings sit at the analyser's limit (a positive drift on a distillate near 1 drives the
  * readings to 1, where no analyser shows it). Exploring: STUDY_REGIME (one regime, 0-3),
- * STUDY_DT (row spacing [s]), STUDY_NOISE (noise scale), STUDY_VERBOSE, STUDY_DUMP,
+ * STUDY_DT (row spacing [s]), STUDY_NOISE (noise scale), STUDY_DRIFT_T (drift_t),
+ * STUDY_VERBOSE, STUDY_DUMP,
  * STUDY_DYNAMIC, STUDY_NO_HOLDUP. Progress on stderr when it is a terminal. Not run by ctest
  * (minutes of CPU).
  */
@@ -231,9 +232,13 @@ static int one_run(int reg, gsl_rng *rng, struct tally *ty)
     int rc = -1;
     memset(&res, 0, sizeof res);
     if (log && stagecal_column_parse(coltext, strlen(coltext), "study.json", &col, &err) == 0) {
+        /* exploring: STUDY_DRIFT_T sets the flag's threshold drift_t (default 4) */
+        stagecal_runlog_analysis_params ap = stagecal_runlog_analysis_default_params();
+        if (getenv("STUDY_DRIFT_T"))
+            ap.drift_t = atof(getenv("STUDY_DRIFT_T"));
         if (stagecal_runlog_read_buffer(log, csv, len, "study.csv", &col, NULL, NULL, &err) == 0 &&
-            stagecal_runlog_analyse(log, &col, NULL, &res, &err) == 0 &&
-            stagecal_runlog_invert(log, &col, 1.0, NULL, &res, &err) == 0 && res.nruns == 1) {
+            stagecal_runlog_analyse(log, &col, &ap, &res, &err) == 0 &&
+            stagecal_runlog_invert(log, &col, 1.0, &ap, &res, &err) == 0 && res.nruns == 1) {
             const stagecal_runlog_closure *c = &res.closures[0];
             ty->n++;
             if (getenv("STUDY_VERBOSE"))
