@@ -166,7 +166,14 @@ tl3 stepper_crossing(tl3 m, tl3 b, tl3 x_prev, tl3 xn, tl3 yn, tl3 x_target)
         f = smoker_count(&sc, x_prev, x_target);
     if (!isfinite(f.v)) /* α_loc within rounding of 1: the curve is locally the line */
         f = tl_div(tl_sub(x_prev, x_target), tl_sub(x_prev, xn));
-    return f.v < 0.0 ? tl_const(0.0) : (f.v > 1.0 ? tl_const(1.0) : f);
+    /* The crossing lies in [x_n, x_(n-1)], so f leaves [0, 1] only by rounding, at a whole
+     * stage: the value is clamped and the derivatives of the branch kept (replacing f by a
+     * constant there gave dN/dxD = dN/dxB = dN/dR = 0, so u(N) = 0 and an infinite weight). */
+    if (f.v < 0.0)
+        f.v = 0.0;
+    else if (f.v > 1.0)
+        f.v = 1.0;
+    return f;
 }
 
 int stepper_init(stepper *st, const stagecal_vle *vle, const stagecal_stages_params *par, double xd,

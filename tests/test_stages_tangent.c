@@ -257,6 +257,68 @@ static void tangent_matches_finite_differences(void **state)
         stagecal_vle_free(models[k]);
 }
 
+/* At a whole stage count the crossing step's fraction can come out 1 + 1 ulp (or −1 ulp) and
+ * is clamped into [0, 1]; the clamp used to replace it by a constant, which dropped the
+ * derivatives: status ok with dN/dxD = dN/dxB = dN/dR = 0, so u(N) = 0 and an infinite
+ * weight downstream (found on ideal benzene–toluene at 28 kPa, N = 4, 10 and 5). Points are
+ * made by stepping a whole number of stages forward (so the inversion lands on a whole
+ * count); the tangent must be the derivative of one of the two branches meeting there: it
+ * equals a one-sided finite difference (h = 1e-7·x) within 1e-4 relative (the one-sided
+ * difference's own error is O(h·N''/N') ~ 1e-6; the two branches differ by far more where
+ * α_loc jumps, so "either side" is the claim). */
+static void tangent_at_whole_stages(void **state)
+{
+    (void)state;
+    /* benzene, toluene: the Antoine sets of datasets/columns/demo_benzene_toluene.json */
+    const stagecal_antoine bt[2] = {{4.01814, 1203.835, -53.226, 287.70, 354.07},
+                                    {4.07827, 1343.943, -53.773, 308.52, 384.66}};
+    size_t whole = 0, checked = 0;
+    for (int k = 0; k < 60; k++) {
+        double p = 8000.0 * pow(25.0, (double)((k * 23) % 60) / 59.0);
+        stagecal_vle *v =
+            stagecal_vle_alloc_activity(STAGECAL_VLE_IDEAL, bt, NULL, 0, p, NULL, NULL);
+        assert_non_null(v);
+        for (int j = 0; j < 10; j++) {
+            double xd = 0.9 + 0.01 * j, r = 1.5 + 0.5 * j, n0 = 4 + j % 7, xb;
+            size_t len;
+            int st;
+            stagecal_stages_step(v, xd, r, n0, 1.0, NULL, &xb, NULL, 0, &len, &st, NULL);
+            if (st != STAGECAL_STAGES_OK)
+                continue;
+            stagecal_stages_result t;
+            if (invert_way(v, xd, xb, r, 1.0, 1, 1, &t) != STAGECAL_STAGES_OK)
+                continue;
+            checked++;
+            char label[96];
+            /* more stages for a purer top or a leaner pot, fewer at more reflux */
+            snprintf(label, sizeof label, "p %.0f xD %.2f R %.1f N %.17g: tangents finite", p, xd,
+                     r, t.stages);
+            if (!(t.dstages_dxd > 0 && t.dstages_dxb < 0 && t.dstages_dr < 0))
+                fail_msg("%s and signed (got %g %g %g)", label, t.dstages_dxd, t.dstages_dxb,
+                         t.dstages_dr);
+            if (t.column_stages != floor(t.column_stages))
+                continue;
+            whole++;
+            double h = 1e-7 * xb, d[2];
+            for (int side = 0; side < 2; side++) {
+                stagecal_stages_result f;
+                double xb2 = side ? xb + h : xb - h;
+                assert_int_equal(invert_way(v, xd, xb2, r, 1.0, 1, 0, &f), STAGECAL_STAGES_OK);
+                d[side] = (f.stages - t.stages) / (xb2 - xb);
+            }
+            if (!(fabs(t.dstages_dxb - d[0]) <= 1e-4 * fabs(d[0]) ||
+                  fabs(t.dstages_dxb - d[1]) <= 1e-4 * fabs(d[1])))
+                fail_msg("%s: dN/dxB %.10g is neither one-sided difference (%.10g, %.10g)", label,
+                         t.dstages_dxb, d[0], d[1]);
+        }
+        stagecal_vle_free(v);
+    }
+    /* the grid holds whole-count landings (5 of ~600 when found); without one the test
+     * would not test the clamp */
+    assert_true(whole >= 3);
+    assert_true(checked >= 500);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -264,6 +326,7 @@ int main(void)
         cmocka_unit_test(tangent_closed_form_on_demo_logs),
         cmocka_unit_test(tangent_matches_high_precision),
         cmocka_unit_test(tangent_matches_finite_differences),
+        cmocka_unit_test(tangent_at_whole_stages),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }
