@@ -18,18 +18,10 @@
 #include "stagecal/model.h"
 #include "stagecal/report.h"
 #include "stagecal/stages.h"
+#include "lsan_fontconfig.h"
 #include "testutil.h"
 
 #define OUTDIR STAGECAL_BUILD_DIR "/report_out"
-
-/* LeakSanitizer hook (sanitizer build only): fontconfig, loaded by cairo for the chart
- * text, keeps its font cache for the life of the process and never frees it; those
- * blocks are reported as leaks that are not ours. Every other leak still fails. */
-const char *__lsan_default_suppressions(void);
-const char *__lsan_default_suppressions(void)
-{
-    return "leak:libfontconfig.so\n";
-}
 
 static int group_setup(void **state)
 {
