@@ -26,23 +26,6 @@ static int setup(void **state)
     return 0;
 }
 
-/* Runs `STAGECAL_PYTHON -c code` and reads n numbers from its stdout. */
-static void python_numbers(const char *code, double *out, size_t n)
-{
-    char path[512], cmd[1024];
-    snprintf(path, sizeof path, "%s/hetp_oracle.py", STAGECAL_BUILD_DIR);
-    FILE *f = fopen(path, "w");
-    assert_non_null(f);
-    assert_true(fputs(code, f) >= 0);
-    assert_int_equal(fclose(f), 0);
-    snprintf(cmd, sizeof cmd, "%s %s", STAGECAL_PYTHON, path);
-    FILE *pp = popen(cmd, "r");
-    assert_non_null(pp);
-    for (size_t i = 0; i < n; i++)
-        assert_int_equal(fscanf(pp, "%lf", &out[i]), 1);
-    assert_int_equal(pclose(pp), 0);
-}
-
 static void hetp_point_and_interval_match_scipy(void **state)
 {
     (void)state;
@@ -51,10 +34,11 @@ static void hetp_point_and_interval_match_scipy(void **state)
     stagecal_hetp_result r;
     assert_int_equal(stagecal_hetp_compute(3.75, &s, 0.95, &r, NULL), STAGECAL_OK);
     double want[3];
-    python_numbers("from scipy.stats import t\n"
-                   "q=t.ppf(0.975,11)\n"
-                   "print('%.17g %.17g %.17g'%(q,3.75/(7.5+q*0.42),3.75/(7.5-q*0.42)))\n",
-                   want, 3);
+    testutil_python_numbers("hetp_oracle.py",
+                            "from scipy.stats import t\n"
+                            "q=t.ppf(0.975,11)\n"
+                            "print('%.17g %.17g %.17g'%(q,3.75/(7.5+q*0.42),3.75/(7.5-q*0.42)))\n",
+                            want, 3);
     /* Closed form H/N; delta se H·se/N² (both exact arithmetic, 1e-15 relative). */
     assert_rel(r.hetp_m, 0.5, 1e-15, "hetp = H/N");
     assert_rel(r.se_m, 3.75 * 0.42 / 56.25, 1e-15, "delta-method se");
@@ -120,15 +104,17 @@ static void hetp_welch_matches_scipy(void **state)
     assert_int_equal(stagecal_hetp_welch(0.512, 0.021, 9, 0.587, 0.034, 14, 0.95, &d, NULL),
                      STAGECAL_OK);
     double want[4];
-    python_numbers("from scipy.stats import ttest_ind_from_stats, t\n"
-                   "from math import sqrt\n"
-                   "r=ttest_ind_from_stats(0.587,0.034*sqrt(15),15,0.512,0.021*sqrt(10),10,"
-                   "equal_var=False)\n"
-                   "va,vb=0.021**2,0.034**2\n"
-                   "nu=(va+vb)**2/(va**2/9+vb**2/14)\n"
-                   "print('%.17g %.17g %.17g %.17g'%(r.statistic,r.pvalue,nu,"
-                   "t.ppf(0.975,nu)))\n",
-                   want, 4);
+    testutil_python_numbers(
+        "hetp_oracle.py",
+        "from scipy.stats import ttest_ind_from_stats, t\n"
+        "from math import sqrt\n"
+        "r=ttest_ind_from_stats(0.587,0.034*sqrt(15),15,0.512,0.021*sqrt(10),10,"
+        "equal_var=False)\n"
+        "va,vb=0.021**2,0.034**2\n"
+        "nu=(va+vb)**2/(va**2/9+vb**2/14)\n"
+        "print('%.17g %.17g %.17g %.17g'%(r.statistic,r.pvalue,nu,"
+        "t.ppf(0.975,nu)))\n",
+        want, 4);
     /* scipy computes the same statistic from sd and n (1e-12: rounding only); its p
      * value uses the Welch–Satterthwaite dof — matching it checks our dof. */
     assert_rel(d.t_stat, want[0], 1e-12, "Welch t vs scipy ttest_ind_from_stats");

@@ -51,22 +51,6 @@ static long long timegm_portable(const struct tm *tm)
     return (era * 146097 + doe - 719468) * 86400;
 }
 
-static void python_numbers(const char *code, double *out, size_t n)
-{
-    char path[512], cmd[1024];
-    snprintf(path, sizeof path, "%s/trend_oracle.py", STAGECAL_BUILD_DIR);
-    FILE *f = fopen(path, "w");
-    assert_non_null(f);
-    assert_true(fputs(code, f) >= 0);
-    assert_int_equal(fclose(f), 0);
-    snprintf(cmd, sizeof cmd, "%s %s", STAGECAL_PYTHON, path);
-    FILE *pp = popen(cmd, "r");
-    assert_non_null(pp);
-    for (size_t i = 0; i < n; i++)
-        assert_int_equal(fscanf(pp, "%lf", &out[i]), 1);
-    assert_int_equal(pclose(pp), 0);
-}
-
 static void trend_fit_matches_statsmodels_wls(void **state)
 {
     (void)state;
@@ -83,15 +67,17 @@ static void trend_fit_matches_statsmodels_wls(void **state)
     stagecal_trend_fit f;
     assert_int_equal(stagecal_trend_fit_line(p, 8, 0.95, &f, NULL), STAGECAL_OK);
     double want[5];
-    python_numbers("import numpy as np, statsmodels.api as sm\n"
-                   "m=np.array([0.0,1.2,2.3,3.1,5.4,6.0,7.7,9.3])\n"
-                   "v=np.array([11.87,11.62,11.71,11.32,11.05,11.21,10.73,10.58])\n"
-                   "se=np.array([0.21,0.35,0.18,0.42,0.27,0.31,0.24,0.38])\n"
-                   "r=sm.WLS(v,sm.add_constant(m),weights=1/se**2).fit()\n"
-                   "ci=r.conf_int(0.05)\n"
-                   "print('%.17g %.17g %.17g %.17g %.17g'%(r.params[0],r.params[1],r.bse[1],"
-                   "ci[1][0],ci[1][1]))\n",
-                   want, 5);
+    testutil_python_numbers(
+        "trend_oracle.py",
+        "import numpy as np, statsmodels.api as sm\n"
+        "m=np.array([0.0,1.2,2.3,3.1,5.4,6.0,7.7,9.3])\n"
+        "v=np.array([11.87,11.62,11.71,11.32,11.05,11.21,10.73,10.58])\n"
+        "se=np.array([0.21,0.35,0.18,0.42,0.27,0.31,0.24,0.38])\n"
+        "r=sm.WLS(v,sm.add_constant(m),weights=1/se**2).fit()\n"
+        "ci=r.conf_int(0.05)\n"
+        "print('%.17g %.17g %.17g %.17g %.17g'%(r.params[0],r.params[1],r.bse[1],"
+        "ci[1][0],ci[1][1]))\n",
+        want, 5);
     /* statsmodels WLS scales the covariance by the weighted residual variance and
      * uses t(n − 2): the same estimator. 1e-9: different algebra (QR vs sums),
      * t quantiles agree to ~1e-11. */

@@ -1,7 +1,8 @@
 /*
  * testutil.h — double-precision checks for cmocka tests (cmocka 1.1.5's
  * assert_float_equal casts to float). Each check prints a labelled line on failure
- * (GSL's gsl_test_rel idea) and fails the test.
+ * (GSL's gsl_test_rel idea) and fails the test. And the numbers of a Python cross-check
+ * (scipy, statsmodels) read back (testutil_python_numbers).
  */
 #ifndef STAGECAL_TESTUTIL_H
 #define STAGECAL_TESTUTIL_H
@@ -41,6 +42,25 @@ static inline void testutil_check_abs(double got, double want, double tol, const
                     got, want, e, tol);
         _fail(file, line);
     }
+}
+
+/* Writes code to STAGECAL_BUILD_DIR/script, runs it with STAGECAL_PYTHON and reads n
+ * numbers from its standard output into out; fails the test if any step fails. */
+static inline void testutil_python_numbers(const char *script, const char *code, double *out,
+                                           size_t n)
+{
+    char path[512], cmd[1024];
+    snprintf(path, sizeof path, "%s/%s", STAGECAL_BUILD_DIR, script);
+    FILE *f = fopen(path, "w");
+    assert_non_null(f);
+    assert_true(fputs(code, f) >= 0);
+    assert_int_equal(fclose(f), 0);
+    snprintf(cmd, sizeof cmd, "%s %s", STAGECAL_PYTHON, path);
+    FILE *pp = popen(cmd, "r");
+    assert_non_null(pp);
+    for (size_t i = 0; i < n; i++)
+        assert_int_equal(fscanf(pp, "%lf", &out[i]), 1);
+    assert_int_equal(pclose(pp), 0);
 }
 
 #endif
