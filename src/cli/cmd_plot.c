@@ -406,8 +406,8 @@ int cmd_plot(int argc, char **argv, cli_ctx *ctx)
         return code;
     }
     rc = print_result(draw, kind, output, json);
-    if (!is_mccabe && !json) /* the runs and the fit with its bands and envelope: charts a */
-        cli_print_caution(); /* reviewer judges the evidence by (McCabe-Thiele: a diagram) */
+    if (!json) /* every chart: its numbers (stages, envelope, pinch) feed a decision too */
+        cli_print_caution();
     stagecal_plot_chart_free(chart);
     stagecal_report_doc_free(doc);
     stagecal_regress_data_free(&pts);

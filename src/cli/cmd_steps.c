@@ -103,6 +103,7 @@ int cmd_steps(int argc, char **argv, cli_ctx *ctx)
             json_array_append_new(arr, p);
         }
         json_object_set_new(doc, "profile", arr);
+        json_object_set_new(doc, "caution", json_string(stagecal_caution_text()));
         rc = cli_json_print(doc);
     } else {
         if (status != STAGECAL_STAGES_OK) {

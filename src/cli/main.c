@@ -29,7 +29,8 @@ struct command {
 
 static const struct command commands[] = {
     {"check", cmd_check, 0, "validate run logs: findings with file:line, mass-balance closure"},
-    {"steps", cmd_steps, CMD_SYSTEM, "step stages down from xD: xB and the stage profile"},
+    {"steps", cmd_steps, CMD_SYSTEM | CMD_CAUTION,
+     "step stages down from xD: xB and the stage profile"},
     {"calibrate", cmd_calibrate, CMD_CAUTION,
      "run logs in, stages(R, F) with bands out, as a model file"},
     {"invert", cmd_invert, CMD_SYSTEM | CMD_CAUTION,

@@ -136,6 +136,13 @@ expect_exit 0 "" -- "$BIN" invert --alpha 2.5 --xd 0.95 --xb 0.05 --reflux inf
 [ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] || { echo "FAIL: invert text lacks one caution"; fails=$((fails + 1)); }
 expect_exit 0 "" -- "$BIN" report "$M" -o "$tmp/report.html" --quiet
 [ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] || { echo "FAIL: report text lacks one caution"; fails=$((fails + 1)); }
+expect_exit 0 "" -- "$BIN" steps --alpha 2.5 --xd 0.95 --reflux 4 --stages 7
+[ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] || { echo "FAIL: steps text lacks one caution"; fails=$((fails + 1)); }
+expect_exit 0 "" -- "$BIN" plot mccabe --alpha 2.5 --xd 0.95 --reflux 3 --stages 6 -o "$tmp/caution.svg" --quiet
+[ "$(grep -c '^Caution: ' "$tmp/out")" -eq 1 ] || { echo "FAIL: plot mccabe text lacks one caution"; fails=$((fails + 1)); }
+expect_exit 0 "" -- "$BIN" steps --alpha 2.5 --xd 0.95 --reflux 4 --stages 7 --json
+"$PY" -c "import json,sys; d=json.load(open('$tmp/out')); sys.exit(0 if d['caution'].startswith('Caution:') else 1)" ||
+    { echo "FAIL: steps --json: not one JSON document with its caution"; fails=$((fails + 1)); }
 expect_exit 0 "" -- "$BIN" hetp "$M" --reflux 3 --packed-height 2 --json
 "$PY" -c "import json,sys; d=json.load(open('$tmp/out')); sys.exit(0 if d['caution'].startswith('Caution:') else 1)" ||
     { echo "FAIL: hetp --json: not one JSON document with its caution"; fails=$((fails + 1)); }
