@@ -269,8 +269,8 @@ static int analyser_stats(stagecal_evidence *ev, size_t nev, int pot, double u_f
     for (size_t k = 0; k < nev; k++) {
         stagecal_evidence *e = &ev[k];
         size_t m = e->m < EV_MAX_SMOOTH ? e->m : EV_MAX_SMOOTH;
-        if (m < STATS_MIN || !e->s_t || !e->s_xd || !e->s_xb)
-            continue;
+        if (m < STATS_MIN || !e->s_t || !e->s_xd || !e->s_xb || (!pot && e->xd_tobit))
+            continue; /* (a Tobit window carries its xD trend, not readings: no noise in it) */
         struct wseries *s = &w[n];
         s->t = e->s_t;
         s->y = pot ? e->s_xb : e->s_xd;
@@ -533,7 +533,8 @@ static size_t thin_samples(const double *t, const double *xd, const double *xb, 
 static int window_summary(const stagecal_runlog *log, const double *xd_src,
                           const stagecal_runlog_result *res, const stagecal_uncertainty *u,
                           size_t k, size_t cap, double *t, double *xd, double *xb, double *f,
-                          double *s, const double *quad_rho, stagecal_evidence *e)
+                          double *s, const double *quad_rho, double *tb, signed char *dir,
+                          stagecal_evidence *e)
 {
     const stagecal_runlog_window *w = &res->windows[k];
     size_t len = w->last - w->first + 1, nok = 0, nf = 0, ncd = 0, ncb = 0;
@@ -557,7 +558,36 @@ static int window_summary(const stagecal_runlog *log, const double *xd_src,
             nf++;
         }
     }
+    /* censored xD readings as censored observations (tb non-NULL): the Tobit trend of the
+     * window (the straight line, or the quadratic of QUAD_POOLED) completes the series with
+     * their conditional expectations, so the mean below is the trend's level; the carried
+     * samples are the trend itself. Kept only when the trend stays inside (0, 1); otherwise
+     * (e.g. nearly every reading at the bound) the censored readings stay left out. */
+    int tobit = 0;
+    double ratio = 1;
+    if (tb && ncd > 0) {
+        double *yr = tb, *trend = tb + len, *yc = xd;
+        size_t nc = 0;
+        for (size_t j = 0; j < len; j++) {
+            size_t i = w->first + j;
+            int c = log->xd_cens[i];
+            int use = !(res->flags[i] & STAGECAL_SAMPLE_OUTLIER) && isfinite(xd_src[i]);
+            yr[j] = use ? (c ? log->xd[i] : xd_src[i]) : NAN;
+            dir[j] = (signed char)(!use || !c ? 0 : c == STAGECAL_CENSOR_ABOVE ? 1 : -1);
+            nc += dir[j] != 0;
+        }
+        if (nc > 0 && stagecal_evidence_tobit(t, yr, dir, len, quad_rho ? 3 : 2, tb + 2 * len,
+                                              trend, &ratio, NULL) == STAGECAL_OK) {
+            tobit = 1;
+            for (size_t j = 0; j < len; j++)
+                tobit &= !isfinite(trend[j]) || (trend[j] > 0 && trend[j] < 1);
+        }
+        if (tobit)
+            for (size_t j = 0; j < len; j++)
+                yc[j] = tb[2 * len + j];
+    }
     memset(e, 0, sizeof *e);
+    e->xd_tobit = tobit;
     e->window = k;
     e->run = w->run;
     e->first = w->first;
@@ -589,6 +619,11 @@ static int window_summary(const stagecal_runlog *log, const double *xd_src,
                stagecal_evidence_mean_rho(t, xb, len, u->xb, &e->xb, &e->u_xb, &e->rho_xb, &e->m_xb,
                                           NULL) != STAGECAL_OK)
         return 0; /* too few usable compositions: not evidence */
+    if (tobit) {
+        e->u_xd *= sqrt(ratio); /* the information the censoring costs */
+        for (size_t j = 0; j < len; j++)
+            xd[j] = tb[len + j];
+    }
     e->s_t = s;
     e->s_xd = s + cap;
     e->s_xb = s + 2 * cap;
@@ -623,10 +658,11 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
     }
     set->ev = calloc(nw ? nw : 1, sizeof *set->ev);
     set->samples = malloc((nw ? nw : 1) * 3 * cap * sizeof *set->samples);
-    double *buf = malloc((maxlen ? maxlen : 1) * 4 * sizeof *buf);
+    double *buf = malloc((maxlen ? maxlen : 1) * 7 * sizeof *buf);
+    signed char *dir = malloc(maxlen ? maxlen : 1);
     double *xd_src = malloc((log->n ? log->n : 1) * 2 * sizeof *xd_src), *u2 = xd_src + log->n;
-    if (!set->ev || !buf || !set->samples || !xd_src) {
-        free(buf), free(xd_src);
+    if (!set->ev || !buf || !set->samples || !xd_src || !dir) {
+        free(buf), free(xd_src), free(dir);
         stagecal_evidence_set_free(set);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
@@ -641,10 +677,10 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
         for (size_t k = 0; k < nw && rc == STAGECAL_OK; k++) {
             if (par.skip_run && par.skip_run[res->windows[k].run])
                 continue;
-            int ok =
-                window_summary(log, xd_src, res, &col->u, k, cap, buf, buf + maxlen,
-                               buf + 2 * maxlen, buf + 3 * maxlen, set->samples + 3 * cap * set->n,
-                               quad ? qrho : NULL, &set->ev[set->n]);
+            int ok = window_summary(
+                log, xd_src, res, &col->u, k, cap, buf, buf + maxlen, buf + 2 * maxlen,
+                buf + 3 * maxlen, set->samples + 3 * cap * set->n, quad ? qrho : NULL,
+                par.drop_censored ? NULL : buf + 4 * maxlen, dir, &set->ev[set->n]);
             if (ok < 0)
                 rc = error_set(err, STAGECAL_ENOMEM, "out of memory (window means)");
             set->n += ok > 0;
@@ -660,7 +696,7 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
         for (int a = 0; a < 2; a++)
             qrho[a] = w[a] > 0 ? r[a] / w[a] : NAN;
     }
-    free(buf);
+    free(buf), free(dir);
     if (rc == STAGECAL_OK && par.physics)
         rc = evidence_conditions(log, col, set, err);
     if (rc != STAGECAL_OK) {

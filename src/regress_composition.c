@@ -122,6 +122,8 @@ static double expit(double l)
 static double pot_corrected(struct comp_ctx *c, size_t i, const double *theta, double xd)
 {
     double f0 = expit(predict_logit(c, i, theta, xd));
+    if (c->ev[i].xd_tobit)
+        return f0; /* a censored window's Tobit trend: a smoothed value, not a noisy reading */
     double h = fmin(c->ev[i].sd_xd, 0.5 * (1 - xd));
     if (!(h > 0) || !(xd - h > 0))
         return f0;

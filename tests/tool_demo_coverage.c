@@ -8,14 +8,15 @@
  * a = 9.5·(1 − LOSS·1.5) (mid-quarter; LOSS 0, the default, keeps a constant, so the law lies
  * inside the fitted form and any shortfall is the estimator's).
  *
- *   usage: tool_demo_coverage COLUMN.json REPLICATIONS SEED0 [line | quad | smoother] [LOSS]
+ *   usage: tool_demo_coverage COLUMN.json REPLICATIONS SEED0 [line | quad | smoother][-drop] [LOSS]
  *   (COLUMN.json: datasets/columns/demo_benzene_toluene.json)
  *
  * line, quad, smoother: the window statistics (stagecal_evidence_params.noise: the default
  * straight line with ρ pooled, STAGECAL_EVIDENCE_NOISE_QUAD_POOLED, _SMOOTHER). What the demo
  * scenario has that the synthetic regimes of tool_coverage.c do not: a distillate read through
- * a 20-min lag and compensated, an analyser clipped at 1 (readings of 1.00000 are censored and
- * left out of the means), windows at a pinch, runs cut at a lean pot, a reflux step after 4 h.
+ * a 20-min lag and compensated, an analyser clipped at 1 (readings of 1.00000 are censored: taken
+ * as censored observations by the windows' Tobit trend, or with -drop left out of the means),
+ * windows at a pinch, runs cut at a lean pot, a reflux step after 4 h.
  *
  * Prints, per fit (composition space = the model file's, stage space) and condition, the
  * coverage with its Wilson 95 % interval (Wilson, JASA 22 (1927) 209 — citation from memory),
@@ -75,8 +76,15 @@ int main(int argc, char **argv)
     char *e1 = NULL, *e2 = NULL;
     long reps = argc >= 4 ? strtol(argv[2], &e1, 10) : 0;
     unsigned long seed0 = argc >= 4 ? strtoul(argv[3], &e2, 10) : 0;
-    const char *mode = argc >= 5 ? argv[4] : "line";
+    char mode[32];
+    snprintf(mode, sizeof mode, "%s", argc >= 5 ? argv[4] : "line");
     double loss = argc >= 6 ? atof(argv[5]) : 0.0;
+    /* MODE-drop: censored xD readings left out of the window means (as before the Tobit
+     * trend, stagecal_evidence_params.drop_censored) */
+    size_t ml = strlen(mode);
+    int drop = ml > 5 && strcmp(mode + ml - 5, "-drop") == 0;
+    if (drop)
+        mode[ml - 5] = '\0';
     int noise = strcmp(mode, "quad") == 0       ? STAGECAL_EVIDENCE_NOISE_QUAD_POOLED
                 : strcmp(mode, "smoother") == 0 ? STAGECAL_EVIDENCE_NOISE_SMOOTHER
                 : strcmp(mode, "line") == 0     ? STAGECAL_EVIDENCE_NOISE_LINE_POOLED
@@ -84,7 +92,7 @@ int main(int argc, char **argv)
     if (argc < 4 || argc > 6 || *e1 || *e2 || reps < 10 || reps > 100000 || noise < 0 ||
         !(loss >= 0 && loss < 0.05)) {
         fprintf(stderr, "usage: tool_demo_coverage COLUMN.json REPLICATIONS(>=10) SEED0 "
-                        "[line | quad | smoother] [LOSS]\n");
+                        "[line | quad | smoother][-drop] [LOSS]\n");
         return 1;
     }
     gsl_set_error_handler_off();
@@ -129,6 +137,7 @@ int main(int argc, char **argv)
         stagecal_calibrate_params par = stagecal_calibrate_default_params();
         par.form = "saturating-load";
         par.evidence.noise = noise;
+        par.evidence.drop_censored = drop;
         stagecal_calibration cal;
         stagecal_error err;
         int rc = stagecal_calibrate(argv[1], logs, 3, &par, &cal, &err);

@@ -52,6 +52,10 @@ typedef struct {
                            physical limit); left out of the means and the carried samples,
                            so a window with many says its xD is known only from one side */
     size_t n_cens_xb;   /* the same for xB */
+    int xd_tobit;       /* 1: the window's censored xD readings were taken as censored
+                           observations (stagecal_evidence_tobit): xd and u_xd are the Tobit
+                           trend's level and error, and the carried s_xd are that trend at the
+                           carried times (smoothed values, not readings) */
     double n_eff;       /* effective sample size of the pot analyser series */
     int total_reflux;   /* 1: R = inf (or no distillate) throughout */
     double r;           /* reflux ratio [-]: the window's set point, the mean of a measured R
@@ -123,6 +127,25 @@ int stagecal_evidence_mean_quad(const double *t, const double *y, size_t n, doub
                                 double rho_in, double *mean, double *se, double *rho, size_t *m,
                                 stagecal_error *err);
 
+/* A window's trend with censored readings as censored observations: the Tobit maximum-
+ * likelihood fit (Tobin 1958, Econometrica 26(1):24-36) of y_i = Σ_j β_j p_j(t_i) + e_i, e_i
+ * independent N(0, σ²), p_j orthogonal polynomials in time of q = 1..3 terms (level, straight
+ * line, quadratic; fewer when the times do not determine them), by the EM iteration of Schmee &
+ * Hahn 1979 (Technometrics 21(4):417-432): a censored reading is replaced by its conditional
+ * expectation μ_i + d·σ·φ(w)/Q(w), w = d·(L_i − μ_i)/σ, and the trend refitted, σ² including the
+ * conditional variances, to convergence. dir[i]: 0 y[i] is a value, +1 a lower bound (the true
+ * reading ≥ y[i], e.g. an analyser clipped at its top), −1 an upper bound. Non-finite y or t:
+ * skipped. yc (n): the completed series (values, and the conditional expectations of censored
+ * readings; its plain mean is the trend's level β₀); trend (n): the fitted trend at each time
+ * (NAN where skipped); var_ratio: the variance of β₀ from the observed information (central
+ * second differences of the log-likelihood in (β, log σ)) over σ²/m, the variance of the level
+ * had no reading been censored (≥ 1): the information the censoring costs. EINVAL (q),
+ * EDATA (fewer than max(3, q + 1) uncensored readings — all at a bound give only a bound —,
+ * no convergence, or an information that is not positive definite), ENOMEM. */
+int stagecal_evidence_tobit(const double *t, const double *y, const signed char *dir, size_t n,
+                            size_t q, double *yc, double *trend, double *var_ratio,
+                            stagecal_error *err);
+
 /* Pools the lag-1 autocorrelation over windows, per analyser: replaces each window's
  * rho_xd (rho_xb) by the mean of all windows' values weighted by their lag pairs (m − 1),
  * and rescales u_xd (u_xb) to the n_eff of that ρ. Why: one window's ρ̂ from tens of
@@ -191,8 +214,12 @@ typedef struct {
                                       stagecal_holdup_comp, or STAGECAL_EVIDENCE_HOLDUP_AUTO (default): STAGES
                                       when the column file states a holdup, else LAG when a run's start-up
                                       gives a time constant, else NONE */
-    int physics; /* 1: windows get their conditions (logged pressure, subcooled reflux,
-                    unequal latent heats; physics.h) (default 1) */
+    int physics;       /* 1: windows get their conditions (logged pressure, subcooled reflux,
+                          unequal latent heats; physics.h) (default 1) */
+    int drop_censored; /* 1: censored xD readings are left out of the window means (as before
+                          the Tobit trend); 0 (default): a window with censored xD readings and
+                          at least 3 values takes them as censored observations
+                          (stagecal_evidence_tobit; docs/calibration.md §3) */
     const unsigned char *skip_run; /* one per run of the log, non-zero: that run's windows are
                                       left out (a run flagged for a gross error or drift;
                                       calibrate.h); NULL (default): none */
