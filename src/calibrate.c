@@ -407,7 +407,8 @@ static int add_warnings(stagecal_calibration *cal, const stagecal_calibrate_para
     size_t npinch = cal->res.count[STAGECAL_STAGES_PINCH];
     size_t nleft = 0;
     for (size_t i = 0; cal->used != STAGECAL_MODEL_CENSORED && i < cal->evidence.n; i++)
-        nleft += cal->evidence.ev[i].n_cens_xd + cal->evidence.ev[i].n_cens_xb;
+        nleft += (cal->evidence.ev[i].xd_tobit ? 0 : cal->evidence.ev[i].n_cens_xd) +
+                 cal->evidence.ev[i].n_cens_xb; /* a Tobit window takes its xD bounds */
     if (nleft > 0 && calibrate_censoring_matters(cal) &&
         (rc = warn(cal, err,
                    "%zu censored reading(s) in the windows were left out of the fit, %.0f %% or "

@@ -88,7 +88,7 @@ int calibrate_censoring_matters(const stagecal_calibration *cal)
     for (size_t i = 0; i < es->n; i++) {
         const stagecal_evidence *e = &es->ev[i];
         double n = (double)e->n_samples;
-        if ((double)e->n_cens_xd >= CAL_CENS_SHARE * n ||
+        if ((!e->xd_tobit && (double)e->n_cens_xd >= CAL_CENS_SHARE * n) ||
             (double)e->n_cens_xb >= CAL_CENS_SHARE * n)
             return 1;
     }

@@ -545,8 +545,8 @@ static int window_summary(const stagecal_runlog *log, const double *xd_src,
         ncd += log->xd_cens[i] != STAGECAL_CENSOR_NONE;
         ncb += log->xb_cens[i] != STAGECAL_CENSOR_NONE;
         t[j] = log->t_s[i];
-        /* a censored reading is not a value: left out of the window's mean until the
-         * fit takes it as a censored observation (docs/runlog.md); xD is the
+        /* a censored reading is not a value: left out here; the Tobit trend below takes
+         * censored xD readings as censored observations (docs/runlog.md); xD is the
          * holdup-compensated one (evidence_physics.c) */
         xd[j] = outlier || log->xd_cens[i] ? NAN : xd_src[i];
         xb[j] = outlier || log->xb_cens[i] ? NAN : log->xb[i];
@@ -680,7 +680,7 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
             int ok = window_summary(
                 log, xd_src, res, &col->u, k, cap, buf, buf + maxlen, buf + 2 * maxlen,
                 buf + 3 * maxlen, set->samples + 3 * cap * set->n, quad ? qrho : NULL,
-                par.drop_censored ? NULL : buf + 4 * maxlen, dir, &set->ev[set->n]);
+                par.tobit_means ? buf + 4 * maxlen : NULL, dir, &set->ev[set->n]);
             if (ok < 0)
                 rc = error_set(err, STAGECAL_ENOMEM, "out of memory (window means)");
             set->n += ok > 0;

@@ -467,10 +467,12 @@ static void evidence_counts_censored_readings(void **state)
     assert_int_equal(stagecal_runlog_analyse(log, &test_col, NULL, &res, NULL), 0);
     assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, NULL, &res, NULL), 0);
     assert_true(res.nwindows >= 1);
-    /* the default takes the readings at 1 as censored observations (every 4th one at 1 while
+    /* tobit_means takes the readings at 1 as censored observations (every 4th one at 1 while
      * the others read 0.95 ± 0.002: data no noise model gives, so the Tobit level moves up and
-     * the window's count with it); the old rule, left out, keeps Fenske's count */
-    assert_int_equal(stagecal_evidence_build(log, &res, &test_col, 1.0, NULL, &set, NULL),
+     * the window's count with it); the default leaves them out and keeps Fenske's count */
+    stagecal_evidence_params par = stagecal_evidence_default_params();
+    par.tobit_means = 1;
+    assert_int_equal(stagecal_evidence_build(log, &res, &test_col, 1.0, &par, &set, NULL),
                      STAGECAL_OK);
     const stagecal_evidence *e = stagecal_evidence_find(&set, 0);
     assert_non_null(e);
@@ -479,9 +481,7 @@ static void evidence_counts_censored_readings(void **state)
     for (size_t j = 0; j < e->m; j++)
         assert_true(e->s_xd[j] < 1); /* the trend, not a bound, is carried */
     stagecal_evidence_set_free(&set);
-    stagecal_evidence_params par = stagecal_evidence_default_params();
-    par.drop_censored = 1;
-    assert_int_equal(stagecal_evidence_build(log, &res, &test_col, 1.0, &par, &set, NULL),
+    assert_int_equal(stagecal_evidence_build(log, &res, &test_col, 1.0, NULL, &set, NULL),
                      STAGECAL_OK);
     e = stagecal_evidence_find(&set, 0);
     assert_non_null(e);

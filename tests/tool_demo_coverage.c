@@ -8,15 +8,17 @@
  * a = 9.5·(1 − LOSS·1.5) (mid-quarter; LOSS 0, the default, keeps a constant, so the law lies
  * inside the fitted form and any shortfall is the estimator's).
  *
- *   usage: tool_demo_coverage COLUMN.json REPLICATIONS SEED0 [line | quad | smoother][-drop] [LOSS]
+ *   usage: tool_demo_coverage COLUMN.json REPLICATIONS SEED0 [MODE] [LOSS]
+ *   MODE: line | quad | smoother, or one of them with -tobit (e.g. line-tobit)
  *   (COLUMN.json: datasets/columns/demo_benzene_toluene.json)
  *
  * line, quad, smoother: the window statistics (stagecal_evidence_params.noise: the default
  * straight line with ρ pooled, STAGECAL_EVIDENCE_NOISE_QUAD_POOLED, _SMOOTHER). What the demo
  * scenario has that the synthetic regimes of tool_coverage.c do not: a distillate read through
- * a 20-min lag and compensated, an analyser clipped at 1 (readings of 1.00000 are censored: taken
- * as censored observations by the windows' Tobit trend, or with -drop left out of the means),
- * windows at a pinch, runs cut at a lean pot, a reflux step after 4 h.
+ * a 20-min lag and compensated, an analyser clipped at 1 (readings of 1.00000 are censored and
+ * left out of the means; with -tobit taken as censored observations by the windows' Tobit trend,
+ * stagecal_evidence_params.tobit_means), windows at a pinch, runs cut at a lean pot, a reflux step
+ * after 4 h.
  *
  * Prints, per fit (composition space = the model file's, stage space) and condition, the
  * coverage with its Wilson 95 % interval (Wilson, JASA 22 (1927) 209 — citation from memory),
@@ -79,12 +81,12 @@ int main(int argc, char **argv)
     char mode[32];
     snprintf(mode, sizeof mode, "%s", argc >= 5 ? argv[4] : "line");
     double loss = argc >= 6 ? atof(argv[5]) : 0.0;
-    /* MODE-drop: censored xD readings left out of the window means (as before the Tobit
-     * trend, stagecal_evidence_params.drop_censored) */
+    /* MODE-tobit: censored xD readings taken as censored observations by the windows' Tobit
+     * trend (stagecal_evidence_params.tobit_means) */
     size_t ml = strlen(mode);
-    int drop = ml > 5 && strcmp(mode + ml - 5, "-drop") == 0;
-    if (drop)
-        mode[ml - 5] = '\0';
+    int tobit = ml > 6 && strcmp(mode + ml - 6, "-tobit") == 0;
+    if (tobit)
+        mode[ml - 6] = '\0';
     int noise = strcmp(mode, "quad") == 0       ? STAGECAL_EVIDENCE_NOISE_QUAD_POOLED
                 : strcmp(mode, "smoother") == 0 ? STAGECAL_EVIDENCE_NOISE_SMOOTHER
                 : strcmp(mode, "line") == 0     ? STAGECAL_EVIDENCE_NOISE_LINE_POOLED
@@ -92,7 +94,7 @@ int main(int argc, char **argv)
     if (argc < 4 || argc > 6 || *e1 || *e2 || reps < 10 || reps > 100000 || noise < 0 ||
         !(loss >= 0 && loss < 0.05)) {
         fprintf(stderr, "usage: tool_demo_coverage COLUMN.json REPLICATIONS(>=10) SEED0 "
-                        "[line | quad | smoother][-drop] [LOSS]\n");
+                        "[line | quad | smoother][-tobit] [LOSS]\n");
         return 1;
     }
     gsl_set_error_handler_off();
@@ -137,7 +139,7 @@ int main(int argc, char **argv)
         stagecal_calibrate_params par = stagecal_calibrate_default_params();
         par.form = "saturating-load";
         par.evidence.noise = noise;
-        par.evidence.drop_censored = drop;
+        par.evidence.tobit_means = tobit;
         stagecal_calibration cal;
         stagecal_error err;
         int rc = stagecal_calibrate(argv[1], logs, 3, &par, &cal, &err);

@@ -49,8 +49,9 @@ typedef struct {
     size_t n_samples;   /* rows in the window */
     size_t n_ok;        /* rows with an ok per-sample stage count */
     size_t n_cens_xd;   /* rows whose xD reading is censored (a bound: "<v", ">v", or at the
-                           physical limit); left out of the means and the carried samples,
-                           so a window with many says its xD is known only from one side */
+                           physical limit): taken as censored observations when xd_tobit,
+                           else left out of the means and the carried samples, so a window
+                           with many says its xD is known only from one side */
     size_t n_cens_xb;   /* the same for xB */
     int xd_tobit;       /* 1: the window's censored xD readings were taken as censored
                            observations (stagecal_evidence_tobit): xd and u_xd are the Tobit
@@ -214,12 +215,12 @@ typedef struct {
                                       stagecal_holdup_comp, or STAGECAL_EVIDENCE_HOLDUP_AUTO (default): STAGES
                                       when the column file states a holdup, else LAG when a run's start-up
                                       gives a time constant, else NONE */
-    int physics;       /* 1: windows get their conditions (logged pressure, subcooled reflux,
-                          unequal latent heats; physics.h) (default 1) */
-    int drop_censored; /* 1: censored xD readings are left out of the window means (as before
-                          the Tobit trend); 0 (default): a window with censored xD readings and
-                          at least 3 values takes them as censored observations
-                          (stagecal_evidence_tobit; docs/calibration.md §3) */
+    int physics;     /* 1: windows get their conditions (logged pressure, subcooled reflux,
+                        unequal latent heats; physics.h) (default 1) */
+    int tobit_means; /* 1: a window with censored xD readings and at least 3 values takes them
+                        as censored observations (stagecal_evidence_tobit; docs/calibration.md
+                        §5c); 0 (default): they are left out of the means (which then read low
+                        at an analyser clipped at its top) — §5c says why it is not the default */
     const unsigned char *skip_run; /* one per run of the log, non-zero: that run's windows are
                                       left out (a run flagged for a gross error or drift;
                                       calibrate.h); NULL (default): none */
