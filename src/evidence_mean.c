@@ -36,19 +36,27 @@ int stagecal_evidence_mean(const double *t, const double *y, size_t n, double u_
     return rc;
 }
 
+/* Number of samples with finite t and y, and their running means (the window's centre). */
+static size_t finite_means(const double *t, const double *y, size_t n, double *tbar, double *ybar)
+{
+    size_t m = 0;
+    *tbar = *ybar = 0;
+    for (size_t i = 0; i < n; i++) {
+        if (isfinite(y[i]) && isfinite(t[i])) {
+            m++;
+            *tbar += (t[i] - *tbar) / (double)m;
+            *ybar += (y[i] - *ybar) / (double)m;
+        }
+    }
+    return m;
+}
+
 int stagecal_evidence_mean_rho(const double *t, const double *y, size_t n, double u_floor,
                                double *mean, double *se, double *rho_out, size_t *m_out,
                                stagecal_error *err)
 {
-    size_t m = 0;
-    double tbar = 0, ybar = 0;
-    for (size_t i = 0; i < n; i++) {
-        if (isfinite(y[i]) && isfinite(t[i])) {
-            m++;
-            tbar += (t[i] - tbar) / (double)m;
-            ybar += (y[i] - ybar) / (double)m;
-        }
-    }
+    double tbar, ybar;
+    size_t m = finite_means(t, y, n, &tbar, &ybar);
     if (m < 3)
         return error_set(err, STAGECAL_EINVAL,
                          "window mean needs at least 3 finite samples, got %zu", m);
@@ -235,15 +243,8 @@ int stagecal_evidence_mean_quad(const double *t, const double *y, size_t n, doub
                                 double rho_in, double *mean, double *se, double *rho_out,
                                 size_t *m_out, stagecal_error *err)
 {
-    size_t m = 0;
-    double tbar = 0, ybar = 0;
-    for (size_t i = 0; i < n; i++) {
-        if (isfinite(y[i]) && isfinite(t[i])) {
-            m++;
-            tbar += (t[i] - tbar) / (double)m;
-            ybar += (y[i] - ybar) / (double)m;
-        }
-    }
+    double tbar, ybar;
+    size_t m = finite_means(t, y, n, &tbar, &ybar);
     if (m < 3)
         return error_set(err, STAGECAL_EINVAL,
                          "window mean needs at least 3 finite samples, got %zu", m);

@@ -216,6 +216,22 @@ static void holdup_column_light_closes_balance(void **state)
     stagecal_runlog_free(log);
 }
 
+/* The drift tests' column (α = 2.4, analyser uncertainties 0.002 / 0.003, 1000 mol column
+ * holdup stated with u_rel 0.06) and simulator run: 7 stages, 4 % holdup, R = 2 after a 1-h
+ * start-up, 8 h logged every 2 min with analyser noise u(xD) = 0.002, u(xB) = 0.003. */
+static void drift_case(stagecal_column *col, sim_dyn_params *p)
+{
+    static const char coltext[] =
+        "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"t\",\"description\":"
+        "\"SYNTHETIC\",\"condenser\":\"total\",\"system\":{\"light\":{\"name\":\"l\"},"
+        "\"heavy\":{\"name\":\"h\"},\"model\":{\"kind\":\"alpha\",\"alpha\":2.4}},"
+        "\"uncertainty\":{\"xd\":0.002,\"xb\":0.003,\"v_mol_s\":0.01},"
+        "\"holdup\":{\"column_mol\":1000,\"u_rel\":0.06}}";
+    assert_int_equal(stagecal_column_parse(coltext, strlen(coltext), "t.json", col, NULL), 0);
+    *p = (sim_dyn_params){2.4,  7,   25000,      0.5, 0.04,  0,     1.0,
+                          3600, 2.0, 8 * 3600.0, 120, 0.002, 0.003, 0.08};
+}
+
 /* The drift and balance checks on a clean log of a column with stage holdup (the
  * independent simulator: 7 stages, 4 % holdup stated in the column file with u_rel 0.06,
  * R = 2, rows every 2 min with analyser noise u(xD) = 0.002, u(xB) = 0.003): no gross error,
@@ -227,16 +243,9 @@ static void holdup_column_light_closes_balance(void **state)
 static void holdup_drift_checks_clean_and_drifting(void **state)
 {
     (void)state;
-    static const char coltext[] =
-        "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"t\",\"description\":"
-        "\"SYNTHETIC\",\"condenser\":\"total\",\"system\":{\"light\":{\"name\":\"l\"},"
-        "\"heavy\":{\"name\":\"h\"},\"model\":{\"kind\":\"alpha\",\"alpha\":2.4}},"
-        "\"uncertainty\":{\"xd\":0.002,\"xb\":0.003,\"v_mol_s\":0.01},"
-        "\"holdup\":{\"column_mol\":1000,\"u_rel\":0.06}}";
     stagecal_column col;
-    assert_int_equal(stagecal_column_parse(coltext, strlen(coltext), "t.json", &col, NULL), 0);
-    sim_dyn_params p = {2.4,  7,   25000,      0.5, 0.04,  0,     1.0,
-                        3600, 2.0, 8 * 3600.0, 120, 0.002, 0.003, 0.08};
+    sim_dyn_params p;
+    drift_case(&col, &p);
     for (int drift = 0; drift < 2; drift++) {
         stagecal_runlog *rl = sim_log(&p);
         for (size_t i = 0; i < rl->n && drift; i++)
@@ -275,16 +284,9 @@ static void holdup_drift_checks_clean_and_drifting(void **state)
 static void holdup_drift_bound_sign_test(void **state)
 {
     (void)state;
-    static const char coltext[] =
-        "{\"format\":\"stagecal-column\",\"version\":1,\"id\":\"t\",\"description\":"
-        "\"SYNTHETIC\",\"condenser\":\"total\",\"system\":{\"light\":{\"name\":\"l\"},"
-        "\"heavy\":{\"name\":\"h\"},\"model\":{\"kind\":\"alpha\",\"alpha\":2.4}},"
-        "\"uncertainty\":{\"xd\":0.002,\"xb\":0.003,\"v_mol_s\":0.01},"
-        "\"holdup\":{\"column_mol\":1000,\"u_rel\":0.06}}";
     stagecal_column col;
-    assert_int_equal(stagecal_column_parse(coltext, strlen(coltext), "t.json", &col, NULL), 0);
-    sim_dyn_params p = {2.4,  7,   25000,      0.5, 0.04,  0,     1.0,
-                        3600, 2.0, 8 * 3600.0, 120, 0.002, 0.003, 0.08};
+    sim_dyn_params p;
+    drift_case(&col, &p);
     for (int kase = 0; kase < 3; kase++) {
         stagecal_runlog *rl = sim_log(&p);
         for (size_t i = 0; i < rl->n && kase > 0; i++) {
