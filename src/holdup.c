@@ -283,10 +283,17 @@ int stagecal_holdup_estimate(const stagecal_runlog *log, double u_xd,
             startup[k] = su;
         if (transient)
             transient[k] = tr;
+        /* AUTO takes the start-up first: its input is a step to a constant (the pot stands
+         * still at total reflux), so the lag is all the fit has to explain. The production
+         * transient's target moves with the depleting pot, which the fit models as a quadratic
+         * in time from the last start-up row on; on the demo generator (a 20-min lag, noise
+         * 0.02 of the stated, 10 data sets) that read 705 s at R = 2 and 1055 s at R = 2.5
+         * against the start-ups' 1200 s, and the under-compensated windows read +0.16 and
+         * +0.05 stages high (tests/tool_demo_windows.c; docs/methods.md, "Column holdup") */
         tau[k] = par.source == STAGECAL_HOLDUP_STARTUP     ? su
                  : par.source == STAGECAL_HOLDUP_TRANSIENT ? tr
-                 : tr.ok                                   ? tr
-                                                           : su;
+                 : su.ok                                   ? su
+                                                           : tr;
         if (tau[k].ok) {
             double w = 1.0 / (tau[k].se_tau_s * tau[k].se_tau_s);
             sw += w, swt += w * tau[k].tau_s, nok++, nrows += tau[k].n;

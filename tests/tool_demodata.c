@@ -48,12 +48,17 @@
 static unsigned long demo_seed = 20250106UL;
 static int demo_months = 14;
 static int demo_quiet; /* 1: no "wrote" lines */
+/* knobs for studies that switch one effect off at a time (tests/tool_demo_windows.c); the
+ * defaults are the scenario */
+static double demo_noise_scale = 1.0; /* times the stated analyser noise */
+static double demo_tau_min = 20.0;    /* the distillate's lag [min] */
+static int demo_clip = 1;             /* 1: readings clipped to [0, 1] */
+static int demo_step = 1;             /* 1: every 4th run steps R after 4 h */
 #define RUNS_PER_MONTH 6
 #define A0 9.5
 #define B_LAW 0.9
 static double demo_loss = 0.012; /* a(t): loss per month since packing */
 #define REPACK_MONTH 9
-#define TAU_MIN 20.0
 #define DT_LOG_MIN 10
 #define START_EPOCH 1736150400.0 /* 2025-01-06T08:00:00Z */
 
@@ -197,7 +202,7 @@ int DEMODATA_MAIN(int argc, char **argv)
                 month_start + (k * (27.0 / RUNS_PER_MONTH) + gsl_rng_uniform(rng)) * 86400.0;
             double month = (t0 - START_EPOCH) / (30.4375 * 86400.0);
             double r1 = reflux_choices[gsl_rng_uniform_int(rng, 5)];
-            double r2 = (run_no % 4 == 1) ? r1 + 1.0 : r1; /* reflux step after 4 h */
+            double r2 = (demo_step && run_no % 4 == 1) ? r1 + 1.0 : r1; /* reflux step after 4 h */
             double v = v_choices[gsl_rng_uniform_int(rng, 4)] * (0.95 + 0.1 * gsl_rng_uniform(rng));
             double w = 25000.0 * (0.9 + 0.2 * gsl_rng_uniform(rng)); /* mol */
             double xb0 = 0.45 + 0.1 * gsl_rng_uniform(rng);
@@ -222,13 +227,14 @@ int DEMODATA_MAIN(int argc, char **argv)
                 if (minutes % 2 == 0 || minutes < 2) /* the pot moves slowly: every 2 min */
                     xd_ss = steady_xd(xb, r_now, n_now);
                 /* lagged distillate */
-                xd_state += (xd_ss - xd_state) * (1.0 - exp(-1.0 / TAU_MIN));
+                xd_state += (xd_ss - xd_state) * (1.0 - exp(-1.0 / demo_tau_min));
                 if (minutes % DT_LOG_MIN == 0) {
                     double t = t0 + 60.0 * minutes;
                     char ts[40];
                     iso(t, ts, sizeof ts);
-                    double xd_m = xd_state + gsl_ran_gaussian(rng, u->xd);
-                    double xb_m = xb + gsl_ran_gaussian(rng, u->xb) + drift * minutes / 60.0;
+                    double xd_m = xd_state + demo_noise_scale * gsl_ran_gaussian(rng, u->xd);
+                    double xb_m = xb + demo_noise_scale * gsl_ran_gaussian(rng, u->xb) +
+                                  drift * minutes / 60.0;
                     double r_m = r_now; /* a set point, logged as is */
                     double v_m = v + gsl_ran_gaussian(rng, u->v_mol_s);
                     double w_m = w + (u->w_mol > 0 ? gsl_ran_gaussian(rng, u->w_mol) : 0);
@@ -236,8 +242,10 @@ int DEMODATA_MAIN(int argc, char **argv)
                         xb_m += 0.05;
                         gross_left--;
                     }
-                    xd_m = fmin(1.0, fmax(0.0, xd_m));
-                    xb_m = fmin(1.0, fmax(0.0, xb_m));
+                    if (demo_clip) {
+                        xd_m = fmin(1.0, fmax(0.0, xd_m));
+                        xb_m = fmin(1.0, fmax(0.0, xb_m));
+                    }
                     line++;
                     fprintf(out, "%s,%s,%.4f,", run, ts, w_m / 1000.0);
                     if (run_no % 7 == 5 && minutes == 320)

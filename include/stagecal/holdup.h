@@ -32,7 +32,7 @@ extern "C" {
 
 /* Which transient sets a run's time constant. */
 typedef enum {
-    STAGECAL_HOLDUP_AUTO = 0, /* the production transient when it gives one, else the start-up */
+    STAGECAL_HOLDUP_AUTO = 0, /* the start-up when it gives one, else the production transient */
     STAGECAL_HOLDUP_STARTUP,  /* the total-reflux start-up only */
     STAGECAL_HOLDUP_TRANSIENT /* the first production stretch only */
 } stagecal_holdup_source;
