@@ -48,6 +48,51 @@ static void holdup_startup_recovers_tau(void **state)
     assert_true(r.reason[0] != '\0');
 }
 
+/* A run's time constant comes from its total-reflux start-up first (AUTO). Closed forms of the
+ * first-order lag (τ = 1200 s), noise-free, rows every 10 min: the start-up rises to a
+ * constant, xD = 0.99 − 0.5·exp(−t/τ) for 50 min; then at R = 2 the target falls as a
+ * depleting pot's does, faster and faster, u(s) = 0.99 − b·(exp(s/S) − 1) with b = 0.002,
+ * S = 75 min, whose lag response is 0.99 + b − b·exp(s/S)/(1 + τ/S) + C·exp(−s/τ), C from
+ * the start-up's last value. The start-up fit is exact (1e-6); the production transient's fit
+ * models the target as a quadratic in time and is printed, not trusted: here it reads 940 s
+ * (705 s at R = 2 on the demo generator's 1200 s, docs/methods.md, "Column holdup"), which
+ * AUTO took before December 2026. */
+static void holdup_estimate_takes_the_startup(void **state)
+{
+    (void)state;
+    const double tau = 1200.0, b = 0.002, big_s = 4500.0;
+    char *buf = NULL;
+    size_t blen = 0;
+    FILE *f = open_memstream(&buf, &blen);
+    fprintf(f, "run,time[h],W[mol],xD[mol/mol],xB[mol/mol],R[-],V[mol/s]\n");
+    double x_end = 0, w = 20000.0;
+    for (int i = 0; i < 6; i++) { /* start-up, t = 0 … 50 min */
+        double t = 600.0 * i;
+        x_end = 0.99 - 0.5 * exp(-(t + 600.0) / tau); /* at 60 min, where R steps */
+        fprintf(f, "A,%.6f,%.3f,%.9f,0.45,inf,1.0\n", t / 3600.0, w, 0.99 - 0.5 * exp(-t / tau));
+    }
+    double c = x_end - (0.99 + b - b / (1 + tau / big_s));
+    for (int i = 0; i <= 30; i++) { /* production at R = 2 for 5 h */
+        double s = 600.0 * i,
+               x = 0.99 + b - b * exp(s / big_s) / (1 + tau / big_s) + c * exp(-s / tau);
+        fprintf(f, "A,%.6f,%.3f,%.9f,%.6f,2,1.0\n", (s + 3600.0) / 3600.0, w - s / 3.0, x,
+                0.45 - 1e-5 * s);
+    }
+    fclose(f);
+    stagecal_runlog *rl = stagecal_runlog_alloc();
+    assert_int_equal(stagecal_runlog_read_buffer(rl, buf, blen, "lag.csv", NULL, NULL, NULL, NULL),
+                     0);
+    free(buf);
+    stagecal_holdup_tau t1, su, tr, pooled;
+    assert_int_equal(stagecal_holdup_estimate(rl, 0.002, NULL, &t1, &su, &tr, &pooled, NULL), 0);
+    print_message("start-up %.1f s, production transient %.1f s (ok %d), taken %.1f s\n", su.tau_s,
+                  tr.tau_s, tr.ok, t1.tau_s);
+    assert_true(su.ok && t1.ok && pooled.ok);
+    assert_rel(su.tau_s, tau, 1e-6, "start-up tau, closed form");
+    assert_rel(t1.tau_s, su.tau_s, 0, "AUTO takes the start-up's tau");
+    stagecal_runlog_free(rl);
+}
+
 /* The lag of a ramp: with x_ss(t) = a − b·t the settled lag output is a − b·(t − τ), so
  * x + τ·dx/dt = x_ss(t) exactly (closed form of the first-order lag's ramp response); the
  * local quadratic differentiates a straight line exactly: 1e-12. */
@@ -484,6 +529,7 @@ int main(void)
     gsl_set_error_handler_off();
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(holdup_startup_recovers_tau),
+        cmocka_unit_test(holdup_estimate_takes_the_startup),
         cmocka_unit_test(holdup_lag_compensation_inverts_a_ramp),
         cmocka_unit_test(holdup_zero_is_plain),
         cmocka_unit_test(holdup_correction_matches_dynamic_column),
