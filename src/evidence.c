@@ -480,7 +480,8 @@ stagecal_evidence_params stagecal_evidence_default_params(void)
                                       .min_ok = 3,
                                       .noise = STAGECAL_EVIDENCE_NOISE_LINE_POOLED,
                                       .holdup = STAGECAL_EVIDENCE_HOLDUP_AUTO,
-                                      .physics = 1};
+                                      .physics = 1,
+                                      .tobit_means = 1};
 }
 
 void stagecal_evidence_set_free(stagecal_evidence_set *set)

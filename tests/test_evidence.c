@@ -449,10 +449,10 @@ static void evidence_noise_sd_reads_noise_not_trajectory(void **state)
     gsl_rng_free(rng);
 }
 
-/* Censored readings (xD at the bound 1) stay in the window but out of its means: the
- * window counts them, carries none, and its stage count still reads Fenske's 5 within the
- * tolerance above (the censored rows only remove samples). The counts are what the rows
- * say: every 4th of the 60 rows, i.e. those of the 60 inside the window. */
+/* Censored readings (xD at the bound 1) with tobit_means = 0 stay in the window but out of
+ * its means: the window counts them, carries none, and its stage count still reads Fenske's
+ * 5 within the tolerance above (the censored rows only remove samples). The counts are what the
+ * rows say: every 4th of the 60 rows, i.e. those of the 60 inside the window. */
 static void evidence_counts_censored_readings(void **state)
 {
     (void)state;
@@ -467,9 +467,10 @@ static void evidence_counts_censored_readings(void **state)
     assert_int_equal(stagecal_runlog_analyse(log, &test_col, NULL, &res, NULL), 0);
     assert_int_equal(stagecal_runlog_invert(log, &test_col, 1.0, NULL, &res, NULL), 0);
     assert_true(res.nwindows >= 1);
-    /* tobit_means takes the readings at 1 as censored observations (every 4th one at 1 while
-     * the others read 0.95 ± 0.002: data no noise model gives, so the Tobit level moves up and
-     * the window's count with it); the default leaves them out and keeps Fenske's count */
+    /* tobit_means (the default) takes the readings at 1 as censored observations (every 4th
+     * one at 1 while the others read 0.95 ± 0.002: data no noise model gives, so the Tobit
+     * level moves up and the window's count with it); tobit_means = 0 leaves them out and
+     * keeps Fenske's count */
     stagecal_evidence_params par = stagecal_evidence_default_params();
     par.tobit_means = 1;
     assert_int_equal(stagecal_evidence_build(log, &res, &test_col, 1.0, &par, &set, NULL),
@@ -481,7 +482,8 @@ static void evidence_counts_censored_readings(void **state)
     for (size_t j = 0; j < e->m; j++)
         assert_true(e->s_xd[j] < 1); /* the trend, not a bound, is carried */
     stagecal_evidence_set_free(&set);
-    assert_int_equal(stagecal_evidence_build(log, &res, &test_col, 1.0, NULL, &set, NULL),
+    par.tobit_means = 0;
+    assert_int_equal(stagecal_evidence_build(log, &res, &test_col, 1.0, &par, &set, NULL),
                      STAGECAL_OK);
     e = stagecal_evidence_find(&set, 0);
     assert_non_null(e);

@@ -9,16 +9,16 @@
  * inside the fitted form and any shortfall is the estimator's).
  *
  *   usage: tool_demo_coverage COLUMN.json REPLICATIONS SEED0 [MODE] [LOSS]
- *   MODE: line | quad | smoother, or one of them with -tobit (e.g. line-tobit)
+ *   MODE: line | quad | smoother, or one of them with -tobit or -drop (e.g. line-drop)
  *   (COLUMN.json: datasets/columns/demo_benzene_toluene.json)
  *
  * line, quad, smoother: the window statistics (stagecal_evidence_params.noise: the default
  * straight line with ρ pooled, STAGECAL_EVIDENCE_NOISE_QUAD_POOLED, _SMOOTHER). What the demo
  * scenario has that the synthetic regimes of tool_coverage.c do not: a distillate read through
  * a 20-min lag and compensated, an analyser clipped at 1 (readings of 1.00000 are censored and
- * left out of the means; with -tobit taken as censored observations by the windows' Tobit trend,
- * stagecal_evidence_params.tobit_means), windows at a pinch, runs cut at a lean pot, a reflux step
- * after 4 h.
+ * taken as censored observations by the windows' Tobit trend, stagecal_evidence_params.tobit_means,
+ * the default; with -drop left out of the means), windows at a pinch, runs cut at a lean pot, a
+ * reflux step after 4 h.
  *
  * Prints, per fit (composition space = the model file's, stage space) and condition, the
  * coverage with its Wilson 95 % interval (Wilson, JASA 22 (1927) 209 — citation from memory),
@@ -82,11 +82,14 @@ int main(int argc, char **argv)
     snprintf(mode, sizeof mode, "%s", argc >= 5 ? argv[4] : "line");
     double loss = argc >= 6 ? atof(argv[5]) : 0.0;
     /* MODE-tobit: censored xD readings taken as censored observations by the windows' Tobit
-     * trend (stagecal_evidence_params.tobit_means) */
+     * trend (stagecal_evidence_params.tobit_means, the default); MODE-drop: left out of the
+     * window means (the rule before) */
     size_t ml = strlen(mode);
-    int tobit = ml > 6 && strcmp(mode + ml - 6, "-tobit") == 0;
-    if (tobit)
-        mode[ml - 6] = '\0';
+    int tobit = stagecal_evidence_default_params().tobit_means;
+    if (ml > 6 && strcmp(mode + ml - 6, "-tobit") == 0)
+        tobit = 1, mode[ml - 6] = '\0';
+    else if (ml > 5 && strcmp(mode + ml - 5, "-drop") == 0)
+        tobit = 0, mode[ml - 5] = '\0';
     int noise = strcmp(mode, "quad") == 0       ? STAGECAL_EVIDENCE_NOISE_QUAD_POOLED
                 : strcmp(mode, "smoother") == 0 ? STAGECAL_EVIDENCE_NOISE_SMOOTHER
                 : strcmp(mode, "line") == 0     ? STAGECAL_EVIDENCE_NOISE_LINE_POOLED
@@ -94,7 +97,7 @@ int main(int argc, char **argv)
     if (argc < 4 || argc > 6 || *e1 || *e2 || reps < 10 || reps > 100000 || noise < 0 ||
         !(loss >= 0 && loss < 0.05)) {
         fprintf(stderr, "usage: tool_demo_coverage COLUMN.json REPLICATIONS(>=10) SEED0 "
-                        "[line | quad | smoother][-tobit] [LOSS]\n");
+                        "[line | quad | smoother][-tobit | -drop] [LOSS]\n");
         return 1;
     }
     gsl_set_error_handler_off();
@@ -179,8 +182,8 @@ int main(int argc, char **argv)
         stagecal_calibration_free(&cal);
     }
     printf("demo scenario (tool_demodata, January-March), %ld data sets from seed %lu, window "
-           "statistics '%s', loss %g/month; %d not calibrated\n",
-           reps, seed0, mode, loss, bad);
+           "statistics '%s', censored xD %s, loss %g/month; %d not calibrated\n",
+           reps, seed0, mode, tobit ? "Tobit" : "left out", loss, bad);
     static const char *fitname[2] = {"composition (model file)", "stage space"};
     for (int q = 0; q < 2; q++) {
         printf("%s\n  condition         coverage  Wilson 95 %%        med z   se/sd  mean err\n",

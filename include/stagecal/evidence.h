@@ -217,10 +217,10 @@ typedef struct {
                                       gives a time constant, else NONE */
     int physics;     /* 1: windows get their conditions (logged pressure, subcooled reflux,
                         unequal latent heats; physics.h) (default 1) */
-    int tobit_means; /* 1: a window with censored xD readings and at least 3 values takes them
-                        as censored observations (stagecal_evidence_tobit; docs/calibration.md
-                        §5c); 0 (default): they are left out of the means (which then read low
-                        at an analyser clipped at its top) — §5c says why it is not the default */
+    int tobit_means; /* 1 (default): a window with censored xD readings and at least 3 values
+                        takes them as censored observations (stagecal_evidence_tobit;
+                        docs/calibration.md §5c); 0: they are left out of the means (which then
+                        read low at an analyser clipped at its top) */
     const unsigned char *skip_run; /* one per run of the log, non-zero: that run's windows are
                                       left out (a run flagged for a gross error or drift;
                                       calibrate.h); NULL (default): none */
