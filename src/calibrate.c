@@ -577,12 +577,16 @@ int stagecal_calibrate(const char *column_path, const char *const *logs, size_t 
     cal->findings = stagecal_findings_alloc(par->read.max_findings ? par->read.max_findings : 1000);
     if (!cal->own_log || !cal->findings)
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    for (size_t k = 0; k < nlogs; k++) {
+    /* the logs share the soft sensor's models at the pressures they meet */
+    stagecal_runlog_params rp = par->read;
+    stagecal_physics *soft = runlog_soft_share(cal->column, &rp);
+    for (size_t k = 0; k < nlogs && rc == 0; k++) {
         progress(par, "reading", (double)k / (double)nlogs);
-        if ((rc = stagecal_runlog_read(cal->own_log, logs[k], cal->column, &par->read,
-                                       cal->findings, err)))
-            return rc;
+        rc = stagecal_runlog_read(cal->own_log, logs[k], cal->column, &rp, cal->findings, err);
     }
+    stagecal_physics_free(soft);
+    if (rc)
+        return rc;
     /* the whole log is held through the chain: not the doubling's unused tail as well (at 10^7
      * rows it held 6.8·10^6 rows' worth of NaN) */
     runlog_shrink_rows(cal->own_log);

@@ -81,8 +81,9 @@ struct reader {
     /* names of the runs this file has started (a run may not resume) */
     char (*names)[64];
     size_t nnames, names_cap;
-    /* the soft sensor (runlog_soft.c): equilibrium models at the logged pressures */
-    stagecal_physics *ph;
+    /* the soft sensor (runlog_soft.c): equilibrium models at the logged pressures, the
+     * caller's (par.soft_physics) or the reader's own (ph_own, freed with the reader) */
+    stagecal_physics *ph, *ph_own;
     int soft_unstated; /* 1 once the missing u(T) warning was given for this file */
 };
 
@@ -198,6 +199,13 @@ int runlog_setpoints_run(stagecal_runlog *log, size_t k, const stagecal_column *
 /* runlog_soft.c: the soft sensor in the reader. 1 when the file's compositions may come from
  * its temperatures (params.infer, a column whose model has temperatures). */
 int runlog_soft_enabled(const struct reader *rd);
+/* 1 when a read with par of a log for col runs the soft sensor. */
+int runlog_soft_wanted(const stagecal_column *col, const stagecal_runlog_params *par);
+/* For a caller that reads several logs of col with par: when the soft sensor will run and
+ * par has no soft_physics yet, builds one and puts it in par, so the reads share the models
+ * at the pressures they meet. Returns what it built, for the caller to free after the last
+ * read (NULL: nothing built; if building failed, each read builds its own and reports). */
+stagecal_physics *runlog_soft_share(const stagecal_column *col, stagecal_runlog_params *par);
 /* At the end of a run: rows without an xD (xB) reading get one from T_top (T_pot), and the
  * rows with both check the sensor (a warning finding when it disagrees). Sets rd->oom on
  * allocation failure. */

@@ -22,10 +22,32 @@
  * to ~200 distinct pressures (1 Pa resolution), each model ~10 kB with the coarse table. */
 #define SOFT_PHYSICS_CACHE 256
 
+stagecal_physics *stagecal_runlog_soft_physics_alloc(const stagecal_column *col,
+                                                     stagecal_error *err)
+{
+    /* models at the logged pressures that answer by solving (a few queries per pressure:
+     * one inference or check per row), many of them kept (each is small) */
+    stagecal_physics_params pp = stagecal_physics_default_params();
+    pp.exact = 1;
+    pp.cache_size = SOFT_PHYSICS_CACHE;
+    return stagecal_physics_alloc(col, &pp, err);
+}
+
+int runlog_soft_wanted(const stagecal_column *col, const stagecal_runlog_params *par)
+{
+    return par->infer && col && col->system.vle && stagecal_vle_has_temperature(col->system.vle);
+}
+
 int runlog_soft_enabled(const struct reader *rd)
 {
-    return rd->par.infer && rd->col && rd->col->system.vle &&
-           stagecal_vle_has_temperature(rd->col->system.vle);
+    return runlog_soft_wanted(rd->col, &rd->par);
+}
+
+stagecal_physics *runlog_soft_share(const stagecal_column *col, stagecal_runlog_params *par)
+{
+    if (par->soft_physics || !runlog_soft_wanted(col, par))
+        return NULL;
+    return par->soft_physics = stagecal_runlog_soft_physics_alloc(col, NULL);
 }
 
 /* One sensor: the top (xD from T_top) or the pot (xB from T_pot). */
@@ -113,12 +135,8 @@ void runlog_soft_run(struct reader *rd)
     stagecal_runlog *log = rd->log;
     if (!runlog_soft_enabled(rd) || (!log->t_top_k && !log->t_pot_k) || rd->oom)
         return;
-    /* models at the logged pressures that answer by solving (a few queries per pressure:
-     * one inference or check per row), many of them kept (each is small) */
-    stagecal_physics_params pp = stagecal_physics_default_params();
-    pp.exact = 1;
-    pp.cache_size = SOFT_PHYSICS_CACHE;
-    if (!rd->ph && !(rd->ph = stagecal_physics_alloc(rd->col, &pp, NULL))) {
+    if (!rd->ph && !(rd->ph = rd->par.soft_physics) &&
+        !(rd->ph = rd->ph_own = stagecal_runlog_soft_physics_alloc(rd->col, NULL))) {
         rd->oom = 1;
         return;
     }

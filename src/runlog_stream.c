@@ -252,7 +252,7 @@ static int file_end(struct file_read *fr, stagecal_runlog *log, stagecal_error *
     }
     free(rd->names);
     free(rd->w_raw);
-    stagecal_physics_free(rd->ph);
+    stagecal_physics_free(rd->ph_own);
     free(rd);
     fr->rd = NULL;
     return rc;
@@ -338,9 +338,10 @@ struct stagecal_runlog_stream {
     const stagecal_column *col;
     stagecal_runlog_params par;
     stagecal_findings *f;
-    stagecal_runlog *log; /* rows read and not yet handed out */
-    struct file_read fr;  /* the file being read */
-    int open;             /* 1: fr is reading a file */
+    stagecal_runlog *log;       /* rows read and not yet handed out */
+    struct file_read fr;        /* the file being read */
+    int open;                   /* 1: fr is reading a file */
+    stagecal_physics *soft_own; /* the soft sensor's models, shared by the files (par) */
 };
 
 stagecal_runlog_soft stagecal_runlog_stream_soft(const stagecal_runlog_stream *s)
@@ -363,6 +364,7 @@ stagecal_runlog_stream *stagecal_runlog_stream_alloc(const char *const *paths, s
     s->npaths = npaths;
     s->col = col;
     s->par = params ? *params : stagecal_runlog_default_params();
+    s->soft_own = runlog_soft_share(col, &s->par);
     s->f = f;
     return s;
 }
@@ -377,8 +379,11 @@ void stagecal_runlog_stream_free(stagecal_runlog_stream *s)
         if (s->fr.close_in)
             fclose(s->fr.in);
         free(s->fr.rd->names);
+        free(s->fr.rd->w_raw);
+        stagecal_physics_free(s->fr.rd->ph_own);
         free(s->fr.rd);
     }
+    stagecal_physics_free(s->soft_own);
     stagecal_runlog_free(s->log);
     free(s);
 }

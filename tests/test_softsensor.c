@@ -259,6 +259,42 @@ static void soft_reader_fills_and_marks(void **state)
     stagecal_column_free(&col);
 }
 
+/* Reads that share the soft sensor's models (params.soft_physics, as calibrate and the
+ * streaming reader share them across logs) infer what a reader with its own infers: the
+ * same Raoult's-law compositions (raoult_tbubble, independent of src/; 1e-6 as above) and
+ * bit for bit what its own models give (a model at a pressure does not depend on what was
+ * asked before it). */
+static void soft_reader_shared_physics(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    stagecal_error e;
+    assert_int_equal(stagecal_column_parse(COLUMN, strlen(COLUMN), "c.json", &col, &e), 0);
+    char csv[4096];
+    size_t len = soft_csv(csv, sizeof csv, 0);
+    stagecal_runlog *own = stagecal_runlog_alloc();
+    assert_int_equal(stagecal_runlog_read_buffer(own, csv, len, "s.csv", &col, NULL, NULL, &e), 0);
+    stagecal_runlog_params par = stagecal_runlog_default_params();
+    par.soft_physics = stagecal_runlog_soft_physics_alloc(&col, &e);
+    assert_non_null(par.soft_physics);
+    for (int pass = 0; pass < 2; pass++) { /* the second read finds the models built */
+        stagecal_runlog *log = stagecal_runlog_alloc();
+        assert_int_equal(stagecal_runlog_read_buffer(log, csv, len, "s.csv", &col, &par, NULL, &e),
+                         0);
+        assert_int_equal(log->soft.xb_inferred, 4);
+        for (size_t i = 0; i < 6; i++) {
+            assert_abs(log->xb[i], 0.4 - 0.01 * (double)i, 1e-6, "xB from T_pot");
+            assert_true(log->xb[i] == own->xb[i] && log->xd[i] == own->xd[i]);
+            assert_true(isnan(own->u_xb_inf[i]) ? isnan(log->u_xb_inf[i])
+                                                : log->u_xb_inf[i] == own->u_xb_inf[i]);
+        }
+        stagecal_runlog_free(log);
+    }
+    stagecal_physics_free(par.soft_physics);
+    stagecal_runlog_free(own);
+    stagecal_column_free(&col);
+}
+
 /* The smoother against closed forms of the random walk plus noise (the local-level model). */
 static void soft_smoother_closed_forms(void **state)
 {
@@ -320,6 +356,7 @@ int main(void)
         cmocka_unit_test(soft_infer_censors_unresolved),
         cmocka_unit_test(soft_infer_azeotrope),
         cmocka_unit_test(soft_reader_fills_and_marks),
+        cmocka_unit_test(soft_reader_shared_physics),
         cmocka_unit_test(soft_smoother_closed_forms),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);

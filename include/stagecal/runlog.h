@@ -184,9 +184,20 @@ typedef struct {
                                  checks its temperatures against its analyser readings (a
                                  warning when they disagree); 0: temperatures are not read for
                                  compositions. Needs a column whose model has temperatures. */
+    stagecal_physics *soft_physics; /* NULL (default): each read builds the soft sensor's
+                                       models at the logged pressures itself; else one from
+                                       stagecal_runlog_soft_physics_alloc for the same column,
+                                       shared by the reads that get these params (a model at a
+                                       pressure seen before is found again; one read at a
+                                       time: not thread-safe) */
 } stagecal_runlog_params;
 
 stagecal_runlog_params stagecal_runlog_default_params(void);
+/* The soft sensor's physics for col (exact models, many pressures kept) to share across
+ * reads through params.soft_physics; free with stagecal_physics_free after the last read.
+ * NULL with err set when col's model cannot be built (or on allocation failure). */
+stagecal_physics *stagecal_runlog_soft_physics_alloc(const stagecal_column *col,
+                                                     stagecal_error *err);
 
 /* NULL on allocation failure. */
 stagecal_runlog *stagecal_runlog_alloc(void);

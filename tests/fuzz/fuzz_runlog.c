@@ -21,6 +21,11 @@ static stagecal_column col_alpha, col_ideal;
  * model at a pressure does not depend on what came before, so a saved input replays
  * alike on a fresh process. */
 static stagecal_physics *ph_alpha, *ph_ideal;
+/* Likewise the soft sensor's models (temperatures to compositions at the logged pressures,
+ * runlog_soft.c) for the column that has temperatures, through params.soft_physics, as a
+ * caller reading many logs of one column shares them: a reader building its own spent half
+ * of each execution building models at pressures the previous inputs had already seen. */
+static stagecal_physics *soft_ideal;
 
 int LLVMFuzzerInitialize(int *argc, char ***argv)
 {
@@ -32,7 +37,8 @@ int LLVMFuzzerInitialize(int *argc, char ***argv)
     stagecal_error err;
     ph_alpha = stagecal_physics_alloc(&col_alpha, NULL, &err);
     ph_ideal = ph_alpha ? stagecal_physics_alloc(&col_ideal, NULL, &err) : NULL;
-    if (!ph_ideal) {
+    soft_ideal = ph_ideal ? stagecal_runlog_soft_physics_alloc(&col_ideal, &err) : NULL;
+    if (!soft_ideal) {
         fprintf(stderr, "fuzz setup: %s\n", err.text);
         abort();
     }
@@ -131,6 +137,8 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     if (!text)
         return 0;
     stagecal_runlog_params rp = stagecal_runlog_default_params();
+    if (col == &col_ideal)
+        rp.soft_physics = soft_ideal;
     stagecal_runlog *log = stagecal_runlog_alloc();
     stagecal_findings *f = stagecal_findings_alloc(16);
     stagecal_error err;
