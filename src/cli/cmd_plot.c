@@ -99,9 +99,10 @@ static int print_result(const stagecal_plot_chart *draw, const char *kind, const
     for (size_t i = 0; i < draw->n_series; i++)
         json_array_append_new(names,
                               json_string(draw->series[i].label ? draw->series[i].label : ""));
-    json_t *o = json_pack("{s:s, s:i, s:s, s:s, s:s, s:s, s:o}", "format", "stagecal-plot-result",
-                          "version", 1, "status", "ok", "kind", kind, "output", output, "title",
-                          draw->title ? draw->title : "", "series", names);
+    json_t *o = json_pack("{s:s, s:i, s:s, s:s, s:s, s:s, s:o, s:s}", "format",
+                          "stagecal-plot-result", "version", 1, "status", "ok", "kind", kind,
+                          "output", output, "title", draw->title ? draw->title : "", "series",
+                          names, "caution", stagecal_caution_text());
     return o ? cli_json_print(o) : CLI_EXIT_SOFTWARE;
 }
 

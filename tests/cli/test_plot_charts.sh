@@ -86,6 +86,14 @@ else
     echo "FAIL: plot trend output"; cat "$tmp/out"; fails=$((fails + 1))
 fi
 
+# --json: the result object carries the caution as every JSON result does
+$BIN plot mccabe --alpha 2.0 --xd 0.995 --reflux 6 --stages 30 --json --output "$tmp/j.svg" >"$tmp/out" 2>&1
+if python3 -c 'import json,sys; d=json.load(open(sys.argv[1])); sys.exit(0 if d["format"] == "stagecal-plot-result" and d["caution"].startswith("Caution: ") else 1)' "$tmp/out"; then
+    echo "ok: plot --json carries the caution"
+else
+    echo "FAIL: plot --json output"; cat "$tmp/out"; fails=$((fails + 1))
+fi
+
 # usage errors
 expect_exit 2 "option '--column' is required for 'plot run'" -- $BIN plot run "$L/2025-01.csv" --output "$tmp/x.png"
 expect_exit 2 "at least one run log is required" -- $BIN plot run --column "$COL" --output "$tmp/x.png"
