@@ -210,6 +210,38 @@ static inline double srl_sat_law(void *ctx, double r)
     return 8.0 * (1 - exp(-0.45 * r));
 }
 
+/* The measured-reflux log of the set-point tests: nruns runs of the constant-α = 2 column
+ * with the saturating law at five set points (1.5, 2.5, 4, 6, 10), 78 rows each a minute
+ * apart, the R reading scattering by 0.02 about its set point, analysers 0.0015 (xD) and
+ * 0.0025 (xB), a 200 mol charge at xB 0.35 drawn at 0.0015 mol/s; no pressure column.
+ * The CSV as srl_csv gives it, from an MT19937 generator seeded with seed. */
+static inline char *srl_measured_r_csv(size_t nruns, unsigned long seed, size_t *len)
+{
+    static const double rset[] = {1.5, 2.5, 4.0, 6.0, 10.0};
+    const struct srl_spec s = {srl_smoker_pot_a2,
+                               NULL,
+                               srl_sat_law,
+                               nruns,
+                               rset,
+                               5,
+                               78,
+                               60.0,
+                               0.02,
+                               0.0015,
+                               0.0025,
+                               200.0,
+                               0.35,
+                               0.0015,
+                               NULL};
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    if (!rng)
+        return NULL;
+    gsl_rng_set(rng, seed);
+    char *csv = srl_csv(&s, rng, len);
+    gsl_rng_free(rng);
+    return csv;
+}
+
 /* Benzene–toluene for the vacuum tests: NIST Chemistry WebBook Antoine sets, the same numbers
  * as datasets/columns/demo_benzene_toluene.json (after Williamham, Taylor, Pignocco & Rossini
  * 1945); a column file for them with its pressure as a printf %.3f (Pa); and the pot of an

@@ -231,25 +231,8 @@ static void setpoint_measured_log_calibrates(void **state)
 {
     (void)state;
     static const double rset[] = {1.5, 2.5, 4.0, 6.0, 10.0};
-    struct srl_spec s = {srl_smoker_pot_a2,
-                         NULL,
-                         srl_sat_law,
-                         1,
-                         rset,
-                         5,
-                         78,
-                         60.0,
-                         0.02,
-                         0.0015,
-                         0.0025,
-                         200.0,
-                         0.35,
-                         0.0015,
-                         NULL};
-    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    gsl_rng_set(rng, 3);
     size_t len = 0;
-    char *csv = srl_csv(&s, rng, &len);
+    char *csv = srl_measured_r_csv(1, 3, &len);
     assert_non_null(csv);
     stagecal_runlog *log = read_csv(csv, len, &col);
     assert_int_equal(log->n, 390);
@@ -288,7 +271,6 @@ static void setpoint_measured_log_calibrates(void **state)
     stagecal_calibration_free(&cal);
     stagecal_runlog_free(log);
     free(csv);
-    gsl_rng_free(rng);
 }
 
 /* N with smoker(R, xd, N) = xb (bisection to 1e-13 stages). */

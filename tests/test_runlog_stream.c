@@ -318,26 +318,8 @@ static void runlog_stream_inversion_as_whole(void **state)
 static void runlog_stream_measured_reflux_as_whole(void **state)
 {
     (void)state;
-    static const double rset[] = {1.5, 2.5, 4.0, 6.0, 10.0};
-    struct srl_spec sp = {srl_smoker_pot_a2,
-                          NULL,
-                          srl_sat_law,
-                          6,
-                          rset,
-                          5,
-                          78,
-                          60.0,
-                          0.02,
-                          0.0015,
-                          0.0025,
-                          200.0,
-                          0.35,
-                          0.0015,
-                          NULL};
-    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    gsl_rng_set(rng, 3);
     size_t len = 0;
-    char *csv = srl_csv(&sp, rng, &len);
+    char *csv = srl_measured_r_csv(6, 3, &len);
     assert_non_null(csv);
     const char *path = STAGECAL_BUILD_DIR "/test_runlog_stream_measured.csv";
     FILE *f = fopen(path, "w");
@@ -355,7 +337,6 @@ static void runlog_stream_measured_reflux_as_whole(void **state)
     stagecal_vle_free(col.system.vle);
     remove(path);
     free(csv);
-    gsl_rng_free(rng);
 }
 
 /* A log without a run column (the runs of demo 2025-01 and 2025-02 with the column cut off):
