@@ -23,14 +23,18 @@
  * Gross Error Detection, Gulf Publishing, ch. 7; both from memory): for each hypothesis j
  * (one analyser drifting at an unknown rate d) the rate is estimated by weighted least
  * squares from each signature — the balance (intercept H and d, weights 1/(W·u(xB))²) and
- * the stage relation (one intercept per stretch and d, weights 1/(u(xD)² + (∂X/∂xB·u(xB))²)),
+ * the stage relation (one intercept per stretch and d, weights 1/(u(xD)² + (∂X/∂xB·u(xB))²);
+ * the free-count fit adds a slope on ∂X/∂N per stretch, runlog_drift_fit.c),
  * each covariance scaled up by χ²/dof when the scatter exceeds the stated noise. The two
  * independent estimates are combined by inverse variance; T_j = (d/se)² is the GLR statistic
- * of the hypothesis (χ²(1) under no drift). The hypothesis with the largest T is the one the
- * data support best (the GLR identification rule); a drift is flagged when T ≥ drift_t² and
- * the drift over the run exceeds drift_u·u(analyser), and put down to that analyser unless
- * its two estimates contradict each other (opposite signs, each beyond drift_sign_z standard
- * errors) or the stage relation gives no estimate (then: unattributed). The homogeneity
+ * of the hypothesis (χ²(1) under no drift). A drift is flagged when the larger T ≥ drift_t²
+ * and the drift over the run exceeds drift_u·u(analyser). The analyser is the hypothesis the
+ * data support best (the GLR identification rule) by t_name, the same statistic with the
+ * stage relation's estimate fitted with each stretch's count free (unbiased under either
+ * drift; the median-count estimate in T is attenuated by a distillate drift), see decide();
+ * it stays unattributed when the named hypothesis' two estimates contradict each other
+ * (opposite signs, each beyond drift_sign_z standard errors) or, without any stage
+ * estimate, when the balance's evidence between the two is not strong. The homogeneity
  * statistic Q_j = (d_b − d_s)²/(se_b² + se_s²) is reported but does not decide: model errors
  * of either signature (column holdup, the lag compensation) make it large on clean runs at
  * the precision of long logs (docs/methods.md has the figures).
@@ -266,67 +270,6 @@ static double median_of(double *v, size_t n)
     return gsl_stats_median(v, 1, n);
 }
 
-/* Weighted regression of r on g with one intercept per group (rows of a group are
- * consecutive in win); d and its se scaled up by χ²/dof. 0 on success. */
-static int within_fit(const double *n, const double *g, const double *w, const int32_t *win,
-                      size_t m, double *d, double *se)
-{
-    double sxy = 0, sxx = 0, rss = 0;
-    size_t nwin = 0;
-    for (int pass = 0; pass < 2; pass++) {
-        nwin = 0;
-        for (size_t a = 0, e; a < m; a = e) {
-            double sw = 0, sg = 0, sn = 0;
-            for (e = a; e < m && win[e] == win[a]; e++)
-                sw += w[e], sg += w[e] * g[e], sn += w[e] * n[e];
-            for (size_t q = a; q < e; q++) {
-                double dg = g[q] - sg / sw, dn = n[q] - sn / sw;
-                if (pass == 0)
-                    sxy += w[q] * dg * dn, sxx += w[q] * dg * dg;
-                else
-                    rss += w[q] * (dn - *d * dg) * (dn - *d * dg);
-            }
-            nwin++;
-        }
-        if (pass == 0) {
-            if (!(sxx > 0) || m < nwin + 3)
-                return -1;
-            *d = sxy / sxx;
-        }
-    }
-    double scale = rss / (double)(m - nwin - 1);
-    *se = sqrt((scale > 1 ? scale : 1) / sxx);
-    return isfinite(*d) && isfinite(*se) ? 0 : -1;
-}
-
-/* How much the stretch counts' own error widens the stage relation's drift estimate: the
- * median count N_s of a stretch is itself off by δ_s, which moves each row's residual by
- * δ_s·∂X/∂N (hx), and across a batch ∂X/∂N changes with the pot much as a drift's g does
- * (near a pure distillate 1 − xD, and with it ∂X/∂N, grows through the run). The factor is
- * √(S_gg / S_gg|h): S_gg the within-stretch weighted sum of squares of g, S_gg|h what is left
- * of it once the per-stretch line in hx is taken out — the se of d in the model with a free
- * δ_s per stretch against the se with N_s taken as known (1 without collinearity; large when
- * a drift cannot be told from a different stretch count). */
-static double collinear_factor(const double *g, const double *hx, const double *w,
-                               const int32_t *win, size_t m)
-{
-    double sgg = 0, sres = 0;
-    for (size_t a = 0, e; a < m; a = e) {
-        double sw = 0, mg = 0, mh = 0;
-        for (e = a; e < m && win[e] == win[a]; e++)
-            sw += w[e], mg += w[e] * g[e], mh += w[e] * hx[e];
-        mg /= sw, mh /= sw;
-        double gg = 0, gh = 0, hh = 0;
-        for (size_t q = a; q < e; q++) {
-            double dg = g[q] - mg, dh = hx[q] - mh;
-            gg += w[q] * dg * dg, gh += w[q] * dg * dh, hh += w[q] * dh * dh;
-        }
-        sgg += gg;
-        sres += hh > 0 ? gg - gh * gh / hh : gg;
-    }
-    return sres > 0 && sgg > 0 ? sqrt(sgg / sres) : INFINITY;
-}
-
 /* The distillate X at which the plain count at (xb, r) equals target: safeguarded Newton
  * on N(x) − target from x0 (N rises with xD; a pinch means x too high, an invalid count x
  * too low), with the bracket halved when a step leaves it. *sens = ∂N/∂xB / ∂N/∂xD at X,
@@ -400,7 +343,8 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
     stagecal_runlog_closure *c = &res->closures[k];
     double t0 = log->t_s[run->first] / 3600.0;
     double *rr = scr, *t = scr + len, *sens = scr + 2 * len, *w = scr + 3 * len, *g = scr + 4 * len,
-           *tmp = scr + 5 * len, *dl = scr + 6 * len, *hx = scr + 7 * len;
+           *tmp = scr + 5 * len, *dl = scr + 6 * len, *hx = scr + 7 * len, *dgs = scr + 8 * len,
+           *es = scr + 9 * len;
     size_t m = 0;
     int32_t *key = malloc(run->n * sizeof *key);
     if (!key)
@@ -488,12 +432,18 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
             g[a] = j == 0 ? t[a] : sens[a] * t[a];
         stagecal_runlog_drift_sig *sg = &c->sig[j];
         double dq, sq;
-        if (within_fit(rr, g, w, win, m, &sg->d_stg, &sg->se_stg) == 0) {
+        if (runlog_drift_within_fit(rr, g, w, win, m, &sg->d_stg, &sg->se_stg) == 0) {
             sg->n_stg = m;
             /* the holdup's error shifts the compensated rows alike: its effect on d */
-            if (u_hold > 0 && within_fit(dl, g, w, win, m, &dq, &sq) == 0)
+            if (u_hold > 0 && runlog_drift_within_fit(dl, g, w, win, m, &dq, &sq) == 0)
                 sg->se_stg = hypot(sg->se_stg, dq);
-            sg->se_stg *= collinear_factor(g, hx, w, win, m);
+            sg->se_stg *= runlog_drift_collinear_factor(g, hx, w, win, m);
+            if (runlog_drift_free_fit(rr, g, hx, w, win, m, &sg->d_free, &sg->se_free, dgs, es) !=
+                0)
+                sg->d_free = sg->se_free = NAN;
+            else if (u_hold > 0 &&
+                     runlog_drift_free_fit(dl, g, hx, w, win, m, &dq, &sq, dgs, es) == 0)
+                sg->se_free = hypot(sg->se_free, dq);
             if (!isfinite(sg->se_stg)) {
                 sg->d_stg = sg->se_stg = NAN;
                 sg->n_stg = 0;
@@ -589,6 +539,11 @@ static double bound_sign(const stagecal_runlog *log, const stagecal_runlog_resul
     return p > 0 ? gsl_cdf_ugaussian_Qinv(p) : INFINITY;
 }
 
+/* The likelihood ratio of one simple hypothesis against another that counts as strong
+ * evidence for it (Royall, R. (1997), Statistical Evidence: A Likelihood Paradigm, Chapman &
+ * Hall, ch. 1: 8 "fairly strong", 32 "strong"; from memory). */
+#define DRIFT_STRONG_LR 32.0
+
 static void decide(const stagecal_column *col, const stagecal_runlog_analysis_params *par,
                    double span_h, stagecal_runlog_closure *c)
 {
@@ -610,23 +565,44 @@ static void decide(const stagecal_column *col, const stagecal_runlog_analysis_pa
             continue;
         }
         s->t_stat = s->se > 0 ? (s->d / s->se) * (s->d / s->se) : 0;
+        if (hb && isfinite(s->d_free) && s->se_free > 0) {
+            double wb = 1 / (s->se_bal * s->se_bal), wf = 1 / (s->se_free * s->se_free);
+            double df = (wb * s->d_bal + wf * s->d_free) / (wb + wf);
+            s->t_name = df * df * (wb + wf);
+        }
         if (best < 0 || s->t_stat > c->sig[best].t_stat)
             best = j;
     }
-    /* which analyser: the balance's own GLR statistics when it has both, among the
-     * hypotheses whose stage relation does not contradict their balance. The stage relation
-     * cannot tell a distillate drift from a different stretch count on a batch whose
-     * distillate loses purity (collinear_factor), so its estimate of a distillate drift comes
-     * out a fraction of the planted one and, by size, tipped the choice to the pot analyser;
-     * its sign survives: a hypothesis whose stage estimate significantly opposes its balance
-     * estimate is out when the other's is not (on 2-min logs of a holdup column the two
-     * balance statistics are close and the sign decides). It still adds to the statistic
-     * that flags, and can contradict the named one (unattributed) */
-    if (c->sig[0].n_bal > 0 && c->sig[1].n_bal > 0) {
+    /* Detection and identification take different stage estimates. Detection (is there a
+     * drift?) takes the larger T, whose stage estimate is the median-count fit: a stretch's
+     * median count takes up part of a distillate drift (an attenuated estimate, with the se
+     * of the free-count model: collinear_factor), which costs power but keeps the false-alarm
+     * rate where the holdup compensation's own model error makes the free-count estimate
+     * significant on clean 2-min logs (docs/methods.md has the figures). Identification (which
+     * analyser?) takes the GLR statistic with the free-count estimate (t_name, unbiased under
+     * either drift): the attenuated one tipped the choice to the pot analyser, the GLR's
+     * identification rule (Narasimhan & Mah 1987) needs the hypotheses' maximised likelihoods.
+     * Without it for either hypothesis, the earlier rule: the balance's statistics among the
+     * hypotheses whose stage estimate does not contradict their balance; without any stage
+     * estimate, the balance alone names an analyser only on strong evidence (below). */
+    double tmax = best < 0 ? 0 : c->sig[best].t_stat;
+    int bal_only = 0; /* named by the balance alone: strong evidence, or unattributed */
+    if (isfinite(c->sig[0].t_name) && isfinite(c->sig[1].t_name)) {
+        best = c->sig[0].t_name >= c->sig[1].t_name ? 0 : 1;
+    } else if (c->sig[0].n_bal > 0 && c->sig[1].n_bal > 0) {
         double z0 = c->sig[0].d_bal / c->sig[0].se_bal, z1 = c->sig[1].d_bal / c->sig[1].se_bal;
         int k0 = contradicts(&c->sig[0], par->drift_sign_z);
         int k1 = contradicts(&c->sig[1], par->drift_sign_z);
         best = k0 != k1 ? k0 : (z0 * z0 >= z1 * z1 ? 0 : 1);
+        /* no stage estimate for either: the likelihood ratio of the two hypotheses'
+         * maximised likelihoods, exp(|z0² − z1²|/2), must reach DRIFT_STRONG_LR, and the
+         * weighings the two signatures rest on (a_k against W_k·t_k) must pass their own
+         * check (W's fall against V/(R + 1)) */
+        if (c->sig[0].n_stg == 0 && c->sig[1].n_stg == 0)
+            bal_only = fabs(z0 * z0 - z1 * z1) >= 2 * log(DRIFT_STRONG_LR) && c->has_boilup &&
+                               !c->boilup_mismatch
+                           ? 1
+                           : -1;
     }
     c->drift_analyser = STAGECAL_DRIFT_NONE;
     c->drift = 0;
@@ -642,13 +618,13 @@ static void decide(const stagecal_column *col, const stagecal_runlog_analysis_pa
         return;
     const stagecal_runlog_drift_sig *s = &c->sig[best];
     int big = u[best] > 0 ? fabs(s->d) * span_h > par->drift_u * u[best] : 1;
-    if (!(s->t_stat >= par->drift_t * par->drift_t) || !big)
+    if (!(tmax >= par->drift_t * par->drift_t) || !big)
         return;
     c->drift = 1;
     int both = s->n_bal > 0 && s->n_stg > 0;
     /* the two estimates of the named hypothesis must not contradict each other: opposite
      * signs, each significant */
-    int ok = both && !contradicts(s, par->drift_sign_z);
+    int ok = bal_only ? bal_only > 0 : both && !contradicts(s, par->drift_sign_z);
     c->drift_analyser = ok ? (best == 0 ? STAGECAL_DRIFT_DISTILLATE : STAGECAL_DRIFT_POT)
                            : STAGECAL_DRIFT_UNATTRIBUTED;
 }
@@ -675,8 +651,8 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
         maxrun = log->runs[k].n > maxrun ? log->runs[k].n : maxrun;
     /* 8 arrays of scratch, the run's light and lh: per run; the compensated distillate and
      * its variance: per row of the log (the compensation pools across runs) */
-    double *scr = malloc(10 * maxrun * sizeof *scr);
-    double *light = scr ? scr + 8 * maxrun : NULL, *lh = scr ? scr + 9 * maxrun : NULL;
+    double *scr = malloc(12 * maxrun * sizeof *scr);
+    double *light = scr ? scr + 10 * maxrun : NULL, *lh = scr ? scr + 11 * maxrun : NULL;
     int32_t *win = malloc(maxrun * sizeof *win);
     double *xd_ss = malloc(2 * n * sizeof *xd_ss), *u2 = xd_ss ? xd_ss + n : NULL;
     if (!scr || !win || !xd_ss) {
@@ -718,6 +694,7 @@ void runlog_drift_clear(stagecal_runlog_closure *c)
     for (int j = 0; j < 2; j++) {
         stagecal_runlog_drift_sig *s = &c->sig[j];
         s->d_bal = s->se_bal = s->d_stg = s->se_stg = s->d = s->se = NAN;
+        s->d_free = s->se_free = s->t_name = NAN;
         s->t_stat = 0;
         s->q_stat = NAN;
         s->n_bal = s->n_stg = 0;

@@ -180,6 +180,22 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
 double runlog_holdup_light(const stagecal_column *col, double xd, double xb);
 /* The drift signatures of c set to "not computed" (NaN, 0). */
 void runlog_drift_clear(stagecal_runlog_closure *c);
+
+/* ---- the stage relation's drift fits (runlog_drift_fit.c) ----
+ * Rows a < m are grouped by stretches (equal, consecutive win[a]); y the residual, g the drift
+ * regressor, w the weights (1/variance), hx = ∂X/∂N. Each returns 0 with the slope d of y on g
+ * and its se (scaled up by √(χ²/dof) when that exceeds 1), −1 when the fit is not defined. */
+/* One intercept per stretch. */
+int runlog_drift_within_fit(const double *y, const double *g, const double *w, const int32_t *win,
+                            size_t m, double *d, double *se);
+/* One intercept and one slope on hx per stretch (the stretch's count free; a stretch of fewer
+ * than 3 rows, or with hx constant, keeps the intercept only). Scratch dgs, es: m each. */
+int runlog_drift_free_fit(const double *y, const double *g, const double *hx, const double *w,
+                          const int32_t *win, size_t m, double *d, double *se, double *dgs,
+                          double *es);
+/* √(S_gg / S_gg|hx) of the within-stretch sums of squares (INFINITY when nothing is left). */
+double runlog_drift_collinear_factor(const double *g, const double *hx, const double *w,
+                                     const int32_t *win, size_t m);
 /* printf's "%.9g" of v into d (at most 16 bytes, no NUL) for 1e-13 <= |v| < 1e13, or -1
  * (outside that range, or too close to a rounding tie to be sure: ask printf). */
 int runlog_format_g9(char *d, double v);

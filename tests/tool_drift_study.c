@@ -247,13 +247,15 @@ static int one_run(int reg, gsl_rng *rng, struct tally *ty)
                         "%+.2e±%.1e T %.1f Q "
                         "%.1f | xB bal %+.2e±%.1e stg %+.2e±%.1e T %.1f Q %.1f | z_limit %.2f "
                         "z_bound %.2f "
-                        "sign %+.0f -> %s\n",
+                        "sign %+.0f -> %s | free %+.2e±%.1e Tn %.1f | %+.2e±%.1e Tn %.1f\n",
                         reg_name[reg], p.n_stages, p.reflux, n, nclip, nprod, res.nwindows,
                         c->sig[0].d_bal, c->sig[0].se_bal, c->sig[0].d_stg, c->sig[0].se_stg,
                         c->sig[0].t_stat, c->sig[0].q_stat, c->sig[1].d_bal, c->sig[1].se_bal,
                         c->sig[1].d_stg, c->sig[1].se_stg, c->sig[1].t_stat, c->sig[1].q_stat,
                         c->z_limit, c->z_bound, sign,
-                        stagecal_drift_analyser_name(c->drift_analyser));
+                        stagecal_drift_analyser_name(c->drift_analyser), c->sig[0].d_free,
+                        c->sig[0].se_free, c->sig[0].t_name, c->sig[1].d_free, c->sig[1].se_free,
+                        c->sig[1].t_name);
             ty->named[c->drift_analyser]++;
             ty->gross += c->gross;
             ty->boilup += c->boilup_mismatch;

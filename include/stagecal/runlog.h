@@ -336,13 +336,17 @@ const char *stagecal_drift_analyser_name(int analyser);
 
 /* One drift hypothesis of one run. */
 typedef struct {
-    double d_bal, se_bal; /* drift rate from the Rayleigh balance [1/h] and its se */
-    double d_stg, se_stg; /* from the stage counts' trend within windows [1/h] */
-    double d, se;         /* inverse-variance combination (balance alone without stages) */
-    double t_stat;        /* (d/se)²: GLR statistic for a bias of this signature */
-    double q_stat;        /* (d_bal − d_stg)²/(se_bal² + se_stg²): consistency (NaN when one
-                             of the two is missing) */
-    size_t n_bal, n_stg;  /* rows in each estimate */
+    double d_bal, se_bal;   /* drift rate from the Rayleigh balance [1/h] and its se */
+    double d_stg, se_stg;   /* from the stage counts' trend within windows [1/h] */
+    double d_free, se_free; /* the stage relation's estimate with each stretch's count free
+                               (fitted with d; unbiased under a drift, wider) [1/h] */
+    double t_name;          /* GLR statistic with d_free in place of d_stg: names the
+                               analyser (NaN without both estimates) */
+    double d, se;           /* inverse-variance combination (balance alone without stages) */
+    double t_stat;          /* (d/se)²: GLR statistic for a bias of this signature */
+    double q_stat;          /* (d_bal − d_stg)²/(se_bal² + se_stg²): consistency (NaN when one
+                               of the two is missing) */
+    size_t n_bal, n_stg;    /* rows in each estimate */
 } stagecal_runlog_drift_sig;
 
 typedef struct {

@@ -260,13 +260,15 @@ json_t *cli_run_json(const stagecal_runlog *log, size_t k, const stagecal_runlog
         const stagecal_runlog_drift_sig *s = &cl->sig[j];
         json_object_set_new(
             sigs, key[j],
-            json_pack("{s:o,s:o,s:o,s:o,s:o,s:o,s:o,s:o,s:I,s:I}", "balance_per_h",
+            json_pack("{s:o,s:o,s:o,s:o,s:o,s:o,s:o,s:o,s:o,s:o,s:o,s:I,s:I}", "balance_per_h",
                       cli_json_real(s->d_bal), "u_balance_per_h", cli_json_real(s->se_bal),
                       "stages_per_h", cli_json_real(s->d_stg), "u_stages_per_h",
-                      cli_json_real(s->se_stg), "drift_per_h", cli_json_real(s->d), "u_drift_per_h",
-                      cli_json_real(s->se), "glr", cli_json_real(s->t_stat), "consistency",
-                      cli_json_real(s->q_stat), "rows_balance", (json_int_t)s->n_bal, "rows_stages",
-                      (json_int_t)s->n_stg));
+                      cli_json_real(s->se_stg), "stages_free_count_per_h", cli_json_real(s->d_free),
+                      "u_stages_free_count_per_h", cli_json_real(s->se_free), "drift_per_h",
+                      cli_json_real(s->d), "u_drift_per_h", cli_json_real(s->se), "glr",
+                      cli_json_real(s->t_stat), "glr_naming", cli_json_real(s->t_name),
+                      "consistency", cli_json_real(s->q_stat), "rows_balance", (json_int_t)s->n_bal,
+                      "rows_stages", (json_int_t)s->n_stg));
     }
     json_object_set_new(o, "drift_signatures", sigs);
     json_object_set_new(o, "outliers", json_integer((json_int_t)cl->n_outliers));
