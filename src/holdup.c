@@ -289,10 +289,16 @@ int stagecal_holdup_estimate(const stagecal_runlog *log, double u_xd,
          * in time from the last start-up row on; on the demo generator (a 20-min lag, noise
          * 0.02 of the stated, 10 data sets) that read 705 s at R = 2 and 1055 s at R = 2.5
          * against the start-ups' 1200 s, and the under-compensated windows read +0.16 and
-         * +0.05 stages high (tests/tool_demo_windows.c; docs/methods.md, "Column holdup") */
+         * +0.05 stages high (tests/tool_demo_windows.c; docs/methods.md, "Column holdup").
+         * A start-up with rows enough for the fit that shows no first-order response says the
+         * lag is too short to resolve: the transient is not asked then (on the same generator
+         * without a lag its fit gave a few runs 4-8 min, pooled over all runs, and the
+         * over-compensated windows read -0.6 stages at R = 1.5); it stands in only for a run
+         * with too few start-up rows */
+        int startup_seen = m >= par.min_rows && m >= 4; /* fit_lag's own minimum at order 0 */
         tau[k] = par.source == STAGECAL_HOLDUP_STARTUP     ? su
                  : par.source == STAGECAL_HOLDUP_TRANSIENT ? tr
-                 : su.ok                                   ? su
+                 : su.ok || startup_seen                   ? su
                                                            : tr;
         if (tau[k].ok) {
             double w = 1.0 / (tau[k].se_tau_s * tau[k].se_tau_s);

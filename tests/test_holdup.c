@@ -14,6 +14,8 @@
 
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
 
 #include "holdup_internal.h"
 #include "sim_dynamic.h"
@@ -90,6 +92,57 @@ static void holdup_estimate_takes_the_startup(void **state)
     assert_true(su.ok && t1.ok && pooled.ok);
     assert_rel(su.tau_s, tau, 1e-6, "start-up tau, closed form");
     assert_rel(t1.tau_s, su.tau_s, 0, "AUTO takes the start-up's tau");
+    stagecal_runlog_free(rl);
+}
+
+/* A column without a resolvable lag: 20 runs whose start-up sits at its steady 0.995 from the
+ * first row (6 rows) and whose production follows a falling target from the reflux step on,
+ * 0.95 − b·(exp(s/S) − 1), b = 0.002, S = 75 min, with no lag at all (the distillate steps
+ * down with R); every reading with white noise of the stated
+ * u(xD) = 0.002 (GSL mt19937, seed 7). The start-ups show no first-order response, so AUTO
+ * gives no run a time constant and the pool has none (no compensation), whatever the noisy
+ * production transients' fits say (some find one: printed; AUTO used to take them, and on the
+ * lag-free demo generator the pooled 4-8 min over-compensated R = 1.5 windows by −0.6 stages). */
+static void holdup_flat_startup_gives_no_tau(void **state)
+{
+    (void)state;
+    const double b = 0.002, big_s = 4500.0;
+    char *buf = NULL;
+    size_t blen = 0;
+    FILE *f = open_memstream(&buf, &blen);
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 7);
+    fprintf(f, "run,time[h],W[mol],xD[mol/mol],xB[mol/mol],R[-],V[mol/s]\n");
+    for (int k = 0; k < 20; k++) {
+        double t0 = 8.0 * k; /* h */
+        for (int i = 0; i < 6; i++)
+            fprintf(f, "A%d,%.6f,20000,%.9f,0.45,inf,1.0\n", k, t0 + 600.0 * i / 3600.0,
+                    0.995 + gsl_ran_gaussian(rng, 0.002));
+        for (int i = 0; i <= 30; i++) {
+            double s = 600.0 * i;
+            fprintf(f, "A%d,%.6f,%.3f,%.9f,%.6f,2,1.0\n", k, t0 + (s + 3600.0) / 3600.0,
+                    20000 - s / 3.0, 0.95 - b * expm1(s / big_s) + gsl_ran_gaussian(rng, 0.002),
+                    0.45 - 1e-5 * s);
+        }
+    }
+    fclose(f);
+    gsl_rng_free(rng);
+    stagecal_runlog *rl = stagecal_runlog_alloc();
+    assert_int_equal(stagecal_runlog_read_buffer(rl, buf, blen, "flat.csv", NULL, NULL, NULL, NULL),
+                     0);
+    free(buf);
+    assert_int_equal(rl->nruns, 20);
+    stagecal_holdup_tau t1[20], su[20], tr[20], pooled;
+    assert_int_equal(stagecal_holdup_estimate(rl, 0.002, NULL, t1, su, tr, &pooled, NULL), 0);
+    int ntr = 0;
+    for (int k = 0; k < 20; k++) {
+        assert_false(su[k].ok);
+        assert_false(t1[k].ok);
+        ntr += tr[k].ok;
+    }
+    print_message("flat start-ups: no time constant; %d of 20 production transients give one\n",
+                  ntr);
+    assert_false(pooled.ok);
     stagecal_runlog_free(rl);
 }
 
@@ -536,6 +589,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(holdup_startup_recovers_tau),
         cmocka_unit_test(holdup_estimate_takes_the_startup),
+        cmocka_unit_test(holdup_flat_startup_gives_no_tau),
         cmocka_unit_test(holdup_lag_compensation_inverts_a_ramp),
         cmocka_unit_test(holdup_zero_is_plain),
         cmocka_unit_test(holdup_correction_matches_dynamic_column),
