@@ -649,7 +649,7 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
     size_t maxrun = 1, n = log->n ? log->n : 1;
     for (size_t k = 0; k < log->nruns; k++)
         maxrun = log->runs[k].n > maxrun ? log->runs[k].n : maxrun;
-    /* 8 arrays of scratch, the run's light and lh: per run; the compensated distillate and
+    /* 10 arrays of scratch, the run's light and lh: per run; the compensated distillate and
      * its variance: per row of the log (the compensation pools across runs) */
     double *scr = malloc(12 * maxrun * sizeof *scr);
     double *light = scr ? scr + 10 * maxrun : NULL, *lh = scr ? scr + 11 * maxrun : NULL;
