@@ -57,22 +57,6 @@ static void wilson(int k, int n, double *lo, double *hi)
     *hi = c + h;
 }
 
-/* Removes what the generator wrote under dir. */
-static void remove_set(const char *dir)
-{
-    char p[1200];
-    static const char *months[] = {"2025-01", "2025-02", "2025-03"};
-    for (int i = 0; i < 3; i++) {
-        snprintf(p, sizeof p, "%s/logs/%s.csv", dir, months[i]);
-        unlink(p);
-    }
-    snprintf(p, sizeof p, "%s/truth.csv", dir);
-    unlink(p);
-    snprintf(p, sizeof p, "%s/logs", dir);
-    rmdir(p);
-    rmdir(dir);
-}
-
 int main(int argc, char **argv)
 {
     char *e1 = NULL, *e2 = NULL;
@@ -130,7 +114,7 @@ int main(int argc, char **argv)
         char prog[] = "tool_demodata", three[] = "3";
         char *gargv[] = {prog, argv[1], dir, seed, three, lossbuf, NULL};
         if (demodata_main(6, gargv) != 0) {
-            remove_set(dir);
+            demo_remove_set(dir, 3);
             return 1;
         }
         char p[3][1200];
@@ -146,7 +130,7 @@ int main(int argc, char **argv)
         stagecal_calibration cal;
         stagecal_error err;
         int rc = stagecal_calibrate(argv[1], logs, 3, &par, &cal, &err);
-        remove_set(dir);
+        demo_remove_set(dir, 3);
         if (rc != STAGECAL_OK) { /* a data set the quick start cannot calibrate: counted */
             bad++;
             stagecal_calibration_free(&cal);

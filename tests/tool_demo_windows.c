@@ -65,21 +65,6 @@ static size_t read_truth(const char *dir, struct trow *t, size_t cap)
     return n;
 }
 
-static void remove_set(const char *dir)
-{
-    char p[1200];
-    static const char *months[] = {"2025-01", "2025-02", "2025-03"};
-    for (int i = 0; i < 3; i++) {
-        snprintf(p, sizeof p, "%s/logs/%s.csv", dir, months[i]);
-        unlink(p);
-    }
-    snprintf(p, sizeof p, "%s/truth.csv", dir);
-    unlink(p);
-    snprintf(p, sizeof p, "%s/logs", dir);
-    rmdir(p);
-    rmdir(dir);
-}
-
 static void summary(const char *label, int (*keep)(const struct wrow *, double), double arg)
 {
     static double z[MAXW];
@@ -162,7 +147,7 @@ int main(int argc, char **argv)
         stagecal_calibration cal;
         stagecal_error err;
         int rc = stagecal_calibrate(argv[1], logs, 3, &par, &cal, &err);
-        remove_set(dir);
+        demo_remove_set(dir, 3);
         if (rc != STAGECAL_OK) {
             fprintf(stderr, "seed %s: %s\n", seed, err.text);
             stagecal_calibration_free(&cal);

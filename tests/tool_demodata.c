@@ -142,6 +142,23 @@ static void iso(double t, char *buf, size_t len)
 
 #ifndef DEMODATA_MAIN
 #define DEMODATA_MAIN main
+#else
+/* For a program that includes this file and runs DEMODATA_MAIN: removes what a run of
+ * `months` months wrote under dir (the month logs, truth.csv, the folders). */
+static void demo_remove_set(const char *dir, int months)
+{
+    char p[1200], stamp[40];
+    for (int mo = 0; mo < months; mo++) {
+        iso(START_EPOCH + mo * 30.4375 * 86400.0, stamp, sizeof stamp);
+        snprintf(p, sizeof p, "%s/logs/%.7s.csv", dir, stamp);
+        remove(p);
+    }
+    snprintf(p, sizeof p, "%s/truth.csv", dir);
+    remove(p);
+    snprintf(p, sizeof p, "%s/logs", dir);
+    remove(p);
+    remove(dir);
+}
 #endif
 int DEMODATA_MAIN(int argc, char **argv)
 {
