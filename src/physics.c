@@ -30,6 +30,7 @@
 #include "stagecal/physics.h"
 
 #include <math.h>
+#include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -78,10 +79,93 @@ stagecal_physics_params stagecal_physics_default_params(void)
     return p;
 }
 
-/* Models on the pressure grid P0·exp(k·r), built once each (2049 bubble solves, ~5 ms); 128
- * kept (up to ~10 MB, allocated as met): a log whose rows jump between pressures over a factor
- * 13 (r = 0.02) builds each grid model once. */
+/* Models on the pressure grid P0·exp(k·r), built once each (2049 bubble solves, ~2 ms); 128
+ * kept (up to ~20 MB, allocated as met): a log whose rows jump between pressures over a factor
+ * 13 (r = 0.02) builds each grid model once. With params.exact the grid models are the coarse
+ * exact ones (STAGECAL_PHYSICS_EXACT_GRID nodes, ~10 kB each): 1024 kept (a factor 8e8). */
 #define GRID_CACHE 128
+#define GRID_CACHE_EXACT 1024
+
+/* Where a cache keeps each key: open addressing with linear probing over at least twice as many
+ * slots as entries (deletion by backward shift, Knuth 1998, The Art of Computer Programming
+ * vol. 3, 2nd ed., §6.4 Algorithm R, from memory). A lookup is one or two probes; the linear scan
+ * it replaces read every entry (up to 1024) on every query, a fifth of the fuzzed reader's time. */
+struct index {
+    uint64_t *key;
+    uint32_t *ent; /* entry + 1; 0: empty slot */
+    size_t mask;
+};
+
+static int index_alloc(struct index *ix, size_t entries)
+{
+    size_t n = 16;
+    while (n < 2 * entries)
+        n *= 2;
+    ix->key = calloc(n, sizeof *ix->key);
+    ix->ent = calloc(n, sizeof *ix->ent);
+    ix->mask = n - 1;
+    return ix->key && ix->ent;
+}
+
+static void index_free(struct index *ix)
+{
+    free(ix->key);
+    free(ix->ent);
+}
+
+static size_t index_home(const struct index *ix, uint64_t k)
+{
+    k ^= k >> 33; /* the finaliser of MurmurHash3 (Appleby 2011, public domain, from memory) */
+    k *= 0xff51afd7ed558ccdULL;
+    k ^= k >> 33;
+    return (size_t)k & ix->mask;
+}
+
+/* Slot of key, or of the empty slot where it would go. */
+static size_t index_slot(const struct index *ix, uint64_t k)
+{
+    size_t h = index_home(ix, k);
+    while (ix->ent[h] && ix->key[h] != k)
+        h = (h + 1) & ix->mask;
+    return h;
+}
+
+/* The entry holding k, or -1. */
+static long index_find(const struct index *ix, uint64_t k)
+{
+    size_t h = index_slot(ix, k);
+    return ix->ent[h] ? (long)ix->ent[h] - 1 : -1;
+}
+
+static void index_put(struct index *ix, uint64_t k, size_t entry)
+{
+    size_t h = index_slot(ix, k);
+    ix->key[h] = k;
+    ix->ent[h] = (uint32_t)entry + 1;
+}
+
+static void index_remove(struct index *ix, uint64_t k)
+{
+    size_t h = index_slot(ix, k);
+    if (!ix->ent[h])
+        return;
+    for (size_t j = (h + 1) & ix->mask; ix->ent[j]; j = (j + 1) & ix->mask) {
+        /* slot j moves into the hole when its home is not cyclically inside (h, j] */
+        if (((j - index_home(ix, ix->key[j])) & ix->mask) >= ((j - h) & ix->mask)) {
+            ix->key[h] = ix->key[j];
+            ix->ent[h] = ix->ent[j];
+            h = j;
+        }
+    }
+    ix->ent[h] = 0;
+}
+
+static uint64_t pressure_key(double p)
+{
+    uint64_t k;
+    memcpy(&k, &p, sizeof k);
+    return k;
+}
 
 struct grid_entry {
     long k;
@@ -104,8 +188,9 @@ struct stagecal_physics {
     stagecal_vle *base_pseudo; /* the column's own model in pseudo-moles (owned) */
     size_t n;                  /* entries filled */
     unsigned long clock;
-    struct grid_entry grid[GRID_CACHE];
-    size_t ng; /* grid entries filled */
+    struct grid_entry *grid; /* ngmax entries */
+    size_t ng, ngmax;        /* grid entries filled, kept */
+    struct index ie, ig;     /* where e and grid keep each pressure, grid index */
 };
 
 stagecal_physics *stagecal_physics_alloc(const stagecal_column *col,
@@ -125,7 +210,14 @@ stagecal_physics *stagecal_physics_alloc(const stagecal_column *col,
     if (ph->par.cache_size < 2)
         ph->par.cache_size = 2; /* a row needs two models at once (top and pot) */
     ph->e = calloc(ph->par.cache_size, sizeof *ph->e);
-    if (!ph->e) {
+    ph->ngmax = ph->par.exact ? GRID_CACHE_EXACT : GRID_CACHE;
+    ph->grid = ph->e ? calloc(ph->ngmax, sizeof *ph->grid) : NULL;
+    int ix = index_alloc(&ph->ie, ph->par.cache_size) & index_alloc(&ph->ig, ph->ngmax);
+    if (!ph->grid || !ix) {
+        index_free(&ph->ie);
+        index_free(&ph->ig);
+        free(ph->grid);
+        free(ph->e);
         free(ph);
         error_set(err, STAGECAL_ENOMEM, "out of memory");
         return NULL;
@@ -153,6 +245,9 @@ void stagecal_physics_free(stagecal_physics *ph)
     for (size_t i = 0; i < ph->ng; i++)
         stagecal_vle_free(ph->grid[i].vle);
     stagecal_vle_free(ph->base_pseudo);
+    index_free(&ph->ie);
+    index_free(&ph->ig);
+    free(ph->grid);
     free(ph->e);
     free(ph);
 }
@@ -179,32 +274,36 @@ static stagecal_vle *model_at(const stagecal_physics *ph, const stagecal_vle *ba
     return stagecal_vle_alloc_definition(&def, err);
 }
 
-/* Grid model k (P0·exp(k·r); k = 0 is the column's own), built on first use. */
+/* Grid model k (P0·exp(k·r); k = 0 is the column's own, or with params.exact its coarse exact
+ * twin), built on first use. */
 static const stagecal_vle *grid_model(stagecal_physics *ph, long k, stagecal_error *err)
 {
     const stagecal_vle *base = ph->col->system.vle;
-    if (k == 0)
+    if (k == 0 && !ph->par.exact)
         return base;
+    long at = index_find(&ph->ig, (uint64_t)k);
+    if (at >= 0) {
+        ph->grid[at].used = ph->clock;
+        return ph->grid[at].vle;
+    }
     size_t victim = 0;
-    for (size_t i = 0; i < ph->ng; i++) {
-        if (ph->grid[i].k == k) {
-            ph->grid[i].used = ph->clock;
-            return ph->grid[i].vle;
-        }
+    for (size_t i = 1; i < ph->ng; i++)
         if (ph->grid[i].used < ph->grid[victim].used)
             victim = i;
-    }
-    if (ph->ng < GRID_CACHE)
+    if (ph->ng < ph->ngmax)
         victim = ph->ng;
     double p = stagecal_vle_pressure(base) * exp((double)k * ph->par.p_grid_rel);
-    stagecal_vle *v = stagecal_vle_at_pressure(base, p, err);
+    stagecal_vle *v = model_at(ph, base, p, err);
     if (!v)
         return NULL;
-    if (victim < ph->ng)
+    if (victim < ph->ng) {
+        index_remove(&ph->ig, (uint64_t)ph->grid[victim].k);
         stagecal_vle_free(ph->grid[victim].vle);
-    else
+    } else {
         ph->ng++;
+    }
     ph->grid[victim] = (struct grid_entry){k, v, ph->clock};
+    index_put(&ph->ig, (uint64_t)k, victim);
     return v;
 }
 
@@ -239,8 +338,8 @@ static const stagecal_vle *vle_at(stagecal_physics *ph, double p_pa, const stage
                                   stagecal_error *err)
 {
     const stagecal_vle *base = ph->col->system.vle;
-    int grid = ph->par.p_grid_rel > 0 && !ph->par.exact;
-    double res = grid ? 0.0 : ph->par.p_resolution_pa;
+    int grid = ph->par.p_grid_rel > 0;
+    double res = grid && !ph->par.exact ? 0.0 : ph->par.p_resolution_pa;
     double p = res > 0 ? res * nearbyint(p_pa / res) : p_pa;
     if (!(p > 0))
         p = res > 0 ? res : p_pa;
@@ -248,16 +347,16 @@ static const stagecal_vle *vle_at(stagecal_physics *ph, double p_pa, const stage
     if (p == stagecal_vle_pressure(base))
         return base;
     ph->clock++;
+    long at = index_find(&ph->ie, pressure_key(p));
+    if (at >= 0) {
+        ph->e[at].used = ph->clock;
+        *pseudo = ph->e[at].pseudo;
+        return ph->e[at].vle;
+    }
     size_t victim = 0;
-    for (size_t i = 0; i < ph->n; i++) {
-        if (ph->e[i].p_pa == p) {
-            ph->e[i].used = ph->clock;
-            *pseudo = ph->e[i].pseudo;
-            return ph->e[i].vle;
-        }
+    for (size_t i = 1; i < ph->n; i++)
         if (ph->e[i].used < ph->e[victim].used)
             victim = i;
-    }
     if (ph->n < ph->par.cache_size)
         victim = ph->n;
     stagecal_vle *v = grid ? blend_at(ph, p, err) : model_at(ph, base, p, err), *vp = NULL;
@@ -266,12 +365,14 @@ static const stagecal_vle *vle_at(stagecal_physics *ph, double p_pa, const stage
         return NULL;
     }
     if (victim < ph->n) {
+        index_remove(&ph->ie, pressure_key(ph->e[victim].p_pa));
         stagecal_vle_free(ph->e[victim].pseudo);
         stagecal_vle_free(ph->e[victim].vle);
     } else {
         ph->n++;
     }
     ph->e[victim] = (struct cache_entry){p, v, vp, ph->clock};
+    index_put(&ph->ie, pressure_key(p), victim);
     *pseudo = vp;
     return v;
 }

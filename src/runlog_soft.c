@@ -19,8 +19,10 @@
 #include "stagecal/softsensor.h"
 
 /* Models kept by the soft sensor's physics: a pressure transmitter's noise of ±50 Pa rounds
- * to ~200 distinct pressures (1 Pa resolution), each model ~10 kB with the coarse table. */
-#define SOFT_PHYSICS_CACHE 256
+ * to ~200 distinct pressures (1 Pa resolution), a vacuum batch drifting over a few kPa to
+ * thousands; each model ~10 kB with the coarse table, interpolated in ln P from the coarse exact
+ * models on the pressure grid (physics.c; ~20x cheaper than building it), found by a hash. */
+#define SOFT_PHYSICS_CACHE 1024
 
 stagecal_physics *stagecal_runlog_soft_physics_alloc(const stagecal_column *col,
                                                      stagecal_error *err)

@@ -80,6 +80,60 @@ static void model_eval(const stagecal_vle *v, cplx x, cplx t, cplx *f, cplx *y)
     *y = s1 / s;
 }
 
+/* ln γ1, ln γ2 at a real (x1, T) for the models whose ln γ uses only products and quotients
+ * (IDEAL, van Laar, Margules): lngamma_c's operations in its order, every imaginary part zero. */
+static void lngamma_r(const stagecal_vle *v, double x1, double *l1, double *l2)
+{
+    double x2 = 1.0 - x1;
+    const double *p = v->par;
+    if (v->kind == STAGECAL_VLE_MARGULES) {
+        *l1 = x2 * x2 * (p[0] + 2.0 * (p[1] - p[0]) * x1);
+        *l2 = x1 * x1 * (p[1] + 2.0 * (p[0] - p[1]) * x2);
+    } else if (v->kind == STAGECAL_VLE_VANLAAR && !(p[0] == 0.0 && p[1] == 0.0)) {
+        double d = p[0] * x1 + p[1] * x2, a = p[1] * x2 / d, b = p[0] * x1 / d;
+        *l1 = p[0] * a * a;
+        *l2 = p[1] * b * b;
+    } else {
+        *l1 = *l2 = 0.0;
+    }
+}
+
+/* model_eval at a real (x, T) in real arithmetic, bit for bit the real parts model_eval gives:
+ * with every imaginary part zero, a complex product or sum is the real one, the complex
+ * quotient of two reals is their real quotient (Smith's method, Smith 1962, "Algorithm 116:
+ * Complex division", Commun. ACM 5:435, with a zero ratio), cexp of a real a below ~709 is
+ * exp(a)·cos 0, and the real part of clog of a real s in [2, 1e300] is log(hypot(s, 0)) =
+ * log(s) (glibc's clog takes log1p for |s| in [0.5, 2)). Where a value leaves those ranges (or
+ * is not finite), and for Wilson and NRTL (whose ln γ takes complex logarithms), the complex
+ * evaluation answers. Checked on every query of the benzene–toluene and ethanol–water models at
+ * 9 pressures and 24000 bubble points at pressures from 0.3 Pa to 300 MPa: identical to the
+ * last bit (docs/performance.md, seventh pass). A dense model builds 2.2x faster (no complex
+ * exp, log or division in the ~13 evaluations of each node's bubble solve). */
+static void model_eval_real(const stagecal_vle *v, double x, double t, double *f, double *y)
+{
+    stagecal_vle_kind k = v->kind;
+    if (k == STAGECAL_VLE_IDEAL || k == STAGECAL_VLE_VANLAAR || k == STAGECAL_VLE_MARGULES) {
+        double l1, l2;
+        lngamma_r(v, x, &l1, &l2);
+        double e1 =
+            l1 + (5.0 * VLE_LN10 + VLE_LN10 * (v->ant[0].a - v->ant[0].b / (t + v->ant[0].c)));
+        double e2 =
+            l2 + (5.0 * VLE_LN10 + VLE_LN10 * (v->ant[1].a - v->ant[1].b / (t + v->ant[1].c)));
+        if (fabs(e1) < 700.0 && fabs(e2) < 700.0) {
+            double s1 = x * exp(e1), s = s1 + (1.0 - x) * exp(e2);
+            if (s >= 2.0 && s <= 1e300) {
+                *f = log(s) - v->ln_p;
+                *y = s1 / s;
+                return;
+            }
+        }
+    }
+    cplx fc, yc;
+    model_eval(v, x, t, &fc, &yc);
+    *f = creal(fc);
+    *y = creal(yc);
+}
+
 /* A model and one fixed variable: x for the bubble residual in T, y for the inverse. */
 typedef struct {
     const stagecal_vle *v;
@@ -89,9 +143,9 @@ typedef struct {
 static double bub_f(double t, void *ctx)
 {
     const fix_ctx *c = ctx;
-    cplx f, y;
-    model_eval(c->v, c->fixed, t, &f, &y);
-    return creal(f);
+    double f, y;
+    model_eval_real(c->v, c->fixed, t, &f, &y);
+    return f;
 }
 
 /* Bubble T at x by Brent from guess t0. s may be NULL (allocated here). */
@@ -141,12 +195,12 @@ int vle_bubble_solve(const stagecal_vle *v, double x, double t0, gsl_root_fsolve
         if (st != GSL_SUCCESS)
             return STAGECAL_ENOCONV;
     }
-    cplx f, yc;
-    model_eval(v, x, t, &f, &yc);
-    if (!isfinite(creal(yc)))
+    double f, yr;
+    model_eval_real(v, x, t, &f, &yr);
+    if (!isfinite(yr))
         return STAGECAL_ENOCONV;
     *t_k = t;
-    *y = creal(yc);
+    *y = yr;
     return STAGECAL_OK;
 }
 
@@ -333,8 +387,8 @@ stagecal_vle *vle_alloc_blend(const stagecal_vle *const *m, const double *w, siz
     const stagecal_vle *a = m[0];
     int ok = k > 0 && vle_is_activity(a->kind) && p_pa > 0.0 && isfinite(p_pa);
     for (size_t j = 0; ok && j < k; j++)
-        ok = m[j]->kind == a->kind && m[j]->n == a->n && !m[j]->vp.exact && m[j]->ts &&
-             isfinite(w[j]);
+        ok = m[j]->kind == a->kind && m[j]->n == a->n && m[j]->vp.exact == a->vp.exact &&
+             m[j]->ts && isfinite(w[j]);
     if (!ok) {
         error_set(err, STAGECAL_EINVAL, "blend: tables of one activity model expected");
         return NULL;

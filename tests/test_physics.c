@@ -17,6 +17,7 @@
 #include "stagecal/column.h"
 #include "stagecal/physics.h"
 #include "stagecal/runlog.h"
+#include "stagecal/softsensor.h"
 #include "stagecal/stages.h"
 #include "testutil.h"
 
@@ -256,6 +257,130 @@ static void physics_exact_models_match_raoult(void **state)
     "5.08354,\"b\":1663.125,\"c\":-45.622}},\"model\":{\"kind\":\"nrtl\",\"tau12_a\":-0.8009,"     \
     "\"tau12_b_k\":246.18,\"tau21_a\":3.4578,\"tau21_b_k\":-586.0809,\"alpha12\":0.3}}}"
 
+/* The soft sensor's models (params.exact) at a logged pressure: their coarse table (the guide of
+ * the exact solves: T guesses, x* brackets, the branch end and the azeotrope search) interpolated
+ * in ln P from coarse exact models on the pressure grid, as the dense tables are, instead of
+ * built at each pressure (129 bubble solves). Against the model built at P (p_grid_rel = 0),
+ * 60 pressures shuffled over 8–200 kPa (benzene–toluene) and 20–150 kPa (ethanol–water, an
+ * azeotrope at every one of them), through caches of 4 models:
+ * - the branch end x_max identical and the azeotropes to 1e-12 (both found by Brent on the
+ *   model solved at P, from the same sign change of the table's y* − x);
+ * - T_bubble and y* to 1e-9 K and 1e-12 (both solve the model at P to the bubble solve's
+ *   relative tolerance 1e-14; only the first guess differs), x*(y) to 1e-12 (Brent to 4 ulp);
+ * - the soft sensor's reading at the bubble point of x = 0.3, 0.6 (pot) and the dew point of
+ *   y = 0.95 (top): the composition to 1e-10, its uncertainty to 1e-5 relative (u(T)/|dT/dx|
+ *   with the slope by GSL's adaptive central difference, h = 1e-4, whose own error estimate is
+ *   ~1e-6 relative: a last-bit change of T moves it within that). */
+static void exact_grid_check(const char *json, double p_lo, double p_hi)
+{
+    stagecal_column col = load(json);
+    stagecal_physics_params pg = stagecal_physics_default_params(), pd;
+    pg.exact = 1;
+    pg.cache_size = 4;
+    pd = pg;
+    pd.p_grid_rel = 0;
+    stagecal_physics *grid = stagecal_physics_alloc(&col, &pg, NULL);
+    stagecal_physics *direct = stagecal_physics_alloc(&col, &pd, NULL);
+    assert_non_null(grid);
+    assert_non_null(direct);
+    for (int k = 0; k < 60; k++) {
+        double p = nearbyint(p_lo * pow(p_hi / p_lo, (double)((k * 23) % 60) / 59.0));
+        const stagecal_vle *v, *w;
+        assert_int_equal(stagecal_physics_vle_at(grid, p, 0, &v, NULL), 0);
+        assert_int_equal(stagecal_physics_vle_at(direct, p, 0, &w, NULL), 0);
+        assert_abs(stagecal_vle_pressure(v), p, 0.0, "model pressure");
+        assert_abs(stagecal_vle_x_max(v), stagecal_vle_x_max(w), 0.0, "branch end");
+        double az[4], azw[4];
+        size_t na = stagecal_vle_azeotropes(v, az, 4);
+        assert_int_equal(na, stagecal_vle_azeotropes(w, azw, 4));
+        for (size_t i = 0; i < na && i < 4; i++)
+            assert_abs(az[i], azw[i], 1e-12, "azeotrope");
+        for (int i = 0; i <= 40; i++) {
+            double x = stagecal_vle_x_max(v) * i / 40.0, t, tw, y, yw, xi, xw;
+            assert_int_equal(stagecal_vle_tbubble(v, x, &t), 0);
+            assert_int_equal(stagecal_vle_tbubble(w, x, &tw), 0);
+            assert_abs(t, tw, 1e-9, "bubble point");
+            assert_int_equal(stagecal_vle_ystar(v, x, &y), 0);
+            assert_int_equal(stagecal_vle_ystar(w, x, &yw), 0);
+            assert_abs(y, yw, 1e-12, "y*");
+            assert_int_equal(stagecal_vle_xstar(v, x, &xi), 0);
+            assert_int_equal(stagecal_vle_xstar(w, x, &xw), 0);
+            assert_abs(xi, xw, 1e-12, "x*");
+        }
+        const double at[3] = {0.3, 0.6, 0.95};
+        for (int j = 0; j < 3; j++) {
+            int top = j == 2, st, stw;
+            double t;
+            if (top)
+                assert_int_equal(stagecal_softsensor_dew_t(w, at[j], &t, NULL, NULL), 0);
+            else
+                assert_int_equal(stagecal_softsensor_bubble_t(w, at[j], &t, NULL, NULL), 0);
+            stagecal_reading r, rw;
+            assert_int_equal(stagecal_softsensor_infer(v, t, 0.1, top, NULL, &r, &st, NULL), 0);
+            assert_int_equal(stagecal_softsensor_infer(w, t, 0.1, top, NULL, &rw, &stw, NULL), 0);
+            assert_int_equal(st, stw);
+            assert_abs(r.value, rw.value, 1e-10, "inferred composition");
+            assert_rel(r.u, rw.u, 1e-5, "its uncertainty");
+        }
+    }
+    stagecal_physics_free(grid);
+    stagecal_physics_free(direct);
+    stagecal_column_free(&col);
+}
+
+static void physics_exact_grid_matches_models_at_pressure(void **state)
+{
+    (void)state;
+    exact_grid_check(BT_COLUMN("", ""), 8000, 200000);
+    exact_grid_check(EW_COLUMN, 20000, 150000);
+}
+
+/* The caches find a model by a hash of its pressure (grid models by their grid index) and evict
+ * the least recently used: 100 pressures over 1–1000 kPa (~350 grid cells, more than the 128
+ * dense grid models kept), visited twice in two shuffled orders through a cache of 8 models:
+ * the second visit (after evictions from both caches, every model rebuilt) gives y* and
+ * T_bubble bit for bit as the first (a model at a pressure does not depend on what came
+ * before), and every fifth model is the one built at its pressure to the grid's 1e-10 (above). */
+static void physics_caches_survive_evictions(void **state)
+{
+    (void)state;
+    stagecal_column col = load(BT_COLUMN("", ""));
+    stagecal_physics_params pp = stagecal_physics_default_params();
+    pp.cache_size = 8;
+    stagecal_physics *ph = stagecal_physics_alloc(&col, &pp, NULL);
+    assert_non_null(ph);
+    enum { NP = 100, NX = 5 };
+    static double first[NP][2 * NX];
+    for (int pass = 0; pass < 2; pass++)
+        for (int k = 0; k < NP; k++) {
+            int q = pass ? (k * 37) % NP : (k * 61) % NP;
+            double p = 1000.0 * pow(1000.0, q / (NP - 1.0));
+            const stagecal_vle *v;
+            assert_int_equal(stagecal_physics_vle_at(ph, p, 0, &v, NULL), 0);
+            assert_abs(stagecal_vle_pressure(v), p, 0.0, "model pressure");
+            stagecal_vle *d =
+                pass == 0 && q % 5 == 0 ? stagecal_vle_at_pressure(col.system.vle, p, NULL) : NULL;
+            for (int i = 0; i < NX; i++) {
+                double x = 0.1 + 0.2 * i, y, t, yd;
+                assert_int_equal(stagecal_vle_ystar(v, x, &y), 0);
+                assert_int_equal(stagecal_vle_tbubble(v, x, &t), 0);
+                if (pass == 0) {
+                    first[q][2 * i] = y, first[q][2 * i + 1] = t;
+                } else {
+                    assert_abs(y, first[q][2 * i], 0.0, "y* after evictions");
+                    assert_abs(t, first[q][2 * i + 1], 0.0, "T_bubble after evictions");
+                }
+                if (d) {
+                    assert_int_equal(stagecal_vle_ystar(d, x, &yd), 0);
+                    assert_abs(y, yd, 1e-10, "y* against the model built at P");
+                }
+            }
+            stagecal_vle_free(d);
+        }
+    stagecal_physics_free(ph);
+    stagecal_column_free(&col);
+}
+
 /* The pressure grid (params.p_grid_rel, default h = 0.02 in ln P): the model at a logged P
  * interpolates, with cubic Lagrange weights in ln P, the dense tables of the four grid models
  * around P. Against the dense model built at P itself (stagecal_vle_at_pressure), 60
@@ -488,6 +613,8 @@ int main(void)
         cmocka_unit_test(physics_unequal_latent_heats_exact),
         cmocka_unit_test(physics_exact_models_match_raoult),
         cmocka_unit_test(physics_grid_matches_models_at_pressure),
+        cmocka_unit_test(physics_exact_grid_matches_models_at_pressure),
+        cmocka_unit_test(physics_caches_survive_evictions),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }

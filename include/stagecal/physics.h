@@ -67,12 +67,15 @@ typedef struct {
                                answers y*, x* and the slope by solving the model (~µs a query
                                instead of ~50 ns): for callers with a few queries per pressure
                                (the soft sensor's, runlog_soft.c); 0 (default): the dense table */
-    double p_grid_rel;      /* > 0 (default STAGECAL_PHYSICS_GRID_REL), not exact: dense models
-                               are built only on the grid P0·exp(k·p_grid_rel) around the
-                               column's pressure P0; the model at a logged P has the table
-                               interpolated in ln P through its four grid neighbours (cubic)
-                               (~30 µs instead of ~5 ms; its T_bubble is solved at P itself).
-                               0: a dense model at every (rounded) pressure */
+    double p_grid_rel;      /* > 0 (default STAGECAL_PHYSICS_GRID_REL): models are built only
+                               on the grid P0·exp(k·p_grid_rel) around the column's pressure
+                               P0; the model at a logged P has the table interpolated in ln P
+                               through its four grid neighbours (cubic) (~30 µs instead of
+                               ~2 ms; its T_bubble is solved at P itself). With exact the grid
+                               models are coarse exact ones and the interpolated table only
+                               guides the solves at P (answers as the model built at P to the
+                               solver's tolerance; pressures still rounded to p_resolution_pa).
+                               0: a model built at every (rounded) pressure */
 } stagecal_physics_params;
 
 /* Table nodes of a model built with params.exact (enough for its azeotrope search and the
