@@ -534,8 +534,8 @@ static size_t thin_samples(const double *t, const double *xd, const double *xb, 
 static int window_summary(const stagecal_runlog *log, const double *xd_src,
                           const stagecal_runlog_result *res, const stagecal_uncertainty *u,
                           size_t k, size_t cap, double *t, double *xd, double *xb, double *f,
-                          double *s, const double *quad_rho, double *tb, signed char *dir,
-                          stagecal_evidence *e)
+                          double *s, const double *quad_rho, int tobit_q, double *tb,
+                          signed char *dir, stagecal_evidence *e)
 {
     const stagecal_runlog_window *w = &res->windows[k];
     size_t len = w->last - w->first + 1, nok = 0, nf = 0, ncd = 0, ncb = 0;
@@ -577,8 +577,8 @@ static int window_summary(const stagecal_runlog *log, const double *xd_src,
             dir[j] = (signed char)(!use || !c ? 0 : c == STAGECAL_CENSOR_ABOVE ? 1 : -1);
             nc += dir[j] != 0;
         }
-        if (nc > 0 && stagecal_evidence_tobit(t, yr, dir, len, quad_rho ? 3 : 2, tb + 2 * len,
-                                              trend, &ratio, NULL) == STAGECAL_OK) {
+        if (nc > 0 && stagecal_evidence_tobit(t, yr, dir, len, tobit_q, tb + 2 * len, trend, &ratio,
+                                              NULL) == STAGECAL_OK) {
             tobit = 1;
             for (size_t j = 0; j < len; j++)
                 tobit &= !isfinite(trend[j]) || (trend[j] > 0 && trend[j] < 1);
@@ -671,7 +671,9 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
     /* QUAD_POOLED: each window's own ρ first, then again at ρ pooled per analyser over the
      * windows (weighted by lag pairs, as stagecal_evidence_pool_rho), which also sets σ² =
      * RSS/A(ρ) at the pooled ρ */
-    int quad = par.noise == STAGECAL_EVIDENCE_NOISE_QUAD_POOLED;
+    int quad = par.noise == STAGECAL_EVIDENCE_NOISE_QUAD_POOLED ||
+               par.noise == STAGECAL_EVIDENCE_NOISE_QUAD_STATS;
+    int tobit_q = par.noise == STAGECAL_EVIDENCE_NOISE_QUAD_POOLED ? 3 : 2;
     double qrho[2] = {NAN, NAN};
     for (int pass = 0; pass < 1 + quad && rc == STAGECAL_OK; pass++) {
         set->n = 0;
@@ -680,7 +682,7 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
                 continue;
             int ok = window_summary(
                 log, xd_src, res, &col->u, k, cap, buf, buf + maxlen, buf + 2 * maxlen,
-                buf + 3 * maxlen, set->samples + 3 * cap * set->n, quad ? qrho : NULL,
+                buf + 3 * maxlen, set->samples + 3 * cap * set->n, quad ? qrho : NULL, tobit_q,
                 par.tobit_means ? buf + 4 * maxlen : NULL, dir, &set->ev[set->n]);
             if (ok < 0)
                 rc = error_set(err, STAGECAL_ENOMEM, "out of memory (window means)");

@@ -9,7 +9,13 @@
  * inside the fitted form and any shortfall is the estimator's).
  *
  *   usage: tool_demo_coverage COLUMN.json REPLICATIONS SEED0 [MODE] [LOSS]
- *   MODE: line | quad | smoother, or one of them with -tobit or -drop (e.g. line-drop)
+ *   MODE: line | quad | smoother | qstats, or one of them with -tobit or -drop (e.g. line-drop)
+ *   (qstats: STAGECAL_EVIDENCE_NOISE_QUAD_STATS, quad's window errors with the straight-line
+ *   Tobit trend, so the estimates are line's and only the errors differ)
+ *   Diagnostics (environment): DEMOCOV_TAU=MIN the generator's distillate lag, DEMOCOV_STEP=0|1
+ *   its reflux steps, DEMOCOV_CLIP=0|1 its clipping (0 writes readings above 1, which the
+ *   reader refuses), DEMOCOV_HOLDUP=-1|0|1 the calibration's holdup compensation (auto, none,
+ *   lag), DEMOCOV_VERBOSE=1 why a data set was not calibrated
  *   (COLUMN.json: datasets/columns/demo_benzene_toluene.json)
  *
  * line, quad, smoother: the window statistics (stagecal_evidence_params.noise: the default
@@ -74,18 +80,26 @@ int main(int argc, char **argv)
         tobit = 1, mode[ml - 6] = '\0';
     else if (ml > 5 && strcmp(mode + ml - 5, "-drop") == 0)
         tobit = 0, mode[ml - 5] = '\0';
-    int noise = strcmp(mode, "quad") == 0       ? STAGECAL_EVIDENCE_NOISE_QUAD_POOLED
+    int noise = strcmp(mode, "qstats") == 0     ? STAGECAL_EVIDENCE_NOISE_QUAD_STATS
+                : strcmp(mode, "quad") == 0     ? STAGECAL_EVIDENCE_NOISE_QUAD_POOLED
                 : strcmp(mode, "smoother") == 0 ? STAGECAL_EVIDENCE_NOISE_SMOOTHER
                 : strcmp(mode, "line") == 0     ? STAGECAL_EVIDENCE_NOISE_LINE_POOLED
                                                 : -1;
     if (argc < 4 || argc > 6 || *e1 || *e2 || reps < 10 || reps > 100000 || noise < 0 ||
         !(loss >= 0 && loss < 0.05)) {
         fprintf(stderr, "usage: tool_demo_coverage COLUMN.json REPLICATIONS(>=10) SEED0 "
-                        "[line | quad | smoother][-tobit | -drop] [LOSS]\n");
+                        "[line | quad | smoother | qstats][-tobit | -drop] [LOSS]\n");
         return 1;
     }
     gsl_set_error_handler_off();
     demo_quiet = 1;
+    /* diagnostics: the generator's knobs (tool_demodata.c) from the environment */
+    if (getenv("DEMOCOV_TAU"))
+        demo_tau_min = atof(getenv("DEMOCOV_TAU"));
+    if (getenv("DEMOCOV_CLIP"))
+        demo_clip = atoi(getenv("DEMOCOV_CLIP"));
+    if (getenv("DEMOCOV_STEP"))
+        demo_step = atoi(getenv("DEMOCOV_STEP"));
     struct cell cells[2][NCOND];
     double *agree = calloc((size_t)reps, sizeof *agree);
     int nagree = 0, bad = 0;
@@ -126,6 +140,8 @@ int main(int argc, char **argv)
         stagecal_calibrate_params par = stagecal_calibrate_default_params();
         par.form = "saturating-load";
         par.evidence.noise = noise;
+        if (getenv("DEMOCOV_HOLDUP")) /* diagnostics: -1 auto, 0 none, 1 lag */
+            par.evidence.holdup = atoi(getenv("DEMOCOV_HOLDUP"));
         par.evidence.tobit_means = tobit;
         stagecal_calibration cal;
         stagecal_error err;
@@ -133,6 +149,8 @@ int main(int argc, char **argv)
         demo_remove_set(dir, 3);
         if (rc != STAGECAL_OK) { /* a data set the quick start cannot calibrate: counted */
             bad++;
+            if (getenv("DEMOCOV_VERBOSE"))
+                fprintf(stderr, "seed %lu: %s\n", seed0 + (unsigned long)rep, err.text);
             stagecal_calibration_free(&cal);
             continue;
         }

@@ -13,7 +13,17 @@
  * holds over the true pot (the generator's steady_xd), and the true pot composition. Prints,
  * per reflux ratio and by minutes since the last reflux change, the mean error of the
  * window's stage count, its median z, and the mean errors of the window's xD (after the
- * holdup compensation) and xB.
+ * holdup compensation) and xB; the root mean square of the window means' actual errors over
+ * their stated u_xd, u_xb (xD z, xB z); and the composition fit's standardised window
+ * residual at the true count ("comp z": its pot prediction from every carried xD with the
+ * fit's convexity term, over the fit's scale u_xb, g·u_xd with the carried-samples factor,
+ * both copied from src/regress_composition.c) — the weights the model file's fit gives.
+ * Window statistics: the 11th argument, 0 line (default), 1 quad, 2 smoother, 3 qstats.
+ * Diagnostic switches (environment): DEMOW_TOBIT=0|1 only the windows without / with a Tobit
+ * trend; DEMOW_G2=1 the xD part of comp z's scale by the second-order delta method,
+ * Var f(x + e) = f'²σ² + ½f''²σ⁴ for Gaussian e (σ = sd_xd); DEMOW_GSAMPLE=1 by the
+ * forward map's slope at every carried sample (root mean square); DEMOW_LIST=1 one line per
+ * window.
  */
 #define DEMODATA_MAIN demodata_main
 int demodata_main(int argc, char **argv);
@@ -27,8 +37,107 @@ int demodata_main(int argc, char **argv);
 
 #define MAXW 200000
 struct wrow {
-    double r, since_min, err, z, exd, exb, ntrue;
+    double r, since_min, err, z, exd, exb, ntrue, cz, zd, zb;
+    int tobit;
 };
+
+static double logit_(double x)
+{
+    return log(x / (1 - x));
+}
+
+/* The pot composition a steady column of n stages at reflux r under distillate xd holds
+ * (the generator's forward map), NAN at a pinch. */
+static double fwd_xb(double xd, double r, double n)
+{
+    double xb = NAN;
+    size_t len;
+    int status;
+    if (stagecal_stages_step(g_col->system.vle, xd, r, n, 1.0, NULL, &xb, NULL, 0, &len, &status,
+                             NULL) != STAGECAL_OK ||
+        status != STAGECAL_STAGES_OK)
+        return NAN;
+    return xb;
+}
+
+/* The composition fit's carried-samples factor (src/regress_composition.c, copied). */
+static double carried(const stagecal_evidence *e, double rho, size_t m_all)
+{
+    size_t m = e->m;
+    if (m == 0 || !e->s_t || m >= m_all)
+        return 1.0;
+    double span = e->s_t[m - 1] - e->s_t[0], dt = span / (double)(m_all - 1);
+    if (!(rho > 0) || !(dt > 0))
+        return sqrt((double)m_all / (double)m);
+    double va = 1, n = (double)m_all, pk = 1;
+    for (size_t k = 1; k < m_all && pk > 1e-12; k++) {
+        pk *= rho;
+        va += 2 * (1 - (double)k / n) * pk;
+    }
+    va /= n;
+    double vc = 0;
+    for (size_t i = 0; i < m; i++)
+        for (size_t j = 0; j < m; j++)
+            vc += pow(rho, fabs(e->s_t[i] - e->s_t[j]) / dt);
+    vc /= (double)m * (double)m;
+    return vc > va ? sqrt(vc / va) : 1.0;
+}
+
+/* The composition fit's standardised window residual at the generator's true count (with
+ * its convexity term), its weight as the fit takes it: NAN when a sample pinches. */
+static double comp_z(const stagecal_evidence *e, double nt)
+{
+    double spd = 0, sm = 0, h = 1e-6;
+    for (size_t j = 0; j < e->m; j++) {
+        double x = e->s_xd[j], xb = fwd_xb(x, e->r, nt);
+        if (!isfinite(xb))
+            return NAN;
+        /* the fit's convexity correction (pot_corrected in src/regress_composition.c) */
+        double hc = fmin(e->sd_xd, 0.5 * (1 - x));
+        if (!e->xd_tobit && hc > 0 && x - hc > 0) {
+            double fp = fwd_xb(x + hc, e->r, nt), fm = fwd_xb(x - hc, e->r, nt);
+            if (isfinite(fp) && isfinite(fm))
+                xb -= 0.5 * (fp - 2 * xb + fm);
+        }
+        spd += xb / (double)e->m;
+        sm += e->s_xb[j] / (double)e->m;
+    }
+    double lp = fwd_xb(e->xd + h, e->r, nt), lm = fwd_xb(e->xd - h, e->r, nt);
+    if (!isfinite(lp) || !isfinite(lm) || e->m == 0)
+        return NAN;
+    double g = (logit_(lp) - logit_(lm)) / (2 * h);
+    if (getenv("DEMOW_G2") && !e->xd_tobit) {
+        /* diagnostics: second-order delta method, Var f(x + e) = f'² σ² + ½ f''² σ⁴ (Gaussian
+         * e), σ the reading noise (sd_xd), the step of the fit's convexity correction */
+        double x = e->xd, hs = fmin(e->sd_xd, 0.5 * (1 - x));
+        if (hs > 0 && x - hs > 0) {
+            double f0 = fwd_xb(x, e->r, nt), fp = fwd_xb(x + hs, e->r, nt),
+                   fm = fwd_xb(x - hs, e->r, nt);
+            if (isfinite(fp) && isfinite(fm)) {
+                double d1 = (fp - fm) / (2 * hs), d2 = (fp - 2 * f0 + fm) / (hs * hs);
+                double sg = e->sd_xd;
+                g = sqrt(d1 * d1 + 0.5 * d2 * d2 * sg * sg) / (f0 * (1 - f0));
+            }
+        }
+    }
+    if (getenv("DEMOW_GSAMPLE") && !e->xd_tobit) {
+        /* diagnostics: the xD part from the forward map's slope at every carried sample, the
+         * mean pot composition's (d mean x̂B / d x_j = f'(x_j)/m) taken to log-odds */
+        double g2 = 0, pm = spd;
+        for (size_t j = 0; j < e->m; j++) {
+            double x = e->s_xd[j], hh = 1e-6 * (1 - x) + 1e-9;
+            double a = fwd_xb(fmin(x + hh, 1 - 1e-12), e->r, nt), b = fwd_xb(x - hh, e->r, nt);
+            if (!isfinite(a) || !isfinite(b))
+                return NAN;
+            double d = (a - b) / (fmin(x + hh, 1 - 1e-12) - (x - hh));
+            g2 += d * d / (double)e->m;
+        }
+        g = sqrt(g2) / (pm * (1 - pm));
+    }
+    double lx = e->u_xb * carried(e, e->rho_xb, e->m_xb) / (e->xb * (1 - e->xb));
+    double ld = g * e->u_xd * carried(e, e->rho_xd, e->m_xd);
+    return (logit_(spd) - logit_(sm)) / sqrt(lx * lx + ld * ld);
+}
 static struct wrow rows[MAXW];
 static size_t nrows;
 
@@ -68,11 +177,14 @@ static size_t read_truth(const char *dir, struct trow *t, size_t cap)
 static void summary(const char *label, int (*keep)(const struct wrow *, double), double arg)
 {
     static double z[MAXW];
-    double sx = 0, sb = 0, se = 0;
-    size_t m = 0;
+    double sx = 0, sb = 0, se = 0, cz2 = 0, cz1 = 0, zd2 = 0, zb2 = 0;
+    size_t m = 0, mc = 0;
     for (size_t i = 0; i < nrows; i++)
         if (keep(&rows[i], arg)) {
             z[m] = rows[i].z;
+            zd2 += rows[i].zd * rows[i].zd, zb2 += rows[i].zb * rows[i].zb;
+            if (isfinite(rows[i].cz))
+                cz1 += rows[i].cz, cz2 += rows[i].cz * rows[i].cz, mc++;
             se += rows[i].err, sx += rows[i].exd, sb += rows[i].exb;
             m++;
         }
@@ -83,9 +195,11 @@ static void summary(const char *label, int (*keep)(const struct wrow *, double),
     double iqr = gsl_stats_quantile_from_sorted_data(z, 1, m, 0.75) -
                  gsl_stats_quantile_from_sorted_data(z, 1, m, 0.25);
     printf("  %-14s %6zu  mean err %+7.4f  med z %+6.2f  sd z %5.2f  iqr/1.349 %5.2f  xD err "
-           "%+9.2e  xB err %+9.2e\n",
+           "%+9.2e  xB err %+9.2e  comp z mean %+5.2f rms %5.2f (%zu)  xD z rms %5.2f  xB z rms "
+           "%5.2f\n",
            label, m, se / m, gsl_stats_median_from_sorted_data(z, 1, m), sdz, iqr / 1.349, sx / m,
-           sb / m);
+           sb / m, mc ? cz1 / mc : NAN, mc ? sqrt(cz2 / mc) : NAN, mc, sqrt(zd2 / m),
+           sqrt(zb2 / m));
 }
 
 static int by_r(const struct wrow *w, double r)
@@ -101,7 +215,7 @@ int main(int argc, char **argv)
 {
     if (argc < 4) {
         fprintf(stderr, "usage: tool_demo_windows COLUMN.json REPS SEED0 [NOISE TAU CLIP STEP "
-                        "TOBIT HOLDUP NOISE(0 line, 1 quad, 2 smoother)]\n");
+                        "TOBIT HOLDUP NOISE(0 line, 1 quad, 2 smoother, 3 qstats)]\n");
         return 1;
     }
     long reps = strtol(argv[2], NULL, 10);
@@ -141,7 +255,8 @@ int main(int argc, char **argv)
         par.form = "saturating-load";
         par.evidence.tobit_means = tobit;
         par.evidence.holdup = holdup;
-        par.evidence.noise = nmode == 1   ? STAGECAL_EVIDENCE_NOISE_QUAD_POOLED
+        par.evidence.noise = nmode == 3   ? STAGECAL_EVIDENCE_NOISE_QUAD_STATS
+                             : nmode == 1 ? STAGECAL_EVIDENCE_NOISE_QUAD_POOLED
                              : nmode == 2 ? STAGECAL_EVIDENCE_NOISE_SMOOTHER
                                           : STAGECAL_EVIDENCE_NOISE_LINE_POOLED;
         stagecal_calibration cal;
@@ -186,6 +301,12 @@ int main(int argc, char **argv)
             w->z = w->err / e->se_stages;
             w->exd = e->xd - sxd / m;
             w->exb = e->xb - sxb / m;
+            w->cz = comp_z(e, w->ntrue);
+            w->zd = w->exd / e->u_xd; /* the window means' actual errors over their stated */
+            w->zb = w->exb / e->u_xb;
+            w->tobit = e->xd_tobit;
+            if (getenv("DEMOW_TOBIT") && atoi(getenv("DEMOW_TOBIT")) != w->tobit)
+                nrows--; /* diagnostics: only the windows with (1) or without (0) a Tobit trend */
             if (getenv("DEMOW_LIST"))
                 printf("W %s run %zu R %g since %.0f rows %zu-%zu n %.3f est %.3f se %.3f xd "
                        "%.6f true %.6f xb %.5f true %.5f tobit %d tau %.0f (%d) pooled %.0f\n",

@@ -198,10 +198,13 @@ typedef enum {
     STAGECAL_EVIDENCE_NOISE_LINE_OWN,        /* straight-line detrend, each window's own ρ */
     STAGECAL_EVIDENCE_NOISE_SMOOTHER,        /* stagecal_evidence_window_stats (see there why
                                                 it is not the default yet) */
-    STAGECAL_EVIDENCE_NOISE_QUAD_POOLED      /* quadratic detrend, ρ from the AR(1) moments of its
+    STAGECAL_EVIDENCE_NOISE_QUAD_POOLED,     /* quadratic detrend, ρ from the AR(1) moments of its
                                                 residuals, pooled over the windows per analyser
                                                 (stagecal_evidence_mean_quad; docs/calibration.md
                                                 §5 says why it is not the default) */
+    STAGECAL_EVIDENCE_NOISE_QUAD_STATS       /* QUAD_POOLED's statistics, but the Tobit trend of a
+                                                window with censored xD stays the straight line
+                                                (tobit_means), so only the errors change */
 } stagecal_evidence_noise;
 
 typedef struct {
