@@ -22,8 +22,9 @@
  * Diagnostic switches (environment): DEMOW_TOBIT=0|1 only the windows without / with a Tobit
  * trend; DEMOW_G2=1 the xD part of comp z's scale by the second-order delta method,
  * Var f(x + e) = f'²σ² + ½f''²σ⁴ for Gaussian e (σ = sd_xd); DEMOW_GSAMPLE=1 by the
- * forward map's slope at every carried sample (root mean square); DEMOW_LIST=1 one line per
- * window.
+ * forward map's slope at every carried sample (root mean square); DEMOW_EMP=RHO|own the
+ * scale from the residual's own series (pot predicted from each carried xD less its xB) by
+ * stagecal_evidence_mean_quad at that ρ; DEMOW_LIST=1 one line per window.
  */
 #define DEMODATA_MAIN demodata_main
 int demodata_main(int argc, char **argv);
@@ -87,7 +88,7 @@ static double carried(const stagecal_evidence *e, double rho, size_t m_all)
  * its convexity term), its weight as the fit takes it: NAN when a sample pinches. */
 static double comp_z(const stagecal_evidence *e, double nt)
 {
-    double spd = 0, sm = 0, h = 1e-6;
+    double spd = 0, sm = 0, h = 1e-6, dser[64];
     for (size_t j = 0; j < e->m; j++) {
         double x = e->s_xd[j], xb = fwd_xb(x, e->r, nt);
         if (!isfinite(xb))
@@ -101,6 +102,20 @@ static double comp_z(const stagecal_evidence *e, double nt)
         }
         spd += xb / (double)e->m;
         sm += e->s_xb[j] / (double)e->m;
+        if (j < 64)
+            dser[j] = xb - e->s_xb[j];
+    }
+    if (getenv("DEMOW_EMP") && !e->xd_tobit && e->m >= 3 && e->m <= 64) {
+        /* diagnostics: the error of the residual's own series, d_j = corrected x̂B(x_j) − xB_j
+         * at the carried samples, by the quadratic detrend with AR(1) moments (ρ: DEMOW_EMP's
+         * value, or the window's own when it is "own") */
+        double mean, se, rho;
+        const char *v = getenv("DEMOW_EMP");
+        double rin = strcmp(v, "own") == 0 ? NAN : atof(v);
+        if (stagecal_evidence_mean_quad(e->s_t, dser, e->m, 0, rin, &mean, &se, &rho, NULL, NULL) !=
+            STAGECAL_OK)
+            return NAN;
+        return (logit_(spd) - logit_(sm)) / (se / (spd * (1 - spd)));
     }
     double lp = fwd_xb(e->xd + h, e->r, nt), lm = fwd_xb(e->xd - h, e->r, nt);
     if (!isfinite(lp) || !isfinite(lm) || e->m == 0)
