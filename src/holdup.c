@@ -25,7 +25,7 @@
 
 stagecal_holdup_params stagecal_holdup_default_params(void)
 {
-    stagecal_holdup_params p = {5, 5.0, 2, 60, 4 * 3600.0, STAGECAL_HOLDUP_AUTO, 2.0, 1800.0};
+    stagecal_holdup_params p = {5, 5.0, 2, 60, 4 * 3600.0, STAGECAL_HOLDUP_AUTO, 2.0, 1800.0, 0.1};
     return p;
 }
 
@@ -324,8 +324,8 @@ int stagecal_holdup_estimate(const stagecal_runlog *log, double u_xd,
  * values; NAN when fewer than 3 such points or the fit is singular. *se: its standard error
  * from σ²·[(AᵀA)⁻¹]₁₁, σ the residual standard deviation (n − 3 degrees of freedom) with the
  * analyser's u as a floor (u alone when n = 3). */
-static double local_slope(const double *t, const double *x, size_t a, size_t b, size_t c, double u,
-                          double *se)
+double holdup_local_slope(const double *t, const double *x, size_t a, size_t b, size_t c, double u,
+                          double *se, double *value)
 {
     double s[5] = {0}, r[3] = {0}, scale = 0;
     size_t m = 0;
@@ -356,6 +356,8 @@ static double local_slope(const double *t, const double *x, size_t a, size_t b, 
         gsl_linalg_LU_solve(&mv.matrix, perm, &rv.vector, &cv.vector) == GSL_SUCCESS &&
         gsl_linalg_LU_invert(&mv.matrix, perm, &iv.matrix) == GSL_SUCCESS) {
         slope = cbuf[1] / scale;
+        if (value)
+            *value = cbuf[0];
         double rss = 0;
         for (size_t j = a; j <= b; j++) {
             if (!isfinite(x[j]) || !isfinite(t[j]))
@@ -377,12 +379,19 @@ static double local_slope(const double *t, const double *x, size_t a, size_t b, 
 static double row_slope(const stagecal_runlog *log, size_t s, size_t e, size_t i, double half_s,
                         size_t min_side, double u, double *se)
 {
-    size_t a = i, b = i;
-    while (a > s && (i - a < min_side || log->t_s[i] - log->t_s[a - 1] <= half_s))
-        a--;
-    while (b + 1 < e && (b - i < min_side || log->t_s[b + 1] - log->t_s[i] <= half_s))
-        b++;
-    return local_slope(log->t_s, log->xd, a, b, i, u, se);
+    size_t a, b;
+    holdup_row_range(log, s, e, i, half_s, min_side, &a, &b);
+    return holdup_local_slope(log->t_s, log->xd, a, b, i, u, se, NULL);
+}
+
+void holdup_row_range(const stagecal_runlog *log, size_t s, size_t e, size_t i, double half_s,
+                      size_t min_side, size_t *a, size_t *b)
+{
+    *a = i, *b = i;
+    while (*a > s && (i - *a < min_side || log->t_s[i] - log->t_s[*a - 1] <= half_s))
+        (*a)--;
+    while (*b + 1 < e && (*b - i < min_side || log->t_s[*b + 1] - log->t_s[i] <= half_s))
+        (*b)++;
 }
 
 /* Rows [s, e) of a total-reflux start-up that its fit su says are still rising: NAN. */
@@ -467,6 +476,15 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
                         u2_extra[i] = sh * sh * (ur * ur + rs * rs);
                 }
             }
+            /* rows where the column is not pseudo-steady (src/holdup_refine.c) */
+            if (hm->kind == STAGECAL_HOLDUP_COMP_STAGES && isfinite(log->r[s])) {
+                int own = hm->run_holdup_mol && isfinite(hm->run_holdup_mol[k]);
+                int rc = holdup_refine_stretch(log, s, e, hm->vle,
+                                               own ? hm->run_holdup_mol[k] : hm->holdup_mol,
+                                               hm->drum_mol, &par, hm->u_xd, xd_ss, u2_extra);
+                if (rc != STAGECAL_OK)
+                    return error_set(err, rc, "out of memory");
+            }
             s = e;
         }
     }
@@ -486,6 +504,15 @@ static double odds(double x)
 static int count_corrected(const stagecal_vle *vle, double xd, double xb, double m, double g0,
                            double gs, const double *s, size_t ns, double *count, double *sum_x)
 {
+    return holdup_count_corrected(vle, xd, xb, m, g0, gs, s, ns, count, sum_x, NULL, 0, NULL);
+}
+
+int holdup_count_corrected(const stagecal_vle *vle, double xd, double xb, double m, double g0,
+                           double gs, const double *s, size_t ns, double *count, double *sum_x,
+                           double *xs, size_t xs_cap, size_t *n_xs)
+{
+    if (n_xs)
+        *n_xs = 0;
     double ypot, x_prev = xd, y = xd + g0, cum = 0, sx = 0;
     if (stagecal_vle_ystar(vle, xb, &ypot) != STAGECAL_OK)
         return STAGECAL_ENOCONV;
@@ -493,6 +520,8 @@ static int count_corrected(const stagecal_vle *vle, double xd, double xb, double
         double x;
         if (!(y > 0 && y < 1) || stagecal_vle_xstar(vle, y, &x) != STAGECAL_OK)
             return STAGECAL_ENOCONV;
+        if (xs && n - 1 < xs_cap)
+            xs[n - 1] = x, *n_xs = n;
         cum += ns ? s[n - 1 < ns ? n - 1 : ns - 1] : 0;
         double g = g0 + gs * cum;
         /* the pot's vapour meets the liquid of this stage on the line */
@@ -515,7 +544,7 @@ static int count_corrected(const stagecal_vle *vle, double xd, double xb, double
 }
 
 /* Liquids x_1 … x_n of n whole steps from xd on the plain line; −1 when a step fails. */
-static int plain_profile(const stagecal_vle *vle, double xd, double m, size_t n, double *x)
+int holdup_plain_profile(const stagecal_vle *vle, double xd, double m, size_t n, double *x)
 {
     double y = xd;
     for (size_t j = 0; j < n; j++) {
@@ -536,7 +565,8 @@ static int corrected_at(const stagecal_vle *vle, double xd, double xb, double m,
     double ng = n_guess > 0 ? ceil(n_guess) : 0;
     size_t nc = ng < 199 ? (size_t)ng + 1 : 200;
     double xp[200], xm[200], s[200], hd = 1e-6 * fmin(1 - xd, xd - xb);
-    if (plain_profile(vle, xd + hd, m, nc, xp) || plain_profile(vle, xd - hd, m, nc, xm))
+    if (holdup_plain_profile(vle, xd + hd, m, nc, xp) ||
+        holdup_plain_profile(vle, xd - hd, m, nc, xm))
         return STAGECAL_ENOCONV;
     for (size_t j = 0; j < nc; j++)
         s[j] = (xp[j] - xm[j]) / (2 * hd);
@@ -645,6 +675,13 @@ int stagecal_holdup_steady_xd(const stagecal_vle *vle, double xd, double xb, dou
     *xd_ss = xd;
     if (c0 >= 1 && n == c0)
         return STAGECAL_OK;
+    return holdup_steady_xd_of_count(vle, xd, xb, reflux, n, xd_ss, err);
+}
+
+int holdup_steady_xd_of_count(const stagecal_vle *vle, double xd, double xb, double reflux,
+                              double n, double *xd_ss, stagecal_error *err)
+{
+    int rc;
     /* the plain count rises with xD: bracket the xD whose plain count is n */
     struct xd_root r = {vle, xb, reflux, n};
     /* at xD = y*(xB) the pot alone does the separation: one stage */

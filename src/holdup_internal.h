@@ -47,4 +47,42 @@ int holdup_column_light(const stagecal_vle *vle, double xd, double xb, double re
 double holdup_row_slope(const stagecal_runlog *log, size_t s, size_t e, size_t i,
                         const stagecal_holdup_params *params, double u_xd, double *se);
 
+/* The pieces of the compensation (src/holdup.c) that its second-order refinement
+ * (src/holdup_refine.c) shares. */
+
+/* Stages stepped from xd down to the pot at xb on the line y(j+1) = m·x(j) + (1 − m)·xd + g_j,
+ * g_j = g0 + gs·Σ_(k≤j) s_k (beyond the ns given, the last one): whole steps and a log-odds
+ * fraction of the crossing step, the pot included. sum_x (may be NULL): the column liquids
+ * summed (the crossing step's by its fraction). xs (may be NULL): the liquid of every step made,
+ * the crossing one included (at most xs_cap; *n_xs how many). ENOCONV on a pinch. */
+int holdup_count_corrected(const stagecal_vle *vle, double xd, double xb, double m, double g0,
+                           double gs, const double *s, size_t ns, double *count, double *sum_x,
+                           double *xs, size_t xs_cap, size_t *n_xs);
+/* Liquids x_1 … x_n of n whole steps from xd on the plain line y = m·x + (1 − m)·xd; −1 when a
+ * step fails. */
+int holdup_plain_profile(const stagecal_vle *vle, double xd, double m, size_t n, double *x);
+/* Slope at t[c] of the least-squares quadratic through the finite (t[j], x[j]), j in [a, b];
+ * NAN with fewer than 3. *se its standard error (u a floor under the residual scatter); *value
+ * (may be NULL; set when the slope is) the quadratic's value at t[c]. */
+double holdup_local_slope(const double *t, const double *x, size_t a, size_t b, size_t c, double u,
+                          double *se, double *value);
+/* The rows [a, b] of the stretch [s, e) the local quadratic at row i takes: those within half_s
+ * of it, at least min_side each side where the stretch has them. */
+void holdup_row_range(const stagecal_runlog *log, size_t s, size_t e, size_t i, double half_s,
+                      size_t min_side, size_t *a, size_t *b);
+/* The xD whose plain count (counted as holdup_count_corrected counts) is n, bracketed between
+ * y*(xb) and the model's largest x, by GSL's Brent solver. */
+int holdup_steady_xd_of_count(const stagecal_vle *vle, double xd, double xb, double reflux,
+                              double n, double *xd_ss, stagecal_error *err);
+
+/* The pseudo-steady test of the STAGES compensation over the stretch [s, e) of one reflux set
+ * point (src/holdup_refine.c; docs/methods.md, "Column holdup"): a compensated row (xd_ss
+ * finite) whose steady xD the second-order term (the profile's own derivatives, on the smoothed
+ * compositions) moves by more than par->quasi_tol_u·u_xd, or where it cannot be found, is left
+ * out (xd_ss NAN, u2 0; u2 may be NULL). Nothing is tested when quasi_tol_u or u_xd is not
+ * positive. ENOMEM only. */
+int holdup_refine_stretch(const stagecal_runlog *log, size_t s, size_t e, const stagecal_vle *vle,
+                          double holdup_mol, double drum_mol, const stagecal_holdup_params *par,
+                          double u_xd, double *xd_ss, double *u2);
+
 #endif

@@ -68,12 +68,16 @@ static int simulate(gsl_rng *rng, const char *path, double *holdup)
     /* exploring: HOLDUP_STUDY_SCALE scales the holdup, HOLDUP_STUDY_NOISE the analyser noise */
     const char *hs = getenv("HOLDUP_STUDY_SCALE"), *ns = getenv("HOLDUP_STUDY_NOISE");
     double noise = ns ? atof(ns) : 1.0;
+    /* exploring: HOLDUP_STUDY_EXACT_CHARGE gives every run the mean charge, so each run's column
+     * holdup is the stated one */
+    double exact = getenv("HOLDUP_STUDY_EXACT_CHARGE") ? 0.0 : 1.0;
     if (hs)
         *holdup *= atof(hs);
     for (int k = 0; k < NRUNS; k++) {
         sim_dyn_params p = {2.4,
                             n,
-                            25000 * (0.9 + 0.2 * gsl_rng_uniform(rng)),
+                            25000 * (0.9 + 0.2 * gsl_rng_uniform(rng)) * exact +
+                                25000 * (1 - exact),
                             0.45 + 0.1 * gsl_rng_uniform(rng),
                             *holdup,
                             0,

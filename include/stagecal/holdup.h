@@ -50,6 +50,11 @@ typedef struct {
                              the start of their stretch are still settling: xd_ss NAN (2) */
     double slope_half_s;  /* the local quadratic for dxD/dt takes the rows within this time
                              each side [s] (1800; at least half_window rows each side) */
+    double quasi_tol_u;   /* STAGES: a compensated row is pseudo-steady when the second-order
+                             term of the compensation (the profile's own time derivatives) moves
+                             its steady xD by at most quasi_tol_u·u(xD); other rows are left out
+                             like settling rows (0.1; ≤ 0: no test) (docs/methods.md, "Column
+                             holdup") */
 } stagecal_holdup_params;
 
 stagecal_holdup_params stagecal_holdup_default_params(void);
@@ -187,7 +192,10 @@ typedef struct {
  * modes. Otherwise only rows at a finite logged R are changed: dxD/dt comes from a local quadratic
  * over the rows within slope_half_s each side (at least half_window) within the same stretch of one
  * logged R; STAGES also needs the row's V. Rows where something is missing or a solve fails keep
- * the logged xD. ENOMEM, EINVAL. */
+ * the logged xD. STAGES with quasi_tol_u > 0 and u_xd > 0 also leaves out (NAN) the rows of a
+ * stretch before the first and after the last row where the column is pseudo-steady (the
+ * second-order term of the compensation within quasi_tol_u·u_xd; src/holdup_refine.c): the free
+ * response after a reflux change, the tail near a pinch. ENOMEM, EINVAL. */
 int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup_model *hm,
                                const stagecal_holdup_params *params, double *xd_ss,
                                double *u2_extra, stagecal_error *err);
