@@ -31,4 +31,9 @@ int evidence_build_cens(const stagecal_runlog *log, const double *xd_src,
 void evidence_stage_scatter(const stagecal_evidence *ev, size_t n, const stagecal_form *form,
                             const double *theta, double *sigma, double *dof);
 
+/* The composition fit's carried-samples factor of a window (src/regress_composition.c): how much
+ * noisier the mean of its carried samples is than the mean of all m_all readings, under the lag-1
+ * autocorrelation rho per reading interval. Shared with tests/tool_demo_windows.c. */
+double regress_carried_factor(const stagecal_evidence *e, double rho, size_t m_all);
+
 #endif

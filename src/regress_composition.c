@@ -167,7 +167,7 @@ static int comp_f(const double *theta, void *params, double *f)
  * when every reading is carried. With the weight of all readings, a window carrying 24 of
  * 35–41 readings had an error 1.2–1.3 times the stated one (the total-reflux windows of the
  * measured-R study, docs/calibration.md §5b). */
-static double carried_factor(const stagecal_evidence *e, double rho, size_t m_all)
+double regress_carried_factor(const stagecal_evidence *e, double rho, size_t m_all)
 {
     size_t m = e->m;
     if (m == 0 || !e->s_t || m >= m_all)
@@ -194,13 +194,13 @@ static void comp_scales(struct comp_ctx *c, const double *theta0)
 {
     for (size_t i = 0; i < c->n; i++) {
         const stagecal_evidence *e = &c->ev[i];
-        double lx = e->u_xb * carried_factor(e, e->rho_xb, e->m_xb) / (e->xb * (1 - e->xb));
+        double lx = e->u_xb * regress_carried_factor(e, e->rho_xb, e->m_xb) / (e->xb * (1 - e->xb));
         double h = 1e-6 * (1 - e->xd) + 1e-9;
         double xhi = e->xd + h < 1 ? e->xd + h : e->xd;
         double xlo = e->xd - h;
         double g =
             (predict_logit(c, i, theta0, xhi) - predict_logit(c, i, theta0, xlo)) / (xhi - xlo);
-        double ld = g * e->u_xd * carried_factor(e, e->rho_xd, e->m_xd);
+        double ld = g * e->u_xd * regress_carried_factor(e, e->rho_xd, e->m_xd);
         /* a measured reflux's uncertainty (errors in R as well as in the compositions) */
         double lr = e->u_r > 0 && isfinite(e->r) ? dlogit_dr(c, i, theta0) * e->u_r : 0.0;
         c->scale[i] = sqrt(lx * lx + ld * ld + lr * lr);

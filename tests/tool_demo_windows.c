@@ -34,6 +34,7 @@ int demodata_main(int argc, char **argv);
 #include <gsl/gsl_statistics_double.h>
 #include <unistd.h>
 
+#include "evidence_internal.h"
 #include "stagecal/calibrate.h"
 
 #define MAXW 200000
@@ -59,29 +60,6 @@ static double fwd_xb(double xd, double r, double n)
         status != STAGECAL_STAGES_OK)
         return NAN;
     return xb;
-}
-
-/* The composition fit's carried-samples factor (src/regress_composition.c, copied). */
-static double carried(const stagecal_evidence *e, double rho, size_t m_all)
-{
-    size_t m = e->m;
-    if (m == 0 || !e->s_t || m >= m_all)
-        return 1.0;
-    double span = e->s_t[m - 1] - e->s_t[0], dt = span / (double)(m_all - 1);
-    if (!(rho > 0) || !(dt > 0))
-        return sqrt((double)m_all / (double)m);
-    double va = 1, n = (double)m_all, pk = 1;
-    for (size_t k = 1; k < m_all && pk > 1e-12; k++) {
-        pk *= rho;
-        va += 2 * (1 - (double)k / n) * pk;
-    }
-    va /= n;
-    double vc = 0;
-    for (size_t i = 0; i < m; i++)
-        for (size_t j = 0; j < m; j++)
-            vc += pow(rho, fabs(e->s_t[i] - e->s_t[j]) / dt);
-    vc /= (double)m * (double)m;
-    return vc > va ? sqrt(vc / va) : 1.0;
 }
 
 /* The composition fit's standardised window residual at the generator's true count (with
@@ -149,8 +127,8 @@ static double comp_z(const stagecal_evidence *e, double nt)
         }
         g = sqrt(g2) / (pm * (1 - pm));
     }
-    double lx = e->u_xb * carried(e, e->rho_xb, e->m_xb) / (e->xb * (1 - e->xb));
-    double ld = g * e->u_xd * carried(e, e->rho_xd, e->m_xd);
+    double lx = e->u_xb * regress_carried_factor(e, e->rho_xb, e->m_xb) / (e->xb * (1 - e->xb));
+    double ld = g * e->u_xd * regress_carried_factor(e, e->rho_xd, e->m_xd);
     return (logit_(spd) - logit_(sm)) / sqrt(lx * lx + ld * ld);
 }
 static struct wrow rows[MAXW];
