@@ -544,7 +544,7 @@ int holdup_count_corrected(const stagecal_vle *vle, double xd, double xb, double
 }
 
 /* Liquids x_1 … x_n of n whole steps from xd on the plain line; −1 when a step fails. */
-int holdup_plain_profile(const stagecal_vle *vle, double xd, double m, size_t n, double *x)
+static int plain_profile(const stagecal_vle *vle, double xd, double m, size_t n, double *x)
 {
     double y = xd;
     for (size_t j = 0; j < n; j++) {
@@ -555,21 +555,31 @@ int holdup_plain_profile(const stagecal_vle *vle, double xd, double m, size_t n,
     return 0;
 }
 
+int holdup_sensitivities(const stagecal_vle *vle, double xd, double xb, double m, double n_guess,
+                         double *s, size_t *ns)
+{
+    /* (a guess outside [0, 199], NaN included, would make the conversion undefined) */
+    double ng = n_guess > 0 ? ceil(n_guess) : 0;
+    size_t nc = ng < 199 ? (size_t)ng + 1 : 200;
+    double xp[200], xm[200], hd = 1e-6 * fmin(1 - xd, xd - xb);
+    if (plain_profile(vle, xd + hd, m, nc, xp) || plain_profile(vle, xd - hd, m, nc, xm))
+        return STAGECAL_ENOCONV;
+    for (size_t j = 0; j < nc; j++)
+        s[j] = (xp[j] - xm[j]) / (2 * hd);
+    *ns = nc;
+    return STAGECAL_OK;
+}
+
 /* The corrected count with h = holdup/(n_guess − 1) and the sensitivities of ceil(n_guess) + 1
  * plain steps. */
 static int corrected_at(const stagecal_vle *vle, double xd, double xb, double m,
                         const stagecal_holdup_state *st, double n_guess, double *count,
                         double *sum_x)
 {
-    /* (a guess outside [0, 199], NaN included, would make the conversion undefined) */
-    double ng = n_guess > 0 ? ceil(n_guess) : 0;
-    size_t nc = ng < 199 ? (size_t)ng + 1 : 200;
-    double xp[200], xm[200], s[200], hd = 1e-6 * fmin(1 - xd, xd - xb);
-    if (holdup_plain_profile(vle, xd + hd, m, nc, xp) ||
-        holdup_plain_profile(vle, xd - hd, m, nc, xm))
+    double s[200];
+    size_t nc;
+    if (holdup_sensitivities(vle, xd, xb, m, n_guess, s, &nc))
         return STAGECAL_ENOCONV;
-    for (size_t j = 0; j < nc; j++)
-        s[j] = (xp[j] - xm[j]) / (2 * hd);
     double h_stage = n_guess > 1 ? st->holdup_mol / (n_guess - 1) : 0;
     double g0 = st->drum_mol * st->dxd_dt / st->v_mol_s;
     double gs = h_stage * st->dxd_dt / st->v_mol_s;

@@ -58,9 +58,11 @@ double holdup_row_slope(const stagecal_runlog *log, size_t s, size_t e, size_t i
 int holdup_count_corrected(const stagecal_vle *vle, double xd, double xb, double m, double g0,
                            double gs, const double *s, size_t ns, double *count, double *sum_x,
                            double *xs, size_t xs_cap, size_t *n_xs);
-/* Liquids x_1 … x_n of n whole steps from xd on the plain line y = m·x + (1 − m)·xd; −1 when a
- * step fails. */
-int holdup_plain_profile(const stagecal_vle *vle, double xd, double m, size_t n, double *x);
+/* ∂x_j/∂xD of the plain line's liquids (y = m·x + (1 − m)·xd) for the ceil(n_guess) + 1 whole
+ * steps from xd (at most 200: s holds 200), by central differences; *ns how many. ENOCONV when
+ * a step fails. */
+int holdup_sensitivities(const stagecal_vle *vle, double xd, double xb, double m, double n_guess,
+                         double *s, size_t *ns);
 /* Slope at t[c] of the least-squares quadratic through the finite (t[j], x[j]), j in [a, b];
  * NAN with fewer than 3. *se its standard error (u a floor under the residual scatter); *value
  * (may be NULL; set when the slope is) the quadratic's value at t[c]. */
@@ -76,11 +78,11 @@ int holdup_steady_xd_of_count(const stagecal_vle *vle, double xd, double xb, dou
                               double n, double *xd_ss, stagecal_error *err);
 
 /* The pseudo-steady test of the STAGES compensation over the stretch [s, e) of one reflux set
- * point (src/holdup_refine.c; docs/methods.md, "Column holdup"): a compensated row (xd_ss
- * finite) whose steady xD the second-order term (the profile's own derivatives, on the smoothed
- * compositions) moves by more than par->quasi_tol_u·u_xd, or where it cannot be found, is left
- * out (xd_ss NAN, u2 0; u2 may be NULL). Nothing is tested when quasi_tol_u or u_xd is not
- * positive. ENOMEM only. */
+ * point (src/holdup_refine.c; docs/methods.md, "Column holdup"): the compensated rows (xd_ss
+ * finite) before the first and after the last one where the second-order term (the profile's
+ * own derivatives, on the smoothed compositions) moves the steady xD by at most
+ * par->quasi_tol_u·u_xd are left out (xd_ss NAN, u2 0; u2 may be NULL); all of them when no row
+ * agrees. Nothing is tested when quasi_tol_u or u_xd is not positive. ENOMEM only. */
 int holdup_refine_stretch(const stagecal_runlog *log, size_t s, size_t e, const stagecal_vle *vle,
                           double holdup_mol, double drum_mol, const stagecal_holdup_params *par,
                           double u_xd, double *xd_ss, double *u2);

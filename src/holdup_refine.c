@@ -20,8 +20,9 @@
  * of its own (measured in docs/methods.md).
  *
  * Workload: per row, the slope weights of its local quadratic once, then per pass one weighted
- * sum per stage liquid and one corrected count (a fixed point in the stage count), and two Brent
- * solves for the steady xD.
+ * sum per stage liquid and one corrected count (a fixed point in the stage count), and one Brent
+ * solve for the first order's steady xD; the second order's only from each end of a stretch up
+ * to the first row that agrees.
  */
 #include <math.h>
 #include <stdlib.h>
@@ -43,7 +44,7 @@ static int row_profile(const stagecal_vle *vle, double xd, double xb, double m,
                        const stagecal_holdup_state *st, const double *der, size_t nd, double *count,
                        double *xs, size_t *nxs)
 {
-    double n, sens[REFINE_STEPS], xp[REFINE_STEPS], xm[REFINE_STEPS];
+    double n, sens[REFINE_STEPS];
     int rc = holdup_count_corrected(vle, xd, xb, m, 0, 0, NULL, 0, &n, NULL, NULL, 0, NULL);
     if (rc != STAGECAL_OK)
         n = 10.0; /* a pinch of the plain line: start from a guess */
@@ -52,13 +53,10 @@ static int row_profile(const stagecal_vle *vle, double xd, double xb, double m,
         const double *d = der;
         size_t ns = nd;
         if (!der) {
-            double ng = n > 0 ? ceil(n) : 0, hd = 1e-6 * fmin(1 - xd, xd - xb);
-            ns = ng < REFINE_STEPS - 1 ? (size_t)ng + 1 : REFINE_STEPS;
-            if (holdup_plain_profile(vle, xd + hd, m, ns, xp) ||
-                holdup_plain_profile(vle, xd - hd, m, ns, xm))
+            if (holdup_sensitivities(vle, xd, xb, m, n, sens, &ns))
                 return STAGECAL_ENOCONV;
             for (size_t j = 0; j < ns; j++)
-                sens[j] = (xp[j] - xm[j]) / (2 * hd) * st->dxd_dt;
+                sens[j] *= st->dxd_dt;
             d = sens;
         }
         double gs = n > 1 ? st->holdup_mol / (n - 1) / st->v_mol_s : 0, c;
@@ -72,6 +70,17 @@ static int row_profile(const stagecal_vle *vle, double xd, double xb, double m,
     }
     *count = n;
     return STAGECAL_OK;
+}
+
+/* Whether a compensated row (xd_ss finite) with a profile has its second-order steady xD (the
+ * count cnt stepped on the smoothed xs, xbs) within tol of the first-order one. */
+static int agrees(const stagecal_vle *vle, double reflux, double xd_ss, size_t np, double first,
+                  double xs, double xbs, double cnt, double tol)
+{
+    double x;
+    return isfinite(xd_ss) && np && isfinite(first) &&
+           holdup_steady_xd_of_count(vle, xs, xbs, reflux, cnt, &x, NULL) == STAGECAL_OK &&
+           fabs(x - first) <= tol;
 }
 
 /* Weights w[k − a], k in [a, b], with Σ w·x = the slope at t[c] of the least-squares quadratic
@@ -191,19 +200,17 @@ int holdup_refine_stretch(const stagecal_runlog *log, size_t s, size_t e, const 
      * second order agrees with the first to the last one; rows before and after are left out
      * (a row-by-row test would select on the smoothed compositions' noise) */
     double tol = par->quasi_tol_u * u_xd;
-    size_t lead = rows, trail = 0;
-    for (size_t r = 0; r < rows; r++) {
-        double x = NAN;
-        if (!isfinite(xd_ss[s + r]) || !np[r] || !isfinite(first[r]) ||
-            holdup_steady_xd_of_count(vle, xs[r], xbs[r], reflux, cnt[r], &x, NULL) !=
-                STAGECAL_OK ||
-            !(fabs(x - first[r]) <= tol))
-            continue;
-        lead = r < lead ? r : lead;
-        trail = r;
-    }
+    size_t lead = 0, trail = rows;
+    while (lead < rows && !agrees(vle, reflux, xd_ss[s + lead], np[lead], first[lead], xs[lead],
+                                  xbs[lead], cnt[lead], tol))
+        lead++;
+    while (trail > lead + 1 &&
+           !agrees(vle, reflux, xd_ss[s + trail - 1], np[trail - 1], first[trail - 1],
+                   xs[trail - 1], xbs[trail - 1], cnt[trail - 1], tol))
+        trail--;
+    /* rows [lead, trail) are pseudo-steady (none when lead == rows) */
     for (size_t r = 0; r < rows; r++)
-        if ((r < lead || r > trail) && isfinite(xd_ss[s + r])) {
+        if ((r < lead || r >= trail) && isfinite(xd_ss[s + r])) {
             xd_ss[s + r] = NAN;
             if (u2)
                 u2[s + r] = 0;
