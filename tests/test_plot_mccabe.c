@@ -33,6 +33,21 @@ static double pinch_closed_form(double alpha, double lv, double xd)
     return (r1 > 0 && r1 < xd) ? r1 : r2;
 }
 
+/* The diagram of one condition (stagecal_plot_mccabe_condition's arguments), which must be
+ * drawn with n_series series. */
+static stagecal_plot_chart *mccabe_drawn(const stagecal_vle *vle, double xd, double xb, double r,
+                                         double n, double emv, size_t n_series)
+{
+    stagecal_plot_chart *c = NULL;
+    stagecal_error err;
+    int rc = stagecal_plot_mccabe_condition(vle, xd, xb, r, n, emv, &c, &err);
+    if (rc)
+        print_error("%s\n", err.text);
+    assert_int_equal(rc, STAGECAL_OK);
+    assert_int_equal(c->n_series, n_series);
+    return c;
+}
+
 static void plot_mccabe_series_and_pinch(void **state)
 {
     (void)state;
@@ -42,12 +57,7 @@ static void plot_mccabe_series_and_pinch(void **state)
     const double xd = 0.95, r = 4.0, lv = r / (r + 1);
 
     /* E_MV = 1: diagonal, equilibrium, operating line, steps, pinch, xD/xB markers */
-    stagecal_plot_chart *c = NULL;
-    int rc = stagecal_plot_mccabe_condition(vle, xd, NAN, r, 6.0, 1.0, &c, &err);
-    if (rc)
-        print_error("%s\n", err.text);
-    assert_int_equal(rc, STAGECAL_OK);
-    assert_int_equal(c->n_series, 6);
+    stagecal_plot_chart *c = mccabe_drawn(vle, xd, NAN, r, 6.0, 1.0, 6);
     const stagecal_plot_series *pinch = find_series(c, "pinch");
     assert_non_null(pinch);
     /* Brent's tolerance is 1e-12 on x; 1e-9 leaves room for rounding in the quadratic */
@@ -69,30 +79,25 @@ static void plot_mccabe_series_and_pinch(void **state)
     stagecal_plot_chart_free(c);
 
     /* E_MV < 1 adds the pseudo-equilibrium curve */
-    rc = stagecal_plot_mccabe_condition(vle, xd, NAN, r, 6.0, 0.7, &c, &err);
-    assert_int_equal(rc, STAGECAL_OK);
-    assert_int_equal(c->n_series, 7);
+    c = mccabe_drawn(vle, xd, NAN, r, 6.0, 0.7, 7);
     assert_non_null(find_series(c, "pseudo-equilibrium"));
     check_svg_series(c, "mccabe_emv", 7);
     stagecal_plot_chart_free(c);
 
     /* total reflux: the operating line is the diagonal, no pinch inside (0, xD) */
-    rc = stagecal_plot_mccabe_condition(vle, xd, NAN, INFINITY, 4.5, 1.0, &c, &err);
-    assert_int_equal(rc, STAGECAL_OK);
-    assert_int_equal(c->n_series, 4);
+    c = mccabe_drawn(vle, xd, NAN, INFINITY, 4.5, 1.0, 4);
     assert_null(find_series(c, "pinch"));
     check_svg_series(c, "mccabe_total", 4);
     stagecal_plot_chart_free(c);
 
     /* a sample (xD, xB, R): stages from the inversion */
-    rc = stagecal_plot_mccabe_condition(vle, xd, 0.3, r, NAN, 1.0, &c, &err);
-    assert_int_equal(rc, STAGECAL_OK);
+    c = mccabe_drawn(vle, xd, 0.3, r, NAN, 1.0, 6);
     steps = find_series(c, "stages");
     assert_abs(steps->x[steps->n - 1], 0.3, 1e-9, "sample's xB reached (round trip 1e-9)");
     stagecal_plot_chart_free(c);
 
     /* below the pinch: the inversion's status comes back as EDATA with its name */
-    rc = stagecal_plot_mccabe_condition(vle, xd, 0.01, 1.0, NAN, 1.0, &c, &err);
+    int rc = stagecal_plot_mccabe_condition(vle, xd, 0.01, 1.0, NAN, 1.0, &c, &err);
     assert_int_equal(rc, STAGECAL_EDATA);
     assert_non_null(strstr(err.text, "pinch"));
     stagecal_vle_free(vle);
