@@ -422,11 +422,9 @@ static int build_problem(const struct request *q, double ml, double mh, double l
     return 0;
 }
 
-/* Checks the request, runs the batch (and its band), prints. An exit code. */
-static int run(const struct request *q, cli_ctx *ctx)
+/* The options that go together, before any file is read. An exit code. */
+static int check_request(const struct request *q, const cli_ctx *ctx)
 {
-    cli_system *sys = &ctx->sys;
-    int rc;
     if (!q->model)
         return cli_usage_error("option '--model' is required (see 'stagecal predict --help')");
     int npol = !isnan(q->reflux) + !isnan(q->xdset) + (q->plan != NULL);
@@ -436,129 +434,173 @@ static int run(const struct request *q, cli_ctx *ctx)
         return cli_usage_error("option '--reflux-max' goes with '--xd-setpoint'");
     if (ctx->json && q->out && strcmp(q->out, "-") == 0)
         return cli_usage_error("'--output -' and '--json' would both write to standard output");
-    {
-        const char *inputs[3] = {q->model, q->plan, sys->column_path};
-        if ((rc = cli_check_output("output", q->out, inputs, 3)))
-            return rc;
-    }
+    const char *inputs[3] = {q->model, q->plan, ctx->sys.column_path};
+    int rc = cli_check_output("output", q->out, inputs, 3);
+    if (rc)
+        return rc;
     if (q->samples == 1)
         return cli_usage_error("option '--samples': 1 draw gives no band (use 0 or >= 2)");
+    return 0;
+}
 
-    stagecal_batch_problem pb;
-    stagecal_error err;
-    latent_from latent_source = LATENT_NONE;
-    if ((rc = start_problem(q, &pb)))
-        return rc;
+/* One prediction, from the model file to the outputs. */
+struct prediction {
     stagecal_model m;
-    stagecal_model_init(&m);
-    if (stagecal_model_load(q->model, &m, &err) != STAGECAL_OK)
+    stagecal_vle *own; /* the model file's equilibrium model when no option gave one */
+    stagecal_batch_problem pb;
+    latent_from latent_source;
+    stagecal_batch_params par;
+    stagecal_batch_result res, qs; /* the batch; dynamic: the quasi-steady one beside it */
+    stagecal_batch_dynamics dy;
+    int dyn; /* 1: the dynamic batch model */
+    stagecal_batch_band band;
+    int have_band;
+};
+
+/* The model's equilibrium model, set in sys by open_vle, given back. */
+static void close_vle(struct prediction *p, cli_system *sys)
+{
+    stagecal_vle_free(p->own);
+    if (p->own)
+        sys->vle = NULL;
+}
+
+/* The plan, the model file, the equilibrium model and the batch problem with the options
+ * (the line saying what was converted, for people), and where the latent heat comes from.
+ * On success p->m and p->own are the caller's to free (release). An exit code. */
+static int load_inputs(const struct request *q, cli_ctx *ctx, struct prediction *p)
+{
+    cli_system *sys = &ctx->sys;
+    stagecal_error err;
+    int rc;
+    p->latent_source = LATENT_NONE;
+    if ((rc = start_problem(q, &p->pb)))
+        return rc;
+    stagecal_model_init(&p->m);
+    if (stagecal_model_load(q->model, &p->m, &err) != STAGECAL_OK)
         return cli_fail(&err);
-    if (m.form.uses_load && isnan(q->f_load)) {
+    if (p->m.form.uses_load && isnan(q->f_load)) {
         /* the message before the free: the form's name lives in the model */
         rc = cli_usage_error("the model's form '%s' uses the vapour load: give '--f-factor F'",
-                             m.form.name);
-        stagecal_model_free(&m);
+                             p->m.form.name);
+        stagecal_model_free(&p->m);
         return rc;
     }
-    stagecal_vle *own = NULL;
-    if ((rc = open_vle(sys, &m, q->model, &own))) {
-        stagecal_model_free(&m);
+    if ((rc = open_vle(sys, &p->m, q->model, &p->own))) {
+        stagecal_model_free(&p->m);
         return rc;
     }
     /* molar masses and latent heat for options in mass units or a duty: the column file's
      * with --column, else the model file's */
-    double ml = sys->have_column ? sys->col.system.m_light : m.m_light_kg_mol;
-    double mh = sys->have_column ? sys->col.system.m_heavy : m.m_heavy_kg_mol;
+    double ml = sys->have_column ? sys->col.system.m_light : p->m.m_light_kg_mol;
+    double mh = sys->have_column ? sys->col.system.m_heavy : p->m.m_heavy_kg_mol;
     double lat = sys->have_column    ? sys->col.system.latent_j_mol
-                 : !sys->column_path ? m.latent_j_mol
+                 : !sys->column_path ? p->m.latent_j_mol
                                      : 0.0;
     char said[400];
-    if ((rc = build_problem(q, ml, mh, lat, &pb, &latent_source, said, sizeof said))) {
-        stagecal_vle_free(own);
-        if (own)
-            sys->vle = NULL;
-        stagecal_model_free(&m);
+    if ((rc = build_problem(q, ml, mh, lat, &p->pb, &p->latent_source, said, sizeof said))) {
+        close_vle(p, sys);
+        stagecal_model_free(&p->m);
         return rc;
     }
     if (said[0] && !ctx->json)
         printf("inputs converted: %s\n", said + 2);
-    if (isnan(q->latent) && pb.latent_j_mol == 0 && sys->have_column) {
-        pb.latent_j_mol = sys->col.system.latent_j_mol;
-        latent_source = LATENT_COLUMN;
-    } else if (isnan(q->latent) && pb.latent_j_mol == 0 && !sys->column_path) {
-        pb.latent_j_mol = m.latent_j_mol; /* 0 when the model file does not record one */
-        latent_source = LATENT_MODEL;
+    if (isnan(q->latent) && p->pb.latent_j_mol == 0 && sys->have_column) {
+        p->pb.latent_j_mol = sys->col.system.latent_j_mol;
+        p->latent_source = LATENT_COLUMN;
+    } else if (isnan(q->latent) && p->pb.latent_j_mol == 0 && !sys->column_path) {
+        p->pb.latent_j_mol = p->m.latent_j_mol; /* 0 when the model file does not record one */
+        p->latent_source = LATENT_MODEL;
     }
+    return 0;
+}
 
-    stagecal_batch_model_law law = {&m, NULL, q->f_load};
+/* The batch (dynamic: the quasi-steady batch first, for the delays) and its band from the
+ * model's parameter covariance. An exit code. */
+static int run_batch(const struct request *q, cli_system *sys, struct prediction *p)
+{
+    stagecal_batch_model_law law = {&p->m, NULL, q->f_load};
     stagecal_batch_column col = {sys->vle, stagecal_batch_model_stages, &law, NULL, NULL};
-    stagecal_batch_params par = stagecal_batch_default_params();
-    stagecal_batch_result res, qs;
-    stagecal_batch_band band;
-    stagecal_batch_dynamics dy;
-    int have_band = 0, dyn = 0;
-    par.output_dt_s = q->every * STAGECAL_UNIT_H;
-    stagecal_batch_result_init(&res);
-    stagecal_batch_result_init(&qs);
-    if ((rc = predict_dyn_pick(q->dynamics, q->startup_xd, q->startup_h, sys, &dy, &dyn)))
-        goto done;
-    /* dynamic: the quasi-steady batch beside it, for the delays */
-    if (dyn && (rc = stagecal_batch_run(&pb, &col, &par, &qs, &err)) == STAGECAL_OK)
-        par.dynamics = &dy;
+    stagecal_error err;
+    int rc;
+    if ((rc = predict_dyn_pick(q->dynamics, q->startup_xd, q->startup_h, sys, &p->dy, &p->dyn)))
+        return rc;
+    if (p->dyn && (rc = stagecal_batch_run(&p->pb, &col, &p->par, &p->qs, &err)) == STAGECAL_OK)
+        p->par.dynamics = &p->dy;
     if (rc == STAGECAL_OK)
-        rc = stagecal_batch_run(&pb, &col, &par, &res, &err);
-    struct dyn_view dview = {&dy, &qs, sys->have_column ? sys->col.holdup_u_rel : 0};
-    const struct dyn_view *dv = dyn ? &dview : NULL;
+        rc = stagecal_batch_run(&p->pb, &col, &p->par, &p->res, &err);
     /* "at least N stages" (a one-sided model): the batch with the bound, no band */
-    if (m.one_sided)
+    if (p->m.one_sided)
         cli_warn("%s: the evidence gives at least %.4g stages only (one-sided %.0f %%, an "
                  "analyser at its limit): the batch is predicted with that lower bound (the "
                  "column may separate better) and without a band",
-                 q->model, m.theta[0], 100 * m.level);
-    if (rc == STAGECAL_OK && q->samples >= 2 && !m.one_sided) {
-        rc = stagecal_batch_band_sample_scatter(&pb, sys->vle, &m, q->f_load, &par, &res,
-                                                (size_t)q->samples, (unsigned long)q->seed,
-                                                q->level, q->run_scatter, &band, &err);
-        have_band = rc == STAGECAL_OK;
+                 q->model, p->m.theta[0], 100 * p->m.level);
+    if (rc == STAGECAL_OK && q->samples >= 2 && !p->m.one_sided) {
+        rc = stagecal_batch_band_sample_scatter(&p->pb, sys->vle, &p->m, q->f_load, &p->par,
+                                                &p->res, (size_t)q->samples, (unsigned long)q->seed,
+                                                q->level, q->run_scatter, &p->band, &err);
+        p->have_band = rc == STAGECAL_OK;
         if (rc == STAGECAL_ENOCONV) { /* the model file's covariance, not the program */
             cli_error("%s: %s; '--samples 0' runs the batch without the band", q->model, err.text);
-            rc = CLI_EXIT_DATA;
-            goto done;
+            return CLI_EXIT_DATA;
         }
     }
-    if (rc != STAGECAL_OK) {
-        rc = cli_fail(&err);
-        goto done;
-    }
-    stagecal_batch_envelope_warnings(&m, q->f_load, &res);
-    for (size_t i = 0; i < res.n_warnings; i++)
-        cli_warn("%s", res.warnings[i]);
-    if (q->out && (rc = write_csv(q->out, &res)))
-        goto done;
+    return rc == STAGECAL_OK ? 0 : cli_fail(&err);
+}
+
+/* The envelope's warnings, the trajectory's CSV, the chart (`plot trajectory`), and the
+ * result as JSON or for people. An exit code. */
+static int write_outputs(const struct request *q, cli_ctx *ctx, struct prediction *p)
+{
+    cli_system *sys = &ctx->sys;
+    stagecal_error err;
+    int rc;
+    stagecal_batch_envelope_warnings(&p->m, q->f_load, &p->res);
+    for (size_t i = 0; i < p->res.n_warnings; i++)
+        cli_warn("%s", p->res.warnings[i]);
+    if (q->out && (rc = write_csv(q->out, &p->res)))
+        return rc;
     if (ctx->chart) { /* `plot trajectory`: the chart of this batch */
         stagecal_plot_chart *chart = NULL;
-        stagecal_plot_trajectory_data td = {&res, have_band ? &band : NULL, NULL};
+        stagecal_plot_trajectory_data td = {&p->res, p->have_band ? &p->band : NULL, NULL};
         int brc = stagecal_plot_trajectory(&td, &chart, &err);
         if ((rc = cli_chart_write(ctx, chart, brc, &err)))
-            goto done;
+            return rc;
     }
+    struct dyn_view dview = {&p->dy, &p->qs, sys->have_column ? sys->col.holdup_u_rel : 0};
+    const struct dyn_view *dv = p->dyn ? &dview : NULL;
     if (ctx->json) {
-        json_t *doc = result_json(&pb, &res, &band, have_band, q->model, latent_source,
-                                  (unsigned long)q->seed, dv);
-        if (doc && m.one_sided)
+        json_t *doc = result_json(&p->pb, &p->res, &p->band, p->have_band, q->model,
+                                  p->latent_source, (unsigned long)q->seed, dv);
+        if (doc && p->m.one_sided)
             json_object_set_new(doc, "stages_bound",
-                                json_pack("{s:s,s:f,s:n,s:f}", "side", "lower", "low", m.theta[0],
-                                          "high", "level", m.level));
-        rc = cli_json_print(doc);
-    } else if (!(ctx->data_on_stdout = q->out && strcmp(q->out, "-") == 0))
-        print_human(&pb, &res, &band, have_band, latent_source, dv);
-done:
-    stagecal_batch_result_free(&res);
-    stagecal_batch_result_free(&qs);
-    stagecal_vle_free(own);
-    if (own)
-        sys->vle = NULL;
-    stagecal_model_free(&m);
+                                json_pack("{s:s,s:f,s:n,s:f}", "side", "lower", "low",
+                                          p->m.theta[0], "high", "level", p->m.level));
+        return cli_json_print(doc);
+    }
+    if (!(ctx->data_on_stdout = q->out && strcmp(q->out, "-") == 0))
+        print_human(&p->pb, &p->res, &p->band, p->have_band, p->latent_source, dv);
+    return 0;
+}
+
+/* Checks the request, reads its files, runs the batch (and its band), writes. An exit code. */
+static int run(const struct request *q, cli_ctx *ctx)
+{
+    struct prediction p;
+    int rc;
+    if ((rc = check_request(q, ctx)) || (rc = load_inputs(q, ctx, &p)))
+        return rc;
+    p.par = stagecal_batch_default_params();
+    p.par.output_dt_s = q->every * STAGECAL_UNIT_H;
+    stagecal_batch_result_init(&p.res);
+    stagecal_batch_result_init(&p.qs);
+    p.dyn = p.have_band = 0;
+    if ((rc = run_batch(q, &ctx->sys, &p)) == 0)
+        rc = write_outputs(q, ctx, &p);
+    stagecal_batch_result_free(&p.res);
+    stagecal_batch_result_free(&p.qs);
+    close_vle(&p, &ctx->sys);
+    stagecal_model_free(&p.m);
     return rc;
 }
 
