@@ -243,68 +243,40 @@ static int forward(int argc, char **argv, cli_ctx *ctx)
     return rc;
 }
 
-int cmd_plot(int argc, char **argv, cli_ctx *ctx)
+/* The options of plot mccabe, model and run. */
+struct plot_request {
+    double xd, reflux, nstages, xb, murphree;
+    const char *output, *points_path, *run_name;
+    long width, height;
+    int resid, dialect;
+    stagecal_calibrate_params cpar;
+};
+
+/* The chart kind, argv[*first] (KIND_* in *k; *first moves past it), with no option given
+ * that belongs to another kind. An exit code. */
+static int pick_kind(int argc, char **argv, int *first, const struct cli_option *opts, int resid,
+                     const char **kind, unsigned *k)
 {
-    if (argc >= 2 && (strcmp(argv[1], "trend") == 0 || strcmp(argv[1], "trajectory") == 0 ||
-                      strcmp(argv[1], "history") == 0))
-        return forward(argc, argv, ctx);
-    cli_system *sys = &ctx->sys;
-    double xd = NAN, reflux = NAN, nstages = NAN, xb = NAN, murphree = 1.0;
-    const char *output = NULL, *points_path = NULL, *run_name = NULL;
-    long width = 0, height = 0;
-    int resid = 0, first, rc, dialect = 0;
-    stagecal_calibrate_params cpar = stagecal_calibrate_default_params();
-    const struct cli_option opts[] = {
-        OPT_GROUP("mccabe:"),
-        OPT_SYSTEM(sys),
-        OPT_XD(&xd),
-        OPT_REFLUX(&reflux, "reflux ratio L/D >= 0, or 'inf' for total reflux"),
-        OPT_STAGES(&nstages, "equilibrium stages including the pot, N >= 1"),
-        OPT_XB(&xb),
-        OPT_MURPHREE(&murphree),
-        OPT_GROUP("model:"),
-        OPT_POINTS(&points_path, "points (R,stages[,F,sigma]) drawn with the fit"),
-        OPT_FLAG(0, "residuals", &resid,
-                 "residuals of the points against fitted stages (needs --points)"),
-        OPT_GROUP("run (and --column, --murphree above):"),
-        OPT_STRING(0, "run", &run_name, "NAME", "draw this run only (default: every run)"),
-        OPT_KEEP_FLAGGED(&cpar.keep_flagged),
-        OPT_WARM_UP(&cpar.analysis.warmup_s),
-        OPT_MIN_WINDOW(&cpar.analysis.min_window_s),
-        OPT_CSV_DIALECT(&dialect),
-        OPT_GROUP("every kind:"),
-        OPT_OUTPUT(&output, "the chart file (.png, .svg or .pdf), required"),
-        OPT_LONG("chart-width", &width, "W",
-                 "chart width in pixels (PNG) or points (SVG, PDF), default 800\n(run: 900)", 16,
-                 20000),
-        OPT_LONG("chart-height", &height, "H", "chart height, default 560 (run: 1100)", 16, 20000),
-        OPT_ALIAS("width", "chart-width"),
-        OPT_ALIAS("height", "chart-height"),
-        OPT_END_COMMON(ctx),
-    };
-    if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
-        return rc;
-    int json = ctx->json;
     /* The chart kind is the first argument; options may come before or after it. */
-    if (first >= argc)
+    if (*first >= argc)
         return cli_usage_error("a chart kind is required: 'mccabe', 'model', 'run', 'trend', "
                                "'history' or 'trajectory' (see 'stagecal plot --help')");
-    const char *kind = argv[first++];
-    unsigned k = strcmp(kind, "mccabe") == 0  ? KIND_MCCABE
-                 : strcmp(kind, "model") == 0 ? KIND_MODEL
-                 : strcmp(kind, "run") == 0   ? KIND_RUN
-                                              : 0;
-    if (strcmp(kind, "trend") == 0 || strcmp(kind, "trajectory") == 0 ||
-        strcmp(kind, "history") == 0)
+    *kind = argv[(*first)++];
+    *k = strcmp(*kind, "mccabe") == 0  ? KIND_MCCABE
+         : strcmp(*kind, "model") == 0 ? KIND_MODEL
+         : strcmp(*kind, "run") == 0   ? KIND_RUN
+                                       : 0;
+    if (strcmp(*kind, "trend") == 0 || strcmp(*kind, "trajectory") == 0 ||
+        strcmp(*kind, "history") == 0)
         return cli_usage_error("'plot %s' takes the chart kind first: 'stagecal plot %s "
                                "<options>'",
-                               kind, kind);
-    if (!k)
+                               *kind, *kind);
+    if (!*k)
         return cli_usage_error("unknown chart kind '%s' (expected 'mccabe', 'model', 'run', "
                                "'trend', 'history' or 'trajectory')",
-                               kind);
+                               *kind);
     for (size_t i = 0; i < sizeof kind_options / sizeof kind_options[0]; i++) {
-        if (!(kind_options[i].kinds & k) &&
+        if (!(kind_options[i].kinds & *k) &&
             (cli_given(opts, kind_options[i].name) ||
              (strcmp(kind_options[i].name, "residuals") == 0 && resid))) {
             char owners[64] = "";
@@ -315,104 +287,177 @@ int cmd_plot(int argc, char **argv, cli_ctx *ctx)
             return cli_usage_error("option '--%s' belongs to %s", kind_options[i].name, owners);
         }
     }
-    const int is_mccabe = k == KIND_MCCABE, is_run = k == KIND_RUN;
-    if (width == 0)
-        width = is_run ? 900 : 800;
-    if (height == 0)
-        height = is_run ? 1100 : 560;
-    if (!output)
+    return 0;
+}
+
+/* --output: given, a chart format by its extension, and none of the inputs (the points, the
+ * column file, the arguments args[0..nargs)). An exit code. */
+static int check_output(const struct plot_request *q, const char *column_path, char **args,
+                        int nargs)
+{
+    if (!q->output)
         return cli_usage_error("option '--output' is required (see 'stagecal plot --help')");
     stagecal_plot_format fmt;
     stagecal_error err;
     stagecal_error_clear(&err);
-    if (stagecal_plot_format_from_path(output, &fmt, &err) != STAGECAL_OK)
+    if (stagecal_plot_format_from_path(q->output, &fmt, &err) != STAGECAL_OK)
         return cli_usage_error("option '--output': %s", err.text);
-    {
-        const char **inputs = calloc((size_t)argc + 3, sizeof *inputs);
-        size_t ni = 0;
-        if (!inputs) {
-            cli_error("out of memory");
-            return CLI_EXIT_SOFTWARE;
-        }
-        inputs[ni++] = points_path;
-        inputs[ni++] = sys->column_path;
-        for (int i = first; i < argc; i++)
-            inputs[ni++] = argv[i];
-        rc = cli_check_output("output", output, inputs, ni);
-        free(inputs);
-        if (rc)
-            return rc;
+    const char **inputs = calloc((size_t)nargs + 3, sizeof *inputs);
+    size_t ni = 0;
+    if (!inputs) {
+        cli_error("out of memory");
+        return CLI_EXIT_SOFTWARE;
     }
+    inputs[ni++] = q->points_path;
+    inputs[ni++] = column_path;
+    for (int i = 0; i < nargs; i++)
+        inputs[ni++] = args[i];
+    int rc = cli_check_output("output", q->output, inputs, ni);
+    free(inputs);
+    return rc;
+}
 
-    stagecal_plot_chart *chart = NULL;
-    stagecal_report_doc *doc = NULL;
+/* What a chart is built from (by kind: the run logs' calibration, the McCabe-Thiele chart,
+ * the model file, its points and the report's charts), freed together. */
+struct chart_parts {
+    stagecal_plot_chart *chart;
+    stagecal_report_doc *doc;
     stagecal_model m;
     stagecal_regress_data pts;
     stagecal_calibration cal;
-    memset(&pts, 0, sizeof pts);
-    memset(&cal, 0, sizeof cal);
-    stagecal_model_init(&m);
-    if (is_run) {
-        if (first >= argc)
+};
+
+static void chart_parts_free(struct chart_parts *cp)
+{
+    stagecal_plot_chart_free(cp->chart);
+    stagecal_report_doc_free(cp->doc);
+    stagecal_regress_data_free(&cp->pts);
+    stagecal_model_free(&cp->m);
+    stagecal_calibration_free(&cp->cal);
+}
+
+/* The chart of kind k from the arguments args[0..nargs): a usage error comes back as its
+ * exit code; else 0 with the builder's status in *status (and err). */
+static int build_chart(unsigned k, struct plot_request *q, char **args, int nargs, cli_system *sys,
+                       struct chart_parts *cp, int *status, stagecal_error *err)
+{
+    int rc;
+    if (k == KIND_RUN) {
+        if (nargs < 1)
             return cli_usage_error("at least one run log is required (see 'stagecal plot "
                                    "--help')");
         if (!sys->column_path)
             return cli_usage_error("option '--column' is required for 'plot run'");
-        cpar.murphree = murphree;
-        cpar.read.csv_separator = cli_csv_separator(dialect);
-        rc = run_chart((const char *const *)argv + first, (size_t)(argc - first), sys->column_path,
-                       run_name, &cpar, &cal, &chart, &err);
-    } else if (is_mccabe) {
-        if (first < argc)
+        q->cpar.murphree = q->murphree;
+        q->cpar.read.csv_separator = cli_csv_separator(q->dialect);
+        *status = run_chart((const char *const *)args, (size_t)nargs, sys->column_path, q->run_name,
+                            &q->cpar, &cp->cal, &cp->chart, err);
+    } else if (k == KIND_MCCABE) {
+        if (nargs > 0)
             return cli_usage_error("unexpected argument '%s' (plot mccabe takes options only)",
-                                   argv[first]);
-        if ((rc = cli_require("xd", xd)) || (rc = cli_require("reflux", reflux)))
+                                   args[0]);
+        if ((rc = cli_require("xd", q->xd)) || (rc = cli_require("reflux", q->reflux)))
             return rc;
-        if (isnan(nstages) == isnan(xb))
+        if (isnan(q->nstages) == isnan(q->xb))
             return cli_usage_error("give exactly one of '--stages' (a condition) and '--xb' (a "
                                    "sample)");
-        if (!isnan(xb) && !(xb > 0 && xb < xd))
+        if (!isnan(q->xb) && !(q->xb > 0 && q->xb < q->xd))
             return cli_usage_error("option '--xb': %g is outside (0, xd) (expected the pot "
                                    "mole fraction)",
-                                   xb);
+                                   q->xb);
         if ((rc = cli_system_open(sys)))
             return rc;
-        rc = stagecal_plot_mccabe_condition(sys->vle, xd, xb, reflux, nstages, murphree, &chart,
-                                            &err);
+        *status = stagecal_plot_mccabe_condition(sys->vle, q->xd, q->xb, q->reflux, q->nstages,
+                                                 q->murphree, &cp->chart, err);
     } else {
-        if (first >= argc)
+        if (nargs < 1)
             return cli_usage_error("a model file is required (see 'stagecal plot --help')");
-        if (first + 1 < argc)
+        if (nargs > 1)
             return cli_usage_error("unexpected argument '%s' (plot model takes one model file)",
-                                   argv[first + 1]);
-        if (resid && !points_path)
+                                   args[1]);
+        if (q->resid && !q->points_path)
             return cli_usage_error("option '--residuals' needs '--points'");
-        rc = model_chart(argv[first], points_path, &m, &pts, &doc, &err);
+        *status = model_chart(args[0], q->points_path, &cp->m, &cp->pts, &cp->doc, err);
     }
+    return 0;
+}
+
+int cmd_plot(int argc, char **argv, cli_ctx *ctx)
+{
+    if (argc >= 2 && (strcmp(argv[1], "trend") == 0 || strcmp(argv[1], "trajectory") == 0 ||
+                      strcmp(argv[1], "history") == 0))
+        return forward(argc, argv, ctx);
+    cli_system *sys = &ctx->sys;
+    struct plot_request q = {.xd = NAN, .reflux = NAN, .nstages = NAN, .xb = NAN, .murphree = 1.0};
+    int first, rc, status = STAGECAL_OK;
+    q.cpar = stagecal_calibrate_default_params();
+    const struct cli_option opts[] = {
+        OPT_GROUP("mccabe:"),
+        OPT_SYSTEM(sys),
+        OPT_XD(&q.xd),
+        OPT_REFLUX(&q.reflux, "reflux ratio L/D >= 0, or 'inf' for total reflux"),
+        OPT_STAGES(&q.nstages, "equilibrium stages including the pot, N >= 1"),
+        OPT_XB(&q.xb),
+        OPT_MURPHREE(&q.murphree),
+        OPT_GROUP("model:"),
+        OPT_POINTS(&q.points_path, "points (R,stages[,F,sigma]) drawn with the fit"),
+        OPT_FLAG(0, "residuals", &q.resid,
+                 "residuals of the points against fitted stages (needs --points)"),
+        OPT_GROUP("run (and --column, --murphree above):"),
+        OPT_STRING(0, "run", &q.run_name, "NAME", "draw this run only (default: every run)"),
+        OPT_KEEP_FLAGGED(&q.cpar.keep_flagged),
+        OPT_WARM_UP(&q.cpar.analysis.warmup_s),
+        OPT_MIN_WINDOW(&q.cpar.analysis.min_window_s),
+        OPT_CSV_DIALECT(&q.dialect),
+        OPT_GROUP("every kind:"),
+        OPT_OUTPUT(&q.output, "the chart file (.png, .svg or .pdf), required"),
+        OPT_LONG("chart-width", &q.width, "W",
+                 "chart width in pixels (PNG) or points (SVG, PDF), default 800\n(run: 900)", 16,
+                 20000),
+        OPT_LONG("chart-height", &q.height, "H", "chart height, default 560 (run: 1100)", 16,
+                 20000),
+        OPT_ALIAS("width", "chart-width"),
+        OPT_ALIAS("height", "chart-height"),
+        OPT_END_COMMON(ctx),
+    };
+    if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
+        return rc;
+    int json = ctx->json;
+    const char *kind = NULL;
+    unsigned k = 0;
+    if ((rc = pick_kind(argc, argv, &first, opts, q.resid, &kind, &k)))
+        return rc;
+    if (q.width == 0)
+        q.width = k == KIND_RUN ? 900 : 800;
+    if (q.height == 0)
+        q.height = k == KIND_RUN ? 1100 : 560;
+    if ((rc = check_output(&q, sys->column_path, argv + first, argc - first)))
+        return rc;
+
+    struct chart_parts cp;
+    memset(&cp, 0, sizeof cp);
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    stagecal_model_init(&cp.m);
+    if ((rc = build_chart(k, &q, argv + first, argc - first, sys, &cp, &status, &err)))
+        return rc;
+    rc = status;
     const stagecal_plot_chart *draw =
-        k != KIND_MODEL ? chart : stagecal_report_doc_chart(doc, resid);
+        k != KIND_MODEL ? cp.chart : stagecal_report_doc_chart(cp.doc, q.resid);
     if (rc == STAGECAL_OK) {
         stagecal_plot_params par = stagecal_plot_default_params();
-        par.width = (size_t)width;
-        par.height = (size_t)height;
-        rc = stagecal_plot_write(draw, output, &par, &err);
+        par.width = (size_t)q.width;
+        par.height = (size_t)q.height;
+        rc = stagecal_plot_write(draw, q.output, &par, &err);
     }
     if (rc != STAGECAL_OK) {
         int code = cli_fail(&err);
-        stagecal_plot_chart_free(chart);
-        stagecal_report_doc_free(doc);
-        stagecal_regress_data_free(&pts);
-        stagecal_model_free(&m);
-        stagecal_calibration_free(&cal);
+        chart_parts_free(&cp);
         return code;
     }
-    rc = print_result(draw, kind, output, json);
+    rc = print_result(draw, kind, q.output, json);
     if (!json) /* every chart: its numbers (stages, envelope, pinch) feed a decision too */
         cli_print_caution();
-    stagecal_plot_chart_free(chart);
-    stagecal_report_doc_free(doc);
-    stagecal_regress_data_free(&pts);
-    stagecal_model_free(&m);
-    stagecal_calibration_free(&cal);
+    chart_parts_free(&cp);
     return rc;
 }
