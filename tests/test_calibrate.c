@@ -258,9 +258,9 @@ static void calibrate_leaves_flagged_run_out(void **state)
 /* A synthetic drift planted in a clean demo run: January's K7-002 (no flag of its own) with
  * its pot analyser reading xB + 0.006 /h·(t − t0) (20 u(xB) over ten hours). The drift is
  * named as the pot analyser's and the run is out of the fit; the unchanged run is neither.
- * (A distillate drift of −0.004 /h planted the same way is named in 58 of the 83 clean demo
- * runs and put down to the pot analyser in 22: docs/methods.md, "Analyser drift and balance
- * checks"; not asserted here.) */
+ * (A distillate drift of −0.004 /h planted the same way is named in 78 of the 83 clean demo
+ * runs and not flagged in 5, tests/tool_demo_drift.py: docs/methods.md, "Analyser drift and
+ * balance checks"; not asserted here.) */
 static void calibrate_names_planted_drift(void **state)
 {
     (void)state;
