@@ -296,6 +296,187 @@ static void stage_range(const stagecal_plot_run_data *d, double *lo, double *hi)
     *hi += pad;
 }
 
+/* The chart's title (d->title, else the run's name and start, or the runs drawn) and the
+ * time axis' label. */
+static void run_title(plot_fig *f, const stagecal_plot_run_data *d, const run_axis *ax)
+{
+    const stagecal_runlog *log = d->log;
+    char title[256], xl[160];
+    const int all = d->run == STAGECAL_PLOT_ALL_RUNS;
+    size_t r0 = all ? 0 : d->run, nsel = all ? log->nruns : 1;
+    if (d->title) {
+        snprintf(title, sizeof title, "%s", d->title);
+    } else if (!all) {
+        char when[40] = "";
+        if (log->nfiles_iso > 0) {
+            time_t t = (time_t)ax->t0[r0];
+            struct tm tm;
+            if (gmtime_r(&t, &tm))
+                strftime(when, sizeof when, ", started %Y-%m-%d %H:%M UTC", &tm);
+        }
+        snprintf(title, sizeof title, "Run %s%s%s", log->runs[r0].name, when,
+                 left_out(d, r0) ? " (left out of the fit)" : "");
+    } else {
+        snprintf(title, sizeof title, "%zu runs, %s to %s: signals, quasi-steady windows, stages",
+                 nsel, log->runs[0].name, log->runs[log->nruns - 1].name);
+    }
+    snprintf(xl, sizeof xl, "%s",
+             all ? "time since the start of each run [h] (runs side by side, in log order)"
+                 : "time since the start of the run [h]");
+    plot_fig_labels(f, title, xl, NULL);
+    f->c->legend = 1;
+}
+
+/* Panel 1: the distillate, with head room for the run names (all runs). */
+static void panel_xd(plot_fig *f, const stagecal_plot_run_data *d, const run_axis *ax, pts *p)
+{
+    const stagecal_runlog *log = d->log;
+    const int all = d->run == STAGECAL_PLOT_ALL_RUNS;
+    double xd_lo = INFINITY, xd_hi = -INFINITY;
+    for (size_t i = 0; i < log->n; i++)
+        if (selected(d, log->run[i]) && isfinite(log->xd[i]))
+            xd_lo = fmin(xd_lo, log->xd[i]), xd_hi = fmax(xd_hi, log->xd[i]);
+    if (!isfinite(xd_lo))
+        xd_lo = 0, xd_hi = 1;
+    double xd_pad = fmax(xd_hi - xd_lo, 1e-3);
+    xd_lo -= 0.05 * xd_pad;
+    xd_hi += (all ? 0.35 : 0.08) * xd_pad;
+    plot_fig_panel(f, "xD [mol/mol]", 1, xd_lo, xd_hi);
+    add_windows(f, d, ax, p, 1);
+    signal_line(d, ax, log->xd, log->xd_cens, 1, p);
+    stagecal_plot_series *s =
+        plot_fig_add(f, STAGECAL_PLOT_LINE, "logged signal", p->x, p->y, NULL, p->n, 6, 0, 0);
+    if (s)
+        s->width = 1.2;
+    rows_where(d, ax, p, keep_xd_cens, STAGECAL_CENSOR_ABOVE, y_xd, NULL);
+    plot_fig_add(f, STAGECAL_PLOT_POINTS, "censored: at or above", p->x, p->y, NULL, p->n, 3, 0, 2);
+    rows_where(d, ax, p, keep_xd_cens, STAGECAL_CENSOR_BELOW, y_xd, NULL);
+    plot_fig_add(f, STAGECAL_PLOT_POINTS, "censored: at or below", p->x, p->y, NULL, p->n, 3, 0, 7);
+    for (size_t r = 0; r < log->nruns; r++) { /* run names above the runs */
+        if (!selected(d, r) || !all)
+            continue;
+        char lab[96];
+        snprintf(lab, sizeof lab, "%s%s", log->runs[r].name, left_out(d, r) ? " (left out)" : "");
+        double x = ax->offset[r];
+        plot_fig_add(f, STAGECAL_PLOT_TEXT, lab, &x, NULL, NULL, 1, left_out(d, r) ? 1 : 6, 0, 0);
+    }
+}
+
+/* Panel 2: the pot, its censored readings and outliers. */
+static void panel_xb(plot_fig *f, const stagecal_plot_run_data *d, const run_axis *ax, pts *p)
+{
+    const stagecal_runlog *log = d->log;
+    stagecal_plot_series *s;
+    plot_fig_panel(f, "xB [mol/mol]", 1, NAN, NAN);
+    add_windows(f, d, ax, p, 0);
+    signal_line(d, ax, log->xb, log->xb_cens, 1, p);
+    if ((s = plot_fig_add(f, STAGECAL_PLOT_LINE, NULL, p->x, p->y, NULL, p->n, 6, 0, 0)))
+        s->width = 1.2;
+    rows_where(d, ax, p, keep_xb_cens, STAGECAL_CENSOR_ABOVE, y_xb, NULL);
+    plot_fig_add(f, STAGECAL_PLOT_POINTS, NULL, p->x, p->y, NULL, p->n, 3, 0, 2);
+    rows_where(d, ax, p, keep_xb_cens, STAGECAL_CENSOR_BELOW, y_xb, NULL);
+    plot_fig_add(f, STAGECAL_PLOT_POINTS, NULL, p->x, p->y, NULL, p->n, 3, 0, 7);
+    rows_where(d, ax, p, keep_outlier, 0, y_xb, NULL);
+    plot_fig_add(f, STAGECAL_PLOT_POINTS, "xB outlier (not in means)", p->x, p->y, NULL, p->n, 1, 0,
+                 3);
+}
+
+/* Panels 3 and 4: the pot holdup (SI mol -> kmol at the edge) and the reflux ratio, total
+ * reflux drawn along the top. */
+static void panels_w_r(plot_fig *f, const stagecal_plot_run_data *d, const run_axis *ax, pts *p)
+{
+    const stagecal_runlog *log = d->log;
+    stagecal_plot_series *s;
+    plot_fig_panel(f, "W [kmol]", 0.8, NAN, NAN);
+    add_windows(f, d, ax, p, 0);
+    signal_line(d, ax, log->w_mol, NULL, 1e-3, p);
+    if ((s = plot_fig_add(f, STAGECAL_PLOT_LINE, NULL, p->x, p->y, NULL, p->n, 6, 0, 0)))
+        s->width = 1.2;
+
+    double rmax = 0;
+    for (size_t i = 0; i < log->n; i++)
+        if (selected(d, log->run[i]) && isfinite(log->r[i]))
+            rmax = fmax(rmax, log->r[i]);
+    double rtop = rmax > 0 ? 1.12 * rmax : 1;
+    plot_fig_panel(f, "R [-]", 0.8, 0, rtop * 1.06);
+    add_windows(f, d, ax, p, 0);
+    signal_line(d, ax, log->r, NULL, 1, p);
+    if ((s = plot_fig_add(f, STAGECAL_PLOT_LINE, NULL, p->x, p->y, NULL, p->n, 6, 0, 0)))
+        s->width = 1.2;
+    rows_where(d, ax, p, keep_total_reflux, 0, y_const, &rtop);
+    if ((s = plot_fig_add(f, STAGECAL_PLOT_POINTS, "total reflux, drawn at top", p->x, p->y, NULL,
+                          p->n, 4, 0, 5)))
+        s->width = 0.6;
+}
+
+/* The windows' stage counts (evidence): a level over the window, a bar at its middle. */
+static void window_counts(plot_fig *f, const stagecal_plot_run_data *d, const run_axis *ax, pts *p)
+{
+    stagecal_plot_series *s;
+    for (int pass = 0; pass < 2 && d->evidence; pass++) {
+        p->n = 0;
+        for (size_t k = 0; k < d->evidence->n; k++) {
+            const stagecal_evidence *ev = &d->evidence->ev[k];
+            if (!ev->stages_ok || !selected(d, ev->run))
+                continue;
+            const stagecal_runlog_window *w = &d->res->windows[ev->window];
+            double a = axis_x(ax, w->first), b = axis_x(ax, w->last);
+            if (pass == 0) {
+                put(p, a, ev->stages, NAN);
+                put(p, b, ev->stages, NAN);
+                put(p, NAN, NAN, NAN);
+            } else {
+                put(p, 0.5 * (a + b), ev->stages - ERR_BAR_K * ev->se_stages,
+                    ev->stages + ERR_BAR_K * ev->se_stages);
+            }
+        }
+        if (p->n && pass == 0 &&
+            (s = plot_fig_add(f, STAGECAL_PLOT_LINE, "window's stages", p->x, p->y, NULL, p->n, 2,
+                              0, 0)))
+            s->width = 5;
+        if (p->n && pass == 1 &&
+            (s = plot_fig_add(f, STAGECAL_PLOT_ERRBAR, "window's stages \xc2\xb1 2 se", p->x, p->y,
+                              p->z, p->n, 2, 0, 0)))
+            s->width = 2.5;
+    }
+}
+
+/* Panel 5: the samples' stage counts with their bars, one-sided bounds, the samples without
+ * a count (at the foot), and the windows' counts. */
+static void panel_stages(plot_fig *f, const stagecal_plot_run_data *d, const run_axis *ax, pts *p)
+{
+    const stagecal_runlog *log = d->log;
+    stagecal_plot_series *s;
+    double slo, shi;
+    stage_range(d, &slo, &shi);
+    double foot = slo + 0.04 * (shi - slo);
+    plot_fig_panel(f, "stages incl. pot [-]", 1.8, slo, shi);
+    add_windows(f, d, ax, p, 0);
+    p->n = 0;
+    for (size_t i = 0; i < log->n; i++)
+        if (selected(d, log->run[i]) && d->res->status[i] == STAGECAL_STAGES_OK)
+            put(p, axis_x(ax, i), d->res->stages[i] - ERR_BAR_K * d->res->u_stages[i],
+                d->res->stages[i] + ERR_BAR_K * d->res->u_stages[i]);
+    if ((s = plot_fig_add(f, STAGECAL_PLOT_ERRBAR, "sample's stages \xc2\xb1 2 u", p->x, p->y, p->z,
+                          p->n, 5, 0, 0)))
+        s->width = 0.5;
+    rows_where(d, ax, p, keep_status, STAGECAL_STAGES_OK, y_stages, NULL);
+    if ((s = plot_fig_add(f, STAGECAL_PLOT_POINTS, "sample's stages", p->x, p->y, NULL, p->n, 0, 0,
+                          0)))
+        s->width = 0.45;
+    rows_where(d, ax, p, keep_bound, STAGECAL_NOTE_AT_LEAST, y_stages, NULL);
+    plot_fig_add(f, STAGECAL_PLOT_POINTS, "sample: at least (one-sided)", p->x, p->y, NULL, p->n, 3,
+                 0, 2);
+    rows_where(d, ax, p, keep_bound, STAGECAL_NOTE_AT_MOST, y_stages, NULL);
+    plot_fig_add(f, STAGECAL_PLOT_POINTS, "sample: at most (one-sided)", p->x, p->y, NULL, p->n, 3,
+                 0, 7);
+    rows_where(d, ax, p, keep_no_count, 0, y_const, &foot);
+    if ((s = plot_fig_add(f, STAGECAL_PLOT_POINTS, "no stage count (at the foot)", p->x, p->y, NULL,
+                          p->n, 4, 0, 3)))
+        s->width = 0.7;
+    window_counts(f, d, ax, p);
+}
+
 int stagecal_plot_run(const stagecal_plot_run_data *d, stagecal_plot_chart **out,
                       stagecal_error *err)
 {
@@ -323,175 +504,23 @@ int stagecal_plot_run(const stagecal_plot_run_data *d, stagecal_plot_chart **out
     p.cap = cap;
     p.n = 0;
     plot_fig f;
-    int rc;
-    if (!p.x || !p.y || !p.z || !axis_build(d, &ax)) {
-        free(p.x);
-        free(p.y);
-        free(p.z);
-        axis_free(&ax);
-        return error_set(err, STAGECAL_ENOMEM, "out of memory building the run chart");
-    }
-    if ((rc = plot_fig_open(&f, err))) {
-        free(p.x);
-        free(p.y);
-        free(p.z);
-        axis_free(&ax);
-        return rc;
-    }
-
-    /* title and axis */
-    char title[256], xl[160];
-    const int all = d->run == STAGECAL_PLOT_ALL_RUNS;
-    size_t r0 = all ? 0 : d->run, nsel = all ? log->nruns : 1;
-    if (d->title) {
-        snprintf(title, sizeof title, "%s", d->title);
-    } else if (!all) {
-        char when[40] = "";
-        if (log->nfiles_iso > 0) {
-            time_t t = (time_t)ax.t0[r0];
-            struct tm tm;
-            if (gmtime_r(&t, &tm))
-                strftime(when, sizeof when, ", started %Y-%m-%d %H:%M UTC", &tm);
-        }
-        snprintf(title, sizeof title, "Run %s%s%s", log->runs[r0].name, when,
-                 left_out(d, r0) ? " (left out of the fit)" : "");
-    } else {
-        snprintf(title, sizeof title, "%zu runs, %s to %s: signals, quasi-steady windows, stages",
-                 nsel, log->runs[0].name, log->runs[log->nruns - 1].name);
-    }
-    snprintf(xl, sizeof xl, "%s",
-             all ? "time since the start of each run [h] (runs side by side, in log order)"
-                 : "time since the start of the run [h]");
-    plot_fig_labels(&f, title, xl, NULL);
-    f.c->legend = 1;
-
-    /* 1: distillate, with head room for the run names */
-    double xd_lo = INFINITY, xd_hi = -INFINITY;
-    for (size_t i = 0; i < log->n; i++)
-        if (selected(d, log->run[i]) && isfinite(log->xd[i]))
-            xd_lo = fmin(xd_lo, log->xd[i]), xd_hi = fmax(xd_hi, log->xd[i]);
-    if (!isfinite(xd_lo))
-        xd_lo = 0, xd_hi = 1;
-    double xd_pad = fmax(xd_hi - xd_lo, 1e-3);
-    xd_lo -= 0.05 * xd_pad;
-    xd_hi += (all ? 0.35 : 0.08) * xd_pad;
-    plot_fig_panel(&f, "xD [mol/mol]", 1, xd_lo, xd_hi);
-    add_windows(&f, d, &ax, &p, 1);
-    signal_line(d, &ax, log->xd, log->xd_cens, 1, &p);
-    stagecal_plot_series *s =
-        plot_fig_add(&f, STAGECAL_PLOT_LINE, "logged signal", p.x, p.y, NULL, p.n, 6, 0, 0);
-    if (s)
-        s->width = 1.2;
-    rows_where(d, &ax, &p, keep_xd_cens, STAGECAL_CENSOR_ABOVE, y_xd, NULL);
-    plot_fig_add(&f, STAGECAL_PLOT_POINTS, "censored: at or above", p.x, p.y, NULL, p.n, 3, 0, 2);
-    rows_where(d, &ax, &p, keep_xd_cens, STAGECAL_CENSOR_BELOW, y_xd, NULL);
-    plot_fig_add(&f, STAGECAL_PLOT_POINTS, "censored: at or below", p.x, p.y, NULL, p.n, 3, 0, 7);
-    for (size_t r = 0; r < log->nruns; r++) { /* run names above the runs */
-        if (!selected(d, r) || !all)
-            continue;
-        char lab[96];
-        snprintf(lab, sizeof lab, "%s%s", log->runs[r].name, left_out(d, r) ? " (left out)" : "");
-        double x = ax.offset[r];
-        plot_fig_add(&f, STAGECAL_PLOT_TEXT, lab, &x, NULL, NULL, 1, left_out(d, r) ? 1 : 6, 0, 0);
-    }
-
-    /* 2: pot */
-    plot_fig_panel(&f, "xB [mol/mol]", 1, NAN, NAN);
-    add_windows(&f, d, &ax, &p, 0);
-    signal_line(d, &ax, log->xb, log->xb_cens, 1, &p);
-    if ((s = plot_fig_add(&f, STAGECAL_PLOT_LINE, NULL, p.x, p.y, NULL, p.n, 6, 0, 0)))
-        s->width = 1.2;
-    rows_where(d, &ax, &p, keep_xb_cens, STAGECAL_CENSOR_ABOVE, y_xb, NULL);
-    plot_fig_add(&f, STAGECAL_PLOT_POINTS, NULL, p.x, p.y, NULL, p.n, 3, 0, 2);
-    rows_where(d, &ax, &p, keep_xb_cens, STAGECAL_CENSOR_BELOW, y_xb, NULL);
-    plot_fig_add(&f, STAGECAL_PLOT_POINTS, NULL, p.x, p.y, NULL, p.n, 3, 0, 7);
-    rows_where(d, &ax, &p, keep_outlier, 0, y_xb, NULL);
-    plot_fig_add(&f, STAGECAL_PLOT_POINTS, "xB outlier (not in means)", p.x, p.y, NULL, p.n, 1, 0,
-                 3);
-
-    /* 3: holdup (SI mol → kmol at the edge) */
-    plot_fig_panel(&f, "W [kmol]", 0.8, NAN, NAN);
-    add_windows(&f, d, &ax, &p, 0);
-    signal_line(d, &ax, log->w_mol, NULL, 1e-3, &p);
-    if ((s = plot_fig_add(&f, STAGECAL_PLOT_LINE, NULL, p.x, p.y, NULL, p.n, 6, 0, 0)))
-        s->width = 1.2;
-
-    /* 4: reflux; total reflux drawn along the top */
-    double rmax = 0;
-    for (size_t i = 0; i < log->n; i++)
-        if (selected(d, log->run[i]) && isfinite(log->r[i]))
-            rmax = fmax(rmax, log->r[i]);
-    double rtop = rmax > 0 ? 1.12 * rmax : 1;
-    plot_fig_panel(&f, "R [-]", 0.8, 0, rtop * 1.06);
-    add_windows(&f, d, &ax, &p, 0);
-    signal_line(d, &ax, log->r, NULL, 1, &p);
-    if ((s = plot_fig_add(&f, STAGECAL_PLOT_LINE, NULL, p.x, p.y, NULL, p.n, 6, 0, 0)))
-        s->width = 1.2;
-    rows_where(d, &ax, &p, keep_total_reflux, 0, y_const, &rtop);
-    if ((s = plot_fig_add(&f, STAGECAL_PLOT_POINTS, "total reflux, drawn at top", p.x, p.y, NULL,
-                          p.n, 4, 0, 5)))
-        s->width = 0.6;
-
-    /* 5: stage counts */
-    double slo, shi;
-    stage_range(d, &slo, &shi);
-    double foot = slo + 0.04 * (shi - slo);
-    plot_fig_panel(&f, "stages incl. pot [-]", 1.8, slo, shi);
-    add_windows(&f, d, &ax, &p, 0);
-    p.n = 0;
-    for (size_t i = 0; i < log->n; i++)
-        if (selected(d, log->run[i]) && d->res->status[i] == STAGECAL_STAGES_OK)
-            put(&p, axis_x(&ax, i), d->res->stages[i] - ERR_BAR_K * d->res->u_stages[i],
-                d->res->stages[i] + ERR_BAR_K * d->res->u_stages[i]);
-    if ((s = plot_fig_add(&f, STAGECAL_PLOT_ERRBAR, "sample's stages \xc2\xb1 2 u", p.x, p.y, p.z,
-                          p.n, 5, 0, 0)))
-        s->width = 0.5;
-    rows_where(d, &ax, &p, keep_status, STAGECAL_STAGES_OK, y_stages, NULL);
-    if ((s = plot_fig_add(&f, STAGECAL_PLOT_POINTS, "sample's stages", p.x, p.y, NULL, p.n, 0, 0,
-                          0)))
-        s->width = 0.45;
-    rows_where(d, &ax, &p, keep_bound, STAGECAL_NOTE_AT_LEAST, y_stages, NULL);
-    plot_fig_add(&f, STAGECAL_PLOT_POINTS, "sample: at least (one-sided)", p.x, p.y, NULL, p.n, 3,
-                 0, 2);
-    rows_where(d, &ax, &p, keep_bound, STAGECAL_NOTE_AT_MOST, y_stages, NULL);
-    plot_fig_add(&f, STAGECAL_PLOT_POINTS, "sample: at most (one-sided)", p.x, p.y, NULL, p.n, 3, 0,
-                 7);
-    rows_where(d, &ax, &p, keep_no_count, 0, y_const, &foot);
-    if ((s = plot_fig_add(&f, STAGECAL_PLOT_POINTS, "no stage count (at the foot)", p.x, p.y, NULL,
-                          p.n, 4, 0, 3)))
-        s->width = 0.7;
-    /* the windows' stage counts (evidence): a level over the window, a bar at its middle */
-    for (int pass = 0; pass < 2 && d->evidence; pass++) {
-        p.n = 0;
-        for (size_t k = 0; k < d->evidence->n; k++) {
-            const stagecal_evidence *ev = &d->evidence->ev[k];
-            if (!ev->stages_ok || !selected(d, ev->run))
-                continue;
-            const stagecal_runlog_window *w = &d->res->windows[ev->window];
-            double a = axis_x(&ax, w->first), b = axis_x(&ax, w->last);
-            if (pass == 0) {
-                put(&p, a, ev->stages, NAN);
-                put(&p, b, ev->stages, NAN);
-                put(&p, NAN, NAN, NAN);
-            } else {
-                put(&p, 0.5 * (a + b), ev->stages - ERR_BAR_K * ev->se_stages,
-                    ev->stages + ERR_BAR_K * ev->se_stages);
-            }
-        }
-        if (p.n && pass == 0 &&
-            (s = plot_fig_add(&f, STAGECAL_PLOT_LINE, "window's stages", p.x, p.y, NULL, p.n, 2, 0,
-                              0)))
-            s->width = 5;
-        if (p.n && pass == 1 &&
-            (s = plot_fig_add(&f, STAGECAL_PLOT_ERRBAR, "window's stages \xc2\xb1 2 se", p.x, p.y,
-                              p.z, p.n, 2, 0, 0)))
-            s->width = 2.5;
+    int rc = STAGECAL_OK;
+    if (!p.x || !p.y || !p.z || !axis_build(d, &ax))
+        rc = error_set(err, STAGECAL_ENOMEM, "out of memory building the run chart");
+    else
+        rc = plot_fig_open(&f, err);
+    if (rc == STAGECAL_OK) {
+        run_title(&f, d, &ax);
+        panel_xd(&f, d, &ax, &p);
+        panel_xb(&f, d, &ax, &p);
+        panels_w_r(&f, d, &ax, &p);
+        panel_stages(&f, d, &ax, &p);
     }
     free(p.x);
     free(p.y);
     free(p.z);
     axis_free(&ax);
-    return plot_fig_close(&f, out, err);
+    return rc == STAGECAL_OK ? plot_fig_close(&f, out, err) : rc;
 }
 
 int stagecal_plot_run_calibration(const stagecal_calibration *cal, size_t run,
