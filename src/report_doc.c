@@ -393,32 +393,10 @@ int stagecal_report_doc_set_description(stagecal_report_doc *d, const char *desc
     return d->oom ? STAGECAL_ENOMEM : STAGECAL_OK;
 }
 
-int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_data *pts,
-                               stagecal_report_doc **out, stagecal_error *err)
+/* The job list: column, system and its equilibrium parameters, conventions, evidence, when
+ * and how it was fitted. */
+static void doc_job(stagecal_report_doc *d, const stagecal_model *m)
 {
-    int rc;
-    if (!m || !out)
-        return error_set(err, STAGECAL_EINVAL, "report: missing model or output pointer");
-    *out = NULL;
-    if ((rc = stagecal_model_check(m, err)))
-        return rc;
-    stagecal_report_doc *d = calloc(1, sizeof *d);
-    if (!d)
-        return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    size_t p = m->form.p;
-    d->in_cells = calloc(3 * (m->n_inputs + 1), sizeof *d->in_cells);
-    d->fit_cells = calloc(4 * p, sizeof *d->fit_cells);
-    d->warn = calloc(DOC_MAX_WARN, sizeof *d->warn);
-    d->pt_cells = calloc(4 * (pts ? pts->n : 0) + 1, sizeof *d->pt_cells);
-    if (!d->in_cells || !d->fit_cells || !d->warn || !d->pt_cells) {
-        stagecal_report_doc_free(d);
-        return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    }
-    stagecal_report *r = &d->rep;
-    r->title = report_doc_str(d, "Stage calibration report \xe2\x80\x94 %s", m->column_id);
-    r->subtitle = report_doc_str(d, "column %s \xc2\xb7 fitted %s by stagecal %s", m->column_id,
-                                 m->fitted_utc, m->tool_version);
-
     size_t nj = 0;
     report_doc_add_item(d->job, &nj, "column", m->column_id);
     report_doc_add_item(
@@ -443,29 +421,31 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
         report_doc_str(d, "%s, stagecal %s, seed %llu", m->fitted_utc, m->tool_version, m->seed));
     if (m->command_line)
         report_doc_add_item(d->job, &nj, "command line", m->command_line);
-    r->job = d->job;
-    r->n_job = nj;
+    d->rep.job = d->job;
+    d->rep.n_job = nj;
+}
 
-    if (m->n_inputs > 0) {
-        d->in_head[0] = "input file", d->in_head[1] = "SHA-256", d->in_head[2] = "rows";
-        for (size_t i = 0; i < m->n_inputs; i++) {
-            d->in_cells[3 * i] = m->inputs[i].path;
-            d->in_cells[3 * i + 1] = m->inputs[i].sha256;
-            d->in_cells[3 * i + 2] = report_doc_str(d, "%zu", m->inputs[i].rows);
-        }
-        d->inputs = (stagecal_report_table){"Inputs (data provenance)", d->in_head, 3, d->in_cells,
-                                            m->n_inputs};
-        r->inputs = &d->inputs;
+/* The inputs' provenance table (path, SHA-256, rows), when the model file records inputs. */
+static void doc_inputs(stagecal_report_doc *d, const stagecal_model *m)
+{
+    if (m->n_inputs == 0)
+        return;
+    d->in_head[0] = "input file", d->in_head[1] = "SHA-256", d->in_head[2] = "rows";
+    for (size_t i = 0; i < m->n_inputs; i++) {
+        d->in_cells[3 * i] = m->inputs[i].path;
+        d->in_cells[3 * i + 1] = m->inputs[i].sha256;
+        d->in_cells[3 * i + 2] = report_doc_str(d, "%zu", m->inputs[i].rows);
     }
+    d->inputs = (stagecal_report_table){"Inputs (data provenance)", d->in_head, 3, d->in_cells,
+                                        m->n_inputs};
+    d->rep.inputs = &d->inputs;
+}
 
-    /* fit table: t quantile at the model's level from stagecal_model_eval (any point) */
-    stagecal_model_point p0;
-    double f_mid = m->has_load ? 0.5 * (m->f_min + m->f_max) : NAN;
-    double r_ref = isfinite(m->r_max) ? 0.5 * (m->r_min + m->r_max) : fmax(m->r_min, 1.0);
-    if ((rc = stagecal_model_eval(m, r_ref, f_mid, 0, &p0, err))) {
-        stagecal_report_doc_free(d);
-        return rc;
-    }
+/* The fit table (value, standard error, interval with the t quantile t at the model's level;
+ * a bound for a one-sided model) and the summary under it. */
+static void doc_fit(stagecal_report_doc *d, const stagecal_model *m, double t)
+{
+    size_t p = m->form.p;
     d->fit_head[0] = "parameter", d->fit_head[1] = "value", d->fit_head[2] = "std. error";
     d->fit_head[3] = report_doc_str(d, "%.0f %% interval", 100 * m->level);
     for (size_t i = 0; i < p; i++) {
@@ -474,7 +454,7 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
         d->fit_cells[4 * i + 1] = report_doc_str(d, "%.6g", m->theta[i]);
         d->fit_cells[4 * i + 2] = report_doc_str(d, "%.3g", se);
         d->fit_cells[4 * i + 3] =
-            report_doc_str(d, "[%.6g, %.6g]", m->theta[i] - p0.t * se, m->theta[i] + p0.t * se);
+            report_doc_str(d, "[%.6g, %.6g]", m->theta[i] - t * se, m->theta[i] + t * se);
         if (m->one_sided) { /* "at least N stages": a bound, no standard error */
             d->fit_cells[4 * i + 1] = report_doc_str(d, "at least %.6g", m->theta[i]);
             d->fit_cells[4 * i + 2] = "none (one-sided)";
@@ -486,7 +466,7 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
         report_doc_str(d, "The %s fit of '%s' (the one the model file carries)",
                        stagecal_model_method_name(m->method), m->form.name),
         d->fit_head, 4, d->fit_cells, p};
-    r->fit = &d->fit;
+    d->rep.fit = &d->fit;
     size_t ns = 0;
     if (m->one_sided)
         report_doc_add_item(
@@ -511,52 +491,52 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
     report_doc_add_item(
         d->summary, &ns, "evidence",
         report_doc_str(d, "%zu independent windows (the unit of evidence)", m->n_windows));
-    r->fit_summary = d->summary;
-    r->n_fit_summary = ns;
+    d->rep.fit_summary = d->summary;
+    d->rep.n_fit_summary = ns;
+}
 
-    /* page one: the answer at the condition HETP is referred to (the calibration's), else
-     * at the largest fitted R and the middle of the fitted load */
-    if (m->has_hetp)
-        rc = doc_answer(d, m, m->hetp_r, m->has_load ? m->hetp_f : NAN,
-                        "the calibration's reference condition", err);
-    else
-        rc = doc_answer(d, m, r_ref_answer(m), f_mid,
-                        m->has_load ? "the largest fitted R, the middle of the fitted load"
-                                    : "the largest fitted R",
-                        err);
-    if (rc) {
-        stagecal_report_doc_free(d);
-        return rc;
-    }
-    r->signoff = 1;
+/* The period of the logged samples behind the fit, or that the logs carry relative times. */
+static void doc_data_period(stagecal_report_doc *d, const stagecal_model *m)
+{
     if (m->data_first_utc[0] && m->data_last_utc[0])
-        r->data_period = report_doc_str(d,
-                                        "%.10s %.5s to %.10s %.5s UTC (logged samples of the %zu "
-                                        "windows that carry the fit, from %zu runs)",
-                                        m->data_first_utc, m->data_first_utc + 11, m->data_last_utc,
-                                        m->data_last_utc + 11, m->n_windows, m->n_runs);
+        d->rep.data_period =
+            report_doc_str(d,
+                           "%.10s %.5s to %.10s %.5s UTC (logged samples of the %zu "
+                           "windows that carry the fit, from %zu runs)",
+                           m->data_first_utc, m->data_first_utc + 11, m->data_last_utc,
+                           m->data_last_utc + 11, m->n_windows, m->n_runs);
     else
-        r->data_period = report_doc_str(d,
-                                        "not recorded (the logs carry relative times); %zu windows "
-                                        "from %zu runs",
-                                        m->n_windows, m->n_runs);
+        d->rep.data_period = report_doc_str(d,
+                                            "not recorded (the logs carry relative times); %zu "
+                                            "windows from %zu runs",
+                                            m->n_windows, m->n_runs);
+}
 
-    if (pts && pts->n > 0) {
-        /* the points as numbers: for a calibration, each window's stage count and standard
-         * error (the evidence module's, as in invert --json and --points-out) */
-        d->pt_head[0] = "R [-]", d->pt_head[1] = "F [Pa^0.5]", d->pt_head[2] = "stages [-]";
-        d->pt_head[3] = "std. error [-]";
-        for (size_t i = 0; i < pts->n; i++) {
-            d->pt_cells[4 * i] = report_doc_fmt_r(d, pts->r[i]);
-            d->pt_cells[4 * i + 1] = pts->f_load ? report_doc_str(d, "%.4g", pts->f_load[i]) : NULL;
-            d->pt_cells[4 * i + 2] = report_doc_str(d, "%.4f", pts->stages[i]);
-            d->pt_cells[4 * i + 3] = pts->sigma ? report_doc_str(d, "%.4f", pts->sigma[i]) : NULL;
-        }
-        d->points = (stagecal_report_table){
-            "Points of the fit (from a calibration: one per quasi-steady window)", d->pt_head, 4,
-            d->pt_cells, pts->n};
-        r->windows = &d->points;
+/* The points as numbers: for a calibration, each window's stage count and standard error
+ * (the evidence module's, as in invert --json and --points-out). */
+static void doc_points(stagecal_report_doc *d, const stagecal_regress_data *pts)
+{
+    if (!pts || pts->n == 0)
+        return;
+    d->pt_head[0] = "R [-]", d->pt_head[1] = "F [Pa^0.5]", d->pt_head[2] = "stages [-]";
+    d->pt_head[3] = "std. error [-]";
+    for (size_t i = 0; i < pts->n; i++) {
+        d->pt_cells[4 * i] = report_doc_fmt_r(d, pts->r[i]);
+        d->pt_cells[4 * i + 1] = pts->f_load ? report_doc_str(d, "%.4g", pts->f_load[i]) : NULL;
+        d->pt_cells[4 * i + 2] = report_doc_str(d, "%.4f", pts->stages[i]);
+        d->pt_cells[4 * i + 3] = pts->sigma ? report_doc_str(d, "%.4f", pts->sigma[i]) : NULL;
     }
+    d->points = (stagecal_report_table){
+        "Points of the fit (from a calibration: one per quasi-steady window)", d->pt_head, 4,
+        d->pt_cells, pts->n};
+    d->rep.windows = &d->points;
+}
+
+/* The model file's warnings, then the points outside the fitted envelope (ten named, the rest
+ * counted); f_mid is the load of points that carry none. */
+static void doc_warnings(stagecal_report_doc *d, const stagecal_model *m,
+                         const stagecal_regress_data *pts, double f_mid)
+{
     for (size_t i = 0; i < m->n_warnings; i++)
         add_warning(d, m->warnings[i]);
     size_t outside = 0;
@@ -575,7 +555,64 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
     if (outside > 10)
         add_warning(
             d, report_doc_str(d, "%zu more points lie outside the fitted envelope", outside - 10));
-    r->warnings = d->warn;
+    d->rep.warnings = d->warn;
+}
+
+int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_data *pts,
+                               stagecal_report_doc **out, stagecal_error *err)
+{
+    int rc;
+    if (!m || !out)
+        return error_set(err, STAGECAL_EINVAL, "report: missing model or output pointer");
+    *out = NULL;
+    if ((rc = stagecal_model_check(m, err)))
+        return rc;
+    stagecal_report_doc *d = calloc(1, sizeof *d);
+    if (!d)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    d->in_cells = calloc(3 * (m->n_inputs + 1), sizeof *d->in_cells);
+    d->fit_cells = calloc(4 * m->form.p, sizeof *d->fit_cells);
+    d->warn = calloc(DOC_MAX_WARN, sizeof *d->warn);
+    d->pt_cells = calloc(4 * (pts ? pts->n : 0) + 1, sizeof *d->pt_cells);
+    if (!d->in_cells || !d->fit_cells || !d->warn || !d->pt_cells) {
+        stagecal_report_doc_free(d);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    stagecal_report *r = &d->rep;
+    r->title = report_doc_str(d, "Stage calibration report \xe2\x80\x94 %s", m->column_id);
+    r->subtitle = report_doc_str(d, "column %s \xc2\xb7 fitted %s by stagecal %s", m->column_id,
+                                 m->fitted_utc, m->tool_version);
+    doc_job(d, m);
+    doc_inputs(d, m);
+
+    /* fit table: t quantile at the model's level from stagecal_model_eval (any point) */
+    stagecal_model_point p0;
+    double f_mid = m->has_load ? 0.5 * (m->f_min + m->f_max) : NAN;
+    double r_ref = isfinite(m->r_max) ? 0.5 * (m->r_min + m->r_max) : fmax(m->r_min, 1.0);
+    if ((rc = stagecal_model_eval(m, r_ref, f_mid, 0, &p0, err))) {
+        stagecal_report_doc_free(d);
+        return rc;
+    }
+    doc_fit(d, m, p0.t);
+
+    /* page one: the answer at the condition HETP is referred to (the calibration's), else
+     * at the largest fitted R and the middle of the fitted load */
+    if (m->has_hetp)
+        rc = doc_answer(d, m, m->hetp_r, m->has_load ? m->hetp_f : NAN,
+                        "the calibration's reference condition", err);
+    else
+        rc = doc_answer(d, m, r_ref_answer(m), f_mid,
+                        m->has_load ? "the largest fitted R, the middle of the fitted load"
+                                    : "the largest fitted R",
+                        err);
+    if (rc) {
+        stagecal_report_doc_free(d);
+        return rc;
+    }
+    r->signoff = 1;
+    doc_data_period(d, m);
+    doc_points(d, pts);
+    doc_warnings(d, m, pts, f_mid);
 
     rc = doc_fit_chart(d, m, pts, f_mid, err);
     if (rc == STAGECAL_OK && pts && pts->n > 0)
