@@ -246,14 +246,42 @@ static void put_svg(buf *b, const char *svg, size_t k, const stagecal_plot_chart
     put(b, "\n");
 }
 
-int stagecal_report_html(const stagecal_report *r, const stagecal_report_params *params,
-                         char **html, size_t *len, stagecal_error *err)
+/* <section id="ID" class="CLS"><h2>HEADING</h2> (cls NULL: no class); the headings are
+ * plain text. */
+static void section_open(buf *b, const char *id, const char *cls, const char *heading)
 {
-    stagecal_report_params par = params ? *params : stagecal_report_default_params();
+    putf(b, "<section id=\"%s\"", id);
+    if (cls)
+        putf(b, " class=\"%s\"", cls);
+    putf(b, ">\n<h2>%s</h2>\n", heading);
+}
+
+/* A section of labelled items, when there are any. */
+static void section_items(buf *b, const char *id, const char *heading,
+                          const stagecal_report_item *it, size_t n)
+{
+    if (n == 0 || !it)
+        return;
+    section_open(b, id, NULL, heading);
+    put_items(b, it, n);
+    put(b, "</section>\n");
+}
+
+/* A section of one table (class cls), when there is one. */
+static void section_table(buf *b, const char *id, const char *heading,
+                          const stagecal_report_table *t, const char *cls)
+{
+    if (!t)
+        return;
+    section_open(b, id, NULL, heading);
+    put_table(b, t, cls);
+    put(b, "</section>\n");
+}
+
+/* The tables' shapes and the figures' charts, before anything is written. */
+static int check_content(const stagecal_report *r, stagecal_error *err)
+{
     int rc;
-    if (!r || !html)
-        return error_set(err, STAGECAL_EINVAL, "report: missing content or output pointer");
-    *html = NULL;
     if ((rc = check_table(r->inputs, "inputs", err)) ||
         (rc = check_table(r->windows, "windows", err)) || (rc = check_table(r->fit, "fit", err)) ||
         (rc = check_table(r->runs, "runs", err)) ||
@@ -269,89 +297,130 @@ int stagecal_report_html(const stagecal_report *r, const stagecal_report_params 
             return error_set(err, rc, "report figure %zu: %s", k + 1, msg);
         }
     }
+    return STAGECAL_OK;
+}
 
-    buf b = {0};
+/* The document's head, the title block and the demo notice. */
+static void put_head(buf *b, const stagecal_report *r)
+{
     const char *title = r->title ? r->title : "Stage calibration report";
-    put(&b, "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
-            "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
-            "<title>");
-    put_esc(&b, title);
-    put(&b, "</title>\n<style>");
-    put(&b, css);
-    put(&b, "</style>\n</head>\n<body>\n<header>\n<h1>");
-    put_esc(&b, title);
-    put(&b, "</h1>\n");
+    put(b, "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
+           "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">\n"
+           "<title>");
+    put_esc(b, title);
+    put(b, "</title>\n<style>");
+    put(b, css);
+    put(b, "</style>\n</head>\n<body>\n<header>\n<h1>");
+    put_esc(b, title);
+    put(b, "</h1>\n");
     if (r->subtitle) {
-        put(&b, "<p class=\"sub\">");
-        put_esc(&b, r->subtitle);
-        put(&b, "</p>\n");
+        put(b, "<p class=\"sub\">");
+        put_esc(b, r->subtitle);
+        put(b, "</p>\n");
     }
-    put(&b, "</header>\n");
+    put(b, "</header>\n");
     if (r->demo_notice) {
-        put(&b, "<p class=\"demo\" id=\"demo\"><strong>INVENTED DEMO DATA</strong> \xe2\x80\x94 ");
-        put_esc(&b, r->demo_notice);
-        put(&b, "</p>\n");
+        put(b, "<p class=\"demo\" id=\"demo\"><strong>INVENTED DEMO DATA</strong> \xe2\x80\x94 ");
+        put_esc(b, r->demo_notice);
+        put(b, "</p>\n");
     }
-    /* page one: the answer, the caution and the sign-off, printed alone on the first
-     * sheet (the caution is kept with the block before it, never alone on a page) */
+}
+
+/* Page one: the answer, the caution and the sign-off, printed alone on the first sheet (the
+ * caution is kept with the block before it, never alone on a page). */
+static void put_page_one(buf *b, const stagecal_report *r)
+{
     int page_one = (r->n_answer > 0 && r->answer) || r->signoff;
-    putf(&b, "<div class=\"page-one%s\">\n", page_one ? " break" : "");
+    putf(b, "<div class=\"page-one%s\">\n", page_one ? " break" : "");
     if ((r->n_answer > 0 && r->answer) || (r->n_verdicts > 0 && r->verdicts) || r->data_period) {
-        put(&b, "<section id=\"answer\">\n<h2>");
-        put_esc(&b, r->answer_heading ? r->answer_heading : "The answer");
-        put(&b, "</h2>\n");
+        put(b, "<section id=\"answer\">\n<h2>");
+        put_esc(b, r->answer_heading ? r->answer_heading : "The answer");
+        put(b, "</h2>\n");
         if (r->n_answer > 0 && r->answer)
-            put_items(&b, r->answer, r->n_answer);
+            put_items(b, r->answer, r->n_answer);
         if (r->n_verdicts > 0 && r->verdicts)
-            put_list(&b, r->verdicts, r->n_verdicts, "verdicts");
+            put_list(b, r->verdicts, r->n_verdicts, "verdicts");
         if (r->data_period) {
-            put(&b, "<p class=\"period\"><strong>Data period:</strong> ");
-            put_esc(&b, r->data_period);
-            put(&b, "</p>\n");
+            put(b, "<p class=\"period\"><strong>Data period:</strong> ");
+            put_esc(b, r->data_period);
+            put(b, "</p>\n");
         }
-        put(&b, "</section>\n");
+        put(b, "</section>\n");
     }
-    put(&b, "<section id=\"caution\" class=\"caution\">\n<h2>Caution</h2>\n<p>");
-    put_esc(&b, stagecal_caution_text());
-    put(&b, "</p>\n</section>\n");
+    put(b, "<section id=\"caution\" class=\"caution\">\n<h2>Caution</h2>\n<p>");
+    put_esc(b, stagecal_caution_text());
+    put(b, "</p>\n</section>\n");
     if (r->signoff) {
         static const char *const roles[] = {"Prepared by", "Checked by", "Approved by"};
-        put(&b, "<section id=\"signoff\" class=\"keep\">\n<h2>Sign-off</h2>\n"
-                "<table class=\"signoff\">\n<thead><tr><th>role</th><th>name</th>"
-                "<th>signature</th><th>date</th></tr></thead>\n<tbody>\n");
+        put(b, "<section id=\"signoff\" class=\"keep\">\n<h2>Sign-off</h2>\n"
+               "<table class=\"signoff\">\n<thead><tr><th>role</th><th>name</th>"
+               "<th>signature</th><th>date</th></tr></thead>\n<tbody>\n");
         for (size_t i = 0; i < 3; i++)
-            putf(&b, "<tr><th>%s</th><td></td><td></td><td></td></tr>\n", roles[i]);
-        put(&b, "</tbody></table>\n</section>\n");
+            putf(b, "<tr><th>%s</th><td></td><td></td><td></td></tr>\n", roles[i]);
+        put(b, "</tbody></table>\n</section>\n");
     }
-    put(&b, "</div>\n");
+    put(b, "</div>\n");
+}
+
+/* The charts as inline SVG, each a numbered figure with its caption. A status. */
+static int put_figures(buf *b, const stagecal_report *r, const stagecal_report_params *par,
+                       stagecal_error *err)
+{
+    if (r->n_figures == 0)
+        return STAGECAL_OK;
+    section_open(b, "plots", NULL, "Charts");
+    for (size_t k = 0; k < r->n_figures && !b->oom; k++) {
+        char *svg = NULL;
+        stagecal_plot_params pp = par->plot;
+        if (r->figure_height && r->figure_height[k] > 0)
+            pp.height = r->figure_height[k];
+        int rc = stagecal_plot_svg(r->figures[k].chart, &pp, &svg, NULL, err);
+        if (rc)
+            return rc;
+        putf(b, "<figure id=\"figure-%zu\">\n", k + 1);
+        put_svg(b, svg, k + 1, r->figures[k].chart, pp.height > pp.width);
+        free(svg);
+        if (r->figures[k].caption) {
+            putf(b, "<figcaption>Figure %zu. ", k + 1);
+            put_esc(b, r->figures[k].caption);
+            put(b, "</figcaption>\n");
+        }
+        put(b, "</figure>\n");
+    }
+    put(b, "</section>\n");
+    return STAGECAL_OK;
+}
+
+int stagecal_report_html(const stagecal_report *r, const stagecal_report_params *params,
+                         char **html, size_t *len, stagecal_error *err)
+{
+    stagecal_report_params par = params ? *params : stagecal_report_default_params();
+    int rc;
+    if (!r || !html)
+        return error_set(err, STAGECAL_EINVAL, "report: missing content or output pointer");
+    *html = NULL;
+    if ((rc = check_content(r, err)))
+        return rc;
+
+    buf b = {0};
+    put_head(&b, r);
+    put_page_one(&b, r);
     /* warnings next: an extrapolation must not be missed */
     if (r->n_warnings > 0 && r->warnings) {
-        put(&b, "<section id=\"warnings\" class=\"warn\">\n<h2>Warnings</h2>\n");
+        section_open(&b, "warnings", "warn", "Warnings");
         put_list(&b, r->warnings, r->n_warnings, NULL);
         put(&b, "</section>\n");
     }
     if (r->n_findings > 0 && r->findings) {
-        put(&b, "<section id=\"validation\">\n<h2>Validation findings</h2>\n");
+        section_open(&b, "validation", NULL, "Validation findings");
         put_list(&b, r->findings, r->n_findings, NULL);
         put(&b, "</section>\n");
     }
-    if (r->runs) {
-        put(&b, "<section id=\"evidence\">\n<h2>Evidence: runs</h2>\n");
-        put_table(&b, r->runs, "runs");
-        put(&b, "</section>\n");
-    }
-    if (r->windows) {
-        put(&b, "<section id=\"windows\">\n<h2>Quasi-steady windows</h2>\n");
-        put_table(&b, r->windows, "windows");
-        put(&b, "</section>\n");
-    }
-    if (r->closure) {
-        put(&b, "<section id=\"closure\">\n<h2>Run closure</h2>\n");
-        put_table(&b, r->closure, "closure");
-        put(&b, "</section>\n");
-    }
+    section_table(&b, "evidence", "Evidence: runs", r->runs, "runs");
+    section_table(&b, "windows", "Quasi-steady windows", r->windows, "windows");
+    section_table(&b, "closure", "Run closure", r->closure, "closure");
     if (r->fit || (r->n_fit_summary > 0 && r->fit_summary) || r->fit_other) {
-        put(&b, "<section id=\"fit\">\n<h2>Fitted correlation</h2>\n");
+        section_open(&b, "fit", NULL, "Fitted correlation");
         if (r->fit)
             put_table(&b, r->fit, "fit");
         if (r->n_fit_summary > 0 && r->fit_summary)
@@ -362,47 +431,15 @@ int stagecal_report_html(const stagecal_report *r, const stagecal_report_params 
             put_items(&b, r->fit_other_summary, r->n_fit_other_summary);
         put(&b, "</section>\n");
     }
-    if (r->n_condition > 0 && r->condition) {
-        put(&b, "<section id=\"condition\">\n<h2>Stages at a stated condition</h2>\n");
-        put_items(&b, r->condition, r->n_condition);
-        put(&b, "</section>\n");
-    }
-    if (r->n_hetp > 0 && r->hetp) {
-        put(&b, "<section id=\"hetp\">\n<h2>HETP</h2>\n");
-        put_items(&b, r->hetp, r->n_hetp);
-        put(&b, "</section>\n");
-    }
-    if (r->n_trend > 0 && r->trend) {
-        put(&b, "<section id=\"trend\">\n<h2>Trend</h2>\n");
-        put_items(&b, r->trend, r->n_trend);
-        put(&b, "</section>\n");
-    }
-    if (r->n_figures > 0) {
-        put(&b, "<section id=\"plots\">\n<h2>Charts</h2>\n");
-        for (size_t k = 0; k < r->n_figures && !b.oom; k++) {
-            char *svg = NULL;
-            stagecal_plot_params pp = par.plot;
-            if (r->figure_height && r->figure_height[k] > 0)
-                pp.height = r->figure_height[k];
-            rc = stagecal_plot_svg(r->figures[k].chart, &pp, &svg, NULL, err);
-            if (rc) {
-                free(b.s);
-                return rc;
-            }
-            putf(&b, "<figure id=\"figure-%zu\">\n", k + 1);
-            put_svg(&b, svg, k + 1, r->figures[k].chart, pp.height > pp.width);
-            free(svg);
-            if (r->figures[k].caption) {
-                putf(&b, "<figcaption>Figure %zu. ", k + 1);
-                put_esc(&b, r->figures[k].caption);
-                put(&b, "</figcaption>\n");
-            }
-            put(&b, "</figure>\n");
-        }
-        put(&b, "</section>\n");
+    section_items(&b, "condition", "Stages at a stated condition", r->condition, r->n_condition);
+    section_items(&b, "hetp", "HETP", r->hetp, r->n_hetp);
+    section_items(&b, "trend", "Trend", r->trend, r->n_trend);
+    if ((rc = put_figures(&b, r, &par, err))) {
+        free(b.s);
+        return rc;
     }
     if ((r->n_job > 0 && r->job) || r->inputs) {
-        put(&b, "<section id=\"job\">\n<h2>Provenance</h2>\n");
+        section_open(&b, "job", NULL, "Provenance");
         if (r->n_job > 0 && r->job)
             put_items(&b, r->job, r->n_job);
         if (r->inputs)
@@ -410,7 +447,6 @@ int stagecal_report_html(const stagecal_report *r, const stagecal_report_params 
         put(&b, "</section>\n");
     }
     put(&b, "<footer>Generated by ");
-
     put_esc(&b, r->generator ? r->generator : "stagecal");
     if (!r->generator) {
         put(&b, " ");
