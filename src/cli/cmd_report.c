@@ -138,6 +138,68 @@ static int print_result(const stagecal_report *rep, const char *model_path, cons
     return CLI_EXIT_OK;
 }
 
+/* What a report is built from, and the report. */
+struct report_job {
+    stagecal_model m;
+    stagecal_regress_data pts;
+    stagecal_report_doc *doc;
+};
+
+static void report_job_free(struct report_job *job)
+{
+    stagecal_report_doc_free(job->doc);
+    stagecal_regress_data_free(&job->pts);
+    stagecal_model_free(&job->m);
+}
+
+/* The model file and the points read, the report built from them, described (column_path)
+ * and, with xd, the stated condition added. An exit code (the message printed). */
+static int build_report(struct report_job *job, const char *model_path, const char *points_path,
+                        const char *column_path, double xd, double reflux, double fload)
+{
+    stagecal_error err;
+    int have_pts = 0;
+    stagecal_error_clear(&err);
+    int rc = stagecal_model_load(model_path, &job->m, &err);
+    if (rc == STAGECAL_OK && points_path) {
+        rc = stagecal_regress_data_read(points_path, &job->pts, &err);
+        have_pts = rc == STAGECAL_OK;
+    }
+    if (rc != STAGECAL_OK)
+        return cli_fail(&err);
+    /* The report is built from the files alone: an invalid argument there is their content
+     * (bad data, 65); writing it is about --output. */
+    rc = stagecal_report_from_model(&job->m, have_pts ? &job->pts : NULL, &job->doc, &err);
+    if (rc == STAGECAL_OK)
+        describe(job->doc, &job->m, column_path);
+    if (rc == STAGECAL_OK && !isnan(xd)) {
+        if ((rc = load_usage(&job->m, fload)) != 0)
+            return rc;
+        rc = add_condition(job->doc, &job->m, column_path, xd, reflux, fload, &err);
+    }
+    return rc == STAGECAL_OK ? 0 : cli_fail_data(&err);
+}
+
+/* The HTML to standard output or, atomically, to output. An exit code. */
+static int write_report(const stagecal_report_doc *doc, const char *output, int to_stdout)
+{
+    stagecal_error err;
+    stagecal_error_clear(&err);
+    if (to_stdout) {
+        char *html = NULL;
+        size_t len = 0;
+        int rc = stagecal_report_html(stagecal_report_doc_content(doc), NULL, &html, &len, &err);
+        /* A failed write is reported once, by main (ferror(stdout) → exit 73). */
+        if (rc == STAGECAL_OK)
+            (void)fwrite(html, 1, len, stdout);
+        free(html);
+        return rc == STAGECAL_OK ? 0 : cli_fail_data(&err); /* built from the files alone */
+    }
+    if (stagecal_report_write(stagecal_report_doc_content(doc), NULL, output, &err) != STAGECAL_OK)
+        return cli_fail(&err);
+    return 0;
+}
+
 int cmd_report(int argc, char **argv, cli_ctx *ctx)
 {
     const char *points_path = NULL, *output = NULL, *column_path = NULL;
@@ -190,62 +252,14 @@ int cmd_report(int argc, char **argv, cli_ctx *ctx)
         }
     }
 
-    stagecal_error err;
-    stagecal_model m;
-    stagecal_regress_data pts;
-    stagecal_report_doc *doc = NULL;
-    int have_pts = 0;
-    memset(&pts, 0, sizeof pts);
-    stagecal_error_clear(&err);
-    stagecal_model_init(&m);
-    rc = stagecal_model_load(model_path, &m, &err);
-    if (rc == STAGECAL_OK && points_path) {
-        rc = stagecal_regress_data_read(points_path, &pts, &err);
-        have_pts = rc == STAGECAL_OK;
-    }
-    /* The report is built from the files alone: an invalid argument there is their content
-     * (bad data, 65); writing it is about --output. */
-    int from_files = 0;
-    if (rc == STAGECAL_OK) {
-        rc = stagecal_report_from_model(&m, have_pts ? &pts : NULL, &doc, &err);
-        from_files = 1;
-    }
-    if (rc == STAGECAL_OK)
-        describe(doc, &m, column_path);
-    if (rc == STAGECAL_OK && !isnan(xd)) {
-        if ((rc = load_usage(&m, fload)) != 0) {
-            stagecal_report_doc_free(doc);
-            stagecal_regress_data_free(&pts);
-            stagecal_model_free(&m);
-            free(out_owned);
-            return rc;
-        }
-        rc = add_condition(doc, &m, column_path, xd, reflux, fload, &err);
-    }
-    if (rc == STAGECAL_OK && to_stdout) {
-        char *html = NULL;
-        size_t len = 0;
-        rc = stagecal_report_html(stagecal_report_doc_content(doc), NULL, &html, &len, &err);
-        /* A failed write is reported once, by main (ferror(stdout) → exit 73). */
-        if (rc == STAGECAL_OK)
-            (void)fwrite(html, 1, len, stdout);
-        free(html);
-    } else if (rc == STAGECAL_OK) {
-        rc = stagecal_report_write(stagecal_report_doc_content(doc), NULL, output, &err);
-        from_files = 0;
-    }
-    if (rc != STAGECAL_OK) {
-        int code = from_files ? cli_fail_data(&err) : cli_fail(&err);
-        stagecal_report_doc_free(doc);
-        stagecal_regress_data_free(&pts);
-        stagecal_model_free(&m);
-        free(out_owned);
-        return code;
-    }
-    rc = print_result(stagecal_report_doc_content(doc), model_path, output, json, to_stdout);
-    stagecal_report_doc_free(doc);
-    stagecal_regress_data_free(&pts);
-    stagecal_model_free(&m);
+    struct report_job job;
+    memset(&job, 0, sizeof job);
+    stagecal_model_init(&job.m);
+    if ((rc = build_report(&job, model_path, points_path, column_path, xd, reflux, fload)) == 0 &&
+        (rc = write_report(job.doc, output, to_stdout)) == 0)
+        rc =
+            print_result(stagecal_report_doc_content(job.doc), model_path, output, json, to_stdout);
+    report_job_free(&job);
     free(out_owned);
     return rc;
 }
