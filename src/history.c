@@ -619,6 +619,66 @@ static int start_theta(const stagecal_form *form, size_t m, double *r, double *f
     return rc;
 }
 
+/* What the small-sample degrees of freedom need later (history_bm_dof): the weighted
+ * Jacobian of the m windows, the bread B, the windows' runs (cl, nr of them); the sandwich
+ * fills wk->d. n (the history's windows) names an allocation failure. A status. */
+static int keep_work(stagecal_history_fit *fit, const gsl_matrix *J, const double *w,
+                     const gsl_matrix *B, const size_t *cl, size_t nr, size_t n,
+                     stagecal_error *err)
+{
+    size_t m = J->size1, P = J->size2;
+    struct stagecal_history_work *wk = calloc(1, sizeof *wk);
+    if (wk) {
+        fit->work = wk;
+        wk->xt = malloc((2 * m * P + P * P) * sizeof *wk->xt);
+        wk->cl = malloc(m * sizeof *wk->cl);
+    }
+    if (!wk || !wk->xt || !wk->cl)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory for a history of %zu windows", n);
+    wk->m = m;
+    wk->P = P;
+    wk->ncl = nr;
+    wk->d = wk->xt + m * P;
+    wk->b = wk->d + m * P;
+    memcpy(wk->cl, cl, m * sizeof *cl);
+    memcpy(wk->b, B->data, P * P * sizeof *wk->b);
+    for (size_t j = 0; j < m; j++)
+        for (size_t a = 0; a < P; a++)
+            wk->xt[j * P + a] = sqrt(w[j]) * gsl_matrix_get(J, j, a);
+    return STAGECAL_OK;
+}
+
+/* Per segment its level, loss and start (or why not), then the stages now and, with a
+ * requirement, when the current segment crosses it. A status. */
+static int segment_results(stagecal_history_fit *fit, const stagecal_history_params *par,
+                           stagecal_error *err)
+{
+    int rc = STAGECAL_OK;
+    for (size_t s = 0; s < fit->n_segments && rc == STAGECAL_OK; s++) {
+        stagecal_history_segment *sg = &fit->segments[s];
+        if (sg->fitted) {
+            rc = segment_estimates(fit, s, par, err);
+            continue;
+        }
+        char why[STAGECAL_HISTORY_REASON];
+        snprintf(why, sizeof why,
+                 "not determined: the segment has %zu run(s)%s (at least %zu at different times "
+                 "needed)",
+                 sg->n_runs, sg->n_points && !(sg->last_s > sg->first_s) ? " at one time" : "",
+                 par->min_runs);
+        not_fitted(&sg->level, why);
+        not_fitted(&sg->rel_loss, why);
+        not_fitted(&sg->loss, why);
+        not_fitted(&sg->start, why);
+    }
+    if (rc == STAGECAL_OK)
+        rc = stagecal_history_stages_at(fit, par->r_ref, par->f_ref, fit->now_s, &fit->now, err);
+    if (rc == STAGECAL_OK && isfinite(par->required) && fit->segments[fit->current].fitted &&
+        fit->segments[fit->current].loss.dof >= 2)
+        rc = crossing(fit, par, err);
+    return rc;
+}
+
 int stagecal_history_fit_points(const stagecal_form *form, const stagecal_history_point *pts,
                                 size_t n, const stagecal_trend_event *events, size_t n_events,
                                 const char *column_id, const stagecal_history_params *par,
@@ -708,53 +768,14 @@ int stagecal_history_fit_points(const stagecal_form *form, const stagecal_histor
         q += w[j] * res[j] * res[j];
     fit->chi2_dof = q / (double)(m - P);
     gsl_matrix_view V = gsl_matrix_view_array(fit->cov, P, P);
-    struct stagecal_history_work *wk = calloc(1, sizeof *wk);
-    if (wk) {
-        fit->work = wk;
-        wk->xt = malloc((2 * m * P + P * P) * sizeof *wk->xt);
-        wk->cl = malloc(m * sizeof *wk->cl);
-    }
-    if (!wk || !wk->xt || !wk->cl) {
-        rc = error_set(err, STAGECAL_ENOMEM, "out of memory for a history of %zu windows", n);
+    if ((rc = keep_work(fit, J, w, B, cl, nr, n, err)))
         goto done;
-    }
-    wk->m = m;
-    wk->P = P;
-    wk->ncl = nr;
-    wk->d = wk->xt + m * P;
-    wk->b = wk->d + m * P;
-    memcpy(wk->cl, cl, m * sizeof *cl);
-    memcpy(wk->b, B->data, P * P * sizeof *wk->b);
-    for (size_t j = 0; j < m; j++)
-        for (size_t a = 0; a < P; a++)
-            wk->xt[j * P + a] = sqrt(w[j]) * gsl_matrix_get(J, j, a);
-    gsl_matrix_view Dv = gsl_matrix_view_array(wk->d, m, P);
+    gsl_matrix_view Dv = gsl_matrix_view_array(fit->work->d, m, P);
     if ((rc = history_sandwich(J, w, res, cl, nr, B, &V.matrix, &Dv.matrix, err)))
         goto done;
     for (size_t i = 0, j = 0; i < n; i++)
         fit->resid[i] = keep[i] ? res[j++] : NAN;
-    for (size_t s = 0; s < fit->n_segments && rc == STAGECAL_OK; s++) {
-        stagecal_history_segment *sg = &fit->segments[s];
-        if (sg->fitted) {
-            rc = segment_estimates(fit, s, par, err);
-            continue;
-        }
-        char why[STAGECAL_HISTORY_REASON];
-        snprintf(why, sizeof why,
-                 "not determined: the segment has %zu run(s)%s (at least %zu at different times "
-                 "needed)",
-                 sg->n_runs, sg->n_points && !(sg->last_s > sg->first_s) ? " at one time" : "",
-                 par->min_runs);
-        not_fitted(&sg->level, why);
-        not_fitted(&sg->rel_loss, why);
-        not_fitted(&sg->loss, why);
-        not_fitted(&sg->start, why);
-    }
-    if (rc == STAGECAL_OK)
-        rc = stagecal_history_stages_at(fit, par->r_ref, par->f_ref, fit->now_s, &fit->now, err);
-    if (rc == STAGECAL_OK && isfinite(par->required) && fit->segments[fit->current].fitted &&
-        fit->segments[fit->current].loss.dof >= 2)
-        rc = crossing(fit, par, err);
+    rc = segment_results(fit, par, err);
 done:
     gsl_matrix_free(B);
     if (J)
