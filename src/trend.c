@@ -491,6 +491,39 @@ static int cmp_event(const void *a, const void *b)
     return x->line < y->line ? -1 : x->line > y->line;
 }
 
+/* One event from a data row of path (line lineno): time, column id, kind and the note. A
+ * status (EDATA naming the field). */
+static int event_from_row(const struct ev_row *row, const char *path, long lineno,
+                          stagecal_trend_event *e, stagecal_error *err)
+{
+    memset(e, 0, sizeof *e);
+    e->line = lineno;
+    if (event_time(row->field[0], &e->t_s) != 0)
+        return error_set_at(err, STAGECAL_EDATA, path, lineno, 1,
+                            "time '%s' is not a date (expected YYYY-MM-DD or ISO 8601 "
+                            "YYYY-MM-DDThh:mm[:ss]Z)",
+                            row->field[0]);
+    if (!stagecal_convention_id_valid(row->field[1]))
+        return error_set_at(err, STAGECAL_EDATA, path, lineno, 2,
+                            "column '%s' is not a column id (expected %s)", row->field[1],
+                            stagecal_convention_id_rule());
+    /* length checked above */
+    memcpy(e->column_id, row->field[1], strlen(row->field[1]) + 1);
+    if (stagecal_event_kind_parse(row->field[2], &e->kind) != 0)
+        return error_set_at(err, STAGECAL_EDATA, path, lineno, 3,
+                            "kind '%s' is unknown (expected repack, maintenance or note)",
+                            row->field[2]);
+    if (row->nf == 4) {
+        size_t nl = strlen(row->field[3]);
+        if (nl >= sizeof e->note)
+            return error_set_at(err, STAGECAL_EDATA, path, lineno, 4,
+                                "note of %zu bytes is too long (expected < %zu)", nl,
+                                sizeof e->note);
+        memcpy(e->note, row->field[3], nl + 1);
+    }
+    return STAGECAL_OK;
+}
+
 int stagecal_trend_events_read(const char *path, stagecal_trend_event **events, size_t *n,
                                stagecal_error *err)
 {
@@ -563,40 +596,8 @@ int stagecal_trend_events_read(const char *path, stagecal_trend_event **events, 
             ev = ne;
             alloc = na;
         }
-        stagecal_trend_event *e = &ev[*n];
-        memset(e, 0, sizeof *e);
-        e->line = lineno;
-        if (event_time(row.field[0], &e->t_s) != 0) {
-            rc = error_set_at(err, STAGECAL_EDATA, path, lineno, 1,
-                              "time '%s' is not a date (expected YYYY-MM-DD or ISO 8601 "
-                              "YYYY-MM-DDThh:mm[:ss]Z)",
-                              row.field[0]);
+        if ((rc = event_from_row(&row, path, lineno, &ev[*n], err)) != STAGECAL_OK)
             break;
-        }
-        if (!stagecal_convention_id_valid(row.field[1])) {
-            rc = error_set_at(err, STAGECAL_EDATA, path, lineno, 2,
-                              "column '%s' is not a column id (expected %s)", row.field[1],
-                              stagecal_convention_id_rule());
-            break;
-        }
-        /* length checked above */
-        memcpy(e->column_id, row.field[1], strlen(row.field[1]) + 1);
-        if (stagecal_event_kind_parse(row.field[2], &e->kind) != 0) {
-            rc = error_set_at(err, STAGECAL_EDATA, path, lineno, 3,
-                              "kind '%s' is unknown (expected repack, maintenance or note)",
-                              row.field[2]);
-            break;
-        }
-        if (row.nf == 4) {
-            size_t nl = strlen(row.field[3]);
-            if (nl >= sizeof e->note) {
-                rc = error_set_at(err, STAGECAL_EDATA, path, lineno, 4,
-                                  "note of %zu bytes is too long (expected < %zu)", nl,
-                                  sizeof e->note);
-                break;
-            }
-            memcpy(e->note, row.field[3], nl + 1);
-        }
         (*n)++;
     }
     if (rc == STAGECAL_OK && ferror(fp))
