@@ -325,6 +325,52 @@ struct job {
     size_t nlogs;
 };
 
+/* The arguments (nargs of them): one model file, or run logs (any argument that is not a
+ * .json file; *logs = 1) with their column file; --form only with run logs. An exit code. */
+static int check_arguments(int nargs, char **args, const char *column, const char *form, int *logs)
+{
+    if (nargs < 1)
+        return cli_usage_error("a model file is required (see 'stagecal probe --help')");
+    /* run logs in place of a model file: any argument that is not a .json file */
+    *logs = 0;
+    for (int i = 0; i < nargs; i++) {
+        size_t n = strlen(args[i]);
+        *logs |= !(n > 5 && strcmp(args[i] + n - 5, ".json") == 0);
+    }
+    if (!*logs && nargs > 1)
+        return cli_usage_error("unexpected argument '%s' (expected one model file, or run logs "
+                               "with --column)",
+                               args[1]);
+    if (*logs && !column)
+        return cli_usage_error("run logs need option '--column' (their column file)");
+    if (!*logs && strcmp(form, "auto") != 0)
+        return cli_usage_error("option '--form' is for run logs (a model file has its form)");
+    return 0;
+}
+
+/* The conditions of interest (--at: R, and F or NAN) with their weights (--weights, NULL:
+ * equal) checked into pts. An exit code. */
+static int fill_conditions(const double *at_r, const double *at_f, size_t n_at, const double *wv,
+                           stagecal_design_point *pts)
+{
+    for (size_t i = 0; i < n_at; i++) {
+        if (!(at_r[i] > 0))
+            return cli_usage_error("option '--at': R = %g is not positive (expected R > 0 or "
+                                   "'inf')",
+                                   at_r[i]);
+        if (!isnan(at_f[i]) && !(at_f[i] >= 0 && isfinite(at_f[i])))
+            return cli_usage_error("option '--at': F = %g is invalid (expected a finite "
+                                   "F-factor >= 0)",
+                                   at_f[i]);
+        if (wv && !(wv[i] > 0 && isfinite(wv[i])))
+            return cli_usage_error("option '--weights': %g is not positive", wv[i]);
+        pts[i].r = at_r[i];
+        pts[i].f_load = at_f[i];
+        pts[i].weight = wv ? wv[i] : 1.0;
+    }
+    return 0;
+}
+
 /* Parses and checks the options into j; returns 0, CLI_PARSE_HELP or an exit code. */
 static int parse_options(int argc, char **argv, cli_ctx *ctx, struct job *j)
 {
@@ -381,43 +427,16 @@ static int parse_options(int argc, char **argv, cli_ctx *ctx, struct job *j)
         (f_text && parse_pair("f-factor-range", f_text, 1, "LO:HI, F-factors in Pa^0.5", &par.f_lo,
                               &par.f_hi)))
         return CLI_EXIT_USAGE;
-    if (argc - first < 1)
-        return cli_usage_error("a model file is required (see 'stagecal probe --help')");
-    /* run logs in place of a model file: any argument that is not a .json file */
     int logs = 0;
-    for (int i = first; i < argc; i++) {
-        size_t n = strlen(argv[i]);
-        logs |= !(n > 5 && strcmp(argv[i] + n - 5, ".json") == 0);
-    }
-    if (!logs && argc - first > 1)
-        return cli_usage_error("unexpected argument '%s' (expected one model file, or run logs "
-                               "with --column)",
-                               argv[first + 1]);
-    if (logs && !column)
-        return cli_usage_error("run logs need option '--column' (their column file)");
-    if (!logs && strcmp(form, "auto") != 0)
-        return cli_usage_error("option '--form' is for run logs (a model file has its form)");
+    if ((rc = check_arguments(argc - first, argv + first, column, form, &logs)))
+        return rc;
     if (!at_text)
         return cli_usage_error("option '--at' is required (see 'stagecal probe --help')");
     if (n_w && n_w != n_at)
         return cli_usage_error("option '--weights': %zu weights for %zu conditions in '--at'", n_w,
                                n_at);
-    stagecal_design_point *pts = j->pts;
-    for (size_t i = 0; i < n_at; i++) {
-        if (!(at_r[i] > 0))
-            return cli_usage_error("option '--at': R = %g is not positive (expected R > 0 or "
-                                   "'inf')",
-                                   at_r[i]);
-        if (!isnan(at_f[i]) && !(at_f[i] >= 0 && isfinite(at_f[i])))
-            return cli_usage_error("option '--at': F = %g is invalid (expected a finite "
-                                   "F-factor >= 0)",
-                                   at_f[i]);
-        if (n_w && !(wv[i] > 0 && isfinite(wv[i])))
-            return cli_usage_error("option '--weights': %g is not positive", wv[i]);
-        pts[i].r = at_r[i];
-        pts[i].f_load = at_f[i];
-        pts[i].weight = n_w ? wv[i] : 1.0;
-    }
+    if ((rc = fill_conditions(at_r, at_f, n_at, n_w ? wv : NULL, j->pts)))
+        return rc;
     if (cmp.on && (!(cmp.r > 0) || (!isnan(cmp.f) && !(cmp.f >= 0 && isfinite(cmp.f)))))
         return cli_usage_error("option '--compare': R = %g, F = %g is invalid (expected R > 0 or "
                                "'inf' and a finite F-factor >= 0)",
