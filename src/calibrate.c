@@ -84,6 +84,74 @@ static void format_utc(double t_s, char *buf, size_t cap)
         buf[0] = '\0';
 }
 
+/* The model's provenance: the column file's and the logs' hashes (of the bytes their
+ * readers parsed) with the logs' rows, when it was fitted, the seed, and the period the data
+ * cover when the logs carry absolute timestamps. A status. */
+static int fill_provenance(stagecal_calibration *cal, const stagecal_calibrate_params *par,
+                           const char *column_path, stagecal_error *err)
+{
+    stagecal_model *mo = &cal->model;
+    const stagecal_column *col = cal->column;
+    const stagecal_evidence *ev = cal->evidence.ev;
+    size_t nev = cal->evidence.n;
+    int rc;
+    /* the column's hash from the bytes its reader parsed; a second read only for a column
+     * built in memory (sha256 empty) */
+    char hex[STAGECAL_MODEL_HEX];
+    if (column_path && col->sha256[0])
+        memcpy(hex, col->sha256, sizeof hex);
+    else if (column_path && (rc = stagecal_model_hash_file(column_path, hex, err)))
+        return rc;
+    if (column_path && (rc = stagecal_model_add_input(mo, column_path, hex, 0, err)))
+        return rc;
+    for (size_t k = 0; k < cal->log->nfiles; k++) {
+        size_t rows = 0;
+        for (size_t r = 0; r < cal->log->nruns; r++)
+            if (cal->log->runs[r].file == k)
+                rows += cal->log->runs[r].n;
+        /* the hash of the bytes the reader parsed, not of a second read of the file */
+        if ((rc = stagecal_model_add_input(mo, cal->log->files[k], cal->log->sha256[k], rows, err)))
+            return rc;
+    }
+    stagecal_model_stamp_now(mo);
+    mo->seed = par->seed;
+    /* the period the data cover, when the logs carry absolute timestamps */
+    if (cal->log->nfiles_iso == cal->log->nfiles && nev > 0) {
+        double t0 = INFINITY, t1 = -INFINITY;
+        for (size_t i = 0; i < nev; i++) {
+            t0 = fmin(t0, cal->log->t_s[ev[i].first]);
+            t1 = fmax(t1, cal->log->t_s[ev[i].last]);
+        }
+        format_utc(t0, mo->data_first_utc, sizeof mo->data_first_utc);
+        format_utc(t1, mo->data_last_utc, sizeof mo->data_last_utc);
+    }
+    return STAGECAL_OK;
+}
+
+/* HETP at a reference condition (par's, else the largest fitted R and the middle of the
+ * fitted load), where the packed height is known; none when it cannot be computed. */
+static void fill_hetp(stagecal_model *mo, const stagecal_column *col,
+                      const stagecal_calibrate_params *par)
+{
+    if (!(col->height_m > 0))
+        return;
+    double r = isnan(par->hetp_r) ? mo->r_max : par->hetp_r;
+    double f = isnan(par->hetp_f) ? 0.5 * (mo->f_min + mo->f_max) : par->hetp_f;
+    stagecal_hetp_stages hs;
+    stagecal_hetp_result h;
+    if (stagecal_hetp_stages_from_model(mo, r, f, &hs, NULL, NULL) == STAGECAL_OK &&
+        stagecal_hetp_compute(col->height_m, &hs, par->level, &h, NULL) == STAGECAL_OK) {
+        mo->has_hetp = 1;
+        mo->height_m = col->height_m;
+        mo->hetp_r = r;
+        mo->hetp_f = mo->has_load ? f : 0;
+        mo->hetp_m = h.hetp_m;
+        mo->hetp_level = par->level;
+        mo->hetp_low_m = h.low_m;
+        mo->hetp_high_m = h.high_m;
+    }
+}
+
 /* Copies the fit into the model and completes the envelope, HETP and warnings. */
 static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params *par,
                       const char *column_path, const stagecal_regress_result *fit,
@@ -139,56 +207,9 @@ static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params
     }
     if (cal->used == STAGECAL_MODEL_CENSORED)
         calibrate_censored_model(cal, mo);
-    /* provenance */
-    /* the column's hash from the bytes its reader parsed; a second read only for a column
-     * built in memory (sha256 empty) */
-    char hex[STAGECAL_MODEL_HEX];
-    if (column_path && col->sha256[0])
-        memcpy(hex, col->sha256, sizeof hex);
-    else if (column_path && (rc = stagecal_model_hash_file(column_path, hex, err)))
+    if ((rc = fill_provenance(cal, par, column_path, err)))
         return rc;
-    if (column_path && (rc = stagecal_model_add_input(mo, column_path, hex, 0, err)))
-        return rc;
-    for (size_t k = 0; k < cal->log->nfiles; k++) {
-        size_t rows = 0;
-        for (size_t r = 0; r < cal->log->nruns; r++)
-            if (cal->log->runs[r].file == k)
-                rows += cal->log->runs[r].n;
-        /* the hash of the bytes the reader parsed, not of a second read of the file */
-        if ((rc = stagecal_model_add_input(mo, cal->log->files[k], cal->log->sha256[k], rows, err)))
-            return rc;
-    }
-    stagecal_model_stamp_now(mo);
-    mo->seed = par->seed;
-    /* the period the data cover, when the logs carry absolute timestamps */
-    if (cal->log->nfiles_iso == cal->log->nfiles && nev > 0) {
-        double t0 = INFINITY, t1 = -INFINITY;
-        for (size_t i = 0; i < nev; i++) {
-            t0 = fmin(t0, cal->log->t_s[ev[i].first]);
-            t1 = fmax(t1, cal->log->t_s[ev[i].last]);
-        }
-        format_utc(t0, mo->data_first_utc, sizeof mo->data_first_utc);
-        format_utc(t1, mo->data_last_utc, sizeof mo->data_last_utc);
-    }
-
-    /* HETP at a reference condition, where the packed height is known. */
-    if (col->height_m > 0) {
-        double r = isnan(par->hetp_r) ? mo->r_max : par->hetp_r;
-        double f = isnan(par->hetp_f) ? 0.5 * (mo->f_min + mo->f_max) : par->hetp_f;
-        stagecal_hetp_stages hs;
-        stagecal_hetp_result h;
-        if (stagecal_hetp_stages_from_model(mo, r, f, &hs, NULL, NULL) == STAGECAL_OK &&
-            stagecal_hetp_compute(col->height_m, &hs, par->level, &h, NULL) == STAGECAL_OK) {
-            mo->has_hetp = 1;
-            mo->height_m = col->height_m;
-            mo->hetp_r = r;
-            mo->hetp_f = mo->has_load ? f : 0;
-            mo->hetp_m = h.hetp_m;
-            mo->hetp_level = par->level;
-            mo->hetp_low_m = h.low_m;
-            mo->hetp_high_m = h.high_m;
-        }
-    }
+    fill_hetp(mo, col, par);
     return STAGECAL_OK;
 }
 
