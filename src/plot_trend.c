@@ -34,6 +34,108 @@ static void line_points(const stagecal_trend_segment *g, double t0, double t1, d
     }
 }
 
+/* Each fitted segment's trend line and band; after the last, the forecast up to t_end,
+ * dashed (extrapolated). */
+static void trend_lines(plot_fig *f, const stagecal_trend_history *h, double t_end)
+{
+    char lab[160];
+    double x[LINE_POINTS], v[LINE_POINTS], lo[LINE_POINTS], hi[LINE_POINTS];
+    double level = 0.95;
+    for (size_t s = 0; s < h->n_segments; s++) {
+        const stagecal_trend_segment *g = &h->segments[s];
+        if (!g->has_fit || g->n == 0)
+            continue;
+        level = g->fit.level;
+        double t0 = h->points[g->first].t_s, t1 = h->points[g->first + g->n - 1].t_s;
+        line_points(g, t0, t1, x, v, lo, hi);
+        snprintf(lab, sizeof lab, "trend, %.0f %% band", 100 * level);
+        plot_fig_add(f, STAGECAL_PLOT_BAND, s + 1 == h->n_segments ? lab : NULL, x, lo, hi,
+                     LINE_POINTS, 0, 0, 0);
+        plot_fig_add(f, STAGECAL_PLOT_LINE, s + 1 == h->n_segments ? "trend" : NULL, x, v, NULL,
+                     LINE_POINTS, 0, 0, 0);
+        if (s + 1 == h->n_segments && t_end > t1) { /* the forecast: extrapolated */
+            line_points(g, t1, t_end, x, v, lo, hi);
+            plot_fig_add(f, STAGECAL_PLOT_BAND, NULL, x, lo, hi, LINE_POINTS, 0, 1, 0);
+            plot_fig_add(f, STAGECAL_PLOT_LINE, "forecast (extrapolated): dashed, light band", x, v,
+                         NULL, LINE_POINTS, 0, 1, 0);
+        }
+    }
+}
+
+/* The fits with their intervals (± 2 se) and the EWMA alarms. */
+static void fit_points(plot_fig *f, const stagecal_trend_history *h)
+{
+    double *px = malloc(h->n * sizeof *px), *py = malloc(h->n * sizeof *py),
+           *pz = malloc(h->n * sizeof *pz), *ey = malloc(h->n * sizeof *ey);
+    if (!px || !py || !pz || !ey) {
+        f->oom = 1;
+    } else {
+        for (size_t i = 0; i < h->n; i++) {
+            px[i] = h->points[i].t_s;
+            ey[i] = h->points[i].value;
+            py[i] = ey[i] - 2 * h->points[i].se;
+            pz[i] = ey[i] + 2 * h->points[i].se;
+        }
+        plot_fig_add(f, STAGECAL_PLOT_ERRBAR, "fit \xc2\xb1 2 se", px, py, pz, h->n, 6, 0, 0);
+        plot_fig_add(f, STAGECAL_PLOT_POINTS, "fit at the reference condition", px, ey, NULL, h->n,
+                     6, 0, 0);
+        size_t m = 0;
+        for (size_t i = 0; h->chart && i < h->n; i++)
+            if (h->chart[i].alarm) {
+                px[m] = h->points[i].t_s;
+                py[m++] = h->points[i].value;
+            }
+        stagecal_plot_series *s;
+        if (m &&
+            (s = plot_fig_add(f, STAGECAL_PLOT_POINTS, "EWMA alarm", px, py, NULL, m, 1, 0, 6)))
+            s->width = 2.2;
+    }
+    free(px);
+    free(py);
+    free(pz);
+    free(ey);
+}
+
+/* The requirement from first_t to t_end and, when the forecast crosses it, the crossing
+ * with its band. */
+static void required_line(plot_fig *f, const stagecal_trend_forecast *fc, double first_t,
+                          double t_end)
+{
+    char lab[160];
+    double rx[2] = {first_t, t_end}, ry[2] = {fc->required, fc->required};
+    snprintf(lab, sizeof lab, "required: %.3g", fc->required);
+    plot_fig_add(f, STAGECAL_PLOT_LINE, lab, rx, ry, NULL, 2, 3, 3, 0);
+    if (fc->status == STAGECAL_FORECAST_OK) {
+        double cx[2] = {fmax(fc->low_s, first_t), fmin(fc->high_s, t_end)};
+        stagecal_plot_series *s = plot_fig_add(f, STAGECAL_PLOT_LINE, "forecast crossing, band", cx,
+                                               ry, NULL, 2, 4, 0, 0);
+        if (s)
+            s->width = 5;
+        plot_fig_add(f, STAGECAL_PLOT_POINTS, NULL, &fc->t_cross_s, &fc->required, NULL, 1, 4, 0,
+                     4);
+    }
+}
+
+/* The column's events: a vertical line over the fits' range and the kind's name. */
+static void event_lines(plot_fig *f, const stagecal_plot_trend_history_data *d)
+{
+    const stagecal_trend_history *h = d->h;
+    char lab[160];
+    double ylo = INFINITY, yhi = -INFINITY;
+    for (size_t i = 0; i < h->n; i++)
+        ylo = fmin(ylo, h->points[i].value - 2 * h->points[i].se),
+        yhi = fmax(yhi, h->points[i].value + 2 * h->points[i].se);
+    for (size_t e = 0; e < d->n_events; e++) {
+        const stagecal_trend_event *ev = &d->events[e];
+        if (d->column_id && strcmp(ev->column_id, d->column_id) != 0)
+            continue;
+        double ex[2] = {ev->t_s, ev->t_s}, eyy[2] = {ylo, yhi};
+        plot_fig_add(f, STAGECAL_PLOT_LINE, NULL, ex, eyy, NULL, 2, 2, 2, 0);
+        snprintf(lab, sizeof lab, " %s", stagecal_event_kind_name(ev->kind));
+        plot_fig_add(f, STAGECAL_PLOT_TEXT, lab, ex, NULL, NULL, 1, 2, 0, 0);
+    }
+}
+
 int stagecal_plot_trend_history(const stagecal_plot_trend_history_data *d,
                                 stagecal_plot_chart **out, stagecal_error *err)
 {
@@ -45,7 +147,7 @@ int stagecal_plot_trend_history(const stagecal_plot_trend_history_data *d,
     int rc;
     if ((rc = plot_fig_open(&f, err)))
         return rc;
-    char title[192], lab[160];
+    char title[192];
     if (d->title)
         snprintf(title, sizeof title, "%s", d->title);
     else
@@ -59,85 +161,11 @@ int stagecal_plot_trend_history(const stagecal_plot_trend_history_data *d,
     const stagecal_trend_forecast *fc = h->has_forecast ? &h->forecast : NULL;
     if (fc && fc->status == STAGECAL_FORECAST_OK && isfinite(fc->high_s))
         t_end = fmax(t_end, fmin(fc->high_s, last_t + 4 * span));
-    double x[LINE_POINTS], v[LINE_POINTS], lo[LINE_POINTS], hi[LINE_POINTS];
-    double level = 0.95;
-    for (size_t s = 0; s < h->n_segments; s++) {
-        const stagecal_trend_segment *g = &h->segments[s];
-        if (!g->has_fit || g->n == 0)
-            continue;
-        level = g->fit.level;
-        double t0 = h->points[g->first].t_s, t1 = h->points[g->first + g->n - 1].t_s;
-        line_points(g, t0, t1, x, v, lo, hi);
-        snprintf(lab, sizeof lab, "trend, %.0f %% band", 100 * level);
-        plot_fig_add(&f, STAGECAL_PLOT_BAND, s + 1 == h->n_segments ? lab : NULL, x, lo, hi,
-                     LINE_POINTS, 0, 0, 0);
-        plot_fig_add(&f, STAGECAL_PLOT_LINE, s + 1 == h->n_segments ? "trend" : NULL, x, v, NULL,
-                     LINE_POINTS, 0, 0, 0);
-        if (s + 1 == h->n_segments && t_end > t1) { /* the forecast: extrapolated */
-            line_points(g, t1, t_end, x, v, lo, hi);
-            plot_fig_add(&f, STAGECAL_PLOT_BAND, NULL, x, lo, hi, LINE_POINTS, 0, 1, 0);
-            plot_fig_add(&f, STAGECAL_PLOT_LINE, "forecast (extrapolated): dashed, light band", x,
-                         v, NULL, LINE_POINTS, 0, 1, 0);
-        }
-    }
-    /* the fits with their intervals (t · se of the trend's dof, else ± 2 se) */
-    double *px = malloc(h->n * sizeof *px), *py = malloc(h->n * sizeof *py),
-           *pz = malloc(h->n * sizeof *pz), *ey = malloc(h->n * sizeof *ey);
-    if (!px || !py || !pz || !ey) {
-        f.oom = 1;
-    } else {
-        for (size_t i = 0; i < h->n; i++) {
-            px[i] = h->points[i].t_s;
-            ey[i] = h->points[i].value;
-            py[i] = ey[i] - 2 * h->points[i].se;
-            pz[i] = ey[i] + 2 * h->points[i].se;
-        }
-        plot_fig_add(&f, STAGECAL_PLOT_ERRBAR, "fit \xc2\xb1 2 se", px, py, pz, h->n, 6, 0, 0);
-        plot_fig_add(&f, STAGECAL_PLOT_POINTS, "fit at the reference condition", px, ey, NULL, h->n,
-                     6, 0, 0);
-        size_t m = 0;
-        for (size_t i = 0; h->chart && i < h->n; i++)
-            if (h->chart[i].alarm) {
-                px[m] = h->points[i].t_s;
-                py[m++] = h->points[i].value;
-            }
-        stagecal_plot_series *s;
-        if (m &&
-            (s = plot_fig_add(&f, STAGECAL_PLOT_POINTS, "EWMA alarm", px, py, NULL, m, 1, 0, 6)))
-            s->width = 2.2;
-    }
-    free(px);
-    free(py);
-    free(pz);
-    free(ey);
-    if (fc) {
-        double rx[2] = {first_t, t_end}, ry[2] = {fc->required, fc->required};
-        snprintf(lab, sizeof lab, "required: %.3g", fc->required);
-        plot_fig_add(&f, STAGECAL_PLOT_LINE, lab, rx, ry, NULL, 2, 3, 3, 0);
-        if (fc->status == STAGECAL_FORECAST_OK) {
-            double cx[2] = {fmax(fc->low_s, first_t), fmin(fc->high_s, t_end)};
-            stagecal_plot_series *s = plot_fig_add(
-                &f, STAGECAL_PLOT_LINE, "forecast crossing, band", cx, ry, NULL, 2, 4, 0, 0);
-            if (s)
-                s->width = 5;
-            plot_fig_add(&f, STAGECAL_PLOT_POINTS, NULL, &fc->t_cross_s, &fc->required, NULL, 1, 4,
-                         0, 4);
-        }
-    }
-    /* events: a vertical line and the kind's name */
-    double ylo = INFINITY, yhi = -INFINITY;
-    for (size_t i = 0; i < h->n; i++)
-        ylo = fmin(ylo, h->points[i].value - 2 * h->points[i].se),
-        yhi = fmax(yhi, h->points[i].value + 2 * h->points[i].se);
-    for (size_t e = 0; e < d->n_events; e++) {
-        const stagecal_trend_event *ev = &d->events[e];
-        if (d->column_id && strcmp(ev->column_id, d->column_id) != 0)
-            continue;
-        double ex[2] = {ev->t_s, ev->t_s}, eyy[2] = {ylo, yhi};
-        plot_fig_add(&f, STAGECAL_PLOT_LINE, NULL, ex, eyy, NULL, 2, 2, 2, 0);
-        snprintf(lab, sizeof lab, " %s", stagecal_event_kind_name(ev->kind));
-        plot_fig_add(&f, STAGECAL_PLOT_TEXT, lab, ex, NULL, NULL, 1, 2, 0, 0);
-    }
+    trend_lines(&f, h, t_end);
+    fit_points(&f, h);
+    if (fc)
+        required_line(&f, fc, first_t, t_end);
+    event_lines(&f, d);
     f.c->legend_pos = 3;
     return plot_fig_close(&f, out, err);
 }
