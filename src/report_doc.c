@@ -261,6 +261,72 @@ static const char *cond_text(stagecal_report_doc *d, const stagecal_model *m, do
                : report_doc_str(d, "R = %s", report_doc_fmt_r(d, r));
 }
 
+/* HETP at (r, fl) with its interval and the packed height, or why it is not determined. */
+static const char *hetp_text(stagecal_report_doc *d, const stagecal_model *m, double r, double fl)
+{
+    double lvl = 100 * m->level;
+    stagecal_hetp_stages hs;
+    stagecal_hetp_result h;
+    stagecal_error e2;
+    if (stagecal_hetp_stages_from_model(m, r, fl, &hs, NULL, &e2) != STAGECAL_OK ||
+        stagecal_hetp_compute(m->height_m, &hs, m->level, &h, &e2) != STAGECAL_OK)
+        return report_doc_str(d, "not determined at this condition: %s", e2.text);
+    if (h.at_most)
+        return report_doc_str(d, "at most %.3f m (one-sided %.0f %%), packed height %.3g m",
+                              h.hetp_m, lvl, m->height_m);
+    if (h.unbounded || !isfinite(h.high_m))
+        return report_doc_str(d,
+                              "%.3f m (%.0f %% interval from %.3f m, not bounded above), "
+                              "packed height %.3g m",
+                              h.hetp_m, lvl, h.low_m, m->height_m);
+    return report_doc_str(d,
+                          "%.3f m (%.0f %% interval %.3f \xe2\x80\x93 %.3f m), packed "
+                          "height %.3g m",
+                          h.hetp_m, lvl, h.low_m, h.high_m, m->height_m);
+}
+
+/* The verdicts under the answer p: inside or outside the fitted envelope, and how far the
+ * stage count can be trusted (one-sided, no scatter, or its precision). */
+static void answer_verdicts(stagecal_report_doc *d, const stagecal_model *m,
+                            const stagecal_model_point *p)
+{
+    double lvl = 100 * m->level;
+    d->rep.n_verdicts = 0;
+    const char *env =
+        m->has_load ? report_doc_str(d, "R %s \xe2\x80\x93 %s, F %.3g \xe2\x80\x93 %.3g Pa^0.5",
+                                     report_doc_fmt_r(d, m->r_min), report_doc_fmt_r(d, m->r_max),
+                                     m->f_min, m->f_max)
+                    : report_doc_str(d, "R %s \xe2\x80\x93 %s", report_doc_fmt_r(d, m->r_min),
+                                     report_doc_fmt_r(d, m->r_max));
+    if (p->extrapolated)
+        report_doc_add_verdict(
+            d, report_doc_str(d,
+                              "EXTRAPOLATED: the condition lies outside the fitted envelope "
+                              "(%s); the stage count there is not backed by data and may be off "
+                              "by more than its interval.",
+                              env));
+    else
+        report_doc_add_verdict(
+            d, report_doc_str(d,
+                              "Inside the fitted envelope (%s): the answer interpolates the "
+                              "evidence.",
+                              env));
+    if (p->lower_only)
+        report_doc_add_verdict(d, "One-sided: analyser readings at their limit bound the stage "
+                                  "count from below only; the column has at least this many "
+                                  "stages, and no upper end is known.");
+    else if (m->method != STAGECAL_MODEL_CENSORED && !(m->sigma > 0))
+        report_doc_add_verdict(d, "No residual scatter: the correlation passes through every "
+                                  "window, so the data cannot show how well it fits; more "
+                                  "windows are needed before its intervals can be relied on.");
+    else
+        report_doc_add_verdict(
+            d, report_doc_str(d,
+                              "Precision: the stage count at this condition is known to "
+                              "\xc2\xb1%.2f stages (half the %.0f %% confidence interval).",
+                              0.5 * (p->ci_high - p->ci_low), lvl));
+}
+
 /* Page one: the stages at (r, f) with their interval, the column stages, HETP at the same
  * condition, and the verdicts that follow from the model alone (envelope, one-sided,
  * scatter). Replaces an earlier answer. */
@@ -304,29 +370,9 @@ static int doc_answer(stagecal_report_doc *d, const stagecal_model *m, double r,
                                            p.column_stages,
                                            stagecal_convention_text(m->condenser)));
     /* HETP at this same condition (never at another reflux ratio) */
-    if (m->has_hetp && m->height_m > 0) {
-        stagecal_hetp_stages hs;
-        stagecal_hetp_result h;
-        stagecal_error e2;
-        const char *txt;
-        if (stagecal_hetp_stages_from_model(m, r, fl, &hs, NULL, &e2) != STAGECAL_OK ||
-            stagecal_hetp_compute(m->height_m, &hs, m->level, &h, &e2) != STAGECAL_OK)
-            txt = report_doc_str(d, "not determined at this condition: %s", e2.text);
-        else if (h.at_most)
-            txt = report_doc_str(d, "at most %.3f m (one-sided %.0f %%), packed height %.3g m",
-                                 h.hetp_m, lvl, m->height_m);
-        else if (h.unbounded || !isfinite(h.high_m))
-            txt = report_doc_str(d,
-                                 "%.3f m (%.0f %% interval from %.3f m, not bounded above), "
-                                 "packed height %.3g m",
-                                 h.hetp_m, lvl, h.low_m, m->height_m);
-        else
-            txt = report_doc_str(d,
-                                 "%.3f m (%.0f %% interval %.3f \xe2\x80\x93 %.3f m), packed "
-                                 "height %.3g m",
-                                 h.hetp_m, lvl, h.low_m, h.high_m, m->height_m);
-        report_doc_add_item(it, &n, report_doc_str(d, "HETP at %s", at), txt);
-    } else
+    if (m->has_hetp && m->height_m > 0)
+        report_doc_add_item(it, &n, report_doc_str(d, "HETP at %s", at), hetp_text(d, m, r, fl));
+    else
         report_doc_add_item(it, &n, "HETP", "not given: the column file states no packed height");
     report_doc_add_item(it, &n, "correlation",
                         report_doc_str(d, "%s, %s fit, %zu windows from %zu runs", m->form.name,
@@ -335,40 +381,7 @@ static int doc_answer(stagecal_report_doc *d, const stagecal_model *m, double r,
     rep->answer = it;
     rep->n_answer = n;
 
-    rep->n_verdicts = 0;
-    const char *env =
-        m->has_load ? report_doc_str(d, "R %s \xe2\x80\x93 %s, F %.3g \xe2\x80\x93 %.3g Pa^0.5",
-                                     report_doc_fmt_r(d, m->r_min), report_doc_fmt_r(d, m->r_max),
-                                     m->f_min, m->f_max)
-                    : report_doc_str(d, "R %s \xe2\x80\x93 %s", report_doc_fmt_r(d, m->r_min),
-                                     report_doc_fmt_r(d, m->r_max));
-    if (p.extrapolated)
-        report_doc_add_verdict(
-            d, report_doc_str(d,
-                              "EXTRAPOLATED: the condition lies outside the fitted envelope "
-                              "(%s); the stage count there is not backed by data and may be off "
-                              "by more than its interval.",
-                              env));
-    else
-        report_doc_add_verdict(
-            d, report_doc_str(d,
-                              "Inside the fitted envelope (%s): the answer interpolates the "
-                              "evidence.",
-                              env));
-    if (p.lower_only)
-        report_doc_add_verdict(d, "One-sided: analyser readings at their limit bound the stage "
-                                  "count from below only; the column has at least this many "
-                                  "stages, and no upper end is known.");
-    else if (m->method != STAGECAL_MODEL_CENSORED && !(m->sigma > 0))
-        report_doc_add_verdict(d, "No residual scatter: the correlation passes through every "
-                                  "window, so the data cannot show how well it fits; more "
-                                  "windows are needed before its intervals can be relied on.");
-    else
-        report_doc_add_verdict(
-            d, report_doc_str(d,
-                              "Precision: the stage count at this condition is known to "
-                              "\xc2\xb1%.2f stages (half the %.0f %% confidence interval).",
-                              0.5 * (p.ci_high - p.ci_low), lvl));
+    answer_verdicts(d, m, &p);
     return STAGECAL_OK;
 }
 
