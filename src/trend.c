@@ -646,6 +646,92 @@ static int splits(const stagecal_trend_event *e, const char *column_id)
     return e->kind != STAGECAL_EVENT_NOTE && strcmp(e->column_id, column_id) == 0;
 }
 
+/* Segments of h's points (in time order): a splitting event of the column at t_e opens a
+ * new segment holding points t >= t_e. Events sorted by time (as
+ * stagecal_trend_events_read returns them) are assumed; unsorted input is handled by
+ * scanning for the next event after each point. A status. */
+static int split_segments(stagecal_trend_history *h, const stagecal_trend_event *events,
+                          size_t n_events, const char *column_id, stagecal_error *err)
+{
+    size_t n = h->n;
+    size_t ns = 0;
+    stagecal_trend_segment *seg = h->segments;
+    double seg_open = -INFINITY;
+    long seg_event = -1;
+    for (size_t i = 0; i < n; i++) {
+        /* the latest splitting event at or before this point, later than seg_open */
+        long best = -1;
+        for (size_t k = 0; k < n_events; k++) {
+            if (!splits(&events[k], column_id))
+                continue;
+            if (events[k].t_s <= h->points[i].t_s && events[k].t_s > seg_open &&
+                (best < 0 || events[k].t_s > events[best].t_s))
+                best = (long)k;
+        }
+        if (i == 0 || best >= 0) {
+            if (ns == n_events + 1)
+                return error_set(err, STAGECAL_EINTERNAL, "segment overflow");
+            seg[ns].first = i;
+            seg[ns].event = best >= 0 ? best : seg_event;
+            seg[ns].start_s = best >= 0 ? events[best].t_s : h->points[i].t_s;
+            seg[ns].first_alarm = -1;
+            if (best >= 0)
+                seg_open = events[best].t_s;
+            ns++;
+        }
+        seg[ns - 1].n++;
+        h->segment_of[i] = ns - 1;
+    }
+    h->n_segments = ns;
+    return STAGECAL_OK;
+}
+
+/* Segment s's trend line (3 points or more), EWMA baseline (the given one for the current
+ * segment, else the weighted mean of its first baseline_n points), chart and first alarm.
+ * A status. */
+static int segment_chart(stagecal_trend_history *h, size_t s, const stagecal_trend_params *par,
+                         stagecal_error *err)
+{
+    stagecal_trend_segment *seg = h->segments;
+    size_t ns = h->n_segments;
+    int rc;
+    const stagecal_trend_point *sp = h->points + seg[s].first;
+    if (seg[s].n >= 3) {
+        rc = stagecal_trend_fit_line(sp, seg[s].n, par->level, &seg[s].fit, err);
+        if (rc == STAGECAL_EINVAL)
+            rc = STAGECAL_OK; /* e.g. all points at one time: no trend, not an error */
+        else if (rc)
+            return rc;
+        else
+            seg[s].has_fit = 1;
+    }
+    if (s == ns - 1 && isfinite(par->baseline)) {
+        seg[s].baseline = par->baseline;
+        seg[s].baseline_se = 0;
+    } else {
+        size_t m = seg[s].n < par->baseline_n ? seg[s].n : par->baseline_n;
+        double sw = 0, swy = 0;
+        for (size_t i = 0; i < m; i++) {
+            double w = 1.0 / (sp[i].se * sp[i].se);
+            sw += w;
+            swy += w * sp[i].value;
+        }
+        seg[s].baseline = swy / sw;
+        seg[s].baseline_se = 1.0 / sqrt(sw);
+    }
+    rc = stagecal_trend_ewma(sp, seg[s].n, seg[s].baseline, seg[s].baseline_se, &par->ewma,
+                             h->chart + seg[s].first, &seg[s].n_alarms, err);
+    if (rc)
+        return rc;
+    for (size_t i = 0; i < seg[s].n; i++) {
+        if (h->chart[seg[s].first + i].alarm) {
+            seg[s].first_alarm = (long)(seg[s].first + i);
+            break;
+        }
+    }
+    return STAGECAL_OK;
+}
+
 int stagecal_trend_analyse(const stagecal_trend_point *pts, size_t n,
                            const stagecal_trend_event *events, size_t n_events,
                            const char *column_id, const stagecal_trend_params *par,
@@ -678,75 +764,13 @@ int stagecal_trend_analyse(const stagecal_trend_point *pts, size_t n,
     for (size_t i = 0; i < n; i++)
         h->points[i] = pts[h->order[i]];
 
-    /* Segments: a splitting event at t_e opens a new segment holding points t ≥ t_e.
-     * Events sorted by time (as stagecal_trend_events_read returns them) are assumed;
-     * unsorted input is handled by scanning for the next event after each point. */
-    size_t ns = 0;
+    if ((rc = split_segments(h, events, n_events, column_id, err)))
+        return rc;
+    size_t ns = h->n_segments;
     stagecal_trend_segment *seg = h->segments;
-    double seg_open = -INFINITY;
-    long seg_event = -1;
-    for (size_t i = 0; i < n; i++) {
-        /* the latest splitting event at or before this point, later than seg_open */
-        long best = -1;
-        for (size_t k = 0; k < n_events; k++) {
-            if (!splits(&events[k], column_id))
-                continue;
-            if (events[k].t_s <= h->points[i].t_s && events[k].t_s > seg_open &&
-                (best < 0 || events[k].t_s > events[best].t_s))
-                best = (long)k;
-        }
-        if (i == 0 || best >= 0) {
-            if (ns == n_events + 1)
-                return error_set(err, STAGECAL_EINTERNAL, "segment overflow");
-            seg[ns].first = i;
-            seg[ns].event = best >= 0 ? best : seg_event;
-            seg[ns].start_s = best >= 0 ? events[best].t_s : h->points[i].t_s;
-            seg[ns].first_alarm = -1;
-            if (best >= 0)
-                seg_open = events[best].t_s;
-            ns++;
-        }
-        seg[ns - 1].n++;
-        h->segment_of[i] = ns - 1;
-    }
-    h->n_segments = ns;
-
-    for (size_t s = 0; s < ns; s++) {
-        const stagecal_trend_point *sp = h->points + seg[s].first;
-        if (seg[s].n >= 3) {
-            rc = stagecal_trend_fit_line(sp, seg[s].n, par->level, &seg[s].fit, err);
-            if (rc == STAGECAL_EINVAL)
-                rc = STAGECAL_OK; /* e.g. all points at one time: no trend, not an error */
-            else if (rc)
-                return rc;
-            else
-                seg[s].has_fit = 1;
-        }
-        if (s == ns - 1 && isfinite(par->baseline)) {
-            seg[s].baseline = par->baseline;
-            seg[s].baseline_se = 0;
-        } else {
-            size_t m = seg[s].n < par->baseline_n ? seg[s].n : par->baseline_n;
-            double sw = 0, swy = 0;
-            for (size_t i = 0; i < m; i++) {
-                double w = 1.0 / (sp[i].se * sp[i].se);
-                sw += w;
-                swy += w * sp[i].value;
-            }
-            seg[s].baseline = swy / sw;
-            seg[s].baseline_se = 1.0 / sqrt(sw);
-        }
-        rc = stagecal_trend_ewma(sp, seg[s].n, seg[s].baseline, seg[s].baseline_se, &par->ewma,
-                                 h->chart + seg[s].first, &seg[s].n_alarms, err);
-        if (rc)
+    for (size_t s = 0; s < ns; s++)
+        if ((rc = segment_chart(h, s, par, err)))
             return rc;
-        for (size_t i = 0; i < seg[s].n; i++) {
-            if (h->chart[seg[s].first + i].alarm) {
-                seg[s].first_alarm = (long)(seg[s].first + i);
-                break;
-            }
-        }
-    }
     const stagecal_trend_segment *cur = &seg[ns - 1];
     if (isfinite(par->required) && cur->has_fit) {
         rc = stagecal_trend_forecast_crossing(&cur->fit, par->required, h->points[n - 1].t_s,
