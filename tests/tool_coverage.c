@@ -5,7 +5,10 @@
  *
  * Usage: tool_coverage REPLICATIONS SEED [REGIME] [known-se | per-window-rho | smoother | quad]
  *        tool_coverage REPLICATIONS SEED measured-r [measured | set-point | readings] [diag] [quad]
- * (whole run logs from tests/synth_runlog.h through the whole chain; see measured_r_study)
+ *        tool_coverage REPLICATIONS SEED measured-r MODE [diag] refit | fixedwin S
+ * (whole run logs from tests/synth_runlog.h through the whole chain; see measured_r_study;
+ * refit and fixedwin print the diagnostic fits beside the model file's, see mr_refit and
+ * mr_settle)
  * Regimes (struct synth_regime in tests/synth_calibration.h): steady, white, drift,
  * drift-ar, irregular, short, long, purity. Diagnostics: known-se gives the windows their true
  * standard errors instead of the estimated ones (fixed instead of estimated weights);
@@ -189,6 +192,93 @@ static double logit_(double x)
 static double mr_dn[6], mr_dz[6], mr_dz2[6], mr_dm[6], mr_du[6], mr_dub[6], mr_cz[6], mr_cz2[6];
 static double mr_lin[6], mr_ex[6], mr_st[6], mr_gd[6], mr_gs[6];
 static double mr_ad[6], mr_ab[6], mr_sd[6], mr_sb[6];
+static double mr_cc[6], mr_cc2[6], mr_sdx[6], mr_ed[6], mr_eb[6], mr_end[6];
+/* "refit": the composition fit again on the same evidence (control) and with every window's
+ * mean xD, which only its weight uses, replaced by the true mean (weights free of the noise) */
+static int mr_refit;
+static struct tally mr_t_orig, mr_t_true;
+/* "fixedwin S": the evidence and both fits again with the steady test's windows (control) and
+ * with windows fixed by the set points alone (each set point's rows after S settling rows, the
+ * total-reflux start-up after 15): windows that no noise chooses */
+static long mr_settle = -1;
+static struct tally mr_t_sel, mr_t_fix, mr_t_moved;
+
+/* The composition fit (started at the stage-space fit) on the evidence of res's windows. */
+static void mr_fit_windows(const stagecal_runlog *log, const stagecal_column *col,
+                           const stagecal_calibrate_params *par, stagecal_runlog_result *res,
+                           struct tally *t)
+{
+    stagecal_evidence_set es;
+    struct synth_fit g;
+    memset(&g, 0, sizeof g);
+    memset(&es, 0, sizeof es);
+    stagecal_evidence_params ep = par->evidence;
+    ep.skip_run = NULL;
+    if (stagecal_evidence_build(log, res, col, par->murphree, &ep, &es, NULL) == STAGECAL_OK) {
+        double *arr = malloc((es.n + 1) * 4 * sizeof *arr);
+        stagecal_regress_data d;
+        stagecal_form form;
+        stagecal_regress_params rp = stagecal_regress_default_params();
+        rp.level = par->level;
+        stagecal_regress_result rs, rc;
+        memset(&rs, 0, sizeof rs);
+        memset(&rc, 0, sizeof rc);
+        if (arr && stagecal_form_parse("saturating", &form, NULL) == STAGECAL_OK) {
+            stagecal_evidence_points(es.ev, es.n, arr, &d);
+            if (stagecal_regress_fit(&d, &form, &rp, &rs, NULL) == STAGECAL_OK &&
+                stagecal_fit_composition(col->system.vle, par->murphree, es.ev, es.n, &form,
+                                         rs.theta, &rp, &rc, NULL) == STAGECAL_OK &&
+                synth_fill(&form, &rc, 1.0, &g))
+                g.ok = 0;
+        }
+        stagecal_regress_result_free(&rs);
+        stagecal_regress_result_free(&rc);
+        free(arr);
+    }
+    stagecal_evidence_set_free(&es);
+    tally_add(t, &g);
+}
+
+static void mr_fixed_windows(const stagecal_runlog *log, const stagecal_column *col,
+                             const stagecal_calibrate_params *par, stagecal_runlog_result *res)
+{
+    mr_fit_windows(log, col, par, res, &mr_t_sel);
+    stagecal_runlog_window *keep = res->windows, *w = calloc(12, sizeof *w);
+    size_t nkeep = res->nwindows;
+    if (!w)
+        return;
+    for (size_t k = 0; k < 2; k++)
+        for (size_t j = 0; j < 6; j++) {
+            stagecal_runlog_window *x = &w[k * 6 + j];
+            size_t base = (k * 6 + j) * 50;
+            x->run = k;
+            x->first = base + (j == 0 ? 15 : (size_t)mr_settle);
+            x->last = base + 49;
+            x->total_reflux = j == 0;
+            x->r_median = j == 0 ? INFINITY : log->r_set[x->first];
+            x->r_mean = log->r_set[x->first];
+            x->u_r = j == 0 ? 0.0 : log->u_r_set[x->first];
+            for (size_t i = x->first; i <= x->last; i++)
+                x->n_ok += res->status[i] == 0;
+        }
+    res->windows = w, res->nwindows = 12;
+    mr_fit_windows(log, col, par, res, &mr_t_fix);
+    /* the steady test's windows, each moved to the end of its set point's stretch (the same
+     * number and lengths, positions that no noise chooses) */
+    stagecal_runlog_window *v = calloc(nkeep ? nkeep : 1, sizeof *v);
+    for (size_t q = 0; v && q < nkeep; q++) {
+        v[q] = keep[q];
+        size_t len = keep[q].last - keep[q].first, end = keep[q].first / 50 * 50 + 49;
+        v[q].last = end, v[q].first = end - len, v[q].n_ok = 0;
+        for (size_t i = v[q].first; i <= v[q].last; i++)
+            v[q].n_ok += res->status[i] == 0;
+    }
+    res->windows = v, res->nwindows = nkeep;
+    if (v)
+        mr_fit_windows(log, col, par, res, &mr_t_moved);
+    res->windows = keep, res->nwindows = nkeep;
+    free(w), free(v);
+}
 
 /* One data set; f->ok = 0 when the calibration refused (counted by the caller). Returns 0,
  * or the line of a failure that must not happen. */
@@ -243,6 +333,18 @@ static int mr_one(gsl_rng *rng, const stagecal_column *col, enum mr_mode mode, s
         double lx = e->u_xb / (e->xb * (1 - e->xb)), ld = g * e->u_xd;
         double cz = (logit_(spd) - logit_(sm)) / sqrt(lx * lx + ld * ld);
         mr_cz[c] += cz, mr_cz2[c] += cz * cz;
+        /* the same with the library's convexity correction (h = the window's sd_xd) */
+        double spc = 0;
+        for (size_t j = 0; j < e->m; j++) {
+            double x = e->s_xd[j], hh = fmin(e->sd_xd, 0.5 * (1 - x));
+            double f0 = oracle_smoker_xb(MR_ALPHA, rset[c], x, nt);
+            if (hh > 0)
+                f0 -= 0.5 * (oracle_smoker_xb(MR_ALPHA, rset[c], x + hh, nt) - 2 * f0 +
+                             oracle_smoker_xb(MR_ALPHA, rset[c], x - hh, nt));
+            spc += f0 / (double)e->m;
+        }
+        double czc = (logit_(spc) - logit_(sm)) / sqrt(lx * lx + ld * ld);
+        mr_cc[c] += czc, mr_cc2[c] += czc * czc, mr_sdx[c] += e->sd_xd;
         /* the actual errors of the window means (the truth of every row kept by the simulator) */
         double ed, eb;
         srl_window_mean_error(log->xd, log->xb, e->first, e->last, &ed, &eb);
@@ -250,8 +352,38 @@ static int mr_one(gsl_rng *rng, const stagecal_column *col, enum mr_mode mode, s
         double exact = logit_(spd) - logit_(sm);
         mr_lin[c] += lin * lin, mr_ex[c] += exact * exact, mr_st[c] += lx * lx + ld * ld;
         mr_gd[c] += g * g * ed * ed, mr_gs[c] += ld * ld;
+        mr_ed[c] += ed / e->u_xd, mr_eb[c] += eb / e->u_xb;
+        mr_end[c] += (double)(e->last - e->first + 1) / 50.0;
         mr_ad[c] += ed * ed, mr_ab[c] += eb * eb, mr_sd[c] += e->u_xd * e->u_xd,
             mr_sb[c] += e->u_xb * e->u_xb;
+    }
+    if (mr_settle >= 0 && rc == STAGECAL_OK)
+        mr_fixed_windows(log, col, &par, &cal.res);
+    if (mr_refit && rc == STAGECAL_OK && cal.stage_status == STAGECAL_OK) {
+        size_t n = cal.evidence.n;
+        stagecal_evidence *ev = malloc(n * sizeof *ev);
+        stagecal_regress_params rp = stagecal_regress_default_params();
+        rp.level = par.level;
+        for (int pass = 0; ev && pass < 2; pass++) {
+            memcpy(ev, cal.evidence.ev, n * sizeof *ev);
+            for (size_t k = 0; pass == 1 && k < n; k++) {
+                double st = 0;
+                for (size_t i = ev[k].first; i <= ev[k].last; i++)
+                    st += srl_truth_xd[i];
+                ev[k].xd = st / (double)(ev[k].last - ev[k].first + 1);
+            }
+            stagecal_regress_result rr;
+            struct synth_fit g;
+            memset(&g, 0, sizeof g);
+            if (stagecal_fit_composition(col->system.vle, par.murphree, ev, n, &cal.comp_fit.form,
+                                         cal.stage_fit.theta, &rp, &rr, NULL) == STAGECAL_OK) {
+                if (synth_fill(&rr.form, &rr, 1.0, &g))
+                    g.ok = 0;
+                stagecal_regress_result_free(&rr);
+            }
+            tally_add(pass ? &mr_t_true : &mr_t_orig, &g);
+        }
+        free(ev);
     }
     if (rc == STAGECAL_OK) {
         const stagecal_regress_result *res =
@@ -299,7 +431,10 @@ static int measured_r_study(long reps, unsigned long seed, const char *mode_name
     col.u.xb = 0.0025;
     col.u.r = 0.02;
     snprintf(col.id, sizeof col.id, "synthetic");
-    if (!rng || !col.system.vle || tally_alloc(&tm, (int)reps)) {
+    if (!rng || !col.system.vle || tally_alloc(&tm, (int)reps) ||
+        tally_alloc(&mr_t_orig, (int)reps) || tally_alloc(&mr_t_true, (int)reps) ||
+        tally_alloc(&mr_t_sel, (int)reps) || tally_alloc(&mr_t_fix, (int)reps) ||
+        tally_alloc(&mr_t_moved, (int)reps)) {
         fprintf(stderr, "tool_coverage: set-up failed\n");
         return 1;
     }
@@ -331,6 +466,24 @@ static int measured_r_study(long reps, unsigned long seed, const char *mode_name
                reps, mode_name, seed, wins, mr_comp,
                (double)(t1.tv_sec - t0.tv_sec) + 1e-9 * (double)(t1.tv_nsec - t0.tv_nsec));
         report("the model file's fit", &tm, (int)reps);
+        if (mr_settle >= 0) {
+            report("steady-test windows, refitted (control)", &mr_t_sel, (int)reps);
+            report("windows fixed by the set points", &mr_t_fix, (int)reps);
+            report("the steady test's windows moved to their stretch's end", &mr_t_moved,
+                   (int)reps);
+        }
+        if (mr_refit) {
+            report("refit, same evidence (control)", &mr_t_orig, (int)reps);
+            report("refit, weights at the true mean xD", &mr_t_true, (int)reps);
+        }
+        for (int c = 0; mr_diag && c < 6; c++)
+            printf("  set point %d: composition z at the truth with the convexity correction: "
+                   "mean %+.3f, rms %.3f; mean sd_xd %.3e\n",
+                   c, mr_cc[c] / mr_dn[c], sqrt(mr_cc2[c] / mr_dn[c]), mr_sdx[c] / mr_dn[c]);
+        for (int c = 0; mr_diag && c < 6; c++)
+            printf("  set point %d: mean signed error of the window means over their stated se: "
+                   "xD %+.3f, xB %+.3f; window rows / set-point rows %.3f\n",
+                   c, mr_ed[c] / mr_dn[c], mr_eb[c] / mr_dn[c], mr_end[c] / mr_dn[c]);
         for (int c = 0; mr_diag && c < 6; c++)
             printf("  set point %d: %.0f windows, mean samples %.1f, window stage z: mean %+.3f, "
                    "rms %.3f; mean u(xD) %.2e u(xB) %.2e; composition z at the truth: mean %+.3f, "
@@ -350,6 +503,11 @@ static int measured_r_study(long reps, unsigned long seed, const char *mode_name
                    sqrt(mr_gs[c] / mr_gd[c]), mr_gs[c] / mr_st[c]);
     }
     tally_free(&tm);
+    tally_free(&mr_t_orig);
+    tally_free(&mr_t_true);
+    tally_free(&mr_t_sel);
+    tally_free(&mr_t_fix);
+    tally_free(&mr_t_moved);
     stagecal_vle_free(col.system.vle);
     gsl_rng_free(rng);
     return rc;
@@ -374,8 +532,14 @@ int main(int argc, char **argv)
     if (argc >= 4 && strcmp(argv[3], "measured-r") == 0) {
         if (strcmp(argv[argc - 1], "quad") == 0) /* the builder's QUAD_POOLED window statistics */
             mr_quad = 1, argc--;
-        if (strcmp(argv[argc - 1], "diag") == 0) {
-            mr_diag = 1, argc--;
+        if (argc > 5 && strcmp(argv[argc - 2], "fixedwin") == 0)
+            mr_settle = strtol(argv[argc - 1], NULL, 10), argc -= 2;
+        if (strcmp(argv[argc - 1], "refit") == 0)
+            mr_refit = 1, argc--;
+        if (strcmp(argv[argc - 1], "diag") == 0 || mr_refit) {
+            mr_diag = mr_diag || strcmp(argv[argc - 1], "diag") == 0;
+            if (mr_diag)
+                argc--;
             srl_truth_xd = calloc(1000, sizeof(double));
             srl_truth_xb = calloc(1000, sizeof(double));
         }
