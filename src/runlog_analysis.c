@@ -453,6 +453,53 @@ void runlog_run_samples(const stagecal_runlog *log, const stagecal_runlog_analys
     *min_window = m;
 }
 
+/* 1 when run row i (from the run's first row f) starts a new reflux set point: its set point
+ * differs from the last one logged before it (rows without an R, whose set point is NaN, are
+ * passed over, so a missing reading is not a change). */
+static int setpoint_changes(const stagecal_runlog *log, size_t f, size_t i)
+{
+    double rs = runlog_rset(log, f + i);
+    if (isnan(rs))
+        return 0;
+    for (size_t j = i; j-- > 0;) {
+        double rp = runlog_rset(log, f + j);
+        if (!isnan(rp))
+            return !(rs == rp);
+    }
+    return 0;
+}
+
+/* The sample at which the R-statistic restarts after a change of the reflux set point at
+ * sample c: a warm-up after it, as after the start of the run (the column's response to the
+ * change — a holdup's lag — is waited out as the start-up's is), unless the warm-up's own
+ * restart already takes its state from a window length of samples after the change (a change
+ * early in the start-up). A restart a window length after the change (6 samples) was tried:
+ * on the invented demo scenario's logs, whose distillate follows a 20-min lag, it read the
+ * stage count at high R low (median z -0.26 against -0.15 at R = 5 over 200 data sets,
+ * docs/calibration.md §5). */
+static size_t restart_after(size_t c, size_t warmup, size_t min_window)
+{
+    return c + min_window > warmup ? c + warmup : warmup;
+}
+
+/* Restarts the R-statistic r of the run's signal x[0..m) after every change of the reflux set
+ * point (restart_after), as at the end of the warm-up (rstat_restart), in order, each restart
+ * recomputing r from its sample on. Carried through the change, the filters kept the old set
+ * point's level: the statistic fell below r_enter only once the lagging filtered value caught
+ * up with the new level, and sooner where the noise of the latest samples pointed back
+ * towards the old one, so a window's first samples were chosen by the sign of their noise
+ * (measured: docs/calibration.md §5b). */
+static void rstat_restart_changes(const stagecal_runlog *log, size_t f, const double *x, size_t m,
+                                  size_t warmup, size_t min_window,
+                                  const stagecal_runlog_analysis_params *par, double floor_var,
+                                  double *r)
+{
+    for (size_t i = 1; i < m; i++)
+        if (setpoint_changes(log, f, i) && restart_after(i, warmup, min_window) > warmup)
+            rstat_restart(x, m, restart_after(i, warmup, min_window), min_window, par, floor_var,
+                          r);
+}
+
 int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
                    const stagecal_runlog_analysis_params *par, stagecal_runlog_result *res,
                    stagecal_error *err)
@@ -491,6 +538,7 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
         stagecal_runlog_rstat(sig, m, par->lambda1, par->lambda2, par->lambda3, us * us + 1e-12, ra,
                               NULL);
         rstat_restart(sig, m, warmup, min_window, par, us * us + 1e-12, ra);
+        rstat_restart_changes(log, f, sig, m, warmup, min_window, par, us * us + 1e-12, ra);
         /* (b) balance residual of xB */
         for (size_t i = 0; i < m; i++)
             sig[i] = isnan(res->xb_rec[f + i]) || (res->flags[f + i] & STAGECAL_SAMPLE_OUTLIER)
@@ -499,16 +547,21 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
         stagecal_runlog_rstat(sig, m, par->lambda1, par->lambda2, par->lambda3, uxb * uxb + 1e-12,
                               rb, NULL);
         rstat_restart(sig, m, warmup, min_window, par, uxb * uxb + 1e-12, rb);
+        rstat_restart_changes(log, f, sig, m, warmup, min_window, par, uxb * uxb + 1e-12, rb);
         int steady = 0;
+        size_t settled = warmup; /* the first sample that may be steady */
         for (size_t i = 0; i < m; i++) {
             size_t row = f + i;
             double rmax = i == 0 ? HUGE_VAL : fmax(ra[i - 1], rb[i - 1]);
             double rs = runlog_rset(log, row), rp = i > 0 ? runlog_rset(log, row - 1) : rs;
             int reflux_change = i > 0 && !(rs == rp) && !(isnan(rs) && isnan(rp));
+            if (setpoint_changes(log, f, i))
+                settled = restart_after(i, warmup, min_window);
             if (i < warmup) {
                 res->flags[row] |= STAGECAL_SAMPLE_WARMUP;
                 steady = 0;
-            } else if (reflux_change || res->status[row] == STAGECAL_STAGES_INVALID) {
+            } else if (reflux_change || i < settled ||
+                       res->status[row] == STAGECAL_STAGES_INVALID) {
                 /* A sample at a pinch does not end a window: near a lean pot the analyser
                  * noise alone decides which samples pinch, and dropping them would select
                  * the windows by the sign of the noise (a bias in the fit). */
