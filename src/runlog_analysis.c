@@ -100,6 +100,18 @@ int stagecal_runlog_rstat(const double *x, size_t n, double l1, double l2, doubl
     return STAGECAL_OK;
 }
 
+/* 1 when rstat_restart at sample w restarts (its state needs at least two successive pairs
+ * among the len samples before w, the last of them present); it reads x[0..w) only. */
+static int restart_possible(const double *x, size_t w, size_t len)
+{
+    if (w < 2 || len < 3 || isnan(x[w - 1]))
+        return 0;
+    size_t np = 0;
+    for (size_t i = w - (len < w ? len : w) + 1; i < w; i++)
+        np += !isnan(x[i]) && !isnan(x[i - 1]);
+    return np >= 2;
+}
+
 /* Restarts the R-statistic of a run's signal x[0..n) at the end of the warm-up (sample w),
  * with the filter state estimated from the last len warm-up samples instead of carried
  * through the whole warm-up: the mean as the filtered value, their variance about it
@@ -494,10 +506,20 @@ static void rstat_restart_changes(const stagecal_runlog *log, size_t f, const do
                                   const stagecal_runlog_analysis_params *par, double floor_var,
                                   double *r)
 {
-    for (size_t i = 1; i < m; i++)
-        if (setpoint_changes(log, f, i) && restart_after(i, warmup, min_window) > warmup)
-            rstat_restart(x, m, restart_after(i, warmup, min_window), min_window, par, floor_var,
-                          r);
+    /* each restart runs only up to the next one that takes place (a log whose R changes at
+     * every row would otherwise cost a pass over the rest of the run per row) */
+    size_t pending = 0;
+    for (size_t i = 1; i < m; i++) {
+        size_t p = restart_after(i, warmup, min_window);
+        if (!setpoint_changes(log, f, i) || !(p > warmup && p < m) ||
+            !restart_possible(x, p, min_window))
+            continue;
+        if (pending)
+            rstat_restart(x, p, pending, min_window, par, floor_var, r);
+        pending = p;
+    }
+    if (pending)
+        rstat_restart(x, m, pending, min_window, par, floor_var, r);
 }
 
 int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
