@@ -495,13 +495,13 @@ static size_t restart_after(size_t c, size_t warmup, size_t min_window)
 }
 
 /* Restarts the R-statistic r of the run's signal x[0..m) after every change of the reflux set
- * point (restart_after), as at the end of the warm-up (rstat_restart), in order, each restart
- * recomputing r from its sample on. Carried through the change, the filters kept the old set
- * point's level: the statistic fell below r_enter only once the lagging filtered value caught
- * up with the new level, and sooner where the noise of the latest samples pointed back
- * towards the old one, so a window's first samples were chosen by the sign of their noise
- * (measured: docs/calibration.md §5b). */
-static void rstat_restart_changes(const stagecal_runlog *log, size_t f, const double *x, size_t m,
+ * point (changes[i] = setpoint_changes at sample i; restart_after), as at the end of the warm-up
+ * (rstat_restart), in order, each restart recomputing r from its sample on. Carried through the
+ * change, the filters kept the old set point's level: the statistic fell below r_enter only once
+ * the lagging filtered value caught up with the new level, and sooner where the noise of the latest
+ * samples pointed back towards the old one, so a window's first samples were chosen by the sign of
+ * their noise (measured: docs/calibration.md §5b). */
+static void rstat_restart_changes(const unsigned char *changes, const double *x, size_t m,
                                   size_t warmup, size_t min_window,
                                   const stagecal_runlog_analysis_params *par, double floor_var,
                                   double *r)
@@ -511,8 +511,7 @@ static void rstat_restart_changes(const stagecal_runlog *log, size_t f, const do
     size_t pending = 0;
     for (size_t i = 1; i < m; i++) {
         size_t p = restart_after(i, warmup, min_window);
-        if (!setpoint_changes(log, f, i) || !(p > warmup && p < m) ||
-            !restart_possible(x, p, min_window))
+        if (!changes[i] || !(p > warmup && p < m) || !restart_possible(x, p, min_window))
             continue;
         if (pending)
             rstat_restart(x, p, pending, min_window, par, floor_var, r);
@@ -532,8 +531,9 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
             maxrun = log->runs[k].n;
     double *sig = alloc_n(maxrun, sizeof *sig), *ra = alloc_n(maxrun, sizeof *ra),
            *rb = alloc_n(maxrun, sizeof *rb), *tmp = alloc_n(maxrun, sizeof *tmp);
-    if (!sig || !ra || !rb || !tmp) {
-        free(sig), free(ra), free(rb), free(tmp);
+    unsigned char *chg = alloc_n(maxrun, sizeof *chg); /* the run's set-point changes */
+    if (!sig || !ra || !rb || !tmp || !chg) {
+        free(sig), free(ra), free(rb), free(tmp), free(chg);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
     free(res->windows);
@@ -548,6 +548,8 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
         if (m < 2)
             continue;
         runlog_run_samples(log, par, k, tmp, &warmup, &min_window);
+        for (size_t i = 0; i < m; i++)
+            chg[i] = (unsigned char)setpoint_changes(log, f, i);
         /* (a) stages: floor = median u(stages)² of the run */
         size_t q = 0;
         for (size_t i = 0; i < m; i++) {
@@ -560,7 +562,7 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
         stagecal_runlog_rstat(sig, m, par->lambda1, par->lambda2, par->lambda3, us * us + 1e-12, ra,
                               NULL);
         rstat_restart(sig, m, warmup, min_window, par, us * us + 1e-12, ra);
-        rstat_restart_changes(log, f, sig, m, warmup, min_window, par, us * us + 1e-12, ra);
+        rstat_restart_changes(chg, sig, m, warmup, min_window, par, us * us + 1e-12, ra);
         /* (b) balance residual of xB */
         for (size_t i = 0; i < m; i++)
             sig[i] = isnan(res->xb_rec[f + i]) || (res->flags[f + i] & STAGECAL_SAMPLE_OUTLIER)
@@ -569,7 +571,7 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
         stagecal_runlog_rstat(sig, m, par->lambda1, par->lambda2, par->lambda3, uxb * uxb + 1e-12,
                               rb, NULL);
         rstat_restart(sig, m, warmup, min_window, par, uxb * uxb + 1e-12, rb);
-        rstat_restart_changes(log, f, sig, m, warmup, min_window, par, uxb * uxb + 1e-12, rb);
+        rstat_restart_changes(chg, sig, m, warmup, min_window, par, uxb * uxb + 1e-12, rb);
         int steady = 0;
         size_t settled = warmup; /* the first sample that may be steady */
         for (size_t i = 0; i < m; i++) {
@@ -577,7 +579,7 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
             double rmax = i == 0 ? HUGE_VAL : fmax(ra[i - 1], rb[i - 1]);
             double rs = runlog_rset(log, row), rp = i > 0 ? runlog_rset(log, row - 1) : rs;
             int reflux_change = i > 0 && !(rs == rp) && !(isnan(rs) && isnan(rp));
-            if (setpoint_changes(log, f, i))
+            if (chg[i])
                 settled = restart_after(i, warmup, min_window);
             if (i < warmup) {
                 res->flags[row] |= STAGECAL_SAMPLE_WARMUP;
@@ -645,6 +647,6 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
             i = j;
         }
     }
-    free(sig), free(ra), free(rb), free(tmp);
+    free(sig), free(ra), free(rb), free(tmp), free(chg);
     return rc;
 }
