@@ -507,6 +507,56 @@ static int count_corrected(const stagecal_vle *vle, double xd, double xb, double
     return holdup_count_corrected(vle, xd, xb, m, g0, gs, s, ns, count, sum_x, NULL, 0, NULL);
 }
 
+/* The crossing step's fraction f as a fixed point: the pot's vapour meets the line whose
+ * holdup term carries the fraction f of the crossing stage's (g = gp + f·gn), at the log-odds
+ * position f between the previous liquid and this one (see holdup_count_corrected). */
+struct cross_ctx {
+    double ypot, m, xd, gp, gn, lo, hi;
+};
+
+static double cross_target(const struct cross_ctx *c, double f)
+{
+    return (c->ypot - (1 - c->m) * c->xd - c->gp - f * c->gn) / c->m;
+}
+
+static double cross_position(const struct cross_ctx *c, double x_target)
+{
+    double tg = odds(fmin(fmax(x_target, 1e-300), 1 - 1e-16));
+    return log(c->lo / tg) / log(c->lo / c->hi);
+}
+
+static double cross_residual(double f, void *p)
+{
+    const struct cross_ctx *c = p;
+    return fmin(fmax(cross_position(c, cross_target(c, f)), 0.0), 1.0) - f;
+}
+
+/* f in [0, 1] with cross_residual(f) = 0 (GSL Brent); the one-sided value of the plain rule
+ * when the ends do not bracket a root (the first step, or rounding). */
+static double cross_fraction(struct cross_ctx *c, double x_prev, double x_target_full)
+{
+    double r0 = cross_residual(0.0, c), r1 = cross_residual(1.0, c);
+    if (!(r0 > 0 && r1 < 0))
+        return x_prev > x_target_full ? fmin(fmax(cross_position(c, x_target_full), 0.0), 1.0)
+                                      : 0.0;
+    gsl_function fn = {cross_residual, c};
+    gsl_root_fsolver *sv = gsl_root_fsolver_alloc(gsl_root_fsolver_brent);
+    double f = NAN;
+    if (sv && gsl_root_fsolver_set(sv, &fn, 0.0, 1.0) == GSL_SUCCESS) {
+        for (int it = 0; it < 100; it++) {
+            if (gsl_root_fsolver_iterate(sv) != GSL_SUCCESS)
+                break;
+            double a = gsl_root_fsolver_x_lower(sv), b = gsl_root_fsolver_x_upper(sv);
+            if (gsl_root_test_interval(a, b, 1e-13, 0) == GSL_SUCCESS) {
+                f = gsl_root_fsolver_root(sv);
+                break;
+            }
+        }
+    }
+    gsl_root_fsolver_free(sv);
+    return isfinite(f) ? f : fmin(fmax(cross_position(c, x_target_full), 0.0), 1.0);
+}
+
 int holdup_count_corrected(const stagecal_vle *vle, double xd, double xb, double m, double g0,
                            double gs, const double *s, size_t ns, double *count, double *sum_x,
                            double *xs, size_t xs_cap, size_t *n_xs)
@@ -522,13 +572,26 @@ int holdup_count_corrected(const stagecal_vle *vle, double xd, double xb, double
             return STAGECAL_ENOCONV;
         if (xs && n - 1 < xs_cap)
             xs[n - 1] = x, *n_xs = n;
+        double g_prev = g0 + gs * cum;
         cum += ns ? s[n - 1 < ns ? n - 1 : ns - 1] : 0;
         double g = g0 + gs * cum;
         /* the pot's vapour meets the liquid of this stage on the line */
         double x_target = (ypot - (1 - m) * xd - g) / m;
         if (x <= x_target) {
-            double lo = odds(x_prev), hi = odds(x), tg = odds(fmin(fmax(x_target, 1e-300), x_prev));
-            double f = x_prev > x_target ? log(lo / tg) / log(lo / hi) : 0.0;
+            double f;
+            if (g != g_prev && x_prev > x) {
+                /* the crossing stage is a fraction f of a stage: its holdup term enters with
+                 * the same fraction, so the count is continuous where the crossing moves to the
+                 * next step (with the whole term it stuck at the whole count over a range of
+                 * holdups: docs/methods.md, "Column holdup") */
+                struct cross_ctx c = {ypot, m, xd, g_prev, g - g_prev, odds(x_prev), odds(x)};
+                f = cross_fraction(&c, x_prev, x_target);
+                x_target = cross_target(&c, f);
+            } else {
+                double lo = odds(x_prev), hi = odds(x),
+                       tg = odds(fmin(fmax(x_target, 1e-300), x_prev));
+                f = x_prev > x_target ? log(lo / tg) / log(lo / hi) : 0.0;
+            }
             *count = (double)(n - 1) + f + 1.0; /* + the pot */
             if (sum_x)
                 *sum_x = sx + f * fmin(fmax(x_target, x), x_prev);

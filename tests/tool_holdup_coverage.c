@@ -20,7 +20,8 @@
  * flagged and the calibrations that stopped. With `stages` the flagged runs are left out
  * (the default); `none` and `lag` keep them (--keep-flagged), so their figures show the
  * compensation's effect alone (HOLDUP_STUDY_KEEP keeps them with `stages` too).
- * HOLDUP_STUDY_N fixes the true count (exploring). Progress on stderr. Not run by ctest
+ * HOLDUP_STUDY_N fixes the true count, HOLDUP_STUDY_STATED states the holdup times this factor
+ * (exploring). Progress on stderr. Not run by ctest
  * (minutes of CPU).
  */
 #include <gsl/gsl_errno.h>
@@ -192,7 +193,9 @@ int main(int argc, char **argv)
         double hold = 0;
         int n = simulate(rng, paths[0], &hold);
         char hpart[128];
-        snprintf(hpart, sizeof hpart, HOLDUP_FMT, hold * 25000);
+        /* exploring: HOLDUP_STUDY_STATED states the holdup that times the true one */
+        const char *st = getenv("HOLDUP_STUDY_STATED");
+        snprintf(hpart, sizeof hpart, HOLDUP_FMT, hold * 25000 * (st ? strtod(st, NULL) : 1.0));
         for (int c = 0; c < 2; c++) {
             FILE *cf = fopen(colpath[c], "w");
             if (!cf || fprintf(cf, COLUMN_FMT, c ? "" : hpart) < 0 || fclose(cf) != 0)
