@@ -273,6 +273,60 @@ static void holdup_correction_matches_dynamic_column(void **state)
     stagecal_runlog_free(log);
 }
 
+/* The steady-equivalent xD is linear in the holdup to first order (the summed component
+ * balances are linear in the stage liquids' holdup, Distefano 1968, from memory; the
+ * correction is first order in it), also where the corrected count crosses a whole number —
+ * which it does on the rows of a column with a whole number of stages. The independent
+ * dynamic simulator (6 stages incl. the pot, α = 2.4, holdup 5 % of a 25 kmol charge, V =
+ * 1 mol/s, R = 1.5 after a 1 h start-up), noise-free, logged every 2 min: from 3 h to 5.5 h
+ * (the corrected count at the true holdup runs from 5.92 to 6.04 over these rows, so it
+ * crosses 6), with the holdup stated 6 % low, right and 6 % high (the spread of the holdup
+ * study's per-run holdups, tests/tool_holdup_coverage.c), the second difference of the shift
+ * xD,ss − xD stays below 5 % of its first difference (second-order terms of a 6 % change are
+ * of the order of 6 % of the first-order ones; measured: at most 0.8 %). Until December 2026
+ * the crossing stage's whole holdup term entered the line before the crossing was located, so
+ * the count stuck at exactly 6 over a range of holdups (0.94–0.98 of the true one at one row
+ * of the holdup study): the second difference was up to 100 % of the first, and the study's
+ * per-run holdup spread biased its 6-stage columns low (docs/methods.md, "Column holdup"). */
+static void holdup_shift_linear_in_holdup_at_whole_count(void **state)
+{
+    (void)state;
+    sim_dyn_params p = {2.4, 6, 25000, 0.5, 0.05, 0, 1.0, 3600, 1.5, 7 * 3600.0, 120, 0, 0, 0.05};
+    stagecal_runlog *log = sim_log(&p);
+    stagecal_vle *v = stagecal_vle_alloc_alpha(2.4, NULL);
+    size_t checked = 0;
+    double worst = 0, nlo = INFINITY, nhi = -INFINITY;
+    for (size_t i = 1; i + 1 < log->n; i++) {
+        double th = log->t_s[i] / 3600;
+        if (th < 3 || th > 5.5)
+            continue;
+        double d = (log->xd[i + 1] - log->xd[i - 1]) / (log->t_s[i + 1] - log->t_s[i - 1]);
+        double sh[3], n = 0;
+        for (int k = 0; k < 3; k++) {
+            stagecal_holdup_state st = {1250 * (0.94 + 0.06 * k), 0, 1.0, d};
+            double x;
+            assert_int_equal(
+                stagecal_holdup_steady_xd(v, log->xd[i], log->xb[i], 1.5, &st, &x, NULL), 0);
+            sh[k] = x - log->xd[i];
+            if (k == 1)
+                assert_int_equal(
+                    stagecal_holdup_invert(v, log->xd[i], log->xb[i], 1.5, 0, &st, &n, NULL), 0);
+        }
+        nlo = fmin(nlo, n - 6), nhi = fmax(nhi, n - 6);
+        assert_true(fabs(sh[2] - sh[0]) > 1e-4); /* the holdup moves the shift */
+        double ratio = fabs(sh[0] + sh[2] - 2 * sh[1]) / fabs(sh[2] - sh[0]);
+        worst = fmax(worst, ratio);
+        checked++;
+    }
+    assert_true(checked >= 60);
+    assert_true(nlo < 0 && nhi > 0); /* the corrected count crosses 6 among these rows */
+    if (worst > 0.05)
+        fail_msg("second difference of the shift %.3f of its first difference (at most 0.05)",
+                 worst);
+    stagecal_vle_free(v);
+    stagecal_runlog_free(log);
+}
+
 /* The light component the column holds (holdup_column_light, the pseudo-steady profile down
  * the holdup-corrected line) closes the pot's Rayleigh balance of the independent dynamic
  * simulator: with 7 stages, 4 % holdup (1000 mol) and R = 3, noise-free, every production row
@@ -507,11 +561,14 @@ static void holdup_stages_variance(void **state)
  * stated u(xD) 0.002 sets the tolerance 0.1·u = 2·10⁻⁴ in xD, about 0.02 stages here). Without
  * the test (quasi_tol_u 0) the first rows after the settling time still carry the free response
  * of the profile and invert more than 0.1 stages below the true 6. With it those rows are left
- * out: every row kept up to 7 h inverts within 0.02 of 6 (measured: −0.018 at the first kept
- * row, 4.07 h, within 10⁻⁴ from 4.4 h), a kept row keeps its first-order value, and at least
- * 40 % of the production rows stay. Not caught, and so not asserted: the last 50 min of this
- * depleting run, where the first-order model reads −0.01 to −0.2 stages (the batch moves too fast
- * for the pseudo-steady profile near the pinch; docs/methods.md). */
+ * out: every row kept up to 7 h inverts within 0.05 of 6 (measured: −0.018 at the first kept
+ * row, 4.03 h, then the first-order model's own error, rising to +0.038 at 6 h and +0.018 at
+ * 6.8 h; until December 2026 the whole-count plateau of the corrected count, see
+ * holdup_shift_linear_in_holdup_at_whole_count, read these rows as exactly 6 from 4.4 h on), a
+ * kept row keeps its first-order value, and at least 40 % of the production rows stay. Not caught,
+ * and so not asserted: the last 50 min of this depleting run, where the first-order model reads
+ * −0.01 to −0.2 stages (the batch moves too fast for the pseudo-steady profile near the pinch;
+ * docs/methods.md). */
 static void holdup_quasi_steady_test_drops_free_response(void **state)
 {
     (void)state;
@@ -547,7 +604,7 @@ static void holdup_quasi_steady_test_drops_free_response(void **state)
             continue;
         assert_int_equal(stagecal_stages_invert(v, x1[i], rl->xb[i], 1.5, 1.0, NULL, &r, NULL), 0);
         assert_int_equal(r.status, STAGECAL_STAGES_OK);
-        assert_abs(r.stages, 6.0, 0.02, "kept row vs the simulator's 6 stages");
+        assert_abs(r.stages, 6.0, 0.05, "kept row vs the simulator's 6 stages");
     }
     assert_true(off0 > 0 && dropped_off == off0);
     assert_true(kept >= 0.4 * (double)prod);
@@ -648,6 +705,7 @@ int main(void)
         cmocka_unit_test(holdup_lag_compensation_inverts_a_ramp),
         cmocka_unit_test(holdup_zero_is_plain),
         cmocka_unit_test(holdup_correction_matches_dynamic_column),
+        cmocka_unit_test(holdup_shift_linear_in_holdup_at_whole_count),
         cmocka_unit_test(holdup_column_light_closes_balance),
         cmocka_unit_test(holdup_drift_checks_clean_and_drifting),
         cmocka_unit_test(holdup_drift_bound_sign_test),
