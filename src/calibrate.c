@@ -37,6 +37,7 @@ stagecal_calibrate_params stagecal_calibrate_default_params(void)
     p.evidence = stagecal_evidence_default_params();
     p.seed = 1;
     p.robust = STAGECAL_ROBUST_NONE;
+    p.cov_kind = STAGECAL_COV_HC3;
     p.hetp_r = NAN;
     p.hetp_f = NAN;
     p.read = stagecal_runlog_default_params();
@@ -276,6 +277,7 @@ static int run_fits(stagecal_calibration *cal, const stagecal_calibrate_params *
     rp.bootstrap = par->bootstrap;
     rp.seed = par->seed;
     rp.robust = par->robust;
+    rp.cov_kind = par->cov_kind;
     rp.allow_undetermined = par->allow_undetermined;
     if ((rc = choose_form(cal, par, &d, &rp, &form, err))) {
         free(arr);

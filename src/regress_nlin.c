@@ -315,6 +315,45 @@ size_t stagecal_regress_nlin_polish(stagecal_regress_nlin *w, double *theta, dou
 
 /* ---- statistics of the estimate -------------------------------------------------------- */
 
+/* The HC3 sandwich in place of C: on entry C = (JᵀJ)⁻¹ in the parameters' units, J the
+ * Jacobian of the weighted residuals rv with column k divided by cn[k]. Each point's
+ * squared residual is inflated by 1/(1 − h_i)², h_i = j_iᵀ C j_i its leverage (MacKinnon &
+ * White 1985, "Some heteroskedasticity-consistent covariance matrix estimators with improved
+ * finite sample properties", J. Econometrics 29, 305–325 — from memory). −1 (C untouched)
+ * when a point's leverage exceeds 0.99: its residual then says nothing of its variance. */
+static int hc3_sandwich(const gsl_matrix *J, const double *cn, const gsl_vector *rv, gsl_matrix *C)
+{
+    size_t n = J->size1, p = J->size2;
+    double M[STAGECAL_FORM_MAXP * STAGECAL_FORM_MAXP] = {0}, jr[STAGECAL_FORM_MAXP];
+    for (size_t r = 0; r < n; r++) {
+        double h = 0;
+        for (size_t k = 0; k < p; k++)
+            jr[k] = gsl_matrix_get(J, r, k) * cn[k];
+        for (size_t i = 0; i < p; i++)
+            for (size_t j = 0; j < p; j++)
+                h += jr[i] * gsl_matrix_get(C, i, j) * jr[j];
+        if (!(h <= 0.99))
+            return -1;
+        double e = gsl_vector_get(rv, r), w = e * e / ((1 - h) * (1 - h));
+        for (size_t i = 0; i < p; i++)
+            for (size_t j = 0; j < p; j++)
+                M[i * p + j] += w * jr[i] * jr[j];
+    }
+    double S[STAGECAL_FORM_MAXP * STAGECAL_FORM_MAXP];
+    for (size_t i = 0; i < p; i++)
+        for (size_t j = 0; j < p; j++) {
+            double v = 0;
+            for (size_t a = 0; a < p; a++)
+                for (size_t b = 0; b < p; b++)
+                    v += gsl_matrix_get(C, i, a) * M[a * p + b] * gsl_matrix_get(C, b, j);
+            S[i * p + j] = v;
+        }
+    for (size_t i = 0; i < p; i++)
+        for (size_t j = 0; j < p; j++)
+            gsl_matrix_set(C, i, j, 0.5 * (S[i * p + j] + S[j * p + i])); /* exactly symmetric */
+    return 0;
+}
+
 int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta, int scale,
                            const stagecal_regress_params *params, stagecal_regress_result *res,
                            stagecal_error *err)
@@ -367,6 +406,7 @@ int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta,
             gsl_matrix_set(C, i, j, cn[i] > 0 && cn[j] > 0 ? c / (cn[i] * cn[j]) : 0.0);
         }
     double s2 = scale ? res->sigma * res->sigma : 1.0;
+    res->cov_kind = STAGECAL_COV_MODEL;
     res->tquant = gsl_cdf_tdist_Pinv(0.5 + 0.5 * prm.level, res->dof);
     for (size_t i = 0; i < p; i++) {
         for (size_t j = 0; j < p; j++)
@@ -387,6 +427,22 @@ int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta,
         char why[STAGECAL_ERROR_TEXT];
         stagecal_regress_ident_text(res, why, sizeof why);
         rc = error_set(err, STAGECAL_EDATA, "regress: %s", why);
+    }
+    /* identifiability is judged on the model's covariance (above); the sandwich replaces it
+     * only where every variance it gives is positive */
+    if (rc == STAGECAL_OK && prm.cov_kind == STAGECAL_COV_HC3 && hc3_sandwich(J, cn, rv, C) == 0) {
+        int ok = 1;
+        for (size_t i = 0; i < p; i++)
+            ok &= isfinite(gsl_matrix_get(C, i, i)) && gsl_matrix_get(C, i, i) > 0;
+        for (size_t i = 0; ok && i < p; i++) {
+            for (size_t j = 0; j < p; j++)
+                res->cov[i * p + j] = gsl_matrix_get(C, i, j);
+            res->se[i] = sqrt(res->cov[i * p + i]);
+            res->ci_low[i] = res->theta[i] - res->tquant * res->se[i];
+            res->ci_high[i] = res->theta[i] + res->tquant * res->se[i];
+        }
+        if (ok)
+            res->cov_kind = STAGECAL_COV_HC3;
     }
 done:
     gsl_vector_free(rv);

@@ -292,6 +292,23 @@ static int run_chart(stagecal_report_doc *d, const stagecal_calibration *cal, st
     return STAGECAL_OK;
 }
 
+/* How the model file's fit got its standard errors, under the fit table. */
+static void cov_note(stagecal_report_doc *d, const stagecal_calibration *cal)
+{
+    const stagecal_regress_result *f = stagecal_calibration_fit(cal);
+    if (d->rep.fit_summary != d->summary || cal->used == STAGECAL_MODEL_CENSORED)
+        return;
+    size_t ns = d->rep.n_fit_summary;
+    report_doc_add_item(d->summary, &ns, "standard errors",
+                        f->cov_kind == STAGECAL_COV_HC3
+                            ? "HC3 sandwich: from each window's own residual, inflated by its "
+                              "leverage (MacKinnon & White 1985), not only from the windows' "
+                              "stated errors"
+                            : "s\xc2\xb2 times the inverse information (the windows' stated "
+                              "errors, scaled by the residual variance)");
+    d->rep.n_fit_summary = ns;
+}
+
 int stagecal_report_doc_add_calibration(stagecal_report_doc *d, const stagecal_calibration *cal,
                                         stagecal_error *err)
 {
@@ -313,6 +330,7 @@ int stagecal_report_doc_add_calibration(stagecal_report_doc *d, const stagecal_c
     if (nc > 0)
         closure_table(d, cal);
     other_fit(d, cal);
+    cov_note(d, cal);
     runs_verdict(d, cal);
     int rc = run_chart(d, cal, err);
     if (rc == STAGECAL_OK && cal->column)

@@ -17,7 +17,8 @@ statsmodels' get_prediction(...).summary_frame(alpha) with weights 1/OBS_SIGMA^2
 
 Output, one "key value..." line each, numbers with repr() (17 significant digits):
   params, bse, ssr, scale, llf, rsquared, df_resid, then one "pred" line per point:
-  mean mean_se mean_ci_lower mean_ci_upper obs_ci_lower obs_ci_upper.
+  mean mean_se mean_ci_lower mean_ci_upper obs_ci_lower obs_ci_upper; last "hc3_bse",
+  the standard errors of the HC3 sandwich covariance (cov_type="HC3").
 """
 import csv
 import math
@@ -114,6 +115,10 @@ def main():
         out.write("pred " + " ".join(repr(float(row[k])) for k in (
             "mean", "mean_se", "mean_ci_lower", "mean_ci_upper", "obs_ci_lower",
             "obs_ci_upper")) + "\n")
+    # the HC3 sandwich (MacKinnon & White 1985) of the same weighted fit: statsmodels takes
+    # the whitened design and residuals, as stagecal's STAGECAL_COV_HC3 does
+    hc3 = WLS(y, X, weights=w).fit(cov_type="HC3")
+    out.write("hc3_bse " + " ".join(repr(float(v)) for v in hc3.bse) + "\n")
 
 
 if __name__ == "__main__":

@@ -316,6 +316,7 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
     stagecal_regress_data d = {n, r, NULL, s, sg};
     stagecal_regress_params rp = stagecal_regress_default_params();
     rp.band_points = 0;
+    rp.cov_kind = stagecal_calibrate_default_params().cov_kind; /* as calibrate fits */
     stagecal_regress_result rs_fit, rc_fit;
     if (stagecal_regress_fit(&d, form, &rp, &rs_fit, NULL) != STAGECAL_OK)
         return 0;

@@ -216,8 +216,54 @@ static void xcheck(const char *form_name, int with_f, int with_sigma, int with_i
         assert_rel(b.pi_low, v[4], tol, "pi_low vs statsmodels obs_ci_lower");
         assert_rel(b.pi_high, v[5], tol, "pi_high vs statsmodels obs_ci_upper");
     }
+    /* The HC3 sandwich of the same fit against statsmodels' cov_type="HC3" (its own
+     * leverages and whitened residuals); same tolerance and reason. */
+    stagecal_regress_result hc;
+    prm.cov_kind = STAGECAL_COV_HC3;
+    fit_ok(&d, form_name, &prm, &hc);
+    assert_int_equal(hc.cov_kind, STAGECAL_COV_HC3);
+    assert_int_equal(read_line_values(py, "hc3_bse", v, 8), p);
+    for (size_t k = 0; k < hc.p; k++) {
+        assert_rel(hc.theta[k], res.theta[k], 0, "the covariance kind does not move the estimate");
+        assert_rel(hc.se[k], v[k], tol, "se vs statsmodels HC3 bse");
+        assert_rel(hc.ci_high[k] - hc.theta[k], hc.tquant * v[k], tol, "HC3 interval half-width");
+    }
+    stagecal_regress_result_free(&hc);
     assert_int_equal(pclose(py), 0);
     stagecal_regress_result_free(&res);
+    stagecal_regress_data_free(&d);
+}
+
+/* A point the fit passes through (leverage ~1) leaves the sandwich nothing to measure its
+ * variance with: HC3 is asked for, the model's covariance is used and said so. Invented
+ * points: stages = 9 − 0.05/R ± 0.05 at R = 1.5 … 3 and one at R = 0.01 (1/R = 100, far
+ * from the rest, leverage 1 − O(1e-4)). */
+static void regress_hc3_falls_back_at_leverage_one(void **state)
+{
+    (void)state;
+    enum { N = 8 };
+    double r[N], y[N];
+    for (size_t i = 0; i < N; i++) {
+        r[i] = i + 1 < N ? 1.5 + 0.25 * (double)i : 0.01;
+        y[i] = 9 - 0.05 / r[i] + ((i % 2) ? 0.05 : -0.05);
+    }
+    char path[512];
+    snprintf(path, sizeof path, "%s/hc3_leverage.csv", STAGECAL_BUILD_DIR);
+    write_points(path, N, r, NULL, y, NULL);
+    stagecal_regress_data d;
+    stagecal_error e;
+    stagecal_regress_result model, hc;
+    assert_int_equal(stagecal_regress_data_read(path, &d, &e), STAGECAL_OK);
+    stagecal_regress_params prm = stagecal_regress_default_params();
+    fit_ok(&d, "linear:1+1/R", &prm, &model);
+    prm.cov_kind = STAGECAL_COV_HC3;
+    fit_ok(&d, "linear:1+1/R", &prm, &hc);
+    assert_int_equal(model.cov_kind, STAGECAL_COV_MODEL);
+    assert_int_equal(hc.cov_kind, STAGECAL_COV_MODEL);
+    for (size_t k = 0; k < hc.p; k++)
+        assert_rel(hc.se[k], model.se[k], 0, "the fallback is the model's covariance, exactly");
+    stagecal_regress_result_free(&model);
+    stagecal_regress_result_free(&hc);
     stagecal_regress_data_free(&d);
 }
 
@@ -698,6 +744,7 @@ int main(void)
         cmocka_unit_test(regress_misra1a_start2),
         cmocka_unit_test(regress_misra1a_automatic_start),
         cmocka_unit_test(regress_linear_1_invr_matches_statsmodels),
+        cmocka_unit_test(regress_hc3_falls_back_at_leverage_one),
         cmocka_unit_test(regress_linear_1_lv_f_matches_statsmodels),
         cmocka_unit_test(regress_linear_unweighted_lnr_f2_matches_statsmodels),
         cmocka_unit_test(regress_saturating_load_matches_scipy_curve_fit),

@@ -220,6 +220,7 @@ static void mr_fit_windows(const stagecal_runlog *log, const stagecal_column *co
         stagecal_form form;
         stagecal_regress_params rp = stagecal_regress_default_params();
         rp.level = par->level;
+        rp.cov_kind = par->cov_kind;
         stagecal_regress_result rs, rc;
         memset(&rs, 0, sizeof rs);
         memset(&rc, 0, sizeof rc);
@@ -364,6 +365,7 @@ static int mr_one(gsl_rng *rng, const stagecal_column *col, enum mr_mode mode, s
         stagecal_evidence *ev = malloc(n * sizeof *ev);
         stagecal_regress_params rp = stagecal_regress_default_params();
         rp.level = par.level;
+        rp.cov_kind = par.cov_kind;
         for (int pass = 0; ev && pass < 2; pass++) {
             memcpy(ev, cal.evidence.ev, n * sizeof *ev);
             for (size_t k = 0; pass == 1 && k < n; k++) {

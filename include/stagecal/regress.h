@@ -59,9 +59,21 @@ typedef enum {
     STAGECAL_BOOT_RESIDUAL  /* resample standardised residuals onto the fitted values */
 } stagecal_boot_kind;
 
+/* Which covariance of the estimate (params.cov_kind). */
+typedef enum {
+    STAGECAL_COV_MODEL = 0, /* the model's: s²(JᵀWJ)⁻¹, or (JᵀWJ)⁻¹ (params.scale_cov) */
+    STAGECAL_COV_HC3 /* the HC3 sandwich (JᵀWJ)⁻¹ JᵀW diag(e_i²/(1 − h_i)²) WJ (JᵀWJ)⁻¹:
+                        e_i the residuals, h_i the leverages (MacKinnon & White 1985);
+                        valid when the stated sigma_i are right only in proportion
+                        within parts of the data, or the form is misspecified */
+} stagecal_cov_kind;
+
 typedef struct {
     double level;  /* confidence level of intervals and bands, (0, 1); 0.95 */
     int scale_cov; /* 1: C = s²(JᵀWJ)⁻¹ (default); 0: C = (JᵀWJ)⁻¹, sigma absolute */
+    stagecal_cov_kind cov_kind;  /* STAGECAL_COV_MODEL (default) or STAGECAL_COV_HC3; HC3 falls
+                                    back to the model's covariance where a point has leverage
+                                    h_i > 0.99 (result.cov_kind says which was used) */
     const double *theta0;        /* start values (p entries) or NULL for automatic starts */
     size_t max_iter;             /* trust-region iterations per start; 500 */
     double xtol;                 /* trust-region step tolerance; 1e-10 */
@@ -137,24 +149,26 @@ typedef struct {
     double cov[STAGECAL_FORM_MAXP * STAGECAL_FORM_MAXP]; /* row-major p×p */
     double tquant;                                       /* t(1 − (1 − level)/2, dof) */
     double level;
-    int weighted;          /* 1 when the points carried sigma */
-    int cov_scaled;        /* 1 when C includes s² (see params.scale_cov) */
-    double rss;            /* Σ w_i·r_i² (w_i = 1 unweighted; includes robust weights) */
-    double sigma;          /* residual σ = sqrt(rss/dof) (a ratio to sigma_i when weighted) */
-    double sigma_obs;      /* σ of one typical new observation in stages: σ (unweighted),
-                              σ·rms(sigma_i) (weighted, scaled), rms(sigma_i) (unscaled) */
-    double sigma_dof;      /* degrees of freedom behind sigma_obs: dof, except for the
-                              composition-space fit (windows with stage counts − p; 0 when
-                              sigma_obs could not be estimated) */
-    double r2;             /* 1 − RSS_w/TSS_w, TSS about the weighted mean */
-    double loglik;         /* Gaussian log-likelihood at the optimum */
-    size_t k_ic;           /* parameters counted by AICc/BIC (p, + 1 when σ is estimated) */
-    int ic_defined;        /* 1 when n > k_ic + 1 so that AICc is defined */
-    double aicc;           /* AIC + 2k(k+1)/(n−k−1); 0 when !ic_defined */
-    double bic;            /* −2 lnL + k ln n */
-    unsigned undetermined; /* bit j set: parameter j is not determined by the evidence
-                              (stagecal_regress_identify; only with allow_undetermined) */
-    double condition;      /* condition number of the information matrix in relative units */
+    int weighted;               /* 1 when the points carried sigma */
+    int cov_scaled;             /* 1 when C includes s² (see params.scale_cov) */
+    stagecal_cov_kind cov_kind; /* the covariance in cov (params.cov_kind, or MODEL where
+                                   HC3 was asked for but a leverage reached 0.99) */
+    double rss;                 /* Σ w_i·r_i² (w_i = 1 unweighted; includes robust weights) */
+    double sigma;               /* residual σ = sqrt(rss/dof) (a ratio to sigma_i when weighted) */
+    double sigma_obs;           /* σ of one typical new observation in stages: σ (unweighted),
+                                   σ·rms(sigma_i) (weighted, scaled), rms(sigma_i) (unscaled) */
+    double sigma_dof;           /* degrees of freedom behind sigma_obs: dof, except for the
+                                   composition-space fit (windows with stage counts − p; 0 when
+                                   sigma_obs could not be estimated) */
+    double r2;                  /* 1 − RSS_w/TSS_w, TSS about the weighted mean */
+    double loglik;              /* Gaussian log-likelihood at the optimum */
+    size_t k_ic;                /* parameters counted by AICc/BIC (p, + 1 when σ is estimated) */
+    int ic_defined;             /* 1 when n > k_ic + 1 so that AICc is defined */
+    double aicc;                /* AIC + 2k(k+1)/(n−k−1); 0 when !ic_defined */
+    double bic;                 /* −2 lnL + k ln n */
+    unsigned undetermined;      /* bit j set: parameter j is not determined by the evidence
+                                   (stagecal_regress_identify; only with allow_undetermined) */
+    double condition;           /* condition number of the information matrix in relative units */
     stagecal_stop stop;
     size_t iterations; /* trust-region iterations of the best start */
     size_t starts;     /* starts tried */

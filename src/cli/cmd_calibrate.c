@@ -29,6 +29,7 @@ static const struct cli_usage usage = {
 
 static const char *const method_names[] = {"auto", "stage", "composition", "censored", NULL};
 static const char *const holdup_choices[] = {"auto", "none", "lag", "stages", NULL};
+static const char *const cov_choices[] = {"hc3", "model", NULL};
 static const char *const holdup_names[] = {"none", "lag", "stages"};
 
 /* The holdup compensation the evidence applied, for --json. */
@@ -129,6 +130,8 @@ static json_t *fit_json(const stagecal_regress_result *f, int status, const char
     json_object_set_new(o, "rss", cli_json_real(f->rss));
     json_object_set_new(o, "sigma", cli_json_real(f->sigma_obs > 0 ? f->sigma_obs : f->sigma));
     json_object_set_new(o, "dof", cli_json_real(f->dof));
+    json_object_set_new(o, "covariance",
+                        json_string(f->cov_kind == STAGECAL_COV_HC3 ? "hc3" : "model"));
     json_object_set_new(o, "n", json_integer((json_int_t)f->n));
     json_object_set_new(o, "stop", json_string(stagecal_regress_stop_text(f->stop)));
     return o;
@@ -180,8 +183,11 @@ static void print_fit(const char *title, const stagecal_regress_result *f)
 {
     printf("%s\n", title);
     cli_print_params(f, 0);
-    printf("  residual sigma %.4g stages, %g degrees of freedom, %zu windows\n",
-           f->sigma_obs > 0 ? f->sigma_obs : f->sigma, f->dof, f->n);
+    printf("  residual sigma %.4g stages, %g degrees of freedom, %zu windows; %s\n",
+           f->sigma_obs > 0 ? f->sigma_obs : f->sigma, f->dof, f->n,
+           f->cov_kind == STAGECAL_COV_HC3
+               ? "standard errors from the HC3 sandwich"
+               : "standard errors from s^2 times the inverse information");
 }
 
 /* The two fits side by side in words: the largest difference of a parameter in combined
@@ -631,7 +637,7 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
     struct request rq = {NULL, "fits", {NULL, NULL, NULL}, 0};
     long boot = 0, seed = (long)par.seed;
     int dialect = 0, no_infer = 0;
-    int method = 0, robust = -1, holdup = 0, first, rc;
+    int method = 0, robust = -1, holdup = 0, cov = 0, first, rc;
     const struct cli_option opts[] = {
         OPT_COLUMN(&rq.column, "the column file (docs/column-file.md), required"),
         OPT_FORM(&par.form, "correlation form (docs/forms.md) or 'auto' (default: rank\n"
@@ -650,6 +656,12 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
                    "stages (without a holdup in the column file: each run's holdup\n"
                    "from its start-up) (docs/methods.md, \"Column holdup\")",
                    holdup_choices, "a holdup mode"),
+        OPT_CHOICE("covariance", &cov, "KIND",
+                   "covariance of the fitted parameters: hc3 (default: the\n"
+                   "sandwich from each window's own residual, right when the\n"
+                   "windows' stated errors are off between reflux ratios) or\n"
+                   "model (s^2 times the inverse information)",
+                   cov_choices, "a covariance"),
         OPT_BOOTSTRAP(&boot),
         OPT_SEED(&seed),
         OPT_ROBUST(&robust),
@@ -688,6 +700,7 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
     par.read.infer = !no_infer;
     par.seed = (unsigned long)seed;
     par.robust = cli_robust_kind(robust);
+    par.cov_kind = cov == 1 ? STAGECAL_COV_MODEL : STAGECAL_COV_HC3;
     par.evidence.holdup = holdup == 0 ? STAGECAL_EVIDENCE_HOLDUP_AUTO : holdup - 1;
     par.method = method == 1   ? STAGECAL_CAL_STAGE
                  : method == 2 ? STAGECAL_CAL_COMPOSITION
