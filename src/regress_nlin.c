@@ -321,7 +321,8 @@ size_t stagecal_regress_nlin_polish(stagecal_regress_nlin *w, double *theta, dou
  * White 1985, "Some heteroskedasticity-consistent covariance matrix estimators with improved
  * finite sample properties", J. Econometrics 29, 305–325 — from memory). −1 (C untouched)
  * when a point's leverage exceeds 0.99: its residual then says nothing of its variance. */
-static int hc3_sandwich(const gsl_matrix *J, const double *cn, const gsl_vector *rv, gsl_matrix *C)
+static int hc3_sandwich(const gsl_matrix *J, const double *cn, const gsl_vector *rv, int power,
+                        gsl_matrix *C)
 {
     size_t n = J->size1, p = J->size2;
     double M[STAGECAL_FORM_MAXP * STAGECAL_FORM_MAXP] = {0}, jr[STAGECAL_FORM_MAXP];
@@ -334,7 +335,7 @@ static int hc3_sandwich(const gsl_matrix *J, const double *cn, const gsl_vector 
                 h += jr[i] * gsl_matrix_get(C, i, j) * jr[j];
         if (!(h <= 0.99))
             return -1;
-        double e = gsl_vector_get(rv, r), w = e * e / ((1 - h) * (1 - h));
+        double e = gsl_vector_get(rv, r), w = e * e / (power == 2 ? (1 - h) * (1 - h) : 1 - h);
         for (size_t i = 0; i < p; i++)
             for (size_t j = 0; j < p; j++)
                 M[i * p + j] += w * jr[i] * jr[j];
@@ -430,7 +431,8 @@ int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta,
     }
     /* identifiability is judged on the model's covariance (above); the sandwich replaces it
      * only where every variance it gives is positive */
-    if (rc == STAGECAL_OK && prm.cov_kind == STAGECAL_COV_HC3 && hc3_sandwich(J, cn, rv, C) == 0) {
+    if (rc == STAGECAL_OK && prm.cov_kind != STAGECAL_COV_MODEL &&
+        hc3_sandwich(J, cn, rv, prm.cov_kind == STAGECAL_COV_HC3 ? 2 : 1, C) == 0) {
         int ok = 1;
         for (size_t i = 0; i < p; i++)
             ok &= isfinite(gsl_matrix_get(C, i, i)) && gsl_matrix_get(C, i, i) > 0;
@@ -442,7 +444,7 @@ int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta,
             res->ci_high[i] = res->theta[i] + res->tquant * res->se[i];
         }
         if (ok)
-            res->cov_kind = STAGECAL_COV_HC3;
+            res->cov_kind = prm.cov_kind;
     }
 done:
     gsl_vector_free(rv);

@@ -18,7 +18,8 @@ statsmodels' get_prediction(...).summary_frame(alpha) with weights 1/OBS_SIGMA^2
 Output, one "key value..." line each, numbers with repr() (17 significant digits):
   params, bse, ssr, scale, llf, rsquared, df_resid, then one "pred" line per point:
   mean mean_se mean_ci_lower mean_ci_upper obs_ci_lower obs_ci_upper; last "hc3_bse",
-  the standard errors of the HC3 sandwich covariance (cov_type="HC3").
+  the standard errors of the HC3 sandwich covariance (cov_type="HC3"), and "hc2_bse"
+  (cov_type="HC2").
 """
 import csv
 import math
@@ -119,6 +120,8 @@ def main():
     # the whitened design and residuals, as stagecal's STAGECAL_COV_HC3 does
     hc3 = WLS(y, X, weights=w).fit(cov_type="HC3")
     out.write("hc3_bse " + " ".join(repr(float(v)) for v in hc3.bse) + "\n")
+    hc2 = WLS(y, X, weights=w).fit(cov_type="HC2")
+    out.write("hc2_bse " + " ".join(repr(float(v)) for v in hc2.bse) + "\n")
 
 
 if __name__ == "__main__":

@@ -24,11 +24,26 @@
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 #include <math.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "oracle_smoker.h"
 #include "stagecal/calibrate.h"
 #include "stagecal/stages.h"
+
+/* The covariance of the studies' fits: calibrate's default, or STUDY_COV=model|hc2|hc3 (a
+ * knob of the coverage studies, never set by the unit tests). */
+static inline stagecal_cov_kind synth_cov_kind(void)
+{
+    const char *s = getenv("STUDY_COV");
+    if (s && strcmp(s, "model") == 0)
+        return STAGECAL_COV_MODEL;
+    if (s && strcmp(s, "hc2") == 0)
+        return STAGECAL_COV_HC2;
+    if (s && strcmp(s, "hc3") == 0)
+        return STAGECAL_COV_HC3;
+    return stagecal_calibrate_default_params().cov_kind;
+}
 
 #define SYNTH_ALPHA 2.0
 #define SYNTH_A 10.0
@@ -316,7 +331,7 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
     stagecal_regress_data d = {n, r, NULL, s, sg};
     stagecal_regress_params rp = stagecal_regress_default_params();
     rp.band_points = 0;
-    rp.cov_kind = stagecal_calibrate_default_params().cov_kind; /* as calibrate fits */
+    rp.cov_kind = synth_cov_kind(); /* as calibrate fits */
     stagecal_regress_result rs_fit, rc_fit;
     if (stagecal_regress_fit(&d, form, &rp, &rs_fit, NULL) != STAGECAL_OK)
         return 0;

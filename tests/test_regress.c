@@ -216,8 +216,8 @@ static void xcheck(const char *form_name, int with_f, int with_sigma, int with_i
         assert_rel(b.pi_low, v[4], tol, "pi_low vs statsmodels obs_ci_lower");
         assert_rel(b.pi_high, v[5], tol, "pi_high vs statsmodels obs_ci_upper");
     }
-    /* The HC3 sandwich of the same fit against statsmodels' cov_type="HC3" (its own
-     * leverages and whitened residuals); same tolerance and reason. */
+    /* The HC3 and HC2 sandwiches of the same fit against statsmodels' cov_type="HC3" and
+     * "HC2" (its own leverages and whitened residuals); same tolerance and reason. */
     stagecal_regress_result hc;
     prm.cov_kind = STAGECAL_COV_HC3;
     fit_ok(&d, form_name, &prm, &hc);
@@ -228,6 +228,13 @@ static void xcheck(const char *form_name, int with_f, int with_sigma, int with_i
         assert_rel(hc.se[k], v[k], tol, "se vs statsmodels HC3 bse");
         assert_rel(hc.ci_high[k] - hc.theta[k], hc.tquant * v[k], tol, "HC3 interval half-width");
     }
+    stagecal_regress_result_free(&hc);
+    prm.cov_kind = STAGECAL_COV_HC2;
+    fit_ok(&d, form_name, &prm, &hc);
+    assert_int_equal(hc.cov_kind, STAGECAL_COV_HC2);
+    assert_int_equal(read_line_values(py, "hc2_bse", v, 8), p);
+    for (size_t k = 0; k < hc.p; k++)
+        assert_rel(hc.se[k], v[k], tol, "se vs statsmodels HC2 bse");
     stagecal_regress_result_free(&hc);
     assert_int_equal(pclose(py), 0);
     stagecal_regress_result_free(&res);

@@ -304,6 +304,7 @@ static int mr_one(gsl_rng *rng, const stagecal_column *col, enum mr_mode mode, s
         log->r_set = log->u_r_set = NULL;
     }
     stagecal_calibrate_params par = stagecal_calibrate_default_params();
+    par.cov_kind = synth_cov_kind();
     par.form = "saturating";
     par.evidence.holdup = STAGECAL_HOLDUP_COMP_NONE;
     if (mr_quad)

@@ -138,6 +138,11 @@ int main(int argc, char **argv)
             logs[i] = p[i];
         }
         stagecal_calibrate_params par = stagecal_calibrate_default_params();
+        const char *cov = getenv("STUDY_COV"); /* model | hc2 | hc3 (default: calibrate's) */
+        if (cov && strcmp(cov, "model") == 0)
+            par.cov_kind = STAGECAL_COV_MODEL;
+        else if (cov && strcmp(cov, "hc2") == 0)
+            par.cov_kind = STAGECAL_COV_HC2;
         par.form = "saturating-load";
         par.evidence.noise = noise;
         if (getenv("DEMOCOV_HOLDUP")) /* diagnostics: -1 auto, 0 none, 1 lag */

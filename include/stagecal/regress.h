@@ -62,16 +62,17 @@ typedef enum {
 /* Which covariance of the estimate (params.cov_kind). */
 typedef enum {
     STAGECAL_COV_MODEL = 0, /* the model's: s²(JᵀWJ)⁻¹, or (JᵀWJ)⁻¹ (params.scale_cov) */
-    STAGECAL_COV_HC3 /* the HC3 sandwich (JᵀWJ)⁻¹ JᵀW diag(e_i²/(1 − h_i)²) WJ (JᵀWJ)⁻¹:
-                        e_i the residuals, h_i the leverages (MacKinnon & White 1985);
-                        valid when the stated sigma_i are right only in proportion
-                        within parts of the data, or the form is misspecified */
+    STAGECAL_COV_HC3, /* the HC3 sandwich (JᵀWJ)⁻¹ JᵀW diag(e_i²/(1 − h_i)²) WJ (JᵀWJ)⁻¹:
+                         e_i the residuals, h_i the leverages (MacKinnon & White 1985);
+                         valid when the stated sigma_i are right only in proportion
+                         within parts of the data, or the form is misspecified */
+    STAGECAL_COV_HC2 /* the same with e_i²/(1 − h_i): unbiased when the errors are equal */
 } stagecal_cov_kind;
 
 typedef struct {
     double level;  /* confidence level of intervals and bands, (0, 1); 0.95 */
     int scale_cov; /* 1: C = s²(JᵀWJ)⁻¹ (default); 0: C = (JᵀWJ)⁻¹, sigma absolute */
-    stagecal_cov_kind cov_kind;  /* STAGECAL_COV_MODEL (default) or STAGECAL_COV_HC3; HC3 falls
+    stagecal_cov_kind cov_kind;  /* STAGECAL_COV_MODEL (default), _HC3 or _HC2; a sandwich falls
                                     back to the model's covariance where a point has leverage
                                     h_i > 0.99 (result.cov_kind says which was used) */
     const double *theta0;        /* start values (p entries) or NULL for automatic starts */
