@@ -299,13 +299,16 @@ static void cov_note(stagecal_report_doc *d, const stagecal_calibration *cal)
     if (d->rep.fit_summary != d->summary || cal->used == STAGECAL_MODEL_CENSORED)
         return;
     size_t ns = d->rep.n_fit_summary;
-    report_doc_add_item(d->summary, &ns, "standard errors",
-                        f->cov_kind == STAGECAL_COV_HC3
-                            ? "HC3 sandwich: from each window's own residual, inflated by its "
-                              "leverage (MacKinnon & White 1985), not only from the windows' "
-                              "stated errors"
-                            : "s\xc2\xb2 times the inverse information (the windows' stated "
-                              "errors, scaled by the residual variance)");
+    const char *how =
+        f->cov_kind == STAGECAL_COV_MODEL
+            ? "s\xc2\xb2 times the inverse information (the windows' stated errors, scaled by "
+              "the residual variance)"
+            : report_doc_str(d,
+                             "%s sandwich: from each window's own residual, inflated by its "
+                             "leverage (MacKinnon & White 1985), not only from the windows' "
+                             "stated errors",
+                             f->cov_kind == STAGECAL_COV_HC3 ? "HC3" : "HC2");
+    report_doc_add_item(d->summary, &ns, "standard errors", how);
     d->rep.n_fit_summary = ns;
 }
 

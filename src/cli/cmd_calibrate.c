@@ -131,7 +131,9 @@ static json_t *fit_json(const stagecal_regress_result *f, int status, const char
     json_object_set_new(o, "sigma", cli_json_real(f->sigma_obs > 0 ? f->sigma_obs : f->sigma));
     json_object_set_new(o, "dof", cli_json_real(f->dof));
     json_object_set_new(o, "covariance",
-                        json_string(f->cov_kind == STAGECAL_COV_HC3 ? "hc3" : "model"));
+                        json_string(f->cov_kind == STAGECAL_COV_HC3   ? "hc3"
+                                    : f->cov_kind == STAGECAL_COV_HC2 ? "hc2"
+                                                                      : "model"));
     json_object_set_new(o, "n", json_integer((json_int_t)f->n));
     json_object_set_new(o, "stop", json_string(stagecal_regress_stop_text(f->stop)));
     return o;
@@ -185,9 +187,10 @@ static void print_fit(const char *title, const stagecal_regress_result *f)
     cli_print_params(f, 0);
     printf("  residual sigma %.4g stages, %g degrees of freedom, %zu windows; %s\n",
            f->sigma_obs > 0 ? f->sigma_obs : f->sigma, f->dof, f->n,
-           f->cov_kind == STAGECAL_COV_HC3
-               ? "standard errors from the HC3 sandwich"
-               : "standard errors from s^2 times the inverse information");
+           f->cov_kind == STAGECAL_COV_HC3   ? "standard errors from the HC3 sandwich"
+           : f->cov_kind == STAGECAL_COV_HC2 ? "standard errors from the HC2 sandwich"
+                                             : "standard errors from s^2 times the inverse "
+                                               "information");
 }
 
 /* The two fits side by side in words: the largest difference of a parameter in combined

@@ -24,6 +24,15 @@ check "calibrate: evidence counts windows and samples" \
 check "calibrate: both fits reported, composition space carried" \
       "d['method'] == 'composition-space' and d['stage_space']['status'] == 'ok'"
 check "calibrate: model file path under fits/<column>/" "'/fits/demo-bt-K-7/' in d['model_file']"
+check "calibrate: both fits' standard errors from the HC3 sandwich by default" \
+      "d['stage_space']['covariance'] == 'hc3' and d['composition_space']['covariance'] == 'hc3'"
+cp "$tmp/j" "$tmp/j_hc3"
+"$BIN" calibrate --column "$COL" --fits "$tmp/fits" --form saturating --json --quiet --dry-run \
+    --covariance model $LOGS >"$tmp/j"
+# the covariance changes the standard errors, never the estimates
+check "calibrate --covariance model: the model's, same estimates, other standard errors" \
+      "d['composition_space']['covariance'] == 'model' and [p['value'] for p in d['parameters']] == [p['value'] for p in json.load(open('$tmp/j_hc3'))['parameters']] and [p['se'] for p in d['parameters']] != [p['se'] for p in json.load(open('$tmp/j_hc3'))['parameters']]"
+cp "$tmp/j_hc3" "$tmp/j"
 # Demo truth (datasets/demo/README.md): a(t) = 9.5·(1 − 0.012·months), g(F) ≤ 1, so the
 # saturation level of the first quarter lies between 8 and 9.5 stages.
 check "calibrate: saturation level plausible for the demo truth" "8.0 < d['parameters'][0]['value'] < 9.6"
