@@ -315,9 +315,10 @@ size_t stagecal_regress_nlin_polish(stagecal_regress_nlin *w, double *theta, dou
 
 /* ---- statistics of the estimate -------------------------------------------------------- */
 
-/* The HC3 sandwich in place of C: on entry C = (JᵀJ)⁻¹ in the parameters' units, J the
- * Jacobian of the weighted residuals rv with column k divided by cn[k]. Each point's
- * squared residual is inflated by 1/(1 − h_i)², h_i = j_iᵀ C j_i its leverage (MacKinnon &
+/* The HC3 (power 2) or HC2 (power 1) sandwich in place of C: on entry C = (JᵀJ)⁻¹ in the
+ * parameters' units, J the Jacobian of the weighted residuals rv with column k divided by
+ * cn[k]. Each point's squared residual is inflated by 1/(1 − h_i)^power, h_i = j_iᵀ C j_i its
+ * leverage (MacKinnon &
  * White 1985, "Some heteroskedasticity-consistent covariance matrix estimators with improved
  * finite sample properties", J. Econometrics 29, 305–325 — from memory). −1 (C untouched)
  * when a point's leverage exceeds 0.99: its residual then says nothing of its variance. */
