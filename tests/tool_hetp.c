@@ -53,6 +53,7 @@ static int sim_fit(gsl_rng *rng, double hetp_true, int nw, stagecal_hetp_stages 
     int rc = stagecal_regress_band(&form, res.theta, res.cov, res.sigma_obs, res.dof, 0.95, 3.0,
                                    NAN, &b, NULL);
     s->column_stages = b.value - 1;
+    s->lower_only = 0; /* a two-sided fit (the field was left unset: garbage read as "at least") */
     s->se = b.se_fit;
     s->dof = res.dof;
     stagecal_regress_result_free(&res);
