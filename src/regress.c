@@ -75,6 +75,21 @@ const char *stagecal_regress_stop_text(stagecal_stop stop)
     return NAME_OF(names, stop);
 }
 
+const char *stagecal_regress_cov_name(stagecal_cov_kind kind)
+{
+    static const char *const names[] = {
+        [STAGECAL_COV_MODEL] = "model", [STAGECAL_COV_HC3] = "hc3", [STAGECAL_COV_HC2] = "hc2"};
+    return NAME_OF(names, kind);
+}
+
+const char *stagecal_regress_cov_label(stagecal_cov_kind kind)
+{
+    static const char *const names[] = {[STAGECAL_COV_MODEL] = "s^2 times the inverse information",
+                                        [STAGECAL_COV_HC3] = "the HC3 sandwich",
+                                        [STAGECAL_COV_HC2] = "the HC2 sandwich"};
+    return NAME_OF(names, kind);
+}
+
 /* ---- the core estimator --------------------------------------------------------------- */
 
 /* Weighted residuals sqrt(w)·(m − y) into res (n) and, when J is not NULL, the weighted

@@ -318,12 +318,12 @@ size_t stagecal_regress_nlin_polish(stagecal_regress_nlin *w, double *theta, dou
 /* The HC3 (power 2) or HC2 (power 1) sandwich in place of C: on entry C = (JᵀJ)⁻¹ in the
  * parameters' units, J the Jacobian of the weighted residuals rv with column k divided by
  * cn[k]. Each point's squared residual is inflated by 1/(1 − h_i)^power, h_i = j_iᵀ C j_i its
- * leverage (MacKinnon &
- * White 1985, "Some heteroskedasticity-consistent covariance matrix estimators with improved
- * finite sample properties", J. Econometrics 29, 305–325 — from memory). −1 (C untouched)
- * when a point's leverage exceeds 0.99: its residual then says nothing of its variance. */
-static int hc3_sandwich(const gsl_matrix *J, const double *cn, const gsl_vector *rv, int power,
-                        gsl_matrix *C)
+ * leverage (MacKinnon & White 1985, "Some heteroskedasticity-consistent covariance matrix
+ * estimators with improved finite sample properties", J. Econometrics 29, 305–325 — from memory).
+ * −1 (C untouched) when a point's leverage exceeds 0.99: its residual then says nothing of its
+ * variance. */
+static int sandwich(const gsl_matrix *J, const double *cn, const gsl_vector *rv, int power,
+                    gsl_matrix *C)
 {
     size_t n = J->size1, p = J->size2;
     double M[STAGECAL_FORM_MAXP * STAGECAL_FORM_MAXP] = {0}, jr[STAGECAL_FORM_MAXP];
@@ -354,6 +354,16 @@ static int hc3_sandwich(const gsl_matrix *J, const double *cn, const gsl_vector 
         for (size_t j = 0; j < p; j++)
             gsl_matrix_set(C, i, j, 0.5 * (S[i * p + j] + S[j * p + i])); /* exactly symmetric */
     return 0;
+}
+
+/* se and the t intervals of every parameter from res->cov and res->tquant. */
+static void set_intervals(stagecal_regress_result *res)
+{
+    for (size_t i = 0; i < res->p; i++) {
+        res->se[i] = sqrt(res->cov[i * res->p + i]);
+        res->ci_low[i] = res->theta[i] - res->tquant * res->se[i];
+        res->ci_high[i] = res->theta[i] + res->tquant * res->se[i];
+    }
 }
 
 int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta, int scale,
@@ -421,10 +431,8 @@ int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta,
                            res->form.name, i < res->form.p ? res->form.param_names[i] : "?");
             goto done;
         }
-        res->se[i] = sqrt(v);
-        res->ci_low[i] = res->theta[i] - res->tquant * res->se[i];
-        res->ci_high[i] = res->theta[i] + res->tquant * res->se[i];
     }
+    set_intervals(res);
     if (stagecal_regress_identify(res) > 0 && !prm.allow_undetermined) {
         char why[STAGECAL_ERROR_TEXT];
         stagecal_regress_ident_text(res, why, sizeof why);
@@ -433,19 +441,17 @@ int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta,
     /* identifiability is judged on the model's covariance (above); the sandwich replaces it
      * only where every variance it gives is positive */
     if (rc == STAGECAL_OK && prm.cov_kind != STAGECAL_COV_MODEL &&
-        hc3_sandwich(J, cn, rv, prm.cov_kind == STAGECAL_COV_HC3 ? 2 : 1, C) == 0) {
+        sandwich(J, cn, rv, prm.cov_kind == STAGECAL_COV_HC3 ? 2 : 1, C) == 0) {
         int ok = 1;
         for (size_t i = 0; i < p; i++)
             ok &= isfinite(gsl_matrix_get(C, i, i)) && gsl_matrix_get(C, i, i) > 0;
-        for (size_t i = 0; ok && i < p; i++) {
-            for (size_t j = 0; j < p; j++)
-                res->cov[i * p + j] = gsl_matrix_get(C, i, j);
-            res->se[i] = sqrt(res->cov[i * p + i]);
-            res->ci_low[i] = res->theta[i] - res->tquant * res->se[i];
-            res->ci_high[i] = res->theta[i] + res->tquant * res->se[i];
-        }
-        if (ok)
+        if (ok) {
+            for (size_t i = 0; i < p; i++)
+                for (size_t j = 0; j < p; j++)
+                    res->cov[i * p + j] = gsl_matrix_get(C, i, j);
+            set_intervals(res);
             res->cov_kind = prm.cov_kind;
+        }
     }
 done:
     gsl_vector_free(rv);

@@ -140,6 +140,11 @@ typedef enum {
 /* Text of a stop reason, e.g. "small step (xtol)". */
 const char *stagecal_regress_stop_text(stagecal_stop stop);
 
+/* Name of a covariance kind: "model", "hc3" or "hc2" (the --json value), and its label in
+ * words: "s^2 times the inverse information", "the HC3 sandwich", "the HC2 sandwich". */
+const char *stagecal_regress_cov_name(stagecal_cov_kind kind);
+const char *stagecal_regress_cov_label(stagecal_cov_kind kind);
+
 typedef struct {
     stagecal_form form;
     size_t n, p; /* points used, parameters */

@@ -130,10 +130,7 @@ static json_t *fit_json(const stagecal_regress_result *f, int status, const char
     json_object_set_new(o, "rss", cli_json_real(f->rss));
     json_object_set_new(o, "sigma", cli_json_real(f->sigma_obs > 0 ? f->sigma_obs : f->sigma));
     json_object_set_new(o, "dof", cli_json_real(f->dof));
-    json_object_set_new(o, "covariance",
-                        json_string(f->cov_kind == STAGECAL_COV_HC3   ? "hc3"
-                                    : f->cov_kind == STAGECAL_COV_HC2 ? "hc2"
-                                                                      : "model"));
+    json_object_set_new(o, "covariance", json_string(stagecal_regress_cov_name(f->cov_kind)));
     json_object_set_new(o, "n", json_integer((json_int_t)f->n));
     json_object_set_new(o, "stop", json_string(stagecal_regress_stop_text(f->stop)));
     return o;
@@ -185,12 +182,10 @@ static void print_fit(const char *title, const stagecal_regress_result *f)
 {
     printf("%s\n", title);
     cli_print_params(f, 0);
-    printf("  residual sigma %.4g stages, %g degrees of freedom, %zu windows; %s\n",
+    printf("  residual sigma %.4g stages, %g degrees of freedom, %zu windows; standard errors "
+           "from %s\n",
            f->sigma_obs > 0 ? f->sigma_obs : f->sigma, f->dof, f->n,
-           f->cov_kind == STAGECAL_COV_HC3   ? "standard errors from the HC3 sandwich"
-           : f->cov_kind == STAGECAL_COV_HC2 ? "standard errors from the HC2 sandwich"
-                                             : "standard errors from s^2 times the inverse "
-                                               "information");
+           stagecal_regress_cov_label(f->cov_kind));
 }
 
 /* The two fits side by side in words: the largest difference of a parameter in combined
