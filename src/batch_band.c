@@ -17,6 +17,7 @@
  * prediction band for one batch, otherwise a confidence band on the mean law.
  */
 #include "stagecal/batch.h"
+#include "stagecal/regress.h"
 
 #include <gsl/gsl_eigen.h>
 #include <gsl/gsl_errno.h>
@@ -135,6 +136,15 @@ int stagecal_batch_band_sample_scatter(const stagecal_batch_problem *pb, const s
     band->seed = seed;
     band->n_cuts = nc;
     double nu = m->dof > 0 && isfinite(m->dof) ? m->dof : INFINITY;
+    /* with a design (Bell–McCaffrey dof per contrast) one ν serves every draw: the
+     * smallest of the parameters' dof, so no parameter's spread is understated */
+    for (size_t k = 0; k < m->n_design && k < m->form.p; k++) {
+        double c[STAGECAL_FORM_MAXP] = {0}, dk;
+        c[k] = 1;
+        if (stagecal_regress_bm_dof(m->design, m->n_design, m->form.p, c, &dk, NULL) ==
+            STAGECAL_OK)
+            nu = fmin(nu, dk);
+    }
     band->dof = nu;
     band->run_scatter = run_scatter;
 

@@ -37,7 +37,7 @@ stagecal_calibrate_params stagecal_calibrate_default_params(void)
     p.evidence = stagecal_evidence_default_params();
     p.seed = 1;
     p.robust = STAGECAL_ROBUST_NONE;
-    p.cov_kind = STAGECAL_COV_HC3;
+    p.cov_kind = STAGECAL_COV_HC2_BM;
     p.hetp_r = NAN;
     p.hetp_f = NAN;
     p.read = stagecal_runlog_default_params();
@@ -189,6 +189,9 @@ static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params
     /* one dof for θ and σ: the smaller, when σ rests on fewer windows than θ (a
      * composition-space fit whose windows do not all have stage counts) */
     mo->dof = fit->sigma_dof > 0 ? fmin(fit->dof, fit->sigma_dof) : fit->dof;
+    /* with HC2_BM the fit's design goes along: each band's dof is its own contrast's */
+    if (fit->design && (rc = stagecal_model_set_design(mo, fit->design, fit->n, err)))
+        return rc;
     mo->level = par->level;
     mo->method = cal->used;
     mo->n_windows = cal->used == STAGECAL_MODEL_STAGE_SPACE ? cal->nev_stage : nev;

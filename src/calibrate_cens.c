@@ -34,6 +34,7 @@ static void as_result(const stagecal_calibration *cal, const stagecal_form *form
         r->se[j] = c->has_cov ? sqrt(c->cov[j * p + j]) : NAN;
         r->ci_low[j] = c->par[j].low;
         r->ci_high[j] = c->par[j].high;
+        r->param_dof[j] = r->dof; /* profile-likelihood intervals: no t, the dof as stated */
         if (!c->par[j].low_bounded && !c->par[j].high_bounded)
             r->undetermined |= 1u << j;
         for (size_t k = 0; k < p && c->has_cov; k++)

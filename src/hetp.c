@@ -56,17 +56,17 @@ int stagecal_hetp_stages_from_model(const stagecal_model *m, double r, double f_
         *pt = p;
     s->column_stages = p.column_stages;
     s->se = p.se_fit;
-    s->dof = m->dof;
+    s->dof = p.dof_fit; /* the model's, or this condition's Bell–McCaffrey dof */
     s->lower_only = p.lower_only;
     if (!(isfinite(p.column_stages) && p.column_stages > 0))
         return error_set(err, STAGECAL_EDATA,
                          "column %s: the model predicts %g column stages at R = %g (expected > 0 "
                          "for an HETP)",
                          m->column_id, p.column_stages, r);
-    if (!p.lower_only && !(isfinite(p.se_fit) && p.se_fit >= 0 && m->dof > 0))
+    if (!p.lower_only && !(isfinite(p.se_fit) && p.se_fit >= 0 && s->dof > 0))
         return error_set(err, STAGECAL_EDATA,
                          "column %s: no standard error at R = %g (se %g, dof %g)", m->column_id, r,
-                         p.se_fit, m->dof);
+                         p.se_fit, s->dof);
     return STAGECAL_OK;
 }
 

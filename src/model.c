@@ -84,6 +84,7 @@ void stagecal_model_free(stagecal_model *m)
         free(m->warnings[i]);
     free(m->warnings);
     free(m->command_line);
+    free(m->design);
     stagecal_model_init(m);
 }
 
@@ -175,6 +176,20 @@ int stagecal_model_set_command_line(stagecal_model *m, const char *text, stageca
         return error_set(err, STAGECAL_ENOMEM, "out of memory copying the command line");
     free(m->command_line);
     m->command_line = copy;
+    return STAGECAL_OK;
+}
+
+int stagecal_model_set_design(stagecal_model *m, const double *x, size_t n, stagecal_error *err)
+{
+    double *copy = NULL;
+    size_t k = n * m->form.p;
+    if (k > 0 && !(copy = malloc(k * sizeof *copy)))
+        return error_set(err, STAGECAL_ENOMEM, "out of memory copying the design");
+    if (k > 0)
+        memcpy(copy, x, k * sizeof *copy);
+    free(m->design);
+    m->design = copy;
+    m->n_design = k > 0 ? n : 0;
     return STAGECAL_OK;
 }
 
@@ -319,6 +334,24 @@ int model_check(const stagecal_model *m, const char *source, int code, stagecal_
         FAIL("dof = %g: expected a finite number > 0", m->dof);
     if (!(m->level > 0 && m->level < 1))
         FAIL("confidence_level = %g: expected a number in (0, 1)", m->level);
+    if (m->n_design > 0) {
+        if (!m->design || m->n_design <= p)
+            FAIL("design: %zu rows for %zu parameters (expected more rows than parameters)",
+                 m->n_design, p);
+        for (size_t i = 0; i < m->n_design * p; i++)
+            if (!isfinite(m->design[i]))
+                FAIL("design[%zu][%zu] is not finite", i / p, i % p);
+        if (m->one_sided)
+            FAIL("a one-sided bound has no design (its covariance means nothing)");
+        /* every parameter's dof exists: the design has full rank and no leverage of 1 */
+        for (size_t k = 0; k < p; k++) {
+            double c[STAGECAL_FORM_MAXP] = {0}, dof;
+            stagecal_error e2;
+            c[k] = 1;
+            if (stagecal_regress_bm_dof(m->design, m->n_design, p, c, &dof, &e2) != STAGECAL_OK)
+                FAIL("design: %s", e2.text);
+        }
+    }
     if (m->method != STAGECAL_MODEL_STAGE_SPACE && m->method != STAGECAL_MODEL_COMPOSITION_SPACE &&
         m->method != STAGECAL_MODEL_CENSORED)
         FAIL("fit method %d is unknown", (int)m->method);
@@ -409,8 +442,8 @@ int stagecal_model_eval(const stagecal_model *m, double r, double f_load, double
         return error_set(err, STAGECAL_EINVAL,
                          "F-factor = %g Pa^0.5: the form '%s' needs a finite F >= 0", f_load,
                          m->form.name);
-    int rc = stagecal_regress_band(&m->form, m->theta, m->cov, m->sigma, m->dof, level, r, f_load,
-                                   &band, err);
+    int rc = stagecal_regress_band_design(&m->form, m->theta, m->cov, m->sigma, 1.0, m->dof,
+                                          m->design, m->n_design, level, r, f_load, &band, err);
     if (rc != STAGECAL_OK)
         return rc;
 
@@ -420,7 +453,9 @@ int stagecal_model_eval(const stagecal_model *m, double r, double f_load, double
     out->se_fit = band.se_fit;
     out->se_pred = band.se_pred;
     out->level = level;
-    out->t = gsl_cdf_tdist_Pinv(0.5 + 0.5 * level, m->dof);
+    out->t = gsl_cdf_tdist_Pinv(0.5 + 0.5 * level, band.dof_fit);
+    out->dof_fit = band.dof_fit;
+    out->dof_pred = band.dof_pred;
     out->ci_low = band.ci_low;
     out->ci_high = band.ci_high;
     out->pi_low = band.pi_low;

@@ -115,10 +115,12 @@ static json_t *build_doc(const stagecal_model *m)
                   "length", "m", "covariance", "of the parameters, in their own units");
 
     bad |= json_object_set_new(doc, "format", json_string(STAGECAL_MODEL_FORMAT));
-    /* version 2 only where it is needed, so that older readers refuse what they would
-     * misread (a censored-likelihood fit, a one-sided bound) and read everything else */
-    bad |= json_object_set_new(doc, "version",
-                               json_integer(m->method == STAGECAL_MODEL_CENSORED ? 2 : 1));
+    /* version 2 or 3 only where it is needed, so that older readers refuse what they would
+     * misread (a censored-likelihood fit, a one-sided bound; a design whose per-band dof
+     * they would ignore) and read everything else */
+    bad |= json_object_set_new(
+        doc, "version",
+        json_integer(m->n_design > 0 ? 3 : m->method == STAGECAL_MODEL_CENSORED ? 2 : 1));
     bad |= json_object_set_new(doc, "column", json_string(m->column_id));
     json_t *sys =
         json_pack("{s:s, s:s, s:o}", "light", m->light, "heavy", m->heavy, "equilibrium", vle);
@@ -150,6 +152,21 @@ static json_t *build_doc(const stagecal_model *m)
                       "the evidence bounds the stage count from below only: the parameters give "
                       "'at least N stages' at the confidence level, one-sided; the covariance "
                       "means nothing"));
+    }
+    if (m->n_design > 0) {
+        json_t *rows = json_array();
+        for (size_t i = 0; rows && i < m->n_design; i++) {
+            json_t *row = json_array();
+            for (size_t k = 0; row && k < p; k++)
+                bad |= json_array_append_new(row, json_real(m->design[i * p + k]));
+            bad |= json_array_append_new(rows, row ? row : json_null());
+        }
+        bad |= json_object_set_new(json_object_get(doc, "correlation"), "design",
+                                   rows ? rows : json_null());
+        bad |= json_object_set_new(units, "design",
+                                   json_string("standardised Jacobian of the fit at the "
+                                               "parameters, one row per residual: the "
+                                               "Bell-McCaffrey dof of every band comes from it"));
     }
     bad |= json_object_set_new(doc, "evidence",
                                json_pack("{s:I, s:I, s:I}", "windows", (json_int_t)m->n_windows,
@@ -324,6 +341,37 @@ static int read_one_sided(reader *rd, const json_t *c, stagecal_model *m)
     return STAGECAL_OK;
 }
 
+/* correlation.design (format version 3; absent: none): rows of form.p numbers. */
+static int read_design(reader *rd, const json_t *c, stagecal_model *m)
+{
+    int rc;
+    json_t *d = NULL;
+    size_t p = m->form.p;
+    TRY(jr_array(J, c, "design", "correlation.design", 0, &d));
+    if (!d)
+        return STAGECAL_OK;
+    size_t n = json_array_size(d);
+    if (n <= p)
+        return RFAIL(rd, "correlation.design: %zu rows for %zu parameters (expected more rows)", n,
+                     p);
+    m->design = malloc(n * p * sizeof *m->design);
+    if (!m->design)
+        return error_set(rd->jr.err, STAGECAL_ENOMEM, "out of memory for %zu design rows", n);
+    m->n_design = n;
+    for (size_t i = 0; i < n; i++) {
+        json_t *row = json_array_get(d, i);
+        if (!json_is_array(row) || json_array_size(row) != p)
+            return RFAIL(rd, "correlation.design[%zu]: expected an array of %zu numbers", i, p);
+        for (size_t k = 0; k < p; k++) {
+            json_t *e = json_array_get(row, k);
+            if (!json_is_number(e))
+                return RFAIL(rd, "correlation.design[%zu][%zu]: expected a number", i, k);
+            m->design[i * p + k] = json_number_value(e);
+        }
+    }
+    return STAGECAL_OK;
+}
+
 static int read_correlation(reader *rd, const json_t *doc, stagecal_model *m)
 {
     int rc;
@@ -384,7 +432,8 @@ static int read_correlation(reader *rd, const json_t *doc, stagecal_model *m)
                      "correlation.method '%s': expected 'stage-space', "
                      "'composition-space' or 'censored-likelihood'",
                      method);
-    return read_one_sided(rd, c, m);
+    TRY(read_one_sided(rd, c, m));
+    return read_design(rd, c, m);
 }
 
 static int read_rest(reader *rd, const json_t *doc, stagecal_model *m)

@@ -78,7 +78,8 @@ const char *stagecal_regress_stop_text(stagecal_stop stop)
 const char *stagecal_regress_cov_name(stagecal_cov_kind kind)
 {
     static const char *const names[] = {
-        [STAGECAL_COV_MODEL] = "model", [STAGECAL_COV_HC3] = "hc3", [STAGECAL_COV_HC2] = "hc2"};
+        [STAGECAL_COV_MODEL] = "model", [STAGECAL_COV_HC3] = "hc3", [STAGECAL_COV_HC2] = "hc2",
+        [STAGECAL_COV_HC2_BM] = "hc2-bm"};
     return NAME_OF(names, kind);
 }
 
@@ -86,7 +87,9 @@ const char *stagecal_regress_cov_label(stagecal_cov_kind kind)
 {
     static const char *const names[] = {[STAGECAL_COV_MODEL] = "s^2 times the inverse information",
                                         [STAGECAL_COV_HC3] = "the HC3 sandwich",
-                                        [STAGECAL_COV_HC2] = "the HC2 sandwich"};
+                                        [STAGECAL_COV_HC2] = "the HC2 sandwich",
+                                        [STAGECAL_COV_HC2_BM] =
+                                            "the HC2 sandwich with Bell-McCaffrey dof"};
     return NAME_OF(names, kind);
 }
 
@@ -461,8 +464,10 @@ void stagecal_regress_result_free(stagecal_regress_result *result)
         return;
     free(result->weights);
     free(result->band);
+    free(result->design);
     result->weights = NULL;
     result->band = NULL;
+    result->design = NULL;
     result->nband = 0;
 }
 

@@ -18,9 +18,10 @@
  * not positive semi-definite; above it, a negative value is rounding and becomes 0. */
 #define BAND_NEG_TOL (64.0 * DBL_EPSILON)
 
-int stagecal_regress_band_obs(const stagecal_form *form, const double *theta, const double *cov,
-                              double sigma, double obs_sigma, double dof, double level, double r,
-                              double f_load, stagecal_band *out, stagecal_error *err)
+int stagecal_regress_band_design(const stagecal_form *form, const double *theta, const double *cov,
+                                 double sigma, double obs_sigma, double dof, const double *x,
+                                 size_t n_x, double level, double r, double f_load,
+                                 stagecal_band *out, stagecal_error *err)
 {
     double g[STAGECAL_FORM_MAXP], value;
     if (!form || !theta || !cov || !out)
@@ -55,18 +56,36 @@ int stagecal_regress_band_obs(const stagecal_form *form, const double *theta, co
                          var, r);
     if (var < 0)
         var = 0;
-    double t = gsl_cdf_tdist_Pinv(0.5 + 0.5 * level, dof);
-    double obs = sigma * obs_sigma;
+    double obs = sigma * obs_sigma, vo = obs * obs, dof_fit = dof, dof_pred = dof;
+    if (x && n_x > 0 && var > 0) {
+        int rc = stagecal_regress_bm_dof(x, n_x, form->p, g, &dof_fit, err);
+        if (rc != STAGECAL_OK)
+            return rc;
+        /* Welch–Satterthwaite: se_pred² = se_fit² (dof_fit) + σ²·obs² (dof) */
+        dof_pred = (var + vo) * (var + vo) / (var * var / dof_fit + vo * vo / dof);
+    }
+    double t = gsl_cdf_tdist_Pinv(0.5 + 0.5 * level, dof_fit);
+    double tp = gsl_cdf_tdist_Pinv(0.5 + 0.5 * level, dof_pred);
     out->r = r;
     out->f_load = f_load;
     out->value = value;
     out->se_fit = sqrt(var);
-    out->se_pred = sqrt(var + obs * obs);
+    out->se_pred = sqrt(var + vo);
     out->ci_low = value - t * out->se_fit;
     out->ci_high = value + t * out->se_fit;
-    out->pi_low = value - t * out->se_pred;
-    out->pi_high = value + t * out->se_pred;
+    out->pi_low = value - tp * out->se_pred;
+    out->pi_high = value + tp * out->se_pred;
+    out->dof_fit = dof_fit;
+    out->dof_pred = dof_pred;
     return STAGECAL_OK;
+}
+
+int stagecal_regress_band_obs(const stagecal_form *form, const double *theta, const double *cov,
+                              double sigma, double obs_sigma, double dof, double level, double r,
+                              double f_load, stagecal_band *out, stagecal_error *err)
+{
+    return stagecal_regress_band_design(form, theta, cov, sigma, obs_sigma, dof, NULL, 0, level, r,
+                                        f_load, out, err);
 }
 
 int stagecal_regress_band(const stagecal_form *form, const double *theta, const double *cov,
@@ -95,6 +114,9 @@ int regress_band_grid(const stagecal_regress_params *prm, stagecal_regress_resul
         nf = 3;
     }
     size_t nrr = nr + (res->has_total_reflux ? 1 : 0);
+    /* the dof of σ_obs, as the model file stores it (calibrate.c) */
+    double dof_sigma =
+        res->design && res->sigma_dof > 0 ? fmin(res->dof, res->sigma_dof) : res->dof;
     if (nrr == 0)
         return STAGECAL_OK;
     res->band = calloc(nrr * nf, sizeof *res->band);
@@ -106,9 +128,9 @@ int regress_band_grid(const stagecal_regress_params *prm, stagecal_regress_resul
                                                            (double)(nr - 1)
                                         : res->r_min)
                               : INFINITY;
-            int rc =
-                stagecal_regress_band(&res->form, res->theta, res->cov, res->sigma_obs, res->dof,
-                                      res->level, r, fs[j], &res->band[res->nband], err);
+            int rc = stagecal_regress_band_design(
+                &res->form, res->theta, res->cov, res->sigma_obs, 1.0, dof_sigma, res->design,
+                res->design ? res->n : 0, res->level, r, fs[j], &res->band[res->nband], err);
             if (rc != STAGECAL_OK)
                 return rc;
             res->nband++;

@@ -356,14 +356,44 @@ static int sandwich(const gsl_matrix *J, const double *cn, const gsl_vector *rv,
     return 0;
 }
 
-/* se and the t intervals of every parameter from res->cov and res->tquant. */
+/* se and the t intervals of every parameter from res->cov, at res->tquant or (with a
+ * design) at each parameter's Bell–McCaffrey dof in res->param_dof. */
 static void set_intervals(stagecal_regress_result *res)
 {
     for (size_t i = 0; i < res->p; i++) {
+        double t = res->design ? gsl_cdf_tdist_Pinv(0.5 + 0.5 * res->level, res->param_dof[i])
+                               : res->tquant;
         res->se[i] = sqrt(res->cov[i * res->p + i]);
-        res->ci_low[i] = res->theta[i] - res->tquant * res->se[i];
-        res->ci_high[i] = res->theta[i] + res->tquant * res->se[i];
+        res->ci_low[i] = res->theta[i] - t * res->se[i];
+        res->ci_high[i] = res->theta[i] + t * res->se[i];
     }
+}
+
+/* For HC2_BM: keeps the standardised Jacobian (J with column k times cn[k]) in res->design
+ * and the Bell–McCaffrey dof of every parameter in res->param_dof. ENOMEM; EDATA from the
+ * dof (a rank-deficient design cannot reach here: the model's covariance exists). */
+static int keep_design(const gsl_matrix *J, const double *cn, stagecal_regress_result *res,
+                       stagecal_error *err)
+{
+    size_t n = J->size1, p = J->size2;
+    free(res->design);
+    res->design = malloc(n * p * sizeof *res->design);
+    if (!res->design)
+        return error_set(err, STAGECAL_ENOMEM, "regress: out of memory for the design");
+    for (size_t r = 0; r < n; r++)
+        for (size_t k = 0; k < p; k++)
+            res->design[r * p + k] = gsl_matrix_get(J, r, k) * cn[k];
+    for (size_t k = 0; k < p; k++) {
+        double c[STAGECAL_FORM_MAXP] = {0};
+        c[k] = 1;
+        int rc = stagecal_regress_bm_dof(res->design, n, p, c, &res->param_dof[k], err);
+        if (rc != STAGECAL_OK) {
+            free(res->design);
+            res->design = NULL;
+            return rc;
+        }
+    }
+    return STAGECAL_OK;
 }
 
 int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta, int scale,
@@ -420,6 +450,10 @@ int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta,
     double s2 = scale ? res->sigma * res->sigma : 1.0;
     res->cov_kind = STAGECAL_COV_MODEL;
     res->tquant = gsl_cdf_tdist_Pinv(0.5 + 0.5 * prm.level, res->dof);
+    free(res->design);
+    res->design = NULL;
+    for (size_t k = 0; k < p; k++)
+        res->param_dof[k] = res->dof;
     for (size_t i = 0; i < p; i++) {
         for (size_t j = 0; j < p; j++)
             res->cov[i * p + j] = s2 * gsl_matrix_get(C, i, j);
@@ -445,7 +479,9 @@ int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta,
         int ok = 1;
         for (size_t i = 0; i < p; i++)
             ok &= isfinite(gsl_matrix_get(C, i, i)) && gsl_matrix_get(C, i, i) > 0;
-        if (ok) {
+        if (ok && prm.cov_kind == STAGECAL_COV_HC2_BM)
+            rc = keep_design(J, cn, res, err);
+        if (ok && rc == STAGECAL_OK) {
             for (size_t i = 0; i < p; i++)
                 for (size_t j = 0; j < p; j++)
                     res->cov[i * p + j] = gsl_matrix_get(C, i, j);

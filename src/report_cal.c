@@ -306,8 +306,14 @@ static void cov_note(stagecal_report_doc *d, const stagecal_calibration *cal)
             : report_doc_str(d,
                              "%s sandwich: from each window's own residual, inflated by its "
                              "leverage (MacKinnon & White 1985), not only from the windows' "
-                             "stated errors",
-                             f->cov_kind == STAGECAL_COV_HC3 ? "HC3" : "HC2");
+                             "stated errors%s",
+                             f->cov_kind == STAGECAL_COV_HC3 ? "HC3" : "HC2",
+                             f->cov_kind == STAGECAL_COV_HC2_BM
+                                 ? "; every interval and band uses Student t at its own "
+                                   "Bell\xe2\x80\x93McCaffrey degrees of freedom (Imbens & "
+                                   "Koles\xc3\xa1r 2016), fewer where it rests on a few "
+                                   "windows"
+                                 : "");
     report_doc_add_item(d->summary, &ns, "standard errors", how);
     d->rep.n_fit_summary = ns;
 }

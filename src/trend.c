@@ -93,7 +93,7 @@ int stagecal_trend_point_from_model(const stagecal_model *m, double r, double f_
                          "for an HETP)",
                          m->column_id, m->fitted_utc, p.column_stages, r);
     /* HETP and its delta-method standard error come from hetp.c, the one home of HETP */
-    stagecal_hetp_stages hs = {p.column_stages, p.se_fit, m->dof, p.lower_only};
+    stagecal_hetp_stages hs = {p.column_stages, p.se_fit, p.dof_fit, p.lower_only};
     stagecal_hetp_result h;
     if ((rc = stagecal_hetp_compute(m->height_m, &hs, m->level, &h, err)) != STAGECAL_OK)
         return rc;

@@ -18,8 +18,13 @@ statsmodels' get_prediction(...).summary_frame(alpha) with weights 1/OBS_SIGMA^2
 Output, one "key value..." line each, numbers with repr() (17 significant digits):
   params, bse, ssr, scale, llf, rsquared, df_resid, then one "pred" line per point:
   mean mean_se mean_ci_lower mean_ci_upper obs_ci_lower obs_ci_upper; last "hc3_bse",
-  the standard errors of the HC3 sandwich covariance (cov_type="HC3"), and "hc2_bse"
-  (cov_type="HC2").
+  the standard errors of the HC3 sandwich covariance (cov_type="HC3"), "hc2_bse"
+  (cov_type="HC2"), "bm_dof" (the Bell-McCaffrey degrees of freedom of each parameter) and
+  "bm_pred" (those of the fitted value at each (R, F) point): K = (sum lambda)^2 / sum
+  lambda^2 over the eigenvalues lambda of G'G, G = (I - H) diag(a_i / sqrt(1 - h_ii)),
+  a = X (X'X)^-1 c on the whitened design (Imbens & Kolesar 2016, Rev. Econ. Stat. 98,
+  701-712, section III), by numpy's eigvalsh: a different route from the C code's trace
+  identity.
 """
 import csv
 import math
@@ -122,6 +127,20 @@ def main():
     out.write("hc3_bse " + " ".join(repr(float(v)) for v in hc3.bse) + "\n")
     hc2 = WLS(y, X, weights=w).fit(cov_type="HC2")
     out.write("hc2_bse " + " ".join(repr(float(v)) for v in hc2.bse) + "\n")
+    xw = X * np.sqrt(w)[:, None]
+    xtxi = np.linalg.inv(xw.T @ xw)
+    hat = xw @ xtxi @ xw.T
+    lev = np.diag(hat)
+
+    def bm_dof(c):
+        g = (np.eye(len(y)) - hat) * ((xw @ xtxi @ c) / np.sqrt(1 - lev))[None, :]
+        lam = np.linalg.eigvalsh(g.T @ g)
+        return float(lam.sum() ** 2 / (lam ** 2).sum())
+
+    out.write("bm_dof " + " ".join(repr(bm_dof(c)) for c in np.eye(X.shape[1])) + "\n")
+    out.write("bm_pred " + " ".join(
+        repr(bm_dof(np.array([term(t, float(args[i]), float(args[i + 1])) for t in terms])))
+        for i in range(0, len(args), 3)) + "\n")
 
 
 if __name__ == "__main__":

@@ -31,7 +31,7 @@
 #include "stagecal/calibrate.h"
 #include "stagecal/stages.h"
 
-/* The covariance of the studies' fits: calibrate's default, or STUDY_COV=model|hc2|hc3 (a
+/* The covariance of the studies' fits: calibrate's default, or STUDY_COV=model|hc2|hc3|hc2-bm (a
  * knob of the coverage studies, never set by the unit tests). */
 static inline stagecal_cov_kind synth_cov_kind(void)
 {
@@ -42,6 +42,8 @@ static inline stagecal_cov_kind synth_cov_kind(void)
         return STAGECAL_COV_HC2;
     if (s && strcmp(s, "hc3") == 0)
         return STAGECAL_COV_HC3;
+    if (s && strcmp(s, "hc2-bm") == 0)
+        return STAGECAL_COV_HC2_BM;
     return stagecal_calibrate_default_params().cov_kind;
 }
 
@@ -110,8 +112,9 @@ static inline int synth_fill(const stagecal_form *form, const stagecal_regress_r
     }
     for (int q = 0; q < 3; q++) {
         stagecal_band bd;
-        if (stagecal_regress_band(form, res->theta, res->cov, cov_sigma, res->dof, 0.95,
-                                  synth_band_r[q], 0, &bd, NULL) != STAGECAL_OK)
+        if (stagecal_regress_band_design(form, res->theta, res->cov, cov_sigma, 1.0, res->dof,
+                                         res->design, res->design ? res->n : 0, 0.95,
+                                         synth_band_r[q], 0, &bd, NULL) != STAGECAL_OK)
             return -1;
         f->est[2 + q] = bd.value;
         f->se[2 + q] = bd.se_fit;

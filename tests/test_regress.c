@@ -15,6 +15,7 @@
 #include <string.h>
 #include <cmocka.h>
 
+#include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
@@ -235,6 +236,36 @@ static void xcheck(const char *form_name, int with_f, int with_sigma, int with_i
     assert_int_equal(read_line_values(py, "hc2_bse", v, 8), p);
     for (size_t k = 0; k < hc.p; k++)
         assert_rel(hc.se[k], v[k], tol, "se vs statsmodels HC2 bse");
+    stagecal_regress_result_free(&hc);
+    /* HC2 with Bell-McCaffrey dof: the same standard errors; each parameter's dof and the
+     * dof of the fitted value at the three points against numpy's eigenvalue route (same
+     * tolerance: both are a few p×p and n×n products of the same whitened design). */
+    prm.cov_kind = STAGECAL_COV_HC2_BM;
+    fit_ok(&d, form_name, &prm, &hc);
+    assert_int_equal(hc.cov_kind, STAGECAL_COV_HC2_BM);
+    assert_non_null(hc.design);
+    assert_int_equal(read_line_values(py, "bm_dof", v, 8), p);
+    for (size_t k = 0; k < hc.p; k++) {
+        double tk = gsl_cdf_tdist_Pinv(0.95, v[k]); /* level 0.9 */
+        assert_rel(hc.param_dof[k], v[k], tol, "parameter dof vs numpy Bell-McCaffrey");
+        assert_true(hc.param_dof[k] < hc.dof); /* K <= n - p, equal only in special designs */
+        assert_rel(hc.ci_high[k] - hc.theta[k], tk * hc.se[k], tol, "BM interval half-width");
+    }
+    assert_int_equal(read_line_values(py, "bm_pred", v, 8), 3);
+    for (size_t i = 0; i < 3; i++) {
+        stagecal_band b;
+        assert_int_equal(stagecal_regress_band_design(&hc.form, hc.theta, hc.cov, hc.sigma,
+                                                      ev[i][2], hc.dof, hc.design, hc.n, hc.level,
+                                                      ev[i][0], ev[i][1], &b, &e),
+                         STAGECAL_OK);
+        assert_rel(b.dof_fit, v[i], tol, "band dof vs numpy Bell-McCaffrey");
+        assert_rel(b.ci_high - b.value, gsl_cdf_tdist_Pinv(0.95, v[i]) * b.se_fit, tol,
+                   "BM band half-width");
+        /* Welch-Satterthwaite between dof_fit and the dof of sigma */
+        double vf = b.se_fit * b.se_fit, vo = b.se_pred * b.se_pred - vf;
+        assert_rel(b.dof_pred, (vf + vo) * (vf + vo) / (vf * vf / v[i] + vo * vo / hc.dof), 1e-12,
+                   "prediction dof");
+    }
     stagecal_regress_result_free(&hc);
     assert_int_equal(pclose(py), 0);
     stagecal_regress_result_free(&res);

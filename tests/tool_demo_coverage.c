@@ -138,11 +138,15 @@ int main(int argc, char **argv)
             logs[i] = p[i];
         }
         stagecal_calibrate_params par = stagecal_calibrate_default_params();
-        const char *cov = getenv("STUDY_COV"); /* model | hc2 | hc3 (default: calibrate's) */
+        const char *cov = getenv("STUDY_COV"); /* model | hc2 | hc3 | hc2-bm (default: calibrate's) */
         if (cov && strcmp(cov, "model") == 0)
             par.cov_kind = STAGECAL_COV_MODEL;
         else if (cov && strcmp(cov, "hc2") == 0)
             par.cov_kind = STAGECAL_COV_HC2;
+        else if (cov && strcmp(cov, "hc3") == 0)
+            par.cov_kind = STAGECAL_COV_HC3;
+        else if (cov && strcmp(cov, "hc2-bm") == 0)
+            par.cov_kind = STAGECAL_COV_HC2_BM;
         par.form = "saturating-load";
         par.evidence.noise = noise;
         if (getenv("DEMOCOV_HOLDUP")) /* diagnostics: -1 auto, 0 none, 1 lag */
@@ -173,8 +177,10 @@ int main(int argc, char **argv)
             for (int c = 0; c < NCOND && ok[q]; c++) {
                 double r = conds[c][0], f = conds[c][1];
                 stagecal_band b;
-                if (stagecal_regress_band(&form, fit[q]->theta, fit[q]->cov, fit[q]->sigma_obs,
-                                          fit[q]->dof, 0.95, r, f, &b, NULL) != STAGECAL_OK)
+                if (stagecal_regress_band_design(&form, fit[q]->theta, fit[q]->cov,
+                                                 fit[q]->sigma_obs, 1.0, fit[q]->dof,
+                                                 fit[q]->design, fit[q]->design ? fit[q]->n : 0,
+                                                 0.95, r, f, &b, NULL) != STAGECAL_OK)
                     continue;
                 double truth = a_true * (isinf(r) ? 1.0 : -expm1(-0.9 * r)) *
                                (1 - 0.06 * (f - 1.3) * (f - 1.3));

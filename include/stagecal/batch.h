@@ -331,7 +331,8 @@ typedef struct {
     size_t n_ok;        /* draws whose batch ran to the same cuts */
     size_t n_failed;    /* draws that failed (law < 1 everywhere, solve failure) */
     unsigned long seed; /* GSL mt19937 seed */
-    double dof;         /* degrees of freedom of the t draws (the model's dof; INFINITY:
+    double dof;         /* degrees of freedom of the t draws (the model's dof, or with a
+                           design the smallest of its parameters' Bell–McCaffrey dof; INFINITY:
                            normal draws) */
     int run_scatter;    /* 1: each draw also carries the run-to-run scatter of the stage
                            count (the model's σ): a prediction band for one batch; 0: a

@@ -72,9 +72,11 @@ typedef struct {
     size_t bootstrap;                  /* stage-space bootstrap resamples (0) */
     unsigned long seed;                /* bootstrap seed (1) */
     stagecal_robust_kind robust;       /* stage-space robust reweighting (NONE) */
-    stagecal_cov_kind cov_kind;        /* covariance of both fits: HC3 (the sandwich, default:
-                                          the windows' stated errors are right only in
-                                          proportion within a reflux ratio) or MODEL */
+    stagecal_cov_kind cov_kind;        /* covariance of both fits: HC2_BM (default: the HC2
+                                          sandwich, the windows' stated errors being right
+                                          only in proportion within a reflux ratio, with
+                                          Student t at each contrast's Bell–McCaffrey dof;
+                                          the model file carries the design), HC3 or MODEL */
     int allow_undetermined;            /* 1: a fit whose evidence does not determine a
                                           parameter is kept, the model carries a warning
                                           that names it (default 0: refused, EDATA) */

@@ -34,10 +34,11 @@ extern "C" {
 
 #define STAGECAL_MODEL_FORMAT "stagecal-model" /* the "format" member */
 #define STAGECAL_MODEL_VERSION                                                                     \
-    2                          /* the newest "version" this library reads and                      \
-                                  writes: 2 for a censored-likelihood fit (a                       \
-                                  method and a one-sided bound older readers                       \
-                                  must refuse), 1 otherwise */
+    3                          /* the newest "version" this library reads and                      \
+                                  writes: 3 for a fit that carries its design                      \
+                                  (Bell–McCaffrey dof per band), 2 for a                           \
+                                  censored-likelihood fit (a method and a one-sided                \
+                                  bound older readers must refuse), 1 otherwise */
 #define STAGECAL_MODEL_TEXT 64 /* size of short text fields */
 #define STAGECAL_MODEL_HEX 65  /* SHA-256 lowercase hex + NUL */
 
@@ -102,6 +103,12 @@ typedef struct {
                                      evaluation gives the bound, never a standard error
                                      (format version 2, member correlation.one_sided) */
     double theta_ml[STAGECAL_FORM_MAXP];
+    double *design;  /* the fit's standardised Jacobian at θ, n_design rows of form.p values
+                        (row-major, parameters' units), owned; NULL when the file has none.
+                        With it every band uses Student t at the Bell–McCaffrey dof of its
+                        own contrast (stagecal_regress_bm_dof) and dof is that of σ only
+                        (format version 3, member correlation.design) */
+    size_t n_design; /* rows of design: 0, or more than form.p */
 
     /* evidence */
     size_t n_windows; /* quasi-steady windows (units of evidence) that carried the fit */
@@ -178,6 +185,8 @@ int stagecal_model_add_input(stagecal_model *m, const char *path, const char *sh
 int stagecal_model_add_warning(stagecal_model *m, const char *text, stagecal_error *err);
 /* Replaces command_line with a copy of text (NULL clears it). ENOMEM. */
 int stagecal_model_set_command_line(stagecal_model *m, const char *text, stagecal_error *err);
+/* Copies n rows of form.p values into m->design (replacing any); ENOMEM. */
+int stagecal_model_set_design(stagecal_model *m, const double *x, size_t n, stagecal_error *err);
 /* Sets fitted_utc to the current UTC time. */
 void stagecal_model_stamp_now(stagecal_model *m);
 
@@ -227,7 +236,10 @@ typedef struct {
     double se_fit;          /* standard error of the mean prediction, sqrt(gᵀCg) [stages] */
     double se_pred;         /* standard error of a new observation, sqrt(gᵀCg + σ²) */
     double level;           /* confidence level used */
-    double t;               /* Student t quantile at (1 + level)/2 with dof */
+    double t;               /* Student t quantile at (1 + level)/2 with dof_fit */
+    double dof_fit;         /* its dof: the model's, or with a design the Bell–McCaffrey dof
+                               of this condition's contrast */
+    double dof_pred;        /* dof of the prediction band (Welch–Satterthwaite with a design) */
     double ci_low, ci_high; /* confidence band on the mean [stages] */
     double pi_low, pi_high; /* prediction band for a new window [stages] */
     int extrapolated;       /* 1 when (R, F) lies outside the envelope */

@@ -66,7 +66,11 @@ typedef enum {
                          e_i the residuals, h_i the leverages (MacKinnon & White 1985);
                          valid when the stated sigma_i are right only in proportion
                          within parts of the data, or the form is misspecified */
-    STAGECAL_COV_HC2 /* the same with e_i²/(1 − h_i): unbiased when the errors are equal */
+    STAGECAL_COV_HC2, /* the same with e_i²/(1 − h_i): unbiased when the errors are equal */
+    STAGECAL_COV_HC2_BM /* HC2 with Student t at the Bell–McCaffrey degrees of freedom of each
+                           contrast (Bell & McCaffrey 2002; Imbens & Kolesár 2016): the
+                           result keeps the standardised Jacobian (result.design) that the
+                           dof of any later contrast needs (stagecal_regress_bm_dof) */
 } stagecal_cov_kind;
 
 typedef struct {
@@ -109,8 +113,12 @@ typedef struct {
     double value;           /* fitted stages */
     double se_fit;          /* standard error of the fitted mean, sqrt(gᵀCg) */
     double se_pred;         /* standard error for one new observation, sqrt(se_fit² + σ_obs²) */
-    double ci_low, ci_high; /* value ∓ t·se_fit */
-    double pi_low, pi_high; /* value ∓ t·se_pred */
+    double ci_low, ci_high; /* value ∓ t(dof_fit)·se_fit */
+    double pi_low, pi_high; /* value ∓ t(dof_pred)·se_pred */
+    double dof_fit;         /* t dof of the confidence band: the dof given, or with a design the
+                               Bell–McCaffrey dof of this contrast */
+    double dof_pred;        /* t dof of the prediction band: the dof given, or with a design the
+                               Welch–Satterthwaite combination of dof_fit and the dof of σ */
 } stagecal_band;
 
 /* Band at (r, f_load) from the stored numbers alone: form, θ (p), covariance C (p×p,
@@ -126,6 +134,28 @@ int stagecal_regress_band(const stagecal_form *form, const double *theta, const 
 int stagecal_regress_band_obs(const stagecal_form *form, const double *theta, const double *cov,
                               double sigma, double obs_sigma, double dof, double level, double r,
                               double f_load, stagecal_band *out, stagecal_error *err);
+
+/* As stagecal_regress_band_obs, with the fit's standardised Jacobian x (n_x rows of form.p
+ * values, row-major, in the parameters' units; NULL or n_x = 0: none): the confidence band
+ * then uses Student t at the Bell–McCaffrey dof of the contrast gᵀθ (stagecal_regress_bm_dof)
+ * and the prediction band t at the Welch–Satterthwaite dof of se_fit² (that dof) + (σ·obs)²
+ * (dof, the dof of σ). EDATA when x is rank deficient. */
+int stagecal_regress_band_design(const stagecal_form *form, const double *theta, const double *cov,
+                                 double sigma, double obs_sigma, double dof, const double *x,
+                                 size_t n_x, double level, double r, double f_load,
+                                 stagecal_band *out, stagecal_error *err);
+
+/* The Bell–McCaffrey degrees of freedom of the contrast cᵀθ of a fit whose standardised
+ * Jacobian (weighted residuals' rows, in the parameters' units) is x, n rows of p values
+ * (Imbens & Kolesár 2016, "Robust standard errors in small samples: some practical
+ * advice", Rev. Econ. Stat. 98(4), 701–712, the K_BM of their §III): with A = (XᵀX)⁻¹,
+ * h_i = x_iᵀAx_i, a_i = x_iᵀAc, d_i = a_i/√(1 − h_i) and M = I − XAXᵀ,
+ * K = (Σ λ)²/Σ λ² over the eigenvalues λ of D M D (D = diag d), i.e. tr(DMD)²/‖DMD‖²_F,
+ * computed as (cᵀAc)² / [Σ d_i⁴(1 − 2h_i) + tr(A S A S)], S = Σ d_i² x_i x_iᵀ, in O(n p²).
+ * At most n − p. EINVAL (sizes, NULL), EDATA (XᵀX singular, a leverage ≥ 1, c with no
+ * variance), ENOMEM. */
+int stagecal_regress_bm_dof(const double *x, size_t n, size_t p, const double *c, double *dof,
+                            stagecal_error *err);
 
 /* Why the solver stopped. */
 typedef enum {
@@ -154,6 +184,10 @@ typedef struct {
     double ci_low[STAGECAL_FORM_MAXP], ci_high[STAGECAL_FORM_MAXP];
     double cov[STAGECAL_FORM_MAXP * STAGECAL_FORM_MAXP]; /* row-major p×p */
     double tquant;                                       /* t(1 − (1 − level)/2, dof) */
+    double param_dof[STAGECAL_FORM_MAXP]; /* t dof of each parameter's interval: dof, or its
+                                             Bell–McCaffrey dof (cov_kind HC2_BM) */
+    double *design; /* n×p standardised Jacobian at θ̂ in the parameters' units (cov_kind
+                       HC2_BM; NULL otherwise), result owns */
     double level;
     int weighted;               /* 1 when the points carried sigma */
     int cov_scaled;             /* 1 when C includes s² (see params.scale_cov) */
@@ -259,7 +293,8 @@ stagecal_stop stagecal_regress_nlin_stop(const stagecal_regress_nlin *w);
  * test params.rank_tol, so it does not depend on the parameters' units), se, the t
  * quantile at params.level with dof degrees of freedom and the intervals. result->form
  * must be set (its names go into messages); fills n, p, dof, theta, rss, sigma,
- * sigma_dof, cov, se, tquant, ci_low, ci_high, level, cov_scaled. EDATA when the
+ * sigma_dof, cov, se, tquant, ci_low, ci_high, level, cov_scaled, cov_kind, param_dof
+ * and design (which must be NULL or owned by result on entry: it is replaced). EDATA when the
  * residuals are undefined at theta or a parameter is not identifiable; ENOMEM;
  * EINTERNAL. */
 int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta, int scale,
@@ -295,7 +330,7 @@ void stagecal_regress_envelope(const double *r, const double *f_load, size_t n,
 int stagecal_regress_fit(const stagecal_regress_data *data, const stagecal_form *form,
                          const stagecal_regress_params *params, stagecal_regress_result *result,
                          stagecal_error *err);
-/* Frees what the result owns (weights, band) and zeroes those fields; NULL-safe. */
+/* Frees what the result owns (weights, band, design) and zeroes those fields; NULL-safe. */
 void stagecal_regress_result_free(stagecal_regress_result *result);
 
 /* One row of a model-selection table. */

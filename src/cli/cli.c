@@ -423,6 +423,10 @@ void cli_print_params(const stagecal_regress_result *f, int long_form)
         else if (!isfinite(f->ci_low[i]) && isfinite(f->ci_high[i]))
             printf("  %-*s %*s %.*g (one-sided %.0f%%; no lower end)\n", nw, f->form.param_names[i],
                    vw, "at most", ip, f->ci_high[i], 100 * f->level);
+        else if (f->design) /* t at this parameter's own (Bell–McCaffrey) dof */
+            printf("  %-*s %*.*g %*.*g   [%.*g, %.*g]  t, %.1f dof\n", nw, f->form.param_names[i],
+                   vw, vp, f->theta[i], sw, sp, f->se[i], ip, f->ci_low[i], ip, f->ci_high[i],
+                   f->param_dof[i]);
         else
             printf("  %-*s %*.*g %*.*g   [%.*g, %.*g]\n", nw, f->form.param_names[i], vw, vp,
                    f->theta[i], sw, sp, f->se[i], ip, f->ci_low[i], ip, f->ci_high[i]);

@@ -29,7 +29,7 @@ static const struct cli_usage usage = {
 
 static const char *const method_names[] = {"auto", "stage", "composition", "censored", NULL};
 static const char *const holdup_choices[] = {"auto", "none", "lag", "stages", NULL};
-static const char *const cov_choices[] = {"hc3", "model", NULL};
+static const char *const cov_choices[] = {"hc2-bm", "hc3", "model", NULL};
 static const char *const holdup_names[] = {"none", "lag", "stages"};
 
 /* The holdup compensation the evidence applied, for --json. */
@@ -110,6 +110,8 @@ static json_t *params_json(const stagecal_regress_result *f)
                               und || one ? json_null() : cli_json_real(f->se[i]), "ci_low",
                               und ? json_null() : cli_json_real(f->ci_low[i]), "ci_high",
                               und ? json_null() : cli_json_real(f->ci_high[i]), "determined", !und);
+        if (!und && !one) /* the t dof of this parameter's interval */
+            json_object_set_new(o, "dof", cli_json_real(f->param_dof[i]));
         if (one)
             json_object_set_new(o, "one_sided",
                                 json_string(isfinite(f->ci_low[i]) ? "lower" : "upper"));
@@ -655,10 +657,12 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
                    "from its start-up) (docs/methods.md, \"Column holdup\")",
                    holdup_choices, "a holdup mode"),
         OPT_CHOICE("covariance", &cov, "KIND",
-                   "covariance of the fitted parameters: hc3 (default: the\n"
-                   "sandwich from each window's own residual, right when the\n"
-                   "windows' stated errors are off between reflux ratios) or\n"
-                   "model (s^2 times the inverse information)",
+                   "covariance of the fitted parameters: hc2-bm (default: the\n"
+                   "HC2 sandwich from each window's own residual, right when\n"
+                   "the windows' stated errors are off between reflux ratios,\n"
+                   "with Student t at each band's Bell-McCaffrey degrees of\n"
+                   "freedom), hc3 (the HC3 sandwich, t at n - p) or model\n"
+                   "(s^2 times the inverse information)",
                    cov_choices, "a covariance"),
         OPT_BOOTSTRAP(&boot),
         OPT_SEED(&seed),
@@ -698,7 +702,9 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
     par.read.infer = !no_infer;
     par.seed = (unsigned long)seed;
     par.robust = cli_robust_kind(robust);
-    par.cov_kind = cov == 1 ? STAGECAL_COV_MODEL : STAGECAL_COV_HC3;
+    par.cov_kind = cov == 2   ? STAGECAL_COV_MODEL
+                   : cov == 1 ? STAGECAL_COV_HC3
+                              : STAGECAL_COV_HC2_BM;
     par.evidence.holdup = holdup == 0 ? STAGECAL_EVIDENCE_HOLDUP_AUTO : holdup - 1;
     par.method = method == 1   ? STAGECAL_CAL_STAGE
                  : method == 2 ? STAGECAL_CAL_COMPOSITION

@@ -125,7 +125,7 @@ static int add_fit(struct column *col, const stagecal_model *m, const char *path
         cli_warn("%s: the reference condition lies outside the fitted envelope (extrapolation)",
                  path);
     snprintf(x->fitted_utc, sizeof x->fitted_utc, "%s", m->fitted_utc);
-    x->dof = m->dof;
+    x->dof = x->pt.dof_fit; /* the model's, or the reference condition's Bell-McCaffrey dof */
     if (m->has_hetp &&
         stagecal_hetp_stages_from_model(m, ref->reflux, ref->fload, &s, NULL, &err) ==
             STAGECAL_OK &&

@@ -24,22 +24,26 @@ check "calibrate: evidence counts windows and samples" \
 check "calibrate: both fits reported, composition space carried" \
       "d['method'] == 'composition-space' and d['stage_space']['status'] == 'ok'"
 check "calibrate: model file path under fits/<column>/" "'/fits/demo-bt-K-7/' in d['model_file']"
-check "calibrate: both fits' standard errors from the HC3 sandwich by default" \
-      "d['stage_space']['covariance'] == 'hc3' and d['composition_space']['covariance'] == 'hc3'"
-cp "$tmp/j" "$tmp/j_hc3"
+check "calibrate: both fits' standard errors from HC2 with Bell-McCaffrey dof by default" \
+      "d['stage_space']['covariance'] == 'hc2-bm' and d['composition_space']['covariance'] == 'hc2-bm'"
+# each parameter's interval at its own dof, at most n - p (Imbens & Kolesar 2016: K <= rank)
+check "calibrate: each parameter carries its Bell-McCaffrey dof, 1 <= dof <= n - p" \
+      "all(1 <= p['dof'] <= d['composition_space']['dof'] for p in d['parameters'])"
+cp "$tmp/j" "$tmp/j_default"
 "$BIN" calibrate --column "$COL" --fits "$tmp/fits" --form saturating --json --quiet --dry-run \
     --covariance model $LOGS >"$tmp/j"
 # the covariance changes the standard errors, never the estimates
 check "calibrate --covariance model: the model's, same estimates, other standard errors" \
-      "d['composition_space']['covariance'] == 'model' and [p['value'] for p in d['parameters']] == [p['value'] for p in json.load(open('$tmp/j_hc3'))['parameters']] and [p['se'] for p in d['parameters']] != [p['se'] for p in json.load(open('$tmp/j_hc3'))['parameters']]"
-cp "$tmp/j_hc3" "$tmp/j"
+      "d['composition_space']['covariance'] == 'model' and [p['value'] for p in d['parameters']] == [p['value'] for p in json.load(open('$tmp/j_default'))['parameters']] and [p['se'] for p in d['parameters']] != [p['se'] for p in json.load(open('$tmp/j_default'))['parameters']]"
+cp "$tmp/j_default" "$tmp/j"
 # Demo truth (datasets/demo/README.md): a(t) = 9.5·(1 − 0.012·months), g(F) ≤ 1, so the
 # saturation level of the first quarter lies between 8 and 9.5 stages.
 check "calibrate: saturation level plausible for the demo truth" "8.0 < d['parameters'][0]['value'] < 9.6"
 MODEL=$("$PY" -c "import json; print(json.load(open('$tmp/j'))['model_file'])")
 cp "$MODEL" "$tmp/model1.json"
 cp "$MODEL" "$tmp/j"
-check "model file: format and version" "d['format'] == 'stagecal-model' and d['version'] == 1"
+check "model file: format and version (3: it carries the fit's design)" \
+      "d['format'] == 'stagecal-model' and d['version'] == 3 and len(d['correlation']['design']) == d['evidence']['windows'] and all(len(r) == 2 for r in d['correlation']['design'])"
 # a form with the vapour load: predict from it without --f-factor names the form
 "$BIN" calibrate --column "$COL" --fits "$tmp/f4" --form 'linear:1+1/R+F' --quiet $LOGS >/dev/null
 expect_exit 2 "stagecal predict: the model's form 'linear:1+1/R+F' uses the vapour load: give '--f-factor F'" -- "$BIN" predict --model "$(ls "$tmp"/f4/demo-bt-K-7/*.json)" --charge 25 --xb0 0.5 --boilup 3.6 --reflux 3 --cut pot-x=0.15

@@ -59,11 +59,11 @@ check_quote() { # file fragment
         echo "FAIL: README.md quotes '$2', $(basename "$1") does not say it"; fails=$((fails + 1))
     fi
 }
-check_quote "$tmp/quick.out" "the largest difference, in 1, is 0.13 combined standard errors"
+check_quote "$tmp/quick.out" "the largest difference, in 1, is 0.16 combined standard errors"
 for q in "INVENTED DEMO DATA" "The answer: stages at R = 5, F = 1.54 Pa^0.5" \
-    "9.24 (95 % confidence interval 9.00 – 9.47)" "7.96 – 10.51 (95 % prediction interval)" \
-    "0.546 m (95 % interval 0.531 – 0.563 m), packed height 4.5 m" \
-    "Precision: the stage count at this condition is known to ±0.24 stages" \
+    "9.24 (95 % confidence interval 9.02 – 9.46)" "7.97 – 10.50 (95 % prediction interval)" \
+    "0.546 m (95 % interval 0.532 – 0.561 m), packed height 4.5 m" \
+    "Precision: the stage count at this condition is known to ±0.22 stages" \
     "2025-01-06 15:43 to 2025-03-27 10:25 UTC" "Prepared by" "Approved by"; do
     check_quote "$tmp/demo-report.html" "$q"
 done
