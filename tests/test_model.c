@@ -29,10 +29,12 @@
 #include <unistd.h>
 #include <cmocka.h>
 
+#include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 #include <jansson.h>
 
 #include "stagecal/model.h"
+#include "stagecal/regress.h"
 #include "internal_sha256.h"
 #include "testutil.h"
 
@@ -244,6 +246,9 @@ static void assert_models_equal(const stagecal_model *a, const stagecal_model *b
     bits_equal(a->hetp_low_m, b->hetp_low_m, "hetp_low_m");
     bits_equal(a->hetp_high_m, b->hetp_high_m, "hetp_high_m");
     bits_equal(a->hetp_level, b->hetp_level, "hetp_level");
+    assert_int_equal(a->n_design, b->n_design);
+    for (size_t i = 0; i < a->n_design * a->form.p; i++)
+        bits_equal(a->design[i], b->design[i], "design");
     assert_int_equal(a->n_warnings, b->n_warnings);
     for (size_t i = 0; i < a->n_warnings; i++)
         assert_string_equal(a->warnings[i], b->warnings[i]);
@@ -478,6 +483,10 @@ static void model_roundtrip_exact(void **state)
             m.height_m = m.f_min = m.f_max = 0;
             assert_int_equal(stagecal_model_set_command_line(&m, NULL, &err), STAGECAL_OK);
         }
+        if (k == 1) { /* a design (format version 3): rows of 1, 1/R, F, bits kept */
+            const double x[] = {1, 1 / 1.5, 1.1, 1, 0.5, 1.7, 1, 0.4, 1.2, 1, 0.2, 2.05, 1, 1 / 3.0, 1.4};
+            assert_int_equal(stagecal_model_set_design(&m, x, 5, &err), STAGECAL_OK);
+        }
         int rc = stagecal_model_write(&m, dir, path, sizeof path, &err);
         if (rc)
             print_error("%s\n", err.text);
@@ -488,6 +497,10 @@ static void model_roundtrip_exact(void **state)
             print_error("%s\n", err.text);
         assert_int_equal(rc, STAGECAL_OK);
         assert_models_equal(&m, &back);
+        size_t len;
+        char *text = slurp(path, &len);
+        assert_non_null(strstr(text, k == 1 ? "\"version\": 3" : "\"version\": 1"));
+        free(text);
         stagecal_model_free(&back);
         stagecal_model_free(&m);
     }
@@ -1044,6 +1057,61 @@ static void model_eval_matches_textbook_band(void **state)
     m.condenser = STAGECAL_CONDENSER_PARTIAL;
     assert_int_equal(stagecal_model_eval(&m, 2.0, NAN, 0.90, &pt, &err), STAGECAL_OK);
     assert_rel(pt.column_stages, pt.stages - 2, 1e-15, "column stages (partial condenser)");
+    stagecal_model_free(&m);
+}
+
+/* With a design (format version 3) every band's t is at the Bell–McCaffrey dof of its own
+ * contrast, the prediction band's at the Welch–Satterthwaite dof (docs/model-file.md,
+ * Bands). The textbook model with its design rows (1, 1/R_i), loaded from a file: at R =
+ * 2.85 the dof is the regress module's for g = (1, 1/2.85) (checked against numpy and two
+ * hand-derived designs in test_regress.c), below n − p = 8, and the band's half-widths are
+ * t·se at those dof. The constant form on n equal rows (a mean) has K = n − 1 at every R
+ * (Imbens & Kolesár 2016, §III; its eigenvalues by hand in test_regress.c). 1e-12: the
+ * same sums on both sides. */
+static void model_eval_uses_design_dof(void **state)
+{
+    (void)state;
+    stagecal_model m, back;
+    stagecal_model_point pt;
+    stagecal_error err;
+    char dir[1100], path[1200];
+    double x[2 * NPTS], g[2] = {1, 1 / 2.85}, k;
+    linear_model(&m);
+    for (size_t i = 0; i < NPTS; i++) {
+        x[2 * i] = 1;
+        x[2 * i + 1] = 1 / pts_r[i];
+    }
+    assert_int_equal(stagecal_model_set_design(&m, x, NPTS, &err), STAGECAL_OK);
+    subdir(dir, sizeof dir, "design");
+    assert_int_equal(stagecal_model_write(&m, dir, path, sizeof path, &err), STAGECAL_OK);
+    stagecal_model_init(&back);
+    assert_int_equal(stagecal_model_load(path, &back, &err), STAGECAL_OK);
+    assert_int_equal(back.n_design, NPTS);
+    assert_int_equal(stagecal_model_eval(&back, 2.85, NAN, 0.95, &pt, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_regress_bm_dof(x, NPTS, 2, g, &k, &err), STAGECAL_OK);
+    assert_rel(pt.dof_fit, k, 1e-12, "band dof = the contrast's Bell-McCaffrey dof");
+    assert_true(k > 1 && k < NPTS - 2);
+    assert_rel(pt.t, gsl_cdf_tdist_Pinv(0.975, k), 1e-12, "t at that dof");
+    assert_rel(pt.ci_high - pt.stages, pt.t * pt.se_fit, 1e-12, "confidence half-width");
+    double vf = pt.se_fit * pt.se_fit, vo = back.sigma * back.sigma;
+    double ws = (vf + vo) * (vf + vo) / (vf * vf / k + vo * vo / back.dof);
+    assert_rel(pt.dof_pred, ws, 1e-12, "prediction dof, Welch-Satterthwaite");
+    assert_rel(pt.pi_high - pt.stages, gsl_cdf_tdist_Pinv(0.975, ws) * pt.se_pred, 1e-12,
+               "prediction half-width");
+    stagecal_model_free(&back);
+    stagecal_model_free(&m);
+
+    fill_model(&m, "constant");
+    m.one_sided = 0;
+    m.method = STAGECAL_MODEL_COMPOSITION_SPACE;
+    for (size_t i = 0; i < 7; i++)
+        x[i] = 0.8; /* standardised rows of a mean: equal, any size */
+    assert_int_equal(stagecal_model_set_design(&m, x, 7, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_check(&m, &err), STAGECAL_OK);
+    for (double r = 1.5; r < 10; r += 3) {
+        assert_int_equal(stagecal_model_eval(&m, r, 1.2, 0.95, &pt, &err), STAGECAL_OK);
+        assert_rel(pt.dof_fit, 6, 1e-12, "dof of a mean of 7 = 6");
+    }
     stagecal_model_free(&m);
 }
 
@@ -1722,6 +1790,21 @@ static const char *break_rule(stagecal_model *m, int k)
     case 31:
         m->m_heavy_kg_mol = INFINITY;
         return "system: molar_mass_heavy_kg_mol = inf: expected a finite number > 0";
+    case 32: { /* a design needs more rows than parameters */
+        const double x[] = {1, 0.5, 1, 0.2};
+        assert_int_equal(stagecal_model_set_design(m, x, 2, NULL), STAGECAL_OK);
+        return "design: 2 rows for 2 parameters (expected more rows than parameters)";
+    }
+    case 33: {
+        const double x[] = {1, 0.5, 1, NAN, 1, 0.1};
+        assert_int_equal(stagecal_model_set_design(m, x, 3, NULL), STAGECAL_OK);
+        return "design[1][1] is not finite";
+    }
+    case 34: { /* the second column twice the first: no dof for any parameter */
+        const double x[] = {1, 2, 0.5, 1, 0.25, 0.5};
+        assert_int_equal(stagecal_model_set_design(m, x, 3, NULL), STAGECAL_OK);
+        return "design: Bell-McCaffrey dof: the design is rank deficient";
+    }
     default:
         return NULL;
     }
@@ -1769,6 +1852,7 @@ int main(void)
         cmocka_unit_test(model_load_refuses_inconsistent),
         cmocka_unit_test(model_eval_matches_textbook_band),
         cmocka_unit_test(model_eval_after_load_matches_design_matrix),
+        cmocka_unit_test(model_eval_uses_design_dof),
         cmocka_unit_test(model_eval_flags_extrapolation),
         cmocka_unit_test(model_eval_rejects_bad_arguments),
         cmocka_unit_test(model_add_helpers_validate),
