@@ -234,7 +234,7 @@ int stagecal_history_check(stagecal_history_estimate *e, double lo_phys, double 
     e->determined = 0;
     if (!(e->dof >= 2))
         snprintf(e->reason, sizeof e->reason,
-                 "%s not determined: %.0f degree(s) of freedom (at least 2 needed)", what, e->dof);
+                 "%s not determined: %.2g degree(s) of freedom (at least 2 needed)", what, e->dof);
     else if (!(isfinite(e->low) && isfinite(e->high) && isfinite(e->se)))
         snprintf(e->reason, sizeof e->reason, "%s not determined: the evidence does not bound it",
                  what);
