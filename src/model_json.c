@@ -341,6 +341,24 @@ static int read_one_sided(reader *rd, const json_t *c, stagecal_model *m)
     return STAGECAL_OK;
 }
 
+/* rows × p numbers of the array arr (member `what`) into out, row-major. */
+static int read_rows(reader *rd, const json_t *arr, const char *what, size_t rows, size_t p,
+                     double *out)
+{
+    for (size_t i = 0; i < rows; i++) {
+        json_t *row = json_array_get(arr, i);
+        if (!json_is_array(row) || json_array_size(row) != p)
+            return RFAIL(rd, "%s[%zu]: expected an array of %zu numbers", what, i, p);
+        for (size_t k = 0; k < p; k++) {
+            json_t *e = json_array_get(row, k);
+            if (!json_is_number(e))
+                return RFAIL(rd, "%s[%zu][%zu]: expected a number", what, i, k);
+            out[i * p + k] = json_number_value(e);
+        }
+    }
+    return STAGECAL_OK;
+}
+
 /* correlation.design (format version 3; absent: none): rows of form.p numbers. */
 static int read_design(reader *rd, const json_t *c, stagecal_model *m)
 {
@@ -358,18 +376,7 @@ static int read_design(reader *rd, const json_t *c, stagecal_model *m)
     if (!m->design)
         return error_set(rd->jr.err, STAGECAL_ENOMEM, "out of memory for %zu design rows", n);
     m->n_design = n;
-    for (size_t i = 0; i < n; i++) {
-        json_t *row = json_array_get(d, i);
-        if (!json_is_array(row) || json_array_size(row) != p)
-            return RFAIL(rd, "correlation.design[%zu]: expected an array of %zu numbers", i, p);
-        for (size_t k = 0; k < p; k++) {
-            json_t *e = json_array_get(row, k);
-            if (!json_is_number(e))
-                return RFAIL(rd, "correlation.design[%zu][%zu]: expected a number", i, k);
-            m->design[i * p + k] = json_number_value(e);
-        }
-    }
-    return STAGECAL_OK;
+    return read_rows(rd, d, "correlation.design", n, p, m->design);
 }
 
 static int read_correlation(reader *rd, const json_t *doc, stagecal_model *m)
@@ -406,17 +413,7 @@ static int read_correlation(reader *rd, const json_t *doc, stagecal_model *m)
     if (json_array_size(cov) != p)
         return RFAIL(rd, "correlation.covariance: expected %zu rows (p x p), found %zu", p,
                      json_array_size(cov));
-    for (size_t i = 0; i < p; i++) {
-        json_t *row = json_array_get(cov, i);
-        if (!json_is_array(row) || json_array_size(row) != p)
-            return RFAIL(rd, "correlation.covariance[%zu]: expected an array of %zu numbers", i, p);
-        for (size_t j = 0; j < p; j++) {
-            json_t *e = json_array_get(row, j);
-            if (!json_is_number(e))
-                return RFAIL(rd, "correlation.covariance[%zu][%zu]: expected a number", i, j);
-            m->cov[i * p + j] = json_number_value(e);
-        }
-    }
+    TRY(read_rows(rd, cov, "correlation.covariance", p, p, m->cov));
     TRY(jr_number(J, c, "sigma_stages", "correlation.sigma_stages", 1, 0, &m->sigma, NULL));
     TRY(jr_number(J, c, "dof", "correlation.dof", 1, 0, &m->dof, NULL));
     TRY(jr_number(J, c, "confidence_level", "correlation.confidence_level", 1, 0, &m->level, NULL));

@@ -1624,6 +1624,16 @@ static void model_load_refuses_each_member(void **state)
         {"correlation.covariance", "[[1, 0]]",
          "correlation.covariance: expected 2 rows (p x p), found 1"},
         {"correlation.covariance.0.1", "\"x\"", "correlation.covariance[0][1]: expected a number"},
+        /* the design (version 3): rows of p numbers, more rows than p, a usable design */
+        {"correlation.design", "{}", "member 'correlation.design': expected an array"},
+        {"correlation.design", "[[1, 0.5], [1, 0.2]]",
+         "correlation.design: 2 rows for 2 parameters (expected more rows)"},
+        {"correlation.design", "[[1, 0.5], [1, 0.2], [1]]",
+         "correlation.design[2]: expected an array of 2 numbers"},
+        {"correlation.design", "[[1, 0.5], [1, \"x\"], [1, 0.1]]",
+         "correlation.design[1][1]: expected a number"},
+        {"correlation.design", "[[1, 2], [2, 4], [0.5, 1]]",
+         "design: Bell-McCaffrey dof: the design is rank deficient"},
         {"correlation.method", "\"moment-space\"",
          "correlation.method 'moment-space': expected 'stage-space', 'composition-space' or "
          "'censored-likelihood'"},
