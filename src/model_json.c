@@ -118,9 +118,10 @@ static json_t *build_doc(const stagecal_model *m)
     /* version 2 or 3 only where it is needed, so that older readers refuse what they would
      * misread (a censored-likelihood fit, a one-sided bound; a design whose per-band dof
      * they would ignore) and read everything else */
-    bad |= json_object_set_new(
-        doc, "version",
-        json_integer(m->n_design > 0 ? 3 : m->method == STAGECAL_MODEL_CENSORED ? 2 : 1));
+    bad |= json_object_set_new(doc, "version",
+                               json_integer(m->n_design > 0                        ? 3
+                                            : m->method == STAGECAL_MODEL_CENSORED ? 2
+                                                                                   : 1));
     bad |= json_object_set_new(doc, "column", json_string(m->column_id));
     json_t *sys =
         json_pack("{s:s, s:s, s:o}", "light", m->light, "heavy", m->heavy, "equilibrium", vle);

@@ -77,9 +77,10 @@ const char *stagecal_regress_stop_text(stagecal_stop stop)
 
 const char *stagecal_regress_cov_name(stagecal_cov_kind kind)
 {
-    static const char *const names[] = {
-        [STAGECAL_COV_MODEL] = "model", [STAGECAL_COV_HC3] = "hc3", [STAGECAL_COV_HC2] = "hc2",
-        [STAGECAL_COV_HC2_BM] = "hc2-bm"};
+    static const char *const names[] = {[STAGECAL_COV_MODEL] = "model",
+                                        [STAGECAL_COV_HC3] = "hc3",
+                                        [STAGECAL_COV_HC2] = "hc2",
+                                        [STAGECAL_COV_HC2_BM] = "hc2-bm"};
     return NAME_OF(names, kind);
 }
 

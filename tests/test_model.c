@@ -484,7 +484,8 @@ static void model_roundtrip_exact(void **state)
             assert_int_equal(stagecal_model_set_command_line(&m, NULL, &err), STAGECAL_OK);
         }
         if (k == 1) { /* a design (format version 3): rows of 1, 1/R, F, bits kept */
-            const double x[] = {1, 1 / 1.5, 1.1, 1, 0.5, 1.7, 1, 0.4, 1.2, 1, 0.2, 2.05, 1, 1 / 3.0, 1.4};
+            const double x[] = {1,   1 / 1.5, 1.1, 1,    0.5, 1.7,     1,  0.4,
+                                1.2, 1,       0.2, 2.05, 1,   1 / 3.0, 1.4};
             assert_int_equal(stagecal_model_set_design(&m, x, 5, &err), STAGECAL_OK);
         }
         int rc = stagecal_model_write(&m, dir, path, sizeof path, &err);

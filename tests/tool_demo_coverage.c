@@ -138,7 +138,8 @@ int main(int argc, char **argv)
             logs[i] = p[i];
         }
         stagecal_calibrate_params par = stagecal_calibrate_default_params();
-        const char *cov = getenv("STUDY_COV"); /* model | hc2 | hc3 | hc2-bm (default: calibrate's) */
+        const char *cov =
+            getenv("STUDY_COV"); /* model | hc2 | hc3 | hc2-bm (default: calibrate's) */
         if (cov && strcmp(cov, "model") == 0)
             par.cov_kind = STAGECAL_COV_MODEL;
         else if (cov && strcmp(cov, "hc2") == 0)

@@ -36,7 +36,7 @@ extern "C" {
 #define STAGECAL_MODEL_VERSION                                                                     \
     3                          /* the newest "version" this library reads and                      \
                                   writes: 3 for a fit that carries its design                      \
-                                  (Bell–McCaffrey dof per band), 2 for a                           \
+                                  (Bell–McCaffrey dof per band), 2 for a                         \
                                   censored-likelihood fit (a method and a one-sided                \
                                   bound older readers must refuse), 1 otherwise */
 #define STAGECAL_MODEL_TEXT 64 /* size of short text fields */

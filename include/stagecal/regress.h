@@ -66,7 +66,7 @@ typedef enum {
                          e_i the residuals, h_i the leverages (MacKinnon & White 1985);
                          valid when the stated sigma_i are right only in proportion
                          within parts of the data, or the form is misspecified */
-    STAGECAL_COV_HC2, /* the same with e_i²/(1 − h_i): unbiased when the errors are equal */
+    STAGECAL_COV_HC2,   /* the same with e_i²/(1 − h_i): unbiased when the errors are equal */
     STAGECAL_COV_HC2_BM /* HC2 with Student t at the Bell–McCaffrey degrees of freedom of each
                            contrast (Bell & McCaffrey 2002; Imbens & Kolesár 2016): the
                            result keeps the standardised Jacobian (result.design) that the
