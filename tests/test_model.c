@@ -424,6 +424,13 @@ static void model_checksum_verifiable_in_python(void **state)
             m.cov[k] *= 1e-6; /* still a covariance */
         m.sigma = 1.25e-7;
         m.r_max = 1.5e20;
+        /* and a design (version 3): 6 rows of 4 arbitrary doubles from 5e-5 to 4e2 (full
+         * rank, largest leverage 0.98) */
+        double x[6 * 4];
+        for (size_t i = 0; i < 6 * 4; i++)
+            x[i] = (fmod(0.6180339887498949 * (double)((i + 1) * (i + 1)), 1.0) - 0.5) *
+                   pow(10.0, 2.0 * (double)(i % 4) - 3.0);
+        assert_int_equal(stagecal_model_set_design(&m, x, 6, &err), STAGECAL_OK);
         int rc = stagecal_model_write(&m, dir, path, sizeof path, &err);
         if (rc != STAGECAL_OK)
             print_error("write: %s\n", err.text);
