@@ -152,8 +152,8 @@ int stagecal_regress_band_design(const stagecal_form *form, const double *theta,
  * h_i = x_iᵀAx_i, a_i = x_iᵀAc, d_i = a_i/√(1 − h_i) and M = I − XAXᵀ,
  * K = (Σ λ)²/Σ λ² over the eigenvalues λ of D M D (D = diag d), i.e. tr(DMD)²/‖DMD‖²_F,
  * computed as (cᵀAc)² / [Σ d_i⁴(1 − 2h_i) + tr(A S A S)], S = Σ d_i² x_i x_iᵀ, in O(n p²).
- * At most n − p. EINVAL (sizes, NULL), EDATA (XᵀX singular, a leverage ≥ 1, c with no
- * variance), ENOMEM. */
+ * Between 1 and n − p. EINVAL (sizes, NULL), EDATA (XᵀX singular, a leverage ≥ 1, c with
+ * no variance). Allocates nothing. */
 int stagecal_regress_bm_dof(const double *x, size_t n, size_t p, const double *c, double *dof,
                             stagecal_error *err);
 
