@@ -30,22 +30,7 @@
 #include "oracle_smoker.h"
 #include "stagecal/calibrate.h"
 #include "stagecal/stages.h"
-
-/* The covariance of the studies' fits: calibrate's default, or STUDY_COV=model|hc2|hc3|hc2-bm (a
- * knob of the coverage studies, never set by the unit tests). */
-static inline stagecal_cov_kind synth_cov_kind(void)
-{
-    const char *s = getenv("STUDY_COV");
-    if (s && strcmp(s, "model") == 0)
-        return STAGECAL_COV_MODEL;
-    if (s && strcmp(s, "hc2") == 0)
-        return STAGECAL_COV_HC2;
-    if (s && strcmp(s, "hc3") == 0)
-        return STAGECAL_COV_HC3;
-    if (s && strcmp(s, "hc2-bm") == 0)
-        return STAGECAL_COV_HC2_BM;
-    return stagecal_calibrate_default_params().cov_kind;
-}
+#include "study_cov.h"
 
 #define SYNTH_ALPHA 2.0
 #define SYNTH_A 10.0

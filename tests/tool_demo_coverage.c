@@ -45,6 +45,7 @@ int demodata_main(int argc, char **argv);
 #include "stagecal/calibrate.h"
 #include "stagecal/form.h"
 #include "stagecal/regress.h"
+#include "study_cov.h"
 
 #define NCOND 4
 static const double conds[NCOND][2] = {{1.5, 1.3}, {2.5, 1.5}, {5.0, 1.54}, {INFINITY, 1.3}};
@@ -138,16 +139,7 @@ int main(int argc, char **argv)
             logs[i] = p[i];
         }
         stagecal_calibrate_params par = stagecal_calibrate_default_params();
-        const char *cov =
-            getenv("STUDY_COV"); /* model | hc2 | hc3 | hc2-bm (default: calibrate's) */
-        if (cov && strcmp(cov, "model") == 0)
-            par.cov_kind = STAGECAL_COV_MODEL;
-        else if (cov && strcmp(cov, "hc2") == 0)
-            par.cov_kind = STAGECAL_COV_HC2;
-        else if (cov && strcmp(cov, "hc3") == 0)
-            par.cov_kind = STAGECAL_COV_HC3;
-        else if (cov && strcmp(cov, "hc2-bm") == 0)
-            par.cov_kind = STAGECAL_COV_HC2_BM;
+        par.cov_kind = synth_cov_kind(); /* STUDY_COV (default: calibrate's) */
         par.form = "saturating-load";
         par.evidence.noise = noise;
         if (getenv("DEMOCOV_HOLDUP")) /* diagnostics: -1 auto, 0 none, 1 lag */

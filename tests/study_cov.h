@@ -1,0 +1,28 @@
+/*
+ * study_cov.h — the covariance of the coverage studies' fits (tests/tool_*coverage.c): a
+ * knob of the studies, never set by the unit tests.
+ */
+#ifndef STAGECAL_STUDY_COV_H
+#define STAGECAL_STUDY_COV_H
+
+#include <stdlib.h>
+#include <string.h>
+
+#include "stagecal/calibrate.h"
+
+/* calibrate's default, or STUDY_COV=model|hc2|hc3|hc2-bm. */
+static inline stagecal_cov_kind synth_cov_kind(void)
+{
+    const char *s = getenv("STUDY_COV");
+    if (s && strcmp(s, "model") == 0)
+        return STAGECAL_COV_MODEL;
+    if (s && strcmp(s, "hc2") == 0)
+        return STAGECAL_COV_HC2;
+    if (s && strcmp(s, "hc3") == 0)
+        return STAGECAL_COV_HC3;
+    if (s && strcmp(s, "hc2-bm") == 0)
+        return STAGECAL_COV_HC2_BM;
+    return stagecal_calibrate_default_params().cov_kind;
+}
+
+#endif
