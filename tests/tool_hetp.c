@@ -11,7 +11,9 @@
  * "saturating" is fitted (regress.h, unweighted, covariance scaled by the residual
  * variance) and evaluated at R = 3 (column stages = stages − 1, se of the mean, the
  * fit's dof). The true HETP at R = 3 is set per case; for the pair test the old bed is
- * at the design HETP and the new bed at the case's value.
+ * at the design HETP and the new bed at the case's value. The fits' covariance is the
+ * model's unless STUDY_COV names another (study_cov.h; hc2-bm: the stage count's own
+ * Bell–McCaffrey dof, as calibrate's model files give hetp).
  *
  * usage: tool_hetp [REPS [SEED]]   (defaults 4000, 1)
  */
@@ -24,6 +26,7 @@
 
 #include "stagecal/hetp.h"
 #include "stagecal/regress.h"
+#include "study_cov.h"
 
 #define H 4.5
 #define DESIGN 0.6
@@ -44,18 +47,21 @@ static int sim_fit(gsl_rng *rng, double hetp_true, int nw, stagecal_hetp_stages 
     stagecal_form_parse("saturating", &form, NULL);
     stagecal_regress_params rp = stagecal_regress_default_params();
     rp.band_points = 0;
+    if (getenv("STUDY_COV"))
+        rp.cov_kind = synth_cov_kind();
     stagecal_regress_result res;
     if (stagecal_regress_fit(&d, &form, &rp, &res, NULL) != 0) {
         stagecal_regress_result_free(&res);
         return -1;
     }
     stagecal_band b;
-    int rc = stagecal_regress_band(&form, res.theta, res.cov, res.sigma_obs, res.dof, 0.95, 3.0,
-                                   NAN, &b, NULL);
+    int rc =
+        stagecal_regress_band_design(&form, res.theta, res.cov, res.sigma_obs, 1.0, res.dof,
+                                     res.design, res.design ? res.n : 0, 0.95, 3.0, NAN, &b, NULL);
     s->column_stages = b.value - 1;
     s->lower_only = 0; /* a two-sided fit (the field was left unset: garbage read as "at least") */
     s->se = b.se_fit;
-    s->dof = res.dof;
+    s->dof = b.dof_fit; /* res.dof, or the count's Bell-McCaffrey dof */
     stagecal_regress_result_free(&res);
     return rc == 0 && s->column_stages > 0 ? 0 : -1;
 }
