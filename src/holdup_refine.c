@@ -209,12 +209,23 @@ int holdup_refine_stretch(const stagecal_runlog *log, size_t s, size_t e, const 
                    xs[trail - 1], xbs[trail - 1], cnt[trail - 1], tol))
         trail--;
     /* rows [lead, trail) are pseudo-steady (none when lead == rows) */
-    for (size_t r = 0; r < rows; r++)
+    for (size_t r = 0; r < rows; r++) {
         if ((r < lead || r >= trail) && isfinite(xd_ss[s + r])) {
             xd_ss[s + r] = NAN;
             if (u2)
                 u2[s + r] = 0;
+            continue;
         }
+        /* a kept row takes the second order's increment over the first, both on the smoothed
+         * compositions (so the increment carries no reading noise of its own): the first order's
+         * sensitivities miss how fast the liquids really move by a few per cent of its shift
+         * (the liquids' own derivatives in the balances do not), which read the counts high */
+        double x2;
+        if (isfinite(xd_ss[s + r]) && np[r] && isfinite(first[r]) &&
+            holdup_steady_xd_of_count(vle, xs[r], xbs[r], reflux, cnt[r], &x2, NULL) ==
+                STAGECAL_OK)
+            xd_ss[s + r] += x2 - first[r];
+    }
 out:
     free(prof), free(next), free(w), free(xx), free(dxd), free(xs), free(xbs), free(first),
         free(cnt), free(np), free(npn);
