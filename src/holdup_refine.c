@@ -222,14 +222,11 @@ int holdup_refine_stretch(const stagecal_runlog *log, size_t s, size_t e, const 
          * (the liquids' own derivatives in the balances do not), which read the counts high */
         double x2;
         if (isfinite(xd_ss[s + r]) && np[r] && isfinite(first[r]) &&
-            holdup_steady_xd_of_count(vle, xs[r], xbs[r], reflux, cnt[r], &x2, NULL) ==
-                STAGECAL_OK) {
-            double sh = xd_ss[s + r] - log->xd[s + r], sh2 = sh + x2 - first[r];
+            holdup_steady_xd_of_count(vle, xs[r], xbs[r], reflux, cnt[r], &x2, NULL) == STAGECAL_OK)
             xd_ss[s + r] += x2 - first[r];
-            /* the variance stays Δ²·(u_rel² + (se(dxD/dt)/dxD/dt)²) of the shift Δ it now has */
-            if (u2 && sh != 0)
-                u2[s + r] *= (sh2 / sh) * (sh2 / sh);
-        }
+        /* its variance stays the first order's: rescaled by the row's own (noisy) increment, the
+         * weights followed the errors (a row whose increment's noise enlarged the shift, and so
+         * lowered its count, lost weight) and the 1/R coefficient rose by 0.03 (docs/methods.md) */
     }
 out:
     free(prof), free(next), free(w), free(xx), free(dxd), free(xs), free(xbs), free(first),

@@ -521,9 +521,11 @@ static void holdup_startup_rows_settle(void **state)
     stagecal_runlog_free(rl);
 }
 
-/* The STAGES correction's variance is Δ²·(u_rel² + (se(dxD/dt)/dxD/dt)²), Δ = xd_ss − xD:
- * the difference between two u_rel is Δ²·(u1² − u0²) to rounding (1e-9 relative), and the
- * slope term is ≥ 0. Noisy simulator log (u(xD) = 0.002), 7 stages, 4 % holdup, R = 2. */
+/* The STAGES correction's variance is Δ²·(u_rel² + (se(dxD/dt)/dxD/dt)²), Δ the first-order
+ * shift xd_ss − xD (the pseudo-steady test off, quasi_tol_u 0): the difference between two u_rel
+ * is Δ²·(u1² − u0²) to rounding (1e-9 relative), and the slope term is ≥ 0. With the test on, a
+ * kept row (its xd_ss moved by the second order's increment) keeps that same variance exactly.
+ * Noisy simulator log (u(xD) = 0.002), 7 stages, 4 % holdup, R = 2. */
 static void holdup_stages_variance(void **state)
 {
     (void)state;
@@ -534,12 +536,15 @@ static void holdup_stages_variance(void **state)
     stagecal_holdup_tau none = {0};
     stagecal_holdup_model hm = {
         STAGECAL_HOLDUP_COMP_STAGES, NULL, none, v, 1000, 0, NULL, 0.002, 0.1, NULL, NULL};
-    double *x0 = malloc(4 * rl->n * sizeof *x0), *u0 = x0 + rl->n, *x1 = u0 + rl->n,
-           *u1 = x1 + rl->n;
-    assert_int_equal(stagecal_holdup_compensate(rl, &hm, NULL, x0, u0, NULL), 0);
+    double *x0 = malloc(6 * rl->n * sizeof *x0), *u0 = x0 + rl->n, *x1 = u0 + rl->n,
+           *u1 = x1 + rl->n, *xq = u1 + rl->n, *uq = xq + rl->n;
+    stagecal_holdup_params hp = stagecal_holdup_default_params();
+    hp.quasi_tol_u = 0;
+    assert_int_equal(stagecal_holdup_compensate(rl, &hm, &hp, x0, u0, NULL), 0);
+    assert_int_equal(stagecal_holdup_compensate(rl, &hm, NULL, xq, uq, NULL), 0);
     hm.u_rel = 0.2;
-    assert_int_equal(stagecal_holdup_compensate(rl, &hm, NULL, x1, u1, NULL), 0);
-    size_t checked = 0;
+    assert_int_equal(stagecal_holdup_compensate(rl, &hm, &hp, x1, u1, NULL), 0);
+    size_t checked = 0, kept = 0;
     for (size_t i = 0; i < rl->n; i++) {
         double d = x0[i] - rl->xd[i];
         if (!isfinite(x0[i]) || d == 0)
@@ -548,8 +553,12 @@ static void holdup_stages_variance(void **state)
         assert_true(u0[i] >= d * d * 0.01 * (1 - 1e-9));
         assert_rel(u1[i] - u0[i], d * d * (0.04 - 0.01), 1e-9, "variance linear in u_rel^2");
         checked++;
+        if (isfinite(xq[i]) && xq[i] != x0[i]) {
+            assert_rel(uq[i], u0[i], 0, "a kept row keeps the first order's variance");
+            kept++;
+        }
     }
-    assert_true(checked > 50);
+    assert_true(checked > 50 && kept > 20);
     free(x0);
     stagecal_vle_free(v);
     stagecal_runlog_free(rl);
