@@ -128,9 +128,9 @@ int regress_band_grid(const stagecal_regress_params *prm, stagecal_regress_resul
                                                            (double)(nr - 1)
                                         : res->r_min)
                               : INFINITY;
-            int rc = stagecal_regress_band_design(
-                &res->form, res->theta, res->cov, res->sigma_obs, 1.0, dof_sigma, res->design,
-                res->design ? res->n : 0, res->level, r, fs[j], &res->band[res->nband], err);
+            int rc = stagecal_regress_band_design(&res->form, res->theta, res->cov, res->sigma_obs,
+                                                  1.0, dof_sigma, res->design, res->n, res->level,
+                                                  r, fs[j], &res->band[res->nband], err);
             if (rc != STAGECAL_OK)
                 return rc;
             res->nband++;

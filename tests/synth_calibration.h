@@ -98,8 +98,8 @@ static inline int synth_fill(const stagecal_form *form, const stagecal_regress_r
     for (int q = 0; q < 3; q++) {
         stagecal_band bd;
         if (stagecal_regress_band_design(form, res->theta, res->cov, cov_sigma, 1.0, res->dof,
-                                         res->design, res->design ? res->n : 0, 0.95,
-                                         synth_band_r[q], 0, &bd, NULL) != STAGECAL_OK)
+                                         res->design, res->n, 0.95, synth_band_r[q], 0, &bd,
+                                         NULL) != STAGECAL_OK)
             return -1;
         f->est[2 + q] = bd.value;
         f->se[2 + q] = bd.se_fit;

@@ -55,9 +55,8 @@ static int sim_fit(gsl_rng *rng, double hetp_true, int nw, stagecal_hetp_stages 
         return -1;
     }
     stagecal_band b;
-    int rc =
-        stagecal_regress_band_design(&form, res.theta, res.cov, res.sigma_obs, 1.0, res.dof,
-                                     res.design, res.design ? res.n : 0, 0.95, 3.0, NAN, &b, NULL);
+    int rc = stagecal_regress_band_design(&form, res.theta, res.cov, res.sigma_obs, 1.0, res.dof,
+                                          res.design, res.n, 0.95, 3.0, NAN, &b, NULL);
     s->column_stages = b.value - 1;
     s->lower_only = 0; /* a two-sided fit (the field was left unset: garbage read as "at least") */
     s->se = b.se_fit;
