@@ -75,18 +75,17 @@ static inline double synth_truth(int q)
 struct synth_fit {
     int ok; /* the fit returned STAGECAL_OK */
     double est[SYNTH_NQ], se[SYNTH_NQ], lo[SYNTH_NQ], hi[SYNTH_NQ];
-    double tq;  /* t quantile of the parameter intervals */
-    double dof; /* n − p */
-    double s2;  /* residual variance factor s² = RSS/(n − p) */
+    double tq;   /* t quantile of the parameter intervals (mean over a and b) */
+    double pdof; /* dof of the parameter intervals (mean over a and b) */
+    double dof;  /* n − p */
+    double s2;   /* residual variance factor s² = RSS/(n − p) */
 };
 
-/* Fill f from a fit's θ, covariance and t quantile. cov_sigma is the σ argument of the
- * band (not used by the confidence band itself). Returns 0, or −1 when the band fails. */
-static inline int synth_fill(const stagecal_form *form, const stagecal_regress_result *res,
-                             double cov_sigma, struct synth_fit *f)
+/* The parameters' estimates and intervals, the t quantile the intervals use (half-width over
+ * se: each parameter's own dof under hc2-bm, n − p otherwise) and its dof. */
+static inline void synth_fill_params(const stagecal_regress_result *res, struct synth_fit *f)
 {
-    f->ok = 1;
-    f->tq = res->tquant;
+    f->tq = f->pdof = 0;
     f->dof = res->dof;
     f->s2 = res->rss / res->dof;
     for (int i = 0; i < 2; i++) {
@@ -94,7 +93,18 @@ static inline int synth_fill(const stagecal_form *form, const stagecal_regress_r
         f->se[i] = res->se[i];
         f->lo[i] = res->ci_low[i];
         f->hi[i] = res->ci_high[i];
+        f->tq += 0.5 * (res->ci_high[i] - res->theta[i]) / res->se[i];
+        f->pdof += 0.5 * res->param_dof[i];
     }
+}
+
+/* Fill f from a fit's θ, covariance and t quantile. cov_sigma is the σ argument of the
+ * band (not used by the confidence band itself). Returns 0, or −1 when the band fails. */
+static inline int synth_fill(const stagecal_form *form, const stagecal_regress_result *res,
+                             double cov_sigma, struct synth_fit *f)
+{
+    f->ok = 1;
+    synth_fill_params(res, f);
     for (int q = 0; q < 3; q++) {
         stagecal_band bd;
         if (stagecal_regress_band_design(form, res->theta, res->cov, cov_sigma, 1.0, res->dof,

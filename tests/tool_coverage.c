@@ -35,7 +35,8 @@
  *     sd the empirical sd) — what the coverage would be with an exact, known se; 0.95
  *     for unbiased normal estimates, so a shortfall there comes from bias or
  *     non-normal estimates, not from the se;
- * and per fit the mean t quantile, the mean dof and the mean residual variance factor s²
+ * and per fit the mean t quantile of the parameter intervals with their mean dof (each
+ * parameter's own under hc2-bm) beside n − p, and the mean residual variance factor s²
  * (1 when the windows' stated standard errors are right on average).
  * Exit status 0, or 1 on bad arguments or a library failure.
  */
@@ -60,7 +61,7 @@ struct tally {
     double *est[SYNTH_NQ]; /* per successful fit */
     double *se[SYNTH_NQ];
     double *tq;
-    double sum_dof, sum_s2;
+    double sum_dof, sum_pdof, sum_s2;
 };
 
 static int tally_alloc(struct tally *t, int reps)
@@ -96,6 +97,7 @@ static void tally_add(struct tally *t, const struct synth_fit *f)
     }
     t->tq[t->fits] = f->tq;
     t->sum_dof += f->dof;
+    t->sum_pdof += f->pdof;
     t->sum_s2 += f->s2;
     t->fits++;
 }
@@ -120,8 +122,9 @@ static void report(const char *name, const struct tally *t, int reps)
     }
     for (int i = 0; i < n; i++)
         tq_mean += t->tq[i] / n;
-    printf("%s: %d of %d fits, mean t quantile %.4f (mean dof %.2f), mean s^2 %.3f\n", name, n,
-           reps, tq_mean, t->sum_dof / n, t->sum_s2 / n);
+    printf("%s: %d of %d fits, mean t quantile %.4f (mean parameter dof %.2f, n - p %.2f), "
+           "mean s^2 %.3f\n",
+           name, n, reps, tq_mean, t->sum_pdof / n, t->sum_dof / n, t->sum_s2 / n);
     printf("  %-11s %9s  %-17s %7s %8s %7s %7s\n", "quantity", "coverage", "Wilson 95 %", "se/sd",
            "bias/sd", "med z", "cov(sd)");
     double *zs = malloc((size_t)n * sizeof *zs);
@@ -393,15 +396,7 @@ static int mr_one(gsl_rng *rng, const stagecal_column *col, enum mr_mode mode, s
             cal.used == STAGECAL_MODEL_STAGE_SPACE ? &cal.stage_fit : &cal.comp_fit;
         mr_comp += cal.used == STAGECAL_MODEL_COMPOSITION_SPACE;
         f->ok = 1;
-        f->tq = res->tquant;
-        f->dof = res->dof;
-        f->s2 = res->rss / res->dof;
-        for (int i = 0; i < 2; i++) {
-            f->est[i] = res->theta[i];
-            f->se[i] = res->se[i];
-            f->lo[i] = res->ci_low[i];
-            f->hi[i] = res->ci_high[i];
-        }
+        synth_fill_params(res, f);
         for (int q = 0; q < 3 && f->ok; q++) {
             stagecal_model_point pt;
             if (stagecal_model_eval(&cal.model, synth_band_r[q], 0, 0.95, &pt, NULL)) {
