@@ -192,6 +192,11 @@ static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params
     /* with HC2_BM the fit's design goes along: each band's dof is its own contrast's */
     if (fit->design && (rc = stagecal_model_set_design(mo, fit->design, fit->n, err)))
         return rc;
+    /* σ of one new window by R: the windows' scatter function (stagecal/scatter.h); the
+     * censored-likelihood fit keeps one σ */
+    if (cal->used != STAGECAL_MODEL_CENSORED &&
+        (rc = stagecal_scatter_fit(ev, nev, &fit->form, fit->theta, &mo->scatter, err)))
+        return rc;
     mo->level = par->level;
     mo->method = cal->used;
     mo->n_windows = cal->used == STAGECAL_MODEL_STAGE_SPACE ? cal->nev_stage : nev;

@@ -350,6 +350,13 @@ int model_check(const stagecal_model *m, const char *source, int code, stagecal_
         if (stagecal_regress_bm_dof(m->design, m->n_design, p, c, &dof, &e2) != STAGECAL_OK)
             FAIL("design: %s", e2.text);
     }
+    if (m->scatter.n > 0) {
+        stagecal_error e2;
+        if (stagecal_scatter_check(&m->scatter, &e2) != STAGECAL_OK)
+            FAIL("%s", e2.text);
+        if (m->one_sided)
+            FAIL("a one-sided bound has no scatter function (it has no prediction band)");
+    }
     if (m->method != STAGECAL_MODEL_STAGE_SPACE && m->method != STAGECAL_MODEL_COMPOSITION_SPACE &&
         m->method != STAGECAL_MODEL_CENSORED)
         FAIL("fit method %d is unknown", (int)m->method);
@@ -440,10 +447,26 @@ int stagecal_model_eval(const stagecal_model *m, double r, double f_load, double
         return error_set(err, STAGECAL_EINVAL,
                          "F-factor = %g Pa^0.5: the form '%s' needs a finite F >= 0", f_load,
                          m->form.name);
-    int rc = stagecal_regress_band_design(&m->form, m->theta, m->cov, m->sigma, 1.0, m->dof,
-                                          m->design, m->n_design, level, r, f_load, &band, err);
+    /* σ of one new window: the scatter function at r, with its own dof, where the file has
+     * one (with a design the dof argument is σ's alone; without one it is also the
+     * confidence band's, so the prediction band's t is redone below) */
+    double sigma = m->sigma, sdof = m->dof;
+    if (m->scatter.n > 0) {
+        sigma = stagecal_scatter_sd(&m->scatter, r);
+        double d = stagecal_scatter_dof(&m->scatter, r);
+        sdof = isfinite(d) ? fmin(d, m->dof) : m->dof;
+    }
+    int rc = stagecal_regress_band_design(&m->form, m->theta, m->cov, sigma, 1.0,
+                                          m->design ? sdof : m->dof, m->design, m->n_design, level,
+                                          r, f_load, &band, err);
     if (rc != STAGECAL_OK)
         return rc;
+    if (!m->design && m->scatter.n > 0) {
+        band.dof_pred = sdof;
+        double tp = gsl_cdf_tdist_Pinv(0.5 + 0.5 * level, sdof);
+        band.pi_low = band.value - tp * band.se_pred;
+        band.pi_high = band.value + tp * band.se_pred;
+    }
 
     memset(out, 0, sizeof *out);
     out->stages = band.value;

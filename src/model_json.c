@@ -115,11 +115,13 @@ static json_t *build_doc(const stagecal_model *m)
                   "length", "m", "covariance", "of the parameters, in their own units");
 
     bad |= json_object_set_new(doc, "format", json_string(STAGECAL_MODEL_FORMAT));
-    /* version 2 or 3 only where it is needed, so that older readers refuse what they would
+    /* version 2, 3 or 4 only where it is needed, so that older readers refuse what they would
      * misread (a censored-likelihood fit, a one-sided bound; a design whose per-band dof
-     * they would ignore) and read everything else */
+     * they would ignore; a scatter function whose per-R σ they would ignore) and read
+     * everything else */
     bad |= json_object_set_new(doc, "version",
-                               json_integer(m->n_design > 0                        ? 3
+                               json_integer(m->scatter.n > 0                       ? 4
+                                            : m->n_design > 0                      ? 3
                                             : m->method == STAGECAL_MODEL_CENSORED ? 2
                                                                                    : 1));
     bad |= json_object_set_new(doc, "column", json_string(m->column_id));
@@ -168,6 +170,25 @@ static json_t *build_doc(const stagecal_model *m)
                                    json_string("standardised Jacobian of the fit at the "
                                                "parameters, one row per residual: the "
                                                "Bell-McCaffrey dof of every band comes from it"));
+    }
+    if (m->scatter.n > 0) {
+        size_t n = m->scatter.n;
+        json_t *cs = json_array(), *cv = json_array();
+        for (size_t k = 0; cs && k < n; k++)
+            bad |= json_array_append_new(cs, json_real(m->scatter.c[k]));
+        for (size_t i = 0; cv && i < n; i++) {
+            json_t *row = json_array();
+            for (size_t k = 0; row && k < n; k++)
+                bad |= json_array_append_new(row, json_real(m->scatter.cov[i * n + k]));
+            bad |= json_array_append_new(cv, row ? row : json_null());
+        }
+        bad |= json_object_set_new(
+            json_object_get(doc, "correlation"), "scatter",
+            json_pack("{s:o, s:o, s:[f, f]}", "ln_sd_poly", cs ? cs : json_null(), "ln_sd_cov",
+                      cv ? cv : json_null(), "range", m->scatter.lv_lo, m->scatter.lv_hi));
+        bad |= json_object_set_new(units, "scatter",
+                                   json_string("sigma of one new window at R: exp of the "
+                                               "polynomial in R/(R+1), clamped to the range"));
     }
     bad |= json_object_set_new(doc, "evidence",
                                json_pack("{s:I, s:I, s:I}", "windows", (json_int_t)m->n_windows,
@@ -380,6 +401,42 @@ static int read_design(reader *rd, const json_t *c, stagecal_model *m)
     return read_rows(rd, d, "correlation.design", n, p, m->design);
 }
 
+/* correlation.scatter (format version 4; absent: one σ for every R). */
+static int read_scatter(reader *rd, const json_t *c, stagecal_model *m)
+{
+    int rc;
+    json_t *o = NULL, *cs = NULL, *range = NULL, *cv = NULL;
+    TRY(jr_object(J, c, "scatter", "correlation.scatter", 0, &o));
+    if (!o)
+        return STAGECAL_OK;
+    TRY(jr_array(J, o, "ln_sd_poly", "correlation.scatter.ln_sd_poly", 1, &cs));
+    TRY(jr_array(J, o, "range", "correlation.scatter.range", 1, &range));
+    TRY(jr_array(J, o, "ln_sd_cov", "correlation.scatter.ln_sd_cov", 1, &cv));
+    size_t n = json_array_size(cs);
+    if (n < 1 || n > STAGECAL_SCATTER_MAXC)
+        return RFAIL(rd, "correlation.scatter.ln_sd_poly: %zu coefficients (expected 1 to %d)", n,
+                     STAGECAL_SCATTER_MAXC);
+    if (json_array_size(range) != 2)
+        return RFAIL(rd, "correlation.scatter.range: %zu numbers (expected 2)",
+                     json_array_size(range));
+    double lr[2];
+    for (size_t k = 0; k < n + 2; k++) {
+        const json_t *e = k < n ? json_array_get(cs, k) : json_array_get(range, k - n);
+        if (!json_is_number(e))
+            return RFAIL(rd, "correlation.scatter.%s[%zu]: expected a number",
+                         k < n ? "ln_sd_poly" : "range", k < n ? k : k - n);
+        *(k < n ? &m->scatter.c[k] : &lr[k - n]) = json_number_value(e);
+    }
+    if (json_array_size(cv) != n)
+        return RFAIL(rd, "correlation.scatter.ln_sd_cov: %zu rows (expected %zu)",
+                     json_array_size(cv), n);
+    TRY(read_rows(rd, cv, "correlation.scatter.ln_sd_cov", n, n, m->scatter.cov));
+    m->scatter.n = n;
+    m->scatter.lv_lo = lr[0];
+    m->scatter.lv_hi = lr[1];
+    return STAGECAL_OK;
+}
+
 static int read_correlation(reader *rd, const json_t *doc, stagecal_model *m)
 {
     int rc;
@@ -431,6 +488,7 @@ static int read_correlation(reader *rd, const json_t *doc, stagecal_model *m)
                      "'composition-space' or 'censored-likelihood'",
                      method);
     TRY(read_one_sided(rd, c, m));
+    TRY(read_scatter(rd, c, m));
     return read_design(rd, c, m);
 }
 

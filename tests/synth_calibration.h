@@ -79,6 +79,11 @@ struct synth_fit {
     double pdof; /* dof of the parameter intervals (mean over a and b) */
     double dof;  /* n − p */
     double s2;   /* residual variance factor s² = RSS/(n − p) */
+    int pi_ok;   /* the prediction bands below were computed (composition-space fit) */
+    double pi_lo[3], pi_hi[3];   /* 95 % prediction band at synth_band_r, as the model file's
+                                    (σ the scatter function at R) */
+    double pi1_lo[3], pi1_hi[3]; /* the same with one σ for every R (before format 4) */
+    double pi_se[3], pi1_se[3];  /* their se_pred */
 };
 
 /* The parameters' estimates and intervals, the t quantile the intervals use (half-width over
@@ -177,6 +182,79 @@ static inline void synth_noise(gsl_rng *rng, const double *t, double *e, size_t 
     }
 }
 
+#define SYNTH_MAXS 64     /* samples per window at most */
+#define SYNTH_U_XB 0.0025 /* the pot analyser's noise */
+static inline double synth_u_xd(const struct synth_regime *rg)
+{
+    return rg->u_xd > 0 ? rg->u_xd : 0.0015;
+}
+
+/* One window's samples at reflux ratio r: times t (s), readings xd, xb (their noise in exd,
+ * exb), the distillate drawn uniformly over the regime's range and drifting along its curve,
+ * the pot at the law's stage count (Smoker's closed form). Returns the window's true xD at
+ * its start. */
+static inline double synth_window(gsl_rng *rng, const struct synth_regime *rg, double r, double *t,
+                                  double *xd, double *xb, double *exd, double *exb)
+{
+    const double xd_lo = rg->xd_hi > 0 ? rg->xd_lo : 0.90, xd_hi = rg->xd_hi > 0 ? rg->xd_hi : 0.97;
+    const size_t NS = rg->ns;
+    double xd_true = xd_lo + (xd_hi - xd_lo) * gsl_rng_uniform(rng);
+    double n_true = synth_law(SYNTH_A, SYNTH_B, r);
+    t[0] = 0;
+    for (size_t i = 1; i < NS; i++)
+        t[i] = t[i - 1] + (rg->irregular ? gsl_ran_exponential(rng, 60.0) : 60.0);
+    synth_noise(rng, t, exd, NS, synth_u_xd(rg), rg->rho);
+    synth_noise(rng, t, exb, NS, SYNTH_U_XB, rg->rho);
+    for (size_t i = 0; i < NS; i++) {
+        double s = t[i] / t[NS - 1];
+        double xdt = xd_true + rg->drift * (0.5 - s * (1 + s) / 2);
+        xd[i] = xdt + exd[i];
+        xb[i] = oracle_smoker_xb(SYNTH_ALPHA, r, xdt, n_true) + exb[i];
+    }
+    return xd_true;
+}
+
+/* The stage count one new window at r reads (prediction-interval study): fresh samples,
+ * the window means, the count from them as the calibration counts a window (NAN when it
+ * has none, or fewer than 3 of its samples invert on their own, as synth_one leaves such
+ * windows out). Returns 0, or the line of a library call that failed. */
+static inline int synth_new_window(gsl_rng *rng, const stagecal_vle *vle,
+                                   const struct synth_regime *rg, double r, double *count)
+{
+    double t[SYNTH_MAXS], xd[SYNTH_MAXS], xb[SYNTH_MAXS], exd[SYNTH_MAXS], exb[SYNTH_MAXS];
+    const size_t NS = rg->ns;
+    if (NS < 3 || NS > SYNTH_MAXS)
+        return __LINE__;
+    synth_window(rng, rg, r, t, xd, xb, exd, exb);
+    stagecal_stages_params sp = stagecal_stages_default_params();
+    size_t nok = 0; /* samples that invert on their own: a window needs 3 (as in synth_one) */
+    for (size_t i = 0; i < NS; i++) {
+        stagecal_stages_result res;
+        if (stagecal_stages_invert(vle, xd[i], xb[i], r, 1.0, &sp, &res, NULL) != STAGECAL_OK)
+            return __LINE__;
+        nok += res.status == STAGECAL_STAGES_OK;
+    }
+    stagecal_evidence e;
+    memset(&e, 0, sizeof e);
+    e.r = r;
+    e.total_reflux = isinf(r);
+    e.n_samples = e.m = NS;
+    if (stagecal_evidence_mean_rho(t, xd, NS, synth_u_xd(rg), &e.xd, &e.u_xd, &e.rho_xd, &e.m_xd,
+                                   NULL) != STAGECAL_OK ||
+        stagecal_evidence_mean_rho(t, xb, NS, SYNTH_U_XB, &e.xb, &e.u_xb, &e.rho_xb, &e.m_xb,
+                                   NULL) != STAGECAL_OK)
+        return __LINE__;
+    e.sd_xd = synth_u_xd(rg); /* the builder caps the reading noise at the stated u */
+    e.sd_xb = SYNTH_U_XB;
+    e.s_t = t;
+    e.s_xd = xd;
+    e.s_xb = xb;
+    if (stagecal_evidence_stages(vle, 1.0, &e, NULL) != STAGECAL_OK)
+        return __LINE__;
+    *count = e.stages_ok && nok >= 3 ? e.stages : NAN;
+    return 0;
+}
+
 /* Per-window diagnostics of the study tool (tests/tool_coverage.c, "diag"): for each of the
  * 12 windows, sums over data sets of the stated standard errors² of the window means and of
  * the actual errors² of those means (mean noise, the truth known), for xD, xB and their
@@ -193,9 +271,8 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
                             struct synth_fit *fs, struct synth_fit *fc)
 {
     static const double rs[] = {1.2, 1.6, 2.0, 2.5, 3.0, 4.0, 5.0, 6.5, 8.0, 10.0, 15.0, INFINITY};
-    enum { NW = sizeof rs / sizeof rs[0], MAXS = 64 };
-    const double u_xd = rg->u_xd > 0 ? rg->u_xd : 0.0015, u_xb = 0.0025;
-    const double xd_lo = rg->xd_hi > 0 ? rg->xd_lo : 0.90, xd_hi = rg->xd_hi > 0 ? rg->xd_hi : 0.97;
+    enum { NW = sizeof rs / sizeof rs[0], MAXS = SYNTH_MAXS };
+    const double u_xd = synth_u_xd(rg), u_xb = SYNTH_U_XB;
     const size_t NS = rg->ns;
     stagecal_evidence ev[NW];
     static double xds[NW][MAXS], xbs[NW][MAXS], ts[NW][MAXS];
@@ -210,20 +287,11 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
         return __LINE__;
     for (size_t w = 0; w < NW; w++) {
         double *xd = xds[w], *xb = xbs[w], *t = ts[w];
-        double xd_true = xd_lo + (xd_hi - xd_lo) * gsl_rng_uniform(rng);
+        double xd_true = synth_window(rng, rg, rs[w], t, xd, xb, exd, exb);
         double n_true = synth_law(SYNTH_A, SYNTH_B, rs[w]);
         size_t nok = 0;
-        t[0] = 0;
-        for (size_t i = 1; i < NS; i++)
-            t[i] = t[i - 1] + (rg->irregular ? gsl_ran_exponential(rng, 60.0) : 60.0);
-        synth_noise(rng, t, exd, NS, u_xd, rg->rho);
-        synth_noise(rng, t, exb, NS, u_xb, rg->rho);
         for (size_t i = 0; i < NS; i++) {
             stagecal_stages_result res;
-            double s = t[i] / t[NS - 1];
-            double xdt = xd_true + rg->drift * (0.5 - s * (1 + s) / 2);
-            xd[i] = xdt + exd[i];
-            xb[i] = oracle_smoker_xb(SYNTH_ALPHA, rs[w], xdt, n_true) + exb[i];
             if (stagecal_stages_invert(vle, xd[i], xb[i], rs[w], 1.0, &sp, &res, NULL) !=
                 STAGECAL_OK)
                 return __LINE__;
@@ -337,6 +405,35 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
     if (rc == 0 && stagecal_fit_composition(vle, 1.0, ev, NW, form, rs_fit.theta, &rp, &rc_fit,
                                             NULL) == STAGECAL_OK) {
         rc = synth_fill(form, &rc_fit, 1.0, fc) ? __LINE__ : 0;
+        /* the prediction band as calibrate's model file gives it (src/calibrate.c and
+         * stagecal_model_eval: σ the windows' scatter function at R with its own dof, capped
+         * at the smaller of θ's and σ's), and with one σ for every R (the window counts'
+         * root mean square about the curve) */
+        double pdof = rc_fit.sigma_dof > 0 ? fmin(rc_fit.dof, rc_fit.sigma_dof) : rc_fit.dof;
+        stagecal_scatter sc;
+        fc->pi_ok = rc == 0 && rc_fit.sigma > 0 &&
+                    stagecal_scatter_fit(ev, NW, form, rc_fit.theta, &sc, NULL) == STAGECAL_OK;
+        for (int q = 0; q < 3 && fc->pi_ok; q++) {
+            stagecal_band bd, b1;
+            double sq = sc.n > 0 ? stagecal_scatter_sd(&sc, synth_band_r[q]) : rc_fit.sigma;
+            double sdof = sc.n > 0 ? stagecal_scatter_dof(&sc, synth_band_r[q]) : pdof;
+            sdof = isfinite(sdof) ? fmin(sdof, pdof) : pdof; /* as stagecal_model_eval */
+            if (stagecal_regress_band_design(form, rc_fit.theta, rc_fit.cov, sq, 1.0, sdof,
+                                             rc_fit.design, rc_fit.n, 0.95, synth_band_r[q], 0, &bd,
+                                             NULL) != STAGECAL_OK ||
+                stagecal_regress_band_design(form, rc_fit.theta, rc_fit.cov, rc_fit.sigma, 1.0,
+                                             pdof, rc_fit.design, rc_fit.n, 0.95, synth_band_r[q],
+                                             0, &b1, NULL) != STAGECAL_OK) {
+                fc->pi_ok = 0;
+                break;
+            }
+            fc->pi_lo[q] = bd.pi_low;
+            fc->pi_hi[q] = bd.pi_high;
+            fc->pi1_lo[q] = b1.pi_low;
+            fc->pi1_hi[q] = b1.pi_high;
+            fc->pi_se[q] = bd.se_pred;
+            fc->pi1_se[q] = b1.se_pred;
+        }
         stagecal_regress_result_free(&rc_fit);
     }
     stagecal_regress_result_free(&rs_fit);

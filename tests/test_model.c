@@ -865,9 +865,9 @@ static void model_load_refuses_newer_version(void **state)
     char *text = slurp(path, &n);
     char *s = strstr(text, "\"version\": 1");
     assert_non_null(s);
-    s[strlen("\"version\": ")] = '4';
+    s[strlen("\"version\": ")] = '5';
     spit(path, text, n);
-    snprintf(want, sizeof want, "%s: written by a newer stagecal (format version 4 > 3)", path);
+    snprintf(want, sizeof want, "%s: written by a newer stagecal (format version 5 > 4)", path);
     expect_load_error(path, STAGECAL_EVERSION, want);
     free(text);
 }
@@ -1576,7 +1576,7 @@ static void model_load_refuses_each_member(void **state)
          "not a stagecal model file (format 'stagecal-plan', expected 'stagecal-model')"},
         {"format", "3", "not a stagecal model file (no \"format\": \"stagecal-model\" member)"},
         {"version", "\"1\"", "member 'version': expected an integer format version"},
-        {"version", "0", "unknown format version 0 (expected 1 to 3)"},
+        {"version", "0", "unknown format version 0 (expected 1 to 4)"},
         {"column", "17", "member 'column': expected a string"},
         {"stage_convention", "\"partial\"", "member 'stage_convention': expected an object"},
         {"stage_convention.condenser", "\"none\"",

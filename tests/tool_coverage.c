@@ -4,6 +4,7 @@
  * calibrate_intervals_cover_truth in tests/test_calibrate.c, over many more data sets).
  *
  * Usage: tool_coverage REPLICATIONS SEED [REGIME] [known-se | per-window-rho | smoother | quad]
+ *        [predict]
  *        tool_coverage REPLICATIONS SEED measured-r [measured | set-point | readings] [diag] [quad]
  *        tool_coverage REPLICATIONS SEED measured-r MODE [diag] refit | fixedwin S
  * (whole run logs from tests/synth_runlog.h through the whole chain; see measured_r_study;
@@ -35,7 +36,14 @@
  *     sd the empirical sd) — what the coverage would be with an exact, known se; 0.95
  *     for unbiased normal estimates, so a shortfall there comes from bias or
  *     non-normal estimates, not from the se;
- * and per fit the mean t quantile of the parameter intervals with their mean dof (each
+ * With predict, each data set also draws one new window at R = 1.5, 5 and ∞ (fresh samples
+ * from the same regime, its count from its window means: synth_new_window) and counts how
+ * often it falls inside the composition fit's 95 % prediction band, the model file's band
+ * (σ the scatter function at R, stagecal/scatter.h), and inside the band with one σ for
+ * every R (the window counts' root mean square about the curve, model format ≤ 3), with the
+ * root mean square of the new count's distance from the fitted curve beside the bands' rms
+ * se_pred.
+ * And per fit the mean t quantile of the parameter intervals with their mean dof (each
  * parameter's own under hc2-bm) beside n − p, and the mean residual variance factor s²
  * (1 when the windows' stated standard errors are right on average).
  * Exit status 0, or 1 on bad arguments or a library failure.
@@ -514,7 +522,7 @@ static int measured_r_study(long reps, unsigned long seed, const char *mode_name
 static void usage(void)
 {
     fprintf(stderr, "usage: tool_coverage REPLICATIONS(>=10) SEED [REGIME] [known-se | "
-                    "per-window-rho | smoother | quad]\nregimes:");
+                    "per-window-rho | smoother | quad | predict]\nregimes:");
     for (int g = 0; g < SYNTH_NREGIMES; g++)
         fprintf(stderr, " %s", synth_regimes[g].name);
     fprintf(stderr, " (default steady)\n"
@@ -527,6 +535,9 @@ int main(int argc, char **argv)
     char *end1 = NULL, *end2 = NULL;
     enum synth_se_mode mode = SYNTH_SE_ESTIMATED;
     const struct synth_regime *rg = &synth_regimes[0];
+    int predict = 0; /* also the prediction bands against one new window each */
+    long pi_n[3] = {0}, pi_hit[3] = {0}, pi1_hit[3] = {0}, pi_nocount[3] = {0};
+    double pi_e2[3] = {0}, pi_s2[3] = {0}, pi1_s2[3] = {0}; /* actual and stated se_pred² */
     if (argc >= 4 && strcmp(argv[3], "measured-r") == 0) {
         if (strcmp(argv[argc - 1], "quad") == 0) /* the builder's QUAD_POOLED window statistics */
             mr_quad = 1, argc--;
@@ -549,7 +560,7 @@ int main(int argc, char **argv)
         gsl_set_error_handler_off();
         return measured_r_study(n, strtoul(argv[2], NULL, 10), argc == 5 ? argv[4] : "measured");
     }
-    int args_ok = argc >= 3 && argc <= 5;
+    int args_ok = argc >= 3 && argc <= 6;
     for (int a = 3; a < argc && args_ok; a++) {
         int known = 0;
         for (int g = 0; g < SYNTH_NREGIMES; g++)
@@ -565,6 +576,8 @@ int main(int argc, char **argv)
             mode = SYNTH_SE_SMOOTHER, known = 1;
         if (strcmp(argv[a], "quad") == 0)
             mode = SYNTH_SE_QUAD, known = 1;
+        if (strcmp(argv[a], "predict") == 0)
+            predict = 1, known = 1;
         args_ok = known;
     }
     long reps = args_ok ? strtol(argv[1], &end1, 10) : 0;
@@ -597,6 +610,24 @@ int main(int argc, char **argv)
         }
         tally_add(&ts, &fs);
         tally_add(&tc, &fc);
+        for (int q = 0; q < 3 && predict && rc == 0 && fc.pi_ok; q++) {
+            double count;
+            if ((line = synth_new_window(rng, vle, rg, synth_band_r[q], &count))) {
+                fprintf(stderr, "tool_coverage: replication %ld: new window failed at %s:%d\n", rep,
+                        "synth_calibration.h", line);
+                rc = 1;
+            } else if (isnan(count)) {
+                pi_nocount[q]++;
+            } else {
+                pi_n[q]++;
+                pi_hit[q] += fc.pi_lo[q] <= count && count <= fc.pi_hi[q];
+                pi1_hit[q] += fc.pi1_lo[q] <= count && count <= fc.pi1_hi[q];
+                double e = count - fc.est[2 + q];
+                pi_e2[q] += e * e;
+                pi_s2[q] += fc.pi_se[q] * fc.pi_se[q];
+                pi1_s2[q] += fc.pi1_se[q] * fc.pi1_se[q];
+            }
+        }
     }
     clock_gettime(CLOCK_MONOTONIC, &t1);
     if (rc == 0) {
@@ -618,6 +649,22 @@ int main(int argc, char **argv)
         }
         report("stage space", &ts, (int)reps);
         report("composition space", &tc, (int)reps);
+        for (int q = 0; q < 3 && predict; q++) {
+            double lo, hi;
+            if (pi_n[q] == 0)
+                continue;
+            wilson((int)pi_hit[q], (int)pi_n[q], gsl_cdf_ugaussian_Pinv(0.975), &lo, &hi);
+            printf("  one new window at R = %g in the composition fit's 95 %% prediction band: "
+                   "%ld of %ld (%.3f [%.3f, %.3f]); %ld new windows without a count\n",
+                   synth_band_r[q], pi_hit[q], pi_n[q], (double)pi_hit[q] / (double)pi_n[q], lo, hi,
+                   pi_nocount[q]);
+            printf("    rms (new count - fitted curve) %.4f, rms se_pred %.4f\n",
+                   sqrt(pi_e2[q] / (double)pi_n[q]), sqrt(pi_s2[q] / (double)pi_n[q]));
+            wilson((int)pi1_hit[q], (int)pi_n[q], gsl_cdf_ugaussian_Pinv(0.975), &lo, &hi);
+            printf("    with one sigma for every R: %ld (%.3f [%.3f, %.3f]), rms se_pred %.4f\n",
+                   pi1_hit[q], (double)pi1_hit[q] / (double)pi_n[q], lo, hi,
+                   sqrt(pi1_s2[q] / (double)pi_n[q]));
+        }
     }
     tally_free(&ts);
     tally_free(&tc);

@@ -26,6 +26,12 @@
  * the default; with -drop left out of the means), windows at a pinch, runs cut at a lean pot, a
  * reflux step after 4 h.
  *
+ * With DEMOCOV_PREDICT=1 each data set's model file (the composition fit's) is also held
+ * against the windows of the next data set (independent, the same scenario): how often one
+ * new window's stage count falls inside the model's 95 % prediction band at the window's R
+ * and F, with the scatter function (stagecal/scatter.h, model format 4) and with one σ for
+ * every R (format ≤ 3), by R.
+ *
  * Prints, per fit (composition space = the model file's, stage space) and condition, the
  * coverage with its Wilson 95 % interval (Wilson, JASA 22 (1927) 209 — citation from memory),
  * the median z = (estimate − truth)/se, se/sd (rms stated se over the empirical sd of the
@@ -117,6 +123,12 @@ int main(int argc, char **argv)
     stagecal_form form;
     if (stagecal_form_parse("saturating-load", &form, NULL) != STAGECAL_OK)
         return 1;
+    /* prediction bands against the next data set's windows, by R: < 1.75, < 2.75, < 3.5, more */
+    int predict = getenv("DEMOCOV_PREDICT") && atoi(getenv("DEMOCOV_PREDICT"));
+    long pn[4] = {0}, phit[4] = {0}, phit1[4] = {0};
+    double pw[4] = {0}, pw1[4] = {0}; /* sums of the bands' half-widths */
+    stagecal_calibration prev;
+    int have_prev = 0;
     double a_true = 9.5 * (1 - loss * 1.5);
     for (long rep = 0; rep < reps; rep++) {
         char dir[] = "/tmp/stagecal-demo-XXXXXX", seed[32], lossbuf[32];
@@ -184,7 +196,44 @@ int main(int argc, char **argv)
                 cl->sum_err += b.value - truth;
                 cl->n++;
             }
+        if (predict) {
+            for (size_t i = 0; have_prev && i < cal.evidence.n; i++) {
+                const stagecal_evidence *e = &cal.evidence.ev[i];
+                stagecal_model one = prev.model; /* shallow: eval reads it only */
+                stagecal_model_point pt, p1;
+                one.scatter.n = 0;
+                if (!e->stages_ok ||
+                    stagecal_model_eval(&prev.model, e->r, e->f_load, 0.95, &pt, NULL) ||
+                    stagecal_model_eval(&one, e->r, e->f_load, 0.95, &p1, NULL))
+                    continue;
+                int b = e->r < 1.75 ? 0 : e->r < 2.75 ? 1 : e->r < 3.5 ? 2 : 3;
+                pn[b]++;
+                phit[b] += pt.pi_low <= e->stages && e->stages <= pt.pi_high;
+                phit1[b] += p1.pi_low <= e->stages && e->stages <= p1.pi_high;
+                pw[b] += 0.5 * (pt.pi_high - pt.pi_low);
+                pw1[b] += 0.5 * (p1.pi_high - p1.pi_low);
+            }
+            if (have_prev)
+                stagecal_calibration_free(&prev);
+            prev = cal;
+            have_prev = 1;
+            continue;
+        }
         stagecal_calibration_free(&cal);
+    }
+    if (have_prev)
+        stagecal_calibration_free(&prev);
+    static const char *bin[4] = {"R < 1.75", "1.75 - 2.75", "2.75 - 3.5", "R >= 3.5"};
+    for (int b = 0; b < 4 && predict; b++) {
+        double lo, hi, lo1, hi1;
+        if (pn[b] == 0)
+            continue;
+        wilson((int)phit[b], (int)pn[b], &lo, &hi);
+        wilson((int)phit1[b], (int)pn[b], &lo1, &hi1);
+        printf("new windows %-12s %5ld: in the prediction band %.3f [%.3f, %.3f] (mean half-width "
+               "%.3f); with one sigma %.3f [%.3f, %.3f] (%.3f)\n",
+               bin[b], pn[b], (double)phit[b] / pn[b], lo, hi, pw[b] / pn[b],
+               (double)phit1[b] / pn[b], lo1, hi1, pw1[b] / pn[b]);
     }
     printf("demo scenario (tool_demodata, January-March), %ld data sets from seed %lu, window "
            "statistics '%s', censored xD %s, loss %g/month; %d not calibrated\n",

@@ -26,6 +26,7 @@
 #include "stagecal/convention.h"
 #include "stagecal/error.h"
 #include "stagecal/form.h"
+#include "stagecal/scatter.h"
 #include "stagecal/vle.h"
 
 #ifdef __cplusplus
@@ -34,11 +35,13 @@ extern "C" {
 
 #define STAGECAL_MODEL_FORMAT "stagecal-model" /* the "format" member */
 #define STAGECAL_MODEL_VERSION                                                                     \
-    3                          /* the newest "version" this library reads and                      \
-                                  writes: 3 for a fit that carries its design                      \
-                                  (Bell–McCaffrey dof per band), 2 for a                         \
-                                  censored-likelihood fit (a method and a one-sided                \
-                                  bound older readers must refuse), 1 otherwise */
+    4                          /* the newest "version" this library reads and                      \
+                                  writes: 4 for a fit that carries its scatter                     \
+                                  function (σ of the prediction band by R), 3 for                 \
+                                  one that carries its design (Bell–McCaffrey dof                \
+                                  per band), 2 for a censored-likelihood fit (a                    \
+                                  method and a one-sided bound older readers must                  \
+                                  refuse), 1 otherwise */
 #define STAGECAL_MODEL_TEXT 64 /* size of short text fields */
 #define STAGECAL_MODEL_HEX 65  /* SHA-256 lowercase hex + NUL */
 
@@ -109,6 +112,9 @@ typedef struct {
                         own contrast (stagecal_regress_bm_dof) and dof is that of σ only
                         (format version 3, member correlation.design) */
     size_t n_design; /* rows of design: 0, or more than form.p */
+    stagecal_scatter scatter; /* σ of one new window by R (stagecal/scatter.h); scatter.n = 0:
+                                 sigma for every R (format version 4, member
+                                 correlation.scatter) */
 
     /* evidence */
     size_t n_windows; /* quasi-steady windows (units of evidence) that carried the fit */
@@ -230,16 +236,17 @@ enum {
 
 /* The correlation evaluated at one condition. */
 typedef struct {
-    double stages;          /* predicted stages, pot included [-] */
-    double column_stages;   /* stagecal_convention_column_stages(stages): stages − 1 (total
-                               condenser) or − 2 (partial); NAN below that (no column count) */
-    double se_fit;          /* standard error of the mean prediction, sqrt(gᵀCg) [stages] */
-    double se_pred;         /* standard error of a new observation, sqrt(gᵀCg + σ²) */
-    double level;           /* confidence level used */
-    double t;               /* Student t quantile at (1 + level)/2 with dof_fit */
-    double dof_fit;         /* its dof: the model's, or with a design the Bell–McCaffrey dof
-                               of this condition's contrast */
-    double dof_pred;        /* dof of the prediction band (Welch–Satterthwaite with a design) */
+    double stages;        /* predicted stages, pot included [-] */
+    double column_stages; /* stagecal_convention_column_stages(stages): stages − 1 (total
+                             condenser) or − 2 (partial); NAN below that (no column count) */
+    double se_fit;        /* standard error of the mean prediction, sqrt(gᵀCg) [stages] */
+    double se_pred;  /* standard error of a new observation, sqrt(gᵀCg + σ²), σ the scatter
+                        function at R when the model has one, else sigma */
+    double level;    /* confidence level used */
+    double t;        /* Student t quantile at (1 + level)/2 with dof_fit */
+    double dof_fit;  /* its dof: the model's, or with a design the Bell–McCaffrey dof
+                        of this condition's contrast */
+    double dof_pred; /* dof of the prediction band (Welch–Satterthwaite with a design) */
     double ci_low, ci_high; /* confidence band on the mean [stages] */
     double pi_low, pi_high; /* prediction band for a new window [stages] */
     int extrapolated;       /* 1 when (R, F) lies outside the envelope */

@@ -42,8 +42,12 @@ check "calibrate: saturation level plausible for the demo truth" "8.0 < d['param
 MODEL=$("$PY" -c "import json; print(json.load(open('$tmp/j'))['model_file'])")
 cp "$MODEL" "$tmp/model1.json"
 cp "$MODEL" "$tmp/j"
-check "model file: format and version (3: it carries the fit's design)" \
-      "d['format'] == 'stagecal-model' and d['version'] == 3 and len(d['correlation']['design']) == d['evidence']['windows'] and all(len(r) == 2 for r in d['correlation']['design'])"
+check "model file: format and version (4: it carries the fit's design and scatter function)" \
+      "d['format'] == 'stagecal-model' and d['version'] == 4 and len(d['correlation']['design']) == d['evidence']['windows'] and all(len(r) == 2 for r in d['correlation']['design'])"
+# the scatter function (σ of one new window by R): 1 to 3 coefficients, a square covariance,
+# a range of R/(R+1) inside [0, 1], σ positive and finite over it
+check "model file: scatter function well formed" \
+      "(lambda s: 1 <= len(s['ln_sd_poly']) <= 3 and len(s['ln_sd_cov']) == len(s['ln_sd_poly']) and 0 <= s['range'][0] <= s['range'][1] <= 1 and all(0 < __import__('math').exp(sum(c * l**k for k, c in enumerate(s['ln_sd_poly']))) < 1e3 for l in s['range']))(d['correlation']['scatter'])"
 # a form with the vapour load: predict from it without --f-factor names the form
 "$BIN" calibrate --column "$COL" --fits "$tmp/f4" --form 'linear:1+1/R+F' --quiet $LOGS >/dev/null
 expect_exit 2 "stagecal predict: the model's form 'linear:1+1/R+F' uses the vapour load: give '--f-factor F'" -- "$BIN" predict --model "$(ls "$tmp"/f4/demo-bt-K-7/*.json)" --charge 25 --xb0 0.5 --boilup 3.6 --reflux 3 --cut pot-x=0.15

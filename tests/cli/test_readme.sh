@@ -61,7 +61,7 @@ check_quote() { # file fragment
 }
 check_quote "$tmp/quick.out" "the largest difference, in 1, is 0.16 combined standard errors"
 for q in "INVENTED DEMO DATA" "The answer: stages at R = 5, F = 1.54 Pa^0.5" \
-    "9.24 (95 % confidence interval 9.02 – 9.46)" "7.97 – 10.50 (95 % prediction interval)" \
+    "9.24 (95 % confidence interval 9.02 – 9.46)" "5.54 – 12.93 (95 % prediction interval)" \
     "0.546 m (95 % interval 0.532 – 0.561 m), packed height 4.5 m" \
     "Precision: the stage count at this condition is known to ±0.22 stages" \
     "2025-01-06 15:43 to 2025-03-27 10:25 UTC" "Prepared by" "Approved by"; do

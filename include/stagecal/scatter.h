@@ -1,0 +1,77 @@
+/*
+ * stagecal/scatter.h — how far one new window's stage count scatters about the fitted
+ * curve, as a function of the reflux ratio (the σ of a prediction band).
+ *
+ * A window's count is read through the equilibrium curve, and how much analyser noise
+ * moves it depends strongly on R: near total reflux a window of the same analysers
+ * scatters several times as far as at moderate R. One σ for every R (the windows' root
+ * mean square about the curve) then gives prediction bands that are too wide at moderate R
+ * and too narrow near total reflux (docs/calibration.md, "Prediction bands"). The scatter
+ * function takes its shape from the windows' stated standard errors and its size from
+ * their residuals about the curve: ln se of the windows by least squares on a polynomial
+ * in λ = R/(R + 1) of degree 0, 1 or 2, chosen by the Bayesian information criterion
+ * (Schwarz 1978), and
+ *
+ *     σ(R) = exp(c0 + c1·λ + c2·λ²),  λ = R/(R + 1) clamped to the fitted range,
+ *
+ * with c0 carrying ln s, s² = Σ r_i²/se(λ_i)² / (m − p) over the windows' residuals r_i
+ * about the curve and the smooth se(λ_i): a multiplicative variance model Var(count −
+ * curve) = s²·se(λ)² (Carroll & Ruppert 1988, "Transformation and Weighting in
+ * Regression", ch. 3: variance functions estimated from the data — from memory). Scaled by
+ * the smooth rather than by each window's own se, s absorbs the spread of single windows'
+ * se about the shape (a new window's is unknown), and one window with a wild se moves the
+ * shape only through its logarithm. Degree 0 is one σ for every R: the residuals' root
+ * mean square on m − p dof.
+ */
+#ifndef STAGECAL_SCATTER_H
+#define STAGECAL_SCATTER_H
+
+#include <stddef.h>
+
+#include "stagecal/error.h"
+#include "stagecal/evidence.h"
+#include "stagecal/form.h"
+
+#ifdef __cplusplus
+extern "C" {
+#endif
+
+#define STAGECAL_SCATTER_MAXC 3 /* coefficients of the polynomial at most (a quadratic) */
+
+/* A scatter function; n = 0: none (one σ for every R). */
+typedef struct {
+    size_t n;                        /* coefficients, 0 to STAGECAL_SCATTER_MAXC */
+    double c[STAGECAL_SCATTER_MAXC]; /* ln σ = Σ c[k]·λ^k */
+    double lv_lo, lv_hi;             /* the fitted range of λ, 0 ≤ lv_lo ≤ lv_hi ≤ 1 */
+    double cov[STAGECAL_SCATTER_MAXC * STAGECAL_SCATTER_MAXC]; /* covariance of c (n×n,
+                                         row-major, stride n): the polynomial's least-squares
+                                         covariance plus Var(ln s) = 1/(2(m − p)) on c[0] */
+} stagecal_scatter;
+
+/* The scatter function of the n windows of evidence about the curve form(θ): the windows
+ * with a stage count and a positive finite standard error take part (m of them); the
+ * polynomial's degree is at most 2 with 8 or more such windows at 3 or more distinct λ, at
+ * most 1 with 4 or more at 2 or more, else 0, chosen by BIC. out->n = 0 when m ≤ p or m < 3 (too
+ * few to say). EINVAL on NULL arguments; EDATA when the least squares fail. */
+int stagecal_scatter_fit(const stagecal_evidence *ev, size_t n, const stagecal_form *form,
+                         const double *theta, stagecal_scatter *out, stagecal_error *err);
+
+/* σ at reflux ratio r (≥ 0, INFINITY = total reflux), λ clamped to the fitted range; NAN
+ * when s->n is 0. */
+double stagecal_scatter_sd(const stagecal_scatter *s, double r);
+
+/* The degrees of freedom of σ(r)² (a χ² approximation of the estimate's sampling error):
+ * 1/(2·Var(ln σ(r))), Var from cov at λ(r) clamped; NAN when s->n is 0 or the variance is
+ * not positive. */
+double stagecal_scatter_dof(const stagecal_scatter *s, double r);
+
+/* 0 when s is a valid scatter function (n ≤ 3, finite coefficients, a range inside
+ * [0, 1], σ finite and positive over the range, a finite symmetric covariance with a
+ * non-negative diagonal), else EINVAL with what is wrong in err. */
+int stagecal_scatter_check(const stagecal_scatter *s, stagecal_error *err);
+
+#ifdef __cplusplus
+}
+#endif
+
+#endif
