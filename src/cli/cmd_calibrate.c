@@ -499,6 +499,13 @@ static void print_text(const stagecal_calibration *cal, const char *path, const 
     if (mo->has_load)
         printf(", F %.3g to %.3g Pa^0.5", mo->f_min, mo->f_max);
     printf("\n");
+    if (mo->scatter.n > 0) /* σ of the prediction band by R, at the envelope's ends */
+        printf("one new window scatters about the curve by sigma %.3g stages at R = %s (%.1f "
+               "dof) and %.3g at R = %s (%.1f dof): the prediction bands' sigma by R\n",
+               stagecal_scatter_sd(&mo->scatter, mo->r_min), rlo,
+               fmin(stagecal_scatter_dof(&mo->scatter, mo->r_min), mo->dof),
+               stagecal_scatter_sd(&mo->scatter, mo->r_max), rhi,
+               fmin(stagecal_scatter_dof(&mo->scatter, mo->r_max), mo->dof));
     if (mo->has_hetp) {
         char rr[32], ff[48] = "";
         cli_format_reflux(rr, sizeof rr, mo->hetp_r, 4);
