@@ -1,6 +1,6 @@
 /*
  * evidence_internal.h — what evidence.c takes from evidence_physics.c and
- * evidence_cens.c; not installed.
+ * evidence_cens.c, and what it shares with evidence_stats.c; not installed.
  */
 #ifndef STAGECAL_EVIDENCE_INTERNAL_H
 #define STAGECAL_EVIDENCE_INTERNAL_H
@@ -10,6 +10,12 @@
 /* Bounds on the lag-1 autocorrelation used for n_eff: negative ρ would claim more
  * information than samples; ρ → 1 would make n_eff vanish. */
 #define EVIDENCE_RHO_MAX 0.99
+
+/* Points in each local fit of the window smoother (evidence.c, evidence_stats.c). */
+#define SMOOTH_POINTS 9
+
+/* Most samples the stage count and the window statistics use (the first ones carried). */
+#define EV_MAX_SMOOTH 64
 
 /* The distillate each row contributes (xd, one per log row; NAN where a row is still
  * settling) and the extra variance of its compensation (u2); fills set's holdup members. */
