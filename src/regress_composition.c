@@ -51,15 +51,12 @@ struct comp_ctx {
     size_t failures; /* forward steps that did not give an ok pot composition */
 };
 
-/* Predicted logit xB for window e at reflux r (its conditions cond, or NULL), θ and
- * distillate xd. */
-static double predict_at(struct comp_ctx *c, const stagecal_evidence *e,
-                         const stagecal_physics_cond *cond, double r, const double *theta,
-                         double xd)
+/* The stage count the correlation gives window e at reflux r and θ, kept in [1,
+ * COMP_MAX_STAGES]. */
+static double count_at(const struct comp_ctx *c, const stagecal_evidence *e, double r,
+                       const double *theta)
 {
-    double nst = 1, xb = xd;
-    int status = STAGECAL_STAGES_INVALID;
-    size_t len = 0;
+    double nst = 1;
     if (stagecal_form_eval(c->form, theta, r, e->f_load, &nst, NULL) != STAGECAL_OK ||
         !isfinite(nst))
         nst = 1;
@@ -67,6 +64,17 @@ static double predict_at(struct comp_ctx *c, const stagecal_evidence *e,
         nst = 1;
     if (nst > COMP_MAX_STAGES)
         nst = COMP_MAX_STAGES;
+    return nst;
+}
+
+/* Predicted logit xB at reflux r (conditions cond, or NULL) for nst stages (count_at) from
+ * distillate xd. */
+static double predict_n(struct comp_ctx *c, const stagecal_physics_cond *cond, double r, double nst,
+                        double xd)
+{
+    double xb = xd;
+    int status = STAGECAL_STAGES_INVALID;
+    size_t len = 0;
     int rc = cond ? stagecal_physics_step(cond, xd, nst, c->murphree, &c->sp, &xb, &status, NULL)
                   : stagecal_stages_step(c->vle, xd, r, nst, c->murphree, &c->sp, &xb, NULL, 0,
                                          &len, &status, NULL);
@@ -77,6 +85,15 @@ static double predict_at(struct comp_ctx *c, const stagecal_evidence *e,
         xb = xd;
     }
     return logit(xb);
+}
+
+/* Predicted logit xB for window e at reflux r (its conditions cond, or NULL), θ and
+ * distillate xd. */
+static double predict_at(struct comp_ctx *c, const stagecal_evidence *e,
+                         const stagecal_physics_cond *cond, double r, const double *theta,
+                         double xd)
+{
+    return predict_n(c, cond, r, count_at(c, e, r, theta), xd);
 }
 
 /* Predicted logit xB for window i at θ and distillate xd. */
@@ -119,16 +136,17 @@ static double expit(double l)
  * difference with h = σ is the symmetric sigma-point form of ½ f'' σ²). h is kept below
  * half the distance to xd = 1 (the second difference is then more local). Without a noise
  * estimate (sd_xd = 0): f(xd). */
-static double pot_corrected(struct comp_ctx *c, size_t i, const double *theta, double xd)
+static double pot_corrected(struct comp_ctx *c, size_t i, double nst, double xd)
 {
-    double f0 = expit(predict_logit(c, i, theta, xd));
-    if (c->ev[i].xd_tobit)
+    const stagecal_evidence *e = &c->ev[i];
+    double f0 = expit(predict_n(c, e->cond, e->r, nst, xd));
+    if (e->xd_tobit)
         return f0; /* a censored window's Tobit trend: a smoothed value, not a noisy reading */
-    double h = fmin(c->ev[i].sd_xd, 0.5 * (1 - xd));
+    double h = fmin(e->sd_xd, 0.5 * (1 - xd));
     if (!(h > 0) || !(xd - h > 0))
         return f0;
-    double fp = expit(predict_logit(c, i, theta, xd + h));
-    double fm = expit(predict_logit(c, i, theta, xd - h));
+    double fp = expit(predict_n(c, e->cond, e->r, nst, xd + h));
+    double fm = expit(predict_n(c, e->cond, e->r, nst, xd - h));
     return f0 - 0.5 * (fp - 2 * f0 + fm);
 }
 
@@ -141,9 +159,9 @@ static double window_residual(struct comp_ctx *c, size_t i, const double *theta)
     const stagecal_evidence *e = &c->ev[i];
     if (e->m == 0 || !e->s_xd || !e->s_xb)
         return predict_logit(c, i, theta, e->xd) - logit(e->xb);
-    double sp = 0, sm = 0;
+    double sp = 0, sm = 0, nst = count_at(c, e, e->r, theta); /* one count for the window */
     for (size_t j = 0; j < e->m; j++) {
-        sp += pot_corrected(c, i, theta, e->s_xd[j]);
+        sp += pot_corrected(c, i, nst, e->s_xd[j]);
         sm += e->s_xb[j];
     }
     return logit(sp / (double)e->m) - logit(sm / (double)e->m);

@@ -122,6 +122,30 @@ static inline int smoker_setup(tl3 alpha, tl3 m, tl3 b, smoker_consts *sc)
     return 0;
 }
 
+/* smoker_setup's values alone (its .v members; the derivative members 0), for callers that
+ * need no derivatives: the same operations in the same order, so the same doubles. */
+static inline int smoker_setup_v(double alpha, double m, double b, smoker_consts *sc)
+{
+    double am1 = alpha - 1.0;
+    double a2 = m * am1;
+    double a1 = (m + b * am1) - alpha;
+    double disc = a1 * a1 - (4.0 * a2) * b;
+    if (!(alpha > 1.0) || !(m > 0.0) || !(disc >= 0.0))
+        return -1;
+    double k = (2.0 * b) / (-1.0 * a1 + sqrt(disc));
+    double c = 1.0 + am1 * k;
+    double mcc = (m * c) * c;
+    double den = alpha - mcc;
+    if (!(den > 0.0))
+        return -1;
+    sc->k = tl_const(k);
+    sc->beta = tl_const(((m * c) * am1) / den);
+    sc->lna = tl_const(log(alpha / mcc));
+    if (!(sc->lna.v > 0.0) || !isfinite(sc->lna.v) || !isfinite(sc->beta.v))
+        return -1;
+    return 0;
+}
+
 static inline tl3 smoker_count(const smoker_consts *sc, tl3 x0, tl3 xn)
 {
     tl3 one = tl_const(1.0);

@@ -18,6 +18,7 @@
 #define MAX_AZ 8 /* azeotropes inspected (vle finds at most a handful) */
 
 #include "stages_internal.h"
+#include "vle_internal.h"
 /* after every system header: banned.h redefines libc names */
 #include "internal.h"
 
@@ -225,7 +226,7 @@ double stages_fraction_target(double x_prev, double xn, double yn, double m, dou
     /* The inverse of stepper_crossing: Smoker's closed-form inverse with α_loc. */
     double alpha_loc = yn * (1.0 - xn) / (xn * (1.0 - yn)), x_target;
     smoker_consts sc;
-    if (smoker_setup(tl_const(alpha_loc), tl_const(m), tl_const(b), &sc) == 0)
+    if (smoker_setup_v(alpha_loc, m, b, &sc) == 0)
         x_target = smoker_inverse(&sc, x_prev, f);
     else
         x_target = x_prev - f * (x_prev - xn);
@@ -242,6 +243,69 @@ static void put_point(stagecal_stage_point *profile, size_t cap, size_t i, doubl
         profile[i].x = x;
         profile[i].y = y;
     }
+}
+
+/* y*(x) and x*(y) of constant α as alpha_query (vle.c) computes them, with the range checks of
+ * its dispatcher (x in [0, x_max], y in [0, 1]); 0 when out of range. */
+static int alpha_ystar(double a, double x_max, double x, double *y)
+{
+    if (!(x >= 0.0 && x <= x_max))
+        return 0;
+    *y = a * x / (1.0 + (a - 1.0) * x);
+    return 1;
+}
+
+static int alpha_xstar(double a, double y, double *x)
+{
+    if (!(y >= 0.0 && y <= 1.0))
+        return 0;
+    *x = y / (y + a * (1.0 - y));
+    return 1;
+}
+
+/* Forward stepping for constant α at E_MV = 1 on its own: the operations of the general path
+ * below (stepper_init's line, stepper_step with x*(y), the crossing step's fraction, the pot)
+ * in the same order without the stepper and the model dispatch, so the same doubles. Returns 1
+ * with *xb, the profile and *len filled when every step made progress and every query was in
+ * range; 0 otherwise, and the general path then repeats the work and reports. */
+static int alpha_step_fast(const stagecal_vle *vle, double x_max, double xd, double reflux,
+                           double stages, double column, double nwhole_d,
+                           stagecal_stage_point *profile, size_t cap, double *xb, size_t *len)
+{
+    double a = vle->alpha, m = 1.0, b = 0.0;
+    if (!isinf(reflux)) {
+        m = reflux / (reflux + 1.0);
+        b = xd / (reflux + 1.0);
+    }
+    size_t nwhole = (size_t)nwhole_d, k = 0;
+    double x_prev = xd, x_target = xd, xn = xd, yn = xd, y;
+    if (column > 0.0) {
+        double f = column - nwhole_d;
+        for (size_t n = 1; n <= nwhole + 1; n++) {
+            yn = m * x_prev + b;
+            if (!alpha_xstar(a, yn, &xn) || !(xn < x_prev))
+                return 0;
+            if (n > nwhole)
+                break;
+            put_point(profile, cap, k++, (double)n, xn, yn);
+            x_prev = xn;
+        }
+        if (f == 1.0) {
+            x_target = xn;
+            put_point(profile, cap, k++, (double)(nwhole + 1), xn, yn);
+        } else {
+            x_target = stages_fraction_target(x_prev, xn, yn, m, b, f);
+            if (!alpha_ystar(a, x_max, x_target, &y))
+                return 0;
+            put_point(profile, cap, k++, column, x_target, y);
+        }
+    }
+    double ypot = m * x_target + b, ys;
+    if (!alpha_xstar(a, ypot, xb) || !alpha_ystar(a, x_max, *xb, &ys))
+        return 0;
+    put_point(profile, cap, k++, stages, *xb, ys);
+    *len = k;
+    return 1;
 }
 
 int stagecal_stages_step(const stagecal_vle *vle, double xd, double reflux, double stages,
@@ -287,6 +351,11 @@ int stagecal_stages_step(const stagecal_vle *vle, double xd, double reflux, doub
         return STAGECAL_OK;
     }
 
+    if (murphree == 1.0 && stagecal_vle_get_kind(vle) == STAGECAL_VLE_ALPHA &&
+        alpha_step_fast(vle, x_max, xd, reflux, stages, column, nwhole_d, profile, cap, xb, len)) {
+        *status = STAGECAL_STAGES_OK;
+        return STAGECAL_OK;
+    }
     stepper st;
     int rc = stepper_init(&st, vle, par, xd, reflux, murphree, err);
     if (rc)
