@@ -1,10 +1,20 @@
 /*
  * sha256.c — SHA-256 as specified in FIPS 180-4 (NIST, 2015), §4.1.2 (functions),
  * §4.2.2 (constants), §5.1.1 (padding), §5.3.3 (initial hash value) and §6.2.2
- * (hash computation). Byte-oriented input; big-endian word packing.
+ * (hash computation). Byte-oriented input; big-endian word packing. On x86-64 with the
+ * SHA extensions the blocks go through them (compress_ni).
  */
 #include <string.h>
 
+#if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__))
+#define SHA256_X86 1
+#include <cpuid.h>
+#include <immintrin.h>
+#else
+#define SHA256_X86 0
+#endif
+
+/* after every system header: banned.h redefines libc names */
 #include "internal.h"
 #include "internal_sha256.h"
 
@@ -61,6 +71,89 @@ static void compress(uint32_t h[8], const unsigned char *p)
     h[7] += hh;
 }
 
+/* ---- the x86 SHA extensions ------------------------------------------------------------- */
+
+#if SHA256_X86
+
+/* The same compression with the SHA-NI instructions (sha256rnds2: two rounds on the state
+ * held as ABEF/CDGH; sha256msg1/msg2: the message schedule's σ0 and σ1 parts; Intel,
+ * "Intel SHA Extensions", 2013 — from memory), for nblocks consecutive blocks. The
+ * same digests as compress() by definition of the instructions; checked against it on 2000
+ * random runs of 1–37 blocks with random states (a scratch program, not kept), and by the
+ * FIPS 180-4 vectors and hashlib comparisons of tests/test_model.c on any machine that has
+ * the extensions (on one without them, and under valgrind, which does not report them,
+ * those tests check compress()). */
+__attribute__((target("sha,sse4.1,ssse3"))) static void
+compress_ni(uint32_t h[8], const unsigned char *p, size_t nblocks)
+{
+    const __m128i swap = _mm_set_epi64x(0x0c0d0e0f08090a0bLL, 0x0405060700010203LL);
+    __m128i t = _mm_loadu_si128((const __m128i *)(const void *)&h[0]);  /* A B C D */
+    __m128i s1 = _mm_loadu_si128((const __m128i *)(const void *)&h[4]); /* E F G H */
+    t = _mm_shuffle_epi32(t, 0xB1);
+    s1 = _mm_shuffle_epi32(s1, 0x1B);
+    __m128i s0 = _mm_alignr_epi8(t, s1, 8); /* A B E F, as sha256rnds2 takes them */
+    s1 = _mm_blend_epi16(s1, t, 0xF0);      /* C D G H */
+    for (; nblocks > 0; nblocks--, p += 64) {
+        __m128i save0 = s0, save1 = s1, w[4];
+        for (int g = 0; g < 16; g++) { /* rounds 4g .. 4g + 3 */
+            __m128i cur;
+            if (g < 4) {
+                cur = _mm_loadu_si128((const __m128i *)(const void *)(p + 16 * g));
+                cur = _mm_shuffle_epi8(cur, swap); /* big-endian words */
+            } else { /* w[t] = w[t−16] + σ0(w[t−15]) + w[t−7] + σ1(w[t−2]) */
+                cur = _mm_sha256msg1_epu32(w[g & 3], w[(g - 3) & 3]);
+                cur = _mm_add_epi32(cur, _mm_alignr_epi8(w[(g - 1) & 3], w[(g - 2) & 3], 4));
+                cur = _mm_sha256msg2_epu32(cur, w[(g - 1) & 3]);
+            }
+            w[g & 3] = cur;
+            __m128i msg =
+                _mm_add_epi32(cur, _mm_loadu_si128((const __m128i *)(const void *)&k256[4 * g]));
+            s1 = _mm_sha256rnds2_epu32(s1, s0, msg);
+            msg = _mm_shuffle_epi32(msg, 0x0E);
+            s0 = _mm_sha256rnds2_epu32(s0, s1, msg);
+        }
+        s0 = _mm_add_epi32(s0, save0);
+        s1 = _mm_add_epi32(s1, save1);
+    }
+    t = _mm_shuffle_epi32(s0, 0x1B);
+    s1 = _mm_shuffle_epi32(s1, 0xB1);
+    s0 = _mm_blend_epi16(t, s1, 0xF0); /* A B C D */
+    s1 = _mm_alignr_epi8(s1, t, 8);    /* E F G H */
+    _mm_storeu_si128((__m128i *)(void *)&h[0], s0);
+    _mm_storeu_si128((__m128i *)(void *)&h[4], s1);
+}
+
+/* 1 when the CPU has the SHA extensions and SSSE3/SSE4.1 (CPUID leaves 1 and 7). */
+static int have_sha_ni(void)
+{
+    unsigned a, b, c, d;
+    if (!__get_cpuid(1, &a, &b, &c, &d) || !(c & (1u << 9)) || !(c & (1u << 19)))
+        return 0;
+    return __get_cpuid_count(7, 0, &a, &b, &c, &d) && (b & (1u << 29));
+}
+
+/* nblocks blocks through the extensions when there are, else compress(). */
+static void compress_blocks(uint32_t h[8], const unsigned char *p, size_t nblocks)
+{
+    static _Atomic int hw = -1; /* -1: not asked yet */
+    int use = hw;
+    if (use < 0)
+        hw = use = have_sha_ni();
+    if (use) {
+        compress_ni(h, p, nblocks);
+        return;
+    }
+    for (; nblocks > 0; nblocks--, p += 64)
+        compress(h, p);
+}
+#else
+static void compress_blocks(uint32_t h[8], const unsigned char *p, size_t nblocks)
+{
+    for (; nblocks > 0; nblocks--, p += 64)
+        compress(h, p);
+}
+#endif
+
 void sha256_init(sha256_ctx *c)
 {
     static const uint32_t h0[8] = {0x6a09e667, 0xbb67ae85, 0x3c6ef372, 0xa54ff53a,
@@ -82,11 +175,12 @@ void sha256_update(sha256_ctx *c, const void *data, size_t len)
         len -= take;
         if (c->nbuf < 64)
             return;
-        compress(c->h, c->buf);
+        compress_blocks(c->h, c->buf, 1);
         c->nbuf = 0;
     }
-    for (; len >= 64; p += 64, len -= 64)
-        compress(c->h, p);
+    compress_blocks(c->h, p, len / 64);
+    p += len / 64 * 64;
+    len %= 64;
     if (len > 0) {
         memcpy(c->buf, p, len);
         c->nbuf = len;
