@@ -158,10 +158,27 @@ static void resid_moments_band(const struct wseries *w, double rho, double dt_re
 {
     size_t m = w->m, k = m < SMOOTH_POINTS ? m : SMOOTH_POINTS;
     double *R = scratch, *T = R + m * m;
+    /* corr's pow, remembered per lag j − i: evenly logged samples repeat the same exponent
+     * along each diagonal (the same arguments, so the same double) */
+    double lag_e[EV_MAX_SMOOTH], lag_c[EV_MAX_SMOOTH];
+    for (size_t d = 0; d < m; d++)
+        lag_e[d] = -1.0; /* no exponent is negative */
     for (size_t i = 0; i < m; i++) {
         R[i * m + i] = corr(rho, dt_ref, w->t[i], w->t[i]);
-        for (size_t j = i + 1; j < m; j++)
-            R[i * m + j] = R[j * m + i] = corr(rho, dt_ref, w->t[i], w->t[j]);
+        for (size_t j = i + 1; j < m; j++) {
+            double a = w->t[i], b = w->t[j], c;
+            if (a == b || !(rho > 0)) {
+                c = corr(rho, dt_ref, a, b);
+            } else {
+                double e = fabs(a - b) / dt_ref; /* as corr computes it */
+                if (e != lag_e[j - i]) {
+                    lag_e[j - i] = e;
+                    lag_c[j - i] = pow(rho, e);
+                }
+                c = lag_c[j - i];
+            }
+            R[i * m + j] = R[j * m + i] = c;
+        }
     }
     /* T = M R with M = I − S, S zero off the band */
     for (size_t i = 0; i < m; i++) {
@@ -215,6 +232,8 @@ struct pool {
     double dt_ref;
     double *scratch;
     int failed;
+    size_t nseen;      /* values below kept (the bracket's ends, which GSL's solver evaluates */
+    double seen[2][2]; /* again when it is set): {rho, pool_eq(rho)} */
 };
 
 /* Σ_k l_k − Σ_k v_k·B_k(ρ)/A_k(ρ): zero at the pooled ρ (the moment equation). */
@@ -222,6 +241,9 @@ static double pool_eq(double rho, void *ctx)
 {
     struct pool *p = ctx;
     double f = 0;
+    for (size_t q = 0; q < p->nseen; q++)
+        if (p->seen[q][0] == rho)
+            return p->seen[q][1]; /* the same sum of the same terms */
     for (size_t k = 0; k < p->n; k++) {
         double A, B;
         if (resid_moments2(&p->w[k], rho, p->dt_ref, p->scratch, &A, &B) || !(A > 0)) {
@@ -229,6 +251,10 @@ static double pool_eq(double rho, void *ctx)
             return 0;
         }
         f += p->w[k].l - p->w[k].v * B / A;
+    }
+    if (p->nseen < 2) {
+        p->seen[p->nseen][0] = rho;
+        p->seen[p->nseen++][1] = f;
     }
     return f;
 }
@@ -309,7 +335,7 @@ static int analyser_stats(stagecal_evidence *ev, size_t nev, int pot, double u_f
     }
     if (n == 0 || !(span > 0))
         goto done;
-    struct pool p = {w, n, span / gaps, scratch, 0};
+    struct pool p = {w, n, span / gaps, scratch, 0, 0, {{0, 0}, {0, 0}}};
     double rho;
     if (pool_solve(&p, &rho)) {
         rc = error_set(err, STAGECAL_EINTERNAL,
