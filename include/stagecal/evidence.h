@@ -8,7 +8,7 @@
  * here, so one window has one stage count everywhere. Methods and sources:
  * docs/calibration.md §3.
  *
- * Declarations are grouped as in src/evidence.c: the window statistics (mean,
+ * Declarations are grouped as in src/evidence*.c: the window statistics (mean,
  * autocorrelation, pooling), the stage count, the builder that turns a run log's
  * windows into evidence, and the points a stage-space fit takes.
  */
@@ -95,7 +95,7 @@ typedef struct {
                                           carries no censored reading (see n_cens_xd) */
 } stagecal_evidence;
 
-/* ---- window statistics (evidence.c) -------------------------------------------------- */
+/* ---- window statistics (evidence_mean.c, evidence_stats.c) ------------------------- */
 
 /* Mean of a slowly varying, autocorrelated series with its standard error.
  * The series is detrended by a straight line in time (a batch pot drifts); the
