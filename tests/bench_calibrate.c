@@ -2,7 +2,7 @@
  * bench_calibrate.c — benchmark of the whole calibration chain: a year of 1-minute
  * production logs (≈ 5·10^5 rows, constant α = 1.6 column) read, validated, windowed,
  * inverted at every sample, fitted in stage and composition space with a 1000-resample
- * bootstrap. Target (issue): < 3 s on this 2-core machine.
+ * bootstrap. Target (issue 17): < 1.5 s on this 2-core machine when idle.
  *
  * Usage: bench_calibrate [ROWS] [BOOTSTRAP] [LOG.csv]   (defaults 500000, 1000)
  * Writes its synthetic log to a temporary directory, prints the timings, removes it; with
