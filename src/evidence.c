@@ -30,6 +30,7 @@
 #include <string.h>
 
 #include "evidence_internal.h"
+#include "holdup_internal.h"
 #include "internal.h"
 #include "stagecal/stages.h"
 
@@ -346,13 +347,14 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
     set->samples = malloc((nw ? nw : 1) * 3 * cap * sizeof *set->samples);
     double *buf = malloc((maxlen ? maxlen : 1) * 7 * sizeof *buf);
     signed char *dir = malloc(maxlen ? maxlen : 1);
-    double *xd_src = malloc((log->n ? log->n : 1) * 2 * sizeof *xd_src), *u2 = xd_src + log->n;
+    double *xd_src = malloc((log->n ? log->n : 1) * 3 * sizeof *xd_src);
+    double *u2 = xd_src ? xd_src + log->n : NULL, *gs = xd_src ? xd_src + 2 * log->n : NULL;
     if (!set->ev || !buf || !set->samples || !xd_src || !dir) {
         free(buf), free(xd_src), free(dir);
         stagecal_evidence_set_free(set);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
-    int rc = evidence_holdup(log, col, &par, set, xd_src, u2, err);
+    int rc = evidence_holdup(log, col, &par, set, xd_src, u2, gs, err);
     /* QUAD_POOLED: each window's own ρ first, then again at ρ pooled per analyser over the
      * windows (weighted by lag pairs, as stagecal_evidence_pool_rho), which also sets σ² =
      * RSS/A(ρ) at the pooled ρ */
@@ -414,11 +416,18 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
     }
     for (size_t k = 0; k < set->n && rc == STAGECAL_OK; k++) {
         stagecal_evidence *e = &set->ev[k];
-        /* the time constant's uncertainty is common to the window: add its mean variance */
-        double u2m = 0;
+        /* the holdup's (or the time constant's) uncertainty is common to the window: add its
+         * mean variance; the slope noise's error is local in time, so its part is that of the
+         * window's mean (holdup_window_slope_var; as a common error it had stated the R = 3
+         * windows' xD error about twice too large on the holdup study: docs/methods.md) */
+        double u2m = 0, vs = 0;
         for (size_t i = e->first; i <= e->last; i++)
             u2m += isfinite(u2[i]) ? u2[i] : 0;
-        e->u_xd = sqrt(e->u_xd * e->u_xd + u2m / (double)(e->last - e->first + 1));
+        if (holdup_window_slope_var(log, e->first, e->last, gs, col->u.xd, &vs) != STAGECAL_OK) {
+            rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
+            break;
+        }
+        e->u_xd = sqrt(e->u_xd * e->u_xd + u2m / (double)(e->last - e->first + 1) + vs);
         rc = stagecal_evidence_stages(col->system.vle, murphree, e, err);
         if (rc != STAGECAL_OK)
             break;

@@ -18,10 +18,11 @@
 #define EV_MAX_SMOOTH 64
 
 /* The distillate each row contributes (xd, one per log row; NAN where a row is still
- * settling) and the extra variance of its compensation (u2); fills set's holdup members. */
+ * settling), the extra variance of its compensation common to its run (u2) and the shift per
+ * unit slope (gs; holdup_compensate_split); fills set's holdup members. */
 int evidence_holdup(const stagecal_runlog *log, const stagecal_column *col,
                     const stagecal_evidence_params *par, stagecal_evidence_set *set, double *xd,
-                    double *u2, stagecal_error *err);
+                    double *u2, double *gs, stagecal_error *err);
 /* Each window's conditions (after the means): set->conds, ev[k].cond. */
 int evidence_conditions(const stagecal_runlog *log, const stagecal_column *col,
                         stagecal_evidence_set *set, stagecal_error *err);

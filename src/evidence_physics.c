@@ -17,11 +17,11 @@
 
 int evidence_holdup(const stagecal_runlog *log, const stagecal_column *col,
                     const stagecal_evidence_params *par, stagecal_evidence_set *set, double *xd,
-                    double *u2, stagecal_error *err)
+                    double *u2, double *gs, stagecal_error *err)
 {
     set->nruns = log->nruns;
     holdup_resolved hr;
-    int rc = holdup_resolve(log, col, par->holdup, &hr, xd, u2, err);
+    int rc = holdup_resolve(log, col, par->holdup, &hr, xd, u2, gs, err);
     /* the set owns what it reports */
     set->tau = hr.tau, set->tau_pooled = hr.pooled, set->holdup_est = hr.est;
     set->holdup_kind = hr.kind;

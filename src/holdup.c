@@ -320,59 +320,6 @@ int stagecal_holdup_estimate(const stagecal_runlog *log, double u_xd,
     return STAGECAL_OK;
 }
 
-/* Slope at t[c] of the least-squares quadratic through (t[j], x[j]), j in [a, b] with finite
- * values; NAN when fewer than 3 such points or the fit is singular. *se: its standard error
- * from σ²·[(AᵀA)⁻¹]₁₁, σ the residual standard deviation (n − 3 degrees of freedom) with the
- * analyser's u as a floor (u alone when n = 3). */
-double holdup_local_slope(const double *t, const double *x, size_t a, size_t b, size_t c, double u,
-                          double *se, double *value)
-{
-    double s[5] = {0}, r[3] = {0}, scale = 0;
-    size_t m = 0;
-    *se = NAN;
-    for (size_t j = a; j <= b; j++)
-        if (isfinite(x[j]) && isfinite(t[j]))
-            scale = fmax(scale, fabs(t[j] - t[c])), m++;
-    if (m < 3 || !(scale > 0))
-        return NAN;
-    for (size_t j = a; j <= b; j++) {
-        if (!isfinite(x[j]) || !isfinite(t[j]))
-            continue;
-        double v = (t[j] - t[c]) / scale, p = 1;
-        for (int k = 0; k < 5; k++, p *= v)
-            s[k] += p;
-        r[0] += x[j], r[1] += x[j] * v, r[2] += x[j] * v * v;
-    }
-    double a3[9] = {s[0], s[1], s[2], s[1], s[2], s[3], s[2], s[3], s[4]}, inv[9];
-    gsl_matrix_view mv = gsl_matrix_view_array(a3, 3, 3), iv = gsl_matrix_view_array(inv, 3, 3);
-    gsl_vector_view rv = gsl_vector_view_array(r, 3);
-    double cbuf[3];
-    gsl_vector_view cv = gsl_vector_view_array(cbuf, 3);
-    gsl_permutation *perm = gsl_permutation_alloc(3);
-    int sign;
-    double slope = NAN;
-    if (perm && gsl_linalg_LU_decomp(&mv.matrix, perm, &sign) == GSL_SUCCESS &&
-        fabs(gsl_linalg_LU_det(&mv.matrix, sign)) > 1e-12 &&
-        gsl_linalg_LU_solve(&mv.matrix, perm, &rv.vector, &cv.vector) == GSL_SUCCESS &&
-        gsl_linalg_LU_invert(&mv.matrix, perm, &iv.matrix) == GSL_SUCCESS) {
-        slope = cbuf[1] / scale;
-        if (value)
-            *value = cbuf[0];
-        double rss = 0;
-        for (size_t j = a; j <= b; j++) {
-            if (!isfinite(x[j]) || !isfinite(t[j]))
-                continue;
-            double v = (t[j] - t[c]) / scale, e = x[j] - (cbuf[0] + cbuf[1] * v + cbuf[2] * v * v);
-            rss += e * e;
-        }
-        double s2 = m > 3 ? rss / (double)(m - 3) : 0;
-        s2 = fmax(s2, u * u);
-        *se = sqrt(s2 * fmax(inv[4], 0)) / scale;
-    }
-    gsl_permutation_free(perm);
-    return slope;
-}
-
 /* dxD/dt at row i of the stretch [s, e) by a local quadratic over the rows within half_s
  * of it (at least min_side rows each side where the stretch has them); NAN when not
  * available. *se: its standard error (local_slope). */
@@ -382,16 +329,6 @@ static double row_slope(const stagecal_runlog *log, size_t s, size_t e, size_t i
     size_t a, b;
     holdup_row_range(log, s, e, i, half_s, min_side, &a, &b);
     return holdup_local_slope(log->t_s, log->xd, a, b, i, u, se, NULL);
-}
-
-void holdup_row_range(const stagecal_runlog *log, size_t s, size_t e, size_t i, double half_s,
-                      size_t min_side, size_t *a, size_t *b)
-{
-    *a = i, *b = i;
-    while (*a > s && (i - *a < min_side || log->t_s[i] - log->t_s[*a - 1] <= half_s))
-        (*a)--;
-    while (*b + 1 < e && (*b - i < min_side || log->t_s[*b + 1] - log->t_s[i] <= half_s))
-        (*b)++;
 }
 
 /* Rows [s, e) of a total-reflux start-up that its fit su says are still rising: NAN. */
@@ -422,6 +359,13 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
                                const stagecal_holdup_params *params, double *xd_ss,
                                double *u2_extra, stagecal_error *err)
 {
+    return holdup_compensate_split(log, hm, params, xd_ss, u2_extra, NULL, err);
+}
+
+int holdup_compensate_split(const stagecal_runlog *log, const stagecal_holdup_model *hm,
+                            const stagecal_holdup_params *params, double *xd_ss, double *u2_extra,
+                            double *gs, stagecal_error *err)
+{
     if (!log || !hm || !xd_ss || (hm->kind == STAGECAL_HOLDUP_COMP_STAGES && !hm->vle))
         return error_set(err, STAGECAL_EINVAL, "NULL argument");
     stagecal_holdup_params par = params ? *params : stagecal_holdup_default_params();
@@ -429,6 +373,8 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
         xd_ss[i] = log->xd[i];
         if (u2_extra)
             u2_extra[i] = 0;
+        if (gs)
+            gs[i] = 0;
     }
     if (hm->kind == STAGECAL_HOLDUP_COMP_NONE)
         return STAGECAL_OK;
@@ -472,8 +418,11 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
                     xd_ss[i] = x;
                     /* the shift is linear in the holdup and in dxD/dt to first order */
                     double sh = x - log->xd[i], rs = d != 0 && isfinite(se_d) ? se_d / d : 0;
-                    if (u2_extra)
-                        u2_extra[i] = sh * sh * (ur * ur + rs * rs);
+                    if (u2_extra) /* with gs, the slope's part is the caller's (its error is
+                                     local in time: holdup_window_slope_var) */
+                        u2_extra[i] = sh * sh * (ur * ur + (gs ? 0 : rs * rs));
+                    if (gs)
+                        gs[i] = d != 0 ? sh / d : 0;
                 }
             }
             /* rows where the column is not pseudo-steady (src/holdup_refine.c) */
@@ -481,7 +430,7 @@ int stagecal_holdup_compensate(const stagecal_runlog *log, const stagecal_holdup
                 int own = hm->run_holdup_mol && isfinite(hm->run_holdup_mol[k]);
                 int rc = holdup_refine_stretch(log, s, e, hm->vle,
                                                own ? hm->run_holdup_mol[k] : hm->holdup_mol,
-                                               hm->drum_mol, &par, hm->u_xd, xd_ss, u2_extra);
+                                               hm->drum_mol, &par, hm->u_xd, xd_ss, u2_extra, gs);
                 if (rc != STAGECAL_OK)
                     return error_set(err, rc, "out of memory");
             }

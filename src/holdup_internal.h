@@ -26,10 +26,11 @@ typedef struct {
 } holdup_resolved;
 
 /* The compensated distillate of every row (xd; NAN where a row is still settling), the extra
- * variance of its compensation (u2, may be NULL) and what was used (out; free with
+ * variance of its compensation (u2, may be NULL; with gs, its part common to the run and the
+ * slope sensitivity gs: holdup_compensate_split) and what was used (out; free with
  * holdup_resolved_free). ENOMEM, or the compensation's status. */
 int holdup_resolve(const stagecal_runlog *log, const stagecal_column *col, int want,
-                   holdup_resolved *out, double *xd, double *u2, stagecal_error *err);
+                   holdup_resolved *out, double *xd, double *u2, double *gs, stagecal_error *err);
 void holdup_resolved_free(holdup_resolved *h);
 
 /* The light component on the column stages and in the drum [mol] of a column at (xD, xB,
@@ -85,6 +86,30 @@ int holdup_steady_xd_of_count(const stagecal_vle *vle, double xd, double xb, dou
  * agrees. Nothing is tested when quasi_tol_u or u_xd is not positive. ENOMEM only. */
 int holdup_refine_stretch(const stagecal_runlog *log, size_t s, size_t e, const stagecal_vle *vle,
                           double holdup_mol, double drum_mol, const stagecal_holdup_params *par,
-                          double u_xd, double *xd_ss, double *u2);
+                          double u_xd, double *xd_ss, double *u2, double *gs);
+
+/* stagecal_holdup_compensate with the STAGES variance split by how its errors are shared:
+ * gs NULL: u2 is the row's whole compensation variance, as there; gs given: u2 is the part
+ * common to the run's rows (the holdup's, Δ²·u_rel²; LAG's (se(τ)·dxD/dt)² whole), and gs[i] =
+ * Δ/(dxD/dt), the shift per unit slope (0 where not compensated by STAGES), whose error is
+ * local in time (holdup_window_slope_var). */
+int holdup_compensate_split(const stagecal_runlog *log, const stagecal_holdup_model *hm,
+                            const stagecal_holdup_params *params, double *xd_ss, double *u2_extra,
+                            double *gs, stagecal_error *err);
+
+/* Weights w[k − a], k in [a, b], with Σ w·x = holdup_local_slope's slope at t[c]; x NULL:
+ * every point, else those with x and t finite (the others weigh 0). 0 when fewer than 3 points
+ * or singular. */
+int holdup_slope_weights(const double *t, const double *x, size_t a, size_t b, size_t c, double *w);
+
+/* The variance of the mean over rows [first, last] (divided by all of them, as the window's
+ * mean compensation variance) of gs[i]·(the slope error of row i) at the analyser's noise u_xd:
+ * each row's dxD/dt is a weighted sum of the readings (the default local quadratics of the
+ * compensation, stretch by stretch), so the mean is u_xd²·Σ_k c_k² with c_k the summed weights
+ * of reading k. The slopes' errors of neighbouring rows share readings and those a local
+ * quadratic's slope gives cancel over a long window (its weights sum to 0), so this is far
+ * below the rows' mean (gs·se(dxD/dt))². ENOMEM only. */
+int holdup_window_slope_var(const stagecal_runlog *log, size_t first, size_t last, const double *gs,
+                            double u_xd, double *var);
 
 #endif

@@ -83,39 +83,9 @@ static int agrees(const stagecal_vle *vle, double reflux, double xd_ss, size_t n
            fabs(x - first) <= tol;
 }
 
-/* Weights w[k − a], k in [a, b], with Σ w·x = the slope at t[c] of the least-squares quadratic
- * through (t[k], x[k]) (holdup_local_slope's, all points finite); 0 when singular. */
-static int slope_weights(const double *t, size_t a, size_t b, size_t c, double *w)
-{
-    double sm[5] = {0}, scale = 0;
-    for (size_t k = a; k <= b; k++)
-        scale = fmax(scale, fabs(t[k] - t[c]));
-    if (b < a + 2 || !(scale > 0))
-        return 0;
-    for (size_t k = a; k <= b; k++) {
-        double v = (t[k] - t[c]) / scale, q = 1;
-        for (int j = 0; j < 5; j++, q *= v)
-            sm[j] += q;
-    }
-    double m3[9] = {sm[0], sm[1], sm[2], sm[1], sm[2], sm[3], sm[2], sm[3], sm[4]}, inv[9];
-    gsl_matrix_view mv = gsl_matrix_view_array(m3, 3, 3), iv = gsl_matrix_view_array(inv, 3, 3);
-    gsl_permutation *perm = gsl_permutation_alloc(3);
-    int sign, ok = perm && gsl_linalg_LU_decomp(&mv.matrix, perm, &sign) == GSL_SUCCESS &&
-                   fabs(gsl_linalg_LU_det(&mv.matrix, sign)) > 1e-12 &&
-                   gsl_linalg_LU_invert(&mv.matrix, perm, &iv.matrix) == GSL_SUCCESS;
-    gsl_permutation_free(perm);
-    if (!ok)
-        return 0;
-    for (size_t k = a; k <= b; k++) {
-        double v = (t[k] - t[c]) / scale;
-        w[k - a] = (inv[3] + inv[4] * v + inv[5] * v * v) / scale;
-    }
-    return 1;
-}
-
 int holdup_refine_stretch(const stagecal_runlog *log, size_t s, size_t e, const stagecal_vle *vle,
                           double holdup_mol, double drum_mol, const stagecal_holdup_params *par,
-                          double u_xd, double *xd_ss, double *u2)
+                          double u_xd, double *xd_ss, double *u2, double *gs)
 {
     size_t rows = e - s;
     double reflux = runlog_rset(log, s), m = reflux / (reflux + 1);
@@ -168,7 +138,7 @@ int holdup_refine_stretch(const stagecal_runlog *log, size_t s, size_t e, const 
             size_t nd = np[r], nmin = nd, j;
             for (size_t k = a; k <= b; k++)
                 nmin = np[k - s] < nmin ? np[k - s] : nmin;
-            if (!slope_weights(log->t_s, a, b, i, w))
+            if (!holdup_slope_weights(log->t_s, NULL, a, b, i, w))
                 continue;
             for (j = 0; j < nd; j++) {
                 if (j < nmin) { /* every neighbour has this liquid */
@@ -214,6 +184,8 @@ int holdup_refine_stretch(const stagecal_runlog *log, size_t s, size_t e, const 
             xd_ss[s + r] = NAN;
             if (u2)
                 u2[s + r] = 0;
+            if (gs)
+                gs[s + r] = 0;
             continue;
         }
         /* a kept row takes the second order's increment over the first, both on the smoothed

@@ -128,7 +128,8 @@ static void run_counts(const stagecal_runlog *log, const stagecal_column *col, c
  * holdups and their relative uncertainties stay in out->run_h, out->run_u. */
 static int holdup_from_runs(const stagecal_runlog *log, const stagecal_column *col,
                             const stagecal_holdup_tau *su, stagecal_holdup_model *hm,
-                            holdup_resolved *out, double *xd, double *u2, stagecal_error *err)
+                            holdup_resolved *out, double *xd, double *u2, double *gs,
+                            stagecal_error *err)
 {
     size_t nr = log->nruns ? log->nruns : 1;
     double *n_run = malloc((nr + (log->n ? log->n : 1)) * sizeof *n_run), *scratch = n_run + nr;
@@ -145,7 +146,7 @@ static int holdup_from_runs(const stagecal_runlog *log, const stagecal_column *c
                                    &hm->holdup_mol, &hm->u_rel, err)))
             break;
         hm->run_holdup_mol = out->run_h, hm->run_u_rel = out->run_u;
-        rc = stagecal_holdup_compensate(log, hm, NULL, xd, u2, err);
+        rc = holdup_compensate_split(log, hm, NULL, xd, u2, gs, err);
         if (round < 2 && rc == STAGECAL_OK)
             run_counts(log, col, xd, scratch, n_run);
     }
@@ -168,7 +169,7 @@ void holdup_resolved_free(holdup_resolved *h)
 }
 
 int holdup_resolve(const stagecal_runlog *log, const stagecal_column *col, int want,
-                   holdup_resolved *out, double *xd, double *u2, stagecal_error *err)
+                   holdup_resolved *out, double *xd, double *u2, double *gs, stagecal_error *err)
 {
     size_t nr = log->nruns ? log->nruns : 1;
     *out = (holdup_resolved){0};
@@ -199,9 +200,9 @@ int holdup_resolve(const stagecal_runlog *log, const stagecal_column *col, int w
         out->run_h[k] = hm.holdup_mol, out->run_u[k] = hm.u_rel;
     if (rc == STAGECAL_OK && hm.kind == STAGECAL_HOLDUP_COMP_STAGES && !(hm.holdup_mol > 0) &&
         !(hm.drum_mol > 0))
-        rc = holdup_from_runs(log, col, su, &hm, out, xd, u2, err);
+        rc = holdup_from_runs(log, col, su, &hm, out, xd, u2, gs, err);
     else if (rc == STAGECAL_OK)
-        rc = stagecal_holdup_compensate(log, &hm, NULL, xd, u2, err);
+        rc = holdup_compensate_split(log, &hm, NULL, xd, u2, gs, err);
     free(su);
     return rc;
 }

@@ -661,7 +661,7 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
     }
     /* the compensated distillate the evidence will use (the same compensation) */
     holdup_resolved hr;
-    int rc = holdup_resolve(log, col, par->holdup, &hr, xd_ss, u2, err);
+    int rc = holdup_resolve(log, col, par->holdup, &hr, xd_ss, u2, NULL, err);
     stagecal_physics *own = ph ? NULL : stagecal_physics_alloc(col, NULL, NULL);
     if (!ph)
         ph = own; /* NULL when that failed: the plain model */
