@@ -184,7 +184,10 @@ typedef struct {
 /* Compensated distillate, one value per row of log (xd_ss), and the extra variance of the
  * compensation (u2_extra, may be NULL): LAG (se(τ)·dxD/dt)²; STAGES Δ²·(u_rel² +
  * (se(dxD/dt)/dxD/dt)²) with Δ = xd_ss − xD (the shift is linear in both to first order),
- * se(dxD/dt) from the local quadratic's residuals (u_xd a floor). A run's total-reflux start-up is
+ * se(dxD/dt) from the local quadratic's residuals (u_xd a floor). That is one row's variance: the
+ * slope's errors of neighbouring rows largely cancel in a mean over rows, so calibration takes
+ * only the u_rel part as common to a window's rows and the slope's part as that of the window's
+ * mean (docs/methods.md, "Column holdup"). A run's total-reflux start-up is
  * the column's own transient, not a steady state: with a compensation (LAG or STAGES) its rows are
  * still settling (xd_ss NAN) until settle_factor·τ·ln(|b|/(0.1·u_xd)) after its first row, τ and b
  * of the run's start-up fit (when it is ok; u_xd 0: 10⁻³·|b| for 0.1·u_xd), so the fitted rise has
