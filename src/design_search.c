@@ -45,11 +45,6 @@ typedef struct {
     size_t evals;
 } search;
 
-static double lv_of(double r)
-{
-    return isinf(r) ? 1.0 : r / (r + 1);
-}
-
 static double r_of(double lv)
 {
     return lv >= 1 ? INFINITY : lv / (1 - lv);

@@ -7,6 +7,7 @@
 #include "stagecal/error.h"
 #include "banned.h"
 
+#include <math.h>
 #include <string.h>
 
 #if defined(__GNUC__)
@@ -41,6 +42,13 @@ double stages_fraction_target(double x_prev, double xn, double yn, double m, dou
 
 /* Copies the NUL-terminated src into dst of cap bytes; −1 (dst untouched) when it does
  * not fit. */
+/* The liquid-to-vapour ratio L/V = R/(R + 1) of a reflux ratio R ≥ 0 (total reflux: 1), the
+ * bounded coordinate of R that envelopes and the scatter function use. */
+static inline double lv_of(double r)
+{
+    return isinf(r) ? 1.0 : r / (r + 1.0);
+}
+
 static inline int copy_text(char *dst, size_t cap, const char *src)
 {
     size_t n = strlen(src);

@@ -428,11 +428,6 @@ int stagecal_model_check(const stagecal_model *m, stagecal_error *err)
 
 /* ---- evaluation ----------------------------------------------------------------------- */
 
-static double lv_of(double r)
-{
-    return isinf(r) ? 1.0 : r / (r + 1.0);
-}
-
 int stagecal_model_eval(const stagecal_model *m, double r, double f_load, double level,
                         stagecal_model_point *out, stagecal_error *err)
 {

@@ -16,11 +16,6 @@
 
 #include "internal.h"
 
-static double lv_of(double r)
-{
-    return isinf(r) ? 1.0 : r / (r + 1.0);
-}
-
 static double poly(const stagecal_scatter *s, double lv)
 {
     double v = 0;
@@ -29,19 +24,24 @@ static double poly(const stagecal_scatter *s, double lv)
     return v;
 }
 
+/* λ of r clamped to the function's fitted range. */
+static double lv_in_range(const stagecal_scatter *s, double r)
+{
+    return fmin(fmax(lv_of(r), s->lv_lo), s->lv_hi);
+}
+
 double stagecal_scatter_sd(const stagecal_scatter *s, double r)
 {
     if (!s || s->n == 0 || isnan(r))
         return NAN;
-    double lv = fmin(fmax(lv_of(r), s->lv_lo), s->lv_hi);
-    return exp(poly(s, lv));
+    return exp(poly(s, lv_in_range(s, r)));
 }
 
 double stagecal_scatter_dof(const stagecal_scatter *s, double r)
 {
     if (!s || s->n == 0 || isnan(r))
         return NAN;
-    double lv = fmin(fmax(lv_of(r), s->lv_lo), s->lv_hi), g[STAGECAL_SCATTER_MAXC], v = 0;
+    double lv = lv_in_range(s, r), g[STAGECAL_SCATTER_MAXC], v = 0;
     for (size_t k = 0; k < s->n; k++)
         g[k] = k == 0 ? 1.0 : g[k - 1] * lv;
     for (size_t i = 0; i < s->n; i++)
