@@ -284,6 +284,7 @@ static int run_fits(stagecal_calibration *cal, const stagecal_calibrate_params *
     rp.level = par->level;
     rp.bootstrap = par->bootstrap;
     rp.seed = par->seed;
+    rp.threads = par->threads;
     rp.robust = par->robust;
     rp.cov_kind = par->cov_kind;
     rp.allow_undetermined = par->allow_undetermined;
@@ -538,7 +539,8 @@ static int run_chain(stagecal_calibration *cal, const char *column_path,
     ap.holdup = par->evidence.holdup == STAGECAL_HOLDUP_COMP_NONE ? STAGECAL_EVIDENCE_HOLDUP_AUTO
                                                                   : par->evidence.holdup;
     if ((rc = stagecal_runlog_analyse(cal->log, cal->column, &ap, &cal->res, err)) ||
-        (rc = stagecal_runlog_invert(cal->log, cal->column, par->murphree, &ap, &cal->res, err)))
+        (rc = runlog_invert_threads(cal->log, cal->column, par->murphree, &ap, NULL, par->threads,
+                                    &cal->res, err)))
         return rc;
     progress(par, "windows", 0.5);
     unsigned char *skip = calloc(cal->log->nruns ? cal->log->nruns : 1, 1);

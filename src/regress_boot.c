@@ -2,6 +2,13 @@
  * regress_boot.c — bootstrap of the stage-space fit: case or residual resampling,
  * percentile intervals (Efron & Tibshirani 1993, ch. 6, 13); RNG gsl_rng_mt19937 with the
  * caller's seed.
+ *
+ * Two cores (params.threads): the one RNG draws the resamples' indices in the calling thread,
+ * in the order a one-thread loop draws them (resample by resample, point by point), a chunk of
+ * resamples at a time; the chunk's refits then run on the threads (parallel.h), each keeping
+ * its θ and status at its resample's index; the estimates are gathered in resample order. So
+ * every resample is the same data set and the same fit for any number of threads, and the
+ * intervals are the same doubles.
  */
 #include <math.h>
 #include <stdlib.h>
@@ -12,23 +19,91 @@
 #include <gsl/gsl_statistics_double.h>
 
 #include "internal.h"
+#include "parallel.h"
 #include "regress_internal.h"
+
+/* Indices drawn ahead of the fits, at most (2 MB of them): the chunk's resamples */
+#define BOOT_CHUNK_INDICES ((size_t)1 << 18)
+
+struct boot_job {
+    const pts *d;
+    const stagecal_regress_params *bp; /* the refits' parameters */
+    const stagecal_regress_result *res;
+    double infl;       /* residual resampling's inflation sqrt(n/(n − p)) */
+    const size_t *idx; /* chunk × n drawn indices */
+    double *scratch;   /* 6n per thread */
+    double *theta;     /* chunk × p estimates */
+    int *status;       /* chunk refit statuses */
+};
+
+/* Resample `item` of the chunk: its data set from the drawn indices, then its refit. */
+static int boot_one(void *ctx, size_t item, size_t worker, stagecal_error *err)
+{
+    struct boot_job *bj = ctx;
+    const pts *d = bj->d;
+    const stagecal_regress_result *res = bj->res;
+    size_t n = d->n, p = d->form->p;
+    const size_t *idx = bj->idx + item * n;
+    double *r = bj->scratch + worker * 6 * n, *f = r + n, *y = f + n, *w = y + n, *wrob = w + n,
+           *wtot = wrob + n;
+    (void)err;
+    for (size_t i = 0; i < n; i++) {
+        size_t j = idx[i];
+        if (bj->bp->boot_kind == STAGECAL_BOOT_CASE) {
+            r[i] = d->r[j];
+            f[i] = pt_f(d, j);
+            y[i] = d->y[j];
+            w[i] = d->w[j];
+        } else {
+            double mj, mi;
+            stagecal_form_eval(d->form, res->theta, d->r[j], pt_f(d, j), &mj, NULL);
+            stagecal_form_eval(d->form, res->theta, d->r[i], pt_f(d, i), &mi, NULL);
+            double e_std = sqrt(d->w[j]) * (d->y[j] - mj) * bj->infl;
+            r[i] = d->r[i];
+            f[i] = pt_f(d, i);
+            y[i] = mi + e_std / sqrt(d->w[i]);
+            w[i] = d->w[i];
+        }
+    }
+    pts bd = *d;
+    bd.r = r;
+    bd.f = d->f ? f : NULL;
+    bd.y = y;
+    bd.w = w;
+    double scale;
+    size_t it;
+    fitinfo fi;
+    /* Start from the full-data estimate: resamples lie near it. */
+    double th[STAGECAL_FORM_MAXP];
+    bj->status[item] =
+        regress_estimate(&bd, bj->bp, res->theta, th, &fi, wrob, wtot, &scale, &it, NULL);
+    memcpy(bj->theta + item * p, th, p * sizeof *th);
+    return STAGECAL_OK; /* the status is read in resample order */
+}
 
 int regress_bootstrap(const pts *d, const stagecal_regress_params *prm,
                       stagecal_regress_result *res, stagecal_error *err)
 {
-    size_t n = d->n, p = d->form->p, B = prm->bootstrap;
+    size_t n = d->n, p = d->form->p, B = prm->bootstrap, nth = prm->threads;
     int rc = STAGECAL_OK;
-    double *buf = malloc((6 * n + B * p + B) * sizeof *buf);
+    if (nth > 64)
+        nth = 64;
+    size_t chunk = n > 0 && BOOT_CHUNK_INDICES / n > 0 ? BOOT_CHUNK_INDICES / n : 1;
+    if (chunk > B)
+        chunk = B;
+    double *buf = malloc(((nth + 1) * 6 * n + B * p + B + chunk * p) * sizeof *buf);
+    size_t *idx = malloc((chunk * n > 0 ? chunk * n : 1) * sizeof *idx);
+    int *status = malloc((chunk ? chunk : 1) * sizeof *status);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
-    if (!buf || !rng) {
+    if (!buf || !idx || !status || !rng) {
         free(buf);
+        free(idx);
+        free(status);
         gsl_rng_free(rng);
         return error_set(err, STAGECAL_ENOMEM, "regress: out of memory for %zu resamples", B);
     }
-    double *r = buf, *f = r + n, *y = f + n, *w = y + n, *wrob = w + n, *wtot = wrob + n;
-    double *thetas = wtot + n, *col = thetas + B * p;
-    double e_std;
+    double *scratch = buf, *thetas = scratch + (nth + 1) * 6 * n, *col = thetas + B * p,
+           *cth = col + B;
     gsl_rng_set(rng, prm->seed);
     stagecal_regress_params bp = *prm;
     bp.theta0 = NULL;
@@ -40,45 +115,25 @@ int regress_bootstrap(const pts *d, const stagecal_regress_params *prm,
     bp.polish_steps = 0;
     /* Standardised residuals, inflated by sqrt(n/(n−p)) so that their variance matches
      * σ² (Davison & Hinkley 1997, §6.2.3; leverage adjustment omitted). */
-    double infl = sqrt((double)n / (double)(n - p));
+    struct boot_job bj = {d,   &bp,     res, sqrt((double)n / (double)(n - p)),
+                          idx, scratch, cth, status};
     size_t ok = 0;
-    for (size_t b = 0; b < B; b++) {
-        pts bd = *d;
-        for (size_t i = 0; i < n; i++) {
-            size_t j = gsl_rng_uniform_int(rng, n);
-            if (prm->boot_kind == STAGECAL_BOOT_CASE) {
-                r[i] = d->r[j];
-                f[i] = pt_f(d, j);
-                y[i] = d->y[j];
-                w[i] = d->w[j];
-            } else {
-                double mj, mi;
-                stagecal_form_eval(d->form, res->theta, d->r[j], pt_f(d, j), &mj, NULL);
-                stagecal_form_eval(d->form, res->theta, d->r[i], pt_f(d, i), &mi, NULL);
-                e_std = sqrt(d->w[j]) * (d->y[j] - mj) * infl;
-                r[i] = d->r[i];
-                f[i] = pt_f(d, i);
-                y[i] = mi + e_std / sqrt(d->w[i]);
-                w[i] = d->w[i];
+    for (size_t b0 = 0; b0 < B; b0 += chunk) {
+        size_t m = B - b0 < chunk ? B - b0 : chunk;
+        /* the draws of resamples b0 .. b0 + m − 1, in the one-thread order */
+        for (size_t k = 0; k < m * n; k++)
+            idx[k] = gsl_rng_uniform_int(rng, n);
+        parallel_for(m, nth, boot_one, &bj, NULL);
+        for (size_t k = 0; k < m; k++) {
+            if (status[k] == STAGECAL_ENOMEM) {
+                rc = error_set(err, STAGECAL_ENOMEM, "regress: out of memory in the bootstrap");
+                goto done;
             }
+            if (status[k] != STAGECAL_OK)
+                continue;
+            memcpy(thetas + ok * p, cth + k * p, p * sizeof *thetas);
+            ok++;
         }
-        bd.r = r;
-        bd.f = d->f ? f : NULL;
-        bd.y = y;
-        bd.w = w;
-        double th[STAGECAL_FORM_MAXP], scale;
-        size_t it;
-        fitinfo fi;
-        /* Start from the full-data estimate: resamples lie near it. */
-        int frc = regress_estimate(&bd, &bp, res->theta, th, &fi, wrob, wtot, &scale, &it, NULL);
-        if (frc == STAGECAL_ENOMEM) {
-            rc = error_set(err, frc, "regress: out of memory in the bootstrap");
-            goto done;
-        }
-        if (frc != STAGECAL_OK)
-            continue;
-        memcpy(thetas + ok * p, th, p * sizeof *th);
-        ok++;
     }
     res->boot_ok = ok;
     if (ok < 2) {
@@ -96,6 +151,8 @@ int regress_bootstrap(const pts *d, const stagecal_regress_params *prm,
     }
 done:
     free(buf);
+    free(idx);
+    free(status);
     gsl_rng_free(rng);
     return rc;
 }

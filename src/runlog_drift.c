@@ -53,6 +53,7 @@
 
 #include "holdup_internal.h"
 #include "internal.h"
+#include "parallel.h"
 #include "runlog_internal.h"
 #include "stagecal/holdup.h"
 #include "stagecal/physics.h"
@@ -642,18 +643,62 @@ static double hold_u_rel(const holdup_resolved *hr, size_t k)
     return 0;
 }
 
-int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double murphree,
-                 const stagecal_runlog_analysis_params *par, stagecal_physics *ph,
-                 stagecal_runlog_result *res, stagecal_error *err)
+struct drift_job {
+    const stagecal_runlog *log;
+    const stagecal_column *col;
+    double murphree;
+    const stagecal_runlog_analysis_params *par;
+    stagecal_physics *const *phs; /* one per thread */
+    stagecal_runlog_result *res;
+    const holdup_resolved *hr;
+    const double *xd_ss, *u2;
+    size_t maxrun;
+    double *scr;  /* 12·maxrun per thread */
+    int32_t *win; /* maxrun per thread */
+};
+
+/* Run k's boil-up check, signatures and decision, in res->closures[k] alone. */
+static int drift_run(void *ctx, size_t k, size_t worker, stagecal_error *err)
 {
-    size_t maxrun = 1, n = log->n ? log->n : 1;
+    const struct drift_job *j = ctx;
+    const stagecal_runlog *log = j->log;
+    const holdup_resolved *hr = j->hr;
+    size_t maxrun = j->maxrun;
+    double *scr = j->scr + worker * 12 * maxrun;
+    double *light = scr + 10 * maxrun, *lh = scr + 11 * maxrun;
+    int32_t *win = j->win + worker * maxrun;
+    stagecal_runlog_closure *c = &j->res->closures[k];
+    const stagecal_runlog_run *run = &log->runs[k];
+    (void)err;
+    runlog_boilup(log, j->col, j->par, j->res, k);
+    runlog_drift_clear(c);
+    if (run->n < 2)
+        return STAGECAL_OK;
+    double uh = hold_u_rel(hr, k);
+    int stg = hr->kind == STAGECAL_HOLDUP_COMP_STAGES;
+    column_light(log, j->col, hr, j->xd_ss, k, light, lh);
+    balance_sigs(log, j->col, j->par, j->res, k, light, lh, stg ? hr->run_h[k] : 0, stg ? uh : 0,
+                 stg, scr, scr + maxrun, scr + 2 * maxrun, scr + 3 * maxrun, scr + 4 * maxrun);
+    stage_sigs(log, j->col, j->phs[worker], j->murphree, j->res, j->xd_ss, j->u2, uh, k, scr,
+               maxrun, win);
+    c->z_limit = limit_trend(log, j->res, k);
+    c->z_bound = bound_sign(log, j->res, k);
+    double span = (log->t_s[run->first + run->n - 1] - log->t_s[run->first]) / 3600.0;
+    decide(j->col, j->par, span, c);
+    return STAGECAL_OK;
+}
+
+int runlog_drift_threads(const stagecal_runlog *log, const stagecal_column *col, double murphree,
+                         const stagecal_runlog_analysis_params *par, stagecal_physics *const *phs,
+                         size_t nthreads, stagecal_runlog_result *res, stagecal_error *err)
+{
+    size_t maxrun = 1, n = log->n ? log->n : 1, nt = nthreads + 1;
     for (size_t k = 0; k < log->nruns; k++)
         maxrun = log->runs[k].n > maxrun ? log->runs[k].n : maxrun;
-    /* 10 arrays of scratch, the run's light and lh: per run; the compensated distillate and
-     * its variance: per row of the log (the compensation pools across runs) */
-    double *scr = malloc(12 * maxrun * sizeof *scr);
-    double *light = scr ? scr + 10 * maxrun : NULL, *lh = scr ? scr + 11 * maxrun : NULL;
-    int32_t *win = malloc(maxrun * sizeof *win);
+    /* per thread 10 arrays of scratch, the run's light and lh: per run; the compensated
+     * distillate and its variance: per row of the log (the compensation pools across runs) */
+    double *scr = malloc(nt * 12 * maxrun * sizeof *scr);
+    int32_t *win = malloc(nt * maxrun * sizeof *win);
     double *xd_ss = malloc(2 * n * sizeof *xd_ss), *u2 = xd_ss ? xd_ss + n : NULL;
     if (!scr || !win || !xd_ss) {
         free(scr), free(win), free(xd_ss);
@@ -662,30 +707,24 @@ int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double 
     /* the compensated distillate the evidence will use (the same compensation) */
     holdup_resolved hr;
     int rc = holdup_resolve(log, col, par->holdup, &hr, xd_ss, u2, NULL, err);
+    if (rc == STAGECAL_OK) {
+        struct drift_job j = {log, col, murphree, par, phs, res, &hr, xd_ss, u2, maxrun, scr, win};
+        rc = parallel_for(log->nruns, nthreads, drift_run, &j, err);
+    }
+    holdup_resolved_free(&hr);
+    free(scr), free(win), free(xd_ss);
+    return rc;
+}
+
+int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double murphree,
+                 const stagecal_runlog_analysis_params *par, stagecal_physics *ph,
+                 stagecal_runlog_result *res, stagecal_error *err)
+{
     stagecal_physics *own = ph ? NULL : stagecal_physics_alloc(col, NULL, NULL);
     if (!ph)
         ph = own; /* NULL when that failed: the plain model */
-    for (size_t k = 0; k < log->nruns && rc == STAGECAL_OK; k++) {
-        stagecal_runlog_closure *c = &res->closures[k];
-        const stagecal_runlog_run *run = &log->runs[k];
-        runlog_boilup(log, col, par, res, k);
-        runlog_drift_clear(c);
-        if (run->n < 2)
-            continue;
-        double uh = hold_u_rel(&hr, k);
-        int stg = hr.kind == STAGECAL_HOLDUP_COMP_STAGES;
-        column_light(log, col, &hr, xd_ss, k, light, lh);
-        balance_sigs(log, col, par, res, k, light, lh, stg ? hr.run_h[k] : 0, stg ? uh : 0, stg,
-                     scr, scr + maxrun, scr + 2 * maxrun, scr + 3 * maxrun, scr + 4 * maxrun);
-        stage_sigs(log, col, ph, murphree, res, xd_ss, u2, uh, k, scr, maxrun, win);
-        c->z_limit = limit_trend(log, res, k);
-        c->z_bound = bound_sign(log, res, k);
-        double span = (log->t_s[run->first + run->n - 1] - log->t_s[run->first]) / 3600.0;
-        decide(col, par, span, c);
-    }
-    holdup_resolved_free(&hr);
+    int rc = runlog_drift_threads(log, col, murphree, par, &ph, 0, res, err);
     stagecal_physics_free(own);
-    free(scr), free(win), free(xd_ss);
     return rc;
 }
 

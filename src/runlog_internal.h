@@ -152,6 +152,13 @@ int runlog_windows(const stagecal_runlog *log, const stagecal_column *col,
 int runlog_invert_with(const stagecal_runlog *log, const stagecal_column *col, double murphree,
                        const stagecal_runlog_analysis_params *params, stagecal_physics *ph,
                        stagecal_runlog_result *res, stagecal_error *err);
+/* runlog_invert_with on the calling thread and nthreads more (parallel.h): the rows' inversions
+ * in blocks of rows, the drift checks run by run, each thread with physics models of its own
+ * (ph, or NULL, for the calling one). The same result for any nthreads: every row's and every
+ * run's numbers are computed from that row or run alone, in the same operations. */
+int runlog_invert_threads(const stagecal_runlog *log, const stagecal_column *col, double murphree,
+                          const stagecal_runlog_analysis_params *params, stagecal_physics *ph,
+                          size_t nthreads, stagecal_runlog_result *res, stagecal_error *err);
 
 /* Writes the CSV rows of log and res (stagecal_runlog_write_csv), the window column offset
  * by window_base (the windows of the runs written before), the header row first when
@@ -172,6 +179,12 @@ void runlog_boilup(const stagecal_runlog *log, const stagecal_column *col,
 int runlog_drift(const stagecal_runlog *log, const stagecal_column *col, double murphree,
                  const stagecal_runlog_analysis_params *par, stagecal_physics *ph,
                  stagecal_runlog_result *res, stagecal_error *err);
+/* runlog_drift with the runs shared among the calling thread and nthreads more; phs[t] the
+ * physics models of thread t (nthreads + 1 of them, none NULL). The same result for any
+ * nthreads (each run's signatures and decision are its own). */
+int runlog_drift_threads(const stagecal_runlog *log, const stagecal_column *col, double murphree,
+                         const stagecal_runlog_analysis_params *par, stagecal_physics *const *phs,
+                         size_t nthreads, stagecal_runlog_result *res, stagecal_error *err);
 /* The light component held up in the column and the reflux drum when the column file
  * states them [mol]: column_mol·½(xD + xB) (a straight profile between the ends) +
  * drum_mol·xD (a well-mixed drum is the distillate). It belongs to the Rayleigh balance's

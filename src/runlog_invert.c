@@ -24,6 +24,7 @@
 #include <string.h>
 
 #include "internal.h"
+#include "parallel.h"
 #include "runlog_internal.h"
 #include "stagecal/physics.h"
 #include "stagecal/stages.h"
@@ -223,9 +224,71 @@ int stagecal_runlog_invert_physics(const stagecal_runlog *log, const stagecal_co
     return runlog_invert_with(log, col, murphree, params, ph, res, err);
 }
 
+/* Rows per item of the threaded row loop: large enough that handing out blocks costs
+ * nothing, small enough that the two threads finish together. */
+#define INVERT_BLOCK_ROWS 512
+
+struct row_job {
+    const stagecal_runlog *log;
+    const stagecal_column *col;
+    struct inv_ctx *ctx; /* one per thread (its own physics models) */
+    int have_m;
+};
+
+/* Inversion and vapour load of row i (writes res at i alone). */
+static void row_work(struct inv_ctx *c, const stagecal_column *col, int have_m, size_t i)
+{
+    const stagecal_runlog *log = c->log;
+    stagecal_runlog_result *res = c->res;
+    const stagecal_system *sys = &col->system;
+    double r = runlog_rset(log, i); /* the set point of a measured R */
+    int no_draw = isfinite(r) && (res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX);
+    invert_row(c, i, no_draw ? INFINITY : r);
+    if (no_draw && res->status[i] == STAGECAL_STAGES_OK)
+        res->note[i] = STAGECAL_NOTE_NO_DISTILLATE;
+    /* vapour load */
+    double v = log->v_mol_s ? log->v_mol_s[i] : NAN;
+    double p = log->p_pa && isfinite(log->p_pa[i]) ? log->p_pa[i] : sys->p_pa;
+    double t = log->t_top_k ? log->t_top_k[i] : NAN;
+    double xd = log->xd[i];
+    /* the bubble point (a root solve for activity models) only when it can be used */
+    if (isnan(t) && isfinite(xd) && isfinite(v) && have_m &&
+        stagecal_vle_tbubble(sys->vle, xd, &t) != STAGECAL_OK)
+        t = NAN;
+    double f;
+    if (have_m && isfinite(xd) &&
+        stagecal_runlog_f_factor(v, xd * sys->m_light + (1 - xd) * sys->m_heavy, p, t,
+                                 col->diameter_m, &f, NULL) == STAGECAL_OK) {
+        res->f_factor[i] = f;
+    } else {
+        res->f_factor[i] = NAN;
+        if (res->note[i] == STAGECAL_NOTE_NONE)
+            res->note[i] = STAGECAL_NOTE_NO_LOAD;
+    }
+}
+
+static int row_block(void *ctx, size_t item, size_t worker, stagecal_error *err)
+{
+    const struct row_job *j = ctx;
+    size_t i0 = item * INVERT_BLOCK_ROWS, i1 = i0 + INVERT_BLOCK_ROWS;
+    if (i1 > j->log->n)
+        i1 = j->log->n;
+    (void)err;
+    for (size_t i = i0; i < i1; i++)
+        row_work(&j->ctx[worker], j->col, j->have_m, i);
+    return STAGECAL_OK;
+}
+
 int runlog_invert_with(const stagecal_runlog *log, const stagecal_column *col, double murphree,
                        const stagecal_runlog_analysis_params *params, stagecal_physics *ph,
                        stagecal_runlog_result *res, stagecal_error *err)
+{
+    return runlog_invert_threads(log, col, murphree, params, ph, 0, res, err);
+}
+
+int runlog_invert_threads(const stagecal_runlog *log, const stagecal_column *col, double murphree,
+                          const stagecal_runlog_analysis_params *params, stagecal_physics *ph,
+                          size_t nthreads, stagecal_runlog_result *res, stagecal_error *err)
 {
     if (!col || !col->system.vle)
         return error_set(err, STAGECAL_EINVAL, "the inversion needs a column with a VLE model");
@@ -233,55 +296,55 @@ int runlog_invert_with(const stagecal_runlog *log, const stagecal_column *col, d
         return error_set(err, STAGECAL_EINVAL, "run stagecal_runlog_analyse on this log first");
     stagecal_runlog_analysis_params par =
         params ? *params : stagecal_runlog_analysis_default_params();
-    struct inv_ctx c = {log, col, murphree, stagecal_stages_default_params(), res, NULL};
-    c.sp.want_sensitivities = 1;
-    stagecal_physics *own = NULL;
-    if (!(c.ph = ph) && !(c.ph = own = stagecal_physics_alloc(col, NULL, err)))
+    if (nthreads > 64)
+        nthreads = 64;
+    size_t nt = nthreads + 1;
+    struct inv_ctx *cs = calloc(nt, sizeof *cs);
+    stagecal_physics **phs = calloc(nt, sizeof *phs), *own = NULL;
+    if (!cs || !phs) {
+        free(cs), free(phs);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    if (!(phs[0] = ph) && !(phs[0] = own = stagecal_physics_alloc(col, NULL, err))) {
+        free(cs), free(phs);
         return err ? err->code : STAGECAL_ENOMEM;
+    }
+    int rc = STAGECAL_OK;
+    for (size_t t = 1; t < nt && rc == STAGECAL_OK; t++) /* the other threads' own models */
+        if (!(phs[t] = stagecal_physics_alloc(col, NULL, err)))
+            rc = err ? err->code : STAGECAL_ENOMEM;
+    for (size_t t = 0; t < nt; t++) {
+        cs[t] = (struct inv_ctx){log, col, murphree, stagecal_stages_default_params(), res, phs[t]};
+        cs[t].sp.want_sensitivities = 1;
+    }
     const stagecal_system *sys = &col->system;
     int have_m = sys->m_light > 0 && sys->m_heavy > 0;
     size_t maxrun = 1;
     for (size_t k = 0; k < log->nruns; k++)
         if (log->runs[k].n > maxrun)
             maxrun = log->runs[k].n;
-    double *st = malloc(maxrun * sizeof *st), *sw = malloc(maxrun * sizeof *sw);
-    if (!st || !sw) {
-        free(st), free(sw);
-        stagecal_physics_free(own);
-        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    double *st = rc ? NULL : malloc(maxrun * sizeof *st),
+           *sw = st ? malloc(maxrun * sizeof *sw) : NULL;
+    if (rc == STAGECAL_OK && (!st || !sw))
+        rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
+    if (rc == STAGECAL_OK) {
+        runlog_mark_no_distillate(log, &par, res, st, sw);
+        struct row_job j = {log, col, cs, have_m};
+        rc = parallel_for((log->n + INVERT_BLOCK_ROWS - 1) / INVERT_BLOCK_ROWS, nthreads, row_block,
+                          &j, err);
     }
-    runlog_mark_no_distillate(log, &par, res, st, sw);
+    int inverted = st && sw;
     free(st), free(sw);
-    for (size_t i = 0; i < log->n; i++) {
-        double r = runlog_rset(log, i); /* the set point of a measured R */
-        int no_draw = isfinite(r) && (res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX);
-        invert_row(&c, i, no_draw ? INFINITY : r);
-        if (no_draw && res->status[i] == STAGECAL_STAGES_OK)
-            res->note[i] = STAGECAL_NOTE_NO_DISTILLATE;
-        /* vapour load */
-        double v = log->v_mol_s ? log->v_mol_s[i] : NAN;
-        double p = log->p_pa && isfinite(log->p_pa[i]) ? log->p_pa[i] : sys->p_pa;
-        double t = log->t_top_k ? log->t_top_k[i] : NAN;
-        double xd = log->xd[i];
-        /* the bubble point (a root solve for activity models) only when it can be used */
-        if (isnan(t) && isfinite(xd) && isfinite(v) && have_m &&
-            stagecal_vle_tbubble(sys->vle, xd, &t) != STAGECAL_OK)
-            t = NAN;
-        double f;
-        if (have_m && isfinite(xd) &&
-            stagecal_runlog_f_factor(v, xd * sys->m_light + (1 - xd) * sys->m_heavy, p, t,
-                                     col->diameter_m, &f, NULL) == STAGECAL_OK) {
-            res->f_factor[i] = f;
-        } else {
-            res->f_factor[i] = NAN;
-            if (res->note[i] == STAGECAL_NOTE_NONE)
-                res->note[i] = STAGECAL_NOTE_NO_LOAD;
-        }
-    }
-    int rc = runlog_windows(log, col, &par, res, err);
-    if (rc == STAGECAL_OK) /* the same physics object: its models at the logged pressures */
-        rc = runlog_drift(log, col, murphree, &par, c.ph, res, err);
+    if (rc == STAGECAL_OK)
+        rc = runlog_windows(log, col, &par, res, err);
+    if (rc == STAGECAL_OK) /* the same physics objects: their models at the logged pressures */
+        rc = runlog_drift_threads(log, col, murphree, &par, phs, nthreads, res, err);
     stagecal_physics_free(own);
+    for (size_t t = 1; t < nt; t++)
+        stagecal_physics_free(phs[t]);
+    free(cs), free(phs);
+    if (!inverted)
+        return rc; /* nothing was inverted */
     memset(res->count, 0, sizeof res->count);
     for (size_t i = 0; i < log->n; i++)
         if (res->status[i] < STAGECAL_RUNLOG_NSTATUS)

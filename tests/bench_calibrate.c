@@ -4,7 +4,9 @@
  * inverted at every sample, fitted in stage and composition space with a 1000-resample
  * bootstrap. Target (issue 17): < 1.5 s on this 2-core machine when idle.
  *
- * Usage: bench_calibrate [ROWS] [BOOTSTRAP] [LOG.csv]   (defaults 500000, 1000)
+ * Usage: bench_calibrate [ROWS] [BOOTSTRAP] [LOG.csv] [THREADS]   (defaults 500000, 1000; THREADS
+ * as `calibrate --threads`: beside the calling one, default the processors online less one,
+ * at least 1, at most 8)
  * Writes its synthetic log to a temporary directory, prints the timings, removes it; with
  * LOG.csv the log is kept there, and read from there when it exists already (generating it
  * takes longer than the calibration; to compare builds on the same log).
@@ -120,6 +122,9 @@ int main(int argc, char **argv)
     stagecal_calibrate_params par = stagecal_calibrate_default_params();
     par.form = "saturating";
     par.bootstrap = (size_t)boot;
+    long online = sysconf(_SC_NPROCESSORS_ONLN) - 1;
+    long threads = argc > 4 ? strtol(argv[4], NULL, 10) : online < 1 ? 1 : online > 8 ? 8 : online;
+    par.threads = threads > 0 ? (size_t)threads : 0;
     stagecal_calibration cal;
     stagecal_error err;
     const char *logs[1] = {logpath};
@@ -136,14 +141,20 @@ int main(int argc, char **argv)
         struct rusage ru;
         getrusage(RUSAGE_SELF, &ru);
         double cpu = (double)(cpu1 - cpu0) / CLOCKS_PER_SEC;
-        printf("rows %zu, runs %zu, windows %zu, bootstrap %ld: calibrate %.3f s wall, %.3f s "
-               "CPU\n",
-               cal.log->n, cal.log->nruns, cal.evidence.n, boot, c1 - c0, cpu);
+        printf("rows %zu, runs %zu, windows %zu, bootstrap %ld, threads %zu: calibrate %.3f s "
+               "wall, %.3f s CPU\n",
+               cal.log->n, cal.log->nruns, cal.evidence.n, boot, par.threads, c1 - c0, cpu);
         printf("%.0f rows/s wall, %.0f rows/s CPU; peak RSS %.1f MB\n",
                (double)cal.log->n / (c1 - c0), (double)cal.log->n / cpu, ru.ru_maxrss / 1024.0);
         printf("a = %.4f ± %.4f, b = %.4f ± %.4f (truth 9, 0.8; %s)\n", cal.model.theta[0],
                sqrt(cal.model.cov[0]), cal.model.theta[1], sqrt(cal.model.cov[3]),
                stagecal_model_method_name(cal.used));
+        /* the stage-space bootstrap (in no calibrate output): to compare builds and threads */
+        const stagecal_regress_result *sf = &cal.stage_fit;
+        printf("stage-space bootstrap: %zu of %zu refits; a [%.17g, %.17g] se %.17g; b [%.17g, "
+               "%.17g] se %.17g\n",
+               sf->boot_ok, sf->boot_b, sf->boot_low[0], sf->boot_high[0], sf->boot_se[0],
+               sf->boot_low[1], sf->boot_high[1], sf->boot_se[1]);
     }
     stagecal_calibration_free(&cal);
     stagecal_vle_free(vle);

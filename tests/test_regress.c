@@ -401,6 +401,53 @@ static void make_saturating(size_t n, unsigned long seed, double *r, double *y, 
     gsl_rng_free(rng);
 }
 
+/* The bootstrap on several threads (params.threads) gives the intervals of one thread bit for
+ * bit, for both resampling kinds: the resamples are drawn in one thread in the same order and
+ * each refit is computed alone (src/regress_boot.c). With 1000 points the 300 resamples' draws
+ * come in two chunks (2^18 indices at most), so the chunk boundary is crossed too. Exact
+ * equality is the contract (docs/performance.md, ninth pass), no tolerance. */
+static void regress_bootstrap_same_on_threads(void **state)
+{
+    (void)state;
+    static const size_t ns[2] = {25, 1000};
+    for (int which = 0; which < 2; which++) {
+        size_t n = ns[which];
+        double *r = malloc(n * sizeof *r), *y = malloc(n * sizeof *y);
+        assert_non_null(r);
+        assert_non_null(y);
+        make_saturating(n, 17, r, y, 0.1);
+        stagecal_regress_data d = {n, r, NULL, y, NULL};
+        stagecal_regress_params prm = stagecal_regress_default_params();
+        prm.bootstrap = 300;
+        prm.band_points = 0;
+        prm.seed = 4021;
+        for (int kind = 0; kind < 2; kind++) {
+            stagecal_regress_result one, two, three;
+            prm.boot_kind = kind ? STAGECAL_BOOT_RESIDUAL : STAGECAL_BOOT_CASE;
+            prm.threads = 0;
+            fit_ok(&d, "saturating", &prm, &one);
+            prm.threads = 1;
+            fit_ok(&d, "saturating", &prm, &two);
+            prm.threads = 3;
+            fit_ok(&d, "saturating", &prm, &three);
+            assert_int_equal(one.boot_ok, 300);
+            assert_int_equal(two.boot_ok, one.boot_ok);
+            assert_int_equal(three.boot_ok, one.boot_ok);
+            assert_memory_equal(one.boot_low, two.boot_low, sizeof one.boot_low);
+            assert_memory_equal(one.boot_high, two.boot_high, sizeof one.boot_high);
+            assert_memory_equal(one.boot_se, two.boot_se, sizeof one.boot_se);
+            assert_memory_equal(one.boot_low, three.boot_low, sizeof one.boot_low);
+            assert_memory_equal(one.boot_high, three.boot_high, sizeof one.boot_high);
+            assert_memory_equal(one.boot_se, three.boot_se, sizeof one.boot_se);
+            stagecal_regress_result_free(&one);
+            stagecal_regress_result_free(&two);
+            stagecal_regress_result_free(&three);
+        }
+        free(r);
+        free(y);
+    }
+}
+
 static void regress_bootstrap_reproducible_for_seed(void **state)
 {
     (void)state;
@@ -788,6 +835,7 @@ int main(void)
         cmocka_unit_test(regress_saturating_load_matches_scipy_curve_fit),
         cmocka_unit_test(regress_constant_is_weighted_mean),
         cmocka_unit_test(regress_bootstrap_reproducible_for_seed),
+        cmocka_unit_test(regress_bootstrap_same_on_threads),
         cmocka_unit_test(regress_robust_downweights_outlier),
         cmocka_unit_test(regress_aicc_picks_generating_form),
         cmocka_unit_test(regress_band_grid_matches_band_function),

@@ -71,6 +71,10 @@ typedef struct {
     stagecal_evidence_params evidence; /* windows: carried samples, min_ok, pooling */
     size_t bootstrap;                  /* stage-space bootstrap resamples (0) */
     unsigned long seed;                /* bootstrap seed (1) */
+    size_t threads;                    /* threads working beside the calling one on the rows'
+                                          inversions, the runs' drift checks and the
+                                          bootstrap's refits (0: the calling thread alone);
+                                          the results do not depend on it */
     stagecal_robust_kind robust;       /* stage-space robust reweighting (NONE) */
     stagecal_cov_kind cov_kind;        /* covariance of both fits: HC2_BM (default: the HC2
                                           sandwich, the windows' stated errors being right

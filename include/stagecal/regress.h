@@ -101,6 +101,8 @@ typedef struct {
     unsigned long seed;           /* seed of the bootstrap RNG (gsl_rng_mt19937); 1 */
     stagecal_boot_kind boot_kind; /* case or residual resampling; CASE */
     double boot_xtol;             /* step and gradient tolerance of the bootstrap refits; 1e-8 */
+    size_t threads;               /* threads refitting resamples beside the calling one (the
+                                     intervals do not depend on it); 0 */
     size_t band_points;           /* grid points in R for the band; 25 (0 = no band grid) */
 } stagecal_regress_params;
 

@@ -456,3 +456,11 @@ void cli_soft_summary(const char *cmd, const stagecal_runlog_soft *s)
             "inconsistent\n",
             s->checks, s->inconsistent);
 }
+
+long cli_threads(long v)
+{
+    if (v >= 0)
+        return v;
+    long online = sysconf(_SC_NPROCESSORS_ONLN) - 1; /* the calling thread has a core */
+    return online < 1 ? 1 : online > 8 ? 8 : online;
+}

@@ -157,4 +157,8 @@ int cli_check_reflux(const char *opt, double v);   /* R >= 0 or inf */
 int cli_check_output(const char *opt, const char *out, const char *const *inputs, size_t n);
 int cli_check_murphree(const char *opt, double v); /* E_MV in (0, 1] */
 
+/* The threads of an OPT_THREADS option given as v (-1: not given): v, or by default the
+ * processors online less one, at least 1, at most 8. */
+long cli_threads(long v);
+
 #endif

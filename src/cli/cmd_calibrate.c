@@ -642,7 +642,7 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
 {
     stagecal_calibrate_params par = stagecal_calibrate_default_params();
     struct request rq = {NULL, "fits", {NULL, NULL, NULL}, 0};
-    long boot = 0, seed = (long)par.seed;
+    long boot = 0, seed = (long)par.seed, threads = -1;
     int dialect = 0, no_infer = 0;
     int method = 0, robust = -1, holdup = 0, cov = 0, first, rc;
     const struct cli_option opts[] = {
@@ -700,10 +700,13 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
         OPT_MIN_WINDOW(&par.analysis.min_window_s),
         OPT_CSV_DIALECT(&dialect),
         OPT_NO_INFER(&no_infer),
+        OPT_THREADS(&threads, "threads inverting rows, checking runs for drift and refitting\n"
+                              "bootstrap resamples beside the main one"),
         OPT_END_COMMON(ctx),
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))
         return rc;
+    par.threads = (size_t)cli_threads(threads);
     par.bootstrap = (size_t)boot;
     par.read.csv_separator = cli_csv_separator(dialect);
     par.read.infer = !no_infer;

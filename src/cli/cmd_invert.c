@@ -432,10 +432,7 @@ static int invert_rows(int argc, char **argv, int first, const char *out_path, l
     rp.infer = !no_infer;
     if (ctx->json)
         return invert_whole(argc, argv, first, out_path, &rp, ap, murphree, ctx);
-    if (threads < 0) {
-        long online = sysconf(_SC_NPROCESSORS_ONLN) - 1; /* one core reads */
-        threads = online < 1 ? 1 : online > 8 ? 8 : online;
-    }
+    threads = cli_threads(threads); /* one core reads */
     return invert_streamed(argv + first, (size_t)(argc - first), out_path, &rp, ap, murphree,
                            (size_t)threads, ctx);
 }
@@ -461,11 +458,7 @@ int cmd_invert(int argc, char **argv, cli_ctx *ctx)
         OPT_NO_INFER(&no_infer),
         OPT_WARM_UP(&ap.warmup_s),
         OPT_MIN_WINDOW(&ap.min_window_s),
-        OPT_LONG("threads", &threads, "N",
-                 "run logs: threads inverting runs while one reads (default: the\n"
-                 "processors online less one, at least 1, at most 8; 0: one thread does\n"
-                 "everything; the output does not depend on it)",
-                 0, 64),
+        OPT_THREADS(&threads, "run logs: threads inverting runs while one reads"),
         OPT_END_COMMON(ctx),
     };
     int first, rc, cd = 0, cb = 0;

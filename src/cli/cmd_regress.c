@@ -283,7 +283,7 @@ int cmd_regress(int argc, char **argv, cli_ctx *ctx)
     const char *form_name = NULL, *start_text = NULL;
     double start[STAGECAL_FORM_MAXP];
     size_t nstart = 0;
-    long boot = 0, seed = (long)prm.seed, band = (long)prm.band_points;
+    long boot = 0, seed = (long)prm.seed, band = (long)prm.band_points, threads = -1;
     int absolute = 0, resample = 0, robust = -1, first, rc;
     const struct cli_option opts[] = {
         OPT_FORM(&form_name, "constant | saturating | saturating-load | linear:TERMS, with\n"
@@ -295,6 +295,7 @@ int cmd_regress(int argc, char **argv, cli_ctx *ctx)
         OPT_SEED(&seed),
         OPT_CHOICE("resample", &resample, "KIND",
                    "bootstrap by 'case' (default) or 'residual' resampling", resample_names, NULL),
+        OPT_THREADS(&threads, "threads refitting bootstrap resamples beside the main one"),
         OPT_ROBUST(&robust),
         OPT_STRING(0, "start", &start_text, "LIST",
                    "comma-separated start values of the parameters (nonlinear forms)"),
@@ -313,6 +314,7 @@ int cmd_regress(int argc, char **argv, cli_ctx *ctx)
     if (start_text && (rc = parse_start(start_text, start, &nstart)) != 0)
         return rc;
     prm.bootstrap = (size_t)boot;
+    prm.threads = (size_t)cli_threads(threads);
     prm.seed = (unsigned long)seed;
     prm.band_points = (size_t)band;
     prm.boot_kind = resample == 1 ? STAGECAL_BOOT_RESIDUAL : STAGECAL_BOOT_CASE;

@@ -160,6 +160,14 @@ extern const char *const cli_csv_dialects[];
 #define OPT_BOOTSTRAP(v)                                                                           \
     OPT_LONG("bootstrap", (v), "B", "stage-space bootstrap resamples (default 0 = none)", 0,       \
              1000000)
+/* --threads N (invert, calibrate, regress): WHAT is what the threads do beside the calling one;
+ * the default (-1 in v) is cli_threads'. */
+#define OPT_THREADS(v, what)                                                                       \
+    OPT_LONG("threads", (v), "N",                                                                  \
+             what " (default: the\n"                                                               \
+                  "processors online less one, at least 1, at most 8; 0: one thread does\n"        \
+                  "everything; the output does not depend on it)",                                 \
+             0, 64)
 #define OPT_SEED(v)                                                                                \
     OPT_LONG("seed", (v), "S", "seed of the random numbers (default 1)", 0, 2147483647L)
 #define OPT_ROBUST(v)                                                                              \
