@@ -24,6 +24,7 @@
 
 #include "evidence_internal.h"
 #include "internal.h"
+#include "parallel.h"
 #include "stagecal/stages.h"
 
 /* Largest stage count the composition fit will step (keeps a wild trial θ bounded). */
@@ -48,7 +49,10 @@ struct comp_ctx {
     const stagecal_form *form;
     double *scale; /* s_i */
     stagecal_stages_params sp;
-    size_t failures; /* forward steps that did not give an ok pot composition */
+    size_t threads; /* beside the calling one, for the residual vector (params.threads) */
+    /* the residual vector being evaluated (comp_f): θ and f */
+    const double *theta;
+    double *f;
 };
 
 /* The stage count the correlation gives window e at reflux r and θ, kept in [1,
@@ -81,7 +85,6 @@ static double predict_n(struct comp_ctx *c, const stagecal_physics_cond *cond, d
     if (rc != STAGECAL_OK || status != STAGECAL_STAGES_OK) {
         /* No pot composition (an azeotrope in the way): predict "no separation"
          * so that such θ is penalised rather than undefined. */
-        c->failures++;
         xb = xd;
     }
     return logit(xb);
@@ -167,11 +170,28 @@ static double window_residual(struct comp_ctx *c, size_t i, const double *theta)
     return logit(sp / (double)e->m) - logit(sm / (double)e->m);
 }
 
+/* Windows per item of the threaded residual vector. */
+#define COMP_BLOCK 8
+
+/* The residuals of one block of windows (each computed from its window alone). */
+static int comp_block(void *ctx, size_t item, size_t worker, stagecal_error *err)
+{
+    struct comp_ctx *c = ctx;
+    size_t i1 = (item + 1) * COMP_BLOCK < c->n ? (item + 1) * COMP_BLOCK : c->n;
+    (void)worker, (void)err;
+    for (size_t i = item * COMP_BLOCK; i < i1; i++)
+        c->f[i] = window_residual(c, i, c->theta) / c->scale[i];
+    return STAGECAL_OK;
+}
+
+/* The residual vector; its windows shared among the threads (parallel.h), every f[i] the same
+ * double whatever their number. */
 static int comp_f(const double *theta, void *params, double *f)
 {
     struct comp_ctx *c = params;
-    for (size_t i = 0; i < c->n; i++)
-        f[i] = window_residual(c, i, theta) / c->scale[i];
+    c->theta = theta;
+    c->f = f;
+    parallel_for((c->n + COMP_BLOCK - 1) / COMP_BLOCK, c->threads, comp_block, c, NULL);
     return 0;
 }
 
@@ -258,7 +278,9 @@ int stagecal_fit_composition(const stagecal_vle *vle, double murphree, const sta
                              i + 1, ev[i].xb, ev[i].xd);
     }
 
-    struct comp_ctx c = {vle, murphree, ev, n, form, NULL, stagecal_stages_default_params(), 0};
+    struct comp_ctx c = {
+        vle,         murphree, ev,  n, form, NULL, stagecal_stages_default_params(),
+        par.threads, NULL,     NULL};
     c.sp.max_stages = (size_t)COMP_MAX_STAGES + 10;
     c.scale = malloc(n * sizeof *c.scale);
     stagecal_regress_nlin *w = stagecal_regress_nlin_alloc(n, p);

@@ -20,7 +20,7 @@ static const struct cli_usage usage = {
     "usage: stagecal regress POINTS.csv --form NAME|auto [--level P] [--bootstrap B]\n"
     "                        [--seed S] [--resample case|residual] [--robust huber|bisquare]\n"
     "                        [--start V1,V2,...] [--absolute-sigma] [--band-points N]\n"
-    "                        [--json] [--quiet]\n",
+    "                        [--threads N] [--json] [--quiet]\n",
     "Fits effective stages (the pot included) against the reflux ratio R and, where the\n"
     "points carry it, the F-factor F. POINTS.csv has a header 'R,stages' with optional\n"
     "'F' (Pa^0.5) and 'sigma' (standard uncertainty of stages; weights 1/sigma^2);\n"
