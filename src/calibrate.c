@@ -548,6 +548,7 @@ static int run_chain(stagecal_calibration *cal, const char *column_path,
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     stagecal_evidence_params ep = par->evidence;
     ep.skip_run = skip;
+    ep.threads = par->threads;
     if ((rc = flag_runs(cal, par, skip, err)) == STAGECAL_OK)
         rc = stagecal_evidence_build(cal->log, &cal->res, cal->column, par->murphree, &ep,
                                      &cal->evidence, err);

@@ -32,6 +32,7 @@
 #include "evidence_internal.h"
 #include "holdup_internal.h"
 #include "internal.h"
+#include "parallel.h"
 #include "stagecal/stages.h"
 
 /* The local quadratic smoother of evidence_stats.c applied to y, one local fit at a time with
@@ -324,6 +325,40 @@ static double noise_cap(double sd, double stated)
     return stated > 0 && !(sd > 0 && sd < stated) ? stated : sd;
 }
 
+struct window_job {
+    const stagecal_runlog *log;
+    const stagecal_column *col;
+    double murphree;
+    const stagecal_evidence_params *par;
+    stagecal_evidence_set *set;
+    const double *u2, *gs; /* the compensation's variance and gain per row */
+};
+
+/* Window k's error of xD with the compensation's, and its stage count (set->ev[k] alone, so
+ * the windows can share threads: parallel.h). */
+static int window_count(void *ctx, size_t k, size_t worker, stagecal_error *err)
+{
+    const struct window_job *j = ctx;
+    stagecal_evidence *e = &j->set->ev[k];
+    (void)worker;
+    /* the holdup's (or the time constant's) uncertainty is common to the window: add its
+     * mean variance; the slope noise's error is local in time, so its part is that of the
+     * window's mean (holdup_window_slope_var; as a common error it had stated the R = 3
+     * windows' xD error about twice too large on the holdup study: docs/methods.md) */
+    double u2m = 0, vs = 0;
+    for (size_t i = e->first; i <= e->last; i++)
+        u2m += isfinite(j->u2[i]) ? j->u2[i] : 0;
+    if (holdup_window_slope_var(j->log, e->first, e->last, j->gs, j->col->u.xd, &vs) != STAGECAL_OK)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    e->u_xd = sqrt(e->u_xd * e->u_xd + u2m / (double)(e->last - e->first + 1) + vs);
+    int rc = stagecal_evidence_stages(j->col->system.vle, j->murphree, e, err);
+    if (rc != STAGECAL_OK)
+        return rc;
+    if (e->n_ok < j->par->min_ok)
+        e->stages_ok = 0; /* too few samples of the window invert on their own */
+    return STAGECAL_OK;
+}
+
 int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_result *res,
                             const stagecal_column *col, double murphree,
                             const stagecal_evidence_params *params, stagecal_evidence_set *set,
@@ -414,25 +449,9 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
         e->sd_xd = noise_cap(e->sd_xd, stagecal_runlog_u_xd(col, e->xd));
         e->sd_xb = noise_cap(e->sd_xb, stagecal_runlog_u_xb(col, e->xb));
     }
-    for (size_t k = 0; k < set->n && rc == STAGECAL_OK; k++) {
-        stagecal_evidence *e = &set->ev[k];
-        /* the holdup's (or the time constant's) uncertainty is common to the window: add its
-         * mean variance; the slope noise's error is local in time, so its part is that of the
-         * window's mean (holdup_window_slope_var; as a common error it had stated the R = 3
-         * windows' xD error about twice too large on the holdup study: docs/methods.md) */
-        double u2m = 0, vs = 0;
-        for (size_t i = e->first; i <= e->last; i++)
-            u2m += isfinite(u2[i]) ? u2[i] : 0;
-        if (holdup_window_slope_var(log, e->first, e->last, gs, col->u.xd, &vs) != STAGECAL_OK) {
-            rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
-            break;
-        }
-        e->u_xd = sqrt(e->u_xd * e->u_xd + u2m / (double)(e->last - e->first + 1) + vs);
-        rc = stagecal_evidence_stages(col->system.vle, murphree, e, err);
-        if (rc != STAGECAL_OK)
-            break;
-        if (e->n_ok < par.min_ok)
-            e->stages_ok = 0; /* too few samples of the window invert on their own */
+    if (rc == STAGECAL_OK) {
+        struct window_job j = {log, col, murphree, &par, set, u2, gs};
+        rc = parallel_for(set->n, par.threads, window_count, &j, err);
     }
     if (rc == STAGECAL_OK)
         rc = evidence_build_cens(log, xd_src, res, cap, set, err);

@@ -227,6 +227,8 @@ typedef struct {
     const unsigned char *skip_run; /* one per run of the log, non-zero: that run's windows are
                                       left out (a run flagged for a gross error or drift;
                                       calibrate.h); NULL (default): none */
+    size_t threads; /* threads beside the calling one for the windows' stage counts (the
+                       evidence does not depend on it); 0 (default) */
 } stagecal_evidence_params;
 
 #define STAGECAL_EVIDENCE_HOLDUP_AUTO (-1)
