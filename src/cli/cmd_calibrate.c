@@ -700,8 +700,8 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
         OPT_MIN_WINDOW(&par.analysis.min_window_s),
         OPT_CSV_DIALECT(&dialect),
         OPT_NO_INFER(&no_infer),
-        OPT_THREADS(&threads, "threads inverting rows, checking runs for drift and refitting\n"
-                              "bootstrap resamples beside the main one"),
+        OPT_THREADS(&threads, "threads beside the main one: row inversions, drift checks, window\n"
+                              "stage counts, the composition fit and the bootstrap's refits"),
         OPT_END_COMMON(ctx),
     };
     if ((rc = cli_parse(argc, argv, opts, &usage, &first)))

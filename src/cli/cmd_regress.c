@@ -295,7 +295,7 @@ int cmd_regress(int argc, char **argv, cli_ctx *ctx)
         OPT_SEED(&seed),
         OPT_CHOICE("resample", &resample, "KIND",
                    "bootstrap by 'case' (default) or 'residual' resampling", resample_names, NULL),
-        OPT_THREADS(&threads, "threads refitting bootstrap resamples beside the main one"),
+        OPT_THREADS(&threads, "threads refitting the bootstrap's resamples beside the main one"),
         OPT_ROBUST(&robust),
         OPT_STRING(0, "start", &start_text, "LIST",
                    "comma-separated start values of the parameters (nonlinear forms)"),

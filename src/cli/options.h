@@ -164,9 +164,9 @@ extern const char *const cli_csv_dialects[];
  * the default (-1 in v) is cli_threads'. */
 #define OPT_THREADS(v, what)                                                                       \
     OPT_LONG("threads", (v), "N",                                                                  \
-             what " (default: the\n"                                                               \
-                  "processors online less one, at least 1, at most 8; 0: one thread does\n"        \
-                  "everything; the output does not depend on it)",                                 \
+             what " (default:\n"                                                                   \
+                  "the processors online less one, at least 1, at most 8; 0: one thread\n"         \
+                  "does everything; the output does not depend on it)",                            \
              0, 64)
 #define OPT_SEED(v)                                                                                \
     OPT_LONG("seed", (v), "S", "seed of the random numbers (default 1)", 0, 2147483647L)
