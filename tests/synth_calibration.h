@@ -80,10 +80,14 @@ struct synth_fit {
     double dof;  /* n − p */
     double s2;   /* residual variance factor s² = RSS/(n − p) */
     int pi_ok;   /* the prediction bands below were computed (composition-space fit) */
-    double pi_lo[3], pi_hi[3];   /* 95 % prediction band at synth_band_r, as the model file's
-                                    (σ the scatter function at R) */
-    double pi1_lo[3], pi1_hi[3]; /* the same with one σ for every R (before format 4) */
-    double pi_se[3], pi1_se[3];  /* their se_pred */
+    double pi_lo[3], pi_hi[3];      /* 95 % prediction band at synth_band_r, as the model file's
+                                       (σ the scatter function at R) */
+    double pi1_lo[3], pi1_hi[3];    /* the same with one σ for every R (before format 4) */
+    double pi_se[3], pi1_se[3];     /* their se_pred */
+    double pi_sigma[3], pi_sdof[3]; /* σ of the scatter function at R and its dof (capped) */
+    int pi_deg;                     /* coefficients of the scatter function (0: none) */
+    double tr_res[12], tr_se[12];   /* the training windows' count − truth and stated se
+                                       (NAN: no count), for the study's dump */
 };
 
 /* The parameters' estimates and intervals, the t quantile the intervals use (half-width over
@@ -383,6 +387,8 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
             return __LINE__;
         if (few[w])
             ev[w].stages_ok = 0;
+        fc->tr_res[w] = ev[w].stages_ok ? ev[w].stages - synth_law(SYNTH_A, SYNTH_B, rs[w]) : NAN;
+        fc->tr_se[w] = ev[w].stages_ok ? ev[w].se_stages : NAN;
     }
     /* stage space */
     double r[NW], s[NW], sg[NW];
@@ -433,6 +439,9 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
             fc->pi1_hi[q] = b1.pi_high;
             fc->pi_se[q] = bd.se_pred;
             fc->pi1_se[q] = b1.se_pred;
+            fc->pi_sigma[q] = sq;
+            fc->pi_sdof[q] = sdof;
+            fc->pi_deg = (int)sc.n;
         }
         stagecal_regress_result_free(&rc_fit);
     }

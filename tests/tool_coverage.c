@@ -536,6 +536,7 @@ int main(int argc, char **argv)
     enum synth_se_mode mode = SYNTH_SE_ESTIMATED;
     const struct synth_regime *rg = &synth_regimes[0];
     int predict = 0; /* also the prediction bands against one new window each */
+    int dump = 0;    /* predict, and one line per data set and R on stderr (below) */
     long pi_n[3] = {0}, pi_hit[3] = {0}, pi1_hit[3] = {0}, pi_nocount[3] = {0};
     double pi_e2[3] = {0}, pi_s2[3] = {0}, pi1_s2[3] = {0}; /* actual and stated se_pred² */
     if (argc >= 4 && strcmp(argv[3], "measured-r") == 0) {
@@ -578,6 +579,8 @@ int main(int argc, char **argv)
             mode = SYNTH_SE_QUAD, known = 1;
         if (strcmp(argv[a], "predict") == 0)
             predict = 1, known = 1;
+        if (strcmp(argv[a], "dump") == 0)
+            predict = dump = 1, known = 1;
         args_ok = known;
     }
     long reps = args_ok ? strtol(argv[1], &end1, 10) : 0;
@@ -610,6 +613,8 @@ int main(int argc, char **argv)
         }
         tally_add(&ts, &fs);
         tally_add(&tc, &fc);
+        for (int w = 0; w < 12 && dump && fc.pi_ok; w++) /* the training windows */
+            fprintf(stderr, "tr %ld %d %.6g %.6g\n", rep, w, fc.tr_res[w], fc.tr_se[w]);
         for (int q = 0; q < 3 && predict && rc == 0 && fc.pi_ok; q++) {
             double count;
             if ((line = synth_new_window(rng, vle, rg, synth_band_r[q], &count))) {
@@ -619,6 +624,11 @@ int main(int argc, char **argv)
             } else if (isnan(count)) {
                 pi_nocount[q]++;
             } else {
+                if (dump) /* rep, R, new count, truth, fitted curve, se_fit, σ(R), its dof,
+                           * the band, the scatter function's coefficients */
+                    fprintf(stderr, "pi %ld %g %.6g %.6g %.6g %.6g %.6g %.6g %.6g %.6g %d\n", rep,
+                            synth_band_r[q], count, synth_truth(2 + q), fc.est[2 + q], fc.se[2 + q],
+                            fc.pi_sigma[q], fc.pi_sdof[q], fc.pi_lo[q], fc.pi_hi[q], fc.pi_deg);
                 pi_n[q]++;
                 pi_hit[q] += fc.pi_lo[q] <= count && count <= fc.pi_hi[q];
                 pi1_hit[q] += fc.pi1_lo[q] <= count && count <= fc.pi1_hi[q];
