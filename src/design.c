@@ -93,6 +93,12 @@ int stagecal_design_init(stagecal_design_problem *pb, const stagecal_form *form,
     return STAGECAL_OK;
 }
 
+double design_weight(const stagecal_design_problem *pb, double r)
+{
+    double sd = pb->scatter.n > 0 ? stagecal_scatter_sd(&pb->scatter, r) : pb->sigma;
+    return 1.0 / (sd * sd);
+}
+
 int design_grad(const stagecal_design_problem *pb, double r, double f_load, double *g,
                 stagecal_error *err)
 {
@@ -123,7 +129,7 @@ int stagecal_design_window_info(const stagecal_design_problem *pb, double r, dou
     int rc = design_grad(pb, r, f_load, g, err);
     if (rc)
         return rc;
-    double w = 1.0 / (pb->sigma * pb->sigma);
+    double w = design_weight(pb, r);
     for (size_t i = 0; i < p; i++)
         for (size_t j = 0; j < p; j++)
             out[i * p + j] = w * g[i] * g[j];
@@ -149,12 +155,13 @@ int design_info_with(const stagecal_design_problem *pb, const stagecal_design_te
                      double *m, stagecal_error *err)
 {
     size_t p = pb->form.p;
-    double g[P_MAX], w = 1.0 / (pb->sigma * pb->sigma);
+    double g[P_MAX];
     memcpy(m, pb->info, p * p * sizeof *m);
     for (size_t t = 0; t < k; t++) {
         int rc = design_grad(pb, tests[t].r, tests[t].f_load, g, err);
         if (rc)
             return rc;
+        double w = design_weight(pb, tests[t].r);
         for (size_t i = 0; i < p; i++)
             for (size_t j = 0; j < p; j++)
                 m[i * p + j] += w * g[i] * g[j];
@@ -274,6 +281,8 @@ int stagecal_design_from_model(const stagecal_model *m, stagecal_design_problem 
     }
     if (rc)
         return rc;
+    if (m->scatter.n > 0) /* σ of a new window by R (format 4); checked when the file loaded */
+        pb->scatter = m->scatter;
     if (m->n_windows > 0)
         pb->window_samples = (m->n_samples + m->n_windows / 2) / m->n_windows;
     /* I₀ = C⁻¹ through the eigen-decomposition of C scaled to unit diagonal (its

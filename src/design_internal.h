@@ -29,7 +29,11 @@ int design_eig_compute(const double *m, size_t p, double rank_tol, design_eig *e
  * sqrt(rank_tol) of its length. */
 double design_eig_quad(const design_eig *e, const double *g, double rank_tol, int *determined);
 
-/* M = pb->info + Σ_k g(x_k) g(x_k)ᵀ / σ² over the tests. EINVAL from the gradient. */
+/* The information weight of one window at r: 1/σ(r)² with the problem's scatter function,
+ * 1/sigma² without one. */
+double design_weight(const stagecal_design_problem *pb, double r);
+
+/* M = pb->info + Σ_k g(x_k) g(x_k)ᵀ / σ(R_k)² over the tests. EINVAL from the gradient. */
 int design_info_with(const stagecal_design_problem *pb, const stagecal_design_test *tests, size_t k,
                      double *m, stagecal_error *err);
 

@@ -72,7 +72,7 @@ static double objective(unsigned n, const double *z, double *grad, void *data)
 {
     search *s = data;
     size_t p = s->p;
-    double m[P_MAX * P_MAX], g[P_MAX], w = 1.0 / (s->pb->sigma * s->pb->sigma);
+    double m[P_MAX * P_MAX], g[P_MAX];
     const double bad = 1e300;
     (void)n;
     (void)grad; /* derivative-free */
@@ -83,6 +83,7 @@ static double objective(unsigned n, const double *z, double *grad, void *data)
         z_to_test(s, z, t, &x);
         if (design_grad(s->pb, x.r, x.f_load, g, NULL))
             return bad;
+        double w = design_weight(s->pb, x.r); /* 1/σ(R)² of a window at this test's R */
         for (size_t i = 0; i < p; i++)
             g[i] *= s->s[i];
         for (size_t i = 0; i < p; i++)
@@ -384,7 +385,7 @@ static int prepare(search *s, const stagecal_design_params *par, int singular, s
 {
     const stagecal_design_problem *pb = s->pb;
     size_t p = s->p;
-    double ref[P_MAX], g[P_MAX], w = 1.0 / (pb->sigma * pb->sigma);
+    double ref[P_MAX], g[P_MAX];
     size_t nf = s->load_free ? GRID_F : 1, n = 0;
     for (size_t i = 0; i < p; i++)
         ref[i] = 0;
@@ -397,6 +398,7 @@ static int prepare(search *s, const stagecal_design_params *par, int singular, s
             int rc = design_grad(pb, r_of(lv), f, g, err);
             if (rc)
                 return rc;
+            double w = design_weight(pb, r_of(lv));
             for (size_t i = 0; i < p; i++)
                 ref[i] += w * g[i] * g[i];
             n++;

@@ -479,6 +479,109 @@ static void design_durations_and_errors(void **state)
     assert_string_equal(stagecal_design_criterion_name(STAGECAL_DESIGN_I), "I-optimal");
 }
 
+/* The information weight of a window follows the model's scatter function σ(R) (format 4)
+ * where it has one: a degree-0 function with exp(c0) = sigma_stages is the one-σ path
+ * exactly, and with a degree-1 function a window at R adds g gᵀ/σ(R)², σ(R) = exp(c0 +
+ * c1·R/(R + 1)) with R/(R + 1) clamped to the fitted range (include/stagecal/scatter.h; the
+ * closed form, from the header, not from the code under test). The variance after the
+ * proposed tests equals the weighted least squares with weights 1/σ(R)² (GSL). */
+static void design_weight_follows_scatter_function(void **state)
+{
+    (void)state;
+    const double theta[] = {10.0, -7.0}, cov[] = {0.09, -0.2, -0.2, 0.5};
+    const double sd0 = exp(-1.2); /* exp(c0) is sigma_stages to the bit */
+    stagecal_model flat, one, lin;
+    make_model(&flat, "linear:1+1/R", theta, cov, sd0, 9);
+    make_model(&one, "linear:1+1/R", theta, cov, sd0, 9);
+    make_model(&lin, "linear:1+1/R", theta, cov, 0.3, 9);
+    one.scatter.n = 1;
+    one.scatter.c[0] = -1.2;
+    one.scatter.cov[0] = 1.0 / 18;
+    one.scatter.lv_lo = 0.5;
+    one.scatter.lv_hi = 1;
+    lin.scatter.n = 2;
+    lin.scatter.c[0] = log(0.2) - 1.5 * 0.5; /* σ = 0.2 at λ = 0.5, 0.2·e^0.75 at λ = 1 */
+    lin.scatter.c[1] = 1.5;
+    lin.scatter.cov[0] = lin.scatter.cov[3] = 0.01;
+    lin.scatter.lv_lo = 0.5; /* R = 1 */
+    lin.scatter.lv_hi = 0.9; /* R = 9 */
+    assert_int_equal(stagecal_scatter_check(&one.scatter, NULL), STAGECAL_OK);
+    assert_int_equal(stagecal_scatter_check(&lin.scatter, NULL), STAGECAL_OK);
+    stagecal_design_problem pf, p1, pl;
+    assert_int_equal(stagecal_design_from_model(&flat, &pf, NULL), STAGECAL_OK);
+    assert_int_equal(stagecal_design_from_model(&one, &p1, NULL), STAGECAL_OK);
+    assert_int_equal(stagecal_design_from_model(&lin, &pl, NULL), STAGECAL_OK);
+    assert_int_equal(pf.scatter.n, 0);
+    assert_int_equal(pl.scatter.n, 2);
+
+    const double rs[] = {0.5, 1, 2.5, 4, 9, 30, INFINITY};
+    for (size_t a = 0; a < sizeof rs / sizeof rs[0]; a++) {
+        double i_f[4], i_1[4], i_l[4];
+        assert_int_equal(stagecal_design_window_info(&pf, rs[a], NAN, i_f, NULL), STAGECAL_OK);
+        assert_int_equal(stagecal_design_window_info(&p1, rs[a], NAN, i_1, NULL), STAGECAL_OK);
+        assert_int_equal(stagecal_design_window_info(&pl, rs[a], NAN, i_l, NULL), STAGECAL_OK);
+        double lv = isinf(rs[a]) ? 1 : rs[a] / (rs[a] + 1);
+        lv = fmin(fmax(lv, 0.5), 0.9); /* clamped to the fitted range */
+        double sd = 0.2 * exp(1.5 * (lv - 0.5)), g[2] = {1, isinf(rs[a]) ? 0 : 1 / rs[a]};
+        for (size_t k = 0; k < 4; k++) {
+            char label[64];
+            snprintf(label, sizeof label, "info[%zu] at R = %g", k, rs[a]);
+            /* tolerance: the same weight to the bit (exp(c0) = sigma), so equal; 1e-12 */
+            assert_abs(i_1[k], i_f[k], 1e-12 * fabs(i_f[k]), label);
+            /* tolerance: a few roundings in λ, exp and the products: 1e-13 relative */
+            double want = g[k / 2] * g[k % 2] / (sd * sd);
+            assert_abs(i_l[k], want, 1e-13 * fabs(want), label);
+        }
+    }
+
+    /* proposals: the degree-0 function proposes what one σ does; the degree-1 one's
+     * after-variance is the WLS with weights 1/σ(R)² over the old information and the tests */
+    stagecal_design_point at[2] = {{2, NAN, 1}, {6, NAN, 2}};
+    stagecal_design_at of[2], o1[2], ol[2];
+    stagecal_design_result rf, r1, rl;
+    propose(&pf, at, 2, 3, 1, INFINITY, &rf, of);
+    propose(&p1, at, 2, 3, 1, INFINITY, &r1, o1);
+    propose(&pl, at, 2, 3, 1, INFINITY, &rl, ol);
+    for (size_t t = 0; t < 3; t++) /* the same weights to the bit: the same search */
+        assert_true(r1.tests[t].r == rf.tests[t].r);
+    for (size_t j = 0; j < 2; j++) {
+        /* tolerance: the same arithmetic on the same numbers; 1e-12 */
+        assert_rel(o1[j].half_after, of[j].half_after, 1e-12, "degree 0 = one sigma");
+        assert_rel(o1[j].half_before, of[j].half_before, 1e-12, "degree 0 = one sigma");
+    }
+    /* M = C⁻¹ + Σ_k x_k x_kᵀ/σ(R_k)²; v = x₀ᵀ M⁻¹ x₀ (GSL LU) */
+    double mm[4] = {0}, c[4];
+    memcpy(c, cov, sizeof c);
+    double det = c[0] * c[3] - c[1] * c[2];
+    mm[0] = c[3] / det, mm[1] = -c[1] / det, mm[2] = -c[2] / det, mm[3] = c[0] / det;
+    for (size_t t = 0; t < rl.k; t++) {
+        double r = rl.tests[t].r, lv = isinf(r) ? 1 : r / (r + 1);
+        lv = fmin(fmax(lv, 0.5), 0.9);
+        double sd = 0.2 * exp(1.5 * (lv - 0.5)), x[2] = {1, isinf(r) ? 0 : 1 / r};
+        for (size_t k = 0; k < 4; k++)
+            mm[k] += x[k / 2] * x[k % 2] / (sd * sd);
+    }
+    gsl_matrix_view mv = gsl_matrix_view_array(mm, 2, 2);
+    gsl_permutation *perm = gsl_permutation_alloc(2);
+    double inv[4];
+    gsl_matrix_view iv = gsl_matrix_view_array(inv, 2, 2);
+    int sg;
+    assert_int_equal(gsl_linalg_LU_decomp(&mv.matrix, perm, &sg), GSL_SUCCESS);
+    assert_int_equal(gsl_linalg_LU_invert(&mv.matrix, perm, &iv.matrix), GSL_SUCCESS);
+    gsl_permutation_free(perm);
+    for (size_t j = 0; j < 2; j++) {
+        double x0[2] = {1, 1 / at[j].r}, v = 0;
+        for (size_t a = 0; a < 2; a++)
+            for (size_t b = 0; b < 2; b++)
+                v += x0[a] * inv[a * 2 + b] * x0[b];
+        /* tolerance: two 2×2 inversions of a matrix with condition number < 1e3 */
+        assert_rel(ol[j].se_after * ol[j].se_after, v, 1e-10, "variance after = WLS by sigma(R)");
+    }
+    stagecal_model_free(&flat);
+    stagecal_model_free(&one);
+    stagecal_model_free(&lin);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -489,6 +592,7 @@ int main(void)
         cmocka_unit_test(design_singular_information_names_the_identifying_condition),
         cmocka_unit_test(design_i_optimal_single_test_matches_grid),
         cmocka_unit_test(design_durations_and_errors),
+        cmocka_unit_test(design_weight_follows_scatter_function),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }

@@ -5,11 +5,12 @@
  *
  * Model of the evidence. Each quasi-steady window i gives one stage count
  *   y_i = stages(R_i, F_i; θ) + e_i,  e_i independent, var(e_i) = σ²,
- * with σ the standard deviation of one new window (the model file's sigma_stages). To
+ * with σ the standard deviation of one new window (the model file's scatter function σ(R)
+ * at the window's R, include/stagecal/scatter.h; sigma_stages where it has none). To
  * first order in θ (Gauss–Newton; exact for forms linear in θ) the Fisher information of
- * a set of windows is Σ g_i g_iᵀ / σ² with g = ∂stages/∂θ at the current estimate, and the
- * information the fit already holds is the inverse of its covariance, I₀ = C⁻¹. After K
- * new windows at x_1 … x_K the information is M = I₀ + Σ_k g(x_k) g(x_k)ᵀ / σ², and the
+ * a set of windows is Σ g_i g_iᵀ / σ(R_i)² with g = ∂stages/∂θ at the current estimate, and
+ * the information the fit already holds is the inverse of its covariance, I₀ = C⁻¹. After K
+ * new windows at x_1 … x_K the information is M = I₀ + Σ_k g(x_k) g(x_k)ᵀ / σ(R_k)², and the
  * variance of the fitted stages at a condition x₀ is g(x₀)ᵀ M⁻¹ g(x₀).
  *
  * Criteria (Atkinson, Donev & Tobias 2007, "Optimum Experimental Designs, with SAS",
@@ -67,14 +68,17 @@ typedef struct {
     double theta[STAGECAL_FORM_MAXP];                     /* current estimate (p values) */
     double info[STAGECAL_FORM_MAXP * STAGECAL_FORM_MAXP]; /* Fisher information, p×p
                                                              row-major [1/stages²] */
-    double sigma;          /* standard deviation of one new window [stages], > 0 */
-    double dof;            /* residual degrees of freedom of the current fit, > 0 */
-    double level;          /* confidence level of the bands, in (0, 1) */
-    size_t window_samples; /* mean logged samples per window behind the fit (0: unknown) */
-    double rank_tol;       /* an eigenvalue of the information scaled to unit diagonal below
-                              rank_tol·largest counts as zero (not identified), and stages at
-                              a condition are determined when the gradient's component in
-                              that null space is below sqrt(rank_tol) of its length; 1e-9 */
+    double sigma;             /* standard deviation of one new window [stages], > 0: the
+                                 window's when scatter below has none */
+    stagecal_scatter scatter; /* σ of one new window by R (stagecal/scatter.h; n = 0: sigma
+                                 at every R). A window at R adds g gᵀ/σ(R)² */
+    double dof;               /* residual degrees of freedom of the current fit, > 0 */
+    double level;             /* confidence level of the bands, in (0, 1) */
+    size_t window_samples;    /* mean logged samples per window behind the fit (0: unknown) */
+    double rank_tol;          /* an eigenvalue of the information scaled to unit diagonal below
+                                 rank_tol·largest counts as zero (not identified), and stages at
+                                 a condition are determined when the gradient's component in
+                                 that null space is below sqrt(rank_tol) of its length; 1e-9 */
 } stagecal_design_problem;
 
 /* Tunables. */
@@ -159,7 +163,8 @@ typedef struct {
     int nlopt_result; /* NLopt's return code of the best local search (> 0 success) */
 } stagecal_design_result;
 
-/* Zero information for form at theta: sigma > 0, dof > 0, level in (0, 1). EINVAL. */
+/* Zero information for form at theta: sigma > 0, dof > 0, level in (0, 1), no scatter
+ * function (σ = sigma at every R; set pb->scatter after it for one). EINVAL. */
 int stagecal_design_init(stagecal_design_problem *pb, const stagecal_form *form,
                          const double *theta, double sigma, double dof, double level,
                          stagecal_error *err);
@@ -167,15 +172,16 @@ int stagecal_design_init(stagecal_design_problem *pb, const stagecal_form *form,
  * there. */
 int stagecal_design_add_window(stagecal_design_problem *pb, double r, double f_load, double weight,
                                stagecal_error *err);
-/* The information one window at (r, f_load) adds: g gᵀ/σ², p×p into out (stride p).
+/* The information one window at (r, f_load) adds: g gᵀ/σ(r)², p×p into out (stride p).
  * EINVAL when the form is undefined there. */
 int stagecal_design_window_info(const stagecal_design_problem *pb, double r, double f_load,
                                 double *out, stagecal_error *err);
 
 /* The current information of a model file: I₀ = C⁻¹ (through the eigen-decomposition of
- * the correlation matrix of C), σ = sigma_stages, dof, level, and the mean samples per
- * window (n_samples / n_windows). EDATA when C is not positive definite or sigma_stages
- * is 0 (a new window's information is then undefined). */
+ * the correlation matrix of C), σ = sigma_stages and the scatter function σ(R) where the
+ * file has one (format 4), dof, level, and the mean samples per window (n_samples /
+ * n_windows). EDATA when C is not positive definite or sigma_stages is 0 (a new window's
+ * information is then undefined). */
 int stagecal_design_from_model(const stagecal_model *m, stagecal_design_problem *pb,
                                stagecal_error *err);
 

@@ -31,7 +31,9 @@ static const struct cli_usage usage = {
     "95 % confidence band of stages at the conditions of interest most (I-optimal: the\n"
     "weighted average variance of the fitted stages there; D-optimal: the determinant of\n"
     "the parameters' information), from the model file's parameters, covariance and\n"
-    "per-window sigma. Each test is one production period at one reflux ratio long enough\n"
+    "per-window sigma (by R where the file has a scatter function: a test at R adds\n"
+    "information 1/sigma(R)^2). Each test is one production period at one reflux ratio long "
+    "enough\n"
     "for one quasi-steady window. Prints the half-width of the interval at each condition\n"
     "of interest before and after the tests (expected, to first order in the parameters).\n",
     "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n"};
@@ -224,8 +226,17 @@ static void print_text(const char *path, const stagecal_model *m, const struct c
 {
     int load = m->form.uses_load, pct = (int)lround(m->level * 100);
     char a[32], b[32];
-    printf("%s (column %s, form %s, %zu windows, sigma %.3g stages per window)\n", path,
-           m->column_id, m->form.name, m->n_windows, m->sigma);
+    if (m->scatter.n > 0) { /* σ of one window by R: a test's information is 1/σ(R)² */
+        cli_format_reflux(a, sizeof a, m->r_min, 3);
+        cli_format_reflux(b, sizeof b, m->r_max, 3);
+        printf("%s (column %s, form %s, %zu windows, sigma %.3g stages per window at R = %s, "
+               "%.3g at R = %s)\n",
+               path, m->column_id, m->form.name, m->n_windows,
+               stagecal_scatter_sd(&m->scatter, m->r_min), a,
+               stagecal_scatter_sd(&m->scatter, m->r_max), b);
+    } else
+        printf("%s (column %s, form %s, %zu windows, sigma %.3g stages per window)\n", path,
+               m->column_id, m->form.name, m->n_windows, m->sigma);
     cli_format_reflux(a, sizeof a, res->r_lo, 3);
     cli_format_reflux(b, sizeof b, res->r_hi, 3);
     printf("%s design of %zu tests, R in %s..%s", stagecal_design_criterion_name(res->criterion),
@@ -278,9 +289,10 @@ static void print_text(const char *path, const stagecal_model *m, const struct c
             printf(", F = %.3g", res->identify_f);
         printf(" adds the most in the missing direction (rank %zu with it)\n", res->identify_rank);
     }
-    printf("\nThe after-values assume the model's per-window sigma and its current parameters "
+    printf("\nThe after-values assume the model's per-window sigma%s and its current parameters "
            "(first order); they are expectations, not guarantees. Run tests only inside the "
-           "column's safe operating limits.\n");
+           "column's safe operating limits.\n",
+           m->scatter.n > 0 ? " at each test's R" : "");
 }
 
 /* Stages against R with the 95 % band before and after the tests, the tests and the
