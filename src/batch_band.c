@@ -14,11 +14,16 @@
  * normal draws would be narrower than they are (at ν = 2 the 97.5 % quantile is 4.30,
  * not 1.96). The run-to-run scatter σ of the model (windows about the law) is sampled on
  * request (a shift of the batch's stage count by the same t draw): then the band is a
- * prediction band for one batch, otherwise a confidence band on the mean law.
+ * prediction band for one batch, otherwise a confidence band on the mean law. With a
+ * scatter function (model format 4) the shift at R is σ(R)·ε·w_s: one standard normal ε per
+ * batch (a batch runs one column: its offset, in units of σ(R), is the same at every R), and
+ * w_s = √(ν_s/χ²) at the smallest dof ν_s of σ(R) along the batch's reflux ratios, its χ²
+ * at the same quantile as θ's (ν_s = ν: the same draw, the one-σ path exactly).
  */
 #include "stagecal/batch.h"
 #include "stagecal/regress.h"
 
+#include <gsl/gsl_cdf.h>
 #include <gsl/gsl_eigen.h>
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_matrix.h>
@@ -74,10 +79,13 @@ static void interval(double *v, size_t n, double level, double nominal,
     out->high = gsl_stats_quantile_from_sorted_data(v, 1, n, (1 + level) / 2);
 }
 
-/* The model's law shifted by a draw's run-to-run offset. */
+/* The model's law shifted by a draw's run-to-run offset: delta, or with a scatter function
+ * σ(r)·unit (the same standardised offset at every R of the batch, in units of σ(R)). */
 struct shifted_law {
     stagecal_batch_model_law law;
     double delta;
+    const stagecal_scatter *scatter; /* NULL: delta */
+    double unit;
 };
 
 static int shifted_stages(void *data, double r, double *stages, unsigned *outside,
@@ -85,9 +93,28 @@ static int shifted_stages(void *data, double r, double *stages, unsigned *outsid
 {
     struct shifted_law *s = data;
     int rc = stagecal_batch_model_stages(&s->law, r, stages, outside, err);
+    double d = s->scatter ? stagecal_scatter_sd(s->scatter, r) * s->unit : s->delta;
     if (rc == STAGECAL_OK)
-        *stages = fmax(*stages + s->delta, 1.0);
+        *stages = fmax(*stages + d, 1.0);
     return rc;
+}
+
+double stagecal_batch_scatter_dof(const stagecal_model *m, const stagecal_batch_result *nominal)
+{
+    if (m->scatter.n == 0)
+        return m->dof;
+    /* the smallest over the reflux ratios the batch runs at (its rows, the start-up's total
+     * reflux among them, and the ends of the range used), each capped at the model's dof as
+     * stagecal_model_eval caps it */
+    double nu = m->dof;
+    double ends[2] = {nominal->r_min_used, nominal->r_max_used};
+    for (size_t i = 0; i < nominal->n_rows + 2; i++) {
+        double r = i < nominal->n_rows ? nominal->rows[i].reflux : ends[i - nominal->n_rows];
+        double d = isnan(r) ? NAN : stagecal_scatter_dof(&m->scatter, r);
+        if (isfinite(d))
+            nu = fmin(nu, d);
+    }
+    return nu;
 }
 
 int stagecal_batch_band_sample(const stagecal_batch_problem *pb, const stagecal_vle *vle,
@@ -146,8 +173,13 @@ int stagecal_batch_band_sample_scatter(const stagecal_batch_problem *pb, const s
     }
     band->dof = nu;
     band->run_scatter = run_scatter;
+    /* σ of one batch's stage count: the scatter function at each R the batch runs at, where
+     * the model has one, with its own dof (the smallest along the batch's reflux ratios) */
+    const stagecal_scatter *sc = run_scatter && m->scatter.n > 0 ? &m->scatter : NULL;
+    double nu_s = sc ? stagecal_batch_scatter_dof(m, nominal) : nu;
+    band->dof_scatter = run_scatter ? nu_s : NAN;
 
-    struct shifted_law law = {{m, theta, f_load}, 0.0};
+    struct shifted_law law = {{m, theta, f_load}, 0.0, sc, 0.0};
     stagecal_batch_column col = {vle, shifted_stages, &law, NULL, NULL};
     /* the dynamic model: each draw also draws the holdup when its uncertainty is stated */
     stagecal_batch_params par = params ? *params : stagecal_batch_default_params();
@@ -165,13 +197,23 @@ int stagecal_batch_band_sample_scatter(const stagecal_batch_problem *pb, const s
         for (size_t i = 0; i < p; i++)
             z[i] = gsl_ran_ugaussian(rng);
         double eps = gsl_ran_ugaussian(rng);
-        double w = isinf(nu) ? 1.0 : sqrt(nu / gsl_ran_chisq(rng, nu)); /* t = z·w */
+        double x2 = isinf(nu) ? INFINITY : gsl_ran_chisq(rng, nu);
+        double w = isinf(nu) ? 1.0 : sqrt(nu / x2); /* t = z·w */
+        /* σ(R)'s scale at its own dof ν_s from the same χ² quantile (one residual scale s
+         * behind θ's covariance and σ: comonotone); ν_s = ν gives w itself */
+        double ws = w;
+        if (sc && nu_s != nu && isfinite(nu)) {
+            double u = gsl_cdf_chisq_P(x2, nu);
+            double xs = u > 0 && u < 1 ? gsl_cdf_chisq_Pinv(u, nu_s) : NAN;
+            ws = xs > 0 && isfinite(xs) ? sqrt(nu_s / xs) : w;
+        }
         for (size_t i = 0; i < p; i++) {
             theta[i] = m->theta[i];
             for (size_t j = 0; j < p; j++)
                 theta[i] += s[i * p + j] * z[j] * w;
         }
         law.delta = run_scatter ? m->sigma * eps * w : 0.0;
+        law.unit = eps * ws;
         if (u_h > 0) { /* after the law's draws: the stream of a fixed holdup is unchanged */
             double factor = fmax(0.05, 1 + u_h * gsl_ran_ugaussian(rng));
             dy.holdup_column_mol = params->dynamics->holdup_column_mol * factor;

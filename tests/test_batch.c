@@ -720,6 +720,144 @@ static void batch_band_contains_generating_law(void **state)
     gsl_rng_free(rng);
 }
 
+/* Every interval of two bands equal to rel (the label names the band). */
+static void bands_equal(const stagecal_batch_band *a, const stagecal_batch_band *b, double rel,
+                        const char *label)
+{
+    assert_int_equal(a->n_ok, b->n_ok);
+    assert_int_equal(a->n_cuts, b->n_cuts);
+    const stagecal_batch_interval *ia[] = {&a->t_end_s, &a->energy_j},
+                                  *ib[] = {&b->t_end_s, &b->energy_j};
+    for (size_t i = 0; i < 2; i++) {
+        assert_rel(ia[i]->low, ib[i]->low, rel, label);
+        assert_rel(ia[i]->high, ib[i]->high, rel, label);
+    }
+    for (size_t c = 0; c < a->n_cuts; c++) {
+        const stagecal_batch_interval *ca[] = {&a->cuts[c].t_end_s, &a->cuts[c].amount_mol,
+                                               &a->cuts[c].x_mean, &a->cuts[c].yield},
+                                      *cb[] = {&b->cuts[c].t_end_s, &b->cuts[c].amount_mol,
+                                               &b->cuts[c].x_mean, &b->cuts[c].yield};
+        for (size_t i = 0; i < 4; i++) {
+            assert_rel(ca[i]->low, cb[i]->low, rel, label);
+            assert_rel(ca[i]->high, cb[i]->high, rel, label);
+        }
+    }
+}
+
+/* The run-to-run scatter of one batch with the model's scatter function σ(R) (format 4):
+ * (a) a degree-0 function with exp(c0) = sigma_stages and the model's dof is the one-σ
+ * band; (b) at constant reflux R0 a degree-1 function gives the band of the degree-0 one
+ * with σ = σ(R0) = exp(c0 + c1·λ0) and Var ln σ = gᵀVg at g = (1, λ0) (closed forms from
+ * include/stagecal/scatter.h), its dof ν = 1/(2 gᵀVg) below the model's, so the scatter's
+ * own χ² path is taken; (c) along a constant-distillate policy the scatter's dof is the
+ * smallest along the batch: Var ln σ(λ) = V00 + 2λV01 + λ²V11 is convex in λ (V positive
+ * definite), so its largest value is at an end of the batch's reflux range. Without
+ * --run-scatter the function plays no part. */
+static void batch_band_scatter_function(void **state)
+{
+    struct fx *f = *state;
+    const double c0 = -1.6, c1 = 0.8, lv0 = 0.75; /* R0 = 3: λ0 = 3/4 exactly */
+    const double v00 = 0.02, v01 = 0.01, v11 = 0.04;
+    stagecal_model pooled, deg0, deg1, at_r0;
+    stagecal_model *ms[] = {&pooled, &deg0, &deg1, &at_r0};
+    for (size_t k = 0; k < 4; k++) {
+        stagecal_model *m = ms[k];
+        stagecal_model_init(m);
+        assert_int_equal(stagecal_form_parse("saturating", &m->form, NULL), STAGECAL_OK);
+        m->theta[0] = 9;
+        m->theta[1] = 0.5;
+        m->cov[0] = 0.04;
+        m->cov[1] = m->cov[2] = 0.001;
+        m->cov[3] = 0.0009;
+        m->sigma = exp(c0);
+        m->dof = 8;
+        m->r_min = 1.5;
+        m->r_max = 15;
+    }
+    deg0.scatter.n = 1; /* exp(c0) = sigma_stages, ν = 1/(2·(1/16)) = 8 = dof */
+    deg0.scatter.c[0] = c0;
+    deg0.scatter.cov[0] = 1.0 / 16;
+    deg0.scatter.lv_lo = 0.6;
+    deg0.scatter.lv_hi = 1;
+    deg1.dof = at_r0.dof = 20; /* above the scatter's ν: its own χ² quantile */
+    deg1.scatter.n = 2;
+    deg1.scatter.c[0] = c0;
+    deg1.scatter.c[1] = c1;
+    deg1.scatter.cov[0] = v00;
+    deg1.scatter.cov[1] = deg1.scatter.cov[2] = v01;
+    deg1.scatter.cov[3] = v11;
+    deg1.scatter.lv_lo = 0.6;
+    deg1.scatter.lv_hi = 1;
+    at_r0.scatter.n = 1; /* the same σ and Var ln σ at λ0, in the order the header sums them */
+    at_r0.scatter.c[0] = c1 * lv0 + c0;
+    at_r0.scatter.cov[0] = v00 + lv0 * v01 + lv0 * v01 + lv0 * lv0 * v11;
+    at_r0.scatter.lv_lo = 0.6;
+    at_r0.scatter.lv_hi = 1;
+    for (size_t k = 0; k < 4; k++)
+        assert_int_equal(stagecal_scatter_check(&ms[k]->scatter, NULL), STAGECAL_OK);
+
+    stagecal_batch_problem pb;
+    stagecal_batch_result nom;
+    stagecal_batch_band b[4], plain;
+    stagecal_error err;
+    base_problem(&pb);
+    pb.policy.reflux = 3;
+    pb.n_cuts = 2;
+    pb.cuts[0].kind = STAGECAL_BATCH_UNTIL_MEAN_X;
+    pb.cuts[0].value = 0.95;
+    pb.cuts[1].kind = STAGECAL_BATCH_UNTIL_POT_X;
+    pb.cuts[1].value = 0.15;
+    stagecal_batch_model_law law = {&pooled, NULL, NAN};
+    stagecal_batch_column col = {f->vle, stagecal_batch_model_stages, &law, NULL, NULL};
+    stagecal_batch_result_init(&nom);
+    assert_int_equal(stagecal_batch_run(&pb, &col, NULL, &nom, &err), STAGECAL_OK);
+    for (size_t k = 0; k < 4; k++)
+        assert_int_equal(stagecal_batch_band_sample_scatter(&pb, f->vle, ms[k], NAN, NULL, &nom,
+                                                            120, 77, 0.95, 1, &b[k], &err),
+                         STAGECAL_OK);
+    /* (a) tolerance: the same numbers through the same arithmetic, so equal; 1e-12 */
+    bands_equal(&b[1], &b[0], 1e-12, "degree 0 = one sigma");
+    assert_true(b[1].dof_scatter == 8 && b[0].dof_scatter == 8);
+    /* (b) the same σ and ν to the bit at R0 (λ0 = 0.75 exact), so the same band; 1e-12 */
+    double nu0 = 1 / (2 * (v00 + 2 * lv0 * v01 + lv0 * lv0 * v11));
+    assert_rel(b[2].dof_scatter, nu0, 1e-12, "dof of sigma(R0)");
+    assert_true(nu0 < 20);
+    bands_equal(&b[2], &b[3], 1e-12, "degree 1 at constant R0 = degree 0 at sigma(R0)");
+    /* the scatter adds width: the one-batch band is wider than the mean law's */
+    assert_int_equal(stagecal_batch_band_sample_scatter(&pb, f->vle, &deg1, NAN, NULL, &nom, 120,
+                                                        77, 0.95, 0, &plain, &err),
+                     STAGECAL_OK);
+    assert_true(isnan(plain.dof_scatter));
+    assert_true(b[2].t_end_s.high - b[2].t_end_s.low > plain.t_end_s.high - plain.t_end_s.low);
+
+    /* (c) constant distillate: R rises along the batch */
+    pb.policy.kind = STAGECAL_BATCH_CONSTANT_DISTILLATE;
+    pb.policy.xd_set = 0.9;
+    pb.policy.reflux_max = 12;
+    pb.n_cuts = 1;
+    pb.cuts[0].kind = STAGECAL_BATCH_UNTIL_POT_X;
+    pb.cuts[0].value = 0.3;
+    assert_int_equal(stagecal_batch_run(&pb, &col, NULL, &nom, &err), STAGECAL_OK);
+    assert_true(nom.r_max_used > nom.r_min_used * 1.2);
+    double vmax = 0;
+    for (int e = 0; e < 2; e++) {
+        double r = e ? nom.r_max_used : nom.r_min_used;
+        double lv = fmin(fmax(r / (r + 1), 0.6), 1.0);
+        vmax = fmax(vmax, v00 + 2 * lv * v01 + lv * lv * v11);
+    }
+    /* tolerance: the same sums in another order; 1e-12 */
+    assert_rel(stagecal_batch_scatter_dof(&deg1, &nom), fmin(20, 1 / (2 * vmax)), 1e-12,
+               "dof along the policy: the smallest, at an end");
+    assert_rel(stagecal_batch_scatter_dof(&pooled, &nom), 8, 0, "no function: the model's dof");
+    assert_int_equal(stagecal_batch_band_sample_scatter(&pb, f->vle, &deg1, NAN, NULL, &nom, 120,
+                                                        77, 0.95, 1, &b[2], &err),
+                     STAGECAL_OK);
+    assert_rel(b[2].dof_scatter, fmin(20, 1 / (2 * vmax)), 1e-12, "band's scatter dof");
+    stagecal_batch_result_free(&nom);
+    for (size_t k = 0; k < 4; k++)
+        stagecal_model_free(ms[k]);
+}
+
 static void batch_plan_parses(void **state)
 {
     (void)state;
@@ -776,6 +914,7 @@ int main(void)
         cmocka_unit_test(batch_stops_safely),
         cmocka_unit_test(batch_check_rejects),
         cmocka_unit_test(batch_band_contains_generating_law),
+        cmocka_unit_test(batch_band_scatter_function),
         cmocka_unit_test(batch_plan_parses),
     };
     return cmocka_run_group_tests(tests, setup, teardown);

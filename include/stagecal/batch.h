@@ -335,8 +335,11 @@ typedef struct {
                            design the smallest of its parameters' Bell–McCaffrey dof; INFINITY:
                            normal draws) */
     int run_scatter;    /* 1: each draw also carries the run-to-run scatter of the stage
-                           count (the model's σ): a prediction band for one batch; 0: a
-                           confidence band on the mean law */
+                           count (the model's σ, or its scatter function σ(R) at each R the
+                           batch runs at): a prediction band for one batch; 0: a confidence
+                           band on the mean law */
+    double dof_scatter; /* run_scatter: the dof of the scatter's t draws (dof above, or with a
+                           scatter function stagecal_batch_scatter_dof); NAN otherwise */
     size_t n_cuts;
     stagecal_batch_cut_band cuts[STAGECAL_BATCH_MAXCUTS];
     stagecal_batch_interval t_end_s; /* batch time [s] */
@@ -361,13 +364,22 @@ int stagecal_batch_band_sample(const stagecal_batch_problem *pb, const stagecal_
 /* The same; with run_scatter = 1 every draw also shifts the batch's stage count by
  * σ·ε·√(ν/χ²_ν) (ε ~ N(0, 1), the same χ² draw: a joint t), the scatter of one run about
  * the law, so the band is a prediction band for one batch (stage counts below 1 are
- * held at 1). */
+ * held at 1). With a scatter function (m->scatter.n > 0) the shift at R is
+ * σ(R)·ε·√(ν_s/χ²_s): σ(R) at every R the batch runs at (constant reflux: the batch's R;
+ * a varying R: along its policy), ν_s = stagecal_batch_scatter_dof, and χ²_s at the same
+ * quantile of its distribution as θ's χ²_ν (ν_s = ν: the same draw). */
 int stagecal_batch_band_sample_scatter(const stagecal_batch_problem *pb, const stagecal_vle *vle,
                                        const stagecal_model *m, double f_load,
                                        const stagecal_batch_params *params,
                                        const stagecal_batch_result *nominal, size_t n_samples,
                                        unsigned long seed, double level, int run_scatter,
                                        stagecal_batch_band *band, stagecal_error *err);
+
+/* The dof of a batch's run-to-run scatter: the model's dof without a scatter function;
+ * with one, the smallest of stagecal_scatter_dof at the reflux ratios of nominal (its rows,
+ * the dynamic start-up's total reflux among them, and r_min_used, r_max_used), each capped
+ * at the model's dof (as stagecal_model_eval caps it). */
+double stagecal_batch_scatter_dof(const stagecal_model *m, const stagecal_batch_result *nominal);
 
 /* Warnings about the envelope: appends to res->warnings one line per way the
  * trajectory left m's envelope (R below r_min, above r_max, F outside), with the

@@ -668,8 +668,8 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
         OPT_LEVEL(&q.level),
         OPT_FLAG(0, "run-scatter", &q.run_scatter,
                  "the band also carries the run-to-run scatter of the stage count (the\n"
-                 "model's sigma): a prediction band for one batch, not a confidence\n"
-                 "band on the mean law"),
+                 "model's sigma, by R where the file has a scatter function): a prediction\n"
+                 "band for one batch, not a confidence band on the mean law"),
         OPT_END_COMMON(ctx),
     };
     int first, rc;

@@ -34,6 +34,8 @@ json_t *predict_band_json(const stagecal_batch_band *band, const struct dyn_view
                             "batch (prediction band)"
                           : "parameter uncertainty of the mean law, t draws (not the run-to-run "
                             "scatter: --run-scatter)");
+    if (band->run_scatter) /* the dof of the run-to-run scatter's t draws */
+        json_object_set_new(o, "scatter_dof", cli_json_real(band->dof_scatter));
     if (dv) /* the dynamic model's draws also draw the holdup */
         json_object_set_new(o, "holdup_u_rel", cli_json_real(dv->dy->holdup_u_rel));
     return o;
@@ -54,6 +56,8 @@ void predict_band_print_time(const stagecal_batch_band *band, const struct dyn_v
            band->run_scatter ? "prediction (run-to-run scatter included)"
                              : "confidence (mean law; without run-to-run scatter)",
            band->dof, band->n_ok);
+    if (band->run_scatter && band->dof_scatter != band->dof)
+        printf(" (the run-to-run scatter sigma(R) at %.3g dof)", band->dof_scatter);
     if (dv)
         printf(" (holdup drawn too, u = %.0f %%)", 100 * dv->dy->holdup_u_rel);
 }
