@@ -495,6 +495,19 @@ static void doc_fit(stagecal_report_doc *d, const stagecal_model *m, double t)
     else
         report_doc_add_item(d->summary, &ns, "residual scatter",
                             report_doc_sigma_text(d, m->sigma, m->dof));
+    if (m->scatter.n > 0) /* σ of the prediction band by R, at the envelope's ends, with its
+                           * dof capped as stagecal_model_eval caps it */
+        report_doc_add_item(
+            d->summary, &ns, "one new window",
+            report_doc_str(
+                d,
+                "scatters about the curve by %.3g stages at R = %s (%.3g degrees "
+                "of freedom) and %.3g at R = %s (%.3g): the prediction band's "
+                "sigma by R",
+                stagecal_scatter_sd(&m->scatter, m->r_min), report_doc_fmt_r(d, m->r_min),
+                fmin(stagecal_scatter_dof(&m->scatter, m->r_min), m->dof),
+                stagecal_scatter_sd(&m->scatter, m->r_max), report_doc_fmt_r(d, m->r_max),
+                fmin(stagecal_scatter_dof(&m->scatter, m->r_max), m->dof)));
     report_doc_add_item(d->summary, &ns, "envelope: R",
                         report_doc_str(d, "%s \xe2\x80\x93 %s", report_doc_fmt_r(d, m->r_min),
                                        report_doc_fmt_r(d, m->r_max)));

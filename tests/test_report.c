@@ -412,6 +412,54 @@ static void report_condition_matches_closed_forms(void **state)
 
 /* The CLI end to end: a model file written by the model module, then `report` and
  * `plot` on it (exit codes and files). */
+/* The fit summary gives one new window's σ by R at the envelope's ends where the model has a
+ * scatter function (format 4): σ(R) = exp(c0 + c1·λ), λ = R/(R + 1), and its dof
+ * 1/(2·(V00 + 2λV01 + λ²V11)) capped at the model's 10 (closed forms from
+ * include/stagecal/scatter.h). Printed to 3 significant digits: tolerance 5e-3 relative
+ * (half a unit in the last digit, plus rounding). Without a function: no such item. */
+static void report_sigma_by_r(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_error err;
+    demo_model(&m); /* envelope R 0.6 to 6 */
+    const double c0 = -2.5, c1 = 1.6, v00 = 0.09, v01 = -0.06, v11 = 0.08;
+    for (int with = 0; with < 2; with++) {
+        m.scatter.n = with ? 2 : 0;
+        m.scatter.c[0] = c0, m.scatter.c[1] = c1;
+        m.scatter.cov[0] = v00, m.scatter.cov[1] = m.scatter.cov[2] = v01, m.scatter.cov[3] = v11;
+        m.scatter.lv_lo = 0.375, m.scatter.lv_hi = 6.0 / 7;
+        assert_int_equal(stagecal_model_check(&m, &err), STAGECAL_OK);
+        stagecal_report_doc *doc = NULL;
+        assert_int_equal(stagecal_report_from_model(&m, NULL, &doc, &err), STAGECAL_OK);
+        const stagecal_report *rep = stagecal_report_doc_content(doc);
+        const char *v = NULL;
+        for (size_t i = 0; i < rep->n_fit_summary; i++)
+            if (strcmp(rep->fit_summary[i].key, "one new window") == 0)
+                v = rep->fit_summary[i].value;
+        if (!with) {
+            assert_null(v);
+            stagecal_report_doc_free(doc);
+            continue;
+        }
+        assert_non_null(v);
+        double s_lo, d_lo, s_hi, d_hi;
+        if (sscanf(v,
+                   "scatters about the curve by %lf stages at R = 0.6 (%lf degrees of freedom) "
+                   "and %lf at R = 6 (%lf)",
+                   &s_lo, &d_lo, &s_hi, &d_hi) != 4)
+            fail_msg("sigma by R item '%s'", v);
+        const double lv[2] = {0.375, 6.0 / 7}, got_s[2] = {s_lo, s_hi}, got_d[2] = {d_lo, d_hi};
+        for (int e = 0; e < 2; e++) {
+            double var = v00 + 2 * lv[e] * v01 + lv[e] * lv[e] * v11;
+            assert_rel(got_s[e], exp(c0 + c1 * lv[e]), 5e-3, "sigma at an envelope end");
+            assert_rel(got_d[e], fmin(1 / (2 * var), 10), 5e-3, "its dof");
+        }
+        stagecal_report_doc_free(doc);
+    }
+    stagecal_model_free(&m);
+}
+
 static void report_cli_writes_files(void **state)
 {
     (void)state;
@@ -567,6 +615,7 @@ int main(void)
         cmocka_unit_test(report_write_is_atomic),
         cmocka_unit_test(report_from_model_fills_sections),
         cmocka_unit_test(report_condition_matches_closed_forms),
+        cmocka_unit_test(report_sigma_by_r),
         cmocka_unit_test(report_cli_writes_files),
     };
     return cmocka_run_group_tests(tests, group_setup, NULL);
