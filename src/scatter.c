@@ -128,6 +128,64 @@ static int lse_fit(const double *lv, const double *lse, size_t m, size_t nc, dou
 int stagecal_scatter_fit(const stagecal_evidence *ev, size_t n, const stagecal_form *form,
                          const double *theta, stagecal_scatter *out, stagecal_error *err)
 {
+    return stagecal_scatter_fit_se(ev, n, NULL, form, theta, out, err);
+}
+
+int stagecal_scatter_window_se(const stagecal_vle *vle, double murphree,
+                               const stagecal_evidence *ev, size_t n, const double *u_xd,
+                               const double *u_xb, double *se, stagecal_error *err)
+{
+    if (!vle || !se || (n > 0 && !ev))
+        return error_set(err, STAGECAL_EINVAL, "scatter window errors: NULL argument");
+    stagecal_evidence *cp = malloc((n ? n : 1) * sizeof *cp);
+    if (!cp)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory for %zu windows", n);
+    /* pass 0: each window's own ρ; pass 1: ρ pooled per analyser by lag pairs */
+    double rho[2] = {NAN, NAN};
+    for (int pass = 0; pass < 2; pass++) {
+        double w[2] = {0, 0}, r[2] = {0, 0};
+        for (size_t i = 0; i < n; i++) {
+            stagecal_evidence *e = &cp[i];
+            *e = ev[i];
+            e->stages_ok = 0;
+            if (ev[i].m < 3 || !ev[i].s_t || !ev[i].s_xd || !ev[i].s_xb ||
+                stagecal_evidence_mean_quad(ev[i].s_t, ev[i].s_xd, ev[i].m, u_xd ? u_xd[i] : 0,
+                                            rho[0], &e->xd, &e->u_xd, &e->rho_xd, &e->m_xd,
+                                            NULL) != STAGECAL_OK ||
+                stagecal_evidence_mean_quad(ev[i].s_t, ev[i].s_xb, ev[i].m, u_xb ? u_xb[i] : 0,
+                                            rho[1], &e->xb, &e->u_xb, &e->rho_xb, &e->m_xb,
+                                            NULL) != STAGECAL_OK) {
+                e->m = 0; /* no samples to detrend: the window's own error */
+                continue;
+            }
+            e->stages_ok = 1;
+            w[0] += e->m_xd >= 2 ? (double)(e->m_xd - 1) : 0.0;
+            r[0] += e->m_xd >= 2 ? (double)(e->m_xd - 1) * e->rho_xd : 0.0;
+            w[1] += e->m_xb >= 2 ? (double)(e->m_xb - 1) : 0.0;
+            r[1] += e->m_xb >= 2 ? (double)(e->m_xb - 1) * e->rho_xb : 0.0;
+        }
+        for (int a = 0; a < 2; a++)
+            rho[a] = w[a] > 0 ? r[a] / w[a] : NAN;
+    }
+    for (size_t i = 0; i < n; i++) {
+        stagecal_evidence *e = &cp[i];
+        se[i] = ev[i].se_stages;
+        if (!e->stages_ok || !ev[i].stages_ok)
+            continue;
+        /* the count's error from these means' errors alone (not the smoother's) */
+        e->se_sxd = e->se_sxb = 0;
+        if (stagecal_evidence_stages(vle, murphree, e, NULL) == STAGECAL_OK && e->stages_ok &&
+            e->se_stages > 0 && isfinite(e->se_stages))
+            se[i] = e->se_stages;
+    }
+    free(cp);
+    return STAGECAL_OK;
+}
+
+int stagecal_scatter_fit_se(const stagecal_evidence *ev, size_t n, const double *se,
+                            const stagecal_form *form, const double *theta, stagecal_scatter *out,
+                            stagecal_error *err)
+{
     if (!form || !theta || !out || (n > 0 && !ev))
         return error_set(err, STAGECAL_EINVAL, "scatter fit: NULL argument");
     memset(out, 0, sizeof *out);
@@ -138,14 +196,13 @@ int stagecal_scatter_fit(const stagecal_evidence *ev, size_t n, const stagecal_f
     size_t m = 0;
     double lo = INFINITY, hi = -INFINITY;
     for (size_t i = 0; i < n; i++) {
-        double v;
-        if (!ev[i].stages_ok || !isfinite(ev[i].stages) || !(ev[i].se_stages > 0) ||
-            !isfinite(ev[i].se_stages) ||
+        double v, sei = se ? se[i] : ev[i].se_stages;
+        if (!ev[i].stages_ok || !isfinite(ev[i].stages) || !(sei > 0) || !isfinite(sei) ||
             stagecal_form_eval(form, theta, ev[i].r, ev[i].f_load, &v, NULL) != STAGECAL_OK)
             continue;
         res[m] = ev[i].stages - v;
         lv[m] = lv_of(ev[i].r);
-        lse[m] = log(ev[i].se_stages);
+        lse[m] = log(sei);
         lo = fmin(lo, lv[m]);
         hi = fmax(hi, lv[m]);
         m++;

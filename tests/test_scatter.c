@@ -26,6 +26,7 @@
 #include "model_internal.h"
 #include "stagecal/model.h"
 #include "stagecal/scatter.h"
+#include "stagecal/vle.h"
 #include "testutil.h"
 
 static const double rs[12] = {1.2, 1.6, 2.0, 2.5, 3.0, 4.0, 5.0, 6.5, 8.0, 10.0, 15.0, INFINITY};
@@ -153,6 +154,76 @@ static void scatter_fit_degree_and_closed_forms(void **state)
 }
 
 /* The refusals of stagecal_scatter_check, each with its message. */
+/* The shape's window errors (stagecal_scatter_window_se): a total-reflux window (α = 2.5)
+ * whose xD and xB readings are exact quadratics in time (a pot curving through the window)
+ * plus an alternating ±1e-4 (lag-1 autocorrelation −1: ρ clipped at 0) gets after the
+ * quadratic detrend the stated floor u = 0.002 per reading (the residuals' σ ≈ 1e-4 is below
+ * it), so the error of each mean is u/√m, and the count's standard error is Fenske's
+ * first-order propagation at the means: N = ln[(xD/(1 − xD))·((1 − xB)/xB)]/ln α (Fenske
+ * 1932, from memory), ∂N/∂xD = 1/(xD(1 − xD) ln α), ∂N/∂xB = −1/(xB(1 − xB) ln α). Tolerance
+ * 1e-6 relative: the inversion's sensitivities at the means (observed below 1e-9). A
+ * window that carries no samples keeps its own se_stages; with these errors in place of the
+ * windows' own, stagecal_scatter_fit_se takes its shape from them (exact variance function as
+ * above, the windows' own se all 1). */
+static void scatter_window_se_detrends_a_curving_pot(void **state)
+{
+    (void)state;
+    stagecal_vle *vle = stagecal_vle_alloc_alpha(2.5, NULL);
+    assert_non_null(vle);
+    enum { M = 12 };
+    double t[M], xd[M], xb[M], mxd = 0, mxb = 0;
+    for (int i = 0; i < M; i++) {
+        double u = i / (M - 1.0), alt = i % 2 ? -1e-4 : 1e-4;
+        t[i] = 60.0 * i;
+        xd[i] = 0.95 - 0.02 * u * (1 + u) / 2 + alt;
+        xb[i] = 0.30 - 0.05 * u - 0.04 * u * u + alt;
+        mxd += xd[i] / M, mxb += xb[i] / M;
+    }
+    stagecal_evidence ev[2];
+    memset(ev, 0, sizeof ev);
+    for (int k = 0; k < 2; k++) {
+        ev[k].r = INFINITY;
+        ev[k].total_reflux = 1;
+        ev[k].xd = mxd, ev[k].xb = mxb;
+        ev[k].u_xd = ev[k].u_xb = 0.01; /* the straight line's, inflated */
+        ev[k].stages_ok = 1;
+        ev[k].stages = 4;
+        ev[k].se_stages = 0.7;
+    }
+    ev[0].m = M, ev[0].s_t = t, ev[0].s_xd = xd, ev[0].s_xb = xb;
+    double uf[2] = {0.002, 0.002}, se[2];
+    stagecal_error err;
+    assert_int_equal(stagecal_scatter_window_se(vle, 1.0, ev, 2, uf, uf, se, &err), STAGECAL_OK);
+    double la = log(2.5), gd = 1 / (mxd * (1 - mxd) * la), gb = -1 / (mxb * (1 - mxb) * la);
+    double want = sqrt(gd * gd + gb * gb) * 0.002 / sqrt((double)M);
+    assert_rel(se[0], want, 1e-6, "Fenske's propagation of u/sqrt(m)");
+    assert_rel(se[1], 0.7, 0, "no samples: the window's own");
+    assert_int_equal(stagecal_scatter_window_se(NULL, 1.0, ev, 2, uf, uf, se, &err),
+                     STAGECAL_EINVAL);
+    stagecal_vle_free(vle);
+
+    /* the shape from se, not from the windows' own */
+    stagecal_form form;
+    stagecal_evidence w12[12];
+    stagecal_scatter s;
+    double theta[1] = {5}, se12[12];
+    const double a = -2.0, b = -4.5, c = 3.9, k = 1.3;
+    assert_int_equal(stagecal_form_parse("constant", &form, &err), STAGECAL_OK);
+    windows(w12, 12, a, b, c, k);
+    for (int i = 0; i < 12; i++) {
+        se12[i] = w12[i].se_stages;
+        w12[i].se_stages = 1; /* what the windows state themselves */
+    }
+    assert_int_equal(stagecal_scatter_fit_se(w12, 12, se12, &form, theta, &s, &err), STAGECAL_OK);
+    assert_int_equal(s.n, 3);
+    /* tolerance: as scatter_fit_recovers_an_exact_variance_function, 1e-9 */
+    assert_abs(s.c[0], a + log(k) + 0.5 * log(12.0 / 11.0), 1e-9, "c0 from se");
+    assert_abs(s.c[1], b, 1e-9, "c1 from se");
+    assert_abs(s.c[2], c, 1e-9, "c2 from se");
+    assert_int_equal(stagecal_scatter_fit_se(w12, 12, NULL, &form, theta, &s, &err), STAGECAL_OK);
+    assert_int_equal(s.n, 1); /* the windows' own se, all equal: one σ */
+}
+
 static void scatter_check_refuses(void **state)
 {
     (void)state;
@@ -284,6 +355,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(scatter_fit_recovers_an_exact_variance_function),
         cmocka_unit_test(scatter_fit_degree_and_closed_forms),
+        cmocka_unit_test(scatter_window_se_detrends_a_curving_pot),
         cmocka_unit_test(scatter_check_refuses),
         cmocka_unit_test(model_eval_uses_the_scatter_function),
     };

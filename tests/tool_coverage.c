@@ -4,7 +4,7 @@
  * calibrate_intervals_cover_truth in tests/test_calibrate.c, over many more data sets).
  *
  * Usage: tool_coverage REPLICATIONS SEED [REGIME] [known-se | per-window-rho | smoother | quad]
- *        [predict]
+ *        [predict | dump] [scatter-own]
  *        tool_coverage REPLICATIONS SEED measured-r [measured | set-point | readings] [diag] [quad]
  *        tool_coverage REPLICATIONS SEED measured-r MODE [diag] refit | fixedwin S
  * (whole run logs from tests/synth_runlog.h through the whole chain; see measured_r_study;
@@ -42,7 +42,12 @@
  * (σ the scatter function at R, stagecal/scatter.h), and inside the band with one σ for
  * every R (the window counts' root mean square about the curve, model format ≤ 3), with the
  * root mean square of the new count's distance from the fitted curve beside the bands' rms
- * se_pred.
+ * se_pred. scatter-own takes the scatter function's shape from the windows' own stated
+ * errors (stagecal_scatter_fit, as calibrate did before 4 December 2026) instead of
+ * stagecal_scatter_window_se. dump (implies predict) prints on stderr, per data set and R,
+ * the new count, the truth, the fitted curve, se_fit, σ(R), its dof, the band and the scatter
+ * function's number of coefficients ("pi ..."), and per training window its count − truth
+ * and stated se ("tr ...").
  * And per fit the mean t quantile of the parameter intervals with their mean dof (each
  * parameter's own under hc2-bm) beside n − p, and the mean residual variance factor s²
  * (1 when the windows' stated standard errors are right on average).
@@ -522,7 +527,7 @@ static int measured_r_study(long reps, unsigned long seed, const char *mode_name
 static void usage(void)
 {
     fprintf(stderr, "usage: tool_coverage REPLICATIONS(>=10) SEED [REGIME] [known-se | "
-                    "per-window-rho | smoother | quad | predict]\nregimes:");
+                    "per-window-rho | smoother | quad | predict | dump | scatter-own]\nregimes:");
     for (int g = 0; g < SYNTH_NREGIMES; g++)
         fprintf(stderr, " %s", synth_regimes[g].name);
     fprintf(stderr, " (default steady)\n"
@@ -579,6 +584,8 @@ int main(int argc, char **argv)
             mode = SYNTH_SE_QUAD, known = 1;
         if (strcmp(argv[a], "predict") == 0)
             predict = 1, known = 1;
+        if (strcmp(argv[a], "scatter-own") == 0)
+            synth_scatter_own = 1, known = 1;
         if (strcmp(argv[a], "dump") == 0)
             predict = dump = 1, known = 1;
         args_ok = known;

@@ -31,6 +31,7 @@
 #include "stagecal/error.h"
 #include "stagecal/evidence.h"
 #include "stagecal/form.h"
+#include "stagecal/vle.h"
 
 #ifdef __cplusplus
 extern "C" {
@@ -55,6 +56,32 @@ typedef struct {
  * few to say). EINVAL on NULL arguments; EDATA when the least squares fail. */
 int stagecal_scatter_fit(const stagecal_evidence *ev, size_t n, const stagecal_form *form,
                          const double *theta, stagecal_scatter *out, stagecal_error *err);
+
+/* The same with the shape taken from se (n entries: window i's standard error of its stage
+ * count, as stagecal_scatter_window_se gives it) instead of ev[i].se_stages; se NULL: the
+ * windows' own (stagecal_scatter_fit). A window takes part when it has a count and se[i] is
+ * positive and finite. */
+int stagecal_scatter_fit_se(const stagecal_evidence *ev, size_t n, const double *se,
+                            const stagecal_form *form, const double *theta, stagecal_scatter *out,
+                            stagecal_error *err);
+
+/* The windows' standard errors for the scatter function's shape, from their carried samples
+ * (ev[i].s_t, s_xd, s_xb, m) detrended by a quadratic in time with the AR(1) moments of the
+ * residuals (stagecal_evidence_mean_quad), ρ pooled per analyser over the windows by lag pairs
+ * (each window's own ρ first, then all again at the pooled one), propagated to the count by
+ * stagecal_evidence_stages on a copy of the window (its u_r, conditions and Murphree
+ * efficiency as they are). Why: a batch pot curves through a window, the straight line of the
+ * default window statistics leaves that curvature in the residuals, where it reads as noise
+ * — by a different factor at each R, since how xD and xB move together depends on R — and
+ * the shape of σ(R) taken from those errors is then too flat (docs/calibration.md, *Prediction
+ * bands*: in the drifting regimes the band held 0.89 of new windows at total reflux). The
+ * fits' weights keep the builder's errors. u_xd, u_xb (n entries each, NULL: 0): the stated
+ * per-reading uncertainty of each window's analysers, a floor under the estimated noise as
+ * in the builder. se[i] = ev[i].se_stages where a window carries fewer than 3 samples or its
+ * count cannot be redone. EINVAL on NULL arguments, ENOMEM. */
+int stagecal_scatter_window_se(const stagecal_vle *vle, double murphree,
+                               const stagecal_evidence *ev, size_t n, const double *u_xd,
+                               const double *u_xb, double *se, stagecal_error *err);
 
 /* σ at reflux ratio r (≥ 0, INFINITY = total reflux), λ clamped to the fitted range; NAN
  * when s->n is 0. */
