@@ -137,48 +137,66 @@ int stagecal_scatter_window_se(const stagecal_vle *vle, double murphree,
 {
     if (!vle || !se || (n > 0 && !ev))
         return error_set(err, STAGECAL_EINVAL, "scatter window errors: NULL argument");
-    stagecal_evidence *cp = malloc((n ? n : 1) * sizeof *cp);
-    if (!cp)
+    /* per window: the quadratic's statistics (q), the straight line's (l) on the same
+     * carried samples, and the copy whose count is redone (c) */
+    stagecal_evidence *q = malloc((n ? n : 1) * 3 * sizeof *q), *l = q ? q + n : NULL,
+                      *c = q ? q + 2 * n : NULL;
+    if (!q)
         return error_set(err, STAGECAL_ENOMEM, "out of memory for %zu windows", n);
-    /* pass 0: each window's own ρ; pass 1: ρ pooled per analyser by lag pairs */
+    /* the quadratic: pass 0 each window's own ρ, pass 1 ρ pooled per analyser by lag pairs;
+     * the straight line: each window's own ρ, then stagecal_evidence_pool_rho (the builder's) */
     double rho[2] = {NAN, NAN};
     for (int pass = 0; pass < 2; pass++) {
         double w[2] = {0, 0}, r[2] = {0, 0};
         for (size_t i = 0; i < n; i++) {
-            stagecal_evidence *e = &cp[i];
-            *e = ev[i];
-            e->stages_ok = 0;
+            double mean;
+            q[i] = l[i] = ev[i];
+            q[i].stages_ok = 0;
             if (ev[i].m < 3 || !ev[i].s_t || !ev[i].s_xd || !ev[i].s_xb ||
                 stagecal_evidence_mean_quad(ev[i].s_t, ev[i].s_xd, ev[i].m, u_xd ? u_xd[i] : 0,
-                                            rho[0], &e->xd, &e->u_xd, &e->rho_xd, &e->m_xd,
+                                            rho[0], &mean, &q[i].u_xd, &q[i].rho_xd, &q[i].m_xd,
                                             NULL) != STAGECAL_OK ||
                 stagecal_evidence_mean_quad(ev[i].s_t, ev[i].s_xb, ev[i].m, u_xb ? u_xb[i] : 0,
-                                            rho[1], &e->xb, &e->u_xb, &e->rho_xb, &e->m_xb,
-                                            NULL) != STAGECAL_OK) {
-                e->m = 0; /* no samples to detrend: the window's own error */
+                                            rho[1], &mean, &q[i].u_xb, &q[i].rho_xb, &q[i].m_xb,
+                                            NULL) != STAGECAL_OK ||
+                stagecal_evidence_mean_rho(ev[i].s_t, ev[i].s_xd, ev[i].m, u_xd ? u_xd[i] : 0,
+                                           &mean, &l[i].u_xd, &l[i].rho_xd, &l[i].m_xd,
+                                           NULL) != STAGECAL_OK ||
+                stagecal_evidence_mean_rho(ev[i].s_t, ev[i].s_xb, ev[i].m, u_xb ? u_xb[i] : 0,
+                                           &mean, &l[i].u_xb, &l[i].rho_xb, &l[i].m_xb,
+                                           NULL) != STAGECAL_OK) {
+                l[i].m_xd = l[i].m_xb = 0; /* out of the pooling */
                 continue;
             }
-            e->stages_ok = 1;
-            w[0] += e->m_xd >= 2 ? (double)(e->m_xd - 1) : 0.0;
-            r[0] += e->m_xd >= 2 ? (double)(e->m_xd - 1) * e->rho_xd : 0.0;
-            w[1] += e->m_xb >= 2 ? (double)(e->m_xb - 1) : 0.0;
-            r[1] += e->m_xb >= 2 ? (double)(e->m_xb - 1) * e->rho_xb : 0.0;
+            q[i].stages_ok = 1;
+            w[0] += q[i].m_xd >= 2 ? (double)(q[i].m_xd - 1) : 0.0;
+            r[0] += q[i].m_xd >= 2 ? (double)(q[i].m_xd - 1) * q[i].rho_xd : 0.0;
+            w[1] += q[i].m_xb >= 2 ? (double)(q[i].m_xb - 1) : 0.0;
+            r[1] += q[i].m_xb >= 2 ? (double)(q[i].m_xb - 1) * q[i].rho_xb : 0.0;
         }
         for (int a = 0; a < 2; a++)
             rho[a] = w[a] > 0 ? r[a] / w[a] : NAN;
     }
+    stagecal_evidence_pool_rho(l, n);
     for (size_t i = 0; i < n; i++) {
-        stagecal_evidence *e = &cp[i];
         se[i] = ev[i].se_stages;
-        if (!e->stages_ok || !ev[i].stages_ok)
+        if (!q[i].stages_ok || !ev[i].stages_ok || !(l[i].u_xd > 0) || !(l[i].u_xb > 0))
             continue;
-        /* the count's error from these means' errors alone (not the smoother's) */
-        e->se_sxd = e->se_sxb = 0;
-        if (stagecal_evidence_stages(vle, murphree, e, NULL) == STAGECAL_OK && e->stages_ok &&
-            e->se_stages > 0 && isfinite(e->se_stages))
-            se[i] = e->se_stages;
+        /* the window's own errors (with whatever the builder added to them) times what the
+         * quadratic takes out of the straight line's on the same samples */
+        double fd = q[i].u_xd / l[i].u_xd, fb = q[i].u_xb / l[i].u_xb;
+        if (!(fd > 0 && isfinite(fd) && fb > 0 && isfinite(fb)))
+            continue;
+        c[i] = ev[i];
+        c[i].u_xd *= fd;
+        c[i].u_xb *= fb;
+        c[i].se_sxd *= fd;
+        c[i].se_sxb *= fb;
+        if (stagecal_evidence_stages(vle, murphree, &c[i], NULL) == STAGECAL_OK && c[i].stages_ok &&
+            c[i].se_stages > 0 && isfinite(c[i].se_stages))
+            se[i] = c[i].se_stages;
     }
-    free(cp);
+    free(q);
     return STAGECAL_OK;
 }
 

@@ -154,51 +154,63 @@ static void scatter_fit_degree_and_closed_forms(void **state)
 }
 
 /* The refusals of stagecal_scatter_check, each with its message. */
-/* The shape's window errors (stagecal_scatter_window_se): a total-reflux window (α = 2.5)
- * whose xD and xB readings are exact quadratics in time (a pot curving through the window)
- * plus an alternating ±1e-4 (lag-1 autocorrelation −1: ρ clipped at 0) gets after the
- * quadratic detrend the stated floor u = 0.002 per reading (the residuals' σ ≈ 1e-4 is below
- * it), so the error of each mean is u/√m, and the count's standard error is Fenske's
- * first-order propagation at the means: N = ln[(xD/(1 − xD))·((1 − xB)/xB)]/ln α (Fenske
- * 1932, from memory), ∂N/∂xD = 1/(xD(1 − xD) ln α), ∂N/∂xB = −1/(xB(1 − xB) ln α). Tolerance
- * 1e-6 relative: the inversion's sensitivities at the means (observed below 1e-9). A
- * window that carries no samples keeps its own se_stages; with these errors in place of the
- * windows' own, stagecal_scatter_fit_se takes its shape from them (exact variance function as
- * above, the windows' own se all 1). */
+/* The shape's window errors (stagecal_scatter_window_se): the window's own errors times
+ * quadratic/straight line on its carried samples. A total-reflux window (α = 2.5) whose xD and
+ * xB readings are straight lines in time plus an alternating ±1e-4 (lag-1 autocorrelation −1:
+ * ρ clipped at 0 by both) has residuals of σ ≈ 1e-4 below the stated floor u = 0.002 after
+ * either detrend, so both state u/√m (the straight line max(s, u)/√n_eff, the quadratic
+ * u·√(1ᵀΣ(0)1)/m: include/stagecal/evidence.h) and the ratio is 1: the count's error is then
+ * Fenske's first-order propagation of the window's own u_xd = u_xb = 0.01 at its means:
+ * N = ln[(xD/(1 − xD))·((1 − xB)/xB)]/ln α (Fenske 1932, from memory), ∂N/∂xD = 1/(xD(1 − xD)
+ * ln α), ∂N/∂xB = −1/(xB(1 − xB) ln α). Tolerance 1e-6 relative: the inversion's sensitivities
+ * at the means (observed below 1e-9). The same window curving (a pot's trajectory): the
+ * straight line leaves the curvature in its residuals and the quadratic does not, so the
+ * error comes out smaller than the window's own. A window that carries no samples keeps its
+ * own se_stages. With these errors in place of the windows' own, stagecal_scatter_fit_se
+ * takes its shape from them (the exact variance function above, the windows' own se all 1). */
 static void scatter_window_se_detrends_a_curving_pot(void **state)
 {
     (void)state;
     stagecal_vle *vle = stagecal_vle_alloc_alpha(2.5, NULL);
     assert_non_null(vle);
     enum { M = 12 };
-    double t[M], xd[M], xb[M], mxd = 0, mxb = 0;
+    double t[M], xd[M], xb[M], cxd[M], cxb[M], mxd = 0, mxb = 0;
     for (int i = 0; i < M; i++) {
         double u = i / (M - 1.0), alt = i % 2 ? -1e-4 : 1e-4;
         t[i] = 60.0 * i;
-        xd[i] = 0.95 - 0.02 * u * (1 + u) / 2 + alt;
-        xb[i] = 0.30 - 0.05 * u - 0.04 * u * u + alt;
+        xd[i] = 0.95 - 0.01 * u + alt;
+        xb[i] = 0.30 - 0.05 * u + alt;
+        cxd[i] = xd[i] - 0.02 * u * u; /* curving */
+        cxb[i] = xb[i] - 0.04 * u * u;
         mxd += xd[i] / M, mxb += xb[i] / M;
     }
-    stagecal_evidence ev[2];
+    stagecal_evidence ev[3];
     memset(ev, 0, sizeof ev);
-    for (int k = 0; k < 2; k++) {
+    for (int k = 0; k < 3; k++) {
         ev[k].r = INFINITY;
         ev[k].total_reflux = 1;
         ev[k].xd = mxd, ev[k].xb = mxb;
-        ev[k].u_xd = ev[k].u_xb = 0.01; /* the straight line's, inflated */
+        ev[k].u_xd = ev[k].u_xb = 0.01;
         ev[k].stages_ok = 1;
         ev[k].stages = 4;
         ev[k].se_stages = 0.7;
     }
     ev[0].m = M, ev[0].s_t = t, ev[0].s_xd = xd, ev[0].s_xb = xb;
-    double uf[2] = {0.002, 0.002}, se[2];
+    ev[1].m = M, ev[1].s_t = t, ev[1].s_xd = cxd, ev[1].s_xb = cxb;
+    double uf[3] = {0.002, 0.002, 0.002}, se[3];
     stagecal_error err;
-    assert_int_equal(stagecal_scatter_window_se(vle, 1.0, ev, 2, uf, uf, se, &err), STAGECAL_OK);
+    /* one at a time: ρ is pooled over the windows of a call */
+    stagecal_evidence one[2] = {ev[0], ev[2]};
+    assert_int_equal(stagecal_scatter_window_se(vle, 1.0, one, 2, uf, uf, se, &err), STAGECAL_OK);
+    se[2] = se[1];
+    assert_int_equal(stagecal_scatter_window_se(vle, 1.0, ev + 1, 1, uf, uf, se + 1, &err),
+                     STAGECAL_OK);
     double la = log(2.5), gd = 1 / (mxd * (1 - mxd) * la), gb = -1 / (mxb * (1 - mxb) * la);
-    double want = sqrt(gd * gd + gb * gb) * 0.002 / sqrt((double)M);
-    assert_rel(se[0], want, 1e-6, "Fenske's propagation of u/sqrt(m)");
-    assert_rel(se[1], 0.7, 0, "no samples: the window's own");
-    assert_int_equal(stagecal_scatter_window_se(NULL, 1.0, ev, 2, uf, uf, se, &err),
+    double want = sqrt(gd * gd + gb * gb) * 0.01;
+    assert_rel(se[0], want, 1e-6, "Fenske's propagation of the window's own errors");
+    assert_true(se[1] < 0.9 * se[0]); /* the curvature no longer reads as noise */
+    assert_rel(se[2], 0.7, 0, "no samples: the window's own");
+    assert_int_equal(stagecal_scatter_window_se(NULL, 1.0, ev, 3, uf, uf, se, &err),
                      STAGECAL_EINVAL);
     stagecal_vle_free(vle);
 
