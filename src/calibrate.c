@@ -153,29 +153,6 @@ static void fill_hetp(stagecal_model *mo, const stagecal_column *col,
     }
 }
 
-/* The model's scatter function: its shape from stagecal_scatter_window_se with the column's
- * stated analyser uncertainties as floors (as the evidence builder's window means take them). */
-static int model_scatter(stagecal_calibration *cal, const stagecal_calibrate_params *par,
-                         const stagecal_regress_result *fit, stagecal_error *err)
-{
-    const stagecal_evidence *ev = cal->evidence.ev;
-    size_t nev = cal->evidence.n;
-    double *se = malloc((nev ? nev : 1) * 3 * sizeof *se);
-    if (!se)
-        return error_set(err, STAGECAL_ENOMEM, "out of memory for %zu windows", nev);
-    double *uxd = se + nev, *uxb = se + 2 * nev;
-    for (size_t i = 0; i < nev; i++) {
-        uxd[i] = cal->column->u.xd;
-        uxb[i] = cal->column->u.xb;
-    }
-    int rc = stagecal_scatter_window_se(cal->column->system.vle, par->murphree, ev, nev, uxd, uxb,
-                                        se, err);
-    if (rc == STAGECAL_OK)
-        rc = stagecal_scatter_fit_se(ev, nev, se, &fit->form, fit->theta, &cal->model.scatter, err);
-    free(se);
-    return rc;
-}
-
 /* Copies the fit into the model and completes the envelope, HETP and warnings. */
 static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params *par,
                       const char *column_path, const stagecal_regress_result *fit,
@@ -216,10 +193,11 @@ static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params
     if (fit->design && (rc = stagecal_model_set_design(mo, fit->design, fit->n, err)))
         return rc;
     /* σ of one new window by R: the windows' scatter function (stagecal/scatter.h), its
-     * shape from the windows' quadratic-detrend errors (stagecal_scatter_window_se: a pot
-     * curving through a window distorts the straight line's by R); the censored-likelihood
-     * fit keeps one σ */
-    if (cal->used != STAGECAL_MODEL_CENSORED && (rc = model_scatter(cal, par, fit, err)))
+     * shape from the windows' own errors (the quadratic-detrend shape of
+     * stagecal_scatter_window_se is measured, not used: docs/calibration.md, *Prediction
+     * bands*); the censored-likelihood fit keeps one σ */
+    if (cal->used != STAGECAL_MODEL_CENSORED &&
+        (rc = stagecal_scatter_fit(ev, nev, &fit->form, fit->theta, &mo->scatter, err)))
         return rc;
     mo->level = par->level;
     mo->method = cal->used;

@@ -269,7 +269,8 @@ struct synth_diag {
     double su_xd[12], se_xd[12], su_xb[12], se_xb[12], su_l[12], se_l[12];
 };
 static struct synth_diag *synth_diag_acc;
-static int synth_scatter_own; /* 1: the scatter function's shape from the windows' own se */
+static int synth_scatter_quad; /* 1: the shape from stagecal_scatter_window_se (measured, not
+                                  calibrate's) */
 
 static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stagecal_form *form,
                             const struct synth_regime *rg, enum synth_se_mode se_mode,
@@ -414,19 +415,20 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
         rc = synth_fill(form, &rc_fit, 1.0, fc) ? __LINE__ : 0;
         /* the prediction band as calibrate's model file gives it (src/calibrate.c and
          * stagecal_model_eval: σ the windows' scatter function at R with its own dof, capped
-         * at the smaller of θ's and σ's; its shape from stagecal_scatter_window_se, or with
-         * synth_scatter_own from the windows' own stated errors as before 4 December 2026),
+         * at the smaller of θ's and σ's; its shape from the windows' own stated errors, or
+         * with synth_scatter_quad from stagecal_scatter_window_se),
          * and with one σ for every R (the window counts' root mean square about the curve) */
         double pdof = rc_fit.sigma_dof > 0 ? fmin(rc_fit.dof, rc_fit.sigma_dof) : rc_fit.dof;
         stagecal_scatter sc;
         double sesh[NW], fl_xd[NW], fl_xb[NW];
         for (size_t w = 0; w < NW; w++)
             fl_xd[w] = u_xd, fl_xb[w] = u_xb; /* the floors of the window means above */
-        fc->pi_ok = rc == 0 && rc_fit.sigma > 0 &&
-                    (synth_scatter_own || stagecal_scatter_window_se(vle, 1.0, ev, NW, fl_xd, fl_xb,
-                                                                     sesh, NULL) == STAGECAL_OK) &&
-                    stagecal_scatter_fit_se(ev, NW, synth_scatter_own ? NULL : sesh, form,
-                                            rc_fit.theta, &sc, NULL) == STAGECAL_OK;
+        fc->pi_ok =
+            rc == 0 && rc_fit.sigma > 0 &&
+            (!synth_scatter_quad || stagecal_scatter_window_se(vle, 1.0, ev, NW, fl_xd, fl_xb, sesh,
+                                                               NULL) == STAGECAL_OK) &&
+            stagecal_scatter_fit_se(ev, NW, synth_scatter_quad ? sesh : NULL, form, rc_fit.theta,
+                                    &sc, NULL) == STAGECAL_OK;
         for (int q = 0; q < 3 && fc->pi_ok; q++) {
             stagecal_band bd, b1;
             double sq = sc.n > 0 ? stagecal_scatter_sd(&sc, synth_band_r[q]) : rc_fit.sigma;

@@ -4,7 +4,7 @@
  * calibrate_intervals_cover_truth in tests/test_calibrate.c, over many more data sets).
  *
  * Usage: tool_coverage REPLICATIONS SEED [REGIME] [known-se | per-window-rho | smoother | quad]
- *        [predict | dump] [scatter-own]
+ *        [predict | dump] [scatter-quad]
  *        tool_coverage REPLICATIONS SEED measured-r [measured | set-point | readings] [diag] [quad]
  *        tool_coverage REPLICATIONS SEED measured-r MODE [diag] refit | fixedwin S
  * (whole run logs from tests/synth_runlog.h through the whole chain; see measured_r_study;
@@ -42,16 +42,15 @@
  * (σ the scatter function at R, stagecal/scatter.h), and inside the band with one σ for
  * every R (the window counts' root mean square about the curve, model format ≤ 3), with the
  * root mean square of the new count's distance from the fitted curve beside the bands' rms
- * se_pred. scatter-own takes the scatter function's shape from the windows' own stated
- * errors (stagecal_scatter_fit, as calibrate did before 4 December 2026) instead of
- * stagecal_scatter_window_se. dump (implies predict) prints on stderr, per data set and R,
- * the new count, the truth, the fitted curve, se_fit, σ(R), its dof, the band and the scatter
- * function's number of coefficients ("pi ..."), and per training window its count − truth
- * and stated se ("tr ...").
- * And per fit the mean t quantile of the parameter intervals with their mean dof (each
- * parameter's own under hc2-bm) beside n − p, and the mean residual variance factor s²
- * (1 when the windows' stated standard errors are right on average).
- * Exit status 0, or 1 on bad arguments or a library failure.
+ * se_pred. scatter-quad takes the scatter function's shape from the windows' errors
+ * corrected by a quadratic detrend (stagecal_scatter_window_se, stagecal_scatter_fit_se)
+ * instead of their own stated errors (stagecal_scatter_fit, calibrate's). dump (implies predict)
+ * prints on stderr, per data set and R, the new count, the truth, the fitted curve, se_fit, σ(R),
+ * its dof, the band and the scatter function's number of coefficients ("pi ..."), and per training
+ * window its count − truth and stated se ("tr ..."). And per fit the mean t quantile of the
+ * parameter intervals with their mean dof (each parameter's own under hc2-bm) beside n − p, and the
+ * mean residual variance factor s² (1 when the windows' stated standard errors are right on
+ * average). Exit status 0, or 1 on bad arguments or a library failure.
  */
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
@@ -527,7 +526,7 @@ static int measured_r_study(long reps, unsigned long seed, const char *mode_name
 static void usage(void)
 {
     fprintf(stderr, "usage: tool_coverage REPLICATIONS(>=10) SEED [REGIME] [known-se | "
-                    "per-window-rho | smoother | quad | predict | dump | scatter-own]\nregimes:");
+                    "per-window-rho | smoother | quad | predict | dump | scatter-quad]\nregimes:");
     for (int g = 0; g < SYNTH_NREGIMES; g++)
         fprintf(stderr, " %s", synth_regimes[g].name);
     fprintf(stderr, " (default steady)\n"
@@ -584,8 +583,8 @@ int main(int argc, char **argv)
             mode = SYNTH_SE_QUAD, known = 1;
         if (strcmp(argv[a], "predict") == 0)
             predict = 1, known = 1;
-        if (strcmp(argv[a], "scatter-own") == 0)
-            synth_scatter_own = 1, known = 1;
+        if (strcmp(argv[a], "scatter-quad") == 0)
+            synth_scatter_quad = 1, known = 1;
         if (strcmp(argv[a], "dump") == 0)
             predict = dump = 1, known = 1;
         args_ok = known;

@@ -65,20 +65,21 @@ int stagecal_scatter_fit_se(const stagecal_evidence *ev, size_t n, const double 
                             const stagecal_form *form, const double *theta, stagecal_scatter *out,
                             stagecal_error *err);
 
-/* The windows' standard errors for the scatter function's shape, from their carried samples
- * (ev[i].s_t, s_xd, s_xb, m) detrended by a quadratic in time with the AR(1) moments of the
- * residuals (stagecal_evidence_mean_quad), ρ pooled per analyser over the windows by lag pairs
- * (each window's own ρ first, then all again at the pooled one), propagated to the count by
- * stagecal_evidence_stages on a copy of the window (its u_r, conditions and Murphree
- * efficiency as they are). Why: a batch pot curves through a window, the straight line of the
- * default window statistics leaves that curvature in the residuals, where it reads as noise
- * — by a different factor at each R, since how xD and xB move together depends on R — and
- * the shape of σ(R) taken from those errors is then too flat (docs/calibration.md, *Prediction
- * bands*: in the drifting regimes the band held 0.89 of new windows at total reflux). The
- * fits' weights keep the builder's errors. u_xd, u_xb (n entries each, NULL: 0): the stated
- * per-reading uncertainty of each window's analysers, a floor under the estimated noise as
- * in the builder. se[i] = ev[i].se_stages where a window carries fewer than 3 samples or its
- * count cannot be redone. EINVAL on NULL arguments, ENOMEM. */
+/* The windows' standard errors with the straight line's detrend swapped for a quadratic's:
+ * each window's own u_xd, u_xb (with whatever the builder added to them) times the ratio of
+ * the quadratic's error of the mean (stagecal_evidence_mean_quad, ρ pooled per analyser over
+ * the windows by lag pairs: each window's own first, then all again at the pooled one) to the
+ * straight line's (stagecal_evidence_mean_rho, stagecal_evidence_pool_rho) on its carried
+ * samples (ev[i].s_t, s_xd, s_xb, m), propagated to the count by stagecal_evidence_stages on a
+ * copy of the window (its u_r, conditions and Murphree efficiency as they are). Why: a batch
+ * pot curves through a window, the straight line leaves that curvature in the residuals,
+ * where it reads as noise by a different factor at each R, and the shape of σ(R) taken from
+ * those errors is then too flat. A study option, not calibrate's (docs/calibration.md,
+ * *Prediction bands*: it brings the drifting synthetic regimes to 0.93 at total reflux, and
+ * the demo scenario's lowest reflux ratios down from 0.92 to 0.86). u_xd, u_xb (n entries
+ * each, NULL: 0): the stated per-reading uncertainty of each window's analysers, a floor under
+ * the estimated noise as in the builder. se[i] = ev[i].se_stages where a window carries fewer
+ * than 3 samples or its count cannot be redone. EINVAL on NULL arguments, ENOMEM. */
 int stagecal_scatter_window_se(const stagecal_vle *vle, double murphree,
                                const stagecal_evidence *ev, size_t n, const double *u_xd,
                                const double *u_xb, double *se, stagecal_error *err);
