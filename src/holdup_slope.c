@@ -139,12 +139,19 @@ int holdup_window_slope_var(const stagecal_runlog *log, size_t first, size_t las
     stagecal_holdup_params par = stagecal_holdup_default_params();
     size_t half = par.half_window < 1 ? 1 : par.half_window, s = 0, e = 0;
     double n = (double)(last - first + 1);
-    double *coef = calloc(log->n, sizeof *coef), *w = malloc(log->n * sizeof *w);
+    /* Every row a local quadratic reaches lies in the stretches of the window's rows, so in
+     * [span0, span1): the first row's stretch start to the last row's stretch end. Arrays of
+     * that span, not of the whole log (one window of a year's log used to clear 5·10⁵ doubles). */
+    size_t span0, span1, tmp;
+    stretch_of(log, first, &span0, &tmp);
+    stretch_of(log, last, &tmp, &span1);
+    size_t span = span1 - span0;
+    double *coef = calloc(span, sizeof *coef), *w = malloc(span * sizeof *w);
     if (!coef || !w) {
         free(coef), free(w);
         return STAGECAL_ENOMEM;
     }
-    size_t lo = log->n, hi = 0;
+    size_t lo = span1, hi = 0;
     for (size_t i = first; i <= last; i++) {
         if (!isfinite(gs[i]) || gs[i] == 0)
             continue;
@@ -155,12 +162,12 @@ int holdup_window_slope_var(const stagecal_runlog *log, size_t first, size_t las
         if (!holdup_slope_weights(log->t_s, log->xd, a, b, i, w))
             continue;
         for (size_t k = a; k <= b; k++)
-            coef[k] += gs[i] * w[k - a] / n;
+            coef[k - span0] += gs[i] * w[k - a] / n;
         lo = a < lo ? a : lo, hi = b > hi ? b : hi;
     }
     double ss = 0;
-    for (size_t k = lo; k <= hi && k < log->n; k++)
-        ss += coef[k] * coef[k];
+    for (size_t k = lo; k <= hi && k < span1; k++)
+        ss += coef[k - span0] * coef[k - span0];
     *var = u_xd * u_xd * ss;
     free(coef), free(w);
     return STAGECAL_OK;
