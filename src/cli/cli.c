@@ -432,6 +432,41 @@ void cli_print_params(const stagecal_regress_result *f, int long_form)
                    f->theta[i], sw, sp, f->se[i], ip, f->ci_low[i], ip, f->ci_high[i]);
 }
 
+void cli_print_bootstrap(const stagecal_regress_result *f)
+{
+    if (f->boot_b == 0)
+        return;
+    if (f->boot_ok == 0) {
+        printf("\n  bootstrap (B = %zu, seed %lu): no resample could be refitted\n", f->boot_b,
+               f->boot_seed);
+        return;
+    }
+    printf("\n  bootstrap (%s resampling, B = %zu, %zu fitted, seed %lu), percentile "
+           "intervals:\n",
+           f->boot_kind == STAGECAL_BOOT_CASE ? "case" : "residual", f->boot_b, f->boot_ok,
+           f->boot_seed);
+    for (size_t i = 0; i < f->p; i++)
+        printf("  %-10s SE %12.6g   [%.8g, %.8g]\n", f->form.param_names[i], f->boot_se[i],
+               f->boot_low[i], f->boot_high[i]);
+}
+
+void cli_json_bootstrap(const stagecal_regress_result *f, json_t *params, json_t *obj)
+{
+    if (f->boot_b == 0)
+        return;
+    for (size_t i = 0; f->boot_ok > 0 && i < f->p && i < json_array_size(params); i++) {
+        json_t *o = json_array_get(params, i);
+        json_object_set_new(o, "boot_low", cli_json_real(f->boot_low[i]));
+        json_object_set_new(o, "boot_high", cli_json_real(f->boot_high[i]));
+        json_object_set_new(o, "boot_se", cli_json_real(f->boot_se[i]));
+    }
+    json_object_set_new(obj, "bootstrap",
+                        json_pack("{s:I, s:I, s:I, s:s}", "B", (json_int_t)f->boot_b, "fitted",
+                                  (json_int_t)f->boot_ok, "seed", (json_int_t)f->boot_seed,
+                                  "resample",
+                                  f->boot_kind == STAGECAL_BOOT_CASE ? "case" : "residual"));
+}
+
 json_t *cli_soft_json(const stagecal_runlog_soft *s)
 {
     return json_pack("{s:I,s:I,s:I,s:I,s:I,s:I,s:I}", "xd", (json_int_t)s->xd_inferred,

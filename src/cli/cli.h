@@ -111,6 +111,11 @@ void cli_format_day(double t_s, const char *nan_text, char *buf, size_t cap);
  * parameter (value, standard error, interval; "not determined" where it is). long_form:
  * 10 significant digits (regress), else 6 (calibrate). */
 void cli_print_params(const stagecal_regress_result *f, int long_form);
+/* The bootstrap's percentile intervals of a fit that ran one (f->boot_b > 0), text. */
+void cli_print_bootstrap(const stagecal_regress_result *f);
+/* The same in JSON: boot_low, boot_high, boot_se added to each object of params (one per
+ * parameter, in order) and a "bootstrap" object {B, fitted, seed, resample} to obj. */
+void cli_json_bootstrap(const stagecal_regress_result *f, json_t *params, json_t *obj);
 /* A reflux ratio as text: "inf" at total reflux, else %.<digits>g. */
 void cli_format_reflux(char *buf, size_t cap, double r, int digits);
 /* The three days of a forecast (crossing, band low, band high) by cli_format_day. */

@@ -128,7 +128,9 @@ static json_t *fit_json(const stagecal_regress_result *f, int status, const char
     json_t *o = json_object();
     json_object_set_new(o, "status", json_string("ok"));
     json_object_set_new(o, "form", json_string(f->form.name));
-    json_object_set_new(o, "parameters", params_json(f));
+    json_t *params = params_json(f);
+    cli_json_bootstrap(f, params, o); /* --bootstrap: the stage-space fit's resamples */
+    json_object_set_new(o, "parameters", params);
     json_object_set_new(o, "rss", cli_json_real(f->rss));
     json_object_set_new(o, "sigma", cli_json_real(f->sigma_obs > 0 ? f->sigma_obs : f->sigma));
     json_object_set_new(o, "dof", cli_json_real(f->dof));
@@ -188,6 +190,7 @@ static void print_fit(const char *title, const stagecal_regress_result *f)
            "from %s\n",
            f->sigma_obs > 0 ? f->sigma_obs : f->sigma, f->dof, f->n,
            stagecal_regress_cov_label(f->cov_kind));
+    cli_print_bootstrap(f); /* --bootstrap: the stage-space fit's resamples */
 }
 
 /* The two fits side by side in words: the largest difference of a parameter in combined

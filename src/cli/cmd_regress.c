@@ -96,11 +96,6 @@ static int print_json(const char *path, const stagecal_regress_result *res,
                       und ? json_null() : cli_json_real(res->se[i]), "ci_low",
                       und ? json_null() : cli_json_real(res->ci_low[i]), "ci_high",
                       und ? json_null() : cli_json_real(res->ci_high[i]), "determined", !und);
-        if (res->boot_ok > 0) {
-            json_object_set_new(o, "boot_low", cli_json_real(res->boot_low[i]));
-            json_object_set_new(o, "boot_high", cli_json_real(res->boot_high[i]));
-            json_object_set_new(o, "boot_se", cli_json_real(res->boot_se[i]));
-        }
         json_array_append_new(params, o);
         json_t *row = json_array();
         for (size_t j = 0; j < p; j++)
@@ -154,12 +149,7 @@ static int print_json(const char *path, const stagecal_regress_result *res,
                                       "scale", cli_json_real(res->robust_scale), "iterations",
                                       (json_int_t)res->robust_iter, "weights", w));
     }
-    if (res->boot_b > 0)
-        json_object_set_new(doc, "bootstrap",
-                            json_pack("{s:I, s:I, s:I, s:s}", "B", (json_int_t)res->boot_b,
-                                      "fitted", (json_int_t)res->boot_ok, "seed",
-                                      (json_int_t)res->boot_seed, "resample",
-                                      res->boot_kind == STAGECAL_BOOT_CASE ? "case" : "residual"));
+    cli_json_bootstrap(res, params, doc);
     if (rows)
         json_object_set_new(doc, "ranking", ranking_json(rows, nrows));
     return cli_json_print(doc);
@@ -200,15 +190,7 @@ static void print_text(const char *path, const stagecal_regress_result *res,
         stagecal_regress_ident_text(res, why, sizeof why);
         printf("  (%s)\n", why);
     }
-    if (res->boot_ok > 0) {
-        printf("\n  bootstrap (%s resampling, B = %zu, %zu fitted, seed %lu), percentile "
-               "intervals:\n",
-               res->boot_kind == STAGECAL_BOOT_CASE ? "case" : "residual", res->boot_b,
-               res->boot_ok, res->boot_seed);
-        for (size_t i = 0; i < res->p; i++)
-            printf("  %-10s SE %12.6g   [%.8g, %.8g]\n", res->form.param_names[i], res->boot_se[i],
-                   res->boot_low[i], res->boot_high[i]);
-    }
+    cli_print_bootstrap(res);
     printf("\nresidual sigma %.8g   RSS %.8g   R^2 %.6f\n", res->sigma, res->rss, res->r2);
     if (res->ic_defined)
         printf("AICc %.6g   BIC %.6g\n", res->aicc, res->bic);

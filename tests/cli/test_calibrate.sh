@@ -35,6 +35,20 @@ cp "$tmp/j" "$tmp/j_default"
 # the covariance changes the standard errors, never the estimates
 check "calibrate --covariance model: the model's, same estimates, other standard errors" \
       "d['composition_space']['covariance'] == 'model' and [p['value'] for p in d['parameters']] == [p['value'] for p in json.load(open('$tmp/j_default'))['parameters']] and [p['se'] for p in d['parameters']] != [p['se'] for p in json.load(open('$tmp/j_default'))['parameters']]"
+# --bootstrap: the stage-space fit's case-resampling percentile intervals, reported (they were
+# computed and dropped before); the same resamples as `regress --bootstrap` on the windows'
+# points file with the same seed, so the same numbers to the bit
+"$BIN" calibrate --column "$COL" --form saturating --json --quiet --dry-run --bootstrap 100 \
+    --points-out "$tmp/bpts.csv" $LOGS >"$tmp/j"
+"$BIN" regress "$tmp/bpts.csv" --form saturating --bootstrap 100 --json >"$tmp/rj"
+check "calibrate --bootstrap: the stage-space fit's percentile intervals, as regress gives them" \
+      "d['stage_space']['bootstrap'] == {'B': 100, 'fitted': 100, 'seed': 1, 'resample': 'case'} and 'bootstrap' not in d['composition_space'] and [(p['boot_low'], p['boot_high'], p['boot_se']) for p in d['stage_space']['parameters']] == [(p['boot_low'], p['boot_high'], p['boot_se']) for p in json.load(open('$tmp/rj'))['parameters']] and all(p['boot_low'] < p['boot_high'] for p in d['stage_space']['parameters'])"
+if "$BIN" calibrate --column "$COL" --form saturating --quiet --dry-run --bootstrap 100 $LOGS |
+    grep -q "bootstrap (case resampling, B = 100, 100 fitted, seed 1), percentile intervals:"; then
+    echo "ok: calibrate --bootstrap: the summary prints the intervals"
+else
+    echo "FAIL: calibrate --bootstrap: no intervals in the summary"; fails=$((fails + 1))
+fi
 cp "$tmp/j_default" "$tmp/j"
 # Demo truth (datasets/demo/README.md): a(t) = 9.5·(1 − 0.012·months), g(F) ≤ 1, so the
 # saturation level of the first quarter lies between 8 and 9.5 stages.
