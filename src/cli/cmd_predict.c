@@ -669,7 +669,8 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
         OPT_FLAG(0, "run-scatter", &q.run_scatter,
                  "the band also carries the run-to-run scatter of the stage count (the\n"
                  "model's sigma, by R where the file has a scatter function): a prediction\n"
-                 "band for one batch, not a confidence band on the mean law"),
+                 "band for one batch, not a confidence band on the mean law; conservative,\n"
+                 "as sigma holds the windows' measurement error too"),
         OPT_END_COMMON(ctx),
     };
     int first, rc;

@@ -31,7 +31,8 @@ json_t *predict_band_json(const stagecal_batch_band *band, const struct dyn_view
         (json_int_t)band->n_failed, "batch_time_h", interval_json(&band->t_end_s, H(1.0)),
         "energy_gj", interval_json(&band->energy_j, 1 / STAGECAL_UNIT_GJ), "covers",
         band->run_scatter ? "parameter uncertainty (t draws) and the run-to-run scatter of one "
-                            "batch (prediction band)"
+                            "batch (prediction band, conservative: the scatter holds the "
+                            "windows' measurement error too)"
                           : "parameter uncertainty of the mean law, t draws (not the run-to-run "
                             "scatter: --run-scatter)");
     if (band->run_scatter) /* the dof of the run-to-run scatter's t draws */
