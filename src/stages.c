@@ -171,7 +171,7 @@ static int reject_inputs(const stagecal_vle *vle, double xd, double xb, double r
 static int step_tangent(stepper *st, tl3 m, tl3 b, tl3 ty, double x, tl3 *tx)
 {
     double s;
-    int rc = stagecal_vle_dydx(st->vle, x, &s);
+    int rc = stepper_dydx(st, x, &s);
     if (rc != STAGECAL_OK)
         return error_set(st->err, rc == STAGECAL_EINVAL ? STAGECAL_EINTERNAL : rc,
                          "equilibrium slope at %.17g failed: %s", x, stagecal_strerror(rc));
@@ -219,6 +219,7 @@ static int invert_core(const stagecal_vle *vle, double xd, double xb, double ref
     int rc = stepper_init(&st, vle, par, xd, reflux, e, err);
     if (rc)
         goto done;
+    st.want_slope = tl != NULL;
     res->lv = st.m;
     /* the line and its tangents: m = R/(R + 1), b = xD/(R + 1), constant at R = ∞ */
     tl3 m = tl_const(st.m), b = tl_const(st.b), txd = tl_const(xd);
@@ -232,11 +233,14 @@ static int invert_core(const stagecal_vle *vle, double xd, double xb, double ref
         }
     }
 
-    double ypot, x_target;
-    if ((rc = stepper_ystar(&st, xb, &ypot)))
+    double ypot, x_target, sxb;
+    int with_sxb = tl && stepper_ystar_slope(&st, xb, &ypot, &sxb);
+    if (!with_sxb && (rc = stepper_ystar(&st, xb, &ypot)))
         goto done;
     tl3 typot = tl_const(ypot);
-    if (tl && (rc = stagecal_vle_dydx(vle, xb, &typot.d[TL_XB]))) {
+    if (with_sxb)
+        typot.d[TL_XB] = sxb;
+    else if (tl && (rc = stagecal_vle_dydx(vle, xb, &typot.d[TL_XB]))) {
         rc = error_set(err, STAGECAL_EINTERNAL, "equilibrium slope at %.17g failed", xb);
         goto done;
     }

@@ -178,6 +178,10 @@ typedef struct {
     int vle_rc;          /* first vle failure inside the GSL callback */
     gsl_root_fsolver *s; /* Brent solver when E < 1, else NULL */
     stagecal_error *err;
+    int table;      /* queries go to the Hermite table (vle_on_table) */
+    int want_slope; /* keep y*'(x) of each x*(y) at E = 1 for the tangents (set by the caller) */
+    int slope_ok;   /* slope is y*'(slope_x), the last x*(y) */
+    double slope_x, slope;
 } stepper;
 
 static inline double op_line(const stepper *st, double x)
@@ -191,6 +195,11 @@ void stepper_free(stepper *st);
 /* y*(x) and x*(y); a failure becomes EINTERNAL/ENOCONV with a message in st->err. */
 int stepper_ystar(stepper *st, double x, double *y);
 int stepper_xstar(stepper *st, double y, double *x);
+/* y*'(x), the stagecal_vle_dydx double (kept from the last x*(y) when it was at x). */
+int stepper_dydx(stepper *st, double x, double *dydx);
+/* y*(x) and y*'(x) as stepper_ystar and stagecal_vle_dydx give them, the table located once;
+ * 0 (nothing filled) when the model is not a table or x is outside it: ask separately. */
+int stepper_ystar_slope(stepper *st, double x, double *y, double *dydx);
 /* Vapour on the (pseudo-)equilibrium curve at liquid x. */
 int stepper_pseudo_y(stepper *st, double x, double *y);
 /* One step from x_prev: fills *x, *y. Returns STAGECAL_OK; *pinch = 1 when no progress. */

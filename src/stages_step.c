@@ -24,6 +24,11 @@
 
 int stepper_ystar(stepper *st, double x, double *y)
 {
+    if (st->table && x >= 0.0 && x <= 1.0) {
+        /* stagecal_vle_ystar's range check passed: its table query (table_query, vle.c) */
+        *y = fmin(fmax(vle_herm_eval(st->vle, st->vle->ys, st->vle->ms, x), 0.0), 1.0);
+        return STAGECAL_OK;
+    }
     int rc = stagecal_vle_ystar(st->vle, x, y);
     if (rc != STAGECAL_OK)
         return error_set(st->err, rc == STAGECAL_EINVAL ? STAGECAL_EINTERNAL : rc,
@@ -33,11 +38,40 @@ int stepper_ystar(stepper *st, double x, double *y)
 
 int stepper_xstar(stepper *st, double y, double *x)
 {
-    int rc = stagecal_vle_xstar(st->vle, y, x);
+    int rc;
+    st->slope_ok = 0;
+    if (st->want_slope && st->table && st->e == 1.0 && y >= 0.0 && y <= 1.0) {
+        /* stagecal_vle_xstar's range check passed: its table query, with the slope */
+        rc = vle_herm_invert_slope(st->vle, y, x, &st->slope);
+        st->slope_ok = rc == STAGECAL_OK;
+        st->slope_x = *x;
+    } else {
+        rc = stagecal_vle_xstar(st->vle, y, x);
+    }
     if (rc != STAGECAL_OK)
         return error_set(st->err, rc == STAGECAL_EINVAL ? STAGECAL_EINTERNAL : rc,
                          "equilibrium x*(%.17g) failed: %s", y, stagecal_strerror(rc));
     return STAGECAL_OK;
+}
+
+int stepper_dydx(stepper *st, double x, double *dydx)
+{
+    /* stagecal_vle_dydx's range check is [0, 1] for a table, which holds the x*(y) it gave */
+    if (st->slope_ok && x == st->slope_x) {
+        *dydx = st->slope;
+        return STAGECAL_OK;
+    }
+    return stagecal_vle_dydx(st->vle, x, dydx);
+}
+
+int stepper_ystar_slope(stepper *st, double x, double *y, double *dydx)
+{
+    if (!st->table || !(x >= 0.0 && x <= 1.0) || !st->vle->bx)
+        return 0;
+    /* table_query (vle.c): the clamp of y* to [0, 1] */
+    vle_herm_eval_slope(st->vle, x, y, dydx);
+    *y = fmin(fmax(*y, 0.0), 1.0);
+    return 1;
 }
 
 /* Pseudo-equilibrium curve minus the target vapour: increasing in x when y* is. */
@@ -186,6 +220,7 @@ int stepper_init(stepper *st, const stagecal_vle *vle, const stagecal_stages_par
     st->xd = xd;
     st->e = e;
     st->err = err;
+    st->table = vle_on_table(vle);
     if (isinf(reflux)) {
         st->m = 1.0;
         st->b = 0.0;

@@ -279,6 +279,11 @@ static int table_query(const stagecal_vle *v, vle_query q, double in, double *ou
     return STAGECAL_OK;
 }
 
+int vle_on_table(const stagecal_vle *v)
+{
+    return v->kind == STAGECAL_VLE_TABLE || (vle_is_activity(v->kind) && !v->vp.exact);
+}
+
 /* IDEAL and the activity models: the table, or the bubble solve when vp.exact. */
 static int activity_query(const stagecal_vle *v, vle_query q, double in, double *out)
 {

@@ -73,6 +73,8 @@ stagecal_vle *vle_new(stagecal_vle_kind kind, stagecal_error *err);
 int vle_alloc_nodes(stagecal_vle *v, size_t n, int with_t);
 /* 1 for IDEAL and the activity models. */
 int vle_is_activity(stagecal_vle_kind kind);
+/* 1 when y*, x* and the slope are the Hermite table's (TABLE; IDEAL/activity unless exact). */
+int vle_on_table(const stagecal_vle *v);
 /* Number of activity-model parameters of a kind (vle.h); 0 for the others. */
 size_t vle_nparam_of(stagecal_vle_kind kind);
 
@@ -92,6 +94,11 @@ double vle_herm_eval(const stagecal_vle *v, const double *ys, const double *ms, 
 double vle_herm_deriv(const stagecal_vle *v, double x);
 /* Smallest x on the first increasing branch with y*(x) = y; EINVAL above its top. */
 int vle_herm_invert(const stagecal_vle *v, double y, double *x);
+/* vle_herm_invert and, at the x found, the slope vle_herm_deriv gives (the same double,
+ * from the segment inverted on when it is the one vle_herm_deriv locates). */
+int vle_herm_invert_slope(const stagecal_vle *v, double y, double *x, double *slope);
+/* vle_herm_eval of y* (bx built) and vle_herm_deriv at x, the segment located once. */
+void vle_herm_eval_slope(const stagecal_vle *v, double x, double *y, double *slope);
 
 /* vle_activity.c */
 

@@ -9,6 +9,9 @@
 #include <stdlib.h>
 #include <string.h>
 
+/* GSL's inline gsl_interp_bsearch (gsl_interp.h): the same search without a call into the
+ * shared library on every table query */
+#define HAVE_INLINE 1
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_interp.h>
 
@@ -126,13 +129,15 @@ double vle_herm_deriv(const stagecal_vle *v, double x)
 /* Smallest x on the first increasing branch with H(x) = y. Each segment of the branch
  * is monotone (checked at alloc), so Newton safeguarded by bisection on [0, 1] in s
  * converges; ≤ 60 steps (bisection halves the bracket each time Newton misbehaves). */
-int vle_herm_invert(const stagecal_vle *v, double y, double *x)
+static int herm_invert_on(const stagecal_vle *v, double y, double *x, size_t *iseg, hseg *gseg)
 {
     if (y > v->ytop)
         return STAGECAL_EINVAL;
     size_t i = locate_y(v, y);
+    *iseg = i;
     hseg g = hseg_make(v, v->ys, v->ms, i);
     double dy = v->ys[i + 1] - v->ys[i];
+    *gseg = g;
     if (!(dy > 0.0)) { /* flat segment: any point, take its start */
         *x = g.x0;
         return STAGECAL_OK;
@@ -166,6 +171,44 @@ int vle_herm_invert(const stagecal_vle *v, double y, double *x)
     if (*x > v->xs[i + 1])
         *x = v->xs[i + 1];
     return STAGECAL_OK;
+}
+
+int vle_herm_invert(const stagecal_vle *v, double y, double *x)
+{
+    size_t i;
+    hseg g;
+    return herm_invert_on(v, y, x, &i, &g);
+}
+
+/* 1 when locate_x(v, x) returns i: x in the bucket's search range [bx[b], bx[b+1] + 1] with
+ * xs[i] ≤ x < xs[i+1] (a binary search over a range holding such an i returns it). */
+static int locate_x_is(const stagecal_vle *v, double x, size_t i)
+{
+    if (!(x >= 0.0) || !v->bx)
+        return 0;
+    size_t b = (size_t)(x * (double)v->nb);
+    return b < v->nb && v->bx[b] <= i && i <= v->bx[b + 1] && v->xs[i] <= x && x < v->xs[i + 1];
+}
+
+int vle_herm_invert_slope(const stagecal_vle *v, double y, double *x, double *slope)
+{
+    size_t i;
+    hseg g;
+    int rc = herm_invert_on(v, y, x, &i, &g);
+    if (rc != STAGECAL_OK)
+        return rc;
+    /* vle_herm_deriv(v, *x) on the segment just inverted on, when it is the one it locates */
+    *slope = locate_x_is(v, *x, i) ? hseg_ds(&g, (*x - g.x0) / g.h) / g.h : vle_herm_deriv(v, *x);
+    return STAGECAL_OK;
+}
+
+void vle_herm_eval_slope(const stagecal_vle *v, double x, double *y, double *slope)
+{
+    size_t i = locate_x(v, x); /* what vle_herm_eval and vle_herm_deriv locate (bx is built) */
+    hseg g = hseg_make(v, v->ys, v->ms, i);
+    double s = (x - g.x0) / g.h;
+    *y = x == v->xs[i + 1] ? v->ys[i + 1] : hseg_val(&g, s);
+    *slope = hseg_ds(&g, s) / g.h;
 }
 
 /* Fritsch–Carlson sufficient condition for a monotone increasing Hermite segment. */
