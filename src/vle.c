@@ -110,7 +110,7 @@ void stagecal_vle_free(stagecal_vle *vle)
 {
     if (!vle)
         return;
-    FREE_EACH(vle->xs, vle->ys, vle->ms, vle->ts, vle->mts, vle->bx, vle->by, vle);
+    FREE_EACH(vle->xs, vle->ys, vle->ms, vle->ts, vle->mts, vle->bx, vle->by, vle->seg, vle);
 }
 
 /* Constant α or K: value > 1 and finite, else EINVAL naming `what`. */

@@ -49,6 +49,9 @@ struct stagecal_vle {
      * y = b·ytop/nb on the branch; narrows the binary search to ~1 interval */
     size_t nb;
     size_t *bx, *by;
+    /* the y* table's Hermite segments, built with the buckets (vle_table.c): per interval
+     * the coefficients and the inverse's start, the doubles each query computed */
+    struct vle_seg *seg;
     double ytop;       /* ys[iend] */
     double t_lo, t_hi; /* range of node temperatures [K] */
     size_t naz;        /* number of azeotropes found at alloc */

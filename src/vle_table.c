@@ -39,6 +39,29 @@ static hseg hseg_make(const stagecal_vle *v, const double *ys, const double *ms,
     return g;
 }
 
+/* A segment of the y* table as the queries use it: the cubic, dy = ys[i+1] − ys[i], and the
+ * end slopes a, b of the inverse's Hermite start (vle_herm_invert), 0 where not positive. */
+struct vle_seg {
+    hseg g;
+    double dy, a, b;
+};
+
+static struct vle_seg seg_make(const stagecal_vle *v, size_t i)
+{
+    struct vle_seg c;
+    c.g = hseg_make(v, v->ys, v->ms, i);
+    c.dy = v->ys[i + 1] - v->ys[i];
+    c.a = c.g.d1 > 0.0 ? c.dy / c.g.d1 : 0.0;
+    c.b = v->ms[i + 1] > 0.0 ? c.dy / (c.g.h * v->ms[i + 1]) : 0.0;
+    return c;
+}
+
+/* Segment i of the y* table: from the cache when built (the same doubles). */
+static hseg yseg(const stagecal_vle *v, size_t i)
+{
+    return v->seg ? v->seg[i].g : hseg_make(v, v->ys, v->ms, i);
+}
+
 static double hseg_val(const hseg *g, double s)
 {
     return g->y0 + s * (g->d1 + s * (g->c2 + s * g->c3));
@@ -83,8 +106,11 @@ int vle_build_buckets_like(stagecal_vle *v, const stagecal_vle *same_x)
     v->ytop = v->ys[v->iend];
     v->bx = malloc((v->nb + 1) * sizeof *v->bx);
     v->by = malloc((v->nb + 1) * sizeof *v->by);
-    if (!v->bx || !v->by)
+    v->seg = malloc((v->n - 1) * sizeof *v->seg);
+    if (!v->bx || !v->by || !v->seg)
         return STAGECAL_ENOMEM;
+    for (size_t k = 0; k + 1 < v->n; k++)
+        v->seg[k] = seg_make(v, k);
     size_t i = 0, j = 0;
     if (same_x)
         memcpy(v->bx, same_x->bx, (v->nb + 1) * sizeof *v->bx);
@@ -115,14 +141,14 @@ double vle_herm_eval(const stagecal_vle *v, const double *ys, const double *ms, 
         i = v->n - 2;
     if (x == v->xs[i + 1]) /* the node value itself, not the cubic's rounding of it */
         return ys[i + 1];
-    hseg g = hseg_make(v, ys, ms, i);
+    hseg g = ys == v->ys && ms == v->ms ? yseg(v, i) : hseg_make(v, ys, ms, i);
     return hseg_val(&g, (x - g.x0) / g.h);
 }
 
 double vle_herm_deriv(const stagecal_vle *v, double x)
 {
     size_t i = locate_x(v, x);
-    hseg g = hseg_make(v, v->ys, v->ms, i);
+    hseg g = yseg(v, i);
     return hseg_ds(&g, (x - g.x0) / g.h) / g.h;
 }
 
@@ -135,8 +161,9 @@ static int herm_invert_on(const stagecal_vle *v, double y, double *x, size_t *is
         return STAGECAL_EINVAL;
     size_t i = locate_y(v, y);
     *iseg = i;
-    hseg g = hseg_make(v, v->ys, v->ms, i);
-    double dy = v->ys[i + 1] - v->ys[i];
+    struct vle_seg c = v->seg ? v->seg[i] : seg_make(v, i);
+    hseg g = c.g;
+    double dy = c.dy;
     *gseg = g;
     if (!(dy > 0.0)) { /* flat segment: any point, take its start */
         *x = g.x0;
@@ -144,8 +171,7 @@ static int herm_invert_on(const stagecal_vle *v, double y, double *x, size_t *is
     }
     /* Start from the Hermite interpolant of the inverse s(y) (end slopes dy/(h m)):
      * its error is O(h⁴), so one or two Newton steps reach rounding. */
-    double t = (y - g.y0) / dy, s = t, a = g.d1 > 0.0 ? dy / g.d1 : 0.0;
-    double b = v->ms[i + 1] > 0.0 ? dy / (g.h * v->ms[i + 1]) : 0.0;
+    double t = (y - g.y0) / dy, s = t, a = c.a, b = c.b;
     if (a > 0.0 && b > 0.0 && a < 3.0 && b < 3.0)
         s = t * (1.0 + (1.0 - t) * ((a - 1.0) * (1.0 - t) + (1.0 - b) * t));
     double lo = 0.0, hi = 1.0;
@@ -205,7 +231,7 @@ int vle_herm_invert_slope(const stagecal_vle *v, double y, double *x, double *sl
 void vle_herm_eval_slope(const stagecal_vle *v, double x, double *y, double *slope)
 {
     size_t i = locate_x(v, x); /* what vle_herm_eval and vle_herm_deriv locate (bx is built) */
-    hseg g = hseg_make(v, v->ys, v->ms, i);
+    hseg g = yseg(v, i);
     double s = (x - g.x0) / g.h;
     *y = x == v->xs[i + 1] ? v->ys[i + 1] : hseg_val(&g, s);
     *slope = hseg_ds(&g, s) / g.h;
