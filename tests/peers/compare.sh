@@ -41,7 +41,7 @@ one() { # model rows column peer
     if [ -n "$old" ]; then
         rm -f "$tmp/old.csv"
         o=$(timed stagecal-old "$old/stagecal" invert --quiet --column "$column" \
-            --out "$tmp/old.csv" "$tmp/log.csv")
+            --output "$tmp/old.csv" "$tmp/log.csv")
         echo "older build: $o" | awk '{ print; }'
     fi
     echo "whole process (label wall[s] cpu[s] peakRSS[MB]): $s | $p"
