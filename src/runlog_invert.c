@@ -229,16 +229,16 @@ int stagecal_runlog_invert_physics(const stagecal_runlog *log, const stagecal_co
 #define INVERT_BLOCK_ROWS 512
 
 struct row_job {
-    const stagecal_runlog *log;
-    const stagecal_column *col;
-    struct inv_ctx *ctx; /* one per thread (its own physics models) */
+    struct inv_ctx *ctx; /* one per thread (its own physics models; the log, the column) */
+    size_t n;            /* rows of the log */
     int have_m;
 };
 
 /* Inversion and vapour load of row i (writes res at i alone). */
-static void row_work(struct inv_ctx *c, const stagecal_column *col, int have_m, size_t i)
+static void row_work(struct inv_ctx *c, int have_m, size_t i)
 {
     const stagecal_runlog *log = c->log;
+    const stagecal_column *col = c->col;
     stagecal_runlog_result *res = c->res;
     const stagecal_system *sys = &col->system;
     double r = runlog_rset(log, i); /* the set point of a measured R */
@@ -271,11 +271,11 @@ static int row_block(void *ctx, size_t item, size_t worker, stagecal_error *err)
 {
     const struct row_job *j = ctx;
     size_t i0 = item * INVERT_BLOCK_ROWS, i1 = i0 + INVERT_BLOCK_ROWS;
-    if (i1 > j->log->n)
-        i1 = j->log->n;
+    if (i1 > j->n)
+        i1 = j->n;
     (void)err;
     for (size_t i = i0; i < i1; i++)
-        row_work(&j->ctx[worker], j->col, j->have_m, i);
+        row_work(&j->ctx[worker], j->have_m, i);
     return STAGECAL_OK;
 }
 
@@ -329,7 +329,7 @@ int runlog_invert_threads(const stagecal_runlog *log, const stagecal_column *col
         rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
     if (rc == STAGECAL_OK) {
         runlog_mark_no_distillate(log, &par, res, st, sw);
-        struct row_job j = {log, col, cs, have_m};
+        struct row_job j = {cs, log->n, have_m};
         rc = parallel_for((log->n + INVERT_BLOCK_ROWS - 1) / INVERT_BLOCK_ROWS, nthreads, row_block,
                           &j, err);
     }

@@ -25,8 +25,8 @@
 int stepper_ystar(stepper *st, double x, double *y)
 {
     if (st->table && x >= 0.0 && x <= 1.0) {
-        /* stagecal_vle_ystar's range check passed: its table query (table_query, vle.c) */
-        *y = fmin(fmax(vle_herm_eval(st->vle, st->vle->ys, st->vle->ms, x), 0.0), 1.0);
+        /* stagecal_vle_ystar's range check passed: its table query */
+        *y = vle_table_ystar(st->vle, x);
         return STAGECAL_OK;
     }
     int rc = stagecal_vle_ystar(st->vle, x, y);
@@ -68,9 +68,7 @@ int stepper_ystar_slope(stepper *st, double x, double *y, double *dydx)
 {
     if (!st->table || !(x >= 0.0 && x <= 1.0) || !st->vle->bx)
         return 0;
-    /* table_query (vle.c): the clamp of y* to [0, 1] */
-    vle_herm_eval_slope(st->vle, x, y, dydx);
-    *y = fmin(fmax(*y, 0.0), 1.0);
+    vle_table_ystar_slope(st->vle, x, y, dydx);
     return 1;
 }
 

@@ -273,9 +273,7 @@ static int table_query(const stagecal_vle *v, vle_query q, double in, double *ou
         *out = vle_herm_deriv(v, in);
         return STAGECAL_OK;
     }
-    /* a monotone segment stays between its node values, which lie in [0, 1]
-     * (stagecal_vle_validate): anything outside is rounding (y*(1) = 1 + 2^-52) */
-    *out = fmin(fmax(vle_herm_eval(v, v->ys, v->ms, in), 0.0), 1.0);
+    *out = vle_table_ystar(v, in);
     return STAGECAL_OK;
 }
 

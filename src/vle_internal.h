@@ -100,8 +100,10 @@ int vle_herm_invert(const stagecal_vle *v, double y, double *x);
 /* vle_herm_invert and, at the x found, the slope vle_herm_deriv gives (the same double,
  * from the segment inverted on when it is the one vle_herm_deriv locates). */
 int vle_herm_invert_slope(const stagecal_vle *v, double y, double *x, double *slope);
-/* vle_herm_eval of y* (bx built) and vle_herm_deriv at x, the segment located once. */
-void vle_herm_eval_slope(const stagecal_vle *v, double x, double *y, double *slope);
+/* y*(x) of the table as table_query (vle.c) answers it: vle_herm_eval of y*, held in [0, 1]. */
+double vle_table_ystar(const stagecal_vle *v, double x);
+/* vle_table_ystar and vle_herm_deriv at x (bx built), the segment located once. */
+void vle_table_ystar_slope(const stagecal_vle *v, double x, double *y, double *slope);
 
 /* vle_activity.c */
 

@@ -228,12 +228,24 @@ int vle_herm_invert_slope(const stagecal_vle *v, double y, double *x, double *sl
     return STAGECAL_OK;
 }
 
-void vle_herm_eval_slope(const stagecal_vle *v, double x, double *y, double *slope)
+/* A monotone segment stays between its node values, which lie in [0, 1]
+ * (stagecal_vle_validate): anything outside is rounding (y*(1) = 1 + 2^-52). */
+static double ystar_clamp(double y)
+{
+    return fmin(fmax(y, 0.0), 1.0);
+}
+
+double vle_table_ystar(const stagecal_vle *v, double x)
+{
+    return ystar_clamp(vle_herm_eval(v, v->ys, v->ms, x));
+}
+
+void vle_table_ystar_slope(const stagecal_vle *v, double x, double *y, double *slope)
 {
     size_t i = locate_x(v, x); /* what vle_herm_eval and vle_herm_deriv locate (bx is built) */
     hseg g = yseg(v, i);
     double s = (x - g.x0) / g.h;
-    *y = x == v->xs[i + 1] ? v->ys[i + 1] : hseg_val(&g, s);
+    *y = ystar_clamp(x == v->xs[i + 1] ? v->ys[i + 1] : hseg_val(&g, s));
     *slope = hseg_ds(&g, s) / g.h;
 }
 
