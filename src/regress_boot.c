@@ -30,6 +30,7 @@ struct boot_job {
     const stagecal_regress_params *bp; /* the refits' parameters */
     const stagecal_regress_result *res;
     double infl;       /* residual resampling's inflation sqrt(n/(n − p)) */
+    const double *fit; /* residual resampling: the full-data fitted values, n */
     const size_t *idx; /* chunk × n drawn indices */
     double *scratch;   /* 6n per thread */
     double *theta;     /* chunk × p estimates */
@@ -55,13 +56,10 @@ static int boot_one(void *ctx, size_t item, size_t worker, stagecal_error *err)
             y[i] = d->y[j];
             w[i] = d->w[j];
         } else {
-            double mj, mi;
-            stagecal_form_eval(d->form, res->theta, d->r[j], pt_f(d, j), &mj, NULL);
-            stagecal_form_eval(d->form, res->theta, d->r[i], pt_f(d, i), &mi, NULL);
-            double e_std = sqrt(d->w[j]) * (d->y[j] - mj) * bj->infl;
+            double e_std = sqrt(d->w[j]) * (d->y[j] - bj->fit[j]) * bj->infl;
             r[i] = d->r[i];
             f[i] = pt_f(d, i);
-            y[i] = mi + e_std / sqrt(d->w[i]);
+            y[i] = bj->fit[i] + e_std / sqrt(d->w[i]);
             w[i] = d->w[i];
         }
     }
@@ -91,7 +89,7 @@ int regress_bootstrap(const pts *d, const stagecal_regress_params *prm,
     size_t chunk = n > 0 && BOOT_CHUNK_INDICES / n > 0 ? BOOT_CHUNK_INDICES / n : 1;
     if (chunk > B)
         chunk = B;
-    double *buf = malloc(((nth + 1) * 6 * n + B * p + B + chunk * p) * sizeof *buf);
+    double *buf = malloc(((nth + 1) * 6 * n + B * p + B + chunk * p + n) * sizeof *buf);
     size_t *idx = malloc((chunk * n > 0 ? chunk * n : 1) * sizeof *idx);
     int *status = malloc((chunk ? chunk : 1) * sizeof *status);
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
@@ -103,7 +101,10 @@ int regress_bootstrap(const pts *d, const stagecal_regress_params *prm,
         return error_set(err, STAGECAL_ENOMEM, "regress: out of memory for %zu resamples", B);
     }
     double *scratch = buf, *thetas = scratch + (nth + 1) * 6 * n, *col = thetas + B * p,
-           *cth = col + B;
+           *cth = col + B, *fit = cth + chunk * p;
+    /* the full-data fit at every point, once (residual resampling reads it B·n times) */
+    for (size_t i = 0; prm->boot_kind != STAGECAL_BOOT_CASE && i < n; i++)
+        stagecal_form_eval(d->form, res->theta, d->r[i], pt_f(d, i), &fit[i], NULL);
     gsl_rng_set(rng, prm->seed);
     stagecal_regress_params bp = *prm;
     bp.theta0 = NULL;
@@ -115,8 +116,8 @@ int regress_bootstrap(const pts *d, const stagecal_regress_params *prm,
     bp.polish_steps = 0;
     /* Standardised residuals, inflated by sqrt(n/(n−p)) so that their variance matches
      * σ² (Davison & Hinkley 1997, §6.2.3; leverage adjustment omitted). */
-    struct boot_job bj = {d,   &bp,     res, sqrt((double)n / (double)(n - p)),
-                          idx, scratch, cth, status};
+    struct boot_job bj = {d,       &bp, res,   sqrt((double)n / (double)(n - p)), fit, idx,
+                          scratch, cth, status};
     size_t ok = 0;
     for (size_t b0 = 0; b0 < B; b0 += chunk) {
         size_t m = B - b0 < chunk ? B - b0 : chunk;
