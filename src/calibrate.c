@@ -59,6 +59,7 @@ void stagecal_calibration_free(stagecal_calibration *cal)
     stagecal_column_free(&cal->own_column);
     stagecal_runlog_free(cal->own_log);
     stagecal_findings_free(cal->findings);
+    free(cal->run_rows);
     stagecal_runlog_result_free(&cal->res);
     stagecal_evidence_set_free(&cal->evidence);
     free(cal->flagged);
@@ -120,8 +121,8 @@ static int fill_provenance(stagecal_calibration *cal, const stagecal_calibrate_p
     if (cal->log->nfiles_iso == cal->log->nfiles && nev > 0) {
         double t0 = INFINITY, t1 = -INFINITY;
         for (size_t i = 0; i < nev; i++) {
-            t0 = fmin(t0, cal->log->t_s[ev[i].first]);
-            t1 = fmax(t1, cal->log->t_s[ev[i].last]);
+            t0 = fmin(t0, ev[i].t_first_s);
+            t1 = fmax(t1, ev[i].t_last_s);
         }
         format_utc(t0, mo->data_first_utc, sizeof mo->data_first_utc);
         format_utc(t1, mo->data_last_utc, sizeof mo->data_last_utc);
@@ -458,10 +459,8 @@ static int add_warnings(stagecal_calibration *cal, const stagecal_calibrate_para
     return STAGECAL_OK;
 }
 
-/* Runs flagged for a gross closure error or analyser drift, with the reason; skip[r] = 1
- * for those left out of the fit. */
-static int flag_runs(stagecal_calibration *cal, const stagecal_calibrate_params *par,
-                     unsigned char *skip, stagecal_error *err)
+int calibrate_flag_runs(stagecal_calibration *cal, const stagecal_calibrate_params *par,
+                        unsigned char *skip, stagecal_error *err)
 {
     const stagecal_runlog_result *res = &cal->res;
     size_t n = 0;
@@ -524,11 +523,14 @@ static int all_total_reflux(const stagecal_calibration *cal, stagecal_error *err
                      names, cal->evidence.n);
 }
 
-/* The chain after reading: inversion, evidence, fits, model. */
+/* The chain after the evidence: fits, model. */
+static int finish_chain(stagecal_calibration *cal, const char *column_path,
+                        const stagecal_calibrate_params *par, stagecal_error *err);
+
+/* The chain after reading a held log: inversion, evidence, fits, model. */
 static int run_chain(stagecal_calibration *cal, const char *column_path,
                      const stagecal_calibrate_params *par, stagecal_error *err)
 {
-    const stagecal_regress_result *fit = NULL;
     int rc;
     cal->stage_status = CAL_NOT_RUN;
     cal->comp_status = CAL_NOT_RUN;
@@ -544,6 +546,11 @@ static int run_chain(stagecal_calibration *cal, const char *column_path,
         (rc = runlog_invert_threads(cal->log, cal->column, par->murphree, &ap, NULL, par->threads,
                                     &cal->res, err)))
         return rc;
+    const stagecal_runlog *log = cal->log;
+    if (!(cal->run_rows = calloc(log->nruns ? log->nruns : 1, sizeof *cal->run_rows)))
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    for (size_t k = 0; k < log->nruns; k++)
+        calibrate_run_rows(&log->runs[k], &cal->res, log->runs[k].first, &cal->run_rows[k]);
     progress(par, "windows", 0.5);
     unsigned char *skip = calloc(cal->log->nruns ? cal->log->nruns : 1, 1);
     if (!skip)
@@ -551,12 +558,20 @@ static int run_chain(stagecal_calibration *cal, const char *column_path,
     stagecal_evidence_params ep = par->evidence;
     ep.skip_run = skip;
     ep.threads = par->threads;
-    if ((rc = flag_runs(cal, par, skip, err)) == STAGECAL_OK)
+    if ((rc = calibrate_flag_runs(cal, par, skip, err)) == STAGECAL_OK)
         rc = stagecal_evidence_build(cal->log, &cal->res, cal->column, par->murphree, &ep,
                                      &cal->evidence, err);
     free(skip);
     if (rc)
         return rc;
+    return finish_chain(cal, column_path, par, err);
+}
+
+static int finish_chain(stagecal_calibration *cal, const char *column_path,
+                        const stagecal_calibrate_params *par, stagecal_error *err)
+{
+    const stagecal_regress_result *fit = NULL;
+    int rc;
     size_t nleft = 0;
     for (size_t k = 0; k < cal->nflagged; k++)
         nleft += cal->flagged[k].left_out;
@@ -613,6 +628,14 @@ int stagecal_calibrate(const char *column_path, const char *const *logs, size_t 
     cal->findings = stagecal_findings_alloc(par->read.max_findings ? par->read.max_findings : 1000);
     if (!cal->own_log || !cal->findings)
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    if (calibrate_stream_possible(cal->column, logs, nlogs, par)) {
+        cal->stage_status = CAL_NOT_RUN;
+        cal->comp_status = CAL_NOT_RUN;
+        cal->cens_status = CAL_NOT_RUN;
+        if ((rc = calibrate_stream(cal, logs, nlogs, par, err)))
+            return rc;
+        return finish_chain(cal, column_path, par, err);
+    }
     /* the logs share the soft sensor's models at the pressures they meet */
     stagecal_runlog_params rp = par->read;
     stagecal_physics *soft = runlog_soft_share(cal->column, &rp);

@@ -30,6 +30,22 @@ void calibrate_censored_model(const stagecal_calibration *cal, stagecal_model *m
  * out. */
 int calibrate_censoring_matters(const stagecal_calibration *cal);
 
+/* Runs flagged for a gross closure error or analyser drift into cal->flagged, with the reason;
+ * skip[r] = 1 for those left out of the fit (calibrate.c). */
+int calibrate_flag_runs(stagecal_calibration *cal, const stagecal_calibrate_params *par,
+                        unsigned char *skip, stagecal_error *err);
+/* The warm-up and steady rows of run r, whose rows start at row0 of res (calibrate_stream.c). */
+void calibrate_run_rows(const stagecal_runlog_run *r, const stagecal_runlog_result *res,
+                        size_t row0, stagecal_cal_run_rows *out);
+/* 1 when par asks for streaming and the logs and settings allow it (calibrate_stream.c). */
+int calibrate_stream_possible(const stagecal_column *col, const char *const *logs, size_t nlogs,
+                              const stagecal_calibrate_params *par);
+/* Reads the logs into cal->own_log (runs and files, no rows) and cal->findings, then streams
+ * them run by run: cal->res (windows, closures, counts), cal->run_rows, cal->flagged and the
+ * complete cal->evidence, as run_chain gets them from a held log. */
+int calibrate_stream(stagecal_calibration *cal, const char *const *logs, size_t nlogs,
+                     const stagecal_calibrate_params *par, stagecal_error *err);
+
 #define CAL_CENS_SHARE 0.10
 #define CAL_CENS_QUAD 0.10 /* see quadratic_check in calibrate_cens.c */
 #define CAL_CENS_STAGES_MAX 200.0

@@ -178,6 +178,7 @@ void stagecal_evidence_set_free(stagecal_evidence_set *set)
     evidence_physics_free(set);
     free(set->ev);
     free(set->samples);
+    free(set->rows);
     free(set->cens);
     free(set->cens_samples);
     free(set->cens_flags);
@@ -288,6 +289,8 @@ static int window_summary(const stagecal_runlog *log, const double *xd_src,
     e->r = w->total_reflux ? INFINITY : w->r_mean; /* the set point (runlog_setpoint.c) */
     e->u_r = w->total_reflux ? 0.0 : w->u_r;
     e->t_mid_s = 0.5 * (log->t_s[w->first] + log->t_s[w->last]);
+    e->t_first_s = log->t_s[w->first];
+    e->t_last_s = log->t_s[w->last];
     if (nf * 2 >= len && nf > 0) {
         e->has_load = 1;
         e->f_load = fsum / (double)nf;
@@ -325,13 +328,49 @@ static double noise_cap(double sd, double stated)
     return stated > 0 && !(sd > 0 && sd < stated) ? stated : sd;
 }
 
-struct window_job {
+/* What each entry takes from the rows (set->rows, EV_ROWS numbers an entry): the summed extra
+ * variance of the holdup compensation, the variance of the window mean's slope error
+ * (holdup_window_slope_var), the mean logged pressure and reflux temperature (NAN: none). */
+enum { ROW_U2 = 0, ROW_VS, ROW_P, ROW_T, EV_ROWS };
+
+struct rows_job {
     const stagecal_runlog *log;
+    const stagecal_column *col;
+    stagecal_evidence_set *set;
+    const double *u2, *gs; /* the compensation's variance and gain per row */
+};
+
+/* Entry k's numbers from the rows (set->rows alone: parallel.h). */
+static int window_rows(void *ctx, size_t k, size_t worker, stagecal_error *err)
+{
+    const struct rows_job *j = ctx;
+    const stagecal_runlog *log = j->log;
+    const stagecal_evidence *e = &j->set->ev[k];
+    double *a = j->set->rows + EV_ROWS * k, u2m = 0, vs = 0, ps = 0, ts = 0;
+    size_t np = 0, nt = 0;
+    (void)worker;
+    for (size_t i = e->first; i <= e->last; i++)
+        u2m += isfinite(j->u2[i]) ? j->u2[i] : 0;
+    if (holdup_window_slope_var(log, e->first, e->last, j->gs, j->col->u.xd, &vs) != STAGECAL_OK)
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    for (size_t i = e->first; i <= e->last; i++) {
+        if (log->p_pa && isfinite(log->p_pa[i]))
+            ps += log->p_pa[i], np++;
+        if (log->t_reflux_k && isfinite(log->t_reflux_k[i]))
+            ts += log->t_reflux_k[i], nt++;
+    }
+    a[ROW_U2] = u2m;
+    a[ROW_VS] = vs;
+    a[ROW_P] = np ? ps / (double)np : NAN;
+    a[ROW_T] = nt ? ts / (double)nt : NAN;
+    return STAGECAL_OK;
+}
+
+struct window_job {
     const stagecal_column *col;
     double murphree;
     const stagecal_evidence_params *par;
     stagecal_evidence_set *set;
-    const double *u2, *gs; /* the compensation's variance and gain per row */
 };
 
 /* Window k's error of xD with the compensation's, and its stage count (set->ev[k] alone, so
@@ -340,17 +379,13 @@ static int window_count(void *ctx, size_t k, size_t worker, stagecal_error *err)
 {
     const struct window_job *j = ctx;
     stagecal_evidence *e = &j->set->ev[k];
+    const double *a = j->set->rows + EV_ROWS * k;
     (void)worker;
     /* the holdup's (or the time constant's) uncertainty is common to the window: add its
      * mean variance; the slope noise's error is local in time, so its part is that of the
      * window's mean (holdup_window_slope_var; as a common error it had stated the R = 3
      * windows' xD error about twice too large on the holdup study: docs/methods.md) */
-    double u2m = 0, vs = 0;
-    for (size_t i = e->first; i <= e->last; i++)
-        u2m += isfinite(j->u2[i]) ? j->u2[i] : 0;
-    if (holdup_window_slope_var(j->log, e->first, e->last, j->gs, j->col->u.xd, &vs) != STAGECAL_OK)
-        return error_set(err, STAGECAL_ENOMEM, "out of memory");
-    e->u_xd = sqrt(e->u_xd * e->u_xd + u2m / (double)(e->last - e->first + 1) + vs);
+    e->u_xd = sqrt(e->u_xd * e->u_xd + a[ROW_U2] / (double)(e->last - e->first + 1) + a[ROW_VS]);
     int rc = stagecal_evidence_stages(j->col->system.vle, j->murphree, e, err);
     if (rc != STAGECAL_OK)
         return rc;
@@ -359,20 +394,30 @@ static int window_count(void *ctx, size_t k, size_t worker, stagecal_error *err)
     return STAGECAL_OK;
 }
 
-int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_result *res,
-                            const stagecal_column *col, double murphree,
-                            const stagecal_evidence_params *params, stagecal_evidence_set *set,
-                            stagecal_error *err)
+/* params checked, defaults filled in. */
+static int check_params(const stagecal_evidence_params *params, stagecal_evidence_params *par,
+                        stagecal_error *err)
 {
-    stagecal_evidence_params par = params ? *params : stagecal_evidence_default_params();
+    *par = params ? *params : stagecal_evidence_default_params();
+    if (par->max_samples < 1 || par->max_samples > EV_MAX_SAMPLES)
+        return error_set(err, STAGECAL_EINVAL, "evidence: max_samples %zu (expected 1 to %d)",
+                         par->max_samples, EV_MAX_SAMPLES);
+    return STAGECAL_OK;
+}
+
+int evidence_build_windows(const stagecal_runlog *log, const stagecal_runlog_result *res,
+                           const stagecal_column *col, const stagecal_evidence_params *params,
+                           int cens, stagecal_evidence_set *set, stagecal_error *err)
+{
+    stagecal_evidence_params par;
     memset(set, 0, sizeof *set);
     if (!log || !res || !col || !col->system.vle)
         return error_set(err, STAGECAL_EINVAL,
                          "evidence: needs a run log, its analysis and a "
                          "column with an equilibrium model");
-    if (par.max_samples < 1 || par.max_samples > EV_MAX_SAMPLES)
-        return error_set(err, STAGECAL_EINVAL, "evidence: max_samples %zu (expected 1 to %d)",
-                         par.max_samples, EV_MAX_SAMPLES);
+    int rc = check_params(params, &par, err);
+    if (rc != STAGECAL_OK)
+        return rc;
     size_t nw = res->nwindows, maxlen = 0, cap = par.max_samples;
     for (size_t k = 0; k < nw; k++) {
         size_t len = res->windows[k].last - res->windows[k].first + 1;
@@ -380,16 +425,17 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
     }
     set->ev = calloc(nw ? nw : 1, sizeof *set->ev);
     set->samples = malloc((nw ? nw : 1) * 3 * cap * sizeof *set->samples);
+    set->rows = malloc((nw ? nw : 1) * EV_ROWS * sizeof *set->rows);
     double *buf = malloc((maxlen ? maxlen : 1) * 7 * sizeof *buf);
     signed char *dir = malloc(maxlen ? maxlen : 1);
     double *xd_src = malloc((log->n ? log->n : 1) * 3 * sizeof *xd_src);
     double *u2 = xd_src ? xd_src + log->n : NULL, *gs = xd_src ? xd_src + 2 * log->n : NULL;
-    if (!set->ev || !buf || !set->samples || !xd_src || !dir) {
+    if (!set->ev || !buf || !set->samples || !set->rows || !xd_src || !dir) {
         free(buf), free(xd_src), free(dir);
         stagecal_evidence_set_free(set);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
-    int rc = evidence_holdup(log, col, &par, set, xd_src, u2, gs, err);
+    rc = evidence_holdup(log, col, &par, set, xd_src, u2, gs, err);
     /* QUAD_POOLED: each window's own ρ first, then again at ρ pooled per analyser over the
      * windows (weighted by lag pairs, as stagecal_evidence_pool_rho), which also sets σ² =
      * RSS/A(ρ) at the pooled ρ */
@@ -422,12 +468,26 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
             qrho[a] = w[a] > 0 ? r[a] / w[a] : NAN;
     }
     free(buf), free(dir);
-    if (rc == STAGECAL_OK && par.physics)
-        rc = evidence_conditions(log, col, set, err);
-    if (rc != STAGECAL_OK) {
-        free(xd_src);
-        return rc;
+    if (rc == STAGECAL_OK) {
+        struct rows_job j = {log, col, set, u2, gs};
+        rc = parallel_for(set->n, par.threads, window_rows, &j, err);
     }
+    if (rc == STAGECAL_OK && cens)
+        rc = evidence_collect_cens(log, xd_src, res, cap, set, err);
+    free(xd_src);
+    return rc;
+}
+
+int evidence_build_finish(const stagecal_column *col, double murphree,
+                          const stagecal_evidence_params *params, stagecal_evidence_set *set,
+                          stagecal_error *err)
+{
+    stagecal_evidence_params par;
+    int rc = check_params(params, &par, err);
+    if (rc == STAGECAL_OK && par.physics)
+        rc = evidence_conditions(col, set, set->rows + ROW_P, set->rows + ROW_T, EV_ROWS, err);
+    if (rc != STAGECAL_OK)
+        return rc;
     /* One ρ per analyser for all windows (docs/calibration.md §3), then the stage counts,
      * which propagate the standard errors. */
     if (par.noise == STAGECAL_EVIDENCE_NOISE_LINE_POOLED)
@@ -450,13 +510,106 @@ int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_re
         e->sd_xb = noise_cap(e->sd_xb, stagecal_runlog_u_xb(col, e->xb));
     }
     if (rc == STAGECAL_OK) {
-        struct window_job j = {log, col, murphree, &par, set, u2, gs};
+        struct window_job j = {col, murphree, &par, set};
         rc = parallel_for(set->n, par.threads, window_count, &j, err);
     }
     if (rc == STAGECAL_OK)
-        rc = evidence_build_cens(log, xd_src, res, cap, set, err);
-    free(xd_src);
+        evidence_fill_cens(set);
     return rc;
+}
+
+int stagecal_evidence_build(const stagecal_runlog *log, const stagecal_runlog_result *res,
+                            const stagecal_column *col, double murphree,
+                            const stagecal_evidence_params *params, stagecal_evidence_set *set,
+                            stagecal_error *err)
+{
+    int rc = evidence_build_windows(log, res, col, params, 1, set, err);
+    return rc == STAGECAL_OK ? evidence_build_finish(col, murphree, params, set, err) : rc;
+}
+
+/* *dst grown to hold n entries of size sz (*cap entries now; doubling). -1 on failure. */
+static int grow(void *dst, size_t *cap, size_t n, size_t sz)
+{
+    void **d = dst;
+    if (n <= *cap && *d)
+        return 0;
+    size_t c = *cap ? *cap : 64;
+    while (c < n)
+        c *= 2;
+    void *p = realloc(*d, c * sz);
+    if (!p)
+        return -1;
+    *d = p;
+    *cap = c;
+    return 0;
+}
+
+int evidence_set_append(stagecal_evidence_set *dst, evidence_caps *caps,
+                        const stagecal_evidence_set *src, size_t cap, size_t run,
+                        size_t window_base, size_t row_base, stagecal_error *err)
+{
+    size_t n = dst->n + src->n, nc = dst->ncens + src->ncens, nr = dst->nruns + src->nruns;
+    if (grow(&dst->ev, &caps->ev, n, sizeof *dst->ev) ||
+        grow(&dst->samples, &caps->samples, 3 * cap * n, sizeof *dst->samples) ||
+        grow(&dst->rows, &caps->rows, EV_ROWS * n, sizeof *dst->rows) ||
+        grow(&dst->cens, &caps->cens, nc, sizeof *dst->cens) ||
+        grow(&dst->cens_samples, &caps->cens_samples, 3 * cap * nc, sizeof *dst->cens_samples) ||
+        grow(&dst->cens_flags, &caps->cens_flags, cap * nc, 1) ||
+        grow(&dst->tau, &caps->tau, nr, sizeof *dst->tau))
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    stagecal_evidence *e = dst->ev + dst->n, *c = dst->cens + dst->ncens;
+    memcpy(e, src->ev, src->n * sizeof *e);
+    memcpy(c, src->cens, src->ncens * sizeof *c);
+    for (size_t i = 0; i < src->n + src->ncens; i++) {
+        stagecal_evidence *x = i < src->n ? &e[i] : &c[i - src->n];
+        x->window += window_base;
+        x->run = run;
+        x->first += row_base;
+        x->last += row_base;
+        x->s_t = x->s_xd = x->s_xb = NULL; /* (evidence_set_point) */
+        x->s_cens = NULL;
+    }
+    if (src->n) {
+        memcpy(dst->samples + 3 * cap * dst->n, src->samples, 3 * cap * src->n * sizeof(double));
+        memcpy(dst->rows + EV_ROWS * dst->n, src->rows, EV_ROWS * src->n * sizeof(double));
+    }
+    if (src->ncens) {
+        memcpy(dst->cens_samples + 3 * cap * dst->ncens, src->cens_samples,
+               3 * cap * src->ncens * sizeof(double));
+        memcpy(dst->cens_flags + cap * dst->ncens, src->cens_flags, cap * src->ncens);
+    }
+    if (src->nruns)
+        memcpy(dst->tau + dst->nruns, src->tau, src->nruns * sizeof *dst->tau);
+    dst->n = n;
+    dst->ncens = nc;
+    dst->nruns = nr;
+    dst->n_settling += src->n_settling;
+    dst->holdup_kind = src->holdup_kind;
+    return STAGECAL_OK;
+}
+
+int evidence_set_point(stagecal_evidence_set *set, size_t cap, stagecal_error *err)
+{
+    /* the storage the empty set's entries would have had */
+    if ((!set->ev && !(set->ev = calloc(1, sizeof *set->ev))) ||
+        (!set->samples && !(set->samples = malloc(3 * cap * sizeof *set->samples))) ||
+        (!set->rows && !(set->rows = malloc(EV_ROWS * sizeof *set->rows))) ||
+        (!set->tau && !(set->tau = calloc(1, sizeof *set->tau))))
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    for (size_t i = 0; i < set->n; i++) {
+        stagecal_evidence *e = &set->ev[i];
+        e->s_t = set->samples + 3 * cap * i;
+        e->s_xd = e->s_t + cap;
+        e->s_xb = e->s_t + 2 * cap;
+    }
+    for (size_t i = 0; i < set->ncens; i++) {
+        stagecal_evidence *e = &set->cens[i];
+        e->s_t = set->cens_samples + 3 * cap * i;
+        e->s_xd = e->s_t + cap;
+        e->s_xb = e->s_t + 2 * cap;
+        e->s_cens = set->cens_flags + cap * i;
+    }
+    return STAGECAL_OK;
 }
 
 /* σ in stage space (what a planner's prediction band needs): the scatter of the windows

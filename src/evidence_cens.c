@@ -18,11 +18,12 @@ static unsigned char cens_bits(int c, unsigned below, unsigned above)
                                                         : 0);
 }
 
-/* Window k as a window of the censored likelihood (set->cens, see evidence.h) into e; 1 when
- * it has at least 3 rows with both readings. xd_src: the (holdup-compensated) xD values. */
+/* Window k as a window of the censored likelihood (set->cens, see evidence.h) into e, with
+ * the window's own numbers (evidence_fill_cens takes those of its evidence entry later); 1
+ * when it has at least 3 rows with both readings. xd_src: the (holdup-compensated) xD values. */
 static int cens_window(const stagecal_runlog *log, const double *xd_src,
-                       const stagecal_runlog_result *res, const stagecal_evidence_set *set,
-                       size_t k, size_t cap, double *s, unsigned char *fl, stagecal_evidence *e)
+                       const stagecal_runlog_result *res, size_t k, size_t cap, double *s,
+                       unsigned char *fl, stagecal_evidence *e)
 {
     const stagecal_runlog_window *w = &res->windows[k];
     size_t nfin = 0, ms = 0;
@@ -49,31 +50,26 @@ static int cens_window(const stagecal_runlog *log, const double *xd_src,
         }
     if (ms < 3)
         return 0;
-    const stagecal_evidence *reg = stagecal_evidence_find(set, k);
-    if (reg) {
-        *e = *reg;
-    } else {
-        memset(e, 0, sizeof *e);
-        e->window = k;
-        e->run = w->run;
-        e->first = w->first;
-        e->last = w->last;
-        e->n_samples = w->last - w->first + 1;
-        e->total_reflux = w->total_reflux;
-        e->r = w->total_reflux ? INFINITY : w->r_median;
-        e->t_mid_s = 0.5 * (log->t_s[w->first] + log->t_s[w->last]);
-        e->xd = e->xb = NAN;
-        double fsum = 0;
-        size_t nf = 0;
-        for (size_t i = w->first; i <= w->last; i++)
-            if (isfinite(res->f_factor[i])) {
-                fsum += res->f_factor[i];
-                nf++;
-            }
-        if (nf * 2 >= e->n_samples && nf > 0) {
-            e->has_load = 1;
-            e->f_load = fsum / (double)nf;
+    memset(e, 0, sizeof *e);
+    e->window = k;
+    e->run = w->run;
+    e->first = w->first;
+    e->last = w->last;
+    e->n_samples = w->last - w->first + 1;
+    e->total_reflux = w->total_reflux;
+    e->r = w->total_reflux ? INFINITY : w->r_median;
+    e->t_mid_s = 0.5 * (log->t_s[w->first] + log->t_s[w->last]);
+    e->xd = e->xb = NAN;
+    double fsum = 0;
+    size_t nf = 0;
+    for (size_t i = w->first; i <= w->last; i++)
+        if (isfinite(res->f_factor[i])) {
+            fsum += res->f_factor[i];
+            nf++;
         }
+    if (nf * 2 >= e->n_samples && nf > 0) {
+        e->has_load = 1;
+        e->f_load = fsum / (double)nf;
     }
     e->stages_ok = 0;
     e->m = ms;
@@ -84,10 +80,9 @@ static int cens_window(const stagecal_runlog *log, const double *xd_src,
     return 1;
 }
 
-/* set->cens: the windows of the censored likelihood, when a window row is censored. */
-int evidence_build_cens(const stagecal_runlog *log, const double *xd_src,
-                        const stagecal_runlog_result *res, size_t cap, stagecal_evidence_set *set,
-                        stagecal_error *err)
+int evidence_collect_cens(const stagecal_runlog *log, const double *xd_src,
+                          const stagecal_runlog_result *res, size_t cap, stagecal_evidence_set *set,
+                          stagecal_error *err)
 {
     size_t nw = res->nwindows;
     if (nw == 0)
@@ -98,8 +93,28 @@ int evidence_build_cens(const stagecal_runlog *log, const double *xd_src,
     if (!set->cens || !set->cens_samples || !set->cens_flags)
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     for (size_t k = 0; k < nw; k++)
-        if (cens_window(log, xd_src, res, set, k, cap, set->cens_samples + 3 * cap * set->ncens,
+        if (cens_window(log, xd_src, res, k, cap, set->cens_samples + 3 * cap * set->ncens,
                         set->cens_flags + cap * set->ncens, &set->cens[set->ncens]))
             set->ncens++;
     return STAGECAL_OK;
+}
+
+void evidence_fill_cens(stagecal_evidence_set *set)
+{
+    for (size_t i = 0; i < set->ncens; i++) {
+        stagecal_evidence *e = &set->cens[i];
+        const stagecal_evidence *reg = stagecal_evidence_find(set, e->window);
+        if (!reg)
+            continue;
+        size_t m = e->m;
+        const double *st = e->s_t, *sd = e->s_xd, *sb = e->s_xb;
+        const unsigned char *fl = e->s_cens;
+        *e = *reg;
+        e->stages_ok = 0;
+        e->m = m;
+        e->s_t = st;
+        e->s_xd = sd;
+        e->s_xb = sb;
+        e->s_cens = fl;
+    }
 }

@@ -21,7 +21,7 @@ int evidence_holdup(const stagecal_runlog *log, const stagecal_column *col,
 {
     set->nruns = log->nruns;
     holdup_resolved hr;
-    int rc = holdup_resolve(log, col, par->holdup, &hr, xd, u2, gs, err);
+    int rc = holdup_resolve(log, col, par->holdup, par->holdup_pooled, &hr, xd, u2, gs, err);
     /* the set owns what it reports */
     set->tau = hr.tau, set->tau_pooled = hr.pooled, set->holdup_est = hr.est;
     set->holdup_kind = hr.kind;
@@ -35,8 +35,8 @@ int evidence_holdup(const stagecal_runlog *log, const stagecal_column *col,
     return STAGECAL_OK;
 }
 
-int evidence_conditions(const stagecal_runlog *log, const stagecal_column *col,
-                        stagecal_evidence_set *set, stagecal_error *err)
+int evidence_conditions(const stagecal_column *col, stagecal_evidence_set *set, const double *p,
+                        const double *t, size_t stride, stagecal_error *err)
 {
     stagecal_physics_params pp = stagecal_physics_default_params();
     pp.cache_size = 2 * set->n + 2; /* no model is rebuilt while a condition points to it */
@@ -47,17 +47,9 @@ int evidence_conditions(const stagecal_runlog *log, const stagecal_column *col,
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     for (size_t k = 0; k < set->n; k++) {
         stagecal_evidence *e = &set->ev[k];
-        double ps = 0, ts = 0;
-        size_t np = 0, nt = 0;
-        for (size_t i = e->first; i <= e->last; i++) {
-            if (log->p_pa && isfinite(log->p_pa[i]))
-                ps += log->p_pa[i], np++;
-            if (log->t_reflux_k && isfinite(log->t_reflux_k[i]))
-                ts += log->t_reflux_k[i], nt++;
-        }
         double xd = e->xd > 0 && e->xd <= 1 ? e->xd : 0.5;
-        int rc = stagecal_physics_cond_at(set->phys, np ? ps / (double)np : NAN, xd, e->r,
-                                          nt ? ts / (double)nt : NAN, &set->conds[k], err);
+        int rc = stagecal_physics_cond_at(set->phys, p[k * stride], xd, e->r, t[k * stride],
+                                          &set->conds[k], err);
         if (rc != STAGECAL_OK)
             return rc;
         e->cond = &set->conds[k];

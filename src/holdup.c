@@ -256,8 +256,6 @@ int stagecal_holdup_estimate(const stagecal_runlog *log, double u_xd,
         free(t), free(x);
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
-    double sw = 0, swt = 0;
-    size_t nok = 0, nrows = 0;
     int rc = STAGECAL_OK;
     for (size_t k = 0; k < log->nruns && rc == STAGECAL_OK; k++) {
         size_t a = log->runs[k].first, end = a + log->runs[k].n, b = a;
@@ -300,14 +298,23 @@ int stagecal_holdup_estimate(const stagecal_runlog *log, double u_xd,
                  : par.source == STAGECAL_HOLDUP_TRANSIENT ? tr
                  : su.ok || startup_seen                   ? su
                                                            : tr;
-        if (tau[k].ok) {
-            double w = 1.0 / (tau[k].se_tau_s * tau[k].se_tau_s);
-            sw += w, swt += w * tau[k].tau_s, nok++, nrows += tau[k].n;
-        }
     }
     free(t), free(x);
     if (rc != STAGECAL_OK)
         return rc;
+    holdup_pool_tau(tau, log->nruns, pooled);
+    return STAGECAL_OK;
+}
+
+void holdup_pool_tau(const stagecal_holdup_tau *tau, size_t nruns, stagecal_holdup_tau *pooled)
+{
+    double sw = 0, swt = 0;
+    size_t nok = 0, nrows = 0;
+    for (size_t k = 0; k < nruns; k++)
+        if (tau[k].ok) {
+            double w = 1.0 / (tau[k].se_tau_s * tau[k].se_tau_s);
+            sw += w, swt += w * tau[k].tau_s, nok++, nrows += tau[k].n;
+        }
     *pooled = (stagecal_holdup_tau){0};
     pooled->n = nrows;
     if (nok == 0) {
@@ -317,7 +324,6 @@ int stagecal_holdup_estimate(const stagecal_runlog *log, double u_xd,
         pooled->tau_s = swt / sw;
         pooled->se_tau_s = sqrt(1.0 / sw);
     }
-    return STAGECAL_OK;
 }
 
 /* dxD/dt at row i of the stretch [s, e) by a local quadratic over the rows within half_s

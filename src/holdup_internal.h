@@ -30,7 +30,16 @@ typedef struct {
  * slope sensitivity gs: holdup_compensate_split) and what was used (out; free with
  * holdup_resolved_free). ENOMEM, or the compensation's status. */
 int holdup_resolve(const stagecal_runlog *log, const stagecal_column *col, int want,
-                   holdup_resolved *out, double *xd, double *u2, double *gs, stagecal_error *err);
+                   const stagecal_holdup_tau *pooled, holdup_resolved *out, double *xd, double *u2,
+                   double *gs, stagecal_error *err);
+/* With pooled non-NULL, holdup_resolve takes it as the time constant pooled over the runs
+ * instead of pooling this log's (a log read run by run: calibrate's streaming pools the runs'
+ * own in a first pass, so each run gets the bits the whole log gives it). Without a stated
+ * holdup, STAGES pools the runs' holdups too: that needs the whole log (calibrate holds it). */
+
+/* *pooled: the inverse-variance weighted mean of the nruns tau[k] that are ok (pooled->ok = 0
+ * when none), as stagecal_holdup_estimate pools them (the same doubles, summed in run order). */
+void holdup_pool_tau(const stagecal_holdup_tau *tau, size_t nruns, stagecal_holdup_tau *pooled);
 void holdup_resolved_free(holdup_resolved *h);
 
 /* The light component on the column stages and in the drum [mol] of a column at (xD, xB,

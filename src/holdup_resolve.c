@@ -169,7 +169,8 @@ void holdup_resolved_free(holdup_resolved *h)
 }
 
 int holdup_resolve(const stagecal_runlog *log, const stagecal_column *col, int want,
-                   holdup_resolved *out, double *xd, double *u2, double *gs, stagecal_error *err)
+                   const stagecal_holdup_tau *pooled, holdup_resolved *out, double *xd, double *u2,
+                   double *gs, stagecal_error *err)
 {
     size_t nr = log->nruns ? log->nruns : 1;
     *out = (holdup_resolved){0};
@@ -183,6 +184,8 @@ int holdup_resolve(const stagecal_runlog *log, const stagecal_column *col, int w
     }
     out->run_u = out->run_h + nr;
     int rc = stagecal_holdup_estimate(log, col->u.xd, NULL, out->tau, su, NULL, &out->pooled, err);
+    if (pooled)
+        out->pooled = *pooled;
     stagecal_holdup_model hm = {holdup_kind(col, want, &out->pooled),
                                 out->tau,
                                 out->pooled,

@@ -706,7 +706,7 @@ int runlog_drift_threads(const stagecal_runlog *log, const stagecal_column *col,
     }
     /* the compensated distillate the evidence will use (the same compensation) */
     holdup_resolved hr;
-    int rc = holdup_resolve(log, col, par->holdup, &hr, xd_ss, u2, NULL, err);
+    int rc = holdup_resolve(log, col, par->holdup, par->holdup_pooled, &hr, xd_ss, u2, NULL, err);
     if (rc == STAGECAL_OK) {
         struct drift_job j = {log, col, murphree, par, phs, res, &hr, xd_ss, u2, maxrun, scr, win};
         rc = parallel_for(log->nruns, nthreads, drift_run, &j, err);

@@ -4,9 +4,10 @@
  * inverted at every sample, fitted in stage and composition space with a 1000-resample
  * bootstrap. Target (issue 17): < 1.5 s on this 2-core machine when idle.
  *
- * Usage: bench_calibrate [ROWS] [BOOTSTRAP] [LOG.csv] [THREADS]   (defaults 500000, 1000; THREADS
- * as `calibrate --threads`: beside the calling one, default the processors online less one,
- * at least 1, at most 8)
+ * Usage: bench_calibrate [ROWS] [BOOTSTRAP] [LOG.csv] [THREADS] [held]   (defaults 500000, 1000;
+ * THREADS as `calibrate --threads`: beside the calling one, default the processors online less
+ * one, at least 1, at most 8; the logs streamed run by run as `stagecal calibrate` does, or held
+ * whole with "held")
  * Writes its synthetic log to a temporary directory, prints the timings, removes it; with
  * LOG.csv the log is kept there, and read from there when it exists already (generating it
  * takes longer than the calibration; to compare builds on the same log).
@@ -125,6 +126,7 @@ int main(int argc, char **argv)
     long online = sysconf(_SC_NPROCESSORS_ONLN) - 1;
     long threads = argc > 4 ? strtol(argv[4], NULL, 10) : online < 1 ? 1 : online > 8 ? 8 : online;
     par.threads = threads > 0 ? (size_t)threads : 0;
+    par.stream = !(argc > 5 && strcmp(argv[5], "held") == 0);
     stagecal_calibration cal;
     stagecal_error err;
     const char *logs[1] = {logpath};
@@ -141,9 +143,10 @@ int main(int argc, char **argv)
         struct rusage ru;
         getrusage(RUSAGE_SELF, &ru);
         double cpu = (double)(cpu1 - cpu0) / CLOCKS_PER_SEC;
-        printf("rows %zu, runs %zu, windows %zu, bootstrap %ld, threads %zu: calibrate %.3f s "
+        printf("rows %zu, runs %zu, windows %zu, bootstrap %ld, threads %zu, %s: calibrate %.3f s "
                "wall, %.3f s CPU\n",
-               cal.log->n, cal.log->nruns, cal.evidence.n, boot, par.threads, c1 - c0, cpu);
+               cal.log->n, cal.log->nruns, cal.evidence.n, boot, par.threads,
+               cal.streamed ? "streamed" : "held", c1 - c0, cpu);
         printf("%.0f rows/s wall, %.0f rows/s CPU; peak RSS %.1f MB\n",
                (double)cal.log->n / (c1 - c0), (double)cal.log->n / cpu, ru.ru_maxrss / 1024.0);
         printf("a = %.4f ± %.4f, b = %.4f ± %.4f (truth 9, 0.8; %s)\n", cal.model.theta[0],

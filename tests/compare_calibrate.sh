@@ -2,7 +2,12 @@
 # Every calibrate output (tests/cli/calibrate_outputs.sh: summary, model file, --json,
 # --samples-out, --points-out, warnings) of OLD_BIN against NEW_BIN with --threads 0, 1 and 2,
 # on the demo logs under ROOT/datasets: the README's quarter with a 200-resample bootstrap, all
-# fourteen months for each of the three demo columns, and each month alone (the README's loop).
+# fourteen months for each of the three demo columns, and each month alone (the README's loop);
+# then the settings that take other paths through the streamed calibration (docs/performance.md,
+# eleventh pass): flagged runs kept, each holdup compensation (--holdup stages without a stated
+# holdup holds the log), the stage-space and censored methods, the censored xD readings of a
+# month read against a tighter limit, no window at all (the failure's evidence hint) and a log
+# with validation errors (the findings), where stderr is what is compared.
 # With BIG_COLUMN and BIG_LOG also that log with --form saturating --bootstrap 1000 (the
 # bench's year: tests/bench_calibrate.c writes it, docs/performance.md has its column file).
 # Prints one line per case and "N case(s) differ" at the end; exit 1 when any differs.
@@ -21,7 +26,8 @@ one() { # one NAME ARGS... (the calibrate arguments, without --threads)
     sh "$OUTS" "$W/old" "$OLD" "$@"
     for t in 0 1 2; do
         sh "$OUTS" "$W/new$t" "$NEW" --threads "$t" "$@"
-        if [ -s "$W/old/summary.txt" ] && diff -r "$W/old" "$W/new$t" >/dev/null; then
+        if { [ -s "$W/old/summary.txt" ] || [ -s "$W/old/stderr.txt" ]; } &&
+            diff -r "$W/old" "$W/new$t" >/dev/null; then
             echo "same: $name, --threads $t"
         else
             echo "DIFFERS: $name, --threads $t"
@@ -42,6 +48,35 @@ done
 for f in "$D"/demo/logs/*.csv; do
     one "$(basename "$f"), saturating" --column "$BT" --form saturating "$f"
 done
+BTH=$D/columns/demo_benzene_toluene_holdup.json
+ALL=$(ls "$D"/demo/logs/*.csv)
+# shellcheck disable=SC2086
+{
+    one "fourteen months, --keep-flagged" --column "$BT" --keep-flagged $ALL
+    for h in none lag stages; do
+        one "fourteen months, --holdup $h" --column "$BT" --holdup "$h" $ALL
+        one "holdup column, fourteen months, --holdup $h" --column "$BTH" --holdup "$h" $ALL
+    done
+    one "fourteen months, --method stage, --covariance hc3" --column "$BT" --method stage \
+        --covariance hc3 $ALL
+    one "fourteen months, --method censored" --column "$BT" --method censored $ALL
+    one "a month, --min-window 2000min (no window)" --column "$BT" --min-window 2000min \
+        "$D/demo/logs/2025-01.csv"
+    one "a month, --warm-up 30min --min-window 40min" --column "$BT" --warm-up 30min \
+        --min-window 40min "$D/demo/logs/2025-01.csv"
+}
+# a log with a validation error in its third row
+BAD=$W/bad.csv
+awk -F, 'NR == 4 { $5 = "1.3" } 1' OFS=, "$D/demo/logs/2025-01.csv" >"$BAD"
+one "a month with xB 1.3 in a row (validation error)" --column "$BT" "$BAD"
+# the distillate analyser of three months clipped at 0.95: censored readings ('>0.95')
+for m in 02 05 09; do
+    awk -F, 'NR > 1 && $4 + 0 > 0.95 { $4 = ">0.95" } 1' OFS=, "$D/demo/logs/2025-$m.csv" \
+        >"$W/clip-$m.csv"
+done
+one "three months, xD clipped at 0.95" --column "$BT" "$W"/clip-*.csv
+one "three months, xD clipped at 0.95, --method censored" --column "$BT" --method censored \
+    "$W"/clip-*.csv
 if [ $# -ge 5 ]; then
     one "$(basename "$5"), saturating, bootstrap 1000" --column "$4" --form saturating \
         --bootstrap 1000 "$5"

@@ -7,12 +7,14 @@
  * coverage of 95 % intervals over many seeded synthetic data sets (a property any honest interval
  * must have).
  */
+#define _DEFAULT_SOURCE /* mkdtemp, open_memstream */
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "synth_calibration.h"
 #include "testutil.h"
@@ -299,6 +301,151 @@ static void calibrate_names_planted_drift(void **state)
     stagecal_column_free(&col);
 }
 
+/* Writes the demo month src to dst without the total-reflux start-up rows of run `run`: that run
+ * has no time constant of its own and takes the one pooled over the others. */
+static void write_without_startup(const char *src, const char *dst, const char *run)
+{
+    FILE *in = fopen(src, "r"), *out = fopen(dst, "w");
+    assert_non_null(in);
+    assert_non_null(out);
+    char line[512];
+    size_t n = strlen(run);
+    while (fgets(line, sizeof line, in))
+        if (!(strncmp(line, run, n) == 0 && line[n] == ',' && strstr(line, ",inf,")))
+            fputs(line, out);
+    fclose(in);
+    fclose(out);
+}
+
+/* Two time constants the same (bit for bit; the reason as text: the bytes after it are not
+ * set). */
+static void assert_tau_equal(const stagecal_holdup_tau *b, const stagecal_holdup_tau *a)
+{
+    assert_int_equal(b->ok, a->ok);
+    assert_memory_equal(&b->tau_s, &a->tau_s, sizeof a->tau_s);
+    assert_memory_equal(&b->se_tau_s, &a->se_tau_s, sizeof a->se_tau_s);
+    assert_memory_equal(&b->xd_inf, &a->xd_inf, sizeof a->xd_inf);
+    assert_memory_equal(&b->rise, &a->rise, sizeof a->rise);
+    assert_int_equal(b->n, a->n);
+    assert_string_equal(b->reason, a->reason);
+}
+
+/* The streamed chain (params.stream: the logs read twice, run by run) is the held one: on the
+ * holdup demo column (time-constant compensation chosen by the pool over the runs) and two
+ * months, one run without a start-up of its own (so the pool reaches it), with a flagged run
+ * left out (March's K7-018), the same evidence, closures, fits, model and per-sample file, bit
+ * for bit; the held run keeps the rows, the streamed one does not. A property of the chain,
+ * exact. */
+static void calibrate_streamed_equals_held(void **state)
+{
+    (void)state;
+    const char *colpath = STAGECAL_DATASETS "/columns/demo_benzene_toluene.json";
+    char dir[] = "/tmp/test_calibrate_XXXXXX", feb[64];
+    assert_non_null(mkdtemp(dir));
+    snprintf(feb, sizeof feb, "%s/feb.csv", dir);
+    write_without_startup(STAGECAL_DATASETS "/demo/logs/2025-02.csv", feb, "K7-009");
+    const char *logs[2] = {feb, STAGECAL_DATASETS "/demo/logs/2025-03.csv"};
+    stagecal_calibration a, b;
+    stagecal_error err;
+    char *text[2] = {NULL, NULL};
+    size_t len[2] = {0, 0};
+    for (int stream = 0; stream < 2; stream++) {
+        stagecal_calibrate_params par = stagecal_calibrate_default_params();
+        stagecal_calibration *c = stream ? &b : &a;
+        FILE *f = open_memstream(&text[stream], &len[stream]);
+        assert_non_null(f);
+        par.stream = stream;
+        par.samples = f;
+        par.threads = 1;
+        par.bootstrap = 50;
+        assert_int_equal(stagecal_calibrate(colpath, logs, 2, &par, c, &err), STAGECAL_OK);
+        if (!stream)
+            assert_int_equal(stagecal_runlog_write_csv(c->log, c->column, &c->res, f, &err),
+                             STAGECAL_OK);
+        fclose(f);
+    }
+    remove(feb);
+    rmdir(dir);
+    assert_int_equal(a.streamed, 0);
+    assert_int_equal(b.streamed, 1);
+    assert_non_null(a.log->t_s);
+    assert_null(b.log->t_s);
+    assert_int_equal(b.log->n, a.log->n);
+    assert_int_equal(b.log->nruns, a.log->nruns);
+    /* the pool reaches a run: K7-009 has no time constant of its own */
+    size_t r9 = run_index(a.log, "K7-009");
+    assert_true(r9 != SIZE_MAX);
+    assert_int_equal(a.evidence.holdup_kind, STAGECAL_HOLDUP_COMP_LAG);
+    assert_false(a.evidence.tau[r9].ok);
+    assert_true(a.evidence.tau_pooled.ok);
+    assert_true(a.nflagged >= 1);
+    assert_true(a.flagged[0].left_out);
+    assert_int_equal(b.nflagged, a.nflagged);
+    assert_memory_equal(b.flagged, a.flagged, a.nflagged * sizeof *a.flagged);
+    /* per sample: the same bytes */
+    assert_true(len[0] > 1000);
+    assert_int_equal(len[1], len[0]);
+    assert_memory_equal(text[1], text[0], len[0]);
+    free(text[0]);
+    free(text[1]);
+    /* runs, windows and evidence */
+    for (size_t k = 0; k < a.log->nruns; k++) {
+        assert_string_equal(b.log->runs[k].name, a.log->runs[k].name);
+        assert_int_equal(b.log->runs[k].first, a.log->runs[k].first);
+        assert_memory_equal(&b.res.closures[k], &a.res.closures[k], sizeof a.res.closures[k]);
+        assert_tau_equal(&b.evidence.tau[k], &a.evidence.tau[k]);
+        assert_memory_equal(&b.run_rows[k], &a.run_rows[k], sizeof a.run_rows[k]);
+    }
+    assert_tau_equal(&b.evidence.tau_pooled, &a.evidence.tau_pooled);
+    assert_int_equal(b.evidence.n_settling, a.evidence.n_settling);
+    assert_memory_equal(b.res.count, a.res.count, sizeof a.res.count);
+    assert_int_equal(b.res.nwindows, a.res.nwindows);
+    assert_memory_equal(b.res.windows, a.res.windows, a.res.nwindows * sizeof *a.res.windows);
+    assert_int_equal(b.evidence.n, a.evidence.n);
+    /* readings at the analysers' limits are censored: the censored likelihood's windows are
+     * built when streamed too */
+    assert_true(a.evidence.ncens >= a.evidence.n);
+    assert_int_equal(b.evidence.ncens, a.evidence.ncens);
+    for (size_t i = 0; i < a.evidence.n + a.evidence.ncens; i++) {
+        int cens = i >= a.evidence.n;
+        size_t j = cens ? i - a.evidence.n : i;
+        stagecal_evidence ea = cens ? a.evidence.cens[j] : a.evidence.ev[j];
+        stagecal_evidence eb = cens ? b.evidence.cens[j] : b.evidence.ev[j];
+        assert_int_equal(eb.m, ea.m);
+        assert_memory_equal(eb.s_t, ea.s_t, ea.m * sizeof *ea.s_t);
+        assert_memory_equal(eb.s_xd, ea.s_xd, ea.m * sizeof *ea.s_xd);
+        assert_memory_equal(eb.s_xb, ea.s_xb, ea.m * sizeof *ea.s_xb);
+        assert_int_equal(eb.cond != NULL, ea.cond != NULL);
+        /* the pointers into each set's own storage aside, the same bytes */
+        ea.s_t = ea.s_xd = ea.s_xb = eb.s_t = eb.s_xd = eb.s_xb = NULL;
+        ea.s_cens = eb.s_cens = NULL;
+        ea.cond = eb.cond = NULL;
+        assert_memory_equal(&eb, &ea, sizeof ea);
+    }
+    /* the fits and the model */
+    assert_int_equal(b.used, a.used);
+    const stagecal_regress_result *fa = stagecal_calibration_fit(&a),
+                                  *fb = stagecal_calibration_fit(&b);
+    assert_memory_equal(fb->theta, fa->theta, fa->p * sizeof *fa->theta);
+    assert_memory_equal(fb->cov, fa->cov, fa->p * fa->p * sizeof *fa->cov);
+    assert_memory_equal(b.stage_fit.boot_se, a.stage_fit.boot_se, a.stage_fit.p * sizeof(double));
+    assert_memory_equal(&b.model.sigma, &a.model.sigma, sizeof a.model.sigma);
+    assert_memory_equal(&b.model.dof, &a.model.dof, sizeof a.model.dof);
+    assert_int_equal(b.model.n_samples, a.model.n_samples);
+    assert_string_equal(b.model.data_first_utc, a.model.data_first_utc);
+    assert_string_equal(b.model.data_last_utc, a.model.data_last_utc);
+    assert_int_equal(b.model.n_inputs, a.model.n_inputs);
+    for (size_t k = 0; k < a.model.n_inputs; k++) {
+        assert_string_equal(b.model.inputs[k].sha256, a.model.inputs[k].sha256);
+        assert_int_equal(b.model.inputs[k].rows, a.model.inputs[k].rows);
+    }
+    assert_int_equal(b.model.n_warnings, a.model.n_warnings);
+    for (size_t k = 0; k < a.model.n_warnings; k++)
+        assert_string_equal(b.model.warnings[k], a.model.warnings[k]);
+    stagecal_calibration_free(&a);
+    stagecal_calibration_free(&b);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -308,6 +455,7 @@ int main(void)
         cmocka_unit_test(calibrate_data_equals_path_entry),
         cmocka_unit_test(calibrate_leaves_flagged_run_out),
         cmocka_unit_test(calibrate_names_planted_drift),
+        cmocka_unit_test(calibrate_streamed_equals_held),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }

@@ -91,6 +91,17 @@ typedef struct {
     double hetp_f;                     /* reference F for HETP (NAN: mean fitted) */
     stagecal_runlog_params read;
     stagecal_runlog_analysis_params analysis;
+    int stream;    /* 1: stagecal_calibrate reads the logs twice, run by
+                      run, and holds a batch of runs and one summary per
+                      window instead of every row (memory no longer grows
+                      with the log; the same results). Standard input and
+                      other files that cannot be read twice, the STAGES
+                      compensation without a stated holdup and the QUAD
+                      noise options hold the log instead (calibration.
+                      streamed says which). Default 0: held */
+    FILE *samples; /* with stream: each sample's results, as
+                      stagecal_runlog_write_csv writes them, go here while
+                      the runs stream by (NULL: not written) */
     /* progress callback (may be NULL): stage name and fraction done in [0, 1] */
     void (*progress)(void *ctx, const char *stage, double done);
     void *progress_ctx;
@@ -107,14 +118,29 @@ typedef struct {
     char reason[240]; /* "gross error: closure −7.21 % ± 0.80 %; drift: pot analyser (xB) …" */
 } stagecal_flagged_run;
 
+/* What a run's rows gave (to say why a calibration found no evidence). */
 typedef struct {
-    const stagecal_column *column;  /* the column the chain ran on */
-    const stagecal_runlog *log;     /* all rows of all logs */
-    stagecal_findings *findings;    /* validation findings (stagecal_calibrate; NULL from
-                                       stagecal_calibrate_data, whose caller validated) */
-    stagecal_runlog_result res;     /* per-sample results, windows, closures */
-    stagecal_evidence_set evidence; /* one entry per usable window */
-    stagecal_flagged_run *flagged;  /* runs flagged for a gross error or drift */
+    size_t warm;    /* rows within the filters' warm-up */
+    size_t steady;  /* rows in quasi-steady stretches */
+    size_t longest; /* the longest such stretch [rows] */
+} stagecal_cal_run_rows;
+
+typedef struct {
+    const stagecal_column *column;   /* the column the chain ran on */
+    const stagecal_runlog *log;      /* all rows of all logs; when streamed, the runs and files
+                                        but no rows (n counts them, the row arrays are NULL) */
+    int streamed;                    /* 1: the logs were streamed (params.stream): res holds the
+                                        windows, closures and counts but no per-sample arrays
+                                        (res.n 0), the samples went to params.samples; and
+                                        evidence.cens is empty when no reading is censored and
+                                        the method is not CENSORED (nothing takes it then) */
+    stagecal_cal_run_rows *run_rows; /* one per run (after the inversion) */
+    stagecal_findings *findings;     /* validation findings (stagecal_calibrate; NULL from
+                                        stagecal_calibrate_data, whose caller validated) */
+    stagecal_runlog_result res;      /* per-sample results, windows, closures (streamed: no
+                                        per-sample results) */
+    stagecal_evidence_set evidence;  /* one entry per usable window */
+    stagecal_flagged_run *flagged;   /* runs flagged for a gross error or drift */
     size_t nflagged;
     size_t nev_stage; /* windows used by the stage-space fit */
     int stage_status; /* STAGECAL_OK, why the stage-space fit failed, or −1 (not run) */

@@ -82,6 +82,8 @@ typedef struct {
     double stages;      /* effective stages incl. the pot [-] */
     double se_stages;   /* its standard error [-] */
     double t_mid_s;     /* mid time of the window [s] */
+    double t_first_s;   /* time of its first row [s] (builder; 0 otherwise) */
+    double t_last_s;    /* time of its last row [s] (builder; 0 otherwise) */
     size_t m;           /* samples carried below (0: use the means only) */
     const double *s_t;  /* m sample times [s], m compositions xD and xB of the window, */
     const double *s_xd; /* evenly thinned, outliers left out (storage owned by whoever */
@@ -229,6 +231,9 @@ typedef struct {
                                       calibrate.h); NULL (default): none */
     size_t threads; /* threads beside the calling one for the windows' stage counts (the
                        evidence does not depend on it); 0 (default) */
+    const stagecal_holdup_tau *holdup_pooled; /* the start-up time constant pooled over the runs
+                                                 of a log given in parts (as the analysis
+                                                 params'); NULL (default): this log's */
 } stagecal_evidence_params;
 
 #define STAGECAL_EVIDENCE_HOLDUP_AUTO (-1)
@@ -241,6 +246,8 @@ typedef struct {
     stagecal_evidence *ev; /* n windows */
     size_t n;
     double *samples; /* storage of the carried samples */
+    double *rows;    /* what each entry's stage count and conditions take from the log's rows
+                        (internal: src/evidence.c) */
     /* physics and holdup (src/evidence_physics.c) */
     stagecal_physics *phys;       /* the models the windows' conditions point into */
     stagecal_physics_cond *conds; /* n conditions (NULL when params.physics is 0) */

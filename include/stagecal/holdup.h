@@ -60,7 +60,7 @@ typedef struct {
 stagecal_holdup_params stagecal_holdup_default_params(void);
 
 /* The time constant of one run (or pooled). */
-typedef struct {
+typedef struct stagecal_holdup_tau {
     int ok;           /* 1: tau_s and se_tau_s are estimates */
     double tau_s;     /* time constant [s] (0 unless ok) */
     double se_tau_s;  /* its standard error [s] */

@@ -426,6 +426,9 @@ typedef struct {
                                when the start-ups give a time constant); calibration sets it
                                to the evidence's (AUTO when that is NONE), so both see the
                                same compensated xD */
+    const struct stagecal_holdup_tau *holdup_pooled; /* the start-up time constant pooled over
+                               the runs of a log given in parts (calibrate's streaming gives
+                               each run the whole log's pool); NULL (default): this log's */
 } stagecal_runlog_analysis_params;
 
 stagecal_runlog_analysis_params stagecal_runlog_analysis_default_params(void);

@@ -310,17 +310,23 @@ static int write_points(const stagecal_calibration *cal, atomic_file *a, const c
 enum { OUT_SAMPLES, OUT_POINTS, OUT_REPORT, OUT_N };
 static const char *const out_opt[OUT_N] = {"samples-out", "points-out", "report-out"};
 
-/* Writes every requested output into its temporary file; an exit code. */
-static int prepare_outputs(const stagecal_calibration *cal, const char *const path[OUT_N],
-                           atomic_file out[OUT_N])
+/* Writes every requested output into its temporary file; an exit code. early: the samples
+ * file was opened before the calibration, which streamed the samples into it (params.samples);
+ * a held calibration writes them now. */
+static int prepare_outputs(const stagecal_calibration *cal, int early,
+                           const char *const path[OUT_N], atomic_file out[OUT_N])
 {
     stagecal_error err;
     for (int k = 0; k < OUT_N; k++)
-        if (path[k] && atomic_open(&out[k], path[k], &err) != STAGECAL_OK)
+        if (path[k] && !(k == OUT_SAMPLES && early) &&
+            atomic_open(&out[k], path[k], &err) != STAGECAL_OK)
             return cli_fail(&err);
     if (path[OUT_SAMPLES]) {
         FILE *f = atomic_stream(&out[OUT_SAMPLES], &err);
-        if (!f || stagecal_runlog_write_csv(cal->log, cal->column, &cal->res, f, &err)) {
+        /* (streamed without the file open: cannot be written any more) */
+        if (!f || (cal->streamed ? !early
+                                 : stagecal_runlog_write_csv(cal->log, cal->column, &cal->res, f,
+                                                             &err) != STAGECAL_OK)) {
             cli_error("cannot write '%s'", path[OUT_SAMPLES]);
             return CLI_EXIT_CANTCREAT;
         }
@@ -537,8 +543,7 @@ static void print_text(const stagecal_calibration *cal, const char *path, const 
 static void evidence_hint(const stagecal_calibration *cal, stagecal_error *err)
 {
     const stagecal_runlog *log = cal->log;
-    const stagecal_runlog_result *res = &cal->res;
-    if (!log || !res->flags || res->nruns != log->nruns)
+    if (!log || !cal->run_rows)
         return;
     char buf[sizeof err->text];
     size_t len = 0, nstage = 0, short_runs = 0, warm_runs = 0;
@@ -549,13 +554,8 @@ static void evidence_hint(const stagecal_calibration *cal, stagecal_error *err)
     len = w > 0 && (size_t)w < sizeof buf ? (size_t)w : sizeof buf - 1;
     for (size_t k = 0; k < log->nruns && len + 200 < sizeof buf; k++) {
         const stagecal_runlog_run *r = &log->runs[k];
-        size_t warm = 0, steady = 0, run = 0, longest = 0, nwin = 0, nok = 0;
-        for (size_t i = r->first; i < r->first + r->n; i++) {
-            warm += (res->flags[i] & STAGECAL_SAMPLE_WARMUP) != 0;
-            run = res->flags[i] & STAGECAL_SAMPLE_STEADY ? run + 1 : 0;
-            steady += run > 0;
-            longest = run > longest ? run : longest;
-        }
+        size_t warm = cal->run_rows[k].warm, steady = cal->run_rows[k].steady,
+               longest = cal->run_rows[k].longest, nwin = 0, nok = 0;
         for (size_t i = 0; i < cal->evidence.n; i++)
             if (cal->evidence.ev[i].run == k) {
                 nwin++;
@@ -596,7 +596,29 @@ static int run(int argc, char **argv, int first, stagecal_calibrate_params *par,
     stagecal_calibration cal;
     stagecal_error err;
     stagecal_error_clear(&err);
+    atomic_file out[OUT_N];
+    for (int k = 0; k < OUT_N; k++)
+        atomic_init(&out[k]);
+    /* run by run (memory bounded by a batch of runs and the windows, not the logs), unless the
+     * report's per-sample charts need the rows; the samples go straight into the temporary file
+     * of --samples-out, published with the other outputs or not at all (when it cannot be
+     * opened now, the calibration streams without it and the failure is reported where it
+     * always was, after the calibration) */
+    par->stream = !rq->out[OUT_REPORT];
+    par->samples = NULL;
+    int early = 0;
+    if (par->stream && rq->out[OUT_SAMPLES]) {
+        stagecal_error e0;
+        if (atomic_open(&out[OUT_SAMPLES], rq->out[OUT_SAMPLES], &e0) == STAGECAL_OK &&
+            (par->samples = atomic_stream(&out[OUT_SAMPLES], &e0)) != NULL) {
+            early = 1;
+        } else {
+            atomic_discard(&out[OUT_SAMPLES]);
+            atomic_init(&out[OUT_SAMPLES]);
+        }
+    }
     rc = stagecal_calibrate(rq->column, logs, nlogs, par, &cal, &err);
+    par->samples = NULL;
     if (rc != STAGECAL_OK) {
         if (par->progress)
             fputc('\n', stderr);
@@ -605,21 +627,20 @@ static int run(int argc, char **argv, int first, stagecal_calibrate_params *par,
             cli_error("%zu error(s) in the run logs; nothing was fitted or written",
                       cal.findings->n_errors);
             stagecal_calibration_free(&cal);
+            atomic_discard(&out[OUT_SAMPLES]);
             return CLI_EXIT_DATA;
         }
         if (rc == STAGECAL_EDATA)
             evidence_hint(&cal, &err);
         stagecal_calibration_free(&cal);
+        atomic_discard(&out[OUT_SAMPLES]);
         return cli_fail(&err);
     }
     if (!cli_quiet && cal.findings->n_warnings > 0)
         print_findings(cal.findings, 0);
 
-    atomic_file out[OUT_N];
-    for (int k = 0; k < OUT_N; k++)
-        atomic_init(&out[k]);
     char path[4096] = "";
-    rc = prepare_outputs(&cal, rq->out, out);
+    rc = prepare_outputs(&cal, early, rq->out, out);
     if (rc == CLI_EXIT_OK && !rq->dry) {
         char dir[4096];
         char *cmdline = join_args(argc, argv);

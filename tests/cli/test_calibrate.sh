@@ -66,9 +66,9 @@ check "model file: scatter function well formed" \
 "$BIN" calibrate --column "$COL" --fits "$tmp/f4" --form 'linear:1+1/R+F' --quiet $LOGS >/dev/null
 expect_exit 2 "stagecal predict: the model's form 'linear:1+1/R+F' uses the vapour load: give '--f-factor F'" -- "$BIN" predict --model "$(ls "$tmp"/f4/demo-bt-K-7/*.json)" --charge 25 --xb0 0.5 --boilup 3.6 --reflux 3 --cut pot-x=0.15
 
-# calibrate holds the whole log (its row arrays shrunk to the rows read); invert streams it run
-# by run and never holds it: the per-sample rows of the two paths are the same bytes
-# (a consistency check between two code paths, common practice, no source)
+# calibrate streams the logs run by run (twice: docs/performance.md, eleventh pass) and holds
+# them whole with --report-out; invert streams them once: the per-sample rows of the three paths
+# are the same bytes (a consistency check between code paths, common practice, no source)
 "$BIN" calibrate --column "$COL" --fits "$tmp/fs" --form saturating --dry-run --quiet \
     --samples-out "$tmp/samples.csv" $LOGS >/dev/null
 "$BIN" invert --column "$COL" --quiet --output "$tmp/inverted.csv" $LOGS >/dev/null
@@ -76,6 +76,13 @@ if [ -s "$tmp/samples.csv" ] && cmp -s "$tmp/samples.csv" "$tmp/inverted.csv"; t
     echo "ok: calibrate --samples-out equals invert --output byte for byte"
 else
     echo "FAIL: calibrate --samples-out differs from invert --output"; fails=$((fails + 1))
+fi
+"$BIN" calibrate --column "$COL" --fits "$tmp/fs" --form saturating --dry-run --quiet \
+    --samples-out "$tmp/samples-held.csv" --report-out "$tmp/held.html" $LOGS >/dev/null
+if [ -s "$tmp/samples-held.csv" ] && cmp -s "$tmp/samples.csv" "$tmp/samples-held.csv"; then
+    echo "ok: calibrate --samples-out held (--report-out) equals streamed byte for byte"
+else
+    echo "FAIL: calibrate --samples-out held differs from streamed"; fails=$((fails + 1))
 fi
 
 # a second calibration never replaces the first
