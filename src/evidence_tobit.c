@@ -16,6 +16,7 @@
 #include <gsl/gsl_randist.h>
 
 #include "internal.h"
+#include "parallel.h"
 #include "stagecal/evidence.h"
 
 #define TOBIT_MAX_ITER 5000
@@ -85,7 +86,7 @@ static double tobit_var0(const struct tobit *tb, const double *beta, double lsig
             H[a * k + b] = H[b * k + a] = -d2;
         }
     gsl_matrix_view hm = gsl_matrix_view_array(H, k, k);
-    gsl_error_handler_t *old = gsl_set_error_handler_off();
+    gsl_quiet q = gsl_quiet_begin();
     int st = gsl_linalg_cholesky_decomp1(&hm.matrix);
     double out = NAN;
     if (st == GSL_SUCCESS) {
@@ -94,7 +95,7 @@ static double tobit_var0(const struct tobit *tb, const double *beta, double lsig
         if (gsl_linalg_cholesky_svx(&hm.matrix, &ev.vector) == GSL_SUCCESS)
             out = e0[0];
     }
-    gsl_set_error_handler(old);
+    gsl_quiet_end(q);
     return out;
 }
 

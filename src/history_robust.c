@@ -20,6 +20,7 @@
 #include "stagecal/history.h"
 #include "history_internal.h"
 #include "internal.h"
+#include "parallel.h"
 
 /* (J'WJ)^{-1} into B (P×P) by Cholesky; EDATA when singular. */
 int history_bread(const gsl_matrix *J, const double *w, gsl_matrix *B, stagecal_error *err)
@@ -33,11 +34,11 @@ int history_bread(const gsl_matrix *J, const double *w, gsl_matrix *B, stagecal_
     for (size_t a = 0; a < P; a++)
         for (size_t b = 0; b < a; b++)
             gsl_matrix_set(B, b, a, gsl_matrix_get(B, a, b));
-    gsl_error_handler_t *old = gsl_set_error_handler_off();
+    gsl_quiet q = gsl_quiet_begin();
     int g = gsl_linalg_cholesky_decomp1(B);
     if (g == GSL_SUCCESS)
         g = gsl_linalg_cholesky_invert(B);
-    gsl_set_error_handler(old);
+    gsl_quiet_end(q);
     if (g != GSL_SUCCESS)
         return error_set(err, STAGECAL_EDATA,
                          "the history's design is singular (a segment's level and loss cannot "

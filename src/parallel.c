@@ -1,6 +1,7 @@
 /*
  * parallel.c — parallel_for (parallel.h): a counter under a mutex hands out the items; the
- * failure with the smallest index wins, so the status does not depend on the timing.
+ * failure with the smallest index wins, so the status does not depend on the timing. GSL's
+ * process-wide error handler is off for the whole job (gsl_quiet_begin).
  */
 #include "parallel.h"
 
@@ -18,6 +19,26 @@ struct par_job {
     int rc;
     stagecal_error err;
 };
+
+/* Nonzero on a thread inside a parallel_for job: GSL's handler is off already and must not be
+ * touched there. */
+static _Thread_local int quiet_held;
+
+gsl_quiet gsl_quiet_begin(void)
+{
+    gsl_quiet q = {NULL, 0};
+    if (!quiet_held) {
+        q.old = gsl_set_error_handler_off();
+        q.set = 1;
+    }
+    return q;
+}
+
+void gsl_quiet_end(gsl_quiet q)
+{
+    if (q.set)
+        gsl_set_error_handler(q.old);
+}
 
 struct par_arg {
     struct par_job *job;
@@ -53,6 +74,7 @@ static void run_items(struct par_job *j, size_t worker)
 static void *thread_main(void *arg)
 {
     struct par_arg *a = arg;
+    quiet_held = 1; /* parallel_for turned the handler off before starting this thread */
     run_items(a->job, a->worker);
     return NULL;
 }
@@ -74,6 +96,8 @@ int parallel_for(size_t n, size_t nthreads, parallel_fn fn, void *ctx, stagecal_
     struct par_arg *args = malloc((nthreads + 1) * sizeof *args);
     size_t started = 0;
     pthread_mutex_init(&j.mu, NULL);
+    gsl_quiet q = gsl_quiet_begin(); /* before any other thread can look at the handler */
+    quiet_held++;
     for (size_t t = 0; th && args && t <= nthreads; t++)
         args[t] = (struct par_arg){&j, t};
     while (th && args && started < nthreads &&
@@ -82,6 +106,8 @@ int parallel_for(size_t n, size_t nthreads, parallel_fn fn, void *ctx, stagecal_
     run_items(&j, 0);
     for (size_t t = 0; t < started; t++)
         pthread_join(th[t], NULL);
+    quiet_held--;
+    gsl_quiet_end(q); /* the other threads have ended */
     pthread_mutex_destroy(&j.mu);
     free(th);
     free(args);

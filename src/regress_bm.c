@@ -16,6 +16,7 @@
 #include <math.h>
 
 #include "internal.h"
+#include "parallel.h"
 
 int stagecal_regress_bm_dof(const double *x, size_t n, size_t p, const double *c, double *dof,
                             stagecal_error *err)
@@ -46,11 +47,11 @@ int stagecal_regress_bm_dof(const double *x, size_t n, size_t p, const double *c
             for (size_t k = 0; k < p; k++)
                 A[j * p + k] += x[i * p + j] / cn[j] * (x[i * p + k] / cn[k]);
     gsl_matrix_view Av = gsl_matrix_view_array(A, p, p);
-    gsl_error_handler_t *old = gsl_set_error_handler_off();
+    gsl_quiet q = gsl_quiet_begin();
     int gs = gsl_linalg_cholesky_decomp1(&Av.matrix);
     if (gs == GSL_SUCCESS)
         gs = gsl_linalg_cholesky_invert(&Av.matrix);
-    gsl_set_error_handler(old);
+    gsl_quiet_end(q);
     if (gs != GSL_SUCCESS)
         return error_set(err, STAGECAL_EDATA, "Bell-McCaffrey dof: the design is rank deficient");
     double Ac[STAGECAL_FORM_MAXP], cac = 0;

@@ -1,9 +1,12 @@
 /*
  * test_parallel.c — parallel_for (src/parallel.c): every item once, on threads numbered within
  * range, and after failures the status and message of the failed item with the smallest index,
- * as a serial loop stopping at its first failure gives them. No numerical tolerance: counts and
- * statuses are exact.
+ * as a serial loop stopping at its first failure gives them; GSL's process-wide error handler
+ * left alone by the job's threads and restored after it (gsl_quiet_begin). No numerical
+ * tolerance: counts and statuses are exact.
  */
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_linalg.h>
 #include <pthread.h>
 #include <stdint.h>
 #include <stdio.h>
@@ -83,11 +86,70 @@ static void parallel_first_failure_wins(void **state)
         }
 }
 
+/* The handler a library caller installed: counts GSL's error reports. */
+static unsigned long gsl_reports;
+static void counting_handler(const char *reason, const char *file, int line, int gsl_errno)
+{
+    (void)reason, (void)file, (void)line, (void)gsl_errno;
+    __atomic_add_fetch(&gsl_reports, 1, __ATOMIC_SEQ_CST);
+}
+
+struct quiet_job {
+    int touched; /* set when gsl_quiet_begin changed the handler on a thread of the job */
+    int failed;  /* set when the factorisation did not report a failure */
+};
+
+/* An item that factorises a matrix which is not positive definite (GSL reports GSL_EDOM through
+ * the handler) inside gsl_quiet, as evidence_tobit.c, regress_bm.c and history_robust.c do. */
+static int quiet_item(void *ctx, size_t item, size_t worker, stagecal_error *err)
+{
+    (void)item, (void)worker, (void)err;
+    struct quiet_job *j = ctx;
+    double a[4] = {1, 2, 2, 1}; /* eigenvalues 3 and −1 */
+    gsl_matrix_view m = gsl_matrix_view_array(a, 2, 2);
+    gsl_quiet q = gsl_quiet_begin();
+    if (q.set)
+        __atomic_store_n(&j->touched, 1, __ATOMIC_SEQ_CST);
+    if (gsl_linalg_cholesky_decomp1(&m.matrix) == GSL_SUCCESS)
+        __atomic_store_n(&j->failed, 1, __ATOMIC_SEQ_CST);
+    gsl_quiet_end(q);
+    return STAGECAL_OK;
+}
+
+static void parallel_keeps_gsl_handler(void **state)
+{
+    (void)state;
+    gsl_error_handler_t *before = gsl_set_error_handler(counting_handler);
+    /* outside a job gsl_quiet turns the handler off and puts the caller's back */
+    struct quiet_job j = {0, 0};
+    assert_int_equal(quiet_item(&j, 0, 0, NULL), STAGECAL_OK);
+    assert_int_equal(j.touched, 1);
+    assert_int_equal(j.failed, 0);
+    assert_int_equal(gsl_reports, 0);
+    for (size_t nthreads = 0; nthreads <= 3; nthreads++) {
+        j = (struct quiet_job){0, 0};
+        assert_int_equal(parallel_for(64, nthreads, quiet_item, &j, NULL), STAGECAL_OK);
+        /* serial (0 threads): each item turns it off and back itself; with threads nobody on
+         * the job's threads touches it (parallel_for holds it off) */
+        assert_int_equal(j.touched, nthreads == 0);
+        assert_int_equal(j.failed, 0);
+        assert_int_equal(gsl_reports, 0);
+        /* the caller's handler is back: it hears a failure after the job */
+        double a[4] = {1, 2, 2, 1};
+        gsl_matrix_view m = gsl_matrix_view_array(a, 2, 2);
+        gsl_linalg_cholesky_decomp1(&m.matrix);
+        assert_int_equal(gsl_reports, 1);
+        gsl_reports = 0;
+    }
+    gsl_set_error_handler(before);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(parallel_every_item_once),
         cmocka_unit_test(parallel_first_failure_wins),
+        cmocka_unit_test(parallel_keeps_gsl_handler),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
