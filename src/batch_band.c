@@ -18,7 +18,10 @@
  * scatter function (model format 4) the shift at R is σ(R)·ε·w_s: one standard normal ε per
  * batch (a batch runs one column: its offset, in units of σ(R), is the same at every R), and
  * w_s = √(ν_s/χ²) at the smallest dof ν_s of σ(R) along the batch's reflux ratios, its χ²
- * at the same quantile as θ's (ν_s = ν: the same draw, the one-σ path exactly).
+ * at the same quantile as θ's (ν_s = ν: the same draw, the one-σ path exactly). With
+ * STAGECAL_BATCH_SCATTER_PROCESS the shift is σ(R)·ε·√max(0, w_s² − 1/s²), s² the scatter
+ * function's var_ratio: the batch's own run-to-run part, the windows' measurement error
+ * (σ(R)²/s² at the estimate) taken out of each draw of σ(R)² (stagecal_scatter_process_factor).
  */
 #include "stagecal/batch.h"
 #include "stagecal/regress.h"
@@ -172,6 +175,12 @@ int stagecal_batch_band_sample_scatter(const stagecal_batch_problem *pb, const s
             nu = fmin(nu, dk);
     }
     band->dof = nu;
+    if (run_scatter < STAGECAL_BATCH_SCATTER_NONE || run_scatter > STAGECAL_BATCH_SCATTER_PROCESS)
+        run_scatter = STAGECAL_BATCH_SCATTER_WINDOW; /* any other nonzero: the whole scatter */
+    /* the process part needs the scatter function's var_ratio; without it the whole scatter */
+    if (run_scatter == STAGECAL_BATCH_SCATTER_PROCESS &&
+        isnan(stagecal_scatter_process_factor(&m->scatter, 1.0)))
+        run_scatter = STAGECAL_BATCH_SCATTER_WINDOW;
     band->run_scatter = run_scatter;
     /* σ of one batch's stage count: the scatter function at each R the batch runs at, where
      * the model has one, with its own dof (the smallest along the batch's reflux ratios) */
@@ -213,7 +222,9 @@ int stagecal_batch_band_sample_scatter(const stagecal_batch_problem *pb, const s
                 theta[i] += s[i * p + j] * z[j] * w;
         }
         law.delta = run_scatter ? m->sigma * eps * w : 0.0;
-        law.unit = eps * ws;
+        law.unit = run_scatter == STAGECAL_BATCH_SCATTER_PROCESS
+                       ? eps * stagecal_scatter_process_factor(sc, ws * ws)
+                       : eps * ws;
         if (u_h > 0) { /* after the law's draws: the stream of a fixed holdup is unchanged */
             double factor = fmax(0.05, 1 + u_h * gsl_ran_ugaussian(rng));
             dy.holdup_column_mol = params->dynamics->holdup_column_mol * factor;

@@ -186,9 +186,15 @@ static json_t *build_doc(const stagecal_model *m)
             json_object_get(doc, "correlation"), "scatter",
             json_pack("{s:o, s:o, s:[f, f]}", "ln_sd_poly", cs ? cs : json_null(), "ln_sd_cov",
                       cv ? cv : json_null(), "range", m->scatter.lv_lo, m->scatter.lv_hi));
+        if (m->scatter.var_ratio > 0) /* 0: not known (a fit before it); no member */
+            bad |=
+                json_object_set_new(json_object_get(json_object_get(doc, "correlation"), "scatter"),
+                                    "var_ratio", json_real(m->scatter.var_ratio));
         bad |= json_object_set_new(units, "scatter",
                                    json_string("sigma of one new window at R: exp of the "
-                                               "polynomial in R/(R+1), clamped to the range"));
+                                               "polynomial in R/(R+1), clamped to the range; "
+                                               "var_ratio: the windows' residual variance over "
+                                               "their stated one"));
     }
     bad |= json_object_set_new(doc, "evidence",
                                json_pack("{s:I, s:I, s:I}", "windows", (json_int_t)m->n_windows,
@@ -431,6 +437,12 @@ static int read_scatter(reader *rd, const json_t *c, stagecal_model *m)
         return RFAIL(rd, "correlation.scatter.ln_sd_cov: %zu rows (expected %zu)",
                      json_array_size(cv), n);
     TRY(read_rows(rd, cv, "correlation.scatter.ln_sd_cov", n, n, m->scatter.cov));
+    m->scatter.var_ratio = 0; /* absent: not known */
+    TRY(jr_number(J, o, "var_ratio", "correlation.scatter.var_ratio", 0, 0, &m->scatter.var_ratio,
+                  NULL));
+    if (!(m->scatter.var_ratio >= 0) || !isfinite(m->scatter.var_ratio))
+        return RFAIL(rd, "correlation.scatter.var_ratio: %g (expected a finite number >= 0)",
+                     m->scatter.var_ratio);
     m->scatter.n = n;
     m->scatter.lv_lo = lr[0];
     m->scatter.lv_hi = lr[1];

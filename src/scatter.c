@@ -50,6 +50,14 @@ double stagecal_scatter_dof(const stagecal_scatter *s, double r)
     return v > 0 ? 1.0 / (2.0 * v) : NAN;
 }
 
+double stagecal_scatter_process_factor(const stagecal_scatter *s, double w2)
+{
+    if (!s || s->n == 0 || !(s->var_ratio > 0) || !isfinite(s->var_ratio) || !(w2 > 0) ||
+        !isfinite(w2))
+        return NAN;
+    return sqrt(fmax(0.0, w2 - 1.0 / s->var_ratio));
+}
+
 int stagecal_scatter_check(const stagecal_scatter *s, stagecal_error *err)
 {
     if (!s || s->n > STAGECAL_SCATTER_MAXC)
@@ -76,6 +84,10 @@ int stagecal_scatter_check(const stagecal_scatter *s, stagecal_error *err)
                                  "symmetric matrix with a non-negative diagonal)",
                                  i, k, a);
         }
+    if (!(s->var_ratio >= 0) || !isfinite(s->var_ratio))
+        return error_set(err, STAGECAL_EINVAL,
+                         "scatter: var_ratio %g (expected a finite number >= 0; 0: not known)",
+                         s->var_ratio);
     /* a polynomial of degree ≤ 2 on a closed interval is largest and smallest at the ends
      * or at its vertex */
     double at[3] = {s->lv_lo, s->lv_hi, s->lv_lo};
@@ -276,6 +288,7 @@ int stagecal_scatter_fit_se(const stagecal_evidence *ev, size_t n, const double 
     out->c[1] = b1 - 2 * b2 * mid;
     out->c[2] = b2;
     out->n = nc;
+    out->var_ratio = zz / (double)(m - form->p);
     /* Cov(c) = T Cov(b) Tᵀ with T the map above (gsl's covariance is (XᵀX)⁻¹ times the
      * residual variance RSS/(m − nc), m > nc here); Var(ln s) of a variance on m − p dof is
      * 1/(2(m − p)) (delta method on a scaled χ², common practice, no source) */

@@ -239,7 +239,7 @@ static void scatter_window_se_detrends_a_curving_pot(void **state)
 static void scatter_check_refuses(void **state)
 {
     (void)state;
-    stagecal_scatter s = {2, {-3, 1, 0}, 0.5, 1.0, {0.1, 0.01, 0.01, 0.2}};
+    stagecal_scatter s = {2, {-3, 1, 0}, 0.5, 1.0, {0.1, 0.01, 0.01, 0.2}, 0};
     stagecal_error err;
     assert_int_equal(stagecal_scatter_check(&s, &err), STAGECAL_OK);
     s.c[1] = NAN;
@@ -291,7 +291,8 @@ static void small_model(stagecal_model *m)
                                     {-2.2, -3.1, 2.9},
                                     1.2 / 2.2,
                                     1.0,
-                                    {0.05, -0.01, 0.002, -0.01, 0.03, -0.004, 0.002, -0.004, 0.01}};
+                                    {0.05, -0.01, 0.002, -0.01, 0.03, -0.004, 0.002, -0.004, 0.01},
+                                    0};
 }
 
 /* Evaluation with a scatter function: se_pred² − se_fit² = σ(R)², the prediction dof the

@@ -334,9 +334,11 @@ typedef struct {
     double dof;         /* degrees of freedom of the t draws (the model's dof, or with a
                            design the smallest of its parameters' Bell–McCaffrey dof; INFINITY:
                            normal draws) */
-    int run_scatter;    /* 1: each draw also carries the run-to-run scatter of the stage
-                           count (the model's σ, or its scatter function σ(R) at each R the
-                           batch runs at): a prediction band for one batch; 0: a confidence
+    int run_scatter;    /* STAGECAL_BATCH_SCATTER_*, as drawn. WINDOW (1): each draw also
+                           carries the scatter of one window's stage count (the model's σ, or
+                           its scatter function σ(R) at each R the batch runs at); PROCESS (2):
+                           its run-to-run part only (σ(R)² less the windows' measurement
+                           error): a prediction band for one batch; NONE (0): a confidence
                            band on the mean law */
     double dof_scatter; /* run_scatter: the dof of the scatter's t draws (dof above, or with a
                            scatter function stagecal_batch_scatter_dof); NAN otherwise */
@@ -361,13 +363,24 @@ int stagecal_batch_band_sample(const stagecal_batch_problem *pb, const stagecal_
                                const stagecal_batch_result *nominal, size_t n_samples,
                                unsigned long seed, double level, stagecal_batch_band *band,
                                stagecal_error *err);
+/* What of the run-to-run scatter a band carries (run_scatter of
+ * stagecal_batch_band_sample_scatter and stagecal_batch_band). */
+#define STAGECAL_BATCH_SCATTER_NONE 0    /* none: a confidence band on the mean law */
+#define STAGECAL_BATCH_SCATTER_WINDOW 1  /* the whole scatter of one window about the law */
+#define STAGECAL_BATCH_SCATTER_PROCESS 2 /* its run-to-run (process) part only */
+
 /* The same; with run_scatter = 1 every draw also shifts the batch's stage count by
  * σ·ε·√(ν/χ²_ν) (ε ~ N(0, 1), the same χ² draw: a joint t), the scatter of one run about
  * the law, so the band is a prediction band for one batch (stage counts below 1 are
  * held at 1). With a scatter function (m->scatter.n > 0) the shift at R is
  * σ(R)·ε·√(ν_s/χ²_s): σ(R) at every R the batch runs at (constant reflux: the batch's R;
  * a varying R: along its policy), ν_s = stagecal_batch_scatter_dof, and χ²_s at the same
- * quantile of its distribution as θ's χ²_ν (ν_s = ν: the same draw). */
+ * quantile of its distribution as θ's χ²_ν (ν_s = ν: the same draw).
+ * run_scatter = STAGECAL_BATCH_SCATTER_PROCESS: the shift is the batch's own run-to-run
+ * part only, σ(R)·ε·stagecal_scatter_process_factor(&m->scatter, ν_s/χ²_s) (the windows'
+ * measurement error taken out of σ(R)², floored at 0 in every draw); where the model has no
+ * scatter function or no var_ratio the whole scatter is drawn (as run_scatter = 1) and
+ * band->run_scatter says STAGECAL_BATCH_SCATTER_WINDOW. */
 int stagecal_batch_band_sample_scatter(const stagecal_batch_problem *pb, const stagecal_vle *vle,
                                        const stagecal_model *m, double f_load,
                                        const stagecal_batch_params *params,

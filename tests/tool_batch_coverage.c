@@ -1,0 +1,383 @@
+/*
+ * tool_batch_coverage.c — batch-level coverage study of `stagecal predict`'s band: does the
+ * 95 % band of a new batch's outcome (batch time, the product's mean composition) cover what
+ * that batch actually does, with and without the run-to-run scatter, when the column's stage
+ * count really varies from batch to batch by a known amount τ?
+ *
+ * Usage: tool_batch_coverage REPLICATIONS SEED TAU [SAMPLES] [both] [dump]
+ *   TAU      sd of the per-batch random effect on the stage count [stages], ≥ 0
+ *   SAMPLES  draws per band (default 200, predict's default)
+ *   both     problems A and B (below; default A only)
+ *   dump     one line per data set on stderr (below)
+ *
+ * What it simulates (per data set; one GSL mt19937 stream seeded with SEED serves them all):
+ *   - the column: constant α = 1.6 (Smoker's closed form for the pot, tests/oracle_smoker.h,
+ *     independent of the stepping under test), total condenser, no holdup; the mean law
+ *     N(R) = 10·(1 − exp(−0.45 R)) stages (pot included), the law of tests/tool_coverage.c's
+ *     measured-r regime;
+ *   - the per-batch random effect: each production run k has its own stage count
+ *     N(R) + δ_k at every R it runs at, δ_k ~ N(0, τ²) drawn once per run (a column whose
+ *     efficiency differs from batch to batch: fouling, load, packing wetting);
+ *   - the logs (tests/synth_runlog.h's simulator, one run at a time, relabelled S1..S8):
+ *     8 runs, each a 50-row total-reflux start-up and then 50 rows at each of two set points,
+ *     run k at R = {1.5, 2.5, 4, 6, 10}[2k mod 5] and [(2k + 1) mod 5] (every set point in
+ *     three or four runs), one row a minute; the pot follows the Rayleigh balance from 300 mol
+ *     at xB = 0.35 (0.002 mol/s distillate); white analyser noise u(xD) = 0.0015,
+ *     u(xB) = 0.0025; R logged as its set point;
+ *   - calibrate: the whole chain (stagecal_calibrate_data: reading, windows, evidence, both
+ *     fits, the scatter function), form "saturating", holdup compensation off; the model it
+ *     would write (cal.model; the file round trip is tests/test_model.c's business);
+ *   - a new batch of the same column with a fresh δ ~ N(0, τ²): 10 kmol at xB0 = 0.5, boil-up
+ *     2.4 kmol/h, two problems: (A) constant R = 2.5 until the pot reaches xB = 0.3; (B)
+ *     constant distillate xD = 0.93 with R raised up to 10, until R reaches 10;
+ *     its true outcome is stagecal_batch_run with the true law plus that δ (the quantity
+ *     predict's band is about: band.batch_time_h, and cuts[0].x_mean — the percentiles of
+ *     the batch run at each draw of the law, src/batch_band.c); the mean-law outcome is the
+ *     same with δ = 0 (what the confidence band, without --run-scatter, is about);
+ *   - the bands: stagecal_batch_band_sample_scatter at level 0.95 with SAMPLES draws, seed
+ *     the replication's number, without the scatter (0), with the window scatter σ(R) (1:
+ *     predict --run-scatter up to 4 December 2026) and with the batch's process scatter only
+ *     (2: STAGECAL_BATCH_SCATTER_PROCESS, when the library has it).
+ * It prints, per problem, quantity and band, the coverage k/n of the new batch's true
+ * outcome with its Wilson 95 % interval (Wilson 1927, JASA 22, 209; from memory), the same
+ * for the mean-law outcome, and the mean band width; and the windows' mean stated se of the
+ * stage count and the model's mean σ(R) at R = 2.5, the mean s² (var_ratio). Data sets the
+ * calibration refuses or whose band fails are counted and left out.
+ * dump: "ds REP OK τ δ_new s2 σ(2.5) se_fit(2.5) nominal truth mean-law lo0 hi0 lo1 hi1 lo2 hi2"
+ * (problem A's batch time, hours).
+ * Exit status 0, or 1 on bad arguments or a set-up failure.
+ */
+#include <gsl/gsl_cdf.h>
+#include <gsl/gsl_errno.h>
+#include <gsl/gsl_randist.h>
+#include <gsl/gsl_rng.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+
+#include "stagecal/batch.h"
+#include "stagecal/calibrate.h"
+#include "stagecal/column.h"
+#include "synth_runlog.h"
+
+#define BC_ALPHA 1.6
+#define BC_A 10.0
+#define BC_B 0.45
+#define BC_RUNS 8
+#define BC_ROWS 50
+#define BC_NPROB 2 /* problems A, B */
+#define BC_NQTY 2  /* batch time, product x_mean */
+#define BC_NBAND 3 /* without, window scatter, process scatter */
+
+static double bc_law(double r)
+{
+    return isinf(r) ? BC_A : BC_A * (1 - exp(-BC_B * r));
+}
+
+static double bc_pot(void *ctx, double r, double xd, double n, double p)
+{
+    (void)ctx, (void)p;
+    return oracle_smoker_xb(BC_ALPHA, r, xd, n);
+}
+
+static double bc_run_law(void *ctx, double r)
+{
+    return bc_law(r) + *(const double *)ctx; /* this run's δ */
+}
+
+/* The true column of the new batch: the law plus its δ (held at 1 stage, as the band). */
+static int bc_true_stages(void *data, double r, double *stages, unsigned *outside,
+                          stagecal_error *err)
+{
+    (void)err;
+    *stages = fmax(bc_law(r) + *(const double *)data, 1.0);
+    *outside = 0;
+    return STAGECAL_OK;
+}
+
+/* The 8-run log as CSV (malloc'd) with per-run offsets delta[]. */
+static char *bc_log(gsl_rng *rng, const double *delta, size_t *len)
+{
+    static const double rs[5] = {1.5, 2.5, 4.0, 6.0, 10.0};
+    size_t cap = 256 + (size_t)BC_RUNS * 3 * BC_ROWS * 80, n = 0;
+    char *out = malloc(cap);
+    if (!out)
+        return NULL;
+    out[0] = '\0';
+    for (int k = 0; k < BC_RUNS; k++) {
+        double rset[3] = {INFINITY, rs[(2 * k) % 5], rs[(2 * k + 1) % 5]}, d = delta[k];
+        struct srl_spec sp = {bc_pot, &d,     bc_run_law, 1,     rset, 3,     BC_ROWS, 60.0,
+                              0.0,    0.0015, 0.0025,     300.0, 0.35, 0.002, NULL};
+        size_t l = 0;
+        char *csv = srl_csv(&sp, rng, &l);
+        if (!csv) {
+            free(out);
+            return NULL;
+        }
+        const char *p = csv;
+        if (k > 0) /* one header */
+            p = strchr(csv, '\n') + 1;
+        while (*p) {
+            const char *e = strchr(p, '\n');
+            size_t ll = e ? (size_t)(e - p) + 1 : strlen(p);
+            if (n + ll + 8 >= cap) {
+                free(csv);
+                free(out);
+                return NULL;
+            }
+            if (p[0] == 'S' && p[1] == '1' && p[2] == ',') { /* relabel the run */
+                n += (size_t)snprintf(out + n, cap - n, "S%d", k + 1);
+                p += 2, ll -= 2;
+            }
+            memcpy(out + n, p, ll);
+            n += ll;
+            p += ll;
+        }
+        out[n] = '\0';
+        free(csv);
+    }
+    *len = n;
+    return out;
+}
+
+static void bc_problem(int which, stagecal_batch_problem *pb)
+{
+    memset(pb, 0, sizeof *pb);
+    pb->w0_mol = 10000;
+    pb->xb0 = 0.5;
+    pb->v_mol_s = 2400.0 / 3600.0;
+    pb->n_cuts = 1;
+    snprintf(pb->cuts[0].name, sizeof pb->cuts[0].name, "product");
+    if (which == 0) {
+        pb->policy.kind = STAGECAL_BATCH_CONSTANT_REFLUX;
+        pb->policy.reflux = 2.5;
+        pb->cuts[0].kind = STAGECAL_BATCH_UNTIL_POT_X;
+        pb->cuts[0].value = 0.3;
+    } else {
+        pb->policy.kind = STAGECAL_BATCH_CONSTANT_DISTILLATE;
+        pb->policy.xd_set = 0.93;
+        pb->policy.reflux_max = 10;
+        pb->cuts[0].kind = STAGECAL_BATCH_UNTIL_REFLUX;
+        pb->cuts[0].value = 10;
+    }
+}
+
+static void wilson(long k, long n, double *lo, double *hi)
+{
+    double z = gsl_cdf_ugaussian_Pinv(0.975), p = (double)k / (double)n, z2n = z * z / (double)n;
+    double centre = (p + z2n / 2) / (1 + z2n);
+    double half = z / (1 + z2n) * sqrt(p * (1 - p) / (double)n + z2n / (4.0 * (double)n));
+    *lo = centre - half, *hi = centre + half;
+}
+
+struct acc {
+    long n, hit, hit_mean;
+    double width;
+};
+
+/* Quantity q of problem pr: 0 the batch time [h]; 1 the product's mean composition (A) or
+ * its amount [kmol] (B: its composition is the set point). */
+static double qty(const stagecal_batch_result *r, int pr, int q)
+{
+    return q == 0    ? r->t_end_s / 3600.0
+           : pr == 0 ? r->cuts[0].x_mean
+                     : r->cuts[0].amount_mol / 1000;
+}
+
+static void band_qty(const stagecal_batch_band *b, int pr, int q, double *lo, double *hi)
+{
+    const stagecal_batch_interval *iv = q == 0    ? &b->t_end_s
+                                        : pr == 0 ? &b->cuts[0].x_mean
+                                                  : &b->cuts[0].amount_mol;
+    double f = q == 0 ? 1 / 3600.0 : pr == 0 ? 1.0 : 1 / 1000.0;
+    *lo = iv->low * f, *hi = iv->high * f;
+}
+
+int main(int argc, char **argv)
+{
+    char *e1 = NULL, *e3 = NULL, *e4 = NULL;
+    int dump = 0, nprob = 1; /* problem A only unless "both" */
+    for (; argc > 4; argc--) {
+        if (strcmp(argv[argc - 1], "dump") == 0)
+            dump = 1;
+        else if (strcmp(argv[argc - 1], "both") == 0)
+            nprob = 2;
+        else
+            break;
+    }
+    long reps = argc >= 4 ? strtol(argv[1], &e1, 10) : 0;
+    unsigned long seed = argc >= 4 ? strtoul(argv[2], NULL, 10) : 0;
+    double tau = argc >= 4 ? strtod(argv[3], &e3) : NAN;
+    long samples = argc >= 5 ? strtol(argv[4], &e4, 10) : 200;
+    if (argc < 4 || argc > 5 || *e1 || *e3 || (e4 && *e4) || reps < 1 || !(tau >= 0) ||
+        samples < 2) {
+        fprintf(stderr,
+                "usage: tool_batch_coverage REPLICATIONS SEED TAU [SAMPLES] [both] [dump]\n");
+        return 1;
+    }
+    gsl_set_error_handler_off();
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    stagecal_column col;
+    memset(&col, 0, sizeof col);
+    col.system.vle = stagecal_vle_alloc_alpha(BC_ALPHA, NULL);
+    col.system.p_pa = 101325;
+    col.u.xd = 0.0015;
+    col.u.xb = 0.0025;
+    col.u.r = 0.02;
+    snprintf(col.id, sizeof col.id, "synthetic");
+    if (!rng || !col.system.vle) {
+        fprintf(stderr, "tool_batch_coverage: set-up failed\n");
+        return 1;
+    }
+    gsl_rng_set(rng, seed);
+    struct acc a[BC_NPROB][BC_NQTY][BC_NBAND];
+    memset(a, 0, sizeof a);
+    long refused = 0, nobatch = 0, noband = 0, nscatter = 0, ok_sets = 0;
+    double sum_se = 0, n_se = 0, sum_sig = 0, sum_s2 = 0, sum_dofs = 0;
+    int nband = BC_NBAND;
+    struct timespec t0, t1;
+    clock_gettime(CLOCK_MONOTONIC, &t0);
+    for (long rep = 0; rep < reps; rep++) {
+        double delta[BC_RUNS], dnew;
+        for (int k = 0; k < BC_RUNS; k++)
+            delta[k] = tau > 0 ? gsl_ran_gaussian(rng, tau) : 0.0;
+        dnew = tau > 0 ? gsl_ran_gaussian(rng, tau) : 0.0;
+        size_t len = 0;
+        char *csv = bc_log(rng, delta, &len);
+        stagecal_runlog *log = stagecal_runlog_alloc();
+        if (!csv || !log ||
+            stagecal_runlog_read_buffer(log, csv, len, "synthetic.csv", &col, NULL, NULL, NULL)) {
+            fprintf(stderr, "tool_batch_coverage: replication %ld: log failed\n", rep);
+            return 1;
+        }
+        free(csv);
+        stagecal_calibrate_params par = stagecal_calibrate_default_params();
+        par.form = "saturating";
+        par.evidence.holdup = STAGECAL_HOLDUP_COMP_NONE;
+        stagecal_calibration cal;
+        if (stagecal_calibrate_data(&col, NULL, log, &par, &cal, NULL) != STAGECAL_OK) {
+            refused++;
+            stagecal_runlog_free(log);
+            continue;
+        }
+        const stagecal_model *m = &cal.model;
+        nscatter += m->scatter.n > 0;
+        for (size_t i = 0; i < cal.evidence.n; i++)
+            if (cal.evidence.ev[i].stages_ok && isfinite(cal.evidence.ev[i].r) &&
+                fabs(cal.evidence.ev[i].r - 2.5) < 0.2)
+                sum_se += cal.evidence.ev[i].se_stages, n_se++;
+        double sig25 = m->scatter.n > 0 ? stagecal_scatter_sd(&m->scatter, 2.5) : m->sigma,
+               s2 = NAN;
+#ifdef STAGECAL_BATCH_SCATTER_PROCESS
+        s2 = m->scatter.var_ratio;
+#else
+        nband = 2;
+#endif
+        stagecal_model_point pt;
+        double sefit =
+            stagecal_model_eval(m, 2.5, 0, 0.95, &pt, NULL) == STAGECAL_OK ? pt.se_fit : NAN;
+        int set_ok = 1;
+        double dump_v[9] = {NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN, NAN};
+        for (int pr = 0; pr < nprob && set_ok; pr++) {
+            stagecal_batch_problem pb;
+            bc_problem(pr, &pb);
+            stagecal_batch_model_law law = {m, NULL, NAN};
+            stagecal_batch_column cm = {col.system.vle, stagecal_batch_model_stages, &law, NULL,
+                                        NULL};
+            stagecal_batch_column ct = {col.system.vle, bc_true_stages, &dnew, NULL, NULL};
+            double zero = 0;
+            stagecal_batch_column c0 = {col.system.vle, bc_true_stages, &zero, NULL, NULL};
+            stagecal_batch_result nom, tru, mean;
+            stagecal_batch_result_init(&nom);
+            stagecal_batch_result_init(&tru);
+            stagecal_batch_result_init(&mean);
+            if (stagecal_batch_run(&pb, &cm, NULL, &nom, NULL) != STAGECAL_OK ||
+                stagecal_batch_run(&pb, &ct, NULL, &tru, NULL) != STAGECAL_OK ||
+                stagecal_batch_run(&pb, &c0, NULL, &mean, NULL) != STAGECAL_OK) {
+                nobatch++;
+                set_ok = 0;
+            }
+            stagecal_batch_band band[BC_NBAND];
+            for (int b = 0; b < nband && set_ok; b++)
+                if (stagecal_batch_band_sample_scatter(&pb, col.system.vle, m, NAN, NULL, &nom,
+                                                       (size_t)samples, (unsigned long)rep + 1,
+                                                       0.95, b, &band[b], NULL) != STAGECAL_OK) {
+                    noband++;
+                    set_ok = 0;
+                }
+            for (int q = 0; q < BC_NQTY && set_ok; q++)
+                for (int b = 0; b < nband; b++) {
+                    double lo, hi, tv = qty(&tru, pr, q), mv = qty(&mean, pr, q);
+                    band_qty(&band[b], pr, q, &lo, &hi);
+                    struct acc *x = &a[pr][q][b];
+                    x->n++;
+                    x->hit += lo <= tv && tv <= hi;
+                    x->hit_mean += lo <= mv && mv <= hi;
+                    x->width += hi - lo;
+                }
+            if (set_ok && pr == 0) {
+                dump_v[0] = qty(&nom, 0, 0), dump_v[1] = qty(&tru, 0, 0),
+                dump_v[2] = qty(&mean, 0, 0);
+                for (int b = 0; b < 3; b++) {
+                    dump_v[3 + 2 * b] = b < nband ? band[b].t_end_s.low / 3600 : NAN;
+                    dump_v[4 + 2 * b] = b < nband ? band[b].t_end_s.high / 3600 : NAN;
+                }
+                sum_dofs += band[1].dof_scatter;
+            }
+            stagecal_batch_result_free(&nom);
+            stagecal_batch_result_free(&tru);
+            stagecal_batch_result_free(&mean);
+        }
+        if (set_ok) {
+            ok_sets++;
+            sum_sig += sig25;
+            sum_s2 += s2;
+        }
+        if (dump)
+            fprintf(stderr,
+                    "ds %ld %d %.4g %.5g %.4g %.5g %.5g %.6g %.6g %.6g %.6g %.6g %.6g %.6g %.6g "
+                    "%.6g\n",
+                    rep, set_ok, tau, dnew, s2, sig25, sefit, dump_v[0], dump_v[1], dump_v[2],
+                    dump_v[3], dump_v[4], dump_v[5], dump_v[6], dump_v[7], dump_v[8]);
+        stagecal_calibration_free(&cal);
+        stagecal_runlog_free(log);
+    }
+    clock_gettime(CLOCK_MONOTONIC, &t1);
+    static const char *pname[BC_NPROB] = {"A: R = 2.5 to pot xB 0.3",
+                                          "B: xD = 0.93, R up to 10, to R = 10"};
+    static const char *qname[BC_NPROB][BC_NQTY] = {{"batch time [h]", "product x_mean"},
+                                                   {"batch time [h]", "product [kmol]"}};
+    static const char *bname[BC_NBAND] = {"without scatter", "window scatter σ(R)",
+                                          "process scatter"};
+    printf("batch-level coverage of predict's 95 %% band: %ld data sets, seed %lu, tau %g "
+           "stages, %ld draws per band (%.1f s)\n",
+           reps, seed, tau, samples,
+           (double)(t1.tv_sec - t0.tv_sec) + 1e-9 * (double)(t1.tv_nsec - t0.tv_nsec));
+    printf("  calibration refused %ld, batch failed %ld, band failed %ld; %ld of %ld models "
+           "with a scatter function\n",
+           refused, nobatch, noband, nscatter, reps - refused);
+    if (ok_sets > 0)
+        printf("  windows at R = 2.5: mean stated se %.4f stages; model: mean sigma(2.5) %.4f, "
+               "mean var_ratio s2 %.3f, mean scatter dof along A %.1f\n",
+               sum_se / n_se, sum_sig / (double)ok_sets, sum_s2 / (double)ok_sets,
+               sum_dofs / (double)ok_sets);
+    for (int pr = 0; pr < BC_NPROB; pr++)
+        for (int q = 0; q < BC_NQTY; q++)
+            for (int b = 0; b < nband; b++) {
+                const struct acc *x = &a[pr][q][b];
+                double lo, hi, lm, hm;
+                if (x->n == 0)
+                    continue;
+                wilson(x->hit, x->n, &lo, &hi);
+                wilson(x->hit_mean, x->n, &lm, &hm);
+                printf("  %-36s %-15s %-20s new batch %.3f [%.3f, %.3f]  mean law %.3f "
+                       "[%.3f, %.3f]  width %.4g (n %ld)\n",
+                       pname[pr], qname[pr][q], bname[b], (double)x->hit / (double)x->n, lo, hi,
+                       (double)x->hit_mean / (double)x->n, lm, hm, x->width / (double)x->n, x->n);
+            }
+    stagecal_vle_free(col.system.vle);
+    gsl_rng_free(rng);
+    return 0;
+}
