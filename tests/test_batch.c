@@ -858,6 +858,82 @@ static void batch_band_scatter_function(void **state)
         stagecal_model_free(ms[k]);
 }
 
+/* The band with the batch's run-to-run part only (STAGECAL_BATCH_SCATTER_PROCESS): each draw
+ * shifts the stage count by σ(R)·ε·√max(0, w_s² − 1/s²) (include/stagecal/scatter.h, closed
+ * form derived there from σ(R)² = τ(R)² + σ(R)²/s²). The draws consume the same random numbers
+ * in every mode, so: (a) with s² = 1e-12 (the windows' stated errors dwarf their residuals) the
+ * factor is 0 in every draw and the band is the mean law's exactly; (b) with s² = 1e12 the
+ * factor is w_s·(1 − O(1e-12)) and the band is the whole-scatter band to 1e-9 relative (the
+ * shift's relative change, 1e-12/w_s² with w_s² ≥ 1e-2 here, carried through a monotone
+ * batch); (c) at s² = 2 it lies strictly between them; (d) without var_ratio (a file
+ * written before it) the whole scatter is drawn and the band says so. */
+static void batch_band_process_scatter(void **state)
+{
+    struct fx *f = *state;
+    stagecal_model m;
+    stagecal_model_init(&m);
+    assert_int_equal(stagecal_form_parse("saturating", &m.form, NULL), STAGECAL_OK);
+    m.theta[0] = 9;
+    m.theta[1] = 0.5;
+    m.cov[0] = 0.04;
+    m.cov[1] = m.cov[2] = 0.001;
+    m.cov[3] = 0.0009;
+    m.sigma = 0.2;
+    m.dof = 20;
+    m.r_min = 1.5;
+    m.r_max = 15;
+    m.scatter.n = 2;
+    m.scatter.c[0] = -1.6;
+    m.scatter.c[1] = 0.8;
+    m.scatter.cov[0] = 0.02;
+    m.scatter.cov[1] = m.scatter.cov[2] = 0.01;
+    m.scatter.cov[3] = 0.04;
+    m.scatter.lv_lo = 0.6;
+    m.scatter.lv_hi = 1;
+    stagecal_batch_problem pb;
+    stagecal_batch_result nom;
+    stagecal_batch_band none, whole, proc;
+    stagecal_error err;
+    base_problem(&pb);
+    pb.policy.reflux = 3;
+    pb.n_cuts = 1;
+    pb.cuts[0].kind = STAGECAL_BATCH_UNTIL_POT_X;
+    pb.cuts[0].value = 0.2;
+    stagecal_batch_model_law law = {&m, NULL, NAN};
+    stagecal_batch_column col = {f->vle, stagecal_batch_model_stages, &law, NULL, NULL};
+    stagecal_batch_result_init(&nom);
+    assert_int_equal(stagecal_batch_run(&pb, &col, NULL, &nom, &err), STAGECAL_OK);
+#define BAND(mode, out)                                                                            \
+    assert_int_equal(stagecal_batch_band_sample_scatter(&pb, f->vle, &m, NAN, NULL, &nom, 120, 77, \
+                                                        0.95, mode, out, &err),                    \
+                     STAGECAL_OK)
+    BAND(STAGECAL_BATCH_SCATTER_NONE, &none);
+    BAND(STAGECAL_BATCH_SCATTER_WINDOW, &whole);
+    /* (d) no var_ratio: the whole scatter, said */
+    BAND(STAGECAL_BATCH_SCATTER_PROCESS, &proc);
+    assert_int_equal(proc.run_scatter, STAGECAL_BATCH_SCATTER_WINDOW);
+    bands_equal(&proc, &whole, 0, "no var_ratio: the whole scatter");
+    /* (a) */
+    m.scatter.var_ratio = 1e-12;
+    BAND(STAGECAL_BATCH_SCATTER_PROCESS, &proc);
+    assert_int_equal(proc.run_scatter, STAGECAL_BATCH_SCATTER_PROCESS);
+    bands_equal(&proc, &none, 0, "s2 = 1e-12: the mean law's band");
+    assert_rel(proc.dof_scatter, whole.dof_scatter, 0, "the scatter's dof");
+    /* (b) */
+    m.scatter.var_ratio = 1e12;
+    BAND(STAGECAL_BATCH_SCATTER_PROCESS, &proc);
+    bands_equal(&proc, &whole, 1e-9, "s2 = 1e12: the whole scatter");
+    /* (c) */
+    m.scatter.var_ratio = 2;
+    BAND(STAGECAL_BATCH_SCATTER_PROCESS, &proc);
+    double wn = none.t_end_s.high - none.t_end_s.low, ww = whole.t_end_s.high - whole.t_end_s.low,
+           wp = proc.t_end_s.high - proc.t_end_s.low;
+    assert_true(wn < wp && wp < ww);
+#undef BAND
+    stagecal_batch_result_free(&nom);
+    stagecal_model_free(&m);
+}
+
 static void batch_plan_parses(void **state)
 {
     (void)state;
@@ -915,6 +991,7 @@ int main(void)
         cmocka_unit_test(batch_check_rejects),
         cmocka_unit_test(batch_band_contains_generating_law),
         cmocka_unit_test(batch_band_scatter_function),
+        cmocka_unit_test(batch_band_process_scatter),
         cmocka_unit_test(batch_plan_parses),
     };
     return cmocka_run_group_tests(tests, setup, teardown);

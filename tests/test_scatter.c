@@ -70,6 +70,9 @@ static void scatter_fit_recovers_an_exact_variance_function(void **state)
     assert_int_equal(s.n, 3);
     double ln_s = log(k) + 0.5 * log(12.0 / 11.0); /* Σz² = 12k², on 12 − 1 dof */
     assert_abs(s.c[0], a + ln_s, 1e-9, "c0 = a + ln s");
+    /* s² itself: Σ z² / (m − p) = 12k²/11 (the closed form above); tolerance 1e-9 relative,
+     * the residuals divided by the fitted shape, whose coefficients hold to 1e-9 */
+    assert_rel(s.var_ratio, 12 * k * k / 11, 1e-9, "var_ratio = s^2");
     assert_abs(s.c[1], b, 1e-9, "c1");
     assert_abs(s.c[2], c, 1e-9, "c2");
     assert_rel(s.lv_lo, 1.2 / 2.2, 1e-15, "range low");
@@ -88,6 +91,10 @@ static void scatter_fit_recovers_an_exact_variance_function(void **state)
         assert_abs(s.cov[i], 0, 1e-12, "covariance of an exact polynomial");
     assert_rel(stagecal_scatter_dof(&s, 3.0), 11, 1e-9, "dof of sigma^2");
     assert_int_equal(stagecal_scatter_check(&s, &err), STAGECAL_OK);
+    s.var_ratio = -1; /* 0 is "not known"; below it is damage */
+    assert_int_equal(stagecal_scatter_check(&s, &err), STAGECAL_EINVAL);
+    assert_non_null(strstr(err.text, "var_ratio -1"));
+    s.var_ratio = 0;
 }
 
 /* Degree 0 with 3 windows: one σ for every R, the residuals' root mean square on m − p
@@ -119,6 +126,12 @@ static void scatter_fit_degree_and_closed_forms(void **state)
         rr += (ev[i].stages - 5) * (ev[i].stages - 5);
     assert_abs(s.c[0], 0.5 * log(rr / 2.0), 1e-12, "c0 of a constant: the residuals' rms");
     assert_abs(s.cov[0], ss / 6.0 + 1.0 / 4.0, 1e-12, "Var(c0) of a constant");
+    /* s² of a constant shape: Σ r²/g² / (m − p), g = exp(mean ln se) the geometric mean of
+     * the windows' se (closed form derived here); 1e-12 relative, a sum of three terms */
+    double zz = 0;
+    for (int i = 0; i < 3; i++)
+        zz += (ev[i].stages - 5) * (ev[i].stages - 5) / exp(2 * mean);
+    assert_rel(s.var_ratio, zz / 2.0, 1e-12, "var_ratio of a constant shape");
 
     windows(ev, 5, -3, 1.0, 0, 1);
     assert_int_equal(stagecal_scatter_fit(ev, 5, &form, theta, &s, &err), STAGECAL_OK);
@@ -151,6 +164,32 @@ static void scatter_fit_degree_and_closed_forms(void **state)
     ev[2].stages_ok = ev[3].stages_ok = 0; /* 2 windows for 2 parameters: none */
     assert_int_equal(stagecal_scatter_fit(ev, 12, &line, theta, &s, &err), STAGECAL_OK);
     assert_int_equal(s.n, 0);
+}
+
+/* The run-to-run part of σ(R) (stagecal_scatter_process_factor): √max(0, w² − 1/s²), closed
+ * forms derived here from σ(R)² = τ(R)² + σ(R)²/s² (include/stagecal/scatter.h; the floor of a
+ * variance component's generalised pivotal quantity, Weerahandi 1993, JASA 88, 899–905 — from
+ * memory). Tolerance 1e-15 relative: one subtraction and a square root of exact binary
+ * numbers. Not known (no function, var_ratio 0, a bad w²): NAN. */
+static void scatter_process_factor_closed_forms(void **state)
+{
+    (void)state;
+    stagecal_scatter s = {1, {-3, 0, 0}, 0.5, 1.0, {0.01, 0, 0, 0, 0, 0, 0, 0, 0}, 4.0};
+    assert_rel(stagecal_scatter_process_factor(&s, 1.0), sqrt(0.75), 1e-15, "s2 = 4, w2 = 1");
+    assert_rel(stagecal_scatter_process_factor(&s, 2.25), sqrt(2.0), 1e-15, "s2 = 4, w2 = 9/4");
+    s.var_ratio = 0.5; /* the windows' residuals below their stated errors: no process part */
+    assert_true(stagecal_scatter_process_factor(&s, 1.0) == 0.0);
+    assert_rel(stagecal_scatter_process_factor(&s, 3.0), 1.0, 1e-15, "s2 = 1/2, w2 = 3");
+    s.var_ratio = 1.0;
+    assert_true(stagecal_scatter_process_factor(&s, 1.0) == 0.0);
+    s.var_ratio = 0; /* not known */
+    assert_true(isnan(stagecal_scatter_process_factor(&s, 1.0)));
+    s.var_ratio = 4;
+    assert_true(isnan(stagecal_scatter_process_factor(&s, 0.0)));
+    assert_true(isnan(stagecal_scatter_process_factor(&s, INFINITY)));
+    assert_true(isnan(stagecal_scatter_process_factor(NULL, 1.0)));
+    s.n = 0;
+    assert_true(isnan(stagecal_scatter_process_factor(&s, 1.0)));
 }
 
 /* The refusals of stagecal_scatter_check, each with its message. */
@@ -292,7 +331,7 @@ static void small_model(stagecal_model *m)
                                     1.2 / 2.2,
                                     1.0,
                                     {0.05, -0.01, 0.002, -0.01, 0.03, -0.004, 0.002, -0.004, 0.01},
-                                    0};
+                                    1.7};
 }
 
 /* Evaluation with a scatter function: se_pred² − se_fit² = σ(R)², the prediction dof the
@@ -369,6 +408,7 @@ int main(void)
         cmocka_unit_test(scatter_fit_recovers_an_exact_variance_function),
         cmocka_unit_test(scatter_fit_degree_and_closed_forms),
         cmocka_unit_test(scatter_window_se_detrends_a_curving_pot),
+        cmocka_unit_test(scatter_process_factor_closed_forms),
         cmocka_unit_test(scatter_check_refuses),
         cmocka_unit_test(model_eval_uses_the_scatter_function),
     };
