@@ -47,6 +47,8 @@ static const struct cli_usage usage = {
     "quasi-steady (the default otherwise); docs/methods.md, 'Dynamic batch prediction'.\n"};
 
 static const char *const dynamics_choices[] = {"holdup", "quasi-steady", NULL};
+/* --scatter-part: what of the run-to-run scatter --run-scatter draws */
+static const char *const scatter_part_choices[] = {"process", "window", NULL};
 
 /* Parses NAME:KIND=VALUE (NAME: optional) into spec; time in h → s. */
 static int parse_cut(const char *text, stagecal_batch_cut_spec *spec)
@@ -272,6 +274,8 @@ struct request {
     double reflux, xdset, rmax, f_load, latent, every, level;
     long samples, seed;
     int run_scatter;
+    int scatter_part;             /* index into scatter_part_choices (0 process, 1 window); −1
+                                     not given: process */
     int dynamics;                 /* DYN_DEFAULT, DYN_HOLDUP or DYN_QUASI */
     double startup_xd, startup_h; /* the dynamic start-up's end, NAN when not given */
     stagecal_batch_cut_spec cuts[STAGECAL_BATCH_MAXCUTS];
@@ -536,10 +540,21 @@ static int run_batch(const struct request *q, cli_system *sys, struct prediction
                  "column may separate better) and without a band",
                  q->model, p->m.theta[0], 100 * p->m.level);
     if (rc == STAGECAL_OK && q->samples >= 2 && !p->m.one_sided) {
-        rc = stagecal_batch_band_sample_scatter(&p->pb, sys->vle, &p->m, q->f_load, &p->par,
-                                                &p->res, (size_t)q->samples, (unsigned long)q->seed,
-                                                q->level, q->run_scatter, &p->band, &err);
+        rc = stagecal_batch_band_sample_scatter(
+            &p->pb, sys->vle, &p->m, q->f_load, &p->par, &p->res, (size_t)q->samples,
+            (unsigned long)q->seed, q->level,
+            !q->run_scatter        ? STAGECAL_BATCH_SCATTER_NONE
+            : q->scatter_part == 1 ? STAGECAL_BATCH_SCATTER_WINDOW
+                                   : STAGECAL_BATCH_SCATTER_PROCESS,
+            &p->band, &err);
         p->have_band = rc == STAGECAL_OK;
+        if (rc == STAGECAL_OK && q->run_scatter && q->scatter_part != 1 &&
+            p->band.run_scatter != STAGECAL_BATCH_SCATTER_PROCESS)
+            cli_warn("%s: the model file does not say how much of its scatter is the windows' "
+                     "measurement error (no correlation.scatter.var_ratio: a file written "
+                     "before 4 December 2026, or one sigma for every R): the band draws the "
+                     "whole scatter, conservative for one batch; calibrate again to separate it",
+                     q->model);
         if (rc == STAGECAL_ENOCONV) { /* the model file's covariance, not the program */
             cli_error("%s: %s; '--samples 0' runs the batch without the band", q->model, err.text);
             return CLI_EXIT_DATA;
@@ -611,6 +626,7 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
     q.charge = q.xb0 = q.boilup = q.reflux = q.xdset = q.rmax = q.f_load = q.latent = NAN;
     q.startup_xd = q.startup_h = NAN;
     q.dynamics = DYN_DEFAULT;
+    q.scatter_part = -1;
     q.every = 0.1;
     q.level = 0.95;
     q.samples = 200;
@@ -667,10 +683,15 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
         OPT_SEED(&q.seed),
         OPT_LEVEL(&q.level),
         OPT_FLAG(0, "run-scatter", &q.run_scatter,
-                 "the band also carries the run-to-run scatter of the stage count (the\n"
-                 "model's sigma, by R where the file has a scatter function): a prediction\n"
-                 "band for one batch, not a confidence band on the mean law; conservative,\n"
-                 "as sigma holds the windows' measurement error too"),
+                 "the band also carries the run-to-run scatter of the batch's stage\n"
+                 "count: a prediction band for one batch, not a confidence band on the\n"
+                 "mean law (what of the scatter: --scatter-part)"),
+        OPT_CHOICE("scatter-part", &q.scatter_part, "PART",
+                   "with --run-scatter: process (default; the model's sigma(R)\n"
+                   "less the windows' stated measurement error, the column's own\n"
+                   "batch-to-batch variation) or window (all of sigma(R), as one\n"
+                   "window's count strays: conservative for a batch)",
+                   scatter_part_choices, "a part of the scatter"),
         OPT_END_COMMON(ctx),
     };
     int first, rc;
@@ -679,6 +700,9 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
     if (first < argc)
         return cli_usage_error("unexpected argument '%s' (predict takes options only)",
                                argv[first]);
+    if (q.scatter_part >= 0 && !q.run_scatter)
+        return cli_usage_error("option '--scatter-part' needs '--run-scatter' (without it the "
+                               "band carries no run-to-run scatter)");
     if ((q.charge_s && (rc = parse_amount("charge", q.charge_s, STAGECAL_QTY_AMOUNT,
                                           STAGECAL_QTY_LABEL, "kmol", &q.charge, &q.charge_u))) ||
         (q.xb0_s && (rc = parse_amount("xb0", q.xb0_s, STAGECAL_QTY_FRACTION, STAGECAL_QTY_LABEL,

@@ -30,11 +30,21 @@ json_t *predict_band_json(const stagecal_batch_band *band, const struct dyn_view
         (json_int_t)band->n_samples, "ok", (json_int_t)band->n_ok, "failed",
         (json_int_t)band->n_failed, "batch_time_h", interval_json(&band->t_end_s, H(1.0)),
         "energy_gj", interval_json(&band->energy_j, 1 / STAGECAL_UNIT_GJ), "covers",
-        band->run_scatter ? "parameter uncertainty (t draws) and the run-to-run scatter of one "
-                            "batch (prediction band, conservative: the scatter holds the "
-                            "windows' measurement error too)"
-                          : "parameter uncertainty of the mean law, t draws (not the run-to-run "
-                            "scatter: --run-scatter)");
+        band->run_scatter == STAGECAL_BATCH_SCATTER_PROCESS
+            ? "parameter uncertainty (t draws) and the run-to-run variation of one batch's "
+              "stage count (prediction band: the scatter function sigma(R) less the windows' "
+              "stated measurement error, floored at 0 in every draw)"
+        : band->run_scatter
+            ? "parameter uncertainty (t draws) and the whole scatter of one window's stage "
+              "count, sigma(R) (prediction band, conservative for one batch: sigma(R) holds the "
+              "windows' measurement error too)"
+            : "parameter uncertainty of the mean law, t draws (not the run-to-run "
+              "scatter: --run-scatter)");
+    if (band->run_scatter) /* which part of the scatter was drawn */
+        json_object_set_new(o, "scatter_part",
+                            json_string(band->run_scatter == STAGECAL_BATCH_SCATTER_PROCESS
+                                            ? "process"
+                                            : "window"));
     if (band->run_scatter) /* the dof of the run-to-run scatter's t draws */
         json_object_set_new(o, "scatter_dof", cli_json_real(band->dof_scatter));
     if (dv) /* the dynamic model's draws also draw the holdup */
@@ -54,8 +64,10 @@ void predict_band_print_time(const stagecal_batch_band *band, const struct dyn_v
 {
     printf(" [%.3f, %.3f] (%.0f %% %s band, t at %g dof, %zu draws)", H(band->t_end_s.low),
            H(band->t_end_s.high), 100 * band->level,
-           band->run_scatter ? "prediction (run-to-run scatter included)"
-                             : "confidence (mean law; without run-to-run scatter)",
+           band->run_scatter == STAGECAL_BATCH_SCATTER_PROCESS
+               ? "prediction (the batch's run-to-run variation included)"
+           : band->run_scatter ? "prediction (a window's whole scatter included: conservative)"
+                               : "confidence (mean law; without run-to-run scatter)",
            band->dof, band->n_ok);
     if (band->run_scatter && band->dof_scatter != band->dof)
         printf(" (the run-to-run scatter sigma(R) at %.3g dof)", band->dof_scatter);
