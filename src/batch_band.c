@@ -19,9 +19,10 @@
  * batch (a batch runs one column: its offset, in units of σ(R), is the same at every R), and
  * w_s = √(ν_s/χ²) at the smallest dof ν_s of σ(R) along the batch's reflux ratios, its χ²
  * at the same quantile as θ's (ν_s = ν: the same draw, the one-σ path exactly). With
- * STAGECAL_BATCH_SCATTER_PROCESS the shift is σ(R)·ε·√max(0, w_s² − 1/s²), s² the scatter
+ * STAGECAL_BATCH_SCATTER_PROCESS the shift is σ(R)·ε·√max(0, w_s² − 1/v), v the scatter
  * function's var_ratio: the batch's own run-to-run part, the windows' measurement error
- * (σ(R)²/s² at the estimate) taken out of each draw of σ(R)² (stagecal_scatter_process_factor).
+ * (σ(R)²/v at the estimate: their mean stated variance at R) taken out of each draw of σ(R)²
+ * (stagecal_scatter_process_factor).
  */
 #include "stagecal/batch.h"
 #include "stagecal/regress.h"

@@ -193,8 +193,8 @@ static json_t *build_doc(const stagecal_model *m)
         bad |= json_object_set_new(units, "scatter",
                                    json_string("sigma of one new window at R: exp of the "
                                                "polynomial in R/(R+1), clamped to the range; "
-                                               "var_ratio: the windows' residual variance over "
-                                               "their stated one"));
+                                               "var_ratio: sigma(R)^2 over the windows' mean "
+                                               "stated variance at R"));
     }
     bad |= json_object_set_new(doc, "evidence",
                                json_pack("{s:I, s:I, s:I}", "windows", (json_int_t)m->n_windows,

@@ -274,10 +274,11 @@ int stagecal_scatter_fit_se(const stagecal_evidence *ev, size_t n, const double 
     /* the scale from the residuals about that shape: s² = Σ r_i²/se(λ_i)² / (m − p), so
      * σ(R)² = s²·se(λ)² estimates the variance of a new window's count at λ whatever the
      * spread of the windows' own se about the shape */
-    double zz = 0;
+    double zz = 0, kk = 0;
     for (size_t i = 0; i < m; i++) {
         double u = lv[i] - mid, sh = b[0] + (nc > 1 ? b[1] * u : 0) + (nc > 2 ? b[2] * u * u : 0);
         zz += res[i] * res[i] * exp(-2 * sh);
+        kk += exp(2 * (lse[i] - sh)) / (double)m; /* the stated variance over the shape's */
     }
     free(lv);
     if (!(zz > 0))
@@ -288,7 +289,9 @@ int stagecal_scatter_fit_se(const stagecal_evidence *ev, size_t n, const double 
     out->c[1] = b1 - 2 * b2 * mid;
     out->c[2] = b2;
     out->n = nc;
-    out->var_ratio = zz / (double)(m - form->p);
+    /* s² over the windows' mean stated variance relative to the shape, k = mean se_i²/se(λ_i)²
+     * (the shape is a fit of ln se: its square is below the windows' mean se², by k) */
+    out->var_ratio = kk > 0 ? zz / (double)(m - form->p) / kk : 0.0;
     /* Cov(c) = T Cov(b) Tᵀ with T the map above (gsl's covariance is (XᵀX)⁻¹ times the
      * residual variance RSS/(m − nc), m > nc here); Var(ln s) of a variance on m − p dof is
      * 1/(2(m − p)) (delta method on a scaled χ², common practice, no source) */

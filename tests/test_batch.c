@@ -859,13 +859,13 @@ static void batch_band_scatter_function(void **state)
 }
 
 /* The band with the batch's run-to-run part only (STAGECAL_BATCH_SCATTER_PROCESS): each draw
- * shifts the stage count by σ(R)·ε·√max(0, w_s² − 1/s²) (include/stagecal/scatter.h, closed
- * form derived there from σ(R)² = τ(R)² + σ(R)²/s²). The draws consume the same random numbers
- * in every mode, so: (a) with s² = 1e-12 (the windows' stated errors dwarf their residuals) the
- * factor is 0 in every draw and the band is the mean law's exactly; (b) with s² = 1e12 the
- * factor is w_s·(1 − O(1e-12)) and the band is the whole-scatter band to 1e-9 relative (the
- * shift's relative change, 1e-12/w_s² with w_s² ≥ 1e-2 here, carried through a monotone
- * batch); (c) at s² = 2 it lies strictly between them; (d) without var_ratio (a file
+ * shifts the stage count by σ(R)·ε·√max(0, w_s² − 1/v), v = var_ratio (include/stagecal/scatter.h,
+ * closed form derived there from σ(R)² = τ(R)² + σ(R)²/v). The draws consume the same random
+ * numbers in every mode, so: (a) with v = 1e-12 (the windows' stated errors dwarf their
+ * residuals) the factor is 0 in every draw and the band is the mean law's exactly; (b) with
+ * v = 1e12 the factor is w_s·(1 − O(1e-12)) and the band is the whole-scatter band to 1e-9
+ * relative (the shift's relative change, 1e-12/w_s² with w_s² ≥ 1e-2 here, carried through a
+ * monotone batch); (c) at v = 2 it lies strictly between them; (d) without var_ratio (a file
  * written before it) the whole scatter is drawn and the band says so. */
 static void batch_band_process_scatter(void **state)
 {
@@ -917,12 +917,12 @@ static void batch_band_process_scatter(void **state)
     m.scatter.var_ratio = 1e-12;
     BAND(STAGECAL_BATCH_SCATTER_PROCESS, &proc);
     assert_int_equal(proc.run_scatter, STAGECAL_BATCH_SCATTER_PROCESS);
-    bands_equal(&proc, &none, 0, "s2 = 1e-12: the mean law's band");
+    bands_equal(&proc, &none, 0, "v = 1e-12: the mean law's band");
     assert_rel(proc.dof_scatter, whole.dof_scatter, 0, "the scatter's dof");
     /* (b) */
     m.scatter.var_ratio = 1e12;
     BAND(STAGECAL_BATCH_SCATTER_PROCESS, &proc);
-    bands_equal(&proc, &whole, 1e-9, "s2 = 1e12: the whole scatter");
+    bands_equal(&proc, &whole, 1e-9, "v = 1e12: the whole scatter");
     /* (c) */
     m.scatter.var_ratio = 2;
     BAND(STAGECAL_BATCH_SCATTER_PROCESS, &proc);

@@ -70,8 +70,9 @@ static void scatter_fit_recovers_an_exact_variance_function(void **state)
     assert_int_equal(s.n, 3);
     double ln_s = log(k) + 0.5 * log(12.0 / 11.0); /* Σz² = 12k², on 12 − 1 dof */
     assert_abs(s.c[0], a + ln_s, 1e-9, "c0 = a + ln s");
-    /* s² itself: Σ z² / (m − p) = 12k²/11 (the closed form above); tolerance 1e-9 relative,
-     * the residuals divided by the fitted shape, whose coefficients hold to 1e-9 */
+    /* var_ratio: Σ z² / (m − p) = 12k²/11 (the closed form above) over the windows' mean
+     * stated variance relative to the shape, 1 here (every se on the shape); tolerance 1e-9
+     * relative, the residuals divided by the fitted shape, whose coefficients hold to 1e-9 */
     assert_rel(s.var_ratio, 12 * k * k / 11, 1e-9, "var_ratio = s^2");
     assert_abs(s.c[1], b, 1e-9, "c1");
     assert_abs(s.c[2], c, 1e-9, "c2");
@@ -126,12 +127,18 @@ static void scatter_fit_degree_and_closed_forms(void **state)
         rr += (ev[i].stages - 5) * (ev[i].stages - 5);
     assert_abs(s.c[0], 0.5 * log(rr / 2.0), 1e-12, "c0 of a constant: the residuals' rms");
     assert_abs(s.cov[0], ss / 6.0 + 1.0 / 4.0, 1e-12, "Var(c0) of a constant");
-    /* s² of a constant shape: Σ r²/g² / (m − p), g = exp(mean ln se) the geometric mean of
-     * the windows' se (closed form derived here); 1e-12 relative, a sum of three terms */
-    double zz = 0;
-    for (int i = 0; i < 3; i++)
+    /* var_ratio of a constant shape: s² = Σ r²/g² / (m − p) over k = Σ se²/g² / m, g =
+     * exp(mean ln se) the geometric mean of the windows' se — σ² over the windows' mean stated
+     * variance, Σ r²/(m − p) over Σ se²/m (closed form derived here); 1e-12 relative, sums of
+     * three terms */
+    double zz = 0, kk = 0;
+    for (int i = 0; i < 3; i++) {
         zz += (ev[i].stages - 5) * (ev[i].stages - 5) / exp(2 * mean);
-    assert_rel(s.var_ratio, zz / 2.0, 1e-12, "var_ratio of a constant shape");
+        kk += ev[i].se_stages * ev[i].se_stages / exp(2 * mean) / 3;
+    }
+    assert_rel(s.var_ratio, zz / 2.0 / kk, 1e-12, "var_ratio of a constant shape");
+    assert_rel(s.var_ratio, rr / 2.0 / (kk * exp(2 * mean)), 1e-12,
+               "var_ratio: the residual variance over the mean stated variance");
 
     windows(ev, 5, -3, 1.0, 0, 1);
     assert_int_equal(stagecal_scatter_fit(ev, 5, &form, theta, &s, &err), STAGECAL_OK);
@@ -166,8 +173,9 @@ static void scatter_fit_degree_and_closed_forms(void **state)
     assert_int_equal(s.n, 0);
 }
 
-/* The run-to-run part of σ(R) (stagecal_scatter_process_factor): √max(0, w² − 1/s²), closed
- * forms derived here from σ(R)² = τ(R)² + σ(R)²/s² (include/stagecal/scatter.h; the floor of a
+/* The run-to-run part of σ(R) (stagecal_scatter_process_factor): √max(0, w² − 1/v), v =
+ * var_ratio, closed forms derived here from σ(R)² = τ(R)² + σ(R)²/v (include/stagecal/scatter.h;
+ * the floor of a
  * variance component's generalised pivotal quantity, Weerahandi 1993, JASA 88, 899–905 — from
  * memory). Tolerance 1e-15 relative: one subtraction and a square root of exact binary
  * numbers. Not known (no function, var_ratio 0, a bad w²): NAN. */

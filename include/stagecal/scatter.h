@@ -21,9 +21,10 @@
  * the smooth rather than by each window's own se, s absorbs the spread of single windows'
  * se about the shape (a new window's is unknown), and one window with a wild se moves the
  * shape only through its logarithm. Degree 0 is one σ for every R: the residuals' root
- * mean square on m − p dof. s² itself is kept (var_ratio): what of σ(R)² the windows' stated
- * errors do not account for is the column's own run-to-run variation, the part a batch's
- * stage count carries (stagecal_scatter_process_factor; docs/calibration.md, "What
+ * mean square on m − p dof. σ(R)² over the windows' mean stated variance is kept (var_ratio):
+ * what of σ(R)² their stated errors do not account for is the column's own run-to-run variation,
+ * the part a batch's stage count carries (stagecal_scatter_process_factor; docs/calibration.md,
+ * "What
  * --run-scatter overstates").
  */
 #ifndef STAGECAL_SCATTER_H
@@ -50,11 +51,12 @@ typedef struct {
     double cov[STAGECAL_SCATTER_MAXC * STAGECAL_SCATTER_MAXC]; /* covariance of c (n×n,
                                          row-major, stride n): the polynomial's least-squares
                                          covariance plus Var(ln s) = 1/(2(m − p)) on c[0] */
-    double var_ratio; /* s² = Σ r_i²/se(λ_i)² / (m − p): the windows' residual variance over
-                         the variance their stated errors give (through the shape). 1: the
-                         stated errors account for all of the scatter; above 1: the rest is
-                         the column's own run-to-run variation. 0: not known (a file written
-                         before it); see stagecal_scatter_process_factor */
+    double var_ratio; /* s²/k, s² = Σ r_i²/se(λ_i)² / (m − p) and k = Σ se_i²/se(λ_i)² / m:
+                         σ(R)² over the windows' mean stated variance at R (k·se(λ)², the
+                         shape being a fit of ln se, below their mean se² by k). 1: the stated
+                         errors account for all of the scatter; above 1: the rest is the
+                         column's own run-to-run variation. 0: not known (a file written before
+                         it); see stagecal_scatter_process_factor */
 } stagecal_scatter;
 
 /* The scatter function of the n windows of evidence about the curve form(θ): the windows
@@ -103,19 +105,19 @@ double stagecal_scatter_dof(const stagecal_scatter *s, double r);
 
 /* The run-to-run (process) part of the scatter, for one draw of σ's scale: σ(R)² holds the
  * column's own batch-to-batch variation τ(R)² and the windows' measurement error, the latter
- * σ(R)²/s² (s² = var_ratio: the stated errors through the shape), so
+ * their mean stated variance at R, σ(R)²/v (v = var_ratio), so
  *
- *     τ(R) = σ(R)·√max(0, 1 − 1/s²)  at the estimate, and, for a draw of σ(R)² scaled by
- *     w² = ν/χ²_ν (the band's t draws), τ(R)_draw = σ(R)·√max(0, w² − 1/s²),
+ *     τ(R) = σ(R)·√max(0, 1 − 1/v)  at the estimate, and, for a draw of σ(R)² scaled by
+ *     w² = ν/χ²_ν (the band's t draws), τ(R)_draw = σ(R)·√max(0, w² − 1/v),
  *
- * the measurement part held at its stated size. Returns √max(0, w2 − 1/s²) (τ of the draw in
+ * the measurement part held at its stated size. Returns √max(0, w2 − 1/v) (τ of the draw in
  * units of σ(R)); NAN when s is NULL, has no function (n = 0) or no var_ratio (≤ 0 or not
  * finite), or w2 is not positive and finite. The floor at 0 in every draw makes the draws a
  * generalised pivotal quantity of a variance component (Weerahandi, S. 1993, "Generalized
  * confidence intervals", J. Am. Stat. Assoc. 88, 899–905; Hannig, J., Iyer, H. & Patterson, P.
  * 2006, "Fiducial generalized confidence intervals", J. Am. Stat. Assoc. 101, 254–269 — from
  * memory) with the measurement variance taken as known: its spread carries the uncertainty of
- * s² (ν dof), including the chance that the process part is nil. */
+ * σ(R)² (ν dof), including the chance that the process part is nil. */
 double stagecal_scatter_process_factor(const stagecal_scatter *s, double w2);
 
 /* 0 when s is a valid scatter function (n ≤ 3, finite coefficients, a range inside
