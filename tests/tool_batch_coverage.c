@@ -36,16 +36,16 @@
  *     same with δ = 0 (what the confidence band, without --run-scatter, is about);
  *   - the bands: stagecal_batch_band_sample_scatter at level 0.95 with SAMPLES draws, seed
  *     the replication's number, without the scatter (0), with the window scatter σ(R) (1:
- *     predict --run-scatter up to 4 December 2026) and with the batch's process scatter only
- *     (2: STAGECAL_BATCH_SCATTER_PROCESS, when the library has it).
+ *     STAGECAL_BATCH_SCATTER_WINDOW, predict --run-scatter's default) and with the batch's
+ *     process part only (2: STAGECAL_BATCH_SCATTER_PROCESS, --scatter-part process: σ(R)
+ *     less the windows' mean stated variance at R, from the model's var_ratio).
  * It prints, per problem, quantity and band, the coverage k/n of the new batch's true
  * outcome with its Wilson 95 % interval (Wilson 1927, JASA 22, 209; from memory), the same
  * for the mean-law outcome, and the mean band width; and the windows' mean stated se of the
  * stage count and the model's mean σ(R) at R = 2.5, the mean s² (var_ratio). Data sets the
  * calibration refuses or whose band fails are counted and left out.
- * dump: "ds REP OK τ δ_new s2 σ(2.5) se_fit(2.5) nominal truth mean-law lo0 hi0 lo1 hi1 lo2 hi2"
- * (problem A's batch time, hours).
- * Exit status 0, or 1 on bad arguments or a set-up failure.
+ * dump: "ds REP OK τ δ_new var_ratio σ(2.5) se_fit(2.5) nominal truth mean-law lo0 hi0 lo1 hi1 lo2
+ * hi2" (problem A's batch time, hours). Exit status 0, or 1 on bad arguments or a set-up failure.
  */
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
@@ -360,7 +360,7 @@ int main(int argc, char **argv)
            refused, nobatch, noband, nscatter, reps - refused);
     if (ok_sets > 0)
         printf("  windows at R = 2.5: mean stated se %.4f stages; model: mean sigma(2.5) %.4f, "
-               "mean var_ratio s2 %.3f, mean scatter dof along A %.1f\n",
+               "mean var_ratio %.3f, mean scatter dof along A %.1f\n",
                sum_se / n_se, sum_sig / (double)ok_sets, sum_s2 / (double)ok_sets,
                sum_dofs / (double)ok_sets);
     for (int pr = 0; pr < BC_NPROB; pr++)

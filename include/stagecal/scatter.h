@@ -24,8 +24,7 @@
  * mean square on m − p dof. σ(R)² over the windows' mean stated variance is kept (var_ratio):
  * what of σ(R)² their stated errors do not account for is the column's own run-to-run variation,
  * the part a batch's stage count carries (stagecal_scatter_process_factor; docs/calibration.md,
- * "What
- * --run-scatter overstates").
+ * "What --run-scatter draws").
  */
 #ifndef STAGECAL_SCATTER_H
 #define STAGECAL_SCATTER_H

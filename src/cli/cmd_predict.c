@@ -275,7 +275,7 @@ struct request {
     long samples, seed;
     int run_scatter;
     int scatter_part;             /* index into scatter_part_choices (0 process, 1 window); −1
-                                     not given: process */
+                                     not given: window */
     int dynamics;                 /* DYN_DEFAULT, DYN_HOLDUP or DYN_QUASI */
     double startup_xd, startup_h; /* the dynamic start-up's end, NAN when not given */
     stagecal_batch_cut_spec cuts[STAGECAL_BATCH_MAXCUTS];
@@ -544,11 +544,11 @@ static int run_batch(const struct request *q, cli_system *sys, struct prediction
             &p->pb, sys->vle, &p->m, q->f_load, &p->par, &p->res, (size_t)q->samples,
             (unsigned long)q->seed, q->level,
             !q->run_scatter        ? STAGECAL_BATCH_SCATTER_NONE
-            : q->scatter_part == 1 ? STAGECAL_BATCH_SCATTER_WINDOW
-                                   : STAGECAL_BATCH_SCATTER_PROCESS,
+            : q->scatter_part == 0 ? STAGECAL_BATCH_SCATTER_PROCESS
+                                   : STAGECAL_BATCH_SCATTER_WINDOW,
             &p->band, &err);
         p->have_band = rc == STAGECAL_OK;
-        if (rc == STAGECAL_OK && q->run_scatter && q->scatter_part != 1 &&
+        if (rc == STAGECAL_OK && q->run_scatter && q->scatter_part == 0 &&
             p->band.run_scatter != STAGECAL_BATCH_SCATTER_PROCESS)
             cli_warn("%s: the model file does not say how much of its scatter is the windows' "
                      "measurement error (no correlation.scatter.var_ratio: a file written "
@@ -687,10 +687,10 @@ int cmd_predict(int argc, char **argv, cli_ctx *ctx)
                  "count: a prediction band for one batch, not a confidence band on the\n"
                  "mean law (what of the scatter: --scatter-part)"),
         OPT_CHOICE("scatter-part", &q.scatter_part, "PART",
-                   "with --run-scatter: process (default; the model's sigma(R)\n"
-                   "less the windows' stated measurement error, the column's own\n"
-                   "batch-to-batch variation) or window (all of sigma(R), as one\n"
-                   "window's count strays: conservative for a batch)",
+                   "with --run-scatter: window (default; all of sigma(R), as one\n"
+                   "window's count strays: conservative for a batch unless its run-to-run\n"
+                   "variation is large) or process (sigma(R) less the windows' stated\n"
+                   "measurement error: narrower, can fall short; docs/calibration.md)",
                    scatter_part_choices, "a part of the scatter"),
         OPT_END_COMMON(ctx),
     };

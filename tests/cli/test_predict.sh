@@ -73,15 +73,24 @@ if cmp -s "$tmp/out" "$tmp/setpoint1.json"; then echo "ok same seed, same docume
 else echo "FAIL: same seed gave a different document"; fails=$((fails + 1)); fi
 
 # --run-scatter on a model file without a scatter function (no var_ratio): the process part
-# cannot be separated, so the whole sigma is drawn, said in the JSON and on stderr; the band
-# is wider than the mean law's; --scatter-part alone is a usage error (docs/cli.md)
+# cannot be separated, so --scatter-part process draws the whole sigma, said in the JSON and
+# on stderr; the default (window) draws it without a warning; the band is wider than the mean
+# law's; --scatter-part alone is a usage error (docs/cli.md)
 check_exit scatter-part-alone 2 "$bin" predict $common --reflux 4 --cut pot-x=0.2 --samples 40 \
     --scatter-part window
-check_exit run-scatter 0 "$bin" predict $common --reflux 4 --cut pot-x=0.2 --samples 40 --seed 7 \
-    --run-scatter --json
-check_py run-scatter-part "d['band']['scatter_part'] == 'window' and 'whole scatter' in d['band']['covers']"
+check_exit run-scatter-process 0 "$bin" predict $common --reflux 4 --cut pot-x=0.2 --samples 40 \
+    --seed 7 --run-scatter --scatter-part process --json
+check_py run-scatter-process-part "d['band']['scatter_part'] == 'window' and 'whole scatter' in d['band']['covers']"
 if grep -q "calibrate again to separate it" "$tmp/err"; then echo "ok no var_ratio: warned"
 else echo "FAIL: no warning that the scatter cannot be separated"; fails=$((fails + 1)); fi
+cp "$tmp/out" "$tmp/scatter-process.json"
+check_exit run-scatter 0 "$bin" predict $common --reflux 4 --cut pot-x=0.2 --samples 40 --seed 7 \
+    --run-scatter --json
+check_py run-scatter-part "d['band']['scatter_part'] == 'window'"
+if grep -q "calibrate again" "$tmp/err"; then echo "FAIL: the default (window) warned"; fails=$((fails + 1))
+else echo "ok the default draws the whole scatter without a warning"; fi
+if cmp -s "$tmp/out" "$tmp/scatter-process.json"; then echo "ok no var_ratio: process = window"
+else echo "FAIL: process without var_ratio differs from window"; fails=$((fails + 1)); fi
 cp "$tmp/out" "$tmp/scatter.json"
 check_exit no-run-scatter 0 "$bin" predict $common --reflux 4 --cut pot-x=0.2 --samples 40 --seed 7 --json
 check_py no-run-scatter-narrower "'scatter_part' not in d['band'] and (d['band']['batch_time_h']['high'] - d['band']['batch_time_h']['low']) < (lambda b: b['high'] - b['low'])(json.load(open('$tmp/scatter.json'))['band']['batch_time_h'])"
