@@ -8,7 +8,10 @@
  * inside one run, so a run inverted on its own gives the bytes the whole log gives, with
  * its window numbers offset by the windows before it. Memory then holds a few runs
  * instead of the log. The workers take the runs in order and write in order (a sequence
- * number and one condition variable), so the output is the same for any nthreads.
+ * number and one condition variable), so the output is the same for any nthreads. A thread
+ * whose run must wait for an earlier one to be written leaves it done and takes other work;
+ * the thread that writes the earlier run writes it next. The reader, with every slot full,
+ * inverts the next run itself rather than wait.
  *
  * Workload: runs of 10^3–10^5 rows; reading is about half of the time, so two cores give
  * close to two-fold (docs/performance.md).
@@ -20,12 +23,15 @@
 #include "internal.h"
 #include "runlog_internal.h"
 
-enum { SLOT_FREE = 0, SLOT_READING, SLOT_READY, SLOT_BUSY };
+enum { SLOT_FREE = 0, SLOT_READING, SLOT_READY, SLOT_BUSY, SLOT_DONE, SLOT_WRITING };
 
 struct slot {
-    stagecal_runlog *log; /* one run (its arrays are reused from run to run) */
-    size_t seq;           /* its place in the output */
-    int state;            /* SLOT_* */
+    stagecal_runlog *log;       /* one run (its arrays are reused from run to run) */
+    stagecal_runlog_result res; /* its analysis and inversion (SLOT_DONE: waiting to be written) */
+    int rc;                     /* the status of that work */
+    stagecal_error err;
+    size_t seq; /* its place in the output */
+    int state;  /* SLOT_* */
 };
 
 struct pipe {
@@ -36,6 +42,7 @@ struct pipe {
     size_t next_take;  /* sequence number the next worker takes */
     size_t next_write; /* sequence number whose turn it is to write */
     int done;          /* the reader has handed out every run */
+    int writing;       /* a thread is writing (one at a time, in sequence order) */
     int rc;            /* first failure (STAGECAL_OK while none) */
     stagecal_error err;
     /* the job */
@@ -90,35 +97,76 @@ static int write_run(struct pipe *p, const stagecal_runlog *log, const stagecal_
     return STAGECAL_OK;
 }
 
-/* Analyses and inverts the run of sl; then, in its turn, writes it. Called without the lock. */
-static int do_run(struct pipe *p, struct slot *sl, stagecal_physics *ph, stagecal_error *err)
+/* Analyses and inverts the run of sl into sl->res, sl->rc, sl->err. Called without the lock. */
+static void work_run(struct pipe *p, struct slot *sl, stagecal_physics *ph)
 {
-    stagecal_runlog_result res;
-    memset(&res, 0, sizeof res);
-    int rc = stagecal_runlog_analyse(sl->log, p->col, &p->par, &res, err);
+    memset(&sl->res, 0, sizeof sl->res);
+    stagecal_error_clear(&sl->err);
+    int rc = stagecal_runlog_analyse(sl->log, p->col, &p->par, &sl->res, &sl->err);
     if (rc == STAGECAL_OK)
-        rc = runlog_invert_with(sl->log, p->col, p->murphree, &p->par, ph, &res, err);
-    pthread_mutex_lock(&p->mu);
-    while (p->next_write != sl->seq && p->rc == STAGECAL_OK)
-        pthread_cond_wait(&p->cv, &p->mu);
-    int go = p->rc == STAGECAL_OK;
-    pthread_mutex_unlock(&p->mu);
-    if (rc == STAGECAL_OK && go)
-        rc = write_run(p, sl->log, &res, err);
-    stagecal_runlog_result_free(&res);
-    return rc;
+        rc = runlog_invert_with(sl->log, p->col, p->murphree, &p->par, ph, &sl->res, &sl->err);
+    sl->rc = rc;
 }
 
-/* Marks sl written (or the work failed with rc) and wakes everyone; under the lock. */
-static void finish_run(struct pipe *p, struct slot *sl, int rc, const stagecal_error *err)
+/* Records the first failure and wakes everyone; under the lock. */
+static void note_failure(struct pipe *p, int rc, const stagecal_error *err)
 {
     if (rc != STAGECAL_OK && p->rc == STAGECAL_OK) {
         p->rc = rc;
         p->err = *err;
+        pthread_cond_broadcast(&p->cv);
     }
-    p->next_write++;
-    sl->state = SLOT_FREE;
-    pthread_cond_broadcast(&p->cv);
+}
+
+/* The slot ready to be taken in sequence order, or NULL; under the lock. */
+static struct slot *slot_to_take(struct pipe *p)
+{
+    for (size_t i = 0; i < p->nslots; i++)
+        if (p->slots[i].state == SLOT_READY && p->slots[i].seq == p->next_take)
+            return &p->slots[i];
+    return NULL;
+}
+
+/* Takes the work of sl (SLOT_READY, next in turn), does it without the lock, and marks it
+ * done; under the lock. */
+static void take_and_work(struct pipe *p, struct slot *sl, stagecal_physics *ph)
+{
+    sl->state = SLOT_BUSY;
+    p->next_take++;
+    pthread_mutex_unlock(&p->mu);
+    work_run(p, sl, ph);
+    pthread_mutex_lock(&p->mu);
+    sl->state = SLOT_DONE;
+    note_failure(p, sl->rc, &sl->err);
+}
+
+/* Writes the runs whose work is done, in sequence order, while the next one in turn is done
+ * and no other thread is writing: a thread whose run must wait for an earlier one leaves it
+ * done and goes on with other work; the thread that writes the earlier run writes it next.
+ * Under the lock (released while writing). */
+static void write_ready(struct pipe *p)
+{
+    while (!p->writing) {
+        struct slot *sl = NULL;
+        for (size_t i = 0; i < p->nslots && !sl; i++)
+            if (p->slots[i].state == SLOT_DONE && p->slots[i].seq == p->next_write)
+                sl = &p->slots[i];
+        if (!sl)
+            return;
+        int go = p->rc == STAGECAL_OK, rc = STAGECAL_OK;
+        sl->state = SLOT_WRITING;
+        p->writing = 1;
+        pthread_mutex_unlock(&p->mu);
+        if (go)
+            rc = write_run(p, sl->log, &sl->res, &sl->err);
+        stagecal_runlog_result_free(&sl->res);
+        pthread_mutex_lock(&p->mu);
+        note_failure(p, rc, &sl->err);
+        p->writing = 0;
+        p->next_write++;
+        sl->state = SLOT_FREE;
+        pthread_cond_broadcast(&p->cv);
+    }
 }
 
 static void *worker(void *arg)
@@ -128,28 +176,18 @@ static void *worker(void *arg)
     stagecal_error_clear(&err);
     stagecal_physics *ph = stagecal_physics_alloc(p->col, NULL, &err);
     pthread_mutex_lock(&p->mu);
-    if (!ph && p->rc == STAGECAL_OK) {
-        p->rc = err.code ? err.code : STAGECAL_ENOMEM;
-        p->err = err;
-        pthread_cond_broadcast(&p->cv);
-    }
+    if (!ph)
+        note_failure(p, err.code ? err.code : STAGECAL_ENOMEM, &err);
     while (ph) {
-        struct slot *sl = NULL;
-        for (size_t i = 0; i < p->nslots && !sl; i++)
-            if (p->slots[i].state == SLOT_READY && p->slots[i].seq == p->next_take)
-                sl = &p->slots[i];
+        struct slot *sl = slot_to_take(p);
         if (!sl) {
             if (p->done || p->rc != STAGECAL_OK)
                 break;
             pthread_cond_wait(&p->cv, &p->mu);
             continue;
         }
-        sl->state = SLOT_BUSY;
-        p->next_take++;
-        pthread_mutex_unlock(&p->mu);
-        int rc = do_run(p, sl, ph, &err);
-        pthread_mutex_lock(&p->mu);
-        finish_run(p, sl, rc, &err);
+        take_and_work(p, sl, ph);
+        write_ready(p);
     }
     pthread_mutex_unlock(&p->mu);
     stagecal_physics_free(ph);
@@ -167,30 +205,43 @@ static int run_inline(struct pipe *p, stagecal_runlog_stream *s, stagecal_error 
     for (;;) {
         if ((rc = stagecal_runlog_stream_next(s, sl->log, err)) != STAGECAL_OK || sl->log->n == 0)
             break;
-        sl->seq = p->next_write;
-        if ((rc = do_run(p, sl, ph, err)) != STAGECAL_OK)
+        work_run(p, sl, ph);
+        if ((rc = sl->rc) == STAGECAL_OK)
+            rc = write_run(p, sl->log, &sl->res, &sl->err);
+        stagecal_runlog_result_free(&sl->res);
+        if (rc != STAGECAL_OK) {
+            if (err)
+                *err = sl->err;
             break;
-        p->next_write++;
+        }
     }
     stagecal_physics_free(ph);
     return rc;
 }
 
-/* The reader's side: fills free slots in order until the stream ends or the work fails. */
+/* The reader's side: fills free slots in order until the stream ends or the work fails. With
+ * every slot filled it does not wait: it inverts the next run in turn itself (and writes what
+ * is due), so the core it runs on stays busy while the workers catch up. */
 static int feed(struct pipe *p, stagecal_runlog_stream *s, stagecal_error *err)
 {
     size_t seq = 0;
     int rc = STAGECAL_OK;
+    stagecal_physics *ph = stagecal_physics_alloc(p->col, NULL, NULL); /* NULL: only reads */
     pthread_mutex_lock(&p->mu);
     for (;;) {
-        struct slot *sl = NULL;
+        struct slot *sl = NULL, *t;
         for (size_t i = 0; i < p->nslots && !sl; i++)
             if (p->slots[i].state == SLOT_FREE)
                 sl = &p->slots[i];
         if (p->rc != STAGECAL_OK)
             break;
         if (!sl) {
-            pthread_cond_wait(&p->cv, &p->mu);
+            if (ph && (t = slot_to_take(p)) != NULL) {
+                take_and_work(p, t, ph);
+                write_ready(p);
+            } else {
+                pthread_cond_wait(&p->cv, &p->mu);
+            }
             continue;
         }
         sl->state = SLOT_READING;
@@ -208,6 +259,7 @@ static int feed(struct pipe *p, stagecal_runlog_stream *s, stagecal_error *err)
     p->done = 1;
     pthread_cond_broadcast(&p->cv);
     pthread_mutex_unlock(&p->mu);
+    stagecal_physics_free(ph);
     return rc;
 }
 
@@ -220,7 +272,9 @@ int stagecal_runlog_invert_stream(stagecal_runlog_stream *s, const stagecal_colu
     if (!col || !col->system.vle)
         return error_set(err, STAGECAL_EINVAL, "the inversion needs a column with a VLE model");
     struct pipe *p = calloc(1, sizeof *p);
-    size_t nslots = nthreads + 1; /* one being read, one per worker */
+    /* one being read, and for each worker one being inverted and one waiting (read ahead, or
+     * inverted and waiting for its turn to be written) */
+    size_t nslots = 2 * nthreads + 1;
     if (p)
         p->slots = calloc(nslots, sizeof *p->slots);
     int rc = p && p->slots ? STAGECAL_OK : STAGECAL_ENOMEM;
@@ -265,8 +319,10 @@ int stagecal_runlog_invert_stream(stagecal_runlog_stream *s, const stagecal_colu
     tot->soft = stagecal_runlog_stream_soft(s);
     pthread_cond_destroy(&p->cv);
     pthread_mutex_destroy(&p->mu);
-    for (size_t i = 0; i < nslots; i++)
+    for (size_t i = 0; i < nslots; i++) {
+        stagecal_runlog_result_free(&p->slots[i].res); /* (work done, never written: a failure) */
         stagecal_runlog_free(p->slots[i].log);
+    }
     free(p->slots);
     free(p);
     return rc;

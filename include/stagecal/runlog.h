@@ -560,8 +560,9 @@ void stagecal_runlog_totals_free(stagecal_runlog_totals *t); /* frees members; N
  * stagecal_runlog_invert and stagecal_runlog_write_csv do for a whole log, writing the same
  * bytes (the header before the first row; nothing when there are no rows). Runs are
  * independent, so nthreads ≥ 1 threads analyse and invert them while this one reads the
- * next; each run is written in file order once the one before it is, so the output does not
- * depend on nthreads (0: all in this thread). Memory holds nthreads + 1 runs. tot
+ * next (and, with every slot filled, inverts one itself); each run is written in file order
+ * once the one before it is, by whichever thread finishes it, so the output does not depend
+ * on nthreads (0: all in this thread). Memory holds 2·nthreads + 1 runs. tot
  * receives the totals. A file the stream cannot read ends the work with its code (ENOINPUT,
  * EDATA); EWRITE, ENOMEM, EINVAL (no column model). */
 int stagecal_runlog_invert_stream(stagecal_runlog_stream *s, const stagecal_column *col,
