@@ -112,9 +112,11 @@ void runlog_boilup(const stagecal_runlog *log, const stagecal_column *col,
     double ur = col ? col->u.r : 0, urr = col ? col->u.r_rel : 0;
     double fall = 0, pred = 0, var = 0;
     size_t nint = 0, end = run->first + run->n;
+    int right = 0;
     for (size_t i = run->first; i < end; i++) {
-        int left = i > run->first && interval_in(log, res, i);
-        int right = i + 1 < end && interval_in(log, res, i + 1);
+        /* interval (i − 1, i) was the previous row's right one */
+        int left = i > run->first && right;
+        right = i + 1 < end && interval_in(log, res, i + 1);
         if (!left && !right)
             continue;
         double r = log->r[i], v = log->v_mol_s[i];
@@ -271,44 +273,60 @@ static double median_of(double *v, size_t n)
     return gsl_stats_median(v, 1, n);
 }
 
+/* The row's own count and its derivatives, as the inversion gave them (runlog_invert.c). */
+typedef struct {
+    double stages, dxd, dxb;
+} own_count;
+
 /* The distillate X at which the plain count at (xb, r) equals target: safeguarded Newton
  * on N(x) − target from x0 (N rises with xD; a pinch means x too high, an invalid count x
  * too low), with the bracket halved when a step leaves it. *sens = ∂N/∂xB / ∂N/∂xD at X,
- * *dxdn = ∂X/∂N = 1/(∂N/∂xD). 0 on success. */
+ * *dxdn = ∂X/∂N = 1/(∂N/∂xD). 0 on success. cond with neither pseudo-moles nor a pot at
+ * its own pressure is inverted by stagecal_stages_invert directly: stagecal_physics_invert
+ * would scale the derivatives used here by 1.0, so the doubles are the same. */
 static int xd_for_count(const stagecal_vle *vle, const stagecal_physics_cond *cond, double murphree,
                         const stagecal_stages_params *sp, double xb, double r, double target,
-                        double x0, const stagecal_stages_result *at_x0, double *x_out, double *sens,
+                        double x0, const own_count *at_x0, double *x_out, double *sens,
                         double *dxdn)
 {
     double lo = xb, hi = 1.0, x = x0 > lo && x0 < hi ? x0 : 0.5 * (lo + hi);
+    int plain = cond && !(cond->pseudo_ratio > 0) && cond->vle_pot == cond->vle;
     for (int it = 0; it < 60; it++) {
         stagecal_stages_result sr;
-        int rc = STAGECAL_OK;
-        if (it == 0 && at_x0 && x == x0) /* the row's own count: the same call, made already */
-            sr = *at_x0;
-        else /* the row's conditions (logged pressure, subcooled reflux), as its own count had */
-            rc = cond ? stagecal_physics_invert(cond, x, xb, murphree, sp, &sr, NULL)
-                      : stagecal_stages_invert(vle, x, xb, r, murphree, sp, &sr, NULL);
+        int rc = STAGECAL_OK, status;
+        double n, dxd, dxb;
+        if (it == 0 && at_x0 && x == x0) { /* the row's own count: the same call, made already */
+            status = STAGECAL_STAGES_OK;
+            n = at_x0->stages, dxd = at_x0->dxd, dxb = at_x0->dxb;
+        } else { /* the row's conditions (logged pressure, subcooled reflux), as its own count had
+                  */
+            rc = plain  ? stagecal_stages_invert(cond->vle, x, xb, cond->r_int, murphree, sp, &sr,
+                                                 NULL)
+                 : cond ? stagecal_physics_invert(cond, x, xb, murphree, sp, &sr, NULL)
+                        : stagecal_stages_invert(vle, x, xb, r, murphree, sp, &sr, NULL);
+            status = rc == STAGECAL_OK ? sr.status : STAGECAL_STAGES_INVALID;
+            n = sr.stages, dxd = sr.dstages_dxd, dxb = sr.dstages_dxb;
+        }
         double xn;
-        if (rc != STAGECAL_OK || sr.status != STAGECAL_STAGES_OK) {
-            if (rc == STAGECAL_OK && sr.status == STAGECAL_STAGES_PINCH)
+        if (rc != STAGECAL_OK || status != STAGECAL_STAGES_OK) {
+            if (rc == STAGECAL_OK && status == STAGECAL_STAGES_PINCH)
                 hi = x;
             else
                 lo = x;
             xn = 0.5 * (lo + hi);
         } else {
-            double f = sr.stages - target;
+            double f = n - target;
             if (fabs(f) < 1e-9 || hi - lo < 1e-14) {
                 *x_out = x;
-                *sens = sr.dstages_dxd > 0 ? sr.dstages_dxb / sr.dstages_dxd : NAN;
-                *dxdn = sr.dstages_dxd > 0 ? 1.0 / sr.dstages_dxd : NAN;
+                *sens = dxd > 0 ? dxb / dxd : NAN;
+                *dxdn = dxd > 0 ? 1.0 / dxd : NAN;
                 return isfinite(*sens) && isfinite(*dxdn) ? 0 : -1;
             }
             if (f > 0)
                 hi = x;
             else
                 lo = x;
-            xn = sr.dstages_dxd > 0 ? x - f / sr.dstages_dxd : NAN;
+            xn = dxd > 0 ? x - f / dxd : NAN;
             if (!(xn > lo && xn < hi))
                 xn = 0.5 * (lo + hi);
         }
@@ -393,14 +411,12 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
             double rs_a = runlog_rset(log, a);
             double r_row =
                 isfinite(rs_a) && (res->flags[a] & STAGECAL_SAMPLE_TOTAL_REFLUX) ? INFINITY : rs_a;
-            stagecal_stages_result own;
-            const stagecal_stages_result *at_x0 = NULL;
+            own_count own;
+            const own_count *at_x0 = NULL;
             if (ph && xd == log->xd[a] && r_row == r) {
-                memset(&own, 0, sizeof own);
-                own.status = STAGECAL_STAGES_OK;
                 own.stages = res->stages[a];
-                own.dstages_dxd = res->dn_dxd[a];
-                own.dstages_dxb = res->dn_dxb[a];
+                own.dxd = res->dn_dxd[a];
+                own.dxb = res->dn_dxb[a];
                 at_x0 = &own;
             }
             if (!(isfinite(xd) && isfinite(log->xb[a])) ||

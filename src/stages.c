@@ -191,7 +191,8 @@ static int closed_form(const stagecal_vle *vle, const stagecal_stages_params *pa
                        tl3 txd, tl3 txt, tl3 *count)
 {
     smoker_consts sc;
-    double cap = fmin((double)par->pinch_scan_after, (double)par->max_stages);
+    double scan = (double)par->pinch_scan_after, most = (double)par->max_stages;
+    double cap = scan < most ? scan : most; /* (fmin's double, without the call) */
     if (stagecal_vle_get_kind(vle) != STAGECAL_VLE_ALPHA ||
         smoker_setup(tl_const(vle->alpha), m, b, &sc) != 0 || !(txt.v - sc.k.v > CLOSED_MARGIN))
         return 0;
