@@ -5,6 +5,7 @@
 #define STAGECAL_INTERNAL_H
 
 #include "stagecal/error.h"
+#include "stagecal/physics.h"
 #include "banned.h"
 
 #include <math.h>
@@ -39,6 +40,16 @@ void free_each(void *const *p, size_t n);
  * the operating line y = m·x + b: Smoker's closed-form inverse with the step's local α
  * (exactly xn at f = 1). Shared by forward stepping and the dynamic batch model. */
 double stages_fraction_target(double x_prev, double xn, double yn, double m, double b, double f);
+
+/* stagecal_stages_invert and stagecal_physics_invert without the reason text of a count that
+ * is not ok (res->reason left empty; every other member the same), for run-log mode, which
+ * records the status alone. */
+int stages_invert_quiet(const stagecal_vle *vle, double xd, double xb, double reflux,
+                        double murphree, const stagecal_stages_params *params,
+                        stagecal_stages_result *res, stagecal_error *err);
+int physics_invert_quiet(const stagecal_physics_cond *cond, double xd, double xb, double murphree,
+                         const stagecal_stages_params *params, stagecal_stages_result *res,
+                         stagecal_error *err);
 
 /* Copies the NUL-terminated src into dst of cap bytes; −1 (dst untouched) when it does
  * not fit. */

@@ -477,9 +477,11 @@ static int pot_equivalent(const stagecal_physics_cond *c, double xb, double *xb_
     return 0;
 }
 
-int stagecal_physics_invert(const stagecal_physics_cond *cond, double xd, double xb,
-                            double murphree, const stagecal_stages_params *params,
-                            stagecal_stages_result *res, stagecal_error *err)
+/* stagecal_physics_invert; quiet: the reason of a count that is not ok left empty (the
+ * inversion's own texts; physics_invert_quiet). */
+static int physics_invert(const stagecal_physics_cond *cond, double xd, double xb, double murphree,
+                          const stagecal_stages_params *params, int quiet,
+                          stagecal_stages_result *res, stagecal_error *err)
 {
     if (!cond || !res)
         return error_set(err, STAGECAL_EINVAL, "NULL argument");
@@ -492,11 +494,15 @@ int stagecal_physics_invert(const stagecal_physics_cond *cond, double xd, double
     if (cond->vle_pot != cond->vle && xb < xd && pot_equivalent(cond, xb, &xb_in, &scale_pot)) {
         memset(res, 0, sizeof *res);
         res->status = STAGECAL_STAGES_INVALID;
-        snprintf(res->reason, sizeof res->reason,
-                 "xB = %g has no equivalent liquid at the top pressure", xb);
+        if (!quiet)
+            snprintf(res->reason, sizeof res->reason,
+                     "xB = %g has no equivalent liquid at the top pressure", xb);
         return STAGECAL_OK;
     }
-    int rc = stagecal_stages_invert(cond->vle, xd, xb_in, cond->r_int, murphree, params, res, err);
+    int rc =
+        quiet
+            ? stages_invert_quiet(cond->vle, xd, xb_in, cond->r_int, murphree, params, res, err)
+            : stagecal_stages_invert(cond->vle, xd, xb_in, cond->r_int, murphree, params, res, err);
     if (rc != STAGECAL_OK || res->status != STAGECAL_STAGES_OK)
         return rc;
     res->dstages_dxb *= scale_pot * scale_xb;
@@ -506,6 +512,20 @@ int stagecal_physics_invert(const stagecal_physics_cond *cond, double xd, double
     if (isfinite(cond->reflux) && cond->reflux > 0)
         res->dstages_dr *= cond->r_int / cond->reflux; /* ∂R_int/∂R at fixed ΔT, λ */
     return STAGECAL_OK;
+}
+
+int stagecal_physics_invert(const stagecal_physics_cond *cond, double xd, double xb,
+                            double murphree, const stagecal_stages_params *params,
+                            stagecal_stages_result *res, stagecal_error *err)
+{
+    return physics_invert(cond, xd, xb, murphree, params, 0, res, err);
+}
+
+int physics_invert_quiet(const stagecal_physics_cond *cond, double xd, double xb, double murphree,
+                         const stagecal_stages_params *params, stagecal_stages_result *res,
+                         stagecal_error *err)
+{
+    return physics_invert(cond, xd, xb, murphree, params, 1, res, err);
 }
 
 int stagecal_physics_step(const stagecal_physics_cond *cond, double xd, double stages,

@@ -283,7 +283,8 @@ typedef struct {
  * too low), with the bracket halved when a step leaves it. *sens = ∂N/∂xB / ∂N/∂xD at X,
  * *dxdn = ∂X/∂N = 1/(∂N/∂xD). 0 on success. cond with neither pseudo-moles nor a pot at
  * its own pressure is inverted by stagecal_stages_invert directly: stagecal_physics_invert
- * would scale the derivatives used here by 1.0, so the doubles are the same. */
+ * would scale the derivatives used here by 1.0, so the doubles are the same. The counts'
+ * reasons are not read (the _quiet variants, internal.h). */
 static int xd_for_count(const stagecal_vle *vle, const stagecal_physics_cond *cond, double murphree,
                         const stagecal_stages_params *sp, double xb, double r, double target,
                         double x0, const own_count *at_x0, double *x_out, double *sens,
@@ -300,10 +301,9 @@ static int xd_for_count(const stagecal_vle *vle, const stagecal_physics_cond *co
             n = at_x0->stages, dxd = at_x0->dxd, dxb = at_x0->dxb;
         } else { /* the row's conditions (logged pressure, subcooled reflux), as its own count had
                   */
-            rc = plain  ? stagecal_stages_invert(cond->vle, x, xb, cond->r_int, murphree, sp, &sr,
-                                                 NULL)
-                 : cond ? stagecal_physics_invert(cond, x, xb, murphree, sp, &sr, NULL)
-                        : stagecal_stages_invert(vle, x, xb, r, murphree, sp, &sr, NULL);
+            rc = plain ? stages_invert_quiet(cond->vle, x, xb, cond->r_int, murphree, sp, &sr, NULL)
+                 : cond ? physics_invert_quiet(cond, x, xb, murphree, sp, &sr, NULL)
+                        : stages_invert_quiet(vle, x, xb, r, murphree, sp, &sr, NULL);
             status = rc == STAGECAL_OK ? sr.status : STAGECAL_STAGES_INVALID;
             n = sr.stages, dxd = sr.dstages_dxd, dxb = sr.dstages_dxb;
         }

@@ -131,7 +131,7 @@ int stagecal_runlog_bound(const stagecal_column *col, const stagecal_vle *vle, d
     stagecal_stages_params sp = stagecal_stages_default_params();
     stagecal_stages_result sr;
     if (!(xdb < 1 && xbb > 0 && xbb < xdb) ||
-        stagecal_stages_invert(vle, xdb, xbb, r, murphree, &sp, &sr, NULL) != STAGECAL_OK ||
+        stages_invert_quiet(vle, xdb, xbb, r, murphree, &sp, &sr, NULL) != STAGECAL_OK ||
         sr.status != STAGECAL_STAGES_OK)
         return STAGECAL_NOTE_UNBOUNDED;
     *stages = sr.stages;
@@ -178,7 +178,7 @@ static void invert_row(struct inv_ctx *c, size_t i, double r)
     stagecal_physics_cond pc;
     if (stagecal_physics_cond_at(c->ph, log->p_pa ? log->p_pa[i] : NAN, xd, r,
                                  log->t_reflux_k ? log->t_reflux_k[i] : NAN, &pc, NULL) != 0 ||
-        stagecal_physics_invert(&pc, xd, xb, c->murphree, &c->sp, &sr, NULL) != STAGECAL_OK) {
+        physics_invert_quiet(&pc, xd, xb, c->murphree, &c->sp, &sr, NULL) != STAGECAL_OK) {
         res->note[i] = STAGECAL_NOTE_FAILED;
         return;
     }

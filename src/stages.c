@@ -97,15 +97,21 @@ stagecal_stages_params stagecal_stages_default_params(void)
 
 /* ---- inversion ------------------------------------------------------------------------ */
 
-static void set_status(stagecal_stages_result *res, int status, const char *fmt, ...)
-    SC_PRINTF(3, 4);
+static void set_status(stagecal_stages_result *res, int quiet, int status, const char *fmt, ...)
+    SC_PRINTF(4, 5);
 
-static void set_status(stagecal_stages_result *res, int status, const char *fmt, ...)
+/* The status and its reason; quiet: no reason (an empty one), for callers that never read it
+ * (printf's exact conversion of the numbers in it costs more than a whole closed-form count). */
+static void set_status(stagecal_stages_result *res, int quiet, int status, const char *fmt, ...)
 {
     va_list ap;
     res->status = status;
     res->stages = 0.0;
     res->column_stages = 0.0;
+    if (quiet) {
+        res->reason[0] = '\0';
+        return;
+    }
     va_start(ap, fmt);
     vsnprintf(res->reason, sizeof res->reason, fmt, ap);
     va_end(ap);
@@ -114,48 +120,49 @@ static void set_status(stagecal_stages_result *res, int status, const char *fmt,
 /* The checks that need no stepping: fills res (status invalid or azeotrope, reason) and
  * returns 1 when the inputs cannot be inverted, 0 otherwise. */
 static int reject_inputs(const stagecal_vle *vle, double xd, double xb, double reflux, double e,
-                         stagecal_stages_result *res)
+                         int quiet, stagecal_stages_result *res)
 {
     double x_max = stagecal_vle_x_max(vle);
     if (isnan(xd) || isnan(xb) || isnan(reflux) || isnan(e)) {
-        set_status(res, STAGECAL_STAGES_INVALID, "an input is NaN (xD %g, xB %g, R %g, E_MV %g)",
-                   xd, xb, reflux, e);
+        set_status(res, quiet, STAGECAL_STAGES_INVALID,
+                   "an input is NaN (xD %g, xB %g, R %g, E_MV %g)", xd, xb, reflux, e);
         return 1;
     }
     if (!(xd > 0.0 && xd < 1.0) || xd > x_max) {
-        set_status(res, STAGECAL_STAGES_INVALID, "xD = %.10g outside (0, %.10g)", xd,
+        set_status(res, quiet, STAGECAL_STAGES_INVALID, "xD = %.10g outside (0, %.10g)", xd,
                    x_max < 1.0 ? x_max : 1.0);
         return 1;
     }
     if (!(xb > 0.0 && xb < 1.0) || xb > x_max) {
-        set_status(res, STAGECAL_STAGES_INVALID, "xB = %.10g outside (0, %.10g)", xb,
+        set_status(res, quiet, STAGECAL_STAGES_INVALID, "xB = %.10g outside (0, %.10g)", xb,
                    x_max < 1.0 ? x_max : 1.0);
         return 1;
     }
     if (!(xb < xd)) {
-        set_status(res, STAGECAL_STAGES_INVALID, "xB = %.10g is not below xD = %.10g", xb, xd);
+        set_status(res, quiet, STAGECAL_STAGES_INVALID, "xB = %.10g is not below xD = %.10g", xb,
+                   xd);
         return 1;
     }
     if (!(e > 0.0 && e <= 1.0)) {
-        set_status(res, STAGECAL_STAGES_INVALID, "Murphree efficiency %g outside (0, 1]", e);
+        set_status(res, quiet, STAGECAL_STAGES_INVALID, "Murphree efficiency %g outside (0, 1]", e);
         return 1;
     }
     if (reflux < 0.0) {
-        set_status(res, STAGECAL_STAGES_INVALID, "reflux ratio %g is negative", reflux);
+        set_status(res, quiet, STAGECAL_STAGES_INVALID, "reflux ratio %g is negative", reflux);
         return 1;
     }
     if (reflux == 0.0) {
-        set_status(res, STAGECAL_STAGES_INVALID,
+        set_status(res, quiet, STAGECAL_STAGES_INVALID,
                    "reflux ratio 0: the stage count is not identifiable without reflux");
         return 1;
     }
     double az = stages_azeotrope_below(vle, xd);
     if (az >= 0.0) {
         if (az >= xb)
-            set_status(res, STAGECAL_STAGES_AZEOTROPE,
+            set_status(res, quiet, STAGECAL_STAGES_AZEOTROPE,
                        "azeotrope at x = %.6f lies between xB = %.6g and xD = %.6g", az, xb, xd);
         else
-            set_status(res, STAGECAL_STAGES_AZEOTROPE,
+            set_status(res, quiet, STAGECAL_STAGES_AZEOTROPE,
                        "azeotrope at x = %.6f lies below xB = %.6g: stepping beyond it is not "
                        "supported",
                        az, xb);
@@ -206,14 +213,14 @@ static int closed_form(const stagecal_vle *vle, const stagecal_stages_params *pa
 /* The inversion. With tl non-NULL the derivatives of stages with respect to (xD, xB, R)
  * are carried along and written to tl->d (tl->v = stages); otherwise none are computed. */
 static int invert_core(const stagecal_vle *vle, double xd, double xb, double reflux, double e,
-                       const stagecal_stages_params *par, stagecal_stages_result *res, tl3 *tl,
-                       stagecal_error *err)
+                       const stagecal_stages_params *par, int quiet, stagecal_stages_result *res,
+                       tl3 *tl, stagecal_error *err)
 {
     memset(res, 0, sizeof *res);
     res->status = STAGECAL_STAGES_OK;
     if (tl)
         *tl = tl_const(0.0);
-    if (reject_inputs(vle, xd, xb, reflux, e, res))
+    if (reject_inputs(vle, xd, xb, reflux, e, quiet, res))
         return STAGECAL_OK;
 
     stepper st;
@@ -249,7 +256,7 @@ static int invert_core(const stagecal_vle *vle, double xd, double xb, double ref
     x_target = txt.v;
     res->x_target = isfinite(x_target) ? x_target : 0.0;
     if (x_target > xd + par->top_tol) {
-        set_status(res, STAGECAL_STAGES_INVALID,
+        set_status(res, quiet, STAGECAL_STAGES_INVALID,
                    "the pot alone out-performs the data: its vapour %.10g needs x_target = %.10g "
                    "above xD = %.10g",
                    ypot, x_target, xd);
@@ -263,7 +270,7 @@ static int invert_core(const stagecal_vle *vle, double xd, double xb, double ref
     /* The line at or above the curve at x_target: it meets the curve in [x_target, xD). */
     double yt;
     if (!(x_target > 0.0)) {
-        set_status(res, STAGECAL_STAGES_PINCH,
+        set_status(res, quiet, STAGECAL_STAGES_PINCH,
                    "pinch: the operating line at L/V = %.10g reaches the pot vapour %.10g only "
                    "at x = %.6g",
                    st.m, ypot, x_target);
@@ -272,7 +279,7 @@ static int invert_core(const stagecal_vle *vle, double xd, double xb, double ref
     if ((rc = stepper_ystar(&st, x_target, &yt)))
         goto done;
     if (yt <= op_line(&st, x_target)) {
-        set_status(res, STAGECAL_STAGES_PINCH,
+        set_status(res, quiet, STAGECAL_STAGES_PINCH,
                    "pinch: the operating line at L/V = %.10g meets the equilibrium curve above "
                    "x_target = %.10g",
                    st.m, x_target);
@@ -298,7 +305,7 @@ static int invert_core(const stagecal_vle *vle, double xd, double xb, double ref
         if ((rc = stepper_step(&st, x_prev, &xn, &yn, &pinch)))
             goto done;
         if (pinch) {
-            set_status(res, STAGECAL_STAGES_PINCH,
+            set_status(res, quiet, STAGECAL_STAGES_PINCH,
                        "pinch: no progress at step %zu (x = %.10g) above x_target = %.10g", n,
                        x_prev, x_target);
             goto done;
@@ -313,7 +320,7 @@ static int invert_core(const stagecal_vle *vle, double xd, double xb, double ref
         if (xn <= x_target)
             break;
         if (n >= par->max_stages) {
-            set_status(res, STAGECAL_STAGES_PINCH,
+            set_status(res, quiet, STAGECAL_STAGES_PINCH,
                        "pinch: more than %zu whole steps (x = %.10g, x_target = %.10g)",
                        par->max_stages, xn, x_target);
             goto done;
@@ -324,7 +331,7 @@ static int invert_core(const stagecal_vle *vle, double xd, double xb, double ref
             if ((rc = stepper_scan_pinch(&st, x_target, xn, par->pinch_scan_points, &found)))
                 goto done;
             if (found) {
-                set_status(res, STAGECAL_STAGES_PINCH,
+                set_status(res, quiet, STAGECAL_STAGES_PINCH,
                            "pinch: the operating line at L/V = %.10g meets the equilibrium "
                            "curve between x_target = %.10g and x = %.10g",
                            st.m, x_target, xn);
@@ -359,7 +366,7 @@ static double stages_at(const stagecal_vle *vle, double xd, double xb, double re
                         const stagecal_stages_params *par)
 {
     stagecal_stages_result r;
-    if (invert_core(vle, xd, xb, reflux, e, par, &r, NULL, NULL) != STAGECAL_OK ||
+    if (invert_core(vle, xd, xb, reflux, e, par, 1, &r, NULL, NULL) != STAGECAL_OK ||
         r.status != STAGECAL_STAGES_OK)
         return NAN;
     return r.stages;
@@ -451,9 +458,10 @@ static int alpha_closed_fast(const stagecal_vle *vle, double xd, double xb, doub
     return 1;
 }
 
-int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double reflux,
-                           double murphree, const stagecal_stages_params *params,
-                           stagecal_stages_result *res, stagecal_error *err)
+/* stagecal_stages_invert; quiet: without the reason text (stages_invert_quiet). */
+static int stages_invert(const stagecal_vle *vle, double xd, double xb, double reflux,
+                         double murphree, const stagecal_stages_params *params, int quiet,
+                         stagecal_stages_result *res, stagecal_error *err)
 {
     if (!vle || !res)
         return error_set(err, STAGECAL_EINVAL, "stages_invert: %s is NULL", vle ? "res" : "vle");
@@ -469,7 +477,8 @@ int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double
         alpha_closed_fast(vle, xd, xb, reflux, par, want, res))
         return STAGECAL_OK;
     tl3 tl;
-    int rc = invert_core(vle, xd, xb, reflux, murphree, par, res, want == 1 ? &tl : NULL, err);
+    int rc =
+        invert_core(vle, xd, xb, reflux, murphree, par, quiet, res, want == 1 ? &tl : NULL, err);
     if (rc != STAGECAL_OK || res->status != STAGECAL_STAGES_OK || !want)
         return rc;
     if (want == 1 && isfinite(tl.d[TL_XD]) && isfinite(tl.d[TL_XB]) && isfinite(tl.d[TL_R])) {
@@ -480,6 +489,20 @@ int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double
     }
     sensitivities(vle, xd, xb, reflux, murphree, par, res);
     return rc;
+}
+
+int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double reflux,
+                           double murphree, const stagecal_stages_params *params,
+                           stagecal_stages_result *res, stagecal_error *err)
+{
+    return stages_invert(vle, xd, xb, reflux, murphree, params, 0, res, err);
+}
+
+int stages_invert_quiet(const stagecal_vle *vle, double xd, double xb, double reflux,
+                        double murphree, const stagecal_stages_params *params,
+                        stagecal_stages_result *res, stagecal_error *err)
+{
+    return stages_invert(vle, xd, xb, reflux, murphree, params, 1, res, err);
 }
 
 /* ---- minimum reflux ------------------------------------------------------------------- */

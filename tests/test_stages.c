@@ -28,6 +28,8 @@
 #include "stagecal/stages.h"
 #include "stagecal/vle.h"
 #include "testutil.h"
+/* after every system header: banned.h redefines libc names */
+#include "internal.h"
 
 /* ---- helpers ---------------------------------------------------------------------- */
 
@@ -735,6 +737,57 @@ static void stages_invalid_inputs(void **state)
     stagecal_vle_free(v);
 }
 
+/* The inversion without reason texts (stages_invert_quiet, physics_invert_quiet: run-log mode,
+ * which records the status alone) gives every member of the result bit for bit as the public
+ * call does, and an empty reason; checked on a grid over ok, pinch (low R), invalid (xB above
+ * xD, xD outside (0, 1)) and azeotrope (NRTL ethanol–water above x ≈ 0.89) inputs, for the
+ * closed form (α), stepping (NRTL) and each sensitivity mode. Tolerance: none (the same
+ * operations; only the text is skipped). Source: the public call itself, checked by the tests
+ * above (no outside source: an equivalence). */
+static void stages_quiet_same_numbers(void **state)
+{
+    (void)state;
+    stagecal_vle *vs[2] = {stagecal_vle_alloc_alpha(2.5, NULL), ethanol_water_nrtl()};
+    assert_non_null(vs[0]);
+    const double xds[] = {0.5, 0.8, 0.93, 0.95, 0.999, 1.2};
+    const double xbs[] = {0.05, 0.3, 0.6, 0.96};
+    const double rs[] = {0.2, 1.0, 4.0, INFINITY};
+    size_t nonok = 0;
+    for (int k = 0; k < 2; k++) {
+        for (int want = 0; want <= 2; want++) {
+            stagecal_stages_params par = stagecal_stages_default_params();
+            par.want_sensitivities = want;
+            for (size_t a = 0; a < sizeof xds / sizeof *xds; a++)
+                for (size_t b = 0; b < sizeof xbs / sizeof *xbs; b++)
+                    for (size_t c = 0; c < sizeof rs / sizeof *rs; c++) {
+                        stagecal_stages_result p, q;
+                        memset(&p, 0x55, sizeof p);
+                        memset(&q, 0xaa, sizeof q);
+                        int rp = stagecal_stages_invert(vs[k], xds[a], xbs[b], rs[c], 1.0, &par, &p,
+                                                        NULL);
+                        int rq =
+                            stages_invert_quiet(vs[k], xds[a], xbs[b], rs[c], 1.0, &par, &q, NULL);
+                        assert_int_equal(rp, rq);
+                        assert_int_equal(p.status, q.status);
+                        assert_memory_equal(&p.stages, &q.stages, sizeof p.stages);
+                        assert_memory_equal(&p.column_stages, &q.column_stages, sizeof p.stages);
+                        assert_memory_equal(&p.lv, &q.lv, sizeof p.lv);
+                        assert_memory_equal(&p.x_target, &q.x_target, sizeof p.x_target);
+                        assert_memory_equal(&p.dstages_dxd, &q.dstages_dxd, sizeof p.lv);
+                        assert_memory_equal(&p.dstages_dxb, &q.dstages_dxb, sizeof p.lv);
+                        assert_memory_equal(&p.dstages_dr, &q.dstages_dr, sizeof p.lv);
+                        assert_string_equal(q.reason, "");
+                        if (p.status != STAGECAL_STAGES_OK) {
+                            assert_true(p.reason[0] != '\0');
+                            nonok++;
+                        }
+                    }
+        }
+        stagecal_vle_free(vs[k]);
+    }
+    assert_true(nonok > 20); /* the grid reaches the other statuses */
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -754,6 +807,7 @@ int main(void)
         cmocka_unit_test(stages_step_into_pinch_reports_pinch_composition),
         cmocka_unit_test(stages_azeotrope_ethanol_water),
         cmocka_unit_test(stages_invalid_inputs),
+        cmocka_unit_test(stages_quiet_same_numbers),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }
