@@ -13,8 +13,10 @@
 
 #if defined(__GNUC__)
 #define SC_PRINTF(a, b) __attribute__((format(printf, a, b)))
+#define SC_NOINLINE __attribute__((noinline))
 #else
 #define SC_PRINTF(a, b)
+#define SC_NOINLINE
 #endif
 
 /* Fill err (may be NULL) with code and a formatted message; returns code. */

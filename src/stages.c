@@ -458,10 +458,11 @@ static int alpha_closed_fast(const stagecal_vle *vle, double xd, double xb, doub
     return 1;
 }
 
-/* stagecal_stages_invert; quiet: without the reason text (stages_invert_quiet). */
-static int stages_invert(const stagecal_vle *vle, double xd, double xb, double reflux,
-                         double murphree, const stagecal_stages_params *params, int quiet,
-                         stagecal_stages_result *res, stagecal_error *err)
+/* stagecal_stages_invert; quiet: without the reason text (stages_invert_quiet). Not inlined
+ * into the two: the closed form's fast path then stays inlined here, in its one caller. */
+SC_NOINLINE static int stages_invert(const stagecal_vle *vle, double xd, double xb, double reflux,
+                                     double murphree, const stagecal_stages_params *params,
+                                     int quiet, stagecal_stages_result *res, stagecal_error *err)
 {
     if (!vle || !res)
         return error_set(err, STAGECAL_EINVAL, "stages_invert: %s is NULL", vle ? "res" : "vle");
