@@ -24,6 +24,81 @@
 
 enum { TL_XD = 0, TL_XB, TL_R, TL_N };
 
+#if defined(TL_VECTOR)
+/* TL_VECTOR (stages_avx2.c): the derivatives as one GCC/Clang vector of four doubles (the
+ * fourth lane spare), each lane the same IEEE operation as the scalar expression below, so
+ * the same double; a core with 256-bit vectors does the three in one instruction. */
+typedef double tl_v4 __attribute__((vector_size(32)));
+
+typedef struct {
+    double v; /* value */
+    tl_v4 d;  /* ∂v/∂xD, ∂v/∂xB, ∂v/∂R, spare */
+} tl3;
+
+static inline tl3 tl_const(double v)
+{
+    tl3 r = {v, {0.0, 0.0, 0.0, 0.0}};
+    return r;
+}
+
+static inline tl3 tl_add(tl3 a, tl3 b)
+{
+    tl3 r = {a.v + b.v, a.d + b.d};
+    return r;
+}
+
+static inline tl3 tl_sub(tl3 a, tl3 b)
+{
+    tl3 r = {a.v - b.v, a.d - b.d};
+    return r;
+}
+
+static inline tl3 tl_mul(tl3 a, tl3 b)
+{
+    tl3 r = {a.v * b.v, a.d * b.v + a.v * b.d};
+    return r;
+}
+
+static inline tl3 tl_div(tl3 a, tl3 b)
+{
+    tl3 r;
+    r.v = a.v / b.v;
+    r.d = (a.d - r.v * b.d) / b.v;
+    return r;
+}
+
+static inline tl3 tl_scale(double s, tl3 a)
+{
+    tl3 r = {s * a.v, s * a.d};
+    return r;
+}
+
+static inline tl3 tl_log(tl3 a)
+{
+    tl3 r = {log(a.v), a.d / a.v};
+    return r;
+}
+
+static inline tl3 tl_sqrt(tl3 a)
+{
+    tl3 r;
+    r.v = sqrt(a.v);
+    r.d = a.d / (2.0 * r.v);
+    return r;
+}
+
+/* A seed: value v and derivative s in one lane (i), +0 in the others, as s·e_i (a finite s
+ * gives those lanes +0 or −0, and −0 + x is x; the seeds below are finite): whole-vector
+ * arithmetic, no lane inserts (an insert's VEX vmovq is an instruction valgrind 3.19 cannot
+ * decode). */
+static inline tl3 tl_seed(double v, int i, double s)
+{
+    static const tl_v4 e[TL_N] = {{1.0, 0.0, 0.0, 0.0}, {0.0, 1.0, 0.0, 0.0}, {0.0, 0.0, 1.0, 0.0}};
+    tl3 r = {v, s * e[i]};
+    return r;
+}
+
+#else
 typedef struct {
     double v;       /* value */
     double d[TL_N]; /* ∂v/∂xD, ∂v/∂xB, ∂v/∂R */
@@ -83,6 +158,16 @@ static inline tl3 tl_sqrt(tl3 a)
         r.d[i] = a.d[i] / (2.0 * r.v);
     return r;
 }
+
+/* A seed: value v and derivative s in lane i, 0 in the others. */
+static inline tl3 tl_seed(double v, int i, double s)
+{
+    tl3 r = tl_const(v);
+    r.d[i] = s;
+    return r;
+}
+
+#endif /* TL_VECTOR */
 
 /* ---- stages_smoker.c ------------------------------------------------------------------ */
 
@@ -165,6 +250,59 @@ static inline tl3 smoker_count_top(const smoker_consts *sc, tl3 m, tl3 xd, tl3 x
     return tl_div(tl_log(tl_div(unmb, u0mb)), sc->lna);
 }
 
+/* The closed form is used while x_target lies more than this above the pinch root
+ * [mol/mol]: closer, stepping's own rounding (its steps shrink towards the root) decides
+ * whether the pinch is reached, and stepping is kept. */
+#define CLOSED_MARGIN 1e-9
+
+/* What the fast path of the inversion computes (stages.c, alpha_closed_fast). */
+typedef struct {
+    double count, d[3]; /* column stages and ∂/∂(xD, xB, R) */
+    double lv, x_target;
+} alpha_closed_out;
+
+/* The fast path's numbers for constant α at E_MV = 1 and a finite R > 0 with 0 < xB < xD <
+ * 1: the line and its tangents, x_target, the pinch check at x_target, Smoker's count with its
+ * tangents, and the closed form's conditions (see stages.c, closed_form); cap = min(pinch
+ * scan, max stages). 1 with *o filled when they hold. The same expressions whichever tl3
+ * (stages.c scalar, stages_avx2.c vector): the same doubles. */
+static inline int alpha_closed_eval(double a, double xd, double xb, double reflux, double cap,
+                                    alpha_closed_out *o)
+{
+    /* the seeds: m = R/(R + 1), b = xD/(R + 1) and y*(xB) with their derivatives (each finite
+     * here: R > 0 finite, 0 < xB < 1), as invert_core sets them */
+    double q = 1.0 / (reflux + 1.0);
+    tl3 m = tl_seed(reflux / (reflux + 1.0), TL_R, q * q);
+    tl3 b = tl_add(tl_seed(xd / (reflux + 1.0), TL_XD, q), tl_seed(0.0, TL_R, -xd * q * q));
+    tl3 txd = tl_seed(xd, TL_XD, 1.0);
+    double dp = 1.0 + (a - 1.0) * xb; /* y*(xB) and its slope as alpha_query has them */
+    tl3 typot = tl_seed(a * xb / dp, TL_XB, a / (dp * dp));
+    tl3 txt = tl_div(tl_sub(typot, b), m);
+    double xt = txt.v;
+    if (!(xt > 0.0) || !(xt < xd) || !(a * xt / (1.0 + (a - 1.0) * xt) > m.v * xt + b.v))
+        return 0;
+    smoker_consts sc;
+    if (smoker_setup(tl_const(a), m, b, &sc) != 0 || !(txt.v - sc.k.v > CLOSED_MARGIN))
+        return 0;
+    tl3 c = smoker_count_top(&sc, m, txd, txt);
+    if (!(isfinite(c.v) && c.v >= 0.0 && c.v < cap))
+        return 0;
+    o->count = c.v;
+    o->d[0] = c.d[TL_XD];
+    o->d[1] = c.d[TL_XB];
+    o->d[2] = c.d[TL_R];
+    o->lv = m.v;
+    o->x_target = xt;
+    return 1;
+}
+
+/* alpha_closed_eval with the vector tl3, compiled for AVX2 (stages_avx2.c); call only where
+ * stages_have_avx2() (0 when this build has no such path). */
+int stages_alpha_closed_avx2(double a, double xd, double xb, double reflux, double cap,
+                             alpha_closed_out *o);
+int stages_have_avx2(void);
+
+#ifndef TL_VECTOR
 /* Closed-form inverse: the liquid after n (real) stages from x0. */
 double smoker_inverse(const smoker_consts *sc, double x0, double n);
 
@@ -211,5 +349,7 @@ int stepper_scan_pinch(stepper *st, double lo, double hi, size_t npts, int *foun
 tl3 stepper_crossing(tl3 m, tl3 b, tl3 x_prev, tl3 xn, tl3 yn, tl3 x_target);
 /* First azeotrope at or below xd, or −1 when none. */
 double stages_azeotrope_below(const stagecal_vle *vle, double xd);
+
+#endif /* !TL_VECTOR */
 
 #endif
