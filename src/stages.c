@@ -411,14 +411,6 @@ static void sensitivities(const stagecal_vle *vle, double xd, double xb, double 
     }
 }
 
-/* The common case of run-log mode on its own: constant α, E_MV = 1, finite R, no
- * azeotrope, the closed form applicable and ok. The same operations in the same order as
- * invert_core's path through reject_inputs, stepper_init, the line's tangents, x_target and
- * closed_form (alpha_closed_eval, stages_internal.h), without its generic machinery (status
- * texts, the stepper, the vle dispatch), so every number is the same double; on a core with
- * AVX2 the tangents as 4-lane vectors (stages_avx2.c), the same doubles again. Returns 1 when
- * res is filled; 0 for every other case, which invert_core then handles (it repeats the checks
- * and gives the reasons). */
 /* The fast path without AVX2: the same expressions as alpha_closed_eval, written with
  * closed_form (alpha_closed_eval compiled with the scalar tl3 in one function ran 1.3× slower
  * than this, which GCC vectorises better). */
@@ -461,6 +453,14 @@ static int alpha_closed_fast_scalar(const stagecal_vle *vle, double xd, double x
     return 1;
 }
 
+/* The common case of run-log mode on its own: constant α, E_MV = 1, finite R, no
+ * azeotrope, the closed form applicable and ok. The same operations in the same order as
+ * invert_core's path through reject_inputs, stepper_init, the line's tangents, x_target and
+ * closed_form (alpha_closed_eval, stages_internal.h), without its generic machinery (status
+ * texts, the stepper, the vle dispatch), so every number is the same double; on a core with
+ * AVX2 the tangents as 4-lane vectors (stages_avx2.c), the same doubles again. Returns 1 when
+ * res is filled; 0 for every other case, which invert_core then handles (it repeats the checks
+ * and gives the reasons). */
 static int alpha_closed_fast(const stagecal_vle *vle, double xd, double xb, double reflux,
                              const stagecal_stages_params *par, int want,
                              stagecal_stages_result *res)
