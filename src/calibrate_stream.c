@@ -231,12 +231,40 @@ static void slot_clear(struct slot *sl)
  * invert the batch before it). */
 struct batch {
     stagecal_runlog_stream *s;
-    struct slot *slots; /* nslots of them */
+    const stagecal_runlog *seen; /* the first reading's files, byte counts and checksums */
+    struct slot *slots;          /* nslots of them */
     size_t nslots, nt, nb;
     int end; /* 1: the stream is done (or failed: rc) */
     int rc;
     stagecal_error err;
 };
+
+/* The run logs changed between the two readings (the fit would mix the first reading's
+ * findings, pool and provenance with the second's rows): EDATA. */
+static int changed(stagecal_error *err, const char *file)
+{
+    return error_set(err, STAGECAL_EDATA,
+                     "%s: the run log changed while calibrate read it (its bytes differ between "
+                     "the two readings); nothing was fitted: calibrate again when it is complete",
+                     file);
+}
+
+/* The last file a log has begun (the one being read), for a message. */
+static const char *last_file(const stagecal_runlog *log)
+{
+    return log->nfiles ? log->files[log->nfiles - 1] : "the run logs";
+}
+
+/* STAGECAL_OK when the second reading's files (as the stream leaves them at its end) are the
+ * first's, byte count and checksum for each; else changed(). */
+static int same_bytes(const stagecal_runlog *seen, const stagecal_runlog *now, stagecal_error *err)
+{
+    for (size_t k = 0; k < seen->nfiles; k++)
+        if (k >= now->nfiles || now->checksum[k][0] != seen->checksum[k][0] ||
+            now->checksum[k][1] != seen->checksum[k][1])
+            return changed(err, seen->files[k]);
+    return now->nfiles == seen->nfiles ? STAGECAL_OK : changed(err, now->files[seen->nfiles]);
+}
 
 static void read_batch(struct batch *b)
 {
@@ -247,6 +275,8 @@ static void read_batch(struct batch *b)
         stagecal_runlog *lg = b->slots[b->nb].log;
         if ((b->rc = stagecal_runlog_stream_next(b->s, lg, &b->err)) != STAGECAL_OK || lg->n == 0) {
             b->end = 1;
+            if (b->rc == STAGECAL_OK) /* at the end the stream leaves every file's checksum */
+                b->rc = same_bytes(b->seen, lg, &b->err);
             return;
         }
         rows += lg->n;
@@ -285,6 +315,7 @@ static int second_pass(struct pass2 *p, const char *const *logs, size_t nlogs,
     struct batch b[2];
     for (int k = 0; k < 2; k++)
         b[k] = (struct batch){.s = s,
+                              .seen = cal->own_log,
                               .slots = all ? all + k * nslots : NULL,
                               .nslots = nslots,
                               .nt = nt,
@@ -302,7 +333,7 @@ static int second_pass(struct pass2 *p, const char *const *logs, size_t nlogs,
             reading = pthread_create(&th, NULL, read_main, next) == 0;
         }
         if (p->run + now->nb > cal->own_log->nruns)
-            rc = error_set(err, STAGECAL_EINTERNAL, "the run logs changed while being read");
+            rc = changed(err, last_file(now->slots[now->nb - 1].log));
         p->slots = now->slots;
         if (rc == STAGECAL_OK)
             rc = parallel_for(now->nb, par->threads, run_job, p, err);
@@ -339,7 +370,7 @@ static int second_pass(struct pass2 *p, const char *const *logs, size_t nlogs,
             *err = b[cur].err;
     }
     if (rc == STAGECAL_OK && (p->run != cal->own_log->nruns || p->row_base != cal->own_log->n))
-        rc = error_set(err, STAGECAL_EINTERNAL, "the run logs changed while being read");
+        rc = changed(err, last_file(cal->own_log));
     for (size_t t = 0; p->phs && t < nt; t++)
         stagecal_physics_free(p->phs[t]);
     for (size_t i = 0; all && i < 2 * nslots; i++) {

@@ -317,6 +317,60 @@ static void write_without_startup(const char *src, const char *dst, const char *
     fclose(out);
 }
 
+/* The progress callback of calibrate_log_changed_between_readings: when the second reading is
+ * about to start, one byte of the log's last line changes (the pot pressure 101.3 ↔ 101.4; same
+ * length, same rows). */
+static void change_log(void *ctx, const char *stage, double done)
+{
+    const char *path = ctx;
+    if (strcmp(stage, "inverting") != 0 || done != 0.2)
+        return;
+    FILE *f = fopen(path, "r+");
+    assert_non_null(f);
+    assert_int_equal(fseek(f, -2, SEEK_END), 0);
+    int c = fgetc(f);
+    assert_int_equal(fseek(f, -2, SEEK_END), 0);
+    assert_int_equal(fputc(c == '3' ? '4' : '3', f), c == '3' ? '4' : '3');
+    assert_int_equal(fclose(f), 0);
+}
+
+/* A log that changes between the streamed chain's two readings is refused (EDATA, naming the
+ * file), not fitted from a mix of the first reading's findings, pool and provenance and the
+ * second's rows: the same number of rows, one byte different. The held chain reads once and is
+ * not affected. Exact (a status). */
+static void calibrate_log_changed_between_readings(void **state)
+{
+    (void)state;
+    char dir[] = "/tmp/test_calibrate_XXXXXX", mar[64];
+    assert_non_null(mkdtemp(dir));
+    snprintf(mar, sizeof mar, "%s/mar.csv", dir);
+    write_without_startup(STAGECAL_DATASETS "/demo/logs/2025-03.csv", mar, "(none)");
+    const char *logs[1] = {mar};
+    for (int threads = 0; threads < 2; threads++) {
+        stagecal_calibrate_params par = stagecal_calibrate_default_params();
+        stagecal_calibration cal;
+        stagecal_error err;
+        par.stream = 1;
+        par.threads = (size_t)threads;
+        par.progress = change_log;
+        par.progress_ctx = mar;
+        assert_int_equal(stagecal_calibrate(STAGECAL_DATASETS "/columns/demo_benzene_toluene.json",
+                                            logs, 1, &par, &cal, &err),
+                         STAGECAL_EDATA);
+        assert_non_null(strstr(err.text, "mar.csv: the run log changed while calibrate read it"));
+        stagecal_calibration_free(&cal);
+        /* left as it is now: the next calibration reads the same bytes twice */
+        par.progress = NULL;
+        assert_int_equal(stagecal_calibrate(STAGECAL_DATASETS "/columns/demo_benzene_toluene.json",
+                                            logs, 1, &par, &cal, &err),
+                         STAGECAL_OK);
+        assert_int_equal(cal.streamed, 1);
+        stagecal_calibration_free(&cal);
+    }
+    remove(mar);
+    rmdir(dir);
+}
+
 /* Two time constants the same (bit for bit; the reason as text: the bytes after it are not
  * set). */
 static void assert_tau_equal(const stagecal_holdup_tau *b, const stagecal_holdup_tau *a)
@@ -456,6 +510,7 @@ int main(void)
         cmocka_unit_test(calibrate_leaves_flagged_run_out),
         cmocka_unit_test(calibrate_names_planted_drift),
         cmocka_unit_test(calibrate_streamed_equals_held),
+        cmocka_unit_test(calibrate_log_changed_between_readings),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }
