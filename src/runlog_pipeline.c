@@ -39,6 +39,7 @@ struct pipe {
     pthread_cond_t cv;
     struct slot *slots;
     size_t nslots;
+    size_t nthreads;   /* workers beside the reader */
     size_t next_take;  /* sequence number the next worker takes */
     size_t next_write; /* sequence number whose turn it is to write */
     int done;          /* the reader has handed out every run */
@@ -219,9 +220,29 @@ static int run_inline(struct pipe *p, stagecal_runlog_stream *s, stagecal_error 
     return rc;
 }
 
+/* Rows the runs in the slots may hold before the reader stops reading ahead and stops
+ * inverting runs itself: long runs (10^5 rows each) are then kept to one per worker and the one
+ * being read, as many as one worker keeps busy, so memory stays that of short runs. */
+#define READ_AHEAD_ROWS 65536
+
+/* Rows of the runs in the slots, and *used the slots in use; under the lock, no slot being
+ * read. */
+static size_t rows_held(const struct pipe *p, size_t *used)
+{
+    size_t rows = 0;
+    *used = 0;
+    for (size_t i = 0; i < p->nslots; i++)
+        if (p->slots[i].state != SLOT_FREE) {
+            (*used)++;
+            rows += p->slots[i].log->n;
+        }
+    return rows;
+}
+
 /* The reader's side: fills free slots in order until the stream ends or the work fails. With
  * every slot filled it does not wait: it inverts the next run in turn itself (and writes what
- * is due), so the core it runs on stays busy while the workers catch up. */
+ * is due), so the core it runs on stays busy while the workers catch up. Both only while the
+ * runs held are short (READ_AHEAD_ROWS). */
 static int feed(struct pipe *p, stagecal_runlog_stream *s, stagecal_error *err)
 {
     size_t seq = 0;
@@ -235,8 +256,10 @@ static int feed(struct pipe *p, stagecal_runlog_stream *s, stagecal_error *err)
                 sl = &p->slots[i];
         if (p->rc != STAGECAL_OK)
             break;
-        if (!sl) {
-            if (ph && (t = slot_to_take(p)) != NULL) {
+        size_t used, rows = rows_held(p, &used);
+        int few = rows < READ_AHEAD_ROWS; /* short runs: read ahead, help invert */
+        if (!sl || (used >= p->nthreads + 1 && !few)) {
+            if (few && ph && (t = slot_to_take(p)) != NULL) {
                 take_and_work(p, t, ph);
                 write_ready(p);
             } else {
@@ -273,7 +296,8 @@ int stagecal_runlog_invert_stream(stagecal_runlog_stream *s, const stagecal_colu
         return error_set(err, STAGECAL_EINVAL, "the inversion needs a column with a VLE model");
     struct pipe *p = calloc(1, sizeof *p);
     /* one being read, and for each worker one being inverted and one waiting (read ahead, or
-     * inverted and waiting for its turn to be written) */
+     * inverted and waiting for its turn to be written); runs that hold many rows are not read
+     * ahead, nor inverted by the reader (READ_AHEAD_ROWS) */
     size_t nslots = 2 * nthreads + 1;
     if (p)
         p->slots = calloc(nslots, sizeof *p->slots);
@@ -289,6 +313,7 @@ int stagecal_runlog_invert_stream(stagecal_runlog_stream *s, const stagecal_colu
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
     p->nslots = nslots;
+    p->nthreads = nthreads;
     p->col = col;
     p->murphree = murphree;
     p->par = params ? *params : stagecal_runlog_analysis_default_params();

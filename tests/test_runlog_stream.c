@@ -339,6 +339,43 @@ static void runlog_stream_measured_reflux_as_whole(void **state)
     free(csv);
 }
 
+/* Runs longer than the reader's read-ahead budget (src/runlog_pipeline.c, READ_AHEAD_ROWS =
+ * 65536 rows) beside short ones, so the stream switches between reading ahead (and the reader
+ * inverting runs itself) and keeping one run per worker: the same bytes as the whole log at 0
+ * to 3 threads. Invented rows: constant α = 2.5, xD falling 0.95 → 0.88 through each run, xB
+ * about 0.35, noise 0.002 and 0.005 (as tests/bench_invert.c). */
+static void runlog_stream_long_runs_as_whole(void **state)
+{
+    (void)state;
+    const size_t len[4] = {66000, 50, 66000, 300};
+    const char *path = STAGECAL_BUILD_DIR "/test_runlog_stream_long.csv";
+    FILE *f = fopen(path, "w");
+    assert_non_null(f);
+    fputs("run,time[s],W[kmol],xD[mol/mol],xB[mol/mol],R[-]\n", f);
+    unsigned long u = 12345;
+    for (size_t r = 0; r < 4; r++)
+        for (size_t k = 0; k < len[r]; k++) {
+            double a[2];
+            for (int j = 0; j < 2; j++) { /* a uniform in [−1, 1) from a linear congruence */
+                u = u * 6364136223846793005UL + 1442695040888963407UL;
+                a[j] = (double)(u >> 11) / 4503599627370496.0 - 1.0;
+            }
+            double x = (double)k / (double)len[r];
+            fprintf(f, "r%zu,%zu,%.4f,%.6f,%.6f,4\n", r, 10 * k, 10.0 - 2.0 * x,
+                    0.95 - 0.07 * x + 0.002 * a[0], 0.35 + 0.005 * a[1]);
+        }
+    assert_int_equal(fclose(f), 0);
+    stagecal_column col;
+    memset(&col, 0, sizeof col);
+    col.system.vle = stagecal_vle_alloc_alpha(2.5, NULL);
+    col.system.p_pa = 101325;
+    col.u.xd = 0.002;
+    col.u.xb = 0.005;
+    check_stream_inversion(&path, 1, &col, 2);
+    stagecal_vle_free(col.system.vle);
+    remove(path);
+}
+
 /* A log without a run column (the runs of demo 2025-01 and 2025-02 with the column cut off):
  * the reader finds the runs by time gaps and pot recharges as it reads (runlog_split.c), and
  * the stream hands out the same runs, rows, findings and inverted bytes as the whole file. */
@@ -450,6 +487,7 @@ int main(void)
         cmocka_unit_test(runlog_stream_bad_inputs_as_whole),
         cmocka_unit_test(runlog_stream_inversion_as_whole),
         cmocka_unit_test(runlog_stream_measured_reflux_as_whole),
+        cmocka_unit_test(runlog_stream_long_runs_as_whole),
         cmocka_unit_test(runlog_stream_found_runs_as_whole),
         cmocka_unit_test(runlog_plain_lines_as_libcsv),
     };
