@@ -172,7 +172,8 @@ int stagecal_batch_band_sample_scatter(const stagecal_batch_problem *pb, const s
     for (size_t k = 0; k < m->n_design && k < m->form.p; k++) {
         double c[STAGECAL_FORM_MAXP] = {0}, dk;
         c[k] = 1;
-        if (stagecal_regress_bm_dof(m->design, m->n_design, m->form.p, c, &dk, NULL) == STAGECAL_OK)
+        if (stagecal_regress_contrast_dof(m->design, m->n_design, m->form.p, m->design_run, c, &dk,
+                                          NULL) == STAGECAL_OK)
             nu = fmin(nu, dk);
     }
     band->dof = nu;

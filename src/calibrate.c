@@ -191,7 +191,8 @@ static int fill_model(stagecal_calibration *cal, const stagecal_calibrate_params
      * composition-space fit whose windows do not all have stage counts) */
     mo->dof = fit->sigma_dof > 0 ? fmin(fit->dof, fit->sigma_dof) : fit->dof;
     /* with HC2_BM the fit's design goes along: each band's dof is its own contrast's */
-    if (fit->design && (rc = stagecal_model_set_design(mo, fit->design, fit->n, err)))
+    if (fit->design && ((rc = stagecal_model_set_design(mo, fit->design, fit->n, err)) ||
+                        (rc = stagecal_model_set_design_run(mo, fit->cluster, err))))
         return rc;
     /* σ of one new window by R: the windows' scatter function (stagecal/scatter.h), its
      * shape from the windows' own errors (the quadratic-detrend shape of
@@ -283,6 +284,18 @@ static int run_fits(stagecal_calibration *cal, const stagecal_calibrate_params *
     if (!arr)
         return error_set(err, STAGECAL_ENOMEM, "out of memory");
     cal->nev_stage = stagecal_evidence_points(ev, nev, arr, &d);
+    /* the stage-space points' runs, in the order stagecal_evidence_points keeps them: the
+     * clusters of the CR2_RUN covariance */
+    size_t *run = malloc((nev ? 2 * nev : 1) * sizeof *run), nrun = 0;
+    if (!run) {
+        free(arr);
+        return error_set(err, STAGECAL_ENOMEM, "out of memory");
+    }
+    for (size_t i = 0; i < nev; i++) {
+        run[nev + i] = ev[i].run; /* every window: the composition-space fit's */
+        if (ev[i].stages_ok)
+            run[nrun++] = ev[i].run;
+    }
     stagecal_regress_params rp = stagecal_regress_default_params();
     rp.level = par->level;
     rp.bootstrap = par->bootstrap;
@@ -291,12 +304,15 @@ static int run_fits(stagecal_calibration *cal, const stagecal_calibrate_params *
     rp.robust = par->robust;
     rp.cov_kind = par->cov_kind;
     rp.allow_undetermined = par->allow_undetermined;
+    rp.cluster = run;
     if ((rc = choose_form(cal, par, &d, &rp, &form, err))) {
         free(arr);
+        free(run);
         return rc;
     }
     if (form.uses_load && !d.f_load) {
         free(arr);
+        free(run);
         return error_set(err, STAGECAL_EDATA,
                          "form '%s' needs the vapour load (F-factor), but not every window has one "
                          "(the logs need V or Q, and the column file the diameter)",
@@ -311,6 +327,8 @@ static int run_fits(stagecal_calibration *cal, const stagecal_calibrate_params *
                            : error_set(&e2, STAGECAL_EDATA, "no window has enough ok stage counts");
     snprintf(cal->stage_message, sizeof cal->stage_message, "%s", e2.text);
     free(arr);
+    /* the composition-space fit has one residual per window, every window */
+    rp.cluster = run + nev;
 
     progress(par, "fitting", 0.8);
     cal->comp_status = CAL_NOT_RUN;
@@ -325,6 +343,7 @@ static int run_fits(stagecal_calibration *cal, const stagecal_calibrate_params *
                                                     &form, theta0, &rp, &cal->comp_fit, &e2);
         snprintf(cal->comp_message, sizeof cal->comp_message, "%s", e2.text);
     }
+    free(run);
 
     /* readings at an analyser's limit: the censored likelihood, which takes them */
     int censored = par->method == STAGECAL_CAL_CENSORED;
@@ -371,6 +390,30 @@ static int add_warnings(stagecal_calibration *cal, const stagecal_calibrate_para
     for (size_t k = 0; k < cal->column->n_warnings; k++)
         if ((rc = stagecal_model_add_warning(&cal->model, cal->column->warnings[k], err)))
             return rc;
+    /* the run-clustered covariance: too few runs, or the censored-likelihood fit */
+    const stagecal_regress_result *uf = stagecal_calibration_fit(cal);
+    if (par->cov_kind == STAGECAL_COV_CR2_RUN && cal->used != STAGECAL_MODEL_CENSORED &&
+        uf->cov_kind != STAGECAL_COV_CR2_RUN) {
+        size_t nr = 0;
+        for (size_t r = 0; r < cal->log->nruns; r++) {
+            int has = 0;
+            for (size_t i = 0; i < cal->evidence.n && !has; i++)
+                has = cal->evidence.ev[i].run == r &&
+                      (cal->used != STAGECAL_MODEL_STAGE_SPACE || cal->evidence.ev[i].stages_ok);
+            nr += has;
+        }
+        if ((rc = warn(cal, err,
+                       "covariance cr2-run needs windows from at least %d runs, %zu run(s) have "
+                       "them: the fit uses %s instead (windows taken as independent; a "
+                       "run-to-run offset is not in its intervals)",
+                       STAGECAL_CR2_MIN_CLUSTERS, nr, stagecal_regress_cov_name(uf->cov_kind))))
+            return rc;
+    }
+    if (par->cov_kind == STAGECAL_COV_CR2_RUN && cal->used == STAGECAL_MODEL_CENSORED &&
+        (rc = warn(cal, err,
+                   "covariance cr2-run does not apply to the censored-likelihood fit: its "
+                   "intervals take the windows as independent")))
+        return rc;
     const stagecal_runlog_soft *so = &cal->log->soft;
     if ((so->xd_inferred || so->xb_inferred) &&
         (rc = warn(cal, err,

@@ -227,7 +227,7 @@ static void linear_estimate(const stagecal_history_fit *fit, const double *grad,
                             double dof_cap, stagecal_history_estimate *e)
 {
     size_t P = fit->n_beta;
-    double dof = fmin(history_bm_dof(fit->work, grad), dof_cap);
+    double dof = fmin(cr2_bm_dof(fit->work, grad), dof_cap);
     double var = 0;
     for (size_t a = 0; a < P; a++)
         for (size_t b = 0; b < P; b++)
@@ -511,7 +511,7 @@ static int crossing(stagecal_history_fit *fit, const stagecal_history_params *pa
     double tau_hat = h * k > 0 ? (h * m - par->required) / (h * k) : 0;
     for (size_t a = 0; a < P; a++)
         ga[a] = h * k > 0 ? ga[a] - tau_hat * gb[a] : gb[a];
-    double dof = fmin(history_bm_dof(fit->work, ga), (double)sg->n_runs - 1);
+    double dof = fmin(cr2_bm_dof(fit->work, ga), (double)sg->n_runs - 1);
     free(at.g);
     stagecal_trend_fit tf;
     memset(&tf, 0, sizeof tf);
@@ -627,7 +627,7 @@ static int keep_work(stagecal_history_fit *fit, const gsl_matrix *J, const doubl
                      stagecal_error *err)
 {
     size_t m = J->size1, P = J->size2;
-    struct stagecal_history_work *wk = calloc(1, sizeof *wk);
+    struct cr2_work *wk = calloc(1, sizeof *wk);
     if (wk) {
         fit->work = wk;
         wk->xt = malloc((2 * m * P + P * P) * sizeof *wk->xt);
@@ -771,7 +771,7 @@ int stagecal_history_fit_points(const stagecal_form *form, const stagecal_histor
     if ((rc = keep_work(fit, J, w, B, cl, nr, n, err)))
         goto done;
     gsl_matrix_view Dv = gsl_matrix_view_array(fit->work->d, m, P);
-    if ((rc = history_sandwich(J, w, res, cl, nr, B, &V.matrix, &Dv.matrix, err)))
+    if ((rc = cr2_sandwich(J, w, res, cl, nr, B, &V.matrix, &Dv.matrix, err)))
         goto done;
     for (size_t i = 0, j = 0; i < n; i++)
         fit->resid[i] = keep[i] ? res[j++] : NAN;

@@ -85,6 +85,7 @@ void stagecal_model_free(stagecal_model *m)
     free(m->warnings);
     free(m->command_line);
     free(m->design);
+    free(m->design_run);
     stagecal_model_init(m);
 }
 
@@ -188,8 +189,23 @@ int stagecal_model_set_design(stagecal_model *m, const double *x, size_t n, stag
     if (k > 0)
         memcpy(copy, x, k * sizeof *copy);
     free(m->design);
+    free(m->design_run);
     m->design = copy;
+    m->design_run = NULL;
     m->n_design = k > 0 ? n : 0;
+    return STAGECAL_OK;
+}
+
+int stagecal_model_set_design_run(stagecal_model *m, const size_t *cl, stagecal_error *err)
+{
+    size_t *copy = NULL;
+    if (cl && m->n_design > 0) {
+        if (!(copy = malloc(m->n_design * sizeof *copy)))
+            return error_set(err, STAGECAL_ENOMEM, "out of memory copying the design's runs");
+        memcpy(copy, cl, m->n_design * sizeof *copy);
+    }
+    free(m->design_run);
+    m->design_run = copy;
     return STAGECAL_OK;
 }
 
@@ -349,6 +365,19 @@ int model_check(const stagecal_model *m, const char *source, int code, stagecal_
         stagecal_error e2;
         if (stagecal_regress_bm_dof(m->design, m->n_design, p, c, &dof, &e2) != STAGECAL_OK)
             FAIL("design: %s", e2.text);
+        if (m->design_run) {
+            size_t G = 0;
+            for (size_t i = 0; i < m->n_design; i++)
+                G = m->design_run[i] + 1 > G ? m->design_run[i] + 1 : G;
+            if (G < STAGECAL_CR2_MIN_CLUSTERS || G > m->n_design)
+                FAIL("design_run: %zu runs for %zu rows (expected %d to the rows)", G, m->n_design,
+                     STAGECAL_CR2_MIN_CLUSTERS);
+            if (stagecal_regress_contrast_dof(m->design, m->n_design, p, m->design_run, c, &dof,
+                                              &e2) != STAGECAL_OK)
+                FAIL("design_run: %s", e2.text);
+        }
+    } else if (m->design_run) {
+        FAIL("design_run without a design");
     }
     if (m->scatter.n > 0) {
         stagecal_error e2;
@@ -451,9 +480,9 @@ int stagecal_model_eval(const stagecal_model *m, double r, double f_load, double
         double d = stagecal_scatter_dof(&m->scatter, r);
         sdof = isfinite(d) ? fmin(d, m->dof) : m->dof;
     }
-    int rc = stagecal_regress_band_design(&m->form, m->theta, m->cov, sigma, 1.0,
-                                          m->design ? sdof : m->dof, m->design, m->n_design, level,
-                                          r, f_load, &band, err);
+    int rc = stagecal_regress_band_clustered(&m->form, m->theta, m->cov, sigma, 1.0,
+                                             m->design ? sdof : m->dof, m->design, m->design_run,
+                                             m->n_design, level, r, f_load, &band, err);
     if (rc != STAGECAL_OK)
         return rc;
     if (!m->design && m->scatter.n > 0) {

@@ -120,7 +120,8 @@ static json_t *build_doc(const stagecal_model *m)
      * they would ignore; a scatter function whose per-R σ they would ignore) and read
      * everything else */
     bad |= json_object_set_new(doc, "version",
-                               json_integer(m->scatter.n > 0                       ? 4
+                               json_integer(m->design_run                          ? 5
+                                            : m->scatter.n > 0                     ? 4
                                             : m->n_design > 0                      ? 3
                                             : m->method == STAGECAL_MODEL_CENSORED ? 2
                                                                                    : 1));
@@ -157,19 +158,29 @@ static json_t *build_doc(const stagecal_model *m)
                       "means nothing"));
     }
     if (m->n_design > 0) {
-        json_t *rows = json_array();
+        /* the rows and (format version 5) each row's run */
+        json_t *rows = json_array(), *runs = m->design_run ? json_array() : NULL;
         for (size_t i = 0; rows && i < m->n_design; i++) {
             json_t *row = json_array();
             for (size_t k = 0; row && k < p; k++)
                 bad |= json_array_append_new(row, json_real(m->design[i * p + k]));
             bad |= json_array_append_new(rows, row ? row : json_null());
+            if (runs)
+                bad |= json_array_append_new(runs, json_integer((json_int_t)m->design_run[i]));
         }
-        bad |= json_object_set_new(json_object_get(doc, "correlation"), "design",
-                                   rows ? rows : json_null());
+        json_t *corr = json_object_get(doc, "correlation");
+        bad |= json_object_set_new(corr, "design", rows ? rows : json_null());
         bad |= json_object_set_new(units, "design",
                                    json_string("standardised Jacobian of the fit at the "
                                                "parameters, one row per residual: the "
                                                "Bell-McCaffrey dof of every band comes from it"));
+        if (m->design_run)
+            bad |= json_object_set_new(corr, "design_run", runs ? runs : json_null()) |
+                   json_object_set_new(units, "design_run",
+                                       json_string("the run (cluster, from 0) of each design row: "
+                                                   "the covariance is clustered by run and every "
+                                                   "band's dof is the clustered Bell-McCaffrey "
+                                                   "one"));
     }
     if (m->scatter.n > 0) {
         size_t n = m->scatter.n;
@@ -404,7 +415,26 @@ static int read_design(reader *rd, const json_t *c, stagecal_model *m)
     if (!m->design)
         return error_set(rd->jr.err, STAGECAL_ENOMEM, "out of memory for %zu design rows", n);
     m->n_design = n;
-    return read_rows(rd, d, "correlation.design", n, p, m->design);
+    TRY(read_rows(rd, d, "correlation.design", n, p, m->design));
+    /* correlation.design_run (format version 5; absent: windows independent) */
+    json_t *cl = NULL;
+    TRY(jr_array(J, c, "design_run", "correlation.design_run", 0, &cl));
+    if (!cl)
+        return STAGECAL_OK;
+    if (json_array_size(cl) != n)
+        return RFAIL(rd, "correlation.design_run: %zu entries for %zu design rows",
+                     json_array_size(cl), n);
+    m->design_run = malloc(n * sizeof *m->design_run);
+    if (!m->design_run)
+        return error_set(rd->jr.err, STAGECAL_ENOMEM, "out of memory for %zu design runs", n);
+    for (size_t i = 0; i < n; i++) {
+        json_t *v = json_array_get(cl, i);
+        if (!json_is_integer(v) || json_integer_value(v) < 0 || (size_t)json_integer_value(v) >= n)
+            return RFAIL(rd, "correlation.design_run[%zu]: expected an integer from 0 to %zu", i,
+                         n - 1);
+        m->design_run[i] = (size_t)json_integer_value(v);
+    }
+    return STAGECAL_OK;
 }
 
 /* correlation.scatter (format version 4; absent: one σ for every R). */

@@ -80,17 +80,20 @@ const char *stagecal_regress_cov_name(stagecal_cov_kind kind)
     static const char *const names[] = {[STAGECAL_COV_MODEL] = "model",
                                         [STAGECAL_COV_HC3] = "hc3",
                                         [STAGECAL_COV_HC2] = "hc2",
-                                        [STAGECAL_COV_HC2_BM] = "hc2-bm"};
+                                        [STAGECAL_COV_HC2_BM] = "hc2-bm",
+                                        [STAGECAL_COV_CR2_RUN] = "cr2-run"};
     return NAME_OF(names, kind);
 }
 
 const char *stagecal_regress_cov_label(stagecal_cov_kind kind)
 {
-    static const char *const names[] = {[STAGECAL_COV_MODEL] = "s^2 times the inverse information",
-                                        [STAGECAL_COV_HC3] = "the HC3 sandwich",
-                                        [STAGECAL_COV_HC2] = "the HC2 sandwich",
-                                        [STAGECAL_COV_HC2_BM] =
-                                            "the HC2 sandwich with Bell-McCaffrey dof"};
+    static const char *const names[] = {
+        [STAGECAL_COV_MODEL] = "s^2 times the inverse information",
+        [STAGECAL_COV_HC3] = "the HC3 sandwich",
+        [STAGECAL_COV_HC2] = "the HC2 sandwich",
+        [STAGECAL_COV_HC2_BM] = "the HC2 sandwich with Bell-McCaffrey dof",
+        [STAGECAL_COV_CR2_RUN] = "the CR2 sandwich clustered by run with Bell-McCaffrey "
+                                 "dof"};
     return NAME_OF(names, kind);
 }
 
@@ -466,9 +469,11 @@ void stagecal_regress_result_free(stagecal_regress_result *result)
     free(result->weights);
     free(result->band);
     free(result->design);
+    free(result->cluster);
     result->weights = NULL;
     result->band = NULL;
     result->design = NULL;
+    result->cluster = NULL;
     result->nband = 0;
 }
 

@@ -23,6 +23,16 @@ int stagecal_regress_band_design(const stagecal_form *form, const double *theta,
                                  size_t n_x, double level, double r, double f_load,
                                  stagecal_band *out, stagecal_error *err)
 {
+    return stagecal_regress_band_clustered(form, theta, cov, sigma, obs_sigma, dof, x, NULL, n_x,
+                                           level, r, f_load, out, err);
+}
+
+int stagecal_regress_band_clustered(const stagecal_form *form, const double *theta,
+                                    const double *cov, double sigma, double obs_sigma, double dof,
+                                    const double *x, const size_t *cluster, size_t n_x,
+                                    double level, double r, double f_load, stagecal_band *out,
+                                    stagecal_error *err)
+{
     double g[STAGECAL_FORM_MAXP], value;
     if (!form || !theta || !cov || !out)
         return error_set(err, STAGECAL_EINVAL, "band: form, theta, cov and out are required");
@@ -58,7 +68,7 @@ int stagecal_regress_band_design(const stagecal_form *form, const double *theta,
         var = 0;
     double obs = sigma * obs_sigma, vo = obs * obs, dof_fit = dof, dof_pred = dof;
     if (x && n_x > 0 && var > 0) {
-        int rc = stagecal_regress_bm_dof(x, n_x, form->p, g, &dof_fit, err);
+        int rc = stagecal_regress_contrast_dof(x, n_x, form->p, cluster, g, &dof_fit, err);
         if (rc != STAGECAL_OK)
             return rc;
         /* Welch–Satterthwaite: se_pred² = se_fit² (dof_fit) + σ²·obs² (dof) */
@@ -128,9 +138,9 @@ int regress_band_grid(const stagecal_regress_params *prm, stagecal_regress_resul
                                                            (double)(nr - 1)
                                         : res->r_min)
                               : INFINITY;
-            int rc = stagecal_regress_band_design(&res->form, res->theta, res->cov, res->sigma_obs,
-                                                  1.0, dof_sigma, res->design, res->n, res->level,
-                                                  r, fs[j], &res->band[res->nband], err);
+            int rc = stagecal_regress_band_clustered(
+                &res->form, res->theta, res->cov, res->sigma_obs, 1.0, dof_sigma, res->design,
+                res->cluster, res->n, res->level, r, fs[j], &res->band[res->nband], err);
             if (rc != STAGECAL_OK)
                 return rc;
             res->nband++;

@@ -15,6 +15,7 @@
 #include <gsl/gsl_linalg.h>
 #include <math.h>
 
+#include "cr2.h"
 #include "internal.h"
 #include "parallel.h"
 
@@ -101,4 +102,15 @@ int stagecal_regress_bm_dof(const double *x, size_t n, size_t p, const double *c
     /* (Σλ)² / Σλ² lies in [1, rank] = [1, n − p]; the clamp only catches rounding */
     *dof = fmin(fmax(cac * cac / den, 1.0), (double)(n - p));
     return STAGECAL_OK;
+}
+
+int stagecal_regress_contrast_dof(const double *x, size_t n, size_t p, const size_t *cluster,
+                                  const double *c, double *dof, stagecal_error *err)
+{
+    if (!cluster)
+        return stagecal_regress_bm_dof(x, n, p, c, dof, err);
+    if (p > STAGECAL_FORM_MAXP)
+        return error_set(err, STAGECAL_EINVAL, "cluster dof: %zu values per row (at most %d)", p,
+                         STAGECAL_FORM_MAXP);
+    return cr2_design_dof(x, n, p, cluster, c, dof, err);
 }

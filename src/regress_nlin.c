@@ -25,6 +25,7 @@
 #include <gsl/gsl_linalg.h>
 #include <gsl/gsl_multifit_nlinear.h>
 
+#include "cr2.h"
 #include "internal.h"
 
 struct stagecal_regress_nlin {
@@ -369,31 +370,74 @@ static void set_intervals(stagecal_regress_result *res)
     }
 }
 
-/* For HC2_BM: keeps the standardised Jacobian (J with column k times cn[k]) in res->design
- * and the Bell–McCaffrey dof of every parameter in res->param_dof. ENOMEM; EDATA from the
- * dof (a rank-deficient design cannot reach here: the model's covariance exists). */
-static int keep_design(const gsl_matrix *J, const double *cn, stagecal_regress_result *res,
-                       stagecal_error *err)
+/* For HC2_BM and CR2_RUN: keeps the standardised Jacobian (J with column k times cn[k]) in
+ * res->design (and for CR2_RUN the clusters cl in res->cluster) and every parameter's
+ * Bell–McCaffrey dof in res->param_dof. ENOMEM; EDATA from the dof (a rank-deficient design
+ * cannot reach here: the model's covariance exists). */
+static int keep_design(const gsl_matrix *J, const double *cn, const size_t *cl,
+                       stagecal_regress_result *res, stagecal_error *err)
 {
     size_t n = J->size1, p = J->size2;
     free(res->design);
+    free(res->cluster);
+    res->cluster = NULL;
     res->design = malloc(n * p * sizeof *res->design);
-    if (!res->design)
+    if (!res->design || (cl && !(res->cluster = malloc(n * sizeof *res->cluster)))) {
+        free(res->design);
+        res->design = NULL;
         return error_set(err, STAGECAL_ENOMEM, "regress: out of memory for the design");
+    }
+    if (cl)
+        memcpy(res->cluster, cl, n * sizeof *cl);
     for (size_t r = 0; r < n; r++)
         for (size_t k = 0; k < p; k++)
             res->design[r * p + k] = gsl_matrix_get(J, r, k) * cn[k];
     for (size_t k = 0; k < p; k++) {
         double c[STAGECAL_FORM_MAXP] = {0};
         c[k] = 1;
-        int rc = stagecal_regress_bm_dof(res->design, n, p, c, &res->param_dof[k], err);
+        int rc = stagecal_regress_contrast_dof(res->design, n, p, res->cluster, c,
+                                               &res->param_dof[k], err);
         if (rc != STAGECAL_OK) {
             free(res->design);
+            free(res->cluster);
             res->design = NULL;
+            res->cluster = NULL;
             return rc;
         }
     }
     return STAGECAL_OK;
+}
+
+/* The CR2 sandwich clustered by cl (G clusters) of the equilibrated Jacobian J with the
+ * weighted residuals rv, in the parameters' units into C (which holds (JᵀJ)⁻¹ in them on
+ * entry). 0, or −1 when out of memory. */
+static int sandwich_cr2(const gsl_matrix *J, const double *cn, const gsl_vector *rv,
+                        const size_t *cl, size_t G, gsl_matrix *C)
+{
+    size_t n = J->size1, p = J->size2;
+    gsl_matrix *B = gsl_matrix_alloc(p, p), *V = gsl_matrix_alloc(p, p);
+    gsl_matrix *D = gsl_matrix_alloc(n, p);
+    double *one = malloc(n * sizeof *one);
+    int bad = !B || !V || !D || !one;
+    if (!bad) {
+        for (size_t i = 0; i < n; i++)
+            one[i] = 1.0;
+        for (size_t a = 0; a < p; a++)
+            for (size_t b = 0; b < p; b++)
+                gsl_matrix_set(B, a, b, gsl_matrix_get(C, a, b) * cn[a] * cn[b]);
+        bad = cr2_sandwich(J, one, rv->data, cl, G, B, V, D, NULL) != STAGECAL_OK;
+    }
+    if (!bad)
+        for (size_t a = 0; a < p; a++)
+            for (size_t b = 0; b < p; b++)
+                gsl_matrix_set(C, a, b,
+                               0.5 * (gsl_matrix_get(V, a, b) + gsl_matrix_get(V, b, a)) /
+                                   (cn[a] * cn[b]));
+    free(one);
+    gsl_matrix_free(D);
+    gsl_matrix_free(V);
+    gsl_matrix_free(B);
+    return bad ? -1 : 0;
 }
 
 int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta, int scale,
@@ -451,7 +495,9 @@ int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta,
     res->cov_kind = STAGECAL_COV_MODEL;
     res->tquant = gsl_cdf_tdist_Pinv(0.5 + 0.5 * prm.level, res->dof);
     free(res->design);
+    free(res->cluster);
     res->design = NULL;
+    res->cluster = NULL;
     for (size_t k = 0; k < p; k++)
         res->param_dof[k] = res->dof;
     for (size_t i = 0; i < p; i++) {
@@ -474,21 +520,38 @@ int stagecal_regress_covar(const stagecal_regress_fdf *fdf, const double *theta,
     }
     /* identifiability is judged on the model's covariance (above); the sandwich replaces it
      * only where every variance it gives is positive */
-    if (rc == STAGECAL_OK && prm.cov_kind != STAGECAL_COV_MODEL &&
-        sandwich(J, cn, rv, prm.cov_kind == STAGECAL_COV_HC3 ? 2 : 1, C) == 0) {
+    /* CR2_RUN needs the points' clusters, at least STAGECAL_CR2_MIN_CLUSTERS of them;
+     * with fewer it is HC2_BM (result.cov_kind says so) */
+    stagecal_cov_kind want = prm.cov_kind;
+    size_t *cl = NULL, G = 0;
+    if (rc == STAGECAL_OK && want == STAGECAL_COV_CR2_RUN) {
+        if (prm.cluster && (cl = malloc(n * sizeof *cl)))
+            G = cr2_clusters(prm.cluster, n, cl);
+        else if (prm.cluster)
+            rc = error_set(err, STAGECAL_ENOMEM, "regress: out of memory for the clusters");
+        if (G < STAGECAL_CR2_MIN_CLUSTERS)
+            want = STAGECAL_COV_HC2_BM;
+    }
+    int sw = -1;
+    if (rc == STAGECAL_OK && want == STAGECAL_COV_CR2_RUN)
+        sw = sandwich_cr2(J, cn, rv, cl, G, C);
+    else if (rc == STAGECAL_OK && want != STAGECAL_COV_MODEL)
+        sw = sandwich(J, cn, rv, want == STAGECAL_COV_HC3 ? 2 : 1, C);
+    if (sw == 0) {
         int ok = 1;
         for (size_t i = 0; i < p; i++)
             ok &= isfinite(gsl_matrix_get(C, i, i)) && gsl_matrix_get(C, i, i) > 0;
-        if (ok && prm.cov_kind == STAGECAL_COV_HC2_BM)
-            rc = keep_design(J, cn, res, err);
+        if (ok && (want == STAGECAL_COV_HC2_BM || want == STAGECAL_COV_CR2_RUN))
+            rc = keep_design(J, cn, want == STAGECAL_COV_CR2_RUN ? cl : NULL, res, err);
         if (ok && rc == STAGECAL_OK) {
             for (size_t i = 0; i < p; i++)
                 for (size_t j = 0; j < p; j++)
                     res->cov[i * p + j] = gsl_matrix_get(C, i, j);
             set_intervals(res);
-            res->cov_kind = prm.cov_kind;
+            res->cov_kind = want;
         }
     }
+    free(cl);
 done:
     gsl_vector_free(rv);
     gsl_vector_free(work);

@@ -303,6 +303,11 @@ static void cov_note(stagecal_report_doc *d, const stagecal_calibration *cal)
         f->cov_kind == STAGECAL_COV_MODEL
             ? "s\xc2\xb2 times the inverse information (the windows' stated errors, scaled by "
               "the residual variance)"
+        : f->cov_kind == STAGECAL_COV_CR2_RUN
+            ? "CR2 sandwich clustered by run (Bell & McCaffrey 2002): from each run's residuals "
+              "together, so that windows of one run may share an error; every interval and band "
+              "uses Student t at its own Bell\xe2\x80\x93McCaffrey degrees of freedom "
+              "(Pustejovsky & Tipton 2018), at most the runs less one"
             : report_doc_str(d,
                              "%s sandwich: from each window's own residual, inflated by its "
                              "leverage (MacKinnon & White 1985), not only from the windows' "

@@ -865,9 +865,9 @@ static void model_load_refuses_newer_version(void **state)
     char *text = slurp(path, &n);
     char *s = strstr(text, "\"version\": 1");
     assert_non_null(s);
-    s[strlen("\"version\": ")] = '5';
+    s[strlen("\"version\": ")] = '6';
     spit(path, text, n);
-    snprintf(want, sizeof want, "%s: written by a newer stagecal (format version 5 > 4)", path);
+    snprintf(want, sizeof want, "%s: written by a newer stagecal (format version 6 > 5)", path);
     expect_load_error(path, STAGECAL_EVERSION, want);
     free(text);
 }
@@ -1125,6 +1125,67 @@ static void model_eval_uses_design_dof(void **state)
 
 /* The same band by the design-matrix formula x0ᵀ(XᵀX)⁻¹x0 (2×2 inverse written out), on
  * a model that went through a file (so what a planner loads is what is checked). */
+/* A design with its rows' runs (format version 5): the file keeps them, every band's dof is
+ * the run-clustered CR2 Bell–McCaffrey dof of its own contrast (stagecal_regress_contrast_dof,
+ * checked against numpy in test_regress_bm.c), and for a balanced mean of G runs it is G − 1
+ * (Pustejovsky & Tipton 2018, J. Bus. Econ. Stat. 36, the balanced one-way design; derived in
+ * test_regress_bm.c). Tolerance 1e-12 relative: the same computation after a JSON round trip
+ * of 17-digit numbers. Fewer than 4 runs is refused by the check. */
+static void model_eval_uses_design_run_dof(void **state)
+{
+    (void)state;
+    stagecal_model m, back;
+    stagecal_model_point pt;
+    stagecal_error err;
+    char dir[1100], path[1200];
+    double x[2 * NPTS], g[2] = {1, 1 / 2.85}, k, k_hc2;
+    size_t run[NPTS];
+    linear_model(&m);
+    for (size_t i = 0; i < NPTS; i++) {
+        x[2 * i] = 1;
+        x[2 * i + 1] = 1 / pts_r[i];
+        run[i] = i % 4;
+    }
+    assert_int_equal(stagecal_model_set_design(&m, x, NPTS, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_set_design_run(&m, run, &err), STAGECAL_OK);
+    subdir(dir, sizeof dir, "design-run");
+    assert_int_equal(stagecal_model_write(&m, dir, path, sizeof path, &err), STAGECAL_OK);
+    size_t n;
+    char *text = slurp(path, &n);
+    assert_non_null(strstr(text, "\"version\": 5"));
+    free(text);
+    stagecal_model_init(&back);
+    assert_int_equal(stagecal_model_load(path, &back, &err), STAGECAL_OK);
+    assert_non_null(back.design_run);
+    for (size_t i = 0; i < NPTS; i++)
+        assert_int_equal(back.design_run[i], run[i]);
+    assert_int_equal(stagecal_model_eval(&back, 2.85, NAN, 0.95, &pt, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_regress_contrast_dof(x, NPTS, 2, run, g, &k, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_regress_bm_dof(x, NPTS, 2, g, &k_hc2, &err), STAGECAL_OK);
+    assert_rel(pt.dof_fit, k, 1e-12, "band dof = the contrast's clustered dof");
+    assert_true(k <= 3 && k < k_hc2); /* at most G − 1, below the windows' own */
+    stagecal_model_free(&back);
+    /* fewer than 4 runs: refused */
+    for (size_t i = 0; i < NPTS; i++)
+        run[i] = i % 3;
+    assert_int_equal(stagecal_model_set_design_run(&m, run, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_check(&m, &err), STAGECAL_EINVAL);
+    assert_non_null(strstr(err.text, "design_run: 3 runs for 10 rows"));
+    stagecal_model_free(&m);
+
+    fill_model(&m, "constant");
+    m.one_sided = 0;
+    m.method = STAGECAL_MODEL_COMPOSITION_SPACE;
+    for (size_t i = 0; i < 8; i++)
+        x[i] = 0.8, run[i] = i / 2; /* a mean of 4 runs of 2 windows */
+    assert_int_equal(stagecal_model_set_design(&m, x, 8, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_set_design_run(&m, run, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_check(&m, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_eval(&m, 2.5, 1.2, 0.95, &pt, &err), STAGECAL_OK);
+    assert_rel(pt.dof_fit, 3, 1e-12, "dof of a balanced mean of 4 runs = 3");
+    stagecal_model_free(&m);
+}
+
 static void model_eval_after_load_matches_design_matrix(void **state)
 {
     (void)state;
@@ -1576,7 +1637,7 @@ static void model_load_refuses_each_member(void **state)
          "not a stagecal model file (format 'stagecal-plan', expected 'stagecal-model')"},
         {"format", "3", "not a stagecal model file (no \"format\": \"stagecal-model\" member)"},
         {"version", "\"1\"", "member 'version': expected an integer format version"},
-        {"version", "0", "unknown format version 0 (expected 1 to 4)"},
+        {"version", "0", "unknown format version 0 (expected 1 to 5)"},
         {"column", "17", "member 'column': expected a string"},
         {"stage_convention", "\"partial\"", "member 'stage_convention': expected an object"},
         {"stage_convention.condenser", "\"none\"",
@@ -1871,6 +1932,7 @@ int main(void)
         cmocka_unit_test(model_eval_matches_textbook_band),
         cmocka_unit_test(model_eval_after_load_matches_design_matrix),
         cmocka_unit_test(model_eval_uses_design_dof),
+        cmocka_unit_test(model_eval_uses_design_run_dof),
         cmocka_unit_test(model_eval_flags_extrapolation),
         cmocka_unit_test(model_eval_rejects_bad_arguments),
         cmocka_unit_test(model_add_helpers_validate),

@@ -126,26 +126,6 @@ static void fit_ok(const stagecal_regress_data *d, const char *name,
 
 /* ---- statsmodels cross-check ------------------------------------------------------------ */
 
-/* Reads the "key v1 v2 ..." lines of regress_crosscheck.py. */
-static size_t read_line_values(FILE *fp, const char *key, double *v, size_t max)
-{
-    char line[4096], *s, *end;
-    size_t k = 0;
-    assert_non_null(fgets(line, sizeof line, fp));
-    size_t kl = strlen(key);
-    if (strncmp(line, key, kl) != 0 || line[kl] != ' ')
-        fail_msg("crosscheck: expected '%s', got '%s'", key, line);
-    s = line + kl;
-    while (k < max) {
-        double x = strtod(s, &end);
-        if (end == s)
-            break;
-        v[k++] = x;
-        s = end;
-    }
-    return k;
-}
-
 /* Synthetic invented data: stages = 9 − 4/R + 0.8·F + noise (sd sigma_i). */
 static void xcheck(const char *form_name, int with_f, int with_sigma, int with_inf)
 {
@@ -187,25 +167,25 @@ static void xcheck(const char *form_name, int with_f, int with_sigma, int with_i
      * (GSL SVD here, numpy pinv there); the design's condition number is ~1e2, so
      * rounding differences stay near 1e-13 — 1e-8 is the must-show figure. */
     const double tol = 1e-8;
-    assert_int_equal(read_line_values(py, "params", v, 8), p);
+    assert_int_equal(testutil_line_values(py, "params", v, 8), p);
     for (size_t k = 0; k < res.p; k++)
         assert_rel(res.theta[k], v[k], tol, "theta vs statsmodels WLS params");
-    assert_int_equal(read_line_values(py, "bse", v, 8), p);
+    assert_int_equal(testutil_line_values(py, "bse", v, 8), p);
     for (size_t k = 0; k < res.p; k++)
         assert_rel(res.se[k], v[k], tol, "se vs statsmodels WLS bse");
-    read_line_values(py, "ssr", v, 1);
+    testutil_line_values(py, "ssr", v, 1);
     assert_rel(res.rss, v[0], tol, "rss vs statsmodels ssr");
-    read_line_values(py, "scale", v, 1);
+    testutil_line_values(py, "scale", v, 1);
     assert_rel(res.sigma * res.sigma, v[0], tol, "sigma^2 vs statsmodels scale");
-    read_line_values(py, "llf", v, 1);
+    testutil_line_values(py, "llf", v, 1);
     assert_rel(res.loglik, v[0], tol, "log-likelihood vs statsmodels llf");
-    read_line_values(py, "rsquared", v, 1);
+    testutil_line_values(py, "rsquared", v, 1);
     assert_rel(res.r2, v[0], tol, "R^2 vs statsmodels rsquared");
-    read_line_values(py, "df_resid", v, 1);
+    testutil_line_values(py, "df_resid", v, 1);
     assert_rel(res.dof, v[0], 0, "dof vs statsmodels df_resid");
     for (size_t i = 0; i < 3; i++) {
         stagecal_band b;
-        assert_int_equal(read_line_values(py, "pred", v, 8), 6);
+        assert_int_equal(testutil_line_values(py, "pred", v, 8), 6);
         assert_int_equal(stagecal_regress_band_obs(&res.form, res.theta, res.cov, res.sigma,
                                                    ev[i][2], res.dof, res.level, ev[i][0], ev[i][1],
                                                    &b, &e),
@@ -223,7 +203,7 @@ static void xcheck(const char *form_name, int with_f, int with_sigma, int with_i
     prm.cov_kind = STAGECAL_COV_HC3;
     fit_ok(&d, form_name, &prm, &hc);
     assert_int_equal(hc.cov_kind, STAGECAL_COV_HC3);
-    assert_int_equal(read_line_values(py, "hc3_bse", v, 8), p);
+    assert_int_equal(testutil_line_values(py, "hc3_bse", v, 8), p);
     for (size_t k = 0; k < hc.p; k++) {
         assert_rel(hc.theta[k], res.theta[k], 0, "the covariance kind does not move the estimate");
         assert_rel(hc.se[k], v[k], tol, "se vs statsmodels HC3 bse");
@@ -233,7 +213,7 @@ static void xcheck(const char *form_name, int with_f, int with_sigma, int with_i
     prm.cov_kind = STAGECAL_COV_HC2;
     fit_ok(&d, form_name, &prm, &hc);
     assert_int_equal(hc.cov_kind, STAGECAL_COV_HC2);
-    assert_int_equal(read_line_values(py, "hc2_bse", v, 8), p);
+    assert_int_equal(testutil_line_values(py, "hc2_bse", v, 8), p);
     for (size_t k = 0; k < hc.p; k++)
         assert_rel(hc.se[k], v[k], tol, "se vs statsmodels HC2 bse");
     stagecal_regress_result_free(&hc);
@@ -244,14 +224,14 @@ static void xcheck(const char *form_name, int with_f, int with_sigma, int with_i
     fit_ok(&d, form_name, &prm, &hc);
     assert_int_equal(hc.cov_kind, STAGECAL_COV_HC2_BM);
     assert_non_null(hc.design);
-    assert_int_equal(read_line_values(py, "bm_dof", v, 8), p);
+    assert_int_equal(testutil_line_values(py, "bm_dof", v, 8), p);
     for (size_t k = 0; k < hc.p; k++) {
         double tk = gsl_cdf_tdist_Pinv(0.95, v[k]); /* level 0.9 */
         assert_rel(hc.param_dof[k], v[k], tol, "parameter dof vs numpy Bell-McCaffrey");
         assert_true(hc.param_dof[k] < hc.dof); /* K <= n - p, equal only in special designs */
         assert_rel(hc.ci_high[k] - hc.theta[k], tk * hc.se[k], tol, "BM interval half-width");
     }
-    assert_int_equal(read_line_values(py, "bm_pred", v, 8), 3);
+    assert_int_equal(testutil_line_values(py, "bm_pred", v, 8), 3);
     for (size_t i = 0; i < 3; i++) {
         stagecal_band b;
         assert_int_equal(stagecal_regress_band_design(&hc.form, hc.theta, hc.cov, hc.sigma,
@@ -341,10 +321,10 @@ static void regress_saturating_load_matches_scipy_curve_fit(void **state)
     /* scipy.optimize.curve_fit (MINPACK LM, tolerances 1e-15) on the same weighted
      * problem. 1e-7 relative: two independent optimisers stop within rounding noise of
      * an optimum whose parameters are correlated at |ρ| ≈ 0.99 (c and d). */
-    assert_int_equal(read_line_values(py, "params", v, 8), 4);
+    assert_int_equal(testutil_line_values(py, "params", v, 8), 4);
     for (size_t k = 0; k < 4; k++)
         assert_rel(res.theta[k], v[k], 1e-7, "saturating-load theta vs scipy curve_fit");
-    assert_int_equal(read_line_values(py, "bse", v, 8), 4);
+    assert_int_equal(testutil_line_values(py, "bse", v, 8), 4);
     for (size_t k = 0; k < 4; k++)
         assert_rel(res.se[k], v[k], 1e-7, "saturating-load se vs scipy curve_fit");
     assert_int_equal(pclose(py), 0);

@@ -12,6 +12,8 @@
 #include <stdarg.h>
 #include <stddef.h>
 #include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
 #include <cmocka.h>
 
 /* |got − want| ≤ tol·|want| (relative); want = 0 falls back to absolute. */
@@ -42,6 +44,27 @@ static inline void testutil_check_abs(double got, double want, double tol, const
                     got, want, e, tol);
         _fail(file, line);
     }
+}
+
+/* Reads one "key v1 v2 ..." line of a cross-check script from fp into v (at most max
+ * numbers); fails the test when the line is missing or has another key. Returns the count. */
+static inline size_t testutil_line_values(FILE *fp, const char *key, double *v, size_t max)
+{
+    char line[4096], *s, *end;
+    size_t k = 0;
+    assert_non_null(fgets(line, sizeof line, fp));
+    size_t kl = strlen(key);
+    if (strncmp(line, key, kl) != 0 || line[kl] != ' ')
+        fail_msg("crosscheck: expected '%s', got '%s'", key, line);
+    s = line + kl;
+    while (k < max) {
+        double x = strtod(s, &end);
+        if (end == s)
+            break;
+        v[k++] = x;
+        s = end;
+    }
+    return k;
 }
 
 /* Writes code to STAGECAL_BUILD_DIR/script, runs it with STAGECAL_PYTHON and reads n

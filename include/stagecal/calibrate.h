@@ -80,7 +80,10 @@ typedef struct {
                                           sandwich, the windows' stated errors being right
                                           only in proportion within a reflux ratio, with
                                           Student t at each contrast's Bell–McCaffrey dof;
-                                          the model file carries the design), HC3 or MODEL */
+                                          the model file carries the design), HC3, MODEL or
+                                          CR2_RUN (clustered by the windows' runs, both fits;
+                                          fewer than 4 runs with windows: HC2_BM and a
+                                          warning) */
     int allow_undetermined;            /* 1: a fit whose evidence does not determine a
                                           parameter is kept, the model carries a warning
                                           that names it (default 0: refused, EDATA) */

@@ -120,7 +120,7 @@ typedef struct {
     int has_crossing;              /* 1 when required was given and the current segment is fitted */
     stagecal_trend_forecast crossing; /* date the stages at (R_ref, F_ref) fall below required */
     double level;
-    struct stagecal_history_work *work; /* what later contrasts need (owned, opaque) */
+    struct cr2_work *work; /* what later contrasts need (owned, opaque; src/cr2.h) */
 } stagecal_history_fit;
 
 /* Fits the history. form: the correlation; pts: n windows in any order; events (may

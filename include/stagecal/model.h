@@ -35,8 +35,10 @@ extern "C" {
 
 #define STAGECAL_MODEL_FORMAT "stagecal-model" /* the "format" member */
 #define STAGECAL_MODEL_VERSION                                                                     \
-    4                          /* the newest "version" this library reads and                      \
-                                  writes: 4 for a fit that carries its scatter                     \
+    5                          /* the newest "version" this library reads and                      \
+                                  writes: 5 for a design with its rows' runs                       \
+                                  (run-clustered dof per band), 4 for a fit that                   \
+                                  carries its scatter                                              \
                                   function (σ of the prediction band by R), 3 for                 \
                                   one that carries its design (Bell–McCaffrey dof                \
                                   per band), 2 for a censored-likelihood fit (a                    \
@@ -106,12 +108,16 @@ typedef struct {
                                      evaluation gives the bound, never a standard error
                                      (format version 2, member correlation.one_sided) */
     double theta_ml[STAGECAL_FORM_MAXP];
-    double *design;  /* the fit's standardised Jacobian at θ, n_design rows of form.p values
-                        (row-major, parameters' units), owned; NULL when the file has none.
-                        With it every band uses Student t at the Bell–McCaffrey dof of its
-                        own contrast (stagecal_regress_bm_dof) and dof is that of σ only
-                        (format version 3, member correlation.design) */
-    size_t n_design; /* rows of design: 0, or more than form.p */
+    double *design;     /* the fit's standardised Jacobian at θ, n_design rows of form.p values
+                           (row-major, parameters' units), owned; NULL when the file has none.
+                           With it every band uses Student t at the Bell–McCaffrey dof of its
+                           own contrast (stagecal_regress_bm_dof) and dof is that of σ only
+                           (format version 3, member correlation.design) */
+    size_t n_design;    /* rows of design: 0, or more than form.p */
+    size_t *design_run; /* n_design clusters (runs, 0..G−1) of the design's rows, owned; NULL:
+                           none. With it every band's dof is the run-clustered CR2 one
+                           (stagecal_regress_contrast_dof; format version 5, member
+                           correlation.design_run) */
     stagecal_scatter scatter; /* σ of one new window by R (stagecal/scatter.h); scatter.n = 0:
                                  sigma for every R (format version 4, member
                                  correlation.scatter) */
@@ -193,6 +199,9 @@ int stagecal_model_add_warning(stagecal_model *m, const char *text, stagecal_err
 int stagecal_model_set_command_line(stagecal_model *m, const char *text, stagecal_error *err);
 /* Copies n rows of form.p values into m->design (replacing any); ENOMEM. */
 int stagecal_model_set_design(stagecal_model *m, const double *x, size_t n, stagecal_error *err);
+/* Copies n_design clusters into m->design_run (cl NULL: none); call after
+ * stagecal_model_set_design. ENOMEM. */
+int stagecal_model_set_design_run(stagecal_model *m, const size_t *cl, stagecal_error *err);
 /* Sets fitted_utc to the current UTC time. */
 void stagecal_model_stamp_now(stagecal_model *m);
 

@@ -66,12 +66,26 @@ typedef enum {
                          e_i the residuals, h_i the leverages (MacKinnon & White 1985);
                          valid when the stated sigma_i are right only in proportion
                          within parts of the data, or the form is misspecified */
-    STAGECAL_COV_HC2,   /* the same with e_i²/(1 − h_i): unbiased when the errors are equal */
-    STAGECAL_COV_HC2_BM /* HC2 with Student t at the Bell–McCaffrey degrees of freedom of each
+    STAGECAL_COV_HC2,    /* the same with e_i²/(1 − h_i): unbiased when the errors are equal */
+    STAGECAL_COV_HC2_BM, /* HC2 with Student t at the Bell–McCaffrey degrees of freedom of each
                            contrast (Bell & McCaffrey 2002; Imbens & Kolesár 2016): the
                            result keeps the standardised Jacobian (result.design) that the
                            dof of any later contrast needs (stagecal_regress_bm_dof) */
+    STAGECAL_COV_CR2_RUN /* the CR2 sandwich clustered by params.cluster (a calibration's runs:
+                            windows of one run may share an error, e.g. the batch's own
+                            offset) with Student t at the Bell–McCaffrey dof of each contrast
+                            (Bell & McCaffrey 2002; Pustejovsky & Tipton 2018, "Small-sample
+                            methods for cluster-robust variance estimation and hypothesis
+                            testing in fixed effects models", J. Bus. Econ. Stat. 36,
+                            672–683), at most G − 1 for G clusters; the result keeps the design
+                            and the clusters (result.cluster). With fewer than
+                            STAGECAL_CR2_MIN_CLUSTERS clusters the fit falls back to HC2_BM
+                            (result.cov_kind says so) */
 } stagecal_cov_kind;
+
+/* The fewest clusters (runs with windows) for STAGECAL_COV_CR2_RUN: with 3 the dof of a
+ * contrast is at most 2 and the covariance rests on 3 outer products. */
+#define STAGECAL_CR2_MIN_CLUSTERS 4
 
 typedef struct {
     double level;  /* confidence level of intervals and bands, (0, 1); 0.95 */
@@ -104,6 +118,10 @@ typedef struct {
     size_t threads;               /* threads refitting resamples beside the calling one (the
                                      intervals do not depend on it); 0 */
     size_t band_points;           /* grid points in R for the band; 25 (0 = no band grid) */
+    const size_t *cluster;        /* cov_kind CR2_RUN: residual i's cluster (any labels, one per
+                                     point of the data, e.g. the window's run; for
+                                     stagecal_fit_composition one per window ev[i]); NULL =
+                                     none (CR2_RUN then falls back to HC2_BM) */
 } stagecal_regress_params;
 
 stagecal_regress_params stagecal_regress_default_params(void);
@@ -146,6 +164,13 @@ int stagecal_regress_band_design(const stagecal_form *form, const double *theta,
                                  double sigma, double obs_sigma, double dof, const double *x,
                                  size_t n_x, double level, double r, double f_load,
                                  stagecal_band *out, stagecal_error *err);
+/* As stagecal_regress_band_design with the design's rows' clusters (n_x entries; NULL: none):
+ * the confidence band's dof is then stagecal_regress_contrast_dof's clustered one. */
+int stagecal_regress_band_clustered(const stagecal_form *form, const double *theta,
+                                    const double *cov, double sigma, double obs_sigma, double dof,
+                                    const double *x, const size_t *cluster, size_t n_x,
+                                    double level, double r, double f_load, stagecal_band *out,
+                                    stagecal_error *err);
 
 /* The Bell–McCaffrey degrees of freedom of the contrast cᵀθ of a fit whose standardised
  * Jacobian (weighted residuals' rows, in the parameters' units) is x, n rows of p values
@@ -158,6 +183,14 @@ int stagecal_regress_band_design(const stagecal_form *form, const double *theta,
  * no variance). Allocates nothing. */
 int stagecal_regress_bm_dof(const double *x, size_t n, size_t p, const double *c, double *dof,
                             stagecal_error *err);
+
+/* The dof of the contrast cᵀθ of a fit with design x (as stagecal_regress_bm_dof): with
+ * cluster NULL stagecal_regress_bm_dof; otherwise (row i in cluster[i], any labels, at
+ * least 2 clusters) the Bell–McCaffrey dof of the CR2 sandwich clustered so (Bell &
+ * McCaffrey 2002; Pustejovsky & Tipton 2018, its Satterthwaite dof), in [1, G − 1].
+ * EINVAL, EDATA as stagecal_regress_bm_dof; ENOMEM (clustered: allocates O(n·G)). */
+int stagecal_regress_contrast_dof(const double *x, size_t n, size_t p, const size_t *cluster,
+                                  const double *c, double *dof, stagecal_error *err);
 
 /* Why the solver stopped. */
 typedef enum {
@@ -188,8 +221,10 @@ typedef struct {
     double tquant;                                       /* t(1 − (1 − level)/2, dof) */
     double param_dof[STAGECAL_FORM_MAXP]; /* t dof of each parameter's interval: dof, or its
                                              Bell–McCaffrey dof (cov_kind HC2_BM) */
-    double *design; /* n×p standardised Jacobian at θ̂ in the parameters' units (cov_kind
-                       HC2_BM; NULL otherwise), result owns */
+    double *design;  /* n×p standardised Jacobian at θ̂ in the parameters' units (cov_kind
+                        HC2_BM or CR2_RUN; NULL otherwise), result owns */
+    size_t *cluster; /* n clusters 0..G−1 of the design's rows (cov_kind CR2_RUN; NULL
+                        otherwise), result owns */
     double level;
     int weighted;               /* 1 when the points carried sigma */
     int cov_scaled;             /* 1 when C includes s² (see params.scale_cov) */

@@ -29,7 +29,7 @@ static const struct cli_usage usage = {
 
 static const char *const method_names[] = {"auto", "stage", "composition", "censored", NULL};
 static const char *const holdup_choices[] = {"auto", "none", "lag", "stages", NULL};
-static const char *const cov_choices[] = {"hc2-bm", "hc3", "model", NULL};
+static const char *const cov_choices[] = {"hc2-bm", "hc3", "model", "cr2-run", NULL};
 static const char *const holdup_names[] = {"none", "lag", "stages"};
 
 /* The holdup compensation the evidence applied, for --json. */
@@ -692,8 +692,13 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
                    "HC2 sandwich from each window's own residual, right when\n"
                    "the windows' stated errors are off between reflux ratios,\n"
                    "with Student t at each band's Bell-McCaffrey degrees of\n"
-                   "freedom), hc3 (the HC3 sandwich, t at n - p) or model\n"
-                   "(s^2 times the inverse information)",
+                   "freedom), hc3 (the HC3 sandwich, t at n - p), model\n"
+                   "(s^2 times the inverse information) or cr2-run (the CR2\n"
+                   "sandwich clustered by run: windows of one run may share an\n"
+                   "error, e.g. a batch's own offset; t at each band's\n"
+                   "Bell-McCaffrey dof, at most runs - 1; both fits, not\n"
+                   "--method censored; fewer than 4 runs with windows: hc2-bm\n"
+                   "with a warning)",
                    cov_choices, "a covariance"),
         OPT_BOOTSTRAP(&boot),
         OPT_SEED(&seed),
@@ -736,7 +741,8 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
     par.read.infer = !no_infer;
     par.seed = (unsigned long)seed;
     par.robust = cli_robust_kind(robust);
-    par.cov_kind = cov == 2   ? STAGECAL_COV_MODEL
+    par.cov_kind = cov == 3   ? STAGECAL_COV_CR2_RUN
+                   : cov == 2 ? STAGECAL_COV_MODEL
                    : cov == 1 ? STAGECAL_COV_HC3
                               : STAGECAL_COV_HC2_BM;
     par.evidence.holdup = holdup == 0 ? STAGECAL_EVIDENCE_HOLDUP_AUTO : holdup - 1;

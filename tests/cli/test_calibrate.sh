@@ -35,6 +35,23 @@ cp "$tmp/j" "$tmp/j_default"
 # the covariance changes the standard errors, never the estimates
 check "calibrate --covariance model: the model's, same estimates, other standard errors" \
       "d['composition_space']['covariance'] == 'model' and [p['value'] for p in d['parameters']] == [p['value'] for p in json.load(open('$tmp/j_default'))['parameters']] and [p['se'] for p in d['parameters']] != [p['se'] for p in json.load(open('$tmp/j_default'))['parameters']]"
+# --covariance cr2-run: the CR2 sandwich clustered by run (windows of one run share an
+# error), t at each contrast's Bell-McCaffrey dof, at most the runs with windows less one;
+# the model file carries the design's runs (format version 5)
+"$BIN" calibrate --column "$COL" --fits "$tmp/fits_cr2" --form saturating --json --quiet \
+    --covariance cr2-run $LOGS >"$tmp/j"
+check "calibrate --covariance cr2-run: both fits clustered by run, same estimates" \
+      "d['stage_space']['covariance'] == 'cr2-run' and d['composition_space']['covariance'] == 'cr2-run' and [p['value'] for p in d['parameters']] == [p['value'] for p in json.load(open('$tmp/j_default'))['parameters']]"
+check "calibrate --covariance cr2-run: each parameter's dof below the runs with windows" \
+      "all(1 <= p['dof'] <= d['evidence']['runs'] - 1 for p in d['parameters'])"
+check "calibrate --covariance cr2-run: the model file keeps the design's runs (version 5)" \
+      "(lambda m: m['version'] == 5 and len(m['correlation']['design_run']) == len(m['correlation']['design']) and len(set(m['correlation']['design_run'])) >= 4)(json.load(open(d['model_file'])))"
+# fewer than 4 runs with windows: hc2-bm, and a warning says so
+head -184 "$ROOT/datasets/demo/logs/2025-01.csv" >"$tmp/three_runs.csv"
+"$BIN" calibrate --column "$COL" --fits "$tmp/fits_cr2" --form saturating --json --quiet \
+    --dry-run --covariance cr2-run "$tmp/three_runs.csv" >"$tmp/j"
+check "calibrate --covariance cr2-run, 3 runs: falls back to hc2-bm with a warning" \
+      "d['composition_space']['covariance'] == 'hc2-bm' and any('cr2-run needs windows from at least 4 runs, 3 run(s) have them' in w for w in d['warnings'])"
 # --bootstrap: the stage-space fit's case-resampling percentile intervals, reported (they were
 # computed and dropped before); the same resamples as `regress --bootstrap` on the windows'
 # points file with the same seed, so the same numbers to the bit
