@@ -116,9 +116,9 @@ static inline int synth_fill(const stagecal_form *form, const stagecal_regress_r
     synth_fill_params(res, f);
     for (int q = 0; q < 3; q++) {
         stagecal_band bd;
-        if (stagecal_regress_band_design(form, res->theta, res->cov, cov_sigma, 1.0, res->dof,
-                                         res->design, res->n, 0.95, synth_band_r[q], 0, &bd,
-                                         NULL) != STAGECAL_OK)
+        if (stagecal_regress_band_clustered(form, res->theta, res->cov, cov_sigma, 1.0, res->dof,
+                                            res->design, res->cluster, res->n, 0.95,
+                                            synth_band_r[q], 0, &bd, NULL) != STAGECAL_OK)
             return -1;
         f->est[2 + q] = bd.value;
         f->se[2 + q] = bd.se_fit;
@@ -394,22 +394,28 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
     }
     /* stage space */
     double r[NW], s[NW], sg[NW];
-    size_t n = 0;
-    for (size_t w = 0; w < NW; w++)
+    size_t n = 0, run_s[NW], run_c[NW], nrun = synth_runs();
+    for (size_t w = 0; w < NW; w++) {
+        ev[w].run = w % nrun;
+        run_c[w] = ev[w].run;
         if (ev[w].stages_ok) {
             r[n] = ev[w].r;
             s[n] = ev[w].stages;
             sg[n] = ev[w].se_stages;
+            run_s[n] = ev[w].run;
             n++;
         }
+    }
     stagecal_regress_data d = {n, r, NULL, s, sg};
     stagecal_regress_params rp = stagecal_regress_default_params();
     rp.band_points = 0;
     rp.cov_kind = synth_cov_kind(); /* as calibrate fits */
+    rp.cluster = run_s;             /* (cr2-run) the windows' runs, as calibrate's */
     stagecal_regress_result rs_fit, rc_fit;
     if (stagecal_regress_fit(&d, form, &rp, &rs_fit, NULL) != STAGECAL_OK)
         return 0;
     int rc = synth_fill(form, &rs_fit, rs_fit.sigma, fs) ? __LINE__ : 0;
+    rp.cluster = run_c; /* the composition fit: every window */
     if (rc == 0 && stagecal_fit_composition(vle, 1.0, ev, NW, form, rs_fit.theta, &rp, &rc_fit,
                                             NULL) == STAGECAL_OK) {
         rc = synth_fill(form, &rc_fit, 1.0, fc) ? __LINE__ : 0;
@@ -434,12 +440,12 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
             double sq = sc.n > 0 ? stagecal_scatter_sd(&sc, synth_band_r[q]) : rc_fit.sigma;
             double sdof = sc.n > 0 ? stagecal_scatter_dof(&sc, synth_band_r[q]) : pdof;
             sdof = isfinite(sdof) ? fmin(sdof, pdof) : pdof; /* as stagecal_model_eval */
-            if (stagecal_regress_band_design(form, rc_fit.theta, rc_fit.cov, sq, 1.0, sdof,
-                                             rc_fit.design, rc_fit.n, 0.95, synth_band_r[q], 0, &bd,
-                                             NULL) != STAGECAL_OK ||
-                stagecal_regress_band_design(form, rc_fit.theta, rc_fit.cov, rc_fit.sigma, 1.0,
-                                             pdof, rc_fit.design, rc_fit.n, 0.95, synth_band_r[q],
-                                             0, &b1, NULL) != STAGECAL_OK) {
+            if (stagecal_regress_band_clustered(form, rc_fit.theta, rc_fit.cov, sq, 1.0, sdof,
+                                                rc_fit.design, rc_fit.cluster, rc_fit.n, 0.95,
+                                                synth_band_r[q], 0, &bd, NULL) != STAGECAL_OK ||
+                stagecal_regress_band_clustered(form, rc_fit.theta, rc_fit.cov, rc_fit.sigma, 1.0,
+                                                pdof, rc_fit.design, rc_fit.cluster, rc_fit.n, 0.95,
+                                                synth_band_r[q], 0, &b1, NULL) != STAGECAL_OK) {
                 fc->pi_ok = 0;
                 break;
             }

@@ -4,11 +4,10 @@
  * that batch actually does, with and without the run-to-run scatter, when the column's stage
  * count really varies from batch to batch by a known amount τ?
  *
- * Usage: tool_batch_coverage REPLICATIONS SEED TAU [SAMPLES] [both] [dump]
- *   TAU      sd of the per-batch random effect on the stage count [stages], ≥ 0
- *   SAMPLES  draws per band (default 200, predict's default)
- *   both     problems A and B (below; default A only)
- *   dump     one line per data set on stderr (below)
+ * Usage: [STUDY_COV=hc2-bm|cr2-run|...] tool_batch_coverage REPLICATIONS SEED TAU [SAMPLES] [both]
+ * [dump] TAU      sd of the per-batch random effect on the stage count [stages], ≥ 0 SAMPLES  draws
+ * per band (default 200, predict's default) both     problems A and B (below; default A only) dump
+ * one line per data set on stderr (below)
  *
  * What it simulates (per data set; one GSL mt19937 stream seeded with SEED serves them all):
  *   - the column: constant α = 1.6 (Smoker's closed form for the pot, tests/oracle_smoker.h,
@@ -58,6 +57,7 @@
 #include <time.h>
 
 #include "stagecal/batch.h"
+#include "study_cov.h"
 #include "stagecal/calibrate.h"
 #include "stagecal/column.h"
 #include "synth_runlog.h"
@@ -234,7 +234,7 @@ int main(int argc, char **argv)
     gsl_rng_set(rng, seed);
     struct acc a[BC_NPROB][BC_NQTY][BC_NBAND];
     memset(a, 0, sizeof a);
-    long refused = 0, nobatch = 0, noband = 0, nscatter = 0, ok_sets = 0;
+    long refused = 0, nobatch = 0, noband = 0, nscatter = 0, ok_sets = 0, n_cov = 0, n_stage = 0;
     double sum_se = 0, n_se = 0, sum_sig = 0, sum_s2 = 0, sum_dofs = 0;
     int nband = BC_NBAND;
     struct timespec t0, t1;
@@ -256,6 +256,7 @@ int main(int argc, char **argv)
         stagecal_calibrate_params par = stagecal_calibrate_default_params();
         par.form = "saturating";
         par.evidence.holdup = STAGECAL_HOLDUP_COMP_NONE;
+        par.cov_kind = synth_cov_kind(); /* STUDY_COV (default: calibrate's) */
         stagecal_calibration cal;
         if (stagecal_calibrate_data(&col, NULL, log, &par, &cal, NULL) != STAGECAL_OK) {
             refused++;
@@ -264,6 +265,8 @@ int main(int argc, char **argv)
         }
         const stagecal_model *m = &cal.model;
         nscatter += m->scatter.n > 0;
+        n_cov += stagecal_calibration_fit(&cal)->cov_kind == par.cov_kind;
+        n_stage += cal.used == STAGECAL_MODEL_STAGE_SPACE;
         for (size_t i = 0; i < cal.evidence.n; i++)
             if (cal.evidence.ev[i].stages_ok && isfinite(cal.evidence.ev[i].r) &&
                 fabs(cal.evidence.ev[i].r - 2.5) < 0.2)
@@ -358,6 +361,8 @@ int main(int argc, char **argv)
     printf("  calibration refused %ld, batch failed %ld, band failed %ld; %ld of %ld models "
            "with a scatter function\n",
            refused, nobatch, noband, nscatter, reps - refused);
+    printf("  covariance %s (STUDY_COV): used by %ld of %ld models' fits (%ld stage-space)\n",
+           stagecal_regress_cov_name(synth_cov_kind()), n_cov, reps - refused, n_stage);
     if (ok_sets > 0)
         printf("  windows at R = 2.5: mean stated se %.4f stages; model: mean sigma(2.5) %.4f, "
                "mean var_ratio %.3f, mean scatter dof along A %.1f\n",

@@ -32,6 +32,7 @@
  *   - bias/sd: (mean estimate − truth) over the empirical sd;
  *   - med z: the median of (estimate − truth)/se over the data sets (0 for an unbiased,
  *     symmetric estimate; the issue's bias criterion is |med z| ≤ 0.1);
+ *   - width: the mean width of the 95 % interval (hi − lo);
  *   - cov(sd): the fraction with |estimate − truth| ≤ z·sd (z the normal 97.5 % quantile,
  *     sd the empirical sd) — what the coverage would be with an exact, known se; 0.95
  *     for unbiased normal estimates, so a shortfall there comes from bias or
@@ -74,6 +75,7 @@ struct tally {
     double *se[SYNTH_NQ];
     double *tq;
     double sum_dof, sum_pdof, sum_s2;
+    double sum_width[SYNTH_NQ]; /* the intervals' widths hi − lo */
 };
 
 static int tally_alloc(struct tally *t, int reps)
@@ -106,6 +108,7 @@ static void tally_add(struct tally *t, const struct synth_fit *f)
         t->hits[q] += synth_covers(f, q);
         t->est[q][t->fits] = f->est[q];
         t->se[q][t->fits] = f->se[q];
+        t->sum_width[q] += f->hi[q] - f->lo[q];
     }
     t->tq[t->fits] = f->tq;
     t->sum_dof += f->dof;
@@ -137,8 +140,8 @@ static void report(const char *name, const struct tally *t, int reps)
     printf("%s: %d of %d fits, mean t quantile %.4f (mean parameter dof %.2f, n - p %.2f), "
            "mean s^2 %.3f\n",
            name, n, reps, tq_mean, t->sum_pdof / n, t->sum_dof / n, t->sum_s2 / n);
-    printf("  %-11s %9s  %-17s %7s %8s %7s %7s\n", "quantity", "coverage", "Wilson 95 %", "se/sd",
-           "bias/sd", "med z", "cov(sd)");
+    printf("  %-11s %9s  %-17s %7s %8s %7s %7s %9s\n", "quantity", "coverage", "Wilson 95 %",
+           "se/sd", "bias/sd", "med z", "cov(sd)", "width");
     double *zs = malloc((size_t)n * sizeof *zs);
     if (!zs)
         return;
@@ -159,9 +162,9 @@ static void report(const char *name, const struct tally *t, int reps)
         gsl_sort(zs, 1, (size_t)n);
         double medz = gsl_stats_median_from_sorted_data(zs, 1, (size_t)n);
         wilson(t->hits[q], n, z, &lo, &hi);
-        printf("  %-11s %9.4f  [%.4f, %.4f] %7.3f %+8.3f %+7.3f %7.4f\n", synth_what[q],
+        printf("  %-11s %9.4f  [%.4f, %.4f] %7.3f %+8.3f %+7.3f %7.4f %9.4g\n", synth_what[q],
                (double)t->hits[q] / n, lo, hi, sqrt(se2) / sd, (m - tv) / sd, medz,
-               (double)oracle / n);
+               (double)oracle / n, t->sum_width[q] / n);
     }
     free(zs);
 }

@@ -182,9 +182,10 @@ int main(int argc, char **argv)
             for (int c = 0; c < NCOND && ok[q]; c++) {
                 double r = conds[c][0], f = conds[c][1];
                 stagecal_band b;
-                if (stagecal_regress_band_design(
-                        &form, fit[q]->theta, fit[q]->cov, fit[q]->sigma_obs, 1.0, fit[q]->dof,
-                        fit[q]->design, fit[q]->n, 0.95, r, f, &b, NULL) != STAGECAL_OK)
+                if (stagecal_regress_band_clustered(&form, fit[q]->theta, fit[q]->cov,
+                                                    fit[q]->sigma_obs, 1.0, fit[q]->dof,
+                                                    fit[q]->design, fit[q]->cluster, fit[q]->n,
+                                                    0.95, r, f, &b, NULL) != STAGECAL_OK)
                     continue;
                 double truth = a_true * (isinf(r) ? 1.0 : -expm1(-0.9 * r)) *
                                (1 - 0.06 * (f - 1.3) * (f - 1.3));
