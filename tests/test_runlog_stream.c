@@ -313,6 +313,18 @@ static void runlog_stream_inversion_as_whole(void **state)
     stagecal_column_free(&col);
 }
 
+/* A column of constant α at atmospheric pressure with the analysers' standard uncertainties
+ * (the caller frees col->system.vle). */
+static void alpha_column(stagecal_column *col, double alpha, double u_xd, double u_xb)
+{
+    memset(col, 0, sizeof *col);
+    col->system.vle = stagecal_vle_alloc_alpha(alpha, NULL);
+    assert_non_null(col->system.vle);
+    col->system.p_pa = 101325;
+    col->u.xd = u_xd;
+    col->u.xb = u_xb;
+}
+
 /* A measured R that scatters about its set points (tests/synth_runlog.h, 6 runs): the set
  * points (log->r_set, found at the end of each run) travel with the run. */
 static void runlog_stream_measured_reflux_as_whole(void **state)
@@ -327,11 +339,7 @@ static void runlog_stream_measured_reflux_as_whole(void **state)
     assert_int_equal(fwrite(csv, 1, len, f), len);
     fclose(f);
     stagecal_column col;
-    memset(&col, 0, sizeof col);
-    col.system.vle = stagecal_vle_alloc_alpha(2.0, NULL);
-    col.system.p_pa = 101325;
-    col.u.xd = 0.0015;
-    col.u.xb = 0.0025;
+    alpha_column(&col, 2.0, 0.0015, 0.0025);
     col.u.r = 0.02;
     check_stream_inversion(&path, 1, &col, 12);
     stagecal_vle_free(col.system.vle);
@@ -366,11 +374,7 @@ static void runlog_stream_long_runs_as_whole(void **state)
         }
     assert_int_equal(fclose(f), 0);
     stagecal_column col;
-    memset(&col, 0, sizeof col);
-    col.system.vle = stagecal_vle_alloc_alpha(2.5, NULL);
-    col.system.p_pa = 101325;
-    col.u.xd = 0.002;
-    col.u.xb = 0.005;
+    alpha_column(&col, 2.5, 0.002, 0.005);
     check_stream_inversion(&path, 1, &col, 2);
     stagecal_vle_free(col.system.vle);
     remove(path);
