@@ -413,14 +413,10 @@ static void sensitivities(const stagecal_vle *vle, double xd, double xb, double 
 
 /* The fast path without AVX2: the same expressions as alpha_closed_eval, written with
  * closed_form (alpha_closed_eval compiled with the scalar tl3 in one function ran 1.3× slower
- * than this, which GCC vectorises better). */
+ * than this, which GCC vectorises better); alpha_closed_fast has checked the inputs. */
 static int alpha_closed_fast_scalar(const stagecal_vle *vle, double xd, double xb, double reflux,
-                                    const stagecal_stages_params *par, int want,
-                                    stagecal_stages_result *res)
+                                    const stagecal_stages_params *par, alpha_closed_out *o)
 {
-    if (!(xd > 0.0 && xd < 1.0) || !(xb > 0.0 && xb < xd) || !(reflux > 0.0) || isinf(reflux) ||
-        vle->naz != 0)
-        return 0;
     double a = vle->alpha, q = 1.0 / (reflux + 1.0);
     tl3 m = tl_const(reflux / (reflux + 1.0)), b = tl_const(xd / (reflux + 1.0));
     tl3 txd = tl_const(xd);
@@ -438,18 +434,12 @@ static int alpha_closed_fast_scalar(const stagecal_vle *vle, double xd, double x
     tl3 count;
     if (!closed_form(vle, par, m, b, txd, txt, &count))
         return 0;
-    if (want == 1 &&
-        !(isfinite(count.d[TL_XD]) && isfinite(count.d[TL_XB]) && isfinite(count.d[TL_R])))
-        return 0;
-    res->status = STAGECAL_STAGES_OK;
-    res->column_stages = count.v;
-    res->stages = res->column_stages + 1.0;
-    res->lv = m.v;
-    res->x_target = xt;
-    res->dstages_dxd = want == 1 ? count.d[TL_XD] : 0.0;
-    res->dstages_dxb = want == 1 ? count.d[TL_XB] : 0.0;
-    res->dstages_dr = want == 1 ? count.d[TL_R] : 0.0;
-    res->reason[0] = '\0';
+    o->count = count.v;
+    o->d[0] = count.d[TL_XD];
+    o->d[1] = count.d[TL_XB];
+    o->d[2] = count.d[TL_R];
+    o->lv = m.v;
+    o->x_target = xt;
     return 1;
 }
 
@@ -471,9 +461,8 @@ static int alpha_closed_fast(const stagecal_vle *vle, double xd, double xb, doub
     double scan = (double)par->pinch_scan_after, most = (double)par->max_stages;
     double cap = scan < most ? scan : most; /* (fmin's double, without the call) */
     alpha_closed_out o;
-    if (!stages_have_avx2())
-        return alpha_closed_fast_scalar(vle, xd, xb, reflux, par, want, res);
-    if (!stages_alpha_closed_avx2(vle->alpha, xd, xb, reflux, cap, &o))
+    if (!(stages_have_avx2() ? stages_alpha_closed_avx2(vle->alpha, xd, xb, reflux, cap, &o)
+                             : alpha_closed_fast_scalar(vle, xd, xb, reflux, par, &o)))
         return 0;
     if (want == 1 && !(isfinite(o.d[0]) && isfinite(o.d[1]) && isfinite(o.d[2])))
         return 0;
