@@ -20,6 +20,7 @@
 #include <string.h>
 
 #include "design_internal.h"
+#include "stagecal/regress.h"
 #include "internal.h"
 
 #define P_MAX STAGECAL_FORM_MAXP
@@ -91,6 +92,18 @@ int stagecal_design_init(stagecal_design_problem *pb, const stagecal_form *form,
     pb->level = level;
     pb->rank_tol = 1e-9;
     return STAGECAL_OK;
+}
+
+void design_dof(const stagecal_design_problem *pb, const double *g, size_t k, double *before,
+                double *after)
+{
+    double d;
+    *before = pb->dof;
+    *after = pb->dof + (double)k;
+    if (pb->design && pb->n_design > 0 &&
+        stagecal_regress_contrast_dof(pb->design, pb->n_design, pb->form.p, pb->design_run, g, &d,
+                                      NULL) == STAGECAL_OK)
+        *before = *after = d;
 }
 
 double design_weight(const stagecal_design_problem *pb, double r)
@@ -285,6 +298,11 @@ int stagecal_design_from_model(const stagecal_model *m, stagecal_design_problem 
         pb->scatter = m->scatter;
     if (m->n_windows > 0)
         pb->window_samples = (m->n_samples + m->n_windows / 2) / m->n_windows;
+    if (m->design && m->n_design > 0) { /* each band's dof is its own contrast's (format 3, 5) */
+        pb->design = m->design;
+        pb->n_design = m->n_design;
+        pb->design_run = m->design_run;
+    }
     /* I₀ = C⁻¹ through the eigen-decomposition of C scaled to unit diagonal (its
      * correlation matrix): C = D R D, R = V Λ Vᵀ, C⁻¹ = D⁻¹ V Λ⁻¹ Vᵀ D⁻¹. */
     design_eig e;

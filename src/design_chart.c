@@ -7,6 +7,7 @@
 #include <math.h>
 #include <string.h>
 
+#include "design_internal.h"
 #include "internal.h"
 #include "stagecal/design.h"
 
@@ -76,11 +77,16 @@ int stagecal_design_chart_curves(const stagecal_model *m, const stagecal_design_
             c->stages[i] = c->now_lo[i] = c->now_hi[i] = c->after_lo[i] = c->after_hi[i] = NAN;
             continue;
         }
-        double y = c->stages[i];
-        c->now_lo[i] = d0 ? y - res->t_before * sqrt(v0) : NAN;
-        c->now_hi[i] = d0 ? y + res->t_before * sqrt(v0) : NAN;
-        c->after_lo[i] = d1 ? y - res->t_after * sqrt(v1) : NAN;
-        c->after_hi[i] = d1 ? y + res->t_after * sqrt(v1) : NAN;
+        /* t at this R's dof, as stagecal_design_at's (the model file's band before) */
+        double y = c->stages[i], g[STAGECAL_FORM_MAXP], k0, k1;
+        if ((rc = design_grad(pb, r, f, g, err)))
+            return rc;
+        design_dof(pb, g, res->k, &k0, &k1);
+        double t0 = design_tquant(pb->level, k0), t1 = design_tquant(pb->level, k1);
+        c->now_lo[i] = d0 ? y - t0 * sqrt(v0) : NAN;
+        c->now_hi[i] = d0 ? y + t0 * sqrt(v0) : NAN;
+        c->after_lo[i] = d1 ? y - t1 * sqrt(v1) : NAN;
+        c->after_hi[i] = d1 ? y + t1 * sqrt(v1) : NAN;
     }
     if (err)
         stagecal_error_clear(err);

@@ -40,4 +40,11 @@ int design_info_with(const stagecal_design_problem *pb, const stagecal_design_te
 /* Student t quantile at (1 + level)/2 with dof degrees of freedom. */
 double design_tquant(double level, double dof);
 
+/* The t dof of the half-widths at the condition whose gradient is g, before and after k
+ * more windows: without a design pb->dof and pb->dof + k; with one the dof of the
+ * contrast gᵀθ (stagecal_regress_contrast_dof, clustered by pb->design_run when it is
+ * there) for both, as stagecal_model_eval's band (pb->dof where g carries no variance). */
+void design_dof(const stagecal_design_problem *pb, const double *g, size_t k, double *before,
+                double *after);
+
 #endif

@@ -445,8 +445,10 @@ static int evaluate(const stagecal_design_problem *pb, const stagecal_design_poi
         return rc;
     res->rank_before = e0.rank;
     res->rank_after = e1.rank;
-    res->t_before = design_tquant(pb->level, pb->dof);
-    res->t_after = design_tquant(pb->level, pb->dof + (double)res->k);
+    /* one t for every condition without a design; with one each condition's own */
+    int per_at = pb->design && pb->n_design > 0;
+    res->t_before = per_at ? NAN : design_tquant(pb->level, pb->dof);
+    res->t_after = per_at ? NAN : design_tquant(pb->level, pb->dof + (double)res->k);
     double ib = 0, ia = 0;
     for (size_t j = 0; j < n_at; j++) {
         stagecal_design_at *o = &out[j];
@@ -461,8 +463,9 @@ static int evaluate(const stagecal_design_problem *pb, const stagecal_design_poi
         double va = design_eig_quad(&e1, g, pb->rank_tol, &o->determined_after);
         o->se_before = sqrt(vb);
         o->se_after = sqrt(va);
-        o->half_before = res->t_before * o->se_before;
-        o->half_after = res->t_after * o->se_after;
+        design_dof(pb, g, res->k, &o->dof_before, &o->dof_after);
+        o->half_before = design_tquant(pb->level, o->dof_before) * o->se_before;
+        o->half_after = design_tquant(pb->level, o->dof_after) * o->se_after;
         ib += o->weight * (o->determined_before ? vb : INFINITY);
         ia += o->weight * (o->determined_after ? va : INFINITY);
     }

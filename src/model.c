@@ -457,6 +457,23 @@ int stagecal_model_check(const stagecal_model *m, stagecal_error *err)
 
 /* ---- evaluation ----------------------------------------------------------------------- */
 
+int stagecal_model_param_dof(const stagecal_model *m, size_t k, double *dof, stagecal_error *err)
+{
+    if (!m || !dof || k >= m->form.p)
+        return error_set(err, STAGECAL_EINVAL,
+                         "parameter %zu of a model with %zu (expected one "
+                         "of them)",
+                         k, m ? m->form.p : 0);
+    if (!m->design || m->n_design == 0) {
+        *dof = m->dof;
+        return STAGECAL_OK;
+    }
+    double c[STAGECAL_FORM_MAXP] = {0};
+    c[k] = 1;
+    return stagecal_regress_contrast_dof(m->design, m->n_design, m->form.p, m->design_run, c, dof,
+                                         err);
+}
+
 int stagecal_model_eval(const stagecal_model *m, double r, double f_load, double level,
                         stagecal_model_point *out, stagecal_error *err)
 {

@@ -105,6 +105,19 @@ int stagecal_regress_band(const stagecal_form *form, const double *theta, const 
     return stagecal_regress_band_obs(form, theta, cov, sigma, 1.0, dof, level, r, f_load, out, err);
 }
 
+int stagecal_regress_result_band(const stagecal_regress_result *res, double r, double f_load,
+                                 double obs_sigma, stagecal_band *out, stagecal_error *err)
+{
+    if (!res)
+        return error_set(err, STAGECAL_EINVAL, "band: a fit result is required");
+    /* the dof of σ_obs, as the model file stores it (calibrate.c) */
+    double dof_sigma =
+        res->design && res->sigma_dof > 0 ? fmin(res->dof, res->sigma_dof) : res->dof;
+    return stagecal_regress_band_clustered(&res->form, res->theta, res->cov, res->sigma_obs,
+                                           obs_sigma, dof_sigma, res->design, res->cluster, res->n,
+                                           res->level, r, f_load, out, err);
+}
+
 int regress_band_grid(const stagecal_regress_params *prm, stagecal_regress_result *res,
                       stagecal_error *err)
 {
@@ -124,9 +137,6 @@ int regress_band_grid(const stagecal_regress_params *prm, stagecal_regress_resul
         nf = 3;
     }
     size_t nrr = nr + (res->has_total_reflux ? 1 : 0);
-    /* the dof of σ_obs, as the model file stores it (calibrate.c) */
-    double dof_sigma =
-        res->design && res->sigma_dof > 0 ? fmin(res->dof, res->sigma_dof) : res->dof;
     if (nrr == 0)
         return STAGECAL_OK;
     res->band = calloc(nrr * nf, sizeof *res->band);
@@ -138,9 +148,7 @@ int regress_band_grid(const stagecal_regress_params *prm, stagecal_regress_resul
                                                            (double)(nr - 1)
                                         : res->r_min)
                               : INFINITY;
-            int rc = stagecal_regress_band_clustered(
-                &res->form, res->theta, res->cov, res->sigma_obs, 1.0, dof_sigma, res->design,
-                res->cluster, res->n, res->level, r, fs[j], &res->band[res->nband], err);
+            int rc = stagecal_regress_result_band(res, r, fs[j], 1.0, &res->band[res->nband], err);
             if (rc != STAGECAL_OK)
                 return rc;
             res->nband++;

@@ -205,8 +205,8 @@ static void other_fit(stagecal_report_doc *d, const stagecal_calibration *cal)
     stagecal_band b;
     double f = m->form.uses_load ? d->ans_f : NAN;
     if (m->one_sided || stagecal_model_eval(m, d->ans_r, f, 0, &p, NULL) != STAGECAL_OK ||
-        stagecal_regress_band(&o->form, o->theta, o->cov, s, o->dof, m->level, d->ans_r,
-                              isfinite(f) ? f : 0, &b, NULL) != STAGECAL_OK)
+        stagecal_regress_result_band(o, d->ans_r, isfinite(f) ? f : 0, 1.0, &b, NULL) !=
+            STAGECAL_OK)
         return;
     double diff = fabs(p.stages - b.value), comb = sqrt(p.se_fit * p.se_fit + b.se_fit * b.se_fit);
     const char *used = stagecal_model_method_name(m->method);

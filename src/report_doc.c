@@ -5,6 +5,7 @@
  */
 #include "stagecal/report.h"
 
+#include <gsl/gsl_cdf.h>
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
@@ -462,12 +463,16 @@ static void doc_fit(stagecal_report_doc *d, const stagecal_model *m, double t)
     d->fit_head[0] = "parameter", d->fit_head[1] = "value", d->fit_head[2] = "std. error";
     d->fit_head[3] = report_doc_str(d, "%.0f %% interval", 100 * m->level);
     for (size_t i = 0; i < p; i++) {
-        double se = sqrt(fmax(m->cov[i * p + i], 0));
+        double se = sqrt(fmax(m->cov[i * p + i], 0)), k, ti = t;
+        /* with a design each parameter's t is at its own contrast's dof (as the calibration
+         * printed it), not at the band's dof at some condition */
+        if (m->design && stagecal_model_param_dof(m, i, &k, NULL) == STAGECAL_OK)
+            ti = gsl_cdf_tdist_Pinv(0.5 + 0.5 * m->level, k);
         d->fit_cells[4 * i] = m->form.param_names[i];
         d->fit_cells[4 * i + 1] = report_doc_str(d, "%.6g", m->theta[i]);
         d->fit_cells[4 * i + 2] = report_doc_str(d, "%.3g", se);
         d->fit_cells[4 * i + 3] =
-            report_doc_str(d, "[%.6g, %.6g]", m->theta[i] - t * se, m->theta[i] + t * se);
+            report_doc_str(d, "[%.6g, %.6g]", m->theta[i] - ti * se, m->theta[i] + ti * se);
         if (m->one_sided) { /* "at least N stages": a bound, no standard error */
             d->fit_cells[4 * i + 1] = report_doc_str(d, "at least %.6g", m->theta[i]);
             d->fit_cells[4 * i + 2] = "none (one-sided)";
@@ -611,7 +616,8 @@ int stagecal_report_from_model(const stagecal_model *m, const stagecal_regress_d
     doc_job(d, m);
     doc_inputs(d, m);
 
-    /* fit table: t quantile at the model's level from stagecal_model_eval (any point) */
+    /* fit table: t quantile at the model's level from stagecal_model_eval (any point; with
+     * a design each parameter's own, doc_fit) */
     stagecal_model_point p0;
     double f_mid = m->has_load ? 0.5 * (m->f_min + m->f_max) : NAN;
     double r_ref = isfinite(m->r_max) ? 0.5 * (m->r_min + m->r_max) : fmax(m->r_min, 1.0);

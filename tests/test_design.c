@@ -12,6 +12,7 @@
  * Experimental Designs, with SAS" — both from memory); a
  * brute-force grid for the I-optimal single test.
  */
+#include <gsl/gsl_cdf.h>
 #include <gsl/gsl_deriv.h>
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_linalg.h>
@@ -179,6 +180,77 @@ static void design_half_width_before_is_model_band(void **state)
         }
         stagecal_model_free(&m);
     }
+}
+
+/* A model file that carries its fit's design (the default hc2-bm calibration, format 3)
+ * and the rows' runs (--covariance cr2-run, format 5): its bands use Student t at the
+ * Bell–McCaffrey dof of each condition's own contrast, clustered by run with the runs
+ * (stagecal_model_eval), not the file's dof (σ's). The half-width before, in numbers and in
+ * the chart, is that band, and its dof the contrast's: at R = 3 against numpy's
+ * (tests/cr2_crosscheck.py, Pustejovsky & Tipton 2018; testutil_cr2_dof), at most G − 1 =
+ * 3. After the tests the same dof (no credit for windows whose runs are unknown).
+ * Tolerances: 1e-9 relative against numpy (the same linear algebra by two routes, rounding
+ * ~1e-13); 1e-9 between the information route and the model's band (as above). */
+#define DN 10
+static void design_half_width_takes_the_models_design_dof(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_design_problem pb;
+    stagecal_error err;
+    double theta[2] = {8, -3}, cov[4] = {0.04, -0.05, -0.05, 0.09}, x[2 * DN], r[DN], ref[3];
+    size_t run[DN];
+    make_model(&m, "linear:1+1/R", theta, cov, 0.3, 8);
+    for (size_t i = 0; i < DN; i++) {
+        r[i] = 1.5 + 0.4 * (double)i;
+        x[2 * i] = 1;
+        x[2 * i + 1] = 1 / r[i];
+        run[i] = i % 4;
+    }
+    testutil_cr2_dof(r, run, DN, ref);
+    assert_int_equal(stagecal_model_set_design(&m, x, DN, &err), STAGECAL_OK);
+    stagecal_design_point at[3] = {{3.0, NAN, 1}, {4.5, NAN, 1}, {1.2, NAN, 1}};
+    stagecal_design_test tests[2] = {{2.0, NAN, 0}, {5.5, NAN, 0}};
+    double clustered = 0;
+    for (int clu = 1; clu >= 0; clu--) {
+        assert_int_equal(stagecal_model_set_design_run(&m, clu ? run : NULL, &err), STAGECAL_OK);
+        assert_int_equal(stagecal_design_from_model(&m, &pb, &err), STAGECAL_OK);
+        stagecal_design_result res;
+        stagecal_design_at out[3];
+        assert_int_equal(
+            stagecal_design_evaluate(&pb, tests, 2, at, 3, STAGECAL_DESIGN_I, &res, out, &err),
+            STAGECAL_OK);
+        if (clu) {
+            assert_rel(out[0].dof_before, ref[2], 1e-9, "clustered dof at R = 3 vs numpy");
+            assert_true(out[0].dof_before <= 3);
+            clustered = out[0].dof_before;
+        } else {
+            assert_true(out[0].dof_before > clustered); /* the windows' own, unclustered */
+        }
+        assert_true(isnan(res.t_before) && isnan(res.t_after));
+        for (size_t j = 0; j < 3; j++) {
+            stagecal_model_point pt;
+            assert_int_equal(stagecal_model_eval(&m, at[j].r, NAN, 0, &pt, &err), STAGECAL_OK);
+            assert_true(pt.dof_fit < m.dof);
+            assert_rel(out[j].dof_before, pt.dof_fit, 1e-12, "dof before = the band's");
+            assert_rel(out[j].half_before, 0.5 * (pt.ci_high - pt.ci_low), 1e-9,
+                       "half-width before = model's confidence band");
+            assert_rel(out[j].dof_after, out[j].dof_before, 1e-15, "no dof credited after");
+            assert_rel(out[j].half_after,
+                       gsl_cdf_tdist_Pinv(0.975, out[j].dof_before) * out[j].se_after, 1e-12,
+                       "half-width after");
+        }
+        stagecal_design_curves c;
+        assert_int_equal(stagecal_design_chart_curves(&m, &pb, &res, out, 3, &c, &err),
+                         STAGECAL_OK);
+        for (size_t i = 0; i < c.n; i += 20) {
+            stagecal_model_point pt;
+            assert_int_equal(stagecal_model_eval(&m, c.r[i], NAN, 0, &pt, &err), STAGECAL_OK);
+            assert_rel(c.now_hi[i] - c.stages[i], 0.5 * (pt.ci_high - pt.ci_low), 1e-9,
+                       "chart's band before = model's confidence band");
+        }
+    }
+    stagecal_model_free(&m);
 }
 
 /* linear:1+1/R at θ = (10, −7), σ = 0.4, 3 dof, no windows yet. */
@@ -587,6 +659,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(design_information_matches_finite_differences),
         cmocka_unit_test(design_half_width_before_is_model_band),
+        cmocka_unit_test(design_half_width_takes_the_models_design_dof),
         cmocka_unit_test(design_after_matches_weighted_least_squares),
         cmocka_unit_test(design_d_optimal_line_puts_points_at_the_ends),
         cmocka_unit_test(design_singular_information_names_the_identifying_condition),

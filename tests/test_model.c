@@ -1186,6 +1186,58 @@ static void model_eval_uses_design_run_dof(void **state)
     stagecal_model_free(&m);
 }
 
+/* Each parameter's t dof (the report's fit table): without a design the file's dof; with
+ * one the Bell–McCaffrey dof of θ_k's own contrast e_k — with the runs clustered by run,
+ * against numpy (tests/cr2_crosscheck.py, Pustejovsky & Tipton 2018; tolerance 1e-9
+ * relative, the same linear algebra by two routes), without them HC2's (above the
+ * clustered); a balanced mean of 4 runs: 3 (the one-way closed form, test_regress_bm.c).
+ * Not the dof of the band at some R, a different contrast. */
+static void model_param_dof_is_each_parameters_own(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_model_point pt;
+    stagecal_error err;
+    double x[2 * NPTS], ref[3], k, k1, hc2;
+    size_t run[NPTS];
+    linear_model(&m);
+    assert_int_equal(stagecal_model_param_dof(&m, 1, &k, &err), STAGECAL_OK);
+    assert_rel(k, m.dof, 1e-15, "no design: the file's dof");
+    for (size_t i = 0; i < NPTS; i++) {
+        x[2 * i] = 1;
+        x[2 * i + 1] = 1 / pts_r[i];
+        run[i] = i % 4;
+    }
+    testutil_cr2_dof(pts_r, run, NPTS, ref);
+    assert_int_equal(stagecal_model_set_design(&m, x, NPTS, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_set_design_run(&m, run, &err), STAGECAL_OK);
+    for (size_t j = 0; j < 2; j++) {
+        assert_int_equal(stagecal_model_param_dof(&m, j, &k, &err), STAGECAL_OK);
+        assert_rel(k, ref[j], 1e-9, "clustered parameter dof vs numpy");
+        assert_true(k <= 3);
+    }
+    assert_int_equal(stagecal_model_param_dof(&m, 0, &k, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_eval(&m, 3.0, NAN, 0.95, &pt, &err), STAGECAL_OK);
+    assert_true(fabs(pt.dof_fit - k) > 0.01); /* the band's contrast is another */
+    assert_int_equal(stagecal_model_set_design_run(&m, NULL, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_param_dof(&m, 1, &hc2, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_set_design_run(&m, run, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_param_dof(&m, 1, &k1, &err), STAGECAL_OK);
+    assert_true(hc2 > k1);
+    assert_int_equal(stagecal_model_param_dof(&m, 2, &k, &err), STAGECAL_EINVAL);
+    stagecal_model_free(&m);
+
+    fill_model(&m, "constant");
+    m.one_sided = 0;
+    for (size_t i = 0; i < 8; i++)
+        x[i] = 0.8, run[i] = i / 2; /* a mean of 4 runs of 2 windows */
+    assert_int_equal(stagecal_model_set_design(&m, x, 8, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_set_design_run(&m, run, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_param_dof(&m, 0, &k, &err), STAGECAL_OK);
+    assert_rel(k, 3, 1e-12, "a balanced mean of 4 runs: 3");
+    stagecal_model_free(&m);
+}
+
 static void model_eval_after_load_matches_design_matrix(void **state)
 {
     (void)state;
@@ -1933,6 +1985,7 @@ int main(void)
         cmocka_unit_test(model_eval_after_load_matches_design_matrix),
         cmocka_unit_test(model_eval_uses_design_dof),
         cmocka_unit_test(model_eval_uses_design_run_dof),
+        cmocka_unit_test(model_param_dof_is_each_parameters_own),
         cmocka_unit_test(model_eval_flags_extrapolation),
         cmocka_unit_test(model_eval_rejects_bad_arguments),
         cmocka_unit_test(model_add_helpers_validate),

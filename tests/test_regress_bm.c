@@ -154,8 +154,48 @@ static void regress_cr2_matches_numpy(void **state)
                                                      3.0, 0, &b, &e),
                      STAGECAL_OK);
     assert_rel(b.dof_fit, v[2], 1e-9, "band dof at R = 3 vs numpy");
+    /* the band from the result alone: the same clustered dof */
+    assert_int_equal(stagecal_regress_result_band(&res, 3.0, 0, 1.0, &b, &e), STAGECAL_OK);
+    assert_rel(b.dof_fit, v[2], 1e-9, "result band dof at R = 3 vs numpy");
+    /* the design without its clusters: HC2's dof, larger (what regress.h warns of) */
+    assert_int_equal(stagecal_regress_band_design(&res.form, res.theta, res.cov, res.sigma, 1.0,
+                                                  res.dof, res.design, res.n, 0.95, 3.0, 0, &b, &e),
+                     STAGECAL_OK);
+    assert_true(b.dof_fit > v[2] + 1);
     assert_int_equal(pclose(py), 0);
     stagecal_regress_result_free(&res);
+}
+
+/* The band grid of a fit (result.band) is stagecal_regress_result_band at its points, for
+ * every covariance kind (the same function: identical doubles), and its dof is the kind's:
+ * the clustered one for CR2_RUN (at most G − 1 = 4), the windows' n − p without a design. */
+static void regress_result_band_is_the_grid(void **state)
+{
+    (void)state;
+    double r[CR2_N], y[CR2_N], s[CR2_N];
+    size_t run[CR2_N];
+    cr2_data(r, y, s, run);
+    const stagecal_cov_kind kinds[3] = {STAGECAL_COV_CR2_RUN, STAGECAL_COV_HC2_BM,
+                                        STAGECAL_COV_MODEL};
+    for (size_t q = 0; q < 3; q++) {
+        stagecal_regress_result res;
+        stagecal_band b;
+        stagecal_error e;
+        cr2_fit(r, y, s, run, kinds[q], &res);
+        assert_int_equal(res.cov_kind, kinds[q]);
+        assert_true(res.nband > 2);
+        for (size_t i = 0; i < res.nband; i++) {
+            assert_int_equal(stagecal_regress_result_band(&res, res.band[i].r, 0, 1.0, &b, &e),
+                             STAGECAL_OK);
+            assert_memory_equal(&b, &res.band[i], sizeof b);
+            if (kinds[q] == STAGECAL_COV_CR2_RUN)
+                assert_true(b.dof_fit <= 4);
+            if (kinds[q] == STAGECAL_COV_MODEL)
+                assert_rel(b.dof_fit, res.dof, 1e-15, "no design: n - p");
+        }
+        stagecal_regress_result_free(&res);
+    }
+    assert_int_equal(stagecal_regress_result_band(NULL, 3, 0, 1, NULL, NULL), STAGECAL_EINVAL);
 }
 
 /* One window per run: A_g = (1 − h_i)^−½, the CR2 sandwich is HC2 and the dof is the
@@ -253,6 +293,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(regress_bm_dof_closed_forms),
         cmocka_unit_test(regress_cr2_matches_numpy),
+        cmocka_unit_test(regress_result_band_is_the_grid),
         cmocka_unit_test(regress_cr2_one_window_per_run_is_hc2),
         cmocka_unit_test(regress_cr2_balanced_closed_form),
         cmocka_unit_test(regress_cr2_few_runs_fall_back),

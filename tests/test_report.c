@@ -12,6 +12,7 @@
 #include <sys/wait.h>
 #include <unistd.h>
 
+#include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 
 #include "stagecal/form.h"
@@ -274,6 +275,48 @@ static void check_answer_hetp(const stagecal_report *rep, double r)
     assert_abs(got, h / n, 6e-4, "HETP = H/(N - 1) at the answer's R");
     assert_abs(lo, h / (n + t * se), 6e-4, "HETP low end");
     assert_abs(hi, h / (n - t * se), 6e-4, "HETP high end");
+}
+
+/* The fit table of a model that carries its design with the rows' runs (calibrate
+ * --covariance cr2-run, format 5): each parameter's interval is θ ∓ t·se with t at that
+ * parameter's own run-clustered Bell–McCaffrey dof (the calibration's), here against numpy
+ * (tests/cr2_crosscheck.py, Pustejovsky & Tipton 2018), and the t quantile from GSL; not
+ * at the band's dof at the reference R (another contrast). Formatted as the report does
+ * (%.6g): the dof agree to 1e-9, far below the printed digits. */
+static void report_fit_table_takes_each_parameters_dof(void **state)
+{
+    (void)state;
+    stagecal_model m;
+    stagecal_error err;
+    double x[20], r[10], ref[3];
+    size_t run[10];
+    demo_model(&m);
+    assert_int_equal(stagecal_form_parse("linear:1+1/R", &m.form, &err), STAGECAL_OK);
+    m.theta[0] = 8, m.theta[1] = -3;
+    m.cov[0] = 0.04, m.cov[1] = m.cov[2] = -0.01, m.cov[3] = 0.09;
+    for (size_t i = 0; i < 10; i++) {
+        r[i] = 0.7 + 0.55 * (double)i;
+        x[2 * i] = 1;
+        x[2 * i + 1] = 1 / r[i];
+        run[i] = i % 4;
+    }
+    testutil_cr2_dof(r, run, 10, ref);
+    assert_int_equal(stagecal_model_set_design(&m, x, 10, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_set_design_run(&m, run, &err), STAGECAL_OK);
+    assert_int_equal(stagecal_model_check(&m, &err), STAGECAL_OK);
+    stagecal_report_doc *doc = NULL;
+    assert_int_equal(stagecal_report_from_model(&m, NULL, &doc, &err), STAGECAL_OK);
+    const stagecal_report *rep = stagecal_report_doc_content(doc);
+    const double se[2] = {0.2, 0.3};
+    for (size_t k = 0; k < 2; k++) {
+        char want[64];
+        double t = gsl_cdf_tdist_Pinv(0.975, ref[k]);
+        assert_true(ref[k] <= 3); /* 4 runs */
+        snprintf(want, sizeof want, "[%.6g, %.6g]", m.theta[k] - t * se[k], m.theta[k] + t * se[k]);
+        assert_string_equal(rep->fit->cells[4 * k + 3], want);
+    }
+    stagecal_report_doc_free(doc);
+    stagecal_model_free(&m);
 }
 
 static void report_from_model_fills_sections(void **state)
@@ -614,6 +657,7 @@ int main(void)
         cmocka_unit_test(report_refuses_bad_content),
         cmocka_unit_test(report_write_is_atomic),
         cmocka_unit_test(report_from_model_fills_sections),
+        cmocka_unit_test(report_fit_table_takes_each_parameters_dof),
         cmocka_unit_test(report_condition_matches_closed_forms),
         cmocka_unit_test(report_sigma_by_r),
         cmocka_unit_test(report_cli_writes_files),

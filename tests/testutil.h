@@ -86,4 +86,30 @@ static inline void testutil_python_numbers(const char *script, const char *code,
     assert_int_equal(pclose(pp), 0);
 }
 
+/* The run-clustered (CR2) Bell–McCaffrey dof of the design rows (1, 1/r_i), unweighted,
+ * row i in run run[i], from tests/cr2_crosscheck.py (numpy: the Satterthwaite dof over
+ * the eigenvalues of the G×G matrix of Pustejovsky & Tipton 2018, "Small-sample methods
+ * for cluster-robust variance estimation and hypothesis testing in fixed effects models",
+ * J. Bus. Econ. Stat. 36, 672–683; the script checks its own CR0 against statsmodels):
+ * dof[0], dof[1] those of the two parameters, dof[2] that of the fitted value at R = 3.
+ * The dof does not depend on the stage counts; the script is given 8 − 3/r_i plus a run
+ * offset. */
+static inline void testutil_cr2_dof(const double *r, const size_t *run, size_t n, double *dof)
+{
+    char cmd[8192], line[4096];
+    size_t len = (size_t)snprintf(cmd, sizeof cmd, "%s %s/cr2_crosscheck.py", STAGECAL_PYTHON,
+                                  STAGECAL_TESTS_DIR);
+    for (size_t i = 0; i < n && len < sizeof cmd; i++)
+        len += (size_t)snprintf(cmd + len, sizeof cmd - len, " %.17g %.17g 1 %zu", r[i],
+                                8 - 3 / r[i] + 0.05 * sin(1.3 * (double)run[i] + 0.7 * (double)i),
+                                run[i]);
+    assert_true(len < sizeof cmd);
+    FILE *py = popen(cmd, "r");
+    assert_non_null(py);
+    for (int k = 0; k < 4; k++) /* params, cr2_cov, cr0_cov, sm_cr0 */
+        assert_non_null(fgets(line, sizeof line, py));
+    assert_int_equal(testutil_line_values(py, "cr2_dof", dof, 3), 3);
+    assert_int_equal(pclose(py), 0);
+}
+
 #endif

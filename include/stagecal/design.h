@@ -72,13 +72,22 @@ typedef struct {
                                  window's when scatter below has none */
     stagecal_scatter scatter; /* σ of one new window by R (stagecal/scatter.h; n = 0: sigma
                                  at every R). A window at R adds g gᵀ/σ(R)² */
-    double dof;               /* residual degrees of freedom of the current fit, > 0 */
+    double dof;               /* residual degrees of freedom of the current fit, > 0 (with a
+                                 design below: σ's only) */
     double level;             /* confidence level of the bands, in (0, 1) */
     size_t window_samples;    /* mean logged samples per window behind the fit (0: unknown) */
     double rank_tol;          /* an eigenvalue of the information scaled to unit diagonal below
                                  rank_tol·largest counts as zero (not identified), and stages at
                                  a condition are determined when the gradient's component in
                                  that null space is below sqrt(rank_tol) of its length; 1e-9 */
+    /* The fit's design where the model file has one (format 3; borrowed from the model,
+     * which must outlive the problem; NULL: none): n_design rows of form.p values and, for a
+     * covariance clustered by run (format 5), each row's run (NULL: rows independent). With
+     * it the half-width at a condition uses Student t at the dof of that condition's own
+     * contrast, as the model file's band does (stagecal_regress_contrast_dof), not dof. */
+    const double *design;
+    size_t n_design;
+    const size_t *design_run;
 } stagecal_design_problem;
 
 /* Tunables. */
@@ -136,8 +145,14 @@ typedef struct {
     double se_before, se_after;     /* standard error of the fitted stages [stages], NAN when
                                        not determined */
     double half_before, half_after; /* half-width of the confidence interval at the level:
-                                       t(dof)·se_before, t(dof + K)·se_after; NAN when not
-                                       determined */
+                                       t(dof_before)·se_before, t(dof_after)·se_after; NAN
+                                       when not determined */
+    double dof_before, dof_after;   /* their t dof: without a design dof and dof + K (K more
+                                       windows, K more residual dof); with one the dof of this
+                                       condition's contrast (run-clustered when the design has
+                                       runs) for both: the model file's own band before, and
+                                       after no credit for the new windows (what they add to a
+                                       small-sample dof depends on the runs they come from) */
 } stagecal_design_at;
 
 typedef struct {
@@ -150,7 +165,8 @@ typedef struct {
                                        when not determined); D: log det of the information */
     double log_det_ratio;           /* log det M − log det I₀ (INFINITY when I₀ is singular
                                        and M is not) */
-    double t_before, t_after;       /* Student t quantiles: dof, dof + K */
+    double t_before, t_after;       /* Student t quantiles: dof, dof + K; NAN with a design
+                                       (each condition has its own: stagecal_design_at) */
     /* identification (rank_before < p): the single condition that adds the most information
      * in the missing direction, and the rank it would give */
     double identify_r, identify_f; /* NAN when rank_before = p */
@@ -179,8 +195,9 @@ int stagecal_design_window_info(const stagecal_design_problem *pb, double r, dou
 
 /* The current information of a model file: I₀ = C⁻¹ (through the eigen-decomposition of
  * the correlation matrix of C), σ = sigma_stages and the scatter function σ(R) where the
- * file has one (format 4), dof, level, and the mean samples per window (n_samples /
- * n_windows). EDATA when C is not positive definite or sigma_stages is 0 (a new window's
+ * file has one (format 4), dof, level, the mean samples per window (n_samples /
+ * n_windows), and the design with its runs where the file has them (borrowed: m must
+ * outlive pb). EDATA when C is not positive definite or sigma_stages is 0 (a new window's
  * information is then undefined). */
 int stagecal_design_from_model(const stagecal_model *m, stagecal_design_problem *pb,
                                stagecal_error *err);
@@ -221,7 +238,8 @@ int stagecal_design_evaluate(const stagecal_design_problem *pb, const stagecal_d
  * conditions of interest (the upper search bound, when it is total reflux, replaced by the
  * model's largest fitted R), the fitted stages of m at F = at[0].f_load (load forms; the
  * chart is a section at that F) and the band at the level of pb before and after the
- * tests: stages ∓ t·sqrt(variance) (NAN where not determined). Tests and conditions at
+ * tests: stages ∓ t·sqrt(variance) (NAN where not determined), t at each R's dof as
+ * stagecal_design_at's dof_before and dof_after. Tests and conditions at
  * total reflux have no place on the R axis: they are counted, not drawn. */
 #define STAGECAL_DESIGN_CURVE_N 121
 #define STAGECAL_DESIGN_CURVE_MAXAT 64

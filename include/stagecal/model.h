@@ -278,6 +278,14 @@ typedef struct {
 int stagecal_model_eval(const stagecal_model *m, double r, double f_load, double level,
                         stagecal_model_point *out, stagecal_error *err);
 
+/* The t dof of parameter k's interval θ_k ∓ t·sqrt(C_kk): the model's dof, or with a
+ * design the Bell–McCaffrey dof of θ_k's own contrast, run-clustered when the file has
+ * design_run (stagecal_regress_contrast_dof) — the dof the calibration gave the parameter
+ * (stagecal_regress_result.param_dof). Not the dof of a band at some condition: that is
+ * another contrast's (stagecal_model_eval). EINVAL (k ≥ form.p, NULL); EDATA, ENOMEM from
+ * stagecal_regress_contrast_dof. */
+int stagecal_model_param_dof(const stagecal_model *m, size_t k, double *dof, stagecal_error *err);
+
 /* "stage-space" / "composition-space" / "censored-likelihood". */
 const char *stagecal_model_method_name(stagecal_model_method method);
 

@@ -159,7 +159,11 @@ int stagecal_regress_band_obs(const stagecal_form *form, const double *theta, co
  * values, row-major, in the parameters' units; NULL or n_x = 0: none): the confidence band
  * then uses Student t at the Bell–McCaffrey dof of the contrast gᵀθ (stagecal_regress_bm_dof)
  * and the prediction band t at the Welch–Satterthwaite dof of se_fit² (that dof) + (σ·obs)²
- * (dof, the dof of σ). EDATA when x is rank deficient. */
+ * (dof, the dof of σ). EDATA when x is rank deficient.
+ * The rows are taken as independent: that is HC2's dof. Given the design of a CR2_RUN fit
+ * (clustered covariance) it overstates the dof and narrows the band: pass the clusters
+ * (stagecal_regress_band_clustered), or band a fit with stagecal_regress_result_band and a
+ * model file with stagecal_model_eval, which take the covariance and its dof together. */
 int stagecal_regress_band_design(const stagecal_form *form, const double *theta, const double *cov,
                                  double sigma, double obs_sigma, double dof, const double *x,
                                  size_t n_x, double level, double r, double f_load,
@@ -270,6 +274,16 @@ typedef struct {
     size_t nband;
     stagecal_band *band;
 } stagecal_regress_result;
+
+/* The band of a fit at (r, f_load) from the result alone, so that the covariance and the
+ * dof are of one kind: res->cov, σ of one new observation res->sigma_obs·obs_sigma (pass 1
+ * for a typical one) with the dof of σ (res->dof, or res->sigma_dof where smaller, as the
+ * model file stores it), and with a design (HC2_BM, CR2_RUN) the contrast's Bell–McCaffrey
+ * dof, clustered by res->cluster for CR2_RUN (stagecal_regress_band_clustered); without one
+ * t at res->dof. The band grid (res->band) is this at each grid point. Errors of
+ * stagecal_regress_band_clustered. */
+int stagecal_regress_result_band(const stagecal_regress_result *res, double r, double f_load,
+                                 double obs_sigma, stagecal_band *out, stagecal_error *err);
 
 /* ---- the nonlinear least-squares driver (regress_nlin.c) ------------------------------ */
 

@@ -153,16 +153,19 @@ static json_t *result_json(const char *path, const stagecal_model *m, const stru
     json_object_set_new(doc, "tests", tests);
     for (size_t j = 0; j < n_at; j++) {
         const stagecal_design_at *a = &at[j];
-        json_array_append_new(
-            ats, json_pack("{s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:b}", "reflux",
-                           cli_json_reflux(a->r), "f_factor",
-                           load ? cli_json_real(a->f_load) : json_null(), "weight",
-                           cli_json_real(a->weight), "stages", cli_json_real(a->stages),
-                           "half_width_before", real_or_null(a->half_before, a->determined_before),
-                           "half_width_after", real_or_null(a->half_after, a->determined_after),
-                           "se_before", real_or_null(a->se_before, a->determined_before),
-                           "se_after", real_or_null(a->se_after, a->determined_after),
-                           "extrapolated", extrapolated(m, a->r, a->f_load)));
+        json_t *o = json_pack(
+            "{s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:o, s:b}", "reflux", cli_json_reflux(a->r),
+            "f_factor", load ? cli_json_real(a->f_load) : json_null(), "weight",
+            cli_json_real(a->weight), "stages", cli_json_real(a->stages), "half_width_before",
+            real_or_null(a->half_before, a->determined_before), "half_width_after",
+            real_or_null(a->half_after, a->determined_after), "se_before",
+            real_or_null(a->se_before, a->determined_before), "se_after",
+            real_or_null(a->se_after, a->determined_after), "extrapolated",
+            extrapolated(m, a->r, a->f_load));
+        /* the t dof of each half-width (with a design: this condition's own) */
+        json_object_set_new(o, "dof_before", real_or_null(a->dof_before, a->determined_before));
+        json_object_set_new(o, "dof_after", real_or_null(a->dof_after, a->determined_after));
+        json_array_append_new(ats, o);
     }
     json_object_set_new(doc, "at", ats);
     json_object_set_new(
