@@ -24,7 +24,11 @@ static const struct cli_usage usage = {
     "Fits effective stages (the pot included) against the reflux ratio R and, where the\n"
     "points carry it, the F-factor F. POINTS.csv has a header 'R,stages' with optional\n"
     "'F' (Pa^0.5) and 'sigma' (standard uncertainty of stages; weights 1/sigma^2);\n"
-    "R may be 'inf'. '-' reads standard input.\n",
+    "R may be 'inf'. '-' reads standard input.\n"
+    "The covariance is the least-squares one, s^2 (J'WJ)^-1, with t at n - p dof: the\n"
+    "points are taken as independent. A points file does not say which run each point\n"
+    "came from, so the covariance clustered by run (calibrate --covariance cr2-run) is\n"
+    "not offered here: fit the run logs with calibrate for it.\n",
     "Exit status: 0 success, 2 usage error, 65 bad data, 66 missing file, 70 internal.\n"};
 
 static const char *const resample_names[] = {"case", "residual", NULL};

@@ -66,6 +66,14 @@ check_exit misra_auto_start 0 "" "$bin" regress "$misra" --form saturating --jso
 misra_check misra_auto_start "$tmp/out"
 cp "$tmp/out" "$tmp/plain.json"
 
+# a points file has no run of each point: no run-clustered covariance, and the help says why
+check_exit no_covariance_option 2 "unknown option '--covariance'" \
+    "$bin" regress "$misra" --form saturating --covariance cr2-run
+"$bin" regress --help >"$tmp/help" 2>&1
+grep -q "does not say which run each point" "$tmp/help" && grep -q "calibrate --covariance cr2-run" "$tmp/help" ||
+    fail "regress --help: does not say why the run-clustered covariance is not offered"
+echo "ok help_no_clustered_covariance"
+
 # Human table: parameter lines and sigma, dof.
 check_exit misra_text 0 "" "$bin" regress "$misra" --form saturating
 grep -q '^  a  *238\.94212' "$tmp/out" || fail "text table lacks a = 238.94212"
