@@ -20,8 +20,19 @@
  * proposed tests give the narrower band (mean half-width of the 95 % confidence interval
  * over the conditions of interest), and achieved / expected half-width after the tests.
  *
+ * The covariance of the fits (environment STUDY_COV): model (default: s²(JᵀWJ)⁻¹, t at the
+ * file's dof), hc2-bm (calibrate's default: the model carries the design, each band's t at
+ * its contrast's Bell–McCaffrey dof) or cr2-run (clustered by run: the initial windows
+ * dealt to STUDY_RUNS runs (5), window i to run i mod STUDY_RUNS, each continuation's K
+ * windows one new run, or with STUDY_NEW=each K new runs; the errors stay independent). Every band
+ * — before, expected after, achieved — is the fit's or the model's own
+ * (stagecal_regress_result_band, stagecal_model_eval's through probe), so its covariance and dof
+ * are of one kind. With a design, probe credits the new windows no dof; the line "expected, t at n
+ * - p + K" gives what the half-width after was before 4 December 2026 (t at σ's dof + K).
+ *
  * usage: tool_design_study [TRIALS (400)] [i|d (i)] [saturating|load (saturating)] [SEED (7)]
  */
+#include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
@@ -57,7 +68,12 @@ static double n_true(const struct truth *t, double r, double f)
 struct windows {
     size_t n;
     double r[NMAX], f[NMAX], y[NMAX], se[NMAX];
+    size_t run[NMAX];
 };
+
+static stagecal_cov_kind study_cov = STAGECAL_COV_MODEL;
+static size_t study_runs = 5;
+static int new_run_each; /* STUDY_NEW=each: every continuation window its own new run */
 
 static void add_window(struct windows *w, const struct truth *t, gsl_rng *rng, double r, double f)
 {
@@ -66,6 +82,8 @@ static void add_window(struct windows *w, const struct truth *t, gsl_rng *rng, d
     w->f[w->n] = f;
     w->se[w->n] = se;
     w->y[w->n] = n_true(t, r, f) + gsl_ran_gaussian(rng, se);
+    /* the initial windows dealt to the runs; each continuation's windows one new run */
+    w->run[w->n] = w->n < N0 ? w->n % study_runs : study_runs + (new_run_each ? w->n - N0 : 0);
     w->n++;
 }
 
@@ -75,6 +93,8 @@ static int fit(struct windows *w, const stagecal_form *form, int load, stagecal_
     stagecal_regress_data d;
     stagecal_regress_params par = stagecal_regress_default_params();
     par.band_points = 0;
+    par.cov_kind = study_cov;
+    par.cluster = w->run;
     d.n = w->n;
     d.r = w->r;
     d.f_load = load ? w->f : NULL;
@@ -90,8 +110,7 @@ static double mean_half(const stagecal_regress_result *r, const stagecal_design_
     double s = 0;
     for (size_t j = 0; j < NAT; j++) {
         stagecal_band b;
-        if (stagecal_regress_band(&r->form, r->theta, r->cov, r->sigma_obs, r->dof, 0.95, at[j].r,
-                                  at[j].f_load, &b, NULL))
+        if (stagecal_regress_result_band(r, at[j].r, at[j].f_load, 1.0, &b, NULL))
             return NAN;
         s += 0.5 * (b.ci_high - b.ci_low) / NAT;
     }
@@ -105,6 +124,16 @@ int main(int argc, char **argv)
     int load = argc > 3 && strcmp(argv[3], "load") == 0;
     unsigned long seed = argc > 4 ? strtoul(argv[4], NULL, 10) : 7;
     int tty = isatty(2);
+    const char *cov = getenv("STUDY_COV"), *runs = getenv("STUDY_RUNS");
+    if (cov && strcmp(cov, "hc2-bm") == 0)
+        study_cov = STAGECAL_COV_HC2_BM;
+    else if (cov && strcmp(cov, "cr2-run") == 0)
+        study_cov = STAGECAL_COV_CR2_RUN;
+    else if (cov && strcmp(cov, "model") != 0)
+        return 2;
+    if (runs && !((study_runs = strtoul(runs, NULL, 10)) >= 1 && study_runs <= N0))
+        return 2;
+    new_run_each = getenv("STUDY_NEW") && strcmp(getenv("STUDY_NEW"), "each") == 0;
     gsl_set_error_handler_off();
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     gsl_rng_set(rng, seed);
@@ -114,7 +143,8 @@ int main(int argc, char **argv)
     stagecal_design_point at[NAT] = {{2, 1.3, 1}, {2.5, 1.3, 1}};
     size_t done = 0, failed = 0, wins = 0, within20 = 0, cover_n = 0, cover_hit = 0;
     double sum_ratio = 0, sum_absdev = 0, sum_gain = 0, sum_exp = 0, sum_ach = 0, sum_base = 0;
-    double sum_before = 0;
+    double sum_before = 0, sum_ratio_old = 0;
+    size_t n_cov_kind = 0;
     size_t low_tests = 0, wins_naive = 0;
     double sum_naive = 0;
     /* per-trial values for medians */
@@ -148,6 +178,10 @@ int main(int argc, char **argv)
         m.dof = r0.dof;
         m.n_windows = N0;
         m.n_samples = 40 * N0;
+        /* the design and its runs go along, as calibrate writes them */
+        if (r0.design && (stagecal_model_set_design(&m, r0.design, r0.n, NULL) ||
+                          stagecal_model_set_design_run(&m, r0.cluster, NULL)))
+            return 1;
         stagecal_design_problem pb;
         stagecal_design_params par = stagecal_design_default_params();
         par.criterion = crit_d ? STAGECAL_DESIGN_D : STAGECAL_DESIGN_I;
@@ -183,18 +217,21 @@ int main(int argc, char **argv)
             wins_naive += mean_half(&r1, at) < naive;
             sum_naive += naive;
             double ach = mean_half(&r1, at), base = mean_half(&r2, at), exp_after = 0, before = 0;
+            double exp_old = 0;
+            n_cov_kind += r0.cov_kind == study_cov && r1.cov_kind == study_cov;
             for (size_t j = 0; j < NAT; j++) {
                 exp_after += out[j].half_after / NAT;
+                exp_old += gsl_cdf_tdist_Pinv(0.975, r0.dof + K) * out[j].se_after / NAT;
                 before += out[j].half_before / NAT;
                 stagecal_band b;
-                if (!stagecal_regress_band(&r1.form, r1.theta, r1.cov, r1.sigma_obs, r1.dof, 0.95,
-                                           at[j].r, at[j].f_load, &b, NULL)) {
+                if (!stagecal_regress_result_band(&r1, at[j].r, at[j].f_load, 1.0, &b, NULL)) {
                     double truth = n_true(&t, at[j].r, at[j].f_load);
                     cover_n++;
                     cover_hit += b.ci_low <= truth && truth <= b.ci_high;
                 }
             }
             double ratio = ach / exp_after;
+            sum_ratio_old += ach / exp_old;
             /* the same expectation for the comparison design (K windows at R = 4.5) */
             stagecal_design_test common[K];
             stagecal_design_result ev;
@@ -248,6 +285,10 @@ int main(int argc, char **argv)
     printf("design study: form %s, criterion %s, %zu trials (%zu completed, %zu failed fits), "
            "seed %lu\n",
            form.name, crit_d ? "D" : "I", trials, done, failed, seed);
+    printf("  covariance %s (%zu runs for cr2-run, the K new windows in %s; %zu of %zu trials' "
+           "fits got it)\n",
+           stagecal_regress_cov_name(study_cov), study_runs,
+           new_run_each ? "K new runs" : "one new run", n_cov_kind, done);
     printf("  initial design: %d windows (12 at R=4.5, 5 at R=4, 3 at R=3), sigma_w %.2f; "
            "K = %d tests in R 1.5..8; interest R = 2, 2.5\n",
            N0, SIGMA_W, K);
@@ -276,6 +317,7 @@ int main(int argc, char **argv)
                gsl_stats_median_from_sorted_data(v_ratio_base, 1, n_base),
                gsl_stats_quantile_from_sorted_data(v_ratio_base, 1, n_base, 0.05),
                gsl_stats_quantile_from_sorted_data(v_ratio_base, 1, n_base, 0.95), n_base);
+    printf("  achieved/expected, t at n - p + K (old), mean %.3f\n", sum_ratio_old / nd);
     printf("  |achieved/expected - 1|, mean               %.3f\n", sum_absdev / nd);
     printf("  |achieved/expected - 1| <= 0.2              %.1f %% of trials\n",
            100.0 * (double)within20 / nd);

@@ -197,7 +197,10 @@ int stagecal_model_add_input(stagecal_model *m, const char *path, const char *sh
 int stagecal_model_add_warning(stagecal_model *m, const char *text, stagecal_error *err);
 /* Replaces command_line with a copy of text (NULL clears it). ENOMEM. */
 int stagecal_model_set_command_line(stagecal_model *m, const char *text, stagecal_error *err);
-/* Copies n rows of form.p values into m->design (replacing any); ENOMEM. */
+/* Copies n rows of form.p values into m->design (replacing any); ENOMEM. For a fit with
+ * cov_kind STAGECAL_COV_CR2_RUN also give its clusters (stagecal_model_set_design_run with
+ * result.cluster): without them every band takes HC2's dof (rows independent) with the
+ * clustered covariance, more dof than it has. */
 int stagecal_model_set_design(stagecal_model *m, const double *x, size_t n, stagecal_error *err);
 /* Copies n_design clusters into m->design_run (cl NULL: none); call after
  * stagecal_model_set_design. ENOMEM. */
