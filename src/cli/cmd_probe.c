@@ -296,6 +296,10 @@ static void print_text(const char *path, const stagecal_model *m, const struct c
            "(first order); they are expectations, not guarantees. Run tests only inside the "
            "column's safe operating limits.\n",
            m->scatter.n > 0 ? " at each test's R" : "");
+    if (m->design_run) /* tests from one batch share its error: docs/design.md */
+        printf("The model's covariance is clustered by run: the after-values also assume the "
+               "tests come from separate batches; tests run in one batch give a wider band "
+               "(about 1.3 times, median, in the design study).\n");
 }
 
 /* Stages against R with the 95 % band before and after the tests, the tests and the

@@ -118,4 +118,26 @@ r = lambda v: float('inf') if v == 'inf' else v
 for x, y in zip(a['tests'], b['tests']):
     assert r(x['reflux']) == r(y['reflux']) or abs(x['reflux'] - y['reflux']) <= 1e-6 * abs(x['reflux']), (x, y)
 " "$tmp/from_model.json" "$tmp/from_logs.json"; then echo "ok: probe from run logs"; else echo "FAIL: probe from run logs"; fails=$((fails + 1)); fi
+# A model clustered by run (calibrate --covariance cr2-run, three months, 18 runs): each
+# condition's half-width takes t at its own contrast's dof (at most runs - 1 = 17, below the
+# file's dof), one t per condition (information.t_before null), and the text says the
+# after-values assume tests from separate batches (docs/design.md).
+"$BIN" calibrate --quiet --fits "$tmp/fitsc" --form saturating --column "$BT" --covariance cr2-run \
+    "$ROOT/datasets/demo/logs/2025-01.csv" "$ROOT/datasets/demo/logs/2025-02.csv" \
+    "$ROOT/datasets/demo/logs/2025-03.csv" >/dev/null || { echo "FAIL: calibrate cr2-run"; exit 1; }
+MC=$(ls "$tmp"/fitsc/*/*.json)
+"$BIN" probe "$MC" --at 2,4,8 --json >"$tmp/clu.json" 2>/dev/null
+if $py -c "
+import json, sys
+d = json.load(open(sys.argv[1]))
+m = json.load(open(sys.argv[2]))
+assert m['version'] == 5 and 'design_run' in m['correlation']
+assert d['information']['t_before'] is None and d['information']['t_after'] is None
+for a in d['at']:
+    assert 1 <= a['dof_before'] <= 17 and a['dof_before'] < m['correlation']['dof'], a
+    assert a['dof_after'] == a['dof_before'], a
+" "$tmp/clu.json" "$MC"; then echo "ok: probe on a run-clustered model"; else echo "FAIL: probe on a run-clustered model"; fails=$((fails + 1)); fi
+expect_exit 0 "" -- $P "$MC" --at 2,4
+grep -q "tests come from separate batches" "$tmp/out" ||
+    { echo "FAIL: probe text: no note on tests from one batch"; fails=$((fails + 1)); }
 finish
