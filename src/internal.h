@@ -49,6 +49,21 @@ double stages_fraction_target(double x_prev, double xn, double yn, double m, dou
 int stages_invert_quiet(const stagecal_vle *vle, double xd, double xb, double reflux,
                         double murphree, const stagecal_stages_params *params,
                         stagecal_stages_result *res, stagecal_error *err);
+/* stagecal_stages_invert_many without the reason texts; rc (may be NULL) receives each row's
+ * return value. */
+int stages_invert_many_quiet(const stagecal_vle *vle, size_t n, const double *xd, const double *xb,
+                             const double *reflux, double murphree,
+                             const stagecal_stages_params *params, stagecal_stages_result *res,
+                             int *rc, stagecal_error *err);
+/* Four rows through the constant-α closed form's fast path at once (AVX2 lanes): row j is
+ * (xd[j], xb[j], reflux[j]); bit j of the result set when row j took it, res[j] then filled with
+ * exactly what stages_invert_quiet gives (status ok, stages, column_stages, lv, x_target, the
+ * sensitivities, an empty reason); a row whose bit is 0 (no AVX2, not constant α at E_MV = 1,
+ * want_sensitivities = 2, or the row outside the fast path) needs stages_invert_quiet, and its
+ * res[j] is untouched. par may not be NULL. */
+unsigned stages_invert4_fast(const stagecal_vle *vle, const double xd[4], const double xb[4],
+                             const double reflux[4], double murphree,
+                             const stagecal_stages_params *par, stagecal_stages_result res[4]);
 int physics_invert_quiet(const stagecal_physics_cond *cond, double xd, double xb, double murphree,
                          const stagecal_stages_params *params, stagecal_stages_result *res,
                          stagecal_error *err);

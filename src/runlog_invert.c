@@ -92,13 +92,31 @@ int stagecal_runlog_f_factor(double v_mol_s, double m_kg_mol, double p_pa, doubl
     return STAGECAL_OK;
 }
 
+/* Rows per item of the threaded row loop: large enough that handing out blocks costs
+ * nothing, small enough that the two threads finish together. */
+#define INVERT_BLOCK_ROWS 512
+
+/* Rows inverted together (row_block_batched): a part of a block, so that the batch (~34 kB)
+ * stays in the first-level cache's neighbourhood and below malloc's mmap threshold (it is
+ * allocated for each run of a stream). */
+#define INVERT_BATCH_ROWS 128
+
+/* The plain rows of a part of a block, inverted together. */
+struct inv_batch {
+    double xd[INVERT_BATCH_ROWS], xb[INVERT_BATCH_ROWS], r[INVERT_BATCH_ROWS];
+    size_t row[INVERT_BATCH_ROWS];
+    int rc[INVERT_BATCH_ROWS], no_draw[INVERT_BATCH_ROWS];
+    stagecal_stages_result sr[INVERT_BATCH_ROWS];
+};
+
 struct inv_ctx {
     const stagecal_runlog *log;
     const stagecal_column *col;
     double murphree;
     stagecal_stages_params sp;
     stagecal_runlog_result *res;
-    stagecal_physics *ph; /* logged pressure, subcooled reflux (physics.h) */
+    stagecal_physics *ph;    /* logged pressure, subcooled reflux (physics.h) */
+    struct inv_batch *batch; /* NULL: every row alone */
 };
 
 /* Row i with a censored reading (xD and xB present, R > 0): a one-sided bound. A reading
@@ -138,8 +156,10 @@ int stagecal_runlog_bound(const stagecal_column *col, const stagecal_vle *vle, d
     return lower ? STAGECAL_NOTE_AT_LEAST : STAGECAL_NOTE_AT_MOST;
 }
 
-/* Inverts row i at reflux r (its set point, or INFINITY for no-distillate). */
-static void invert_row(struct inv_ctx *c, size_t i, double r)
+/* invert_row up to the inversion: 1 with the row's conditions in *pc when row i is to be
+ * inverted at reflux r, 0 when it is done (a value missing, R = 0, a censored reading, xD below
+ * xB, the conditions failed). */
+static int invert_row_cond(struct inv_ctx *c, size_t i, double r, stagecal_physics_cond *pc)
 {
     const stagecal_runlog *log = c->log;
     stagecal_runlog_result *res = c->res;
@@ -151,40 +171,51 @@ static void invert_row(struct inv_ctx *c, size_t i, double r)
     res->lv[i] = isinf(r) ? 1.0 : (r >= 0 ? r / (r + 1.0) : NAN);
     if (isnan(xd)) {
         res->note[i] = STAGECAL_NOTE_MISSING_XD;
-        return;
+        return 0;
     }
     if (isnan(xb)) {
         res->note[i] = STAGECAL_NOTE_MISSING_XB;
-        return;
+        return 0;
     }
     if (isnan(r)) {
         res->note[i] = STAGECAL_NOTE_MISSING_R;
         res->lv[i] = NAN; /* written as an empty cell */
-        return;
+        return 0;
     }
     if (r == 0) {
         res->note[i] = STAGECAL_NOTE_REFLUX_ZERO;
-        return;
+        return 0;
     }
     if (log->xd_cens[i] != STAGECAL_CENSOR_NONE || log->xb_cens[i] != STAGECAL_CENSOR_NONE) {
         invert_censored(c, i, r);
-        return;
+        return 0;
     }
     if (xd < xb) {
         res->note[i] = STAGECAL_NOTE_XD_BELOW_XB;
-        return;
+        return 0;
     }
-    stagecal_stages_result sr;
-    stagecal_physics_cond pc;
     if (stagecal_physics_cond_at(c->ph, log->p_pa ? log->p_pa[i] : NAN, xd, r,
-                                 log->t_reflux_k ? log->t_reflux_k[i] : NAN, &pc, NULL) != 0 ||
-        physics_invert_quiet(&pc, xd, xb, c->murphree, &c->sp, &sr, NULL) != STAGECAL_OK) {
+                                 log->t_reflux_k ? log->t_reflux_k[i] : NAN, pc, NULL) != 0) {
+        res->note[i] = STAGECAL_NOTE_FAILED;
+        return 0;
+    }
+    return 1;
+}
+
+/* invert_row after the inversion: row i's count sr under the conditions pc (rc the
+ * inversion's return value) at reflux r into res. */
+static void invert_row_store(struct inv_ctx *c, size_t i, double r, const stagecal_physics_cond *pc,
+                             int rc, const stagecal_stages_result *sr)
+{
+    const stagecal_runlog *log = c->log;
+    stagecal_runlog_result *res = c->res;
+    if (rc != STAGECAL_OK) {
         res->note[i] = STAGECAL_NOTE_FAILED;
         return;
     }
-    res->lv[i] = isinf(pc.r_int) ? 1.0 : pc.r_int / (pc.r_int + 1.0); /* internal L/V */
-    res->status[i] = (unsigned char)sr.status;
-    if (sr.status != STAGECAL_STAGES_OK) {
+    res->lv[i] = isinf(pc->r_int) ? 1.0 : pc->r_int / (pc->r_int + 1.0); /* internal L/V */
+    res->status[i] = (unsigned char)sr->status;
+    if (sr->status != STAGECAL_STAGES_OK) {
         res->note[i] = STAGECAL_NOTE_STAGES;
         return;
     }
@@ -193,20 +224,32 @@ static void invert_row(struct inv_ctx *c, size_t i, double r)
      * stated u(R) */
     double ur = log->u_r_set && log->u_r_set[i] > 0 ? log->u_r_set[i] : hypot(u->r, u->r_rel * r);
     double ur2 = isinf(r) ? 0.0 : ur * ur;
-    double a = sr.dstages_dxd * runlog_u_row(log, c->col, i, 1);
-    double b = sr.dstages_dxb * runlog_u_row(log, c->col, i, 0);
-    double tr2 = sr.dstages_dr * sr.dstages_dr * ur2;
+    double a = sr->dstages_dxd * runlog_u_row(log, c->col, i, 1);
+    double b = sr->dstages_dxb * runlog_u_row(log, c->col, i, 0);
+    double tr2 = sr->dstages_dr * sr->dstages_dr * ur2;
     if (!isfinite(tr2)) { /* R near 1e308: u(R)² overflows where ∂N/∂R underflows to 0 (a
                              fuzzed log gave u(N) NaN with status ok); the product first, and
                              an exactly zero slope adds nothing */
-        double t = sr.dstages_dr == 0 ? 0.0 : sr.dstages_dr * ur;
+        double t = sr->dstages_dr == 0 ? 0.0 : sr->dstages_dr * ur;
         tr2 = t * t;
     }
-    res->stages[i] = sr.stages;
+    res->stages[i] = sr->stages;
     res->u_stages[i] = sqrt(a * a + b * b + tr2);
-    res->dn_dxd[i] = sr.dstages_dxd;
-    res->dn_dxb[i] = sr.dstages_dxb;
+    res->dn_dxd[i] = sr->dstages_dxd;
+    res->dn_dxb[i] = sr->dstages_dxb;
     res->note[i] = STAGECAL_NOTE_NONE;
+}
+
+/* Inverts row i at reflux r (its set point, or INFINITY for no-distillate). */
+static void invert_row(struct inv_ctx *c, size_t i, double r)
+{
+    stagecal_physics_cond pc;
+    if (!invert_row_cond(c, i, r, &pc))
+        return;
+    stagecal_stages_result sr;
+    int rc =
+        physics_invert_quiet(&pc, c->log->xd[i], c->log->xb[i], c->murphree, &c->sp, &sr, NULL);
+    invert_row_store(c, i, r, &pc, rc, &sr);
 }
 
 int stagecal_runlog_invert(const stagecal_runlog *log, const stagecal_column *col, double murphree,
@@ -224,26 +267,19 @@ int stagecal_runlog_invert_physics(const stagecal_runlog *log, const stagecal_co
     return runlog_invert_with(log, col, murphree, params, ph, res, err);
 }
 
-/* Rows per item of the threaded row loop: large enough that handing out blocks costs
- * nothing, small enough that the two threads finish together. */
-#define INVERT_BLOCK_ROWS 512
-
 struct row_job {
     struct inv_ctx *ctx; /* one per thread (its own physics models; the log, the column) */
     size_t n;            /* rows of the log */
     int have_m;
 };
 
-/* Inversion and vapour load of row i (writes res at i alone). */
-static void row_work(struct inv_ctx *c, int have_m, size_t i)
+/* row_work after the inversion: the no-distillate note and the vapour load of row i. */
+static void row_load(struct inv_ctx *c, int have_m, size_t i, int no_draw)
 {
     const stagecal_runlog *log = c->log;
     const stagecal_column *col = c->col;
     stagecal_runlog_result *res = c->res;
     const stagecal_system *sys = &col->system;
-    double r = runlog_rset(log, i); /* the set point of a measured R */
-    int no_draw = isfinite(r) && (res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX);
-    invert_row(c, i, no_draw ? INFINITY : r);
     if (no_draw && res->status[i] == STAGECAL_STAGES_OK)
         res->note[i] = STAGECAL_NOTE_NO_DISTILLATE;
     /* vapour load */
@@ -267,6 +303,57 @@ static void row_work(struct inv_ctx *c, int have_m, size_t i)
     }
 }
 
+/* Inversion and vapour load of row i (writes res at i alone). */
+static void row_work(struct inv_ctx *c, int have_m, size_t i)
+{
+    const stagecal_runlog *log = c->log;
+    double r = runlog_rset(log, i); /* the set point of a measured R */
+    int no_draw = isfinite(r) && (c->res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX);
+    invert_row(c, i, no_draw ? INFINITY : r);
+    row_load(c, have_m, i, no_draw);
+}
+
+/* row_work on rows i0..i1 − 1 (at most INVERT_BATCH_ROWS) of a model with c->batch: the rows
+ * whose conditions are plain (the column's own model, no pseudo-moles, the pot at the top's
+ * pressure, no subcooling: stagecal_physics_invert is then stages_invert_quiet with its
+ * derivatives scaled by exactly 1) are inverted together by stages_invert_many_quiet (the
+ * same doubles as one at a time) and finished after it; every other row as in row_work. Each
+ * row's outputs depend on that row alone, so the order does not change them. */
+static void row_block_batched(struct inv_ctx *c, int have_m, size_t i0, size_t i1)
+{
+    const stagecal_runlog *log = c->log;
+    stagecal_runlog_result *res = c->res;
+    const stagecal_vle *vle = c->col->system.vle;
+    struct inv_batch *b = c->batch;
+    size_t nb = 0;
+    for (size_t i = i0; i < i1; i++) {
+        double r = runlog_rset(log, i);
+        int no_draw = isfinite(r) && (res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX);
+        r = no_draw ? INFINITY : r;
+        stagecal_physics_cond pc;
+        if (!invert_row_cond(c, i, r, &pc)) {
+            row_load(c, have_m, i, no_draw);
+            continue;
+        }
+        if (pc.vle == vle && pc.vle_pot == vle && !(pc.pseudo_ratio > 0) && pc.r_int == r) {
+            b->xd[nb] = log->xd[i], b->xb[nb] = log->xb[i], b->r[nb] = r, b->row[nb] = i;
+            b->no_draw[nb++] = no_draw;
+            continue;
+        }
+        stagecal_stages_result sr;
+        int rc = physics_invert_quiet(&pc, log->xd[i], log->xb[i], c->murphree, &c->sp, &sr, NULL);
+        invert_row_store(c, i, r, &pc, rc, &sr);
+        row_load(c, have_m, i, no_draw);
+    }
+    stages_invert_many_quiet(vle, nb, b->xd, b->xb, b->r, c->murphree, &c->sp, b->sr, b->rc, NULL);
+    for (size_t k = 0; k < nb; k++) {
+        size_t i = b->row[k];
+        stagecal_physics_cond pc = {.r_int = b->r[k]}; /* what invert_row_store reads */
+        invert_row_store(c, i, b->r[k], &pc, b->rc[k], &b->sr[k]);
+        row_load(c, have_m, i, b->no_draw[k]);
+    }
+}
+
 static int row_block(void *ctx, size_t item, size_t worker, stagecal_error *err)
 {
     const struct row_job *j = ctx;
@@ -274,6 +361,12 @@ static int row_block(void *ctx, size_t item, size_t worker, stagecal_error *err)
     if (i1 > j->n)
         i1 = j->n;
     (void)err;
+    if (j->ctx[worker].batch) {
+        for (size_t k = i0; k < i1; k += INVERT_BATCH_ROWS)
+            row_block_batched(&j->ctx[worker], j->have_m, k,
+                              i1 - k < INVERT_BATCH_ROWS ? i1 : k + INVERT_BATCH_ROWS);
+        return STAGECAL_OK;
+    }
     for (size_t i = i0; i < i1; i++)
         row_work(&j->ctx[worker], j->have_m, i);
     return STAGECAL_OK;
@@ -313,9 +406,16 @@ int runlog_invert_threads(const stagecal_runlog *log, const stagecal_column *col
     for (size_t t = 1; t < nt && rc == STAGECAL_OK; t++) /* the other threads' own models */
         if (!(phs[t] = stagecal_physics_alloc(col, NULL, err)))
             rc = err ? err->code : STAGECAL_ENOMEM;
+    /* constant α without a pressure dependence: the rows of a block inverted together (the
+     * conditions then never change the model; row_block_batched) */
+    int batch = stagecal_vle_get_kind(col->system.vle) == STAGECAL_VLE_ALPHA &&
+                !stagecal_vle_has_pressure(col->system.vle);
     for (size_t t = 0; t < nt; t++) {
-        cs[t] = (struct inv_ctx){log, col, murphree, stagecal_stages_default_params(), res, phs[t]};
+        cs[t] = (struct inv_ctx){log, col,    murphree, stagecal_stages_default_params(),
+                                 res, phs[t], NULL};
         cs[t].sp.want_sensitivities = 1;
+        if (rc == STAGECAL_OK && batch && !(cs[t].batch = malloc(sizeof *cs[t].batch)))
+            rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
     }
     const stagecal_system *sys = &col->system;
     int have_m = sys->m_light > 0 && sys->m_heavy > 0;
@@ -342,6 +442,8 @@ int runlog_invert_threads(const stagecal_runlog *log, const stagecal_column *col
     stagecal_physics_free(own);
     for (size_t t = 1; t < nt; t++)
         stagecal_physics_free(phs[t]);
+    for (size_t t = 0; t < nt; t++)
+        free(cs[t].batch);
     free(cs), free(phs);
     if (!inverted)
         return rc; /* nothing was inverted */

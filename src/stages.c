@@ -526,6 +526,114 @@ int stages_invert_quiet(const stagecal_vle *vle, double xd, double xb, double re
     return stages_invert(vle, xd, xb, reflux, murphree, params, 1, res, err);
 }
 
+/* Whether the four-row fast path can take rows of this model at E_MV = murphree with par
+ * (the per-row path's conditions that do not depend on the row); its cap when so. */
+static int many_applies(const stagecal_vle *vle, double murphree, const stagecal_stages_params *par,
+                        double *cap)
+{
+    if (!(par->want_sensitivities != 2 && murphree == 1.0 && par->closed_form &&
+          stagecal_vle_get_kind(vle) == STAGECAL_VLE_ALPHA && vle->naz == 0 && stages_have_avx2()))
+        return 0;
+    double scan = (double)par->pinch_scan_after, most = (double)par->max_stages;
+    *cap = scan < most ? scan : most; /* as alpha_closed_fast */
+    return 1;
+}
+
+/* Fills res[j] for each row j of o whose bit is set in on, as alpha_closed_fast does. */
+static void many_fill(unsigned on, const alpha_closed_out o[4], int want,
+                      stagecal_stages_result *res)
+{
+    for (int j = 0; j < 4; j++) {
+        if (!(on >> j & 1u))
+            continue;
+        stagecal_stages_result *r = &res[j];
+        r->status = STAGECAL_STAGES_OK;
+        r->column_stages = o[j].count;
+        r->stages = r->column_stages + 1.0;
+        r->lv = o[j].lv;
+        r->x_target = o[j].x_target;
+        r->dstages_dxd = want == 1 ? o[j].d[0] : 0.0;
+        r->dstages_dxb = want == 1 ? o[j].d[1] : 0.0;
+        r->dstages_dr = want == 1 ? o[j].d[2] : 0.0;
+        r->reason[0] = '\0';
+    }
+}
+
+unsigned stages_invert4_fast(const stagecal_vle *vle, const double xd[4], const double xb[4],
+                             const double reflux[4], double murphree,
+                             const stagecal_stages_params *par, stagecal_stages_result res[4])
+{
+    double cap;
+    if (!vle || !par || !many_applies(vle, murphree, par, &cap))
+        return 0;
+    alpha_closed_out o[4];
+    unsigned on =
+        stages_alpha_closed4_avx2(vle->alpha, xd, xb, reflux, cap, par->want_sensitivities, o);
+    many_fill(on, o, par->want_sensitivities, res);
+    return on;
+}
+
+/* n rows; rc (may be NULL) receives each row's return value. The rows the closed form's fast
+ * path takes go four at a time through the AVX2 lanes (stages_alpha_closed4_avx2: each lane
+ * the per-row path's doubles) when the model, E_MV and the parameters allow it, checked once;
+ * every other row, and the last n mod 4, through stages_invert. Returns the first row's error
+ * (err then holds its message), else STAGECAL_OK. */
+static int stages_invert_many(const stagecal_vle *vle, size_t n, const double *xd, const double *xb,
+                              const double *reflux, double murphree,
+                              const stagecal_stages_params *params, int quiet,
+                              stagecal_stages_result *res, int *rc, stagecal_error *err)
+{
+    if (!vle || (n && (!xd || !xb || !reflux || !res)))
+        return error_set(err, STAGECAL_EINVAL, "stages_invert_many: a required pointer is NULL");
+    stagecal_stages_params def;
+    const stagecal_stages_params *par = params;
+    if (!par) {
+        def = stagecal_stages_default_params();
+        par = &def;
+    }
+    int want = par->want_sensitivities, first = STAGECAL_OK;
+    stagecal_error e1; /* each row's own (invert_core copies its text into the reason) */
+    double cap;
+    size_t n4 = many_applies(vle, murphree, par, &cap) ? n - n % 4 : 0;
+    for (size_t i = 0, nj; i < n; i += nj) {
+        unsigned on = 0;
+        nj = i < n4 ? 4 : 1; /* four rows at once, else one */
+        if (i < n4) {
+            alpha_closed_out o[4];
+            on = stages_alpha_closed4_avx2(vle->alpha, xd + i, xb + i, reflux + i, cap, want, o);
+            many_fill(on, o, want, res + i);
+        }
+        for (size_t j = i; j < i + nj; j++) {
+            int k = STAGECAL_OK;
+            if (!(on >> (j - i) & 1u)) {
+                k = stages_invert(vle, xd[j], xb[j], reflux[j], murphree, par, quiet, &res[j],
+                                  err ? &e1 : NULL);
+                if (k && !first && (first = k) && err)
+                    *err = e1;
+            }
+            if (rc)
+                rc[j] = k;
+        }
+    }
+    return first;
+}
+
+int stagecal_stages_invert_many(const stagecal_vle *vle, size_t n, const double *xd,
+                                const double *xb, const double *reflux, double murphree,
+                                const stagecal_stages_params *params, stagecal_stages_result *res,
+                                stagecal_error *err)
+{
+    return stages_invert_many(vle, n, xd, xb, reflux, murphree, params, 0, res, NULL, err);
+}
+
+int stages_invert_many_quiet(const stagecal_vle *vle, size_t n, const double *xd, const double *xb,
+                             const double *reflux, double murphree,
+                             const stagecal_stages_params *params, stagecal_stages_result *res,
+                             int *rc, stagecal_error *err)
+{
+    return stages_invert_many(vle, n, xd, xb, reflux, murphree, params, 1, res, rc, err);
+}
+
 /* ---- minimum reflux ------------------------------------------------------------------- */
 
 typedef struct {

@@ -301,6 +301,13 @@ static inline int alpha_closed_eval(double a, double xd, double xb, double reflu
 int stages_alpha_closed_avx2(double a, double xd, double xb, double reflux, double cap,
                              alpha_closed_out *o);
 int stages_have_avx2(void);
+/* Four rows through the fast path at once (stages_avx2.c): row j is (xd[j], xb[j], reflux[j])
+ * at α = a, with stages.c's fast-path input checks and, for want = 1, finite derivatives; bit
+ * j of the result set when row j's o[j] is what alpha_closed_eval gives it (the same doubles),
+ * 0 when row j needs the per-row path. Call only where stages_have_avx2(). */
+unsigned stages_alpha_closed4_avx2(double a, const double *xd, const double *xb,
+                                   const double *reflux, double cap, int want,
+                                   alpha_closed_out o[4]);
 
 #ifndef TL_VECTOR
 /* Closed-form inverse: the liquid after n (real) stages from x0. */

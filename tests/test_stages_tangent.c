@@ -23,6 +23,8 @@
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_rng.h>
 
+#include "stagecal/column.h"
+#include "stagecal/runlog.h"
 #include "stagecal/stages.h"
 #include "stagecal/vle.h"
 #include "testutil.h"
@@ -363,6 +365,312 @@ static void tangent_avx2_same_bits(void **state)
     assert_true(applied < n);
 }
 
+/* A random row at α for the many-row checks: mostly where the closed form applies, with the
+ * edges where it does not (NaN, xB above xD, R = 0, R < 0, total reflux, xD at or above 1,
+ * x_target within 10^-10..10^-7 of the pinch root, either side of CLOSED_MARGIN, near xD = 1). */
+static void random_row(gsl_rng *g, double alpha, size_t i, double *xd, double *xb, double *r)
+{
+    if (i % 13 == 1) { /* near the pinch root k of the line (smoker_setup's expressions) */
+        *xd = 0.5 + 0.49 * gsl_rng_uniform(g);
+        *r = 0.5 + 10.0 * gsl_rng_uniform(g);
+        double m = *r / (*r + 1.0), b = *xd / (*r + 1.0), am1 = alpha - 1.0;
+        double a1 = m + b * am1 - alpha, disc = a1 * a1 - 4.0 * m * am1 * b;
+        double k = 2.0 * b / (-a1 + sqrt(disc));
+        double y = m * (k + pow(10.0, -10.0 + 3.0 * gsl_rng_uniform(g))) + b;
+        *xb = y / (alpha - am1 * y); /* x*(y) */
+        return;
+    }
+    *xd = i % 10 == 0 ? 1.0 - pow(10.0, -1.0 - 12.0 * gsl_rng_uniform(g)) : gsl_rng_uniform_pos(g);
+    *xb = *xd * gsl_rng_uniform_pos(g);
+    *r = i % 7 == 0 ? 0.05 + 0.5 * gsl_rng_uniform(g) : 0.05 + 50.0 * gsl_rng_uniform(g);
+    switch (i % 97) {
+    case 3:
+        *xd = NAN;
+        break;
+    case 5:
+        *xb = *xd + 0.01;
+        break;
+    case 11:
+        *r = 0.0;
+        break;
+    case 13:
+        *r = -1.0;
+        break;
+    case 17:
+        *r = INFINITY;
+        break;
+    case 19:
+        *xd = 1.0;
+        break;
+    case 23:
+        *r = NAN;
+        break;
+    default:
+        break;
+    }
+}
+
+/* The same result, bit for bit: each number's bytes, the status, the reason text. */
+static void assert_same_result(const stagecal_stages_result *a, const stagecal_stages_result *b)
+{
+    assert_int_equal(a->status, b->status);
+    const double pa[7] = {a->stages,      a->column_stages, a->lv,        a->x_target,
+                          a->dstages_dxd, a->dstages_dxb,   a->dstages_dr};
+    const double pb[7] = {b->stages,      b->column_stages, b->lv,        b->x_target,
+                          b->dstages_dxd, b->dstages_dxb,   b->dstages_dr};
+    assert_memory_equal(pa, pb, sizeof pa);
+    assert_string_equal(a->reason, b->reason);
+}
+
+/* The four-row fast path (stages_invert4_fast, stages_avx2.c: rows side by side in the AVX2
+ * lanes) takes exactly the rows the per-row fast path takes (alpha_closed_eval after
+ * stages.c's input checks, finite derivatives) and gives each the per-row call's result bit
+ * for bit: 10^5 rows (GSL mt19937, seed 29) over xD in (0, 1), xB below it, R in [0.05, 50],
+ * with the edges of random_row, at α 1.05, 2.5 and 7.5. Tolerance: none (each lane is the scalar
+ * IEEE operation; -ffp-contract=off). Source: the per-row path, which the tests above check
+ * against stepping, mpmath and finite differences (an equivalence, no outside source). Without
+ * AVX2 it takes no row (checked; said on stderr). */
+static void tangent_four_rows_same_bits(void **state)
+{
+    (void)state;
+    gsl_rng *g = gsl_rng_alloc(gsl_rng_mt19937);
+    assert_non_null(g);
+    gsl_rng_set(g, 29);
+    const double alphas[] = {1.05, 2.5, 7.5};
+    size_t applied = 0, n = 100000;
+    stagecal_stages_params par = stagecal_stages_default_params();
+    par.want_sensitivities = 1;
+    for (size_t ia = 0; ia < 3; ia++) {
+        stagecal_vle *v = stagecal_vle_alloc_alpha(alphas[ia], NULL);
+        assert_non_null(v);
+        for (size_t i = 0; i < n / 3; i += 4) {
+            double xd[4], xb[4], r[4];
+            int expect = 0;
+            stagecal_stages_result one[4], four[4];
+            for (int j = 0; j < 4; j++) {
+                random_row(g, alphas[ia], i + (size_t)j, &xd[j], &xb[j], &r[j]);
+                assert_int_equal(
+                    stages_invert_quiet(v, xd[j], xb[j], r[j], 1.0, &par, &one[j], NULL),
+                    STAGECAL_OK);
+                alpha_closed_out o;
+                if (xd[j] > 0.0 && xd[j] < 1.0 && xb[j] > 0.0 && xb[j] < xd[j] && r[j] > 0.0 &&
+                    !isinf(r[j]) && alpha_closed_eval(alphas[ia], xd[j], xb[j], r[j], 200.0, &o) &&
+                    isfinite(o.d[0]) && isfinite(o.d[1]) && isfinite(o.d[2]))
+                    expect |= 1 << j;
+            }
+            memset(four, 0xaa, sizeof four);
+            unsigned on = stages_invert4_fast(v, xd, xb, r, 1.0, &par, four);
+            assert_int_equal(on, stages_have_avx2() ? (unsigned)expect : 0u);
+            for (int j = 0; j < 4; j++)
+                if (on >> j & 1u) {
+                    applied++;
+                    assert_same_result(&one[j], &four[j]);
+                }
+        }
+        /* where the model or the parameters rule it out, no row */
+        double xd[4] = {0.9, 0.9, 0.9, 0.9}, xb[4] = {0.2, 0.3, 0.4, 0.5}, r[4] = {4, 4, 4, 4};
+        stagecal_stages_result four[4];
+        stagecal_stages_params p2 = par;
+        assert_int_equal(stages_invert4_fast(v, xd, xb, r, 0.9, &par, four), 0);
+        p2.want_sensitivities = 2;
+        assert_int_equal(stages_invert4_fast(v, xd, xb, r, 1.0, &p2, four), 0);
+        p2 = par, p2.closed_form = 0;
+        assert_int_equal(stages_invert4_fast(v, xd, xb, r, 1.0, &p2, four), 0);
+        if (ia > 0) /* (at α = 1.05 these rows pinch) */
+            assert_int_equal(stages_invert4_fast(v, xd, xb, r, 1.0, &par, four),
+                             stages_have_avx2() ? 15u : 0u);
+        stagecal_vle_free(v);
+    }
+    gsl_rng_free(g);
+    if (!stages_have_avx2()) {
+        fprintf(stderr, "tangent_four_rows_same_bits: no AVX2 here, the per-row path alone\n");
+        return;
+    }
+    assert_true(applied > n / 10); /* the rows reach the fast path often, and leave it */
+    assert_true(applied < n - n / 20);
+}
+
+/* stagecal_stages_invert_many gives each row what stagecal_stages_invert gives it, bit for bit
+ * (numbers, status, reason, return value): 5 003 rows of random_row (seed 31; not a multiple of
+ * four, so the last rows go alone) at α = 2.5 with each sensitivity mode, E_MV 1 and 0.8, the
+ * closed form on and off, params NULL; and 257 rows with a table model that has an azeotrope
+ * (no fast path: the reasons). Tolerance: none. Source: the per-row call (an equivalence, no
+ * outside source). */
+static void tangent_many_same_as_per_row(void **state)
+{
+    (void)state;
+    gsl_rng *g = gsl_rng_alloc(gsl_rng_mt19937);
+    assert_non_null(g);
+    gsl_rng_set(g, 31);
+    size_t n = 5003;
+    double *xd = malloc(n * sizeof *xd), *xb = malloc(n * sizeof *xb), *r = malloc(n * sizeof *r);
+    stagecal_stages_result *many = malloc(n * sizeof *many);
+    assert_true(xd && xb && r && many);
+    for (size_t i = 0; i < n; i++)
+        random_row(g, 2.5, i, &xd[i], &xb[i], &r[i]);
+    stagecal_vle *v = stagecal_vle_alloc_alpha(2.5, NULL);
+    assert_non_null(v);
+    size_t ok = 0;
+    for (int mode = 0; mode < 8; mode++) {
+        stagecal_stages_params par = stagecal_stages_default_params();
+        par.want_sensitivities = mode % 3;
+        par.closed_form = mode != 5;
+        double e = mode == 4 ? 0.8 : 1.0;
+        const stagecal_stages_params *pp = mode == 7 ? NULL : &par;
+        stagecal_error em, e1;
+        size_t m = mode == 6 ? 257 : n; /* fewer rows for the slow modes */
+        if (par.want_sensitivities == 2 || e < 1.0 || !par.closed_form)
+            m = 257;
+        int rm = stagecal_stages_invert_many(v, m, xd, xb, r, e, pp, many, &em);
+        int first = STAGECAL_OK;
+        for (size_t i = 0; i < m; i++) {
+            stagecal_stages_result one;
+            int r1 = stagecal_stages_invert(v, xd[i], xb[i], r[i], e, pp, &one, &e1);
+            if (r1 && !first)
+                first = r1;
+            assert_same_result(&one, &many[i]);
+            ok += one.status == STAGECAL_STAGES_OK;
+        }
+        assert_int_equal(rm, first);
+    }
+    assert_true(ok > n); /* most rows are ok: the comparison is of counts, not of rejections */
+    /* a table with a minimum-boiling azeotrope near x = 0.8 (invented points) */
+    const double tx[7] = {0.1, 0.3, 0.5, 0.7, 0.8, 0.85, 0.95};
+    const double ty[7] = {0.3, 0.5, 0.62, 0.74, 0.8, 0.83, 0.94};
+    stagecal_vle *t = stagecal_vle_alloc_table(tx, ty, NULL, 7, NULL);
+    assert_non_null(t);
+    size_t az = 0;
+    stagecal_error em, e1;
+    stagecal_stages_params par = stagecal_stages_default_params();
+    par.want_sensitivities = 1;
+    int rm = stagecal_stages_invert_many(t, 257, xd, xb, r, 1.0, &par, many, &em), first = 0;
+    for (size_t i = 0; i < 257; i++) {
+        stagecal_stages_result one;
+        int r1 = stagecal_stages_invert(t, xd[i], xb[i], r[i], 1.0, &par, &one, &e1);
+        if (r1 && !first)
+            first = r1;
+        assert_same_result(&one, &many[i]);
+        az += one.status == STAGECAL_STAGES_AZEOTROPE;
+    }
+    assert_int_equal(rm, first);
+    assert_true(az > 10);
+    stagecal_vle_free(t);
+    assert_int_equal(stagecal_stages_invert_many(NULL, 1, xd, xb, r, 1.0, NULL, many, NULL),
+                     STAGECAL_EINVAL);
+    assert_int_equal(stagecal_stages_invert_many(v, 0, NULL, NULL, NULL, 1.0, NULL, NULL, NULL),
+                     STAGECAL_OK);
+    stagecal_vle_free(v);
+    free(xd), free(xb), free(r), free(many);
+    gsl_rng_free(g);
+}
+
+/* Run-log mode (runlog_invert.c, which inverts the plain rows of a block together with
+ * stages_invert_many_quiet) gives each row the count and derivatives stagecal_stages_invert
+ * gives it, bit for bit: an α = 2.5 log of 1 000 rows (several blocks and a part of one;
+ * invented: xD falling 0.95 → 0.90, xB pseudo-random in (0.05, 0.65), R = 4) with rows the
+ * batch must leave to the per-row path (a blank xD, xB or R, R = 0, xB above xD, a censored
+ * xB, a pinch at a low xB, a run at total reflux) spread through it. Tolerance: none (the
+ * same doubles). Source: the per-row call and u(N)'s definition (runlog_invert.c header) with
+ * the column's u (an equivalence, no outside source). */
+static void tangent_runlog_rows_same_as_per_row(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    memset(&col, 0, sizeof col);
+    col.system.vle = stagecal_vle_alloc_alpha(2.5, NULL);
+    assert_non_null(col.system.vle);
+    col.system.p_pa = 101325;
+    col.diameter_m = 0.30;
+    col.u.xd = 0.002;
+    col.u.xb = 0.005;
+    col.u.r_rel = 0.03;
+    size_t n = 1000, cap = 64 * n, len = 0;
+    char *csv = malloc(cap);
+    assert_non_null(csv);
+    len += (size_t)snprintf(csv, cap, "run,time[h],W[kmol],xD[mol/mol],xB[mol/mol],R[-]\n");
+    unsigned long h = 12345;
+    for (size_t i = 0; i < n; i++) {
+        h = h * 6364136223846793005ul + 1442695040888963407ul; /* (Knuth's MMIX LCG) */
+        double xd = 0.95 - 0.05 * (double)(i % 500) / 500.0;
+        double xb = 0.05 + 0.6 * (double)(h >> 11) / 9007199254740992.0;
+        char sxd[32], sxb[32], sr[32] = "4";
+        snprintf(sxd, sizeof sxd, "%.6f", xd);
+        snprintf(sxb, sizeof sxb, "%.6f", xb);
+        switch (i % 61) {
+        case 7:
+            sxd[0] = '\0';
+            break;
+        case 11:
+            sxb[0] = '\0';
+            break;
+        case 13:
+            sr[0] = '\0';
+            break;
+        case 17:
+            snprintf(sr, sizeof sr, "0");
+            break;
+        case 19:
+            snprintf(sxb, sizeof sxb, "%.6f", xd + 0.01);
+            break;
+        case 23:
+            snprintf(sxb, sizeof sxb, "<0.1");
+            break;
+        case 29:
+            snprintf(sxb, sizeof sxb, "0.001");
+            break;
+        default:
+            break;
+        }
+        /* the second run at total reflux: W constant */
+        double w = i >= 500 && i < 600 ? 9.0 : 10.0 - 2.0 * (double)(i % 500) / 500.0;
+        len += (size_t)snprintf(csv + len, cap - len, "r%zu,%.4f,%.4f,%s,%s,%s\n", i / 500,
+                                0.01 * (double)(i % 500), w, sxd, sxb, sr);
+    }
+    stagecal_runlog *log = stagecal_runlog_alloc();
+    assert_non_null(log);
+    assert_int_equal(stagecal_runlog_read_buffer(log, csv, len, "t.csv", &col, NULL, NULL, NULL),
+                     STAGECAL_OK);
+    assert_int_equal(log->n, n);
+    stagecal_runlog_result res;
+    assert_int_equal(stagecal_runlog_analyse(log, &col, NULL, &res, NULL), STAGECAL_OK);
+    assert_int_equal(stagecal_runlog_invert(log, &col, 1.0, NULL, &res, NULL), STAGECAL_OK);
+    stagecal_stages_params par = stagecal_stages_default_params();
+    par.want_sensitivities = 1;
+    size_t ok = 0, total = 0, other = 0;
+    for (size_t i = 0; i < n; i++) {
+        double xd = log->xd[i], xb = log->xb[i], r = log->r[i];
+        if (isnan(xd) || isnan(xb) || isnan(r) || r == 0 || xd < xb ||
+            log->xb_cens[i] != STAGECAL_CENSOR_NONE) {
+            other++;
+            assert_int_not_equal(res.status[i], STAGECAL_STAGES_OK);
+            continue;
+        }
+        if (res.flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX)
+            r = INFINITY, total++;
+        stagecal_stages_result one;
+        assert_int_equal(stagecal_stages_invert(col.system.vle, xd, xb, r, 1.0, &par, &one, NULL),
+                         STAGECAL_OK);
+        assert_int_equal(res.status[i], one.status);
+        if (one.status != STAGECAL_STAGES_OK)
+            continue;
+        ok++;
+        double ur = isinf(r) ? 0.0 : 0.03 * r;
+        double a = one.dstages_dxd * 0.002, b = one.dstages_dxb * 0.005;
+        double c = one.dstages_dr * one.dstages_dr * (ur * ur);
+        const double got[4] = {res.stages[i], res.u_stages[i], res.dn_dxd[i], res.dn_dxb[i]};
+        const double want[4] = {one.stages, sqrt(a * a + b * b + c), one.dstages_dxd,
+                                one.dstages_dxb};
+        assert_memory_equal(got, want, sizeof got);
+    }
+    assert_true(ok > n / 2);
+    assert_true(total > 50 && other > 80);
+    assert_true(ok + 20 < n - other); /* some pinches */
+    stagecal_runlog_result_free(&res);
+    stagecal_runlog_free(log);
+    free(csv);
+    stagecal_vle_free(col.system.vle);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -372,6 +680,9 @@ int main(void)
         cmocka_unit_test(tangent_matches_finite_differences),
         cmocka_unit_test(tangent_at_whole_stages),
         cmocka_unit_test(tangent_avx2_same_bits),
+        cmocka_unit_test(tangent_four_rows_same_bits),
+        cmocka_unit_test(tangent_many_same_as_per_row),
+        cmocka_unit_test(tangent_runlog_rows_same_as_per_row),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }

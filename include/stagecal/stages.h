@@ -88,6 +88,16 @@ int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double
                            double murphree, const stagecal_stages_params *params,
                            stagecal_stages_result *res, stagecal_error *err);
 
+/* Inversion of n rows at one E_MV and one params: row i is (xd[i], xb[i], reflux[i]) and res[i]
+ * is exactly what stagecal_stages_invert gives for it (the same doubles and texts); faster per
+ * row for constant α at E_MV = 1, where the closed form takes the rows several at a time.
+ * Returns STAGECAL_OK when every row's stagecal_stages_invert would, else the first such error
+ * (err holds that row's message); every row is inverted either way. */
+int stagecal_stages_invert_many(const stagecal_vle *vle, size_t n, const double *xd,
+                                const double *xb, const double *reflux, double murphree,
+                                const stagecal_stages_params *params, stagecal_stages_result *res,
+                                stagecal_error *err);
+
 /* Forward stepping: (xD, R, stages ≥ 1, E_MV) → xB and the profile. profile may be
  * NULL; otherwise up to cap points are written (ceil(stages) entries: whole column
  * stages, the partial stage's end point when stages is not whole, then the pot) and
