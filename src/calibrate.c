@@ -36,6 +36,7 @@ stagecal_calibrate_params stagecal_calibrate_default_params(void)
     p.murphree = 1.0;
     p.evidence = stagecal_evidence_default_params();
     p.seed = 1;
+    p.boot_kind = STAGECAL_BOOT_CASE;
     p.robust = STAGECAL_ROBUST_NONE;
     p.cov_kind = STAGECAL_COV_HC2_BM;
     p.hetp_r = NAN;
@@ -300,6 +301,7 @@ static int run_fits(stagecal_calibration *cal, const stagecal_calibrate_params *
     rp.level = par->level;
     rp.bootstrap = par->bootstrap;
     rp.seed = par->seed;
+    rp.boot_kind = par->boot_kind;
     rp.threads = par->threads;
     rp.robust = par->robust;
     rp.cov_kind = par->cov_kind;
@@ -407,6 +409,23 @@ static int add_warnings(stagecal_calibration *cal, const stagecal_calibrate_para
                        "them: the fit uses %s instead (windows taken as independent; a "
                        "run-to-run offset is not in its intervals)",
                        STAGECAL_CR2_MIN_CLUSTERS, nr, stagecal_regress_cov_name(uf->cov_kind))))
+            return rc;
+    }
+    /* the bootstrap by run: too few runs with stage counts */
+    if (par->bootstrap > 0 && par->boot_kind == STAGECAL_BOOT_RUN &&
+        cal->stage_status == STAGECAL_OK && cal->stage_fit.boot_kind != STAGECAL_BOOT_RUN) {
+        size_t nr = 0;
+        for (size_t r = 0; r < cal->log->nruns; r++) {
+            int has = 0;
+            for (size_t i = 0; i < cal->evidence.n && !has; i++)
+                has = cal->evidence.ev[i].run == r && cal->evidence.ev[i].stages_ok;
+            nr += has;
+        }
+        if ((rc = warn(cal, err,
+                       "bootstrap by run needs windows with a stage count from at least %d "
+                       "runs, %zu run(s) have them: it resamples windows (case) instead, as "
+                       "if independent (a run-to-run offset is not in its intervals)",
+                       STAGECAL_CR2_MIN_CLUSTERS, nr)))
             return rc;
     }
     if (par->cov_kind == STAGECAL_COV_CR2_RUN && cal->used == STAGECAL_MODEL_CENSORED &&

@@ -18,7 +18,7 @@
  *   - AICc (Hurvich & Tsai 1989), BIC (Schwarz 1978) from the Gaussian likelihood;
  *   - robust: IRLS with Huber or Tukey-bisquare weights and MAD scale (Huber 1981;
  *     Holland & Welsch 1977 for the 95 %-efficiency constants 1.345 and 4.685);
- *   - bootstrap: case or residual resampling, percentile intervals (Efron & Tibshirani
+ *   - bootstrap: case, residual or run resampling, percentile intervals (Efron & Tibshirani
  *     1993, ch. 6, 13); RNG gsl_rng_mt19937 with the caller's seed.
  * Everything is dimensionless except F (Pa^0.5).
  */
@@ -358,7 +358,8 @@ static int check_params(const stagecal_regress_params *prm, const stagecal_form 
     if (!(prm->boot_xtol > 0))
         return error_set(err, STAGECAL_EINVAL, "regress: boot_xtol %g (expected > 0)",
                          prm->boot_xtol);
-    if (prm->boot_kind != STAGECAL_BOOT_CASE && prm->boot_kind != STAGECAL_BOOT_RESIDUAL)
+    if (prm->boot_kind != STAGECAL_BOOT_CASE && prm->boot_kind != STAGECAL_BOOT_RESIDUAL &&
+        prm->boot_kind != STAGECAL_BOOT_RUN)
         return error_set(err, STAGECAL_EINVAL, "regress: unknown bootstrap kind %d",
                          (int)prm->boot_kind);
     if (prm->theta0)

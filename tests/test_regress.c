@@ -382,7 +382,7 @@ static void make_saturating(size_t n, unsigned long seed, double *r, double *y, 
 }
 
 /* The bootstrap on several threads (params.threads) gives the intervals of one thread bit for
- * bit, for both resampling kinds: the resamples are drawn in one thread in the same order and
+ * bit, for every resampling kind: the resamples are drawn in one thread in the same order and
  * each refit is computed alone (src/regress_boot.c). With 1000 points the 300 resamples' draws
  * come in two chunks (2^18 indices at most), so the chunk boundary is crossed too. Exact
  * equality is the contract (docs/performance.md, ninth pass), no tolerance. */
@@ -396,14 +396,23 @@ static void regress_bootstrap_same_on_threads(void **state)
         assert_non_null(r);
         assert_non_null(y);
         make_saturating(n, 17, r, y, 0.1);
+        /* runs: n = 25, 5 interleaved runs; n = 1000, 25 runs of 4 then 900 of 1 (925 draws
+         * per resample: 283 resamples per chunk, so run resampling crosses it too) */
+        size_t *lab = malloc(n * sizeof *lab);
+        assert_non_null(lab);
+        for (size_t i = 0; i < n; i++)
+            lab[i] = n == 25 ? i % 5 : i < 100 ? i / 4 : i;
         stagecal_regress_data d = {n, r, NULL, y, NULL};
         stagecal_regress_params prm = stagecal_regress_default_params();
         prm.bootstrap = 300;
         prm.band_points = 0;
         prm.seed = 4021;
-        for (int kind = 0; kind < 2; kind++) {
+        prm.cluster = lab;
+        for (int kind = 0; kind < 3; kind++) {
             stagecal_regress_result one, two, three;
-            prm.boot_kind = kind ? STAGECAL_BOOT_RESIDUAL : STAGECAL_BOOT_CASE;
+            prm.boot_kind = kind == 2   ? STAGECAL_BOOT_RUN
+                            : kind == 1 ? STAGECAL_BOOT_RESIDUAL
+                                        : STAGECAL_BOOT_CASE;
             prm.threads = 0;
             fit_ok(&d, "saturating", &prm, &one);
             prm.threads = 1;
@@ -411,6 +420,7 @@ static void regress_bootstrap_same_on_threads(void **state)
             prm.threads = 3;
             fit_ok(&d, "saturating", &prm, &three);
             assert_int_equal(one.boot_ok, 300);
+            assert_int_equal(one.boot_kind, prm.boot_kind);
             assert_int_equal(two.boot_ok, one.boot_ok);
             assert_int_equal(three.boot_ok, one.boot_ok);
             assert_memory_equal(one.boot_low, two.boot_low, sizeof one.boot_low);
@@ -423,9 +433,176 @@ static void regress_bootstrap_same_on_threads(void **state)
             stagecal_regress_result_free(&two);
             stagecal_regress_result_free(&three);
         }
+        free(lab);
         free(r);
         free(y);
     }
+}
+
+/* Run resampling with one point per cluster is case resampling: cluster g is point g (the
+ * clusters are numbered in order of first appearance, whatever their labels), one draw per
+ * cluster, so the same draws and the same doubles (src/regress_boot.c; exact equality, no
+ * tolerance). Fails if the clusters are numbered otherwise or drawn in another number. */
+static void regress_bootstrap_run_one_point_per_run_is_case(void **state)
+{
+    (void)state;
+    enum { N = 25 };
+    double r[N], y[N];
+    size_t lab[N];
+    make_saturating(N, 11, r, y, 0.1);
+    for (size_t i = 0; i < N; i++)
+        lab[i] = 1000 - 7 * i; /* any labels, one per point */
+    stagecal_regress_data d = {N, r, NULL, y, NULL};
+    stagecal_regress_params prm = stagecal_regress_default_params();
+    prm.bootstrap = 300;
+    prm.band_points = 0;
+    prm.seed = 2385;
+    stagecal_regress_result c, u;
+    fit_ok(&d, "saturating", &prm, &c);
+    prm.boot_kind = STAGECAL_BOOT_RUN;
+    prm.cluster = lab;
+    fit_ok(&d, "saturating", &prm, &u);
+    assert_int_equal(u.boot_kind, STAGECAL_BOOT_RUN);
+    assert_int_equal(u.boot_clusters, N);
+    assert_int_equal(u.boot_ok, c.boot_ok);
+    assert_memory_equal(u.boot_low, c.boot_low, sizeof c.boot_low);
+    assert_memory_equal(u.boot_high, c.boot_high, sizeof c.boot_high);
+    assert_memory_equal(u.boot_se, c.boot_se, sizeof c.boot_se);
+    stagecal_regress_result_free(&c);
+    stagecal_regress_result_free(&u);
+}
+
+/* A run's points always come together. 8 runs, each the same 3 points (R, stages) in another
+ * order and interleaved with the other runs' points: every run resample is then 8 copies of
+ * those 3 points and refits to the full-data θ, so the interval has no width (to the refits'
+ * tolerance: boot_xtol 1e-8 relative, here 1e-6·|θ|); a resample that split a run would move
+ * θ. Case resampling of the same points has width (its se above 1e-3, the points' noise
+ * 0.1 over 24 points). Fails if the points of a drawn run are not all kept or not kept
+ * together. */
+static void regress_bootstrap_run_keeps_runs_together(void **state)
+{
+    (void)state;
+    enum { G = 8, M = 3, N = G * M };
+    static const double r3[M] = {1.0, 3.0, 8.0}, y3[M] = {3.71, 7.02, 11.46};
+    double r[N], y[N];
+    size_t lab[N];
+    for (size_t i = 0; i < N; i++) { /* point i: run i mod G, its point (i / G + i mod G) mod M */
+        size_t j = (i / G + i % G) % M;
+        r[i] = r3[j], y[i] = y3[j], lab[i] = 40 + i % G;
+    }
+    stagecal_regress_data d = {N, r, NULL, y, NULL};
+    stagecal_regress_params prm = stagecal_regress_default_params();
+    prm.bootstrap = 200;
+    prm.band_points = 0;
+    prm.seed = 77;
+    stagecal_regress_result c, u;
+    fit_ok(&d, "saturating", &prm, &c);
+    prm.boot_kind = STAGECAL_BOOT_RUN;
+    prm.cluster = lab;
+    fit_ok(&d, "saturating", &prm, &u);
+    assert_int_equal(u.boot_kind, STAGECAL_BOOT_RUN);
+    assert_int_equal(u.boot_clusters, G);
+    assert_int_equal(u.boot_ok, 200);
+    for (size_t k = 0; k < 2; k++) {
+        assert_true(u.boot_high[k] - u.boot_low[k] <= 1e-6 * fabs(u.theta[k]));
+        assert_true(fabs(u.boot_low[k] - u.theta[k]) <= 1e-6 * fabs(u.theta[k]));
+        assert_true(c.boot_se[k] > 1e-3);
+    }
+    stagecal_regress_result_free(&c);
+    stagecal_regress_result_free(&u);
+}
+
+/* Runs of different sizes: the bootstrap's spread is the runs'. Form constant (θ = the
+ * weighted mean); 8 runs, run g with g + 1 points all at stages y_g. The resample mean is
+ * Σ c_g m_g y_g / Σ c_g m_g over the drawn counts c_g; its sd over 4000 resamples, against
+ * the sd of the same ratio over 200 000 draws of the counts simulated here from a multinomial
+ * (8 draws, equal probabilities; gsl_ran_multinomial), within 5 % (B = 4000 gives about
+ * 1.1 % Monte Carlo error on an sd; common practice, no source). Case resampling of the 36
+ * points gives about half that spread (checked below 0.75 of it), so this fails if the runs
+ * are split or drawn with unequal probabilities. */
+static void regress_bootstrap_run_spread_is_the_runs(void **state)
+{
+    (void)state;
+    enum { G = 8, N = G * (G + 1) / 2 };
+    static const double yg[G] = {5.1, 6.3, 4.2, 7.7, 5.9, 6.8, 4.9, 6.1};
+    double r[N], y[N];
+    size_t lab[N], n = 0;
+    for (size_t g = 0; g < G; g++)
+        for (size_t j = 0; j <= g; j++, n++)
+            r[n] = 1.0 + (double)j, y[n] = yg[g], lab[n] = g;
+    stagecal_regress_data d = {N, r, NULL, y, NULL};
+    stagecal_regress_params prm = stagecal_regress_default_params();
+    prm.bootstrap = 4000;
+    prm.band_points = 0;
+    prm.seed = 5;
+    stagecal_regress_result c, u;
+    fit_ok(&d, "constant", &prm, &c);
+    prm.boot_kind = STAGECAL_BOOT_RUN;
+    prm.cluster = lab;
+    fit_ok(&d, "constant", &prm, &u);
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    assert_non_null(rng);
+    gsl_rng_set(rng, 99);
+    double p[G], s = 0, s2 = 0;
+    unsigned cnt[G];
+    for (size_t g = 0; g < G; g++)
+        p[g] = 1.0 / G;
+    enum { K = 200000 };
+    for (size_t k = 0; k < K; k++) {
+        gsl_ran_multinomial(rng, G, G, p, cnt);
+        double num = 0, den = 0;
+        for (size_t g = 0; g < G; g++)
+            num += cnt[g] * (g + 1.0) * yg[g], den += cnt[g] * (g + 1.0);
+        s += num / den, s2 += (num / den) * (num / den);
+    }
+    gsl_rng_free(rng);
+    double sd = sqrt((s2 - s * s / K) / (K - 1));
+    assert_true(fabs(u.boot_se[0] - sd) <= 0.05 * sd);
+    assert_true(c.boot_se[0] < 0.75 * sd);
+    stagecal_regress_result_free(&c);
+    stagecal_regress_result_free(&u);
+}
+
+/* Too few runs to resample: with 3 clusters (or none) run resampling is case resampling,
+ * result.boot_kind says so, and the intervals are case resampling's, the same doubles. */
+static void regress_bootstrap_run_falls_back_to_case(void **state)
+{
+    (void)state;
+    enum { N = 25 };
+    double r[N], y[N];
+    size_t lab[N];
+    make_saturating(N, 11, r, y, 0.1);
+    for (size_t i = 0; i < N; i++)
+        lab[i] = i % 3;
+    stagecal_regress_data d = {N, r, NULL, y, NULL};
+    stagecal_regress_params prm = stagecal_regress_default_params();
+    prm.bootstrap = 100;
+    prm.band_points = 0;
+    stagecal_regress_result c, u, v;
+    fit_ok(&d, "saturating", &prm, &c);
+    prm.boot_kind = STAGECAL_BOOT_RUN;
+    prm.cluster = lab;
+    fit_ok(&d, "saturating", &prm, &u);
+    prm.cluster = NULL;
+    fit_ok(&d, "saturating", &prm, &v);
+    assert_int_equal(u.boot_kind, STAGECAL_BOOT_CASE);
+    assert_int_equal(u.boot_clusters, 0);
+    assert_int_equal(v.boot_kind, STAGECAL_BOOT_CASE);
+    assert_memory_equal(u.boot_low, c.boot_low, sizeof c.boot_low);
+    assert_memory_equal(u.boot_high, c.boot_high, sizeof c.boot_high);
+    assert_memory_equal(v.boot_low, c.boot_low, sizeof c.boot_low);
+    /* 4 clusters: resampled by run */
+    for (size_t i = 0; i < N; i++)
+        lab[i] = i % 4;
+    prm.cluster = lab;
+    stagecal_regress_result w;
+    fit_ok(&d, "saturating", &prm, &w);
+    assert_int_equal(w.boot_kind, STAGECAL_BOOT_RUN);
+    assert_int_equal(w.boot_clusters, 4);
+    stagecal_regress_result_free(&c);
+    stagecal_regress_result_free(&u);
+    stagecal_regress_result_free(&v);
+    stagecal_regress_result_free(&w);
 }
 
 static void regress_bootstrap_reproducible_for_seed(void **state)
@@ -816,6 +993,10 @@ int main(void)
         cmocka_unit_test(regress_constant_is_weighted_mean),
         cmocka_unit_test(regress_bootstrap_reproducible_for_seed),
         cmocka_unit_test(regress_bootstrap_same_on_threads),
+        cmocka_unit_test(regress_bootstrap_run_one_point_per_run_is_case),
+        cmocka_unit_test(regress_bootstrap_run_keeps_runs_together),
+        cmocka_unit_test(regress_bootstrap_run_spread_is_the_runs),
+        cmocka_unit_test(regress_bootstrap_run_falls_back_to_case),
         cmocka_unit_test(regress_robust_downweights_outlier),
         cmocka_unit_test(regress_aicc_picks_generating_form),
         cmocka_unit_test(regress_band_grid_matches_band_function),

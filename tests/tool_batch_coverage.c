@@ -60,32 +60,11 @@
 #include "study_cov.h"
 #include "stagecal/calibrate.h"
 #include "stagecal/column.h"
-#include "synth_runlog.h"
+#include "synth_batch.h"
 
-#define BC_ALPHA 1.6
-#define BC_A 10.0
-#define BC_B 0.45
-#define BC_RUNS 8
-#define BC_ROWS 50
 #define BC_NPROB 2 /* problems A, B */
 #define BC_NQTY 2  /* batch time, product x_mean */
 #define BC_NBAND 3 /* without, window scatter, process scatter */
-
-static double bc_law(double r)
-{
-    return isinf(r) ? BC_A : BC_A * (1 - exp(-BC_B * r));
-}
-
-static double bc_pot(void *ctx, double r, double xd, double n, double p)
-{
-    (void)ctx, (void)p;
-    return oracle_smoker_xb(BC_ALPHA, r, xd, n);
-}
-
-static double bc_run_law(void *ctx, double r)
-{
-    return bc_law(r) + *(const double *)ctx; /* this run's δ */
-}
 
 /* The true column of the new batch: the law plus its δ (held at 1 stage, as the band). */
 static int bc_true_stages(void *data, double r, double *stages, unsigned *outside,
@@ -95,51 +74,6 @@ static int bc_true_stages(void *data, double r, double *stages, unsigned *outsid
     *stages = fmax(bc_law(r) + *(const double *)data, 1.0);
     *outside = 0;
     return STAGECAL_OK;
-}
-
-/* The 8-run log as CSV (malloc'd) with per-run offsets delta[]. */
-static char *bc_log(gsl_rng *rng, const double *delta, size_t *len)
-{
-    static const double rs[5] = {1.5, 2.5, 4.0, 6.0, 10.0};
-    size_t cap = 256 + (size_t)BC_RUNS * 3 * BC_ROWS * 80, n = 0;
-    char *out = malloc(cap);
-    if (!out)
-        return NULL;
-    out[0] = '\0';
-    for (int k = 0; k < BC_RUNS; k++) {
-        double rset[3] = {INFINITY, rs[(2 * k) % 5], rs[(2 * k + 1) % 5]}, d = delta[k];
-        struct srl_spec sp = {bc_pot, &d,     bc_run_law, 1,     rset, 3,     BC_ROWS, 60.0,
-                              0.0,    0.0015, 0.0025,     300.0, 0.35, 0.002, NULL};
-        size_t l = 0;
-        char *csv = srl_csv(&sp, rng, &l);
-        if (!csv) {
-            free(out);
-            return NULL;
-        }
-        const char *p = csv;
-        if (k > 0) /* one header */
-            p = strchr(csv, '\n') + 1;
-        while (*p) {
-            const char *e = strchr(p, '\n');
-            size_t ll = e ? (size_t)(e - p) + 1 : strlen(p);
-            if (n + ll + 8 >= cap) {
-                free(csv);
-                free(out);
-                return NULL;
-            }
-            if (p[0] == 'S' && p[1] == '1' && p[2] == ',') { /* relabel the run */
-                n += (size_t)snprintf(out + n, cap - n, "S%d", k + 1);
-                p += 2, ll -= 2;
-            }
-            memcpy(out + n, p, ll);
-            n += ll;
-            p += ll;
-        }
-        out[n] = '\0';
-        free(csv);
-    }
-    *len = n;
-    return out;
 }
 
 static void bc_problem(int which, stagecal_batch_problem *pb)

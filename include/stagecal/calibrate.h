@@ -71,6 +71,10 @@ typedef struct {
     stagecal_evidence_params evidence; /* windows: carried samples, min_ok, pooling */
     size_t bootstrap;                  /* stage-space bootstrap resamples (0) */
     unsigned long seed;                /* bootstrap seed (1) */
+    stagecal_boot_kind boot_kind;      /* bootstrap resampling: CASE (default), RESIDUAL or
+                                          RUN (whole runs: the windows of a drawn run
+                                          together; fewer than 4 runs with stage counts: CASE
+                                          and a warning) */
     size_t threads;                    /* threads working beside the calling one on the rows'
                                           inversions, the runs' drift checks and the
                                           bootstrap's refits (0: the calling thread alone);

@@ -56,7 +56,12 @@ typedef enum {
 
 typedef enum {
     STAGECAL_BOOT_CASE = 0, /* resample (R, F, stages, sigma) points with replacement */
-    STAGECAL_BOOT_RESIDUAL  /* resample standardised residuals onto the fitted values */
+    STAGECAL_BOOT_RESIDUAL, /* resample standardised residuals onto the fitted values */
+    STAGECAL_BOOT_RUN       /* resample whole clusters (params.cluster: a calibration's runs) with
+                               replacement, every point of a drawn cluster kept (the cluster
+                               bootstrap: Davison & Hinkley 1997, §3.8; Field & Welsh 2007); with
+                               fewer than STAGECAL_CR2_MIN_CLUSTERS clusters, or none, it is CASE
+                               (result.boot_kind says so) */
 } stagecal_boot_kind;
 
 /* Which covariance of the estimate (params.cov_kind). */
@@ -113,15 +118,15 @@ typedef struct {
     double robust_tol; /* IRLS stop: |Δθ_i| ≤ robust_tol·(|θ_i| + robust_tol) for all i; 1e-10 */
     size_t bootstrap;             /* number of bootstrap resamples B; 0 = none */
     unsigned long seed;           /* seed of the bootstrap RNG (gsl_rng_mt19937); 1 */
-    stagecal_boot_kind boot_kind; /* case or residual resampling; CASE */
+    stagecal_boot_kind boot_kind; /* case, residual or run resampling; CASE */
     double boot_xtol;             /* step and gradient tolerance of the bootstrap refits; 1e-8 */
     size_t threads;               /* threads refitting resamples beside the calling one (the
                                      intervals do not depend on it); 0 */
     size_t band_points;           /* grid points in R for the band; 25 (0 = no band grid) */
-    const size_t *cluster;        /* cov_kind CR2_RUN: residual i's cluster (any labels, one per
-                                     point of the data, e.g. the window's run; for
-                                     stagecal_fit_composition one per window ev[i]); NULL =
-                                     none (CR2_RUN then falls back to HC2_BM) */
+    const size_t *cluster; /* cov_kind CR2_RUN, boot_kind RUN: residual i's cluster (any labels, one
+                              per point of the data, e.g. the window's run; for
+                              stagecal_fit_composition one per window ev[i]); NULL =
+                              none (CR2_RUN then falls back to HC2_BM, RUN to CASE) */
 } stagecal_regress_params;
 
 stagecal_regress_params stagecal_regress_default_params(void);
@@ -267,7 +272,8 @@ typedef struct {
     size_t boot_b;  /* resamples requested */
     size_t boot_ok; /* resamples whose refit succeeded (intervals use these) */
     unsigned long boot_seed;
-    stagecal_boot_kind boot_kind;
+    stagecal_boot_kind boot_kind; /* the resampling used (RUN with too few clusters: CASE) */
+    size_t boot_clusters;         /* RUN: the clusters resampled (0 otherwise) */
     double boot_low[STAGECAL_FORM_MAXP], boot_high[STAGECAL_FORM_MAXP]; /* percentile CI */
     double boot_se[STAGECAL_FORM_MAXP]; /* standard deviation of the bootstrap θ */
     /* band grid over the envelope (params.band_points), result owns */

@@ -432,6 +432,11 @@ void cli_print_params(const stagecal_regress_result *f, int long_form)
                    f->theta[i], sw, sp, f->se[i], ip, f->ci_low[i], ip, f->ci_high[i]);
 }
 
+static const char *boot_name(stagecal_boot_kind k)
+{
+    return k == STAGECAL_BOOT_RUN ? "run" : k == STAGECAL_BOOT_RESIDUAL ? "residual" : "case";
+}
+
 void cli_print_bootstrap(const stagecal_regress_result *f)
 {
     if (f->boot_b == 0)
@@ -441,10 +446,12 @@ void cli_print_bootstrap(const stagecal_regress_result *f)
                f->boot_seed);
         return;
     }
-    printf("\n  bootstrap (%s resampling, B = %zu, %zu fitted, seed %lu), percentile "
+    char runs[40] = "";
+    if (f->boot_kind == STAGECAL_BOOT_RUN)
+        snprintf(runs, sizeof runs, " of %zu runs", f->boot_clusters);
+    printf("\n  bootstrap (%s resampling%s, B = %zu, %zu fitted, seed %lu), percentile "
            "intervals:\n",
-           f->boot_kind == STAGECAL_BOOT_CASE ? "case" : "residual", f->boot_b, f->boot_ok,
-           f->boot_seed);
+           boot_name(f->boot_kind), runs, f->boot_b, f->boot_ok, f->boot_seed);
     for (size_t i = 0; i < f->p; i++)
         printf("  %-10s SE %12.6g   [%.8g, %.8g]\n", f->form.param_names[i], f->boot_se[i],
                f->boot_low[i], f->boot_high[i]);
@@ -463,8 +470,10 @@ void cli_json_bootstrap(const stagecal_regress_result *f, json_t *params, json_t
     json_object_set_new(obj, "bootstrap",
                         json_pack("{s:I, s:I, s:I, s:s}", "B", (json_int_t)f->boot_b, "fitted",
                                   (json_int_t)f->boot_ok, "seed", (json_int_t)f->boot_seed,
-                                  "resample",
-                                  f->boot_kind == STAGECAL_BOOT_CASE ? "case" : "residual"));
+                                  "resample", boot_name(f->boot_kind)));
+    if (f->boot_kind == STAGECAL_BOOT_RUN) /* the runs drawn from */
+        json_object_set_new(json_object_get(obj, "bootstrap"), "runs",
+                            json_integer((json_int_t)f->boot_clusters));
 }
 
 json_t *cli_soft_json(const stagecal_runlog_soft *s)

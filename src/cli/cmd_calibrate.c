@@ -30,6 +30,7 @@ static const struct cli_usage usage = {
 static const char *const method_names[] = {"auto", "stage", "composition", "censored", NULL};
 static const char *const holdup_choices[] = {"auto", "none", "lag", "stages", NULL};
 static const char *const cov_choices[] = {"hc2-bm", "hc3", "model", "cr2-run", NULL};
+static const char *const resample_choices[] = {"case", "residual", "run", NULL};
 static const char *const holdup_names[] = {"none", "lag", "stages"};
 
 /* The holdup compensation the evidence applied, for --json. */
@@ -668,7 +669,7 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
     struct request rq = {NULL, "fits", {NULL, NULL, NULL}, 0};
     long boot = 0, seed = (long)par.seed, threads = -1;
     int dialect = 0, no_infer = 0;
-    int method = 0, robust = -1, holdup = 0, cov = 0, first, rc;
+    int method = 0, robust = -1, holdup = 0, cov = 0, resample = -1, first, rc;
     const struct cli_option opts[] = {
         OPT_COLUMN(&rq.column, "the column file (docs/column-file.md), required"),
         OPT_FORM(&par.form, "correlation form (docs/forms.md) or 'auto' (default: rank\n"
@@ -701,6 +702,13 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
                    "with a warning)",
                    cov_choices, "a covariance"),
         OPT_BOOTSTRAP(&boot),
+        OPT_CHOICE("resample", &resample, "KIND",
+                   "what the bootstrap draws: case (default: windows, as if\n"
+                   "independent), residual (standardised residuals onto the fit)\n"
+                   "or run (whole runs, every window of a drawn run kept: for\n"
+                   "runs that differ; fewer than 4 runs with stage counts: case\n"
+                   "with a warning)",
+                   resample_choices, "a resampling"),
         OPT_SEED(&seed),
         OPT_ROBUST(&robust),
         OPT_REFLUX(&par.hetp_r, "reflux ratio at which HETP is reported, > 0 or 'inf'\n"
@@ -737,6 +745,11 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
         return rc;
     par.threads = (size_t)cli_threads(threads);
     par.bootstrap = (size_t)boot;
+    if (resample >= 0 && boot == 0)
+        return cli_usage_error("option '--resample' needs '--bootstrap B' (B > 0 resamples)");
+    par.boot_kind = resample == 2   ? STAGECAL_BOOT_RUN
+                    : resample == 1 ? STAGECAL_BOOT_RESIDUAL
+                                    : STAGECAL_BOOT_CASE;
     par.read.csv_separator = cli_csv_separator(dialect);
     par.read.infer = !no_infer;
     par.seed = (unsigned long)seed;

@@ -66,6 +66,31 @@ if "$BIN" calibrate --column "$COL" --form saturating --quiet --dry-run --bootst
 else
     echo "FAIL: calibrate --bootstrap: no intervals in the summary"; fails=$((fails + 1))
 fi
+# --resample run: whole runs drawn (every window of a drawn run kept), the same estimates,
+# other intervals; the same doubles on 2 threads as on none
+"$BIN" calibrate --column "$COL" --form saturating --json --quiet --dry-run --bootstrap 100 \
+    --resample run $LOGS >"$tmp/j_run"
+"$BIN" calibrate --column "$COL" --form saturating --json --quiet --dry-run --bootstrap 100 \
+    --resample run --threads 2 $LOGS >"$tmp/j_run2"
+cp "$tmp/j" "$tmp/j_case"
+cp "$tmp/j_run" "$tmp/j"
+check "calibrate --resample run: whole runs resampled, the estimates the same, other intervals" \
+      "(lambda c: d['stage_space']['bootstrap']['resample'] == 'run' and 4 <= d['stage_space']['bootstrap']['runs'] <= d['evidence']['runs'] and [p['value'] for p in d['stage_space']['parameters']] == [p['value'] for p in c['stage_space']['parameters']] and [p['boot_low'] for p in d['stage_space']['parameters']] != [p['boot_low'] for p in c['stage_space']['parameters']] and all(p['boot_low'] < p['value'] < p['boot_high'] for p in d['stage_space']['parameters']))(json.load(open('$tmp/j_case')))"
+check "calibrate --resample run --threads 2: the intervals of one thread" \
+      "[(p['boot_low'], p['boot_high'], p['boot_se']) for p in d['stage_space']['parameters']] == [(p['boot_low'], p['boot_high'], p['boot_se']) for p in json.load(open('$tmp/j_run2'))['stage_space']['parameters']]"
+if "$BIN" calibrate --column "$COL" --form saturating --quiet --dry-run --bootstrap 100 \
+    --resample run $LOGS | grep -q "bootstrap (run resampling of [0-9]* runs, B = 100, "; then
+    echo "ok: calibrate --resample run: the summary names it and the runs"
+else
+    echo "FAIL: calibrate --resample run: the summary does not say so"; fails=$((fails + 1))
+fi
+# fewer than 4 runs with stage counts: case resampling, and a warning says so
+"$BIN" calibrate --column "$COL" --form saturating --json --quiet --dry-run --bootstrap 50 \
+    --resample run "$tmp/three_runs.csv" >"$tmp/j"
+check "calibrate --resample run, 3 runs: falls back to case resampling with a warning" \
+      "d['stage_space']['bootstrap']['resample'] == 'case' and 'runs' not in d['stage_space']['bootstrap'] and any('bootstrap by run needs windows with a stage count from at least 4 runs, 3 run(s) have them' in w for w in d['warnings'])"
+expect_exit 2 "option '--resample' needs '--bootstrap B'" -- "$BIN" calibrate --column "$COL" --resample run $LOGS
+expect_exit 2 "option '--resample': 'cluster' is not a resampling" -- "$BIN" calibrate --column "$COL" --bootstrap 10 --resample cluster $LOGS
 cp "$tmp/j_default" "$tmp/j"
 # Demo truth (datasets/demo/README.md): a(t) = 9.5·(1 − 0.012·months), g(F) ≤ 1, so the
 # saturation level of the first quarter lies between 8 and 9.5 stages.
