@@ -706,8 +706,8 @@ int cmd_calibrate(int argc, char **argv, cli_ctx *ctx)
                    "what the bootstrap draws: case (default: windows, as if\n"
                    "independent), residual (standardised residuals onto the fit)\n"
                    "or run (whole runs, every window of a drawn run kept: for\n"
-                   "runs that differ; fewer than 4 runs with stage counts: case\n"
-                   "with a warning)",
+                   "runs that differ, still short of the level with few runs;\n"
+                   "fewer than 4 runs with stage counts: case with a warning)",
                    resample_choices, "a resampling"),
         OPT_SEED(&seed),
         OPT_ROBUST(&robust),
