@@ -26,7 +26,7 @@ int stepper_ystar(stepper *st, double x, double *y)
 {
     if (st->table && x >= 0.0 && x <= 1.0) {
         /* stagecal_vle_ystar's range check passed: its table query */
-        *y = vle_table_ystar(st->vle, x);
+        *y = st->vle->bx ? vle_table_ystar_inline(st->vle, x) : vle_table_ystar(st->vle, x);
         return STAGECAL_OK;
     }
     int rc = stagecal_vle_ystar(st->vle, x, y);
@@ -36,22 +36,33 @@ int stepper_ystar(stepper *st, double x, double *y)
     return STAGECAL_OK;
 }
 
-int stepper_xstar(stepper *st, double y, double *x)
+static int xstar_failed(stepper *st, int rc, double y)
+{
+    return error_set(st->err, rc == STAGECAL_EINVAL ? STAGECAL_EINTERNAL : rc,
+                     "equilibrium x*(%.17g) failed: %s", y, stagecal_strerror(rc));
+}
+
+/* stepper_xstar, inline in the step: the table's inverse with its slope (vle_internal.h)
+ * without a call */
+static inline int xstar(stepper *st, double y, double *x)
 {
     int rc;
     st->slope_ok = 0;
     if (st->want_slope && st->table && st->e == 1.0 && y >= 0.0 && y <= 1.0) {
         /* stagecal_vle_xstar's range check passed: its table query, with the slope */
-        rc = vle_herm_invert_slope(st->vle, y, x, &st->slope);
+        rc = st->vle->bx ? vle_herm_invert_slope_inline(st->vle, y, x, &st->slope)
+                         : vle_herm_invert_slope(st->vle, y, x, &st->slope);
         st->slope_ok = rc == STAGECAL_OK;
         st->slope_x = *x;
     } else {
         rc = stagecal_vle_xstar(st->vle, y, x);
     }
-    if (rc != STAGECAL_OK)
-        return error_set(st->err, rc == STAGECAL_EINVAL ? STAGECAL_EINTERNAL : rc,
-                         "equilibrium x*(%.17g) failed: %s", y, stagecal_strerror(rc));
-    return STAGECAL_OK;
+    return rc != STAGECAL_OK ? xstar_failed(st, rc, y) : STAGECAL_OK;
+}
+
+int stepper_xstar(stepper *st, double y, double *x)
+{
+    return xstar(st, y, x);
 }
 
 int stepper_dydx(stepper *st, double x, double *dydx)
@@ -102,10 +113,10 @@ int stepper_pseudo_y(stepper *st, double x, double *y)
  * line meets the curve there and x_prev is returned, which the caller reports as a
  * pinch); the E = 1 solution x_e = x*(y_n) lies below the root when the
  * line is below y_n at x_e (then [x_e, x_prev]), otherwise [0, x_e] holds it. */
-static int pseudo_eq_solve(stepper *st, double x_prev, double *x)
+SC_NOINLINE static int pseudo_eq_solve(stepper *st, double x_prev, double *x)
 {
-    double xe, fhi, lo, hi;
-    int rc = stepper_xstar(st, st->y, &xe);
+    double xe = 0.0, fhi, lo, hi;
+    int rc = xstar(st, st->y, &xe);
     if (rc)
         return rc;
     if (st->e == 1.0) {
@@ -165,9 +176,15 @@ int stepper_step(stepper *st, double x_prev, double *x, double *y, int *pinch)
 {
     st->y = op_line(st, x_prev);
     *y = st->y;
-    int rc = pseudo_eq_solve(st, x_prev, x);
-    if (rc)
+    int rc;
+    if (st->e == 1.0) { /* pseudo_eq_solve's first part, inline (the rest out of line) */
+        double xe = 0.0;
+        if ((rc = xstar(st, st->y, &xe)))
+            return rc;
+        *x = xe;
+    } else if ((rc = pseudo_eq_solve(st, x_prev, x))) {
         return rc;
+    }
     *pinch = !(*x < x_prev);
     return STAGECAL_OK;
 }
@@ -244,11 +261,10 @@ void stepper_free(stepper *st)
 /* First azeotrope at or below xd, or −1 when none. */
 double stages_azeotrope_below(const stagecal_vle *vle, double xd)
 {
-    double az[MAX_AZ];
-    size_t n = stagecal_vle_azeotropes(vle, az, MAX_AZ);
-    for (size_t i = 0; i < n && i < MAX_AZ; i++)
-        if (az[i] <= xd)
-            return az[i];
+    /* stagecal_vle_azeotropes' list read in place (no copy; it holds at most VLE_MAX_AZ) */
+    for (size_t i = 0; i < vle->naz && i < MAX_AZ; i++)
+        if (vle->az[i] <= xd)
+            return vle->az[i];
     return -1.0;
 }
 

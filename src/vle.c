@@ -57,12 +57,6 @@ stagecal_vle_params stagecal_vle_default_params(void)
     return p;
 }
 
-int vle_is_activity(stagecal_vle_kind kind)
-{
-    return kind == STAGECAL_VLE_IDEAL || kind == STAGECAL_VLE_WILSON || kind == STAGECAL_VLE_NRTL ||
-           kind == STAGECAL_VLE_VANLAAR || kind == STAGECAL_VLE_MARGULES;
-}
-
 /* Number of activity-model parameters of a kind (vle.h); 0 for the others. */
 size_t vle_nparam_of(stagecal_vle_kind kind)
 {
@@ -275,11 +269,6 @@ static int table_query(const stagecal_vle *v, vle_query q, double in, double *ou
     }
     *out = vle_table_ystar(v, in);
     return STAGECAL_OK;
-}
-
-int vle_on_table(const stagecal_vle *v)
-{
-    return v->kind == STAGECAL_VLE_TABLE || (vle_is_activity(v->kind) && !v->vp.exact);
 }
 
 /* IDEAL and the activity models: the table, or the bubble solve when vp.exact. */

@@ -8,6 +8,10 @@
 #ifndef STAGECAL_VLE_INTERNAL_H
 #define STAGECAL_VLE_INTERNAL_H
 
+#include <float.h>
+#include <math.h>
+#include <stddef.h>
+
 #include <gsl/gsl_roots.h>
 
 #include "stagecal/vle.h"
@@ -24,6 +28,13 @@
  * at most VLE_NEWTON_MAX steps (bisection fallback halves the bracket each step). */
 #define VLE_NEWTON_STEP 1e-7
 #define VLE_NEWTON_MAX 60
+
+/* A branch the processor should predict as not taken (the compiler lays it out so). */
+#if defined(__GNUC__) || defined(__clang__)
+#define VLE_UNLIKELY(c) __builtin_expect(!!(c), 0)
+#else
+#define VLE_UNLIKELY(c) (c)
+#endif
 
 struct stagecal_vle {
     stagecal_vle_kind kind;
@@ -53,6 +64,7 @@ struct stagecal_vle {
      * the coefficients and the inverse's start, the doubles each query computed */
     struct vle_seg *seg;
     double ytop;       /* ys[iend] */
+    double yscale;     /* nb/ytop: vle_locate_y's guess of the bucket */
     double t_lo, t_hi; /* range of node temperatures [K] */
     size_t naz;        /* number of azeotropes found at alloc */
     double az[VLE_MAX_AZ];
@@ -74,10 +86,18 @@ int vle_pseudo_tbubble(const stagecal_vle *v, double xp, double *t_k);
 stagecal_vle *vle_new(stagecal_vle_kind kind, stagecal_error *err);
 /* Allocates n nodes (x, y*, slopes; T and dT/dx when with_t); 0 on ENOMEM. */
 int vle_alloc_nodes(stagecal_vle *v, size_t n, int with_t);
-/* 1 for IDEAL and the activity models. */
-int vle_is_activity(stagecal_vle_kind kind);
+/* 1 for IDEAL and the activity models (inline: the stepper asks once a row). */
+static inline int vle_is_activity(stagecal_vle_kind kind)
+{
+    return kind == STAGECAL_VLE_IDEAL || kind == STAGECAL_VLE_WILSON || kind == STAGECAL_VLE_NRTL ||
+           kind == STAGECAL_VLE_VANLAAR || kind == STAGECAL_VLE_MARGULES;
+}
+
 /* 1 when y*, x* and the slope are the Hermite table's (TABLE; IDEAL/activity unless exact). */
-int vle_on_table(const stagecal_vle *v);
+static inline int vle_on_table(const stagecal_vle *v)
+{
+    return v->kind == STAGECAL_VLE_TABLE || (vle_is_activity(v->kind) && !v->vp.exact);
+}
 /* Number of activity-model parameters of a kind (vle.h); 0 for the others. */
 size_t vle_nparam_of(stagecal_vle_kind kind);
 
@@ -104,6 +124,169 @@ int vle_herm_invert_slope(const stagecal_vle *v, double y, double *x, double *sl
 double vle_table_ystar(const stagecal_vle *v, double x);
 /* vle_table_ystar and vle_herm_deriv at x (bx built), the segment located once. */
 void vle_table_ystar_slope(const stagecal_vle *v, double x, double *y, double *slope);
+
+/* ---- the y* table's hot queries, inline (vle_table.c, and the stepper in stages_step.c) --
+ * Each is the one function of vle_table.c it stands for (named beside it), the same
+ * operations in the same order, so the same doubles; inline so that a caller stepping down
+ * the table keeps the segment in registers instead of copying it through calls. */
+
+/* Cubic Hermite on [x0, x0 + h] in s = (x − x0)/h: H(s) = y0 + s(h m0 + s(c2 + s c3)). */
+typedef struct {
+    double x0, h, y0, d1, c2, c3;
+} vle_hseg;
+
+/* A segment of the y* table as the queries use it: the cubic, dy = ys[i+1] − ys[i], and the
+ * end slopes a, b of the inverse's Hermite start (vle_herm_invert), 0 where not positive. */
+struct vle_seg {
+    vle_hseg g;
+    double dy, a, b;
+};
+
+static inline double vle_hseg_val(const vle_hseg *g, double s)
+{
+    return g->y0 + s * (g->d1 + s * (g->c2 + s * g->c3));
+}
+
+static inline double vle_hseg_ds(const vle_hseg *g, double s) /* dH/ds */
+{
+    return g->d1 + s * (2.0 * g->c2 + 3.0 * s * g->c3);
+}
+
+/* gsl_interp_bsearch (gsl_interp.h, its inline definition): the i in [lo, hi − 1] with
+ * a[i] <= v < a[i+1] when the range holds one. */
+static inline size_t vle_bsearch(const double *a, double v, size_t lo, size_t hi)
+{
+    while (hi > lo + 1) {
+        size_t i = (hi + lo) / 2;
+        if (a[i] > v)
+            hi = i;
+        else
+            lo = i;
+    }
+    return lo;
+}
+
+/* Interval i (0 ≤ i ≤ n−2) with xs[i] ≤ x ≤ xs[i+1], x in [0, 1]; buckets built. */
+static inline size_t vle_locate_x(const stagecal_vle *v, double x)
+{
+    size_t b = (size_t)(x * (double)v->nb);
+    if (b >= v->nb)
+        return v->n - 2;
+    size_t i = vle_bsearch(v->xs, x, v->bx[b], v->bx[b + 1] + 1);
+    return i > v->n - 2 ? v->n - 2 : i;
+}
+
+/* Interval i (0 ≤ i < iend) with ys[i] ≤ y ≤ ys[i+1], y in [0, ytop]; buckets built. The
+ * interval searched in bucket b = (size_t)(y / ytop · nb), as vle_locate_y_exact. */
+size_t vle_locate_y_exact(const stagecal_vle *v, double y);
+
+/* vle_locate_y_exact, the bucket computed as (size_t)(y · nb/ytop): a product instead of a
+ * quotient on the stepping's chain of dependent operations (the next stage's y needs this
+ * x), ~10 of its ~115 cycles. With ytop = 1 (every valid model: y* rises to 1) the two are
+ * the same double. Otherwise the quotient, computed beside it, confirms the product through a
+ * branch the processor predicts, so the search runs in the quotient's bucket always; where
+ * the two differ (within rounding of a bucket boundary) the exact function answers. */
+static inline size_t vle_locate_y(const stagecal_vle *v, double y)
+{
+    size_t g = (size_t)(y * v->yscale);
+    if (VLE_UNLIKELY(g >= v->nb || (v->ytop != 1.0 && g != (size_t)(y / v->ytop * (double)v->nb))))
+        return vle_locate_y_exact(v, y);
+    size_t hi = v->by[g + 1] + 1;
+    size_t i = vle_bsearch(v->ys, y, v->by[g], hi > v->iend ? v->iend : hi);
+    return i > v->iend - 1 ? v->iend - 1 : i;
+}
+
+/* fmin(fmax(y, 0.0), 1.0) as glibc computes them (fmax(a, b) = a > b ? a : b and fmin(a, b) =
+ * a < b ? a : b for ordered operands, b for two zeros; a quiet NaN a gives b), without the
+ * calls: a monotone segment stays between its node values, which lie in [0, 1]
+ * (stagecal_vle_validate), so anything outside is rounding (y*(1) = 1 + 2^-52). */
+static inline double vle_ystar_clamp(double y)
+{
+    double t = y > 0.0 ? y : 0.0;
+    return t < 1.0 ? t : 1.0;
+}
+
+/* vle_table_ystar (y*(x) of the table, x in [0, 1]; buckets built). */
+static inline double vle_table_ystar_inline(const stagecal_vle *v, double x)
+{
+    size_t i = vle_locate_x(v, x);
+    if (x == v->xs[i + 1]) /* the node value itself, not the cubic's rounding of it */
+        return vle_ystar_clamp(v->ys[i + 1]);
+    const vle_hseg *g = &v->seg[i].g;
+    return vle_ystar_clamp(vle_hseg_val(g, (x - g->x0) / g->h));
+}
+
+/* Safeguarded Newton for H(s) = y on segment c from the Hermite start (herm_invert_on). */
+static inline double vle_seg_invert(const struct vle_seg *c, double y)
+{
+    const vle_hseg *g = &c->g;
+    /* Start from the Hermite interpolant of the inverse s(y) (end slopes dy/(h m)):
+     * its error is O(h⁴), so one or two Newton steps reach rounding. */
+    double t = (y - g->y0) / c->dy, s = t, a = c->a, b = c->b;
+    if (a > 0.0 && b > 0.0 && a < 3.0 && b < 3.0)
+        s = t * (1.0 + (1.0 - t) * ((a - 1.0) * (1.0 - t) + (1.0 - b) * t));
+    double lo = 0.0, hi = 1.0;
+    for (int it = 0; it < VLE_NEWTON_MAX; it++) {
+        double f = vle_hseg_val(g, s) - y;
+        if (f == 0.0)
+            break;
+        if (f < 0.0)
+            lo = s;
+        else
+            hi = s;
+        double sn = s - f / vle_hseg_ds(g, s);
+        if (!(sn > lo && sn < hi)) /* Newton left the bracket (or a zero slope): bisect */
+            sn = 0.5 * (lo + hi);
+        double ds = fabs(sn - s);
+        s = sn;
+        /* quadratic convergence: after a step of 1e-7 the error left is ~1e-14·|H''/H'|
+         * in s, i.e. below 1e-16 in x on these short segments */
+        if (ds <= VLE_NEWTON_STEP || hi - lo <= 2.0 * DBL_EPSILON)
+            break;
+    }
+    return s;
+}
+
+/* vle_herm_invert (y in [0, ytop]; buckets built): x and its segment *iseg. */
+static inline void vle_herm_invert_inline(const stagecal_vle *v, double y, double *x, size_t *iseg)
+{
+    size_t i = vle_locate_y(v, y);
+    const struct vle_seg *c = &v->seg[i];
+    *iseg = i;
+    if (!(c->dy > 0.0)) { /* flat segment: any point, take its start */
+        *x = c->g.x0;
+        return;
+    }
+    double s = vle_seg_invert(c, y);
+    *x = c->g.x0 + s * c->g.h;
+    if (*x > v->xs[i + 1])
+        *x = v->xs[i + 1];
+}
+
+/* 1 when vle_locate_x(v, x) returns i: x in the bucket's search range [bx[b], bx[b+1] + 1]
+ * with xs[i] ≤ x < xs[i+1] (a binary search over a range holding such an i returns it). */
+static inline int vle_locate_x_is(const stagecal_vle *v, double x, size_t i)
+{
+    if (!(x >= 0.0))
+        return 0;
+    size_t b = (size_t)(x * (double)v->nb);
+    return b < v->nb && v->bx[b] <= i && i <= v->bx[b + 1] && v->xs[i] <= x && x < v->xs[i + 1];
+}
+
+/* vle_herm_invert_slope for y in [0, 1] (buckets built): STAGECAL_EINVAL above the branch. */
+static inline int vle_herm_invert_slope_inline(const stagecal_vle *v, double y, double *x,
+                                               double *slope)
+{
+    if (y > v->ytop)
+        return STAGECAL_EINVAL;
+    size_t i;
+    vle_herm_invert_inline(v, y, x, &i);
+    const vle_hseg *g = &v->seg[i].g;
+    /* vle_herm_deriv(v, *x) on the segment just inverted on, when it is the one it locates */
+    *slope = vle_locate_x_is(v, *x, i) ? vle_hseg_ds(g, (*x - g->x0) / g->h) / g->h
+                                       : vle_herm_deriv(v, *x);
+    return STAGECAL_OK;
+}
 
 /* vle_activity.c */
 

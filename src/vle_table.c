@@ -20,15 +20,12 @@
 #include "internal.h"
 
 /* ---- Hermite kernel ------------------------------------------------------------------ */
+/* vle_hseg, struct vle_seg and the hot queries (locate, evaluate, invert) are inline in
+ * vle_internal.h; the functions below are their out-of-line forms. */
 
-/* Cubic Hermite on [x0, x0 + h] in s = (x − x0)/h: H(s) = y0 + s(h m0 + s(c2 + s c3)). */
-typedef struct {
-    double x0, h, y0, d1, c2, c3;
-} hseg;
-
-static hseg hseg_make(const stagecal_vle *v, const double *ys, const double *ms, size_t i)
+static vle_hseg hseg_make(const stagecal_vle *v, const double *ys, const double *ms, size_t i)
 {
-    hseg g;
+    vle_hseg g;
     double h = v->xs[i + 1] - v->xs[i], dy = ys[i + 1] - ys[i];
     g.x0 = v->xs[i];
     g.h = h;
@@ -38,13 +35,6 @@ static hseg hseg_make(const stagecal_vle *v, const double *ys, const double *ms,
     g.c3 = h * ms[i] + h * ms[i + 1] - 2.0 * dy;
     return g;
 }
-
-/* A segment of the y* table as the queries use it: the cubic, dy = ys[i+1] − ys[i], and the
- * end slopes a, b of the inverse's Hermite start (vle_herm_invert), 0 where not positive. */
-struct vle_seg {
-    hseg g;
-    double dy, a, b;
-};
 
 static struct vle_seg seg_make(const stagecal_vle *v, size_t i)
 {
@@ -56,45 +46,18 @@ static struct vle_seg seg_make(const stagecal_vle *v, size_t i)
     return c;
 }
 
-/* Segment i of the y* table: from the cache when built (the same doubles). */
-static hseg yseg(const stagecal_vle *v, size_t i)
-{
-    return v->seg ? v->seg[i].g : hseg_make(v, v->ys, v->ms, i);
-}
-
-static double hseg_val(const hseg *g, double s)
-{
-    return g->y0 + s * (g->d1 + s * (g->c2 + s * g->c3));
-}
-
-static double hseg_ds(const hseg *g, double s) /* dH/ds */
-{
-    return g->d1 + s * (2.0 * g->c2 + 3.0 * s * g->c3);
-}
-
 size_t vle_locate(const double *a, double v, size_t lo, size_t hi)
 {
     return gsl_interp_bsearch(a, v, lo, hi);
 }
 
-/* Interval i (0 ≤ i ≤ n−2) with xs[i] ≤ x ≤ xs[i+1], x in [0, 1]. */
-static size_t locate_x(const stagecal_vle *v, double x)
-{
-    size_t b = (size_t)(x * (double)v->nb);
-    if (b >= v->nb)
-        return v->n - 2;
-    size_t i = vle_locate(v->xs, x, v->bx[b], v->bx[b + 1] + 1);
-    return i > v->n - 2 ? v->n - 2 : i;
-}
-
-/* Interval i (0 ≤ i < iend) with ys[i] ≤ y ≤ ys[i+1], y in [0, ytop]. */
-static size_t locate_y(const stagecal_vle *v, double y)
+size_t vle_locate_y_exact(const stagecal_vle *v, double y)
 {
     size_t b = (size_t)(y / v->ytop * (double)v->nb);
     if (b >= v->nb)
         return v->iend - 1;
     size_t hi = v->by[b + 1] + 1;
-    size_t i = vle_locate(v->ys, y, v->by[b], hi > v->iend ? v->iend : hi);
+    size_t i = vle_bsearch(v->ys, y, v->by[b], hi > v->iend ? v->iend : hi);
     return i > v->iend - 1 ? v->iend - 1 : i;
 }
 
@@ -104,6 +67,7 @@ int vle_build_buckets_like(stagecal_vle *v, const stagecal_vle *same_x)
 {
     v->nb = 2 * v->n < 64 ? 64 : 2 * v->n;
     v->ytop = v->ys[v->iend];
+    v->yscale = (double)v->nb / v->ytop;
     v->bx = malloc((v->nb + 1) * sizeof *v->bx);
     v->by = malloc((v->nb + 1) * sizeof *v->by);
     v->seg = malloc((v->n - 1) * sizeof *v->seg);
@@ -136,117 +100,51 @@ int vle_build_buckets(stagecal_vle *v)
 
 double vle_herm_eval(const stagecal_vle *v, const double *ys, const double *ms, double x)
 {
-    size_t i = v->bx ? locate_x(v, x) : vle_locate(v->xs, x, 0, v->n - 1);
+    size_t i = v->bx ? vle_locate_x(v, x) : vle_locate(v->xs, x, 0, v->n - 1);
     if (i >= v->n - 1)
         i = v->n - 2;
     if (x == v->xs[i + 1]) /* the node value itself, not the cubic's rounding of it */
         return ys[i + 1];
-    hseg g = ys == v->ys && ms == v->ms ? yseg(v, i) : hseg_make(v, ys, ms, i);
-    return hseg_val(&g, (x - g.x0) / g.h);
+    vle_hseg g = ys == v->ys && ms == v->ms && v->seg ? v->seg[i].g : hseg_make(v, ys, ms, i);
+    return vle_hseg_val(&g, (x - g.x0) / g.h);
 }
 
 double vle_herm_deriv(const stagecal_vle *v, double x)
 {
-    size_t i = locate_x(v, x);
-    hseg g = yseg(v, i);
-    return hseg_ds(&g, (x - g.x0) / g.h) / g.h;
+    size_t i = vle_locate_x(v, x);
+    vle_hseg g = v->seg ? v->seg[i].g : hseg_make(v, v->ys, v->ms, i);
+    return vle_hseg_ds(&g, (x - g.x0) / g.h) / g.h;
 }
 
 /* Smallest x on the first increasing branch with H(x) = y. Each segment of the branch
  * is monotone (checked at alloc), so Newton safeguarded by bisection on [0, 1] in s
  * converges; ≤ 60 steps (bisection halves the bracket each time Newton misbehaves). */
-static int herm_invert_on(const stagecal_vle *v, double y, double *x, size_t *iseg, hseg *gseg)
+int vle_herm_invert(const stagecal_vle *v, double y, double *x)
 {
     if (y > v->ytop)
         return STAGECAL_EINVAL;
-    size_t i = locate_y(v, y);
-    *iseg = i;
-    struct vle_seg c = v->seg ? v->seg[i] : seg_make(v, i);
-    hseg g = c.g;
-    double dy = c.dy;
-    *gseg = g;
-    if (!(dy > 0.0)) { /* flat segment: any point, take its start */
-        *x = g.x0;
-        return STAGECAL_OK;
-    }
-    /* Start from the Hermite interpolant of the inverse s(y) (end slopes dy/(h m)):
-     * its error is O(h⁴), so one or two Newton steps reach rounding. */
-    double t = (y - g.y0) / dy, s = t, a = c.a, b = c.b;
-    if (a > 0.0 && b > 0.0 && a < 3.0 && b < 3.0)
-        s = t * (1.0 + (1.0 - t) * ((a - 1.0) * (1.0 - t) + (1.0 - b) * t));
-    double lo = 0.0, hi = 1.0;
-    for (int it = 0; it < VLE_NEWTON_MAX; it++) {
-        double f = hseg_val(&g, s) - y;
-        if (f == 0.0)
-            break;
-        if (f < 0.0)
-            lo = s;
-        else
-            hi = s;
-        double sn = s - f / hseg_ds(&g, s);
-        if (!(sn > lo && sn < hi)) /* Newton left the bracket (or a zero slope): bisect */
-            sn = 0.5 * (lo + hi);
-        double ds = fabs(sn - s);
-        s = sn;
-        /* quadratic convergence: after a step of 1e-7 the error left is ~1e-14·|H''/H'|
-         * in s, i.e. below 1e-16 in x on these short segments */
-        if (ds <= VLE_NEWTON_STEP || hi - lo <= 2.0 * DBL_EPSILON)
-            break;
-    }
-    *x = g.x0 + s * g.h;
-    if (*x > v->xs[i + 1])
-        *x = v->xs[i + 1];
-    return STAGECAL_OK;
-}
-
-int vle_herm_invert(const stagecal_vle *v, double y, double *x)
-{
     size_t i;
-    hseg g;
-    return herm_invert_on(v, y, x, &i, &g);
-}
-
-/* 1 when locate_x(v, x) returns i: x in the bucket's search range [bx[b], bx[b+1] + 1] with
- * xs[i] ≤ x < xs[i+1] (a binary search over a range holding such an i returns it). */
-static int locate_x_is(const stagecal_vle *v, double x, size_t i)
-{
-    if (!(x >= 0.0) || !v->bx)
-        return 0;
-    size_t b = (size_t)(x * (double)v->nb);
-    return b < v->nb && v->bx[b] <= i && i <= v->bx[b + 1] && v->xs[i] <= x && x < v->xs[i + 1];
+    vle_herm_invert_inline(v, y, x, &i);
+    return STAGECAL_OK;
 }
 
 int vle_herm_invert_slope(const stagecal_vle *v, double y, double *x, double *slope)
 {
-    size_t i;
-    hseg g;
-    int rc = herm_invert_on(v, y, x, &i, &g);
-    if (rc != STAGECAL_OK)
-        return rc;
-    /* vle_herm_deriv(v, *x) on the segment just inverted on, when it is the one it locates */
-    *slope = locate_x_is(v, *x, i) ? hseg_ds(&g, (*x - g.x0) / g.h) / g.h : vle_herm_deriv(v, *x);
-    return STAGECAL_OK;
-}
-
-/* A monotone segment stays between its node values, which lie in [0, 1]
- * (stagecal_vle_validate): anything outside is rounding (y*(1) = 1 + 2^-52). */
-static double ystar_clamp(double y)
-{
-    return fmin(fmax(y, 0.0), 1.0);
+    return vle_herm_invert_slope_inline(v, y, x, slope);
 }
 
 double vle_table_ystar(const stagecal_vle *v, double x)
 {
-    return ystar_clamp(vle_herm_eval(v, v->ys, v->ms, x));
+    return vle_ystar_clamp(vle_herm_eval(v, v->ys, v->ms, x));
 }
 
 void vle_table_ystar_slope(const stagecal_vle *v, double x, double *y, double *slope)
 {
-    size_t i = locate_x(v, x); /* what vle_herm_eval and vle_herm_deriv locate (bx is built) */
-    hseg g = yseg(v, i);
-    double s = (x - g.x0) / g.h;
-    *y = ystar_clamp(x == v->xs[i + 1] ? v->ys[i + 1] : hseg_val(&g, s));
-    *slope = hseg_ds(&g, s) / g.h;
+    size_t i = vle_locate_x(v, x); /* what vle_herm_eval and vle_herm_deriv locate (bx is built) */
+    const vle_hseg *g = &v->seg[i].g;
+    double s = (x - g->x0) / g->h;
+    *y = vle_ystar_clamp(x == v->xs[i + 1] ? v->ys[i + 1] : vle_hseg_val(g, s));
+    *slope = vle_hseg_ds(g, s) / g->h;
 }
 
 /* Fritsch–Carlson sufficient condition for a monotone increasing Hermite segment. */

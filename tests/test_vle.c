@@ -2,6 +2,7 @@
  * test_vle.c — equilibrium models against published values, closed forms, GSL and an
  * independent scipy implementation (tests/vle_crosscheck.py).
  */
+#include <float.h>
 #include <math.h>
 #include <setjmp.h>
 #include <stdarg.h>
@@ -17,6 +18,7 @@
 
 #include "stagecal/vle.h"
 #include "testutil.h"
+#include "vle_internal.h"
 
 /* Antoine sets of the NIST Chemistry WebBook, log10(P/bar) = A − B/(T + C): benzene and
  * toluene after Williamham, Taylor, Pignocco & Rossini 1945, ethanol and methanol after
@@ -780,6 +782,232 @@ static void vle_table_inside_unit_interval(void **state)
     assert_int_equal(at_one, 400);
 }
 
+/* ---- the table's queries, bit for bit ------------------------------------------------ */
+
+/* The table's queries as main aecf61c wrote them (vle_table.c there): the y bucket from the
+ * quotient y/ytop·nb, GSL's binary search in it, the segment's coefficients from the nodes,
+ * safeguarded Newton from the inverse's Hermite start, the slope on the segment located from
+ * x. The library's inline versions (the bucket guessed from a product, the segments cached)
+ * must give the same doubles: every output of `invert` depends on it. */
+typedef struct {
+    double x0, h, y0, d1, c2, c3, dy, a, b;
+} ref_seg;
+
+static ref_seg ref_seg_of(const stagecal_vle *v, size_t i)
+{
+    ref_seg c;
+    double h = v->xs[i + 1] - v->xs[i], dy = v->ys[i + 1] - v->ys[i];
+    c.x0 = v->xs[i];
+    c.h = h;
+    c.y0 = v->ys[i];
+    c.d1 = h * v->ms[i];
+    c.c2 = 3.0 * dy - 2.0 * h * v->ms[i] - h * v->ms[i + 1];
+    c.c3 = h * v->ms[i] + h * v->ms[i + 1] - 2.0 * dy;
+    c.dy = dy;
+    c.a = c.d1 > 0.0 ? c.dy / c.d1 : 0.0;
+    c.b = v->ms[i + 1] > 0.0 ? c.dy / (c.h * v->ms[i + 1]) : 0.0;
+    return c;
+}
+
+static double ref_val(const ref_seg *g, double s)
+{
+    return g->y0 + s * (g->d1 + s * (g->c2 + s * g->c3));
+}
+
+static double ref_ds(const ref_seg *g, double s)
+{
+    return g->d1 + s * (2.0 * g->c2 + 3.0 * s * g->c3);
+}
+
+static size_t ref_locate_x(const stagecal_vle *v, double x)
+{
+    size_t b = (size_t)(x * (double)v->nb);
+    if (b >= v->nb)
+        return v->n - 2;
+    size_t i = gsl_interp_bsearch(v->xs, x, v->bx[b], v->bx[b + 1] + 1);
+    return i > v->n - 2 ? v->n - 2 : i;
+}
+
+static size_t ref_locate_y(const stagecal_vle *v, double y)
+{
+    size_t b = (size_t)(y / v->ytop * (double)v->nb);
+    if (b >= v->nb)
+        return v->iend - 1;
+    size_t hi = v->by[b + 1] + 1;
+    size_t i = gsl_interp_bsearch(v->ys, y, v->by[b], hi > v->iend ? v->iend : hi);
+    return i > v->iend - 1 ? v->iend - 1 : i;
+}
+
+static double ref_deriv(const stagecal_vle *v, double x)
+{
+    ref_seg g = ref_seg_of(v, ref_locate_x(v, x));
+    return ref_ds(&g, (x - g.x0) / g.h) / g.h;
+}
+
+static double ref_ystar(const stagecal_vle *v, double x)
+{
+    size_t i = ref_locate_x(v, x);
+    double y;
+    if (x == v->xs[i + 1]) {
+        y = v->ys[i + 1];
+    } else {
+        ref_seg g = ref_seg_of(v, i);
+        y = ref_val(&g, (x - g.x0) / g.h);
+    }
+    return fmin(fmax(y, 0.0), 1.0);
+}
+
+static int ref_invert_slope(const stagecal_vle *v, double y, double *x, double *slope)
+{
+    if (y > v->ytop)
+        return STAGECAL_EINVAL;
+    size_t i = ref_locate_y(v, y);
+    ref_seg g = ref_seg_of(v, i);
+    double s = 0.0;
+    if (!(g.dy > 0.0)) {
+        *x = g.x0;
+    } else {
+        double t = (y - g.y0) / g.dy, a = g.a, b = g.b, lo = 0.0, hi = 1.0;
+        s = t;
+        if (a > 0.0 && b > 0.0 && a < 3.0 && b < 3.0)
+            s = t * (1.0 + (1.0 - t) * ((a - 1.0) * (1.0 - t) + (1.0 - b) * t));
+        for (int it = 0; it < 60; it++) {
+            double f = ref_val(&g, s) - y;
+            if (f == 0.0)
+                break;
+            if (f < 0.0)
+                lo = s;
+            else
+                hi = s;
+            double sn = s - f / ref_ds(&g, s);
+            if (!(sn > lo && sn < hi))
+                sn = 0.5 * (lo + hi);
+            double ds = fabs(sn - s);
+            s = sn;
+            if (ds <= 1e-7 || hi - lo <= 2.0 * DBL_EPSILON)
+                break;
+        }
+        *x = g.x0 + s * g.h;
+        if (*x > v->xs[i + 1])
+            *x = v->xs[i + 1];
+    }
+    size_t b = (size_t)(*x * (double)v->nb);
+    int here = *x >= 0.0 && b < v->nb && v->bx[b] <= i && i <= v->bx[b + 1] && v->xs[i] <= *x &&
+               *x < v->xs[i + 1];
+    *slope = here ? ref_ds(&g, (*x - g.x0) / g.h) / g.h : ref_deriv(v, *x);
+    return STAGECAL_OK;
+}
+
+static int same_bits(double a, double b)
+{
+    return memcmp(&a, &b, sizeof a) == 0;
+}
+
+/* Every query at y (inverse) and at x = y (forward) against the reference; counts mismatches. */
+static size_t table_check_point(const stagecal_vle *v, double y)
+{
+    size_t bad = 0;
+    if (!(y >= 0.0)) /* outside every query's domain (the callers check it first) */
+        return 0;
+    double xr = NAN, sr = NAN, x1 = NAN, s1 = NAN, x2 = NAN, s2 = NAN, x3 = NAN;
+    int rr = ref_invert_slope(v, y, &xr, &sr);
+    bad += vle_herm_invert_slope(v, y, &x1, &s1) != rr;
+    bad += vle_herm_invert_slope_inline(v, y, &x2, &s2) != rr;
+    bad += vle_herm_invert(v, y, &x3) != rr;
+    if (rr == STAGECAL_OK) {
+        double xs;
+        bad += !same_bits(x1, xr) + !same_bits(s1, sr) + !same_bits(x2, xr) + !same_bits(s2, sr);
+        bad += !same_bits(x3, xr);
+        bad += stagecal_vle_xstar(v, y, &xs) != STAGECAL_OK || !same_bits(xs, xr);
+    }
+    if (y >= 0.0 && y <= 1.0) { /* the forward queries at x = y */
+        double ys, yi = vle_table_ystar_inline(v, y), y1, d1, yr = ref_ystar(v, y);
+        vle_table_ystar_slope(v, y, &y1, &d1);
+        bad += stagecal_vle_ystar(v, y, &ys) != STAGECAL_OK || !same_bits(ys, yr);
+        bad += !same_bits(yi, yr) + !same_bits(y1, yr) + !same_bits(d1, ref_deriv(v, y));
+        bad += !same_bits(vle_herm_deriv(v, y), ref_deriv(v, y));
+    }
+    return bad;
+}
+
+static void vle_table_queries_bit_for_bit(void **state)
+{
+    fixture *f = *state;
+    /* a coarse x–y table (Steffen slopes, 9 nodes, so 64 buckets for 8 intervals) beside the
+     * 2049-node tables of three activity models */
+    const double tx[9] = {0.0, 0.05, 0.12, 0.25, 0.4, 0.55, 0.7, 0.85, 1.0};
+    const double ty[9] = {0.0, 0.21, 0.38, 0.55, 0.66, 0.74, 0.81, 0.9, 1.0};
+    /* and one whose first increasing branch ends at x = 0.7 (y* dips after it): the only
+     * kind with a branch top ytop below 1, where y·(nb/ytop) and y/ytop·nb can round apart */
+    const double tz[9] = {0.0, 0.21, 0.38, 0.55, 0.66, 0.74, 0.81, 0.78, 1.0};
+    stagecal_error e;
+    stagecal_vle *table = stagecal_vle_alloc_table(tx, ty, NULL, 9, &e);
+    stagecal_vle *dip = stagecal_vle_alloc_table(tx, tz, NULL, 9, &e);
+    assert_non_null(table);
+    assert_non_null(dip);
+    assert_true(dip->ytop < 1.0);
+    const stagecal_vle *models[5] = {f->nrtl, f->vanlaar, f->ideal, table, dip};
+    size_t bad = 0, points = 0, guess_off = 0;
+    for (int k = 0; k < 5; k++) {
+        const stagecal_vle *v = models[k];
+        /* a grid over [0, ytop] and a little above (EINVAL there) */
+        for (int j = 0; j <= 20000; j++, points++)
+            bad += table_check_point(v, v->ytop * (j / 20000.0) * 1.001);
+        /* every bucket boundary of y and of x, and every node value, with the 4 doubles on
+         * either side: where a product and a quotient can round to different buckets */
+        for (size_t b = 0; b <= v->nb; b++) {
+            double yb[2] = {v->ytop * (double)b / (double)v->nb, (double)b / (double)v->nb};
+            double yn = b < v->n ? v->ys[b] : 0.0;
+            double c[3] = {yb[0], yb[1], yn};
+            for (int m = 0; m < 3; m++) {
+                double lo = c[m], hi = c[m];
+                for (int u = 0; u <= 4; u++, points += 2) {
+                    bad += table_check_point(v, lo) + table_check_point(v, hi);
+                    if (lo >= 0.0)
+                        guess_off +=
+                            (size_t)(lo * v->yscale) != (size_t)(lo / v->ytop * (double)v->nb);
+                    guess_off += (size_t)(hi * v->yscale) != (size_t)(hi / v->ytop * (double)v->nb);
+                    lo = nextafter(lo, -1.0);
+                    hi = nextafter(hi, 2.0);
+                }
+            }
+        }
+    }
+    stagecal_vle_free(table);
+    stagecal_vle_free(dip);
+    /* dip tables with a node value on a bucket boundary, y·(nb/ytop) = b exactly: just below
+     * that node the product's bucket can be the next one, whose search starts at the node, one
+     * interval too high; the library must still answer with the quotient's interval */
+    size_t product_differs = 0;
+    for (int b = 31; b <= 52; b++) {
+        double tb[9];
+        memcpy(tb, tz, sizeof tb);
+        tb[3] = 0.81 * (double)b / 64.0; /* between 0.38 and 0.66 */
+        stagecal_vle *v = stagecal_vle_alloc_table(tx, tb, NULL, 9, &e);
+        assert_non_null(v);
+        double y = tb[3];
+        for (int u = 0; u < 8; u++, points++) {
+            y = nextafter(y, 0.0);
+            bad += table_check_point(v, y);
+            double xi; /* the interval itself (the x found there is often the same) */
+            size_t ii;
+            vle_herm_invert_inline(v, y, &xi, &ii);
+            bad += ii != ref_locate_y(v, y);
+            size_t g = (size_t)(y * v->yscale), hi = v->by[g + 1] + 1;
+            size_t ig = gsl_interp_bsearch(v->ys, y, v->by[g], hi > v->iend ? v->iend : hi);
+            product_differs += ig != ref_locate_y(v, y);
+        }
+        stagecal_vle_free(v);
+    }
+    /* exact: the same operations on the same doubles (checked, not a tolerance) */
+    assert_true(points > 100000);
+    assert_int_equal(bad, 0);
+    /* the product's bucket missed the quotient's at some of these points, and at one at least
+     * its interval too: the check above covered the library's fallback where it matters */
+    assert_true(guess_off > 0);
+    assert_true(product_differs > 0);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -801,6 +1029,7 @@ int main(void)
         cmocka_unit_test(vle_definition_returns_inputs),
         cmocka_unit_test(vle_validate_whole_curve),
         cmocka_unit_test(vle_table_inside_unit_interval),
+        cmocka_unit_test(vle_table_queries_bit_for_bit),
     };
     return cmocka_run_group_tests(tests, setup, teardown);
 }
