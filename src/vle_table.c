@@ -68,6 +68,8 @@ int vle_build_buckets_like(stagecal_vle *v, const stagecal_vle *same_x)
     v->nb = 2 * v->n < 64 ? 64 : 2 * v->n;
     v->ytop = v->ys[v->iend];
     v->yscale = (double)v->nb / v->ytop;
+    if (!isfinite(v->yscale)) /* a branch top below ~1e-305: no product guess (0 · inf) */
+        v->yscale = 0.0;
     v->bx = malloc((v->nb + 1) * sizeof *v->bx);
     v->by = malloc((v->nb + 1) * sizeof *v->by);
     v->seg = malloc((v->n - 1) * sizeof *v->seg);

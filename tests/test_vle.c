@@ -946,9 +946,14 @@ static void vle_table_queries_bit_for_bit(void **state)
     assert_non_null(table);
     assert_non_null(dip);
     assert_true(dip->ytop < 1.0);
-    const stagecal_vle *models[5] = {f->nrtl, f->vanlaar, f->ideal, table, dip};
+    /* and a branch top so small that nb/ytop overflows (the product is not used there) */
+    const double qx[4] = {0.0, 0.3, 0.6, 1.0}, qy[4] = {0.0, 1e-310, 5e-311, 1.0};
+    stagecal_vle *tiny = stagecal_vle_alloc_table(qx, qy, NULL, 4, &e);
+    assert_non_null(tiny);
+    assert_true(tiny->ytop == 1e-310);
+    const stagecal_vle *models[6] = {f->nrtl, f->vanlaar, f->ideal, table, dip, tiny};
     size_t bad = 0, points = 0, guess_off = 0;
-    for (int k = 0; k < 5; k++) {
+    for (int k = 0; k < 6; k++) {
         const stagecal_vle *v = models[k];
         /* a grid over [0, ytop] and a little above (EINVAL there) */
         for (int j = 0; j <= 20000; j++, points++)
@@ -975,6 +980,7 @@ static void vle_table_queries_bit_for_bit(void **state)
     }
     stagecal_vle_free(table);
     stagecal_vle_free(dip);
+    stagecal_vle_free(tiny);
     /* dip tables with a node value on a bucket boundary, y·(nb/ytop) = b exactly: just below
      * that node the product's bucket can be the next one, whose search starts at the node, one
      * interval too high; the library must still answer with the quotient's interval */
