@@ -968,10 +968,12 @@ static void vle_table_queries_bit_for_bit(void **state)
                 double lo = c[m], hi = c[m];
                 for (int u = 0; u <= 4; u++, points += 2) {
                     bad += table_check_point(v, lo) + table_check_point(v, hi);
-                    if (lo >= 0.0)
-                        guess_off +=
-                            (size_t)(lo * v->yscale) != (size_t)(lo / v->ytop * (double)v->nb);
-                    guess_off += (size_t)(hi * v->yscale) != (size_t)(hi / v->ytop * (double)v->nb);
+                    for (int side = 0; side < 2; side++) { /* where the inverse uses a bucket */
+                        double y = side ? hi : lo;
+                        if (y >= 0.0 && y <= v->ytop)
+                            guess_off +=
+                                (size_t)(y * v->yscale) != (size_t)(y / v->ytop * (double)v->nb);
+                    }
                     lo = nextafter(lo, -1.0);
                     hi = nextafter(hi, 2.0);
                 }
