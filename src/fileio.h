@@ -14,13 +14,16 @@
  * under its final name — by link(), which never replaces an existing file, or by
  * rename(), which replaces one (only where the caller documents it) — and the folder
  * is fsync'ed. A writer killed at any moment leaves the final name untouched; on
- * failure the temporary file (ours only) is removed.
+ * failure the temporary file (ours only) is removed. On Linux the writeback of what has
+ * been written starts while the writing goes on (sync_file_range, a few MiB behind the
+ * write position), so the final fsync waits only for the tail; the fsync itself stays.
  */
 #ifndef STAGECAL_FILEIO_H
 #define STAGECAL_FILEIO_H
 
 #include <stddef.h>
 #include <stdio.h>
+#include <sys/types.h>
 
 #include "internal_sha256.h"
 #include "stagecal/error.h"
@@ -68,6 +71,9 @@ typedef struct {
                         target itself, written in place (there is nothing to make atomic) */
     int failed;      /* a write failed: publishing is refused */
     int write_errno; /* errno of that failure */
+    off_t written;   /* bytes written to fd so far */
+    off_t wb_sent;   /* bytes [0, wb_sent) whose writeback has been started */
+    int wb_off;      /* early writeback unavailable (unsupported call, a pipe): not tried */
 } atomic_file;
 
 /* Publishing modes. */
@@ -84,7 +90,8 @@ void atomic_init(atomic_file *a);
 int atomic_open(atomic_file *a, const char *path, stagecal_error *err);
 /* A name under which another library (PLplot) may open the temporary file. */
 const char *atomic_path(const atomic_file *a);
-/* A stdio stream over the temporary file (kept in a->fp); NULL with err set. */
+/* A stdio stream over the temporary file (kept in a->fp); NULL with err set. On Linux
+ * (glibc) the stream writes through a, so a must not move while the stream is open. */
 FILE *atomic_stream(atomic_file *a, stagecal_error *err);
 /* Appends n bytes; EWRITE naming path on failure (and every later publish fails). */
 int atomic_write(atomic_file *a, const void *buf, size_t n, const char *path, stagecal_error *err);
@@ -98,6 +105,22 @@ int atomic_read_back(atomic_file *a, char **out, size_t *len, stagecal_error *er
 int atomic_publish(atomic_file *a, const char *path, int mode, int *exists, stagecal_error *err);
 /* Closes and removes the temporary file (ours) if it is still there. Safe to repeat. */
 void atomic_discard(atomic_file *a);
+
+/* Early writeback: once FILEIO_WB_CHUNK bytes more than a chunk lie behind the write
+ * position, their writeback is started (Linux sync_file_range(SYNC_FILE_RANGE_WRITE):
+ * queues the pages for the disk, does not wait for them); elsewhere nothing is done.
+ * The published file is made durable by the fsync of atomic_publish either way. */
+#define FILEIO_WB_CHUNK ((off_t)4 << 20)
+/* 1 where this build starts writeback early (Linux with glibc), else 0. */
+int fileio_early_writeback(void);
+/* Test seam: the calls that start writeback of [off, off + len) and that make the
+ * content durable (fsync); NULL members (or ops NULL) restore the system's. Not thread
+ * safe; for tests only. */
+typedef struct {
+    int (*range)(int fd, off_t off, off_t len);
+    int (*sync)(int fd);
+} fileio_sync_ops;
+void fileio_set_sync_ops(const fileio_sync_ops *ops);
 
 /* write_all in one call: data[0..n) to path through an atomic_file. */
 int write_atomic(const char *path, const void *data, size_t n, int mode, stagecal_error *err);
