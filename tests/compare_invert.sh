@@ -6,6 +6,10 @@
 # build's default. With ALPHA_LOG and NRTL_LOG (the bench logs: tests/bench_invert.c writes
 # them) also those, with their column files (demo_alpha, kestrel_c3_ethanol_water).
 # Prints the differing files and "N files compared, M differ"; exit 1 when any differs.
+# NOTE_ONCE=1 (OLD_BIN from before the F-factor note was said once, docs/runlog.md): a file
+# that differs is compared again with the old CSV's note "no F-factor (needs V, …)" removed
+# and the new --json's "no_f_factor" member removed; those equal are listed as "SAME WITH THE
+# NOTE SAID ONCE" and do not count as differing.
 OLD=$1
 NEW=$2
 ROOT=$3
@@ -53,15 +57,32 @@ if [ $# -ge 5 ]; then
     col=$D/columns/kestrel_c3_ethanol_water.json
     both bench.nrtl "$5"
 fi
+NOTE='"no F-factor (needs V, diameter, molar masses and a temperature)"'
+# once OLD NEW: the two equal but for the note said once (NOTE_ONCE)
+once() {
+    [ "${NOTE_ONCE:-0}" = 1 ] || return 1
+    case $1 in
+    *.csv) sed "s/,$NOTE,/,,/" "$1" | cmp -s - "$2" ;;
+    *.invj.out) grep -v '^  "no_f_factor": ' "$2" | cmp -s "$1" - ;;
+    *) return 1 ;;
+    esac
+}
 n=0
 bad=0
+nonce=0
 for f in "$W"/o/*; do
     n=$((n + 1))
     g=$W/n/$(basename "$f")
-    cmp -s "$f" "$g" || {
+    if cmp -s "$f" "$g"; then
+        :
+    elif once "$f" "$g"; then
+        echo "SAME WITH THE NOTE SAID ONCE: $(basename "$f")"
+        nonce=$((nonce + 1))
+    else
         echo "DIFFERS: $(basename "$f")"
         bad=$((bad + 1))
-    }
+    fi
 done
+[ "${NOTE_ONCE:-0}" = 1 ] && echo "$nonce files the same with the note said once"
 echo "$n files compared, $bad differ"
 [ "$bad" -eq 0 ]

@@ -1000,6 +1000,37 @@ static void runlog_rows_get_status_not_nan(void **state)
     assert_non_null(strstr(buf, "s.csv,3,s.csv,360.000,,,,invalid,missing xD,"));
     /* missing R: no L/V either (an empty cell, not 0) */
     assert_non_null(strstr(buf, "s.csv,7,s.csv,1800.000,,,,invalid,missing R,,"));
+    /* the row without V keeps its note in the CSV (a fact of that row; docs/runlog.md) */
+    assert_null(stagecal_runlog_no_load_reason(&test_col));
+    assert_non_null(strstr(buf, ",ok,\"no F-factor (needs V, diameter, molar masses and a "
+                                "temperature)\",0.800000000,,"));
+    free(buf);
+    /* a column file without molar masses: no row can have F; the writer leaves the note out
+     * of every row (the caller says it once, stagecal_runlog_no_load_reason) and keeps the
+     * others */
+    stagecal_column nom = test_col;
+    nom.system.m_light = 0;
+    assert_string_equal(stagecal_runlog_no_load_reason(&nom),
+                        "the column file gives no molar masses");
+    nom.diameter_m = NAN;
+    assert_string_equal(stagecal_runlog_no_load_reason(&nom),
+                        "the column file gives neither the inside diameter nor the molar masses");
+    nom.system.m_light = test_col.system.m_light;
+    assert_string_equal(stagecal_runlog_no_load_reason(&nom),
+                        "the column file gives no inside diameter");
+    nom.system.m_light = 0;
+    stagecal_runlog_result_free(&res);
+    assert_int_equal(stagecal_runlog_analyse(log, &nom, NULL, &res, NULL), 0);
+    assert_int_equal(stagecal_runlog_invert(log, &nom, 1.0, NULL, &res, NULL), 0);
+    assert_int_equal(res.note[4], STAGECAL_NOTE_NO_LOAD); /* the result still says it per row */
+    out = open_memstream(&buf, &len);
+    assert_int_equal(stagecal_runlog_write_csv(log, &nom, &res, out, NULL), 0);
+    fclose(out);
+    assert_null(strstr(buf, "no F-factor"));
+    assert_non_null(strstr(buf, "s.csv,6,s.csv,1440.000,")); /* line 6: ok, no note, no F */
+    assert_non_null(strstr(strstr(buf, "s.csv,6,s.csv,1440.000,"), ",ok,,0.800000000,,"));
+    assert_non_null(strstr(buf, "s.csv,3,s.csv,360.000,,,,invalid,missing xD,"));
+    assert_non_null(strstr(buf, "s.csv,7,s.csv,1800.000,,,,invalid,missing R,,"));
     free(buf);
     stagecal_runlog_result_free(&res);
     stagecal_runlog_free(log);

@@ -533,6 +533,13 @@ int stagecal_runlog_invert_physics(const stagecal_runlog *log, const stagecal_co
 
 void stagecal_runlog_result_free(stagecal_runlog_result *res); /* frees members; NULL ok */
 
+/* Why no row of any run log can have an F-factor with the column file col, when that is
+ * so: the F-factor needs the inside diameter and both molar masses from it ("the column
+ * file gives no molar masses", "… no inside diameter", "… neither the inside diameter nor
+ * the molar masses"); NULL when col gives them (rows may still lack V or a temperature).
+ * A static text. */
+const char *stagecal_runlog_no_load_reason(const stagecal_column *col);
+
 /* F = u_G·√ρ_G [Pa^0.5] for a boil-up v_mol_s of molar mass m_kg_mol at p_pa and t_k
  * in a column of inside diameter d_m, with ρ_G = P·M/(R·T) (ideal gas). EINVAL
  * when an argument is not positive and finite. */
@@ -578,7 +585,12 @@ int stagecal_runlog_invert_stream(stagecal_runlog_stream *s, const stagecal_colu
  * missing) and the run's Kalman-smoothed compositions with their u (xD_fused, u_xD_fused,
  * xB_fused, u_xB_fused; stagecal_softsensor_smooth over the values, censored ones left out). Time
  * has 3 decimals, stages 6, L/V and xB_rec 9, F 6, u_stages 9 significant digits. Missing numbers
- * are empty cells. col gives the condenser (column stages). EWRITE on a write error. */
+ * are empty cells. col gives the condenser (column stages). When no row can have an
+ * F-factor because of the column file (stagecal_runlog_no_load_reason is not NULL), the
+ * rows' note leaves STAGECAL_NOTE_NO_LOAD out (an empty cell where no other note applies):
+ * a fact of the column file, said once by the caller, not on each of 10^6 rows; a row
+ * without an F-factor for a reason of its own (no V on that row, no V column in the log)
+ * keeps the note. EWRITE on a write error. */
 int stagecal_runlog_write_csv(const stagecal_runlog *log, const stagecal_column *col,
                               const stagecal_runlog_result *res, FILE *out, stagecal_error *err);
 

@@ -501,6 +501,23 @@ void cli_soft_summary(const char *cmd, const stagecal_runlog_soft *s)
             s->checks, s->inconsistent);
 }
 
+void cli_no_load_summary(const char *cmd, const stagecal_column *col)
+{
+    const char *why = stagecal_runlog_no_load_reason(col);
+    if (cli_quiet || !why)
+        return;
+    fprintf(stderr,
+            "%s: no F-factor on any row: %s (F[Pa^0.5] needs V, the inside diameter, molar "
+            "masses and a temperature; the rows' note does not repeat it)\n",
+            cmd, why);
+}
+
+json_t *cli_no_load_json(const stagecal_column *col)
+{
+    const char *why = stagecal_runlog_no_load_reason(col);
+    return why ? json_string(why) : json_null();
+}
+
 long cli_threads(long v)
 {
     if (v >= 0)

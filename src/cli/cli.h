@@ -95,6 +95,12 @@ void cli_column_warn(const stagecal_column *col, const char *path);
  * from temperatures: ..." (nothing when none was inferred or checked). */
 json_t *cli_soft_json(const stagecal_runlog_soft *s);
 void cli_soft_summary(const char *cmd, const stagecal_runlog_soft *s);
+/* The F-factor's fact of the column file, once (stagecal_runlog_no_load_reason, left out of
+ * the per-row CSV's notes): one stderr line "cmd: no F-factor on any row: ..." after a
+ * per-row CSV was written (nothing with --quiet or when the column file gives what the
+ * F-factor needs). The JSON member "no_f_factor": the reason, or null. */
+void cli_no_load_summary(const char *cmd, const stagecal_column *col);
+json_t *cli_no_load_json(const stagecal_column *col);
 /* A JSON object describing the model in use ({"kind": …, "alpha": …} or the column). */
 json_t *cli_system_json(const cli_system *s);
 /* One run of a run log with its mass-balance closure, as check and invert report it. */

@@ -653,6 +653,8 @@ static int run(int argc, char **argv, int first, stagecal_calibrate_params *par,
     }
     if (rc == CLI_EXIT_OK)
         rc = publish_outputs(rq->out, out, path);
+    if (rc == CLI_EXIT_OK && rq->out[OUT_SAMPLES])
+        cli_no_load_summary("stagecal calibrate", cal.column);
     for (int k = 0; k < OUT_N; k++)
         atomic_discard(&out[k]);
     if (rc == CLI_EXIT_OK && json)

@@ -184,6 +184,7 @@ static json_t *summary_json(const stagecal_runlog *log, const stagecal_column *c
     json_object_set_new(doc, "column", json_string(col->id));
     json_object_set_new(doc, "murphree", json_real(murphree));
     json_object_set_new(doc, "inferred", cli_soft_json(&log->soft));
+    json_object_set_new(doc, "no_f_factor", cli_no_load_json(col));
     json_object_set_new(doc, "condenser", json_string(stagecal_condenser_name(col->condenser)));
     json_object_set_new(doc, "stage_convention",
                         json_string(stagecal_convention_text(col->condenser)));
@@ -338,6 +339,8 @@ static int invert_whole(int argc, char **argv, int first, const char *out_path,
         goto done;
     closure_warnings(log->runs, res.closures, log->nruns);
     cli_soft_summary("stagecal invert", &log->soft);
+    if (out_path)
+        cli_no_load_summary("stagecal invert", col);
     rc = cli_json_print(summary_json(log, col, &res, &ev, f, out_path, murphree));
 done:
     stagecal_evidence_set_free(&ev);
@@ -393,6 +396,7 @@ static int invert_streamed(char **paths, size_t n, const char *out_path,
         show_findings(f, 0);
         closure_warnings(tot.runs, tot.closures, tot.nruns);
         cli_soft_summary("stagecal invert", &tot.soft);
+        cli_no_load_summary("stagecal invert", col);
         if (!to_stdout)
             summary_line(tot.rows, tot.count, tot.nwindows, out_path);
     }
