@@ -212,6 +212,11 @@ double runlog_drift_collinear_factor(const double *g, const double *hx, const do
 /* printf's "%.9g" of v into d (at most 16 bytes, no NUL) for 1e-13 <= |v| < 1e13, or -1
  * (outside that range, or too close to a rounding tie to be sure: ask printf). */
 int runlog_format_g9(char *d, double v);
+/* v rounded to decimals (0–9) places into d, no NUL: |v|·10^decimals rounded half away
+ * from zero (llround) and printed with the point, "-" when negative and not zero; for
+ * |v| >= 1e9 printf's "%.*f" (d holds 340 bytes then); nothing (0) when v is not finite.
+ * Returns the length. */
+int runlog_format_fixed(char *d, double v, int decimals);
 
 /* Grows every row array of log (×2, 4096 at first; optional signals only when present).
  * -1 on allocation failure. */

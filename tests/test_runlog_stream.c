@@ -138,6 +138,59 @@ static void runlog_g9_matches_printf(void **state)
     assert_true(fast > n * 9 / 10); /* the fast path is the common one */
 }
 
+/* The writer's fixed decimals (time, stages, L/V, xB_rec …) against the rule docs/runlog.md
+ * states, formed here another way: llround(|v|·10^d) printed by printf's "%lld", split at the
+ * point, "-" for a negative v that does not round to zero; printf's "%.*f" from 1e9 on. On 10^6
+ * values over 22 decades, both signs, each of 0–9 decimals, values on and near the rounding
+ * ties. Tolerance: none (the same text). */
+static void runlog_fixed_matches_rule(void **state)
+{
+    (void)state;
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 7);
+    size_t differ = 0, n = 1000000;
+    char a[400], b[400], ip[40];
+    for (size_t it = 0; it < n; it++) {
+        int d = (int)(it % 10);
+        double scale = pow(10, (int)gsl_rng_uniform_int(rng, 22) - 12), v;
+        switch (it / 10 % 4) {
+        case 0:
+            v = gsl_rng_uniform(rng) * scale;
+            break;
+        case 1:
+            v = -gsl_rng_uniform(rng) * scale;
+            break;
+        case 2: /* a tie at the last decimal, or next to one */
+            v = ((double)gsl_rng_uniform_int(rng, 100000) + 0.5) / pow(10, d) +
+                (double)((int)gsl_rng_uniform_int(rng, 3) - 1) * 1e-12;
+            break;
+        default:
+            v = scale * (1 - 1e-10 * gsl_rng_uniform(rng));
+        }
+        int k = runlog_format_fixed(a, v, d);
+        a[k] = '\0';
+        if (fabs(v) >= 1e9) {
+            snprintf(b, sizeof b, "%.*f", d, v);
+        } else {
+            long long s = llround(fabs(v) * pow(10, d)), p = (long long)pow(10, d);
+            snprintf(ip, sizeof ip, "%lld", s / p);
+            if (d > 0)
+                snprintf(b, sizeof b, "%s%s.%0*lld", v < 0 && s > 0 ? "-" : "", ip, d, s % p);
+            else
+                snprintf(b, sizeof b, "%s%s", v < 0 && s > 0 ? "-" : "", ip);
+        }
+        if (strcmp(a, b) != 0) {
+            if (differ < 5)
+                print_error("%.17g, %d decimals: '%s', rule '%s'\n", v, d, a, b);
+            differ++;
+        }
+    }
+    assert_int_equal(runlog_format_fixed(a, NAN, 3), 0); /* not finite: an empty cell */
+    assert_int_equal(runlog_format_fixed(a, INFINITY, 3), 0);
+    gsl_rng_free(rng);
+    assert_int_equal(differ, 0);
+}
+
 /* Reads paths whole, and streamed run by run; everything the caller sees agrees. */
 static void compare_whole_and_stream(const char *const *paths, size_t n, const stagecal_column *col)
 {
@@ -487,6 +540,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(runlog_numbers_match_strtod),
         cmocka_unit_test(runlog_g9_matches_printf),
+        cmocka_unit_test(runlog_fixed_matches_rule),
         cmocka_unit_test(runlog_stream_demo_logs_as_whole),
         cmocka_unit_test(runlog_stream_bad_inputs_as_whole),
         cmocka_unit_test(runlog_stream_inversion_as_whole),
