@@ -19,7 +19,8 @@
  * double strtod returns. Returns 0 with *v, or -1 when the text is not of the plain form
  * [+-]digits[.digits][(e|E)[+-]digits] or falls outside the fast path (the caller then asks
  * strtod). */
-static int parse_fast(const char *s, const char **endp, double *v)
+static inline __attribute__((always_inline)) int parse_fast(const char *s, const char **endp,
+                                                            double *v)
 {
     static const double p10[] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
                                  1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
@@ -28,13 +29,20 @@ static int parse_fast(const char *s, const char **endp, double *v)
     int neg = 0;
     if (*p == '-' || *p == '+')
         neg = *p++ == '-';
+    /* the digits' count and the point's place from the pointers: one test a digit
+     * ((unsigned)(c − '0') < 10 is '0' <= c <= '9') */
     uint64_t m = 0;
-    int nd = 0, e = 0;
-    for (; *p >= '0' && *p <= '9'; p++, nd++)
+    const char *d0 = p;
+    for (; (unsigned)(*p - '0') < 10; p++)
         m = m * 10 + (uint64_t)(*p - '0');
-    if (*p == '.')
-        for (p++; *p >= '0' && *p <= '9'; p++, nd++, e--)
+    int nd = (int)(p - d0), e = 0;
+    if (*p == '.') {
+        const char *f0 = ++p;
+        for (; (unsigned)(*p - '0') < 10; p++)
             m = m * 10 + (uint64_t)(*p - '0');
+        e = -(int)(p - f0);
+        nd -= e;
+    }
     if (nd == 0 || nd > 19)
         return -1; /* no digits, or the mantissa may have overflowed: strtod decides */
     if (*p == 'e' || *p == 'E') {

@@ -535,6 +535,73 @@ static void runlog_plain_lines_as_libcsv(void **state)
     stagecal_column_free(&col);
 }
 
+/* The plain-line cutting against libcsv again, on invented logs that put the separators at
+ * every offset within the eight-byte words the reader scans: cells of 0 to 14 characters
+ * (numbers with 0–9 decimals, empty cells), ',' ';' and tab separators; the CR LF copy goes
+ * through libcsv. Same rows, values (bit for bit), lines and findings. */
+static void runlog_plain_lines_any_width(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    alpha_column(&col, 2.5, 0.002, 0.004);
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 11);
+    static char text[1 << 19], alt[1 << 20];
+    const char seps[] = {',', ';', '\t'};
+    for (int si = 0; si < 3; si++) {
+        char sep = seps[si];
+        size_t len = (size_t)snprintf(text, sizeof text,
+                                      "run%ctime[s]%cW[kmol]%cxD[mol/mol]%cxB[mol/mol]%cR\n", sep,
+                                      sep, sep, sep, sep);
+        for (int row = 0; row < 3000; row++) {
+            int run = row / 300;
+            double v[5] = {10.0 * (row % 300) + 1e-3 * (double)gsl_rng_uniform_int(rng, 1000),
+                           20.0 - 0.01 * (row % 300), 0.9 + 0.09 * gsl_rng_uniform(rng),
+                           0.1 + 0.3 * gsl_rng_uniform(rng), 1 + 9 * gsl_rng_uniform(rng)};
+            len += (size_t)snprintf(text + len, sizeof text - len, "r%0*d", 1 + run % 7, run);
+            for (int c = 0; c < 5; c++) {
+                text[len++] = sep;
+                if (c > 0 && gsl_rng_uniform_int(rng, 9) == 0)
+                    continue; /* an empty cell */
+                len += (size_t)snprintf(text + len, sizeof text - len, "%.*f",
+                                        (int)gsl_rng_uniform_int(rng, 10), v[c]);
+            }
+            text[len++] = '\n';
+        }
+        size_t na = 0;
+        for (size_t k = 0; k < len; k++) {
+            if (text[k] == '\n')
+                alt[na++] = '\r';
+            alt[na++] = text[k];
+        }
+        stagecal_runlog *a, *b;
+        stagecal_findings *fa, *fb;
+        read_text(text, len, &col, &a, &fa);
+        read_text(alt, na, &col, &b, &fb);
+        assert_int_equal(a->n, 3000);
+        assert_int_equal(a->n, b->n);
+        assert_int_equal(a->nruns, b->nruns);
+        for (size_t k = 0; k < a->nruns; k++)
+            assert_string_equal(a->runs[k].name, b->runs[k].name);
+        for (size_t w = 0; w < a->n; w++) {
+            double va[] = {a->t_s[w], a->w_mol[w], a->xd[w], a->xb[w], a->r[w]};
+            double vb[] = {b->t_s[w], b->w_mol[w], b->xd[w], b->xb[w], b->r[w]};
+            assert_memory_equal(va, vb, sizeof va);
+            assert_int_equal(a->line[w], b->line[w]);
+        }
+        assert_true(fa->n > 0); /* the empty cells are reported */
+        assert_int_equal(fa->n, fb->n);
+        for (size_t k = 0; k < fa->n; k++)
+            assert_string_equal(fa->items[k].text, fb->items[k].text);
+        stagecal_runlog_free(a);
+        stagecal_findings_free(fa);
+        stagecal_runlog_free(b);
+        stagecal_findings_free(fb);
+    }
+    gsl_rng_free(rng);
+    stagecal_column_free(&col);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -548,6 +615,7 @@ int main(void)
         cmocka_unit_test(runlog_stream_long_runs_as_whole),
         cmocka_unit_test(runlog_stream_found_runs_as_whole),
         cmocka_unit_test(runlog_plain_lines_as_libcsv),
+        cmocka_unit_test(runlog_plain_lines_any_width),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
