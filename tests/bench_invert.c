@@ -13,9 +13,11 @@
  * 101.325 kPa (datasets/columns/kestrel_c3_ethanol_water.json).
  *
  * Per row: stages and u(N)² = (∂N/∂xD·u_xD)² + (∂N/∂xB·u_xB)² + (∂N/∂R·u_R)², with the
- * column files' uncertainties. The rows go through stagecal_stages_invert_many 128 at a time,
- * the path run-log mode takes (runlog_invert.c: the plain rows of a block together; for
- * constant α at E_MV = 1 the closed form four rows at a time where the processor has AVX2).
+ * column files' uncertainties. The rows go through stages_invert_many_quiet (src/internal.h) 128
+ * at a time: the call run-log mode makes (runlog_invert.c, row_block_batched: the plain rows of a
+ * block together, without the reason texts of the rows that are not ok, which run-log mode never
+ * reads; stagecal_stages_invert_many is the same call with them). For constant α at E_MV = 1 the
+ * closed form takes four rows at a time where the processor has AVX2.
  * Timed three ways in one run, CPU time of the process (CLOCK_PROCESS_CPUTIME_ID, which a
  * loaded machine does not inflate):
  *   now      default parameters: closed form for α (E_MV = 1), tangent-linear ∂;
@@ -40,6 +42,8 @@
 #include "oracle_smoker.h"
 #include "stagecal/stages.h"
 #include "stagecal/vle.h"
+/* after every system header: banned.h redefines libc names */
+#include "internal.h"
 
 static double cpu(void)
 {
@@ -52,8 +56,7 @@ static double cpu(void)
 #define PART 128
 
 /* Inverts every row with par the way run-log mode does: parts of PART rows through
- * stagecal_stages_invert_many (run-log mode calls its variant without reason texts, the same
- * path for the rows that are ok); returns the CPU seconds and the sum of stages + u(N) (so the
+ * stages_invert_many_quiet, its call; returns the CPU seconds and the sum of stages + u(N) (so the
  * work cannot be optimised away) and counts the ok rows. */
 static double run(const stagecal_vle *v, const double *xd, const double *xb, size_t n,
                   const stagecal_stages_params *par, const double u[3], double *sum, size_t *ok)
@@ -66,7 +69,7 @@ static double run(const stagecal_vle *v, const double *xd, const double *xb, siz
     size_t k = 0;
     for (size_t i0 = 0; i0 < n; i0 += PART) {
         size_t m = n - i0 < PART ? n - i0 : PART;
-        stagecal_stages_invert_many(v, m, xd + i0, xb + i0, r, 1.0, par, res, NULL);
+        stages_invert_many_quiet(v, m, xd + i0, xb + i0, r, 1.0, par, res, NULL, NULL);
         for (size_t j = 0; j < m; j++) {
             const stagecal_stages_result *e = &res[j];
             if (e->status != STAGECAL_STAGES_OK) /* (also every row whose call failed) */
@@ -161,8 +164,9 @@ int main(int argc, char **argv)
         s_step = s_before = s_now, ok_step = ok_before = ok_now;
     struct rusage ru;
     getrusage(RUSAGE_SELF, &ru);
-    printf("model %s, %zu rows (%zu ok), table built in %.3f s CPU\n", nrtl ? "nrtl" : "alpha",
-           rows, ok_now, t_alloc);
+    printf("model %s, %zu rows (%zu ok), table built in %.3f s CPU; rows timed through "
+           "stages_invert_many_quiet, %d a call (run-log mode's call)\n",
+           nrtl ? "nrtl" : "alpha", rows, ok_now, t_alloc, PART);
     printf("now    (%s, tangent-linear): %.3f s CPU, %.0f rows/s\n",
            nrtl ? "stepping" : "closed form", t_now, (double)rows / t_now);
     printf("step   (stepping, tangent-linear): %.3f s CPU, %.0f rows/s\n", t_step,
