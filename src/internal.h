@@ -55,6 +55,9 @@ int stages_invert_many_quiet(const stagecal_vle *vle, size_t n, const double *xd
                              const double *reflux, double murphree,
                              const stagecal_stages_params *params, stagecal_stages_result *res,
                              int *rc, stagecal_error *err);
+/* 1 when stagecal_stages_invert_many steps several rows of this model at E_MV = murphree side
+ * by side (a Hermite table at E_MV = 1, tangent-linear sensitivities asked for). */
+int stages_many_by_table(const stagecal_vle *vle, double murphree);
 /* Four rows through the constant-α closed form's fast path at once (AVX2 lanes): row j is
  * (xd[j], xb[j], reflux[j]); bit j of the result set when row j took it, res[j] then filled with
  * exactly what stages_invert_quiet gives (status ok, stages, column_stages, lv, x_target, the

@@ -406,10 +406,11 @@ int runlog_invert_threads(const stagecal_runlog *log, const stagecal_column *col
     for (size_t t = 1; t < nt && rc == STAGECAL_OK; t++) /* the other threads' own models */
         if (!(phs[t] = stagecal_physics_alloc(col, NULL, err)))
             rc = err ? err->code : STAGECAL_ENOMEM;
-    /* constant α without a pressure dependence: the rows of a block inverted together (the
-     * conditions then never change the model; row_block_batched) */
-    int batch = stagecal_vle_get_kind(col->system.vle) == STAGECAL_VLE_ALPHA &&
-                !stagecal_vle_has_pressure(col->system.vle);
+    /* constant α without a pressure dependence, or a table model at E_MV = 1: the rows of a
+     * block inverted together (the plain rows; row_block_batched) */
+    int batch = (stagecal_vle_get_kind(col->system.vle) == STAGECAL_VLE_ALPHA &&
+                 !stagecal_vle_has_pressure(col->system.vle)) ||
+                stages_many_by_table(col->system.vle, murphree);
     for (size_t t = 0; t < nt; t++) {
         cs[t] = (struct inv_ctx){log, col,    murphree, stagecal_stages_default_params(),
                                  res, phs[t], NULL};

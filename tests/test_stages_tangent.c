@@ -564,6 +564,149 @@ static void tangent_many_same_as_per_row(void **state)
     gsl_rng_free(g);
 }
 
+/* Rows of the table models' batch: a row that steps (xB what `stages` reach at R from xD, then
+ * moved by up to ±0.01, which leaves some rows pinched at x_target or on the way), with an edge
+ * case every 37 rows: NaN, R = 0, ∞, negative or tiny, xB at or above xD, xB tiny (many steps),
+ * xD at 0.999 (above the ethanol–water azeotrope or the table's top). */
+static void table_row(gsl_rng *g, const stagecal_vle *v, size_t i, double *xd, double *xb,
+                      double *r)
+{
+    *xd = 0.35 + 0.5 * gsl_rng_uniform(g);
+    *r = 0.3 + 12.0 * gsl_rng_uniform(g);
+    double stages = 2.0 + 9.0 * gsl_rng_uniform(g), b = NAN;
+    size_t len;
+    int status;
+    stagecal_stages_step(v, *xd, *r, stages, 1.0, NULL, &b, NULL, 0, &len, &status, NULL);
+    *xb = (status == STAGECAL_STAGES_OK ? b : 0.1) + 0.02 * (gsl_rng_uniform(g) - 0.5);
+    switch (i % 37) {
+    case 3:
+        *xd = NAN;
+        break;
+    case 5:
+        *r = 0.0;
+        break;
+    case 7:
+        *r = INFINITY;
+        break;
+    case 9:
+        *r = -1.0;
+        break;
+    case 11:
+        *r = 1e-3;
+        break;
+    case 13:
+        *xb = *xd;
+        break;
+    case 15:
+        *xb = *xd + 0.01;
+        break;
+    case 17:
+        *xb = 1e-6;
+        break;
+    case 19:
+        *xd = 0.999;
+        break;
+    case 21:
+        *xb = -0.1;
+        break;
+    default:
+        break;
+    }
+}
+
+/* stagecal_stages_invert_many on a Hermite table at E_MV = 1 (several rows stepped side by side
+ * in one loop, stages.c tab_many) gives each row what stagecal_stages_invert gives it, bit for
+ * bit (numbers, status, reason, return value and the first error), and stages_invert_many_quiet
+ * what stages_invert_quiet gives (with each row's return value): 20 000 rows of table_row (GSL
+ * mt19937, seed 37) on NRTL ethanol–water at 101.325 kPa (the bench's model) and 4 001 on a
+ * table of invented points, with the default parameters and with the ones that make rows leave
+ * the side-by-side loop on the way (a pinch scan after 2 steps, at most 3 steps), and for
+ * E_MV = 0.8 and the other sensitivity modes (no side-by-side loop). Tolerance: none (each row
+ * the per-row path's IEEE operations; -ffp-contract=off). Source: the per-row call (an
+ * equivalence, no outside source). */
+static void tangent_table_rows_same_as_per_row(void **state)
+{
+    (void)state;
+    const stagecal_antoine ew[2] = {{5.24677, 1598.673, -46.424, 292.77, 366.63},
+                                    {5.08354, 1663.125, -45.622, 344.0, 373.0}};
+    const double p[5] = {-0.8009, 246.18, 3.4578, -586.0809, 0.3};
+    const double tx[9] = {0.05, 0.1, 0.2, 0.35, 0.5, 0.65, 0.8, 0.9, 0.97};
+    const double ty[9] = {0.15, 0.26, 0.43, 0.6, 0.72, 0.82, 0.9, 0.95, 0.985};
+    stagecal_vle *models[2] = {
+        stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, p, 5, 101325.0, NULL, NULL),
+        stagecal_vle_alloc_table(tx, ty, NULL, 9, NULL)};
+    assert_non_null(models[0]);
+    assert_non_null(models[1]);
+    gsl_rng *g = gsl_rng_alloc(gsl_rng_mt19937);
+    assert_non_null(g);
+    gsl_rng_set(g, 37);
+    size_t cap = 20000;
+    double *xd = malloc(cap * sizeof *xd), *xb = malloc(cap * sizeof *xb),
+           *r = malloc(cap * sizeof *r);
+    stagecal_stages_result *many = malloc(cap * sizeof *many);
+    int *rc = malloc(cap * sizeof *rc);
+    assert_true(xd && xb && r && many && rc);
+    for (int im = 0; im < 2; im++) {
+        stagecal_vle *v = models[im];
+        size_t n = im == 0 ? cap : 4001, count[4] = {0, 0, 0, 0}, steps3 = 0;
+        for (size_t i = 0; i < n; i++)
+            table_row(g, v, i, &xd[i], &xb[i], &r[i]);
+        assert_int_equal(stages_many_by_table(v, 1.0), 1);
+        assert_int_equal(stages_many_by_table(v, 0.8), 0);
+        for (int mode = 0; mode < 6; mode++) {
+            stagecal_stages_params par = stagecal_stages_default_params();
+            par.want_sensitivities = mode == 4 ? 0 : mode == 5 ? 2 : 1;
+            if (mode == 1)
+                par.pinch_scan_after = 2;
+            if (mode == 2)
+                par.max_stages = 3;
+            double e = mode == 3 ? 0.8 : 1.0;
+            size_t m = mode >= 3 ? 997 : n; /* fewer rows for the slow modes */
+            for (int quiet = 0; quiet < 2; quiet++) {
+                stagecal_error em, e1;
+                memset(many, 0xaa, m * sizeof *many);
+                int rm = quiet ? stages_invert_many_quiet(v, m, xd, xb, r, e, &par, many, rc, &em)
+                               : stagecal_stages_invert_many(v, m, xd, xb, r, e, &par, many, &em);
+                int first = STAGECAL_OK;
+                for (size_t i = 0; i < m; i++) {
+                    stagecal_stages_result one;
+                    int r1 =
+                        quiet ? stages_invert_quiet(v, xd[i], xb[i], r[i], e, &par, &one, &e1)
+                              : stagecal_stages_invert(v, xd[i], xb[i], r[i], e, &par, &one, &e1);
+                    if (r1 && !first) {
+                        first = r1;
+                        assert_string_equal(e1.text, em.text);
+                    }
+                    assert_same_result(&one, &many[i]);
+                    if (quiet)
+                        assert_int_equal(rc[i], r1);
+                    if (mode == 0 && quiet) {
+                        count[one.status]++;
+                        steps3 += one.status == STAGECAL_STAGES_OK && one.stages > 4.0;
+                    }
+                }
+                assert_int_equal(rm, first);
+            }
+        }
+        /* the rows reach the side-by-side loop and leave it every way */
+        assert_true(count[STAGECAL_STAGES_OK] > n / 3);
+        assert_true(count[STAGECAL_STAGES_PINCH] > n / 50);
+        assert_true(count[STAGECAL_STAGES_INVALID] > n / 50);
+        assert_true(steps3 > n / 10);
+        if (im == 0)
+            assert_true(count[STAGECAL_STAGES_AZEOTROPE] > n / 100);
+    }
+    assert_int_equal(stages_many_by_table(NULL, 1.0), 0);
+    stagecal_vle *a = stagecal_vle_alloc_alpha(2.5, NULL);
+    assert_non_null(a);
+    assert_int_equal(stages_many_by_table(a, 1.0), 0);
+    stagecal_vle_free(a);
+    stagecal_vle_free(models[0]);
+    stagecal_vle_free(models[1]);
+    free(xd), free(xb), free(r), free(many), free(rc);
+    gsl_rng_free(g);
+}
+
 /* Run-log mode (runlog_invert.c, which inverts the plain rows of a block together with
  * stages_invert_many_quiet) gives each row the count and derivatives stagecal_stages_invert
  * gives it, bit for bit: an α = 2.5 log of 1 000 rows (several blocks and a part of one;
@@ -683,6 +826,7 @@ int main(void)
         cmocka_unit_test(tangent_four_rows_same_bits),
         cmocka_unit_test(tangent_many_same_as_per_row),
         cmocka_unit_test(tangent_runlog_rows_same_as_per_row),
+        cmocka_unit_test(tangent_table_rows_same_as_per_row),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }
