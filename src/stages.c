@@ -661,6 +661,65 @@ static int tab_start(const stagecal_vle *vle, const double *xd, const double *xb
     return 1;
 }
 
+/* vle_locate_y with the bucket's search written without data-dependent branches where the
+ * bucket's range holds at most four nodes (with nb = 2n buckets, one or two): on the increasing
+ * branch (ys non-decreasing up to iend) vle_bsearch's answer is lo plus the nodes after lo in
+ * the range at or below y, counted here; wider ranges and the guess's exceptions as there. */
+static inline size_t tab_locate_y(const stagecal_vle *v, double y)
+{
+    size_t g = (size_t)(y * v->yscale);
+    if (VLE_UNLIKELY(g >= v->nb || (v->ytop != 1.0 && g != (size_t)(y / v->ytop * (double)v->nb))))
+        return vle_locate_y_exact(v, y);
+    size_t lo = v->by[g], hi = v->by[g + 1] + 1;
+    hi = hi > v->iend ? v->iend : hi;
+    size_t i = lo;
+    if (VLE_UNLIKELY(!(hi > lo && hi - lo <= 4))) {
+        i = vle_bsearch(v->ys, y, lo, hi);
+    } else {
+        for (size_t k = 1; k < 4; k++) {
+            size_t at = lo + k < hi ? lo + k : lo; /* (a node in the range either way) */
+            i += (size_t)((lo + k < hi) & (v->ys[at] <= y));
+        }
+    }
+    return i > v->iend - 1 ? v->iend - 1 : i;
+}
+
+/* vle_herm_invert_slope_inline (y in [0, 1], buckets built), the same doubles: the table's
+ * x*(y) and y*' there. vle_seg_invert's Newton stops after its first step on almost every
+ * query; that step is taken here with its bracket test free of a branch on the sign of the
+ * residual (taken either way about half the time), and any other case runs vle_seg_invert
+ * itself. */
+static inline int tab_xstar_slope(const stagecal_vle *v, double y, double *x, double *slope)
+{
+    if (y > v->ytop)
+        return STAGECAL_EINVAL;
+    size_t i = tab_locate_y(v, y);
+    const struct vle_seg *c = &v->seg[i];
+    const vle_hseg *g = &c->g;
+    if (!(c->dy > 0.0)) {
+        *x = g->x0;
+    } else {
+        double t = (y - g->y0) / c->dy, s = t, a = c->a, b = c->b;
+        if (a > 0.0 && b > 0.0 && a < 3.0 && b < 3.0)
+            s = t * (1.0 + (1.0 - t) * ((a - 1.0) * (1.0 - t) + (1.0 - b) * t));
+        double f = vle_hseg_val(g, s) - y;
+        if (f != 0.0) {
+            double sn = s - f / vle_hseg_ds(g, s);
+            int neg = f < 0.0; /* the bracket [s, 1] when below, else [0, s] */
+            int in = (neg & (sn > s) & (sn < 1.0)) | (!neg & (sn > 0.0) & (sn < s));
+            if (VLE_UNLIKELY(!(in && fabs(sn - s) <= VLE_NEWTON_STEP)))
+                sn = vle_seg_invert(c, y);
+            s = sn;
+        }
+        *x = g->x0 + s * g->h;
+        if (*x > v->xs[i + 1])
+            *x = v->xs[i + 1];
+    }
+    *slope = vle_locate_x_is(v, *x, i) ? vle_hseg_ds(g, (*x - g->x0) / g->h) / g->h
+                                       : vle_herm_deriv(v, *x);
+    return STAGECAL_OK;
+}
+
 /* One step of lane L: invert_core's loop body with tl on a table at E = 1 (stepper_step's
  * inline x*(y) with its slope, step_tangent with that slope), the same operations in the same
  * order. 0: more steps; 1: the row crossed x_target and res is filled as stages_invert fills
@@ -671,7 +730,7 @@ static inline int tab_step(const stagecal_vle *vle, const stagecal_stages_params
 {
     double x_prev = L->x_prev, y = L->m.v * x_prev + L->b.v, xn, s;
     L->n++;
-    if (!(y >= 0.0 && y <= 1.0) || vle_herm_invert_slope_inline(vle, y, &xn, &s) != STAGECAL_OK ||
+    if (!(y >= 0.0 && y <= 1.0) || tab_xstar_slope(vle, y, &xn, &s) != STAGECAL_OK ||
         !(xn < x_prev))
         return -1;
     tl3 m = L->m, b = L->b;
