@@ -720,6 +720,11 @@ static inline int tab_xstar_slope(const stagecal_vle *v, double y, double *x, do
     return STAGECAL_OK;
 }
 
+int stages_table_xstar_slope(const stagecal_vle *v, double y, double *x, double *slope)
+{
+    return tab_xstar_slope(v, y, x, slope);
+}
+
 /* One step of lane L: invert_core's loop body with tl on a table at E = 1 (stepper_step's
  * inline x*(y) with its slope, step_tangent with that slope), the same operations in the same
  * order. 0: more steps; 1: the row crossed x_target and res is filled as stages_invert fills

@@ -356,6 +356,9 @@ int stepper_scan_pinch(stepper *st, double lo, double hi, size_t npts, int *foun
 tl3 stepper_crossing(tl3 m, tl3 b, tl3 x_prev, tl3 xn, tl3 yn, tl3 x_target);
 /* First azeotrope at or below xd, or −1 when none. */
 double stages_azeotrope_below(const stagecal_vle *vle, double xd);
+/* The table's x*(y) and y*' there as the side-by-side stepping of stages.c computes them (y in
+ * [0, 1]; a table with buckets): vle_herm_invert_slope_inline's doubles (tests compare them). */
+int stages_table_xstar_slope(const stagecal_vle *v, double y, double *x, double *slope);
 
 #endif /* !TL_VECTOR */
 
