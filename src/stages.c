@@ -825,10 +825,11 @@ static int tab_many(const stagecal_vle *vle, size_t n, const double *xd, const d
     }
 }
 
-/* n rows; rc (may be NULL) receives each row's return value. The rows the closed form's fast
- * path takes go four at a time through the AVX2 lanes (stages_alpha_closed4_avx2: each lane
- * the per-row path's doubles) when the model, E_MV and the parameters allow it, checked once;
- * every other row, and the last n mod 4, through stages_invert. Returns the first row's error
+/* n rows; rc (may be NULL) receives each row's return value. On a table at E_MV = 1 with
+ * tangents, tab_many (rows side by side). The rows the closed form's fast path takes go four at
+ * a time through the AVX2 lanes (stages_alpha_closed4_avx2: each lane the per-row path's
+ * doubles) when the model, E_MV and the parameters allow it, checked once; every other row,
+ * and the last n mod 4, through stages_invert. Returns the first row's error
  * (err then holds its message), else STAGECAL_OK. */
 static int stages_invert_many(const stagecal_vle *vle, size_t n, const double *xd, const double *xb,
                               const double *reflux, double murphree,

@@ -90,7 +90,9 @@ int stagecal_stages_invert(const stagecal_vle *vle, double xd, double xb, double
 
 /* Inversion of n rows at one E_MV and one params: row i is (xd[i], xb[i], reflux[i]) and res[i]
  * is exactly what stagecal_stages_invert gives for it (the same doubles and texts); faster per
- * row for constant α at E_MV = 1, where the closed form takes the rows several at a time.
+ * row for constant α at E_MV = 1, where the closed form takes the rows several at a time, and
+ * for a table model (TABLE, or an activity model's table) at E_MV = 1 with
+ * want_sensitivities = 1, where rows are stepped side by side.
  * Returns STAGECAL_OK when every row's stagecal_stages_invert would, else the first such error
  * (err holds that row's message); every row is inverted either way. */
 int stagecal_stages_invert_many(const stagecal_vle *vle, size_t n, const double *xd,
