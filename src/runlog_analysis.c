@@ -28,7 +28,6 @@
 
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_fit.h>
-#include <gsl/gsl_statistics_double.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -235,7 +234,7 @@ static int close_run(const stagecal_runlog *log, const stagecal_column *col, siz
 
     /* Anchor: median of the conserved holdup (robust to single bad samples). */
     memcpy(e, h, m * sizeof *e);
-    double anchor = gsl_stats_median(e, 1, m);
+    double anchor = runlog_median(e, m);
     for (size_t a = 0; a < m; a++) {
         size_t i = idx[a];
         double integ = h[a] - log->w_mol[i] * log->xb[i];
@@ -248,7 +247,7 @@ static int close_run(const stagecal_runlog *log, const stagecal_column *col, siz
         double *tmp = h; /* h is no longer needed */
         for (size_t a = 0; a < m; a++)
             tmp[a] = fabs(e[a]);
-        s = 1.4826 * gsl_stats_median(tmp, 1, m);
+        s = 1.4826 * runlog_median(tmp, m);
     }
     if (!(s > 0))
         return STAGECAL_OK; /* a noiseless, perfectly closing run: nothing to flag */
@@ -376,12 +375,12 @@ int stagecal_runlog_analyse(const stagecal_runlog *log, const stagecal_column *c
     return STAGECAL_OK;
 }
 
-/* Median of a[0..n) (a is reordered): GSL's selection, linear time; the same double as
- * sorting and gsl_stats_median_from_sorted_data (both average the two middle values when
- * n is even), and a sort was 13 % of run-log inversion at 10^6 rows. */
+/* Median of a[0..n) (a is reordered): GSL's selection, linear time (runlog_median); the same
+ * double as sorting and gsl_stats_median_from_sorted_data (both average the two middle values
+ * when n is even), and a sort was 13 % of run-log inversion at 10^6 rows. */
 static double median_inplace(double *a, size_t n)
 {
-    return gsl_stats_median(a, 1, n);
+    return runlog_median(a, n);
 }
 
 void runlog_mark_no_distillate(const stagecal_runlog *log,

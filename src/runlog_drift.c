@@ -46,7 +46,6 @@
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_fit.h>
-#include <gsl/gsl_statistics_double.h>
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
@@ -266,11 +265,11 @@ static void balance_sigs(const stagecal_runlog *log, const stagecal_column *col,
     }
 }
 
-/* Median of v[0..n) (v is reordered): GSL's selection, the same double a sort gives (the
- * middle value, or the mean 0.5·(a + b) of the two middle values), in linear time. */
+/* Median of v[0..n) (v is reordered): GSL's selection (runlog_median), the same double a sort
+ * gives (the middle value, or the mean of the two middle values), in linear time. */
 static double median_of(double *v, size_t n)
 {
-    return gsl_stats_median(v, 1, n);
+    return runlog_median(v, n);
 }
 
 /* The row's own count and its derivatives, as the inversion gave them (runlog_invert.c). */

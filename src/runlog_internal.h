@@ -270,6 +270,13 @@ int runlog_parse_fraction(const char *s, const stagecal_unit *u, int parsed, dou
 /* The range of mole fractions a reading allows: [v, v], [0, v] or [v, 1]. */
 void runlog_reading_range(double v, int censor, double *lo, double *hi);
 
+/* gsl_stats_median(a, 1, n), the same double (a is reordered, not necessarily as GSL
+ * leaves it). For even n GSL selects the two middle values, each by a selection over the
+ * whole array; GSL's selection leaves a[lhs + 1 ..] at or above the lower middle value, so
+ * the upper one is their least: one selection and a scan (a NaN anywhere, or an upper value
+ * of ±0, takes GSL's second selection as before) (runlog_split.c). */
+double runlog_median(double *a, size_t n);
+
 /* A robust standard deviation of the noise on a slowly varying signal x[0..n−1] (NaN
  * skipped): 1.4826·MAD of its second differences / sqrt(6). 0 with fewer than 7 finite
  * values. tmp is scratch of n. Used for the load-cell noise u(W) when the column file

@@ -15,10 +15,10 @@
  */
 #include <gsl/gsl_cdf.h>
 #include <gsl/gsl_math.h>
-#include <gsl/gsl_sort.h>
 #include <gsl/gsl_statistics_double.h>
 #include <math.h>
 #include <stdlib.h>
+#include <string.h>
 
 #include "internal.h"
 #include "runlog_internal.h"
@@ -44,8 +44,9 @@ static double diff_noise(const double *x, size_t n, double *tmp)
         return 0.0;
     for (size_t i = 0; i + 1 < n; i++)
         tmp[i] = fabs(x[i + 1] - x[i]);
-    gsl_sort(tmp, 1, n - 1);
-    return 1.4826 * gsl_stats_median_from_sorted_data(tmp, 1, n - 1) / M_SQRT2;
+    /* the median of the sorted differences, by selection: the same double (no NaN: x is
+     * finite; no −0: absolute values) */
+    return 1.4826 * runlog_median(tmp, n - 1) / M_SQRT2;
 }
 
 /* Splits x[a..b) (weights w = 1/σ²) recursively; marks a segment start in cut[]. */
@@ -133,26 +134,29 @@ int runlog_setpoints_run(stagecal_runlog *log, size_t k, const stagecal_column *
         size_t same = 0;
         for (size_t i = 1; i < n; i++)
             same += x[i] == x[i - 1];
-        int logged_sp = 2 * same >= n - 1;
-        /* the reading noise from the data only where the differences are many enough for
-         * their median to ignore the set-point changes among them */
-        double noise = n > SETPOINT_MIN_NOISE_ROWS ? diff_noise(x, n, w) : 0.0, umin = HUGE_VAL;
-        for (size_t i = 0; i < n; i++) {
-            w[i] = fmax(noise, u_stated(col, x[i]));
-            umin = w[i] > 0 ? fmin(umin, w[i]) : umin;
-            cut[i] = 0;
+        int exact = 2 * same >= n - 1;
+        memset(cut, 0, n);
+        if (!exact) { /* the weights of the segmentation (a logged set point needs none) */
+            /* the reading noise from the data only where the differences are many enough for
+             * their median to ignore the set-point changes among them */
+            double noise = n > SETPOINT_MIN_NOISE_ROWS ? diff_noise(x, n, w) : 0.0;
+            double umin = HUGE_VAL;
+            for (size_t i = 0; i < n; i++) {
+                w[i] = fmax(noise, u_stated(col, x[i]));
+                umin = w[i] > 0 ? fmin(umin, w[i]) : umin;
+            }
+            exact = !(umin < HUGE_VAL);
+            double swxx = 0;
+            for (size_t i = 0; i < n; i++) { /* a row without a stated u takes the least */
+                double s = w[i] > 0 ? w[i] : umin;
+                w[i] = 1 / (s * s);
+                swxx += w[i] * x[i] * x[i];
+            }
+            /* sums the segmentation cannot form (R near 1e308 overflows them: the means came
+             * out NaN and a row logged at R = 5 took a set point of 4e307): every change of the
+             * value is a set point, as for a logged set point */
+            exact |= !isfinite(swxx);
         }
-        int exact = logged_sp || !(umin < HUGE_VAL);
-        double swxx = 0;
-        for (size_t i = 0; i < n; i++) { /* a row without a stated u takes the stretch's least */
-            double s = w[i] > 0 ? w[i] : umin;
-            w[i] = 1 / (s * s);
-            swxx += w[i] * x[i] * x[i];
-        }
-        /* sums the segmentation cannot form (R near 1e308 overflows them: the means came out
-         * NaN and a row logged at R = 5 took a set point of 4e307): every change of the value is
-         * a set point, as for a logged set point */
-        exact |= !isfinite(swxx);
         if (exact) /* nothing says the readings scatter: a set point changes with the value */
             for (size_t i = 1; i < n; i++)
                 cut[i] = !(x[i] == x[i - 1]);

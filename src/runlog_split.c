@@ -144,6 +144,24 @@ int runlog_keep_raw_w(struct reader *rd, size_t n, double w_raw)
     return 0;
 }
 
+double runlog_median(double *a, size_t n)
+{
+    size_t lhs = n ? (n - 1) / 2 : 0, rhs = n / 2;
+    if (lhs == rhs) /* n odd (or 0): GSL's one selection */
+        return gsl_stats_median(a, 1, n);
+    int nan = 0;
+    for (size_t i = 0; i < n; i++)
+        nan |= isnan(a[i]);
+    if (nan) /* unordered: the order statistics are the selection's own */
+        return gsl_stats_median(a, 1, n);
+    double lo = gsl_stats_select(a, 1, n, lhs), hi = a[lhs + 1];
+    for (size_t i = lhs + 2; i < n; i++)
+        hi = a[i] < hi ? a[i] : hi;
+    if (hi == 0) /* which of ±0 the selection returns is its own */
+        hi = gsl_stats_select(a, 1, n, rhs);
+    return (lo + hi) / 2.0;
+}
+
 double runlog_noise_sd(const double *x, size_t n, double *tmp)
 {
     size_t m = 0;
@@ -159,10 +177,10 @@ double runlog_noise_sd(const double *x, size_t n, double *tmp)
      * middle (or the mean of the two middle values), up to the sign of a zero median, which
      * the absolute deviations below do not see; two sorts here were 8 % of run-log inversion
      * at 10^6 rows */
-    double med = gsl_stats_median(tmp, 1, m);
+    double med = runlog_median(tmp, m);
     for (size_t i = 0; i < m; i++)
         tmp[i] = fabs(tmp[i] - med);
-    double mad = gsl_stats_median(tmp, 1, m);
+    double mad = runlog_median(tmp, m);
     /* 1.4826·MAD estimates a normal standard deviation (Hampel 1974, "The influence curve and
      * its role in robust estimation", JASA 69:383-393); a second difference of white noise
      * has variance (1 + 4 + 1)·σ² = 6σ², and removes a straight or slowly curving draw. */
