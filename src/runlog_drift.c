@@ -334,14 +334,32 @@ static int xd_for_count(const stagecal_vle *vle, const stagecal_physics_cond *co
     return -1;
 }
 
-/* Row a's conditions at distillate xd and reflux r (physics.h; ph NULL: none needed); 1 when
- * there are some to use. */
+/* The conditions of the rows of one stretch (one reflux r), kept from row to row. */
+typedef struct {
+    stagecal_physics_cond pc;
+    double p;  /* the logged pressure they were taken at */
+    int valid; /* 1: pc holds them */
+} stretch_cond;
+
+/* Row a's conditions at distillate xd and reflux r (physics.h; ph NULL: none needed) in
+ * sc->pc; 1 when there are some to use. stagecal_physics_cond_at reads xd only to check its
+ * range and, with a logged reflux temperature at a finite R > 0, for the subcooling; without
+ * that they are a function of the pressure and r alone: a row at the pressure of the last call
+ * (or both without one) takes its conditions (the same bytes) instead of a call. */
 static int row_cond(const stagecal_runlog *log, stagecal_physics *ph, size_t a, double xd, double r,
-                    stagecal_physics_cond *pc)
+                    stretch_cond *sc)
 {
-    return !ph || stagecal_physics_cond_at(ph, log->p_pa ? log->p_pa[a] : NAN, xd, r,
-                                           log->t_reflux_k ? log->t_reflux_k[a] : NAN, pc,
-                                           NULL) == STAGECAL_OK;
+    if (!ph)
+        return 1;
+    double p = log->p_pa ? log->p_pa[a] : NAN, tr = log->t_reflux_k ? log->t_reflux_k[a] : NAN;
+    int same_p = p == sc->p || (!(isfinite(p) && p > 0) && !(isfinite(sc->p) && sc->p > 0));
+    int by_xd = isfinite(tr) && isfinite(r) && r != 0;
+    if (sc->valid && same_p && !by_xd && r >= 0)
+        return xd >= 0 && xd <= 1;
+    int ok = stagecal_physics_cond_at(ph, p, xd, r, tr, &sc->pc, NULL) == STAGECAL_OK;
+    sc->valid = ok && !by_xd;
+    sc->p = p;
+    return ok;
 }
 
 /* The stage relation's estimates of run k, in distillate space (see the top): the rows after
@@ -398,11 +416,11 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
         }
         double nw = median_of(tmp, q);
         double r = (res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX) ? INFINITY : runlog_rset(log, i);
+        stretch_cond sc = {.valid = 0};
         for (size_t a = i; a < e; a++) {
             /* a row the compensation takes as still settling (NAN) is not in the relation: with
              * its raw xD it made a trend on 2-min logs of a holdup column */
             double xd = xd_ss[a], x, sb, dxdn;
-            stagecal_physics_cond pc;
             /* Newton's first point is the row's own count when the compensation left its xD
              * as logged and the row was counted at this R (runlog_invert.c: the same physics
              * call with the same parameters): the count and its derivatives from res, the
@@ -421,9 +439,9 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
             if (!(isfinite(xd) && isfinite(log->xb[a])) ||
                 log->xd_cens[a] != STAGECAL_CENSOR_NONE ||
                 log->xb_cens[a] != STAGECAL_CENSOR_NONE || res->status[a] != STAGECAL_STAGES_OK ||
-                (res->flags[a] & STAGECAL_SAMPLE_OUTLIER) || !row_cond(log, ph, a, xd, r, &pc) ||
-                xd_for_count(col->system.vle, ph ? &pc : NULL, murphree, &sp, log->xb[a], r, nw, xd,
-                             at_x0, &x, &sb, &dxdn) != 0)
+                (res->flags[a] & STAGECAL_SAMPLE_OUTLIER) || !row_cond(log, ph, a, xd, r, &sc) ||
+                xd_for_count(col->system.vle, ph ? &sc.pc : NULL, murphree, &sp, log->xb[a], r, nw,
+                             xd, at_x0, &x, &sb, &dxdn) != 0)
                 continue;
             double ud = stagecal_runlog_u_xd(col, log->xd[a]);
             double ub = stagecal_runlog_u_xb(col, log->xb[a]) * sb;
@@ -685,7 +703,20 @@ static int drift_run(void *ctx, size_t k, size_t worker, stagecal_error *err)
     stagecal_runlog_closure *c = &j->res->closures[k];
     const stagecal_runlog_run *run = &log->runs[k];
     (void)err;
-    runlog_boilup(log, j->col, j->par, j->res, k);
+    /* The analysis checked the boil-up (close_run) before any row was flagged at total reflux
+     * (runlog_mark_no_distillate and runlog_windows flag them after it), and the check reads
+     * no other flag: unless a row of the run is flagged now, its sums stand (the same log and
+     * column, runlog.h) and only the decision is taken again, with these parameters. */
+    const unsigned char *fl = j->res->flags + run->first;
+    int tr = 0;
+    for (size_t i = 0; i < run->n; i++)
+        tr |= fl[i] & STAGECAL_SAMPLE_TOTAL_REFLUX;
+    if (tr)
+        runlog_boilup(log, j->col, j->par, j->res, k);
+    else
+        c->boilup_mismatch =
+            c->has_boilup && c->u_w_diff_mol > 0 &&
+            fabs(c->w_fall_mol - c->w_pred_mol) > j->par->boilup_sigmas * c->u_w_diff_mol;
     runlog_drift_clear(c);
     if (run->n < 2)
         return STAGECAL_OK;

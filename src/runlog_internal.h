@@ -273,8 +273,8 @@ void runlog_reading_range(double v, int censor, double *lo, double *hi);
 /* gsl_stats_median(a, 1, n), the same double (a is reordered, not necessarily as GSL
  * leaves it). For even n GSL selects the two middle values, each by a selection over the
  * whole array; GSL's selection leaves a[lhs + 1 ..] at or above the lower middle value, so
- * the upper one is their least: one selection and a scan (a NaN anywhere, or an upper value
- * of ±0, takes GSL's second selection as before) (runlog_split.c). */
+ * the upper one is their least: one selection and two scans. A NaN in a, or a zero upper
+ * value with a −0 in a, takes GSL's selections as before (runlog_split.c). */
 double runlog_median(double *a, size_t n);
 
 /* A robust standard deviation of the noise on a slowly varying signal x[0..n−1] (NaN

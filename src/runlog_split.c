@@ -144,20 +144,45 @@ int runlog_keep_raw_w(struct reader *rd, size_t n, double w_raw)
     return 0;
 }
 
+/* 1 when a[0..n) holds a −0. */
+static int has_negative_zero(const double *a, size_t n)
+{
+    int neg = 0;
+    for (size_t i = 0; i < n; i++)
+        neg |= a[i] == 0 && signbit(a[i]);
+    return neg;
+}
+
 double runlog_median(double *a, size_t n)
 {
     size_t lhs = n ? (n - 1) / 2 : 0, rhs = n / 2;
     if (lhs == rhs) /* n odd (or 0): GSL's one selection */
         return gsl_stats_median(a, 1, n);
-    int nan = 0;
-    for (size_t i = 0; i < n; i++)
-        nan |= isnan(a[i]);
-    if (nan) /* unordered: the order statistics are the selection's own */
+    /* a NaN makes the sum NaN (four partial sums: a scan at about an instruction a value) */
+    double s0 = 0, s1 = 0, s2 = 0, s3 = 0;
+    size_t i = 0;
+    for (; i + 4 <= n; i += 4)
+        s0 += a[i], s1 += a[i + 1], s2 += a[i + 2], s3 += a[i + 3];
+    for (; i < n; i++)
+        s0 += a[i];
+    if (isnan(s0 + s1 + s2 + s3)) /* (or infinities of both signs) GSL's two selections */
         return gsl_stats_median(a, 1, n);
-    double lo = gsl_stats_select(a, 1, n, lhs), hi = a[lhs + 1];
-    for (size_t i = lhs + 2; i < n; i++)
-        hi = a[i] < hi ? a[i] : hi;
-    if (hi == 0) /* which of ±0 the selection returns is its own */
+    double lo = gsl_stats_select(a, 1, n, lhs);
+    double m0 = a[lhs + 1], m1 = m0, m2 = m0, m3 = m0; /* the least of a[lhs + 1 ..] */
+    for (i = lhs + 2; i + 4 <= n; i += 4) {
+        m0 = a[i] < m0 ? a[i] : m0;
+        m1 = a[i + 1] < m1 ? a[i + 1] : m1;
+        m2 = a[i + 2] < m2 ? a[i + 2] : m2;
+        m3 = a[i + 3] < m3 ? a[i + 3] : m3;
+    }
+    for (; i < n; i++)
+        m0 = a[i] < m0 ? a[i] : m0;
+    m0 = m1 < m0 ? m1 : m0;
+    m2 = m3 < m2 ? m3 : m2;
+    double hi = m2 < m0 ? m2 : m0;
+    /* equal values are the same double but for ±0: with a −0 among zeros, which one the
+     * selection returns is its own */
+    if (hi == 0 && has_negative_zero(a, n))
         hi = gsl_stats_select(a, 1, n, rhs);
     return (lo + hi) / 2.0;
 }

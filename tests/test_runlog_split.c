@@ -2,13 +2,15 @@
  * test_runlog_split.c — runs found by themselves in a log without a run column (time gaps,
  * pot recharges; a single spike is not a recharge), the CSV dialect (';' with decimal
  * commas reads like ',' with points), and the robust load-cell noise estimate
- * runlog_noise_sd against the standard deviation of the Gaussian noise that made the data.
+ * runlog_noise_sd against the standard deviation of the Gaussian noise that made the data,
+ * and the medians' shortcut runlog_median against GSL's median bit for bit.
  * The logs here are invented for the tests.
  */
 #define _GNU_SOURCE 1
 #include <gsl/gsl_errno.h>
 #include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
+#include <gsl/gsl_statistics_double.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -174,6 +176,36 @@ static void noise_estimate_matches_truth(void **state)
     gsl_rng_free(rng);
 }
 
+/* runlog_median against GSL's gsl_stats_median (the reference: GSL's own two selections),
+ * bit for bit (tolerance 0: the shortcut must give the same double), over 20 000 random arrays
+ * of 0 to 400 values drawn to hold ties, zeros of both signs, infinities and NaNs. */
+static void median_matches_gsl(void **state)
+{
+    (void)state;
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 20261204);
+    enum { MAXN = 400, REPS = 20000 };
+    static double a[MAXN], b[MAXN];
+    const double special[] = {0.0, -0.0, INFINITY, -INFINITY, NAN, 1.0, -1.0};
+    size_t differ = 0;
+    for (int r = 0; r < REPS; r++) {
+        size_t n = gsl_rng_uniform_int(rng, r < 100 ? MAXN + 1 : 40);
+        unsigned kind = (unsigned)gsl_rng_uniform_int(rng, 4);
+        for (size_t i = 0; i < n; i++) {
+            double v = gsl_ran_gaussian(rng, 1.0);
+            if (kind == 1) /* ties: a few distinct values */
+                v = (double)gsl_rng_uniform_int(rng, 5) - 2.0;
+            else if (kind >= 2 && gsl_rng_uniform(rng) < 0.3) /* special values */
+                v = special[gsl_rng_uniform_int(rng, kind == 2 ? 2 : 7)];
+            a[i] = b[i] = v;
+        }
+        double m = runlog_median(a, n), g = gsl_stats_median(b, 1, n);
+        differ += memcmp(&m, &g, sizeof m) != 0 && !(isnan(m) && isnan(g));
+    }
+    assert_int_equal(differ, 0);
+    gsl_rng_free(rng);
+}
+
 int main(void)
 {
     gsl_set_error_handler_off();
@@ -182,6 +214,7 @@ int main(void)
         cmocka_unit_test(split_leaves_one_run),
         cmocka_unit_test(dialect_semicolon_decimal_comma),
         cmocka_unit_test(noise_estimate_matches_truth),
+        cmocka_unit_test(median_matches_gsl),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
