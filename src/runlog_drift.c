@@ -272,66 +272,161 @@ static double median_of(double *v, size_t n)
     return runlog_median(v, n);
 }
 
-/* The row's own count and its derivatives, as the inversion gave them (runlog_invert.c). */
+/* Searches side by side in xd_for_count (the four rows of stages_invert4_fast). */
+#define XD_LANES 4
+
+/* A row of a stretch whose distillate X is searched (xd_for_count), with the result. */
 typedef struct {
-    double stages, dxd, dxb;
-} own_count;
+    size_t a;             /* the row */
+    int own;              /* 1: Newton's first point is the row's own count (res) */
+    double x, sens, dxdn; /* X, ∂N/∂xB / ∂N/∂xD and ∂X/∂N = 1/(∂N/∂xD) at X */
+    int ok;               /* 1: found */
+} xd_row;
+
+/* One search in progress: the bracket [lo, hi], the point x, the iteration it. */
+typedef struct {
+    xd_row *row;
+    double lo, hi, x, x0, xb;
+    int it;
+} xd_search;
 
 /* The distillate X at which the plain count at (xb, r) equals target: safeguarded Newton
  * on N(x) − target from x0 (N rises with xD; a pinch means x too high, an invalid count x
- * too low), with the bracket halved when a step leaves it. *sens = ∂N/∂xB / ∂N/∂xD at X,
- * *dxdn = ∂X/∂N = 1/(∂N/∂xD). 0 on success. cond with neither pseudo-moles nor a pot at
- * its own pressure is inverted by stagecal_stages_invert directly: stagecal_physics_invert
- * would scale the derivatives used here by 1.0, so the doubles are the same. The counts'
- * reasons are not read (the _quiet variants, internal.h). */
-static int xd_for_count(const stagecal_vle *vle, const stagecal_physics_cond *cond, double murphree,
-                        const stagecal_stages_params *sp, double xb, double r, double target,
-                        double x0, const own_count *at_x0, double *x_out, double *sens,
-                        double *dxdn)
+ * too low), with the bracket halved when a step leaves it. xd_start sets the search up,
+ * xd_step takes the count at s->x (rc: the call's code) and returns 1 when X is found, −1
+ * when the search failed, 0 with the next point in s->x. */
+static void xd_start(xd_search *s, xd_row *row, double xb, double x0)
 {
-    double lo = xb, hi = 1.0, x = x0 > lo && x0 < hi ? x0 : 0.5 * (lo + hi);
-    int plain = cond && !(cond->pseudo_ratio > 0) && cond->vle_pot == cond->vle;
-    for (int it = 0; it < 60; it++) {
-        stagecal_stages_result sr;
-        int rc = STAGECAL_OK, status;
-        double n, dxd, dxb;
-        if (it == 0 && at_x0 && x == x0) { /* the row's own count: the same call, made already */
-            status = STAGECAL_STAGES_OK;
-            n = at_x0->stages, dxd = at_x0->dxd, dxb = at_x0->dxb;
-        } else { /* the row's conditions (logged pressure, subcooled reflux), as its own count had
-                  */
-            rc = plain ? stages_invert_quiet(cond->vle, x, xb, cond->r_int, murphree, sp, &sr, NULL)
-                 : cond ? physics_invert_quiet(cond, x, xb, murphree, sp, &sr, NULL)
-                        : stages_invert_quiet(vle, x, xb, r, murphree, sp, &sr, NULL);
-            status = rc == STAGECAL_OK ? sr.status : STAGECAL_STAGES_INVALID;
-            n = sr.stages, dxd = sr.dstages_dxd, dxb = sr.dstages_dxb;
+    s->row = row;
+    s->lo = xb, s->hi = 1.0;
+    s->x = x0 > s->lo && x0 < s->hi ? x0 : 0.5 * (s->lo + s->hi);
+    s->x0 = x0, s->xb = xb;
+    s->it = 0;
+}
+
+static int xd_step(xd_search *s, double target, int rc, int status, double n, double dxd,
+                   double dxb)
+{
+    double x = s->x, xn;
+    if (rc != STAGECAL_OK || status != STAGECAL_STAGES_OK) {
+        if (rc == STAGECAL_OK && status == STAGECAL_STAGES_PINCH)
+            s->hi = x;
+        else
+            s->lo = x;
+        xn = 0.5 * (s->lo + s->hi);
+    } else {
+        double f = n - target;
+        if (fabs(f) < 1e-9 || s->hi - s->lo < 1e-14) {
+            xd_row *o = s->row;
+            o->x = x;
+            o->sens = dxd > 0 ? dxb / dxd : NAN;
+            o->dxdn = dxd > 0 ? 1.0 / dxd : NAN;
+            return isfinite(o->sens) && isfinite(o->dxdn) ? 1 : -1;
         }
-        double xn;
-        if (rc != STAGECAL_OK || status != STAGECAL_STAGES_OK) {
-            if (rc == STAGECAL_OK && status == STAGECAL_STAGES_PINCH)
-                hi = x;
-            else
-                lo = x;
-            xn = 0.5 * (lo + hi);
-        } else {
-            double f = n - target;
-            if (fabs(f) < 1e-9 || hi - lo < 1e-14) {
-                *x_out = x;
-                *sens = dxd > 0 ? dxb / dxd : NAN;
-                *dxdn = dxd > 0 ? 1.0 / dxd : NAN;
-                return isfinite(*sens) && isfinite(*dxdn) ? 0 : -1;
-            }
-            if (f > 0)
-                hi = x;
-            else
-                lo = x;
-            xn = dxd > 0 ? x - f / dxd : NAN;
-            if (!(xn > lo && xn < hi))
-                xn = 0.5 * (lo + hi);
-        }
-        x = xn;
+        if (f > 0)
+            s->hi = x;
+        else
+            s->lo = x;
+        xn = dxd > 0 ? x - f / dxd : NAN;
+        if (!(xn > s->lo && xn < s->hi))
+            xn = 0.5 * (s->lo + s->hi);
     }
-    return -1;
+    s->x = xn;
+    return ++s->it < 60 ? 0 : -1;
+}
+
+/* The counts at the points of the searches s[j] with bit j of busy set, into sr[j] and rc[j]:
+ * stagecal_stages_invert (quiet) of vle at reflux r. The four are handed to the constant-α
+ * closed form's four-row path together (stages_invert4_fast: each lane the per-row call's
+ * doubles); a row it does not take, and every row without it, by the per-row call. */
+static void xd_counts(const stagecal_vle *vle, double r, double murphree,
+                      const stagecal_stages_params *sp, const xd_search *s, unsigned busy,
+                      stagecal_stages_result *sr, int *rc)
+{
+    if (stagecal_vle_get_kind(vle) != STAGECAL_VLE_ALPHA) { /* (the four-row path is α's) */
+        for (int j = 0; j < XD_LANES; j++)
+            if (busy >> j & 1)
+                rc[j] = stages_invert_quiet(vle, s[j].x, s[j].xb, r, murphree, sp, &sr[j], NULL);
+        return;
+    }
+    double x[XD_LANES], xb[XD_LANES], rr[XD_LANES];
+    int f = 0; /* an idle lane repeats a busy one (its result is not read) */
+    while (!(busy >> f & 1))
+        f++;
+    for (int j = 0; j < XD_LANES; j++) {
+        int k = busy >> j & 1 ? j : f;
+        x[j] = s[k].x, xb[j] = s[k].xb, rr[j] = r;
+    }
+    unsigned fast = stages_invert4_fast(vle, x, xb, rr, murphree, sp, sr);
+    for (int j = 0; j < XD_LANES; j++)
+        if (busy >> j & 1)
+            rc[j] = fast >> j & 1
+                        ? STAGECAL_OK
+                        : stages_invert_quiet(vle, s[j].x, s[j].xb, r, murphree, sp, &sr[j], NULL);
+}
+
+/* xd_for_count of the rows rows[0..n) of a stretch at reflux r with the stretch count target
+ * and the conditions cond (NULL: none), XD_LANES searches at a time: each takes the same
+ * points and counts as it would alone (the counts at the row's own point from res, the others
+ * by the one call below), only the calls are made side by side. cond with neither pseudo-moles
+ * nor a pot at its own pressure is inverted by stagecal_stages_invert directly:
+ * stagecal_physics_invert would scale the derivatives used here by 1.0, so the doubles are the
+ * same. The counts' reasons are not read (the _quiet variants, internal.h). */
+static void xd_for_count(const stagecal_vle *vle, const stagecal_physics_cond *cond,
+                         double murphree, const stagecal_stages_params *sp,
+                         const stagecal_runlog *log, const stagecal_runlog_result *res,
+                         const double *xd_ss, double r, double target, xd_row *rows, size_t n)
+{
+    int plain = cond && !(cond->pseudo_ratio > 0) && cond->vle_pot == cond->vle;
+    const stagecal_vle *cv = plain ? cond->vle : vle;
+    double cr = plain ? cond->r_int : r;
+    xd_search s[XD_LANES];
+    unsigned busy = 0;
+    size_t next = 0;
+    for (;;) {
+        for (int j = 0; j < XD_LANES; j++) {
+            for (;;) { /* a free lane takes the next row; the row's own count costs no call */
+                if (!(busy >> j & 1)) {
+                    if (next == n)
+                        break;
+                    xd_row *row = &rows[next++];
+                    row->ok = 0;
+                    xd_start(&s[j], row, log->xb[row->a], xd_ss[row->a]);
+                    busy |= 1u << j;
+                }
+                const xd_row *row = s[j].row;
+                if (!(s[j].it == 0 && row->own && s[j].x == s[j].x0))
+                    break;
+                int d = xd_step(&s[j], target, STAGECAL_OK, STAGECAL_STAGES_OK, res->stages[row->a],
+                                res->dn_dxd[row->a], res->dn_dxb[row->a]);
+                if (d) {
+                    s[j].row->ok = d > 0;
+                    busy &= ~(1u << j);
+                }
+            }
+        }
+        if (!busy)
+            return;
+        stagecal_stages_result sr[XD_LANES];
+        int rc[XD_LANES];
+        if (plain || !cond)
+            xd_counts(cv, cr, murphree, sp, s, busy, sr, rc);
+        else
+            for (int j = 0; j < XD_LANES; j++)
+                if (busy >> j & 1)
+                    rc[j] = physics_invert_quiet(cond, s[j].x, s[j].xb, murphree, sp, &sr[j], NULL);
+        for (int j = 0; j < XD_LANES; j++) {
+            if (!(busy >> j & 1))
+                continue;
+            int status = rc[j] == STAGECAL_OK ? sr[j].status : STAGECAL_STAGES_INVALID;
+            int d = xd_step(&s[j], target, rc[j], status, sr[j].stages, sr[j].dstages_dxd,
+                            sr[j].dstages_dxb);
+            if (d) {
+                s[j].row->ok = d > 0;
+                busy &= ~(1u << j);
+            }
+        }
+    }
 }
 
 /* The conditions of the rows of one stretch (one reflux r), kept from row to row. */
@@ -341,25 +436,32 @@ typedef struct {
     int valid; /* 1: pc holds them */
 } stretch_cond;
 
-/* Row a's conditions at distillate xd and reflux r (physics.h; ph NULL: none needed) in
- * sc->pc; 1 when there are some to use. stagecal_physics_cond_at reads xd only to check its
- * range and, with a logged reflux temperature at a finite R > 0, for the subcooling; without
- * that they are a function of the pressure and r alone: a row at the pressure of the last call
- * (or both without one) takes its conditions (the same bytes) instead of a call. */
+/* Row a's conditions at distillate xd and reflux r (physics.h) in sc->pc; 1 when there are
+ * some to use. stagecal_physics_cond_at reads xd only to check its range and, with a logged
+ * reflux temperature at a finite R > 0, for the subcooling; without that they are a function
+ * of the pressure and r alone: a row at the pressure of the last call (or both without one)
+ * takes its conditions (the same bytes) instead of a call (row_cond_kept). */
 static int row_cond(const stagecal_runlog *log, stagecal_physics *ph, size_t a, double xd, double r,
                     stretch_cond *sc)
 {
-    if (!ph)
-        return 1;
+    double p = log->p_pa ? log->p_pa[a] : NAN, tr = log->t_reflux_k ? log->t_reflux_k[a] : NAN;
+    int ok = stagecal_physics_cond_at(ph, p, xd, r, tr, &sc->pc, NULL) == STAGECAL_OK;
+    sc->valid = ok && !(isfinite(tr) && isfinite(r) && r != 0);
+    sc->p = p;
+    return ok;
+}
+
+/* As row_cond when the row's conditions are those in sc (1, or 0 for an xd out of range);
+ * −1 when row_cond must be called. */
+static int row_cond_kept(const stagecal_runlog *log, size_t a, double xd, double r,
+                         const stretch_cond *sc)
+{
     double p = log->p_pa ? log->p_pa[a] : NAN, tr = log->t_reflux_k ? log->t_reflux_k[a] : NAN;
     int same_p = p == sc->p || (!(isfinite(p) && p > 0) && !(isfinite(sc->p) && sc->p > 0));
     int by_xd = isfinite(tr) && isfinite(r) && r != 0;
     if (sc->valid && same_p && !by_xd && r >= 0)
         return xd >= 0 && xd <= 1;
-    int ok = stagecal_physics_cond_at(ph, p, xd, r, tr, &sc->pc, NULL) == STAGECAL_OK;
-    sc->valid = ok && !by_xd;
-    sc->p = p;
-    return ok;
+    return -1;
 }
 
 /* The stage relation's estimates of run k, in distillate space (see the top): the rows after
@@ -383,8 +485,11 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
            *es = scr + 9 * len;
     size_t m = 0;
     int32_t *key = malloc(run->n * sizeof *key);
-    if (!key)
+    xd_row *xr = malloc(run->n * sizeof *xr);
+    if (!key || !xr) {
+        free(key), free(xr);
         return;
+    }
     /* the inversion's parameters, built once per run rather than at every Newton step */
     stagecal_stages_params sp = stagecal_stages_default_params();
     sp.want_sensitivities = 1;
@@ -417,10 +522,55 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
         double nw = median_of(tmp, q);
         double r = (res->flags[i] & STAGECAL_SAMPLE_TOTAL_REFLUX) ? INFINITY : runlog_rset(log, i);
         stretch_cond sc = {.valid = 0};
-        for (size_t a = i; a < e; a++) {
-            /* a row the compensation takes as still settling (NAN) is not in the relation: with
-             * its raw xD it made a trend on 2-min logs of a holdup column */
-            double xd = xd_ss[a], x, sb, dxdn;
+        size_t nx = 0; /* rows waiting for their search (the conditions in sc) */
+        for (size_t a = i; a <= e; a++) {
+            int cr = 1;
+            if (a < e) {
+                /* a row the compensation takes as still settling (NAN) is not in the relation:
+                 * with its raw xD it made a trend on 2-min logs of a holdup column */
+                double xd = xd_ss[a];
+                if (!(isfinite(xd) && isfinite(log->xb[a])) ||
+                    log->xd_cens[a] != STAGECAL_CENSOR_NONE ||
+                    log->xb_cens[a] != STAGECAL_CENSOR_NONE ||
+                    res->status[a] != STAGECAL_STAGES_OK ||
+                    (res->flags[a] & STAGECAL_SAMPLE_OUTLIER))
+                    continue;
+                cr = ph ? row_cond_kept(log, a, xd, r, &sc) : 1;
+            }
+            /* the waiting rows are searched before the conditions are taken again (the models
+             * they point to live in ph's cache until then) and at the stretch's end; their
+             * results go in in row order */
+            if (a == e || cr < 0) {
+                xd_for_count(col->system.vle, ph ? &sc.pc : NULL, murphree, &sp, log, res, xd_ss, r,
+                             nw, xr, nx);
+                for (size_t b = 0; b < nx; b++) {
+                    const xd_row *o = &xr[b];
+                    size_t ra = o->a;
+                    if (!o->ok)
+                        continue;
+                    double ud = stagecal_runlog_u_xd(col, log->xd[ra]);
+                    double ub = stagecal_runlog_u_xb(col, log->xb[ra]) * o->sens;
+                    /* the compensation's shift Δ: its holdup part (u_hold·Δ) is common to the
+                     * run's rows and enters through dl below; the rest (the slope's noise) is
+                     * the row's own */
+                    double sh = isfinite(xd_ss[ra]) ? xd_ss[ra] - log->xd[ra] : 0;
+                    double uc = isfinite(u2[ra]) ? fmax(u2[ra] - sh * u_hold * sh * u_hold, 0) : 0;
+                    rr[m] = xd_ss[ra] - o->x;
+                    t[m] = log->t_s[ra] / 3600.0 - t0;
+                    sens[m] = o->sens;
+                    hx[m] = o->dxdn;
+                    w[m] = ud * ud + ub * ub + uc > 0 ? 1.0 / (ud * ud + ub * ub + uc) : 1.0;
+                    dl[m] = u_hold * sh;
+                    win[m] = wk;
+                    m++;
+                }
+                nx = 0;
+                if (a == e)
+                    break;
+                cr = row_cond(log, ph, a, xd_ss[a], r, &sc);
+            }
+            if (!cr)
+                continue;
             /* Newton's first point is the row's own count when the compensation left its xD
              * as logged and the row was counted at this R (runlog_invert.c: the same physics
              * call with the same parameters): the count and its derivatives from res, the
@@ -428,39 +578,13 @@ static void stage_sigs(const stagecal_runlog *log, const stagecal_column *col, s
             double rs_a = runlog_rset(log, a);
             double r_row =
                 isfinite(rs_a) && (res->flags[a] & STAGECAL_SAMPLE_TOTAL_REFLUX) ? INFINITY : rs_a;
-            own_count own;
-            const own_count *at_x0 = NULL;
-            if (ph && xd == log->xd[a] && r_row == r) {
-                own.stages = res->stages[a];
-                own.dxd = res->dn_dxd[a];
-                own.dxb = res->dn_dxb[a];
-                at_x0 = &own;
-            }
-            if (!(isfinite(xd) && isfinite(log->xb[a])) ||
-                log->xd_cens[a] != STAGECAL_CENSOR_NONE ||
-                log->xb_cens[a] != STAGECAL_CENSOR_NONE || res->status[a] != STAGECAL_STAGES_OK ||
-                (res->flags[a] & STAGECAL_SAMPLE_OUTLIER) || !row_cond(log, ph, a, xd, r, &sc) ||
-                xd_for_count(col->system.vle, ph ? &sc.pc : NULL, murphree, &sp, log->xb[a], r, nw,
-                             xd, at_x0, &x, &sb, &dxdn) != 0)
-                continue;
-            double ud = stagecal_runlog_u_xd(col, log->xd[a]);
-            double ub = stagecal_runlog_u_xb(col, log->xb[a]) * sb;
-            /* the compensation's shift Δ: its holdup part (u_hold·Δ) is common to the run's
-             * rows and enters through dl below; the rest (the slope's noise) is the row's own */
-            double sh = isfinite(xd_ss[a]) ? xd_ss[a] - log->xd[a] : 0;
-            double uc = isfinite(u2[a]) ? fmax(u2[a] - sh * u_hold * sh * u_hold, 0) : 0;
-            rr[m] = xd - x;
-            t[m] = log->t_s[a] / 3600.0 - t0;
-            sens[m] = sb;
-            hx[m] = dxdn;
-            w[m] = ud * ud + ub * ub + uc > 0 ? 1.0 / (ud * ud + ub * ub + uc) : 1.0;
-            dl[m] = u_hold * sh;
-            win[m] = wk;
-            m++;
+            xr[nx].a = a;
+            xr[nx].own = ph && xd_ss[a] == log->xd[a] && r_row == r;
+            nx++;
         }
         i = e;
     }
-    free(key);
+    free(key), free(xr);
     for (int j = 0; j < 2; j++) {
         for (size_t a = 0; a < m; a++)
             g[a] = j == 0 ? t[a] : sens[a] * t[a];
