@@ -300,6 +300,8 @@ static int close_run(const stagecal_runlog *log, const stagecal_column *col, siz
             x[kept] = x[a], y[kept] = y[a], wt[kept] = wt[a];
             kept++;
         }
+        if (kept == q) /* no outlier: the refit is the same fit of the same numbers */
+            break;
         q = kept;
     }
     if (q >= 3 && isfinite(c1) && isfinite(cov11)) {

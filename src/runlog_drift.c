@@ -86,14 +86,12 @@ double runlog_holdup_light(const stagecal_column *col, double xd, double xb)
     return col->holdup_column_mol * 0.5 * (xd + xb) + col->holdup_drum_mol * xd;
 }
 
-/* 1 when the interval (i − 1, i) of a run enters the boil-up check: W and V at both ends, a
- * finite R > 0 at both, neither counted at total reflux, time increasing. */
-static int interval_in(const stagecal_runlog *log, const stagecal_runlog_result *res, size_t i)
+/* 1 when row i can end an interval of the boil-up check: W and V logged, a finite R > 0, not
+ * counted at total reflux. The interval (i − 1, i) enters the check when both its rows can and
+ * time increases. */
+static int boilup_row(const stagecal_runlog *log, const stagecal_runlog_result *res, size_t i)
 {
-    size_t j = i - 1;
-    return isfinite(log->w_mol[i]) && isfinite(log->w_mol[j]) && isfinite(log->v_mol_s[i]) &&
-           isfinite(log->v_mol_s[j]) && log->t_s[i] > log->t_s[j] &&
-           row_usable(res, i, log->r[i]) && row_usable(res, j, log->r[j]);
+    return isfinite(log->w_mol[i]) && isfinite(log->v_mol_s[i]) && row_usable(res, i, log->r[i]);
 }
 
 void runlog_boilup(const stagecal_runlog *log, const stagecal_column *col,
@@ -111,20 +109,22 @@ void runlog_boilup(const stagecal_runlog *log, const stagecal_column *col,
     double ur = col ? col->u.r : 0, urr = col ? col->u.r_rel : 0;
     double fall = 0, pred = 0, var = 0;
     size_t nint = 0, end = run->first + run->n;
-    int right = 0;
+    int right = 0, next_ok = boilup_row(log, res, run->first);
+    double d_prev = 0; /* V/(R + 1) of the row before, when it entered */
     for (size_t i = run->first; i < end; i++) {
         /* interval (i − 1, i) was the previous row's right one */
-        int left = i > run->first && right;
-        right = i + 1 < end && interval_in(log, res, i + 1);
+        int left = i > run->first && right, ok = next_ok;
+        next_ok = i + 1 < end && boilup_row(log, res, i + 1);
+        right = ok && next_ok && log->t_s[i + 1] > log->t_s[i];
         if (!left && !right)
             continue;
-        double r = log->r[i], v = log->v_mol_s[i];
+        double r = log->r[i], v = log->v_mol_s[i], d = v / (r + 1);
         if (left) {
-            double dj = log->v_mol_s[i - 1] / (log->r[i - 1] + 1);
-            pred += 0.5 * (dj + v / (r + 1)) * (log->t_s[i] - log->t_s[i - 1]);
+            pred += 0.5 * (d_prev + d) * (log->t_s[i] - log->t_s[i - 1]);
             fall += log->w_mol[i - 1] - log->w_mol[i];
             nint++;
         }
+        d_prev = d;
         /* row i's weight in the prediction (half of each adjacent interval) and in the fall
          * (+1 as an interval's start, −1 as its end); u(D) from u(V) and u(R) */
         double cw = 0.5 * ((left ? log->t_s[i] - log->t_s[i - 1] : 0) +
