@@ -154,14 +154,7 @@ int main(int argc, char **argv)
     gsl_set_error_handler_off();
     gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
     stagecal_column col;
-    memset(&col, 0, sizeof col);
-    col.system.vle = stagecal_vle_alloc_alpha(BC_ALPHA, NULL);
-    col.system.p_pa = 101325;
-    col.u.xd = 0.0015;
-    col.u.xb = 0.0025;
-    col.u.r = 0.02;
-    snprintf(col.id, sizeof col.id, "synthetic");
-    if (!rng || !col.system.vle) {
+    if (bc_column(&col) != 0 || !rng) {
         fprintf(stderr, "tool_batch_coverage: set-up failed\n");
         return 1;
     }
