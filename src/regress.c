@@ -92,8 +92,8 @@ const char *stagecal_regress_cov_label(stagecal_cov_kind kind)
         [STAGECAL_COV_HC3] = "the HC3 sandwich",
         [STAGECAL_COV_HC2] = "the HC2 sandwich",
         [STAGECAL_COV_HC2_BM] = "the HC2 sandwich with Bell-McCaffrey dof",
-        [STAGECAL_COV_CR2_RUN] = "the CR2 sandwich clustered by run with Bell-McCaffrey "
-                                 "dof"};
+        [STAGECAL_COV_CR2_RUN] = ("the CR2 sandwich clustered by run with Bell-McCaffrey "
+                                  "dof")};
     return NAME_OF(names, kind);
 }
 
