@@ -291,7 +291,8 @@ static int feed(struct pipe *p, stagecal_runlog_stream *s, stagecal_error *err)
     pthread_cond_broadcast(&p->cv);
     /* the stream has ended: the runs read ahead are inverted on this core too, not left to the
      * workers alone */
-    for (struct slot *t; ph && p->rc == STAGECAL_OK && (t = slot_to_take(p)) != NULL;) {
+    for (struct slot *t;
+         ph && rc == STAGECAL_OK && p->rc == STAGECAL_OK && (t = slot_to_take(p)) != NULL;) {
         take_and_work(p, t, ph);
         write_ready(p);
     }
