@@ -145,7 +145,7 @@ int main(int argc, char **argv)
     double sum_ratio = 0, sum_absdev = 0, sum_gain = 0, sum_exp = 0, sum_ach = 0, sum_base = 0;
     double sum_before = 0, sum_ratio_old = 0;
     size_t n_cov_kind = 0;
-    size_t low_tests = 0, wins_naive = 0;
+    size_t low_tests = 0, proposed = 0, wins_naive = 0; /* proposed: trials with K tests */
     double sum_naive = 0;
     /* per-trial values for medians */
     double *v_before = calloc(trials, sizeof(double)), *v_exp = calloc(trials, sizeof(double));
@@ -209,6 +209,7 @@ int main(int argc, char **argv)
             if (res.tests[k].r <= 2.5)
                 low_tests++;
         }
+        proposed++;
         int ok1 = fit(&w1, &form, load, &r1) == 0, ok2 = fit(&w2, &form, load, &r2) == 0;
         stagecal_regress_result r3;
         int ok3 = fit(&w3, &form, load, &r3) == 0;
@@ -322,7 +323,7 @@ int main(int argc, char **argv)
     printf("  |achieved/expected - 1| <= 0.2              %.1f %% of trials\n",
            100.0 * (double)within20 / nd);
     printf("  tests proposed at R <= 2.5                  %.1f %%\n",
-           100.0 * (double)low_tests / (nd * K));
+           100.0 * (double)low_tests / ((proposed ? (double)proposed : 1) * K));
     printf("  95 %% CI after the proposed tests covers the truth: %.3f (%zu intervals)\n",
            cover_n ? (double)cover_hit / (double)cover_n : NAN, cover_n);
     gsl_rng_free(rng);
