@@ -209,6 +209,22 @@ int runlog_drift_free_fit(const double *y, const double *g, const double *hx, co
 /* √(S_gg / S_gg|hx) of the within-stretch sums of squares (INFINITY when nothing is left). */
 double runlog_drift_collinear_factor(const double *g, const double *hx, const double *w,
                                      const int32_t *win, size_t m);
+/* A row of a stretch whose distillate X is searched (xd_for_count), with the result. */
+typedef struct {
+    size_t a;             /* the row */
+    int own;              /* 1: Newton's first point is the row's own count (res) */
+    double x, sens, dxdn; /* X, ∂N/∂xB / ∂N/∂xD and ∂X/∂N = 1/(∂N/∂xD) at X */
+    int ok;               /* 1: found */
+} xd_row;
+/* For each row rows[0..n) of a stretch at reflux r (its a set, own 1 when Newton's first point
+ * is the row's own count in res), the distillate X at which the count at (log->xb[a], r) equals
+ * target, from xd_ss[a], under the conditions cond (NULL: none): rows[i].ok and the results
+ * (runlog_drift_search.c). */
+void runlog_drift_xd_for_count(const stagecal_vle *vle, const stagecal_physics_cond *cond,
+                               double murphree, const stagecal_stages_params *sp,
+                               const stagecal_runlog *log, const stagecal_runlog_result *res,
+                               const double *xd_ss, double r, double target, xd_row *rows,
+                               size_t n);
 /* printf's "%.9g" of v into d (at most 16 bytes, no NUL) for 1e-13 <= |v| < 1e13, or -1
  * (outside that range, or too close to a rounding tie to be sure: ask printf). */
 int runlog_format_g9(char *d, double v);
