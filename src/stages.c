@@ -209,10 +209,10 @@ typedef struct {
  * tl non-NULL), the pinch checks at x_target. Returns 1 when stepping follows (*s filled, its
  * stepper initialised); 0 when res is final or *rc an error, the caller then finishing as
  * invert_core does at done (s->st freeable either way). */
-static inline int invert_begin(const stagecal_vle *vle, double xd, double xb, double reflux,
-                               double e, const stagecal_stages_params *par, int quiet,
-                               stagecal_stages_result *res, tl3 *tl, stagecal_error *err,
-                               invert_start *s, int *rc)
+static inline __attribute__((always_inline)) int
+invert_begin(const stagecal_vle *vle, double xd, double xb, double reflux, double e,
+             const stagecal_stages_params *par, int quiet, stagecal_stages_result *res, tl3 *tl,
+             stagecal_error *err, invert_start *s, int *rc)
 {
     memset(res, 0, sizeof *res);
     res->status = STAGECAL_STAGES_OK;
@@ -593,20 +593,48 @@ unsigned stages_invert4_fast(const stagecal_vle *vle, const double xd[4], const 
 
 /* ---- table rows side by side --------------------------------------------------------- */
 
-/* Rows stepped side by side on a table at E_MV = 1 (stages_invert_many): each row's stepping is
- * one chain of dependent operations (y → the table's x*(y) → the next y, ~110 cycles a stage),
- * so one row at a time leaves the core idle; TAB_LANES rows in one loop let it overlap their
- * chains. Two measured best (bench_invert nrtl: 1 lane 0.040 s, 2 0.038 s, 4 and 8 0.045 s):
- * a mispredicted branch of one row (the table search, the end of its stepping) discards the
- * work done meanwhile on the others. */
+/* stages_invert_many's rows on a table at E_MV = 1 with tangents (tab_many) go in blocks of
+ * TAB_BLOCK rows through three phases, each a loop over the block calling one per-row function
+ * (so that a phase can take its rows four at a time by replacing that call):
+ *  - start (tab_block_start, tab_row_start): invert_core's start, each row's line and x_target
+ *    with their tangents into a tab_begin, or the row done (its final status) or marked for
+ *    stages_invert;
+ *  - stepping (tab_block_step, tab_step): the rows that step, TAB_LANES side by side in one loop,
+ *    a lane taking the block's next row when its row is done; a row that crosses x_target
+ *    leaves stepper_crossing's arguments in a tab_cross;
+ *  - crossing (tab_block_cross, tab_row_cross): the crossed rows' fractions and results;
+ * then the rows marked on the way go through stages_invert (tab_block_rest).
+ * Each row's stepping is one chain of dependent operations (y → the table's x*(y) → the next y,
+ * ~110 cycles a stage), so one row at a time leaves the core idle; TAB_LANES rows in one loop
+ * let it overlap their chains. Two measured best (bench_invert nrtl: 1 lane 0.040 s, 2 0.038 s,
+ * 4 and 8 0.045 s): a mispredicted branch of one row (the table search, the end of its
+ * stepping) discards the work done meanwhile on the others. */
 #define TAB_LANES 2
+#define TAB_BLOCK 128
+
+/* A row's mark in a block: done (res final, rc OK), stepping, crossed (its tab_cross filled),
+ * or to go through stages_invert. */
+enum { TAB_DONE = 0, TAB_STEPS = 1, TAB_CROSSED = 2, TAB_REST = -1 };
 
 /* One row being stepped: invert_core's loop state (tangents carried). */
 typedef struct {
-    size_t j, n; /* the row, whole steps so far */
+    size_t i, n; /* the row in the block, whole steps so far */
     double x_prev;
     tl3 m, b, txt, tprev;
 } tab_lane;
+
+static inline void tl_put(double *o, tl3 a)
+{
+    o[0] = a.v;
+    for (int i = 0; i < TL_N; i++)
+        o[1 + i] = a.d[i];
+}
+
+static inline tl3 tl_get(const double *o)
+{
+    tl3 r = {o[0], {o[1], o[2], o[3]}};
+    return r;
+}
 
 /* Whether stages_invert_many steps the rows side by side: a Hermite table with its buckets, at
  * E_MV = 1, with tangents (stages_invert then takes invert_core's table path with tl). */
@@ -623,12 +651,13 @@ int stages_many_by_table(const stagecal_vle *vle, double murphree)
     return vle && tab_applies(vle, murphree, &p);
 }
 
-/* Starts row j in lane L: invert_begin as invert_core calls it. 1 when the row steps; 0 when it
- * is done: res[j] final with rc[j] = STAGECAL_OK where invert_core and stages_invert stop there
- * with a status that is not ok, else (-1) the row goes through stages_invert. */
-static int tab_start(const stagecal_vle *vle, const double *xd, const double *xb,
-                     const double *reflux, const stagecal_stages_params *par, int quiet,
-                     stagecal_stages_result *res, size_t j, tab_lane *L)
+/* Starts row j: invert_begin as invert_core calls it. TAB_STEPS with *o filled when the row
+ * steps; TAB_DONE when res[j] is final with return value STAGECAL_OK (invert_core and
+ * stages_invert stop there with a status that is not ok); else TAB_REST (the row goes through
+ * stages_invert). */
+static int tab_row_start(const stagecal_vle *vle, const double *xd, const double *xb,
+                         const double *reflux, const stagecal_stages_params *par, int quiet,
+                         stagecal_stages_result *res, size_t j, tab_begin *o)
 {
     invert_start s;
     tl3 tl;
@@ -637,15 +666,23 @@ static int tab_start(const stagecal_vle *vle, const double *xd, const double *xb
         invert_begin(vle, xd[j], xb[j], reflux[j], 1.0, par, quiet, &res[j], &tl, NULL, &s, &rc);
     stepper_free(&s.st);
     if (!go)
-        return rc == STAGECAL_OK && res[j].status != STAGECAL_STAGES_OK ? 0 : -1;
-    L->j = j;
-    L->n = 0;
-    L->x_prev = xd[j];
-    L->m = s.m;
-    L->b = s.b;
-    L->txt = s.txt;
-    L->tprev = s.txd;
-    return 1;
+        return rc == STAGECAL_OK && res[j].status != STAGECAL_STAGES_OK ? TAB_DONE : TAB_REST;
+    tl_put(o->m, s.m);
+    tl_put(o->b, s.b);
+    tl_put(o->txd, s.txd);
+    tl_put(o->txt, s.txt);
+    return TAB_STEPS;
+}
+
+/* The start phase: rows j0 .. j0 + nb − 1, row j0 + i's mark into mark[i], its start into
+ * beg[i] when it steps. */
+static void tab_block_start(const stagecal_vle *vle, size_t j0, size_t nb, const double *xd,
+                            const double *xb, const double *reflux,
+                            const stagecal_stages_params *par, int quiet,
+                            stagecal_stages_result *res, tab_begin *beg, signed char *mark)
+{
+    for (size_t i = 0; i < nb; i++)
+        mark[i] = (signed char)tab_row_start(vle, xd, xb, reflux, par, quiet, res, j0 + i, &beg[i]);
 }
 
 /* vle_locate_y with the bucket's search written without data-dependent branches where the
@@ -714,11 +751,11 @@ int stages_table_xstar_slope(const stagecal_vle *v, double y, double *x, double 
 
 /* One step of lane L: invert_core's loop body with tl on a table at E = 1 (stepper_step's
  * inline x*(y) with its slope, step_tangent with that slope), the same operations in the same
- * order. 0: more steps; 1: the row crossed x_target and res is filled as stages_invert fills
- * it; -1: anything else (a query outside the table, no progress, the step cap or the pinch
- * scan due, a tangent not finite): the row goes through stages_invert. */
+ * order. 0: more steps; 1: the row crossed x_target, *c filled with stepper_crossing's arguments
+ * and the whole steps; -1: anything else (a query outside the table, no progress, the step cap
+ * or the pinch scan due): the row goes through stages_invert. */
 static inline int tab_step(const stagecal_vle *vle, const stagecal_stages_params *par, tab_lane *L,
-                           stagecal_stages_result *res)
+                           tab_cross *c)
 {
     double x_prev = L->x_prev, y = L->m.v * x_prev + L->b.v, xn, s;
     L->n++;
@@ -733,14 +770,14 @@ static inline int tab_step(const stagecal_vle *vle, const stagecal_stages_params
     for (int i = 0; i < TL_N; i++)
         txn.d[i] = (tyn.d[i] - (1.0 - e) * (xn * m.d[i] + b.d[i])) / den;
     if (xn <= L->txt.v) {
-        tl3 f = stepper_crossing(m, b, L->tprev, txn, tyn, L->txt);
-        if (!(isfinite(f.d[TL_XD]) && isfinite(f.d[TL_XB]) && isfinite(f.d[TL_R])))
-            return -1;
-        res->column_stages = (double)(L->n - 1) + f.v;
-        res->stages = res->column_stages + 1.0;
-        res->dstages_dxd = f.d[TL_XD];
-        res->dstages_dxb = f.d[TL_XB];
-        res->dstages_dr = f.d[TL_R];
+        c->i = L->i;
+        c->n = L->n;
+        tl_put(c->m, m);
+        tl_put(c->b, b);
+        tl_put(c->x_prev, L->tprev);
+        tl_put(c->xn, txn);
+        tl_put(c->yn, tyn);
+        tl_put(c->x_target, L->txt);
         return 1;
     }
     if (L->n >= par->max_stages || L->n >= par->pinch_scan_after)
@@ -750,66 +787,123 @@ static inline int tab_step(const stagecal_vle *vle, const stagecal_stages_params
     return 0;
 }
 
-/* stages_invert_many's rows on a table (tab_applies): TAB_LANES rows stepped side by side, a
- * lane taking the next row when its row is done; a row that leaves the plain path goes through
- * stages_invert, so every row's res, rc and error are what stages_invert gives it. Returns the
- * first row's error (err then holds its message), else STAGECAL_OK. */
-static int tab_many(const stagecal_vle *vle, size_t n, const double *xd, const double *xb,
-                    const double *reflux, const stagecal_stages_params *par, int quiet,
-                    stagecal_stages_result *res, int *rc, stagecal_error *err)
+/* The stepping phase: the block's rows marked TAB_STEPS, TAB_LANES at a time, each lane taking
+ * the next such row when its row is done; a row that crosses is marked TAB_CROSSED with its
+ * tab_cross appended to cr (*ncr of them), one that leaves the plain path TAB_REST. */
+static void tab_block_step(const stagecal_vle *vle, const stagecal_stages_params *par, size_t nb,
+                           const tab_begin *beg, signed char *mark, tab_cross *cr, size_t *ncr)
 {
     tab_lane L[TAB_LANES];
-    int busy[TAB_LANES] = {0};
-    size_t next = 0, first_j = n;
-    int first = STAGECAL_OK, live = 0;
-    stagecal_error e1;
+    int busy[TAB_LANES] = {0}, live = 0;
+    size_t next = 0, nc = 0;
     for (;;) {
         for (int k = 0; k < TAB_LANES; k++) {
-            while (!busy[k] && next < n) { /* the lane takes the next row that steps */
-                size_t j = next++;
-                int st = tab_start(vle, xd, xb, reflux, par, quiet, res, j, &L[k]);
-                if (st == 1) {
-                    busy[k] = 1;
-                    live++;
-                    break;
-                }
-                int r = STAGECAL_OK;
-                if (st < 0 &&
-                    (r = stages_invert(vle, xd[j], xb[j], reflux[j], 1.0, par, quiet, &res[j],
-                                       err ? &e1 : NULL)) &&
-                    j < first_j) {
-                    first_j = j, first = r;
-                    if (err)
-                        *err = e1;
-                }
-                if (rc)
-                    rc[j] = r;
+            while (!busy[k] && next < nb) { /* the lane takes the next row that steps */
+                size_t i = next++;
+                if (mark[i] != TAB_STEPS)
+                    continue;
+                L[k].i = i;
+                L[k].n = 0;
+                L[k].x_prev = beg[i].txd[0];
+                L[k].m = tl_get(beg[i].m);
+                L[k].b = tl_get(beg[i].b);
+                L[k].txt = tl_get(beg[i].txt);
+                L[k].tprev = tl_get(beg[i].txd);
+                busy[k] = 1;
+                live++;
             }
         }
         if (!live)
-            return first;
+            break;
         for (int k = 0; k < TAB_LANES; k++) {
             if (!busy[k])
                 continue;
-            int st = tab_step(vle, par, &L[k], &res[L[k].j]);
+            int st = tab_step(vle, par, &L[k], &cr[nc]);
             if (!st)
                 continue;
-            size_t j = L[k].j;
-            int r = STAGECAL_OK;
-            if (st < 0 &&
-                (r = stages_invert(vle, xd[j], xb[j], reflux[j], 1.0, par, quiet, &res[j],
-                                   err ? &e1 : NULL)) &&
-                j < first_j) {
-                first_j = j, first = r;
-                if (err)
-                    *err = e1;
+            if (st > 0) {
+                mark[L[k].i] = TAB_CROSSED;
+                nc++;
+            } else {
+                mark[L[k].i] = TAB_REST;
             }
-            if (rc)
-                rc[j] = r;
             busy[k] = 0;
             live--;
         }
     }
+    *ncr = nc;
+}
+
+/* A crossed row's fraction (stepper_crossing) and result, as invert_core and stages_invert fill
+ * res (rows j0 + c->i of the block starting at res). 1; -1 when a derivative is not finite (the
+ * row goes through stages_invert). */
+static int tab_row_cross(const tab_cross *c, stagecal_stages_result *res)
+{
+    tl3 f = stepper_crossing(tl_get(c->m), tl_get(c->b), tl_get(c->x_prev), tl_get(c->xn),
+                             tl_get(c->yn), tl_get(c->x_target));
+    if (!(isfinite(f.d[TL_XD]) && isfinite(f.d[TL_XB]) && isfinite(f.d[TL_R])))
+        return -1;
+    res->column_stages = (double)(c->n - 1) + f.v;
+    res->stages = res->column_stages + 1.0;
+    res->dstages_dxd = f.d[TL_XD];
+    res->dstages_dxb = f.d[TL_XB];
+    res->dstages_dr = f.d[TL_R];
+    return 1;
+}
+
+/* The crossing phase: the ncr crossed rows of cr, res the block's first row's result. */
+static void tab_block_cross(const tab_cross *cr, size_t ncr, stagecal_stages_result *res,
+                            signed char *mark)
+{
+    for (size_t k = 0; k < ncr; k++)
+        if (tab_row_cross(&cr[k], &res[cr[k].i]) < 0)
+            mark[cr[k].i] = TAB_REST;
+}
+
+/* The block's rows marked TAB_REST through stages_invert; each row's return value into rc (may
+ * be NULL); the first error of all the rows so far into *first (*err then its message). */
+static void tab_block_rest(const stagecal_vle *vle, size_t j0, size_t nb, const double *xd,
+                           const double *xb, const double *reflux,
+                           const stagecal_stages_params *par, int quiet, const signed char *mark,
+                           stagecal_stages_result *res, int *rc, stagecal_error *err, int *first)
+{
+    stagecal_error e1;
+    for (size_t i = 0; i < nb; i++) {
+        size_t j = j0 + i;
+        int r = STAGECAL_OK;
+        if (mark[i] == TAB_REST &&
+            (r = stages_invert(vle, xd[j], xb[j], reflux[j], 1.0, par, quiet, &res[j],
+                               err ? &e1 : NULL)) &&
+            !*first) {
+            *first = r;
+            if (err)
+                *err = e1;
+        }
+        if (rc)
+            rc[j] = r;
+    }
+}
+
+/* stages_invert_many's rows on a table (tab_applies), block by block through the three phases
+ * above; a row that leaves the plain path goes through stages_invert, so every row's res, rc and
+ * error are what stages_invert gives it. Returns the first row's error (err then holds its
+ * message), else STAGECAL_OK. */
+static int tab_many(const stagecal_vle *vle, size_t n, const double *xd, const double *xb,
+                    const double *reflux, const stagecal_stages_params *par, int quiet,
+                    stagecal_stages_result *res, int *rc, stagecal_error *err)
+{
+    tab_begin beg[TAB_BLOCK];
+    tab_cross cr[TAB_BLOCK];
+    signed char mark[TAB_BLOCK];
+    int first = STAGECAL_OK;
+    for (size_t j0 = 0; j0 < n; j0 += TAB_BLOCK) {
+        size_t nb = n - j0 < TAB_BLOCK ? n - j0 : TAB_BLOCK, ncr;
+        tab_block_start(vle, j0, nb, xd, xb, reflux, par, quiet, res, beg, mark);
+        tab_block_step(vle, par, nb, beg, mark, cr, &ncr);
+        tab_block_cross(cr, ncr, res + j0, mark);
+        tab_block_rest(vle, j0, nb, xd, xb, reflux, par, quiet, mark, res, rc, err, &first);
+    }
+    return first;
 }
 
 /* n rows; rc (may be NULL) receives each row's return value. On a table at E_MV = 1 with

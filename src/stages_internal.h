@@ -309,6 +309,24 @@ unsigned stages_alpha_closed4_avx2(double a, const double *xd, const double *xb,
                                    const double *reflux, double cap, int want,
                                    alpha_closed_out o[4]);
 
+/* ---- table rows in blocks (stages.c, tab_many) ----------------------------------------- */
+
+/* Between the phases of stages_invert_many's table rows, tangents travel as plain doubles, four
+ * for a tl3: the value, then ∂/∂xD, ∂/∂xB, ∂/∂R (tl3 has another layout under TL_VECTOR). */
+
+/* A row's start (tab_row_start, invert_begin at E = 1 with tangents): the line m = L/V, b, xD
+ * and x_target. */
+typedef struct {
+    double m[4], b[4], txd[4], txt[4];
+} tab_begin;
+
+/* A row that crossed x_target: its row in the block, whole steps n (the crossing one included)
+ * and stepper_crossing's arguments; the row's column stages are n − 1 + the fraction. */
+typedef struct {
+    size_t i, n;
+    double m[4], b[4], x_prev[4], xn[4], yn[4], x_target[4];
+} tab_cross;
+
 #ifndef TL_VECTOR
 /* Closed-form inverse: the liquid after n (real) stages from x0. */
 double smoker_inverse(const smoker_consts *sc, double x0, double n);
