@@ -5,9 +5,11 @@
  * each lane of a vector operation is the IEEE operation the scalar code does
  * (-ffp-contract=off, and no FMA in this target), so the same doubles, in about two thirds of
  * the time (docs/performance.md, eleventh pass); and four rows side by side, one per lane
- * (stages_alpha_closed4_avx2, for stagecal_stages_invert_many). Elsewhere (not x86-64, not GCC
- * or Clang, or built with -DSTAGECAL_NO_AVX2, the way to test the other path on an AVX2 machine)
- * the fast path stays scalar and rows go one at a time.
+ * (stages_alpha_closed4_avx2, for stagecal_stages_invert_many). Also the crossing step of four
+ * table rows in the lanes (stages_crossing4_avx2, stepper_crossing's doubles, for the crossing
+ * phase of stages.c's tab_many). Elsewhere (not x86-64, not GCC or Clang, or built with
+ * -DSTAGECAL_NO_AVX2, the way to test the other path on an AVX2 machine) the fast path stays
+ * scalar and rows go one at a time.
  *
  * Only the functions of stages_internal.h and the four-row ones below are compiled for AVX2
  * (the headers come first, outside the AVX2 region); stages_have_avx2, which runs on any
@@ -222,6 +224,107 @@ unsigned stages_alpha_closed4_avx2(double a, const double *xdp, const double *xb
     }
     return mask;
 }
+
+/* ---- the crossing of four rows -------------------------------------------------------- */
+
+/* A 4×4 transpose: row j of r in (value, ∂/∂xD, ∂/∂xB, ∂/∂R) order becomes lane j of the four
+ * vectors (and back). Moves only. */
+static inline void v4_transpose(v4d r[4])
+{
+    __m256d t0 = _mm256_unpacklo_pd((__m256d)r[0], (__m256d)r[1]);
+    __m256d t1 = _mm256_unpackhi_pd((__m256d)r[0], (__m256d)r[1]);
+    __m256d t2 = _mm256_unpacklo_pd((__m256d)r[2], (__m256d)r[3]);
+    __m256d t3 = _mm256_unpackhi_pd((__m256d)r[2], (__m256d)r[3]);
+    r[0] = (v4d)_mm256_permute2f128_pd(t0, t2, 0x20);
+    r[1] = (v4d)_mm256_permute2f128_pd(t1, t3, 0x20);
+    r[2] = (v4d)_mm256_permute2f128_pd(t0, t2, 0x31);
+    r[3] = (v4d)_mm256_permute2f128_pd(t1, t3, 0x31);
+}
+
+/* The tl4 of one argument of four rows: row j's four doubles at p[j]. */
+static inline tl4 t4_rows(const double *p0, const double *p1, const double *p2, const double *p3)
+{
+    v4d r[4] = {(v4d)_mm256_loadu_pd(p0), (v4d)_mm256_loadu_pd(p1), (v4d)_mm256_loadu_pd(p2),
+                (v4d)_mm256_loadu_pd(p3)};
+    v4_transpose(r);
+    tl4 x = {r[0], {r[1], r[2], r[3]}};
+    return x;
+}
+
+#define T4_ROWS(c, arg) t4_rows((c)[0].arg, (c)[1].arg, (c)[2].arg, (c)[3].arg)
+
+/* a where on, else b, lane by lane (bit for bit). */
+static inline v4d v4_pick(v4m on, v4d a, v4d b)
+{
+    return (v4d)(((v4m)a & on) | ((v4m)b & ~on));
+}
+
+/* glibc's log of a.v where on1 and of b.v where on2, lane by lane, 1 elsewhere (as t4_log,
+ * the eight calls in one loop: the vectors live across the calls are stored once). */
+static inline void t4_log2(tl4 a, v4m on1, tl4 b, v4m on2, tl4 *la, tl4 *lb)
+{
+    double in[8], out[8];
+    _mm256_storeu_pd(in, (__m256d)v4_pick(on1, a.v, v4_set1(1.0)));
+    _mm256_storeu_pd(in + 4, (__m256d)v4_pick(on2, b.v, v4_set1(1.0)));
+    for (int j = 0; j < 8; j++)
+        out[j] = log(in[j]);
+    la->v = (v4d)_mm256_loadu_pd(out);
+    lb->v = (v4d)_mm256_loadu_pd(out + 4);
+    for (int i = 0; i < TL_N; i++) {
+        la->d[i] = a.d[i] / a.v;
+        lb->d[i] = b.d[i] / b.v;
+    }
+}
+
+/* stepper_crossing (stages_step.c) lane by lane: α_loc, smoker_setup and smoker_count
+ * (stages_internal.h) with each tl3 operation's IEEE operations in their order, so each lane
+ * the scalar doubles. Both sides of each branch are computed in every lane and blended: a lane
+ * where smoker_setup rejects the constants or x_target ≤ k takes the linear fraction, as does
+ * a lane whose count is not finite, derivatives and all; then the value clamped to [0, 1]. The
+ * count's log does not depend on the setup's ln factor, so both logs are taken in one loop,
+ * each of 1 in a lane where the scalar code has returned before it (a lane whose ln factor
+ * then fails its test has its count's log taken and not used). */
+void stages_crossing4_avx2(const tab_cross c[4], double out[4][4])
+{
+    tl4 m = T4_ROWS(c, m), b = T4_ROWS(c, b), x_prev = T4_ROWS(c, x_prev);
+    tl4 xn = T4_ROWS(c, xn), yn = T4_ROWS(c, yn), x_target = T4_ROWS(c, x_target);
+    tl4 one = t4_const(v4_set1(1.0));
+    tl4 alpha = t4_div(t4_mul(yn, t4_sub(one, xn)), t4_mul(xn, t4_sub(one, yn)));
+    /* smoker_setup(alpha, m, b) */
+    tl4 am1 = t4_sub(alpha, one);
+    tl4 a2 = t4_mul(m, am1);
+    tl4 a1 = t4_sub(t4_add(m, t4_mul(b, am1)), alpha);
+    tl4 disc = t4_sub(t4_mul(a1, a1), t4_mul(t4_scale(4.0, a2), b));
+    v4m on = (alpha.v > 1.0) & (m.v > 0.0) & (disc.v >= 0.0);
+    tl4 k = t4_div(t4_scale(2.0, b), t4_add(t4_scale(-1.0, a1), t4_sqrt(disc)));
+    tl4 cc = t4_add(one, t4_mul(am1, k));
+    tl4 mcc = t4_mul(t4_mul(m, cc), cc);
+    tl4 den = t4_sub(alpha, mcc);
+    on &= den.v > 0.0;
+    tl4 beta = t4_div(t4_mul(t4_mul(m, cc), am1), den);
+    v4m on_count = on & (x_target.v > k.v);
+    /* smoker_count(&sc, x_prev, x_target), up to its log */
+    tl4 u0 = t4_div(one, t4_sub(x_prev, k)), un = t4_div(one, t4_sub(x_target, k));
+    tl4 ratio = t4_div(t4_sub(un, beta), t4_sub(u0, beta)), lna, lr;
+    t4_log2(t4_div(alpha, mcc), on, ratio, on_count, &lna, &lr);
+    /* smoker_setup's last test, then the count */
+    on_count &= (lna.v > 0.0) & v4_finite(lna.v) & v4_finite(beta.v);
+    tl4 cnt = t4_div(lr, lna);
+    on_count &= v4_finite(cnt.v);
+    /* the linear fraction where the count is not taken (α_loc within rounding of 1) */
+    tl4 lin = t4_div(t4_sub(x_prev, x_target), t4_sub(x_prev, xn));
+    tl4 f;
+    f.v = v4_pick(on_count, cnt.v, lin.v);
+    for (int i = 0; i < TL_N; i++)
+        f.d[i] = v4_pick(on_count, cnt.d[i], lin.d[i]);
+    v4m below = f.v < 0.0;
+    v4m above = f.v > 1.0;
+    f.v = v4_pick(below, v4_set1(0.0), v4_pick(above, v4_set1(1.0), f.v));
+    v4d r[4] = {f.v, f.d[0], f.d[1], f.d[2]};
+    v4_transpose(r);
+    for (int j = 0; j < 4; j++)
+        _mm256_storeu_pd(out[j], (__m256d)r[j]);
+}
 #endif
 
 #if defined(TL_VECTOR) && defined(__clang__)
@@ -249,6 +352,11 @@ unsigned stages_alpha_closed4_avx2(double a, const double *xd, const double *xb,
 {
     (void)a, (void)xd, (void)xb, (void)reflux, (void)cap, (void)want, (void)o;
     return 0;
+}
+
+void stages_crossing4_avx2(const tab_cross c[4], double f[4][4])
+{
+    (void)c, (void)f;
 }
 
 int stages_have_avx2(void)

@@ -327,6 +327,14 @@ typedef struct {
     double m[4], b[4], x_prev[4], xn[4], yn[4], x_target[4];
 } tab_cross;
 
+/* stepper_crossing of the four crossed rows c[0..3] (their arguments, plain doubles): f[j] its
+ * value, ∂/∂xD, ∂/∂xB, ∂/∂R for c[j], the same doubles. With avx2 set (the caller's
+ * stages_have_avx2(), checked once) the four rows in the AVX2 lanes (stages_crossing4_avx2),
+ * else four stepper_crossing calls (stages_step.c). */
+void stepper_crossing4(const tab_cross c[4], double f[4][4], int avx2);
+/* The four-lane crossing (stages_avx2.c); call only where stages_have_avx2(). */
+void stages_crossing4_avx2(const tab_cross c[4], double f[4][4]);
+
 #ifndef TL_VECTOR
 /* Closed-form inverse: the liquid after n (real) stages from x0. */
 double smoker_inverse(const smoker_consts *sc, double x0, double n);

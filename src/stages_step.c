@@ -226,6 +226,27 @@ tl3 stepper_crossing(tl3 m, tl3 b, tl3 x_prev, tl3 xn, tl3 yn, tl3 x_target)
     return f;
 }
 
+static tl3 tl_of(const double *o)
+{
+    tl3 r = {o[0], {o[1], o[2], o[3]}};
+    return r;
+}
+
+void stepper_crossing4(const tab_cross c[4], double f[4][4], int avx2)
+{
+    if (avx2) {
+        stages_crossing4_avx2(c, f);
+        return;
+    }
+    for (int j = 0; j < 4; j++) {
+        tl3 r = stepper_crossing(tl_of(c[j].m), tl_of(c[j].b), tl_of(c[j].x_prev), tl_of(c[j].xn),
+                                 tl_of(c[j].yn), tl_of(c[j].x_target));
+        f[j][0] = r.v;
+        for (int i = 0; i < TL_N; i++)
+            f[j][1 + i] = r.d[i];
+    }
+}
+
 int stepper_init(stepper *st, const stagecal_vle *vle, const stagecal_stages_params *par, double xd,
                  double reflux, double e, stagecal_error *err)
 {
