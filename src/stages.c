@@ -602,7 +602,8 @@ unsigned stages_invert4_fast(const stagecal_vle *vle, const double xd[4], const 
  *  - stepping (tab_block_step, tab_step): the rows that step, TAB_LANES side by side in one loop,
  *    a lane taking the block's next row when its row is done; a row that crosses x_target
  *    leaves stepper_crossing's arguments in a tab_cross;
- *  - crossing (tab_block_cross, tab_row_cross): the crossed rows' fractions and results;
+ *  - crossing (tab_block_cross, stepper_crossing4): the crossed rows' fractions, four at a time,
+ *    and results (tab_row_result);
  * then the rows marked on the way go through stages_invert (tab_block_rest).
  * Each row's stepping is one chain of dependent operations (y → the table's x*(y) → the next y,
  * ~110 cycles a stage), so one row at a time leaves the core idle; TAB_LANES rows in one loop
@@ -834,30 +835,42 @@ static void tab_block_step(const stagecal_vle *vle, const stagecal_stages_params
     *ncr = nc;
 }
 
-/* A crossed row's fraction (stepper_crossing) and result, as invert_core and stages_invert fill
- * res (rows j0 + c->i of the block starting at res). 1; -1 when a derivative is not finite (the
- * row goes through stages_invert). */
-static int tab_row_cross(const tab_cross *c, stagecal_stages_result *res)
+/* A crossed row's result from its fraction f (stepper_crossing's value, ∂/∂xD, ∂/∂xB, ∂/∂R), as
+ * invert_core and stages_invert fill res (rows j0 + c->i of the block starting at res). 1; -1
+ * when a derivative is not finite (the row goes through stages_invert). */
+static int tab_row_result(const tab_cross *c, const double f[4], stagecal_stages_result *res)
 {
-    tl3 f = stepper_crossing(tl_get(c->m), tl_get(c->b), tl_get(c->x_prev), tl_get(c->xn),
-                             tl_get(c->yn), tl_get(c->x_target));
-    if (!(isfinite(f.d[TL_XD]) && isfinite(f.d[TL_XB]) && isfinite(f.d[TL_R])))
+    if (!(isfinite(f[1 + TL_XD]) && isfinite(f[1 + TL_XB]) && isfinite(f[1 + TL_R])))
         return -1;
-    res->column_stages = (double)(c->n - 1) + f.v;
+    res->column_stages = (double)(c->n - 1) + f[0];
     res->stages = res->column_stages + 1.0;
-    res->dstages_dxd = f.d[TL_XD];
-    res->dstages_dxb = f.d[TL_XB];
-    res->dstages_dr = f.d[TL_R];
+    res->dstages_dxd = f[1 + TL_XD];
+    res->dstages_dxb = f[1 + TL_XB];
+    res->dstages_dr = f[1 + TL_R];
     return 1;
 }
 
-/* The crossing phase: the ncr crossed rows of cr, res the block's first row's result. */
+/* The crossing phase: the ncr crossed rows of cr, res the block's first row's result. The
+ * fractions four rows at a time (stepper_crossing4: the AVX2 lanes where avx2, the caller's
+ * stages_have_avx2()), the last ncr mod 4 one at a time (stepper_crossing); the same doubles. */
 static void tab_block_cross(const tab_cross *cr, size_t ncr, stagecal_stages_result *res,
-                            signed char *mark)
+                            signed char *mark, int avx2)
 {
-    for (size_t k = 0; k < ncr; k++)
-        if (tab_row_cross(&cr[k], &res[cr[k].i]) < 0)
-            mark[cr[k].i] = TAB_REST;
+    double f[4][4];
+    size_t k = 0;
+    for (; k + 4 <= ncr; k += 4) {
+        stepper_crossing4(cr + k, f, avx2);
+        for (size_t j = k; j < k + 4; j++)
+            if (tab_row_result(&cr[j], f[j - k], &res[cr[j].i]) < 0)
+                mark[cr[j].i] = TAB_REST;
+    }
+    for (; k < ncr; k++) {
+        const tab_cross *c = &cr[k];
+        tl_put(f[0], stepper_crossing(tl_get(c->m), tl_get(c->b), tl_get(c->x_prev), tl_get(c->xn),
+                                      tl_get(c->yn), tl_get(c->x_target)));
+        if (tab_row_result(c, f[0], &res[c->i]) < 0)
+            mark[c->i] = TAB_REST;
+    }
 }
 
 /* The block's rows marked TAB_REST through stages_invert; each row's return value into rc (may
@@ -895,12 +908,12 @@ static int tab_many(const stagecal_vle *vle, size_t n, const double *xd, const d
     tab_begin beg[TAB_BLOCK];
     tab_cross cr[TAB_BLOCK];
     signed char mark[TAB_BLOCK];
-    int first = STAGECAL_OK;
+    int first = STAGECAL_OK, avx2 = stages_have_avx2();
     for (size_t j0 = 0; j0 < n; j0 += TAB_BLOCK) {
         size_t nb = n - j0 < TAB_BLOCK ? n - j0 : TAB_BLOCK, ncr;
         tab_block_start(vle, j0, nb, xd, xb, reflux, par, quiet, res, beg, mark);
         tab_block_step(vle, par, nb, beg, mark, cr, &ncr);
-        tab_block_cross(cr, ncr, res + j0, mark);
+        tab_block_cross(cr, ncr, res + j0, mark, avx2);
         tab_block_rest(vle, j0, nb, xd, xb, reflux, par, quiet, mark, res, rc, err, &first);
     }
     return first;
