@@ -652,38 +652,58 @@ int stages_many_by_table(const stagecal_vle *vle, double murphree)
     return vle && tab_applies(vle, murphree, &p);
 }
 
-/* Starts row j: invert_begin as invert_core calls it. TAB_STEPS with *o filled when the row
- * steps; TAB_DONE when res[j] is final with return value STAGECAL_OK (invert_core and
- * stages_invert stop there with a status that is not ok); else TAB_REST (the row goes through
- * stages_invert). */
-static int tab_row_start(const stagecal_vle *vle, const double *xd, const double *xb,
-                         const double *reflux, const stagecal_stages_params *par, int quiet,
-                         stagecal_stages_result *res, size_t j, tab_begin *o)
+/* invert_begin at E = 1 with tangents, as invert_core calls it (stages_internal.h). */
+int stages_table_begin(const stagecal_vle *vle, double xd, double xb, double reflux,
+                       const stagecal_stages_params *par, int quiet, stagecal_stages_result *res,
+                       tab_begin *o, int *rc)
 {
     invert_start s;
     tl3 tl;
-    int rc;
-    int go =
-        invert_begin(vle, xd[j], xb[j], reflux[j], 1.0, par, quiet, &res[j], &tl, NULL, &s, &rc);
+    int go = invert_begin(vle, xd, xb, reflux, 1.0, par, quiet, res, &tl, NULL, &s, rc);
     stepper_free(&s.st);
     if (!go)
-        return rc == STAGECAL_OK && res[j].status != STAGECAL_STAGES_OK ? TAB_DONE : TAB_REST;
+        return 0;
     tl_put(o->m, s.m);
     tl_put(o->b, s.b);
     tl_put(o->txd, s.txd);
     tl_put(o->txt, s.txt);
+    return 1;
+}
+
+/* Starts row j: stages_start1 (when plain) or invert_begin. TAB_STEPS with *o filled when the
+ * row steps; TAB_DONE when res[j] is final with return value STAGECAL_OK (invert_core and
+ * stages_invert stop there with a status that is not ok); else TAB_REST (stages_invert). */
+static int tab_row_start(const stages_start_ctx *c, const double *xd, const double *xb,
+                         const double *reflux, const stagecal_stages_params *par, int quiet,
+                         stagecal_stages_result *res, size_t j, tab_begin *o, int plain)
+{
+    int rc;
+    if (plain && stages_start1(c, xd[j], xb[j], reflux[j], o, &res[j]))
+        return TAB_STEPS;
+    if (!stages_table_begin(c->vle, xd[j], xb[j], reflux[j], par, quiet, &res[j], o, &rc))
+        return rc == STAGECAL_OK && res[j].status != STAGECAL_STAGES_OK ? TAB_DONE : TAB_REST;
     return TAB_STEPS;
 }
 
 /* The start phase: rows j0 .. j0 + nb − 1, row j0 + i's mark into mark[i], its start into
- * beg[i] when it steps. */
-static void tab_block_start(const stagecal_vle *vle, size_t j0, size_t nb, const double *xd,
+ * beg[i] when it steps; four rows at a time (stages_start4), the rows it leaves one by one. */
+static void tab_block_start(const stages_start_ctx *c, size_t j0, size_t nb, const double *xd,
                             const double *xb, const double *reflux,
                             const stagecal_stages_params *par, int quiet,
                             stagecal_stages_result *res, tab_begin *beg, signed char *mark)
 {
-    for (size_t i = 0; i < nb; i++)
-        mark[i] = (signed char)tab_row_start(vle, xd, xb, reflux, par, quiet, res, j0 + i, &beg[i]);
+    size_t i = 0;
+    for (; i + 4 <= nb; i += 4) {
+        size_t j = j0 + i;
+        unsigned on = stages_start4(c, xd + j, xb + j, reflux + j, &beg[i], &res[j]);
+        for (size_t k = 0; k < 4; k++)
+            mark[i + k] = on >> k & 1u ? TAB_STEPS
+                                       : (signed char)tab_row_start(c, xd, xb, reflux, par, quiet,
+                                                                    res, j + k, &beg[i + k], 0);
+    }
+    for (; i < nb; i++)
+        mark[i] =
+            (signed char)tab_row_start(c, xd, xb, reflux, par, quiet, res, j0 + i, &beg[i], 1);
 }
 
 /* vle_locate_y with the bucket's search written without data-dependent branches where the
@@ -909,9 +929,11 @@ static int tab_many(const stagecal_vle *vle, size_t n, const double *xd, const d
     tab_cross cr[TAB_BLOCK];
     signed char mark[TAB_BLOCK];
     int first = STAGECAL_OK, avx2 = stages_have_avx2();
+    stages_start_ctx c;
+    stages_start_prep(vle, par, &c);
     for (size_t j0 = 0; j0 < n; j0 += TAB_BLOCK) {
         size_t nb = n - j0 < TAB_BLOCK ? n - j0 : TAB_BLOCK, ncr;
-        tab_block_start(vle, j0, nb, xd, xb, reflux, par, quiet, res, beg, mark);
+        tab_block_start(&c, j0, nb, xd, xb, reflux, par, quiet, res, beg, mark);
         tab_block_step(vle, par, nb, beg, mark, cr, &ncr);
         tab_block_cross(cr, ncr, res + j0, mark, avx2);
         tab_block_rest(vle, j0, nb, xd, xb, reflux, par, quiet, mark, res, rc, err, &first);

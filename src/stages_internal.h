@@ -335,6 +335,39 @@ void stepper_crossing4(const tab_cross c[4], double f[4][4], int avx2);
 /* The four-lane crossing (stages_avx2.c); call only where stages_have_avx2(). */
 void stages_crossing4_avx2(const tab_cross c[4], double f[4][4]);
 
+/* ---- stages_start_avx2.c: the start of table rows ------------------------------------- */
+
+/* What the start of a batch's table rows needs of the model and the parameters, prepared once
+ * (stages_start_prep) for a model stagecal_stages_invert_many steps side by side (a Hermite
+ * table with its buckets, at E_MV = 1, with tangents). */
+typedef struct {
+    const stagecal_vle *vle;
+    double x_max, az_lo, top_tol; /* stagecal_vle_x_max, the least azeotrope (or ∞), top_tol */
+    long long nb, n2;             /* the table's buckets and nodes − 2 */
+    int avx2;                     /* the four-lane path is taken */
+} stages_start_ctx;
+
+void stages_start_prep(const stagecal_vle *vle, const stagecal_stages_params *par,
+                       stages_start_ctx *c);
+/* One row: 1 when the row is plain and steps, with *o filled (invert_begin's doubles) and *res
+ * as invert_begin leaves it (all zero but status ok, lv = m[0], x_target = txt[0]); 0 (*o and
+ * *res untouched) when the row needs invert_begin (it may still step: R = ∞). */
+int stages_start1(const stages_start_ctx *c, double xd, double xb, double reflux, tab_begin *o,
+                  stagecal_stages_result *res);
+/* Four rows (xd[j], xb[j], reflux[j]), j = 0..3, in the AVX2 lanes (four stages_start1 where
+ * there is no AVX2): bit j set when row j steps, o[j] and res[j] then as stages_start1 fills
+ * them; clear when row j needs invert_begin (o[j] then unspecified, res[j] untouched). Besides
+ * stages_start1's rows, a lane also leaves for a table query on an uncommon branch (x at a node, a
+ * bucket past the last, a search range of more than four nodes). */
+unsigned stages_start4(const stages_start_ctx *c, const double *xd, const double *xb,
+                       const double *reflux, tab_begin o[4], stagecal_stages_result res[4]);
+/* invert_begin on a table at E = 1 with tangents (stages.c), for the rows stages_start1/4 leave
+ * and as the tests' reference: 1 when the row steps, *o then filled; else 0 with res and *rc as
+ * invert_begin leaves them. */
+int stages_table_begin(const stagecal_vle *vle, double xd, double xb, double reflux,
+                       const stagecal_stages_params *par, int quiet, stagecal_stages_result *res,
+                       tab_begin *o, int *rc);
+
 #ifndef TL_VECTOR
 /* Closed-form inverse: the liquid after n (real) stages from x0. */
 double smoker_inverse(const smoker_consts *sc, double x0, double n);

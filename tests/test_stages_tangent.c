@@ -21,6 +21,7 @@
 #include <cmocka.h>
 
 #include <gsl/gsl_errno.h>
+#include <gsl/gsl_randist.h>
 #include <gsl/gsl_rng.h>
 
 #include "stagecal/column.h"
@@ -887,6 +888,237 @@ static void tangent_runlog_rows_same_as_per_row(void **state)
     stagecal_vle_free(col.system.vle);
 }
 
+/* The start of the table rows (stages_start_avx2.c): why a row does not step plainly, from
+ * what the reference (invert_begin, stages_table_begin) does with it and the table's buckets. */
+enum {
+    SC_PLAIN, /* steps; every table query on the common branch */
+    SC_INPUT, /* reject_inputs: NaN, out of range, xB ≥ xD, R ≤ 0, an azeotrope at or below xD */
+    SC_RINF,  /* steps at R = ∞ */
+    SC_ABOVE, /* x_target above xD + top_tol: invalid */
+    SC_TOP,   /* x_target in [xD, xD + top_tol]: one stage, the pot */
+    SC_LOW,   /* x_target ≤ 0: pinch */
+    SC_PINCH, /* the line at or above the curve at x_target: pinch */
+    SC_WIDE,  /* steps; xB's or x_target's bucket searches more than four nodes */
+    SC_NCAT
+};
+
+/* The bucket of x in [0, 1) searches more than four nodes (vle_locate_x's range). */
+static int start_wide(const stagecal_vle *v, double x)
+{
+    size_t b = (size_t)(x * (double)v->nb);
+    return b < v->nb && v->bx[b + 1] + 1 - v->bx[b] > 4;
+}
+
+/* x at the next node of the interval vle_locate_x finds (the node value's branch). */
+static int start_node(const stagecal_vle *v, double x)
+{
+    return x >= 0.0 && x < 1.0 && x == v->xs[vle_locate_x(v, x) + 1];
+}
+
+/* One row through the reference, stages_start1 and stages_start4 (in lane row % 4 of four
+ * copies of the row's neighbours): the bits and, for a row taken, every double. Returns the
+ * row's category. */
+static int start_check(const stages_start_ctx *c, const stagecal_stages_params *par,
+                       const double *xd, const double *xb, const double *r, size_t i, size_t *nodes)
+{
+    const stagecal_vle *v = c->vle;
+    stagecal_stages_result res;
+    memset(&res, 0x55, sizeof res);
+    tab_begin ref, o1, o4[4];
+    int rc = -1;
+    int go = stages_table_begin(v, xd[i], xb[i], r[i], par, 0, &res, &ref, &rc);
+    int cat;
+    if (go) {
+        assert_int_equal(rc, STAGECAL_OK);
+        assert_int_equal(res.status, STAGECAL_STAGES_OK);
+        /* invert_begin leaves all zero but status, lv and x_target */
+        const double rest[5] = {res.stages, res.column_stages, res.dstages_dxd, res.dstages_dxb,
+                                res.dstages_dr};
+        const double zeros[5] = {0.0, 0.0, 0.0, 0.0, 0.0};
+        assert_memory_equal(rest, zeros, sizeof rest);
+        assert_memory_equal(&res.lv, &ref.m[0], sizeof res.lv);
+        assert_memory_equal(&res.x_target, &ref.txt[0], sizeof res.x_target);
+        assert_string_equal(res.reason, "");
+        if (isinf(r[i]))
+            cat = SC_RINF;
+        else if (start_wide(v, xb[i]) || start_wide(v, ref.txt[0]))
+            cat = SC_WIDE;
+        else
+            cat = SC_PLAIN;
+        *nodes += start_node(v, xb[i]) || start_node(v, ref.txt[0]);
+    } else {
+        assert_int_equal(rc, STAGECAL_OK);
+        if (strstr(res.reason, "pot alone out-performs"))
+            cat = SC_ABOVE;
+        else if (res.status == STAGECAL_STAGES_OK)
+            cat = SC_TOP, assert_true(res.stages == 1.0);
+        else if (strstr(res.reason, "reaches the pot vapour"))
+            cat = SC_LOW;
+        else if (strstr(res.reason, "meets the equilibrium curve above"))
+            cat = SC_PINCH;
+        else
+            cat = SC_INPUT;
+    }
+    int want1 = go && !isinf(r[i]);
+    int want4 =
+        c->avx2 ? want1 && cat == SC_PLAIN && !start_node(v, xb[i]) && !start_node(v, ref.txt[0])
+                : want1;
+    /* each taken row's doubles and result the reference's, bit for bit (the result's bytes:
+     * invert_begin zeroes it first); a row not taken leaves its result untouched */
+    stagecal_stages_result r1, r4[4], untouched;
+    memset(&r1, 0xaa, sizeof r1);
+    memset(r4, 0xaa, sizeof r4);
+    memset(&untouched, 0xaa, sizeof untouched);
+    assert_int_equal(stages_start1(c, xd[i], xb[i], r[i], &o1, &r1), want1);
+    assert_memory_equal(&r1, want1 ? &res : &untouched, sizeof r1);
+    if (want1)
+        assert_memory_equal(&o1, &ref, sizeof ref);
+    size_t i0 = i - i % 4;
+    unsigned on = stages_start4(c, xd + i0, xb + i0, r + i0, o4, r4);
+    assert_int_equal(on >> (i % 4) & 1u, (unsigned)want4);
+    assert_memory_equal(&r4[i % 4], want4 ? &res : &untouched, sizeof r1);
+    if (want4)
+        assert_memory_equal(&o4[i % 4], &ref, sizeof ref);
+    return cat;
+}
+
+/* Rows whose x_target lands within rounding of xD (xB = x*(xD), so y*(xB) = xD, moved by up to
+ * 40 ulps): x_target just above xD + top_tol, in [xD, xD + top_tol], just below. */
+static void start_top_rows(gsl_rng *g, const stagecal_vle *v, size_t n, double *xd, double *xb,
+                           double *r)
+{
+    for (size_t i = 0; i < n; i++) {
+        xd[i] = 0.4 + 0.45 * gsl_rng_uniform(g);
+        r[i] = 0.5 + 8.0 * gsl_rng_uniform(g);
+        double x = NAN;
+        stagecal_vle_xstar(v, xd[i], &x);
+        int k = (int)(gsl_rng_uniform_int(g, 81)) - 40;
+        for (; k > 0; k--)
+            x = nextafter(x, 1.0);
+        for (; k < 0; k++)
+            x = nextafter(x, 0.0);
+        xb[i] = x;
+    }
+}
+
+/* The start of the table rows four at a time (stages_start4: the AVX2 lanes, gathers for the
+ * table) and one at a time (stages_start1) gives exactly what invert_begin gives a row that steps
+ * — m, b, xD, x_target with their tangents, and the result invert_begin leaves (checked against
+ * stages_table_begin, the batch's reference) — and takes exactly the rows that step plainly: on
+ * NRTL ethanol–water at 101.325 kPa (the bench's model), a table of 9 invented points and one of
+ * 26 invented points with 13 crowded into x in [0.3, 0.306] (a bucket of more than four nodes),
+ * about 2.6·10^5 rows (four at a time): the bench's 10^5 rows (bench_invert.c's generator, GSL
+ * mt19937, seed 1), table_row's (seed 43) with its edge cases, rows with x_target within rounding
+ * of xD, and every row of the demo logs (xD, xB, R) on each model; and stagecal_stages_invert_many
+ * on them gives what stagecal_stages_invert gives each row. Every category of start_check is hit
+ * (counted and asserted); x at a node (the table query's other branch) is not reached below x = 1
+ * (the buckets end at the node below x), counted and kept out. Tolerance: none (each lane is the
+ * scalar IEEE operation; -ffp-contract=off). Source: invert_begin, the per-row path (an
+ * equivalence, no outside source). Mutations of stages_start_avx2.c that fail here: the slope's
+ * 3.0 * s * g.c3 as s * (3.0 * g.c3), dropping ~(xt >= xd) or the bucket width test, the pinch
+ * test as < instead of <=. */
+static void tangent_table_start_same_bits(void **state)
+{
+    (void)state;
+    const stagecal_antoine ew[2] = {{5.24677, 1598.673, -46.424, 292.77, 366.63},
+                                    {5.08354, 1663.125, -45.622, 344.0, 373.0}};
+    const double p[5] = {-0.8009, 246.18, 3.4578, -586.0809, 0.3};
+    const double tx[9] = {0.05, 0.1, 0.2, 0.35, 0.5, 0.65, 0.8, 0.9, 0.97};
+    const double ty[9] = {0.15, 0.26, 0.43, 0.6, 0.72, 0.82, 0.9, 0.95, 0.985};
+    double cx[26], cy[26];
+    for (int k = 0; k < 26; k++) { /* α = 2.5's curve; 13 nodes in [0.3, 0.306] */
+        double x = k < 5    ? 0.05 + 0.06 * k
+                   : k < 18 ? 0.3 + 0.0005 * (k - 5)
+                            : 0.35 + 0.08 * (k - 18);
+        cx[k] = x;
+        cy[k] = 2.5 * x / (1.0 + 1.5 * x);
+    }
+    stagecal_vle *models[3] = {
+        stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, p, 5, 101325.0, NULL, NULL),
+        stagecal_vle_alloc_table(tx, ty, NULL, 9, NULL),
+        stagecal_vle_alloc_table(cx, cy, NULL, 26, NULL)};
+    gsl_rng *g = gsl_rng_alloc(gsl_rng_mt19937);
+    assert_non_null(g);
+    size_t cap = 100000 + 60000 + 8000 + 6000;
+    double *xd = malloc(cap * sizeof *xd), *xb = malloc(cap * sizeof *xb),
+           *r = malloc(cap * sizeof *r);
+    stagecal_stages_result *many = malloc(cap * sizeof *many);
+    assert_true(xd && xb && r && many);
+    size_t count[SC_NCAT] = {0}, nodes = 0, total = 0;
+    for (int im = 0; im < 3; im++) {
+        stagecal_vle *v = models[im];
+        assert_non_null(v);
+        assert_int_equal(stages_many_by_table(v, 1.0), 1);
+        size_t n = 0;
+        if (im == 0) { /* bench_invert.c's rows */
+            gsl_rng_set(g, 1);
+            for (size_t i = 0; i < 100000; i++, n++) {
+                double d = 0.80 - 0.10 * (double)(i % 1000) / 1000.0, b = NAN;
+                size_t len;
+                int status;
+                stagecal_stages_step(v, d, 4.0, 5.0, 1.0, NULL, &b, NULL, 0, &len, &status, NULL);
+                xd[n] = d + gsl_ran_gaussian(g, 0.002);
+                xb[n] = b + gsl_ran_gaussian(g, 0.005);
+                r[n] = 4.0;
+            }
+        }
+        gsl_rng_set(g, 43);
+        for (size_t i = 0; i < (im == 0 ? 60000u : 30000u); i++, n++)
+            table_row(g, v, i, &xd[n], &xb[n], &r[n]);
+        start_top_rows(g, v, 8000, xd + n, xb + n, r + n);
+        n += 8000;
+        for (int year = 2025; year <= 2026; year++) /* the demo logs' rows */
+            for (int month = 1; month <= 12; month++) {
+                char path[512], line[1024];
+                snprintf(path, sizeof path, "%s/demo/logs/%d-%02d.csv", STAGECAL_DATASETS, year,
+                         month);
+                FILE *f = fopen(path, "r");
+                if (!f)
+                    continue;
+                assert_non_null(fgets(line, sizeof line, f));
+                int ixd = header_index(line, "xD"), ixb = header_index(line, "xB"),
+                    ir = header_index(line, "R");
+                while (n < cap && fgets(line, sizeof line, f)) {
+                    xd[n] = cell(line, ixd), xb[n] = cell(line, ixb), r[n] = cell(line, ir);
+                    n++;
+                }
+                fclose(f);
+            }
+        stagecal_stages_params par = stagecal_stages_default_params();
+        par.want_sensitivities = 1;
+        stages_start_ctx c;
+        stages_start_prep(v, &par, &c);
+        size_t n4 = n - n % 4;
+        for (size_t i = 0; i < n4; i++)
+            count[start_check(&c, &par, xd, xb, r, i, &nodes)]++;
+        total += n4;
+        /* the batch against the per-row call */
+        stagecal_error em;
+        memset(many, 0xaa, n * sizeof *many);
+        int rm = stagecal_stages_invert_many(v, n, xd, xb, r, 1.0, &par, many, &em);
+        assert_int_equal(rm, STAGECAL_OK);
+        for (size_t i = 0; i < n; i++) {
+            stagecal_stages_result one;
+            assert_int_equal(stagecal_stages_invert(v, xd[i], xb[i], r[i], 1.0, &par, &one, NULL),
+                             STAGECAL_OK);
+            assert_same_result(&one, &many[i]);
+        }
+    }
+    print_message("table start: %zu rows; plain %zu, inputs %zu, R = inf %zu, x_target above xD "
+                  "%zu, at xD %zu, <= 0 %zu, pinch %zu, wide bucket %zu; at a node %zu\n",
+                  total, count[SC_PLAIN], count[SC_INPUT], count[SC_RINF], count[SC_ABOVE],
+                  count[SC_TOP], count[SC_LOW], count[SC_PINCH], count[SC_WIDE], nodes);
+    assert_true(total >= 100000);
+    for (int k = 0; k < SC_NCAT; k++)
+        assert_true(count[k] >= 20);
+    assert_true(count[SC_PLAIN] > total / 2);
+    assert_int_equal(nodes, 0);
+    for (int im = 0; im < 3; im++)
+        stagecal_vle_free(models[im]);
+    free(xd), free(xb), free(r), free(many);
+    gsl_rng_free(g);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -901,6 +1133,7 @@ int main(void)
         cmocka_unit_test(tangent_runlog_rows_same_as_per_row),
         cmocka_unit_test(tangent_table_rows_same_as_per_row),
         cmocka_unit_test(tangent_table_inverse_same_bits),
+        cmocka_unit_test(tangent_table_start_same_bits),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }
