@@ -309,7 +309,8 @@ unsigned stages_alpha_closed4_avx2(double a, const double *xd, const double *xb,
                                    const double *reflux, double cap, int want,
                                    alpha_closed_out o[4]);
 
-/* ---- table rows in blocks (stages.c, tab_many) ----------------------------------------- */
+/* ---- table rows in blocks (stages_tab.c, stages_tab_many)
+ * ----------------------------------------- */
 
 /* Between the phases of stages_invert_many's table rows, tangents travel as plain doubles, four
  * for a tl3: the value, then ∂/∂xD, ∂/∂xB, ∂/∂R (tl3 has another layout under TL_VECTOR). */
@@ -319,6 +320,10 @@ unsigned stages_alpha_closed4_avx2(double a, const double *xd, const double *xb,
 typedef struct {
     double m[4], b[4], txd[4], txt[4];
 } tab_begin;
+
+/* A row's mark in a block: done (res final, return value STAGECAL_OK), stepping, crossed (its
+ * tab_cross filled), or to go through stages_invert. */
+enum { TAB_DONE = 0, TAB_STEPS = 1, TAB_CROSSED = 2, TAB_REST = -1 };
 
 /* A row that crossed x_target: its row in the block, whole steps n (the crossing one included)
  * and stepper_crossing's arguments; the row's column stages are n − 1 + the fraction. */
@@ -368,9 +373,44 @@ int stages_table_begin(const stagecal_vle *vle, double xd, double xb, double ref
                        const stagecal_stages_params *par, int quiet, stagecal_stages_result *res,
                        tab_begin *o, int *rc);
 
+/* The interval of the table's first increasing branch holding y (y in [0, y_top]; buckets
+ * built) as stages_tab.c's stepping locates it (tab_locate_y: vle_locate_y's answer). */
+size_t stages_tab_locate_y(const stagecal_vle *v, double y);
+
+/* The stepping phase four rows to a group of AVX2 lanes (stages_tab_avx2.c; call only where
+ * stages_have_avx2()): the nb block rows marked TAB_STEPS, each row's start in beg, stepped as
+ * stages_tab.c's tab_step steps them with the step cap min(max_stages, pinch_scan_after); a row
+ * that crosses is marked TAB_CROSSED with its tab_cross appended to cr, one that tab_step would
+ * give −1 TAB_REST. Returns the number of tab_cross written. A table it cannot take (2^30 buckets
+ * or nodes) it leaves whole (0, the marks untouched), and so does a build without the path. */
+size_t stages_tab_step4(const stagecal_vle *vle, size_t cap, size_t nb, const tab_begin *beg,
+                        signed char *mark, tab_cross *cr);
+
 #ifndef TL_VECTOR
 /* Closed-form inverse: the liquid after n (real) stages from x0. */
 double smoker_inverse(const smoker_consts *sc, double x0, double n);
+
+/* A tl3 as four plain doubles (value, ∂/∂xD, ∂/∂xB, ∂/∂R) and back. */
+static inline void tl_put(double *o, tl3 a)
+{
+    o[0] = a.v;
+    for (int i = 0; i < TL_N; i++)
+        o[1 + i] = a.d[i];
+}
+
+static inline tl3 tl_get(const double *o)
+{
+    tl3 r = {o[0], {o[1], o[2], o[3]}};
+    return r;
+}
+
+/* stages_invert_many's rows on a table (stages_tab.c; stages.c's tab_applies holds): every row's
+ * res, rc (may be NULL) and error what stages_invert gives it (quiet: stages_invert_quiet, else
+ * stagecal_stages_invert). Returns the first row's error (err then its message), else
+ * STAGECAL_OK. */
+int stages_tab_many(const stagecal_vle *vle, size_t n, const double *xd, const double *xb,
+                    const double *reflux, const stagecal_stages_params *par, int quiet,
+                    stagecal_stages_result *res, int *rc, stagecal_error *err);
 
 /* ---- stages_step.c -------------------------------------------------------------------- */
 
@@ -415,7 +455,7 @@ int stepper_scan_pinch(stepper *st, double lo, double hi, size_t npts, int *foun
 tl3 stepper_crossing(tl3 m, tl3 b, tl3 x_prev, tl3 xn, tl3 yn, tl3 x_target);
 /* First azeotrope at or below xd, or −1 when none. */
 double stages_azeotrope_below(const stagecal_vle *vle, double xd);
-/* The table's x*(y) and y*' there as the side-by-side stepping of stages.c computes them (y in
+/* The table's x*(y) and y*' there as the side-by-side stepping of stages_tab.c computes them (y in
  * [0, 1]; a table with buckets): vle_herm_invert_slope_inline's doubles (tests compare them). */
 int stages_table_xstar_slope(const stagecal_vle *v, double y, double *x, double *slope);
 

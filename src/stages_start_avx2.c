@@ -1,17 +1,17 @@
 /*
- * stages_start_avx2.c — the start of a table row of stagecal_stages_invert_many (stages.c,
- * tab_many): what invert_begin computes for a row on a Hermite table at E_MV = 1 with tangents
- * when the row goes on to step — the line m = R/(R + 1), b = xD/(R + 1), xD and
- * x_target = (y*(xB) − b)/m with their tangents, after the input checks, y*(xB) with its slope,
- * the checks of x_target and the pinch test at x_target — without the per-row machinery (the
- * stepper, the model dispatch, the status texts), and the row's result as invert_begin leaves it.
- * A row that is not plain (anything reject_inputs would reject, R = ∞, x_target above xD, at xD
- * or not above 0, the pinch test failing) is left to invert_begin, which then does everything for
- * it, status and message included. The four lanes also leave a row whose table query would take
- * an uncommon branch: a bucket whose search range holds more than four nodes (a table crowded
- * in x), and two kept as guards that the rows do not reach: a bucket past the last ((1 −
- * 2^−53)·nb rounds below nb) and x at the interval's upper node (a bucket's range ends at the
- * node at or below its upper edge: it would take a node within rounding of that edge).
+ * stages_start_avx2.c — the start of a table row of stagecal_stages_invert_many (stages_tab.c,
+ * stages_tab_many): what invert_begin computes for a row on a Hermite table at E_MV = 1 with
+ * tangents when the row goes on to step — the line m = R/(R + 1), b = xD/(R + 1), xD and x_target =
+ * (y*(xB) − b)/m with their tangents, after the input checks, y*(xB) with its slope, the checks of
+ * x_target and the pinch test at x_target — without the per-row machinery (the stepper, the model
+ * dispatch, the status texts), and the row's result as invert_begin leaves it. A row that is not
+ * plain (anything reject_inputs would reject, R = ∞, x_target above xD, at xD or not above 0, the
+ * pinch test failing) is left to invert_begin, which then does everything for it, status and
+ * message included. The four lanes also leave a row whose table query would take an uncommon
+ * branch: a bucket whose search range holds more than four nodes (a table crowded in x), and two
+ * kept as guards that the rows do not reach: a bucket past the last ((1 − 2^−53)·nb rounds below
+ * nb) and x at the interval's upper node (a bucket's range ends at the node at or below its upper
+ * edge: it would take a node within rounding of that edge).
  *
  * stages_start1: one row, scalar, the same operations in the same order as invert_begin (and
  * vle_table_ystar_slope, vle_table_ystar_inline), so the same doubles. stages_start4: four

@@ -618,7 +618,7 @@ static void table_row(gsl_rng *g, const stagecal_vle *v, size_t i, double *xd, d
 }
 
 /* stagecal_stages_invert_many on a Hermite table at E_MV = 1 (several rows stepped side by side
- * in one loop, stages.c tab_many) gives each row what stagecal_stages_invert gives it, bit for
+ * in one loop, stages_tab.c) gives each row what stagecal_stages_invert gives it, bit for
  * bit (numbers, status, reason, return value and the first error), and stages_invert_many_quiet
  * what stages_invert_quiet gives (with each row's return value): 20 000 rows of table_row (GSL
  * mt19937, seed 37) on NRTL ethanol–water at 101.325 kPa (the bench's model) and 4 001 on a
@@ -776,6 +776,313 @@ static void tangent_table_inverse_same_bits(void **state)
         }
     }
     assert_true(wide > 0); /* the crowded table has buckets of more than four nodes */
+    for (int im = 0; im < 4; im++)
+        stagecal_vle_free(models[im]);
+    gsl_rng_free(g);
+}
+
+/* A row for the table models' batch drawn over what the stepping meets: xD mostly in [0.05,
+ * 0.88], else at the azeotrope az (±0.002; az < 0: none), in [0.88, 0.999] or in [0.001,
+ * 0.051]; R log-uniform on [0.1, 10^6], ∞ one row in 33, exactly 0.1 or 10^6 one in 100 each; xB
+ * where 1 to 30 stages reach at R (±1 %: some rows pinched at x_target or on the way),
+ * log-uniform on [10^-12·xD, xD], near 0 (10^-15 to 10^-6), or just below xD (pinches). */
+static void random_table_row(gsl_rng *g, const stagecal_vle *v, double az, double *xd, double *xb,
+                             double *r)
+{
+    double u = gsl_rng_uniform(g), w = gsl_rng_uniform(g), c = gsl_rng_uniform(g);
+    if (u < 0.6)
+        *xd = 0.05 + 0.83 * gsl_rng_uniform(g);
+    else if (u < 0.75 && az > 0.0)
+        *xd = az + 0.004 * (gsl_rng_uniform(g) - 0.5);
+    else if (u < 0.9)
+        *xd = 0.88 + 0.119 * gsl_rng_uniform(g);
+    else
+        *xd = 0.001 + 0.05 * gsl_rng_uniform(g);
+    *r = w < 0.03   ? INFINITY
+         : w < 0.04 ? 0.1
+         : w < 0.05 ? 1e6
+                    : pow(10.0, -1.0 + 7.0 * gsl_rng_uniform(g));
+    if (c < 0.4) {
+        double stages = 1.0 + 29.0 * gsl_rng_uniform(g), b = NAN;
+        size_t len;
+        int status;
+        stagecal_stages_step(v, *xd, *r, stages, 1.0, NULL, &b, NULL, 0, &len, &status, NULL);
+        *xb = (status == STAGECAL_STAGES_OK ? b : 0.5 * *xd) *
+              (1.0 + 0.02 * (gsl_rng_uniform(g) - 0.5));
+    } else if (c < 0.7) {
+        *xb = *xd * pow(10.0, -12.0 * gsl_rng_uniform(g));
+    } else if (c < 0.85) {
+        *xb = pow(10.0, -15.0 + 9.0 * gsl_rng_uniform(g));
+    } else {
+        *xb = *xd * (1.0 - 0.05 * gsl_rng_uniform(g));
+    }
+}
+
+/* The four table models of the tests below: NRTL ethanol–water at 101.325 kPa (the bench's
+ * model, an azeotrope near x = 0.89, y* flat near it: buckets of more than four nodes), a table of
+ * 9 invented points (Newton's first step too long on its long segments), one of 161 invented
+ * points crowded into a narrow band of y (buckets of up to nine nodes), and the 9 points with a
+ * plateau at y = 0.6 (the branch's top y_top = 0.6: the bucket guess confirmed by the quotient). */
+static void table_models(stagecal_vle *m[4])
+{
+    const stagecal_antoine ew[2] = {{5.24677, 1598.673, -46.424, 292.77, 366.63},
+                                    {5.08354, 1663.125, -45.622, 344.0, 373.0}};
+    const double p[5] = {-0.8009, 246.18, 3.4578, -586.0809, 0.3};
+    const double tx[9] = {0.05, 0.1, 0.2, 0.35, 0.5, 0.65, 0.8, 0.9, 0.97};
+    const double ty[9] = {0.15, 0.26, 0.43, 0.6, 0.72, 0.82, 0.9, 0.95, 0.985};
+    const double py[9] = {0.15, 0.26, 0.43, 0.6, 0.6, 0.82, 0.9, 0.95, 0.985};
+    double cx[161], cy[161];
+    for (int k = 0; k < 161; k++) { /* as tangent_table_inverse_same_bits */
+        double x = 0.002 + 0.998 * (double)k / 160.0;
+        cx[k] = x;
+        cy[k] = x < 0.1 ? 6.0 * x : x < 0.9 ? 0.6 + 0.05 * (x - 0.1) : 0.64 + 3.6 * (x - 0.9);
+    }
+    m[0] = stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, p, 5, 101325.0, NULL, NULL);
+    m[1] = stagecal_vle_alloc_table(tx, ty, NULL, 9, NULL);
+    m[2] = stagecal_vle_alloc_table(cx, cy, NULL, 161, NULL);
+    m[3] = stagecal_vle_alloc_table(tx, py, NULL, 9, NULL);
+    for (int k = 0; k < 4; k++)
+        assert_non_null(m[k]);
+    assert_true(m[3]->ytop == 0.6);
+}
+
+/* stages_invert_many_quiet and stagecal_stages_invert_many on the table models at E_MV = 1 with
+ * tangents (stages_tab.c: the stepping phase in the AVX2 lanes where the processor has them,
+ * stages_tab_avx2.c, else the scalar loop) give each row what stages_invert_quiet and
+ * stagecal_stages_invert give it, bit for bit (numbers, status, reason, return value, first
+ * error): 10^5 rows of random_table_row (GSL mt19937, seed 43) on NRTL ethanol–water and 2·10^4
+ * on each invented table, all in one call (blocks of 128 rows inside), the first 10^4 also
+ * through the non-quiet call. Tolerance: none (each lane the scalar IEEE operations;
+ * -ffp-contract=off). Source: the per-row call (an equivalence, no outside source). Fails, for
+ * instance, with the kernel's y_n derivative lacking the + ∂b term, with the Hermite start's
+ * (1 − b)·t written (1 − a)·t, with the bucket range's four-node limit dropped (the crowded
+ * table's rows then take a wrong segment), or with a lane's own search (wide bucket: NRTL near its
+ * azeotrope) or Newton (vle_seg_invert: the 9-point table) skipped. */
+static void tangent_table_rows_random_same_bits(void **state)
+{
+    (void)state;
+    stagecal_vle *models[4];
+    table_models(models);
+    gsl_rng *g = gsl_rng_alloc(gsl_rng_mt19937);
+    assert_non_null(g);
+    gsl_rng_set(g, 43);
+    size_t cap = 100000;
+    double *xd = malloc(cap * sizeof *xd), *xb = malloc(cap * sizeof *xb),
+           *r = malloc(cap * sizeof *r);
+    stagecal_stages_result *many = malloc(cap * sizeof *many);
+    int *rc = malloc(cap * sizeof *rc);
+    assert_true(xd && xb && r && many && rc);
+    stagecal_stages_params par = stagecal_stages_default_params();
+    par.want_sensitivities = 1;
+    for (int im = 0; im < 4; im++) {
+        stagecal_vle *v = models[im];
+        double az = -1.0;
+        stagecal_vle_azeotropes(v, &az, 1);
+        size_t n = im == 0 ? cap : 20000, count[4] = {0, 0, 0, 0}, big_r = 0, long_rows = 0;
+        for (size_t i = 0; i < n; i++)
+            random_table_row(g, v, az, &xd[i], &xb[i], &r[i]);
+        stagecal_error em, e1;
+        memset(many, 0xaa, n * sizeof *many);
+        int rm = stages_invert_many_quiet(v, n, xd, xb, r, 1.0, &par, many, rc, &em), first = 0;
+        for (size_t i = 0; i < n; i++) {
+            stagecal_stages_result one;
+            int r1 = stages_invert_quiet(v, xd[i], xb[i], r[i], 1.0, &par, &one, &e1);
+            if (r1 && !first) {
+                first = r1;
+                assert_string_equal(e1.text, em.text);
+            }
+            assert_same_result(&one, &many[i]);
+            assert_int_equal(rc[i], r1);
+            count[one.status]++;
+            big_r += one.status == STAGECAL_STAGES_OK && r[i] >= 1e4;
+            long_rows += one.status == STAGECAL_STAGES_OK && one.stages > 10.0;
+        }
+        assert_int_equal(rm, first);
+        size_t m = 10000;
+        memset(many, 0xaa, m * sizeof *many);
+        rm = stagecal_stages_invert_many(v, m, xd, xb, r, 1.0, &par, many, &em);
+        first = 0;
+        for (size_t i = 0; i < m; i++) {
+            stagecal_stages_result one;
+            int r1 = stagecal_stages_invert(v, xd[i], xb[i], r[i], 1.0, &par, &one, &e1);
+            if (r1 && !first) {
+                first = r1;
+                assert_string_equal(e1.text, em.text);
+            }
+            assert_same_result(&one, &many[i]);
+        }
+        assert_int_equal(rm, first);
+        /* the rows reach every end: counted, pinched, long, at large R */
+        assert_true(count[STAGECAL_STAGES_OK] > n / 10);
+        assert_true(count[STAGECAL_STAGES_PINCH] > n / 20);
+        assert_true(long_rows > n / 50);
+        assert_true(big_r > n / 50);
+    }
+    for (int im = 0; im < 4; im++)
+        stagecal_vle_free(models[im]);
+    free(xd), free(xb), free(r), free(many), free(rc);
+    gsl_rng_free(g);
+}
+
+/* What the four-lane kernel did with a block: rows that stepped, ended, crossed. */
+typedef struct {
+    size_t stepping, ended, crossed;
+} step4_count;
+
+/* One block through stages_tab_step4 and each stepping row through the reference, tab_step's loop
+ * written out here (y = m·x_(n−1) + b, the table's x*(y) and slope from stages_table_xstar_slope,
+ * step_tangent at E = 1, the same expressions): a row the kernel ends as crossed must have a
+ * tab_cross with the reference's n, x_(n−1), x_n and y_n with their derivatives, and m, b,
+ * x_target as beg has them, bit for bit; a row it ends as TAB_REST one the reference gives −1;
+ * a row it leaves, TAB_STEPS; other rows' marks untouched. */
+static void step4_block(const stagecal_vle *v, size_t capn, const tab_begin *beg, size_t nb,
+                        const signed char *mark0, step4_count *c)
+{
+    tab_cross cr[128];
+    signed char mark[128];
+    assert_true(nb <= 128);
+    memcpy(mark, mark0, nb);
+    size_t nc = stages_tab_step4(v, capn, nb, beg, mark, cr), nmarked = 0;
+    for (size_t i = 0; i < nb; i++) {
+        nmarked += mark[i] == TAB_CROSSED;
+        if (mark0[i] != TAB_STEPS) {
+            assert_int_equal(mark[i], mark0[i]);
+            continue;
+        }
+        c->stepping++;
+        if (mark[i] == TAB_STEPS)
+            continue;
+        c->ended++;
+        const tab_begin *b0 = &beg[i];
+        double xp[4], xn[4], yn[4];
+        memcpy(xp, b0->txd, sizeof xp);
+        size_t n = 0;
+        int end = 0;
+        while (!end) {
+            double y = b0->m[0] * xp[0] + b0->b[0], x, s;
+            n++;
+            if (!(y >= 0.0 && y <= 1.0) || stages_table_xstar_slope(v, y, &x, &s) != STAGECAL_OK ||
+                !(x < xp[0])) {
+                end = -1;
+                break;
+            }
+            double e = 1.0, den = (1.0 - e) * b0->m[0] + e * s;
+            yn[0] = b0->m[0] * xp[0] + b0->b[0];
+            xn[0] = x;
+            for (int k = 1; k < 4; k++) {
+                yn[k] = (b0->m[k] * xp[0] + b0->m[0] * xp[k]) + b0->b[k];
+                xn[k] = (yn[k] - (1.0 - e) * (x * b0->m[k] + b0->b[k])) / den;
+            }
+            if (x <= b0->txt[0])
+                end = 1;
+            else if (n >= capn)
+                end = -1;
+            else
+                memcpy(xp, xn, sizeof xp);
+        }
+        if (end < 0) {
+            assert_int_equal(mark[i], TAB_REST);
+            continue;
+        }
+        assert_int_equal(mark[i], TAB_CROSSED);
+        c->crossed++;
+        const tab_cross *e = NULL;
+        for (size_t k = 0; k < nc; k++)
+            if (cr[k].i == i) {
+                assert_null(e); /* once */
+                e = &cr[k];
+            }
+        assert_non_null(e);
+        assert_int_equal(e->n, n);
+        assert_memory_equal(e->x_prev, xp, sizeof xp);
+        assert_memory_equal(e->xn, xn, sizeof xn);
+        assert_memory_equal(e->yn, yn, sizeof yn);
+        assert_memory_equal(e->m, b0->m, sizeof e->m);
+        assert_memory_equal(e->b, b0->b, sizeof e->b);
+        assert_memory_equal(e->x_target, b0->txt, sizeof e->x_target);
+    }
+    assert_int_equal(nc, nmarked);
+}
+
+/* The stepping phase's four-lane kernel (stages_tab_step4, stages_tab_avx2.c) on its own, block by
+ * block (step4_block: each ended row against tab_step's loop, bit for bit): 2·10^4 rows a model of
+ * random_table_row (GSL mt19937, seed 47; each row's start from stages_table_begin) on the four
+ * models of table_models, and one-stage rows made by hand whose first query is y at each node
+ * value of the table's branch, at each bucket's lower edge b·y_top/nb, and up to 4 ulps either
+ * side of each (x_(n−1) = 1, m = 1/2 and b = y − 1/2 with derivatives (0.3, −0.2, 0.7) and (1, 0.5,
+ * −0.25), x_target 2 or, every other row, the x*(y) of that first query: the lanes' uncommon
+ * cases — the exact locate, x at a segment's end — and the crossing test at equality). With
+ * AVX2 the kernel ends every row that steps (crossed, or marked for stages_invert); without, none.
+ * Tolerance: none (each lane the scalar IEEE operations; -ffp-contract=off). Source: tab_step's
+ * operations (an equivalence, no outside source). Fails, for instance, with the crossing test
+ * x_n <= x_target written <, with the tangent's division by y*' replaced by the reciprocal's
+ * product, with the 4-node limit of a bucket's range dropped, or with a lane's own search
+ * (wide bucket), Newton (vle_seg_invert) or slope (vle_herm_deriv) skipped. */
+static void tangent_table_step4_same_bits(void **state)
+{
+    (void)state;
+    stagecal_vle *models[4];
+    table_models(models);
+    gsl_rng *g = gsl_rng_alloc(gsl_rng_mt19937);
+    assert_non_null(g);
+    gsl_rng_set(g, 47);
+    stagecal_stages_params par = stagecal_stages_default_params();
+    par.want_sensitivities = 1;
+    size_t capn = par.max_stages < par.pinch_scan_after ? par.max_stages : par.pinch_scan_after;
+    int avx2 = stages_have_avx2();
+    for (int im = 0; im < 4; im++) {
+        stagecal_vle *v = models[im];
+        double az = -1.0;
+        stagecal_vle_azeotropes(v, &az, 1);
+        step4_count c = {0, 0, 0}, h = {0, 0, 0};
+        tab_begin beg[128];
+        signed char mark0[128];
+        for (size_t blk = 0; blk < 20000 / 128; blk++) {
+            for (size_t i = 0; i < 128; i++) {
+                double xd, xb, r;
+                random_table_row(g, v, az, &xd, &xb, &r);
+                stagecal_stages_result rr;
+                int rc;
+                mark0[i] = stages_table_begin(v, xd, xb, r, &par, 1, &rr, &beg[i], &rc) ? TAB_STEPS
+                                                                                        : TAB_DONE;
+            }
+            step4_block(v, capn, beg, 128, mark0, &c);
+        }
+        /* the hand-made rows: y at the nodes and the buckets' edges, and up to 4 ulps either side
+         */
+        size_t nq = 9 * (v->iend + 1 + v->nb), nb = 0;
+        for (size_t q = 0; q < nq; q++) {
+            size_t k = q / 9;
+            double y =
+                k <= v->iend ? v->ys[k] : (double)(k - v->iend - 1) * v->ytop / (double)v->nb;
+            for (int j = (int)(q % 9) - 4; j; j += j < 0 ? 1 : -1)
+                y = nextafter(y, j < 0 ? 0.0 : 2.0);
+            tab_begin *b0 = &beg[nb];
+            const double m[4] = {0.5, 0.3, -0.2, 0.7}, bb[4] = {y - 0.5, 1.0, 0.5, -0.25};
+            double x1[4] = {1.0, 1.0, 0.0, 0.0}, xt[4] = {2.0, 0.0, 1.0, 0.0}, sl;
+            if (q % 2 && y >= 0.0 && y <= 1.0) /* x_target at x*(y) itself: crossed, at equality */
+                stages_table_xstar_slope(v, 0.5 * 1.0 + (y - 0.5), &xt[0], &sl);
+            memcpy(b0->m, m, sizeof m);
+            memcpy(b0->b, bb, sizeof bb);
+            memcpy(b0->txd, x1, sizeof x1);
+            memcpy(b0->txt, xt, sizeof xt);
+            mark0[nb++] = TAB_STEPS;
+            if (nb == 128 || q + 1 == nq) {
+                step4_block(v, capn, beg, nb, mark0, &h);
+                nb = 0;
+            }
+        }
+        if (!avx2) {
+            assert_int_equal(c.ended + h.ended, 0);
+            continue;
+        }
+        assert_int_equal(c.ended, c.stepping); /* every stepping row ended in the lanes */
+        assert_int_equal(h.ended, h.stepping);
+        assert_true(c.crossed > c.stepping / 3);
+        assert_true(h.crossed > h.stepping / 2);
+    }
+    if (!avx2)
+        fprintf(stderr, "tangent_table_step4_same_bits: no AVX2 here, the kernel takes no row\n");
     for (int im = 0; im < 4; im++)
         stagecal_vle_free(models[im]);
     gsl_rng_free(g);
@@ -1134,6 +1441,8 @@ int main(void)
         cmocka_unit_test(tangent_table_rows_same_as_per_row),
         cmocka_unit_test(tangent_table_inverse_same_bits),
         cmocka_unit_test(tangent_table_start_same_bits),
+        cmocka_unit_test(tangent_table_rows_random_same_bits),
+        cmocka_unit_test(tangent_table_step4_same_bits),
     };
     return cmocka_run_group_tests(tests, setup, NULL);
 }
