@@ -433,6 +433,8 @@ static int add_warnings(stagecal_calibration *cal, const stagecal_calibrate_para
                    "covariance cr2-run does not apply to the censored-likelihood fit: its "
                    "intervals take the windows as independent")))
         return rc;
+    if ((rc = calibrate_run_test_warn(cal, err)))
+        return rc;
     const stagecal_runlog_soft *so = &cal->log->soft;
     if ((so->xd_inferred || so->xb_inferred) &&
         (rc = warn(cal, err,
@@ -645,7 +647,7 @@ static int finish_chain(stagecal_calibration *cal, const char *column_path,
                          cal->log->n, nleft);
     if ((rc = all_total_reflux(cal, err)))
         return rc;
-    if ((rc = run_fits(cal, par, &fit, err)))
+    if ((rc = run_fits(cal, par, &fit, err)) || (rc = calibrate_run_test(cal, err)))
         return rc;
     progress(par, "model", 0.95);
     if ((rc = fill_model(cal, par, column_path, fit, err)) || (rc = add_warnings(cal, par, err)))

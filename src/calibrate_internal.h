@@ -1,5 +1,6 @@
 /*
- * calibrate_internal.h — what calibrate.c takes from calibrate_cens.c; not installed.
+ * calibrate_internal.h — what calibrate.c takes from calibrate_cens.c, calibrate_stream.c and
+ * calibrate_runs.c; not installed.
  */
 #ifndef STAGECAL_CALIBRATE_INTERNAL_H
 #define STAGECAL_CALIBRATE_INTERNAL_H
@@ -45,6 +46,13 @@ int calibrate_stream_possible(const stagecal_column *col, const char *const *log
  * complete cal->evidence, as run_chain gets them from a held log. */
 int calibrate_stream(stagecal_calibration *cal, const char *const *logs, size_t nlogs,
                      const stagecal_calibrate_params *par, stagecal_error *err);
+
+/* Do the runs differ? stagecal_run_test_fit on the stage-space fit's windows and θ̂ into
+ * cal->run_test (not tested when that fit failed), calibrate_runs.c. */
+int calibrate_run_test(stagecal_calibration *cal, stagecal_error *err);
+/* The model's warning when the runs differ (p < STAGECAL_RUN_TEST_ALPHA) and the fit's covariance
+ * takes the windows as independent (not CR2_RUN; not the censored-likelihood fit). */
+int calibrate_run_test_warn(stagecal_calibration *cal, stagecal_error *err);
 
 #define CAL_CENS_SHARE 0.10
 #define CAL_CENS_QUAD 0.10 /* see quadratic_check in calibrate_cens.c */

@@ -5,9 +5,18 @@
  * count really varies from batch to batch by a known amount τ?
  *
  * Usage: [STUDY_COV=hc2-bm|cr2-run|...] tool_batch_coverage REPLICATIONS SEED TAU [SAMPLES] [both]
- * [dump] TAU      sd of the per-batch random effect on the stage count [stages], ≥ 0 SAMPLES  draws
- * per band (default 200, predict's default) both     problems A and B (below; default A only) dump
- * one line per data set on stderr (below)
+ * [dump] [runtest] TAU      sd of the per-batch random effect on the stage count [stages], ≥ 0
+ * SAMPLES  draws per band (default 200, predict's default) both     problems A and B (below;
+ * default A only) dump one line per data set on stderr (below) runtest  the calibrations only
+ * (no batch, no band): the runs-differ test's rejections (below), quickly
+ *
+ * The runs-differ test (every mode): calibrate's cal.run_test (Wald's variance-component F test
+ * on the stage-space fit, src/calibrate_runs.c) and, for comparison, the plain one-way analysis
+ * of variance of the same windows' standardised residuals (stages − N(R; θ̂ of the stage-space
+ * fit))/se grouped by run, F on G − 1 and n − G dof, computed here; each rejects at p < 0.05.
+ * Printed: data sets tested, rejections with Wilson 95 % intervals (at τ = 0 the false-alarm
+ * rate, near 0.05 for a calibrated test; at τ > 0 the power), the mean dof. Data sets are the
+ * same for a seed with or without runtest (the bands draw from their own seeds).
  *
  * What it simulates (per data set; one GSL mt19937 stream seeded with SEED serves them all):
  *   - the column: constant α = 1.6 (Smoker's closed form for the pot, tests/oracle_smoker.h,
@@ -129,15 +138,100 @@ static void band_qty(const stagecal_batch_band *b, int pr, int q, double *lo, do
     *lo = iv->low * f, *hi = iv->high * f;
 }
 
+/* The runs-differ test's tally: calibrate's (Wald) and the plain one-way ANOVA's. */
+struct rt_acc {
+    long tested, rej, a_tested, a_rej;
+    double dof1, dof2, a_dof1, a_dof2;
+};
+
+/* The plain one-way ANOVA of the stage-space windows' standardised residuals by run: F on
+ * G − 1 and n − G dof; its p, or NAN when G < 3 or n − G < 1. */
+static double plain_anova(const stagecal_calibration *cal, double *d1, double *d2)
+{
+    const stagecal_regress_result *sf = &cal->stage_fit;
+    double sum[64] = {0}, tot = 0;
+    size_t cnt[64] = {0}, n = 0, g = 0;
+    const stagecal_evidence *ev = cal->evidence.ev;
+    for (int pass = 0; pass < 2; pass++) {
+        double ssb = 0, ssw = 0;
+        for (size_t i = 0; i < cal->evidence.n; i++) {
+            double val;
+            if (!ev[i].stages_ok || ev[i].run >= 64 ||
+                stagecal_form_eval(&sf->form, sf->theta, ev[i].r, ev[i].f_load, &val, NULL))
+                continue;
+            double e = (ev[i].stages - val) / ev[i].se_stages;
+            if (pass == 0) {
+                g += cnt[ev[i].run] == 0;
+                cnt[ev[i].run]++, sum[ev[i].run] += e, tot += e, n++;
+            } else {
+                double m = sum[ev[i].run] / (double)cnt[ev[i].run];
+                ssw += (e - m) * (e - m);
+            }
+        }
+        if (pass == 1) {
+            for (size_t k = 0; k < 64; k++)
+                if (cnt[k] > 0) {
+                    double m = sum[k] / (double)cnt[k] - tot / (double)n;
+                    ssb += (double)cnt[k] * m * m;
+                }
+            *d1 = (double)g - 1, *d2 = (double)n - (double)g;
+            if (g < 3 || !(*d2 >= 1) || !(ssw > 0))
+                return NAN;
+            return gsl_cdf_fdist_Q(ssb / *d1 / (ssw / *d2), *d1, *d2);
+        }
+    }
+    return NAN;
+}
+
+static void rt_record(const stagecal_calibration *cal, struct rt_acc *rt)
+{
+    const stagecal_run_test *t = &cal->run_test;
+    if (t->tested) {
+        rt->tested++;
+        rt->rej += t->p < 0.05;
+        rt->dof1 += t->dof1, rt->dof2 += t->dof2;
+    }
+    double d1 = 0, d2 = 0, p = cal->stage_status == STAGECAL_OK ? plain_anova(cal, &d1, &d2) : NAN;
+    if (isfinite(p)) {
+        rt->a_tested++;
+        rt->a_rej += p < 0.05;
+        rt->a_dof1 += d1, rt->a_dof2 += d2;
+    }
+}
+
+static void wilson(long k, long n, double *lo, double *hi);
+
+static void rt_print(const struct rt_acc *rt, long calibrated)
+{
+    double lo = NAN, hi = NAN;
+    if (rt->tested > 0)
+        wilson(rt->rej, rt->tested, &lo, &hi);
+    printf("  runs-differ test (calibrate's, Wald): tested %ld of %ld calibrations; rejected at "
+           "0.05: %ld = %.3f [%.3f, %.3f]; mean dof %.2f / %.2f\n",
+           rt->tested, calibrated, rt->rej, rt->tested ? (double)rt->rej / (double)rt->tested : NAN,
+           lo, hi, rt->tested ? rt->dof1 / (double)rt->tested : NAN,
+           rt->tested ? rt->dof2 / (double)rt->tested : NAN);
+    lo = hi = NAN;
+    if (rt->a_tested > 0)
+        wilson(rt->a_rej, rt->a_tested, &lo, &hi);
+    printf("  plain one-way ANOVA of the standardised residuals by run: tested %ld; rejected at "
+           "0.05: %ld = %.3f [%.3f, %.3f]; mean dof %.2f / %.2f\n",
+           rt->a_tested, rt->a_rej, rt->a_tested ? (double)rt->a_rej / (double)rt->a_tested : NAN,
+           lo, hi, rt->a_tested ? rt->a_dof1 / (double)rt->a_tested : NAN,
+           rt->a_tested ? rt->a_dof2 / (double)rt->a_tested : NAN);
+}
+
 int main(int argc, char **argv)
 {
     char *e1 = NULL, *e3 = NULL, *e4 = NULL;
-    int dump = 0, nprob = 1; /* problem A only unless "both" */
+    int dump = 0, nprob = 1, only_test = 0; /* problem A only unless "both" */
     for (; argc > 4; argc--) {
         if (strcmp(argv[argc - 1], "dump") == 0)
             dump = 1;
         else if (strcmp(argv[argc - 1], "both") == 0)
             nprob = 2;
+        else if (strcmp(argv[argc - 1], "runtest") == 0)
+            only_test = 1;
         else
             break;
     }
@@ -147,8 +241,8 @@ int main(int argc, char **argv)
     long samples = argc >= 5 ? strtol(argv[4], &e4, 10) : 200;
     if (argc < 4 || argc > 5 || *e1 || *e3 || (e4 && *e4) || reps < 1 || !(tau >= 0) ||
         samples < 2) {
-        fprintf(stderr,
-                "usage: tool_batch_coverage REPLICATIONS SEED TAU [SAMPLES] [both] [dump]\n");
+        fprintf(stderr, "usage: tool_batch_coverage REPLICATIONS SEED TAU [SAMPLES] [both] [dump] "
+                        "[runtest]\n");
         return 1;
     }
     gsl_set_error_handler_off();
@@ -159,6 +253,8 @@ int main(int argc, char **argv)
         return 1;
     }
     gsl_rng_set(rng, seed);
+    struct rt_acc rt;
+    memset(&rt, 0, sizeof rt);
     struct acc a[BC_NPROB][BC_NQTY][BC_NBAND];
     memset(a, 0, sizeof a);
     long refused = 0, nobatch = 0, noband = 0, nscatter = 0, ok_sets = 0, n_cov = 0, n_stage = 0;
@@ -187,6 +283,12 @@ int main(int argc, char **argv)
         stagecal_calibration cal;
         if (stagecal_calibrate_data(&col, NULL, log, &par, &cal, NULL) != STAGECAL_OK) {
             refused++;
+            stagecal_runlog_free(log);
+            continue;
+        }
+        rt_record(&cal, &rt);
+        if (only_test) {
+            stagecal_calibration_free(&cal);
             stagecal_runlog_free(log);
             continue;
         }
@@ -295,6 +397,7 @@ int main(int argc, char **argv)
                "mean var_ratio %.3f, mean scatter dof along A %.1f\n",
                sum_se / n_se, sum_sig / (double)ok_sets, sum_s2 / (double)ok_sets,
                sum_dofs / (double)ok_sets);
+    rt_print(&rt, reps - refused);
     for (int pr = 0; pr < BC_NPROB; pr++)
         for (int q = 0; q < BC_NQTY; q++)
             for (int b = 0; b < nband; b++) {

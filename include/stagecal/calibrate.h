@@ -52,6 +52,44 @@ int stagecal_fit_composition(const stagecal_vle *vle, double murphree, const sta
                              const stagecal_regress_params *params, stagecal_regress_result *result,
                              stagecal_error *err);
 
+/* ---- do the runs differ beyond the windows' errors? ------------------------------------ */
+
+/* Wald's variance-component test of a run-to-run offset of the stage count (Wald, A. 1947,
+ * "A note on regression analysis", Ann. Math. Stat. 18, 586–589; Seely, J. F. &
+ * El-Bassiouni, Y. 1983, "Applying Wald's variance component test", Ann. Stat. 11, 197–201 —
+ * both from memory): the windows' stage counts y_i = N(R_i, F_i; θ) + δ_run(i) + e_i,
+ * e_i ~ N(0, c·se_i²) with c unknown, H0: var δ = 0. The stage-space fit is linearised at θ̂
+ * (its standardised Jacobian J, rows ∇N/se_i) and the runs' offsets are added as fixed effects
+ * (Z_ik = 1/se_i for the windows of run k): F = [(RSS0 − RSS1)/dof1] / [RSS1/dof2] with RSS0
+ * the standardised residuals' sum of squares off J's span, RSS1 off [J Z]'s, dof1 = rank[J Z] −
+ * rank J, dof2 = n − rank[J Z]. It is the one-way analysis of variance of the standardised
+ * residuals by run with the fitted curve's parameters taken out of both sums; exact F for a
+ * linear form with normal errors, and free of a common factor c in the stated errors (it
+ * cancels in the ratio). Not tested (tested 0, why says so) with fewer than 3 runs, when no
+ * run has two windows, or when dof1 or dof2 is 0. */
+typedef struct {
+    int tested;     /* 1: f, dof1, dof2, p hold; 0: why */
+    char why[160];  /* why not tested ("" when tested) */
+    size_t windows; /* windows with a stage count */
+    size_t runs;    /* runs they come from */
+    double f;       /* the F ratio (NAN when not tested) */
+    double dof1;    /* between runs, after the curve */
+    double dof2;    /* within runs, after the curve */
+    double p;       /* P(F(dof1, dof2) > f), gsl_cdf_fdist_Q */
+} stagecal_run_test;
+
+/* The level below which the calibration says the runs differ (a warning unless the fit's
+ * covariance clusters by run). */
+#define STAGECAL_RUN_TEST_ALPHA 0.05
+
+/* The test above on n windows: r (INFINITY allowed), f_load (NULL when the form has no load),
+ * stages and their se (> 0), run (any labels), form and θ̂ (the stage-space fit's). EINVAL on
+ * bad arguments or a form undefined at a window; ENOMEM. A case the test cannot take is
+ * STAGECAL_OK with out->tested 0. */
+int stagecal_run_test_fit(const stagecal_form *form, const double *theta, const double *r,
+                          const double *f_load, const double *stages, const double *se,
+                          const size_t *run, size_t n, stagecal_run_test *out, stagecal_error *err);
+
 /* ---- the whole chain --------------------------------------------------------------------- */
 
 typedef enum {
@@ -169,6 +207,10 @@ typedef struct {
     stagecal_censored_interval cens_at; /* stages there (profile likelihood) */
     stagecal_regress_rank_row rank[STAGECAL_REGRESS_MAXRANK]; /* --form auto */
     size_t nrank;
+    stagecal_run_test run_test; /* do the runs differ beyond the windows' errors? On the
+                                   stage-space fit's windows and θ̂ (not tested when that fit
+                                   failed); a warning when p < 0.05 and the fit's covariance
+                                   is not CR2_RUN (docs/calibration.md §4) */
     stagecal_model_method used; /* which fit the model carries */
     stagecal_model model;       /* ready to write */
     stagecal_column own_column; /* inputs read by stagecal_calibrate (column, log point */

@@ -11,6 +11,7 @@
 #include <unistd.h>
 
 #include "banned.h"
+#include "calibrate.h"
 #include "fileio.h"
 #include "cli.h"
 #include "commands.h"
@@ -415,6 +416,7 @@ static int print_json(const stagecal_calibration *cal, const char *path, const s
                   (json_int_t)cal->res.count[STAGECAL_RUNLOG_CENSORED]));
     if (cal->used == STAGECAL_MODEL_CENSORED)
         json_object_set_new(doc, "censored", cens_json(cal));
+    json_object_set_new(doc, "run_test", calibrate_run_test_json(&cal->run_test));
     json_object_set_new(doc, "holdup", holdup_json(cal));
     json_object_set_new(doc, "inferred", cli_soft_json(&cal->log->soft));
     json_t *fl = json_array();
@@ -505,6 +507,7 @@ static void print_text(const stagecal_calibration *cal, const char *path, const 
         printf("\nstage-space fit: %s\n", cal->stage_message);
     if (cal->used == STAGECAL_MODEL_CENSORED)
         cens_print(cal);
+    calibrate_print_run_test(cal);
     printf("\nenvelope (fitted conditions): R %s to %s", rlo, rhi);
     if (mo->has_load)
         printf(", F %.3g to %.3g Pa^0.5", mo->f_min, mo->f_max);
