@@ -88,6 +88,10 @@ struct synth_fit {
     int pi_deg;                     /* coefficients of the scatter function (0: none) */
     double tr_res[12], tr_se[12];   /* the training windows' count − truth and stated se
                                        (NAN: no count), for the study's dump */
+    int rt_tested;                  /* the runs-differ test (stagecal_run_test_fit on the
+                                       stage-space fit, the windows dealt to synth_runs() runs
+                                       as the clusters are) took the data set */
+    double rt_p;                    /* its p (the errors are independent: H0 holds) */
 };
 
 /* The parameters' estimates and intervals, the t quantile the intervals use (half-width over
@@ -415,6 +419,11 @@ static inline int synth_one(gsl_rng *rng, const stagecal_vle *vle, const stageca
     if (stagecal_regress_fit(&d, form, &rp, &rs_fit, NULL) != STAGECAL_OK)
         return 0;
     int rc = synth_fill(form, &rs_fit, rs_fit.sigma, fs) ? __LINE__ : 0;
+    stagecal_run_test rt;
+    if (rc == 0 && stagecal_run_test_fit(form, rs_fit.theta, r, NULL, s, sg, run_s, n, &rt, NULL))
+        rc = __LINE__;
+    fs->rt_tested = rc == 0 && rt.tested;
+    fs->rt_p = rt.p;
     rp.cluster = run_c; /* the composition fit: every window */
     if (rc == 0 && stagecal_fit_composition(vle, 1.0, ev, NW, form, rs_fit.theta, &rp, &rc_fit,
                                             NULL) == STAGECAL_OK) {

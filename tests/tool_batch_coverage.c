@@ -387,11 +387,15 @@ int main(int argc, char **argv)
            "stages, %ld draws per band (%.1f s)\n",
            reps, seed, tau, samples,
            (double)(t1.tv_sec - t0.tv_sec) + 1e-9 * (double)(t1.tv_nsec - t0.tv_nsec));
-    printf("  calibration refused %ld, batch failed %ld, band failed %ld; %ld of %ld models "
-           "with a scatter function\n",
-           refused, nobatch, noband, nscatter, reps - refused);
-    printf("  covariance %s (STUDY_COV): used by %ld of %ld models' fits (%ld stage-space)\n",
-           stagecal_regress_cov_name(synth_cov_kind()), n_cov, reps - refused, n_stage);
+    if (only_test)
+        printf("  calibration refused %ld (runtest: no batch, no band)\n", refused);
+    else {
+        printf("  calibration refused %ld, batch failed %ld, band failed %ld; %ld of %ld models "
+               "with a scatter function\n",
+               refused, nobatch, noband, nscatter, reps - refused);
+        printf("  covariance %s (STUDY_COV): used by %ld of %ld models' fits (%ld stage-space)\n",
+               stagecal_regress_cov_name(synth_cov_kind()), n_cov, reps - refused, n_stage);
+    }
     if (ok_sets > 0)
         printf("  windows at R = 2.5: mean stated se %.4f stages; model: mean sigma(2.5) %.4f, "
                "mean var_ratio %.3f, mean scatter dof along A %.1f\n",

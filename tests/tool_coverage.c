@@ -20,6 +20,10 @@
  * with ρ and σ from the AR(1) moments of its residuals, ρ pooled (stagecal_evidence_mean_quad,
  * the builder's STAGECAL_EVIDENCE_NOISE_QUAD_POOLED).
  *
+ * The synthetic regimes also print the runs-differ test's rejections (stagecal_run_test_fit
+ * on the stage-space fit, the windows dealt to STUDY_RUNS runs, default 4; the errors are
+ * independent, so every rejection is a false alarm; Wilson 95 % interval).
+ *
  * For each fit (stage space, composition space) and each quantity (a, b, confidence band
  * at R = 1.5, 5, ∞) it prints
  *   - the coverage k/n of the 95 % interval with its Wilson score 95 % interval
@@ -611,6 +615,7 @@ int main(int argc, char **argv)
         return 1;
     }
     struct timespec t0, t1;
+    long rt_n = 0, rt_rej = 0; /* the runs-differ test: data sets tested, rejections */
     clock_gettime(CLOCK_MONOTONIC, &t0);
     for (long rep = 0; rep < reps && rc == 0; rep++) {
         struct synth_fit fs, fc;
@@ -622,6 +627,8 @@ int main(int argc, char **argv)
         }
         tally_add(&ts, &fs);
         tally_add(&tc, &fc);
+        rt_n += fs.ok && fs.rt_tested;
+        rt_rej += fs.ok && fs.rt_tested && fs.rt_p < STAGECAL_RUN_TEST_ALPHA;
         for (int w = 0; w < 12 && dump && fc.pi_ok; w++) /* the training windows */
             fprintf(stderr, "tr %ld %d %.6g %.6g\n", rep, w, fc.tr_res[w], fc.tr_se[w]);
         for (int q = 0; q < 3 && predict && rc == 0 && fc.pi_ok; q++) {
@@ -668,6 +675,14 @@ int main(int argc, char **argv)
         }
         report("stage space", &ts, (int)reps);
         report("composition space", &tc, (int)reps);
+        if (rt_n > 0) { /* the runs do not differ here: its rejections are false alarms */
+            double lo, hi;
+            wilson((int)rt_rej, (int)rt_n, gsl_cdf_ugaussian_Pinv(0.975), &lo, &hi);
+            printf("  runs-differ test (calibrate's, %zu runs, errors independent): tested %ld, "
+                   "rejected at %g: %ld = %.3f [%.3f, %.3f]\n",
+                   synth_runs(), rt_n, STAGECAL_RUN_TEST_ALPHA, rt_rej,
+                   (double)rt_rej / (double)rt_n, lo, hi);
+        }
         for (int q = 0; q < 3 && predict; q++) {
             double lo, hi;
             if (pi_n[q] == 0)

@@ -149,6 +149,28 @@ expect_exit 2 "option '--method': 'best' is not a method" -- "$BIN" calibrate --
 expect_exit 2 "option '--level': 1.5 is outside (0, 1)" -- "$BIN" calibrate --column "$COL" --level 1.5 $LOGS
 # the same log twice would double the evidence: refused
 expect_exit 65 "same content as" --many "$BIN" calibrate --column "$COL" --fits "$tmp/f3" --quiet "$ROOT/datasets/demo/logs/2025-01.csv" "$ROOT/datasets/demo/logs/2025-01.csv"
+# do the runs differ? (docs/calibration.md §4, "Do the runs differ?"; docs/cli.md) The quick
+# start's 16 windows in 14 runs leave none within the runs for 2 parameters: not tested, with
+# the reason; the first eight months (52 windows in 40 runs; the demo column fouls 1.2 %/month,
+# so its runs of different months differ) reject, and warn unless cr2-run is asked for
+cp "$tmp/j_default" "$tmp/j"
+check "calibrate: run_test not tested on the quick start, with the reason" \
+      "d['run_test']['tested'] is False and d['run_test']['f'] is None and 'no window left within the runs' in d['run_test']['why'] and d['run_test']['runs'] == 14"
+L8=$(ls "$ROOT"/datasets/demo/logs/*.csv | head -8)
+"$BIN" calibrate --column "$COL" --form saturating --json --quiet --dry-run $L8 >"$tmp/j"
+check "calibrate: run_test on eight months: F, dof, p < 0.05 and the RUNS DIFFER warning" \
+      "d['run_test']['tested'] is True and d['run_test']['p'] < 0.05 and d['run_test']['dof1'] >= 1 and d['run_test']['dof2'] >= 1 and d['run_test']['why'] is None and sum('RUNS DIFFER' in w and 'cr2-run' in w for w in d['warnings']) == 1"
+cp "$tmp/j" "$tmp/j_runs"
+"$BIN" calibrate --column "$COL" --form saturating --json --quiet --dry-run --covariance cr2-run $L8 >"$tmp/j"
+check "calibrate --covariance cr2-run: the same test, no RUNS DIFFER warning" \
+      "d['run_test'] == json.load(open('$tmp/j_runs'))['run_test'] and not any('RUNS DIFFER' in w for w in d['warnings'])"
+"$BIN" calibrate --column "$COL" --form saturating --dry-run $L8 >"$tmp/t" 2>/dev/null
+if grep -q "^runs against windows: F = .* p = .*the runs differ beyond the windows' errors (see the warning)$" "$tmp/t" &&
+    grep -q "^warning: RUNS DIFFER" "$tmp/t"; then
+    echo "ok: calibrate: the summary's runs-differ line and warning"
+else
+    echo "FAIL: calibrate: the summary's runs-differ line and warning"; grep -i "runs" "$tmp/t"; fails=$((fails + 1))
+fi
 # an unwritable fits directory (a file in its place)
 : >"$tmp/notadir"
 expect_exit 73 "" -- "$BIN" calibrate --column "$COL" --fits "$tmp/notadir" --quiet $LOGS
