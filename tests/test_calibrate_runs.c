@@ -225,8 +225,8 @@ static int warned(const stagecal_calibration *cal)
  * windows' se at R = 2.5, about 0.05) are found (p < 1e-6) and warned of under hc2-bm; under
  * cr2-run the same test, no warning; runs that agree (δ = 0, log seed 2026120502: p = 0.491,
  * F = 0.977 on 8 and 14 dof; the seed was chosen for a p far from 0.05 — seed 2026120501 gives
- * 0.107, 2026120503 0.682 — since under H0 p is uniform) give no warning. The fit's numbers do not depend on the test (θ the
- * same as the stage-space fit's in both). */
+ * 0.107, 2026120503 0.682 — since under H0 p is uniform) give no warning. The fit's numbers do not
+ * depend on the test (θ the same as the stage-space fit's in both). */
 static void runtest_warning_in_calibration(void **state)
 {
     (void)state;
