@@ -249,11 +249,22 @@ int calibrate_run_test(stagecal_calibration *cal, stagecal_error *err)
         run[n++] = ev[i].run;
     }
     const stagecal_regress_result *sf = &cal->stage_fit;
+    stagecal_error e2;
+    stagecal_error_clear(&e2);
     int rc = stagecal_run_test_fit(&sf->form, sf->theta, buf, sf->form.uses_load ? buf + nev : NULL,
-                                   buf + 2 * nev, buf + 3 * nev, run, n, t, err);
+                                   buf + 2 * nev, buf + 3 * nev, run, n, t, &e2);
     free(buf);
     free(run);
-    return rc;
+    if (rc == STAGECAL_ENOMEM)
+        return error_set(err, rc, "%s", e2.text);
+    if (rc != STAGECAL_OK) { /* a diagnostic: the calibration stands without it */
+        memset(t, 0, sizeof *t);
+        t->f = t->dof1 = t->dof2 = t->p = NAN;
+        size_t k = strnlen(e2.text, sizeof t->why - 1);
+        memcpy(t->why, e2.text, k); /* the error's text, cut to the field */
+        t->why[k] = '\0';
+    }
+    return STAGECAL_OK;
 }
 
 int calibrate_run_test_warn(stagecal_calibration *cal, stagecal_error *err)
