@@ -88,8 +88,12 @@ stagecal_plot_series *plot_fig_add(plot_fig *f, stagecal_plot_kind kind, const c
                                    const double *x, const double *y, const double *y_hi, size_t n,
                                    int colour, int line, int marker)
 {
-    if (f->oom || !f->s || f->c->n_series >= MAX_SERIES || n == 0)
+    if (f->oom || !f->s || n == 0)
         return NULL;
+    if (f->c->n_series >= MAX_SERIES) {
+        f->full = 1;
+        return NULL;
+    }
     stagecal_plot_series *s = &f->s[f->c->n_series];
     memset(s, 0, sizeof *s);
     s->kind = kind;
@@ -153,10 +157,17 @@ int plot_fig_close(plot_fig *f, stagecal_plot_chart **out, stagecal_error *err)
         f->c->panels = p;
         f->c->n_panels = f->n_panels;
     }
-    if (f->oom || !f->s) {
-        stagecal_plot_chart_free(f->c);
+    if (f->oom || !f->s || f->full) {
+        int full = f->full && !f->oom && f->s;
+        stagecal_plot_chart *c = f->c;
         *out = NULL;
-        return error_set(err, STAGECAL_ENOMEM, "out of memory building a chart");
+        int rc = full ? error_set(err, STAGECAL_EINTERNAL,
+                                  "chart '%s': more than %d series (a builder's limit; the chart "
+                                  "would have been drawn without some of them)",
+                                  c->title ? c->title : "", MAX_SERIES)
+                      : error_set(err, STAGECAL_ENOMEM, "out of memory building a chart");
+        stagecal_plot_chart_free(c);
+        return rc;
     }
     *out = f->c;
     return STAGECAL_OK;

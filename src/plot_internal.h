@@ -24,7 +24,8 @@ typedef struct {
     arena *a;
     stagecal_plot_series *s;
     int oom;
-    size_t n_panels;                                  /* panels started */
+    int full;        /* a series refused at MAX_SERIES: plot_fig_close fails (never drawn short) */
+    size_t n_panels; /* panels started */
     size_t panel_first[STAGECAL_PLOT_MAXPANELS];      /* first series of each */
     const char *panel_label[STAGECAL_PLOT_MAXPANELS]; /* their y labels (arena copies) */
     double panel_weight[STAGECAL_PLOT_MAXPANELS];

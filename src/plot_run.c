@@ -24,6 +24,13 @@
 
 #define RUN_GAP_FRAC 0.04 /* gap between runs side by side, of the runs' total duration */
 #define ERR_BAR_K 2.0     /* error bars: ± 2 standard uncertainties (about 95 %) */
+/* Run names above the runs (all runs side by side): every run's when there are at most
+ * RUN_NAMES runs; else every k-th run's, k = ⌈runs/RUN_NAMES⌉ (the first run's included), and
+ * those of the runs left out of the fit, RUN_NAMES_MAX in all. More would overlap on the
+ * page, and each name is a series of the chart (MAX_SERIES, 64: 48 names crowded the stage
+ * panel's series out of a chart of 48 runs). */
+#define RUN_NAMES 16
+#define RUN_NAMES_MAX 24
 
 /* Offsets [h] of each run on the axis (all runs) or 0 for the one drawn. */
 typedef struct {
@@ -352,9 +359,11 @@ static void panel_xd(plot_fig *f, const stagecal_plot_run_data *d, const run_axi
     plot_fig_add(f, STAGECAL_PLOT_POINTS, "censored: at or above", p->x, p->y, NULL, p->n, 3, 0, 2);
     rows_where(d, ax, p, keep_xd_cens, STAGECAL_CENSOR_BELOW, y_xd, NULL);
     plot_fig_add(f, STAGECAL_PLOT_POINTS, "censored: at or below", p->x, p->y, NULL, p->n, 3, 0, 7);
-    for (size_t r = 0; r < log->nruns; r++) { /* run names above the runs */
-        if (!selected(d, r) || !all)
+    size_t k = (log->nruns + RUN_NAMES - 1) / RUN_NAMES, named = 0;
+    for (size_t r = 0; all && r < log->nruns && named < RUN_NAMES_MAX; r++) {
+        if (r % k != 0 && !left_out(d, r))
             continue;
+        named++;
         char lab[96];
         snprintf(lab, sizeof lab, "%s%s", log->runs[r].name, left_out(d, r) ? " (left out)" : "");
         double x = ax->offset[r];

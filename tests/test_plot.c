@@ -19,6 +19,7 @@
 
 #include <gsl/gsl_errno.h>
 
+#include "plot_internal.h"
 #include "plot_testutil.h"
 #include "stagecal/calibrate.h"
 #include "stagecal/plot.h"
@@ -393,6 +394,33 @@ static void plot_legend_keeps_off_data(void **state)
         }
     }
 }
+/* A chart builder that passes the series limit gets an error naming it; the chart is never
+ * handed out with series missing (a run chart of 48 runs once lost its stage panel so). */
+static void plot_fig_past_the_series_limit_fails(void **state)
+{
+    (void)state;
+    plot_fig f;
+    stagecal_error err;
+    stagecal_plot_chart *c = NULL;
+    double x = 1, y = 2;
+    for (int n = MAX_SERIES; n <= MAX_SERIES + 1; n++) {
+        assert_int_equal(plot_fig_open(&f, &err), STAGECAL_OK);
+        plot_fig_labels(&f, "limit", "x", "y");
+        for (int k = 0; k < n; k++)
+            plot_fig_add(&f, STAGECAL_PLOT_POINTS, NULL, &x, &y, NULL, 1, 0, 0, 0);
+        int rc = plot_fig_close(&f, &c, &err);
+        if (n == MAX_SERIES) { /* at the limit: a chart */
+            assert_int_equal(rc, STAGECAL_OK);
+            assert_int_equal(c->n_series, MAX_SERIES);
+            stagecal_plot_chart_free(c);
+        } else {
+            assert_int_equal(rc, STAGECAL_EINTERNAL);
+            assert_null(c);
+            assert_non_null(strstr(err.text, "more than 64 series"));
+        }
+    }
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -406,6 +434,7 @@ int main(void)
         cmocka_unit_test(plot_render_is_silent),
         cmocka_unit_test(plot_svg_labels_are_text),
         cmocka_unit_test(plot_legend_keeps_off_data),
+        cmocka_unit_test(plot_fig_past_the_series_limit_fails),
     };
     return cmocka_run_group_tests(tests, group_setup, NULL);
 }

@@ -178,11 +178,63 @@ static void plot_run_marks_follow_the_analysis(void **state)
     stagecal_plot_chart_free(c);
     stagecal_calibration_free(&cal);
 }
+/* A chart of many runs keeps every panel: 8 demo months (48 runs) gave 48 run names, each a
+ * series, and the chart's 64-series limit dropped the stage panel's series (the report of
+ * `calibrate` on those months failed: panel 5, "nothing to draw"). Now the names are thinned
+ * to every k-th run plus the runs left out (plot_run.c, RUN_NAMES), the stage panel holds
+ * every counted sample, and a chart that would pass the limit is an error, never drawn short. */
+static void plot_run_many_runs_keep_every_panel(void **state)
+{
+    (void)state;
+    char path[8][512];
+    const char *logs[8];
+    for (int m = 0; m < 8; m++) {
+        snprintf(path[m], sizeof path[m], STAGECAL_DATASETS "/demo/logs/2025-%02d.csv", m + 1);
+        logs[m] = path[m];
+    }
+    stagecal_calibrate_params par = stagecal_calibrate_default_params();
+    par.form = "constant";
+    par.method = STAGECAL_CAL_STAGE;
+    stagecal_calibration cal;
+    stagecal_error err;
+    stagecal_plot_chart *c = NULL;
+    int rc = stagecal_calibrate(DEMO_COLUMN, logs, 8, &par, &cal, &err);
+    if (rc)
+        print_error("%s\n", err.text);
+    assert_int_equal(rc, STAGECAL_OK);
+    assert_true(cal.log->nruns >= 40); /* the demo's K7 campaigns: six runs a month */
+    rc = stagecal_plot_run_calibration(&cal, STAGECAL_PLOT_ALL_RUNS, &c, &err);
+    if (rc)
+        print_error("%s\n", err.text);
+    assert_int_equal(rc, STAGECAL_OK);
+    size_t ok = 0, names = 0, left = 0;
+    for (size_t i = 0; i < cal.log->n; i++)
+        ok += cal.res.status[i] == STAGECAL_STAGES_OK;
+    const stagecal_plot_series *s = panel_series(c, 4, "sample's stages");
+    assert_non_null(s);
+    assert_int_equal(s->n, ok);
+    for (size_t i = 0; i < c->panels[0].n_series; i++)
+        if (c->panels[0].series[i].kind == STAGECAL_PLOT_TEXT) {
+            names++;
+            left += strstr(c->panels[0].series[i].label, "(left out)") != NULL;
+        }
+    assert_non_null(panel_series(c, 0, cal.log->runs[0].name)); /* the first run is named */
+    assert_in_range(names, 16, 24);
+    size_t nleft = 0; /* every run left out of the fit is named (there are few) */
+    for (size_t k = 0; k < cal.nflagged; k++)
+        nleft += cal.flagged[k].left_out;
+    assert_true(nleft < 8); /* (the demo's months hold a few) */
+    assert_int_equal(left, nleft);
+    stagecal_plot_chart_free(c);
+    stagecal_calibration_free(&cal);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(plot_run_windows_are_the_evidence),
         cmocka_unit_test(plot_run_marks_follow_the_analysis),
+        cmocka_unit_test(plot_run_many_runs_keep_every_panel),
     };
     return cmocka_run_group_tests(tests, group_setup, NULL);
 }
