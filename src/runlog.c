@@ -1,7 +1,7 @@
 /*
  * runlog.c — reading and validating run logs (see stagecal/runlog.h, docs/runlog.md).
  *
- * The file is fed to libcsv one physical line at a time (getline), so the row
+ * The file is fed to libcsv one physical line at a time (cut from chunks read), so the row
  * callback knows the line number it ends on; cells are parsed and range-checked
  * in the field callback while their text is at hand (messages quote the text as
  * logged), and sequence checks (time increasing, W falling, xD ≥ xB) run at the
@@ -266,8 +266,14 @@ static void keep_time_text(struct reader *rd, const char *s, size_t len)
     d[k] = '\0';
 }
 
-static void data_cell(struct reader *rd, const char *s, size_t len)
+/* A data cell's text s[0, len), NUL-terminated; or, with term (the same address, writable),
+ * a plain line's cell (reader_plain_line: no NUL byte, seven readable bytes after its end)
+ * not yet terminated: it is parsed first and terminated after, so that its eight-byte loads
+ * never wait on the store of the terminator. */
+static inline __attribute__((always_inline)) void data_cell_in(struct reader *rd, const char *s,
+                                                               size_t len, char *term)
 {
+    int clean = term != NULL;
     size_t i = rd->field++;
     if (i >= rd->nhdr || i >= MAX_FIELDS || rd->role[i] < 0)
         return;
@@ -282,8 +288,10 @@ static void data_cell(struct reader *rd, const char *s, size_t len)
     double x = NAN;
     /* a plain decimal read to its end holds no NUL byte: the search is for the rest */
     int plain = role != STAGECAL_RL_RUN && !(role == STAGECAL_RL_TIME && u->iso8601) &&
-                runlog_parse_plain(s, len, &x) == 0;
-    if (!plain && memchr(s, '\0', len)) {
+                (clean ? runlog_parse_padded(s, len, &x) : runlog_parse_plain(s, len, &x)) == 0;
+    if (clean)
+        term[len] = '\0';
+    if (!plain && !clean && memchr(s, '\0', len)) {
         reader_finding(
             rd, STAGECAL_FINDING_ERROR, rd->line, h,
             "column '%s': value contains a NUL byte (expected text; is the file UTF-16?)", h);
@@ -304,6 +312,12 @@ static void data_cell(struct reader *rd, const char *s, size_t len)
         plain = !(role == STAGECAL_RL_TIME && u->iso8601) && runlog_parse_plain(s, len, &x) == 0;
     }
     if (is_composition(role)) {
+        if (plain && x > u->lo && x < u->hi) { /* runlog_parse_fraction's answer for these */
+            rd->cens[role] = STAGECAL_CENSOR_NONE;
+            rd->raw[role] = x;
+            rd->val[role] = x * u->scale;
+            return;
+        }
         char why[STAGECAL_ERROR_TEXT];
         if (runlog_parse_fraction(s, u, plain, &x, &rd->cens[role], why, sizeof why) != 0) {
             reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, h, "column '%s': %s", h, why);
@@ -355,6 +369,60 @@ static void data_cell(struct reader *rd, const char *s, size_t len)
         keep_time_text(rd, s, len);
     rd->raw[role] = x;
     rd->val[role] = x * u->scale + u->offset;
+}
+
+static void data_cell(struct reader *rd, const char *s, size_t len)
+{
+    data_cell_in(rd, s, len, NULL);
+}
+
+void reader_plain_line(struct reader *rd, char *s, size_t n)
+{
+    unsigned char sep = (unsigned char)rd->sep;
+    /* the cells of a data row go to data_cell_in at once (which terminates them): the tests of
+     * reader_on_field give the same answer for every cell of the row (no cell sets oom, fatal
+     * or header_done) */
+    int data = !rd->oom && rd->header_done && !rd->fatal;
+    char *f = s;
+#if defined(__GNUC__) && defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
+    /* the separators eight bytes at a time: the exact zero-byte mask of w ^ sep·ones (common
+     * bit-twiddling practice, no source; exact, so every flagged byte is a separator), each
+     * cut in order, the lowest byte first; in the word that holds s[n] the bytes from s[n] on
+     * are read (the pad) but only s[n] is flagged: the last cell's end */
+    const uint64_t sepw = 0x0101010101010101u * sep, low7 = 0x7F7F7F7F7F7F7F7Fu;
+    for (size_t i = 0; i <= n; i += 8) {
+        uint64_t w, x, z;
+        memcpy(&w, s + i, 8);
+        x = w ^ sepw;
+        z = ~(((x & low7) + low7) | x | low7);
+        if (n - i < 8) {
+            unsigned b = 8 * (unsigned)(n - i);
+            z = (z & (((uint64_t)1 << b) - 1)) | ((uint64_t)0x80 << b);
+        }
+        for (; z; z &= z - 1) {
+            char *d = s + i + ((unsigned)__builtin_ctzll(z) >> 3);
+            if (data) {
+                data_cell_in(rd, f, (size_t)(d - f), f);
+            } else {
+                *d = '\0';
+                reader_on_field(f, (size_t)(d - f), rd);
+            }
+            f = d + 1;
+        }
+    }
+#else
+    for (size_t i = 0; i <= n; i++)
+        if (i == n || (unsigned char)s[i] == sep) {
+            if (data) {
+                data_cell_in(rd, f, (size_t)(s + i - f), f);
+            } else {
+                s[i] = '\0';
+                reader_on_field(f, (size_t)(s + i - f), rd);
+            }
+            f = s + i + 1;
+        }
+#endif
+    reader_on_row('\n', rd);
 }
 
 void reader_on_field(void *s, size_t len, void *data)

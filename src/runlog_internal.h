@@ -87,6 +87,12 @@ struct reader {
     int soft_unstated; /* 1 once the missing u(T) warning was given for this file */
 };
 
+/* runlog_stream.c reads a file in chunks of runlog_read_chunk bytes (tests set it small, to
+ * put chunk boundaries at every place in a line); RL_READ_PAD zero bytes follow the bytes
+ * read, so that a cell's parse may load eight bytes at a time past its end. */
+extern size_t runlog_read_chunk;
+#define RL_READ_PAD 16
+
 /* A finding about the file being read (rd->source, line; 0 = the file as a whole). */
 void reader_finding(struct reader *rd, int sev, long line, const char *column, const char *fmt, ...)
     SC_PRINTF(5, 6);
@@ -96,6 +102,11 @@ void reader_fatal(struct reader *rd, long line, const char *column, const char *
 /* libcsv callbacks (data: the reader). */
 void reader_on_field(void *s, size_t len, void *data);
 void reader_on_row(int c, void *data);
+/* A plain line s[0, n) (runlog_stream.c, plain_line: no quote, NUL, space, CR or tab other
+ * than the separator; s[n] its line feed, RL_READ_PAD readable bytes after it) cut in place
+ * at its separators and handed over as libcsv would: every cell (NUL-terminated), then the
+ * row's end. */
+void reader_plain_line(struct reader *rd, char *s, size_t n);
 /* Starts run `name` at the current row; -1 on allocation failure. */
 int reader_start_run(struct reader *rd, const char *name);
 /* The end of the current run: too few rows is an error; W rising while distillate is drawn
@@ -274,6 +285,12 @@ int runlog_parse_number(const char *s, int allow_inf, double *v);
 /* The fast path alone: 0 when s[0..len) is a plain decimal ([+-]d[.d][e[+-]d]) that ends at
  * s + len (so it holds no NUL byte), with *v exactly strtod's value; else -1. */
 int runlog_parse_plain(const char *s, size_t len, double *v);
+/* runlog_parse_plain for a cell s[0, len) that holds no NUL byte and has at least seven
+ * readable bytes after s[len] (a plain line's cell in the reader's buffer, RL_READ_PAD), the
+ * digits read eight at a time. s[len] need not be '\0' yet: 0 means runlog_parse_plain's 0
+ * and value with s[len] = '\0' (the parse stops at s[len] either way); -1 means its -1, or a
+ * byte s[len] that would continue the number (then the cell is not plain for the caller). */
+int runlog_parse_padded(const char *s, size_t len, double *v);
 
 /* Parses a composition cell as logged in unit u: a number in [u->lo, u->hi], "<v" or
  * ">v". A number at u->lo or u->hi is censored there; "<lo" and ">hi" are refused.

@@ -3,13 +3,14 @@
  * the checksums of its bytes, and the stream that hands out one run at a time (see
  * stagecal/runlog.h; the cells and rows are runlog.c's).
  *
- * A file is fed to libcsv one physical line at a time (getline), so the row callback knows
- * the line it ends on. Each line also goes through a 64-bit checksum (a file given twice is
- * refused by it) and, when the caller records provenance, SHA-256 (a fifth of the reading
- * time at 10^6 rows, so `invert` and `check` skip it). The stream stops reading as soon as
- * a second run has begun: the first is complete, and it is handed out by moving the row
- * arrays (not the rows) into the caller's log; the few rows of the next run are copied
- * back. Memory then holds one run, whatever the length of the log.
+ * A file is read in chunks (runlog_read_chunk bytes, 256 KiB) and cut into physical lines
+ * in the buffer; each line is fed to libcsv (or cut by plain_line) on its own, so the row
+ * callback knows the line it ends on. Each chunk also goes through a 64-bit checksum (a file
+ * given twice is refused by it) and, when the caller records provenance, SHA-256 (a fifth of
+ * the reading time at 10^6 rows, so `invert` and `check` skip it). The stream stops reading as soon
+ * as a second run has begun: the first is complete, and it is handed out by moving the row arrays
+ * (not the rows) into the caller's log; the few rows of the next run are copied back. Memory then
+ * holds one run, whatever the length of the log.
  */
 #include <csv.h>
 #include <errno.h>
@@ -23,22 +24,64 @@
 #include "internal_sha256.h"
 #include "runlog_internal.h"
 
-/* A 64-bit checksum of bytes, eight at a time (the multiply–rotate round of common
- * non-cryptographic hashes, common practice, no source); equal files give equal sums. */
-static uint64_t checksum_update(uint64_t h, const char *b, size_t n)
+/* A 64-bit checksum of bytes, eight at a time in four independent lanes (the multiply–rotate
+ * round of common non-cryptographic hashes, common practice, no source; four lanes so that
+ * the rounds of consecutive words do not wait on each other); equal files give equal sums,
+ * however the file was cut into reads: bytes short of a whole 32-byte block wait in tail.
+ * (The sum is compared with other files' sums, never written anywhere.) */
+struct checksum {
+    uint64_t h[4];
+    unsigned char tail[32];
+    size_t ntail;
+};
+
+static inline uint64_t checksum_round(uint64_t h, uint64_t w)
 {
-    const uint64_t k1 = 0x9E3779B97F4A7C15u, k2 = 0xC2B2AE3D27D4EB4Fu;
-    size_t i = 0;
-    for (; i + 8 <= n; i += 8) {
-        uint64_t w;
-        memcpy(&w, b + i, 8);
-        h ^= w * k1;
-        h = ((h << 31) | (h >> 33)) * k2;
+    h ^= w * 0x9E3779B97F4A7C15u;
+    return ((h << 31) | (h >> 33)) * 0xC2B2AE3D27D4EB4Fu;
+}
+
+static void checksum_blocks(struct checksum *c, const unsigned char *b, size_t n)
+{
+    uint64_t h0 = c->h[0], h1 = c->h[1], h2 = c->h[2], h3 = c->h[3];
+    for (size_t i = 0; i + 32 <= n; i += 32) {
+        uint64_t w[4];
+        memcpy(w, b + i, 32);
+        h0 = checksum_round(h0, w[0]);
+        h1 = checksum_round(h1, w[1]);
+        h2 = checksum_round(h2, w[2]);
+        h3 = checksum_round(h3, w[3]);
     }
-    for (; i < n; i++) {
-        h ^= (uint64_t)(unsigned char)b[i] * k1;
-        h = ((h << 31) | (h >> 33)) * k2;
+    c->h[0] = h0, c->h[1] = h1, c->h[2] = h2, c->h[3] = h3;
+}
+
+static void checksum_update(struct checksum *c, const char *text, size_t n)
+{
+    const unsigned char *b = (const unsigned char *)text;
+    if (c->ntail) {
+        size_t k = n < 32 - c->ntail ? n : 32 - c->ntail;
+        memcpy(c->tail + c->ntail, b, k);
+        c->ntail += k;
+        b += k;
+        n -= k;
+        if (c->ntail < 32)
+            return;
+        checksum_blocks(c, c->tail, 32);
+        c->ntail = 0;
     }
+    size_t whole = n & ~(size_t)31;
+    checksum_blocks(c, b, whole);
+    memcpy(c->tail, b + whole, n - whole);
+    c->ntail = n - whole;
+}
+
+static uint64_t checksum_final(const struct checksum *c)
+{
+    uint64_t h = c->h[0];
+    for (int k = 1; k < 4; k++)
+        h = checksum_round(h, c->h[k]);
+    for (size_t i = 0; i < c->ntail; i++)
+        h = checksum_round(h, c->tail[i]);
     return h;
 }
 
@@ -48,10 +91,14 @@ struct file_read {
     FILE *in;
     int close_in; /* 1: in was opened here */
     struct csv_parser p;
+    /* the bytes read: buf[pos, end) not yet taken as lines, then RL_READ_PAD zero bytes; cap
+     * bytes of room before the pad (runlog_read_chunk, doubled while one line fills it) */
     char *buf;
-    size_t cap;
+    size_t cap, pos, end;
+    int eof; /* no more bytes will come (end of file or a read error) */
     sha256_ctx hash;
-    uint64_t sum, nbytes; /* checksum and byte count so far */
+    struct checksum sum;
+    uint64_t nbytes;      /* bytes read */
     size_t errors_before; /* f->n_errors when the file began */
     /* A quoted cell may span lines (a notes column written by a spreadsheet); quote_line is
      * the line where the quoted cell still open at the end of the last line began, 0 when
@@ -109,92 +156,157 @@ static int file_begin(struct file_read *fr, stagecal_runlog *log, FILE *in, cons
  * line ends in a line feed and holds no quote, carriage return, NUL, space or tab (other than
  * a tab separator) — the plain numeric rows of a historian's export — libcsv (default
  * options with CSV_APPEND_NULL) would hand over exactly the separator-delimited pieces, each
- * NUL-terminated, then end the row; here they are cut in place. Every other line (quotes,
- * trimmed spaces, CR LF endings, a row continued from the last line) goes to libcsv. Returns
- * 1 when the line was read here. */
-static int plain_line(struct file_read *fr, char *s, size_t len)
+ * NUL-terminated, then end the row; reader_plain_line cuts them in place. Every other line
+ * (quotes, trimmed spaces, CR LF endings, a row continued from the last line) goes to libcsv.
+ * clean: the line's bytes before its last are plain, and its last is the line feed
+ * (file_pump found it with plain_stop). Returns 1 when the line was read here. */
+static int plain_line(struct file_read *fr, char *s, size_t len, int clean)
 {
-    unsigned char sep = (unsigned char)fr->rd->sep;
-    if (fr->p.pstate != 0 || fr->p.entry_pos != 0 || len < 2 || s[len - 1] != '\n')
+    if (!clean || fr->p.pstate != 0 || fr->p.entry_pos != 0 || len < 2)
         return 0; /* (pstate 0: libcsv's ROW_NOT_BEGUN) */
-    /* eight bytes at a time: a word with no byte below 0x21 and none equal to '"' passes
-     * whole (the exact any-byte tests of common bit-twiddling practice, no source); a word
-     * with one is looked at byte by byte (a tab separator is below 0x21 and allowed) */
-    const uint64_t ones = 0x0101010101010101u, highs = 0x8080808080808080u;
-    size_t i = 0;
-    for (; i + 9 <= len; i += 8) {
-        uint64_t w, q;
-        memcpy(&w, s + i, 8);
-        q = w ^ (ones * '"');
-        if ((((w - ones * 0x21) & ~w) | ((q - ones) & ~q)) & highs)
-            for (size_t j = i; j < i + 8; j++) {
-                unsigned char c = (unsigned char)s[j];
-                if ((c <= ' ' && c != sep) || c == '"')
-                    return 0;
-            }
-    }
-    for (; i + 1 < len; i++) {
-        unsigned char c = (unsigned char)s[i];
-        if ((c <= ' ' && c != sep) || c == '"')
-            return 0;
-    }
-    /* the separators eight bytes at a time: the exact zero-byte mask of w ^ sep·ones (common
-     * bit-twiddling practice, no source; exact, so every flagged byte is a separator), each
-     * cut in order, the lowest byte first */
-    char *f = s, *end = s + len - 1;
-    *end = '\0';
-    const uint64_t sepw = ones * sep, low7 = 0x7F7F7F7F7F7F7F7Fu;
-    size_t n = len - 1;
-    i = 0;
-#if defined(__GNUC__) && defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
-    for (; i + 8 <= n; i += 8) {
-        uint64_t w, x, z;
-        memcpy(&w, s + i, 8);
-        x = w ^ sepw;
-        z = ~(((x & low7) + low7) | x | low7);
-        for (; z; z &= z - 1) {
-            char *d = s + i + ((unsigned)__builtin_ctzll(z) >> 3);
-            *d = '\0';
-            reader_on_field(f, (size_t)(d - f), fr->rd);
-            f = d + 1;
-        }
-    }
-#endif
-    for (; i < n; i++)
-        if ((unsigned char)s[i] == sep) {
-            s[i] = '\0';
-            reader_on_field(f, (size_t)(s + i - f), fr->rd);
-            f = s + i + 1;
-        }
-    reader_on_field(f, (size_t)(end - f), fr->rd);
-    reader_on_row('\n', fr->rd);
+    reader_plain_line(fr->rd, s, len - 1);
     return 1;
 }
 
+/* Whether plain_stop can look for a line with separator sep: not when the separator is a
+ * byte that must stop it (NUL, the line feed). */
+static int plain_stop_ok(unsigned char sep)
+{
+    return sep != '\0' && sep != '\n';
+}
+
+/* The first byte from s on that a plain line may not hold before its end: a byte below 0x21
+ * other than the separator (the line feed, CR, NUL, space, tab) or '"'. Eight bytes at a time
+ * with exact per-byte masks (common bit-twiddling practice, no source): below 0x21 when the
+ * byte's high bit is clear and its low seven bits plus 0x5F do not reach 0x80; equal to a
+ * byte c when the byte of w ^ c·ones is zero. The zero bytes after the bytes read (the pad)
+ * stop it there at the latest (plain_stop_ok). */
+static inline char *plain_stop(char *s, unsigned char sep)
+{
+#if defined(__GNUC__) && defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
+    const uint64_t ones = 0x0101010101010101u, low7 = 0x7F7F7F7F7F7F7F7Fu;
+    const uint64_t quotes = ones * '"', seps = ones * sep;
+    int sep_low = sep < 0x21;
+    for (;; s += 8) {
+        uint64_t w, x, m;
+        memcpy(&w, s, 8);
+        m = ~(((w & low7) + ones * 0x5F) | w) & ~low7; /* below 0x21 */
+        if (sep_low) {
+            x = w ^ seps;
+            m &= ((x & low7) + low7) | x; /* not the separator */
+        }
+        x = w ^ quotes;
+        m |= ~(((x & low7) + low7) | x | low7); /* '"' */
+        if (m)
+            return s + ((unsigned)__builtin_ctzll(m) >> 3);
+    }
+#else
+    for (;; s++)
+        if (((unsigned char)*s <= ' ' && (unsigned char)*s != sep) || *s == '"')
+            return s;
+#endif
+}
+
+/* plain_stop within a line of len bytes, a byte at a time (the header line, whose separator
+ * is known only once it is read, and separators plain_stop cannot take); s + len when none. */
+static const char *plain_stop_bytes(const char *s, size_t len, unsigned char sep)
+{
+    for (size_t i = 0; i < len; i++) {
+        unsigned char c = (unsigned char)s[i];
+        if ((c <= ' ' && c != sep) || c == '"')
+            return s + i;
+    }
+    return s + len;
+}
+
+size_t runlog_read_chunk = (size_t)256 << 10;
+
+/* Reads more of the file behind the bytes not yet taken (moved to the buffer's start), into
+ * a buffer twice as large when one line fills it, and hashes what came. 1 when bytes came,
+ * 0 when none will (the end, a read error: read_errno, or no memory: rd->oom). */
+static int file_fill(struct file_read *fr)
+{
+    if (fr->eof)
+        return 0;
+    size_t keep = fr->end - fr->pos;
+    if (fr->pos) {
+        memmove(fr->buf, fr->buf + fr->pos, keep);
+        fr->pos = 0;
+        fr->end = keep;
+    }
+    if (keep == fr->cap) {
+        size_t cap = fr->cap ? 2 * fr->cap : runlog_read_chunk ? runlog_read_chunk : 1;
+        char *buf = cap > fr->cap ? realloc(fr->buf, cap + RL_READ_PAD) : NULL;
+        if (!buf) {
+            fr->rd->oom = 1;
+            return 0;
+        }
+        fr->buf = buf;
+        fr->cap = cap;
+    }
+    size_t want = fr->cap - keep, got = fread(fr->buf + keep, 1, want, fr->in);
+    if (got < want) {
+        fr->eof = 1;
+        fr->read_errno = ferror(fr->in) ? errno : 0;
+    }
+    if (fr->rd->par.sha256)
+        sha256_update(&fr->hash, fr->buf + keep, got);
+    checksum_update(&fr->sum, fr->buf + keep, got);
+    fr->nbytes += got;
+    fr->end = keep + got;
+    memset(fr->buf + fr->end, 0, RL_READ_PAD);
+    return got > 0;
+}
+
 /* Reads lines to the end of the file or, with stop, until the log holds a complete run (a
- * second one has begun). Returns 1 at the end (or a failure), 0 when stopped. */
+ * second one has begun). Lines are cut from the buffer as getline would cut them (at each
+ * line feed; the last one may lack it; NUL bytes are bytes). Returns 1 at the end (or a
+ * failure), 0 when stopped. */
 static int file_pump(struct file_read *fr, int stop)
 {
     struct reader *rd = fr->rd;
-    ssize_t len;
     while (!rd->oom) {
         if (stop && rd->log->nruns >= 2)
             return 0;
-        if ((len = getline(&fr->buf, &fr->cap, fr->in)) <= 0)
-            break;
+        unsigned char sep = (unsigned char)rd->sep;
+        char *s = NULL, *nl = NULL; /* (buf is NULL before the first read) */
+        int clean = -1;             /* -1: not known yet */
+        if (fr->end > fr->pos) {
+            s = fr->buf + fr->pos;
+            char *e = fr->buf + fr->end;
+            if (rd->line > 0 && plain_stop_ok(sep)) {
+                /* the line's end found by the plain line's test: most lines are plain */
+                char *q = plain_stop(s, sep);
+                clean = q < e && *q == '\n';
+                nl = clean ? q : q < e ? memchr(q, '\n', (size_t)(e - q)) : NULL;
+            } else {
+                nl = memchr(s, '\n', (size_t)(e - s));
+            }
+        }
+        size_t len;
+        if (nl) {
+            len = (size_t)(nl - s) + 1;
+        } else {
+            if (file_fill(fr))
+                continue;
+            if (rd->oom || fr->end == fr->pos)
+                break;
+            s = fr->buf + fr->pos; /* the last line, without a line feed */
+            len = fr->end - fr->pos;
+            clean = 0;
+        }
+        fr->pos += len;
         if (rd->line++ == 0) {
-            rd->sep = runlog_detect_separator(fr->buf, (size_t)len, rd->par.csv_separator);
+            rd->sep = runlog_detect_separator(s, len, rd->par.csv_separator);
             rd->decimal_comma = rd->sep != ',';
             csv_set_delim(&fr->p, (unsigned char)rd->sep);
         }
-        if (rd->par.sha256)
-            sha256_update(&fr->hash, fr->buf, (size_t)len);
-        fr->sum = checksum_update(fr->sum, fr->buf, (size_t)len);
-        fr->nbytes += (uint64_t)len;
-        fr->last_nl = fr->buf[len - 1] == '\n';
-        if (!plain_line(fr, fr->buf, (size_t)len) &&
-            csv_parse(&fr->p, fr->buf, (size_t)len, reader_on_field, reader_on_row, rd) !=
-                (size_t)len) {
+        if (clean < 0)
+            clean = s[len - 1] == '\n' &&
+                    plain_stop_bytes(s, len - 1, (unsigned char)rd->sep) == s + len - 1;
+        fr->last_nl = s[len - 1] == '\n';
+        if (!plain_line(fr, s, len, clean) &&
+            csv_parse(&fr->p, s, len, reader_on_field, reader_on_row, rd) != len) {
             reader_finding(rd, STAGECAL_FINDING_ERROR, rd->line, NULL, "%s",
                            csv_strerror(csv_error(&fr->p)));
             fr->parse_failed = 1;
@@ -206,7 +318,6 @@ static int file_pump(struct file_read *fr, int stop)
             fr->quote_line = rd->line;
     }
     fr->read_failed = ferror(fr->in);
-    fr->read_errno = errno;
     return 1;
 }
 
@@ -239,7 +350,7 @@ static int file_end(struct file_read *fr, stagecal_runlog *log, stagecal_error *
         sha256_to_hex(digest, log->sha256[me]);
     }
     log->checksum[me][0] = fr->nbytes;
-    log->checksum[me][1] = fr->sum;
+    log->checksum[me][1] = checksum_final(&fr->sum);
     int rc = STAGECAL_OK;
     if (rd->oom) {
         rc = error_set(err, STAGECAL_ENOMEM, "out of memory");
@@ -264,7 +375,8 @@ static int file_end(struct file_read *fr, stagecal_runlog *log, stagecal_error *
                            rd->par.min_rows);
         /* The same bytes twice would count the same runs twice as independent evidence. */
         for (size_t k = 0; k < me; k++) {
-            if (log->checksum[k][0] != fr->nbytes || log->checksum[k][1] != fr->sum)
+            if (log->checksum[k][0] != log->checksum[me][0] ||
+                log->checksum[k][1] != log->checksum[me][1])
                 continue;
             if (log->sha256[k][0] && log->sha256[me][0])
                 reader_finding(rd, STAGECAL_FINDING_ERROR, 0, NULL,
