@@ -266,15 +266,14 @@ static void keep_time_text(struct reader *rd, const char *s, size_t len)
     d[k] = '\0';
 }
 
-/* A data cell's text s[0, len), NUL-terminated; or, with term (the same address, writable),
+/* Data cell i's text s[0, len), NUL-terminated; or, with term (the same address, writable),
  * a plain line's cell (reader_plain_line: no NUL byte, seven readable bytes after its end)
  * not yet terminated: it is parsed first and terminated after, so that its eight-byte loads
  * never wait on the store of the terminator. */
-static inline __attribute__((always_inline)) void data_cell_in(struct reader *rd, const char *s,
-                                                               size_t len, char *term)
+static inline __attribute__((always_inline)) void
+data_cell_in(struct reader *rd, size_t i, const char *s, size_t len, char *term)
 {
     int clean = term != NULL;
-    size_t i = rd->field++;
     if (i >= rd->nhdr || i >= MAX_FIELDS || rd->role[i] < 0)
         return;
     int role = rd->role[i];
@@ -288,7 +287,8 @@ static inline __attribute__((always_inline)) void data_cell_in(struct reader *rd
     double x = NAN;
     /* a plain decimal read to its end holds no NUL byte: the search is for the rest */
     int plain = role != STAGECAL_RL_RUN && !(role == STAGECAL_RL_TIME && u->iso8601) &&
-                (clean ? runlog_parse_padded(s, len, &x) : runlog_parse_plain(s, len, &x)) == 0;
+                (clean ? runlog_parse_short(s, len, &x) == 0 || runlog_parse_padded(s, len, &x) == 0
+                       : runlog_parse_plain(s, len, &x) == 0);
     if (clean)
         term[len] = '\0';
     if (!plain && !clean && memchr(s, '\0', len)) {
@@ -373,7 +373,7 @@ static inline __attribute__((always_inline)) void data_cell_in(struct reader *rd
 
 static void data_cell(struct reader *rd, const char *s, size_t len)
 {
-    data_cell_in(rd, s, len, NULL);
+    data_cell_in(rd, rd->field++, s, len, NULL);
 }
 
 void reader_plain_line(struct reader *rd, char *s, size_t n)
@@ -384,6 +384,7 @@ void reader_plain_line(struct reader *rd, char *s, size_t n)
      * or header_done) */
     int data = !rd->oom && rd->header_done && !rd->fatal;
     char *f = s;
+    size_t field = rd->field; /* (the cell count kept here, stored for the row's end) */
 #if defined(__GNUC__) && defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
     /* the separators eight bytes at a time: the exact zero-byte mask of w ^ sep·ones (common
      * bit-twiddling practice, no source; exact, so every flagged byte is a separator), each
@@ -402,10 +403,11 @@ void reader_plain_line(struct reader *rd, char *s, size_t n)
         for (; z; z &= z - 1) {
             char *d = s + i + ((unsigned)__builtin_ctzll(z) >> 3);
             if (data) {
-                data_cell_in(rd, f, (size_t)(d - f), f);
+                data_cell_in(rd, field++, f, (size_t)(d - f), f);
             } else {
                 *d = '\0';
                 reader_on_field(f, (size_t)(d - f), rd);
+                field = rd->field;
             }
             f = d + 1;
         }
@@ -414,14 +416,16 @@ void reader_plain_line(struct reader *rd, char *s, size_t n)
     for (size_t i = 0; i <= n; i++)
         if (i == n || (unsigned char)s[i] == sep) {
             if (data) {
-                data_cell_in(rd, f, (size_t)(s + i - f), f);
+                data_cell_in(rd, field++, f, (size_t)(s + i - f), f);
             } else {
                 s[i] = '\0';
                 reader_on_field(f, (size_t)(s + i - f), rd);
+                field = rd->field;
             }
             f = s + i + 1;
         }
 #endif
+    rd->field = field;
     reader_on_row('\n', rd);
 }
 

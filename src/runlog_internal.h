@@ -5,6 +5,8 @@
 #define STAGECAL_RUNLOG_INTERNAL_H
 
 #include <stdarg.h>
+#include <stdint.h>
+#include <string.h>
 
 #include "internal.h"
 #include "stagecal/physics.h"
@@ -291,6 +293,65 @@ int runlog_parse_plain(const char *s, size_t len, double *v);
  * and value with s[len] = '\0' (the parse stops at s[len] either way); -1 means its -1, or a
  * byte s[len] that would continue the number (then the cell is not plain for the caller). */
 int runlog_parse_padded(const char *s, size_t len, double *v);
+
+/* runlog_parse_padded's common case, inline: one to eight bytes after the sign, all digits
+ * but at most one point (the cells of most logs). Those bytes are taken in one word; per
+ * byte, exactly, x = byte ^ '0' is a digit's value when its high nibble is 0 and its low
+ * nibble plus 6 does not carry into the high one, and a byte is '.' when that of w ^ '.'·ones
+ * is zero (common bit-twiddling practice, no source); the point is taken out, the digits are
+ * moved to the word's top bytes (zero bytes, leading zeros, below them) and summed in pairs,
+ * fours and eights by three multiplications (the eight-digit conversion of common
+ * SIMD-within-a-register practice, no source). The digit loops of runlog_parse_plain give the
+ * same integer m (fewer than 2^53) and the same power of ten, so the same one IEEE operation
+ * gives the same double. -1: not of this form (runlog_parse_padded decides). */
+static inline int runlog_parse_short(const char *s, size_t len, double *v)
+{
+#if defined(__GNUC__) && defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
+    static const double p10[] = {1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8};
+    const char *p = s;
+    int neg = 0;
+    if (*p == '-' || *p == '+')
+        neg = *p++ == '-';
+    size_t n = len - (size_t)(p - s);
+    if (n - 1 >= 8)
+        return -1;
+    const uint64_t lo4 = 0x0F0F0F0F0F0F0F0Fu, hi4 = 0xF0F0F0F0F0F0F0F0u, low7 = 0x7F7F7F7F7F7F7F7Fu,
+                   ones = 0x0101010101010101u;
+    uint64_t w, x, y, keep = n == 8 ? ~(uint64_t)0 : ((uint64_t)1 << (8 * n)) - 1;
+    memcpy(&w, p, 8);
+    x = (w ^ ones * '0') & keep;
+    y = w ^ ones * '.';
+    uint64_t point = ~(((y & low7) + low7) | y | low7) & keep; /* 0x80 in a '.' byte */
+    uint64_t other = (x | ((x & lo4) + ones * 6)) & hi4 & keep & ~((point >> 7) * 0xF0);
+    if (other != 0 || (point & (point - 1)) != 0 || (point && n == 1))
+        return -1;
+    unsigned nd = (unsigned)n, j = 0;
+    if (point) {
+        j = (unsigned)__builtin_ctzll(point) >> 3;
+        uint64_t below = ((uint64_t)1 << (8 * j)) - 1;
+        x = (x & below) | ((x >> 8) & ~below);
+        nd--;
+    }
+    x <<= 8 * (8 - nd);
+    x = (x * 10) + (x >> 8);
+    x = (((x & 0x000000FF000000FFu) * (100 + (1000000ull << 32))) +
+         (((x >> 16) & 0x000000FF000000FFu) * (1 + (10000ull << 32)))) >>
+        32;
+    /* (double)x, exactly (x < 2^27), as 2^52 + x less 2^52: a conversion instruction would
+     * write half a register and so wait for the last value in it, the cell before's quotient,
+     * chaining every cell's division to the one before */
+    uint64_t bits = x | 0x4330000000000000u;
+    double r;
+    memcpy(&r, &bits, sizeof r);
+    r -= 4503599627370496.0;
+    r = point ? r / p10[nd - j] : r * p10[0];
+    *v = neg ? -r : r;
+    return 0;
+#else
+    (void)s, (void)len, (void)v;
+    return -1;
+#endif
+}
 
 /* Parses a composition cell as logged in unit u: a number in [u->lo, u->hi], "<v" or
  * ">v". A number at u->lo or u->hi is censored there; "<lo" and ">hi" are refused.

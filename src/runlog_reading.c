@@ -101,42 +101,12 @@ int runlog_parse_padded(const char *s, size_t len, double *v)
     static const double p10[] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
                                  1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
                                  1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
+    if (runlog_parse_short(s, len, v) == 0)
+        return 0;
     const char *p = s;
     int neg = 0;
     if (*p == '-' || *p == '+')
         neg = *p++ == '-';
-    size_t n = len - (size_t)(p - s);
-    if (n - 1 < 8) {
-        /* one to eight bytes after the sign, all digits but at most one point (the cells of
-         * most logs): those bytes in one word, the point taken out, the digits converted at
-         * once; m and e are the digit loops' */
-        const uint64_t lo4 = 0x0F0F0F0F0F0F0F0Fu, hi4 = 0xF0F0F0F0F0F0F0F0u,
-                       low7 = 0x7F7F7F7F7F7F7F7Fu, ones = 0x0101010101010101u;
-        uint64_t w, x, y, keep = n == 8 ? ~(uint64_t)0 : ((uint64_t)1 << (8 * n)) - 1;
-        memcpy(&w, p, 8);
-        x = (w ^ ones * '0') & keep;
-        y = w ^ ones * '.';
-        uint64_t point = ~(((y & low7) + low7) | y | low7) & keep; /* 0x80 in a '.' byte */
-        uint64_t other = (x | ((x & lo4) + ones * 6)) & hi4 & keep & ~((point >> 7) * 0xF0);
-        if (other == 0 && (point & (point - 1)) == 0 && !(point && n == 1)) {
-            unsigned nd = (unsigned)n, j = 0;
-            if (point) {
-                j = (unsigned)__builtin_ctzll(point) >> 3;
-                uint64_t below = ((uint64_t)1 << (8 * j)) - 1;
-                x = (x & below) | ((x >> 8) & ~below);
-                nd--;
-            }
-            x <<= 8 * (8 - nd);
-            x = (x * 10) + (x >> 8);
-            x = (((x & 0x000000FF000000FFu) * (100 + (1000000ull << 32))) +
-                 (((x >> 16) & 0x000000FF000000FFu) * (1 + (10000ull << 32)))) >>
-                32;
-            double r = (double)x;
-            r = point ? r / p10[nd - j] : r * p10[0];
-            *v = neg ? -r : r;
-            return 0;
-        }
-    }
     /* the integer digits, then those after a point, eight bytes at a time: m and the counts
      * as parse_fast's digit loops give them (m exact while nd <= 19; more digits: -1) */
     uint64_t m = 0, d = 0, w;

@@ -3,7 +3,7 @@
  * the checksums of its bytes, and the stream that hands out one run at a time (see
  * stagecal/runlog.h; the cells and rows are runlog.c's).
  *
- * A file is read in chunks (runlog_read_chunk bytes, 256 KiB) and cut into physical lines
+ * A file is read in chunks (runlog_read_chunk bytes, 64 KiB) and cut into physical lines
  * in the buffer; each line is fed to libcsv (or cut by plain_line) on its own, so the row
  * callback knows the line it ends on. Each chunk also goes through a 64-bit checksum (a file
  * given twice is refused by it) and, when the caller records provenance, SHA-256 (a fifth of
@@ -219,7 +219,7 @@ static const char *plain_stop_bytes(const char *s, size_t len, unsigned char sep
     return s + len;
 }
 
-size_t runlog_read_chunk = (size_t)256 << 10;
+size_t runlog_read_chunk = (size_t)64 << 10;
 
 /* Reads more of the file behind the bytes not yet taken (moved to the buffer's start), into
  * a buffer twice as large when one line fills it, and hashes what came. 1 when bytes came,
