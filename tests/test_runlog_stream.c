@@ -5,7 +5,8 @@
  * Oracles: glibc's strtod for the numbers (correctly rounded, as C11 7.22.1.3 recommends
  * and glibc documents); for the stream, the whole-file reader stagecal_runlog_read (the
  * same rows, values, lines, runs and findings, in the same order, on the demo logs and on
- * every bad input of tests/badinput/); for the reader's own cutting of plain lines, libcsv.
+ * every bad input of tests/badinput/); for the reader's own cutting of plain lines, libcsv;
+ * for the reading in chunks, the text read in one chunk and the rows as the test wrote them.
  */
 #include <setjmp.h>
 #include <stdarg.h>
@@ -602,6 +603,290 @@ static void runlog_plain_lines_any_width(void **state)
     stagecal_column_free(&col);
 }
 
+/* ---- the reader's buffer: chunks, the cells parsed in place --------------------------- */
+
+/* runlog_parse_padded (and its inline common case runlog_parse_short) against
+ * runlog_parse_plain on the same cell, NUL-terminated (oracle: test 1 checks runlog_parse_plain
+ * against strtod). The padded parse reads the cell in the reader's buffer, where the byte
+ * after the cell is a separator or, not yet terminated, anything: with a byte that cannot go
+ * on with a number (',' ';' tab NUL '/' ':') it must give runlog_parse_plain's answer, bit
+ * for bit; with a digit, '.', 'e' after it, a 0 must still be runlog_parse_plain's. Cells:
+ * decimals of 1–20 digits with the point anywhere and signs, random strings of number
+ * characters with '/' and ':' (the bytes next to the digits), formatted numbers. Every
+ * one-to-eight-byte cell of digits and at most one point must take the short path.
+ * Tolerance: none. Fails when the short path's digit test takes ':' for a digit (ones * 6
+ * -> ones * 5), when it accepts two points (the point & (point - 1) test removed), when it
+ * divides by the wrong power (p10[nd - j] -> p10[nd - j - 1]) or when the eight-digit step of
+ * the long path stops early (k == 8 -> k == 7). */
+static void runlog_padded_parse_as_plain(void **state)
+{
+    (void)state;
+    gsl_rng *rng = gsl_rng_alloc(gsl_rng_mt19937);
+    gsl_rng_set(rng, 23);
+    const char al[] = "0123456789.eE+-/:";
+    const char stops[] = {',', ';', '\t', '\0', '/', ':'}, goes[] = {'5', '.', 'e', '0'};
+    char cell[48], buf[80], term[48];
+    size_t differ = 0, short_hits = 0, long_hits = 0, short_form = 0, short_missed = 0;
+    for (int it = 0; it < 600000; it++) {
+        int mode = it % 3;
+        size_t len;
+        if (mode == 0) {
+            size_t nd = 1 + gsl_rng_uniform_int(rng, 20), k = 0;
+            if (gsl_rng_uniform_int(rng, 3) == 0)
+                cell[k++] = gsl_rng_uniform_int(rng, 2) ? '-' : '+';
+            size_t point = gsl_rng_uniform_int(rng, nd + 2); /* nd + 1: none */
+            for (size_t d = 0; d <= nd; d++) {
+                if (d == point)
+                    cell[k++] = '.';
+                if (d < nd)
+                    cell[k++] = (char)('0' + gsl_rng_uniform_int(rng, 10));
+            }
+            len = k;
+        } else if (mode == 1) {
+            len = 1 + gsl_rng_uniform_int(rng, 12);
+            for (size_t i = 0; i < len; i++)
+                cell[i] = al[gsl_rng_uniform_int(rng, sizeof al - 1)];
+        } else {
+            double x = gsl_rng_uniform(rng) * pow(10, (int)gsl_rng_uniform_int(rng, 16) - 8);
+            len = (size_t)snprintf(cell, sizeof cell, "%.*f", (int)gsl_rng_uniform_int(rng, 9), x);
+        }
+        int stop = gsl_rng_uniform_int(rng, 4) != 0;
+        char after = stop ? stops[gsl_rng_uniform_int(rng, sizeof stops)]
+                          : goes[gsl_rng_uniform_int(rng, sizeof goes)];
+        memcpy(buf, cell, len);
+        buf[len] = after;
+        for (size_t i = len + 1; i < sizeof buf; i++)
+            buf[i] = al[gsl_rng_uniform_int(rng, sizeof al - 1)];
+        memcpy(term, cell, len);
+        term[len] = '\0';
+        double want = NAN, got = NAN, got_short = NAN;
+        int rw = runlog_parse_plain(term, len, &want), rg = runlog_parse_padded(buf, len, &got);
+        int rs = runlog_parse_short(buf, len, &got_short);
+        int bad = 0;
+        if (stop)
+            bad = rg != rw || (rg == 0 && memcmp(&got, &want, sizeof got) != 0);
+        else
+            bad = rg == 0 && (rw != 0 || memcmp(&got, &want, sizeof got) != 0);
+        if (rs == 0 && (rw != 0 || memcmp(&got_short, &want, sizeof got) != 0))
+            bad = 1;
+        /* the short form: [+-] then one to eight bytes, digits and at most one point */
+        size_t sign = cell[0] == '+' || cell[0] == '-', digits = 0, points = 0;
+        for (size_t i = sign; i < len; i++) {
+            digits += cell[i] >= '0' && cell[i] <= '9';
+            points += cell[i] == '.';
+        }
+        if (len - sign >= 1 && len - sign <= 8 && digits >= 1 && digits + points == len - sign &&
+            points <= 1) {
+            short_form++;
+            short_missed += rs != 0;
+        }
+        if (bad && differ++ < 5)
+            print_error("'%.*s' then 0x%02x: padded %d %.17g short %d, plain %d %.17g\n", (int)len,
+                        cell, (unsigned char)after, rg, got, rs, rw, want);
+        short_hits += rs == 0;
+        long_hits += rg == 0 && rs != 0;
+    }
+    gsl_rng_free(rng);
+    assert_int_equal(differ, 0);
+    assert_int_equal(short_missed, 0);
+    assert_true(short_form > 100000 && short_hits > 100000); /* both paths taken, often */
+    assert_true(long_hits > 50000);
+}
+
+/* Text of a log for the chunk tests: plain rows and, among them, a CR LF row, a row with
+ * spaces (trimmed by libcsv), a quoted note that spans two lines, an empty line, a NUL byte
+ * in a cell, a note longer than the small chunks, and a last line without a line feed. Per
+ * complete row the line it ends on and its xD as written go to lines[] and xd[]. */
+static size_t chunk_text(char *text, size_t cap, long *lines, char (*xd)[16], size_t *nrows)
+{
+    size_t len =
+        (size_t)snprintf(text, cap, "run,time[s],W[kmol],xD[mol/mol],xB[mol/mol],R,note\n");
+    long line = 1;
+    *nrows = 0;
+    for (int k = 0; k < 160; k++) {
+        char xs[16];
+        snprintf(xs, sizeof xs, "0.%d", 900000 + 613 * k);
+        const char *note = "";
+        char longnote[400];
+        int lines_in_row = 1;
+        switch (k % 23) {
+        case 3:
+            note = "\"spans\ntwo lines\"";
+            lines_in_row = 2;
+            break;
+        case 7:
+            memset(longnote, 'n', 300);
+            longnote[300] = '\0';
+            note = longnote;
+            break;
+        default:
+            break;
+        }
+        const char *end = k % 23 == 5 ? "\r\n" : "\n";
+        if (k == 159)
+            end = ""; /* the last line: no line feed */
+        if (k % 23 == 11) {
+            text[len++] = '\n'; /* an empty line (libcsv skips it) */
+            line++;
+        }
+        if (k % 23 == 13) { /* a NUL byte in the W cell: a finding, the row kept */
+            len += (size_t)snprintf(text + len, cap - len, "r%d,%d,19.5", k / 40, 10 * k);
+            text[len++] = '\0';
+            len += (size_t)snprintf(text + len, cap - len, ",%s,0.3,4,\n", xs);
+        } else {
+            len += (size_t)snprintf(text + len, cap - len, "r%d,%d,%s%.4f,%s,0.%d,%d,%s%s", k / 40,
+                                    10 * k, k % 23 == 17 ? " " : "", 20.0 - 0.01 * k, xs,
+                                    300000 + 17 * k, 2 + k % 5, note, end);
+        }
+        line += lines_in_row;
+        lines[*nrows] = line;
+        snprintf(xd[*nrows], sizeof xd[0], "%s", xs);
+        (*nrows)++;
+    }
+    return len;
+}
+
+/* Reads text with chunks of `chunk` bytes (SHA-256 on). */
+static void read_chunked(const char *text, size_t len, size_t chunk, const stagecal_column *col,
+                         stagecal_runlog **log, stagecal_findings **f)
+{
+    size_t keep = runlog_read_chunk;
+    runlog_read_chunk = chunk;
+    stagecal_runlog_params rp = stagecal_runlog_default_params();
+    rp.sha256 = 1;
+    *log = stagecal_runlog_alloc();
+    *f = stagecal_findings_alloc(1000);
+    int rc = stagecal_runlog_read_buffer(*log, text, len, "chunks.csv", col, &rp, *f, NULL);
+    runlog_read_chunk = keep;
+    assert_int_equal(rc, STAGECAL_OK);
+}
+
+/* Two reads of one text agree in everything the reader hands over. */
+static void assert_same_read(const stagecal_runlog *a, const stagecal_findings *fa,
+                             const stagecal_runlog *b, const stagecal_findings *fb)
+{
+    assert_int_equal(a->n, b->n);
+    assert_int_equal(a->nruns, b->nruns);
+    for (size_t k = 0; k < a->nruns; k++) {
+        assert_string_equal(a->runs[k].name, b->runs[k].name);
+        assert_int_equal(a->runs[k].n, b->runs[k].n);
+        assert_int_equal(a->runs[k].first_line, b->runs[k].first_line);
+    }
+    for (size_t w = 0; w < a->n; w++) {
+        double va[] = {a->t_s[w], a->w_mol[w], a->xd[w], a->xb[w], a->r[w]};
+        double vb[] = {b->t_s[w], b->w_mol[w], b->xd[w], b->xb[w], b->r[w]};
+        assert_memory_equal(va, vb, sizeof va);
+        assert_int_equal(a->line[w], b->line[w]);
+        assert_int_equal(a->xd_cens[w], b->xd_cens[w]);
+        assert_int_equal(a->xb_cens[w], b->xb_cens[w]);
+    }
+    assert_int_equal(fa->n, fb->n);
+    for (size_t k = 0; k < fa->n; k++)
+        assert_string_equal(fa->items[k].text, fb->items[k].text);
+    assert_int_equal(a->checksum[0][0], b->checksum[0][0]);
+    assert_int_equal(a->checksum[0][1], b->checksum[0][1]);
+    assert_string_equal(a->sha256[0], b->sha256[0]);
+}
+
+/* The file is read in chunks and cut into lines in the buffer (runlog_stream.c): a line cut
+ * by a chunk boundary is carried over. Every chunk size from 1 to 130 bytes (the lines are
+ * 40–330 bytes, so every boundary falls at every offset of the lines and of the eight-byte
+ * words the reader scans), 1000, 4096 and the default, against the text read in one chunk:
+ * the same rows, values (bit for bit), lines, runs, findings, byte count, checksum and
+ * SHA-256. Oracles for the one-chunk read itself: the rows' count, the line each ends on and
+ * its xD, as the test wrote them (xD by strtod), and the byte count. Fails when file_fill
+ * does not carry the cut line over (memmove removed), when the checksum drops the bytes short
+ * of a 32-byte block (ntail not kept) or when a line found at the buffer's end without its
+ * line feed is taken before the next read. */
+static void runlog_chunk_boundaries_anywhere(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    alpha_column(&col, 2.5, 0.002, 0.004);
+    static char text[1 << 16];
+    static long lines[200];
+    static char xd[200][16];
+    size_t nrows, len = chunk_text(text, sizeof text, lines, xd, &nrows);
+    assert_true(text[len - 1] != '\n');
+    stagecal_runlog *a, *b;
+    stagecal_findings *fa, *fb;
+    read_chunked(text, len, (size_t)1 << 20, &col, &a, &fa);
+    assert_int_equal(a->n, nrows);
+    for (size_t w = 0; w < nrows; w++) {
+        assert_int_equal(a->line[w], lines[w]);
+        double want = strtod(xd[w], NULL);
+        assert_memory_equal(&a->xd[w], &want, sizeof want);
+    }
+    assert_int_equal(a->checksum[0][0], len);
+    int nul = 0;
+    for (size_t k = 0; k < fa->n; k++)
+        nul += strstr(fa->items[k].text, "NUL byte") != NULL;
+    assert_int_equal(nul, 7); /* rows 13, 36, ..., 151 */
+    size_t sizes[140], ns = 0;
+    for (size_t c = 1; c <= 130; c++)
+        sizes[ns++] = c;
+    sizes[ns++] = 1000;
+    sizes[ns++] = 4096;
+    sizes[ns++] = runlog_read_chunk;
+    for (size_t i = 0; i < ns; i++) {
+        read_chunked(text, len, sizes[i], &col, &b, &fb);
+        assert_same_read(a, fa, b, fb);
+        stagecal_runlog_free(b);
+        stagecal_findings_free(fb);
+    }
+    stagecal_runlog_free(a);
+    stagecal_findings_free(fa);
+    stagecal_column_free(&col);
+}
+
+/* A line as long as the buffer, one byte shorter or longer, and the same as the file's last
+ * line without its line feed: the buffer (64 KiB by default) grows to hold a line, so a plain
+ * row whose note fills it is read as a short one is, and the row after it keeps its line.
+ * Oracle: the rows as written (xD by strtod, lines counted by the test) and the same text
+ * with a short note. Fails when file_fill does not grow the buffer for a line that fills it
+ * (2 * cap -> cap: the read ends as out of memory) or when the last line is dropped at the
+ * end of the file (the break before the last line made unconditional). */
+static void runlog_line_at_buffer_bound(void **state)
+{
+    (void)state;
+    stagecal_column col;
+    alpha_column(&col, 2.5, 0.002, 0.004);
+    size_t chunk = runlog_read_chunk;
+    static char text[3 << 17];
+    const char *head = "run,time[s],W[kmol],xD[mol/mol],xB[mol/mol],R,note\n";
+    const char *row = "r1,10,19.9,0.95,0.3,4,";
+    for (int last = 0; last < 2; last++)
+        for (long d = -1; d <= 1; d++) {
+            /* line 2: the row with a note of chunk + d bytes in all (its line feed included) */
+            size_t len = (size_t)snprintf(text, sizeof text, "%s%s", head, row);
+            size_t fill = chunk + (size_t)d - strlen(row) - 1;
+            memset(text + len, 'n', fill);
+            len += fill;
+            text[len++] = '\n';
+            if (!last)
+                len += (size_t)snprintf(text + len, sizeof text - len, "r1,20,19.8,0.94,0.3,4,x\n");
+            else
+                len--; /* the long line is the last, without its line feed */
+            stagecal_runlog *a;
+            stagecal_findings *fa;
+            read_chunked(text, len, chunk, &col, &a, &fa);
+            assert_int_equal(a->n, last ? 1 : 2);
+            double want = 0.95;
+            assert_memory_equal(&a->xd[0], &want, sizeof want);
+            assert_int_equal(a->line[0], 2);
+            if (!last) {
+                want = 0.94;
+                assert_memory_equal(&a->xd[1], &want, sizeof want);
+                assert_int_equal(a->line[1], 3);
+            }
+            assert_int_equal(a->checksum[0][0], len);
+            assert_int_equal(fa->n_errors, 1); /* the run's too few rows, nothing else */
+            stagecal_runlog_free(a);
+            stagecal_findings_free(fa);
+        }
+    stagecal_column_free(&col);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -616,6 +901,9 @@ int main(void)
         cmocka_unit_test(runlog_stream_found_runs_as_whole),
         cmocka_unit_test(runlog_plain_lines_as_libcsv),
         cmocka_unit_test(runlog_plain_lines_any_width),
+        cmocka_unit_test(runlog_padded_parse_as_plain),
+        cmocka_unit_test(runlog_chunk_boundaries_anywhere),
+        cmocka_unit_test(runlog_line_at_buffer_bound),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
