@@ -7,10 +7,10 @@
  * in the buffer; each line is fed to libcsv (or cut by plain_line) on its own, so the row
  * callback knows the line it ends on. Each chunk also goes through a 64-bit checksum (a file
  * given twice is refused by it) and, when the caller records provenance, SHA-256 (a fifth of
- * the reading time at 10^6 rows, so `invert` and `check` skip it). The stream stops reading as soon
- * as a second run has begun: the first is complete, and it is handed out by moving the row arrays
- * (not the rows) into the caller's log; the few rows of the next run are copied back. Memory then
- * holds one run, whatever the length of the log.
+ * the reading time at 10^6 rows, so `invert` and `check` skip it). The stream stops reading
+ * as soon as a second run has begun: the first is complete, and it is handed out by moving
+ * the row arrays (not the rows) into the caller's log; the few rows of the next run are
+ * copied back. Memory then holds one run, whatever the length of the log.
  */
 #include <csv.h>
 #include <errno.h>
