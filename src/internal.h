@@ -67,6 +67,13 @@ int stages_many_by_table(const stagecal_vle *vle, double murphree);
 unsigned stages_invert4_fast(const stagecal_vle *vle, const double xd[4], const double xb[4],
                              const double reflux[4], double murphree,
                              const stagecal_stages_params *par, stagecal_stages_result res[4]);
+/* stages_invert4_fast's test, once for many calls: 1 when its four-row path applies to vle at
+ * murphree under par, with *alpha and *cap the arguments it then gives
+ * stages_alpha_closed4_avx2 (stages_internal.h); row j's stages_invert_quiet result is then, where
+ * bit j of that call's result is set: stages o[j].count + 1.0, ∂/∂xD o[j].d[0], ∂/∂xB o[j].d[1],
+ * ∂/∂R o[j].d[2] (0.0 for each when want_sensitivities is not 1), status ok. */
+int stages_fast4_applies(const stagecal_vle *vle, double murphree,
+                         const stagecal_stages_params *par, double *alpha, double *cap);
 int physics_invert_quiet(const stagecal_physics_cond *cond, double xd, double xb, double murphree,
                          const stagecal_stages_params *params, stagecal_stages_result *res,
                          stagecal_error *err);

@@ -579,6 +579,15 @@ static void many_fill(unsigned on, const alpha_closed_out o[4], int want,
     }
 }
 
+int stages_fast4_applies(const stagecal_vle *vle, double murphree,
+                         const stagecal_stages_params *par, double *alpha, double *cap)
+{
+    if (!vle || !par || !many_applies(vle, murphree, par, cap))
+        return 0;
+    *alpha = vle->alpha;
+    return 1;
+}
+
 unsigned stages_invert4_fast(const stagecal_vle *vle, const double xd[4], const double xb[4],
                              const double reflux[4], double murphree,
                              const stagecal_stages_params *par, stagecal_stages_result res[4])
