@@ -238,6 +238,25 @@ void runlog_drift_xd_for_count(const stagecal_vle *vle, const stagecal_physics_c
                                const stagecal_runlog *log, const stagecal_runlog_result *res,
                                const double *xd_ss, double r, double target, xd_row *rows,
                                size_t n);
+#if defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__ &&                        \
+    (defined(__GNUC__) || defined(__clang__))
+#define RUNLOG_DIGITS8 1
+/* The eight decimal digits of n < 10^8, leading zeros included, as byte values 0–9, the most
+ * significant in the lowest byte (first in memory on this little-endian target): n split into
+ * 4-digit halves in 32-bit lanes, each into 2-digit quarters in 16-bit lanes, each into digits
+ * in bytes, each split one multiply and shift for the whole word (q·10486 >> 20 is q/100
+ * rounded down for q < 10^4, q·103 >> 10 is q/10 for q < 100; no lane carries into the next).
+ * A zero byte below the lowest nonzero one is a leading zero: __builtin_ctzll(d)/8 of them.
+ * Checked against division digit by digit for every n (tests/test_runlog_write.c). */
+static inline uint64_t runlog_digits8(uint32_t n)
+{
+    uint64_t x = (uint64_t)(n / 10000) | (uint64_t)(n % 10000) << 32;
+    uint64_t h = ((x * 10486) >> 20) & 0x0000007F0000007Full;
+    x = h | (x - h * 100) << 16;
+    h = ((x * 103) >> 10) & 0x000F000F000F000Full;
+    return h | (x - h * 10) << 8;
+}
+#endif
 /* printf's "%.9g" of v into d (at most 16 bytes, no NUL) for 1e-13 <= |v| < 1e13, or -1
  * (outside that range, or too close to a rounding tie to be sure: ask printf). */
 int runlog_format_g9(char *d, double v);

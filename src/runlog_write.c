@@ -148,11 +148,18 @@ int runlog_format_g9(char *d, double v)
         m /= 10;
         e++;
     }
-    char dig[9];
-    digits_back(dig + 9, (unsigned long long)m); /* m has nine digits */
+    char dig[9]; /* m has nine digits; nd: without the trailing zeros */
+#if defined(RUNLOG_DIGITS8)
+    uint64_t t = runlog_digits8((uint32_t)(m % 100000000)), c = t + 0x3030303030303030ull;
+    dig[0] = (char)('0' + m / 100000000);
+    memcpy(dig + 1, &c, 8);
+    int nd = t ? 9 - (__builtin_clzll(t) >> 3) : 1;
+#else
+    digits_back(dig + 9, (unsigned long long)m);
     int nd = 9;
     while (nd > 1 && dig[nd - 1] == '0')
         nd--;
+#endif
     char *p = d;
     if (v < 0)
         *p++ = '-';
@@ -227,6 +234,20 @@ static inline __attribute__((always_inline)) int fixed_at(char *d, double v, int
     unsigned long long ip = scaled / ipow10[decimals], fp = scaled % ipow10[decimals];
     char buf[64], *q = buf + 32; /* the text ends at buf + 32; 32 bytes are copied from q */
     int k = decimals;
+#if defined(RUNLOG_DIGITS8)
+    if (k >= 5) { /* fp < 10^decimals: its last eight digits in one store, any ninth before them
+                     (for 3 decimals the loop below took fewer instructions: callgrind) */
+        uint64_t c = runlog_digits8((uint32_t)(fp % 100000000)) + 0x3030303030303030ull;
+        memcpy(q - 8, &c, 8);
+        if (k == 9) {
+            q -= 8;
+            *--q = (char)('0' + fp / 100000000);
+        } else {
+            q -= k;
+        }
+        k = 0;
+    }
+#endif
     for (; k >= 2; k -= 2) {
         unsigned dd = (unsigned)(fp % 100);
         fp /= 100;
