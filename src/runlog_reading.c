@@ -12,6 +12,23 @@
 
 #include "runlog_internal.h"
 
+/* An exponent at *p ('e' or 'E', a sign, one to three digits) added to *e, *p moved past
+ * it; −1 (strtod decides) when it has no digit or more than three. */
+static inline __attribute__((always_inline)) int parse_exponent(const char **pp, int *e)
+{
+    const char *p = *pp + 1;
+    int eneg = 0, ex = 0, ne = 0;
+    if (*p == '-' || *p == '+')
+        eneg = *p++ == '-';
+    for (; *p >= '0' && *p <= '9' && ne < 4; p++, ne++)
+        ex = ex * 10 + (*p - '0');
+    if (ne == 0 || ne == 4)
+        return -1;
+    *e += eneg ? -ex : ex;
+    *pp = p;
+    return 0;
+}
+
 /* Clinger's fast path (Clinger 1990, "How to read floating point numbers accurately",
  * PLDI '90): a decimal of at most 19 digits whose integer mantissa m is below 2^53 and whose
  * power of ten e has |e| <= 22 is m·10^e or m/10^−e rounded once, and since both m and 10^|e|
@@ -45,17 +62,8 @@ static inline __attribute__((always_inline)) int parse_fast(const char *s, const
     }
     if (nd == 0 || nd > 19)
         return -1; /* no digits, or the mantissa may have overflowed: strtod decides */
-    if (*p == 'e' || *p == 'E') {
-        p++;
-        int eneg = 0, ex = 0, ne = 0;
-        if (*p == '-' || *p == '+')
-            eneg = *p++ == '-';
-        for (; *p >= '0' && *p <= '9' && ne < 4; p++, ne++)
-            ex = ex * 10 + (*p - '0');
-        if (ne == 0 || ne == 4)
-            return -1;
-        e += eneg ? -ex : ex;
-    }
+    if ((*p == 'e' || *p == 'E') && parse_exponent(&p, &e))
+        return -1;
     *endp = p;
     if (*p != '\0' || m > ((uint64_t)1 << 53) || e < -22 || e > 22)
         return -1;
@@ -136,17 +144,8 @@ int runlog_parse_padded(const char *s, size_t len, double *v)
     }
     if (nd == 0 || nd > 19)
         return -1;
-    if (*p == 'e' || *p == 'E') {
-        p++;
-        int eneg = 0, ex = 0, ne = 0;
-        if (*p == '-' || *p == '+')
-            eneg = *p++ == '-';
-        for (; *p >= '0' && *p <= '9' && ne < 4; p++, ne++)
-            ex = ex * 10 + (*p - '0');
-        if (ne == 0 || ne == 4)
-            return -1;
-        e += eneg ? -ex : ex;
-    }
+    if ((*p == 'e' || *p == 'E') && parse_exponent(&p, &e))
+        return -1;
     if (p != s + len || m > ((uint64_t)1 << 53) || e < -22 || e > 22)
         return -1;
     double x = (double)m;

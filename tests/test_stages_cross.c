@@ -24,6 +24,7 @@
 #include "stagecal/column.h"
 #include "stagecal/stages.h"
 #include "stagecal/vle.h"
+#include "csv_cells.h"
 #include "testutil.h"
 /* after every system header: banned.h redefines libc names */
 #include "stages_internal.h"
@@ -264,37 +265,6 @@ static void cross4_random_same_bits(void **state)
     }
     print_message("%zu calls in the AVX2 lanes; %zu rows with a NaN in the result\n", lanes, nan);
     gsl_rng_free(g);
-}
-
-/* Column of a CSV header whose name starts with name followed by '[', or -1. */
-static int header_index(const char *header, const char *name)
-{
-    int idx = 0;
-    for (const char *p = header; *p; idx++) {
-        if (strncmp(p, name, strlen(name)) == 0 && p[strlen(name)] == '[')
-            return idx;
-        p = strchr(p, ',');
-        if (!p)
-            break;
-        p++;
-    }
-    return -1;
-}
-
-/* Cell idx of a CSV line as a number (NaN when empty or not a number). */
-static double cell(const char *line, int idx)
-{
-    const char *p = line;
-    for (int i = 0; i < idx && p; i++) {
-        p = strchr(p, ',');
-        if (p)
-            p++;
-    }
-    if (!p || *p == ',' || *p == '\n' || *p == '\0')
-        return NAN;
-    char *end;
-    double v = strtod(p, &end);
-    return end == p ? NAN : v;
 }
 
 /* Collects crossings four at a time and checks each full group. */

@@ -28,6 +28,7 @@
 #include "stagecal/runlog.h"
 #include "stagecal/stages.h"
 #include "stagecal/vle.h"
+#include "csv_cells.h"
 #include "testutil.h"
 /* after every system header: banned.h redefines libc names */
 #include "stages_internal.h"
@@ -113,37 +114,6 @@ static void tangent_closed_form_equals_stepping(void **state)
                   "%.2e in stages, %.2e in the tangents\n",
                   ok, worst_n, worst_d);
     assert_true(ok > 500); /* the grid does reach the ok domain, not only pinches */
-}
-
-/* Column `name` (prefix of a header cell) of a CSV header line, or −1. */
-static int header_index(const char *header, const char *name)
-{
-    int idx = 0;
-    for (const char *p = header; *p; idx++) {
-        if (strncmp(p, name, strlen(name)) == 0 && p[strlen(name)] == '[')
-            return idx;
-        p = strchr(p, ',');
-        if (!p)
-            break;
-        p++;
-    }
-    return -1;
-}
-
-/* Cell idx of a CSV line as a number (NaN when empty or not a number). */
-static double cell(const char *line, int idx)
-{
-    const char *p = line;
-    for (int i = 0; i < idx && p; i++) {
-        p = strchr(p, ',');
-        if (p)
-            p++;
-    }
-    if (!p || *p == ',' || *p == '\n' || *p == '\0')
-        return NAN;
-    char *end;
-    double v = strtod(p, &end);
-    return end == p ? NAN : v;
 }
 
 /* Every row of the demo logs, inverted with the demo constant-α column (α = 2.5) at its
