@@ -12,6 +12,10 @@
 
 #include "runlog_internal.h"
 
+/* The powers of ten that are exact doubles (10^22 is the last): the fast paths' scale. */
+static const double p10[] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,  1e8,  1e9,  1e10, 1e11,
+                             1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
+
 /* An exponent at *p ('e' or 'E', a sign, one to three digits) added to *e, *p moved past
  * it; −1 (strtod decides) when it has no digit or more than three. */
 static inline __attribute__((always_inline)) int parse_exponent(const char **pp, int *e)
@@ -39,9 +43,6 @@ static inline __attribute__((always_inline)) int parse_exponent(const char **pp,
 static inline __attribute__((always_inline)) int parse_fast(const char *s, const char **endp,
                                                             double *v)
 {
-    static const double p10[] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
-                                 1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
-                                 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
     const char *p = s;
     int neg = 0;
     if (*p == '-' || *p == '+')
@@ -102,43 +103,42 @@ static inline unsigned swar_digits(uint64_t w, uint64_t *value)
     return k;
 }
 
+/* The digits at *p, eight bytes at a time, appended to *m (exact while the digits so far,
+ * `before` of them ahead of these, stay at most 19; reading stops past 19); *p moved past
+ * them. Returns how many. */
+static inline __attribute__((always_inline)) int swar_run(const char **pp, uint64_t *m, int before)
+{
+    static const uint64_t pow10[] = {1, 10, 100, 1000, 10000, 100000, 1000000, 10000000, 100000000};
+    const char *p = *pp;
+    uint64_t d = 0, w;
+    unsigned k;
+    int n = 0;
+    do {
+        memcpy(&w, p, 8);
+        k = swar_digits(w, &d);
+        if (k)
+            *m = *m * pow10[k] + d;
+        p += k;
+        n += (int)k;
+    } while (k == 8 && before + n <= 19);
+    *pp = p;
+    return n;
+}
+
 int runlog_parse_padded(const char *s, size_t len, double *v)
 {
 #if defined(__GNUC__) && defined(__BYTE_ORDER__) && __BYTE_ORDER__ == __ORDER_LITTLE_ENDIAN__
-    static const uint64_t pow10[] = {1, 10, 100, 1000, 10000, 100000, 1000000, 10000000, 100000000};
-    static const double p10[] = {1e0,  1e1,  1e2,  1e3,  1e4,  1e5,  1e6,  1e7,
-                                 1e8,  1e9,  1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
-                                 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22};
-    if (runlog_parse_short(s, len, v) == 0)
-        return 0;
-    const char *p = s;
+    const char *p = s; /* (the reader tries runlog_parse_short first: not again here) */
     int neg = 0;
     if (*p == '-' || *p == '+')
         neg = *p++ == '-';
     /* the integer digits, then those after a point, eight bytes at a time: m and the counts
      * as parse_fast's digit loops give them (m exact while nd <= 19; more digits: -1) */
-    uint64_t m = 0, d = 0, w;
-    unsigned k;
-    int nd = 0, e = 0;
-    do {
-        memcpy(&w, p, 8);
-        k = swar_digits(w, &d);
-        if (k)
-            m = m * pow10[k] + d;
-        p += k;
-        nd += (int)k;
-    } while (k == 8 && nd <= 19);
+    uint64_t m = 0;
+    int nd = swar_run(&p, &m, 0), e = 0;
     if (*p == '.') {
-        int nf = 0;
         p++;
-        do {
-            memcpy(&w, p, 8);
-            k = swar_digits(w, &d);
-            if (k)
-                m = m * pow10[k] + d;
-            p += k;
-            nf += (int)k;
-        } while (k == 8 && nd + nf <= 19);
+        int nf = swar_run(&p, &m, nd);
         nd += nf;
         e = -nf;
     }
