@@ -587,6 +587,34 @@ static void table_row(gsl_rng *g, const stagecal_vle *v, size_t i, double *xd, d
     }
 }
 
+/* The four table models of the tests below: NRTL ethanol–water at 101.325 kPa (the bench's
+ * model, an azeotrope near x = 0.89, y* flat near it: buckets of more than four nodes), a table of
+ * 9 invented points (Newton's first step too long on its long segments), one of 161 invented
+ * points crowded into a narrow band of y (buckets of up to nine nodes), and the 9 points with a
+ * plateau at y = 0.6 (the branch's top y_top = 0.6: the bucket guess confirmed by the quotient). */
+static void table_models(stagecal_vle *m[4])
+{
+    const stagecal_antoine ew[2] = {{5.24677, 1598.673, -46.424, 292.77, 366.63},
+                                    {5.08354, 1663.125, -45.622, 344.0, 373.0}};
+    const double p[5] = {-0.8009, 246.18, 3.4578, -586.0809, 0.3};
+    const double tx[9] = {0.05, 0.1, 0.2, 0.35, 0.5, 0.65, 0.8, 0.9, 0.97};
+    const double ty[9] = {0.15, 0.26, 0.43, 0.6, 0.72, 0.82, 0.9, 0.95, 0.985};
+    const double py[9] = {0.15, 0.26, 0.43, 0.6, 0.6, 0.82, 0.9, 0.95, 0.985};
+    double cx[161], cy[161];
+    for (int k = 0; k < 161; k++) { /* as tangent_table_inverse_same_bits */
+        double x = 0.002 + 0.998 * (double)k / 160.0;
+        cx[k] = x;
+        cy[k] = x < 0.1 ? 6.0 * x : x < 0.9 ? 0.6 + 0.05 * (x - 0.1) : 0.64 + 3.6 * (x - 0.9);
+    }
+    m[0] = stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, p, 5, 101325.0, NULL, NULL);
+    m[1] = stagecal_vle_alloc_table(tx, ty, NULL, 9, NULL);
+    m[2] = stagecal_vle_alloc_table(cx, cy, NULL, 161, NULL);
+    m[3] = stagecal_vle_alloc_table(tx, py, NULL, 9, NULL);
+    for (int k = 0; k < 4; k++)
+        assert_non_null(m[k]);
+    assert_true(m[3]->ytop == 0.6);
+}
+
 /* stagecal_stages_invert_many on a Hermite table at E_MV = 1 (several rows stepped side by side
  * in one loop, stages_tab.c) gives each row what stagecal_stages_invert gives it, bit for
  * bit (numbers, status, reason, return value and the first error), and stages_invert_many_quiet
@@ -600,16 +628,8 @@ static void table_row(gsl_rng *g, const stagecal_vle *v, size_t i, double *xd, d
 static void tangent_table_rows_same_as_per_row(void **state)
 {
     (void)state;
-    const stagecal_antoine ew[2] = {{5.24677, 1598.673, -46.424, 292.77, 366.63},
-                                    {5.08354, 1663.125, -45.622, 344.0, 373.0}};
-    const double p[5] = {-0.8009, 246.18, 3.4578, -586.0809, 0.3};
-    const double tx[9] = {0.05, 0.1, 0.2, 0.35, 0.5, 0.65, 0.8, 0.9, 0.97};
-    const double ty[9] = {0.15, 0.26, 0.43, 0.6, 0.72, 0.82, 0.9, 0.95, 0.985};
-    stagecal_vle *models[2] = {
-        stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, p, 5, 101325.0, NULL, NULL),
-        stagecal_vle_alloc_table(tx, ty, NULL, 9, NULL)};
-    assert_non_null(models[0]);
-    assert_non_null(models[1]);
+    stagecal_vle *models[4]; /* the first two: NRTL ethanol-water and the 9-point table */
+    table_models(models);
     gsl_rng *g = gsl_rng_alloc(gsl_rng_mt19937);
     assert_non_null(g);
     gsl_rng_set(g, 37);
@@ -674,8 +694,8 @@ static void tangent_table_rows_same_as_per_row(void **state)
     assert_non_null(a);
     assert_int_equal(stages_many_by_table(a, 1.0), 0);
     stagecal_vle_free(a);
-    stagecal_vle_free(models[0]);
-    stagecal_vle_free(models[1]);
+    for (int k = 0; k < 4; k++)
+        stagecal_vle_free(models[k]);
     free(xd), free(xb), free(r), free(many), free(rc);
     gsl_rng_free(g);
 }
@@ -786,34 +806,6 @@ static void random_table_row(gsl_rng *g, const stagecal_vle *v, double az, doubl
     } else {
         *xb = *xd * (1.0 - 0.05 * gsl_rng_uniform(g));
     }
-}
-
-/* The four table models of the tests below: NRTL ethanol–water at 101.325 kPa (the bench's
- * model, an azeotrope near x = 0.89, y* flat near it: buckets of more than four nodes), a table of
- * 9 invented points (Newton's first step too long on its long segments), one of 161 invented
- * points crowded into a narrow band of y (buckets of up to nine nodes), and the 9 points with a
- * plateau at y = 0.6 (the branch's top y_top = 0.6: the bucket guess confirmed by the quotient). */
-static void table_models(stagecal_vle *m[4])
-{
-    const stagecal_antoine ew[2] = {{5.24677, 1598.673, -46.424, 292.77, 366.63},
-                                    {5.08354, 1663.125, -45.622, 344.0, 373.0}};
-    const double p[5] = {-0.8009, 246.18, 3.4578, -586.0809, 0.3};
-    const double tx[9] = {0.05, 0.1, 0.2, 0.35, 0.5, 0.65, 0.8, 0.9, 0.97};
-    const double ty[9] = {0.15, 0.26, 0.43, 0.6, 0.72, 0.82, 0.9, 0.95, 0.985};
-    const double py[9] = {0.15, 0.26, 0.43, 0.6, 0.6, 0.82, 0.9, 0.95, 0.985};
-    double cx[161], cy[161];
-    for (int k = 0; k < 161; k++) { /* as tangent_table_inverse_same_bits */
-        double x = 0.002 + 0.998 * (double)k / 160.0;
-        cx[k] = x;
-        cy[k] = x < 0.1 ? 6.0 * x : x < 0.9 ? 0.6 + 0.05 * (x - 0.1) : 0.64 + 3.6 * (x - 0.9);
-    }
-    m[0] = stagecal_vle_alloc_activity(STAGECAL_VLE_NRTL, ew, p, 5, 101325.0, NULL, NULL);
-    m[1] = stagecal_vle_alloc_table(tx, ty, NULL, 9, NULL);
-    m[2] = stagecal_vle_alloc_table(cx, cy, NULL, 161, NULL);
-    m[3] = stagecal_vle_alloc_table(tx, py, NULL, 9, NULL);
-    for (int k = 0; k < 4; k++)
-        assert_non_null(m[k]);
-    assert_true(m[3]->ytop == 0.6);
 }
 
 /* stages_invert_many_quiet and stagecal_stages_invert_many on the table models at E_MV = 1 with
